@@ -1,0 +1,69 @@
+"""Write a measurement's outputs (JSON, CSV, overlay PNG) atomically, never over an input."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .load import load_image
+from .measurement import Measurement
+from .outputs import write_atomic
+
+__all__ = ["MeasureOutputs", "write_outputs", "measure_to_outputs"]
+
+
+@dataclass
+class MeasureOutputs:
+    """What :func:`measure_to_outputs` produced."""
+
+    measurement: Measurement
+    document: str
+    written: list[str] = field(default_factory=list)
+
+
+def write_outputs(
+    measurement: Measurement,
+    *,
+    json_out: str | os.PathLike | None = None,
+    csv_out: str | os.PathLike | None = None,
+    overlay_out: str | os.PathLike | None = None,
+    image: Any = None,
+    inputs: tuple = (),
+) -> MeasureOutputs:
+    """Write the requested outputs; ``json_out == "-"`` means "return it, do not write".
+
+    The overlay needs the loaded image (``image``: a LoadedImage), or re-reads the source.
+    Every file is written to a temporary name in its folder and renamed into place, and
+    none of ``inputs`` is ever overwritten.
+    """
+    document = measurement.to_json()
+    written: list[str] = []
+    if json_out is not None and str(json_out) != "-":
+        written.append(str(write_atomic(json_out, document + "\n", inputs=inputs)))
+    if csv_out is not None:
+        written.append(str(write_atomic(csv_out, measurement.to_csv(), inputs=inputs)))
+    if overlay_out is not None:
+        from .overlay import encode_png, render_overlay
+
+        if image is None:
+            image = load_image(measurement.source.path)
+        written.append(str(write_atomic(overlay_out, encode_png(render_overlay(image, measurement)), inputs=inputs)))
+    return MeasureOutputs(measurement=measurement, document=document, written=written)
+
+
+def measure_to_outputs(
+    source: str | os.PathLike,
+    *,
+    json_out: str | os.PathLike | None = None,
+    csv_out: str | os.PathLike | None = None,
+    overlay_out: str | os.PathLike | None = None,
+    **options: Any,
+) -> MeasureOutputs:
+    """Measure ``source`` (see :func:`scanmass.measure` for ``options``) and write outputs."""
+    from .pipeline import measure_loaded
+
+    measurement, image = measure_loaded(source, **options)
+    return write_outputs(measurement, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out,
+                         image=image, inputs=(Path(source),))
