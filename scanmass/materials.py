@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 from importlib import resources
 from os import PathLike
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any, Mapping, Sequence
 
 from .errors import MaterialError
 
@@ -130,15 +130,21 @@ def _build(key: str, entry: Mapping[str, Any], where: str | None) -> Material:
     )
 
 
-def load_materials(extra: str | PathLike[str] | None = None) -> dict[str, Material]:
-    """Read the shipped material table, plus an optional user TOML file.
+def load_materials(
+    extra: str | PathLike[str] | Sequence[str | PathLike[str]] | None = None,
+    *,
+    base: Mapping[str, Material] | None = None,
+) -> dict[str, Material]:
+    """Read the shipped material table, plus optional user TOML files.
 
     Parameters
     ----------
-    extra : path, optional
-        A TOML file in the shipped format (``[material.KEY]`` tables). A KEY that exists
-        in the shipped table updates only the fields the user file sets; a new KEY must
-        give at least ``density_kg_m3``.
+    extra : path or sequence of paths, optional
+        TOML files in the shipped format (``[material.KEY]`` tables), read in order. A
+        KEY that exists already updates only the fields the later file sets; a new KEY
+        must give at least ``density_kg_m3``.
+    base : mapping, optional
+        Start from this table instead of the shipped one.
 
     Returns
     -------
@@ -158,7 +164,21 @@ def load_materials(extra: str | PathLike[str] | None = None) -> dict[str, Materi
     """
     raw: dict[str, dict[str, Any]] = {}
     origin: dict[str, str | None] = {}  # file of each key's last definition, for messages
-    for path in [None] if extra is None else [None, Path(extra)]:
+    if extra is None:
+        extras: list[Path] = []
+    elif isinstance(extra, (str, PathLike)):
+        extras = [Path(extra)]
+    else:
+        extras = [Path(e) for e in extra]
+    if base is not None:
+        for key, mat in base.items():
+            raw[key] = {
+                "name": mat.name, "density_kg_m3": mat.density_kg_m3,
+                "density_range_kg_m3": [mat.density_min_kg_m3, mat.density_max_kg_m3],
+                "aliases": list(mat.aliases), "source": mat.source,
+            }
+            origin[key] = None
+    for path in extras if base is not None else [None, *extras]:
         doc = _read_toml(path)
         where = None if path is None else str(path)
         unknown = set(doc) - {"material"}
