@@ -33,27 +33,32 @@ def fmt_u(value: float | None, u: float | None = None, *, unit: str = "") -> str
 
 
 def measurement_table(m: Measurement) -> Table:
-    """One row per part with the main figures and their standard uncertainties."""
+    """The main figures of every part, one column per part (reads well in narrow terminals)."""
     title = f"{m.source.path or 'image'}  ·  scale {m.scale.method}: {m.scale.mm_per_px:.6g} mm/px (±{100 * m.scale.mm_per_px_rel_u:.2g} %)"
     table = Table(title=title, title_justify="left", header_style="bold")
-    has_mass = any(p.mass_g is not None for p in m.parts)
-    for col, justify in (("part", "right"), ("area mm²", "right"), ("centroid x, y mm", "right"),
-                         ("Ixx / Iyy / Ixy mm⁴", "right"), ("I1 / I2 mm⁴ @ angle", "right"), ("holes Ø mm", "left")):
-        table.add_column(col, justify=justify)
-    if has_mass:
-        table.add_column("mass g", justify="right")
+    table.add_column("figure (± 1σ)", justify="left", no_wrap=True)
     for p in m.parts:
-        row = [
-            f"{p.label}{' (cut)' if p.cut else ''}",
-            fmt_u(p.area_mm2, p.area_u_mm2),
-            f"{fmt_u(p.centroid_mm[0], p.centroid_u_mm[0])}\n{fmt_u(p.centroid_mm[1], p.centroid_u_mm[1])}",
-            f"{p.ixx_mm4:.5g}\n{p.iyy_mm4:.5g}\n{p.ixy_mm4:.5g}",
-            f"{p.i1_mm4:.5g}\n{p.i2_mm4:.5g}\n@ {p.principal_angle_deg:.2f}°",
-            "\n".join(fmt_u(h.diameter_mm, h.diameter_u_mm) for h in p.holes) or "-",
-        ]
-        if has_mass:
-            row.append(fmt_u(p.mass_g, p.mass_u_g))
-        table.add_row(*row)
+        table.add_column(f"part {p.label}{' (cut)' if p.cut else ''}", justify="right", no_wrap=True)
+    rows = [
+        ("area mm²", [fmt_u(p.area_mm2, p.area_u_mm2) for p in m.parts]),
+        ("centroid x mm", [fmt_u(p.centroid_mm[0], p.centroid_u_mm[0]) for p in m.parts]),
+        ("centroid y mm", [fmt_u(p.centroid_mm[1], p.centroid_u_mm[1]) for p in m.parts]),
+        ("perimeter mm", [fmt_u(p.perimeter_mm, p.perimeter_u_mm) for p in m.parts]),
+        ("Ixx mm⁴", [fmt_u(p.ixx_mm4, p.ixx_u_mm4) for p in m.parts]),
+        ("Iyy mm⁴", [fmt_u(p.iyy_mm4, p.iyy_u_mm4) for p in m.parts]),
+        ("Ixy mm⁴", [fmt_u(p.ixy_mm4, p.ixy_u_mm4) for p in m.parts]),
+        ("I1 mm⁴", [fmt_u(p.i1_mm4, p.i1_u_mm4) for p in m.parts]),
+        ("I2 mm⁴", [fmt_u(p.i2_mm4, p.i2_u_mm4) for p in m.parts]),
+        ("I2 axis angle °", [fmt_u(p.principal_angle_deg, p.principal_angle_u_deg) for p in m.parts]),
+        ("section modulus top/bottom mm³", [f"{p.modulus_top_mm3:.5g} / {p.modulus_bottom_mm3:.5g}" for p in m.parts]),
+        ("section modulus right/left mm³", [f"{p.modulus_right_mm3:.5g} / {p.modulus_left_mm3:.5g}" for p in m.parts]),
+        ("caliper max/min mm", [f"{p.caliper_max_mm:.3f} / {p.caliper_min_mm:.3f}" for p in m.parts]),
+        ("holes", [str(len(p.holes)) for p in m.parts]),
+    ]
+    if any(p.mass_g is not None for p in m.parts):
+        rows.append(("mass g", [fmt_u(p.mass_g, p.mass_u_g) for p in m.parts]))
+    for name, values in rows:
+        table.add_row(name, *values)
     return table
 
 
