@@ -14,6 +14,7 @@ from typing import Annotated, Iterator, Optional
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 
 from . import __version__
 from .errors import ScanmassError
@@ -32,12 +33,13 @@ EXIT_USER_ERROR = 1
 
 
 def _console(stderr: bool = False) -> Console:
-    return Console(stderr=stderr, highlight=False, soft_wrap=False)
+    # messages on stderr never wrap: an error stays one line however narrow the terminal
+    return Console(stderr=stderr, highlight=False, soft_wrap=stderr)
 
 
 def fail(message: str) -> None:
     """Print a one-line error to stderr and exit with :data:`EXIT_USER_ERROR`."""
-    _console(stderr=True).print(f"[bold red]error:[/] {message}", markup=True, highlight=False)
+    _console(stderr=True).print(f"[bold red]error:[/] {escape(message)}", markup=True, highlight=False)
     raise typer.Exit(code=EXIT_USER_ERROR)
 
 
@@ -127,7 +129,7 @@ def _print_measurement(m) -> None:
     if holes is not None:
         console.print(holes)
     for w in m.warnings:
-        _console(stderr=True).print(f"[yellow]warning:[/] {w}", markup=True)
+        _console(stderr=True).print(f"[yellow]warning:[/] {escape(w)}", markup=True)
 
 
 @app.command()

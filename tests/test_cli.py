@@ -1,0 +1,174 @@
+"""The command line through typer's CliRunner: outputs, exit codes, one-line errors.
+
+Expected figures: the exact polygons the scans are rendered from (areas by closed forms:
+disc pi r^2, rectangle b h; statics handbook section table, common practice).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import re
+from pathlib import Path
+
+import numpy as np
+import pytest
+from PIL import Image
+from typer.testing import CliRunner
+
+from scanmass.cli import app
+from scanmass.measurement import Measurement
+from scanmass.synth import SynthPart, circle, rectangle, render_scan, save_scan
+
+runner = CliRunner()
+
+
+@pytest.fixture(scope="module")
+def scan_png(tmp_path_factory) -> Path:
+    folder = tmp_path_factory.mktemp("scans")
+    parts = [SynthPart(rectangle(8.0, 9.0, 30.0, 20.0), [circle(23.0, 19.0, 4.0)]), SynthPart(circle(60.0, 20.0, 9.0))]
+    scan = render_scan(parts, dpi=300, size_mm=(80, 40), blur_px=0.9, noise=0.005, seed=21)
+    return save_scan(scan, folder / "plate.png")
+
+
+def _one_line_error(result, *needles: str) -> str:
+    assert result.exit_code == 1, result.output
+    text = result.stderr if hasattr(result, "stderr") else result.output
+    lines = [ln for ln in text.strip().splitlines() if ln.strip()]
+    assert len(lines) == 1, text
+    assert "Traceback" not in text
+    for needle in needles:
+        assert needle in lines[0], lines[0]
+    return lines[0]
+
+
+def test_measure_writes_json_csv_overlay(scan_png, tmp_path):
+    out_json, out_csv, out_png = tmp_path / "r.json", tmp_path / "r.csv", tmp_path / "o.png"
+    result = runner.invoke(app, ["measure", str(scan_png), "--json", str(out_json), "--csv", str(out_csv), "--overlay", str(out_png)])
+    assert result.exit_code == 0, result.output
+    m = Measurement.from_json(out_json.read_text())
+    areas = sorted(p.area_mm2 for p in m.parts)
+    # truth: plate 30 x 20 minus a disc of r = 4 (600 - 16 pi); disc r = 9 (81 pi); closed forms
+    assert areas == pytest.approx(sorted([600 - 16 * math.pi, 81 * math.pi]), rel=1e-3)
+    rows = out_csv.read_text().splitlines()
+    assert rows[0].startswith("file,part,area_mm2,area_u_mm2,centroid_x_mm,centroid_y_mm")
+    assert len(rows) == 3
+    with Image.open(out_png) as im:
+        assert im.format == "PNG" and im.size[0] > 100
+    assert "part 1" in result.output and "area mm²" in result.output
+
+
+def test_measure_json_to_stdout(scan_png):
+    result = runner.invoke(app, ["measure", str(scan_png), "--json", "-"])
+    assert result.exit_code == 0
+    doc = json.loads(result.stdout)
+    assert doc["schema"] == "scanmass.result/1" and len(doc["parts"]) == 2
+
+
+def test_measure_with_material_adds_mass(scan_png):
+    result = runner.invoke(app, ["measure", str(scan_png), "--json", "-", "--material", "aluminium-6082", "--thickness", "2"])
+    assert result.exit_code == 0, result.output
+    doc = json.loads(result.stdout)
+    assert all(p["mass_g"] > 0 and p["mass_u_g"] > 0 for p in doc["parts"])
+
+
+def test_help_and_version():
+    assert runner.invoke(app, ["--version"]).output.startswith("scanmass ")
+    result = runner.invoke(app, ["measure", "--help"])
+    assert result.exit_code == 0 and "--dpi" in result.output
+
+
+def test_every_command_has_help_text():
+    import typer.main
+
+    group = typer.main.get_command(app)
+    for name, command in group.commands.items():
+        assert command.help, f"command {name} lacks help text"
+        for param in command.params:
+            if param.param_type_name == "option" and param.name not in ("help",):
+                assert getattr(param, "help", None), f"{name} option {param.name} lacks help"
+
+
+@pytest.mark.parametrize(
+    "content, suffix, needles",
+    [
+        (b"", ".png", ["empty"]),
+        (b"this is not an image at all" * 10, ".png", ["not"]),
+    ],
+)
+def test_bad_files(tmp_path, content, suffix, needles):
+    path = tmp_path / f"bad{suffix}"
+    path.write_bytes(content)
+    line = _one_line_error(runner.invoke(app, ["measure", str(path)]), str(path))
+    for n in needles:
+        assert n in line.lower()
+
+
+def test_truncated_file(scan_png, tmp_path):
+    data = scan_png.read_bytes()
+    path = tmp_path / "cut.png"
+    path.write_bytes(data[: len(data) // 2])
+    _one_line_error(runner.invoke(app, ["measure", str(path)]), str(path))
+
+
+def test_missing_file(tmp_path):
+    _one_line_error(runner.invoke(app, ["measure", str(tmp_path / "nope.png")]), "nope.png")
+
+
+def test_no_scale(tmp_path):
+    scan = render_scan([SynthPart(circle(20, 20, 8))], dpi=300, size_mm=(40, 40), seed=1)
+    path = save_scan(scan, tmp_path / "nodpi.png", dpi="omit")
+    _one_line_error(runner.invoke(app, ["measure", str(path)]), str(path), "--dpi")
+
+
+def test_default_72_dpi_is_unknown(tmp_path):
+    scan = render_scan([SynthPart(circle(20, 20, 8))], dpi=300, size_mm=(40, 40), seed=1)
+    path = save_scan(scan, tmp_path / "d72.jpg", dpi=72)
+    _one_line_error(runner.invoke(app, ["measure", str(path)]), str(path), "--dpi")
+
+
+@pytest.mark.parametrize("dpi", ["0", "-300", "nan", "1e9"])
+def test_absurd_dpi(scan_png, dpi):
+    _one_line_error(runner.invoke(app, ["measure", str(scan_png), "--dpi", dpi]), "dpi")
+
+
+@pytest.mark.parametrize("option, value", [("--min-area", "-1"), ("--level", "1.5"), ("--threshold", "2"), ("--max-pixels", "0")])
+def test_absurd_options(scan_png, option, value):
+    _one_line_error(runner.invoke(app, ["measure", str(scan_png), option, value]))
+
+
+def test_image_too_large(scan_png):
+    _one_line_error(runner.invoke(app, ["measure", str(scan_png), "--max-pixels", "1000"]), "--max-pixels")
+
+
+def test_all_background_and_all_foreground(tmp_path):
+    blank = tmp_path / "blank.png"
+    Image.fromarray(np.full((200, 200), 240, np.uint8)).save(blank, dpi=(300, 300))
+    _one_line_error(runner.invoke(app, ["measure", str(blank)]), str(blank))
+    dark = tmp_path / "dark.png"
+    arr = np.full((200, 200), 20, np.uint8)
+    arr[90:110, 90:110] = 30
+    Image.fromarray(arr).save(dark, dpi=(300, 300))
+    _one_line_error(runner.invoke(app, ["measure", str(dark)]), str(dark))
+
+
+def test_unwritable_output_and_no_overwrite_of_input(scan_png, tmp_path):
+    _one_line_error(runner.invoke(app, ["measure", str(scan_png), "--json", str(tmp_path / "missing" / "r.json")]), "missing")
+    before = scan_png.read_bytes()
+    _one_line_error(runner.invoke(app, ["measure", str(scan_png), "--overlay", str(scan_png)]))
+    assert scan_png.read_bytes() == before
+
+
+def test_outputs_are_atomic_no_temp_left(scan_png, tmp_path):
+    runner.invoke(app, ["measure", str(scan_png), "--json", str(tmp_path / "r.json")])
+    leftovers = [p for p in os.listdir(tmp_path) if p != "r.json"]
+    assert leftovers == []
+
+
+def test_demo_runs(tmp_path):
+    result = runner.invoke(app, ["demo", "--out", str(tmp_path / "demo")])
+    assert result.exit_code == 0, result.output
+    written = sorted(p.name for p in (tmp_path / "demo").iterdir())
+    assert any(n.endswith(".json") for n in written) and any(n.endswith("-overlay.png") for n in written)
+    assert re.search(r"results in .*demo", result.output)
