@@ -383,7 +383,14 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
         elif not math.isfinite(sigma):
             var += np.nan
     u = np.sqrt(var)
+    u[u <= 1e-9 * np.abs(base)] = 0.0  # differences of exactly cancelling terms leave rounding noise
     values, axes = _principal(inertia)
+    if values[-1] < -1e-9 * values[0]:
+        raise OptionError(
+            "the combined inertia is not physical (a principal moment is negative): a cut-out removes "
+            "material that is not there; check the cut-outs' placement and z_mm",
+            path=path,
+        )
 
     rows = []
     for i, (mem, (m_i, c_i, i_i)) in enumerate(zip(members, figures), 1):

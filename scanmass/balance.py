@@ -12,6 +12,7 @@ This is a static check of a flat plate only; see :data:`CAUTIONS`.
 
 from __future__ import annotations
 
+import json
 import math
 from dataclasses import asdict, dataclass, field
 from os import PathLike
@@ -131,6 +132,10 @@ class BalanceResult:
     def to_dict(self) -> dict[str, Any]:
         """Plain JSON-ready values (NaN becomes null)."""
         return _clean(asdict(self))
+
+    def to_json(self, *, indent: int | None = 1) -> str:
+        """The result as JSON text."""
+        return json.dumps(self.to_dict(), indent=indent, allow_nan=False)
 
 
 # -- geometry helpers -------------------------------------------------------------------

@@ -241,6 +241,9 @@ def test_image_members_are_measured_once_with_their_dpi(tmp_path, monkeypatch):
      OptionError, r"anchor 'hole 3' names no hole of part 1 \(holes: none\)"),
     ('[[member]]\nsource = "a.json"\npart = 2\nmaterial = "steel"\nthickness_mm = 1\ncutout = true\n',
      OptionError, r"the cut-outs outweigh the members"),
+    ('[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\n'
+     '[[member]]\nsource = "a.json"\npart = 2\nmaterial = "steel"\nthickness_mm = 1\ncutout = true\nz_mm = 40\n',
+     OptionError, r"the combined inertia is not physical \(a principal moment is negative\)"),
     ('name = "empty"\n', OptionError, r"no members; add one \[\[member\]\] table per part"),
 ])
 def test_bad_assembly_files_give_one_line_errors(tmp_path, body, error, match):
