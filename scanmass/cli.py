@@ -147,3 +147,99 @@ def demo(
     for line in summary.lines:
         console.print(line)
     console.print(f"results in {summary.out_dir}")
+
+
+# -- materials, assemblies, unbalance -------------------------------------------------------
+JsonOutOpt = Annotated[Optional[str], typer.Option("--json", help="Write the result (JSON); '-' for stdout.")]
+
+
+def _emit_json(json_out: str | None, text: str, inputs: list[Path]) -> None:
+    """Write a JSON document to a file (atomically, never over an input) or to stdout for '-'."""
+    from ._resultio import write_output
+
+    if json_out == "-":
+        sys.stdout.write(text + "\n")
+    elif json_out is not None:
+        with user_errors():
+            written = write_output(json_out, text + "\n", inputs=inputs)
+        _console().print(f"wrote {written}")
+
+
+@app.command("materials")
+def list_materials(materials: MaterialsFileOpt = None) -> None:
+    """List the material table: density, typical range, uncertainty and source of each."""
+    from .mass_tables import materials_table
+    from .materials import load_materials
+
+    with user_errors():
+        table = load_materials(materials)
+    _console().print(materials_table(table))
+
+
+@app.command()
+def assemble(
+    file: Annotated[Path, typer.Argument(help="Assembly TOML file: members, materials, placements (lengths in mm).")],
+    *,
+    json_out: JsonOutOpt = None,
+    csv_out: Annotated[Optional[Path], typer.Option("--csv", help="Write the per-member table and the total (CSV).")] = None,
+    materials: MaterialsFileOpt = None,
+) -> None:
+    """Combine the plates listed in FILE: total mass, 3D centre of mass, inertia tensor."""
+    from ._resultio import write_output
+    from .assembly import assemble as assemble_file
+    from .mass_tables import assembly_summary_table, assembly_table
+
+    with user_errors():
+        result = assemble_file(file, materials=materials)
+        inputs = [file, *(file.parent / m.source for m in result.members)]
+        if csv_out is not None:
+            written = write_output(csv_out, result.to_csv(), inputs=inputs)
+    if json_out != "-":
+        console = _console()
+        console.print(assembly_table(result))
+        console.print(assembly_summary_table(result))
+        console.print(f"[yellow]caution:[/] {escape(result.cautions)}", markup=True)
+        if csv_out is not None:
+            console.print(f"wrote {written}")
+    _emit_json(json_out, result.to_json(), inputs)
+
+
+@app.command()
+def balance(
+    source: Annotated[Path, typer.Argument(help="Result JSON from 'scanmass measure --json', or an image to measure.")],
+    *,
+    material: MaterialOpt = None,
+    thickness: ThicknessOpt = None,
+    thickness_tol: ThicknessTolOpt = 0.0,
+    rpm: Annotated[Optional[float], typer.Option("--rpm", help="Maximum service speed, rev/min.")] = None,
+    grade: Annotated[Optional[float], typer.Option("--grade", help="ISO 21940-11 balance quality grade G, mm/s (e.g. 6.3).")] = None,
+    bore: Annotated[Optional[int], typer.Option("--bore", help="Label of the hole the part spins about (default: the hole nearest the centroid).")] = None,
+    part: Annotated[Optional[int], typer.Option("--part", help="Part label (needed when the result has several parts).")] = None,
+    radius: Annotated[Optional[float], typer.Option("--radius", help="Correction radius from the axis, mm (default: midway between bore and rim).")] = None,
+    drill: Annotated[Optional[float], typer.Option("--drill", help="Drill diameter for a blind-hole correction, mm.")] = None,
+    drill_step: Annotated[Optional[float], typer.Option("--drill-step", help="Round the through-hole diameter to this step, mm.")] = None,
+    json_out: JsonOutOpt = None,
+    dpi: DpiOpt = None,
+    materials: MaterialsFileOpt = None,
+) -> None:
+    """Static unbalance of a plate spinning about a bore, against an ISO 21940-11 grade."""
+    from .assembly import load_measurement
+    from .balance import balance_measurement
+    from .mass_tables import balance_table
+
+    if material is None or thickness is None:
+        fail("balance needs the plate's material and thickness, e.g. --material steel --thickness 3")
+    with user_errors():
+        result = balance_measurement(
+            load_measurement(source, dpi=dpi), material, thickness, part=part, thickness_u_mm=thickness_tol,
+            hole=bore, rpm=rpm, grade=grade, correction_radius_mm=radius, drill_diameter_mm=drill,
+            drill_step_mm=drill_step, materials=materials,
+        )
+    if json_out != "-":
+        console = _console()
+        console.print(balance_table(result))
+        console.print(f"[bold]{escape(result.verdict)}[/]", markup=True)
+        for note in result.notes:
+            console.print(f"note: {escape(note)}")
+        console.print(f"[yellow]caution:[/] {escape(result.cautions)}", markup=True)
+    _emit_json(json_out, result.to_json(), [source])

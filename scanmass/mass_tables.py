@@ -1,0 +1,101 @@
+"""Terminal tables (rich) of materials, assemblies and unbalance results; printed by the CLI."""
+
+from __future__ import annotations
+
+import math
+from typing import Mapping
+
+from rich.table import Table
+
+from .assembly import AssemblyResult
+from .balance import BalanceResult
+from .materials import Material
+from .tables import fmt_u
+
+__all__ = ["materials_table", "assembly_table", "assembly_summary_table", "balance_table"]
+
+
+def materials_table(table: Mapping[str, Material]) -> Table:
+    """One row per material: key, name, density and range, standard uncertainty, source."""
+    out = Table(title="materials (density u = range half-width / √3)", title_justify="left", header_style="bold")
+    out.add_column("key", no_wrap=True)
+    out.add_column("name")
+    out.add_column("kg/m³", justify="right", no_wrap=True)
+    out.add_column("range kg/m³", justify="right", no_wrap=True)
+    out.add_column("u kg/m³", justify="right", no_wrap=True)
+    out.add_column("source")
+    for key, mat in table.items():
+        out.add_row(key, mat.name, f"{mat.density_kg_m3:g}", f"{mat.density_min_kg_m3:g}–{mat.density_max_kg_m3:g}",
+                    f"{mat.density_u_kg_m3:.2g}", mat.source)
+    return out
+
+
+def assembly_table(result: AssemblyResult) -> Table:
+    """The per-member table: signed mass (cut-outs negative) and centre of mass in the assembly frame."""
+    title = f"{result.name or result.path or 'assembly'}: members"
+    out = Table(title=title, title_justify="left", header_style="bold")
+    for col, justify in (("#", "right"), ("member", "left"), ("source:part", "left"), ("material, t mm", "left"),
+                         ("n", "right"), ("mass g (± 1σ)", "right"), ("CoM x, y, z mm", "right")):
+        out.add_column(col, justify=justify, overflow="fold")
+    for m in result.members:
+        out.add_row(str(m.index), m.name + (" (cut-out)" if m.cutout else ""), f"{m.source}:{m.part}",
+                    f"{m.material}, {m.thickness_mm:g}", str(m.count), fmt_u(m.mass_g, m.mass_u_g),
+                    ", ".join(f"{c:.2f}" for c in m.centre_of_mass_mm))
+    return out
+
+
+def assembly_summary_table(result: AssemblyResult) -> Table:
+    """Totals: mass, weight, centre of mass, inertia tensor and principal moments."""
+    out = Table(title="assembly totals (± 1σ); inertia about the centre of mass", title_justify="left", header_style="bold")
+    out.add_column("figure", no_wrap=True)
+    out.add_column("value", justify="right", no_wrap=True)
+    out.add_row("mass g", fmt_u(result.mass_g, result.mass_u_g))
+    out.add_row("weight N (standard gravity)", fmt_u(result.weight_n, result.weight_u_n))
+    for axis, value, u in zip("xyz", result.centre_of_mass_mm, result.centre_of_mass_u_mm):
+        out.add_row(f"centre of mass {axis} mm", fmt_u(value, u))
+    names = ("xx", "yy", "zz", "xy", "xz", "yz")
+    index = ((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))
+    for name, (i, j) in zip(names, index):
+        out.add_row(f"inertia tensor {name} g·mm²", fmt_u(result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j]))
+    for k, (value, u, axis) in enumerate(zip(result.principal_g_mm2, result.principal_u_g_mm2, result.principal_axes), 1):
+        direction = ", ".join(f"{c:+.4f}" for c in axis)
+        out.add_row(f"principal I{k} g·mm² (axis {direction})", fmt_u(value, u))
+    return out
+
+
+def balance_table(result: BalanceResult) -> Table:
+    """The unbalance figures and the correction, one figure per row."""
+    title = f"{result.source or 'part'}: part {result.part} spinning about hole {result.hole}"
+    out = Table(title=title, title_justify="left", header_style="bold")
+    out.add_column("figure (± 1σ)", no_wrap=True)
+    out.add_column("value", justify="right", no_wrap=True)
+
+    def row(name: str, text: str | None) -> None:
+        if text is not None:
+            out.add_row(name, text)
+
+    def num(value: float | None, fmt: str = ".4g") -> str | None:
+        return None if value is None or not math.isfinite(value) else format(value, fmt)
+
+    row("axis (bore centre) x, y mm", f"{result.axis_mm[0]:.3f}, {result.axis_mm[1]:.3f}")
+    row("bore diameter mm", num(result.bore_diameter_mm))
+    row("mass g", fmt_u(result.mass_g, result.mass_u_g))
+    row("offset e mm", fmt_u(result.offset_mm, result.offset_u_mm))
+    row("unbalance U g·mm", fmt_u(result.unbalance_gmm, result.unbalance_u_gmm))
+    row("heavy spot angle °", num(result.heavy_angle_deg, ".1f"))
+    if result.permissible_gmm is not None:
+        row(f"permissible U (G {result.grade_mm_s:g}, {result.rpm:g} rpm) g·mm", num(result.permissible_gmm))
+        row("permissible offset µm", num(1000 * result.permissible_offset_mm))
+    row("offset resolved at 2σ µm", num(1000 * result.resolvable_offset_mm))
+    if result.correction_radius_mm is not None:
+        row("correction radius mm", num(result.correction_radius_mm))
+        row(f"remove at {result.remove_angle_deg:.1f}° g", num(result.remove_mass_g))
+        row(f"or add at {result.add_angle_deg:.1f}° g", num(result.add_mass_g))
+        row("through-hole diameter mm", num(result.hole_diameter_mm))
+        if result.applied_hole_diameter_mm != result.hole_diameter_mm:
+            row("rounded hole diameter mm", num(result.applied_hole_diameter_mm))
+        row("hole fits in material", {True: "yes", False: "NO", None: "unknown"}[result.correction_fits])
+        if result.drill_depth_mm is not None:
+            row(f"blind-hole depth with ⌀{result.drill_diameter_mm:g} drill mm", num(result.drill_depth_mm))
+        row("U after correction g·mm", fmt_u(result.corrected_unbalance_gmm, result.corrected_unbalance_u_gmm))
+    return out
