@@ -22,7 +22,7 @@ import numpy as np
 
 from .assembly import select_part
 from .errors import OptionError
-from .mass import _table, check_positive, plate_mass
+from .mass import check_positive, plate_mass
 from .materials import Material, resolve_material
 from .measurement import Hole, Measurement, Part, _clean
 
@@ -294,8 +294,7 @@ def static_unbalance(
     A disc of mass m_disc with its bore off-centre by s has U = m_disc s; see
     tests/test_balance.py.
     """
-    table = _table(materials)
-    mat = resolve_material(material, table)
+    mat = resolve_material(material, materials)
     mp = plate_mass(part, mat, thickness_mm, thickness_u_mm=thickness_u_mm)
     t = mp.thickness_mm
     if (rpm is None) != (grade is None):

@@ -18,7 +18,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from .errors import OptionError
-from .materials import Material, load_materials, resolve_material
+from .materials import Material, resolve_material
 from .measurement import Measurement, Part
 
 __all__ = [
@@ -55,13 +55,6 @@ def check_positive(name: str, value: Any, *, unit: str = "mm", hint: str = "", a
         kind = "zero or a positive number" if allow_zero else "a positive number"
         raise OptionError(f"{name} must be {kind} of {unit}, got {value!r}; {hint or 'pass a sensible value'}")
     return number
-
-
-def _table(materials: Mapping[str, Material] | str | PathLike[str] | None) -> Mapping[str, Material] | None:
-    """A material table from a mapping, a user TOML path, or None (the shipped table)."""
-    if materials is None or isinstance(materials, Mapping):
-        return materials
-    return load_materials(materials)
 
 
 @dataclass
@@ -166,8 +159,7 @@ def plate_mass(
     A 100 mm x 50 mm carbon-steel plate, 2 mm thick, weighs 7850e-6 g/mm3 x 5000 mm2
     x 2 mm = 78.5 g; this is checked in tests/test_mass.py.
     """
-    table = _table(materials)
-    mat = resolve_material(material, table)
+    mat = resolve_material(material, materials)
     t = check_positive("thickness_mm", thickness_mm, hint="pass the sheet thickness in mm, e.g. 2.0")
     ut = check_positive("thickness_u_mm", thickness_u_mm, allow_zero=True, hint="pass the thickness's standard uncertainty in mm, or 0")
     area = float(part.area_mm2)
@@ -281,7 +273,7 @@ def apply_mass(
     """
     t = check_positive("thickness_mm", thickness_mm, hint="pass the sheet thickness in mm, e.g. 2.0")
     ut = check_positive("thickness_u_mm", thickness_u_mm, allow_zero=True, hint="pass the thickness's standard uncertainty in mm, or 0")
-    mat = resolve_material(material, _table(materials))
+    mat = resolve_material(material, materials)
     out = copy.deepcopy(measurement)
     for part in out.parts:
         props = plate_mass(part, mat, t, thickness_u_mm=ut)

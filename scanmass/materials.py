@@ -245,10 +245,18 @@ def find_material(name: str, table: Mapping[str, Material] | None = None) -> Mat
     )
 
 
-def resolve_material(material: Material | str, materials: Mapping[str, Material] | None = None) -> Material:
-    """Return ``material`` itself, or look a name up with :func:`find_material`."""
+def resolve_material(
+    material: Material | str,
+    materials: Mapping[str, Material] | str | PathLike[str] | None = None,
+) -> Material:
+    """Return ``material`` itself, or look a name up with :func:`find_material`.
+
+    ``materials`` is a table from :func:`load_materials`, or a user materials TOML file
+    read on top of the shipped table, or None for the shipped table.
+    """
     if isinstance(material, Material):
         return material
     if material is None:
         raise MaterialError("no material given; pass a material name (run 'scanmass materials' to list them)")
-    return find_material(str(material), materials)
+    table = materials if materials is None or isinstance(materials, Mapping) else load_materials(materials)
+    return find_material(str(material), table)
