@@ -331,10 +331,9 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
     Uncertainty model (first order, central differences of +-1 sigma per input):
     members of the same material share one density error; members of the same material
     and nominal thickness are taken as cut from the same sheet and share one thickness
-    error; members of the same source and part share that part's area, centroid and
-    second-moment errors (members holding the same Part object: copies and cut-outs of
-    one part are fully correlated); all
-    other inputs are independent.
+    error; members holding the same Part object share that part's area, centroid and
+    second-moment errors (copies and cut-outs of one measured part are fully
+    correlated); all other inputs are independent.
 
     References
     ----------
@@ -346,14 +345,13 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
         if mem.mirror not in (None, "x", "y"):
             raise OptionError(f"member {i}: mirror must be 'x' or 'y', got {mem.mirror!r}", path=path)
 
-    # one perturbation parameter per shared error: (label, sigma, apply(inputs list) -> inputs list)
     nominal = [
         _Inputs(m.material.density_kg_m3 * 1e-6, m.thickness_mm, float(m.part.area_mm2),
                 float(m.part.centroid_mm[0]), float(m.part.centroid_mm[1]),
                 float(m.part.ixx_mm4), float(m.part.iyy_mm4), float(m.part.ixy_mm4))
         for m in members
     ]
-    params = _parameters(members)
+    params = _parameters(members)  # one entry per shared error source
 
     def evaluate(step: tuple[str, Any, float] | None) -> tuple[np.ndarray, tuple]:
         inputs = list(nominal)
