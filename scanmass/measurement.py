@@ -215,8 +215,29 @@ class Measurement:
         return _clean(doc)
 
     def to_json(self, *, indent: int | None = 1, outlines: bool = True) -> str:
-        """Serialise to a JSON string (the result document)."""
-        return json.dumps(self.to_dict(outlines=outlines), indent=indent, allow_nan=False)
+        """Serialise to a JSON string (the result document).
+
+        The structure is indented for reading; outlines (long lists of vertices) are
+        written compactly, one list per line, which keeps large results fast to write.
+        """
+        doc = self.to_dict(outlines=False)
+        if not outlines:
+            return json.dumps(doc, indent=indent, allow_nan=False)
+        rings: list[np.ndarray | None] = []
+
+        def slot(ring: np.ndarray | None) -> str:
+            rings.append(ring)
+            return f"@@outline{len(rings) - 1}@@"
+
+        for part_doc, part in zip(doc["parts"], self.parts):
+            for hole_doc, hole in zip(part_doc["holes"], part.holes):
+                hole_doc["outline_mm"] = slot(hole.outline_mm)
+            part_doc["outline_mm"] = slot(part.outline_mm)
+        text = json.dumps(doc, indent=indent, allow_nan=False)
+        for k, ring in enumerate(rings):
+            compact = json.dumps(_ring_to_list(ring), separators=(",", ":"), allow_nan=False)
+            text = text.replace(f'"@@outline{k}@@"', compact, 1)
+        return text
 
     @classmethod
     def from_dict(cls, doc: dict[str, Any], *, path: str | None = None) -> "Measurement":

@@ -122,28 +122,9 @@ def _fit_surface(values: np.ndarray, rows: np.ndarray, cols: np.ndarray, scale: 
     return coef, order, sigma, int(keep.sum())
 
 
-def _eval_surface(coef: np.ndarray, order: int, shape: tuple[int, int], r0: int, c0: int, scale: float) -> np.ndarray:
-    rows, cols = np.mgrid[r0 : r0 + shape[0], c0 : c0 + shape[1]].astype(np.float64)
-    a = _poly_design((cols / scale).ravel(), (rows / scale).ravel(), order)
-    return (a @ coef).reshape(shape)
-
-
 def _ring_area(ring: np.ndarray) -> float:
     x, y = ring[:, 0], ring[:, 1]
     return 0.5 * float(np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y))
-
-
-def _bilinear(img: np.ndarray, pts_rc: np.ndarray) -> np.ndarray:
-    r = np.clip(pts_rc[:, 0], 0, img.shape[0] - 1.000001)
-    c = np.clip(pts_rc[:, 1], 0, img.shape[1] - 1.000001)
-    r0, c0 = np.floor(r).astype(int), np.floor(c).astype(int)
-    fr, fc = r - r0, c - c0
-    return (
-        img[r0, c0] * (1 - fr) * (1 - fc)
-        + img[r0 + 1, c0] * fr * (1 - fc)
-        + img[r0, c0 + 1] * (1 - fr) * fc
-        + img[r0 + 1, c0 + 1] * fr * fc
-    )
 
 
 def segment(
@@ -240,9 +221,9 @@ def segment(
     part_level = float(np.median(small[fg_core]))
     if threshold is None:
         t_map = background_map * (1.0 + ratio) / 2.0
-        t_enc = np.searchsorted(lut, t_map).astype(np.float32)  # first encoded value >= linear threshold
+        # first encoded value >= the linear threshold, in the image's own dtype (no float copy at full size)
+        t_enc = np.searchsorted(lut, t_map).clip(0, len(lut) - 1).astype(grey.dtype)
         t_full = cv2.resize(t_enc, (width, height), interpolation=cv2.INTER_LINEAR) if factor > 1 else t_enc
-        t_full = t_full.astype(grey.dtype) if grey.dtype != np.float32 else t_full
     else:
         t_full = np.full((1, 1), int(round(threshold * full_scale)), dtype=grey.dtype)
     mask = (grey < t_full) if bright_background else (grey > t_full)
@@ -323,15 +304,31 @@ def _touches_roi(cnt: np.ndarray, roi_px: np.ndarray) -> bool:
     return bool((dists < 2.0).any())
 
 
+_MAX_FIT_SAMPLES = 20_000
+
+
+def _sample(mask: np.ndarray, limit: int = _MAX_FIT_SAMPLES) -> tuple[np.ndarray, np.ndarray]:
+    """Row and column indices of the mask's pixels, thinned evenly to at most ``limit``."""
+    rows, cols = np.nonzero(mask)
+    step = max(1, int(math.ceil(rows.size / limit)))
+    return rows[::step], cols[::step]
+
+
 def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, bright_background, min_hole_px, roi_px, ratio_hint):
+    """Sub-pixel rings of one part from a padded crop around it.
+
+    Only a band a few pixels wide along the part's boundaries is normalised between the
+    local background and part levels; inside the part the normalised value is 1 and
+    elsewhere 0, so marching squares can only find the part's own edges.
+    """
     grey, lut = image.grey, image.to_linear
     height, width = grey.shape
     x0, y0, x1, y1 = bbox
     pad = _PAD_PX + 6
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(width, x1 + pad), min(height, y1 + pad)
-    crop = lut[grey[r0:r1, c0:c1]].astype(np.float64)
-    shape = crop.shape
+    grey_crop = grey[r0:r1, c0:c1]
+    shape = grey_crop.shape
     comp = np.zeros(shape, np.uint8)
     offset = (-c0, -r0)
     cv2.drawContours(comp, [cnt], -1, 1, thickness=cv2.FILLED, offset=offset)
@@ -340,42 +337,45 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
         cv2.drawContours(comp, holes, -1, 0, thickness=cv2.FILLED, offset=offset)
         # drawContours of a hole clears its boundary pixels too, which belong to the part
         cv2.drawContours(comp, holes, -1, 1, thickness=1, offset=offset)
-    # other parts in the crop: detection mask restricted to the crop, minus this part
-    t_other = None
     kernel = np.ones((3, 3), np.uint8)
+    grown4 = cv2.dilate(comp, kernel, iterations=4)
+    shrunk4 = cv2.erode(comp, kernel, iterations=4)
+    band = (grown4 != shrunk4)  # within ~4 px of any boundary of the part: where edges lie
     near = cv2.dilate(filled, kernel, iterations=4).astype(bool)
-    band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3).astype(bool) & ~cv2.dilate(filled, kernel, iterations=4).astype(bool)
-    hole_space = filled.astype(bool) & ~cv2.dilate(comp, kernel, iterations=4).astype(bool)
-    interior = cv2.erode(comp, kernel, iterations=4).astype(bool)
+    band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3).astype(bool) & ~near
+    hole_space = filled.astype(bool) & ~grown4.astype(bool)
+    deep = cv2.erode(comp, kernel, iterations=_PAD_PX + 12).astype(bool)
+    interior = shrunk4.astype(bool) & ~deep  # the part's level next to its edges
     if interior.sum() < 20:
         interior = cv2.erode(comp, kernel, iterations=2).astype(bool)
+    band_rows, band_cols = np.nonzero(band)
+    band_lin = lut[grey_crop[band_rows, band_cols]].astype(np.float64)
+    scale = float(max(shape))
     if threshold is None:
-        med_bg_guess = np.median(crop[band_out]) if band_out.any() else np.median(crop)
-        # pixels of other parts nearby (beyond this part's own neighbourhood) are not background
-        other = (crop < med_bg_guess * (1 + ratio_hint) / 2.0) if bright_background else (crop > med_bg_guess * (1 + ratio_hint) / 2.0)
-        other &= ~near
-        other = cv2.dilate(other.astype(np.uint8), kernel, iterations=3).astype(bool)
-        bg_pixels = (band_out | hole_space) & ~other
-        if bg_pixels.sum() < 8:
-            bg_pixels = band_out | hole_space
-        rows_b, cols_b = np.nonzero(bg_pixels)
-        scale = float(max(shape))
-        coef_b, ord_b, sig_b, n_b = _fit_surface(crop[bg_pixels], rows_b.astype(float), cols_b.astype(float), scale, 2)
-        bg_surface = _eval_surface(coef_b, ord_b, shape, 0, 0, scale)
+        rb, cb = _sample(band_out | hole_space)
+        bg_lin = lut[grey_crop[rb, cb]].astype(np.float64)
+        med_bg_guess = float(np.median(bg_lin)) if bg_lin.size else float(np.median(band_lin))
+        cut_level = med_bg_guess * (1 + ratio_hint) / 2.0
+        # pixels of other parts nearby are not background
+        other_samples = (bg_lin < cut_level) if bright_background else (bg_lin > cut_level)
+        keep = ~other_samples
+        if keep.sum() < 8:
+            keep = np.ones_like(keep)
+        coef_b, ord_b, sig_b, n_b = _fit_surface(bg_lin[keep], rb[keep].astype(float), cb[keep].astype(float), scale, 2)
+        bg_band = _eval_points(coef_b, ord_b, band_rows, band_cols, scale)
         if interior.sum() >= 20:
-            rows_f, cols_f = np.nonzero(interior)
-            coef_f, ord_f, sig_f, n_f = _fit_surface(crop[interior], rows_f.astype(float), cols_f.astype(float), scale, 2)
-            fg_surface = _eval_surface(coef_f, ord_f, shape, 0, 0, scale)
+            rf, cf = _sample(interior)
+            coef_f, ord_f, sig_f, n_f = _fit_surface(lut[grey_crop[rf, cf]].astype(np.float64), rf.astype(float), cf.astype(float), scale, 2)
+            fg_band = _eval_points(coef_f, ord_f, band_rows, band_cols, scale)
         else:  # thin part: no clean interior; take the part level relative to the background
-            fg_surface = bg_surface * ratio_hint
+            fg_band = bg_band * ratio_hint
             sig_f, n_f = sig_b, 1
-        contrast_map = fg_surface - bg_surface
-        contrast = float(np.median(contrast_map[comp.astype(bool)]))
+        contrast_band = fg_band - bg_band
+        contrast = float(np.median(contrast_band))
         if abs(contrast) < 1e-4:
             return None
-        safe = np.where(np.abs(contrast_map) < 0.2 * abs(contrast), 0.2 * contrast, contrast_map)
-        norm = (crop - bg_surface) / safe
-        norm[other] = 0.0
+        safe = np.where(np.abs(contrast_band) < 0.2 * abs(contrast), 0.2 * contrast, contrast_band)
+        band_norm = (band_lin - bg_band) / safe
         noise = math.sqrt(0.5 * (sig_b**2 + sig_f**2))
         noise_rel = noise / abs(contrast)
         # uncertainty of the two fitted levels at the edge, relative to the contrast
@@ -383,52 +383,49 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
         contour_level = level
     else:
         t_lin = float(lut[int(round(threshold * (len(lut) - 1)))])
-        bg = float(np.median(crop[band_out])) if band_out.any() else float(np.median(crop))
-        fg = float(np.median(crop[interior])) if interior.any() else bg * ratio_hint
+        rb, cb = _sample(band_out)
+        bg_lin = lut[grey_crop[rb, cb]].astype(np.float64)
+        bg = float(np.median(bg_lin)) if bg_lin.size else float(np.median(band_lin))
+        rf, cf = _sample(interior)
+        fg = float(np.median(lut[grey_crop[rf, cf]])) if rf.size else bg * ratio_hint
         contrast = fg - bg
         if abs(contrast) < 1e-4:
             return None
-        norm = (crop - bg) / contrast
-        other = np.zeros(shape, bool)
+        band_norm = (band_lin - bg) / contrast
         contour_level = (t_lin - bg) / contrast
         if not (0.0 < contour_level < 1.0):
             return None
-        noise = 1.4826 * float(np.median(np.abs(crop[band_out] - bg))) if band_out.any() else 0.0
+        noise = 1.4826 * float(np.median(np.abs(bg_lin - bg))) if bg_lin.size else 0.0
         noise_rel = noise / abs(contrast)
         level_rel_u = 0.0
-    # outside this part's neighbourhood nothing may produce a contour
-    norm[~near & ~filled.astype(bool)] = 0.0
+    norm = comp.astype(np.float32)
+    norm[band_rows, band_cols] = band_norm
     if roi_px is not None:
         roi_mask = np.zeros(shape, np.uint8)
         cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px) - [c0, r0]).astype(np.int32)], 1)
         norm[~roi_mask.astype(bool)] = 0.0
     norm = np.pad(norm, 1, mode="constant", constant_values=0.0)  # closes rings of cut parts
     rings = find_contours(norm, contour_level, fully_connected="high")
-    gy, gx = np.gradient(norm)
     closed = []
     for ring in rings:
         if len(ring) < 4 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
             continue
-        ring = _refine_vertices(norm, gx, gy, ring[:-1], contour_level)
+        ring, grad = _refine_vertices(norm, ring[:-1], contour_level)
         xy = np.column_stack([ring[:, 1] + c0 - 1, ring[:, 0] + r0 - 1])
-        closed.append((xy, _ring_area(xy), ring))
+        closed.append((xy, _ring_area(xy), grad))
     if not closed:
         return None
     closed.sort(key=lambda t: -abs(t[1]))
-    outer, outer_area, outer_rc = closed[0]
-    grad = np.hypot(gx, gy)
+    outer, outer_area, gradient = closed[0]
     outer_sign = math.copysign(1.0, outer_area)
     holes_px, hole_grads = [], []
-    outer_path = outer.astype(np.float64)
-    for xy, area, rc in closed[1:]:
+    for xy, area, grad in closed[1:]:
         if math.copysign(1.0, area) == outer_sign or abs(area) < min_hole_px:
             continue
-        probe = xy[0]
-        if not _point_in_ring(probe, outer_path):
+        if not _point_in_ring(xy[0], outer):
             continue
         holes_px.append(xy)
-        hole_grads.append(_bilinear(grad, rc))
-    gradient = _bilinear(grad, outer_rc)
+        hole_grads.append(grad)
     g_med = float(np.median(np.concatenate([gradient] + hole_grads)))
     blur_px = _blur_from_gradient(g_med)
     if threshold is None and abs(level - 0.5) < 1e-9:
@@ -440,16 +437,24 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
                      level_rel_u=level_rel_u, hole_gradients_px=hole_grads)
 
 
+def _eval_points(coef: np.ndarray, order: int, rows: np.ndarray, cols: np.ndarray, scale: float) -> np.ndarray:
+    return _poly_design(cols / scale, rows / scale, order) @ coef
+
+
 def _blur_from_gradient(g_peak: float) -> float:
     """Gaussian edge sigma (px) from the peak central-difference gradient of a unit step.
 
     For a unit step blurred by a Gaussian of sigma s and sampled at pixel centres, the
     central difference at the edge is ``erf(1 / (s sqrt 2)) / 2``; invert it.
     """
-    from scipy.special import erfinv
-
     g = min(max(2.0 * g_peak, 1e-6), 0.999999)
-    return float(1.0 / (math.sqrt(2.0) * erfinv(g)))
+    x = 1.0  # solve erf(x) = g by Newton's method (erf is increasing and concave for x > 0)
+    for _ in range(60):
+        step = (math.erf(x) - g) / (2.0 / math.sqrt(math.pi) * math.exp(-x * x))
+        x = max(x - step, 1e-6)
+        if abs(step) < 1e-12:
+            break
+    return float(1.0 / (math.sqrt(2.0) * x))
 
 
 def correct_curvature(ring: np.ndarray, blur_px: float) -> np.ndarray:
@@ -497,7 +502,7 @@ def _remap(img: np.ndarray, pts_rc: np.ndarray, interpolation: int) -> np.ndarra
     return cv2.remap(img, map_x, map_y, interpolation, borderMode=cv2.BORDER_REPLICATE).ravel().astype(np.float64)
 
 
-def _refine_vertices(norm: np.ndarray, gx: np.ndarray, gy: np.ndarray, ring_rc: np.ndarray, level: float) -> np.ndarray:
+def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray]:
     """Move marching-squares vertices onto the level of the bicubic interpolant.
 
     Linear interpolation between pixel centres places a blurred straight edge with a bias
@@ -506,17 +511,22 @@ def _refine_vertices(norm: np.ndarray, gx: np.ndarray, gy: np.ndarray, ring_rc: 
     image equals the level (a few Newton steps), which shrinks that bias by an order of
     magnitude while keeping the ring's topology from marching squares.
 
+    Returns the refined (row, col) points and the gradient magnitude (per px, central
+    differences of the bilinear interpolant) at the original points.
+
     References
     ----------
     .. [1] R. Keys, "Cubic convolution interpolation for digital image processing",
        IEEE Trans. ASSP 29(6), 1153-1160, 1981.
     """
-    img = norm.astype(np.float32)
-    g = np.column_stack([_remap(gy.astype(np.float32), ring_rc, cv2.INTER_LINEAR), _remap(gx.astype(np.float32), ring_rc, cv2.INTER_LINEAR)])
-    gn = np.hypot(g[:, 0], g[:, 1])
+    img = norm if norm.dtype == np.float32 else norm.astype(np.float32)
+    e_r, e_c = np.array([1.0, 0.0]), np.array([0.0, 1.0])
+    g_r = 0.5 * (_remap(img, ring_rc + e_r, cv2.INTER_LINEAR) - _remap(img, ring_rc - e_r, cv2.INTER_LINEAR))
+    g_c = 0.5 * (_remap(img, ring_rc + e_c, cv2.INTER_LINEAR) - _remap(img, ring_rc - e_c, cv2.INTER_LINEAR))
+    gn = np.hypot(g_r, g_c)
     ok = gn > 1e-3
-    direction = np.zeros_like(g)
-    direction[ok] = g[ok] / gn[ok, None]
+    direction = np.zeros((len(ring_rc), 2))
+    direction[ok] = np.column_stack([g_r, g_c])[ok] / gn[ok, None]
     t = np.zeros(len(ring_rc))
     h = 0.05
     for _ in range(3):
@@ -527,7 +537,7 @@ def _refine_vertices(norm: np.ndarray, gx: np.ndarray, gy: np.ndarray, ring_rc: 
         step = np.zeros_like(t)
         step[good] = -v[good] / dv[good]
         t = np.clip(t + np.clip(step, -0.25, 0.25), -0.5, 0.5)
-    return ring_rc + t[:, None] * direction
+    return ring_rc + t[:, None] * direction, gn
 
 
 def _point_in_ring(point: np.ndarray, ring: np.ndarray) -> bool:
