@@ -243,3 +243,50 @@ def balance(
             console.print(f"note: {escape(note)}")
         console.print(f"[yellow]caution:[/] {escape(result.cautions)}", markup=True)
     _emit_json(json_out, result.to_json(), [source])
+
+
+# -- outline export and HTML report ------------------------------------------------------
+@app.command("export")
+def export_outlines(
+    result: Annotated[Path, typer.Argument(help="Result JSON from 'scanmass measure --json'.")],
+    *,
+    dxf: Annotated[Optional[Path], typer.Option("--dxf", help="Write the outlines as DXF in mm (layers OUTLINE, HOLES, REFERENCE).")] = None,
+    svg: Annotated[Optional[Path], typer.Option("--svg", help="Write the outlines as SVG in true mm.")] = None,
+    fit_tolerance: Annotated[Optional[str], typer.Option("--fit-tolerance", help="DXF: replace the measured vertices by lines and arcs within this many mm, or 'auto' (half the edge uncertainty, at most 0.02 mm).")] = None,
+    round_tolerance: Annotated[Optional[float], typer.Option("--round-tolerance", help="DXF: holes round within this many mm become circles (default: max(0.02 mm, 1 % of the diameter, 4 u(d))).")] = None,
+    part: Annotated[Optional[list[int]], typer.Option("--part", help="Export only this part label (repeatable; default all).")] = None,
+) -> None:
+    """Write the measured outlines of RESULT as DXF and/or SVG, for CAD and cutting."""
+    from .export import export_dxf, export_svg
+
+    if dxf is None and svg is None:
+        fail("nothing to write; give --dxf OUT.dxf and/or --svg OUT.svg")
+    console = _console()
+    with user_errors():
+        if dxf is not None:
+            s = export_dxf(result, dxf, fit_tolerance_mm=fit_tolerance, round_tolerance_mm=round_tolerance, parts=part or None)
+            console.print(f"wrote {s.path}: {s.parts} part(s), {s.vertices_in} -> {s.vertices_out} vertices "
+                          f"({s.arcs} arcs), {s.circles} hole(s) as circles")
+        if svg is not None:
+            s = export_svg(result, svg, parts=part or None)
+            console.print(f"wrote {s.path}: {s.parts} part(s), {s.vertices_out} vertices")
+
+
+@app.command()
+def report(
+    results: Annotated[list[Path], typer.Argument(help="Result JSON files from 'scanmass measure --json'.")],
+    *,
+    html: Annotated[Optional[Path], typer.Option("--html", help="The HTML report to write (one self-contained file).")] = None,
+    overlay: Annotated[Optional[list[Path]], typer.Option("--overlay", help="Overlay PNG of the result in the same position (repeatable; default: outlines drawn from the result).")] = None,
+    title: Annotated[str, typer.Option("--title", help="Heading of the report.")] = "scanmass measurement report",
+) -> None:
+    """Write one self-contained HTML report of the RESULTS (prints on A4)."""
+    from .report import write_report
+
+    if html is None:
+        fail("give the report file to write with --html OUT.html")
+    if overlay and len(overlay) > len(results):
+        fail(f"{len(overlay)} overlays for {len(results)} result(s); give at most one --overlay per result, in the same order")
+    with user_errors():
+        written = write_report(results, html, overlays=dict(enumerate(overlay or [])), title=title)
+    _console().print(f"wrote {written}")
