@@ -98,16 +98,21 @@ class ExportSummary:
 def fit_tolerance_default_mm(part: Part) -> float:
     """Automatic line-and-arc fit tolerance of one part, in mm.
 
-    The measurement's edge uncertainty is taken as ``area_u_mm2 / perimeter_mm``: a
-    uniform shift ``d`` of the whole boundary changes the area by ``perimeter * d``
-    (the threshold-bias term of DESIGN.md's error model), so this is the edge shift
-    that matches the stated area uncertainty. The fit tolerance is half of it, capped
-    at 0.02 mm and never below 0.001 mm::
+    Fitting within ``tol`` changes the enclosed area by at most ``tol * perimeter``
+    (the fitted outline stays in a strip of width ``tol`` along the measured one).
+    The default keeps that worst case at half the part's stated area uncertainty,
+    i.e. half the edge shift ``area_u_mm2 / perimeter_mm`` that the uncertainty
+    amounts to (DESIGN.md's error model: a uniform boundary shift ``d`` changes the
+    area by ``perimeter * d``), capped at 0.02 mm so the drawing stays close to the
+    part, and never below 0.001 mm::
 
         tol = clip(0.5 * area_u_mm2 / perimeter_mm, 0.001, 0.02)
 
-    so the fitted outline departs from the measured one by less than the measurement
-    itself is uncertain.
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> fit_tolerance_default_mm(SimpleNamespace(area_u_mm2=2.0, perimeter_mm=200.0))
+    0.005
     """
     area_u = _finite(part.area_u_mm2)
     perimeter = _finite(part.perimeter_mm)
