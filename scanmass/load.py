@@ -527,12 +527,14 @@ def _dpi_tiff(im: Image.Image) -> tuple[tuple[float, float] | None, str]:
 
 def _dpi_from_pillow(im: Image.Image) -> tuple[tuple[float, float] | None, str]:
     try:
-        if im.format == "PNG":
-            return _dpi_png(im)
-        if im.format in ("JPEG", "MPO"):
-            return _dpi_jpeg(im)
-        if im.format == "TIFF":
-            return _dpi_tiff(im)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # pillow warns about corrupt EXIF
+            if im.format == "PNG":
+                return _dpi_png(im)
+            if im.format in ("JPEG", "MPO"):
+                return _dpi_jpeg(im)
+            if im.format == "TIFF":
+                return _dpi_tiff(im)
     except (TypeError, ValueError, OverflowError, ZeroDivisionError, KeyError, IndexError, struct.error) as exc:
         return None, f"resolution fields unreadable ({exc}); DPI unknown"
     return None, "no DPI in the file"
@@ -657,6 +659,8 @@ def _open(data: bytes, name: str) -> Image.Image:
                 return Image.open(io.BytesIO(data), formats=list(_PIL_FORMATS))
             except Image.DecompressionBombError:
                 return _open_without_bomb_guard(data)
+    except MemoryError:  # the machine, not the file
+        raise
     except Exception:  # noqa: BLE001 -- pillow raises a zoo of types on malformed headers
         raise _not_readable(data, name) from None
 
@@ -688,6 +692,8 @@ def _decode(im: Image.Image, name: str) -> None:
             except Image.DecompressionBombError:
                 with _pillow_guard_lifted():
                     im.load()
+    except MemoryError:  # the machine, not the file
+        raise
     except Exception as exc:  # noqa: BLE001 -- OSError, SyntaxError, ValueError, zlib.error, ...
         reason = " ".join(str(exc).split()) or type(exc).__name__
         raise ImageError(
@@ -1007,6 +1013,8 @@ def _pillow_grey(im: Image.Image, name: str) -> tuple[np.ndarray, bool]:
             out[r0:r1] = band_grey(band)
     except ImageError:
         raise
+    except MemoryError:  # the machine, not the file
+        raise
     except Exception as exc:  # noqa: BLE001 -- conversion errors from pillow
         raise ImageError(
             f"cannot convert {mode} pixels to grey ({exc}); save it as 8- or 16-bit greyscale or RGB", path=name
@@ -1053,6 +1061,8 @@ def _deep_grey(data: bytes, fmt: str, stored: tuple[int, int], name: str) -> np.
                 arr = np.moveaxis(arr, 0, -1)
             elif axes not in ("YXS", "YX"):
                 arr = None
+    except MemoryError:  # the machine, not the file
+        raise
     except Exception:  # noqa: BLE001 -- decoder errors of every type
         arr = None
     width, height = stored
@@ -1161,8 +1171,11 @@ def load_image(
         # colour too, whose 8-bit decode is then discarded).
         _decode(im, name)
         # Recent pillow applies a TIFF orientation while loading and drops the tag;
-        # apply whatever is still pending, once.
+        # apply whatever is still pending, once. (A PNG eXIf chunk after the image
+        # data is only seen now.)
         pending = _orientation(im)
+        if orientation == 1:
+            orientation = pending
         if deep:
             stored = _stored_size(im, data)
             im.close()

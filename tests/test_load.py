@@ -28,6 +28,13 @@ from scanmass.load import (
 
 RNG = np.random.default_rng(20240611)
 
+
+def opened(path) -> Image.Image:
+    """A fully loaded copy of an image file, with the file closed again."""
+    with Image.open(path) as im:
+        im.load()
+        return im.copy()
+
 # ------------------------------------------------------------------ helpers
 
 
@@ -145,7 +152,7 @@ def test_rgb8_matches_pillow_luma(tmp_path, ext):
 def test_rgb_jpeg_uses_luma_close_to_pillow(tmp_path):
     path = save(tmp_path, "c.jpg", Image.fromarray(gradient_rgb()), quality=95)
     img = load_image(path)
-    reference = np.asarray(Image.open(path).convert("L")).astype(int)
+    reference = np.asarray(opened(path).convert("L")).astype(int)
     # libjpeg's Y plane vs pillow's RGB -> L of the decoded RGB: equal up to the
     # chroma reconstruction, a few levels at most.
     diff = np.abs(img.grey.astype(int) - reference)
@@ -225,7 +232,7 @@ def test_cmyk(tmp_path, ext):
     img = load_image(path)
     assert img.mode == "CMYK"
     # Reference library: pillow's CMYK -> L of the same decoded file.
-    ref = np.asarray(Image.open(path).convert("L")).astype(int)
+    ref = np.asarray(opened(path).convert("L")).astype(int)
     assert np.max(np.abs(img.grey.astype(int) - ref)) <= (0 if ext == "tif" else 1)
     assert img.encoding.startswith("sRGB (assumed")
 
@@ -341,7 +348,7 @@ def test_orientation_matches_pillow_exif_transpose(tmp_path, orientation):
     path = save(tmp_path, f"o{orientation}.png", Image.fromarray(grey), exif=exif)
     img = load_image(path)
     # Reference library: PIL.ImageOps.exif_transpose.
-    expected = np.asarray(ImageOps.exif_transpose(Image.open(path)))
+    expected = np.asarray(ImageOps.exif_transpose(opened(path)))
     np.testing.assert_array_equal(img.grey, expected)
     assert img.orientation == orientation
     assert img.grey.flags.c_contiguous
@@ -479,7 +486,7 @@ def test_jpeg_jfif_dpi(tmp_path):
 
 def test_jpeg_jfif_unit_0_is_no_dpi(tmp_path):
     path = save(tmp_path, "d.jpg", Image.new("L", (10, 10)))
-    assert Image.open(path).info["jfif_unit"] == 0  # precondition: pillow's default
+    assert opened(path).info["jfif_unit"] == 0  # precondition: pillow's default
     img = load_image(path)
     assert img.dpi is None and "no unit" in img.dpi_note
 
@@ -1058,3 +1065,20 @@ def test_rgba16_tiff_associated_alpha(tmp_path):
     img = load_image(path)
     # Porter & Duff "over" with premultiplied colour: C + white x (1 - alpha).
     assert np.all(img.grey == 20000 + 65535 - 40000)
+
+
+def test_png_exif_after_image_data(tmp_path):
+    grey = np.zeros((10, 14), np.uint8)
+    grey[0, 0] = 255
+    exif = Image.Exif()
+    exif[0x0112] = 8
+    payload = exif.tobytes()
+    payload = payload[6:] if payload.startswith(b"Exif\x00\x00") else payload
+    data = png_bytes(grey, 0)
+    iend = png_chunk(b"IEND", b"")
+    path = tmp_path / "late.png"
+    path.write_bytes(data[: -len(iend)] + png_chunk(b"eXIf", payload) + iend)
+    img = load_image(path)
+    expected = np.asarray(ImageOps.exif_transpose(opened(path)))
+    np.testing.assert_array_equal(img.grey, expected)
+    assert img.orientation == 8 and img.grey[-1, 0] == 255

@@ -13,6 +13,13 @@ from scanmass.errors import OutputError
 from scanmass.outputs import atomic_path, write_atomic
 
 
+def opened(path) -> Image.Image:
+    """A fully loaded copy of an image file, with the file closed again."""
+    with Image.open(path) as im:
+        im.load()
+        return im.copy()
+
+
 def leftovers(folder):
     return sorted(p.name for p in folder.iterdir() if ".tmp" in p.name)
 
@@ -139,7 +146,7 @@ def test_atomic_path_success_keeps_extension(tmp_path):
     with atomic_path(out) as tmp:
         assert tmp.parent == tmp_path and tmp.suffix == ".png" and tmp != out
         Image.new("L", (10, 10), 7).save(tmp)
-    assert np.asarray(Image.open(out))[0, 0] == 7
+    assert np.asarray(opened(out))[0, 0] == 7
     assert leftovers(tmp_path) == []
 
 
@@ -148,7 +155,7 @@ def test_atomic_path_with_opencv_writer(tmp_path):
     out = tmp_path / "overlay.png"
     with atomic_path(out) as tmp:
         assert cv2.imwrite(str(tmp), np.full((8, 8), 200, np.uint8))
-    assert np.asarray(Image.open(out))[0, 0] == 200
+    assert np.asarray(opened(out))[0, 0] == 200
 
 
 def test_atomic_path_failure_removes_temp_and_keeps_original(tmp_path):
