@@ -47,6 +47,12 @@ class MeasureOptions:
     min_hole_area_mm2: float | None = None
     keep_cut: bool = False
     max_pixels: int = DEFAULT_MAX_PIXELS
+    scale: str = "auto"
+    mat: Any = None
+    sheet: str | None = None
+    printed_x_mm: float | None = None
+    printed_y_mm: float | None = None
+    lens: Any = None
 
     def check(self, path: str | None) -> None:
         if not (math.isfinite(self.min_area_mm2) and self.min_area_mm2 >= 0):
@@ -74,6 +80,12 @@ def measure(
     thickness_mm: float | None = None,
     thickness_u_mm: float = 0.0,
     materials_file: str | os.PathLike | None = None,
+    scale: str = "auto",
+    mat: Any = None,
+    sheet: str | None = None,
+    printed_x_mm: float | None = None,
+    printed_y_mm: float | None = None,
+    lens: Any = None,
 ) -> Measurement:
     """Measure every flat part in a scan.
 
@@ -98,7 +110,19 @@ def measure(
     max_pixels : int
         Refuse larger images (a memory guard).
     material, thickness_mm, thickness_u_mm, materials_file
-        When a material and thickness are given, add mass figures to every part.
+        When a material and thickness are given, add mass figures to every part. In a
+        photo the thickness also lifts the measured face above the mat (parallax).
+    scale : {"auto", "dpi", "mat", "sheet"}
+        Scale source: ``auto`` takes a given or trustworthy file DPI as a scan, a
+        ``sheet`` as a plain sheet, and otherwise looks for a marker mat.
+    mat : str or path, optional
+        Mat layout name or layout JSON (default: recognised from the marker ids).
+    sheet : {"a4", "a3", "letter"}, optional
+        The photo shows the part on a plain sheet of this size.
+    printed_x_mm, printed_y_mm : float, optional
+        Caliper readings of the mat's two 100 mm check bars.
+    lens : str, path or LensProfile, optional
+        Lens profile from ``scanmass lens`` (corrects distortion of photos).
 
     Returns
     -------
@@ -121,6 +145,7 @@ def measure(
         source, dpi=dpi, dpi_rel_u=dpi_rel_u, level=level, threshold=threshold, min_area_mm2=min_area_mm2,
         min_hole_area_mm2=min_hole_area_mm2, keep_cut=keep_cut, max_pixels=max_pixels, material=material,
         thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm, materials_file=materials_file,
+        scale=scale, mat=mat, sheet=sheet, printed_x_mm=printed_x_mm, printed_y_mm=printed_y_mm, lens=lens,
     )
     return measurement
 
@@ -138,10 +163,15 @@ def measure_loaded(
     options = MeasureOptions(**kwargs)
     path = None if isinstance(source, np.ndarray) else os.fspath(source)
     options.check(path)
-    if (material is None) != (thickness_mm is None):
+    if material is not None and thickness_mm is None:  # a thickness alone lifts a photo's face (parallax)
         raise OptionError("mass needs both a material and a thickness, e.g. --material steel-s235 --thickness 3", path=path)
     image = load_image(source, dpi=options.dpi, max_pixels=int(options.max_pixels))
-    result = measure_image(image, options)
+    from .photo import measure_photo, scale_method
+
+    if scale_method(image, options) == "dpi":
+        result = measure_image(image, options)
+    else:
+        result = measure_photo(image, options, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm)
     if material is not None:
         from .mass import apply_mass  # mass works on Measurements only
 
@@ -184,7 +214,7 @@ def measure_image(image: LoadedImage, options: MeasureOptions, *, plane_map: Pla
         reprojection_rms_px=plane_map.reprojection_rms_px,
         reprojection_rms_mm=plane_map.reprojection_rms_mm,
         terms=dict(plane_map.terms),
-        extra={**{k: v for k, v in plane_map.extra.items() if k != "matrix_samples"},
+        extra={**{k: v for k, v in plane_map.extra.items() if k not in ("matrix_samples", "undistort_samples")},
                "px_to_mm": plane_map.matrix.tolist(),
                "dpi_xy": list(plane_map.dpi) if plane_map.dpi else None},
     )
@@ -213,8 +243,9 @@ def _scale_terms(plane_map: PlaneMap, outer_px, holes_px, props) -> dict[str, fl
     samples = plane_map.extra.get("matrix_samples") if plane_map.extra else None
     if samples is not None and len(samples) >= 8:
         values: dict[str, list[float]] = {}
-        for matrix in samples:
-            pm = PlaneMap(matrix=np.asarray(matrix), method=plane_map.method, rel_u=0.0, undistort=plane_map.undistort)
+        hooks = plane_map.extra.get("undistort_samples") or [plane_map.undistort] * len(samples)  # e.g. a photo's parallax
+        for matrix, hook in zip(samples, hooks):
+            pm = PlaneMap(matrix=np.asarray(matrix), method=plane_map.method, rel_u=0.0, undistort=hook)
             sp = section_properties(pm.to_mm(outer_px), [pm.to_mm(h) for h in holes_px])
             for name, val in _figure_values(sp).items():
                 values.setdefault(name, []).append(val)
