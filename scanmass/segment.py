@@ -344,10 +344,12 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
     near = cv2.dilate(filled, kernel, iterations=4).astype(bool)
     band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3).astype(bool) & ~near
     hole_space = filled.astype(bool) & ~grown4.astype(bool)
-    deep = cv2.erode(comp, kernel, iterations=_PAD_PX + 12).astype(bool)
-    interior = shrunk4.astype(bool) & ~deep  # the part's level next to its edges
-    if interior.sum() < 20:
-        interior = cv2.erode(comp, kernel, iterations=2).astype(bool)
+    # the part's own level next to its edges: pixels 4 to ~18 px inside; for thin parts the
+    # central ridge (at least 3/4 of the largest inside distance), so that the level keeps
+    # following the illumination along a thin ring or strip
+    inside_px = cv2.distanceTransform(comp, cv2.DIST_L2, 5)
+    depth_px = min(4.0, 0.75 * float(inside_px.max()))
+    interior = (inside_px >= depth_px) & (inside_px <= _PAD_PX + 12)
     band_rows, band_cols = np.nonzero(band)
     band_lin = lut[grey_crop[band_rows, band_cols]].astype(np.float64)
     scale = float(max(shape))
@@ -428,6 +430,9 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
         hole_grads.append(grad)
     g_med = float(np.median(np.concatenate([gradient] + hole_grads)))
     blur_px = _blur_from_gradient(g_med)
+    if threshold is None:
+        # the level samples of a thin part still carry the blur tails of both its edges
+        level_rel_u = math.hypot(level_rel_u, math.erfc(depth_px / (blur_px * math.sqrt(2.0))))
     if threshold is None and abs(level - 0.5) < 1e-9:
         outer = correct_curvature(outer, blur_px)
         holes_px = [correct_curvature(h, blur_px) for h in holes_px]
@@ -461,9 +466,10 @@ def correct_curvature(ring: np.ndarray, blur_px: float) -> np.ndarray:
     """Undo the pull of a blurred curved edge towards its centre of curvature.
 
     The midpoint contour of a Gaussian-blurred edge of curvature ``k`` lies about
-    ``sigma^2 k / 2`` from the true edge, towards the centre of curvature; each vertex is
-    moved back by that amount along the normal, with the curvature smoothed over the
-    blur length (turning angle over arc length).
+    ``sigma^2 k / 2`` from the true edge, towards the centre of curvature, and the chords of
+    the polygon through points on the curve cut a further ``h^2 k / 12`` (chord length h)
+    inside it; each vertex is moved back by the sum along the normal, with the curvature
+    smoothed over the blur length (turning angle over arc length).
 
     References
     ----------
@@ -493,7 +499,12 @@ def correct_curvature(ring: np.ndarray, blur_px: float) -> np.ndarray:
     tn = np.hypot(tangent[:, 0], tangent[:, 1])
     tn[tn == 0] = 1.0
     left = np.column_stack([-tangent[:, 1], tangent[:, 0]]) / tn[:, None]
-    return ring - left * (0.5 * blur_px**2 * curvature)[:, None]
+    # chords between vertices on a curve cut inside it: a polygon inscribed with chord h
+    # lacks the area of a uniform offset h^2 k / 12 (regular polygon in a circle), so the
+    # vertices move out by that much as well
+    chord_sq = np.convolve(np.concatenate([attributed[-half:], attributed, attributed[:half]]) ** 2, k, mode="valid") / k.sum() if half >= 1 else attributed**2
+    shift = (0.5 * blur_px**2 + chord_sq / 12.0) * curvature
+    return ring - left * shift[:, None]
 
 
 def _remap(img: np.ndarray, pts_rc: np.ndarray, interpolation: int) -> np.ndarray:

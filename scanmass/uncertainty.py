@@ -39,7 +39,7 @@ __all__ = ["EdgeModel", "THRESHOLD_FLOOR_PX", "figure_weights", "part_uncertaint
 
 #: Residual systematic offset of a marching-squares boundary on a sampled blurred edge
 #: after the local-midpoint level, in pixels (1 sigma); set from the accuracy benchmark.
-THRESHOLD_FLOOR_PX = 0.02
+THRESHOLD_FLOOR_PX = 0.005
 
 #: Correlation length of edge noise along the boundary, in pixels.
 CORRELATION_PX = 1.0
