@@ -1064,12 +1064,11 @@ class _Runner:
                 st = os.stat(path)
             except OSError:
                 continue  # vanished since the listing
-            if self.watch and now_ns - st.st_mtime_ns < self.settle_seconds * 1e9:
-                continue  # still being written, perhaps: next cycle
-            self.found.add(key)
             rec = records.get(key)
-            if (rec is not None and not self.rehash and rec.settings_sha256 == shash
+            rehash = self.rehash and self.cycle == 1  # watch: later cycles trust size and time
+            if (rec is not None and not rehash and rec.settings_sha256 == shash
                     and rec.size_bytes == st.st_size and rec.mtime_ns == st.st_mtime_ns):
+                self.found.add(key)
                 if rec.status in ("ok", "duplicate"):
                     if key not in self.recorded:
                         self.unchanged.add(key)
@@ -1079,6 +1078,9 @@ class _Runner:
                 if not self.retry_failed:
                     self.failed_earlier.add(key)
                     continue
+            if self.watch and now_ns - st.st_mtime_ns < self.settle_seconds * 1e9:
+                continue  # perhaps still being written: next cycle
+            self.found.add(key)
             todo.append(_Job(root=root, path=key, options=options, settings_sha256=shash,
                              size_bytes=st.st_size, mtime_ns=st.st_mtime_ns))
         return todo, records
@@ -1454,8 +1456,7 @@ def iter_export(out_dir: str | os.PathLike, *, format: Literal["csv", "jsonl"] =
             "worker, result FROM files ORDER BY path"
         )
         for r in cur:
-            doc = {k: r[k] for k in r.keys() if k != "result"}
-            doc["file"] = doc.pop("path")
+            doc = {"file": r["path"], **{k: r[k] for k in r.keys() if k not in ("path", "result")}}
             doc["result"] = None if r["result"] is None else json.loads(r["result"])
             yield json.dumps(doc, allow_nan=False) + "\n"
     finally:

@@ -290,3 +290,141 @@ def report(
     with user_errors():
         written = write_report(results, html, overlays=dict(enumerate(overlay or [])), title=title)
     _console().print(f"wrote {written}")
+
+
+# -- batch: folders of scans into a resumable database (issue 5) --------------------------
+#: Exit code of a batch stopped by Ctrl-C before it finished (128 + SIGINT, common practice).
+EXIT_INTERRUPTED = 130
+
+
+def _batch_progress_display(console: Console, watch: bool):
+    """A rich progress bar (done, failed, rate, ETA) and the callback that feeds it."""
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, ProgressColumn, TextColumn, TimeRemainingColumn
+    from rich.text import Text
+
+    class _Rate(ProgressColumn):
+        def render(self, task) -> Text:
+            speed = task.speed
+            return Text("-- files/s" if not speed else f"{speed:.2f} files/s")
+
+    bar = Progress(
+        TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+        TextColumn("ok {task.fields[ok]}  failed {task.fields[failed]}  duplicates {task.fields[dup]}"),
+        _Rate(), TextColumn("ETA"), TimeRemainingColumn(), console=console,
+    )
+    task = bar.add_task("measuring", total=None, ok=0, failed=0, dup=0)
+    started = []
+
+    def update(p) -> None:
+        if not started:  # shown once there is something to measure (or to watch)
+            if not (p.total or p.event == "idle"):
+                return
+            bar.start()
+            started.append(True)
+        what = {"finishing": "finishing files in flight (Ctrl-C again to abandon them)",
+                "idle": "watching for new files (Ctrl-C to stop)"}.get(p.event, "measuring")
+        bar.update(task, description=what, total=p.total or None, completed=p.processed, ok=p.measured,
+                   failed=p.failed, dup=p.duplicates)
+
+    return bar, update
+
+
+@app.command()
+def batch(
+    folders: Annotated[list[Path], typer.Argument(help="Folders of scans, searched recursively (an image file works too).")],
+    *,
+    out: Annotated[Path, typer.Option("--out", help="Output folder: the database, parts.csv, failures.csv, duplicates.csv. Run the same command again to resume.")],
+    include: Annotated[Optional[list[str]], typer.Option("--include", help="Only files matching this glob (repeatable). Without '/' it matches the file name, with '/' the path below the folder; case is ignored.")] = None,
+    exclude: Annotated[Optional[list[str]], typer.Option("--exclude", help="Skip files matching this glob (repeatable; same rules as --include).")] = None,
+    workers: Annotated[Optional[int], typer.Option("--workers", "-j", help="Worker processes (default: one per core; 0: measure in this process). With --cluster local, the number of Dask workers.")] = None,
+    retry_failed: Annotated[bool, typer.Option("--retry-failed", help="Measure again the files that failed in an earlier run.")] = False,
+    rehash: Annotated[bool, typer.Option("--rehash", help="Read every file to check its content, even when its size and time are unchanged.")] = False,
+    watch: Annotated[bool, typer.Option("--watch", help="Keep watching the folders and measure new or changed files as they appear, until Ctrl-C.")] = False,
+    poll: Annotated[float, typer.Option("--poll", help="Seconds between looks at the folders with --watch.")] = 5.0,
+    cluster: Annotated[Optional[str], typer.Option("--cluster", help="Run on a Dask cluster: tcp://HOST:PORT (its workers must reach the files by the same paths), or local:N for a local cluster of N processes. Needs the dask distributed package.")] = None,
+    dpi: DpiOpt = None,
+    dpi_rel_u: DpiRelUOpt = 0.001,
+    level: LevelOpt = 0.5,
+    threshold: ThresholdOpt = None,
+    min_area: MinAreaOpt = 2.0,
+    min_hole_area: MinHoleOpt = None,
+    keep_cut: KeepCutOpt = False,
+    max_pixels: MaxPixelsOpt = 250_000_000,
+    material: MaterialOpt = None,
+    thickness: ThicknessOpt = None,
+    thickness_tol: ThicknessTolOpt = 0.0,
+    materials: MaterialsFileOpt = None,
+    quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar; only the summary.")] = False,
+) -> None:
+    """Measure every image under FOLDERS into a resumable database in OUT.
+
+    A scanmass.toml in a folder overrides the measuring options for the images in it and below (keys as in the library: dpi, min_area_mm2, material, thickness_mm, ...). Files measured before with the same content and settings are skipped; failures are recorded and never stop the batch.
+
+    Exit status: 0 when every file found was measured (or is a duplicate of one); 1 when any failed (see OUT/failures.csv) or an option is wrong; 130 when interrupted before the end (run the same command again to resume).
+    """
+    import signal
+
+    from .batch import run_batch
+
+    err = _console(stderr=True)
+    bar, update = (None, None) if quiet else _batch_progress_display(err, watch)
+
+    def _term(signum, frame):  # treat SIGTERM like Ctrl-C: finish the files in flight, write the CSVs
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGTERM, _term)
+    try:
+        with user_errors():
+            try:
+                summary = run_batch(
+                    folders, out, include=include or (), exclude=exclude or (), workers=workers, cluster=cluster,
+                    retry_failed=retry_failed, rehash=rehash, watch=watch, poll_seconds=poll, progress=update,
+                    dpi=dpi, dpi_rel_u=dpi_rel_u, level=level, threshold=threshold, min_area_mm2=min_area,
+                    min_hole_area_mm2=min_hole_area, keep_cut=keep_cut, max_pixels=max_pixels, material=material,
+                    thickness_mm=thickness, thickness_u_mm=thickness_tol, materials_file=materials,
+                )
+            finally:
+                if bar is not None:
+                    bar.stop()
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+    console = _console()
+    rate = summary.files_per_second
+    line = (f"{summary.found} file(s): {summary.measured} measured, {summary.failed} failed, "
+            f"{summary.duplicates} duplicate(s), {summary.unchanged} unchanged")
+    if summary.failed_earlier:
+        line += f", {summary.failed_earlier} failed before (not retried; --retry-failed)"
+    line += f" in {summary.seconds:.1f} s" + (f" ({rate:.2f} files/s, {summary.backend})" if rate else "")
+    console.print(line, soft_wrap=True)
+    console.print(f"results in {escape(str(summary.out_dir))}: parts.csv, failures.csv, duplicates.csv, scanmass-batch.sqlite",
+                  soft_wrap=True)
+    for path, error in summary.failures[:10]:
+        err.print(f"[red]failed:[/] {escape(error or path)}", markup=True, soft_wrap=True)
+    if len(summary.failures) > 10:
+        err.print(f"... and {len(summary.failures) - 10} more", markup=False)
+    if summary.interrupted and not watch:
+        err.print("interrupted; run the same command again to resume", markup=False)
+        raise typer.Exit(code=EXIT_INTERRUPTED)
+    if summary.failures:
+        err.print(f"{len(summary.failures)} file(s) failed; see {escape(str(summary.out_dir / 'failures.csv'))}", markup=True)
+        raise typer.Exit(code=EXIT_USER_ERROR)
+
+
+@app.command("batch-export")
+def batch_export(
+    out_dir: Annotated[Path, typer.Argument(help="The output folder of 'scanmass batch' (holding scanmass-batch.sqlite).")],
+    *,
+    format: Annotated[str, typer.Option("--format", help="csv: one row per part (the columns of parts.csv); jsonl: one JSON object per file with its status and full result.")] = "csv",
+    out: Annotated[str, typer.Option("--out", help="File to write; '-' for standard output.")] = "-",
+) -> None:
+    """Export a batch's results again from its database."""
+    from .batch import export_batch, iter_export
+
+    with user_errors():
+        if out == "-":
+            for piece in iter_export(out_dir, format=format):
+                sys.stdout.write(piece)
+            return
+        written = export_batch(out_dir, format=format, out=out)
+    _console(stderr=True).print(f"wrote {escape(str(written))}", markup=False)
