@@ -169,6 +169,7 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
     settings = _settings(folder)
     truth = {s.file: s for s in demo_scans()}
     measurements, lines, written = [], [], []
+    overlays: dict[int, Path] = {}
     for entry in settings["scan"]:
         src = folder / entry["file"]
         stem = Path(entry["file"]).stem
@@ -180,6 +181,30 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         measurements.append(result.measurement)
         written += [Path(p) for p in result.written]
         lines += _truth_lines(result.measurement, truth.get(entry["file"]))
+        overlays[len(measurements) - 1] = out_dir / f"{stem}-overlay.png"
+        if entry.get("export_dxf"):
+            from .export import export_dxf, export_svg
+
+            export_dxf(result.measurement, out_dir / f"{stem}.dxf", fit_tolerance_mm="auto")
+            export_svg(result.measurement, out_dir / f"{stem}.svg")
+            written += [out_dir / f"{stem}.dxf", out_dir / f"{stem}.svg"]
+            lines.append(f"outlines of {entry['file']} for CAD: {stem}.dxf, {stem}.svg")
+        spin = entry.get("balance")
+        if spin:
+            from .balance import balance_measurement
+            from .outputs import write_atomic
+
+            res = balance_measurement(result.measurement, entry["material"], entry["thickness_mm"],
+                                      thickness_u_mm=entry.get("thickness_u_mm", 0.0), rpm=spin["rpm"], grade=spin["grade"])
+            path = write_atomic(out_dir / f"{stem}-balance.json", res.to_json() + "\n")
+            written.append(Path(path))
+            lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {res.verdict}")
+    from .report import write_report
+
+    report = write_report(measurements, out_dir / "report.html", overlays=overlays,
+                          title="Wrenfield Cycle Restorations: legacy parts measured by scanmass")
+    written.append(Path(report))
+    lines.append(f"report: {report}")
     return DemoSummary(out_dir=out_dir, measurements=measurements, lines=lines, written=written)
 
 
