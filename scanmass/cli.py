@@ -78,6 +78,12 @@ MaterialOpt = Annotated[Optional[str], typer.Option("--material", help="Material
 ThicknessOpt = Annotated[Optional[float], typer.Option("--thickness", help="Plate thickness, mm (for mass).")]
 ThicknessTolOpt = Annotated[float, typer.Option("--thickness-tol", help="Standard uncertainty of the thickness, mm.")]
 MaterialsFileOpt = Annotated[Optional[Path], typer.Option("--materials", help="TOML file adding or overriding materials.")]
+ScaleOpt = Annotated[str, typer.Option("--scale", help="Scale source: auto (a trustworthy DPI means a scan, else a marker mat), dpi, mat or sheet.")]
+MatOpt = Annotated[Optional[str], typer.Option("--mat", help="Marker mat layout name or layout JSON (default: recognised from the markers).")]
+SheetOpt = Annotated[Optional[str], typer.Option("--sheet", help="The part lies on a plain sheet of paper: a4, a3 or letter.")]
+PrintedXOpt = Annotated[Optional[float], typer.Option("--printed-x", help="Caliper reading of the mat's 100 mm x check bar, mm.")]
+PrintedYOpt = Annotated[Optional[float], typer.Option("--printed-y", help="Caliper reading of the mat's 100 mm y check bar, mm.")]
+LensOpt = Annotated[Optional[Path], typer.Option("--lens", help="Lens profile JSON from 'scanmass lens' (corrects lens distortion).")]
 
 
 @app.command()
@@ -99,6 +105,12 @@ def measure(
     thickness: ThicknessOpt = None,
     thickness_tol: ThicknessTolOpt = 0.0,
     materials: MaterialsFileOpt = None,
+    scale: ScaleOpt = "auto",
+    mat: MatOpt = None,
+    sheet: SheetOpt = None,
+    printed_x: PrintedXOpt = None,
+    printed_y: PrintedYOpt = None,
+    lens: LensOpt = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Do not print the table.")] = False,
 ) -> None:
     """Measure every flat part in IMAGE: area, centroid, second moments, holes, uncertainties."""
@@ -110,6 +122,7 @@ def measure(
             dpi=dpi, dpi_rel_u=dpi_rel_u, level=level, threshold=threshold, min_area_mm2=min_area,
             min_hole_area_mm2=min_hole_area, keep_cut=keep_cut, max_pixels=max_pixels, material=material,
             thickness_mm=thickness, thickness_u_mm=thickness_tol, materials_file=materials,
+            scale=scale, mat=mat, sheet=sheet, printed_x_mm=printed_x, printed_y_mm=printed_y, lens=lens,
         )
     if json_out == "-":
         sys.stdout.write(result.document + "\n")
@@ -428,3 +441,41 @@ def batch_export(
             return
         written = export_batch(out_dir, format=format, out=out)
     _console(stderr=True).print(f"wrote {escape(str(written))}", markup=False)
+
+
+# -- marker mats and lens profiles for photos (issue 3) ---------------------------------
+@app.command("mat")
+def mat_command(
+    *,
+    layout: Annotated[str, typer.Option("--layout", help="a4-portrait, a4-landscape, a3-portrait, a3-landscape, letter-portrait or letter-landscape.")] = "a4-portrait",
+    pdf: Annotated[Optional[Path], typer.Option("--pdf", help="Write the mat as a PDF at exact size (print at 100 %).")] = None,
+    png: Annotated[Optional[Path], typer.Option("--png", help="Write the mat as a PNG.")] = None,
+    dpi: Annotated[float, typer.Option("--dpi", help="Resolution of the PNG, dots per inch.")] = 300.0,
+) -> None:
+    """Write a printable marker mat for photos (PDF and/or PNG), each with its layout JSON beside it."""
+    from .mat import write_mat
+
+    with user_errors():
+        written = write_mat(layout, pdf=pdf, png=png, dpi=dpi)
+    for path in written:
+        _console().print(f"wrote {path}")
+
+
+@app.command("lens")
+def lens_command(
+    photos: Annotated[list[Path], typer.Argument(help="5 or more photos of a flat marker mat from different angles.")],
+    *,
+    out: Annotated[Optional[Path], typer.Option("--out", help="Lens profile JSON to write (default: calibration/lens-WxH.json, or ./ outside a checkout).")] = None,
+    mat: MatOpt = None,
+) -> None:
+    """Calibrate the camera's lens from photos of a marker mat and save a lens profile."""
+    from .lens import calibrate_lens, default_profile_path, save_lens_profile
+
+    with user_errors():
+        profile = calibrate_lens(photos, mat=mat)
+        written = save_lens_profile(profile, out or default_profile_path(profile))
+    k = profile.camera_matrix
+    _console().print(f"focal length {k[0, 0]:.1f} x {k[1, 1]:.1f} px, centre ({k[0, 2]:.1f}, {k[1, 2]:.1f}) px, "
+                     f"k1 {profile.dist_coeffs[0]:+.4f}, k2 {profile.dist_coeffs[1]:+.4f}; RMS {profile.rms_px:.3f} px "
+                     f"over {profile.points} corners in {profile.photos} photos")
+    _console().print(f"wrote {written}")

@@ -20,7 +20,7 @@ import numpy as np
 
 from .errors import OptionError, ScaleError
 
-__all__ = ["LensProfile", "LENS_SCHEMA", "calibrate_lens", "load_lens_profile", "save_lens_profile", "MIN_LENS_PHOTOS"]
+__all__ = ["LensProfile", "LENS_SCHEMA", "calibrate_lens", "default_profile_path", "load_lens_profile", "save_lens_profile", "MIN_LENS_PHOTOS"]
 
 #: Identifier of the lens profile JSON document.
 LENS_SCHEMA = "scanmass.lens/1"
@@ -61,7 +61,7 @@ class LensProfile:
         pts = np.asarray(points_px, dtype=np.float64).reshape(-1, 1, 2)
         if len(pts) == 0:
             return pts.reshape(0, 2)
-        out = cv2.undistortPointsIter(pts, self.camera_matrix, self.dist_coeffs, None, self.camera_matrix,
+        out = cv2.undistortPoints(pts, self.camera_matrix, self.dist_coeffs, None, None, self.camera_matrix,
                                       (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 40, 1e-10))
         return out.reshape(-1, 2)
 
@@ -200,3 +200,12 @@ def calibrate_lens(photos: Sequence[str | os.PathLike | np.ndarray], *, mat=None
             f"lens calibration did not converge (RMS {profile_now.rms_px:.2f} px); take sharper photos of the flat mat "
             "from more varied angles")
     return profile_now
+
+
+def default_profile_path(profile: LensProfile) -> Path:
+    """calibration/lens-WxH.json in a checkout, else lens-WxH.json in the current folder."""
+    from .mat import calibration_dir
+
+    name = f"lens-{profile.image_size[0]}x{profile.image_size[1]}.json"
+    folder = calibration_dir()
+    return (folder / name) if folder is not None else Path(name)

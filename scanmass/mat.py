@@ -45,6 +45,7 @@ __all__ = [
     "write_mat_png",
     "write_layout_json",
     "calibration_dir",
+    "write_mat",
 ]
 
 #: OpenCV ArUco dictionary of every scanmass mat (5 x 5 data bits, 250 ids).
@@ -544,3 +545,26 @@ def calibration_dir() -> Path | None:
     """The repository's calibration/ folder when scanmass runs from a checkout, else None."""
     candidate = Path(__file__).resolve().parent.parent / "calibration"
     return candidate if candidate.is_dir() else None
+
+
+def write_mat(layout: str | MatLayout, *, pdf: str | os.PathLike | None = None, png: str | os.PathLike | None = None,
+              dpi: float = 300.0) -> list[Path]:
+    """Write a mat as PDF and/or PNG, each with its layout JSON beside it (same name, ``.json``).
+
+    Returns the written paths. Raises OptionError when neither output is given or a
+    layout JSON would land on the PDF or PNG itself.
+    """
+    mat = make_mat(layout) if isinstance(layout, str) else layout
+    if pdf is None and png is None:
+        raise OptionError("give an output: --pdf MAT.pdf and/or --png MAT.png")
+    written = []
+    for target, writer in ((pdf, lambda p: write_mat_pdf(mat, p)), (png, lambda p: write_mat_png(mat, p, dpi=dpi))):
+        if target is None:
+            continue
+        target = Path(os.fspath(target))
+        beside = target.with_suffix(".json")
+        if beside == target:
+            raise OptionError(f"{target} ends in .json; give the mat file a .pdf or .png name")
+        written.append(writer(target))
+        written.append(write_layout_json(mat, beside))
+    return list(dict.fromkeys(written))

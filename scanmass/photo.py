@@ -376,7 +376,9 @@ def _camera_matrix(image: LoadedImage, profile, h_samples: list[np.ndarray], rng
         f_med = float(np.median(good))
         spread = float(np.std(good, ddof=1)) / f_med
         if 0.2 * diag < f_med < 10 * diag and spread < 0.15:
+            # besides the corner noise, the assumed principal point and square pixels: 3 % (1 sigma)
             samples = np.array([f if f is not None else f_med for f in fs], dtype=float)
+            samples *= 1.0 + 0.03 * rng.standard_normal(len(samples))
             return np.array([[f_med, 0, cx], [0, f_med, cy], [0, 0, 1.0]]), samples, \
                 f"estimated from the view's perspective ({f_med:.0f} px, {100 * spread:.0f} %)"
     f_exif = _exif_focal_px(image)
@@ -407,15 +409,15 @@ def _build_scale(image: LoadedImage, *, method: str, fit: HomographyFit, points_
     h0 = printer @ fit.px_to_plane
     h0 = h0 / h0[2, 2]
     raw = sample_homographies(fit, points_mm, sigma_px=max(sample_sigma_px, 1e-3), count=SAMPLES, seed=7)
+    cx_mm, cy_mm = 0.5 * (clear_mm[0] + clear_mm[2]), 0.5 * (clear_mm[1] + clear_mm[3])
+    centre_px = apply_h(np.linalg.inv(h0), [[cx_mm, cy_mm]])[0]
+    mm_per_px = local_scale(h0, centre_px)
+    scales = np.array([local_scale(h, centre_px) for h in raw])
+    terms = {"homography": float(np.std(scales, ddof=1) / np.mean(scales)), **terms}
     if size_samples is not None:  # the target's own size tolerance (a sheet): scale each sample
         raw = [size_samples(rng) @ h for h in raw]
     samples = [printer @ h for h in raw]
     samples = [h / h[2, 2] for h in samples]
-    cx_mm, cy_mm = 0.5 * (clear_mm[0] + clear_mm[2]), 0.5 * (clear_mm[1] + clear_mm[3])
-    centre_px = apply_h(np.linalg.inv(h0), [[cx_mm, cy_mm]])[0]
-    mm_per_px = local_scale(h0, centre_px)
-    scales = np.array([local_scale(h, centre_px) for h in samples])
-    terms = {"homography": float(np.std(scales, ddof=1) / np.mean(scales)), **terms}
     hook = undistort
     hooks = None
     k, f_samples, f_note = _camera_matrix(image, profile, samples, rng)
@@ -526,7 +528,7 @@ def mat_scale(
     if fit is None:
         raise ScaleError("the markers found do not fit a flat mat; lay the mat flat and photograph it again", path=path)
     warnings = []
-    _check_consistency(fit, n, cell_px, layout, path, warnings)
+    misfit = _check_consistency(fit, n, det.edge_noise_px, pts_px, pts_mm, _principal(image), path, warnings)
     printer, printer_rel, checked = _printer(layout, printed_x_mm, printed_y_mm, path)
     if not checked:
         warnings.append(
@@ -548,6 +550,10 @@ def mat_scale(
                 f"reprojection RMS {fit.rms_px:.3f} px",
     }
     terms = {"printer": printer_rel}
+    if misfit > 0:  # what the plane model leaves unexplained, over a typical part's size
+        clear_diag = math.hypot(clear[2] - clear[0], clear[3] - clear[1])
+        terms["flatness"] = misfit / (0.25 * clear_diag)
+    extra["misfit_mm"] = misfit
     scale = _build_scale(image, method="mat", fit=fit, points_mm=pts_mm, printer=printer, terms=terms, extra=extra,
                          clear_mm=clear_phys, lens=lens_tools, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm,
                          support_mm=support, warnings=warnings, sample_sigma_px=fit.sigma_px)
@@ -578,18 +584,56 @@ def _check_blur(det: MarkerDetection, known: np.ndarray, path: str | None) -> No
         raise ScaleError(f"the photo is out of focus (marker edges about {narrow:.1f} px wide); focus on the mat and take it again", path=path)
 
 
-def _check_consistency(fit: HomographyFit, n_markers: int, cell_px: float, layout: MatLayout, path, warnings) -> None:
-    """Refuse a bent or creased mat (or strong lens distortion): corners that no homography explains."""
+#: Largest misfit (mm, RMS over the marker corners, beyond their localisation noise) of
+#: the homography that is accepted: a flat mat printed by an office printer fits to a few
+#: hundredths of a mm; a bend, crease or curl of the paper, or strong lens distortion,
+#: shows as more.
+MAX_MISFIT_MM = 0.15
+
+
+def _misfit_mm(fit: HomographyFit, noise_px: float) -> float:
+    mm_per_px = fit.rms_mm / fit.rms_px if fit.rms_px > 0 else 0.0
+    expected = 3.0 * (noise_px if math.isfinite(noise_px) else 0.0)
+    return math.sqrt(max(fit.rms_px**2 - expected**2, 0.0)) * mm_per_px
+
+
+def _looks_like_distortion(pts_px: np.ndarray, pts_mm: np.ndarray, fit: HomographyFit, centre_px) -> bool:
+    """True when one radial term about the image centre explains most of the misfit."""
+    sel = fit.inliers
+    c = np.asarray(centre_px, dtype=float)
+    r2 = np.sum((pts_px - c) ** 2, axis=1)
+    scale = float(r2.max()) or 1.0
+    best = fit.rms_px
+    for lam in np.linspace(-0.3, 0.3, 61):
+        corrected = c + (pts_px - c) * (1.0 + lam * r2 / scale)[:, None]
+        g, _ = cv2.findHomography(pts_mm[sel], corrected[sel], 0)
+        if g is None:
+            continue
+        res = apply_h(g, pts_mm[sel]) - corrected[sel]
+        best = min(best, math.sqrt(float(np.mean(np.sum(res**2, axis=1)))))
+    return best < 0.35 * fit.rms_px
+
+
+def _check_consistency(fit: HomographyFit, n_markers: int, noise_px: float, pts_px, pts_mm, centre_px, path,
+                       warnings) -> float:
+    """Refuse a bent or creased mat (or strong lens distortion): corners that no homography explains.
+
+    Returns the misfit in mm (RMS beyond the corners' localisation noise).
+    """
     outlier_markers = int((~fit.inliers.reshape(-1, 4)).any(axis=1).sum())
-    mm_per_px = fit.rms_mm / fit.rms_px if fit.rms_px > 0 else layout.cell_mm / max(cell_px, 1e-9)
-    rms_limit_px = max(0.6, 0.35 / mm_per_px) if mm_per_px > 0 else 0.6
-    if outlier_markers > max(1, 0.2 * n_markers) or fit.rms_px > rms_limit_px:
+    misfit = _misfit_mm(fit, noise_px)
+    if outlier_markers > max(1, 0.2 * n_markers) or misfit > MAX_MISFIT_MM:
+        what = f"reprojection RMS {fit.rms_px:.2f} px = {fit.rms_mm:.2f} mm, {outlier_markers} of {n_markers} markers off"
+        if _looks_like_distortion(pts_px, pts_mm, fit, centre_px):
+            raise ScaleError(
+                f"the markers bow like a distorting lens ({what}); calibrate the camera with 'scanmass lens PHOTOS...' "
+                "and pass --lens PROFILE", path=path)
         raise ScaleError(
-            f"the markers do not lie on one flat plane (reprojection RMS {fit.rms_px:.2f} px = {fit.rms_mm:.2f} mm, "
-            f"{outlier_markers} of {n_markers} markers off): flatten the mat (no bends or creases) or, if the lens "
-            "distorts strongly, calibrate it with 'scanmass lens' and pass --lens", path=path)
+            f"the markers do not lie on one flat plane ({what}): flatten the mat (no bends, creases or curl) and "
+            "take the photo again", path=path)
     if outlier_markers:
         warnings.append(f"{outlier_markers} marker(s) did not fit the others and were left out (a crease or a dirty marker?)")
+    return misfit
 
 
 # ---------------------------------------------------------------------------------

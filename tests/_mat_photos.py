@@ -140,7 +140,7 @@ def render_photo(layout: MatLayout | None, parts: list[PhotoParts], cam: Camera,
     lin = refl * field_
     if np.any(cam.dist != 0):
         pts = np.column_stack([xx.ravel(), yy.ravel()]).astype(np.float64).reshape(-1, 1, 2)
-        ideal = cv2.undistortPointsIter(pts, cam.k, cam.dist, None, cam.k,
+        ideal = cv2.undistortPoints(pts, cam.k, cam.dist, None, None, cam.k,
                                         (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 30, 1e-9)).reshape(h, w, 2)
         lin = cv2.remap(lin.astype(np.float32), ideal[..., 0].astype(np.float32), ideal[..., 1].astype(np.float32),
                         cv2.INTER_CUBIC, borderMode=cv2.BORDER_REPLICATE).astype(np.float64)
