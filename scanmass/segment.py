@@ -355,6 +355,8 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
     scale = float(max(shape))
     if threshold is None:
         rb, cb = _sample(band_out | hole_space)
+        if rb.size < 3:  # no background around the part to set its level against
+            return None
         bg_lin = lut[grey_crop[rb, cb]].astype(np.float64)
         med_bg_guess = float(np.median(bg_lin)) if bg_lin.size else float(np.median(band_lin))
         cut_level = med_bg_guess * (1 + ratio_hint) / 2.0
