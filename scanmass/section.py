@@ -451,7 +451,11 @@ def caliper_widths(points: np.ndarray) -> tuple[float, float]:
     >>> caliper_widths([[0, 0], [4, 0], [4, 3], [0, 3]])
     (5.0, 3.0)
     """
-    hull = convex_hull(points)
+    return _hull_calipers(convex_hull(points))
+
+
+def _hull_calipers(hull: np.ndarray) -> tuple[float, float]:
+    """Calipers of an already computed convex hull (see :func:`caliper_widths`)."""
     h = hull.shape[0]
     if h == 1:
         return 0.0, 0.0
@@ -652,8 +656,8 @@ def section_properties(outer: np.ndarray, holes: Sequence[np.ndarray] = ()) -> S
     i1, i2, angle = principal_moments(ixx, iyy, ixy)
     xmin, ymin = (float(v) for v in out.min(axis=0))
     xmax, ymax = (float(v) for v in out.max(axis=0))
-    cal_max, cal_min = caliper_widths(out)
     hull = convex_hull(out)
+    cal_max, cal_min = _hull_calipers(hull)
     perimeter = sum(ring_perimeter(r) for r in rings)
 
     return SectionProperties(

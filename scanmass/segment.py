@@ -304,7 +304,7 @@ def _touches_roi(cnt: np.ndarray, roi_px: np.ndarray) -> bool:
     return bool((dists < 2.0).any())
 
 
-_MAX_FIT_SAMPLES = 20_000
+_MAX_FIT_SAMPLES = 8_000
 
 
 def _sample(mask: np.ndarray, limit: int = _MAX_FIT_SAMPLES) -> tuple[np.ndarray, np.ndarray]:
