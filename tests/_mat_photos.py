@@ -37,6 +37,12 @@ class Camera:
         g = self.k @ np.column_stack([self.r[:, 0], self.r[:, 1], self.t + height_mm * self.r[:, 2]])
         return g / g[2, 2]
 
+    def project3d(self, pts_mm: np.ndarray) -> np.ndarray:
+        """Project (N, 3) points of the mat's frame (z up, towards the camera)."""
+        cam = np.asarray(pts_mm, float) @ self.r.T + self.t
+        p = cam @ self.k.T
+        return p[:, :2] / p[:, 2:3]
+
     def project(self, pts_mm: np.ndarray, height_mm: float = 0.0) -> np.ndarray:
         g = self.plane_to_px(height_mm)
         p = np.asarray(pts_mm, float).reshape(-1, 2)
@@ -118,8 +124,14 @@ class PhotoParts:
 
 def render_photo(layout: MatLayout | None, parts: list[PhotoParts], cam: Camera, *, paper=0.85, ink=0.03, table=0.12,
                  blur_px=1.0, noise=0.006, light=(0.1, -0.08), seed=0, jpeg_quality: int | None = None,
-                 sheet_mm: tuple[float, float] | None = None, motion_px: float = 0.0) -> np.ndarray:
-    """The photo as an 8-bit sRGB grey image (or JPEG bytes decoded back when ``jpeg_quality``)."""
+                 sheet_mm: tuple[float, float] | None = None, motion_px: float = 0.0, hide_ids=(),
+                 print_scale=(1.0, 1.0), bend_mm: float = 0.0) -> np.ndarray:
+    """The photo as an 8-bit sRGB grey image (or JPEG bytes decoded back when ``jpeg_quality``).
+
+    ``hide_ids``: markers covered up (not drawn); ``print_scale``: the printer's x and y
+    scale of everything printed (about the page origin); ``bend_mm``: the mat arches up by
+    this much in the middle along x (a sine bump), so its print leaves the plane.
+    """
     w, h = cam.size
     shape = (h, w)
     page_mm = layout.page_mm if layout is not None else sheet_mm
@@ -127,7 +139,17 @@ def render_photo(layout: MatLayout | None, parts: list[PhotoParts], cam: Camera,
     refl = np.full(shape, table)
     refl += (paper - table) * polygon_coverage([(cam.project(page), [])], shape)
     if layout is not None:
-        rects = [(cam.project(r), []) for r in mat_dark_rectangles(layout)]
+        hidden = [shapely.Polygon(m.corners_mm) for m in layout.markers if m.id in set(hide_ids)]
+        rects = []
+        for r in mat_dark_rectangles(layout):
+            if any(hp.contains(shapely.Point(r.mean(axis=0))) for hp in hidden):
+                continue
+            r = r * np.asarray(print_scale, float)
+            if bend_mm:
+                z = bend_mm * np.sin(np.pi * np.clip(r[:, 0] / page_mm[0], 0, 1))
+                rects.append((cam.project3d(np.column_stack([r, z])), []))
+            else:
+                rects.append((cam.project(r), []))
         refl += (ink - paper) * polygon_coverage(rects, shape)
     for part in parts:
         if part.height_mm > 0:
