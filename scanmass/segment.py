@@ -414,24 +414,26 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
     for ring in rings:
         if len(ring) < 4 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
             continue
-        ring, grad = _refine_vertices(norm, ring[:-1], contour_level)
+        ring, grad, slope = _refine_vertices(norm, ring[:-1], contour_level)
         xy = np.column_stack([ring[:, 1] + c0 - 1, ring[:, 0] + r0 - 1])
-        closed.append((xy, _ring_area(xy), grad))
+        closed.append((xy, _ring_area(xy), grad, slope))
     if not closed:
         return None
     closed.sort(key=lambda t: -abs(t[1]))
-    outer, outer_area, gradient = closed[0]
+    outer, outer_area, gradient, slope = closed[0]
     outer_sign = math.copysign(1.0, outer_area)
-    holes_px, hole_grads = [], []
-    for xy, area, grad in closed[1:]:
+    holes_px, hole_grads, slopes = [], [], [slope]
+    for xy, area, grad, slope in closed[1:]:
         if math.copysign(1.0, area) == outer_sign or abs(area) < min_hole_px:
             continue
         if not _point_in_ring(xy[0], outer):
             continue
         holes_px.append(xy)
         hole_grads.append(grad)
-    g_med = float(np.median(np.concatenate([gradient] + hole_grads)))
-    blur_px = _blur_from_gradient(g_med)
+        slopes.append(slope)
+    # blur from the edge profile across each refined point (phase-independent, unlike the
+    # gradient at grid-aligned points); pixel integration is part of the blur the boundary sees
+    blur_px = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
     if threshold is None:
         # the level samples of a thin part still carry the blur tails of both its edges
         level_rel_u = math.hypot(level_rel_u, math.erfc(depth_px / (blur_px * math.sqrt(2.0))))
@@ -524,8 +526,9 @@ def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tup
     image equals the level (a few Newton steps), which shrinks that bias by an order of
     magnitude while keeping the ring's topology from marching squares.
 
-    Returns the refined (row, col) points and the gradient magnitude (per px, central
-    differences of the bilinear interpolant) at the original points.
+    Returns the refined (row, col) points, the gradient magnitude (per px, central
+    differences of the bilinear interpolant) at the original points, and half the rise of
+    the bicubic interpolant from 1 px before to 1 px after each refined point.
 
     References
     ----------
@@ -550,7 +553,10 @@ def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tup
         step = np.zeros_like(t)
         step[good] = -v[good] / dv[good]
         t = np.clip(t + np.clip(step, -0.25, 0.25), -0.5, 0.5)
-    return ring_rc + t[:, None] * direction, gn
+    p = ring_rc + t[:, None] * direction
+    # half the rise of the interpolant from 1 px before to 1 px after the edge point
+    rise = 0.5 * (_remap(img, p + direction, cv2.INTER_CUBIC) - _remap(img, p - direction, cv2.INTER_CUBIC))
+    return p, gn, rise
 
 
 def _point_in_ring(point: np.ndarray, ring: np.ndarray) -> bool:
