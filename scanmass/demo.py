@@ -10,6 +10,7 @@ ones. All numbers here are invented for the demo.
 
 from __future__ import annotations
 
+import io
 import math
 import os
 import tomllib
@@ -22,7 +23,7 @@ import numpy as np
 from .errors import ScanmassError
 from .measurement import Measurement
 
-__all__ = ["DemoSummary", "demo_scans", "make_samples", "run_demo", "samples_dir"]
+__all__ = ["DemoSummary", "demo_scans", "demo_photos", "make_samples", "run_demo", "samples_dir"]
 
 
 def _rounded_rect(x0: float, y0: float, w: float, h: float, r: float, n_arc: int = 48) -> np.ndarray:
@@ -114,6 +115,45 @@ def demo_scans() -> list[DemoScan]:
     ]
 
 
+def chainstay_gusset() -> tuple[np.ndarray, list[np.ndarray]]:
+    """Chainstay gusset plate: a 92 x 64 mm triangle with cut corners, three 6.5 mm holes and a 14 mm window."""
+    outer = np.array([(0, 0), (86, 0), (92, 6), (8, 64), (0, 60)], dtype=float)
+    holes = [_circle(10.0, 8.0, 3.25, 360), _circle(76.0, 8.0, 3.25, 360), _circle(10.0, 50.0, 3.25, 360),
+             _circle(30.0, 22.0, 7.0, 360)]
+    return outer, holes
+
+
+@dataclass
+class DemoPhoto:
+    """One sample phone photo of a part on the printed A4 marker mat."""
+
+    file: str
+    parts: list[tuple[np.ndarray, list[np.ndarray]]]
+    camera: dict[str, Any]
+    print_scale: tuple[float, float]
+    printed_x_mm: float
+    printed_y_mm: float
+    material: str | None = None
+    thickness_mm: float | None = None
+    thickness_u_mm: float = 0.0
+    render: dict[str, Any] = field(default_factory=dict)
+
+
+def demo_photos() -> list[DemoPhoto]:
+    """The scenario's phone photo: the gusset on an A4 mat whose printer stretched x by 0.4 % and shrank y by 0.3 %."""
+    g_out, g_holes = chainstay_gusset()
+    about = (46.0, 32.0)
+    gusset = (_moved(g_out, 58.0, 112.0, 24.0, about), [_moved(h, 58.0, 112.0, 24.0, about) for h in g_holes])
+    return [
+        DemoPhoto("wrenfield-chainstay-gusset-on-mat.jpg", [gusset],
+                  camera=dict(target_mm=(108.0, 150.0), distance_mm=400.0, tilt_deg=18.0, tilt_dir_deg=-35.0,
+                              roll_deg=84.0, f_px=1700.0, size_px=(2000, 1500)),
+                  print_scale=(1.004, 0.997), printed_x_mm=100.4, printed_y_mm=99.7,
+                  material="carbon-steel", thickness_mm=2.5, thickness_u_mm=0.05,
+                  render=dict(blur_px=1.1, noise=0.006, light=(0.15, -0.1), seed=14)),
+    ]
+
+
 def samples_dir() -> Path | None:
     """The repository's samples/ folder when scanmass runs from a checkout, else None."""
     candidate = Path(__file__).resolve().parent.parent / "samples"
@@ -131,6 +171,18 @@ def make_samples(folder: str | os.PathLike) -> list[Path]:
         parts = [SynthPart(outer, holes) for outer, holes in scan.parts]
         synth = render_scan(parts, dpi=scan.dpi, size_mm=scan.size_mm, **scan.render)
         written.append(save_scan(synth, folder / scan.file, quality=90))
+    from PIL import Image
+
+    from .mat import make_mat
+    from .outputs import write_atomic
+    from .synth_photo import look_at, render_mat_photo
+
+    for photo in demo_photos():
+        img = render_mat_photo(make_mat("a4-portrait"), photo.parts, look_at(**photo.camera), height_mm=photo.thickness_mm or 0.0,
+                               print_scale=photo.print_scale, **photo.render)
+        bio = io.BytesIO()
+        Image.fromarray(img).save(bio, format="JPEG", quality=90)  # a phone's JPEG: no DPI, no EXIF
+        written.append(Path(write_atomic(folder / photo.file, bio.getvalue())))
     return written
 
 
@@ -150,7 +202,9 @@ def _settings(folder: Path) -> dict[str, Any]:
         with open(path, "rb") as fh:
             return tomllib.load(fh)
     return {"scan": [{"file": s.file, "material": s.material, "thickness_mm": s.thickness_mm,
-                      "thickness_u_mm": s.thickness_u_mm} for s in demo_scans()]}
+                      "thickness_u_mm": s.thickness_u_mm} for s in demo_scans()]
+            + [{"file": p.file, "material": p.material, "thickness_mm": p.thickness_mm, "thickness_u_mm": p.thickness_u_mm,
+                "printed_x_mm": p.printed_x_mm, "printed_y_mm": p.printed_y_mm} for p in demo_photos()]}
 
 
 def run_demo(out: str | os.PathLike) -> DemoSummary:
@@ -167,7 +221,7 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         folder = out_dir / "samples"
         make_samples(folder)
     settings = _settings(folder)
-    truth = {s.file: s for s in demo_scans()}
+    truth = {s.file: s for s in [*demo_scans(), *demo_photos()]}
     measurements, lines, written = [], [], []
     overlays: dict[int, Path] = {}
     for entry in settings["scan"]:
@@ -177,6 +231,7 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
             src, json_out=out_dir / f"{stem}.json", csv_out=out_dir / f"{stem}.csv",
             overlay_out=out_dir / f"{stem}-overlay.png", material=entry.get("material"),
             thickness_mm=entry.get("thickness_mm"), thickness_u_mm=entry.get("thickness_u_mm", 0.0),
+            printed_x_mm=entry.get("printed_x_mm"), printed_y_mm=entry.get("printed_y_mm"),
         )
         measurements.append(result.measurement)
         written += [Path(p) for p in result.written]

@@ -397,7 +397,7 @@ def _camera_matrix(image: LoadedImage, profile, h_samples: list[np.ndarray], rng
             samples = np.array([f if f is not None else f_med for f in fs], dtype=float)
             samples *= 1.0 + 0.03 * rng.standard_normal(len(samples))
             return np.array([[f_med, 0, cx], [0, f_med, cy], [0, 0, 1.0]]), samples, \
-                f"estimated from the view's perspective ({f_med:.0f} px, {100 * spread:.0f} %)"
+                f"estimated from the view's perspective ({f_med:.0f} px +- {100 * math.hypot(spread, 0.03):.0f} %)"
     f_exif = _exif_focal_px(image)
     if f_exif is not None:
         f0, rel, note = f_exif, 0.03, f"EXIF 35 mm-equivalent focal length ({f_exif:.0f} px)"
