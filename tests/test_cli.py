@@ -20,6 +20,7 @@ from typer.testing import CliRunner
 from scanmass.cli import app
 from scanmass.measurement import Measurement
 from scanmass.synth import SynthPart, circle, rectangle, render_scan, save_scan
+from cli_helpers import one_line_error
 
 runner = CliRunner()
 
@@ -30,17 +31,6 @@ def scan_png(tmp_path_factory) -> Path:
     parts = [SynthPart(rectangle(8.0, 9.0, 30.0, 20.0), [circle(23.0, 19.0, 4.0)]), SynthPart(circle(60.0, 20.0, 9.0))]
     scan = render_scan(parts, dpi=300, size_mm=(80, 40), blur_px=0.9, noise=0.005, seed=21)
     return save_scan(scan, folder / "plate.png")
-
-
-def _one_line_error(result, *needles: str) -> str:
-    assert result.exit_code == 1, result.output
-    text = result.stderr if hasattr(result, "stderr") else result.output
-    lines = [ln for ln in text.strip().splitlines() if ln.strip()]
-    assert len(lines) == 1, text
-    assert "Traceback" not in text
-    for needle in needles:
-        assert needle in lines[0], lines[0]
-    return lines[0]
 
 
 def test_measure_writes_json_csv_overlay(scan_png, tmp_path):
@@ -100,7 +90,7 @@ def test_every_command_has_help_text():
 def test_bad_files(tmp_path, content, suffix, needles):
     path = tmp_path / f"bad{suffix}"
     path.write_bytes(content)
-    line = _one_line_error(runner.invoke(app, ["measure", str(path)]), str(path))
+    line = one_line_error(runner.invoke(app, ["measure", str(path)]), str(path))
     for n in needles:
         assert n in line.lower()
 
@@ -109,54 +99,54 @@ def test_truncated_file(scan_png, tmp_path):
     data = scan_png.read_bytes()
     path = tmp_path / "cut.png"
     path.write_bytes(data[: len(data) // 2])
-    _one_line_error(runner.invoke(app, ["measure", str(path)]), str(path))
+    one_line_error(runner.invoke(app, ["measure", str(path)]), str(path))
 
 
 def test_missing_file(tmp_path):
-    _one_line_error(runner.invoke(app, ["measure", str(tmp_path / "nope.png")]), "nope.png")
+    one_line_error(runner.invoke(app, ["measure", str(tmp_path / "nope.png")]), "nope.png")
 
 
 def test_no_scale(tmp_path):
     scan = render_scan([SynthPart(circle(20, 20, 8))], dpi=300, size_mm=(40, 40), seed=1)
     path = save_scan(scan, tmp_path / "nodpi.png", dpi="omit")
-    _one_line_error(runner.invoke(app, ["measure", str(path)]), str(path), "--dpi")
+    one_line_error(runner.invoke(app, ["measure", str(path)]), str(path), "--dpi")
 
 
 def test_default_72_dpi_is_unknown(tmp_path):
     scan = render_scan([SynthPart(circle(20, 20, 8))], dpi=300, size_mm=(40, 40), seed=1)
     path = save_scan(scan, tmp_path / "d72.jpg", dpi=72)
-    _one_line_error(runner.invoke(app, ["measure", str(path)]), str(path), "--dpi")
+    one_line_error(runner.invoke(app, ["measure", str(path)]), str(path), "--dpi")
 
 
 @pytest.mark.parametrize("dpi", ["0", "-300", "nan", "1e9"])
 def test_absurd_dpi(scan_png, dpi):
-    _one_line_error(runner.invoke(app, ["measure", str(scan_png), "--dpi", dpi]), "dpi")
+    one_line_error(runner.invoke(app, ["measure", str(scan_png), "--dpi", dpi]), "dpi")
 
 
 @pytest.mark.parametrize("option, value", [("--min-area", "-1"), ("--level", "1.5"), ("--threshold", "2"), ("--max-pixels", "0")])
 def test_absurd_options(scan_png, option, value):
-    _one_line_error(runner.invoke(app, ["measure", str(scan_png), option, value]))
+    one_line_error(runner.invoke(app, ["measure", str(scan_png), option, value]))
 
 
 def test_image_too_large(scan_png):
-    _one_line_error(runner.invoke(app, ["measure", str(scan_png), "--max-pixels", "1000"]), "--max-pixels")
+    one_line_error(runner.invoke(app, ["measure", str(scan_png), "--max-pixels", "1000"]), "--max-pixels")
 
 
 def test_all_background_and_all_foreground(tmp_path):
     blank = tmp_path / "blank.png"
     Image.fromarray(np.full((200, 200), 240, np.uint8)).save(blank, dpi=(300, 300))
-    _one_line_error(runner.invoke(app, ["measure", str(blank)]), str(blank))
+    one_line_error(runner.invoke(app, ["measure", str(blank)]), str(blank))
     dark = tmp_path / "dark.png"
     arr = np.full((200, 200), 20, np.uint8)
     arr[90:110, 90:110] = 30
     Image.fromarray(arr).save(dark, dpi=(300, 300))
-    _one_line_error(runner.invoke(app, ["measure", str(dark)]), str(dark))
+    one_line_error(runner.invoke(app, ["measure", str(dark)]), str(dark))
 
 
 def test_unwritable_output_and_no_overwrite_of_input(scan_png, tmp_path):
-    _one_line_error(runner.invoke(app, ["measure", str(scan_png), "--json", str(tmp_path / "missing" / "r.json")]), "missing")
+    one_line_error(runner.invoke(app, ["measure", str(scan_png), "--json", str(tmp_path / "missing" / "r.json")]), "missing")
     before = scan_png.read_bytes()
-    _one_line_error(runner.invoke(app, ["measure", str(scan_png), "--overlay", str(scan_png)]))
+    one_line_error(runner.invoke(app, ["measure", str(scan_png), "--overlay", str(scan_png)]))
     assert scan_png.read_bytes() == before
 
 

@@ -22,19 +22,9 @@ from scanmass.cli import app
 from scanmass.export import fit_tolerance_default_mm
 from scanmass.measurement import Measurement
 from scanmass.synth import SynthPart, circle, rectangle, render_scan, save_scan
+from cli_helpers import one_line_error
 
 runner = CliRunner()
-
-
-def _one_line_error(result, *needles: str) -> str:
-    assert result.exit_code == 1, result.output
-    text = result.stderr if hasattr(result, "stderr") else result.output
-    lines = [ln for ln in text.strip().splitlines() if ln.strip()]
-    assert len(lines) == 1, text
-    assert "Traceback" not in text
-    for needle in needles:
-        assert needle in lines[0], lines[0]
-    return lines[0]
 
 
 @pytest.fixture(scope="module")
@@ -114,59 +104,59 @@ def test_report_of_several_results(measured, tmp_path):
 def test_export_result_of_another_schema(tmp_path):
     src = tmp_path / "assembly.json"
     src.write_text(json.dumps({"schema": "scanmass.assembly/1", "members": []}))
-    line = _one_line_error(runner.invoke(app, ["export", str(src), "--svg", str(tmp_path / "o.svg")]), str(src), "not a scanmass result")
+    line = one_line_error(runner.invoke(app, ["export", str(src), "--svg", str(tmp_path / "o.svg")]), str(src), "not a scanmass result")
     assert not (tmp_path / "o.svg").exists(), line
 
 
 def test_export_result_of_another_version(tmp_path):
     src = tmp_path / "old.json"
     src.write_text(json.dumps({"schema": "scanmass.result/0"}))
-    _one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf")]), str(src), "not supported")
+    one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf")]), str(src), "not supported")
 
 
 def test_export_missing_file(tmp_path):
     missing = tmp_path / "missing.json"
-    _one_line_error(runner.invoke(app, ["export", str(missing), "--dxf", str(tmp_path / "o.dxf")]), str(missing), "file not found")
+    one_line_error(runner.invoke(app, ["export", str(missing), "--dxf", str(tmp_path / "o.dxf")]), str(missing), "file not found")
 
 
 def test_export_output_folder_missing(measured, tmp_path):
     src, _ = measured
     out = tmp_path / "no-such-folder" / "o.dxf"
-    _one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(out)]), "does not exist")
+    one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(out)]), "does not exist")
 
 
 def test_export_needs_an_output(measured):
     src, _ = measured
-    _one_line_error(runner.invoke(app, ["export", str(src)]), "--dxf", "--svg")
+    one_line_error(runner.invoke(app, ["export", str(src)]), "--dxf", "--svg")
 
 
 def test_export_bad_fit_tolerance(measured, tmp_path):
     src, _ = measured
-    _one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf"), "--fit-tolerance", "fine"]), "fit tolerance")
-    _one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf"), "--part", "7"]), "part 7")
+    one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf"), "--fit-tolerance", "fine"]), "fit tolerance")
+    one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf"), "--part", "7"]), "part 7")
 
 
 def test_export_never_overwrites_the_result(measured, tmp_path):
     src, _ = measured
     copy = tmp_path / "copy.json"
     copy.write_text(src.read_text())
-    _one_line_error(runner.invoke(app, ["export", str(copy), "--svg", str(copy)]), "would overwrite")
+    one_line_error(runner.invoke(app, ["export", str(copy), "--svg", str(copy)]), "would overwrite")
     assert json.loads(copy.read_text())["schema"] == "scanmass.result/1"
 
 
 def test_report_bad_input(measured, tmp_path):
     src, _ = measured
-    _one_line_error(runner.invoke(app, ["report", str(src)]), "--html")
+    one_line_error(runner.invoke(app, ["report", str(src)]), "--html")
     missing = tmp_path / "gone.json"
-    _one_line_error(runner.invoke(app, ["report", str(missing), "--html", str(tmp_path / "r.html")]), str(missing), "file not found")
+    one_line_error(runner.invoke(app, ["report", str(missing), "--html", str(tmp_path / "r.html")]), str(missing), "file not found")
     other = tmp_path / "other.json"
     other.write_text(json.dumps({"schema": "something-else/2"}))
-    _one_line_error(runner.invoke(app, ["report", str(other), "--html", str(tmp_path / "r.html")]), str(other), "not a scanmass result")
-    _one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "none" / "r.html")]), "does not exist")
+    one_line_error(runner.invoke(app, ["report", str(other), "--html", str(tmp_path / "r.html")]), str(other), "not a scanmass result")
+    one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "none" / "r.html")]), "does not exist")
     not_png = tmp_path / "overlay.png"
     not_png.write_text("not an image")
-    _one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "r.html"), "--overlay", str(not_png)]), "not a PNG")
-    _one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "r.html"), "--overlay", str(not_png), "--overlay", str(not_png)]), "overlays for 1 result")
+    one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "r.html"), "--overlay", str(not_png)]), "not a PNG")
+    one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "r.html"), "--overlay", str(not_png), "--overlay", str(not_png)]), "overlays for 1 result")
     assert not (tmp_path / "r.html").exists()
 
 

@@ -15,20 +15,10 @@ from scanmass.cli import app
 from scanmass.synth import SynthPart, circle, render_scan, save_scan
 
 from plate_parts import circle_ring, disc, make_measurement, make_part, rect
+from cli_helpers import one_line_error
 
 runner = CliRunner()
 STEEL = 7850e-6  # g/mm3: carbon steel 7850 kg/m3 (EN 1993-1-1, 3.2.6; from memory)
-
-
-def one_line_error(result, *needles: str) -> str:
-    assert result.exit_code == 1, result.output
-    text = result.stderr if hasattr(result, "stderr") else result.output
-    lines = [ln for ln in text.strip().splitlines() if ln.strip()]
-    assert len(lines) == 1, text
-    assert "Traceback" not in text
-    for needle in needles:
-        assert needle in lines[0], lines[0]
-    return lines[0]
 
 
 @pytest.fixture()
