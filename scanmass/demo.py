@@ -254,6 +254,16 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
             path = write_atomic(out_dir / f"{stem}-balance.json", res.to_json() + "\n")
             written.append(Path(path))
             lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {res.verdict}")
+    assembly_file = folder / "wrenfield-carrier-assembly.toml"
+    if assembly_file.is_file():
+        from .assembly import assemble
+        from .outputs import write_atomic
+
+        res = assemble(assembly_file)
+        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.json", res.to_json() + "\n")))
+        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.csv", res.to_csv())))
+        com = ", ".join(f"{v:.2f}" for v in res.centre_of_mass_mm)
+        lines.append(f"assembly '{res.name}': {res.mass_g:.2f} ± {res.mass_u_g:.2f} g, centre of mass ({com}) mm")
     from .report import write_report
 
     report = write_report(measurements, out_dir / "report.html", overlays=overlays,
