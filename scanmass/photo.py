@@ -447,9 +447,15 @@ def _build_scale(image: LoadedImage, *, method: str, fit: HomographyFit, points_
             kk[0, 0] = kk[1, 1] = f
             hk = thickness_mm + thickness_u_mm * rng.standard_normal() if thickness_u_mm > 0 else thickness_mm
             hooks.append(ElevationHook(h, kk, max(hk, 0.0), undistort))
+        # relative spread of the raised face's scale (focal length and height uncertain)
+        raised = np.array([local_scale(hk.hh, centre_px) for hk in hooks])
+        terms["thickness"] = float(np.std(raised, ddof=1) / np.mean(raised))
         shift = _parallax_mm(h0, k, thickness_mm, centre_px)
         extra["thickness_correction"] = {"height_mm": thickness_mm, "height_u_mm": thickness_u_mm,
                                          "parallax_at_centre_mm": shift}
+    if profile is not None:  # the calibration's residual, as a misfit over a typical part's size
+        clear_diag = math.hypot(clear_mm[2] - clear_mm[0], clear_mm[3] - clear_mm[1])
+        terms["lens"] = profile.rms_px * mm_per_px / (0.25 * clear_diag)
     rel_u = _combine(*terms.values())
     plane_map = PlaneMap(
         matrix=h0, method=method, rel_u=rel_u, terms=terms, note=extra.get("note", ""),

@@ -80,6 +80,7 @@ def test_measuring_with_and_without_the_profile(profile, tilt, tmp_path):
     assert math.dist(p.centroid_mm, t["centroid"]) < 0.05
     assert p.ixx_mm4 == pytest.approx(t["ixx"], rel=3e-3)
     assert abs(p.area_mm2 - t["area"]) <= 3 * p.area_u_mm2
+    assert m.scale.terms["lens"] > 0 and m.scale.extra["lens_profile"] is None  # given as an object, not a file
     # without the profile the corners bow: refused, with the way out in the message
     with pytest.raises(ScaleError, match="bow like a distorting lens.*scanmass lens"):
         measure(img, printed_x_mm=100.0, printed_y_mm=100.0)

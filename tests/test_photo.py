@@ -129,7 +129,7 @@ def test_thick_part_with_and_without_thickness():
     assert p.area_mm2 == pytest.approx(t["area"], rel=2e-3)  # the target for a 6 mm part
     assert math.dist(p.centroid_mm, t["centroid"]) < 0.05
     assert abs(p.area_mm2 - t["area"]) <= 3 * p.area_u_mm2
-    assert m.scale.extra["thickness_correction"]["height_mm"] == 6.0
+    assert m.scale.extra["thickness_correction"]["height_mm"] == 6.0 and m.scale.terms["thickness"] > 0
     assert "perspective" in m.scale.extra["focal_source"]
     assert m.scale.extra["focal_px"] == pytest.approx(1500.0, rel=0.05)
     assert not any(w.startswith("parallax") for w in m.warnings)
