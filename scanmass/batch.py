@@ -28,8 +28,8 @@ image's own folder. ``materials_file`` is read relative to the TOML file's folde
 
 The settings hash is the SHA-256 of the canonical JSON (sorted keys, no spaces) of the
 effective options with defaults filled in, the scanmass version, the result schema and
-the SHA-256 of the materials file when one is given: a new version of scanmass, or any
-changed option, re-measures the files.
+the SHA-256 of each file the options name (materials, mat layout, lens profile): a new
+version of scanmass, or any changed option or named file, re-measures the files.
 
 Files are identified by their absolute path. The content hash is the SHA-256 of the
 file's bytes, read in 1 MiB chunks; a file whose size and modification time (ns) match
@@ -137,7 +137,7 @@ CREATE TABLE IF NOT EXISTS files (
     status TEXT NOT NULL CHECK (status IN ('ok', 'failed', 'duplicate')),
     same_as TEXT,
     error TEXT,
-    started TEXT, finished TEXT, seconds REAL,
+    started TEXT, finished TEXT, seconds REAL, cpu_seconds REAL,
     worker TEXT,
     run_id INTEGER REFERENCES runs (id),
     result TEXT
@@ -197,9 +197,12 @@ def _option_defaults() -> dict[str, Any]:
 
 
 # Kinds of the options whose default (None) does not tell their type.
+# "path": a file, made absolute against the settings file's folder; "ref": a name or a file
+# (made absolute when such a file exists there).
 _KINDS: dict[str, str] = {
     "dpi": "dpi", "threshold": "float", "min_hole_area_mm2": "float", "material": "str",
-    "thickness_mm": "float", "materials_file": "path",
+    "thickness_mm": "float", "materials_file": "path", "sheet": "str", "printed_x_mm": "float",
+    "printed_y_mm": "float", "mat": "ref", "lens": "ref",
 }
 
 
@@ -254,6 +257,13 @@ def _coerce(name: str, value: Any, kind: str | None, *, where: str | None, base:
         if not p.is_absolute() and base is not None:
             p = base / p
         return os.path.normpath(os.path.abspath(p))
+    if kind == "ref":
+        if not isinstance(value, (str, os.PathLike)):
+            return value  # an object given by a library caller (e.g. a lens profile)
+        p = Path(value).expanduser()
+        if not p.is_absolute() and base is not None:
+            p = base / p
+        return os.path.normpath(os.path.abspath(p)) if p.is_file() else os.fspath(value)
     if kind == "dpi":
         if _is_number(value):
             return float(value)
@@ -359,14 +369,15 @@ def settings_hash(options: Mapping[str, Any]) -> str:
     """
     from . import __version__
 
-    effective = {**_normalise(_option_defaults(), where=None, base=None), **_normalise(options, where=None, base=None)}
-    doc: dict[str, Any] = {"scanmass": __version__, "schema": SCHEMA, "options": effective}
-    materials = effective.get("materials_file")
-    if materials is not None:
-        try:
-            doc["materials_file_sha256"] = content_hash(materials)
-        except OSError:
-            doc["materials_file_sha256"] = None
+    defaults = _option_defaults()
+    effective = {**_normalise(defaults, where=None, base=None), **_normalise(options, where=None, base=None)}
+    doc: dict[str, Any] = {"scanmass": __version__, "schema": SCHEMA, "options": effective, "files_sha256": {}}
+    for name, value in effective.items():  # a materials file, mat layout or lens profile: its content counts
+        if _kind(name, defaults.get(name)) in ("path", "ref") and isinstance(value, str) and os.path.isfile(value):
+            try:
+                doc["files_sha256"][name] = content_hash(value)
+            except OSError:
+                doc["files_sha256"][name] = None
     return hashlib.sha256(_canonical(doc).encode("utf-8")).hexdigest()
 
 
@@ -482,20 +493,22 @@ def measure_task(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
 
     This is what the worker processes (or Dask workers) run. The returned dict holds
     ``status`` (``ok``/``failed``), ``error`` (one line), ``result`` (the result
-    document), ``rows`` (the per-part CSV rows), ``started``/``finished`` (UTC ISO
-    times), ``seconds``, ``worker`` (host:pid) and ``max_rss_kb`` (the worker's peak
-    resident memory so far).
+    document as JSON text, serialised here rather than in the parent), ``sha256`` (of the
+    bytes measured), ``rows`` (the per-part CSV rows), ``started``/``finished`` (UTC ISO
+    times), ``seconds`` (wall) and ``cpu_seconds``, ``worker`` (host:pid) and
+    ``max_rss_kb`` (the worker's peak resident memory so far).
     """
     _one_cv_thread()
     from .pipeline import measure
 
     started = _now()
-    t0 = time.perf_counter()
-    result = rows = None
+    t0, c0 = time.perf_counter(), time.process_time()
+    result = rows = sha = None
     try:
         kwargs = {k: (tuple(v) if k == "dpi" and isinstance(v, list) else v) for k, v in options.items()}
         m = measure(path, **kwargs)
-        result, rows, status, error = m.to_dict(), m.csv_rows(), "ok", None
+        result, rows, sha = m.to_json(indent=None), m.csv_rows(), m.source.sha256
+        status, error = "ok", None
     except ScanmassError as exc:
         status, error = "failed", str(exc)
     except MemoryError:
@@ -504,9 +517,10 @@ def measure_task(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
         status = "failed"
         error = _one_line(f"{path}: internal error ({type(exc).__name__}: {exc}); please report it with this file")
     return {
-        "path": path, "status": status, "error": error, "result": result, "rows": rows,
+        "path": path, "status": status, "error": error, "result": result, "sha256": sha, "rows": rows,
         "started": started, "finished": _now(), "seconds": time.perf_counter() - t0,
-        "worker": f"{socket.gethostname()}:{os.getpid()}", "max_rss_kb": _max_rss_kb(),
+        "cpu_seconds": time.process_time() - c0, "worker": f"{socket.gethostname()}:{os.getpid()}",
+        "max_rss_kb": _max_rss_kb(),
     }
 
 
@@ -660,21 +674,24 @@ class _Store:
 
     def write_file(self, job: "_Job", *, run_id: int, status: str, error: str | None = None, same_as: str | None = None,
                    result: str | None = None, rows: Sequence[Mapping[str, Any]] = (), started: str | None = None,
-                   finished: str | None = None, seconds: float | None = None, worker: str | None = None) -> None:
+                   finished: str | None = None, seconds: float | None = None, cpu_seconds: float | None = None,
+                   worker: str | None = None) -> None:
         """Record one finished file (and its parts) in one transaction."""
         now = _now()
         with self.transaction():
             self.conn.execute(
                 "INSERT INTO files (path, size_bytes, mtime_ns, content_sha256, settings_sha256, settings, status, "
-                "same_as, error, started, finished, seconds, worker, run_id, result) "
-                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?) "
+                "same_as, error, started, finished, seconds, cpu_seconds, worker, run_id, result) "
+                "VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?) "
                 "ON CONFLICT (path) DO UPDATE SET size_bytes=excluded.size_bytes, mtime_ns=excluded.mtime_ns, "
                 "content_sha256=excluded.content_sha256, settings_sha256=excluded.settings_sha256, "
                 "settings=excluded.settings, status=excluded.status, same_as=excluded.same_as, error=excluded.error, "
                 "started=excluded.started, finished=excluded.finished, seconds=excluded.seconds, "
+                "cpu_seconds=excluded.cpu_seconds, "
                 "worker=excluded.worker, run_id=excluded.run_id, result=excluded.result",
                 (job.path, job.size_bytes, job.mtime_ns, job.content_sha256, job.settings_sha256,
-                 _canonical(job.options), status, same_as, error, started or now, finished or now, seconds, worker,
+                 _canonical(job.options), status, same_as, error, started or now, finished or now, seconds, cpu_seconds,
+                 worker,
                  run_id, result),
             )
             file_id = self.conn.execute("SELECT id FROM files WHERE path=?", (job.path,)).fetchone()[0]
@@ -806,6 +823,19 @@ class _PoolBackend(_Backend):
             pool.shutdown(wait=True)
 
 
+@contextlib.contextmanager
+def _sigint_ignored() -> Iterator[None]:
+    """Ignore SIGINT while child processes are started (main thread only; restored after)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+
+
 def _require_distributed() -> Any:
     """Import dask.distributed lazily; scanmass works without it."""
     try:
@@ -834,10 +864,11 @@ class _DaskBackend(_Backend):
                 raise OptionError(f"cluster {address!r}: the number of workers must be a whole number, e.g. local:4") from None
             if n < 1:
                 raise OptionError(f"cluster {address!r}: give at least one worker, e.g. local:2")
-            self._cluster = distributed.LocalCluster(
-                n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
-                dashboard_address=None, silence_logs=logging.ERROR,
-            )
+            with _sigint_ignored():  # the worker processes inherit it: Ctrl-C is the parent's business
+                self._cluster = distributed.LocalCluster(
+                    n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
+                    dashboard_address=None, silence_logs=logging.ERROR,
+                )
             self._client = distributed.Client(self._cluster)
             self.name = f"dask-local:{n}"
         else:
@@ -863,6 +894,11 @@ class _DaskBackend(_Backend):
             done, _ = self._distributed.wait(pending, timeout=timeout, return_when="FIRST_COMPLETED")
         except TimeoutError:
             return set()
+        except Exception:  # cancelled or lost tasks (a worker or the scheduler went away)
+            ended = {f for f in pending if f.status in ("finished", "error", "cancelled", "lost")}
+            if not ended:
+                raise
+            return ended  # their result() raises; the caller records or drops them
         return set(done)
 
     def close(self, *, abandon: bool = False) -> None:
@@ -921,7 +957,9 @@ class BatchSummary:
     ``unchanged`` the files skipped because they were done before with the same content
     and settings; ``failed_earlier`` those skipped because they failed before (pass
     ``retry_failed=True`` to try them again). ``failures`` lists every file found in
-    this run whose record is a failure, old or new.
+    this run whose record is a failure, old or new. ``worker_max_rss_kb`` holds the peak
+    resident memory of each worker (host:pid) and ``worker_cpu_seconds`` the CPU time the
+    workers spent measuring.
     """
 
     out_dir: Path
@@ -940,6 +978,7 @@ class BatchSummary:
     interrupted: bool
     failures: list[tuple[str, str]] = field(default_factory=list)
     worker_max_rss_kb: dict[str, int] = field(default_factory=dict)
+    worker_cpu_seconds: float = 0.0
 
     @property
     def ok(self) -> bool:
@@ -1005,6 +1044,7 @@ class _Runner:
         self.found: set[str] = set()
         self.in_flight: dict[Any, _Job] = {}
         self.rss: dict[str, int] = {}
+        self.cpu_seconds = 0.0
         self.changed = False
         self.backend_name: str | None = None
 
@@ -1185,24 +1225,10 @@ class _Runner:
             queue.extend(reversed(waiting.pop(key, [])))  # measure the copies themselves
             return
         originals.pop(key, None)
-        if res.get("max_rss_kb") is not None:
-            self.rss[res["worker"]] = max(self.rss.get(res["worker"], 0), int(res["max_rss_kb"]))
-        result_json = None
-        if res["status"] == "ok":
-            sha = (res["result"].get("source") or {}).get("sha256")
-            if sha and sha != job.content_sha256:
-                # changed while it was being measured: keep what was measured, re-read next time
-                job.content_sha256, job.size_bytes, job.mtime_ns = sha, None, None
-            result_json = json.dumps(res["result"], allow_nan=False)
-        self.store.write_file(
-            job, run_id=self.run_id, status=res["status"], error=res["error"], result=result_json,
-            rows=res["rows"] or (), started=res["started"], finished=res["finished"], seconds=res["seconds"],
-            worker=res["worker"],
-        )
-        self._count(job, res["status"], res["error"])
+        self._record(job, res)
         for dup in waiting.pop(key, []):
             if res["status"] == "ok":
-                self._write_duplicate(dup, job.path, result_json)
+                self._write_duplicate(dup, job.path, res["result"])
             else:
                 error = f"{dup.path}: same content as {job.path}, which failed: {res['error']}"
                 self.store.write_file(dup, run_id=self.run_id, status="failed", same_as=job.path, error=error)
@@ -1218,21 +1244,31 @@ class _Runner:
                 self.in_flight.pop(fut)
         self.emit("finishing")
         while self.in_flight:
-            done = self.backend.wait(self.in_flight, timeout=0.5)
+            try:
+                done = self.backend.wait(self.in_flight, timeout=0.5)
+            except Exception:  # the workers went away with the interrupt: measured next time
+                self.in_flight.clear()
+                break
             for fut in done:
                 job = self.in_flight.pop(fut)
                 try:
                     res = fut.result()
                 except BaseException:
                     continue  # lost with the interrupt; measured next time
-                self._finish_drained(job, res)
+                self._record(job, res)
 
-    def _finish_drained(self, job: _Job, res: Mapping[str, Any]) -> None:
-        result_json = json.dumps(res["result"], allow_nan=False) if res["status"] == "ok" else None
+    def _record(self, job: _Job, res: Mapping[str, Any]) -> None:
+        """Write one worker result (one transaction)."""
+        self.cpu_seconds += res.get("cpu_seconds") or 0.0
+        if res.get("max_rss_kb") is not None:
+            self.rss[res["worker"]] = max(self.rss.get(res["worker"], 0), int(res["max_rss_kb"]))
+        if res["status"] == "ok" and res.get("sha256") and res["sha256"] != job.content_sha256:
+            # changed while it was being measured: keep what was measured, re-read next time
+            job.content_sha256, job.size_bytes, job.mtime_ns = res["sha256"], None, None
         self.store.write_file(
-            job, run_id=self.run_id, status=res["status"], error=res["error"], result=result_json,
+            job, run_id=self.run_id, status=res["status"], error=res["error"], result=res["result"],
             rows=res["rows"] or (), started=res["started"], finished=res["finished"], seconds=res["seconds"],
-            worker=res["worker"],
+            cpu_seconds=res.get("cpu_seconds"), worker=res["worker"],
         )
         self._count(job, res["status"], res["error"])
 
@@ -1341,6 +1377,10 @@ def run_batch(
     file is committed in its own transaction (SQLite, write-ahead log, full sync), so a
     run killed at any moment loses at most the files in flight and leaves a
     consistent database.
+
+    The worker processes are started with the ``forkserver`` (or ``spawn``) method, so a
+    script that calls this function with ``workers >= 1`` must do so under
+    ``if __name__ == "__main__":``, as for any use of multiprocessing.
     """
     folder_list = [folders] if isinstance(folders, (str, os.PathLike)) else list(folders)
     if not folder_list:
@@ -1424,7 +1464,7 @@ def run_batch(
         found=len(runner.found), measured=runner.measured, failed=runner.failed, duplicates=runner.duplicates,
         unchanged=len(runner.unchanged), failed_earlier=len(runner.failed_earlier),
         cycles=runner.cycle, seconds=seconds, interrupted=interrupted, failures=failures,
-        worker_max_rss_kb=dict(runner.rss),
+        worker_max_rss_kb=dict(runner.rss), worker_cpu_seconds=runner.cpu_seconds,
     )
 
 
@@ -1453,7 +1493,7 @@ def iter_export(out_dir: str | os.PathLike, *, format: Literal["csv", "jsonl"] =
             return
         cur = conn.execute(
             "SELECT path, status, error, same_as, content_sha256, settings_sha256, started, finished, seconds, "
-            "worker, result FROM files ORDER BY path"
+            "cpu_seconds, worker, result FROM files ORDER BY path"
         )
         for r in cur:
             doc = {"file": r["path"], **{k: r[k] for k in r.keys() if k not in ("path", "result")}}
