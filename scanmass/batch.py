@@ -31,7 +31,8 @@ effective options with defaults filled in, the scanmass version, the result sche
 the SHA-256 of each file the options name (materials, mat layout, lens profile): a new
 version of scanmass, or any changed option or named file, re-measures the files.
 
-Files are identified by their absolute path. The content hash is the SHA-256 of the
+Files are identified by their absolute path; the records of files that have since been
+moved or deleted stay in the database and the CSVs. The content hash is the SHA-256 of the
 file's bytes, read in 1 MiB chunks; a file whose size and modification time (ns) match
 the database is not read again (``rehash=True`` forces it).
 """
@@ -120,7 +121,7 @@ CREATE TABLE IF NOT EXISTS runs (
     id INTEGER PRIMARY KEY,
     started TEXT NOT NULL,
     finished TEXT,
-    status TEXT NOT NULL CHECK (status IN ('running', 'done', 'interrupted', 'killed')),
+    status TEXT NOT NULL CHECK (status IN ('running', 'done', 'interrupted', 'killed', 'error')),
     scanmass_version TEXT NOT NULL,
     host TEXT, pid INTEGER,
     folders TEXT, options TEXT, backend TEXT,
@@ -473,10 +474,36 @@ def _one_cv_thread() -> None:
         pass
 
 
-def _worker_init() -> None:
-    """Process-pool initializer: one OpenCV thread, Ctrl-C left to the parent."""
+def _process_gone(pid: int) -> bool:
+    """True when process ``pid`` no longer runs (or is a zombie, or the pid is someone else's)."""
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return True
+    except PermissionError:
+        return True  # the pid now belongs to another user's process
+    try:
+        with open(f"/proc/{pid}/stat", "rb") as fh:
+            return fh.read().rsplit(b")", 1)[1].split()[0] == b"Z"
+    except (OSError, IndexError):
+        return False
+
+
+def _watch_parent(pid: int, interval_s: float = 1.0) -> None:
+    while not _process_gone(pid):
+        time.sleep(interval_s)
+    os._exit(1)  # the batch was killed (kill -9): nobody will collect our results
+
+
+def _worker_init(parent_pid: int) -> None:
+    """Process-pool initializer: one OpenCV thread, Ctrl-C left to the parent, exit with it.
+
+    A pool worker whose parent was killed would otherwise wait for work forever (it holds
+    both ends of its own task pipe), keeping the fork server alive with it.
+    """
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _one_cv_thread()
+    threading.Thread(target=_watch_parent, args=(parent_pid,), name="scanmass-parent-watch", daemon=True).start()
 
 
 def _max_rss_kb() -> int | None:
@@ -793,7 +820,8 @@ class _PoolBackend(_Backend):
         if self._pool is None:
             methods = multiprocessing.get_all_start_methods()
             ctx = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
-            self._pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=ctx, initializer=_worker_init)
+            self._pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=ctx, initializer=_worker_init,
+                                                initargs=(os.getpid(),))
         return self._pool
 
     def submit(self, path: str, options: Mapping[str, Any]) -> cf.Future:
@@ -1383,6 +1411,8 @@ def run_batch(
     ``if __name__ == "__main__":``, as for any use of multiprocessing.
     """
     folder_list = [folders] if isinstance(folders, (str, os.PathLike)) else list(folders)
+    include = [include] if isinstance(include, str) else list(include)
+    exclude = [exclude] if isinstance(exclude, str) else list(exclude)
     if not folder_list:
         raise OptionError("no folder given; pass at least one folder of scans")
     for name, value in (("poll_seconds", poll_seconds), ("settle_seconds", settle_seconds)):
@@ -1420,9 +1450,9 @@ def run_batch(
                      base_options=base_options, settings_name=settings_file, retry_failed=retry_failed, rehash=rehash,
                      watch=watch, settle_seconds=settle_seconds if watch else 0.0, stop_event=stop_event,
                      progress=progress, run_id=run_id)
-    interrupted = False
-    abandon = False
+    interrupted = completed = False
     reports: list[Path] = []
+    failures: list[tuple[str, str]] = []
     try:
         try:
             while True:
@@ -1442,20 +1472,23 @@ def run_batch(
             try:
                 runner.drain()
             except KeyboardInterrupt:  # the second Ctrl-C: give up the files in flight
-                abandon = True
+                pass
+        completed = True
     finally:
+        # after an interrupt nothing is in flight any more (or it is given up): no waiting
         try:
-            runner.close_backend(abandon=abandon or interrupted)
+            runner.close_backend(abandon=interrupted or not completed)
         finally:
             try:
                 reports = store.write_reports()
+                failures = store.failures(runner.found)
             finally:
                 seconds = time.perf_counter() - t0
                 counts = {"measured": runner.measured, "failed": runner.failed, "duplicates": runner.duplicates,
                           "unchanged": len(runner.unchanged), "seconds": seconds}
+                status = "error" if not completed else "interrupted" if interrupted else "done"
                 with contextlib.suppress(sqlite3.Error):
-                    store.end_run(run_id, "interrupted" if interrupted else "done", counts)
-                failures = store.failures(runner.found)
+                    store.end_run(run_id, status, counts)
                 store.close()
     backend_name = runner.backend_name or backend_label
     runner.emit("done")

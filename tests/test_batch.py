@@ -260,29 +260,37 @@ def _many(folder: Path, n: int) -> dict[str, list[dict]]:
     return truth
 
 
-def test_resume_after_kill_9(tmp_path):
-    folder, out = tmp_path / "scans", tmp_path / "out"
-    n = 16
-    truth = _many(folder, n)
+def _signal_mid_run(folder: Path, out: Path, sig: int, *, after: int = 3) -> tuple[int, subprocess.CompletedProcess]:
+    """Run the CLI batch in a subprocess; send ``sig`` once ``after`` files are recorded."""
     cmd = [sys.executable, "-c", "from scanmass.cli import app; app()", "batch", str(folder), "--out", str(out),
            "--workers", "1", "--quiet"]
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    done_at_kill = 0
+    # after kill -9 the orphaned workers take up to a second to notice: do not wait on their pipes
+    pipe = subprocess.PIPE if sig != signal.SIGKILL else subprocess.DEVNULL
+    proc = subprocess.Popen(cmd, stdout=pipe, stderr=pipe, text=True)
+    done = 0
     try:
         deadline = time.monotonic() + 60
         while time.monotonic() < deadline and proc.poll() is None:
             if (out / DB_NAME).exists():
                 try:
                     with contextlib.closing(sqlite3.connect(out / DB_NAME, timeout=1)) as conn:
-                        done_at_kill = conn.execute("SELECT count(*) FROM files").fetchone()[0]
+                        done = conn.execute("SELECT count(*) FROM files").fetchone()[0]
                 except sqlite3.Error:
-                    done_at_kill = 0
-                if done_at_kill >= 3:
+                    done = 0
+                if done >= after:
                     break
             time.sleep(0.01)
-        os.kill(proc.pid, signal.SIGKILL)
+        os.kill(proc.pid, sig)
     finally:
-        proc.wait(timeout=30)
+        stdout, stderr = proc.communicate(timeout=60)
+    return done, subprocess.CompletedProcess(cmd, proc.returncode, stdout, stderr)
+
+
+def test_resume_after_kill_9(tmp_path):
+    folder, out = tmp_path / "scans", tmp_path / "out"
+    n = 16
+    truth = _many(folder, n)
+    done_at_kill, proc = _signal_mid_run(folder, out, signal.SIGKILL)
     assert proc.returncode == -signal.SIGKILL
     assert 3 <= done_at_kill < n, "the kill came too late to test a resume"
 
@@ -323,6 +331,23 @@ def test_resume_after_kill_9(tmp_path):
     summary = run_batch(folder, out, workers=1)
     assert (summary.measured, summary.unchanged) == (0, n + 1)
     assert summary.worker_max_rss_kb == {}
+
+
+def test_ctrl_c_finishes_files_in_flight_and_writes_csvs(tmp_path):
+    folder, out = tmp_path / "scans", tmp_path / "out"
+    n = 12
+    _many(folder, n)
+    done_at_signal, proc = _signal_mid_run(folder, out, signal.SIGINT)
+    assert proc.returncode == 130, proc.stderr
+    assert "interrupted; run the same command again to resume" in proc.stderr
+    assert "Traceback" not in proc.stderr
+    with _db(out) as conn:
+        recorded = conn.execute("SELECT count(*) FROM files").fetchone()[0]
+        assert conn.execute("SELECT status FROM runs").fetchone()[0] == "interrupted"
+    assert done_at_signal <= recorded < n
+    # the CSVs were rewritten on the interrupt: every recorded part, nothing else
+    assert len(_read_csv(out / "parts.csv")) == 2 * recorded
+    assert run_batch(folder, out, workers=0).measured == n - recorded
 
 
 def test_failures_retried_only_when_asked(mixed, tmp_path):
