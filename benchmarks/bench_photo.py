@@ -38,7 +38,7 @@ MAT = make_mat("a4-portrait")
 
 def shapes(rng):
     kind = rng.integers(3)
-    cx, cy = rng.uniform(85, 135), rng.uniform(100, 190)
+    cx, cy = rng.uniform(92, 128), rng.uniform(105, 185)
     a = rng.uniform(0, 180)
     if kind == 0:
         outer, holes = rectangle(cx - 40, cy - 25, 80, 50), [circle(cx - 10, cy, 8, 256), circle(cx + 22, cy + 8, 5, 256)]
