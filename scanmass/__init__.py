@@ -50,6 +50,16 @@ _LAZY = {
     "render_summary": "report",
     "write_summary": "report",
     "run_batch": "batch",
+    "export_batch": "batch",
+    "measure_photo": "photo",
+    "detect_markers": "photo",
+    "make_mat": "mat",
+    "write_mat_pdf": "mat",
+    "write_mat_png": "mat",
+    "render_mat_png": "mat",
+    "calibrate_lens": "lens",
+    "load_lens_profile": "lens",
+    "LensProfile": "lens",
     "render_overlay": "overlay",
 }
 
