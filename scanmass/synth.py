@@ -26,7 +26,6 @@ from __future__ import annotations
 import io
 import math
 import os
-import tempfile
 import zlib
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -36,6 +35,7 @@ from typing import Any, Literal
 import numpy as np
 
 from .errors import OptionError, OutputError
+from .outputs import write_atomic
 
 __all__ = [
     "coverage",
@@ -739,30 +739,6 @@ def _png_with_phys(png: bytes, dpi_xy: tuple[float, float]) -> bytes:
     return png[:ihdr_end] + chunk + png[ihdr_end:]
 
 
-def _write_atomic(path: Path, data: bytes) -> None:
-    """Write bytes to a temporary file in the target folder, then rename it into place."""
-    folder = path.parent
-    if not folder.is_dir():
-        raise OutputError(
-            f"folder {folder} does not exist; create it or choose another output path", path=str(path)
-        )
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except OSError as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise OutputError(
-            f"cannot write the file ({exc.strerror}); check the folder's permissions", path=str(path)
-        ) from None
-
-
 def save_scan(
     scan: SynthScan,
     path: str | os.PathLike[str],
@@ -860,5 +836,5 @@ def save_scan(
         bio = io.BytesIO()
         pil.save(bio, format=kind, **options)
         data = bio.getvalue()
-    _write_atomic(target, data)
+    write_atomic(target, data)
     return target
