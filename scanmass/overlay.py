@@ -33,6 +33,7 @@ _AXIS_MAJOR = (115, 158, 0)  # bluish green #009E73
 _AXIS_MINOR = (167, 121, 204)  # reddish purple #CC79A7
 _TEXT = (0, 0, 0)
 _CUT = (0, 159, 230)  # orange #E69F00
+_MARKER_USED = (233, 180, 86)  # sky blue #56B4E9
 
 
 def _matrix(measurement: Measurement) -> np.ndarray:
@@ -88,6 +89,11 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
         return np.round((pts_px + 0.5) * zoom * k - 0.5 * k).astype(np.int32).reshape(-1, 1, 2)
 
     mm_per_px = measurement.scale.mm_per_px
+    for marker in (measurement.scale.extra or {}).get("markers_px", []) or []:
+        corners = np.asarray(marker.get("corners", []), float)
+        if corners.shape == (4, 2):
+            colour = _MARKER_USED if marker.get("used", True) else _HOLE
+            cv2.polylines(canvas, [pts_int(corners)], True, colour, lw + 1, cv2.LINE_AA, shift)
     for part in measurement.parts:
         if part.outline_mm is not None:
             cv2.polylines(canvas, [pts_int(_to_px(inv, part.outline_mm))], True, _CUT if part.cut else _OUTLINE, lw, cv2.LINE_AA, shift)
@@ -95,7 +101,10 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
             if hole.outline_mm is not None:
                 cv2.polylines(canvas, [pts_int(_to_px(inv, hole.outline_mm))], True, _HOLE, lw, cv2.LINE_AA, shift)
             c = _to_px(inv, [hole.circle_centre_mm])[0]
-            cv2.drawMarker(canvas, tuple(int(v) for v in np.round((c + 0.5) * zoom - 0.5)), _HOLE, cv2.MARKER_CROSS, 6 * lw + 4, lw)
+            cxy = tuple(int(v) for v in np.round((c + 0.5) * zoom - 0.5))
+            cv2.drawMarker(canvas, cxy, _HOLE, cv2.MARKER_CROSS, 6 * lw + 4, lw)
+            r_px = 0.5 * hole.diameter_mm / mm_per_px * zoom
+            _text(canvas, f"D{hole.diameter_mm:.2f}", (int(cxy[0] + 0.75 * r_px + 4), int(cxy[1] - 0.75 * r_px - 4)), font, font_scale * 0.7, lw)
         centre = _to_px(inv, [part.centroid_mm])[0]
         # principal axes through the centroid: the I2 axis (long direction) is drawn
         # +-2 radii of gyration about the I1 axis long, the I1 axis +-2 of the other
@@ -107,6 +116,14 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
         cpx = tuple(int(v) for v in np.round((centre + 0.5) * zoom - 0.5))
         cv2.drawMarker(canvas, cpx, (0, 0, 0), cv2.MARKER_TILTED_CROSS, 10 * lw + 8, lw + 2)
         cv2.drawMarker(canvas, cpx, _CENTROID, cv2.MARKER_TILTED_CROSS, 10 * lw + 8, lw)
+        # the centroid's 1-sigma ellipse, enlarged by a power of ten until it can be seen
+        ux, uy = (abs(v) / mm_per_px * zoom for v in part.centroid_u_mm)
+        if math.isfinite(ux) and math.isfinite(uy) and max(ux, uy) > 0:
+            enlarge = 10.0 ** max(0, math.ceil(math.log10(8.0 * lw / max(ux, uy))))
+            axes = (max(1, int(round(ux * enlarge))), max(1, int(round(uy * enlarge))))
+            cv2.ellipse(canvas, cpx, axes, 0, 0, 360, (0, 0, 0), lw, cv2.LINE_AA)
+            tag = "1σ" if enlarge == 1 else f"1σ x{enlarge:g}"
+            _text(canvas, tag.replace("σ", "s"), (cpx[0] + axes[0] + 4, cpx[1] + axes[1] + int(12 * font_scale)), font, font_scale * 0.6, lw)
         bbox = part.bbox_mm
         label_px = _to_px(inv, [[bbox[0], bbox[3]]])[0] * zoom
         text = f"{part.label}"
@@ -122,14 +139,57 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
     cv2.rectangle(canvas, (x0 - 4 * lw, y0 - int(30 * font_scale) - 6 * lw), (x0 + int(bar_px) + 4 * lw, y0 + 6 * lw), (255, 255, 255), -1)
     cv2.line(canvas, (x0, y0), (x0 + int(round(bar_px)), y0), (0, 0, 0), 3 * lw)
     cv2.putText(canvas, f"{bar_mm:g} mm", (x0, y0 - 8 * lw), font, font_scale, _TEXT, lw + 1, cv2.LINE_AA)
-    _legend(canvas, font, font_scale, lw)
+    markers = bool((measurement.scale.extra or {}).get("markers_px"))
+    _legend(canvas, font, font_scale, lw, markers)
+    if markers and (measurement.scale.extra or {}).get("clear_area_mm"):
+        canvas = np.hstack([canvas, _top_view(image, measurement, canvas.shape[0], lw)])
     return canvas
 
 
-def _legend(canvas: np.ndarray, font: int, font_scale: float, lw: int) -> None:
-    items = [("outline", _OUTLINE), ("hole", _HOLE), ("centroid", _CENTROID), ("I2 axis (long)", _AXIS_MAJOR), ("I1 axis", _AXIS_MINOR)]
+def _top_view(image: LoadedImage, measurement: Measurement, height_px: int, lw: int) -> np.ndarray:
+    """The mat's clear area seen from straight above (for looking only; nothing is measured
+    on it), with the outlines drawn in the mat frame."""
+    xmin, ymin, xmax, ymax = (float(v) for v in measurement.scale.extra["clear_area_mm"])
+    px_per_mm = height_px / (ymax - ymin)
+    width_px = max(1, int(round((xmax - xmin) * px_per_mm)))
+    # mm -> top-view pixel (y down), composed with pixel -> mm
+    to_view = np.array([[px_per_mm, 0, -xmin * px_per_mm - 0.5], [0, -px_per_mm, ymax * px_per_mm - 0.5], [0, 0, 1]])
+    grey = image.grey if image.grey.dtype == np.uint8 else (image.grey >> 8).astype(np.uint8)
+    view = cv2.warpPerspective(grey, to_view @ _matrix(measurement), (width_px, height_px), flags=cv2.INTER_AREA)
+    view = cv2.cvtColor((view.astype(np.float32) * 0.55 + 110).astype(np.uint8), cv2.COLOR_GRAY2BGR)
+    k = 16
+
+    def pts(ring_mm: np.ndarray) -> np.ndarray:
+        h = np.column_stack([np.asarray(ring_mm, float), np.ones(len(ring_mm))]) @ to_view.T
+        return np.round(h[:, :2] * k).astype(np.int32).reshape(-1, 1, 2)
+
+    for part in measurement.parts:
+        if part.outline_mm is not None:
+            cv2.polylines(view, [pts(part.outline_mm)], True, _OUTLINE, lw, cv2.LINE_AA, 4)
+        for hole in part.holes:
+            if hole.outline_mm is not None:
+                cv2.polylines(view, [pts(hole.outline_mm)], True, _HOLE, lw, cv2.LINE_AA, 4)
+        c = pts(np.array([part.centroid_mm]))[0, 0] // k
+        cv2.drawMarker(view, (int(c[0]), int(c[1])), _CENTROID, cv2.MARKER_TILTED_CROSS, 10 * lw + 8, lw)
+    cv2.line(view, (0, 0), (0, height_px - 1), (255, 255, 255), 3 * lw)
+    _text(view, "top view of the clear area", (10 + 3 * lw, int(30 * max(0.5, height_px / 1800))), cv2.FONT_HERSHEY_SIMPLEX,
+          max(0.5, height_px / 1800), lw)
+    return view
+
+
+def _text(canvas: np.ndarray, text: str, org: tuple[int, int], font: int, scale: float, lw: int) -> None:
+    """Dark text with a light halo, readable on any background."""
+    cv2.putText(canvas, text, org, font, scale, (255, 255, 255), 3 * lw + 1, cv2.LINE_AA)
+    cv2.putText(canvas, text, org, font, scale, _TEXT, max(1, lw), cv2.LINE_AA)
+
+
+def _legend(canvas: np.ndarray, font: int, font_scale: float, lw: int, markers: bool = False) -> None:
+    items = [("outline", _OUTLINE), ("hole (D = diameter)", _HOLE), ("centroid, 1s ellipse", _CENTROID),
+             ("I2 axis (long)", _AXIS_MAJOR), ("I1 axis", _AXIS_MINOR)]
+    if markers:
+        items.append(("mat marker used", _MARKER_USED))
     line_h = int(28 * font_scale) + 4
-    w = int(200 * font_scale) + 40
+    w = int(300 * font_scale) + 40
     x0 = canvas.shape[1] - w - 10
     y0 = 10
     cv2.rectangle(canvas, (x0, y0), (x0 + w, y0 + line_h * len(items) + 10), (255, 255, 255), -1)

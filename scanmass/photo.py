@@ -569,6 +569,10 @@ def mat_scale(
         "corner_noise_px": det.edge_noise_px,
         "printer_check": {"done": checked, "x_factor": float(printer[0, 0]), "y_factor": float(printer[1, 1])},
         "lens_profile": None if lens_tools[0] is None else lens_tools[0].source,
+        # for overlays and reports: where each marker was found, and whether the fit used it
+        "markers_px": [{"id": int(i), "corners": np.round(c, 2).tolist(), "used": bool(u)}
+                       for i, c, u in zip(ids, corners_px, inl_markers)],
+        "clear_area_mm": [float(v) for v in clear_phys],
         "note": f"marker mat {layout.name}: {int(inl_markers.sum())} of {len(layout.markers)} markers, "
                 f"reprojection RMS {fit.rms_px:.3f} px",
     }
