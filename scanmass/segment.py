@@ -112,8 +112,11 @@ def _fit_surface(values: np.ndarray, rows: np.ndarray, cols: np.ndarray, scale: 
     coef = np.zeros(a.shape[1])
     sigma = 0.0
     for _ in range(3):  # iteratively reweighted: drop > 3.5 sigma outliers (dust, print, shadows)
-        coef, *_ = np.linalg.lstsq(a[keep], values[keep], rcond=None)
-        res = values - a @ coef
+        # normal equations of at most 6 unknowns, summed with einsum: multithreaded BLAS on
+        # tall thin matrices costs more in idle threads than it saves (batch benchmark)
+        ak = a[keep]
+        coef = np.linalg.solve(np.einsum("ij,ik->jk", ak, ak) + 1e-12 * np.eye(a.shape[1]), np.einsum("ij,i->j", ak, values[keep]))
+        res = values - np.einsum("ij,j->i", a, coef)
         sigma = 1.4826 * float(np.median(np.abs(res[keep] - np.median(res[keep])))) + 1e-9
         new_keep = np.abs(res) < 3.5 * sigma + 1e-6
         if new_keep.sum() < max(8, a.shape[1] * 3) or np.array_equal(new_keep, keep):
@@ -447,7 +450,7 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
 
 
 def _eval_points(coef: np.ndarray, order: int, rows: np.ndarray, cols: np.ndarray, scale: float) -> np.ndarray:
-    return _poly_design(cols / scale, rows / scale, order) @ coef
+    return np.einsum("ij,j->i", _poly_design(cols / scale, rows / scale, order), coef)
 
 
 def _blur_from_gradient(g_peak: float) -> float:
