@@ -78,6 +78,7 @@ __all__ = [
     "run_batch",
     "export_batch",
     "iter_export",
+    "summary_rows",
     "find_images",
     "folder_settings",
     "measure_option_names",
@@ -1560,6 +1561,22 @@ def _open_existing(out_dir: str | os.PathLike) -> sqlite3.Connection:
     if not db.is_file():
         raise OptionError(f"no batch database ({DB_NAME}) here; run 'scanmass batch FOLDER --out DIR' first", path=str(out_dir))
     return _connect(db, readonly=True)
+
+
+def summary_rows(out_dir: str | os.PathLike) -> tuple[list[dict[str, Any]], list[dict[str, str]]]:
+    """The parts of every measured file and the failures, from a batch's database.
+
+    Returns ``(rows, failures)``: rows keyed like :data:`CSV_COLUMNS`, failures as
+    ``{"file", "reason"}``; ready for :func:`scanmass.report.render_summary`.
+    """
+    conn = _open_existing(out_dir)
+    try:
+        rows = [dict(zip(CSV_COLUMNS, row)) for row in _parts_rows(conn)]
+        failures = [{"file": path, "reason": error or ""} for path, error in
+                    conn.execute("SELECT path, error FROM files WHERE status='failed' ORDER BY path")]
+    finally:
+        conn.close()
+    return rows, failures
 
 
 def iter_export(out_dir: str | os.PathLike, *, format: Literal["csv", "jsonl"] = "csv") -> Iterator[str]:

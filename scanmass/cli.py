@@ -287,17 +287,30 @@ def export_outlines(
 
 @app.command()
 def report(
-    results: Annotated[list[Path], typer.Argument(help="Result JSON files from 'scanmass measure --json'.")],
+    results: Annotated[list[Path], typer.Argument(help="Result JSON files from 'scanmass measure --json', or one batch output folder.")],
     *,
     html: Annotated[Optional[Path], typer.Option("--html", help="The HTML report to write (one self-contained file).")] = None,
     overlay: Annotated[Optional[list[Path]], typer.Option("--overlay", help="Overlay PNG of the result in the same position (repeatable; default: outlines drawn from the result).")] = None,
     title: Annotated[str, typer.Option("--title", help="Heading of the report.")] = "scanmass measurement report",
 ) -> None:
-    """Write one self-contained HTML report of the RESULTS (prints on A4)."""
+    """Write one self-contained HTML report of the RESULTS (prints on A4).
+
+    Given a batch's output folder instead, write its summary page: counts, failures, a
+    sortable table of all parts and plots.
+    """
     from .report import write_report
 
     if html is None:
         fail("give the report file to write with --html OUT.html")
+    if len(results) == 1 and results[0].is_dir():
+        from .batch import summary_rows
+        from .report import write_summary
+
+        with user_errors():
+            rows, failures = summary_rows(results[0])
+            written = write_summary(rows, failures, html, title=title if title != "scanmass measurement report" else "scanmass batch summary")
+        _console().print(f"wrote {written}")
+        return
     if overlay and len(overlay) > len(results):
         fail(f"{len(overlay)} overlays for {len(results)} result(s); give at most one --overlay per result, in the same order")
     with user_errors():
