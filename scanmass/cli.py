@@ -380,6 +380,12 @@ def batch(
     thickness: ThicknessOpt = None,
     thickness_tol: ThicknessTolOpt = 0.0,
     materials: MaterialsFileOpt = None,
+    scale: ScaleOpt = "auto",
+    mat: MatOpt = None,
+    sheet: SheetOpt = None,
+    printed_x: PrintedXOpt = None,
+    printed_y: PrintedYOpt = None,
+    lens: LensOpt = None,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar; only the summary.")] = False,
 ) -> None:
     """Measure every image under FOLDERS into a resumable database in OUT.
@@ -408,6 +414,7 @@ def batch(
                     dpi=dpi, dpi_rel_u=dpi_rel_u, level=level, threshold=threshold, min_area_mm2=min_area,
                     min_hole_area_mm2=min_hole_area, keep_cut=keep_cut, max_pixels=max_pixels, material=material,
                     thickness_mm=thickness, thickness_u_mm=thickness_tol, materials_file=materials,
+                    scale=scale, mat=mat, sheet=sheet, printed_x_mm=printed_x, printed_y_mm=printed_y, lens=lens,
                 )
             finally:
                 if bar is not None:
