@@ -84,13 +84,45 @@ def _otsu(values: np.ndarray) -> float:
 
 
 def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: float) -> np.ndarray:
-    """Normalised convolution: a smooth surface through the masked samples."""
-    w = cv2.GaussianBlur(mask.astype(np.float32), (0, 0), sigma, borderType=cv2.BORDER_REFLECT)
-    v = cv2.GaussianBlur((values * mask).astype(np.float32), (0, 0), sigma, borderType=cv2.BORDER_REFLECT)
-    out = np.full(values.shape, fallback, dtype=np.float32)
+    """Normalised convolution: a smooth surface through the masked samples.
+
+    The surface is smooth on the scale of ``sigma``, so it is computed on a copy reduced
+    to about 8 px per sigma and interpolated back.
+    """
+    shrink = max(1, int(sigma // 8))
+    m = mask.astype(np.float32)
+    v = (values * mask).astype(np.float32)
+    if shrink > 1:
+        size = (max(1, values.shape[1] // shrink), max(1, values.shape[0] // shrink))
+        m = cv2.resize(m, size, interpolation=cv2.INTER_AREA)
+        v = cv2.resize(v, size, interpolation=cv2.INTER_AREA)
+    w = cv2.GaussianBlur(m, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
+    v = cv2.GaussianBlur(v, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
     ok = w > 1e-3
-    out[ok] = v[ok] / w[ok]
-    return out
+    ratio = np.full(w.shape, fallback, dtype=np.float32)
+    ratio[ok] = v[ok] / w[ok]
+    if shrink > 1:
+        ratio = cv2.resize(ratio, (values.shape[1], values.shape[0]), interpolation=cv2.INTER_LINEAR)
+    return ratio
+
+
+def _threshold_mask(grey: np.ndarray, t_small: np.ndarray, below: bool, strip_rows: int = 256) -> np.ndarray:
+    """Compare the image with a low-resolution threshold map, bilinearly enlarged, strip by
+    strip (the enlarged map never exists at full size). Returns a uint8 0/1 mask."""
+    height, width = grey.shape
+    t_cols = cv2.resize(t_small, (width, t_small.shape[0]), interpolation=cv2.INTER_LINEAR)
+    scale = t_small.shape[0] / height
+    mask = np.empty((height, width), np.uint8)
+    for r0 in range(0, height, strip_rows):
+        rows = np.arange(r0, min(height, r0 + strip_rows))
+        src = np.clip((rows + 0.5) * scale - 0.5, 0, t_small.shape[0] - 1)  # OpenCV's pixel-centre rule
+        lo = np.floor(src).astype(int)
+        hi = np.minimum(lo + 1, t_small.shape[0] - 1)
+        w = (src - lo).astype(np.float32)[:, None]
+        strip = t_cols[lo] * (1 - w) + t_cols[hi] * w
+        compare = np.less if below else np.greater
+        compare(grey[r0 : r0 + len(rows)], strip, out=mask[r0 : r0 + len(rows)].view(bool))
+    return mask
 
 
 def _poly_design(x: np.ndarray, y: np.ndarray, order: int) -> np.ndarray:
@@ -224,13 +256,12 @@ def segment(
     part_level = float(np.median(small[fg_core]))
     if threshold is None:
         t_map = background_map * (1.0 + ratio) / 2.0
-        # first encoded value >= the linear threshold, in the image's own dtype (no float copy at full size)
-        t_enc = np.searchsorted(lut, t_map).clip(0, len(lut) - 1).astype(grey.dtype)
-        t_full = cv2.resize(t_enc, (width, height), interpolation=cv2.INTER_LINEAR) if factor > 1 else t_enc
+        # first encoded value >= the linear threshold: compare encoded values, never a float copy of the image
+        t_enc = np.searchsorted(lut, t_map).clip(0, len(lut) - 1).astype(np.float32)
+        mask = _threshold_mask(grey, t_enc, bright_background)
     else:
-        t_full = np.full((1, 1), int(round(threshold * full_scale)), dtype=grey.dtype)
-    mask = (grey < t_full) if bright_background else (grey > t_full)
-    mask = mask.view(np.uint8) if mask.dtype == bool else mask.astype(np.uint8)
+        t_fixed = np.full((1, 1), int(round(threshold * full_scale)), dtype=grey.dtype)
+        mask = ((grey < t_fixed) if bright_background else (grey > t_fixed)).view(np.uint8)
     if roi_px is not None:
         roi_mask = np.zeros_like(mask)
         cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px)).astype(np.int32)], 1)
@@ -312,7 +343,12 @@ _MAX_FIT_SAMPLES = 8_000
 
 def _sample(mask: np.ndarray, limit: int = _MAX_FIT_SAMPLES) -> tuple[np.ndarray, np.ndarray]:
     """Row and column indices of the mask's pixels, thinned evenly to at most ``limit``."""
-    rows, cols = np.nonzero(mask)
+    count = int(np.count_nonzero(mask))
+    stride = max(1, int(math.sqrt(count / (4 * limit))))  # thin on a grid first: cheap on big masks
+    rows, cols = np.nonzero(mask[::stride, ::stride])
+    rows, cols = rows * stride, cols * stride
+    if rows.size < 3 and count >= 3:
+        rows, cols = np.nonzero(mask)
     step = max(1, int(math.ceil(rows.size / limit)))
     return rows[::step], cols[::step]
 
@@ -350,7 +386,7 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
     # the part's own level next to its edges: pixels 4 to ~18 px inside; for thin parts the
     # central ridge (at least 3/4 of the largest inside distance), so that the level keeps
     # following the illumination along a thin ring or strip
-    inside_px = cv2.distanceTransform(comp, cv2.DIST_L2, 5)
+    inside_px = cv2.distanceTransform(comp, cv2.DIST_L2, 3)  # approximate distances suffice here
     depth_px = min(4.0, 0.75 * float(inside_px.max()))
     interior = (inside_px >= depth_px) & (inside_px <= _PAD_PX + 12)
     band_rows, band_cols = np.nonzero(band)
@@ -405,13 +441,15 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
         noise = 1.4826 * float(np.median(np.abs(bg_lin - bg))) if bg_lin.size else 0.0
         noise_rel = noise / abs(contrast)
         level_rel_u = 0.0
-    norm = comp.astype(np.float32)
-    norm[band_rows, band_cols] = band_norm
+    del grown4, shrunk4, near, band_out, hole_space, interior, inside_px, filled, band
+    # normalised crop with a 1 px frame of background, which closes the rings of cut parts
+    norm = np.zeros((shape[0] + 2, shape[1] + 2), np.float32)
+    norm[1:-1, 1:-1] = comp
+    norm[band_rows + 1, band_cols + 1] = band_norm
     if roi_px is not None:
-        roi_mask = np.zeros(shape, np.uint8)
-        cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px) - [c0, r0]).astype(np.int32)], 1)
+        roi_mask = np.zeros(norm.shape, np.uint8)
+        cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px) - [c0 - 1, r0 - 1]).astype(np.int32)], 1)
         norm[~roi_mask.astype(bool)] = 0.0
-    norm = np.pad(norm, 1, mode="constant", constant_values=0.0)  # closes rings of cut parts
     rings = find_contours(norm, contour_level, fully_connected="high")
     closed = []
     for ring in rings:
