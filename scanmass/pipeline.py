@@ -164,7 +164,7 @@ def measure_loaded(
     path = None if isinstance(source, np.ndarray) else os.fspath(source)
     options.check(path)
     if material is not None and thickness_mm is None:  # a thickness alone lifts a photo's face (parallax)
-        raise OptionError("mass needs both a material and a thickness, e.g. --material steel-s235 --thickness 3", path=path)
+        raise OptionError("mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=path)
     image = load_image(source, dpi=options.dpi, max_pixels=int(options.max_pixels))
     from .photo import measure_photo, scale_method
 
