@@ -298,7 +298,7 @@ def _validate(options: Mapping[str, Any], where: str | None) -> None:
             raise OptionError(f"dpi {dpi!r} must be a positive number of dots per inch, e.g. dpi = 600", path=where)
     material, thickness = options.get("material"), options.get("thickness_mm")
     if (material is None) != (thickness is None):
-        raise OptionError("mass needs both a material and a thickness, e.g. --material steel-s235 --thickness 3", path=where)
+        raise OptionError("mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=where)
     if material is not None:
         from .mass import check_positive
         from .materials import find_material, load_materials
