@@ -106,25 +106,6 @@ def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: f
     return ratio
 
 
-def _threshold_mask(grey: np.ndarray, t_small: np.ndarray, below: bool, strip_rows: int = 256) -> np.ndarray:
-    """Compare the image with a low-resolution threshold map, bilinearly enlarged, strip by
-    strip (the enlarged map never exists at full size). Returns a uint8 0/1 mask."""
-    height, width = grey.shape
-    t_cols = cv2.resize(t_small, (width, t_small.shape[0]), interpolation=cv2.INTER_LINEAR)
-    scale = t_small.shape[0] / height
-    mask = np.empty((height, width), np.uint8)
-    for r0 in range(0, height, strip_rows):
-        rows = np.arange(r0, min(height, r0 + strip_rows))
-        src = np.clip((rows + 0.5) * scale - 0.5, 0, t_small.shape[0] - 1)  # OpenCV's pixel-centre rule
-        lo = np.floor(src).astype(int)
-        hi = np.minimum(lo + 1, t_small.shape[0] - 1)
-        w = (src - lo).astype(np.float32)[:, None]
-        strip = t_cols[lo] * (1 - w) + t_cols[hi] * w
-        compare = np.less if below else np.greater
-        compare(grey[r0 : r0 + len(rows)], strip, out=mask[r0 : r0 + len(rows)].view(bool))
-    return mask
-
-
 def _poly_design(x: np.ndarray, y: np.ndarray, order: int) -> np.ndarray:
     cols = [np.ones_like(x)]
     if order >= 1:
@@ -257,8 +238,11 @@ def segment(
     if threshold is None:
         t_map = background_map * (1.0 + ratio) / 2.0
         # first encoded value >= the linear threshold: compare encoded values, never a float copy of the image
-        t_enc = np.searchsorted(lut, t_map).clip(0, len(lut) - 1).astype(np.float32)
-        mask = _threshold_mask(grey, t_enc, bright_background)
+        t_enc = np.searchsorted(lut, t_map).clip(0, len(lut) - 1).astype(grey.dtype)
+        t_full = cv2.resize(t_enc, (width, height), interpolation=cv2.INTER_LINEAR) if factor > 1 else t_enc
+        mask = cv2.compare(grey, t_full, cv2.CMP_LT if bright_background else cv2.CMP_GT)
+        del t_full
+        np.minimum(mask, 1, out=mask)
     else:
         t_fixed = np.full((1, 1), int(round(threshold * full_scale)), dtype=grey.dtype)
         mask = ((grey < t_fixed) if bright_background else (grey > t_fixed)).view(np.uint8)
@@ -386,9 +370,13 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
     # the part's own level next to its edges: pixels 4 to ~18 px inside; for thin parts the
     # central ridge (at least 3/4 of the largest inside distance), so that the level keeps
     # following the illumination along a thin ring or strip
-    inside_px = cv2.distanceTransform(comp, cv2.DIST_L2, 3)  # approximate distances suffice here
-    depth_px = min(4.0, 0.75 * float(inside_px.max()))
-    interior = (inside_px >= depth_px) & (inside_px <= _PAD_PX + 12)
+    interior = shrunk4.astype(bool) & ~cv2.erode(shrunk4, kernel, iterations=_PAD_PX + 8).astype(bool)
+    depth_px = 4.0
+    if np.count_nonzero(interior) < 300:  # a thin part: take its central ridge instead
+        inside_px = cv2.distanceTransform(comp, cv2.DIST_L2, 3)  # approximate distances suffice here
+        depth_px = min(4.0, 0.75 * float(inside_px.max()))
+        interior = (inside_px >= depth_px) & (inside_px <= _PAD_PX + 12)
+        del inside_px
     band_rows, band_cols = np.nonzero(band)
     band_lin = lut[grey_crop[band_rows, band_cols]].astype(np.float64)
     scale = float(max(shape))
@@ -441,7 +429,7 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
         noise = 1.4826 * float(np.median(np.abs(bg_lin - bg))) if bg_lin.size else 0.0
         noise_rel = noise / abs(contrast)
         level_rel_u = 0.0
-    del grown4, shrunk4, near, band_out, hole_space, interior, inside_px, filled, band
+    del grown4, shrunk4, near, band_out, hole_space, interior, filled, band
     # normalised crop with a 1 px frame of background, which closes the rings of cut parts
     norm = np.zeros((shape[0] + 2, shape[1] + 2), np.float32)
     norm[1:-1, 1:-1] = comp
