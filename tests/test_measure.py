@@ -76,10 +76,18 @@ def test_synthetic_scan_matches_truth(dpi, polarity):
         assert p.ixx_mm4 == pytest.approx(t["ixx"], rel=MOMENT_RTOL)
         assert p.iyy_mm4 == pytest.approx(t["iyy"], rel=MOMENT_RTOL)
         assert p.ixy_mm4 == pytest.approx(t["ixy"], rel=MOMENT_RTOL, abs=MOMENT_RTOL * t["ixx"])
-        # the stated (image-only) uncertainty covers the error: 3 sigma of edge + threshold terms
+        # the stated (image-only) uncertainty covers the error: 3 sigma of edge + threshold
+        # terms (the synthetic scale is exact, so the DPI term is left out here)
         terms = p.uncertainty_terms
-        u_area = math.hypot(terms["edge"]["area_mm2"], terms["threshold"]["area_mm2"])
+
+        def u_image(name: str) -> float:
+            return math.hypot(terms["edge"][name], terms["threshold"][name])
+
+        u_area = u_image("area_mm2")
         assert abs(p.area_mm2 - t["area"]) < 3 * u_area + 1e-9
+        assert abs(p.centroid_mm[0] - t["centroid"][0]) < 3 * u_image("centroid_x_mm") + 1e-9
+        assert abs(p.centroid_mm[1] - t["centroid"][1]) < 3 * u_image("centroid_y_mm") + 1e-9
+        assert abs(p.ixx_mm4 - t["ixx"]) < 3 * u_image("ixx_mm4") + 1e-9
         # the total includes the DPI term and is therefore larger
         assert p.area_u_mm2 >= u_area
 
