@@ -23,6 +23,7 @@ import shapely
 
 from scanmass.mat import MatLayout, mat_dark_rectangles
 from scanmass.synth import coverage, srgb_encode
+from scanmass.synth_photo import look_at
 
 
 @dataclass
@@ -54,19 +55,9 @@ def make_camera(*, size=(1600, 1200), f_px=1500.0, target_mm=(105.0, 148.5), dis
                 tilt_dir_deg=0.0, roll_deg=0.0, k1=0.0, k2=0.0) -> Camera:
     """A camera looking at ``target_mm`` on the mat from ``distance_mm`` away, its axis tilted
     ``tilt_deg`` from the mat's normal towards azimuth ``tilt_dir_deg``, rolled by ``roll_deg``."""
-    w, h = size
-    k = np.array([[f_px, 0, (w - 1) / 2], [0, f_px, (h - 1) / 2], [0, 0, 1.0]])
-    a, b = math.radians(tilt_deg), math.radians(tilt_dir_deg)
-    target = np.array([target_mm[0], target_mm[1], 0.0])
-    centre = target + distance_mm * np.array([math.sin(a) * math.cos(b), math.sin(a) * math.sin(b), math.cos(a)])
-    z_c = (target - centre) / distance_mm
-    x_c = np.cross(z_c, [0.0, 1.0, 0.0])
-    x_c /= np.linalg.norm(x_c)
-    y_c = np.cross(z_c, x_c)
-    c, s = math.cos(math.radians(roll_deg)), math.sin(math.radians(roll_deg))
-    x_r, y_r = c * x_c + s * y_c, -s * x_c + c * y_c
-    r = np.vstack([x_r, y_r, z_c])
-    return Camera(k=k, r=r, t=-r @ centre, size=size, dist=np.array([k1, k2, 0, 0, 0], float))
+    cam = look_at(target_mm, distance_mm=distance_mm, tilt_deg=tilt_deg, tilt_dir_deg=tilt_dir_deg,
+                  roll_deg=roll_deg, f_px=f_px, size_px=size)
+    return Camera(k=cam.k, r=cam.r, t=cam.t, size=size, dist=np.array([k1, k2, 0, 0, 0], float))
 
 
 def _to_scan_frame(ring_px: np.ndarray, height_px: int) -> np.ndarray:
