@@ -15,6 +15,7 @@ from typing import Any
 
 __version__ = "0.1.0"
 
+from . import errors
 from .errors import (
     ImageError,
     MaterialError,
@@ -96,12 +97,5 @@ __all__ = [
     "load_materials",
     "write_atomic",
     *_LAZY,
-    "ScanmassError",
-    "ImageError",
-    "ScaleError",
-    "SegmentationError",
-    "OptionError",
-    "OutputError",
-    "ResultFormatError",
-    "MaterialError",
+    *errors.__all__,
 ]

@@ -1,4 +1,4 @@
-"""Read result documents from disk and write text outputs for export and report.
+"""Read result documents from disk for export, report and the command line.
 
 Private helpers shared by :mod:`scanmass.export` and :mod:`scanmass.report`.
 """
@@ -6,14 +6,13 @@ Private helpers shared by :mod:`scanmass.export` and :mod:`scanmass.report`.
 from __future__ import annotations
 
 import os
-from collections.abc import Iterable
 from pathlib import Path
 from typing import Union
 
 from .errors import ResultFormatError
 from .measurement import Measurement
 
-__all__ = ["PathLike", "read_result", "as_measurement", "write_output"]
+__all__ = ["PathLike", "read_result", "as_measurement"]
 
 PathLike = Union[str, "os.PathLike[str]"]
 
@@ -49,15 +48,3 @@ def as_measurement(obj: Measurement | PathLike) -> tuple[Measurement, str | None
     if isinstance(obj, (str, os.PathLike)):
         return read_result(obj), os.fspath(obj)
     raise ResultFormatError(f"expected a Measurement or the path of a result JSON, got {type(obj).__name__}; pass a file written by 'scanmass measure --json'")
-
-
-def write_output(path: PathLike, data: str | bytes, *, inputs: Iterable[PathLike | None] = ()) -> Path:
-    """Write ``data`` atomically to ``path`` through :func:`scanmass.outputs.write_atomic`.
-
-    ``inputs`` are files that must never be overwritten (``None`` entries are ignored).
-    """
-    from .outputs import write_atomic  # imported late: outputs is a sibling module
-
-    guarded = tuple(os.fspath(p) for p in inputs if p)
-    write_atomic(path, data, inputs=guarded)
-    return Path(os.fspath(path))

@@ -25,6 +25,7 @@ from .errors import OptionError
 from .mass import check_positive, plate_mass
 from .materials import Material, resolve_material
 from .measurement import Hole, Measurement, Part, _clean
+from .section import point_in_ring
 
 __all__ = [
     "CAUTIONS",
@@ -154,16 +155,6 @@ def _ray_exit_mm(ring: np.ndarray, origin: np.ndarray, direction: np.ndarray) ->
     return float(s[hit].min()) if hit.any() else None
 
 
-def _inside(ring: np.ndarray, point: np.ndarray) -> bool:
-    """Even-odd rule point-in-polygon test."""
-    p = np.asarray(ring, float)
-    q = np.roll(p, -1, axis=0)
-    crosses = (p[:, 1] > point[1]) != (q[:, 1] > point[1])
-    with np.errstate(divide="ignore", invalid="ignore"):
-        x_at = p[:, 0] + (point[1] - p[:, 1]) * (q[:, 0] - p[:, 0]) / (q[:, 1] - p[:, 1])
-    return bool(np.count_nonzero(crosses & (point[0] < x_at)) % 2)
-
-
 def _distance_to_ring(ring: np.ndarray, point: np.ndarray) -> float:
     """Shortest distance from ``point`` to the ring's edges."""
     p = np.asarray(ring, float)
@@ -179,11 +170,11 @@ def _hole_fits(part: Part, centre: np.ndarray, diameter: float) -> bool | None:
     if part.outline_mm is None:
         return None
     radius = diameter / 2.0
-    if not _inside(part.outline_mm, centre) or _distance_to_ring(part.outline_mm, centre) < radius:
+    if not point_in_ring(centre, part.outline_mm) or _distance_to_ring(part.outline_mm, centre) < radius:
         return False
     for hole in part.holes:
         if hole.outline_mm is not None:
-            if _inside(hole.outline_mm, centre) or _distance_to_ring(hole.outline_mm, centre) < radius:
+            if point_in_ring(centre, hole.outline_mm) or _distance_to_ring(hole.outline_mm, centre) < radius:
                 return False
         elif math.dist(centre, hole.circle_centre_mm) < radius + hole.diameter_mm / 2.0:
             return False

@@ -168,13 +168,13 @@ JsonOutOpt = Annotated[Optional[str], typer.Option("--json", help="Write the res
 
 def _emit_json(json_out: str | None, text: str, inputs: list[Path]) -> None:
     """Write a JSON document to a file (atomically, never over an input) or to stdout for '-'."""
-    from ._resultio import write_output
+    from .outputs import write_atomic
 
     if json_out == "-":
         sys.stdout.write(text + "\n")
     elif json_out is not None:
         with user_errors():
-            written = write_output(json_out, text + "\n", inputs=inputs)
+            written = write_atomic(json_out, text + "\n", inputs=inputs)
         _console().print(f"wrote {written}")
 
 
@@ -198,7 +198,7 @@ def assemble(
     materials: MaterialsFileOpt = None,
 ) -> None:
     """Combine the plates listed in FILE: total mass, 3D centre of mass, inertia tensor."""
-    from ._resultio import write_output
+    from .outputs import write_atomic
     from .assembly import assemble as assemble_file
     from .mass_tables import assembly_summary_table, assembly_table
 
@@ -206,7 +206,7 @@ def assemble(
         result = assemble_file(file, materials=materials)
         inputs = [file, *(file.parent / m.source for m in result.members)]
         if csv_out is not None:
-            written = write_output(csv_out, result.to_csv(), inputs=inputs)
+            written = write_atomic(csv_out, result.to_csv(), inputs=inputs)
     if json_out != "-":
         console = _console()
         console.print(assembly_table(result))

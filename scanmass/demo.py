@@ -22,6 +22,7 @@ import numpy as np
 
 from .errors import ScanmassError
 from .measurement import Measurement
+from .synth import SynthPart, regular_polygon, render_scan, rotate, save_scan
 
 __all__ = ["DemoSummary", "demo_scans", "demo_photos", "make_samples", "run_demo", "samples_dir"]
 
@@ -36,14 +37,11 @@ def _rounded_rect(x0: float, y0: float, w: float, h: float, r: float, n_arc: int
 
 
 def _circle(cx: float, cy: float, r: float, n: int = 720) -> np.ndarray:
-    t = np.linspace(0, 2 * math.pi, n, endpoint=False)
-    return np.column_stack([cx + r * np.cos(t), cy + r * np.sin(t)])
+    return regular_polygon(cx, cy, r, n)
 
 
 def _moved(ring: np.ndarray, dx: float, dy: float, angle_deg: float = 0.0, about=(0.0, 0.0)) -> np.ndarray:
-    a = math.radians(angle_deg)
-    rot = np.array([[math.cos(a), -math.sin(a)], [math.sin(a), math.cos(a)]])
-    return (ring - about) @ rot.T + np.asarray(about) + [dx, dy]
+    return rotate(ring, angle_deg, about_mm=about) + [dx, dy]
 
 
 def carrier_bracket() -> tuple[np.ndarray, list[np.ndarray]]:
@@ -97,9 +95,8 @@ def demo_scans() -> list[DemoScan]:
     c_out, c_holes = stay_clip()
     g_out, g_holes = hub_gasket()
     f_out, f_holes = fan_plate()
-    place = lambda ring, dx, dy, ang, about: _moved(ring, dx, dy, ang, about)  # noqa: E731
-    bracket = (place(b_out, 14, 22, 8, (35, 22)), [place(h, 14, 22, 8, (35, 22)) for h in b_holes])
-    clip = (place(c_out, 96, 48, -21, (19, 8)), [place(h, 96, 48, -21, (19, 8)) for h in c_holes])
+    bracket = (_moved(b_out, 14, 22, 8, (35, 22)), [_moved(h, 14, 22, 8, (35, 22)) for h in b_holes])
+    clip = (_moved(c_out, 96, 48, -21, (19, 8)), [_moved(h, 96, 48, -21, (19, 8)) for h in c_holes])
     gasket = (g_out + [46, 44], [h + [46, 44] for h in g_holes])
     fan = (_moved(f_out, 40, 38, 33.0), [_moved(h, 40, 38, 33.0) for h in f_holes])
     return [
@@ -162,8 +159,6 @@ def samples_dir() -> Path | None:
 
 def make_samples(folder: str | os.PathLike) -> list[Path]:
     """Render the scenario's sample scans into ``folder`` (deterministic)."""
-    from .synth import SynthPart, render_scan, save_scan
-
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     written = []

@@ -32,7 +32,8 @@ from __future__ import annotations
 
 import math
 import os
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Literal
@@ -40,9 +41,11 @@ from xml.sax.saxutils import escape, quoteattr
 
 import numpy as np
 
-from ._resultio import PathLike, as_measurement, write_output
+from ._resultio import PathLike, as_measurement
+from .outputs import write_atomic
 from .errors import OptionError, ResultFormatError
 from .measurement import Hole, Measurement, Part
+from .section import orient_ring
 
 if TYPE_CHECKING:  # pragma: no cover
     from ezdxf.document import Drawing
@@ -172,15 +175,6 @@ def _open_ring(ring: object, *, what: str) -> np.ndarray:
     if len(arr) < 3:
         raise ResultFormatError(f"{what} has fewer than 3 distinct vertices; re-create the result with 'scanmass measure'")
     return arr
-
-
-def _signed_area_mm2(ring: np.ndarray) -> float:
-    x, y = ring[:, 0], ring[:, 1]
-    return 0.5 * float(np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y))
-
-
-def _oriented(ring: np.ndarray, *, ccw: bool) -> np.ndarray:
-    return ring if (_signed_area_mm2(ring) > 0) == ccw else ring[::-1].copy()
 
 
 # ---------------------------------------------------------------------------
@@ -409,13 +403,13 @@ def _select_parts(measurement: Measurement, parts: Iterable[int] | None) -> list
 def _outer(part: Part) -> np.ndarray:
     if part.outline_mm is None:
         raise ResultFormatError(f"part {part.label} has no outline in the result; re-run 'scanmass measure' keeping outlines")
-    return _oriented(_open_ring(part.outline_mm, what=f"the outline of part {part.label}"), ccw=True)
+    return orient_ring(_open_ring(part.outline_mm, what=f"the outline of part {part.label}"), ccw=True)
 
 
 def _hole_ring(part: Part, hole: Hole) -> np.ndarray:
     if hole.outline_mm is None:
         raise ResultFormatError(f"hole {hole.label} of part {part.label} has no outline in the result; re-run 'scanmass measure' keeping outlines")
-    return _oriented(_open_ring(hole.outline_mm, what=f"the outline of hole {hole.label} of part {part.label}"), ccw=False)
+    return orient_ring(_open_ring(hole.outline_mm, what=f"the outline of hole {hole.label} of part {part.label}"), ccw=False)
 
 
 def _is_round(hole: Hole, tol_mm: float | None) -> bool:
@@ -629,6 +623,17 @@ def svg_text(measurement: Measurement, *, parts: Iterable[int] | None = None, ma
 # ---------------------------------------------------------------------------
 # Writers
 # ---------------------------------------------------------------------------
+@contextmanager
+def _naming(json_path: str | None) -> Iterator[None]:
+    """Let a malformed-result error name the result file it came from."""
+    try:
+        yield
+    except ResultFormatError as exc:
+        if json_path and not exc.path:
+            raise ResultFormatError(str(exc), path=json_path) from None
+        raise
+
+
 def export_dxf(
     measurement: Measurement | PathLike,
     path: PathLike,
@@ -658,17 +663,13 @@ def export_dxf(
         Counts of parts, vertices before and after fitting, arcs and circles.
     """
     m, json_path = as_measurement(measurement)
-    try:
+    with _naming(json_path):
         doc, summary = _build_dxf(m, fit_tolerance_mm=fit_tolerance_mm, round_tolerance_mm=round_tolerance_mm, parts=parts)
-    except ResultFormatError as exc:
-        if json_path and not exc.path:
-            raise ResultFormatError(str(exc), path=json_path) from None
-        raise
     import io
 
     buf = io.StringIO()
     doc.write(buf)
-    summary.path = write_output(path, buf.getvalue(), inputs=[json_path, m.source.path, *inputs])
+    summary.path = write_atomic(path, buf.getvalue(), inputs=[json_path, m.source.path, *inputs])
     return summary
 
 
@@ -698,13 +699,9 @@ def export_svg(
         Counts of parts and vertices (no fitting or circles in SVG).
     """
     m, json_path = as_measurement(measurement)
-    try:
+    with _naming(json_path):
         text = svg_text(m, parts=parts)
-    except ResultFormatError as exc:
-        if json_path and not exc.path:
-            raise ResultFormatError(str(exc), path=json_path) from None
-        raise
     chosen = _select_parts(m, parts)
     n = sum(len(_outer(p)) + sum(len(_hole_ring(p, h)) for h in p.holes) for p in chosen)
-    written = write_output(path, text, inputs=[json_path, m.source.path, *inputs])
+    written = write_atomic(path, text, inputs=[json_path, m.source.path, *inputs])
     return ExportSummary(written, len(chosen), n, n, 0, 0)

@@ -19,6 +19,7 @@ import numpy as np
 
 from .load import LoadedImage
 from .measurement import Measurement
+from .scale import PlaneMap
 
 __all__ = ["render_overlay", "encode_png", "OVERLAY_MAX_SIDE_PX"]
 
@@ -38,10 +39,8 @@ _MARKER_USED = (233, 180, 86)  # sky blue #56B4E9
 
 def _matrix(measurement: Measurement) -> np.ndarray:
     matrix = measurement.scale.extra.get("px_to_mm") if measurement.scale.extra else None
-    if matrix is None:
-        s = measurement.scale.mm_per_px
-        h = measurement.source.height_px
-        matrix = [[s, 0, 0.5 * s], [0, -s, (h - 0.5) * s], [0, 0, 1]]
+    if matrix is None:  # an older document: the scan frame of its resolution
+        return PlaneMap.from_dpi(25.4 / measurement.scale.mm_per_px, height_px=measurement.source.height_px).matrix
     return np.asarray(matrix, dtype=float)
 
 

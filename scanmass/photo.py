@@ -201,12 +201,7 @@ def _refine_corners(image: LoadedImage, coarse: np.ndarray, undistort):
         lines = []
         for k in range(4):
             a, b = quad[k], quad[(k + 1) % 4]
-            d = b - a
-            length = float(np.hypot(*d))
-            u = d / length
-            n = np.array([u[1], -u[0]])
-            if np.dot(n, 0.5 * (a + b) - centre) < 0:
-                n = -n
+            d, length, n = _side(a, b, centre)
             normals[i, k] = n
             margin = min(0.3, max(0.12, (reach + 1.5) / length))
             count = int(np.clip(length / 2.5, 8, 60))
@@ -352,6 +347,17 @@ def _printer(layout: MatLayout, printed_x_mm: float | None, printed_y_mm: float 
 
 def _combine(*values: float) -> float:
     return float(math.sqrt(sum(v * v for v in values)))
+
+
+def _side(a: np.ndarray, b: np.ndarray, centre: np.ndarray) -> tuple[np.ndarray, float, np.ndarray]:
+    """A quadrilateral's side from ``a`` to ``b``: its vector, length and unit normal
+    pointing away from the quadrilateral's ``centre``."""
+    d = b - a
+    length = float(np.hypot(*d))
+    n = np.array([d[1], -d[0]]) / length
+    if np.dot(n, 0.5 * (a + b) - centre) < 0:
+        n = -n
+    return d, length, n
 
 
 def _principal(image: LoadedImage) -> tuple[float, float]:
@@ -766,12 +772,7 @@ def _find_sheet(image: LoadedImage, undistort) -> tuple[np.ndarray, float]:
     centre = quad.mean(axis=0)
     for k in range(4):
         a, b = quad[k], quad[(k + 1) % 4]
-        d = b - a
-        length = float(np.hypot(*d))
-        u = d / length
-        n = np.array([u[1], -u[0]])
-        if np.dot(n, 0.5 * (a + b) - centre) < 0:
-            n = -n
+        d, length, n = _side(a, b, centre)
         reach = max(4.0, 2.0 * factor + 3.0)
         t_s = np.linspace(0.1, 0.9, int(np.clip(length / 4, 16, 200)))
         offs = np.arange(-reach, reach + 0.125, 0.25)

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 from typing import Any
 import numpy as np
 
@@ -16,7 +16,7 @@ from .errors import OptionError, ScaleError
 from .load import DEFAULT_MAX_PIXELS, LoadedImage, load_image
 from .measurement import Hole, Measurement, Part, ScaleInfo, SourceInfo
 from .scale import DEFAULT_DPI_REL_U, PlaneMap
-from .section import fit_circle, section_properties
+from .section import fit_circle, ring_moments, ring_perimeter, section_properties
 from .segment import PartRings, segment
 from .uncertainty import (
     THRESHOLD_FLOOR_PX,
@@ -304,37 +304,27 @@ def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
 
     holes = []
     for k, ring_mm in enumerate(holes_mm, start=1):
-        hp = section_properties(ring_mm)
+        a, qx, qy = ring_moments(ring_mm)[:3]  # a hole's own area and centroid, whatever its orientation
+        area_mm2, centroid_mm = abs(float(a)), (float(qx / a), float(qy / a))
         fit = fit_circle(ring_mm)
         r_edge, r_off, perim, c_edge = ring_mean_offset_u(model, k)
         d_u = combine(2 * r_edge, 2 * r_off, plane_map.rel_u * fit.diameter_mm)
-        sel = model.ring == k
-        area_w = np.ones(sel.sum())
-        area_edge = math.sqrt(float(np.sum(area_w * (model.sigma_n_mm[sel] ** 2) * model.corr_mm[sel] * model.lengths_mm[sel])))
-        area_u = combine(area_edge, perim * r_off, 2 * plane_map.rel_u * hp.area_mm2)
-        cen_u = tuple(combine(c_edge, plane_map.rel_u * abs(c)) for c in hp.centroid_mm)
+        # the area moves by the perimeter times the mean normal displacement
+        area_u = combine(perim * r_edge, perim * r_off, 2 * plane_map.rel_u * area_mm2)
+        cen_u = tuple(combine(c_edge, plane_map.rel_u * abs(c)) for c in centroid_mm)
         circ_u = tuple(combine(c_edge, plane_map.rel_u * abs(c)) for c in fit.centre_mm)
         holes.append(Hole(
-            label=k, area_mm2=hp.area_mm2, area_u_mm2=area_u, centroid_mm=hp.centroid_mm, centroid_u_mm=cen_u,
-            perimeter_mm=hp.perimeter_mm, circle_centre_mm=fit.centre_mm, circle_centre_u_mm=circ_u,
+            label=k, area_mm2=area_mm2, area_u_mm2=area_u, centroid_mm=centroid_mm, centroid_u_mm=cen_u,
+            perimeter_mm=ring_perimeter(ring_mm), circle_centre_mm=fit.centre_mm, circle_centre_u_mm=circ_u,
             diameter_mm=fit.diameter_mm, diameter_u_mm=d_u, roundness_mm=fit.roundness_mm, outline_mm=ring_mm,
         ))
 
     return Part(
         label=rings.label,
-        area_mm2=props.area_mm2, area_u_mm2=total["area_mm2"],
-        perimeter_mm=props.perimeter_mm, perimeter_u_mm=total["perimeter_mm"],
-        centroid_mm=props.centroid_mm, centroid_u_mm=(total["centroid_x_mm"], total["centroid_y_mm"]),
-        ixx_mm4=props.ixx_mm4, iyy_mm4=props.iyy_mm4, ixy_mm4=props.ixy_mm4,
+        **{f.name: getattr(props, f.name) for f in fields(props)},  # the section properties, same names
+        area_u_mm2=total["area_mm2"], perimeter_u_mm=total["perimeter_mm"],
+        centroid_u_mm=(total["centroid_x_mm"], total["centroid_y_mm"]),
         ixx_u_mm4=total["ixx_mm4"], iyy_u_mm4=total["iyy_mm4"], ixy_u_mm4=total["ixy_mm4"],
-        i1_mm4=props.i1_mm4, i2_mm4=props.i2_mm4, i1_u_mm4=total["i1_mm4"], i2_u_mm4=total["i2_mm4"],
-        principal_angle_deg=props.principal_angle_deg, principal_angle_u_deg=total["principal_angle_deg"],
-        polar_mm4=props.polar_mm4, polar_u_mm4=total["polar_mm4"],
-        gyration_x_mm=props.gyration_x_mm, gyration_y_mm=props.gyration_y_mm,
-        gyration_1_mm=props.gyration_1_mm, gyration_2_mm=props.gyration_2_mm,
-        modulus_top_mm3=props.modulus_top_mm3, modulus_bottom_mm3=props.modulus_bottom_mm3,
-        modulus_right_mm3=props.modulus_right_mm3, modulus_left_mm3=props.modulus_left_mm3,
-        bbox_mm=props.bbox_mm, caliper_max_mm=props.caliper_max_mm, caliper_min_mm=props.caliper_min_mm,
-        convex_area_mm2=props.convex_area_mm2, holes=holes, cut=rings.cut, uncertainty_terms=terms,
-        outline_mm=outer_mm,
+        i1_u_mm4=total["i1_mm4"], i2_u_mm4=total["i2_mm4"], principal_angle_u_deg=total["principal_angle_deg"],
+        polar_u_mm4=total["polar_mm4"], holes=holes, cut=rings.cut, uncertainty_terms=terms, outline_mm=outer_mm,
     )

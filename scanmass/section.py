@@ -149,6 +149,28 @@ def signed_area(ring: np.ndarray) -> float:
     return float((d[:, 0] * np.roll(d[:, 1], -1) - np.roll(d[:, 0], -1) * d[:, 1]).sum() / 2.0)
 
 
+def point_in_ring(point: np.ndarray, ring: np.ndarray) -> bool:
+    """Whether ``point`` lies inside ``ring`` (even-odd rule, ring implicitly closed).
+
+    References
+    ----------
+    .. [1] J. O'Rourke, "Computational Geometry in C", 2nd ed., Cambridge University
+       Press, 1998 (the crossing-number test for a point in a polygon).
+
+    Examples
+    --------
+    >>> point_in_ring([1, 1], [[0, 0], [2, 0], [2, 2], [0, 2]]), point_in_ring([3, 1], [[0, 0], [2, 0], [2, 2], [0, 2]])
+    (True, False)
+    """
+    p = np.asarray(ring, dtype=np.float64)
+    x, y = float(point[0]), float(point[1])
+    q = np.roll(p, -1, axis=0)
+    crosses = (p[:, 1] > y) != (q[:, 1] > y)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        x_at = p[:, 0] + (y - p[:, 1]) * (q[:, 0] - p[:, 0]) / (q[:, 1] - p[:, 1])
+    return bool(np.count_nonzero(crosses & (x < x_at)) % 2)
+
+
 def orient_ring(ring: np.ndarray, *, ccw: bool = True) -> np.ndarray:
     """Return a copy of ``ring`` ordered counter-clockwise (``ccw=True``) or clockwise.
 

@@ -36,6 +36,7 @@ import numpy as np
 
 from .errors import OptionError, OutputError
 from .outputs import write_atomic
+from .section import signed_area
 
 __all__ = [
     "coverage",
@@ -61,17 +62,17 @@ MM_PER_INCH = 25.4
 # --------------------------------------------------------------------------------------
 
 
-def _scale_pair(mm_per_px: float | tuple[float, float]) -> tuple[float, float]:
-    """Return (s_x, s_y) in mm per pixel from a scalar or a pair."""
-    if np.ndim(mm_per_px) == 0:
-        pair = (float(mm_per_px), float(mm_per_px))  # type: ignore[arg-type]
+def _positive_pair(value: float | tuple[float, float], name: str) -> tuple[float, float]:
+    """Return (x, y) from a positive finite scalar or pair (``name`` for the error message)."""
+    if np.ndim(value) == 0:
+        pair = (float(value), float(value))  # type: ignore[arg-type]
     else:
-        vals = np.asarray(mm_per_px, dtype=float).ravel()
+        vals = np.asarray(value, dtype=float).ravel()
         if vals.size != 2:
-            raise OptionError(f"mm_per_px must be a number or a pair (x, y), got {mm_per_px!r}")
+            raise OptionError(f"{name} must be a number or a pair (x, y), got {value!r}")
         pair = (float(vals[0]), float(vals[1]))
     if not all(math.isfinite(v) and v > 0 for v in pair):
-        raise OptionError(f"mm_per_px must be positive and finite, got {mm_per_px!r}")
+        raise OptionError(f"{name} must be positive and finite, got {value!r}")
     return pair
 
 
@@ -96,13 +97,6 @@ def _ring_array(ring: Any, what: str = "ring") -> np.ndarray:
     if not np.all(np.isfinite(arr)):
         raise OptionError(f"{what} has NaN or infinite coordinates; give finite mm values")
     return arr
-
-
-def _signed_area(ring: np.ndarray) -> float:
-    """Shoelace signed area of a ring (positive when counter-clockwise, y up)."""
-    x = ring[:, 0] - ring[:, 0].mean()  # centring keeps the sum well conditioned
-    y = ring[:, 1] - ring[:, 1].mean()
-    return 0.5 * float(np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y))
 
 
 def _level(value: Any, name: str) -> float:
@@ -265,7 +259,7 @@ def coverage(
            [0.25, 0.25, 0.  ]])
     """
     h_px, w_px = _shape_pair(shape)
-    sx_mm, sy_mm = _scale_pair(mm_per_px)
+    sx_mm, sy_mm = _positive_pair(mm_per_px, "mm_per_px")
     rings_px = []
     for ring in rings_mm:
         arr = _ring_array(ring)
@@ -310,10 +304,10 @@ class SynthPart:
     def rings(self) -> list[np.ndarray]:
         """Rings oriented for :func:`coverage`: outer counter-clockwise, holes clockwise."""
         outer = _ring_array(self.outer_mm, "outer ring")
-        rings = [outer if _signed_area(outer) >= 0 else outer[::-1]]
+        rings = [outer if signed_area(outer) >= 0 else outer[::-1]]
         for hole in self.holes_mm:
             h = _ring_array(hole, "hole ring")
-            rings.append(h if _signed_area(h) <= 0 else h[::-1])
+            rings.append(h if signed_area(h) <= 0 else h[::-1])
         return rings
 
     def transformed(
@@ -530,21 +524,8 @@ class SynthScan:
     @property
     def mm_per_px(self) -> tuple[float, float]:
         """Pixel size (x, y) in mm."""
-        dx, dy = _dpi_pair(self.dpi)
+        dx, dy = _positive_pair(self.dpi, "dpi")
         return MM_PER_INCH / dx, MM_PER_INCH / dy
-
-
-def _dpi_pair(dpi: float | tuple[float, float]) -> tuple[float, float]:
-    if np.ndim(dpi) == 0:
-        pair = (float(dpi), float(dpi))  # type: ignore[arg-type]
-    else:
-        vals = np.asarray(dpi, dtype=float).ravel()
-        if vals.size != 2:
-            raise OptionError(f"dpi must be a number or a pair (x, y), got {dpi!r}")
-        pair = (float(vals[0]), float(vals[1]))
-    if not all(math.isfinite(v) and v > 0 for v in pair):
-        raise OptionError(f"dpi must be positive and finite, got {dpi!r}")
-    return pair
 
 
 def _gaussian_kernel(sigma_px: float) -> np.ndarray:
@@ -632,7 +613,7 @@ def render_scan(
     >>> scan.image.shape, scan.image.dtype.name
     ((79, 79), 'uint8')
     """
-    dpi_x, dpi_y = _dpi_pair(dpi)
+    dpi_x, dpi_y = _positive_pair(dpi, "dpi")
     sx_mm, sy_mm = MM_PER_INCH / dpi_x, MM_PER_INCH / dpi_y
     background = _level(background, "background")
     foreground = _level(foreground, "foreground")
@@ -786,7 +767,7 @@ def save_scan(
             raise OptionError(f"dpi must be a number, a pair, None or 'omit', got {dpi!r}")
         dpi_xy = None
     else:
-        dpi_xy = _dpi_pair(scan.dpi if dpi is None else dpi)
+        dpi_xy = _positive_pair(scan.dpi if dpi is None else dpi, "dpi")
     image = np.ascontiguousarray(scan.image)
     wide = image.dtype == np.uint16
     is_colour = image.ndim == 3

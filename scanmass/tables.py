@@ -2,17 +2,17 @@
 
 from __future__ import annotations
 
-import math
-
 from rich.table import Table
 
+from .formatting import _finite, format_value
 from .measurement import Measurement
 
 __all__ = ["fmt_u", "measurement_table", "holes_table"]
 
 
 def fmt_u(value: float | None, u: float | None = None, *, unit: str = "") -> str:
-    """Format ``value ± u`` with the uncertainty to two significant digits.
+    """Format ``value ± u`` with the uncertainty to two significant digits
+    (:func:`scanmass.formatting.format_value`).
 
     Examples
     --------
@@ -21,15 +21,11 @@ def fmt_u(value: float | None, u: float | None = None, *, unit: str = "") -> str
     >>> fmt_u(12.0, None, unit="mm")
     '12 mm'
     """
-    if value is None or not math.isfinite(value):
+    if _finite(value) is None:
         return "-"
+    text, u_text = format_value(value, u)
     suffix = f" {unit}" if unit else ""
-    if u is None or not math.isfinite(u) or u <= 0:
-        return f"{value:.6g}{suffix}"
-    decimals = max(0, 1 - int(math.floor(math.log10(u))))
-    if abs(value) >= 1e7 or decimals > 8:
-        return f"{value:.4e} ± {u:.2g}{suffix}"
-    return f"{value:.{decimals}f} ± {u:.{decimals}f}{suffix}"
+    return f"{text} ± {u_text}{suffix}" if u_text else f"{text}{suffix}"
 
 
 def measurement_table(m: Measurement) -> Table:

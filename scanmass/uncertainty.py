@@ -35,6 +35,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .section import boundary_influence, signed_area
+
 __all__ = ["EdgeModel", "THRESHOLD_FLOOR_PX", "figure_weights", "part_uncertainty"]
 
 #: Residual systematic offset of a marching-squares boundary on a sampled blurred edge
@@ -58,29 +60,6 @@ class EdgeModel:
     offset_mm: float  # 1-sigma shared offset of the whole boundary
 
 
-def _ring_normals(ring: np.ndarray, material_left: bool) -> tuple[np.ndarray, np.ndarray]:
-    """Unit normals away from the material and attributed lengths for a closed ring."""
-    nxt = np.roll(ring, -1, axis=0)
-    prv = np.roll(ring, 1, axis=0)
-    edge = nxt - ring
-    length = np.hypot(edge[:, 0], edge[:, 1])
-    tangent = nxt - prv
-    tnorm = np.hypot(tangent[:, 0], tangent[:, 1])
-    tnorm[tnorm == 0] = 1.0
-    tangent = tangent / tnorm[:, None]
-    # material on the left of the direction of travel -> outward normal is on the right
-    normal = np.column_stack([tangent[:, 1], -tangent[:, 0]])
-    if not material_left:
-        normal = -normal
-    attributed = 0.5 * (length + np.roll(length, 1))
-    return normal, attributed
-
-
-def _signed_area(ring: np.ndarray) -> float:
-    x, y = ring[:, 0], ring[:, 1]
-    return 0.5 * float(np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y))
-
-
 def build_edge_model(
     outer_mm: np.ndarray,
     holes_mm: list[np.ndarray],
@@ -91,21 +70,23 @@ def build_edge_model(
     """Assemble the per-vertex description of all rings of one part.
 
     ``sigma_n_px[i]`` and ``mm_per_px[i]`` give, per vertex of ring i (0 = outer), the
-    noise displacement in pixels and the local pixel size in mm.
+    noise displacement in pixels and the local pixel size in mm. Normals and attributed
+    lengths come from :func:`scanmass.section.boundary_influence`; each ring is first put
+    in its orientation (outer counter-clockwise, holes clockwise), its per-vertex values
+    with it, so that the vertices keep their order there.
     """
-    pts, nrm, lens, ring_idx, sig, corr = [], [], [], [], [], []
+    rings, sig, corr = [], [], []
     for i, ring in enumerate([outer_mm] + list(holes_mm)):
-        ccw = _signed_area(ring) > 0
-        # outer ring: material inside (left of a CCW ring); hole: material outside
-        material_left = ccw if i == 0 else not ccw
-        normal, attributed = _ring_normals(ring, material_left)
-        pts.append(ring)
-        nrm.append(normal)
-        lens.append(attributed)
-        ring_idx.append(np.full(len(ring), i))
-        sig.append(np.asarray(sigma_n_px[i], float) * np.asarray(mm_per_px[i], float))
-        corr.append(CORRELATION_PX * np.asarray(mm_per_px[i], float) * np.ones(len(ring)))
-    return EdgeModel(np.concatenate(pts), np.concatenate(nrm), np.concatenate(lens), np.concatenate(ring_idx),
+        ring = np.asarray(ring, float)
+        s_px = np.broadcast_to(np.asarray(sigma_n_px[i], float), len(ring))
+        scale = np.broadcast_to(np.asarray(mm_per_px[i], float), len(ring))
+        if (signed_area(ring) > 0) != (i == 0):
+            ring, s_px, scale = ring[::-1], s_px[::-1], scale[::-1]
+        rings.append(ring)
+        sig.append(s_px * scale)
+        corr.append(CORRELATION_PX * scale)
+    bi = boundary_influence(rings[0], rings[1:])
+    return EdgeModel(bi["points"], bi["normals"], bi["lengths"], bi["ring"],
                      np.concatenate(sig), np.concatenate(corr), float(offset_mm))
 
 

@@ -21,6 +21,7 @@ import cv2
 import numpy as np
 import shapely
 
+from polygon_truth import truth  # noqa: F401 - re-exported for the photo tests
 from scanmass.mat import MatLayout, mat_dark_rectangles
 from scanmass.synth import coverage, srgb_encode
 from scanmass.synth_photo import look_at
@@ -176,17 +177,3 @@ def render_photo(layout: MatLayout | None, parts: list[PhotoParts], cam: Camera,
     return img
 
 
-def truth(outer_mm: np.ndarray, holes_mm: list[np.ndarray]) -> dict:
-    """Area and centroid from shapely; centroidal second moments from the polygon vertex sums
-    (Green's theorem; common practice, as in tests/test_measure.py)."""
-    poly = shapely.geometry.polygon.orient(shapely.Polygon(outer_mm, holes_mm), 1.0)
-    xc, yc = poly.centroid.x, poly.centroid.y
-    ixx = iyy = ixy = 0.0
-    for ring in [np.asarray(poly.exterior.coords)[:-1]] + [np.asarray(r.coords)[:-1] for r in poly.interiors]:
-        x, y = ring[:, 0] - xc, ring[:, 1] - yc
-        xn, yn = np.roll(x, -1), np.roll(y, -1)
-        c = x * yn - xn * y
-        ixx += np.sum(c * (y * y + y * yn + yn * yn)) / 12
-        iyy += np.sum(c * (x * x + x * xn + xn * xn)) / 12
-        ixy += np.sum(c * (x * yn + 2 * x * y + 2 * xn * yn + xn * y)) / 24
-    return {"area": poly.area, "centroid": (xc, yc), "ixx": ixx, "iyy": iyy, "ixy": ixy}

@@ -26,9 +26,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-import shapely
 from typer.testing import CliRunner
 
+from polygon_truth import truth
 from scanmass import measure
 from scanmass.batch import (
     DB_NAME,
@@ -73,18 +73,9 @@ def _l_scene() -> list[SynthPart]:
 
 def _truth(part: SynthPart) -> dict:
     """Area and centroid from shapely; centroidal moments by Green's vertex sums (common practice)."""
-    poly = shapely.geometry.polygon.orient(shapely.Polygon(part.outer_mm, list(part.holes_mm)), 1.0)
-    xc, yc = poly.centroid.x, poly.centroid.y
-    ixx = iyy = ixy = 0.0
-    for ring in [poly.exterior, *poly.interiors]:  # shapely orients holes clockwise: signs come out right
-        pts = np.asarray(ring.coords)[:-1]
-        x, y = pts[:, 0] - xc, pts[:, 1] - yc
-        xn, yn = np.roll(x, -1), np.roll(y, -1)
-        c = x * yn - xn * y
-        ixx += np.sum(c * (y * y + y * yn + yn * yn)) / 12
-        iyy += np.sum(c * (x * x + x * xn + xn * xn)) / 12
-        ixy += np.sum(c * (x * yn + 2 * x * y + 2 * xn * yn + xn * y)) / 24
-    return {"area": poly.area, "cx": xc, "cy": yc, "ixx": ixx, "iyy": iyy, "ixy": ixy, "holes": len(part.holes_mm)}
+    t = truth(part.outer_mm, list(part.holes_mm))
+    return {"area": t["area"], "cx": t["centroid"][0], "cy": t["centroid"][1], "ixx": t["ixx"], "iyy": t["iyy"],
+            "ixy": t["ixy"], "holes": len(part.holes_mm)}
 
 
 def _render(parts: list[SynthPart], seed: int):

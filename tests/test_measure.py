@@ -13,8 +13,8 @@ import math
 
 import numpy as np
 import pytest
-import shapely
 
+from polygon_truth import truth
 from scanmass import measure
 from scanmass.errors import ScaleError, SegmentationError
 from scanmass.synth import SynthPart, circle, l_section, rectangle, render_scan, save_scan
@@ -26,20 +26,8 @@ CENTROID_TOL_PX = 0.05
 
 
 def _truth(part: SynthPart) -> dict:
-    """Area and centroid from shapely; centroidal second moments by closed-form polygon sums."""
-    poly = shapely.Polygon(part.outer_mm, [h for h in part.holes_mm])
-    poly = shapely.geometry.polygon.orient(poly, 1.0)
-    xc, yc = poly.centroid.x, poly.centroid.y
-    ixx = iyy = ixy = 0.0
-    for ring, sign in [(np.asarray(poly.exterior.coords)[:-1], 1.0)] + [(np.asarray(r.coords)[:-1], 1.0) for r in poly.interiors]:
-        x, y = ring[:, 0] - xc, ring[:, 1] - yc
-        xn, yn = np.roll(x, -1), np.roll(y, -1)
-        c = x * yn - xn * y
-        # Green's theorem vertex formulas (common practice; shapely orients holes CW)
-        ixx += sign * np.sum(c * (y * y + y * yn + yn * yn)) / 12
-        iyy += sign * np.sum(c * (x * x + x * xn + xn * xn)) / 12
-        ixy += sign * np.sum(c * (x * yn + 2 * x * y + 2 * xn * yn + xn * y)) / 24
-    return {"area": poly.area, "centroid": (xc, yc), "ixx": ixx, "iyy": iyy, "ixy": ixy}
+    """Area and centroid from shapely; centroidal second moments by Green's vertex sums."""
+    return truth(part.outer_mm, part.holes_mm)
 
 
 def _match(parts, truths):
