@@ -4,7 +4,7 @@ Run by hand from the repository root:
 
     python benchmarks/bench_accuracy.py [--cases 60] [--seed 1]
 
-Each case renders a synthetic scan (scanmass.synth: exact per-pixel coverage of the part
+Each case renders a synthetic scan (scanmass.testing.scans: exact per-pixel coverage of the part
 polygons, Gaussian blur, noise, slow illumination gradient, sRGB encoding, optional JPEG)
 of one part with known exact properties (the polygon itself is the truth; its moments come
 from scanmass.section, which tests/test_section.py checks against shapely, sympy and
@@ -39,7 +39,7 @@ from skimage import filters, measure as skmeasure
 from scanmass import measure
 from scanmass.errors import ScanmassError
 from scanmass.section import section_properties
-from scanmass.synth import SynthPart, circle, l_section, rectangle, render_scan, rotate
+from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, rotate
 
 
 @dataclass

@@ -4,7 +4,7 @@ Run by hand from the repository root:
 
     python benchmarks/bench_batch.py [--files 200] [--format png] [--cache DIR]
 
-The scans are rendered once by scanmass.synth into a cache folder (default
+The scans are rendered once by scanmass.testing.scans into a cache folder (default
 ``benchmarks/.cache/batch-a4-300dpi-<format>``) and reused: A4 portrait (210 x 297 mm) at
 300 dpi (2480 x 3508 px), sRGB, with blur, noise and a slow light gradient, each with three
 to five parts of an invented scenario (plates with holes, discs, angles) at positions
@@ -40,8 +40,8 @@ from pathlib import Path
 
 import numpy as np
 
-from scanmass.batch import run_batch
-from scanmass.synth import SynthPart, circle, l_section, rectangle, render_scan, save_scan
+from scanmass.batch.runner import run_batch
+from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
 A4_MM = (210.0, 297.0)
 DPI = 300
@@ -162,7 +162,7 @@ def main() -> None:
         print(f"resume a done folder (library): {t_resume:.2f} s, measured {again.measured}, "
               f"unchanged {again.unchanged} (target < 2 s, nothing re-measured)", flush=True)
         t0 = time.perf_counter()
-        cmd = [sys.executable, "-c", "from scanmass.cli import app; app()", "batch", str(folder),
+        cmd = [sys.executable, "-c", "from scanmass.cli.app import app; app()", "batch", str(folder),
                "--out", str(work / "out2"), "--workers", "2", "--quiet"]
         done = subprocess.run(cmd, capture_output=True, text=True)
         t_cli = time.perf_counter() - t0

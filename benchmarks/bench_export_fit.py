@@ -4,7 +4,7 @@ Run by hand from the repository root:
 
     python benchmarks/bench_export_fit.py [--dpi 600]
 
-Renders a synthetic scan (scanmass.synth) of a slotted plate with round holes and an
+Renders a synthetic scan (scanmass.testing.scans) of a slotted plate with round holes and an
 L bracket, measures it with scanmass.measure, and writes DXF files with no fitting, with
 the automatic tolerance and with a few fixed tolerances. For each it prints the vertex
 count before and after (compression), the arcs and circles written, the time taken, and
@@ -26,8 +26,8 @@ import numpy as np
 from shapely.geometry import Polygon
 
 from scanmass import measure
-from scanmass.export import export_dxf, fit_tolerance_default_mm
-from scanmass.synth import SynthPart, circle, l_section, rectangle, save_scan, render_scan
+from scanmass.outputs.export import export_dxf, fit_tolerance_default_mm
+from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, save_scan, render_scan
 
 
 def _slot(cx: float, cy: float, length: float, r: float) -> np.ndarray:

@@ -29,9 +29,9 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
 from _mat_photos import PhotoParts, make_camera, render_photo, truth  # noqa: E402
 
 from scanmass import measure  # noqa: E402
-from scanmass.lens import calibrate_lens  # noqa: E402
-from scanmass.mat import make_mat  # noqa: E402
-from scanmass.synth import circle, l_section, rectangle, rotate  # noqa: E402
+from scanmass.scale.lens import calibrate_lens  # noqa: E402
+from scanmass.scale.mat import make_mat  # noqa: E402
+from scanmass.testing.scans import circle, l_section, rectangle, rotate  # noqa: E402
 
 MAT = make_mat("a4-portrait")
 

@@ -60,7 +60,7 @@ print(len(out))
 
 def make_scan(path: Path) -> None:
     """A 6000 x 4000 px, 300 dpi JPEG with six parts (rendered with exact coverage)."""
-    from scanmass.synth import SynthPart, circle, l_section, rectangle, render_scan, save_scan
+    from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
     parts = [
         SynthPart(rectangle(40, 60, 180, 120, angle_deg=7), [circle(90, 120, 12), circle(170, 130, 20)]),

@@ -2,12 +2,12 @@
 
 Run from the repository root:  python samples/make_samples.py
 The scenario (Wrenfield Cycle Restorations, invented) and its exact part outlines live in
-scanmass/demo.py; rendering uses scanmass.synth (exact pixel coverage, blur, noise, sRGB).
+scanmass/demo.py; rendering uses scanmass.testing.scans (exact pixel coverage, blur, noise, sRGB).
 """
 
 from pathlib import Path
 
-from scanmass.demo import make_samples
+from scanmass.cli.demo import make_samples
 
 if __name__ == "__main__":
     for path in make_samples(Path(__file__).resolve().parent):

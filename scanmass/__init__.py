@@ -4,98 +4,101 @@ The library's main entry point is :func:`measure`; results are plain dataclasses
 (:class:`Measurement`, :class:`Part`, :class:`Hole`) serialisable to the JSON result
 document. All lengths are millimetres, frames have y up (see the README).
 
-Heavier families (export, report, assembly, balance, batch) are imported on first use,
-so ``import scanmass`` and the command line stay quick.
+The public names below are fixed; each is imported from its stage on first use, so
+``import scanmass`` and ``scanmass --version`` load neither numpy nor OpenCV.
 """
 
 from __future__ import annotations
 
 import importlib
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 __version__ = "0.1.0"
 
-from . import errors
-from .errors import (
-    ImageError,
-    MaterialError,
-    OptionError,
-    OutputError,
-    ResultFormatError,
-    ScaleError,
-    ScanmassError,
-    SegmentationError,
-)
-from .load import LoadedImage, load_image
-from .mass import MassProperties, apply_mass, plate_mass
-from .materials import Material, find_material, load_materials
-from .measurement import SCHEMA, Hole, Measurement, Part, ScaleInfo, SourceInfo
-from .outputs import write_atomic
-from .pipeline import MeasureOptions, measure, measure_image
-from .scale import PlaneMap
-from .section import SectionProperties, fit_circle, section_properties
+if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
+    from scanmass.errors import ScanmassError
+    from scanmass.load.decode import LoadedImage, load_image
+    from scanmass.mass.assembly import AssemblyResult, assemble
+    from scanmass.mass.balance import BalanceResult, balance_measurement
+    from scanmass.mass.materials import Material, find_material, load_materials
+    from scanmass.mass.plate import apply_mass, plate_mass
+    from scanmass.measurement import Hole, Measurement, Part
+    from scanmass.pipeline import MeasureOptions
+    from scanmass.outputs.export import export_dxf, export_svg
+    from scanmass.outputs.report import write_report
+    from scanmass.pipeline import measure
+    from scanmass.scale.mat import make_mat
+    from scanmass.scale.planemap import PlaneMap
+    from scanmass.section import SectionProperties, section_properties
+    from scanmass.batch.runner import run_batch
 
-#: Public names imported lazily: name -> module.
-_LAZY = {
-    "assemble": "assembly",
-    "combine_members": "assembly",
-    "AssemblyResult": "assembly",
-    "static_unbalance": "balance",
-    "balance_measurement": "balance",
-    "BalanceResult": "balance",
-    "permissible_unbalance_gmm": "balance",
-    "export_dxf": "export",
-    "export_svg": "export",
-    "render_report": "report",
-    "write_report": "report",
-    "render_summary": "report",
-    "write_summary": "report",
-    "run_batch": "batch",
-    "export_batch": "batch",
-    "measure_photo": "photo",
-    "detect_markers": "photo",
-    "make_mat": "mat",
-    "write_mat_pdf": "mat",
-    "write_mat_png": "mat",
-    "render_mat_png": "mat",
-    "calibrate_lens": "lens",
-    "load_lens_profile": "lens",
-    "LensProfile": "lens",
-    "render_overlay": "overlay",
+#: Public name -> the module that holds it (imported on first use).
+_WHERE = {
+    "measure": "scanmass.pipeline",
+    "MeasureOptions": "scanmass.pipeline",
+    "Measurement": "scanmass.measurement",
+    "Part": "scanmass.measurement",
+    "Hole": "scanmass.measurement",
+    "load_image": "scanmass.load.decode",
+    "LoadedImage": "scanmass.load.decode",
+    "PlaneMap": "scanmass.scale.planemap",
+    "make_mat": "scanmass.scale.mat",
+    "section_properties": "scanmass.section",
+    "SectionProperties": "scanmass.section",
+    "Material": "scanmass.mass.materials",
+    "find_material": "scanmass.mass.materials",
+    "load_materials": "scanmass.mass.materials",
+    "plate_mass": "scanmass.mass.plate",
+    "apply_mass": "scanmass.mass.plate",
+    "assemble": "scanmass.mass.assembly",
+    "AssemblyResult": "scanmass.mass.assembly",
+    "balance_measurement": "scanmass.mass.balance",
+    "BalanceResult": "scanmass.mass.balance",
+    "export_dxf": "scanmass.outputs.export",
+    "export_svg": "scanmass.outputs.export",
+    "write_report": "scanmass.outputs.report",
+    "run_batch": "scanmass.batch.runner",
+    "ScanmassError": "scanmass.errors",
 }
-
-
-def __getattr__(name: str) -> Any:
-    module = _LAZY.get(name)
-    if module is None:
-        raise AttributeError(f"module 'scanmass' has no attribute {name!r}")
-    return getattr(importlib.import_module(f".{module}", __name__), name)
-
 
 __all__ = [
     "__version__",
     "measure",
-    "measure_image",
     "MeasureOptions",
-    "load_image",
-    "LoadedImage",
-    "PlaneMap",
-    "section_properties",
-    "SectionProperties",
-    "fit_circle",
     "Measurement",
     "Part",
     "Hole",
-    "ScaleInfo",
-    "SourceInfo",
-    "SCHEMA",
-    "plate_mass",
-    "apply_mass",
-    "MassProperties",
+    "load_image",
+    "LoadedImage",
+    "PlaneMap",
+    "make_mat",
+    "section_properties",
+    "SectionProperties",
     "Material",
     "find_material",
     "load_materials",
-    "write_atomic",
-    *_LAZY,
-    *errors.__all__,
+    "plate_mass",
+    "apply_mass",
+    "assemble",
+    "AssemblyResult",
+    "balance_measurement",
+    "BalanceResult",
+    "export_dxf",
+    "export_svg",
+    "write_report",
+    "run_batch",
+    "ScanmassError",
 ]
+
+
+def __getattr__(name: str) -> Any:
+    module = _WHERE.get(name)
+    if module is None:
+        raise AttributeError(f"module 'scanmass' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value  # later look-ups skip this function
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

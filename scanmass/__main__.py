@@ -1,5 +1,5 @@
 """``python -m scanmass`` runs the command line."""
 
-from .cli import app
+from scanmass.cli.app import app
 
 app(prog_name="scanmass")

@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import ResultFormatError
+from scanmass.errors import ResultFormatError
 
 __all__ = [
     "SCHEMA",

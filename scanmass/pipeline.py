@@ -12,13 +12,13 @@ from dataclasses import dataclass, fields
 from typing import Any
 import numpy as np
 
-from .errors import OptionError, ScaleError
-from .load import DEFAULT_MAX_PIXELS, LoadedImage, load_image
-from .measurement import Hole, Measurement, Part, ScaleInfo, SourceInfo
-from .scale import DEFAULT_DPI_REL_U, PlaneMap
-from .section import fit_circle, ring_moments, ring_perimeter, section_properties
-from .segment import PartRings, segment
-from .uncertainty import (
+from scanmass.errors import OptionError, ScaleError
+from scanmass.load.decode import DEFAULT_MAX_PIXELS, LoadedImage, load_image
+from scanmass.measurement import Hole, Measurement, Part, ScaleInfo, SourceInfo
+from scanmass.scale.planemap import DEFAULT_DPI_REL_U, PlaneMap
+from scanmass.section import fit_circle, ring_moments, ring_perimeter, section_properties
+from scanmass.segment.rings import PartRings, segment
+from scanmass.uncertainty import (
     THRESHOLD_FLOOR_PX,
     build_edge_model,
     combine,
@@ -166,14 +166,14 @@ def measure_loaded(
     if material is not None and thickness_mm is None:  # a thickness alone lifts a photo's face (parallax)
         raise OptionError("mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=path)
     image = load_image(source, dpi=options.dpi, max_pixels=int(options.max_pixels))
-    from .photo import measure_photo, scale_method
+    from scanmass.scale.photo import measure_photo, scale_method
 
     if scale_method(image, options) == "dpi":
         result = measure_image(image, options)
     else:
         result = measure_photo(image, options, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm)
     if material is not None:
-        from .mass import apply_mass  # mass works on Measurements only
+        from scanmass.mass.plate import apply_mass  # mass works on Measurements only
 
         result = apply_mass(result, material, thickness_mm, thickness_u_mm=thickness_u_mm, materials=materials_file)
     return result, image

@@ -30,7 +30,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import OptionError
+from scanmass.errors import OptionError
 
 __all__ = [
     "SectionProperties",

@@ -35,7 +35,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .section import boundary_influence, signed_area
+from scanmass.section import boundary_influence, signed_area
 
 __all__ = ["EdgeModel", "THRESHOLD_FLOOR_PX", "figure_weights", "part_uncertainty"]
 

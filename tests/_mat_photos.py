@@ -4,7 +4,7 @@ A pinhole camera (focal length f px, principal point at the image centre, square
 pixels) looks at the mat from a chosen tilt, direction, roll and distance. Everything
 dark on the mat (marker cells, check bars, corner marks) and every part is a polygon
 in mat mm; each is projected into the photo and drawn with its exact pixel coverage
-(scanmass.synth.coverage), so straight edges stay exact under perspective. Then, in
+(scanmass.testing.scans.coverage), so straight edges stay exact under perspective. Then, in
 linear light: reflectances, uneven light, optional radial distortion (OpenCV's model,
 applied by resampling the ideal image), Gaussian blur, noise, sRGB encoding, optional
 JPEG. A raised part (thickness h) is drawn as the silhouette of the solid: the union,
@@ -22,9 +22,9 @@ import numpy as np
 import shapely
 
 from polygon_truth import truth  # noqa: F401 - re-exported for the photo tests
-from scanmass.mat import MatLayout, mat_dark_rectangles
-from scanmass.synth import coverage, srgb_encode
-from scanmass.synth_photo import look_at
+from scanmass.scale.mat import MatLayout, mat_dark_rectangles
+from scanmass.testing.scans import coverage, srgb_encode
+from scanmass.testing.photos import look_at
 
 
 @dataclass

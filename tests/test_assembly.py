@@ -12,10 +12,10 @@ import numpy as np
 import pytest
 
 import scanmass
-from scanmass.assembly import Member, assemble, combine_members
+from scanmass.mass.assembly import Member, assemble, combine_members
 from scanmass.errors import MaterialError, OptionError
-from scanmass.mass import plate_mass
-from scanmass.materials import find_material
+from scanmass.mass.plate import plate_mass
+from scanmass.mass.materials import find_material
 
 from plate_parts import disc, make_measurement, make_part, polygon, rect
 

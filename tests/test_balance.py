@@ -7,7 +7,7 @@ import math
 
 import pytest
 
-from scanmass.balance import CAUTIONS, balance_measurement, permissible_unbalance_gmm, static_unbalance
+from scanmass.mass.balance import CAUTIONS, balance_measurement, permissible_unbalance_gmm, static_unbalance
 from scanmass.errors import MaterialError, OptionError
 
 from plate_parts import circle_ring, disc, make_measurement, make_part, rect

@@ -1,6 +1,6 @@
 """Batch measuring of folders: results, failures, resume after kill -9, duplicates, settings, Dask.
 
-Truth: every good scan is rendered by scanmass.synth from exact polygons; the expected area
+Truth: every good scan is rendered by scanmass.testing.scans from exact polygons; the expected area
 and centroid come from shapely (reference library), the centroidal second moments from the
 Green's-theorem vertex sums over the same polygons (common practice; the same formulas as
 tests/test_measure.py). The scans are small (60 x 50 mm at 200 dpi) so the whole file runs
@@ -30,7 +30,7 @@ from typer.testing import CliRunner
 
 from polygon_truth import truth
 from scanmass import measure
-from scanmass.batch import (
+from scanmass.batch.runner import (
     DB_NAME,
     BatchProgress,
     content_hash,
@@ -40,9 +40,9 @@ from scanmass.batch import (
     run_batch,
     settings_hash,
 )
-from scanmass.cli import app
+from scanmass.cli.app import app
 from scanmass.errors import OptionError, OutputError
-from scanmass.synth import SynthPart, circle, l_section, rectangle, render_scan, save_scan
+from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
 DPI = 200
 SIZE_MM = (60.0, 50.0)
@@ -253,7 +253,7 @@ def _many(folder: Path, n: int) -> dict[str, list[dict]]:
 
 def _signal_mid_run(folder: Path, out: Path, sig: int, *, after: int = 3) -> tuple[int, subprocess.CompletedProcess]:
     """Run the CLI batch in a subprocess; send ``sig`` once ``after`` files are recorded."""
-    cmd = [sys.executable, "-c", "from scanmass.cli import app; app()", "batch", str(folder), "--out", str(out),
+    cmd = [sys.executable, "-c", "from scanmass.cli.app import app; app()", "batch", str(folder), "--out", str(out),
            "--workers", "1", "--quiet"]
     # after kill -9 the orphaned workers take up to a second to notice: do not wait on their pipes
     pipe = subprocess.PIPE if sig != signal.SIGKILL else subprocess.DEVNULL

@@ -10,9 +10,9 @@ import math
 import pytest
 from typer.testing import CliRunner
 
-from scanmass.batch import run_batch, summary_rows
-from scanmass.cli import app
-from scanmass.synth import SynthPart, circle, render_scan, save_scan
+from scanmass.batch.runner import run_batch, summary_rows
+from scanmass.cli.app import app
+from scanmass.testing.scans import SynthPart, circle, render_scan, save_scan
 
 runner = CliRunner()
 

@@ -17,9 +17,9 @@ import pytest
 from PIL import Image
 from typer.testing import CliRunner
 
-from scanmass.cli import app
+from scanmass.cli.app import app
 from scanmass.measurement import Measurement
-from scanmass.synth import SynthPart, circle, rectangle, render_scan, save_scan
+from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan, save_scan
 from cli_helpers import one_line_error
 
 runner = CliRunner()

@@ -1,6 +1,6 @@
 """`scanmass export` and `scanmass report` through typer's CliRunner.
 
-End to end on a rendered scan (scanmass.synth): measure, then export and report the
+End to end on a rendered scan (scanmass.testing.scans): measure, then export and report the
 result; the re-read DXF/SVG outlines are compared with the result's own area with
 shapely (reference library) within the fit bound of tests/test_export.py
 (|dA| <= tol * perimeter). Bad input: one-line error, exit code 1, no traceback.
@@ -18,10 +18,10 @@ import pytest
 from typer.testing import CliRunner
 
 import _exact_results as E
-from scanmass.cli import app
-from scanmass.export import fit_tolerance_default_mm
+from scanmass.cli.app import app
+from scanmass.outputs.export import fit_tolerance_default_mm
 from scanmass.measurement import Measurement
-from scanmass.synth import SynthPart, circle, rectangle, render_scan, save_scan
+from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan, save_scan
 from cli_helpers import one_line_error
 
 runner = CliRunner()

@@ -10,9 +10,9 @@ import math
 import pytest
 from typer.testing import CliRunner
 
-from scanmass.assembly import assemble
-from scanmass.cli import app
-from scanmass.synth import SynthPart, circle, render_scan, save_scan
+from scanmass.mass.assembly import assemble
+from scanmass.cli.app import app
+from scanmass.testing.scans import SynthPart, circle, render_scan, save_scan
 
 from plate_parts import circle_ring, disc, make_measurement, make_part, rect
 from cli_helpers import one_line_error

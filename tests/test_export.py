@@ -1,4 +1,4 @@
-"""Tests of scanmass.export: DXF and SVG outlines, line-and-arc fitting, round trips.
+"""Tests of scanmass.outputs.export: DXF and SVG outlines, line-and-arc fitting, round trips.
 
 Reference library: shapely (area, centroid, Hausdorff distance) on geometry re-read
 with ezdxf (its own bulge and circle expansion, ``ezdxf.path``) and on the SVG path
@@ -31,7 +31,7 @@ from shapely.geometry import LineString, Polygon
 
 import _exact_results as E
 from scanmass.errors import OptionError, OutputError, ResultFormatError
-from scanmass.export import (
+from scanmass.outputs.export import (
     LAYER_HOLES,
     LAYER_OUTLINE,
     LAYER_REFERENCE,

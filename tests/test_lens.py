@@ -17,11 +17,11 @@ from typer.testing import CliRunner
 
 from _mat_photos import PhotoParts, make_camera, render_photo, truth
 from scanmass import measure
-from scanmass.cli import app
+from scanmass.cli.app import app
 from scanmass.errors import OptionError, ScaleError
-from scanmass.lens import LensProfile, calibrate_lens, load_lens_profile, save_lens_profile
-from scanmass.mat import make_mat
-from scanmass.synth import circle, rectangle
+from scanmass.scale.lens import LensProfile, calibrate_lens, load_lens_profile, save_lens_profile
+from scanmass.scale.mat import make_mat
+from scanmass.testing.scans import circle, rectangle
 
 MAT = make_mat("a4-portrait")
 K1 = -0.05

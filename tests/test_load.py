@@ -1,4 +1,4 @@
-"""Tests of scanmass.load: decoding, orientation, DPI, tone curves and guards.
+"""Tests of scanmass.load.decode: decoding, orientation, DPI, tone curves and guards.
 
 Every file is generated here with pillow, numpy, tifffile or a few lines of PNG/ICC
 byte assembly; no binaries are committed. Reference values name their source.
@@ -17,7 +17,7 @@ import pytest
 from PIL import Image, ImageCms, ImageOps
 
 from scanmass.errors import ImageError, OptionError
-from scanmass.load import (
+from scanmass.load.decode import (
     DEFAULT_MAX_PIXELS,
     UNKNOWN_DPI_VALUES,
     LoadedImage,

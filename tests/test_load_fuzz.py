@@ -1,4 +1,4 @@
-"""Property tests of scanmass.load: whatever comes in, the result is a LoadedImage
+"""Property tests of scanmass.load.decode: whatever comes in, the result is a LoadedImage
 or a ScanmassError with a one-line message -- never another exception.
 
 Inputs: random bytes under image names, truncations and byte flips of valid files,
@@ -19,7 +19,7 @@ from hypothesis.extra import numpy as hnp
 from PIL import Image, ImageCms
 
 from scanmass.errors import ScanmassError
-from scanmass.load import LoadedImage, load_image
+from scanmass.load.decode import LoadedImage, load_image
 
 FUZZ = settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 

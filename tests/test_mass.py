@@ -8,8 +8,8 @@ import math
 import pytest
 
 from scanmass.errors import MaterialError, OptionError
-from scanmass.mass import STANDARD_GRAVITY_M_S2, apply_mass, plate_mass
-from scanmass.materials import Material, find_material, load_materials
+from scanmass.mass.plate import STANDARD_GRAVITY_M_S2, apply_mass, plate_mass
+from scanmass.mass.materials import Material, find_material, load_materials
 from scanmass.measurement import Measurement
 
 from plate_parts import disc, make_measurement, make_part, polygon, rect

@@ -17,10 +17,10 @@ import pytest
 import shapely
 from typer.testing import CliRunner
 
-from scanmass.cli import app
+from scanmass.cli.app import app
 from scanmass.errors import OptionError, ScaleError
-from scanmass.load import load_image
-from scanmass.mat import (
+from scanmass.load.decode import load_image
+from scanmass.scale.mat import (
     IDS_PER_LAYOUT,
     LAYOUT_NAMES,
     MatLayout,
@@ -32,7 +32,7 @@ from scanmass.mat import (
     render_mat_png,
     write_mat,
 )
-from scanmass.photo import detect_markers
+from scanmass.scale.photo import detect_markers
 
 # ISO 216:2007 table 1 and ANSI/ASME Y14.1-2020 table 1 (portrait width, height, mm)
 PAPER_MM = {"a4": (210.0, 297.0), "a3": (297.0, 420.0), "letter": (215.9, 279.4)}
@@ -147,7 +147,7 @@ def test_cli_mat_writes_files_and_refuses_bad_layout(tmp_path):
 
 
 def test_shipped_mats_match_the_layouts():
-    from scanmass.mat import calibration_dir
+    from scanmass.scale.mat import calibration_dir
 
     folder = calibration_dir()
     if folder is None:

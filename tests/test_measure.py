@@ -1,7 +1,7 @@
 """End-to-end measuring of synthetic scans with known exact properties.
 
 Truth: every part is an exact polygon (circles are fine polygons); the scans are rendered
-by scanmass.synth with exact per-pixel area coverage (tested on its own in
+by scanmass.testing.scans with exact per-pixel area coverage (tested on its own in
 test_synth.py), then blurred, noised and sRGB-encoded. Expected values come from the
 polygons via shapely (reference library) and, for simple shapes, closed forms from a
 statics handbook section table (rectangle b h^3/12, circle pi r^4/4; common practice).
@@ -17,7 +17,7 @@ import pytest
 from polygon_truth import truth
 from scanmass import measure
 from scanmass.errors import ScaleError, SegmentationError
-from scanmass.synth import SynthPart, circle, l_section, rectangle, render_scan, save_scan
+from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
 #: Relative tolerances of the measured figures on these clean synthetic scans.
 AREA_RTOL = 1e-3

@@ -1,4 +1,4 @@
-"""Tests of scanmass.outputs: atomic writes that never overwrite an input."""
+"""Tests of scanmass.outputs.atomic: atomic writes that never overwrite an input."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ import pytest
 from PIL import Image
 
 from scanmass.errors import OutputError
-from scanmass.outputs import atomic_path, write_atomic
+from scanmass.outputs.atomic import atomic_path, write_atomic
 
 
 def opened(path) -> Image.Image:

@@ -7,9 +7,9 @@ from pathlib import Path
 import numpy as np
 
 from scanmass import measure
-from scanmass.load import load_image
-from scanmass.overlay import OVERLAY_MAX_SIDE_PX, encode_png, render_overlay
-from scanmass.synth import SynthPart, circle, rectangle, render_scan
+from scanmass.load.decode import load_image
+from scanmass.outputs.overlay import OVERLAY_MAX_SIDE_PX, encode_png, render_overlay
+from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan
 
 SAMPLES = Path(__file__).resolve().parent.parent / "samples"
 BLUE = np.array([178, 114, 0])  # outline colour, BGR (Okabe-Ito blue #0072B2)

@@ -21,13 +21,13 @@ from typer.testing import CliRunner
 
 from _mat_photos import PhotoParts, make_camera, render_photo, truth
 from scanmass import measure
-from scanmass.cli import app
+from scanmass.cli.app import app
 from scanmass.errors import OptionError, ScaleError, SegmentationError
-from scanmass.homography import apply_h
-from scanmass.load import load_image
-from scanmass.mat import make_mat
-from scanmass.photo import mat_scale
-from scanmass.synth import circle, l_section, rectangle
+from scanmass.scale.homography import apply_h
+from scanmass.load.decode import load_image
+from scanmass.scale.mat import make_mat
+from scanmass.scale.photo import mat_scale
+from scanmass.testing.scans import circle, l_section, rectangle
 
 MAT = make_mat("a4-portrait")
 AREA_RTOL = 1e-3

@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from scanmass.load import load_image
-from scanmass.photo import FILM_DIAGONAL_MM, _exif_focal_px
+from scanmass.load.decode import load_image
+from scanmass.scale.photo import FILM_DIAGONAL_MM, _exif_focal_px
 
 
 def test_exif_35mm_focal_length_in_pixels(tmp_path):

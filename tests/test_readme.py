@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 import typer.main
 
-from scanmass.cli import app
+from scanmass.cli.app import app
 
 README = Path(__file__).resolve().parent.parent / "README.md"
 

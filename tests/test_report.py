@@ -1,4 +1,4 @@
-"""Tests of scanmass.report: the HTML report and the batch summary page (no browser).
+"""Tests of scanmass.outputs.report: the HTML report and the batch summary page (no browser).
 
 The page is parsed with the standard library's html.parser; numbers shown are checked
 against handbook values of the fixture shapes (composite-area formulas) and the GUM's
@@ -20,8 +20,8 @@ from PIL import Image
 
 import _exact_results as E
 from scanmass.errors import ImageError, OptionError, OutputError, ResultFormatError
-from scanmass.mass import apply_mass
-from scanmass.report import (
+from scanmass.mass.plate import apply_mass
+from scanmass.outputs.report import (
     CAUTIONS,
     format_value,
     render_report,

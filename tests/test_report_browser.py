@@ -28,7 +28,7 @@ CHROMEDRIVER = shutil.which("chromedriver")
 if not (CHROMIUM and CHROMEDRIVER):
     pytest.skip("chromium and chromium-driver are not installed (apt-get install chromium chromium-driver)", allow_module_level=True)
 
-from scanmass.report import render_summary, write_report  # noqa: E402
+from scanmass.outputs.report import render_summary, write_report  # noqa: E402
 
 ARTIFACTS = Path(__file__).resolve().parent.parent / "test-artifacts"
 

@@ -1,4 +1,4 @@
-"""Tests of the synthetic-scan renderer (scanmass.synth).
+"""Tests of the synthetic-scan renderer (scanmass.testing.scans).
 
 The renderer must be far more accurate than the measuring tool: per-pixel
 coverage is checked against shapely's exact polygon-box intersection areas
@@ -19,7 +19,7 @@ import shapely
 from PIL import Image
 
 from scanmass.errors import OptionError, OutputError
-from scanmass.synth import (
+from scanmass.testing.scans import (
     SynthPart,
     annulus,
     circle,

@@ -7,9 +7,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .load import load_image
-from .measurement import Measurement
-from .outputs import write_atomic
+from scanmass.load.decode import load_image
+from scanmass.measurement import Measurement
+from scanmass.outputs.atomic import write_atomic
 
 __all__ = ["MeasureOutputs", "write_outputs", "measure_to_outputs"]
 
@@ -45,7 +45,7 @@ def write_outputs(
     if csv_out is not None:
         written.append(str(write_atomic(csv_out, measurement.to_csv(), inputs=inputs)))
     if overlay_out is not None:
-        from .overlay import encode_png, render_overlay
+        from scanmass.outputs.overlay import encode_png, render_overlay
 
         if image is None:
             image = load_image(measurement.source.path)
@@ -62,7 +62,7 @@ def measure_to_outputs(
     **options: Any,
 ) -> MeasureOutputs:
     """Measure ``source`` (see :func:`scanmass.measure` for ``options``) and write outputs."""
-    from .pipeline import measure_loaded
+    from scanmass.pipeline import measure_loaded
 
     measurement, image = measure_loaded(source, **options)
     return write_outputs(measurement, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out,

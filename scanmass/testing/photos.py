@@ -2,7 +2,7 @@
 
 A pinhole camera (square pixels, principal point at the image centre) looks at the mat;
 every printed dark area and every part is a polygon in mat mm, projected into the photo
-and drawn with its exact pixel coverage (:func:`scanmass.synth.coverage`), so straight
+and drawn with its exact pixel coverage (:func:`scanmass.testing.scans.coverage`), so straight
 edges stay exact under perspective. A raised plate (thickness h) must be convex with
 convex holes: its outline in the photo is then the convex hull of its bottom and top
 faces, and each hole's opening the intersection of the hole's two ends.
@@ -17,8 +17,8 @@ from typing import Sequence
 import cv2
 import numpy as np
 
-from .mat import MatLayout, mat_dark_rectangles
-from .synth import coverage, srgb_encode
+from scanmass.scale.mat import MatLayout, mat_dark_rectangles
+from scanmass.testing.scans import coverage, srgb_encode
 
 __all__ = ["PinholeCamera", "look_at", "render_mat_photo"]
 

@@ -17,9 +17,9 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .errors import OptionError
-from .materials import Material, resolve_material
-from .measurement import Measurement, Part
+from scanmass.errors import OptionError
+from scanmass.mass.materials import Material, resolve_material
+from scanmass.measurement import Measurement, Part
 
 __all__ = [
     "STANDARD_GRAVITY_M_S2",
@@ -123,7 +123,7 @@ def plate_mass(
     part : Part
         A measured part (area, centroid and second moments in mm).
     material : Material or str
-        A Material or a name looked up with :func:`scanmass.materials.find_material`.
+        A Material or a name looked up with :func:`scanmass.mass.materials.find_material`.
     thickness_mm : float
         Sheet thickness, > 0.
     thickness_u_mm : float, optional

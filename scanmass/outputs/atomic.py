@@ -17,7 +17,7 @@ from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
-from .errors import OutputError
+from scanmass.errors import OutputError
 
 __all__ = ["write_atomic", "atomic_path"]
 

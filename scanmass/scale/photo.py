@@ -4,7 +4,7 @@
 small fraction of a pixel, identifies the mat layout from the marker ids, and fits
 the homography pixel -> mat mm (robust, then least squares). :func:`sheet_scale` does
 the same with the four corners of a plain sheet of paper. Both return a
-:class:`PhotoScale`: a :class:`~scanmass.scale.PlaneMap` with sampled homographies
+:class:`PhotoScale`: a :class:`~scanmass.scale.planemap.PlaneMap` with sampled homographies
 for the uncertainty, the clear area as a pixel polygon, and what was found.
 :func:`measure_photo` runs the pipeline with it and checks the result.
 
@@ -24,8 +24,8 @@ from typing import Any, Callable
 import cv2
 import numpy as np
 
-from .errors import OptionError, ScaleError, SegmentationError
-from .homography import (
+from scanmass.errors import OptionError, ScaleError, SegmentationError
+from scanmass.scale.homography import (
     ElevationHook,
     HomographyFit,
     apply_h,
@@ -34,9 +34,9 @@ from .homography import (
     local_scale,
     sample_homographies,
 )
-from .load import LoadedImage
-from .mat import MARKER_CELLS, MatLayout, layout_for_ids, load_layout
-from .scale import PlaneMap
+from scanmass.load.decode import LoadedImage
+from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids, load_layout
+from scanmass.scale.planemap import PlaneMap
 
 __all__ = [
     "MarkerDetection",
@@ -320,7 +320,7 @@ def _lens_tools(lens: Any, image: LoadedImage):
     """(profile, undistort callable, distort callable) for an optional lens profile."""
     if lens is None:
         return None, None, None
-    from .lens import LensProfile, load_lens_profile
+    from scanmass.scale.lens import LensProfile, load_lens_profile
 
     profile = lens if isinstance(lens, LensProfile) else load_lens_profile(lens)
     profile.check_image(image.width_px, image.height_px, path=image.path)
@@ -510,7 +510,7 @@ def mat_scale(
         scale of the print separately. Without them a printer term of
         :data:`PRINTER_REL_U` enters the uncertainty and a warning says so.
     lens : LensProfile or path, optional
-        Camera lens profile from :func:`scanmass.lens.calibrate_lens`.
+        Camera lens profile from :func:`scanmass.scale.lens.calibrate_lens`.
     thickness_mm, thickness_u_mm : float, optional
         Height of the part's measured face above the mat and its standard uncertainty.
 
@@ -876,7 +876,7 @@ def measure_photo(image: LoadedImage, options, *, thickness_mm: float | None = N
     SegmentationError
         No whole part inside the clear area.
     """
-    from .pipeline import measure_image
+    from scanmass.pipeline import measure_image
 
     if thickness_mm is not None and not (math.isfinite(thickness_mm) and thickness_mm >= 0):
         raise OptionError(f"thickness {thickness_mm!r} mm must be zero or positive", path=image.path)
@@ -927,7 +927,7 @@ def _parallax_warning(scale: PhotoScale, result, thickness_mm: float | None) -> 
     """Without a thickness: the thickness from which parallax exceeds the stated uncertainty."""
     if thickness_mm is not None or scale.camera_matrix is None or not result.parts:
         return []
-    from .section import section_properties
+    from scanmass.section import section_properties
 
     h0 = scale.plane_map.matrix
     hook = ElevationHook(h0, scale.camera_matrix, 1.0)

@@ -20,12 +20,12 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .assembly import select_part
-from .errors import OptionError
-from .mass import check_positive, plate_mass
-from .materials import Material, resolve_material
-from .measurement import Hole, Measurement, Part, _clean
-from .section import point_in_ring
+from scanmass.mass.assembly import select_part
+from scanmass.errors import OptionError
+from scanmass.mass.plate import check_positive, plate_mass
+from scanmass.mass.materials import Material, resolve_material
+from scanmass.measurement import Hole, Measurement, Part, _clean
+from scanmass.section import point_in_ring
 
 __all__ = [
     "CAUTIONS",
@@ -237,7 +237,7 @@ def static_unbalance(
     part : Part
         A measured part with at least one hole.
     material : Material or str
-        Sheet material (see :func:`scanmass.materials.find_material`).
+        Sheet material (see :func:`scanmass.mass.materials.find_material`).
     thickness_mm : float
         Sheet thickness, > 0.
     thickness_u_mm : float, optional

@@ -18,7 +18,7 @@ from typing import Sequence
 import cv2
 import numpy as np
 
-from .errors import OptionError, ScaleError
+from scanmass.errors import OptionError, ScaleError
 
 __all__ = ["LensProfile", "LENS_SCHEMA", "calibrate_lens", "default_profile_path", "load_lens_profile", "save_lens_profile", "MIN_LENS_PHOTOS"]
 
@@ -99,7 +99,7 @@ class LensProfile:
 
 def save_lens_profile(profile: LensProfile, path: str | os.PathLike) -> Path:
     """Write a lens profile JSON atomically; returns the path."""
-    from .outputs import write_atomic
+    from scanmass.outputs.atomic import write_atomic
 
     return Path(write_atomic(path, json.dumps(profile.to_dict(), indent=1) + "\n"))
 
@@ -154,9 +154,9 @@ def calibrate_lens(photos: Sequence[str | os.PathLike | np.ndarray], *, mat=None
        PAMI 22(11), 1330-1334, 2000.
     .. [2] OpenCV ``cv::calibrateCamera`` documentation (camera model and flags).
     """
-    from .load import DEFAULT_MAX_PIXELS, load_image
-    from .mat import layout_for_ids, load_layout
-    from .photo import MIN_MARKERS, detect_markers
+    from scanmass.load.decode import DEFAULT_MAX_PIXELS, load_image
+    from scanmass.scale.mat import layout_for_ids, load_layout
+    from scanmass.scale.photo import MIN_MARKERS, detect_markers
 
     photos = list(photos)
     if len(photos) < MIN_LENS_PHOTOS:
@@ -204,7 +204,7 @@ def calibrate_lens(photos: Sequence[str | os.PathLike | np.ndarray], *, mat=None
 
 def default_profile_path(profile: LensProfile) -> Path:
     """calibration/lens-WxH.json in a checkout, else lens-WxH.json in the current folder."""
-    from .mat import calibration_dir
+    from scanmass.scale.mat import calibration_dir
 
     name = f"lens-{profile.image_size[0]}x{profile.image_size[1]}.json"
     folder = calibration_dir()

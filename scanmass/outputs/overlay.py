@@ -17,9 +17,9 @@ import math
 import cv2
 import numpy as np
 
-from .load import LoadedImage
-from .measurement import Measurement
-from .scale import PlaneMap
+from scanmass.load.decode import LoadedImage
+from scanmass.measurement import Measurement
+from scanmass.scale.planemap import PlaneMap
 
 __all__ = ["render_overlay", "encode_png", "OVERLAY_MAX_SIDE_PX"]
 

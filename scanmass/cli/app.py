@@ -16,8 +16,8 @@ import typer
 from rich.console import Console
 from rich.markup import escape
 
-from . import __version__
-from .errors import ScanmassError
+from scanmass import __version__
+from scanmass.errors import ScanmassError
 
 app = typer.Typer(
     name="scanmass",
@@ -114,7 +114,7 @@ def measure(
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Do not print the table.")] = False,
 ) -> None:
     """Measure every flat part in IMAGE: area, centroid, second moments, holes, uncertainties."""
-    from .writers import measure_to_outputs
+    from scanmass.outputs.writers import measure_to_outputs
 
     with user_errors():
         result = measure_to_outputs(
@@ -134,7 +134,7 @@ def measure(
 
 
 def _print_measurement(m) -> None:
-    from .tables import holes_table, measurement_table
+    from scanmass.cli.tables import holes_table, measurement_table
 
     console = _console()
     console.print(measurement_table(m))
@@ -150,7 +150,7 @@ def demo(
     out: Annotated[Path, typer.Option("--out", help="Folder for the demo's results.")] = Path("scanmass-demo"),
 ) -> None:
     """Measure the bundled sample scans end to end and write results into OUT."""
-    from .demo import run_demo
+    from scanmass.cli.demo import run_demo
 
     with user_errors():
         summary = run_demo(out)
@@ -168,7 +168,7 @@ JsonOutOpt = Annotated[Optional[str], typer.Option("--json", help="Write the res
 
 def _emit_json(json_out: str | None, text: str, inputs: list[Path]) -> None:
     """Write a JSON document to a file (atomically, never over an input) or to stdout for '-'."""
-    from .outputs import write_atomic
+    from scanmass.outputs.atomic import write_atomic
 
     if json_out == "-":
         sys.stdout.write(text + "\n")
@@ -181,8 +181,8 @@ def _emit_json(json_out: str | None, text: str, inputs: list[Path]) -> None:
 @app.command("materials")
 def list_materials(materials: MaterialsFileOpt = None) -> None:
     """List the material table: density, typical range, uncertainty and source of each."""
-    from .mass_tables import materials_table
-    from .materials import load_materials
+    from scanmass.cli.mass_tables import materials_table
+    from scanmass.mass.materials import load_materials
 
     with user_errors():
         table = load_materials(materials)
@@ -198,9 +198,9 @@ def assemble(
     materials: MaterialsFileOpt = None,
 ) -> None:
     """Combine the plates listed in FILE: total mass, 3D centre of mass, inertia tensor."""
-    from .outputs import write_atomic
-    from .assembly import assemble as assemble_file
-    from .mass_tables import assembly_summary_table, assembly_table
+    from scanmass.outputs.atomic import write_atomic
+    from scanmass.mass.assembly import assemble as assemble_file
+    from scanmass.cli.mass_tables import assembly_summary_table, assembly_table
 
     with user_errors():
         result = assemble_file(file, materials=materials)
@@ -236,9 +236,9 @@ def balance(
     materials: MaterialsFileOpt = None,
 ) -> None:
     """Static unbalance of a plate spinning about a bore, against an ISO 21940-11 grade."""
-    from .assembly import load_measurement
-    from .balance import balance_measurement
-    from .mass_tables import balance_table
+    from scanmass.mass.assembly import load_measurement
+    from scanmass.mass.balance import balance_measurement
+    from scanmass.cli.mass_tables import balance_table
 
     if material is None or thickness is None:
         fail("balance needs the plate's material and thickness, e.g. --material steel --thickness 3")
@@ -270,7 +270,7 @@ def export_outlines(
     part: Annotated[Optional[list[int]], typer.Option("--part", help="Export only this part label (repeatable; default all).")] = None,
 ) -> None:
     """Write the measured outlines of RESULT as DXF and/or SVG, for CAD and cutting."""
-    from .export import export_dxf, export_svg
+    from scanmass.outputs.export import export_dxf, export_svg
 
     if dxf is None and svg is None:
         fail("nothing to write; give --dxf OUT.dxf and/or --svg OUT.svg")
@@ -298,13 +298,13 @@ def report(
     Given a batch's output folder instead, write its summary page: counts, failures, a
     sortable table of all parts and plots.
     """
-    from .report import write_report
+    from scanmass.outputs.report import write_report
 
     if html is None:
         fail("give the report file to write with --html OUT.html")
     if len(results) == 1 and results[0].is_dir():
-        from .batch import summary_rows
-        from .report import write_summary
+        from scanmass.batch.runner import summary_rows
+        from scanmass.outputs.report import write_summary
 
         with user_errors():
             rows, failures = summary_rows(results[0])
@@ -396,7 +396,7 @@ def batch(
     """
     import signal
 
-    from .batch import run_batch
+    from scanmass.batch.runner import run_batch
 
     err = _console(stderr=True)
     bar, update = (None, None) if quiet else _batch_progress_display(err, watch)
@@ -452,7 +452,7 @@ def batch_export(
     out: Annotated[str, typer.Option("--out", help="File to write; '-' for standard output.")] = "-",
 ) -> None:
     """Export a batch's results again from its database."""
-    from .batch import export_batch, iter_export
+    from scanmass.batch.runner import export_batch, iter_export
 
     with user_errors():
         if out == "-":
@@ -473,7 +473,7 @@ def mat_command(
     dpi: Annotated[float, typer.Option("--dpi", help="Resolution of the PNG, dots per inch.")] = 300.0,
 ) -> None:
     """Write a printable marker mat for photos (PDF and/or PNG), each with its layout JSON beside it."""
-    from .mat import write_mat
+    from scanmass.scale.mat import write_mat
 
     with user_errors():
         written = write_mat(layout, pdf=pdf, png=png, dpi=dpi)
@@ -489,7 +489,7 @@ def lens_command(
     mat: MatOpt = None,
 ) -> None:
     """Calibrate the camera's lens from photos of a marker mat and save a lens profile."""
-    from .lens import calibrate_lens, default_profile_path, save_lens_profile
+    from scanmass.scale.lens import calibrate_lens, default_profile_path, save_lens_profile
 
     with user_errors():
         profile = calibrate_lens(photos, mat=mat)

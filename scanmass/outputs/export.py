@@ -41,11 +41,11 @@ from xml.sax.saxutils import escape, quoteattr
 
 import numpy as np
 
-from ._resultio import PathLike, as_measurement
-from .outputs import write_atomic
-from .errors import OptionError, ResultFormatError
-from .measurement import Hole, Measurement, Part
-from .section import orient_ring
+from scanmass.outputs.resultio import PathLike, as_measurement
+from scanmass.outputs.atomic import write_atomic
+from scanmass.errors import OptionError, ResultFormatError
+from scanmass.measurement import Hole, Measurement, Part
+from scanmass.section import orient_ring
 
 if TYPE_CHECKING:  # pragma: no cover
     from ezdxf.document import Drawing

@@ -26,12 +26,12 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 
-from . import __version__
-from ._resultio import PathLike, as_measurement
-from .outputs import write_atomic
-from .errors import ImageError, OptionError, ResultFormatError
-from .formatting import _finite, _fixed, format_value
-from .measurement import CSV_COLUMNS, Measurement, Part
+from scanmass import __version__
+from scanmass.outputs.resultio import PathLike, as_measurement
+from scanmass.outputs.atomic import write_atomic
+from scanmass.errors import ImageError, OptionError, ResultFormatError
+from scanmass.outputs.formatting import _finite, _fixed, format_value
+from scanmass.measurement import CSV_COLUMNS, Measurement, Part
 
 __all__ = [
     "CAUTIONS",
@@ -479,7 +479,7 @@ def _environment():
     import jinja2
 
     return jinja2.Environment(
-        loader=jinja2.PackageLoader("scanmass", "templates"),
+        loader=jinja2.PackageLoader("scanmass.outputs", "templates"),
         autoescape=True,
         undefined=jinja2.StrictUndefined,
         trim_blocks=False,

@@ -22,9 +22,9 @@ import cv2
 import numpy as np
 from skimage.measure import find_contours
 
-from .errors import OptionError, SegmentationError
-from .load import LoadedImage
-from .section import point_in_ring, signed_area
+from scanmass.errors import OptionError, SegmentationError
+from scanmass.load.decode import LoadedImage
+from scanmass.section import point_in_ring, signed_area
 
 __all__ = ["PartRings", "Segmentation", "segment"]
 

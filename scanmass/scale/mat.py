@@ -26,7 +26,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import OptionError, ScaleError
+from scanmass.errors import OptionError, ScaleError
 
 __all__ = [
     "DICTIONARY",
@@ -420,7 +420,7 @@ def render_mat_png(layout: MatLayout, dpi: float = 300.0) -> np.ndarray:
     (H, W) uint8 ndarray
         H = round(page height / s), W = round(page width / s).
     """
-    from .synth import coverage, srgb_encode
+    from scanmass.testing.scans import coverage, srgb_encode
 
     if not (math.isfinite(dpi) and 20.0 <= dpi <= 2400.0):
         raise OptionError(f"mat dpi {dpi!r} must be between 20 and 2400, e.g. --dpi 300")
@@ -515,7 +515,7 @@ def mat_pdf_bytes(layout: MatLayout) -> bytes:
 
 def write_mat_pdf(layout: MatLayout, path: str | os.PathLike) -> Path:
     """Write the mat as a PDF at exact physical size, atomically; returns the path."""
-    from .outputs import write_atomic
+    from scanmass.outputs.atomic import write_atomic
 
     return Path(write_atomic(path, mat_pdf_bytes(layout)))
 
@@ -526,7 +526,7 @@ def write_mat_png(layout: MatLayout, path: str | os.PathLike, *, dpi: float = 30
 
     from PIL import Image
 
-    from .outputs import write_atomic
+    from scanmass.outputs.atomic import write_atomic
 
     img = render_mat_png(layout, dpi)
     bio = io.BytesIO()
@@ -536,14 +536,14 @@ def write_mat_png(layout: MatLayout, path: str | os.PathLike, *, dpi: float = 30
 
 def write_layout_json(layout: MatLayout, path: str | os.PathLike) -> Path:
     """Write the layout JSON document, atomically; returns the path."""
-    from .outputs import write_atomic
+    from scanmass.outputs.atomic import write_atomic
 
     return Path(write_atomic(path, layout.to_json() + "\n"))
 
 
 def calibration_dir() -> Path | None:
     """The repository's calibration/ folder when scanmass runs from a checkout, else None."""
-    candidate = Path(__file__).resolve().parent.parent / "calibration"
+    candidate = Path(__file__).resolve().parents[2] / "calibration"
     return candidate if candidate.is_dir() else None
 
 

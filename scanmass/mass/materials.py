@@ -17,7 +17,7 @@ from os import PathLike
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
-from .errors import MaterialError
+from scanmass.errors import MaterialError
 
 __all__ = ["Material", "load_materials", "find_material", "resolve_material"]
 
@@ -75,7 +75,7 @@ def _norm(text: str) -> str:
 def _read_toml(path: Path | None) -> dict[str, Any]:
     try:
         if path is None:
-            text = resources.files("scanmass").joinpath("data/materials.toml").read_text(encoding="utf-8")
+            text = resources.files("scanmass.mass").joinpath("data/materials.toml").read_text(encoding="utf-8")
         else:
             text = path.read_text(encoding="utf-8")
     except FileNotFoundError:

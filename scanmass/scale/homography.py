@@ -235,7 +235,7 @@ class ElevationHook:
     pixel by the pixel of its footprint on the mat (``G0(H_h(p))``), so the plane map
     ``H0`` then returns the true (x, y) of every boundary point.
 
-    Rings must follow :func:`scanmass.segment.segment`'s orientation: material on the
+    Rings must follow :func:`scanmass.segment.rings.segment`'s orientation: material on the
     left in pixel coordinates (outer rings positive shoelace area, holes negative).
     Calls with fewer than 3 points map them as points of the top face.
 

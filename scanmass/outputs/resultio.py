@@ -1,6 +1,6 @@
 """Read result documents from disk for export, report and the command line.
 
-Private helpers shared by :mod:`scanmass.export` and :mod:`scanmass.report`.
+Private helpers shared by :mod:`scanmass.outputs.export` and :mod:`scanmass.outputs.report`.
 """
 
 from __future__ import annotations
@@ -9,8 +9,8 @@ import os
 from pathlib import Path
 from typing import Union
 
-from .errors import ResultFormatError
-from .measurement import Measurement
+from scanmass.errors import ResultFormatError
+from scanmass.measurement import Measurement
 
 __all__ = ["PathLike", "read_result", "as_measurement"]
 

@@ -14,7 +14,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from .errors import OptionError
+from scanmass.errors import OptionError
 
 __all__ = ["PlaneMap", "DEFAULT_DPI_REL_U", "check_dpi"]
 

@@ -38,7 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from PIL import Image, UnidentifiedImageError
 
-from .errors import ImageError, OptionError
+from scanmass.errors import ImageError, OptionError
 
 __all__ = [
     "DEFAULT_MAX_PIXELS",

@@ -65,9 +65,9 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any, Literal
 
-from .errors import OptionError, OutputError, ResultFormatError, ScanmassError
-from .measurement import CSV_COLUMNS, SCHEMA
-from .outputs import write_atomic
+from scanmass.errors import OptionError, OutputError, ResultFormatError, ScanmassError
+from scanmass.measurement import CSV_COLUMNS, SCHEMA
+from scanmass.outputs.atomic import write_atomic
 
 __all__ = [
     "IMAGE_SUFFIXES",
@@ -187,13 +187,13 @@ def content_hash(path: str | os.PathLike) -> str:
 
 def measure_option_names() -> tuple[str, ...]:
     """The keyword arguments of :func:`scanmass.measure`: the valid settings keys."""
-    from .pipeline import measure
+    from scanmass.pipeline import measure
 
     return tuple(name for name, p in inspect.signature(measure).parameters.items() if p.kind is p.KEYWORD_ONLY)
 
 
 def _option_defaults() -> dict[str, Any]:
-    from .pipeline import measure
+    from scanmass.pipeline import measure
 
     return {name: p.default for name, p in inspect.signature(measure).parameters.items() if p.kind is p.KEYWORD_ONLY}
 
@@ -286,7 +286,7 @@ def _check_names(given: Iterable[str], *, where: str | None, what: str) -> None:
 
 def _validate(options: Mapping[str, Any], where: str | None) -> None:
     """Range checks of the effective options, before any file is measured."""
-    from .pipeline import MeasureOptions
+    from scanmass.pipeline import MeasureOptions
 
     known = {f for f in MeasureOptions.__dataclass_fields__}
     opts = MeasureOptions(**{k: (tuple(v) if isinstance(v, list) else v) for k, v in options.items() if k in known})
@@ -300,8 +300,8 @@ def _validate(options: Mapping[str, Any], where: str | None) -> None:
     if (material is None) != (thickness is None):
         raise OptionError("mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=where)
     if material is not None:
-        from .mass import check_positive
-        from .materials import find_material, load_materials
+        from scanmass.mass.plate import check_positive
+        from scanmass.mass.materials import find_material, load_materials
 
         check_positive("thickness_mm", thickness, hint="pass the sheet thickness in mm, e.g. 2.0")
         check_positive("thickness_u_mm", options.get("thickness_u_mm", 0.0), allow_zero=True,
@@ -369,7 +369,7 @@ def settings_hash(options: Mapping[str, Any]) -> str:
     >>> settings_hash({"dpi": 600}) == settings_hash({"dpi": 600.0})
     True
     """
-    from . import __version__
+    from scanmass import __version__
 
     defaults = _option_defaults()
     effective = {**_normalise(defaults, where=None, base=None), **_normalise(options, where=None, base=None)}
@@ -552,7 +552,7 @@ def measure_task(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
     ``max_rss_kb`` (the worker's peak resident memory so far).
     """
     _one_cv_thread()
-    from .pipeline import measure
+    from scanmass.pipeline import measure
 
     started = _now()
     t0, c0 = time.perf_counter(), time.process_time()
@@ -687,7 +687,7 @@ class _Store:
 
     # -- runs ---------------------------------------------------------------------------
     def begin_run(self, info: Mapping[str, Any]) -> int:
-        from . import __version__
+        from scanmass import __version__
 
         with self.transaction():
             cur = self.conn.execute(
@@ -1567,7 +1567,7 @@ def summary_rows(out_dir: str | os.PathLike) -> tuple[list[dict[str, Any]], list
     """The parts of every measured file and the failures, from a batch's database.
 
     Returns ``(rows, failures)``: rows keyed like :data:`CSV_COLUMNS`, failures as
-    ``{"file", "reason"}``; ready for :func:`scanmass.report.render_summary`.
+    ``{"file", "reason"}``; ready for :func:`scanmass.outputs.report.render_summary`.
     """
     conn = _open_existing(out_dir)
     try:

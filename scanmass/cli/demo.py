@@ -20,9 +20,9 @@ from typing import Any
 
 import numpy as np
 
-from .errors import ScanmassError
-from .measurement import Measurement
-from .synth import SynthPart, regular_polygon, render_scan, rotate, save_scan
+from scanmass.errors import ScanmassError
+from scanmass.measurement import Measurement
+from scanmass.testing.scans import SynthPart, regular_polygon, render_scan, rotate, save_scan
 
 __all__ = ["DemoSummary", "demo_scans", "demo_photos", "make_samples", "run_demo", "samples_dir"]
 
@@ -153,7 +153,7 @@ def demo_photos() -> list[DemoPhoto]:
 
 def samples_dir() -> Path | None:
     """The repository's samples/ folder when scanmass runs from a checkout, else None."""
-    candidate = Path(__file__).resolve().parent.parent / "samples"
+    candidate = Path(__file__).resolve().parents[2] / "samples"
     return candidate if (candidate / "demo.toml").is_file() else None
 
 
@@ -168,9 +168,9 @@ def make_samples(folder: str | os.PathLike) -> list[Path]:
         written.append(save_scan(synth, folder / scan.file, quality=90))
     from PIL import Image
 
-    from .mat import make_mat
-    from .outputs import write_atomic
-    from .synth_photo import look_at, render_mat_photo
+    from scanmass.scale.mat import make_mat
+    from scanmass.outputs.atomic import write_atomic
+    from scanmass.testing.photos import look_at, render_mat_photo
 
     for photo in demo_photos():
         img = render_mat_photo(make_mat("a4-portrait"), photo.parts, look_at(**photo.camera), height_mm=photo.thickness_mm or 0.0,
@@ -204,7 +204,7 @@ def _settings(folder: Path) -> dict[str, Any]:
 
 def run_demo(out: str | os.PathLike) -> DemoSummary:
     """Measure the sample scans end to end, writing JSON, CSV and overlays into ``out``."""
-    from .writers import measure_to_outputs
+    from scanmass.outputs.writers import measure_to_outputs
 
     out_dir = Path(out)
     try:
@@ -233,7 +233,7 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         lines += _truth_lines(result.measurement, truth.get(entry["file"]))
         overlays[len(measurements) - 1] = out_dir / f"{stem}-overlay.png"
         if entry.get("export_dxf"):
-            from .export import export_dxf, export_svg
+            from scanmass.outputs.export import export_dxf, export_svg
 
             export_dxf(result.measurement, out_dir / f"{stem}.dxf", fit_tolerance_mm="auto")
             export_svg(result.measurement, out_dir / f"{stem}.svg")
@@ -241,8 +241,8 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
             lines.append(f"outlines of {entry['file']} for CAD: {stem}.dxf, {stem}.svg")
         spin = entry.get("balance")
         if spin:
-            from .balance import balance_measurement
-            from .outputs import write_atomic
+            from scanmass.mass.balance import balance_measurement
+            from scanmass.outputs.atomic import write_atomic
 
             res = balance_measurement(result.measurement, entry["material"], entry["thickness_mm"],
                                       thickness_u_mm=entry.get("thickness_u_mm", 0.0), rpm=spin["rpm"], grade=spin["grade"])
@@ -251,15 +251,15 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
             lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {res.verdict}")
     assembly_file = folder / "wrenfield-carrier-assembly.toml"
     if assembly_file.is_file():
-        from .assembly import assemble
-        from .outputs import write_atomic
+        from scanmass.mass.assembly import assemble
+        from scanmass.outputs.atomic import write_atomic
 
         res = assemble(assembly_file)
         written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.json", res.to_json() + "\n")))
         written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.csv", res.to_csv())))
         com = ", ".join(f"{v:.2f}" for v in res.centre_of_mass_mm)
         lines.append(f"assembly '{res.name}': {res.mass_g:.2f} ± {res.mass_u_g:.2f} g, centre of mass ({com}) mm")
-    from .report import write_report
+    from scanmass.outputs.report import write_report
 
     report = write_report(measurements, out_dir / "report.html", overlays=overlays,
                           title="Wrenfield Cycle Restorations: legacy parts measured by scanmass")
@@ -272,7 +272,7 @@ def _truth_lines(m: Measurement, scan: DemoScan | None) -> list[str]:
     """Compare measured areas and centroids with the exact outlines the scan was rendered from."""
     if scan is None:
         return []
-    from .section import section_properties
+    from scanmass.section import section_properties
 
     lines = []
     truths = [section_properties(o, h) for o, h in scan.parts]

@@ -7,10 +7,10 @@ from typing import Mapping
 
 from rich.table import Table
 
-from .assembly import AssemblyResult
-from .balance import BalanceResult
-from .materials import Material
-from .tables import fmt_u
+from scanmass.mass.assembly import AssemblyResult
+from scanmass.mass.balance import BalanceResult
+from scanmass.mass.materials import Material
+from scanmass.cli.tables import fmt_u
 
 __all__ = ["materials_table", "assembly_table", "assembly_summary_table", "balance_table"]
 

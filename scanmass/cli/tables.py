@@ -4,15 +4,15 @@ from __future__ import annotations
 
 from rich.table import Table
 
-from .formatting import _finite, format_value
-from .measurement import Measurement
+from scanmass.outputs.formatting import _finite, format_value
+from scanmass.measurement import Measurement
 
 __all__ = ["fmt_u", "measurement_table", "holes_table"]
 
 
 def fmt_u(value: float | None, u: float | None = None, *, unit: str = "") -> str:
     """Format ``value ± u`` with the uncertainty to two significant digits
-    (:func:`scanmass.formatting.format_value`).
+    (:func:`scanmass.outputs.formatting.format_value`).
 
     Examples
     --------

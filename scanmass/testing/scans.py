@@ -34,9 +34,9 @@ from typing import Any, Literal
 
 import numpy as np
 
-from .errors import OptionError, OutputError
-from .outputs import write_atomic
-from .section import signed_area
+from scanmass.errors import OptionError, OutputError
+from scanmass.outputs.atomic import write_atomic
+from scanmass.section import signed_area
 
 __all__ = [
     "coverage",

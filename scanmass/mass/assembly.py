@@ -43,10 +43,10 @@ from typing import Any, Callable, Mapping, Sequence
 
 import numpy as np
 
-from .errors import OptionError, ScanmassError
-from .mass import STANDARD_GRAVITY_M_S2, check_positive
-from .materials import Material, load_materials, resolve_material
-from .measurement import Measurement, Part, _clean
+from scanmass.errors import OptionError, ScanmassError
+from scanmass.mass.plate import STANDARD_GRAVITY_M_S2, check_positive
+from scanmass.mass.materials import Material, load_materials, resolve_material
+from scanmass.measurement import Measurement, Part, _clean
 
 __all__ = [
     "ASSEMBLY_SCHEMA",
@@ -476,7 +476,7 @@ def load_measurement(path: str | PathLike[str], *, dpi: float | None = None,
     if cache is not None and key in cache:
         return cache[key]
     if is_json:
-        from ._resultio import read_result
+        from scanmass.outputs.resultio import read_result
 
         result = read_result(name)
     else:

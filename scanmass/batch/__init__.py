@@ -1,0 +1,1 @@
+"""Batches of many files: settings, discovery, store, back-ends, runner, export."""

@@ -1,0 +1,1 @@
+"""The command line: a thin typer layer over the library."""

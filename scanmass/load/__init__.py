@@ -1,0 +1,1 @@
+"""The load stage: decode image files, EXIF orientation, bit depth, DPI, tone curves."""

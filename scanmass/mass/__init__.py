@@ -1,0 +1,1 @@
+"""Mass on Measurements: materials, plate mass, assemblies, static unbalance."""

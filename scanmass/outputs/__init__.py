@@ -1,0 +1,1 @@
+"""Outputs: atomic writes, result reading, overlay, DXF/SVG export, HTML report."""

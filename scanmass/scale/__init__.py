@@ -1,0 +1,1 @@
+"""The scale stage: pixel <-> mm maps of the measured plane (scan DPI, marker mat, paper sheet, lens)."""

@@ -1,0 +1,1 @@
+"""Images with known truth (exact-coverage scans, mat photos) for tests and benchmarks."""
