@@ -34,7 +34,8 @@ from dataclasses import dataclass
 
 import numpy as np
 from PIL import Image
-from skimage import filters, measure as skmeasure
+from skimage import filters
+from skimage import measure as skmeasure
 
 from scanmass import measure
 from scanmass.errors import ScanmassError
@@ -71,7 +72,10 @@ def _make_case(rng: np.random.Generator, k: int) -> Case:
         extent = (w + 2 * margin, h + 2 * margin)
     elif family == "disc":
         r = size / 2
-        part = SynthPart(circle(margin + r, margin + r, r), [circle(margin + r + rng.uniform(-1, 1), margin + r, rng.uniform(2, r / 3))])
+        part = SynthPart(
+            circle(margin + r, margin + r, r),
+            [circle(margin + r + rng.uniform(-1, 1), margin + r, rng.uniform(2, r / 3))],
+        )
         extent = (2 * r + 2 * margin, 2 * r + 2 * margin)
     elif family == "l-section":
         t = rng.uniform(3, 10)
@@ -86,13 +90,20 @@ def _make_case(rng: np.random.Generator, k: int) -> Case:
         dpi = 300
         d = rng.uniform(2.0, 4.0)  # 24-47 px at 300 dpi
         margin = 5.0
-        part = SynthPart(circle(margin + d / 2, margin + d / 2, d / 2)) if rng.random() < 0.5 else SynthPart(rectangle(margin, margin, d, d * 0.7))
+        part = (
+            SynthPart(circle(margin + d / 2, margin + d / 2, d / 2))
+            if rng.random() < 0.5
+            else SynthPart(rectangle(margin, margin, d, d * 0.7))
+        )
         extent = (d + 2 * margin, d + 2 * margin)
     angle = float(rng.uniform(0, 180))
     centre = (extent[0] / 2, extent[1] / 2)
     diag = math.hypot(*extent)
     shift = ((diag - extent[0]) / 2, (diag - extent[1]) / 2)
-    part = SynthPart(rotate(part.outer_mm, angle, about_mm=centre) + shift, [rotate(h, angle, about_mm=centre) + shift for h in part.holes_mm])
+    part = SynthPart(
+        rotate(part.outer_mm, angle, about_mm=centre) + shift,
+        [rotate(h, angle, about_mm=centre) + shift for h in part.holes_mm],
+    )
     return Case(family, dpi, condition, polarity, part, (diag, diag))
 
 
@@ -106,10 +117,20 @@ def _render(case: Case, rng: np.random.Generator) -> np.ndarray:
     if case.condition == "clean":
         opts = dict(blur_px=float(rng.uniform(0.6, 1.0)), noise=0.002, illumination=None)
     else:
-        opts = dict(blur_px=float(rng.uniform(0.8, 1.8)), noise=float(rng.uniform(0.003, 0.008)),
-                    illumination=(float(rng.uniform(-0.15, 0.15)), float(rng.uniform(-0.15, 0.15))))
-    scan = render_scan([case.part], dpi=case.dpi, size_mm=case.size_mm, background=bg, foreground=fg,
-                       seed=int(rng.integers(1 << 30)), **opts)
+        opts = dict(
+            blur_px=float(rng.uniform(0.8, 1.8)),
+            noise=float(rng.uniform(0.003, 0.008)),
+            illumination=(float(rng.uniform(-0.15, 0.15)), float(rng.uniform(-0.15, 0.15))),
+        )
+    scan = render_scan(
+        [case.part],
+        dpi=case.dpi,
+        size_mm=case.size_mm,
+        background=bg,
+        foreground=fg,
+        seed=int(rng.integers(1 << 30)),
+        **opts,
+    )
     img = scan.image
     if case.condition == "realistic" and rng.random() < 0.5:  # JPEG round trip
         buf = io.BytesIO()
@@ -144,8 +165,11 @@ def _errors(meas, truth, px_mm):
     a = abs(meas["area"] - truth.area_mm2) / truth.area_mm2
     c = math.dist(meas["centroid"], truth.centroid_mm)
     j = truth.ixx_mm4 + truth.iyy_mm4
-    m = max(abs(meas["ixx"] - truth.ixx_mm4) / truth.ixx_mm4, abs(meas["iyy"] - truth.iyy_mm4) / truth.iyy_mm4,
-            abs(meas["ixy"] - truth.ixy_mm4) / j)
+    m = max(
+        abs(meas["ixx"] - truth.ixx_mm4) / truth.ixx_mm4,
+        abs(meas["iyy"] - truth.iyy_mm4) / truth.iyy_mm4,
+        abs(meas["ixy"] - truth.ixy_mm4) / j,
+    )
     return a, c / px_mm, c, m
 
 
@@ -177,10 +201,17 @@ def main() -> None:
         if b is not None:
             base.append(_errors(b, truth, px_mm))
         terms = p.uncertainty_terms
-        sig = {k2: math.hypot(terms["edge"][k2], terms["threshold"][k2]) for k2 in ("area_mm2", "centroid_x_mm", "centroid_y_mm", "ixx_mm4", "iyy_mm4")}
-        errs = {"area_mm2": p.area_mm2 - truth.area_mm2, "centroid_x_mm": p.centroid_mm[0] - truth.centroid_mm[0],
-                "centroid_y_mm": p.centroid_mm[1] - truth.centroid_mm[1], "ixx_mm4": p.ixx_mm4 - truth.ixx_mm4,
-                "iyy_mm4": p.iyy_mm4 - truth.iyy_mm4}
+        sig = {
+            k2: math.hypot(terms["edge"][k2], terms["threshold"][k2])
+            for k2 in ("area_mm2", "centroid_x_mm", "centroid_y_mm", "ixx_mm4", "iyy_mm4")
+        }
+        errs = {
+            "area_mm2": p.area_mm2 - truth.area_mm2,
+            "centroid_x_mm": p.centroid_mm[0] - truth.centroid_mm[0],
+            "centroid_y_mm": p.centroid_mm[1] - truth.centroid_mm[1],
+            "ixx_mm4": p.ixx_mm4 - truth.ixx_mm4,
+            "iyy_mm4": p.iyy_mm4 - truth.iyy_mm4,
+        }
         for key, err in errs.items():
             ratio = abs(err) / sig[key] if sig[key] > 0 else math.inf
             ratios.append(ratio)
@@ -195,21 +226,32 @@ def main() -> None:
         print(f"{name:28s} {om:10.4f} {op:10.4f}   {bm:10.4f} {bp:10.4f}   {bp / op if op else math.inf:8.1f}x  {unit}")
 
     print(f"{len(ours)} parts measured ({len(fails)} failures) in {elapsed:.0f} s")
-    print(f"{'figure':28s} {'ours med':>10s} {'ours p95':>10s}   {'base med':>10s} {'base p95':>10s}   {'p95 ratio':>9s}")
+    print(
+        f"{'figure':28s} {'ours med':>10s} {'ours p95':>10s}   {'base med':>10s} {'base p95':>10s}   {'p95 ratio':>9s}"
+    )
     row("area error", 0, 100, "%")
     row("centroid error", 1, 1, "px")
     row("centroid error", 2, 1000, "µm")
     row("second-moment error", 3, 100, "%")
-    print(f"uncertainty coverage: {100 * np.mean(within):.1f} % of errors within 3 sigma; median |error|/sigma = {np.median(ratios):.2f}")
+    print(
+        f"uncertainty coverage: {100 * np.mean(within):.1f} % of errors within 3 sigma; median |error|/sigma = {np.median(ratios):.2f}"
+    )
     print("\nper family (ours): median / p95 area error %, p95 centroid px, median moment error %")
     for fam, vals in sorted(by_family.items()):
         v = np.array(vals)
-        print(f"  {fam:24s} n={len(v):3d}  {100 * np.median(v[:, 0]):.4f} / {100 * np.percentile(v[:, 0], 95):.4f}   "
-              f"{np.percentile(v[:, 1], 95):.4f}   {100 * np.median(v[:, 3]):.4f}")
+        print(
+            f"  {fam:24s} n={len(v):3d}  {100 * np.median(v[:, 0]):.4f} / {100 * np.percentile(v[:, 0], 95):.4f}   "
+            f"{np.percentile(v[:, 1], 95):.4f}   {100 * np.median(v[:, 3]):.4f}"
+        )
     for fam, msg in fails:
         print(f"  failure ({fam}): {msg}")
-    ok = (np.percentile(ours_a[:, 0], 95) <= 1e-3 and np.percentile(ours_a[:, 1], 95) <= 0.05
-          and np.median(ours_a[:, 3]) <= 5e-4 and np.mean(within) >= 0.9 and np.median(ratios) >= 0.2)
+    ok = (
+        np.percentile(ours_a[:, 0], 95) <= 1e-3
+        and np.percentile(ours_a[:, 1], 95) <= 0.05
+        and np.median(ours_a[:, 3]) <= 5e-4
+        and np.mean(within) >= 0.9
+        and np.median(ratios) >= 0.2
+    )
     print("\ntargets met" if ok else "\ntargets NOT all met")
 
 

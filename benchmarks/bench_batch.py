@@ -59,8 +59,12 @@ def _scene(k: int) -> list[SynthPart]:
         kind = (k + j) % 3
         if kind == 0:
             w, h = rng.uniform(30, 48), rng.uniform(20, 40)
-            parts.append(SynthPart(rectangle(cx - w / 2, cy - h / 2, w, h, angle_deg=float(rng.uniform(0, 90))),
-                                   [circle(cx - w / 5, cy, 3.0), circle(cx + w / 5, cy, 4.0)]))
+            parts.append(
+                SynthPart(
+                    rectangle(cx - w / 2, cy - h / 2, w, h, angle_deg=float(rng.uniform(0, 90))),
+                    [circle(cx - w / 5, cy, 3.0), circle(cx + w / 5, cy, 4.0)],
+                )
+            )
         elif kind == 1:
             parts.append(SynthPart(circle(cx, cy, float(rng.uniform(10, 24)))))
         else:
@@ -70,8 +74,7 @@ def _scene(k: int) -> list[SynthPart]:
 
 def _render_one(args: tuple[int, str]) -> str:
     k, path = args
-    scan = render_scan(_scene(k), dpi=DPI, size_mm=A4_MM, blur_px=1.0, noise=0.006,
-                       illumination=(0.05, -0.04), seed=k)
+    scan = render_scan(_scene(k), dpi=DPI, size_mm=A4_MM, blur_px=1.0, noise=0.006, illumination=(0.05, -0.04), seed=k)
     save_scan(scan, path)
     return path
 
@@ -109,9 +112,12 @@ def _timed(label: str, folder: Path, out: Path, **kw):
     seconds = time.perf_counter() - t0
     rss = sorted(v / 1024 for v in summary.worker_max_rss_kb.values())
     n = summary.measured + summary.failed
-    print(f"{label:<34} {n:4d} files in {seconds:6.1f} s  {n / seconds:5.2f} files/s  failed {summary.failed}  "
-          f"worker CPU {summary.worker_cpu_seconds:6.1f} s ({summary.worker_cpu_seconds / seconds:.2f} cores busy)  "
-          f"worker peak RSS {', '.join(f'{r:.0f}' for r in rss)} MiB  [load {os.getloadavg()[0]:.1f}]", flush=True)
+    print(
+        f"{label:<34} {n:4d} files in {seconds:6.1f} s  {n / seconds:5.2f} files/s  failed {summary.failed}  "
+        f"worker CPU {summary.worker_cpu_seconds:6.1f} s ({summary.worker_cpu_seconds / seconds:.2f} cores busy)  "
+        f"worker peak RSS {', '.join(f'{r:.0f}' for r in rss)} MiB  [load {os.getloadavg()[0]:.1f}]",
+        flush=True,
+    )
     return summary, seconds
 
 
@@ -128,8 +134,11 @@ def main() -> None:
     work = Path(tempfile.mkdtemp(prefix="scanmass-bench-batch-"))
     try:
         folder = _subset(scans, args.files, args.format, work / "scans")
-        print(f"{args.files} A4 scans at {DPI} dpi ({args.format}), {os.cpu_count()} cores, "
-              f"load average {', '.join(f'{v:.1f}' for v in os.getloadavg())}", flush=True)
+        print(
+            f"{args.files} A4 scans at {DPI} dpi ({args.format}), {os.cpu_count()} cores, "
+            f"load average {', '.join(f'{v:.1f}' for v in os.getloadavg())}",
+            flush=True,
+        )
 
         s1, t1 = _timed("process pool, 1 worker", folder, work / "out1", workers=1)
         s2, t2 = _timed("process pool, 2 workers", folder, work / "out2", workers=2)
@@ -142,36 +151,62 @@ def main() -> None:
                 print("dask.distributed not installed: Dask run skipped")
             else:
                 sd, td = _timed("Dask local:2 (incl. cluster start)", folder, work / "outd", cluster="local:2")
-                print(f"Dask overhead vs 2-process pool (both incl. start-up): {100 * (td / t2 - 1):+.1f} % "
-                      "(target <= 15 %)", flush=True)
+                print(
+                    f"Dask overhead vs 2-process pool (both incl. start-up): {100 * (td / t2 - 1):+.1f} % "
+                    "(target <= 15 %)",
+                    flush=True,
+                )
                 from distributed import LocalCluster
 
                 t0 = time.perf_counter()
-                with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
-                                  dashboard_address=None) as running:
+                with LocalCluster(
+                    n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
+                ) as running:
                     t_start = time.perf_counter() - t0
-                    sr, tr = _timed("Dask, running cluster (tcp://)", folder, work / "outr",
-                                    cluster=running.scheduler_address)
-                print(f"LocalCluster start {t_start:.1f} s; on a cluster started with dask's default worker "
-                      f"environment (MALLOC_TRIM_THRESHOLD_ set): {100 * (tr / t2 - 1):+.1f} % vs the 2-process pool",
-                      flush=True)
+                    sr, tr = _timed(
+                        "Dask, running cluster (tcp://)", folder, work / "outr", cluster=running.scheduler_address
+                    )
+                print(
+                    f"LocalCluster start {t_start:.1f} s; on a cluster started with dask's default worker "
+                    f"environment (MALLOC_TRIM_THRESHOLD_ set): {100 * (tr / t2 - 1):+.1f} % vs the 2-process pool",
+                    flush=True,
+                )
 
         t0 = time.perf_counter()
         again = run_batch(folder, work / "out2", workers=2)
         t_resume = time.perf_counter() - t0
-        print(f"resume a done folder (library): {t_resume:.2f} s, measured {again.measured}, "
-              f"unchanged {again.unchanged} (target < 2 s, nothing re-measured)", flush=True)
+        print(
+            f"resume a done folder (library): {t_resume:.2f} s, measured {again.measured}, "
+            f"unchanged {again.unchanged} (target < 2 s, nothing re-measured)",
+            flush=True,
+        )
         t0 = time.perf_counter()
-        cmd = [sys.executable, "-c", "from scanmass.cli.app import app; app()", "batch", str(folder),
-               "--out", str(work / "out2"), "--workers", "2", "--quiet"]
+        cmd = [
+            sys.executable,
+            "-c",
+            "from scanmass.cli.app import app; app()",
+            "batch",
+            str(folder),
+            "--out",
+            str(work / "out2"),
+            "--workers",
+            "2",
+            "--quiet",
+        ]
         done = subprocess.run(cmd, capture_output=True, text=True)
         t_cli = time.perf_counter() - t0
-        print(f"resume a done folder (CLI, incl. Python start-up): {t_cli:.2f} s, exit {done.returncode}: "
-              f"{done.stdout.splitlines()[0] if done.stdout else done.stderr.strip()}", flush=True)
+        print(
+            f"resume a done folder (CLI, incl. Python start-up): {t_cli:.2f} s, exit {done.returncode}: "
+            f"{done.stdout.splitlines()[0] if done.stdout else done.stderr.strip()}",
+            flush=True,
+        )
 
         per_file = t1 / max(1, s1.measured + s1.failed)
-        print(f"one worker: {per_file:.2f} s per file; "
-              f"largest worker peak RSS {max(s2.worker_max_rss_kb.values()) / 1024:.0f} MiB", flush=True)
+        print(
+            f"one worker: {per_file:.2f} s per file; "
+            f"largest worker peak RSS {max(s2.worker_max_rss_kb.values()) / 1024:.0f} MiB",
+            flush=True,
+        )
     finally:
         shutil.rmtree(work, ignore_errors=True)
 

@@ -27,7 +27,7 @@ from shapely.geometry import Polygon
 
 from scanmass import measure
 from scanmass.outputs.export import export_dxf, fit_tolerance_default_mm
-from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, save_scan, render_scan
+from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
 
 def _slot(cx: float, cy: float, length: float, r: float) -> np.ndarray:
@@ -56,7 +56,10 @@ def _polygons(path: Path) -> list[Polygon]:
     msp = ezdxf.readfile(path).modelspace()
     outers = [Polygon(_ring(e)) for e in msp.query('LWPOLYLINE[layer=="OUTLINE"]')]
     holes = [Polygon(_ring(e)) for e in msp.query('LWPOLYLINE CIRCLE[layer=="HOLES"]')]
-    return [Polygon(o.exterior.coords, [h.exterior.coords for h in holes if o.contains(h.representative_point())]) for o in outers]
+    return [
+        Polygon(o.exterior.coords, [h.exterior.coords for h in holes if o.contains(h.representative_point())])
+        for o in outers
+    ]
 
 
 def main() -> None:
@@ -73,8 +76,10 @@ def main() -> None:
         m = measure(png)
         print(f"measured {len(m.parts)} parts at {args.dpi:g} dpi in {time.perf_counter() - t0:.2f} s")
         for p in m.parts:
-            print(f"  part {p.label}: area {p.area_mm2:.3f} mm2, u {p.area_u_mm2:.3f}; perimeter {p.perimeter_mm:.1f} mm; "
-                  f"auto fit tolerance {fit_tolerance_default_mm(p) * 1000:.1f} um")
+            print(
+                f"  part {p.label}: area {p.area_mm2:.3f} mm2, u {p.area_u_mm2:.3f}; perimeter {p.perimeter_mm:.1f} mm; "
+                f"auto fit tolerance {fit_tolerance_default_mm(p) * 1000:.1f} um"
+            )
         header = f"{'tolerance':>10} {'vert in':>8} {'vert out':>8} {'ratio':>7} {'arcs':>5} {'circ':>5} {'time s':>7} {'max |dA| mm2':>13} {'bound':>9} {'max |dc| um':>11}"
         print(header)
         for tol in (None, "auto", 0.005, 0.01, 0.02, 0.05):
@@ -88,8 +93,10 @@ def main() -> None:
                 d_c = max(d_c, math.dist((poly.centroid.x, poly.centroid.y), part.centroid_mm))
                 t = 0.0 if tol is None else (fit_tolerance_default_mm(part) if tol == "auto" else tol)
                 bound = max(bound, t * part.perimeter_mm)
-            print(f"{str(tol):>10} {s.vertices_in:8d} {s.vertices_out:8d} {s.compression:7.1f} {s.arcs:5d} {s.circles:5d} "
-                  f"{dt:7.3f} {d_area:13.5f} {bound:9.4f} {d_c * 1000:11.3f}")
+            print(
+                f"{str(tol):>10} {s.vertices_in:8d} {s.vertices_out:8d} {s.compression:7.1f} {s.arcs:5d} {s.circles:5d} "
+                f"{dt:7.3f} {d_area:13.5f} {bound:9.4f} {d_c * 1000:11.3f}"
+            )
         print("(|dA| with tolerance None comes from round holes written as circles)")
 
 

@@ -15,7 +15,6 @@ second moments <= 0.3 %, >= 90 % of errors within 3 stated sigma; 6 mm part with
 from __future__ import annotations
 
 import argparse
-import dataclasses
 import math
 import sys
 import tempfile
@@ -41,7 +40,10 @@ def shapes(rng):
     cx, cy = rng.uniform(92, 128), rng.uniform(105, 185)
     a = rng.uniform(0, 180)
     if kind == 0:
-        outer, holes = rectangle(cx - 40, cy - 25, 80, 50), [circle(cx - 10, cy, 8, 256), circle(cx + 22, cy + 8, 5, 256)]
+        outer, holes = (
+            rectangle(cx - 40, cy - 25, 80, 50),
+            [circle(cx - 10, cy, 8, 256), circle(cx + 22, cy + 8, 5, 256)],
+        )
     elif kind == 1:
         outer, holes = l_section(cx - 35, cy - 30, 70, 60, 12), [circle(cx - 29, cy + 20, 3.5, 256)]
     else:
@@ -50,9 +52,16 @@ def shapes(rng):
 
 
 def camera(rng, size, f_px, k1=0.0):
-    return make_camera(size=size, f_px=f_px, target_mm=(105 + rng.uniform(-5, 5), 148 + rng.uniform(-5, 5)),
-                       distance_mm=f_px * 0.1 * 1.05, tilt_deg=rng.uniform(0, 30), tilt_dir_deg=rng.uniform(0, 360),
-                       roll_deg=90 + rng.uniform(-20, 20), k1=k1)
+    return make_camera(
+        size=size,
+        f_px=f_px,
+        target_mm=(105 + rng.uniform(-5, 5), 148 + rng.uniform(-5, 5)),
+        distance_mm=f_px * 0.1 * 1.05,
+        tilt_deg=rng.uniform(0, 30),
+        tilt_dir_deg=rng.uniform(0, 360),
+        roll_deg=90 + rng.uniform(-20, 20),
+        k1=k1,
+    )
 
 
 def run(condition, n, size, f_px, rng, profile=None, k1=0.0, height=0.0, give_thickness=True):
@@ -67,23 +76,38 @@ def run(condition, n, size, f_px, rng, profile=None, k1=0.0, height=0.0, give_th
         m = measure(img, printed_x_mm=100.0, printed_y_mm=100.0, lens=profile, **kw)
         p = min(m.parts, key=lambda q: math.dist(q.centroid_mm, t["centroid"]))
         e_c = math.dist(p.centroid_mm, t["centroid"])
-        rows.append({
-            "centroid_mm": e_c, "area_rel": abs(p.area_mm2 / t["area"] - 1),
-            "ixx_rel": abs(p.ixx_mm4 / t["ixx"] - 1), "iyy_rel": abs(p.iyy_mm4 / t["iyy"] - 1),
-            "z": [abs(p.area_mm2 - t["area"]) / p.area_u_mm2, abs(p.centroid_mm[0] - t["centroid"][0]) / p.centroid_u_mm[0],
-                  abs(p.centroid_mm[1] - t["centroid"][1]) / p.centroid_u_mm[1], abs(p.ixx_mm4 - t["ixx"]) / p.ixx_u_mm4,
-                  abs(p.iyy_mm4 - t["iyy"]) / p.iyy_u_mm4],
-            "mm_per_px": m.scale.mm_per_px, "rms_px": m.scale.reprojection_rms_px,
-        })
+        rows.append(
+            {
+                "centroid_mm": e_c,
+                "area_rel": abs(p.area_mm2 / t["area"] - 1),
+                "ixx_rel": abs(p.ixx_mm4 / t["ixx"] - 1),
+                "iyy_rel": abs(p.iyy_mm4 / t["iyy"] - 1),
+                "z": [
+                    abs(p.area_mm2 - t["area"]) / p.area_u_mm2,
+                    abs(p.centroid_mm[0] - t["centroid"][0]) / p.centroid_u_mm[0],
+                    abs(p.centroid_mm[1] - t["centroid"][1]) / p.centroid_u_mm[1],
+                    abs(p.ixx_mm4 - t["ixx"]) / p.ixx_u_mm4,
+                    abs(p.iyy_mm4 - t["iyy"]) / p.iyy_u_mm4,
+                ],
+                "mm_per_px": m.scale.mm_per_px,
+                "rms_px": m.scale.reprojection_rms_px,
+            }
+        )
     z = np.concatenate([r["z"] for r in rows])
-    print(f"{condition}: n={n}, {np.median([r['mm_per_px'] for r in rows]):.3f} mm/px, reprojection RMS "
-          f"{np.median([r['rms_px'] for r in rows]):.3f} px")
-    print(f"  median centroid error {np.median([r['centroid_mm'] for r in rows]):.4f} mm (target 0.05), "
-          f"median area error {100 * np.median([r['area_rel'] for r in rows]):.4f} % (target 0.1), "
-          f"max area error {100 * np.max([r['area_rel'] for r in rows]):.4f} %")
-    print(f"  median Ixx/Iyy error {100 * np.median([r['ixx_rel'] for r in rows]):.4f} / "
-          f"{100 * np.median([r['iyy_rel'] for r in rows]):.4f} % (target 0.3); within 3 sigma: {100 * np.mean(z <= 3):.0f} % "
-          f"(target 90), within 2 sigma {100 * np.mean(z <= 2):.0f} %")
+    print(
+        f"{condition}: n={n}, {np.median([r['mm_per_px'] for r in rows]):.3f} mm/px, reprojection RMS "
+        f"{np.median([r['rms_px'] for r in rows]):.3f} px"
+    )
+    print(
+        f"  median centroid error {np.median([r['centroid_mm'] for r in rows]):.4f} mm (target 0.05), "
+        f"median area error {100 * np.median([r['area_rel'] for r in rows]):.4f} % (target 0.1), "
+        f"max area error {100 * np.max([r['area_rel'] for r in rows]):.4f} %"
+    )
+    print(
+        f"  median Ixx/Iyy error {100 * np.median([r['ixx_rel'] for r in rows]):.4f} / "
+        f"{100 * np.median([r['iyy_rel'] for r in rows]):.4f} % (target 0.3); within 3 sigma: {100 * np.mean(z <= 3):.0f} % "
+        f"(target 90), within 2 sigma {100 * np.mean(z <= 2):.0f} %"
+    )
 
 
 def main():
@@ -100,14 +124,23 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         paths = []
         for i, (tilt, az) in enumerate([(25, 0), (30, 90), (20, 180), (35, 270), (15, 45), (28, 135)]):
-            cam = make_camera(size=size, f_px=f_px, distance_mm=f_px * 0.1 * 0.95, tilt_deg=tilt, tilt_dir_deg=az,
-                              roll_deg=90, k1=-0.05)
+            cam = make_camera(
+                size=size,
+                f_px=f_px,
+                distance_mm=f_px * 0.1 * 0.95,
+                tilt_deg=tilt,
+                tilt_dir_deg=az,
+                roll_deg=90,
+                k1=-0.05,
+            )
             path = Path(tmp) / f"v{i}.png"
             Image.fromarray(render_photo(MAT, [], cam, seed=100 + i)).save(path)
             paths.append(path)
         profile = calibrate_lens(paths)
-    print(f"lens profile: f {profile.camera_matrix[0, 0]:.1f} px (true {f_px:.1f}), k1 {profile.dist_coeffs[0]:+.4f} "
-          f"(true -0.05), RMS {profile.rms_px:.3f} px")
+    print(
+        f"lens profile: f {profile.camera_matrix[0, 0]:.1f} px (true {f_px:.1f}), k1 {profile.dist_coeffs[0]:+.4f} "
+        f"(true -0.05), RMS {profile.rms_px:.3f} px"
+    )
     run("k1 = -0.05 with the lens profile", args.n, size, f_px, rng, profile=profile, k1=-0.05)
     run("6 mm thick part with --thickness", args.n, size, f_px, rng, height=6.0)
     run("6 mm thick part without --thickness", max(3, args.n // 3), size, f_px, rng, height=6.0, give_thickness=False)

@@ -70,7 +70,9 @@ def make_scan(path: Path) -> None:
         SynthPart(circle(440, 80, 30)),
         SynthPart(circle(440, 260, 40), [circle(440, 260, 30)]),
     ]
-    scan = render_scan(parts, dpi=300, shape_px=(4000, 6000), blur_px=1.0, noise=0.006, illumination=(0.05, -0.03), colour=True, seed=5)
+    scan = render_scan(
+        parts, dpi=300, shape_px=(4000, 6000), blur_px=1.0, noise=0.006, illumination=(0.05, -0.03), colour=True, seed=5
+    )
     save_scan(scan, path, quality=92)
 
 
@@ -81,7 +83,9 @@ def run_measured(code_or_cmd: list[str]) -> tuple[float, float]:
         "w = time.perf_counter() - t\n"
         "print(w, resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024, p.returncode)\n"
     )
-    out = subprocess.run([sys.executable, "-c", wrapper, *code_or_cmd], capture_output=True, text=True, check=True).stdout.split()
+    out = subprocess.run(
+        [sys.executable, "-c", wrapper, *code_or_cmd], capture_output=True, text=True, check=True
+    ).stdout.split()
     if int(out[2]) != 0:
         raise SystemExit(f"command failed: {' '.join(code_or_cmd)}")
     return float(out[0]), float(out[1])
@@ -100,7 +104,16 @@ def main() -> None:
         cases = {
             "decode only": [sys.executable, "-c", DECODE_ONLY, str(scan)],
             "baseline (skimage Otsu + regionprops)": [sys.executable, "-c", BASELINE, str(scan)],
-            "scanmass measure": [sys.executable, "-m", "scanmass", "measure", str(scan), "--quiet", "--json", os.path.join(tmp, "r.json")],
+            "scanmass measure": [
+                sys.executable,
+                "-m",
+                "scanmass",
+                "measure",
+                str(scan),
+                "--quiet",
+                "--json",
+                os.path.join(tmp, "r.json"),
+            ],
         }
         results = {}
         for name, cmd in cases.items():

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Any
 __version__ = "0.1.0"
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
+    from scanmass.batch.runner import run_batch
     from scanmass.errors import ScanmassError
     from scanmass.load.decode import LoadedImage, load_image
     from scanmass.mass.assembly import AssemblyResult, assemble
@@ -23,14 +24,12 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from scanmass.mass.materials import Material, find_material, load_materials
     from scanmass.mass.plate import apply_mass, plate_mass
     from scanmass.measurement import Hole, Measurement, Part
-    from scanmass.pipeline import MeasureOptions
     from scanmass.outputs.export import export_dxf, export_svg
     from scanmass.outputs.report import write_report
-    from scanmass.pipeline import measure
+    from scanmass.pipeline import MeasureOptions, measure
     from scanmass.scale.mat import make_mat
     from scanmass.scale.planemap import PlaneMap
     from scanmass.section import SectionProperties, section_properties
-    from scanmass.batch.runner import run_batch
 
 #: Public name -> the module that holds it (imported on first use).
 _WHERE = {

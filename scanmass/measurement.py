@@ -65,7 +65,9 @@ def _ring_from_list(data: Any) -> np.ndarray | None:
         return None
     arr = np.asarray(data, dtype=float)
     if arr.ndim != 2 or arr.shape[1] != 2:
-        raise ResultFormatError("an outline is not a list of [x, y] pairs; re-create the result with 'scanmass measure'")
+        raise ResultFormatError(
+            "an outline is not a list of [x, y] pairs; re-create the result with 'scanmass measure'"
+        )
     return arr
 
 
@@ -240,15 +242,22 @@ class Measurement:
         return text
 
     @classmethod
-    def from_dict(cls, doc: dict[str, Any], *, path: str | None = None) -> "Measurement":
+    def from_dict(cls, doc: dict[str, Any], *, path: str | None = None) -> Measurement:
         """Rebuild a Measurement from a result document, checking its schema."""
         if not isinstance(doc, dict) or "schema" not in doc:
-            raise ResultFormatError("not a scanmass result document (no 'schema' key); create one with 'scanmass measure --json'", path=path)
+            raise ResultFormatError(
+                "not a scanmass result document (no 'schema' key); create one with 'scanmass measure --json'", path=path
+            )
         schema = str(doc["schema"])
         if not schema.startswith("scanmass.result/"):
-            raise ResultFormatError(f"schema {schema!r} is not a scanmass result; create one with 'scanmass measure --json'", path=path)
+            raise ResultFormatError(
+                f"schema {schema!r} is not a scanmass result; create one with 'scanmass measure --json'", path=path
+            )
         if schema != SCHEMA:
-            raise ResultFormatError(f"result schema {schema!r} is not supported by this version (expects {SCHEMA!r}); re-measure the image", path=path)
+            raise ResultFormatError(
+                f"result schema {schema!r} is not supported by this version (expects {SCHEMA!r}); re-measure the image",
+                path=path,
+            )
         try:
             source = SourceInfo(**doc["source"])
             scale = ScaleInfo(**doc["scale"])
@@ -267,7 +276,9 @@ class Measurement:
                     p[key] = _tuple(p[key])
                 parts.append(Part(holes=holes, **p))
         except (KeyError, TypeError, ValueError) as exc:
-            raise ResultFormatError(f"result document is incomplete or malformed ({exc}); re-measure the image", path=path) from None
+            raise ResultFormatError(
+                f"result document is incomplete or malformed ({exc}); re-measure the image", path=path
+            ) from None
         return cls(
             source=source,
             scale=scale,
@@ -280,12 +291,15 @@ class Measurement:
         )
 
     @classmethod
-    def from_json(cls, text: str, *, path: str | None = None) -> "Measurement":
+    def from_json(cls, text: str, *, path: str | None = None) -> Measurement:
         """Parse a result document from JSON text."""
         try:
             doc = json.loads(text)
         except json.JSONDecodeError as exc:
-            raise ResultFormatError(f"not valid JSON ({exc.msg} at line {exc.lineno}); pass a file written by 'scanmass measure --json'", path=path) from None
+            raise ResultFormatError(
+                f"not valid JSON ({exc.msg} at line {exc.lineno}); pass a file written by 'scanmass measure --json'",
+                path=path,
+            ) from None
         return cls.from_dict(doc, path=path)
 
     def csv_rows(self) -> list[dict[str, Any]]:
@@ -347,11 +361,38 @@ def _tuple(value: Any) -> tuple[float, ...]:
 
 #: Column order of the per-part CSV.
 CSV_COLUMNS = [
-    "file", "part", "area_mm2", "area_u_mm2", "centroid_x_mm", "centroid_y_mm",
-    "centroid_x_u_mm", "centroid_y_u_mm", "perimeter_mm", "ixx_mm4", "iyy_mm4", "ixy_mm4",
-    "ixx_u_mm4", "iyy_u_mm4", "ixy_u_mm4", "i1_mm4", "i2_mm4", "principal_angle_deg",
-    "polar_mm4", "modulus_top_mm3", "modulus_bottom_mm3", "modulus_right_mm3",
-    "modulus_left_mm3", "bbox_xmin_mm", "bbox_ymin_mm", "bbox_xmax_mm", "bbox_ymax_mm",
-    "caliper_max_mm", "caliper_min_mm", "convex_area_mm2", "holes", "hole_diameters_mm",
-    "mass_g", "mass_u_g",
+    "file",
+    "part",
+    "area_mm2",
+    "area_u_mm2",
+    "centroid_x_mm",
+    "centroid_y_mm",
+    "centroid_x_u_mm",
+    "centroid_y_u_mm",
+    "perimeter_mm",
+    "ixx_mm4",
+    "iyy_mm4",
+    "ixy_mm4",
+    "ixx_u_mm4",
+    "iyy_u_mm4",
+    "ixy_u_mm4",
+    "i1_mm4",
+    "i2_mm4",
+    "principal_angle_deg",
+    "polar_mm4",
+    "modulus_top_mm3",
+    "modulus_bottom_mm3",
+    "modulus_right_mm3",
+    "modulus_left_mm3",
+    "bbox_xmin_mm",
+    "bbox_ymin_mm",
+    "bbox_xmax_mm",
+    "bbox_ymax_mm",
+    "caliper_max_mm",
+    "caliper_min_mm",
+    "convex_area_mm2",
+    "holes",
+    "hole_diameters_mm",
+    "mass_g",
+    "mass_u_g",
 ]

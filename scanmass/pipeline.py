@@ -10,6 +10,7 @@ import math
 import os
 from dataclasses import dataclass, fields
 from typing import Any
+
 import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
@@ -30,8 +31,14 @@ from scanmass.uncertainty import (
 __all__ = ["measure", "measure_loaded", "measure_image", "MeasureOptions"]
 
 _FIGURES_SCALE_POWER = {
-    "area_mm2": 2, "ixx_mm4": 4, "iyy_mm4": 4, "ixy_mm4": 4, "i1_mm4": 4, "i2_mm4": 4,
-    "polar_mm4": 4, "principal_angle_deg": 0,
+    "area_mm2": 2,
+    "ixx_mm4": 4,
+    "iyy_mm4": 4,
+    "ixy_mm4": 4,
+    "i1_mm4": 4,
+    "i2_mm4": 4,
+    "polar_mm4": 4,
+    "principal_angle_deg": 0,
 }
 
 
@@ -56,13 +63,21 @@ class MeasureOptions:
 
     def check(self, path: str | None) -> None:
         if not (math.isfinite(self.min_area_mm2) and self.min_area_mm2 >= 0):
-            raise OptionError(f"minimum area {self.min_area_mm2!r} mm2 must be zero or positive, e.g. --min-area 2", path=path)
-        if self.min_hole_area_mm2 is not None and not (math.isfinite(self.min_hole_area_mm2) and self.min_hole_area_mm2 >= 0):
+            raise OptionError(
+                f"minimum area {self.min_area_mm2!r} mm2 must be zero or positive, e.g. --min-area 2", path=path
+            )
+        if self.min_hole_area_mm2 is not None and not (
+            math.isfinite(self.min_hole_area_mm2) and self.min_hole_area_mm2 >= 0
+        ):
             raise OptionError(f"minimum hole area {self.min_hole_area_mm2!r} mm2 must be zero or positive", path=path)
         if not (math.isfinite(self.dpi_rel_u) and 0 <= self.dpi_rel_u < 0.5):
-            raise OptionError(f"dpi uncertainty {self.dpi_rel_u!r} must be a fraction in [0, 0.5), e.g. 0.001 for 0.1 %", path=path)
+            raise OptionError(
+                f"dpi uncertainty {self.dpi_rel_u!r} must be a fraction in [0, 0.5), e.g. 0.001 for 0.1 %", path=path
+            )
         if int(self.max_pixels) <= 0:
-            raise OptionError(f"max pixels {self.max_pixels!r} must be positive, e.g. --max-pixels 400000000", path=path)
+            raise OptionError(
+                f"max pixels {self.max_pixels!r} must be positive, e.g. --max-pixels 400000000", path=path
+            )
 
 
 def measure(
@@ -142,10 +157,25 @@ def measure(
     (100.0, [15.0, 10.0])
     """
     measurement, _ = measure_loaded(
-        source, dpi=dpi, dpi_rel_u=dpi_rel_u, level=level, threshold=threshold, min_area_mm2=min_area_mm2,
-        min_hole_area_mm2=min_hole_area_mm2, keep_cut=keep_cut, max_pixels=max_pixels, material=material,
-        thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm, materials_file=materials_file,
-        scale=scale, mat=mat, sheet=sheet, printed_x_mm=printed_x_mm, printed_y_mm=printed_y_mm, lens=lens,
+        source,
+        dpi=dpi,
+        dpi_rel_u=dpi_rel_u,
+        level=level,
+        threshold=threshold,
+        min_area_mm2=min_area_mm2,
+        min_hole_area_mm2=min_hole_area_mm2,
+        keep_cut=keep_cut,
+        max_pixels=max_pixels,
+        material=material,
+        thickness_mm=thickness_mm,
+        thickness_u_mm=thickness_u_mm,
+        materials_file=materials_file,
+        scale=scale,
+        mat=mat,
+        sheet=sheet,
+        printed_x_mm=printed_x_mm,
+        printed_y_mm=printed_y_mm,
+        lens=lens,
     )
     return measurement
 
@@ -164,7 +194,9 @@ def measure_loaded(
     path = None if isinstance(source, np.ndarray) else os.fspath(source)
     options.check(path)
     if material is not None and thickness_mm is None:  # a thickness alone lifts a photo's face (parallax)
-        raise OptionError("mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=path)
+        raise OptionError(
+            "mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=path
+        )
     image = load_image(source, dpi=options.dpi, max_pixels=int(options.max_pixels))
     from scanmass.scale.photo import measure_photo, scale_method
 
@@ -189,8 +221,9 @@ def scan_plane_map(image: LoadedImage, options: MeasureOptions) -> PlaneMap:
     return PlaneMap.from_dpi(image.dpi, height_px=image.height_px, rel_u=options.dpi_rel_u, note=image.dpi_note)
 
 
-def measure_image(image: LoadedImage, options: MeasureOptions, *, plane_map: PlaneMap | None = None,
-                  roi_px: np.ndarray | None = None) -> Measurement:
+def measure_image(
+    image: LoadedImage, options: MeasureOptions, *, plane_map: PlaneMap | None = None, roi_px: np.ndarray | None = None
+) -> Measurement:
     """Measure a loaded image with a given (or DPI-derived) plane map."""
     if plane_map is None:
         plane_map = scan_plane_map(image, options)
@@ -214,28 +247,50 @@ def measure_image(image: LoadedImage, options: MeasureOptions, *, plane_map: Pla
         reprojection_rms_px=plane_map.reprojection_rms_px,
         reprojection_rms_mm=plane_map.reprojection_rms_mm,
         terms=dict(plane_map.terms),
-        extra={**{k: v for k, v in plane_map.extra.items() if k not in ("matrix_samples", "undistort_samples")},
-               "px_to_mm": plane_map.matrix.tolist(),
-               "dpi_xy": list(plane_map.dpi) if plane_map.dpi else None},
+        extra={
+            **{k: v for k, v in plane_map.extra.items() if k not in ("matrix_samples", "undistort_samples")},
+            "px_to_mm": plane_map.matrix.tolist(),
+            "dpi_xy": list(plane_map.dpi) if plane_map.dpi else None,
+        },
     )
     source = SourceInfo(
-        path=image.path, sha256=image.sha256, width_px=image.width_px, height_px=image.height_px,
-        format=image.format, mode=image.mode, bit_depth=image.bit_depth, orientation_applied=image.orientation,
+        path=image.path,
+        sha256=image.sha256,
+        width_px=image.width_px,
+        height_px=image.height_px,
+        format=image.format,
+        mode=image.mode,
+        bit_depth=image.bit_depth,
+        orientation_applied=image.orientation,
     )
     cut_parts = []
     for c in seg.cut:
         ring_mm = plane_map.to_mm(c.outer_px)
-        cut_parts.append({"bbox_mm": [float(ring_mm[:, 0].min()), float(ring_mm[:, 1].min()),
-                                      float(ring_mm[:, 0].max()), float(ring_mm[:, 1].max())],
-                          "area_px": c.area_px})
+        cut_parts.append(
+            {
+                "bbox_mm": [
+                    float(ring_mm[:, 0].min()),
+                    float(ring_mm[:, 1].min()),
+                    float(ring_mm[:, 0].max()),
+                    float(ring_mm[:, 1].max()),
+                ],
+                "area_px": c.area_px,
+            }
+        )
     settings = {
-        "level": options.level, "threshold": options.threshold, "min_area_mm2": options.min_area_mm2,
-        "min_hole_area_mm2": options.min_hole_area_mm2, "keep_cut": options.keep_cut,
-        "dpi_rel_u": options.dpi_rel_u, "encoding": image.encoding, "polarity": seg.polarity,
+        "level": options.level,
+        "threshold": options.threshold,
+        "min_area_mm2": options.min_area_mm2,
+        "min_hole_area_mm2": options.min_hole_area_mm2,
+        "keep_cut": options.keep_cut,
+        "dpi_rel_u": options.dpi_rel_u,
+        "encoding": image.encoding,
+        "polarity": seg.polarity,
         "specks_ignored": seg.specks,
     }
-    return Measurement(source=source, scale=scale, parts=parts, warnings=list(seg.warnings),
-                       cut_parts=cut_parts, settings=settings)
+    return Measurement(
+        source=source, scale=scale, parts=parts, warnings=list(seg.warnings), cut_parts=cut_parts, settings=settings
+    )
 
 
 def _scale_terms(plane_map: PlaneMap, outer_px, holes_px, props) -> dict[str, float]:
@@ -243,7 +298,9 @@ def _scale_terms(plane_map: PlaneMap, outer_px, holes_px, props) -> dict[str, fl
     samples = plane_map.extra.get("matrix_samples") if plane_map.extra else None
     if samples is not None and len(samples) >= 8:
         values: dict[str, list[float]] = {}
-        hooks = plane_map.extra.get("undistort_samples") or [plane_map.undistort] * len(samples)  # e.g. a photo's parallax
+        hooks = plane_map.extra.get("undistort_samples") or [plane_map.undistort] * len(
+            samples
+        )  # e.g. a photo's parallax
         for matrix, hook in zip(samples, hooks):
             pm = PlaneMap(matrix=np.asarray(matrix), method=plane_map.method, rel_u=0.0, undistort=hook)
             sp = section_properties(pm.to_mm(outer_px), [pm.to_mm(h) for h in holes_px])
@@ -265,9 +322,16 @@ def _scale_terms(plane_map: PlaneMap, outer_px, holes_px, props) -> dict[str, fl
 
 def _figure_values(sp) -> dict[str, float]:
     return {
-        "area_mm2": sp.area_mm2, "centroid_x_mm": sp.centroid_mm[0], "centroid_y_mm": sp.centroid_mm[1],
-        "ixx_mm4": sp.ixx_mm4, "iyy_mm4": sp.iyy_mm4, "ixy_mm4": sp.ixy_mm4, "i1_mm4": sp.i1_mm4,
-        "i2_mm4": sp.i2_mm4, "polar_mm4": sp.polar_mm4, "principal_angle_deg": sp.principal_angle_deg,
+        "area_mm2": sp.area_mm2,
+        "centroid_x_mm": sp.centroid_mm[0],
+        "centroid_y_mm": sp.centroid_mm[1],
+        "ixx_mm4": sp.ixx_mm4,
+        "iyy_mm4": sp.iyy_mm4,
+        "ixy_mm4": sp.ixy_mm4,
+        "i1_mm4": sp.i1_mm4,
+        "i2_mm4": sp.i2_mm4,
+        "polar_mm4": sp.polar_mm4,
+        "principal_angle_deg": sp.principal_angle_deg,
         "perimeter_mm": sp.perimeter_mm,
     }
 
@@ -298,8 +362,14 @@ def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
         "edge": edge_u,
         "threshold": thresh_u,
         "scale": scale_u,
-        "inputs": {"noise_rel": rings.noise_rel, "blur_px": rings.blur_px, "level_rel_u": rings.level_rel_u,
-                   "offset_px": offset_px, "contrast": rings.contrast, "rings": n_rings},
+        "inputs": {
+            "noise_rel": rings.noise_rel,
+            "blur_px": rings.blur_px,
+            "level_rel_u": rings.level_rel_u,
+            "offset_px": offset_px,
+            "contrast": rings.contrast,
+            "rings": n_rings,
+        },
     }
 
     holes = []
@@ -313,18 +383,38 @@ def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
         area_u = combine(perim * r_edge, perim * r_off, 2 * plane_map.rel_u * area_mm2)
         cen_u = tuple(combine(c_edge, plane_map.rel_u * abs(c)) for c in centroid_mm)
         circ_u = tuple(combine(c_edge, plane_map.rel_u * abs(c)) for c in fit.centre_mm)
-        holes.append(Hole(
-            label=k, area_mm2=area_mm2, area_u_mm2=area_u, centroid_mm=centroid_mm, centroid_u_mm=cen_u,
-            perimeter_mm=ring_perimeter(ring_mm), circle_centre_mm=fit.centre_mm, circle_centre_u_mm=circ_u,
-            diameter_mm=fit.diameter_mm, diameter_u_mm=d_u, roundness_mm=fit.roundness_mm, outline_mm=ring_mm,
-        ))
+        holes.append(
+            Hole(
+                label=k,
+                area_mm2=area_mm2,
+                area_u_mm2=area_u,
+                centroid_mm=centroid_mm,
+                centroid_u_mm=cen_u,
+                perimeter_mm=ring_perimeter(ring_mm),
+                circle_centre_mm=fit.centre_mm,
+                circle_centre_u_mm=circ_u,
+                diameter_mm=fit.diameter_mm,
+                diameter_u_mm=d_u,
+                roundness_mm=fit.roundness_mm,
+                outline_mm=ring_mm,
+            )
+        )
 
     return Part(
         label=rings.label,
         **{f.name: getattr(props, f.name) for f in fields(props)},  # the section properties, same names
-        area_u_mm2=total["area_mm2"], perimeter_u_mm=total["perimeter_mm"],
+        area_u_mm2=total["area_mm2"],
+        perimeter_u_mm=total["perimeter_mm"],
         centroid_u_mm=(total["centroid_x_mm"], total["centroid_y_mm"]),
-        ixx_u_mm4=total["ixx_mm4"], iyy_u_mm4=total["iyy_mm4"], ixy_u_mm4=total["ixy_mm4"],
-        i1_u_mm4=total["i1_mm4"], i2_u_mm4=total["i2_mm4"], principal_angle_u_deg=total["principal_angle_deg"],
-        polar_u_mm4=total["polar_mm4"], holes=holes, cut=rings.cut, uncertainty_terms=terms, outline_mm=outer_mm,
+        ixx_u_mm4=total["ixx_mm4"],
+        iyy_u_mm4=total["iyy_mm4"],
+        ixy_u_mm4=total["ixy_mm4"],
+        i1_u_mm4=total["i1_mm4"],
+        i2_u_mm4=total["i2_mm4"],
+        principal_angle_u_deg=total["principal_angle_deg"],
+        polar_u_mm4=total["polar_mm4"],
+        holes=holes,
+        cut=rings.cut,
+        uncertainty_terms=terms,
+        outline_mm=outer_mm,
     )

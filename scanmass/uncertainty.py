@@ -86,12 +86,20 @@ def build_edge_model(
         sig.append(s_px * scale)
         corr.append(CORRELATION_PX * scale)
     bi = boundary_influence(rings[0], rings[1:])
-    return EdgeModel(bi["points"], bi["normals"], bi["lengths"], bi["ring"],
-                     np.concatenate(sig), np.concatenate(corr), float(offset_mm))
+    return EdgeModel(
+        bi["points"],
+        bi["normals"],
+        bi["lengths"],
+        bi["ring"],
+        np.concatenate(sig),
+        np.concatenate(corr),
+        float(offset_mm),
+    )
 
 
-def figure_weights(model: EdgeModel, area_mm2: float, centroid_mm: tuple[float, float],
-                   ixx: float, iyy: float, ixy: float) -> dict[str, np.ndarray]:
+def figure_weights(
+    model: EdgeModel, area_mm2: float, centroid_mm: tuple[float, float], ixx: float, iyy: float, ixy: float
+) -> dict[str, np.ndarray]:
     """Shape-derivative weights of each figure with respect to normal boundary motion."""
     dx = model.points_mm[:, 0] - centroid_mm[0]
     dy = model.points_mm[:, 1] - centroid_mm[1]
@@ -112,7 +120,9 @@ def figure_weights(model: EdgeModel, area_mm2: float, centroid_mm: tuple[float, 
         w["i1_mm4"] = mean_w + dr
         w["i2_mm4"] = mean_w - dr
         a, b = ixx - iyy, -2.0 * ixy
-        w["principal_angle_deg"] = np.degrees(0.5 * (a * (-2.0 * w["ixy_mm4"]) - b * (w["ixx_mm4"] - w["iyy_mm4"])) / (a * a + b * b))
+        w["principal_angle_deg"] = np.degrees(
+            0.5 * (a * (-2.0 * w["ixy_mm4"]) - b * (w["ixx_mm4"] - w["iyy_mm4"])) / (a * a + b * b)
+        )
     else:
         w["i1_mm4"] = mean_w
         w["i2_mm4"] = mean_w

@@ -40,7 +40,10 @@ def rect_ring(x0: float, y0: float, w: float, h: float) -> np.ndarray:
 
 def l_ring(x0: float, y0: float) -> np.ndarray:
     """An L: 60 mm along x by 10 mm thick, with a 10 mm thick upright 40 mm tall."""
-    return np.array([[x0, y0], [x0 + 60, y0], [x0 + 60, y0 + 10], [x0 + 10, y0 + 10], [x0 + 10, y0 + 40], [x0, y0 + 40]], dtype=float)
+    return np.array(
+        [[x0, y0], [x0 + 60, y0], [x0 + 60, y0 + 10], [x0 + 10, y0 + 10], [x0 + 10, y0 + 40], [x0, y0 + 40]],
+        dtype=float,
+    )
 
 
 def stadium_ring(cx: float, cy: float, length: float, r: float, step_mm: float) -> np.ndarray:
@@ -64,28 +67,58 @@ def make_part(label: int, outer: np.ndarray, holes: list[np.ndarray] = ()) -> Pa
     for k, ring in enumerate(holes, start=1):
         hp = section_properties(ring)
         fit = fit_circle(ring)
-        hole_objs.append(Hole(
-            label=k, area_mm2=hp.area_mm2, area_u_mm2=EDGE_U_MM * hp.perimeter_mm,
-            centroid_mm=hp.centroid_mm, centroid_u_mm=(0.002, 0.002), perimeter_mm=hp.perimeter_mm,
-            circle_centre_mm=fit.centre_mm, circle_centre_u_mm=(0.002, 0.002),
-            diameter_mm=fit.diameter_mm, diameter_u_mm=2 * EDGE_U_MM, roundness_mm=fit.roundness_mm,
-            outline_mm=np.asarray(ring, dtype=float),
-        ))
+        hole_objs.append(
+            Hole(
+                label=k,
+                area_mm2=hp.area_mm2,
+                area_u_mm2=EDGE_U_MM * hp.perimeter_mm,
+                centroid_mm=hp.centroid_mm,
+                centroid_u_mm=(0.002, 0.002),
+                perimeter_mm=hp.perimeter_mm,
+                circle_centre_mm=fit.centre_mm,
+                circle_centre_u_mm=(0.002, 0.002),
+                diameter_mm=fit.diameter_mm,
+                diameter_u_mm=2 * EDGE_U_MM,
+                roundness_mm=fit.roundness_mm,
+                outline_mm=np.asarray(ring, dtype=float),
+            )
+        )
     return Part(
-        label=label, area_mm2=sp.area_mm2, area_u_mm2=EDGE_U_MM * sp.perimeter_mm,
-        perimeter_mm=sp.perimeter_mm, perimeter_u_mm=0.05, centroid_mm=sp.centroid_mm,
-        centroid_u_mm=(0.003, 0.004), ixx_mm4=sp.ixx_mm4, iyy_mm4=sp.iyy_mm4, ixy_mm4=sp.ixy_mm4,
-        ixx_u_mm4=2 * u_rel * abs(sp.ixx_mm4), iyy_u_mm4=2 * u_rel * abs(sp.iyy_mm4),
-        ixy_u_mm4=2 * u_rel * max(abs(sp.ixy_mm4), 1.0), i1_mm4=sp.i1_mm4, i2_mm4=sp.i2_mm4,
-        i1_u_mm4=2 * u_rel * sp.i1_mm4, i2_u_mm4=2 * u_rel * sp.i2_mm4,
-        principal_angle_deg=sp.principal_angle_deg, principal_angle_u_deg=0.01,
-        polar_mm4=sp.polar_mm4, polar_u_mm4=2 * u_rel * sp.polar_mm4,
-        gyration_x_mm=sp.gyration_x_mm, gyration_y_mm=sp.gyration_y_mm,
-        gyration_1_mm=sp.gyration_1_mm, gyration_2_mm=sp.gyration_2_mm,
-        modulus_top_mm3=sp.modulus_top_mm3, modulus_bottom_mm3=sp.modulus_bottom_mm3,
-        modulus_right_mm3=sp.modulus_right_mm3, modulus_left_mm3=sp.modulus_left_mm3,
-        bbox_mm=sp.bbox_mm, caliper_max_mm=sp.caliper_max_mm, caliper_min_mm=sp.caliper_min_mm,
-        convex_area_mm2=sp.convex_area_mm2, holes=hole_objs, outline_mm=np.asarray(outer, dtype=float),
+        label=label,
+        area_mm2=sp.area_mm2,
+        area_u_mm2=EDGE_U_MM * sp.perimeter_mm,
+        perimeter_mm=sp.perimeter_mm,
+        perimeter_u_mm=0.05,
+        centroid_mm=sp.centroid_mm,
+        centroid_u_mm=(0.003, 0.004),
+        ixx_mm4=sp.ixx_mm4,
+        iyy_mm4=sp.iyy_mm4,
+        ixy_mm4=sp.ixy_mm4,
+        ixx_u_mm4=2 * u_rel * abs(sp.ixx_mm4),
+        iyy_u_mm4=2 * u_rel * abs(sp.iyy_mm4),
+        ixy_u_mm4=2 * u_rel * max(abs(sp.ixy_mm4), 1.0),
+        i1_mm4=sp.i1_mm4,
+        i2_mm4=sp.i2_mm4,
+        i1_u_mm4=2 * u_rel * sp.i1_mm4,
+        i2_u_mm4=2 * u_rel * sp.i2_mm4,
+        principal_angle_deg=sp.principal_angle_deg,
+        principal_angle_u_deg=0.01,
+        polar_mm4=sp.polar_mm4,
+        polar_u_mm4=2 * u_rel * sp.polar_mm4,
+        gyration_x_mm=sp.gyration_x_mm,
+        gyration_y_mm=sp.gyration_y_mm,
+        gyration_1_mm=sp.gyration_1_mm,
+        gyration_2_mm=sp.gyration_2_mm,
+        modulus_top_mm3=sp.modulus_top_mm3,
+        modulus_bottom_mm3=sp.modulus_bottom_mm3,
+        modulus_right_mm3=sp.modulus_right_mm3,
+        modulus_left_mm3=sp.modulus_left_mm3,
+        bbox_mm=sp.bbox_mm,
+        caliper_max_mm=sp.caliper_max_mm,
+        caliper_min_mm=sp.caliper_min_mm,
+        convex_area_mm2=sp.convex_area_mm2,
+        holes=hole_objs,
+        outline_mm=np.asarray(outer, dtype=float),
     )
 
 
@@ -114,11 +147,25 @@ def slot_part(label: int = 4, step_mm: float = 0.05) -> Part:
 
 def make_measurement(parts: list[Part], *, path: str = "scans/bracket-batch-07.png", warnings=()) -> Measurement:
     return Measurement(
-        source=SourceInfo(path=path, sha256="0" * 64, width_px=5906, height_px=4134, format="PNG",
-                          mode="L", bit_depth=8, orientation_applied=1),
-        scale=ScaleInfo(method="dpi", mm_per_px=25.4 / 600, mm_per_px_rel_u=0.001, dpi=600.0,
-                        note="600 dpi from the file", terms={"dpi": 0.001},
-                        extra={"px_to_mm": [[0.0423, 0, 0], [0, -0.0423, 175.0], [0, 0, 1]], "dpi_xy": [600.0, 600.0]}),
+        source=SourceInfo(
+            path=path,
+            sha256="0" * 64,
+            width_px=5906,
+            height_px=4134,
+            format="PNG",
+            mode="L",
+            bit_depth=8,
+            orientation_applied=1,
+        ),
+        scale=ScaleInfo(
+            method="dpi",
+            mm_per_px=25.4 / 600,
+            mm_per_px_rel_u=0.001,
+            dpi=600.0,
+            note="600 dpi from the file",
+            terms={"dpi": 0.001},
+            extra={"px_to_mm": [[0.0423, 0, 0], [0, -0.0423, 175.0], [0, 0, 1]], "dpi_xy": [600.0, 600.0]},
+        ),
         parts=parts,
         warnings=list(warnings),
     )

@@ -20,11 +20,11 @@ from dataclasses import dataclass, field
 import cv2
 import numpy as np
 import shapely
-
 from polygon_truth import truth  # noqa: F401 - re-exported for the photo tests
+
 from scanmass.scale.mat import MatLayout, mat_dark_rectangles
-from scanmass.testing.scans import coverage, srgb_encode
 from scanmass.testing.photos import look_at
+from scanmass.testing.scans import coverage, srgb_encode
 
 
 @dataclass
@@ -52,12 +52,29 @@ class Camera:
         return h[:, :2] / h[:, 2:3]
 
 
-def make_camera(*, size=(1600, 1200), f_px=1500.0, target_mm=(105.0, 148.5), distance_mm=480.0, tilt_deg=0.0,
-                tilt_dir_deg=0.0, roll_deg=0.0, k1=0.0, k2=0.0) -> Camera:
+def make_camera(
+    *,
+    size=(1600, 1200),
+    f_px=1500.0,
+    target_mm=(105.0, 148.5),
+    distance_mm=480.0,
+    tilt_deg=0.0,
+    tilt_dir_deg=0.0,
+    roll_deg=0.0,
+    k1=0.0,
+    k2=0.0,
+) -> Camera:
     """A camera looking at ``target_mm`` on the mat from ``distance_mm`` away, its axis tilted
     ``tilt_deg`` from the mat's normal towards azimuth ``tilt_dir_deg``, rolled by ``roll_deg``."""
-    cam = look_at(target_mm, distance_mm=distance_mm, tilt_deg=tilt_deg, tilt_dir_deg=tilt_dir_deg,
-                  roll_deg=roll_deg, f_px=f_px, size_px=size)
+    cam = look_at(
+        target_mm,
+        distance_mm=distance_mm,
+        tilt_deg=tilt_deg,
+        tilt_dir_deg=tilt_dir_deg,
+        roll_deg=roll_deg,
+        f_px=f_px,
+        size_px=size,
+    )
     return Camera(k=cam.k, r=cam.r, t=cam.t, size=size, dist=np.array([k1, k2, 0, 0, 0], float))
 
 
@@ -114,10 +131,25 @@ class PhotoParts:
     height_mm: float = 0.0
 
 
-def render_photo(layout: MatLayout | None, parts: list[PhotoParts], cam: Camera, *, paper=0.85, ink=0.03, table=0.12,
-                 blur_px=1.0, noise=0.006, light=(0.1, -0.08), seed=0, jpeg_quality: int | None = None,
-                 sheet_mm: tuple[float, float] | None = None, motion_px: float = 0.0, hide_ids=(),
-                 print_scale=(1.0, 1.0), bend_mm: float = 0.0) -> np.ndarray:
+def render_photo(
+    layout: MatLayout | None,
+    parts: list[PhotoParts],
+    cam: Camera,
+    *,
+    paper=0.85,
+    ink=0.03,
+    table=0.12,
+    blur_px=1.0,
+    noise=0.006,
+    light=(0.1, -0.08),
+    seed=0,
+    jpeg_quality: int | None = None,
+    sheet_mm: tuple[float, float] | None = None,
+    motion_px: float = 0.0,
+    hide_ids=(),
+    print_scale=(1.0, 1.0),
+    bend_mm: float = 0.0,
+) -> np.ndarray:
     """The photo as an 8-bit sRGB grey image (or JPEG bytes decoded back when ``jpeg_quality``).
 
     ``hide_ids``: markers covered up (not drawn); ``print_scale``: the printer's x and y
@@ -154,16 +186,22 @@ def render_photo(layout: MatLayout | None, parts: list[PhotoParts], cam: Camera,
     lin = refl * field_
     if np.any(cam.dist != 0):
         pts = np.column_stack([xx.ravel(), yy.ravel()]).astype(np.float64).reshape(-1, 1, 2)
-        ideal = cv2.undistortPoints(pts, cam.k, cam.dist, None, None, cam.k,
-                                        (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 30, 1e-9)).reshape(h, w, 2)
-        lin = cv2.remap(lin.astype(np.float32), ideal[..., 0].astype(np.float32), ideal[..., 1].astype(np.float32),
-                        cv2.INTER_CUBIC, borderMode=cv2.BORDER_REPLICATE).astype(np.float64)
+        ideal = cv2.undistortPoints(
+            pts, cam.k, cam.dist, None, None, cam.k, (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 30, 1e-9)
+        ).reshape(h, w, 2)
+        lin = cv2.remap(
+            lin.astype(np.float32),
+            ideal[..., 0].astype(np.float32),
+            ideal[..., 1].astype(np.float32),
+            cv2.INTER_CUBIC,
+            borderMode=cv2.BORDER_REPLICATE,
+        ).astype(np.float64)
     if blur_px > 0:
         lin = cv2.GaussianBlur(lin, (0, 0), blur_px)
     if motion_px > 0:
         n = int(math.ceil(motion_px))
         kernel = np.zeros((1, 2 * n + 1))
-        kernel[0, n - int(motion_px // 2): n + int(motion_px // 2) + 1] = 1.0
+        kernel[0, n - int(motion_px // 2) : n + int(motion_px // 2) + 1] = 1.0
         lin = cv2.filter2D(lin, -1, kernel / kernel.sum())
     rng = np.random.default_rng(seed)
     lin = np.clip(lin + rng.normal(0.0, noise, shape), 0.0, 1.0)
@@ -175,5 +213,3 @@ def render_photo(layout: MatLayout | None, parts: list[PhotoParts], cam: Camera,
         Image.fromarray(img).save(bio, format="JPEG", quality=jpeg_quality)
         img = np.asarray(Image.open(io.BytesIO(bio.getvalue())).convert("L"))
     return img
-
-

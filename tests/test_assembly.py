@@ -10,14 +10,13 @@ import math
 
 import numpy as np
 import pytest
+from plate_parts import disc, make_measurement, make_part, polygon, rect
 
 import scanmass
-from scanmass.mass.assembly import Member, assemble, combine_members
 from scanmass.errors import MaterialError, OptionError
-from scanmass.mass.plate import plate_mass
+from scanmass.mass.assembly import Member, assemble, combine_members
 from scanmass.mass.materials import find_material
-
-from plate_parts import disc, make_measurement, make_part, polygon, rect
+from scanmass.mass.plate import plate_mass
 
 REL = 1e-10  # the two routes differ only by rounding
 
@@ -82,6 +81,7 @@ def test_plate_with_holes_as_cutouts_equals_one_outline():
 
 # -- stack of plates: known 3D centre of mass ------------------------------------------
 
+
 def test_stack_of_plates_centre_of_mass_and_polar_inertia():
     # Hand calculation with handbook densities (kg/m3 -> g/mm3 x 1e-6):
     #   steel 100 x 100 x 2 at z 0..2,        centre (0, 0, 1):     m1 = 7850e-6 * 10000 * 2 = 157 g
@@ -140,6 +140,7 @@ def test_mirror_flips_the_product_of_inertia_and_count_multiplies():
 
 # -- uncertainty ------------------------------------------------------------------------
 
+
 def test_single_member_mass_uncertainty_matches_plate_mass():
     part = make_part([rect(100, 50)], area_u=5.0)
     single = combine_members([member(part, thickness_u_mm=0.03)])
@@ -164,6 +165,7 @@ def test_shared_density_and_sheet_errors_add_linearly():
 
 # -- assembly files -----------------------------------------------------------------------
 
+
 def write_sources(tmp_path):
     """Two result JSONs: an L bracket (part 1) and a washer-like disc with a bore (part 2)."""
     bracket = make_part([polygon(L_OUTLINE)], label=1, area_u=2.0, centroid_u=0.01)
@@ -182,10 +184,12 @@ def test_toml_assembly_matches_direct_members(tmp_path):
         encoding="utf-8",
     )
     result = assemble(tmp_path / "asm.toml")
-    direct = combine_members([
-        member(bracket, "aluminium-6061", 3.0),
-        member(washer, "brass", 1.0, count=2, anchor_mm=(0.0, 0.0), dx_mm=70, dy_mm=5, z_mm=3),
-    ])
+    direct = combine_members(
+        [
+            member(bracket, "aluminium-6061", 3.0),
+            member(washer, "brass", 1.0, count=2, anchor_mm=(0.0, 0.0), dx_mm=70, dy_mm=5, z_mm=3),
+        ]
+    )
     assert result.mass_g == pytest.approx(direct.mass_g, rel=1e-12)
     assert result.centre_of_mass_mm == pytest.approx(direct.centre_of_mass_mm, rel=1e-12)
     assert result.name == "bracket with washers"
@@ -218,34 +222,73 @@ def test_image_members_are_measured_once_with_their_dpi(tmp_path, monkeypatch):
     assert result.mass_g == pytest.approx(2 * 7850e-6 * 2500 * 1)
 
 
-@pytest.mark.parametrize("body, error, match", [
-    ('units = "in"\n[[member]]\nsource = "a.json"\nmaterial = "steel"\nthickness_mm = 1\n',
-     OptionError, r"asm.toml: units = 'in' is not supported; give every length in millimetres"),
-    ('[[member]]\nsource = "missing.json"\nmaterial = "steel"\nthickness_mm = 1\n',
-     OptionError, r"member 1: source 'missing.json' not found next to the assembly file"),
-    ('[[member]]\nname = "lid"\nsource = "a.json"\npart = 7\nmaterial = "steel"\nthickness_mm = 1\n',
-     OptionError, r"member 1 \('lid'\): a.json: has no part 7 \(parts: 1, 2\)"),
-    ('[[member]]\nsource = "a.json"\nmaterial = "steel"\nthickness_mm = 1\n',
-     OptionError, r"member 1: a.json: has 2 parts \(1, 2\); choose one by its label"),
-    ('[[member]]\nsource = "a.json"\npart = 1\nmaterial = "stainles"\nthickness_mm = 1\n',
-     MaterialError, r"member 1: unknown material 'stainles' \(close names: stainless-"),
-    ('[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 0\n',
-     OptionError, r"member 1: thickness_mm must be a positive number of mm, got 0"),
-    ('[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\n',
-     OptionError, r"member 1: thickness_mm is missing"),
-    ('[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\nrotation = 5\n',
-     OptionError, r"member 1: unknown key\(s\) rotation"),
-    ('[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\nmirror = "z"\n',
-     OptionError, r"mirror must be \"x\" \(negate x\) or \"y\""),
-    ('[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\nanchor = "hole 3"\n',
-     OptionError, r"anchor 'hole 3' names no hole of part 1 \(holes: none\)"),
-    ('[[member]]\nsource = "a.json"\npart = 2\nmaterial = "steel"\nthickness_mm = 1\ncutout = true\n',
-     OptionError, r"the cut-outs outweigh the members"),
-    ('[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\n'
-     '[[member]]\nsource = "a.json"\npart = 2\nmaterial = "steel"\nthickness_mm = 1\ncutout = true\nz_mm = 40\n',
-     OptionError, r"the combined inertia is not physical \(a principal moment is negative\)"),
-    ('name = "empty"\n', OptionError, r"no members; add one \[\[member\]\] table per part"),
-])
+@pytest.mark.parametrize(
+    "body, error, match",
+    [
+        (
+            'units = "in"\n[[member]]\nsource = "a.json"\nmaterial = "steel"\nthickness_mm = 1\n',
+            OptionError,
+            r"asm.toml: units = 'in' is not supported; give every length in millimetres",
+        ),
+        (
+            '[[member]]\nsource = "missing.json"\nmaterial = "steel"\nthickness_mm = 1\n',
+            OptionError,
+            r"member 1: source 'missing.json' not found next to the assembly file",
+        ),
+        (
+            '[[member]]\nname = "lid"\nsource = "a.json"\npart = 7\nmaterial = "steel"\nthickness_mm = 1\n',
+            OptionError,
+            r"member 1 \('lid'\): a.json: has no part 7 \(parts: 1, 2\)",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\nmaterial = "steel"\nthickness_mm = 1\n',
+            OptionError,
+            r"member 1: a.json: has 2 parts \(1, 2\); choose one by its label",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\npart = 1\nmaterial = "stainles"\nthickness_mm = 1\n',
+            MaterialError,
+            r"member 1: unknown material 'stainles' \(close names: stainless-",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 0\n',
+            OptionError,
+            r"member 1: thickness_mm must be a positive number of mm, got 0",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\n',
+            OptionError,
+            r"member 1: thickness_mm is missing",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\nrotation = 5\n',
+            OptionError,
+            r"member 1: unknown key\(s\) rotation",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\nmirror = "z"\n',
+            OptionError,
+            r"mirror must be \"x\" \(negate x\) or \"y\"",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\nanchor = "hole 3"\n',
+            OptionError,
+            r"anchor 'hole 3' names no hole of part 1 \(holes: none\)",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\npart = 2\nmaterial = "steel"\nthickness_mm = 1\ncutout = true\n',
+            OptionError,
+            r"the cut-outs outweigh the members",
+        ),
+        (
+            '[[member]]\nsource = "a.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 1\n'
+            '[[member]]\nsource = "a.json"\npart = 2\nmaterial = "steel"\nthickness_mm = 1\ncutout = true\nz_mm = 40\n',
+            OptionError,
+            r"the combined inertia is not physical \(a principal moment is negative\)",
+        ),
+        ('name = "empty"\n', OptionError, r"no members; add one \[\[member\]\] table per part"),
+    ],
+)
 def test_bad_assembly_files_give_one_line_errors(tmp_path, body, error, match):
     write_sources(tmp_path)
     (tmp_path / "asm.toml").write_text(body, encoding="utf-8")

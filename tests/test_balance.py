@@ -6,30 +6,35 @@ import json
 import math
 
 import pytest
-
-from scanmass.mass.balance import CAUTIONS, balance_measurement, permissible_unbalance_gmm, static_unbalance
-from scanmass.errors import MaterialError, OptionError
-
 from plate_parts import circle_ring, disc, make_measurement, make_part, rect
+
+from scanmass.errors import MaterialError, OptionError
+from scanmass.mass.balance import CAUTIONS, balance_measurement, permissible_unbalance_gmm, static_unbalance
 
 STEEL = 7850e-6  # g/mm3: carbon steel 7850 kg/m3 (EN 1993-1-1, 3.2.6; from memory)
 
 
 # -- ISO 21940-11 permissible residual unbalance ----------------------------------------
 
-@pytest.mark.parametrize("grade, mass_kg, rpm", [
-    (6.3, 10.0, 3000.0),   # fans, pumps grade; 10 kg at 3000 rpm
-    (2.5, 0.5, 12000.0),
-    (16.0, 2.0, 1500.0),
-    (1.0, 0.2, 30000.0),
-])
+
+@pytest.mark.parametrize(
+    "grade, mass_kg, rpm",
+    [
+        (6.3, 10.0, 3000.0),  # fans, pumps grade; 10 kg at 3000 rpm
+        (2.5, 0.5, 12000.0),
+        (16.0, 2.0, 1500.0),
+        (1.0, 0.2, 30000.0),
+    ],
+)
 def test_permissible_unbalance_from_the_iso_21940_11_formula(grade, mass_kg, rpm):
     # ISO 21940-11: U_per = 1000 G m / omega [g mm], G in mm/s, m in kg, omega in rad/s.
     omega = 2 * math.pi * rpm / 60
     expected = 1000 * grade * mass_kg / omega
     assert permissible_unbalance_gmm(grade, mass_kg * 1000, rpm) == pytest.approx(expected, rel=1e-12)
     # the standard's rounded form 9549 G m / n (30000 / pi = 9549.3) agrees to 4e-5
-    assert permissible_unbalance_gmm(grade, mass_kg * 1000, rpm) == pytest.approx(9549 * grade * mass_kg / rpm, rel=4e-5)
+    assert permissible_unbalance_gmm(grade, mass_kg * 1000, rpm) == pytest.approx(
+        9549 * grade * mass_kg / rpm, rel=4e-5
+    )
 
 
 def test_permissible_unbalance_worked_number():
@@ -39,9 +44,9 @@ def test_permissible_unbalance_worked_number():
 
 # -- disc with an off-centre bore: closed form ----------------------------------------------
 
-R, RB, S = 50.0, 5.0, 2.0   # disc radius, bore radius, bore offset along +x (mm)
-CX, CY = 60.0, 60.0         # disc centre
-T = 3.0                     # thickness (mm)
+R, RB, S = 50.0, 5.0, 2.0  # disc radius, bore radius, bore offset along +x (mm)
+CX, CY = 60.0, 60.0  # disc centre
+T = 3.0  # thickness (mm)
 
 
 def off_centre_disc(**kw):
@@ -71,10 +76,12 @@ def test_offset_and_unbalance_uncertainty():
     res = static_unbalance(off_centre_disc(centroid_u=0.01, hole_centre_u=0.02, area_u=5.0), "carbon-steel", T)
     assert res.offset_u_mm == pytest.approx(math.hypot(0.01, 0.02), rel=1e-12)
     assert res.unbalance_u_gmm == pytest.approx(
-        math.hypot(res.offset_mm * res.mass_u_g, res.mass_g * res.offset_u_mm), rel=1e-12)
+        math.hypot(res.offset_mm * res.mass_u_g, res.mass_g * res.offset_u_mm), rel=1e-12
+    )
 
 
 # -- correction ------------------------------------------------------------------------------
+
 
 def test_drilled_hole_correction_brings_the_unbalance_to_zero():
     res = static_unbalance(off_centre_disc(), "carbon-steel", T)
@@ -92,8 +99,9 @@ def test_drilled_hole_correction_brings_the_unbalance_to_zero():
     # Re-measure independently: build the corrected part from closed forms (disc - bore -
     # drilled hole) and run the check on it again.
     cx, cy = res.correction_centre_mm
-    corrected = make_part([disc(R, CX, CY), disc(RB, CX + S, CY, sign=-1),
-                           disc(res.hole_diameter_mm / 2, cx, cy, sign=-1)])
+    corrected = make_part(
+        [disc(R, CX, CY), disc(RB, CX + S, CY, sign=-1), disc(res.hole_diameter_mm / 2, cx, cy, sign=-1)]
+    )
     again = static_unbalance(corrected, "carbon-steel", T, hole=1)
     assert again.unbalance_gmm == pytest.approx(0.0, abs=1e-9 * res.unbalance_gmm)
     assert again.mass_g == pytest.approx(res.corrected_mass_g, rel=1e-12)
@@ -128,6 +136,7 @@ def test_correction_that_would_break_into_the_rim_is_flagged():
 
 
 # -- verdicts --------------------------------------------------------------------------------
+
 
 def test_verdicts_pass_fail_and_cannot_certify():
     part = off_centre_disc(centroid_u=0.002, hole_centre_u=0.002)
@@ -170,11 +179,26 @@ def test_bore_nearest_the_centroid_is_the_default_axis():
 
 
 def test_result_document_keys_and_cautions():
-    res = balance_measurement(make_measurement([make_part([rect(10, 10)], label=1), off_centre_disc(label=2)]),
-                              "steel", T, part=2, rpm=3000, grade=6.3)
+    res = balance_measurement(
+        make_measurement([make_part([rect(10, 10)], label=1), off_centre_disc(label=2)]),
+        "steel",
+        T,
+        part=2,
+        rpm=3000,
+        grade=6.3,
+    )
     doc = json.loads(json.dumps(res.to_dict(), allow_nan=False))
-    for key in ("offset_mm", "offset_u_mm", "unbalance_gmm", "unbalance_u_gmm", "heavy_angle_deg",
-                "permissible_gmm", "passes", "verdict", "cautions"):
+    for key in (
+        "offset_mm",
+        "offset_u_mm",
+        "unbalance_gmm",
+        "unbalance_u_gmm",
+        "heavy_angle_deg",
+        "permissible_gmm",
+        "passes",
+        "verdict",
+        "cautions",
+    ):
         assert key in doc
     assert doc["passes"] is False and doc["part"] == 2
     assert "balancing machine" in doc["cautions"] and "fail dangerously" in doc["cautions"]
@@ -185,20 +209,24 @@ def test_result_document_keys_and_cautions():
 
 # -- bad input -------------------------------------------------------------------------------
 
+
 def test_part_without_a_hole():
     with pytest.raises(OptionError, match=r"^part 3 has no hole to spin about; "):
         static_unbalance(make_part([rect(40, 20)], label=3), "steel", 2.0)
 
 
-@pytest.mark.parametrize("kwargs, error, match", [
-    (dict(hole=9), OptionError, r"part 1 has no hole 9 \(holes: 1\)"),
-    (dict(rpm=3000), OptionError, r"give both the speed \(rpm\) and the balance quality grade"),
-    (dict(rpm=-5, grade=6.3), OptionError, r"rpm must be a positive number of rev/min, got -5"),
-    (dict(rpm=3000, grade=0), OptionError, r"grade must be a positive number of mm/s, got 0"),
-    (dict(thickness_mm=0), OptionError, r"thickness_mm must be a positive number of mm, got 0"),
-    (dict(material="stee"), MaterialError, r"unknown material 'stee' \(close names: "),
-    (dict(correction_radius_mm=-1), OptionError, r"correction_radius_mm must be a positive number"),
-])
+@pytest.mark.parametrize(
+    "kwargs, error, match",
+    [
+        (dict(hole=9), OptionError, r"part 1 has no hole 9 \(holes: 1\)"),
+        (dict(rpm=3000), OptionError, r"give both the speed \(rpm\) and the balance quality grade"),
+        (dict(rpm=-5, grade=6.3), OptionError, r"rpm must be a positive number of rev/min, got -5"),
+        (dict(rpm=3000, grade=0), OptionError, r"grade must be a positive number of mm/s, got 0"),
+        (dict(thickness_mm=0), OptionError, r"thickness_mm must be a positive number of mm, got 0"),
+        (dict(material="stee"), MaterialError, r"unknown material 'stee' \(close names: "),
+        (dict(correction_radius_mm=-1), OptionError, r"correction_radius_mm must be a positive number"),
+    ],
+)
 def test_bad_balance_options(kwargs, error, match):
     args = {"material": "carbon-steel", "thickness_mm": T}
     args.update(kwargs)

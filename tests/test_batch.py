@@ -24,11 +24,10 @@ import time
 from collections.abc import Iterator
 from pathlib import Path
 
-import numpy as np
 import pytest
+from polygon_truth import truth
 from typer.testing import CliRunner
 
-from polygon_truth import truth
 from scanmass import measure
 from scanmass.batch.runner import (
     DB_NAME,
@@ -62,7 +61,9 @@ runner = CliRunner()
 def _scene(k: int) -> list[SynthPart]:
     """A plate with a hole and a disc, slightly different for each k (invented layout)."""
     return [
-        SynthPart(rectangle(7.0 + 0.3 * k, 6.0, 28.0, 19.0, angle_deg=4.0 + 3.0 * k), [circle(20.5 + 0.3 * k, 15.5, 3.5)]),
+        SynthPart(
+            rectangle(7.0 + 0.3 * k, 6.0, 28.0, 19.0, angle_deg=4.0 + 3.0 * k), [circle(20.5 + 0.3 * k, 15.5, 3.5)]
+        ),
         SynthPart(circle(46.0, 33.0, 8.0 - 0.2 * k)),
     ]
 
@@ -74,8 +75,15 @@ def _l_scene() -> list[SynthPart]:
 def _truth(part: SynthPart) -> dict:
     """Area and centroid from shapely; centroidal moments by Green's vertex sums (common practice)."""
     t = truth(part.outer_mm, list(part.holes_mm))
-    return {"area": t["area"], "cx": t["centroid"][0], "cy": t["centroid"][1], "ixx": t["ixx"], "iyy": t["iyy"],
-            "ixy": t["ixy"], "holes": len(part.holes_mm)}
+    return {
+        "area": t["area"],
+        "cx": t["centroid"][0],
+        "cy": t["centroid"][1],
+        "ixx": t["ixx"],
+        "iyy": t["iyy"],
+        "ixy": t["ixy"],
+        "holes": len(part.holes_mm),
+    }
 
 
 def _render(parts: list[SynthPart], seed: int):
@@ -90,7 +98,10 @@ def _save(parts, path: Path, seed: int, **kw) -> Path:
 def _check_row(row: dict, truth: dict) -> None:
     px_mm = 25.4 / DPI
     assert float(row["area_mm2"]) == pytest.approx(truth["area"], rel=AREA_RTOL)
-    assert math.dist((float(row["centroid_x_mm"]), float(row["centroid_y_mm"])), (truth["cx"], truth["cy"])) < CENTROID_TOL_PX * px_mm
+    assert (
+        math.dist((float(row["centroid_x_mm"]), float(row["centroid_y_mm"])), (truth["cx"], truth["cy"]))
+        < CENTROID_TOL_PX * px_mm
+    )
     assert float(row["ixx_mm4"]) == pytest.approx(truth["ixx"], rel=MOMENT_RTOL)
     assert float(row["iyy_mm4"]) == pytest.approx(truth["iyy"], rel=MOMENT_RTOL)
     assert float(row["ixy_mm4"]) == pytest.approx(truth["ixy"], rel=MOMENT_RTOL, abs=MOMENT_RTOL * truth["ixx"])
@@ -100,8 +111,16 @@ def _check_row(row: dict, truth: dict) -> None:
 
 def _match(rows: list[dict], truths: list[dict]) -> list[tuple[dict, dict]]:
     assert len(rows) == len(truths)
-    return [(min(rows, key=lambda r: math.dist((float(r["centroid_x_mm"]), float(r["centroid_y_mm"])), (t["cx"], t["cy"]))), t)
-            for t in truths]
+    return [
+        (
+            min(
+                rows,
+                key=lambda r: math.dist((float(r["centroid_x_mm"]), float(r["centroid_y_mm"])), (t["cx"], t["cy"])),
+            ),
+            t,
+        )
+        for t in truths
+    ]
 
 
 def _read_csv(path: Path) -> list[dict]:
@@ -176,8 +195,19 @@ def test_good_files_measured_bad_files_recorded(mixed, tmp_path):
         for row, t in _match(mine, expected):
             _check_row(row, t)
     assert len(rows) == sum(len(t) for t in truth.values())
-    assert rows[0].keys() >= {"file", "part", "area_mm2", "area_u_mm2", "centroid_x_mm", "centroid_y_mm",
-                              "ixx_mm4", "iyy_mm4", "ixy_mm4", "holes", "mass_g"}
+    assert rows[0].keys() >= {
+        "file",
+        "part",
+        "area_mm2",
+        "area_u_mm2",
+        "centroid_x_mm",
+        "centroid_y_mm",
+        "ixx_mm4",
+        "iyy_mm4",
+        "ixy_mm4",
+        "holes",
+        "mass_g",
+    }
 
     # the batch gives exactly what measure() gives for the same file and options
     direct = measure(root / "plate-a.png")
@@ -253,8 +283,18 @@ def _many(folder: Path, n: int) -> dict[str, list[dict]]:
 
 def _signal_mid_run(folder: Path, out: Path, sig: int, *, after: int = 3) -> tuple[int, subprocess.CompletedProcess]:
     """Run the CLI batch in a subprocess; send ``sig`` once ``after`` files are recorded."""
-    cmd = [sys.executable, "-c", "from scanmass.cli.app import app; app()", "batch", str(folder), "--out", str(out),
-           "--workers", "1", "--quiet"]
+    cmd = [
+        sys.executable,
+        "-c",
+        "from scanmass.cli.app import app; app()",
+        "batch",
+        str(folder),
+        "--out",
+        str(out),
+        "--workers",
+        "1",
+        "--quiet",
+    ]
     # after kill -9 the orphaned workers take up to a second to notice: do not wait on their pipes
     pipe = subprocess.PIPE if sig != signal.SIGKILL else subprocess.DEVNULL
     proc = subprocess.Popen(cmd, stdout=pipe, stderr=pipe, text=True)
@@ -368,7 +408,9 @@ def test_duplicates_measured_once(tmp_path):
     assert {r["same_as"] for r in dups} == {str(folder / "a.png")}
     assert {r["file"] for r in _read_csv(out / "parts.csv")} == {str(folder / "a.png")}
     with _db(out) as conn:
-        doc = json.loads(conn.execute("SELECT result FROM files WHERE path=?", (str(folder / "b-copy.png"),)).fetchone()[0])
+        doc = json.loads(
+            conn.execute("SELECT result FROM files WHERE path=?", (str(folder / "b-copy.png"),)).fetchone()[0]
+        )
         assert doc["source"]["path"] == str(folder / "b-copy.png") and len(doc["parts"]) == 2
     # a later copy is a duplicate of the recorded file, without measuring
     shutil.copy(folder / "a.png", folder / "d-copy.png")
@@ -386,7 +428,9 @@ def test_settings_change_remeasures(tmp_path):
     # a settings file naming a default changes nothing; a real change re-measures its folder only
     (folder / "scanmass.toml").write_text("min_area_mm2 = 3.0\nlevel = 0.5\n", encoding="utf-8")
     assert run_batch(folder, out, workers=0).unchanged == 3
-    (folder / "scanmass.toml").write_text("min_area_mm2 = 3.0\nmaterial = 'carbon-steel'\nthickness_mm = 2.0\n", encoding="utf-8")
+    (folder / "scanmass.toml").write_text(
+        "min_area_mm2 = 3.0\nmaterial = 'carbon-steel'\nthickness_mm = 2.0\n", encoding="utf-8"
+    )
     summary = run_batch(folder, out, workers=0)
     assert summary.measured == 3
     rows = _read_csv(out / "parts.csv")
@@ -421,13 +465,31 @@ def test_settings_file_validation(tmp_path):
 
 
 def test_find_images_patterns(tmp_path):
-    for name in ["a.png", "B.PNG", "c.jpg", "d.tiff", "x/e.png", "x/y/f.jpeg", ".hidden.png", ".cache/g.png",
-                 "notes.txt", "x/skip-me.png"]:
+    for name in [
+        "a.png",
+        "B.PNG",
+        "c.jpg",
+        "d.tiff",
+        "x/e.png",
+        "x/y/f.jpeg",
+        ".hidden.png",
+        ".cache/g.png",
+        "notes.txt",
+        "x/skip-me.png",
+    ]:
         p = tmp_path / name
         p.parent.mkdir(parents=True, exist_ok=True)
         p.write_bytes(b"")
     rel = lambda found: [p.relative_to(tmp_path).as_posix() for _, p in found]  # noqa: E731
-    assert rel(find_images([tmp_path])) == ["B.PNG", "a.png", "c.jpg", "d.tiff", "x/e.png", "x/skip-me.png", "x/y/f.jpeg"]
+    assert rel(find_images([tmp_path])) == [
+        "B.PNG",
+        "a.png",
+        "c.jpg",
+        "d.tiff",
+        "x/e.png",
+        "x/skip-me.png",
+        "x/y/f.jpeg",
+    ]
     assert rel(find_images([tmp_path], include=["*.png"])) == ["B.PNG", "a.png", "x/e.png", "x/skip-me.png"]
     assert rel(find_images([tmp_path], include=["x/*"], exclude=["skip-*"])) == ["x/e.png", "x/y/f.jpeg"]
     assert rel(find_images([tmp_path / "x", tmp_path], exclude=["*/y/*"]))[:2] == ["x/e.png", "x/skip-me.png"]
@@ -447,7 +509,9 @@ def test_output_folder_is_locked(tmp_path):
             hold.set()
             release.wait(10)
 
-    thread = threading.Thread(target=run_batch, args=(folder, tmp_path / "out"), kwargs={"workers": 0, "progress": slow_progress})
+    thread = threading.Thread(
+        target=run_batch, args=(folder, tmp_path / "out"), kwargs={"workers": 0, "progress": slow_progress}
+    )
     thread.start()
     try:
         assert hold.wait(10)
@@ -477,8 +541,17 @@ def test_watch_picks_up_new_and_changed_files(tmp_path):
             _save(_scene(1), folder / "second.png", seed=1)
             _save(later, folder / "first.png", seed=2)
 
-    summary = run_batch(folder, out, workers=0, watch=True, poll_seconds=0.05, settle_seconds=0.0, max_cycles=100,
-                        stop_event=stop, progress=on_progress)
+    summary = run_batch(
+        folder,
+        out,
+        workers=0,
+        watch=True,
+        poll_seconds=0.05,
+        settle_seconds=0.0,
+        max_cycles=100,
+        stop_event=stop,
+        progress=on_progress,
+    )
     assert summary.interrupted and summary.cycles == 2
     assert (summary.measured, summary.failed) == (3, 0)
     assert events == [(1, "ok", "first.png"), (2, "ok", "first.png"), (2, "ok", "second.png")]
@@ -513,9 +586,12 @@ def test_local_cluster_matches_process_pool(mixed, tmp_path):
 
     def records(out: Path):
         with _db(out) as conn:
-            files = conn.execute("SELECT path, status, error, content_sha256, settings_sha256 FROM files ORDER BY path").fetchall()
-            parts = conn.execute("SELECT f.path, p.row_json FROM parts p JOIN files f ON f.id = p.file_id "
-                                 "ORDER BY f.path, p.part").fetchall()
+            files = conn.execute(
+                "SELECT path, status, error, content_sha256, settings_sha256 FROM files ORDER BY path"
+            ).fetchall()
+            parts = conn.execute(
+                "SELECT f.path, p.row_json FROM parts p JOIN files f ON f.id = p.file_id ORDER BY f.path, p.part"
+            ).fetchall()
         return [tuple(r) for r in files], [(p, json.loads(j)) for p, j in parts]
 
     assert records(tmp_path / "dask") == records(tmp_path / "pool")

@@ -21,7 +21,9 @@ runner = CliRunner()
 def batch_dir(tmp_path_factory):
     scans = tmp_path_factory.mktemp("scans")
     for k, r in enumerate((6.0, 9.0)):
-        scan = render_scan([SynthPart(circle(20.0, 20.0, r))], dpi=200, size_mm=(40, 40), blur_px=0.8, noise=0.004, seed=k)
+        scan = render_scan(
+            [SynthPart(circle(20.0, 20.0, r))], dpi=200, size_mm=(40, 40), blur_px=0.8, noise=0.004, seed=k
+        )
         save_scan(scan, scans / f"disc{k}.png")
     (scans / "broken.png").write_text("not an image")
     out = tmp_path_factory.mktemp("out")

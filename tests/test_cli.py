@@ -14,13 +14,13 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from cli_helpers import one_line_error
 from PIL import Image
 from typer.testing import CliRunner
 
 from scanmass.cli.app import app
 from scanmass.measurement import Measurement
 from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan, save_scan
-from cli_helpers import one_line_error
 
 runner = CliRunner()
 
@@ -35,7 +35,9 @@ def scan_png(tmp_path_factory) -> Path:
 
 def test_measure_writes_json_csv_overlay(scan_png, tmp_path):
     out_json, out_csv, out_png = tmp_path / "r.json", tmp_path / "r.csv", tmp_path / "o.png"
-    result = runner.invoke(app, ["measure", str(scan_png), "--json", str(out_json), "--csv", str(out_csv), "--overlay", str(out_png)])
+    result = runner.invoke(
+        app, ["measure", str(scan_png), "--json", str(out_json), "--csv", str(out_csv), "--overlay", str(out_png)]
+    )
     assert result.exit_code == 0, result.output
     m = Measurement.from_json(out_json.read_text())
     areas = sorted(p.area_mm2 for p in m.parts)
@@ -57,7 +59,9 @@ def test_measure_json_to_stdout(scan_png):
 
 
 def test_measure_with_material_adds_mass(scan_png):
-    result = runner.invoke(app, ["measure", str(scan_png), "--json", "-", "--material", "aluminium-6082", "--thickness", "2"])
+    result = runner.invoke(
+        app, ["measure", str(scan_png), "--json", "-", "--material", "aluminium-6082", "--thickness", "2"]
+    )
     assert result.exit_code == 0, result.output
     doc = json.loads(result.stdout)
     assert all(p["mass_g"] > 0 and p["mass_u_g"] > 0 for p in doc["parts"])
@@ -123,7 +127,9 @@ def test_absurd_dpi(scan_png, dpi):
     one_line_error(runner.invoke(app, ["measure", str(scan_png), "--dpi", dpi]), "dpi")
 
 
-@pytest.mark.parametrize("option, value", [("--min-area", "-1"), ("--level", "1.5"), ("--threshold", "2"), ("--max-pixels", "0")])
+@pytest.mark.parametrize(
+    "option, value", [("--min-area", "-1"), ("--level", "1.5"), ("--threshold", "2"), ("--max-pixels", "0")]
+)
 def test_absurd_options(scan_png, option, value):
     one_line_error(runner.invoke(app, ["measure", str(scan_png), option, value]))
 
@@ -144,7 +150,9 @@ def test_all_background_and_all_foreground(tmp_path):
 
 
 def test_unwritable_output_and_no_overwrite_of_input(scan_png, tmp_path):
-    one_line_error(runner.invoke(app, ["measure", str(scan_png), "--json", str(tmp_path / "missing" / "r.json")]), "missing")
+    one_line_error(
+        runner.invoke(app, ["measure", str(scan_png), "--json", str(tmp_path / "missing" / "r.json")]), "missing"
+    )
     before = scan_png.read_bytes()
     one_line_error(runner.invoke(app, ["measure", str(scan_png), "--overlay", str(scan_png)]))
     assert scan_png.read_bytes() == before

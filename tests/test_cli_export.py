@@ -13,16 +13,16 @@ import re
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
+import _exact_results as E
 import ezdxf
 import pytest
+from cli_helpers import one_line_error
 from typer.testing import CliRunner
 
-import _exact_results as E
 from scanmass.cli.app import app
-from scanmass.outputs.export import fit_tolerance_default_mm
 from scanmass.measurement import Measurement
+from scanmass.outputs.export import fit_tolerance_default_mm
 from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan, save_scan
-from cli_helpers import one_line_error
 
 runner = CliRunner()
 
@@ -70,7 +70,9 @@ def test_export_fit_tolerance_auto_round_trip(measured, tmp_path):
     for piece in e.virtual_entities():  # ezdxf expands the bulges into exact arcs
         seg = [piece.dxf.start, piece.dxf.end] if piece.dxftype() == "LINE" else list(piece.flattening(1e-4))
         seg = [(v.x, v.y) for v in seg]
-        if pts and abs(seg[-1][0] - pts[-1][0]) + abs(seg[-1][1] - pts[-1][1]) < abs(seg[0][0] - pts[-1][0]) + abs(seg[0][1] - pts[-1][1]):
+        if pts and abs(seg[-1][0] - pts[-1][0]) + abs(seg[-1][1] - pts[-1][1]) < abs(seg[0][0] - pts[-1][0]) + abs(
+            seg[0][1] - pts[-1][1]
+        ):
             seg.reverse()
         pts.extend(seg)
     part = next(p for p in m.parts if p.label == 2)
@@ -104,19 +106,25 @@ def test_report_of_several_results(measured, tmp_path):
 def test_export_result_of_another_schema(tmp_path):
     src = tmp_path / "assembly.json"
     src.write_text(json.dumps({"schema": "scanmass.assembly/1", "members": []}))
-    line = one_line_error(runner.invoke(app, ["export", str(src), "--svg", str(tmp_path / "o.svg")]), str(src), "not a scanmass result")
+    line = one_line_error(
+        runner.invoke(app, ["export", str(src), "--svg", str(tmp_path / "o.svg")]), str(src), "not a scanmass result"
+    )
     assert not (tmp_path / "o.svg").exists(), line
 
 
 def test_export_result_of_another_version(tmp_path):
     src = tmp_path / "old.json"
     src.write_text(json.dumps({"schema": "scanmass.result/0"}))
-    one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf")]), str(src), "not supported")
+    one_line_error(
+        runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf")]), str(src), "not supported"
+    )
 
 
 def test_export_missing_file(tmp_path):
     missing = tmp_path / "missing.json"
-    one_line_error(runner.invoke(app, ["export", str(missing), "--dxf", str(tmp_path / "o.dxf")]), str(missing), "file not found")
+    one_line_error(
+        runner.invoke(app, ["export", str(missing), "--dxf", str(tmp_path / "o.dxf")]), str(missing), "file not found"
+    )
 
 
 def test_export_output_folder_missing(measured, tmp_path):
@@ -132,7 +140,10 @@ def test_export_needs_an_output(measured):
 
 def test_export_bad_fit_tolerance(measured, tmp_path):
     src, _ = measured
-    one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf"), "--fit-tolerance", "fine"]), "fit tolerance")
+    one_line_error(
+        runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf"), "--fit-tolerance", "fine"]),
+        "fit tolerance",
+    )
     one_line_error(runner.invoke(app, ["export", str(src), "--dxf", str(tmp_path / "o.dxf"), "--part", "7"]), "part 7")
 
 
@@ -148,15 +159,41 @@ def test_report_bad_input(measured, tmp_path):
     src, _ = measured
     one_line_error(runner.invoke(app, ["report", str(src)]), "--html")
     missing = tmp_path / "gone.json"
-    one_line_error(runner.invoke(app, ["report", str(missing), "--html", str(tmp_path / "r.html")]), str(missing), "file not found")
+    one_line_error(
+        runner.invoke(app, ["report", str(missing), "--html", str(tmp_path / "r.html")]), str(missing), "file not found"
+    )
     other = tmp_path / "other.json"
     other.write_text(json.dumps({"schema": "something-else/2"}))
-    one_line_error(runner.invoke(app, ["report", str(other), "--html", str(tmp_path / "r.html")]), str(other), "not a scanmass result")
-    one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "none" / "r.html")]), "does not exist")
+    one_line_error(
+        runner.invoke(app, ["report", str(other), "--html", str(tmp_path / "r.html")]),
+        str(other),
+        "not a scanmass result",
+    )
+    one_line_error(
+        runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "none" / "r.html")]), "does not exist"
+    )
     not_png = tmp_path / "overlay.png"
     not_png.write_text("not an image")
-    one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "r.html"), "--overlay", str(not_png)]), "not a PNG")
-    one_line_error(runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "r.html"), "--overlay", str(not_png), "--overlay", str(not_png)]), "overlays for 1 result")
+    one_line_error(
+        runner.invoke(app, ["report", str(src), "--html", str(tmp_path / "r.html"), "--overlay", str(not_png)]),
+        "not a PNG",
+    )
+    one_line_error(
+        runner.invoke(
+            app,
+            [
+                "report",
+                str(src),
+                "--html",
+                str(tmp_path / "r.html"),
+                "--overlay",
+                str(not_png),
+                "--overlay",
+                str(not_png),
+            ],
+        ),
+        "overlays for 1 result",
+    )
     assert not (tmp_path / "r.html").exists()
 
 

@@ -8,14 +8,13 @@ import json
 import math
 
 import pytest
+from cli_helpers import one_line_error
+from plate_parts import circle_ring, disc, make_measurement, make_part, rect
 from typer.testing import CliRunner
 
-from scanmass.mass.assembly import assemble
 from scanmass.cli.app import app
+from scanmass.mass.assembly import assemble
 from scanmass.testing.scans import SynthPart, circle, render_scan, save_scan
-
-from plate_parts import circle_ring, disc, make_measurement, make_part, rect
-from cli_helpers import one_line_error
 
 runner = CliRunner()
 STEEL = 7850e-6  # g/mm3: carbon steel 7850 kg/m3 (EN 1993-1-1, 3.2.6; from memory)
@@ -31,11 +30,17 @@ def sources(tmp_path):
     return path
 
 
-@pytest.mark.parametrize("command, options", [
-    ("materials", ["--materials"]),
-    ("assemble", ["--json", "--csv", "--materials"]),
-    ("balance", ["--material", "--thickness", "--rpm", "--grade", "--bore", "--part", "--json", "--dpi", "--radius"]),
-])
+@pytest.mark.parametrize(
+    "command, options",
+    [
+        ("materials", ["--materials"]),
+        ("assemble", ["--json", "--csv", "--materials"]),
+        (
+            "balance",
+            ["--material", "--thickness", "--rpm", "--grade", "--bore", "--part", "--json", "--dpi", "--radius"],
+        ),
+    ],
+)
 def test_help_texts(command, options):
     result = runner.invoke(app, [command, "--help"])
     assert result.exit_code == 0
@@ -75,17 +80,40 @@ def test_assemble_writes_json_and_csv(sources, tmp_path):
 
 def test_assemble_errors_are_one_line(sources, tmp_path):
     toml = tmp_path / "asm.toml"
-    toml.write_text('units = "inch"\n[[member]]\nsource = "parts.json"\nmaterial = "steel"\nthickness_mm = 2\n', encoding="utf-8")
+    toml.write_text(
+        'units = "inch"\n[[member]]\nsource = "parts.json"\nmaterial = "steel"\nthickness_mm = 2\n', encoding="utf-8"
+    )
     one_line_error(runner.invoke(app, ["assemble", str(toml)]), "asm.toml", "units = 'inch' is not supported")
-    toml.write_text('[[member]]\nsource = "parts.json"\npart = 9\nmaterial = "steel"\nthickness_mm = 2\n', encoding="utf-8")
+    toml.write_text(
+        '[[member]]\nsource = "parts.json"\npart = 9\nmaterial = "steel"\nthickness_mm = 2\n', encoding="utf-8"
+    )
     one_line_error(runner.invoke(app, ["assemble", str(toml)]), "has no part 9")
-    toml.write_text('[[member]]\nsource = "parts.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 2\n', encoding="utf-8")
+    toml.write_text(
+        '[[member]]\nsource = "parts.json"\npart = 1\nmaterial = "steel"\nthickness_mm = 2\n', encoding="utf-8"
+    )
     one_line_error(runner.invoke(app, ["assemble", str(toml), "--json", str(sources)]), "parts.json")
 
 
 def test_balance_from_a_result_json(sources):
-    result = runner.invoke(app, ["balance", str(sources), "--part", "2", "--material", "steel", "--thickness", "2",
-                                 "--rpm", "3000", "--grade", "6.3", "--json", "-"])
+    result = runner.invoke(
+        app,
+        [
+            "balance",
+            str(sources),
+            "--part",
+            "2",
+            "--material",
+            "steel",
+            "--thickness",
+            "2",
+            "--rpm",
+            "3000",
+            "--grade",
+            "6.3",
+            "--json",
+            "-",
+        ],
+    )
     assert result.exit_code == 0, result.output
     doc = json.loads(result.stdout)
     # closed form U = m_disc * s (see tests/test_balance.py): 7850e-6 * pi 30^2 * 2 * 1
@@ -99,11 +127,18 @@ def test_balance_of_a_scanned_disc(tmp_path):
     # A synthetic 300 dpi scan of a 60 mm disc whose 8 mm bore sits 1 mm off-centre; truth
     # U = m_disc s = 7850e-6 * pi 30^2 * 3 * 1 = 66.58 g mm (closed form above). The scan's
     # polygons are inscribed, so allow the stated uncertainty (3 sigma) plus 0.5 %.
-    scan = render_scan([SynthPart(circle(40.0, 40.0, 30.0), [circle(41.0, 40.0, 4.0)])],
-                       dpi=300, size_mm=(80, 80), blur_px=0.9, noise=0.005, seed=5)
+    scan = render_scan(
+        [SynthPart(circle(40.0, 40.0, 30.0), [circle(41.0, 40.0, 4.0)])],
+        dpi=300,
+        size_mm=(80, 80),
+        blur_px=0.9,
+        noise=0.005,
+        seed=5,
+    )
     image = save_scan(scan, tmp_path / "wheel.png")
-    result = runner.invoke(app, ["balance", str(image), "--dpi", "300", "--material", "steel", "--thickness", "3",
-                                 "--json", "-"])
+    result = runner.invoke(
+        app, ["balance", str(image), "--dpi", "300", "--material", "steel", "--thickness", "3", "--json", "-"]
+    )
     assert result.exit_code == 0, result.output
     doc = json.loads(result.stdout)
     truth = STEEL * math.pi * 900 * 3 * 1.0
@@ -112,13 +147,22 @@ def test_balance_of_a_scanned_disc(tmp_path):
 
 def test_balance_errors_are_one_line(sources):
     args = ["balance", str(sources)]
-    one_line_error(runner.invoke(app, args + ["--part", "1", "--material", "steel", "--thickness", "2"]),
-                   "part 1 has no hole to spin about")
+    one_line_error(
+        runner.invoke(app, args + ["--part", "1", "--material", "steel", "--thickness", "2"]),
+        "part 1 has no hole to spin about",
+    )
     one_line_error(runner.invoke(app, args + ["--part", "2", "--material", "steel"]), "--thickness")
-    one_line_error(runner.invoke(app, args + ["--part", "2", "--material", "stel", "--thickness", "2"]),
-                   "unknown material 'stel'", "close names")
-    one_line_error(runner.invoke(app, args + ["--part", "2", "--material", "steel", "--thickness", "0"]),
-                   "thickness_mm must be a positive number")
+    one_line_error(
+        runner.invoke(app, args + ["--part", "2", "--material", "stel", "--thickness", "2"]),
+        "unknown material 'stel'",
+        "close names",
+    )
+    one_line_error(
+        runner.invoke(app, args + ["--part", "2", "--material", "steel", "--thickness", "0"]),
+        "thickness_mm must be a positive number",
+    )
     one_line_error(runner.invoke(app, args + ["--material", "steel", "--thickness", "2"]), "has 2 parts (1, 2)")
-    one_line_error(runner.invoke(app, args + ["--part", "2", "--material", "steel", "--thickness", "2", "--rpm", "3000"]),
-                   "give both the speed")
+    one_line_error(
+        runner.invoke(app, args + ["--part", "2", "--material", "steel", "--thickness", "2", "--rpm", "3000"]),
+        "give both the speed",
+    )

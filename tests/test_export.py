@@ -23,13 +23,13 @@ import math
 import re
 import xml.etree.ElementTree as ET
 
+import _exact_results as E
 import ezdxf
 import numpy as np
 import pytest
 import shapely
 from shapely.geometry import LineString, Polygon
 
-import _exact_results as E
 from scanmass.errors import OptionError, OutputError, ResultFormatError
 from scanmass.outputs.export import (
     LAYER_HOLES,

@@ -12,10 +12,10 @@ import math
 
 import numpy as np
 import pytest
+from _mat_photos import PhotoParts, make_camera, render_photo, truth
 from PIL import Image
 from typer.testing import CliRunner
 
-from _mat_photos import PhotoParts, make_camera, render_photo, truth
 from scanmass import measure
 from scanmass.cli.app import app
 from scanmass.errors import OptionError, ScaleError

@@ -35,6 +35,7 @@ def opened(path) -> Image.Image:
         im.load()
         return im.copy()
 
+
 # ------------------------------------------------------------------ helpers
 
 
@@ -94,8 +95,11 @@ def curv(entries) -> bytes:
 
 def para(kind: int, params) -> bytes:
     """parametricCurveType (ICC.1:2010 10.15): s15Fixed16 parameters."""
-    return b"para" + bytes(4) + struct.pack(">HH", kind, 0) + struct.pack(
-        f">{len(params)}i", *[round(p * 65536) for p in params]
+    return (
+        b"para"
+        + bytes(4)
+        + struct.pack(">HH", kind, 0)
+        + struct.pack(f">{len(params)}i", *[round(p * 65536) for p in params])
     )
 
 
@@ -381,8 +385,12 @@ def test_orientation_moves_marked_corner(tmp_path, orientation, shape, corner):
     assert img.grey.shape == shape
     assert img.orientation == orientation
     assert img.grey[corner].mean() < 40
-    corners = [(slice(0, 16), slice(0, 16)), (slice(0, 16), slice(-16, None)),
-               (slice(-16, None), slice(0, 16)), (slice(-16, None), slice(-16, None))]
+    corners = [
+        (slice(0, 16), slice(0, 16)),
+        (slice(0, 16), slice(-16, None)),
+        (slice(-16, None), slice(0, 16)),
+        (slice(-16, None), slice(-16, None)),
+    ]
     for other in corners:
         if other != corner:
             assert img.grey[other].mean() > 215
@@ -557,9 +565,7 @@ def test_dpi_argument_wins(tmp_path):
 DPI_MESSAGE = r"dpi must be a positive number of dots per inch, e\.g\. --dpi 600"
 
 
-@pytest.mark.parametrize(
-    "bad", [0, -300, float("nan"), float("inf"), 1e6, "300", True, (300,), (300, 0), [1, 2, 3]]
-)
+@pytest.mark.parametrize("bad", [0, -300, float("nan"), float("inf"), 1e6, "300", True, (300,), (300, 0), [1, 2, 3]])
 def test_bad_dpi_argument(tmp_path, bad):
     path = save(tmp_path, "d.png", Image.new("L", (10, 10)))
     expect_error(OptionError, None, DPI_MESSAGE, load_image, path, dpi=bad)
@@ -1049,8 +1055,9 @@ def test_rgb16_tiff_orientation_3_and_planar(tmp_path):
     rgb = np.full((10, 14, 3), 40000, np.uint16)
     rgb[0, 0] = 0
     path = tmp_path / "p16.tif"
-    tifffile.imwrite(path, np.moveaxis(rgb, -1, 0), photometric="rgb", planarconfig="separate",
-                     extratags=[(274, "H", 1, 3, True)])
+    tifffile.imwrite(
+        path, np.moveaxis(rgb, -1, 0), photometric="rgb", planarconfig="separate", extratags=[(274, "H", 1, 3, True)]
+    )
     img = load_image(path)
     assert img.grey.shape == (10, 14) and img.grey[-1, -1] == 0 and img.grey[0, 0] == 40000
 

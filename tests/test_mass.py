@@ -6,13 +6,12 @@ import dataclasses
 import math
 
 import pytest
+from plate_parts import disc, make_measurement, make_part, polygon, rect
 
 from scanmass.errors import MaterialError, OptionError
-from scanmass.mass.plate import STANDARD_GRAVITY_M_S2, apply_mass, plate_mass
 from scanmass.mass.materials import Material, find_material, load_materials
+from scanmass.mass.plate import STANDARD_GRAVITY_M_S2, apply_mass, plate_mass
 from scanmass.measurement import Measurement
-
-from plate_parts import disc, make_measurement, make_part, polygon, rect
 
 REL = 1e-12  # exact closed forms: only rounding separates the values
 
@@ -23,11 +22,31 @@ def close(a: float, b: float, rel: float = REL) -> bool:
 
 # -- materials -------------------------------------------------------------------------
 
+
 def test_material_table_has_the_issue_materials_with_sources():
     table = load_materials()
-    for name in ["steel", "stainless 304", "stainless-316", "aluminium 6061", "5083", "1050", "brass",
-                 "copper", "Ti-6Al-4V", "acrylic", "polycarbonate", "HDPE", "ABS", "PLA", "plywood",
-                 "MDF", "cork", "neoprene", "EPDM", "FR4"]:
+    for name in [
+        "steel",
+        "stainless 304",
+        "stainless-316",
+        "aluminium 6061",
+        "5083",
+        "1050",
+        "brass",
+        "copper",
+        "Ti-6Al-4V",
+        "acrylic",
+        "polycarbonate",
+        "HDPE",
+        "ABS",
+        "PLA",
+        "plywood",
+        "MDF",
+        "cork",
+        "neoprene",
+        "EPDM",
+        "FR4",
+    ]:
         mat = find_material(name, table)
         assert mat.source, mat.key
         assert mat.density_min_kg_m3 <= mat.density_kg_m3 <= mat.density_max_kg_m3
@@ -39,12 +58,15 @@ def test_density_uncertainty_is_rectangular_half_width_over_root3():
     assert close(steel.density_u_kg_m3, (7880 - 7800) / 2 / math.sqrt(3))
 
 
-@pytest.mark.parametrize("name, key", [
-    ("Aluminum 6061", "aluminium-6061"),   # US spelling folded
-    ("STAINLESS_304", "stainless-304"),    # case and separators ignored
-    ("1.4401", "stainless-316"),            # EN number alias
-    ("ti6al4v", "titanium-ti6al4v"),
-])
+@pytest.mark.parametrize(
+    "name, key",
+    [
+        ("Aluminum 6061", "aluminium-6061"),  # US spelling folded
+        ("STAINLESS_304", "stainless-304"),  # case and separators ignored
+        ("1.4401", "stainless-316"),  # EN number alias
+        ("ti6al4v", "titanium-ti6al4v"),
+    ],
+)
 def test_find_material_ignores_case_separators_and_spelling(name, key):
     assert find_material(name).key == key
 
@@ -59,7 +81,7 @@ def test_unknown_material_lists_close_names():
 def test_user_file_adds_and_overrides(tmp_path):
     user = tmp_path / "shop.toml"
     user.write_text(
-        '[material.carbon-steel]\ndensity_kg_m3 = 7860\n'
+        "[material.carbon-steel]\ndensity_kg_m3 = 7860\n"
         '[material.foam-pvc]\nname = "Foamed PVC board"\ndensity_kg_m3 = 500\n'
         'density_range_kg_m3 = [450, 550]\naliases = ["foam board"]\nsource = "supplier datasheet"\n',
         encoding="utf-8",
@@ -70,13 +92,16 @@ def test_user_file_adds_and_overrides(tmp_path):
     assert find_material("Foam Board", table).density_kg_m3 == 500
 
 
-@pytest.mark.parametrize("text, match", [
-    ('[material.x]\ndensity_kg_m3 = -5\n', r"shop.toml: material 'x': density must be a positive number"),
-    ('[material.x]\ndensity_kg_m3 = 900\ndensity_range_kg_m3 = [100, 200]\n', r"outside its range"),
-    ('[material.x]\nname = "no density"\n', r"material 'x' has no density_kg_m3"),
-    ('[material.x]\ndensity = 900\n', r"unknown field\(s\) density"),
-    ('[material.x\n', r"shop.toml: not valid TOML"),
-])
+@pytest.mark.parametrize(
+    "text, match",
+    [
+        ("[material.x]\ndensity_kg_m3 = -5\n", r"shop.toml: material 'x': density must be a positive number"),
+        ("[material.x]\ndensity_kg_m3 = 900\ndensity_range_kg_m3 = [100, 200]\n", r"outside its range"),
+        ('[material.x]\nname = "no density"\n', r"material 'x' has no density_kg_m3"),
+        ("[material.x]\ndensity = 900\n", r"unknown field\(s\) density"),
+        ("[material.x\n", r"shop.toml: not valid TOML"),
+    ],
+)
 def test_bad_user_file_one_line_errors(tmp_path, text, match):
     user = tmp_path / "shop.toml"
     user.write_text(text, encoding="utf-8")
@@ -91,6 +116,7 @@ def test_missing_user_file(tmp_path):
 
 
 # -- masses from handbook densities x hand-computed areas ------------------------------
+
 
 def test_rectangle_mass_weight_and_areal_mass():
     # 100 mm x 50 mm x 2 mm carbon steel; density 7850 kg/m3 (EN 1993-1-1, 3.2.6; from memory).
@@ -117,6 +143,7 @@ def test_disc_with_holes_mass():
 
 
 # -- thin-plate inertia: dynamics handbook table -----------------------------------------
+
 
 def test_rectangular_plate_inertia_matches_handbook():
     # Rectangular prism a x b x t about centroidal axes (dynamics handbook table of mass
@@ -160,6 +187,7 @@ def test_l_bracket_product_of_inertia_sign_follows_product_of_area():
 
 # -- uncertainty ------------------------------------------------------------------------
 
+
 def test_mass_uncertainty_is_quadrature_of_relative_terms():
     # m = rho A t, so (u_m/m)^2 = (u_rho/rho)^2 + (u_A/A)^2 + (u_t/t)^2 (GUM 5.1.6, product of powers).
     part = make_part([rect(100, 50)], area_u=10.0)
@@ -193,6 +221,7 @@ def test_inertia_uncertainty_matches_numerical_derivatives():
 
 # -- apply_mass on a Measurement ----------------------------------------------------------
 
+
 def test_apply_mass_fills_parts_and_material_without_touching_input():
     m = make_measurement([make_part([rect(100, 50)], label=1), make_part([disc(20)], label=2)])
     out = apply_mass(m, "steel", 2.0, thickness_u_mm=0.05)
@@ -209,18 +238,23 @@ def test_apply_mass_fills_parts_and_material_without_touching_input():
 
 def test_apply_mass_accepts_a_user_materials_file(tmp_path):
     user = tmp_path / "mine.toml"
-    user.write_text('[material.test-sheet]\ndensity_kg_m3 = 1000\nsource = "unit density for the test"\n', encoding="utf-8")
+    user.write_text(
+        '[material.test-sheet]\ndensity_kg_m3 = 1000\nsource = "unit density for the test"\n', encoding="utf-8"
+    )
     out = apply_mass(make_measurement([make_part([rect(10, 10)])]), "test sheet", 1.0, materials=user)
     assert close(out.parts[0].mass_g, 0.1)  # 1e-3 g/mm3 * 100 mm2 * 1 mm
 
 
-@pytest.mark.parametrize("thickness, match", [
-    (0.0, r"thickness_mm must be a positive number of mm, got 0.0"),
-    (-2.0, r"thickness_mm must be a positive number of mm, got -2.0"),
-    (float("nan"), r"thickness_mm must be a positive number of mm, got nan"),
-    (None, r"thickness_mm is missing; pass the sheet thickness"),
-    ("thick", r"thickness_mm must be a number of mm, got 'thick'"),
-])
+@pytest.mark.parametrize(
+    "thickness, match",
+    [
+        (0.0, r"thickness_mm must be a positive number of mm, got 0.0"),
+        (-2.0, r"thickness_mm must be a positive number of mm, got -2.0"),
+        (float("nan"), r"thickness_mm must be a positive number of mm, got nan"),
+        (None, r"thickness_mm is missing; pass the sheet thickness"),
+        ("thick", r"thickness_mm must be a number of mm, got 'thick'"),
+    ],
+)
 def test_bad_thickness_is_one_line_option_error(thickness, match):
     m = make_measurement([make_part([rect(10, 10)])])
     with pytest.raises(OptionError, match=match) as info:
@@ -237,6 +271,12 @@ def test_negative_thickness_uncertainty_and_unknown_material():
 
 
 def test_material_object_can_be_passed_directly():
-    unit = Material(key="unit", name="unit", density_kg_m3=1000.0, density_u_kg_m3=0.0,
-                    density_min_kg_m3=1000.0, density_max_kg_m3=1000.0)
+    unit = Material(
+        key="unit",
+        name="unit",
+        density_kg_m3=1000.0,
+        density_u_kg_m3=0.0,
+        density_min_kg_m3=1000.0,
+        density_max_kg_m3=1000.0,
+    )
     assert close(plate_mass(make_part([rect(10, 20)]), unit, 5.0).mass_g, 1.0)

@@ -123,7 +123,7 @@ def test_pdf_physical_size_and_structure():
     xref = int(re.search(rb"startxref\n(\d+)", data).group(1))
     entries = re.findall(rb"(\d{10}) 00000 n", data[xref:])
     for k, off in enumerate(entries, start=1):
-        assert data[int(off):].startswith(f"{k} 0 obj".encode())
+        assert data[int(off) :].startswith(f"{k} 0 obj".encode())
     # the content stream draws one filled rectangle per dark area, in mm
     stream = re.search(rb"stream\n(.*)\nendstream", data, re.S).group(1)
     ops = zlib.decompress(stream).decode("latin-1")
@@ -134,8 +134,20 @@ def test_pdf_physical_size_and_structure():
 
 def test_cli_mat_writes_files_and_refuses_bad_layout(tmp_path):
     runner = CliRunner()
-    res = runner.invoke(app, ["mat", "--layout", "a3-landscape", "--pdf", str(tmp_path / "m.pdf"), "--png",
-                              str(tmp_path / "m.png"), "--dpi", "60"])
+    res = runner.invoke(
+        app,
+        [
+            "mat",
+            "--layout",
+            "a3-landscape",
+            "--pdf",
+            str(tmp_path / "m.pdf"),
+            "--png",
+            str(tmp_path / "m.png"),
+            "--dpi",
+            "60",
+        ],
+    )
     assert res.exit_code == 0, res.output
     assert {p.name for p in tmp_path.iterdir()} == {"m.pdf", "m.png", "m.json"}
     assert json.loads((tmp_path / "m.json").read_text())["name"] == "a3-landscape"

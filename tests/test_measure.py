@@ -13,8 +13,8 @@ import math
 
 import numpy as np
 import pytest
-
 from polygon_truth import truth
+
 from scanmass import measure
 from scanmass.errors import ScaleError, SegmentationError
 from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
@@ -39,7 +39,9 @@ def _match(parts, truths):
 
 
 def _plate_with_holes() -> SynthPart:
-    return SynthPart(rectangle(12.3, 14.1, 46.0, 28.0, angle_deg=11.0), [circle(27.0, 26.0, 4.0), circle(44.0, 31.5, 6.5)])
+    return SynthPart(
+        rectangle(12.3, 14.1, 46.0, 28.0, angle_deg=11.0), [circle(27.0, 26.0, 4.0), circle(44.0, 31.5, 6.5)]
+    )
 
 
 SCENES = {
@@ -53,8 +55,17 @@ SCENES = {
 def test_synthetic_scan_matches_truth(dpi, polarity):
     parts = SCENES["plate+disc"]
     fg, bg = (0.06, 0.82) if polarity == "dark" else (0.7, 0.04)
-    scan = render_scan(parts, dpi=dpi, size_mm=(115, 75), background=bg, foreground=fg, blur_px=1.0,
-                       noise=0.008, illumination=(0.08, -0.05), seed=dpi)
+    scan = render_scan(
+        parts,
+        dpi=dpi,
+        size_mm=(115, 75),
+        background=bg,
+        foreground=fg,
+        blur_px=1.0,
+        noise=0.008,
+        illumination=(0.08, -0.05),
+        seed=dpi,
+    )
     m = measure(scan.image, dpi=dpi)
     assert len(m.parts) == 2
     px = 25.4 / dpi
@@ -177,8 +188,22 @@ def test_result_document_keys_and_round_trip():
     for key in ("schema", "source", "scale", "parts", "warnings"):
         assert key in doc
     part = doc["parts"][0]
-    for key in ("label", "area_mm2", "area_u_mm2", "centroid_mm", "centroid_u_mm", "perimeter_mm", "ixx_mm4",
-                "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "principal_angle_deg", "holes", "bbox_mm"):
+    for key in (
+        "label",
+        "area_mm2",
+        "area_u_mm2",
+        "centroid_mm",
+        "centroid_u_mm",
+        "perimeter_mm",
+        "ixx_mm4",
+        "iyy_mm4",
+        "ixy_mm4",
+        "i1_mm4",
+        "i2_mm4",
+        "principal_angle_deg",
+        "holes",
+        "bbox_mm",
+    ):
         assert key in part
     assert {"edge", "threshold", "scale"} <= set(part["uncertainty_terms"])
     for key in ("method", "mm_per_px", "mm_per_px_rel_u"):

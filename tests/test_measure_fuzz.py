@@ -74,5 +74,7 @@ def test_random_images_with_valid_scale_reach_the_segmenter(img, dpi, keep_cut):
         assert "\n" not in str(exc)
         return
     for part in result.parts:
-        assert part.area_mm2 > 0 and math.isfinite(part.ixx_mm4) and part.i1_mm4 >= part.i2_mm4 - 1e-9 * abs(part.i1_mm4)
+        assert (
+            part.area_mm2 > 0 and math.isfinite(part.ixx_mm4) and part.i1_mm4 >= part.i2_mm4 - 1e-9 * abs(part.i1_mm4)
+        )
     result.to_json()

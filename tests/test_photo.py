@@ -16,15 +16,15 @@ import math
 
 import numpy as np
 import pytest
+from _mat_photos import PhotoParts, make_camera, render_photo, truth
 from PIL import Image
 from typer.testing import CliRunner
 
-from _mat_photos import PhotoParts, make_camera, render_photo, truth
 from scanmass import measure
 from scanmass.cli.app import app
 from scanmass.errors import OptionError, ScaleError, SegmentationError
-from scanmass.scale.homography import apply_h
 from scanmass.load.decode import load_image
+from scanmass.scale.homography import apply_h
 from scanmass.scale.mat import make_mat
 from scanmass.scale.photo import mat_scale
 from scanmass.testing.scans import circle, l_section, rectangle
@@ -96,7 +96,7 @@ def test_jpeg_uneven_light_blur_noise():
     cam = make_camera(tilt_deg=22.0, tilt_dir_deg=150.0, roll_deg=-80.0, distance_mm=360.0)
     img = render_photo(MAT, parts, cam, seed=5, blur_px=1.6, noise=0.012, light=(0.3, -0.25), jpeg_quality=85)
     m = measure(img, printed_x_mm=100.0, printed_y_mm=100.0)
-    (p, t), = _match(m.parts, [truth(parts[0].outer_mm, parts[0].holes_mm)])
+    ((p, t),) = _match(m.parts, [truth(parts[0].outer_mm, parts[0].holes_mm)])
     _check(p, t)
 
 
@@ -108,7 +108,11 @@ def test_printer_check_corrects_x_and_y_scale():
     t = truth(parts[0].outer_mm, parts[0].holes_mm)
     m = measure(img, printed_x_mm=101.0, printed_y_mm=99.4)
     _check(m.parts[0], t)
-    assert m.scale.extra["printer_check"] == {"done": True, "x_factor": pytest.approx(1.01), "y_factor": pytest.approx(0.994)}
+    assert m.scale.extra["printer_check"] == {
+        "done": True,
+        "x_factor": pytest.approx(1.01),
+        "y_factor": pytest.approx(0.994),
+    }
     unchecked = measure(img)
     assert any("print scale unverified" in w for w in unchecked.warnings)
     assert unchecked.scale.terms["printer"] == 0.005
@@ -155,6 +159,7 @@ def test_plain_sheet():
 
 # -- bad input: one-line errors -----------------------------------------------------------------
 
+
 def _cam():
     return make_camera(tilt_deg=18.0, tilt_dir_deg=60.0, roll_deg=95.0, distance_mm=370.0)
 
@@ -173,7 +178,9 @@ def test_too_few_markers():
 
 
 def test_unknown_layout():
-    foreign = dataclasses.replace(MAT, markers=tuple(dataclasses.replace(m, id=240 + k) for k, m in enumerate(MAT.markers[:10])))
+    foreign = dataclasses.replace(
+        MAT, markers=tuple(dataclasses.replace(m, id=240 + k) for k, m in enumerate(MAT.markers[:10]))
+    )
     img = render_photo(foreign, [_plate()], _cam())
     with pytest.raises(ScaleError, match="belong to no scanmass mat"):
         measure(img)
@@ -218,7 +225,9 @@ def test_cli_measure_photo(tmp_path):
     path = tmp_path / "part.jpg"
     Image.fromarray(render_photo(MAT, [_plate()], _cam(), seed=4)).save(path, quality=92)
     out = tmp_path / "r.json"
-    res = CliRunner().invoke(app, ["measure", str(path), "--printed-x", "100", "--printed-y", "100", "--json", str(out), "-q"])
+    res = CliRunner().invoke(
+        app, ["measure", str(path), "--printed-x", "100", "--printed-y", "100", "--json", str(out), "-q"]
+    )
     assert res.exit_code == 0, res.output
     import json
 

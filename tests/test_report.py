@@ -11,14 +11,14 @@ import base64
 import io
 import json
 import re
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from html.parser import HTMLParser
 
+import _exact_results as E
 import numpy as np
 import pytest
 from PIL import Image
 
-import _exact_results as E
 from scanmass.errors import ImageError, OptionError, OutputError, ResultFormatError
 from scanmass.mass.plate import apply_mass
 from scanmass.outputs.report import (
@@ -30,7 +30,7 @@ from scanmass.outputs.report import (
     write_summary,
 )
 
-WHEN = datetime(2024, 5, 6, 7, 8, tzinfo=timezone.utc)
+WHEN = datetime(2024, 5, 6, 7, 8, tzinfo=UTC)
 
 
 class _Page(HTMLParser):
@@ -160,8 +160,14 @@ def test_report_shows_scale_source_warnings_and_cautions(sample):
 
 def test_report_states_frames_and_conventions(sample):
     text = " ".join(_Page(render_report([sample], generated_at=WHEN)).text)
-    for phrase in ("x to the right and y up", "Ixy = ∫(x − xc)(y − yc) dA", "I1 ≥ I2", "J = Ixx + Iyy",
-                   "counter-clockwise from +x", "standard uncertainty (1 sigma)"):
+    for phrase in (
+        "x to the right and y up",
+        "Ixy = ∫(x − xc)(y − yc) dA",
+        "I1 ≥ I2",
+        "J = Ixx + Iyy",
+        "counter-clockwise from +x",
+        "standard uncertainty (1 sigma)",
+    ):
         assert phrase in text
 
 
@@ -185,7 +191,12 @@ def test_report_mass_rows_when_known(sample):
     mass_rows = [c for _, c in page.rows if c[:2] == ["Mass", "m"]]
     assert len(mass_rows) == 3
     for part, cells in zip(m.parts, mass_rows):
-        assert cells[2:6] == [*format_value(part.mass_g, part.mass_u_g)[:1], "±", format_value(part.mass_g, part.mass_u_g)[1], "g"]
+        assert cells[2:6] == [
+            *format_value(part.mass_g, part.mass_u_g)[:1],
+            "±",
+            format_value(part.mass_g, part.mass_u_g)[1],
+            "g",
+        ]
     assert page.row("Sheet thickness")[1] == "2.000 ± 0.020 mm"
 
 
@@ -297,8 +308,10 @@ def _batch_rows():
 
 def test_summary_counts_failures_and_table():
     rows = _batch_rows()
-    failures = [{"file": "scans/c.jpg", "reason": "no scale: the file stores no resolution <b>"},
-                {"file": "scans/d.png", "error": "no part found"}]
+    failures = [
+        {"file": "scans/c.jpg", "reason": "no scale: the file stores no resolution <b>"},
+        {"file": "scans/d.png", "error": "no part found"},
+    ]
     html = render_summary(rows, failures, generated_at=WHEN)
     page = _Page(html)
     counts = {a["data-count"]: None for a in page.find("td") if "data-count" in a}

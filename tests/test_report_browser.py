@@ -16,17 +16,19 @@ import re
 import shutil
 from pathlib import Path
 
+import _exact_results as E
 import pytest
 from PIL import Image
-
-import _exact_results as E
 
 webdriver = pytest.importorskip("selenium.webdriver", reason="selenium is not installed (pip install selenium)")
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 CHROMEDRIVER = shutil.which("chromedriver")
 if not (CHROMIUM and CHROMEDRIVER):
-    pytest.skip("chromium and chromium-driver are not installed (apt-get install chromium chromium-driver)", allow_module_level=True)
+    pytest.skip(
+        "chromium and chromium-driver are not installed (apt-get install chromium chromium-driver)",
+        allow_module_level=True,
+    )
 
 from scanmass.outputs.report import render_summary, write_report  # noqa: E402
 
@@ -49,10 +51,19 @@ def browser(tmp_path_factory):
 
     options = Options()
     options.binary_location = CHROMIUM
-    for arg in ("--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                "--disable-dev-shm-usage", "--window-size=1200,1600",
-                f"--user-data-dir={tmp_path_factory.mktemp('chromium-profile')}"):
+    for arg in (
+        "--headless",
+        "--no-sandbox",
+        "--disable-gpu",
+        "--disable-quic",
+        "--no-first-run",
+        "--disable-background-networking",
+        "--disable-component-update",
+        "--disable-sync",
+        "--disable-dev-shm-usage",
+        "--window-size=1200,1600",
+        f"--user-data-dir={tmp_path_factory.mktemp('chromium-profile')}",
+    ):
         options.add_argument(arg)
     options.set_capability("goog:loggingPrefs", {"browser": "ALL"})
     # an explicit driver path keeps selenium from looking for (downloading) a driver
@@ -74,7 +85,9 @@ def _console_errors(driver) -> list[str]:
 
 
 def _external_requests(driver) -> list[str]:
-    names = driver.execute_script("return performance.getEntriesByType('resource').map(function (e) { return e.name; });")
+    names = driver.execute_script(
+        "return performance.getEntriesByType('resource').map(function (e) { return e.name; });"
+    )
     return [n for n in names if not n.startswith(("data:", "file:"))]
 
 
@@ -143,13 +156,20 @@ def test_summary_in_browser_sorts(browser, tmp_path):
     assert len(browser.find_elements("css selector", "#all-parts tbody tr")) == len(rows)
 
     header = browser.find_element("css selector", 'th[data-key="area_mm2"]')
-    col = [h.get_attribute("data-key") for h in browser.find_elements("css selector", "#all-parts th")].index("area_mm2")
+    col = [h.get_attribute("data-key") for h in browser.find_elements("css selector", "#all-parts th")].index(
+        "area_mm2"
+    )
 
     def column() -> list[float]:
-        return [float(v) for v in browser.execute_script(
-            "var c = arguments[0];"
-            "return Array.from(document.querySelectorAll('#all-parts tbody tr')).map(function (r) {"
-            " return r.cells[c].getAttribute('data-value'); });", col)]
+        return [
+            float(v)
+            for v in browser.execute_script(
+                "var c = arguments[0];"
+                "return Array.from(document.querySelectorAll('#all-parts tbody tr')).map(function (r) {"
+                " return r.cells[c].getAttribute('data-value'); });",
+                col,
+            )
+        ]
 
     header.click()
     assert column() == sorted(r["area_mm2"] for r in rows)
@@ -163,9 +183,11 @@ def test_summary_in_browser_sorts(browser, tmp_path):
 def test_checks_catch_a_broken_page(browser, tmp_path):
     # The harness itself: a script error and an image that does not decode must show up.
     page = tmp_path / "broken.html"
-    page.write_text('<!DOCTYPE html><html><head><link rel="icon" href="data:,"><title>x</title></head><body>'
-                    '<img id="bad" src="data:image/png;base64,iVBORw0KGgo=">'
-                    "<script>undefinedFunction();</script></body></html>")
+    page.write_text(
+        '<!DOCTYPE html><html><head><link rel="icon" href="data:,"><title>x</title></head><body>'
+        '<img id="bad" src="data:image/png;base64,iVBORw0KGgo=">'
+        "<script>undefinedFunction();</script></body></html>"
+    )
     _open(browser, page)
     errors = _console_errors(browser)
     assert any("undefinedFunction" in e for e in errors)

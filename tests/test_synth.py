@@ -63,9 +63,7 @@ def _shapely_coverage(poly: shapely.Geometry, shape: tuple[int, int], s_mm: floa
     return (shapely.area(shapely.intersection(poly, boxes)) / s_mm**2).reshape(shape)
 
 
-def _random_part(
-    rng: np.random.Generator, cx: float, cy: float, size: float
-) -> tuple[SynthPart, shapely.Polygon]:
+def _random_part(rng: np.random.Generator, cx: float, cy: float, size: float) -> tuple[SynthPart, shapely.Polygon]:
     """A random part with 0-2 holes and its shapely twin (orientation randomised)."""
     outer = _star(rng, cx, cy, 0.6 * size, size, int(rng.integers(5, 14)))
     holes = []
@@ -325,9 +323,7 @@ def test_illumination_gradient_and_polarity():
     x_mm = (np.arange(50) + 0.5) * s_mm
     want = 0.85 * (1 + 0.2 * (x_mm - 25 * s_mm) / (50 * s_mm))
     np.testing.assert_allclose(scan.linear, np.broadcast_to(want, (4, 50)), atol=1e-12)
-    bright = render_scan(
-        [SynthPart(rectangle(1, 1, 3, 3))], size_mm=(5, 5), dpi=100, background=0.08, foreground=0.85
-    )
+    bright = render_scan([SynthPart(rectangle(1, 1, 3, 3))], size_mm=(5, 5), dpi=100, background=0.08, foreground=0.85)
     assert bright.linear.max() > 0.8 and bright.linear[0, 0] == pytest.approx(0.08)
 
 

@@ -61,7 +61,7 @@ from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from concurrent import futures as cf
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, Literal
 
@@ -109,12 +109,23 @@ _CHUNK_BYTES = 1 << 20
 #: Columns of the ``parts`` table besides ``file_id`` and ``row_json`` (the main figures;
 #: the full CSV row of :meth:`Measurement.csv_rows` is kept in ``row_json``).
 _PART_COLUMNS = (
-    ("part", "INTEGER"), ("area_mm2", "REAL"), ("area_u_mm2", "REAL"),
-    ("centroid_x_mm", "REAL"), ("centroid_y_mm", "REAL"),
-    ("centroid_x_u_mm", "REAL"), ("centroid_y_u_mm", "REAL"), ("perimeter_mm", "REAL"),
-    ("ixx_mm4", "REAL"), ("iyy_mm4", "REAL"), ("ixy_mm4", "REAL"),
-    ("i1_mm4", "REAL"), ("i2_mm4", "REAL"), ("principal_angle_deg", "REAL"),
-    ("holes", "INTEGER"), ("mass_g", "REAL"), ("mass_u_g", "REAL"),
+    ("part", "INTEGER"),
+    ("area_mm2", "REAL"),
+    ("area_u_mm2", "REAL"),
+    ("centroid_x_mm", "REAL"),
+    ("centroid_y_mm", "REAL"),
+    ("centroid_x_u_mm", "REAL"),
+    ("centroid_y_u_mm", "REAL"),
+    ("perimeter_mm", "REAL"),
+    ("ixx_mm4", "REAL"),
+    ("iyy_mm4", "REAL"),
+    ("ixy_mm4", "REAL"),
+    ("i1_mm4", "REAL"),
+    ("i2_mm4", "REAL"),
+    ("principal_angle_deg", "REAL"),
+    ("holes", "INTEGER"),
+    ("mass_g", "REAL"),
+    ("mass_u_g", "REAL"),
 )
 
 _SCHEMA_SQL = f"""
@@ -160,7 +171,7 @@ CREATE TABLE IF NOT EXISTS parts (
 
 
 def _now() -> str:
-    return datetime.now(timezone.utc).isoformat(timespec="milliseconds")
+    return datetime.now(UTC).isoformat(timespec="milliseconds")
 
 
 def _one_line(text: str) -> str:
@@ -202,9 +213,17 @@ def _option_defaults() -> dict[str, Any]:
 # "path": a file, made absolute against the settings file's folder; "ref": a name or a file
 # (made absolute when such a file exists there).
 _KINDS: dict[str, str] = {
-    "dpi": "dpi", "threshold": "float", "min_hole_area_mm2": "float", "material": "str",
-    "thickness_mm": "float", "materials_file": "path", "sheet": "str", "printed_x_mm": "float",
-    "printed_y_mm": "float", "mat": "ref", "lens": "ref",
+    "dpi": "dpi",
+    "threshold": "float",
+    "min_hole_area_mm2": "float",
+    "material": "str",
+    "thickness_mm": "float",
+    "materials_file": "path",
+    "sheet": "str",
+    "printed_x_mm": "float",
+    "printed_y_mm": "float",
+    "mat": "ref",
+    "lens": "ref",
 }
 
 
@@ -298,21 +317,29 @@ def _validate(options: Mapping[str, Any], where: str | None) -> None:
             raise OptionError(f"dpi {dpi!r} must be a positive number of dots per inch, e.g. dpi = 600", path=where)
     material, thickness = options.get("material"), options.get("thickness_mm")
     if (material is None) != (thickness is None):
-        raise OptionError("mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=where)
+        raise OptionError(
+            "mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=where
+        )
     if material is not None:
-        from scanmass.mass.plate import check_positive
         from scanmass.mass.materials import find_material, load_materials
+        from scanmass.mass.plate import check_positive
 
         check_positive("thickness_mm", thickness, hint="pass the sheet thickness in mm, e.g. 2.0")
-        check_positive("thickness_u_mm", options.get("thickness_u_mm", 0.0), allow_zero=True,
-                       hint="pass the thickness's standard uncertainty in mm, or 0")
+        check_positive(
+            "thickness_u_mm",
+            options.get("thickness_u_mm", 0.0),
+            allow_zero=True,
+            hint="pass the thickness's standard uncertainty in mm, or 0",
+        )
         find_material(material, load_materials(options.get("materials_file")))
 
 
 def _normalise(options: Mapping[str, Any], *, where: str | None, base: Path | None) -> dict[str, Any]:
     defaults = _option_defaults()
-    return {name: _coerce(name, value, _kind(name, defaults.get(name)), where=where, base=base)
-            for name, value in options.items()}
+    return {
+        name: _coerce(name, value, _kind(name, defaults.get(name)), where=where, base=base)
+        for name, value in options.items()
+    }
 
 
 def folder_settings(folder: str | os.PathLike, *, name: str = SETTINGS_FILE) -> dict[str, Any]:
@@ -343,7 +370,10 @@ def folder_settings(folder: str | os.PathLike, *, name: str = SETTINGS_FILE) -> 
     except FileNotFoundError:
         return {}
     except (OSError, UnicodeDecodeError) as exc:
-        raise OptionError(f"cannot read the settings file ({exc.__class__.__name__}); make it a readable UTF-8 TOML file", path=str(path)) from None
+        raise OptionError(
+            f"cannot read the settings file ({exc.__class__.__name__}); make it a readable UTF-8 TOML file",
+            path=str(path),
+        ) from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -446,15 +476,19 @@ def find_images(
         root = Path(os.path.normpath(os.path.abspath(Path(folder).expanduser())))
         if root.is_file():
             if not _is_image(root.name):
-                raise OptionError(f"is a file but not a {'/'.join(s[1:] for s in IMAGE_SUFFIXES)} image; give a folder or an image", path=str(root))
+                raise OptionError(
+                    f"is a file but not a {'/'.join(s[1:] for s in IMAGE_SUFFIXES)} image; give a folder or an image",
+                    path=str(root),
+                )
             take(root.parent, root)
             continue
         if not root.is_dir():
             raise OptionError("folder not found; check the path", path=str(root))
         found: list[Path] = []
         for dirpath, dirnames, filenames in os.walk(root):
-            dirnames[:] = sorted(d for d in dirnames if not d.startswith(".")
-                                 and os.path.realpath(os.path.join(dirpath, d)) not in skip)
+            dirnames[:] = sorted(
+                d for d in dirnames if not d.startswith(".") and os.path.realpath(os.path.join(dirpath, d)) not in skip
+            )
             found.extend(Path(dirpath) / f for f in filenames if not f.startswith(".") and _is_image(f))
         for path in sorted(found):
             take(root, path)
@@ -511,8 +545,13 @@ def _worker_init(parent_pid: int) -> None:
 #: may use. Worker processes run one thread each: the parallelism is the processes, and
 #: idle OpenBLAS threads spinning beside a busy worker were measured to cost ~40 % extra
 #: CPU per file.
-_THREAD_ENV = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "VECLIB_MAXIMUM_THREADS",
-               "NUMEXPR_NUM_THREADS")
+_THREAD_ENV = (
+    "OMP_NUM_THREADS",
+    "OPENBLAS_NUM_THREADS",
+    "MKL_NUM_THREADS",
+    "VECLIB_MAXIMUM_THREADS",
+    "NUMEXPR_NUM_THREADS",
+)
 
 
 @contextlib.contextmanager
@@ -570,9 +609,17 @@ def measure_task(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
         status = "failed"
         error = _one_line(f"{path}: internal error ({type(exc).__name__}: {exc}); please report it with this file")
     return {
-        "path": path, "status": status, "error": error, "result": result, "sha256": sha, "rows": rows,
-        "started": started, "finished": _now(), "seconds": time.perf_counter() - t0,
-        "cpu_seconds": time.process_time() - c0, "worker": f"{socket.gethostname()}:{os.getpid()}",
+        "path": path,
+        "status": status,
+        "error": error,
+        "result": result,
+        "sha256": sha,
+        "rows": rows,
+        "started": started,
+        "finished": _now(),
+        "seconds": time.perf_counter() - t0,
+        "cpu_seconds": time.process_time() - c0,
+        "worker": f"{socket.gethostname()}:{os.getpid()}",
         "max_rss_kb": _max_rss_kb(),
     }
 
@@ -600,7 +647,9 @@ def _connect(db_path: Path, *, readonly: bool = False) -> sqlite3.Connection:
             conn = sqlite3.connect(db_path, isolation_level=None, timeout=30.0)
         version = conn.execute("PRAGMA user_version").fetchone()[0]
     except sqlite3.DatabaseError as exc:
-        raise ResultFormatError(f"not a scanmass batch database ({exc}); choose another --out folder", path=str(db_path)) from None
+        raise ResultFormatError(
+            f"not a scanmass batch database ({exc}); choose another --out folder", path=str(db_path)
+        ) from None
     if version not in (0, DB_VERSION):
         conn.close()
         raise ResultFormatError(
@@ -634,7 +683,9 @@ class _Store:
                 self.conn.execute("UPDATE runs SET status='killed' WHERE status='running'")
         except sqlite3.DatabaseError as exc:
             self.close()
-            raise ResultFormatError(f"cannot use the batch database ({exc}); choose another --out folder", path=str(self.db_path)) from None
+            raise ResultFormatError(
+                f"cannot use the batch database ({exc}); choose another --out folder", path=str(self.db_path)
+            ) from None
         except BaseException:
             self.close()
             raise
@@ -693,8 +744,15 @@ class _Store:
             cur = self.conn.execute(
                 "INSERT INTO runs (started, status, scanmass_version, host, pid, folders, options, backend) "
                 "VALUES (?, 'running', ?, ?, ?, ?, ?, ?)",
-                (_now(), __version__, socket.gethostname(), os.getpid(), _canonical(info["folders"]),
-                 _canonical(info["options"]), info["backend"]),
+                (
+                    _now(),
+                    __version__,
+                    socket.gethostname(),
+                    os.getpid(),
+                    _canonical(info["folders"]),
+                    _canonical(info["options"]),
+                    info["backend"],
+                ),
             )
         return int(cur.lastrowid)
 
@@ -702,8 +760,16 @@ class _Store:
         with self.transaction():
             self.conn.execute(
                 "UPDATE runs SET finished=?, status=?, measured=?, failed=?, duplicates=?, unchanged=?, seconds=? WHERE id=?",
-                (_now(), status, counts["measured"], counts["failed"], counts["duplicates"], counts["unchanged"],
-                 counts["seconds"], run_id),
+                (
+                    _now(),
+                    status,
+                    counts["measured"],
+                    counts["failed"],
+                    counts["duplicates"],
+                    counts["unchanged"],
+                    counts["seconds"],
+                    run_id,
+                ),
             )
 
     # -- files --------------------------------------------------------------------------
@@ -711,8 +777,12 @@ class _Store:
         rows = self.conn.execute(
             "SELECT id, path, size_bytes, mtime_ns, content_sha256, settings_sha256, status FROM files"
         ).fetchall()
-        return {r["path"]: _Record(r["id"], r["size_bytes"], r["mtime_ns"], r["content_sha256"], r["settings_sha256"],
-                                   r["status"]) for r in rows}
+        return {
+            r["path"]: _Record(
+                r["id"], r["size_bytes"], r["mtime_ns"], r["content_sha256"], r["settings_sha256"], r["status"]
+            )
+            for r in rows
+        }
 
     def find_ok(self, content: str, settings: str, *, not_path: str) -> sqlite3.Row | None:
         return self.conn.execute(
@@ -725,10 +795,22 @@ class _Store:
         with self.transaction():
             self.conn.execute("UPDATE files SET size_bytes=?, mtime_ns=? WHERE path=?", (size_bytes, mtime_ns, path))
 
-    def write_file(self, job: "_Job", *, run_id: int, status: str, error: str | None = None, same_as: str | None = None,
-                   result: str | None = None, rows: Sequence[Mapping[str, Any]] = (), started: str | None = None,
-                   finished: str | None = None, seconds: float | None = None, cpu_seconds: float | None = None,
-                   worker: str | None = None) -> None:
+    def write_file(
+        self,
+        job: _Job,
+        *,
+        run_id: int,
+        status: str,
+        error: str | None = None,
+        same_as: str | None = None,
+        result: str | None = None,
+        rows: Sequence[Mapping[str, Any]] = (),
+        started: str | None = None,
+        finished: str | None = None,
+        seconds: float | None = None,
+        cpu_seconds: float | None = None,
+        worker: str | None = None,
+    ) -> None:
         """Record one finished file (and its parts) in one transaction."""
         now = _now()
         with self.transaction():
@@ -742,10 +824,24 @@ class _Store:
                 "started=excluded.started, finished=excluded.finished, seconds=excluded.seconds, "
                 "cpu_seconds=excluded.cpu_seconds, "
                 "worker=excluded.worker, run_id=excluded.run_id, result=excluded.result",
-                (job.path, job.size_bytes, job.mtime_ns, job.content_sha256, job.settings_sha256,
-                 _canonical(job.options), status, same_as, error, started or now, finished or now, seconds, cpu_seconds,
-                 worker,
-                 run_id, result),
+                (
+                    job.path,
+                    job.size_bytes,
+                    job.mtime_ns,
+                    job.content_sha256,
+                    job.settings_sha256,
+                    _canonical(job.options),
+                    status,
+                    same_as,
+                    error,
+                    started or now,
+                    finished or now,
+                    seconds,
+                    cpu_seconds,
+                    worker,
+                    run_id,
+                    result,
+                ),
             )
             file_id = self.conn.execute("SELECT id FROM files WHERE path=?", (job.path,)).fetchone()[0]
             self.conn.execute("DELETE FROM parts WHERE file_id=?", (file_id,))
@@ -853,8 +949,9 @@ class _PoolBackend(_Backend):
                     from multiprocessing import forkserver
 
                     forkserver.ensure_running()
-            self._pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=ctx, initializer=_worker_init,
-                                                initargs=(os.getpid(),))
+            self._pool = cf.ProcessPoolExecutor(
+                max_workers=self.workers, mp_context=ctx, initializer=_worker_init, initargs=(os.getpid(),)
+            )
         return self._pool
 
     def _submit(self, path: str, options: Mapping[str, Any]) -> cf.Future:
@@ -929,7 +1026,9 @@ class _DaskBackend(_Backend):
             try:
                 n = int(n_text) if n_text else (workers or _cpu_count())
             except ValueError:
-                raise OptionError(f"cluster {address!r}: the number of workers must be a whole number, e.g. local:4") from None
+                raise OptionError(
+                    f"cluster {address!r}: the number of workers must be a whole number, e.g. local:4"
+                ) from None
             if n < 1:
                 raise OptionError(f"cluster {address!r}: give at least one worker, e.g. local:2")
             import dask
@@ -938,20 +1037,29 @@ class _DaskBackend(_Backend):
             # dask's MALLOC_TRIM_THRESHOLD_: an explicit trim threshold turns off glibc's
             # dynamic mmap threshold, so every large array is mapped and page-faulted afresh
             # (measured: +15 % CPU per A4 scan).
-            environ = {k: v for k, v in (dask.config.get("distributed.nanny.pre-spawn-environ", None) or {}).items()
-                       if k != "MALLOC_TRIM_THRESHOLD_"}
+            environ = {
+                k: v
+                for k, v in (dask.config.get("distributed.nanny.pre-spawn-environ", None) or {}).items()
+                if k != "MALLOC_TRIM_THRESHOLD_"
+            }
             environ.update({name: 1 for name in _THREAD_ENV})
             with _sigint_ignored(), dask.config.set({"distributed.nanny.pre-spawn-environ": environ}):
                 # SIGINT ignored: the worker processes inherit it, Ctrl-C is the parent's business
                 self._cluster = distributed.LocalCluster(
-                    n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
-                    dashboard_address=None, silence_logs=logging.ERROR,
+                    n_workers=n,
+                    threads_per_worker=1,
+                    processes=True,
+                    host="127.0.0.1",
+                    dashboard_address=None,
+                    silence_logs=logging.ERROR,
                 )
             self._client = distributed.Client(self._cluster)
             self.name = f"dask-local:{n}"
         else:
             if "://" not in text and ":" not in text:
-                raise OptionError(f"cluster address {address!r} is not an address; give e.g. tcp://host:8786 or local:4")
+                raise OptionError(
+                    f"cluster address {address!r} is not an address; give e.g. tcp://host:8786 or local:4"
+                )
             try:
                 self._client = distributed.Client(text, timeout="10s")
             except (OSError, TimeoutError, ValueError) as exc:
@@ -1096,10 +1204,24 @@ class _Interrupt(Exception):
 
 
 class _Runner:
-    def __init__(self, *, store: _Store, backend_factory: Callable[[], _Backend], folders: list[Path],
-                 include: Sequence[str], exclude: Sequence[str], base_options: dict[str, Any], settings_name: str,
-                 retry_failed: bool, rehash: bool, watch: bool, settle_seconds: float, stop_event: threading.Event | None,
-                 progress: Callable[[BatchProgress], None] | None, run_id: int) -> None:
+    def __init__(
+        self,
+        *,
+        store: _Store,
+        backend_factory: Callable[[], _Backend],
+        folders: list[Path],
+        include: Sequence[str],
+        exclude: Sequence[str],
+        base_options: dict[str, Any],
+        settings_name: str,
+        retry_failed: bool,
+        rehash: bool,
+        watch: bool,
+        settle_seconds: float,
+        stop_event: threading.Event | None,
+        progress: Callable[[BatchProgress], None] | None,
+        run_id: int,
+    ) -> None:
         self.store = store
         self._backend_factory = backend_factory
         self._backend: _Backend | None = None
@@ -1130,12 +1252,24 @@ class _Runner:
     def emit(self, event: str, path: str | None = None, status: str | None = None, error: str | None = None) -> None:
         if self.progress is None:
             return
-        self.progress(BatchProgress(
-            event=event, cycle=self.cycle, total=self.total, processed=self.processed, measured=self.measured,
-            failed=self.failed, duplicates=self.duplicates, unchanged=len(self.unchanged),
-            failed_earlier=len(self.failed_earlier), in_flight=len(self.in_flight),
-            elapsed_s=time.perf_counter() - self.t0, path=path, status=status, error=error,
-        ))
+        self.progress(
+            BatchProgress(
+                event=event,
+                cycle=self.cycle,
+                total=self.total,
+                processed=self.processed,
+                measured=self.measured,
+                failed=self.failed,
+                duplicates=self.duplicates,
+                unchanged=len(self.unchanged),
+                failed_earlier=len(self.failed_earlier),
+                in_flight=len(self.in_flight),
+                elapsed_s=time.perf_counter() - self.t0,
+                path=path,
+                status=status,
+                error=error,
+            )
+        )
 
     def check_stop(self) -> None:
         if self.stop_event is not None and self.stop_event.is_set():
@@ -1184,8 +1318,13 @@ class _Runner:
                 continue  # vanished since the listing
             rec = records.get(key)
             rehash = self.rehash and self.cycle == 1  # watch: later cycles trust size and time
-            if (rec is not None and not rehash and rec.settings_sha256 == shash
-                    and rec.size_bytes == st.st_size and rec.mtime_ns == st.st_mtime_ns):
+            if (
+                rec is not None
+                and not rehash
+                and rec.settings_sha256 == shash
+                and rec.size_bytes == st.st_size
+                and rec.mtime_ns == st.st_mtime_ns
+            ):
                 self.found.add(key)
                 if rec.status in ("ok", "duplicate"):
                     if key not in self.recorded:
@@ -1199,8 +1338,16 @@ class _Runner:
             if self.watch and now_ns - st.st_mtime_ns < self.settle_seconds * 1e9:
                 continue  # perhaps still being written: next cycle
             self.found.add(key)
-            todo.append(_Job(root=root, path=key, options=options, settings_sha256=shash,
-                             size_bytes=st.st_size, mtime_ns=st.st_mtime_ns))
+            todo.append(
+                _Job(
+                    root=root,
+                    path=key,
+                    options=options,
+                    settings_sha256=shash,
+                    size_bytes=st.st_size,
+                    mtime_ns=st.st_mtime_ns,
+                )
+            )
         return todo, records
 
     # -- one cycle ----------------------------------------------------------------------
@@ -1344,9 +1491,17 @@ class _Runner:
             # changed while it was being measured: keep what was measured, re-read next time
             job.content_sha256, job.size_bytes, job.mtime_ns = res["sha256"], None, None
         self.store.write_file(
-            job, run_id=self.run_id, status=res["status"], error=res["error"], result=res["result"],
-            rows=res["rows"] or (), started=res["started"], finished=res["finished"], seconds=res["seconds"],
-            cpu_seconds=res.get("cpu_seconds"), worker=res["worker"],
+            job,
+            run_id=self.run_id,
+            status=res["status"],
+            error=res["error"],
+            result=res["result"],
+            rows=res["rows"] or (),
+            started=res["started"],
+            finished=res["finished"],
+            seconds=res["seconds"],
+            cpu_seconds=res.get("cpu_seconds"),
+            worker=res["worker"],
         )
         self._count(job, res["status"], res["error"])
 
@@ -1366,7 +1521,9 @@ def _make_backend_factory(workers: int | None, cluster: str | None) -> tuple[Cal
     if workers is None:
         workers = _cpu_count()
     if isinstance(workers, bool) or not isinstance(workers, int) or workers < 0:
-        raise OptionError(f"workers {workers!r} must be a whole number >= 0 (0: measure in this process), e.g. --workers 2")
+        raise OptionError(
+            f"workers {workers!r} must be a whole number >= 0 (0: measure in this process), e.g. --workers 2"
+        )
     if workers == 0:
         return _SerialBackend, "serial"
     return (lambda: _PoolBackend(workers)), f"processes:{workers}"
@@ -1488,18 +1645,36 @@ def run_batch(
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise OutputError(f"cannot create the folder ({exc.strerror or exc}); choose another --out folder", path=str(out)) from None
+        raise OutputError(
+            f"cannot create the folder ({exc.strerror or exc}); choose another --out folder", path=str(out)
+        ) from None
     out = Path(os.path.abspath(out))
 
     store = _Store(out)
     t0 = time.perf_counter()
-    run_id = store.begin_run({"folders": [str(r) for r in roots],
-                              "options": {**base_options, "include": list(include), "exclude": list(exclude)},
-                              "backend": backend_label})
-    runner = _Runner(store=store, backend_factory=backend_factory, folders=roots, include=include, exclude=exclude,
-                     base_options=base_options, settings_name=settings_file, retry_failed=retry_failed, rehash=rehash,
-                     watch=watch, settle_seconds=settle_seconds if watch else 0.0, stop_event=stop_event,
-                     progress=progress, run_id=run_id)
+    run_id = store.begin_run(
+        {
+            "folders": [str(r) for r in roots],
+            "options": {**base_options, "include": list(include), "exclude": list(exclude)},
+            "backend": backend_label,
+        }
+    )
+    runner = _Runner(
+        store=store,
+        backend_factory=backend_factory,
+        folders=roots,
+        include=include,
+        exclude=exclude,
+        base_options=base_options,
+        settings_name=settings_file,
+        retry_failed=retry_failed,
+        rehash=rehash,
+        watch=watch,
+        settle_seconds=settle_seconds if watch else 0.0,
+        stop_event=stop_event,
+        progress=progress,
+        run_id=run_id,
+    )
     interrupted = completed = False
     reports: list[Path] = []
     failures: list[tuple[str, str]] = []
@@ -1534,8 +1709,13 @@ def run_batch(
                 failures = store.failures(runner.found)
             finally:
                 seconds = time.perf_counter() - t0
-                counts = {"measured": runner.measured, "failed": runner.failed, "duplicates": runner.duplicates,
-                          "unchanged": len(runner.unchanged), "seconds": seconds}
+                counts = {
+                    "measured": runner.measured,
+                    "failed": runner.failed,
+                    "duplicates": runner.duplicates,
+                    "unchanged": len(runner.unchanged),
+                    "seconds": seconds,
+                }
                 status = "error" if not completed else "interrupted" if interrupted else "done"
                 with contextlib.suppress(sqlite3.Error):
                     store.end_run(run_id, status, counts)
@@ -1543,11 +1723,23 @@ def run_batch(
     backend_name = runner.backend_name or backend_label
     runner.emit("done")
     return BatchSummary(
-        out_dir=out, db_path=out / DB_NAME, reports=reports, run_id=run_id, backend=backend_name,
-        found=len(runner.found), measured=runner.measured, failed=runner.failed, duplicates=runner.duplicates,
-        unchanged=len(runner.unchanged), failed_earlier=len(runner.failed_earlier),
-        cycles=runner.cycle, seconds=seconds, interrupted=interrupted, failures=failures,
-        worker_max_rss_kb=dict(runner.rss), worker_cpu_seconds=runner.cpu_seconds,
+        out_dir=out,
+        db_path=out / DB_NAME,
+        reports=reports,
+        run_id=run_id,
+        backend=backend_name,
+        found=len(runner.found),
+        measured=runner.measured,
+        failed=runner.failed,
+        duplicates=runner.duplicates,
+        unchanged=len(runner.unchanged),
+        failed_earlier=len(runner.failed_earlier),
+        cycles=runner.cycle,
+        seconds=seconds,
+        interrupted=interrupted,
+        failures=failures,
+        worker_max_rss_kb=dict(runner.rss),
+        worker_cpu_seconds=runner.cpu_seconds,
     )
 
 
@@ -1559,7 +1751,9 @@ def run_batch(
 def _open_existing(out_dir: str | os.PathLike) -> sqlite3.Connection:
     db = Path(out_dir).expanduser() / DB_NAME
     if not db.is_file():
-        raise OptionError(f"no batch database ({DB_NAME}) here; run 'scanmass batch FOLDER --out DIR' first", path=str(out_dir))
+        raise OptionError(
+            f"no batch database ({DB_NAME}) here; run 'scanmass batch FOLDER --out DIR' first", path=str(out_dir)
+        )
     return _connect(db, readonly=True)
 
 
@@ -1572,8 +1766,10 @@ def summary_rows(out_dir: str | os.PathLike) -> tuple[list[dict[str, Any]], list
     conn = _open_existing(out_dir)
     try:
         rows = [dict(zip(CSV_COLUMNS, row)) for row in _parts_rows(conn)]
-        failures = [{"file": path, "reason": error or ""} for path, error in
-                    conn.execute("SELECT path, error FROM files WHERE status='failed' ORDER BY path")]
+        failures = [
+            {"file": path, "reason": error or ""}
+            for path, error in conn.execute("SELECT path, error FROM files WHERE status='failed' ORDER BY path")
+        ]
     finally:
         conn.close()
     return rows, failures
@@ -1602,8 +1798,9 @@ def iter_export(out_dir: str | os.PathLike, *, format: Literal["csv", "jsonl"] =
         conn.close()
 
 
-def export_batch(out_dir: str | os.PathLike, *, format: Literal["csv", "jsonl"] = "csv",
-                 out: str | os.PathLike) -> Path:
+def export_batch(
+    out_dir: str | os.PathLike, *, format: Literal["csv", "jsonl"] = "csv", out: str | os.PathLike
+) -> Path:
     """Re-export a batch's results from its database.
 
     Parameters

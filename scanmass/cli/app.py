@@ -8,9 +8,10 @@ exit code 1. Nothing here computes.
 from __future__ import annotations
 
 import sys
+from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated, Iterator, Optional
+from typing import Annotated
 
 import typer
 from rich.console import Console
@@ -60,39 +61,78 @@ def _version(value: bool) -> None:
 
 @app.callback()
 def main(
-    version: Annotated[bool, typer.Option("--version", callback=_version, is_eager=True, help="Show the version and exit.")] = False,
+    version: Annotated[
+        bool, typer.Option("--version", callback=_version, is_eager=True, help="Show the version and exit.")
+    ] = False,
 ) -> None:
     """Geometric and mass properties of flat parts from scans and photos."""
 
 
 # -- shared options -------------------------------------------------------------------
-DpiOpt = Annotated[Optional[float], typer.Option("--dpi", help="Scanner resolution in dots per inch; overrides the file's.")]
-DpiRelUOpt = Annotated[float, typer.Option("--dpi-rel-u", help="Relative standard uncertainty of the resolution (0.001 = 0.1 %).")]
-LevelOpt = Annotated[float, typer.Option("--level", help="Edge position between local background (0) and part (1) levels.")]
-ThresholdOpt = Annotated[Optional[float], typer.Option("--threshold", help="Manual grey threshold, 0-1 of full scale, instead of the local midpoint.")]
+DpiOpt = Annotated[
+    float | None, typer.Option("--dpi", help="Scanner resolution in dots per inch; overrides the file's.")
+]
+DpiRelUOpt = Annotated[
+    float, typer.Option("--dpi-rel-u", help="Relative standard uncertainty of the resolution (0.001 = 0.1 %).")
+]
+LevelOpt = Annotated[
+    float, typer.Option("--level", help="Edge position between local background (0) and part (1) levels.")
+]
+ThresholdOpt = Annotated[
+    float | None,
+    typer.Option("--threshold", help="Manual grey threshold, 0-1 of full scale, instead of the local midpoint."),
+]
 MinAreaOpt = Annotated[float, typer.Option("--min-area", help="Ignore specks smaller than this, mm².")]
-MinHoleOpt = Annotated[Optional[float], typer.Option("--min-hole-area", help="Ignore holes smaller than this, mm² (default: --min-area).")]
-KeepCutOpt = Annotated[bool, typer.Option("--keep-cut", help="Also measure parts touching the image edge (flagged as cut).")]
-MaxPixelsOpt = Annotated[int, typer.Option("--max-pixels", help="Refuse images with more pixels than this (memory guard).")]
-MaterialOpt = Annotated[Optional[str], typer.Option("--material", help="Material name for mass figures (see 'scanmass materials').")]
-ThicknessOpt = Annotated[Optional[float], typer.Option("--thickness", help="Plate thickness, mm (for mass).")]
+MinHoleOpt = Annotated[
+    float | None, typer.Option("--min-hole-area", help="Ignore holes smaller than this, mm² (default: --min-area).")
+]
+KeepCutOpt = Annotated[
+    bool, typer.Option("--keep-cut", help="Also measure parts touching the image edge (flagged as cut).")
+]
+MaxPixelsOpt = Annotated[
+    int, typer.Option("--max-pixels", help="Refuse images with more pixels than this (memory guard).")
+]
+MaterialOpt = Annotated[
+    str | None, typer.Option("--material", help="Material name for mass figures (see 'scanmass materials').")
+]
+ThicknessOpt = Annotated[float | None, typer.Option("--thickness", help="Plate thickness, mm (for mass).")]
 ThicknessTolOpt = Annotated[float, typer.Option("--thickness-tol", help="Standard uncertainty of the thickness, mm.")]
-MaterialsFileOpt = Annotated[Optional[Path], typer.Option("--materials", help="TOML file adding or overriding materials.")]
-ScaleOpt = Annotated[str, typer.Option("--scale", help="Scale source: auto (a trustworthy DPI means a scan, else a marker mat), dpi, mat or sheet.")]
-MatOpt = Annotated[Optional[str], typer.Option("--mat", help="Marker mat layout name or layout JSON (default: recognised from the markers).")]
-SheetOpt = Annotated[Optional[str], typer.Option("--sheet", help="The part lies on a plain sheet of paper: a4, a3 or letter.")]
-PrintedXOpt = Annotated[Optional[float], typer.Option("--printed-x", help="Caliper reading of the mat's 100 mm x check bar, mm.")]
-PrintedYOpt = Annotated[Optional[float], typer.Option("--printed-y", help="Caliper reading of the mat's 100 mm y check bar, mm.")]
-LensOpt = Annotated[Optional[Path], typer.Option("--lens", help="Lens profile JSON from 'scanmass lens' (corrects lens distortion).")]
+MaterialsFileOpt = Annotated[Path | None, typer.Option("--materials", help="TOML file adding or overriding materials.")]
+ScaleOpt = Annotated[
+    str,
+    typer.Option(
+        "--scale", help="Scale source: auto (a trustworthy DPI means a scan, else a marker mat), dpi, mat or sheet."
+    ),
+]
+MatOpt = Annotated[
+    str | None,
+    typer.Option("--mat", help="Marker mat layout name or layout JSON (default: recognised from the markers)."),
+]
+SheetOpt = Annotated[
+    str | None, typer.Option("--sheet", help="The part lies on a plain sheet of paper: a4, a3 or letter.")
+]
+PrintedXOpt = Annotated[
+    float | None, typer.Option("--printed-x", help="Caliper reading of the mat's 100 mm x check bar, mm.")
+]
+PrintedYOpt = Annotated[
+    float | None, typer.Option("--printed-y", help="Caliper reading of the mat's 100 mm y check bar, mm.")
+]
+LensOpt = Annotated[
+    Path | None, typer.Option("--lens", help="Lens profile JSON from 'scanmass lens' (corrects lens distortion).")
+]
 
 
 @app.command()
 def measure(
     image: Annotated[Path, typer.Argument(help="Image file: JPEG, PNG or TIFF.")],
     *,
-    json_out: Annotated[Optional[str], typer.Option("--json", help="Write the result document (JSON); '-' for stdout.")] = None,
-    csv_out: Annotated[Optional[Path], typer.Option("--csv", help="Write one CSV row per part.")] = None,
-    overlay_out: Annotated[Optional[Path], typer.Option("--overlay", help="Write an overlay PNG of what was measured.")] = None,
+    json_out: Annotated[
+        str | None, typer.Option("--json", help="Write the result document (JSON); '-' for stdout.")
+    ] = None,
+    csv_out: Annotated[Path | None, typer.Option("--csv", help="Write one CSV row per part.")] = None,
+    overlay_out: Annotated[
+        Path | None, typer.Option("--overlay", help="Write an overlay PNG of what was measured.")
+    ] = None,
     dpi: DpiOpt = None,
     dpi_rel_u: DpiRelUOpt = 0.001,
     level: LevelOpt = 0.5,
@@ -118,11 +158,28 @@ def measure(
 
     with user_errors():
         result = measure_to_outputs(
-            image, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out,
-            dpi=dpi, dpi_rel_u=dpi_rel_u, level=level, threshold=threshold, min_area_mm2=min_area,
-            min_hole_area_mm2=min_hole_area, keep_cut=keep_cut, max_pixels=max_pixels, material=material,
-            thickness_mm=thickness, thickness_u_mm=thickness_tol, materials_file=materials,
-            scale=scale, mat=mat, sheet=sheet, printed_x_mm=printed_x, printed_y_mm=printed_y, lens=lens,
+            image,
+            json_out=json_out,
+            csv_out=csv_out,
+            overlay_out=overlay_out,
+            dpi=dpi,
+            dpi_rel_u=dpi_rel_u,
+            level=level,
+            threshold=threshold,
+            min_area_mm2=min_area,
+            min_hole_area_mm2=min_hole_area,
+            keep_cut=keep_cut,
+            max_pixels=max_pixels,
+            material=material,
+            thickness_mm=thickness,
+            thickness_u_mm=thickness_tol,
+            materials_file=materials,
+            scale=scale,
+            mat=mat,
+            sheet=sheet,
+            printed_x_mm=printed_x,
+            printed_y_mm=printed_y,
+            lens=lens,
         )
     if json_out == "-":
         sys.stdout.write(result.document + "\n")
@@ -163,7 +220,7 @@ def demo(
 
 
 # -- materials, assemblies, unbalance -------------------------------------------------------
-JsonOutOpt = Annotated[Optional[str], typer.Option("--json", help="Write the result (JSON); '-' for stdout.")]
+JsonOutOpt = Annotated[str | None, typer.Option("--json", help="Write the result (JSON); '-' for stdout.")]
 
 
 def _emit_json(json_out: str | None, text: str, inputs: list[Path]) -> None:
@@ -194,13 +251,15 @@ def assemble(
     file: Annotated[Path, typer.Argument(help="Assembly TOML file: members, materials, placements (lengths in mm).")],
     *,
     json_out: JsonOutOpt = None,
-    csv_out: Annotated[Optional[Path], typer.Option("--csv", help="Write the per-member table and the total (CSV).")] = None,
+    csv_out: Annotated[
+        Path | None, typer.Option("--csv", help="Write the per-member table and the total (CSV).")
+    ] = None,
     materials: MaterialsFileOpt = None,
 ) -> None:
     """Combine the plates listed in FILE: total mass, 3D centre of mass, inertia tensor."""
-    from scanmass.outputs.atomic import write_atomic
-    from scanmass.mass.assembly import assemble as assemble_file
     from scanmass.cli.mass_tables import assembly_summary_table, assembly_table
+    from scanmass.mass.assembly import assemble as assemble_file
+    from scanmass.outputs.atomic import write_atomic
 
     with user_errors():
         result = assemble_file(file, materials=materials)
@@ -224,29 +283,52 @@ def balance(
     material: MaterialOpt = None,
     thickness: ThicknessOpt = None,
     thickness_tol: ThicknessTolOpt = 0.0,
-    rpm: Annotated[Optional[float], typer.Option("--rpm", help="Maximum service speed, rev/min.")] = None,
-    grade: Annotated[Optional[float], typer.Option("--grade", help="ISO 21940-11 balance quality grade G, mm/s (e.g. 6.3).")] = None,
-    bore: Annotated[Optional[int], typer.Option("--bore", help="Label of the hole the part spins about (default: the hole nearest the centroid).")] = None,
-    part: Annotated[Optional[int], typer.Option("--part", help="Part label (needed when the result has several parts).")] = None,
-    radius: Annotated[Optional[float], typer.Option("--radius", help="Correction radius from the axis, mm (default: midway between bore and rim).")] = None,
-    drill: Annotated[Optional[float], typer.Option("--drill", help="Drill diameter for a blind-hole correction, mm.")] = None,
-    drill_step: Annotated[Optional[float], typer.Option("--drill-step", help="Round the through-hole diameter to this step, mm.")] = None,
+    rpm: Annotated[float | None, typer.Option("--rpm", help="Maximum service speed, rev/min.")] = None,
+    grade: Annotated[
+        float | None, typer.Option("--grade", help="ISO 21940-11 balance quality grade G, mm/s (e.g. 6.3).")
+    ] = None,
+    bore: Annotated[
+        int | None,
+        typer.Option("--bore", help="Label of the hole the part spins about (default: the hole nearest the centroid)."),
+    ] = None,
+    part: Annotated[
+        int | None, typer.Option("--part", help="Part label (needed when the result has several parts).")
+    ] = None,
+    radius: Annotated[
+        float | None,
+        typer.Option("--radius", help="Correction radius from the axis, mm (default: midway between bore and rim)."),
+    ] = None,
+    drill: Annotated[
+        float | None, typer.Option("--drill", help="Drill diameter for a blind-hole correction, mm.")
+    ] = None,
+    drill_step: Annotated[
+        float | None, typer.Option("--drill-step", help="Round the through-hole diameter to this step, mm.")
+    ] = None,
     json_out: JsonOutOpt = None,
     dpi: DpiOpt = None,
     materials: MaterialsFileOpt = None,
 ) -> None:
     """Static unbalance of a plate spinning about a bore, against an ISO 21940-11 grade."""
+    from scanmass.cli.mass_tables import balance_table
     from scanmass.mass.assembly import load_measurement
     from scanmass.mass.balance import balance_measurement
-    from scanmass.cli.mass_tables import balance_table
 
     if material is None or thickness is None:
         fail("balance needs the plate's material and thickness, e.g. --material steel --thickness 3")
     with user_errors():
         result = balance_measurement(
-            load_measurement(source, dpi=dpi), material, thickness, part=part, thickness_u_mm=thickness_tol,
-            hole=bore, rpm=rpm, grade=grade, correction_radius_mm=radius, drill_diameter_mm=drill,
-            drill_step_mm=drill_step, materials=materials,
+            load_measurement(source, dpi=dpi),
+            material,
+            thickness,
+            part=part,
+            thickness_u_mm=thickness_tol,
+            hole=bore,
+            rpm=rpm,
+            grade=grade,
+            correction_radius_mm=radius,
+            drill_diameter_mm=drill,
+            drill_step_mm=drill_step,
+            materials=materials,
         )
     if json_out != "-":
         console = _console()
@@ -263,11 +345,27 @@ def balance(
 def export_outlines(
     result: Annotated[Path, typer.Argument(help="Result JSON from 'scanmass measure --json'.")],
     *,
-    dxf: Annotated[Optional[Path], typer.Option("--dxf", help="Write the outlines as DXF in mm (layers OUTLINE, HOLES, REFERENCE).")] = None,
-    svg: Annotated[Optional[Path], typer.Option("--svg", help="Write the outlines as SVG in true mm.")] = None,
-    fit_tolerance: Annotated[Optional[str], typer.Option("--fit-tolerance", help="DXF: replace the measured vertices by lines and arcs within this many mm, or 'auto' (half the edge uncertainty, at most 0.02 mm).")] = None,
-    round_tolerance: Annotated[Optional[float], typer.Option("--round-tolerance", help="DXF: holes round within this many mm become circles (default: max(0.02 mm, 1 % of the diameter, 4 u(d))).")] = None,
-    part: Annotated[Optional[list[int]], typer.Option("--part", help="Export only this part label (repeatable; default all).")] = None,
+    dxf: Annotated[
+        Path | None, typer.Option("--dxf", help="Write the outlines as DXF in mm (layers OUTLINE, HOLES, REFERENCE).")
+    ] = None,
+    svg: Annotated[Path | None, typer.Option("--svg", help="Write the outlines as SVG in true mm.")] = None,
+    fit_tolerance: Annotated[
+        str | None,
+        typer.Option(
+            "--fit-tolerance",
+            help="DXF: replace the measured vertices by lines and arcs within this many mm, or 'auto' (half the edge uncertainty, at most 0.02 mm).",
+        ),
+    ] = None,
+    round_tolerance: Annotated[
+        float | None,
+        typer.Option(
+            "--round-tolerance",
+            help="DXF: holes round within this many mm become circles (default: max(0.02 mm, 1 % of the diameter, 4 u(d))).",
+        ),
+    ] = None,
+    part: Annotated[
+        list[int] | None, typer.Option("--part", help="Export only this part label (repeatable; default all).")
+    ] = None,
 ) -> None:
     """Write the measured outlines of RESULT as DXF and/or SVG, for CAD and cutting."""
     from scanmass.outputs.export import export_dxf, export_svg
@@ -277,9 +375,13 @@ def export_outlines(
     console = _console()
     with user_errors():
         if dxf is not None:
-            s = export_dxf(result, dxf, fit_tolerance_mm=fit_tolerance, round_tolerance_mm=round_tolerance, parts=part or None)
-            console.print(f"wrote {s.path}: {s.parts} part(s), {s.vertices_in} -> {s.vertices_out} vertices "
-                          f"({s.arcs} arcs), {s.circles} hole(s) as circles")
+            s = export_dxf(
+                result, dxf, fit_tolerance_mm=fit_tolerance, round_tolerance_mm=round_tolerance, parts=part or None
+            )
+            console.print(
+                f"wrote {s.path}: {s.parts} part(s), {s.vertices_in} -> {s.vertices_out} vertices "
+                f"({s.arcs} arcs), {s.circles} hole(s) as circles"
+            )
         if svg is not None:
             s = export_svg(result, svg, parts=part or None)
             console.print(f"wrote {s.path}: {s.parts} part(s), {s.vertices_out} vertices")
@@ -287,10 +389,20 @@ def export_outlines(
 
 @app.command()
 def report(
-    results: Annotated[list[Path], typer.Argument(help="Result JSON files from 'scanmass measure --json', or one batch output folder.")],
+    results: Annotated[
+        list[Path], typer.Argument(help="Result JSON files from 'scanmass measure --json', or one batch output folder.")
+    ],
     *,
-    html: Annotated[Optional[Path], typer.Option("--html", help="The HTML report to write (one self-contained file).")] = None,
-    overlay: Annotated[Optional[list[Path]], typer.Option("--overlay", help="Overlay PNG of the result in the same position (repeatable; default: outlines drawn from the result).")] = None,
+    html: Annotated[
+        Path | None, typer.Option("--html", help="The HTML report to write (one self-contained file).")
+    ] = None,
+    overlay: Annotated[
+        list[Path] | None,
+        typer.Option(
+            "--overlay",
+            help="Overlay PNG of the result in the same position (repeatable; default: outlines drawn from the result).",
+        ),
+    ] = None,
     title: Annotated[str, typer.Option("--title", help="Heading of the report.")] = "scanmass measurement report",
 ) -> None:
     """Write one self-contained HTML report of the RESULTS (prints on A4).
@@ -308,11 +420,18 @@ def report(
 
         with user_errors():
             rows, failures = summary_rows(results[0])
-            written = write_summary(rows, failures, html, title=title if title != "scanmass measurement report" else "scanmass batch summary")
+            written = write_summary(
+                rows,
+                failures,
+                html,
+                title=title if title != "scanmass measurement report" else "scanmass batch summary",
+            )
         _console().print(f"wrote {written}")
         return
     if overlay and len(overlay) > len(results):
-        fail(f"{len(overlay)} overlays for {len(results)} result(s); give at most one --overlay per result, in the same order")
+        fail(
+            f"{len(overlay)} overlays for {len(results)} result(s); give at most one --overlay per result, in the same order"
+        )
     with user_errors():
         written = write_report(results, html, overlays=dict(enumerate(overlay or [])), title=title)
     _console().print(f"wrote {written}")
@@ -334,9 +453,14 @@ def _batch_progress_display(console: Console, watch: bool):
             return Text("-- files/s" if not speed else f"{speed:.2f} files/s")
 
     bar = Progress(
-        TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+        TextColumn("{task.description}"),
+        BarColumn(),
+        MofNCompleteColumn(),
         TextColumn("ok {task.fields[ok]}  failed {task.fields[failed]}  duplicates {task.fields[dup]}"),
-        _Rate(), TextColumn("ETA"), TimeRemainingColumn(), console=console,
+        _Rate(),
+        TextColumn("ETA"),
+        TimeRemainingColumn(),
+        console=console,
     )
     task = bar.add_task("measuring", total=None, ok=0, failed=0, dup=0)
     started = []
@@ -347,27 +471,78 @@ def _batch_progress_display(console: Console, watch: bool):
                 return
             bar.start()
             started.append(True)
-        what = {"finishing": "finishing files in flight (Ctrl-C again to abandon them)",
-                "idle": "watching for new files (Ctrl-C to stop)"}.get(p.event, "measuring")
-        bar.update(task, description=what, total=p.total or None, completed=p.processed, ok=p.measured,
-                   failed=p.failed, dup=p.duplicates)
+        what = {
+            "finishing": "finishing files in flight (Ctrl-C again to abandon them)",
+            "idle": "watching for new files (Ctrl-C to stop)",
+        }.get(p.event, "measuring")
+        bar.update(
+            task,
+            description=what,
+            total=p.total or None,
+            completed=p.processed,
+            ok=p.measured,
+            failed=p.failed,
+            dup=p.duplicates,
+        )
 
     return bar, update
 
 
 @app.command()
 def batch(
-    folders: Annotated[list[Path], typer.Argument(help="Folders of scans, searched recursively (an image file works too).")],
+    folders: Annotated[
+        list[Path], typer.Argument(help="Folders of scans, searched recursively (an image file works too).")
+    ],
     *,
-    out: Annotated[Path, typer.Option("--out", help="Output folder: the database, parts.csv, failures.csv, duplicates.csv. Run the same command again to resume.")],
-    include: Annotated[Optional[list[str]], typer.Option("--include", help="Only files matching this glob (repeatable). Without '/' it matches the file name, with '/' the path below the folder; case is ignored.")] = None,
-    exclude: Annotated[Optional[list[str]], typer.Option("--exclude", help="Skip files matching this glob (repeatable; same rules as --include).")] = None,
-    workers: Annotated[Optional[int], typer.Option("--workers", "-j", help="Worker processes (default: one per core; 0: measure in this process). With --cluster local, the number of Dask workers.")] = None,
-    retry_failed: Annotated[bool, typer.Option("--retry-failed", help="Measure again the files that failed in an earlier run.")] = False,
-    rehash: Annotated[bool, typer.Option("--rehash", help="Read every file to check its content, even when its size and time are unchanged.")] = False,
-    watch: Annotated[bool, typer.Option("--watch", help="Keep watching the folders and measure new or changed files as they appear, until Ctrl-C.")] = False,
+    out: Annotated[
+        Path,
+        typer.Option(
+            "--out",
+            help="Output folder: the database, parts.csv, failures.csv, duplicates.csv. Run the same command again to resume.",
+        ),
+    ],
+    include: Annotated[
+        list[str] | None,
+        typer.Option(
+            "--include",
+            help="Only files matching this glob (repeatable). Without '/' it matches the file name, with '/' the path below the folder; case is ignored.",
+        ),
+    ] = None,
+    exclude: Annotated[
+        list[str] | None,
+        typer.Option("--exclude", help="Skip files matching this glob (repeatable; same rules as --include)."),
+    ] = None,
+    workers: Annotated[
+        int | None,
+        typer.Option(
+            "--workers",
+            "-j",
+            help="Worker processes (default: one per core; 0: measure in this process). With --cluster local, the number of Dask workers.",
+        ),
+    ] = None,
+    retry_failed: Annotated[
+        bool, typer.Option("--retry-failed", help="Measure again the files that failed in an earlier run.")
+    ] = False,
+    rehash: Annotated[
+        bool,
+        typer.Option(
+            "--rehash", help="Read every file to check its content, even when its size and time are unchanged."
+        ),
+    ] = False,
+    watch: Annotated[
+        bool,
+        typer.Option(
+            "--watch", help="Keep watching the folders and measure new or changed files as they appear, until Ctrl-C."
+        ),
+    ] = False,
     poll: Annotated[float, typer.Option("--poll", help="Seconds between looks at the folders with --watch.")] = 5.0,
-    cluster: Annotated[Optional[str], typer.Option("--cluster", help="Run on a Dask cluster: tcp://HOST:PORT (its workers must reach the files by the same paths), or local:N for a local cluster of N processes. Needs the dask distributed package.")] = None,
+    cluster: Annotated[
+        str | None,
+        typer.Option(
+            "--cluster",
+            help="Run on a Dask cluster: tcp://HOST:PORT (its workers must reach the files by the same paths), or local:N for a local cluster of N processes. Needs the dask distributed package.",
+        ),
+    ] = None,
     dpi: DpiOpt = None,
     dpi_rel_u: DpiRelUOpt = 0.001,
     level: LevelOpt = 0.5,
@@ -409,12 +584,35 @@ def batch(
         with user_errors():
             try:
                 summary = run_batch(
-                    folders, out, include=include or (), exclude=exclude or (), workers=workers, cluster=cluster,
-                    retry_failed=retry_failed, rehash=rehash, watch=watch, poll_seconds=poll, progress=update,
-                    dpi=dpi, dpi_rel_u=dpi_rel_u, level=level, threshold=threshold, min_area_mm2=min_area,
-                    min_hole_area_mm2=min_hole_area, keep_cut=keep_cut, max_pixels=max_pixels, material=material,
-                    thickness_mm=thickness, thickness_u_mm=thickness_tol, materials_file=materials,
-                    scale=scale, mat=mat, sheet=sheet, printed_x_mm=printed_x, printed_y_mm=printed_y, lens=lens,
+                    folders,
+                    out,
+                    include=include or (),
+                    exclude=exclude or (),
+                    workers=workers,
+                    cluster=cluster,
+                    retry_failed=retry_failed,
+                    rehash=rehash,
+                    watch=watch,
+                    poll_seconds=poll,
+                    progress=update,
+                    dpi=dpi,
+                    dpi_rel_u=dpi_rel_u,
+                    level=level,
+                    threshold=threshold,
+                    min_area_mm2=min_area,
+                    min_hole_area_mm2=min_hole_area,
+                    keep_cut=keep_cut,
+                    max_pixels=max_pixels,
+                    material=material,
+                    thickness_mm=thickness,
+                    thickness_u_mm=thickness_tol,
+                    materials_file=materials,
+                    scale=scale,
+                    mat=mat,
+                    sheet=sheet,
+                    printed_x_mm=printed_x,
+                    printed_y_mm=printed_y,
+                    lens=lens,
                 )
             finally:
                 if bar is not None:
@@ -424,14 +622,18 @@ def batch(
 
     console = _console()
     rate = summary.files_per_second
-    line = (f"{summary.found} file(s): {summary.measured} measured, {summary.failed} failed, "
-            f"{summary.duplicates} duplicate(s), {summary.unchanged} unchanged")
+    line = (
+        f"{summary.found} file(s): {summary.measured} measured, {summary.failed} failed, "
+        f"{summary.duplicates} duplicate(s), {summary.unchanged} unchanged"
+    )
     if summary.failed_earlier:
         line += f", {summary.failed_earlier} failed before (not retried; --retry-failed)"
     line += f" in {summary.seconds:.1f} s" + (f" ({rate:.2f} files/s, {summary.backend})" if rate else "")
     console.print(line, soft_wrap=True)
-    console.print(f"results in {escape(str(summary.out_dir))}: parts.csv, failures.csv, duplicates.csv, scanmass-batch.sqlite",
-                  soft_wrap=True)
+    console.print(
+        f"results in {escape(str(summary.out_dir))}: parts.csv, failures.csv, duplicates.csv, scanmass-batch.sqlite",
+        soft_wrap=True,
+    )
     for path, error in summary.failures[:10]:
         err.print(f"[red]failed:[/] {escape(error or path)}", markup=True, soft_wrap=True)
     if len(summary.failures) > 10:
@@ -440,15 +642,25 @@ def batch(
         err.print("interrupted; run the same command again to resume", markup=False)
         raise typer.Exit(code=EXIT_INTERRUPTED)
     if summary.failures:
-        err.print(f"{len(summary.failures)} file(s) failed; see {escape(str(summary.out_dir / 'failures.csv'))}", markup=True)
+        err.print(
+            f"{len(summary.failures)} file(s) failed; see {escape(str(summary.out_dir / 'failures.csv'))}", markup=True
+        )
         raise typer.Exit(code=EXIT_USER_ERROR)
 
 
 @app.command("batch-export")
 def batch_export(
-    out_dir: Annotated[Path, typer.Argument(help="The output folder of 'scanmass batch' (holding scanmass-batch.sqlite).")],
+    out_dir: Annotated[
+        Path, typer.Argument(help="The output folder of 'scanmass batch' (holding scanmass-batch.sqlite).")
+    ],
     *,
-    format: Annotated[str, typer.Option("--format", help="csv: one row per part (the columns of parts.csv); jsonl: one JSON object per file with its status and full result.")] = "csv",
+    format: Annotated[
+        str,
+        typer.Option(
+            "--format",
+            help="csv: one row per part (the columns of parts.csv); jsonl: one JSON object per file with its status and full result.",
+        ),
+    ] = "csv",
     out: Annotated[str, typer.Option("--out", help="File to write; '-' for standard output.")] = "-",
 ) -> None:
     """Export a batch's results again from its database."""
@@ -467,9 +679,17 @@ def batch_export(
 @app.command("mat")
 def mat_command(
     *,
-    layout: Annotated[str, typer.Option("--layout", help="a4-portrait, a4-landscape, a3-portrait, a3-landscape, letter-portrait or letter-landscape.")] = "a4-portrait",
-    pdf: Annotated[Optional[Path], typer.Option("--pdf", help="Write the mat as a PDF at exact size (print at 100 %).")] = None,
-    png: Annotated[Optional[Path], typer.Option("--png", help="Write the mat as a PNG.")] = None,
+    layout: Annotated[
+        str,
+        typer.Option(
+            "--layout",
+            help="a4-portrait, a4-landscape, a3-portrait, a3-landscape, letter-portrait or letter-landscape.",
+        ),
+    ] = "a4-portrait",
+    pdf: Annotated[
+        Path | None, typer.Option("--pdf", help="Write the mat as a PDF at exact size (print at 100 %).")
+    ] = None,
+    png: Annotated[Path | None, typer.Option("--png", help="Write the mat as a PNG.")] = None,
     dpi: Annotated[float, typer.Option("--dpi", help="Resolution of the PNG, dots per inch.")] = 300.0,
 ) -> None:
     """Write a printable marker mat for photos (PDF and/or PNG), each with its layout JSON beside it."""
@@ -485,7 +705,12 @@ def mat_command(
 def lens_command(
     photos: Annotated[list[Path], typer.Argument(help="5 or more photos of a flat marker mat from different angles.")],
     *,
-    out: Annotated[Optional[Path], typer.Option("--out", help="Lens profile JSON to write (default: calibration/lens-WxH.json, or ./ outside a checkout).")] = None,
+    out: Annotated[
+        Path | None,
+        typer.Option(
+            "--out", help="Lens profile JSON to write (default: calibration/lens-WxH.json, or ./ outside a checkout)."
+        ),
+    ] = None,
     mat: MatOpt = None,
 ) -> None:
     """Calibrate the camera's lens from photos of a marker mat and save a lens profile."""
@@ -495,7 +720,9 @@ def lens_command(
         profile = calibrate_lens(photos, mat=mat)
         written = save_lens_profile(profile, out or default_profile_path(profile))
     k = profile.camera_matrix
-    _console().print(f"focal length {k[0, 0]:.1f} x {k[1, 1]:.1f} px, centre ({k[0, 2]:.1f}, {k[1, 2]:.1f}) px, "
-                     f"k1 {profile.dist_coeffs[0]:+.4f}, k2 {profile.dist_coeffs[1]:+.4f}; RMS {profile.rms_px:.3f} px "
-                     f"over {profile.points} corners in {profile.photos} photos")
+    _console().print(
+        f"focal length {k[0, 0]:.1f} x {k[1, 1]:.1f} px, centre ({k[0, 2]:.1f}, {k[1, 2]:.1f}) px, "
+        f"k1 {profile.dist_coeffs[0]:+.4f}, k2 {profile.dist_coeffs[1]:+.4f}; RMS {profile.rms_px:.3f} px "
+        f"over {profile.points} corners in {profile.photos} photos"
+    )
     _console().print(f"wrote {written}")

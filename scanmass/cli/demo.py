@@ -100,23 +100,50 @@ def demo_scans() -> list[DemoScan]:
     gasket = (g_out + [46, 44], [h + [46, 44] for h in g_holes])
     fan = (_moved(f_out, 40, 38, 33.0), [_moved(h, 40, 38, 33.0) for h in f_holes])
     return [
-        DemoScan("wrenfield-carrier-bracket-and-clip.jpg", 300.0, (150.0, 100.0), [bracket, clip],
-                 material="carbon-steel", thickness_mm=3.0, thickness_u_mm=0.05,
-                 render=dict(background=0.82, foreground=0.05, blur_px=0.9, noise=0.006, illumination=(0.06, -0.04), seed=11)),
-        DemoScan("wrenfield-hub-gasket.png", 300.0, (92.0, 88.0), [gasket],
-                 material="cork-gasket", thickness_mm=2.0, thickness_u_mm=0.1,
-                 render=dict(background=0.80, foreground=0.22, blur_px=1.1, noise=0.004, seed=12)),
-        DemoScan("wrenfield-fan-plate.jpg", 400.0, (80.0, 76.0), [fan],
-                 material="aluminium-5083", thickness_mm=2.0, thickness_u_mm=0.03,
-                 render=dict(background=0.03, foreground=0.62, blur_px=1.0, noise=0.005, seed=13)),
+        DemoScan(
+            "wrenfield-carrier-bracket-and-clip.jpg",
+            300.0,
+            (150.0, 100.0),
+            [bracket, clip],
+            material="carbon-steel",
+            thickness_mm=3.0,
+            thickness_u_mm=0.05,
+            render=dict(
+                background=0.82, foreground=0.05, blur_px=0.9, noise=0.006, illumination=(0.06, -0.04), seed=11
+            ),
+        ),
+        DemoScan(
+            "wrenfield-hub-gasket.png",
+            300.0,
+            (92.0, 88.0),
+            [gasket],
+            material="cork-gasket",
+            thickness_mm=2.0,
+            thickness_u_mm=0.1,
+            render=dict(background=0.80, foreground=0.22, blur_px=1.1, noise=0.004, seed=12),
+        ),
+        DemoScan(
+            "wrenfield-fan-plate.jpg",
+            400.0,
+            (80.0, 76.0),
+            [fan],
+            material="aluminium-5083",
+            thickness_mm=2.0,
+            thickness_u_mm=0.03,
+            render=dict(background=0.03, foreground=0.62, blur_px=1.0, noise=0.005, seed=13),
+        ),
     ]
 
 
 def chainstay_gusset() -> tuple[np.ndarray, list[np.ndarray]]:
     """Chainstay gusset plate: a 92 x 64 mm triangle with cut corners, three 6.5 mm holes and a 14 mm window."""
     outer = np.array([(0, 0), (86, 0), (92, 6), (8, 64), (0, 60)], dtype=float)
-    holes = [_circle(10.0, 8.0, 3.25, 360), _circle(76.0, 8.0, 3.25, 360), _circle(10.0, 50.0, 3.25, 360),
-             _circle(30.0, 22.0, 7.0, 360)]
+    holes = [
+        _circle(10.0, 8.0, 3.25, 360),
+        _circle(76.0, 8.0, 3.25, 360),
+        _circle(10.0, 50.0, 3.25, 360),
+        _circle(30.0, 22.0, 7.0, 360),
+    ]
     return outer, holes
 
 
@@ -142,12 +169,26 @@ def demo_photos() -> list[DemoPhoto]:
     about = (46.0, 32.0)
     gusset = (_moved(g_out, 58.0, 112.0, 24.0, about), [_moved(h, 58.0, 112.0, 24.0, about) for h in g_holes])
     return [
-        DemoPhoto("wrenfield-chainstay-gusset-on-mat.jpg", [gusset],
-                  camera=dict(target_mm=(108.0, 150.0), distance_mm=400.0, tilt_deg=18.0, tilt_dir_deg=-35.0,
-                              roll_deg=84.0, f_px=1700.0, size_px=(2000, 1500)),
-                  print_scale=(1.004, 0.997), printed_x_mm=100.4, printed_y_mm=99.7,
-                  material="carbon-steel", thickness_mm=2.5, thickness_u_mm=0.05,
-                  render=dict(blur_px=1.1, noise=0.006, light=(0.15, -0.1), seed=14)),
+        DemoPhoto(
+            "wrenfield-chainstay-gusset-on-mat.jpg",
+            [gusset],
+            camera=dict(
+                target_mm=(108.0, 150.0),
+                distance_mm=400.0,
+                tilt_deg=18.0,
+                tilt_dir_deg=-35.0,
+                roll_deg=84.0,
+                f_px=1700.0,
+                size_px=(2000, 1500),
+            ),
+            print_scale=(1.004, 0.997),
+            printed_x_mm=100.4,
+            printed_y_mm=99.7,
+            material="carbon-steel",
+            thickness_mm=2.5,
+            thickness_u_mm=0.05,
+            render=dict(blur_px=1.1, noise=0.006, light=(0.15, -0.1), seed=14),
+        ),
     ]
 
 
@@ -168,13 +209,19 @@ def make_samples(folder: str | os.PathLike) -> list[Path]:
         written.append(save_scan(synth, folder / scan.file, quality=90))
     from PIL import Image
 
-    from scanmass.scale.mat import make_mat
     from scanmass.outputs.atomic import write_atomic
+    from scanmass.scale.mat import make_mat
     from scanmass.testing.photos import look_at, render_mat_photo
 
     for photo in demo_photos():
-        img = render_mat_photo(make_mat("a4-portrait"), photo.parts, look_at(**photo.camera), height_mm=photo.thickness_mm or 0.0,
-                               print_scale=photo.print_scale, **photo.render)
+        img = render_mat_photo(
+            make_mat("a4-portrait"),
+            photo.parts,
+            look_at(**photo.camera),
+            height_mm=photo.thickness_mm or 0.0,
+            print_scale=photo.print_scale,
+            **photo.render,
+        )
         bio = io.BytesIO()
         Image.fromarray(img).save(bio, format="JPEG", quality=90)  # a phone's JPEG: no DPI, no EXIF
         written.append(Path(write_atomic(folder / photo.file, bio.getvalue())))
@@ -196,10 +243,23 @@ def _settings(folder: Path) -> dict[str, Any]:
     if path.is_file():
         with open(path, "rb") as fh:
             return tomllib.load(fh)
-    return {"scan": [{"file": s.file, "material": s.material, "thickness_mm": s.thickness_mm,
-                      "thickness_u_mm": s.thickness_u_mm} for s in demo_scans()]
-            + [{"file": p.file, "material": p.material, "thickness_mm": p.thickness_mm, "thickness_u_mm": p.thickness_u_mm,
-                "printed_x_mm": p.printed_x_mm, "printed_y_mm": p.printed_y_mm} for p in demo_photos()]}
+    return {
+        "scan": [
+            {"file": s.file, "material": s.material, "thickness_mm": s.thickness_mm, "thickness_u_mm": s.thickness_u_mm}
+            for s in demo_scans()
+        ]
+        + [
+            {
+                "file": p.file,
+                "material": p.material,
+                "thickness_mm": p.thickness_mm,
+                "thickness_u_mm": p.thickness_u_mm,
+                "printed_x_mm": p.printed_x_mm,
+                "printed_y_mm": p.printed_y_mm,
+            }
+            for p in demo_photos()
+        ]
+    }
 
 
 def run_demo(out: str | os.PathLike) -> DemoSummary:
@@ -210,7 +270,9 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
     try:
         out_dir.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise ScanmassError(f"cannot create the demo folder ({exc.strerror}); pass --out to a writable folder", path=str(out_dir)) from None
+        raise ScanmassError(
+            f"cannot create the demo folder ({exc.strerror}); pass --out to a writable folder", path=str(out_dir)
+        ) from None
     folder = samples_dir()
     if folder is None:  # installed without the repository: render the samples afresh
         folder = out_dir / "samples"
@@ -223,10 +285,15 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         src = folder / entry["file"]
         stem = Path(entry["file"]).stem
         result = measure_to_outputs(
-            src, json_out=out_dir / f"{stem}.json", csv_out=out_dir / f"{stem}.csv",
-            overlay_out=out_dir / f"{stem}-overlay.png", material=entry.get("material"),
-            thickness_mm=entry.get("thickness_mm"), thickness_u_mm=entry.get("thickness_u_mm", 0.0),
-            printed_x_mm=entry.get("printed_x_mm"), printed_y_mm=entry.get("printed_y_mm"),
+            src,
+            json_out=out_dir / f"{stem}.json",
+            csv_out=out_dir / f"{stem}.csv",
+            overlay_out=out_dir / f"{stem}-overlay.png",
+            material=entry.get("material"),
+            thickness_mm=entry.get("thickness_mm"),
+            thickness_u_mm=entry.get("thickness_u_mm", 0.0),
+            printed_x_mm=entry.get("printed_x_mm"),
+            printed_y_mm=entry.get("printed_y_mm"),
         )
         measurements.append(result.measurement)
         written += [Path(p) for p in result.written]
@@ -244,8 +311,14 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
             from scanmass.mass.balance import balance_measurement
             from scanmass.outputs.atomic import write_atomic
 
-            res = balance_measurement(result.measurement, entry["material"], entry["thickness_mm"],
-                                      thickness_u_mm=entry.get("thickness_u_mm", 0.0), rpm=spin["rpm"], grade=spin["grade"])
+            res = balance_measurement(
+                result.measurement,
+                entry["material"],
+                entry["thickness_mm"],
+                thickness_u_mm=entry.get("thickness_u_mm", 0.0),
+                rpm=spin["rpm"],
+                grade=spin["grade"],
+            )
             path = write_atomic(out_dir / f"{stem}-balance.json", res.to_json() + "\n")
             written.append(Path(path))
             lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {res.verdict}")
@@ -261,8 +334,12 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         lines.append(f"assembly '{res.name}': {res.mass_g:.2f} ± {res.mass_u_g:.2f} g, centre of mass ({com}) mm")
     from scanmass.outputs.report import write_report
 
-    report = write_report(measurements, out_dir / "report.html", overlays=overlays,
-                          title="Wrenfield Cycle Restorations: legacy parts measured by scanmass")
+    report = write_report(
+        measurements,
+        out_dir / "report.html",
+        overlays=overlays,
+        title="Wrenfield Cycle Restorations: legacy parts measured by scanmass",
+    )
     written.append(Path(report))
     lines.append(f"report: {report}")
     return DemoSummary(out_dir=out_dir, measurements=measurements, lines=lines, written=written)

@@ -3,14 +3,14 @@
 from __future__ import annotations
 
 import math
-from typing import Mapping
+from collections.abc import Mapping
 
 from rich.table import Table
 
+from scanmass.cli.tables import fmt_u
 from scanmass.mass.assembly import AssemblyResult
 from scanmass.mass.balance import BalanceResult
 from scanmass.mass.materials import Material
-from scanmass.cli.tables import fmt_u
 
 __all__ = ["materials_table", "assembly_table", "assembly_summary_table", "balance_table"]
 
@@ -25,8 +25,14 @@ def materials_table(table: Mapping[str, Material]) -> Table:
     out.add_column("u kg/m³", justify="right", no_wrap=True)
     out.add_column("source")
     for key, mat in table.items():
-        out.add_row(key, mat.name, f"{mat.density_kg_m3:g}", f"{mat.density_min_kg_m3:g}–{mat.density_max_kg_m3:g}",
-                    f"{mat.density_u_kg_m3:.2g}", mat.source)
+        out.add_row(
+            key,
+            mat.name,
+            f"{mat.density_kg_m3:g}",
+            f"{mat.density_min_kg_m3:g}–{mat.density_max_kg_m3:g}",
+            f"{mat.density_u_kg_m3:.2g}",
+            mat.source,
+        )
     return out
 
 
@@ -34,19 +40,34 @@ def assembly_table(result: AssemblyResult) -> Table:
     """The per-member table: signed mass (cut-outs negative) and centre of mass in the assembly frame."""
     title = f"{result.name or result.path or 'assembly'}: members"
     out = Table(title=title, title_justify="left", header_style="bold")
-    for col, justify in (("#", "right"), ("member", "left"), ("source:part", "left"), ("material, t mm", "left"),
-                         ("n", "right"), ("mass g (± 1σ)", "right"), ("CoM x, y, z mm", "right")):
+    for col, justify in (
+        ("#", "right"),
+        ("member", "left"),
+        ("source:part", "left"),
+        ("material, t mm", "left"),
+        ("n", "right"),
+        ("mass g (± 1σ)", "right"),
+        ("CoM x, y, z mm", "right"),
+    ):
         out.add_column(col, justify=justify, overflow="fold")
     for m in result.members:
-        out.add_row(str(m.index), m.name + (" (cut-out)" if m.cutout else ""), f"{m.source}:{m.part}",
-                    f"{m.material}, {m.thickness_mm:g}", str(m.count), fmt_u(m.mass_g, m.mass_u_g),
-                    ", ".join(f"{c:.2f}" for c in m.centre_of_mass_mm))
+        out.add_row(
+            str(m.index),
+            m.name + (" (cut-out)" if m.cutout else ""),
+            f"{m.source}:{m.part}",
+            f"{m.material}, {m.thickness_mm:g}",
+            str(m.count),
+            fmt_u(m.mass_g, m.mass_u_g),
+            ", ".join(f"{c:.2f}" for c in m.centre_of_mass_mm),
+        )
     return out
 
 
 def assembly_summary_table(result: AssemblyResult) -> Table:
     """Totals: mass, weight, centre of mass, inertia tensor and principal moments."""
-    out = Table(title="assembly totals (± 1σ); inertia about the centre of mass", title_justify="left", header_style="bold")
+    out = Table(
+        title="assembly totals (± 1σ); inertia about the centre of mass", title_justify="left", header_style="bold"
+    )
     out.add_column("figure", no_wrap=True)
     out.add_column("value", justify="right", no_wrap=True)
     out.add_row("mass g", fmt_u(result.mass_g, result.mass_u_g))
@@ -57,7 +78,9 @@ def assembly_summary_table(result: AssemblyResult) -> Table:
     index = ((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))
     for name, (i, j) in zip(names, index):
         out.add_row(f"inertia tensor {name} g·mm²", fmt_u(result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j]))
-    for k, (value, u, axis) in enumerate(zip(result.principal_g_mm2, result.principal_u_g_mm2, result.principal_axes), 1):
+    for k, (value, u, axis) in enumerate(
+        zip(result.principal_g_mm2, result.principal_u_g_mm2, result.principal_axes), 1
+    ):
         direction = ", ".join(f"{c:+.4f}" for c in axis)
         out.add_row(f"principal I{k} g·mm² (axis {direction})", fmt_u(value, u))
     return out

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from rich.table import Table
 
-from scanmass.outputs.formatting import _finite, format_value
 from scanmass.measurement import Measurement
+from scanmass.outputs.formatting import _finite, format_value
 
 __all__ = ["fmt_u", "measurement_table", "holes_table"]
 
@@ -67,7 +67,13 @@ def holes_table(m: Measurement) -> Table | None:
         table.add_column(col, justify="right")
     for p in m.parts:
         for h in p.holes:
-            table.add_row(str(p.label), str(h.label), fmt_u(h.circle_centre_mm[0], h.circle_centre_u_mm[0]),
-                          fmt_u(h.circle_centre_mm[1], h.circle_centre_u_mm[1]), fmt_u(h.diameter_mm, h.diameter_u_mm),
-                          f"{h.roundness_mm:.3f}", fmt_u(h.area_mm2, h.area_u_mm2))
+            table.add_row(
+                str(p.label),
+                str(h.label),
+                fmt_u(h.circle_centre_mm[0], h.circle_centre_u_mm[0]),
+                fmt_u(h.circle_centre_mm[1], h.circle_centre_u_mm[1]),
+                fmt_u(h.diameter_mm, h.diameter_u_mm),
+                f"{h.roundness_mm:.3f}",
+                fmt_u(h.area_mm2, h.area_u_mm2),
+            )
     return table

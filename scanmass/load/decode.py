@@ -372,8 +372,7 @@ def _check_max_pixels(max_pixels: object) -> int:
     is_int = isinstance(max_pixels, numbers.Integral) and not isinstance(max_pixels, (bool, np.bool_))
     if not is_int or max_pixels <= 0:  # type: ignore[operator]
         raise OptionError(
-            "max_pixels must be a positive whole number of pixels, e.g. --max-pixels 300000000 "
-            f"(got {max_pixels!r})"
+            f"max_pixels must be a positive whole number of pixels, e.g. --max-pixels 300000000 (got {max_pixels!r})"
         )
     return int(max_pixels)
 
@@ -423,9 +422,7 @@ def _first(value: object) -> object:
     return value
 
 
-def _dpi_from_tags(
-    xres: object, yres: object, unit: object, what: str
-) -> tuple[tuple[float, float] | None, str]:
+def _dpi_from_tags(xres: object, yres: object, unit: object, what: str) -> tuple[tuple[float, float] | None, str]:
     """Resolution from TIFF-style XResolution/YResolution/ResolutionUnit tags.
 
     References
@@ -609,9 +606,7 @@ def _read_file(path: str | os.PathLike) -> tuple[bytes, str]:
         with open(name, "rb") as fh:
             data = fh.read()
     except OSError as exc:
-        raise ImageError(
-            f"cannot be read ({exc.strerror or exc}); check the file's permissions", path=name
-        ) from None
+        raise ImageError(f"cannot be read ({exc.strerror or exc}); check the file's permissions", path=name) from None
     if not data:
         raise ImageError("file is empty (0 bytes); scan or export the image again", path=name)
     return data, name
@@ -866,9 +861,7 @@ def _array_to_grey(arr: np.ndarray) -> tuple[np.ndarray, int, str]:
             if band.ndim == 3 and band.shape[2] in (3, 4):
                 f = band.astype(np.float32)
                 # Luminance of linear channels with the same Rec. 601 weights.
-                grey = (
-                    f[..., 0] * np.float32(0.299) + f[..., 1] * np.float32(0.587) + f[..., 2] * np.float32(0.114)
-                )
+                grey = f[..., 0] * np.float32(0.299) + f[..., 1] * np.float32(0.587) + f[..., 2] * np.float32(0.114)
                 if band.shape[2] == 4:
                     grey = grey * f[..., 3] + (1 - f[..., 3])
             elif band.ndim == 3 and band.shape[2] == 2:

@@ -36,16 +36,17 @@ import json
 import math
 import os
 import tomllib
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from os import PathLike
 from pathlib import Path
-from typing import Any, Callable, Mapping, Sequence
+from typing import Any
 
 import numpy as np
 
 from scanmass.errors import OptionError, ScanmassError
-from scanmass.mass.plate import STANDARD_GRAVITY_M_S2, check_positive
 from scanmass.mass.materials import Material, load_materials, resolve_material
+from scanmass.mass.plate import STANDARD_GRAVITY_M_S2, check_positive
 from scanmass.measurement import Measurement, Part, _clean
 
 __all__ = [
@@ -75,12 +76,27 @@ LIFTING_CAUTION = (
 
 _TOP_KEYS = {"units", "materials", "name", "member"}
 _MEMBER_KEYS = {
-    "name", "source", "part", "material", "thickness_mm", "thickness_u_mm", "count", "anchor",
-    "anchor_mm", "mirror", "rotate_deg", "dx_mm", "dy_mm", "z_mm", "cutout", "dpi",
+    "name",
+    "source",
+    "part",
+    "material",
+    "thickness_mm",
+    "thickness_u_mm",
+    "count",
+    "anchor",
+    "anchor_mm",
+    "mirror",
+    "rotate_deg",
+    "dx_mm",
+    "dy_mm",
+    "z_mm",
+    "cutout",
+    "dpi",
 }
 
 
 # -- members -----------------------------------------------------------------------------
+
 
 @dataclass
 class Member:
@@ -173,32 +189,44 @@ class AssemblyResult:
         """Plain JSON-ready values."""
         members = []
         for m in self.members:
-            members.append({
-                "index": m.index, "name": m.name, "source": m.source, "part": m.part,
-                "material": m.material, "thickness_mm": m.thickness_mm, "count": m.count,
-                "cutout": m.cutout, "mass_each_g": m.mass_each_g, "mass_g": m.mass_g,
-                "mass_u_g": m.mass_u_g, "centre_of_mass_mm": m.centre_of_mass_mm,
-                "inertia_g_mm2": m.inertia_g_mm2,
-            })
-        return _clean({
-            "schema": self.schema,
-            "path": self.path,
-            "name": self.name,
-            "mass_g": self.mass_g,
-            "mass_u_g": self.mass_u_g,
-            "weight_n": self.weight_n,
-            "weight_u_n": self.weight_u_n,
-            "centre_of_mass_mm": self.centre_of_mass_mm,
-            "centre_of_mass_u_mm": self.centre_of_mass_u_mm,
-            "inertia_g_mm2": self.inertia_g_mm2,
-            "inertia_u_g_mm2": self.inertia_u_g_mm2,
-            "principal_g_mm2": self.principal_g_mm2,
-            "principal_u_g_mm2": self.principal_u_g_mm2,
-            "principal_axes": self.principal_axes,
-            "members": members,
-            "notes": list(self.notes),
-            "cautions": self.cautions,
-        })
+            members.append(
+                {
+                    "index": m.index,
+                    "name": m.name,
+                    "source": m.source,
+                    "part": m.part,
+                    "material": m.material,
+                    "thickness_mm": m.thickness_mm,
+                    "count": m.count,
+                    "cutout": m.cutout,
+                    "mass_each_g": m.mass_each_g,
+                    "mass_g": m.mass_g,
+                    "mass_u_g": m.mass_u_g,
+                    "centre_of_mass_mm": m.centre_of_mass_mm,
+                    "inertia_g_mm2": m.inertia_g_mm2,
+                }
+            )
+        return _clean(
+            {
+                "schema": self.schema,
+                "path": self.path,
+                "name": self.name,
+                "mass_g": self.mass_g,
+                "mass_u_g": self.mass_u_g,
+                "weight_n": self.weight_n,
+                "weight_u_n": self.weight_u_n,
+                "centre_of_mass_mm": self.centre_of_mass_mm,
+                "centre_of_mass_u_mm": self.centre_of_mass_u_mm,
+                "inertia_g_mm2": self.inertia_g_mm2,
+                "inertia_u_g_mm2": self.inertia_u_g_mm2,
+                "principal_g_mm2": self.principal_g_mm2,
+                "principal_u_g_mm2": self.principal_u_g_mm2,
+                "principal_axes": self.principal_axes,
+                "members": members,
+                "notes": list(self.notes),
+                "cautions": self.cautions,
+            }
+        )
 
     def to_json(self, *, indent: int | None = 1) -> str:
         """The assembly result document as JSON text."""
@@ -211,12 +239,40 @@ class AssemblyResult:
         writer = csv.DictWriter(buf, fieldnames=ASSEMBLY_CSV_COLUMNS, lineterminator="\n")
         writer.writeheader()
         rows = [
-            _csv_row("member", m.index, m.name, m.source, m.part, m.material, m.thickness_mm, m.count,
-                     m.cutout, m.mass_g, m.mass_u_g, m.centre_of_mass_mm, m.inertia_g_mm2)
+            _csv_row(
+                "member",
+                m.index,
+                m.name,
+                m.source,
+                m.part,
+                m.material,
+                m.thickness_mm,
+                m.count,
+                m.cutout,
+                m.mass_g,
+                m.mass_u_g,
+                m.centre_of_mass_mm,
+                m.inertia_g_mm2,
+            )
             for m in self.members
         ]
-        rows.append(_csv_row("total", "", self.name, self.path or "", "", "", "", "", "",
-                             self.mass_g, self.mass_u_g, self.centre_of_mass_mm, self.inertia_g_mm2))
+        rows.append(
+            _csv_row(
+                "total",
+                "",
+                self.name,
+                self.path or "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                self.mass_g,
+                self.mass_u_g,
+                self.centre_of_mass_mm,
+                self.inertia_g_mm2,
+            )
+        )
         for row in rows:
             writer.writerow({k: "" if v is None else v for k, v in _clean(row).items()})
         return buf.getvalue()
@@ -224,22 +280,62 @@ class AssemblyResult:
 
 #: Column order of :meth:`AssemblyResult.to_csv`.
 ASSEMBLY_CSV_COLUMNS = [
-    "row", "index", "name", "source", "part", "material", "thickness_mm", "count", "cutout",
-    "mass_g", "mass_u_g", "com_x_mm", "com_y_mm", "com_z_mm",
-    "inertia_xx_g_mm2", "inertia_yy_g_mm2", "inertia_zz_g_mm2",
-    "inertia_xy_g_mm2", "inertia_xz_g_mm2", "inertia_yz_g_mm2",
+    "row",
+    "index",
+    "name",
+    "source",
+    "part",
+    "material",
+    "thickness_mm",
+    "count",
+    "cutout",
+    "mass_g",
+    "mass_u_g",
+    "com_x_mm",
+    "com_y_mm",
+    "com_z_mm",
+    "inertia_xx_g_mm2",
+    "inertia_yy_g_mm2",
+    "inertia_zz_g_mm2",
+    "inertia_xy_g_mm2",
+    "inertia_xz_g_mm2",
+    "inertia_yz_g_mm2",
 ]
 
 
 def _csv_row(row, index, name, source, part, material, thickness, count, cutout, mass, mass_u, com, tensor):
     t = np.asarray(tensor, float)
-    return dict(zip(ASSEMBLY_CSV_COLUMNS, [
-        row, index, name, source, part, material, thickness, count, cutout, mass, mass_u,
-        com[0], com[1], com[2], t[0, 0], t[1, 1], t[2, 2], t[0, 1], t[0, 2], t[1, 2],
-    ]))
+    return dict(
+        zip(
+            ASSEMBLY_CSV_COLUMNS,
+            [
+                row,
+                index,
+                name,
+                source,
+                part,
+                material,
+                thickness,
+                count,
+                cutout,
+                mass,
+                mass_u,
+                com[0],
+                com[1],
+                com[2],
+                t[0, 0],
+                t[1, 1],
+                t[2, 2],
+                t[0, 1],
+                t[0, 2],
+                t[1, 2],
+            ],
+        )
+    )
 
 
 # -- the combination ---------------------------------------------------------------------
+
 
 @dataclass(frozen=True)
 class _Inputs:
@@ -263,11 +359,17 @@ def _member_figures(mem: Member, v: _Inputs) -> tuple[float, np.ndarray, np.ndar
     mass = sign * mem.count * k * v.area
     # integral r r^T dm about the member's own CoM, in the part's axes: the plate's
     # second moments of area times k in-plane, m t^2 / 12 through the thickness
-    p_local = sign * mem.count * np.array([
-        [k * v.iyy, k * v.ixy, 0.0],
-        [k * v.ixy, k * v.ixx, 0.0],
-        [0.0, 0.0, k * v.area * v.t * v.t / 12.0],
-    ])
+    p_local = (
+        sign
+        * mem.count
+        * np.array(
+            [
+                [k * v.iyy, k * v.ixy, 0.0],
+                [k * v.ixy, k * v.ixx, 0.0],
+                [0.0, 0.0, k * v.area * v.t * v.t / 12.0],
+            ]
+        )
+    )
     q = mem.orientation()
     p = q @ p_local @ q.T
     inertia = np.trace(p) * np.eye(3) - p
@@ -346,9 +448,16 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
             raise OptionError(f"member {i}: mirror must be 'x' or 'y', got {mem.mirror!r}", path=path)
 
     nominal = [
-        _Inputs(m.material.density_kg_m3 * 1e-6, m.thickness_mm, float(m.part.area_mm2),
-                float(m.part.centroid_mm[0]), float(m.part.centroid_mm[1]),
-                float(m.part.ixx_mm4), float(m.part.iyy_mm4), float(m.part.ixy_mm4))
+        _Inputs(
+            m.material.density_kg_m3 * 1e-6,
+            m.thickness_mm,
+            float(m.part.area_mm2),
+            float(m.part.centroid_mm[0]),
+            float(m.part.centroid_mm[1]),
+            float(m.part.ixx_mm4),
+            float(m.part.iyy_mm4),
+            float(m.part.ixy_mm4),
+        )
         for m in members
     ]
     params = _parameters(members)  # one entry per shared error source
@@ -393,12 +502,23 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
     rows = []
     for i, (mem, (m_i, c_i, i_i)) in enumerate(zip(members, figures), 1):
         own = _member_u(mem)
-        rows.append(MemberResult(
-            index=i, name=mem.name or f"member {i}", source=mem.source, part=int(mem.part.label),
-            material=mem.material.key, thickness_mm=mem.thickness_mm, count=mem.count, cutout=mem.cutout,
-            mass_each_g=abs(m_i) / mem.count, mass_g=m_i, mass_u_g=own * mem.count,
-            centre_of_mass_mm=tuple(float(x) for x in c_i), inertia_g_mm2=i_i,
-        ))
+        rows.append(
+            MemberResult(
+                index=i,
+                name=mem.name or f"member {i}",
+                source=mem.source,
+                part=int(mem.part.label),
+                material=mem.material.key,
+                thickness_mm=mem.thickness_mm,
+                count=mem.count,
+                cutout=mem.cutout,
+                mass_each_g=abs(m_i) / mem.count,
+                mass_g=m_i,
+                mass_u_g=own * mem.count,
+                centre_of_mass_mm=tuple(float(x) for x in c_i),
+                inertia_g_mm2=i_i,
+            )
+        )
     g = STANDARD_GRAVITY_M_S2
     return AssemblyResult(
         members=rows,
@@ -435,7 +555,9 @@ def _parameters(members: Sequence[Member]) -> list[tuple[str, Callable[[Member],
         sheet = (mat.key, mem.thickness_mm, mem.thickness_u_mm)
         if ("t", sheet) not in seen:
             seen.add(("t", sheet))
-            params.append(("t", lambda m, s=sheet: (m.material.key, m.thickness_mm, m.thickness_u_mm) == s, mem.thickness_u_mm))
+            params.append(
+                ("t", lambda m, s=sheet: (m.material.key, m.thickness_mm, m.thickness_u_mm) == s, mem.thickness_u_mm)
+            )
         if ("part", id(mem.part)) not in seen:
             seen.add(("part", id(mem.part)))
             same = lambda m, k=mem.part: m.part is k  # noqa: E731
@@ -463,8 +585,10 @@ def _member_u(mem: Member) -> float:
 
 # -- reading sources and assembly files ----------------------------------------------------
 
-def load_measurement(path: str | PathLike[str], *, dpi: float | None = None,
-                     cache: dict[Any, Measurement] | None = None) -> Measurement:
+
+def load_measurement(
+    path: str | PathLike[str], *, dpi: float | None = None, cache: dict[Any, Measurement] | None = None
+) -> Measurement:
     """A Measurement from a result JSON, or by measuring an image (``scanmass.measure``).
 
     A ``.json`` file is read as a result document; anything else is measured, with
@@ -547,16 +671,23 @@ def load_assembly(
     except FileNotFoundError:
         raise OptionError("assembly file not found; check the path", path=where) from None
     except (OSError, UnicodeDecodeError) as exc:
-        raise OptionError(f"cannot read the assembly file ({exc.__class__.__name__}); pass a UTF-8 TOML file", path=where) from None
+        raise OptionError(
+            f"cannot read the assembly file ({exc.__class__.__name__}); pass a UTF-8 TOML file", path=where
+        ) from None
     except tomllib.TOMLDecodeError as exc:
         raise OptionError(f"not valid TOML ({exc}); fix the file's syntax", path=where) from None
 
     unknown = set(doc) - _TOP_KEYS
     if unknown:
-        raise OptionError(f"unknown key(s) {', '.join(sorted(unknown))}; allowed at the top: {', '.join(sorted(_TOP_KEYS))}", path=where)
+        raise OptionError(
+            f"unknown key(s) {', '.join(sorted(unknown))}; allowed at the top: {', '.join(sorted(_TOP_KEYS))}",
+            path=where,
+        )
     units = doc.get("units", "mm")
     if units != "mm":
-        raise OptionError(f"units = {units!r} is not supported; give every length in millimetres and set units = \"mm\"", path=where)
+        raise OptionError(
+            f'units = {units!r} is not supported; give every length in millimetres and set units = "mm"', path=where
+        )
     base = p.parent
     own = [base / str(doc["materials"])] if "materials" in doc else []
     if isinstance(materials, Mapping):
@@ -572,15 +703,26 @@ def load_assembly(
     return members, str(doc.get("name", ""))
 
 
-def _member(i: int, entry: Mapping[str, Any], base: Path, table: Mapping[str, Material],
-            cache: dict[Any, Measurement], where: str) -> Member:
+def _member(
+    i: int,
+    entry: Mapping[str, Any],
+    base: Path,
+    table: Mapping[str, Material],
+    cache: dict[Any, Measurement],
+    where: str,
+) -> Member:
     label = f"member {i}" + (f" ({entry['name']!r})" if "name" in entry else "")
     unknown = set(entry) - _MEMBER_KEYS
     if unknown:
-        raise OptionError(f"{label}: unknown key(s) {', '.join(sorted(unknown))}; allowed: {', '.join(sorted(_MEMBER_KEYS))}", path=where)
+        raise OptionError(
+            f"{label}: unknown key(s) {', '.join(sorted(unknown))}; allowed: {', '.join(sorted(_MEMBER_KEYS))}",
+            path=where,
+        )
     for key in ("source", "material", "thickness_mm"):
         if key not in entry:
-            raise OptionError(f"{label}: {key} is missing; every member needs source, material and thickness_mm", path=where)
+            raise OptionError(
+                f"{label}: {key} is missing; every member needs source, material and thickness_mm", path=where
+            )
     try:
         thickness = check_positive("thickness_mm", entry["thickness_mm"], hint="give the sheet thickness in mm")
         thickness_u = check_positive("thickness_u_mm", entry.get("thickness_u_mm", 0.0), allow_zero=True)
@@ -593,7 +735,7 @@ def _member(i: int, entry: Mapping[str, Any], base: Path, table: Mapping[str, Ma
         raise OptionError(f"{label}: count must be a whole number >= 1, got {count!r}", path=where)
     mirror = entry.get("mirror")
     if mirror not in (None, "x", "y"):
-        raise OptionError(f"{label}: mirror must be \"x\" (negate x) or \"y\" (negate y), got {mirror!r}", path=where)
+        raise OptionError(f'{label}: mirror must be "x" (negate x) or "y" (negate y), got {mirror!r}', path=where)
     cutout = entry.get("cutout", False)
     if not isinstance(cutout, bool):
         raise OptionError(f"{label}: cutout must be true or false, got {cutout!r}", path=where)
@@ -604,7 +746,9 @@ def _member(i: int, entry: Mapping[str, Any], base: Path, table: Mapping[str, Ma
     source = str(entry["source"])
     src_path = base / source
     if not src_path.is_file():
-        raise OptionError(f"{label}: source {source!r} not found next to the assembly file; paths are relative to it", path=where)
+        raise OptionError(
+            f"{label}: source {source!r} not found next to the assembly file; paths are relative to it", path=where
+        )
     measurement = load_measurement(src_path, dpi=dpi, cache=cache)
     try:
         part = select_part(measurement, part_label, where=source)
@@ -612,11 +756,19 @@ def _member(i: int, entry: Mapping[str, Any], base: Path, table: Mapping[str, Ma
         raise OptionError(f"{label}: {exc}", path=where) from None
 
     return Member(
-        part=part, material=material, thickness_mm=thickness, thickness_u_mm=thickness_u, count=count,
-        dx_mm=_number(entry, "dx_mm", 0.0, label, where), dy_mm=_number(entry, "dy_mm", 0.0, label, where),
-        rotate_deg=_number(entry, "rotate_deg", 0.0, label, where), mirror=mirror,
-        z_mm=_number(entry, "z_mm", 0.0, label, where), cutout=cutout,
-        anchor_mm=_anchor(entry, part, label, where), name=str(entry.get("name", "")),
+        part=part,
+        material=material,
+        thickness_mm=thickness,
+        thickness_u_mm=thickness_u,
+        count=count,
+        dx_mm=_number(entry, "dx_mm", 0.0, label, where),
+        dy_mm=_number(entry, "dy_mm", 0.0, label, where),
+        rotate_deg=_number(entry, "rotate_deg", 0.0, label, where),
+        mirror=mirror,
+        z_mm=_number(entry, "z_mm", 0.0, label, where),
+        cutout=cutout,
+        anchor_mm=_anchor(entry, part, label, where),
+        name=str(entry.get("name", "")),
         source=source,
     )
 
@@ -627,8 +779,11 @@ def _anchor(entry: Mapping[str, Any], part: Part, label: str, where: str) -> tup
         raise OptionError(f"{label}: give either anchor or anchor_mm, not both", path=where)
     if "anchor_mm" in entry:
         value = entry["anchor_mm"]
-        if (not isinstance(value, list) or len(value) != 2
-                or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)):
+        if (
+            not isinstance(value, list)
+            or len(value) != 2
+            or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)
+        ):
             raise OptionError(f"{label}: anchor_mm must be [x, y] in mm, got {value!r}", path=where)
         return float(value[0]), float(value[1])
     anchor = str(entry.get("anchor", "origin")).strip().lower()
@@ -642,8 +797,10 @@ def _anchor(entry: Mapping[str, Any], part: Part, label: str, where: str) -> tup
             if number == str(hole.label):
                 return float(hole.circle_centre_mm[0]), float(hole.circle_centre_mm[1])
         listed = ", ".join(str(h.label) for h in part.holes) or "none"
-        raise OptionError(f"{label}: anchor {entry['anchor']!r} names no hole of part {part.label} (holes: {listed})", path=where)
-    raise OptionError(f"{label}: anchor must be \"origin\", \"centroid\" or \"hole N\", got {entry['anchor']!r}", path=where)
+        raise OptionError(
+            f"{label}: anchor {entry['anchor']!r} names no hole of part {part.label} (holes: {listed})", path=where
+        )
+    raise OptionError(f'{label}: anchor must be "origin", "centroid" or "hole N", got {entry["anchor"]!r}', path=where)
 
 
 def assemble(

@@ -14,16 +14,17 @@ from __future__ import annotations
 
 import json
 import math
+from collections.abc import Mapping
 from dataclasses import asdict, dataclass, field
 from os import PathLike
-from typing import Any, Mapping
+from typing import Any
 
 import numpy as np
 
-from scanmass.mass.assembly import select_part
 from scanmass.errors import OptionError
-from scanmass.mass.plate import check_positive, plate_mass
+from scanmass.mass.assembly import select_part
 from scanmass.mass.materials import Material, resolve_material
+from scanmass.mass.plate import check_positive, plate_mass
 from scanmass.measurement import Hole, Measurement, Part, _clean
 from scanmass.section import point_in_ring
 
@@ -65,7 +66,9 @@ def permissible_unbalance_gmm(grade_mm_s: float, mass_g: float, rpm: float) -> f
     >>> round(permissible_unbalance_gmm(6.3, 10_000.0, 3000.0), 2)
     200.54
     """
-    grade = check_positive("grade", grade_mm_s, unit="mm/s", hint="pass an ISO 21940-11 balance quality grade, e.g. 6.3")
+    grade = check_positive(
+        "grade", grade_mm_s, unit="mm/s", hint="pass an ISO 21940-11 balance quality grade, e.g. 6.3"
+    )
     n = check_positive("rpm", rpm, unit="rev/min", hint="pass the maximum service speed, e.g. 3000")
     omega = 2.0 * math.pi * n / 60.0
     return 1000.0 * grade * (mass_g / 1000.0) / omega
@@ -140,6 +143,7 @@ class BalanceResult:
 
 
 # -- geometry helpers -------------------------------------------------------------------
+
 
 def _ray_exit_mm(ring: np.ndarray, origin: np.ndarray, direction: np.ndarray) -> float | None:
     """Distance from ``origin`` along the unit ``direction`` to the nearest crossing of the ring."""
@@ -216,6 +220,7 @@ def _fmt(value: float, digits: int = 3) -> str:
 
 # -- the check ------------------------------------------------------------------------
 
+
 def static_unbalance(
     part: Part,
     material: Material | str,
@@ -289,7 +294,9 @@ def static_unbalance(
     mp = plate_mass(part, mat, thickness_mm, thickness_u_mm=thickness_u_mm)
     t = mp.thickness_mm
     if (rpm is None) != (grade is None):
-        raise OptionError("give both the speed (rpm) and the balance quality grade (e.g. --rpm 3000 --grade 6.3), or neither")
+        raise OptionError(
+            "give both the speed (rpm) and the balance quality grade (e.g. --rpm 3000 --grade 6.3), or neither"
+        )
     bore = _choose_bore(part, hole)
     notes: list[str] = []
 
@@ -318,8 +325,10 @@ def static_unbalance(
     omega = permissible = e_per = None
     passes: bool | None = None
     if rpm is None:
-        verdict = ("not judged: no speed and grade given; pass rpm and grade (ISO 21940-11 balance quality grade) "
-                   "to check the unbalance against its permissible value")
+        verdict = (
+            "not judged: no speed and grade given; pass rpm and grade (ISO 21940-11 balance quality grade) "
+            "to check the unbalance against its permissible value"
+        )
     else:
         permissible = permissible_unbalance_gmm(grade, mass, rpm)
         grade, rpm = float(grade), float(rpm)
@@ -327,10 +336,13 @@ def static_unbalance(
         e_per = grade / omega  # mm: U_per / m
         passes = _decide(offset, offset_u, e_per)
         if not any(math.isclose(grade, g, rel_tol=1e-9) for g in STANDARD_GRADES):
-            notes.append(f"G {grade:g} is not one of the grades of the ISO 21940-11 series ({', '.join(f'{g:g}' for g in STANDARD_GRADES)})")
+            notes.append(
+                f"G {grade:g} is not one of the grades of the ISO 21940-11 series ({', '.join(f'{g:g}' for g in STANDARD_GRADES)})"
+            )
         where = f"G {grade:g} at {rpm:g} rpm"
-        figures = (f"unbalance {_fmt(unbalance)} ± {_fmt(unbalance_u, 2)} g mm against a permissible "
-                   f"{_fmt(permissible)} g mm")
+        figures = (
+            f"unbalance {_fmt(unbalance)} ± {_fmt(unbalance_u, 2)} g mm against a permissible {_fmt(permissible)} g mm"
+        )
         if passes is True:
             verdict = f"passes {where}: {figures}, below it even at 2 sigma (static check only; see cautions)"
         elif passes is False:
@@ -345,13 +357,34 @@ def static_unbalance(
             verdict = f"undecided for {where}: {figures}, too close to call at 2 sigma; re-measure more finely or balance on a machine"
 
     result = BalanceResult(
-        part=int(part.label), hole=int(bore.label), axis_mm=_pair(axis), axis_u_mm=_pair(axis_u),
-        bore_diameter_mm=float(bore.diameter_mm), centroid_mm=_pair(centroid), centroid_u_mm=_pair(centroid_u),
-        material=mat.key, density_kg_m3=mat.density_kg_m3, thickness_mm=t, thickness_u_mm=mp.thickness_u_mm,
-        mass_g=mass, mass_u_g=mass_u, offset_mm=offset, offset_u_mm=offset_u, offset_vector_mm=_pair(d),
-        unbalance_gmm=unbalance, unbalance_u_gmm=unbalance_u, heavy_angle_deg=heavy, rpm=rpm,
-        grade_mm_s=grade, angular_speed_rad_s=omega, permissible_gmm=permissible, permissible_offset_mm=e_per,
-        resolvable_offset_mm=resolvable, passes=passes, verdict=verdict, notes=notes,
+        part=int(part.label),
+        hole=int(bore.label),
+        axis_mm=_pair(axis),
+        axis_u_mm=_pair(axis_u),
+        bore_diameter_mm=float(bore.diameter_mm),
+        centroid_mm=_pair(centroid),
+        centroid_u_mm=_pair(centroid_u),
+        material=mat.key,
+        density_kg_m3=mat.density_kg_m3,
+        thickness_mm=t,
+        thickness_u_mm=mp.thickness_u_mm,
+        mass_g=mass,
+        mass_u_g=mass_u,
+        offset_mm=offset,
+        offset_u_mm=offset_u,
+        offset_vector_mm=_pair(d),
+        unbalance_gmm=unbalance,
+        unbalance_u_gmm=unbalance_u,
+        heavy_angle_deg=heavy,
+        rpm=rpm,
+        grade_mm_s=grade,
+        angular_speed_rad_s=omega,
+        permissible_gmm=permissible,
+        permissible_offset_mm=e_per,
+        resolvable_offset_mm=resolvable,
+        passes=passes,
+        verdict=verdict,
+        notes=notes,
     )
     if offset > 0:
         _correct(result, part, mat, axis, d / offset, correction_radius_mm, drill_diameter_mm, drill_step_mm)
@@ -360,19 +393,33 @@ def static_unbalance(
     return result
 
 
-def _correct(res: BalanceResult, part: Part, mat: Material, axis: np.ndarray, heavy_dir: np.ndarray,
-             radius: float | None, drill: float | None, step: float | None) -> None:
+def _correct(
+    res: BalanceResult,
+    part: Part,
+    mat: Material,
+    axis: np.ndarray,
+    heavy_dir: np.ndarray,
+    radius: float | None,
+    drill: float | None,
+    step: float | None,
+) -> None:
     """Fill the correction and the virtual re-measure into ``res``."""
     rho_t = mat.density_kg_m3 * 1e-6 * res.thickness_mm  # g/mm2
     if radius is None:
         rim = None if part.outline_mm is None else _ray_exit_mm(part.outline_mm, axis, heavy_dir)
         if rim is None:
-            res.notes.append("no correction sized: the outline is not in the result; give correction_radius_mm (--radius)")
+            res.notes.append(
+                "no correction sized: the outline is not in the result; give correction_radius_mm (--radius)"
+            )
             return
         radius = (res.bore_diameter_mm / 2.0 + rim) / 2.0
-        res.notes.append(f"correction radius {radius:.4g} mm: midway between the bore's edge and the rim along the heavy direction")
+        res.notes.append(
+            f"correction radius {radius:.4g} mm: midway between the bore's edge and the rim along the heavy direction"
+        )
     else:
-        radius = check_positive("correction_radius_mm", radius, hint="pass the radius from the axis at which to correct")
+        radius = check_positive(
+            "correction_radius_mm", radius, hint="pass the radius from the axis at which to correct"
+        )
     correction = res.unbalance_gmm / radius  # g, from m_c r = U
     res.correction_radius_mm = radius
     res.remove_mass_g = correction

@@ -11,11 +11,12 @@ import difflib
 import math
 import re
 import tomllib
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from importlib import resources
 from os import PathLike
 from pathlib import Path
-from typing import Any, Mapping, Sequence
+from typing import Any
 
 from scanmass.errors import MaterialError
 
@@ -81,11 +82,15 @@ def _read_toml(path: Path | None) -> dict[str, Any]:
     except FileNotFoundError:
         raise MaterialError("materials file not found; check the path given to --materials", path=str(path)) from None
     except (OSError, UnicodeDecodeError) as exc:
-        raise MaterialError(f"cannot read the materials file ({exc.__class__.__name__}); pass a UTF-8 TOML file", path=str(path)) from None
+        raise MaterialError(
+            f"cannot read the materials file ({exc.__class__.__name__}); pass a UTF-8 TOML file", path=str(path)
+        ) from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise MaterialError(f"not valid TOML ({exc}); fix the file's syntax", path=None if path is None else str(path)) from None
+        raise MaterialError(
+            f"not valid TOML ({exc}); fix the file's syntax", path=None if path is None else str(path)
+        ) from None
     return doc
 
 
@@ -109,7 +114,9 @@ def _build(key: str, entry: Mapping[str, Any], where: str | None) -> Material:
             path=where,
         ) from None
     if not (math.isfinite(rho) and rho > 0 and math.isfinite(lo) and math.isfinite(hi)):
-        raise MaterialError(f"material {key!r}: density must be a positive number of kg/m3, got {entry['density_kg_m3']!r}", path=where)
+        raise MaterialError(
+            f"material {key!r}: density must be a positive number of kg/m3, got {entry['density_kg_m3']!r}", path=where
+        )
     if not lo <= rho <= hi:
         raise MaterialError(
             f"material {key!r}: nominal density {rho:g} kg/m3 lies outside its range [{lo:g}, {hi:g}]; fix density_range_kg_m3",
@@ -173,9 +180,11 @@ def load_materials(
     if base is not None:
         for key, mat in base.items():
             raw[key] = {
-                "name": mat.name, "density_kg_m3": mat.density_kg_m3,
+                "name": mat.name,
+                "density_kg_m3": mat.density_kg_m3,
                 "density_range_kg_m3": [mat.density_min_kg_m3, mat.density_max_kg_m3],
-                "aliases": list(mat.aliases), "source": mat.source,
+                "aliases": list(mat.aliases),
+                "source": mat.source,
             }
             origin[key] = None
     for path in extras if base is not None else [None, *extras]:
@@ -190,7 +199,9 @@ def load_materials(
             )
         for key, entry in doc.get("material", {}).items():
             if not isinstance(entry, dict):
-                raise MaterialError(f"material {key!r} is not a table; write [material.{key}] with its fields", path=where)
+                raise MaterialError(
+                    f"material {key!r} is not a table; write [material.{key}] with its fields", path=where
+                )
             raw[key] = {**raw.get(key, {}), **entry}
             origin[key] = where
     return {key: _build(key, entry, origin[key]) for key, entry in raw.items()}
@@ -229,9 +240,7 @@ def find_material(name: str, table: Mapping[str, Material] | None = None) -> Mat
     if len(hits) == 1:
         return table[next(iter(hits))]
     if len(hits) > 1:
-        raise MaterialError(
-            f"material {name!r} is ambiguous ({', '.join(sorted(hits))}); pass one of these keys"
-        )
+        raise MaterialError(f"material {name!r} is ambiguous ({', '.join(sorted(hits))}); pass one of these keys")
     close = sorted(label for label in index if want in label)
     close += [m for m in difflib.get_close_matches(want, list(index), n=6, cutoff=0.6) if m not in close]
     keys: list[str] = []

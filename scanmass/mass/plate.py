@@ -11,9 +11,10 @@ from __future__ import annotations
 
 import copy
 import math
+from collections.abc import Mapping
 from dataclasses import asdict, dataclass
 from os import PathLike
-from typing import Any, Mapping
+from typing import Any
 
 import numpy as np
 
@@ -49,7 +50,9 @@ def check_positive(name: str, value: Any, *, unit: str = "mm", hint: str = "", a
             raise TypeError
         number = float(value)
     except (TypeError, ValueError):
-        raise OptionError(f"{name} must be a number of {unit}, got {value!r}; {hint or 'pass a positive number'}") from None
+        raise OptionError(
+            f"{name} must be a number of {unit}, got {value!r}; {hint or 'pass a positive number'}"
+        ) from None
     ok = math.isfinite(number) and (number >= 0 if allow_zero else number > 0)
     if not ok:
         kind = "zero or a positive number" if allow_zero else "a positive number"
@@ -161,7 +164,9 @@ def plate_mass(
     """
     mat = resolve_material(material, materials)
     t = check_positive("thickness_mm", thickness_mm, hint="pass the sheet thickness in mm, e.g. 2.0")
-    ut = check_positive("thickness_u_mm", thickness_u_mm, allow_zero=True, hint="pass the thickness's standard uncertainty in mm, or 0")
+    ut = check_positive(
+        "thickness_u_mm", thickness_u_mm, allow_zero=True, hint="pass the thickness's standard uncertainty in mm, or 0"
+    )
     area = float(part.area_mm2)
     if not (math.isfinite(area) and area > 0):
         raise OptionError(f"part {part.label} has no positive area ({area!r} mm2); re-measure it")
@@ -272,13 +277,23 @@ def apply_mass(
         Unknown material (the message lists close names).
     """
     t = check_positive("thickness_mm", thickness_mm, hint="pass the sheet thickness in mm, e.g. 2.0")
-    ut = check_positive("thickness_u_mm", thickness_u_mm, allow_zero=True, hint="pass the thickness's standard uncertainty in mm, or 0")
+    ut = check_positive(
+        "thickness_u_mm", thickness_u_mm, allow_zero=True, hint="pass the thickness's standard uncertainty in mm, or 0"
+    )
     mat = resolve_material(material, materials)
     out = copy.deepcopy(measurement)
     for part in out.parts:
         props = plate_mass(part, mat, t, thickness_u_mm=ut)
         rest = props.to_dict()
-        for key in ("mass_g", "mass_u_g", "material", "density_kg_m3", "density_u_kg_m3", "thickness_mm", "thickness_u_mm"):
+        for key in (
+            "mass_g",
+            "mass_u_g",
+            "material",
+            "density_kg_m3",
+            "density_u_kg_m3",
+            "thickness_mm",
+            "thickness_u_mm",
+        ):
             rest.pop(key)
         part.mass_g = props.mass_g
         part.mass_u_g = props.mass_u_g

@@ -31,9 +31,7 @@ def _as_path(path: PathLike) -> Path:
     if text == "":
         raise OutputError("output path is empty; give a file name")
     if text == "-":
-        raise OutputError(
-            "'-' (standard output) cannot be written as a file; handle it before calling write_atomic"
-        )
+        raise OutputError("'-' (standard output) cannot be written as a file; handle it before calling write_atomic")
     return Path(text)
 
 
@@ -61,9 +59,7 @@ def _check_target(target: Path, inputs: Iterable[PathLike]) -> Path:
         raise OutputError(f"is a folder; give a file name inside it, e.g. {example}", path=str(target))
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.exists():
-        raise OutputError(
-            f"folder {folder} does not exist; create it first or choose another folder", path=str(target)
-        )
+        raise OutputError(f"folder {folder} does not exist; create it first or choose another folder", path=str(target))
     if not folder.is_dir():
         raise OutputError(f"{folder} is not a folder; choose another output path", path=str(target))
     if not os.access(folder, os.W_OK | os.X_OK):

@@ -41,10 +41,10 @@ from xml.sax.saxutils import escape, quoteattr
 
 import numpy as np
 
-from scanmass.outputs.resultio import PathLike, as_measurement
-from scanmass.outputs.atomic import write_atomic
 from scanmass.errors import OptionError, ResultFormatError
 from scanmass.measurement import Hole, Measurement, Part
+from scanmass.outputs.atomic import write_atomic
+from scanmass.outputs.resultio import PathLike, as_measurement
 from scanmass.section import orient_ring
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -166,14 +166,18 @@ def _open_ring(ring: object, *, what: str) -> np.ndarray:
     """(n, 2) float array of a ring without its closing vertex or repeated vertices."""
     arr = np.asarray(ring, dtype=float)
     if arr.ndim != 2 or arr.shape[1] != 2 or not np.isfinite(arr).all():
-        raise ResultFormatError(f"{what} is not a list of finite [x, y] pairs; re-create the result with 'scanmass measure'")
+        raise ResultFormatError(
+            f"{what} is not a list of finite [x, y] pairs; re-create the result with 'scanmass measure'"
+        )
     if len(arr) > 1:
         keep = np.any(np.diff(arr, axis=0) != 0.0, axis=1)
         arr = arr[np.concatenate([[True], keep])]
     if len(arr) > 1 and np.array_equal(arr[0], arr[-1]):
         arr = arr[:-1]
     if len(arr) < 3:
-        raise ResultFormatError(f"{what} has fewer than 3 distinct vertices; re-create the result with 'scanmass measure'")
+        raise ResultFormatError(
+            f"{what} has fewer than 3 distinct vertices; re-create the result with 'scanmass measure'"
+        )
     return arr
 
 
@@ -402,14 +406,20 @@ def _select_parts(measurement: Measurement, parts: Iterable[int] | None) -> list
 
 def _outer(part: Part) -> np.ndarray:
     if part.outline_mm is None:
-        raise ResultFormatError(f"part {part.label} has no outline in the result; re-run 'scanmass measure' keeping outlines")
+        raise ResultFormatError(
+            f"part {part.label} has no outline in the result; re-run 'scanmass measure' keeping outlines"
+        )
     return orient_ring(_open_ring(part.outline_mm, what=f"the outline of part {part.label}"), ccw=True)
 
 
 def _hole_ring(part: Part, hole: Hole) -> np.ndarray:
     if hole.outline_mm is None:
-        raise ResultFormatError(f"hole {hole.label} of part {part.label} has no outline in the result; re-run 'scanmass measure' keeping outlines")
-    return orient_ring(_open_ring(hole.outline_mm, what=f"the outline of hole {hole.label} of part {part.label}"), ccw=False)
+        raise ResultFormatError(
+            f"hole {hole.label} of part {part.label} has no outline in the result; re-run 'scanmass measure' keeping outlines"
+        )
+    return orient_ring(
+        _open_ring(hole.outline_mm, what=f"the outline of hole {hole.label} of part {part.label}"), ccw=False
+    )
 
 
 def _is_round(hole: Hole, tol_mm: float | None) -> bool:
@@ -451,7 +461,7 @@ def dxf_document(
     fit_tolerance_mm: FitTolerance = None,
     round_tolerance_mm: float | None = None,
     parts: Iterable[int] | None = None,
-) -> "Drawing":
+) -> Drawing:
     """Build the DXF drawing of a measurement's outlines (not written to disk).
 
     Parameters
@@ -474,7 +484,9 @@ def dxf_document(
         DXF R2010, $INSUNITS = 4 (mm), $MEASUREMENT = 1 (metric); layers as in the
         module docstring.
     """
-    doc, _ = _build_dxf(measurement, fit_tolerance_mm=fit_tolerance_mm, round_tolerance_mm=round_tolerance_mm, parts=parts)
+    doc, _ = _build_dxf(
+        measurement, fit_tolerance_mm=fit_tolerance_mm, round_tolerance_mm=round_tolerance_mm, parts=parts
+    )
     return doc
 
 
@@ -664,7 +676,9 @@ def export_dxf(
     """
     m, json_path = as_measurement(measurement)
     with _naming(json_path):
-        doc, summary = _build_dxf(m, fit_tolerance_mm=fit_tolerance_mm, round_tolerance_mm=round_tolerance_mm, parts=parts)
+        doc, summary = _build_dxf(
+            m, fit_tolerance_mm=fit_tolerance_mm, round_tolerance_mm=round_tolerance_mm, parts=parts
+        )
     import io
 
     buf = io.StringIO()

@@ -50,7 +50,9 @@ def _to_px(inv: np.ndarray, pts_mm: np.ndarray) -> np.ndarray:
     return h[:, :2] / h[:, 2:3]
 
 
-def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px: int = OVERLAY_MAX_SIDE_PX) -> np.ndarray:
+def render_overlay(
+    image: LoadedImage, measurement: Measurement, *, max_side_px: int = OVERLAY_MAX_SIDE_PX
+) -> np.ndarray:
     """Draw the measurement over the image.
 
     Parameters
@@ -73,7 +75,9 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
     if grey.dtype != np.uint8:
         grey = (grey >> 8).astype(np.uint8)
     if zoom < 1.0:
-        grey = cv2.resize(grey, (max(1, round(width * zoom)), max(1, round(height * zoom))), interpolation=cv2.INTER_AREA)
+        grey = cv2.resize(
+            grey, (max(1, round(width * zoom)), max(1, round(height * zoom))), interpolation=cv2.INTER_AREA
+        )
     # lighten the picture so that the drawing stands out
     canvas = cv2.cvtColor((grey.astype(np.float32) * 0.55 + 110).astype(np.uint8), cv2.COLOR_GRAY2BGR)
     inv = np.linalg.inv(_matrix(measurement))
@@ -95,7 +99,15 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
             cv2.polylines(canvas, [pts_int(corners)], True, colour, lw + 1, cv2.LINE_AA, shift)
     for part in measurement.parts:
         if part.outline_mm is not None:
-            cv2.polylines(canvas, [pts_int(_to_px(inv, part.outline_mm))], True, _CUT if part.cut else _OUTLINE, lw, cv2.LINE_AA, shift)
+            cv2.polylines(
+                canvas,
+                [pts_int(_to_px(inv, part.outline_mm))],
+                True,
+                _CUT if part.cut else _OUTLINE,
+                lw,
+                cv2.LINE_AA,
+                shift,
+            )
         for hole in part.holes:
             if hole.outline_mm is not None:
                 cv2.polylines(canvas, [pts_int(_to_px(inv, hole.outline_mm))], True, _HOLE, lw, cv2.LINE_AA, shift)
@@ -103,15 +115,31 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
             cxy = tuple(int(v) for v in np.round((c + 0.5) * zoom - 0.5))
             cv2.drawMarker(canvas, cxy, _HOLE, cv2.MARKER_CROSS, 6 * lw + 4, lw)
             r_px = 0.5 * hole.diameter_mm / mm_per_px * zoom
-            _text(canvas, f"D{hole.diameter_mm:.2f}", (int(cxy[0] + 0.75 * r_px + 4), int(cxy[1] - 0.75 * r_px - 4)), font, font_scale * 0.7, lw)
+            _text(
+                canvas,
+                f"D{hole.diameter_mm:.2f}",
+                (int(cxy[0] + 0.75 * r_px + 4), int(cxy[1] - 0.75 * r_px - 4)),
+                font,
+                font_scale * 0.7,
+                lw,
+            )
         centre = _to_px(inv, [part.centroid_mm])[0]
         # principal axes through the centroid: the I2 axis (long direction) is drawn
         # +-2 radii of gyration about the I1 axis long, the I1 axis +-2 of the other
-        for length_mm, ang, colour in ((2.0 * part.gyration_1_mm, part.principal_angle_deg, _AXIS_MAJOR),
-                                       (2.0 * part.gyration_2_mm, part.principal_angle_deg + 90.0, _AXIS_MINOR)):
+        for length_mm, ang, colour in (
+            (2.0 * part.gyration_1_mm, part.principal_angle_deg, _AXIS_MAJOR),
+            (2.0 * part.gyration_2_mm, part.principal_angle_deg + 90.0, _AXIS_MINOR),
+        ):
             d = np.array([math.cos(math.radians(ang)), math.sin(math.radians(ang))]) * length_mm
             ends = _to_px(inv, [np.array(part.centroid_mm) - d, np.array(part.centroid_mm) + d])
-            cv2.line(canvas, *[tuple(int(v) for v in p) for p in pts_int(ends).reshape(-1, 2)], colour, lw, cv2.LINE_AA, shift)
+            cv2.line(
+                canvas,
+                *[tuple(int(v) for v in p) for p in pts_int(ends).reshape(-1, 2)],
+                colour,
+                lw,
+                cv2.LINE_AA,
+                shift,
+            )
         cpx = tuple(int(v) for v in np.round((centre + 0.5) * zoom - 0.5))
         cv2.drawMarker(canvas, cpx, (0, 0, 0), cv2.MARKER_TILTED_CROSS, 10 * lw + 8, lw + 2)
         cv2.drawMarker(canvas, cpx, _CENTROID, cv2.MARKER_TILTED_CROSS, 10 * lw + 8, lw)
@@ -122,7 +150,14 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
             axes = (max(1, int(round(ux * enlarge))), max(1, int(round(uy * enlarge))))
             cv2.ellipse(canvas, cpx, axes, 0, 0, 360, (0, 0, 0), lw, cv2.LINE_AA)
             tag = "1σ" if enlarge == 1 else f"1σ x{enlarge:g}"
-            _text(canvas, tag.replace("σ", "s"), (cpx[0] + axes[0] + 4, cpx[1] + axes[1] + int(12 * font_scale)), font, font_scale * 0.6, lw)
+            _text(
+                canvas,
+                tag.replace("σ", "s"),
+                (cpx[0] + axes[0] + 4, cpx[1] + axes[1] + int(12 * font_scale)),
+                font,
+                font_scale * 0.6,
+                lw,
+            )
         bbox = part.bbox_mm
         label_px = _to_px(inv, [[bbox[0], bbox[3]]])[0] * zoom
         text = f"{part.label}"
@@ -135,7 +170,13 @@ def render_overlay(image: LoadedImage, measurement: Measurement, *, max_side_px:
     bar_mm = _round_length(width_mm / 5)
     bar_px = bar_mm / mm_per_px * zoom
     x0, y0 = int(0.03 * canvas.shape[1]), int(canvas.shape[0] - 0.04 * canvas.shape[0])
-    cv2.rectangle(canvas, (x0 - 4 * lw, y0 - int(30 * font_scale) - 6 * lw), (x0 + int(bar_px) + 4 * lw, y0 + 6 * lw), (255, 255, 255), -1)
+    cv2.rectangle(
+        canvas,
+        (x0 - 4 * lw, y0 - int(30 * font_scale) - 6 * lw),
+        (x0 + int(bar_px) + 4 * lw, y0 + 6 * lw),
+        (255, 255, 255),
+        -1,
+    )
     cv2.line(canvas, (x0, y0), (x0 + int(round(bar_px)), y0), (0, 0, 0), 3 * lw)
     cv2.putText(canvas, f"{bar_mm:g} mm", (x0, y0 - 8 * lw), font, font_scale, _TEXT, lw + 1, cv2.LINE_AA)
     markers = bool((measurement.scale.extra or {}).get("markers_px"))
@@ -171,8 +212,14 @@ def _top_view(image: LoadedImage, measurement: Measurement, height_px: int, lw: 
         c = pts(np.array([part.centroid_mm]))[0, 0] // k
         cv2.drawMarker(view, (int(c[0]), int(c[1])), _CENTROID, cv2.MARKER_TILTED_CROSS, 10 * lw + 8, lw)
     cv2.line(view, (0, 0), (0, height_px - 1), (255, 255, 255), 3 * lw)
-    _text(view, "top view of the clear area", (10 + 3 * lw, int(30 * max(0.5, height_px / 1800))), cv2.FONT_HERSHEY_SIMPLEX,
-          max(0.5, height_px / 1800), lw)
+    _text(
+        view,
+        "top view of the clear area",
+        (10 + 3 * lw, int(30 * max(0.5, height_px / 1800))),
+        cv2.FONT_HERSHEY_SIMPLEX,
+        max(0.5, height_px / 1800),
+        lw,
+    )
     return view
 
 
@@ -183,8 +230,13 @@ def _text(canvas: np.ndarray, text: str, org: tuple[int, int], font: int, scale:
 
 
 def _legend(canvas: np.ndarray, font: int, font_scale: float, lw: int, markers: bool = False) -> None:
-    items = [("outline", _OUTLINE), ("hole (D = diameter)", _HOLE), ("centroid, 1s ellipse", _CENTROID),
-             ("I2 axis (long)", _AXIS_MAJOR), ("I1 axis", _AXIS_MINOR)]
+    items = [
+        ("outline", _OUTLINE),
+        ("hole (D = diameter)", _HOLE),
+        ("centroid, 1s ellipse", _CENTROID),
+        ("I2 axis (long)", _AXIS_MAJOR),
+        ("I1 axis", _AXIS_MINOR),
+    ]
     if markers:
         items.append(("mat marker used", _MARKER_USED))
     line_h = int(28 * font_scale) + 4
@@ -195,7 +247,9 @@ def _legend(canvas: np.ndarray, font: int, font_scale: float, lw: int, markers: 
     for i, (name, colour) in enumerate(items):
         y = y0 + 10 + line_h * i + line_h // 2
         cv2.line(canvas, (x0 + 8, y), (x0 + 34, y), colour, 3 * lw)
-        cv2.putText(canvas, name, (x0 + 42, y + int(8 * font_scale)), font, font_scale * 0.8, _TEXT, max(1, lw), cv2.LINE_AA)
+        cv2.putText(
+            canvas, name, (x0 + 42, y + int(8 * font_scale)), font, font_scale * 0.8, _TEXT, max(1, lw), cv2.LINE_AA
+        )
 
 
 def _round_length(value: float) -> float:

@@ -19,7 +19,7 @@ import io
 import math
 import os
 from collections.abc import Mapping, Sequence
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 from xml.sax.saxutils import escape
@@ -27,11 +27,11 @@ from xml.sax.saxutils import escape
 import numpy as np
 
 from scanmass import __version__
-from scanmass.outputs.resultio import PathLike, as_measurement
-from scanmass.outputs.atomic import write_atomic
-from scanmass.errors import ImageError, OptionError, ResultFormatError
-from scanmass.outputs.formatting import _finite, _fixed, format_value
+from scanmass.errors import ImageError, OptionError
 from scanmass.measurement import CSV_COLUMNS, Measurement, Part
+from scanmass.outputs.atomic import write_atomic
+from scanmass.outputs.formatting import _finite, format_value
+from scanmass.outputs.resultio import PathLike, as_measurement
 
 __all__ = [
     "CAUTIONS",
@@ -62,8 +62,7 @@ CAUTIONS = (
 
 #: Frames and sign conventions of every figure (DESIGN.md), printed in every report.
 CONVENTIONS = (
-    "Lengths in mm, areas mm², section moduli mm³, second moments mm⁴, mass g, angles in degrees "
-    "counter-clockwise.",
+    "Lengths in mm, areas mm², section moduli mm³, second moments mm⁴, mass g, angles in degrees counter-clockwise.",
     "Frames are right-handed with x to the right and y up. Scan frame: origin at the lower-left corner "
     "of the image; the pixel in column i and row j (rows counted from the top) has its centre at "
     "x = (i + 0.5) s, y = (H − j − 0.5) s, with s = 25.4 / dpi mm and H the image height in pixels. "
@@ -80,8 +79,14 @@ CONVENTIONS = (
 )
 
 _OKABE_ITO = {  # Okabe & Ito (2008) colour-blind-safe palette
-    "blue": "#0072B2", "vermillion": "#D55E00", "green": "#009E73", "purple": "#CC79A7",
-    "orange": "#E69F00", "sky": "#56B4E9", "yellow": "#F0E442", "black": "#000000",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "green": "#009E73",
+    "purple": "#CC79A7",
+    "orange": "#E69F00",
+    "sky": "#56B4E9",
+    "yellow": "#F0E442",
+    "black": "#000000",
 }
 
 
@@ -177,19 +182,25 @@ def _term_rows(p: Part) -> tuple[list[str], list[dict[str, Any]]]:
     if not names:
         return [], []
     totals = {
-        "area_mm2": p.area_u_mm2, "centroid_x_mm": p.centroid_u_mm[0], "centroid_y_mm": p.centroid_u_mm[1],
-        "ixx_mm4": p.ixx_u_mm4, "iyy_mm4": p.iyy_u_mm4, "ixy_mm4": p.ixy_u_mm4,
+        "area_mm2": p.area_u_mm2,
+        "centroid_x_mm": p.centroid_u_mm[0],
+        "centroid_y_mm": p.centroid_u_mm[1],
+        "ixx_mm4": p.ixx_u_mm4,
+        "iyy_mm4": p.iyy_u_mm4,
+        "ixy_mm4": p.ixy_u_mm4,
         "principal_angle_deg": p.principal_angle_u_deg,
     }
     rows = []
     for key, title in _TERM_FIGURES:
         if not any(key in terms[n] for n in names):
             continue
-        rows.append({
-            "name": title,
-            "terms": [format_value(terms[n].get(key), None, digits=2)[0] for n in names],
-            "total": format_value(totals.get(key), None, digits=2)[0],
-        })
+        rows.append(
+            {
+                "name": title,
+                "terms": [format_value(terms[n].get(key), None, digits=2)[0] for n in names],
+                "total": format_value(totals.get(key), None, digits=2)[0],
+            }
+        )
     return names, rows
 
 
@@ -203,15 +214,17 @@ def _hole_rows(p: Part) -> list[dict[str, str]]:
             text, u_text = format_value(v, u)
             return f"{text} ± {u_text}" if u_text else text
 
-        rows.append({
-            "label": str(h.label),
-            "d": pm(h.diameter_mm, h.diameter_u_mm),
-            "cx": pm(h.circle_centre_mm[0], cu[0]),
-            "cy": pm(h.circle_centre_mm[1], cu[1]),
-            "roundness": "–" if _finite(h.roundness_mm) is None else f"{h.roundness_mm:.4f}",
-            "area": pm(h.area_mm2, h.area_u_mm2),
-            "centroid": ", ".join(format_value(v, u)[0] for v, u in zip(h.centroid_mm, gu)),
-        })
+        rows.append(
+            {
+                "label": str(h.label),
+                "d": pm(h.diameter_mm, h.diameter_u_mm),
+                "cx": pm(h.circle_centre_mm[0], cu[0]),
+                "cy": pm(h.circle_centre_mm[1], cu[1]),
+                "roundness": "–" if _finite(h.roundness_mm) is None else f"{h.roundness_mm:.4f}",
+                "area": pm(h.area_mm2, h.area_u_mm2),
+                "centroid": ", ".join(format_value(v, u)[0] for v, u in zip(h.centroid_mm, gu)),
+            }
+        )
     return rows
 
 
@@ -241,7 +254,12 @@ def _scale_rows(m: Measurement) -> tuple[list[tuple[str, str]], list[tuple[str, 
     rel = _finite(s.mm_per_px_rel_u)
     scale_text, u_text = format_value(s.mm_per_px, None if rel is None else rel * s.mm_per_px)
     rows = [
-        ("Method", {"dpi": "scanner resolution (dpi)", "mat": "printed marker mat", "sheet": "paper sheet of known size"}.get(s.method, s.method)),
+        (
+            "Method",
+            {"dpi": "scanner resolution (dpi)", "mat": "printed marker mat", "sheet": "paper sheet of known size"}.get(
+                s.method, s.method
+            ),
+        ),
         ("Scale", f"{scale_text} ± {u_text} mm/px" if u_text else f"{scale_text} mm/px"),
         ("Relative uncertainty of the scale", "–" if rel is None else f"{rel * 100:.3g} %"),
     ]
@@ -259,7 +277,12 @@ def _scale_rows(m: Measurement) -> tuple[list[tuple[str, str]], list[tuple[str, 
             parts.append(f"{_plain(s.reprojection_rms_mm, 3)} mm")
         rows.append(("Reprojection RMS of the fitted map", " = ".join(parts)))
     else:
-        rows.append(("Reprojection RMS of the fitted map", "not applicable (no fitted map)" if s.method == "dpi" else "not recorded"))
+        rows.append(
+            (
+                "Reprojection RMS of the fitted map",
+                "not applicable (no fitted map)" if s.method == "dpi" else "not recorded",
+            )
+        )
     shown: set[str] = set()
     for title, words, absent in (
         ("Printer scale check", ("printer",), "not done" if s.method != "dpi" else "not applicable (scan)"),
@@ -331,11 +354,15 @@ def _png_data_uri(data: bytes | PathLike, *, what: str) -> tuple[str, tuple[int,
         try:
             raw = Path(path).read_bytes()
         except FileNotFoundError:
-            raise ImageError(f"{what} not found; pass the overlay PNG written by 'scanmass measure --overlay'", path=path) from None
+            raise ImageError(
+                f"{what} not found; pass the overlay PNG written by 'scanmass measure --overlay'", path=path
+            ) from None
         except OSError as exc:
             raise ImageError(f"{what} cannot be read ({exc.strerror}); check its permissions", path=path) from None
     if not raw.startswith(b"\x89PNG\r\n\x1a\n"):
-        raise ImageError(f"{what} is not a PNG image; pass the overlay PNG written by 'scanmass measure --overlay'", path=path)
+        raise ImageError(
+            f"{what} is not a PNG image; pass the overlay PNG written by 'scanmass measure --overlay'", path=path
+        )
     try:
         with Image.open(io.BytesIO(raw)) as im:
             im.load()
@@ -386,14 +413,20 @@ def outline_svg(measurement: Measurement, *, max_width_px: int = 900) -> str:
         f'<rect x="{_num(x0)}" y="{_num(y0)}" width="{_num(w)}" height="{_num(h)}" fill="#ffffff"/>',
     ]
     for p in drawn:
-        d = " ".join(filter(None, [_ring_d(p.outline_mm)] + [_ring_d(hl.outline_mm) for hl in p.holes if hl.outline_mm is not None]))
+        d = " ".join(
+            filter(
+                None, [_ring_d(p.outline_mm)] + [_ring_d(hl.outline_mm) for hl in p.holes if hl.outline_mm is not None]
+            )
+        )
         out.append(
             f'<path d="{d}" fill="{_OKABE_ITO["sky"]}" fill-opacity="0.35" fill-rule="evenodd" '
             f'stroke="{_OKABE_ITO["blue"]}" stroke-width="{_num(stroke)}"><title>Part {int(p.label)}</title></path>'
         )
         for hl in p.holes:
             if hl.outline_mm is not None and _ring_d(hl.outline_mm):
-                out.append(f'<path d="{_ring_d(hl.outline_mm)}" fill="none" stroke="{_OKABE_ITO["vermillion"]}" stroke-width="{_num(stroke)}"/>')
+                out.append(
+                    f'<path d="{_ring_d(hl.outline_mm)}" fill="none" stroke="{_OKABE_ITO["vermillion"]}" stroke-width="{_num(stroke)}"/>'
+                )
         cx, cy = (_finite(v) for v in p.centroid_mm)
         if cx is None or cy is None:
             continue
@@ -405,7 +438,14 @@ def outline_svg(measurement: Measurement, *, max_width_px: int = 900) -> str:
         )
         angle = _finite(p.principal_angle_deg)
         if angle is not None:
-            for deg, half, dash in ((angle, 0.5 * size, ""), (angle + 90.0, 0.5 * (_finite(p.caliper_min_mm) or size), f' stroke-dasharray="{_num(4 * stroke)} {_num(3 * stroke)}"')):
+            for deg, half, dash in (
+                (angle, 0.5 * size, ""),
+                (
+                    angle + 90.0,
+                    0.5 * (_finite(p.caliper_min_mm) or size),
+                    f' stroke-dasharray="{_num(4 * stroke)} {_num(3 * stroke)}"',
+                ),
+            ):
                 ux, uy = math.cos(math.radians(deg)), math.sin(math.radians(deg))
                 out.append(
                     f'<line x1="{_num(cx - half * ux)}" y1="{_num(-(cy - half * uy))}" x2="{_num(cx + half * ux)}" '
@@ -433,7 +473,11 @@ def _overlay_for(overlays: Mapping[Any, Any] | None, index: int, result_path: st
 
 
 def _image_view(index: int, m: Measurement, result_path: str | None, overlay: Any) -> dict[str, Any]:
-    name = os.path.basename(m.source.path) if m.source.path else (os.path.basename(result_path) if result_path else f"image {index + 1}")
+    name = (
+        os.path.basename(m.source.path)
+        if m.source.path
+        else (os.path.basename(result_path) if result_path else f"image {index + 1}")
+    )
     anchor = f"image-{index + 1}"
     view: dict[str, Any] = {"name": name, "anchor": anchor, "result_path": result_path, "outline_svg": ""}
     if overlay is not None:
@@ -452,22 +496,27 @@ def _image_view(index: int, m: Measurement, result_path: str | None, overlay: An
         cx, _ = format_value(p.centroid_mm[0], p.centroid_u_mm[0])
         cy, _ = format_value(p.centroid_mm[1], p.centroid_u_mm[1])
         names, term_rows = _term_rows(p)
-        parts.append({
-            "label": int(p.label),
-            "anchor": f"{anchor}-part-{int(p.label)}",
-            "cut": bool(p.cut),
-            "summary": {
-                "area": area, "cx": cx, "cy": cy,
-                "i1": format_value(p.i1_mm4, p.i1_u_mm4)[0], "i2": format_value(p.i2_mm4, p.i2_u_mm4)[0],
-                "angle": format_value(p.principal_angle_deg, p.principal_angle_u_deg)[0],
-                "mass": format_value(p.mass_g, p.mass_u_g)[0] if _finite(p.mass_g) is not None else "–",
-            },
-            "rows": _part_rows(p),
-            "mass_rows": _mass_rows(p),
-            "term_names": names,
-            "term_rows": term_rows,
-            "hole_rows": _hole_rows(p),
-        })
+        parts.append(
+            {
+                "label": int(p.label),
+                "anchor": f"{anchor}-part-{int(p.label)}",
+                "cut": bool(p.cut),
+                "summary": {
+                    "area": area,
+                    "cx": cx,
+                    "cy": cy,
+                    "i1": format_value(p.i1_mm4, p.i1_u_mm4)[0],
+                    "i2": format_value(p.i2_mm4, p.i2_u_mm4)[0],
+                    "angle": format_value(p.principal_angle_deg, p.principal_angle_u_deg)[0],
+                    "mass": format_value(p.mass_g, p.mass_u_g)[0] if _finite(p.mass_g) is not None else "–",
+                },
+                "rows": _part_rows(p),
+                "mass_rows": _mass_rows(p),
+                "term_names": names,
+                "term_rows": term_rows,
+                "hole_rows": _hole_rows(p),
+            }
+        )
     view["parts"] = parts
     return view
 
@@ -494,9 +543,9 @@ def _markup(text: str):
 
 
 def _generated(generated_at: datetime | None) -> str:
-    when = generated_at or datetime.now(timezone.utc)
+    when = generated_at or datetime.now(UTC)
     if when.tzinfo is not None:
-        when = when.astimezone(timezone.utc)
+        when = when.astimezone(UTC)
     return when.strftime("%Y-%m-%d %H:%M UTC")
 
 
@@ -584,17 +633,40 @@ def write_report(
 # Batch summary
 # ---------------------------------------------------------------------------
 _COLUMN_TITLES = {
-    "file": "File", "part": "Part", "area_mm2": "Area / mm²", "area_u_mm2": "u(Area) / mm²",
-    "centroid_x_mm": "xc / mm", "centroid_y_mm": "yc / mm", "centroid_x_u_mm": "u(xc) / mm",
-    "centroid_y_u_mm": "u(yc) / mm", "perimeter_mm": "Perimeter / mm", "ixx_mm4": "Ixx / mm⁴",
-    "iyy_mm4": "Iyy / mm⁴", "ixy_mm4": "Ixy / mm⁴", "ixx_u_mm4": "u(Ixx) / mm⁴", "iyy_u_mm4": "u(Iyy) / mm⁴",
-    "ixy_u_mm4": "u(Ixy) / mm⁴", "i1_mm4": "I1 / mm⁴", "i2_mm4": "I2 / mm⁴",
-    "principal_angle_deg": "Angle / °", "polar_mm4": "J / mm⁴", "modulus_top_mm3": "W top / mm³",
-    "modulus_bottom_mm3": "W bottom / mm³", "modulus_right_mm3": "W right / mm³",
-    "modulus_left_mm3": "W left / mm³", "bbox_xmin_mm": "x min / mm", "bbox_ymin_mm": "y min / mm",
-    "bbox_xmax_mm": "x max / mm", "bbox_ymax_mm": "y max / mm", "caliper_max_mm": "Caliper max / mm",
-    "caliper_min_mm": "Caliper min / mm", "convex_area_mm2": "Convex area / mm²", "holes": "Holes",
-    "hole_diameters_mm": "Hole diameters / mm", "mass_g": "Mass / g", "mass_u_g": "u(Mass) / g",
+    "file": "File",
+    "part": "Part",
+    "area_mm2": "Area / mm²",
+    "area_u_mm2": "u(Area) / mm²",
+    "centroid_x_mm": "xc / mm",
+    "centroid_y_mm": "yc / mm",
+    "centroid_x_u_mm": "u(xc) / mm",
+    "centroid_y_u_mm": "u(yc) / mm",
+    "perimeter_mm": "Perimeter / mm",
+    "ixx_mm4": "Ixx / mm⁴",
+    "iyy_mm4": "Iyy / mm⁴",
+    "ixy_mm4": "Ixy / mm⁴",
+    "ixx_u_mm4": "u(Ixx) / mm⁴",
+    "iyy_u_mm4": "u(Iyy) / mm⁴",
+    "ixy_u_mm4": "u(Ixy) / mm⁴",
+    "i1_mm4": "I1 / mm⁴",
+    "i2_mm4": "I2 / mm⁴",
+    "principal_angle_deg": "Angle / °",
+    "polar_mm4": "J / mm⁴",
+    "modulus_top_mm3": "W top / mm³",
+    "modulus_bottom_mm3": "W bottom / mm³",
+    "modulus_right_mm3": "W right / mm³",
+    "modulus_left_mm3": "W left / mm³",
+    "bbox_xmin_mm": "x min / mm",
+    "bbox_ymin_mm": "y min / mm",
+    "bbox_xmax_mm": "x max / mm",
+    "bbox_ymax_mm": "y max / mm",
+    "caliper_max_mm": "Caliper max / mm",
+    "caliper_min_mm": "Caliper min / mm",
+    "convex_area_mm2": "Convex area / mm²",
+    "holes": "Holes",
+    "hole_diameters_mm": "Hole diameters / mm",
+    "mass_g": "Mass / g",
+    "mass_u_g": "u(Mass) / g",
 }
 
 
@@ -649,7 +721,9 @@ def area_histogram_svg(areas_mm2: Sequence[float], *, width: int = 640, height: 
     cmax = max(int(counts.max()), 1)
     x = lambda v: ml + (v - edges[0]) / (edges[-1] - edges[0]) * pw  # noqa: E731
     y = lambda c: mt + ph - c / cmax * ph  # noqa: E731
-    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="plot area-histogram" viewBox="0 0 {width} {height}" width="{width}" height="{height}" role="img" aria-label="Histogram of part areas">']
+    out = [
+        f'<svg xmlns="http://www.w3.org/2000/svg" class="plot area-histogram" viewBox="0 0 {width} {height}" width="{width}" height="{height}" role="img" aria-label="Histogram of part areas">'
+    ]
     out.append(f'<rect x="0" y="0" width="{width}" height="{height}" fill="#fff"/>')
     for c, e0, e1 in zip(counts, edges[:-1], edges[1:]):
         if c == 0:
@@ -663,14 +737,22 @@ def area_histogram_svg(areas_mm2: Sequence[float], *, width: int = 640, height: 
     out.append(f'<line x1="{ml}" y1="{mt}" x2="{ml}" y2="{mt + ph}" stroke="#000"/>')
     for t in _axis_ticks(float(edges[0]), float(edges[-1])):
         out.append(f'<line x1="{x(t):.2f}" y1="{mt + ph}" x2="{x(t):.2f}" y2="{mt + ph + 4}" stroke="#000"/>')
-        out.append(f'<text x="{x(t):.2f}" y="{mt + ph + 17}" font-size="11" text-anchor="middle" font-family="sans-serif">{_tick(t)}</text>')
+        out.append(
+            f'<text x="{x(t):.2f}" y="{mt + ph + 17}" font-size="11" text-anchor="middle" font-family="sans-serif">{_tick(t)}</text>'
+        )
     for t in _axis_ticks(0.0, float(cmax), min(cmax, 5)):
         if abs(t - round(t)) > 1e-9:
             continue
         out.append(f'<line x1="{ml - 4}" y1="{y(t):.2f}" x2="{ml}" y2="{y(t):.2f}" stroke="#000"/>')
-        out.append(f'<text x="{ml - 7}" y="{y(t) + 4:.2f}" font-size="11" text-anchor="end" font-family="sans-serif">{int(round(t))}</text>')
-    out.append(f'<text x="{ml + pw / 2:.1f}" y="{height - 6}" font-size="12" text-anchor="middle" font-family="sans-serif">Area / mm²</text>')
-    out.append(f'<text x="14" y="{mt + ph / 2:.1f}" font-size="12" text-anchor="middle" font-family="sans-serif" transform="rotate(-90 14 {mt + ph / 2:.1f})">Parts</text>')
+        out.append(
+            f'<text x="{ml - 7}" y="{y(t) + 4:.2f}" font-size="11" text-anchor="end" font-family="sans-serif">{int(round(t))}</text>'
+        )
+    out.append(
+        f'<text x="{ml + pw / 2:.1f}" y="{height - 6}" font-size="12" text-anchor="middle" font-family="sans-serif">Area / mm²</text>'
+    )
+    out.append(
+        f'<text x="14" y="{mt + ph / 2:.1f}" font-size="12" text-anchor="middle" font-family="sans-serif" transform="rotate(-90 14 {mt + ph / 2:.1f})">Parts</text>'
+    )
     out.append("</svg>")
     return "\n".join(out), int(len(counts))
 
@@ -679,7 +761,10 @@ def centroid_offset_svg(rows: Sequence[Mapping[str, Any]], *, size: int = 360) -
     """Inline SVG scatter of centroid offsets from each part's bounding-box centre, mm."""
     pts = []
     for r in rows:
-        vals = [_finite(r.get(k)) for k in ("centroid_x_mm", "centroid_y_mm", "bbox_xmin_mm", "bbox_ymin_mm", "bbox_xmax_mm", "bbox_ymax_mm")]
+        vals = [
+            _finite(r.get(k))
+            for k in ("centroid_x_mm", "centroid_y_mm", "bbox_xmin_mm", "bbox_ymin_mm", "bbox_xmax_mm", "bbox_ymax_mm")
+        ]
         if None in vals:
             continue
         cx, cy, x0, y0, x1, y1 = vals  # type: ignore[misc]
@@ -692,21 +777,31 @@ def centroid_offset_svg(rows: Sequence[Mapping[str, Any]], *, size: int = 360) -
     pw = size - 2 * m
     sx = lambda v: m + (v + lim) / (2 * lim) * pw  # noqa: E731
     sy = lambda v: m + (lim - v) / (2 * lim) * pw  # noqa: E731
-    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="plot centroid-offsets" viewBox="0 0 {size} {size}" width="{size}" height="{size}" role="img" aria-label="Centroid offsets from bounding-box centres">']
+    out = [
+        f'<svg xmlns="http://www.w3.org/2000/svg" class="plot centroid-offsets" viewBox="0 0 {size} {size}" width="{size}" height="{size}" role="img" aria-label="Centroid offsets from bounding-box centres">'
+    ]
     out.append(f'<rect x="0" y="0" width="{size}" height="{size}" fill="#fff"/>')
     out.append(f'<rect x="{m}" y="{m}" width="{pw}" height="{pw}" fill="none" stroke="#000"/>')
     out.append(f'<line x1="{sx(0):.2f}" y1="{m}" x2="{sx(0):.2f}" y2="{m + pw}" stroke="#999" stroke-dasharray="3 3"/>')
     out.append(f'<line x1="{m}" y1="{sy(0):.2f}" x2="{m + pw}" y2="{sy(0):.2f}" stroke="#999" stroke-dasharray="3 3"/>')
     for t in _axis_ticks(-lim, lim, 4):
-        out.append(f'<text x="{sx(t):.2f}" y="{m + pw + 16}" font-size="11" text-anchor="middle" font-family="sans-serif">{_tick(t)}</text>')
-        out.append(f'<text x="{m - 6}" y="{sy(t) + 4:.2f}" font-size="11" text-anchor="end" font-family="sans-serif">{_tick(t)}</text>')
+        out.append(
+            f'<text x="{sx(t):.2f}" y="{m + pw + 16}" font-size="11" text-anchor="middle" font-family="sans-serif">{_tick(t)}</text>'
+        )
+        out.append(
+            f'<text x="{m - 6}" y="{sy(t) + 4:.2f}" font-size="11" text-anchor="end" font-family="sans-serif">{_tick(t)}</text>'
+        )
     for dx, dy, label in pts:
         out.append(
             f'<circle class="point" cx="{sx(dx):.2f}" cy="{sy(dy):.2f}" r="3.5" fill="{_OKABE_ITO["vermillion"]}" fill-opacity="0.8">'
-            f'<title>{escape(f"{label}: dx {dx:.4g} mm, dy {dy:.4g} mm")}</title></circle>'
+            f"<title>{escape(f'{label}: dx {dx:.4g} mm, dy {dy:.4g} mm')}</title></circle>"
         )
-    out.append(f'<text x="{size / 2:.1f}" y="{size - 8}" font-size="12" text-anchor="middle" font-family="sans-serif">x offset / mm</text>')
-    out.append(f'<text x="14" y="{size / 2:.1f}" font-size="12" text-anchor="middle" font-family="sans-serif" transform="rotate(-90 14 {size / 2:.1f})">y offset / mm</text>')
+    out.append(
+        f'<text x="{size / 2:.1f}" y="{size - 8}" font-size="12" text-anchor="middle" font-family="sans-serif">x offset / mm</text>'
+    )
+    out.append(
+        f'<text x="14" y="{size / 2:.1f}" font-size="12" text-anchor="middle" font-family="sans-serif" transform="rotate(-90 14 {size / 2:.1f})">y offset / mm</text>'
+    )
     out.append("</svg>")
     return "\n".join(out)
 
@@ -746,6 +841,7 @@ def render_summary(
     keys: list[str] = [k for k in CSV_COLUMNS if any(k in r for r in rows)]
     for r in rows:
         keys += [k for k in r if k not in keys]
+
     def is_number(v: Any) -> bool:
         return isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool)
 

@@ -35,7 +35,9 @@ def read_result(path: PathLike) -> Measurement:
     try:
         text = p.read_text(encoding="utf-8")
     except UnicodeDecodeError:
-        raise ResultFormatError("is not UTF-8 text; pass a result JSON written by 'scanmass measure --json'", path=name) from None
+        raise ResultFormatError(
+            "is not UTF-8 text; pass a result JSON written by 'scanmass measure --json'", path=name
+        ) from None
     except OSError as exc:
         raise ResultFormatError(f"cannot be read ({exc.strerror}); check its permissions", path=name) from None
     return Measurement.from_json(text, path=name)
@@ -47,4 +49,6 @@ def as_measurement(obj: Measurement | PathLike) -> tuple[Measurement, str | None
         return obj, None
     if isinstance(obj, (str, os.PathLike)):
         return read_result(obj), os.fspath(obj)
-    raise ResultFormatError(f"expected a Measurement or the path of a result JSON, got {type(obj).__name__}; pass a file written by 'scanmass measure --json'")
+    raise ResultFormatError(
+        f"expected a Measurement or the path of a result JSON, got {type(obj).__name__}; pass a file written by 'scanmass measure --json'"
+    )

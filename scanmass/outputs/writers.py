@@ -65,5 +65,6 @@ def measure_to_outputs(
     from scanmass.pipeline import measure_loaded
 
     measurement, image = measure_loaded(source, **options)
-    return write_outputs(measurement, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out,
-                         image=image, inputs=(Path(source),))
+    return write_outputs(
+        measurement, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out, image=image, inputs=(Path(source),)
+    )

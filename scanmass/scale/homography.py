@@ -92,7 +92,9 @@ def fit_homography(points_px: np.ndarray, points_mm: np.ndarray, *, ransac_px: f
     mm = np.asarray(points_mm, dtype=np.float64).reshape(-1, 2)
     if len(px) < 4:
         return None
-    g0, mask = cv2.findHomography(mm, px, cv2.RANSAC, ransacReprojThreshold=float(ransac_px), maxIters=4000, confidence=0.999)
+    g0, mask = cv2.findHomography(
+        mm, px, cv2.RANSAC, ransacReprojThreshold=float(ransac_px), maxIters=4000, confidence=0.999
+    )
     if g0 is None:
         return None
     inl = mask.ravel().astype(bool)
@@ -115,11 +117,14 @@ def fit_homography(points_px: np.ndarray, points_mm: np.ndarray, *, ransac_px: f
     res_mm = apply_h(h, px[inl]) - mm[inl]
     rms_mm = math.sqrt(float(np.mean(np.sum(res_mm**2, axis=1))))
     sigma = math.sqrt(ssr / max(2 * n - 8, 1))
-    return HomographyFit(plane_to_px=g, px_to_plane=h, inliers=inl, residuals_px=res, rms_px=rms_px, rms_mm=rms_mm, sigma_px=sigma)
+    return HomographyFit(
+        plane_to_px=g, px_to_plane=h, inliers=inl, residuals_px=res, rms_px=rms_px, rms_mm=rms_mm, sigma_px=sigma
+    )
 
 
-def sample_homographies(fit: HomographyFit, points_mm: np.ndarray, *, sigma_px: float, count: int = 64,
-                        seed: int = 0) -> list[np.ndarray]:
+def sample_homographies(
+    fit: HomographyFit, points_mm: np.ndarray, *, sigma_px: float, count: int = 64, seed: int = 0
+) -> list[np.ndarray]:
     """Pixel -> plane homographies refitted to image points perturbed by N(0, sigma_px^2).
 
     A parametric bootstrap: the inlier points are placed where the fitted model puts

@@ -11,16 +11,24 @@ from __future__ import annotations
 import json
 import math
 import os
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Sequence
 
 import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
 
-__all__ = ["LensProfile", "LENS_SCHEMA", "calibrate_lens", "default_profile_path", "load_lens_profile", "save_lens_profile", "MIN_LENS_PHOTOS"]
+__all__ = [
+    "LensProfile",
+    "LENS_SCHEMA",
+    "calibrate_lens",
+    "default_profile_path",
+    "load_lens_profile",
+    "save_lens_profile",
+    "MIN_LENS_PHOTOS",
+]
 
 #: Identifier of the lens profile JSON document.
 LENS_SCHEMA = "scanmass.lens/1"
@@ -61,8 +69,15 @@ class LensProfile:
         pts = np.asarray(points_px, dtype=np.float64).reshape(-1, 1, 2)
         if len(pts) == 0:
             return pts.reshape(0, 2)
-        out = cv2.undistortPoints(pts, self.camera_matrix, self.dist_coeffs, None, None, self.camera_matrix,
-                                      (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 40, 1e-10))
+        out = cv2.undistortPoints(
+            pts,
+            self.camera_matrix,
+            self.dist_coeffs,
+            None,
+            None,
+            self.camera_matrix,
+            (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 40, 1e-10),
+        )
         return out.reshape(-1, 2)
 
     def distort_points(self, points_px: np.ndarray) -> np.ndarray:
@@ -79,7 +94,9 @@ class LensProfile:
             raise OptionError(
                 f"the lens profile was made for {self.image_size[0]} x {self.image_size[1]} px photos, this one is "
                 f"{width_px} x {height_px} px; use the camera's full-size photos in the same orientation, or "
-                "calibrate for this size with 'scanmass lens'", path=path)
+                "calibrate for this size with 'scanmass lens'",
+                path=path,
+            )
 
     def to_dict(self) -> dict:
         """The profile as a JSON-ready dictionary."""
@@ -87,9 +104,13 @@ class LensProfile:
             "schema": LENS_SCHEMA,
             "image_size_px": list(self.image_size),
             "camera_matrix_px": self.camera_matrix.tolist(),
-            "dist_coeffs": {"k1": float(self.dist_coeffs[0]), "k2": float(self.dist_coeffs[1]),
-                            "p1": float(self.dist_coeffs[2]), "p2": float(self.dist_coeffs[3]),
-                            "k3": float(self.dist_coeffs[4])},
+            "dist_coeffs": {
+                "k1": float(self.dist_coeffs[0]),
+                "k2": float(self.dist_coeffs[1]),
+                "p1": float(self.dist_coeffs[2]),
+                "p2": float(self.dist_coeffs[3]),
+                "k3": float(self.dist_coeffs[4]),
+            },
             "rms_px": self.rms_px,
             "photos": self.photos,
             "points": self.points,
@@ -112,24 +133,34 @@ def load_lens_profile(path: str | os.PathLike) -> LensProfile:
     except FileNotFoundError:
         raise OptionError("lens profile not found; make one with 'scanmass lens PHOTOS...'", path=str(p)) from None
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise OptionError(f"cannot read the lens profile ({exc}); make it again with 'scanmass lens'", path=str(p)) from None
+        raise OptionError(
+            f"cannot read the lens profile ({exc}); make it again with 'scanmass lens'", path=str(p)
+        ) from None
     if not isinstance(data, dict) or data.get("schema") != LENS_SCHEMA:
-        raise OptionError(f"not a scanmass lens profile (schema {LENS_SCHEMA!r} expected); make one with 'scanmass lens'", path=str(p))
+        raise OptionError(
+            f"not a scanmass lens profile (schema {LENS_SCHEMA!r} expected); make one with 'scanmass lens'", path=str(p)
+        )
     try:
         d = data["dist_coeffs"]
         profile = LensProfile(
             camera_matrix=np.asarray(data["camera_matrix_px"], dtype=float).reshape(3, 3),
             dist_coeffs=np.array([d["k1"], d["k2"], d["p1"], d["p2"], d["k3"]], dtype=float),
             image_size=tuple(int(v) for v in data["image_size_px"]),
-            rms_px=float(data["rms_px"]), photos=int(data.get("photos", 0)), points=int(data.get("points", 0)),
+            rms_px=float(data["rms_px"]),
+            photos=int(data.get("photos", 0)),
+            points=int(data.get("points", 0)),
             source=str(p),
         )
     except (KeyError, TypeError, ValueError) as exc:
-        raise OptionError(f"lens profile is incomplete ({exc}); make it again with 'scanmass lens'", path=str(p)) from None
+        raise OptionError(
+            f"lens profile is incomplete ({exc}); make it again with 'scanmass lens'", path=str(p)
+        ) from None
     return profile
 
 
-def calibrate_lens(photos: Sequence[str | os.PathLike | np.ndarray], *, mat=None, max_pixels: int | None = None) -> LensProfile:
+def calibrate_lens(
+    photos: Sequence[str | os.PathLike | np.ndarray], *, mat=None, max_pixels: int | None = None
+) -> LensProfile:
     """Calibrate a camera from 5 or more photos of a scanmass marker mat.
 
     The photos should show the whole mat flat, from different directions and tilts
@@ -160,11 +191,15 @@ def calibrate_lens(photos: Sequence[str | os.PathLike | np.ndarray], *, mat=None
 
     photos = list(photos)
     if len(photos) < MIN_LENS_PHOTOS:
-        raise ScaleError(f"lens calibration needs at least {MIN_LENS_PHOTOS} photos of the mat from different angles; got {len(photos)}")
+        raise ScaleError(
+            f"lens calibration needs at least {MIN_LENS_PHOTOS} photos of the mat from different angles; got {len(photos)}"
+        )
     images = [load_image(p, max_pixels=max_pixels or DEFAULT_MAX_PIXELS) for p in photos]
     sizes = {(im.width_px, im.height_px) for im in images}
     if len(sizes) > 1:
-        raise ScaleError(f"the photos have different sizes ({', '.join(f'{w}x{h}' for w, h in sorted(sizes))}); use full-size photos in one orientation")
+        raise ScaleError(
+            f"the photos have different sizes ({', '.join(f'{w}x{h}' for w, h in sorted(sizes))}); use full-size photos in one orientation"
+        )
     size = sizes.pop()
     layout = load_layout(mat) if mat is not None else None
 
@@ -175,7 +210,9 @@ def calibrate_lens(photos: Sequence[str | os.PathLike | np.ndarray], *, mat=None
             lay = layout or (layout_for_ids(det.ids, path=im.path) if len(det.ids) else None)
             keep = np.isin(det.ids, lay.ids) if lay is not None else np.zeros(0, bool)
             if lay is None or keep.sum() < MIN_MARKERS:
-                raise ScaleError(f"fewer than {MIN_MARKERS} mat markers found; show the whole mat, sharp and well lit", path=im.path)
+                raise ScaleError(
+                    f"fewer than {MIN_MARKERS} mat markers found; show the whole mat, sharp and well lit", path=im.path
+                )
             mm = lay.marker_corners(det.ids[keep]).reshape(-1, 2)
             px = det.corners_px[keep].reshape(-1, 2)
             if undistort is not None:  # back to the distorted photo: calibrateCamera models the distortion
@@ -190,15 +227,21 @@ def calibrate_lens(photos: Sequence[str | os.PathLike | np.ndarray], *, mat=None
     objs, imgs = correspondences()
     for round_ in range(2):
         rms, k, dist, _, _ = cv2.calibrateCamera(objs, imgs, size, None, None, flags=flags, criteria=criteria)
-        profile_now = LensProfile(camera_matrix=k, dist_coeffs=np.asarray(dist, dtype=float).ravel()[:5],
-                                  image_size=size, rms_px=float(rms), photos=len(images),
-                                  points=int(sum(len(o) for o in objs)))
+        profile_now = LensProfile(
+            camera_matrix=k,
+            dist_coeffs=np.asarray(dist, dtype=float).ravel()[:5],
+            image_size=size,
+            rms_px=float(rms),
+            photos=len(images),
+            points=int(sum(len(o) for o in objs)),
+        )
         if round_ == 0:
             objs, imgs = correspondences(profile_now.undistort_points)
     if not math.isfinite(profile_now.rms_px) or profile_now.rms_px > 2.0:
         raise ScaleError(
             f"lens calibration did not converge (RMS {profile_now.rms_px:.2f} px); take sharper photos of the flat mat "
-            "from more varied angles")
+            "from more varied angles"
+        )
     return profile_now
 
 

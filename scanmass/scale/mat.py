@@ -173,8 +173,13 @@ class MatLayout:
             "corner_order": ["top-left", "top-right", "bottom-right", "bottom-left"],
             "markers": [{"id": m.id, "corners_mm": np.round(m.corners_mm, 6).tolist()} for m in self.markers],
             "check_bars": [
-                {"axis": b.axis, "start_mm": list(b.start_mm), "end_mm": list(b.end_mm),
-                 "width_mm": b.width_mm, "length_mm": b.length_mm}
+                {
+                    "axis": b.axis,
+                    "start_mm": list(b.start_mm),
+                    "end_mm": list(b.end_mm),
+                    "width_mm": b.width_mm,
+                    "length_mm": b.length_mm,
+                }
                 for b in self.check_bars
             ],
             "clear_area_mm": list(self.clear_area_mm),
@@ -186,23 +191,41 @@ class MatLayout:
         return json.dumps(self.to_dict(), indent=1)
 
     @classmethod
-    def from_dict(cls, data: dict[str, Any], *, path: str | None = None) -> "MatLayout":
+    def from_dict(cls, data: dict[str, Any], *, path: str | None = None) -> MatLayout:
         """Rebuild a layout from :meth:`to_dict` output; raises ScaleError if it is not one."""
         if not isinstance(data, dict) or data.get("schema") != MAT_SCHEMA:
-            raise ScaleError(f"not a scanmass mat layout (schema {MAT_SCHEMA!r} expected); write one with 'scanmass mat'", path=path)
+            raise ScaleError(
+                f"not a scanmass mat layout (schema {MAT_SCHEMA!r} expected); write one with 'scanmass mat'", path=path
+            )
         try:
-            markers = tuple(Marker(int(m["id"]), np.asarray(m["corners_mm"], dtype=float).reshape(4, 2)) for m in data["markers"])
-            bars = tuple(CheckBar(b["axis"], tuple(b["start_mm"]), tuple(b["end_mm"]), float(b["width_mm"]), float(b["length_mm"]))
-                         for b in data["check_bars"])
+            markers = tuple(
+                Marker(int(m["id"]), np.asarray(m["corners_mm"], dtype=float).reshape(4, 2)) for m in data["markers"]
+            )
+            bars = tuple(
+                CheckBar(
+                    b["axis"], tuple(b["start_mm"]), tuple(b["end_mm"]), float(b["width_mm"]), float(b["length_mm"])
+                )
+                for b in data["check_bars"]
+            )
             layout = cls(
-                name=str(data["name"]), page_mm=tuple(float(v) for v in data["page_mm"]), dictionary=str(data["dictionary"]),
-                cell_mm=float(data["cell_mm"]), markers=markers, check_bars=bars,
-                clear_area_mm=tuple(float(v) for v in data["clear_area_mm"]), legend=tuple(data.get("legend", ())),
+                name=str(data["name"]),
+                page_mm=tuple(float(v) for v in data["page_mm"]),
+                dictionary=str(data["dictionary"]),
+                cell_mm=float(data["cell_mm"]),
+                markers=markers,
+                check_bars=bars,
+                clear_area_mm=tuple(float(v) for v in data["clear_area_mm"]),
+                legend=tuple(data.get("legend", ())),
             )
         except (KeyError, TypeError, ValueError) as exc:
-            raise ScaleError(f"mat layout file is incomplete ({exc}); write it again with 'scanmass mat'", path=path) from None
+            raise ScaleError(
+                f"mat layout file is incomplete ({exc}); write it again with 'scanmass mat'", path=path
+            ) from None
         if layout.dictionary != DICTIONARY or len(markers) < 4:
-            raise ScaleError(f"mat layout uses {layout.dictionary} with {len(markers)} markers; scanmass reads {DICTIONARY} mats with 4 or more markers", path=path)
+            raise ScaleError(
+                f"mat layout uses {layout.dictionary} with {len(markers)} markers; scanmass reads {DICTIONARY} mats with 4 or more markers",
+                path=path,
+            )
         return layout
 
 
@@ -276,10 +299,18 @@ def make_mat(layout: str = "a4-portrait") -> MatLayout:
 
     xi0, yi0, xi1, yi1 = m + side, m + side, w - m - side, h - m - side  # inside of the ring
     strip = _GAP_MM + _BAR_MM + _LABEL_MM  # bar strips along the bottom and the left
-    bar_x = CheckBar("x", (xi0 + strip + _GAP_MM, yi0 + _GAP_MM + 0.5 * _BAR_MM),
-                     (xi0 + strip + _GAP_MM + _BAR_LENGTH_MM, yi0 + _GAP_MM + 0.5 * _BAR_MM), _BAR_MM)
-    bar_y = CheckBar("y", (xi0 + _GAP_MM + 0.5 * _BAR_MM, yi0 + strip + _GAP_MM),
-                     (xi0 + _GAP_MM + 0.5 * _BAR_MM, yi0 + strip + _GAP_MM + _BAR_LENGTH_MM), _BAR_MM)
+    bar_x = CheckBar(
+        "x",
+        (xi0 + strip + _GAP_MM, yi0 + _GAP_MM + 0.5 * _BAR_MM),
+        (xi0 + strip + _GAP_MM + _BAR_LENGTH_MM, yi0 + _GAP_MM + 0.5 * _BAR_MM),
+        _BAR_MM,
+    )
+    bar_y = CheckBar(
+        "y",
+        (xi0 + _GAP_MM + 0.5 * _BAR_MM, yi0 + strip + _GAP_MM),
+        (xi0 + _GAP_MM + 0.5 * _BAR_MM, yi0 + strip + _GAP_MM + _BAR_LENGTH_MM),
+        _BAR_MM,
+    )
     nice = {"a4": "A4", "a3": "A3", "letter": "US Letter"}[paper]
     legend = (
         f"scanmass measuring mat, {nice} {orientation} (markers {first}-{first + len(markers) - 1})",
@@ -287,10 +318,22 @@ def make_mat(layout: str = "a4-portrait") -> MatLayout:
         "end to end; give caliper readings as --printed-x and --printed-y.",
         "Lay parts flat inside the corner marks; keep all markers in view.",
     )
-    clear = (xi0 + strip + _GAP_MM, yi0 + strip + _GAP_MM, xi1 - _GAP_MM,
-             yi1 - _GAP_MM - len(legend) * _LABEL_MM - _GAP_MM)
-    return MatLayout(name=key, page_mm=(float(w), float(h)), dictionary=DICTIONARY, cell_mm=cell, markers=markers,
-                     check_bars=(bar_x, bar_y), clear_area_mm=tuple(float(v) for v in np.round(clear, 3)), legend=legend)
+    clear = (
+        xi0 + strip + _GAP_MM,
+        yi0 + strip + _GAP_MM,
+        xi1 - _GAP_MM,
+        yi1 - _GAP_MM - len(legend) * _LABEL_MM - _GAP_MM,
+    )
+    return MatLayout(
+        name=key,
+        page_mm=(float(w), float(h)),
+        dictionary=DICTIONARY,
+        cell_mm=cell,
+        markers=markers,
+        check_bars=(bar_x, bar_y),
+        clear_area_mm=tuple(float(v) for v in np.round(clear, 3)),
+        legend=legend,
+    )
 
 
 def load_layout(source: str | os.PathLike) -> MatLayout:
@@ -304,7 +347,9 @@ def load_layout(source: str | os.PathLike) -> MatLayout:
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise ScaleError(f"cannot read the mat layout ({exc}); write it again with 'scanmass mat'", path=str(path)) from None
+        raise ScaleError(
+            f"cannot read the mat layout ({exc}); write it again with 'scanmass mat'", path=str(path)
+        ) from None
     return MatLayout.from_dict(data, path=str(path))
 
 
@@ -322,7 +367,9 @@ def layout_for_ids(ids: np.ndarray | list[int], *, path: str | None = None) -> M
     if not known.any():
         raise ScaleError(
             f"the photo shows ArUco markers {sorted(set(ids.tolist()))[:6]} that belong to no scanmass mat; "
-            "print a mat with 'scanmass mat' or give its layout file with --mat LAYOUT.json", path=path)
+            "print a mat with 'scanmass mat' or give its layout file with --mat LAYOUT.json",
+            path=path,
+        )
     values, counts = np.unique(blocks[known], return_counts=True)
     if len(values) > 1 and np.sort(counts)[-2] >= 2:
         names = ", ".join(_BLOCKS[v] for v in values)
@@ -461,7 +508,13 @@ def _text_layer(layout: MatLayout, shape: tuple[int, int], s: float) -> np.ndarr
 
 
 def _pdf_text(text: str) -> str:
-    return text.replace("\\", "\\\\").replace("(", "\\(").replace(")", "\\)").encode("latin-1", "replace").decode("latin-1")
+    return (
+        text.replace("\\", "\\\\")
+        .replace("(", "\\(")
+        .replace(")", "\\)")
+        .encode("latin-1", "replace")
+        .decode("latin-1")
+    )
 
 
 def mat_pdf_bytes(layout: MatLayout) -> bytes:
@@ -494,9 +547,15 @@ def mat_pdf_bytes(layout: MatLayout) -> bytes:
     objects = [
         b"<< /Type /Catalog /Pages 2 0 R /ViewerPreferences << /PrintScaling /None >> >>",
         b"<< /Type /Pages /Kids [3 0 R] /Count 1 >>",
-        (f"<< /Type /Page /Parent 2 0 R /MediaBox [0 0 {w_pt:.4f} {h_pt:.4f}] "
-         f"/Resources << /Font << /F1 5 0 R >> >> /Contents 4 0 R >>").encode("ascii"),
-        b"<< /Length " + str(len(content)).encode("ascii") + b" /Filter /FlateDecode >>\nstream\n" + content + b"\nendstream",
+        (
+            f"<< /Type /Page /Parent 2 0 R /MediaBox [0 0 {w_pt:.4f} {h_pt:.4f}] "
+            f"/Resources << /Font << /F1 5 0 R >> >> /Contents 4 0 R >>"
+        ).encode("ascii"),
+        b"<< /Length "
+        + str(len(content)).encode("ascii")
+        + b" /Filter /FlateDecode >>\nstream\n"
+        + content
+        + b"\nendstream",
         b"<< /Type /Font /Subtype /Type1 /BaseFont /Helvetica /Encoding /WinAnsiEncoding >>",
         (f"<< /Title ({_pdf_text('scanmass mat ' + layout.name)}) /Producer (scanmass) >>").encode("latin-1"),
     ]
@@ -509,7 +568,9 @@ def mat_pdf_bytes(layout: MatLayout) -> bytes:
     out += f"xref\n0 {len(objects) + 1}\n0000000000 65535 f \n".encode("ascii")
     for off in offsets:
         out += f"{off:010d} 00000 n \n".encode("ascii")
-    out += (f"trailer\n<< /Size {len(objects) + 1} /Root 1 0 R /Info 6 0 R >>\nstartxref\n{xref}\n%%EOF\n").encode("ascii")
+    out += (f"trailer\n<< /Size {len(objects) + 1} /Root 1 0 R /Info 6 0 R >>\nstartxref\n{xref}\n%%EOF\n").encode(
+        "ascii"
+    )
     return bytes(out)
 
 
@@ -547,8 +608,13 @@ def calibration_dir() -> Path | None:
     return candidate if candidate.is_dir() else None
 
 
-def write_mat(layout: str | MatLayout, *, pdf: str | os.PathLike | None = None, png: str | os.PathLike | None = None,
-              dpi: float = 300.0) -> list[Path]:
+def write_mat(
+    layout: str | MatLayout,
+    *,
+    pdf: str | os.PathLike | None = None,
+    png: str | os.PathLike | None = None,
+    dpi: float = 300.0,
+) -> list[Path]:
     """Write a mat as PDF and/or PNG, each with its layout JSON beside it (same name, ``.json``).
 
     Returns the written paths. Raises OptionError when neither output is given or a

@@ -18,13 +18,15 @@ from __future__ import annotations
 
 import math
 import os
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
-from typing import Any, Callable
+from typing import Any
 
 import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, ScaleError, SegmentationError
+from scanmass.load.decode import LoadedImage
 from scanmass.scale.homography import (
     ElevationHook,
     HomographyFit,
@@ -34,7 +36,6 @@ from scanmass.scale.homography import (
     local_scale,
     sample_homographies,
 )
-from scanmass.load.decode import LoadedImage
 from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids, load_layout
 from scanmass.scale.planemap import PlaneMap
 
@@ -165,8 +166,14 @@ def detect_markers(
     grey8 = _grey8(image)
     corners, ids, _ = _detector(dictionary).detectMarkers(grey8)
     if ids is None or len(ids) == 0:
-        return MarkerDetection(np.zeros(0, int), np.zeros((0, 4, 2)), np.zeros((0, 4, 2)), float("nan"),
-                               np.zeros((0, 4)), np.zeros((0, 4, 2)))
+        return MarkerDetection(
+            np.zeros(0, int),
+            np.zeros((0, 4, 2)),
+            np.zeros((0, 4, 2)),
+            float("nan"),
+            np.zeros((0, 4)),
+            np.zeros((0, 4, 2)),
+        )
     ids = ids.ravel().astype(int)
     coarse = np.stack([c.reshape(4, 2) for c in corners]).astype(np.float64)
     # a marker id seen twice is ambiguous: drop both
@@ -339,7 +346,9 @@ def _printer(layout: MatLayout, printed_x_mm: float | None, printed_y_mm: float 
         if not (math.isfinite(value) and 0.9 * nominal <= value <= 1.1 * nominal):
             raise OptionError(
                 f"printed {axis} bar reading {value!r} mm is more than 10 % off its {nominal:g} mm; "
-                "reprint the mat at 100 % (actual size) and measure the bar end to end", path=path)
+                "reprint the mat at 100 % (actual size) and measure the bar end to end",
+                path=path,
+            )
         factors.append(value / nominal)
     rel = PRINTED_READING_U_MM / layout.bar("x").length_mm
     return np.diag([factors[0], factors[1], 1.0]), rel, True
@@ -402,8 +411,11 @@ def _camera_matrix(image: LoadedImage, profile, h_samples: list[np.ndarray], rng
             # besides the corner noise, the assumed principal point and square pixels: 3 % (1 sigma)
             samples = np.array([f if f is not None else f_med for f in fs], dtype=float)
             samples *= 1.0 + 0.03 * rng.standard_normal(len(samples))
-            return np.array([[f_med, 0, cx], [0, f_med, cy], [0, 0, 1.0]]), samples, \
-                f"estimated from the view's perspective ({f_med:.0f} px +- {100 * math.hypot(spread, 0.03):.0f} %)"
+            return (
+                np.array([[f_med, 0, cx], [0, f_med, cy], [0, 0, 1.0]]),
+                samples,
+                f"estimated from the view's perspective ({f_med:.0f} px +- {100 * math.hypot(spread, 0.03):.0f} %)",
+            )
     f_exif = _exif_focal_px(image)
     if f_exif is not None:
         f0, rel, note = f_exif, 0.03, f"EXIF 35 mm-equivalent focal length ({f_exif:.0f} px)"
@@ -422,10 +434,24 @@ def _roi_from_rect(rect_mm, to_px: Callable[[np.ndarray], np.ndarray], per_side:
     return to_px(pts)
 
 
-def _build_scale(image: LoadedImage, *, method: str, fit: HomographyFit, points_mm: np.ndarray, printer: np.ndarray,
-                 terms: dict[str, float], extra: dict[str, Any], clear_mm, lens, thickness_mm: float | None,
-                 thickness_u_mm: float, support_mm: np.ndarray, warnings: list[str], sample_sigma_px: float,
-                 size_samples: Callable[[np.random.Generator], np.ndarray] | None = None) -> PhotoScale:
+def _build_scale(
+    image: LoadedImage,
+    *,
+    method: str,
+    fit: HomographyFit,
+    points_mm: np.ndarray,
+    printer: np.ndarray,
+    terms: dict[str, float],
+    extra: dict[str, Any],
+    clear_mm,
+    lens,
+    thickness_mm: float | None,
+    thickness_u_mm: float,
+    support_mm: np.ndarray,
+    warnings: list[str],
+    sample_sigma_px: float,
+    size_samples: Callable[[np.random.Generator], np.ndarray] | None = None,
+) -> PhotoScale:
     """Common tail of mat_scale and sheet_scale: samples, thickness, the PlaneMap, the ROI."""
     profile, undistort, distort = lens
     rng = np.random.default_rng(12345)
@@ -457,18 +483,29 @@ def _build_scale(image: LoadedImage, *, method: str, fit: HomographyFit, points_
         raised = np.array([local_scale(hk.hh, centre_px) for hk in hooks])
         terms["thickness"] = float(np.std(raised, ddof=1) / np.mean(raised))
         shift = _parallax_mm(h0, k, thickness_mm, centre_px)
-        extra["thickness_correction"] = {"height_mm": thickness_mm, "height_u_mm": thickness_u_mm,
-                                         "parallax_at_centre_mm": shift}
+        extra["thickness_correction"] = {
+            "height_mm": thickness_mm,
+            "height_u_mm": thickness_u_mm,
+            "parallax_at_centre_mm": shift,
+        }
     if profile is not None:  # the calibration's residual, as a misfit over a typical part's size
         clear_diag = math.hypot(clear_mm[2] - clear_mm[0], clear_mm[3] - clear_mm[1])
         terms["lens"] = profile.rms_px * mm_per_px / (0.25 * clear_diag)
     rel_u = _combine(*terms.values())
     plane_map = PlaneMap(
-        matrix=h0, method=method, rel_u=rel_u, terms=terms, note=extra.get("note", ""),
-        reprojection_rms_px=fit.rms_px, reprojection_rms_mm=fit.rms_mm,
-        extra={**{k_: v for k_, v in extra.items() if k_ != "note"}, "mm_per_px": mm_per_px,
-               "matrix_samples": np.stack(samples),
-               **({"undistort_samples": hooks} if hooks is not None else {})},
+        matrix=h0,
+        method=method,
+        rel_u=rel_u,
+        terms=terms,
+        note=extra.get("note", ""),
+        reprojection_rms_px=fit.rms_px,
+        reprojection_rms_mm=fit.rms_mm,
+        extra={
+            **{k_: v for k_, v in extra.items() if k_ != "note"},
+            "mm_per_px": mm_per_px,
+            "matrix_samples": np.stack(samples),
+            **({"undistort_samples": hooks} if hooks is not None else {}),
+        },
         undistort=hook,
     )
     inv = np.linalg.inv(h0)
@@ -478,7 +515,9 @@ def _build_scale(image: LoadedImage, *, method: str, fit: HomographyFit, points_
         return distort(ideal) if distort is not None else ideal
 
     roi = _roi_from_rect(clear_mm, to_px)
-    return PhotoScale(plane_map=plane_map, roi_px=roi, support_mm=support_mm, warnings=warnings, fit=fit, camera_matrix=k)
+    return PhotoScale(
+        plane_map=plane_map, roi_px=roi, support_mm=support_mm, warnings=warnings, fit=fit, camera_matrix=k
+    )
 
 
 def _parallax_mm(h0: np.ndarray, k: np.ndarray, height_mm: float, centre_px: np.ndarray) -> float:
@@ -531,7 +570,9 @@ def mat_scale(
     if len(det.ids) == 0:
         raise ScaleError(
             "no scale: no marker mat found in the photo (and no usable DPI); photograph the part on a mat "
-            "printed with 'scanmass mat', or give --sheet a4 for a plain sheet, or --dpi N for a scan", path=path)
+            "printed with 'scanmass mat', or give --sheet a4 for a plain sheet, or --dpi N for a scan",
+            path=path,
+        )
     if layout is None:
         layout = layout_for_ids(det.ids, path=path)
     known = np.isin(det.ids, layout.ids)
@@ -540,19 +581,25 @@ def mat_scale(
         if known.sum() < MIN_MARKERS:
             raise ScaleError(
                 f"the markers in the photo (ids {sorted(strays.tolist())[:6]}) are not those of mat {layout.name}; "
-                "use a mat printed by 'scanmass mat' or give its layout file with --mat LAYOUT.json", path=path)
+                "use a mat printed by 'scanmass mat' or give its layout file with --mat LAYOUT.json",
+                path=path,
+            )
     ids = det.ids[known]
     corners_px = det.corners_px[known]
     n = len(ids)
     if n < MIN_MARKERS:
         raise ScaleError(
             f"only {n} marker(s) of mat {layout.name} are visible; at least {MIN_MARKERS} are needed: "
-            "keep the whole mat in the photo and the part off the markers", path=path)
+            "keep the whole mat in the photo and the part off the markers",
+            path=path,
+        )
     _check_blur(det, known, path)
     corners_mm = layout.marker_corners(ids)
     pts_px = corners_px.reshape(-1, 2)
     pts_mm = corners_mm.reshape(-1, 2)
-    cell_px = float(np.median(np.hypot(*(np.roll(corners_px, -1, axis=1) - corners_px).reshape(-1, 2).T))) / MARKER_CELLS
+    cell_px = (
+        float(np.median(np.hypot(*(np.roll(corners_px, -1, axis=1) - corners_px).reshape(-1, 2).T))) / MARKER_CELLS
+    )
     fit = fit_homography(pts_px, pts_mm, ransac_px=max(2.0, 0.25 * cell_px))
     if fit is None:
         raise ScaleError("the markers found do not fit a flat mat; lay the mat flat and photograph it again", path=path)
@@ -562,7 +609,8 @@ def mat_scale(
     if not checked:
         warnings.append(
             f"print scale unverified: measure the mat's two 100 mm check bars and give --printed-x/--printed-y "
-            f"(a {100 * PRINTER_REL_U:.1f} % printer term is included meanwhile)")
+            f"(a {100 * PRINTER_REL_U:.1f} % printer term is included meanwhile)"
+        )
     inl_markers = fit.inliers.reshape(-1, 4).all(axis=1)
     support = (printer[:2, :2] @ pts_mm[fit.inliers].T).T
     clear = np.array(layout.clear_area_mm, dtype=float)
@@ -576,20 +624,35 @@ def mat_scale(
         "printer_check": {"done": checked, "x_factor": float(printer[0, 0]), "y_factor": float(printer[1, 1])},
         "lens_profile": None if lens_tools[0] is None else lens_tools[0].source,
         # for overlays and reports: where each marker was found, and whether the fit used it
-        "markers_px": [{"id": int(i), "corners": np.round(c, 2).tolist(), "used": bool(u)}
-                       for i, c, u in zip(ids, corners_px, inl_markers)],
+        "markers_px": [
+            {"id": int(i), "corners": np.round(c, 2).tolist(), "used": bool(u)}
+            for i, c, u in zip(ids, corners_px, inl_markers)
+        ],
         "clear_area_mm": [float(v) for v in clear_phys],
         "note": f"marker mat {layout.name}: {int(inl_markers.sum())} of {len(layout.markers)} markers, "
-                f"reprojection RMS {fit.rms_px:.3f} px",
+        f"reprojection RMS {fit.rms_px:.3f} px",
     }
     terms = {"printer": printer_rel}
     if misfit > 0:  # what the plane model leaves unexplained, over a typical part's size
         clear_diag = math.hypot(clear[2] - clear[0], clear[3] - clear[1])
         terms["flatness"] = misfit / (0.25 * clear_diag)
     extra["misfit_mm"] = misfit
-    scale = _build_scale(image, method="mat", fit=fit, points_mm=pts_mm, printer=printer, terms=terms, extra=extra,
-                         clear_mm=clear_phys, lens=lens_tools, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm,
-                         support_mm=support, warnings=warnings, sample_sigma_px=fit.sigma_px)
+    scale = _build_scale(
+        image,
+        method="mat",
+        fit=fit,
+        points_mm=pts_mm,
+        printer=printer,
+        terms=terms,
+        extra=extra,
+        clear_mm=clear_phys,
+        lens=lens_tools,
+        thickness_mm=thickness_mm,
+        thickness_u_mm=thickness_u_mm,
+        support_mm=support,
+        warnings=warnings,
+        sample_sigma_px=fit.sigma_px,
+    )
     scale.detection = det
     scale.layout = layout
     return scale
@@ -612,9 +675,14 @@ def _check_blur(det: MarkerDetection, known: np.ndarray, path: str | None) -> No
     if wide > 2.5 and wide > 2.0 * max(narrow, 0.5):
         raise ScaleError(
             f"the photo is smeared in one direction (motion blur: edges {wide:.1f} px wide across it, {narrow:.1f} px "
-            "along it); hold the camera still or add light, and take the photo again", path=path)
+            "along it); hold the camera still or add light, and take the photo again",
+            path=path,
+        )
     if narrow > 6.0:
-        raise ScaleError(f"the photo is out of focus (marker edges about {narrow:.1f} px wide); focus on the mat and take it again", path=path)
+        raise ScaleError(
+            f"the photo is out of focus (marker edges about {narrow:.1f} px wide); focus on the mat and take it again",
+            path=path,
+        )
 
 
 #: Largest misfit (mm, RMS over the marker corners, beyond their localisation noise) of
@@ -647,8 +715,9 @@ def _looks_like_distortion(pts_px: np.ndarray, pts_mm: np.ndarray, fit: Homograp
     return best < 0.35 * fit.rms_px
 
 
-def _check_consistency(fit: HomographyFit, n_markers: int, noise_px: float, pts_px, pts_mm, centre_px, path,
-                       warnings) -> float:
+def _check_consistency(
+    fit: HomographyFit, n_markers: int, noise_px: float, pts_px, pts_mm, centre_px, path, warnings
+) -> float:
     """Refuse a bent or creased mat (or strong lens distortion): corners that no homography explains.
 
     Returns the misfit in mm (RMS beyond the corners' localisation noise).
@@ -656,16 +725,24 @@ def _check_consistency(fit: HomographyFit, n_markers: int, noise_px: float, pts_
     outlier_markers = int((~fit.inliers.reshape(-1, 4)).any(axis=1).sum())
     misfit = _misfit_mm(fit, noise_px)
     if outlier_markers > max(1, 0.2 * n_markers) or misfit > MAX_MISFIT_MM:
-        what = f"reprojection RMS {fit.rms_px:.2f} px = {fit.rms_mm:.2f} mm, {outlier_markers} of {n_markers} markers off"
+        what = (
+            f"reprojection RMS {fit.rms_px:.2f} px = {fit.rms_mm:.2f} mm, {outlier_markers} of {n_markers} markers off"
+        )
         if _looks_like_distortion(pts_px, pts_mm, fit, centre_px):
             raise ScaleError(
                 f"the markers bow like a distorting lens ({what}); calibrate the camera with 'scanmass lens PHOTOS...' "
-                "and pass --lens PROFILE", path=path)
+                "and pass --lens PROFILE",
+                path=path,
+            )
         raise ScaleError(
             f"the markers do not lie on one flat plane ({what}): flatten the mat (no bends, creases or curl) and "
-            "take the photo again", path=path)
+            "take the photo again",
+            path=path,
+        )
     if outlier_markers:
-        warnings.append(f"{outlier_markers} marker(s) did not fit the others and were left out (a crease or a dirty marker?)")
+        warnings.append(
+            f"{outlier_markers} marker(s) did not fit the others and were left out (a crease or a dirty marker?)"
+        )
     return misfit
 
 
@@ -713,7 +790,9 @@ def sheet_scale(
     target = np.array([[0, 0], [w_mm, 0], [w_mm, h_mm], [0, h_mm]], dtype=float)
     fit = fit_homography(corners_px, target, ransac_px=1e9)
     if fit is None:
-        raise ScaleError("the sheet's corners do not form a quadrilateral; show the whole sheet flat on a plain table", path=path)
+        raise ScaleError(
+            "the sheet's corners do not form a quadrilateral; show the whole sheet flat on a plain table", path=path
+        )
     fit.sigma_px = max(noise_px, 0.02)
     rel_tol = SHEET_TOLERANCE_MM / math.sqrt(3.0)
 
@@ -724,15 +803,36 @@ def sheet_scale(
 
     m = SHEET_MARGIN_MM
     clear = (m, m, w_mm - m, h_mm - m)
-    extra = {"sheet": key, "sheet_mm": [w_mm, h_mm], "sheet_tolerance_mm": SHEET_TOLERANCE_MM,
-             "corners_px": corners_px.tolist(), "lens_profile": None if lens_tools[0] is None else lens_tools[0].source,
-             "note": f"plain {key} sheet, {w_mm:g} x {h_mm:g} mm nominal (+-{SHEET_TOLERANCE_MM:g} mm)"}
+    extra = {
+        "sheet": key,
+        "sheet_mm": [w_mm, h_mm],
+        "sheet_tolerance_mm": SHEET_TOLERANCE_MM,
+        "corners_px": corners_px.tolist(),
+        "lens_profile": None if lens_tools[0] is None else lens_tools[0].source,
+        "note": f"plain {key} sheet, {w_mm:g} x {h_mm:g} mm nominal (+-{SHEET_TOLERANCE_MM:g} mm)",
+    }
     terms = {"sheet": _combine(rel_tol / w_mm, rel_tol / h_mm) / math.sqrt(2)}
-    warnings = [f"scale from a plain {key} sheet: its trimming tolerance (+-{SHEET_TOLERANCE_MM:g} mm) limits the "
-                "accuracy; a printed marker mat ('scanmass mat') does better"]
-    return _build_scale(image, method="sheet", fit=fit, points_mm=target, printer=np.eye(3), terms=terms, extra=extra,
-                        clear_mm=clear, lens=lens_tools, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm,
-                        support_mm=target, warnings=warnings, sample_sigma_px=fit.sigma_px, size_samples=size_samples)
+    warnings = [
+        f"scale from a plain {key} sheet: its trimming tolerance (+-{SHEET_TOLERANCE_MM:g} mm) limits the "
+        "accuracy; a printed marker mat ('scanmass mat') does better"
+    ]
+    return _build_scale(
+        image,
+        method="sheet",
+        fit=fit,
+        points_mm=target,
+        printer=np.eye(3),
+        terms=terms,
+        extra=extra,
+        clear_mm=clear,
+        lens=lens_tools,
+        thickness_mm=thickness_mm,
+        thickness_u_mm=thickness_u_mm,
+        support_mm=target,
+        warnings=warnings,
+        sample_sigma_px=fit.sigma_px,
+        size_samples=size_samples,
+    )
 
 
 def _find_sheet(image: LoadedImage, undistort) -> tuple[np.ndarray, float]:
@@ -751,7 +851,10 @@ def _find_sheet(image: LoadedImage, undistort) -> tuple[np.ndarray, float]:
         raise ScaleError("no sheet of paper found; lay the sheet on a darker plain table and show all of it", path=path)
     biggest = max(contours, key=cv2.contourArea)
     if cv2.contourArea(biggest) < 0.05 * mask.size:
-        raise ScaleError("no sheet of paper found (nothing bright and large enough); lay the sheet on a darker plain table", path=path)
+        raise ScaleError(
+            "no sheet of paper found (nothing bright and large enough); lay the sheet on a darker plain table",
+            path=path,
+        )
     hull = cv2.convexHull(biggest)
     quad = None
     peri = cv2.arcLength(hull, True)
@@ -761,8 +864,12 @@ def _find_sheet(image: LoadedImage, undistort) -> tuple[np.ndarray, float]:
             quad = approx.reshape(4, 2).astype(np.float64)
             break
     if quad is None:
-        raise ScaleError("the sheet's outline is not a four-cornered shape; show all four corners of the sheet, flat", path=path)
-    x_touch = (quad[:, 0] <= 1) | (quad[:, 0] >= mask.shape[1] - 2) | (quad[:, 1] <= 1) | (quad[:, 1] >= mask.shape[0] - 2)
+        raise ScaleError(
+            "the sheet's outline is not a four-cornered shape; show all four corners of the sheet, flat", path=path
+        )
+    x_touch = (
+        (quad[:, 0] <= 1) | (quad[:, 0] >= mask.shape[1] - 2) | (quad[:, 1] <= 1) | (quad[:, 1] >= mask.shape[0] - 2)
+    )
     if x_touch.any():
         raise ScaleError("the sheet runs off the photo's edge; show all four corners of the sheet", path=path)
     quad = (quad + 0.5) * factor - 0.5  # low-res pixel centres -> full-res
@@ -783,8 +890,13 @@ def _find_sheet(image: LoadedImage, undistort) -> tuple[np.ndarray, float]:
         x0, y0 = max(x0, 0), max(y0, 0)
         x1, y1 = min(x1, width - 1), min(y1, height - 1)
         crop = lin_full[grey[y0 : y1 + 1, x0 : x1 + 1]].astype(np.float32)
-        prof = cv2.remap(crop, (pts[..., 0] - x0).astype(np.float32), (pts[..., 1] - y0).astype(np.float32),
-                         cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float64)
+        prof = cv2.remap(
+            crop,
+            (pts[..., 0] - x0).astype(np.float32),
+            (pts[..., 1] - y0).astype(np.float32),
+            cv2.INTER_LINEAR,
+            borderMode=cv2.BORDER_REPLICATE,
+        ).astype(np.float64)
         g = -np.diff(prof, axis=1)  # bright sheet inside, darker table outside: falls outwards
         mid = 0.5 * (offs[1:] + offs[:-1])
         w = np.clip(g - 0.15 * g.max(axis=1, keepdims=True), 0, None)
@@ -796,7 +908,9 @@ def _find_sheet(image: LoadedImage, undistort) -> tuple[np.ndarray, float]:
             edge = undistort(edge)
         line = _fit_line(edge)
         if line is None:
-            raise ScaleError("cannot trace the sheet's edges; use a plain table that contrasts with the paper", path=path)
+            raise ScaleError(
+                "cannot trace the sheet's edges; use a plain table that contrasts with the paper", path=path
+            )
         lines.append(line[:2])
         residuals.append(line[2])
     corners = np.array([_intersect(lines[(k - 1) % 4], lines[k]) for k in range(4)])
@@ -854,15 +968,23 @@ def scale_method(image: LoadedImage, options) -> str:
     return "dpi" if image.dpi is not None else "mat"
 
 
-def photo_scale(image: LoadedImage, options, *, thickness_mm: float | None = None, thickness_u_mm: float = 0.0) -> PhotoScale:
+def photo_scale(
+    image: LoadedImage, options, *, thickness_mm: float | None = None, thickness_u_mm: float = 0.0
+) -> PhotoScale:
     """The :class:`PhotoScale` of a photo for the options of :func:`scanmass.measure`."""
     method = scale_method(image, options)
     lens = getattr(options, "lens", None)
     if method == "sheet":
         return sheet_scale(image, options.sheet, lens=lens, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm)
-    return mat_scale(image, mat=getattr(options, "mat", None), printed_x_mm=getattr(options, "printed_x_mm", None),
-                     printed_y_mm=getattr(options, "printed_y_mm", None), lens=lens, thickness_mm=thickness_mm,
-                     thickness_u_mm=thickness_u_mm)
+    return mat_scale(
+        image,
+        mat=getattr(options, "mat", None),
+        printed_x_mm=getattr(options, "printed_x_mm", None),
+        printed_y_mm=getattr(options, "printed_y_mm", None),
+        lens=lens,
+        thickness_mm=thickness_mm,
+        thickness_u_mm=thickness_u_mm,
+    )
 
 
 def measure_photo(image: LoadedImage, options, *, thickness_mm: float | None = None, thickness_u_mm: float = 0.0):
@@ -889,7 +1011,9 @@ def measure_photo(image: LoadedImage, options, *, thickness_mm: float | None = N
             where = "mat's clear area" if scale.plane_map.method == "mat" else "sheet's margin"
             raise SegmentationError(
                 f"no whole part inside the {where}: the part crosses its edge or the photo's edge; move it inside "
-                "the corner marks, away from markers and the photo's edge", path=image.path) from None
+                "the corner marks, away from markers and the photo's edge",
+                path=image.path,
+            ) from None
         raise
     hull = cv2.convexHull(scale.support_mm.astype(np.float32))
     for part in result.parts:
@@ -898,7 +1022,9 @@ def measure_photo(image: LoadedImage, options, *, thickness_mm: float | None = N
         if min(inside) < -1.0:
             raise ScaleError(
                 f"part {part.label} lies outside the region the visible markers surround; keep the markers on every "
-                "side of the part in the photo", path=image.path)
+                "side of the part in the photo",
+                path=image.path,
+            )
     warnings = list(scale.warnings)
     warnings += _parallax_warning(scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
@@ -947,6 +1073,8 @@ def _parallax_warning(scale: PhotoScale, result, thickness_mm: float | None) -> 
         if d_cen > 0:
             limit = min(limit, math.hypot(*part.centroid_u_mm) / d_cen)
     if limit < 25.0:
-        return [f"parallax: a part thicker than about {limit:.2g} mm looks larger or shifted by more than the stated "
-                "uncertainty; give its thickness with --thickness MM"]
+        return [
+            f"parallax: a part thicker than about {limit:.2g} mm looks larger or shifted by more than the stated "
+            "uncertainty; give its thickness with --thickness MM"
+        ]
     return []

@@ -9,8 +9,9 @@ and nowhere else.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 
@@ -32,7 +33,10 @@ def check_dpi(dpi: Any, *, path: str | None = None) -> tuple[float, float]:
     except (TypeError, ValueError):
         raise OptionError(f"dpi {dpi!r} is not a number; give dots per inch, e.g. --dpi 600", path=path) from None
     if len(pair) != 2 or not all(math.isfinite(v) and 1.0 <= v <= 100_000.0 for v in pair):
-        raise OptionError(f"dpi {dpi!r} is out of range; give a positive number of dots per inch (1-100000), e.g. --dpi 600", path=path)
+        raise OptionError(
+            f"dpi {dpi!r} is out of range; give a positive number of dots per inch (1-100000), e.g. --dpi 600",
+            path=path,
+        )
     return pair  # type: ignore[return-value]
 
 
@@ -73,7 +77,7 @@ class PlaneMap:
         height_px: int,
         rel_u: float = DEFAULT_DPI_REL_U,
         note: str = "",
-    ) -> "PlaneMap":
+    ) -> PlaneMap:
         """The scan-frame map of DESIGN.md for a scanner resolution.
 
         Pixel (column i, row j) has its centre at x = (i + 0.5) s, y = (H - j - 0.5) s
@@ -90,7 +94,9 @@ class PlaneMap:
             raise OptionError(f"dpi uncertainty {rel_u!r} must be a fraction in [0, 0.5), e.g. 0.001 for 0.1 %")
         sx, sy = 25.4 / dpi_x, 25.4 / dpi_y
         matrix = np.array([[sx, 0.0, 0.5 * sx], [0.0, -sy, (height_px - 0.5) * sy], [0.0, 0.0, 1.0]])
-        return cls(matrix=matrix, method="dpi", rel_u=float(rel_u), terms={"dpi": float(rel_u)}, note=note, dpi=(dpi_x, dpi_y))
+        return cls(
+            matrix=matrix, method="dpi", rel_u=float(rel_u), terms={"dpi": float(rel_u)}, note=note, dpi=(dpi_x, dpi_y)
+        )
 
     @property
     def mm_per_px(self) -> float:

@@ -117,7 +117,9 @@ def _poly_design(x: np.ndarray, y: np.ndarray, order: int) -> np.ndarray:
     return np.stack(cols, axis=1)
 
 
-def _fit_surface(values: np.ndarray, rows: np.ndarray, cols: np.ndarray, scale: float, max_order: int) -> tuple[np.ndarray, int, float, int]:
+def _fit_surface(
+    values: np.ndarray, rows: np.ndarray, cols: np.ndarray, scale: float, max_order: int
+) -> tuple[np.ndarray, int, float, int]:
     """Robust least-squares polynomial surface; returns (coefficients, order, residual sigma, n)."""
     n = values.size
     order = 0 if n < 30 else (1 if n < 300 or max_order < 2 else 2)
@@ -130,7 +132,9 @@ def _fit_surface(values: np.ndarray, rows: np.ndarray, cols: np.ndarray, scale: 
         # normal equations of at most 6 unknowns, summed with einsum: multithreaded BLAS on
         # tall thin matrices costs more in idle threads than it saves (batch benchmark)
         ak = a[keep]
-        coef = np.linalg.solve(np.einsum("ij,ik->jk", ak, ak) + 1e-12 * np.eye(a.shape[1]), np.einsum("ij,i->j", ak, values[keep]))
+        coef = np.linalg.solve(
+            np.einsum("ij,ik->jk", ak, ak) + 1e-12 * np.eye(a.shape[1]), np.einsum("ij,i->j", ak, values[keep])
+        )
         res = values - np.einsum("ij,j->i", a, coef)
         sigma = 1.4826 * float(np.median(np.abs(res[keep] - np.median(res[keep])))) + 1e-9
         new_keep = np.abs(res) < 3.5 * sigma + 1e-6
@@ -189,9 +193,13 @@ def segment(
        form as implemented by ``skimage.measure.find_contours``.
     """
     if not (0.0 < level < 1.0):
-        raise OptionError(f"level {level!r} must lie strictly between 0 (background) and 1 (part), e.g. 0.5", path=image.path)
+        raise OptionError(
+            f"level {level!r} must lie strictly between 0 (background) and 1 (part), e.g. 0.5", path=image.path
+        )
     if threshold is not None and not (0.0 < threshold < 1.0):
-        raise OptionError(f"threshold {threshold!r} must be a grey fraction strictly between 0 and 1, e.g. 0.5", path=image.path)
+        raise OptionError(
+            f"threshold {threshold!r} must be a grey fraction strictly between 0 and 1, e.g. 0.5", path=image.path
+        )
     if not (math.isfinite(min_area_px) and min_area_px >= 0):
         raise OptionError(f"minimum area {min_area_px!r} must be zero or positive", path=image.path)
     min_hole = min_area_px if min_hole_area_px is None else float(min_hole_area_px)
@@ -207,7 +215,9 @@ def segment(
     p_lo, p_hi = np.percentile(small, [0.5, 99.5])
     border = np.concatenate([small[0], small[-1], small[:, 0], small[:, -1]])
     if p_hi - p_lo < 0.02 + 1e-9:
-        raise SegmentationError("the image has no contrast (blank or uniform); scan the part on a contrasting background", path=image.path)
+        raise SegmentationError(
+            "the image has no contrast (blank or uniform); scan the part on a contrasting background", path=image.path
+        )
 
     if threshold is not None:
         t_lin = float(lut[int(round(threshold * full_scale))])
@@ -217,7 +227,10 @@ def segment(
         bright_background = float(np.mean(border > t_lin)) >= 0.5
     fg_small = (small < t_lin) if bright_background else (small > t_lin)
     if fg_small.mean() > 0.97:
-        raise SegmentationError("the whole image looks like one part (no background visible); leave a margin of background around each part", path=image.path)
+        raise SegmentationError(
+            "the whole image looks like one part (no background visible); leave a margin of background around each part",
+            path=image.path,
+        )
     kernel = np.ones((3, 3), np.uint8)
     bg_core = cv2.erode((~fg_small).astype(np.uint8), kernel, iterations=2).astype(bool)
     if bg_core.sum() < 10:
@@ -226,7 +239,9 @@ def segment(
     if fg_core.sum() < 4:
         fg_core = fg_small
     if not fg_core.any():
-        raise SegmentationError("no part found: the image is all background; check the scan or lower --min-area", path=image.path)
+        raise SegmentationError(
+            "no part found: the image is all background; check the scan or lower --min-area", path=image.path
+        )
     bg_median = float(np.median(small[bg_core]))
     sigma_map = max(small_shape) / 8.0
     background_map = _masked_blur(small, bg_core, sigma_map, bg_median)
@@ -251,7 +266,9 @@ def segment(
     contours, hierarchy = cv2.findContours(mask, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE)
     del mask
     if not contours:
-        raise SegmentationError("no part found: the image is all background; check the scan or lower --min-area", path=image.path)
+        raise SegmentationError(
+            "no part found: the image is all background; check the scan or lower --min-area", path=image.path
+        )
     hier = hierarchy[0]
     found: list[PartRings] = []
     cut: list[PartRings] = []
@@ -279,14 +296,37 @@ def segment(
     for area_outer, cnt, holes, bbox, is_cut in candidates:
         if is_cut and not keep_cut:
             label_cut = len(cut) + 1
-            cut.append(PartRings(label=-label_cut, outer_px=cnt[:, 0, :].astype(float), holes_px=[], cut=True,
-                                 bbox_px=bbox, area_px=float(area_outer), contrast=float("nan"), noise_rel=float("nan"),
-                                 gradient_px=np.zeros(0), blur_px=float("nan"), level_rel_u=float("nan")))
+            cut.append(
+                PartRings(
+                    label=-label_cut,
+                    outer_px=cnt[:, 0, :].astype(float),
+                    holes_px=[],
+                    cut=True,
+                    bbox_px=bbox,
+                    area_px=float(area_outer),
+                    contrast=float("nan"),
+                    noise_rel=float("nan"),
+                    gradient_px=np.zeros(0),
+                    blur_px=float("nan"),
+                    level_rel_u=float("nan"),
+                )
+            )
             continue
         label += 1
-        part = _refine_part(image, cnt, holes, bbox, is_cut, label, level=level, threshold=threshold,
-                            bright_background=bright_background, min_hole_px=min_hole, roi_px=roi_px,
-                            ratio_hint=ratio)
+        part = _refine_part(
+            image,
+            cnt,
+            holes,
+            bbox,
+            is_cut,
+            label,
+            level=level,
+            threshold=threshold,
+            bright_background=bright_background,
+            min_hole_px=min_hole,
+            roi_px=roi_px,
+            ratio_hint=ratio,
+        )
         if part is None:
             label -= 1
             specks += 1
@@ -299,21 +339,35 @@ def segment(
     warnings: list[str] = []
     if not found:
         if cut:
-            raise SegmentationError(f"no whole part found: {len(cut)} part(s) touch the image edge; reposition the part away from the edge or pass --keep-cut", path=image.path)
-        raise SegmentationError("no part found above the minimum area; check the scan or lower --min-area", path=image.path)
+            raise SegmentationError(
+                f"no whole part found: {len(cut)} part(s) touch the image edge; reposition the part away from the edge or pass --keep-cut",
+                path=image.path,
+            )
+        raise SegmentationError(
+            "no part found above the minimum area; check the scan or lower --min-area", path=image.path
+        )
     if cut:
-        warnings.append(f"{len(cut)} part(s) touching the image edge were left out (pass --keep-cut to measure them as cut)")
+        warnings.append(
+            f"{len(cut)} part(s) touching the image edge were left out (pass --keep-cut to measure them as cut)"
+        )
     for part in found:
         if part.cut:
             warnings.append(f"part {part.label} touches the image edge: its figures describe only the visible portion")
-    return Segmentation(parts=found, cut=cut, polarity="dark part on light background" if bright_background else "light part on dark background",
-                        specks=specks, warnings=warnings)
+    return Segmentation(
+        parts=found,
+        cut=cut,
+        polarity="dark part on light background" if bright_background else "light part on dark background",
+        specks=specks,
+        warnings=warnings,
+    )
 
 
 def _touches_roi(cnt: np.ndarray, roi_px: np.ndarray) -> bool:
     roi = np.asarray(roi_px, dtype=np.float32).reshape(-1, 1, 2)
     pts = cnt[:, 0, :].astype(np.float32)
-    dists = np.array([cv2.pointPolygonTest(roi, (float(p[0]), float(p[1])), True) for p in pts[:: max(1, len(pts) // 400)]])
+    dists = np.array(
+        [cv2.pointPolygonTest(roi, (float(p[0]), float(p[1])), True) for p in pts[:: max(1, len(pts) // 400)]]
+    )
     return bool((dists < 2.0).any())
 
 
@@ -332,7 +386,9 @@ def _sample(mask: np.ndarray, limit: int = _MAX_FIT_SAMPLES) -> tuple[np.ndarray
     return rows[::step], cols[::step]
 
 
-def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, bright_background, min_hole_px, roi_px, ratio_hint):
+def _refine_part(
+    image, cnt, holes, bbox, is_cut, label, *, level, threshold, bright_background, min_hole_px, roi_px, ratio_hint
+):
     """Sub-pixel rings of one part from a padded crop around it.
 
     Only a band a few pixels wide along the part's boundaries is normalised between the
@@ -358,7 +414,7 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
     kernel = np.ones((3, 3), np.uint8)
     grown4 = cv2.dilate(comp, kernel, iterations=4)
     shrunk4 = cv2.erode(comp, kernel, iterations=4)
-    band = (grown4 != shrunk4)  # within ~4 px of any boundary of the part: where edges lie
+    band = grown4 != shrunk4  # within ~4 px of any boundary of the part: where edges lie
     near = cv2.dilate(filled, kernel, iterations=4).astype(bool)
     band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3).astype(bool) & ~near
     hole_space = filled.astype(bool) & ~grown4.astype(bool)
@@ -391,7 +447,9 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
         bg_band = _eval_points(coef_b, ord_b, band_rows, band_cols, scale)
         if interior.sum() >= 20:
             rf, cf = _sample(interior)
-            coef_f, ord_f, sig_f, n_f = _fit_surface(lut[grey_crop[rf, cf]].astype(np.float64), rf.astype(float), cf.astype(float), scale, 2)
+            coef_f, ord_f, sig_f, n_f = _fit_surface(
+                lut[grey_crop[rf, cf]].astype(np.float64), rf.astype(float), cf.astype(float), scale, 2
+            )
             fg_band = _eval_points(coef_f, ord_f, band_rows, band_cols, scale)
         else:  # thin part: no clean interior; take the part level relative to the background
             fg_band = bg_band * ratio_hint
@@ -465,9 +523,20 @@ def _refine_part(image, cnt, holes, bbox, is_cut, label, *, level, threshold, br
         outer = correct_curvature(outer, blur_px)
         holes_px = [correct_curvature(h, blur_px) for h in holes_px]
     area_px = abs(outer_area) - sum(abs(signed_area(h)) for h in holes_px)
-    return PartRings(label=label, outer_px=outer, holes_px=holes_px, cut=is_cut, bbox_px=bbox, area_px=area_px,
-                     contrast=contrast, noise_rel=noise_rel, gradient_px=gradient, blur_px=blur_px,
-                     level_rel_u=level_rel_u, hole_gradients_px=hole_grads)
+    return PartRings(
+        label=label,
+        outer_px=outer,
+        holes_px=holes_px,
+        cut=is_cut,
+        bbox_px=bbox,
+        area_px=area_px,
+        contrast=contrast,
+        noise_rel=noise_rel,
+        gradient_px=gradient,
+        blur_px=blur_px,
+        level_rel_u=level_rel_u,
+        hole_gradients_px=hole_grads,
+    )
 
 
 def _eval_points(coef: np.ndarray, order: int, rows: np.ndarray, cols: np.ndarray, scale: float) -> np.ndarray:
@@ -530,7 +599,11 @@ def correct_curvature(ring: np.ndarray, blur_px: float) -> np.ndarray:
     # chords between vertices on a curve cut inside it: a polygon inscribed with chord h
     # lacks the area of a uniform offset h^2 k / 12 (regular polygon in a circle), so the
     # vertices move out by that much as well
-    chord_sq = np.convolve(np.concatenate([attributed[-half:], attributed, attributed[:half]]) ** 2, k, mode="valid") / k.sum() if half >= 1 else attributed**2
+    chord_sq = (
+        np.convolve(np.concatenate([attributed[-half:], attributed, attributed[:half]]) ** 2, k, mode="valid") / k.sum()
+        if half >= 1
+        else attributed**2
+    )
     shift = (0.5 * blur_px**2 + chord_sq / 12.0) * curvature
     return ring - left * shift[:, None]
 
@@ -572,7 +645,9 @@ def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tup
     for _ in range(3):
         p = ring_rc + t[:, None] * direction
         v = _remap(img, p, cv2.INTER_CUBIC) - level
-        dv = (_remap(img, p + h * direction, cv2.INTER_CUBIC) - _remap(img, p - h * direction, cv2.INTER_CUBIC)) / (2 * h)
+        dv = (_remap(img, p + h * direction, cv2.INTER_CUBIC) - _remap(img, p - h * direction, cv2.INTER_CUBIC)) / (
+            2 * h
+        )
         good = ok & (dv > 1e-3)
         step = np.zeros_like(t)
         step[good] = -v[good] / dv[good]

@@ -11,8 +11,8 @@ faces, and each hole's opening the intersection of the hole's two ends.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Sequence
 
 import cv2
 import numpy as np
@@ -43,8 +43,16 @@ class PinholeCamera:
         return p[:, :2] / p[:, 2:3]
 
 
-def look_at(target_mm: tuple[float, float], *, distance_mm: float, tilt_deg: float, tilt_dir_deg: float,
-            roll_deg: float, f_px: float, size_px: tuple[int, int]) -> PinholeCamera:
+def look_at(
+    target_mm: tuple[float, float],
+    *,
+    distance_mm: float,
+    tilt_deg: float,
+    tilt_dir_deg: float,
+    roll_deg: float,
+    f_px: float,
+    size_px: tuple[int, int],
+) -> PinholeCamera:
     """A camera ``distance_mm`` from ``target_mm``, tilted ``tilt_deg`` from the mat's normal."""
     w, h = size_px
     k = np.array([[f_px, 0, (w - 1) / 2], [0, f_px, (h - 1) / 2], [0, 0, 1.0]])
@@ -88,10 +96,22 @@ def _raised(cam: PinholeCamera, outer: np.ndarray, holes: list[np.ndarray], heig
     return hull, openings
 
 
-def render_mat_photo(layout: MatLayout, parts: Sequence[tuple[np.ndarray, list[np.ndarray]]], cam: PinholeCamera, *,
-                     height_mm: float = 0.0, print_scale: tuple[float, float] = (1.0, 1.0), paper: float = 0.85,
-                     ink: float = 0.03, table: float = 0.2, part_level: float = 0.09, blur_px: float = 1.0,
-                     noise: float = 0.006, light: tuple[float, float] = (0.12, -0.1), seed: int = 0) -> np.ndarray:
+def render_mat_photo(
+    layout: MatLayout,
+    parts: Sequence[tuple[np.ndarray, list[np.ndarray]]],
+    cam: PinholeCamera,
+    *,
+    height_mm: float = 0.0,
+    print_scale: tuple[float, float] = (1.0, 1.0),
+    paper: float = 0.85,
+    ink: float = 0.03,
+    table: float = 0.2,
+    part_level: float = 0.09,
+    blur_px: float = 1.0,
+    noise: float = 0.006,
+    light: tuple[float, float] = (0.12, -0.1),
+    seed: int = 0,
+) -> np.ndarray:
     """Render a photo (8-bit sRGB grey) of parts lying on a printed mat.
 
     ``print_scale`` stretches everything printed (a printer's x and y scale errors);

@@ -91,9 +91,7 @@ def _ring_array(ring: Any, what: str = "ring") -> np.ndarray:
     """Validate one ring: an (N, 2) finite float array with N >= 3."""
     arr = np.asarray(ring, dtype=float)
     if arr.ndim != 2 or arr.shape[1] != 2 or arr.shape[0] < 3:
-        raise OptionError(
-            f"each {what} must be an (N, 2) array of x, y in mm with N >= 3, got shape {arr.shape}"
-        )
+        raise OptionError(f"each {what} must be an (N, 2) array of x, y in mm with N >= 3, got shape {arr.shape}")
     if not np.all(np.isfinite(arr)):
         raise OptionError(f"{what} has NaN or infinite coordinates; give finite mm values")
     return arr
@@ -359,9 +357,7 @@ def part_coverage(
 # --------------------------------------------------------------------------------------
 
 
-def rotate(
-    points_mm: np.ndarray, angle_deg: float, *, about_mm: tuple[float, float] = (0.0, 0.0)
-) -> np.ndarray:
+def rotate(points_mm: np.ndarray, angle_deg: float, *, about_mm: tuple[float, float] = (0.0, 0.0)) -> np.ndarray:
     """Rotate points counter-clockwise (y up) by ``angle_deg`` about ``about_mm``."""
     pts = np.asarray(points_mm, dtype=float)
     a = math.radians(angle_deg)
@@ -393,9 +389,7 @@ def regular_polygon(cx: float, cy: float, r: float, n: int, phase_deg: float = 0
     return np.column_stack([cx + r * np.cos(a), cy + r * np.sin(a)])
 
 
-def circle(
-    cx: float, cy: float, r: float, n: int | None = None, *, max_sagitta_mm: float = 1e-4
-) -> np.ndarray:
+def circle(cx: float, cy: float, r: float, n: int | None = None, *, max_sagitta_mm: float = 1e-4) -> np.ndarray:
     """Circle of radius r (mm) as an inscribed regular polygon (the polygon is the truth).
 
     Parameters
