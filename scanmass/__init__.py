@@ -24,9 +24,10 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
     from scanmass.mass.materials import Material, find_material, load_materials
     from scanmass.mass.plate import apply_mass, plate_mass
     from scanmass.measurement import Hole, Measurement, Part
+    from scanmass.options import MeasureOptions
     from scanmass.outputs.export import export_dxf, export_svg
     from scanmass.outputs.report import write_report
-    from scanmass.pipeline import MeasureOptions, measure
+    from scanmass.pipeline import measure
     from scanmass.scale.mat import make_mat
     from scanmass.scale.planemap import PlaneMap
     from scanmass.section import SectionProperties, section_properties
@@ -34,7 +35,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors only
 #: Public name -> the module that holds it (imported on first use).
 _WHERE = {
     "measure": "scanmass.pipeline",
-    "MeasureOptions": "scanmass.pipeline",
+    "MeasureOptions": "scanmass.options",
     "Measurement": "scanmass.measurement",
     "Part": "scanmass.measurement",
     "Hole": "scanmass.measurement",

@@ -42,8 +42,8 @@ class SegmentationError(ScanmassError):
     """No part could be separated from the background."""
 
 
-class OptionError(ScanmassError):
-    """An option value is out of range or inconsistent with another option."""
+class OptionError(ScanmassError, ValueError):
+    """An option value is out of range or inconsistent with another option (also a ValueError)."""
 
 
 class OutputError(ScanmassError):

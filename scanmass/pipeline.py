@@ -8,15 +8,16 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, fields
+from dataclasses import fields
 from typing import Any
 
 import numpy as np
 
-from scanmass.errors import OptionError, ScaleError
-from scanmass.load.decode import DEFAULT_MAX_PIXELS, LoadedImage, load_image
+from scanmass.errors import ScaleError
+from scanmass.load.decode import LoadedImage, load_image
 from scanmass.measurement import Hole, Measurement, Part, ScaleInfo, SourceInfo
-from scanmass.scale.planemap import DEFAULT_DPI_REL_U, PlaneMap
+from scanmass.options import MeasureOptions, check_max_pixels, resolve_options
+from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.segment.rings import PartRings, segment
 from scanmass.uncertainty import (
@@ -42,65 +43,8 @@ _FIGURES_SCALE_POWER = {
 }
 
 
-@dataclass(frozen=True)
-class MeasureOptions:
-    """Options of :func:`measure`, validated once (see its docstring)."""
-
-    dpi: float | tuple[float, float] | None = None
-    dpi_rel_u: float = DEFAULT_DPI_REL_U
-    level: float = 0.5
-    threshold: float | None = None
-    min_area_mm2: float = 2.0
-    min_hole_area_mm2: float | None = None
-    keep_cut: bool = False
-    max_pixels: int = DEFAULT_MAX_PIXELS
-    scale: str = "auto"
-    mat: Any = None
-    sheet: str | None = None
-    printed_x_mm: float | None = None
-    printed_y_mm: float | None = None
-    lens: Any = None
-
-    def check(self, path: str | None) -> None:
-        if not (math.isfinite(self.min_area_mm2) and self.min_area_mm2 >= 0):
-            raise OptionError(
-                f"minimum area {self.min_area_mm2!r} mm2 must be zero or positive, e.g. --min-area 2", path=path
-            )
-        if self.min_hole_area_mm2 is not None and not (
-            math.isfinite(self.min_hole_area_mm2) and self.min_hole_area_mm2 >= 0
-        ):
-            raise OptionError(f"minimum hole area {self.min_hole_area_mm2!r} mm2 must be zero or positive", path=path)
-        if not (math.isfinite(self.dpi_rel_u) and 0 <= self.dpi_rel_u < 0.5):
-            raise OptionError(
-                f"dpi uncertainty {self.dpi_rel_u!r} must be a fraction in [0, 0.5), e.g. 0.001 for 0.1 %", path=path
-            )
-        if int(self.max_pixels) <= 0:
-            raise OptionError(
-                f"max pixels {self.max_pixels!r} must be positive, e.g. --max-pixels 400000000", path=path
-            )
-
-
 def measure(
-    source: str | os.PathLike | np.ndarray,
-    *,
-    dpi: float | tuple[float, float] | None = None,
-    dpi_rel_u: float = DEFAULT_DPI_REL_U,
-    level: float = 0.5,
-    threshold: float | None = None,
-    min_area_mm2: float = 2.0,
-    min_hole_area_mm2: float | None = None,
-    keep_cut: bool = False,
-    max_pixels: int = DEFAULT_MAX_PIXELS,
-    material: str | None = None,
-    thickness_mm: float | None = None,
-    thickness_u_mm: float = 0.0,
-    materials_file: str | os.PathLike | None = None,
-    scale: str = "auto",
-    mat: Any = None,
-    sheet: str | None = None,
-    printed_x_mm: float | None = None,
-    printed_y_mm: float | None = None,
-    lens: Any = None,
+    source: str | os.PathLike | np.ndarray, options: MeasureOptions | None = None, **overrides: Any
 ) -> Measurement:
     """Measure every flat part in a scan.
 
@@ -109,35 +53,19 @@ def measure(
     source : path or ndarray
         An image file (JPEG, PNG, TIFF) or an array (uint8/uint16 sRGB-encoded, float
         linear light).
-    dpi : float or (float, float), optional
-        Scanner resolution; overrides the file's. Required for arrays and files without
-        a trustworthy DPI (72/96 are treated as unknown).
-    dpi_rel_u : float
-        Relative standard uncertainty of the resolution (default 0.1 %).
-    level : float
-        Boundary position between local background (0) and part (1) levels.
-    threshold : float, optional
-        Manual grey threshold (0-1 of the encoded full scale) instead of the local midpoint.
-    min_area_mm2, min_hole_area_mm2 : float
-        Specks and dust holes below these areas are ignored.
-    keep_cut : bool
-        Also measure parts touching the image edge (flagged ``cut``).
-    max_pixels : int
-        Refuse larger images (a memory guard).
-    material, thickness_mm, thickness_u_mm, materials_file
-        When a material and thickness are given, add mass figures to every part. In a
-        photo the thickness also lifts the measured face above the mat (parallax).
-    scale : {"auto", "dpi", "mat", "sheet"}
-        Scale source: ``auto`` takes a given or trustworthy file DPI as a scan, a
-        ``sheet`` as a plain sheet, and otherwise looks for a marker mat.
-    mat : str or path, optional
-        Mat layout name or layout JSON (default: recognised from the marker ids).
-    sheet : {"a4", "a3", "letter"}, optional
-        The photo shows the part on a plain sheet of this size.
-    printed_x_mm, printed_y_mm : float, optional
-        Caliper readings of the mat's two 100 mm check bars.
-    lens : str, path or LensProfile, optional
-        Lens profile from ``scanmass lens`` (corrects distortion of photos).
+    options : MeasureOptions, optional
+        The measuring options (default: ``MeasureOptions()``); see
+        :class:`scanmass.options.MeasureOptions` for each field, its default and meaning.
+    **overrides
+        Fields of :class:`~scanmass.options.MeasureOptions` by name, applied over
+        ``options``: ``dpi`` (required for arrays and files without a trustworthy DPI;
+        72/96 are treated as unknown), ``dpi_rel_u``, ``level``, ``threshold``,
+        ``min_area_mm2``, ``min_hole_area_mm2``, ``keep_cut``, ``max_pixels``, ``scale``
+        (``auto``/``dpi``/``mat``/``sheet``), ``mat``, ``sheet``, ``printed_x_mm``,
+        ``printed_y_mm``, ``lens``, and ``material``, ``thickness_mm``,
+        ``thickness_u_mm``, ``materials_file``: with a material and a thickness every
+        part gets mass figures; in a photo the thickness also lifts the measured face
+        above the mat (parallax).
 
     Returns
     -------
@@ -145,8 +73,10 @@ def measure(
 
     Raises
     ------
+    OptionError
+        An unknown option name (the message names the close match) or a bad value.
     ScanmassError
-        A one-line, user-fixable problem (bad file, no scale, no part, bad option).
+        A one-line, user-fixable problem (bad file, no scale, no part).
 
     Examples
     --------
@@ -155,59 +85,33 @@ def measure(
     >>> m = measure(img, dpi=254)
     >>> round(m.parts[0].area_mm2, 1), [round(c, 2) for c in m.parts[0].centroid_mm]
     (100.0, [15.0, 10.0])
+    >>> measure(img, MeasureOptions(dpi=254)).parts[0].area_mm2 == m.parts[0].area_mm2
+    True
     """
-    measurement, _ = measure_loaded(
-        source,
-        dpi=dpi,
-        dpi_rel_u=dpi_rel_u,
-        level=level,
-        threshold=threshold,
-        min_area_mm2=min_area_mm2,
-        min_hole_area_mm2=min_hole_area_mm2,
-        keep_cut=keep_cut,
-        max_pixels=max_pixels,
-        material=material,
-        thickness_mm=thickness_mm,
-        thickness_u_mm=thickness_u_mm,
-        materials_file=materials_file,
-        scale=scale,
-        mat=mat,
-        sheet=sheet,
-        printed_x_mm=printed_x_mm,
-        printed_y_mm=printed_y_mm,
-        lens=lens,
-    )
+    measurement, _ = measure_loaded(source, options, **overrides)
     return measurement
 
 
 def measure_loaded(
-    source: str | os.PathLike | np.ndarray,
-    *,
-    material: str | None = None,
-    thickness_mm: float | None = None,
-    thickness_u_mm: float = 0.0,
-    materials_file: str | os.PathLike | None = None,
-    **kwargs: Any,
+    source: str | os.PathLike | np.ndarray, options: MeasureOptions | None = None, **overrides: Any
 ) -> tuple[Measurement, LoadedImage]:
     """Like :func:`measure`, also returning the loaded image (for overlays)."""
-    options = MeasureOptions(**kwargs)
+    opts = resolve_options(options, overrides)
     path = None if isinstance(source, np.ndarray) else os.fspath(source)
-    options.check(path)
-    if material is not None and thickness_mm is None:  # a thickness alone lifts a photo's face (parallax)
-        raise OptionError(
-            "mass needs both a material and a thickness, e.g. --material carbon-steel --thickness 3", path=path
-        )
-    image = load_image(source, dpi=options.dpi, max_pixels=int(options.max_pixels))
+    opts.check(path)
+    image = load_image(source, dpi=opts.dpi, max_pixels=check_max_pixels(opts.max_pixels, path=path))
     from scanmass.scale.photo import measure_photo, scale_method
 
-    if scale_method(image, options) == "dpi":
-        result = measure_image(image, options)
+    if scale_method(image, opts) == "dpi":
+        result = measure_image(image, opts)
     else:
-        result = measure_photo(image, options, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm)
-    if material is not None:
+        result = measure_photo(image, opts, thickness_mm=opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm)
+    if opts.material is not None and opts.thickness_mm is not None:  # check() refuses a material alone
         from scanmass.mass.plate import apply_mass  # mass works on Measurements only
 
-        result = apply_mass(result, material, thickness_mm, thickness_u_mm=thickness_u_mm, materials=materials_file)
+        result = apply_mass(
+            result, opts.material, opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm, materials=opts.materials_file
+        )
     return result, image
 
 

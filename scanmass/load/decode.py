@@ -39,6 +39,7 @@ import numpy as np
 from PIL import Image, UnidentifiedImageError
 
 from scanmass.errors import ImageError, OptionError
+from scanmass.options import DEFAULT_MAX_PIXELS, MAX_DPI, MIN_DPI, check_dpi, check_max_pixels
 
 __all__ = [
     "DEFAULT_MAX_PIXELS",
@@ -49,20 +50,12 @@ __all__ = [
     "srgb_to_linear",
 ]
 
-#: Largest image (width x height) decoded unless the caller raises the limit.
-DEFAULT_MAX_PIXELS = 250_000_000
-
 #: Resolutions that image software writes when it does not know the real one
 #: (common practice: 72 dpi from early Macintosh displays, 96 dpi from Windows).
 UNKNOWN_DPI_VALUES = (72.0, 96.0)
 
 #: Smallest accepted image side, in pixels.
 MIN_SIDE_PX = 8
-
-#: Largest plausible resolution in dots per inch; anything above is a typo or junk.
-MAX_DPI = 100_000.0
-
-_DPI_MESSAGE = "dpi must be a positive number of dots per inch, e.g. --dpi 600"
 
 # Pillow plugins we let near the bytes (MPO, the multi-picture JPEG that many phones
 # write, comes in through the JPEG plugin).
@@ -348,35 +341,6 @@ def _tone_curve(info: dict, profile_space: bytes, levels: int) -> tuple[np.ndarr
 # ------------------------------------------------------------------------- DPI
 
 
-def _check_dpi_arg(dpi: object) -> tuple[float, float] | None:
-    if dpi is None:
-        return None
-    if isinstance(dpi, (tuple, list)) and len(dpi) == 2:
-        values = list(dpi)
-    elif isinstance(dpi, np.ndarray) and dpi.shape == (2,):
-        values = dpi.tolist()
-    else:
-        values = [dpi, dpi]
-    out = []
-    for v in values:
-        if isinstance(v, (bool, np.bool_)) or not isinstance(v, numbers.Real):
-            raise OptionError(f"{_DPI_MESSAGE} (got {dpi!r})")
-        f = float(v)
-        if not (math.isfinite(f) and 0.0 < f <= MAX_DPI):
-            raise OptionError(f"{_DPI_MESSAGE} (got {dpi!r}; at most {MAX_DPI:.0f})")
-        out.append(f)
-    return out[0], out[1]
-
-
-def _check_max_pixels(max_pixels: object) -> int:
-    is_int = isinstance(max_pixels, numbers.Integral) and not isinstance(max_pixels, (bool, np.bool_))
-    if not is_int or max_pixels <= 0:  # type: ignore[operator]
-        raise OptionError(
-            f"max_pixels must be a positive whole number of pixels, e.g. --max-pixels 300000000 (got {max_pixels!r})"
-        )
-    return int(max_pixels)
-
-
 def _fmt(v: float) -> str:
     return f"{v:.7g}"
 
@@ -396,7 +360,7 @@ def _round_dpi(v: float, *, px_per_m: int | None = None) -> tuple[float, bool]:
 def _judge_dpi(values: tuple[float, float], found: str) -> tuple[tuple[float, float] | None, str]:
     """Reject junk and the 72/96 defaults; ``found`` says where the values came from."""
     x, y = values
-    if not all(math.isfinite(v) and 0.0 < v <= MAX_DPI for v in values):
+    if not all(math.isfinite(v) and MIN_DPI <= v <= MAX_DPI for v in values):  # the range of check_dpi
         return None, f"{found}: not a plausible resolution, ignored; DPI unknown"
     for v in values:
         for default in UNKNOWN_DPI_VALUES:
@@ -1135,8 +1099,12 @@ def load_image(
     >>> img.dpi, img.encoding, img.grey.dtype.name, img.to_linear.shape
     ((300.0, 300.0), 'sRGB (assumed)', 'uint8', (256,))
     """
-    max_pixels = _check_max_pixels(max_pixels)
-    given = _check_dpi_arg(dpi)
+    max_pixels = check_max_pixels(max_pixels)
+    given = (
+        None
+        if dpi is None
+        else check_dpi(dpi, path=os.fspath(source) if isinstance(source, (str, os.PathLike)) else None)
+    )
     if isinstance(source, np.ndarray):
         return _load_array(source, given, max_pixels)
     if not isinstance(source, (str, os.PathLike)):

@@ -21,6 +21,7 @@ import numpy as np
 from scanmass.errors import OptionError
 from scanmass.mass.materials import Material, resolve_material
 from scanmass.measurement import Measurement, Part
+from scanmass.options import check_positive
 
 __all__ = [
     "STANDARD_GRAVITY_M_S2",
@@ -36,28 +37,6 @@ STANDARD_GRAVITY_M_S2 = 9.80665
 
 #: 1 kg/m3 expressed in g/mm3.
 _KG_M3_TO_G_MM3 = 1e-6
-
-
-def check_positive(name: str, value: Any, *, unit: str = "mm", hint: str = "", allow_zero: bool = False) -> float:
-    """Return ``value`` as a float if it is a finite positive number, else raise OptionError.
-
-    The message names the parameter and echoes the bad value.
-    """
-    if value is None:
-        raise OptionError(f"{name} is missing; {hint or f'pass a positive number of {unit}'}")
-    try:
-        if isinstance(value, bool):
-            raise TypeError
-        number = float(value)
-    except (TypeError, ValueError):
-        raise OptionError(
-            f"{name} must be a number of {unit}, got {value!r}; {hint or 'pass a positive number'}"
-        ) from None
-    ok = math.isfinite(number) and (number >= 0 if allow_zero else number > 0)
-    if not ok:
-        kind = "zero or a positive number" if allow_zero else "a positive number"
-        raise OptionError(f"{name} must be {kind} of {unit}, got {value!r}; {hint or 'pass a sensible value'}")
-    return number
 
 
 @dataclass

@@ -9,6 +9,7 @@ from typing import Any
 
 from scanmass.load.decode import load_image
 from scanmass.measurement import Measurement
+from scanmass.options import MeasureOptions
 from scanmass.outputs.atomic import write_atomic
 
 __all__ = ["MeasureOutputs", "write_outputs", "measure_to_outputs"]
@@ -55,16 +56,17 @@ def write_outputs(
 
 def measure_to_outputs(
     source: str | os.PathLike,
+    options: MeasureOptions | None = None,
     *,
     json_out: str | os.PathLike | None = None,
     csv_out: str | os.PathLike | None = None,
     overlay_out: str | os.PathLike | None = None,
-    **options: Any,
+    **overrides: Any,
 ) -> MeasureOutputs:
-    """Measure ``source`` (see :func:`scanmass.measure` for ``options``) and write outputs."""
+    """Measure ``source`` (see :func:`scanmass.measure` for ``options`` and ``overrides``) and write outputs."""
     from scanmass.pipeline import measure_loaded
 
-    measurement, image = measure_loaded(source, **options)
+    measurement, image = measure_loaded(source, options, **overrides)
     return write_outputs(
         measurement, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out, image=image, inputs=(Path(source),)
     )

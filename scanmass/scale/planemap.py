@@ -16,28 +16,9 @@ from typing import Any
 import numpy as np
 
 from scanmass.errors import OptionError
+from scanmass.options import DEFAULT_DPI_REL_U, check_dpi
 
 __all__ = ["PlaneMap", "DEFAULT_DPI_REL_U", "check_dpi"]
-
-#: Default relative standard uncertainty of a flatbed scanner's nominal resolution
-#: (0.1 %, 1 sigma). From memory: flatbed scanners are typically specified to about
-#: +-0.1 to 0.3 % along the carriage; override it with ``dpi_rel_u`` when known.
-DEFAULT_DPI_REL_U = 0.001
-
-
-def check_dpi(dpi: Any, *, path: str | None = None) -> tuple[float, float]:
-    """Validate a DPI value (number or (x, y) pair) and return it as a pair of floats."""
-    values = dpi if isinstance(dpi, (tuple, list, np.ndarray)) else (dpi, dpi)
-    try:
-        pair = tuple(float(v) for v in values)
-    except (TypeError, ValueError):
-        raise OptionError(f"dpi {dpi!r} is not a number; give dots per inch, e.g. --dpi 600", path=path) from None
-    if len(pair) != 2 or not all(math.isfinite(v) and 1.0 <= v <= 100_000.0 for v in pair):
-        raise OptionError(
-            f"dpi {dpi!r} is out of range; give a positive number of dots per inch (1-100000), e.g. --dpi 600",
-            path=path,
-        )
-    return pair  # type: ignore[return-value]
 
 
 @dataclass(frozen=True)
