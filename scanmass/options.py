@@ -214,7 +214,7 @@ class MeasureOptions:
     printed_y_mm: float | None = _option(None, "Caliper reading of the mat's 100 mm y check bar, mm.", "--printed-y")
     lens: Any = _option(
         None,
-        "Lens profile JSON from 'scanmass lens', or a LensProfile (corrects lens distortion).",
+        "Lens profile JSON from 'scanmass lens' (corrects lens distortion).",
         "--lens",
         kind="ref",
     )

@@ -29,16 +29,11 @@ from polygon_truth import truth
 from typer.testing import CliRunner
 
 from scanmass import measure
-from scanmass.batch.runner import (
-    DB_NAME,
-    BatchProgress,
-    content_hash,
-    export_batch,
-    find_images,
-    folder_settings,
-    run_batch,
-    settings_hash,
-)
+from scanmass.batch.discover import content_hash, find_images
+from scanmass.batch.export import export_batch
+from scanmass.batch.runner import BatchProgress, run_batch
+from scanmass.batch.settings import folder_settings, settings_hash
+from scanmass.batch.store import DB_NAME
 from scanmass.cli.app import app
 from scanmass.errors import OptionError, OutputError
 from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan

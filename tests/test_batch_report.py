@@ -10,7 +10,8 @@ import math
 import pytest
 from typer.testing import CliRunner
 
-from scanmass.batch.runner import run_batch, summary_rows
+from scanmass.batch.export import summary_rows
+from scanmass.batch.runner import run_batch
 from scanmass.cli.app import app
 from scanmass.testing.scans import SynthPart, circle, render_scan, save_scan
 

@@ -7,11 +7,13 @@ exit code 1. Nothing here computes.
 
 from __future__ import annotations
 
+import functools
+import inspect
 import sys
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Any, NoReturn
 
 import typer
 from rich.console import Console
@@ -19,6 +21,7 @@ from rich.markup import escape
 
 from scanmass import __version__
 from scanmass.errors import ScanmassError
+from scanmass.options import OPTION_NAMES, MeasureOptions, option_field
 
 app = typer.Typer(
     name="scanmass",
@@ -38,7 +41,7 @@ def _console(stderr: bool = False) -> Console:
     return Console(stderr=stderr, highlight=False, soft_wrap=stderr)
 
 
-def fail(message: str) -> None:
+def fail(message: str) -> NoReturn:
     """Print a one-line error to stderr and exit with :data:`EXIT_USER_ERROR`."""
     _console(stderr=True).print(f"[bold red]error:[/] {escape(message)}", markup=True, highlight=False)
     raise typer.Exit(code=EXIT_USER_ERROR)
@@ -68,61 +71,94 @@ def main(
     """Geometric and mass properties of flat parts from scans and photos."""
 
 
-# -- shared options -------------------------------------------------------------------
-DpiOpt = Annotated[
-    float | None, typer.Option("--dpi", help="Scanner resolution in dots per inch; overrides the file's.")
-]
-DpiRelUOpt = Annotated[
-    float, typer.Option("--dpi-rel-u", help="Relative standard uncertainty of the resolution (0.001 = 0.1 %).")
-]
-LevelOpt = Annotated[
-    float, typer.Option("--level", help="Edge position between local background (0) and part (1) levels.")
-]
-ThresholdOpt = Annotated[
-    float | None,
-    typer.Option("--threshold", help="Manual grey threshold, 0-1 of full scale, instead of the local midpoint."),
-]
-MinAreaOpt = Annotated[float, typer.Option("--min-area", help="Ignore specks smaller than this, mm².")]
-MinHoleOpt = Annotated[
-    float | None, typer.Option("--min-hole-area", help="Ignore holes smaller than this, mm² (default: --min-area).")
-]
-KeepCutOpt = Annotated[
-    bool, typer.Option("--keep-cut", help="Also measure parts touching the image edge (flagged as cut).")
-]
-MaxPixelsOpt = Annotated[
-    int, typer.Option("--max-pixels", help="Refuse images with more pixels than this (memory guard).")
-]
-MaterialOpt = Annotated[
-    str | None, typer.Option("--material", help="Material name for mass figures (see 'scanmass materials').")
-]
-ThicknessOpt = Annotated[float | None, typer.Option("--thickness", help="Plate thickness, mm (for mass).")]
-ThicknessTolOpt = Annotated[float, typer.Option("--thickness-tol", help="Standard uncertainty of the thickness, mm.")]
-MaterialsFileOpt = Annotated[Path | None, typer.Option("--materials", help="TOML file adding or overriding materials.")]
-ScaleOpt = Annotated[
-    str,
-    typer.Option(
-        "--scale", help="Scale source: auto (a trustworthy DPI means a scan, else a marker mat), dpi, mat or sheet."
-    ),
-]
-MatOpt = Annotated[
-    str | None,
-    typer.Option("--mat", help="Marker mat layout name or layout JSON (default: recognised from the markers)."),
-]
-SheetOpt = Annotated[
-    str | None, typer.Option("--sheet", help="The part lies on a plain sheet of paper: a4, a3 or letter.")
-]
-PrintedXOpt = Annotated[
-    float | None, typer.Option("--printed-x", help="Caliper reading of the mat's 100 mm x check bar, mm.")
-]
-PrintedYOpt = Annotated[
-    float | None, typer.Option("--printed-y", help="Caliper reading of the mat's 100 mm y check bar, mm.")
-]
-LensOpt = Annotated[
-    Path | None, typer.Option("--lens", help="Lens profile JSON from 'scanmass lens' (corrects lens distortion).")
-]
+# -- the measuring options: flag, help text and default from MeasureOptions ------------
+def _flag(name: str) -> str:
+    return str(option_field(name).metadata["flag"])
+
+
+def _help(name: str) -> str:
+    return str(option_field(name).metadata["help"])
+
+
+#: Default measuring options (each command's defaults come from here).
+DEFAULTS = MeasureOptions()
+
+DpiOpt = Annotated[float | None, typer.Option(_flag("dpi"), help=_help("dpi"))]
+DpiRelUOpt = Annotated[float, typer.Option(_flag("dpi_rel_u"), help=_help("dpi_rel_u"))]
+LevelOpt = Annotated[float, typer.Option(_flag("level"), help=_help("level"))]
+ThresholdOpt = Annotated[float | None, typer.Option(_flag("threshold"), help=_help("threshold"))]
+MinAreaOpt = Annotated[float, typer.Option(_flag("min_area_mm2"), help=_help("min_area_mm2"))]
+MinHoleOpt = Annotated[float | None, typer.Option(_flag("min_hole_area_mm2"), help=_help("min_hole_area_mm2"))]
+KeepCutOpt = Annotated[bool, typer.Option(_flag("keep_cut"), help=_help("keep_cut"))]
+MaxPixelsOpt = Annotated[int, typer.Option(_flag("max_pixels"), help=_help("max_pixels"))]
+MaterialOpt = Annotated[str | None, typer.Option(_flag("material"), help=_help("material"))]
+ThicknessOpt = Annotated[float | None, typer.Option(_flag("thickness_mm"), help=_help("thickness_mm"))]
+ThicknessTolOpt = Annotated[float, typer.Option(_flag("thickness_u_mm"), help=_help("thickness_u_mm"))]
+MaterialsFileOpt = Annotated[Path | None, typer.Option(_flag("materials_file"), help=_help("materials_file"))]
+ScaleOpt = Annotated[str, typer.Option(_flag("scale"), help=_help("scale"))]
+MatOpt = Annotated[str | None, typer.Option(_flag("mat"), help=_help("mat"))]
+SheetOpt = Annotated[str | None, typer.Option(_flag("sheet"), help=_help("sheet"))]
+PrintedXOpt = Annotated[float | None, typer.Option(_flag("printed_x_mm"), help=_help("printed_x_mm"))]
+PrintedYOpt = Annotated[float | None, typer.Option(_flag("printed_y_mm"), help=_help("printed_y_mm"))]
+LensOpt = Annotated[Path | None, typer.Option(_flag("lens"), help=_help("lens"))]
+
+#: Each MeasureOptions field as a command-line parameter (its type there).
+MEASURE_OPTION_PARAMS: dict[str, Any] = {
+    "dpi": DpiOpt,
+    "dpi_rel_u": DpiRelUOpt,
+    "level": LevelOpt,
+    "threshold": ThresholdOpt,
+    "min_area_mm2": MinAreaOpt,
+    "min_hole_area_mm2": MinHoleOpt,
+    "keep_cut": KeepCutOpt,
+    "max_pixels": MaxPixelsOpt,
+    "material": MaterialOpt,
+    "thickness_mm": ThicknessOpt,
+    "thickness_u_mm": ThicknessTolOpt,
+    "materials_file": MaterialsFileOpt,
+    "scale": ScaleOpt,
+    "mat": MatOpt,
+    "sheet": SheetOpt,
+    "printed_x_mm": PrintedXOpt,
+    "printed_y_mm": PrintedYOpt,
+    "lens": LensOpt,
+}
+assert set(MEASURE_OPTION_PARAMS) == set(OPTION_NAMES), "every measuring option needs its command-line type"
+
+
+def with_measure_options(command: Callable[..., None]) -> Callable[..., None]:
+    """Give a command every measuring option.
+
+    The command's keyword-only parameter ``options: MeasureOptions`` becomes, for typer,
+    one flag per :class:`~scanmass.options.MeasureOptions` field (flag, help text and
+    default from the field); when the command runs, the parsed values are gathered back
+    into one ``MeasureOptions``.
+    """
+    signature = inspect.signature(command, eval_str=True)
+    params: list[inspect.Parameter] = []
+    for param in signature.parameters.values():
+        if param.name != "options":
+            params.append(param)
+            continue
+        params += [
+            inspect.Parameter(
+                name, inspect.Parameter.KEYWORD_ONLY, default=getattr(DEFAULTS, name), annotation=annotation
+            )
+            for name, annotation in MEASURE_OPTION_PARAMS.items()
+        ]
+
+    @functools.wraps(command)
+    def run(*args: Any, **kwargs: Any) -> None:
+        options = MeasureOptions(**{name: kwargs.pop(name) for name in MEASURE_OPTION_PARAMS})
+        command(*args, options=options, **kwargs)
+
+    run.__signature__ = signature.replace(parameters=params)  # type: ignore[attr-defined]
+    run.__annotations__ = {p.name: p.annotation for p in params}
+    return run
 
 
 @app.command()
+@with_measure_options
 def measure(
     image: Annotated[Path, typer.Argument(help="Image file: JPEG, PNG or TIFF.")],
     *,
@@ -133,54 +169,14 @@ def measure(
     overlay_out: Annotated[
         Path | None, typer.Option("--overlay", help="Write an overlay PNG of what was measured.")
     ] = None,
-    dpi: DpiOpt = None,
-    dpi_rel_u: DpiRelUOpt = 0.001,
-    level: LevelOpt = 0.5,
-    threshold: ThresholdOpt = None,
-    min_area: MinAreaOpt = 2.0,
-    min_hole_area: MinHoleOpt = None,
-    keep_cut: KeepCutOpt = False,
-    max_pixels: MaxPixelsOpt = 250_000_000,
-    material: MaterialOpt = None,
-    thickness: ThicknessOpt = None,
-    thickness_tol: ThicknessTolOpt = 0.0,
-    materials: MaterialsFileOpt = None,
-    scale: ScaleOpt = "auto",
-    mat: MatOpt = None,
-    sheet: SheetOpt = None,
-    printed_x: PrintedXOpt = None,
-    printed_y: PrintedYOpt = None,
-    lens: LensOpt = None,
+    options: MeasureOptions,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Do not print the table.")] = False,
 ) -> None:
     """Measure every flat part in IMAGE: area, centroid, second moments, holes, uncertainties."""
     from scanmass.outputs.writers import measure_to_outputs
 
     with user_errors():
-        result = measure_to_outputs(
-            image,
-            json_out=json_out,
-            csv_out=csv_out,
-            overlay_out=overlay_out,
-            dpi=dpi,
-            dpi_rel_u=dpi_rel_u,
-            level=level,
-            threshold=threshold,
-            min_area_mm2=min_area,
-            min_hole_area_mm2=min_hole_area,
-            keep_cut=keep_cut,
-            max_pixels=max_pixels,
-            material=material,
-            thickness_mm=thickness,
-            thickness_u_mm=thickness_tol,
-            materials_file=materials,
-            scale=scale,
-            mat=mat,
-            sheet=sheet,
-            printed_x_mm=printed_x,
-            printed_y_mm=printed_y,
-            lens=lens,
-        )
+        result = measure_to_outputs(image, options, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out)
     if json_out == "-":
         sys.stdout.write(result.document + "\n")
         return
@@ -282,7 +278,7 @@ def balance(
     *,
     material: MaterialOpt = None,
     thickness: ThicknessOpt = None,
-    thickness_tol: ThicknessTolOpt = 0.0,
+    thickness_tol: ThicknessTolOpt = DEFAULTS.thickness_u_mm,
     rpm: Annotated[float | None, typer.Option("--rpm", help="Maximum service speed, rev/min.")] = None,
     grade: Annotated[
         float | None, typer.Option("--grade", help="ISO 21940-11 balance quality grade G, mm/s (e.g. 6.3).")
@@ -415,7 +411,7 @@ def report(
     if html is None:
         fail("give the report file to write with --html OUT.html")
     if len(results) == 1 and results[0].is_dir():
-        from scanmass.batch.runner import summary_rows
+        from scanmass.batch.export import summary_rows
         from scanmass.outputs.report import write_summary
 
         with user_errors():
@@ -489,6 +485,7 @@ def _batch_progress_display(console: Console, watch: bool):
 
 
 @app.command()
+@with_measure_options
 def batch(
     folders: Annotated[
         list[Path], typer.Argument(help="Folders of scans, searched recursively (an image file works too).")
@@ -543,24 +540,7 @@ def batch(
             help="Run on a Dask cluster: tcp://HOST:PORT (its workers must reach the files by the same paths), or local:N for a local cluster of N processes. Needs the dask distributed package.",
         ),
     ] = None,
-    dpi: DpiOpt = None,
-    dpi_rel_u: DpiRelUOpt = 0.001,
-    level: LevelOpt = 0.5,
-    threshold: ThresholdOpt = None,
-    min_area: MinAreaOpt = 2.0,
-    min_hole_area: MinHoleOpt = None,
-    keep_cut: KeepCutOpt = False,
-    max_pixels: MaxPixelsOpt = 250_000_000,
-    material: MaterialOpt = None,
-    thickness: ThicknessOpt = None,
-    thickness_tol: ThicknessTolOpt = 0.0,
-    materials: MaterialsFileOpt = None,
-    scale: ScaleOpt = "auto",
-    mat: MatOpt = None,
-    sheet: SheetOpt = None,
-    printed_x: PrintedXOpt = None,
-    printed_y: PrintedYOpt = None,
-    lens: LensOpt = None,
+    options: MeasureOptions,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="No progress bar; only the summary.")] = False,
 ) -> None:
     """Measure every image under FOLDERS into a resumable database in OUT.
@@ -595,24 +575,7 @@ def batch(
                     watch=watch,
                     poll_seconds=poll,
                     progress=update,
-                    dpi=dpi,
-                    dpi_rel_u=dpi_rel_u,
-                    level=level,
-                    threshold=threshold,
-                    min_area_mm2=min_area,
-                    min_hole_area_mm2=min_hole_area,
-                    keep_cut=keep_cut,
-                    max_pixels=max_pixels,
-                    material=material,
-                    thickness_mm=thickness,
-                    thickness_u_mm=thickness_tol,
-                    materials_file=materials,
-                    scale=scale,
-                    mat=mat,
-                    sheet=sheet,
-                    printed_x_mm=printed_x,
-                    printed_y_mm=printed_y,
-                    lens=lens,
+                    options=options,
                 )
             finally:
                 if bar is not None:
@@ -664,7 +627,7 @@ def batch_export(
     out: Annotated[str, typer.Option("--out", help="File to write; '-' for standard output.")] = "-",
 ) -> None:
     """Export a batch's results again from its database."""
-    from scanmass.batch.runner import export_batch, iter_export
+    from scanmass.batch.export import export_batch, iter_export
 
     with user_errors():
         if out == "-":
