@@ -347,9 +347,10 @@ def resolve_options(options: MeasureOptions | Mapping[str, Any] | None, override
         base = MeasureOptions()
     elif isinstance(options, MeasureOptions):
         base = options
-    elif isinstance(options, Mapping):
+    elif isinstance(options, Mapping):  # e.g. from a settings file: a pair as a list
         check_option_names(options)
-        base = MeasureOptions(**options)
+        values: dict[str, Any] = {k: (tuple(v) if isinstance(v, list) else v) for k, v in options.items()}
+        base = MeasureOptions(**values)
     else:
         raise OptionError(
             f"options must be a MeasureOptions, not {type(options).__name__}; or pass the options by name, e.g. dpi=600"

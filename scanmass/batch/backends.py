@@ -22,7 +22,7 @@ from typing import Any
 
 from scanmass.batch.store import utc_now
 from scanmass.errors import OptionError, ScanmassError
-from scanmass.options import MeasureOptions
+from scanmass.options import resolve_options
 
 __all__ = [
     "Backend",
@@ -138,10 +138,7 @@ def measure_task(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
     t0, c0 = time.perf_counter(), time.process_time()
     result = rows = sha = None
     try:
-        opts = MeasureOptions(
-            **{k: (tuple(v) if k == "dpi" and isinstance(v, list) else v) for k, v in options.items()}
-        )
-        m = measure(path, opts)
+        m = measure(path, resolve_options(options, {}))
         result, rows, sha = m.to_json(indent=None), m.csv_rows(), m.source.sha256
         status, error = "ok", None
     except ScanmassError as exc:

@@ -25,7 +25,7 @@ from typing import Any
 from scanmass.batch.discover import content_hash
 from scanmass.errors import OptionError
 from scanmass.measurement import SCHEMA
-from scanmass.options import OPTION_NAMES, MeasureOptions, check_option_names, option_kind
+from scanmass.options import OPTION_NAMES, MeasureOptions, check_option_names, option_kind, resolve_options
 
 __all__ = [
     "SETTINGS_FILE",
@@ -118,7 +118,7 @@ def validate_settings(options: Mapping[str, Any], where: str | None) -> None:
     only with a material (mass figures for every file) and looks the material up now
     rather than in every file.
     """
-    opts = MeasureOptions(**{k: (tuple(v) if isinstance(v, list) else v) for k, v in options.items()})
+    opts = resolve_options(options, {})
     opts.check(where)
     if (opts.material is None) != (opts.thickness_mm is None):
         raise OptionError(

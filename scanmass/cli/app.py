@@ -13,7 +13,7 @@ import sys
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated, Any, NoReturn
+from typing import Annotated, Any, Literal, NoReturn, cast
 
 import typer
 from rich.console import Console
@@ -434,6 +434,8 @@ def report(
 
 
 # -- batch: folders of scans into a resumable database (issue 5) --------------------------
+ExportFormat = Literal["csv", "jsonl"]  # checked by the export itself
+
 #: Exit code of a batch stopped by Ctrl-C before it finished (128 + SIGINT, common practice).
 EXIT_INTERRUPTED = 130
 
@@ -459,7 +461,7 @@ def _batch_progress_display(console: Console, watch: bool):
         console=console,
     )
     task = bar.add_task("measuring", total=None, ok=0, failed=0, dup=0)
-    started = []
+    started: list[bool] = []
 
     def update(p) -> None:
         if not started:  # shown once there is something to measure (or to watch)
@@ -631,10 +633,10 @@ def batch_export(
 
     with user_errors():
         if out == "-":
-            for piece in iter_export(out_dir, format=format):
+            for piece in iter_export(out_dir, format=cast(ExportFormat, format)):
                 sys.stdout.write(piece)
             return
-        written = export_batch(out_dir, format=format, out=out)
+        written = export_batch(out_dir, format=cast(ExportFormat, format), out=out)
     _console(stderr=True).print(f"wrote {escape(str(written))}", markup=False)
 
 
