@@ -1,6 +1,6 @@
 """Accuracy of photos on the A4 marker mat (run by hand; prints figures and ratios).
 
-    python benchmarks/bench_photo.py [--n 10] [--width 4000] [--height 3000]
+    python -m benchmarks.bench_photo [--n 10] [--width 4000] [--height 3000]
 
 Rendered photos (tests/_mat_photos.py: exact pixel coverage through a pinhole camera,
 blur, noise, uneven light, JPEG 92) of parts at random places and angles in the clear
@@ -27,9 +27,9 @@ from PIL import Image
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
 from _mat_photos import PhotoParts, make_camera, render_photo, truth  # noqa: E402
 
-from scanmass import measure  # noqa: E402
+import scanmass  # noqa: E402
+from scanmass import make_mat, measure  # noqa: E402
 from scanmass.scale.lens import calibrate_lens  # noqa: E402
-from scanmass.scale.mat import make_mat  # noqa: E402
 from scanmass.testing.scans import circle, l_section, rectangle, rotate  # noqa: E402
 
 MAT = make_mat("a4-portrait")
@@ -116,6 +116,7 @@ def main():
     ap.add_argument("--width", type=int, default=4000)
     ap.add_argument("--height", type=int, default=3000)
     args = ap.parse_args()
+    print(f"scanmass {scanmass.__version__} from {scanmass.__file__}")
     size = (args.width, args.height)
     f_px = 3300.0 * args.width / 4000
     rng = np.random.default_rng(2024)
