@@ -54,6 +54,7 @@ import io
 import math
 import time
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import sympy
@@ -158,6 +159,7 @@ def _overlap(holes) -> bool:
 
 def _render(case: Case, rng: np.random.Generator) -> np.ndarray:
     fg, bg = (0.06, 0.8) if case.polarity == "dark" else (0.65, 0.04)
+    opts: dict[str, Any]
     if case.condition == "clean":
         opts = dict(blur_px=float(rng.uniform(0.6, 1.0)), noise=0.002, illumination=None)
     else:
@@ -272,7 +274,7 @@ def _scanmass(img: np.ndarray, dpi: float, truth: Figures):
     if not m.parts:
         return None
     p = min(m.parts, key=lambda q: math.dist(q.centroid_mm, truth.centroid_mm))
-    fig = Figures(p.area_mm2, tuple(p.centroid_mm), p.ixx_mm4, p.iyy_mm4, p.ixy_mm4)
+    fig = Figures(p.area_mm2, (p.centroid_mm[0], p.centroid_mm[1]), p.ixx_mm4, p.iyy_mm4, p.ixy_mm4)
     return fig, p
 
 
@@ -443,10 +445,10 @@ def main() -> None:
         if "part" in row:
             p = row["part"]
             terms = p.uncertainty_terms
-            err = _signed_errors(Figures(p.area_mm2, p.centroid_mm, p.ixx_mm4, p.iyy_mm4, p.ixy_mm4), truth)
+            signed = _signed_errors(Figures(p.area_mm2, p.centroid_mm, p.ixx_mm4, p.iyy_mm4, p.ixy_mm4), truth)
             image_sigma = {f: math.hypot(terms["edge"][f], terms["threshold"][f]) for f in FIGURES}
             stated = _stated_u(p)
-            row["z"] = {f: abs(err[f]) / image_sigma[f] if image_sigma[f] > 0 else math.inf for f in FIGURES}
+            row["z"] = {f: abs(signed[f]) / image_sigma[f] if image_sigma[f] > 0 else math.inf for f in FIGURES}
             row["stated_vs_terms"] = max(abs(stated[f] - image_sigma[f]) / image_sigma[f] for f in FIGURES)
             row["scale_term"] = max(abs(terms["scale"][f]) for f in FIGURES)
         rows.append(row)
@@ -454,7 +456,7 @@ def main() -> None:
 
     ok = [r for r in rows if all(r["errors"][n] is not None for n in METHODS)]
     failed = [r for r in rows if r not in ok]
-    err = {n: np.array([r["errors"][n] for r in ok]).reshape(-1, 4) for n in METHODS}
+    err: dict[str, np.ndarray] = {n: np.array([r["errors"][n] for r in ok]).reshape(-1, 4) for n in METHODS}
     print(
         f"{len(rows)} cases in {elapsed:.0f} s ({', '.join(f'{n} {spent[n]:.0f} s' for n in METHODS)}); "
         f"{len(ok)} measured by all three, {len(failed)} failed in at least one (counted as failed in every column)"

@@ -131,14 +131,16 @@ def same_luma(scan: Path) -> str:
     with Image.open(scan) as im:
         im.draft("L", im.size)
         floor = np.asarray(im)
-    planes = {
+    planes: dict[str, np.ndarray | None] = {
         "cv2.imread GRAYSCALE": cv2.imread(str(scan), cv2.IMREAD_GRAYSCALE),
         "scanmass.load_image": load_image(scan).grey,
     }
     notes = []
     for name, plane in planes.items():
-        if plane.shape != floor.shape:
-            raise SystemExit(f"{name} decodes {plane.shape}, the floor {floor.shape}: not the same work")
+        if plane is None or plane.shape != floor.shape:
+            raise SystemExit(
+                f"{name} decodes {getattr(plane, 'shape', None)}, the floor {floor.shape}: not the same work"
+            )
         diff = int(np.abs(plane.astype(int) - floor.astype(int)).max())
         notes.append(f"{name} {'identical' if diff == 0 else f'differs by up to {diff} levels'}")
     return "luma plane vs the decode floor: " + "; ".join(notes)
