@@ -2,7 +2,7 @@
 
 Run by hand from the repository root:
 
-    python benchmarks/bench_batch.py [--files 200] [--format png] [--cache DIR]
+    python -m benchmarks.bench_batch [--files 200] [--format png] [--cache DIR]
 
 The scans are rendered once by scanmass.testing.scans into a cache folder (default
 ``benchmarks/.cache/batch-a4-300dpi-<format>``) and reused: A4 portrait (210 x 297 mm) at
@@ -40,7 +40,8 @@ from pathlib import Path
 
 import numpy as np
 
-from scanmass.batch.runner import run_batch
+import scanmass
+from scanmass import run_batch
 from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
 A4_MM = (210.0, 297.0)
@@ -128,6 +129,7 @@ def main() -> None:
     ap.add_argument("--cache", type=Path, default=None, help="cache folder of the rendered scans")
     ap.add_argument("--no-dask", action="store_true", help="skip the Dask LocalCluster run")
     args = ap.parse_args()
+    print(f"scanmass {scanmass.__version__} from {scanmass.__file__}")
 
     cache = args.cache or Path(__file__).parent / ".cache" / f"batch-a4-300dpi-{args.format}"
     scans = ensure_scans(cache, args.files, args.format)
@@ -183,8 +185,8 @@ def main() -> None:
         t0 = time.perf_counter()
         cmd = [
             sys.executable,
-            "-c",
-            "from scanmass.cli.app import app; app()",
+            "-m",
+            "scanmass",
             "batch",
             str(folder),
             "--out",

@@ -2,7 +2,7 @@
 
 Run by hand from the repository root:
 
-    python benchmarks/bench_export_fit.py [--dpi 600]
+    python -m benchmarks.bench_export_fit [--dpi 600]
 
 Renders a synthetic scan (scanmass.testing.scans) of a slotted plate with round holes and an
 L bracket, measures it with scanmass.measure, and writes DXF files with no fitting, with
@@ -25,8 +25,9 @@ import ezdxf
 import numpy as np
 from shapely.geometry import Polygon
 
-from scanmass import measure
-from scanmass.outputs.export import export_dxf, fit_tolerance_default_mm
+import scanmass
+from scanmass import export_dxf, measure
+from scanmass.outputs.export import fit_tolerance_default_mm
 from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
 
@@ -66,6 +67,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--dpi", type=float, default=600.0)
     args = parser.parse_args()
+    print(f"scanmass {scanmass.__version__} from {scanmass.__file__}")
 
     plate = SynthPart(rectangle(10, 10, 120, 70), [circle(30, 45, 6.0), circle(110, 60, 4.0), _slot(75, 30, 40, 5)])
     bracket = SynthPart(l_section(150, 10, 60, 50, 8))

@@ -1,10 +1,11 @@
 """Accuracy of photos on the A4 marker mat (run by hand; prints figures and ratios).
 
-    python benchmarks/bench_photo.py [--n 10] [--width 4000] [--height 3000]
+    python -m benchmarks.bench_photo [--n 10] [--width 4000] [--height 3000]
 
 Rendered photos (tests/_mat_photos.py: exact pixel coverage through a pinhole camera,
 blur, noise, uneven light, JPEG 92) of parts at random places and angles in the clear
-area, tilts 0-30 degrees, any roll, about 0.1 mm per px at 4000 x 3000 px. Three
+area, tilts 0-30 degrees, any roll, about 0.1 mm per px at 4000 x 3000 px (the same
+framing at other sizes, so 0.26 mm per px at 1600 x 1200). Three
 conditions: a plain pinhole lens; k1 = -0.05 with a lens profile calibrated from six
 views; a 6 mm thick part with and without --thickness. Printer check values given.
 Targets (issue 3): median centroid error <= 0.05 mm, median area error <= 0.1 %,
@@ -27,12 +28,15 @@ from PIL import Image
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
 from _mat_photos import PhotoParts, make_camera, render_photo, truth  # noqa: E402
 
-from scanmass import measure  # noqa: E402
+import scanmass  # noqa: E402
+from scanmass import make_mat, measure  # noqa: E402
 from scanmass.scale.lens import calibrate_lens  # noqa: E402
-from scanmass.scale.mat import make_mat  # noqa: E402
 from scanmass.testing.scans import circle, l_section, rectangle, rotate  # noqa: E402
 
 MAT = make_mat("a4-portrait")
+#: Focal length (px) of the 4000 px wide default photo; camera distances are set from it so
+#: that every image size frames the whole mat alike (smaller images: coarser mm per px).
+F_FRAMING_PX = 3300.0
 
 
 def shapes(rng):
@@ -56,7 +60,7 @@ def camera(rng, size, f_px, k1=0.0):
         size=size,
         f_px=f_px,
         target_mm=(105 + rng.uniform(-5, 5), 148 + rng.uniform(-5, 5)),
-        distance_mm=f_px * 0.1 * 1.05,
+        distance_mm=F_FRAMING_PX * 0.1 * 1.05,
         tilt_deg=rng.uniform(0, 30),
         tilt_dir_deg=rng.uniform(0, 360),
         roll_deg=90 + rng.uniform(-20, 20),
@@ -116,8 +120,9 @@ def main():
     ap.add_argument("--width", type=int, default=4000)
     ap.add_argument("--height", type=int, default=3000)
     args = ap.parse_args()
+    print(f"scanmass {scanmass.__version__} from {scanmass.__file__}")
     size = (args.width, args.height)
-    f_px = 3300.0 * args.width / 4000
+    f_px = F_FRAMING_PX * args.width / 4000
     rng = np.random.default_rng(2024)
     t0 = time.time()
     run("pinhole, tilt 0-30", args.n, size, f_px, rng)
@@ -127,7 +132,7 @@ def main():
             cam = make_camera(
                 size=size,
                 f_px=f_px,
-                distance_mm=f_px * 0.1 * 0.95,
+                distance_mm=F_FRAMING_PX * 0.1 * 0.95,
                 tilt_deg=tilt,
                 tilt_dir_deg=az,
                 roll_deg=90,
