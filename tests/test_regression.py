@@ -162,59 +162,59 @@ LIMITS: dict[str, list[dict[str, float]]] = {
     "plate-300-dark": [
         # observed: area 9.8e-07, centroid_px 1.5e-03, ixx 6.1e-06, iyy 1.5e-05, ixy 1.3e-05
         # 0.3 sigma: area 2.5e-05, centroid_px 7.4e-04, ixx 3.7e-05, iyy 3.2e-05, ixy 7.0e-06
-        {"area": 1e-04, "centroid_px": 5e-03, "ixx": 2e-04, "iyy": 1e-04, "ixy": 5e-05},
+        {"area": 0.0001, "centroid_px": 0.005, "ixx": 0.00015, "iyy": 0.0001, "ixy": 5e-05},
     ],
     "plate-600-light": [
         # observed: area 4.0e-06, centroid_px 9.0e-04, ixx 1.1e-05, iyy 4.6e-06, ixy 5.4e-06
         # 0.3 sigma: area 2.9e-05, centroid_px 1.3e-03, ixx 4.3e-05, iyy 3.7e-05, ixy 7.4e-06
-        {"area": 1e-04, "centroid_px": 5e-03, "ixx": 2e-04, "iyy": 2e-04, "ixy": 3e-05},
+        {"area": 0.0001, "centroid_px": 0.005, "ixx": 0.00015, "iyy": 0.00015, "ixy": 3e-05},
     ],
     "l-300-light": [
         # observed: area 5.8e-05, centroid_px 3.5e-03, ixx 7.1e-05, iyy 8.0e-05, ixy 1.7e-05
         # 0.3 sigma: area 4.0e-05, centroid_px 1.1e-03, ixx 5.1e-05, iyy 4.8e-05, ixy 3.2e-06
-        {"area": 2e-04, "centroid_px": 1e-02, "ixx": 3e-04, "iyy": 3e-04, "ixy": 5e-05},
+        {"area": 0.0002, "centroid_px": 0.015, "ixx": 0.0003, "iyy": 0.0003, "ixy": 5e-05},
     ],
     "l-600-dark": [
         # observed: area 7.9e-05, centroid_px 3.6e-03, ixx 6.4e-05, iyy 1.0e-04, ixy 4.8e-05
         # 0.3 sigma: area 2.8e-05, centroid_px 1.9e-03, ixx 3.3e-05, iyy 3.4e-05, ixy 1.8e-05
-        {"area": 3e-04, "centroid_px": 1e-02, "ixx": 2e-04, "iyy": 5e-04, "ixy": 2e-04},
+        {"area": 0.0003, "centroid_px": 0.015, "ixx": 0.0002, "iyy": 0.0005, "ixy": 0.00015},
     ],
     "ring-300-dark": [
         # observed: area 4.3e-03, centroid_px 6.2e-03, ixx 3.9e-03, iyy 4.0e-03, ixy 4.8e-04
         # 0.3 sigma: area 2.8e-03, centroid_px 1.0e-02, ixx 2.8e-03, iyy 2.8e-03, ixy 7.6e-05
-        {"area": 1e-02, "centroid_px": 5e-02, "ixx": 1e-02, "iyy": 1e-02, "ixy": 2e-03},
+        {"area": 0.015, "centroid_px": 0.05, "ixx": 0.015, "iyy": 0.015, "ixy": 0.0015},
     ],
     "thin-ring-300-dark": [
         # observed: area 4.2e-02, centroid_px 3.7e-02, ixx 4.2e-02, iyy 4.3e-02, ixy 2.2e-04
         # 0.3 sigma: area 1.1e-02, centroid_px 7.7e-03, ixx 1.1e-02, iyy 1.1e-02, ixy 6.0e-05
-        {"area": 2e-01, "centroid_px": 2e-01, "ixx": 2e-01, "iyy": 2e-01, "ixy": 7e-04},
+        {"area": 0.15, "centroid_px": 0.15, "ixx": 0.15, "iyy": 0.15, "ixy": 0.0007},
     ],
     "ring-600-light": [
         # observed: area 6.8e-04, centroid_px 7.5e-03, ixx 7.7e-04, iyy 6.1e-04, ixy 5.4e-06
         # 0.3 sigma: area 6.7e-04, centroid_px 9.4e-03, ixx 6.8e-04, iyy 6.8e-04, ixy 4.8e-05
-        {"area": 3e-03, "centroid_px": 3e-02, "ixx": 3e-03, "iyy": 3e-03, "ixy": 2e-04},
+        {"area": 0.003, "centroid_px": 0.03, "ixx": 0.003, "iyy": 0.003, "ixy": 0.00015},
     ],
     "small-300-dark": [
         # observed: area 9.8e-04, centroid_px 5.9e-04, ixx 2.2e-03, iyy 1.7e-03, ixy 3.4e-05
         # 0.3 sigma: area 1.9e-04, centroid_px 8.3e-04, ixx 3.8e-04, iyy 3.8e-04, ixy 6.5e-05
-        {"area": 3e-03, "centroid_px": 3e-03, "ixx": 7e-03, "iyy": 7e-03, "ixy": 2e-04},
+        {"area": 0.003, "centroid_px": 0.003, "ixx": 0.007, "iyy": 0.007, "ixy": 0.0002},
         # observed: area 4.9e-06, centroid_px 1.4e-03, ixx 9.5e-04, iyy 1.1e-03, ixy 1.2e-04
         # 0.3 sigma: area 2.2e-04, centroid_px 8.5e-04, ixx 4.4e-04, iyy 4.4e-04, ixy 7.4e-05
-        {"area": 7e-04, "centroid_px": 5e-03, "ixx": 3e-03, "iyy": 5e-03, "ixy": 5e-04},
+        {"area": 0.0007, "centroid_px": 0.005, "ixx": 0.003, "iyy": 0.005, "ixy": 0.0005},
         # observed: area 6.0e-04, centroid_px 6.5e-03, ixx 3.2e-03, iyy 4.3e-03, ixy 1.3e-04
         # 0.3 sigma: area 2.7e-04, centroid_px 1.0e-03, ixx 5.4e-04, iyy 5.4e-04, ixy 9.7e-05
-        {"area": 2e-03, "centroid_px": 2e-02, "ixx": 1e-02, "iyy": 1e-02, "ixy": 5e-04},
+        {"area": 0.002, "centroid_px": 0.02, "ixx": 0.01, "iyy": 0.015, "ixy": 0.0005},
     ],
     "small-600-light": [
         # observed: area 1.1e-04, centroid_px 5.2e-03, ixx 2.0e-04, iyy 2.3e-04, ixy 3.1e-05
         # 0.3 sigma: area 1.1e-04, centroid_px 1.7e-03, ixx 2.4e-04, iyy 2.4e-04, ixy 6.7e-05
-        {"area": 5e-04, "centroid_px": 2e-02, "ixx": 1e-03, "iyy": 1e-03, "ixy": 3e-04},
+        {"area": 0.0005, "centroid_px": 0.02, "ixx": 0.001, "iyy": 0.001, "ixy": 0.0003},
         # observed: area 1.9e-04, centroid_px 1.6e-03, ixx 7.6e-04, iyy 5.5e-04, ixy 1.7e-04
         # 0.3 sigma: area 1.3e-04, centroid_px 1.9e-03, ixx 2.8e-04, iyy 2.8e-04, ixy 8.3e-05
-        {"area": 7e-04, "centroid_px": 7e-03, "ixx": 3e-03, "iyy": 2e-03, "ixy": 7e-04},
+        {"area": 0.0007, "centroid_px": 0.007, "ixx": 0.003, "iyy": 0.002, "ixy": 0.0007},
         # observed: area 8.3e-04, centroid_px 1.3e-02, ixx 2.8e-03, iyy 2.3e-03, ixy 1.5e-05
         # 0.3 sigma: area 1.7e-04, centroid_px 2.2e-03, ixx 3.5e-04, iyy 3.5e-04, ixy 1.0e-04
-        {"area": 3e-03, "centroid_px": 5e-02, "ixx": 1e-02, "iyy": 7e-03, "ixy": 5e-04},
+        {"area": 0.003, "centroid_px": 0.05, "ixx": 0.01, "iyy": 0.007, "ixy": 0.0005},
     ],
 }
 
