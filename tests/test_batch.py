@@ -174,6 +174,7 @@ def mixed(tmp_path_factory) -> tuple[Path, dict[str, list[dict]]]:
     return root, truth
 
 
+@pytest.mark.slow
 def test_good_files_measured_bad_files_recorded(mixed, tmp_path):
     root, truth = mixed
     out = tmp_path / "out"
@@ -227,6 +228,7 @@ def test_good_files_measured_bad_files_recorded(mixed, tmp_path):
         assert conn.execute("SELECT status FROM runs").fetchall()[0][0] == "done"
 
 
+@pytest.mark.slow
 def test_cli_exit_status_and_export(mixed, tmp_path):
     root, truth = mixed
     out = tmp_path / "out"
@@ -312,6 +314,7 @@ def _signal_mid_run(folder: Path, out: Path, sig: int, *, after: int = 3) -> tup
     return done, subprocess.CompletedProcess(cmd, proc.returncode, stdout, stderr)
 
 
+@pytest.mark.slow
 def test_resume_after_kill_9(tmp_path):
     folder, out = tmp_path / "scans", tmp_path / "out"
     n = 16
@@ -359,6 +362,7 @@ def test_resume_after_kill_9(tmp_path):
     assert summary.worker_max_rss_kb == {}
 
 
+@pytest.mark.slow
 def test_ctrl_c_finishes_files_in_flight_and_writes_csvs(tmp_path):
     folder, out = tmp_path / "scans", tmp_path / "out"
     n = 12
@@ -376,6 +380,7 @@ def test_ctrl_c_finishes_files_in_flight_and_writes_csvs(tmp_path):
     assert run_batch(folder, out, workers=0).measured == n - recorded
 
 
+@pytest.mark.slow
 def test_failures_retried_only_when_asked(mixed, tmp_path):
     root, _ = mixed
     out = tmp_path / "out"

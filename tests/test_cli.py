@@ -164,6 +164,7 @@ def test_outputs_are_atomic_no_temp_left(scan_png, tmp_path):
     assert leftovers == []
 
 
+@pytest.mark.slow
 def test_demo_runs(tmp_path):
     result = runner.invoke(app, ["demo", "--out", str(tmp_path / "demo")])
     assert result.exit_code == 0, result.output

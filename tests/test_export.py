@@ -194,6 +194,7 @@ def test_fit_circle_polygon_area_matches_circle_formula():
     assert abs(Polygon(ring).area - area) <= tol * 2 * math.pi * r
 
 
+@pytest.mark.slow
 def test_fit_stays_within_tolerance_of_noisy_slot():
     rng = np.random.default_rng(6)
     tol = 0.01

@@ -23,6 +23,9 @@ from scanmass.scale.lens import LensProfile, calibrate_lens, load_lens_profile, 
 from scanmass.scale.mat import make_mat
 from scanmass.testing.scans import circle, rectangle
 
+#: every test here needs the module's rendered views (about 10 s to make and calibrate)
+pytestmark = pytest.mark.slow
+
 MAT = make_mat("a4-portrait")
 K1 = -0.05
 F_PX = 1500.0

@@ -168,6 +168,7 @@ DTYPES = st.one_of(
 )
 
 
+@pytest.mark.slow
 @FUZZ
 @given(
     arr=hnp.arrays(dtype=DTYPES, shape=hnp.array_shapes(min_dims=0, max_dims=4, min_side=0, max_side=14)),
@@ -177,6 +178,7 @@ def test_random_arrays(arr, dpi):
     _check_result(lambda: load_image(arr, dpi=dpi))
 
 
+@pytest.mark.slow
 @FUZZ
 @given(
     arr=hnp.arrays(

@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -49,6 +50,7 @@ def images(draw):
 dpis = st.one_of(st.none(), st.floats(allow_nan=True, allow_infinity=True, width=32), st.integers(-10, 5000))
 
 
+@pytest.mark.slow
 @settings(max_examples=120, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(img=images(), dpi=dpis, min_area=st.sampled_from([0.0, 0.01, 2.0]))
 def test_random_images_give_result_or_one_line_error(img, dpi, min_area):
@@ -65,6 +67,7 @@ def test_random_images_give_result_or_one_line_error(img, dpi, min_area):
     result.to_json()  # always serialisable (no NaN leaks into JSON)
 
 
+@pytest.mark.slow
 @settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(img=images(), dpi=st.sampled_from([25.4, 100.0, 300.0, 1200.0]), keep_cut=st.booleans())
 def test_random_images_with_valid_scale_reach_the_segmenter(img, dpi, keep_cut):

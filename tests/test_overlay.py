@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+import pytest
 
 from scanmass import measure
 from scanmass.load.decode import load_image
@@ -20,6 +21,7 @@ def _has_colour(picture: np.ndarray, bgr: np.ndarray, tol: int = 40) -> bool:
     return bool((np.abs(picture.astype(int) - bgr).sum(axis=2) < tol).any())
 
 
+@pytest.mark.slow
 def test_overlay_draws_outline_hole_and_stays_small():
     parts = [SynthPart(rectangle(20, 20, 150, 90), [circle(60, 60, 10)])]
     scan = render_scan(parts, dpi=600, size_mm=(190, 130), blur_px=0.9, noise=0.004, seed=2)  # 4488 x 3071 px

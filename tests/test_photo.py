@@ -100,6 +100,7 @@ def test_jpeg_uneven_light_blur_noise():
     _check(p, t)
 
 
+@pytest.mark.slow
 def test_printer_check_corrects_x_and_y_scale():
     """A print 1 % too wide and 0.6 % too short: the caliper readings put it right."""
     parts = [_plate()]
@@ -120,6 +121,7 @@ def test_printer_check_corrects_x_and_y_scale():
     assert 0.002 < abs(err) <= 3 * unchecked.parts[0].area_u_mm2 / t["area"]  # off, and the stated u says so
 
 
+@pytest.mark.slow
 def test_thick_part_with_and_without_thickness():
     part = dataclasses.replace(_plate(), height_mm=6.0)
     t = truth(part.outer_mm, part.holes_mm)
@@ -221,6 +223,7 @@ def test_printer_reading_checks():
         measure(img, printed_x_mm=80.0, printed_y_mm=100.0)
 
 
+@pytest.mark.slow
 def test_cli_measure_photo(tmp_path):
     path = tmp_path / "part.jpg"
     Image.fromarray(render_photo(MAT, [_plate()], _cam(), seed=4)).save(path, quality=92)

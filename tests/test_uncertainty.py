@@ -1,0 +1,184 @@
+"""The error model (scanmass.uncertainty) against Monte Carlo and exact offset curves.
+
+Edge term: vertices of a densely sampled polygon are moved along their normals by
+independent Gaussian noise, as DESIGN.md states the model (independent per boundary
+sample); the spread of area, centroid and second moments over the trials must match the
+stated sigmas within chi-square bounds on a sample standard deviation (common practice).
+The figures of each perturbed polygon are computed here with vectorised vertex sums
+(Green's theorem, common practice), checked once against shapely, never with
+scanmass.section.
+
+Threshold term: one shared offset d of the whole boundary; the area changes by
+perimeter x d. Checked against the exact area of shapely's mitred buffer (reference
+library), whose area is A + P d + K d^2 for small d, so a central difference gives P.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import shapely
+from polygon_truth import truth
+from scipy import stats
+
+from scanmass.testing.scans import circle, l_section
+from scanmass.uncertainty import build_edge_model, combine, figure_weights, part_uncertainty
+
+FIGURES = ("area_mm2", "centroid_x_mm", "centroid_y_mm", "ixx_mm4", "iyy_mm4", "ixy_mm4")
+
+
+def _densify(ring: np.ndarray, step_mm: float) -> np.ndarray:
+    """Insert vertices along each edge so that no edge is longer than step_mm."""
+    out = []
+    for a, b in zip(ring, np.roll(ring, -1, axis=0)):
+        n = max(1, math.ceil(math.dist(a, b) / step_mm))
+        t = np.arange(n)[:, None] / n
+        out.append(a + t * (b - a))
+    return np.concatenate(out)
+
+
+def _oriented(ring: np.ndarray, ccw: bool) -> np.ndarray:
+    return ring if shapely.LinearRing(ring).is_ccw == ccw else ring[::-1]
+
+
+def _section():
+    """An unsymmetric part: an L with a round hole in its long leg, densified to ~0.1 mm."""
+    outer = _oriented(_densify(l_section(0.0, 0.0, 30.0, 22.0, 7.0, 5.0), 0.1), True)
+    hole = _oriented(circle(3.5, 14.0, 2.0, n=126), False)  # chord 0.0997 mm
+    return outer, [hole]
+
+
+def _figures(rings_batch: list[np.ndarray]) -> dict[str, np.ndarray]:
+    """Area, centroid, centroidal Ixx, Iyy, Ixy of a batch of polygons (T, N_i, 2) per ring.
+
+    Outer counter-clockwise, holes clockwise, so plain sums over all rings give the part.
+    """
+    a = qx = qy = sxx = syy = sxy = 0.0
+    for r in rings_batch:
+        x, y = r[..., 0], r[..., 1]
+        xn, yn = np.roll(x, -1, axis=-1), np.roll(y, -1, axis=-1)
+        c = x * yn - xn * y
+        a = a + c.sum(-1) / 2
+        qx = qx + (c * (x + xn)).sum(-1) / 6
+        qy = qy + (c * (y + yn)).sum(-1) / 6
+        sxx = sxx + (c * (y * y + y * yn + yn * yn)).sum(-1) / 12  # integral y^2 dA
+        syy = syy + (c * (x * x + x * xn + xn * xn)).sum(-1) / 12
+        sxy = sxy + (c * (x * yn + 2 * x * y + 2 * xn * yn + xn * y)).sum(-1) / 24
+    xc, yc = qx / a, qy / a
+    return {
+        "area_mm2": a,
+        "centroid_x_mm": xc,
+        "centroid_y_mm": yc,
+        "ixx_mm4": sxx - a * yc * yc,
+        "iyy_mm4": syy - a * xc * xc,
+        "ixy_mm4": sxy - a * xc * yc,
+    }
+
+
+def _vertex_normals_and_lengths(ring: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Unit normals away from the material (on the left) and half the two adjacent edges."""
+    nxt, prv = np.roll(ring, -1, axis=0), np.roll(ring, 1, axis=0)
+    chord = nxt - prv
+    n = np.column_stack([chord[:, 1], -chord[:, 0]])
+    n /= np.hypot(n[:, 0], n[:, 1])[:, None]
+    lengths = 0.5 * (np.hypot(*(nxt - ring).T) + np.hypot(*(ring - prv).T))
+    return n, lengths
+
+
+def test_vertex_sums_agree_with_shapely():
+    outer, holes = _section()
+    mine = _figures([outer[None], holes[0][None]])
+    ref = truth(outer, holes)  # shapely area and centroid, vertex sums for the moments
+    assert mine["area_mm2"][0] == pytest.approx(ref["area"], rel=1e-12)
+    assert mine["centroid_x_mm"][0] == pytest.approx(ref["centroid"][0], rel=1e-12)
+    assert mine["ixy_mm4"][0] == pytest.approx(ref["ixy"], rel=1e-9)
+
+
+def test_edge_term_matches_monte_carlo_of_independent_normal_noise():
+    outer, holes = _section()
+    rings = [outer, *holes]
+    sigma_mm = 0.004  # normal displacement of each vertex, 1 sigma (a noisy 300 dpi scan)
+    # The model's noise has a correlation length of one pixel: with one vertex per
+    # attributed length l_k, give each vertex a "pixel" of its own length, so that the
+    # stated variance sum_k w_k^2 sigma^2 l_k^2 is that of independent vertices.
+    per_ring = [_vertex_normals_and_lengths(r) for r in rings]
+    scales = [lk for _, lk in per_ring]
+    sigma_px = [sigma_mm / lk for lk in scales]
+    model = build_edge_model(outer, holes, sigma_px, scales, offset_mm=0.0)
+    nominal = {k: float(v[0]) for k, v in _figures([r[None] for r in rings]).items()}
+    weights = figure_weights(
+        model,
+        nominal["area_mm2"],
+        (nominal["centroid_x_mm"], nominal["centroid_y_mm"]),
+        nominal["ixx_mm4"],
+        nominal["iyy_mm4"],
+        nominal["ixy_mm4"],
+    )
+    edge, thresh = part_uncertainty(model, weights)
+    assert all(v == 0.0 for v in thresh.values())
+
+    trials = 4000
+    rng = np.random.default_rng(20261202)
+    moved = []
+    for ring, (n, _) in zip(rings, per_ring):
+        dn = rng.normal(0.0, sigma_mm, size=(trials, len(ring)))
+        moved.append(ring[None] + dn[..., None] * n[None])
+    figs = _figures(moved)
+    # a sample variance s^2 from T draws: (T - 1) s^2 / sigma^2 ~ chi2(T - 1); 99.9 %
+    # two-sided band for s / sigma: [0.964, 1.037]. The linearisation (weights taken at
+    # the vertices, first order in d = 0.004 mm on a 30 mm part) adds < 1 % (the
+    # piecewise-linear displacement between vertices differs from point weights by
+    # O((l / size)^2)); the band is widened by that 1 %. Observed (seed 20261202): MC / model
+    # = 0.995 (area), 1.012, 0.997 (centroid), 0.984, 1.017, 1.001 (Ixx, Iyy, Ixy).
+    lo, hi = (math.sqrt(stats.chi2.ppf(q, trials - 1) / (trials - 1)) for q in (0.0005, 0.9995))
+    ratios = {}
+    for name in FIGURES:
+        ratios[name] = float(np.std(figs[name], ddof=1)) / edge[name]
+    assert all(lo - 0.01 < r < hi + 0.01 for r in ratios.values()), (ratios, lo, hi)
+
+
+def test_threshold_term_is_the_exact_offset_derivative():
+    outer, holes = _section()
+    offset_mm = 0.01
+    ones = [np.ones(len(r)) for r in [outer, *holes]]
+    model = build_edge_model(outer, holes, [0 * o for o in ones], ones, offset_mm=offset_mm)
+    ref = truth(outer, holes)
+    weights = figure_weights(model, ref["area"], ref["centroid"], ref["ixx"], ref["iyy"], ref["ixy"])
+    edge, thresh = part_uncertainty(model, weights)
+    assert all(v == 0.0 for v in edge.values())
+
+    poly = shapely.Polygon(outer, holes)
+    d = 1e-3  # mm: the mitred buffer of this polygon keeps its topology for |d| << 0.1 mm
+
+    def buffered(dd: float) -> dict:
+        b = poly.buffer(dd, join_style="mitre", mitre_limit=10.0)
+        return truth(np.asarray(b.exterior.coords)[:-1], [np.asarray(r.coords)[:-1] for r in b.interiors])
+
+    plus, minus = buffered(d), buffered(-d)
+    # area: A(d) = A + P d + K d^2 exactly (straight edges, mitred corners): the central
+    # difference is P, the perimeter of the outline and the hole
+    perimeter = poly.length
+    assert (plus["area"] - minus["area"]) / (2 * d) == pytest.approx(perimeter, rel=1e-9)
+    assert thresh["area_mm2"] == pytest.approx(perimeter * offset_mm, rel=1e-9)
+    # centroid and centroidal moments: first derivatives by central difference (error
+    # O(d^2) relative, 1e-6 here), times the offset
+    deriv = {
+        "centroid_x_mm": (plus["centroid"][0] - minus["centroid"][0]) / (2 * d),
+        "centroid_y_mm": (plus["centroid"][1] - minus["centroid"][1]) / (2 * d),
+        "ixx_mm4": (plus["ixx"] - minus["ixx"]) / (2 * d),
+        "iyy_mm4": (plus["iyy"] - minus["iyy"]) / (2 * d),
+        "ixy_mm4": (plus["ixy"] - minus["ixy"]) / (2 * d),
+    }
+    for name, dv in deriv.items():
+        # vertex weights on a 0.1 mm sampled boundary are exact only to O(l^2) of the
+        # weight's curvature: observed relative differences 7e-7 (centroid), 1.3e-5 (Ixx),
+        # 1.0e-5 (Iyy), 3e-9 (Ixy); limit 1e-4
+        assert thresh[name] == pytest.approx(abs(dv) * offset_mm, rel=1e-4), name
+
+
+def test_combine_is_root_sum_square_and_skips_missing_terms():
+    assert combine(3.0, 4.0) == pytest.approx(5.0)
+    assert combine(3.0, None, float("nan"), 4.0) == pytest.approx(5.0)  # type: ignore[arg-type]
+    assert combine() == 0.0
