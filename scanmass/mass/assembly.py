@@ -600,7 +600,7 @@ def load_measurement(
     if cache is not None and key in cache:
         return cache[key]
     if is_json:
-        from scanmass.outputs.resultio import read_result
+        from scanmass.measurement import read_result
 
         result = read_result(name)
     else:
