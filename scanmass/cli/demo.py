@@ -6,6 +6,11 @@ bracket, a mudguard stay clip, a cork hub gasket and a dynamo fan plate. Their
 sample scans are rendered by :func:`make_samples` (``samples/make_samples.py`` calls it)
 from the exact outlines below, so the demo can show the true values beside the measured
 ones. All numbers here are invented for the demo.
+
+The demo's settings (``demo.toml``: how each sample is measured; the carrier assembly)
+ship with the package in ``scanmass/cli/data/``; :func:`make_samples` copies them beside
+the images. In a checkout the demo measures ``samples/``; installed from a wheel, it
+renders the same files (deterministically, a few seconds) into ``OUT/samples/`` first.
 """
 
 from __future__ import annotations
@@ -15,6 +20,7 @@ import math
 import os
 import tomllib
 from dataclasses import dataclass, field
+from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -24,7 +30,10 @@ from scanmass.errors import ScanmassError
 from scanmass.measurement import Measurement
 from scanmass.testing.scans import SynthPart, regular_polygon, render_scan, rotate, save_scan
 
-__all__ = ["DemoSummary", "demo_scans", "demo_photos", "make_samples", "run_demo", "samples_dir"]
+__all__ = ["DemoSummary", "demo_scans", "demo_photos", "make_samples", "run_demo", "samples_dir", "SETTINGS_FILES"]
+
+#: The demo's settings files, shipped in ``scanmass/cli/data/`` and copied beside the samples.
+SETTINGS_FILES = ("demo.toml", "wrenfield-carrier-assembly.toml")
 
 
 def _rounded_rect(x0: float, y0: float, w: float, h: float, r: float, n_arc: int = 48) -> np.ndarray:
@@ -198,18 +207,24 @@ def samples_dir() -> Path | None:
     return candidate if (candidate / "demo.toml").is_file() else None
 
 
+def settings_text(name: str) -> str:
+    """The text of one of :data:`SETTINGS_FILES`, as shipped with the package."""
+    return resources.files("scanmass.cli").joinpath("data", name).read_text(encoding="utf-8")
+
+
 def make_samples(folder: str | os.PathLike) -> list[Path]:
-    """Render the scenario's sample scans into ``folder`` (deterministic)."""
+    """Render the scenario's sample scans into ``folder`` (deterministic), with the demo's settings files."""
+    from scanmass.outputs.atomic import write_atomic
+
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    written = []
+    written = [Path(write_atomic(folder / name, settings_text(name))) for name in SETTINGS_FILES]
     for scan in demo_scans():
         parts = [SynthPart(outer, holes) for outer, holes in scan.parts]
         synth = render_scan(parts, dpi=scan.dpi, size_mm=scan.size_mm, **scan.render)
         written.append(save_scan(synth, folder / scan.file, quality=90))
     from PIL import Image
 
-    from scanmass.outputs.atomic import write_atomic
     from scanmass.scale.mat import make_mat
     from scanmass.testing.photos import look_at, render_mat_photo
 
@@ -239,27 +254,8 @@ class DemoSummary:
 
 
 def _settings(folder: Path) -> dict[str, Any]:
-    path = folder / "demo.toml"
-    if path.is_file():
-        with open(path, "rb") as fh:
-            return tomllib.load(fh)
-    return {
-        "scan": [
-            {"file": s.file, "material": s.material, "thickness_mm": s.thickness_mm, "thickness_u_mm": s.thickness_u_mm}
-            for s in demo_scans()
-        ]
-        + [
-            {
-                "file": p.file,
-                "material": p.material,
-                "thickness_mm": p.thickness_mm,
-                "thickness_u_mm": p.thickness_u_mm,
-                "printed_x_mm": p.printed_x_mm,
-                "printed_y_mm": p.printed_y_mm,
-            }
-            for p in demo_photos()
-        ]
-    }
+    with open(folder / "demo.toml", "rb") as fh:
+        return tomllib.load(fh)
 
 
 def run_demo(out: str | os.PathLike) -> DemoSummary:
