@@ -260,6 +260,7 @@ def _settings(folder: Path) -> dict[str, Any]:
 
 def run_demo(out: str | os.PathLike) -> DemoSummary:
     """Measure the sample scans end to end, writing JSON, CSV and overlays into ``out``."""
+    from scanmass.outputs.atomic import write_atomic
     from scanmass.outputs.writers import measure_to_outputs
 
     out_dir = Path(out)
@@ -274,8 +275,11 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         folder = out_dir / "samples"
         make_samples(folder)
     settings = _settings(folder)
-    truth = {s.file: s for s in [*demo_scans(), *demo_photos()]}
-    measurements, lines, written = [], [], []
+    scenario: list[DemoScan | DemoPhoto] = [*demo_scans(), *demo_photos()]
+    truth = {s.file: s for s in scenario}
+    measurements: list[Measurement] = []
+    lines: list[str] = []
+    written: list[Path] = []
     overlays: dict[int, Path] = {}
     for entry in settings["scan"]:
         src = folder / entry["file"]
@@ -305,9 +309,8 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         spin = entry.get("balance")
         if spin:
             from scanmass.mass.balance import balance_measurement
-            from scanmass.outputs.atomic import write_atomic
 
-            res = balance_measurement(
+            balance = balance_measurement(
                 result.measurement,
                 entry["material"],
                 entry["thickness_mm"],
@@ -315,19 +318,20 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
                 rpm=spin["rpm"],
                 grade=spin["grade"],
             )
-            path = write_atomic(out_dir / f"{stem}-balance.json", res.to_json() + "\n")
+            path = write_atomic(out_dir / f"{stem}-balance.json", balance.to_json() + "\n")
             written.append(Path(path))
-            lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {res.verdict}")
+            lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {balance.verdict}")
     assembly_file = folder / "wrenfield-carrier-assembly.toml"
     if assembly_file.is_file():
         from scanmass.mass.assembly import assemble
-        from scanmass.outputs.atomic import write_atomic
 
-        res = assemble(assembly_file)
-        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.json", res.to_json() + "\n")))
-        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.csv", res.to_csv())))
-        com = ", ".join(f"{v:.2f}" for v in res.centre_of_mass_mm)
-        lines.append(f"assembly '{res.name}': {res.mass_g:.2f} ± {res.mass_u_g:.2f} g, centre of mass ({com}) mm")
+        assembly = assemble(assembly_file)
+        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.json", assembly.to_json() + "\n")))
+        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.csv", assembly.to_csv())))
+        com = ", ".join(f"{v:.2f}" for v in assembly.centre_of_mass_mm)
+        lines.append(
+            f"assembly '{assembly.name}': {assembly.mass_g:.2f} ± {assembly.mass_u_g:.2f} g, centre of mass ({com}) mm"
+        )
     from scanmass.outputs.report import write_report
 
     report = write_report(
@@ -341,7 +345,7 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
     return DemoSummary(out_dir=out_dir, measurements=measurements, lines=lines, written=written)
 
 
-def _truth_lines(m: Measurement, scan: DemoScan | None) -> list[str]:
+def _truth_lines(m: Measurement, scan: DemoScan | DemoPhoto | None) -> list[str]:
     """Compare measured areas and centroids with the exact outlines the scan was rendered from."""
     if scan is None:
         return []
