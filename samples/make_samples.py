@@ -1,8 +1,9 @@
-"""Render the demo scenario's sample scans into this folder.
+"""Render the demo scenario's sample scans into this folder, with the demo's settings files.
 
 Run from the repository root:  python samples/make_samples.py
 The scenario (Wrenfield Cycle Restorations, invented) and its exact part outlines live in
-scanmass/demo.py; rendering uses scanmass.testing.scans (exact pixel coverage, blur, noise, sRGB).
+scanmass/cli/demo.py, its settings (demo.toml, the assembly) in scanmass/cli/data/; rendering
+uses scanmass.testing (exact pixel coverage, blur, noise, sRGB).
 """
 
 from pathlib import Path

@@ -11,7 +11,9 @@ import csv
 import io
 import json
 import math
+import os
 from dataclasses import asdict, dataclass, field, fields
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -26,6 +28,7 @@ __all__ = [
     "Part",
     "Measurement",
     "CSV_COLUMNS",
+    "read_result",
 ]
 
 #: Schema identifier written into every result document; bump the number on an
@@ -396,3 +399,29 @@ CSV_COLUMNS = [
     "mass_g",
     "mass_u_g",
 ]
+
+
+def read_result(path: str | os.PathLike[str]) -> Measurement:
+    """Read a result document (JSON written by ``scanmass measure --json``).
+
+    Raises
+    ------
+    ResultFormatError
+        The file is missing, unreadable, not JSON, or of another schema; the message
+        names the file.
+    """
+    name = os.fspath(path)
+    p = Path(name)
+    if not p.exists():
+        raise ResultFormatError("file not found; pass a result JSON written by 'scanmass measure --json'", path=name)
+    if not p.is_file():
+        raise ResultFormatError("is not a file; pass a result JSON written by 'scanmass measure --json'", path=name)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except UnicodeDecodeError:
+        raise ResultFormatError(
+            "is not UTF-8 text; pass a result JSON written by 'scanmass measure --json'", path=name
+        ) from None
+    except OSError as exc:
+        raise ResultFormatError(f"cannot be read ({exc.strerror}); check its permissions", path=name) from None
+    return Measurement.from_json(text, path=name)

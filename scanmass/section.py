@@ -413,7 +413,7 @@ def convex_hull(points: np.ndarray) -> np.ndarray:
     # centring first could merge nearly equal points and wrongly drop a hull vertex
     rel = pts.tolist()
 
-    def chain(seq: list[list[float]]) -> list[int]:
+    def chain(seq: list[int]) -> list[int]:
         out: list[int] = []
         for k in seq:
             px, py = rel[k]
@@ -446,7 +446,7 @@ def _drop_interior(pts: np.ndarray) -> np.ndarray:
         return pts
     x, y = pts[:, 0], pts[:, 1]
     keys = (x, x + y, y, y - x, -x, -x - y, -y, x - y)  # counter-clockwise directions
-    poly = []
+    poly: list[int] = []
     for key in keys:
         k = int(np.argmax(key))
         if not poly or poly[-1] != k:

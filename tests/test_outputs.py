@@ -8,9 +8,11 @@ import stat
 import numpy as np
 import pytest
 from PIL import Image
+from plate_parts import make_measurement, make_part, rect
 
 from scanmass.errors import OutputError
 from scanmass.outputs.atomic import atomic_path, write_atomic
+from scanmass.outputs.writers import write_outputs
 
 
 def opened(path) -> Image.Image:
@@ -189,3 +191,19 @@ def test_atomic_path_refuses_input(tmp_path):
         with atomic_path(source, inputs=[source]):
             pytest.fail("must not be reached")
     assert leftovers(tmp_path) == []
+
+
+def test_none_among_the_inputs_is_skipped(tmp_path):
+    # a result read from JSON may name no source image: its None must not stop the write
+    target = tmp_path / "r.json"
+    write_atomic(target, "{}", inputs=[None, tmp_path / "other.json"])
+    assert target.read_text() == "{}"
+
+
+def test_overlay_of_a_result_without_a_source_file_is_a_one_line_error(tmp_path):
+    m = make_measurement([make_part([rect(20, 10)])])
+    m.source.path = None
+    with pytest.raises(OutputError, match="names no source file") as err:
+        write_outputs(m, json_out=tmp_path / "r.json", overlay_out=tmp_path / "o.png")
+    assert "\n" not in str(err.value) and str(tmp_path / "o.png") in str(err.value)
+    assert not (tmp_path / "o.png").exists()

@@ -6,6 +6,11 @@ bracket, a mudguard stay clip, a cork hub gasket and a dynamo fan plate. Their
 sample scans are rendered by :func:`make_samples` (``samples/make_samples.py`` calls it)
 from the exact outlines below, so the demo can show the true values beside the measured
 ones. All numbers here are invented for the demo.
+
+The demo's settings (``demo.toml``: how each sample is measured; the carrier assembly)
+ship with the package in ``scanmass/cli/data/``; :func:`make_samples` copies them beside
+the images. In a checkout the demo measures ``samples/``; installed from a wheel, it
+renders the same files (deterministically, a few seconds) into ``OUT/samples/`` first.
 """
 
 from __future__ import annotations
@@ -15,6 +20,7 @@ import math
 import os
 import tomllib
 from dataclasses import dataclass, field
+from importlib import resources
 from pathlib import Path
 from typing import Any
 
@@ -24,7 +30,10 @@ from scanmass.errors import ScanmassError
 from scanmass.measurement import Measurement
 from scanmass.testing.scans import SynthPart, regular_polygon, render_scan, rotate, save_scan
 
-__all__ = ["DemoSummary", "demo_scans", "demo_photos", "make_samples", "run_demo", "samples_dir"]
+__all__ = ["DemoSummary", "demo_scans", "demo_photos", "make_samples", "run_demo", "samples_dir", "SETTINGS_FILES"]
+
+#: The demo's settings files, shipped in ``scanmass/cli/data/`` and copied beside the samples.
+SETTINGS_FILES = ("demo.toml", "wrenfield-carrier-assembly.toml")
 
 
 def _rounded_rect(x0: float, y0: float, w: float, h: float, r: float, n_arc: int = 48) -> np.ndarray:
@@ -198,18 +207,24 @@ def samples_dir() -> Path | None:
     return candidate if (candidate / "demo.toml").is_file() else None
 
 
+def settings_text(name: str) -> str:
+    """The text of one of :data:`SETTINGS_FILES`, as shipped with the package."""
+    return resources.files("scanmass.cli").joinpath("data", name).read_text(encoding="utf-8")
+
+
 def make_samples(folder: str | os.PathLike) -> list[Path]:
-    """Render the scenario's sample scans into ``folder`` (deterministic)."""
+    """Render the scenario's sample scans into ``folder`` (deterministic), with the demo's settings files."""
+    from scanmass.outputs.atomic import write_atomic
+
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    written = []
+    written = [Path(write_atomic(folder / name, settings_text(name))) for name in SETTINGS_FILES]
     for scan in demo_scans():
         parts = [SynthPart(outer, holes) for outer, holes in scan.parts]
         synth = render_scan(parts, dpi=scan.dpi, size_mm=scan.size_mm, **scan.render)
         written.append(save_scan(synth, folder / scan.file, quality=90))
     from PIL import Image
 
-    from scanmass.outputs.atomic import write_atomic
     from scanmass.scale.mat import make_mat
     from scanmass.testing.photos import look_at, render_mat_photo
 
@@ -239,31 +254,13 @@ class DemoSummary:
 
 
 def _settings(folder: Path) -> dict[str, Any]:
-    path = folder / "demo.toml"
-    if path.is_file():
-        with open(path, "rb") as fh:
-            return tomllib.load(fh)
-    return {
-        "scan": [
-            {"file": s.file, "material": s.material, "thickness_mm": s.thickness_mm, "thickness_u_mm": s.thickness_u_mm}
-            for s in demo_scans()
-        ]
-        + [
-            {
-                "file": p.file,
-                "material": p.material,
-                "thickness_mm": p.thickness_mm,
-                "thickness_u_mm": p.thickness_u_mm,
-                "printed_x_mm": p.printed_x_mm,
-                "printed_y_mm": p.printed_y_mm,
-            }
-            for p in demo_photos()
-        ]
-    }
+    with open(folder / "demo.toml", "rb") as fh:
+        return tomllib.load(fh)
 
 
 def run_demo(out: str | os.PathLike) -> DemoSummary:
     """Measure the sample scans end to end, writing JSON, CSV and overlays into ``out``."""
+    from scanmass.outputs.atomic import write_atomic
     from scanmass.outputs.writers import measure_to_outputs
 
     out_dir = Path(out)
@@ -278,8 +275,11 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         folder = out_dir / "samples"
         make_samples(folder)
     settings = _settings(folder)
-    truth = {s.file: s for s in [*demo_scans(), *demo_photos()]}
-    measurements, lines, written = [], [], []
+    scenario: list[DemoScan | DemoPhoto] = [*demo_scans(), *demo_photos()]
+    truth = {s.file: s for s in scenario}
+    measurements: list[Measurement] = []
+    lines: list[str] = []
+    written: list[Path] = []
     overlays: dict[int, Path] = {}
     for entry in settings["scan"]:
         src = folder / entry["file"]
@@ -309,9 +309,8 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         spin = entry.get("balance")
         if spin:
             from scanmass.mass.balance import balance_measurement
-            from scanmass.outputs.atomic import write_atomic
 
-            res = balance_measurement(
+            balance = balance_measurement(
                 result.measurement,
                 entry["material"],
                 entry["thickness_mm"],
@@ -319,19 +318,20 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
                 rpm=spin["rpm"],
                 grade=spin["grade"],
             )
-            path = write_atomic(out_dir / f"{stem}-balance.json", res.to_json() + "\n")
+            path = write_atomic(out_dir / f"{stem}-balance.json", balance.to_json() + "\n")
             written.append(Path(path))
-            lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {res.verdict}")
+            lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {balance.verdict}")
     assembly_file = folder / "wrenfield-carrier-assembly.toml"
     if assembly_file.is_file():
         from scanmass.mass.assembly import assemble
-        from scanmass.outputs.atomic import write_atomic
 
-        res = assemble(assembly_file)
-        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.json", res.to_json() + "\n")))
-        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.csv", res.to_csv())))
-        com = ", ".join(f"{v:.2f}" for v in res.centre_of_mass_mm)
-        lines.append(f"assembly '{res.name}': {res.mass_g:.2f} ± {res.mass_u_g:.2f} g, centre of mass ({com}) mm")
+        assembly = assemble(assembly_file)
+        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.json", assembly.to_json() + "\n")))
+        written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.csv", assembly.to_csv())))
+        com = ", ".join(f"{v:.2f}" for v in assembly.centre_of_mass_mm)
+        lines.append(
+            f"assembly '{assembly.name}': {assembly.mass_g:.2f} ± {assembly.mass_u_g:.2f} g, centre of mass ({com}) mm"
+        )
     from scanmass.outputs.report import write_report
 
     report = write_report(
@@ -345,7 +345,7 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
     return DemoSummary(out_dir=out_dir, measurements=measurements, lines=lines, written=written)
 
 
-def _truth_lines(m: Measurement, scan: DemoScan | None) -> list[str]:
+def _truth_lines(m: Measurement, scan: DemoScan | DemoPhoto | None) -> list[str]:
     """Compare measured areas and centroids with the exact outlines the scan was rendered from."""
     if scan is None:
         return []

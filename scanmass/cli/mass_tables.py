@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
+from rich.console import JustifyMethod
 from rich.table import Table
 
 from scanmass.cli.tables import fmt_u
@@ -40,7 +41,7 @@ def assembly_table(result: AssemblyResult) -> Table:
     """The per-member table: signed mass (cut-outs negative) and centre of mass in the assembly frame."""
     title = f"{result.name or result.path or 'assembly'}: members"
     out = Table(title=title, title_justify="left", header_style="bold")
-    for col, justify in (
+    columns: tuple[tuple[str, JustifyMethod], ...] = (
         ("#", "right"),
         ("member", "left"),
         ("source:part", "left"),
@@ -48,7 +49,8 @@ def assembly_table(result: AssemblyResult) -> Table:
         ("n", "right"),
         ("mass g (± 1σ)", "right"),
         ("CoM x, y, z mm", "right"),
-    ):
+    )
+    for col, justify in columns:
         out.add_column(col, justify=justify, overflow="fold")
     for m in result.members:
         out.add_row(
@@ -106,7 +108,7 @@ def balance_table(result: BalanceResult) -> Table:
     row("offset e mm", fmt_u(result.offset_mm, result.offset_u_mm))
     row("unbalance U g·mm", fmt_u(result.unbalance_gmm, result.unbalance_u_gmm))
     row("heavy spot angle °", num(result.heavy_angle_deg, ".1f"))
-    if result.permissible_gmm is not None:
+    if result.permissible_gmm is not None and result.permissible_offset_mm is not None:
         row(f"permissible U (G {result.grade_mm_s:g}, {result.rpm:g} rpm) g·mm", num(result.permissible_gmm))
         row("permissible offset µm", num(1000 * result.permissible_offset_mm))
     row("offset resolved at 2σ µm", num(1000 * result.resolvable_offset_mm))

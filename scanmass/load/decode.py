@@ -34,6 +34,7 @@ import warnings
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 from PIL import Image, UnidentifiedImageError
@@ -246,7 +247,7 @@ def _icc_tone_curve(profile: bytes, levels: int, expected_space: bytes = b"") ->
     (count,) = struct.unpack_from(">I", profile, 128)
     if count > (n - 132) // 12:
         raise _ProfileError("tag table runs past the end")
-    tags = {}
+    tags: dict[bytes, tuple[int, int]] = {}
     for i in range(count):
         sig, offset, size = struct.unpack_from(">4sII", profile, 132 + 12 * i)
         tags.setdefault(sig, (offset, size))
@@ -668,7 +669,7 @@ def _orientation(im: Image.Image) -> int:
     except Exception:  # noqa: BLE001 -- unreadable EXIF means no orientation
         return 1
     value = _first(value)
-    return int(value) if isinstance(value, numbers.Integral) and 1 <= value <= 8 else 1
+    return int(value) if isinstance(value, numbers.Integral) and 1 <= int(value) <= 8 else 1
 
 
 def _apply_orientation(grey: np.ndarray, orientation: int) -> np.ndarray:
@@ -708,7 +709,7 @@ def _bits_per_sample(im: Image.Image, data: bytes) -> int:
     if im.format == "TIFF":
         bits = getattr(im, "tag_v2", {}).get(258)
         bits = _first(bits)
-        if isinstance(bits, numbers.Integral) and bits > 0:
+        if isinstance(bits, numbers.Integral) and int(bits) > 0:
             return int(bits)
     if im.mode.startswith("I;16"):
         return 16
@@ -757,10 +758,12 @@ def _luma(red: np.ndarray, green: np.ndarray, blue: np.ndarray) -> np.ndarray:
 def _over_white(grey: np.ndarray, alpha: np.ndarray) -> np.ndarray:
     """Composite encoded grey over white with straight (unassociated) alpha."""
     top = 255 if grey.dtype == np.uint8 else 65535
-    wide = np.uint32 if top == 255 else np.uint64  # 255 * 255 fits 32 bits; 16-bit takes 64
-    g = grey.astype(wide)
-    a = alpha.astype(wide)
-    out = g * a
+    wide: type[np.unsignedinteger[Any]] = (
+        np.uint32 if top == 255 else np.uint64
+    )  # 255 * 255 fits 32 bits; 16-bit takes 64
+    g: np.ndarray = grey.astype(wide)
+    a: np.ndarray = alpha.astype(wide)
+    out: np.ndarray = g * a
     out += (top - a) * wide(top) + wide(top // 2)
     out //= wide(top)
     return out.astype(grey.dtype)
@@ -914,6 +917,7 @@ def _pillow_grey(im: Image.Image, name: str) -> tuple[np.ndarray, bool]:
     mode = im.mode
     width, height = im.size
     has_key = "transparency" in im.info and mode in ("L", "RGB", "P")
+    dtype: type[np.unsignedinteger[Any]]
     if mode in _GREY8_MODES and not has_key:
         dtype, linear = np.uint8, False
 
@@ -1159,6 +1163,7 @@ def load_image(
         # Orientations 5-8 swap rows and columns, and with them the two resolutions.
         file_dpi = (file_dpi[1], file_dpi[0])
         file_note += "; x and y swapped by the EXIF orientation"
+    used: tuple[float, float] | None
     if given is not None:
         used = given
         note = f"dpi given by the caller ({_fmt(given[0])} x {_fmt(given[1])}); the file: {file_note}"

@@ -515,7 +515,7 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
                 mass_each_g=abs(m_i) / mem.count,
                 mass_g=m_i,
                 mass_u_g=own * mem.count,
-                centre_of_mass_mm=tuple(float(x) for x in c_i),
+                centre_of_mass_mm=_xyz(c_i),
                 inertia_g_mm2=i_i,
             )
         )
@@ -526,12 +526,12 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
         mass_u_g=float(u[0]),
         weight_n=float(total) * 1e-3 * g,
         weight_u_n=float(u[0]) * 1e-3 * g,
-        centre_of_mass_mm=tuple(float(x) for x in com),
-        centre_of_mass_u_mm=tuple(float(x) for x in u[1:4]),
+        centre_of_mass_mm=_xyz(com),
+        centre_of_mass_u_mm=_xyz(u[1:4]),
         inertia_g_mm2=inertia,
         inertia_u_g_mm2=u[4:13].reshape(3, 3),
-        principal_g_mm2=tuple(float(x) for x in values),
-        principal_u_g_mm2=tuple(float(x) for x in u[13:16]),
+        principal_g_mm2=_xyz(values),
+        principal_u_g_mm2=_xyz(u[13:16]),
         principal_axes=axes,
         path=path,
         name=name,
@@ -543,6 +543,12 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
     )
 
 
+def _xyz(values: Sequence[float] | np.ndarray) -> tuple[float, float, float]:
+    """Three numbers as a tuple of floats (x, y, z or three principal values)."""
+    x, y, z = (float(v) for v in values)
+    return x, y, z
+
+
 def _parameters(members: Sequence[Member]) -> list[tuple[str, Callable[[Member], bool], float]]:
     """The shared error sources: (input name, which members it moves, sigma)."""
     params: list[tuple[str, Callable[[Member], bool], float]] = []
@@ -551,13 +557,13 @@ def _parameters(members: Sequence[Member]) -> list[tuple[str, Callable[[Member],
         mat = mem.material
         if ("rho", mat.key) not in seen:
             seen.add(("rho", mat.key))
-            params.append(("rho", lambda m, k=mat.key: m.material.key == k, mat.density_u_kg_m3 * 1e-6))
+            same_material = lambda m, k=mat.key: m.material.key == k  # noqa: E731
+            params.append(("rho", same_material, mat.density_u_kg_m3 * 1e-6))
         sheet = (mat.key, mem.thickness_mm, mem.thickness_u_mm)
         if ("t", sheet) not in seen:
             seen.add(("t", sheet))
-            params.append(
-                ("t", lambda m, s=sheet: (m.material.key, m.thickness_mm, m.thickness_u_mm) == s, mem.thickness_u_mm)
-            )
+            same_sheet = lambda m, s=sheet: (m.material.key, m.thickness_mm, m.thickness_u_mm) == s  # noqa: E731
+            params.append(("t", same_sheet, mem.thickness_u_mm))
         if ("part", id(mem.part)) not in seen:
             seen.add(("part", id(mem.part)))
             same = lambda m, k=mem.part: m.part is k  # noqa: E731
@@ -600,7 +606,7 @@ def load_measurement(
     if cache is not None and key in cache:
         return cache[key]
     if is_json:
-        from scanmass.outputs.resultio import read_result
+        from scanmass.measurement import read_result
 
         result = read_result(name)
     else:
@@ -693,7 +699,8 @@ def load_assembly(
     if isinstance(materials, Mapping):
         table: Mapping[str, Material] = load_materials(own, base=materials) if own else materials
     else:
-        table = load_materials(([] if materials is None else [materials]) + own)
+        files: list[str | PathLike[str]] = [] if materials is None else [materials]
+        table = load_materials([*files, *own])
 
     entries = doc.get("member", [])
     if not isinstance(entries, list) or not entries or not all(isinstance(e, dict) for e in entries):

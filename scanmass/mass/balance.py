@@ -324,7 +324,7 @@ def static_unbalance(
 
     omega = permissible = e_per = None
     passes: bool | None = None
-    if rpm is None:
+    if rpm is None or grade is None:  # both or neither (checked above)
         verdict = (
             "not judged: no speed and grade given; pass rpm and grade (ISO 21940-11 balance quality grade) "
             "to check the unbalance against its permissible value"

@@ -44,7 +44,7 @@ def _same_file(a: Path, b: Path) -> bool:
     return os.path.normcase(os.path.realpath(a)) == os.path.normcase(os.path.realpath(b))
 
 
-def _check_target(target: Path, inputs: Iterable[PathLike]) -> Path:
+def _check_target(target: Path, inputs: Iterable[PathLike | None]) -> Path:
     """Validate the destination; return its folder."""
     for item in inputs:
         if item is None:
@@ -112,7 +112,7 @@ def _fsync_folder(folder: Path) -> None:
 
 
 @contextmanager
-def _atomic(path: PathLike, inputs: Iterable[PathLike], *, allow_empty: bool) -> Iterator[Path]:
+def _atomic(path: PathLike, inputs: Iterable[PathLike | None], *, allow_empty: bool) -> Iterator[Path]:
     target = _as_path(path)
     folder = _check_target(target, inputs)
     # Keep the destination's extension last: cv2.imwrite and PIL pick the format by it.
@@ -151,7 +151,7 @@ def _atomic(path: PathLike, inputs: Iterable[PathLike], *, allow_empty: bool) ->
 
 
 @contextmanager
-def atomic_path(path: PathLike, *, inputs: Iterable[PathLike] = ()) -> Iterator[Path]:
+def atomic_path(path: PathLike, *, inputs: Iterable[PathLike | None] = ()) -> Iterator[Path]:
     """A temporary path to write to, renamed over ``path`` when the block succeeds.
 
     For writers that want a file name (``cv2.imwrite``, ``PIL.Image.save``, ezdxf).
@@ -163,7 +163,7 @@ def atomic_path(path: PathLike, *, inputs: Iterable[PathLike] = ()) -> Iterator[
     ----------
     path : str or os.PathLike
         The destination.
-    inputs : iterable of str or os.PathLike
+    inputs : iterable of str, os.PathLike or None
         Files that must not be overwritten (the images being measured).
 
     Yields
@@ -190,7 +190,7 @@ def atomic_path(path: PathLike, *, inputs: Iterable[PathLike] = ()) -> Iterator[
         yield tmp
 
 
-def write_atomic(path: PathLike, data: bytes | str, *, inputs: Iterable[PathLike] = ()) -> Path:
+def write_atomic(path: PathLike, data: bytes | str, *, inputs: Iterable[PathLike | None] = ()) -> Path:
     """Write ``data`` to ``path`` atomically (temporary file + fsync + os.replace).
 
     Parameters
@@ -200,7 +200,7 @@ def write_atomic(path: PathLike, data: bytes | str, *, inputs: Iterable[PathLike
     data : bytes or str
         The content; ``str`` is written as UTF-8 exactly as given (no newline
         translation).
-    inputs : iterable of str or os.PathLike
+    inputs : iterable of str, os.PathLike or None
         Files that must not be overwritten.
 
     Returns

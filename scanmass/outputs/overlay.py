@@ -16,6 +16,7 @@ import math
 
 import cv2
 import numpy as np
+from numpy.typing import ArrayLike
 
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement
@@ -44,7 +45,7 @@ def _matrix(measurement: Measurement) -> np.ndarray:
     return np.asarray(matrix, dtype=float)
 
 
-def _to_px(inv: np.ndarray, pts_mm: np.ndarray) -> np.ndarray:
+def _to_px(inv: np.ndarray, pts_mm: ArrayLike) -> np.ndarray:
     pts = np.asarray(pts_mm, float).reshape(-1, 2)
     h = pts @ inv[:, :2].T + inv[:, 2]
     return h[:, :2] / h[:, 2:3]
@@ -132,14 +133,8 @@ def render_overlay(
         ):
             d = np.array([math.cos(math.radians(ang)), math.sin(math.radians(ang))]) * length_mm
             ends = _to_px(inv, [np.array(part.centroid_mm) - d, np.array(part.centroid_mm) + d])
-            cv2.line(
-                canvas,
-                *[tuple(int(v) for v in p) for p in pts_int(ends).reshape(-1, 2)],
-                colour,
-                lw,
-                cv2.LINE_AA,
-                shift,
-            )
+            p1, p2 = (tuple(int(v) for v in p) for p in pts_int(ends).reshape(-1, 2))
+            cv2.line(canvas, p1, p2, colour, lw, cv2.LINE_AA, shift)
         cpx = tuple(int(v) for v in np.round((centre + 0.5) * zoom - 0.5))
         cv2.drawMarker(canvas, cpx, (0, 0, 0), cv2.MARKER_TILTED_CROSS, 10 * lw + 8, lw + 2)
         cv2.drawMarker(canvas, cpx, _CENTROID, cv2.MARKER_TILTED_CROSS, 10 * lw + 8, lw)

@@ -700,8 +700,8 @@ def _tick(v: float) -> str:
     return f"{v:.6g}"
 
 
-def area_histogram_svg(areas_mm2: Sequence[float], *, width: int = 640, height: int = 300) -> tuple[str, int]:
-    """Inline SVG histogram of part areas; returns ``(svg, number_of_bins)``.
+def area_histogram_svg(areas_mm2: Sequence[float | None], *, width: int = 640, height: int = 300) -> tuple[str, int]:
+    """Inline SVG histogram of part areas (missing and non-finite ones skipped); returns ``(svg, number_of_bins)``.
 
     Bin edges come from ``numpy.histogram_bin_edges(..., bins="auto")`` (the larger
     of the Sturges and Freedman-Diaconis bin counts), at most 40 bins.
@@ -761,13 +761,11 @@ def centroid_offset_svg(rows: Sequence[Mapping[str, Any]], *, size: int = 360) -
     """Inline SVG scatter of centroid offsets from each part's bounding-box centre, mm."""
     pts = []
     for r in rows:
-        vals = [
-            _finite(r.get(k))
-            for k in ("centroid_x_mm", "centroid_y_mm", "bbox_xmin_mm", "bbox_ymin_mm", "bbox_xmax_mm", "bbox_ymax_mm")
-        ]
-        if None in vals:
+        keys = ("centroid_x_mm", "centroid_y_mm", "bbox_xmin_mm", "bbox_ymin_mm", "bbox_xmax_mm", "bbox_ymax_mm")
+        vals = [v for v in (_finite(r.get(k)) for k in keys) if v is not None]
+        if len(vals) < len(keys):
             continue
-        cx, cy, x0, y0, x1, y1 = vals  # type: ignore[misc]
+        cx, cy, x0, y0, x1, y1 = vals
         pts.append((cx - 0.5 * (x0 + x1), cy - 0.5 * (y0 + y1), f"{r.get('file', '')} part {r.get('part', '')}"))
     if not pts:
         return ""
@@ -866,7 +864,7 @@ def render_summary(
     files_ok = {str(r.get("file", "")) for r in rows}
     files_failed = {str(f.get("file", "")) for f in failures}
     masses = [_finite(r.get("mass_g")) for r in rows]
-    counts = [
+    counts: list[tuple[str, int | str]] = [
         ("Files", len(files_ok | files_failed)),
         ("Files measured", len(files_ok)),
         ("Files failed", len(files_failed)),

@@ -7,6 +7,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from scanmass.errors import OutputError
 from scanmass.load.decode import load_image
 from scanmass.measurement import Measurement
 from scanmass.options import MeasureOptions
@@ -49,6 +50,12 @@ def write_outputs(
         from scanmass.outputs.overlay import encode_png, render_overlay
 
         if image is None:
+            if measurement.source.path is None:
+                raise OutputError(
+                    "the overlay needs the measured image, and this result names no source file; "
+                    "measure the image file itself",
+                    path=os.fspath(overlay_out),
+                )
             image = load_image(measurement.source.path)
         written.append(str(write_atomic(overlay_out, encode_png(render_overlay(image, measurement)), inputs=inputs)))
     return MeasureOutputs(measurement=measurement, document=document, written=written)
