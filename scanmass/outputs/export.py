@@ -42,10 +42,10 @@ from xml.sax.saxutils import escape, quoteattr
 import numpy as np
 
 from scanmass.errors import OptionError, ResultFormatError
+from scanmass.geometry import orient_ring
 from scanmass.measurement import Hole, Measurement, Part
 from scanmass.outputs.atomic import write_atomic
 from scanmass.outputs.resultio import PathLike, as_measurement
-from scanmass.section import orient_ring
 
 if TYPE_CHECKING:  # pragma: no cover
     from ezdxf.document import Drawing

@@ -19,6 +19,10 @@ import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
+from scanmass.load.decode import DEFAULT_MAX_PIXELS, load_image
+from scanmass.scale.markers import MIN_MARKERS, detect_markers
+from scanmass.scale.mat import calibration_dir, layout_for_ids, load_layout
+from scanmass.scale.planemap import PixelCorrection
 
 __all__ = [
     "LensProfile",
@@ -185,10 +189,6 @@ def calibrate_lens(
        PAMI 22(11), 1330-1334, 2000.
     .. [2] OpenCV ``cv::calibrateCamera`` documentation (camera model and flags).
     """
-    from scanmass.load.decode import DEFAULT_MAX_PIXELS, load_image
-    from scanmass.scale.mat import layout_for_ids, load_layout
-    from scanmass.scale.photo import MIN_MARKERS, detect_markers
-
     photos = list(photos)
     if len(photos) < MIN_LENS_PHOTOS:
         raise ScaleError(
@@ -203,7 +203,9 @@ def calibrate_lens(
     size = sizes.pop()
     layout = load_layout(mat) if mat is not None else None
 
-    def correspondences(undistort=None):
+    def correspondences(
+        undistort: PixelCorrection | None = None, distort: PixelCorrection | None = None
+    ) -> tuple[list[np.ndarray], list[np.ndarray]]:
         objs, imgs = [], []
         for im in images:
             det = detect_markers(im, undistort=undistort)
@@ -215,16 +217,16 @@ def calibrate_lens(
                 )
             mm = lay.marker_corners(det.ids[keep]).reshape(-1, 2)
             px = det.corners_px[keep].reshape(-1, 2)
-            if undistort is not None:  # back to the distorted photo: calibrateCamera models the distortion
-                px = profile_now.distort_points(px)
+            if distort is not None:  # back to the distorted photo: calibrateCamera models the distortion
+                px = distort(px)
             objs.append(np.column_stack([mm, np.zeros(len(mm))]).astype(np.float32).reshape(-1, 1, 3))
             imgs.append(px.astype(np.float32).reshape(-1, 1, 2))
         return objs, imgs
 
     flags = cv2.CALIB_ZERO_TANGENT_DIST | cv2.CALIB_FIX_K3
     criteria = (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 200, 1e-12)
-    profile_now = None
     objs, imgs = correspondences()
+    profile_now: LensProfile | None = None
     for round_ in range(2):
         rms, k, dist, _, _ = cv2.calibrateCamera(objs, imgs, size, None, None, flags=flags, criteria=criteria)
         profile_now = LensProfile(
@@ -236,7 +238,8 @@ def calibrate_lens(
             points=int(sum(len(o) for o in objs)),
         )
         if round_ == 0:
-            objs, imgs = correspondences(profile_now.undistort_points)
+            objs, imgs = correspondences(profile_now.undistort_points, profile_now.distort_points)
+    assert profile_now is not None
     if not math.isfinite(profile_now.rms_px) or profile_now.rms_px > 2.0:
         raise ScaleError(
             f"lens calibration did not converge (RMS {profile_now.rms_px:.2f} px); take sharper photos of the flat mat "
@@ -247,8 +250,6 @@ def calibrate_lens(
 
 def default_profile_path(profile: LensProfile) -> Path:
     """calibration/lens-WxH.json in a checkout, else lens-WxH.json in the current folder."""
-    from scanmass.scale.mat import calibration_dir
-
     name = f"lens-{profile.image_size[0]}x{profile.image_size[1]}.json"
     folder = calibration_dir()
     return (folder / name) if folder is not None else Path(name)

@@ -27,6 +27,7 @@ from typing import Any
 import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
+from scanmass.raster import coverage, srgb_encode
 
 __all__ = [
     "DICTIONARY",
@@ -467,8 +468,6 @@ def render_mat_png(layout: MatLayout, dpi: float = 300.0) -> np.ndarray:
     (H, W) uint8 ndarray
         H = round(page height / s), W = round(page width / s).
     """
-    from scanmass.testing.scans import coverage, srgb_encode
-
     if not (math.isfinite(dpi) and 20.0 <= dpi <= 2400.0):
         raise OptionError(f"mat dpi {dpi!r} must be between 20 and 2400, e.g. --dpi 300")
     s = MM_PER_INCH / dpi

@@ -17,8 +17,8 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.raster import coverage, srgb_encode
 from scanmass.scale.mat import MatLayout, mat_dark_rectangles
-from scanmass.testing.scans import coverage, srgb_encode
 
 __all__ = ["PinholeCamera", "look_at", "render_mat_photo"]
 
