@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 import pytest
-from _mat_photos import PhotoParts, make_camera, render_photo, truth
+from polygon_truth import truth
 from PIL import Image
 from typer.testing import CliRunner
 
@@ -21,6 +21,7 @@ from scanmass.cli.app import app
 from scanmass.errors import OptionError, ScaleError
 from scanmass.scale.lens import LensProfile, calibrate_lens, load_lens_profile, save_lens_profile
 from scanmass.scale.mat import make_mat
+from scanmass.testing.photos import PhotoParts, make_camera, render_photo
 from scanmass.testing.scans import circle, rectangle
 
 MAT = make_mat("a4-portrait")

@@ -32,7 +32,7 @@ from scanmass.scale.mat import (
     render_mat_png,
     write_mat,
 )
-from scanmass.scale.photo import detect_markers
+from scanmass.scale.markers import detect_markers
 
 # ISO 216:2007 table 1 and ANSI/ASME Y14.1-2020 table 1 (portrait width, height, mm)
 PAPER_MM = {"a4": (210.0, 297.0), "a3": (297.0, 420.0), "letter": (215.9, 279.4)}

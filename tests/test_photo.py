@@ -1,7 +1,7 @@
 """Photos of parts on a marker mat or a plain sheet, rendered through a pinhole camera.
 
 Truth: the parts are exact polygons in mat mm; the photos are rendered by
-tests/_mat_photos.py (exact pixel coverage of every projected polygon, then light,
+scanmass.testing.photos (exact pixel coverage of every projected polygon, then light,
 blur, noise, sRGB, JPEG). Expected area and centroid come from shapely (reference
 library), second moments from the polygon vertex sums (Green's theorem, common
 practice), the true homography from the camera (K [r1 r2 t], Zhang 2000, eq. 2), paper
@@ -16,7 +16,7 @@ import math
 
 import numpy as np
 import pytest
-from _mat_photos import PhotoParts, make_camera, render_photo, truth
+from polygon_truth import truth
 from PIL import Image
 from typer.testing import CliRunner
 
@@ -26,7 +26,8 @@ from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.load.decode import load_image
 from scanmass.scale.homography import apply_h
 from scanmass.scale.mat import make_mat
-from scanmass.scale.photo import mat_scale
+from scanmass.testing.photos import PhotoParts, make_camera, render_photo
+from scanmass.scale.mat_scale import mat_scale
 from scanmass.testing.scans import circle, l_section, rectangle
 
 MAT = make_mat("a4-portrait")
@@ -85,7 +86,7 @@ def test_homography_against_the_camera_and_its_samples():
     px = apply_h(np.linalg.inv(true_h), grid_mm)
     err = np.hypot(*(scale.plane_map.to_mm(px) - grid_mm).T)
     assert err.max() < 0.02  # mm, at ~0.25 mm per px
-    spread = np.std([apply_h(h, px) for h in scale.plane_map.extra["matrix_samples"]], axis=0, ddof=1)
+    spread = np.std([apply_h(h, px) for h in [s.matrix for s in scale.plane_map.samples]], axis=0, ddof=1)
     assert np.all(np.abs(scale.plane_map.to_mm(px) - grid_mm) <= 4.0 * spread + 1e-4)
     # the clear area maps into the photo where the camera puts it
     assert np.allclose(apply_h(cam.plane_to_px(), [MAT.clear_area_mm[:2]]), scale.roi_px[0], atol=0.05)
