@@ -6,8 +6,10 @@ integers). :func:`map_part` sends every vertex through the scale stage's
 :class:`~scanmass.scale.planemap.PlaneMap` -- a homography after an optional point
 correction, so straight edges stay straight and the image is never resampled -- and
 returns a :class:`MappedPart` in the mm frame of DESIGN.md (x right, y up). The y flip
-is in the map's matrix, so a ring that is clockwise on screen comes out
-counter-clockwise in mm; nothing after this stage looks at pixel coordinates.
+is in the map's matrix and reverses the sign of every ring's shoelace area; here, once,
+each ring is put in the orientation of DESIGN.md -- outer rings counter-clockwise, holes
+clockwise, in mm -- with its per-vertex values. Nothing after this stage looks at pixel
+coordinates.
 
 With the rings go what the error model needs from the pixel side: the local pixel size
 (mm per px) at every vertex, the edge statistics the segment stage measured, and the
@@ -37,8 +39,9 @@ class MappedPart:
         The part touches the image edge (or the clear area's): its figures describe
         only the visible portion.
     outer_mm : (N, 2) ndarray
-        Outer ring in mm (orientation as mapped: counter-clockwise for a map that flips y).
+        Outer ring in mm, counter-clockwise (x right, y up).
     holes_mm : tuple of (M, 2) ndarrays
+        Hole rings in mm, clockwise.
     mm_per_px : tuple of ndarrays
         Local pixel size (mm, geometric mean of the two axes) at each vertex, one array
         per ring: the outer ring first, then the holes in order.
@@ -83,28 +86,41 @@ def map_part(rings: PartRings, plane_map: PlaneMap) -> MappedPart:
     >>> sq = np.array([[10.0, 10.0], [19.0, 10.0], [19.0, 19.0], [10.0, 19.0]])  # clockwise on screen
     >>> part = PartRings(1, sq, [], False, (10, 10, 20, 20), 81.0, 1.0, 0.0, np.ones(4), 1.0, 0.0)
     >>> m = map_part(part, PlaneMap.from_dpi(254, height_px=100))  # 0.1 mm per px
-    >>> m.outer_mm[0].round(6).tolist(), float(m.mm_per_px[0][0].round(12))
-    ([1.05, 8.95], 0.1)
-    >>> shoelace_area(m.outer_mm) > 0  # counter-clockwise in mm
-    True
+    >>> m.outer_mm.round(6).tolist(), float(m.mm_per_px[0][0].round(12))
+    ([[1.05, 8.05], [1.95, 8.05], [1.95, 8.95], [1.05, 8.95]], 0.1)
+    >>> round(shoelace_area(m.outer_mm), 9)  # counter-clockwise in mm
+    0.81
     """
-    outer_mm = plane_map.to_mm(rings.outer_px)
-    holes_mm = tuple(plane_map.to_mm(h) for h in rings.holes_px)
-    scales = (plane_map.local_mm_per_px(rings.outer_px),) + tuple(plane_map.local_mm_per_px(h) for h in rings.holes_px)
-    samples = tuple((s.to_mm(rings.outer_px), tuple(s.to_mm(h) for h in rings.holes_px)) for s in plane_map.samples)
+    rings_px = [rings.outer_px, *rings.holes_px]
+    gradients = [rings.gradient_px, *rings.hole_gradients_px]
+    mapped = [plane_map.to_mm(r) for r in rings_px]
+    # DESIGN.md's orientation: outer counter-clockwise, holes clockwise (in mm, y up)
+    flips = [(shoelace_area(r) > 0) != (i == 0) for i, r in enumerate(mapped)]
+    mapped = [_flip(r, f) for r, f in zip(mapped, flips)]
+    scales = tuple(_flip(plane_map.local_mm_per_px(r), f) for r, f in zip(rings_px, flips))
+    grads = tuple(_flip(np.asarray(g), f) for g, f in zip(gradients, flips))
+    samples = []
+    for s in plane_map.samples:
+        ring_set = [_flip(s.to_mm(r), f) for r, f in zip(rings_px, flips)]
+        samples.append((ring_set[0], tuple(ring_set[1:])))
     return MappedPart(
         label=rings.label,
         cut=rings.cut,
-        outer_mm=outer_mm,
-        holes_mm=holes_mm,
+        outer_mm=mapped[0],
+        holes_mm=tuple(mapped[1:]),
         mm_per_px=scales,
-        gradients_px=(rings.gradient_px, *rings.hole_gradients_px),
+        gradients_px=grads,
         noise_rel=rings.noise_rel,
         contrast=rings.contrast,
         blur_px=rings.blur_px,
         level_rel_u=rings.level_rel_u,
-        sample_rings_mm=samples,
+        sample_rings_mm=tuple(samples),
     )
+
+
+def _flip(values: np.ndarray, flip: bool) -> np.ndarray:
+    """A ring (or its per-vertex values) in reverse order when ``flip``; a single value as it is."""
+    return values[::-1] if flip and np.ndim(values) >= 1 else values
 
 
 def map_cut(rings: PartRings, plane_map: PlaneMap) -> MappedCut:

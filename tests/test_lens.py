@@ -12,8 +12,8 @@ import math
 
 import numpy as np
 import pytest
-from polygon_truth import truth
 from PIL import Image
+from polygon_truth import truth
 from typer.testing import CliRunner
 
 from scanmass import measure

@@ -16,8 +16,8 @@ import math
 
 import numpy as np
 import pytest
-from polygon_truth import truth
 from PIL import Image
+from polygon_truth import truth
 from typer.testing import CliRunner
 
 from scanmass import measure
@@ -26,8 +26,8 @@ from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.load.decode import load_image
 from scanmass.scale.homography import apply_h
 from scanmass.scale.mat import make_mat
-from scanmass.testing.photos import PhotoParts, make_camera, render_photo
 from scanmass.scale.mat_scale import mat_scale
+from scanmass.testing.photos import PhotoParts, make_camera, render_photo
 from scanmass.testing.scans import circle, l_section, rectangle
 
 MAT = make_mat("a4-portrait")
