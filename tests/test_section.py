@@ -737,7 +737,9 @@ def test_public_api_and_doctests():
         "ring_perimeter", "section_properties", "principal_moments", "rotate_moments",
         "parallel_axis", "convex_hull", "caliper_widths", "fit_circle", "boundary_influence",
     }  # fmt: skip
-    assert all(getattr(section, name) is getattr(geometry, name) for name in geometry.__all__ if name in section.__all__)
+    assert all(
+        getattr(section, name) is getattr(geometry, name) for name in geometry.__all__ if name in section.__all__
+    )
     flags = doctest.ELLIPSIS | doctest.NORMALIZE_WHITESPACE
     results = [doctest.testmod(m, optionflags=flags) for m in (section, geometry)]
     assert all(r.failed == 0 for r in results) and sum(r.attempted for r in results) > 10
