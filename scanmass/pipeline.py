@@ -404,6 +404,8 @@ def _check_within_support(scale: PhotoScale, result: Measurement, path: str | No
     """Refuse a part outside the convex hull (mm) of the points the plane map was fitted to."""
     hull = cv2.convexHull(scale.support_mm.astype(np.float32))
     for part in result.parts:
+        if part.outline_mm is None:
+            continue
         outline = np.asarray(part.outline_mm, dtype=np.float32)[:: max(1, len(part.outline_mm) // 200)]
         inside = [cv2.pointPolygonTest(hull, (float(x), float(y)), True) for x, y in outline]
         if min(inside) < -1.0:

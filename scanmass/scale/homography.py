@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 
 import cv2
 import numpy as np
+import numpy.typing as npt
 
 __all__ = [
     "HomographyFit",
@@ -28,7 +29,7 @@ __all__ = [
 ]
 
 
-def apply_h(matrix: np.ndarray, points: np.ndarray) -> np.ndarray:
+def apply_h(matrix: np.ndarray, points: npt.ArrayLike) -> np.ndarray:
     """Apply a 3x3 homography to (N, 2) points."""
     pts = np.asarray(points, dtype=float).reshape(-1, 2)
     h = pts @ matrix[:, :2].T + matrix[:, 2]

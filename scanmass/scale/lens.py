@@ -14,6 +14,7 @@ import os
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import cast
 
 import cv2
 import numpy as np
@@ -149,7 +150,7 @@ def load_lens_profile(path: str | os.PathLike) -> LensProfile:
         profile = LensProfile(
             camera_matrix=np.asarray(data["camera_matrix_px"], dtype=float).reshape(3, 3),
             dist_coeffs=np.array([d["k1"], d["k2"], d["p1"], d["p2"], d["k3"]], dtype=float),
-            image_size=tuple(int(v) for v in data["image_size_px"]),
+            image_size=cast(tuple[int, int], tuple(int(v) for v in data["image_size_px"])),
             rms_px=float(data["rms_px"]),
             photos=int(data.get("photos", 0)),
             points=int(data.get("points", 0)),

@@ -22,7 +22,7 @@ import os
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 
@@ -210,12 +210,12 @@ class MatLayout:
             )
             layout = cls(
                 name=str(data["name"]),
-                page_mm=tuple(float(v) for v in data["page_mm"]),
+                page_mm=cast(tuple[float, float], tuple(float(v) for v in data["page_mm"])),
                 dictionary=str(data["dictionary"]),
                 cell_mm=float(data["cell_mm"]),
                 markers=markers,
                 check_bars=bars,
-                clear_area_mm=tuple(float(v) for v in data["clear_area_mm"]),
+                clear_area_mm=cast(tuple[float, float, float, float], tuple(float(v) for v in data["clear_area_mm"])),
                 legend=tuple(data.get("legend", ())),
             )
         except (KeyError, TypeError, ValueError) as exc:
@@ -332,7 +332,7 @@ def make_mat(layout: str = "a4-portrait") -> MatLayout:
         cell_mm=cell,
         markers=markers,
         check_bars=(bar_x, bar_y),
-        clear_area_mm=tuple(float(v) for v in np.round(clear, 3)),
+        clear_area_mm=cast(tuple[float, float, float, float], tuple(float(v) for v in np.round(clear, 3))),
         legend=legend,
     )
 
@@ -488,9 +488,9 @@ def _text_layer(layout: MatLayout, shape: tuple[int, int], s: float) -> np.ndarr
         size_px = max(6, int(round(size_mm / s * 1.25)))
         font = ImageFont.load_default(size=size_px)
         left, top, right, bottom = font.getbbox(text)
-        tile = Image.new("L", (right + 2, bottom + 2), 0)
+        tile = Image.new("L", (int(right) + 2, int(bottom) + 2), 0)
         ImageDraw.Draw(tile).text((0, 0), text, fill=255, font=font)
-        ascent = font.getmetrics()[0]
+        ascent = font.getmetrics()[0]  # type: ignore[union-attr]  # load_default(size=) gives a FreeTypeFont
         if angle:
             tile = tile.rotate(angle, expand=True)
             # baseline start (x_mm, y_mm) is the bottom-left of the rotated text; its top (ascent) faces -x

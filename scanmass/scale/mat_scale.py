@@ -45,7 +45,7 @@ def _printer(
     """(scale matrix on mat mm, relative term, note) from the caliper readings of the check bars."""
     if (printed_x_mm is None) != (printed_y_mm is None):
         raise OptionError("give both check-bar readings, e.g. --printed-x 100.1 --printed-y 99.9", path=path)
-    if printed_x_mm is None:
+    if printed_x_mm is None or printed_y_mm is None:
         return np.eye(3), PRINTER_REL_U, False
     factors = []
     for axis, value in (("x", printed_x_mm), ("y", printed_y_mm)):
@@ -145,7 +145,7 @@ def mat_scale(
             f"print scale unverified: measure the mat's two 100 mm check bars and give --printed-x/--printed-y "
             f"(a {100 * PRINTER_REL_U:.1f} % printer term is included meanwhile)"
         )
-    inl_markers = fit.inliers.reshape(-1, 4).all(axis=1)
+    inl_markers = np.asarray(fit.inliers.reshape(-1, 4).all(axis=1))
     support = (printer[:2, :2] @ pts_mm[fit.inliers].T).T
     clear = np.array(layout.clear_area_mm, dtype=float)
     clear_phys = np.concatenate([printer[:2, :2] @ clear[:2], printer[:2, :2] @ clear[2:]])

@@ -72,8 +72,8 @@ def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: f
     to about 8 px per sigma and interpolated back.
     """
     shrink = max(1, int(sigma // 8))
-    m = mask.astype(np.float32)
-    v = (values * mask).astype(np.float32)
+    m: np.ndarray = mask.astype(np.float32)
+    v: np.ndarray = (values * mask).astype(np.float32)
     if shrink > 1:
         size = (max(1, values.shape[1] // shrink), max(1, values.shape[0] // shrink))
         m = cv2.resize(m, size, interpolation=cv2.INTER_AREA)
@@ -81,7 +81,7 @@ def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: f
     w = cv2.GaussianBlur(m, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
     v = cv2.GaussianBlur(v, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
     ok = w > 1e-3
-    ratio = np.full(w.shape, fallback, dtype=np.float32)
+    ratio: np.ndarray = np.full(w.shape, fallback, dtype=np.float32)
     ratio[ok] = v[ok] / w[ok]
     if shrink > 1:
         ratio = cv2.resize(ratio, (values.shape[1], values.shape[0]), interpolation=cv2.INTER_LINEAR)
@@ -243,7 +243,7 @@ def segment(
     if roi_px is not None:
         roi_mask = np.zeros_like(mask)
         cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px)).astype(np.int32)], 1)
-        mask &= roi_mask
+        np.bitwise_and(mask, roi_mask, out=mask)
 
     # -- 2. parts and their holes from the mask ---------------------------------------
     contours, hierarchy = cv2.findContours(mask, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE)
@@ -598,7 +598,7 @@ def _remap(img: np.ndarray, pts_rc: np.ndarray, interpolation: int) -> np.ndarra
     return cv2.remap(img, map_x, map_y, interpolation, borderMode=cv2.BORDER_REPLICATE).ravel().astype(np.float64)
 
 
-def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray]:
+def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Move marching-squares vertices onto the level of the bicubic interpolant.
 
     Linear interpolation between pixel centres places a blurred straight edge with a bias

@@ -217,11 +217,11 @@ def _printed(
     if page_mm is None:
         raise ValueError("give a mat layout or the sheet's size")
     page = np.array([[0, 0], [page_mm[0], 0], [page_mm[0], page_mm[1]], [0, page_mm[1]]], float)
-    refl = np.full(shape, table)
+    refl: np.ndarray = np.full(shape, table)
     refl += (paper - table) * polygon_coverage([(cam.project(page), [])], shape)
     if layout is not None:
         hidden = [m.corners_mm for m in layout.markers if m.id in set(hide_ids)]
-        rects = []
+        rects: list[tuple[np.ndarray, Sequence[np.ndarray]]] = []
         for r in mat_dark_rectangles(layout):
             if any(point_in_ring(r.mean(axis=0), ring) for ring in hidden):
                 continue
