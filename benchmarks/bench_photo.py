@@ -2,7 +2,7 @@
 
     python -m benchmarks.bench_photo [--n 10] [--width 4000] [--height 3000]
 
-Rendered photos (tests/_mat_photos.py: exact pixel coverage through a pinhole camera,
+Rendered photos (scanmass.testing.photos: exact pixel coverage through a pinhole camera,
 blur, noise, uneven light, JPEG 92) of parts at random places and angles in the clear
 area, tilts 0-30 degrees, any roll, about 0.1 mm per px at 4000 x 3000 px (the same
 framing at other sizes, so 0.26 mm per px at 1600 x 1200). Three
@@ -26,11 +26,12 @@ import numpy as np
 from PIL import Image
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
-from _mat_photos import PhotoParts, make_camera, render_photo, truth  # noqa: E402
+from polygon_truth import truth  # noqa: E402
 
 import scanmass  # noqa: E402
 from scanmass import make_mat, measure  # noqa: E402
 from scanmass.scale.lens import calibrate_lens  # noqa: E402
+from scanmass.testing.photos import PhotoParts, make_camera, render_photo  # noqa: E402
 from scanmass.testing.scans import circle, l_section, rectangle, rotate  # noqa: E402
 
 MAT = make_mat("a4-portrait")

@@ -12,6 +12,7 @@ __all__ = [
     "ImageError",
     "ScaleError",
     "SegmentationError",
+    "PartCutError",
     "OptionError",
     "OutputError",
     "ResultFormatError",
@@ -40,6 +41,17 @@ class ScaleError(ScanmassError):
 
 class SegmentationError(ScanmassError):
     """No part could be separated from the background."""
+
+
+class PartCutError(SegmentationError):
+    """Every part found touches the edge of the image (or of the region searched), none is whole.
+
+    ``count`` is the number of such parts.
+    """
+
+    def __init__(self, message: str, *, path: str | None = None, count: int = 0) -> None:
+        super().__init__(message, path=path)
+        self.count = int(count)
 
 
 class OptionError(ScanmassError, ValueError):

@@ -8,18 +8,24 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import fields
+from dataclasses import fields, replace
 from typing import Any
 
+import cv2
 import numpy as np
 
-from scanmass.errors import ScaleError
+from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
 from scanmass.load.decode import LoadedImage, load_image
+from scanmass.mapping import MappedPart, map_cut, map_part
 from scanmass.measurement import Hole, Measurement, Part, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_max_pixels, resolve_options
+from scanmass.scale.camera import PhotoScale
+from scanmass.scale.homography import raised_outline_mm
+from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
-from scanmass.section import fit_circle, ring_moments, ring_perimeter, section_properties
-from scanmass.segment.rings import PartRings, segment
+from scanmass.scale.sheet import sheet_scale
+from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
+from scanmass.segment.rings import segment
 from scanmass.uncertainty import (
     THRESHOLD_FLOOR_PX,
     build_edge_model,
@@ -29,7 +35,20 @@ from scanmass.uncertainty import (
     ring_mean_offset_u,
 )
 
-__all__ = ["measure", "measure_loaded", "measure_image", "MeasureOptions"]
+__all__ = [
+    "measure",
+    "measure_loaded",
+    "measure_image",
+    "measure_photo",
+    "measure_part",
+    "photo_scale",
+    "scale_method",
+    "scan_plane_map",
+    "MeasureOptions",
+]
+
+#: Fewest sampled maps from which the scale term is taken as their spread.
+MIN_SCALE_SAMPLES = 8
 
 _FIGURES_SCALE_POWER = {
     "area_mm2": 2,
@@ -100,8 +119,6 @@ def measure_loaded(
     path = None if isinstance(source, np.ndarray) else os.fspath(source)
     opts.check(path)
     image = load_image(source, dpi=opts.dpi, max_pixels=check_max_pixels(opts.max_pixels, path=path))
-    from scanmass.scale.photo import measure_photo, scale_method
-
     if scale_method(image, opts) == "dpi":
         result = measure_image(image, opts)
     else:
@@ -115,6 +132,34 @@ def measure_loaded(
     return result, image
 
 
+# ---------------------------------------------------------------------------------
+# scale
+# ---------------------------------------------------------------------------------
+
+
+def scale_method(image: LoadedImage, options: MeasureOptions) -> str:
+    """Which scale source to use: ``"dpi"``, ``"mat"`` or ``"sheet"``.
+
+    An explicit ``dpi`` means a scan; a ``sheet`` means a plain sheet; ``scale="mat"``
+    or a given ``mat`` layout means the mat; otherwise (``scale="auto"``) a file with
+    a trustworthy DPI is a scan and anything else is looked for on a mat.
+    """
+    scale = getattr(options, "scale", "auto")
+    if scale not in ("auto", "dpi", "mat", "sheet"):
+        raise OptionError(f"scale {scale!r} must be one of auto, dpi, mat, sheet", path=image.path)
+    if scale != "auto":
+        if scale == "sheet" and getattr(options, "sheet", None) is None:
+            raise OptionError("--scale sheet needs the paper size, e.g. --sheet a4", path=image.path)
+        return str(scale)
+    if options.dpi is not None:
+        return "dpi"
+    if getattr(options, "sheet", None) is not None:
+        return "sheet"
+    if getattr(options, "mat", None) is not None:
+        return "mat"
+    return "dpi" if image.dpi is not None else "mat"
+
+
 def scan_plane_map(image: LoadedImage, options: MeasureOptions) -> PlaneMap:
     """The scale of a flatbed scan from the given or stored DPI."""
     if image.dpi is None:
@@ -125,10 +170,36 @@ def scan_plane_map(image: LoadedImage, options: MeasureOptions) -> PlaneMap:
     return PlaneMap.from_dpi(image.dpi, height_px=image.height_px, rel_u=options.dpi_rel_u, note=image.dpi_note)
 
 
+def photo_scale(
+    image: LoadedImage, options: MeasureOptions, *, thickness_mm: float | None = None, thickness_u_mm: float = 0.0
+) -> PhotoScale:
+    """The :class:`~scanmass.scale.camera.PhotoScale` of a photo for the options of :func:`measure`."""
+    method = scale_method(image, options)
+    lens = getattr(options, "lens", None)
+    if method == "sheet":
+        return sheet_scale(
+            image, str(options.sheet), lens=lens, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm
+        )
+    return mat_scale(
+        image,
+        mat=getattr(options, "mat", None),
+        printed_x_mm=getattr(options, "printed_x_mm", None),
+        printed_y_mm=getattr(options, "printed_y_mm", None),
+        lens=lens,
+        thickness_mm=thickness_mm,
+        thickness_u_mm=thickness_u_mm,
+    )
+
+
+# ---------------------------------------------------------------------------------
+# measuring
+# ---------------------------------------------------------------------------------
+
+
 def measure_image(
     image: LoadedImage, options: MeasureOptions, *, plane_map: PlaneMap | None = None, roi_px: np.ndarray | None = None
 ) -> Measurement:
-    """Measure a loaded image with a given (or DPI-derived) plane map."""
+    """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty."""
     if plane_map is None:
         plane_map = scan_plane_map(image, options)
     px_area_mm2 = plane_map.mm_per_px**2
@@ -141,7 +212,7 @@ def measure_image(
         keep_cut=options.keep_cut,
         roi_px=roi_px,
     )
-    parts = [measure_part(rings, plane_map) for rings in seg.parts]
+    parts = [measure_part(map_part(rings, plane_map), plane_map) for rings in seg.parts]
     scale = ScaleInfo(
         method=plane_map.method,
         mm_per_px=plane_map.mm_per_px,
@@ -151,11 +222,7 @@ def measure_image(
         reprojection_rms_px=plane_map.reprojection_rms_px,
         reprojection_rms_mm=plane_map.reprojection_rms_mm,
         terms=dict(plane_map.terms),
-        extra={
-            **{k: v for k, v in plane_map.extra.items() if k not in ("matrix_samples", "undistort_samples")},
-            "px_to_mm": plane_map.matrix.tolist(),
-            "dpi_xy": list(plane_map.dpi) if plane_map.dpi else None,
-        },
+        extra=plane_map.details(),
     )
     source = SourceInfo(
         path=image.path,
@@ -169,18 +236,8 @@ def measure_image(
     )
     cut_parts = []
     for c in seg.cut:
-        ring_mm = plane_map.to_mm(c.outer_px)
-        cut_parts.append(
-            {
-                "bbox_mm": [
-                    float(ring_mm[:, 0].min()),
-                    float(ring_mm[:, 1].min()),
-                    float(ring_mm[:, 0].max()),
-                    float(ring_mm[:, 1].max()),
-                ],
-                "area_px": c.area_px,
-            }
-        )
+        cut = map_cut(c, plane_map)
+        cut_parts.append({"bbox_mm": list(cut.bbox_mm), "area_px": cut.area_px})
     settings = {
         "level": options.level,
         "threshold": options.threshold,
@@ -197,17 +254,108 @@ def measure_image(
     )
 
 
-def _scale_terms(plane_map: PlaneMap, outer_px, holes_px, props) -> dict[str, float]:
-    """Scale-term standard uncertainties of the main figures."""
-    samples = plane_map.extra.get("matrix_samples") if plane_map.extra else None
-    if samples is not None and len(samples) >= 8:
+def measure_photo(
+    image: LoadedImage, options: MeasureOptions, *, thickness_mm: float | None = None, thickness_u_mm: float = 0.0
+) -> Measurement:
+    """Measure a photo on a mat or sheet: plane map, segmentation inside the clear area, checks.
+
+    Raises
+    ------
+    ScaleError
+        See :func:`~scanmass.scale.mat_scale.mat_scale` and
+        :func:`~scanmass.scale.sheet.sheet_scale`; also when a part lies outside the
+        region the detected markers surround.
+    SegmentationError
+        No whole part inside the clear area.
+    """
+    if thickness_mm is not None and not (math.isfinite(thickness_mm) and thickness_mm >= 0):
+        raise OptionError(f"thickness {thickness_mm!r} mm must be zero or positive", path=image.path)
+    scale = photo_scale(image, options, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm)
+    masked = _mask_outside(image, scale.roi_px)
+    try:
+        result = measure_image(masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px)
+    except PartCutError:
+        where = "mat's clear area" if scale.plane_map.method == "mat" else "sheet's margin"
+        raise SegmentationError(
+            f"no whole part inside the {where}: the part crosses its edge or the photo's edge; move it inside "
+            "the corner marks, away from markers and the photo's edge",
+            path=image.path,
+        ) from None
+    _check_within_support(scale, result, image.path)
+    warnings = list(scale.warnings)
+    warnings += _parallax_warning(scale, result, thickness_mm)
+    result.warnings = warnings + list(result.warnings)
+    result.settings.update({"scale": scale_method(image, options)})
+    return result
+
+
+def _mask_outside(image: LoadedImage, roi_px: np.ndarray) -> LoadedImage:
+    """A copy of the image whose pixels outside the clear area show the paper's level.
+
+    The segmenter reads the part's polarity and the background from the whole image;
+    markers, print and the table around the mat would mislead it.
+    """
+    mask = np.zeros(image.grey.shape, np.uint8)
+    cv2.fillPoly(mask, [np.round(roi_px).astype(np.int32)], 1)
+    inner = cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=2).astype(bool)
+    band = inner & ~cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=8).astype(bool)
+    values = image.grey[band]
+    level = np.median(values) if values.size else np.median(image.grey[inner])
+    grey = image.grey.copy()
+    grey[~mask.astype(bool)] = np.asarray(level, dtype=grey.dtype)
+    return replace(image, grey=grey)
+
+
+def _check_within_support(scale: PhotoScale, result: Measurement, path: str | None) -> None:
+    """Refuse a part outside the convex hull (mm) of the points the plane map was fitted to."""
+    hull = cv2.convexHull(scale.support_mm.astype(np.float32))
+    for part in result.parts:
+        if part.outline_mm is None:
+            continue
+        outline = np.asarray(part.outline_mm, dtype=np.float32)[:: max(1, len(part.outline_mm) // 200)]
+        inside = [cv2.pointPolygonTest(hull, (float(x), float(y)), True) for x, y in outline]
+        if min(inside) < -1.0:
+            raise ScaleError(
+                f"part {part.label} lies outside the region the visible markers surround; keep the markers on every "
+                "side of the part in the photo",
+                path=path,
+            )
+
+
+def _parallax_warning(scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
+    """Without a thickness: the thickness from which parallax exceeds the stated uncertainty.
+
+    Each part's outline (mm) is raised by 1 mm (:func:`~scanmass.scale.homography.raised_outline_mm`);
+    the changes of its area and centroid against their stated uncertainties give the limit.
+    """
+    if thickness_mm is not None or scale.camera_matrix is None or not result.parts:
+        return []
+    h0 = scale.plane_map.matrix
+    limit = math.inf
+    for part in result.parts:
+        flat_mm = np.asarray(part.outline_mm, dtype=float)
+        raised = section_properties(raised_outline_mm(h0, scale.camera_matrix, 1.0, flat_mm))
+        flat = section_properties(flat_mm)
+        d_area = abs(raised.area_mm2 - flat.area_mm2)
+        d_cen = math.dist(raised.centroid_mm, flat.centroid_mm)
+        if d_area > 0:
+            limit = min(limit, part.area_u_mm2 / d_area)
+        if d_cen > 0:
+            limit = min(limit, math.hypot(*part.centroid_u_mm) / d_cen)
+    if limit < 25.0:
+        return [
+            f"parallax: a part thicker than about {limit:.2g} mm looks larger or shifted by more than the stated "
+            "uncertainty; give its thickness with --thickness MM"
+        ]
+    return []
+
+
+def _scale_terms(part: MappedPart, plane_map: PlaneMap, props: SectionProperties) -> dict[str, float]:
+    """Scale-term standard uncertainties of the main figures (mm only: the sampled maps' rings come mapped)."""
+    if len(part.sample_rings_mm) >= MIN_SCALE_SAMPLES:
         values: dict[str, list[float]] = {}
-        hooks = plane_map.extra.get("undistort_samples") or [plane_map.undistort] * len(
-            samples
-        )  # e.g. a photo's parallax
-        for matrix, hook in zip(samples, hooks):
-            pm = PlaneMap(matrix=np.asarray(matrix), method=plane_map.method, rel_u=0.0, undistort=hook)
-            sp = section_properties(pm.to_mm(outer_px), [pm.to_mm(h) for h in holes_px])
+        for outer_mm, holes_mm in part.sample_rings_mm:
+            sp = section_properties(outer_mm, list(holes_mm))
             for name, val in _figure_values(sp).items():
                 values.setdefault(name, []).append(val)
         out = {k: float(np.std(v, ddof=1)) for k, v in values.items()}
@@ -224,7 +372,7 @@ def _scale_terms(plane_map: PlaneMap, outer_px, holes_px, props) -> dict[str, fl
     return out
 
 
-def _figure_values(sp) -> dict[str, float]:
+def _figure_values(sp: SectionProperties) -> dict[str, float]:
     return {
         "area_mm2": sp.area_mm2,
         "centroid_x_mm": sp.centroid_mm[0],
@@ -240,23 +388,25 @@ def _figure_values(sp) -> dict[str, float]:
     }
 
 
-def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
-    """Section properties and uncertainties of one segmented part."""
-    outer_mm = plane_map.to_mm(rings.outer_px)
-    holes_mm = [plane_map.to_mm(h) for h in rings.holes_px]
+def measure_part(part: MappedPart, plane_map: PlaneMap) -> Part:
+    """Section properties and uncertainties of one mapped part (everything in mm).
+
+    ``plane_map`` gives only the scale's relative uncertainty and its named terms.
+    """
+    outer_mm = part.outer_mm
+    holes_mm = list(part.holes_mm)
     props = section_properties(outer_mm, holes_mm)
 
     # -- error model inputs -----------------------------------------------------------
-    scale_outer = plane_map.local_mm_per_px(rings.outer_px)
-    scales = [scale_outer] + [plane_map.local_mm_per_px(h) for h in rings.holes_px]
-    grads = [rings.gradient_px] + list(rings.hole_gradients_px)
-    sigma_n_px = [rings.noise_rel / np.maximum(g, 0.05) for g in grads]
-    offset_px = math.hypot(math.sqrt(2 * math.pi) * rings.blur_px * rings.level_rel_u, THRESHOLD_FLOOR_PX)
+    scale_outer = part.mm_per_px[0]
+    scales = list(part.mm_per_px)
+    sigma_n_px = [part.noise_rel / np.maximum(g, 0.05) for g in part.gradients_px]
+    offset_px = math.hypot(math.sqrt(2 * math.pi) * part.blur_px * part.level_rel_u, THRESHOLD_FLOOR_PX)
     offset_mm = offset_px * float(np.median(scale_outer))
     model = build_edge_model(outer_mm, holes_mm, sigma_n_px, scales, offset_mm)
     weights = figure_weights(model, props.area_mm2, props.centroid_mm, props.ixx_mm4, props.iyy_mm4, props.ixy_mm4)
     edge_u, thresh_u = part_uncertainty(model, weights)
-    scale_u = _scale_terms(plane_map, rings.outer_px, rings.holes_px, props)
+    scale_u = _scale_terms(part, plane_map, props)
     # perimeter: a uniform offset d changes it by 2 pi d per ring (turning number)
     n_rings = 1 + len(holes_mm)
     thresh_u["perimeter_mm"] = 2 * math.pi * offset_mm * abs(1 - len(holes_mm))
@@ -267,11 +417,11 @@ def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
         "threshold": thresh_u,
         "scale": scale_u,
         "inputs": {
-            "noise_rel": rings.noise_rel,
-            "blur_px": rings.blur_px,
-            "level_rel_u": rings.level_rel_u,
+            "noise_rel": part.noise_rel,
+            "blur_px": part.blur_px,
+            "level_rel_u": part.level_rel_u,
             "offset_px": offset_px,
-            "contrast": rings.contrast,
+            "contrast": part.contrast,
             "rings": n_rings,
         },
     }
@@ -285,8 +435,14 @@ def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
         d_u = combine(2 * r_edge, 2 * r_off, plane_map.rel_u * fit.diameter_mm)
         # the area moves by the perimeter times the mean normal displacement
         area_u = combine(perim * r_edge, perim * r_off, 2 * plane_map.rel_u * area_mm2)
-        cen_u = tuple(combine(c_edge, plane_map.rel_u * abs(c)) for c in centroid_mm)
-        circ_u = tuple(combine(c_edge, plane_map.rel_u * abs(c)) for c in fit.centre_mm)
+        cen_u = (
+            combine(c_edge, plane_map.rel_u * abs(centroid_mm[0])),
+            combine(c_edge, plane_map.rel_u * abs(centroid_mm[1])),
+        )
+        circ_u = (
+            combine(c_edge, plane_map.rel_u * abs(fit.centre_mm[0])),
+            combine(c_edge, plane_map.rel_u * abs(fit.centre_mm[1])),
+        )
         holes.append(
             Hole(
                 label=k,
@@ -305,7 +461,7 @@ def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
         )
 
     return Part(
-        label=rings.label,
+        label=part.label,
         **{f.name: getattr(props, f.name) for f in fields(props)},  # the section properties, same names
         area_u_mm2=total["area_mm2"],
         perimeter_u_mm=total["perimeter_mm"],
@@ -318,7 +474,7 @@ def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
         principal_angle_u_deg=total["principal_angle_deg"],
         polar_u_mm4=total["polar_mm4"],
         holes=holes,
-        cut=rings.cut,
+        cut=part.cut,
         uncertainty_terms=terms,
         outline_mm=outer_mm,
     )

@@ -35,9 +35,19 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from scanmass.section import boundary_influence, signed_area
+from scanmass.geometry import signed_area
+from scanmass.numeric import combine
+from scanmass.section import boundary_influence
 
-__all__ = ["EdgeModel", "THRESHOLD_FLOOR_PX", "figure_weights", "part_uncertainty"]
+__all__ = [
+    "EdgeModel",
+    "THRESHOLD_FLOOR_PX",
+    "build_edge_model",
+    "combine",
+    "figure_weights",
+    "part_uncertainty",
+    "ring_mean_offset_u",
+]
 
 #: Residual systematic offset of a marching-squares boundary on a sampled blurred edge
 #: after the local-midpoint level, in pixels (1 sigma); set from the accuracy benchmark.
@@ -162,8 +172,3 @@ def ring_mean_offset_u(model: EdgeModel, ring_index: int) -> tuple[float, float,
     cx = 2.0 * math.sqrt(float(np.sum(nx * nx * var_density))) / perimeter
     cy = 2.0 * math.sqrt(float(np.sum(ny * ny * var_density))) / perimeter
     return radius_edge, model.offset_mm, perimeter, math.hypot(cx, cy) / math.sqrt(2.0)
-
-
-def combine(*terms: float) -> float:
-    """Root-sum-square of independent standard uncertainties."""
-    return float(math.sqrt(sum(t * t for t in terms if t is not None and math.isfinite(t))))

@@ -12,15 +12,17 @@ import math
 
 import numpy as np
 import pytest
-from _mat_photos import PhotoParts, make_camera, render_photo, truth
 from PIL import Image
+from polygon_truth import truth
 from typer.testing import CliRunner
 
 from scanmass import measure
 from scanmass.cli.app import app
 from scanmass.errors import OptionError, ScaleError
-from scanmass.scale.lens import LensProfile, calibrate_lens, load_lens_profile, save_lens_profile
+from scanmass.outputs.scale_files import save_lens_profile
+from scanmass.scale.lens import LensProfile, calibrate_lens, load_lens_profile
 from scanmass.scale.mat import make_mat
+from scanmass.testing.photos import PhotoParts, make_camera, render_photo
 from scanmass.testing.scans import circle, rectangle
 
 #: every test here needs the module's rendered views (about 10 s to make and calibrate)

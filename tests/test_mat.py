@@ -21,6 +21,8 @@ from typer.testing import CliRunner
 from scanmass.cli.app import app
 from scanmass.errors import OptionError, ScaleError
 from scanmass.load.decode import load_image
+from scanmass.outputs.scale_files import write_mat
+from scanmass.scale.markers import detect_markers
 from scanmass.scale.mat import (
     IDS_PER_LAYOUT,
     LAYOUT_NAMES,
@@ -31,9 +33,7 @@ from scanmass.scale.mat import (
     mat_dark_rectangles,
     mat_pdf_bytes,
     render_mat_png,
-    write_mat,
 )
-from scanmass.scale.photo import detect_markers
 
 # ISO 216:2007 table 1 and ANSI/ASME Y14.1-2020 table 1 (portrait width, height, mm)
 PAPER_MM = {"a4": (210.0, 297.0), "a3": (297.0, 420.0), "letter": (215.9, 279.4)}

@@ -16,7 +16,7 @@ import pytest
 from polygon_truth import truth
 
 from scanmass import measure
-from scanmass.errors import ScaleError, SegmentationError
+from scanmass.errors import PartCutError, ScaleError, SegmentationError
 from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
 #: Relative tolerances of the measured figures on these clean synthetic scans.
@@ -158,8 +158,23 @@ def test_cut_part_left_out_and_kept_on_request():
     m = measure(scan.image, dpi=300)
     assert len(m.parts) == 1 and len(m.cut_parts) == 1
     assert any("edge" in w for w in m.warnings)
+    # the visible 25 x 20 mm of the cut rectangle (closed form), in px and in mm (within 2 px)
+    s_mm = 25.4 / 300
+    assert m.cut_parts[0]["area_px"] == pytest.approx(25.0 * 20.0 / s_mm**2, rel=0.01)
+    assert m.cut_parts[0]["bbox_mm"] == pytest.approx([0.0, 10.0, 25.0, 30.0], abs=2 * s_mm)
     m2 = measure(scan.image, dpi=300, keep_cut=True)
     assert len(m2.parts) == 2 and any(p.cut for p in m2.parts)
+
+
+def test_only_cut_parts_is_a_part_cut_error():
+    scan = render_scan([SynthPart(rectangle(-5.0, 10.0, 30.0, 20.0))], dpi=300, size_mm=(60, 40), seed=5)
+    with pytest.raises(PartCutError, match="1 part\\(s\\) touch the image edge.*--keep-cut") as info:
+        measure(scan.image, dpi=300)
+    assert isinstance(info.value, SegmentationError) and info.value.count == 1
+    assert len(measure(scan.image, dpi=300, keep_cut=True).parts) == 1
+    with pytest.raises(SegmentationError) as blank:
+        measure(np.full((100, 120), 200, np.uint8), dpi=300)
+    assert not isinstance(blank.value, PartCutError)
 
 
 def test_specks_below_min_area_ignored():

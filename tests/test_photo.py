@@ -1,7 +1,7 @@
 """Photos of parts on a marker mat or a plain sheet, rendered through a pinhole camera.
 
 Truth: the parts are exact polygons in mat mm; the photos are rendered by
-tests/_mat_photos.py (exact pixel coverage of every projected polygon, then light,
+scanmass.testing.photos (exact pixel coverage of every projected polygon, then light,
 blur, noise, sRGB, JPEG). Expected area and centroid come from shapely (reference
 library), second moments from the polygon vertex sums (Green's theorem, common
 practice), the true homography from the camera (K [r1 r2 t], Zhang 2000, eq. 2), paper
@@ -16,17 +16,18 @@ import math
 
 import numpy as np
 import pytest
-from _mat_photos import PhotoParts, make_camera, render_photo, truth
 from PIL import Image
+from polygon_truth import truth
 from typer.testing import CliRunner
 
 from scanmass import measure
 from scanmass.cli.app import app
-from scanmass.errors import OptionError, ScaleError, SegmentationError
+from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
 from scanmass.load.decode import load_image
-from scanmass.scale.homography import apply_h
+from scanmass.scale.homography import apply_h, raised_outline_mm
 from scanmass.scale.mat import make_mat
-from scanmass.scale.photo import mat_scale
+from scanmass.scale.mat_scale import mat_scale
+from scanmass.testing.photos import PhotoParts, make_camera, render_photo
 from scanmass.testing.scans import circle, l_section, rectangle
 
 MAT = make_mat("a4-portrait")
@@ -73,6 +74,14 @@ def test_tilted_photo_matches_truth(tilt, roll):
     for p, t in _match(m.parts, [truth(q.outer_mm, q.holes_mm) for q in parts]):
         _check(p, t)
     assert set(m.scale.terms) >= {"homography", "printer"}
+    # the result document's scale.extra: these keys, in this order (read by the overlay, the report, scripts)
+    assert list(m.scale.extra) == [
+        "layout", "markers_used", "markers_detected", "markers_on_mat", "corner_noise_px", "printer_check",
+        "lens_profile", "markers_px", "clear_area_mm", "misfit_mm", "focal_px", "focal_source", "mm_per_px",
+        "px_to_mm", "dpi_xy",
+    ]  # fmt: skip
+    assert m.scale.extra["mm_per_px"] == m.scale.mm_per_px and m.scale.extra["dpi_xy"] is None
+    assert m.scale.extra["clear_area_mm"] == pytest.approx(list(MAT.clear_area_mm))  # printer factors 1.0
 
 
 def test_homography_against_the_camera_and_its_samples():
@@ -85,7 +94,7 @@ def test_homography_against_the_camera_and_its_samples():
     px = apply_h(np.linalg.inv(true_h), grid_mm)
     err = np.hypot(*(scale.plane_map.to_mm(px) - grid_mm).T)
     assert err.max() < 0.02  # mm, at ~0.25 mm per px
-    spread = np.std([apply_h(h, px) for h in scale.plane_map.extra["matrix_samples"]], axis=0, ddof=1)
+    spread = np.std([apply_h(h, px) for h in [s.matrix for s in scale.plane_map.samples]], axis=0, ddof=1)
     assert np.all(np.abs(scale.plane_map.to_mm(px) - grid_mm) <= 4.0 * spread + 1e-4)
     # the clear area maps into the photo where the camera puts it
     assert np.allclose(apply_h(cam.plane_to_px(), [MAT.clear_area_mm[:2]]), scale.roi_px[0], atol=0.05)
@@ -150,6 +159,10 @@ def test_plain_sheet():
     m = measure(img, sheet="a4")
     p = m.parts[0]
     assert m.scale.method == "sheet" and sorted(m.scale.extra["sheet_mm"]) == [210.0, 297.0]
+    assert list(m.scale.extra) == [
+        "sheet", "sheet_mm", "sheet_tolerance_mm", "corners_px", "lens_profile", "focal_px", "focal_source",
+        "mm_per_px", "px_to_mm", "dpi_xy",
+    ]  # fmt: skip
     assert p.area_mm2 == pytest.approx(t["area"], rel=AREA_RTOL)
     i1 = 0.5 * (t["ixx"] + t["iyy"]) + math.hypot(0.5 * (t["ixx"] - t["iyy"]), t["ixy"])
     assert p.i1_mm4 == pytest.approx(i1, rel=MOMENT_RTOL)
@@ -207,6 +220,13 @@ def test_part_outside_the_clear_area():
         measure(img)
 
 
+def test_no_part_above_the_minimum_area_is_not_reported_as_a_cut_part():
+    img = render_photo(MAT, [_plate()], _cam())
+    with pytest.raises(SegmentationError, match="no part found above the minimum area") as info:
+        measure(img, printed_x_mm=100.0, printed_y_mm=100.0, min_area_mm2=1e5)
+    assert not isinstance(info.value, PartCutError) and "clear area" not in str(info.value)
+
+
 def test_markers_must_surround_the_part():
     right = [m.id for m in MAT.markers if m.corners_mm[:, 0].min() > 60.0]
     part = PhotoParts(rectangle(140.0, 120.0, 30.0, 40.0))
@@ -239,3 +259,30 @@ def test_cli_measure_photo(tmp_path):
     assert "matrix_samples" not in doc["scale"]["extra"]
     res = CliRunner().invoke(app, ["measure", str(path), "--sheet", "a5"])
     assert res.exit_code == 1 and len(res.output.strip().splitlines()) == 1 and "unknown sheet" in res.output
+
+
+def test_raised_outline_in_mm_against_similar_triangles():
+    """Camera straight above the point N at distance D: a point at height h seen at X has its foot at
+    N + (X - N) (D - h) / D (similar triangles of the pinhole model). The top edge forms the outline
+    where the side faces away from N; the bottom edge (on the mat) where it faces N."""
+    d_mm, h_mm, nadir = 400.0, 5.0, np.array([105.0, 148.5])
+    cam = make_camera(distance_mm=d_mm, target_mm=tuple(nadir))
+    h0 = np.linalg.inv(cam.plane_to_px())
+    t = np.linspace(0.0, 1.0, 41)[1:-1, None]
+    x0, y0, x1, y1 = 150.0, 140.0, 170.0, 160.0  # right of the nadir
+    sides = {
+        "bottom": np.column_stack([x0 + (x1 - x0) * t[:, 0], np.full(len(t), y0)]),
+        "right": np.column_stack([np.full(len(t), x1), y0 + (y1 - y0) * t[:, 0]]),
+        "top": np.column_stack([x1 - (x1 - x0) * t[:, 0], np.full(len(t), y1)]),
+        "left": np.column_stack([np.full(len(t), x0), y1 - (y1 - y0) * t[:, 0]]),
+    }
+    ring = np.concatenate(list(sides.values()))  # counter-clockwise, corners left out
+    foot = raised_outline_mm(h0, cam.k, h_mm, ring)
+    similar = nadir + (ring - nadir) * (d_mm - h_mm) / d_mm
+    n = len(t)
+    right = slice(n, 2 * n)
+    left = slice(3 * n, 4 * n)
+    assert np.allclose(foot[right], similar[right], atol=1e-9)  # faces away from the nadir: the top edge
+    assert np.allclose(foot[left], ring[left], atol=1e-12)  # faces the nadir: the bottom edge, on the mat
+    # reversing the ring does not change the answer
+    assert np.allclose(raised_outline_mm(h0, cam.k, h_mm, ring[::-1]), foot, atol=1e-12)

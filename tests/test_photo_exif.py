@@ -14,7 +14,7 @@ import pytest
 from PIL import Image
 
 from scanmass.load.decode import load_image
-from scanmass.scale.photo import FILM_DIAGONAL_MM, _exif_focal_px
+from scanmass.scale.camera import FILM_DIAGONAL_MM, _exif_focal_px
 
 
 def test_exif_35mm_focal_length_in_pixels(tmp_path):

@@ -18,8 +18,10 @@ from hypothesis import HealthCheck, assume, example, given, settings
 from hypothesis import strategies as st
 from shapely.geometry import MultiPoint, Polygon
 
+import scanmass.geometry as geometry
 import scanmass.section as section
 from scanmass.errors import OptionError, ScanmassError
+from scanmass.geometry import orient_ring, ring_moments, ring_perimeter, signed_area
 from scanmass.section import (
     CircleFit,
     SectionProperties,
@@ -27,14 +29,10 @@ from scanmass.section import (
     caliper_widths,
     convex_hull,
     fit_circle,
-    orient_ring,
     parallel_axis,
     principal_moments,
-    ring_moments,
-    ring_perimeter,
     rotate_moments,
     section_properties,
-    signed_area,
 )
 
 # --------------------------------------------------------------------------
@@ -739,8 +737,12 @@ def test_public_api_and_doctests():
         "ring_perimeter", "section_properties", "principal_moments", "rotate_moments",
         "parallel_axis", "convex_hull", "caliper_widths", "fit_circle", "boundary_influence",
     }  # fmt: skip
-    result = doctest.testmod(section, optionflags=doctest.ELLIPSIS | doctest.NORMALIZE_WHITESPACE)
-    assert result.failed == 0 and result.attempted > 10
+    assert all(
+        getattr(section, name) is getattr(geometry, name) for name in geometry.__all__ if name in section.__all__
+    )
+    flags = doctest.ELLIPSIS | doctest.NORMALIZE_WHITESPACE
+    results = [doctest.testmod(m, optionflags=flags) for m in (section, geometry)]
+    assert all(r.failed == 0 for r in results) and sum(r.attempted for r in results) > 10
 
 
 def test_results_are_plain_python_floats():

@@ -19,19 +19,17 @@ import shapely
 from PIL import Image
 
 from scanmass.errors import OptionError, OutputError
+from scanmass.raster import coverage, srgb_decode, srgb_encode
 from scanmass.testing.scans import (
     SynthPart,
     annulus,
     circle,
-    coverage,
     l_section,
     part_coverage,
     rectangle,
     regular_polygon,
     render_scan,
     save_scan,
-    srgb_decode,
-    srgb_encode,
 )
 
 # Tolerances stated once.

@@ -178,7 +178,9 @@ def test_threshold_term_is_the_exact_offset_derivative():
         assert thresh[name] == pytest.approx(abs(dv) * offset_mm, rel=1e-4), name
 
 
-def test_combine_is_root_sum_square_and_skips_missing_terms():
+def test_combine_is_root_sum_square_and_never_drops_an_unknown_term():
+    # GUM (JCGM 100:2008) 5.1.2: root-sum-square of independent terms
     assert combine(3.0, 4.0) == pytest.approx(5.0)
-    assert combine(3.0, None, float("nan"), 4.0) == pytest.approx(5.0)  # type: ignore[arg-type]
+    assert math.isnan(combine(3.0, float("nan"), 4.0))  # unknown stays unknown, never 0
+    assert combine(3.0, float("inf")) == math.inf
     assert combine() == 0.0

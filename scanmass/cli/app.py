@@ -658,7 +658,7 @@ def mat_command(
     dpi: Annotated[float, typer.Option("--dpi", help="Resolution of the PNG, dots per inch.")] = 300.0,
 ) -> None:
     """Write a printable marker mat for photos (PDF and/or PNG), each with its layout JSON beside it."""
-    from scanmass.scale.mat import write_mat
+    from scanmass.outputs.scale_files import write_mat
 
     with user_errors():
         written = write_mat(layout, pdf=pdf, png=png, dpi=dpi)
@@ -679,7 +679,8 @@ def lens_command(
     mat: MatOpt = None,
 ) -> None:
     """Calibrate the camera's lens from photos of a marker mat and save a lens profile."""
-    from scanmass.scale.lens import calibrate_lens, default_profile_path, save_lens_profile
+    from scanmass.outputs.scale_files import save_lens_profile
+    from scanmass.scale.lens import calibrate_lens, default_profile_path
 
     with user_errors():
         profile = calibrate_lens(photos, mat=mat)

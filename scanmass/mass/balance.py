@@ -22,11 +22,11 @@ from typing import Any
 import numpy as np
 
 from scanmass.errors import OptionError
+from scanmass.geometry import point_in_ring
 from scanmass.mass.assembly import select_part
 from scanmass.mass.materials import Material, resolve_material
 from scanmass.mass.plate import check_positive, plate_mass
 from scanmass.measurement import Hole, Measurement, Part, _clean
-from scanmass.section import point_in_ring
 
 __all__ = [
     "CAUTIONS",

@@ -36,16 +36,16 @@ from collections.abc import Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Literal
+from typing import TYPE_CHECKING
 from xml.sax.saxutils import escape, quoteattr
 
 import numpy as np
 
 from scanmass.errors import OptionError, ResultFormatError
+from scanmass.geometry import orient_ring
 from scanmass.measurement import Hole, Measurement, Part
 from scanmass.outputs.atomic import write_atomic
 from scanmass.outputs.resultio import PathLike, as_measurement
-from scanmass.section import orient_ring
 
 if TYPE_CHECKING:  # pragma: no cover
     from ezdxf.document import Drawing
@@ -75,7 +75,7 @@ FIT_TOLERANCE_MIN_MM = 0.001
 #: :func:`round_tolerance_default_mm`.
 ROUND_TOLERANCE_MIN_MM = 0.02
 
-FitTolerance = float | Literal["auto"] | None
+FitTolerance = float | str | None  # a number of mm, or "auto"; strings are parsed by the validator
 
 
 @dataclass

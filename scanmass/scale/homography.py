@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 
 import cv2
 import numpy as np
+import numpy.typing as npt
 
 __all__ = [
     "HomographyFit",
@@ -24,10 +25,11 @@ __all__ = [
     "decompose_plane",
     "elevated_plane_homography",
     "ElevationHook",
+    "raised_outline_mm",
 ]
 
 
-def apply_h(matrix: np.ndarray, points: np.ndarray) -> np.ndarray:
+def apply_h(matrix: np.ndarray, points: npt.ArrayLike) -> np.ndarray:
     """Apply a 3x3 homography to (N, 2) points."""
     pts = np.asarray(points, dtype=float).reshape(-1, 2)
     h = pts @ matrix[:, :2].T + matrix[:, 2]
@@ -277,3 +279,38 @@ class ElevationHook:
         parallax = pts - foot
         top = np.sum(outward * parallax, axis=1) > 0
         return np.where(top[:, None], foot, pts)
+
+
+def raised_outline_mm(px_to_plane: np.ndarray, k: np.ndarray, height_mm: float, ring_mm: np.ndarray) -> np.ndarray:
+    """The true outline on the plane of a part ``height_mm`` thick whose photo outline maps to ``ring_mm``.
+
+    The mm counterpart of :class:`ElevationHook`: a top-face point seen at ``X`` (mm, as if
+    on the plane) has its footprint at ``E X`` with ``E = H0 G0 Hh G0`` (the hook's
+    pixel footprint map taken to the plane), and a boundary point belongs to the top face
+    where its outward normal points along the parallax ``X - E X``. The ring is put
+    counter-clockwise first (mm, y up: outward is to the right of the direction of travel).
+
+    Parameters
+    ----------
+    px_to_plane : (3, 3) ndarray
+        ``H0`` (ideal pixels -> mm on the plane).
+    k : (3, 3) ndarray
+        Camera matrix of the ideal image.
+    height_mm : float
+        Height of the face above the plane.
+    ring_mm : (N, 2) ndarray
+        The outline as measured on the plane, either orientation.
+    """
+    hook = ElevationHook(px_to_plane, k, height_mm)
+    e = _normalised(hook.h0 @ hook.to_footprint @ hook.g0)
+    ring = np.asarray(ring_mm, dtype=float).reshape(-1, 2)
+    x, y = ring[:, 0], ring[:, 1]
+    if np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y) < 0:
+        ring = ring[::-1]
+    foot = apply_h(e, ring)
+    if len(ring) < 3:
+        return foot
+    tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
+    outward = np.column_stack([tangent[:, 1], -tangent[:, 0]])
+    top = np.sum(outward * (ring - foot), axis=1) > 0
+    return np.where(top[:, None], foot, ring)

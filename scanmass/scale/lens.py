@@ -14,11 +14,16 @@ import os
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
+from typing import cast
 
 import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
+from scanmass.load.decode import DEFAULT_MAX_PIXELS, load_image
+from scanmass.scale.markers import MIN_MARKERS, detect_markers
+from scanmass.scale.mat import calibration_dir, layout_for_ids, load_layout
+from scanmass.scale.planemap import PixelCorrection
 
 __all__ = [
     "LensProfile",
@@ -26,7 +31,6 @@ __all__ = [
     "calibrate_lens",
     "default_profile_path",
     "load_lens_profile",
-    "save_lens_profile",
     "MIN_LENS_PHOTOS",
 ]
 
@@ -118,13 +122,6 @@ class LensProfile:
         }
 
 
-def save_lens_profile(profile: LensProfile, path: str | os.PathLike) -> Path:
-    """Write a lens profile JSON atomically; returns the path."""
-    from scanmass.outputs.atomic import write_atomic
-
-    return Path(write_atomic(path, json.dumps(profile.to_dict(), indent=1) + "\n"))
-
-
 def load_lens_profile(path: str | os.PathLike) -> LensProfile:
     """Read a lens profile JSON written by :func:`save_lens_profile`."""
     p = Path(os.fspath(path))
@@ -145,7 +142,7 @@ def load_lens_profile(path: str | os.PathLike) -> LensProfile:
         profile = LensProfile(
             camera_matrix=np.asarray(data["camera_matrix_px"], dtype=float).reshape(3, 3),
             dist_coeffs=np.array([d["k1"], d["k2"], d["p1"], d["p2"], d["k3"]], dtype=float),
-            image_size=tuple(int(v) for v in data["image_size_px"]),
+            image_size=cast(tuple[int, int], tuple(int(v) for v in data["image_size_px"])),
             rms_px=float(data["rms_px"]),
             photos=int(data.get("photos", 0)),
             points=int(data.get("points", 0)),
@@ -185,10 +182,6 @@ def calibrate_lens(
        PAMI 22(11), 1330-1334, 2000.
     .. [2] OpenCV ``cv::calibrateCamera`` documentation (camera model and flags).
     """
-    from scanmass.load.decode import DEFAULT_MAX_PIXELS, load_image
-    from scanmass.scale.mat import layout_for_ids, load_layout
-    from scanmass.scale.photo import MIN_MARKERS, detect_markers
-
     photos = list(photos)
     if len(photos) < MIN_LENS_PHOTOS:
         raise ScaleError(
@@ -203,7 +196,9 @@ def calibrate_lens(
     size = sizes.pop()
     layout = load_layout(mat) if mat is not None else None
 
-    def correspondences(undistort=None):
+    def correspondences(
+        undistort: PixelCorrection | None = None, distort: PixelCorrection | None = None
+    ) -> tuple[list[np.ndarray], list[np.ndarray]]:
         objs, imgs = [], []
         for im in images:
             det = detect_markers(im, undistort=undistort)
@@ -215,16 +210,16 @@ def calibrate_lens(
                 )
             mm = lay.marker_corners(det.ids[keep]).reshape(-1, 2)
             px = det.corners_px[keep].reshape(-1, 2)
-            if undistort is not None:  # back to the distorted photo: calibrateCamera models the distortion
-                px = profile_now.distort_points(px)
+            if distort is not None:  # back to the distorted photo: calibrateCamera models the distortion
+                px = distort(px)
             objs.append(np.column_stack([mm, np.zeros(len(mm))]).astype(np.float32).reshape(-1, 1, 3))
             imgs.append(px.astype(np.float32).reshape(-1, 1, 2))
         return objs, imgs
 
     flags = cv2.CALIB_ZERO_TANGENT_DIST | cv2.CALIB_FIX_K3
     criteria = (cv2.TERM_CRITERIA_COUNT | cv2.TERM_CRITERIA_EPS, 200, 1e-12)
-    profile_now = None
     objs, imgs = correspondences()
+    profile_now: LensProfile | None = None
     for round_ in range(2):
         rms, k, dist, _, _ = cv2.calibrateCamera(objs, imgs, size, None, None, flags=flags, criteria=criteria)
         profile_now = LensProfile(
@@ -236,7 +231,8 @@ def calibrate_lens(
             points=int(sum(len(o) for o in objs)),
         )
         if round_ == 0:
-            objs, imgs = correspondences(profile_now.undistort_points)
+            objs, imgs = correspondences(profile_now.undistort_points, profile_now.distort_points)
+    assert profile_now is not None
     if not math.isfinite(profile_now.rms_px) or profile_now.rms_px > 2.0:
         raise ScaleError(
             f"lens calibration did not converge (RMS {profile_now.rms_px:.2f} px); take sharper photos of the flat mat "
@@ -247,8 +243,6 @@ def calibrate_lens(
 
 def default_profile_path(profile: LensProfile) -> Path:
     """calibration/lens-WxH.json in a checkout, else lens-WxH.json in the current folder."""
-    from scanmass.scale.mat import calibration_dir
-
     name = f"lens-{profile.image_size[0]}x{profile.image_size[1]}.json"
     folder = calibration_dir()
     return (folder / name) if folder is not None else Path(name)

@@ -22,11 +22,12 @@ import os
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
+from scanmass.raster import coverage, srgb_encode
 
 __all__ = [
     "DICTIONARY",
@@ -41,11 +42,7 @@ __all__ = [
     "layout_for_ids",
     "mat_dark_rectangles",
     "render_mat_png",
-    "write_mat_pdf",
-    "write_mat_png",
-    "write_layout_json",
     "calibration_dir",
-    "write_mat",
 ]
 
 #: OpenCV ArUco dictionary of every scanmass mat (5 x 5 data bits, 250 ids).
@@ -209,12 +206,12 @@ class MatLayout:
             )
             layout = cls(
                 name=str(data["name"]),
-                page_mm=tuple(float(v) for v in data["page_mm"]),
+                page_mm=cast(tuple[float, float], tuple(float(v) for v in data["page_mm"])),
                 dictionary=str(data["dictionary"]),
                 cell_mm=float(data["cell_mm"]),
                 markers=markers,
                 check_bars=bars,
-                clear_area_mm=tuple(float(v) for v in data["clear_area_mm"]),
+                clear_area_mm=cast(tuple[float, float, float, float], tuple(float(v) for v in data["clear_area_mm"])),
                 legend=tuple(data.get("legend", ())),
             )
         except (KeyError, TypeError, ValueError) as exc:
@@ -331,13 +328,13 @@ def make_mat(layout: str = "a4-portrait") -> MatLayout:
         cell_mm=cell,
         markers=markers,
         check_bars=(bar_x, bar_y),
-        clear_area_mm=tuple(float(v) for v in np.round(clear, 3)),
+        clear_area_mm=cast(tuple[float, float, float, float], tuple(float(v) for v in np.round(clear, 3))),
         legend=legend,
     )
 
 
 def load_layout(source: str | os.PathLike) -> MatLayout:
-    """A standard layout by name, or a layout JSON file written by :func:`write_layout_json`."""
+    """A standard layout by name, or a layout JSON file written by :func:`scanmass.outputs.scale_files.write_layout_json`."""
     text = os.fspath(source)
     if str(text).strip().lower() in _BLOCKS:
         return make_mat(str(text))
@@ -467,8 +464,6 @@ def render_mat_png(layout: MatLayout, dpi: float = 300.0) -> np.ndarray:
     (H, W) uint8 ndarray
         H = round(page height / s), W = round(page width / s).
     """
-    from scanmass.testing.scans import coverage, srgb_encode
-
     if not (math.isfinite(dpi) and 20.0 <= dpi <= 2400.0):
         raise OptionError(f"mat dpi {dpi!r} must be between 20 and 2400, e.g. --dpi 300")
     s = MM_PER_INCH / dpi
@@ -489,9 +484,9 @@ def _text_layer(layout: MatLayout, shape: tuple[int, int], s: float) -> np.ndarr
         size_px = max(6, int(round(size_mm / s * 1.25)))
         font = ImageFont.load_default(size=size_px)
         left, top, right, bottom = font.getbbox(text)
-        tile = Image.new("L", (right + 2, bottom + 2), 0)
+        tile = Image.new("L", (int(right) + 2, int(bottom) + 2), 0)
         ImageDraw.Draw(tile).text((0, 0), text, fill=255, font=font)
-        ascent = font.getmetrics()[0]
+        ascent = font.getmetrics()[0]  # type: ignore[union-attr]  # load_default(size=) gives a FreeTypeFont
         if angle:
             tile = tile.rotate(angle, expand=True)
             # baseline start (x_mm, y_mm) is the bottom-left of the rotated text; its top (ascent) faces -x
@@ -574,63 +569,7 @@ def mat_pdf_bytes(layout: MatLayout) -> bytes:
     return bytes(out)
 
 
-def write_mat_pdf(layout: MatLayout, path: str | os.PathLike) -> Path:
-    """Write the mat as a PDF at exact physical size, atomically; returns the path."""
-    from scanmass.outputs.atomic import write_atomic
-
-    return Path(write_atomic(path, mat_pdf_bytes(layout)))
-
-
-def write_mat_png(layout: MatLayout, path: str | os.PathLike, *, dpi: float = 300.0) -> Path:
-    """Write the mat as a PNG with its resolution (pHYs), atomically; returns the path."""
-    import io
-
-    from PIL import Image
-
-    from scanmass.outputs.atomic import write_atomic
-
-    img = render_mat_png(layout, dpi)
-    bio = io.BytesIO()
-    Image.fromarray(img).save(bio, format="PNG", dpi=(dpi, dpi), optimize=True)
-    return Path(write_atomic(path, bio.getvalue()))
-
-
-def write_layout_json(layout: MatLayout, path: str | os.PathLike) -> Path:
-    """Write the layout JSON document, atomically; returns the path."""
-    from scanmass.outputs.atomic import write_atomic
-
-    return Path(write_atomic(path, layout.to_json() + "\n"))
-
-
 def calibration_dir() -> Path | None:
     """The repository's calibration/ folder when scanmass runs from a checkout, else None."""
     candidate = Path(__file__).resolve().parents[2] / "calibration"
     return candidate if candidate.is_dir() else None
-
-
-def write_mat(
-    layout: str | MatLayout,
-    *,
-    pdf: str | os.PathLike | None = None,
-    png: str | os.PathLike | None = None,
-    dpi: float = 300.0,
-) -> list[Path]:
-    """Write a mat as PDF and/or PNG, each with its layout JSON beside it (same name, ``.json``).
-
-    Returns the written paths. Raises OptionError when neither output is given or a
-    layout JSON would land on the PDF or PNG itself.
-    """
-    mat = make_mat(layout) if isinstance(layout, str) else layout
-    if pdf is None and png is None:
-        raise OptionError("give an output: --pdf MAT.pdf and/or --png MAT.png")
-    written = []
-    for target, writer in ((pdf, lambda p: write_mat_pdf(mat, p)), (png, lambda p: write_mat_png(mat, p, dpi=dpi))):
-        if target is None:
-            continue
-        target = Path(os.fspath(target))
-        beside = target.with_suffix(".json")
-        if beside == target:
-            raise OptionError(f"{target} ends in .json; give the mat file a .pdf or .png name")
-        written.append(writer(target))
-        written.append(write_layout_json(mat, beside))
-    return list(dict.fromkeys(written))

@@ -1,9 +1,13 @@
-"""Pixel-to-millimetre maps of the measured plane (the "scale" stage).
+"""Pixel-to-millimetre maps of the measured plane (what the "scale" stage produces).
 
 A :class:`PlaneMap` takes pixel coordinates in the OpenCV convention — ``x_px`` the
 column, ``y_px`` the row counted from the top, pixel centres at integers — to
-millimetres in a right-handed frame with y up (DESIGN.md). The y flip happens here
-and nowhere else.
+millimetres in a right-handed frame with y up (DESIGN.md). The y flip is part of the
+map's matrix; :mod:`scanmass.mapping` is the one stage that applies it to a part.
+
+Everything a map carries is a typed field: the sampled maps of a fitted homography
+(:class:`PlaneMapSample`) and, for photos, what was found (:class:`PhotoScaleInfo`),
+which :meth:`PlaneMap.details` writes as the result document's ``scale.extra``.
 """
 
 from __future__ import annotations
@@ -18,7 +22,159 @@ import numpy as np
 from scanmass.errors import OptionError
 from scanmass.options import DEFAULT_DPI_REL_U, check_dpi
 
-__all__ = ["PlaneMap", "DEFAULT_DPI_REL_U", "check_dpi"]
+__all__ = [
+    "PlaneMap",
+    "PlaneMapSample",
+    "PixelCorrection",
+    "PhotoScaleInfo",
+    "MatDetails",
+    "SheetDetails",
+    "MarkerUse",
+    "PrinterCheck",
+    "ThicknessCorrection",
+    "DEFAULT_DPI_REL_U",
+    "check_dpi",
+    "project",
+]
+
+#: A correction of pixel points applied before a map's matrix: (N, 2) px -> (N, 2) px
+#: (a lens's undistortion, or the footprint of a raised part's top face).
+PixelCorrection = Callable[[np.ndarray], np.ndarray]
+
+
+def project(matrix: np.ndarray, points: np.ndarray) -> np.ndarray:
+    """Apply a 3x3 projective matrix to (N, 2) points."""
+    h = points @ matrix[:, :2].T + matrix[:, 2]
+    return h[:, :2] / h[:, 2:3]
+
+
+@dataclass(frozen=True)
+class PlaneMapSample:
+    """One sampled pixel -> mm map (for the scale term of the uncertainty).
+
+    Attributes
+    ----------
+    matrix : (3, 3) ndarray
+        The sampled homography.
+    correction : callable, optional
+        Its own pixel correction (a lens's, or a raised face's with a sampled focal
+        length and thickness).
+    """
+
+    matrix: np.ndarray
+    correction: PixelCorrection | None = None
+
+    def to_mm(self, points_px: np.ndarray | list) -> np.ndarray:
+        """Map (N, 2) pixel points to (N, 2) millimetres through this sample."""
+        pts = np.asarray(points_px, dtype=float).reshape(-1, 2)
+        if self.correction is not None:
+            pts = self.correction(pts)
+        return project(self.matrix, pts)
+
+
+@dataclass(frozen=True)
+class MarkerUse:
+    """A marker found in a photo: its id, refined corners (px) and whether the fit used it."""
+
+    id: int
+    corners_px: np.ndarray
+    used: bool
+
+
+@dataclass(frozen=True)
+class PrinterCheck:
+    """The print's scale: from caliper readings of the check bars (``done``) or nominal."""
+
+    done: bool
+    x_factor: float
+    y_factor: float
+
+
+@dataclass(frozen=True)
+class MatDetails:
+    """What a marker mat's fit found."""
+
+    layout: str
+    markers_used: int
+    markers_detected: int
+    markers_on_mat: int
+    corner_noise_px: float
+    printer_check: PrinterCheck
+    markers: tuple[MarkerUse, ...]
+    clear_area_mm: tuple[float, float, float, float]
+    misfit_mm: float
+
+
+@dataclass(frozen=True)
+class SheetDetails:
+    """What a plain sheet's fit found."""
+
+    sheet: str
+    sheet_mm: tuple[float, float]
+    sheet_tolerance_mm: float
+    corners_px: np.ndarray
+
+
+@dataclass(frozen=True)
+class ThicknessCorrection:
+    """The raised face's correction: its height above the plane and the parallax at the centre."""
+
+    height_mm: float
+    height_u_mm: float
+    parallax_at_centre_mm: float
+
+
+@dataclass(frozen=True)
+class PhotoScaleInfo:
+    """A photo's scale source and camera, as found (reported in ``scale.extra``)."""
+
+    target: MatDetails | SheetDetails
+    lens_profile: str | None
+    focal_px: float
+    focal_source: str
+    thickness: ThicknessCorrection | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """The JSON form: the keys (and their order) of the result document's ``scale.extra``."""
+        t = self.target
+        out: dict[str, Any]
+        if isinstance(t, MatDetails):
+            out = {
+                "layout": t.layout,
+                "markers_used": t.markers_used,
+                "markers_detected": t.markers_detected,
+                "markers_on_mat": t.markers_on_mat,
+                "corner_noise_px": t.corner_noise_px,
+                "printer_check": {
+                    "done": t.printer_check.done,
+                    "x_factor": t.printer_check.x_factor,
+                    "y_factor": t.printer_check.y_factor,
+                },
+                "lens_profile": self.lens_profile,
+                # for overlays and reports: where each marker was found, and whether the fit used it
+                "markers_px": [
+                    {"id": m.id, "corners": np.round(m.corners_px, 2).tolist(), "used": m.used} for m in t.markers
+                ],
+                "clear_area_mm": list(t.clear_area_mm),
+                "misfit_mm": t.misfit_mm,
+            }
+        else:
+            out = {
+                "sheet": t.sheet,
+                "sheet_mm": list(t.sheet_mm),
+                "sheet_tolerance_mm": t.sheet_tolerance_mm,
+                "corners_px": np.asarray(t.corners_px).tolist(),
+                "lens_profile": self.lens_profile,
+            }
+        out["focal_px"] = self.focal_px
+        out["focal_source"] = self.focal_source
+        if self.thickness is not None:
+            out["thickness_correction"] = {
+                "height_mm": self.thickness.height_mm,
+                "height_u_mm": self.thickness.height_u_mm,
+                "parallax_at_centre_mm": self.thickness.parallax_at_centre_mm,
+            }
+        return out
 
 
 @dataclass(frozen=True)
@@ -35,8 +191,20 @@ class PlaneMap:
         Relative standard uncertainty of lengths from this map (scale term only).
     terms : dict
         Named parts of ``rel_u`` (relative, 1 sigma), combined in quadrature.
+    note : str
+        One line on the scale's source, for the result.
+    dpi : (float, float), optional
+        A scan's resolution.
+    reprojection_rms_px, reprojection_rms_mm : float, optional
+        Residual of a fitted map.
     undistort : callable, optional
-        Applied to pixel points before the homography (lens correction).
+        Applied to pixel points before the homography (lens correction, raised face).
+    mm_per_px_nominal : float, optional
+        A fitted map's local pixel size at the centre of its clear area (mm).
+    samples : tuple of PlaneMapSample
+        Sampled maps whose spread is the map's uncertainty (fitted maps; empty for a scan).
+    photo : PhotoScaleInfo, optional
+        What a photo's scale source found.
     """
 
     matrix: np.ndarray
@@ -47,8 +215,10 @@ class PlaneMap:
     dpi: tuple[float, float] | None = None
     reprojection_rms_px: float | None = None
     reprojection_rms_mm: float | None = None
-    extra: dict[str, Any] = field(default_factory=dict)
-    undistort: Callable[[np.ndarray], np.ndarray] | None = None
+    undistort: PixelCorrection | None = None
+    mm_per_px_nominal: float | None = None
+    samples: tuple[PlaneMapSample, ...] = ()
+    photo: PhotoScaleInfo | None = None
 
     @classmethod
     def from_dpi(
@@ -85,22 +255,32 @@ class PlaneMap:
         a = self.matrix
         if self.method == "dpi":
             return float(math.sqrt(abs(a[0, 0] * a[1, 1])))
-        return float(self.extra.get("mm_per_px", math.sqrt(abs(np.linalg.det(a[:2, :2]) / a[2, 2] ** 2))))
+        if self.mm_per_px_nominal is not None:
+            return float(self.mm_per_px_nominal)
+        return float(math.sqrt(abs(np.linalg.det(a[:2, :2]) / a[2, 2] ** 2)))
+
+    def details(self) -> dict[str, Any]:
+        """The result document's ``scale.extra``: what was found, the pixel size, the matrix, the resolution."""
+        out: dict[str, Any] = {}
+        if self.photo is not None:
+            out.update(self.photo.to_dict())
+        if self.mm_per_px_nominal is not None:
+            out["mm_per_px"] = self.mm_per_px_nominal
+        out["px_to_mm"] = self.matrix.tolist()
+        out["dpi_xy"] = list(self.dpi) if self.dpi else None
+        return out
 
     def to_mm(self, points_px: np.ndarray | list) -> np.ndarray:
         """Map (N, 2) pixel points (x_px, y_px) to (N, 2) millimetres."""
         pts = np.asarray(points_px, dtype=float).reshape(-1, 2)
         if self.undistort is not None:
             pts = self.undistort(pts)
-        h = pts @ self.matrix[:, :2].T + self.matrix[:, 2]
-        return h[:, :2] / h[:, 2:3]
+        return project(self.matrix, pts)
 
     def to_px(self, points_mm: np.ndarray | list) -> np.ndarray:
         """Inverse of :meth:`to_mm` (without lens distortion)."""
         pts = np.asarray(points_mm, dtype=float).reshape(-1, 2)
-        inv = np.linalg.inv(self.matrix)
-        h = pts @ inv[:, :2].T + inv[:, 2]
-        return h[:, :2] / h[:, 2:3]
+        return project(np.linalg.inv(self.matrix), pts)
 
     def local_mm_per_px(self, points_px: np.ndarray) -> np.ndarray:
         """Local length scale (mm per px, geometric mean of the two axes) at each pixel point."""

@@ -22,9 +22,10 @@ import cv2
 import numpy as np
 from skimage.measure import find_contours
 
-from scanmass.errors import OptionError, SegmentationError
+from scanmass.errors import OptionError, PartCutError, SegmentationError
+from scanmass.geometry import point_in_ring, signed_area
 from scanmass.load.decode import LoadedImage
-from scanmass.section import point_in_ring, signed_area
+from scanmass.numeric import otsu_threshold
 
 __all__ = ["PartRings", "Segmentation", "segment"]
 
@@ -64,27 +65,6 @@ class Segmentation:
     warnings: list[str] = field(default_factory=list)
 
 
-def _otsu(values: np.ndarray) -> float:
-    """Otsu's threshold of float values (256 bins over their range).
-
-    Same result as ``skimage.filters.threshold_otsu(values, nbins=256)``; kept here
-    because importing ``skimage.filters`` pulls in scipy and costs ~0.25 s per process.
-    """
-    lo, hi = float(values.min()), float(values.max())
-    if hi <= lo:
-        return lo
-    hist, edges = np.histogram(values, bins=256, range=(lo, hi))
-    hist = hist.astype(float)
-    centres = 0.5 * (edges[:-1] + edges[1:])
-    w0 = np.cumsum(hist)
-    w1 = w0[-1] - w0
-    m0 = np.cumsum(hist * centres)
-    mu0 = m0 / np.maximum(w0, 1e-12)
-    mu1 = (m0[-1] - m0) / np.maximum(w1, 1e-12)
-    between = w0 * w1 * (mu0 - mu1) ** 2
-    return float(centres[int(np.argmax(between))])
-
-
 def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: float) -> np.ndarray:
     """Normalised convolution: a smooth surface through the masked samples.
 
@@ -92,8 +72,8 @@ def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: f
     to about 8 px per sigma and interpolated back.
     """
     shrink = max(1, int(sigma // 8))
-    m = mask.astype(np.float32)
-    v = (values * mask).astype(np.float32)
+    m: np.ndarray = mask.astype(np.float32)
+    v: np.ndarray = (values * mask).astype(np.float32)
     if shrink > 1:
         size = (max(1, values.shape[1] // shrink), max(1, values.shape[0] // shrink))
         m = cv2.resize(m, size, interpolation=cv2.INTER_AREA)
@@ -101,7 +81,7 @@ def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: f
     w = cv2.GaussianBlur(m, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
     v = cv2.GaussianBlur(v, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
     ok = w > 1e-3
-    ratio = np.full(w.shape, fallback, dtype=np.float32)
+    ratio: np.ndarray = np.full(w.shape, fallback, dtype=np.float32)
     ratio[ok] = v[ok] / w[ok]
     if shrink > 1:
         ratio = cv2.resize(ratio, (values.shape[1], values.shape[0]), interpolation=cv2.INTER_LINEAR)
@@ -184,6 +164,9 @@ def segment(
     ------
     SegmentationError
         When the image is blank, has no contrast, or no part is found.
+    PartCutError
+        (a SegmentationError) When every part found touches the image edge or the edge
+        of ``roi_px`` and ``keep_cut`` is off.
 
     References
     ----------
@@ -223,7 +206,7 @@ def segment(
         t_lin = float(lut[int(round(threshold * full_scale))])
         bright_background = float(np.median(border)) > t_lin
     else:
-        t_lin = _otsu(small.ravel())
+        t_lin = otsu_threshold(small.ravel())
         bright_background = float(np.mean(border > t_lin)) >= 0.5
     fg_small = (small < t_lin) if bright_background else (small > t_lin)
     if fg_small.mean() > 0.97:
@@ -260,7 +243,7 @@ def segment(
     if roi_px is not None:
         roi_mask = np.zeros_like(mask)
         cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px)).astype(np.int32)], 1)
-        mask &= roi_mask
+        np.bitwise_and(mask, roi_mask, out=mask)
 
     # -- 2. parts and their holes from the mask ---------------------------------------
     contours, hierarchy = cv2.findContours(mask, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE)
@@ -339,9 +322,10 @@ def segment(
     warnings: list[str] = []
     if not found:
         if cut:
-            raise SegmentationError(
+            raise PartCutError(
                 f"no whole part found: {len(cut)} part(s) touch the image edge; reposition the part away from the edge or pass --keep-cut",
                 path=image.path,
+                count=len(cut),
             )
         raise SegmentationError(
             "no part found above the minimum area; check the scan or lower --min-area", path=image.path
@@ -614,7 +598,7 @@ def _remap(img: np.ndarray, pts_rc: np.ndarray, interpolation: int) -> np.ndarra
     return cv2.remap(img, map_x, map_y, interpolation, borderMode=cv2.BORDER_REPLICATE).ravel().astype(np.float64)
 
 
-def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray]:
+def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Move marching-squares vertices onto the level of the bicubic interpolant.
 
     Linear interpolation between pixel centres places a blurred straight edge with a bias

@@ -1,0 +1,288 @@
+"""The scale of a photo of a part on a scanmass marker mat (part of the "scale" stage).
+
+:func:`mat_scale` finds the mat's markers (:mod:`scanmass.scale.markers`), identifies the
+mat layout from their ids, checks the view (motion blur, focus, a flat mat), fits the
+homography pixel -> mat mm (robust, then least squares), applies the printer's check-bar
+readings and returns a :class:`~scanmass.scale.camera.PhotoScale`.
+
+Pixel coordinates are OpenCV's (x_px = column, y_px = row from the top, pixel centres at
+integers); mm are in the mat frame (origin lower-left, y up).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+
+import cv2
+import numpy as np
+
+from scanmass.errors import OptionError, ScaleError
+from scanmass.load.decode import LoadedImage
+from scanmass.scale.camera import PhotoScale, build_photo_scale, lens_tools, principal_point
+from scanmass.scale.homography import HomographyFit, apply_h, fit_homography
+from scanmass.scale.lens import LensProfile
+from scanmass.scale.markers import MIN_MARKERS, MarkerDetection, detect_markers
+from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids, load_layout
+from scanmass.scale.planemap import MarkerUse, MatDetails, PrinterCheck
+
+__all__ = ["mat_scale", "PRINTER_REL_U", "PRINTED_READING_U_MM", "MAX_MISFIT_MM"]
+
+#: Relative standard uncertainty of an unverified print's scale (1 sigma). Common
+#: practice: office printers printing "at 100 %" reproduce lengths to a few tenths of a
+#: per cent, a "fit to page" setting shrinks them by 3-6 %; 0.5 % is our stated sigma
+#: for a print whose bars were not measured.
+PRINTER_REL_U = 0.005
+#: Standard uncertainty of one caliper reading of a 100 mm printed bar, mm: a 0.02 mm
+#: vernier or digital caliper (common practice) set on the ends of a printed bar,
+#: whose edges are less crisp than a machined face.
+PRINTED_READING_U_MM = 0.05
+
+
+def _printer(
+    layout: MatLayout, printed_x_mm: float | None, printed_y_mm: float | None, path: str | None
+) -> tuple[np.ndarray, float, bool]:
+    """(scale matrix on mat mm, relative term, note) from the caliper readings of the check bars."""
+    if (printed_x_mm is None) != (printed_y_mm is None):
+        raise OptionError("give both check-bar readings, e.g. --printed-x 100.1 --printed-y 99.9", path=path)
+    if printed_x_mm is None or printed_y_mm is None:
+        return np.eye(3), PRINTER_REL_U, False
+    factors = []
+    for axis, value in (("x", printed_x_mm), ("y", printed_y_mm)):
+        nominal = layout.bar(axis).length_mm
+        if not (math.isfinite(value) and 0.9 * nominal <= value <= 1.1 * nominal):
+            raise OptionError(
+                f"printed {axis} bar reading {value!r} mm is more than 10 % off its {nominal:g} mm; "
+                "reprint the mat at 100 % (actual size) and measure the bar end to end",
+                path=path,
+            )
+        factors.append(value / nominal)
+    rel = PRINTED_READING_U_MM / layout.bar("x").length_mm
+    return np.diag([factors[0], factors[1], 1.0]), rel, True
+
+
+def mat_scale(
+    image: LoadedImage,
+    *,
+    mat: str | os.PathLike | MatLayout | None = None,
+    printed_x_mm: float | None = None,
+    printed_y_mm: float | None = None,
+    lens: LensProfile | str | os.PathLike | None = None,
+    thickness_mm: float | None = None,
+    thickness_u_mm: float = 0.0,
+) -> PhotoScale:
+    """The plane map of a photo of a part on a scanmass marker mat.
+
+    Parameters
+    ----------
+    image : LoadedImage
+    mat : str, path or MatLayout, optional
+        The mat's layout name or JSON file; by default recognised from the marker ids.
+    printed_x_mm, printed_y_mm : float, optional
+        Caliper readings of the printed 100 mm check bars; they correct the x and y
+        scale of the print separately. Without them a printer term of
+        :data:`PRINTER_REL_U` enters the uncertainty and a warning says so.
+    lens : LensProfile or path, optional
+        Camera lens profile from :func:`scanmass.scale.lens.calibrate_lens`.
+    thickness_mm, thickness_u_mm : float, optional
+        Height of the part's measured face above the mat and its standard uncertainty.
+
+    Returns
+    -------
+    PhotoScale
+
+    Raises
+    ------
+    ScaleError
+        No or too few markers, unknown layout, markers inconsistent with a flat mat,
+        motion blur.
+    """
+    path = image.path
+    tools = lens_tools(lens, image)
+    layout = load_layout(mat) if isinstance(mat, (str, os.PathLike)) else mat
+    det = detect_markers(image, dictionary=layout.dictionary if layout else "DICT_5X5_250", undistort=tools.undistort)
+    if len(det.ids) == 0:
+        raise ScaleError(
+            "no scale: no marker mat found in the photo (and no usable DPI); photograph the part on a mat "
+            "printed with 'scanmass mat', or give --sheet a4 for a plain sheet, or --dpi N for a scan",
+            path=path,
+        )
+    if layout is None:
+        layout = layout_for_ids(det.ids, path=path)
+    known = np.isin(det.ids, layout.ids)
+    if not known.all():
+        strays = det.ids[~known]
+        if known.sum() < MIN_MARKERS:
+            raise ScaleError(
+                f"the markers in the photo (ids {sorted(strays.tolist())[:6]}) are not those of mat {layout.name}; "
+                "use a mat printed by 'scanmass mat' or give its layout file with --mat LAYOUT.json",
+                path=path,
+            )
+    ids = det.ids[known]
+    corners_px = det.corners_px[known]
+    n = len(ids)
+    if n < MIN_MARKERS:
+        raise ScaleError(
+            f"only {n} marker(s) of mat {layout.name} are visible; at least {MIN_MARKERS} are needed: "
+            "keep the whole mat in the photo and the part off the markers",
+            path=path,
+        )
+    _check_blur(det, known, path)
+    corners_mm = layout.marker_corners(ids)
+    pts_px = corners_px.reshape(-1, 2)
+    pts_mm = corners_mm.reshape(-1, 2)
+    cell_px = (
+        float(np.median(np.hypot(*(np.roll(corners_px, -1, axis=1) - corners_px).reshape(-1, 2).T))) / MARKER_CELLS
+    )
+    fit = fit_homography(pts_px, pts_mm, ransac_px=max(2.0, 0.25 * cell_px))
+    if fit is None:
+        raise ScaleError("the markers found do not fit a flat mat; lay the mat flat and photograph it again", path=path)
+    warnings: list[str] = []
+    misfit = _check_consistency(fit, n, det.edge_noise_px, pts_px, pts_mm, principal_point(image), path, warnings)
+    printer, printer_rel, checked = _printer(layout, printed_x_mm, printed_y_mm, path)
+    if not checked:
+        warnings.append(
+            f"print scale unverified: measure the mat's two 100 mm check bars and give --printed-x/--printed-y "
+            f"(a {100 * PRINTER_REL_U:.1f} % printer term is included meanwhile)"
+        )
+    inl_markers = np.asarray(fit.inliers.reshape(-1, 4).all(axis=1))
+    support = (printer[:2, :2] @ pts_mm[fit.inliers].T).T
+    clear = np.array(layout.clear_area_mm, dtype=float)
+    clear_phys = np.concatenate([printer[:2, :2] @ clear[:2], printer[:2, :2] @ clear[2:]])
+    terms = {"printer": printer_rel}
+    if misfit > 0:  # what the plane model leaves unexplained, over a typical part's size
+        clear_diag = math.hypot(clear[2] - clear[0], clear[3] - clear[1])
+        terms["flatness"] = misfit / (0.25 * clear_diag)
+    x0, y0, x1, y1 = (float(v) for v in clear_phys)
+    details = MatDetails(
+        layout=layout.name,
+        markers_used=int(inl_markers.sum()),
+        markers_detected=int(len(det.ids)),
+        markers_on_mat=int(len(layout.markers)),
+        corner_noise_px=det.edge_noise_px,
+        printer_check=PrinterCheck(done=checked, x_factor=float(printer[0, 0]), y_factor=float(printer[1, 1])),
+        markers=tuple(MarkerUse(int(i), c, bool(u)) for i, c, u in zip(ids, corners_px, inl_markers)),
+        clear_area_mm=(x0, y0, x1, y1),
+        misfit_mm=misfit,
+    )
+    note = (
+        f"marker mat {layout.name}: {int(inl_markers.sum())} of {len(layout.markers)} markers, "
+        f"reprojection RMS {fit.rms_px:.3f} px"
+    )
+    scale = build_photo_scale(
+        image,
+        method="mat",
+        fit=fit,
+        points_mm=pts_mm,
+        printer=printer,
+        terms=terms,
+        details=details,
+        note=note,
+        clear_mm=clear_phys,
+        lens=tools,
+        thickness_mm=thickness_mm,
+        thickness_u_mm=thickness_u_mm,
+        support_mm=support,
+        warnings=warnings,
+        sample_sigma_px=fit.sigma_px,
+    )
+    scale.detection = det
+    scale.layout = layout
+    return scale
+
+
+def _check_blur(det: MarkerDetection, known: np.ndarray, path: str | None) -> None:
+    """Refuse motion blur: edge widths that differ strongly with the edge's direction."""
+    blur = det.edge_blur_px[known]
+    normals = det.side_normals[known]
+    ok = np.isfinite(blur)
+    if ok.sum() < 8:
+        return
+    b, nrm = blur[ok], normals[ok]
+    # edge width along each normal direction: fit b^2 = s0^2 + m^2 (n . v)^2 via a 2x2 tensor
+    a = np.column_stack([np.ones(len(b)), nrm[:, 0] ** 2 - nrm[:, 1] ** 2, 2 * nrm[:, 0] * nrm[:, 1]])
+    coef, *_ = np.linalg.lstsq(a, b**2, rcond=None)
+    aniso = math.hypot(coef[1], coef[2])
+    wide = math.sqrt(max(coef[0] + aniso, 0.0))
+    narrow = math.sqrt(max(coef[0] - aniso, 0.0))
+    if wide > 2.5 and wide > 2.0 * max(narrow, 0.5):
+        raise ScaleError(
+            f"the photo is smeared in one direction (motion blur: edges {wide:.1f} px wide across it, {narrow:.1f} px "
+            "along it); hold the camera still or add light, and take the photo again",
+            path=path,
+        )
+    if narrow > 6.0:
+        raise ScaleError(
+            f"the photo is out of focus (marker edges about {narrow:.1f} px wide); focus on the mat and take it again",
+            path=path,
+        )
+
+
+#: Largest misfit (mm, RMS over the marker corners, beyond their localisation noise) of
+#: the homography that is accepted: a flat mat printed by an office printer fits to a few
+#: hundredths of a mm; a bend, crease or curl of the paper, or strong lens distortion,
+#: shows as more.
+MAX_MISFIT_MM = 0.15
+
+
+def _misfit_mm(fit: HomographyFit, noise_px: float) -> float:
+    mm_per_px = fit.rms_mm / fit.rms_px if fit.rms_px > 0 else 0.0
+    expected = 3.0 * (noise_px if math.isfinite(noise_px) else 0.0)
+    return math.sqrt(max(fit.rms_px**2 - expected**2, 0.0)) * mm_per_px
+
+
+def _looks_like_distortion(
+    pts_px: np.ndarray, pts_mm: np.ndarray, fit: HomographyFit, centre_px: tuple[float, float]
+) -> bool:
+    """True when one radial term about the image centre explains most of the misfit."""
+    sel = fit.inliers
+    c = np.asarray(centre_px, dtype=float)
+    r2 = np.sum((pts_px - c) ** 2, axis=1)
+    scale = float(r2.max()) or 1.0
+    best = fit.rms_px
+    for lam in np.linspace(-0.3, 0.3, 61):
+        corrected = c + (pts_px - c) * (1.0 + lam * r2 / scale)[:, None]
+        g, _ = cv2.findHomography(pts_mm[sel], corrected[sel], 0)
+        if g is None:
+            continue
+        res = apply_h(g, pts_mm[sel]) - corrected[sel]
+        best = min(best, math.sqrt(float(np.mean(np.sum(res**2, axis=1)))))
+    return best < 0.35 * fit.rms_px
+
+
+def _check_consistency(
+    fit: HomographyFit,
+    n_markers: int,
+    noise_px: float,
+    pts_px: np.ndarray,
+    pts_mm: np.ndarray,
+    centre_px: tuple[float, float],
+    path: str | None,
+    warnings: list[str],
+) -> float:
+    """Refuse a bent or creased mat (or strong lens distortion): corners that no homography explains.
+
+    Returns the misfit in mm (RMS beyond the corners' localisation noise).
+    """
+    outlier_markers = int((~fit.inliers.reshape(-1, 4)).any(axis=1).sum())
+    misfit = _misfit_mm(fit, noise_px)
+    if outlier_markers > max(1, 0.2 * n_markers) or misfit > MAX_MISFIT_MM:
+        what = (
+            f"reprojection RMS {fit.rms_px:.2f} px = {fit.rms_mm:.2f} mm, {outlier_markers} of {n_markers} markers off"
+        )
+        if _looks_like_distortion(pts_px, pts_mm, fit, centre_px):
+            raise ScaleError(
+                f"the markers bow like a distorting lens ({what}); calibrate the camera with 'scanmass lens PHOTOS...' "
+                "and pass --lens PROFILE",
+                path=path,
+            )
+        raise ScaleError(
+            f"the markers do not lie on one flat plane ({what}): flatten the mat (no bends, creases or curl) and "
+            "take the photo again",
+            path=path,
+        )
+    if outlier_markers:
+        warnings.append(
+            f"{outlier_markers} marker(s) did not fit the others and were left out (a crease or a dirty marker?)"
+        )
+    return misfit
