@@ -59,9 +59,7 @@ def scan_png(*, seed: int = 0, dpi: float = 150.0) -> bytes:
 
 
 @contextlib.contextmanager
-def serve_client(
-    store: Path, *, client_host: str = "127.0.0.1", task: Any = None, **config: Any
-) -> Iterator[Any]:
+def serve_client(store: Path, *, client_host: str = "127.0.0.1", task: Any = None, **config: Any) -> Iterator[Any]:
     """A TestClient of the app on ``store`` (workers really start), as a loopback client by default."""
     from scanmass.serve.app import create_app
 
@@ -71,9 +69,7 @@ def serve_client(
         warnings.simplefilter("ignore")  # the test client's notice about httpx
         from starlette.testclient import TestClient
 
-        tc = TestClient(
-            create_app(cfg, task=task), base_url="http://127.0.0.1:8350", client=(client_host, 50123)
-        )
+        tc = TestClient(create_app(cfg, task=task), base_url="http://127.0.0.1:8350", client=(client_host, 50123))
     with tc:
         tc.config = cfg  # type: ignore[attr-defined]
         yield tc
@@ -108,3 +104,51 @@ def slow_task(image: str, options: dict, out_dir: str) -> dict:
     """Sleep before measuring, so that jobs pile up in the queue."""
     time.sleep(1.5)
     return measure_task(image, options, out_dir)
+
+
+@contextlib.contextmanager
+def running_server(store: Path, *args: str, timeout_s: float = 60.0) -> Iterator[tuple[Any, str, str]]:
+    """``python -m scanmass serve`` in a child process on 127.0.0.1 and a free port.
+
+    Yields ``(process, base_url, banner)``; the server is stopped with SIGTERM (SIGKILL if
+    it hangs) when the block ends.
+    """
+    import socket
+    import subprocess
+    import sys
+    import urllib.request
+
+    import scanmass
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    env = dict(os.environ, PYTHONPATH=str(Path(scanmass.__file__).resolve().parents[1]), PYTHONUNBUFFERED="1")
+    cmd = [sys.executable, "-m", "scanmass", "serve", "--host", "127.0.0.1", "--port", str(port), "--store", str(store)]
+    out_path = store.parent / f"serve-{port}.out"
+    with open(out_path, "wb") as out:
+        proc = subprocess.Popen([*cmd, *args], stdout=out, stderr=subprocess.STDOUT, env=env, cwd=store.parent)
+    base = f"http://127.0.0.1:{port}"
+    try:
+        end = time.monotonic() + timeout_s
+        while True:
+            if proc.poll() is not None:
+                raise AssertionError(f"the server stopped: {out_path.read_text()}")
+            try:
+                urllib.request.urlopen(base + "/static/serve.css", timeout=2)
+                break
+            except urllib.error.HTTPError:
+                break  # it answers (401 with a token)
+            except OSError:
+                if time.monotonic() > end:
+                    raise AssertionError(f"the server did not start: {out_path.read_text()}") from None
+                time.sleep(0.2)
+        yield proc, base, out_path.read_text()
+    finally:
+        if proc.poll() is None:
+            proc.send_signal(signal.SIGTERM)
+            try:
+                proc.wait(timeout=40)
+            except subprocess.TimeoutExpired:
+                proc.kill()
+                proc.wait()
