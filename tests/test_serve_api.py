@@ -70,7 +70,7 @@ def test_upload_poll_result_and_downloads(tmp_path, photo):
 
         page = tc.get(f"/jobs/{job['id']}")
         assert page.status_code == 200 and 'class="part-row"' in page.text
-        assert tc.get(f"/jobs/{job['id']}/overlay.png").content[:8] == b"\x89PNG\r\n\x1a\n"
+        assert tc.get(f"/jobs/{job['id']}/overlay.jpg").content[:3] == b"\xff\xd8\xff"
         assert tc.get(f"/jobs/{job['id']}/thumb.jpg").content[:3] == b"\xff\xd8\xff"
 
         downloads = {k: tc.get(url) for k, url in job["downloads"].items()}
@@ -92,6 +92,7 @@ def test_upload_poll_result_and_downloads(tmp_path, photo):
         svg = ET.fromstring(downloads["svg"].content)
         assert svg.get("width", "").endswith("mm")
         assert downloads["html"].text.lstrip().lower().startswith("<!doctype html>")
+        assert "data:image/png;base64," in downloads["html"].text  # the overlay is in the report
 
 
 def test_history_edit_search_delete_and_batch_tools(tmp_path, scan):
@@ -233,6 +234,7 @@ def test_bad_uploads(tmp_path, photo):
             headers={"Content-Type": "multipart/form-data; boundary=b", "Content-Length": str(10**12)},
         )
         assert r.status_code == 413
+
         # without a Content-Length, the limit is counted as the bytes stream in
         def chunks():
             yield b'--b\r\nContent-Disposition: form-data; name="photo"; filename="p.jpg"\r\n\r\n\xff\xd8\xff'

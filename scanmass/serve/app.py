@@ -443,12 +443,12 @@ def create_app(config: ServeConfig, *, task: Callable[..., dict[str, Any]] | Non
     async def job_file(request: Request) -> Response:
         job = job_or_404(request)
         name = request.path_params["name"]
-        if job is None or name not in ("overlay.png", "thumb.jpg") or job.status != "done":
+        if job is None or name not in ("overlay.jpg", "thumb.jpg") or job.status != "done":
             return error(request, 404, "no such picture")
         path = store().dir / job.out_dir / name
         if not path.is_file():
             return error(request, 404, "no such picture")
-        return FileResponse(path, media_type="image/png" if name.endswith(".png") else "image/jpeg")
+        return FileResponse(path, media_type="image/jpeg")
 
     async def download(request: Request) -> Response:
         job = job_or_404(request)

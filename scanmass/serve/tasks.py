@@ -57,7 +57,7 @@ def measure_task(image: str, options: Mapping[str, Any], out_dir: str) -> dict[s
     result = rows = None
     warnings: list[str] = []
     try:
-        from scanmass.outputs.overlay import encode_png, render_overlay
+        from scanmass.outputs.overlay import render_overlay
         from scanmass.outputs.writers import write_outputs
         from scanmass.pipeline import measure_loaded
 
@@ -66,8 +66,11 @@ def measure_task(image: str, options: Mapping[str, Any], out_dir: str) -> dict[s
         measurement, loaded = measure_loaded(image, MeasureOptions(**options))
         written = write_outputs(measurement, json_out=out / "result.json", csv_out=out / "parts.csv")
         picture = render_overlay(loaded, measurement, max_side_px=OVERLAY_SIDE_PX)
-        _write_file(out / "overlay.png", encode_png(picture))
-        _write_thumbnail(picture, out / "thumb.jpg")
+        _write_file(out / "overlay.jpg", _jpeg(picture, 88))  # a phone on Wi-Fi: a JPEG, not a 1 MB PNG
+        small = picture
+        while max(small.shape[:2]) > 2 * THUMB_SIDE_PX:  # halve, then let the JPEG writer finish
+            small = small[::2, ::2]
+        _write_file(out / "thumb.jpg", _jpeg(_fit(small, THUMB_SIDE_PX), 80))
         result, rows, warnings = written.document, measurement.csv_rows(), list(measurement.warnings)
         status, error = "ok", None
     except ScanmassError as exc:
@@ -96,16 +99,23 @@ def _write_file(path: Path, data: bytes) -> None:
     write_atomic(path, data)
 
 
-def _write_thumbnail(picture_bgr: Any, path: Path) -> None:
-    import io
+def _jpeg(picture_bgr: Any, quality: int) -> bytes:
+    import cv2
 
-    from PIL import Image
+    ok, buf = cv2.imencode(".jpg", picture_bgr, [cv2.IMWRITE_JPEG_QUALITY, quality])
+    if not ok:  # pragma: no cover - OpenCV always encodes a uint8 picture
+        raise RuntimeError("JPEG encoding failed")
+    return buf.tobytes()
 
-    im = Image.fromarray(picture_bgr[:, :, ::-1].copy())
-    im.thumbnail((THUMB_SIDE_PX, THUMB_SIDE_PX))
-    buf = io.BytesIO()
-    im.save(buf, format="JPEG", quality=80)
-    _write_file(path, buf.getvalue())
+
+def _fit(picture: Any, side_px: int) -> Any:
+    import cv2
+
+    h, w = picture.shape[:2]
+    zoom = min(1.0, side_px / max(h, w))
+    if zoom >= 1.0:
+        return picture
+    return cv2.resize(picture, (max(1, round(w * zoom)), max(1, round(h * zoom))), interpolation=cv2.INTER_AREA)
 
 
 def export_task(kind: str, out_dir: str, title: str) -> str:
@@ -124,9 +134,15 @@ def export_task(kind: str, out_dir: str, title: str) -> str:
 
         return str(export_svg(result, out / "outline.svg").path)
     if kind == "html":
+        from scanmass.load.decode import load_image
+        from scanmass.measurement import read_result
+        from scanmass.outputs.overlay import encode_png, render_overlay
         from scanmass.outputs.report import write_report
 
-        overlay = out / "overlay.png"
-        overlays = {0: overlay} if overlay.is_file() else None
-        return str(write_report([result], out / "report.html", overlays=overlays, title=title))
+        m = read_result(result)
+        overlays = None
+        if m.source.path and os.path.isfile(m.source.path):  # the report embeds a PNG overlay
+            picture = render_overlay(load_image(m.source.path), m, max_side_px=OVERLAY_SIDE_PX)
+            overlays = {0: encode_png(picture)}
+        return str(write_report([m], out / "report.html", overlays=overlays, title=title))
     raise ValueError(f"unknown export {kind!r}")

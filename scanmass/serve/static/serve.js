@@ -90,7 +90,7 @@
             ? "Waiting for a worker" + (doc.ahead ? " (" + doc.ahead + " ahead)" : "") + "…"
             : "Measuring…";
         }
-        window.setTimeout(poll, 500);
+        window.setTimeout(poll, 300);
       });
       xhr.addEventListener("error", function () { window.setTimeout(poll, 2000); });
       xhr.send();
