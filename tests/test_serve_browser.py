@@ -154,3 +154,61 @@ def test_measure_from_a_phone(phone, tmp_path):
         assert _console_errors(phone) == []
         resources = phone.execute_script("return performance.getEntriesByType('resource').map(e => e.name);")
         assert all(r.startswith(base) or r.startswith("data:") for r in resources)
+
+
+def test_demo_photo_with_mass_and_history(phone, tmp_path):
+    """The demo's gusset photo with its material and thickness; the screenshot kept for the README."""
+    from selenium.webdriver.support.ui import Select
+
+    from scanmass.cli.demo import demo_photos, make_samples
+    from scanmass.mass.materials import load_materials
+
+    (demo,) = demo_photos()
+    samples = Path(__file__).resolve().parent.parent / "samples"
+    photo = samples / demo.file
+    if not photo.is_file():  # installed from a wheel: render the scenario's files
+        make_samples(tmp_path / "samples")
+        photo = tmp_path / "samples" / demo.file
+    store = tmp_path / "store"
+    store.mkdir()
+    with running_server(store, "--workers", "1") as (_proc, base, _banner):
+        phone.get(base + "/")
+        Select(phone.find_element("name", "scale")).select_by_value("mat")
+        for name, value in (
+            ("printed_x", demo.printed_x_mm),
+            ("printed_y", demo.printed_y_mm),
+            ("thickness", demo.thickness_mm),
+            ("thickness_tol", demo.thickness_u_mm),
+        ):
+            field = phone.find_element("name", name)
+            field.clear()
+            field.send_keys(str(value))
+        Select(phone.find_element("name", "material")).select_by_value(demo.material)
+        phone.find_element("name", "label").send_keys("Wrenfield chainstay gusset")
+        phone.find_element("id", "photo").send_keys(str(photo))
+        phone.find_element("id", "send").click()
+        _wait(lambda: phone.find_elements("css selector", "#parts tr.part-row"), 120, "the result table")
+        (outer, holes) = demo.parts[0]
+        t = plate_truth_of(outer, holes)  # shapely (tests/polygon_truth.py)
+        area = phone.find_element("css selector", "td.area")
+        assert abs(float(area.get_attribute("data-value")) - t["area"]) <= 3 * float(area.get_attribute("data-u"))
+        mass = phone.find_element("css selector", "td.mass")
+        # mass = density x area x thickness (the material table's density)
+        density_g_mm3 = load_materials()[demo.material].density_g_mm3
+        expected = density_g_mm3 * t["area"] * demo.thickness_mm
+        assert abs(float(mass.get_attribute("data-value")) - expected) <= 3 * float(mass.get_attribute("data-u"))
+        ARTIFACTS.mkdir(exist_ok=True)
+        phone.save_screenshot(str(ARTIFACTS / "serve-demo.png"))
+
+        phone.get(base + "/history")
+        items = phone.find_elements("css selector", "li.history-item")
+        assert len(items) == 1 and "Wrenfield chainstay gusset" in items[0].text and " g" in items[0].text
+        thumb = items[0].find_element("css selector", "img.thumb")
+        assert phone.execute_script("return arguments[0].complete && arguments[0].naturalWidth;", thumb) > 0
+        assert _console_errors(phone) == []
+
+
+def plate_truth_of(outer, holes) -> dict:
+    from polygon_truth import truth
+
+    return truth(outer, holes)
