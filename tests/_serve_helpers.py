@@ -59,12 +59,16 @@ def scan_png(*, seed: int = 0, dpi: float = 150.0) -> bytes:
 
 
 @contextlib.contextmanager
-def serve_client(store: Path, *, client_host: str = "127.0.0.1", task: Any = None, **config: Any) -> Iterator[Any]:
+def serve_client(
+    store: Path, *, client_host: str = "127.0.0.1", task: Any = None, grace_s: float | None = None, **config: Any
+) -> Iterator[Any]:
     """A TestClient of the app on ``store`` (workers really start), as a loopback client by default."""
     from scanmass.serve.app import create_app
 
     defaults: dict[str, Any] = {"store_dir": store, "workers": 1}
     cfg = ServeConfig.build(**(defaults | config))
+    if grace_s is not None:
+        cfg = cfg.updated(shutdown_grace_s=grace_s)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # the test client's notice about httpx
         from starlette.testclient import TestClient

@@ -296,6 +296,34 @@ def test_a_crashed_worker_fails_its_job_only(tmp_path, scan):
         assert jb["status"] == "done"  # a new worker took the next job
 
 
+def _wait_running(tc, job_id: int) -> None:
+    import time
+
+    for _ in range(200):
+        if tc.get(f"/api/jobs/{job_id}").json()["status"] == "running":
+            return
+        time.sleep(0.05)
+    raise AssertionError("the job did not start")
+
+
+def test_shutdown_lets_the_job_in_flight_finish_or_puts_it_back(tmp_path, scan):
+    store = tmp_path / "s"
+    with serve_client(store, task=slow_task) as tc:  # default grace: 30 s
+        a = upload(tc, scan, name="a.png", media="image/png").json()["id"]
+        b = upload(tc, scan, name="b.png", media="image/png").json()["id"]
+        _wait_running(tc, a)
+    conn = sqlite3.connect(store / "scanmass-batch.sqlite")
+    rows = dict(conn.execute("SELECT id, status FROM serve_jobs").fetchall())
+    assert rows == {a: "done", b: "queued"}  # the one in flight finished; the waiting one waits
+    with serve_client(store, task=slow_task, grace_s=0.0) as tc:
+        _wait_running(tc, b)
+    row = conn.execute("SELECT status, attempts FROM serve_jobs WHERE id=?", (b,)).fetchone()
+    assert row == ("queued", 0)  # no time to finish: back in the queue, the attempt not counted
+    with serve_client(store) as tc:
+        assert wait_done(tc, b)["status"] == "done"
+    assert conn.execute("SELECT COUNT(*) FROM files").fetchone()[0] == 2
+
+
 def test_restart_after_a_kill_runs_each_job_once(tmp_path, scan):
     store_dir = tmp_path / "s"
     with serve_client(store_dir) as tc:

@@ -125,7 +125,12 @@ class JobRunner:
 
     async def _run(self, worker: _Worker, job: JobRow) -> None:
         try:
-            fut = worker.executor.submit(self.task, job.image, job.options, job.out_dir)
+            try:
+                fut = worker.executor.submit(self.task, job.image, job.options, job.out_dir)
+            except (BrokenProcessPool, RuntimeError):  # the worker died while idle: not this job's doing
+                worker.restart()
+                await worker.started()
+                fut = worker.executor.submit(self.task, job.image, job.options, job.out_dir)
             res = await asyncio.wrap_future(fut)
         except (BrokenProcessPool, cf.CancelledError, RuntimeError) as exc:
             if self.stopping:
