@@ -95,6 +95,21 @@ def test_upload_poll_result_and_downloads(tmp_path, photo):
         assert "data:image/png;base64," in downloads["html"].text  # the overlay is in the report
 
 
+def test_the_form_works_without_javascript(tmp_path, scan):
+    with serve_client(tmp_path / "s") as tc:
+        r = tc.post(
+            "/api/jobs",
+            files={"photo": ("a.png", scan, "image/png")},
+            headers={"Accept": "text/html"},
+            follow_redirects=False,
+        )
+        assert r.status_code == 303 and re.fullmatch(r"/jobs/\d+", r.headers["location"])
+        page = tc.get(r.headers["location"])
+        assert page.status_code == 200 and 'id="job"' in page.text
+        r = tc.post("/api/jobs", files={"photo": ("a.txt", b"hello", "text/plain")}, headers={"Accept": "text/html"})
+        assert r.status_code == 415 and "Not measured" in r.text and r.headers["content-type"].startswith("text/html")
+
+
 def test_history_edit_search_delete_and_batch_tools(tmp_path, scan):
     store = tmp_path / "store"
     with serve_client(store) as tc:
