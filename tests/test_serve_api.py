@@ -417,14 +417,33 @@ def test_banner_prints_address_token_and_a_qr_code_that_decodes():
     assert "token" not in local and "http://127.0.0.1:8352/" in local
 
 
+def test_a_busy_store_or_port_is_a_one_line_error(tmp_path):
+    import socket
+
+    from scanmass.errors import OutputError
+    from scanmass.serve.run import check_free
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        s.listen()
+        port = s.getsockname()[1]
+        res = CliRunner().invoke(cli, ["serve", "--port", str(port), "--store", str(tmp_path / "a")])
+        assert res.exit_code == 1 and f"port {port}" in res.output and "--port 0" in res.output
+    with serve_client(tmp_path / "b"):
+        with pytest.raises(OutputError, match="another 'scanmass serve'"):
+            check_free(ServeConfig.build(store_dir=tmp_path / "b", port=0))
+
+
 def test_serve_command_help_and_bad_port():
     runner = CliRunner()
     res = runner.invoke(cli, ["serve", "--help"])
     assert res.exit_code == 0
-    for flag in ("--host", "--port", "--lan", "--store", "--workers", "--max-upload"):
+    for flag in ("--host", "--port", "--lan", "--store", "--workers", "--queue", "--max-upload", "--max-pixels"):
         assert flag in res.output
     res = runner.invoke(cli, ["serve", "--port", "70000"])
     assert res.exit_code == 1 and "65535" in res.output
+    res = runner.invoke(cli, ["serve", "--queue", "0"])
+    assert res.exit_code == 1 and "--queue 16" in res.output
 
 
 def test_options_from_the_form_are_the_library_options():

@@ -711,12 +711,15 @@ def serve(
     workers: Annotated[
         int | None, typer.Option("--workers", help="Worker processes that measure (default: cores - 1, at most 4).")
     ] = None,
+    queue: Annotated[
+        int, typer.Option("--queue", help="Jobs that may wait for a worker; beyond it uploads are asked to retry.")
+    ] = 16,
     max_upload: Annotated[float, typer.Option("--max-upload", help="Largest upload, MB.")] = 50.0,
     max_pixels: MaxPixelsOpt = DEFAULTS.max_pixels,
 ) -> None:
     """A page for the bench: measure photos uploaded from a phone or a browser."""
     from scanmass.serve.config import ServeConfig
-    from scanmass.serve.run import banner, run_server
+    from scanmass.serve.run import banner, check_free, run_server
 
     with user_errors():
         config = ServeConfig.build(
@@ -725,8 +728,10 @@ def serve(
             port=port,
             lan=lan,
             workers=workers,
+            queue_size=queue,
             max_upload_mb=max_upload,
             max_pixels=max_pixels,
         )
+        check_free(config)
         _console().print(banner(config), markup=False, highlight=False, soft_wrap=True)
         run_server(config)
