@@ -2,4 +2,5 @@
 
 from scanmass.cli.app import app
 
-app(prog_name="scanmass")
+if __name__ == "__main__":  # not when a worker process started with 'spawn' imports the main module
+    app(prog_name="scanmass")

@@ -35,6 +35,7 @@ LAYERS: list[tuple[str, ...]] = [
     ("scanmass.outputs",),
     ("scanmass.batch",),
     ("scanmass.testing",),
+    ("scanmass.serve",),
     ("scanmass.cli",),
 ]
 #: Outside the order: the package's lazy public names and ``python -m scanmass``.

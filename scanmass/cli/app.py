@@ -692,3 +692,47 @@ def lens_command(
         f"over {profile.points} corners in {profile.photos} photos"
     )
     _console().print(f"wrote {written}")
+
+
+# -- the bench page (issue 14) -------------------------------------------------------------
+@app.command()
+def serve(
+    *,
+    host: Annotated[
+        str | None, typer.Option("--host", help="Address to listen on (default 127.0.0.1; 0.0.0.0 with --lan).")
+    ] = None,
+    port: Annotated[int, typer.Option("--port", help="Port (0: any free one).")] = 8350,
+    lan: Annotated[
+        bool,
+        typer.Option("--lan", help="Listen on the local network, with an access token (printed, and as a QR code)."),
+    ] = False,
+    store: Annotated[
+        Path, typer.Option("--store", help="Folder of the history (a batch database: batch-export and report read it).")
+    ] = Path("scanmass-serve"),
+    workers: Annotated[
+        int | None, typer.Option("--workers", help="Worker processes that measure (default: cores - 1, at most 4).")
+    ] = None,
+    queue: Annotated[
+        int, typer.Option("--queue", help="Jobs that may wait for a worker; beyond it uploads are asked to retry.")
+    ] = 16,
+    max_upload: Annotated[float, typer.Option("--max-upload", help="Largest upload, MB.")] = 50.0,
+    max_pixels: MaxPixelsOpt = DEFAULTS.max_pixels,
+) -> None:
+    """A page for the bench: measure photos uploaded from a phone or a browser."""
+    from scanmass.serve.config import ServeConfig
+    from scanmass.serve.run import banner, check_free, run_server
+
+    with user_errors():
+        config = ServeConfig.build(
+            store_dir=store,
+            host=host,
+            port=port,
+            lan=lan,
+            workers=workers,
+            queue_size=queue,
+            max_upload_mb=max_upload,
+            max_pixels=max_pixels,
+        )
+        check_free(config)
+        _console().print(banner(config), markup=False, highlight=False, soft_wrap=True)
+        run_server(config)
