@@ -242,7 +242,7 @@ def test_cli_exit_status_and_export(mixed, tmp_path):
     assert result.exit_code == 0, result.output
 
     # export again from the database: CSV identical to parts.csv, JSONL one line per file
-    result = runner.invoke(app, ["batch-export", str(out), "--format", "csv"])
+    result = runner.invoke(app, ["batch-export", str(out), "--csv", "-"])
     assert result.exit_code == 0, result.output
     assert result.stdout == (out / "parts.csv").read_text(encoding="utf-8")
     path = export_batch(out, format="jsonl", out=tmp_path / "all.jsonl")

@@ -55,7 +55,7 @@ def test_measure_json_to_stdout(scan_png):
     result = runner.invoke(app, ["measure", str(scan_png), "--json", "-"])
     assert result.exit_code == 0
     doc = json.loads(result.stdout)
-    assert doc["schema"] == "scanmass.result/1" and len(doc["parts"]) == 2
+    assert doc["schema"] == "scanmass.result/2" and len(doc["parts"]) == 2
 
 
 def test_measure_with_material_adds_mass(scan_png):

@@ -409,7 +409,7 @@ def _correct(
         rim = None if part.outline_mm is None else _ray_exit_mm(part.outline_mm, axis, heavy_dir)
         if rim is None:
             res.notes.append(
-                "no correction sized: the outline is not in the result; give correction_radius_mm (--radius)"
+                "no correction sized: the outline is not in the result; give correction_radius_mm (--correction-radius)"
             )
             return
         radius = (res.bore_diameter_mm / 2.0 + rim) / 2.0
