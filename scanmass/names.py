@@ -146,7 +146,9 @@ class Figure:
         return convert(v, self.kind, units)
 
 
-def _f(stem: str, kind: str, label: str, symbol: str, attr: str | None = None, u: bool = True, index: int | None = None):
+def _f(
+    stem: str, kind: str, label: str, symbol: str, attr: str | None = None, u: bool = True, index: int | None = None
+):
     unit = unit_suffix(kind)
     attr = attr or (f"{stem}_{unit}" if unit else stem)
     u_attr = (f"{stem}_u_{unit}" if index is None else attr.replace("_mm", "_u_mm")) if u else None

@@ -308,7 +308,7 @@ def list_materials(materials: MaterialsFileOpt = None) -> None:
 def assemble(
     file: Annotated[
         Path,
-        typer.Argument(help="Assembly TOML file: members, materials, placements (lengths in mm, or units = \"in\")."),
+        typer.Argument(help='Assembly TOML file: members, materials, placements (lengths in mm, or units = "in").'),
     ],
     *,
     json_out: JsonOutOpt = None,
@@ -521,7 +521,9 @@ def report(
             f"{len(overlay)} overlays for {len(results)} result(s); give at most one --overlay per result, in the same order"
         )
     with user_errors():
-        written = write_report(results, html, overlays=dict(enumerate(overlay or [])), title=title, units=_check_units(units))
+        written = write_report(
+            results, html, overlays=dict(enumerate(overlay or [])), title=title, units=_check_units(units)
+        )
     _console().print(f"wrote {written}")
 
 

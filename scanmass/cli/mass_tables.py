@@ -86,7 +86,9 @@ def assembly_summary_table(result: AssemblyResult) -> Table:
         out.add_row(f"moment of inertia I{name} g·mm²", fmt_u(result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j]))
     # products of inertia ∫(x − xc)(y − yc) dm: the same sign as a part's Ixy (the tensor holds their negatives)
     for name, (i, j) in zip(("xy", "xz", "yz"), ((0, 1), (0, 2), (1, 2))):
-        out.add_row(f"product of inertia P{name} g·mm²", fmt_u(-result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j]))
+        out.add_row(
+            f"product of inertia P{name} g·mm²", fmt_u(-result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j])
+        )
     for k, (value, u, axis) in enumerate(
         zip(result.principal_g_mm2, result.principal_u_g_mm2, result.principal_axes), 1
     ):

@@ -89,7 +89,15 @@ def holes_table(m: Measurement, units: str = "mm") -> Table | None:
         return None
     lu, au = unit_symbol("length", units), unit_symbol("area", units)
     table = Table(title="holes (fitted circles)", title_justify="left", header_style="bold")
-    for col in ("part", "hole", f"centre x, {lu}", f"centre y, {lu}", f"diameter, {lu}", f"roundness, {lu}", f"area, {au}"):
+    for col in (
+        "part",
+        "hole",
+        f"centre x, {lu}",
+        f"centre y, {lu}",
+        f"diameter, {lu}",
+        f"roundness, {lu}",
+        f"area, {au}",
+    ):
         table.add_column(col, justify="right", no_wrap=True)
 
     def ln(v: float | None) -> float | None:

@@ -458,9 +458,7 @@ def _overlay_for(overlays: Mapping[Any, Any] | None, index: int, result_path: st
     return None
 
 
-def _image_view(
-    index: int, m: Measurement, result_path: str | None, overlay: Any, units: str = "mm"
-) -> dict[str, Any]:
+def _image_view(index: int, m: Measurement, result_path: str | None, overlay: Any, units: str = "mm") -> dict[str, Any]:
     name = (
         os.path.basename(m.source.path)
         if m.source.path
@@ -582,13 +580,19 @@ def assembly_view(result: Any, units: str = "mm") -> dict[str, Any]:
         }
         for m in result.members
     ]
-    rows = [("Mass", _pm(result.mass_g, result.mass_u_g, "g")), ("Weight W", _pm(result.weight_n, result.weight_u_n, "N"))]
+    rows = [
+        ("Mass", _pm(result.mass_g, result.mass_u_g, "g")),
+        ("Weight W", _pm(result.weight_n, result.weight_u_n, "N")),
+    ]
     for axis, v, u in zip("xyz", result.centre_of_mass_mm, result.centre_of_mass_u_mm):
         rows.append((f"Centre of mass {axis}", _pm(convert(v, "length", units), convert(u, "length", units), lu)))
     t, tu = result.inertia_g_mm2, result.inertia_u_g_mm2
     for name, (i, j) in (("xx", (0, 0)), ("yy", (1, 1)), ("zz", (2, 2))):
         rows.append(
-            (f"Moment of inertia I{name}", _pm(convert(t[i, j], "mass_moment", units), convert(tu[i, j], "mass_moment", units), iu))
+            (
+                f"Moment of inertia I{name}",
+                _pm(convert(t[i, j], "mass_moment", units), convert(tu[i, j], "mass_moment", units), iu),
+            )
         )
     for name, (i, j) in (("xy", (0, 1)), ("xz", (0, 2)), ("yz", (1, 2))):
         rows.append(

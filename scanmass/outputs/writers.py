@@ -59,7 +59,9 @@ def write_outputs(
                     path=os.fspath(overlay_out),
                 )
             image = load_image(measurement.source.path)
-        written.append(str(write_atomic(overlay_out, encode_png(render_overlay(image, measurement, units=units)), inputs=inputs)))
+        written.append(
+            str(write_atomic(overlay_out, encode_png(render_overlay(image, measurement, units=units)), inputs=inputs))
+        )
     return MeasureOutputs(measurement=measurement, document=document, written=written)
 
 
