@@ -503,7 +503,7 @@ def report(
     if html is None:
         fail("give the report file to write with --html OUT.html")
     if len(results) == 1 and results[0].is_dir():
-        from scanmass.batch.export import summary_rows
+        from scanmass.batch.export import duplicate_count, summary_rows
         from scanmass.outputs.report import write_summary
 
         with user_errors():
@@ -513,6 +513,7 @@ def report(
                 failures,
                 html,
                 title=title if title != "scanmass measurement report" else "scanmass batch summary",
+                duplicates=duplicate_count(results[0]),
             )
         _console().print(f"wrote {written}")
         return

@@ -894,6 +894,8 @@ def render_summary(
     *,
     title: str = "scanmass batch summary",
     generated_at: datetime | None = None,
+    duplicates: int = 0,
+    base: PathLike | None = None,
 ) -> str:
     """Render the batch summary page (self-contained HTML).
 
@@ -910,16 +912,41 @@ def render_summary(
         Heading and page title.
     generated_at : datetime, optional
         Time stamp printed in the header (default: now, UTC).
+    duplicates : int, optional
+        Files skipped as copies of a measured file (counted on the page).
+    base : path, optional
+        Folder that file paths are shown relative to (default: the folder all of them
+        share).
 
     Returns
     -------
     str
-        The HTML document: counts, failures with reasons, an area histogram and a
+        The HTML document: counts, files with warnings, failures with reasons, an area histogram and a
         centroid-offset scatter (inline SVG), and a table of all parts sortable by
         any column (a few lines of inline JavaScript).
     """
     rows = [dict(r) for r in rows]
     failures = [dict(f) for f in failures]
+    paths = [str(r.get("file", "")) for r in [*rows, *failures] if r.get("file")]
+    if base is None and paths:
+        try:
+            base = os.path.commonpath([os.path.dirname(p) for p in paths])
+        except ValueError:  # mixed absolute and relative paths, or drives
+            base = None
+
+    def rel(path: Any) -> str:
+        text = "" if path is None else str(path)
+        if base is None or not text:
+            return text
+        try:
+            return os.path.relpath(text, os.fspath(base))
+        except ValueError:
+            return text
+
+    for r in [*rows, *failures]:
+        if "file" in r:
+            r["file"] = rel(r["file"])
+    warned = sorted({(str(r.get("file", "")), str(r.get("warnings") or "")) for r in rows if r.get("warnings")})
     keys: list[str] = [k for k in csv_columns() if any(k in r for r in rows)]
     for r in rows:
         keys += [k for k in r if k not in keys]
@@ -952,6 +979,8 @@ def render_summary(
         ("Files", len(files_ok | files_failed)),
         ("Files measured", len(files_ok)),
         ("Files failed", len(files_failed)),
+        ("Duplicate files (skipped)", duplicates),
+        ("Files with warnings", len({f for f, _ in warned})),
         ("Parts", len(rows)),
     ]
     if any(m is not None for m in masses):
@@ -965,6 +994,8 @@ def render_summary(
         generated=_generated(generated_at),
         counts=counts,
         failures=[{"file": str(f.get("file", "")), "reason": _failure_reason(f)} for f in failures],
+        warned=[{"file": f, "warnings": w} for f, w in warned],
+        base="" if base is None else os.fspath(base),
         area_plot=_markup(area_plot) if area_plot else "",
         offset_plot=_markup(offset_plot) if offset_plot else "",
         bins=bins,
@@ -983,6 +1014,9 @@ def write_summary(
     *,
     title: str = "scanmass batch summary",
     inputs: Sequence[PathLike] = (),
+    duplicates: int = 0,
+    base: PathLike | None = None,
 ) -> Path:
     """Render the summary page (see :func:`render_summary`) and write it atomically."""
-    return write_atomic(path, render_summary(rows, failures, title=title), inputs=inputs)
+    html = render_summary(rows, failures, title=title, duplicates=duplicates, base=base)
+    return write_atomic(path, html, inputs=inputs)
