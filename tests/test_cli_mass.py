@@ -234,3 +234,23 @@ def test_measure_names_the_material_it_used(tmp_path):
     out = " ".join(result.output.split())
     # the alias "steel" resolved visibly to the carbon-steel entry and its density (7850 kg/m3)
     assert "material 'steel' = Carbon steel" in out and "(carbon-steel)" in out and "7850" in out
+
+
+def test_report_includes_balance_and_assembly_json(sources, tmp_path):
+    toml = tmp_path / "asm.toml"
+    toml.write_text(
+        f'units = "mm"\n[[member]]\nname = "base"\nsource = "{sources.name}"\npart = 1\nmaterial = "steel"\n'
+        "thickness_mm = 2\n",
+        encoding="utf-8",
+    )
+    (tmp_path / "asm.toml").replace(sources.parent / "asm.toml")
+    asm_json, bal_json = tmp_path / "asm.json", tmp_path / "bal.json"
+    assert runner.invoke(app, ["assemble", str(sources.parent / "asm.toml"), "--json", str(asm_json)]).exit_code == 0
+    args = ["balance", str(sources), "--part", "2", "--material", "steel", "--thickness", "2"]
+    assert runner.invoke(app, [*args, "--rpm", "3000", "--grade", "6.3", "--json", str(bal_json)]).exit_code == 1
+    html = tmp_path / "r.html"
+    result = runner.invoke(app, ["report", str(sources), str(bal_json), str(asm_json), "--html", str(html)])
+    assert result.exit_code == 0, result.output
+    page = html.read_text(encoding="utf-8")
+    assert 'section class="balance"' in page and 'data-verdict="fail"' in page and "Balance fail" in page
+    assert 'section class="assembly"' in page and "Product of inertia Pxy (same sign as Ixy)" in page

@@ -477,7 +477,11 @@ def export_outlines(
 @app.command()
 def report(
     results: Annotated[
-        list[Path], typer.Argument(help="Result JSON files from 'scanmass measure --json', or one batch output folder.")
+        list[Path],
+        typer.Argument(
+            help="Result JSON files from 'scanmass measure --json' (balance and assembly JSON files are included "
+            "in their own sections), or one batch output folder."
+        ),
     ],
     *,
     html: Annotated[
@@ -517,13 +521,27 @@ def report(
             )
         _console().print(f"wrote {written}")
         return
-    if overlay and len(overlay) > len(results):
+    from scanmass.outputs.report import read_extra
+
+    extras = {p: read_extra(p) for p in results}
+    measured = [p for p in results if extras[p] is None]
+    if not measured:
+        fail("no measurement result given; pass at least one JSON written by 'scanmass measure --json'")
+    if overlay and len(overlay) > len(measured):
         fail(
-            f"{len(overlay)} overlays for {len(results)} result(s); give at most one --overlay per result, in the same order"
+            f"{len(overlay)} overlays for {len(measured)} result(s); give at most one --overlay per result, in the same order"
         )
+    balances = [e[1] for e in extras.values() if e is not None and e[0] == "balance"]
+    assemblies = [e[1] for e in extras.values() if e is not None and e[0] == "assembly"]
     with user_errors():
         written = write_report(
-            results, html, overlays=dict(enumerate(overlay or [])), title=title, units=_check_units(units)
+            measured,
+            html,
+            overlays=dict(enumerate(overlay or [])),
+            title=title,
+            units=_check_units(units),
+            balances=balances,
+            assemblies=assemblies,
         )
     _console().print(f"wrote {written}")
 

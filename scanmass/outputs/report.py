@@ -529,6 +529,32 @@ def _pm(value: Any, u: Any, unit: str) -> str:
     return f"{text} ± {u_text} {unit}".rstrip() if u_text else f"{text} {unit}".rstrip()
 
 
+def read_extra(path: PathLike) -> tuple[str, Any] | None:
+    """A balance or assembly result JSON (from ``scanmass balance/assemble --json``) read for the
+    report, as ``("balance" | "assembly", result)``; None when the file is a measurement result."""
+    import json
+    from types import SimpleNamespace
+
+    try:
+        doc = json.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError):
+        return None  # read_result names the problem
+    if not isinstance(doc, dict):
+        return None
+    if str(doc.get("schema", "")).startswith("scanmass.assembly/"):
+        members = [
+            SimpleNamespace(**{**m, "centre_of_mass_mm": tuple(m.get("centre_of_mass_mm") or ())})
+            for m in doc.get("members", [])
+        ]
+        values = {k: v for k, v in doc.items() if k != "members"}
+        for key in ("inertia_g_mm2", "inertia_u_g_mm2"):
+            values[key] = np.asarray(values.get(key), dtype=float)
+        return "assembly", SimpleNamespace(**values, members=members)
+    if "verdict" in doc and "unbalance_gmm" in doc:
+        return "balance", SimpleNamespace(**doc)
+    return None
+
+
 def balance_view(result: Any, units: str = "mm") -> dict[str, Any]:
     """The report's rows for one :class:`~scanmass.mass.balance.BalanceResult`."""
     from scanmass.names import convert
