@@ -47,8 +47,10 @@ def test_inch_is_25_4_mm_exactly():
 
 def test_every_figure_has_one_name_in_json_csv_report_and_table(measured):
     doc = json.loads(measured.to_json())
-    assert doc["schema"] == SCHEMA and doc["units"]["length"] == "mm" and "JSON is always in millimetres" in (
-        doc["units"]["note"]
+    assert (
+        doc["schema"] == SCHEMA
+        and doc["units"]["length"] == "mm"
+        and "JSON is always in millimetres" in (doc["units"]["note"])
     )
     part_doc = doc["parts"][0]
     header = next(csv.reader(io.StringIO(measured.to_csv())))

@@ -9,11 +9,11 @@ from rich.console import JustifyMethod
 from rich.table import Table
 
 from scanmass.cli.tables import fmt_u
-from scanmass.names import convert, unit_symbol
-from scanmass.outputs.formatting import format_value
 from scanmass.mass.assembly import AssemblyResult
 from scanmass.mass.balance import BalanceResult
 from scanmass.mass.materials import Material
+from scanmass.names import convert, unit_symbol
+from scanmass.outputs.formatting import format_value
 
 __all__ = ["materials_table", "assembly_table", "assembly_summary_table", "balance_table"]
 

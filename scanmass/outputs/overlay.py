@@ -156,7 +156,7 @@ def render_overlay(
         centre = _to_px(inv, [part.centroid_mm])[0]
         # principal axes through the centroid: the I2 axis (long direction) is drawn
         # +-2 radii of gyration about the I1 axis long, the I1 axis +-2 of the other
-        axes_drawn = (
+        axes_drawn: tuple[tuple[float, float, tuple[int, int, int]], ...] = (
             (2.0 * part.gyration_1_mm, part.principal_angle_deg, _AXIS_MAJOR),
             (2.0 * part.gyration_2_mm, part.principal_angle_deg + 90.0, _AXIS_MINOR),
         )

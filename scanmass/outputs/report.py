@@ -21,7 +21,7 @@ import os
 from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 from xml.sax.saxutils import escape
 
 import numpy as np
@@ -347,8 +347,8 @@ def _compress_png(raw: bytes, size: tuple[int, int]) -> tuple[bytes, tuple[int, 
 
     if max(size) <= REPORT_OVERLAY_MAX_SIDE_PX and len(raw) <= 300_000:
         return raw, size
-    with Image.open(io.BytesIO(raw)) as im:
-        im = im.convert("RGB")
+    with Image.open(io.BytesIO(raw)) as opened:
+        im = opened.convert("RGB")
         if max(im.size) > REPORT_OVERLAY_MAX_SIDE_PX:
             im.thumbnail((REPORT_OVERLAY_MAX_SIDE_PX, REPORT_OVERLAY_MAX_SIDE_PX), Image.Resampling.LANCZOS)
         small = im.quantize(colors=256, method=Image.Quantize.MEDIANCUT, dither=Image.Dither.NONE)
@@ -969,9 +969,9 @@ def render_summary(
         except ValueError:
             return text
 
-    for r in [*rows, *failures]:
-        if "file" in r:
-            r["file"] = rel(r["file"])
+    for row in cast(list[dict[str, Any]], [*rows, *failures]):
+        if "file" in row:
+            row["file"] = rel(row["file"])
     warned = sorted({(str(r.get("file", "")), str(r.get("warnings") or "")) for r in rows if r.get("warnings")})
     keys: list[str] = [k for k in csv_columns() if any(k in r for r in rows)]
     for r in rows:
