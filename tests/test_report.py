@@ -316,15 +316,24 @@ def test_summary_counts_failures_and_table():
     html = render_summary(rows, failures, generated_at=WHEN)
     page = _Page(html)
     counts = {a["data-count"]: None for a in page.find("td") if "data-count" in a}
-    assert set(counts) == {"Files", "Files measured", "Files failed", "Parts"}
+    assert set(counts) == {
+        "Files",
+        "Files measured",
+        "Files failed",
+        "Duplicate files (skipped)",
+        "Files with warnings",
+        "Parts",
+    }
     assert page.row("Files")[1] == "4"
     assert page.row("Files measured")[1] == "2"
     assert page.row("Files failed")[1] == "2"
     assert page.row("Parts")[1] == "5"
+    # paths relative to the folder all files share ("scans"), said once on the page
     assert [c for a, c in page.rows if "failure-row" in a.get("class", "")] == [
-        ["scans/c.jpg", "no scale: the file stores no resolution <b>"],
-        ["scans/d.png", "no part found"],
+        ["c.jpg", "no scale: the file stores no resolution <b>"],
+        ["d.png", "no part found"],
     ]
+    assert "File paths are relative to <code>scans</code>" in html
     assert "&lt;b&gt;" in html
     part_rows = [c for a, c in page.rows if "part-row" in a.get("class", "")]
     assert len(part_rows) == 5

@@ -422,7 +422,7 @@ def outline_svg(measurement: Measurement, *, max_width_px: int = 900) -> str:
             f'<path d="M {_num(cx - arm)} {_num(-cy)} L {_num(cx + arm)} {_num(-cy)} M {_num(cx)} {_num(-cy - arm)} '
             f'L {_num(cx)} {_num(-cy + arm)}" stroke="{_OKABE_ITO["black"]}" stroke-width="{_num(1.5 * stroke)}"/>'
         )
-        angle = _finite(p.principal_angle_deg)
+        angle = _finite(p.principal_angle_deg) if p.principal_axes_defined else None  # none for a round part
         if angle is not None:
             for deg, half, dash in (
                 (angle, 0.5 * size, ""),
