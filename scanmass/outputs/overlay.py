@@ -23,7 +23,7 @@ from scanmass.measurement import Measurement
 from scanmass.names import INCH_MM, check_units
 from scanmass.scale.planemap import PlaneMap
 
-__all__ = ["render_overlay", "encode_png", "OVERLAY_MAX_SIDE_PX"]
+__all__ = ["render_overlay", "encode_png", "legend_items", "OVERLAY_MAX_SIDE_PX"]
 
 #: Overlays of larger images are drawn on a reduced copy with this longest side.
 OVERLAY_MAX_SIDE_PX = 2400
@@ -267,10 +267,12 @@ def _text(canvas: np.ndarray, text: str, org: tuple[int, int], font: int, scale:
     cv2.putText(canvas, text, org, font, scale, _TEXT, max(1, lw), cv2.LINE_AA)
 
 
-def _legend(
-    canvas: np.ndarray, font: int, font_scale: float, lw: int, markers: bool = False, seen: dict | None = None
-) -> None:
-    """The legend: one line per kind of mark drawn, in the colour it is drawn in."""
+def legend_items(markers: bool = False, seen: dict | None = None) -> list[tuple[str, tuple[int, int, int]]]:
+    """The legend's lines: (words, BGR colour) for each kind of mark drawn, in the colour drawn.
+
+    ``seen`` says what was drawn: ``clipped`` parts, ``rejected`` markers, principal ``axes``,
+    and the centroid ``ellipse``'s enlargement factor (0 when none was drawn).
+    """
     seen = seen or {}
     items = [("outline", _OUTLINE)]
     if seen.get("clipped"):
@@ -286,6 +288,14 @@ def _legend(
         items.append(("mat marker used", _MARKER_USED))
     if seen.get("rejected"):
         items.append(("mat marker rejected", _MARKER_REJECTED))
+    return items
+
+
+def _legend(
+    canvas: np.ndarray, font: int, font_scale: float, lw: int, markers: bool = False, seen: dict | None = None
+) -> None:
+    """Draw the legend (:func:`legend_items`) in the top right corner."""
+    items = legend_items(markers, seen)
     line_h = int(28 * font_scale) + 4
     w = int(max(len(name) for name, _ in items) * 14 * font_scale) + 50
     x0 = canvas.shape[1] - w - 10
