@@ -24,7 +24,7 @@ def fmt_u(value: float | None, u: float | None = None, *, unit: str = "") -> str
     --------
     >>> fmt_u(1234.5678, 0.0456).replace("\u00a0", " ")
     '1234.568 ± 0.046'
-    >>> fmt_u(12.0, None, unit="mm")
+    >>> fmt_u(12.0, None, unit="mm").replace("\u00a0", " ")
     '12 mm'
     """
     if _finite(value) is None:
