@@ -57,7 +57,8 @@ def measurement_table(m: Measurement, units: str = "mm") -> Table:
     rel = m.scale.mm_per_px_rel_u
     scale = fmt_u(m.scale.mm_per_px, rel * m.scale.mm_per_px if rel else None, unit="mm/px")
     title = f"{m.source.path or 'image'}  ·  scale ({m.scale.method}) {scale}"
-    table = Table(title=title, title_justify="left", header_style="bold")
+    # wide enough for its title, so that the scale and its uncertainty stay on one line
+    table = Table(title=title, title_justify="left", header_style="bold", min_width=min(len(title), 160))
     table.add_column(f"figure ({UNCERTAINTY_SHORT})", justify="left", no_wrap=True)
     for p in m.parts:
         table.add_column(f"part {p.label}{' (clipped)' if p.cut else ''}", justify="right", no_wrap=True)
