@@ -55,8 +55,8 @@ def _ring(entity) -> np.ndarray:
 
 def _polygons(path: Path) -> list[Polygon]:
     msp = ezdxf.readfile(path).modelspace()
-    outers = [Polygon(_ring(e)) for e in msp.query('LWPOLYLINE[layer=="OUTLINE"]')]
-    holes = [Polygon(_ring(e)) for e in msp.query('LWPOLYLINE CIRCLE[layer=="HOLES"]')]
+    outers = [Polygon(_ring(e)) for e in msp.query('LWPOLYLINE[layer=="SCANMASS_OUTLINE"]')]
+    holes = [Polygon(_ring(e)) for e in msp.query('LWPOLYLINE CIRCLE[layer=="SCANMASS_HOLES"]')]
     return [
         Polygon(o.exterior.coords, [h.exterior.coords for h in holes if o.contains(h.representative_point())])
         for o in outers

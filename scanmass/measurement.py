@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 
 from scanmass.errors import ResultFormatError
+from scanmass.names import FIGURES, check_units, unit_suffix
 
 __all__ = [
     "SCHEMA",
@@ -28,12 +29,32 @@ __all__ = [
     "Part",
     "Measurement",
     "CSV_COLUMNS",
+    "csv_columns",
     "read_result",
 ]
 
 #: Schema identifier written into every result document; bump the number on an
-#: incompatible change of the keys.
-SCHEMA = "scanmass.result/1"
+#: incompatible change of the keys. Version 2 (scanmass 0.x, issue 10): the CSV's
+#: ``holes`` count became ``hole_count``, the uncertainties of radii of gyration, section
+#: moduli and widths were added, ``units`` and ``principal_axes_defined`` are written.
+SCHEMA = "scanmass.result/2"
+
+#: Older schemas whose documents still read (their keys are a subset of this one's).
+READABLE_SCHEMAS = ("scanmass.result/1", SCHEMA)
+
+#: What the JSON document's numbers are in, written into every document as ``units``.
+JSON_UNITS = {
+    "length": "mm",
+    "area": "mm2",
+    "section_modulus": "mm3",
+    "second_moment": "mm4",
+    "angle": "deg",
+    "mass": "g",
+    "note": "the JSON is always in millimetres; --units in changes only what people read (tables, CSV, report)",
+}
+
+#: A principal direction is reported as undefined when its standard uncertainty exceeds this.
+AXES_UNDEFINED_U_DEG = 10.0
 
 _OUTLINE_DECIMALS = 5
 
@@ -127,10 +148,11 @@ class Hole:
 
 @dataclass
 class Part:
-    """Section properties of one part (a plane lamina with holes).
+    """Section properties of one part (a flat plate with holes).
 
     Second moments are about centroidal axes parallel to x and y; ``ixy_mm4`` is the
-    product of area. ``i1_mm4 >= i2_mm4`` are the principal moments and
+    product moment of area; ``polar_mm4`` the polar second moment Ip = Ixx + Iyy (not the
+    torsion constant). ``i1_mm4 >= i2_mm4`` are the principal moments and
     ``principal_angle_deg`` in [0, 180) is the direction of the I2 axis.
     Section moduli are elastic, one per extreme fibre: ``modulus_top_mm3`` =
     Ixx / (ymax - yc), ``modulus_bottom_mm3`` = Ixx / (yc - ymin),
@@ -176,7 +198,107 @@ class Part:
     mass_g: float | None = None
     mass_u_g: float | None = None
     mass: dict[str, Any] | None = None
+    gyration_x_u_mm: float | None = None
+    gyration_y_u_mm: float | None = None
+    gyration_1_u_mm: float | None = None
+    gyration_2_u_mm: float | None = None
+    modulus_top_u_mm3: float | None = None
+    modulus_bottom_u_mm3: float | None = None
+    modulus_right_u_mm3: float | None = None
+    modulus_left_u_mm3: float | None = None
+    caliper_max_u_mm: float | None = None
+    caliper_min_u_mm: float | None = None
     outline_mm: np.ndarray | None = field(default=None, repr=False)
+
+    def __post_init__(self) -> None:
+        for name, value in derived_uncertainties(self).items():
+            if getattr(self, name) is None:
+                setattr(self, name, value)
+
+    @property
+    def principal_axes_defined(self) -> bool:
+        """False for a near-round part, whose principal directions the measurement cannot tell.
+
+        The axes are undefined when the angle is not finite, its standard uncertainty
+        exceeds :data:`AXES_UNDEFINED_U_DEG`, or I1 − I2 is within twice the larger
+        uncertainty of I1 and I2.
+        """
+        angle, u = self.principal_angle_deg, self.principal_angle_u_deg
+        if angle is None or not math.isfinite(angle) or u is None or not math.isfinite(u):
+            return False
+        if u > AXES_UNDEFINED_U_DEG:
+            return False
+        spread = self.i1_mm4 - self.i2_mm4
+        return bool(spread > 2.0 * max(self.i1_u_mm4 or 0.0, self.i2_u_mm4 or 0.0, 1e-12 * abs(self.i1_mm4)))
+
+
+def derived_uncertainties(part: Part) -> dict[str, float]:
+    """Standard uncertainties of radii of gyration, section moduli and widths.
+
+    Propagated to first order from the figures' own terms in ``uncertainty_terms``
+    (edge, threshold, scale), term by term, then root-sum-squared. Within the edge and
+    threshold terms the correlation of the two inputs (e.g. I and A in k = √(I/A)) is
+    not recorded, so their relative uncertainties are added (the worst case); the scale
+    term is exact (k scales as s, Z as s³, a width as s). The threshold offset of the
+    boundary, d = u_threshold(A) / P, moves a width by 2d and an extreme fibre by d; the
+    edge noise of one boundary point is taken as the noise over the edge slope of a
+    Gaussian-blurred step (√(2π)·σ_blur·noise, in pixels).
+
+    Returns an empty dict when the part carries no terms (e.g. built by hand).
+    """
+    terms = part.uncertainty_terms or {}
+    edge, thr, scl = (terms.get(k) or {} for k in ("edge", "threshold", "scale"))
+    inputs = terms.get("inputs") or {}
+    area, perim = part.area_mm2, part.perimeter_mm
+    if not (edge and thr and scl) or not (area and perim and area > 0 and perim > 0):
+        return {}
+    try:
+        offset_mm = float(thr.get("area_mm2", 0.0)) / perim
+        rel = float(scl.get("area_mm2", 0.0)) / (2.0 * area)
+        offset_px = float(inputs.get("offset_px") or 0.0)
+        mm_per_px = offset_mm / offset_px if offset_px > 0 else 0.0
+        point_mm = math.sqrt(2.0 * math.pi) * max(float(inputs.get("blur_px") or 0.0), 0.5)
+        point_mm *= float(inputs.get("noise_rel") or 0.0) * mm_per_px
+    except (TypeError, ValueError, ZeroDivisionError):
+        return {}
+
+    def ratio(term: dict, key: str, value: float) -> float:
+        u = term.get(key)
+        return abs(float(u)) / abs(value) if u is not None and value else 0.0
+
+    out: dict[str, float] = {}
+    for stem, i_key, i_val in (
+        ("gyration_x", "ixx_mm4", part.ixx_mm4),
+        ("gyration_y", "iyy_mm4", part.iyy_mm4),
+        ("gyration_1", "i1_mm4", part.i1_mm4),
+        ("gyration_2", "i2_mm4", part.i2_mm4),
+    ):
+        k = getattr(part, f"{stem}_mm")
+        if not (k and math.isfinite(k)):
+            continue
+        parts = [0.5 * k * (ratio(t, i_key, i_val) + ratio(t, "area_mm2", area)) for t in (edge, thr)]
+        out[f"{stem}_u_mm"] = math.sqrt(sum(x * x for x in parts) + (rel * k) ** 2)
+    xmin, ymin, xmax, ymax = part.bbox_mm
+    xc, yc = part.centroid_mm
+    for stem, i_key, i_val, c, c_key in (
+        ("modulus_top", "ixx_mm4", part.ixx_mm4, ymax - yc, "centroid_y_mm"),
+        ("modulus_bottom", "ixx_mm4", part.ixx_mm4, yc - ymin, "centroid_y_mm"),
+        ("modulus_right", "iyy_mm4", part.iyy_mm4, xmax - xc, "centroid_x_mm"),
+        ("modulus_left", "iyy_mm4", part.iyy_mm4, xc - xmin, "centroid_x_mm"),
+    ):
+        z = getattr(part, f"{stem}_mm3")
+        if not (z and math.isfinite(z) and c > 0):
+            continue
+        u_c_edge = math.hypot(point_mm, float(edge.get(c_key, 0.0)))
+        u_c_thr = offset_mm + float(thr.get(c_key, 0.0))
+        e = abs(z) * (ratio(edge, i_key, i_val) + u_c_edge / c)
+        t = abs(z) * (ratio(thr, i_key, i_val) + u_c_thr / c)
+        out[f"{stem}_u_mm3"] = math.sqrt(e * e + t * t + (3.0 * rel * z) ** 2)
+    for stem in ("caliper_max", "caliper_min"):
+        w = getattr(part, f"{stem}_mm")
+        if w and math.isfinite(w):
+            out[f"{stem}_u_mm"] = math.sqrt(2.0 * point_mm**2 + (2.0 * offset_mm) ** 2 + (rel * w) ** 2)
+    return out
 
 
 @dataclass
@@ -204,11 +326,13 @@ class Measurement:
                 if outlines:
                     h["outline_mm"] = _ring_to_list(hole.outline_mm)
                 d["holes"].append(h)
+            d["principal_axes_defined"] = part.principal_axes_defined
             if outlines:
                 d["outline_mm"] = _ring_to_list(part.outline_mm)
             parts.append(d)
         doc = {
             "schema": self.schema,
+            "units": JSON_UNITS,
             "source": asdict(self.source),
             "scale": asdict(self.scale),
             "settings": self.settings,
@@ -256,7 +380,7 @@ class Measurement:
             raise ResultFormatError(
                 f"schema {schema!r} is not a scanmass result; create one with 'scanmass measure --json'", path=path
             )
-        if schema != SCHEMA:
+        if schema not in READABLE_SCHEMAS:
             raise ResultFormatError(
                 f"result schema {schema!r} is not supported by this version (expects {SCHEMA!r}); re-measure the image",
                 path=path,
@@ -267,6 +391,7 @@ class Measurement:
             parts = []
             for p in doc["parts"]:
                 p = dict(p)
+                p.pop("principal_axes_defined", None)
                 holes = []
                 for h in p.pop("holes", []):
                     h = dict(h)
@@ -290,7 +415,6 @@ class Measurement:
             cut_parts=list(doc.get("cut_parts", [])),
             settings=dict(doc.get("settings", {})),
             material=doc.get("material"),
-            schema=schema,
         )
 
     @classmethod
@@ -305,56 +429,38 @@ class Measurement:
             ) from None
         return cls.from_dict(doc, path=path)
 
-    def csv_rows(self) -> list[dict[str, Any]]:
-        """One flat row per part with the main figures (see :data:`CSV_COLUMNS`)."""
+    def csv_rows(self, units: str = "mm") -> list[dict[str, Any]]:
+        """One flat row per part with the main figures (see :func:`csv_columns`).
+
+        ``units`` ``"in"`` gives lengths in inches (areas in², ...), the columns named so
+        (``area_in2``); the figures and their names come from :data:`scanmass.names.FIGURES`.
+        """
+        check_units(units)
         rows = []
         for p in self.parts:
-            row = {
-                "file": self.source.path or "",
-                "part": p.label,
-                "area_mm2": p.area_mm2,
-                "area_u_mm2": p.area_u_mm2,
-                "centroid_x_mm": p.centroid_mm[0],
-                "centroid_y_mm": p.centroid_mm[1],
-                "centroid_x_u_mm": p.centroid_u_mm[0],
-                "centroid_y_u_mm": p.centroid_u_mm[1],
-                "perimeter_mm": p.perimeter_mm,
-                "ixx_mm4": p.ixx_mm4,
-                "iyy_mm4": p.iyy_mm4,
-                "ixy_mm4": p.ixy_mm4,
-                "ixx_u_mm4": p.ixx_u_mm4,
-                "iyy_u_mm4": p.iyy_u_mm4,
-                "ixy_u_mm4": p.ixy_u_mm4,
-                "i1_mm4": p.i1_mm4,
-                "i2_mm4": p.i2_mm4,
-                "principal_angle_deg": p.principal_angle_deg,
-                "polar_mm4": p.polar_mm4,
-                "modulus_top_mm3": p.modulus_top_mm3,
-                "modulus_bottom_mm3": p.modulus_bottom_mm3,
-                "modulus_right_mm3": p.modulus_right_mm3,
-                "modulus_left_mm3": p.modulus_left_mm3,
-                "bbox_xmin_mm": p.bbox_mm[0],
-                "bbox_ymin_mm": p.bbox_mm[1],
-                "bbox_xmax_mm": p.bbox_mm[2],
-                "bbox_ymax_mm": p.bbox_mm[3],
-                "caliper_max_mm": p.caliper_max_mm,
-                "caliper_min_mm": p.caliper_min_mm,
-                "convex_area_mm2": p.convex_area_mm2,
-                "holes": len(p.holes),
-                "hole_diameters_mm": " ".join(f"{h.diameter_mm:.4f}" for h in p.holes),
-                "mass_g": p.mass_g,
-                "mass_u_g": p.mass_u_g,
-            }
+            row: dict[str, Any] = {"file": self.source.path or "", "part": p.label}
+            for fig in FIGURES:
+                row[fig.key(units)] = fig.value(p, units)
+                if fig.u_attr is not None:
+                    row[fig.u_key(units)] = fig.u(p, units)
+            if not p.principal_axes_defined:
+                row["principal_angle_deg"] = None
+            scale = 1.0 if units == "mm" else 1.0 / 25.4
+            suffix = unit_suffix("length", units)
+            row[f"hole_diameters_{suffix}"] = " ".join(f"{h.diameter_mm * scale:.5g}" for h in p.holes)
+            row["scale_method"] = self.scale.method
+            row["warnings"] = " | ".join(self.warnings)
             rows.append(_clean(row))
         return rows
 
-    def to_csv(self) -> str:
-        """The CSV text: a header and one row per part."""
+    def to_csv(self, units: str = "mm") -> str:
+        """The CSV text: a header and one row per part (lengths in ``units``, mm or in)."""
+        columns = csv_columns(units)
         buf = io.StringIO()
-        writer = csv.DictWriter(buf, fieldnames=CSV_COLUMNS, lineterminator="\n")
+        writer = csv.DictWriter(buf, fieldnames=columns, lineterminator="\n")
         writer.writeheader()
-        for row in self.csv_rows():
-            writer.writerow({k: ("" if row.get(k) is None else row.get(k)) for k in CSV_COLUMNS})
+        for row in self.csv_rows(units):
+            writer.writerow({k: ("" if row.get(k) is None else row.get(k)) for k in columns})
         return buf.getvalue()
 
 
@@ -362,43 +468,18 @@ def _tuple(value: Any) -> tuple[float, ...]:
     return tuple(float("nan") if v is None else float(v) for v in value)
 
 
-#: Column order of the per-part CSV.
-CSV_COLUMNS = [
-    "file",
-    "part",
-    "area_mm2",
-    "area_u_mm2",
-    "centroid_x_mm",
-    "centroid_y_mm",
-    "centroid_x_u_mm",
-    "centroid_y_u_mm",
-    "perimeter_mm",
-    "ixx_mm4",
-    "iyy_mm4",
-    "ixy_mm4",
-    "ixx_u_mm4",
-    "iyy_u_mm4",
-    "ixy_u_mm4",
-    "i1_mm4",
-    "i2_mm4",
-    "principal_angle_deg",
-    "polar_mm4",
-    "modulus_top_mm3",
-    "modulus_bottom_mm3",
-    "modulus_right_mm3",
-    "modulus_left_mm3",
-    "bbox_xmin_mm",
-    "bbox_ymin_mm",
-    "bbox_xmax_mm",
-    "bbox_ymax_mm",
-    "caliper_max_mm",
-    "caliper_min_mm",
-    "convex_area_mm2",
-    "holes",
-    "hole_diameters_mm",
-    "mass_g",
-    "mass_u_g",
-]
+def csv_columns(units: str = "mm") -> list[str]:
+    """Column order of the per-part CSV in ``units`` (from :data:`scanmass.names.FIGURES`)."""
+    cols = ["file", "part"]
+    for fig in FIGURES:
+        cols.append(fig.key(units))
+        if fig.u_attr is not None:
+            cols.append(fig.u_key(units))
+    return [*cols, f"hole_diameters_{unit_suffix('length', units)}", "scale_method", "warnings"]
+
+
+#: Column order of the per-part CSV (millimetres).
+CSV_COLUMNS = csv_columns()
 
 
 def read_result(path: str | os.PathLike[str]) -> Measurement:

@@ -180,7 +180,9 @@ class MeasureOptions:
     min_hole_area_mm2: float | None = _option(
         None, "Ignore holes smaller than this, mm² (default: the minimum part area).", "--min-hole-area"
     )
-    keep_cut: bool = _option(False, "Also measure parts touching the image edge (flagged as cut).", "--keep-cut")
+    keep_cut: bool = _option(
+        False, "Also measure parts clipped by the image edge (flagged as clipped).", "--keep-clipped"
+    )
     max_pixels: int = _option(
         DEFAULT_MAX_PIXELS, "Refuse images with more pixels than this (memory guard).", "--max-pixels"
     )
@@ -189,11 +191,13 @@ class MeasureOptions:
     )
     thickness_mm: float | None = _option(
         None,
-        "Plate thickness, mm: with a material, mass figures; in a photo it also lifts the measured face above "
-        "the mat (parallax).",
+        "Plate thickness, mm. With --material it gives the mass; on a photo it also corrects the parallax "
+        "of the part's top face above the mat.",
         "--thickness",
     )
-    thickness_u_mm: float = _option(0.0, "Standard uncertainty of the thickness, mm.", "--thickness-tol")
+    thickness_u_mm: float = _option(
+        0.0, "Standard uncertainty (1σ) of the thickness, mm; not a tolerance band.", "--thickness-u"
+    )
     materials_file: str | os.PathLike | None = _option(
         None, "TOML file adding or overriding materials.", "--materials", kind="path"
     )
@@ -210,8 +214,12 @@ class MeasureOptions:
         kind="ref",
     )
     sheet: str | None = _option(None, "The part lies on a plain sheet of paper: a4, a3 or letter.", "--sheet")
-    printed_x_mm: float | None = _option(None, "Caliper reading of the mat's 100 mm x check bar, mm.", "--printed-x")
-    printed_y_mm: float | None = _option(None, "Caliper reading of the mat's 100 mm y check bar, mm.", "--printed-y")
+    printed_x_mm: float | None = _option(
+        None, "Your caliper reading of the printed mat's 100 mm x check bar, mm.", "--check-bar-x"
+    )
+    printed_y_mm: float | None = _option(
+        None, "Your caliper reading of the printed mat's 100 mm y check bar, mm.", "--check-bar-y"
+    )
     lens: Any = _option(
         None,
         "Lens profile JSON from 'scanmass lens' (corrects lens distortion).",

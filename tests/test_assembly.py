@@ -194,7 +194,7 @@ def test_toml_assembly_matches_direct_members(tmp_path):
     assert result.centre_of_mass_mm == pytest.approx(direct.centre_of_mass_mm, rel=1e-12)
     assert result.name == "bracket with washers"
     doc = json.loads(result.to_json())
-    assert doc["schema"] == "scanmass.assembly/1"
+    assert doc["schema"] == "scanmass.assembly/2"
     assert doc["members"][1]["count"] == 2 and doc["mass_u_g"] > 0
     assert "lifting" in doc["cautions"]
     rows = list(csv.DictReader(io.StringIO(result.to_csv())))
@@ -228,7 +228,7 @@ def test_image_members_are_measured_once_with_their_dpi(tmp_path, monkeypatch):
         (
             'units = "in"\n[[member]]\nsource = "a.json"\nmaterial = "steel"\nthickness_mm = 1\n',
             OptionError,
-            r"asm.toml: units = 'in' is not supported; give every length in millimetres",
+            r"member 1: thickness_mm in a file with units = \"in\"; write thickness_in",
         ),
         (
             '[[member]]\nsource = "missing.json"\nmaterial = "steel"\nthickness_mm = 1\n',
@@ -300,3 +300,31 @@ def test_bad_assembly_files_give_one_line_errors(tmp_path, body, error, match):
 def test_missing_assembly_file(tmp_path):
     with pytest.raises(OptionError, match=r"nope.toml: assembly file not found"):
         assemble(tmp_path / "nope.toml")
+
+
+def test_inch_assembly_file_equals_the_mm_file(tmp_path):
+    # 1 in = 25.4 mm exactly (international yard and pound agreement, 1959)
+    write_sources(tmp_path)
+    common = '[[member]]\nname = "bracket"\nsource = "a.json"\npart = 1\nmaterial = "6061"\n'
+    (tmp_path / "mm.toml").write_text(
+        f'units = "mm"\n{common}thickness_mm = 3.175\ndx_mm = 25.4\ndy_mm = -12.7\nz_mm = 6.35\n', encoding="utf-8"
+    )
+    (tmp_path / "in.toml").write_text(
+        f'units = "in"\n{common}thickness_in = 0.125\ndx_in = 1\ndy_in = -0.5\nz_in = 0.25\n', encoding="utf-8"
+    )
+    a, b = assemble(tmp_path / "mm.toml"), assemble(tmp_path / "in.toml")
+    assert b.mass_g == pytest.approx(a.mass_g, rel=1e-12)
+    assert b.centre_of_mass_mm == pytest.approx(a.centre_of_mass_mm, rel=1e-12)
+
+
+def test_assembly_product_of_inertia_has_the_sign_of_the_part_ixy(tmp_path):
+    # one L bracket alone: its product of inertia ∫(x - xc)(y - yc) dm = rho t Ixy (thin-plate
+    # relation, any dynamics handbook; common practice), so both carry the same sign
+    bracket, _ = write_sources(tmp_path)
+    result = combine_members([member(bracket, "aluminium-6061", 3.0)])
+    rho_t = find_material("aluminium-6061").density_g_mm3 * 3.0
+    doc = json.loads(result.to_json())
+    assert bracket.ixy_mm4 < 0  # the L of L_OUTLINE: legs along +x and +y from the corner
+    assert doc["products_g_mm2"]["xy"] == pytest.approx(rho_t * bracket.ixy_mm4, rel=1e-9)
+    row = list(csv.DictReader(io.StringIO(result.to_csv())))[-1]
+    assert float(row["product_xy_g_mm2"]) == pytest.approx(rho_t * bracket.ixy_mm4, rel=1e-9)

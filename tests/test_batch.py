@@ -100,7 +100,7 @@ def _check_row(row: dict, truth: dict) -> None:
     assert float(row["ixx_mm4"]) == pytest.approx(truth["ixx"], rel=MOMENT_RTOL)
     assert float(row["iyy_mm4"]) == pytest.approx(truth["iyy"], rel=MOMENT_RTOL)
     assert float(row["ixy_mm4"]) == pytest.approx(truth["ixy"], rel=MOMENT_RTOL, abs=MOMENT_RTOL * truth["ixx"])
-    assert int(row["holes"]) == truth["holes"]
+    assert int(row["hole_count"]) == truth["holes"]
     assert float(row["area_u_mm2"]) > 0
 
 
@@ -201,9 +201,13 @@ def test_good_files_measured_bad_files_recorded(mixed, tmp_path):
         "ixx_mm4",
         "iyy_mm4",
         "ixy_mm4",
-        "holes",
+        "hole_count",
         "mass_g",
+        "scale_method",
+        "warnings",
     }
+    assert {r["scale_method"] for r in rows} == {"dpi"}
+    assert not (out / ".scanmass-batch.lock").exists()  # no lock file stays behind
 
     # the batch gives exactly what measure() gives for the same file and options
     direct = measure(root / "plate-a.png")
@@ -242,7 +246,7 @@ def test_cli_exit_status_and_export(mixed, tmp_path):
     assert result.exit_code == 0, result.output
 
     # export again from the database: CSV identical to parts.csv, JSONL one line per file
-    result = runner.invoke(app, ["batch-export", str(out), "--format", "csv"])
+    result = runner.invoke(app, ["batch-export", str(out), "--csv", "-"])
     assert result.exit_code == 0, result.output
     assert result.stdout == (out / "parts.csv").read_text(encoding="utf-8")
     path = export_batch(out, format="jsonl", out=tmp_path / "all.jsonl")

@@ -26,6 +26,8 @@ def batch_dir(tmp_path_factory):
             [SynthPart(circle(20.0, 20.0, r))], dpi=200, size_mm=(40, 40), blur_px=0.8, noise=0.004, seed=k
         )
         save_scan(scan, scans / f"disc{k}.png")
+    (scans / "zcopy").mkdir()  # found after disc0.png, so recorded as its duplicate
+    (scans / "zcopy" / "disc0-again.png").write_bytes((scans / "disc0.png").read_bytes())
     (scans / "broken.png").write_text("not an image")
     out = tmp_path_factory.mktemp("out")
     run_batch(scans, out, workers=0)
@@ -46,6 +48,10 @@ def test_report_of_a_batch_folder(batch_dir, tmp_path):
     html = out.read_text(encoding="utf-8")
     assert "broken.png" in html and "disc0.png" in html and "disc1.png" in html
     assert "<svg" in html  # inline plots
+    # paths relative to the scans folder, duplicates counted, a warnings section
+    assert 'data-count="Duplicate files (skipped)">1<' in html
+    assert "<h2>Warnings</h2>" in html and "File paths are relative to" in html
+    assert "<td><code>broken.png</code></td>" in html  # the file column, relative to the scans folder
 
 
 def test_report_of_a_folder_without_database(tmp_path):

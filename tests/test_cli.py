@@ -44,18 +44,18 @@ def test_measure_writes_json_csv_overlay(scan_png, tmp_path):
     # truth: plate 30 x 20 minus a disc of r = 4 (600 - 16 pi); disc r = 9 (81 pi); closed forms
     assert areas == pytest.approx(sorted([600 - 16 * math.pi, 81 * math.pi]), rel=1e-3)
     rows = out_csv.read_text().splitlines()
-    assert rows[0].startswith("file,part,area_mm2,area_u_mm2,centroid_x_mm,centroid_y_mm")
+    assert rows[0].startswith("file,part,area_mm2,area_u_mm2,perimeter_mm,perimeter_u_mm,centroid_x_mm")
     assert len(rows) == 3
     with Image.open(out_png) as im:
         assert im.format == "PNG" and im.size[0] > 100
-    assert "part 1" in result.output and "area mm²" in result.output
+    assert "part 1" in result.output and "Area, mm²" in result.output
 
 
 def test_measure_json_to_stdout(scan_png):
     result = runner.invoke(app, ["measure", str(scan_png), "--json", "-"])
     assert result.exit_code == 0
     doc = json.loads(result.stdout)
-    assert doc["schema"] == "scanmass.result/1" and len(doc["parts"]) == 2
+    assert doc["schema"] == "scanmass.result/2" and len(doc["parts"]) == 2
 
 
 def test_measure_with_material_adds_mass(scan_png):
@@ -69,8 +69,57 @@ def test_measure_with_material_adds_mass(scan_png):
 
 def test_help_and_version():
     assert runner.invoke(app, ["--version"]).output.startswith("scanmass ")
-    result = runner.invoke(app, ["measure", "--help"])
+    result = runner.invoke(app, ["measure", "--help"], env={"COLUMNS": "200"})
     assert result.exit_code == 0 and "--dpi" in result.output
+    out = result.output
+    for new in ("--keep-clipped", "--thickness-u", "--check-bar-x", "--check-bar-y", "--units", "parallax"):
+        assert new in out
+    for old in ("--keep-cut", "--thickness-tol", "--printed-x", "--printed-y", "<bool>"):
+        assert old not in out
+    assert "standard uncertainty" in out.split("--thickness-u", 1)[1].split("--", 1)[0].lower()
+    lens = runner.invoke(app, ["lens", "--help"]).output
+    assert "--json" in lens and "--out" not in lens  # --out names a folder in every command
+    export = runner.invoke(app, ["batch-export", "--help"]).output
+    assert "--csv" in export and "--jsonl" in export and "--out" not in export
+
+
+def test_measure_several_images_and_a_folder(scan_png, tmp_path):
+    other = tmp_path / "again.png"
+    other.write_bytes(scan_png.read_bytes())
+    out_csv = tmp_path / "both.csv"
+    result = runner.invoke(app, ["measure", str(scan_png), str(other), "--csv", str(out_csv)])
+    assert result.exit_code == 0, result.output
+    assert result.output.count("Area, mm²") == 2  # one table per image
+    rows = out_csv.read_text().splitlines()
+    assert len(rows) == 1 + 2 * 2 and rows[0].startswith("file,part,area_mm2")
+    one_line_error(runner.invoke(app, ["measure", str(tmp_path)]), "is a folder", "scanmass batch")
+    one_line_error(
+        runner.invoke(app, ["measure", str(scan_png), str(other), "--json", str(tmp_path / "r.json")]),
+        "scanmass batch",
+    )
+
+
+def test_piped_table_keeps_each_value_with_its_uncertainty(scan_png):
+    # CliRunner's output is not a terminal: the table gets room, and "value ± u" stays on one line
+    result = runner.invoke(app, ["measure", str(scan_png)])
+    assert result.exit_code == 0
+    for line in result.output.splitlines():
+        assert not line.rstrip(" │|").endswith("±"), line  # a value split from its uncertainty
+        assert not re.match(r"^[│|\s]*[0-9.]+\s*│\s*$", line), line  # an uncertainty alone on a line
+    assert re.search(r"\d ± \d", result.output.replace("\u00a0", " "))
+
+
+def test_measure_in_inches(scan_png, tmp_path):
+    mm_csv, in_csv = tmp_path / "mm.csv", tmp_path / "in.csv"
+    assert runner.invoke(app, ["measure", str(scan_png), "--csv", str(mm_csv), "-q"]).exit_code == 0
+    result = runner.invoke(app, ["measure", str(scan_png), "--csv", str(in_csv), "--units", "in"])
+    assert result.exit_code == 0, result.output
+    assert "Area, in²" in result.output and "Area, mm²" not in result.output
+    a = mm_csv.read_text().splitlines()[1].split(",")
+    b = in_csv.read_text().splitlines()[1].split(",")
+    # column 2 is the area: mm2 / 25.4^2 = in2 (1 in = 25.4 mm exactly, 1959 agreement)
+    assert float(b[2]) == pytest.approx(float(a[2]) / 25.4**2, rel=1e-12)
+    one_line_error(runner.invoke(app, ["measure", str(scan_png), "--units", "cm"]), "--units")
 
 
 def test_every_command_has_help_text():

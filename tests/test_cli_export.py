@@ -15,6 +15,7 @@ from pathlib import Path
 
 import _exact_results as E
 import ezdxf
+import numpy as np
 import pytest
 from cli_helpers import one_line_error
 from typer.testing import CliRunner
@@ -49,7 +50,7 @@ def test_export_dxf_and_svg(measured, tmp_path):
     assert f"wrote {dxf}" in result.output and f"wrote {svg}" in result.output
     doc = ezdxf.readfile(dxf)
     assert doc.header["$INSUNITS"] == 4
-    assert len(doc.modelspace().query('LWPOLYLINE[layer=="OUTLINE"]')) == len(m.parts)
+    assert len(doc.modelspace().query('LWPOLYLINE[layer=="SCANMASS_OUTLINE"]')) == len(m.parts)
     root = ET.parse(svg).getroot()
     assert root.get("width").endswith("mm")
     assert len(root.findall(".//{http://www.w3.org/2000/svg}path")) == len(m.parts)
@@ -65,7 +66,7 @@ def test_export_fit_tolerance_auto_round_trip(measured, tmp_path):
     assert result.exit_code == 0, result.output
     n_in, n_out = (int(v) for v in re.search(r"(\d+) -> (\d+) vertices", result.output).groups())
     assert n_out * 10 < n_in
-    (e,) = ezdxf.readfile(dxf).modelspace().query('LWPOLYLINE[layer=="OUTLINE"]')
+    (e,) = ezdxf.readfile(dxf).modelspace().query('LWPOLYLINE[layer=="SCANMASS_OUTLINE"]')
     pts = []
     for piece in e.virtual_entities():  # ezdxf expands the bulges into exact arcs
         seg = [piece.dxf.start, piece.dxf.end] if piece.dxftype() == "LINE" else list(piece.flattening(1e-4))
@@ -152,7 +153,7 @@ def test_export_never_overwrites_the_result(measured, tmp_path):
     copy = tmp_path / "copy.json"
     copy.write_text(src.read_text())
     one_line_error(runner.invoke(app, ["export", str(copy), "--svg", str(copy)]), "would overwrite")
-    assert json.loads(copy.read_text())["schema"] == "scanmass.result/1"
+    assert json.loads(copy.read_text())["schema"] == "scanmass.result/2"
 
 
 def test_report_bad_input(measured, tmp_path):
@@ -202,3 +203,23 @@ def test_help(command):
     result = runner.invoke(app, [command, "--help"])
     assert result.exit_code == 0
     assert ("--dxf" in result.output) if command == "export" else ("--html" in result.output)
+
+
+def test_export_dxf_in_inches_is_the_mm_drawing_over_25_4(measured, tmp_path):
+    # 1 in = 25.4 mm exactly (international yard and pound agreement, 1959); DXF $INSUNITS 1 =
+    # inches, 4 = millimetres (the DXF reference's table of drawing units, common practice)
+    src, _ = measured
+    mm, inch = tmp_path / "mm.dxf", tmp_path / "in.dxf"
+    assert runner.invoke(app, ["export", str(src), "--dxf", str(mm)]).exit_code == 0
+    result = runner.invoke(app, ["export", str(src), "--dxf", str(inch), "--units", "in"])
+    assert result.exit_code == 0, result.output
+    doc_mm, doc_in = ezdxf.readfile(mm), ezdxf.readfile(inch)
+    assert doc_mm.header["$INSUNITS"] == 4 and doc_in.header["$INSUNITS"] == 1
+    q = 'LWPOLYLINE[layer=="SCANMASS_OUTLINE"]'
+    for a, b in zip(doc_mm.modelspace().query(q), doc_in.modelspace().query(q)):
+        pa, pb = np.array(a.get_points("xyb")), np.array(b.get_points("xyb"))
+        assert np.allclose(pb[:, :2] * 25.4, pa[:, :2], rtol=0, atol=1e-9)
+        assert np.array_equal(pb[:, 2], pa[:, 2])  # bulges do not change with the unit
+    texts = [t.dxf.text for t in doc_in.modelspace().query('TEXT[layer=="SCANMASS_REFERENCE"]')]
+    assert texts and all(t.startswith("part ") for t in texts)
+    assert runner.invoke(app, ["export", str(src), "--dxf", str(inch), "--units", "furlong"]).exit_code == 1

@@ -37,7 +37,21 @@ def sources(tmp_path):
         ("assemble", ["--json", "--csv", "--materials"]),
         (
             "balance",
-            ["--material", "--thickness", "--rpm", "--grade", "--bore", "--part", "--json", "--dpi", "--radius"],
+            [
+                "--material",
+                "--thickness",
+                "--thickness-u",
+                "--rpm",
+                "--grade",
+                "--bore-hole",
+                "--part",
+                "--json",
+                "--dpi",
+                "--correction-radius",
+                "--drill-diameter",
+                "--units",
+                "Exit status",
+            ],
         ),
     ],
 )
@@ -46,6 +60,9 @@ def test_help_texts(command, options):
     assert result.exit_code == 0
     for option in options:
         assert option in result.output
+    # renamed options are gone, and plain flags show no "<bool>" value
+    for old in ("--thickness-tol", "--bore ", "--radius", "--drill ", "--printed-x", "--keep-cut", "<bool>"):
+        assert old not in result.output
 
 
 def test_materials_lists_the_table(tmp_path):
@@ -75,7 +92,7 @@ def test_assemble_writes_json_and_csv(sources, tmp_path):
     rows = list(csv.DictReader(io.StringIO(out_csv.read_text())))
     assert [r["row"] for r in rows] == ["member", "member", "total"]
     stdout = runner.invoke(app, ["assemble", str(toml), "--json", "-"])
-    assert json.loads(stdout.stdout)["schema"] == "scanmass.assembly/1"
+    assert json.loads(stdout.stdout)["schema"] == "scanmass.assembly/2"
 
 
 def test_assemble_errors_are_one_line(sources, tmp_path):
@@ -114,7 +131,7 @@ def test_balance_from_a_result_json(sources):
             "-",
         ],
     )
-    assert result.exit_code == 0, result.output
+    assert result.exit_code == 1, result.output  # the part fails the grade: exit status 1 (documented)
     doc = json.loads(result.stdout)
     # closed form U = m_disc * s (see tests/test_balance.py): 7850e-6 * pi 30^2 * 2 * 1
     assert doc["unbalance_gmm"] == pytest.approx(STEEL * math.pi * 900 * 2 * 1.0, rel=1e-12)
@@ -166,3 +183,74 @@ def test_balance_errors_are_one_line(sources):
         runner.invoke(app, args + ["--part", "2", "--material", "steel", "--thickness", "2", "--rpm", "3000"]),
         "give both the speed",
     )
+
+
+def test_materials_name_a_source_and_never_say_from_memory():
+    from scanmass.mass.materials import NOT_CHECKED, load_materials
+
+    result = CliRunner().invoke(app, ["materials"], env={"COLUMNS": "400"})
+    assert result.exit_code == 0 and "from memory" not in result.output
+    for key, mat in load_materials().items():
+        assert mat.source, key  # every density names where it comes from
+        assert mat.checked or mat.source_text.endswith(NOT_CHECKED), key
+
+
+def test_balance_without_a_fitting_correction_shows_no_after_correction_figures(sources):
+    import dataclasses
+
+    from rich.console import Console
+
+    from scanmass.cli.mass_tables import balance_table
+    from scanmass.mass.balance import balance_measurement
+    from scanmass.measurement import read_result
+
+    res = balance_measurement(read_result(sources), "steel", 2.0, part=2, rpm=3000, grade=6.3)
+    assert res.correction_radius_mm is not None
+
+    def text(r) -> str:
+        console = Console(width=300, record=True)
+        console.print(balance_table(r))
+        return console.export_text()
+
+    if res.correction_fits is not False:
+        assert "U after correction" in text(res)
+    shown = text(dataclasses.replace(res, correction_fits=False))
+    assert "hole fits in material" in shown and "NO" in shown
+    assert "U after correction" not in shown and "remove at" not in shown
+    # one unit for every offset: the permissible offset in mm like the offset itself
+    assert "permissible offset, mm" in shown and "µm" not in shown
+    inches = Console(width=300, record=True)
+    inches.print(balance_table(res, "in"))
+    assert "permissible offset, in" in inches.export_text()
+
+
+def test_measure_names_the_material_it_used(tmp_path):
+    scan = render_scan([SynthPart(circle(20.0, 20.0, 10.0))], dpi=300, size_mm=(40, 40), seed=3)
+    image = save_scan(scan, tmp_path / "disc.png")
+    result = runner.invoke(
+        app, ["measure", str(image), "--material", "steel", "--thickness", "2", "--thickness-u", "0.05"]
+    )
+    assert result.exit_code == 0, result.output
+    out = " ".join(result.output.split())
+    # the alias "steel" resolved visibly to the carbon-steel entry and its density (7850 kg/m3)
+    assert "material 'steel' = Carbon steel" in out and "(carbon-steel)" in out and "7850" in out
+
+
+def test_report_includes_balance_and_assembly_json(sources, tmp_path):
+    toml = tmp_path / "asm.toml"
+    toml.write_text(
+        f'units = "mm"\n[[member]]\nname = "base"\nsource = "{sources.name}"\npart = 1\nmaterial = "steel"\n'
+        "thickness_mm = 2\n",
+        encoding="utf-8",
+    )
+    (tmp_path / "asm.toml").replace(sources.parent / "asm.toml")
+    asm_json, bal_json = tmp_path / "asm.json", tmp_path / "bal.json"
+    assert runner.invoke(app, ["assemble", str(sources.parent / "asm.toml"), "--json", str(asm_json)]).exit_code == 0
+    args = ["balance", str(sources), "--part", "2", "--material", "steel", "--thickness", "2"]
+    assert runner.invoke(app, [*args, "--rpm", "3000", "--grade", "6.3", "--json", str(bal_json)]).exit_code == 1
+    html = tmp_path / "r.html"
+    result = runner.invoke(app, ["report", str(sources), str(bal_json), str(asm_json), "--html", str(html)])
+    assert result.exit_code == 0, result.output
+    page = html.read_text(encoding="utf-8")
+    assert 'section class="balance"' in page and 'data-verdict="fail"' in page and "Balance fail" in page
+    assert 'section class="assembly"' in page and "Product of inertia Pxy (same sign as Ixy)" in page

@@ -95,7 +95,7 @@ def test_too_few_photos_and_cli(views, tmp_path):
     with pytest.raises(ScaleError, match="at least 5 photos"):
         calibrate_lens(views[1][:3])
     out = tmp_path / "p.json"
-    res = CliRunner().invoke(app, ["lens", *map(str, views[1][:5]), "--out", str(out)])
+    res = CliRunner().invoke(app, ["lens", *map(str, views[1][:5]), "--json", str(out)])
     assert res.exit_code == 0, res.output
     assert isinstance(load_lens_profile(out), LensProfile)
     res = CliRunner().invoke(app, ["lens", str(views[1][0])])

@@ -168,7 +168,7 @@ def test_cut_part_left_out_and_kept_on_request():
 
 def test_only_cut_parts_is_a_part_cut_error():
     scan = render_scan([SynthPart(rectangle(-5.0, 10.0, 30.0, 20.0))], dpi=300, size_mm=(60, 40), seed=5)
-    with pytest.raises(PartCutError, match="1 part\\(s\\) touch the image edge.*--keep-cut") as info:
+    with pytest.raises(PartCutError, match="1 part\\(s\\) touch the image edge.*--keep-clipped") as info:
         measure(scan.image, dpi=300)
     assert isinstance(info.value, SegmentationError) and info.value.count == 1
     assert len(measure(scan.image, dpi=300, keep_cut=True).parts) == 1

@@ -195,7 +195,7 @@ def test_cli_passes_every_option_through(monkeypatch, tmp_path):
     monkeypatch.setattr(writers, "measure_to_outputs", fake)
     from typer.testing import CliRunner
 
-    flags = ["--dpi", "300", "--min-area", "5", "--keep-cut", "--thickness", "1.5", "--scale", "dpi"]
+    flags = ["--dpi", "300", "--min-area", "5", "--keep-clipped", "--thickness", "1.5", "--scale", "dpi"]
     result = CliRunner().invoke(app, ["measure", str(tmp_path / "x.png"), *flags])
     assert result.exit_code == 1 and "stop here" in result.output
     expected = MeasureOptions(dpi=300.0, min_area_mm2=5.0, keep_cut=True, thickness_mm=1.5, scale="dpi")

@@ -42,3 +42,51 @@ def test_overlay_of_a_mat_photo_adds_the_top_view():
     picture = render_overlay(image, m)
     zoom = min(1.0, OVERLAY_MAX_SIDE_PX / max(image.grey.shape))
     assert picture.shape[1] > round(image.grey.shape[1] * zoom)  # photo + top view side by side
+
+
+def test_overlay_legend_lists_what_is_drawn(monkeypatch):
+    import scanmass.outputs.overlay as ov
+
+    # a round disc (principal axes undefined: none drawn) and a rectangle clipped by the left edge
+    parts = [SynthPart(circle(50, 25, 12)), SynthPart(rectangle(-5, 5, 20, 15))]
+    scan = render_scan(parts, dpi=200, size_mm=(80, 50), blur_px=0.8, noise=0.003, seed=4)
+    image = load_image(scan.image, dpi=200)
+    m = measure(scan.image, dpi=200, keep_cut=True)
+    assert any(p.cut for p in m.parts)
+    shown: list = []
+    real = ov.legend_items
+    monkeypatch.setattr(ov, "legend_items", lambda *a, **k: shown.extend(real(*a, **k)) or real(*a, **k))
+    picture = render_overlay(image, m)
+    names = [name for name, _ in shown]
+    assert "clipped by the image edge" in names
+    assert any(n.startswith("centroid 1 sigma ellipse") for n in names)
+    # the clipped rectangle's axes are defined, the disc's not: both kinds of line in the legend only if drawn
+    drawn_axes = any(p.principal_axes_defined for p in m.parts)
+    assert ("I2 axis (long direction)" in names) == drawn_axes
+    # the ellipse is drawn black, and the legend says black (it said yellow before)
+    colours = dict(shown)
+    assert colours[next(n for n in names if n.startswith("centroid 1 sigma"))] == (0, 0, 0)
+    assert picture.shape[2] == 3
+
+
+def test_no_axes_drawn_for_a_round_part():
+    scan = render_scan([SynthPart(circle(30, 30, 15))], dpi=200, size_mm=(60, 60), blur_px=0.8, noise=0.003, seed=6)
+    m = measure(scan.image, dpi=200)
+    assert not m.parts[0].principal_axes_defined
+    picture = render_overlay(load_image(scan.image, dpi=200), m)
+    green = np.array([115, 158, 0])  # the I2 axis colour, BGR (Okabe-Ito bluish green #009E73)
+    assert not _has_colour(picture, green, tol=10)
+
+
+def test_scale_bar_only_where_one_scale_holds():
+    from scanmass.outputs.overlay import SCALE_BAR_MAX_VARIATION, _scale_variation
+
+    # a scan: the same mm per px everywhere (affine map, DESIGN.md scan frame)
+    s = 25.4 / 300
+    scan = np.array([[s, 0, 0], [0, -s, 1000 * s], [0, 0, 1]])
+    assert _scale_variation(scan, 2000, 1000) == pytest.approx(0.0, abs=1e-12)
+    # a tilted view: a homography whose third row is not (0, 0, 1); here the local scale at
+    # x = 2000 px differs by the factor (1 + 1e-4 * 2000)^2 = 1.44 from that at x = 0
+    tilted = scan.copy()
+    tilted[2] = [1e-4, 0, 1]
+    assert _scale_variation(tilted, 2000, 1000) > SCALE_BAR_MAX_VARIATION

@@ -249,7 +249,7 @@ def test_cli_measure_photo(tmp_path):
     Image.fromarray(render_photo(MAT, [_plate()], _cam(), seed=4)).save(path, quality=92)
     out = tmp_path / "r.json"
     res = CliRunner().invoke(
-        app, ["measure", str(path), "--printed-x", "100", "--printed-y", "100", "--json", str(out), "-q"]
+        app, ["measure", str(path), "--check-bar-x", "100", "--check-bar-y", "100", "--json", str(out), "-q"]
     )
     assert res.exit_code == 0, res.output
     import json

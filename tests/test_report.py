@@ -142,11 +142,11 @@ def test_report_values_of_the_l_section(sample):
 def test_report_shows_scale_source_warnings_and_cautions(sample):
     html = render_report([sample], generated_at=WHEN)
     page = _Page(html)
-    assert page.row("Method")[1] == "scanner resolution (dpi)"
+    assert page.row("Method")[1] == "scanner resolution, 600 dpi"
     # 25.4 / 600 mm/px = 0.0423333 (definition of the inch), u = 0.1 % of it
     assert page.row("Scale")[1] == "0.042333 ± 0.000042 mm/px"
-    assert page.row("Relative uncertainty of the scale")[1] == "0.1 %"
-    assert page.row("Reprojection RMS of the fitted map")[1].startswith("not applicable")
+    # a scan has no fitted map: the row is left out, and no raw matrix is shown
+    assert not any(c and c[0] == "Reprojection RMS" for _, c in page.rows) and "Pixel-to-mm map" not in html
     # the warning is shown as text, never as markup
     assert "<script>alert(1)</script>" not in html
     assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html
@@ -164,9 +164,10 @@ def test_report_states_frames_and_conventions(sample):
         "x to the right and y up",
         "Ixy = ∫(x − xc)(y − yc) dA",
         "I1 ≥ I2",
-        "J = Ixx + Iyy",
+        "Ip = Ixx + Iyy (not the torsion constant)",
+        "product moment of area",
         "counter-clockwise from +x",
-        "standard uncertainty (1 sigma)",
+        "u = standard uncertainty (1σ)",
     ):
         assert phrase in text
 
@@ -178,10 +179,10 @@ def test_report_fitted_scale_with_printer_check_and_lens():
     m.scale.reprojection_rms_mm = 0.0061
     m.scale.extra = {"printer_check": {"measured_mm": 150.02, "nominal_mm": 150.0}, "lens_profile": "phone-main-26mm"}
     page = _Page(render_report([m], generated_at=WHEN))
-    assert page.row("Reprojection RMS of the fitted map")[1] == "0.123 px = 0.0061 mm"
-    assert page.row("Printer scale check (printer check)")[1] == "measured mm: 150.02; nominal mm: 150"
-    assert page.row("Lens profile (lens profile)")[1] == "phone-main-26mm"
-    assert page.row("Thickness correction")[1] == "none"
+    assert page.row("Reprojection RMS")[1] == "0.12 px (0.0061 mm)"
+    assert page.row("Check-bar readings")[1] == "measured mm: 150.02; nominal mm: 150"
+    assert page.row("Lens profile")[1] == "phone-main-26mm"
+    assert page.row("Thickness (parallax)")[1] == "none"
 
 
 def test_report_mass_rows_when_known(sample):
@@ -267,7 +268,7 @@ def test_write_report(sample, tmp_path):
     assert out.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
     with pytest.raises(OutputError, match="would overwrite the input"):
         write_report([src], src)
-    assert json.loads(src.read_text())["schema"] == "scanmass.result/1"
+    assert json.loads(src.read_text())["schema"] == "scanmass.result/2"
     with pytest.raises(OutputError, match="does not exist"):
         write_report([src], tmp_path / "missing" / "report.html")
 
@@ -315,15 +316,24 @@ def test_summary_counts_failures_and_table():
     html = render_summary(rows, failures, generated_at=WHEN)
     page = _Page(html)
     counts = {a["data-count"]: None for a in page.find("td") if "data-count" in a}
-    assert set(counts) == {"Files", "Files measured", "Files failed", "Parts"}
+    assert set(counts) == {
+        "Files",
+        "Files measured",
+        "Files failed",
+        "Duplicate files (skipped)",
+        "Files with warnings",
+        "Parts",
+    }
     assert page.row("Files")[1] == "4"
     assert page.row("Files measured")[1] == "2"
     assert page.row("Files failed")[1] == "2"
     assert page.row("Parts")[1] == "5"
+    # paths relative to the folder all files share ("scans"), said once on the page
     assert [c for a, c in page.rows if "failure-row" in a.get("class", "")] == [
-        ["scans/c.jpg", "no scale: the file stores no resolution <b>"],
-        ["scans/d.png", "no part found"],
+        ["c.jpg", "no scale: the file stores no resolution <b>"],
+        ["d.png", "no part found"],
     ]
+    assert "File paths are relative to <code>scans</code>" in html
     assert "&lt;b&gt;" in html
     part_rows = [c for a, c in page.rows if "part-row" in a.get("class", "")]
     assert len(part_rows) == 5

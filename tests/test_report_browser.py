@@ -193,3 +193,37 @@ def test_checks_catch_a_broken_page(browser, tmp_path):
     assert any("undefinedFunction" in e for e in errors)
     img = browser.find_element("id", "bad")
     assert browser.execute_script("return arguments[0].naturalWidth;", img) == 0
+
+
+@pytest.fixture(scope="module")
+def demo_report(tmp_path_factory):
+    from scanmass.cli.demo import run_demo
+
+    out = tmp_path_factory.mktemp("demo")
+    run_demo(out)
+    return out / "report.html"
+
+
+#: The demo's report must stay small enough to mail (issue 10: it was 6.5 MB).
+DEMO_REPORT_MAX_BYTES = 2_000_000
+
+
+def test_demo_report_shows_balance_and_assembly(browser, demo_report):
+    assert demo_report.stat().st_size < DEMO_REPORT_MAX_BYTES
+    _open(browser, demo_report)
+    assert _console_errors(browser) == []
+    assert _external_requests(browser) == []
+    # the fan plate fails G 6.3 at 6000 rpm (demo.toml): said at the top and in its section
+    top = browser.find_element("css selector", "p.verdict[data-verdict]")
+    assert top.is_displayed() and "Balance fail" in top.text and "G 6.3" in top.text
+    section = browser.find_element("css selector", "section.balance")
+    assert section.get_attribute("data-verdict") == "fail" and "FAIL" in section.text
+    assert "Permissible" in section.text and "Static unbalance U" in section.text
+    assembly = browser.find_element("css selector", "section.assembly")
+    assert "rear-carrier side frame" in assembly.text and "Centre of mass x" in assembly.text
+    assert len(assembly.find_elements("css selector", "table.members tbody tr")) >= 2
+    # every embedded overlay decodes, and warnings sit beside the picture
+    for img in browser.find_elements("css selector", "img"):
+        assert browser.execute_script("return arguments[0].complete && arguments[0].naturalWidth;", img) > 0
+    assert browser.find_elements("css selector", "div.top div.warnings-box")
+    _screenshot(browser, "demo-report.png")

@@ -13,7 +13,16 @@ from scanmass.errors import OptionError
 from scanmass.measurement import CSV_COLUMNS
 from scanmass.outputs.atomic import write_atomic
 
-__all__ = ["export_batch", "iter_export", "summary_rows"]
+__all__ = ["duplicate_count", "export_batch", "iter_export", "summary_rows"]
+
+
+def duplicate_count(out_dir: str | os.PathLike) -> int:
+    """How many files of a batch were skipped as copies of a measured file."""
+    conn = open_existing(out_dir)
+    try:
+        return int(conn.execute("SELECT COUNT(*) FROM files WHERE status='duplicate'").fetchone()[0])
+    finally:
+        conn.close()
 
 
 def summary_rows(out_dir: str | os.PathLike) -> tuple[list[dict[str, Any]], list[dict[str, str]]]:

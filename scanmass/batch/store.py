@@ -241,6 +241,10 @@ class Store:
             with contextlib.suppress(sqlite3.Error):
                 conn.close()
         if self._lock_fh is not None:
+            # removed while still held, so that no lock file stays behind; a second batch that
+            # opened it meanwhile fails to lock and stops, one that comes later makes a new one
+            with contextlib.suppress(OSError):
+                (self.out_dir / _LOCK_NAME).unlink()
             self._lock_fh.close()
             self._lock_fh = None
 

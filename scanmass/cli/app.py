@@ -13,7 +13,7 @@ import sys
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Annotated, Any, Literal, NoReturn, cast
+from typing import Annotated, Any, Literal, NoReturn
 
 import typer
 from rich.console import Console
@@ -30,15 +30,22 @@ app = typer.Typer(
     add_completion=False,
     context_settings={"help_option_names": ["-h", "--help"]},
     pretty_exceptions_enable=False,
+    rich_markup_mode=None,  # plain click help: flags without a value show none ("<bool>" is not a value)
 )
 
 #: Exit code for user errors (bad input, bad options); 0 is success.
 EXIT_USER_ERROR = 1
 
+#: Exit code of ``balance`` when the part fails the balance grade.
+EXIT_BALANCE_FAILS = 1
+
 
 def _console(stderr: bool = False) -> Console:
-    # messages on stderr never wrap: an error stays one line however narrow the terminal
-    return Console(stderr=stderr, highlight=False, soft_wrap=stderr)
+    # messages on stderr never wrap: an error stays one line however narrow the terminal;
+    # piped into a file or another program, tables get room instead of the default 80 columns
+    stream = sys.stderr if stderr else sys.stdout
+    width = None if stream.isatty() else 200
+    return Console(stderr=stderr, highlight=False, soft_wrap=stderr, width=width)
 
 
 def fail(message: str) -> NoReturn:
@@ -102,6 +109,24 @@ PrintedXOpt = Annotated[float | None, typer.Option(_flag("printed_x_mm"), help=_
 PrintedYOpt = Annotated[float | None, typer.Option(_flag("printed_y_mm"), help=_help("printed_y_mm"))]
 LensOpt = Annotated[Path | None, typer.Option(_flag("lens"), help=_help("lens"))]
 
+UnitsOpt = Annotated[
+    str,
+    typer.Option(
+        "--units",
+        help="Units of what people read: mm or in (tables, CSV, report, drawings; DXF $INSUNITS 1 for in). "
+        "The JSON stays in mm.",
+    ),
+]
+
+
+def _check_units(units: str) -> str:
+    from scanmass.names import UNITS
+
+    if units not in UNITS:
+        fail(f"--units {units!r} must be mm or in, e.g. --units in")
+    return units
+
+
 #: Each MeasureOptions field as a command-line parameter (its type there).
 MEASURE_OPTION_PARAMS: dict[str, Any] = {
     "dpi": DpiOpt,
@@ -160,40 +185,75 @@ def with_measure_options(command: Callable[..., None]) -> Callable[..., None]:
 @app.command()
 @with_measure_options
 def measure(
-    image: Annotated[Path, typer.Argument(help="Image file: JPEG, PNG or TIFF.")],
+    images: Annotated[list[Path], typer.Argument(help="Image files: JPEG, PNG or TIFF (for a folder use 'batch').")],
     *,
     json_out: Annotated[
-        str | None, typer.Option("--json", help="Write the result document (JSON); '-' for stdout.")
+        str | None, typer.Option("--json", help="Write the result document (JSON, in mm); '-' for stdout.")
     ] = None,
-    csv_out: Annotated[Path | None, typer.Option("--csv", help="Write one CSV row per part.")] = None,
+    csv_out: Annotated[
+        Path | None, typer.Option("--csv", help="Write one CSV row per part (of every image given).")
+    ] = None,
     overlay_out: Annotated[
         Path | None, typer.Option("--overlay", help="Write an overlay PNG of what was measured.")
     ] = None,
+    units: UnitsOpt = "mm",
     options: MeasureOptions,
     quiet: Annotated[bool, typer.Option("--quiet", "-q", help="Do not print the table.")] = False,
 ) -> None:
-    """Measure every flat part in IMAGE: area, centroid, second moments, holes, uncertainties."""
+    """Measure every flat part in each IMAGE: area, centroid, second moments, holes, uncertainties.
+
+    Several images are measured one after the other; --json and --overlay name one file, so
+    they take one image (for many files with one result each, use 'scanmass batch').
+    """
+    from scanmass.outputs.atomic import write_atomic
     from scanmass.outputs.writers import measure_to_outputs
 
-    with user_errors():
-        result = measure_to_outputs(image, options, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out)
+    _check_units(units)
+    for image in images:
+        if image.is_dir():
+            fail(f"{image} is a folder; measure a folder of images with 'scanmass batch {image} --out RESULTS'")
+    if len(images) > 1 and (json_out is not None or overlay_out is not None):
+        fail("--json and --overlay write one file for one image; give one image, or use 'scanmass batch' for many")
+    results = []
+    for image in images:
+        with user_errors():
+            results.append(
+                measure_to_outputs(
+                    image,
+                    options,
+                    json_out=json_out,
+                    csv_out=csv_out if len(images) == 1 else None,
+                    overlay_out=overlay_out,
+                    units=units,
+                )
+            )
     if json_out == "-":
-        sys.stdout.write(result.document + "\n")
+        sys.stdout.write(results[0].document + "\n")
         return
+    written = [w for r in results for w in r.written]
+    if csv_out is not None and len(images) > 1:
+        lines = [r.measurement.to_csv(units).splitlines() for r in results]
+        text = "\n".join([lines[0][0], *(row for rows in lines for row in rows[1:])]) + "\n"
+        with user_errors():
+            written.append(str(write_atomic(csv_out, text, inputs=images)))
     if not quiet:
-        _print_measurement(result.measurement)
-        for written in result.written:
-            _console().print(f"wrote {written}")
+        for r in results:
+            _print_measurement(r.measurement, units)
+        for path in written:
+            _console().print(f"wrote {path}")
 
 
-def _print_measurement(m) -> None:
-    from scanmass.cli.tables import holes_table, measurement_table
+def _print_measurement(m, units: str = "mm") -> None:
+    from scanmass.cli.tables import holes_table, material_line, measurement_table
 
     console = _console()
-    console.print(measurement_table(m))
-    holes = holes_table(m)
+    console.print(measurement_table(m, units))
+    holes = holes_table(m, units)
     if holes is not None:
         console.print(holes)
+    line = material_line(m)
+    if line is not None:
+        console.print(escape(line))
     for w in m.warnings:
         _console(stderr=True).print(f"[yellow]warning:[/] {escape(w)}", markup=True)
 
@@ -201,15 +261,17 @@ def _print_measurement(m) -> None:
 @app.command()
 def demo(
     out: Annotated[Path, typer.Option("--out", help="Folder for the demo's results.")] = Path("scanmass-demo"),
+    units: UnitsOpt = "mm",
 ) -> None:
-    """Measure the bundled sample scans end to end and write results into OUT."""
+    """Measure the bundled sample scans end to end and write results into the folder OUT."""
     from scanmass.cli.demo import run_demo
 
+    _check_units(units)
     with user_errors():
-        summary = run_demo(out)
+        summary = run_demo(out, units=units)
     console = _console()
     for m in summary.measurements:
-        _print_measurement(m)
+        _print_measurement(m, units)
     for line in summary.lines:
         console.print(line)
     console.print(f"results in {summary.out_dir}")
@@ -244,7 +306,10 @@ def list_materials(materials: MaterialsFileOpt = None) -> None:
 
 @app.command()
 def assemble(
-    file: Annotated[Path, typer.Argument(help="Assembly TOML file: members, materials, placements (lengths in mm).")],
+    file: Annotated[
+        Path,
+        typer.Argument(help='Assembly TOML file: members, materials, placements (lengths in mm, or units = "in").'),
+    ],
     *,
     json_out: JsonOutOpt = None,
     csv_out: Annotated[
@@ -277,25 +342,32 @@ def balance(
     source: Annotated[Path, typer.Argument(help="Result JSON from 'scanmass measure --json', or an image to measure.")],
     *,
     material: MaterialOpt = None,
-    thickness: ThicknessOpt = None,
-    thickness_tol: ThicknessTolOpt = DEFAULTS.thickness_u_mm,
+    thickness: Annotated[float | None, typer.Option("--thickness", help="Plate thickness, mm.")] = None,
+    thickness_u: ThicknessTolOpt = DEFAULTS.thickness_u_mm,
     rpm: Annotated[float | None, typer.Option("--rpm", help="Maximum service speed, rev/min.")] = None,
     grade: Annotated[
         float | None, typer.Option("--grade", help="ISO 21940-11 balance quality grade G, mm/s (e.g. 6.3).")
     ] = None,
     bore: Annotated[
         int | None,
-        typer.Option("--bore", help="Label of the hole the part spins about (default: the hole nearest the centroid)."),
+        typer.Option(
+            "--bore-hole",
+            help="Label of the hole the part spins about, as numbered in the hole table (default: the hole nearest the centroid).",
+        ),
     ] = None,
     part: Annotated[
         int | None, typer.Option("--part", help="Part label (needed when the result has several parts).")
     ] = None,
     radius: Annotated[
         float | None,
-        typer.Option("--radius", help="Correction radius from the axis, mm (default: midway between bore and rim)."),
+        typer.Option(
+            "--correction-radius",
+            help="Distance from the axis to the correction hole's centre, mm (default: midway between bore and rim).",
+        ),
     ] = None,
     drill: Annotated[
-        float | None, typer.Option("--drill", help="Drill diameter for a blind-hole correction, mm.")
+        float | None,
+        typer.Option("--drill-diameter", help="Diameter of the drill for a blind-hole correction, mm."),
     ] = None,
     drill_step: Annotated[
         float | None, typer.Option("--drill-step", help="Round the through-hole diameter to this step, mm.")
@@ -303,8 +375,13 @@ def balance(
     json_out: JsonOutOpt = None,
     dpi: DpiOpt = None,
     materials: MaterialsFileOpt = None,
+    units: UnitsOpt = "mm",
 ) -> None:
-    """Static unbalance of a plate spinning about a bore, against an ISO 21940-11 grade."""
+    """Static unbalance of a plate spinning about a bore, against an ISO 21940-11 grade.
+
+    Exit status: 0 when the part passes or no speed and grade were given, or the check is
+    undecided; 1 when it fails the grade (or on a user error).
+    """
     from scanmass.cli.mass_tables import balance_table
     from scanmass.mass.assembly import load_measurement
     from scanmass.mass.balance import balance_measurement
@@ -317,7 +394,7 @@ def balance(
             material,
             thickness,
             part=part,
-            thickness_u_mm=thickness_tol,
+            thickness_u_mm=thickness_u,
             hole=bore,
             rpm=rpm,
             grade=grade,
@@ -326,14 +403,17 @@ def balance(
             drill_step_mm=drill_step,
             materials=materials,
         )
+    _check_units(units)
     if json_out != "-":
         console = _console()
-        console.print(balance_table(result))
+        console.print(balance_table(result, units))
         console.print(f"[bold]{escape(result.verdict)}[/]", markup=True)
         for note in result.notes:
             console.print(f"note: {escape(note)}")
         console.print(f"[yellow]caution:[/] {escape(result.cautions)}", markup=True)
     _emit_json(json_out, result.to_json(), [source])
+    if result.passes is False:
+        raise typer.Exit(code=EXIT_BALANCE_FAILS)
 
 
 # -- outline export and HTML report ------------------------------------------------------
@@ -342,7 +422,11 @@ def export_outlines(
     result: Annotated[Path, typer.Argument(help="Result JSON from 'scanmass measure --json'.")],
     *,
     dxf: Annotated[
-        Path | None, typer.Option("--dxf", help="Write the outlines as DXF in mm (layers OUTLINE, HOLES, REFERENCE).")
+        Path | None,
+        typer.Option(
+            "--dxf",
+            help="Write the outlines as DXF (layers SCANMASS_OUTLINE, SCANMASS_HOLES, SCANMASS_REFERENCE), in mm or --units in.",
+        ),
     ] = None,
     svg: Annotated[Path | None, typer.Option("--svg", help="Write the outlines as SVG in true mm.")] = None,
     fit_tolerance: Annotated[
@@ -362,17 +446,24 @@ def export_outlines(
     part: Annotated[
         list[int] | None, typer.Option("--part", help="Export only this part label (repeatable; default all).")
     ] = None,
+    units: UnitsOpt = "mm",
 ) -> None:
     """Write the measured outlines of RESULT as DXF and/or SVG, for CAD and cutting."""
     from scanmass.outputs.export import export_dxf, export_svg
 
+    _check_units(units)
     if dxf is None and svg is None:
         fail("nothing to write; give --dxf OUT.dxf and/or --svg OUT.svg")
     console = _console()
     with user_errors():
         if dxf is not None:
             s = export_dxf(
-                result, dxf, fit_tolerance_mm=fit_tolerance, round_tolerance_mm=round_tolerance, parts=part or None
+                result,
+                dxf,
+                fit_tolerance_mm=fit_tolerance,
+                round_tolerance_mm=round_tolerance,
+                parts=part or None,
+                units=units,
             )
             console.print(
                 f"wrote {s.path}: {s.parts} part(s), {s.vertices_in} -> {s.vertices_out} vertices "
@@ -386,7 +477,11 @@ def export_outlines(
 @app.command()
 def report(
     results: Annotated[
-        list[Path], typer.Argument(help="Result JSON files from 'scanmass measure --json', or one batch output folder.")
+        list[Path],
+        typer.Argument(
+            help="Result JSON files from 'scanmass measure --json' (balance and assembly JSON files are included "
+            "in their own sections), or one batch output folder."
+        ),
     ],
     *,
     html: Annotated[
@@ -400,6 +495,7 @@ def report(
         ),
     ] = None,
     title: Annotated[str, typer.Option("--title", help="Heading of the report.")] = "scanmass measurement report",
+    units: UnitsOpt = "mm",
 ) -> None:
     """Write one self-contained HTML report of the RESULTS (prints on A4).
 
@@ -411,7 +507,7 @@ def report(
     if html is None:
         fail("give the report file to write with --html OUT.html")
     if len(results) == 1 and results[0].is_dir():
-        from scanmass.batch.export import summary_rows
+        from scanmass.batch.export import duplicate_count, summary_rows
         from scanmass.outputs.report import write_summary
 
         with user_errors():
@@ -421,15 +517,32 @@ def report(
                 failures,
                 html,
                 title=title if title != "scanmass measurement report" else "scanmass batch summary",
+                duplicates=duplicate_count(results[0]),
             )
         _console().print(f"wrote {written}")
         return
-    if overlay and len(overlay) > len(results):
+    from scanmass.outputs.report import read_extra
+
+    extras = {p: read_extra(p) for p in results}
+    measured = [p for p in results if extras[p] is None]
+    if not measured:
+        fail("no measurement result given; pass at least one JSON written by 'scanmass measure --json'")
+    if overlay and len(overlay) > len(measured):
         fail(
-            f"{len(overlay)} overlays for {len(results)} result(s); give at most one --overlay per result, in the same order"
+            f"{len(overlay)} overlays for {len(measured)} result(s); give at most one --overlay per result, in the same order"
         )
+    balances = [e[1] for e in extras.values() if e is not None and e[0] == "balance"]
+    assemblies = [e[1] for e in extras.values() if e is not None and e[0] == "assembly"]
     with user_errors():
-        written = write_report(results, html, overlays=dict(enumerate(overlay or [])), title=title)
+        written = write_report(
+            measured,
+            html,
+            overlays=dict(enumerate(overlay or [])),
+            title=title,
+            units=_check_units(units),
+            balances=balances,
+            assemblies=assemblies,
+        )
     _console().print(f"wrote {written}")
 
 
@@ -619,24 +732,30 @@ def batch_export(
         Path, typer.Argument(help="The output folder of 'scanmass batch' (holding scanmass-batch.sqlite).")
     ],
     *,
-    format: Annotated[
-        str,
+    csv_file: Annotated[
+        str | None,
+        typer.Option("--csv", help="Write one row per part (the columns of parts.csv) to this file; '-' for stdout."),
+    ] = None,
+    jsonl_file: Annotated[
+        str | None,
         typer.Option(
-            "--format",
-            help="csv: one row per part (the columns of parts.csv); jsonl: one JSON object per file with its status and full result.",
+            "--jsonl", help="Write one JSON object per file (its status and full result) to this file; '-' for stdout."
         ),
-    ] = "csv",
-    out: Annotated[str, typer.Option("--out", help="File to write; '-' for standard output.")] = "-",
+    ] = None,
 ) -> None:
-    """Export a batch's results again from its database."""
+    """Export a batch's results again from its database (default: CSV on standard output)."""
     from scanmass.batch.export import export_batch, iter_export
 
+    if csv_file is not None and jsonl_file is not None:
+        fail("give --csv FILE or --jsonl FILE, not both")
+    format: ExportFormat = "jsonl" if jsonl_file is not None else "csv"
+    out = jsonl_file if jsonl_file is not None else (csv_file or "-")
     with user_errors():
         if out == "-":
-            for piece in iter_export(out_dir, format=cast(ExportFormat, format)):
+            for piece in iter_export(out_dir, format=format):
                 sys.stdout.write(piece)
             return
-        written = export_batch(out_dir, format=cast(ExportFormat, format), out=out)
+        written = export_batch(out_dir, format=format, out=out)
     _console(stderr=True).print(f"wrote {escape(str(written))}", markup=False)
 
 
@@ -673,7 +792,7 @@ def lens_command(
     out: Annotated[
         Path | None,
         typer.Option(
-            "--out", help="Lens profile JSON to write (default: calibration/lens-WxH.json, or ./ outside a checkout)."
+            "--json", help="Lens profile JSON to write (default: calibration/lens-WxH.json, or ./ outside a checkout)."
         ),
     ] = None,
     mat: MatOpt = None,

@@ -258,8 +258,12 @@ def _settings(folder: Path) -> dict[str, Any]:
         return tomllib.load(fh)
 
 
-def run_demo(out: str | os.PathLike) -> DemoSummary:
-    """Measure the sample scans end to end, writing JSON, CSV and overlays into ``out``."""
+def run_demo(out: str | os.PathLike, *, units: str = "mm") -> DemoSummary:
+    """Measure the sample scans end to end, writing JSON, CSV and overlays into ``out``.
+
+    ``units`` (mm or in) applies to the CSV files, overlays and the report; the JSON is in mm.
+    The report includes the balance verdicts and the assembly.
+    """
     from scanmass.outputs.atomic import write_atomic
     from scanmass.outputs.writers import measure_to_outputs
 
@@ -281,6 +285,8 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
     lines: list[str] = []
     written: list[Path] = []
     overlays: dict[int, Path] = {}
+    balances: list[Any] = []
+    assemblies: list[Any] = []
     for entry in settings["scan"]:
         src = folder / entry["file"]
         stem = Path(entry["file"]).stem
@@ -294,6 +300,7 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
             thickness_u_mm=entry.get("thickness_u_mm", 0.0),
             printed_x_mm=entry.get("printed_x_mm"),
             printed_y_mm=entry.get("printed_y_mm"),
+            units=units,
         )
         measurements.append(result.measurement)
         written += [Path(p) for p in result.written]
@@ -318,6 +325,8 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
                 rpm=spin["rpm"],
                 grade=spin["grade"],
             )
+            balance.source = entry["file"]
+            balances.append(balance)
             path = write_atomic(out_dir / f"{stem}-balance.json", balance.to_json() + "\n")
             written.append(Path(path))
             lines.append(f"{entry['file']} spinning at {spin['rpm']:g} rpm: {balance.verdict}")
@@ -326,6 +335,7 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         from scanmass.mass.assembly import assemble
 
         assembly = assemble(assembly_file)
+        assemblies.append(assembly)
         written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.json", assembly.to_json() + "\n")))
         written.append(Path(write_atomic(out_dir / "wrenfield-carrier-assembly.csv", assembly.to_csv())))
         com = ", ".join(f"{v:.2f}" for v in assembly.centre_of_mass_mm)
@@ -339,6 +349,9 @@ def run_demo(out: str | os.PathLike) -> DemoSummary:
         out_dir / "report.html",
         overlays=overlays,
         title="Wrenfield Cycle Restorations: legacy parts measured by scanmass",
+        balances=balances,
+        assemblies=assemblies,
+        units=units,
     )
     written.append(Path(report))
     lines.append(f"report: {report}")

@@ -12,18 +12,24 @@ from scanmass.cli.tables import fmt_u
 from scanmass.mass.assembly import AssemblyResult
 from scanmass.mass.balance import BalanceResult
 from scanmass.mass.materials import Material
+from scanmass.names import convert, unit_symbol
+from scanmass.outputs.formatting import format_value
 
 __all__ = ["materials_table", "assembly_table", "assembly_summary_table", "balance_table"]
 
 
 def materials_table(table: Mapping[str, Material]) -> Table:
     """One row per material: key, name, density and range, standard uncertainty, source."""
-    out = Table(title="materials (density u = range half-width / √3)", title_justify="left", header_style="bold")
+    out = Table(
+        title="materials (u = standard uncertainty of the density: range half-width / √3)",
+        title_justify="left",
+        header_style="bold",
+    )
     out.add_column("key", no_wrap=True)
     out.add_column("name")
-    out.add_column("kg/m³", justify="right", no_wrap=True)
-    out.add_column("range kg/m³", justify="right", no_wrap=True)
-    out.add_column("u kg/m³", justify="right", no_wrap=True)
+    out.add_column("density, kg/m³", justify="right", no_wrap=True)
+    out.add_column("range, kg/m³", justify="right", no_wrap=True)
+    out.add_column("u, kg/m³", justify="right", no_wrap=True)
     out.add_column("source")
     for key, mat in table.items():
         out.add_row(
@@ -31,8 +37,8 @@ def materials_table(table: Mapping[str, Material]) -> Table:
             mat.name,
             f"{mat.density_kg_m3:g}",
             f"{mat.density_min_kg_m3:g}–{mat.density_max_kg_m3:g}",
-            f"{mat.density_u_kg_m3:.2g}",
-            mat.source,
+            format_value(mat.density_u_kg_m3, None, digits=2)[0],
+            mat.source_text,
         )
     return out
 
@@ -76,10 +82,13 @@ def assembly_summary_table(result: AssemblyResult) -> Table:
     out.add_row("weight N (standard gravity)", fmt_u(result.weight_n, result.weight_u_n))
     for axis, value, u in zip("xyz", result.centre_of_mass_mm, result.centre_of_mass_u_mm):
         out.add_row(f"centre of mass {axis} mm", fmt_u(value, u))
-    names = ("xx", "yy", "zz", "xy", "xz", "yz")
-    index = ((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))
-    for name, (i, j) in zip(names, index):
-        out.add_row(f"inertia tensor {name} g·mm²", fmt_u(result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j]))
+    for name, (i, j) in zip(("xx", "yy", "zz"), ((0, 0), (1, 1), (2, 2))):
+        out.add_row(f"moment of inertia I{name} g·mm²", fmt_u(result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j]))
+    # products of inertia ∫(x − xc)(y − yc) dm: the same sign as a part's Ixy (the tensor holds their negatives)
+    for name, (i, j) in zip(("xy", "xz", "yz"), ((0, 1), (0, 2), (1, 2))):
+        out.add_row(
+            f"product of inertia P{name} g·mm²", fmt_u(-result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j])
+        )
     for k, (value, u, axis) in enumerate(
         zip(result.principal_g_mm2, result.principal_u_g_mm2, result.principal_axes), 1
     ):
@@ -88,39 +97,55 @@ def assembly_summary_table(result: AssemblyResult) -> Table:
     return out
 
 
-def balance_table(result: BalanceResult) -> Table:
-    """The unbalance figures and the correction, one figure per row."""
+def balance_table(result: BalanceResult, units: str = "mm") -> Table:
+    """The unbalance figures and the correction, one figure per row.
+
+    Lengths (and the permissible offset) in one unit, ``units`` (mm or in); the
+    correction is shown only when the correction hole fits in the material.
+    """
+    lu, uu = unit_symbol("length", units), unit_symbol("unbalance", units)
     title = f"{result.source or 'part'}: part {result.part} spinning about hole {result.hole}"
     out = Table(title=title, title_justify="left", header_style="bold")
-    out.add_column("figure (± 1σ)", no_wrap=True)
+    out.add_column("figure (value ± u, u = 1σ)", no_wrap=True)
     out.add_column("value", justify="right", no_wrap=True)
+
+    def ln(value: float | None) -> float | None:
+        return convert(value, "length", units)
 
     def row(name: str, text: str | None) -> None:
         if text is not None:
             out.add_row(name, text)
 
-    def num(value: float | None, fmt: str = ".4g") -> str | None:
-        return None if value is None or not math.isfinite(value) else format(value, fmt)
+    def num(value: float | None, digits: int = 4) -> str | None:
+        return None if value is None or not math.isfinite(value) else format_value(value, None, digits=digits)[0]
 
-    row("axis (bore centre) x, y mm", f"{result.axis_mm[0]:.3f}, {result.axis_mm[1]:.3f}")
-    row("bore diameter mm", num(result.bore_diameter_mm))
-    row("mass g", fmt_u(result.mass_g, result.mass_u_g))
-    row("offset e mm", fmt_u(result.offset_mm, result.offset_u_mm))
-    row("unbalance U g·mm", fmt_u(result.unbalance_gmm, result.unbalance_u_gmm))
-    row("heavy spot angle °", num(result.heavy_angle_deg, ".1f"))
+    ax = ", ".join(fmt_u(ln(v), ln(u)) for v, u in zip(result.axis_mm, result.axis_u_mm))
+    row(f"axis (bore centre) x, y, {lu}", ax)
+    row(f"bore diameter, {lu}", num(ln(result.bore_diameter_mm)))
+    row("mass, g", fmt_u(result.mass_g, result.mass_u_g))
+    row(f"centre-of-mass offset e, {lu}", fmt_u(ln(result.offset_mm), ln(result.offset_u_mm)))
+    row(f"static unbalance U, {uu}", fmt_u(ln(result.unbalance_gmm), ln(result.unbalance_u_gmm)))
+    row("heavy spot angle, °", num(result.heavy_angle_deg, 3))
     if result.permissible_gmm is not None and result.permissible_offset_mm is not None:
-        row(f"permissible U (G {result.grade_mm_s:g}, {result.rpm:g} rpm) g·mm", num(result.permissible_gmm))
-        row("permissible offset µm", num(1000 * result.permissible_offset_mm))
-    row("offset resolved at 2σ µm", num(1000 * result.resolvable_offset_mm))
+        row(f"permissible U (G {result.grade_mm_s:g}, {result.rpm:g} rpm), {uu}", num(ln(result.permissible_gmm)))
+        row(f"permissible offset, {lu}", num(ln(result.permissible_offset_mm)))
+    row(f"smallest offset resolved at 2σ, {lu}", num(ln(result.resolvable_offset_mm)))
     if result.correction_radius_mm is not None:
-        row("correction radius mm", num(result.correction_radius_mm))
-        row(f"remove at {result.remove_angle_deg:.1f}° g", num(result.remove_mass_g))
-        row(f"or add at {result.add_angle_deg:.1f}° g", num(result.add_mass_g))
-        row("through-hole diameter mm", num(result.hole_diameter_mm))
+        row(f"correction radius, {lu}", num(ln(result.correction_radius_mm)))
+        row(f"through-hole diameter, {lu}", num(ln(result.hole_diameter_mm)))
         if result.applied_hole_diameter_mm != result.hole_diameter_mm:
-            row("rounded hole diameter mm", num(result.applied_hole_diameter_mm))
+            row(f"rounded hole diameter, {lu}", num(ln(result.applied_hole_diameter_mm)))
         row("hole fits in material", {True: "yes", False: "NO", None: "unknown"}[result.correction_fits])
-        if result.drill_depth_mm is not None:
-            row(f"blind-hole depth with ⌀{result.drill_diameter_mm:g} drill mm", num(result.drill_depth_mm))
-        row("U after correction g·mm", fmt_u(result.corrected_unbalance_gmm, result.corrected_unbalance_u_gmm))
+        if result.correction_fits is not False:
+            row(f"remove at {result.remove_angle_deg:.1f}°, g", num(result.remove_mass_g))
+            row(f"or add at {result.add_angle_deg:.1f}°, g", num(result.add_mass_g))
+            if result.drill_depth_mm is not None:
+                row(
+                    f"blind-hole depth with ⌀{num(ln(result.drill_diameter_mm))} {lu} drill, {lu}",
+                    num(ln(result.drill_depth_mm)),
+                )
+            row(
+                f"U after correction, {uu}",
+                fmt_u(ln(result.corrected_unbalance_gmm), ln(result.corrected_unbalance_u_gmm)),
+            )
     return out

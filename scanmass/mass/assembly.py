@@ -5,9 +5,11 @@ assembly frame by a rigid motion in the x-y plane (optional mirror, rotation abo
 plate normal, translation) and lifted to the height of its bottom face. Members lie
 parallel to the x-y plane; cut-outs enter with negative mass.
 
-The assembly file is TOML, all lengths in millimetres::
+The assembly file is TOML, lengths in millimetres, or in inches with ``units = "in"``
+(then every ``_mm`` key below is written ``_in`` instead: ``thickness_in``, ``dx_in``,
+``dy_in``, ``z_in``, ``anchor_in``, ``thickness_u_in``; 1 in = 25.4 mm exactly)::
 
-    units = "mm"                    # optional; anything but "mm" is refused
+    units = "mm"                    # optional: "mm" (default) or "in"
     materials = "shop.toml"         # optional user materials file, relative to this file
 
     [[member]]
@@ -53,6 +55,7 @@ __all__ = [
     "ASSEMBLY_SCHEMA",
     "ASSEMBLY_CSV_COLUMNS",
     "LIFTING_CAUTION",
+    "PRODUCTS_NOTE",
     "Member",
     "MemberResult",
     "AssemblyResult",
@@ -64,7 +67,14 @@ __all__ = [
 ]
 
 #: Schema identifier of the assembly result document.
-ASSEMBLY_SCHEMA = "scanmass.assembly/1"
+ASSEMBLY_SCHEMA = "scanmass.assembly/2"
+
+#: Sign convention (one for parts and assemblies): a product of inertia is
+#: ∫(x − xc)(y − yc) dm, the same sign as a part's product moment of area Ixy; the inertia
+#: tensor's off-diagonal terms are the negatives of the products.
+PRODUCTS_NOTE = (
+    "products of inertia P = ∫(x − xc)(y − yc) dm have the sign of a part's Ixy; the tensor's off-diagonal terms are −P"
+)
 
 #: Printed with every assembly result: where the figures stop being enough.
 LIFTING_CAUTION = (
@@ -219,6 +229,12 @@ class AssemblyResult:
                 "centre_of_mass_u_mm": self.centre_of_mass_u_mm,
                 "inertia_g_mm2": self.inertia_g_mm2,
                 "inertia_u_g_mm2": self.inertia_u_g_mm2,
+                "products_g_mm2": {
+                    "xy": -self.inertia_g_mm2[0, 1],
+                    "xz": -self.inertia_g_mm2[0, 2],
+                    "yz": -self.inertia_g_mm2[1, 2],
+                    "note": PRODUCTS_NOTE,
+                },
                 "principal_g_mm2": self.principal_g_mm2,
                 "principal_u_g_mm2": self.principal_u_g_mm2,
                 "principal_axes": self.principal_axes,
@@ -234,7 +250,8 @@ class AssemblyResult:
 
     def to_csv(self) -> str:
         """The per-member table as CSV, then one ``total`` row (tensor about the assembly's
-        centre of mass). Inertia columns are tensor elements (products with a minus sign)."""
+        centre of mass). ``inertia_*`` are the moments of inertia, ``product_*`` the products of
+        inertia with the sign of a part's Ixy (:data:`PRODUCTS_NOTE`)."""
         buf = io.StringIO()
         writer = csv.DictWriter(buf, fieldnames=ASSEMBLY_CSV_COLUMNS, lineterminator="\n")
         writer.writeheader()
@@ -297,9 +314,9 @@ ASSEMBLY_CSV_COLUMNS = [
     "inertia_xx_g_mm2",
     "inertia_yy_g_mm2",
     "inertia_zz_g_mm2",
-    "inertia_xy_g_mm2",
-    "inertia_xz_g_mm2",
-    "inertia_yz_g_mm2",
+    "product_xy_g_mm2",
+    "product_xz_g_mm2",
+    "product_yz_g_mm2",
 ]
 
 
@@ -326,9 +343,9 @@ def _csv_row(row, index, name, source, part, material, thickness, count, cutout,
                 t[0, 0],
                 t[1, 1],
                 t[2, 2],
-                t[0, 1],
-                t[0, 2],
-                t[1, 2],
+                -t[0, 1],  # products of inertia, the sign of a part's Ixy (PRODUCTS_NOTE)
+                -t[0, 2],
+                -t[1, 2],
             ],
         )
     )
@@ -690,9 +707,10 @@ def load_assembly(
             path=where,
         )
     units = doc.get("units", "mm")
-    if units != "mm":
+    if units not in ("mm", "in"):
         raise OptionError(
-            f'units = {units!r} is not supported; give every length in millimetres and set units = "mm"', path=where
+            f'units = {units!r} is not supported; give lengths in millimetres (units = "mm") or inches (units = "in")',
+            path=where,
         )
     base = p.parent
     own = [base / str(doc["materials"])] if "materials" in doc else []
@@ -706,8 +724,36 @@ def load_assembly(
     if not isinstance(entries, list) or not entries or not all(isinstance(e, dict) for e in entries):
         raise OptionError("no members; add one [[member]] table per part", path=where)
     cache: dict[Any, Measurement] = {}
+    if units == "in":
+        entries = [_entry_in_mm(i, entry, where) for i, entry in enumerate(entries, 1)]
     members = [_member(i, entry, base, table, cache, where) for i, entry in enumerate(entries, 1)]
     return members, str(doc.get("name", ""))
+
+
+_INCH_KEYS = ("thickness", "thickness_u", "dx", "dy", "z", "anchor")
+
+
+def _entry_in_mm(i: int, entry: Mapping[str, Any], where: str) -> dict[str, Any]:
+    """A member of an inch file with its ``_in`` lengths turned into ``_mm`` ones (× 25.4 exactly)."""
+    label = f"member {i}" + (f" ({entry['name']!r})" if "name" in entry else "")
+    out = dict(entry)
+    for stem in _INCH_KEYS:
+        if f"{stem}_mm" in out:
+            raise OptionError(
+                f'{label}: {stem}_mm in a file with units = "in"; write {stem}_in (inches) instead', path=where
+            )
+        if f"{stem}_in" in out:
+            value = out.pop(f"{stem}_in")
+            try:
+                if isinstance(value, list):
+                    out[f"{stem}_mm"] = [float(v) * 25.4 for v in value]
+                elif isinstance(value, bool):
+                    raise TypeError
+                else:
+                    out[f"{stem}_mm"] = float(value) * 25.4
+            except (TypeError, ValueError):
+                raise OptionError(f"{label}: {stem}_in must be a number of inches, got {value!r}", path=where) from None
+    return out
 
 
 def _member(
@@ -728,7 +774,8 @@ def _member(
     for key in ("source", "material", "thickness_mm"):
         if key not in entry:
             raise OptionError(
-                f"{label}: {key} is missing; every member needs source, material and thickness_mm", path=where
+                f"{label}: {key} is missing; every member needs source, material and thickness_mm (thickness_in)",
+                path=where,
             )
     try:
         thickness = check_positive("thickness_mm", entry["thickness_mm"], hint="give the sheet thickness in mm")

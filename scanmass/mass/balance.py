@@ -318,7 +318,7 @@ def static_unbalance(
     resolvable = 2.0 * offset_u
     if offset <= resolvable:
         notes.append(
-            f"the offset {_fmt(offset)} mm is within 2 sigma ({_fmt(resolvable)} mm) of zero: it is not resolved, "
+            f"the offset {_fmt(offset)} mm is within 2σ ({_fmt(resolvable)} mm) of zero: it is not resolved, "
             "and its direction (the heavy spot) is uncertain"
         )
 
@@ -344,17 +344,17 @@ def static_unbalance(
             f"unbalance {_fmt(unbalance)} ± {_fmt(unbalance_u, 2)} g mm against a permissible {_fmt(permissible)} g mm"
         )
         if passes is True:
-            verdict = f"passes {where}: {figures}, below it even at 2 sigma (static check only; see cautions)"
+            verdict = f"passes {where}: {figures}, below it even at 2σ (static check only; see cautions)"
         elif passes is False:
-            verdict = f"fails {where}: {figures}, above it even at 2 sigma; correct it (see the correction figures)"
+            verdict = f"fails {where}: {figures}, above it even at 2σ; correct it (see the correction figures)"
         elif e_per < resolvable:
             verdict = (
-                f"cannot certify {where}: the permissible offset {_fmt(e_per * 1000)} µm is below what this "
-                f"measurement resolves ({_fmt(resolvable * 1000)} µm at 2 sigma); measure at a finer scale "
+                f"cannot certify {where}: the permissible offset {_fmt(e_per)} mm is below what this "
+                f"measurement resolves ({_fmt(resolvable)} mm at 2σ); measure at a finer scale "
                 "or balance on a balancing machine"
             )
         else:
-            verdict = f"undecided for {where}: {figures}, too close to call at 2 sigma; re-measure more finely or balance on a machine"
+            verdict = f"undecided for {where}: {figures}, too close to call at 2σ; re-measure more finely or balance on a machine"
 
     result = BalanceResult(
         part=int(part.label),
@@ -409,7 +409,7 @@ def _correct(
         rim = None if part.outline_mm is None else _ray_exit_mm(part.outline_mm, axis, heavy_dir)
         if rim is None:
             res.notes.append(
-                "no correction sized: the outline is not in the result; give correction_radius_mm (--radius)"
+                "no correction sized: the outline is not in the result; give correction_radius_mm (--correction-radius)"
             )
             return
         radius = (res.bore_diameter_mm / 2.0 + rim) / 2.0

@@ -22,7 +22,10 @@ from scanmass.errors import MaterialError
 
 __all__ = ["Material", "load_materials", "find_material", "resolve_material"]
 
-_FIELDS = {"name", "density_kg_m3", "density_range_kg_m3", "aliases", "source"}
+_FIELDS = {"name", "density_kg_m3", "density_range_kg_m3", "aliases", "source", "checked"}
+
+#: Shown after the source of a density not checked against the named table.
+NOT_CHECKED = "nominal, not checked against a table"
 
 
 @dataclass(frozen=True)
@@ -47,6 +50,14 @@ class Material:
     density_max_kg_m3: float
     aliases: tuple[str, ...] = field(default_factory=tuple)
     source: str = ""
+    checked: bool = False
+
+    @property
+    def source_text(self) -> str:
+        """The source as people read it: the named publication, and whether the value was checked."""
+        if self.checked and self.source:
+            return self.source
+        return f"{self.source}; {NOT_CHECKED}" if self.source else NOT_CHECKED
 
     @property
     def density_g_mm3(self) -> float:
@@ -64,6 +75,7 @@ class Material:
             "density_max_kg_m3": self.density_max_kg_m3,
             "aliases": list(self.aliases),
             "source": self.source,
+            "checked": self.checked,
         }
 
 
@@ -134,6 +146,7 @@ def _build(key: str, entry: Mapping[str, Any], where: str | None) -> Material:
         density_max_kg_m3=hi,
         aliases=tuple(aliases),
         source=str(entry.get("source", "")),
+        checked=bool(entry.get("checked", False)),
     )
 
 
@@ -185,6 +198,7 @@ def load_materials(
                 "density_range_kg_m3": [mat.density_min_kg_m3, mat.density_max_kg_m3],
                 "aliases": list(mat.aliases),
                 "source": mat.source,
+                "checked": mat.checked,
             }
             origin[key] = None
     for path in extras if base is not None else [None, *extras]:

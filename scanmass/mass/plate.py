@@ -219,7 +219,7 @@ def material_record(material: Material, thickness_mm: float, thickness_u_mm: flo
         "density_max_kg_m3": material.density_max_kg_m3,
         "thickness_mm": thickness_mm,
         "thickness_u_mm": thickness_u_mm,
-        "source": material.source,
+        "source": material.source_text,
     }
 
 
@@ -278,4 +278,6 @@ def apply_mass(
         part.mass_u_g = props.mass_u_g
         part.mass = rest
     out.material = material_record(mat, t, ut)
+    if isinstance(material, str):
+        out.material["requested"] = material  # the name given, shown beside the key it resolved to
     return out

@@ -1,19 +1,23 @@
-"""Outline export for CAD and cutting: DXF (through ezdxf) and SVG, both in millimetres.
+"""Outline export for CAD and cutting: DXF (through ezdxf) and SVG, in millimetres (DXF also in inches).
 
 Both formats keep the result frame of DESIGN.md: millimetres, x to the right, y up,
 the same coordinates as ``Part.outline_mm``.
 
-DXF layout (layer names are scanmass's own):
+DXF layout (layer names are scanmass's own, prefixed with its name):
 
-``OUTLINE``
+``SCANMASS_OUTLINE``
     One closed LWPOLYLINE per part, counter-clockwise.
-``HOLES``
+``SCANMASS_HOLES``
     Holes that are round within the round tolerance as CIRCLE (fitted centre and
     diameter), other holes as closed clockwise LWPOLYLINEs.
-``REFERENCE``
+``SCANMASS_REFERENCE``
     Not for cutting (its plot flag is off, dashed line type): a POINT and a cross at
     each centroid, the two principal axes through it (the I2 axis is the part's long
-    direction) and the part label as TEXT.
+    direction, not drawn for a near-round part whose axes are undefined) and the part
+    label as TEXT ("part 1", as in every other output).
+
+With ``units="in"`` the drawing is scaled to inches (1 in = 25.4 mm exactly) and
+``$INSUNITS`` is 1; by default it is in mm, ``$INSUNITS`` 4.
 
 With a fit tolerance the polylines are replaced by lines and circular arcs
 (LWPOLYLINE bulges) that stay within the tolerance of the measured outline, see
@@ -44,6 +48,7 @@ import numpy as np
 from scanmass.errors import OptionError, ResultFormatError
 from scanmass.geometry import orient_ring
 from scanmass.measurement import Hole, Measurement, Part
+from scanmass.names import INCH_MM, check_units
 from scanmass.outputs.atomic import write_atomic
 from scanmass.outputs.resultio import PathLike, as_measurement
 
@@ -64,9 +69,9 @@ __all__ = [
     "export_svg",
 ]
 
-LAYER_OUTLINE = "OUTLINE"
-LAYER_HOLES = "HOLES"
-LAYER_REFERENCE = "REFERENCE"
+LAYER_OUTLINE = "SCANMASS_OUTLINE"
+LAYER_HOLES = "SCANMASS_HOLES"
+LAYER_REFERENCE = "SCANMASS_REFERENCE"
 
 #: Bounds of the automatic fit tolerance (mm), see :func:`fit_tolerance_default_mm`.
 FIT_TOLERANCE_MAX_MM = 0.02
@@ -461,6 +466,7 @@ def dxf_document(
     fit_tolerance_mm: FitTolerance = None,
     round_tolerance_mm: float | None = None,
     parts: Iterable[int] | None = None,
+    units: str = "mm",
 ) -> Drawing:
     """Build the DXF drawing of a measurement's outlines (not written to disk).
 
@@ -477,29 +483,36 @@ def dxf_document(
         :func:`round_tolerance_default_mm` per hole.
     parts : iterable of int, optional
         Labels of the parts to export (default: all).
+    units : {"mm", "in"}
+        Drawing units; tolerances are in mm either way.
 
     Returns
     -------
     ezdxf.document.Drawing
-        DXF R2010, $INSUNITS = 4 (mm), $MEASUREMENT = 1 (metric); layers as in the
-        module docstring.
+        DXF R2010, $INSUNITS = 4 (mm) and $MEASUREMENT = 1 (metric), or $INSUNITS = 1
+        (inches) and $MEASUREMENT = 0; layers as in the module docstring.
     """
     doc, _ = _build_dxf(
-        measurement, fit_tolerance_mm=fit_tolerance_mm, round_tolerance_mm=round_tolerance_mm, parts=parts
+        measurement,
+        fit_tolerance_mm=fit_tolerance_mm,
+        round_tolerance_mm=round_tolerance_mm,
+        parts=parts,
+        units=units,
     )
     return doc
 
 
-def _build_dxf(measurement, *, fit_tolerance_mm, round_tolerance_mm, parts):
+def _build_dxf(measurement, *, fit_tolerance_mm, round_tolerance_mm, parts, units="mm"):
     import ezdxf
-    from ezdxf import units
+    from ezdxf import units as ezdxf_units
 
+    drawing_units = units
     fit = _check_tolerance(fit_tolerance_mm, "fit tolerance", auto=True)
     round_tol = _check_tolerance(round_tolerance_mm, "round tolerance", auto=False)
     chosen = _select_parts(measurement, parts)
 
     doc = ezdxf.new("R2010", setup=["linetypes"])
-    doc.units = units.MM  # $INSUNITS = 4
+    doc.units = ezdxf_units.MM  # $INSUNITS = 4
     doc.header["$MEASUREMENT"] = 1  # metric
     doc.header["$LUNITS"] = 2  # decimal
     doc.layers.add(LAYER_OUTLINE, color=7)
@@ -540,6 +553,15 @@ def _build_dxf(measurement, *, fit_tolerance_mm, round_tolerance_mm, parts):
                 polyline(_hole_ring(part, hole), LAYER_HOLES, tol)
         _reference_marks(msp, part, outer)
 
+    if check_units(drawing_units) == "in":  # the whole drawing scaled once: bulges and circles stay exact
+        from ezdxf.math import Matrix44
+
+        to_in = Matrix44.scale(1.0 / INCH_MM)
+        for entity in msp:
+            entity.transform(to_in)
+        doc.units = ezdxf_units.IN  # $INSUNITS = 1
+        doc.header["$MEASUREMENT"] = 0  # imperial
+        lo, hi = lo / INCH_MM, hi / INCH_MM
     if np.isfinite(lo).all():
         doc.header["$EXTMIN"] = (float(lo[0]), float(lo[1]), 0.0)
         doc.header["$EXTMAX"] = (float(hi[0]), float(hi[1]), 0.0)
@@ -560,13 +582,13 @@ def _reference_marks(msp, part: Part, outer: np.ndarray) -> None:
     msp.add_point((cx, cy), dxfattribs=attribs)
     msp.add_line((cx - cross, cy), (cx + cross, cy), dxfattribs=attribs)
     msp.add_line((cx, cy - cross), (cx, cy + cross), dxfattribs=attribs)
-    angle = _finite(part.principal_angle_deg)
+    angle = _finite(part.principal_angle_deg) if part.principal_axes_defined else None
     if angle is not None:
         for deg, half in ((angle, 0.6 * long_mm), (angle + 90.0, 0.6 * short_mm)):
             ux, uy = math.cos(math.radians(deg)), math.sin(math.radians(deg))
             msp.add_line((cx - half * ux, cy - half * uy), (cx + half * ux, cy + half * uy), dxfattribs=attribs)
     height = max(0.05 * long_mm, 0.5)
-    text = msp.add_text(f"P{part.label}", height=height, dxfattribs=attribs)
+    text = msp.add_text(f"part {part.label}", height=height, dxfattribs=attribs)
     text.set_placement((cx + cross, cy + cross))
 
 
@@ -626,7 +648,7 @@ def svg_text(measurement: Measurement, *, parts: Iterable[int] | None = None, ma
             f"{len(part.holes)} hole(s)"
         )
         lines.append(f'<path id={quoteattr(f"part-{part.label}")} fill-rule="evenodd" d="{d}">')
-        lines.append(f"<title>{escape(f'Part {part.label}')}</title><desc>{escape(desc)}</desc>")
+        lines.append(f"<title>{escape(f'part {part.label}')}</title><desc>{escape(desc)}</desc>")
         lines.append("</path>")
     lines += ["</g>", "</svg>", ""]
     return "\n".join(lines)
@@ -654,6 +676,7 @@ def export_dxf(
     round_tolerance_mm: float | None = None,
     parts: Sequence[int] | None = None,
     inputs: Iterable[PathLike] = (),
+    units: str = "mm",
 ) -> ExportSummary:
     """Write a measurement's outlines to a DXF file (atomically).
 
@@ -663,7 +686,7 @@ def export_dxf(
         The result, or the path of its JSON document.
     path : path
         The DXF file to write; its folder must exist. Never one of the inputs.
-    fit_tolerance_mm, round_tolerance_mm, parts
+    fit_tolerance_mm, round_tolerance_mm, parts, units
         As for :func:`dxf_document`.
     inputs : iterable of path, optional
         More files that must not be overwritten (the result JSON and the source
@@ -677,7 +700,7 @@ def export_dxf(
     m, json_path = as_measurement(measurement)
     with _naming(json_path):
         doc, summary = _build_dxf(
-            m, fit_tolerance_mm=fit_tolerance_mm, round_tolerance_mm=round_tolerance_mm, parts=parts
+            m, fit_tolerance_mm=fit_tolerance_mm, round_tolerance_mm=round_tolerance_mm, parts=parts, units=units
         )
     import io
 

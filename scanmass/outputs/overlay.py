@@ -20,9 +20,10 @@ from numpy.typing import ArrayLike
 
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement
+from scanmass.names import INCH_MM, check_units
 from scanmass.scale.planemap import PlaneMap
 
-__all__ = ["render_overlay", "encode_png", "OVERLAY_MAX_SIDE_PX"]
+__all__ = ["render_overlay", "encode_png", "legend_items", "OVERLAY_MAX_SIDE_PX"]
 
 #: Overlays of larger images are drawn on a reduced copy with this longest side.
 OVERLAY_MAX_SIDE_PX = 2400
@@ -36,6 +37,8 @@ _AXIS_MINOR = (167, 121, 204)  # reddish purple #CC79A7
 _TEXT = (0, 0, 0)
 _CUT = (0, 159, 230)  # orange #E69F00
 _MARKER_USED = (233, 180, 86)  # sky blue #56B4E9
+_MARKER_REJECTED = _HOLE  # vermillion, as drawn before; named in the legend when present
+_ELLIPSE = (0, 0, 0)  # black
 
 
 def _matrix(measurement: Measurement) -> np.ndarray:
@@ -51,8 +54,26 @@ def _to_px(inv: np.ndarray, pts_mm: ArrayLike) -> np.ndarray:
     return h[:, :2] / h[:, 2:3]
 
 
+#: A scale bar is drawn on the picture only where the scale varies less than this across it.
+SCALE_BAR_MAX_VARIATION = 0.01
+
+
+def _scale_variation(matrix: np.ndarray, width: int, height: int) -> float:
+    """Relative spread of the local mm per px over the image corners and centre (0 for a scan)."""
+    pts = np.array([[0, 0], [width, 0], [0, height], [width, height], [width / 2, height / 2]], float)
+
+    def to_mm(p: np.ndarray) -> np.ndarray:
+        h = np.column_stack([p, np.ones(len(p))]) @ matrix.T
+        return h[:, :2] / h[:, 2:3]
+
+    step = np.linalg.norm(to_mm(pts + [1.0, 0.0]) - to_mm(pts), axis=1)
+    step_y = np.linalg.norm(to_mm(pts + [0.0, 1.0]) - to_mm(pts), axis=1)
+    local = np.concatenate([step, step_y])
+    return float(local.max() / local.min() - 1.0) if local.min() > 0 else math.inf
+
+
 def render_overlay(
-    image: LoadedImage, measurement: Measurement, *, max_side_px: int = OVERLAY_MAX_SIDE_PX
+    image: LoadedImage, measurement: Measurement, *, max_side_px: int = OVERLAY_MAX_SIDE_PX, units: str = "mm"
 ) -> np.ndarray:
     """Draw the measurement over the image.
 
@@ -64,12 +85,16 @@ def render_overlay(
         Its result; outlines are mapped back to pixels through the scale's matrix.
     max_side_px : int
         Longest side of the picture; larger images are reduced first.
+    units : {"mm", "in"}
+        Units of the hole diameters and the scale bar written on the picture.
 
     Returns
     -------
     (H, W, 3) uint8 ndarray
         BGR picture (OpenCV order), ready for :func:`encode_png`.
     """
+    check_units(units)
+    unit_mm = INCH_MM if units == "in" else 1.0
     height, width = image.grey.shape
     zoom = min(1.0, max_side_px / max(height, width))
     grey = image.grey
@@ -93,12 +118,16 @@ def render_overlay(
         return np.round((pts_px + 0.5) * zoom * k - 0.5 * k).astype(np.int32).reshape(-1, 1, 2)
 
     mm_per_px = measurement.scale.mm_per_px
+    seen = {"rejected": False, "clipped": False, "axes": False, "ellipse": 0.0}
     for marker in (measurement.scale.extra or {}).get("markers_px", []) or []:
         corners = np.asarray(marker.get("corners", []), float)
         if corners.shape == (4, 2):
-            colour = _MARKER_USED if marker.get("used", True) else _HOLE
+            used = marker.get("used", True)
+            seen["rejected"] = seen["rejected"] or not used
+            colour = _MARKER_USED if used else _MARKER_REJECTED
             cv2.polylines(canvas, [pts_int(corners)], True, colour, lw + 1, cv2.LINE_AA, shift)
     for part in measurement.parts:
+        seen["clipped"] = seen["clipped"] or part.cut
         if part.outline_mm is not None:
             cv2.polylines(
                 canvas,
@@ -118,7 +147,7 @@ def render_overlay(
             r_px = 0.5 * hole.diameter_mm / mm_per_px * zoom
             _text(
                 canvas,
-                f"D{hole.diameter_mm:.2f}",
+                f"D{hole.diameter_mm / unit_mm:.{2 if units == 'mm' else 3}f}",
                 (int(cxy[0] + 0.75 * r_px + 4), int(cxy[1] - 0.75 * r_px - 4)),
                 font,
                 font_scale * 0.7,
@@ -127,10 +156,14 @@ def render_overlay(
         centre = _to_px(inv, [part.centroid_mm])[0]
         # principal axes through the centroid: the I2 axis (long direction) is drawn
         # +-2 radii of gyration about the I1 axis long, the I1 axis +-2 of the other
-        for length_mm, ang, colour in (
+        axes_drawn: tuple[tuple[float, float, tuple[int, int, int]], ...] = (
             (2.0 * part.gyration_1_mm, part.principal_angle_deg, _AXIS_MAJOR),
             (2.0 * part.gyration_2_mm, part.principal_angle_deg + 90.0, _AXIS_MINOR),
-        ):
+        )
+        if not part.principal_axes_defined:  # a near-round part: its axes are undefined, not drawn
+            axes_drawn = ()
+        seen["axes"] = seen["axes"] or bool(axes_drawn)
+        for length_mm, ang, colour in axes_drawn:
             d = np.array([math.cos(math.radians(ang)), math.sin(math.radians(ang))]) * length_mm
             ends = _to_px(inv, [np.array(part.centroid_mm) - d, np.array(part.centroid_mm) + d])
             p1, p2 = (tuple(int(v) for v in p) for p in pts_int(ends).reshape(-1, 2))
@@ -142,17 +175,9 @@ def render_overlay(
         ux, uy = (abs(v) / mm_per_px * zoom for v in part.centroid_u_mm)
         if math.isfinite(ux) and math.isfinite(uy) and max(ux, uy) > 0:
             enlarge = 10.0 ** max(0, math.ceil(math.log10(8.0 * lw / max(ux, uy))))
+            seen["ellipse"] = max(seen["ellipse"], enlarge)
             axes = (max(1, int(round(ux * enlarge))), max(1, int(round(uy * enlarge))))
-            cv2.ellipse(canvas, cpx, axes, 0, 0, 360, (0, 0, 0), lw, cv2.LINE_AA)
-            tag = "1σ" if enlarge == 1 else f"1σ x{enlarge:g}"
-            _text(
-                canvas,
-                tag.replace("σ", "s"),
-                (cpx[0] + axes[0] + 4, cpx[1] + axes[1] + int(12 * font_scale)),
-                font,
-                font_scale * 0.6,
-                lw,
-            )
+            cv2.ellipse(canvas, cpx, axes, 0, 0, 360, _ELLIPSE, lw, cv2.LINE_AA)
         bbox = part.bbox_mm
         label_px = _to_px(inv, [[bbox[0], bbox[3]]])[0] * zoom
         text = f"{part.label}"
@@ -160,10 +185,33 @@ def render_overlay(
         cv2.putText(canvas, text, org, font, font_scale * 1.2, (255, 255, 255), 4 * lw, cv2.LINE_AA)
         cv2.putText(canvas, text, org, font, font_scale * 1.2, _TEXT, 2 * lw, cv2.LINE_AA)
 
-    # scale bar: a round length near a fifth of the width
-    width_mm = canvas.shape[1] / zoom * mm_per_px
-    bar_mm = _round_length(width_mm / 5)
-    bar_px = bar_mm / mm_per_px * zoom
+    # scale bar: a round length near a fifth of the width, only where one length holds
+    # across the picture (a tilted photo's scale varies: the bar goes on the top view)
+    top = bool((measurement.scale.extra or {}).get("markers_px")) and (measurement.scale.extra or {}).get(
+        "clear_area_mm"
+    )
+    uniform = _scale_variation(_matrix(measurement), width, height) < SCALE_BAR_MAX_VARIATION
+    if uniform:
+        _scale_bar(canvas, canvas.shape[1] / zoom * mm_per_px, zoom / mm_per_px, units, font, font_scale, lw)
+    markers = bool((measurement.scale.extra or {}).get("markers_px"))
+    _legend(canvas, font, font_scale, lw, markers, seen)
+    if top:
+        view = _top_view(image, measurement, canvas.shape[0], lw)
+        if not uniform:
+            xmin, ymin, xmax, ymax = (float(v) for v in measurement.scale.extra["clear_area_mm"])
+            px_per_mm = canvas.shape[0] / (ymax - ymin)
+            _scale_bar(view, view.shape[1] / px_per_mm, px_per_mm, units, font, font_scale, lw)
+        canvas = np.hstack([canvas, view])
+    return canvas
+
+
+def _scale_bar(
+    canvas: np.ndarray, width_mm: float, px_per_mm: float, units: str, font: int, font_scale: float, lw: int
+) -> None:
+    """A bar of a round length (1-2-5 series, in mm or inches) in the lower-left corner."""
+    unit_mm = INCH_MM if units == "in" else 1.0
+    bar = _round_length(width_mm / 5 / unit_mm)
+    bar_px = bar * unit_mm * px_per_mm
     x0, y0 = int(0.03 * canvas.shape[1]), int(canvas.shape[0] - 0.04 * canvas.shape[0])
     cv2.rectangle(
         canvas,
@@ -173,12 +221,7 @@ def render_overlay(
         -1,
     )
     cv2.line(canvas, (x0, y0), (x0 + int(round(bar_px)), y0), (0, 0, 0), 3 * lw)
-    cv2.putText(canvas, f"{bar_mm:g} mm", (x0, y0 - 8 * lw), font, font_scale, _TEXT, lw + 1, cv2.LINE_AA)
-    markers = bool((measurement.scale.extra or {}).get("markers_px"))
-    _legend(canvas, font, font_scale, lw, markers)
-    if markers and (measurement.scale.extra or {}).get("clear_area_mm"):
-        canvas = np.hstack([canvas, _top_view(image, measurement, canvas.shape[0], lw)])
-    return canvas
+    cv2.putText(canvas, f"{bar:g} {units}", (x0, y0 - 8 * lw), font, font_scale, _TEXT, lw + 1, cv2.LINE_AA)
 
 
 def _top_view(image: LoadedImage, measurement: Measurement, height_px: int, lw: int) -> np.ndarray:
@@ -224,18 +267,37 @@ def _text(canvas: np.ndarray, text: str, org: tuple[int, int], font: int, scale:
     cv2.putText(canvas, text, org, font, scale, _TEXT, max(1, lw), cv2.LINE_AA)
 
 
-def _legend(canvas: np.ndarray, font: int, font_scale: float, lw: int, markers: bool = False) -> None:
-    items = [
-        ("outline", _OUTLINE),
-        ("hole (D = diameter)", _HOLE),
-        ("centroid, 1s ellipse", _CENTROID),
-        ("I2 axis (long)", _AXIS_MAJOR),
-        ("I1 axis", _AXIS_MINOR),
-    ]
+def legend_items(markers: bool = False, seen: dict | None = None) -> list[tuple[str, tuple[int, int, int]]]:
+    """The legend's lines: (words, BGR colour) for each kind of mark drawn, in the colour drawn.
+
+    ``seen`` says what was drawn: ``clipped`` parts, ``rejected`` markers, principal ``axes``,
+    and the centroid ``ellipse``'s enlargement factor (0 when none was drawn).
+    """
+    seen = seen or {}
+    items = [("outline", _OUTLINE)]
+    if seen.get("clipped"):
+        items.append(("clipped by the image edge", _CUT))
+    items += [("hole (D = diameter)", _HOLE), ("centroid", _CENTROID)]
+    if seen.get("ellipse"):
+        enlarge = seen["ellipse"]
+        words = "" if enlarge == 1 else f", enlarged {enlarge:g} times"
+        items.append((f"centroid 1 sigma ellipse{words}", _ELLIPSE))
+    if seen.get("axes", True):
+        items += [("I2 axis (long direction)", _AXIS_MAJOR), ("I1 axis", _AXIS_MINOR)]
     if markers:
         items.append(("mat marker used", _MARKER_USED))
+    if seen.get("rejected"):
+        items.append(("mat marker rejected", _MARKER_REJECTED))
+    return items
+
+
+def _legend(
+    canvas: np.ndarray, font: int, font_scale: float, lw: int, markers: bool = False, seen: dict | None = None
+) -> None:
+    """Draw the legend (:func:`legend_items`) in the top right corner."""
+    items = legend_items(markers, seen)
     line_h = int(28 * font_scale) + 4
-    w = int(300 * font_scale) + 40
+    w = int(max(len(name) for name, _ in items) * 14 * font_scale) + 50
     x0 = canvas.shape[1] - w - 10
     y0 = 10
     cv2.rectangle(canvas, (x0, y0), (x0 + w, y0 + line_h * len(items) + 10), (255, 255, 255), -1)

@@ -21,14 +21,15 @@ import os
 from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 from xml.sax.saxutils import escape
 
 import numpy as np
 
 from scanmass import __version__
 from scanmass.errors import ImageError, OptionError
-from scanmass.measurement import CSV_COLUMNS, Measurement, Part
+from scanmass.measurement import Measurement, Part, csv_columns
+from scanmass.names import FIGURE, FIGURES, UNCERTAINTY_NOTE, check_units, unit_symbol
 from scanmass.outputs.atomic import write_atomic
 from scanmass.outputs.formatting import _finite, format_value
 from scanmass.outputs.resultio import PathLike, as_measurement
@@ -68,14 +69,16 @@ CONVENTIONS = (
     "x = (i + 0.5) s, y = (H − j − 0.5) s, with s = 25.4 / dpi mm and H the image height in pixels. "
     "Mat frame: origin at the lower-left corner of the printed mat page.",
     "Second moments of area about centroidal axes parallel to x and y: Ixx = ∫(y − yc)² dA, "
-    "Iyy = ∫(x − xc)² dA, and the product of area Ixy = ∫(x − xc)(y − yc) dA, which can be negative.",
-    "Principal moments I1 ≥ I2; the principal angle is the direction of the I2 axis (the part's long "
-    "direction), counter-clockwise from +x, in [0°, 180°). Polar moment J = Ixx + Iyy.",
+    "Iyy = ∫(x − xc)² dA, and the product moment of area Ixy = ∫(x − xc)(y − yc) dA, which can be negative. "
+    "Products of inertia of plates and assemblies, ∫(x − xc)(y − yc) dm, carry the same sign.",
+    "Principal second moments I1 ≥ I2; the I2 axis angle is the direction of the I2 axis (the part's long "
+    "direction), counter-clockwise from +x, in [0°, 180°); undefined for a near-round part. "
+    "Polar second moment of area Ip = Ixx + Iyy (not the torsion constant).",
     "Radii of gyration k = √(I / A). Elastic section moduli, one per extreme fibre: "
-    "W top = Ixx / (ymax − yc), W bottom = Ixx / (yc − ymin), W right = Iyy / (xmax − xc), "
-    "W left = Iyy / (xc − xmin).",
-    "Each value's standard uncertainty (1 sigma) is given beside it; it is rounded to two significant "
-    "digits and the value to the same decimal place.",
+    "Z top = Ixx / (ymax − yc), Z bottom = Ixx / (yc − ymin), Z right = Iyy / (xmax − xc), "
+    "Z left = Iyy / (xc − xmin). W is the weight.",
+    "Uncertainties: " + UNCERTAINTY_NOTE + "; u is rounded to two significant digits and the value to the "
+    "same decimal place (GUM 7.2.6).",
 )
 
 _OKABE_ITO = {  # Okabe & Ito (2008) colour-blind-safe palette
@@ -105,35 +108,16 @@ def _row(name: str, symbol: str, value: Any, u: Any, unit: str) -> dict[str, str
 # ---------------------------------------------------------------------------
 # Per-image view model
 # ---------------------------------------------------------------------------
-def _part_rows(p: Part) -> list[dict[str, str]]:
-    cu = tuple(p.centroid_u_mm) if p.centroid_u_mm is not None else (None, None)
-    bbox = p.bbox_mm
-    return [
-        _row("Area", "A", p.area_mm2, p.area_u_mm2, "mm²"),
-        _row("Perimeter (outline and holes)", "P", p.perimeter_mm, p.perimeter_u_mm, "mm"),
-        _row("Centroid x", "xc", p.centroid_mm[0], cu[0], "mm"),
-        _row("Centroid y", "yc", p.centroid_mm[1], cu[1], "mm"),
-        _row("Second moment about the centroidal x axis", "Ixx", p.ixx_mm4, p.ixx_u_mm4, "mm⁴"),
-        _row("Second moment about the centroidal y axis", "Iyy", p.iyy_mm4, p.iyy_u_mm4, "mm⁴"),
-        _row("Product of area", "Ixy", p.ixy_mm4, p.ixy_u_mm4, "mm⁴"),
-        _row("Principal moment, largest", "I1", p.i1_mm4, p.i1_u_mm4, "mm⁴"),
-        _row("Principal moment, smallest", "I2", p.i2_mm4, p.i2_u_mm4, "mm⁴"),
-        _row("Principal angle (I2 axis, from +x)", "θ", p.principal_angle_deg, p.principal_angle_u_deg, "°"),
-        _row("Polar moment", "J", p.polar_mm4, p.polar_u_mm4, "mm⁴"),
-        _row("Radius of gyration about x", "kx", p.gyration_x_mm, None, "mm"),
-        _row("Radius of gyration about y", "ky", p.gyration_y_mm, None, "mm"),
-        _row("Radius of gyration about the I1 axis", "k1", p.gyration_1_mm, None, "mm"),
-        _row("Radius of gyration about the I2 axis", "k2", p.gyration_2_mm, None, "mm"),
-        _row("Section modulus, top fibre", "W top", p.modulus_top_mm3, None, "mm³"),
-        _row("Section modulus, bottom fibre", "W bottom", p.modulus_bottom_mm3, None, "mm³"),
-        _row("Section modulus, right fibre", "W right", p.modulus_right_mm3, None, "mm³"),
-        _row("Section modulus, left fibre", "W left", p.modulus_left_mm3, None, "mm³"),
-        _row_any("Bounding box x min .. max", "", f"{_plain(bbox[0])} .. {_plain(bbox[2])}", None, "mm"),
-        _row_any("Bounding box y min .. max", "", f"{_plain(bbox[1])} .. {_plain(bbox[3])}", None, "mm"),
-        _row("Largest caliper width", "", p.caliper_max_mm, None, "mm"),
-        _row("Smallest caliper width", "", p.caliper_min_mm, None, "mm"),
-        _row("Convex hull area", "", p.convex_area_mm2, None, "mm²"),
-    ]
+def _part_rows(p: Part, units: str = "mm") -> list[dict[str, str]]:
+    rows = []
+    for fig in FIGURES:
+        if fig.stem in ("mass", "hole_count"):  # in the mass table and the holes table
+            continue
+        if fig.stem == "principal_angle" and not p.principal_axes_defined:
+            rows.append(_row_any(fig.label, fig.symbol, "undefined (near-round part)", None, ""))
+            continue
+        rows.append(_row(fig.label, fig.symbol, fig.value(p, units), fig.u(p, units), fig.unit(units)))
+    return rows
 
 
 def _row_any(name: str, symbol: str, value: Any, u: Any, unit: str) -> dict[str, str]:
@@ -154,7 +138,7 @@ def _mass_rows(p: Part) -> list[dict[str, str]]:
         ("Moment of inertia about the x axis through the centre of mass", "Ix", "ix_g_mm2", "ix_u_g_mm2", "g·mm²"),
         ("Moment of inertia about the y axis through the centre of mass", "Iy", "iy_g_mm2", "iy_u_g_mm2", "g·mm²"),
         ("Moment of inertia about the plate normal (z)", "Iz", "iz_g_mm2", "iz_u_g_mm2", "g·mm²"),
-        ("Product of inertia", "Ixy", "ixy_g_mm2", "ixy_u_g_mm2", "g·mm²"),
+        ("Product of inertia ∫(x − xc)(y − yc) dm", "Pxy", "ixy_g_mm2", "ixy_u_g_mm2", "g·mm²"),
     ]
     for name, sym, key, key_u, unit in specs:
         if key in m:
@@ -172,7 +156,7 @@ _TERM_FIGURES = (
     ("ixx_mm4", "Ixx / mm⁴"),
     ("iyy_mm4", "Iyy / mm⁴"),
     ("ixy_mm4", "Ixy / mm⁴"),
-    ("principal_angle_deg", "Angle / °"),
+    ("principal_angle_deg", "I2 axis angle / °"),
 )
 
 
@@ -250,73 +234,52 @@ def _describe(value: Any) -> str:
 
 
 def _scale_rows(m: Measurement) -> tuple[list[tuple[str, str]], list[tuple[str, str]], list[list[str]] | None]:
+    """A few labelled rows: method, mm/px ± u, reprojection RMS, check bars, lens, thickness.
+
+    Raw matrices and marker corners stay in the JSON.
+    """
     s = m.scale
     rel = _finite(s.mm_per_px_rel_u)
     scale_text, u_text = format_value(s.mm_per_px, None if rel is None else rel * s.mm_per_px)
-    rows = [
-        (
-            "Method",
-            {"dpi": "scanner resolution (dpi)", "mat": "printed marker mat", "sheet": "paper sheet of known size"}.get(
-                s.method, s.method
-            ),
-        ),
-        ("Scale", f"{scale_text} ± {u_text} mm/px" if u_text else f"{scale_text} mm/px"),
-        ("Relative uncertainty of the scale", "–" if rel is None else f"{rel * 100:.3g} %"),
-    ]
+    method = {"dpi": "scanner resolution", "mat": "printed marker mat", "sheet": "paper sheet of known size"}.get(
+        s.method, s.method
+    )
     if _finite(s.dpi) is not None:
-        rows.append(("Resolution", f"{_plain(s.dpi)} dpi"))
+        method += f", {_plain(s.dpi)} dpi"
+    rows = [
+        ("Method", method),
+        ("Scale", f"{scale_text} ± {u_text} mm/px" if u_text else f"{scale_text} mm/px"),
+    ]
+    if _finite(s.reprojection_rms_px) is not None:
+        rms = f"{_plain(s.reprojection_rms_px, 2)} px"
+        if _finite(s.reprojection_rms_mm) is not None:
+            rms += f" ({_plain(s.reprojection_rms_mm, 2)} mm)"
+        rows.append(("Reprojection RMS", rms))
+    extra = dict(s.extra or {})
+    if s.method != "dpi":
+        found = _find_extra(extra, "printer", "printed")
+        rows.append(("Check-bar readings", "; ".join(_describe(v) for _, v in found) if found else "not given"))
+        found = _find_extra(extra, "lens")
+        rows.append(("Lens profile", "; ".join(_describe(v) for _, v in found) if found else "none"))
+        found = _find_extra(extra, "thickness")
+        rows.append(("Thickness (parallax)", "; ".join(_describe(v) for _, v in found) if found else "none"))
     if s.note:
         rows.append(("Note", s.note))
-    extra = dict(s.extra or {})
-    matrix = extra.pop("px_to_mm", None)
-    if _finite(s.reprojection_rms_px) is not None or _finite(s.reprojection_rms_mm) is not None:
-        parts = []
-        if _finite(s.reprojection_rms_px) is not None:
-            parts.append(f"{_plain(s.reprojection_rms_px, 3)} px")
-        if _finite(s.reprojection_rms_mm) is not None:
-            parts.append(f"{_plain(s.reprojection_rms_mm, 3)} mm")
-        rows.append(("Reprojection RMS of the fitted map", " = ".join(parts)))
-    else:
-        rows.append(
-            (
-                "Reprojection RMS of the fitted map",
-                "not applicable (no fitted map)" if s.method == "dpi" else "not recorded",
-            )
-        )
-    shown: set[str] = set()
-    for title, words, absent in (
-        ("Printer scale check", ("printer",), "not done" if s.method != "dpi" else "not applicable (scan)"),
-        ("Lens profile", ("lens", "undistort", "distortion"), "none (no lens correction)"),
-        ("Thickness correction", ("thickness",), "none"),
-    ):
-        found = _find_extra(extra, *words)
-        if found:
-            for k, v in found:
-                shown.add(k)
-                rows.append((f"{title} ({k.replace('_', ' ')})", _describe(v)))
-        else:
-            rows.append((title, absent))
-    for k, v in extra.items():
-        if k not in shown:
-            rows.append((_EXTRA_TITLES.get(k, k.replace("_", " ").capitalize()), _describe(v)))
-    terms = [(k, f"{float(v) * 100:.3g} %") for k, v in (s.terms or {}).items() if _finite(v) is not None]
-    mat = None
-    try:
-        arr = np.asarray(matrix, dtype=float)
-        if arr.shape == (3, 3) and np.isfinite(arr).all():
-            mat = [[f"{v:.6g}" for v in row] for row in arr]
-    except (TypeError, ValueError):
-        mat = None
-    return rows, terms, mat
+    terms = [(k, f"{float(v) * 100:.2g} %") for k, v in (s.terms or {}).items() if _finite(v) is not None]
+    return rows, terms, None
 
 
 def _source_rows(m: Measurement, result_path: str | None) -> list[tuple[str, str]]:
     src = m.source
     rows = [("Image", src.path or "(not recorded)")]
     rows.append(("Size", f"{src.width_px} × {src.height_px} px"))
-    detail = ", ".join(str(x) for x in (src.format, src.mode, f"{src.bit_depth} bit" if src.bit_depth else None) if x)
+    colour = {"L": "grey", "I;16": "grey", "I": "grey", "LA": "grey", "RGB": "colour", "RGBA": "colour"}.get(
+        src.mode or "", None
+    )
+    depth = f"{src.bit_depth} bits per channel" if src.bit_depth else None
+    detail = ", ".join(str(x) for x in (src.format, colour, depth) if x)
     if detail:
-        rows.append(("Format", detail))
+        rows.append(("File", detail))
     if src.orientation_applied not in (None, 1):
         rows.append(("EXIF orientation applied", str(src.orientation_applied)))
     rows.append(("SHA-256", src.sha256 or "(not recorded)"))
@@ -369,7 +332,30 @@ def _png_data_uri(data: bytes | PathLike, *, what: str) -> tuple[str, tuple[int,
             size = im.size
     except (UnidentifiedImageError, OSError, ValueError, SyntaxError) as exc:
         raise ImageError(f"{what} is a damaged PNG ({exc}); write the overlay again", path=path) from None
+    raw, size = _compress_png(raw, size)
     return "data:image/png;base64," + base64.b64encode(raw).decode("ascii"), size
+
+
+#: Longest side of an overlay embedded in a report; larger ones are reduced.
+REPORT_OVERLAY_MAX_SIDE_PX = 1400
+
+
+def _compress_png(raw: bytes, size: tuple[int, int]) -> tuple[bytes, tuple[int, int]]:
+    """The overlay reduced to :data:`REPORT_OVERLAY_MAX_SIDE_PX` and stored with a 256-colour
+    palette (the drawing has few colours), when that is smaller than the original."""
+    from PIL import Image
+
+    if max(size) <= REPORT_OVERLAY_MAX_SIDE_PX and len(raw) <= 300_000:
+        return raw, size
+    with Image.open(io.BytesIO(raw)) as opened:
+        im = opened.convert("RGB")
+        if max(im.size) > REPORT_OVERLAY_MAX_SIDE_PX:
+            im.thumbnail((REPORT_OVERLAY_MAX_SIDE_PX, REPORT_OVERLAY_MAX_SIDE_PX), Image.Resampling.LANCZOS)
+        small = im.quantize(colors=256, method=Image.Quantize.MEDIANCUT, dither=Image.Dither.NONE)
+        buf = io.BytesIO()
+        small.save(buf, format="PNG", optimize=True)
+    out = buf.getvalue()
+    return (out, small.size) if len(out) < len(raw) else (raw, size)
 
 
 def _num(value: float) -> str:
@@ -436,7 +422,7 @@ def outline_svg(measurement: Measurement, *, max_width_px: int = 900) -> str:
             f'<path d="M {_num(cx - arm)} {_num(-cy)} L {_num(cx + arm)} {_num(-cy)} M {_num(cx)} {_num(-cy - arm)} '
             f'L {_num(cx)} {_num(-cy + arm)}" stroke="{_OKABE_ITO["black"]}" stroke-width="{_num(1.5 * stroke)}"/>'
         )
-        angle = _finite(p.principal_angle_deg)
+        angle = _finite(p.principal_angle_deg) if p.principal_axes_defined else None  # none for a round part
         if angle is not None:
             for deg, half, dash in (
                 (angle, 0.5 * size, ""),
@@ -472,7 +458,7 @@ def _overlay_for(overlays: Mapping[Any, Any] | None, index: int, result_path: st
     return None
 
 
-def _image_view(index: int, m: Measurement, result_path: str | None, overlay: Any) -> dict[str, Any]:
+def _image_view(index: int, m: Measurement, result_path: str | None, overlay: Any, units: str = "mm") -> dict[str, Any]:
     name = (
         os.path.basename(m.source.path)
         if m.source.path
@@ -492,9 +478,14 @@ def _image_view(index: int, m: Measurement, result_path: str | None, overlay: An
     view["cut_count"] = len(m.cut_parts or [])
     parts = []
     for p in m.parts:
-        area, _ = format_value(p.area_mm2, p.area_u_mm2)
-        cx, _ = format_value(p.centroid_mm[0], p.centroid_u_mm[0])
-        cy, _ = format_value(p.centroid_mm[1], p.centroid_u_mm[1])
+        area = format_value(*(f(p, units) for f in (FIGURE["area"].value, FIGURE["area"].u)))[0]
+        cx = format_value(*(f(p, units) for f in (FIGURE["centroid_x"].value, FIGURE["centroid_x"].u)))[0]
+        cy = format_value(*(f(p, units) for f in (FIGURE["centroid_y"].value, FIGURE["centroid_y"].u)))[0]
+        i1 = format_value(*(f(p, units) for f in (FIGURE["i1"].value, FIGURE["i1"].u)))[0]
+        i2 = format_value(*(f(p, units) for f in (FIGURE["i2"].value, FIGURE["i2"].u)))[0]
+        angle = format_value(p.principal_angle_deg, p.principal_angle_u_deg)[0]
+        if not p.principal_axes_defined:
+            angle = "undefined"
         names, term_rows = _term_rows(p)
         parts.append(
             {
@@ -505,12 +496,12 @@ def _image_view(index: int, m: Measurement, result_path: str | None, overlay: An
                     "area": area,
                     "cx": cx,
                     "cy": cy,
-                    "i1": format_value(p.i1_mm4, p.i1_u_mm4)[0],
-                    "i2": format_value(p.i2_mm4, p.i2_u_mm4)[0],
-                    "angle": format_value(p.principal_angle_deg, p.principal_angle_u_deg)[0],
+                    "i1": i1,
+                    "i2": i2,
+                    "angle": angle,
                     "mass": format_value(p.mass_g, p.mass_u_g)[0] if _finite(p.mass_g) is not None else "–",
                 },
-                "rows": _part_rows(p),
+                "rows": _part_rows(p, units),
                 "mass_rows": _mass_rows(p),
                 "term_names": names,
                 "term_rows": term_rows,
@@ -518,7 +509,125 @@ def _image_view(index: int, m: Measurement, result_path: str | None, overlay: An
             }
         )
     view["parts"] = parts
+    view["head"] = {
+        "area": FIGURE["area"].heading(units).replace(", ", " / "),
+        "cx": FIGURE["centroid_x"].heading(units).replace(", ", " / "),
+        "cy": FIGURE["centroid_y"].heading(units).replace(", ", " / "),
+        "i1": FIGURE["i1"].heading(units).replace(", ", " / "),
+        "i2": FIGURE["i2"].heading(units).replace(", ", " / "),
+        "angle": FIGURE["principal_angle"].heading(units).replace(", ", " / "),
+        "holes": FIGURE["hole_count"].label,
+        "mass": FIGURE["mass"].heading(units).replace(", ", " / "),
+    }
     return view
+
+
+def _pm(value: Any, u: Any, unit: str) -> str:
+    text, u_text = format_value(value, u)
+    if text == "–":
+        return "–"
+    return f"{text} ± {u_text} {unit}".rstrip() if u_text else f"{text} {unit}".rstrip()
+
+
+def read_extra(path: PathLike) -> tuple[str, Any] | None:
+    """A balance or assembly result JSON (from ``scanmass balance/assemble --json``) read for the
+    report, as ``("balance" | "assembly", result)``; None when the file is a measurement result."""
+    import json
+    from types import SimpleNamespace
+
+    try:
+        doc = json.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError):
+        return None  # read_result names the problem
+    if not isinstance(doc, dict):
+        return None
+    if str(doc.get("schema", "")).startswith("scanmass.assembly/"):
+        members = [
+            SimpleNamespace(**{**m, "centre_of_mass_mm": tuple(m.get("centre_of_mass_mm") or ())})
+            for m in doc.get("members", [])
+        ]
+        values = {k: v for k, v in doc.items() if k != "members"}
+        for key in ("inertia_g_mm2", "inertia_u_g_mm2"):
+            values[key] = np.asarray(values.get(key), dtype=float)
+        return "assembly", SimpleNamespace(**values, members=members)
+    if "verdict" in doc and "unbalance_gmm" in doc:
+        return "balance", SimpleNamespace(**doc)
+    return None
+
+
+def balance_view(result: Any, units: str = "mm") -> dict[str, Any]:
+    """The report's rows for one :class:`~scanmass.mass.balance.BalanceResult`."""
+    from scanmass.names import convert
+
+    def ln(v: Any) -> Any:
+        return convert(v, "length", units)
+
+    lu, uu = unit_symbol("length", units), unit_symbol("unbalance", units)
+    rows = [
+        ("Part, spinning about hole", f"part {result.part}, hole {result.hole}"),
+        ("Mass", _pm(result.mass_g, result.mass_u_g, "g")),
+        ("Centre-of-mass offset e", _pm(ln(result.offset_mm), ln(result.offset_u_mm), lu)),
+        ("Static unbalance U = m·e", _pm(ln(result.unbalance_gmm), ln(result.unbalance_u_gmm), uu)),
+        ("Heavy spot angle (from +x)", _pm(result.heavy_angle_deg, None, "°")),
+    ]
+    if result.permissible_gmm is not None and result.permissible_offset_mm is not None:
+        rows.append(
+            (
+                f"Permissible (ISO 21940-11, G {result.grade_mm_s:g} at {result.rpm:g} rpm)",
+                f"U {_pm(ln(result.permissible_gmm), None, uu)}, offset {_pm(ln(result.permissible_offset_mm), None, lu)}",
+            )
+        )
+    if result.correction_radius_mm is not None and result.correction_fits is not False:
+        rows.append(
+            (
+                "Correction",
+                f"remove {_pm(result.remove_mass_g, None, 'g')} at {_pm(result.remove_angle_deg, None, '°')}, "
+                f"radius {_pm(ln(result.correction_radius_mm), None, lu)}",
+            )
+        )
+    elif result.correction_fits is False:
+        rows.append(("Correction", "the correction hole does not fit in the material; choose another radius"))
+    status = {True: "pass", False: "fail", None: "undecided"}[result.passes]
+    return {"source": result.source or "", "status": status, "verdict": result.verdict, "rows": rows}
+
+
+def assembly_view(result: Any, units: str = "mm") -> dict[str, Any]:
+    """The report's rows for one :class:`~scanmass.mass.assembly.AssemblyResult`."""
+    from scanmass.names import convert
+
+    lu, iu = unit_symbol("length", units), unit_symbol("mass_moment", units)
+    members = [
+        {
+            "name": m.name + (" (cut-out)" if m.cutout else ""),
+            "source": f"{m.source}: part {m.part}",
+            "count": str(m.count),
+            "mass": _pm(m.mass_g, m.mass_u_g, "g"),
+            "com": ", ".join(_plain(convert(c, "length", units), 5) for c in m.centre_of_mass_mm) + f" {lu}",
+        }
+        for m in result.members
+    ]
+    rows = [
+        ("Mass", _pm(result.mass_g, result.mass_u_g, "g")),
+        ("Weight W", _pm(result.weight_n, result.weight_u_n, "N")),
+    ]
+    for axis, v, u in zip("xyz", result.centre_of_mass_mm, result.centre_of_mass_u_mm):
+        rows.append((f"Centre of mass {axis}", _pm(convert(v, "length", units), convert(u, "length", units), lu)))
+    t, tu = result.inertia_g_mm2, result.inertia_u_g_mm2
+    for name, (i, j) in (("xx", (0, 0)), ("yy", (1, 1)), ("zz", (2, 2))):
+        rows.append(
+            (
+                f"Moment of inertia I{name}",
+                _pm(convert(t[i, j], "mass_moment", units), convert(tu[i, j], "mass_moment", units), iu),
+            )
+        )
+    for name, (i, j) in (("xy", (0, 1)), ("xz", (0, 2)), ("yz", (1, 2))):
+        rows.append(
+            (
+                f"Product of inertia P{name} (same sign as Ixy)",
+                _pm(convert(-t[i, j], "mass_moment", units), convert(tu[i, j], "mass_moment", units), iu),
+            )
+        )
+    return {"name": result.name or result.path or "assembly", "members": members, "rows": rows}
 
 
 # ---------------------------------------------------------------------------
@@ -555,6 +664,9 @@ def render_report(
     overlays: Mapping[Any, bytes | PathLike] | None = None,
     title: str = "scanmass measurement report",
     generated_at: datetime | None = None,
+    balances: Sequence[Any] = (),
+    assemblies: Sequence[Any] = (),
+    units: str = "mm",
 ) -> str:
     """Render one self-contained HTML report of one or more measurements.
 
@@ -571,6 +683,12 @@ def render_report(
         Heading and page title.
     generated_at : datetime, optional
         Time stamp printed in the header (default: now, UTC).
+    balances, assemblies : sequence, optional
+        Balance results (:class:`~scanmass.mass.balance.BalanceResult`) and assembly
+        results (:class:`~scanmass.mass.assembly.AssemblyResult`) to include, each in
+        its own section; a failed balance verdict is also listed at the top.
+    units : {"mm", "in"}
+        Units of the figures shown.
 
     Returns
     -------
@@ -591,12 +709,16 @@ def render_report(
     items = list(results)
     if not items:
         raise OptionError("no results given; pass one or more result JSON files written by 'scanmass measure --json'")
+    check_units(units)
     images = []
     for index, item in enumerate(items):
         m, result_path = as_measurement(item)
-        images.append(_image_view(index, m, result_path, _overlay_for(overlays, index, result_path, m)))
+        images.append(_image_view(index, m, result_path, _overlay_for(overlays, index, result_path, m), units))
     template = _environment().get_template("report.html.j2")
     return template.render(
+        balances=[balance_view(b, units) for b in balances],
+        assemblies=[assembly_view(a, units) for a in assemblies],
+        units=units,
         title=title,
         version=__version__,
         generated=_generated(generated_at),
@@ -614,6 +736,9 @@ def write_report(
     overlays: Mapping[Any, bytes | PathLike] | None = None,
     title: str = "scanmass measurement report",
     generated_at: datetime | None = None,
+    balances: Sequence[Any] = (),
+    assemblies: Sequence[Any] = (),
+    units: str = "mm",
 ) -> Path:
     """Render the report (see :func:`render_report`) and write it atomically to ``path``.
 
@@ -623,7 +748,15 @@ def write_report(
     if isinstance(results, (str, os.PathLike, Measurement)):
         results = [results]
     items = list(results)
-    html = render_report(items, overlays=overlays, title=title, generated_at=generated_at)
+    html = render_report(
+        items,
+        overlays=overlays,
+        title=title,
+        generated_at=generated_at,
+        balances=balances,
+        assemblies=assemblies,
+        units=units,
+    )
     guarded: list[Any] = [i for i in items if isinstance(i, (str, os.PathLike))]
     guarded += [v for v in (overlays or {}).values() if isinstance(v, (str, os.PathLike))]
     return write_atomic(path, html, inputs=guarded)
@@ -632,42 +765,19 @@ def write_report(
 # ---------------------------------------------------------------------------
 # Batch summary
 # ---------------------------------------------------------------------------
-_COLUMN_TITLES = {
-    "file": "File",
-    "part": "Part",
-    "area_mm2": "Area / mm²",
-    "area_u_mm2": "u(Area) / mm²",
-    "centroid_x_mm": "xc / mm",
-    "centroid_y_mm": "yc / mm",
-    "centroid_x_u_mm": "u(xc) / mm",
-    "centroid_y_u_mm": "u(yc) / mm",
-    "perimeter_mm": "Perimeter / mm",
-    "ixx_mm4": "Ixx / mm⁴",
-    "iyy_mm4": "Iyy / mm⁴",
-    "ixy_mm4": "Ixy / mm⁴",
-    "ixx_u_mm4": "u(Ixx) / mm⁴",
-    "iyy_u_mm4": "u(Iyy) / mm⁴",
-    "ixy_u_mm4": "u(Ixy) / mm⁴",
-    "i1_mm4": "I1 / mm⁴",
-    "i2_mm4": "I2 / mm⁴",
-    "principal_angle_deg": "Angle / °",
-    "polar_mm4": "J / mm⁴",
-    "modulus_top_mm3": "W top / mm³",
-    "modulus_bottom_mm3": "W bottom / mm³",
-    "modulus_right_mm3": "W right / mm³",
-    "modulus_left_mm3": "W left / mm³",
-    "bbox_xmin_mm": "x min / mm",
-    "bbox_ymin_mm": "y min / mm",
-    "bbox_xmax_mm": "x max / mm",
-    "bbox_ymax_mm": "y max / mm",
-    "caliper_max_mm": "Caliper max / mm",
-    "caliper_min_mm": "Caliper min / mm",
-    "convex_area_mm2": "Convex area / mm²",
-    "holes": "Holes",
-    "hole_diameters_mm": "Hole diameters / mm",
-    "mass_g": "Mass / g",
-    "mass_u_g": "u(Mass) / g",
-}
+def _column_titles() -> dict[str, str]:
+    titles = {"file": "File", "part": "Part", "scale_method": "Scale method", "warnings": "Warnings"}
+    for units in ("mm", "in"):
+        titles[f"hole_diameters_{'mm' if units == 'mm' else 'in'}"] = f"Hole diameters / {units}"
+        for fig in FIGURES:
+            unit = fig.unit(units)
+            titles[fig.key(units)] = f"{fig.label} / {unit}" if unit else fig.label
+            if fig.u_attr is not None:
+                titles[fig.u_key(units)] = f"u({fig.symbol or fig.label}) / {unit}"
+    return titles
+
+
+_COLUMN_TITLES = _column_titles()
 
 
 def _column_title(key: str) -> str:
@@ -810,6 +920,8 @@ def render_summary(
     *,
     title: str = "scanmass batch summary",
     generated_at: datetime | None = None,
+    duplicates: int = 0,
+    base: PathLike | None = None,
 ) -> str:
     """Render the batch summary page (self-contained HTML).
 
@@ -826,17 +938,42 @@ def render_summary(
         Heading and page title.
     generated_at : datetime, optional
         Time stamp printed in the header (default: now, UTC).
+    duplicates : int, optional
+        Files skipped as copies of a measured file (counted on the page).
+    base : path, optional
+        Folder that file paths are shown relative to (default: the folder all of them
+        share).
 
     Returns
     -------
     str
-        The HTML document: counts, failures with reasons, an area histogram and a
+        The HTML document: counts, files with warnings, failures with reasons, an area histogram and a
         centroid-offset scatter (inline SVG), and a table of all parts sortable by
         any column (a few lines of inline JavaScript).
     """
     rows = [dict(r) for r in rows]
     failures = [dict(f) for f in failures]
-    keys: list[str] = [k for k in CSV_COLUMNS if any(k in r for r in rows)]
+    paths = [str(r.get("file", "")) for r in [*rows, *failures] if r.get("file")]
+    if base is None and paths:
+        try:
+            base = os.path.commonpath([os.path.dirname(p) for p in paths])
+        except ValueError:  # mixed absolute and relative paths, or drives
+            base = None
+
+    def rel(path: Any) -> str:
+        text = "" if path is None else str(path)
+        if base is None or not text:
+            return text
+        try:
+            return os.path.relpath(text, os.fspath(base))
+        except ValueError:
+            return text
+
+    for row in cast(list[dict[str, Any]], [*rows, *failures]):
+        if "file" in row:
+            row["file"] = rel(row["file"])
+    warned = sorted({(str(r.get("file", "")), str(r.get("warnings") or "")) for r in rows if r.get("warnings")})
+    keys: list[str] = [k for k in csv_columns() if any(k in r for r in rows)]
     for r in rows:
         keys += [k for k in r if k not in keys]
 
@@ -868,6 +1005,8 @@ def render_summary(
         ("Files", len(files_ok | files_failed)),
         ("Files measured", len(files_ok)),
         ("Files failed", len(files_failed)),
+        ("Duplicate files (skipped)", duplicates),
+        ("Files with warnings", len({f for f, _ in warned})),
         ("Parts", len(rows)),
     ]
     if any(m is not None for m in masses):
@@ -881,6 +1020,8 @@ def render_summary(
         generated=_generated(generated_at),
         counts=counts,
         failures=[{"file": str(f.get("file", "")), "reason": _failure_reason(f)} for f in failures],
+        warned=[{"file": f, "warnings": w} for f, w in warned],
+        base="" if base is None else os.fspath(base),
         area_plot=_markup(area_plot) if area_plot else "",
         offset_plot=_markup(offset_plot) if offset_plot else "",
         bins=bins,
@@ -899,6 +1040,9 @@ def write_summary(
     *,
     title: str = "scanmass batch summary",
     inputs: Sequence[PathLike] = (),
+    duplicates: int = 0,
+    base: PathLike | None = None,
 ) -> Path:
     """Render the summary page (see :func:`render_summary`) and write it atomically."""
-    return write_atomic(path, render_summary(rows, failures, title=title), inputs=inputs)
+    html = render_summary(rows, failures, title=title, duplicates=duplicates, base=base)
+    return write_atomic(path, html, inputs=inputs)

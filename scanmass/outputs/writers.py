@@ -33,19 +33,21 @@ def write_outputs(
     overlay_out: str | os.PathLike | None = None,
     image: Any = None,
     inputs: tuple = (),
+    units: str = "mm",
 ) -> MeasureOutputs:
     """Write the requested outputs; ``json_out == "-"`` means "return it, do not write".
 
     The overlay needs the loaded image (``image``: a LoadedImage), or re-reads the source.
     Every file is written to a temporary name in its folder and renamed into place, and
-    none of ``inputs`` is ever overwritten.
+    none of ``inputs`` is ever overwritten. ``units`` (mm or in) applies to the CSV and the
+    overlay's labels; the JSON is always in mm.
     """
     document = measurement.to_json()
     written: list[str] = []
     if json_out is not None and str(json_out) != "-":
         written.append(str(write_atomic(json_out, document + "\n", inputs=inputs)))
     if csv_out is not None:
-        written.append(str(write_atomic(csv_out, measurement.to_csv(), inputs=inputs)))
+        written.append(str(write_atomic(csv_out, measurement.to_csv(units), inputs=inputs)))
     if overlay_out is not None:
         from scanmass.outputs.overlay import encode_png, render_overlay
 
@@ -57,7 +59,9 @@ def write_outputs(
                     path=os.fspath(overlay_out),
                 )
             image = load_image(measurement.source.path)
-        written.append(str(write_atomic(overlay_out, encode_png(render_overlay(image, measurement)), inputs=inputs)))
+        written.append(
+            str(write_atomic(overlay_out, encode_png(render_overlay(image, measurement, units=units)), inputs=inputs))
+        )
     return MeasureOutputs(measurement=measurement, document=document, written=written)
 
 
@@ -68,6 +72,7 @@ def measure_to_outputs(
     json_out: str | os.PathLike | None = None,
     csv_out: str | os.PathLike | None = None,
     overlay_out: str | os.PathLike | None = None,
+    units: str = "mm",
     **overrides: Any,
 ) -> MeasureOutputs:
     """Measure ``source`` (see :func:`scanmass.measure` for ``options`` and ``overrides``) and write outputs."""
@@ -75,5 +80,11 @@ def measure_to_outputs(
 
     measurement, image = measure_loaded(source, options, **overrides)
     return write_outputs(
-        measurement, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out, image=image, inputs=(Path(source),)
+        measurement,
+        json_out=json_out,
+        csv_out=csv_out,
+        overlay_out=overlay_out,
+        image=image,
+        inputs=(Path(source),),
+        units=units,
     )

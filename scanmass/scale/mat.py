@@ -312,7 +312,7 @@ def make_mat(layout: str = "a4-portrait") -> MatLayout:
     legend = (
         f"scanmass measuring mat, {nice} {orientation} (markers {first}-{first + len(markers) - 1})",
         "Print at 100 % (actual size). Check: each black bar is 100.0 mm",
-        "end to end; give caliper readings as --printed-x and --printed-y.",
+        "end to end; give caliper readings as --check-bar-x and --check-bar-y.",
         "Lay parts flat inside the corner marks; keep all markers in view.",
     )
     clear = (

@@ -44,7 +44,7 @@ def _printer(
 ) -> tuple[np.ndarray, float, bool]:
     """(scale matrix on mat mm, relative term, note) from the caliper readings of the check bars."""
     if (printed_x_mm is None) != (printed_y_mm is None):
-        raise OptionError("give both check-bar readings, e.g. --printed-x 100.1 --printed-y 99.9", path=path)
+        raise OptionError("give both check-bar readings, e.g. --check-bar-x 100.1 --check-bar-y 99.9", path=path)
     if printed_x_mm is None or printed_y_mm is None:
         return np.eye(3), PRINTER_REL_U, False
     factors = []
@@ -142,7 +142,7 @@ def mat_scale(
     printer, printer_rel, checked = _printer(layout, printed_x_mm, printed_y_mm, path)
     if not checked:
         warnings.append(
-            f"print scale unverified: measure the mat's two 100 mm check bars and give --printed-x/--printed-y "
+            f"print scale unverified: measure the mat's two 100 mm check bars and give --check-bar-x/--check-bar-y "
             f"(a {100 * PRINTER_REL_U:.1f} % printer term is included meanwhile)"
         )
     inl_markers = np.asarray(fit.inliers.reshape(-1, 4).all(axis=1))

@@ -323,7 +323,7 @@ def segment(
     if not found:
         if cut:
             raise PartCutError(
-                f"no whole part found: {len(cut)} part(s) touch the image edge; reposition the part away from the edge or pass --keep-cut",
+                f"no whole part found: {len(cut)} part(s) touch the image edge; reposition the part away from the edge or pass --keep-clipped",
                 path=image.path,
                 count=len(cut),
             )
@@ -332,7 +332,7 @@ def segment(
         )
     if cut:
         warnings.append(
-            f"{len(cut)} part(s) touching the image edge were left out (pass --keep-cut to measure them as cut)"
+            f"{len(cut)} part(s) touching the image edge were left out (pass --keep-clipped to measure them, flagged as clipped)"
         )
     for part in found:
         if part.cut:
