@@ -66,7 +66,7 @@ def test_upload_poll_result_and_downloads(tmp_path, photo):
         assert abs(part["centroid_y_mm"] - t["centroid"][1]) <= 3 * part["centroid_y_u_mm"]
         # the band is the stated uncertainty, dominated by the unverified-printer term: not a band that cannot fail
         assert part["area_u_mm2"] < 2e-3 * t["area"] and max(part["centroid_x_u_mm"], part["centroid_y_u_mm"]) < 0.3
-        assert part["holes"] == 2
+        assert part["hole_count"] == 2
 
         page = tc.get(f"/jobs/{job['id']}")
         assert page.status_code == 200 and 'class="part-row"' in page.text
@@ -135,7 +135,7 @@ def test_history_edit_search_delete_and_batch_tools(tmp_path, scan):
 
         # the store is a batch database: batch-export and report DIR read it
         runner = CliRunner()
-        res = runner.invoke(cli, ["batch-export", str(store), "--format", "csv"])
+        res = runner.invoke(cli, ["batch-export", str(store), "--csv", "-"])
         assert res.exit_code == 0, res.output
         assert len(list(csv.DictReader(io.StringIO(res.stdout)))) == 3
         res = runner.invoke(cli, ["report", str(store), "--html", str(tmp_path / "summary.html")])
@@ -378,7 +378,7 @@ def test_restart_after_a_kill_runs_each_job_once(tmp_path, scan):
 
 def test_lists_match_the_library():
     from scanmass.scale.mat import LAYOUT_NAMES
-    from scanmass.scale.photo import SHEET_SIZES_MM
+    from scanmass.scale.sheet import SHEET_SIZES_MM
 
     assert set(MAT_LAYOUTS) == set(LAYOUT_NAMES)
     assert set(SHEETS) == set(SHEET_SIZES_MM)

@@ -39,7 +39,7 @@ def worker_pid() -> int:
     import scanmass.outputs.report  # noqa: F401
     import scanmass.outputs.writers  # noqa: F401
     import scanmass.pipeline  # noqa: F401
-    import scanmass.scale.photo  # noqa: F401
+    import scanmass.scale.mat_scale  # noqa: F401
 
     return os.getpid()
 
