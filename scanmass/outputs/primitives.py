@@ -760,7 +760,7 @@ def ring_points(entities: list[Entity], step_mm: float = 0.02) -> np.ndarray:
     return np.vstack(chunks)
 
 
-def outline_distance_mm(a_mm: np.ndarray, b_mm: np.ndarray, *, chunk: int = 2048) -> np.ndarray:
+def outline_distance_mm(a_mm: np.ndarray, b_mm: np.ndarray, *, chunk: int = 128) -> np.ndarray:
     """Distance of every vertex of ``a_mm`` to the closed polygon ``b_mm``."""
     a = np.asarray(a_mm, dtype=float)
     b = np.asarray(b_mm, dtype=float)
