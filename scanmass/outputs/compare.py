@@ -64,6 +64,8 @@ __all__ = [
     "compare",
     "write_picture_png",
     "picture_svg",
+    "verdict",
+    "compare_to_outputs",
 ]
 
 VERDICTS = ("pass", "fail", "cannot decide")
@@ -188,7 +190,8 @@ def _read_dxf(p: str) -> Nominal:
                 closed_loops.append(_dedupe(pts))
             else:
                 pieces.append(pts)
-    closed_loops += _chain(pieces)
+    span = max((float(np.max(np.ptp(q, axis=0))) for q in pieces), default=0.0)
+    closed_loops += _chain(pieces, max(0.01, 1e-4 * span))
     loops = closed_loops + [_circle_ring(*c) for c in circles]
     if not loops:
         raise ResultFormatError(
@@ -420,7 +423,7 @@ def compare(
     hole_devs: list[HoleDeviation] = []
     nom_centres = np.array([c[:2] for c in nom.hole_circles]) if nom.hole_circles else np.zeros((0, 2))
     used: set[int] = set()
-    for k, (ring, hole) in enumerate(zip(moved[1:], p.holes)):
+    for ring, hole in zip(moved[1:], p.holes):
         c = np.asarray(hole.circle_centre_mm) @ r.T + t
         if len(nom_centres) == 0:
             continue
@@ -587,3 +590,37 @@ def write_picture_png(c: Comparison, path: PathLike, *, px_per_mm: float = 10.0,
 
 def comparison_json(c: Comparison) -> str:
     return json.dumps(c.to_dict(), indent=1)
+
+
+def compare_to_outputs(
+    measured: PathLike,
+    nominal: PathLike,
+    *,
+    tolerance_mm: float | None = None,
+    align: str = "fit",
+    part: int | None = None,
+    nominal_part: int | None = None,
+    png: PathLike | None = None,
+    svg: PathLike | None = None,
+) -> tuple[Comparison, str, list[str]]:
+    """Compare, write the pictures; return the comparison, its JSON text and summary lines."""
+    c = compare(measured, nominal, part=part, nominal_part=nominal_part, align=align, tolerance_mm=tolerance_mm)
+    inputs = [measured, nominal]
+    lines = [
+        f"aligned ({align}): rotation {c.rotation_deg:.4f} deg, shift ({c.translation_mm[0]:.4f}, {c.translation_mm[1]:.4f}) mm",
+        f"deviation along the outline: largest |d| {c.max_abs_mm:.4f} mm (u {c.max_abs_u_mm:.4f} mm), RMS {c.rms_mm:.4f} mm,"
+        f" range {float(c.deviation_mm.min()):+.4f} .. {float(c.deviation_mm.max()):+.4f} mm",
+    ]
+    for h in c.holes:
+        lines.append(
+            f"hole {h.measured_label} -> nominal {h.nominal_index}: position {h.position_mm:.4f} mm (u {h.position_u_mm:.4f}),"
+            f" diameter {h.diameter_mm:+.4f} mm (u {h.diameter_u_mm:.4f})"
+        )
+    lines += [f"note: {n}" for n in c.notes + c.nominal.notes]
+    if c.verdict is not None:
+        lines.append(f"verdict: {c.verdict} (line profile t = {c.tolerance_mm:g} mm): {c.reason}")
+    if png is not None:
+        lines.append(f"wrote {write_picture_png(c, png, inputs=inputs)}")
+    if svg is not None:
+        lines.append(f"wrote {write_atomic(svg, picture_svg(c), inputs=inputs)}")
+    return c, comparison_json(c), lines

@@ -63,6 +63,23 @@ class DrawingSummary:
     entities: int
     dimensions: int
     written: list[Path] = field(default_factory=list)
+    steps: list[str] = field(default_factory=list)
+    counts: dict[str, int] = field(default_factory=dict)
+    max_deviation_mm: float = 0.0
+    area_mm2: tuple[float, float] = (0.0, 0.0)
+
+    def lines(self) -> list[str]:
+        """What the CLI prints: entities, deviation, steps and files."""
+        c = self.counts
+        out = [
+            f"{self.entities} entities ({c.get('line', 0)} lines, {c.get('arc', 0)} arcs, {c.get('circle', 0)} circles), "
+            f"largest deviation from the measured outline {self.max_deviation_mm:.4f} mm; "
+            f"area measured {self.area_mm2[0]:.2f} mm2, idealised {self.area_mm2[1]:.2f} mm2",
+            f"sheet {self.sheet} at {_scale_text(self.scale)}, {self.dimensions} dimensions",
+        ]
+        out += [f"step {s}" for s in self.steps]
+        out += [f"wrote {w}" for w in self.written]
+        return out
 
 
 def _scale_text(s: float) -> str:
@@ -216,14 +233,15 @@ def _build_sheet(m: Measurement, ideal: Idealised, outer: list[Entity], holes: l
     # hole table
     tx, ty = w - _MARGIN - 85.0, h - _MARGIN - 8.0
     sh.text(tx, ty, "Holes (mm, from the datum)", 3.0)
-    sh.text(tx, ty - 5, "hole     X         Y         Ø        series", 2.5)
+    cols = (0.0, 22.0, 40.0, 56.0, 62.0)
+    for x, head, anchor in zip(cols, ("hole", "X", "Y", "Ø", "series"), ("start", "end", "end", "end", "start")):
+        sh.text(tx + x, ty - 5, head, 2.5, anchor)
     for k, hole in enumerate(holes):
-        series = ""
-        if ideal.hole_series and k in ideal.series_sizes:
-            series = ideal.hole_series
+        series = ideal.hole_series if ideal.hole_series and k in ideal.series_sizes else ""
         d = 2.0 * float(hole.radius_mm or 0.0)
-        row = f"H{k + 1:<4} {hole.centre_mm[0]:9.2f} {hole.centre_mm[1]:9.2f} {d:8.2f}   {series}"
-        sh.text(tx, ty - 10 - 4.5 * k, row, 2.5)
+        row = (f"H{k + 1}", f"{hole.centre_mm[0]:.2f}", f"{hole.centre_mm[1]:.2f}", f"{d:.2f}", series)
+        for x, cell, anchor in zip(cols, row, ("start", "end", "end", "end", "start")):
+            sh.text(tx + x, ty - 10 - 4.5 * k, cell, 2.5, anchor)
         dims += 1
     # scale bar: 10 or 20 mm of part
     bar = 10.0 if 10.0 * s >= 15 else (20.0 if 20.0 * s >= 15 else 50.0)
@@ -401,6 +419,13 @@ def write_drawing(
     sh, name, s, dims = _build_sheet(m, ideal, outer, holes, sheet)
     inputs = [json_path, m.source.path]
     summary = DrawingSummary(name, s, len(outer) + len(holes), dims)
+    counts = {"line": 0, "arc": 0, "circle": 0}
+    for e in [*outer, *holes]:
+        counts[e.kind] += 1
+    summary.counts = counts
+    summary.max_deviation_mm = ideal.max_deviation_mm
+    summary.area_mm2 = (ideal.measured_area_mm2, ideal.area_mm2)
+    summary.steps = [f"{st.name}: moved <= {st.deviation_mm:.4f} mm; {st.detail}" for st in ideal.steps]
     if svg is not None:
         summary.written.append(write_atomic(svg, sheet_svg(sh), inputs=inputs))
     if pdf is not None:

@@ -46,7 +46,7 @@ from scanmass.outputs.primitives import (
     ring_points,
 )
 
-__all__ = ["HOLE_SERIES", "ROUNDING_STEPS_MM", "Step", "Idealised", "idealise", "hole_series"]
+__all__ = ["HOLE_SERIES", "ROUNDING_STEPS_MM", "Step", "Idealised", "idealise", "hole_series", "parse_step"]
 
 #: Standard hole series, diameters in mm.
 #: ISO 273:1979 "Fasteners - Clearance holes for bolts and screws", table 1, fine / medium /
@@ -87,6 +87,28 @@ ROUNDING_STEPS_MM = {"0.1": 0.1, "0.5": 0.5, "0.01": 0.01, "1/64in": 25.4 / 64}
 
 #: Coverage factor of "within the uncertainty" (k = 2, about 95 %; GUM, JCGM 100:2008, 6.2).
 K_COVERAGE = 2.0
+
+
+def parse_step(text: str | float) -> float:
+    """A rounding step in mm from a number (mm) or a name of :data:`ROUNDING_STEPS_MM`.
+
+    Examples
+    --------
+    >>> parse_step("0.5"), round(parse_step("1/64in"), 6)
+    (0.5, 0.396875)
+    """
+    key = str(text).strip().lower()
+    if key in ROUNDING_STEPS_MM:
+        return ROUNDING_STEPS_MM[key]
+    try:
+        value = float(key)
+    except ValueError:
+        raise OptionError(
+            f"rounding step {text!r} is not a length in mm or one of {', '.join(ROUNDING_STEPS_MM)}; e.g. --step 0.1"
+        ) from None
+    if not (math.isfinite(value) and value > 0):
+        raise OptionError(f"rounding step {text!r} must be a positive length in mm, e.g. --step 0.1")
+    return value
 
 
 def hole_series(name: str) -> tuple[float, ...]:
@@ -268,6 +290,7 @@ def idealise(
             steps.append(Step("parallel", f"{count} line(s) made parallel or perpendicular to the longest", dev))
 
     # tangent joints
+    tangent_arcs: set[int] = set()
     if tangent:
         new = list(outer)
         count = 0
@@ -283,11 +306,13 @@ def idealise(
                 c_new = _centre_tangent_to(near[0], near[1], r, c)
                 if c_new is not None and float(np.hypot(*(c_new - c))) <= tol:
                     new[k] = replace(e, centre_mm=(float(c_new[0]), float(c_new[1])))
+                    tangent_arcs.add(k)
                     count += 1
             elif len(near) == 1:
                 r_new = _line_distance(near[0], c)
                 if abs(r_new - r) <= tol:
                     new[k] = replace(e, radius_mm=r_new)
+                    tangent_arcs.add(k)
                     count += 1
         if count:
             rejoined = _rejoin(new, tol)
@@ -387,9 +412,7 @@ def idealise(
                     )
                     moved = max(moved, abs(off_new - off))
                     notes.append(f"line at {off:.3f} -> {off_new:g}")
-        before = outer
-        outer = _rejoin(outer, tol)
-        del before
+        outer = _rejoin(_retangent(outer, tangent_arcs), tol)
         # holes: diameters (not from a series) and positions
         for i, h in enumerate(holes):
             if h is None:
@@ -443,6 +466,31 @@ def idealise(
     dev = outline_distance_mm(fitted.outer.points_mm, ring_points(outer, 0.02))
     result.max_deviation_mm = float(dev.max())
     return result
+
+
+def _retangent(outer: list[Entity], arcs: set[int]) -> list[Entity]:
+    """Keep arcs made tangent tangent after their lines or radii were rounded."""
+    out = list(outer)
+    m = len(out)
+    for k in sorted(arcs):
+        e = out[k]
+        r = float(e.radius_mm or 0.0)
+        c = np.asarray(e.centre_mm)
+        nb = [n for n in (out[(k - 1) % m], out[(k + 1) % m]) if n.kind == "line"]
+        if len(nb) == 2:
+            c_new = _centre_tangent_to(nb[0], nb[1], r, c)
+        elif len(nb) == 1:
+            a = np.asarray(nb[0].start_mm)
+            d = np.asarray(nb[0].end_mm) - a
+            d = d / max(float(np.hypot(*d)), 1e-300)
+            nrm = np.array([-d[1], d[0]])
+            side = 1.0 if float((c - a) @ nrm) >= 0 else -1.0
+            c_new = c + (r - side * float((c - a) @ nrm)) * side * nrm
+        else:
+            c_new = None
+        if c_new is not None:
+            out[k] = replace(e, centre_mm=(float(c_new[0]), float(c_new[1])))
+    return out
 
 
 def _move_circle(h: Entity, c: Any) -> Entity:
