@@ -6,9 +6,15 @@ a note) or another result JSON (a remade part against the original's scan). The 
 closed loop is the outer outline, the others holes.
 
 Alignment: ``"fit"`` (default) moves the measured part rigidly onto the nominal by
-iterated closest points from the centroids and the four principal-axis orientations,
-keeping the best; ``"centroid"`` only translates centroid onto centroid; ``"none"``
+iterated closest points (point to plane) on the outer outline, from the centroids and
+the four principal-axis orientations, keeping the best; the holes are then checked in
+that frame; ``"centroid"`` only translates centroid onto centroid; ``"none"``
 takes both in their own frames (for a nominal drawn in the scan's frame).
+
+Points within the corner zone of a sharp nominal corner (three blur widths: a blurred
+image rounds sharp corners, see :mod:`scanmass.outputs.primitives`) are shown in the
+picture and counted in a note, but left out of the largest and RMS deviation and the
+verdict.
 
 Deviation: for each measured boundary vertex, the signed distance to the nominal
 outline, positive where the part has material outside the nominal (outer outline too
@@ -117,6 +123,7 @@ class Comparison:
     verdict: str | None = None
     reason: str = ""
     notes: list[str] = field(default_factory=list)
+    judged: np.ndarray | None = field(default=None, repr=False)
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -350,17 +357,24 @@ def _align(meas_rings: list[np.ndarray], nom: Nominal, mode: str) -> tuple[np.nd
         return np.eye(2), np.asarray(cn) - np.asarray(cm)
     if mode != "fit":
         raise OptionError(f"alignment {mode!r} is not known; choose fit, centroid or none")
-    coarse = _with_normals([nom.outer_mm, *nom.holes_mm], 0.2)
-    fine = _with_normals([nom.outer_mm, *nom.holes_mm], 0.05)
-    src_all = np.vstack(meas_rings)
+    # fitted on the outer outline only: the holes are what is checked against it
+    coarse = _with_normals([nom.outer_mm], 0.2)
+    fine = _with_normals([nom.outer_mm], 0.05)
+    src_all = m_outer
     src = src_all[:: max(1, len(src_all) // 800)]
+    every = np.vstack(meas_rings)
+    every = every[:: max(1, len(every) // 800)]
+    every_nom = _with_normals([nom.outer_mm, *nom.holes_mm], 0.2)[0]
     theta0 = _principal_angle(nom.outer_mm, nom.holes_mm) - _principal_angle(m_outer, m_holes)
     best = None
     for k in range(4):
         th = theta0 + k * math.pi / 2
         r = np.array([[math.cos(th), -math.sin(th)], [math.sin(th), math.cos(th)]])
         t = np.asarray(cn) - r @ np.asarray(cm)
-        r, t, rms = _icp(src, coarse, r, t, 30)
+        r, t, _ = _icp(src, coarse, r, t, 30)
+        # choose among the starts with the holes too (a symmetric outline alone cannot)
+        moved = every @ r.T + t
+        rms = float(np.sqrt(np.mean(np.sum((moved - every_nom[_nearest(moved, every_nom)]) ** 2, axis=1))))
         if best is None or rms < best[0]:
             best = (rms, r, t)
     assert best is not None
@@ -454,7 +468,19 @@ def compare(
     _, cn = area_centroid_mm(nom.outer_mm, nom.holes_mm)
     reach = np.hypot(*(points - np.asarray(cn)).T)
     u = np.sqrt(sigma**2 + offset**2 + (m.scale.mm_per_px_rel_u * reach) ** 2)
-    k = int(np.argmax(np.abs(deviation)))
+    # a blurred image rounds sharp corners: points in that zone are shown, not judged
+    zone = max(3.0 * _blur(p), 2.0) * m.scale.mm_per_px
+    corners = _sharp_corners(nom.outer_mm)
+    judged = np.ones(len(points), dtype=bool)
+    if len(corners):
+        near = np.min(
+            np.hypot(points[:, None, 0] - corners[None, :, 0], points[:, None, 1] - corners[None, :, 1]), axis=1
+        )
+        judged = near > zone
+    if not judged.any():
+        judged[:] = True
+    sel = np.flatnonzero(judged)
+    k = int(sel[np.argmax(np.abs(deviation[sel]))])
     result = Comparison(
         points,
         deviation,
@@ -464,15 +490,39 @@ def compare(
         (float(t[0]), float(t[1])),
         float(abs(deviation[k])),
         float(u[k]),
-        float(np.sqrt(np.mean(deviation**2))),
+        float(np.sqrt(np.mean(deviation[sel] ** 2))),
         hole_devs,
     )
+    result.judged = judged
+    if not judged.all():
+        result.notes.append(
+            f"{int((~judged).sum())} point(s) within {zone:.3f} mm of {len(corners)} sharp corner(s) left out of the"
+            f" largest and RMS deviation and the verdict (the image's blur rounds sharp corners; up to"
+            f" {float(np.abs(deviation[~judged]).max()):.4f} mm there)"
+        )
     if len(used) < len(nom.hole_circles):
         result.notes.append(f"{len(nom.hole_circles) - len(used)} nominal hole(s) without a measured hole")
     if tolerance_mm is not None:
         result.tolerance_mm = float(tolerance_mm)
         result.verdict, result.reason = verdict(result.max_abs_mm, result.max_abs_u_mm, tolerance_mm)
     return result
+
+
+def _blur(p: Part) -> float:
+    inputs = (p.uncertainty_terms or {}).get("inputs", {})
+    try:
+        b = float(inputs.get("blur_px", 1.0) or 1.0)
+    except (TypeError, ValueError):
+        return 1.0
+    return b if math.isfinite(b) and b > 0 else 1.0
+
+
+def _sharp_corners(ring: np.ndarray, min_turn_deg: float = 20.0) -> np.ndarray:
+    """Vertices of a closed polygon where it turns by more than ``min_turn_deg``."""
+    d_in = ring - np.roll(ring, 1, axis=0)
+    d_out = np.roll(ring, -1, axis=0) - ring
+    turn = np.abs(np.arctan2(d_in[:, 0] * d_out[:, 1] - d_in[:, 1] * d_out[:, 0], np.einsum("ij,ij->i", d_in, d_out)))
+    return ring[turn > math.radians(min_turn_deg)]
 
 
 def verdict(max_abs_mm: float, u_mm: float, tolerance_mm: float) -> tuple[str, str]:

@@ -417,13 +417,15 @@ def idealise(
         for i, h in enumerate(holes):
             if h is None:
                 continue
+            hole_move = 0.0
             if i not in sizes:
                 d = 2.0 * float(h.radius_mm or 0.0)
                 d_new = _round_to(d, step_mm)
                 u = _hole_u(part, hole_labels[i], d, sigma, h.n_points, scale_rel_u)
                 if d_new > 0 and abs(d_new - d) <= K_COVERAGE * u and d_new != d:
                     h = replace(h, radius_mm=0.5 * d_new)
-                    moved = max(moved, 0.5 * abs(d_new - d))
+                    hole_move = 0.5 * abs(d_new - d)
+                    moved = max(moved, hole_move)
                     notes.append(f"D {d:.3f} -> {d_new:g}")
             c_loc = np.asarray(h.centre_mm) @ rot.T - datum_local
             new_loc = c_loc.copy()
@@ -434,7 +436,7 @@ def idealise(
                 if abs(v_new - v) <= K_COVERAGE * u:
                     new_loc[ax] = v_new
             if not np.array_equal(new_loc, c_loc):
-                moved = max(moved, float(np.hypot(*(new_loc - c_loc))))
+                moved = max(moved, hole_move + float(np.hypot(*(new_loc - c_loc))))
                 h = _move_circle(h, (new_loc + datum_local) @ rot)
                 notes.append(f"hole at ({c_loc[0]:.3f}, {c_loc[1]:.3f}) -> ({new_loc[0]:g}, {new_loc[1]:g})")
             holes[i] = h

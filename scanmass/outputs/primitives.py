@@ -51,6 +51,7 @@ __all__ = [
     "FittedPart",
     "edge_sigma_mm",
     "default_tolerance_mm",
+    "size_u_mm",
     "fit_ring",
     "fit_part",
     "fit_measurement",
@@ -259,6 +260,17 @@ def edge_sigma_mm(part: Part, mm_per_px: float) -> float:
         noise_rel, blur_px = 0.0, 1.0
     sigma_px = math.hypot(noise_rel * math.sqrt(2.0 * math.pi) * blur_px, CONTOUR_RIPPLE_PX)
     return sigma_px * float(mm_per_px)
+
+
+def size_u_mm(fitted: FittedPart, entity: Entity) -> float:
+    """Standard uncertainty of a fitted entity's position or radius from the image, mm.
+
+    ``hypot(fit_u, tolerance / 4)``: the scatter of the fit over its points, and one
+    edge sample's sigma (the default tolerance is four of them; at least 0.005 mm) as a
+    model term for what the fit leaves out (the pull of a blurred edge on small radii,
+    corner zones). The scale's term (relative uncertainty times the size) is not included.
+    """
+    return float(math.hypot(entity.fit_u_mm, fitted.tolerance_mm / TOLERANCE_SIGMAS))
 
 
 def default_tolerance_mm(part: Part, mm_per_px: float) -> float:
