@@ -48,7 +48,9 @@ def _fit(name: str, dpi: float):
 # ---------------------------------------------------------------------------
 # primitive fitting
 # ---------------------------------------------------------------------------
-CASES = [(n, 300.0) for n in DESIGNS] + [(n, 600.0) for n in ("rounded plate", "L bracket", "tab")]
+CASES = [(n, 300.0) for n in DESIGNS] + [
+    pytest.param(n, 600.0, marks=pytest.mark.slow) for n in ("rounded plate", "L bracket", "tab")
+]
 
 
 @pytest.mark.parametrize(("name", "dpi"), CASES)
@@ -88,7 +90,10 @@ def test_fit_much_fewer_entities_than_the_measured_vertices():
 # ---------------------------------------------------------------------------
 # design intent
 # ---------------------------------------------------------------------------
-@pytest.mark.parametrize("name", list(DESIGNS))
+@pytest.mark.parametrize(
+    "name",
+    [n if n in ("plate", "rounded plate", "d-shape") else pytest.param(n, marks=pytest.mark.slow) for n in DESIGNS],
+)
 def test_snapping_never_moves_more_than_it_says(name):
     m, fp = _fit(name, 300.0)
     part = m.parts[0]
@@ -244,6 +249,7 @@ def test_compare_with_itself_is_zero(tmp_path):
     assert all(h.position_mm < 1e-4 and abs(h.diameter_mm) < 1e-9 for h in c.holes)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(("kw", "expect_rot"), [({}, -7.0), ({"angle_deg": 30.0, "shift": (12.0, -4.0)}, 23.0)])
 def test_compare_against_the_design_moved(tmp_path, kw, expect_rot):
     m = _measured("plate", 300.0)
@@ -254,6 +260,7 @@ def test_compare_against_the_design_moved(tmp_path, kw, expect_rot):
     assert all(h.position_mm < 0.01 for h in c.holes)
 
 
+@pytest.mark.slow
 def test_compare_honours_insunits(tmp_path):
     m = _measured("tab", 300.0)
     inch = compare(m, _design_dxf(tmp_path / "n.dxf", DESIGNS["tab"], unit_mm=25.4, insunits=1))
@@ -262,6 +269,7 @@ def test_compare_honours_insunits(tmp_path):
     assert inch.rms_mm < 0.005
 
 
+@pytest.mark.slow
 def test_compare_scaled_nominal_and_moved_hole(tmp_path):
     m = _measured("plate", 300.0)
     # nominal 1 % larger: best fit centres it, so the outline deviates by about 1 % of the

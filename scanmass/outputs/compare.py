@@ -192,7 +192,7 @@ def _read_dxf(p: str) -> Nominal:
             pts = np.array([(v.x, v.y) for v in ezpath.make_path(e).flattening(0.0005 / unit)], float) * unit
             if len(pts) < 2:
                 continue
-            closed = kind in ("LWPOLYLINE", "POLYLINE") and bool(e.closed)
+            closed = kind in ("LWPOLYLINE", "POLYLINE") and bool(getattr(e, "closed", False) or getattr(e, "is_closed", False))
             if closed or (len(pts) > 2 and np.allclose(pts[0], pts[-1])):
                 closed_loops.append(_dedupe(pts))
             else:

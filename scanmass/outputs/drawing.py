@@ -223,7 +223,8 @@ def _build_sheet(m: Measurement, ideal: Idealised, outer: list[Entity], holes: l
         tip = c + r * np.array([math.cos(am), math.sin(am)])
         out = c + (r + 6.0 / s) * np.array([math.cos(am), math.sin(am)])
         sh.line(P(tip), P(out), 0.13)
-        sh.text(*P(out), f"R{_fmt(r)}", 2.8)
+        lx, ly = P(out)
+        sh.text(lx, ly, f"R{_fmt(r)}", 2.8)
         dims += 1
     # datum mark
     d0 = P((0.0, 0.0))
@@ -239,7 +240,8 @@ def _build_sheet(m: Measurement, ideal: Idealised, outer: list[Entity], holes: l
     for k, hole in enumerate(holes):
         series = ideal.hole_series if ideal.hole_series and k in ideal.series_sizes else ""
         d = 2.0 * float(hole.radius_mm or 0.0)
-        row = (f"H{k + 1}", f"{hole.centre_mm[0]:.2f}", f"{hole.centre_mm[1]:.2f}", f"{d:.2f}", series)
+        hc = hole.centre_mm or (0.0, 0.0)
+        row = (f"H{k + 1}", f"{hc[0]:.2f}", f"{hc[1]:.2f}", f"{d:.2f}", series or "")
         for x, cell, anchor in zip(cols, row, ("start", "end", "end", "end", "start")):
             sh.text(tx + x, ty - 10 - 4.5 * k, cell, 2.5, anchor)
         dims += 1

@@ -258,6 +258,7 @@ def idealise(
     holes = [r.entities[0] if r.entities[0].kind == "circle" else None for r in fitted.holes]
     hole_labels = [r.hole_label for r in fitted.holes]
     steps: list[Step] = []
+    moved: float = 0.0
     lines = [e for e in outer if e.kind == "line"]
     axis = _line_angle(max(lines, key=lambda e: e.length_mm)) if lines else 0.0
 
@@ -277,8 +278,8 @@ def idealise(
                 mid = 0.5 * (np.asarray(e.start_mm) + np.asarray(e.end_mm))
                 half = 0.5 * e.length_mm
                 b = a - d
-                u = np.array([math.cos(b), math.sin(b)])
-                new.append(replace(e, start_mm=tuple(mid - half * u), end_mm=tuple(mid + half * u)))
+                dirn = np.array([math.cos(b), math.sin(b)])
+                new.append(replace(e, start_mm=_t2(mid - half * dirn), end_mm=_t2(mid + half * dirn)))
                 moved = max(moved, move)
                 count += 1
             else:
@@ -465,8 +466,8 @@ def idealise(
     )
     from scanmass.outputs.primitives import outline_distance_mm
 
-    dev = outline_distance_mm(fitted.outer.points_mm, ring_points(outer, 0.02))
-    result.max_deviation_mm = float(dev.max())
+    dist = outline_distance_mm(fitted.outer.points_mm, ring_points(outer, 0.02))
+    result.max_deviation_mm = float(dist.max())
     return result
 
 
@@ -493,6 +494,10 @@ def _retangent(outer: list[Entity], arcs: set[int]) -> list[Entity]:
         if c_new is not None:
             out[k] = replace(e, centre_mm=(float(c_new[0]), float(c_new[1])))
     return out
+
+
+def _t2(p: Any) -> tuple[float, float]:
+    return (float(p[0]), float(p[1]))
 
 
 def _move_circle(h: Entity, c: Any) -> Entity:

@@ -490,8 +490,8 @@ def fit_ring(
     perim = float(np.hypot(*np.diff(np.vstack([pts, pts[:1]]), axis=0).T).sum())
     step = perim / n
     corner_span = max(1, round(max(corner_mm, 3 * step) / step))
-    start = _corner_start(pts, corner_span)
-    pts = np.roll(pts, -start, axis=0)
+    first = _corner_start(pts, corner_span)
+    pts = np.roll(pts, -first, axis=0)
     closed = np.vstack([pts, pts[:1]])
     pieces = _greedy(closed, n, tol)
     max_radius = 50.0 * span
@@ -624,9 +624,9 @@ def _build(
     m = len(fits)
     joints = []
     for k in range(m):
-        a, b = fits[k], fits[(k + 1) % m]
-        brk = b[3][0]
-        joints.append(_joint(a, b, brk, tol) if m > 1 else brk)
+        fa, fb = fits[k], fits[(k + 1) % m]
+        brk = fb[3][0]
+        joints.append(_joint(fa, fb, brk, tol) if m > 1 else brk)
     entities = []
     for k, (kind, p, q, seg) in enumerate(fits):
         start = joints[(k - 1) % m]
