@@ -311,10 +311,14 @@ def test_compare_cli_exit_status(tmp_path):
             str(tmp_path / "c.png"),
             "--svg",
             str(tmp_path / "c.svg"),
+            "--html",
+            str(tmp_path / "c.html"),
         ],
     )
     assert ok.exit_code == EXIT_CODES["pass"] == 0, ok.output
     assert (tmp_path / "c.png").read_bytes()[:4] == b"\x89PNG"
+    page = (tmp_path / "c.html").read_text()
+    assert "Part against its nominal" in page and "<svg" in page and "pass" in page
     bad = runner.invoke(app, ["compare", str(tmp_path / "m.json"), str(moved), "--tolerance", "0.2"])
     assert bad.exit_code == EXIT_CODES["fail"] == 2, bad.output
     tight = runner.invoke(app, ["compare", str(tmp_path / "m.json"), str(nominal), "--tolerance", "0.001"])

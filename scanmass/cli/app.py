@@ -755,6 +755,7 @@ def compare_command(
     nominal_part: Annotated[int | None, typer.Option("--nominal-part", help="Part label in a NOMINAL result.")] = None,
     png: Annotated[Path | None, typer.Option("--png", help="Write the colour-coded deviation picture (PNG).")] = None,
     svg: Annotated[Path | None, typer.Option("--svg", help="Write the deviation picture (SVG, mm).")] = None,
+    html: Annotated[Path | None, typer.Option("--html", help="Write an HTML page with the comparison section.")] = None,
     json_out: JsonOutOpt = None,
 ) -> None:
     """Compare MEASURED with NOMINAL. Exit status: 0 pass (or no tolerance), 2 fail, 3 cannot decide, 1 error."""
@@ -770,6 +771,7 @@ def compare_command(
             nominal_part=nominal_part,
             png=png,
             svg=svg,
+            html=html,
         )
     if json_out != "-":
         for line in lines:

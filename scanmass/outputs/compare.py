@@ -72,6 +72,7 @@ __all__ = [
     "picture_svg",
     "verdict",
     "compare_to_outputs",
+    "comparison_html",
 ]
 
 VERDICTS = ("pass", "fail", "cannot decide")
@@ -192,7 +193,9 @@ def _read_dxf(p: str) -> Nominal:
             pts = np.array([(v.x, v.y) for v in ezpath.make_path(e).flattening(0.0005 / unit)], float) * unit
             if len(pts) < 2:
                 continue
-            closed = kind in ("LWPOLYLINE", "POLYLINE") and bool(getattr(e, "closed", False) or getattr(e, "is_closed", False))
+            closed = kind in ("LWPOLYLINE", "POLYLINE") and bool(
+                getattr(e, "closed", False) or getattr(e, "is_closed", False)
+            )
             if closed or (len(pts) > 2 and np.allclose(pts[0], pts[-1])):
                 closed_loops.append(_dedupe(pts))
             else:
@@ -652,6 +655,7 @@ def compare_to_outputs(
     nominal_part: int | None = None,
     png: PathLike | None = None,
     svg: PathLike | None = None,
+    html: PathLike | None = None,
 ) -> tuple[Comparison, str, list[str]]:
     """Compare, write the pictures; return the comparison, its JSON text and summary lines."""
     c = compare(measured, nominal, part=part, nominal_part=nominal_part, align=align, tolerance_mm=tolerance_mm)
@@ -673,4 +677,31 @@ def compare_to_outputs(
         lines.append(f"wrote {write_picture_png(c, png, inputs=inputs)}")
     if svg is not None:
         lines.append(f"wrote {write_atomic(svg, picture_svg(c), inputs=inputs)}")
+    if html is not None:
+        page = comparison_html(c, measured=os.fspath(measured), nominal=os.fspath(nominal), align=align)
+        lines.append(f"wrote {write_atomic(html, page, inputs=inputs)}")
     return c, comparison_json(c), lines
+
+
+def comparison_html(c: Comparison, *, measured: str = "", nominal: str = "", align: str = "fit") -> str:
+    """A self-contained HTML page with the comparison section (picture, figures, holes, notes)."""
+    from scanmass import __version__
+    from scanmass.outputs.report import _environment, _generated, _markup
+
+    svg = picture_svg(c)
+    svg = svg[svg.index("<svg") :]
+    return (
+        _environment()
+        .get_template("compare.html.j2")
+        .render(
+            title="scanmass: part against its nominal",
+            version=__version__,
+            generated=_generated(None),
+            c=c,
+            measured=measured,
+            nominal=nominal,
+            align=align,
+            picture=_markup(svg),
+            notes=c.notes + c.nominal.notes,
+        )
+    )
