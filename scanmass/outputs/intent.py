@@ -147,7 +147,7 @@ class Idealised:
     area_mm2: float = 0.0
     centroid_mm: tuple[float, float] = (0.0, 0.0)
     hole_series: str | None = None
-    series_sizes: dict[int, float] = field(default_factory=dict)
+    series_sizes: dict[int, float] = field(default_factory=dict)  # index in ``holes`` -> series size
     tolerance_mm: float = 0.0
     max_deviation_mm: float = 0.0
 
@@ -448,6 +448,8 @@ def idealise(
     raw_holes = [r.polygon(0.02) for r, h in zip(fitted.holes, holes) if h is None]
     area, centroid = area_centroid_mm(ring_points(outer, 0.02), hole_rings + raw_holes)
     kept_holes = [h for h in holes if h is not None]
+    kept_index = {i: j for j, i in enumerate(i for i, h in enumerate(holes) if h is not None)}
+    sizes = {kept_index[i]: v for i, v in sizes.items() if i in kept_index}
     result = Idealised(
         part.label,
         outer,
