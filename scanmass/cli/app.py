@@ -855,3 +855,89 @@ def serve(
         check_free(config)
         _console().print(banner(config), markup=False, highlight=False, soft_wrap=True)
         run_server(config)
+
+
+# -- drawings and comparison with a nominal (issue 15) ------------------------------------
+@app.command("drawing")
+def drawing_command(
+    result: Annotated[Path, typer.Argument(help="Result JSON from 'scanmass measure --json'.")],
+    *,
+    pdf: Annotated[Path | None, typer.Option("--pdf", help="Write the drawing sheet as PDF.")] = None,
+    svg: Annotated[Path | None, typer.Option("--svg", help="Write the drawing sheet as SVG (true mm).")] = None,
+    dxf: Annotated[
+        Path | None, typer.Option("--dxf", help="Write the idealised outline with dimensions as DXF.")
+    ] = None,
+    part: Annotated[int | None, typer.Option("--part", help="Part label (needed when the result has several).")] = None,
+    sheet: Annotated[
+        str | None, typer.Option("--sheet", help="ISO 216 sheet: A4, A3 or A2 (default: smallest that fits).")
+    ] = None,
+    series: Annotated[
+        str | None,
+        typer.Option("--series", help="Snap hole diameters to: iso273-fine, iso273-medium, iso273-coarse, iso235."),
+    ] = None,
+    step: Annotated[
+        str | None, typer.Option("--step", help="Round sizes to this step when within the uncertainty: mm, or 1/64in.")
+    ] = None,
+    datum_hole: Annotated[
+        int | None, typer.Option("--datum-hole", help="Hole label that is the datum (default: lower-left corner).")
+    ] = None,
+    tolerance: Annotated[
+        float | None,
+        typer.Option("--tolerance", help="Fit tolerance in mm (default: 4 sigma of the edge, at least 0.02)."),
+    ] = None,
+    exact: Annotated[
+        bool, typer.Option("--no-intent", help="Skip the parallel, tangent and concentric steps.")
+    ] = False,
+) -> None:
+    """Draw a part of RESULT as a dimensioned sheet (PDF/SVG) and a DXF with dimensions."""
+    from scanmass.outputs.drawing import write_drawing
+    from scanmass.outputs.intent import parse_step
+
+    with user_errors():
+        s = write_drawing(
+            result, pdf=pdf, svg=svg, dxf=dxf, part=part, sheet=sheet, series=series,
+            step_mm=None if step is None else parse_step(step), datum_hole=datum_hole, tolerance_mm=tolerance,
+            parallel=not exact, tangent=not exact, concentric=not exact,
+        )  # fmt: skip
+    for line in s.lines():
+        _console().print(escape(line))
+
+
+@app.command("compare")
+def compare_command(
+    measured: Annotated[Path, typer.Argument(help="Result JSON of the part to check.")],
+    nominal: Annotated[
+        Path, typer.Argument(help="The nominal: a DXF (mm unless $INSUNITS says otherwise) or a result JSON.")
+    ],
+    *,
+    tolerance: Annotated[
+        float | None, typer.Option("--tolerance", help="Line-profile tolerance t (zone width), mm.")
+    ] = None,
+    align: Annotated[str, typer.Option("--align", help="fit (rigid best fit), centroid, or none.")] = "fit",
+    part: Annotated[int | None, typer.Option("--part", help="Part label in MEASURED.")] = None,
+    nominal_part: Annotated[int | None, typer.Option("--nominal-part", help="Part label in a NOMINAL result.")] = None,
+    png: Annotated[Path | None, typer.Option("--png", help="Write the colour-coded deviation picture (PNG).")] = None,
+    svg: Annotated[Path | None, typer.Option("--svg", help="Write the deviation picture (SVG, mm).")] = None,
+    html: Annotated[Path | None, typer.Option("--html", help="Write an HTML page with the comparison section.")] = None,
+    json_out: JsonOutOpt = None,
+) -> None:
+    """Compare MEASURED with NOMINAL. Exit status: 0 pass (or no tolerance), 2 fail, 3 cannot decide, 1 error."""
+    from scanmass.outputs.compare import EXIT_CODES, compare_to_outputs
+
+    with user_errors():
+        c, text, lines = compare_to_outputs(
+            measured,
+            nominal,
+            tolerance_mm=tolerance,
+            align=align,
+            part=part,
+            nominal_part=nominal_part,
+            png=png,
+            svg=svg,
+            html=html,
+        )
+    if json_out != "-":
+        for line in lines:
+            _console().print(escape(line))
+    _emit_json(json_out, text, [measured, nominal])
+    raise typer.Exit(code=EXIT_CODES[c.verdict])
