@@ -22,7 +22,7 @@ import scanmass
 #: A stage is a module (``scanmass.section``) or a subpackage with all its modules
 #: (``scanmass.scale`` holds ``scanmass.scale.mat`` ...). Modules of one stage may import each other.
 LAYERS: list[tuple[str, ...]] = [
-    ("scanmass.errors", "scanmass.options", "scanmass.geometry", "scanmass.raster"),
+    ("scanmass.errors", "scanmass.options", "scanmass.geometry", "scanmass.raster", "scanmass.readfile"),
     ("scanmass.load",),
     ("scanmass.scale",),
     ("scanmass.segment",),

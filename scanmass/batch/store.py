@@ -31,7 +31,7 @@ from typing import IO, Any
 from scanmass.batch.settings import canonical
 from scanmass.errors import OptionError, OutputError, ResultFormatError
 from scanmass.measurement import CSV_COLUMNS
-from scanmass.outputs.atomic import write_atomic
+from scanmass.outputs.atomic import clean_leftovers, write_atomic
 
 __all__ = [
     "DB_NAME",
@@ -157,10 +157,26 @@ def connect(db_path: Path, *, readonly: bool = False) -> sqlite3.Connection:
         else:
             conn = sqlite3.connect(db_path, isolation_level=None, timeout=30.0)
         version = conn.execute("PRAGMA user_version").fetchone()[0]
+        # A quick structural check (pages, freelist, record formats; not the indexes):
+        # a damaged file is refused here, not met as a traceback half-way through.
+        check = [row[0] for row in conn.execute("PRAGMA quick_check(1)").fetchall()]
     except sqlite3.DatabaseError as exc:
+        if "malformed" in str(exc) or "corrupt" in str(exc):
+            raise ResultFormatError(
+                f"the batch database is damaged ({exc}); restore a backup, or move it away and run the "
+                "batch again into this --out folder",
+                path=str(db_path),
+            ) from None
         raise ResultFormatError(
             f"not a scanmass batch database ({exc}); choose another --out folder", path=str(db_path)
         ) from None
+    if check != ["ok"]:
+        conn.close()
+        raise ResultFormatError(
+            f"the batch database is damaged ({'; '.join(map(str, check))[:200]}); restore a backup, or move it "
+            "away and run the batch again into this --out folder",
+            path=str(db_path),
+        )
     if version not in (0, DB_VERSION):
         conn.close()
         raise ResultFormatError(
@@ -212,28 +228,44 @@ class Store:
 
     def _lock(self) -> IO[str]:
         path = self.out_dir / _LOCK_NAME
-        fh = open(path, "a+")
-        try:
-            import fcntl
+        for _ in range(10):
+            try:
+                fh = open(path, "a+")
+            except OSError as exc:
+                raise OutputError(
+                    f"cannot write in the output folder ({exc.strerror or exc}); choose another --out folder "
+                    "or fix its permissions",
+                    path=str(self.out_dir),
+                ) from None
+            try:
+                import fcntl
 
-            fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except ImportError:  # pragma: no cover - not POSIX: no lock
-            pass
-        except OSError:
+                fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except ImportError:  # pragma: no cover - not POSIX: no lock
+                return fh
+            except OSError:
+                fh.close()
+                raise OutputError(
+                    "another 'scanmass batch' is writing to this folder; wait for it to finish or choose another --out folder",
+                    path=str(self.out_dir),
+                ) from None
+            # The lock file is deleted on close; if that happened between our open and our
+            # lock, we hold a lock on a deleted file: open the new one.
+            try:
+                same = os.path.samestat(os.fstat(fh.fileno()), os.stat(path))
+            except OSError:
+                same = False
+            if same:
+                return fh
             fh.close()
-            raise OutputError(
-                "another 'scanmass batch' is writing to this folder; wait for it to finish or choose another --out folder",
-                path=str(self.out_dir),
-            ) from None
-        return fh
+        raise OutputError(
+            "the lock file keeps changing; another 'scanmass batch' is starting here; choose another --out folder",
+            path=str(self.out_dir),
+        )
 
     def _clean_temporaries(self) -> None:
         """Remove temporary CSVs left by a killed run (we hold the lock)."""
-        for name in (PARTS_CSV, FAILURES_CSV, DUPLICATES_CSV):
-            stem, suffix = os.path.splitext(name)
-            for tmp in self.out_dir.glob(f".{stem}.*.tmp{suffix}"):
-                with contextlib.suppress(OSError):
-                    tmp.unlink()
+        clean_leftovers(self.out_dir)
 
     def close(self) -> None:
         conn, self._conn = self._conn, None
@@ -241,6 +273,9 @@ class Store:
             with contextlib.suppress(sqlite3.Error):
                 conn.close()
         if self._lock_fh is not None:
+            # delete the lock file while still holding the lock (see _lock)
+            with contextlib.suppress(OSError):
+                os.unlink(self.out_dir / _LOCK_NAME)
             self._lock_fh.close()
             self._lock_fh = None
 

@@ -1,0 +1,210 @@
+"""Reading input files safely: regular files only, never more bytes than the file holds.
+
+Every file scanmass reads (images, result JSON, materials and assembly TOML, batch
+settings) goes through :func:`read_regular`. It looks at what the path is before
+opening it, so a FIFO, a device such as ``/dev/zero``, a socket or a generated file
+under ``/proc`` is refused with a one-line message instead of hanging the process or
+filling its memory, and it reads at most the size the file had when it was opened.
+"""
+
+from __future__ import annotations
+
+import errno
+import os
+import stat
+
+from scanmass.errors import ScanmassError
+
+__all__ = ["describe_mode", "display_path", "escape_text", "read_regular", "read_regular_text"]
+
+# Pseudo file systems whose "regular" files are generated on reading (sizes are 0 or 4096).
+_PSEUDO_ROOTS = ("/proc/", "/sys/")
+
+
+def escape_text(text: str) -> str:
+    """``text`` made encodable as UTF-8: each undecodable byte of a name becomes ``\\xNN``.
+
+    File names on POSIX are bytes; Python maps bytes that are not UTF-8 to lone
+    surrogates (``surrogateescape``, U+DC80..U+DCFF), which strict JSON/CSV readers
+    and terminals reject. Each such character is written as the four characters
+    ``\\xNN`` (the byte's hex value, as in a Python bytes literal), so the name stays
+    readable and the bytes can be recovered; any other lone surrogate becomes
+    ``\\uNNNN``. Text that is valid already is returned unchanged, so an escaped name
+    is told from a name that really contains ``\\x`` only by context (rare).
+
+    Examples
+    --------
+    >>> escape_text(b"\\xdcbersicht.png".decode("utf-8", "surrogateescape"))
+    '\\\\xdcbersicht.png'
+    >>> escape_text("Übersicht.png")
+    'Übersicht.png'
+    """
+    try:
+        text.encode("utf-8")
+        return text
+    except UnicodeEncodeError:
+        pass
+    out = []
+    for ch in text:
+        code = ord(ch)
+        if 0xDC80 <= code <= 0xDCFF:
+            out.append(f"\\x{code - 0xDC00:02x}")
+        elif 0xD800 <= code <= 0xDFFF:
+            out.append(f"\\u{code:04x}")
+        else:
+            out.append(ch)
+    return "".join(out)
+
+
+def display_path(path: str | bytes | os.PathLike) -> str:
+    """A path as text that always encodes as UTF-8 (see :func:`escape_text`).
+
+    Examples
+    --------
+    >>> display_path(b"\\xdcbersicht.png")
+    '\\\\xdcbersicht.png'
+    >>> display_path("plain.png")
+    'plain.png'
+    """
+    return escape_text(os.fsdecode(os.fspath(path)))
+
+
+def describe_mode(mode: int) -> str:
+    """What kind of file a ``st_mode`` says this is, in words for a message."""
+    if stat.S_ISREG(mode):
+        return "a regular file"
+    if stat.S_ISDIR(mode):
+        return "a folder"
+    if stat.S_ISFIFO(mode):
+        return "a FIFO (named pipe)"
+    if stat.S_ISCHR(mode):
+        return "a character device"
+    if stat.S_ISBLK(mode):
+        return "a block device"
+    if stat.S_ISSOCK(mode):
+        return "a socket"
+    return "not a regular file"
+
+
+def _is_pseudo(name: str) -> bool:
+    real = os.path.realpath(name)
+    return any(real.startswith(root) or real == root.rstrip("/") for root in _PSEUDO_ROOTS)
+
+
+def read_regular(
+    path: str | bytes | os.PathLike,
+    *,
+    error: type[ScanmassError],
+    what: str = "file",
+    fix: str = "give the path of a regular file",
+    max_bytes: int | None = None,
+) -> bytes:
+    """The bytes of a regular file, refused with ``error`` when the path is anything else.
+
+    Parameters
+    ----------
+    path : str, bytes or os.PathLike
+        The file.
+    error : type of ScanmassError
+        The error raised (ImageError, MaterialError, ...), with a one-line message.
+    what : str
+        What the file should be, for messages ("image", "assembly file").
+    fix : str
+        What the user should do instead, ending the message.
+    max_bytes : int, optional
+        Refuse files larger than this.
+
+    Returns
+    -------
+    bytes
+        At most the size the file had when it was opened (a file that grows while it
+        is read is cut there; one that shrinks gives what is left).
+
+    Raises
+    ------
+    ScanmassError
+        ``error``: missing, a dangling link, a symlink loop, a folder, a FIFO, a device,
+        a socket, a file under /proc or /sys, unreadable, or too large.
+
+    Examples
+    --------
+    >>> from scanmass.errors import ImageError
+    >>> read_regular("/dev/zero", error=ImageError)
+    Traceback (most recent call last):
+    ...
+    scanmass.errors.ImageError: /dev/zero: is a character device, not a regular file; give the path of a regular file
+    """
+    name = display_path(path)
+    real_name = os.fsdecode(os.fspath(path))
+    try:
+        st = os.stat(real_name)
+    except FileNotFoundError:
+        if os.path.islink(real_name):
+            raise error(f"is a link to a missing {what} (dangling link); {fix}", path=name) from None
+        raise error(f"{what} not found; check the path and the current folder", path=name) from None
+    except OSError as exc:
+        if exc.errno == errno.ELOOP:
+            raise error(f"is a symbolic link loop; {fix}", path=name) from None
+        raise error(f"cannot be read ({exc.strerror or exc}); check its permissions", path=name) from None
+    if stat.S_ISDIR(st.st_mode):
+        raise error(f"is a folder, not a {what}; {fix}", path=name)
+    if not stat.S_ISREG(st.st_mode):
+        raise error(f"is {describe_mode(st.st_mode)}, not a regular file; {fix}", path=name)
+    if _is_pseudo(real_name):
+        raise error(f"is a generated system file (under /proc or /sys), not a {what}; {fix}", path=name)
+    if max_bytes is not None and st.st_size > max_bytes:
+        raise error(
+            f"is {st.st_size} bytes, more than the {max_bytes} bytes a {what} may have; {fix}",
+            path=name,
+        )
+    try:
+        # O_NONBLOCK: if the path was swapped for a FIFO since the stat, open must not wait
+        # for a writer; fstat below refuses it.
+        fd = os.open(real_name, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_CLOEXEC", 0))
+    except OSError as exc:
+        raise error(f"cannot be read ({exc.strerror or exc}); check its permissions", path=name) from None
+    try:
+        st = os.fstat(fd)
+        if not stat.S_ISREG(st.st_mode):
+            raise error(f"is {describe_mode(st.st_mode)}, not a regular file; {fix}", path=name)
+        size = st.st_size
+        if max_bytes is not None and size > max_bytes:
+            raise error(f"is {size} bytes, more than the {max_bytes} bytes a {what} may have; {fix}", path=name)
+        chunks: list[bytes] = []
+        left = size
+        try:
+            while left > 0:
+                chunk = os.read(fd, min(left, 1 << 24))
+                if not chunk:
+                    break
+                chunks.append(chunk)
+                left -= len(chunk)
+        except OSError as exc:
+            raise error(f"cannot be read ({exc.strerror or exc}); check the file and its disk", path=name) from None
+    finally:
+        os.close(fd)
+    return b"".join(chunks)
+
+
+def read_regular_text(
+    path: str | bytes | os.PathLike,
+    *,
+    error: type[ScanmassError],
+    what: str = "file",
+    fix: str = "give the path of a regular file",
+    max_bytes: int | None = None,
+) -> str:
+    """:func:`read_regular`, decoded as UTF-8 (a byte-order mark is dropped).
+
+    Raises
+    ------
+    ScanmassError
+        As :func:`read_regular`, or ``error`` when the bytes are not UTF-8.
+    """
+    data = read_regular(path, error=error, what=what, fix=fix, max_bytes=max_bytes)
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise error(
+            f"is not UTF-8 text (byte {exc.start}); save the {what} as UTF-8", path=display_path(path)
+        ) from None
