@@ -141,7 +141,7 @@ def read_regular(
     except FileNotFoundError:
         if os.path.islink(real_name):
             raise error(f"is a link to a missing {what} (dangling link); {fix}", path=name) from None
-        raise error(f"{what} not found; check the path and the current folder", path=name) from None
+        raise error("file not found; check the path and the current folder", path=name) from None
     except OSError as exc:
         if exc.errno == errno.ELOOP:
             raise error(f"is a symbolic link loop; {fix}", path=name) from None
