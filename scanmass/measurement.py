@@ -433,7 +433,7 @@ def read_result(path: str | os.PathLike[str]) -> Measurement:
     text = read_regular_text(
         path,
         error=ResultFormatError,
-        what="result JSON",
+        what="result JSON file",
         fix="pass a result JSON written by 'scanmass measure --json'",
         max_bytes=MAX_RESULT_BYTES,
     )

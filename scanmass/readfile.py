@@ -13,47 +13,21 @@ import errno
 import os
 import stat
 
-from scanmass.errors import ScanmassError
+from scanmass.errors import ScanmassError, escape_text
 
-__all__ = ["describe_mode", "display_path", "escape_text", "read_regular", "read_regular_text"]
+__all__ = [
+    "MAX_TOML_BYTES",
+    "describe_mode",
+    "display_path",
+    "escape_text",
+    "parse_toml",
+    "read_regular",
+    "read_regular_text",
+    "read_toml",
+]
 
 # Pseudo file systems whose "regular" files are generated on reading (sizes are 0 or 4096).
 _PSEUDO_ROOTS = ("/proc/", "/sys/")
-
-
-def escape_text(text: str) -> str:
-    """``text`` made encodable as UTF-8: each undecodable byte of a name becomes ``\\xNN``.
-
-    File names on POSIX are bytes; Python maps bytes that are not UTF-8 to lone
-    surrogates (``surrogateescape``, U+DC80..U+DCFF), which strict JSON/CSV readers
-    and terminals reject. Each such character is written as the four characters
-    ``\\xNN`` (the byte's hex value, as in a Python bytes literal), so the name stays
-    readable and the bytes can be recovered; any other lone surrogate becomes
-    ``\\uNNNN``. Text that is valid already is returned unchanged, so an escaped name
-    is told from a name that really contains ``\\x`` only by context (rare).
-
-    Examples
-    --------
-    >>> escape_text(b"\\xdcbersicht.png".decode("utf-8", "surrogateescape"))
-    '\\\\xdcbersicht.png'
-    >>> escape_text("Übersicht.png")
-    'Übersicht.png'
-    """
-    try:
-        text.encode("utf-8")
-        return text
-    except UnicodeEncodeError:
-        pass
-    out = []
-    for ch in text:
-        code = ord(ch)
-        if 0xDC80 <= code <= 0xDCFF:
-            out.append(f"\\x{code - 0xDC00:02x}")
-        elif 0xD800 <= code <= 0xDFFF:
-            out.append(f"\\u{code:04x}")
-        else:
-            out.append(ch)
-    return "".join(out)
 
 
 def display_path(path: str | bytes | os.PathLike) -> str:
@@ -141,7 +115,7 @@ def read_regular(
     except FileNotFoundError:
         if os.path.islink(real_name):
             raise error(f"is a link to a missing {what} (dangling link); {fix}", path=name) from None
-        raise error("file not found; check the path and the current folder", path=name) from None
+        raise error(f"{what.split(' (')[0]} not found; check the path and the current folder", path=name) from None
     except OSError as exc:
         if exc.errno == errno.ELOOP:
             raise error(f"is a symbolic link loop; {fix}", path=name) from None
@@ -208,3 +182,42 @@ def read_regular_text(
         raise error(
             f"is not UTF-8 text (byte {exc.start}); save the {what} as UTF-8", path=display_path(path)
         ) from None
+
+
+#: Largest settings, materials or assembly TOML file read (bytes).
+MAX_TOML_BYTES = 1 << 24
+
+
+def parse_toml(text: str, *, error: type[ScanmassError], path: str | None, fix: str = "fix the file's syntax") -> dict:
+    """Parse TOML text; syntax errors and absurd nesting become one-line ``error``.
+
+    Examples
+    --------
+    >>> from scanmass.errors import OptionError
+    >>> parse_toml("a = " + "[" * 5000 + "]" * 5000, error=OptionError, path="deep.toml")
+    Traceback (most recent call last):
+    ...
+    scanmass.errors.OptionError: deep.toml: TOML nested too deeply (arrays or tables inside each other thousands of levels deep); fix the file's syntax
+    """
+    import tomllib
+
+    try:
+        return tomllib.loads(text)
+    except RecursionError:
+        raise error(
+            f"TOML nested too deeply (arrays or tables inside each other thousands of levels deep); {fix}", path=path
+        ) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise error(f"not valid TOML ({exc}); {fix}", path=path) from None
+
+
+def read_toml(
+    path: str | bytes | os.PathLike,
+    *,
+    error: type[ScanmassError],
+    what: str = "TOML file",
+    fix: str = "fix the file's syntax",
+) -> dict:
+    """Read and parse a TOML file with :func:`read_regular_text` and :func:`parse_toml`."""
+    text = read_regular_text(path, error=error, what=what, fix=f"give the path of a {what}", max_bytes=MAX_TOML_BYTES)
+    return parse_toml(text, error=error, path=display_path(path), fix=fix)

@@ -29,7 +29,7 @@ from pathlib import Path
 from typing import IO, Any
 
 from scanmass.batch.settings import canonical
-from scanmass.errors import OptionError, OutputError, ResultFormatError
+from scanmass.errors import OptionError, OutputError, ResultFormatError, escape_text
 from scanmass.measurement import CSV_COLUMNS
 from scanmass.outputs.atomic import clean_leftovers, write_atomic
 
@@ -342,12 +342,14 @@ class Store:
         return self.conn.execute(
             "SELECT path, result FROM files WHERE content_sha256=? AND settings_sha256=? AND status='ok' AND path<>? "
             "ORDER BY id LIMIT 1",
-            (content, settings, not_path),
+            (content, settings, escape_text(not_path)),
         ).fetchone()
 
     def update_stat(self, path: str, size_bytes: int | None, mtime_ns: int | None) -> None:
         with self.transaction():
-            self.conn.execute("UPDATE files SET size_bytes=?, mtime_ns=? WHERE path=?", (size_bytes, mtime_ns, path))
+            self.conn.execute(
+                "UPDATE files SET size_bytes=?, mtime_ns=? WHERE path=?", (size_bytes, mtime_ns, escape_text(path))
+            )
 
     def write_file(
         self,
@@ -365,8 +367,17 @@ class Store:
         cpu_seconds: float | None = None,
         worker: str | None = None,
     ) -> None:
-        """Record one finished file (and its parts) in one transaction."""
+        """Record one finished file (and its parts) in one transaction.
+
+        Paths are stored as text that is always UTF-8: a name that is not valid UTF-8
+        is kept with each undecodable byte written as ``\\xNN`` (see
+        :func:`scanmass.errors.escape_text`).
+        """
         now = utc_now()
+        db_path = escape_text(job.path)
+        error = None if error is None else escape_text(error)
+        same_as = None if same_as is None else escape_text(same_as)
+        result = None if result is None else escape_text(result)
         with self.transaction():
             self.conn.execute(
                 "INSERT INTO files (path, size_bytes, mtime_ns, content_sha256, settings_sha256, settings, status, "
@@ -379,7 +390,7 @@ class Store:
                 "cpu_seconds=excluded.cpu_seconds, "
                 "worker=excluded.worker, run_id=excluded.run_id, result=excluded.result",
                 (
-                    job.path,
+                    db_path,
                     job.size_bytes,
                     job.mtime_ns,
                     job.content_sha256,
@@ -397,7 +408,7 @@ class Store:
                     result,
                 ),
             )
-            file_id = self.conn.execute("SELECT id FROM files WHERE path=?", (job.path,)).fetchone()[0]
+            file_id = self.conn.execute("SELECT id FROM files WHERE path=?", (db_path,)).fetchone()[0]
             self.conn.execute("DELETE FROM parts WHERE file_id=?", (file_id,))
             names = [name for name, _ in _PART_COLUMNS]
             self.conn.executemany(
@@ -410,7 +421,7 @@ class Store:
         rows = self.conn.execute("SELECT path, error FROM files WHERE status='failed' ORDER BY path").fetchall()
         if paths is None:
             return [(r[0], r[1] or "") for r in rows]
-        wanted = set(paths)
+        wanted = {escape_text(p) for p in paths}
         return [(r[0], r[1] or "") for r in rows if r[0] in wanted]
 
     def write_reports(self) -> list[Path]:

@@ -782,24 +782,30 @@ def _verify_jpeg(data: bytes, name: str) -> None:
         )
 
 
-def _decoded_bytes(im: Image.Image, bits: int, deep: bool) -> tuple[int, int, int]:
-    """(bytes, channels, bytes per sample) the decoded pixels take: width x height x channels x bytes."""
+def _decoded_bytes(im: Image.Image, bits: int, deep: bool) -> tuple[int, int, int, int]:
+    """(bytes, channels, bytes per sample, copies) the decoded pixels take.
+
+    bytes = width x height x channels x bytes per sample x copies.
+    """
     width, height = im.size
     channels = len(im.getbands())
     per_sample = 2 if deep else max(1, (bits + 7) // 8)
     if im.mode in ("I", "F"):
         per_sample = 4
-    return width * height * channels * per_sample, channels, per_sample
+    # OpenCV decodes 16-bit colour PNG into one buffer and reorders the channels into a second
+    copies = 2 if deep and im.format == "PNG" else 1
+    return width * height * channels * per_sample * copies, channels, per_sample, copies
 
 
 def _check_memory(im: Image.Image, bits: int, deep: bool, max_pixels: int, name: str, fmt: str) -> None:
     """Refuse a file whose decoded pixels would need more than the memory budget (bytes)."""
-    need, channels, per_sample = _decoded_bytes(im, bits, deep)
+    need, channels, per_sample, copies = _decoded_bytes(im, bits, deep)
     budget = BUDGET_BYTES_PER_PIXEL * max_pixels
     if need > budget:
         width, height = im.size
+        twice = " x 2 copies" if copies == 2 else ""
         raise ImageError(
-            f"{fmt} image of {width} x {height} px x {channels} channel(s) x {per_sample} byte(s) needs "
+            f"{fmt} image of {width} x {height} px x {channels} channel(s) x {per_sample} byte(s){twice} needs "
             f"{need / 1e9:.2f} GB to decode, over the memory budget of {budget / 1e9:.2f} GB "
             f"({BUDGET_BYTES_PER_PIXEL} bytes per pixel of --max-pixels); if the file is trusted, raise the "
             f"limit with --max-pixels N (N >= {-(-need // BUDGET_BYTES_PER_PIXEL)})",
