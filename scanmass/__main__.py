@@ -1,5 +1,5 @@
 """``python -m scanmass`` runs the command line."""
 
-from scanmass.cli.app import app
+from scanmass.cli.app import run
 
-app(prog_name="scanmass")
+run()

@@ -189,6 +189,8 @@ class Part:
     mass_u_g: float | None = None
     mass: dict[str, Any] | None = None
     outline_mm: np.ndarray | None = field(default=None, repr=False)
+    filled_holes: int = 0
+    filled_hole_area_mm2: float = 0.0
 
 
 @dataclass

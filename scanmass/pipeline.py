@@ -192,8 +192,19 @@ def measure_image(
         "polarity": seg.polarity,
         "specks_ignored": seg.specks,
     }
+    warnings = list(seg.warnings)
+    filled = [p for p in parts if p.filled_holes]
+    if filled:
+        count = sum(p.filled_holes for p in filled)
+        area = sum(p.filled_hole_area_mm2 for p in filled)
+        limit = options.min_hole_area_mm2 if options.min_hole_area_mm2 is not None else options.min_area_mm2
+        labels = ", ".join(str(p.label) for p in filled[:10]) + (", ..." if len(filled) > 10 else "")
+        warnings.append(
+            f"{count} hole(s) smaller than the minimum hole area ({limit:g} mm2) were filled and count as material "
+            f"({area:.4g} mm2 in part(s) {labels}; see filled_holes); lower --min-hole-area to measure them"
+        )
     return Measurement(
-        source=source, scale=scale, parts=parts, warnings=list(seg.warnings), cut_parts=cut_parts, settings=settings
+        source=source, scale=scale, parts=parts, warnings=warnings, cut_parts=cut_parts, settings=settings
     )
 
 
@@ -321,4 +332,6 @@ def measure_part(rings: PartRings, plane_map: PlaneMap) -> Part:
         cut=rings.cut,
         uncertainty_terms=terms,
         outline_mm=outer_mm,
+        filled_holes=rings.filled_holes,
+        filled_hole_area_mm2=rings.filled_hole_area_px * plane_map.mm_per_px**2,
     )

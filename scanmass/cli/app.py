@@ -7,11 +7,13 @@ exit code 1. Nothing here computes.
 
 from __future__ import annotations
 
+import errno
 import functools
 import inspect
+import os
 import sys
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from pathlib import Path
 from typing import Annotated, Any, Literal, NoReturn, cast
 
@@ -54,6 +56,29 @@ def user_errors() -> Iterator[None]:
         yield
     except ScanmassError as exc:
         fail(str(exc))
+
+
+def _write_stdout(text: str) -> None:
+    """Write data to standard output; a full or closed stdout is an OutputError (one line)."""
+    from scanmass.outputs.atomic import write_atomic
+
+    write_atomic("-", text)
+
+
+def run() -> None:
+    """The console entry point: :data:`app`, with a full or closed standard output as a one-line error."""
+    try:
+        app(prog_name="scanmass")
+    except OSError as exc:
+        if exc.errno not in (errno.EPIPE, errno.ENOSPC, errno.EBADF, errno.EIO):
+            raise
+        with suppress(OSError, AttributeError, ValueError):  # keep the exit flush quiet
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, sys.stdout.fileno())
+        reason = "is full (no space left on the device)" if exc.errno == errno.ENOSPC else "was closed"
+        with suppress(OSError, AttributeError, ValueError):
+            sys.stderr.write(f"error: standard output {reason}; write the results to a file instead\n")
+        sys.exit(EXIT_USER_ERROR)
 
 
 def _version(value: bool) -> None:
@@ -177,9 +202,11 @@ def measure(
 
     with user_errors():
         result = measure_to_outputs(image, options, json_out=json_out, csv_out=csv_out, overlay_out=overlay_out)
-    if json_out == "-":
-        sys.stdout.write(result.document + "\n")
-        return
+        if json_out == "-":
+            _write_stdout(result.document + "\n")
+            return
+    if "-" in (str(csv_out), str(overlay_out)):
+        quiet = True  # standard output carries the data; no table in it
     if not quiet:
         _print_measurement(result.measurement)
         for written in result.written:
@@ -224,7 +251,8 @@ def _emit_json(json_out: str | None, text: str, inputs: list[Path]) -> None:
     from scanmass.outputs.atomic import write_atomic
 
     if json_out == "-":
-        sys.stdout.write(text + "\n")
+        with user_errors():
+            _write_stdout(text + "\n")
     elif json_out is not None:
         with user_errors():
             written = write_atomic(json_out, text + "\n", inputs=inputs)
@@ -591,6 +619,8 @@ def batch(
         f"{summary.found} file(s): {summary.measured} measured, {summary.failed} failed, "
         f"{summary.duplicates} duplicate(s), {summary.unchanged} unchanged"
     )
+    if summary.vanished:
+        line += f", {summary.vanished} deleted while the batch ran"
     if summary.failed_earlier:
         line += f", {summary.failed_earlier} failed before (not retried; --retry-failed)"
     line += f" in {summary.seconds:.1f} s" + (f" ({rate:.2f} files/s, {summary.backend})" if rate else "")
@@ -634,7 +664,7 @@ def batch_export(
     with user_errors():
         if out == "-":
             for piece in iter_export(out_dir, format=cast(ExportFormat, format)):
-                sys.stdout.write(piece)
+                _write_stdout(piece)
             return
         written = export_batch(out_dir, format=cast(ExportFormat, format), out=out)
     _console(stderr=True).print(f"wrote {escape(str(written))}", markup=False)
