@@ -105,7 +105,16 @@ def measure_loaded(
     if scale_method(image, opts) == "dpi":
         result = measure_image(image, opts)
     else:
-        result = measure_photo(image, opts, thickness_mm=opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm)
+        # a resolution in the file that was refused as implausible is said, not dropped
+        refused_dpi = image.dpi is None and "came from the file" in (image.dpi_note or "")
+        try:
+            result = measure_photo(image, opts, thickness_mm=opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm)
+        except ScaleError as exc:
+            if refused_dpi:
+                raise ScaleError(f"{exc}; also: {image.dpi_note}", path=image.path) from None
+            raise
+        if refused_dpi:
+            result.warnings.append(f"resolution stored in the file not used: {image.dpi_note}")
     if opts.material is not None and opts.thickness_mm is not None:  # check() refuses a material alone
         from scanmass.mass.plate import apply_mass  # mass works on Measurements only
 

@@ -22,7 +22,7 @@ from rich.console import Console
 from rich.markup import escape
 
 from scanmass import __version__
-from scanmass.errors import ScanmassError
+from scanmass.errors import ScanmassError, escape_text
 from scanmass.options import OPTION_NAMES, MeasureOptions, option_field
 
 app = typer.Typer(
@@ -38,9 +38,28 @@ app = typer.Typer(
 EXIT_USER_ERROR = 1
 
 
+class _EscapingStream:
+    """A text stream proxy that writes undecodable bytes of file names as ``\\xNN``.
+
+    Paths of files whose names are not UTF-8 carry lone surrogates, which a UTF-8
+    terminal or pipe refuses with UnicodeEncodeError (see scanmass.errors.escape_text).
+    """
+
+    def __init__(self, stream: Any) -> None:
+        self._stream = stream
+
+    def write(self, text: str) -> int:
+        return self._stream.write(escape_text(text))
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._stream, name)
+
+
 def _console(stderr: bool = False) -> Console:
     # messages on stderr never wrap: an error stays one line however narrow the terminal
-    return Console(stderr=stderr, highlight=False, soft_wrap=stderr)
+    stream = sys.stderr if stderr else sys.stdout
+    file = None if stream is None else cast(Any, _EscapingStream(stream))
+    return Console(stderr=stderr, file=file, highlight=False, soft_wrap=stderr)
 
 
 def fail(message: str) -> NoReturn:

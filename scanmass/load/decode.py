@@ -35,6 +35,7 @@ import sys
 import tempfile
 import threading
 import warnings
+import zlib
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -594,9 +595,7 @@ def _read_file(path: str | os.PathLike) -> tuple[bytes, str]:
     name = os.fspath(path)
     if isinstance(name, bytes):
         name = os.fsdecode(name)
-    data = read_regular(
-        name, error=ImageError, what="image file", fix=f"give the path of a {_FORMAT_NAMES} file"
-    )
+    data = read_regular(name, error=ImageError, what="image file", fix=f"give the path of a {_FORMAT_NAMES} file")
     if not data:
         raise ImageError("file is empty (0 bytes); scan or export the image again", path=display_path(name))
     return data, name
@@ -779,6 +778,59 @@ def _verify_jpeg(data: bytes, name: str) -> None:
         line = next((ln for ln in text.splitlines() if _JPEG_DAMAGE.search(ln)), "the decoder failed")
         raise ImageError(
             f"JPEG image is damaged ({' '.join(line.split())}); copy or export it again", path=display_path(name)
+        )
+
+
+def _verify_png(data: bytes, name: str) -> None:
+    """Refuse a PNG whose chunks or compressed pixel stream are damaged.
+
+    Pillow (like many readers) neither checks the CRC of the image-data chunks nor the
+    zlib stream's Adler-32 checksum: it stops inflating when the image is full, so
+    flipped bytes in the middle of the stream can give wrong pixels without a word.
+    Here every chunk's CRC-32 is checked, and the whole zlib stream is inflated in
+    pieces of 4 MiB (the output is discarded) to its end and its checksum.
+
+    References
+    ----------
+    .. [1] W3C, Portable Network Graphics (PNG) Specification (Third Edition), sections
+       5.3 (chunk layout, CRC) and 10 (compression: zlib datastream, RFC 1950).
+    """
+    shown = display_path(name)
+    pos, end = 8, len(data)
+    idat: list[bytes] = []
+    while pos + 12 <= end:
+        (length,) = struct.unpack_from(">I", data, pos)
+        kind = data[pos + 4 : pos + 8]
+        body_end = pos + 8 + length
+        if body_end + 4 > end:
+            break  # truncated: pillow's decode says so
+        (crc,) = struct.unpack_from(">I", data, body_end)
+        if zlib.crc32(data[pos + 4 : body_end]) & 0xFFFFFFFF != crc:
+            raise ImageError(
+                f"PNG image is damaged (CRC error in a {kind.decode('latin-1', 'replace')} chunk); copy or export it again",
+                path=shown,
+            )
+        if kind == b"IDAT":
+            idat.append(data[pos + 8 : body_end])
+        elif kind == b"IEND":
+            break
+        pos = body_end + 4
+    if not idat:
+        return
+    inflater = zlib.decompressobj()
+    piece = 1 << 22
+    try:
+        inflater.decompress(b"".join(idat), piece)
+        while inflater.unconsumed_tail:
+            inflater.decompress(inflater.unconsumed_tail, piece)
+    except zlib.error as exc:
+        raise ImageError(
+            f"PNG image is damaged (compressed pixel data: {exc}); copy or export it again", path=shown
+        ) from None
+    if not inflater.eof:
+        raise ImageError(
+            "PNG image is truncated or damaged (the compressed pixel data end early); copy or export it again",
+            path=shown,
         )
 
 
@@ -1305,6 +1357,8 @@ def load_image(
             # time, and the exact Y the encoder stored.
             im.draft("L", im.size)
         _check_memory(im, bits, deep, max_pixels, name, fmt)
+        if im.format == "PNG":
+            _verify_png(data, name)
         if deep:
             # 16-bit colour: pillow would cut it to 8 bits; decode it once, elsewhere
             # (that decoder refuses damaged data itself).
