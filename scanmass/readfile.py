@@ -147,7 +147,12 @@ def read_regular(
         chunks: list[bytes] = []
         left = size
         try:
-            while left > 0:
+            first = os.read(fd, left) if left > 0 else b""
+            if len(first) == size:
+                return first  # the usual case: one read, no copy
+            chunks.append(first)
+            left -= len(first)
+            while left > 0 and first:
                 chunk = os.read(fd, min(left, 1 << 24))
                 if not chunk:
                     break

@@ -797,7 +797,7 @@ def _verify_png(data: bytes, name: str) -> None:
     """
     shown = display_path(name)
     pos, end = 8, len(data)
-    idat: list[bytes] = []
+    idat: list[memoryview] = []
     while pos + 12 <= end:
         (length,) = struct.unpack_from(">I", data, pos)
         kind = data[pos + 4 : pos + 8]
@@ -805,24 +805,27 @@ def _verify_png(data: bytes, name: str) -> None:
         if body_end + 4 > end:
             break  # truncated: pillow's decode says so
         (crc,) = struct.unpack_from(">I", data, body_end)
-        if zlib.crc32(data[pos + 4 : body_end]) & 0xFFFFFFFF != crc:
+        if zlib.crc32(memoryview(data)[pos + 4 : body_end]) & 0xFFFFFFFF != crc:
             raise ImageError(
                 f"PNG image is damaged (CRC error in a {kind.decode('latin-1', 'replace')} chunk); copy or export it again",
                 path=shown,
             )
         if kind == b"IDAT":
-            idat.append(data[pos + 8 : body_end])
+            idat.append(memoryview(data)[pos + 8 : body_end])
         elif kind == b"IEND":
             break
         pos = body_end + 4
     if not idat:
         return
     inflater = zlib.decompressobj()
-    piece = 1 << 22
+    piece, step = 1 << 20, 1 << 16  # output and input slices: memory stays at a few MiB
     try:
-        inflater.decompress(b"".join(idat), piece)
-        while inflater.unconsumed_tail:
-            inflater.decompress(inflater.unconsumed_tail, piece)
+        for chunk in idat:
+            view = memoryview(chunk)
+            for start in range(0, len(view), step):
+                inflater.decompress(view[start : start + step], piece)
+                while inflater.unconsumed_tail:
+                    inflater.decompress(inflater.unconsumed_tail, piece)
     except zlib.error as exc:
         raise ImageError(
             f"PNG image is damaged (compressed pixel data: {exc}); copy or export it again", path=shown
