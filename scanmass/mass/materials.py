@@ -121,7 +121,7 @@ def _build(key: str, entry: Mapping[str, Any], where: str | None) -> Material:
             path=where,
         )
     aliases = entry.get("aliases", [])
-    if isinstance(aliases, str) or not all(isinstance(a, str) for a in aliases):
+    if not isinstance(aliases, list) or not all(isinstance(a, str) for a in aliases):
         raise MaterialError(f"material {key!r}: aliases must be a list of strings", path=where)
     return Material(
         key=key,
