@@ -109,21 +109,23 @@ def _classify(path: PathLike) -> _Target:
         if stat.S_ISDIR(st.st_mode) or stat.S_ISBLK(st.st_mode):
             raise OutputError(f"names {describe_mode(st.st_mode)}; give a file name instead", path=shown)
         return _Target(given=text, kind="fd", fd=fd, key=("ino", st.st_dev, st.st_ino))
+    found: os.stat_result | None
     try:
-        st = os.stat(text)
+        found = os.stat(text)
     except FileNotFoundError:
-        st = None
+        found = None
     except OSError as exc:
         if exc.errno == errno.ELOOP:
             raise OutputError("is a symbolic link loop; give another output name", path=shown) from None
-        st = None
+        found = None
     real = os.path.realpath(text)
     if any(real.startswith(root) or real == root.rstrip("/") for root in _PSEUDO_ROOTS):
         raise OutputError(
             "leads into /proc or /sys (system files, not a place for results); give an ordinary file name",
             path=shown,
         )
-    if st is not None:
+    if found is not None:
+        st = found
         if stat.S_ISDIR(st.st_mode):
             example = Path(text) / "result.json"
             raise OutputError(f"is a folder; give a file name inside it, e.g. {display_path(example)}", path=shown)
@@ -269,7 +271,7 @@ def clean_leftovers(folder: PathLike) -> list[Path]:
     removed: list[Path] = []
     host = _host_tag()
     try:
-        entries = list(os.scandir(folder))
+        entries = list(os.scandir(_text(folder)))
     except OSError:
         return removed
     now = time.time()
