@@ -598,3 +598,14 @@ def test_deeply_nested_result_json_is_one_line(tmp_path):
 def test_enospc_message_names_the_stream():
     exc = OSError(errno.ENOSPC, "No space left on device")
     assert "full" in str(atomic._stream_error(atomic._Target(given="-", kind="stdout"), exc))
+
+
+def test_report_overlay_on_dev_zero_is_one_line(tmp_path):
+    m = measure(scan(tmp_path / "scan.png"))
+    result_json = tmp_path / "r.json"
+    result_json.write_text(m.to_json(), encoding="utf-8")
+    zero = link(tmp_path, "ov.png", "/dev/zero")
+    result = runner.invoke(
+        app, ["report", str(result_json), "--overlay", str(zero), "--html", str(tmp_path / "r.html")]
+    )
+    one_line_error(result, "character device")

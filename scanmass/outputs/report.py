@@ -32,6 +32,7 @@ from scanmass.measurement import CSV_COLUMNS, Measurement, Part
 from scanmass.outputs.atomic import write_atomic
 from scanmass.outputs.formatting import _finite, format_value
 from scanmass.outputs.resultio import PathLike, as_measurement
+from scanmass.readfile import read_regular
 
 __all__ = [
     "CAUTIONS",
@@ -351,14 +352,10 @@ def _png_data_uri(data: bytes | PathLike, *, what: str) -> tuple[str, tuple[int,
         raw = bytes(data)
     else:
         path = os.fspath(data)
-        try:
-            raw = Path(path).read_bytes()
-        except FileNotFoundError:
-            raise ImageError(
-                f"{what} not found; pass the overlay PNG written by 'scanmass measure --overlay'", path=path
-            ) from None
-        except OSError as exc:
-            raise ImageError(f"{what} cannot be read ({exc.strerror}); check its permissions", path=path) from None
+        # regular files only, never past their size (a FIFO or /dev/zero is refused)
+        raw = read_regular(
+            path, error=ImageError, what=what, fix="pass the overlay PNG written by 'scanmass measure --overlay'"
+        )
     if not raw.startswith(b"\x89PNG\r\n\x1a\n"):
         raise ImageError(
             f"{what} is not a PNG image; pass the overlay PNG written by 'scanmass measure --overlay'", path=path
