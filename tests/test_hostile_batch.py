@@ -252,3 +252,27 @@ def test_corrupted_database_page_fails_cleanly(tmp_path):
     with pytest.raises(ResultFormatError, match="damaged"):
         run_batch(scans, out, workers=0)
     assert not (out / ".scanmass-batch.lock").exists()
+
+
+def test_a_problem_that_is_gone_leaves_the_failures(tmp_path, monkeypatch):
+    root = tmp_path / "scans"
+    root.mkdir()
+    scan(root / "a.png")
+    os.mkfifo(root / "pipe.png")
+    (root / "locked").mkdir()
+    real = os.scandir
+    monkeypatch.setattr(
+        discover.os,
+        "scandir",
+        lambda p: (
+            (_ for _ in ()).throw(PermissionError(13, "Permission denied")) if Path(p).name == "locked" else real(p)
+        ),
+    )
+    out = tmp_path / "out"
+    first = run_batch(root, out, workers=0)
+    assert {Path(p).name for p, _ in first.failures} == {"pipe.png", "locked"}
+    monkeypatch.setattr(discover.os, "scandir", real)  # the folder is readable again
+    (root / "pipe.png").unlink()  # the FIFO is removed
+    second = run_batch(root, out, workers=0)
+    assert second.ok and second.unchanged == 1
+    assert (out / "failures.csv").read_text(encoding="utf-8") == "file,error\n"

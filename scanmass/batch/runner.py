@@ -53,7 +53,7 @@ from scanmass.batch.settings import (
     settings_hash,
     validate_settings,
 )
-from scanmass.batch.store import DB_NAME, Job, Record, Store
+from scanmass.batch.store import DB_NAME, DISCOVERY, Job, Record, Store
 from scanmass.errors import OptionError, OutputError, escape_text
 from scanmass.options import MeasureOptions, check_option_names
 
@@ -321,7 +321,17 @@ class _Runner:
         return todo, records
 
     def _record_problems(self, problems: Sequence[tuple[Path, str]]) -> None:
-        """Record what the folders hold but cannot be measured, as failures (once per run)."""
+        """Record what the folders hold but cannot be measured, as failures (once per run).
+
+        Such a record of an earlier run whose problem is gone (the folder is readable
+        again, the link was removed) is deleted, unless the path is now a file to measure.
+        """
+        current = {escape_text(str(path)) for path, _ in problems}
+        roots = tuple(escape_text(str(f)).rstrip(os.sep) + os.sep for f in self.folders)
+        stale = {p for p in self.store.discovery_failures() - current if p.startswith(roots) and not os.path.isfile(p)}
+        if stale:
+            self.store.forget(stale)
+            self.changed = True
         if not problems:
             return
         shash = settings_hash(self.base_options)
@@ -333,7 +343,7 @@ class _Runner:
                 continue
             self.problems_recorded.add((key, error))
             job = Job(root=path.parent, path=key, options=self.base_options, settings_sha256=shash)
-            self.store.write_file(job, run_id=self.run_id, status="failed", error=error)
+            self.store.write_file(job, run_id=self.run_id, status="failed", error=error, worker=DISCOVERY)
             self._count(job, "failed", error)
 
     # -- one cycle ----------------------------------------------------------------------

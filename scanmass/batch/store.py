@@ -58,6 +58,9 @@ FAILURES_CSV = "failures.csv"
 DUPLICATES_CSV = "duplicates.csv"
 _LOCK_NAME = ".scanmass-batch.lock"
 
+#: ``worker`` of the records written for what the folder listing could not look at.
+DISCOVERY = "discovery"
+
 #: Version of the database layout (``PRAGMA user_version``).
 DB_VERSION = 1
 
@@ -415,6 +418,16 @@ class Store:
                 f"INSERT INTO parts (file_id, {', '.join(names)}, row_json) VALUES (?, {', '.join('?' * len(names))}, ?)",
                 [(file_id, *[row.get(n) for n in names], canonical(row)) for row in rows],
             )
+
+    def discovery_failures(self) -> set[str]:
+        """Paths recorded as failed by the folder listing itself (worker ``discovery``)."""
+        rows = self.conn.execute("SELECT path FROM files WHERE status='failed' AND worker=?", (DISCOVERY,))
+        return {r[0] for r in rows}
+
+    def forget(self, paths: Iterable[str]) -> None:
+        """Delete the records of these paths (escaped as stored), in one transaction."""
+        with self.transaction():
+            self.conn.executemany("DELETE FROM files WHERE path=?", [(p,) for p in paths])
 
     # -- reports ------------------------------------------------------------------------
     def failures(self, paths: Iterable[str] | None = None) -> list[tuple[str, str]]:
