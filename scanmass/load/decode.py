@@ -1006,6 +1006,8 @@ def _reduce_band(band: np.ndarray, *, premultiplied: bool = False) -> np.ndarray
         grey = band[..., 0]
     if channels in (2, 4):
         alpha = band[..., channels - 1]
+        if int(alpha.min()) == np.iinfo(grey.dtype).max:
+            return grey  # opaque band (the usual case): compositing over white changes nothing
         if premultiplied:
             top = np.iinfo(grey.dtype).max
             wide = grey.astype(np.uint32) + (top - alpha.astype(np.uint32))
@@ -1360,7 +1362,8 @@ def load_image(
             # time, and the exact Y the encoder stored.
             im.draft("L", im.size)
         _check_memory(im, bits, deep, max_pixels, name, fmt)
-        if im.format == "PNG":
+        if im.format == "PNG" and not deep:
+            # (16-bit colour goes through libpng, which checks the CRCs and the stream itself)
             _verify_png(data, name)
         if deep:
             # 16-bit colour: pillow would cut it to 8 bits; decode it once, elsewhere
