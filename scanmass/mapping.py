@@ -54,6 +54,9 @@ class MappedPart:
         local levels.
     sample_rings_mm : tuple of (outer, holes)
         The rings through each sampled map of the plane map (empty when it has none).
+    filled_holes, filled_hole_area_mm2 : int, float
+        Holes below the minimum hole area that segmentation filled (they count as
+        material), and their total area at the part's mean pixel size.
     """
 
     label: int
@@ -67,6 +70,8 @@ class MappedPart:
     blur_px: float
     level_rel_u: float
     sample_rings_mm: tuple[tuple[np.ndarray, tuple[np.ndarray, ...]], ...] = ()
+    filled_holes: int = 0
+    filled_hole_area_mm2: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -115,6 +120,8 @@ def map_part(rings: PartRings, plane_map: PlaneMap) -> MappedPart:
         blur_px=rings.blur_px,
         level_rel_u=rings.level_rel_u,
         sample_rings_mm=tuple(samples),
+        filled_holes=rings.filled_holes,
+        filled_hole_area_mm2=float(rings.filled_hole_area_px * np.mean(scales[0]) ** 2),
     )
 
 

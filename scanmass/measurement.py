@@ -13,13 +13,13 @@ import json
 import math
 import os
 from dataclasses import asdict, dataclass, field, fields
-from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from scanmass.errors import ResultFormatError
 from scanmass.names import FIGURES, check_units, unit_suffix
+from scanmass.readfile import display_path, escape_text, read_regular_text
 
 __all__ = [
     "SCHEMA",
@@ -58,6 +58,9 @@ AXES_UNDEFINED_U_DEG = 10.0
 
 _OUTLINE_DECIMALS = 5
 
+#: Largest result JSON read (bytes); a 2000-part result with outlines is a few tens of MB.
+MAX_RESULT_BYTES = 1 << 29
+
 
 def _clean(value: Any) -> Any:
     """Turn numpy scalars/arrays and tuples into plain JSON values; NaN -> None."""
@@ -74,7 +77,16 @@ def _clean(value: Any) -> Any:
         return int(value)
     if isinstance(value, (np.bool_,)):
         return bool(value)
+    if isinstance(value, str):
+        return escape_text(value)  # undecodable bytes of file names as \xNN: strict JSON/CSV readers accept it
     return value
+
+
+def _label(value: Any, what: str) -> int:
+    """A part or hole label: a whole number (``2`` or ``2.0``), else a ValueError."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not float(value).is_integer():
+        raise ValueError(f"{what} label {value!r} is not a whole number")
+    return int(value)
 
 
 def _ring_to_list(ring: np.ndarray | None) -> list[list[float]] | None:
@@ -209,6 +221,8 @@ class Part:
     caliper_max_u_mm: float | None = None
     caliper_min_u_mm: float | None = None
     outline_mm: np.ndarray | None = field(default=None, repr=False)
+    filled_holes: int = 0
+    filled_hole_area_mm2: float = 0.0
 
     def __post_init__(self) -> None:
         for name, value in derived_uncertainties(self).items():
@@ -396,10 +410,12 @@ class Measurement:
                 for h in p.pop("holes", []):
                     h = dict(h)
                     h["outline_mm"] = _ring_from_list(h.get("outline_mm"))
+                    h["label"] = _label(h.get("label"), "hole")
                     for key in ("centroid_mm", "centroid_u_mm", "circle_centre_mm", "circle_centre_u_mm"):
                         h[key] = _tuple(h[key])
                     holes.append(Hole(**h))
                 p["outline_mm"] = _ring_from_list(p.get("outline_mm"))
+                p["label"] = _label(p.get("label"), "part")
                 for key in ("centroid_mm", "centroid_u_mm", "bbox_mm"):
                     p[key] = _tuple(p[key])
                 parts.append(Part(holes=holes, **p))
@@ -422,6 +438,11 @@ class Measurement:
         """Parse a result document from JSON text."""
         try:
             doc = json.loads(text)
+        except RecursionError:
+            raise ResultFormatError(
+                "JSON nested too deeply to be a result document; pass a file written by 'scanmass measure --json'",
+                path=path,
+            ) from None
         except json.JSONDecodeError as exc:
             raise ResultFormatError(
                 f"not valid JSON ({exc.msg} at line {exc.lineno}); pass a file written by 'scanmass measure --json'",
@@ -491,18 +512,12 @@ def read_result(path: str | os.PathLike[str]) -> Measurement:
         The file is missing, unreadable, not JSON, or of another schema; the message
         names the file.
     """
-    name = os.fspath(path)
-    p = Path(name)
-    if not p.exists():
-        raise ResultFormatError("file not found; pass a result JSON written by 'scanmass measure --json'", path=name)
-    if not p.is_file():
-        raise ResultFormatError("is not a file; pass a result JSON written by 'scanmass measure --json'", path=name)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except UnicodeDecodeError:
-        raise ResultFormatError(
-            "is not UTF-8 text; pass a result JSON written by 'scanmass measure --json'", path=name
-        ) from None
-    except OSError as exc:
-        raise ResultFormatError(f"cannot be read ({exc.strerror}); check its permissions", path=name) from None
+    name = display_path(path)
+    text = read_regular_text(
+        path,
+        error=ResultFormatError,
+        what="result JSON file",
+        fix="pass a result JSON written by 'scanmass measure --json'",
+        max_bytes=MAX_RESULT_BYTES,
+    )
     return Measurement.from_json(text, path=name)

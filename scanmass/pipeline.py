@@ -122,7 +122,16 @@ def measure_loaded(
     if scale_method(image, opts) == "dpi":
         result = measure_image(image, opts)
     else:
-        result = measure_photo(image, opts, thickness_mm=opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm)
+        # a resolution in the file that was refused as implausible is said, not dropped
+        refused_dpi = image.dpi is None and "came from the file" in (image.dpi_note or "")
+        try:
+            result = measure_photo(image, opts, thickness_mm=opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm)
+        except ScaleError as exc:
+            if refused_dpi:
+                raise ScaleError(f"{exc}; also: {image.dpi_note}", path=image.path) from None
+            raise
+        if refused_dpi:
+            result.warnings.append(f"resolution stored in the file not used: {image.dpi_note}")
     if opts.material is not None and opts.thickness_mm is not None:  # check() refuses a material alone
         from scanmass.mass.plate import apply_mass  # mass works on Measurements only
 
@@ -249,8 +258,19 @@ def measure_image(
         "polarity": seg.polarity,
         "specks_ignored": seg.specks,
     }
+    warnings = list(seg.warnings)
+    filled = [p for p in parts if p.filled_holes]
+    if filled:
+        count = sum(p.filled_holes for p in filled)
+        area = sum(p.filled_hole_area_mm2 for p in filled)
+        limit = options.min_hole_area_mm2 if options.min_hole_area_mm2 is not None else options.min_area_mm2
+        labels = ", ".join(str(p.label) for p in filled[:10]) + (", ..." if len(filled) > 10 else "")
+        warnings.append(
+            f"{count} hole(s) smaller than the minimum hole area ({limit:g} mm2) were filled and count as material "
+            f"({area:.4g} mm2 in part(s) {labels}; see filled_holes); lower --min-hole-area to measure them"
+        )
     return Measurement(
-        source=source, scale=scale, parts=parts, warnings=list(seg.warnings), cut_parts=cut_parts, settings=settings
+        source=source, scale=scale, parts=parts, warnings=warnings, cut_parts=cut_parts, settings=settings
     )
 
 
@@ -477,4 +497,6 @@ def measure_part(part: MappedPart, plane_map: PlaneMap) -> Part:
         cut=part.cut,
         uncertainty_terms=terms,
         outline_mm=outer_mm,
+        filled_holes=part.filled_holes,
+        filled_hole_area_mm2=part.filled_hole_area_mm2,
     )

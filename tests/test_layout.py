@@ -29,6 +29,7 @@ LAYERS: list[tuple[str, ...]] = [
         "scanmass.geometry",
         "scanmass.numeric",
         "scanmass.raster",
+        "scanmass.readfile",
     ),
     ("scanmass.load",),
     ("scanmass.scale",),

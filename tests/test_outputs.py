@@ -119,9 +119,9 @@ def test_folder_not_writable(tmp_path):
         folder.chmod(0o700)
 
 
-def test_dash_and_empty_are_refused(tmp_path):
-    with pytest.raises(OutputError, match="standard output"):
-        write_atomic("-", "x")
+def test_dash_goes_to_stdout_and_empty_is_refused(tmp_path, capsysbinary):
+    write_atomic("-", "x")  # '-' is standard output, written straight through (issue 13)
+    assert capsysbinary.readouterr().out == b"x"
     with pytest.raises(OutputError, match="empty"):
         write_atomic("", "x")
 

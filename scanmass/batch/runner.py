@@ -53,8 +53,8 @@ from scanmass.batch.settings import (
     settings_hash,
     validate_settings,
 )
-from scanmass.batch.store import DB_NAME, Job, Record, Store
-from scanmass.errors import OptionError, OutputError
+from scanmass.batch.store import DB_NAME, DISCOVERY, Job, Record, Store
+from scanmass.errors import OptionError, OutputError, escape_text
 from scanmass.options import MeasureOptions, check_option_names
 
 __all__ = [
@@ -112,8 +112,11 @@ class BatchSummary:
     ``measured``, ``failed`` and ``duplicates`` count the files handled in this run;
     ``unchanged`` the files skipped because they were done before with the same content
     and settings; ``failed_earlier`` those skipped because they failed before (pass
-    ``retry_failed=True`` to try them again). ``failures`` lists every file found in
-    this run whose record is a failure, old or new. ``worker_max_rss_kb`` holds the peak
+    ``retry_failed=True`` to try them again); ``vanished`` those deleted while the
+    batch ran (found, then gone before they could be read). ``failures`` lists every
+    file found in this run whose record is a failure, old or new, and everything in the
+    folders that could not be looked at (an unreadable folder, a symbolic link loop, a
+    dangling link, a FIFO or device named like an image), each with its reason. ``worker_max_rss_kb`` holds the peak
     resident memory of each worker (host:pid) and ``worker_cpu_seconds`` the CPU time the
     workers spent measuring.
     """
@@ -135,6 +138,7 @@ class BatchSummary:
     failures: list[tuple[str, str]] = field(default_factory=list)
     worker_max_rss_kb: dict[str, int] = field(default_factory=dict)
     worker_cpu_seconds: float = 0.0
+    vanished: int = 0
 
     @property
     def ok(self) -> bool:
@@ -196,6 +200,8 @@ class _Runner:
         self.failed_earlier: set[str] = set()
         self.recorded: set[str] = set()  # paths whose record this run wrote
         self.found: set[str] = set()
+        self.vanished = 0
+        self.problems_recorded: set[tuple[str, str]] = set()
         self.in_flight: dict[Any, Job] = {}
         self.rss: dict[str, int] = {}
         self.cpu_seconds = 0.0
@@ -253,8 +259,16 @@ class _Runner:
 
     def plan(self) -> tuple[list[Job], dict[str, Record]]:
         """Find the files; return those that need a look (hash or measure)."""
-        files = find_images(self.folders, include=self.include, exclude=self.exclude, skip_dirs=[self.store.out_dir])
+        problems: list[tuple[Path, str]] = []
+        files = find_images(
+            self.folders,
+            include=self.include,
+            exclude=self.exclude,
+            skip_dirs=[self.store.out_dir],
+            problems=problems,
+        )
         records = self.store.records()
+        self._record_problems(problems)
         cache: dict[tuple[Path, Path], dict[str, Any]] = {}
         hashes: dict[str, str] = {}
         now_ns = time.time_ns()
@@ -269,8 +283,10 @@ class _Runner:
             try:
                 st = os.stat(path)
             except OSError:
-                continue  # vanished since the listing
-            rec = records.get(key)
+                self.vanished += 1  # deleted since the listing
+                self.emit("file", key, "vanished")
+                continue
+            rec = records.get(escape_text(key))
             rehash = self.rehash and self.cycle == 1  # watch: later cycles trust size and time
             if (
                 rec is not None
@@ -303,6 +319,32 @@ class _Runner:
                 )
             )
         return todo, records
+
+    def _record_problems(self, problems: Sequence[tuple[Path, str]]) -> None:
+        """Record what the folders hold but cannot be measured, as failures (once per run).
+
+        Such a record of an earlier run whose problem is gone (the folder is readable
+        again, the link was removed) is deleted, unless the path is now a file to measure.
+        """
+        current = {escape_text(str(path)) for path, _ in problems}
+        roots = tuple(escape_text(str(f)).rstrip(os.sep) + os.sep for f in self.folders)
+        stale = {p for p in self.store.discovery_failures() - current if p.startswith(roots) and not os.path.isfile(p)}
+        if stale:
+            self.store.forget(stale)
+            self.changed = True
+        if not problems:
+            return
+        shash = settings_hash(self.base_options)
+        for path, reason in problems:
+            key = str(path)
+            error = one_line(f"{escape_text(key)}: {reason}")
+            self.found.add(key)
+            if (key, error) in self.problems_recorded:
+                continue
+            self.problems_recorded.add((key, error))
+            job = Job(root=path.parent, path=key, options=self.base_options, settings_sha256=shash)
+            self.store.write_file(job, run_id=self.run_id, status="failed", error=error, worker=DISCOVERY)
+            self._count(job, "failed", error)
 
     # -- one cycle ----------------------------------------------------------------------
     def run_cycle(self) -> None:
@@ -351,15 +393,16 @@ class _Runner:
             job.content_sha256 = content_hash(job.path)
         except FileNotFoundError:
             self.found.discard(job.path)
-            self.processed += 1  # vanished: nothing to record
+            self.processed += 1  # vanished: nothing to record, but counted
+            self.vanished += 1
             self.emit("file", job.path, "vanished")
             return
         except OSError as exc:
-            error = f"{job.path}: cannot read the file ({exc.strerror or exc}); check its permissions"
+            error = f"{escape_text(job.path)}: cannot read the file ({exc.strerror or exc}); check its permissions"
             self.store.write_file(job, run_id=self.run_id, status="failed", error=error)
             self._count(job, "failed", error)
             return
-        rec = records.get(job.path)
+        rec = records.get(escape_text(job.path))
         if rec is not None and rec.content_sha256 == job.content_sha256 and rec.settings_sha256 == job.settings_sha256:
             if rec.status in ("ok", "duplicate") or not self.retry_failed or job.path in self.recorded:
                 self.store.update_stat(job.path, job.size_bytes, job.mtime_ns)
@@ -689,4 +732,5 @@ def run_batch(
         failures=failures,
         worker_max_rss_kb=dict(runner.rss),
         worker_cpu_seconds=runner.cpu_seconds,
+        vanished=runner.vanished,
     )

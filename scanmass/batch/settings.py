@@ -16,7 +16,6 @@ from __future__ import annotations
 import hashlib
 import json
 import os
-import tomllib
 from collections.abc import Mapping
 from dataclasses import fields
 from pathlib import Path
@@ -26,6 +25,7 @@ from scanmass.batch.discover import content_hash
 from scanmass.errors import OptionError
 from scanmass.measurement import SCHEMA
 from scanmass.options import OPTION_NAMES, MeasureOptions, check_option_names, option_kind, resolve_options
+from scanmass.readfile import read_toml
 
 __all__ = [
     "SETTINGS_FILE",
@@ -160,19 +160,9 @@ def folder_settings(folder: str | os.PathLike, *, name: str = SETTINGS_FILE) -> 
         value of the wrong type.
     """
     path = Path(folder) / name
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
+    if not os.path.lexists(path):
         return {}
-    except (OSError, UnicodeDecodeError) as exc:
-        raise OptionError(
-            f"cannot read the settings file ({exc.__class__.__name__}); make it a readable UTF-8 TOML file",
-            path=str(path),
-        ) from None
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise OptionError(f"not valid TOML ({exc}); fix the file's syntax", path=str(path)) from None
+    doc = read_toml(path, error=OptionError, what="settings file (UTF-8 TOML)")
     check_option_names(doc, what="setting", path=str(path))
     return normalise_settings(doc, where=str(path), base=path.parent)
 

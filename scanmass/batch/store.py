@@ -29,9 +29,9 @@ from pathlib import Path
 from typing import IO, Any
 
 from scanmass.batch.settings import canonical
-from scanmass.errors import OptionError, OutputError, ResultFormatError
+from scanmass.errors import OptionError, OutputError, ResultFormatError, escape_text
 from scanmass.measurement import CSV_COLUMNS
-from scanmass.outputs.atomic import write_atomic
+from scanmass.outputs.atomic import clean_leftovers, write_atomic
 
 __all__ = [
     "DB_NAME",
@@ -57,6 +57,9 @@ PARTS_CSV = "parts.csv"
 FAILURES_CSV = "failures.csv"
 DUPLICATES_CSV = "duplicates.csv"
 _LOCK_NAME = ".scanmass-batch.lock"
+
+#: ``worker`` of the records written for what the folder listing could not look at.
+DISCOVERY = "discovery"
 
 #: Version of the database layout (``PRAGMA user_version``).
 DB_VERSION = 1
@@ -157,10 +160,26 @@ def connect(db_path: Path, *, readonly: bool = False) -> sqlite3.Connection:
         else:
             conn = sqlite3.connect(db_path, isolation_level=None, timeout=30.0)
         version = conn.execute("PRAGMA user_version").fetchone()[0]
+        # A quick structural check (pages, freelist, record formats; not the indexes):
+        # a damaged file is refused here, not met as a traceback half-way through.
+        check = [row[0] for row in conn.execute("PRAGMA quick_check(1)").fetchall()]
     except sqlite3.DatabaseError as exc:
+        if "malformed" in str(exc) or "corrupt" in str(exc):
+            raise ResultFormatError(
+                f"the batch database is damaged ({exc}); restore a backup, or move it away and run the "
+                "batch again into this --out folder",
+                path=str(db_path),
+            ) from None
         raise ResultFormatError(
             f"not a scanmass batch database ({exc}); choose another --out folder", path=str(db_path)
         ) from None
+    if check != ["ok"]:
+        conn.close()
+        raise ResultFormatError(
+            f"the batch database is damaged ({'; '.join(map(str, check))[:200]}); restore a backup, or move it "
+            "away and run the batch again into this --out folder",
+            path=str(db_path),
+        )
     if version not in (0, DB_VERSION):
         conn.close()
         raise ResultFormatError(
@@ -212,28 +231,44 @@ class Store:
 
     def _lock(self) -> IO[str]:
         path = self.out_dir / _LOCK_NAME
-        fh = open(path, "a+")
-        try:
-            import fcntl
+        for _ in range(10):
+            try:
+                fh = open(path, "a+")
+            except OSError as exc:
+                raise OutputError(
+                    f"cannot write in the output folder ({exc.strerror or exc}); choose another --out folder "
+                    "or fix its permissions",
+                    path=str(self.out_dir),
+                ) from None
+            try:
+                import fcntl
 
-            fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except ImportError:  # pragma: no cover - not POSIX: no lock
-            pass
-        except OSError:
+                fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except ImportError:  # pragma: no cover - not POSIX: no lock
+                return fh
+            except OSError:
+                fh.close()
+                raise OutputError(
+                    "another 'scanmass batch' is writing to this folder; wait for it to finish or choose another --out folder",
+                    path=str(self.out_dir),
+                ) from None
+            # The lock file is deleted on close; if that happened between our open and our
+            # lock, we hold a lock on a deleted file: open the new one.
+            try:
+                same = os.path.samestat(os.fstat(fh.fileno()), os.stat(path))
+            except OSError:
+                same = False
+            if same:
+                return fh
             fh.close()
-            raise OutputError(
-                "another 'scanmass batch' is writing to this folder; wait for it to finish or choose another --out folder",
-                path=str(self.out_dir),
-            ) from None
-        return fh
+        raise OutputError(
+            "the lock file keeps changing; another 'scanmass batch' is starting here; choose another --out folder",
+            path=str(self.out_dir),
+        )
 
     def _clean_temporaries(self) -> None:
         """Remove temporary CSVs left by a killed run (we hold the lock)."""
-        for name in (PARTS_CSV, FAILURES_CSV, DUPLICATES_CSV):
-            stem, suffix = os.path.splitext(name)
-            for tmp in self.out_dir.glob(f".{stem}.*.tmp{suffix}"):
-                with contextlib.suppress(OSError):
-                    tmp.unlink()
+        clean_leftovers(self.out_dir)
 
     def close(self) -> None:
         conn, self._conn = self._conn, None
@@ -241,10 +276,9 @@ class Store:
             with contextlib.suppress(sqlite3.Error):
                 conn.close()
         if self._lock_fh is not None:
-            # removed while still held, so that no lock file stays behind; a second batch that
-            # opened it meanwhile fails to lock and stops, one that comes later makes a new one
+            # delete the lock file while still holding the lock (see _lock)
             with contextlib.suppress(OSError):
-                (self.out_dir / _LOCK_NAME).unlink()
+                os.unlink(self.out_dir / _LOCK_NAME)
             self._lock_fh.close()
             self._lock_fh = None
 
@@ -311,12 +345,14 @@ class Store:
         return self.conn.execute(
             "SELECT path, result FROM files WHERE content_sha256=? AND settings_sha256=? AND status='ok' AND path<>? "
             "ORDER BY id LIMIT 1",
-            (content, settings, not_path),
+            (content, settings, escape_text(not_path)),
         ).fetchone()
 
     def update_stat(self, path: str, size_bytes: int | None, mtime_ns: int | None) -> None:
         with self.transaction():
-            self.conn.execute("UPDATE files SET size_bytes=?, mtime_ns=? WHERE path=?", (size_bytes, mtime_ns, path))
+            self.conn.execute(
+                "UPDATE files SET size_bytes=?, mtime_ns=? WHERE path=?", (size_bytes, mtime_ns, escape_text(path))
+            )
 
     def write_file(
         self,
@@ -334,8 +370,17 @@ class Store:
         cpu_seconds: float | None = None,
         worker: str | None = None,
     ) -> None:
-        """Record one finished file (and its parts) in one transaction."""
+        """Record one finished file (and its parts) in one transaction.
+
+        Paths are stored as text that is always UTF-8: a name that is not valid UTF-8
+        is kept with each undecodable byte written as ``\\xNN`` (see
+        :func:`scanmass.errors.escape_text`).
+        """
         now = utc_now()
+        db_path = escape_text(job.path)
+        error = None if error is None else escape_text(error)
+        same_as = None if same_as is None else escape_text(same_as)
+        result = None if result is None else escape_text(result)
         with self.transaction():
             self.conn.execute(
                 "INSERT INTO files (path, size_bytes, mtime_ns, content_sha256, settings_sha256, settings, status, "
@@ -348,7 +393,7 @@ class Store:
                 "cpu_seconds=excluded.cpu_seconds, "
                 "worker=excluded.worker, run_id=excluded.run_id, result=excluded.result",
                 (
-                    job.path,
+                    db_path,
                     job.size_bytes,
                     job.mtime_ns,
                     job.content_sha256,
@@ -366,7 +411,7 @@ class Store:
                     result,
                 ),
             )
-            file_id = self.conn.execute("SELECT id FROM files WHERE path=?", (job.path,)).fetchone()[0]
+            file_id = self.conn.execute("SELECT id FROM files WHERE path=?", (db_path,)).fetchone()[0]
             self.conn.execute("DELETE FROM parts WHERE file_id=?", (file_id,))
             names = [name for name, _ in _PART_COLUMNS]
             self.conn.executemany(
@@ -374,12 +419,22 @@ class Store:
                 [(file_id, *[row.get(n) for n in names], canonical(row)) for row in rows],
             )
 
+    def discovery_failures(self) -> set[str]:
+        """Paths recorded as failed by the folder listing itself (worker ``discovery``)."""
+        rows = self.conn.execute("SELECT path FROM files WHERE status='failed' AND worker=?", (DISCOVERY,))
+        return {r[0] for r in rows}
+
+    def forget(self, paths: Iterable[str]) -> None:
+        """Delete the records of these paths (escaped as stored), in one transaction."""
+        with self.transaction():
+            self.conn.executemany("DELETE FROM files WHERE path=?", [(p,) for p in paths])
+
     # -- reports ------------------------------------------------------------------------
     def failures(self, paths: Iterable[str] | None = None) -> list[tuple[str, str]]:
         rows = self.conn.execute("SELECT path, error FROM files WHERE status='failed' ORDER BY path").fetchall()
         if paths is None:
             return [(r[0], r[1] or "") for r in rows]
-        wanted = set(paths)
+        wanted = {escape_text(p) for p in paths}
         return [(r[0], r[1] or "") for r in rows if r[0] in wanted]
 
     def write_reports(self) -> list[Path]:

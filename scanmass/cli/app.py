@@ -7,20 +7,22 @@ exit code 1. Nothing here computes.
 
 from __future__ import annotations
 
+import errno
 import functools
 import inspect
+import os
 import sys
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from pathlib import Path
-from typing import Annotated, Any, Literal, NoReturn
+from typing import Annotated, Any, Literal, NoReturn, cast
 
 import typer
 from rich.console import Console
 from rich.markup import escape
 
 from scanmass import __version__
-from scanmass.errors import ScanmassError
+from scanmass.errors import ScanmassError, escape_text
 from scanmass.options import OPTION_NAMES, MeasureOptions, option_field
 
 app = typer.Typer(
@@ -40,12 +42,30 @@ EXIT_USER_ERROR = 1
 EXIT_BALANCE_FAILS = 1
 
 
+class _EscapingStream:
+    """A text stream proxy that writes undecodable bytes of file names as ``\\xNN``.
+
+    Paths of files whose names are not UTF-8 carry lone surrogates, which a UTF-8
+    terminal or pipe refuses with UnicodeEncodeError (see scanmass.errors.escape_text).
+    """
+
+    def __init__(self, stream: Any) -> None:
+        self._stream = stream
+
+    def write(self, text: str) -> int:
+        return self._stream.write(escape_text(text))
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self._stream, name)
+
+
 def _console(stderr: bool = False) -> Console:
     # messages on stderr never wrap: an error stays one line however narrow the terminal;
     # piped into a file or another program, tables get room instead of the default 80 columns
     stream = sys.stderr if stderr else sys.stdout
-    width = None if stream.isatty() else 200
-    return Console(stderr=stderr, highlight=False, soft_wrap=stderr, width=width)
+    width = None if stream is None or stream.isatty() else 200
+    file = None if stream is None else cast(Any, _EscapingStream(stream))
+    return Console(stderr=stderr, file=file, highlight=False, soft_wrap=stderr, width=width)
 
 
 def fail(message: str) -> NoReturn:
@@ -61,6 +81,29 @@ def user_errors() -> Iterator[None]:
         yield
     except ScanmassError as exc:
         fail(str(exc))
+
+
+def _write_stdout(text: str) -> None:
+    """Write data to standard output; a full or closed stdout is an OutputError (one line)."""
+    from scanmass.outputs.atomic import write_atomic
+
+    write_atomic("-", text)
+
+
+def run() -> None:
+    """The console entry point: :data:`app`, with a full or closed standard output as a one-line error."""
+    try:
+        app(prog_name="scanmass")
+    except OSError as exc:
+        if exc.errno not in (errno.EPIPE, errno.ENOSPC, errno.EBADF, errno.EIO):
+            raise
+        with suppress(OSError, AttributeError, ValueError):  # keep the exit flush quiet
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, sys.stdout.fileno())
+        reason = "is full (no space left on the device)" if exc.errno == errno.ENOSPC else "was closed"
+        with suppress(OSError, AttributeError, ValueError):
+            sys.stderr.write(f"error: standard output {reason}; write the results to a file instead\n")
+        sys.exit(EXIT_USER_ERROR)
 
 
 def _version(value: bool) -> None:
@@ -228,7 +271,8 @@ def measure(
                 )
             )
     if json_out == "-":
-        sys.stdout.write(results[0].document + "\n")
+        with user_errors():
+            _write_stdout(results[0].document + "\n")
         return
     written = [w for r in results for w in r.written]
     if csv_out is not None and len(images) > 1:
@@ -236,6 +280,8 @@ def measure(
         text = "\n".join([lines[0][0], *(row for rows in lines for row in rows[1:])]) + "\n"
         with user_errors():
             written.append(str(write_atomic(csv_out, text, inputs=images)))
+    if "-" in (str(csv_out), str(overlay_out)):
+        quiet = True  # standard output carries the data; no table in it
     if not quiet:
         for r in results:
             _print_measurement(r.measurement, units)
@@ -286,7 +332,8 @@ def _emit_json(json_out: str | None, text: str, inputs: list[Path]) -> None:
     from scanmass.outputs.atomic import write_atomic
 
     if json_out == "-":
-        sys.stdout.write(text + "\n")
+        with user_errors():
+            _write_stdout(text + "\n")
     elif json_out is not None:
         with user_errors():
             written = write_atomic(json_out, text + "\n", inputs=inputs)
@@ -704,6 +751,8 @@ def batch(
         f"{summary.found} file(s): {summary.measured} measured, {summary.failed} failed, "
         f"{summary.duplicates} duplicate(s), {summary.unchanged} unchanged"
     )
+    if summary.vanished:
+        line += f", {summary.vanished} deleted while the batch ran"
     if summary.failed_earlier:
         line += f", {summary.failed_earlier} failed before (not retried; --retry-failed)"
     line += f" in {summary.seconds:.1f} s" + (f" ({rate:.2f} files/s, {summary.backend})" if rate else "")
@@ -753,7 +802,7 @@ def batch_export(
     with user_errors():
         if out == "-":
             for piece in iter_export(out_dir, format=format):
-                sys.stdout.write(piece)
+                _write_stdout(piece)
             return
         written = export_batch(out_dir, format=format, out=out)
     _console(stderr=True).print(f"wrote {escape(str(written))}", markup=False)

@@ -23,24 +23,30 @@ before decoding anything, and never builds full-size float arrays.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import io
 import math
 import numbers
 import os
+import re
 import struct
+import sys
+import tempfile
 import threading
 import warnings
+import zlib
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from PIL import Image, UnidentifiedImageError
+from PIL import Image, ImageFile, UnidentifiedImageError
 
 from scanmass.errors import ImageError, OptionError
 from scanmass.options import DEFAULT_MAX_PIXELS, MAX_DPI, MIN_DPI, check_dpi, check_max_pixels
+from scanmass.readfile import display_path, read_regular
 
 __all__ = [
     "DEFAULT_MAX_PIXELS",
@@ -54,6 +60,18 @@ __all__ = [
 #: Resolutions that image software writes when it does not know the real one
 #: (common practice: 72 dpi from early Macintosh displays, 96 dpi from Windows).
 UNKNOWN_DPI_VALUES = (72.0, 96.0)
+
+#: A resolution stored in a file below this (dpi) is taken as junk, not a measurement
+#: (common practice: flatbed scanners start at 75 dpi; photos carry 72/96 defaults).
+MIN_PLAUSIBLE_FILE_DPI = 50.0
+
+#: A stored resolution whose x and y differ by more than this fraction is taken as junk:
+#: flatbed scanners scan square pixels (common practice).
+MAX_FILE_DPI_ANISOTROPY = 0.01
+
+#: Memory budget of one decode, in bytes per pixel allowed by ``max_pixels``: a file may
+#: decode to ``4 * max_pixels`` bytes (1 GB at the default), whatever its pixel count.
+BUDGET_BYTES_PER_PIXEL = 4
 
 #: Smallest accepted image side, in pixels.
 MIN_SIDE_PX = 8
@@ -77,6 +95,9 @@ _BAND_PIXELS = 1 << 18
 # Serialises the rare decode that has to lift pillow's own pixel guard (see
 # _pillow_guard_lifted); pillow keeps that limit in a module attribute.
 _PIL_GUARD_LOCK = threading.Lock()
+
+# Serialises the redirection of file descriptor 2 (see _captured_stderr).
+_STDERR_LOCK = threading.Lock()
 
 
 # --------------------------------------------------------------------------- result
@@ -363,6 +384,16 @@ def _judge_dpi(values: tuple[float, float], found: str) -> tuple[tuple[float, fl
     x, y = values
     if not all(math.isfinite(v) and MIN_DPI <= v <= MAX_DPI for v in values):  # the range of check_dpi
         return None, f"{found}: not a plausible resolution, ignored; DPI unknown"
+    if min(x, y) < MIN_PLAUSIBLE_FILE_DPI:
+        return None, (
+            f"{found}: under {MIN_PLAUSIBLE_FILE_DPI:g} dpi is implausible for a scan; the value came from the file "
+            "and is ignored; DPI unknown (give --dpi N if it is right)"
+        )
+    if abs(x - y) > MAX_FILE_DPI_ANISOTROPY * max(x, y):
+        return None, (
+            f"{found}: x and y differ by more than {MAX_FILE_DPI_ANISOTROPY:.0%}, implausible for a scan; the value "
+            "came from the file and is ignored; DPI unknown (give --dpi X,Y if it is right)"
+        )
     for v in values:
         for default in UNKNOWN_DPI_VALUES:
             if abs(v - default) < 0.02:
@@ -560,25 +591,39 @@ def _sniff(data: bytes) -> str | None:
 
 
 def _read_file(path: str | os.PathLike) -> tuple[bytes, str]:
+    """The file's bytes (regular files only, at most the file's size) and its name for messages."""
     name = os.fspath(path)
     if isinstance(name, bytes):
         name = os.fsdecode(name)
-    if not os.path.exists(name):
-        raise ImageError("file not found; check the path and the current folder", path=name)
-    if os.path.isdir(name):
-        raise ImageError(f"is a folder, not an image file; give the path of a {_FORMAT_NAMES} file", path=name)
-    try:
-        with open(name, "rb") as fh:
-            data = fh.read()
-    except OSError as exc:
-        raise ImageError(f"cannot be read ({exc.strerror or exc}); check the file's permissions", path=name) from None
+    data = read_regular(name, error=ImageError, what="image file", fix=f"give the path of a {_FORMAT_NAMES} file")
     if not data:
-        raise ImageError("file is empty (0 bytes); scan or export the image again", path=name)
+        raise ImageError("file is empty (0 bytes); scan or export the image again", path=display_path(name))
     return data, name
+
+
+def _tiff_sample_format(data: bytes) -> str | None:
+    """The pixel type of a TIFF that tifffile can parse (e.g. "float64"), else None."""
+    try:
+        import tifffile
+
+        with tifffile.TiffFile(io.BytesIO(data)) as tif:
+            page = tif.pages.first
+            return f"{np.dtype(page.dtype).name}, {page.samplesperpixel} sample(s) per pixel"
+    except Exception:  # noqa: BLE001 -- a damaged TIFF fails in many ways
+        return None
 
 
 def _not_readable(data: bytes, name: str) -> ImageError:
     kind = _sniff(data)
+    name = display_path(name)
+    if kind == "TIFF":
+        described = _tiff_sample_format(data)
+        if described is not None:
+            return ImageError(
+                f"TIFF pixel format ({described}) is not supported; save it as 8- or 16-bit greyscale or RGB, "
+                "or 32-bit float greyscale",
+                path=name,
+            )
     if kind in ("PNG", "JPEG", "TIFF"):
         return ImageError(
             f"looks like a {kind} file but cannot be decoded (damaged or truncated); copy or export it again",
@@ -641,11 +686,26 @@ def _pillow_guard_lifted() -> Iterator[None]:
             Image.MAX_IMAGE_PIXELS = saved
 
 
+@contextmanager
+def _strict_truncation() -> Iterator[None]:
+    """Make sure pillow refuses truncated files (``LOAD_TRUNCATED_IMAGES`` off) for one decode."""
+    if not ImageFile.LOAD_TRUNCATED_IMAGES:
+        yield
+        return
+    with _PIL_GUARD_LOCK:
+        saved = ImageFile.LOAD_TRUNCATED_IMAGES
+        ImageFile.LOAD_TRUNCATED_IMAGES = False
+        try:
+            yield
+        finally:
+            ImageFile.LOAD_TRUNCATED_IMAGES = saved
+
+
 def _decode(im: Image.Image, name: str) -> None:
     """Decode every pixel now, so truncation surfaces here as an ImageError."""
     fmt = im.format or "image"
     try:
-        with warnings.catch_warnings():
+        with warnings.catch_warnings(), _strict_truncation():
             warnings.simplefilter("ignore")
             try:
                 im.load()
@@ -657,8 +717,155 @@ def _decode(im: Image.Image, name: str) -> None:
     except Exception as exc:  # noqa: BLE001 -- OSError, SyntaxError, ValueError, zlib.error, ...
         reason = " ".join(str(exc).split()) or type(exc).__name__
         raise ImageError(
-            f"{fmt} image is truncated or damaged ({reason}); copy or export it again", path=name
+            f"{fmt} image is truncated or damaged ({reason}); copy or export it again", path=display_path(name)
         ) from None
+
+
+@contextmanager
+def _captured_stderr() -> Iterator[list[str]]:
+    """Collect what C libraries (libjpeg, libpng inside OpenCV) print on file descriptor 2.
+
+    libjpeg reports corrupt entropy-coded data only as a warning and goes on with grey
+    blocks; OpenCV lets it print that warning on stderr and returns the image. The
+    text is caught here (the descriptor is redirected to a temporary file for the
+    duration, under a lock) and handed back in the yielded list.
+    """
+    caught: list[str] = []
+    with _STDERR_LOCK:
+        try:
+            saved = os.dup(2)
+        except OSError:  # no stderr at all: nothing to catch
+            yield caught
+            return
+        try:
+            with tempfile.TemporaryFile() as sink:
+                with contextlib.suppress(Exception):
+                    sys.stderr.flush()
+                os.dup2(sink.fileno(), 2)
+                try:
+                    yield caught
+                finally:
+                    os.dup2(saved, 2)
+                    sink.seek(0)
+                    caught.append(sink.read(8192).decode("utf-8", "replace"))
+        finally:
+            os.close(saved)
+
+
+# libjpeg's warnings that mean the entropy-coded data are damaged (jerror.h: JWRN_HIT_MARKER,
+# JWRN_HUFF_BAD_CODE, JWRN_ARITH_BAD_CODE, JWRN_MUST_RESYNC, JWRN_JPEG_EOF, JWRN_BOGUS_PROGRESSION,
+# JWRN_EXTRANEOUS_DATA); extraneous bytes before the end marker (0xd9) are only trailing junk.
+_JPEG_DAMAGE = re.compile(
+    r"Corrupt JPEG data: (?!\d+ extraneous bytes before marker 0xd9)|Premature end of JPEG file|"
+    r"Inconsistent progression sequence"
+)
+
+
+def _verify_jpeg(data: bytes, name: str) -> None:
+    """Refuse a JPEG whose compressed data libjpeg finds corrupt (pillow does not say so).
+
+    The file is decoded a second time at 1/8 scale (the whole entropy-coded stream is
+    still read, but almost no pixels are made), with libjpeg's warnings caught.
+    """
+    import cv2
+
+    buf = np.frombuffer(data, dtype=np.uint8)
+    with _captured_stderr() as caught:
+        arr = cv2.imdecode(buf, cv2.IMREAD_REDUCED_GRAYSCALE_8 | cv2.IMREAD_IGNORE_ORIENTATION)
+    text = " ".join(caught)
+    match = _JPEG_DAMAGE.search(text)
+    if arr is None or match is not None:
+        line = next((ln for ln in text.splitlines() if _JPEG_DAMAGE.search(ln)), "the decoder failed")
+        raise ImageError(
+            f"JPEG image is damaged ({' '.join(line.split())}); copy or export it again", path=display_path(name)
+        )
+
+
+def _verify_png(data: bytes, name: str) -> None:
+    """Refuse a PNG whose chunks or compressed pixel stream are damaged.
+
+    Pillow (like many readers) neither checks the CRC of the image-data chunks nor the
+    zlib stream's Adler-32 checksum: it stops inflating when the image is full, so
+    flipped bytes in the middle of the stream can give wrong pixels without a word.
+    Here every chunk's CRC-32 is checked, and the whole zlib stream is inflated in
+    pieces of 4 MiB (the output is discarded) to its end and its checksum.
+
+    References
+    ----------
+    .. [1] W3C, Portable Network Graphics (PNG) Specification (Third Edition), sections
+       5.3 (chunk layout, CRC) and 10 (compression: zlib datastream, RFC 1950).
+    """
+    shown = display_path(name)
+    pos, end = 8, len(data)
+    idat: list[memoryview] = []
+    while pos + 12 <= end:
+        (length,) = struct.unpack_from(">I", data, pos)
+        kind = data[pos + 4 : pos + 8]
+        body_end = pos + 8 + length
+        if body_end + 4 > end:
+            break  # truncated: pillow's decode says so
+        (crc,) = struct.unpack_from(">I", data, body_end)
+        if zlib.crc32(memoryview(data)[pos + 4 : body_end]) & 0xFFFFFFFF != crc:
+            raise ImageError(
+                f"PNG image is damaged (CRC error in a {kind.decode('latin-1', 'replace')} chunk); copy or export it again",
+                path=shown,
+            )
+        if kind == b"IDAT":
+            idat.append(memoryview(data)[pos + 8 : body_end])
+        elif kind == b"IEND":
+            break
+        pos = body_end + 4
+    if not idat:
+        return
+    inflater = zlib.decompressobj()
+    piece, step = 1 << 20, 1 << 16  # output and input slices: memory stays at a few MiB
+    try:
+        for chunk in idat:
+            view = memoryview(chunk)
+            for start in range(0, len(view), step):
+                inflater.decompress(view[start : start + step], piece)
+                while inflater.unconsumed_tail:
+                    inflater.decompress(inflater.unconsumed_tail, piece)
+    except zlib.error as exc:
+        raise ImageError(
+            f"PNG image is damaged (compressed pixel data: {exc}); copy or export it again", path=shown
+        ) from None
+    if not inflater.eof:
+        raise ImageError(
+            "PNG image is truncated or damaged (the compressed pixel data end early); copy or export it again",
+            path=shown,
+        )
+
+
+def _decoded_bytes(im: Image.Image, bits: int, deep: bool) -> tuple[int, int, int, int]:
+    """(bytes, channels, bytes per sample, copies) the decoded pixels take.
+
+    bytes = width x height x channels x bytes per sample x copies.
+    """
+    width, height = im.size
+    channels = len(im.getbands())
+    per_sample = 2 if deep else max(1, (bits + 7) // 8)
+    if im.mode in ("I", "F"):
+        per_sample = 4
+    # OpenCV decodes 16-bit colour PNG into one buffer and reorders the channels into a second
+    copies = 2 if deep and im.format == "PNG" else 1
+    return width * height * channels * per_sample * copies, channels, per_sample, copies
+
+
+def _check_memory(im: Image.Image, bits: int, deep: bool, max_pixels: int, name: str, fmt: str) -> None:
+    """Refuse a file whose decoded pixels would need more than the memory budget (bytes)."""
+    need, channels, per_sample, copies = _decoded_bytes(im, bits, deep)
+    budget = BUDGET_BYTES_PER_PIXEL * max_pixels
+    if need > budget:
+        width, height = im.size
+        twice = " x 2 copies" if copies == 2 else ""
+        raise ImageError(
+            f"{fmt} image of {width} x {height} px x {channels} channel(s) x {per_sample} byte(s){twice} needs "
+            f"{need / 1e9:.2f} GB to decode, over the memory budget of {budget / 1e9:.2f} GB "
+            f"({BUDGET_BYTES_PER_PIXEL} bytes per pixel of --max-pixels); if the file is trusted, raise the "
+            f"limit with --max-pixels N (N >= {-(-need // BUDGET_BYTES_PER_PIXEL)})",
+            path=display_path(name),
+        )
 
 
 def _orientation(im: Image.Image) -> int:
@@ -799,6 +1006,8 @@ def _reduce_band(band: np.ndarray, *, premultiplied: bool = False) -> np.ndarray
         grey = band[..., 0]
     if channels in (2, 4):
         alpha = band[..., channels - 1]
+        if int(alpha.min()) == np.iinfo(grey.dtype).max:
+            return grey  # opaque band (the usual case): compositing over white changes nothing
         if premultiplied:
             top = np.iinfo(grey.dtype).max
             wide = grey.astype(np.uint32) + (top - alpha.astype(np.uint32))
@@ -1002,13 +1211,22 @@ def _deep_grey(data: bytes, fmt: str, stored: tuple[int, int], name: str) -> np.
     Both return the pixels as stored; the orientation is applied by the caller.
     """
     premultiplied = False
+    order: list[int] | None = None
+    problem = ""
     try:
         if fmt == "PNG":
             import cv2
 
-            arr = cv2.imdecode(np.frombuffer(data, dtype=np.uint8), cv2.IMREAD_UNCHANGED)
+            with _captured_stderr() as caught:
+                arr = cv2.imdecode(np.frombuffer(data, dtype=np.uint8), cv2.IMREAD_UNCHANGED)
+            text = " ".join(" ".join(caught).split())
+            # libpng reports damage (bad deflate data, CRC, truncation) on stderr, or
+            # OpenCV's log does; either way the decode is refused as damaged.
+            if (arr is None and text) or re.search(r"libpng|error|incomplete|CRC|IDAT", text):
+                problem = re.sub(r"^\[[^]]*\]\s*(global\s+\S+\s+\S+\s+)?", "", text)[:200]
+                arr = None
             if arr is not None and arr.ndim == 3 and arr.shape[2] in (3, 4):
-                arr = arr[..., [2, 1, 0, 3][: arr.shape[2]]]  # BGR(A) -> RGB(A)
+                order = [2, 1, 0, 3][: arr.shape[2]]  # BGR(A) -> RGB(A), band by band
         else:
             import tifffile
 
@@ -1027,15 +1245,23 @@ def _deep_grey(data: bytes, fmt: str, stored: tuple[int, int], name: str) -> np.
     except Exception:  # noqa: BLE001 -- decoder errors of every type
         arr = None
     width, height = stored
+    if problem:
+        raise ImageError(
+            f"{fmt} image is truncated or damaged ({problem}); copy or export it again", path=display_path(name)
+        )
     if arr is None or arr.shape[:2] != (height, width) or arr.dtype not in (np.uint8, np.uint16):
         raise ImageError(
-            f"{fmt} image with 16-bit colour could not be decoded; save it as 16-bit greyscale or 8-bit RGB",
-            path=name,
+            f"{fmt} image with 16-bit colour could not be decoded (damaged, or a layout not supported); "
+            "save it as 16-bit greyscale or 8-bit RGB",
+            path=display_path(name),
         )
     out = np.empty((height, width), dtype=arr.dtype)
     step = _rows_per_band(width)
     for r0 in range(0, height, step):
-        out[r0 : r0 + step] = _reduce_band(arr[r0 : r0 + step], premultiplied=premultiplied)
+        band = arr[r0 : r0 + step]
+        if order is not None:
+            band = band[..., order]
+        out[r0 : r0 + step] = _reduce_band(band, premultiplied=premultiplied)
     return out
 
 
@@ -1122,7 +1348,10 @@ def load_image(
         width, height = im.size
         _check_size(width, height, max_pixels, name, what=f"{fmt} image")
         file_dpi, file_note = _dpi_from_pillow(im)
-        orientation = _orientation(im)
+        # Pillow's PNG reader decodes the whole image to look for an eXIf chunk after the
+        # pixel data, and a failure there would be swallowed: read a PNG's orientation
+        # only after the checked decode below (or when the chunk came before the pixels).
+        orientation = _orientation(im) if im.format != "PNG" or "exif" in im.info else 1
         bits = _bits_per_sample(im, data)
         mode = im.mode
         info = dict(im.info)
@@ -1132,20 +1361,28 @@ def load_image(
             # libjpeg decodes the luma channel alone: a third of the memory and
             # time, and the exact Y the encoder stored.
             im.draft("L", im.size)
-        # Decoding everything now surfaces truncation as an ImageError (for 16-bit
-        # colour too, whose 8-bit decode is then discarded).
-        _decode(im, name)
-        # Recent pillow applies a TIFF orientation while loading and drops the tag;
-        # apply whatever is still pending, once. (A PNG eXIf chunk after the image
-        # data is only seen now.)
-        pending = _orientation(im)
-        if orientation == 1:
-            orientation = pending
+        _check_memory(im, bits, deep, max_pixels, name, fmt)
+        if im.format == "PNG" and not deep:
+            # (16-bit colour goes through libpng, which checks the CRCs and the stream itself)
+            _verify_png(data, name)
         if deep:
+            # 16-bit colour: pillow would cut it to 8 bits; decode it once, elsewhere
+            # (that decoder refuses damaged data itself).
             stored = _stored_size(im, data)
+            pending = orientation
             im.close()
-            grey, linear, pending = _deep_grey(data, fmt, stored, name), False, orientation
+            grey, linear = _deep_grey(data, fmt, stored, name), False
         else:
+            # Decoding everything now surfaces truncation and damage as an ImageError.
+            _decode(im, name)
+            if im.format in ("JPEG", "MPO"):
+                _verify_jpeg(data, name)
+            # Recent pillow applies a TIFF orientation while loading and drops the tag;
+            # apply whatever is still pending, once. (A PNG eXIf chunk after the image
+            # data is only seen now.)
+            pending = _orientation(im)
+            if orientation == 1:
+                orientation = pending
             grey, linear = _pillow_grey(im, name)
     finally:
         im.close()

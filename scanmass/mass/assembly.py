@@ -37,7 +37,6 @@ import io
 import json
 import math
 import os
-import tomllib
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 from os import PathLike
@@ -50,6 +49,7 @@ from scanmass.errors import OptionError, ScanmassError
 from scanmass.mass.materials import Material, load_materials, resolve_material
 from scanmass.mass.plate import STANDARD_GRAVITY_M_S2, check_positive
 from scanmass.measurement import Measurement, Part, _clean
+from scanmass.readfile import read_toml
 
 __all__ = [
     "ASSEMBLY_SCHEMA",
@@ -85,6 +85,15 @@ LIFTING_CAUTION = (
 )
 
 _TOP_KEYS = {"units", "materials", "name", "member"}
+
+#: Limits of an assembly's values: beyond them a file is a typo, and the sums overflow.
+MAX_COUNT = 1_000_000
+MIN_THICKNESS_MM = 1e-3
+MAX_THICKNESS_MM = 1e4
+MIN_DENSITY_KG_M3 = 0.1
+MAX_DENSITY_KG_M3 = 1e5
+MAX_PLACEMENT_MM = 1e7
+MAX_ANGLE_DEG = 1e6
 _MEMBER_KEYS = {
     "name",
     "source",
@@ -463,6 +472,20 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
     for i, mem in enumerate(members, 1):
         if mem.mirror not in (None, "x", "y"):
             raise OptionError(f"member {i}: mirror must be 'x' or 'y', got {mem.mirror!r}", path=path)
+        _check_member(i, mem, path)
+    try:
+        with np.errstate(all="ignore"):
+            return _combine_checked(members, path=path, name=name)
+    except (np.linalg.LinAlgError, FloatingPointError, OverflowError, ZeroDivisionError) as exc:
+        raise OptionError(
+            f"the assembly's figures cannot be computed ({type(exc).__name__}: {exc}); check the members' "
+            "thicknesses, materials, placements and cut-outs",
+            path=path,
+        ) from None
+
+
+def _combine_checked(members: Sequence[Member], *, path: str | None, name: str) -> AssemblyResult:
+    """:func:`combine_members` after the checks of its inputs."""
 
     nominal = [
         _Inputs(
@@ -492,7 +515,31 @@ def combine_members(members: Sequence[Member], *, path: str | None = None, name:
         flat = np.concatenate([[total], com, inertia.ravel(), values])
         return flat, (figures, total, com, inertia)
 
+    signed = [(-1.0 if m.cutout else 1.0) * m.count * v.rho * v.t * v.area for m, v in zip(members, nominal)]
+    gross = sum(abs(x) for x in signed)
+    net = sum(signed)
+    if not (math.isfinite(gross) and math.isfinite(net)):
+        raise OptionError(
+            "the assembly's mass overflows (count x density x thickness x area); check the members' values", path=path
+        )
+    if net < -1e-9 * gross:
+        raise OptionError(
+            f"the cut-outs outweigh the members (total mass {net:.6g} g); check which members have cutout = true",
+            path=path,
+        )
+    if not net > 1e-9 * gross:
+        raise OptionError(
+            f"the cut-outs remove all of the members' mass (net {net:.6g} g of {gross:.6g} g); a cut-out must "
+            "be smaller than what it is cut from: check which members have cutout = true",
+            path=path,
+        )
     base, (figures, total, com, inertia) = evaluate(None)
+    if not np.all(np.isfinite(base)):
+        raise OptionError(
+            "the assembly's figures overflow (values too large to combine); check the members' thicknesses, "
+            "counts and placements",
+            path=path,
+        )
     if not total > 0:
         raise OptionError(
             f"the cut-outs outweigh the members (total mass {total:.6g} g); check which members have cutout = true",
@@ -655,9 +702,58 @@ def select_part(measurement: Measurement, label: int | None, *, where: str | Non
 
 def _number(entry: Mapping[str, Any], key: str, default: float, prefix: str, path: str) -> float:
     value = entry.get(key, default)
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(float(value)):
-        raise OptionError(f"{prefix}: {key} must be a number, got {value!r}", path=path)
+    limit = MAX_ANGLE_DEG if key.endswith("_deg") else MAX_PLACEMENT_MM
+    if (
+        isinstance(value, bool)
+        or not isinstance(value, (int, float))
+        or not math.isfinite(float(value))
+        or abs(float(value)) > limit
+    ):
+        raise OptionError(f"{prefix}: {key} must be a number within +-{limit:g}, got {value!r}", path=path)
     return float(value)
+
+
+def _check_member(i: int, mem: Member, path: str | None) -> None:
+    """Refuse values that pass as numbers but make no plate (or overflow the sums)."""
+    label = f"member {i}" + (f" ({mem.name!r})" if mem.name else "")
+    t, tu = mem.thickness_mm, mem.thickness_u_mm
+    if not (math.isfinite(t) and MIN_THICKNESS_MM <= t <= MAX_THICKNESS_MM):
+        raise OptionError(
+            f"{label}: thickness_mm {t!r} is outside {MIN_THICKNESS_MM:g} to {MAX_THICKNESS_MM:g} mm; "
+            "give the sheet thickness in mm",
+            path=path,
+        )
+    if not (math.isfinite(tu) and 0 <= tu <= t):
+        raise OptionError(f"{label}: thickness_u_mm {tu!r} must be from 0 to the thickness ({t:g} mm)", path=path)
+    if isinstance(mem.count, bool) or not isinstance(mem.count, int) or not 1 <= mem.count <= MAX_COUNT:
+        raise OptionError(f"{label}: count must be a whole number from 1 to {MAX_COUNT}, got {mem.count!r}", path=path)
+    rho = mem.material.density_kg_m3
+    if not (math.isfinite(rho) and MIN_DENSITY_KG_M3 <= rho <= MAX_DENSITY_KG_M3):
+        raise OptionError(
+            f"{label}: density {rho!r} kg/m3 of {mem.material.key!r} is outside {MIN_DENSITY_KG_M3:g} to "
+            f"{MAX_DENSITY_KG_M3:g} kg/m3; fix the materials file",
+            path=path,
+        )
+    values = {
+        "dx_mm": mem.dx_mm,
+        "dy_mm": mem.dy_mm,
+        "z_mm": mem.z_mm,
+        "anchor_mm x": mem.anchor_mm[0],
+        "anchor_mm y": mem.anchor_mm[1],
+    }
+    for key, value in values.items():
+        if not (math.isfinite(value) and abs(value) <= MAX_PLACEMENT_MM):
+            raise OptionError(f"{label}: {key} {value!r} must be a number within +-{MAX_PLACEMENT_MM:g} mm", path=path)
+    if not (math.isfinite(mem.rotate_deg) and abs(mem.rotate_deg) <= MAX_ANGLE_DEG):
+        raise OptionError(
+            f"{label}: rotate_deg {mem.rotate_deg!r} must be a number within +-{MAX_ANGLE_DEG:g}", path=path
+        )
+    part = mem.part
+    figures = (part.area_mm2, *part.centroid_mm, part.ixx_mm4, part.iyy_mm4, part.ixy_mm4)
+    if not all(math.isfinite(float(v)) for v in figures) or not float(part.area_mm2) > 0:
+        raise OptionError(
+            f"{label}: part {part.label} has no finite positive area and moments; measure it again", path=path
+        )
 
 
 def load_assembly(
@@ -689,16 +785,7 @@ def load_assembly(
     """
     where = os.fspath(path)
     p = Path(where)
-    try:
-        doc = tomllib.loads(p.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise OptionError("assembly file not found; check the path", path=where) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise OptionError(
-            f"cannot read the assembly file ({exc.__class__.__name__}); pass a UTF-8 TOML file", path=where
-        ) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise OptionError(f"not valid TOML ({exc}); fix the file's syntax", path=where) from None
+    doc = read_toml(p, error=OptionError, what="assembly file (UTF-8 TOML)")
 
     unknown = set(doc) - _TOP_KEYS
     if unknown:
@@ -785,8 +872,8 @@ def _member(
     except ScanmassError as exc:
         raise type(exc)(f"{label}: {exc}", path=where) from None
     count = entry.get("count", 1)
-    if isinstance(count, bool) or not isinstance(count, int) or count < 1:
-        raise OptionError(f"{label}: count must be a whole number >= 1, got {count!r}", path=where)
+    if isinstance(count, bool) or not isinstance(count, int) or not 1 <= count <= MAX_COUNT:
+        raise OptionError(f"{label}: count must be a whole number from 1 to {MAX_COUNT}, got {count!r}", path=where)
     mirror = entry.get("mirror")
     if mirror not in (None, "x", "y"):
         raise OptionError(f'{label}: mirror must be "x" (negate x) or "y" (negate y), got {mirror!r}', path=where)
@@ -836,9 +923,14 @@ def _anchor(entry: Mapping[str, Any], part: Part, label: str, where: str) -> tup
         if (
             not isinstance(value, list)
             or len(value) != 2
-            or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)
+            or not all(
+                isinstance(v, (int, float)) and not isinstance(v, bool) and abs(v) <= MAX_PLACEMENT_MM for v in value
+            )
         ):
-            raise OptionError(f"{label}: anchor_mm must be [x, y] in mm, got {value!r}", path=where)
+            raise OptionError(
+                f"{label}: anchor_mm must be [x, y] in mm, each within +-{MAX_PLACEMENT_MM:g}, got {value!r}",
+                path=where,
+            )
         return float(value[0]), float(value[1])
     anchor = str(entry.get("anchor", "origin")).strip().lower()
     if anchor == "origin":

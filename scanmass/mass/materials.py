@@ -10,7 +10,6 @@ from __future__ import annotations
 import difflib
 import math
 import re
-import tomllib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from importlib import resources
@@ -19,6 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from scanmass.errors import MaterialError
+from scanmass.readfile import parse_toml, read_toml
 
 __all__ = ["Material", "load_materials", "find_material", "resolve_material"]
 
@@ -79,6 +79,11 @@ class Material:
         }
 
 
+#: Plausible densities of a plate material, kg/m3 (from aerogels to beyond osmium, 22 590).
+MIN_DENSITY_KG_M3 = 0.1
+MAX_DENSITY_KG_M3 = 1e5
+
+
 def _norm(text: str) -> str:
     """Lookup form of a name: lower case, only letters, digits and dots, US spellings folded."""
     s = re.sub(r"[^a-z0-9.]", "", str(text).casefold())
@@ -86,24 +91,11 @@ def _norm(text: str) -> str:
 
 
 def _read_toml(path: Path | None) -> dict[str, Any]:
-    try:
-        if path is None:
-            text = resources.files("scanmass.mass").joinpath("data/materials.toml").read_text(encoding="utf-8")
-        else:
-            text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise MaterialError("materials file not found; check the path given to --materials", path=str(path)) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise MaterialError(
-            f"cannot read the materials file ({exc.__class__.__name__}); pass a UTF-8 TOML file", path=str(path)
-        ) from None
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise MaterialError(
-            f"not valid TOML ({exc}); fix the file's syntax", path=None if path is None else str(path)
-        ) from None
-    return doc
+    if path is None:
+        text = resources.files("scanmass.mass").joinpath("data/materials.toml").read_text(encoding="utf-8")
+        return parse_toml(text, error=MaterialError, path=None)
+    # regular files only, read no further than their size: a FIFO or /dev/zero is refused
+    return read_toml(path, error=MaterialError, what="materials file (UTF-8 TOML, given to --materials)")
 
 
 def _build(key: str, entry: Mapping[str, Any], where: str | None) -> Material:
@@ -129,13 +121,19 @@ def _build(key: str, entry: Mapping[str, Any], where: str | None) -> Material:
         raise MaterialError(
             f"material {key!r}: density must be a positive number of kg/m3, got {entry['density_kg_m3']!r}", path=where
         )
+    if not (MIN_DENSITY_KG_M3 <= lo and hi <= MAX_DENSITY_KG_M3):
+        raise MaterialError(
+            f"material {key!r}: density {rho:g} kg/m3 (range [{lo:g}, {hi:g}]) is outside {MIN_DENSITY_KG_M3:g} to "
+            f"{MAX_DENSITY_KG_M3:g} kg/m3; give the density in kg/m3 (steel is about 7850)",
+            path=where,
+        )
     if not lo <= rho <= hi:
         raise MaterialError(
             f"material {key!r}: nominal density {rho:g} kg/m3 lies outside its range [{lo:g}, {hi:g}]; fix density_range_kg_m3",
             path=where,
         )
     aliases = entry.get("aliases", [])
-    if isinstance(aliases, str) or not all(isinstance(a, str) for a in aliases):
+    if not isinstance(aliases, list) or not all(isinstance(a, str) for a in aliases):
         raise MaterialError(f"material {key!r}: aliases must be a list of strings", path=where)
     return Material(
         key=key,

@@ -168,6 +168,9 @@ def _read_dxf(p: str) -> Nominal:
     import ezdxf
     from ezdxf import path as ezpath
 
+    from scanmass.readfile import read_regular
+
+    read_regular(p, error=ResultFormatError, what="DXF", max_bytes=1 << 28)  # regular files only, never a FIFO
     try:
         doc = ezdxf.readfile(p)
     except (OSError, ezdxf.DXFError) as exc:

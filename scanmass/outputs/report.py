@@ -33,6 +33,7 @@ from scanmass.names import FIGURE, FIGURES, UNCERTAINTY_NOTE, check_units, unit_
 from scanmass.outputs.atomic import write_atomic
 from scanmass.outputs.formatting import _finite, format_value
 from scanmass.outputs.resultio import PathLike, as_measurement
+from scanmass.readfile import read_regular
 
 __all__ = [
     "CAUTIONS",
@@ -314,14 +315,10 @@ def _png_data_uri(data: bytes | PathLike, *, what: str) -> tuple[str, tuple[int,
         raw = bytes(data)
     else:
         path = os.fspath(data)
-        try:
-            raw = Path(path).read_bytes()
-        except FileNotFoundError:
-            raise ImageError(
-                f"{what} not found; pass the overlay PNG written by 'scanmass measure --overlay'", path=path
-            ) from None
-        except OSError as exc:
-            raise ImageError(f"{what} cannot be read ({exc.strerror}); check its permissions", path=path) from None
+        # regular files only, never past their size (a FIFO or /dev/zero is refused)
+        raw = read_regular(
+            path, error=ImageError, what=what, fix="pass the overlay PNG written by 'scanmass measure --overlay'"
+        )
     if not raw.startswith(b"\x89PNG\r\n\x1a\n"):
         raise ImageError(
             f"{what} is not a PNG image; pass the overlay PNG written by 'scanmass measure --overlay'", path=path
@@ -535,9 +532,14 @@ def read_extra(path: PathLike) -> tuple[str, Any] | None:
     import json
     from types import SimpleNamespace
 
+    from scanmass.errors import ResultFormatError
+    from scanmass.measurement import MAX_RESULT_BYTES
+    from scanmass.readfile import read_regular_text
+
     try:
-        doc = json.loads(Path(path).read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, ValueError):
+        text = read_regular_text(path, error=ResultFormatError, what="result", max_bytes=MAX_RESULT_BYTES)
+        doc = json.loads(text)
+    except (ResultFormatError, OSError, UnicodeDecodeError, ValueError, RecursionError):
         return None  # read_result names the problem
     if not isinstance(doc, dict):
         return None

@@ -11,7 +11,7 @@ from scanmass.errors import OutputError
 from scanmass.load.decode import load_image
 from scanmass.measurement import Measurement
 from scanmass.options import MeasureOptions
-from scanmass.outputs.atomic import write_atomic
+from scanmass.outputs.atomic import check_distinct, write_many
 
 __all__ = ["MeasureOutputs", "write_outputs", "measure_to_outputs"]
 
@@ -38,16 +38,19 @@ def write_outputs(
     """Write the requested outputs; ``json_out == "-"`` means "return it, do not write".
 
     The overlay needs the loaded image (``image``: a LoadedImage), or re-reads the source.
-    Every file is written to a temporary name in its folder and renamed into place, and
-    none of ``inputs`` is ever overwritten. ``units`` (mm or in) applies to the CSV and the
+    Two outputs naming one file are refused before anything is written. All outputs
+    are written together (:func:`~scanmass.outputs.atomic.write_many`): each to a
+    temporary name in its folder, then all renamed into place; ``"-"``, FIFOs and
+    pipes are written straight through. None of ``inputs`` is ever overwritten. ``units`` (mm or in) applies to the CSV and the
     overlay's labels; the JSON is always in mm.
     """
+    check_distinct([json_out, csv_out, overlay_out])
     document = measurement.to_json()
-    written: list[str] = []
+    items: list[tuple[str | os.PathLike, bytes | str]] = []
     if json_out is not None and str(json_out) != "-":
-        written.append(str(write_atomic(json_out, document + "\n", inputs=inputs)))
+        items.append((json_out, document + "\n"))
     if csv_out is not None:
-        written.append(str(write_atomic(csv_out, measurement.to_csv(units), inputs=inputs)))
+        items.append((csv_out, measurement.to_csv(units)))
     if overlay_out is not None:
         from scanmass.outputs.overlay import encode_png, render_overlay
 
@@ -59,9 +62,8 @@ def write_outputs(
                     path=os.fspath(overlay_out),
                 )
             image = load_image(measurement.source.path)
-        written.append(
-            str(write_atomic(overlay_out, encode_png(render_overlay(image, measurement, units=units)), inputs=inputs))
-        )
+        items.append((overlay_out, encode_png(render_overlay(image, measurement, units=units))))
+    written = [str(p) for p in write_many(items, inputs=inputs)] if items else []
     return MeasureOutputs(measurement=measurement, document=document, written=written)
 
 

@@ -125,6 +125,8 @@ class LensProfile:
 def load_lens_profile(path: str | os.PathLike) -> LensProfile:
     """Read a lens profile JSON written by :func:`save_lens_profile`."""
     p = Path(os.fspath(path))
+    if p.exists() and not p.is_file():  # a FIFO or device would hang or never end
+        raise OptionError("the lens profile is not a regular file; give the JSON from 'scanmass lens'", path=str(p))
     try:
         data = json.loads(p.read_text(encoding="utf-8"))
     except FileNotFoundError:

@@ -33,6 +33,10 @@ _LOW_RES_MAX_PX = 640
 _PAD_PX = 6
 
 
+#: Holes smaller than this (px2, a 2 x 2 pixel patch) are pixel noise: filled without being counted.
+_MIN_COUNTED_HOLE_PX = 4.0
+
+
 @dataclass
 class PartRings:
     """One part in pixel space: its outer ring, hole rings and what the error model needs.
@@ -52,6 +56,9 @@ class PartRings:
     blur_px: float
     level_rel_u: float
     hole_gradients_px: list[np.ndarray] = field(default_factory=list)
+    #: holes smaller than the minimum hole area that were filled (counted as material)
+    filled_holes: int = 0
+    filled_hole_area_px: float = 0.0
 
 
 @dataclass
@@ -489,8 +496,15 @@ def _refine_part(
     outer, outer_area, gradient, slope = closed[0]
     outer_sign = math.copysign(1.0, outer_area)
     holes_px, hole_grads, slopes = [], [], [slope]
+    filled, filled_area = 0, 0.0
     for xy, area, grad, slope in closed[1:]:
-        if math.copysign(1.0, area) == outer_sign or abs(area) < min_hole_px:
+        if math.copysign(1.0, area) == outer_sign:
+            continue
+        if abs(area) < min_hole_px:
+            # filled as dust; counted (above pixel noise) so that the result says so
+            if abs(area) >= _MIN_COUNTED_HOLE_PX and point_in_ring(xy[0], outer):
+                filled += 1
+                filled_area += abs(area)
             continue
         if not point_in_ring(xy[0], outer):
             continue
@@ -520,6 +534,8 @@ def _refine_part(
         blur_px=blur_px,
         level_rel_u=level_rel_u,
         hole_gradients_px=hole_grads,
+        filled_holes=filled,
+        filled_hole_area_px=filled_area,
     )
 
 
