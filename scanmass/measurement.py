@@ -344,6 +344,7 @@ class Measurement:
                 "hole_diameters_mm": " ".join(f"{h.diameter_mm:.4f}" for h in p.holes),
                 "mass_g": p.mass_g,
                 "mass_u_g": p.mass_u_g,
+                "warnings": " | ".join(self.warnings),
             }
             rows.append(_clean(row))
         return rows
@@ -398,6 +399,7 @@ CSV_COLUMNS = [
     "hole_diameters_mm",
     "mass_g",
     "mass_u_g",
+    "warnings",
 ]
 
 

@@ -283,7 +283,7 @@ def measure_photo(
         ) from None
     _check_within_support(scale, result, image.path)
     warnings = list(scale.warnings)
-    warnings += _parallax_warning(scale, result, thickness_mm)
+    warnings += _unknown_thickness(scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": scale_method(image, options)})
     return result
@@ -322,32 +322,98 @@ def _check_within_support(scale: PhotoScale, result: Measurement, path: str | No
             )
 
 
-def _parallax_warning(scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
-    """Without a thickness: the thickness from which parallax exceeds the stated uncertainty.
+def _unknown_thickness(
+    scale: PhotoScale, result: Measurement, thickness_mm: float | None, plausible_mm: float | None = None
+) -> list[str]:
+    """Without a thickness: an uncertainty term covering the parallax of a plausible thickness, and a warning.
 
-    Each part's outline (mm) is raised by 1 mm (:func:`~scanmass.scale.homography.raised_outline_mm`);
-    the changes of its area and centroid against their stated uncertainties give the limit.
+    A photo shows a raised part larger than its footprint (its top face is nearer the
+    camera) and, in a tilted view, with one side wall. When the thickness is not given,
+    each part's outline and holes (mm) are raised by ``plausible_mm``
+    (:data:`UNKNOWN_THICKNESS_MM`, via :func:`~scanmass.scale.homography.raised_outline_mm`)
+    and half of the change of every figure is added as the term ``thickness_unknown``:
+    a part of that thickness then lies 2 sigma off, one 1.5 times as thick 3 sigma off.
+    ``--thickness 0`` declares a sheet-thin part and removes the term.
     """
     if thickness_mm is not None or scale.camera_matrix is None or not result.parts:
         return []
-    h0 = scale.plane_map.matrix
-    limit = math.inf
-    for part in result.parts:
-        flat_mm = np.asarray(part.outline_mm, dtype=float)
-        raised = section_properties(raised_outline_mm(h0, scale.camera_matrix, 1.0, flat_mm))
-        flat = section_properties(flat_mm)
-        d_area = abs(raised.area_mm2 - flat.area_mm2)
-        d_cen = math.dist(raised.centroid_mm, flat.centroid_mm)
-        if d_area > 0:
-            limit = min(limit, part.area_u_mm2 / d_area)
-        if d_cen > 0:
-            limit = min(limit, math.hypot(*part.centroid_u_mm) / d_cen)
-    if limit < 25.0:
-        return [
-            f"parallax: a part thicker than about {limit:.2g} mm looks larger or shifted by more than the stated "
-            "uncertainty; give its thickness with --thickness MM"
-        ]
-    return []
+    plausible = UNKNOWN_THICKNESS_MM if plausible_mm is None else plausible_mm
+    h0, k = scale.plane_map.matrix, scale.camera_matrix
+    worst_rel = 0.0
+    worst_cen_mm = 0.0
+    for n, part in enumerate(result.parts):
+        if part.outline_mm is None:
+            continue
+        flat_outer = np.asarray(part.outline_mm, dtype=float)
+        flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
+        raised_outer = raised_outline_mm(h0, k, plausible, flat_outer)
+        raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True) for h in flat_holes]
+        before = _figure_values(section_properties(flat_outer, flat_holes))
+        after = _figure_values(section_properties(raised_outer, raised_holes))
+        term = {name: 0.5 * abs(after[name] - before[name]) for name in before}
+        d_angle = (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
+        term["principal_angle_deg"] = 0.5 * abs(d_angle)
+        result.parts[n] = _with_extra_term(part, "thickness_unknown", term, raised_holes)
+        worst_rel = max(worst_rel, term["area_mm2"] / max(part.area_mm2, 1e-12))
+        worst_cen_mm = max(worst_cen_mm, math.hypot(term["centroid_x_mm"], term["centroid_y_mm"]))
+    return [
+        f"parallax (thickness not given): a part {plausible:g} mm thick would measure {200 * worst_rel:.2g} % smaller in area "
+        f"and up to {2 * worst_cen_mm:.2g} mm off in centroid (parallax); the uncertainty includes half of it "
+        "(term 'thickness_unknown'); give the thickness with --thickness MM, or --thickness 0 for a sheet-thin part"
+    ]
+
+
+#: Thickness (mm) whose parallax the uncertainty of a photo covers (as 2 sigma) when the
+#: part's thickness is not given; common plate and sheet stock is 0.5-3 mm.
+UNKNOWN_THICKNESS_MM = 3.0
+
+
+def _with_extra_term(part: Part, name: str, term: dict[str, float], raised_holes: list[np.ndarray]) -> Part:
+    """The part with one more named uncertainty term, combined into every total it touches."""
+    totals = {
+        "area_u_mm2": "area_mm2",
+        "perimeter_u_mm": "perimeter_mm",
+        "ixx_u_mm4": "ixx_mm4",
+        "iyy_u_mm4": "iyy_mm4",
+        "ixy_u_mm4": "ixy_mm4",
+        "i1_u_mm4": "i1_mm4",
+        "i2_u_mm4": "i2_mm4",
+        "polar_u_mm4": "polar_mm4",
+        "principal_angle_u_deg": "principal_angle_deg",
+    }
+    changes: dict[str, Any] = {key: combine(getattr(part, key), term[fig]) for key, fig in totals.items()}
+    changes["centroid_u_mm"] = (
+        combine(part.centroid_u_mm[0], term["centroid_x_mm"]),
+        combine(part.centroid_u_mm[1], term["centroid_y_mm"]),
+    )
+    holes = []
+    for hole, raised in zip(part.holes, raised_holes):
+        fit = fit_circle(raised)
+        a, qx, qy = ring_moments(raised)[:3]
+        d_d = 0.5 * abs(fit.diameter_mm - hole.diameter_mm)
+        d_a = 0.5 * abs(abs(float(a)) - hole.area_mm2)
+        d_c = (0.5 * abs(float(qx / a) - hole.centroid_mm[0]), 0.5 * abs(float(qy / a) - hole.centroid_mm[1]))
+        d_cc = (
+            0.5 * abs(fit.centre_mm[0] - hole.circle_centre_mm[0]),
+            0.5 * abs(fit.centre_mm[1] - hole.circle_centre_mm[1]),
+        )
+        holes.append(
+            replace(
+                hole,
+                diameter_u_mm=combine(hole.diameter_u_mm, d_d),
+                area_u_mm2=combine(hole.area_u_mm2, d_a),
+                centroid_u_mm=(combine(hole.centroid_u_mm[0], d_c[0]), combine(hole.centroid_u_mm[1], d_c[1])),
+                circle_centre_u_mm=(
+                    combine(hole.circle_centre_u_mm[0], d_cc[0]),
+                    combine(hole.circle_centre_u_mm[1], d_cc[1]),
+                ),
+            )
+        )
+    if len(holes) < len(part.holes):
+        holes += part.holes[len(holes) :]
+    terms = dict(part.uncertainty_terms)
+    terms[name] = dict(term)
+    return replace(part, holes=holes, uncertainty_terms=terms, **changes)
 
 
 def _scale_terms(part: MappedPart, plane_map: PlaneMap, props: SectionProperties) -> dict[str, float]:
