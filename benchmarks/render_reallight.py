@@ -583,7 +583,13 @@ def _scan_spec(entry, out_dir, samples, dpi):
         "dpi": dpi,
         "parts": truth_parts,
         "light": {"style": "scanner lamp", "elevation_deg": lamp_deg, "from": "left (-x)"},
-        "camera": {"type": "orthographic, looking straight down on the white lid", "size_px": list(size_px)},
+        "camera": {
+            "type": "orthographic, looking straight down on the white lid",
+            "size_px": list(size_px),
+            "centre_mm": [cx, cy],
+            "ortho_scale_mm": max(w_mm, h_mm),
+            "note": "the image spans ortho_scale_mm along its longer side, centred on centre_mm",
+        },
         "samples": samples,
         "renderer": "Blender Cycles (CPU)",
     }

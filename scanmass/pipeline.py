@@ -26,6 +26,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.segment.rings import segment
+from scanmass.segment.touching import touching_lobes
 from scanmass.uncertainty import (
     THRESHOLD_FLOOR_PX,
     build_edge_model,
@@ -213,6 +214,7 @@ def measure_image(
         roi_px=roi_px,
     )
     parts = [measure_part(map_part(rings, plane_map), plane_map) for rings in seg.parts]
+    touching = _touching_warnings(seg.parts, plane_map.mm_per_px)
     scale = ScaleInfo(
         method=plane_map.method,
         mm_per_px=plane_map.mm_per_px,
@@ -250,8 +252,28 @@ def measure_image(
         "specks_ignored": seg.specks,
     }
     return Measurement(
-        source=source, scale=scale, parts=parts, warnings=list(seg.warnings), cut_parts=cut_parts, settings=settings
+        source=source,
+        scale=scale,
+        parts=parts,
+        warnings=list(seg.warnings) + touching,
+        cut_parts=cut_parts,
+        settings=settings,
     )
+
+
+def _touching_warnings(parts: list[Any], mm_per_px: float) -> list[str]:
+    """A warning for each found part that looks like two parts touching (a narrow neck between two lobes)."""
+    out = []
+    for rings in parts:
+        neck = touching_lobes(rings.outer_px, list(rings.holes_px))
+        if neck is not None:
+            wa, wb = (w * mm_per_px for w in neck.lobe_widths_px)
+            out.append(
+                f"part {rings.label} looks like two parts touching (a neck {neck.neck_width_px * mm_per_px:.2g} mm "
+                f"wide between lobes {wa:.3g} and {wb:.3g} mm across); they are measured as one: lay them a few mm "
+                "apart"
+            )
+    return out
 
 
 def measure_photo(

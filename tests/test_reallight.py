@@ -81,3 +81,33 @@ def test_given_thickness_measures_within_stated_uncertainty():
     part = m.parts[0]
     assert abs(part.area_mm2 - area) <= 3 * part.area_u_mm2
     assert math.dist(part.centroid_mm, centroid) < 0.05
+
+
+def _disc_scan(centres_px, radius_px=60):
+    import numpy as np
+
+    img = np.full((300, 460), 235, np.uint8)
+    for cx, cy in centres_px:
+        import cv2
+
+        cv2.circle(img, (cx * 16, cy * 16), radius_px * 16, 25, -1, lineType=cv2.LINE_AA, shift=4)
+    return img
+
+
+def test_touching_parts_are_detected():
+    """Two discs of 120 px laid touching come out as one part; the neck between them is reported."""
+    m = scanmass.measure(_disc_scan([(130, 150), (250, 150)]), dpi=300)
+    assert len(m.parts) == 1
+    assert any("looks like two parts touching" in w for w in m.warnings)
+
+
+def test_separate_and_single_parts_are_not_touching():
+    m = scanmass.measure(_disc_scan([(100, 150), (300, 150)]), dpi=300)
+    assert len(m.parts) == 2 and not any("touching" in w for w in m.warnings)
+    import numpy as np
+
+    img = np.full((300, 460), 235, np.uint8)
+    img[40:260, 60:160] = 25  # an L bracket: legs 100 px wide, no neck
+    img[160:260, 60:400] = 25
+    m = scanmass.measure(img, dpi=300)
+    assert len(m.parts) == 1 and not any("touching" in w for w in m.warnings)
