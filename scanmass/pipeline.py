@@ -26,6 +26,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.segment.rings import segment
+from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
 from scanmass.segment.touching import touching_lobes
 from scanmass.uncertainty import (
     THRESHOLD_FLOOR_PX,
@@ -306,6 +307,7 @@ def measure_photo(
     _check_within_support(scale, result, image.path)
     warnings = list(scale.warnings)
     warnings += _unknown_thickness(scale, result, thickness_mm)
+    warnings += _cast_shadows(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": scale_method(image, options)})
     return result
@@ -383,6 +385,95 @@ def _unknown_thickness(
         f"and up to {2 * worst_cen_mm:.2g} mm off in centroid (parallax); the uncertainty includes half of it "
         "(term 'thickness_unknown'); give the thickness with --thickness MM, or --thickness 0 for a sheet-thin part"
     ]
+
+
+def _photo_colour(image: LoadedImage) -> np.ndarray | None:
+    """The photo's colour planes (encoded, as stored), or None for arrays, grey files or a size mismatch."""
+    if image.path is None:
+        return None
+    colour = cv2.imread(image.path, cv2.IMREAD_COLOR)  # applies the EXIF orientation, as the loader does
+    if colour is None or colour.ndim != 3 or colour.shape[:2] != image.grey.shape:
+        return None
+    if colour.dtype != np.uint8 or len(image.to_linear) != 256:
+        return None
+    b, g, r = colour[..., 0], colour[..., 1], colour[..., 2]
+    if np.array_equal(b, g) and np.array_equal(g, r):
+        return None  # a grey photo: colour tells nothing
+    return colour
+
+
+def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
+    """Flag parts whose edge band looks like darkened paper (a cast shadow colour cannot rule out).
+
+    For each part the band a shadow can cover (:func:`~scanmass.segment.shadow.shadow_band_px`,
+    for the given thickness or :data:`UNKNOWN_THICKNESS_MM`) is tested in colour against the
+    local paper white (:func:`~scanmass.segment.shadow.shadow_risk`). Where more than
+    :data:`~scanmass.segment.shadow.SHADOW_FRACTION` of it is shadow-like, the part may
+    include its shadow: an uncertainty term ``cast_shadow`` of half the shadow-like area
+    (and the matching centroid, moment and hole terms) and a warning with what to change.
+    """
+    if thickness_mm == 0 or not result.parts:
+        return []
+    colour = _photo_colour(image)
+    if colour is None:
+        return []
+    thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
+    mm_per_px = scale.plane_map.mm_per_px
+    band_px = shadow_band_px(thick, mm_per_px)
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    flagged = []
+    for n, part in enumerate(result.parts):
+        if part.outline_mm is None:
+            continue
+        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+        holes_px = [
+            scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes if h.outline_mm is not None
+        ]
+        pad = int(band_px) + 16
+        x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad
+        x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + pad
+        h_px, w_px = image.grey.shape
+        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w_px), min(y1, h_px)
+        if x1 - x0 < 8 or y1 - y0 < 8:
+            continue
+        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+        cv2.fillPoly(mask, [np.round(outer_px - [x0, y0]).astype(np.int32)], 1)
+        for hp in holes_px:
+            cv2.fillPoly(mask, [np.round(hp - [x0, y0]).astype(np.int32)], 0)
+        crop = lut[colour[y0:y1, x0:x1]]
+        risk = shadow_risk(crop, mask.astype(bool), band_px)
+        if risk is None or risk.fraction < SHADOW_FRACTION:
+            continue
+        like_mm2 = risk.shadow_like_px * mm_per_px**2
+        share = min(1.0, like_mm2 / max(part.area_mm2, 1e-9))
+        arm_mm = 0.5 * part.caliper_max_mm
+        band_mm = band_px * mm_per_px
+        term = {
+            "area_mm2": 0.5 * like_mm2,
+            "centroid_x_mm": 0.5 * share * arm_mm,
+            "centroid_y_mm": 0.5 * share * arm_mm,
+            "perimeter_mm": 0.5 * share * part.perimeter_mm,
+            "principal_angle_deg": 0.0,
+        }
+        for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+            term[fig] = share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+        result.parts[n] = _with_shadow_term(part, term, 0.5 * band_mm)
+        flagged.append(f"{part.label} ({100 * risk.fraction:.0f} % of its edge band)")
+    if not flagged:
+        return []
+    return [
+        f"cast shadow: part(s) {', '.join(flagged)} border(s) a region with the paper's colour, darkened, as a cast "
+        "shadow has; colour cannot tell it from a dark neutral part, so the uncertainty includes it (term "
+        "'cast_shadow'); for a trustworthy figure use diffuse light (an overcast window, a lamp beside the camera "
+        "aimed at the ceiling) or a backlight"
+    ]
+
+
+def _with_shadow_term(part: Part, term: dict[str, float], hole_d_u_mm: float) -> Part:
+    """The part with the term ``cast_shadow``; a hole can be narrowed by a shadow falling into it."""
+    holes = [replace(h, diameter_u_mm=combine(h.diameter_u_mm, hole_d_u_mm)) for h in part.holes]
+    updated = replace(part, holes=holes)
+    return _with_extra_term(updated, "cast_shadow", term, [])
 
 
 #: Thickness (mm) whose parallax the uncertainty of a photo covers (as 2 sigma) when the
