@@ -111,3 +111,68 @@ def test_separate_and_single_parts_are_not_touching():
     img[160:260, 60:400] = 25
     m = scanmass.measure(img, dpi=300)
     assert len(m.parts) == 1 and not any("touching" in w for w in m.warnings)
+
+
+# ---------------------------------------------------------------------------------
+# the committed path-traced renders (benchmarks/render_reallight.py, Blender Cycles)
+# ---------------------------------------------------------------------------------
+
+REALLIGHT = ROOT / "tests" / "data" / "reallight"
+RENDERS = sorted(p.name for p in REALLIGHT.glob("*.json")) if REALLIGHT.exists() else []
+
+
+def _render_truth(name):
+    truth = json.loads((REALLIGHT / name).read_text())
+    parts = []
+    for p in truth["parts"]:
+        outer, holes = p["outline_mm"], p["holes_mm"]
+        if truth["kind"] == "scan":  # paper mm -> scan frame (render_reallight.py: ortho camera centred on centre_mm)
+            cam = truth["camera"]
+            s = cam["ortho_scale_mm"] / max(cam["size_px"])
+            dx = 0.5 * cam["size_px"][0] * s - cam["centre_mm"][0]
+            dy = 0.5 * cam["size_px"][1] * s - cam["centre_mm"][1]
+            outer = [(x + dx, y + dy) for x, y in outer]
+            holes = [[(x + dx, y + dy) for x, y in h] for h in holes]
+        area, centroid = _truth(outer, holes)
+        parts.append({"area": area, "centroid": centroid, "thickness_mm": p["thickness_mm"], "shape": p["shape"]})
+    return truth, parts
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", RENDERS)
+def test_rendered_photo_every_part_found_and_never_confidently_wrong(name):
+    """Every part found, no shadow or marker reported as a part, and each part's area and
+    centroid within 3 stated sigma -- or a warning that names the problem."""
+    truth, parts = _render_truth(name)
+    image = REALLIGHT / truth["image"]
+    kwargs = (
+        {"dpi": 25.4 * max(truth["camera"]["size_px"]) / truth["camera"]["ortho_scale_mm"]}
+        if truth["kind"] == "scan"
+        else {}
+    )
+    for thickness in sorted({p["thickness_mm"] for p in parts}):
+        m = scanmass.measure(image, thickness_mm=thickness, **kwargs)
+        assert len(m.parts) == len(parts), (name, [p.area_mm2 for p in m.parts])
+        for tp in parts:
+            if tp["thickness_mm"] != thickness:
+                continue
+            part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+            assert math.dist(part.centroid_mm, tp["centroid"]) < 8.0, (name, tp["shape"])
+            covered = abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2 and all(
+                abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm)
+            )
+            warned = any(f" {part.label} (" in w or f"part {part.label} " in w for w in m.warnings)
+            assert covered or warned, (name, tp["shape"], part.area_mm2 / tp["area"] - 1, m.warnings)
+
+
+def test_part_leaving_the_clear_area_is_refused_with_the_fix():
+    """Bad input: the only part crosses the clear area's edge (A4 mat: x from 38.5 mm, scanmass.scale.mat)."""
+    from scanmass.errors import SegmentationError
+    from scanmass.scale.mat import make_mat
+    from scanmass.testing.photos import PhotoParts, make_camera, render_photo
+    from scanmass.testing.scans import rectangle
+
+    part = PhotoParts(rectangle(20.0, 120.0, 60.0, 40.0))  # x 20-80 mm: over the clear area's left edge
+    img = render_photo(make_mat("a4-portrait"), [part], make_camera(tilt_deg=0.0, distance_mm=420.0), seed=3)
+    with pytest.raises(SegmentationError, match="crosses its edge.*move it inside"):
+        scanmass.measure(img, printed_x_mm=100.0, printed_y_mm=100.0, thickness_mm=0)
