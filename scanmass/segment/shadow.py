@@ -45,6 +45,8 @@ class ShadowRisk:
         Of those, pixels whose colour is the paper white's, darkened.
     fraction : float
         ``shadow_like_px / band_px``.
+    depth : float
+        Median darkening factor (part / paper white, channel mean) over the band.
     paper_rgb : (3,) ndarray
         The local paper white, linear light.
     """
@@ -53,6 +55,7 @@ class ShadowRisk:
     shadow_like_px: int
     fraction: float
     paper_rgb: np.ndarray
+    depth: float = float("nan")
 
 
 def shadow_band_px(thickness_mm: float, mm_per_px: float) -> float:
@@ -93,4 +96,6 @@ def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -
     dark = (m >= _DEPTH_RANGE[0]) & (m <= _DEPTH_RANGE[1])
     like = neutral & dark
     n_band, n_like = int(band.sum()), int(like.sum())
-    return ShadowRisk(band_px=n_band, shadow_like_px=n_like, fraction=n_like / n_band, paper_rgb=paper)
+    return ShadowRisk(
+        band_px=n_band, shadow_like_px=n_like, fraction=n_like / n_band, paper_rgb=paper, depth=float(np.median(m))
+    )
