@@ -26,7 +26,7 @@ __all__ = ["ShadowRisk", "shadow_risk", "SHADOW_MIN_ELEVATION_DEG", "SHADOW_FRAC
 #: from a table are rarely lower): a shadow reaches thickness / tan(30 deg) = 1.73 x the thickness.
 SHADOW_MIN_ELEVATION_DEG = 30.0
 #: Share of the edge band that must look like darkened paper before the part is flagged.
-SHADOW_FRACTION = 0.3
+SHADOW_FRACTION = 0.1
 #: Largest relative difference between the channels' darkening factors of a shadow pixel.
 _CHROMA_TOL = 0.12
 #: Darkening factors (part / paper white) a shadow can have.
