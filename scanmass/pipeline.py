@@ -421,7 +421,8 @@ def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, th
     mm_per_px = scale.plane_map.mm_per_px
     band_px = shadow_band_px(thick, mm_per_px)
     lut = np.asarray(image.to_linear, dtype=np.float32)
-    flagged = []
+    flagged: list[str] = []
+    lost: list[str] = []
     for n, part in enumerate(result.parts):
         if part.outline_mm is None:
             continue
@@ -442,7 +443,24 @@ def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, th
             cv2.fillPoly(mask, [np.round(hp - [x0, y0]).astype(np.int32)], 0)
         crop = lut[colour[y0:y1, x0:x1]]
         risk = shadow_risk(crop, mask.astype(bool), band_px)
-        if risk is None or risk.fraction < SHADOW_FRACTION:
+        if risk is None:
+            continue
+        foreign_mm2 = risk.foreign_outside_px * mm_per_px**2
+        if foreign_mm2 > max(0.002 * part.area_mm2, 4 * mm_per_px**2 * math.sqrt(risk.band_px)):
+            share = min(1.0, foreign_mm2 / max(part.area_mm2, 1e-9))
+            term = {
+                "area_mm2": foreign_mm2,
+                "centroid_x_mm": share * 0.5 * part.caliper_max_mm,
+                "centroid_y_mm": share * 0.5 * part.caliper_max_mm,
+                "perimeter_mm": share * part.perimeter_mm,
+                "principal_angle_deg": 0.0,
+            }
+            for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+                term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+            part = _with_shadow_term(part, term, 0.5 * band_px * mm_per_px, name="reflection")
+            result.parts[n] = part
+            lost.append(f"{part.label} ({foreign_mm2:.3g} mm²)")
+        if risk.fraction < SHADOW_FRACTION:
             continue
         like_mm2 = risk.shadow_like_px * mm_per_px**2
         share = min(1.0, like_mm2 / max(part.area_mm2, 1e-9))
@@ -459,9 +477,16 @@ def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, th
             term[fig] = share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
         result.parts[n] = _with_shadow_term(part, term, 0.5 * band_mm)
         flagged.append(f"{part.label} ({100 * risk.fraction:.0f} % of its edge band)")
+    out = []
+    if lost:
+        out.append(
+            f"reflection: next to the outline of part(s) {', '.join(lost)} lies an area that is neither paper nor "
+            "shadow (a bright or coloured reflection of a metal part?); the outline may leave it out, and the "
+            "uncertainty includes it (term 'reflection'); use diffuse light or a backlight"
+        )
     if not flagged:
-        return []
-    return [
+        return out
+    return out + [
         f"cast shadow: part(s) {', '.join(flagged)} border(s) a region with the paper's colour, darkened, as a cast "
         "shadow has; colour cannot tell it from a dark neutral part, so the uncertainty includes it (term "
         "'cast_shadow'); for a trustworthy figure use diffuse light (an overcast window, a lamp beside the camera "
@@ -469,11 +494,11 @@ def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, th
     ]
 
 
-def _with_shadow_term(part: Part, term: dict[str, float], hole_d_u_mm: float) -> Part:
-    """The part with the term ``cast_shadow``; a hole can be narrowed by a shadow falling into it."""
+def _with_shadow_term(part: Part, term: dict[str, float], hole_d_u_mm: float, name: str = "cast_shadow") -> Part:
+    """The part with a term ``name``; a hole can be narrowed by a shadow (or a lost reflection) too."""
     holes = [replace(h, diameter_u_mm=combine(h.diameter_u_mm, hole_d_u_mm)) for h in part.holes]
     updated = replace(part, holes=holes)
-    return _with_extra_term(updated, "cast_shadow", term, [])
+    return _with_extra_term(updated, name, term, [])
 
 
 #: Thickness (mm) whose parallax the uncertainty of a photo covers (as 2 sigma) when the

@@ -143,6 +143,9 @@ def _render_truth(name):
 KNOWN_FAILING = {
     "window-nylon-t0.json": "white nylon on white paper: the parts' shadows and holes are found instead of the "
     "parts (each flagged by the cast-shadow warning); a light part on light paper is not segmented yet",
+    "soft-steel-t0.json": "brushed steel reflecting a large soft light looks like the paper: the outline loses "
+    "1.6-1.9 % of the area, 12 sigma, with no warning (colour cannot tell; not solved)",
+    "scan-steel-lamp35.json": "the rendered scan's plate reaches the image edge (render set-up): refused as cut",
 }
 
 

@@ -47,6 +47,10 @@ class ShadowRisk:
         ``shadow_like_px / band_px``.
     depth : float
         Median darkening factor (part / paper white, channel mean) over the band.
+    foreign_outside_px : int
+        Pixels just outside the outline (within the band's width) that are neither paper
+        nor shadow: another colour, or brighter than the paper (a metal part's reflection
+        the outline left out).
     paper_rgb : (3,) ndarray
         The local paper white, linear light.
     """
@@ -56,6 +60,7 @@ class ShadowRisk:
     fraction: float
     paper_rgb: np.ndarray
     depth: float = float("nan")
+    foreign_outside_px: int = 0
 
 
 def shadow_band_px(thickness_mm: float, mm_per_px: float) -> float:
@@ -96,6 +101,20 @@ def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -
     dark = (m >= _DEPTH_RANGE[0]) & (m <= _DEPTH_RANGE[1])
     like = neutral & dark
     n_band, n_like = int(band.sum()), int(like.sum())
+    near = (outside > 0) & (outside <= max(band_px, 2.0))
+    qo = colour_lin[near] / paper
+    mo = qo.mean(axis=1)
+    paper_coloured = np.all(np.abs(qo - mo[:, None]) <= 2 * _CHROMA_TOL * mo[:, None] + 0.02, axis=1)
+    foreign = ~paper_coloured | (mo > 1.15)
+    # an isolated odd pixel (noise, a paper fibre) is no reflection: keep those with odd neighbours
+    grid = np.zeros(part_mask.shape, np.uint8)
+    grid[near] = foreign.astype(np.uint8)
+    grid = cv2.morphologyEx(grid, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
     return ShadowRisk(
-        band_px=n_band, shadow_like_px=n_like, fraction=n_like / n_band, paper_rgb=paper, depth=float(np.median(m))
+        band_px=n_band,
+        shadow_like_px=n_like,
+        fraction=n_like / n_band,
+        paper_rgb=paper,
+        depth=float(np.median(m)),
+        foreign_outside_px=int(grid.sum()),
     )
