@@ -134,7 +134,19 @@ def _render_truth(name):
             outer = [(x + dx, y + dy) for x, y in outer]
             holes = [[(x + dx, y + dy) for x, y in h] for h in holes]
         area, centroid = _truth(outer, holes)
-        parts.append({"area": area, "centroid": centroid, "thickness_mm": p["thickness_mm"], "shape": p["shape"]})
+        hole_truth = []
+        for h in holes:  # shapely: a round hole's diameter from its polygon's area (equal-area circle)
+            hp = Polygon(h)
+            hole_truth.append(((hp.centroid.x, hp.centroid.y), 2 * math.sqrt(hp.area / math.pi)))
+        parts.append(
+            {
+                "area": area,
+                "centroid": centroid,
+                "holes": hole_truth,
+                "thickness_mm": p["thickness_mm"],
+                "shape": p["shape"],
+            }
+        )
     return truth, parts
 
 
@@ -146,6 +158,8 @@ KNOWN_FAILING = {
     "soft-steel-t0.json": "brushed steel reflecting a large soft light looks like the paper: the outline loses "
     "1.6-1.9 % of the area, 12 sigma, with no warning (colour cannot tell; not solved)",
     "scan-steel-lamp35.json": "the rendered scan's plate reaches the image edge (render set-up): refused as cut",
+    "mixed-brass-t30.json": "brass under warm and cool light at 30 degrees of tilt: the cam's outline loses a "
+    "bright reflection (area +2.5 %, its bore 0.9 mm small) and, measured with its own thickness, is not flagged",
 }
 
 
@@ -178,6 +192,10 @@ def test_rendered_photo_every_part_found_and_never_confidently_wrong(name):
             covered = abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2 and all(
                 abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm)
             )
+            for centre, diameter in tp["holes"]:
+                near = [h for h in part.holes if math.dist(h.circle_centre_mm, centre) < 2.0]
+                hole = min(near, key=lambda h: math.dist(h.circle_centre_mm, centre)) if near else None
+                covered = covered and hole is not None and abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
             warned = any(f" {part.label} (" in w or f"part {part.label} " in w for w in m.warnings)
             assert covered or warned, (name, tp["shape"], part.area_mm2 / tp["area"] - 1, m.warnings)
 
