@@ -107,14 +107,14 @@ def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -
     paper_coloured = np.all(np.abs(qo - mo[:, None]) <= 2 * _CHROMA_TOL * mo[:, None] + 0.02, axis=1)
     foreign = ~paper_coloured | (mo > 1.15)
     # an isolated odd pixel (noise, a paper fibre) is no reflection: keep those with odd neighbours
-    grid = np.zeros(part_mask.shape, np.uint8)
+    grid: np.ndarray = np.zeros(part_mask.shape, np.uint8)
     grid[near] = foreign.astype(np.uint8)
-    grid = cv2.morphologyEx(grid, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+    opened = cv2.morphologyEx(grid, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
     return ShadowRisk(
         band_px=n_band,
         shadow_like_px=n_like,
         fraction=n_like / n_band,
         paper_rgb=paper,
         depth=float(np.median(m)),
-        foreign_outside_px=int(grid.sum()),
+        foreign_outside_px=int(np.count_nonzero(opened)),
     )
