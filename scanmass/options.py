@@ -192,7 +192,8 @@ class MeasureOptions:
     thickness_mm: float | None = _option(
         None,
         "Plate thickness, mm. With --material it gives the mass; on a photo it also corrects the parallax "
-        "of the part's top face above the mat.",
+        "of the part's top face above the mat. 0 declares a sheet-thin part; without it a photo's uncertainty "
+        "covers the parallax of a part up to 3 mm thick, with a warning.",
         "--thickness",
     )
     thickness_u_mm: float = _option(

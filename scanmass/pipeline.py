@@ -26,6 +26,8 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.segment.rings import segment
+from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
+from scanmass.segment.touching import touching_lobes
 from scanmass.uncertainty import (
     THRESHOLD_FLOOR_PX,
     build_edge_model,
@@ -222,6 +224,7 @@ def measure_image(
         roi_px=roi_px,
     )
     parts = [measure_part(map_part(rings, plane_map), plane_map) for rings in seg.parts]
+    touching = _touching_warnings(seg.parts, plane_map.mm_per_px)
     scale = ScaleInfo(
         method=plane_map.method,
         mm_per_px=plane_map.mm_per_px,
@@ -270,8 +273,23 @@ def measure_image(
             f"({area:.4g} mm2 in part(s) {labels}; see filled_holes); lower --min-hole-area to measure them"
         )
     return Measurement(
-        source=source, scale=scale, parts=parts, warnings=warnings, cut_parts=cut_parts, settings=settings
+        source=source, scale=scale, parts=parts, warnings=warnings + touching, cut_parts=cut_parts, settings=settings
     )
+
+
+def _touching_warnings(parts: list[Any], mm_per_px: float) -> list[str]:
+    """A warning for each found part that looks like two parts touching (a narrow neck between two lobes)."""
+    out = []
+    for rings in parts:
+        neck = touching_lobes(rings.outer_px, list(rings.holes_px))
+        if neck is not None:
+            wa, wb = (w * mm_per_px for w in neck.lobe_widths_px)
+            out.append(
+                f"part {rings.label} looks like two parts touching (a neck {neck.neck_width_px * mm_per_px:.2g} mm "
+                f"wide between lobes {wa:.3g} and {wb:.3g} mm across); they are measured as one: lay them a few mm "
+                "apart"
+            )
+    return out
 
 
 def measure_photo(
@@ -303,7 +321,8 @@ def measure_photo(
         ) from None
     _check_within_support(scale, result, image.path)
     warnings = list(scale.warnings)
-    warnings += _parallax_warning(scale, result, thickness_mm)
+    warnings += _unknown_thickness(scale, result, thickness_mm)
+    warnings += _cast_shadows(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": scale_method(image, options)})
     return result
@@ -342,32 +361,212 @@ def _check_within_support(scale: PhotoScale, result: Measurement, path: str | No
             )
 
 
-def _parallax_warning(scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
-    """Without a thickness: the thickness from which parallax exceeds the stated uncertainty.
+def _unknown_thickness(
+    scale: PhotoScale, result: Measurement, thickness_mm: float | None, plausible_mm: float | None = None
+) -> list[str]:
+    """Without a thickness: an uncertainty term covering the parallax of a plausible thickness, and a warning.
 
-    Each part's outline (mm) is raised by 1 mm (:func:`~scanmass.scale.homography.raised_outline_mm`);
-    the changes of its area and centroid against their stated uncertainties give the limit.
+    A photo shows a raised part larger than its footprint (its top face is nearer the
+    camera) and, in a tilted view, with one side wall. When the thickness is not given,
+    each part's outline and holes (mm) are raised by ``plausible_mm``
+    (:data:`UNKNOWN_THICKNESS_MM`, via :func:`~scanmass.scale.homography.raised_outline_mm`)
+    and half of the change of every figure is added as the term ``thickness_unknown``:
+    a part of that thickness then lies 2 sigma off, one 1.5 times as thick 3 sigma off.
+    ``--thickness 0`` declares a sheet-thin part and removes the term.
     """
     if thickness_mm is not None or scale.camera_matrix is None or not result.parts:
         return []
-    h0 = scale.plane_map.matrix
-    limit = math.inf
-    for part in result.parts:
-        flat_mm = np.asarray(part.outline_mm, dtype=float)
-        raised = section_properties(raised_outline_mm(h0, scale.camera_matrix, 1.0, flat_mm))
-        flat = section_properties(flat_mm)
-        d_area = abs(raised.area_mm2 - flat.area_mm2)
-        d_cen = math.dist(raised.centroid_mm, flat.centroid_mm)
-        if d_area > 0:
-            limit = min(limit, part.area_u_mm2 / d_area)
-        if d_cen > 0:
-            limit = min(limit, math.hypot(*part.centroid_u_mm) / d_cen)
-    if limit < 25.0:
-        return [
-            f"parallax: a part thicker than about {limit:.2g} mm looks larger or shifted by more than the stated "
-            "uncertainty; give its thickness with --thickness MM"
+    plausible = UNKNOWN_THICKNESS_MM if plausible_mm is None else plausible_mm
+    h0, k = scale.plane_map.matrix, scale.camera_matrix
+    worst_rel = 0.0
+    worst_cen_mm = 0.0
+    for n, part in enumerate(result.parts):
+        if part.outline_mm is None:
+            continue
+        flat_outer = np.asarray(part.outline_mm, dtype=float)
+        flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
+        raised_outer = raised_outline_mm(h0, k, plausible, flat_outer)
+        raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True) for h in flat_holes]
+        before = _figure_values(section_properties(flat_outer, flat_holes))
+        after = _figure_values(section_properties(raised_outer, raised_holes))
+        term = {name: 0.5 * abs(after[name] - before[name]) for name in before}
+        d_angle = (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
+        term["principal_angle_deg"] = 0.5 * abs(d_angle)
+        result.parts[n] = _with_extra_term(part, "thickness_unknown", term, raised_holes)
+        worst_rel = max(worst_rel, term["area_mm2"] / max(part.area_mm2, 1e-12))
+        worst_cen_mm = max(worst_cen_mm, math.hypot(term["centroid_x_mm"], term["centroid_y_mm"]))
+    return [
+        f"parallax (thickness not given): a part {plausible:g} mm thick would measure {200 * worst_rel:.2g} % smaller in area "
+        f"and up to {2 * worst_cen_mm:.2g} mm off in centroid (parallax); the uncertainty includes half of it "
+        "(term 'thickness_unknown'); give the thickness with --thickness MM, or --thickness 0 for a sheet-thin part"
+    ]
+
+
+def _photo_colour(image: LoadedImage) -> np.ndarray | None:
+    """The photo's colour planes (encoded, as stored), or None for arrays, grey files or a size mismatch."""
+    if image.path is None:
+        return None
+    colour = cv2.imread(image.path, cv2.IMREAD_COLOR)  # applies the EXIF orientation, as the loader does
+    if colour is None or colour.ndim != 3 or colour.shape[:2] != image.grey.shape:
+        return None
+    if colour.dtype != np.uint8 or len(image.to_linear) != 256:
+        return None
+    b, g, r = colour[..., 0], colour[..., 1], colour[..., 2]
+    if np.array_equal(b, g) and np.array_equal(g, r):
+        return None  # a grey photo: colour tells nothing
+    return colour
+
+
+def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
+    """Flag parts whose edge band looks like darkened paper (a cast shadow colour cannot rule out).
+
+    For each part the band a shadow can cover (:func:`~scanmass.segment.shadow.shadow_band_px`,
+    for the given thickness or :data:`UNKNOWN_THICKNESS_MM`) is tested in colour against the
+    local paper white (:func:`~scanmass.segment.shadow.shadow_risk`). Where more than
+    :data:`~scanmass.segment.shadow.SHADOW_FRACTION` of it is shadow-like, the part may
+    include its shadow: an uncertainty term ``cast_shadow`` of half the shadow-like area
+    (and the matching centroid, moment and hole terms) and a warning with what to change.
+    """
+    if thickness_mm == 0 or not result.parts:
+        return []
+    colour = _photo_colour(image)
+    if colour is None:
+        return []
+    thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
+    mm_per_px = scale.plane_map.mm_per_px
+    band_px = shadow_band_px(thick, mm_per_px)
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    flagged: list[str] = []
+    lost: list[str] = []
+    for n, part in enumerate(result.parts):
+        if part.outline_mm is None:
+            continue
+        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+        holes_px = [
+            scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes if h.outline_mm is not None
         ]
-    return []
+        pad = int(band_px) + 16
+        x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad
+        x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + pad
+        h_px, w_px = image.grey.shape
+        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w_px), min(y1, h_px)
+        if x1 - x0 < 8 or y1 - y0 < 8:
+            continue
+        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+        cv2.fillPoly(mask, [np.round(outer_px - [x0, y0]).astype(np.int32)], 1)
+        for hp in holes_px:
+            cv2.fillPoly(mask, [np.round(hp - [x0, y0]).astype(np.int32)], 0)
+        crop = lut[colour[y0:y1, x0:x1]]
+        risk = shadow_risk(crop, mask.astype(bool), band_px)
+        if risk is None:
+            continue
+        foreign_mm2 = risk.foreign_outside_px * mm_per_px**2
+        if foreign_mm2 > max(0.002 * part.area_mm2, 4 * mm_per_px**2 * math.sqrt(risk.band_px)):
+            share = min(1.0, foreign_mm2 / max(part.area_mm2, 1e-9))
+            term = {
+                "area_mm2": foreign_mm2,
+                "centroid_x_mm": share * 0.5 * part.caliper_max_mm,
+                "centroid_y_mm": share * 0.5 * part.caliper_max_mm,
+                "perimeter_mm": share * part.perimeter_mm,
+                "principal_angle_deg": 0.0,
+            }
+            for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+                term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+            part = _with_shadow_term(part, term, 0.5 * band_px * mm_per_px, name="reflection")
+            result.parts[n] = part
+            lost.append(f"{part.label} ({foreign_mm2:.3g} mm²)")
+        if risk.fraction < SHADOW_FRACTION:
+            continue
+        like_mm2 = risk.shadow_like_px * mm_per_px**2
+        share = min(1.0, like_mm2 / max(part.area_mm2, 1e-9))
+        arm_mm = 0.5 * part.caliper_max_mm
+        band_mm = band_px * mm_per_px
+        term = {
+            "area_mm2": 0.5 * like_mm2,
+            "centroid_x_mm": 0.5 * share * arm_mm,
+            "centroid_y_mm": 0.5 * share * arm_mm,
+            "perimeter_mm": 0.5 * share * part.perimeter_mm,
+            "principal_angle_deg": 0.0,
+        }
+        for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+            term[fig] = share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+        result.parts[n] = _with_shadow_term(part, term, 0.5 * band_mm)
+        flagged.append(f"{part.label} ({100 * risk.fraction:.0f} % of its edge band)")
+    out = []
+    if lost:
+        out.append(
+            f"reflection: next to the outline of part(s) {', '.join(lost)} lies an area that is neither paper nor "
+            "shadow (a bright or coloured reflection of a metal part?); the outline may leave it out, and the "
+            "uncertainty includes it (term 'reflection'); use diffuse light or a backlight"
+        )
+    if not flagged:
+        return out
+    return out + [
+        f"cast shadow: part(s) {', '.join(flagged)} border(s) a region with the paper's colour, darkened, as a cast "
+        "shadow has; colour cannot tell it from a dark neutral part, so the uncertainty includes it (term "
+        "'cast_shadow'); for a trustworthy figure use diffuse light (an overcast window, a lamp beside the camera "
+        "aimed at the ceiling) or a backlight"
+    ]
+
+
+def _with_shadow_term(part: Part, term: dict[str, float], hole_d_u_mm: float, name: str = "cast_shadow") -> Part:
+    """The part with a term ``name``; a hole can be narrowed by a shadow (or a lost reflection) too."""
+    holes = [replace(h, diameter_u_mm=combine(h.diameter_u_mm, hole_d_u_mm)) for h in part.holes]
+    updated = replace(part, holes=holes)
+    return _with_extra_term(updated, name, term, [])
+
+
+#: Thickness (mm) whose parallax the uncertainty of a photo covers (as 2 sigma) when the
+#: part's thickness is not given; common plate and sheet stock is 0.5-3 mm.
+UNKNOWN_THICKNESS_MM = 3.0
+
+
+def _with_extra_term(part: Part, name: str, term: dict[str, float], raised_holes: list[np.ndarray]) -> Part:
+    """The part with one more named uncertainty term, combined into every total it touches."""
+    totals = {
+        "area_u_mm2": "area_mm2",
+        "perimeter_u_mm": "perimeter_mm",
+        "ixx_u_mm4": "ixx_mm4",
+        "iyy_u_mm4": "iyy_mm4",
+        "ixy_u_mm4": "ixy_mm4",
+        "i1_u_mm4": "i1_mm4",
+        "i2_u_mm4": "i2_mm4",
+        "polar_u_mm4": "polar_mm4",
+        "principal_angle_u_deg": "principal_angle_deg",
+    }
+    changes: dict[str, Any] = {key: combine(getattr(part, key), term[fig]) for key, fig in totals.items()}
+    changes["centroid_u_mm"] = (
+        combine(part.centroid_u_mm[0], term["centroid_x_mm"]),
+        combine(part.centroid_u_mm[1], term["centroid_y_mm"]),
+    )
+    holes = []
+    for hole, raised in zip(part.holes, raised_holes):
+        fit = fit_circle(raised)
+        a, qx, qy = ring_moments(raised)[:3]
+        d_d = 0.5 * abs(fit.diameter_mm - hole.diameter_mm)
+        d_a = 0.5 * abs(abs(float(a)) - hole.area_mm2)
+        d_c = (0.5 * abs(float(qx / a) - hole.centroid_mm[0]), 0.5 * abs(float(qy / a) - hole.centroid_mm[1]))
+        d_cc = (
+            0.5 * abs(fit.centre_mm[0] - hole.circle_centre_mm[0]),
+            0.5 * abs(fit.centre_mm[1] - hole.circle_centre_mm[1]),
+        )
+        holes.append(
+            replace(
+                hole,
+                diameter_u_mm=combine(hole.diameter_u_mm, d_d),
+                area_u_mm2=combine(hole.area_u_mm2, d_a),
+                centroid_u_mm=(combine(hole.centroid_u_mm[0], d_c[0]), combine(hole.centroid_u_mm[1], d_c[1])),
+                circle_centre_u_mm=(
+                    combine(hole.circle_centre_u_mm[0], d_cc[0]),
+                    combine(hole.circle_centre_u_mm[1], d_cc[1]),
+                ),
+            )
+        )
+    if len(holes) < len(part.holes):
+        holes += part.holes[len(holes) :]
+    terms = dict(part.uncertainty_terms)
+    terms[name] = dict(term)
+    return replace(part, holes=holes, uncertainty_terms=terms, **changes)
 
 
 def _scale_terms(part: MappedPart, plane_map: PlaneMap, props: SectionProperties) -> dict[str, float]:

@@ -156,7 +156,7 @@ def test_plain_sheet():
     t = truth(parts[0].outer_mm, parts[0].holes_mm)
     cam = make_camera(tilt_deg=20.0, tilt_dir_deg=200.0, roll_deg=90.0, distance_mm=380.0)
     img = render_photo(None, parts, cam, seed=10, sheet_mm=(210.0, 297.0), table=0.15)
-    m = measure(img, sheet="a4")
+    m = measure(img, sheet="a4", thickness_mm=0)  # a flat template: no parallax term
     p = m.parts[0]
     assert m.scale.method == "sheet" and sorted(m.scale.extra["sheet_mm"]) == [210.0, 297.0]
     assert list(m.scale.extra) == [

@@ -281,7 +281,9 @@ class ElevationHook:
         return np.where(top[:, None], foot, pts)
 
 
-def raised_outline_mm(px_to_plane: np.ndarray, k: np.ndarray, height_mm: float, ring_mm: np.ndarray) -> np.ndarray:
+def raised_outline_mm(
+    px_to_plane: np.ndarray, k: np.ndarray, height_mm: float, ring_mm: np.ndarray, *, hole: bool = False
+) -> np.ndarray:
     """The true outline on the plane of a part ``height_mm`` thick whose photo outline maps to ``ring_mm``.
 
     The mm counterpart of :class:`ElevationHook`: a top-face point seen at ``X`` (mm, as if
@@ -300,6 +302,9 @@ def raised_outline_mm(px_to_plane: np.ndarray, k: np.ndarray, height_mm: float, 
         Height of the face above the plane.
     ring_mm : (N, 2) ndarray
         The outline as measured on the plane, either orientation.
+    hole : bool
+        The ring bounds a hole (material outside it): its outward normal, away from the
+        material, points into the ring.
     """
     hook = ElevationHook(px_to_plane, k, height_mm)
     e = _normalised(hook.h0 @ hook.to_footprint @ hook.g0)
@@ -312,5 +317,7 @@ def raised_outline_mm(px_to_plane: np.ndarray, k: np.ndarray, height_mm: float, 
         return foot
     tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
     outward = np.column_stack([tangent[:, 1], -tangent[:, 0]])
+    if hole:
+        outward = -outward
     top = np.sum(outward * (ring - foot), axis=1) > 0
     return np.where(top[:, None], foot, ring)

@@ -19,12 +19,21 @@ import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
 from scanmass.load.decode import LoadedImage
-from scanmass.scale.camera import PhotoScale, build_photo_scale, lens_tools, principal_point
-from scanmass.scale.homography import HomographyFit, apply_h, fit_homography
+from scanmass.scale.camera import (
+    DEFAULT_FOCAL_35MM,
+    FILM_DIAGONAL_MM,
+    LensTools,
+    PhotoScale,
+    build_photo_scale,
+    lens_tools,
+    principal_point,
+)
+from scanmass.scale.homography import HomographyFit, apply_h, fit_homography, focal_from_homography
 from scanmass.scale.lens import LensProfile
 from scanmass.scale.markers import MIN_MARKERS, MarkerDetection, detect_markers
 from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids, load_layout
 from scanmass.scale.planemap import MarkerUse, MatDetails, PrinterCheck
+from scanmass.scale.selfcal import estimate_radial_distortion
 
 __all__ = ["mat_scale", "PRINTER_REL_U", "PRINTED_READING_U_MM", "MAX_MISFIT_MM"]
 
@@ -138,6 +147,16 @@ def mat_scale(
     if fit is None:
         raise ScaleError("the markers found do not fit a flat mat; lay the mat flat and photograph it again", path=path)
     warnings: list[str] = []
+    if tools.profile is None:
+        estimated = _self_calibrate(image, det, known, layout, fit, pts_px, pts_mm, cell_px)
+        if estimated is not None:
+            tools, det, fit, note_lens = estimated  # det: the known markers only, seen through the lens
+            known = np.ones(len(det.ids), bool)
+            ids, corners_px = det.ids, det.corners_px
+            n = len(ids)
+            corners_mm = layout.marker_corners(ids)
+            pts_px, pts_mm = corners_px.reshape(-1, 2), corners_mm.reshape(-1, 2)
+            warnings.append(note_lens)
     misfit = _check_consistency(fit, n, det.edge_noise_px, pts_px, pts_mm, principal_point(image), path, warnings)
     printer, printer_rel, checked = _printer(layout, printed_x_mm, printed_y_mm, path)
     if not checked:
@@ -189,6 +208,79 @@ def mat_scale(
     scale.detection = det
     scale.layout = layout
     return scale
+
+
+#: The self-calibrated lens is used only when it explains at least this share of the misfit
+#: (its RMS falls below this fraction of the pinhole fit's).
+SELFCAL_GAIN = 0.5
+
+
+def _self_calibrate(
+    image: LoadedImage,
+    det: MarkerDetection,
+    known: np.ndarray,
+    layout: MatLayout,
+    fit: HomographyFit,
+    pts_px: np.ndarray,
+    pts_mm: np.ndarray,
+    cell_px: float,
+) -> tuple[LensTools, MarkerDetection, HomographyFit, str] | None:
+    """Without a lens profile: radial distortion from the mat's own corners, when the corners bow.
+
+    Returns the lens tools, the markers detected again through the estimated correction,
+    the refitted homography and a warning; None when the pinhole fit is good enough or the
+    estimate does not explain the misfit.
+    """
+    noise = det.edge_noise_px if math.isfinite(det.edge_noise_px) else 0.1
+    if fit.rms_px < max(3.0 * noise, 0.15):
+        return None
+    sel = fit.inliers if fit.inliers.sum() >= 12 else np.ones(len(pts_px), bool)
+    if not _looks_like_distortion(pts_px, pts_mm, fit, principal_point(image)):
+        return None
+    diag = math.hypot(image.width_px, image.height_px)
+    f_px = DEFAULT_FOCAL_35MM / FILM_DIAGONAL_MM * diag
+    est = estimate_radial_distortion(pts_px, pts_mm, (image.width_px, image.height_px), f_px, noise_px=noise)
+    if est is None or est.rms_after_px > SELFCAL_GAIN * est.rms_before_px:
+        return None
+    # the focal length from the perspective of the corrected corners, when the view shows it
+    ideal = est.profile.undistort_points(pts_px)
+    g, _ = cv2.findHomography(pts_mm[sel], ideal[sel], 0)
+    f_view = focal_from_homography(g, principal_point(image)) if g is not None else None
+    if f_view is not None and 0.3 * f_px < f_view < 3.0 * f_px:
+        again = estimate_radial_distortion(pts_px, pts_mm, (image.width_px, image.height_px), f_view, noise_px=noise)
+        if again is not None and again.rms_after_px <= est.rms_after_px * 1.05:
+            est = again
+    tools = LensTools(est.profile)
+    det2 = detect_markers(image, dictionary=layout.dictionary, undistort=tools.undistort)
+    keep = np.isin(det2.ids, det.ids[known])
+    if keep.sum() < MIN_MARKERS:
+        return None
+    det2 = _subset(det2, keep)
+    corners_mm = layout.marker_corners(det2.ids)
+    fit2 = fit_homography(det2.corners_px.reshape(-1, 2), corners_mm.reshape(-1, 2), ransac_px=max(2.0, 0.25 * cell_px))
+    if fit2 is None:
+        return None
+    k1, k2 = est.profile.dist_coeffs[:2]
+    note = (
+        f"lens distortion estimated from the mat's markers (no lens profile): k1 = {k1:.4f} +- {est.k_u[0]:.4f}, "
+        f"k2 = {k2:.4f} +- {est.k_u[1]:.4f} about the image centre, corner RMS {est.rms_before_px:.2f} -> "
+        f"{est.rms_after_px:.2f} px; a profile from 'scanmass lens' (--lens) is more accurate"
+    )
+    return tools, det2, fit2, note
+
+
+def _subset(det: MarkerDetection, keep: np.ndarray) -> MarkerDetection:
+    """The detection restricted to some markers (every per-marker array filtered)."""
+    from dataclasses import fields as dc_fields
+    from dataclasses import replace
+
+    n = len(det.ids)
+    changes = {}
+    for f in dc_fields(det):
+        value = getattr(det, f.name)
+        if isinstance(value, np.ndarray) and value.ndim >= 1 and len(value) == n:
+            changes[f.name] = value[keep]
+    return replace(det, **changes)
 
 
 def _check_blur(det: MarkerDetection, known: np.ndarray, path: str | None) -> None:
