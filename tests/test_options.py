@@ -240,6 +240,8 @@ def test_settings_hash_follows_the_documented_recipe():
         "printed_x_mm": None,
         "printed_y_mm": None,
         "lens": None,
+        "encoding": "auto",
+        "dpi_override": False,
     }
     doc = {"scanmass": __version__, "schema": SCHEMA, "options": defaults, "files_sha256": {}}
     text = json.dumps(doc, sort_keys=True, separators=(",", ":"), allow_nan=False)
