@@ -59,6 +59,19 @@ THIN_SIGMAS = 5.0
 #: walls of 3-6 px: +1 to +3 %).
 LEVEL_MODEL_REL_U = 0.03
 
+#: A wall's own profile tells the part level only where the wall is at least this many
+#: profile sigmas wide (below, erf(w / (2 sqrt 2 s)) is nearly linear in w and the peak
+#: carries no more than the integral).
+OWN_LEVEL_MIN_SIGMAS = 2.0
+
+#: ... and only where the walls are at least this wide by the midpoint rule (px): a 2 px
+#: wall under a 1 px blur keeps the peak equation too flat to give the level (rendered
+#: rings: +20 to +30 % with the level so found).
+OWN_LEVEL_MIN_WIDTH_PX = 2.5
+
+#: ... and where the profiles' peaks reach at least this share of the level so found.
+OWN_LEVEL_MIN_REACH = 0.75
+
 #: Walls narrower than this (px) are not resolved from their own profile.
 MIN_RESOLVED_PX = 1.5
 
@@ -280,7 +293,7 @@ def resolve_walls(
     if rings.cut or not math.isfinite(contrast) or abs(contrast) < 1e-4:
         return WallResult(rings, zero)
     thin_px = THIN_SIGMAS * sigma + 1.0
-    reach_tail = 3.0 * sigma + 1.0
+    reach_tail = 3.0 * max(sigma, 1.0) + 2.0  # the blur of a thin wall reads low: keep the tails
     pts = np.concatenate(all_rings)
     normals = np.concatenate([_normals(r, i == 0) for i, r in enumerate(all_rings)])
     seg_a = pts
@@ -325,6 +338,7 @@ def resolve_walls(
     part_level_rel_u = 0.0
     fg_eval = None
     level_source = ""
+    own_min_width = 0.0
     if np.count_nonzero(thick) >= 20:
         rows_f, cols_f = np.nonzero(thick)
         fit = _robust_quadratic(lin[rows_f, cols_f].astype(float), rows_f.astype(float), cols_f.astype(float))
@@ -372,21 +386,32 @@ def resolve_walls(
     else:
         walls_only = wall[idx] & (width_mid > MIN_RESOLVED_PX)
         ratio = np.nan
-        if walls_only.sum() >= 8:
+        if walls_only.sum() >= 8 and float(np.median(width_mid[walls_only])) >= OWN_LEVEL_MIN_WIDTH_PX:
             weight = np.abs(diff[walls_only])
             total = weight.sum(axis=1)
             first = (weight * t[walls_only]).sum(axis=1) / total
             variance = (weight * (t[walls_only] - first[:, None]) ** 2).sum(axis=1) / total
             f_est = _solve_level(np.abs(peak_val[walls_only]), np.abs(integral[walls_only]), variance)
+            # the peak tells the level only where the wall is wide against its blur
+            w_est = np.abs(integral[walls_only]) / f_est
+            s_est = np.sqrt(np.maximum(variance - w_est**2 / 12.0, 1e-12))
+            f_est = np.where(w_est >= OWN_LEVEL_MIN_SIGMAS * s_est, f_est, np.nan)
+            own_min_width = OWN_LEVEL_MIN_SIGMAS * float(np.nanmedian(s_est))
             rel_est = f_est / np.abs(bg_here[walls_only])
+            reach_ratio = (
+                np.abs(peak_val[walls_only]) / f_est
+            )  # erf(w / (2 sqrt 2 s)): how near the level the peak gets
             rel_est = rel_est[np.isfinite(rel_est)]
-            if rel_est.size >= 8:
+            if rel_est.size >= 8 and float(np.nanmedian(reach_ratio)) >= OWN_LEVEL_MIN_REACH:
                 ratio = float(np.median(rel_est))
                 spread = 1.4826 * float(np.median(np.abs(rel_est - ratio))) / math.sqrt(rel_est.size)
                 part_level_rel_u = math.hypot(spread / ratio, LEVEL_MODEL_REL_U)
         if math.isfinite(ratio):
             f_here = math.copysign(1.0, contrast) * ratio * np.abs(bg_here)
             level_source = "the walls' own profiles (peak and integral)"
+            # the walls' ridges (the segment stage's level) must come near the level so found
+            if abs(contrast) < OWN_LEVEL_MIN_REACH * float(np.median(np.abs(f_here))):
+                level_source = ""
         else:
             f_here = np.full(len(idx), contrast)
             level_source = ""
@@ -395,7 +420,7 @@ def resolve_walls(
     span = (inside_line.sum(axis=1) - 1) * step_px
     width_int = np.where(wall[idx], integral / f_here, span - integral / f_here)
     correction = 0.5 * (width_int - width_mid)  # each edge moves by half
-    unresolved = (width_int < MIN_RESOLVED_PX) | (level_source == "") | ~np.isfinite(width_int)
+    unresolved = (width_int < max(MIN_RESOLVED_PX, own_min_width)) | (level_source == "") | ~np.isfinite(width_int)
     # uncertainty of each edge: the level's share, the cut-off tails, and when unresolved the whole size
     tail = np.zeros(len(idx))
     for cut in (a_start, a_end):
@@ -404,7 +429,8 @@ def resolve_walls(
         cdf_tail = 0.5 * np.array([math.erfc(v / math.sqrt(2)) for v in z])
         tail = np.hypot(tail, sigma * (pdf - z * cdf_tail))
     u = np.hypot(0.5 * np.abs(width_int) * part_level_rel_u, tail)
-    u = np.where(unresolved, np.hypot(u, np.abs(correction) + 0.25 * np.abs(width_mid)), u)
+    # unresolved: the midpoint rule is kept and each edge may be off by half the wall
+    u = np.where(unresolved, np.hypot(u, 0.5 * np.abs(width_mid)), u)
     correction = np.where(np.isfinite(correction) & ~unresolved, correction, 0.0)
     correction = np.clip(correction, -0.5 * width_mid, thin_px)
 
