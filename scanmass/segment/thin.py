@@ -297,8 +297,18 @@ def resolve_walls(
     seg_a = pts
     seg_b = np.concatenate([np.roll(r, -1, axis=0) for r in all_rings])
     reach = thin_px + reach_tail
-    d_in, beyond_in = _crossings(pts, -normals, seg_a, seg_b, reach)
-    d_out, beyond_out = _crossings(pts, normals, seg_a, seg_b, reach)
+    # only vertices with an opposite-facing boundary point within reach can be on a wall or slot
+    k = min(24, len(pts))
+    dist, near = cKDTree(pts).query(pts, k=k, distance_upper_bound=reach)
+    valid = np.isfinite(dist)
+    facing = np.einsum("ij,ikj->ik", normals, normals[np.where(valid, near, 0)]) < -0.5
+    candidate = np.any(valid & facing, axis=1)
+    d_in = np.full(len(pts), np.inf)
+    beyond_in, d_out, beyond_out = d_in.copy(), d_in.copy(), d_in.copy()
+    if candidate.any():
+        sel = np.nonzero(candidate)[0]
+        d_in[sel], beyond_in[sel] = _crossings(pts[sel], -normals[sel], seg_a, seg_b, reach)
+        d_out[sel], beyond_out[sel] = _crossings(pts[sel], normals[sel], seg_a, seg_b, reach)
     wall = d_in < thin_px
     slot = (d_out < thin_px) & ~wall
     if not (wall.any() or slot.any()):
