@@ -404,13 +404,14 @@ def resolve_walls(
             w_est = np.abs(integral[walls_only]) / f_est
             s_est = np.sqrt(np.maximum(variance - w_est**2 / 12.0, 1e-12))
             f_est = np.where(w_est >= OWN_LEVEL_MIN_SIGMAS * s_est, f_est, np.nan)
-            own_min_width = OWN_LEVEL_MIN_SIGMAS * float(np.nanmedian(s_est))
+            solved = np.isfinite(f_est)
+            own_min_width = OWN_LEVEL_MIN_SIGMAS * float(np.median(s_est[solved])) if solved.any() else 0.0
             rel_est = f_est / np.abs(bg_here[walls_only])
             reach_ratio = (
                 np.abs(peak_val[walls_only]) / f_est
             )  # erf(w / (2 sqrt 2 s)): how near the level the peak gets
             rel_est = rel_est[np.isfinite(rel_est)]
-            if rel_est.size >= 8 and float(np.nanmedian(reach_ratio)) >= OWN_LEVEL_MIN_REACH:
+            if rel_est.size >= 8 and float(np.median(reach_ratio[solved])) >= OWN_LEVEL_MIN_REACH:
                 ratio = float(np.median(rel_est))
                 spread = 1.4826 * float(np.median(np.abs(rel_est - ratio))) / math.sqrt(rel_est.size)
                 part_level_rel_u = math.hypot(spread / ratio, LEVEL_MODEL_REL_U)
