@@ -446,7 +446,8 @@ def main() -> None:
             p = row["part"]
             terms = p.uncertainty_terms
             signed = _signed_errors(Figures(p.area_mm2, p.centroid_mm, p.ixx_mm4, p.iyy_mm4, p.ixy_mm4), truth)
-            image_sigma = {f: math.hypot(terms["edge"][f], terms["threshold"][f]) for f in FIGURES}
+            image_terms = [t for k, t in terms.items() if k not in ("scale", "inputs")]  # edge, threshold, model
+            image_sigma = {f: math.sqrt(sum(t.get(f, 0.0) ** 2 for t in image_terms)) for f in FIGURES}
             stated = _stated_u(p)
             row["z"] = {f: abs(signed[f]) / image_sigma[f] if image_sigma[f] > 0 else math.inf for f in FIGURES}
             row["stated_vs_terms"] = max(abs(stated[f] - image_sigma[f]) / image_sigma[f] for f in FIGURES)
@@ -486,7 +487,7 @@ def main() -> None:
     cov = [r for r in ok if "z" in r]
     z = np.array([[r["z"][f] for f in FIGURES] for r in cov]).reshape(-1, len(FIGURES))
     print(
-        f"\nscanmass uncertainty, image terms only (dpi_rel_u = 0; sigma = edge and threshold terms), "
+        f"\nscanmass uncertainty, image terms only (dpi_rel_u = 0; sigma = edge, threshold and model terms), "
         f"{len(cov)} parts x {len(FIGURES)} figures:"
     )
     if z.size:

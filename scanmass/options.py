@@ -30,6 +30,7 @@ __all__ = [
     "OPTION_NAMES",
     "MeasureOptions",
     "check_dpi",
+    "check_encoding",
     "check_max_pixels",
     "check_option_names",
     "check_positive",
@@ -94,6 +95,34 @@ def check_dpi(dpi: Any, *, path: str | None = None) -> tuple[float, float]:
             path=path,
         )
     return float(values[0]), float(values[1])
+
+
+def check_encoding(encoding: Any, *, path: str | None = None) -> tuple[str, float | None]:
+    """Validate an encoding name: ``auto``, ``srgb``, ``linear`` or ``gamma:G`` (0.2 <= G <= 5).
+
+    Returns the kind and, for ``gamma:G``, the exponent (linear = encoded ** G).
+
+    Examples
+    --------
+    >>> check_encoding("gamma:2.2")
+    ('gamma', 2.2)
+    >>> check_encoding("srgb")
+    ('srgb', None)
+    """
+    text = str(encoding).strip().lower() if isinstance(encoding, str) else ""
+    if text in ("auto", "srgb", "linear"):
+        return text, None
+    if text.startswith("gamma:"):
+        try:
+            g = float(text.split(":", 1)[1])
+        except ValueError:
+            g = math.nan
+        if math.isfinite(g) and 0.2 <= g <= 5.0:
+            return "gamma", g
+    raise OptionError(
+        f"encoding {encoding!r} must be auto, srgb, linear or gamma:G with G from 0.2 to 5, e.g. --encoding gamma:2.2",
+        path=path,
+    )
 
 
 def check_max_pixels(max_pixels: Any, *, path: str | None = None) -> int:
@@ -227,6 +256,17 @@ class MeasureOptions:
         "--lens",
         kind="ref",
     )
+    encoding: str = _option(
+        "auto",
+        "Tone curve of the stored values: auto (the file's profile or tags; an untagged file is checked on its "
+        "edges), srgb, linear or gamma:G (e.g. gamma:2.2).",
+        "--encoding",
+    )
+    dpi_override: bool = _option(
+        False,
+        "Use --dpi even where it differs by more than 1 % from a trustworthy resolution stored in the file.",
+        "--dpi-override",
+    )
 
     def updated(self, **overrides: Any) -> MeasureOptions:
         """A copy with some fields changed; an unknown name raises OptionError naming the close match.
@@ -271,6 +311,7 @@ class MeasureOptions:
         if self.min_hole_area_mm2 is not None and not _finite_at_least(self.min_hole_area_mm2, 0.0):
             raise OptionError(f"minimum hole area {self.min_hole_area_mm2!r} mm2 must be zero or positive", path=path)
         check_max_pixels(self.max_pixels, path=path)
+        check_encoding(self.encoding, path=path)
         if self.scale not in SCALE_METHODS:
             raise OptionError(f"scale {self.scale!r} must be one of {', '.join(SCALE_METHODS)}", path=path)
         if self.scale == "sheet" and self.sheet is None:

@@ -15,26 +15,32 @@ import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
-from scanmass.load.decode import LoadedImage, load_image
+from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part
 from scanmass.measurement import Hole, Measurement, Part, ScaleInfo, SourceInfo
-from scanmass.options import MeasureOptions, check_max_pixels, resolve_options
+from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import raised_outline_mm
 from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
-from scanmass.segment.rings import segment
+from scanmass.segment.rings import PartRings, segment
 from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
+from scanmass.segment.symmetry import reading_shift
+from scanmass.segment.thin import EdgeQuantisation, WallResult, edge_quantisation, resolve_walls
 from scanmass.segment.touching import touching_lobes
 from scanmass.uncertainty import (
     THRESHOLD_FLOOR_PX,
     build_edge_model,
     combine,
     figure_weights,
+    interpolation_residual_px,
+    model_uncertainty,
     part_uncertainty,
+    phase_correlation_px,
     ring_mean_offset_u,
+    threshold_uncertainty,
 )
 
 __all__ = [
@@ -120,7 +126,10 @@ def measure_loaded(
     opts = resolve_options(options, overrides)
     path = None if isinstance(source, np.ndarray) else os.fspath(source)
     opts.check(path)
+    if opts.dpi is not None and path is not None and not opts.dpi_override:
+        check_dpi_conflict(path, opts.dpi)
     image = load_image(source, dpi=opts.dpi, max_pixels=check_max_pixels(opts.max_pixels, path=path))
+    image = apply_encoding(image, opts.encoding)
     if scale_method(image, opts) == "dpi":
         result = measure_image(image, opts)
     else:
@@ -141,6 +150,61 @@ def measure_loaded(
             result, opts.material, opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm, materials=opts.materials_file
         )
     return result, image
+
+
+#: Largest relative difference between a given and a trustworthy stored DPI used without --dpi-override.
+DPI_CONFLICT_REL = 0.01
+
+
+def check_dpi_conflict(path: str, dpi: float | tuple[float, float]) -> None:
+    """Refuse a given DPI that differs by more than 1 % from a trustworthy one stored in the file.
+
+    Raises
+    ------
+    ScaleError
+        Naming both values and the two ways out (leave out --dpi, or --dpi-override).
+    """
+    given = check_dpi(dpi, path=path)
+    stored, _ = read_dpi(path)
+    if stored is None:
+        return
+    diffs = [max(abs(g / s - 1.0) for g, s in zip(given, order)) for order in (stored, stored[::-1])]
+    if min(diffs) > DPI_CONFLICT_REL:
+        shown = "x".join(f"{v:g}" for v in dict.fromkeys(round(v, 2) for v in stored))
+        want = "x".join(f"{v:g}" for v in dict.fromkeys(given))
+        raise ScaleError(
+            f"--dpi {want} differs by {100 * min(diffs):.0f} % from the {shown} dpi stored in the file; "
+            f"leave out --dpi to use the file's, or pass --dpi-override to use {want} anyway",
+            path=path,
+        )
+
+
+def apply_encoding(image: LoadedImage, encoding: str) -> LoadedImage:
+    """The image with the tone curve the ``encoding`` option asks for (``auto``: as loaded)."""
+    kind, gamma = check_encoding(encoding, path=image.path)
+    if kind == "auto":
+        return image
+    lut, label = encoding_lut(kind, len(image.to_linear), gamma)
+    return replace(image, to_linear=lut, encoding=label)
+
+
+def untagged_reading_shift(image: LoadedImage, parts: list[PartRings]) -> float | None:
+    """For a file without a colour profile: how far (px) a linear reading would move the edges.
+
+    A blurred edge in linear light is point-symmetric about its midpoint, but a tone curve
+    applied to a Gaussian-blurred edge mostly shifts and narrows it while keeping it
+    nearly point-symmetric (rendered edges: quantiles within 0.04 sigma of symmetric for
+    sRGB vs linear readings), so the edges alone cannot tell the encoding apart. What they
+    do give is the size of the question: the median move of the 0.5 crossing across the
+    largest part's clear edges between the sRGB and the linear reading
+    (:func:`scanmass.segment.symmetry.reading_shift`). None for arrays, JPEG files (sRGB
+    in practice) and files that carry a profile or tags.
+    """
+    if image.path is None or image.format == "JPEG" or "assumed" not in image.encoding or not parts:
+        return None
+    largest = max(parts, key=lambda p: p.area_px)
+    linear, _ = encoding_lut("linear", len(image.to_linear))
+    return reading_shift(image, largest, linear)
 
 
 # ---------------------------------------------------------------------------------
@@ -214,16 +278,56 @@ def measure_image(
     if plane_map is None:
         plane_map = scan_plane_map(image, options)
     px_area_mm2 = plane_map.mm_per_px**2
-    seg = segment(
-        image,
-        level=options.level,
-        threshold=options.threshold,
-        min_area_px=options.min_area_mm2 / px_area_mm2,
-        min_hole_area_px=None if options.min_hole_area_mm2 is None else options.min_hole_area_mm2 / px_area_mm2,
-        keep_cut=options.keep_cut,
-        roi_px=roi_px,
-    )
-    parts = [measure_part(map_part(rings, plane_map), plane_map) for rings in seg.parts]
+
+    def run_segment(img: LoadedImage) -> Any:
+        try:
+            return segment(
+                img,
+                level=options.level,
+                threshold=options.threshold,
+                min_area_px=options.min_area_mm2 / px_area_mm2,
+                min_hole_area_px=None if options.min_hole_area_mm2 is None else options.min_hole_area_mm2 / px_area_mm2,
+                keep_cut=options.keep_cut,
+                roi_px=roi_px,
+            )
+        except SegmentationError as exc:
+            largest = getattr(exc, "largest_area_px", None)
+            if largest is None:
+                raise
+            raise SegmentationError(
+                f"no part found above the minimum area: the only object(s) found are at most "
+                f"{largest * px_area_mm2:.3g} mm2, below --min-area {options.min_area_mm2:g} mm2; "
+                f"lower it to measure them, e.g. --min-area {_below(largest * px_area_mm2)}",
+                path=img.path,
+            ) from None
+
+    seg = run_segment(image)
+    encoding_note = None
+    extra_warnings: list[str] = []
+    shift_px = untagged_reading_shift(image, seg.parts) if options.encoding == "auto" else None
+    limits = _edge_limits(image, seg.parts, options)
+    parts = []
+    warnings = extra_warnings + list(seg.warnings)
+    for quant, walls in limits:
+        mapped = map_part(walls.rings, plane_map)
+        wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
+        parts.append(measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u))
+        warnings += walls.warnings
+    if shift_px is not None and parts:
+        big = max(parts, key=lambda q: q.area_mm2)
+        change_mm2 = abs(shift_px) * plane_map.mm_per_px * big.perimeter_mm
+        pct = 100 * change_mm2 / big.area_mm2
+        encoding_note = (
+            f"no colour profile: read as sRGB by convention; a linear reading would move the edges by "
+            f"{shift_px:+.2f} px ({pct:.2g} % of part {big.label}'s area)"
+        )
+        if change_mm2 > big.area_u_mm2:
+            warnings.insert(
+                0,
+                f"the file has no colour profile and is read as sRGB; if it holds linear light (a scanner's linear "
+                f"or raw output) its edges move by {abs(shift_px):.2f} px ({pct:.2g} % of part {big.label}'s area, "
+                "beyond the stated uncertainty): pass --encoding linear or --encoding srgb to decide",
+            )
     touching = _touching_warnings(seg.parts, plane_map.mm_per_px)
     scale = ScaleInfo(
         method=plane_map.method,
@@ -258,10 +362,11 @@ def measure_image(
         "keep_cut": options.keep_cut,
         "dpi_rel_u": options.dpi_rel_u,
         "encoding": image.encoding,
+        "encoding_check": encoding_note,
         "polarity": seg.polarity,
         "specks_ignored": seg.specks,
+        "specks_largest_mm2": seg.speck_max_area_px * px_area_mm2,
     }
-    warnings = list(seg.warnings)
     filled = [p for p in parts if p.filled_holes]
     if filled:
         count = sum(p.filled_holes for p in filled)
@@ -289,6 +394,56 @@ def _touching_warnings(parts: list[Any], mm_per_px: float) -> list[str]:
                 f"wide between lobes {wa:.3g} and {wb:.3g} mm across); they are measured as one: lay them a few mm "
                 "apart"
             )
+    return out
+
+
+def _below(area_mm2: float) -> str:
+    """A round --min-area value below ``area_mm2``."""
+    value = 10 ** math.floor(math.log10(max(area_mm2, 1e-9)))
+    while value * 5 < area_mm2:
+        value *= 5 if str(value).startswith("1") else 2
+    return f"{value:g}"
+
+
+def _edge_limits(
+    image: LoadedImage, found: list[PartRings], options: MeasureOptions
+) -> list[tuple[EdgeQuantisation | None, WallResult]]:
+    """Per part: the quantisation steps at its edge, and its rings after the thin-wall step.
+
+    With the local midpoint level (no manual threshold or level), thin walls and narrow
+    slots are corrected by the integral rule (:mod:`scanmass.segment.thin`); a part without
+    a thick region takes its level from the other parts of the image (same material).
+    """
+    quants = [edge_quantisation(image, r) for r in found]
+    if options.threshold is not None or abs(options.level - 0.5) > 1e-9:
+        return [
+            (q, WallResult(r, [np.zeros(len(x)) for x in [r.outer_px, *r.holes_px]])) for q, r in zip(quants, found)
+        ]
+    results = [resolve_walls(image, r) for r in found]
+    good = [
+        q.level_ratio
+        for q, w in zip(quants, results)
+        if math.isfinite(q.level_ratio) and (w.corrected == 0 and w.unresolved == 0 or "thick" in w.level_source)
+    ]
+    if good:
+        hint = float(np.median(good))
+        for i, w in enumerate(results):
+            if w.unresolved and "thick" not in w.level_source:
+                results[i] = resolve_walls(image, found[i], level_ratio_hint=hint)
+    return list(zip(quants, results))
+
+
+def _as_mapped_order(
+    rings: PartRings, per_vertex: list[np.ndarray], mapped: MappedPart, plane_map: PlaneMap
+) -> list[np.ndarray]:
+    """Per-vertex values of each ring in the vertex order :func:`map_part` gave the ring."""
+    out = []
+    for ring_px, values, ring_mm in zip(
+        [rings.outer_px, *rings.holes_px], per_vertex, [mapped.outer_mm, *mapped.holes_mm]
+    ):
+        first = plane_map.to_mm(ring_px[:1])[0]
+        same = np.allclose(first, ring_mm[0], rtol=0, atol=1e-9 * (1 + float(np.abs(first).max())))
+        out.append(np.asarray(values) if same else np.asarray(values)[::-1])
     return out
 
 
@@ -607,10 +762,19 @@ def _figure_values(sp: SectionProperties) -> dict[str, float]:
     }
 
 
-def measure_part(part: MappedPart, plane_map: PlaneMap) -> Part:
+def measure_part(
+    part: MappedPart,
+    plane_map: PlaneMap,
+    *,
+    quantisation: EdgeQuantisation | None = None,
+    wall_u_px: list[np.ndarray] | None = None,
+) -> Part:
     """Section properties and uncertainties of one mapped part (everything in mm).
 
-    ``plane_map`` gives only the scale's relative uncertainty and its named terms.
+    ``plane_map`` gives only the scale's relative uncertainty and its named terms;
+    ``quantisation`` the grey-level steps at the part's edge and ``wall_u_px`` the
+    per-vertex uncertainty of the thin-wall step (per ring, in the mapped vertex order),
+    both for the model-error floor (:mod:`scanmass.uncertainty`).
     """
     outer_mm = part.outer_mm
     holes_mm = list(part.holes_mm)
@@ -620,26 +784,55 @@ def measure_part(part: MappedPart, plane_map: PlaneMap) -> Part:
     scale_outer = part.mm_per_px[0]
     scales = list(part.mm_per_px)
     sigma_n_px = [part.noise_rel / np.maximum(g, 0.05) for g in part.gradients_px]
-    offset_px = math.hypot(math.sqrt(2 * math.pi) * part.blur_px * part.level_rel_u, THRESHOLD_FLOOR_PX)
-    offset_mm = offset_px * float(np.median(scale_outer))
+    mm_px = float(np.median(scale_outer))
+    blur = part.blur_px if math.isfinite(part.blur_px) else 1.0
+    # threshold: each of the level surfaces' modes moves the boundary by sqrt(2 pi) sigma_blur
+    # times its share of the normalised level; (db + df) / 2 of the contrast, per mode 1/6 of
+    # the pointwise variance that level_rel_u states
+    mode_px = math.sqrt(2 * math.pi) * blur * part.level_rel_u / (2.0 * math.sqrt(6.0))
+    q = quantisation or EdgeQuantisation(0.0, 0.0)
+    shared_px = math.hypot(THRESHOLD_FLOOR_PX, math.sqrt(2 * math.pi) * blur * q.level_rel)
+    offset_px = math.hypot(math.sqrt(6.0) * mode_px, shared_px)  # the whole-boundary share, as before
+    offset_mm = offset_px * mm_px
     model = build_edge_model(outer_mm, holes_mm, sigma_n_px, scales, offset_mm)
     weights = figure_weights(model, props.area_mm2, props.centroid_mm, props.ixx_mm4, props.iyy_mm4, props.ixy_mm4)
-    edge_u, thresh_u = part_uncertainty(model, weights)
+    edge_u, _ = part_uncertainty(model, weights)
+    thresh_u = threshold_uncertainty(model, weights, mode_px * mm_px, shared_px * mm_px)
+    # model-error floor: interpolation residual (phase-correlated) and quantisation beyond the noise
+    resid_px = interpolation_residual_px(blur)
+    q_px = [
+        np.sqrt(max((q.edge_rel / math.sqrt(12.0)) ** 2 - part.noise_rel**2, 0.0)) / np.maximum(g, 0.05)
+        for g in part.gradients_px
+    ]
+    q_model = build_edge_model(outer_mm, holes_mm, q_px, scales, 0.0)
+    corr_phase = phase_correlation_px(model.normals)
+    px_mm = model.corr_mm  # the model's 1 px correlation length in mm = local mm per px
+    sigma_m_mm = np.sqrt(resid_px**2 * corr_phase * px_mm**2 + q_model.sigma_n_mm**2)
+    wall_mm = None
+    if wall_u_px is not None and any(np.any(np.asarray(w) > 0) for w in wall_u_px):
+        wall_mm = build_edge_model(outer_mm, holes_mm, wall_u_px, scales, 0.0).sigma_n_mm
+    model_u = model_uncertainty(model, weights, sigma_m_mm=sigma_m_mm, corr_m_mm=px_mm, wall_u_mm=wall_mm)
     scale_u = _scale_terms(part, plane_map, props)
     # perimeter: a uniform offset d changes it by 2 pi d per ring (turning number)
     n_rings = 1 + len(holes_mm)
     thresh_u["perimeter_mm"] = 2 * math.pi * offset_mm * abs(1 - len(holes_mm))
     edge_u["perimeter_mm"] = 0.0
-    total = {k: combine(edge_u.get(k, 0.0), thresh_u.get(k, 0.0), scale_u.get(k, 0.0)) for k in scale_u}
+    model_u["perimeter_mm"] = 0.0
+    total = {
+        k: combine(edge_u.get(k, 0.0), thresh_u.get(k, 0.0), model_u.get(k, 0.0), scale_u.get(k, 0.0)) for k in scale_u
+    }
     terms = {
         "edge": edge_u,
         "threshold": thresh_u,
+        "model": model_u,
         "scale": scale_u,
         "inputs": {
             "noise_rel": part.noise_rel,
             "blur_px": part.blur_px,
             "level_rel_u": part.level_rel_u,
             "offset_px": offset_px,
+            "interpolation_residual_px": resid_px,
+            "quantisation_rel": q.edge_rel,
             "contrast": part.contrast,
             "rings": n_rings,
         },

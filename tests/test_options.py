@@ -180,7 +180,8 @@ def test_cli_defaults_and_help_are_the_options(command):
         param = by_flag[f.metadata["flag"]]
         assert param.default == f.default, f.name
         assert param.help == f.metadata["help"], f.name
-    assert len(OPTION_NAMES) == 18  # the options of measure() before they became one object
+    # the 18 options of measure() before they became one object, + encoding and dpi_override
+    assert len(OPTION_NAMES) == 20
 
 
 def test_cli_passes_every_option_through(monkeypatch, tmp_path):
@@ -218,8 +219,9 @@ def test_options_module_is_light():
 # the batch: settings hash unchanged by the options object (same database)
 # ------------------------------------------------------------------------------------
 def test_settings_hash_follows_the_documented_recipe():
-    # The defaults of the 18 options, written out here: a changed name or default would
-    # re-measure every file of every existing batch database.
+    # The defaults of the 20 options, written out here: a changed name or default would
+    # re-measure every file of every existing batch database (encoding and dpi_override
+    # were added with the thin-wall step and the model-error floor, which change results).
     defaults = {
         "dpi": None,
         "dpi_rel_u": 0.001,
@@ -239,6 +241,8 @@ def test_settings_hash_follows_the_documented_recipe():
         "printed_x_mm": None,
         "printed_y_mm": None,
         "lens": None,
+        "encoding": "auto",
+        "dpi_override": False,
     }
     doc = {"scanmass": __version__, "schema": SCHEMA, "options": defaults, "files_sha256": {}}
     text = json.dumps(doc, sort_keys=True, separators=(",", ":"), allow_nan=False)

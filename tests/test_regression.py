@@ -133,7 +133,8 @@ def run_case(name: str) -> list[dict]:
             "iyy": abs(got["iyy_mm4"] / want["iyy_mm4"] - 1),
             "ixy": abs(got["ixy_mm4"] - want["ixy_mm4"]) / math.sqrt(want["ixx_mm4"] * want["iyy_mm4"]),
         }
-        u = {k: math.hypot(terms["edge"][k], terms["threshold"][k]) for k in Z_FIGURES}
+        image_terms = [t for name, t in terms.items() if name not in ("scale", "inputs")]  # edge, threshold, model
+        u = {k: math.sqrt(sum(t.get(k, 0.0) ** 2 for t in image_terms)) for k in Z_FIGURES}
         z = {k: (got[k] - want[k]) / u[k] for k in Z_FIGURES}
         sigma = {  # the image-only sigma in the units of err
             "area": u["area_mm2"] / want["area_mm2"],

@@ -101,13 +101,16 @@ def test_dpi_rel_u_propagates_with_the_same_powers(l_scan):
     assert scale["centroid_x_mm"] == pytest.approx(rel * part.centroid_mm[0], rel=1e-9)
     assert scale["centroid_y_mm"] == pytest.approx(rel * part.centroid_mm[1], rel=1e-9)
     assert scale["principal_angle_deg"] == 0.0  # a uniform scale turns nothing
-    # the totals combine the three terms in quadrature (GUM 5.1, independent inputs)
+    # the totals combine the four terms (edge, threshold, model, scale) in quadrature (GUM 5.1, independent inputs)
     terms = part.uncertainty_terms
     for name, total in [("area_mm2", part.area_u_mm2), ("ixx_mm4", part.ixx_u_mm4)]:
-        want = np.sqrt(terms["edge"][name] ** 2 + terms["threshold"][name] ** 2 + scale[name] ** 2)
+        want = np.sqrt(
+            terms["edge"][name] ** 2 + terms["threshold"][name] ** 2 + terms["model"][name] ** 2 + scale[name] ** 2
+        )
         assert total == pytest.approx(want, rel=1e-12)
     # without the DPI term only the image terms remain
-    assert zero.area_u_mm2 == pytest.approx(np.hypot(terms["edge"]["area_mm2"], terms["threshold"]["area_mm2"]))
+    image_only = [terms[k]["area_mm2"] for k in ("edge", "threshold", "model")]
+    assert zero.area_u_mm2 == pytest.approx(float(np.sqrt(np.sum(np.square(image_only)))))
     # and the stated scale term is what a 1-sigma DPI change actually does to the area
     moved = measure(l_scan.image, dpi=300.0 * (1 + rel), dpi_rel_u=0.0).parts[0]
     assert abs(moved.area_mm2 - zero.area_mm2) == pytest.approx(scale["area_mm2"], rel=5e-3)

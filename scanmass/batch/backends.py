@@ -121,6 +121,29 @@ def _max_rss_kb() -> int | None:
         return None
 
 
+def measure_batch_file(path: str, options: Any) -> Any:
+    """Measure one file of a batch: a batch-wide ``dpi`` never turns a mat photo into a scan.
+
+    With ``scale = auto`` and a ``dpi`` given for the whole batch, a file that stores no
+    trustworthy resolution is first looked for on a marker mat; only when no mat is found
+    is it measured as a scan at the given ``dpi``. A file that stores one is a scan (and a
+    ``dpi`` more than 1 % off it is refused unless ``dpi_override`` is set).
+    """
+    from scanmass.errors import ScaleError
+    from scanmass.load.decode import read_dpi
+    from scanmass.pipeline import measure
+
+    if options.dpi is None or options.scale != "auto" or options.sheet is not None or options.mat is not None:
+        return measure(path, options)
+    stored, _ = read_dpi(path)
+    if stored is not None:
+        return measure(path, options)
+    try:
+        return measure(path, options.updated(dpi=None, scale="mat"))
+    except ScaleError:
+        return measure(path, options)
+
+
 def measure_task(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
     """Measure one file; return a small plain document (never raises for a bad file).
 
@@ -132,13 +155,13 @@ def measure_task(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
     ``max_rss_kb`` (the worker's peak resident memory so far).
     """
     _one_cv_thread()
-    from scanmass.pipeline import measure  # the worker's first file loads the measuring stages
+    from scanmass.pipeline import measure  # noqa: F401  (the worker's first file loads the measuring stages)
 
     started = utc_now()
     t0, c0 = time.perf_counter(), time.process_time()
     result = rows = sha = None
     try:
-        m = measure(path, resolve_options(options, {}))
+        m = measure_batch_file(path, resolve_options(options, {}))
         result, rows, sha = m.to_json(indent=None), m.csv_rows(), m.source.sha256
         status, error = "ok", None
     except ScanmassError as exc:

@@ -151,6 +151,8 @@ SheetOpt = Annotated[str | None, typer.Option(_flag("sheet"), help=_help("sheet"
 PrintedXOpt = Annotated[float | None, typer.Option(_flag("printed_x_mm"), help=_help("printed_x_mm"))]
 PrintedYOpt = Annotated[float | None, typer.Option(_flag("printed_y_mm"), help=_help("printed_y_mm"))]
 LensOpt = Annotated[Path | None, typer.Option(_flag("lens"), help=_help("lens"))]
+EncodingOpt = Annotated[str, typer.Option(_flag("encoding"), help=_help("encoding"))]
+DpiOverrideOpt = Annotated[bool, typer.Option(_flag("dpi_override"), help=_help("dpi_override"))]
 
 UnitsOpt = Annotated[
     str,
@@ -190,6 +192,8 @@ MEASURE_OPTION_PARAMS: dict[str, Any] = {
     "printed_x_mm": PrintedXOpt,
     "printed_y_mm": PrintedYOpt,
     "lens": LensOpt,
+    "encoding": EncodingOpt,
+    "dpi_override": DpiOverrideOpt,
 }
 assert set(MEASURE_OPTION_PARAMS) == set(OPTION_NAMES), "every measuring option needs its command-line type"
 

@@ -55,6 +55,7 @@ __all__ = [
     "load_image",
     "read_dpi",
     "srgb_to_linear",
+    "encoding_lut",
 ]
 
 #: Resolutions that image software writes when it does not know the real one
@@ -203,6 +204,33 @@ def _lut_identity(levels: int) -> np.ndarray:
 
 def _lut_power(levels: int, gamma: float) -> np.ndarray:
     return (_samples(levels) ** gamma).astype(np.float32)
+
+
+def encoding_lut(kind: str, levels: int, gamma: float | None = None) -> tuple[np.ndarray, str]:
+    """The tone curve (encoded -> linear light) of a named encoding, and its label.
+
+    Parameters
+    ----------
+    kind : {"srgb", "linear", "gamma"}
+        The encoding (see :func:`scanmass.options.check_encoding`).
+    levels : int
+        256 or 65536 entries.
+    gamma : float, optional
+        For ``"gamma"``: linear = encoded ** gamma.
+
+    Examples
+    --------
+    >>> lut, label = encoding_lut("gamma", 256, 2.2)
+    >>> label, round(float(lut[128]), 4)
+    ('gamma 2.2 (given)', 0.2195)
+    """
+    if kind == "srgb":
+        return _lut_srgb(levels), "sRGB (given)"
+    if kind == "linear":
+        return _lut_identity(levels), "linear (given)"
+    if kind == "gamma" and gamma is not None:
+        return _lut_power(levels, gamma), f"gamma {gamma:.3g} (given)"
+    raise ValueError(f"unknown encoding {kind!r}")
 
 
 class _ProfileError(ValueError):

@@ -70,6 +70,7 @@ class Segmentation:
     polarity: str
     specks: int
     warnings: list[str] = field(default_factory=list)
+    speck_max_area_px: float = 0.0  # the largest speck dropped (px), 0 when none
 
 
 def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: float) -> np.ndarray:
@@ -263,6 +264,7 @@ def segment(
     found: list[PartRings] = []
     cut: list[PartRings] = []
     specks = 0
+    speck_max = 0.0
     candidates = []
     for idx, cnt in enumerate(contours):
         if hier[idx][3] != -1:
@@ -270,6 +272,7 @@ def segment(
         area_outer = cv2.contourArea(cnt)
         if area_outer + len(cnt) / 2.0 < min_area_px:  # contourArea runs through pixel centres
             specks += 1
+            speck_max = max(speck_max, area_outer + len(cnt) / 2.0)
             continue
         x0, y0, w, h = cv2.boundingRect(cnt)
         is_cut = x0 <= 0 or y0 <= 0 or x0 + w >= width or y0 + h >= height
@@ -324,6 +327,7 @@ def segment(
         if part.area_px < min_area_px:
             label -= 1
             specks += 1
+            speck_max = max(speck_max, part.area_px)
             continue
         found.append(part)
     warnings: list[str] = []
@@ -334,6 +338,14 @@ def segment(
                 path=image.path,
                 count=len(cut),
             )
+        if speck_max > 0:
+            small = SegmentationError(
+                f"no part found above the minimum area: the largest object is {speck_max:.0f} px "
+                f"(minimum {min_area_px:.0f} px); lower --min-area to measure it",
+                path=image.path,
+            )
+            small.largest_area_px = speck_max  # type: ignore[attr-defined]
+            raise small
         raise SegmentationError(
             "no part found above the minimum area; check the scan or lower --min-area", path=image.path
         )
@@ -350,6 +362,7 @@ def segment(
         polarity="dark part on light background" if bright_background else "light part on dark background",
         specks=specks,
         warnings=warnings,
+        speck_max_area_px=speck_max,
     )
 
 

@@ -1,0 +1,150 @@
+"""Thin walls, narrow slots and untagged files (issue 12): errors and coverage on rendered scans.
+
+Run by hand from the repository root:
+
+    python -m benchmarks.bench_limits [--seed 1] [--quick]
+
+Cases (scanmass.testing.scans: exact pixel coverage, Gaussian blur, noise), all measured
+with ``dpi_rel_u = 0`` so that sigma holds the image terms only:
+
+- *fin+slot*: a 12 x 8 mm plate with a fin (a wall) 5 mm long standing out of it and a
+  slot (a hole) 4 mm long, both ``w`` px wide, rotated 7 degrees: the plate gives the
+  part's own level. The error is judged against the area of the fin and the slot
+  (2 x w x 4.5 mm, the thin features' own area), the issue's "within x % of their area".
+- *ring*: a ring of radius 8 mm with a ``w`` px wall, no thick region anywhere: the level
+  comes from the walls' own profiles (or the ring is reported unresolved).
+
+Walls of 2, 3, 4 and 6 px; 300 and 600 dpi; blur 0.5-1.5 px; dark-on-light and
+light-on-dark; sRGB-encoded 8-bit arrays and linear-light float arrays (a tagged linear
+file); clean (noise 0) and noisy (0.004). Truth: shapely's area of the rendered polygon.
+Untagged files: linear-light renders saved as PNG without a colour chunk; each must get
+the warning or the right reading.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import tempfile
+from pathlib import Path
+
+import numpy as np
+from shapely.geometry import Polygon
+
+import scanmass
+from scanmass import ScanmassError, measure
+from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan, save_scan
+
+
+def fin_and_slot(dpi: float, wall_px: float) -> tuple[SynthPart, float]:
+    px = 25.4 / dpi
+    w = wall_px * px
+    outer = np.array(
+        [[5, 5], [17, 5], [17, 13], [11 + w / 2, 13], [11 + w / 2, 18], [11 - w / 2, 18], [11 - w / 2, 13], [5, 13]],
+        float,
+    )
+    slot = rectangle(7.0, 7.0, w, 4.0)
+    a = math.radians(7.0)
+    rot = np.array([[math.cos(a), -math.sin(a)], [math.sin(a), math.cos(a)]])
+    c = np.array([11.0, 11.0])
+    outer = (outer - c) @ rot.T + c
+    slot = (slot - c) @ rot.T + c
+    return SynthPart(outer, [slot]), 2 * w * 4.5
+
+
+def ring(dpi: float, wall_px: float) -> tuple[SynthPart, float]:
+    w = wall_px * 25.4 / dpi
+    part = SynthPart(circle(15.0, 15.0, 8.0), [circle(15.0, 15.0, 8.0 - w)])
+    return part, Polygon(part.outer_mm, part.holes_mm).area
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--quick", action="store_true", help="one blur and noise level per case")
+    args = parser.parse_args()
+    print(f"scanmass {scanmass.__version__} from {scanmass.__file__}")
+    rng = np.random.default_rng(args.seed)
+    rows = []
+    for family in ("fin+slot", "ring"):
+        for wall_px in (2, 3, 4, 6):
+            for dpi in (300, 600):
+                for polarity in ("dark", "light"):
+                    for encoding in ("srgb", "linear"):
+                        for noise in (0.0,) if args.quick else (0.0, 0.004):
+                            blur = float(rng.uniform(0.5, 1.5))
+                            part, thin_area = (fin_and_slot if family == "fin+slot" else ring)(dpi, wall_px)
+                            truth = Polygon(part.outer_mm, part.holes_mm).area
+                            fg, bg = (0.06, 0.8) if polarity == "dark" else (0.65, 0.04)
+                            scan = render_scan(
+                                [part], dpi=dpi, size_mm=(30, 30) if family == "ring" else (22, 23), blur_px=blur,
+                                noise=noise, background=bg, foreground=fg, encoding="srgb", bit_depth=8,
+                                seed=int(rng.integers(1 << 30)),
+                            )  # fmt: skip
+                            img = scan.image if encoding == "srgb" else scan.linear.astype(np.float64)
+                            try:
+                                m = measure(img, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1)
+                            except ScanmassError as exc:
+                                rows.append(
+                                    (family, wall_px, dpi, polarity, encoding, noise, None, None, None, str(exc))
+                                )
+                                continue
+                            p = max(m.parts, key=lambda q: q.area_mm2)
+                            err = p.area_mm2 - truth
+                            rel_thin = err / thin_area
+                            z = abs(err) / p.area_u_mm2 if p.area_u_mm2 > 0 else math.inf
+                            warned = any("thin" in w for w in m.warnings)
+                            rows.append((family, wall_px, dpi, polarity, encoding, noise, rel_thin, z, warned, ""))
+    print("\nthin features: relative area error against the thin features' own area (fin+slot) or the ring's")
+    print("family     wall  n   median|e| %   max|e| %   within 3 sigma %   max z   warned")
+    for family in ("fin+slot", "ring"):
+        for wall_px in (2, 3, 4, 6):
+            sel = [r for r in rows if r[0] == family and r[1] == wall_px and r[6] is not None]
+            failed = [r for r in rows if r[0] == family and r[1] == wall_px and r[6] is None]
+            if not sel:
+                print(f"{family:9s} {wall_px:4d}   all failed: {failed[0][9] if failed else ''}")
+                continue
+            e = np.array([abs(r[6]) for r in sel]) * 100
+            z = np.array([r[7] for r in sel])
+            warned = sum(1 for r in sel if r[8])
+            print(
+                f"{family:9s} {wall_px:4d} {len(sel):3d} {np.median(e):12.3f} {e.max():10.3f} "
+                f"{100 * np.mean(z <= 3):17.0f} {z.max():7.2f} {warned:5d}/{len(sel)}"
+                + (f"  ({len(failed)} failed)" if failed else "")
+            )
+    beyond = [r for r in rows if r[7] is not None and r[7] > 5 and not r[8]]
+    print(f"cases beyond 5 sigma without a warning: {len(beyond)}")
+    for r in beyond:
+        print("   ", r[:6], f"e {100 * r[6]:+.2f} % z {r[7]:.1f}")
+
+    # untagged linear files
+    print("\nuntagged linear-light PNG files (no colour chunk): warning or right reading")
+    ok = total = 0
+    with tempfile.TemporaryDirectory() as tmp:
+        for k in range(8 if args.quick else 16):
+            polarity = "dark" if k % 2 == 0 else "light"
+            fg, bg = (0.06, 0.8) if polarity == "dark" else (0.65, 0.04)
+            size = float(rng.uniform(6, 20))
+            part = SynthPart(rectangle(5, 5, size, size * 0.6, angle_deg=float(rng.uniform(0, 90))), [])
+            truth = Polygon(part.outer_mm).area
+            scan = render_scan(
+                [part], dpi=300, size_mm=(size * 1.6 + 10, size * 1.6 + 10), blur_px=float(rng.uniform(0.5, 1.5)),
+                noise=0.002, background=bg, foreground=fg, encoding="linear", bit_depth=8 if k < 8 else 16,
+                seed=int(rng.integers(1 << 30)),
+            )  # fmt: skip
+            path = save_scan(scan, Path(tmp) / f"lin{k}.png")
+            m = measure(path, dpi_rel_u=0.0)
+            p = m.parts[0]
+            right = abs(p.area_mm2 - truth) <= 3 * p.area_u_mm2
+            warned = any("colour profile" in w for w in m.warnings)
+            total += 1
+            ok += right or warned
+            print(
+                f"  {k:2d} {scan.image.dtype.name:6s} {polarity:5s} area error {100 * (p.area_mm2 / truth - 1):+.3f} %  "
+                f"{'warned' if warned else 'no warning'}{'' if not right else ', right reading'}"
+            )
+    print(f"untagged linear files with the warning or the right reading: {ok}/{total}")
+
+
+if __name__ == "__main__":
+    main()
