@@ -39,7 +39,7 @@ from scanmass.serve.app import COOKIE, MAT_LAYOUTS, SHEETS  # noqa: E402
 from scanmass.serve.config import ServeConfig, new_token  # noqa: E402
 from scanmass.serve.store import ServeStore  # noqa: E402
 
-MAT_FIELDS = {"scale": "mat", "printed_x": "100", "printed_y": "100"}
+MAT_FIELDS = {"scale": "mat", "printed_x": "100", "printed_y": "100", "thickness": "0"}  # a printed, sheet-thin plate
 
 
 @pytest.fixture(scope="module")
@@ -411,8 +411,9 @@ def test_banner_prints_address_token_and_a_qr_code_that_decodes():
     buf = io.BytesIO()
     segno.make(url, error="m").save(buf, kind="png", scale=8, border=4)
     img = cv2.imdecode(np.frombuffer(buf.getvalue(), np.uint8), cv2.IMREAD_GRAYSCALE)
-    decoded, _, _ = cv2.QRCodeDetector().detectAndDecode(img)
-    assert decoded == url
+    # OpenCV's classic decoder misreads about 2 % of random tokens; its ArUco-based decoder reads those
+    decoded = [cv2.QRCodeDetector().detectAndDecode(img)[0], cv2.QRCodeDetectorAruco().detectAndDecode(img)[0]]
+    assert url in decoded
     local = banner(ServeConfig.build(port=8352))
     assert "token" not in local and "http://127.0.0.1:8352/" in local
 

@@ -209,7 +209,7 @@ def options_from_form(fields: dict[str, str], config: ServeConfig) -> dict[str, 
             raise OptionError("a scan needs its resolution in dpi, e.g. 600")
     material = fields.get("material", "").strip() or None
     thickness = _float(fields, "thickness", "thickness")
-    tol = _float(fields, "thickness_tol", "thickness tolerance")
+    tol = _float(fields, "thickness_tol", "thickness uncertainty")
     if material is not None:
         from scanmass.mass.materials import load_materials
 
