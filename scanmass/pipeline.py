@@ -14,7 +14,7 @@ from typing import Any
 import cv2
 import numpy as np
 
-from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
+from scanmass.errors import PartCutError, ScaleError, SegmentationError
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part
 from scanmass.measurement import Hole, Measurement, Part, ScaleInfo, SourceInfo
@@ -130,13 +130,14 @@ def measure_loaded(
         check_dpi_conflict(path, opts.dpi)
     image = load_image(source, dpi=opts.dpi, max_pixels=check_max_pixels(opts.max_pixels, path=path))
     image = apply_encoding(image, opts.encoding)
-    if scale_method(image, opts) == "dpi":
+    method = scale_method(image, opts)
+    if method == "dpi":
         result = measure_image(image, opts)
     else:
         # a resolution in the file that was refused as implausible is said, not dropped
         refused_dpi = image.dpi is None and "came from the file" in (image.dpi_note or "")
         try:
-            result = measure_photo(image, opts, thickness_mm=opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm)
+            result = measure_photo(image, opts, method)
         except ScaleError as exc:
             if refused_dpi:
                 raise ScaleError(f"{exc}; also: {image.dpi_note}", path=image.path) from None
@@ -217,20 +218,16 @@ def scale_method(image: LoadedImage, options: MeasureOptions) -> str:
 
     An explicit ``dpi`` means a scan; a ``sheet`` means a plain sheet; ``scale="mat"``
     or a given ``mat`` layout means the mat; otherwise (``scale="auto"``) a file with
-    a trustworthy DPI is a scan and anything else is looked for on a mat.
+    a trustworthy DPI is a scan and anything else is looked for on a mat. The options
+    are already checked (:meth:`~scanmass.options.MeasureOptions.check`).
     """
-    scale = getattr(options, "scale", "auto")
-    if scale not in ("auto", "dpi", "mat", "sheet"):
-        raise OptionError(f"scale {scale!r} must be one of auto, dpi, mat, sheet", path=image.path)
-    if scale != "auto":
-        if scale == "sheet" and getattr(options, "sheet", None) is None:
-            raise OptionError("--scale sheet needs the paper size, e.g. --sheet a4", path=image.path)
-        return str(scale)
+    if options.scale != "auto":
+        return str(options.scale)
     if options.dpi is not None:
         return "dpi"
-    if getattr(options, "sheet", None) is not None:
+    if options.sheet is not None:
         return "sheet"
-    if getattr(options, "mat", None) is not None:
+    if options.mat is not None:
         return "mat"
     return "dpi" if image.dpi is not None else "mat"
 
@@ -245,24 +242,24 @@ def scan_plane_map(image: LoadedImage, options: MeasureOptions) -> PlaneMap:
     return PlaneMap.from_dpi(image.dpi, height_px=image.height_px, rel_u=options.dpi_rel_u, note=image.dpi_note)
 
 
-def photo_scale(
-    image: LoadedImage, options: MeasureOptions, *, thickness_mm: float | None = None, thickness_u_mm: float = 0.0
-) -> PhotoScale:
-    """The :class:`~scanmass.scale.camera.PhotoScale` of a photo for the options of :func:`measure`."""
-    method = scale_method(image, options)
-    lens = getattr(options, "lens", None)
+def photo_scale(image: LoadedImage, options: MeasureOptions, method: str) -> PhotoScale:
+    """The :class:`~scanmass.scale.camera.PhotoScale` of a photo (``method`` "mat" or "sheet")."""
     if method == "sheet":
         return sheet_scale(
-            image, str(options.sheet), lens=lens, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm
+            image,
+            str(options.sheet),
+            lens=options.lens,
+            thickness_mm=options.thickness_mm,
+            thickness_u_mm=options.thickness_u_mm,
         )
     return mat_scale(
         image,
-        mat=getattr(options, "mat", None),
-        printed_x_mm=getattr(options, "printed_x_mm", None),
-        printed_y_mm=getattr(options, "printed_y_mm", None),
-        lens=lens,
-        thickness_mm=thickness_mm,
-        thickness_u_mm=thickness_u_mm,
+        mat=options.mat,
+        printed_x_mm=options.printed_x_mm,
+        printed_y_mm=options.printed_y_mm,
+        lens=options.lens,
+        thickness_mm=options.thickness_mm,
+        thickness_u_mm=options.thickness_u_mm,
     )
 
 
@@ -447,9 +444,7 @@ def _as_mapped_order(
     return out
 
 
-def measure_photo(
-    image: LoadedImage, options: MeasureOptions, *, thickness_mm: float | None = None, thickness_u_mm: float = 0.0
-) -> Measurement:
+def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> Measurement:
     """Measure a photo on a mat or sheet: plane map, segmentation inside the clear area, checks.
 
     Raises
@@ -461,9 +456,8 @@ def measure_photo(
     SegmentationError
         No whole part inside the clear area.
     """
-    if thickness_mm is not None and not (math.isfinite(thickness_mm) and thickness_mm >= 0):
-        raise OptionError(f"thickness {thickness_mm!r} mm must be zero or positive", path=image.path)
-    scale = photo_scale(image, options, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm)
+    thickness_mm = options.thickness_mm  # checked by MeasureOptions.check
+    scale = photo_scale(image, options, method)
     masked = _mask_outside(image, scale.roi_px)
     try:
         result = measure_image(masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px)
@@ -479,7 +473,7 @@ def measure_photo(
     warnings += _unknown_thickness(scale, result, thickness_mm)
     warnings += _cast_shadows(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
-    result.settings.update({"scale": scale_method(image, options)})
+    result.settings.update({"scale": method})
     return result
 
 
