@@ -13,7 +13,6 @@ from __future__ import annotations
 import base64
 import io
 import re
-import shutil
 from pathlib import Path
 
 import _exact_results as E
@@ -22,17 +21,11 @@ from PIL import Image
 
 webdriver = pytest.importorskip("selenium.webdriver", reason="selenium is not installed (pip install selenium)")
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-CHROMEDRIVER = shutil.which("chromedriver")
-if not (CHROMIUM and CHROMEDRIVER):
-    pytest.skip(
-        "chromium and chromium-driver are not installed (apt-get install chromium chromium-driver)",
-        allow_module_level=True,
-    )
+from _browser import ARTIFACTS, skip_without_chromium, start_chromium  # noqa: E402
+
+skip_without_chromium()
 
 from scanmass.outputs.report import render_summary, write_report  # noqa: E402
-
-ARTIFACTS = Path(__file__).resolve().parent.parent / "test-artifacts"
 
 # Records errors the page raises before the test can look (installed by CDP so it runs
 # ahead of every page script).
@@ -46,29 +39,7 @@ window.addEventListener('error', function (e) {
 
 @pytest.fixture(scope="module")
 def browser(tmp_path_factory):
-    from selenium.webdriver.chrome.options import Options
-    from selenium.webdriver.chrome.service import Service
-
-    options = Options()
-    options.binary_location = CHROMIUM
-    for arg in (
-        "--headless",
-        "--no-sandbox",
-        "--disable-gpu",
-        "--disable-quic",
-        "--no-first-run",
-        "--disable-background-networking",
-        "--disable-component-update",
-        "--disable-sync",
-        "--disable-dev-shm-usage",
-        "--window-size=1200,1600",
-        f"--user-data-dir={tmp_path_factory.mktemp('chromium-profile')}",
-    ):
-        options.add_argument(arg)
-    options.set_capability("goog:loggingPrefs", {"browser": "ALL"})
-    # an explicit driver path keeps selenium from looking for (downloading) a driver
-    driver = webdriver.Chrome(service=Service(executable_path=CHROMEDRIVER), options=options)
-    driver.set_page_load_timeout(30)
+    driver = start_chromium(tmp_path_factory.mktemp("chromium-profile"), "--window-size=1200,1600")
     driver.execute_cdp_cmd("Page.addScriptToEvaluateOnNewDocument", {"source": _ERROR_HOOK})
     yield driver
     driver.quit()

@@ -20,49 +20,23 @@ import pytest
 pytest.importorskip("starlette", reason="the serve extra is not installed (pip install scanmass[serve])")
 webdriver = pytest.importorskip("selenium.webdriver", reason="selenium is not installed (pip install selenium)")
 
-CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-CHROMEDRIVER = shutil.which("chromedriver")
-if not (CHROMIUM and CHROMEDRIVER):
-    pytest.skip(
-        "chromium and chromium-driver are not installed (apt-get install chromium chromium-driver)",
-        allow_module_level=True,
-    )
+from _browser import ARTIFACTS, skip_without_chromium, start_chromium  # noqa: E402
+
+skip_without_chromium()
 
 from _serve_helpers import mat_photo_jpeg, plate_truth, running_server  # noqa: E402
 
-ARTIFACTS = Path(__file__).resolve().parent.parent / "test-artifacts"
 #: A phone's viewport in CSS pixels (a 6.1-inch phone held upright), device pixel ratio 2.
 PHONE = {"width": 390, "height": 844, "pixelRatio": 2.0}
 
 
 @pytest.fixture(scope="module")
 def phone(tmp_path_factory):
-    from selenium.webdriver.chrome.options import Options
-    from selenium.webdriver.chrome.service import Service
-
     downloads = tmp_path_factory.mktemp("downloads")
-    options = Options()
-    options.binary_location = CHROMIUM
-    for arg in (
-        "--headless",
-        "--no-sandbox",
-        "--disable-gpu",
-        "--disable-quic",
-        "--no-first-run",
-        "--disable-background-networking",
-        "--disable-component-update",
-        "--disable-sync",
-        "--disable-dev-shm-usage",
-        f"--user-data-dir={tmp_path_factory.mktemp('chromium-profile')}",
-    ):
-        options.add_argument(arg)
-    options.add_experimental_option(
-        "mobileEmulation",
-        {"deviceMetrics": PHONE, "userAgent": "Mozilla/5.0 (Linux; Android 14) Mobile scanmass-test"},
+    driver = start_chromium(
+        tmp_path_factory.mktemp("chromium-profile"),
+        mobile={"deviceMetrics": PHONE, "userAgent": "Mozilla/5.0 (Linux; Android 14) Mobile scanmass-test"},
     )
-    options.set_capability("goog:loggingPrefs", {"browser": "ALL"})
-    driver = webdriver.Chrome(service=Service(executable_path=CHROMEDRIVER), options=options)
-    driver.set_page_load_timeout(30)
     driver.execute_cdp_cmd("Browser.setDownloadBehavior", {"behavior": "allow", "downloadPath": str(downloads)})
     driver.downloads = downloads
     yield driver
