@@ -239,6 +239,37 @@ def _place(shape, x, y, angle_deg):
     return (outer @ rot.T + [x, y], [h @ rot.T + [x, y] for h in holes])
 
 
+def _scene_parts(parts: list, shapes: dict, *, photo: bool) -> tuple[list[dict], list[dict]]:
+    """The renderer's part specs and their truth records; a photo's truth also says where the top face lies."""
+    import numpy as np
+
+    spec_parts, truth_parts = [], []
+    for shape, material, thick, x, y, ang in parts:
+        outer, holes = _place(shapes[shape], x, y, ang)
+        spec_parts.append(
+            {
+                "outer_mm": outer.tolist(),
+                "holes_mm": [h.tolist() for h in holes],
+                "thickness_mm": thick,
+                "shader": SHADERS[material],
+            }
+        )
+        truth = {
+            "shape": shape,
+            "material": material,
+            "thickness_mm": thick,
+            "outline_mm": np.round(outer, 5).tolist(),
+            "holes_mm": [np.round(h, 5).tolist() for h in holes],
+        }
+        if photo:
+            truth["top_face"] = (
+                "the top face has the same outline (a straight extrusion); it lies thickness_mm above the mat"
+            )
+            truth["placement"] = {"x_mm": x, "y_mm": y, "angle_deg": ang}
+        truth_parts.append(truth)
+    return spec_parts, truth_parts
+
+
 def _lights(style: str, centre_m):
     cx, cy = centre_m
     if style == "soft":  # overhead softbox plus room light
@@ -447,28 +478,7 @@ def _photo_spec(entry, mat_png, out_dir, samples, size_px):
     offset = height_mm * np.array([math.sin(t) * math.cos(d), math.sin(t) * math.sin(d), math.cos(t)])
     loc = target + offset
     lights, world, exposure = _lights(light, (target[0] * MM, target[1] * MM))
-    spec_parts, truth_parts = [], []
-    for shape, material, thick, x, y, ang in parts:
-        outer, holes = _place(shapes[shape], x, y, ang)
-        spec_parts.append(
-            {
-                "outer_mm": outer.tolist(),
-                "holes_mm": [h.tolist() for h in holes],
-                "thickness_mm": thick,
-                "shader": SHADERS[material],
-            }
-        )
-        truth_parts.append(
-            {
-                "shape": shape,
-                "material": material,
-                "thickness_mm": thick,
-                "outline_mm": np.round(outer, 5).tolist(),
-                "holes_mm": [np.round(h, 5).tolist() for h in holes],
-                "top_face": "the top face has the same outline (a straight extrusion); it lies thickness_mm above the mat",
-                "placement": {"x_mm": x, "y_mm": y, "angle_deg": ang},
-            }
-        )
+    spec_parts, truth_parts = _scene_parts(parts, shapes, photo=True)
     spec = {
         "samples": samples,
         "size_px": list(size_px),
@@ -519,7 +529,6 @@ def _photo_spec(entry, mat_png, out_dir, samples, size_px):
 
 
 def _scan_spec(entry, out_dir, samples, dpi):
-    import numpy as np
 
     name, lamp_deg, parts = entry
     shapes = _shapes()
@@ -535,26 +544,7 @@ def _scan_spec(entry, out_dir, samples, dpi):
         "location_m": [(cx - 60 * math.cos(el)) * MM, cy * MM, 60 * math.sin(el) * MM],
         "target_m": [cx * MM, cy * MM, 0.0],
     }
-    spec_parts, truth_parts = [], []
-    for shape, material, thick, x, y, ang in parts:
-        outer, holes = _place(shapes[shape], x, y, ang)
-        spec_parts.append(
-            {
-                "outer_mm": outer.tolist(),
-                "holes_mm": [h.tolist() for h in holes],
-                "thickness_mm": thick,
-                "shader": SHADERS[material],
-            }
-        )
-        truth_parts.append(
-            {
-                "shape": shape,
-                "material": material,
-                "thickness_mm": thick,
-                "outline_mm": np.round(outer, 5).tolist(),
-                "holes_mm": [np.round(h, 5).tolist() for h in holes],
-            }
-        )
+    spec_parts, truth_parts = _scene_parts(parts, shapes, photo=False)
     spec = {
         "samples": samples,
         "size_px": list(size_px),
