@@ -11,12 +11,12 @@ from __future__ import annotations
 import csv
 import json
 import os
-import signal
 import sqlite3
 from pathlib import Path
 
 import numpy as np
 import pytest
+from _deadline import deadline
 from cli_helpers import one_line_error
 from PIL import Image
 from typer.testing import CliRunner
@@ -38,17 +38,8 @@ AREAS_MM2 = sorted([70 * 50 * MM_PER_PX**2, 150 * 100 * MM_PER_PX**2])
 @pytest.fixture(autouse=True)
 def no_hang():
     """Fail (not hang) when the batch blocks on a FIFO or a device: 120 s at most."""
-
-    def expired(signum, frame):
-        raise TimeoutError("the batch hung (issue 13)")
-
-    previous = signal.signal(signal.SIGALRM, expired)
-    signal.alarm(120)
-    try:
+    with deadline(120, "the batch hung (issue 13)"):
         yield
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, previous)
 
 
 def scan(path: Path, shift: int = 0) -> Path:

@@ -12,7 +12,6 @@ import errno
 import io
 import json
 import os
-import signal
 import stat
 import struct
 import subprocess
@@ -24,6 +23,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from _deadline import deadline
 from cli_helpers import one_line_error
 from PIL import Image, ImageFile
 from typer.testing import CliRunner
@@ -49,17 +49,8 @@ MM_PER_PX = 25.4 / DPI
 @pytest.fixture(autouse=True)
 def no_hang():
     """Fail (not hang) when a case blocks: every test here must end within 60 s."""
-
-    def expired(signum, frame):
-        raise TimeoutError("the call hung (issue 13: FIFOs and devices must never block)")
-
-    previous = signal.signal(signal.SIGALRM, expired)
-    signal.alarm(60)
-    try:
+    with deadline(60, "the call hung (issue 13: FIFOs and devices must never block)"):
         yield
-    finally:
-        signal.alarm(0)
-        signal.signal(signal.SIGALRM, previous)
 
 
 def scan(path: Path, holes: bool = False) -> Path:
