@@ -259,7 +259,7 @@ class MeasureOptions:
     encoding: str = _option(
         "auto",
         "Tone curve of the stored values: auto (the file's profile or tags; an untagged file is checked on its "
-        "edges), srgb, linear or gamma:G (e.g. gamma:2.2).",
+        "edges; a photo's tone curve is held in doubt), srgb, linear or gamma:G (e.g. gamma:2.2).",
         "--encoding",
     )
     dpi_override: bool = _option(

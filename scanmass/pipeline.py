@@ -15,6 +15,7 @@ import cv2
 import numpy as np
 
 from scanmass.errors import PartCutError, ScaleError, SegmentationError
+from scanmass.geometry import offset_ring
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part
 from scanmass.measurement import Hole, Measurement, Part, ScaleInfo, SourceInfo
@@ -27,7 +28,7 @@ from scanmass.scale.sheet import sheet_scale
 from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.segment.rings import PartRings, segment
 from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
-from scanmass.segment.symmetry import reading_shift
+from scanmass.segment.symmetry import edge_halo, reading_shift
 from scanmass.segment.thin import EdgeQuantisation, WallResult, edge_quantisation, resolve_walls
 from scanmass.segment.touching import touching_lobes
 from scanmass.uncertainty import (
@@ -269,9 +270,18 @@ def photo_scale(image: LoadedImage, options: MeasureOptions, method: str) -> Pho
 
 
 def measure_image(
-    image: LoadedImage, options: MeasureOptions, *, plane_map: PlaneMap | None = None, roi_px: np.ndarray | None = None
+    image: LoadedImage,
+    options: MeasureOptions,
+    *,
+    plane_map: PlaneMap | None = None,
+    roi_px: np.ndarray | None = None,
+    tone_known: bool = True,
 ) -> Measurement:
-    """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty."""
+    """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty.
+
+    ``tone_known`` False (a phone photo read with ``--encoding auto``): the tone curve is
+    not taken as exact sRGB, and every part gets the term ``tone`` (:func:`_tone_terms`).
+    """
     if plane_map is None:
         plane_map = scan_plane_map(image, options)
     px_area_mm2 = plane_map.mm_per_px**2
@@ -310,6 +320,15 @@ def measure_image(
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
         parts.append(measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u))
         warnings += walls.warnings
+    tone_note = None
+    if parts:
+        warnings += _tone_terms(image, [w.rings for _, w in limits], parts, plane_map.mm_per_px, tone_known)
+        if not tone_known:
+            tone_note = (
+                "photo: the camera's tone curve is not taken as exact sRGB; each part's uncertainty includes "
+                "half the move of its edges between an sRGB and a linear reading (term 'tone'); pass "
+                "--encoding srgb to take it as exact"
+            )
     if shift_px is not None and parts:
         big = max(parts, key=lambda q: q.area_mm2)
         change_mm2 = abs(shift_px) * plane_map.mm_per_px * big.perimeter_mm
@@ -360,6 +379,7 @@ def measure_image(
         "dpi_rel_u": options.dpi_rel_u,
         "encoding": image.encoding,
         "encoding_check": encoding_note,
+        "tone_check": tone_note,
         "polarity": seg.polarity,
         "specks_ignored": seg.specks,
         "specks_largest_mm2": seg.speck_max_area_px * px_area_mm2,
@@ -460,7 +480,9 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
     scale = photo_scale(image, options, method)
     masked = _mask_outside(image, scale.roi_px)
     try:
-        result = measure_image(masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px)
+        result = measure_image(
+            masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
+        )
     except PartCutError:
         where = "mat's clear area" if scale.plane_map.method == "mat" else "sheet's margin"
         raise SegmentationError(
@@ -536,11 +558,7 @@ def _unknown_thickness(
         flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
         raised_outer = raised_outline_mm(h0, k, plausible, flat_outer)
         raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True) for h in flat_holes]
-        before = _figure_values(section_properties(flat_outer, flat_holes))
-        after = _figure_values(section_properties(raised_outer, raised_holes))
-        term = {name: 0.5 * abs(after[name] - before[name]) for name in before}
-        d_angle = (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
-        term["principal_angle_deg"] = 0.5 * abs(d_angle)
+        term = _half_change(flat_outer, flat_holes, raised_outer, raised_holes)
         result.parts[n] = _with_extra_term(part, "thickness_unknown", term, raised_holes)
         worst_rel = max(worst_rel, term["area_mm2"] / max(part.area_mm2, 1e-12))
         worst_cen_mm = max(worst_cen_mm, math.hypot(term["centroid_x_mm"], term["centroid_y_mm"]))
@@ -549,6 +567,59 @@ def _unknown_thickness(
         f"and up to {2 * worst_cen_mm:.2g} mm off in centroid (parallax); the uncertainty includes half of it "
         "(term 'thickness_unknown'); give the thickness with --thickness MM, or --thickness 0 for a sheet-thin part"
     ]
+
+
+def _half_change(
+    outer_mm: np.ndarray, holes_mm: list[np.ndarray], new_outer_mm: np.ndarray, new_holes_mm: list[np.ndarray]
+) -> dict[str, float]:
+    """Half the change of every figure when a part's rings are replaced by other rings (an uncertainty term)."""
+    before = _figure_values(section_properties(outer_mm, holes_mm))
+    after = _figure_values(section_properties(new_outer_mm, new_holes_mm))
+    term = {name: 0.5 * abs(after[name] - before[name]) for name in before}
+    d_angle = (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
+    term["principal_angle_deg"] = 0.5 * abs(d_angle)
+    return term
+
+
+def _tone_terms(
+    image: LoadedImage, found: list[PartRings], parts: list[Part], mm_per_px: float, tone_known: bool
+) -> list[str]:
+    """The term ``tone`` where the image's tone curve is in doubt; a warning for each sharpened part.
+
+    The midpoint rule is exact in linear light. A tone curve that is not the one the
+    file declares (a phone's rendering, a scanner's contrast setting) or sharpening
+    (:func:`~scanmass.segment.symmetry.edge_halo`) moves every edge of a part by a
+    fraction of the blur width, by an amount the single image cannot give. Its size is
+    bounded by the move between two readings far apart, sRGB and linear
+    (:func:`~scanmass.segment.symmetry.reading_shift`; rendered edges with blur 0.6-1.5 px:
+    an S-shaped curve, a 2.2 power curve and unsharp masks of amount 0.3-1.5 moved them
+    by 0.07-0.75 of it): the part's material is grown by that move and half the change
+    of each figure is the term (the move itself at 2 sigma). Parts are replaced in
+    ``parts``; the warnings are returned.
+    """
+    warnings = []
+    linear, _ = encoding_lut("linear", len(image.to_linear))
+    for n, (rings, part) in enumerate(zip(found, parts)):
+        halo = edge_halo(image, rings)
+        if tone_known and not halo.found or part.outline_mm is None:
+            continue
+        move_mm = abs(reading_shift(image, rings, linear)) * mm_per_px
+        if move_mm <= 0.0:
+            continue
+        outer = np.asarray(part.outline_mm, dtype=float)
+        holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
+        grown_outer = offset_ring(outer, move_mm)
+        grown_holes = [offset_ring(h, -move_mm) for h in holes]
+        term = _half_change(outer, holes, grown_outer, grown_holes)
+        parts[n] = _with_extra_term(part, "tone", term, grown_holes if len(holes) == len(part.holes) else [])
+        if halo.found:
+            warnings.append(
+                f"part {part.label}: its edges show sharpening halos ({100 * halo.overshoot:.2g} % of the contrast): "
+                "sharpening or local contrast in the scanner's or camera's software moves edges by a fraction of a "
+                f"pixel (up to about {move_mm:.2g} mm here; included in the uncertainty, term 'tone'); turn "
+                "sharpening off and scan again for full accuracy"
+            )
+    return warnings
 
 
 def _photo_colour(image: LoadedImage) -> np.ndarray | None:

@@ -64,8 +64,9 @@ def test_upload_poll_result_and_downloads(tmp_path, photo):
         assert abs(part["area_mm2"] - t["area"]) <= 3 * part["area_u_mm2"]
         assert abs(part["centroid_x_mm"] - t["centroid"][0]) <= 3 * part["centroid_x_u_mm"]
         assert abs(part["centroid_y_mm"] - t["centroid"][1]) <= 3 * part["centroid_y_u_mm"]
-        # the band is the stated uncertainty, dominated by the unverified-printer term: not a band that cannot fail
-        assert part["area_u_mm2"] < 2e-3 * t["area"] and max(part["centroid_x_u_mm"], part["centroid_y_u_mm"]) < 0.3
+        # the band is the stated uncertainty, not one that cannot fail: at 0.31 mm per pixel it is dominated by the
+        # photo's tone term (half the 0.45 px move of the edges between an sRGB and a linear reading, ~0.56 %)
+        assert part["area_u_mm2"] < 8e-3 * t["area"] and max(part["centroid_x_u_mm"], part["centroid_y_u_mm"]) < 0.3
         assert part["hole_count"] == 2
 
         page = tc.get(f"/jobs/{job['id']}")
