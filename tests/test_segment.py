@@ -132,3 +132,45 @@ def test_subpixel_position_of_a_large_square(phase):
         "bottom": o[along_x & (o[:, 1] > ym), 1].mean() - yb,
     }
     assert all(abs(v) < 0.03 for v in sides.values()), sides
+
+
+# -- noise is not a part ----------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("noise", [0.004, 0.02])
+def test_pixel_noise_matches_the_rendered_noise(noise):
+    # the renderer adds Gaussian noise of this sigma in linear light (its parameter, not a measurement)
+    from scanmass.segment.rings import pixel_noise
+
+    synth = render_scan([], dpi=300.0, size_mm=(60.0, 40.0), blur_px=0.0, noise=noise, bit_depth=16, seed=2)
+    assert pixel_noise(load_image(synth.image, dpi=300.0)) == pytest.approx(noise, rel=0.08)
+
+
+@pytest.mark.parametrize("noise", [0.002, 0.006])
+def test_empty_mat_photo_is_no_part_found_not_specks(noise):
+    from scanmass import measure
+    from scanmass.errors import SegmentationError
+    from scanmass.scale.mat import make_mat
+    from scanmass.testing.photos import make_camera, render_photo
+
+    cam = make_camera(tilt_deg=15.0, tilt_dir_deg=40.0, roll_deg=80.0, distance_mm=370.0)
+    image = render_photo(make_mat("a4-portrait"), [], cam, seed=5, noise=noise)
+    with pytest.raises(SegmentationError, match="nothing stands out from the background"):
+        measure(image, thickness_mm=0)
+
+
+def test_blank_lid_with_uneven_light_is_no_part_found():
+    from scanmass.errors import SegmentationError
+
+    synth = render_scan([], dpi=300.0, size_mm=(80.0, 60.0), noise=0.006, illumination=(0.08, -0.05), seed=4)
+    with pytest.raises(SegmentationError, match="nothing stands out"):
+        segment(load_image(synth.image, dpi=300.0), min_area_px=50)
+
+
+def test_low_contrast_part_is_still_found():
+    # contrast 0.06 against noise 0.006: ten times the noise, above the faint limit of five
+    part = SynthPart(rectangle(10.0, 10.0, 30.0, 20.0, angle_deg=5.0))
+    synth = render_scan([part], dpi=300.0, size_mm=(50.0, 40.0), background=0.85, foreground=0.79, noise=0.006, seed=6)
+    seg = segment(load_image(synth.image, dpi=300.0), min_area_px=50)
+    assert len(seg.parts) == 1 and seg.faint == 0
+    assert seg.parts[0].area_px * (25.4 / 300.0) ** 2 == pytest.approx(600.0, rel=0.01)  # 30 x 20 mm

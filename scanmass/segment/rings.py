@@ -30,6 +30,13 @@ from scanmass.numeric import otsu_threshold
 __all__ = ["PartRings", "Segmentation", "segment"]
 
 _LOW_RES_MAX_PX = 640
+#: A found object whose contrast with its background is below this many times the
+#: image's pixel noise is noise itself (an empty mat or lid), not a part.
+FAINT_SNR = 5.0
+#: Most cut objects checked for being noise before "no whole part" is said.
+_MAX_CUT_CHECKED = 20
+#: Most neighbouring-pixel pairs sampled for the noise estimate.
+_NOISE_PAIRS = 200_000
 _PAD_PX = 6
 
 
@@ -71,6 +78,10 @@ class Segmentation:
     specks: int
     warnings: list[str] = field(default_factory=list)
     speck_max_area_px: float = 0.0  # the largest speck dropped (px), 0 when none
+    #: objects dropped because their contrast is within the image noise (counted in specks too)
+    faint: int = 0
+    #: pixel noise of the image in linear light (the robust spread of neighbour differences / sqrt 2)
+    noise_lin: float = 0.0
 
 
 def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: float) -> np.ndarray:
@@ -130,6 +141,42 @@ def _fit_surface(
             break
         keep = new_keep
     return coef, order, sigma, int(keep.sum())
+
+
+def pixel_noise(image: LoadedImage, roi_px: np.ndarray | None = None) -> float:
+    """Pixel noise of an image in linear light, from differences of horizontal neighbours.
+
+    The robust spread (1.4826 x median absolute value) of ``x[i + 1] - x[i]`` divided by
+    sqrt(2): edges are too few to move the median. Inside ``roi_px`` only (a photo's
+    outside is painted with one level); a regular sample of at most 200 000 pairs.
+
+    References
+    ----------
+    .. [1] J. Immerkaer, "Fast noise variance estimation", Computer Vision and Image
+       Understanding 64(2), 300-302, 1996 (noise from differences that cancel the signal).
+    """
+    grey, lut = image.grey, image.to_linear
+    height, width = grey.shape
+    if width < 2:
+        return 0.0
+    step = max(1, int(math.sqrt(height * (width - 1) / _NOISE_PAIRS)))
+    rows = np.arange(0, height, step)
+    cols = np.arange(0, width - 1, step)
+    rr, cc = np.meshgrid(rows, cols, indexing="ij")
+    if roi_px is not None:
+        inside = np.zeros((height, width), np.uint8)
+        cv2.fillPoly(inside, [np.round(np.asarray(roi_px)).astype(np.int32)], 1)
+        keep = inside[rr, cc].astype(bool) & inside[rr, cc + 1].astype(bool)
+        rr, cc = rr[keep], cc[keep]
+    if rr.size < 16:
+        return 0.0
+    diff = np.abs(lut[grey[rr, cc + 1]].astype(np.float64) - lut[grey[rr, cc]].astype(np.float64))
+    mad = 1.4826 * float(np.median(diff))
+    # noise below one grey level leaves most differences at 0: then the RMS of the
+    # differences without the largest 1 % (edges) takes over
+    trimmed = diff[diff <= np.quantile(diff, 0.99)]
+    rms = float(np.sqrt(np.mean(trimmed**2))) if trimmed.size else 0.0
+    return max(mad, rms) / math.sqrt(2.0)
 
 
 def segment(
@@ -261,6 +308,8 @@ def segment(
             "no part found: the image is all background; check the scan or lower --min-area", path=image.path
         )
     hier = hierarchy[0]
+    noise_lin = pixel_noise(image, roi_px)
+    faint = 0
     found: list[PartRings] = []
     cut: list[PartRings] = []
     specks = 0
@@ -286,8 +335,10 @@ def segment(
         candidates.append((area_outer, cnt, holes, (x0, y0, x0 + w, y0 + h), is_cut))
     candidates.sort(key=lambda c: (c[3][1], c[3][0]))  # reading order: top to bottom, left to right
     label = 0
+    cut_candidates = []
     for area_outer, cnt, holes, bbox, is_cut in candidates:
         if is_cut and not keep_cut:
+            cut_candidates.append((cnt, holes, bbox))
             label_cut = len(cut) + 1
             cut.append(
                 PartRings(
@@ -329,9 +380,34 @@ def segment(
             specks += 1
             speck_max = max(speck_max, part.area_px)
             continue
+        if threshold is None and abs(part.contrast) < FAINT_SNR * noise_lin:
+            label -= 1  # noise: an empty mat or lid splits at its own noise
+            specks += 1
+            faint += 1
+            continue
         found.append(part)
     warnings: list[str] = []
     if not found:
+        if threshold is None and cut and len(cut) <= _MAX_CUT_CHECKED:
+            # before blaming the edge: is a cut object anything but noise (an empty mat's light fall-off)?
+            real = []
+            for c, (cnt, holes, bbox) in zip(cut, cut_candidates):
+                rings = _refine_part(
+                    image, cnt, holes, bbox, True, 0, level=level, threshold=None,
+                    bright_background=bright_background, min_hole_px=min_hole, roi_px=roi_px, ratio_hint=ratio,
+                )  # fmt: skip
+                if rings is not None and abs(rings.contrast) < FAINT_SNR * noise_lin:
+                    faint += 1
+                else:
+                    real.append(c)
+            cut = real
+        if faint and not cut:
+            raise SegmentationError(
+                f"no part found: nothing stands out from the background by more than {FAINT_SNR:g} times the image "
+                f"noise ({faint} faint object(s) ignored); put the part in view (for a photo: inside the mat's clear "
+                "area) on a background that contrasts with it",
+                path=image.path,
+            )
         if cut:
             raise PartCutError(
                 f"no whole part found: {len(cut)} part(s) touch the image edge; reposition the part away from the edge or pass --keep-clipped",
@@ -363,6 +439,8 @@ def segment(
         specks=specks,
         warnings=warnings,
         speck_max_area_px=speck_max,
+        faint=faint,
+        noise_lin=noise_lin,
     )
 
 
