@@ -104,6 +104,13 @@ def crash_first_task(image: str, options: dict, out_dir: str) -> dict:
     return measure_task(image, options, out_dir)
 
 
+def hang_first_task(image: str, options: dict, out_dir: str) -> dict:
+    """Hang on job 1 (a measurement that never ends); measure the others."""
+    if out_dir.endswith("/1"):
+        time.sleep(3600)
+    return measure_task(image, options, out_dir)
+
+
 def slow_task(image: str, options: dict, out_dir: str) -> dict:
     """Sleep before measuring, so that jobs pile up in the queue."""
     time.sleep(1.5)

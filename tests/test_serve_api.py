@@ -22,6 +22,7 @@ pytest.importorskip("httpx", reason="httpx is not installed (the test client nee
 
 from _serve_helpers import (  # noqa: E402
     crash_first_task,
+    hang_first_task,
     mat_photo_jpeg,
     plate_truth,
     scan_png,
@@ -310,6 +311,20 @@ def test_a_crashed_worker_fails_its_job_only(tmp_path, scan):
         ja, jb = wait_done(tc, a), wait_done(tc, b)
         assert ja["status"] == "failed" and "stopped abruptly" in ja["error"]
         assert jb["status"] == "done"  # a new worker took the next job
+
+
+def test_a_job_beyond_the_time_limit_fails_and_the_next_runs(tmp_path, scan):
+    with serve_client(tmp_path / "s", task=hang_first_task, job_timeout_s=3) as tc:
+        a = upload(tc, scan, name="a.png", media="image/png").json()["id"]
+        b = upload(tc, scan, name="b.png", media="image/png").json()["id"]
+        ja, jb = wait_done(tc, a), wait_done(tc, b)
+        assert ja["status"] == "failed" and "job time limit (3 s)" in ja["error"] and "--job-timeout" in ja["error"]
+        assert jb["status"] == "done"  # the hung worker was ended and a new one took the next job
+
+
+def test_job_time_limit_is_checked():
+    with pytest.raises(OptionError, match="job time limit"):
+        ServeConfig.build(job_timeout_s=0)
 
 
 def _wait_running(tc, job_id: int) -> None:

@@ -889,6 +889,9 @@ def serve(
     ] = 16,
     max_upload: Annotated[float, typer.Option("--max-upload", help="Largest upload, MB.")] = 50.0,
     max_pixels: MaxPixelsOpt = DEFAULTS.max_pixels,
+    job_timeout: Annotated[
+        float, typer.Option("--job-timeout", help="Longest one photo may measure, s; beyond it the job fails.")
+    ] = 300.0,
 ) -> None:
     """A page for the bench: measure photos uploaded from a phone or a browser."""
     from scanmass.serve.config import ServeConfig
@@ -904,6 +907,7 @@ def serve(
             queue_size=queue,
             max_upload_mb=max_upload,
             max_pixels=max_pixels,
+            job_timeout_s=job_timeout,
         )
         check_free(config)
         _console().print(banner(config), markup=False, highlight=False, soft_wrap=True)

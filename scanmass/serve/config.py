@@ -17,6 +17,7 @@ from scanmass.errors import OptionError
 from scanmass.options import DEFAULT_MAX_PIXELS, check_max_pixels
 
 __all__ = [
+    "DEFAULT_JOB_TIMEOUT_S",
     "DEFAULT_MAX_UPLOAD_MB",
     "DEFAULT_PORT",
     "TOKEN_BYTES",
@@ -32,6 +33,8 @@ __all__ = [
 DEFAULT_PORT = 8350
 #: Default upload limit, MB (10^6 bytes).
 DEFAULT_MAX_UPLOAD_MB = 50.0
+#: Default time limit of one job, s.
+DEFAULT_JOB_TIMEOUT_S = 300.0
 #: Random bytes in an access token: 32 bytes = 256 bits (at least 128 are required).
 TOKEN_BYTES = 32
 
@@ -104,6 +107,9 @@ class ServeConfig:
         put back in the queue for the next start.
     max_attempts : int
         Times a job is started before a server that keeps dying during it marks it failed.
+    job_timeout_s : float
+        Longest a job may measure; beyond it its worker is stopped and started again, and
+        the job fails with the reason.
     """
 
     store_dir: Path = Path("scanmass-serve")
@@ -117,6 +123,7 @@ class ServeConfig:
     max_pixels: int = DEFAULT_MAX_PIXELS
     shutdown_grace_s: float = 30.0
     max_attempts: int = 2
+    job_timeout_s: float = DEFAULT_JOB_TIMEOUT_S
 
     @classmethod
     def build(
@@ -131,6 +138,7 @@ class ServeConfig:
         max_upload_mb: float = DEFAULT_MAX_UPLOAD_MB,
         max_pixels: int = DEFAULT_MAX_PIXELS,
         token: str | None = None,
+        job_timeout_s: float = DEFAULT_JOB_TIMEOUT_S,
     ) -> ServeConfig:
         """Check the command-line values and return the settings (a token made when needed).
 
@@ -167,6 +175,10 @@ class ServeConfig:
         if not (isinstance(max_upload_mb, (int, float)) and math.isfinite(max_upload_mb) and max_upload_mb > 0):
             raise OptionError(f"upload limit {max_upload_mb!r} MB must be a positive number, e.g. --max-upload 50")
         check_max_pixels(max_pixels)
+        if isinstance(job_timeout_s, bool) or not (
+            isinstance(job_timeout_s, (int, float)) and math.isfinite(job_timeout_s) and 1 <= job_timeout_s <= 86_400
+        ):
+            raise OptionError(f"job time limit {job_timeout_s!r} s must be from 1 to 86400, e.g. --job-timeout 300")
         if token is not None and len(token) < 22:  # 22 URL-safe characters carry 132 bits
             raise OptionError("the access token must be at least 22 characters (128 bits); leave it out to get one")
         if token is None and lan:
@@ -183,6 +195,7 @@ class ServeConfig:
             queue_size=queue_size,
             max_upload_bytes=int(max_upload_mb * 1_000_000),
             max_pixels=max_pixels,
+            job_timeout_s=float(job_timeout_s),
         )
 
     def updated(self, **changes: object) -> ServeConfig:

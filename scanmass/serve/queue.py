@@ -131,7 +131,20 @@ class JobRunner:
                 worker.restart()
                 await worker.started()
                 fut = worker.executor.submit(self.task, job.image, job.options, job.out_dir)
-            res = await asyncio.wrap_future(fut)
+            res = await asyncio.wait_for(asyncio.wrap_future(fut), timeout=self.config.job_timeout_s)
+        except TimeoutError:
+            if self.stopping:
+                return
+            self.store.fail(
+                job,
+                f"{job.image}: measuring took longer than the job time limit ({self.config.job_timeout_s:g} s) and "
+                "was stopped; try a smaller photo, or start the page with a longer --job-timeout",
+            )
+            worker.restart()  # the only way to stop a measurement in flight: end its process
+            try:
+                await worker.started()
+            except Exception:  # pragma: no cover - cannot start a process at all
+                pass
         except (BrokenProcessPool, cf.CancelledError, RuntimeError) as exc:
             if self.stopping:
                 return  # put back in the queue by stop()
