@@ -34,7 +34,7 @@ def sources(tmp_path):
     "command, options",
     [
         ("materials", ["--materials"]),
-        ("assemble", ["--json", "--csv", "--materials"]),
+        ("assemble", ["--json", "--csv", "--materials", "--units"]),
         (
             "balance",
             [
@@ -93,6 +93,21 @@ def test_assemble_writes_json_and_csv(sources, tmp_path):
     assert [r["row"] for r in rows] == ["member", "member", "total"]
     stdout = runner.invoke(app, ["assemble", str(toml), "--json", "-"])
     assert json.loads(stdout.stdout)["schema"] == "scanmass.assembly/2"
+    # --units in: the same rows in inches (1 in = 25.4 mm exactly, by definition) and g·in²
+    inch_csv = tmp_path / "a-in.csv"
+    result = runner.invoke(app, ["assemble", str(toml), "--csv", str(inch_csv), "--units", "in"])
+    assert result.exit_code == 0, result.output
+    assert "CoM x, y, z in" in result.output and "g·in²" in result.output and "g·mm²" not in result.output
+    inch = list(csv.DictReader(io.StringIO(inch_csv.read_text())))
+    assert "com_x_mm" not in inch[0] and "thickness_mm" not in inch[0]
+    for mm_row, in_row in zip(rows, inch):
+        assert float(in_row["mass_g"]) == float(mm_row["mass_g"])
+        assert float(in_row["thickness_in"] or 0) * 25.4 == pytest.approx(float(mm_row["thickness_mm"] or 0), rel=1e-12)
+        for axis in "xyz":
+            assert float(in_row[f"com_{axis}_in"]) * 25.4 == pytest.approx(float(mm_row[f"com_{axis}_mm"]), rel=1e-12)
+        assert float(in_row["inertia_zz_g_in2"]) * 25.4**2 == pytest.approx(
+            float(mm_row["inertia_zz_g_mm2"]), rel=1e-12
+        )
 
 
 def test_assemble_errors_are_one_line(sources, tmp_path):

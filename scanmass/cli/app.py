@@ -367,21 +367,23 @@ def assemble(
         Path | None, typer.Option("--csv", help="Write the per-member table and the total (CSV).")
     ] = None,
     materials: MaterialsFileOpt = None,
+    units: UnitsOpt = "mm",
 ) -> None:
     """Combine the plates listed in FILE: total mass, 3D centre of mass, inertia tensor."""
     from scanmass.cli.mass_tables import assembly_summary_table, assembly_table
     from scanmass.mass.assembly import assemble as assemble_file
     from scanmass.outputs.atomic import write_atomic
 
+    _check_units(units)
     with user_errors():
         result = assemble_file(file, materials=materials)
         inputs = [file, *(file.parent / m.source for m in result.members)]
         if csv_out is not None:
-            written = write_atomic(csv_out, result.to_csv(), inputs=inputs)
+            written = write_atomic(csv_out, result.to_csv(units), inputs=inputs)
     if json_out != "-":
         console = _console()
-        console.print(assembly_table(result))
-        console.print(assembly_summary_table(result))
+        console.print(assembly_table(result, units))
+        console.print(assembly_summary_table(result, units))
         console.print(f"[yellow]caution:[/] {escape(result.cautions)}", markup=True)
         if csv_out is not None:
             console.print(f"wrote {written}")

@@ -43,18 +43,22 @@ def materials_table(table: Mapping[str, Material]) -> Table:
     return out
 
 
-def assembly_table(result: AssemblyResult) -> Table:
-    """The per-member table: signed mass (cut-outs negative) and centre of mass in the assembly frame."""
+def assembly_table(result: AssemblyResult, units: str = "mm") -> Table:
+    """The per-member table: signed mass (cut-outs negative) and centre of mass in the assembly frame.
+
+    Thickness and centre of mass in ``units`` (mm or in).
+    """
+    lu = unit_symbol("length", units)
     title = f"{result.name or result.path or 'assembly'}: members"
     out = Table(title=title, title_justify="left", header_style="bold")
     columns: tuple[tuple[str, JustifyMethod], ...] = (
         ("#", "right"),
         ("member", "left"),
         ("source:part", "left"),
-        ("material, t mm", "left"),
+        (f"material, t {lu}", "left"),
         ("n", "right"),
         ("mass g (± 1σ)", "right"),
-        ("CoM x, y, z mm", "right"),
+        (f"CoM x, y, z {lu}", "right"),
     )
     for col, justify in columns:
         out.add_column(col, justify=justify, overflow="fold")
@@ -63,16 +67,21 @@ def assembly_table(result: AssemblyResult) -> Table:
             str(m.index),
             m.name + (" (cut-out)" if m.cutout else ""),
             f"{m.source}:{m.part}",
-            f"{m.material}, {m.thickness_mm:g}",
+            f"{m.material}, {convert(m.thickness_mm, 'length', units):.4g}",
             str(m.count),
             fmt_u(m.mass_g, m.mass_u_g),
-            ", ".join(f"{c:.2f}" for c in m.centre_of_mass_mm),
+            ", ".join(f"{convert(c, 'length', units):.{2 if units == 'mm' else 4}f}" for c in m.centre_of_mass_mm),
         )
     return out
 
 
-def assembly_summary_table(result: AssemblyResult) -> Table:
-    """Totals: mass, weight, centre of mass, inertia tensor and principal moments."""
+def assembly_summary_table(result: AssemblyResult, units: str = "mm") -> Table:
+    """Totals: mass, weight, centre of mass, inertia tensor and principal moments (lengths in ``units``)."""
+    lu, mu = unit_symbol("length", units), unit_symbol("mass_moment", units)
+
+    def moment(value: float) -> float:
+        return float(convert(value, "mass_moment", units))
+
     out = Table(
         title="assembly totals (± 1σ); inertia about the centre of mass", title_justify="left", header_style="bold"
     )
@@ -81,19 +90,23 @@ def assembly_summary_table(result: AssemblyResult) -> Table:
     out.add_row("mass g", fmt_u(result.mass_g, result.mass_u_g))
     out.add_row("weight N (standard gravity)", fmt_u(result.weight_n, result.weight_u_n))
     for axis, value, u in zip("xyz", result.centre_of_mass_mm, result.centre_of_mass_u_mm):
-        out.add_row(f"centre of mass {axis} mm", fmt_u(value, u))
+        out.add_row(f"centre of mass {axis} {lu}", fmt_u(convert(value, "length", units), convert(u, "length", units)))
     for name, (i, j) in zip(("xx", "yy", "zz"), ((0, 0), (1, 1), (2, 2))):
-        out.add_row(f"moment of inertia I{name} g·mm²", fmt_u(result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j]))
+        out.add_row(
+            f"moment of inertia I{name} {mu}",
+            fmt_u(moment(result.inertia_g_mm2[i, j]), moment(result.inertia_u_g_mm2[i, j])),
+        )
     # products of inertia ∫(x − xc)(y − yc) dm: the same sign as a part's Ixy (the tensor holds their negatives)
     for name, (i, j) in zip(("xy", "xz", "yz"), ((0, 1), (0, 2), (1, 2))):
         out.add_row(
-            f"product of inertia P{name} g·mm²", fmt_u(-result.inertia_g_mm2[i, j], result.inertia_u_g_mm2[i, j])
+            f"product of inertia P{name} {mu}",
+            fmt_u(-moment(result.inertia_g_mm2[i, j]), moment(result.inertia_u_g_mm2[i, j])),
         )
     for k, (value, u, axis) in enumerate(
         zip(result.principal_g_mm2, result.principal_u_g_mm2, result.principal_axes), 1
     ):
         direction = ", ".join(f"{c:+.4f}" for c in axis)
-        out.add_row(f"principal I{k} g·mm² (axis {direction})", fmt_u(value, u))
+        out.add_row(f"principal I{k} {mu} (axis {direction})", fmt_u(moment(value), moment(u)))
     return out
 
 

@@ -49,11 +49,13 @@ from scanmass.errors import OptionError, ScanmassError
 from scanmass.mass.materials import Material, load_materials, resolve_material
 from scanmass.mass.plate import STANDARD_GRAVITY_M_S2, check_positive
 from scanmass.measurement import Measurement, Part, _clean
+from scanmass.names import check_units, convert
 from scanmass.readfile import read_toml
 
 __all__ = [
     "ASSEMBLY_SCHEMA",
     "ASSEMBLY_CSV_COLUMNS",
+    "assembly_csv_columns",
     "LIFTING_CAUTION",
     "PRODUCTS_NOTE",
     "Member",
@@ -257,12 +259,15 @@ class AssemblyResult:
         """The assembly result document as JSON text."""
         return json.dumps(self.to_dict(), indent=indent, allow_nan=False)
 
-    def to_csv(self) -> str:
+    def to_csv(self, units: str = "mm") -> str:
         """The per-member table as CSV, then one ``total`` row (tensor about the assembly's
         centre of mass). ``inertia_*`` are the moments of inertia, ``product_*`` the products of
-        inertia with the sign of a part's Ixy (:data:`PRODUCTS_NOTE`)."""
+        inertia with the sign of a part's Ixy (:data:`PRODUCTS_NOTE`). With ``units`` "in",
+        lengths are in inches and mass moments in g·in², and the column names say so
+        (``com_x_in``, ``inertia_xx_g_in2``)."""
+        columns = assembly_csv_columns(check_units(units))
         buf = io.StringIO()
-        writer = csv.DictWriter(buf, fieldnames=ASSEMBLY_CSV_COLUMNS, lineterminator="\n")
+        writer = csv.DictWriter(buf, fieldnames=columns, lineterminator="\n")
         writer.writeheader()
         rows = [
             _csv_row(
@@ -300,7 +305,8 @@ class AssemblyResult:
             )
         )
         for row in rows:
-            writer.writerow({k: "" if v is None else v for k, v in _clean(row).items()})
+            values = [_in_units(key, value, units) for key, value in _clean(row).items()]
+            writer.writerow({k: "" if v is None else v for k, v in zip(columns, values)})
         return buf.getvalue()
 
 
@@ -327,6 +333,37 @@ ASSEMBLY_CSV_COLUMNS = [
     "product_xz_g_mm2",
     "product_yz_g_mm2",
 ]
+
+
+def _column_kind(column: str) -> str | None:
+    """The quantity kind of a column of :data:`ASSEMBLY_CSV_COLUMNS` that has a length in its unit."""
+    if column.endswith("_g_mm2"):
+        return "mass_moment"
+    if column.endswith("_mm"):
+        return "length"
+    return None
+
+
+def assembly_csv_columns(units: str = "mm") -> list[str]:
+    """:data:`ASSEMBLY_CSV_COLUMNS` named for ``units`` (mm or in)."""
+    if units == "mm":
+        return list(ASSEMBLY_CSV_COLUMNS)
+    out = []
+    for column in ASSEMBLY_CSV_COLUMNS:
+        kind = _column_kind(column)
+        if kind == "length":
+            column = column.removesuffix("mm") + "in"
+        elif kind == "mass_moment":
+            column = column.removesuffix("mm2") + "in2"
+        out.append(column)
+    return out
+
+
+def _in_units(column: str, value: Any, units: str) -> Any:
+    kind = _column_kind(column)
+    if kind is None or not isinstance(value, (int, float)) or isinstance(value, bool):
+        return value
+    return convert(value, kind, units)
 
 
 def _csv_row(row, index, name, source, part, material, thickness, count, cutout, mass, mass_u, com, tensor):
