@@ -16,6 +16,7 @@ import stat
 from scanmass.errors import ScanmassError, escape_text
 
 __all__ = [
+    "MAX_JSON_BYTES",
     "MAX_TOML_BYTES",
     "describe_mode",
     "display_path",
@@ -189,6 +190,8 @@ def read_regular_text(
         ) from None
 
 
+#: Largest mat layout or lens profile JSON read (bytes).
+MAX_JSON_BYTES = 1 << 24
 #: Largest settings, materials or assembly TOML file read (bytes).
 MAX_TOML_BYTES = 1 << 24
 

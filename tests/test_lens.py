@@ -73,6 +73,26 @@ def test_profile_round_trip_and_point_correction(profile, tmp_path):
         load_lens_profile(tmp_path / "bad.json")
 
 
+def test_lens_profile_must_be_a_small_regular_file(tmp_path):
+    import os
+
+    from _deadline import deadline
+
+    with pytest.raises(OptionError, match="lens profile not found"):
+        load_lens_profile(tmp_path / "missing.json")
+    fifo = tmp_path / "fifo.json"
+    os.mkfifo(fifo)
+    with deadline(10, "reading a FIFO as a lens profile blocked"), pytest.raises(OptionError, match="FIFO"):
+        load_lens_profile(fifo)
+    big = tmp_path / "big.json"
+    with open(big, "wb") as fh:
+        fh.truncate((1 << 24) + 1)  # sparse: larger than any profile
+    with pytest.raises(OptionError, match="lens profile"):
+        load_lens_profile(big)
+    with pytest.raises(OptionError, match="lens profile"):
+        load_lens_profile(tmp_path)  # a folder
+
+
 @pytest.mark.parametrize("tilt", [0.0, 30.0])
 def test_measuring_with_and_without_the_profile(profile, tilt, tmp_path):
     part = PhotoParts(rectangle(70.0, 90.0, 80.0, 50.0, angle_deg=17.0), [circle(100.0, 115.0, 8.0, 256)])

@@ -21,6 +21,7 @@ import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
 from scanmass.load.decode import DEFAULT_MAX_PIXELS, load_image
+from scanmass.readfile import MAX_JSON_BYTES, read_regular_text
 from scanmass.scale.markers import MIN_MARKERS, detect_markers
 from scanmass.scale.mat import calibration_dir, layout_for_ids, load_layout
 from scanmass.scale.planemap import PixelCorrection
@@ -125,13 +126,15 @@ class LensProfile:
 def load_lens_profile(path: str | os.PathLike) -> LensProfile:
     """Read a lens profile JSON written by :func:`save_lens_profile`."""
     p = Path(os.fspath(path))
-    if p.exists() and not p.is_file():  # a FIFO or device would hang or never end
-        raise OptionError("the lens profile is not a regular file; give the JSON from 'scanmass lens'", path=str(p))
+    if not p.exists() and not p.is_symlink():
+        raise OptionError("lens profile not found; make one with 'scanmass lens PHOTOS...'", path=str(p))
+    # a regular file only (a FIFO or device would hang or never end), of a bounded size
+    text = read_regular_text(
+        p, error=OptionError, what="lens profile", fix="give the JSON from 'scanmass lens'", max_bytes=MAX_JSON_BYTES
+    )
     try:
-        data = json.loads(p.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise OptionError("lens profile not found; make one with 'scanmass lens PHOTOS...'", path=str(p)) from None
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        data = json.loads(text)
+    except json.JSONDecodeError as exc:
         raise OptionError(
             f"cannot read the lens profile ({exc}); make it again with 'scanmass lens'", path=str(p)
         ) from None

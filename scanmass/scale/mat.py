@@ -28,6 +28,7 @@ import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
 from scanmass.raster import coverage, srgb_encode
+from scanmass.readfile import MAX_JSON_BYTES, read_regular_text
 
 __all__ = [
     "DICTIONARY",
@@ -341,9 +342,12 @@ def load_layout(source: str | os.PathLike) -> MatLayout:
     path = Path(text)
     if not path.is_file():
         raise OptionError(f"mat {text!r} is neither a layout name ({', '.join(_BLOCKS)}) nor a layout JSON file")
+    text_read = read_regular_text(
+        path, error=ScaleError, what="mat layout", fix="write it again with 'scanmass mat'", max_bytes=MAX_JSON_BYTES
+    )
     try:
-        data = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        data = json.loads(text_read)
+    except json.JSONDecodeError as exc:
         raise ScaleError(
             f"cannot read the mat layout ({exc}); write it again with 'scanmass mat'", path=str(path)
         ) from None
