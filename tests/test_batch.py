@@ -369,7 +369,7 @@ def test_resume_after_kill_9(tmp_path):
 @pytest.mark.slow
 def test_ctrl_c_finishes_files_in_flight_and_writes_csvs(tmp_path):
     folder, out = tmp_path / "scans", tmp_path / "out"
-    n = 12
+    n = 24  # enough that a loaded machine still signals mid-run (after 3 files)
     _many(folder, n)
     done_at_signal, proc = _signal_mid_run(folder, out, signal.SIGINT)
     assert proc.returncode == 130, proc.stderr
