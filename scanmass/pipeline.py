@@ -536,8 +536,8 @@ def _unknown_thickness(
         flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
         raised_outer = raised_outline_mm(h0, k, plausible, flat_outer)
         raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True) for h in flat_holes]
-        before = _figure_values(section_properties(flat_outer, flat_holes))
-        after = _figure_values(section_properties(raised_outer, raised_holes))
+        before = _figure_values(section_properties(flat_outer, flat_holes, hull=False))
+        after = _figure_values(section_properties(raised_outer, raised_holes, hull=False))
         term = {name: 0.5 * abs(after[name] - before[name]) for name in before}
         d_angle = (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
         term["principal_angle_deg"] = 0.5 * abs(d_angle)
@@ -723,7 +723,7 @@ def _scale_terms(part: MappedPart, plane_map: PlaneMap, props: SectionProperties
     if len(part.sample_rings_mm) >= MIN_SCALE_SAMPLES:
         values: dict[str, list[float]] = {}
         for outer_mm, holes_mm in part.sample_rings_mm:
-            sp = section_properties(outer_mm, list(holes_mm))
+            sp = section_properties(outer_mm, list(holes_mm), hull=False)  # no hull figure is sampled
             for name, val in _figure_values(sp).items():
                 values.setdefault(name, []).append(val)
         out = {k: float(np.std(v, ddof=1)) for k, v in values.items()}
