@@ -178,3 +178,42 @@ def test_section_without_hull_gives_every_other_figure_unchanged():
     # outline moves the hull out by about that much (0.1 % of the area)
     assert abs(full.convex_area_mm2 / (math.pi * 25 * 18) - 1) < 3e-3
     assert abs(full.caliper_max_mm - 50) < 0.05 and abs(full.caliper_min_mm - 36) < 0.05
+
+
+def _brute_force_crossings(p, direction, seg_a, seg_b, reach):
+    """First and second ray parameters over every segment, one ray at a time (the definition)."""
+    first, second = np.full(len(p), np.inf), np.full(len(p), np.inf)
+    e = seg_b - seg_a
+    for k in range(len(p)):
+        d, w = direction[k], seg_a - p[k]
+        denom = d[0] * e[:, 1] - d[1] * e[:, 0]
+        ok = np.abs(denom) > 1e-12
+        t = np.where(ok, (w[:, 0] * e[:, 1] - w[:, 1] * e[:, 0]) / np.where(ok, denom, 1), np.inf)
+        u = np.where(ok, (w[:, 0] * d[1] - w[:, 1] * d[0]) / np.where(ok, denom, 1), -1)
+        ts = np.sort(t[ok & (u >= 0) & (u <= 1) & (t > 0.05) & (t <= reach)])
+        if ts.size:
+            first[k] = ts[0]
+        if ts.size > 1:
+            second[k] = ts[1]
+    return first, second
+
+
+def test_ray_crossings_all_at_once_equal_one_ray_at_a_time():
+    # three wavy parallel boundaries 3 and 4 px apart (a wall beside a slot), vertices on a
+    # quarter-pixel grid so that rays also pass exactly through vertices (two segments, one t)
+    rng = np.random.default_rng(8)
+    x = np.arange(0, 200, 0.5)
+    lines = [np.column_stack([x, y0 + 0.6 * np.sin(x / 9 + y0)]) for y0 in (10.0, 13.0, 17.0)]
+    lines = [np.round(line * 4) / 4 for line in lines]
+    seg_a = np.concatenate([line[:-1] for line in lines])
+    seg_b = np.concatenate([line[1:] for line in lines])
+    pick = rng.choice(len(lines[0]), 300, replace=False)
+    p = lines[0][pick]
+    angle = rng.uniform(np.pi / 4, 3 * np.pi / 4, len(p))
+    direction = np.column_stack([np.cos(angle), np.sin(angle)])
+    for reach in (5.0, 12.0):
+        got = thin._crossings(p, direction, seg_a, seg_b, reach)
+        want = _brute_force_crossings(p, direction, seg_a, seg_b, reach)
+        np.testing.assert_array_equal(got[0], want[0])
+        np.testing.assert_array_equal(got[1], want[1])
+    assert np.isfinite(got[1]).sum() > 100  # rays that cross both other boundaries: not vacuous

@@ -36,6 +36,7 @@ References
 
 from __future__ import annotations
 
+import itertools
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
@@ -175,7 +176,11 @@ def _normals(ring: np.ndarray, outer: bool) -> np.ndarray:
 def _crossings(
     p: np.ndarray, direction: np.ndarray, seg_a: np.ndarray, seg_b: np.ndarray, reach: float
 ) -> tuple[np.ndarray, np.ndarray]:
-    """First and second distances along rays ``p + t d`` (t > 0.05) to the segments; inf where none."""
+    """First and second distances along rays ``p + t d`` (t > 0.05) to the segments; inf where none.
+
+    Every ray is tested against the segments whose midpoints lie near it (a k-d tree
+    query), all rays at once: the (ray, segment) pairs are laid out flat, in blocks.
+    """
     from scipy.spatial import cKDTree  # scipy.spatial costs ~0.2 s to import: only when walls are examined
 
     tree = cKDTree(0.5 * (seg_a + seg_b))
@@ -183,25 +188,38 @@ def _crossings(
     second = np.full(len(p), np.inf)
     seg_len = float(np.max(np.hypot(*(seg_b - seg_a).T))) if len(seg_a) else 1.0
     mids = p + direction * (reach / 2)
-    for k, cand in enumerate(tree.query_ball_point(mids, reach / 2 + seg_len)):
-        if not cand:
+    near = tree.query_ball_point(mids, reach / 2 + seg_len)
+    counts = np.fromiter((len(c) for c in near), np.intp, len(near))
+    block = max(1, _CROSSING_PAIRS // max(1, int(counts.max(initial=1))))
+    for start in range(0, len(p), block):
+        stop = min(len(p), start + block)
+        n = counts[start:stop]
+        if not n.any():
             continue
-        idx = np.asarray(cand)
+        k = np.repeat(np.arange(start, stop), n)  # the ray of each pair
+        idx = np.fromiter(itertools.chain.from_iterable(near[start:stop]), np.intp, int(n.sum()))
         a, b = seg_a[idx], seg_b[idx]
         e = b - a
         d = direction[k]
-        denom = d[0] * e[:, 1] - d[1] * e[:, 0]
+        denom = d[:, 0] * e[:, 1] - d[:, 1] * e[:, 0]
         ok = np.abs(denom) > 1e-12
         w = a - p[k]
         t = np.where(ok, (w[:, 0] * e[:, 1] - w[:, 1] * e[:, 0]) / np.where(ok, denom, 1), np.inf)
-        u = np.where(ok, (w[:, 0] * d[1] - w[:, 1] * d[0]) / np.where(ok, denom, 1), -1)
+        u = np.where(ok, (w[:, 0] * d[:, 1] - w[:, 1] * d[:, 0]) / np.where(ok, denom, 1), -1)
         hit = ok & (u >= 0) & (u <= 1) & (t > 0.05) & (t <= reach)
-        if hit.any():
-            ts = np.sort(t[hit])
-            first[k] = ts[0]
-            if len(ts) > 1:
-                second[k] = ts[1]
+        if not hit.any():
+            continue
+        k, t = k[hit], t[hit]
+        order = np.lexsort((t, k))  # by ray, then by distance along it
+        k, t = k[order], t[order]
+        rays, at, many = np.unique(k, return_index=True, return_counts=True)
+        first[rays] = t[at]
+        second[rays[many > 1]] = t[at[many > 1] + 1]
     return first, second
+
+
+#: Largest number of (ray, segment) pairs :func:`_crossings` lays out at once.
+_CROSSING_PAIRS = 1 << 20
 
 
 #: Normal directions are binned in this many sectors for :func:`_maybe_facing`.
