@@ -217,3 +217,21 @@ def test_ray_crossings_all_at_once_equal_one_ray_at_a_time():
         np.testing.assert_array_equal(got[0], want[0])
         np.testing.assert_array_equal(got[1], want[1])
     assert np.isfinite(got[1]).sum() > 100  # rays that cross both other boundaries: not vacuous
+
+
+def test_convex_hull_with_duplicates_matches_shapely():
+    from shapely.geometry import MultiPoint
+
+    from scanmass.section import convex_hull
+
+    rng = np.random.default_rng(11)
+    for _ in range(20):
+        pts = np.round(rng.normal(size=(int(rng.integers(50, 2000)), 2)) * 4) / 4  # many duplicates
+        pts = np.concatenate([pts, pts[: len(pts) // 3]])
+        hull = convex_hull(pts)
+        # source: shapely (GEOS) computes the hull of the same points, collinear points dropped
+        want = MultiPoint([tuple(p) for p in pts]).convex_hull.exterior.coords[:-1]
+        assert {tuple(p) for p in hull.tolist()} == {tuple(p) for p in want}
+        assert len(hull) == len(want)
+        first = np.lexsort((pts[:, 1], pts[:, 0]))[0]
+        assert hull[0].tolist() == pts[first].tolist()  # starts at the lowest x, then lowest y
