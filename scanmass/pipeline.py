@@ -573,8 +573,8 @@ def _half_change(
     outer_mm: np.ndarray, holes_mm: list[np.ndarray], new_outer_mm: np.ndarray, new_holes_mm: list[np.ndarray]
 ) -> dict[str, float]:
     """Half the change of every figure when a part's rings are replaced by other rings (an uncertainty term)."""
-    before = _figure_values(section_properties(outer_mm, holes_mm))
-    after = _figure_values(section_properties(new_outer_mm, new_holes_mm))
+    before = _figure_values(section_properties(outer_mm, holes_mm, hull=False))
+    after = _figure_values(section_properties(new_outer_mm, new_holes_mm, hull=False))
     term = {name: 0.5 * abs(after[name] - before[name]) for name in before}
     d_angle = (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
     term["principal_angle_deg"] = 0.5 * abs(d_angle)
@@ -794,7 +794,7 @@ def _scale_terms(part: MappedPart, plane_map: PlaneMap, props: SectionProperties
     if len(part.sample_rings_mm) >= MIN_SCALE_SAMPLES:
         values: dict[str, list[float]] = {}
         for outer_mm, holes_mm in part.sample_rings_mm:
-            sp = section_properties(outer_mm, list(holes_mm))
+            sp = section_properties(outer_mm, list(holes_mm), hull=False)  # no hull figure is sampled
             for name, val in _figure_values(sp).items():
                 values.setdefault(name, []).append(val)
         out = {k: float(np.std(v, ddof=1)) for k, v in values.items()}

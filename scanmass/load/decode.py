@@ -809,6 +809,29 @@ def _verify_jpeg(data: bytes, name: str) -> None:
         )
 
 
+def _jpeg_luma(data: bytes, size: tuple[int, int]) -> np.ndarray | None:
+    """The luma plane of an intact JPEG in one decode, or None to take the checked path.
+
+    libjpeg is asked for greyscale output (the stored Y channel, as pillow's
+    ``draft("L")`` gives it; colour JPEGs stored as RGB are converted by libjpeg in
+    both cases), at full size, without EXIF orientation, and its warnings are caught as
+    in :func:`_verify_jpeg`. Any warning that means damage, a failed decode or another
+    size returns None: the caller then decodes with pillow and :func:`_verify_jpeg`,
+    which give the usual error. This replaces pillow's decode plus the 1/8-scale
+    second decode of that check.
+    """
+    import cv2
+
+    buf = np.frombuffer(data, dtype=np.uint8)
+    with _captured_stderr() as caught:
+        arr = cv2.imdecode(buf, cv2.IMREAD_GRAYSCALE | cv2.IMREAD_IGNORE_ORIENTATION)
+    if arr is None or arr.dtype != np.uint8 or arr.shape != (size[1], size[0]):
+        return None
+    if _JPEG_DAMAGE.search(" ".join(caught)) is not None:
+        return None
+    return arr
+
+
 def _verify_png(data: bytes, name: str) -> None:
     """Refuse a PNG whose chunks or compressed pixel stream are damaged.
 
@@ -1401,17 +1424,20 @@ def load_image(
             im.close()
             grey, linear = _deep_grey(data, fmt, stored, name), False
         else:
-            # Decoding everything now surfaces truncation and damage as an ImageError.
-            _decode(im, name)
-            if im.format in ("JPEG", "MPO"):
-                _verify_jpeg(data, name)
+            # an intact JPEG's luma plane in one decode, its damage checked on the way
+            luma = _jpeg_luma(data, im.size) if im.format in ("JPEG", "MPO") and im.mode == "L" else None
+            if luma is None:
+                # Decoding everything now surfaces truncation and damage as an ImageError.
+                _decode(im, name)
+                if im.format in ("JPEG", "MPO"):
+                    _verify_jpeg(data, name)
             # Recent pillow applies a TIFF orientation while loading and drops the tag;
             # apply whatever is still pending, once. (A PNG eXIf chunk after the image
             # data is only seen now.)
             pending = _orientation(im)
             if orientation == 1:
                 orientation = pending
-            grey, linear = _pillow_grey(im, name)
+            grey, linear = (luma, False) if luma is not None else _pillow_grey(im, name)
     finally:
         im.close()
 

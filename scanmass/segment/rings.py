@@ -289,7 +289,9 @@ def segment(
         # first encoded value >= the linear threshold: compare encoded values, never a float copy of the image
         t_enc = np.searchsorted(lut, t_map).clip(0, len(lut) - 1).astype(grey.dtype)
         t_full = cv2.resize(t_enc, (width, height), interpolation=cv2.INTER_LINEAR) if factor > 1 else t_enc
-        mask = cv2.compare(grey, t_full, cv2.CMP_LT if bright_background else cv2.CMP_GT)
+        # the mask overwrites the full-size threshold plane (element-wise: safe in place): one
+        # full-size uint8 plane fewer at the peak
+        mask = cv2.compare(grey, t_full, cv2.CMP_LT if bright_background else cv2.CMP_GT, dst=t_full)
         del t_full
         np.minimum(mask, 1, out=mask)
     else:

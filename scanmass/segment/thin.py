@@ -36,13 +36,13 @@ References
 
 from __future__ import annotations
 
+import itertools
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
 import cv2
 import numpy as np
-from scipy.spatial import cKDTree
 
 from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
@@ -176,31 +176,109 @@ def _normals(ring: np.ndarray, outer: bool) -> np.ndarray:
 def _crossings(
     p: np.ndarray, direction: np.ndarray, seg_a: np.ndarray, seg_b: np.ndarray, reach: float
 ) -> tuple[np.ndarray, np.ndarray]:
-    """First and second distances along rays ``p + t d`` (t > 0.05) to the segments; inf where none."""
+    """First and second distances along rays ``p + t d`` (t > 0.05) to the segments; inf where none.
+
+    Every ray is tested against the segments whose midpoints lie near it (a k-d tree
+    query), all rays at once: the (ray, segment) pairs are laid out flat, in blocks.
+    """
+    from scipy.spatial import cKDTree  # scipy.spatial costs ~0.2 s to import: only when walls are examined
+
     tree = cKDTree(0.5 * (seg_a + seg_b))
     first = np.full(len(p), np.inf)
     second = np.full(len(p), np.inf)
     seg_len = float(np.max(np.hypot(*(seg_b - seg_a).T))) if len(seg_a) else 1.0
     mids = p + direction * (reach / 2)
-    for k, cand in enumerate(tree.query_ball_point(mids, reach / 2 + seg_len)):
-        if not cand:
+    near = tree.query_ball_point(mids, reach / 2 + seg_len)
+    counts = np.fromiter((len(c) for c in near), np.intp, len(near))
+    block = max(1, _CROSSING_PAIRS // max(1, int(counts.max(initial=1))))
+    for start in range(0, len(p), block):
+        stop = min(len(p), start + block)
+        n = counts[start:stop]
+        if not n.any():
             continue
-        idx = np.asarray(cand)
+        k = np.repeat(np.arange(start, stop), n)  # the ray of each pair
+        idx = np.fromiter(itertools.chain.from_iterable(near[start:stop]), np.intp, int(n.sum()))
         a, b = seg_a[idx], seg_b[idx]
         e = b - a
         d = direction[k]
-        denom = d[0] * e[:, 1] - d[1] * e[:, 0]
+        denom = d[:, 0] * e[:, 1] - d[:, 1] * e[:, 0]
         ok = np.abs(denom) > 1e-12
         w = a - p[k]
         t = np.where(ok, (w[:, 0] * e[:, 1] - w[:, 1] * e[:, 0]) / np.where(ok, denom, 1), np.inf)
-        u = np.where(ok, (w[:, 0] * d[1] - w[:, 1] * d[0]) / np.where(ok, denom, 1), -1)
+        u = np.where(ok, (w[:, 0] * d[:, 1] - w[:, 1] * d[:, 0]) / np.where(ok, denom, 1), -1)
         hit = ok & (u >= 0) & (u <= 1) & (t > 0.05) & (t <= reach)
-        if hit.any():
-            ts = np.sort(t[hit])
-            first[k] = ts[0]
-            if len(ts) > 1:
-                second[k] = ts[1]
+        if not hit.any():
+            continue
+        k, t = k[hit], t[hit]
+        order = np.lexsort((t, k))  # by ray, then by distance along it
+        k, t = k[order], t[order]
+        rays, at, many = np.unique(k, return_index=True, return_counts=True)
+        first[rays] = t[at]
+        second[rays[many > 1]] = t[at[many > 1] + 1]
     return first, second
+
+
+#: Largest number of (ray, segment) pairs :func:`_crossings` lays out at once.
+_CROSSING_PAIRS = 1 << 20
+
+
+#: Normal directions are binned in this many sectors for :func:`_maybe_facing`.
+_FACING_BINS = 36
+
+#: ... and when at most this many vertices are left, they are tested against every vertex.
+_FACING_EXACT_MAX = 256
+
+
+def _maybe_facing(pts: np.ndarray, normals: np.ndarray, reach: float) -> np.ndarray:
+    """Vertices that may have a boundary point within ``reach`` whose normal faces theirs.
+
+    A superset of what the neighbour search finds (normals more than 120 degrees apart,
+    i.e. a dot product below -0.5): vertices are binned in square cells at least
+    ``reach`` wide and their normals in 10-degree sectors; a vertex is kept when the
+    3 x 3 cells around it hold a normal in a sector that can lie more than 110 degrees
+    from its own. On parts without thin walls or narrow slots this leaves none, and the
+    neighbour search is skipped.
+
+    Examples
+    --------
+    >>> t = np.linspace(0, 2 * np.pi, 400, endpoint=False)
+    >>> ring = np.column_stack([100 * np.cos(t), 100 * np.sin(t)])  # a disc of radius 100 px
+    >>> bool(_maybe_facing(ring, ring / 100, 11.0).any())
+    False
+    >>> wall = np.concatenate([ring, 0.97 * ring])  # a 3 px ring: both sides face each other
+    >>> bool(_maybe_facing(wall, np.concatenate([ring, -ring]) / 100, 11.0).all())
+    True
+    """
+    n = len(pts)
+    if n == 0:
+        return np.zeros(0, bool)
+    cell = 1.001 * float(reach) + 1e-9  # points within reach differ by at most one cell per axis
+    ij = np.floor((pts - pts.min(axis=0)) / cell).astype(np.int64) + 1
+    angle = np.arctan2(normals[:, 1], normals[:, 0])
+    sector = np.clip(((angle + np.pi) / (2 * np.pi) * _FACING_BINS).astype(np.int64), 0, _FACING_BINS - 1)
+    grid = np.zeros((int(ij[:, 1].max()) + 2, int(ij[:, 0].max()) + 2), np.uint64)
+    np.bitwise_or.at(grid, (ij[:, 1], ij[:, 0]), np.left_shift(np.uint64(1), sector.astype(np.uint64)))
+    around = grid.copy()
+    for dy in (-1, 0, 1):
+        for dx in (-1, 0, 1):
+            if dx or dy:
+                around[1:-1, 1:-1] |= grid[1 + dy : grid.shape[0] - 1 + dy, 1 + dx : grid.shape[1] - 1 + dx]
+    # sectors k apart hold angles less than (k + 1) * 10 degrees apart: k >= 11 may exceed 110 degrees
+    gap = np.abs(np.arange(_FACING_BINS)[:, None] - np.arange(_FACING_BINS)[None, :])
+    far = np.minimum(gap, _FACING_BINS - gap) >= 11
+    opposite = (far * np.left_shift(np.uint64(1), np.arange(_FACING_BINS, dtype=np.uint64))[None, :]).sum(
+        axis=1, dtype=np.uint64
+    )
+    maybe = (around[ij[:, 1], ij[:, 0]] & opposite[sector]) != 0
+    few = np.nonzero(maybe)[0]
+    if 0 < few.size <= _FACING_EXACT_MAX:
+        # few left (corners, tight curves): test them against every vertex, with a margin on
+        # the distance and the dot product, so that the set stays a superset
+        d2 = ((pts[few, None, :] - pts[None, :, :]) ** 2).sum(axis=2)
+        dots = normals[few] @ normals.T
+        close = d2 <= (reach * (1 + 1e-6) + 1e-9) ** 2
+        maybe[few] = np.any(close & (dots < -0.5 + 1e-6), axis=1)
+    return maybe
 
 
 def _robust_quadratic(values: np.ndarray, rows: np.ndarray, cols: np.ndarray) -> Callable[..., np.ndarray] | None:
@@ -299,10 +377,15 @@ def resolve_walls(
     reach = thin_px + reach_tail
     # only vertices with an opposite-facing boundary point within reach can be on a wall or slot
     k = min(24, len(pts))
-    dist, near = cKDTree(pts).query(pts, k=k, distance_upper_bound=reach)
-    valid = np.isfinite(dist)
-    facing = np.einsum("ij,ikj->ik", normals, normals[np.where(valid, near, 0)]) < -0.5
-    candidate = np.any(valid & facing, axis=1)
+    candidate = np.zeros(len(pts), bool)
+    maybe = np.nonzero(_maybe_facing(pts, normals, reach))[0]  # cheap superset of the candidates
+    if maybe.size:
+        from scipy.spatial import cKDTree  # only when some boundary may face another within reach
+
+        dist, near = cKDTree(pts).query(pts[maybe], k=k, distance_upper_bound=reach)
+        valid = np.isfinite(dist)
+        facing = np.einsum("ij,ikj->ik", normals[maybe], normals[np.where(valid, near, 0)]) < -0.5
+        candidate[maybe] = np.any(valid & facing, axis=1)
     d_in = np.full(len(pts), np.inf)
     beyond_in, d_out, beyond_out = d_in.copy(), d_in.copy(), d_in.copy()
     if candidate.any():

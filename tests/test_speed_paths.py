@@ -1,0 +1,237 @@
+"""Fast paths (issue 16) give what the paths they replace gave.
+
+- JPEG: the luma plane decoded once by libjpeg through OpenCV (greyscale output, damage
+  warnings caught) equals pillow's own decode of the luma channel (``draft("L")``), an
+  outside decoder, for the common encoder settings; damaged files still take the checked
+  path and are refused.
+- Thin walls: the cheap grid-and-sector filter in front of the neighbour search keeps
+  every vertex that has an opposite-facing boundary point (normals more than 120 degrees
+  apart, dot product below -0.5, the rule of ``resolve_walls``) within reach, checked
+  against a brute-force search over all pairs written here; on a part without thin walls
+  the neighbour search (scipy's k-d tree) is not built at all.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+
+import numpy as np
+import pytest
+import scipy.spatial
+from PIL import Image
+
+from scanmass.errors import ImageError
+from scanmass.load import decode
+from scanmass.load.decode import load_image
+from scanmass.segment import thin
+from scanmass.segment.rings import segment
+from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan
+
+# ------------------------------------------------------------------------------- JPEG
+
+
+def _photo_like(seed: int = 3) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    a = (rng.random((203, 317, 3)) * 255).astype(np.uint8)
+    a[40:160, 50:250] = [20, 40, 200]
+    a[90:120, 100:300] = [240, 240, 10]
+    return a
+
+
+def _pillow_luma(data: bytes) -> np.ndarray:
+    with Image.open(io.BytesIO(data)) as im:
+        im.draft("L", im.size)
+        return np.asarray(im.convert("L") if im.mode != "L" else im)
+
+
+@pytest.mark.parametrize(
+    "mode, options",
+    [
+        ("RGB", {"quality": 92}),
+        ("RGB", {"quality": 60, "subsampling": 2}),  # 4:2:0
+        ("RGB", {"quality": 90, "subsampling": 1}),  # 4:2:2
+        ("RGB", {"quality": 90, "subsampling": 0}),  # 4:4:4
+        ("RGB", {"quality": 85, "progressive": True}),
+        ("RGB", {"quality": 85, "optimize": True}),
+        ("L", {"quality": 90}),
+    ],
+)
+def test_jpeg_luma_in_one_decode_equals_pillows(tmp_path, monkeypatch, mode, options):
+    buf = io.BytesIO()
+    Image.fromarray(_photo_like()).convert(mode).save(buf, "JPEG", dpi=(300, 300), **options)
+    path = tmp_path / "scan.jpg"
+    path.write_bytes(buf.getvalue())
+
+    def second_decode(*args, **kwargs):
+        raise AssertionError("an intact JPEG is decoded once")
+
+    monkeypatch.setattr(decode, "_verify_jpeg", second_decode)
+    img = load_image(path)
+    # source: pillow's decode of the same file's luma channel, bit for bit
+    np.testing.assert_array_equal(img.grey, _pillow_luma(buf.getvalue()))
+    assert img.grey.dtype == np.uint8 and img.format == "JPEG"
+
+
+def test_damaged_jpeg_still_takes_the_checked_path(tmp_path):
+    # the construction of tests/test_hostile_io.py (20 bytes changed inside the
+    # entropy-coded data), where libjpeg warns of corrupt data in every trial
+    a = np.full((400, 600), 230, np.uint8)
+    a[100:300, 100:250] = 20
+    a[150:250, 350:500] = 30
+    buf = io.BytesIO()
+    Image.fromarray(a).save(buf, "JPEG", quality=90, dpi=(300, 300))
+    rng = np.random.default_rng(13)
+    for trial in range(5):
+        data = bytearray(buf.getvalue())
+        for pos in rng.integers(len(data) // 3, len(data) - 10, 20):
+            data[pos] = (data[pos] + 1 + int(rng.integers(0, 255))) % 256
+        assert decode._jpeg_luma(bytes(data), (600, 400)) is None  # not taken as intact
+        path = tmp_path / f"bad{trial}.jpg"
+        path.write_bytes(bytes(data))
+        with pytest.raises(ImageError, match="damaged"):
+            load_image(path)
+
+
+# -------------------------------------------------------------------------- thin walls
+
+
+def _parts(parts: list[SynthPart]):
+    scan = render_scan(parts, dpi=300, shape_px=(700, 900), blur_px=1.0, noise=0.004, seed=2)
+    img = load_image(scan.image, dpi=300)
+    return img, segment(img, min_area_px=50).parts
+
+
+def _reach(rings) -> float:
+    sigma = float(rings.blur_px) if math.isfinite(rings.blur_px) and rings.blur_px > 0 else 1.0
+    return thin.THIN_SIGMAS * sigma + 1.0 + 3.0 * max(sigma, 1.0) + 2.0  # as resolve_walls sets it
+
+
+def _brute_force_facing(pts: np.ndarray, normals: np.ndarray, reach: float) -> np.ndarray:
+    """Every vertex with some vertex within reach whose normal is more than 120 degrees from its own."""
+    out = np.zeros(len(pts), bool)
+    for start in range(0, len(pts), 512):
+        block = slice(start, start + 512)
+        d = np.hypot(pts[block, None, 0] - pts[None, :, 0], pts[block, None, 1] - pts[None, :, 1])
+        dots = normals[block] @ normals.T
+        out[block] = np.any((d <= reach) & (dots < -0.5), axis=1)
+    return out
+
+
+def test_facing_filter_keeps_every_vertex_the_neighbour_rule_can_find():
+    mm = 25.4 / 300
+    parts = [
+        SynthPart(circle(20, 20, 12), [circle(20, 20, 12 - 4 * mm)]),  # a 4 px ring: walls all round
+        SynthPart(rectangle(45, 8, 25, 30), [rectangle(55, 12, 3 * mm, 20)]),  # a 3 px slot in a plate
+        SynthPart(circle(60, 48, 6)),  # a disc: nothing faces within reach
+    ]
+    img, found = _parts(parts)
+    assert len(found) == 3
+    kept = {}
+    for rings in found:
+        all_rings = [rings.outer_px, *rings.holes_px]
+        pts = np.concatenate(all_rings)
+        normals = np.concatenate([thin._normals(r, i == 0) for i, r in enumerate(all_rings)])
+        reach = _reach(rings)
+        truth = _brute_force_facing(pts, normals, reach)
+        maybe = thin._maybe_facing(pts, normals, reach)
+        assert not np.any(truth & ~maybe), "the filter dropped a vertex the neighbour rule finds"
+        kept[rings.label] = (int(truth.sum()), int(maybe.sum()), len(pts))
+    counts = sorted(kept.values(), key=lambda c: c[2])
+    disc, *others = sorted(kept.values(), key=lambda c: c[0])
+    assert disc[1] == 0  # the disc: no candidate, so no neighbour search
+    assert all(t > 100 for t, _, _ in others), counts  # the ring and the slot: many
+
+
+def test_no_thin_wall_means_no_neighbour_search(monkeypatch):
+    img, found = _parts([SynthPart(circle(30, 30, 15), [circle(30, 30, 5)])])
+
+    class Refused:
+        def __init__(self, *args, **kwargs):
+            raise AssertionError("k-d tree built for a part without thin walls")
+
+    monkeypatch.setattr(scipy.spatial, "cKDTree", Refused)
+    result = thin.resolve_walls(img, found[0])
+    assert result.corrected == 0 and result.unresolved == 0
+    np.testing.assert_array_equal(result.rings.outer_px, found[0].outer_px)
+
+
+# ------------------------------------------------------------------- sampled scale maps
+
+
+def test_section_without_hull_gives_every_other_figure_unchanged():
+    from scanmass.section import section_properties
+
+    rng = np.random.default_rng(4)
+    t = np.sort(rng.random(3000)) * 2 * np.pi
+    outer = np.column_stack([40 + 25 * np.cos(t), 30 + 18 * np.sin(t)]) + rng.normal(0, 0.01, (t.size, 2))
+    hole = np.column_stack([45 + 5 * np.cos(t[::7]), 30 + 5 * np.sin(t[::7])])
+    full = section_properties(outer, [hole])
+    fast = section_properties(outer, [hole], hull=False)
+    for name, value in vars(full).items():
+        if name in ("caliper_max_mm", "caliper_min_mm", "convex_area_mm2"):
+            assert math.isnan(getattr(fast, name))
+        else:
+            assert getattr(fast, name) == value, name  # bit for bit: the same arithmetic
+    # the full path still gives the hull's figures: an ellipse of semi-axes 25 and 18 mm has
+    # area pi a b and caliper widths 2a and 2b (closed form); the 0.01 mm noise on the
+    # outline moves the hull out by about that much (0.1 % of the area)
+    assert abs(full.convex_area_mm2 / (math.pi * 25 * 18) - 1) < 3e-3
+    assert abs(full.caliper_max_mm - 50) < 0.05 and abs(full.caliper_min_mm - 36) < 0.05
+
+
+def _brute_force_crossings(p, direction, seg_a, seg_b, reach):
+    """First and second ray parameters over every segment, one ray at a time (the definition)."""
+    first, second = np.full(len(p), np.inf), np.full(len(p), np.inf)
+    e = seg_b - seg_a
+    for k in range(len(p)):
+        d, w = direction[k], seg_a - p[k]
+        denom = d[0] * e[:, 1] - d[1] * e[:, 0]
+        ok = np.abs(denom) > 1e-12
+        t = np.where(ok, (w[:, 0] * e[:, 1] - w[:, 1] * e[:, 0]) / np.where(ok, denom, 1), np.inf)
+        u = np.where(ok, (w[:, 0] * d[1] - w[:, 1] * d[0]) / np.where(ok, denom, 1), -1)
+        ts = np.sort(t[ok & (u >= 0) & (u <= 1) & (t > 0.05) & (t <= reach)])
+        if ts.size:
+            first[k] = ts[0]
+        if ts.size > 1:
+            second[k] = ts[1]
+    return first, second
+
+
+def test_ray_crossings_all_at_once_equal_one_ray_at_a_time():
+    # three wavy parallel boundaries 3 and 4 px apart (a wall beside a slot), vertices on a
+    # quarter-pixel grid so that rays also pass exactly through vertices (two segments, one t)
+    rng = np.random.default_rng(8)
+    x = np.arange(0, 200, 0.5)
+    lines = [np.column_stack([x, y0 + 0.6 * np.sin(x / 9 + y0)]) for y0 in (10.0, 13.0, 17.0)]
+    lines = [np.round(line * 4) / 4 for line in lines]
+    seg_a = np.concatenate([line[:-1] for line in lines])
+    seg_b = np.concatenate([line[1:] for line in lines])
+    pick = rng.choice(len(lines[0]), 300, replace=False)
+    p = lines[0][pick]
+    angle = rng.uniform(np.pi / 4, 3 * np.pi / 4, len(p))
+    direction = np.column_stack([np.cos(angle), np.sin(angle)])
+    for reach in (5.0, 12.0):
+        got = thin._crossings(p, direction, seg_a, seg_b, reach)
+        want = _brute_force_crossings(p, direction, seg_a, seg_b, reach)
+        np.testing.assert_array_equal(got[0], want[0])
+        np.testing.assert_array_equal(got[1], want[1])
+    assert np.isfinite(got[1]).sum() > 100  # rays that cross both other boundaries: not vacuous
+
+
+def test_convex_hull_with_duplicates_matches_shapely():
+    from shapely.geometry import MultiPoint
+
+    from scanmass.section import convex_hull
+
+    rng = np.random.default_rng(11)
+    for _ in range(20):
+        pts = np.round(rng.normal(size=(int(rng.integers(50, 2000)), 2)) * 4) / 4  # many duplicates
+        pts = np.concatenate([pts, pts[: len(pts) // 3]])
+        hull = convex_hull(pts)
+        # source: shapely (GEOS) computes the hull of the same points, collinear points dropped
+        want = MultiPoint([tuple(p) for p in pts]).convex_hull.exterior.coords[:-1]
+        assert {tuple(p) for p in hull.tolist()} == {tuple(p) for p in want}
+        assert len(hull) == len(want)
+        first = np.lexsort((pts[:, 1], pts[:, 0]))[0]
+        assert hull[0].tolist() == pts[first].tolist()  # starts at the lowest x, then lowest y
