@@ -29,7 +29,7 @@ from scanmass.segment.rings import PartRings, segment
 from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
 from scanmass.segment.symmetry import reading_shift
 from scanmass.segment.thin import EdgeQuantisation, WallResult, edge_quantisation, resolve_walls
-from scanmass.segment.touching import touching_lobes
+from scanmass.segment.touching import TouchSplit, split_touching, touching_lobes
 from scanmass.uncertainty import (
     THRESHOLD_FLOOR_PX,
     build_edge_model,
@@ -299,6 +299,12 @@ def measure_image(
             ) from None
 
     seg = run_segment(image)
+    splits = _touch_splits(image, seg.parts, seg.polarity)
+    split_notes: list[dict[str, Any]] = []
+    cuts: dict[int, tuple[float, Any]] = {}
+    if options.split_touching:
+        seg.parts, split_notes, cuts = _apply_splits(seg.parts, splits)
+        splits = [None] * len(seg.parts)
     encoding_note = None
     extra_warnings: list[str] = []
     shift_px = untagged_reading_shift(image, seg.parts) if options.encoding == "auto" else None
@@ -308,7 +314,13 @@ def measure_image(
     for quant, walls in limits:
         mapped = map_part(walls.rings, plane_map)
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
-        parts.append(measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u))
+        part = measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u)
+        if part.label in cuts:
+            cut_u_px, cut_px = cuts[part.label]
+            part = _with_cut_term(
+                part, mapped, plane_map.to_mm(np.asarray(cut_px, float)), cut_u_px * plane_map.mm_per_px
+            )
+        parts.append(part)
         warnings += walls.warnings
     if shift_px is not None and parts:
         big = max(parts, key=lambda q: q.area_mm2)
@@ -325,7 +337,8 @@ def measure_image(
                 f"or raw output) its edges move by {abs(shift_px):.2f} px ({pct:.2g} % of part {big.label}'s area, "
                 "beyond the stated uncertainty): pass --encoding linear or --encoding srgb to decide",
             )
-    touching = _touching_warnings(seg.parts, plane_map.mm_per_px)
+    touching = _touching_warnings(seg.parts, splits, plane_map.mm_per_px)
+    touching += _split_warnings(split_notes, plane_map.mm_per_px)
     scale = ScaleInfo(
         method=plane_map.method,
         mm_per_px=plane_map.mm_per_px,
@@ -364,6 +377,16 @@ def measure_image(
         "specks_ignored": seg.specks,
         "specks_largest_mm2": seg.speck_max_area_px * px_area_mm2,
     }
+    if options.split_touching:
+        settings["split_touching"] = [
+            {
+                "parts": note["parts"],
+                "evidence": note["evidence"],
+                "cut_length_mm": note["cut_length_px"] * plane_map.mm_per_px,
+                "cut_displacement_mm": note["displacement_px"] * plane_map.mm_per_px,
+            }
+            for note in split_notes
+        ]
     filled = [p for p in parts if p.filled_holes]
     if filled:
         count = sum(p.filled_holes for p in filled)
@@ -379,18 +402,137 @@ def measure_image(
     )
 
 
-def _touching_warnings(parts: list[Any], mm_per_px: float) -> list[str]:
-    """A warning for each found part that looks like two parts touching (a narrow neck between two lobes)."""
+def _touching_warnings(parts: list[Any], splits: list[TouchSplit | None], mm_per_px: float) -> list[str]:
+    """A warning for each found part that looks like two parts touching (a neck, or a seam across it)."""
     out = []
-    for rings in parts:
+    for rings, split in zip(parts, splits):
         neck = touching_lobes(rings.outer_px, list(rings.holes_px))
         if neck is not None:
             wa, wb = (w * mm_per_px for w in neck.lobe_widths_px)
             out.append(
                 f"part {rings.label} looks like two parts touching (a neck {neck.neck_width_px * mm_per_px:.2g} mm "
                 f"wide between lobes {wa:.3g} and {wb:.3g} mm across); they are measured as one: lay them a few mm "
-                "apart"
+                "apart, or pass --split-touching to measure them separately"
             )
+        elif split is not None and split.evidence == "seam":
+            out.append(
+                f"part {rings.label} looks like two parts touching (a seam {split.cut_length_px * mm_per_px:.3g} mm "
+                f"long runs across it, {100 * split.seam_depth:.0f} % short of the part's level: a gap narrower "
+                "than the blur); they are measured as one: lay them a few mm apart, or pass --split-touching to "
+                "measure them separately"
+            )
+    return out
+
+
+#: Displacement (px, 1 sigma) of a cut along a seam: the gap (under ~1.2 px, else the parts are
+#: found apart) is shared between the two parts, and the cut's ends are placed to ~0.5 px.
+SEAM_CUT_U_PX = 1.0
+
+
+def _touch_splits(image: LoadedImage, parts: list[PartRings], polarity: str) -> list[TouchSplit | None]:
+    """For each found part, how it would split into two touching parts (None: it does not look like two)."""
+    out: list[TouchSplit | None] = []
+    h_px, w_px = image.grey.shape
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    for rings in parts:
+        x0, y0 = (np.floor(rings.outer_px.min(axis=0)).astype(int) - 8).clip(0)
+        x1, y1 = np.ceil(rings.outer_px.max(axis=0)).astype(int) + 9
+        crop = lut[image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]]
+        out.append(
+            split_touching(
+                crop,
+                (int(x0), int(y0)),
+                rings.outer_px,
+                list(rings.holes_px),
+                dark_part=polarity.startswith("dark"),
+                noise_rel=rings.noise_rel if math.isfinite(rings.noise_rel) else 0.0,
+            )
+        )
+    return out
+
+
+def _apply_splits(
+    parts: list[PartRings], splits: list[TouchSplit | None]
+) -> tuple[list[PartRings], list[dict[str, Any]], dict[int, tuple[float, Any]]]:
+    """The found parts with each split one replaced by its two lobes, labels renumbered in order.
+
+    Returns the parts, a note per split (the new labels, evidence, cut length and the
+    cut's plausible displacement in px) and, per new label, (displacement px, the cut's ends in px).
+    """
+    out: list[PartRings] = []
+    notes: list[dict[str, Any]] = []
+    cuts: dict[int, tuple[float, Any]] = {}
+    for rings, split in zip(parts, splits):
+        if split is None:
+            out.append(replace(rings, label=len(out) + 1))
+            continue
+        length = split.cut_length_px
+        shift = SEAM_CUT_U_PX if split.evidence == "seam" else max(SEAM_CUT_U_PX, 0.25 * length)
+        fallback = float(np.median(rings.gradient_px)) if len(rings.gradient_px) else 1.0
+        lobes = []
+        for (outer, holes), index, keep in zip(split.lobes, split.vertex_index, split.hole_index):
+            grad = np.where(index >= 0, np.asarray(rings.gradient_px)[np.maximum(index, 0)], fallback)
+            area = abs(float(cv2.contourArea(outer.astype(np.float32)))) - sum(
+                abs(float(cv2.contourArea(h.astype(np.float32)))) for h in holes
+            )
+            lobes.append(
+                replace(
+                    rings,
+                    outer_px=outer,
+                    holes_px=holes,
+                    gradient_px=grad,
+                    hole_gradients_px=[rings.hole_gradients_px[k] for k in keep if k < len(rings.hole_gradients_px)],
+                    area_px=area,
+                    bbox_px=(
+                        int(outer[:, 0].min()),
+                        int(outer[:, 1].min()),
+                        int(np.ceil(outer[:, 0].max())),
+                        int(np.ceil(outer[:, 1].max())),
+                    ),
+                )
+            )
+        lobes.sort(key=lambda r: (r.bbox_px[1], r.bbox_px[0]))
+        labels = []
+        for lobe in lobes:
+            out.append(replace(lobe, label=len(out) + 1))
+            labels.append(len(out))
+            cuts[len(out)] = (shift, split.cut_px)
+        notes.append({"parts": labels, "evidence": split.evidence, "cut_length_px": length, "displacement_px": shift})
+    return out, notes, cuts
+
+
+def _with_cut_term(part: Part, mapped: MappedPart, cut_mm: np.ndarray, shift_mm: float) -> Part:
+    """The part with the term ``split_cut``: every figure's change when the cut moves by ``shift_mm``.
+
+    The cut's two ends (``cut_mm``) are vertices of the mapped outer ring; both move by
+    ``shift_mm`` along the cut's normal (its sign does not matter: the change's size is kept).
+    """
+    outer = np.asarray(mapped.outer_mm, dtype=float)
+    holes = [np.asarray(h, dtype=float) for h in mapped.holes_mm]
+    ends = [int(np.argmin(np.hypot(*(outer - p).T))) for p in cut_mm]
+    seg = (cut_mm[1] - cut_mm[0]) / max(float(np.hypot(*(cut_mm[1] - cut_mm[0]))), 1e-12)
+    normal = np.array([seg[1], -seg[0]])
+    moved = outer.copy()
+    moved[ends] += shift_mm * normal
+    before = _figure_values(section_properties(outer, holes))
+    after = _figure_values(section_properties(moved, holes))
+    term = {name: abs(after[name] - before[name]) for name in before}
+    term["principal_angle_deg"] = abs(
+        (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
+    )
+    return _with_extra_term(part, "split_cut", term, [])
+
+
+def _split_warnings(notes: list[dict[str, Any]], mm_per_px: float) -> list[str]:
+    out = []
+    for note in notes:
+        a, b = note["parts"]
+        how = "a seam across the outline" if note["evidence"] == "seam" else "a narrow neck"
+        out.append(
+            f"parts {a} and {b} were found as one outline and split (two parts touching: {how}); the cut, "
+            f"{note['cut_length_px'] * mm_per_px:.3g} mm long, may lie {note['displacement_px'] * mm_per_px:.2g} mm "
+            "off (term 'split_cut'); lay parts a few mm apart for a clean measurement"
+        )
     return out
 
 
