@@ -25,6 +25,7 @@ from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
+from scanmass.segment.lidgap import LidGap, lid_gap
 from scanmass.segment.rings import PartRings, segment
 from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
 from scanmass.segment.symmetry import reading_shift
@@ -132,7 +133,7 @@ def measure_loaded(
     image = apply_encoding(image, opts.encoding)
     method = scale_method(image, opts)
     if method == "dpi":
-        result = measure_image(image, opts)
+        result = measure_scan(image, opts)
     else:
         # a resolution in the file that was refused as implausible is said, not dropped
         refused_dpi = image.dpi is None and "came from the file" in (image.dpi_note or "")
@@ -266,6 +267,49 @@ def photo_scale(image: LoadedImage, options: MeasureOptions, method: str) -> Pho
 # ---------------------------------------------------------------------------------
 # measuring
 # ---------------------------------------------------------------------------------
+
+
+def measure_scan(image: LoadedImage, options: MeasureOptions) -> Measurement:
+    """Measure a flatbed scan (scale from its DPI), with the checks a scan needs.
+
+    A lid left open on a thick part (:func:`~scanmass.segment.lidgap.lid_gap`) is named:
+    as the reason when no part can be measured (instead of the symptom, e.g. a part
+    touching the image edge), else as a warning.
+
+    Raises
+    ------
+    SegmentationError
+        No part can be measured; with a lid gap the message names it and the fix.
+    """
+    try:
+        result = measure_image(image, options)
+    except SegmentationError:
+        gap = lid_gap(image.grey, image.to_linear)
+        if gap is None:
+            raise
+        mm_per_px = 25.4 / math.sqrt(image.dpi[0] * image.dpi[1]) if image.dpi else None
+        raise SegmentationError(
+            f"{_lid_gap_text(gap, mm_per_px)}, and no part can be told from it; close the lid, or lay a "
+            "white sheet over the part(s), and scan again",
+            path=image.path,
+        ) from None
+    gap = lid_gap(image.grey, image.to_linear)
+    if gap is not None:
+        result.warnings.insert(
+            0,
+            f"{_lid_gap_text(gap, result.scale.mm_per_px)}: parts near that edge may be merged with it or left out; "
+            "close the lid, or lay a white sheet over the part(s)",
+        )
+        result.settings["lid_gap"] = {"side": gap.side, "border_ratio": gap.border_ratio, "sides": list(gap.sides)}
+    return result
+
+
+def _lid_gap_text(gap: LidGap, mm_per_px: float | None) -> str:
+    depth = f"{gap.band_px * mm_per_px:.2g} mm" if mm_per_px else f"{gap.band_px:.0f} px"
+    return (
+        f"lid not closed? the background falls to {100 * gap.border_ratio:.0f} % of the lid's white along the "
+        f"{gap.side} edge of the scan (a dark band {depth} deep)"
+    )
 
 
 def measure_image(
