@@ -27,6 +27,7 @@ from scanmass.scale.sheet import sheet_scale
 from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.segment.lidgap import LidGap, lid_gap
 from scanmass.segment.rings import PartRings, segment
+from scanmass.segment.scanface import FaceResult, scan_face
 from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
 from scanmass.segment.symmetry import reading_shift
 from scanmass.segment.thin import EdgeQuantisation, WallResult, edge_quantisation, resolve_walls
@@ -282,7 +283,7 @@ def measure_scan(image: LoadedImage, options: MeasureOptions) -> Measurement:
         No part can be measured; with a lid gap the message names it and the fix.
     """
     try:
-        result = measure_image(image, options)
+        result = measure_image(image, options, face_check=True)
     except SegmentationError:
         gap = lid_gap(image.grey, image.to_linear)
         if gap is None:
@@ -313,9 +314,19 @@ def _lid_gap_text(gap: LidGap, mm_per_px: float | None) -> str:
 
 
 def measure_image(
-    image: LoadedImage, options: MeasureOptions, *, plane_map: PlaneMap | None = None, roi_px: np.ndarray | None = None
+    image: LoadedImage,
+    options: MeasureOptions,
+    *,
+    plane_map: PlaneMap | None = None,
+    roi_px: np.ndarray | None = None,
+    face_check: bool = False,
 ) -> Measurement:
-    """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty."""
+    """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty.
+
+    ``face_check`` (flatbed scans): each part's outline is checked for the lamp's shadow
+    beside a thick part (:func:`~scanmass.segment.scanface.scan_face`) and replaced by the
+    face on the glass where the two can be told apart.
+    """
     if plane_map is None:
         plane_map = scan_plane_map(image, options)
     px_area_mm2 = plane_map.mm_per_px**2
@@ -343,6 +354,9 @@ def measure_image(
             ) from None
 
     seg = run_segment(image)
+    faces: dict[int, FaceResult] = {}
+    if face_check and seg.polarity.startswith("dark"):
+        seg.parts, faces = _scan_faces(image, seg.parts, options.min_hole_area_mm2 or options.min_area_mm2, px_area_mm2)
     splits = _touch_splits(image, seg.parts, seg.polarity)
     split_notes: list[dict[str, Any]] = []
     cuts: dict[int, tuple[float, Any]] = {}
@@ -359,6 +373,8 @@ def measure_image(
         mapped = map_part(walls.rings, plane_map)
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
         part = measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u)
+        if walls.rings.label in faces:
+            part = _with_face_term(part, faces[walls.rings.label], plane_map)
         if part.label in cuts:
             cut_u_px, cut_px = cuts[part.label]
             part = _with_cut_term(
@@ -381,7 +397,8 @@ def measure_image(
                 f"or raw output) its edges move by {abs(shift_px):.2f} px ({pct:.2g} % of part {big.label}'s area, "
                 "beyond the stated uncertainty): pass --encoding linear or --encoding srgb to decide",
             )
-    touching = _touching_warnings(seg.parts, splits, plane_map.mm_per_px)
+    touching = _face_warnings(faces, plane_map.mm_per_px)
+    touching += _touching_warnings(seg.parts, splits, plane_map.mm_per_px)
     touching += _split_warnings(split_notes, plane_map.mm_per_px)
     scale = ScaleInfo(
         method=plane_map.method,
@@ -421,6 +438,14 @@ def measure_image(
         "specks_ignored": seg.specks,
         "specks_largest_mm2": seg.speck_max_area_px * px_area_mm2,
     }
+    if face_check:
+        settings["scan_face"] = {
+            "measured": "the face on the glass (the sharp edges)",
+            "shadow_left_out": {str(k): f.shadow_px2 * px_area_mm2 for k, f in faces.items() if f.outer_px is not None},
+            "shadow_not_separated": {
+                str(k): f.shadow_px2 * px_area_mm2 for k, f in faces.items() if f.outer_px is None
+            },
+        }
     if options.split_touching:
         settings["split_touching"] = [
             {
@@ -444,6 +469,135 @@ def measure_image(
     return Measurement(
         source=source, scale=scale, parts=parts, warnings=warnings + touching, cut_parts=cut_parts, settings=settings
     )
+
+
+#: Displacement (px, 1 sigma) of a face's edge against its shadow: its level is read against a
+#: shadow that darkens towards the part (less light reaches the lid next to the wall).
+FACE_EDGE_U_PX = 1.0
+
+
+def _scan_faces(
+    image: LoadedImage, parts: list[PartRings], min_hole_mm2: float, px_area_mm2: float
+) -> tuple[list[PartRings], dict[int, FaceResult]]:
+    """Each part's face on the glass (a flatbed scan): outlines that took in the lamp's shadow are replaced.
+
+    Returns the parts and, per label, the :class:`~scanmass.segment.scanface.FaceResult`
+    of every part with a shadow (separated, or not: then the outline is kept).
+    """
+    out: list[PartRings] = []
+    faces: dict[int, FaceResult] = {}
+    h_px, w_px = image.grey.shape
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    for rings in parts:
+        x0, y0 = (np.floor(rings.outer_px.min(axis=0)).astype(int) - 16).clip(0)
+        x1, y1 = np.ceil(rings.outer_px.max(axis=0)).astype(int) + 17
+        crop = lut[image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]]
+        noise = abs(rings.noise_rel * rings.contrast) if math.isfinite(rings.noise_rel) else 0.0
+        face = scan_face(
+            crop,
+            (int(x0), int(y0)),
+            rings.outer_px,
+            list(rings.holes_px),
+            rings.gradient_px,
+            noise=noise,
+            min_hole_px=min_hole_mm2 / px_area_mm2,
+        )
+        if face is None:
+            out.append(rings)
+            continue
+        faces[rings.label] = face
+        if face.outer_px is None or face.gradient_px is None:
+            out.append(rings)
+            continue
+        area = abs(float(cv2.contourArea(face.outer_px.astype(np.float32)))) - sum(
+            abs(float(cv2.contourArea(h.astype(np.float32)))) for h in face.holes_px
+        )
+        out.append(
+            replace(
+                rings,
+                outer_px=face.outer_px,
+                holes_px=list(face.holes_px),
+                gradient_px=face.gradient_px,
+                hole_gradients_px=list(face.hole_gradients_px),
+                area_px=area,
+                contrast=face.levels[2] - face.levels[0],
+            )
+        )
+    return out, faces
+
+
+def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
+    """The part with the term ``scan_shadow``.
+
+    Separated: every figure's change when the face's edge against its shadow moves out by
+    :data:`FACE_EDGE_U_PX`. Not separated: the shadow the outline may hold (its estimated
+    area; the centroid by that share of half the part's extent, the moments by twice it).
+    """
+    if face.outer_px is not None and face.shadow_edge is not None:
+        outer = np.asarray(face.outer_px, float)
+        holes = [plane_map.to_mm(np.asarray(h, float)) for h in face.holes_px]
+        tangent = np.roll(outer, -1, axis=0) - np.roll(outer, 1, axis=0)
+        tn = np.maximum(np.hypot(tangent[:, 0], tangent[:, 1]), 1e-12)
+        normal = np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
+        if cv2.contourArea(outer.astype(np.float32), oriented=True) < 0:
+            normal = -normal  # outward in the image frame
+        moved = outer.copy()
+        moved[face.shadow_edge] += FACE_EDGE_U_PX * normal[face.shadow_edge]
+        before = _figure_values(section_properties(plane_map.to_mm(outer), holes))
+        after = _figure_values(section_properties(plane_map.to_mm(moved), holes))
+        term = {name: abs(after[name] - before[name]) for name in before}
+        term["principal_angle_deg"] = abs(
+            (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
+        )
+        return _with_extra_term(part, "scan_shadow", term, [])
+    shadow_mm2 = face.shadow_px2 * plane_map.mm_per_px**2
+    share = min(1.0, shadow_mm2 / max(part.area_mm2, 1e-9))
+    arm_mm = 0.5 * part.caliper_max_mm
+    term = {
+        "area_mm2": shadow_mm2,
+        "centroid_x_mm": share * arm_mm,
+        "centroid_y_mm": share * arm_mm,
+        "perimeter_mm": share * part.perimeter_mm,
+        "principal_angle_deg": 0.0,
+    }
+    for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+        term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+    return _with_shadow_term(part, term, 0.0, name="scan_shadow")
+
+
+def _side(direction: tuple[float, float]) -> str:
+    """The image side a direction (image pixels, rows down) points to."""
+    dx, dy = direction
+    if abs(dy) >= abs(dx):
+        return "top" if dy < 0 else "bottom"
+    return "left" if dx < 0 else "right"
+
+
+def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
+    """What the scan-face check found: shadows left out, or shadows that could not be told from the part."""
+    out = []
+    left_out = {k: f for k, f in faces.items() if f.outer_px is not None}
+    kept = {k: f for k, f in faces.items() if f.outer_px is None}
+    if left_out:
+        listed = ", ".join(
+            f"{k} ({f.shadow_px2 * mm_per_px**2:.3g} mm² on its {_side(f.direction)} side)" for k, f in left_out.items()
+        )
+        # the shadow's length: its area over the face's edge against it; about the lid's height or more
+        deep_mm = max(f.shadow_px2 / max(f.shadow_edge_px, 1.0) for f in left_out.values()) * mm_per_px
+        out.append(
+            f"scan of thick parts: the lamp's shadow beside part(s) {listed} was left out; the outline is the face "
+            "on the glass (its sharp edge), and the edge against the shadow adds the term 'scan_shadow'; a hole "
+            f"narrower than about {deep_mm:.2g} mm in such a part can look as dark as the part (no light reaches "
+            "the lid above it) and be missed: check the holes"
+        )
+    for k, f in kept.items():
+        out.append(
+            f"scan of a thick part: part {k} is as dark as the lamp's shadow on its {_side(f.direction)} side, so the "
+            f"face on the glass cannot be told from it; the outline may hold up to {f.shadow_px2 * mm_per_px**2:.3g} mm² "
+            "of shadow (term 'scan_shadow'); lay white paper on the glass around the part, or photograph it on the "
+            "marker mat in diffuse light"
+        )
+    return out
 
 
 def _touching_warnings(parts: list[Any], splits: list[TouchSplit | None], mm_per_px: float) -> list[str]:
