@@ -206,8 +206,8 @@ def scan_face(
     # towards inner corners); its edges are then placed by the local levels either side
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.2)
     seed = max(FACE_SEED * gap, 5.0 * _mad(smooth[inside & (smooth < part + 0.5 * gap)]))
-    face0 = (found.astype(bool) & (smooth < part + seed)).astype(np.uint8)
-    face0 = cv2.morphologyEx(face0, cv2.MORPH_OPEN, kernel)
+    seed_mask = np.asarray(found.astype(bool) & (smooth < part + seed), dtype=np.uint8)
+    face0: np.ndarray = cv2.morphologyEx(seed_mask, cv2.MORPH_OPEN, kernel)
     count, comp, stats, _ = cv2.connectedComponentsWithStats(face0, connectivity=8)
     if count < 2:
         return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
