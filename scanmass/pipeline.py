@@ -31,7 +31,7 @@ from scanmass.segment.scanface import FaceResult, scan_face
 from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
 from scanmass.segment.symmetry import reading_shift
 from scanmass.segment.thin import EdgeQuantisation, WallResult, edge_quantisation, resolve_walls
-from scanmass.segment.touching import TouchSplit, split_touching, touching_lobes
+from scanmass.segment.touching import NeckReport, TouchSplit, split_touching, touching_lobes
 from scanmass.uncertainty import (
     THRESHOLD_FLOOR_PX,
     build_edge_model,
@@ -357,12 +357,14 @@ def measure_image(
     faces: dict[int, FaceResult] = {}
     if face_check and seg.polarity.startswith("dark"):
         seg.parts, faces = _scan_faces(image, seg.parts, options.min_hole_area_mm2 or options.min_area_mm2, px_area_mm2)
-    splits = _touch_splits(image, seg.parts, seg.polarity)
+    necks = [touching_lobes(r.outer_px, list(r.holes_px)) for r in seg.parts]
+    splits = _touch_splits(image, seg.parts, seg.polarity, necks)
     split_notes: list[dict[str, Any]] = []
     cuts: dict[int, tuple[float, Any]] = {}
     if options.split_touching:
         seg.parts, split_notes, cuts = _apply_splits(seg.parts, splits)
         splits = [None] * len(seg.parts)
+        necks = [None] * len(seg.parts)
     encoding_note = None
     extra_warnings: list[str] = []
     shift_px = untagged_reading_shift(image, seg.parts) if options.encoding == "auto" else None
@@ -398,7 +400,7 @@ def measure_image(
                 "beyond the stated uncertainty): pass --encoding linear or --encoding srgb to decide",
             )
     touching = _face_warnings(faces, plane_map.mm_per_px)
-    touching += _touching_warnings(seg.parts, splits, plane_map.mm_per_px)
+    touching += _touching_warnings(seg.parts, splits, necks, plane_map.mm_per_px)
     touching += _split_warnings(split_notes, plane_map.mm_per_px)
     scale = ScaleInfo(
         method=plane_map.method,
@@ -600,11 +602,12 @@ def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
     return out
 
 
-def _touching_warnings(parts: list[Any], splits: list[TouchSplit | None], mm_per_px: float) -> list[str]:
+def _touching_warnings(
+    parts: list[Any], splits: list[TouchSplit | None], necks: list[NeckReport | None], mm_per_px: float
+) -> list[str]:
     """A warning for each found part that looks like two parts touching (a neck, or a seam across it)."""
     out = []
-    for rings, split in zip(parts, splits):
-        neck = touching_lobes(rings.outer_px, list(rings.holes_px))
+    for rings, split, neck in zip(parts, splits, necks):
         if neck is not None:
             wa, wb = (w * mm_per_px for w in neck.lobe_widths_px)
             out.append(
@@ -627,12 +630,14 @@ def _touching_warnings(parts: list[Any], splits: list[TouchSplit | None], mm_per
 SEAM_CUT_U_PX = 1.0
 
 
-def _touch_splits(image: LoadedImage, parts: list[PartRings], polarity: str) -> list[TouchSplit | None]:
+def _touch_splits(
+    image: LoadedImage, parts: list[PartRings], polarity: str, necks: list[NeckReport | None]
+) -> list[TouchSplit | None]:
     """For each found part, how it would split into two touching parts (None: it does not look like two)."""
     out: list[TouchSplit | None] = []
     h_px, w_px = image.grey.shape
     lut = np.asarray(image.to_linear, dtype=np.float32)
-    for rings in parts:
+    for rings, neck in zip(parts, necks):
         x0, y0 = (np.floor(rings.outer_px.min(axis=0)).astype(int) - 8).clip(0)
         x1, y1 = np.ceil(rings.outer_px.max(axis=0)).astype(int) + 9
         crop = lut[image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]]
@@ -644,6 +649,7 @@ def _touch_splits(image: LoadedImage, parts: list[PartRings], polarity: str) -> 
                 list(rings.holes_px),
                 dark_part=polarity.startswith("dark"),
                 noise_rel=rings.noise_rel if math.isfinite(rings.noise_rel) else 0.0,
+                neck=neck,
             )
         )
     return out

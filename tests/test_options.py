@@ -180,8 +180,8 @@ def test_cli_defaults_and_help_are_the_options(command):
         param = by_flag[f.metadata["flag"]]
         assert param.default == f.default, f.name
         assert param.help == f.metadata["help"], f.name
-    # the 18 options of measure() before they became one object, + encoding and dpi_override
-    assert len(OPTION_NAMES) == 20
+    # the 18 options of measure() before they became one object, + encoding, dpi_override, split_touching
+    assert len(OPTION_NAMES) == 21
 
 
 def test_cli_passes_every_option_through(monkeypatch, tmp_path):

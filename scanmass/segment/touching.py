@@ -167,6 +167,7 @@ def split_touching(
     *,
     dark_part: bool,
     noise_rel: float = 0.0,
+    neck: NeckReport | None | bool = True,
 ) -> TouchSplit | None:
     """Cut one found part into two touching parts, if it looks like two.
 
@@ -193,6 +194,9 @@ def split_touching(
         The part is darker than the background (a bright lid).
     noise_rel : float
         Pixel noise relative to the contrast; the seam level is lowered below 5 sigma of it.
+    neck : NeckReport or None, optional
+        The part's :func:`touching_lobes` result when the caller has it (None: no neck);
+        by default it is computed here.
 
     Returns
     -------
@@ -239,7 +243,9 @@ def split_touching(
         relief: np.ndarray = -np.asarray(norm, dtype=np.float64)
         evidence = "seam"
     else:
-        if touching_lobes(outer, holes_px) is None:
+        if neck is True:
+            neck = touching_lobes(outer, holes_px)
+        if not isinstance(neck, NeckReport):
             return None
         dist = cv2.distanceTransform(mask, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
         peaks = peak_local_max(
