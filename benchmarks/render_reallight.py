@@ -4,14 +4,17 @@ Thick parts of metal, plastic and nylon with known outlines lie on the printed A
 mat (its PNG as a matte paper texture at true printed size) and are photographed by a
 phone-like camera (26 mm equivalent, 30-45 cm above the mat, 0-30 degrees of tilt) under
 soft overhead light, a hard spotlight from about 40 degrees or window light from one
-side; a scanner group images parts on a white lid orthographically at 300 dpi with one
-lamp from the side. Each image gets a truth JSON (outlines in mat mm, thickness,
-material, light, camera).
+side. A scanner group (``--scanner``) images parts 3-8 mm thick as a flatbed does:
+orthographically at 300 dpi from below the glass, the white lid resting on the thickest
+part, one lamp (parallel light, as a lamp travelling with the carriage gives) at 35-45
+degrees along the carriage axis. Each image gets a truth JSON (outlines in mat mm for a
+photo, in the scan frame for a scan; thickness, material, light, camera).
 
 Usage::
 
     python benchmarks/render_reallight.py --out tests/data/reallight            # every scene
     python benchmarks/render_reallight.py --out /tmp/rl --only soft-steel-t0 --samples 16
+    python benchmarks/render_reallight.py --out tests/data/reallight --scanner --only scan-steel-lamp35 --samples 64
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
