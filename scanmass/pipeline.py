@@ -375,7 +375,7 @@ def measure_image(
         mapped = map_part(walls.rings, plane_map)
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
         part = measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u)
-        if walls.rings.label in faces:
+        if walls.rings.label in faces and faces[walls.rings.label].note != "soft edges":
             part = _with_face_term(part, faces[walls.rings.label], plane_map)
         if part.label in cuts:
             cut_u_px, cut_px = cuts[part.label]
@@ -579,7 +579,14 @@ def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
     """What the scan-face check found: shadows left out, or shadows that could not be told from the part."""
     out = []
     left_out = {k: f for k, f in faces.items() if f.outer_px is not None}
-    kept = {k: f for k, f in faces.items() if f.outer_px is None}
+    kept = {k: f for k, f in faces.items() if f.outer_px is None and f.note != "soft edges"}
+    soft = {k: f for k, f in faces.items() if f.note == "soft edges"}
+    if soft:
+        listed = ", ".join(f"{k} ({f.soft_length_px * mm_per_px:.3g} mm)" for k, f in soft.items())
+        out.append(
+            f"scan: the edges of part(s) {listed} are soft over that length, with no shadow beside them: a part not "
+            "lying flat on the glass (its face out of focus there)? press it flat, or check the figures"
+        )
     if left_out:
         listed = ", ".join(
             f"{k} ({f.shadow_px2 * mm_per_px**2:.3g} mm² on its {_side(f.direction)} side)" for k, f in left_out.items()

@@ -172,3 +172,62 @@ def test_clean_scans_have_no_shadow():
         face = m.settings["scan_face"]
         assert face["shadow_left_out"] == {} and face["shadow_not_separated"] == {}
         assert not any("scan of" in w for w in m.warnings)
+
+
+# ---------------------------------------------------------------------------------
+# thick parts, exact coverage: a dark part and the lamp's shadow on the lid beside it
+# ---------------------------------------------------------------------------------
+
+
+def _shadow_scan(part: SynthPart, shadow_mm: float, *, shadow: float, dpi: float = 300.0, seed: int = 1):
+    """A dark part (0.04) on the lid (0.85) with its shadow (level ``shadow``) cast along +y.
+
+    The shadow is the part's outline swept ``shadow_mm`` along +y (parallel light from a lamp
+    travelling with the carriage, the lid resting on the part), its outer end blurred by
+    5 px (the lamp's size, the lid out of focus); then the optics' 0.8 px blur, noise and
+    sRGB encoding. Coverage of each pixel is exact (scanmass.testing.scans.part_coverage).
+    """
+    import cv2
+
+    from scanmass.testing.scans import part_coverage, srgb_encode
+
+    s = 25.4 / dpi
+    shape = (int(round(80.0 / s)), int(round(90.0 / s)))
+    cov = part_coverage([part], shape=shape, mm_per_px=s)
+    swept = [SynthPart(part.outer_mm + [0.0, t]) for t in np.linspace(0.0, shadow_mm, 41)]
+    shade = np.max([part_coverage([p], shape=shape, mm_per_px=s) for p in swept], axis=0)
+    shade = cv2.GaussianBlur(shade, (0, 0), 5.0)
+    lid = 0.85 - (0.85 - shadow) * shade
+    lin = cv2.GaussianBlur(0.04 * cov + lid * (1.0 - cov), (0, 0), 0.8)
+    lin = np.clip(lin + np.random.default_rng(seed).normal(0.0, 0.004, lin.shape), 0.0, 1.0)
+    return np.round(srgb_encode(lin) * 255).astype(np.uint8)
+
+
+PLATE = SynthPart(rectangle(20.0, 15.0, 50.0, 30.0))  # 1500 mm2, centroid (45, 30): closed form
+DISC = SynthPart(circle(45.0, 30.0, 15.0))
+
+
+@pytest.mark.parametrize(("part", "shadow_mm"), [(PLATE, 3.0), (PLATE, 6.0), (DISC, 6.0)])
+def test_shadow_lighter_than_the_part_is_left_out(part, shadow_mm):
+    m = scanmass.measure(_shadow_scan(part, shadow_mm, shadow=0.22), dpi=300)
+    (found,) = m.parts
+    poly = Polygon(part.outer_mm)  # shapely: the truth
+    assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2
+    for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
+        assert abs(c - t) <= 3 * u
+    # the shadow swept along y: its width times its length was inside the first outline
+    sweep = poly.bounds[2] - poly.bounds[0]
+    assert m.settings["scan_face"]["shadow_left_out"]["1"] == pytest.approx(sweep * shadow_mm, rel=0.15)
+    assert "top side" in m.warnings[-1]
+
+
+@pytest.mark.parametrize("part", [PLATE, DISC])
+def test_shadow_as_dark_as_the_part_is_flagged_and_covered(part):
+    m = scanmass.measure(_shadow_scan(part, 6.0, shadow=0.05), dpi=300)
+    (found,) = m.parts
+    poly = Polygon(part.outer_mm)
+    assert found.area_mm2 > poly.area + 0.8 * 6.0 * 30.0  # the shadow is in the outline ...
+    assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2  # ... and in the uncertainty
+    for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
+        assert abs(c - t) <= 3 * u
+    assert any("face on the glass cannot be told from it" in w for w in m.warnings)

@@ -31,10 +31,14 @@ __all__ = ["FaceResult", "scan_face", "SOFT_RATIO"]
 
 #: An outline vertex whose edge gradient is below this share of the outline's sharp edges
 #: (its 80th percentile) lies on a soft edge (a shadow's outer end, or a part out of focus).
-SOFT_RATIO = 0.3
+SOFT_RATIO = 0.5
 
 #: Least share of the outline on soft edges for a shadow to be looked for.
 MIN_SOFT_SHARE = 0.03
+
+#: Soft edges along this share of the outline without a shadow are noted (a part not flat on
+#: the glass, or a scan out of focus there).
+MIN_SOFT_NOTE = 0.1
 
 #: The face is told from the shadow only if their levels differ by this share of the
 #: lid-to-part contrast (and by 6 sigma of the noise).
@@ -54,9 +58,10 @@ FACE_SEED = 0.1
 class FaceResult:
     """The face on the glass of one part, or why it could not be separated (pixels, image frame).
 
-    ``outer_px``/``holes_px`` are None when the face could not be told from the shadow;
-    then ``shadow_px2`` is an estimate of the shadow inside the found outline (its soft
-    front's width times its length along the lamp's direction).
+    ``outer_px`` is None when the face could not be told from the shadow; then
+    ``shadow_px2`` is an estimate of the shadow inside the found outline (its soft front's
+    width times its length along the lamp's direction). With ``note == "soft edges"``
+    the outline is soft along a good share of its length but no shadow lies inside it.
     """
 
     outer_px: np.ndarray | None
@@ -197,11 +202,25 @@ def scan_face(
     if dark.size > 20:  # the part's own noise (texture, grain) rather than the outline fit's residual
         noise = min(noise, 1.4826 * float(np.median(np.abs(dark - np.median(dark)))))
     # a shadow: the soft stretch faces one way, and inside it lies a level between the part and the lid
+    # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
     facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)
-    if facing < 0.5 or gap < max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise):
-        return None
+    if facing < 0.3 or gap < max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise):
+        if soft_len < MIN_SOFT_NOTE * float(lengths.sum()):
+            return None
+        return FaceResult(  # soft edges and no shadow: the part may not lie flat on the glass
+            outer_px=None,
+            holes_px=[],
+            gradient_px=None,
+            hole_gradients_px=[],
+            shadow_px2=0.0,
+            direction=(float(direction[0]), float(direction[1])),
+            soft_length_px=soft_len,
+            shadow_edge_px=0.0,
+            levels=levels,
+            note="soft edges",
+        )
     if gap < max(MIN_FACE_SHADOW_CONTRAST * (lid - part), 6.0 * noise):
-        return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     # the face: the region at the part's own level (nearer it than the shadow's, which darkens
     # towards inner corners); its edges are then placed by the local levels either side
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.2)
@@ -210,11 +229,11 @@ def scan_face(
     face0: np.ndarray = cv2.morphologyEx(seed_mask, cv2.MORPH_OPEN, kernel)
     count, comp, stats, _ = cv2.connectedComponentsWithStats(face0, connectivity=8)
     if count < 2:
-        return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     biggest = 1 + int(np.argmax(stats[1:, cv2.CC_STAT_AREA]))
     face0 = np.asarray(comp == biggest, dtype=np.uint8)
     if face0.sum() < 0.3 * total:
-        return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     # local background next to each face edge: the lid, the shadow, or a hole's floor
     grown = cv2.dilate(face0, kernel, iterations=3).astype(bool)
     background = _normalised_blur(linear, ~grown, 4.0, lid)
@@ -233,7 +252,7 @@ def scan_face(
         xy = np.column_stack([ring_rc[:, 1] - 1 + origin[0], ring_rc[:, 0] - 1 + origin[1]])
         rings.append((xy, signed_area(xy), g, slope))
     if not rings:
-        return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     rings.sort(key=lambda r: -abs(r[1]))
     face_outer, face_area, face_grad, face_slope = rings[0]
     holes, hole_grads, slopes = [], [], [face_slope]
@@ -247,25 +266,25 @@ def scan_face(
     back = ~soft & ((normals @ direction) < -0.3)
     kept = _distance_to_ring(outer[back], face_outer) <= 2.0
     if back.sum() < 8 or float((lengths[back] * kept).sum()) < 0.8 * float(lengths[back].sum()):
-        return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     # ... and its edge against the shadow is a sharp step from the part's level to the shadow's:
     # its gradient (linear light per px) at least 0.25 of a step of that height blurred as its other edges
     moved = _distance_to_ring(face_outer, outer) > 2.0
     if moved.sum() < 4 or (~moved).sum() < 8:
-        return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     blur_kept = _blur_from_gradient(float(np.median(np.abs(face_slope[~moved]))))
     cols = np.clip(np.round(face_outer[moved, 0] - origin[0]).astype(int), 0, shape[1] - 1)
     rows = np.clip(np.round(face_outer[moved, 1] - origin[1]).astype(int), 0, shape[0] - 1)
     step_grad = float(np.median(face_grad[moved] * np.abs(contrast[rows, cols])))
     if step_grad < 0.25 * gap / (math.sqrt(2.0 * math.pi) * max(blur_kept, 0.5)):
-        return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     # ... and what it leaves out lies beyond the face along the lamp's direction (a cast shadow),
     # not beside it (as a part's own brighter patches would)
     contours, _ = cv2.findContours(face0, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
     face_filled = np.zeros(shape, np.uint8)
     cv2.drawContours(face_filled, contours, -1, 1, thickness=cv2.FILLED)
     if _upstream_share(found.astype(bool) & ~face_filled.astype(bool), face0.astype(bool), direction) > 0.1:
-        return _unseparated(outer, soft, grad < 0.5 * sharp_ref, lengths, normals, direction, soft_len, levels, total)
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
     face_outer = correct_curvature(face_outer, blur)
     holes = [correct_curvature(h, blur) for h in holes]
