@@ -264,12 +264,12 @@ def scan_face(
         slopes.append(slope)
     # the face keeps the found outline's sharp edges facing away from the shadow ...
     back = ~soft & ((normals @ direction) < -0.3)
-    kept = _distance_to_ring(outer[back], face_outer) <= 2.0
+    kept = _distance_to_ring(outer[back], face_outer, origin, shape) <= 2.0
     if back.sum() < 8 or float((lengths[back] * kept).sum()) < 0.8 * float(lengths[back].sum()):
         return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     # ... and its edge against the shadow is a sharp step from the part's level to the shadow's:
     # its gradient (linear light per px) at least 0.25 of a step of that height blurred as its other edges
-    moved = _distance_to_ring(face_outer, outer) > 2.0
+    moved = _distance_to_ring(face_outer, outer, origin, shape) > 2.0
     if moved.sum() < 4 or (~moved).sum() < 8:
         return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
     blur_kept = _blur_from_gradient(float(np.median(np.abs(face_slope[~moved]))))
@@ -336,10 +336,19 @@ def _mad(values: np.ndarray) -> float:
     return 1.4826 * float(np.median(np.abs(values - np.median(values))))
 
 
-def _distance_to_ring(points: np.ndarray, ring: np.ndarray) -> np.ndarray:
-    """Distance (px) of each point to the nearest vertex of a densely sampled ring."""
-    ring32 = ring.astype(np.float32).reshape(-1, 1, 2)
-    return np.array([abs(cv2.pointPolygonTest(ring32, (float(x), float(y)), True)) for x, y in points])
+def _distance_to_ring(points: np.ndarray, ring: np.ndarray, origin: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+    """Distance (px, to within a pixel) of each point to a ring, both in image pixels, on the crop's grid.
+
+    The ring is drawn as a closed polyline (1/16 px precision) and the distance transform of
+    the rest of the crop is read at the points (nearest pixel; points off the crop get the
+    distance at the crop's edge).
+    """
+    canvas = np.ones((shape[0], shape[1]), np.uint8)
+    cv2.polylines(canvas, [np.round((ring - origin) * 16).astype(np.int32)], True, 0, 1, shift=4)
+    dist = cv2.distanceTransform(canvas, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+    cols = np.clip(np.round(points[:, 0] - origin[0]).astype(int), 0, shape[1] - 1)
+    rows = np.clip(np.round(points[:, 1] - origin[1]).astype(int), 0, shape[0] - 1)
+    return np.asarray(dist[rows, cols], dtype=float)
 
 
 def _unseparated(
