@@ -4,14 +4,17 @@ Thick parts of metal, plastic and nylon with known outlines lie on the printed A
 mat (its PNG as a matte paper texture at true printed size) and are photographed by a
 phone-like camera (26 mm equivalent, 30-45 cm above the mat, 0-30 degrees of tilt) under
 soft overhead light, a hard spotlight from about 40 degrees or window light from one
-side; a scanner group images parts on a white lid orthographically at 300 dpi with one
-lamp from the side. Each image gets a truth JSON (outlines in mat mm, thickness,
-material, light, camera).
+side. A scanner group (``--scanner``) images parts 3-8 mm thick as a flatbed does:
+orthographically at 300 dpi from below the glass, the white lid resting on the thickest
+part, one lamp (parallel light, as a lamp travelling with the carriage gives) at 35-45
+degrees along the carriage axis. Each image gets a truth JSON (outlines in mat mm for a
+photo, in the scan frame for a scan; thickness, material, light, camera).
 
 Usage::
 
     python benchmarks/render_reallight.py --out tests/data/reallight            # every scene
     python benchmarks/render_reallight.py --out /tmp/rl --only soft-steel-t0 --samples 16
+    python benchmarks/render_reallight.py --out tests/data/reallight --scanner --only scan-steel-lamp35 --samples 64
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -75,10 +78,13 @@ def _blender_main(spec_path: str) -> None:  # pragma: no cover - runs inside Ble
 
     # -- paper: the mat (or a white lid) as a matte texture at its true size ------------------
     w_mm, h_mm = spec["paper_mm"]
+    scanner = bool(spec.get("scanner"))
+    lid_z_mm = float(spec.get("lid_z_mm", 0.0))
     bpy.ops.mesh.primitive_plane_add(size=1.0)
     paper = bpy.context.object
     paper.scale = (w_mm * MM, h_mm * MM, 1.0)
-    paper.location = (0.5 * w_mm * MM, 0.5 * h_mm * MM, 0.0)
+    ox_mm, oy_mm = spec.get("paper_origin_mm", (0.0, 0.0))
+    paper.location = ((ox_mm + 0.5 * w_mm) * MM, (oy_mm + 0.5 * h_mm) * MM, lid_z_mm * MM)
     mat = bpy.data.materials.new("paper")
     mat.use_nodes = True
     nt = mat.node_tree
@@ -107,15 +113,16 @@ def _blender_main(spec_path: str) -> None:  # pragma: no cover - runs inside Ble
     nt.links.new(bump.outputs["Normal"], bsdf.inputs["Normal"])
     paper.data.materials.append(mat)
 
-    # -- table under the paper ------------------------------------------------------------------
-    bpy.ops.mesh.primitive_plane_add(size=3.0, location=(0.1, 0.15, -0.0002))
-    table = bpy.context.object
-    tmat = bpy.data.materials.new("table")
-    tmat.use_nodes = True
-    tb = tmat.node_tree.nodes["Principled BSDF"]
-    tb.inputs["Base Color"].default_value = (*spec["table_rgb"], 1.0)
-    tb.inputs["Roughness"].default_value = 0.6
-    table.data.materials.append(tmat)
+    # -- table under the paper (a photo; a scanner's camera looks up from below the glass) ------
+    if not scanner:
+        bpy.ops.mesh.primitive_plane_add(size=3.0, location=(0.1, 0.15, -0.0002))
+        table = bpy.context.object
+        tmat = bpy.data.materials.new("table")
+        tmat.use_nodes = True
+        tb = tmat.node_tree.nodes["Principled BSDF"]
+        tb.inputs["Base Color"].default_value = (*spec["table_rgb"], 1.0)
+        tb.inputs["Roughness"].default_value = 0.6
+        table.data.materials.append(tmat)
 
     # -- parts: 2D curves with holes, extruded to their thickness --------------------------------
     for k, part in enumerate(spec["parts"]):
@@ -156,6 +163,8 @@ def _blender_main(spec_path: str) -> None:  # pragma: no cover - runs inside Ble
             data.shadow_soft_size = li.get("radius_m", 0.003)
             data.spot_size = math.radians(li.get("cone_deg", 60.0))
             data.spot_blend = 0.4
+        elif li["type"] == "SUN":
+            data.angle = math.radians(li.get("angle_deg", 5.0))
         else:
             data.shadow_soft_size = li.get("radius_m", 0.003)
         ob = bpy.data.objects.new(li["name"], data)
@@ -449,17 +458,20 @@ RENDER_ORDER = [
 
 
 def scanner_scenes():
-    # name, lamp azimuth, [(shape, material, thickness, x, y, angle)]
+    """The scanner group: parts lying on the glass, the lid resting on the thickest one.
+
+    name, lamp elevation (degrees above the glass), [(shape, material, thickness, x, y, angle)]
+    """
     return [
         (
             "scan-steel-lamp35",
             35.0,
-            [("plate", "brushed-steel", 4.0, 36, 32, 0), ("disc", "brushed-steel", 6.0, 36, 88, 0)],
+            [("plate", "brushed-steel", 4.0, 45, 36, 0), ("disc", "brushed-steel", 6.0, 45, 96, 0)],
         ),
         (
             "scan-black-lamp40",
             40.0,
-            [("l-bracket", "black-plastic", 3.0, 36, 32, 10), ("cam", "black-plastic", 8.0, 36, 88, 0)],
+            [("l-bracket", "black-plastic", 3.0, 42, 36, 10), ("cam", "black-plastic", 8.0, 45, 96, 0)],
         ),
     ]
 
@@ -529,29 +541,54 @@ def _photo_spec(entry, mat_png, out_dir, samples, size_px):
 
 
 def _scan_spec(entry, out_dir, samples, dpi):
+    """A flatbed scan: the camera looks up through the glass (z = 0) at the parts' lower faces.
+
+    The scanner's lamp travels with the carriage, so every scan line sees it at the same
+    angle: a sun lamp (parallel light, 5 degrees across) from below the glass, elevation
+    ``lamp_deg`` above it, shining along +y. The white lid rests on the thickest part; the
+    far (+y) side of each part throws a shadow on the lid, t / tan(elevation) long, with a
+    soft outer end. Seen from below the image is mirrored in x: the truth outlines are
+    stored in the scan frame (mm, origin at the image's lower-left corner).
+    """
+    import numpy as np
 
     name, lamp_deg, parts = entry
     shapes = _shapes()
-    w_mm, h_mm = 72.0, 122.0
-    size_px = (int(round(w_mm / 25.4 * dpi)), int(round(h_mm / 25.4 * dpi)))
+    size_px = (1063, 1535)  # 90 x 130 mm at 300 dpi
+    s_mm = 25.4 / dpi
+    w_mm, h_mm = size_px[0] * s_mm, size_px[1] * s_mm
     cx, cy = 0.5 * w_mm, 0.5 * h_mm
     el = math.radians(lamp_deg)
+    ambient = 0.25  # the scanner's housing and the lid's own scattered light, as a dim white world
+    strength = 0.62 * math.pi / (0.9 * math.sin(el))  # lit lid about 0.56 + 0.22 linear
     lamp = {
         "name": "lamp",
-        "type": "AREA",
-        "power_w": 0.45,
-        "size_m": [0.004, 0.4],
-        "location_m": [(cx - 60 * math.cos(el)) * MM, cy * MM, 60 * math.sin(el) * MM],
+        "type": "SUN",
+        "power_w": strength,
+        "angle_deg": 5.0,
+        "location_m": [cx * MM, (cy - 100 * math.cos(el)) * MM, -100 * math.sin(el) * MM],
         "target_m": [cx * MM, cy * MM, 0.0],
     }
     spec_parts, truth_parts = _scene_parts(parts, shapes, photo=False)
+    lid_z = max(p[2] for p in parts) + 0.02
+
+    def to_scan(ring):  # world mm -> scan frame mm (camera below the glass: x mirrored)
+        pts = np.asarray(ring, dtype=float)
+        return np.round(np.c_[cx + 0.5 * w_mm - pts[:, 0], pts[:, 1] - cy + 0.5 * h_mm], 5).tolist()
+
+    for tp in truth_parts:
+        tp["outline_mm"] = to_scan(tp["outline_mm"])
+        tp["holes_mm"] = [to_scan(h) for h in tp["holes_mm"]]
+        tp["measured_face"] = "the lower face, on the glass (z = 0)"
     spec = {
         "samples": samples,
         "size_px": list(size_px),
         "view_transform": "Standard",
         "world_rgb": [1.0, 1.0, 1.0],
-        "world_strength": 0.15,
-        "paper_mm": [w_mm, h_mm],
+        "world_strength": ambient,
+        "scanner": True,
+        "lid_z_mm": lid_z,
+        "paper_mm": [w_mm + 60.0, h_mm + 60.0],
         "paper_png": None,
         "paper_rgb": [0.9, 0.9, 0.9],
         "table_rgb": [0.9, 0.9, 0.9],
@@ -560,25 +597,32 @@ def _scan_spec(entry, out_dir, samples, dpi):
         "camera": {
             "type": "ortho",
             "ortho_scale_m": max(w_mm, h_mm) * MM,
-            "location_m": [cx * MM, cy * MM, 0.3],
+            "location_m": [cx * MM, cy * MM, -0.2],
             "target_m": [cx * MM, cy * MM, 0.0],
         },
         "out_path": os.path.join(out_dir, name + ".jpg"),
     }
+    spec["paper_origin_mm"] = [-30.0, -30.0]
     truth = {
         "schema": "scanmass.reallight-truth/1",
         "kind": "scan",
         "image": name + ".jpg",
-        "frame": "scan frame mm: origin at the image's lower-left corner, x right, y up",
+        "frame": "scan frame mm: origin at the image's lower-left corner, x right, y up (seen from below the glass)",
         "dpi": dpi,
         "parts": truth_parts,
-        "light": {"style": "scanner lamp", "elevation_deg": lamp_deg, "from": "left (-x)"},
+        "light": {
+            "style": "scanner lamp",
+            "elevation_deg": lamp_deg,
+            "from": "below the glass, shining along +y (image up); parallel light 5 degrees across",
+            "ambient_world_strength": ambient,
+        },
+        "lid": f"white, resting on the thickest part: {lid_z:g} mm above the glass",
         "camera": {
-            "type": "orthographic, looking straight down on the white lid",
+            "type": "orthographic, looking up through the glass at the parts' lower faces",
             "size_px": list(size_px),
             "centre_mm": [cx, cy],
             "ortho_scale_mm": max(w_mm, h_mm),
-            "note": "the image spans ortho_scale_mm along its longer side, centred on centre_mm",
+            "note": "outlines are already in the scan frame: centre_mm is the image centre in that frame",
         },
         "samples": samples,
         "renderer": "Blender Cycles (CPU)",

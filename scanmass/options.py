@@ -262,6 +262,12 @@ class MeasureOptions:
         "edges; a photo's tone curve is held in doubt), srgb, linear or gamma:G (e.g. gamma:2.2).",
         "--encoding",
     )
+    split_touching: bool = _option(
+        False,
+        "Separate parts that touch (found as one outline with a narrow neck or a seam across it) and measure "
+        "each; the cut between them adds an uncertainty term and the result names the parts split.",
+        "--split-touching",
+    )
     dpi_override: bool = _option(
         False,
         "Use --dpi even where it differs by more than 1 % from a trustworthy resolution stored in the file.",

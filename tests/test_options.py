@@ -180,8 +180,8 @@ def test_cli_defaults_and_help_are_the_options(command):
         param = by_flag[f.metadata["flag"]]
         assert param.default == f.default, f.name
         assert param.help == f.metadata["help"], f.name
-    # the 18 options of measure() before they became one object, + encoding and dpi_override
-    assert len(OPTION_NAMES) == 20
+    # the 18 options of measure() before they became one object, + encoding, dpi_override, split_touching
+    assert len(OPTION_NAMES) == 21
 
 
 def test_cli_passes_every_option_through(monkeypatch, tmp_path):
@@ -219,7 +219,7 @@ def test_options_module_is_light():
 # the batch: settings hash unchanged by the options object (same database)
 # ------------------------------------------------------------------------------------
 def test_settings_hash_follows_the_documented_recipe():
-    # The defaults of the 20 options, written out here: a changed name or default would
+    # The defaults of the 21 options, written out here: a changed name or default would
     # re-measure every file of every existing batch database (encoding and dpi_override
     # were added with the thin-wall step and the model-error floor, which change results).
     defaults = {
@@ -242,6 +242,7 @@ def test_settings_hash_follows_the_documented_recipe():
         "printed_y_mm": None,
         "lens": None,
         "encoding": "auto",
+        "split_touching": False,  # added with the touching-part split (issue 11)
         "dpi_override": False,
     }
     doc = {"scanmass": __version__, "schema": SCHEMA, "options": defaults, "files_sha256": {}}

@@ -157,7 +157,6 @@ KNOWN_FAILING = {
     "parts (each flagged by the cast-shadow warning); a light part on light paper is not segmented yet",
     "soft-steel-t0.json": "brushed steel reflecting a large soft light looks like the paper: the outline loses "
     "1.6-1.9 % of the area, 12 sigma, with no warning (colour cannot tell; not solved)",
-    "scan-steel-lamp35.json": "the rendered scan's plate reaches the image edge (render set-up): refused as cut",
     "mixed-brass-t30.json": "brass under warm and cool light at 30 degrees of tilt: the cam's outline loses a "
     "bright reflection (area +2.5 %, its bore 0.9 mm small) and, measured with its own thickness, is not flagged",
 }

@@ -153,6 +153,7 @@ PrintedYOpt = Annotated[float | None, typer.Option(_flag("printed_y_mm"), help=_
 LensOpt = Annotated[Path | None, typer.Option(_flag("lens"), help=_help("lens"))]
 EncodingOpt = Annotated[str, typer.Option(_flag("encoding"), help=_help("encoding"))]
 DpiOverrideOpt = Annotated[bool, typer.Option(_flag("dpi_override"), help=_help("dpi_override"))]
+SplitTouchingOpt = Annotated[bool, typer.Option(_flag("split_touching"), help=_help("split_touching"))]
 
 UnitsOpt = Annotated[
     str,
@@ -193,6 +194,7 @@ MEASURE_OPTION_PARAMS: dict[str, Any] = {
     "printed_y_mm": PrintedYOpt,
     "lens": LensOpt,
     "encoding": EncodingOpt,
+    "split_touching": SplitTouchingOpt,
     "dpi_override": DpiOverrideOpt,
 }
 assert set(MEASURE_OPTION_PARAMS) == set(OPTION_NAMES), "every measuring option needs its command-line type"

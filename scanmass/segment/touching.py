@@ -14,7 +14,9 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-__all__ = ["NeckReport", "touching_lobes", "NECK_RATIO"]
+from scanmass.geometry import signed_area
+
+__all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "NECK_RATIO", "SEAM_LEVEL"]
 
 #: A neck narrower than this share of the smaller lobe's inscribed diameter means two parts.
 NECK_RATIO = 0.35
@@ -90,4 +92,218 @@ def touching_lobes(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = Non
         neck_width_px=neck * step,
         lobe_widths_px=(width_a * step, width_b * step),
         lobe_areas_px=(float(areas[a - 1]) * step * step, float(areas[b - 1]) * step * step),
+    )
+
+
+#: Inside a found part, pixels below this share of the part's own contrast are not solid part:
+#: a seam (a gap narrower than the blur between two parts laid edge to edge) dips below it.
+SEAM_LEVEL = 0.85
+
+#: Each lobe of a split holds at least this share of the found part's area.
+MIN_LOBE_SHARE = 0.15
+
+
+@dataclass(frozen=True)
+class TouchSplit:
+    """A found part cut into two parts that touch (pixels, the segmenter's frame).
+
+    ``lobes`` holds each part's outer ring and hole rings; the straight cut from
+    ``cut_px[0]`` to ``cut_px[1]`` is the last edge of each lobe's outer ring (its two
+    last vertices). ``evidence`` is ``"seam"`` (a line short of the part's level runs
+    across the part) or ``"neck"`` (a neck between two lobes, :func:`touching_lobes`).
+    """
+
+    lobes: tuple[tuple[np.ndarray, list[np.ndarray]], tuple[np.ndarray, list[np.ndarray]]]
+    cut_px: tuple[tuple[float, float], tuple[float, float]]
+    evidence: str
+    seam_depth: float
+    #: per lobe: the index into the found outer ring of each vertex (-1 for the two cut ends),
+    #: and the indices of the found holes it keeps
+    vertex_index: tuple[np.ndarray, np.ndarray]
+    hole_index: tuple[list[int], list[int]]
+
+    @property
+    def cut_length_px(self) -> float:
+        (x0, y0), (x1, y1) = self.cut_px
+        return float(np.hypot(x1 - x0, y1 - y0))
+
+
+def _ring_mask(shape: tuple[int, int], outer: np.ndarray, holes: list[np.ndarray], origin: np.ndarray) -> np.ndarray:
+    """The filled ring (holes cleared) on a grid, drawn at 1/16 px (pixel centres at integers)."""
+    mask = np.zeros(shape, np.uint8)
+    cv2.fillPoly(mask, [np.round((outer - origin) * 16).astype(np.int32)], 1, shift=4)
+    for h in holes:
+        cv2.fillPoly(mask, [np.round((np.asarray(h, float) - origin) * 16).astype(np.int32)], 0, shift=4)
+    return mask
+
+
+def _two_runs(labels: np.ndarray) -> tuple[int, int] | None:
+    """For a cyclic sequence of two labels: the two indices where it changes, or None if not two runs.
+
+    Runs shorter than 3 vertices are first given their neighbours' label.
+    """
+    lab = labels.copy()
+    for _ in range(2):
+        change = np.flatnonzero(lab != np.roll(lab, 1))
+        if len(change) <= 2:
+            break
+        run_len = np.diff(np.r_[change, change[0] + len(lab)])
+        for start, length in zip(change, run_len):
+            if length < 3:
+                idx = (start + np.arange(length)) % len(lab)
+                lab[idx] = lab[(start - 1) % len(lab)]
+    change = np.flatnonzero(lab != np.roll(lab, 1))
+    if len(change) != 2:
+        return None
+    labels[:] = lab
+    return int(change[0]), int(change[1])
+
+
+def split_touching(
+    linear: np.ndarray,
+    origin_px: tuple[int, int],
+    outer_px: np.ndarray,
+    holes_px: list[np.ndarray],
+    *,
+    dark_part: bool,
+    noise_rel: float = 0.0,
+    neck: NeckReport | None | bool = True,
+) -> TouchSplit | None:
+    """Cut one found part into two touching parts, if it looks like two.
+
+    Two kinds of evidence are used. A *seam*: parts laid edge to edge with a gap narrower
+    than the blur merge into one outline, but the gap still lifts the grey level along a
+    line across the part (a gap of 0.6 px under a blur of 0.8 px dips to about 70 % of
+    the part's contrast); the solid pixels (above :data:`SEAM_LEVEL` of the contrast, 2 px
+    or more inside the outline) then fall into two large pieces. A *neck*
+    (:func:`touching_lobes`): two lobes joined by a narrow waist. Either gives two
+    markers; the watershed [1]_ of the negated normalised level (seam) or of the negated
+    distance transform (neck) grows them over the part, each vertex of the outer ring
+    takes the label of the nearest pixel, and the two runs of labels are closed by the
+    straight cut between the points where the label changes.
+
+    Parameters
+    ----------
+    linear : (H, W) float ndarray
+        Linear-light values of a crop around the part.
+    origin_px : (int, int)
+        The crop's (x, y) offset in the image.
+    outer_px, holes_px
+        The part's rings in image pixels (x, y).
+    dark_part : bool
+        The part is darker than the background (a bright lid).
+    noise_rel : float
+        Pixel noise relative to the contrast; the seam level is lowered below 5 sigma of it.
+    neck : NeckReport or None, optional
+        The part's :func:`touching_lobes` result when the caller has it (None: no neck);
+        by default it is computed here.
+
+    Returns
+    -------
+    TouchSplit or None
+        None when the part does not look like two parts, or the cut is not clean (a hole
+        on the cut, a ring that changes label more than twice).
+
+    References
+    ----------
+    .. [1] S. Beucher and F. Meyer, "The morphological approach to segmentation: the
+       watershed transformation", in Mathematical Morphology in Image Processing, 1993.
+    """
+    from scipy import ndimage
+    from skimage.feature import peak_local_max
+    from skimage.segmentation import watershed
+
+    origin = np.asarray(origin_px, float)
+    outer = np.asarray(outer_px, float)
+    shape = linear.shape
+    mask = _ring_mask(shape, outer, holes_px, origin)
+    area = float(mask.sum())
+    if area < 50:
+        return None
+    kernel = np.ones((3, 3), np.uint8)
+    inner = cv2.erode(mask, kernel, iterations=3).astype(bool)
+    outside = ~cv2.dilate(_ring_mask(shape, outer, [], origin), kernel, iterations=3).astype(bool)
+    if inner.sum() < 20 or outside.sum() < 20:
+        return None
+    fg = float(np.median(linear[inner]))
+    bg = float(np.median(linear[outside]))
+    if abs(fg - bg) < 1e-4 or (fg < bg) != dark_part:
+        return None
+    norm = (linear - bg) / (fg - bg)
+    seam_level = min(SEAM_LEVEL, 1.0 - 5.0 * max(noise_rel, 0.0))
+    core = cv2.erode(mask, kernel, iterations=2)
+    solid = (core.astype(bool) & (cv2.GaussianBlur(norm.astype(np.float32), (0, 0), 0.7) > seam_level)).astype(np.uint8)
+    count, comp, stats, _ = cv2.connectedComponentsWithStats(solid, connectivity=4)
+    big = [k for k in range(1, count) if stats[k, cv2.CC_STAT_AREA] >= MIN_LOBE_SHARE * area]
+    markers = np.zeros(shape, np.int32)
+    if len(big) >= 2:
+        big.sort(key=lambda k: -stats[k, cv2.CC_STAT_AREA])
+        markers[comp == big[0]] = 1
+        markers[comp == big[1]] = 2
+        relief: np.ndarray = -np.asarray(norm, dtype=np.float64)
+        evidence = "seam"
+    else:
+        if neck is True:
+            neck = touching_lobes(outer, holes_px)
+        if not isinstance(neck, NeckReport):
+            return None
+        dist = cv2.distanceTransform(mask, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+        peaks = peak_local_max(
+            dist, min_distance=max(3, int(0.5 * dist.max())), threshold_abs=0.3 * dist.max(), labels=mask
+        )
+        if len(peaks) < 2:
+            return None
+        order = np.argsort(-dist[peaks[:, 0], peaks[:, 1]])
+        for k, (r, c) in enumerate(peaks[order[:2]], start=1):
+            markers[r, c] = k
+        relief = -np.asarray(dist, dtype=np.float64)
+        evidence = "neck"
+    basins = watershed(relief, markers, mask=mask.astype(bool))
+    _, (near_r, near_c) = ndimage.distance_transform_edt(basins == 0, return_indices=True)
+
+    def label_at(points: np.ndarray) -> np.ndarray:
+        cols = np.clip(np.round(points[:, 0] - origin[0]).astype(int), 0, shape[1] - 1)
+        rows = np.clip(np.round(points[:, 1] - origin[1]).astype(int), 0, shape[0] - 1)
+        return basins[near_r[rows, cols], near_c[rows, cols]]
+
+    labels = label_at(outer)
+    runs = _two_runs(labels)
+    if runs is None:
+        return None
+    i, j = runs
+    n = len(outer)
+    q1 = 0.5 * (outer[i - 1] + outer[i])
+    q2 = 0.5 * (outer[j - 1] + outer[j])
+    idx_i = np.arange(i, j) % n if j > i else np.arange(i, j + n) % n
+    idx_j = np.arange(j, i + n) % n if j > i else np.arange(j, i) % n
+    lobe_i = np.vstack([outer[idx_i], q2[None], q1[None]])  # q2 -> q1 closes it
+    lobe_j = np.vstack([outer[idx_j], q1[None], q2[None]])
+    # the seam's depth along the cut (its middle: the ends lie in the blurred outline)
+    t = np.linspace(0.15, 0.85, 41)
+    along = q1[None] + t[:, None] * (q2 - q1)[None]
+    cols = np.clip(np.round(along[:, 0] - origin[0]).astype(int), 0, shape[1] - 1)
+    rows = np.clip(np.round(along[:, 1] - origin[1]).astype(int), 0, shape[0] - 1)
+    depth = 1.0 - float(np.median(cv2.GaussianBlur(norm.astype(np.float32), (0, 0), 0.7)[rows, cols]))
+    if evidence == "seam" and depth < 1.0 - seam_level:
+        return None  # the pieces are not separated along the cut: a texture, not a seam
+    holes_i: list[np.ndarray] = []
+    holes_j: list[np.ndarray] = []
+    keep_i: list[int] = []
+    keep_j: list[int] = []
+    lab_i = labels[i % n]
+    for k, h in enumerate(holes_px):
+        hl = label_at(np.asarray(h, float))
+        if not np.all(hl == hl[0]):
+            return None  # a hole on the cut: no clean cut
+        (holes_i if hl[0] == lab_i else holes_j).append(np.asarray(h, float))
+        (keep_i if hl[0] == lab_i else keep_j).append(k)
+    if min(abs(signed_area(lobe_i)), abs(signed_area(lobe_j))) < MIN_LOBE_SHARE * area:
+        return None
+    return TouchSplit(
+        lobes=((lobe_i, holes_i), (lobe_j, holes_j)),
+        cut_px=((float(q1[0]), float(q1[1])), (float(q2[0]), float(q2[1]))),
+        evidence=evidence,
+        seam_depth=depth,
+        vertex_index=(np.r_[idx_i, -1, -1], np.r_[idx_j, -1, -1]),
+        hole_index=(keep_i, keep_j),
     )

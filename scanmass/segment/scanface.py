@@ -1,0 +1,396 @@
+"""Which face of a thick part a flatbed scan shows, and the lamp's shadow beside it.
+
+A scanner images the part's face on the glass, in focus: its edges are sharp. Its lamp
+travels with the carriage and lights every scan line from the same side at 30-45 degrees,
+so a part a few mm thick keeps the light off the lid beyond its far side: a shadow on the
+lid, as long as the lid's height times the cotangent of the lamp's elevation, darker than
+the lid but (lit by the housing's scattered light) lighter than a dark part, with a soft
+outer end (the lamp is not a point, and the lid is out of focus). Where the shadow is
+darker than the midpoint between the lid and the part, the part's outline takes it in.
+
+:func:`scan_face` tells the two apart by edge sharpness and level: the outline's soft
+stretch is the shadow's outer end; the face is the region at the part's own level, its
+edge on the shadow side taken halfway between the part's level and the shadow's level
+next to it (the local-midpoint rule of the segmenter with the shadow as the local
+background). When the shadow is as dark as the part, the face cannot be told from it
+and the caller is told how large the shadow may be.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+from skimage.measure import find_contours
+
+from scanmass.geometry import signed_area
+
+__all__ = ["FaceResult", "scan_face", "SOFT_RATIO"]
+
+#: An outline vertex whose edge gradient is below this share of the outline's sharp edges
+#: (its 80th percentile) lies on a soft edge (a shadow's outer end, or a part out of focus).
+SOFT_RATIO = 0.5
+
+#: Least share of the outline on soft edges for a shadow to be looked for.
+MIN_SOFT_SHARE = 0.03
+
+#: Soft edges along this share of the outline without a shadow are noted (a part not flat on
+#: the glass, or a scan out of focus there).
+MIN_SOFT_NOTE = 0.1
+
+#: The face is told from the shadow only if their levels differ by this share of the
+#: lid-to-part contrast (and by 6 sigma of the noise).
+MIN_FACE_SHADOW_CONTRAST = 0.05
+
+#: Least level step (share of the lid-to-part contrast) from the part to what lies inside the
+#: outline's soft stretch for that to count as a shadow at all.
+MIN_SHADOW_STEP = 0.03
+
+#: The face's seed region: darker than the part's level plus this share of the face-to-shadow step
+#: (or 5 sigma of the smoothed part's noise): the shadow darkens towards inner corners, and a deep
+#: hole's floor is the lid in the shadow of the hole's wall, a little lighter than the part.
+FACE_SEED = 0.1
+
+
+@dataclass
+class FaceResult:
+    """The face on the glass of one part, or why it could not be separated (pixels, image frame).
+
+    ``outer_px`` is None when the face could not be told from the shadow; then
+    ``shadow_px2`` is an estimate of the shadow inside the found outline (its soft front's
+    width times its length along the lamp's direction). With ``note == "soft edges"``
+    the outline is soft along a good share of its length but no shadow lies inside it.
+    """
+
+    outer_px: np.ndarray | None
+    holes_px: list[np.ndarray]
+    gradient_px: np.ndarray | None
+    hole_gradients_px: list[np.ndarray]
+    #: the found outline's area outside the face (px2): the shadow left out, or its estimate
+    shadow_px2: float
+    #: unit vector (x, y in image pixels, rows down) from the face towards its shadow
+    direction: tuple[float, float]
+    #: length (px) of the outline on soft edges
+    soft_length_px: float
+    #: length (px) of the face's edge against its shadow (the cut-off stretch)
+    shadow_edge_px: float
+    #: linear levels: lid, shadow, part
+    levels: tuple[float, float, float]
+    note: str
+    #: per vertex of ``outer_px``: on the face's edge against its shadow (moved from the found outline)
+    shadow_edge: np.ndarray | None = None
+
+
+def _ring_lengths(ring: np.ndarray) -> np.ndarray:
+    """Length attributed to each vertex (half of each adjacent segment)."""
+    seg = np.hypot(*(np.roll(ring, -1, axis=0) - ring).T)
+    return 0.5 * (seg + np.roll(seg, 1))
+
+
+def _outward_normals(ring: np.ndarray) -> np.ndarray:
+    """Unit outward normals of a ring (either orientation), image frame."""
+    tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
+    tn = np.hypot(tangent[:, 0], tangent[:, 1])
+    tn[tn == 0] = 1.0
+    normal = np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
+    return normal if signed_area(ring) > 0 else -normal
+
+
+def _normalised_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: float) -> np.ndarray:
+    """A smooth surface through the masked values (normalised convolution)."""
+    m = mask.astype(np.float32)
+    w = cv2.GaussianBlur(m, (0, 0), sigma)
+    v = cv2.GaussianBlur((values * m).astype(np.float32), (0, 0), sigma)
+    out = np.full(values.shape, fallback, np.float32)
+    ok = w > 1e-3
+    out[ok] = v[ok] / w[ok]
+    return out
+
+
+def scan_face(
+    linear: np.ndarray,
+    origin_px: tuple[int, int],
+    outer_px: np.ndarray,
+    holes_px: list[np.ndarray],
+    gradient_px: np.ndarray,
+    *,
+    noise: float,
+    min_hole_px: float,
+) -> FaceResult | None:
+    """The face on the glass of a dark part on a scanner's light lid, with its shadow left out.
+
+    Parameters
+    ----------
+    linear : (H, W) float ndarray
+        Linear-light values of a crop around the part, reaching at least 12 px beyond it.
+    origin_px : (int, int)
+        The crop's (x, y) offset in the image.
+    outer_px, holes_px : ndarray
+        The found rings (image pixels, x y).
+    gradient_px : ndarray
+        The normalised edge gradient at each vertex of ``outer_px`` (per px).
+    noise : float
+        Standard deviation of the pixel noise, linear light.
+    min_hole_px : float
+        Holes of the face smaller than this are filled.
+
+    Returns
+    -------
+    FaceResult or None
+        None when the outline has no soft stretch (no shadow inside it: the found
+        outline is the face's).
+
+    References
+    ----------
+    .. [1] W. E. Lorensen and H. E. Cline, "Marching cubes", SIGGRAPH 1987, in its 2-D
+       form as implemented by ``skimage.measure.find_contours`` (the face's rings).
+    """
+    from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
+
+    outer = np.asarray(outer_px, float)
+    grad = np.asarray(gradient_px, float)
+    if len(grad) != len(outer) or len(outer) < 16:
+        return None
+    sharp_ref = float(np.quantile(grad, 0.8))
+    soft = grad < SOFT_RATIO * sharp_ref
+    lengths = _ring_lengths(outer)
+    soft_len = float(lengths[soft].sum())
+    if soft_len < MIN_SOFT_SHARE * float(lengths.sum()):
+        return None
+    origin = np.asarray(origin_px, float)
+    shape = linear.shape
+    kernel = np.ones((3, 3), np.uint8)
+    filled = np.zeros(shape, np.uint8)
+    cv2.fillPoly(filled, [np.round((outer - origin) * 16).astype(np.int32)], 1, shift=4)
+    found = filled.copy()
+    for h in holes_px:
+        cv2.fillPoly(found, [np.round((np.asarray(h, float) - origin) * 16).astype(np.int32)], 0, shift=4)
+    near_out = cv2.dilate(filled, kernel, iterations=12).astype(bool) & ~cv2.dilate(
+        filled, kernel, iterations=3
+    ).astype(bool)
+    inside = cv2.erode(found, kernel, iterations=3).astype(bool)
+    if near_out.sum() < 20 or inside.sum() < 50:
+        return None
+    lid = float(np.quantile(linear[near_out], 0.75))
+    part = float(np.quantile(linear[inside], 0.2))
+    if not lid > part:
+        return None
+    # the shadow's level: inside the found outline, next to its soft stretch
+    normals = _outward_normals(outer)
+    # a flatbed's lamp lies beside the sensor line and lights along the carriage's travel: the
+    # shadow falls along the image's rows or columns; the soft stretch's mean normal picks which
+    mean_normal = (lengths[soft, None] * normals[soft]).sum(axis=0)
+    axis = int(np.argmax(np.abs(mean_normal)))
+    direction = np.zeros(2)
+    direction[axis] = math.copysign(1.0, float(mean_normal[axis]))
+    probe = np.zeros(shape, np.uint8)
+    for depth in (4.0, 6.0, 8.0):
+        pts = outer[soft] - depth * normals[soft] - origin
+        cols = np.clip(np.round(pts[:, 0]).astype(int), 0, shape[1] - 1)
+        rows = np.clip(np.round(pts[:, 1]).astype(int), 0, shape[0] - 1)
+        probe[rows, cols] = 1
+    probe_values = linear[probe.astype(bool) & inside]
+    if probe_values.size < 10:
+        return None
+    shadow = float(np.median(probe_values))
+    levels = (lid, shadow, part)
+    total = float(found.sum())
+    gap = shadow - part
+    dark = linear[inside & (linear < part + 0.5 * max(gap, 0.0))]
+    if dark.size > 20:  # the part's own noise (texture, grain) rather than the outline fit's residual
+        noise = min(noise, 1.4826 * float(np.median(np.abs(dark - np.median(dark)))))
+    # a shadow: the soft stretch faces one way, and inside it lies a level between the part and the lid
+    # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
+    facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)
+    if facing < 0.3 or gap < max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise):
+        if soft_len < MIN_SOFT_NOTE * float(lengths.sum()):
+            return None
+        return FaceResult(  # soft edges and no shadow: the part may not lie flat on the glass
+            outer_px=None,
+            holes_px=[],
+            gradient_px=None,
+            hole_gradients_px=[],
+            shadow_px2=0.0,
+            direction=(float(direction[0]), float(direction[1])),
+            soft_length_px=soft_len,
+            shadow_edge_px=0.0,
+            levels=levels,
+            note="soft edges",
+        )
+    if gap < max(MIN_FACE_SHADOW_CONTRAST * (lid - part), 6.0 * noise):
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+    # the face: the region at the part's own level (nearer it than the shadow's, which darkens
+    # towards inner corners); its edges are then placed by the local levels either side
+    smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.2)
+    seed = max(FACE_SEED * gap, 5.0 * _mad(smooth[inside & (smooth < part + 0.5 * gap)]))
+    seed_mask = np.asarray(found.astype(bool) & (smooth < part + seed), dtype=np.uint8)
+    face0: np.ndarray = cv2.morphologyEx(seed_mask, cv2.MORPH_OPEN, kernel)
+    count, comp, stats, _ = cv2.connectedComponentsWithStats(face0, connectivity=8)
+    if count < 2:
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+    biggest = 1 + int(np.argmax(stats[1:, cv2.CC_STAT_AREA]))
+    face0 = np.asarray(comp == biggest, dtype=np.uint8)
+    if face0.sum() < 0.3 * total:
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+    # local background next to each face edge: the lid, the shadow, or a hole's floor
+    grown = cv2.dilate(face0, kernel, iterations=3).astype(bool)
+    background = _normalised_blur(linear, ~grown, 4.0, lid)
+    band = cv2.dilate(face0, kernel, iterations=4).astype(bool) & ~cv2.erode(face0, kernel, iterations=4).astype(bool)
+    contrast = part - background
+    safe = np.where(np.abs(contrast) < 0.02 * (lid - part), -0.02 * (lid - part), contrast)
+    norm = np.zeros((shape[0] + 2, shape[1] + 2), np.float32)
+    norm[1:-1, 1:-1] = cv2.erode(face0, kernel, iterations=4)
+    rows, cols = np.nonzero(band)
+    norm[rows + 1, cols + 1] = np.clip((linear[rows, cols] - background[rows, cols]) / safe[rows, cols], -0.5, 1.5)
+    rings = []
+    for ring in find_contours(norm, 0.5, fully_connected="high"):
+        if len(ring) < 4 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
+            continue
+        ring_rc, g, slope = _refine_vertices(norm, ring[:-1], 0.5)
+        xy = np.column_stack([ring_rc[:, 1] - 1 + origin[0], ring_rc[:, 0] - 1 + origin[1]])
+        rings.append((xy, signed_area(xy), g, slope))
+    if not rings:
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+    rings.sort(key=lambda r: -abs(r[1]))
+    face_outer, face_area, face_grad, face_slope = rings[0]
+    holes, hole_grads, slopes = [], [], [face_slope]
+    for xy, area, g, slope in rings[1:]:
+        if math.copysign(1.0, area) == math.copysign(1.0, face_area) or abs(area) < min_hole_px:
+            continue
+        holes.append(xy)
+        hole_grads.append(g)
+        slopes.append(slope)
+    # the face keeps the found outline's sharp edges facing away from the shadow ...
+    back = ~soft & ((normals @ direction) < -0.3)
+    kept = _distance_to_ring(outer[back], face_outer, origin, shape) <= 2.0
+    if back.sum() < 8 or float((lengths[back] * kept).sum()) < 0.8 * float(lengths[back].sum()):
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+    # ... and its edge against the shadow is a sharp step from the part's level to the shadow's:
+    # its gradient (linear light per px) at least 0.25 of a step of that height blurred as its other edges
+    moved = _distance_to_ring(face_outer, outer, origin, shape) > 2.0
+    if moved.sum() < 4 or (~moved).sum() < 8:
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+    blur_kept = _blur_from_gradient(float(np.median(np.abs(face_slope[~moved]))))
+    cols = np.clip(np.round(face_outer[moved, 0] - origin[0]).astype(int), 0, shape[1] - 1)
+    rows = np.clip(np.round(face_outer[moved, 1] - origin[1]).astype(int), 0, shape[0] - 1)
+    step_grad = float(np.median(face_grad[moved] * np.abs(contrast[rows, cols])))
+    if step_grad < 0.25 * gap / (math.sqrt(2.0 * math.pi) * max(blur_kept, 0.5)):
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+    # ... and what it leaves out lies beyond the face along the lamp's direction (a cast shadow),
+    # not beside it (as a part's own brighter patches would)
+    contours, _ = cv2.findContours(face0, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
+    face_filled = np.zeros(shape, np.uint8)
+    cv2.drawContours(face_filled, contours, -1, 1, thickness=cv2.FILLED)
+    if _upstream_share(found.astype(bool) & ~face_filled.astype(bool), face0.astype(bool), direction) > 0.1:
+        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+    blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
+    face_outer = correct_curvature(face_outer, blur)
+    holes = [correct_curvature(h, blur) for h in holes]
+    face_px2 = abs(signed_area(face_outer)) - sum(abs(signed_area(h)) for h in holes)
+    found_px2 = abs(signed_area(outer)) - sum(abs(signed_area(np.asarray(h, float))) for h in holes_px)
+    return FaceResult(
+        outer_px=face_outer,
+        holes_px=holes,
+        gradient_px=face_grad,
+        hole_gradients_px=hole_grads,
+        shadow_px2=max(0.0, found_px2 - face_px2),
+        direction=(float(direction[0]), float(direction[1])),
+        soft_length_px=soft_len,
+        shadow_edge_px=float(_ring_lengths(face_outer)[moved].sum()),
+        levels=levels,
+        note="separated",
+        shadow_edge=moved,
+    )
+
+
+def _upstream_share(removed: np.ndarray, face: np.ndarray, direction: np.ndarray) -> float:
+    """Share of the removed pixels from which a step along ``direction`` meets the face again.
+
+    Both masks are turned so that ``direction`` points up the rows; a removed pixel with
+    face pixels above it in its column is not beyond the face.
+    """
+    removed = cv2.erode(removed.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+    if removed.sum() < 10:
+        return 0.0
+    h, w = face.shape
+    angle = math.degrees(math.atan2(direction[0], -direction[1]))  # rotate direction onto (0, -1)
+    size = int(math.ceil(math.hypot(h, w))) + 2
+    rot = cv2.getRotationMatrix2D((w / 2.0, h / 2.0), -angle, 1.0)
+    rot[:, 2] += [(size - w) / 2.0, (size - h) / 2.0]
+    face_r = cv2.warpAffine(face.astype(np.uint8), rot, (size, size), flags=cv2.INTER_NEAREST)
+    removed_r = cv2.warpAffine(removed.astype(np.uint8), rot, (size, size), flags=cv2.INTER_NEAREST).astype(bool)
+    above = np.zeros_like(face_r)
+    above[1:] = np.maximum.accumulate(face_r, axis=0)[:-1]
+    # a few px of slack: the face's own edge pixels next to its shadow
+    above[6:] = above[:-6].copy()
+    above[:6] = 0
+    return float((removed_r & above.astype(bool)).sum()) / max(float(removed_r.sum()), 1.0)
+
+
+def _mad(values: np.ndarray) -> float:
+    """Standard deviation from the median absolute deviation (0 for fewer than 20 values)."""
+    if values.size < 20:
+        return 0.0
+    return 1.4826 * float(np.median(np.abs(values - np.median(values))))
+
+
+def _distance_to_ring(points: np.ndarray, ring: np.ndarray, origin: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+    """Distance (px, to within a pixel) of each point to a ring, both in image pixels, on the crop's grid.
+
+    The ring is drawn as a closed polyline (1/16 px precision) and the distance transform of
+    the rest of the crop is read at the points (nearest pixel; points off the crop get the
+    distance at the crop's edge).
+    """
+    canvas = np.ones((shape[0], shape[1]), np.uint8)
+    cv2.polylines(canvas, [np.round((ring - origin) * 16).astype(np.int32)], True, 0, 1, shift=4)
+    dist = cv2.distanceTransform(canvas, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+    cols = np.clip(np.round(points[:, 0] - origin[0]).astype(int), 0, shape[1] - 1)
+    rows = np.clip(np.round(points[:, 1] - origin[1]).astype(int), 0, shape[0] - 1)
+    return np.asarray(dist[rows, cols], dtype=float)
+
+
+def _unseparated(
+    outer: np.ndarray,
+    soft: np.ndarray,
+    half_soft: np.ndarray,
+    lengths: np.ndarray,
+    normals: np.ndarray,
+    direction: np.ndarray,
+    soft_len: float,
+    levels: tuple[float, float, float],
+    total_px2: float,
+) -> FaceResult:
+    """The face cannot be told from the shadow: how large the shadow inside the outline may be.
+
+    The shadow is the face swept along the lamp's direction, so the soft stretch holds a
+    front (across that direction) and two sides (along it), each as long as the shadow.
+    The shadow's length is estimated from the soft sides (their extent along the lamp's
+    direction: straight stretches parallel to it at both ends of the front, an
+    overestimate where the front curves into them) and its width from the front's extent
+    across it; their product is the area the outline may hold beyond the face.
+    """
+    d = np.asarray(direction, float)
+    across = np.array([-d[1], d[0]])
+    tangent = np.roll(outer, -1, axis=0) - np.roll(outer, 1, axis=0)
+    tn = np.maximum(np.hypot(tangent[:, 0], tangent[:, 1]), 1e-12)
+    along_share = np.abs(tangent @ d) / tn  # |cos| of the edge's angle to the lamp's direction
+    # the shadow's sides soften with the distance from the part: take them from half the sharpness
+    sides = half_soft & (along_share > math.cos(math.radians(20.0)))
+    length_px = 0.5 * float(lengths[sides].sum())
+    soft_pts = outer[soft]
+    width_px = float((soft_pts @ across).max() - (soft_pts @ across).min()) if soft.any() else 0.0
+    shadow = min(length_px * width_px, 0.5 * total_px2)
+    return FaceResult(
+        outer_px=None,
+        holes_px=[],
+        gradient_px=None,
+        hole_gradients_px=[],
+        shadow_px2=shadow,
+        direction=(float(d[0]), float(d[1])),
+        soft_length_px=soft_len,
+        shadow_edge_px=width_px,
+        levels=levels,
+        note="not separated: the shadow is as dark as the part",
+    )

@@ -1,0 +1,157 @@
+"""Parts laid so that they touch: found as one outline, warned, and split by --split-touching.
+
+Truth: the exact polygons the scans are rendered from (``scanmass.testing.scans``, exact
+pixel coverage); areas and centroids of each part from shapely, not from the code under
+test. Each split part must lie within 3 of its stated sigmas of its own truth.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from shapely.geometry import Polygon
+from typer.testing import CliRunner
+
+import scanmass
+from scanmass.cli.app import app
+from scanmass.testing.scans import SynthPart, SynthScan, circle, rectangle, render_scan, save_scan
+
+
+def _truth(part: SynthPart) -> tuple[float, tuple[float, float]]:
+    poly = Polygon(part.outer_mm, part.holes_mm)  # shapely: area and centroid of the rendered polygon
+    return poly.area, (poly.centroid.x, poly.centroid.y)
+
+
+def _plates(gap_mm: float, dpi: float, *, seed: int = 1) -> tuple[SynthScan, list[SynthPart]]:
+    """Two plates laid edge to edge (40 x 30 mm with a 12 mm hole, and 30 x 30 mm), ``gap_mm`` apart."""
+    parts = [
+        SynthPart(rectangle(10.0, 10.0, 40.0, 30.0), [circle(28.0, 25.0, 6.0)]),
+        SynthPart(rectangle(50.0 + gap_mm, 10.0, 30.0, 30.0)),
+    ]
+    scan = render_scan(parts, dpi=dpi, size_mm=(92.0, 50.0), blur_px=0.8, noise=0.003, seed=seed)
+    return scan, parts
+
+
+def _assert_each_within_3_sigma(m, parts: list[SynthPart]) -> None:
+    assert len(m.parts) == len(parts)
+    for truth_part in parts:
+        area, centroid = _truth(truth_part)
+        part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, centroid))
+        assert abs(part.area_mm2 - area) <= 3 * part.area_u_mm2, (part.label, part.area_mm2, area, part.area_u_mm2)
+        for c, t, u in zip(part.centroid_mm, centroid, part.centroid_u_mm):
+            assert abs(c - t) <= 3 * u, (part.label, part.centroid_mm, centroid, part.centroid_u_mm)
+
+
+def test_gap_of_two_pixels_is_resolved_without_the_option():
+    """0.2 mm at 300 dpi is 2.4 px (25.4 / 300 = 0.0847 mm per px): two parts, no split needed."""
+    scan, parts = _plates(0.2, 300)
+    m = scanmass.measure(scan.image, dpi=300)
+    _assert_each_within_3_sigma(m, parts)
+    assert not any("touching" in w for w in m.warnings)
+
+
+@pytest.mark.parametrize(("gap_mm", "dpi"), [(0.2, 100), (0.05, 300)])
+def test_gap_under_a_pixel_is_merged_and_warned(gap_mm, dpi):
+    """0.2 mm at 100 dpi (0.79 px) and 0.05 mm at 300 dpi (0.59 px): one outline, with a warning
+    naming the seam and the option; the neck test alone (full-length contact, no waist) misses it."""
+    from scanmass.segment.touching import touching_lobes
+
+    scan, parts = _plates(gap_mm, dpi)
+    m = scanmass.measure(scan.image, dpi=dpi)
+    assert len(m.parts) == 1
+    merged = sum(_truth(p)[0] for p in parts)
+    assert m.parts[0].area_mm2 > merged  # the gap counts as material
+    assert any("looks like two parts touching (a seam" in w and "--split-touching" in w for w in m.warnings)
+    outer = np.asarray(m.parts[0].outline_mm)
+    assert touching_lobes(outer, [np.asarray(h.outline_mm) for h in m.parts[0].holes]) is None
+
+
+@pytest.mark.parametrize(("gap_mm", "dpi"), [(0.2, 100), (0.05, 300)])
+def test_split_touching_measures_each_plate(gap_mm, dpi):
+    scan, parts = _plates(gap_mm, dpi)
+    m = scanmass.measure(scan.image, dpi=dpi, split_touching=True)
+    _assert_each_within_3_sigma(m, parts)
+    for part in m.parts:
+        term = part.uncertainty_terms["split_cut"]
+        # the cut is the 30 mm shared edge, moved by 1 px: the area term is about 30 mm x 1 px
+        assert term["area_mm2"] == pytest.approx(30.0 * 25.4 / dpi, rel=0.05)
+    assert any(w.startswith("parts 1 and 2 were found as one outline and split") for w in m.warnings)
+    (note,) = m.settings["split_touching"]
+    assert note["parts"] == [1, 2] and note["evidence"] == "seam"
+    assert note["cut_length_mm"] == pytest.approx(30.0, abs=0.5)
+    big = max(m.parts, key=lambda p: p.area_mm2)
+    assert len(big.holes) == 1  # the hole stays with its plate
+    assert big.holes[0].diameter_mm == pytest.approx(12.0, abs=3 * big.holes[0].diameter_u_mm + 1e-9)
+
+
+def test_split_cut_term_is_needed():
+    """Without the cut term the merged gap's share would not be covered at 100 dpi (a test that can fail)."""
+    scan, parts = _plates(0.2, 100)
+    m = scanmass.measure(scan.image, dpi=100, split_touching=True)
+    worst = 0.0
+    for truth_part in parts:
+        area, centroid = _truth(truth_part)
+        part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, centroid))
+        others = [v["area_mm2"] for k, v in part.uncertainty_terms.items() if k in ("edge", "threshold", "model")]
+        worst = max(worst, abs(part.area_mm2 - area) / math.sqrt(sum(x * x for x in others)))
+    assert worst > 3.0
+
+
+def test_discs_touching_split_at_the_neck():
+    """Two discs of 10 mm radius 0.05 mm apart (closed form pi r^2 = 314.16 mm2 each)."""
+    parts = [SynthPart(circle(20.0, 20.0, 10.0)), SynthPart(circle(40.05, 20.0, 10.0))]
+    image = render_scan(parts, dpi=300, size_mm=(80.0, 40.0), blur_px=0.8, noise=0.003, seed=2).image
+    merged = scanmass.measure(image, dpi=300)
+    assert len(merged.parts) == 1 and any("looks like two parts touching" in w for w in merged.warnings)
+    m = scanmass.measure(image, dpi=300, split_touching=True)
+    _assert_each_within_3_sigma(m, parts)
+    assert all("split_cut" in p.uncertainty_terms for p in m.parts)
+
+
+def test_split_touching_leaves_single_and_separate_parts_alone():
+    parts = [
+        SynthPart(rectangle(10.0, 10.0, 30.0, 20.0), [circle(20.0, 20.0, 4.0)]),
+        SynthPart(circle(60.0, 20.0, 9.0)),
+    ]
+    image = render_scan(parts, dpi=300, size_mm=(80.0, 40.0), blur_px=0.9, noise=0.005, seed=3).image
+    plain = scanmass.measure(image, dpi=300)
+    split = scanmass.measure(image, dpi=300, split_touching=True)
+    assert [p.area_mm2 for p in split.parts] == [p.area_mm2 for p in plain.parts]
+    assert split.settings["split_touching"] == [] and not any("touching" in w for w in split.warnings)
+    img = np.full((300, 460), 235, np.uint8)
+    img[40:260, 60:160] = 25  # an L bracket: legs 100 px wide, no neck and no seam
+    img[160:260, 60:400] = 25
+    m = scanmass.measure(img, dpi=300, split_touching=True)
+    assert len(m.parts) == 1 and not any("touching" in w for w in m.warnings)
+
+
+def test_split_touching_flag_through_the_cli(tmp_path):
+    scan, parts = _plates(0.05, 300)
+    path = save_scan(scan, tmp_path / "plates.png")
+    out = tmp_path / "r.json"
+    result = CliRunner().invoke(app, ["measure", str(path), "--split-touching", "--json", str(out)])
+    assert result.exit_code == 0, result.output
+    doc = json.loads(out.read_text())
+    assert len(doc["parts"]) == 2 and doc["settings"]["split_touching"][0]["parts"] == [1, 2]
+
+
+def test_split_touching_on_a_photo():
+    """Two plates 0.15 mm apart on the A4 mat (0.28 mm per px at 420 mm: a gap of half a pixel), 10 degrees
+    of tilt: one outline with the seam warned; split, each plate within 3 sigma of its own polygon."""
+    from scanmass.scale.mat import make_mat
+    from scanmass.testing.photos import PhotoParts, make_camera, render_photo
+
+    plates = [SynthPart(rectangle(60.0, 120.0, 40.0, 30.0)), SynthPart(rectangle(100.15, 120.0, 30.0, 30.0))]
+    image = render_photo(
+        make_mat("a4-portrait"),
+        [PhotoParts(p.outer_mm) for p in plates],
+        make_camera(tilt_deg=10.0, distance_mm=420.0),
+        seed=3,
+    )
+    kwargs = {"printed_x_mm": 100.0, "printed_y_mm": 100.0, "thickness_mm": 0}
+    merged = scanmass.measure(image, **kwargs)
+    assert len(merged.parts) == 1 and any("looks like two parts touching (a seam" in w for w in merged.warnings)
+    _assert_each_within_3_sigma(scanmass.measure(image, split_touching=True, **kwargs), plates)
