@@ -28,10 +28,15 @@ from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_p
 from scanmass.segment.rings import PartRings, segment
 from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
 from scanmass.segment.symmetry import reading_shift
-from scanmass.segment.thin import EdgeQuantisation, WallResult, edge_quantisation, resolve_walls
+from scanmass.segment.thin import (
+    RESIDUAL_WINDOW_PX,
+    EdgeQuantisation,
+    WallResult,
+    edge_quantisation,
+    resolve_walls,
+)
 from scanmass.segment.touching import touching_lobes
 from scanmass.uncertainty import (
-    THRESHOLD_FLOOR_PX,
     build_edge_model,
     combine,
     figure_weights,
@@ -308,7 +313,12 @@ def measure_image(
     for quant, walls in limits:
         mapped = map_part(walls.rings, plane_map)
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
-        parts.append(measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u))
+        resid = None
+        if quant is not None and len(quant.residual_px) == len(walls.wall_u_px):
+            # on thin walls the wall term holds what the straight-edge model misses
+            resid = [np.where(np.asarray(w) > 0, 0.0, r) for r, w in zip(quant.residual_px, walls.wall_u_px)]
+            resid = _as_mapped_order(walls.rings, resid, mapped, plane_map)
+        parts.append(measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid))
         warnings += walls.warnings
     if shift_px is not None and parts:
         big = max(parts, key=lambda q: q.area_mm2)
@@ -762,13 +772,16 @@ def measure_part(
     *,
     quantisation: EdgeQuantisation | None = None,
     wall_u_px: list[np.ndarray] | None = None,
+    residual_px: list[np.ndarray] | None = None,
 ) -> Part:
     """Section properties and uncertainties of one mapped part (everything in mm).
 
     ``plane_map`` gives only the scale's relative uncertainty and its named terms;
     ``quantisation`` the grey-level steps at the part's edge and ``wall_u_px`` the
     per-vertex uncertainty of the thin-wall step (per ring, in the mapped vertex order),
-    both for the model-error floor (:mod:`scanmass.uncertainty`).
+    ``residual_px`` the per-vertex displacement from the edge model's measured residual
+    (:func:`scanmass.segment.thin.edge_residual_px`, same order), all for the model-error
+    floor (:mod:`scanmass.uncertainty`).
     """
     outer_mm = part.outer_mm
     holes_mm = list(part.holes_mm)
@@ -785,7 +798,9 @@ def measure_part(
     # the pointwise variance that level_rel_u states
     mode_px = math.sqrt(2 * math.pi) * blur * part.level_rel_u / (2.0 * math.sqrt(6.0))
     q = quantisation or EdgeQuantisation(0.0, 0.0)
-    shared_px = math.hypot(THRESHOLD_FLOOR_PX, math.sqrt(2 * math.pi) * blur * q.level_rel)
+    # the levels' rounding bias, and the shared asymmetry of the edge profile (processing in
+    # the encoded domain: JPEG's block quantisation, a tone curve applied after the blur)
+    shared_px = math.hypot(math.sqrt(2 * math.pi) * blur * q.level_rel, q.asymmetry_px)
     offset_px = math.hypot(math.sqrt(6.0) * mode_px, shared_px)  # the whole-boundary share, as before
     offset_mm = offset_px * mm_px
     model = build_edge_model(outer_mm, holes_mm, sigma_n_px, scales, offset_mm)
@@ -801,7 +816,12 @@ def measure_part(
     q_model = build_edge_model(outer_mm, holes_mm, q_px, scales, 0.0)
     corr_phase = phase_correlation_px(model.normals)
     px_mm = model.corr_mm  # the model's 1 px correlation length in mm = local mm per px
-    sigma_m_mm = np.sqrt(resid_px**2 * corr_phase * px_mm**2 + q_model.sigma_n_mm**2)
+    density_px = resid_px**2 * corr_phase  # px^2 x px: the phase-correlated interpolation residual
+    if residual_px is not None:
+        # the measured residual holds the interpolation error too: the larger of the two
+        measured = build_edge_model(outer_mm, holes_mm, residual_px, [np.ones(len(r)) for r in residual_px], 0.0)
+        density_px = np.maximum(density_px, measured.sigma_n_mm**2 * RESIDUAL_WINDOW_PX)
+    sigma_m_mm = np.sqrt(density_px * px_mm**2 + q_model.sigma_n_mm**2)
     wall_mm = None
     if wall_u_px is not None and any(np.any(np.asarray(w) > 0) for w in wall_u_px):
         wall_mm = build_edge_model(outer_mm, holes_mm, wall_u_px, scales, 0.0).sigma_n_mm
@@ -827,6 +847,7 @@ def measure_part(
             "offset_px": offset_px,
             "interpolation_residual_px": resid_px,
             "quantisation_rel": q.edge_rel,
+            "asymmetry_px": q.asymmetry_px,
             "contrast": part.contrast,
             "rings": n_rings,
         },

@@ -39,6 +39,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 
 import cv2
 import numpy as np
@@ -48,7 +49,14 @@ from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
 from scanmass.segment.rings import PartRings
 
-__all__ = ["EdgeQuantisation", "WallResult", "edge_quantisation", "resolve_walls", "strip_profile_integral"]
+__all__ = [
+    "EdgeQuantisation",
+    "WallResult",
+    "edge_quantisation",
+    "edge_residual_px",
+    "resolve_walls",
+    "strip_profile_integral",
+]
 
 #: A wall or slot narrower than this many Gaussian-equivalent blur sigmas (plus 1 px) is
 #: examined: beyond it the midpoint rule's bias is below 1e-4 px (erfc tail).
@@ -88,6 +96,11 @@ class EdgeQuantisation:
     edge_rel: float
     level_rel: float
     level_ratio: float = math.nan  # part level over background level (linear light)
+    #: per ring (outer first), per vertex: 1-sigma edge displacement (px) from what the edge
+    #: model leaves unexplained beyond the noise (:func:`edge_residual_px`); empty: not measured
+    residual_px: tuple[np.ndarray, ...] = ()
+    #: shared displacement (px) of the outer ring's mean profile from a point-symmetric edge
+    asymmetry_px: float = 0.0
 
 
 @dataclass
@@ -149,9 +162,149 @@ def edge_quantisation(image: LoadedImage, rings: PartRings) -> EdgeQuantisation:
         bias.append(d / math.sqrt(12.0) * math.exp(-2 * math.pi**2 * noise**2 / max(d * d, 1e-30)))
     bg = edge_lin - half
     ratio = (edge_lin + half) / bg if bg > 1e-6 else math.nan
+    residual, asymmetry = edge_residual_px(image, rings)
     return EdgeQuantisation(
-        edge_rel=step_at(edge_lin) / contrast, level_rel=math.hypot(*bias) / (2 * contrast), level_ratio=ratio
+        edge_rel=step_at(edge_lin) / contrast,
+        level_rel=math.hypot(*bias) / (2 * contrast),
+        level_ratio=ratio,
+        residual_px=tuple(residual),
+        asymmetry_px=asymmetry,
     )
+
+
+# ------------------------------------------------------------------ edge-model residual
+
+#: Offsets (in blur sigmas) along the normal at which each edge profile is compared with
+#: the model, and the distance (sigmas, plus 2 px) of the two samples that set its levels.
+RESIDUAL_OFFSETS_SIGMA = np.arange(-2.0, 2.01, 0.5)
+RESIDUAL_LEVEL_SIGMAS = 3.0
+
+#: Length (px) along the boundary over which the residual is averaged, and its correlation
+#: length: the 8 px block of JPEG's discrete cosine transform (ITU-T T.81), the longest
+#: stretch over which what the residual holds (block quantisation, a corner's rounding,
+#: noise) is shared.
+RESIDUAL_WINDOW_PX = 8.0
+
+#: Share of the noise variance left in the even part: (1 + 1 + ... ) over the offsets,
+#: 1 at t = 0 and 1/2 elsewhere (two independent samples averaged).
+_EVEN_NOISE_SHARE = float(np.mean(np.where(np.abs(RESIDUAL_OFFSETS_SIGMA) < 1e-9, 1.0, 0.5)))
+
+
+@lru_cache(maxsize=1)
+def _cubic_noise_gain() -> float:
+    """Variance gain of white noise through 2-D Keys cubic interpolation, averaged over the phase."""
+    u = np.linspace(0.0, 1.0, 201)[:-1]
+    taps = np.arange(-1, 3)[None, :] - u[:, None]
+    t = np.abs(taps)
+    a = -0.75  # OpenCV's INTER_CUBIC
+    w = np.where(
+        t <= 1, (a + 2) * t**3 - (a + 3) * t**2 + 1, np.where(t < 2, a * t**3 - 5 * a * t**2 + 8 * a * t - 4 * a, 0.0)
+    )
+    one_d = float(np.mean(np.sum(w * w, axis=1)))
+    return one_d * one_d
+
+
+def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndarray], float]:
+    """Edge displacement (px, 1 sigma) from what the edge model leaves unexplained, per vertex.
+
+    At every vertex the image (linear light, Keys cubic interpolation) is sampled along the
+    normal at ``t`` = -2 ... 2 blur sigmas and normalised between the levels sampled
+    ``3 sigma + 2`` px either side; the model is the blurred straight edge through the
+    vertex, ``Phi(t / sigma)``. What every vertex of a ring shares (the blur's shape
+    against the Gaussian, a slightly wrong sigma) is the ring's mean residual profile and
+    moves no edge (an even point spread function keeps the 0.5 crossing on the edge); it is
+    subtracted. What is left varies from vertex to vertex: JPEG's block quantisation, the
+    rounding of a corner, interpolation against the pixel phase, and the noise. Its mean
+    square, averaged over :data:`RESIDUAL_WINDOW_PX` along the boundary, less the noise's
+    share (the flat-region noise through the cubic interpolant, which the edge term already
+    carries), is a per-pixel error of the normalised image at the edge; divided by the
+    edge's gradient it is a displacement, as for noise (the law of propagation, JCGM
+    100:2008 section 5.1).
+
+    Returns one array per ring (outer first), per vertex, in the rings' vertex order.
+    """
+    all_rings = [rings.outer_px, *rings.holes_px]
+    zero = [np.zeros(len(r)) for r in all_rings]
+    contrast = float(rings.contrast)
+    sigma = float(rings.blur_px)
+    if not (math.isfinite(contrast) and abs(contrast) > 1e-4 and math.isfinite(sigma) and sigma > 0):
+        return zero, 0.0
+    x0, y0, x1, y1 = rings.bbox_px
+    far_px = RESIDUAL_LEVEL_SIGMAS * sigma + 2.0
+    pad = int(math.ceil(far_px + 4))
+    c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
+    c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
+    lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
+    shift = np.array([c0, r0], float)
+    t = RESIDUAL_OFFSETS_SIGMA * sigma
+    offsets = np.concatenate([t, [-far_px, far_px]])
+    model = np.asarray(_ndtr(t / sigma))
+    template = np.exp(-0.5 * (t / sigma) ** 2) / math.sqrt(2 * math.pi)
+    lift = template - template[len(t) // 2]  # a shared displacement with the crossing held at t = 0
+    shared: list[float] = []
+    noise_var = (float(rings.noise_rel) ** 2 if math.isfinite(rings.noise_rel) else 0.0) * _cubic_noise_gain()
+    out = []
+    for i, ring in enumerate(all_rings):
+        if len(ring) < 8:
+            out.append(np.zeros(len(ring)))
+            shared.append(0.0)
+            continue
+        inward = -_normals(ring, i == 0)  # into the material
+        pts = ring[:, None, :] + offsets[None, :, None] * inward[:, None, :] - shift
+        values = cv2.remap(
+            lin, pts[..., 0].astype(np.float32), pts[..., 1].astype(np.float32), cv2.INTER_CUBIC,
+            borderMode=cv2.BORDER_REPLICATE,
+        ).astype(float)  # fmt: skip
+        spacing = float(np.median(np.hypot(*(np.roll(ring, -1, axis=0) - ring).T))) or 1.0
+        half = max(1, int(round(0.5 * RESIDUAL_WINDOW_PX / spacing)))
+        kernel = np.ones(2 * half + 1) / (2 * half + 1)
+
+        def along(v: np.ndarray, kernel: np.ndarray = kernel, half: int = half) -> np.ndarray:
+            return np.convolve(np.concatenate([v[-half:], v, v[:half]]), kernel, mode="valid")
+
+        bg = along(values[:, -2])
+        local_contrast = along(values[:, -1]) - bg
+        # where the levels 3 sigma + 2 px away are not the part's and the background's (a
+        # thin wall, another edge, a corner's far side) the profile is no single edge's: left
+        # to the wall term
+        valid = np.abs(local_contrast / contrast - 1.0) < 0.25
+        local_contrast = np.where(valid, local_contrast, contrast)
+        norm = (values[:, :-2] - bg[:, None]) / local_contrast[:, None]
+        e = norm - model
+        mean_e = e[valid].mean(axis=0) if valid.any() else e.mean(axis=0)
+        if i == 0:
+            # the curvature step (segment.rings.correct_curvature) put the vertices sigma^2 k / 2
+            # outside the crossing on purpose: on a closed outer ring k averages 2 pi / perimeter
+            perimeter = float(np.sum(np.hypot(*(np.roll(ring, -1, axis=0) - ring).T)))
+            curvature_shift = 0.5 * sigma * sigma * 2 * math.pi / max(perimeter, 1e-9)
+            per_vertex = (-sigma * (0.5 * (e + e[:, ::-1]) @ lift) / float(lift @ lift))[valid]
+            if per_vertex.size >= 16:
+                centre = float(np.median(per_vertex))  # robust to the corners' profiles
+                spread = 1.4826 * float(np.median(np.abs(per_vertex - centre)))
+                moved = centre + curvature_shift
+                # less the noise of that estimate (vertices correlated over the window, conservatively)
+                n_eff = max(per_vertex.size * spacing / RESIDUAL_WINDOW_PX, 1.0)
+                shared.append(math.sqrt(max(moved * moved - spread * spread / n_eff, 0.0)))
+            else:
+                shared.append(0.0)
+        e = e - mean_e  # the ring's shared profile moves no edge
+        # least-squares displacement of each profile: Phi((t - d) / s) - Phi(t / s) = -d phi(t / s) / s
+        # (even in t; a wrong width is odd and drops out)
+        delta = -sigma * (e @ template) / float(template @ template)
+        window_mean = along(delta)
+        # variance density (px^2 x px) of the displacement field, correlations up to the window
+        # included: W E[m^2] for the window mean m; less the white part (pixel-scale noise,
+        # which the edge term carries), whose density is its variance times the vertex spacing
+        white = float(np.mean((delta - window_mean) ** 2)) * spacing
+        density = np.where(valid, np.maximum(RESIDUAL_WINDOW_PX * along(window_mean**2) - white, 0.0), 0.0)
+        out.append(np.sqrt(density / RESIDUAL_WINDOW_PX))
+    return out, (abs(shared[0]) if shared else 0.0)
+
+
+def _ndtr(x: np.ndarray) -> np.ndarray:
+    from scipy.special import ndtr
+
+    return np.asarray(ndtr(x))
 
 
 # ------------------------------------------------------------------------ thin walls
