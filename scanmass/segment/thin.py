@@ -47,7 +47,7 @@ from scipy.spatial import cKDTree
 
 from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
-from scanmass.segment.rings import PartRings
+from scanmass.segment.rings import PartRings, correct_curvature
 
 __all__ = [
     "EdgeQuantisation",
@@ -237,7 +237,8 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
     lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
     shift = np.array([c0, r0], float)
     t = RESIDUAL_OFFSETS_SIGMA * sigma
-    offsets = np.concatenate([t, [-far_px, far_px]])
+    flat_px = 1.5  # the levels must be flat over this much further out
+    offsets = np.concatenate([t, [-far_px, far_px, -far_px - flat_px, far_px + flat_px]])
     model = np.asarray(_ndtr(t / sigma))
     template = np.exp(-0.5 * (t / sigma) ** 2) / math.sqrt(2 * math.pi)
     lift = template - template[len(t) // 2]  # a shared displacement with the crossing held at t = 0
@@ -262,26 +263,25 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
         def along(v: np.ndarray, kernel: np.ndarray = kernel, half: int = half) -> np.ndarray:
             return np.convolve(np.concatenate([v[-half:], v, v[:half]]), kernel, mode="valid")
 
-        bg = along(values[:, -2])
-        local_contrast = along(values[:, -1]) - bg
-        # where the levels 3 sigma + 2 px away are not the part's and the background's (a
-        # thin wall, another edge, a corner's far side) the profile is no single edge's: left
-        # to the wall term
-        valid = np.abs(local_contrast / contrast - 1.0) < 0.25
+        bg = along(values[:, -4])
+        local_contrast = along(values[:, -3]) - bg
+        # where the levels 3 sigma + 2 px away are not flat (a thin wall, another edge, a
+        # corner's far side) the profile is no single edge's: left to the wall term
+        slope = np.maximum(np.abs(values[:, -2] - values[:, -4]), np.abs(values[:, -1] - values[:, -3]))
+        valid = (along(slope) < 0.05 * abs(contrast)) & (np.abs(local_contrast / contrast - 1.0) < 0.5)
         local_contrast = np.where(valid, local_contrast, contrast)
-        norm = (values[:, :-2] - bg[:, None]) / local_contrast[:, None]
+        norm = (values[:, :-4] - bg[:, None]) / local_contrast[:, None]
         e = norm - model
         mean_e = e[valid].mean(axis=0) if valid.any() else e.mean(axis=0)
         if i == 0:
-            # the curvature step (segment.rings.correct_curvature) put the vertices sigma^2 k / 2
-            # outside the crossing on purpose: on a closed outer ring k averages 2 pi / perimeter
-            perimeter = float(np.sum(np.hypot(*(np.roll(ring, -1, axis=0) - ring).T)))
-            curvature_shift = 0.5 * sigma * sigma * 2 * math.pi / max(perimeter, 1e-9)
-            per_vertex = (-sigma * (0.5 * (e + e[:, ::-1]) @ lift) / float(lift @ lift))[valid]
+            # the curvature step (segment.rings.correct_curvature) put the vertices about
+            # (sigma^2 / 2 + h^2 / 12) k outside the crossing on purpose: add it back
+            curvature_shift = np.einsum("ij,ij->i", correct_curvature(ring, sigma) - ring, -inward)
+            per_vertex = (-sigma * (0.5 * (e + e[:, ::-1]) @ lift) / float(lift @ lift) + curvature_shift)[valid]
             if per_vertex.size >= 16:
                 centre = float(np.median(per_vertex))  # robust to the corners' profiles
                 spread = 1.4826 * float(np.median(np.abs(per_vertex - centre)))
-                moved = centre + curvature_shift
+                moved = centre
                 # less the noise of that estimate (vertices correlated over the window, conservatively)
                 n_eff = max(per_vertex.size * spacing / RESIDUAL_WINDOW_PX, 1.0)
                 shared.append(math.sqrt(max(moved * moved - spread * spread / n_eff, 0.0)))
@@ -296,7 +296,7 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
         # included: W E[m^2] for the window mean m; less the white part (pixel-scale noise,
         # which the edge term carries), whose density is its variance times the vertex spacing
         white = float(np.mean((delta - window_mean) ** 2)) * spacing
-        density = np.where(valid, np.maximum(RESIDUAL_WINDOW_PX * along(window_mean**2) - white, 0.0), 0.0)
+        density = np.maximum(RESIDUAL_WINDOW_PX * along(window_mean**2) - white, 0.0)
         out.append(np.sqrt(density / RESIDUAL_WINDOW_PX))
     return out, (abs(shared[0]) if shared else 0.0)
 
