@@ -315,9 +315,15 @@ def measure_image(
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
         resid = None
         if quant is not None and len(quant.residual_px) == len(walls.wall_u_px):
-            # on thin walls the wall term holds what the straight-edge model misses
+            # on thin walls the wall term holds what the straight-edge model misses; the
+            # shared residual (corners) joins the wall term, which is taken as shared too
             resid = [np.where(np.asarray(w) > 0, 0.0, r) for r, w in zip(quant.residual_px, walls.wall_u_px)]
             resid = _as_mapped_order(walls.rings, resid, mapped, plane_map)
+            corner = [
+                np.hypot(w, np.where(np.asarray(w) > 0, 0.0, c))
+                for c, w in zip(quant.residual_shared_px, walls.wall_u_px)
+            ]
+            wall_u = _as_mapped_order(walls.rings, corner, mapped, plane_map)
         parts.append(measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid))
         warnings += walls.warnings
     if shift_px is not None and parts:
@@ -818,9 +824,10 @@ def measure_part(
     px_mm = model.corr_mm  # the model's 1 px correlation length in mm = local mm per px
     density_px = resid_px**2 * corr_phase  # px^2 x px: the phase-correlated interpolation residual
     if residual_px is not None:
-        # the measured residual holds the interpolation error too: the larger of the two
+        # the measured residual holds the interpolation error of this image's own edges
+        # (and JPEG's blocks, corners): it replaces the modelled one
         measured = build_edge_model(outer_mm, holes_mm, residual_px, [np.ones(len(r)) for r in residual_px], 0.0)
-        density_px = np.maximum(density_px, measured.sigma_n_mm**2 * RESIDUAL_WINDOW_PX)
+        density_px = measured.sigma_n_mm**2 * RESIDUAL_WINDOW_PX
     sigma_m_mm = np.sqrt(density_px * px_mm**2 + q_model.sigma_n_mm**2)
     wall_mm = None
     if wall_u_px is not None and any(np.any(np.asarray(w) > 0) for w in wall_u_px):

@@ -39,7 +39,6 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
-from functools import lru_cache
 
 import cv2
 import numpy as np
@@ -99,6 +98,8 @@ class EdgeQuantisation:
     #: per ring (outer first), per vertex: 1-sigma edge displacement (px) from what the edge
     #: model leaves unexplained beyond the noise (:func:`edge_residual_px`); empty: not measured
     residual_px: tuple[np.ndarray, ...] = ()
+    #: ... and where the profile is no single edge's (corners, narrow features): shared
+    residual_shared_px: tuple[np.ndarray, ...] = ()
     #: shared displacement (px) of the outer ring's mean profile from a point-symmetric edge
     asymmetry_px: float = 0.0
 
@@ -162,12 +163,13 @@ def edge_quantisation(image: LoadedImage, rings: PartRings) -> EdgeQuantisation:
         bias.append(d / math.sqrt(12.0) * math.exp(-2 * math.pi**2 * noise**2 / max(d * d, 1e-30)))
     bg = edge_lin - half
     ratio = (edge_lin + half) / bg if bg > 1e-6 else math.nan
-    residual, asymmetry = edge_residual_px(image, rings)
+    residual, residual_shared, asymmetry = edge_residual_px(image, rings)
     return EdgeQuantisation(
         edge_rel=step_at(edge_lin) / contrast,
         level_rel=math.hypot(*bias) / (2 * contrast),
         level_ratio=ratio,
         residual_px=tuple(residual),
+        residual_shared_px=tuple(residual_shared),
         asymmetry_px=asymmetry,
     )
 
@@ -185,26 +187,8 @@ RESIDUAL_LEVEL_SIGMAS = 3.0
 #: noise) is shared.
 RESIDUAL_WINDOW_PX = 8.0
 
-#: Share of the noise variance left in the even part: (1 + 1 + ... ) over the offsets,
-#: 1 at t = 0 and 1/2 elsewhere (two independent samples averaged).
-_EVEN_NOISE_SHARE = float(np.mean(np.where(np.abs(RESIDUAL_OFFSETS_SIGMA) < 1e-9, 1.0, 0.5)))
 
-
-@lru_cache(maxsize=1)
-def _cubic_noise_gain() -> float:
-    """Variance gain of white noise through 2-D Keys cubic interpolation, averaged over the phase."""
-    u = np.linspace(0.0, 1.0, 201)[:-1]
-    taps = np.arange(-1, 3)[None, :] - u[:, None]
-    t = np.abs(taps)
-    a = -0.75  # OpenCV's INTER_CUBIC
-    w = np.where(
-        t <= 1, (a + 2) * t**3 - (a + 3) * t**2 + 1, np.where(t < 2, a * t**3 - 5 * a * t**2 + 8 * a * t - 4 * a, 0.0)
-    )
-    one_d = float(np.mean(np.sum(w * w, axis=1)))
-    return one_d * one_d
-
-
-def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndarray], float]:
+def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndarray], list[np.ndarray], float]:
     """Edge displacement (px, 1 sigma) from what the edge model leaves unexplained, per vertex.
 
     At every vertex the image (linear light, Keys cubic interpolation) is sampled along the
@@ -228,26 +212,29 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
     contrast = float(rings.contrast)
     sigma = float(rings.blur_px)
     if not (math.isfinite(contrast) and abs(contrast) > 1e-4 and math.isfinite(sigma) and sigma > 0):
-        return zero, 0.0
+        return zero, [z.copy() for z in zero], 0.0
     x0, y0, x1, y1 = rings.bbox_px
     far_px = RESIDUAL_LEVEL_SIGMAS * sigma + 2.0
-    pad = int(math.ceil(far_px + 4))
+    pad = int(math.ceil(far_px + 2 * sigma + 8))
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
     lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
     shift = np.array([c0, r0], float)
     t = RESIDUAL_OFFSETS_SIGMA * sigma
     flat_px = 1.5  # the levels must be flat over this much further out
-    offsets = np.concatenate([t, [-far_px, far_px, -far_px - flat_px, far_px + flat_px]])
+    # the same stencil once more, out in the background: the noise alone, to subtract
+    phantom_px = far_px + flat_px + 2.0 * sigma + 1.0
+    offsets = np.concatenate([t, [-far_px, far_px, -far_px - flat_px, far_px + flat_px], t - phantom_px])
     model = np.asarray(_ndtr(t / sigma))
     template = np.exp(-0.5 * (t / sigma) ** 2) / math.sqrt(2 * math.pi)
     lift = template - template[len(t) // 2]  # a shared displacement with the crossing held at t = 0
     shared: list[float] = []
-    noise_var = (float(rings.noise_rel) ** 2 if math.isfinite(rings.noise_rel) else 0.0) * _cubic_noise_gain()
-    out = []
+    noise_rel_sq = float(rings.noise_rel) ** 2 if math.isfinite(rings.noise_rel) else 0.0
+    out, out_shared = [], []
     for i, ring in enumerate(all_rings):
         if len(ring) < 8:
             out.append(np.zeros(len(ring)))
+            out_shared.append(np.zeros(len(ring)))
             shared.append(0.0)
             continue
         inward = -_normals(ring, i == 0)  # into the material
@@ -263,6 +250,8 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
         def along(v: np.ndarray, kernel: np.ndarray = kernel, half: int = half) -> np.ndarray:
             return np.convolve(np.concatenate([v[-half:], v, v[:half]]), kernel, mode="valid")
 
+        phantom = values[:, -len(t) :]
+        values = values[:, : -len(t)]
         bg = along(values[:, -4])
         local_contrast = along(values[:, -3]) - bg
         # where the levels 3 sigma + 2 px away are not flat (a thin wall, another edge, a
@@ -293,12 +282,22 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
         delta = -sigma * (e @ template) / float(template @ template)
         window_mean = along(delta)
         # variance density (px^2 x px) of the displacement field, correlations up to the window
-        # included: W E[m^2] for the window mean m; less the white part (pixel-scale noise,
-        # which the edge term carries), whose density is its variance times the vertex spacing
-        white = float(np.mean((delta - window_mean) ** 2)) * spacing
-        density = np.maximum(RESIDUAL_WINDOW_PX * along(window_mean**2) - white, 0.0)
-        out.append(np.sqrt(density / RESIDUAL_WINDOW_PX))
-    return out, (abs(shared[0]) if shared else 0.0)
+        # included: W E[m^2] for the window mean m; less the same for the noise alone (the
+        # stencil in the background)
+        e_noise = (phantom - along(phantom.mean(axis=1))[:, None]) / local_contrast[:, None]
+        noise_mean = along(-sigma * (e_noise @ template) / float(template @ template))
+        noise_density = RESIDUAL_WINDOW_PX * float(np.mean(noise_mean**2))
+        # the vertices sit on the noisy crossing, so the fit sees the crossing's own noise
+        # displacement too: the edge term's (noise / gradient)^2 over its 1 px correlation length
+        crossing_density = noise_rel_sq * 2 * math.pi * sigma * sigma * 1.0
+        density = np.maximum(RESIDUAL_WINDOW_PX * along(window_mean**2) - noise_density - crossing_density, 0.0)
+        sigma_px = np.sqrt(density / RESIDUAL_WINDOW_PX)
+        # where the levels are flat the residual varies from block to block (independent over
+        # the window); where they are not (corners, narrow features) it is the same kind of
+        # misfit wherever the geometry repeats (every corner of a polygon): shared
+        out.append(np.where(valid, sigma_px, 0.0))
+        out_shared.append(np.where(valid, 0.0, sigma_px))
+    return out, out_shared, (abs(shared[0]) if shared else 0.0)
 
 
 def _ndtr(x: np.ndarray) -> np.ndarray:
