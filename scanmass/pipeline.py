@@ -32,6 +32,7 @@ from scanmass.segment.thin import (
     RESIDUAL_WINDOW_PX,
     EdgeQuantisation,
     WallResult,
+    closed_slots,
     edge_quantisation,
     resolve_walls,
 )
@@ -44,6 +45,7 @@ from scanmass.uncertainty import (
     model_uncertainty,
     part_uncertainty,
     phase_correlation_px,
+    removed_material,
     ring_mean_offset_u,
     threshold_uncertainty,
 )
@@ -324,7 +326,16 @@ def measure_image(
                 for c, w in zip(quant.residual_shared_px, walls.wall_u_px)
             ]
             wall_u = _as_mapped_order(walls.rings, corner, mapped, plane_map)
-        parts.append(measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid))
+        closed_mm = None
+        if len(walls.closed_px):
+            closed_mm = np.column_stack(
+                [plane_map.to_mm(walls.closed_px[:, :2]), walls.closed_px[:, 2] * plane_map.mm_per_px**2]
+            )
+        parts.append(
+            measure_part(
+                mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm
+            )
+        )
         warnings += walls.warnings
     if shift_px is not None and parts:
         big = max(parts, key=lambda q: q.area_mm2)
@@ -443,6 +454,10 @@ def _edge_limits(
         for i, w in enumerate(results):
             if w.unresolved and "thick" not in w.level_source:
                 results[i] = resolve_walls(image, found[i], level_ratio_hint=hint)
+    for i, w in enumerate(results):
+        closed, notes = closed_slots(image, w.rings)
+        if len(closed):
+            results[i] = replace(w, closed_px=closed, warnings=w.warnings + notes)
     return list(zip(quants, results))
 
 
@@ -779,6 +794,7 @@ def measure_part(
     quantisation: EdgeQuantisation | None = None,
     wall_u_px: list[np.ndarray] | None = None,
     residual_px: list[np.ndarray] | None = None,
+    closed_mm: np.ndarray | None = None,
 ) -> Part:
     """Section properties and uncertainties of one mapped part (everything in mm).
 
@@ -786,7 +802,8 @@ def measure_part(
     ``quantisation`` the grey-level steps at the part's edge and ``wall_u_px`` the
     per-vertex uncertainty of the thin-wall step (per ring, in the mapped vertex order),
     ``residual_px`` the per-vertex displacement from the edge model's measured residual
-    (:func:`scanmass.segment.thin.edge_residual_px`, same order), all for the model-error
+    (:func:`scanmass.segment.thin.edge_residual_px`, same order), and ``closed_mm`` the
+    material a closed narrow slot may lack (rows x_mm, y_mm, mm2), all for the model-error
     floor (:mod:`scanmass.uncertainty`).
     """
     outer_mm = part.outer_mm
@@ -833,6 +850,10 @@ def measure_part(
     if wall_u_px is not None and any(np.any(np.asarray(w) > 0) for w in wall_u_px):
         wall_mm = build_edge_model(outer_mm, holes_mm, wall_u_px, scales, 0.0).sigma_n_mm
     model_u = model_uncertainty(model, weights, sigma_m_mm=sigma_m_mm, corr_m_mm=px_mm, wall_u_mm=wall_mm)
+    if closed_mm is not None and len(closed_mm):
+        # unresolved: the whole of the slot's missing material is the 1-sigma term
+        lacking = removed_material(closed_mm[:, :2], closed_mm[:, 2], props)
+        model_u = {k: math.hypot(v, lacking.get(k, 0.0)) for k, v in model_u.items()}
     scale_u = _scale_terms(part, plane_map, props)
     # perimeter: a uniform offset d changes it by 2 pi d per ring (turning number)
     n_rings = 1 + len(holes_mm)

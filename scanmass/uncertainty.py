@@ -107,6 +107,7 @@ __all__ = [
     "model_uncertainty",
     "threshold_uncertainty",
     "part_uncertainty",
+    "removed_material",
     "ring_mean_offset_u",
 ]
 
@@ -380,3 +381,20 @@ def model_uncertainty(
             value = math.hypot(value, max(shared, local))
         out[name] = value
     return out
+
+
+def removed_material(points_mm: np.ndarray, amounts_mm2: np.ndarray, props: object) -> dict[str, float]:
+    """First-order change of each figure if material ``amounts_mm2`` at ``points_mm`` were removed.
+
+    Removing a small area ``a`` at ``p`` changes a domain integral by ``-a f(p)`` (the same
+    weights as :func:`figure_weights`, now over the area instead of along the boundary);
+    returned as magnitudes, for a term that covers material the rings may count wrongly.
+    ``props`` is the part's :class:`scanmass.section.SectionProperties`.
+    """
+    pts = np.asarray(points_mm, float).reshape(-1, 2)
+    amount = np.asarray(amounts_mm2, float).reshape(-1)
+    zeros = np.zeros(len(pts))
+    probe = EdgeModel(pts, np.zeros_like(pts), zeros, zeros.astype(int), zeros, zeros, 0.0)
+    p = props
+    w = figure_weights(probe, p.area_mm2, p.centroid_mm, p.ixx_mm4, p.iyy_mm4, p.ixy_mm4)  # type: ignore[attr-defined]
+    return {name: abs(float(np.sum(wk * amount))) for name, wk in w.items()}
