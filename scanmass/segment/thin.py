@@ -183,7 +183,7 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     dip[rows_c[norm < dip_level], cols_c[norm < dip_level]] = 1
     if not dip.any():
         return none, []
-    grown = cv2.dilate(dip, np.ones((3, 3), np.uint8), iterations=int(math.ceil(2 * sigma)) + 1) & core
+    grown = (cv2.dilate(dip, np.ones((3, 3), np.uint8), iterations=int(math.ceil(2 * sigma)) + 1) > 0) & core
     count, labels = cv2.connectedComponents(grown.astype(np.uint8), connectivity=8)
     value = np.full(lin.shape, 0.0)
     value[rows_c, cols_c] = np.clip(1.0 - np.nan_to_num(norm, nan=0.0), 0.0, None)
