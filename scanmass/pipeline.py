@@ -309,7 +309,7 @@ def measure_image(
     encoding_note = None
     extra_warnings: list[str] = []
     shift_px = untagged_reading_shift(image, seg.parts) if options.encoding == "auto" else None
-    limits = _edge_limits(image, seg.parts, options)
+    limits = _edge_limits(image, seg.parts, options, closed=roi_px is None)
     parts = []
     warnings = extra_warnings + list(seg.warnings)
     for quant, walls in limits:
@@ -430,13 +430,15 @@ def _below(area_mm2: float) -> str:
 
 
 def _edge_limits(
-    image: LoadedImage, found: list[PartRings], options: MeasureOptions
+    image: LoadedImage, found: list[PartRings], options: MeasureOptions, *, closed: bool = True
 ) -> list[tuple[EdgeQuantisation | None, WallResult]]:
     """Per part: the quantisation steps at its edge, and its rings after the thin-wall step.
 
     With the local midpoint level (no manual threshold or level), thin walls and narrow
     slots are corrected by the integral rule (:mod:`scanmass.segment.thin`); a part without
-    a thick region takes its level from the other parts of the image (same material).
+    a thick region takes its level from the other parts of the image (same material). With
+    ``closed``, slots and walls too narrow for any contour are looked for (scans: in a
+    photo a shadow beside a part would look like a wall).
     """
     quants = [edge_quantisation(image, r) for r in found]
     if options.threshold is not None or abs(options.level - 0.5) > 1e-9:
@@ -454,10 +456,10 @@ def _edge_limits(
         for i, w in enumerate(results):
             if w.unresolved and "thick" not in w.level_source:
                 results[i] = resolve_walls(image, found[i], level_ratio_hint=hint)
-    for i, w in enumerate(results):
-        closed, notes = closed_slots(image, w.rings)
-        if len(closed):
-            results[i] = replace(w, closed_px=closed, warnings=w.warnings + notes)
+    for i, w in enumerate(results if closed else []):
+        lacking, notes = closed_slots(image, w.rings)
+        if len(lacking):
+            results[i] = replace(w, closed_px=lacking, warnings=w.warnings + notes)
     return list(zip(quants, results))
 
 

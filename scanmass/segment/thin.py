@@ -128,12 +128,16 @@ class WallResult:
     closed_px: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
 
 
-#: A dip inside a part is a closed slot where the normalised image falls below this.
+#: A dip inside a part is a closed slot where the normalised image falls below this (and a
+#: ridge next to it a vanished wall where it rises above 1 minus this).
 CLOSED_SLOT_LEVEL = 0.8
+
+#: How far beyond the part's rings a vanished wall is looked for, px.
+CLOSED_WALL_REACH_PX = 64
 
 
 def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list[str]]:
-    """Narrow slots inside a part that the midpoint rule closed: pixels and their missing share.
+    """Narrow slots (and thin walls) the midpoint rule closed (or lost): pixels and their share.
 
     A slot narrower than about ``2 sigma`` (blur) never reaches the background level, so no
     0.5 contour (or only dust-sized pieces) marks it, and the part comes out whole. Inside
@@ -141,8 +145,11 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     the part's own level (from its thick regions) is 1 but for noise; a connected dip below
     :data:`CLOSED_SLOT_LEVEL` whose missing share ``D = sum (1 - n)`` spread over its length
     is at most a few blur widths wide (a slot, not a dark patch) is such a slot: by the
-    integral rule ``D`` is its area. Returns (K, 3) rows of x_px, y_px, ``1 - n`` for the
-    dips' pixels (empty when none), and a warning per part with any.
+    integral rule ``D`` is its area. Likewise a wall narrower than that never reaches the
+    part's level and has no 0.5 contour: outside the part, a ridge of ``n`` attached to it
+    (within :data:`CLOSED_WALL_REACH_PX`) is such a wall, of area ``sum n``. Returns
+    (K, 3) rows of x_px, y_px and the pixel's share (``1 - n`` or ``n``), empty when none,
+    and a warning per part with any.
     """
     sigma = float(rings.blur_px) if math.isfinite(rings.blur_px) and rings.blur_px > 0 else 1.0
     contrast = float(rings.contrast)
@@ -150,7 +157,7 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     if rings.cut or not math.isfinite(contrast) or abs(contrast) < 1e-4:
         return none, []
     x0, y0, x1, y1 = rings.bbox_px
-    pad = int(math.ceil(3 * sigma + 16))
+    pad = int(math.ceil(3 * sigma + 16)) + CLOSED_WALL_REACH_PX
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
     lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
@@ -172,42 +179,65 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     fg_fit = _robust_quadratic(lin[rows_f, cols_f].astype(float), rows_f.astype(float), cols_f.astype(float))
     if bg_fit is None or fg_fit is None:
         return none, []
-    core = inside >= 2.0 * sigma + 1.0  # away from the rings' own blurred edges
-    rows_c, cols_c = np.nonzero(core)
-    rf, cf = rows_c.astype(float), cols_c.astype(float)
-    level = fg_fit(rf, cf) - bg_fit(rf, cf)
-    norm = (lin[rows_c, cols_c] - bg_fit(rf, cf)) / np.where(np.abs(level) > 1e-6, level, np.nan)
     noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
-    dip_level = min(CLOSED_SLOT_LEVEL, 1.0 - 6.0 * noise)
-    dip = np.zeros(lin.shape, np.uint8)
-    dip[rows_c[norm < dip_level], cols_c[norm < dip_level]] = 1
-    if not dip.any():
-        return none, []
-    grown = (cv2.dilate(dip, np.ones((3, 3), np.uint8), iterations=int(math.ceil(2 * sigma)) + 1) > 0) & core
-    count, labels = cv2.connectedComponents(grown.astype(np.uint8), connectivity=8)
-    value = np.full(lin.shape, 0.0)
-    value[rows_c, cols_c] = np.clip(1.0 - np.nan_to_num(norm, nan=0.0), 0.0, None)
-    out = []
-    for k in range(1, count):
-        rr, cc = np.nonzero(labels == k)
-        if rr.size < 4 or not dip[rr, cc].any():
+    away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
+    # inside: dips below the part level (slots); outside, next to the part: ridges above the
+    # background (walls that vanished), attached to the part
+    found = []
+    for region, sign, attach in (
+        (inside >= away, 1.0, None),
+        (outside >= away, -1.0, outside <= away + 2.0),
+    ):
+        rows_c, cols_c = np.nonzero(region)
+        if rows_c.size == 0:
             continue
-        missing = value[rr, cc]
-        deficit = float(missing.sum())
-        # its length from the second moments of the dip (a thin strip of length L: L^2 / 12)
-        w = missing / max(deficit, 1e-12)
-        cr, ccn = float(np.sum(w * rr)), float(np.sum(w * cc))
-        cov = np.cov(np.vstack([rr - cr, cc - ccn]), aweights=np.maximum(w, 1e-12))
-        length = math.sqrt(12.0 * max(float(np.linalg.eigvalsh(cov)[-1]), 1e-9))
-        if deficit < 2.0 or deficit / length > THIN_SIGMAS * sigma + 1.0:
+        rf, cf = rows_c.astype(float), cols_c.astype(float)
+        level = fg_fit(rf, cf) - bg_fit(rf, cf)
+        norm = (lin[rows_c, cols_c] - bg_fit(rf, cf)) / np.where(np.abs(level) > 1e-6, level, np.nan)
+        # missing share: 1 - n inside (material counted that is not there), n outside
+        share = np.nan_to_num(0.5 * (1 - sign) + sign * (1.0 - norm), nan=0.0)
+        limit = max(1.0 - CLOSED_SLOT_LEVEL, 6.0 * noise)
+        dip = np.zeros(lin.shape, np.uint8)
+        dip[rows_c[share > limit], cols_c[share > limit]] = 1
+        if not dip.any():
             continue
-        out.append(np.column_stack([cc + c0, rr + r0, missing]))
-    if not out:
+        grown = (cv2.dilate(dip, np.ones((3, 3), np.uint8), iterations=int(math.ceil(2 * sigma)) + 1) > 0) & region
+        count, labels = cv2.connectedComponents(grown.astype(np.uint8), connectivity=8)
+        value = np.zeros(lin.shape)
+        value[rows_c, cols_c] = np.clip(share, 0.0, None)
+        for k in range(1, count):
+            rr, cc = np.nonzero(labels == k)
+            if rr.size < 4 or not dip[rr, cc].any():
+                continue
+            if attach is not None and not attach[rr, cc].any():
+                continue  # a separate object, not a wall of this part
+            missing = value[rr, cc]
+            deficit = float(missing.sum())
+            # its length from the second moments of the dip (a thin strip of length L: L^2 / 12)
+            w = missing / max(deficit, 1e-12)
+            cr, ccn = float(np.sum(w * rr)), float(np.sum(w * cc))
+            cov = np.cov(np.vstack([rr - cr, cc - ccn]), aweights=np.maximum(w, 1e-12))
+            length = math.sqrt(12.0 * max(float(np.linalg.eigvalsh(cov)[-1]), 1e-9))
+            if deficit < 2.0 or deficit / length > THIN_SIGMAS * sigma + 1.0:
+                continue
+            found.append((sign, np.column_stack([cc + c0, rr + r0, missing])))
+    if not found:
         return none, []
-    pts = np.concatenate(out)
+    pts = np.concatenate([f[1] for f in found])
+    slots = sum(1 for f in found if f[0] > 0)
+    walls = len(found) - slots
+    what = " and ".join(
+        x
+        for x in (
+            f"{slots} narrow slot(s) inside it that never reach the background level (counted as material)"
+            if slots
+            else "",
+            f"{walls} thin wall(s) on it that never reach the part's level (left out)" if walls else "",
+        )
+        if x
+    )
     warning = (
-        f"part {rings.label}: {len(out)} narrow slot(s) or thin gap(s) inside it never reach the background level "
-        f"and are counted as material (about {pts[:, 2].sum():.0f} px2); their uncertainty covers them; scan at a "
+        f"part {rings.label}: {what}, about {pts[:, 2].sum():.0f} px2; their uncertainty covers them; scan at a "
         "higher resolution or with less blur"
     )
     return pts, [warning]
