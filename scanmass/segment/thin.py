@@ -132,6 +132,31 @@ class WallResult:
 #: ridge next to it a vanished wall where it rises above 1 minus this).
 CLOSED_SLOT_LEVEL = 0.8
 
+#: Most samples fitted for each level surface of :func:`closed_slots`.
+CLOSED_FIT_SAMPLES = 8000
+
+
+def _on_grid(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> np.ndarray:
+    """A quadratic surface (function of row, col) on every pixel of ``shape``, from its 1-D cuts.
+
+    ``f(r, c) = f(r, 0) + f(0, c) - f(0, 0) + k r c`` holds for any polynomial of degree 2,
+    with ``k = f(1, 1) - f(1, 0) - f(0, 1) + f(0, 0)``.
+    """
+    rows = np.arange(shape[0], dtype=float)
+    cols = np.arange(shape[1], dtype=float)
+    zero_r, zero_c = np.zeros(len(rows)), np.zeros(len(cols))
+    at = fit(np.array([0.0, 1.0, 1.0, 0.0]), np.array([0.0, 0.0, 1.0, 1.0]))
+    k = float(at[2] - at[1] - at[3] + at[0])
+    along_rows = fit(rows, zero_r)
+    along_cols = fit(zero_c, cols)
+    r32, c32 = rows.astype(np.float32), cols.astype(np.float32)
+    grid = np.outer(r32, c32)
+    grid *= np.float32(k)
+    grid += along_rows.astype(np.float32)[:, None]
+    grid += (along_cols - float(at[0])).astype(np.float32)[None, :]
+    return grid
+
+
 #: How far beyond the part's rings a vanished wall is looked for, px.
 CLOSED_WALL_REACH_PX = 64
 
@@ -173,13 +198,20 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     far_bg = (outside >= tail + 2) & (outside <= tail + 12)
     if np.count_nonzero(thick) < 60:
         return none, []
-    rows_b, cols_b = np.nonzero(far_bg)
-    rows_f, cols_f = np.nonzero(thick)
-    bg_fit = _robust_quadratic(lin[rows_b, cols_b].astype(float), rows_b.astype(float), cols_b.astype(float))
-    fg_fit = _robust_quadratic(lin[rows_f, cols_f].astype(float), rows_f.astype(float), cols_f.astype(float))
+    fits = []
+    for where in (far_bg, thick):
+        rr, cc = np.nonzero(where)
+        step = max(1, rr.size // CLOSED_FIT_SAMPLES)  # smooth surfaces: a subsample fits them
+        rr, cc = rr[::step], cc[::step]
+        fits.append(_robust_quadratic(lin[rr, cc].astype(float), rr.astype(float), cc.astype(float)))
+    bg_fit, fg_fit = fits
     if bg_fit is None or fg_fit is None:
         return none, []
+    bg_map, fg_map = _on_grid(bg_fit, lin.shape), _on_grid(fg_fit, lin.shape)
+    level = fg_map - bg_map
+    norm_all = (lin - bg_map) / np.where(np.abs(level) > 1e-6, level, np.float32(np.nan))
     noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
+    limit = max(1.0 - CLOSED_SLOT_LEVEL, 6.0 * noise)
     away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
     # inside: dips below the part level (slots); outside, next to the part: ridges above the
     # background (walls that vanished), attached to the part
@@ -188,23 +220,14 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
         (inside >= away, 1.0, None),
         (outside >= away, -1.0, outside <= away + 2.0),
     ):
-        rows_c, cols_c = np.nonzero(region)
-        if rows_c.size == 0:
-            continue
-        rf, cf = rows_c.astype(float), cols_c.astype(float)
-        level = fg_fit(rf, cf) - bg_fit(rf, cf)
-        norm = (lin[rows_c, cols_c] - bg_fit(rf, cf)) / np.where(np.abs(level) > 1e-6, level, np.nan)
         # missing share: 1 - n inside (material counted that is not there), n outside
-        share = np.nan_to_num(0.5 * (1 - sign) + sign * (1.0 - norm), nan=0.0)
-        limit = max(1.0 - CLOSED_SLOT_LEVEL, 6.0 * noise)
-        dip = np.zeros(lin.shape, np.uint8)
-        dip[rows_c[share > limit], cols_c[share > limit]] = 1
+        share_all = np.nan_to_num(norm_all if sign < 0 else 1.0 - norm_all, nan=0.0)
+        dip = ((share_all > limit) & region).astype(np.uint8)
         if not dip.any():
             continue
         grown = (cv2.dilate(dip, np.ones((3, 3), np.uint8), iterations=int(math.ceil(2 * sigma)) + 1) > 0) & region
         count, labels = cv2.connectedComponents(grown.astype(np.uint8), connectivity=8)
-        value = np.zeros(lin.shape)
-        value[rows_c, cols_c] = np.clip(share, 0.0, None)
+        value = np.where(region, np.clip(share_all, 0.0, None), 0.0)
         for k in range(1, count):
             rr, cc = np.nonzero(labels == k)
             if rr.size < 4 or not dip[rr, cc].any():
