@@ -275,7 +275,7 @@ def _scanmass(img: np.ndarray, dpi: float, truth: Figures):
         return None
     p = min(m.parts, key=lambda q: math.dist(q.centroid_mm, truth.centroid_mm))
     fig = Figures(p.area_mm2, (p.centroid_mm[0], p.centroid_mm[1]), p.ixx_mm4, p.iyy_mm4, p.ixy_mm4)
-    return fig, p
+    return fig, p, list(m.warnings)
 
 
 def _otsu_pixel_count(img: np.ndarray, dpi: float) -> Figures | None:
@@ -431,6 +431,7 @@ def main() -> None:
                     fig = None if got is None else got[0]
                     if got is not None:
                         row["part"] = got[1]
+                        row["warnings"] = got[2]
                 elif name == "sub-pixel":
                     fig = _subpixel(img, case.dpi)
                 else:
@@ -452,6 +453,7 @@ def main() -> None:
             row["z"] = {f: abs(signed[f]) / image_sigma[f] if image_sigma[f] > 0 else math.inf for f in FIGURES}
             row["stated_vs_terms"] = max(abs(stated[f] - image_sigma[f]) / image_sigma[f] for f in FIGURES)
             row["scale_term"] = max(abs(terms["scale"][f]) for f in FIGURES)
+            row["warned"] = bool(row.get("warnings"))
         rows.append(row)
     elapsed = time.perf_counter() - t0
 
@@ -501,6 +503,12 @@ def main() -> None:
             + "; ".join(
                 f"{f} {100 * np.mean(z[:, i] <= 3):.0f} / {np.median(z[:, i]):.2f}" for i, f in enumerate(FIGURES)
             )
+        )
+        worst = max(cov, key=lambda r: max(r["z"].values()))
+        silent = [r for r in cov if max(r["z"].values()) > 5 and not r["warned"]]
+        print(
+            f"  worst |error|/sigma {max(worst['z'].values()):.2f} ({worst['family']}); "
+            f"cases beyond 5 sigma without a warning: {len(silent)}"
         )
         print(
             f"  check: stated _u vs edge+threshold terms, max relative difference "

@@ -31,10 +31,16 @@ from scanmass.segment.rings import PartRings, segment
 from scanmass.segment.scanface import FaceResult, scan_face
 from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk
 from scanmass.segment.symmetry import edge_halo, reading_shift
-from scanmass.segment.thin import EdgeQuantisation, WallResult, edge_quantisation, resolve_walls
+from scanmass.segment.thin import (
+    RESIDUAL_WINDOW_PX,
+    EdgeQuantisation,
+    WallResult,
+    closed_slots,
+    edge_quantisation,
+    resolve_walls,
+)
 from scanmass.segment.touching import NeckReport, TouchSplit, split_touching, touching_lobes
 from scanmass.uncertainty import (
-    THRESHOLD_FLOOR_PX,
     build_edge_model,
     combine,
     figure_weights,
@@ -42,6 +48,7 @@ from scanmass.uncertainty import (
     model_uncertainty,
     part_uncertainty,
     phase_correlation_px,
+    removed_material,
     ring_mean_offset_u,
     threshold_uncertainty,
 )
@@ -372,13 +379,31 @@ def measure_image(
     encoding_note = None
     extra_warnings: list[str] = []
     shift_px = untagged_reading_shift(image, seg.parts) if options.encoding == "auto" else None
-    limits = _edge_limits(image, seg.parts, options)
+    limits = _edge_limits(image, seg.parts, options, closed=roi_px is None)
     parts = []
     warnings = extra_warnings + list(seg.warnings)
     for quant, walls in limits:
         mapped = map_part(walls.rings, plane_map)
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
-        part = measure_part(mapped, plane_map, quantisation=quant, wall_u_px=wall_u)
+        resid = None
+        if quant is not None and len(quant.residual_px) == len(walls.wall_u_px):
+            # on thin walls the wall term holds what the straight-edge model misses; the
+            # shared residual (corners) joins the wall term, which is taken as shared too
+            resid = [np.where(np.asarray(w) > 0, 0.0, r) for r, w in zip(quant.residual_px, walls.wall_u_px)]
+            resid = _as_mapped_order(walls.rings, resid, mapped, plane_map)
+            corner = [
+                np.hypot(w, np.where(np.asarray(w) > 0, 0.0, c))
+                for c, w in zip(quant.residual_shared_px, walls.wall_u_px)
+            ]
+            wall_u = _as_mapped_order(walls.rings, corner, mapped, plane_map)
+        closed_mm = None
+        if len(walls.closed_px):
+            closed_mm = np.column_stack(
+                [plane_map.to_mm(walls.closed_px[:, :2]), walls.closed_px[:, 2] * plane_map.mm_per_px**2]
+            )
+        part = measure_part(
+            mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm
+        )
         if walls.rings.label in faces and faces[walls.rings.label].note != "soft edges":
             part = _with_face_term(part, faces[walls.rings.label], plane_map)
         if part.label in cuts:
@@ -770,13 +795,15 @@ def _below(area_mm2: float) -> str:
 
 
 def _edge_limits(
-    image: LoadedImage, found: list[PartRings], options: MeasureOptions
+    image: LoadedImage, found: list[PartRings], options: MeasureOptions, *, closed: bool = True
 ) -> list[tuple[EdgeQuantisation | None, WallResult]]:
     """Per part: the quantisation steps at its edge, and its rings after the thin-wall step.
 
     With the local midpoint level (no manual threshold or level), thin walls and narrow
     slots are corrected by the integral rule (:mod:`scanmass.segment.thin`); a part without
-    a thick region takes its level from the other parts of the image (same material).
+    a thick region takes its level from the other parts of the image (same material). With
+    ``closed``, slots and walls too narrow for any contour are looked for (scans: in a
+    photo a shadow beside a part would look like a wall).
     """
     quants = [edge_quantisation(image, r) for r in found]
     if options.threshold is not None or abs(options.level - 0.5) > 1e-9:
@@ -794,6 +821,10 @@ def _edge_limits(
         for i, w in enumerate(results):
             if w.unresolved and "thick" not in w.level_source:
                 results[i] = resolve_walls(image, found[i], level_ratio_hint=hint)
+    for i, w in enumerate(results if closed else []):
+        lacking, notes = closed_slots(image, w.rings)
+        if len(lacking):
+            results[i] = replace(w, closed_px=lacking, warnings=w.warnings + notes)
     return list(zip(quants, results))
 
 
@@ -1180,13 +1211,18 @@ def measure_part(
     *,
     quantisation: EdgeQuantisation | None = None,
     wall_u_px: list[np.ndarray] | None = None,
+    residual_px: list[np.ndarray] | None = None,
+    closed_mm: np.ndarray | None = None,
 ) -> Part:
     """Section properties and uncertainties of one mapped part (everything in mm).
 
     ``plane_map`` gives only the scale's relative uncertainty and its named terms;
     ``quantisation`` the grey-level steps at the part's edge and ``wall_u_px`` the
     per-vertex uncertainty of the thin-wall step (per ring, in the mapped vertex order),
-    both for the model-error floor (:mod:`scanmass.uncertainty`).
+    ``residual_px`` the per-vertex displacement from the edge model's measured residual
+    (:func:`scanmass.segment.thin.edge_residual_px`, same order), and ``closed_mm`` the
+    material a closed narrow slot may lack (rows x_mm, y_mm, mm2), all for the model-error
+    floor (:mod:`scanmass.uncertainty`).
     """
     outer_mm = part.outer_mm
     holes_mm = list(part.holes_mm)
@@ -1203,7 +1239,9 @@ def measure_part(
     # the pointwise variance that level_rel_u states
     mode_px = math.sqrt(2 * math.pi) * blur * part.level_rel_u / (2.0 * math.sqrt(6.0))
     q = quantisation or EdgeQuantisation(0.0, 0.0)
-    shared_px = math.hypot(THRESHOLD_FLOOR_PX, math.sqrt(2 * math.pi) * blur * q.level_rel)
+    # the levels' rounding bias, and the shared asymmetry of the edge profile (processing in
+    # the encoded domain: JPEG's block quantisation, a tone curve applied after the blur)
+    shared_px = math.hypot(math.sqrt(2 * math.pi) * blur * q.level_rel, q.asymmetry_px)
     offset_px = math.hypot(math.sqrt(6.0) * mode_px, shared_px)  # the whole-boundary share, as before
     offset_mm = offset_px * mm_px
     model = build_edge_model(outer_mm, holes_mm, sigma_n_px, scales, offset_mm)
@@ -1219,11 +1257,21 @@ def measure_part(
     q_model = build_edge_model(outer_mm, holes_mm, q_px, scales, 0.0)
     corr_phase = phase_correlation_px(model.normals)
     px_mm = model.corr_mm  # the model's 1 px correlation length in mm = local mm per px
-    sigma_m_mm = np.sqrt(resid_px**2 * corr_phase * px_mm**2 + q_model.sigma_n_mm**2)
+    density_px = resid_px**2 * corr_phase  # px^2 x px: the phase-correlated interpolation residual
+    if residual_px is not None:
+        # the measured residual holds the interpolation error of this image's own edges
+        # (and JPEG's blocks, corners): it replaces the modelled one
+        measured = build_edge_model(outer_mm, holes_mm, residual_px, [np.ones(len(r)) for r in residual_px], 0.0)
+        density_px = measured.sigma_n_mm**2 * RESIDUAL_WINDOW_PX
+    sigma_m_mm = np.sqrt(density_px * px_mm**2 + q_model.sigma_n_mm**2)
     wall_mm = None
     if wall_u_px is not None and any(np.any(np.asarray(w) > 0) for w in wall_u_px):
         wall_mm = build_edge_model(outer_mm, holes_mm, wall_u_px, scales, 0.0).sigma_n_mm
     model_u = model_uncertainty(model, weights, sigma_m_mm=sigma_m_mm, corr_m_mm=px_mm, wall_u_mm=wall_mm)
+    if closed_mm is not None and len(closed_mm):
+        # unresolved: the whole of the slot's missing material is the 1-sigma term
+        lacking = removed_material(closed_mm[:, :2], closed_mm[:, 2], props)
+        model_u = {k: math.hypot(v, lacking.get(k, 0.0)) for k, v in model_u.items()}
     scale_u = _scale_terms(part, plane_map, props)
     # perimeter: a uniform offset d changes it by 2 pi d per ring (turning number)
     n_rings = 1 + len(holes_mm)
@@ -1245,6 +1293,7 @@ def measure_part(
             "offset_px": offset_px,
             "interpolation_residual_px": resid_px,
             "quantisation_rel": q.edge_rel,
+            "asymmetry_px": q.asymmetry_px,
             "contrast": part.contrast,
             "rings": n_rings,
         },

@@ -9,8 +9,10 @@ edge
 threshold
     One shared offset ``d`` of the whole boundary, from the uncertainty of the local
     background and part levels (a level error ``delta`` of the contrast moves a blurred
-    edge by ``sqrt(2 pi) sigma_blur delta`` px) plus a floor for the residual bias of
-    linear interpolation between pixel centres.
+    edge by ``sqrt(2 pi) sigma_blur delta`` px: the levels' fit, their rounding to the
+    stored grey levels and the blur tails their samples carry), plus the shared asymmetry
+    of the edge profile (see *model*). There is no constant floor: each part of the shared
+    offset is measured on the image or derived.
 scale
     The relative uncertainty of the pixel-to-mm map, or the spread of the figures over
     sampled maps when the scale source provides them (a fitted homography).
@@ -18,7 +20,19 @@ model
     The model-error floor: what the edge model leaves out, so that noise-free images are
     covered too (:func:`model_uncertainty`):
 
-    - *interpolation residual* (aliasing of sharp edges): the boundary point is where the
+    - *edge-model residual* (:func:`scanmass.segment.thin.edge_residual_px`): the image
+      is sampled along the normal at every vertex and compared with the blurred straight
+      edge through it; what the ring's vertices share (the blur's shape) is removed, the
+      rest is projected onto the profile of a displacement (even about the edge: a wrong
+      width is odd and moves nothing) and its variance density, correlations up to 8 px
+      included (JPEG's DCT block, ITU-T T.81), less that of the same stencil out in the
+      flat background (the noise alone) and of the crossing's own noise (the edge term),
+      is a per-vertex displacement over an 8 px correlation length. It holds the
+      interpolation error against the pixel phase, JPEG's block quantisation and a
+      corner's misfit; where the levels either side are not flat (corners, narrow
+      features) it is taken as shared along the boundary, like the wall term below.
+      Where it is not measured, the modelled interpolation residual stands in for it:
+      the boundary point is where the
       cubic interpolant (Keys, ``a = -0.75`` as OpenCV's ``INTER_CUBIC``) of the sampled
       edge crosses the level. For a pixel-integrated Gaussian edge of Gaussian-equivalent
       sigma ``s`` this crossing errs periodically with the edge's sub-pixel phase; its RMS
@@ -28,6 +42,11 @@ model
       to the nearest pixel axis the phase runs through a cycle every ``1 / |sin t|`` px,
       which is taken as the correlation length (capped at 10 px: near an axis the phase of a curved edge is stationary over about sqrt(R) px, 10 px at R = 100 px), so an axis-aligned
       edge gets an almost shared error;
+    - *profile asymmetry*: a blur in linear light is point-symmetric about the edge; what
+      the outer ring's profiles share beyond that (their median displacement from the
+      crossing, the curvature step added back, less its own noise), as left by processing
+      in the encoded domain (JPEG's quantisation of sRGB values, a tone curve applied after
+      the blur), is a shared offset and joins the threshold term;
     - *grey-level quantisation*: at the edge, rounding to the stored grey levels adds an
       error uniform over one step ``D`` of the tone curve (sigma ``D / sqrt 12``,
       Widrow [3]_) to each pixel; where the image noise measured on flat regions is below
@@ -80,7 +99,6 @@ from scanmass.section import boundary_influence
 
 __all__ = [
     "EdgeModel",
-    "THRESHOLD_FLOOR_PX",
     "build_edge_model",
     "combine",
     "figure_weights",
@@ -89,19 +107,9 @@ __all__ = [
     "model_uncertainty",
     "threshold_uncertainty",
     "part_uncertainty",
+    "removed_material",
     "ring_mean_offset_u",
 ]
-
-#: Residual offset shared by the whole boundary, in pixels (1 sigma). The 0.5 crossing of
-#: an edge blurred by any symmetric point spread function lies on the edge, and the cubic
-#: interpolant's crossing errs periodically with the sub-pixel phase with a mean of zero
-#: over the phase (the model of :func:`interpolation_residual_px`, whose RMS is now a
-#: per-vertex term of the model floor). What is left shared is the higher-order residual
-#: of the curvature correction and any asymmetry of the blur. Its size is not derived
-#: yet: the value set from the accuracy benchmark before the model floor existed is kept,
-#: because the regression suite's small parts (radii 15-25 px) show shared shrinks of
-#: 0.002-0.004 px in their second moments (issue 12: 0.001 left them at 3-5 sigma).
-THRESHOLD_FLOOR_PX = 0.005
 
 #: Correlation length of edge noise along the boundary, in pixels.
 CORRELATION_PX = 1.0
@@ -373,3 +381,20 @@ def model_uncertainty(
             value = math.hypot(value, max(shared, local))
         out[name] = value
     return out
+
+
+def removed_material(points_mm: np.ndarray, amounts_mm2: np.ndarray, props: object) -> dict[str, float]:
+    """First-order change of each figure if material ``amounts_mm2`` at ``points_mm`` were removed.
+
+    Removing a small area ``a`` at ``p`` changes a domain integral by ``-a f(p)`` (the same
+    weights as :func:`figure_weights`, now over the area instead of along the boundary);
+    returned as magnitudes, for a term that covers material the rings may count wrongly.
+    ``props`` is the part's :class:`scanmass.section.SectionProperties`.
+    """
+    pts = np.asarray(points_mm, float).reshape(-1, 2)
+    amount = np.asarray(amounts_mm2, float).reshape(-1)
+    zeros = np.zeros(len(pts))
+    probe = EdgeModel(pts, np.zeros_like(pts), zeros, zeros.astype(int), zeros, zeros, 0.0)
+    p = props
+    w = figure_weights(probe, p.area_mm2, p.centroid_mm, p.ixx_mm4, p.iyy_mm4, p.ixy_mm4)  # type: ignore[attr-defined]
+    return {name: abs(float(np.sum(wk * amount))) for name, wk in w.items()}

@@ -600,3 +600,36 @@ def test_local_cluster_matches_process_pool(mixed, tmp_path):
 
     assert records(tmp_path / "dask") == records(tmp_path / "pool")
     assert (tmp_path / "dask" / "parts.csv").read_text() == (tmp_path / "pool" / "parts.csv").read_text()
+
+
+def test_batch_wide_dpi_measures_a_mat_photo_on_its_mat(tmp_path):
+    """Issue 12: a batch-wide --dpi never turns a mat photo into a scan.
+
+    The folder holds a phone-like JPEG of a plate on the A4 marker mat (no DPI stored) and
+    a scan saved without a DPI; the batch runs with ``dpi = 600``. The photo must be
+    measured on its mat (one part, the plate, close to its true area) rather than as a
+    600 dpi scan, which would halve or double every length and turn the mat's markers into
+    parts; the scan takes the batch's DPI.
+    """
+    from _serve_helpers import PLATE_HOLES, PLATE_OUTER, mat_photo_jpeg
+
+    root = tmp_path / "in"
+    root.mkdir()
+    (root / "on-mat.jpg").write_bytes(mat_photo_jpeg())
+    scan_parts = [SynthPart(rectangle(8.0, 7.0, 30.0, 20.0, angle_deg=6.0), [circle(23.0, 17.0, 3.0)])]
+    scan = render_scan(scan_parts, dpi=600, size_mm=(46.0, 36.0), blur_px=0.8, noise=0.004, seed=12)
+    save_scan(scan, root / "scan.png", dpi="omit")
+    out = tmp_path / "out"
+    summary = run_batch(root, out, workers=1, dpi=600.0)
+    assert (summary.measured, summary.failed) == (2, 0)
+    rows = _read_csv(out / "parts.csv")
+    photo = [r for r in rows if r["file"].endswith("on-mat.jpg")]
+    scanned = [r for r in rows if r["file"].endswith("scan.png")]
+    assert len(photo) == 1, [(r["area_mm2"], r["scale_method"]) for r in photo]  # no marker fragments
+    assert photo[0]["scale_method"] == "mat"
+    # truth: shapely's area of the plate polygon (80 x 50 mm less two holes of 8 and 5 mm radius)
+    plate = truth(PLATE_OUTER, PLATE_HOLES)
+    assert float(photo[0]["area_mm2"]) == pytest.approx(plate["area"], rel=5e-3)
+    assert len(scanned) == 1 and scanned[0]["scale_method"] == "dpi"
+    want = truth(scan_parts[0].outer_mm, list(scan_parts[0].holes_mm))["area"]  # shapely
+    assert float(scanned[0]["area_mm2"]) == pytest.approx(want, rel=AREA_RTOL)

@@ -114,7 +114,7 @@ def test_subpixel_position_of_a_large_square(phase):
     # Observed (2026-12, phases (0.37, 0.81), (0.13, 0.62), (0.25, 0.75)): each side's mean
     # position off by 0.001-0.015 px, the centroid by up to 0.011 px, the area by < 1.1e-4
     # relative. The residual is the phase-dependent bias of linear interpolation between
-    # pixel centres on a sampled blurred edge (the model's THRESHOLD_FLOOR_PX of 0.005 px).
+    # pixel centres on a sampled blurred edge (the error model's measured edge residual).
     # Limits: 0.03 px per side and centroid (about twice the observed, 17 times below a
     # half-pixel slip), area 3e-4 (0.015 px mean offset over the 800 px perimeter).
     assert math.dist(got.centroid.coords[0], want.centroid.coords[0]) < 0.03

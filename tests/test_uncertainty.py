@@ -275,3 +275,93 @@ def test_interpolation_residual_matches_opencv_cubic_crossings():
         # the model rounds sigma to 0.01 px; float32 remap: agree within 10 %
         assert measured == pytest.approx(model, rel=0.10), (blur_opt, measured, model)
         assert 0.001 < model < 0.04  # OpenCV's a = -0.75 kernel: about 0.002-0.03 px
+
+
+# ------------------------------------------------------------------ rendered scans, end to end
+
+
+def _rendered_z(mode: str, n: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+    """|error| / sigma over n rendered one-part scans (6 figures each), image terms only.
+
+    Parts at random sub-pixel positions and angles (a disc, a turned rectangle, a plate
+    with a hole), 300 dpi, blur 0.6-1.4 px, both polarities; ``mode`` is ``clean`` (no
+    noise), ``noisy`` (0.002-0.008) or ``jpeg`` (noisy, then a JPEG round trip at quality
+    85-95 with pillow). Truth: shapely's area and centroid, the vertex sums for the
+    moments (tests/polygon_truth.py). Returns z with all image terms (edge, threshold,
+    model) and z with the edge and threshold terms only.
+    """
+    import io
+
+    from PIL import Image
+
+    from scanmass import measure
+    from scanmass.testing.scans import SynthPart, rectangle, render_scan
+
+    rng = np.random.default_rng(seed)
+    z_all, z_no_model = [], []
+    for k in range(n):
+        cx, cy = 12 + rng.uniform(0, 1), 12 + rng.uniform(0, 1)
+        if k % 3 == 0:
+            part = SynthPart(circle(cx, cy, rng.uniform(4, 8)))
+        elif k % 3 == 1:
+            part = SynthPart(rectangle(cx - 6, cy - 4, 12, 8, angle_deg=rng.uniform(0, 90)))
+        else:
+            hole = circle(cx + rng.uniform(-1, 1), cy, rng.uniform(1.5, 3))
+            part = SynthPart(rectangle(cx - 7, cy - 5, 14, 10, angle_deg=rng.uniform(0, 90)), [hole])
+        bg, fg = (0.8, 0.06) if k % 2 == 0 else (0.04, 0.65)
+        noise = 0.0 if mode == "clean" else float(rng.uniform(0.002, 0.008))
+        scan = render_scan(
+            [part], dpi=300, size_mm=(25, 25), blur_px=float(rng.uniform(0.6, 1.4)), noise=noise,
+            background=bg, foreground=fg, seed=int(rng.integers(1 << 30)),
+        )  # fmt: skip
+        img = scan.image
+        if mode == "jpeg":
+            buf = io.BytesIO()
+            Image.fromarray(img).save(buf, format="JPEG", quality=int(rng.integers(85, 96)))
+            img = np.asarray(Image.open(io.BytesIO(buf.getvalue())).convert("L"))
+        p = measure(img, dpi=300, dpi_rel_u=0.0).parts[0]
+        t = truth(part.outer_mm, list(part.holes_mm))
+        err = {
+            "area_mm2": p.area_mm2 - t["area"],
+            "centroid_x_mm": p.centroid_mm[0] - t["centroid"][0],
+            "centroid_y_mm": p.centroid_mm[1] - t["centroid"][1],
+            "ixx_mm4": p.ixx_mm4 - t["ixx"],
+            "iyy_mm4": p.iyy_mm4 - t["iyy"],
+            "ixy_mm4": p.ixy_mm4 - t["ixy"],
+        }
+        terms = p.uncertainty_terms
+        for f in FIGURES:
+            z_all.append(abs(err[f]) / combine(terms["edge"][f], terms["threshold"][f], terms["model"][f]))
+            z_no_model.append(abs(err[f]) / combine(terms["edge"][f], terms["threshold"][f]))
+    return np.array(z_all), np.array(z_no_model)
+
+
+def test_model_floor_covers_noise_free_renders_monte_carlo():
+    # Monte Carlo over sub-pixel placements of noise-free scans: what is left is the model
+    # error (interpolation against the pixel phase, corners, quantisation), which the
+    # model-error floor must cover without inflating: DESIGN.md asks for 95-99 % within
+    # 3 sigma and a median |error| / sigma of about 0.4-1.2 (0.67 for an honest Gaussian).
+    # Observed (seed 7, 12 parts x 6 figures): 100 % within 3 sigma, median 0.44, largest
+    # 1.2; without the model term 69 % within 3 sigma. With 72 values the median of |z|
+    # has a standard error of about 0.1: the band [0.25, 1.2] fails a floor inflated about
+    # threefold or one too small by half.
+    z, z_without = _rendered_z("clean", 12, seed=7)
+    assert np.mean(z <= 3.0) >= 0.95, sorted(z)[-5:]
+    assert 0.25 <= float(np.median(z)) <= 1.2, float(np.median(z))
+    # the set is one where the floor matters: without it noise-free errors are not covered
+    assert np.mean(z_without <= 3.0) < 0.9, np.mean(z_without <= 3.0)
+
+
+@pytest.mark.slow
+def test_image_uncertainty_covers_noisy_and_jpeg_renders():
+    # The coverage target (DESIGN.md "Error model") on a small fixed set beside the
+    # regression tier: noisy scans and the same after a JPEG round trip (the edge-model
+    # residual and the profile asymmetry are what cover JPEG's block quantisation).
+    # Observed (seed 7, 12 + 12 parts x 6 figures): noisy 100 % within 3 sigma, median
+    # 0.28; JPEG 100 %, median 0.45, largest 2.3. No error may lie beyond 5 sigma (the
+    # issue's "no case beyond 5 sigma without a warning"; these files give no warning).
+    for mode in ("noisy", "jpeg"):
+        z, _ = _rendered_z(mode, 12, seed=7)
+        assert np.mean(z <= 3.0) >= 0.95, (mode, sorted(z)[-5:])
+        assert float(z.max()) <= 5.0, (mode, float(z.max()))
+        assert 0.2 <= float(np.median(z)) <= 1.2, (mode, float(np.median(z)))

@@ -608,8 +608,7 @@ def _refine_part(
     # gradient at grid-aligned points); pixel integration is part of the blur the boundary sees
     blur_px = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
     if threshold is None:
-        # the level samples of a thin part still carry the blur tails of both its edges
-        level_rel_u = math.hypot(level_rel_u, math.erfc(depth_px / (blur_px * math.sqrt(2.0))))
+        level_rel_u = math.hypot(level_rel_u, _tail_share(depth_px, blur_px, thin=depth_px < 4.0))
     if threshold is None and abs(level - 0.5) < 1e-9:
         outer = correct_curvature(outer, blur_px)
         holes_px = [correct_curvature(h, blur_px) for h in holes_px]
@@ -634,6 +633,26 @@ def _refine_part(
 
 def _eval_points(coef: np.ndarray, order: int, rows: np.ndarray, cols: np.ndarray, scale: float) -> np.ndarray:
     return np.einsum("ij,j->i", _poly_design(cols / scale, rows / scale, order), coef)
+
+
+def _tail_share(depth_px: float, blur_px: float, *, thin: bool) -> float:
+    """Share of the contrast by which the blur tails of the edges bias the level samples.
+
+    A thin part's ridge samples lie ``depth_px`` from edges on both sides: up to
+    ``erfc(d / (sigma sqrt 2))``. A thick part's level samples (and the background's)
+    spread evenly over depths ``d`` from ``depth_px`` to ``depth_px + W`` (W = the
+    sampled band's width); the mean of the tail ``Q(d / sigma)`` over that range is
+    ``sigma (phi(z) - z Q(z)) / W`` with ``z = depth_px / sigma`` (the integral of the
+    normal tail, ``int_z^inf Q = phi(z) - z Q(z)``), for each of the two levels.
+    """
+    if thin:
+        return math.erfc(depth_px / (blur_px * math.sqrt(2.0)))
+    z = depth_px / blur_px
+    q = 0.5 * math.erfc(z / math.sqrt(2.0))
+    phi = math.exp(-0.5 * z * z) / math.sqrt(2.0 * math.pi)
+    part_band, bg_band = _PAD_PX + 8.0, _PAD_PX + 3.0 - depth_px
+    mean_tail = blur_px * max(phi - z * q, 0.0)
+    return math.hypot(mean_tail / part_band, mean_tail / max(bg_band, 1.0))
 
 
 def _blur_from_gradient(g_peak: float) -> float:

@@ -46,9 +46,17 @@ import numpy as np
 
 from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
-from scanmass.segment.rings import PartRings
+from scanmass.segment.rings import PartRings, correct_curvature
 
-__all__ = ["EdgeQuantisation", "WallResult", "edge_quantisation", "resolve_walls", "strip_profile_integral"]
+__all__ = [
+    "EdgeQuantisation",
+    "closed_slots",
+    "WallResult",
+    "edge_quantisation",
+    "edge_residual_px",
+    "resolve_walls",
+    "strip_profile_integral",
+]
 
 #: A wall or slot narrower than this many Gaussian-equivalent blur sigmas (plus 1 px) is
 #: examined: beyond it the midpoint rule's bias is below 1e-4 px (erfc tail).
@@ -72,6 +80,14 @@ OWN_LEVEL_MIN_WIDTH_PX = 2.5
 #: ... and where the profiles' peaks reach at least this share of the level so found.
 OWN_LEVEL_MIN_REACH = 0.75
 
+#: Relative bias of a wall profile's peak from the blur's shape against the Gaussian (pixel
+#: box, linear interpolation along the profile); through the peak equation it gives the
+#: level's 1-3 % on walls of 3-6 px, and far more where the equation is flat.
+PEAK_MODEL_REL_U = 0.01
+
+#: ... and where the level so found is known to this relative uncertainty.
+OWN_LEVEL_MAX_REL_U = 0.25
+
 #: Walls narrower than this (px) are not resolved from their own profile.
 MIN_RESOLVED_PX = 1.5
 
@@ -88,6 +104,13 @@ class EdgeQuantisation:
     edge_rel: float
     level_rel: float
     level_ratio: float = math.nan  # part level over background level (linear light)
+    #: per ring (outer first), per vertex: 1-sigma edge displacement (px) from what the edge
+    #: model leaves unexplained beyond the noise (:func:`edge_residual_px`); empty: not measured
+    residual_px: tuple[np.ndarray, ...] = ()
+    #: ... and where the profile is no single edge's (corners, narrow features): shared
+    residual_shared_px: tuple[np.ndarray, ...] = ()
+    #: shared displacement (px) of the outer ring's mean profile from a point-symmetric edge
+    asymmetry_px: float = 0.0
 
 
 @dataclass
@@ -100,6 +123,147 @@ class WallResult:
     unresolved: int = 0  # vertices on walls that could not be resolved
     level_source: str = ""
     warnings: list[str] = field(default_factory=list)
+    #: material the rings count that a closed narrow slot may lack: (K, 3) of x_px, y_px and
+    #: the pixel's missing share (px^2), see :func:`closed_slots`
+    closed_px: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+
+
+#: A dip inside a part is a closed slot where the normalised image falls below this (and a
+#: ridge next to it a vanished wall where it rises above 1 minus this).
+CLOSED_SLOT_LEVEL = 0.8
+
+#: Most samples fitted for each level surface of :func:`closed_slots`.
+CLOSED_FIT_SAMPLES = 8000
+
+
+def _on_grid(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> np.ndarray:
+    """A quadratic surface (function of row, col) on every pixel of ``shape``, from its 1-D cuts.
+
+    ``f(r, c) = f(r, 0) + f(0, c) - f(0, 0) + k r c`` holds for any polynomial of degree 2,
+    with ``k = f(1, 1) - f(1, 0) - f(0, 1) + f(0, 0)``.
+    """
+    rows = np.arange(shape[0], dtype=float)
+    cols = np.arange(shape[1], dtype=float)
+    zero_r, zero_c = np.zeros(len(rows)), np.zeros(len(cols))
+    at = fit(np.array([0.0, 1.0, 1.0, 0.0]), np.array([0.0, 0.0, 1.0, 1.0]))
+    k = float(at[2] - at[1] - at[3] + at[0])
+    along_rows = fit(rows, zero_r)
+    along_cols = fit(zero_c, cols)
+    r32, c32 = rows.astype(np.float32), cols.astype(np.float32)
+    grid = np.outer(r32, c32)
+    grid *= np.float32(k)
+    grid += along_rows.astype(np.float32)[:, None]
+    grid += (along_cols - float(at[0])).astype(np.float32)[None, :]
+    return grid
+
+
+#: How far beyond the part's rings a vanished wall is looked for, px.
+CLOSED_WALL_REACH_PX = 64
+
+
+def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list[str]]:
+    """Narrow slots (and thin walls) the midpoint rule closed (or lost): pixels and their share.
+
+    A slot narrower than about ``2 sigma`` (blur) never reaches the background level, so no
+    0.5 contour (or only dust-sized pieces) marks it, and the part comes out whole. Inside
+    the part, away from its rings, the image normalised between the local background and
+    the part's own level (from its thick regions) is 1 but for noise; a connected dip below
+    :data:`CLOSED_SLOT_LEVEL` whose missing share ``D = sum (1 - n)`` spread over its length
+    is at most a few blur widths wide (a slot, not a dark patch) is such a slot: by the
+    integral rule ``D`` is its area. Likewise a wall narrower than that never reaches the
+    part's level and has no 0.5 contour: outside the part, a ridge of ``n`` attached to it
+    (within :data:`CLOSED_WALL_REACH_PX`) is such a wall, of area ``sum n``. Returns
+    (K, 3) rows of x_px, y_px and the pixel's share (``1 - n`` or ``n``), empty when none,
+    and a warning per part with any.
+    """
+    sigma = float(rings.blur_px) if math.isfinite(rings.blur_px) and rings.blur_px > 0 else 1.0
+    contrast = float(rings.contrast)
+    none = np.zeros((0, 3))
+    if rings.cut or not math.isfinite(contrast) or abs(contrast) < 1e-4:
+        return none, []
+    x0, y0, x1, y1 = rings.bbox_px
+    pad = int(math.ceil(3 * sigma + 16)) + CLOSED_WALL_REACH_PX
+    c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
+    c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
+    lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
+    mask = np.zeros(lin.shape, np.uint8)
+    shift = np.array([c0, r0], float)
+    cv2.fillPoly(mask, [np.round(rings.outer_px - shift).astype(np.int32)], 1)
+    if rings.holes_px:
+        cv2.fillPoly(mask, [np.round(h - shift).astype(np.int32) for h in rings.holes_px], 0)
+    inside = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
+    outside = cv2.distanceTransform(1 - mask, cv2.DIST_L2, 5)
+    tail = 3.0 * max(sigma, 1.0) + 2.0
+    thick = inside >= tail + 1
+    far_bg = (outside >= tail + 2) & (outside <= tail + 12)
+    if np.count_nonzero(thick) < 60:
+        return none, []
+    fits = []
+    for where in (far_bg, thick):
+        rr, cc = np.nonzero(where)
+        step = max(1, rr.size // CLOSED_FIT_SAMPLES)  # smooth surfaces: a subsample fits them
+        rr, cc = rr[::step], cc[::step]
+        fits.append(_robust_quadratic(lin[rr, cc].astype(float), rr.astype(float), cc.astype(float)))
+    bg_fit, fg_fit = fits
+    if bg_fit is None or fg_fit is None:
+        return none, []
+    bg_map, fg_map = _on_grid(bg_fit, lin.shape), _on_grid(fg_fit, lin.shape)
+    level = fg_map - bg_map
+    norm_all = (lin - bg_map) / np.where(np.abs(level) > 1e-6, level, np.float32(np.nan))
+    noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
+    limit = max(1.0 - CLOSED_SLOT_LEVEL, 6.0 * noise)
+    away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
+    # inside: dips below the part level (slots); outside, next to the part: ridges above the
+    # background (walls that vanished), attached to the part
+    found = []
+    for region, sign, attach in (
+        (inside >= away, 1.0, None),
+        (outside >= away, -1.0, outside <= away + 2.0),
+    ):
+        # missing share: 1 - n inside (material counted that is not there), n outside
+        share_all = np.nan_to_num(norm_all if sign < 0 else 1.0 - norm_all, nan=0.0)
+        dip = ((share_all > limit) & region).astype(np.uint8)
+        if not dip.any():
+            continue
+        grown = (cv2.dilate(dip, np.ones((3, 3), np.uint8), iterations=int(math.ceil(2 * sigma)) + 1) > 0) & region
+        count, labels = cv2.connectedComponents(grown.astype(np.uint8), connectivity=8)
+        value = np.where(region, np.clip(share_all, 0.0, None), 0.0)
+        for k in range(1, count):
+            rr, cc = np.nonzero(labels == k)
+            if rr.size < 4 or not dip[rr, cc].any():
+                continue
+            if attach is not None and not attach[rr, cc].any():
+                continue  # a separate object, not a wall of this part
+            missing = value[rr, cc]
+            deficit = float(missing.sum())
+            # its length from the second moments of the dip (a thin strip of length L: L^2 / 12)
+            w = missing / max(deficit, 1e-12)
+            cr, ccn = float(np.sum(w * rr)), float(np.sum(w * cc))
+            cov = np.cov(np.vstack([rr - cr, cc - ccn]), aweights=np.maximum(w, 1e-12))
+            length = math.sqrt(12.0 * max(float(np.linalg.eigvalsh(cov)[-1]), 1e-9))
+            if deficit < 2.0 or deficit / length > THIN_SIGMAS * sigma + 1.0:
+                continue
+            found.append((sign, np.column_stack([cc + c0, rr + r0, missing])))
+    if not found:
+        return none, []
+    pts = np.concatenate([f[1] for f in found])
+    slots = sum(1 for f in found if f[0] > 0)
+    walls = len(found) - slots
+    what = " and ".join(
+        x
+        for x in (
+            f"{slots} narrow slot(s) inside it that never reach the background level (counted as material)"
+            if slots
+            else "",
+            f"{walls} thin wall(s) on it that never reach the part's level (left out)" if walls else "",
+        )
+        if x
+    )
+    warning = (
+        f"part {rings.label}: {what}, about {pts[:, 2].sum():.0f} px2; their uncertainty covers them; scan at a "
+        "higher resolution or with less blur"
+    )
+    return pts, [warning]
 
 
 def strip_profile_integral(profile: np.ndarray, spacing_px: float, background: float, level: float) -> float:
@@ -149,9 +313,147 @@ def edge_quantisation(image: LoadedImage, rings: PartRings) -> EdgeQuantisation:
         bias.append(d / math.sqrt(12.0) * math.exp(-2 * math.pi**2 * noise**2 / max(d * d, 1e-30)))
     bg = edge_lin - half
     ratio = (edge_lin + half) / bg if bg > 1e-6 else math.nan
+    residual, residual_shared, asymmetry = edge_residual_px(image, rings)
     return EdgeQuantisation(
-        edge_rel=step_at(edge_lin) / contrast, level_rel=math.hypot(*bias) / (2 * contrast), level_ratio=ratio
+        edge_rel=step_at(edge_lin) / contrast,
+        level_rel=math.hypot(*bias) / (2 * contrast),
+        level_ratio=ratio,
+        residual_px=tuple(residual),
+        residual_shared_px=tuple(residual_shared),
+        asymmetry_px=asymmetry,
     )
+
+
+# ------------------------------------------------------------------ edge-model residual
+
+#: Offsets (in blur sigmas) along the normal at which each edge profile is compared with
+#: the model, and the distance (sigmas, plus 2 px) of the two samples that set its levels.
+RESIDUAL_OFFSETS_SIGMA = np.arange(-2.0, 2.01, 0.5)
+RESIDUAL_LEVEL_SIGMAS = 3.0
+
+#: Length (px) along the boundary over which the residual is averaged, and its correlation
+#: length: the 8 px block of JPEG's discrete cosine transform (ITU-T T.81), the longest
+#: stretch over which what the residual holds (block quantisation, a corner's rounding,
+#: noise) is shared.
+RESIDUAL_WINDOW_PX = 8.0
+
+
+def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndarray], list[np.ndarray], float]:
+    """Edge displacement (px, 1 sigma) from what the edge model leaves unexplained, per vertex.
+
+    At every vertex the image (linear light, Keys cubic interpolation) is sampled along the
+    normal at ``t`` = -2 ... 2 blur sigmas and normalised between the levels sampled
+    ``3 sigma + 2`` px either side; the model is the blurred straight edge through the
+    vertex, ``Phi(t / sigma)``. What every vertex of a ring shares (the blur's shape
+    against the Gaussian, a slightly wrong sigma) is the ring's mean residual profile and
+    moves no edge (an even point spread function keeps the 0.5 crossing on the edge); it is
+    subtracted. What is left varies from vertex to vertex: JPEG's block quantisation, the
+    rounding of a corner, interpolation against the pixel phase, and the noise. Its mean
+    square, averaged over :data:`RESIDUAL_WINDOW_PX` along the boundary, less the noise's
+    share (the flat-region noise through the cubic interpolant, which the edge term already
+    carries), is a per-pixel error of the normalised image at the edge; divided by the
+    edge's gradient it is a displacement, as for noise (the law of propagation, JCGM
+    100:2008 section 5.1).
+
+    Returns one array per ring (outer first), per vertex, in the rings' vertex order.
+    """
+    all_rings = [rings.outer_px, *rings.holes_px]
+    zero = [np.zeros(len(r)) for r in all_rings]
+    contrast = float(rings.contrast)
+    sigma = float(rings.blur_px)
+    if not (math.isfinite(contrast) and abs(contrast) > 1e-4 and math.isfinite(sigma) and sigma > 0):
+        return zero, [z.copy() for z in zero], 0.0
+    x0, y0, x1, y1 = rings.bbox_px
+    far_px = RESIDUAL_LEVEL_SIGMAS * sigma + 2.0
+    pad = int(math.ceil(far_px + 2 * sigma + 8))
+    c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
+    c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
+    lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
+    shift = np.array([c0, r0], float)
+    t = RESIDUAL_OFFSETS_SIGMA * sigma
+    flat_px = 1.5  # the levels must be flat over this much further out
+    # the same stencil once more, out in the background: the noise alone, to subtract
+    phantom_px = far_px + flat_px + 2.0 * sigma + 1.0
+    offsets = np.concatenate([t, [-far_px, far_px, -far_px - flat_px, far_px + flat_px], t - phantom_px])
+    model = np.asarray(_ndtr(t / sigma))
+    template = np.exp(-0.5 * (t / sigma) ** 2) / math.sqrt(2 * math.pi)
+    lift = template - template[len(t) // 2]  # a shared displacement with the crossing held at t = 0
+    shared: list[float] = []
+    noise_rel_sq = float(rings.noise_rel) ** 2 if math.isfinite(rings.noise_rel) else 0.0
+    out, out_shared = [], []
+    for i, ring in enumerate(all_rings):
+        if len(ring) < 8:
+            out.append(np.zeros(len(ring)))
+            out_shared.append(np.zeros(len(ring)))
+            shared.append(0.0)
+            continue
+        inward = -_normals(ring, i == 0)  # into the material
+        pts = ring[:, None, :] + offsets[None, :, None] * inward[:, None, :] - shift
+        values = cv2.remap(
+            lin, pts[..., 0].astype(np.float32), pts[..., 1].astype(np.float32), cv2.INTER_CUBIC,
+            borderMode=cv2.BORDER_REPLICATE,
+        ).astype(float)  # fmt: skip
+        spacing = float(np.median(np.hypot(*(np.roll(ring, -1, axis=0) - ring).T))) or 1.0
+        half = max(1, int(round(0.5 * RESIDUAL_WINDOW_PX / spacing)))
+        kernel = np.ones(2 * half + 1) / (2 * half + 1)
+
+        def along(v: np.ndarray, kernel: np.ndarray = kernel, half: int = half) -> np.ndarray:
+            return np.convolve(np.concatenate([v[-half:], v, v[:half]]), kernel, mode="valid")
+
+        phantom = values[:, -len(t) :]
+        values = values[:, : -len(t)]
+        bg = along(values[:, -4])
+        local_contrast = along(values[:, -3]) - bg
+        # where the levels 3 sigma + 2 px away are not flat (a thin wall, another edge, a
+        # corner's far side) the profile is no single edge's: left to the wall term
+        slope = np.maximum(np.abs(values[:, -2] - values[:, -4]), np.abs(values[:, -1] - values[:, -3]))
+        valid = (along(slope) < 0.05 * abs(contrast)) & (np.abs(local_contrast / contrast - 1.0) < 0.5)
+        local_contrast = np.where(valid, local_contrast, contrast)
+        norm = (values[:, :-4] - bg[:, None]) / local_contrast[:, None]
+        e = norm - model
+        mean_e = e[valid].mean(axis=0) if valid.any() else e.mean(axis=0)
+        if i == 0:
+            # the curvature step (segment.rings.correct_curvature) put the vertices about
+            # (sigma^2 / 2 + h^2 / 12) k outside the crossing on purpose: add it back
+            curvature_shift = np.einsum("ij,ij->i", correct_curvature(ring, sigma) - ring, -inward)
+            per_vertex = (-sigma * (0.5 * (e + e[:, ::-1]) @ lift) / float(lift @ lift) + curvature_shift)[valid]
+            if per_vertex.size >= 16:
+                centre = float(np.median(per_vertex))  # robust to the corners' profiles
+                spread = 1.4826 * float(np.median(np.abs(per_vertex - centre)))
+                moved = centre
+                # less the noise of that estimate (vertices correlated over the window, conservatively)
+                n_eff = max(per_vertex.size * spacing / RESIDUAL_WINDOW_PX, 1.0)
+                shared.append(math.sqrt(max(moved * moved - spread * spread / n_eff, 0.0)))
+            else:
+                shared.append(0.0)
+        e = e - mean_e  # the ring's shared profile moves no edge
+        # least-squares displacement of each profile: Phi((t - d) / s) - Phi(t / s) = -d phi(t / s) / s
+        # (even in t; a wrong width is odd and drops out)
+        delta = -sigma * (e @ template) / float(template @ template)
+        window_mean = along(delta)
+        # variance density (px^2 x px) of the displacement field, correlations up to the window
+        # included: W E[m^2] for the window mean m; less the same for the noise alone (the
+        # stencil in the background)
+        e_noise = (phantom - along(phantom.mean(axis=1))[:, None]) / local_contrast[:, None]
+        noise_mean = along(-sigma * (e_noise @ template) / float(template @ template))
+        noise_density = RESIDUAL_WINDOW_PX * float(np.mean(noise_mean**2))
+        # the vertices sit on the noisy crossing, so the fit sees the crossing's own noise
+        # displacement too: the edge term's (noise / gradient)^2 over its 1 px correlation length
+        crossing_density = noise_rel_sq * 2 * math.pi * sigma * sigma * 1.0
+        density = np.maximum(RESIDUAL_WINDOW_PX * along(window_mean**2) - noise_density - crossing_density, 0.0)
+        sigma_px = np.sqrt(density / RESIDUAL_WINDOW_PX)
+        # where the levels are flat the residual varies from block to block (independent over
+        # the window); where they are not (corners, narrow features) it is the same kind of
+        # misfit wherever the geometry repeats (every corner of a polygon): shared
+        out.append(np.where(valid, sigma_px, 0.0))
+        out_shared.append(np.where(valid, 0.0, sigma_px))
+    return out, out_shared, (abs(shared[0]) if shared else 0.0)
+
+
+def _ndtr(x: np.ndarray) -> np.ndarray:
+    from scipy.special import ndtr
+
+    return np.asarray(ndtr(x))
 
 
 # ------------------------------------------------------------------------ thin walls
@@ -497,7 +799,21 @@ def resolve_walls(
             if rel_est.size >= 8 and float(np.median(reach_ratio[solved])) >= OWN_LEVEL_MIN_REACH:
                 ratio = float(np.median(rel_est))
                 spread = 1.4826 * float(np.median(np.abs(rel_est - ratio))) / math.sqrt(rel_est.size)
-                part_level_rel_u = math.hypot(spread / ratio, LEVEL_MODEL_REL_U)
+                # the blur's shape against the Gaussian biases the peak by about 1 %; where the
+                # peak equation is flat (narrow walls) that moves the level by much more:
+                # propagate it through the equation
+                ok = solved & np.isfinite(f_est)
+                f_moved = _solve_level(
+                    np.abs(peak_val[walls_only][ok]) * (1 + PEAK_MODEL_REL_U),
+                    np.abs(integral[walls_only][ok]),
+                    variance[ok],
+                )
+                sensitivity = float(np.nanmedian(np.abs(f_moved / f_est[ok] - 1.0))) if ok.any() else math.inf
+                if not math.isfinite(sensitivity):
+                    sensitivity = 1.0
+                part_level_rel_u = math.hypot(spread / ratio, max(sensitivity, LEVEL_MODEL_REL_U))
+                if part_level_rel_u > OWN_LEVEL_MAX_REL_U:
+                    ratio = math.nan  # too uncertain to resolve the walls: say so
         if math.isfinite(ratio):
             f_here = math.copysign(1.0, contrast) * ratio * np.abs(bg_here)
             level_source = "the walls' own profiles (peak and integral)"
