@@ -959,6 +959,10 @@ def _half_change(
     return term
 
 
+#: Share of a tone move taken as uneven along the outline (first harmonic), for centroids.
+TONE_UNEVEN = 0.05
+
+
 def _tone_terms(
     image: LoadedImage, found: list[PartRings], parts: list[Part], mm_per_px: float, tone_known: bool
 ) -> list[str]:
@@ -972,8 +976,10 @@ def _tone_terms(
     (:func:`~scanmass.segment.symmetry.reading_shift`; rendered edges with blur 0.6-1.5 px:
     an S-shaped curve, a 2.2 power curve and unsharp masks of amount 0.3-1.5 moved them
     by 0.07-0.75 of it): the part's material is grown by that move and half the change
-    of each figure is the term (the move itself at 2 sigma). Parts are replaced in
-    ``parts``; the warnings are returned.
+    of each figure is the term (the move itself at 2 sigma); the centroid's term also
+    holds :data:`TONE_UNEVEN` of the move (an uneven move shifts even a round part's
+    centroid: a strongly sharpened ring moved its centroid by 0.002 px). Parts are
+    replaced in ``parts``; the warnings are returned.
     """
     warnings = []
     linear, _ = encoding_lut("linear", len(image.to_linear))
@@ -989,6 +995,12 @@ def _tone_terms(
         grown_outer = offset_ring(outer, move_mm)
         grown_holes = [offset_ring(h, -move_mm) for h in holes]
         term = _half_change(outer, holes, grown_outer, grown_holes)
+        # the move is not quite even along the outline (it depends on the edge's angle to the
+        # pixel grid and on the local contrast): a first-harmonic variation of TONE_UNEVEN of it
+        # moves the centroid of a round part by that fraction of the move, which an even
+        # offset never does
+        for axis in ("centroid_x_mm", "centroid_y_mm"):
+            term[axis] = combine(term[axis], TONE_UNEVEN * move_mm)
         parts[n] = _with_extra_term(part, "tone", term, grown_holes if len(holes) == len(part.holes) else [])
         if halo.found:
             warnings.append(
