@@ -15,12 +15,23 @@ warning and an uncertainty term.
 
 from __future__ import annotations
 
+import math
+import warnings
 from dataclasses import dataclass
 
 import cv2
 import numpy as np
 
-__all__ = ["ShadowRisk", "shadow_risk", "SHADOW_MIN_ELEVATION_DEG", "SHADOW_FRACTION"]
+__all__ = [
+    "ShadowRisk",
+    "shadow_risk",
+    "SHADOW_MIN_ELEVATION_DEG",
+    "SHADOW_FRACTION",
+    "EdgeProfileRisk",
+    "edge_profile_risk",
+    "UnclearEdges",
+    "unclear_edges",
+]
 
 #: Lowest elevation of a light assumed for a cast shadow's length (lamps and windows seen
 #: from a table are rarely lower): a shadow reaches thickness / tan(30 deg) = 1.73 x the thickness.
@@ -118,3 +129,179 @@ def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -
         depth=float(np.median(m)),
         foreign_outside_px=int(np.count_nonzero(opened)),
     )
+
+
+# ---------------------------------------------------------------------------------
+# edge profiles: where the outline's step is not a clean one
+# ---------------------------------------------------------------------------------
+
+#: Offsets (px) along the outward normal at which an edge profile is sampled.
+_PROFILE_S_PX = np.arange(-7.0, 10.01, 1.0)
+
+
+@dataclass(frozen=True)
+class EdgeProfileRisk:
+    """Boundary points of one ring whose edge profile is not a clean step.
+
+    Attributes
+    ----------
+    flagged : (N,) bool ndarray
+        Per ring vertex: the profile across the edge is not a clean step between the
+        part's level and the paper's (a ramp, a dip beyond the paper level, or a part
+        level that collapses towards the paper's).
+    displacement_px : (N,) float ndarray
+        Per vertex, how far (px) the edge may have moved: the width of the unclear part of
+        the profile; zero where not flagged.
+    kinds : dict
+        Count of flagged vertices per reason (``"ramp"``, ``"dip"``, ``"collapse"``).
+    """
+
+    flagged: np.ndarray
+    displacement_px: np.ndarray
+    kinds: dict
+
+
+def _ring_normals(ring_px: np.ndarray) -> np.ndarray:
+    tangent = np.roll(ring_px, -1, axis=0) - np.roll(ring_px, 1, axis=0)
+    tn = np.hypot(tangent[:, 0], tangent[:, 1])
+    tn[tn == 0] = 1.0
+    return np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
+
+
+def edge_profile_risk(
+    lin: np.ndarray,
+    part_mask: np.ndarray,
+    ring_px: np.ndarray,
+    part_level: float,
+    paper_level: float,
+    blur_px: float,
+) -> EdgeProfileRisk:
+    """Test each vertex of a ring for a clean step between the part's level and the paper's.
+
+    Parameters
+    ----------
+    lin : (H, W) float ndarray
+        Grey crop in linear light.
+    part_mask : (H, W) bool ndarray
+        The part (holes cleared) in the crop.
+    ring_px : (N, 2) ndarray
+        Ring vertices (x_px, y_px) in crop coordinates (an outline or a hole).
+    part_level, paper_level : float
+        The part's and the paper's level (linear) the outline was found between.
+    blur_px : float
+        The edge's blur (Gaussian sigma, px).
+    """
+    n = len(ring_px)
+    normals = _ring_normals(ring_px)
+    probe = ring_px + 2.5 * normals
+    pi = np.clip(np.round(probe).astype(int), 0, [part_mask.shape[1] - 1, part_mask.shape[0] - 1])
+    if np.mean(part_mask[pi[:, 1], pi[:, 0]]) > 0.5:
+        normals = -normals  # the normals point away from the part
+    s = _PROFILE_S_PX
+    pts = ring_px[:, None, :] + s[None, :, None] * normals[:, None, :]
+    mx = pts[..., 0].astype(np.float32)
+    my = pts[..., 1].astype(np.float32)
+    prof = cv2.remap(lin.astype(np.float32), mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    inside = cv2.remap(part_mask.astype(np.float32), mx, my, cv2.INTER_NEAREST, borderMode=cv2.BORDER_CONSTANT)
+    contrast = part_level - paper_level
+    if n == 0 or abs(contrast) < 1e-6:
+        return EdgeProfileRisk(np.zeros(n, bool), np.zeros(n), {})
+    nrm = (prof - paper_level) / contrast  # 1 = part, 0 = paper
+    b = max(float(blur_px), 0.7) if math.isfinite(blur_px) else 1.0
+    near_in = (s <= -2.5 * b) & (s >= -2.5 * b - 3.0)
+    near_out = (s >= 2.5 * b) & (s <= 2.5 * b + 3.0)
+    inner = np.where((inside > 0.5) & near_in[None, :], nrm, np.nan)
+    outer = np.where((inside < 0.5) & near_out[None, :], nrm, np.nan)
+    with np.errstate(all="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # an all-NaN row: no sample there
+        part_near = np.nanmedian(inner, axis=1)
+        paper_near = np.nanmedian(outer, axis=1)
+        paper_min = np.nanmin(outer, axis=1)
+        part_max = np.nanmax(inner, axis=1)
+    ramp = paper_near > 0.2
+    dip = (paper_min < -0.25) & ~(part_max > 1.0 - 0.8 * paper_min)  # a halo overshoots on both sides
+    collapse = part_near < 0.7
+    flagged = np.nan_to_num(ramp | dip | collapse, nan=0).astype(bool)
+    # how far the edge may have moved: for a dip, to the darkest (or brightest) point beyond
+    # the paper level outside; for a ramp or a collapsed level, the width of the unclear part of
+    # the profile (from where it last is part-like inside to where it first is paper-like
+    # outside) less that of a clean blurred step
+    idx = np.arange(len(s))
+    part_like = nrm >= 0.9
+    paper_like = np.abs(nrm) <= 0.15
+    last_in = np.where(part_like & (s[None, :] <= 0), idx[None, :], -1).max(axis=1)
+    first_out = np.where(paper_like & (s[None, :] >= 0), idx[None, :], len(s)).min(axis=1)
+    last_in_s = np.where(last_in >= 0, s[np.clip(last_in, 0, len(s) - 1)], s[0])
+    first_out_s = np.where(first_out < len(s), s[np.clip(first_out, 0, len(s) - 1)], s[-1])
+    width = np.maximum(first_out_s - last_in_s - 2 * 1.65 * b, 0.0)
+    # the first local minimum beyond the paper level outside the edge: the step from the part
+    # down into the dip lies between the outline and it
+    below = nrm < -0.25
+    turning = np.zeros_like(below)
+    turning[:, :-1] = nrm[:, 1:] >= nrm[:, :-1] - 0.02
+    first_min = np.where(below & turning & (s[None, :] >= 0), idx[None, :], len(s) - 1).min(axis=1)
+    dip_d = np.clip(s[first_min], 0.0, 6.0) + b
+    disp = np.where(ramp | np.nan_to_num(collapse, nan=0).astype(bool), np.maximum(width, b), 0.0)
+    disp = np.where(dip, np.maximum(disp, dip_d), disp)
+    kinds = {
+        "ramp": int(np.count_nonzero(ramp)),
+        "dip": int(np.count_nonzero(dip)),
+        "collapse": int(np.count_nonzero(np.nan_to_num(collapse, nan=0).astype(bool))),
+    }
+    return EdgeProfileRisk(flagged, disp, kinds)
+
+
+@dataclass(frozen=True)
+class UnclearEdges:
+    """A part's boundary where the edge profile is not a clean step (:func:`unclear_edges`).
+
+    Attributes
+    ----------
+    length_px : float
+        Length of all the part's rings (px).
+    flagged_px : float
+        Length of the flagged stretches (px).
+    moved_px2 : float
+        Sum over flagged vertices of their stretch's length times its plausible
+        displacement (px2): the area the outline could gain or lose if every flagged
+        stretch moved by its displacement in one direction.
+    ring_mean_px : list of float
+        Per ring (outline first, then holes): the mean plausible displacement along it (px).
+    kinds : dict
+        Flagged vertices per reason, over all rings.
+    """
+
+    length_px: float
+    flagged_px: float
+    moved_px2: float
+    ring_mean_px: list
+    kinds: dict
+
+
+def unclear_edges(lin: np.ndarray, part_mask: np.ndarray, rings_px: list, blur_px: float) -> UnclearEdges | None:
+    """:func:`edge_profile_risk` over a part's rings, with the part and paper levels taken here.
+
+    The paper level is the median of the crop 8-20 px outside the part, the part level the
+    median more than 3 px inside it. None without enough of either.
+    """
+    mask8 = part_mask.astype(np.uint8)
+    outside = cv2.distanceTransform(1 - mask8, cv2.DIST_L2, 3)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    paper_px = lin[(outside > 8) & (outside < 20)]
+    part_px = lin[inside > 3]
+    if paper_px.size < 50 or part_px.size < 50:
+        return None
+    paper, part = float(np.median(paper_px)), float(np.median(part_px))
+    total = flagged = moved = 0.0
+    means, kinds = [], {"ramp": 0, "dip": 0, "collapse": 0}
+    for ring in rings_px:
+        ring = np.asarray(ring, float)
+        risk = edge_profile_risk(lin, part_mask, ring, part, paper, blur_px)
+        seg = 0.5 * (np.hypot(*(np.roll(ring, -1, 0) - ring).T) + np.hypot(*(ring - np.roll(ring, 1, 0)).T))
+        total += float(seg.sum())
+        flagged += float(seg[risk.flagged].sum())
+        moved += float(np.sum(seg * risk.displacement_px))
+        means.append(float(np.sum(seg * risk.displacement_px) / max(seg.sum(), 1e-9)))
+        for k, v in risk.kinds.items():
+            kinds[k] += v
+    return UnclearEdges(total, flagged, moved, means, kinds)
