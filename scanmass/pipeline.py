@@ -26,7 +26,15 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.segment.rings import PartRings, segment
-from scanmass.segment.shadow import SHADOW_FRACTION, shadow_band_px, shadow_risk, unclear_edges
+from scanmass.segment.shadow import (
+    SHADOW_FRACTION,
+    SHADOW_MIN_ELEVATION_DEG,
+    dark_pits,
+    looks_like_shadow_only,
+    shadow_band_px,
+    shadow_risk,
+    unclear_edges,
+)
 from scanmass.segment.symmetry import reading_shift
 from scanmass.segment.thin import EdgeQuantisation, WallResult, edge_quantisation, resolve_walls
 from scanmass.segment.touching import touching_lobes
@@ -469,10 +477,12 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
             path=image.path,
         ) from None
     _check_within_support(scale, result, image.path)
+    _refuse_shadows_only(image, scale, result)
     warnings = list(scale.warnings)
     warnings += _unknown_thickness(scale, result, thickness_mm)
     warnings += _cast_shadows(image, scale, result, thickness_mm)
     warnings += _unclear_edges(image, scale, result)
+    warnings += _hidden_holes(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": method})
     return result
@@ -565,6 +575,49 @@ def _photo_colour(image: LoadedImage) -> np.ndarray | None:
     if np.array_equal(b, g) and np.array_equal(g, r):
         return None  # a grey photo: colour tells nothing
     return colour
+
+
+def _refuse_shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement) -> None:
+    """Refuse a photo whose only found regions look like cast shadows (light parts on light paper).
+
+    A white part on white paper is not told from the paper; what is found instead is its
+    shadow and the dark bottoms of its holes: regions of the paper's colour, darkened, that
+    fade towards their soft outer edge (:func:`~scanmass.segment.shadow.looks_like_shadow_only`).
+
+    Raises
+    ------
+    SegmentationError
+        When every found part looks like that, naming the fix (a dark backing sheet or a backlight).
+    """
+    colour = _photo_colour(image)
+    if colour is None or not result.parts:
+        return
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, scale.plane_map.mm_per_px)
+    h_px, w_px = image.grey.shape
+    for part in result.parts:
+        if part.outline_mm is None:
+            return
+        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+        pad = int(band_px) + 16
+        x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad
+        x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + pad
+        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w_px), min(y1, h_px)
+        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+        cv2.fillPoly(mask, [np.round(outer_px - [x0, y0]).astype(np.int32)], 1)
+        for h in part.holes:
+            if h.outline_mm is not None:
+                hp = scale.plane_map.to_px(np.asarray(h.outline_mm, float))
+                cv2.fillPoly(mask, [np.round(hp - [x0, y0]).astype(np.int32)], 0)
+        risk = shadow_risk(lut[colour[y0:y1, x0:x1]], mask.astype(bool), band_px)
+        if risk is None or not looks_like_shadow_only(risk):
+            return
+    raise SegmentationError(
+        f"no part found, only {len(result.parts)} region(s) that look like cast shadows (the paper's colour, "
+        "darkened, fading outwards): a light part on light paper cannot be told from the paper; lay the parts on a "
+        "dark backing sheet, or light them from below (a backlight)",
+        path=image.path,
+    )
 
 
 def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
@@ -734,6 +787,79 @@ def _unclear_edges(image: LoadedImage, scale: PhotoScale, result: Measurement) -
         "reflection that looks like the paper, a dark band or a soft ramp beside the edge), so the outline may sit "
         "off its edge there; the uncertainty includes it (term 'unclear_edge'); use diffuse light, a matte part, "
         "or a backlight"
+    ]
+
+
+#: Smallest dark pit (mm2) inside a part taken as a possible hidden hole.
+HIDDEN_HOLE_MIN_AREA_MM2 = 3.0
+
+
+def _hidden_holes(image: LoadedImage, scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
+    """Flag dark round pits inside parts: the bottom of a through-hole the outline did not open.
+
+    A deep hole in a thick part looks dark, not like paper: its wall hides part of its
+    bottom and shades the rest. Such a pit (:func:`~scanmass.segment.shadow.dark_pits`) is
+    not measured as a hole; the part gets a warning with where it is and the term
+    ``hidden_hole``: a hole at the top face as wide as the pit plus the longest shadow of the
+    wall (thickness / tan 30 deg) would be a 2-sigma change of every figure.
+    ``--thickness 0`` (a sheet-thin part) has no deep holes.
+    """
+    if thickness_mm == 0 or not result.parts:
+        return []
+    thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    mm_per_px = scale.plane_map.mm_per_px
+    h_px, w_px = image.grey.shape
+    found: list[str] = []
+    for n, part in enumerate(result.parts):
+        if part.outline_mm is None:
+            continue
+        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+        holes_px = [
+            scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes if h.outline_mm is not None
+        ]
+        x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - 4
+        x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + 4
+        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w_px), min(y1, h_px)
+        if x1 - x0 < 8 or y1 - y0 < 8:
+            continue
+        off = np.array([x0, y0], float)
+        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+        cv2.fillPoly(mask, [np.round(outer_px - off).astype(np.int32)], 1)
+        for hp in holes_px:
+            cv2.fillPoly(mask, [np.round(hp - off).astype(np.int32)], 0)
+        pits = dark_pits(lut[image.grey[y0:y1, x0:x1]], mask.astype(bool), HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2)
+        if not pits:
+            continue
+        xc, yc = part.centroid_mm
+        term = dict.fromkeys(_figure_values(section_properties(part.outline_mm, [])), 0.0)
+        where = []
+        for x_px, y_px, d_px in pits:
+            x_mm, y_mm = scale.plane_map.to_mm(np.array([[x_px + x0, y_px + y0]]))[0]
+            d_mm = d_px * mm_per_px
+            bound_mm = d_mm + thick / math.tan(math.radians(SHADOW_MIN_ELEVATION_DEG))
+            a = 0.5 * 0.25 * math.pi * bound_mm**2  # a hole of the bound's size is 2 sigma
+            dx, dy, r2 = x_mm - xc, y_mm - yc, bound_mm**2 / 16.0
+            term["area_mm2"] += a
+            term["centroid_x_mm"] += a * abs(dx) / max(part.area_mm2, 1e-9)
+            term["centroid_y_mm"] += a * abs(dy) / max(part.area_mm2, 1e-9)
+            term["perimeter_mm"] += 0.5 * math.pi * bound_mm
+            term["ixx_mm4"] += a * (dy**2 + r2)
+            term["iyy_mm4"] += a * (dx**2 + r2)
+            term["ixy_mm4"] += a * abs(dx * dy)
+            term["polar_mm4"] += a * (dx**2 + dy**2 + 2 * r2)
+            where.append(f"{d_mm:.2g} mm across at ({x_mm:.1f}, {y_mm:.1f}) mm")
+        term["i1_mm4"] = term["i2_mm4"] = term["polar_mm4"]
+        term["principal_angle_deg"] = 0.0
+        result.parts[n] = _with_extra_term(part, "hidden_hole", term, [])
+        found.append(f"part {part.label} (a pit {'; a pit '.join(where)})")
+    if not found:
+        return []
+    return [
+        f"possible hidden hole: {', '.join(found)}: a dark round region darker than the part itself, as the bottom "
+        "of a deep hole is; it is not measured as a hole, and the uncertainty includes a hole there (term "
+        "'hidden_hole'); if it is a hole, measure the part on a light box (backlight) or photograph it from straight "
+        "above in diffuse light"
     ]
 
 
