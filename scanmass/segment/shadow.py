@@ -371,8 +371,8 @@ def dark_pits(
     level = float(np.median(lin[inside > 3]))
     if level <= 0:
         return []
-    pit = (interior & (lin < PIT_DEPTH * level)).astype(np.uint8)
-    pit = cv2.morphologyEx(pit, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+    dark = (interior & (lin < PIT_DEPTH * level)).astype(np.uint8)
+    pit = cv2.morphologyEx(dark, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
     count, labels, stats, centroids = cv2.connectedComponentsWithStats(pit, connectivity=8)
     out = []
     for k in range(1, count):
