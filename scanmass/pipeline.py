@@ -477,10 +477,11 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
             path=image.path,
         ) from None
     _check_within_support(scale, result, image.path)
-    _refuse_shadows_only(image, scale, result)
+    colour = _photo_colour(image)  # decoded once for the colour checks
+    _refuse_shadows_only(image, scale, result, colour)
     warnings = list(scale.warnings)
     warnings += _unknown_thickness(scale, result, thickness_mm)
-    warnings += _cast_shadows(image, scale, result, thickness_mm)
+    warnings += _cast_shadows(image, scale, result, thickness_mm, colour)
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
@@ -577,7 +578,7 @@ def _photo_colour(image: LoadedImage) -> np.ndarray | None:
     return colour
 
 
-def _refuse_shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement) -> None:
+def _refuse_shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray | None) -> None:
     """Refuse a photo whose only found regions look like cast shadows (light parts on light paper).
 
     A white part on white paper is not told from the paper; what is found instead is its
@@ -589,7 +590,6 @@ def _refuse_shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurem
     SegmentationError
         When every found part looks like that, naming the fix (a dark backing sheet or a backlight).
     """
-    colour = _photo_colour(image)
     if colour is None or not result.parts:
         return
     lut = np.asarray(image.to_linear, dtype=np.float32)
@@ -620,7 +620,13 @@ def _refuse_shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurem
     )
 
 
-def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
+def _cast_shadows(
+    image: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    thickness_mm: float | None,
+    colour: np.ndarray | None = None,
+) -> list[str]:
     """Flag parts whose edge band looks like darkened paper (a cast shadow colour cannot rule out).
 
     For each part the band a shadow can cover (:func:`~scanmass.segment.shadow.shadow_band_px`,
@@ -632,7 +638,8 @@ def _cast_shadows(image: LoadedImage, scale: PhotoScale, result: Measurement, th
     """
     if thickness_mm == 0 or not result.parts:
         return []
-    colour = _photo_colour(image)
+    if colour is None:
+        colour = _photo_colour(image)
     if colour is None:
         return []
     thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
