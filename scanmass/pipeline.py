@@ -478,8 +478,8 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
         ) from None
     _check_within_support(scale, result, image.path)
     colour = _photo_colour(image)  # decoded once for the colour checks
-    _refuse_shadows_only(image, scale, result, colour)
-    warnings = list(scale.warnings)
+    shadow_only = _shadows_only(image, scale, result, colour)
+    warnings = list(scale.warnings) + shadow_only
     warnings += _unknown_thickness(scale, result, thickness_mm)
     warnings += _cast_shadows(image, scale, result, thickness_mm, colour)
     warnings += _unclear_edges(image, scale, result)
@@ -578,12 +578,14 @@ def _photo_colour(image: LoadedImage) -> np.ndarray | None:
     return colour
 
 
-def _refuse_shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray | None) -> None:
-    """Refuse a photo whose only found regions look like cast shadows (light parts on light paper).
+def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray | None) -> list[str]:
+    """Refuse a photo whose only found regions look like cast shadows; warn of such regions otherwise.
 
     A white part on white paper is not told from the paper; what is found instead is its
     shadow and the dark bottoms of its holes: regions of the paper's colour, darkened, that
     fade towards their soft outer edge (:func:`~scanmass.segment.shadow.looks_like_shadow_only`).
+    When some found parts are real, such a region is kept (a real part may look like that
+    too) and named in a warning.
 
     Raises
     ------
@@ -591,13 +593,14 @@ def _refuse_shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurem
         When every found part looks like that, naming the fix (a dark backing sheet or a backlight).
     """
     if colour is None or not result.parts:
-        return
+        return []
     lut = np.asarray(image.to_linear, dtype=np.float32)
     band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, scale.plane_map.mm_per_px)
     h_px, w_px = image.grey.shape
+    shadows = []
     for part in result.parts:
         if part.outline_mm is None:
-            return
+            continue
         outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
         pad = int(band_px) + 16
         x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad
@@ -610,14 +613,22 @@ def _refuse_shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurem
                 hp = scale.plane_map.to_px(np.asarray(h.outline_mm, float))
                 cv2.fillPoly(mask, [np.round(hp - [x0, y0]).astype(np.int32)], 0)
         risk = shadow_risk(lut[colour[y0:y1, x0:x1]], mask.astype(bool), band_px)
-        if risk is None or not looks_like_shadow_only(risk):
-            return
-    raise SegmentationError(
-        f"no part found, only {len(result.parts)} region(s) that look like cast shadows (the paper's colour, "
-        "darkened, fading outwards): a light part on light paper cannot be told from the paper; lay the parts on a "
-        "dark backing sheet, or light them from below (a backlight)",
-        path=image.path,
-    )
+        if risk is not None and looks_like_shadow_only(risk):
+            shadows.append(part.label)
+    if not shadows:
+        return []
+    if len(shadows) == len(result.parts):
+        raise SegmentationError(
+            f"no part found, only {len(shadows)} region(s) that look like cast shadows (the paper's colour, "
+            "darkened, fading outwards): a light part on light paper cannot be told from the paper; lay the parts "
+            "on a dark backing sheet, or light them from below (a backlight)",
+            path=image.path,
+        )
+    return [
+        f"shadow only: {', '.join(f'part {n}' for n in shadows)} look(s) like a cast shadow alone (the paper's "
+        "colour, darkened, fading outwards), perhaps of a light part that was not found: do not use their figures; "
+        "lay light parts on a dark backing sheet, or use a backlight"
+    ]
 
 
 def _cast_shadows(
