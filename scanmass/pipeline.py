@@ -597,7 +597,7 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
     lut = np.asarray(image.to_linear, dtype=np.float32)
     band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, scale.plane_map.mm_per_px)
     h_px, w_px = image.grey.shape
-    shadows = []
+    shadows: list[str] = []
     for part in result.parts:
         if part.outline_mm is None:
             continue
@@ -614,7 +614,7 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
                 cv2.fillPoly(mask, [np.round(hp - [x0, y0]).astype(np.int32)], 0)
         risk = shadow_risk(lut[colour[y0:y1, x0:x1]], mask.astype(bool), band_px)
         if risk is not None and looks_like_shadow_only(risk):
-            shadows.append(part.label)
+            shadows.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
     if not shadows:
         return []
     if len(shadows) == len(result.parts):
@@ -625,7 +625,7 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
             path=image.path,
         )
     return [
-        f"shadow only: {', '.join(f'part {n}' for n in shadows)} look(s) like a cast shadow alone (the paper's "
+        f"shadow only: {', '.join(shadows)} look(s) like a cast shadow alone (the paper's "
         "colour, darkened, fading outwards), perhaps of a light part that was not found: do not use their figures; "
         "lay light parts on a dark backing sheet, or use a backlight"
     ]
