@@ -9,6 +9,16 @@ white; where much of the band is shadow-like, the outline may include a cast sha
 colour alone cannot tell: dark neutral parts (steel reflecting a dark room, black plastic)
 look the same as deep shadow.
 
+A region found where only a shadow is (a white part on white paper leaves nothing else to
+find) is paper-coloured throughout and fades from dark to its soft outer edge
+(:func:`looks_like_shadow_only`).
+
+Metal reflecting the light can look like the paper along part of its outline: across the
+edge the profile is then no clean step between the part's level and the paper's, but a dip
+beyond the paper level, a part level that collapses towards the paper's, or a wide ramp
+(:func:`edge_profile_risk`, :func:`unclear_edges`). A deep hole in a thick part looks dark,
+not like paper: a round pit darker than the part itself (:func:`dark_pits`).
+
 This module only measures the risk (pixels, fractions); the pipeline turns it into a
 warning and an uncertainty term.
 """
