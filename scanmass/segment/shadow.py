@@ -230,6 +230,18 @@ def edge_profile_risk(
         The part's and the paper's level (linear) the outline was found between.
     blur_px : float
         The edge's blur (Gaussian sigma, px).
+
+    Examples
+    --------
+    A bright part (1.0) left of column 30, a band darker than the paper (0.4, 3 px), then
+    the paper (0.75): every vertex of the straight edge is flagged as a dip.
+
+    >>> lin = np.full((40, 60), 0.75, np.float32); lin[:, :30] = 1.0; lin[:, 30:33] = 0.4
+    >>> mask = np.zeros((40, 60), bool); mask[:, :30] = True
+    >>> ring = np.column_stack([np.full(20, 29.5), np.arange(10.0, 30.0)])
+    >>> risk = edge_profile_risk(lin, mask, ring, part_level=1.0, paper_level=0.75, blur_px=0.7)
+    >>> bool(risk.flagged[1:-1].all()), risk.kinds["dip"] >= 18
+    (True, True)
     """
     n = len(ring_px)
     normals = _ring_normals(ring_px)
@@ -372,6 +384,14 @@ def dark_pits(
     -------
     list of (x_px, y_px, diameter_px)
         Centre (crop coordinates) and equal-area diameter of each pit.
+
+    Examples
+    --------
+    >>> lin = np.full((60, 60), 0.6, np.float32)
+    >>> mask = np.zeros((60, 60), bool); mask[10:50, 10:50] = True
+    >>> lin[mask] = 0.03; lin[25:35, 25:35] = 0.005  # a black part with a 10 px dark pit
+    >>> [(round(x, 1), round(y, 1), round(d, 1)) for x, y, d in dark_pits(lin, mask, min_area_px=20)]
+    [(29.5, 29.5, 11.3)]
     """
     mask8 = part_mask.astype(np.uint8)
     inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
