@@ -578,6 +578,32 @@ def _photo_colour(image: LoadedImage) -> np.ndarray | None:
     return colour
 
 
+def _part_crop(
+    image: LoadedImage, scale: PhotoScale, part: Part, pad_px: int
+) -> tuple[tuple[int, int, int, int], np.ndarray, list[np.ndarray]] | None:
+    """A padded crop box (x0, y0, x1, y1) around a part, its mask there (holes cleared) and its rings (crop px).
+
+    None when the part has no outline or the crop is too small.
+    """
+    if part.outline_mm is None or any(h.outline_mm is None for h in part.holes):
+        return None
+    outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+    holes_px = [scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes]
+    h_px, w_px = image.grey.shape
+    x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad_px
+    x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + pad_px
+    x0, y0, x1, y1 = max(int(x0), 0), max(int(y0), 0), min(int(x1), w_px), min(int(y1), h_px)
+    if x1 - x0 < 8 or y1 - y0 < 8:
+        return None
+    off = np.array([x0, y0], float)
+    rings = [outer_px - off, *(hp - off for hp in holes_px)]
+    mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+    cv2.fillPoly(mask, [np.round(rings[0]).astype(np.int32)], 1)
+    for ring in rings[1:]:
+        cv2.fillPoly(mask, [np.round(ring).astype(np.int32)], 0)
+    return (x0, y0, x1, y1), mask.astype(bool), rings
+
+
 def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray | None) -> list[str]:
     """Refuse a photo whose only found regions look like cast shadows; warn of such regions otherwise.
 
@@ -596,23 +622,13 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
         return []
     lut = np.asarray(image.to_linear, dtype=np.float32)
     band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, scale.plane_map.mm_per_px)
-    h_px, w_px = image.grey.shape
     shadows: list[str] = []
     for part in result.parts:
-        if part.outline_mm is None:
+        crop = _part_crop(image, scale, part, int(band_px) + 16)
+        if crop is None:
             continue
-        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
-        pad = int(band_px) + 16
-        x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad
-        x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + pad
-        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w_px), min(y1, h_px)
-        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
-        cv2.fillPoly(mask, [np.round(outer_px - [x0, y0]).astype(np.int32)], 1)
-        for h in part.holes:
-            if h.outline_mm is not None:
-                hp = scale.plane_map.to_px(np.asarray(h.outline_mm, float))
-                cv2.fillPoly(mask, [np.round(hp - [x0, y0]).astype(np.int32)], 0)
-        risk = shadow_risk(lut[colour[y0:y1, x0:x1]], mask.astype(bool), band_px)
+        (x0, y0, x1, y1), mask, _ = crop
+        risk = shadow_risk(lut[colour[y0:y1, x0:x1]], mask, band_px)
         if risk is not None and looks_like_shadow_only(risk):
             shadows.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
     if not shadows:
@@ -755,30 +771,13 @@ def _unclear_edges(image: LoadedImage, scale: PhotoScale, result: Measurement) -
     lut = np.asarray(image.to_linear, dtype=np.float32)
     mm_per_px = scale.plane_map.mm_per_px
     flagged: list[str] = []
-    h_px, w_px = image.grey.shape
     for n, part in enumerate(result.parts):
-        if part.outline_mm is None:
+        crop = _part_crop(image, scale, part, 24)
+        if crop is None:
             continue
-        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
-        holes_px = [
-            scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes if h.outline_mm is not None
-        ]
-        if len(holes_px) != len(part.holes):
-            continue
-        x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - 24
-        x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + 24
-        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w_px), min(y1, h_px)
-        if x1 - x0 < 8 or y1 - y0 < 8:
-            continue
-        off = np.array([x0, y0], float)
-        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
-        cv2.fillPoly(mask, [np.round(outer_px - off).astype(np.int32)], 1)
-        for hp in holes_px:
-            cv2.fillPoly(mask, [np.round(hp - off).astype(np.int32)], 0)
+        (x0, y0, x1, y1), mask, rings = crop
         blur = float(part.uncertainty_terms.get("inputs", {}).get("blur_px", 1.0))
-        risk = unclear_edges(
-            lut[image.grey[y0:y1, x0:x1]], mask.astype(bool), [outer_px - off, *(hp - off for hp in holes_px)], blur
-        )
+        risk = unclear_edges(lut[image.grey[y0:y1, x0:x1]], mask, rings, blur)
         if risk is None or risk.flagged_px < UNCLEAR_EDGE_SHARE * risk.length_px:
             continue
         area_mm2 = UNCLEAR_EDGE_SIGMA_SHARE * risk.moved_px2 * mm_per_px**2
@@ -827,30 +826,18 @@ def _hidden_holes(image: LoadedImage, scale: PhotoScale, result: Measurement, th
     thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
     lut = np.asarray(image.to_linear, dtype=np.float32)
     mm_per_px = scale.plane_map.mm_per_px
-    h_px, w_px = image.grey.shape
     found: list[str] = []
     for n, part in enumerate(result.parts):
-        if part.outline_mm is None:
+        crop = _part_crop(image, scale, part, 4)
+        if crop is None:
             continue
-        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
-        holes_px = [
-            scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes if h.outline_mm is not None
-        ]
-        x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - 4
-        x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + 4
-        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w_px), min(y1, h_px)
-        if x1 - x0 < 8 or y1 - y0 < 8:
-            continue
-        off = np.array([x0, y0], float)
-        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
-        cv2.fillPoly(mask, [np.round(outer_px - off).astype(np.int32)], 1)
-        for hp in holes_px:
-            cv2.fillPoly(mask, [np.round(hp - off).astype(np.int32)], 0)
-        pits = dark_pits(lut[image.grey[y0:y1, x0:x1]], mask.astype(bool), HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2)
+        (x0, y0, x1, y1), mask, _ = crop
+        pits = dark_pits(lut[image.grey[y0:y1, x0:x1]], mask, HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2)
         if not pits:
             continue
         xc, yc = part.centroid_mm
-        term = dict.fromkeys(_figure_values(section_properties(part.outline_mm, [])), 0.0)
+        names = ("area_mm2", "centroid_x_mm", "centroid_y_mm", "perimeter_mm", "principal_angle_deg")
+        term = dict.fromkeys(names + ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"), 0.0)
         where = []
         for x_px, y_px, d_px in pits:
             x_mm, y_mm = scale.plane_map.to_mm(np.array([[x_px + x0, y_px + y0]]))[0]
