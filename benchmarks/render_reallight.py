@@ -422,6 +422,15 @@ def scenes():
             "Standard",
         ),
         (
+            "window-mixed-t0",
+            "window",
+            [("disc", "white-nylon", 3.0, 135, 200, 0), ("l-bracket", "black-plastic", 4.0, 85, 95, -10)],
+            310,
+            0,
+            0,
+            "Standard",
+        ),
+        (
             "window-steel-t25",
             "window",
             [("l-bracket", "brushed-steel", 5.0, 80, 200, 5), ("gasket", "brushed-steel", 2.5, 130, 95, 0)],

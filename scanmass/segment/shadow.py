@@ -9,18 +9,41 @@ white; where much of the band is shadow-like, the outline may include a cast sha
 colour alone cannot tell: dark neutral parts (steel reflecting a dark room, black plastic)
 look the same as deep shadow.
 
+A region found where only a shadow is (a white part on white paper leaves nothing else to
+find) is paper-coloured throughout and fades from dark to its soft outer edge
+(:func:`looks_like_shadow_only`).
+
+Metal reflecting the light can look like the paper along part of its outline: across the
+edge the profile is then no clean step between the part's level and the paper's, but a dip
+beyond the paper level, a part level that collapses towards the paper's, or a wide ramp
+(:func:`edge_profile_risk`, :func:`unclear_edges`). A deep hole in a thick part looks dark,
+not like paper: a round pit darker than the part itself (:func:`dark_pits`).
+
 This module only measures the risk (pixels, fractions); the pipeline turns it into a
 warning and an uncertainty term.
 """
 
 from __future__ import annotations
 
+import math
+import warnings
 from dataclasses import dataclass
 
 import cv2
 import numpy as np
 
-__all__ = ["ShadowRisk", "shadow_risk", "SHADOW_MIN_ELEVATION_DEG", "SHADOW_FRACTION"]
+__all__ = [
+    "ShadowRisk",
+    "shadow_risk",
+    "SHADOW_MIN_ELEVATION_DEG",
+    "SHADOW_FRACTION",
+    "EdgeProfileRisk",
+    "edge_profile_risk",
+    "UnclearEdges",
+    "unclear_edges",
+    "looks_like_shadow_only",
+    "dark_pits",
+]
 
 #: Lowest elevation of a light assumed for a cast shadow's length (lamps and windows seen
 #: from a table are rarely lower): a shadow reaches thickness / tan(30 deg) = 1.73 x the thickness.
@@ -53,6 +76,11 @@ class ShadowRisk:
         the outline left out).
     paper_rgb : (3,) ndarray
         The local paper white, linear light.
+    interior_depth : float
+        Median darkening factor (channel mean / paper white) over the whole part.
+    interior_depth_p10 : float
+        Its 10th percentile: a cast shadow fades from dark (where the caster meets the paper)
+        to its soft outer edge, so it is far below the median; a part's face is much more even.
     """
 
     band_px: int
@@ -61,6 +89,26 @@ class ShadowRisk:
     paper_rgb: np.ndarray
     depth: float = float("nan")
     foreign_outside_px: int = 0
+    interior_depth: float = float("nan")
+    interior_depth_p10: float = float("nan")
+
+
+#: Fewest share of the edge band, the least median darkening and the largest ratio of the 10th
+#: percentile to the median darkening of a region taken as a cast shadow alone (no part in it):
+#: shadows of white parts on the committed renders have 0.97-0.98, 0.14-0.22 and 0.14-0.37;
+#: black, steel and brass parts there have medians of 0.02-0.29 with ratios of 0.5-1.
+SHADOW_ONLY_FRACTION = 0.9
+SHADOW_ONLY_MIN_DEPTH = 0.08
+SHADOW_ONLY_MAX_P10_RATIO = 0.45
+
+
+def looks_like_shadow_only(risk: ShadowRisk) -> bool:
+    """True when a found region is paper-coloured, darkened, and fades as a cast shadow does."""
+    return (
+        risk.fraction >= SHADOW_ONLY_FRACTION
+        and risk.interior_depth >= SHADOW_ONLY_MIN_DEPTH
+        and risk.interior_depth_p10 <= SHADOW_ONLY_MAX_P10_RATIO * risk.interior_depth
+    )
 
 
 def shadow_band_px(thickness_mm: float, mm_per_px: float) -> float:
@@ -110,7 +158,10 @@ def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -
     grid: np.ndarray = np.zeros(part_mask.shape, np.uint8)
     grid[near] = foreign.astype(np.uint8)
     opened = cv2.morphologyEx(grid, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+    whole = colour_lin[inside > 1].mean(axis=1) / float(paper.mean())
     return ShadowRisk(
+        interior_depth=float(np.median(whole)) if whole.size else float("nan"),
+        interior_depth_p10=float(np.percentile(whole, 10)) if whole.size else float("nan"),
         band_px=n_band,
         shadow_like_px=n_like,
         fraction=n_like / n_band,
@@ -118,3 +169,250 @@ def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -
         depth=float(np.median(m)),
         foreign_outside_px=int(np.count_nonzero(opened)),
     )
+
+
+# ---------------------------------------------------------------------------------
+# edge profiles: where the outline's step is not a clean one
+# ---------------------------------------------------------------------------------
+
+#: Offsets (px) along the outward normal at which an edge profile is sampled.
+_PROFILE_S_PX = np.arange(-7.0, 10.01, 1.0)
+
+
+@dataclass(frozen=True)
+class EdgeProfileRisk:
+    """Boundary points of one ring whose edge profile is not a clean step.
+
+    Attributes
+    ----------
+    flagged : (N,) bool ndarray
+        Per ring vertex: the profile across the edge is not a clean step between the
+        part's level and the paper's (a ramp, a dip beyond the paper level, or a part
+        level that collapses towards the paper's).
+    displacement_px : (N,) float ndarray
+        Per vertex, how far (px) the edge may have moved: the width of the unclear part of
+        the profile; zero where not flagged.
+    kinds : dict
+        Count of flagged vertices per reason (``"ramp"``, ``"dip"``, ``"collapse"``).
+    """
+
+    flagged: np.ndarray
+    displacement_px: np.ndarray
+    kinds: dict
+
+
+def _ring_normals(ring_px: np.ndarray) -> np.ndarray:
+    tangent = np.roll(ring_px, -1, axis=0) - np.roll(ring_px, 1, axis=0)
+    tn = np.hypot(tangent[:, 0], tangent[:, 1])
+    tn[tn == 0] = 1.0
+    return np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
+
+
+def edge_profile_risk(
+    lin: np.ndarray,
+    part_mask: np.ndarray,
+    ring_px: np.ndarray,
+    part_level: float,
+    paper_level: float,
+    blur_px: float,
+) -> EdgeProfileRisk:
+    """Test each vertex of a ring for a clean step between the part's level and the paper's.
+
+    Parameters
+    ----------
+    lin : (H, W) float ndarray
+        Grey crop in linear light.
+    part_mask : (H, W) bool ndarray
+        The part (holes cleared) in the crop.
+    ring_px : (N, 2) ndarray
+        Ring vertices (x_px, y_px) in crop coordinates (an outline or a hole).
+    part_level, paper_level : float
+        The part's and the paper's level (linear) the outline was found between.
+    blur_px : float
+        The edge's blur (Gaussian sigma, px).
+
+    Examples
+    --------
+    A bright part (1.0) left of column 30, a band darker than the paper (0.4, 3 px), then
+    the paper (0.75): every vertex of the straight edge is flagged as a dip.
+
+    >>> lin = np.full((40, 60), 0.75, np.float32); lin[:, :30] = 1.0; lin[:, 30:33] = 0.4
+    >>> mask = np.zeros((40, 60), bool); mask[:, :30] = True
+    >>> ring = np.column_stack([np.full(20, 29.5), np.arange(10.0, 30.0)])
+    >>> risk = edge_profile_risk(lin, mask, ring, part_level=1.0, paper_level=0.75, blur_px=0.7)
+    >>> bool(risk.flagged[1:-1].all()), risk.kinds["dip"] >= 18
+    (True, True)
+    """
+    n = len(ring_px)
+    normals = _ring_normals(ring_px)
+    probe = ring_px + 2.5 * normals
+    pi = np.clip(np.round(probe).astype(int), 0, [part_mask.shape[1] - 1, part_mask.shape[0] - 1])
+    if np.mean(part_mask[pi[:, 1], pi[:, 0]]) > 0.5:
+        normals = -normals  # the normals point away from the part
+    s = _PROFILE_S_PX
+    pts = ring_px[:, None, :] + s[None, :, None] * normals[:, None, :]
+    mx = pts[..., 0].astype(np.float32)
+    my = pts[..., 1].astype(np.float32)
+    prof = cv2.remap(lin.astype(np.float32), mx, my, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    inside = cv2.remap(part_mask.astype(np.float32), mx, my, cv2.INTER_NEAREST, borderMode=cv2.BORDER_CONSTANT)
+    contrast = part_level - paper_level
+    if n == 0 or abs(contrast) < 1e-6:
+        return EdgeProfileRisk(np.zeros(n, bool), np.zeros(n), {})
+    nrm = (prof - paper_level) / contrast  # 1 = part, 0 = paper
+    b = max(float(blur_px), 0.7) if math.isfinite(blur_px) else 1.0
+    near_in = (s <= -2.5 * b) & (s >= -2.5 * b - 3.0)
+    near_out = (s >= 2.5 * b) & (s <= 2.5 * b + 3.0)
+    inner = np.where((inside > 0.5) & near_in[None, :], nrm, np.nan)
+    outer = np.where((inside < 0.5) & near_out[None, :], nrm, np.nan)
+    with np.errstate(all="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # an all-NaN row: no sample there
+        part_near = np.nanmedian(inner, axis=1)
+        paper_near = np.nanmedian(outer, axis=1)
+        paper_min = np.nanmin(outer, axis=1)
+        part_max = np.nanmax(inner, axis=1)
+    ramp = paper_near > 0.2
+    dip = (paper_min < -0.25) & ~(part_max > 1.0 - 0.8 * paper_min)  # a halo overshoots on both sides
+    collapse = part_near < 0.7
+    flagged = np.nan_to_num(ramp | dip | collapse, nan=0).astype(bool)
+    # how far the edge may have moved: for a dip, to the darkest (or brightest) point beyond
+    # the paper level outside; for a ramp or a collapsed level, the width of the unclear part of
+    # the profile (from where it last is part-like inside to where it first is paper-like
+    # outside) less that of a clean blurred step
+    idx = np.arange(len(s))
+    part_like = nrm >= 0.9
+    paper_like = np.abs(nrm) <= 0.15
+    last_in = np.where(part_like & (s[None, :] <= 0), idx[None, :], -1).max(axis=1)
+    first_out = np.where(paper_like & (s[None, :] >= 0), idx[None, :], len(s)).min(axis=1)
+    last_in_s = np.where(last_in >= 0, s[np.clip(last_in, 0, len(s) - 1)], s[0])
+    first_out_s = np.where(first_out < len(s), s[np.clip(first_out, 0, len(s) - 1)], s[-1])
+    width = np.maximum(first_out_s - last_in_s - 2 * 1.65 * b, 0.0)
+    # the first local minimum beyond the paper level outside the edge: the step from the part
+    # down into the dip lies between the outline and it
+    below = nrm < -0.25
+    turning = np.zeros_like(below)
+    turning[:, :-1] = nrm[:, 1:] >= nrm[:, :-1] - 0.02
+    first_min = np.where(below & turning & (s[None, :] >= 0), idx[None, :], len(s) - 1).min(axis=1)
+    dip_d = np.clip(s[first_min], 0.0, 6.0) + b
+    disp = np.where(ramp | np.nan_to_num(collapse, nan=0).astype(bool), np.maximum(width, b), 0.0)
+    disp = np.where(dip, np.maximum(disp, dip_d), disp)
+    kinds = {
+        "ramp": int(np.count_nonzero(ramp)),
+        "dip": int(np.count_nonzero(dip)),
+        "collapse": int(np.count_nonzero(np.nan_to_num(collapse, nan=0).astype(bool))),
+    }
+    return EdgeProfileRisk(flagged, disp, kinds)
+
+
+@dataclass(frozen=True)
+class UnclearEdges:
+    """A part's boundary where the edge profile is not a clean step (:func:`unclear_edges`).
+
+    Attributes
+    ----------
+    length_px : float
+        Length of all the part's rings (px).
+    flagged_px : float
+        Length of the flagged stretches (px).
+    moved_px2 : float
+        Sum over flagged vertices of their stretch's length times its plausible
+        displacement (px2): the area the outline could gain or lose if every flagged
+        stretch moved by its displacement in one direction.
+    ring_mean_px : list of float
+        Per ring (outline first, then holes): the mean plausible displacement along it (px).
+    kinds : dict
+        Flagged vertices per reason, over all rings.
+    """
+
+    length_px: float
+    flagged_px: float
+    moved_px2: float
+    ring_mean_px: list
+    kinds: dict
+
+
+def unclear_edges(lin: np.ndarray, part_mask: np.ndarray, rings_px: list, blur_px: float) -> UnclearEdges | None:
+    """:func:`edge_profile_risk` over a part's rings, with the part and paper levels taken here.
+
+    The paper level is the median of the crop 8-20 px outside the part, the part level the
+    median more than 3 px inside it. None without enough of either.
+    """
+    mask8 = part_mask.astype(np.uint8)
+    outside = cv2.distanceTransform(1 - mask8, cv2.DIST_L2, 3)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    paper_px = lin[(outside > 8) & (outside < 20)]
+    part_px = lin[inside > 3]
+    if paper_px.size < 50 or part_px.size < 50:
+        return None
+    paper, part = float(np.median(paper_px)), float(np.median(part_px))
+    total = flagged = moved = 0.0
+    means, kinds = [], {"ramp": 0, "dip": 0, "collapse": 0}
+    for ring in rings_px:
+        ring = np.asarray(ring, float)
+        risk = edge_profile_risk(lin, part_mask, ring, part, paper, blur_px)
+        seg = 0.5 * (np.hypot(*(np.roll(ring, -1, 0) - ring).T) + np.hypot(*(ring - np.roll(ring, 1, 0)).T))
+        total += float(seg.sum())
+        flagged += float(seg[risk.flagged].sum())
+        moved += float(np.sum(seg * risk.displacement_px))
+        means.append(float(np.sum(seg * risk.displacement_px) / max(seg.sum(), 1e-9)))
+        for k, v in risk.kinds.items():
+            kinds[k] += v
+    return UnclearEdges(total, flagged, moved, means, kinds)
+
+
+# ---------------------------------------------------------------------------------
+# deep holes: dark pits inside a dark part
+# ---------------------------------------------------------------------------------
+
+#: A pit is darker than this share of the part's own level (linear light).
+PIT_DEPTH = 0.5
+
+
+def dark_pits(
+    lin: np.ndarray, part_mask: np.ndarray, min_area_px: float, clear_px: float = 3.0
+) -> list[tuple[float, float, float]]:
+    """Closed regions inside a part clearly darker than the part itself, as a deep hole's bottom is.
+
+    A through-hole in a thick part seen from above shows, at its bottom, paper in the shadow
+    of its wall (lit by little more than the room): darker than even a black part's top
+    face, which reflects the light. Such a region is found in the part's interior (more than
+    1.5 px from its outline) where the level is below :data:`PIT_DEPTH` of the part's median
+    level, kept when it is at least ``min_area_px`` and compact (its area at least 0.3 of the
+    circle its largest extent spans) and ``clear_px`` clear of the outline and of the holes
+    found (a dark region that reaches them is a shadow the outline took in, or a hole's wall).
+
+    Returns
+    -------
+    list of (x_px, y_px, diameter_px)
+        Centre (crop coordinates) and equal-area diameter of each pit.
+
+    Examples
+    --------
+    >>> lin = np.full((60, 60), 0.6, np.float32)
+    >>> mask = np.zeros((60, 60), bool); mask[10:50, 10:50] = True
+    >>> lin[mask] = 0.03; lin[25:35, 25:35] = 0.005  # a black part with a 10 px dark pit
+    >>> [(round(x, 1), round(y, 1), round(d, 1)) for x, y, d in dark_pits(lin, mask, min_area_px=20)]
+    [(29.5, 29.5, 11.3)]
+    """
+    mask8 = part_mask.astype(np.uint8)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = inside > 1.5
+    if np.count_nonzero(inside > 3) < 50:
+        return []
+    level = float(np.median(lin[inside > 3]))
+    if level <= 0:
+        return []
+    dark = (interior & (lin < PIT_DEPTH * level)).astype(np.uint8)
+    pit = cv2.morphologyEx(dark, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8))
+    count, labels, stats, centroids = cv2.connectedComponentsWithStats(pit, connectivity=8)
+    out = []
+    for k in range(1, count):
+        area = float(stats[k, cv2.CC_STAT_AREA])
+        if area < min_area_px:
+            continue
+        extent = float(np.hypot(stats[k, cv2.CC_STAT_WIDTH], stats[k, cv2.CC_STAT_HEIGHT]))
+        if area < 0.3 * math.pi * (0.5 * extent) ** 2:
+            continue
+        if float(inside[labels == k].min()) < clear_px:
+            continue  # reaches the outline or a found hole: a shadow inside the outline, a hole's wall
+        out.append((float(centroids[k][0]), float(centroids[k][1]), 2.0 * math.sqrt(area / math.pi)))
+    return out
