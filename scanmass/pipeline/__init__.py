@@ -1,0 +1,36 @@
+"""The measuring pipeline: image -> scale -> segment -> map -> section -> uncertainty.
+
+:func:`measure` is the library's main entry point; the CLI's ``measure`` and ``batch``
+commands and the demo call it.
+
+The stage is split by what it holds: :mod:`~scanmass.pipeline.flow` (the order of the
+stages for scans and photos), :mod:`~scanmass.pipeline.part_terms` (one part's figures and
+terms), :mod:`~scanmass.pipeline.scan_checks` (faces, touching parts, tone, lid) and
+:mod:`~scanmass.pipeline.photo_checks` (parallax, shadows, metal edges, hidden holes).
+"""
+
+from __future__ import annotations
+
+from scanmass.options import MeasureOptions
+from scanmass.pipeline.flow import (
+    measure,
+    measure_image,
+    measure_loaded,
+    measure_photo,
+    photo_scale,
+    scale_method,
+    scan_plane_map,
+)
+from scanmass.pipeline.part_terms import measure_part
+
+__all__ = [
+    "measure",
+    "measure_loaded",
+    "measure_image",
+    "measure_photo",
+    "measure_part",
+    "photo_scale",
+    "scale_method",
+    "scan_plane_map",
+    "MeasureOptions",
+]

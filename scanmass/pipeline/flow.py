@@ -1,0 +1,578 @@
+"""The measuring pipeline: image -> scale -> segment -> map -> section -> uncertainty.
+
+:func:`measure` is the library's main entry point; the CLI's ``measure`` and ``batch``
+commands and the demo call it.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import replace
+from typing import Any
+
+import numpy as np
+
+from scanmass.errors import PartCutError, ScaleError, SegmentationError
+from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
+from scanmass.mapping import MappedPart, map_cut, map_part
+from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
+from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
+from scanmass.pipeline.part_terms import measure_part
+from scanmass.pipeline.photo_checks import (
+    _cast_shadows,
+    _check_within_support,
+    _hidden_holes,
+    _mask_outside,
+    _photo_colour,
+    _shadows_only,
+    _unclear_edges,
+    _unknown_thickness,
+)
+from scanmass.pipeline.scan_checks import (
+    _apply_splits,
+    _face_warnings,
+    _lid_gap_text,
+    _scan_faces,
+    _split_warnings,
+    _tone_terms,
+    _touch_splits,
+    _touching_warnings,
+    _with_cut_term,
+    _with_face_term,
+)
+from scanmass.scale.camera import PhotoScale
+from scanmass.scale.mat_scale import mat_scale
+from scanmass.scale.planemap import PlaneMap
+from scanmass.scale.sheet import sheet_scale
+from scanmass.segment.lidgap import lid_gap
+from scanmass.segment.rings import PartRings, segment
+from scanmass.segment.scanface import FaceResult
+from scanmass.segment.symmetry import reading_shift
+from scanmass.segment.thin import (
+    EdgeQuantisation,
+    WallResult,
+    closed_slots,
+    edge_quantisation,
+    resolve_walls,
+)
+from scanmass.segment.touching import touching_lobes
+
+
+def measure(
+    source: str | os.PathLike | np.ndarray, options: MeasureOptions | None = None, **overrides: Any
+) -> Measurement:
+    """Measure every flat part in a scan.
+
+    Parameters
+    ----------
+    source : path or ndarray
+        An image file (JPEG, PNG, TIFF) or an array (uint8/uint16 sRGB-encoded, float
+        linear light).
+    options : MeasureOptions, optional
+        The measuring options (default: ``MeasureOptions()``); see
+        :class:`scanmass.options.MeasureOptions` for each field, its default and meaning.
+    **overrides
+        Fields of :class:`~scanmass.options.MeasureOptions` by name, applied over
+        ``options``: ``dpi`` (required for arrays and files without a trustworthy DPI;
+        72/96 are treated as unknown), ``dpi_rel_u``, ``level``, ``threshold``,
+        ``min_area_mm2``, ``min_hole_area_mm2``, ``keep_cut``, ``max_pixels``, ``scale``
+        (``auto``/``dpi``/``mat``/``sheet``), ``mat``, ``sheet``, ``printed_x_mm``,
+        ``printed_y_mm``, ``lens``, and ``material``, ``thickness_mm``,
+        ``thickness_u_mm``, ``materials_file``: with a material and a thickness every
+        part gets mass figures; in a photo the thickness also lifts the measured face
+        above the mat (parallax).
+
+    Returns
+    -------
+    Measurement
+
+    Raises
+    ------
+    OptionError
+        An unknown option name (the message names the close match) or a bad value.
+    ScanmassError
+        A one-line, user-fixable problem (bad file, no scale, no part).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> img = np.full((200, 300), 230, np.uint8); img[50:150, 100:200] = 20
+    >>> m = measure(img, dpi=254)
+    >>> round(m.parts[0].area_mm2, 1), [round(c, 2) for c in m.parts[0].centroid_mm]
+    (100.0, [15.0, 10.0])
+    >>> measure(img, MeasureOptions(dpi=254)).parts[0].area_mm2 == m.parts[0].area_mm2
+    True
+    """
+    measurement, _ = measure_loaded(source, options, **overrides)
+    return measurement
+
+
+def measure_loaded(
+    source: str | os.PathLike | np.ndarray, options: MeasureOptions | None = None, **overrides: Any
+) -> tuple[Measurement, LoadedImage]:
+    """Like :func:`measure`, also returning the loaded image (for overlays)."""
+    opts = resolve_options(options, overrides)
+    path = None if isinstance(source, np.ndarray) else os.fspath(source)
+    opts.check(path)
+    if opts.dpi is not None and path is not None and not opts.dpi_override:
+        check_dpi_conflict(path, opts.dpi)
+    image = load_image(source, dpi=opts.dpi, max_pixels=check_max_pixels(opts.max_pixels, path=path))
+    image = apply_encoding(image, opts.encoding)
+    method = scale_method(image, opts)
+    if method == "dpi":
+        result = measure_scan(image, opts)
+    else:
+        # a resolution in the file that was refused as implausible is said, not dropped
+        refused_dpi = image.dpi is None and "came from the file" in (image.dpi_note or "")
+        try:
+            result = measure_photo(image, opts, method)
+        except ScaleError as exc:
+            if refused_dpi:
+                raise ScaleError(f"{exc}; also: {image.dpi_note}", path=image.path) from None
+            raise
+        if refused_dpi:
+            result.warnings.append(f"resolution stored in the file not used: {image.dpi_note}")
+    if opts.material is not None and opts.thickness_mm is not None:  # check() refuses a material alone
+        from scanmass.mass.plate import apply_mass  # mass works on Measurements only
+
+        result = apply_mass(
+            result, opts.material, opts.thickness_mm, thickness_u_mm=opts.thickness_u_mm, materials=opts.materials_file
+        )
+    return result, image
+
+
+#: Largest relative difference between a given and a trustworthy stored DPI used without --dpi-override.
+DPI_CONFLICT_REL = 0.01
+
+
+def check_dpi_conflict(path: str, dpi: float | tuple[float, float]) -> None:
+    """Refuse a given DPI that differs by more than 1 % from a trustworthy one stored in the file.
+
+    Raises
+    ------
+    ScaleError
+        Naming both values and the two ways out (leave out --dpi, or --dpi-override).
+    """
+    given = check_dpi(dpi, path=path)
+    stored, _ = read_dpi(path)
+    if stored is None:
+        return
+    diffs = [max(abs(g / s - 1.0) for g, s in zip(given, order)) for order in (stored, stored[::-1])]
+    if min(diffs) > DPI_CONFLICT_REL:
+        shown = "x".join(f"{v:g}" for v in dict.fromkeys(round(v, 2) for v in stored))
+        want = "x".join(f"{v:g}" for v in dict.fromkeys(given))
+        raise ScaleError(
+            f"--dpi {want} differs by {100 * min(diffs):.0f} % from the {shown} dpi stored in the file; "
+            f"leave out --dpi to use the file's, or pass --dpi-override to use {want} anyway",
+            path=path,
+        )
+
+
+def apply_encoding(image: LoadedImage, encoding: str) -> LoadedImage:
+    """The image with the tone curve the ``encoding`` option asks for (``auto``: as loaded)."""
+    kind, gamma = check_encoding(encoding, path=image.path)
+    if kind == "auto":
+        return image
+    lut, label = encoding_lut(kind, len(image.to_linear), gamma)
+    return replace(image, to_linear=lut, encoding=label)
+
+
+def untagged_reading_shift(image: LoadedImage, parts: list[PartRings]) -> float | None:
+    """For a file without a colour profile: how far (px) a linear reading would move the edges.
+
+    A blurred edge in linear light is point-symmetric about its midpoint, but a tone curve
+    applied to a Gaussian-blurred edge mostly shifts and narrows it while keeping it
+    nearly point-symmetric (rendered edges: quantiles within 0.04 sigma of symmetric for
+    sRGB vs linear readings), so the edges alone cannot tell the encoding apart. What they
+    do give is the size of the question: the median move of the 0.5 crossing across the
+    largest part's clear edges between the sRGB and the linear reading
+    (:func:`scanmass.segment.symmetry.reading_shift`). None for arrays, JPEG files (sRGB
+    in practice) and files that carry a profile or tags.
+    """
+    if image.path is None or image.format == "JPEG" or "assumed" not in image.encoding or not parts:
+        return None
+    largest = max(parts, key=lambda p: p.area_px)
+    linear, _ = encoding_lut("linear", len(image.to_linear))
+    return reading_shift(image, largest, linear)
+
+
+# ---------------------------------------------------------------------------------
+# scale
+# ---------------------------------------------------------------------------------
+
+
+def scale_method(image: LoadedImage, options: MeasureOptions) -> str:
+    """Which scale source to use: ``"dpi"``, ``"mat"`` or ``"sheet"``.
+
+    An explicit ``dpi`` means a scan; a ``sheet`` means a plain sheet; ``scale="mat"``
+    or a given ``mat`` layout means the mat; otherwise (``scale="auto"``) a file with
+    a trustworthy DPI is a scan and anything else is looked for on a mat. The options
+    are already checked (:meth:`~scanmass.options.MeasureOptions.check`).
+    """
+    if options.scale != "auto":
+        return str(options.scale)
+    if options.dpi is not None:
+        return "dpi"
+    if options.sheet is not None:
+        return "sheet"
+    if options.mat is not None:
+        return "mat"
+    return "dpi" if image.dpi is not None else "mat"
+
+
+def scan_plane_map(image: LoadedImage, options: MeasureOptions) -> PlaneMap:
+    """The scale of a flatbed scan from the given or stored DPI."""
+    if image.dpi is None:
+        raise ScaleError(
+            f"no scale: {image.dpi_note or 'the file stores no resolution'}; give the scanner resolution with --dpi N (e.g. --dpi 600)",
+            path=image.path,
+        )
+    return PlaneMap.from_dpi(image.dpi, height_px=image.height_px, rel_u=options.dpi_rel_u, note=image.dpi_note)
+
+
+def photo_scale(image: LoadedImage, options: MeasureOptions, method: str) -> PhotoScale:
+    """The :class:`~scanmass.scale.camera.PhotoScale` of a photo (``method`` "mat" or "sheet")."""
+    if method == "sheet":
+        return sheet_scale(
+            image,
+            str(options.sheet),
+            lens=options.lens,
+            thickness_mm=options.thickness_mm,
+            thickness_u_mm=options.thickness_u_mm,
+        )
+    return mat_scale(
+        image,
+        mat=options.mat,
+        printed_x_mm=options.printed_x_mm,
+        printed_y_mm=options.printed_y_mm,
+        lens=options.lens,
+        thickness_mm=options.thickness_mm,
+        thickness_u_mm=options.thickness_u_mm,
+    )
+
+
+# ---------------------------------------------------------------------------------
+# measuring
+# ---------------------------------------------------------------------------------
+
+
+def measure_scan(image: LoadedImage, options: MeasureOptions) -> Measurement:
+    """Measure a flatbed scan (scale from its DPI), with the checks a scan needs.
+
+    A lid left open on a thick part (:func:`~scanmass.segment.lidgap.lid_gap`) is named:
+    as the reason when no part can be measured (instead of the symptom, e.g. a part
+    touching the image edge), else as a warning.
+
+    Raises
+    ------
+    SegmentationError
+        No part can be measured; with a lid gap the message names it and the fix.
+    """
+    try:
+        result = measure_image(image, options, face_check=True)
+    except SegmentationError:
+        gap = lid_gap(image.grey, image.to_linear)
+        if gap is None:
+            raise
+        mm_per_px = 25.4 / math.sqrt(image.dpi[0] * image.dpi[1]) if image.dpi else None
+        raise SegmentationError(
+            f"{_lid_gap_text(gap, mm_per_px)}, and no part can be told from it; close the lid, or lay a "
+            "white sheet over the part(s), and scan again",
+            path=image.path,
+        ) from None
+    gap = lid_gap(image.grey, image.to_linear)
+    if gap is not None:
+        result.warnings.insert(
+            0,
+            f"{_lid_gap_text(gap, result.scale.mm_per_px)}: parts near that edge may be merged with it or left out; "
+            "close the lid, or lay a white sheet over the part(s)",
+        )
+        result.settings["lid_gap"] = {"side": gap.side, "border_ratio": gap.border_ratio, "sides": list(gap.sides)}
+    return result
+
+
+def measure_image(
+    image: LoadedImage,
+    options: MeasureOptions,
+    *,
+    plane_map: PlaneMap | None = None,
+    roi_px: np.ndarray | None = None,
+    tone_known: bool = True,
+    face_check: bool = False,
+) -> Measurement:
+    """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty.
+
+    ``tone_known`` False (a phone photo read with ``--encoding auto``): the tone curve is
+    not taken as exact sRGB, and every part gets the term ``tone`` (:func:`_tone_terms`).
+    ``face_check`` (flatbed scans): each part's outline is checked for the lamp's shadow
+    beside a thick part (:func:`~scanmass.segment.scanface.scan_face`) and replaced by the
+    face on the glass where the two can be told apart.
+    """
+    if plane_map is None:
+        plane_map = scan_plane_map(image, options)
+    px_area_mm2 = plane_map.mm_per_px**2
+
+    def run_segment(img: LoadedImage) -> Any:
+        try:
+            return segment(
+                img,
+                level=options.level,
+                threshold=options.threshold,
+                min_area_px=options.min_area_mm2 / px_area_mm2,
+                min_hole_area_px=None if options.min_hole_area_mm2 is None else options.min_hole_area_mm2 / px_area_mm2,
+                keep_cut=options.keep_cut,
+                roi_px=roi_px,
+            )
+        except SegmentationError as exc:
+            largest = getattr(exc, "largest_area_px", None)
+            if largest is None:
+                raise
+            raise SegmentationError(
+                f"no part found above the minimum area: the only object(s) found are at most "
+                f"{largest * px_area_mm2:.3g} mm2, below --min-area {options.min_area_mm2:g} mm2; "
+                f"lower it to measure them, e.g. --min-area {_below(largest * px_area_mm2)}",
+                path=img.path,
+            ) from None
+
+    seg = run_segment(image)
+    faces: dict[int, FaceResult] = {}
+    if face_check and seg.polarity.startswith("dark"):
+        seg.parts, faces = _scan_faces(image, seg.parts, options.min_hole_area_mm2 or options.min_area_mm2, px_area_mm2)
+    necks = [touching_lobes(r.outer_px, list(r.holes_px)) for r in seg.parts]
+    splits = _touch_splits(image, seg.parts, seg.polarity, necks)
+    split_notes: list[dict[str, Any]] = []
+    cuts: dict[int, tuple[float, Any]] = {}
+    if options.split_touching:
+        seg.parts, split_notes, cuts = _apply_splits(seg.parts, splits)
+        splits = [None] * len(seg.parts)
+        necks = [None] * len(seg.parts)
+    encoding_note = None
+    extra_warnings: list[str] = []
+    shift_px = untagged_reading_shift(image, seg.parts) if options.encoding == "auto" else None
+    limits = _edge_limits(image, seg.parts, options, closed=roi_px is None)
+    parts = []
+    warnings = extra_warnings + list(seg.warnings)
+    for quant, walls in limits:
+        mapped = map_part(walls.rings, plane_map)
+        wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
+        resid = None
+        if quant is not None and len(quant.residual_px) == len(walls.wall_u_px):
+            # on thin walls the wall term holds what the straight-edge model misses; the
+            # shared residual (corners) joins the wall term, which is taken as shared too
+            resid = [np.where(np.asarray(w) > 0, 0.0, r) for r, w in zip(quant.residual_px, walls.wall_u_px)]
+            resid = _as_mapped_order(walls.rings, resid, mapped, plane_map)
+            corner = [
+                np.hypot(w, np.where(np.asarray(w) > 0, 0.0, c))
+                for c, w in zip(quant.residual_shared_px, walls.wall_u_px)
+            ]
+            wall_u = _as_mapped_order(walls.rings, corner, mapped, plane_map)
+        closed_mm = None
+        if len(walls.closed_px):
+            closed_mm = np.column_stack(
+                [plane_map.to_mm(walls.closed_px[:, :2]), walls.closed_px[:, 2] * plane_map.mm_per_px**2]
+            )
+        part = measure_part(
+            mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm
+        )
+        if walls.rings.label in faces and faces[walls.rings.label].note != "soft edges":
+            part = _with_face_term(part, faces[walls.rings.label], plane_map)
+        if part.label in cuts:
+            cut_u_px, cut_px = cuts[part.label]
+            part = _with_cut_term(
+                part, mapped, plane_map.to_mm(np.asarray(cut_px, float)), cut_u_px * plane_map.mm_per_px
+            )
+        parts.append(part)
+        warnings += walls.warnings
+    tone_note = None
+    if parts:
+        warnings += _tone_terms(image, [w.rings for _, w in limits], parts, plane_map.mm_per_px, tone_known)
+        if not tone_known:
+            tone_note = (
+                "photo: the camera's tone curve is not taken as exact sRGB; each part's uncertainty includes "
+                "half the move of its edges between an sRGB and a linear reading (term 'tone'); pass "
+                "--encoding srgb to take it as exact"
+            )
+    if shift_px is not None and parts:
+        big = max(parts, key=lambda q: q.area_mm2)
+        change_mm2 = abs(shift_px) * plane_map.mm_per_px * big.perimeter_mm
+        pct = 100 * change_mm2 / big.area_mm2
+        encoding_note = (
+            f"no colour profile: read as sRGB by convention; a linear reading would move the edges by "
+            f"{shift_px:+.2f} px ({pct:.2g} % of part {big.label}'s area)"
+        )
+        if change_mm2 > big.area_u_mm2:
+            warnings.insert(
+                0,
+                f"the file has no colour profile and is read as sRGB; if it holds linear light (a scanner's linear "
+                f"or raw output) its edges move by {abs(shift_px):.2f} px ({pct:.2g} % of part {big.label}'s area, "
+                "beyond the stated uncertainty): pass --encoding linear or --encoding srgb to decide",
+            )
+    touching = _face_warnings(faces, plane_map.mm_per_px)
+    touching += _touching_warnings(seg.parts, splits, necks, plane_map.mm_per_px)
+    touching += _split_warnings(split_notes, plane_map.mm_per_px)
+    scale = ScaleInfo(
+        method=plane_map.method,
+        mm_per_px=plane_map.mm_per_px,
+        mm_per_px_rel_u=plane_map.rel_u,
+        dpi=None if plane_map.dpi is None else float(math.sqrt(plane_map.dpi[0] * plane_map.dpi[1])),
+        note=plane_map.note,
+        reprojection_rms_px=plane_map.reprojection_rms_px,
+        reprojection_rms_mm=plane_map.reprojection_rms_mm,
+        terms=dict(plane_map.terms),
+        extra=plane_map.details(),
+    )
+    source = SourceInfo(
+        path=image.path,
+        sha256=image.sha256,
+        width_px=image.width_px,
+        height_px=image.height_px,
+        format=image.format,
+        mode=image.mode,
+        bit_depth=image.bit_depth,
+        orientation_applied=image.orientation,
+    )
+    cut_parts = []
+    for c in seg.cut:
+        cut = map_cut(c, plane_map)
+        cut_parts.append({"bbox_mm": list(cut.bbox_mm), "area_px": cut.area_px})
+    settings = {
+        "level": options.level,
+        "threshold": options.threshold,
+        "min_area_mm2": options.min_area_mm2,
+        "min_hole_area_mm2": options.min_hole_area_mm2,
+        "keep_cut": options.keep_cut,
+        "dpi_rel_u": options.dpi_rel_u,
+        "encoding": image.encoding,
+        "encoding_check": encoding_note,
+        "tone_check": tone_note,
+        "polarity": seg.polarity,
+        "specks_ignored": seg.specks,
+        "specks_largest_mm2": seg.speck_max_area_px * px_area_mm2,
+    }
+    if face_check:
+        settings["scan_face"] = {
+            "measured": "the face on the glass (the sharp edges)",
+            "shadow_left_out": {str(k): f.shadow_px2 * px_area_mm2 for k, f in faces.items() if f.outer_px is not None},
+            "shadow_not_separated": {
+                str(k): f.shadow_px2 * px_area_mm2 for k, f in faces.items() if f.outer_px is None
+            },
+        }
+    if options.split_touching:
+        settings["split_touching"] = [
+            {
+                "parts": note["parts"],
+                "evidence": note["evidence"],
+                "cut_length_mm": note["cut_length_px"] * plane_map.mm_per_px,
+                "cut_displacement_mm": note["displacement_px"] * plane_map.mm_per_px,
+            }
+            for note in split_notes
+        ]
+    filled = [p for p in parts if p.filled_holes]
+    if filled:
+        count = sum(p.filled_holes for p in filled)
+        area = sum(p.filled_hole_area_mm2 for p in filled)
+        limit = options.min_hole_area_mm2 if options.min_hole_area_mm2 is not None else options.min_area_mm2
+        labels = ", ".join(str(p.label) for p in filled[:10]) + (", ..." if len(filled) > 10 else "")
+        warnings.append(
+            f"{count} hole(s) smaller than the minimum hole area ({limit:g} mm2) were filled and count as material "
+            f"({area:.4g} mm2 in part(s) {labels}; see filled_holes); lower --min-hole-area to measure them"
+        )
+    return Measurement(
+        source=source, scale=scale, parts=parts, warnings=warnings + touching, cut_parts=cut_parts, settings=settings
+    )
+
+
+def _below(area_mm2: float) -> str:
+    """A round --min-area value below ``area_mm2``."""
+    value = 10 ** math.floor(math.log10(max(area_mm2, 1e-9)))
+    while value * 5 < area_mm2:
+        value *= 5 if str(value).startswith("1") else 2
+    return f"{value:g}"
+
+
+def _edge_limits(
+    image: LoadedImage, found: list[PartRings], options: MeasureOptions, *, closed: bool = True
+) -> list[tuple[EdgeQuantisation | None, WallResult]]:
+    """Per part: the quantisation steps at its edge, and its rings after the thin-wall step.
+
+    With the local midpoint level (no manual threshold or level), thin walls and narrow
+    slots are corrected by the integral rule (:mod:`scanmass.segment.thin`); a part without
+    a thick region takes its level from the other parts of the image (same material). With
+    ``closed``, slots and walls too narrow for any contour are looked for (scans: in a
+    photo a shadow beside a part would look like a wall).
+    """
+    quants = [edge_quantisation(image, r) for r in found]
+    if options.threshold is not None or abs(options.level - 0.5) > 1e-9:
+        return [
+            (q, WallResult(r, [np.zeros(len(x)) for x in [r.outer_px, *r.holes_px]])) for q, r in zip(quants, found)
+        ]
+    results = [resolve_walls(image, r) for r in found]
+    good = [
+        q.level_ratio
+        for q, w in zip(quants, results)
+        if math.isfinite(q.level_ratio) and (w.corrected == 0 and w.unresolved == 0 or "thick" in w.level_source)
+    ]
+    if good:
+        hint = float(np.median(good))
+        for i, w in enumerate(results):
+            if w.unresolved and "thick" not in w.level_source:
+                results[i] = resolve_walls(image, found[i], level_ratio_hint=hint)
+    for i, w in enumerate(results if closed else []):
+        lacking, notes = closed_slots(image, w.rings)
+        if len(lacking):
+            results[i] = replace(w, closed_px=lacking, warnings=w.warnings + notes)
+    return list(zip(quants, results))
+
+
+def _as_mapped_order(
+    rings: PartRings, per_vertex: list[np.ndarray], mapped: MappedPart, plane_map: PlaneMap
+) -> list[np.ndarray]:
+    """Per-vertex values of each ring in the vertex order :func:`map_part` gave the ring."""
+    out = []
+    for ring_px, values, ring_mm in zip(
+        [rings.outer_px, *rings.holes_px], per_vertex, [mapped.outer_mm, *mapped.holes_mm]
+    ):
+        first = plane_map.to_mm(ring_px[:1])[0]
+        same = np.allclose(first, ring_mm[0], rtol=0, atol=1e-9 * (1 + float(np.abs(first).max())))
+        out.append(np.asarray(values) if same else np.asarray(values)[::-1])
+    return out
+
+
+def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> Measurement:
+    """Measure a photo on a mat or sheet: plane map, segmentation inside the clear area, checks.
+
+    Raises
+    ------
+    ScaleError
+        See :func:`~scanmass.scale.mat_scale.mat_scale` and
+        :func:`~scanmass.scale.sheet.sheet_scale`; also when a part lies outside the
+        region the detected markers surround.
+    SegmentationError
+        No whole part inside the clear area.
+    """
+    thickness_mm = options.thickness_mm  # checked by MeasureOptions.check
+    scale = photo_scale(image, options, method)
+    masked = _mask_outside(image, scale.roi_px)
+    try:
+        result = measure_image(
+            masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
+        )
+    except PartCutError:
+        where = "mat's clear area" if scale.plane_map.method == "mat" else "sheet's margin"
+        raise SegmentationError(
+            f"no whole part inside the {where}: the part crosses its edge or the photo's edge; move it inside "
+            "the corner marks, away from markers and the photo's edge",
+            path=image.path,
+        ) from None
+    _check_within_support(scale, result, image.path)
+    colour = _photo_colour(image)  # decoded once for the colour checks
+    shadow_only = _shadows_only(image, scale, result, colour)
+    warnings = list(scale.warnings) + shadow_only
+    warnings += _unknown_thickness(scale, result, thickness_mm)
+    warnings += _cast_shadows(image, scale, result, thickness_mm, colour)
+    warnings += _unclear_edges(image, scale, result)
+    warnings += _hidden_holes(image, scale, result, thickness_mm)
+    result.warnings = warnings + list(result.warnings)
+    result.settings.update({"scale": method})
+    return result

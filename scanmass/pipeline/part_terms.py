@@ -1,0 +1,309 @@
+"""One part's figures and uncertainty terms: section, error model, scale, and the named terms added for conditions.
+
+Part of the pipeline stage (:mod:`scanmass.pipeline`): :func:`measure_part` turns a mapped part into a
+:class:`~scanmass.measurement.Part`; the helpers add a named term (half the change of every figure between
+two outlines, or a given term) to a part's totals.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import fields, replace
+from typing import Any
+
+import numpy as np
+
+from scanmass.mapping import MappedPart
+from scanmass.measurement import Hole, Part
+from scanmass.scale.planemap import PlaneMap
+from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
+from scanmass.segment.thin import (
+    RESIDUAL_WINDOW_PX,
+    EdgeQuantisation,
+)
+from scanmass.uncertainty import (
+    build_edge_model,
+    combine,
+    figure_weights,
+    interpolation_residual_px,
+    model_uncertainty,
+    part_uncertainty,
+    phase_correlation_px,
+    removed_material,
+    ring_mean_offset_u,
+    threshold_uncertainty,
+)
+
+#: Fewest sampled maps from which the scale term is taken as their spread.
+MIN_SCALE_SAMPLES = 8
+
+_FIGURES_SCALE_POWER = {
+    "area_mm2": 2,
+    "ixx_mm4": 4,
+    "iyy_mm4": 4,
+    "ixy_mm4": 4,
+    "i1_mm4": 4,
+    "i2_mm4": 4,
+    "polar_mm4": 4,
+    "principal_angle_deg": 0,
+}
+
+
+def _half_change(
+    outer_mm: np.ndarray, holes_mm: list[np.ndarray], new_outer_mm: np.ndarray, new_holes_mm: list[np.ndarray]
+) -> dict[str, float]:
+    """Half the change of every figure when a part's rings are replaced by other rings (an uncertainty term)."""
+    before = _figure_values(section_properties(outer_mm, holes_mm, hull=False))
+    after = _figure_values(section_properties(new_outer_mm, new_holes_mm, hull=False))
+    term = {name: 0.5 * abs(after[name] - before[name]) for name in before}
+    d_angle = (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
+    term["principal_angle_deg"] = 0.5 * abs(d_angle)
+    return term
+
+
+def _with_shadow_term(part: Part, term: dict[str, float], hole_d_u_mm: float, name: str = "cast_shadow") -> Part:
+    """The part with a term ``name``; a hole can be narrowed by a shadow (or a lost reflection) too."""
+    holes = [replace(h, diameter_u_mm=combine(h.diameter_u_mm, hole_d_u_mm)) for h in part.holes]
+    updated = replace(part, holes=holes)
+    return _with_extra_term(updated, name, term, [])
+
+
+#: Thickness (mm) whose parallax the uncertainty of a photo covers (as 2 sigma) when the
+#: part's thickness is not given; common plate and sheet stock is 0.5-3 mm.
+UNKNOWN_THICKNESS_MM = 3.0
+
+
+def _with_extra_term(part: Part, name: str, term: dict[str, float], raised_holes: list[np.ndarray]) -> Part:
+    """The part with one more named uncertainty term, combined into every total it touches."""
+    totals = {
+        "area_u_mm2": "area_mm2",
+        "perimeter_u_mm": "perimeter_mm",
+        "ixx_u_mm4": "ixx_mm4",
+        "iyy_u_mm4": "iyy_mm4",
+        "ixy_u_mm4": "ixy_mm4",
+        "i1_u_mm4": "i1_mm4",
+        "i2_u_mm4": "i2_mm4",
+        "polar_u_mm4": "polar_mm4",
+        "principal_angle_u_deg": "principal_angle_deg",
+    }
+    changes: dict[str, Any] = {key: combine(getattr(part, key), term[fig]) for key, fig in totals.items()}
+    changes["centroid_u_mm"] = (
+        combine(part.centroid_u_mm[0], term["centroid_x_mm"]),
+        combine(part.centroid_u_mm[1], term["centroid_y_mm"]),
+    )
+    holes = []
+    for hole, raised in zip(part.holes, raised_holes):
+        fit = fit_circle(raised)
+        a, qx, qy = ring_moments(raised)[:3]
+        d_d = 0.5 * abs(fit.diameter_mm - hole.diameter_mm)
+        d_a = 0.5 * abs(abs(float(a)) - hole.area_mm2)
+        d_c = (0.5 * abs(float(qx / a) - hole.centroid_mm[0]), 0.5 * abs(float(qy / a) - hole.centroid_mm[1]))
+        d_cc = (
+            0.5 * abs(fit.centre_mm[0] - hole.circle_centre_mm[0]),
+            0.5 * abs(fit.centre_mm[1] - hole.circle_centre_mm[1]),
+        )
+        holes.append(
+            replace(
+                hole,
+                diameter_u_mm=combine(hole.diameter_u_mm, d_d),
+                area_u_mm2=combine(hole.area_u_mm2, d_a),
+                centroid_u_mm=(combine(hole.centroid_u_mm[0], d_c[0]), combine(hole.centroid_u_mm[1], d_c[1])),
+                circle_centre_u_mm=(
+                    combine(hole.circle_centre_u_mm[0], d_cc[0]),
+                    combine(hole.circle_centre_u_mm[1], d_cc[1]),
+                ),
+            )
+        )
+    if len(holes) < len(part.holes):
+        holes += part.holes[len(holes) :]
+    terms = dict(part.uncertainty_terms)
+    terms[name] = dict(term)
+    return replace(part, holes=holes, uncertainty_terms=terms, **changes)
+
+
+def _scale_terms(part: MappedPart, plane_map: PlaneMap, props: SectionProperties) -> dict[str, float]:
+    """Scale-term standard uncertainties of the main figures (mm only: the sampled maps' rings come mapped)."""
+    if len(part.sample_rings_mm) >= MIN_SCALE_SAMPLES:
+        values: dict[str, list[float]] = {}
+        for outer_mm, holes_mm in part.sample_rings_mm:
+            sp = section_properties(outer_mm, list(holes_mm), hull=False)  # no hull figure is sampled
+            for name, val in _figure_values(sp).items():
+                values.setdefault(name, []).append(val)
+        out = {k: float(np.std(v, ddof=1)) for k, v in values.items()}
+        rel = plane_map.terms.get("printer", 0.0)
+        for name, val in _figure_values(props).items():  # printer scale: not in the sampled maps
+            p = _FIGURES_SCALE_POWER.get(name, 1)
+            out[name] = combine(out[name], p * rel * abs(val))
+        return out
+    rel = plane_map.rel_u
+    out = {}
+    for name, val in _figure_values(props).items():
+        p = _FIGURES_SCALE_POWER.get(name, 1)
+        out[name] = p * rel * abs(val)
+    return out
+
+
+def _figure_values(sp: SectionProperties) -> dict[str, float]:
+    return {
+        "area_mm2": sp.area_mm2,
+        "centroid_x_mm": sp.centroid_mm[0],
+        "centroid_y_mm": sp.centroid_mm[1],
+        "ixx_mm4": sp.ixx_mm4,
+        "iyy_mm4": sp.iyy_mm4,
+        "ixy_mm4": sp.ixy_mm4,
+        "i1_mm4": sp.i1_mm4,
+        "i2_mm4": sp.i2_mm4,
+        "polar_mm4": sp.polar_mm4,
+        "principal_angle_deg": sp.principal_angle_deg,
+        "perimeter_mm": sp.perimeter_mm,
+    }
+
+
+def measure_part(
+    part: MappedPart,
+    plane_map: PlaneMap,
+    *,
+    quantisation: EdgeQuantisation | None = None,
+    wall_u_px: list[np.ndarray] | None = None,
+    residual_px: list[np.ndarray] | None = None,
+    closed_mm: np.ndarray | None = None,
+) -> Part:
+    """Section properties and uncertainties of one mapped part (everything in mm).
+
+    ``plane_map`` gives only the scale's relative uncertainty and its named terms;
+    ``quantisation`` the grey-level steps at the part's edge and ``wall_u_px`` the
+    per-vertex uncertainty of the thin-wall step (per ring, in the mapped vertex order),
+    ``residual_px`` the per-vertex displacement from the edge model's measured residual
+    (:func:`scanmass.segment.thin.edge_residual_px`, same order), and ``closed_mm`` the
+    material a closed narrow slot may lack (rows x_mm, y_mm, mm2), all for the model-error
+    floor (:mod:`scanmass.uncertainty`).
+    """
+    outer_mm = part.outer_mm
+    holes_mm = list(part.holes_mm)
+    props = section_properties(outer_mm, holes_mm)
+
+    # -- error model inputs -----------------------------------------------------------
+    scale_outer = part.mm_per_px[0]
+    scales = list(part.mm_per_px)
+    sigma_n_px = [part.noise_rel / np.maximum(g, 0.05) for g in part.gradients_px]
+    mm_px = float(np.median(scale_outer))
+    blur = part.blur_px if math.isfinite(part.blur_px) else 1.0
+    # threshold: each of the level surfaces' modes moves the boundary by sqrt(2 pi) sigma_blur
+    # times its share of the normalised level; (db + df) / 2 of the contrast, per mode 1/6 of
+    # the pointwise variance that level_rel_u states
+    mode_px = math.sqrt(2 * math.pi) * blur * part.level_rel_u / (2.0 * math.sqrt(6.0))
+    q = quantisation or EdgeQuantisation(0.0, 0.0)
+    # the levels' rounding bias, and the shared asymmetry of the edge profile (processing in
+    # the encoded domain: JPEG's block quantisation, a tone curve applied after the blur)
+    shared_px = math.hypot(math.sqrt(2 * math.pi) * blur * q.level_rel, q.asymmetry_px)
+    offset_px = math.hypot(math.sqrt(6.0) * mode_px, shared_px)  # the whole-boundary share, as before
+    offset_mm = offset_px * mm_px
+    model = build_edge_model(outer_mm, holes_mm, sigma_n_px, scales, offset_mm)
+    weights = figure_weights(model, props.area_mm2, props.centroid_mm, props.ixx_mm4, props.iyy_mm4, props.ixy_mm4)
+    edge_u, _ = part_uncertainty(model, weights)
+    thresh_u = threshold_uncertainty(model, weights, mode_px * mm_px, shared_px * mm_px)
+    # model-error floor: interpolation residual (phase-correlated) and quantisation beyond the noise
+    resid_px = interpolation_residual_px(blur)
+    q_px = [
+        np.sqrt(max((q.edge_rel / math.sqrt(12.0)) ** 2 - part.noise_rel**2, 0.0)) / np.maximum(g, 0.05)
+        for g in part.gradients_px
+    ]
+    q_model = build_edge_model(outer_mm, holes_mm, q_px, scales, 0.0)
+    corr_phase = phase_correlation_px(model.normals)
+    px_mm = model.corr_mm  # the model's 1 px correlation length in mm = local mm per px
+    density_px = resid_px**2 * corr_phase  # px^2 x px: the phase-correlated interpolation residual
+    if residual_px is not None:
+        # the measured residual holds the interpolation error of this image's own edges
+        # (and JPEG's blocks, corners): it replaces the modelled one
+        measured = build_edge_model(outer_mm, holes_mm, residual_px, [np.ones(len(r)) for r in residual_px], 0.0)
+        density_px = measured.sigma_n_mm**2 * RESIDUAL_WINDOW_PX
+    sigma_m_mm = np.sqrt(density_px * px_mm**2 + q_model.sigma_n_mm**2)
+    wall_mm = None
+    if wall_u_px is not None and any(np.any(np.asarray(w) > 0) for w in wall_u_px):
+        wall_mm = build_edge_model(outer_mm, holes_mm, wall_u_px, scales, 0.0).sigma_n_mm
+    model_u = model_uncertainty(model, weights, sigma_m_mm=sigma_m_mm, corr_m_mm=px_mm, wall_u_mm=wall_mm)
+    if closed_mm is not None and len(closed_mm):
+        # unresolved: the whole of the slot's missing material is the 1-sigma term
+        lacking = removed_material(closed_mm[:, :2], closed_mm[:, 2], props)
+        model_u = {k: math.hypot(v, lacking.get(k, 0.0)) for k, v in model_u.items()}
+    scale_u = _scale_terms(part, plane_map, props)
+    # perimeter: a uniform offset d changes it by 2 pi d per ring (turning number)
+    n_rings = 1 + len(holes_mm)
+    thresh_u["perimeter_mm"] = 2 * math.pi * offset_mm * abs(1 - len(holes_mm))
+    edge_u["perimeter_mm"] = 0.0
+    model_u["perimeter_mm"] = 0.0
+    total = {
+        k: combine(edge_u.get(k, 0.0), thresh_u.get(k, 0.0), model_u.get(k, 0.0), scale_u.get(k, 0.0)) for k in scale_u
+    }
+    terms = {
+        "edge": edge_u,
+        "threshold": thresh_u,
+        "model": model_u,
+        "scale": scale_u,
+        "inputs": {
+            "noise_rel": part.noise_rel,
+            "blur_px": part.blur_px,
+            "level_rel_u": part.level_rel_u,
+            "offset_px": offset_px,
+            "interpolation_residual_px": resid_px,
+            "quantisation_rel": q.edge_rel,
+            "asymmetry_px": q.asymmetry_px,
+            "contrast": part.contrast,
+            "rings": n_rings,
+        },
+    }
+
+    holes = []
+    for k, ring_mm in enumerate(holes_mm, start=1):
+        a, qx, qy = ring_moments(ring_mm)[:3]  # a hole's own area and centroid, whatever its orientation
+        area_mm2, centroid_mm = abs(float(a)), (float(qx / a), float(qy / a))
+        fit = fit_circle(ring_mm)
+        r_edge, r_off, perim, c_edge = ring_mean_offset_u(model, k)
+        d_u = combine(2 * r_edge, 2 * r_off, plane_map.rel_u * fit.diameter_mm)
+        # the area moves by the perimeter times the mean normal displacement
+        area_u = combine(perim * r_edge, perim * r_off, 2 * plane_map.rel_u * area_mm2)
+        cen_u = (
+            combine(c_edge, plane_map.rel_u * abs(centroid_mm[0])),
+            combine(c_edge, plane_map.rel_u * abs(centroid_mm[1])),
+        )
+        circ_u = (
+            combine(c_edge, plane_map.rel_u * abs(fit.centre_mm[0])),
+            combine(c_edge, plane_map.rel_u * abs(fit.centre_mm[1])),
+        )
+        holes.append(
+            Hole(
+                label=k,
+                area_mm2=area_mm2,
+                area_u_mm2=area_u,
+                centroid_mm=centroid_mm,
+                centroid_u_mm=cen_u,
+                perimeter_mm=ring_perimeter(ring_mm),
+                circle_centre_mm=fit.centre_mm,
+                circle_centre_u_mm=circ_u,
+                diameter_mm=fit.diameter_mm,
+                diameter_u_mm=d_u,
+                roundness_mm=fit.roundness_mm,
+                outline_mm=ring_mm,
+            )
+        )
+
+    return Part(
+        label=part.label,
+        **{f.name: getattr(props, f.name) for f in fields(props)},  # the section properties, same names
+        area_u_mm2=total["area_mm2"],
+        perimeter_u_mm=total["perimeter_mm"],
+        centroid_u_mm=(total["centroid_x_mm"], total["centroid_y_mm"]),
+        ixx_u_mm4=total["ixx_mm4"],
+        iyy_u_mm4=total["iyy_mm4"],
+        ixy_u_mm4=total["ixy_mm4"],
+        i1_u_mm4=total["i1_mm4"],
+        i2_u_mm4=total["i2_mm4"],
+        principal_angle_u_deg=total["principal_angle_deg"],
+        polar_u_mm4=total["polar_mm4"],
+        holes=holes,
+        cut=part.cut,
+        uncertainty_terms=terms,
+        outline_mm=outer_mm,
+        filled_holes=part.filled_holes,
+        filled_hole_area_mm2=part.filled_hole_area_mm2,
+    )

@@ -1,0 +1,406 @@
+"""Checks of a measured photo: the part inside what the markers surround, parallax of an unknown thickness,
+cast shadows and reflections, unclear metal edges, hidden holes in thick parts, white parts on white paper.
+Part of the pipeline stage (:mod:`scanmass.pipeline`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import cv2
+import numpy as np
+
+from scanmass.errors import ScaleError, SegmentationError
+from scanmass.load.decode import LoadedImage
+from scanmass.measurement import Measurement, Part
+from scanmass.pipeline.part_terms import UNKNOWN_THICKNESS_MM, _half_change, _with_extra_term, _with_shadow_term
+from scanmass.scale.camera import PhotoScale
+from scanmass.scale.homography import raised_outline_mm
+from scanmass.segment.shadow import (
+    SHADOW_FRACTION,
+    SHADOW_MIN_ELEVATION_DEG,
+    dark_pits,
+    looks_like_shadow_only,
+    shadow_band_px,
+    shadow_risk,
+    unclear_edges,
+)
+from scanmass.uncertainty import (
+    combine,
+)
+
+
+def _mask_outside(image: LoadedImage, roi_px: np.ndarray) -> LoadedImage:
+    """A copy of the image whose pixels outside the clear area show the paper's level.
+
+    The segmenter reads the part's polarity and the background from the whole image;
+    markers, print and the table around the mat would mislead it.
+    """
+    mask = np.zeros(image.grey.shape, np.uint8)
+    cv2.fillPoly(mask, [np.round(roi_px).astype(np.int32)], 1)
+    inner = cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=2).astype(bool)
+    band = inner & ~cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=8).astype(bool)
+    values = image.grey[band]
+    level = np.median(values) if values.size else np.median(image.grey[inner])
+    grey = image.grey.copy()
+    grey[~mask.astype(bool)] = np.asarray(level, dtype=grey.dtype)
+    return replace(image, grey=grey)
+
+
+def _check_within_support(scale: PhotoScale, result: Measurement, path: str | None) -> None:
+    """Refuse a part outside the convex hull (mm) of the points the plane map was fitted to."""
+    hull = cv2.convexHull(scale.support_mm.astype(np.float32))
+    for part in result.parts:
+        if part.outline_mm is None:
+            continue
+        outline = np.asarray(part.outline_mm, dtype=np.float32)[:: max(1, len(part.outline_mm) // 200)]
+        inside = [cv2.pointPolygonTest(hull, (float(x), float(y)), True) for x, y in outline]
+        if min(inside) < -1.0:
+            raise ScaleError(
+                f"part {part.label} lies outside the region the visible markers surround; keep the markers on every "
+                "side of the part in the photo",
+                path=path,
+            )
+
+
+def _unknown_thickness(
+    scale: PhotoScale, result: Measurement, thickness_mm: float | None, plausible_mm: float | None = None
+) -> list[str]:
+    """Without a thickness: an uncertainty term covering the parallax of a plausible thickness, and a warning.
+
+    A photo shows a raised part larger than its footprint (its top face is nearer the
+    camera) and, in a tilted view, with one side wall. When the thickness is not given,
+    each part's outline and holes (mm) are raised by ``plausible_mm``
+    (:data:`UNKNOWN_THICKNESS_MM`, via :func:`~scanmass.scale.homography.raised_outline_mm`)
+    and half of the change of every figure is added as the term ``thickness_unknown``:
+    a part of that thickness then lies 2 sigma off, one 1.5 times as thick 3 sigma off.
+    ``--thickness 0`` declares a sheet-thin part and removes the term.
+    """
+    if thickness_mm is not None or scale.camera_matrix is None or not result.parts:
+        return []
+    plausible = UNKNOWN_THICKNESS_MM if plausible_mm is None else plausible_mm
+    h0, k = scale.plane_map.matrix, scale.camera_matrix
+    worst_rel = 0.0
+    worst_cen_mm = 0.0
+    for n, part in enumerate(result.parts):
+        if part.outline_mm is None:
+            continue
+        flat_outer = np.asarray(part.outline_mm, dtype=float)
+        flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
+        raised_outer = raised_outline_mm(h0, k, plausible, flat_outer)
+        raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True) for h in flat_holes]
+        term = _half_change(flat_outer, flat_holes, raised_outer, raised_holes)
+        result.parts[n] = _with_extra_term(part, "thickness_unknown", term, raised_holes)
+        worst_rel = max(worst_rel, term["area_mm2"] / max(part.area_mm2, 1e-12))
+        worst_cen_mm = max(worst_cen_mm, math.hypot(term["centroid_x_mm"], term["centroid_y_mm"]))
+    return [
+        f"parallax (thickness not given): a part {plausible:g} mm thick would measure {200 * worst_rel:.2g} % smaller in area "
+        f"and up to {2 * worst_cen_mm:.2g} mm off in centroid (parallax); the uncertainty includes half of it "
+        "(term 'thickness_unknown'); give the thickness with --thickness MM, or --thickness 0 for a sheet-thin part"
+    ]
+
+
+def _photo_colour(image: LoadedImage) -> np.ndarray | None:
+    """The photo's colour planes (encoded, as stored), or None for arrays, grey files or a size mismatch."""
+    if image.path is None:
+        return None
+    colour = cv2.imread(image.path, cv2.IMREAD_COLOR)  # applies the EXIF orientation, as the loader does
+    if colour is None or colour.ndim != 3 or colour.shape[:2] != image.grey.shape:
+        return None
+    if colour.dtype != np.uint8 or len(image.to_linear) != 256:
+        return None
+    b, g, r = colour[..., 0], colour[..., 1], colour[..., 2]
+    if np.array_equal(b, g) and np.array_equal(g, r):
+        return None  # a grey photo: colour tells nothing
+    return colour
+
+
+def _part_crop(
+    image: LoadedImage, scale: PhotoScale, part: Part, pad_px: int
+) -> tuple[tuple[int, int, int, int], np.ndarray, list[np.ndarray]] | None:
+    """A padded crop box (x0, y0, x1, y1) around a part, its mask there (holes cleared) and its rings (crop px).
+
+    None when the part has no outline or the crop is too small.
+    """
+    if part.outline_mm is None or any(h.outline_mm is None for h in part.holes):
+        return None
+    outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+    holes_px = [scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes]
+    h_px, w_px = image.grey.shape
+    x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad_px
+    x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + pad_px
+    x0, y0, x1, y1 = max(int(x0), 0), max(int(y0), 0), min(int(x1), w_px), min(int(y1), h_px)
+    if x1 - x0 < 8 or y1 - y0 < 8:
+        return None
+    off = np.array([x0, y0], float)
+    rings = [outer_px - off, *(hp - off for hp in holes_px)]
+    mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+    cv2.fillPoly(mask, [np.round(rings[0]).astype(np.int32)], 1)
+    for ring in rings[1:]:
+        cv2.fillPoly(mask, [np.round(ring).astype(np.int32)], 0)
+    return (x0, y0, x1, y1), mask.astype(bool), rings
+
+
+def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray | None) -> list[str]:
+    """Refuse a photo whose only found regions look like cast shadows; warn of such regions otherwise.
+
+    A white part on white paper is not told from the paper; what is found instead is its
+    shadow and the dark bottoms of its holes: regions of the paper's colour, darkened, that
+    fade towards their soft outer edge (:func:`~scanmass.segment.shadow.looks_like_shadow_only`).
+    When some found parts are real, such a region is kept (a real part may look like that
+    too) and named in a warning.
+
+    Raises
+    ------
+    SegmentationError
+        When every found part looks like that, naming the fix (a dark backing sheet or a backlight).
+    """
+    if colour is None or not result.parts:
+        return []
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, scale.plane_map.mm_per_px)
+    shadows: list[str] = []
+    for part in result.parts:
+        crop = _part_crop(image, scale, part, int(band_px) + 16)
+        if crop is None:
+            continue
+        (x0, y0, x1, y1), mask, _ = crop
+        risk = shadow_risk(lut[colour[y0:y1, x0:x1]], mask, band_px)
+        if risk is not None and looks_like_shadow_only(risk):
+            shadows.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
+    if not shadows:
+        return []
+    if len(shadows) == len(result.parts):
+        raise SegmentationError(
+            f"no part found, only {len(shadows)} region(s) that look like cast shadows (the paper's colour, "
+            "darkened, fading outwards): a light part on light paper cannot be told from the paper; lay the parts "
+            "on a dark backing sheet, or light them from below (a backlight)",
+            path=image.path,
+        )
+    return [
+        f"shadow only: {', '.join(shadows)} look(s) like a cast shadow alone (the paper's "
+        "colour, darkened, fading outwards), perhaps of a light part that was not found: do not use their figures; "
+        "lay light parts on a dark backing sheet, or use a backlight"
+    ]
+
+
+def _cast_shadows(
+    image: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    thickness_mm: float | None,
+    colour: np.ndarray | None = None,
+) -> list[str]:
+    """Flag parts whose edge band looks like darkened paper (a cast shadow colour cannot rule out).
+
+    For each part the band a shadow can cover (:func:`~scanmass.segment.shadow.shadow_band_px`,
+    for the given thickness or :data:`UNKNOWN_THICKNESS_MM`) is tested in colour against the
+    local paper white (:func:`~scanmass.segment.shadow.shadow_risk`). Where more than
+    :data:`~scanmass.segment.shadow.SHADOW_FRACTION` of it is shadow-like, the part may
+    include its shadow: an uncertainty term ``cast_shadow`` of half the shadow-like area
+    (and the matching centroid, moment and hole terms) and a warning with what to change.
+    """
+    if thickness_mm == 0 or not result.parts:
+        return []
+    if colour is None:
+        colour = _photo_colour(image)
+    if colour is None:
+        return []
+    thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
+    mm_per_px = scale.plane_map.mm_per_px
+    band_px = shadow_band_px(thick, mm_per_px)
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    flagged: list[str] = []
+    lost: list[str] = []
+    for n, part in enumerate(result.parts):
+        if part.outline_mm is None:
+            continue
+        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+        holes_px = [
+            scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes if h.outline_mm is not None
+        ]
+        pad = int(band_px) + 16
+        x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad
+        x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + pad
+        h_px, w_px = image.grey.shape
+        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w_px), min(y1, h_px)
+        if x1 - x0 < 8 or y1 - y0 < 8:
+            continue
+        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+        cv2.fillPoly(mask, [np.round(outer_px - [x0, y0]).astype(np.int32)], 1)
+        for hp in holes_px:
+            cv2.fillPoly(mask, [np.round(hp - [x0, y0]).astype(np.int32)], 0)
+        crop = lut[colour[y0:y1, x0:x1]]
+        risk = shadow_risk(crop, mask.astype(bool), band_px)
+        if risk is None:
+            continue
+        foreign_mm2 = risk.foreign_outside_px * mm_per_px**2
+        if foreign_mm2 > max(0.002 * part.area_mm2, 4 * mm_per_px**2 * math.sqrt(risk.band_px)):
+            share = min(1.0, foreign_mm2 / max(part.area_mm2, 1e-9))
+            term = {
+                "area_mm2": foreign_mm2,
+                "centroid_x_mm": share * 0.5 * part.caliper_max_mm,
+                "centroid_y_mm": share * 0.5 * part.caliper_max_mm,
+                "perimeter_mm": share * part.perimeter_mm,
+                "principal_angle_deg": 0.0,
+            }
+            for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+                term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+            part = _with_shadow_term(part, term, 0.5 * band_px * mm_per_px, name="reflection")
+            result.parts[n] = part
+            lost.append(f"{part.label} ({foreign_mm2:.3g} mm²)")
+        if risk.fraction < SHADOW_FRACTION:
+            continue
+        like_mm2 = risk.shadow_like_px * mm_per_px**2
+        share = min(1.0, like_mm2 / max(part.area_mm2, 1e-9))
+        arm_mm = 0.5 * part.caliper_max_mm
+        band_mm = band_px * mm_per_px
+        term = {
+            "area_mm2": 0.5 * like_mm2,
+            "centroid_x_mm": 0.5 * share * arm_mm,
+            "centroid_y_mm": 0.5 * share * arm_mm,
+            "perimeter_mm": 0.5 * share * part.perimeter_mm,
+            "principal_angle_deg": 0.0,
+        }
+        for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+            term[fig] = share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+        result.parts[n] = _with_shadow_term(part, term, 0.5 * band_mm)
+        flagged.append(f"{part.label} ({100 * risk.fraction:.0f} % of its edge band)")
+    out = []
+    if lost:
+        out.append(
+            f"reflection: next to the outline of part(s) {', '.join(lost)} lies an area that is neither paper nor "
+            "shadow (a bright or coloured reflection of a metal part?); the outline may leave it out, and the "
+            "uncertainty includes it (term 'reflection'); use diffuse light or a backlight"
+        )
+    if not flagged:
+        return out
+    return out + [
+        f"cast shadow: part(s) {', '.join(flagged)} border(s) a region with the paper's colour, darkened, as a cast "
+        "shadow has; colour cannot tell it from a dark neutral part, so the uncertainty includes it (term "
+        "'cast_shadow'); for a trustworthy figure use diffuse light (an overcast window, a lamp beside the camera "
+        "aimed at the ceiling) or a backlight"
+    ]
+
+
+#: Share of a part's boundary whose edge profile must be unclear before the part is flagged.
+UNCLEAR_EDGE_SHARE = 0.1
+#: The unclear-edge term (1 sigma) as a share of the area the flagged stretches would sweep if
+#: each moved by its plausible displacement in one direction. On the committed renders
+#: (tests/data/reallight) the area errors of the flagged metal parts are 7-14 % of that area.
+UNCLEAR_EDGE_SIGMA_SHARE = 0.25
+
+
+def _unclear_edges(image: LoadedImage, scale: PhotoScale, result: Measurement) -> list[str]:
+    """Flag parts whose outline runs where the edge profile is not a clean step.
+
+    Metal reflecting the light can look like the paper along part of its outline: the step
+    between the part's level and the paper's collapses, changes sign (a dark band between a
+    bright part and the paper), or becomes a wide ramp (a soft shadow of another colour).
+    Each ring's profile is tested per vertex (:func:`~scanmass.segment.shadow.unclear_edges`);
+    where more than :data:`UNCLEAR_EDGE_SHARE` of the boundary is unclear, the part gets the
+    term ``unclear_edge`` (:data:`UNCLEAR_EDGE_SIGMA_SHARE` of the area the flagged stretches
+    would sweep at their plausible displacement; centroid, moments and holes to match) and a
+    warning naming it.
+    """
+    if not result.parts:
+        return []
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    mm_per_px = scale.plane_map.mm_per_px
+    flagged: list[str] = []
+    for n, part in enumerate(result.parts):
+        crop = _part_crop(image, scale, part, 24)
+        if crop is None:
+            continue
+        (x0, y0, x1, y1), mask, rings = crop
+        blur = float(part.uncertainty_terms.get("inputs", {}).get("blur_px", 1.0))
+        risk = unclear_edges(lut[image.grey[y0:y1, x0:x1]], mask, rings, blur)
+        if risk is None or risk.flagged_px < UNCLEAR_EDGE_SHARE * risk.length_px:
+            continue
+        area_mm2 = UNCLEAR_EDGE_SIGMA_SHARE * risk.moved_px2 * mm_per_px**2
+        share = min(1.0, area_mm2 / max(part.area_mm2, 1e-9))
+        term = {
+            "area_mm2": area_mm2,
+            "centroid_x_mm": share * 0.5 * part.caliper_max_mm,
+            "centroid_y_mm": share * 0.5 * part.caliper_max_mm,
+            "perimeter_mm": share * part.perimeter_mm,
+            "principal_angle_deg": 0.0,
+        }
+        for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+            term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+        holes = [
+            replace(h, diameter_u_mm=combine(h.diameter_u_mm, d_px * mm_per_px))
+            for h, d_px in zip(part.holes, risk.ring_mean_px[1:])
+        ]
+        result.parts[n] = _with_extra_term(replace(part, holes=holes), "unclear_edge", term, [])
+        flagged.append(f"{part.label} ({100 * risk.flagged_px / risk.length_px:.0f} % of its outline)")
+    if not flagged:
+        return []
+    return [
+        f"unclear edge: along part(s) {', '.join(flagged)} the step from the part to the paper is not clean (a "
+        "reflection that looks like the paper, a dark band or a soft ramp beside the edge), so the outline may sit "
+        "off its edge there; the uncertainty includes it (term 'unclear_edge'); use diffuse light, a matte part, "
+        "or a backlight"
+    ]
+
+
+#: Smallest dark pit (mm2) inside a part taken as a possible hidden hole.
+HIDDEN_HOLE_MIN_AREA_MM2 = 3.0
+
+
+def _hidden_holes(image: LoadedImage, scale: PhotoScale, result: Measurement, thickness_mm: float | None) -> list[str]:
+    """Flag dark round pits inside parts: the bottom of a through-hole the outline did not open.
+
+    A deep hole in a thick part looks dark, not like paper: its wall hides part of its
+    bottom and shades the rest. Such a pit (:func:`~scanmass.segment.shadow.dark_pits`) is
+    not measured as a hole; the part gets a warning with where it is and the term
+    ``hidden_hole``: a hole at the top face as wide as the pit plus the longest shadow of the
+    wall (thickness / tan 30 deg) would be a 2-sigma change of every figure.
+    ``--thickness 0`` (a sheet-thin part) has no deep holes.
+    """
+    if thickness_mm == 0 or not result.parts:
+        return []
+    thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    mm_per_px = scale.plane_map.mm_per_px
+    found: list[str] = []
+    for n, part in enumerate(result.parts):
+        crop = _part_crop(image, scale, part, 4)
+        if crop is None:
+            continue
+        (x0, y0, x1, y1), mask, _ = crop
+        pits = dark_pits(lut[image.grey[y0:y1, x0:x1]], mask, HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2)
+        if not pits:
+            continue
+        xc, yc = part.centroid_mm
+        names = ("area_mm2", "centroid_x_mm", "centroid_y_mm", "perimeter_mm", "principal_angle_deg")
+        term = dict.fromkeys(names + ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"), 0.0)
+        where = []
+        for x_px, y_px, d_px in pits:
+            x_mm, y_mm = scale.plane_map.to_mm(np.array([[x_px + x0, y_px + y0]]))[0]
+            d_mm = d_px * mm_per_px
+            bound_mm = d_mm + thick / math.tan(math.radians(SHADOW_MIN_ELEVATION_DEG))
+            a = 0.5 * 0.25 * math.pi * bound_mm**2  # a hole of the bound's size is 2 sigma
+            dx, dy, r2 = x_mm - xc, y_mm - yc, bound_mm**2 / 16.0
+            term["area_mm2"] += a
+            term["centroid_x_mm"] += a * abs(dx) / max(part.area_mm2, 1e-9)
+            term["centroid_y_mm"] += a * abs(dy) / max(part.area_mm2, 1e-9)
+            term["perimeter_mm"] += 0.5 * math.pi * bound_mm
+            term["ixx_mm4"] += a * (dy**2 + r2)
+            term["iyy_mm4"] += a * (dx**2 + r2)
+            term["ixy_mm4"] += a * abs(dx * dy)
+            term["polar_mm4"] += a * (dx**2 + dy**2 + 2 * r2)
+            where.append(f"{d_mm:.2g} mm across at ({x_mm:.1f}, {y_mm:.1f}) mm")
+        term["i1_mm4"] = term["i2_mm4"] = term["polar_mm4"]
+        term["principal_angle_deg"] = 0.0
+        result.parts[n] = _with_extra_term(part, "hidden_hole", term, [])
+        found.append(f"part {part.label} (a pit {'; a pit '.join(where)})")
+    if not found:
+        return []
+    return [
+        f"possible hidden hole: {', '.join(found)}: a dark round region darker than the part itself, as the bottom "
+        "of a deep hole is; it is not measured as a hole, and the uncertainty includes a hole there (term "
+        "'hidden_hole'); if it is a hole, measure the part on a light box (backlight) or photograph it from straight "
+        "above in diffuse light"
+    ]

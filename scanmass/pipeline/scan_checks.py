@@ -1,0 +1,364 @@
+"""Checks of the parts found in an image, before and after they are measured: the face of a thick part on
+a scanner's glass, touching parts (warned, or split), the tone curve and sharpening halos, a scanner's lid left
+open. Part of the pipeline stage (:mod:`scanmass.pipeline`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+from typing import Any
+
+import cv2
+import numpy as np
+
+from scanmass.geometry import offset_ring
+from scanmass.load.decode import LoadedImage, encoding_lut
+from scanmass.mapping import MappedPart
+from scanmass.measurement import Part
+from scanmass.pipeline.part_terms import _figure_values, _half_change, _with_extra_term, _with_shadow_term
+from scanmass.scale.planemap import PlaneMap
+from scanmass.section import section_properties
+from scanmass.segment.lidgap import LidGap
+from scanmass.segment.rings import PartRings
+from scanmass.segment.scanface import FaceResult, scan_face
+from scanmass.segment.symmetry import edge_halo, reading_shift
+from scanmass.segment.touching import NeckReport, TouchSplit, split_touching
+from scanmass.uncertainty import (
+    combine,
+)
+
+
+def _lid_gap_text(gap: LidGap, mm_per_px: float | None) -> str:
+    depth = f"{gap.band_px * mm_per_px:.2g} mm" if mm_per_px else f"{gap.band_px:.0f} px"
+    return (
+        f"lid not closed? the background falls to {100 * gap.border_ratio:.0f} % of the lid's white along the "
+        f"{gap.side} edge of the scan (a dark band {depth} deep)"
+    )
+
+
+#: Displacement (px, 1 sigma) of a face's edge against its shadow: its level is read against a
+#: shadow that darkens towards the part (less light reaches the lid next to the wall).
+FACE_EDGE_U_PX = 1.0
+
+
+def _scan_faces(
+    image: LoadedImage, parts: list[PartRings], min_hole_mm2: float, px_area_mm2: float
+) -> tuple[list[PartRings], dict[int, FaceResult]]:
+    """Each part's face on the glass (a flatbed scan): outlines that took in the lamp's shadow are replaced.
+
+    Returns the parts and, per label, the :class:`~scanmass.segment.scanface.FaceResult`
+    of every part with a shadow (separated, or not: then the outline is kept).
+    """
+    out: list[PartRings] = []
+    faces: dict[int, FaceResult] = {}
+    h_px, w_px = image.grey.shape
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    for rings in parts:
+        x0, y0 = (np.floor(rings.outer_px.min(axis=0)).astype(int) - 16).clip(0)
+        x1, y1 = np.ceil(rings.outer_px.max(axis=0)).astype(int) + 17
+        crop = lut[image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]]
+        noise = abs(rings.noise_rel * rings.contrast) if math.isfinite(rings.noise_rel) else 0.0
+        face = scan_face(
+            crop,
+            (int(x0), int(y0)),
+            rings.outer_px,
+            list(rings.holes_px),
+            rings.gradient_px,
+            noise=noise,
+            min_hole_px=min_hole_mm2 / px_area_mm2,
+        )
+        if face is None:
+            out.append(rings)
+            continue
+        faces[rings.label] = face
+        if face.outer_px is None or face.gradient_px is None:
+            out.append(rings)
+            continue
+        area = abs(float(cv2.contourArea(face.outer_px.astype(np.float32)))) - sum(
+            abs(float(cv2.contourArea(h.astype(np.float32)))) for h in face.holes_px
+        )
+        out.append(
+            replace(
+                rings,
+                outer_px=face.outer_px,
+                holes_px=list(face.holes_px),
+                gradient_px=face.gradient_px,
+                hole_gradients_px=list(face.hole_gradients_px),
+                area_px=area,
+                contrast=face.levels[2] - face.levels[0],
+            )
+        )
+    return out, faces
+
+
+def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
+    """The part with the term ``scan_shadow``.
+
+    Separated: every figure's change when the face's edge against its shadow moves out by
+    :data:`FACE_EDGE_U_PX`. Not separated: the shadow the outline may hold (its estimated
+    area; the centroid by that share of half the part's extent, the moments by twice it).
+    """
+    if face.outer_px is not None and face.shadow_edge is not None:
+        outer = np.asarray(face.outer_px, float)
+        holes = [plane_map.to_mm(np.asarray(h, float)) for h in face.holes_px]
+        tangent = np.roll(outer, -1, axis=0) - np.roll(outer, 1, axis=0)
+        tn = np.maximum(np.hypot(tangent[:, 0], tangent[:, 1]), 1e-12)
+        normal = np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
+        if cv2.contourArea(outer.astype(np.float32), oriented=True) < 0:
+            normal = -normal  # outward in the image frame
+        moved = outer.copy()
+        moved[face.shadow_edge] += FACE_EDGE_U_PX * normal[face.shadow_edge]
+        before = _figure_values(section_properties(plane_map.to_mm(outer), holes))
+        after = _figure_values(section_properties(plane_map.to_mm(moved), holes))
+        term = {name: abs(after[name] - before[name]) for name in before}
+        term["principal_angle_deg"] = abs(
+            (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
+        )
+        return _with_extra_term(part, "scan_shadow", term, [])
+    shadow_mm2 = face.shadow_px2 * plane_map.mm_per_px**2
+    share = min(1.0, shadow_mm2 / max(part.area_mm2, 1e-9))
+    arm_mm = 0.5 * part.caliper_max_mm
+    term = {
+        "area_mm2": shadow_mm2,
+        "centroid_x_mm": share * arm_mm,
+        "centroid_y_mm": share * arm_mm,
+        "perimeter_mm": share * part.perimeter_mm,
+        "principal_angle_deg": 0.0,
+    }
+    for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+        term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+    return _with_shadow_term(part, term, 0.0, name="scan_shadow")
+
+
+def _side(direction: tuple[float, float]) -> str:
+    """The image side a direction (image pixels, rows down) points to."""
+    dx, dy = direction
+    if abs(dy) >= abs(dx):
+        return "top" if dy < 0 else "bottom"
+    return "left" if dx < 0 else "right"
+
+
+def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
+    """What the scan-face check found: shadows left out, or shadows that could not be told from the part."""
+    out = []
+    left_out = {k: f for k, f in faces.items() if f.outer_px is not None}
+    kept = {k: f for k, f in faces.items() if f.outer_px is None and f.note != "soft edges"}
+    soft = {k: f for k, f in faces.items() if f.note == "soft edges"}
+    if soft:
+        listed = ", ".join(f"{k} ({f.soft_length_px * mm_per_px:.3g} mm)" for k, f in soft.items())
+        out.append(
+            f"scan: the edges of part(s) {listed} are soft over that length, with no shadow beside them: a part not "
+            "lying flat on the glass (its face out of focus there)? press it flat, or check the figures"
+        )
+    if left_out:
+        listed = ", ".join(
+            f"{k} ({f.shadow_px2 * mm_per_px**2:.3g} mm² on its {_side(f.direction)} side)" for k, f in left_out.items()
+        )
+        # the shadow's length: its area over the face's edge against it; about the lid's height or more
+        deep_mm = max(f.shadow_px2 / max(f.shadow_edge_px, 1.0) for f in left_out.values()) * mm_per_px
+        out.append(
+            f"scan of thick parts: the lamp's shadow beside part(s) {listed} was left out; the outline is the face "
+            "on the glass (its sharp edge), and the edge against the shadow adds the term 'scan_shadow'; a hole "
+            f"narrower than about {deep_mm:.2g} mm in such a part can look as dark as the part (no light reaches "
+            "the lid above it) and be missed: check the holes"
+        )
+    for k, f in kept.items():
+        out.append(
+            f"scan of a thick part: part {k} is as dark as the lamp's shadow on its {_side(f.direction)} side, so the "
+            f"face on the glass cannot be told from it; the outline may hold up to {f.shadow_px2 * mm_per_px**2:.3g} mm² "
+            "of shadow (term 'scan_shadow'); lay white paper on the glass around the part, or photograph it on the "
+            "marker mat in diffuse light"
+        )
+    return out
+
+
+def _touching_warnings(
+    parts: list[Any], splits: list[TouchSplit | None], necks: list[NeckReport | None], mm_per_px: float
+) -> list[str]:
+    """A warning for each found part that looks like two parts touching (a neck, or a seam across it)."""
+    out = []
+    for rings, split, neck in zip(parts, splits, necks):
+        if neck is not None:
+            wa, wb = (w * mm_per_px for w in neck.lobe_widths_px)
+            out.append(
+                f"part {rings.label} looks like two parts touching (a neck {neck.neck_width_px * mm_per_px:.2g} mm "
+                f"wide between lobes {wa:.3g} and {wb:.3g} mm across); they are measured as one: lay them a few mm "
+                "apart, or pass --split-touching to measure them separately"
+            )
+        elif split is not None and split.evidence == "seam":
+            out.append(
+                f"part {rings.label} looks like two parts touching (a seam {split.cut_length_px * mm_per_px:.3g} mm "
+                f"long runs across it, {100 * split.seam_depth:.0f} % short of the part's level: a gap narrower "
+                "than the blur); they are measured as one: lay them a few mm apart, or pass --split-touching to "
+                "measure them separately"
+            )
+    return out
+
+
+#: Displacement (px, 1 sigma) of a cut along a seam: the gap (under ~1.2 px, else the parts are
+#: found apart) is shared between the two parts, and the cut's ends are placed to ~0.5 px.
+SEAM_CUT_U_PX = 1.0
+
+
+def _touch_splits(
+    image: LoadedImage, parts: list[PartRings], polarity: str, necks: list[NeckReport | None]
+) -> list[TouchSplit | None]:
+    """For each found part, how it would split into two touching parts (None: it does not look like two)."""
+    out: list[TouchSplit | None] = []
+    h_px, w_px = image.grey.shape
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    for rings, neck in zip(parts, necks):
+        x0, y0 = (np.floor(rings.outer_px.min(axis=0)).astype(int) - 8).clip(0)
+        x1, y1 = np.ceil(rings.outer_px.max(axis=0)).astype(int) + 9
+        crop = lut[image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]]
+        out.append(
+            split_touching(
+                crop,
+                (int(x0), int(y0)),
+                rings.outer_px,
+                list(rings.holes_px),
+                dark_part=polarity.startswith("dark"),
+                noise_rel=rings.noise_rel if math.isfinite(rings.noise_rel) else 0.0,
+                neck=neck,
+            )
+        )
+    return out
+
+
+def _apply_splits(
+    parts: list[PartRings], splits: list[TouchSplit | None]
+) -> tuple[list[PartRings], list[dict[str, Any]], dict[int, tuple[float, Any]]]:
+    """The found parts with each split one replaced by its two lobes, labels renumbered in order.
+
+    Returns the parts, a note per split (the new labels, evidence, cut length and the
+    cut's plausible displacement in px) and, per new label, (displacement px, the cut's ends in px).
+    """
+    out: list[PartRings] = []
+    notes: list[dict[str, Any]] = []
+    cuts: dict[int, tuple[float, Any]] = {}
+    for rings, split in zip(parts, splits):
+        if split is None:
+            out.append(replace(rings, label=len(out) + 1))
+            continue
+        length = split.cut_length_px
+        shift = SEAM_CUT_U_PX if split.evidence == "seam" else max(SEAM_CUT_U_PX, 0.25 * length)
+        fallback = float(np.median(rings.gradient_px)) if len(rings.gradient_px) else 1.0
+        lobes = []
+        for (outer, holes), index, keep in zip(split.lobes, split.vertex_index, split.hole_index):
+            grad = np.where(index >= 0, np.asarray(rings.gradient_px)[np.maximum(index, 0)], fallback)
+            area = abs(float(cv2.contourArea(outer.astype(np.float32)))) - sum(
+                abs(float(cv2.contourArea(h.astype(np.float32)))) for h in holes
+            )
+            lobes.append(
+                replace(
+                    rings,
+                    outer_px=outer,
+                    holes_px=holes,
+                    gradient_px=grad,
+                    hole_gradients_px=[rings.hole_gradients_px[k] for k in keep if k < len(rings.hole_gradients_px)],
+                    area_px=area,
+                    bbox_px=(
+                        int(outer[:, 0].min()),
+                        int(outer[:, 1].min()),
+                        int(np.ceil(outer[:, 0].max())),
+                        int(np.ceil(outer[:, 1].max())),
+                    ),
+                )
+            )
+        lobes.sort(key=lambda r: (r.bbox_px[1], r.bbox_px[0]))
+        labels = []
+        for lobe in lobes:
+            out.append(replace(lobe, label=len(out) + 1))
+            labels.append(len(out))
+            cuts[len(out)] = (shift, split.cut_px)
+        notes.append({"parts": labels, "evidence": split.evidence, "cut_length_px": length, "displacement_px": shift})
+    return out, notes, cuts
+
+
+def _with_cut_term(part: Part, mapped: MappedPart, cut_mm: np.ndarray, shift_mm: float) -> Part:
+    """The part with the term ``split_cut``: every figure's change when the cut moves by ``shift_mm``.
+
+    The cut's two ends (``cut_mm``) are vertices of the mapped outer ring; both move by
+    ``shift_mm`` along the cut's normal (its sign does not matter: the change's size is kept).
+    """
+    outer = np.asarray(mapped.outer_mm, dtype=float)
+    holes = [np.asarray(h, dtype=float) for h in mapped.holes_mm]
+    ends = [int(np.argmin(np.hypot(*(outer - p).T))) for p in cut_mm]
+    seg = (cut_mm[1] - cut_mm[0]) / max(float(np.hypot(*(cut_mm[1] - cut_mm[0]))), 1e-12)
+    normal = np.array([seg[1], -seg[0]])
+    moved = outer.copy()
+    moved[ends] += shift_mm * normal
+    before = _figure_values(section_properties(outer, holes))
+    after = _figure_values(section_properties(moved, holes))
+    term = {name: abs(after[name] - before[name]) for name in before}
+    term["principal_angle_deg"] = abs(
+        (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
+    )
+    return _with_extra_term(part, "split_cut", term, [])
+
+
+def _split_warnings(notes: list[dict[str, Any]], mm_per_px: float) -> list[str]:
+    out = []
+    for note in notes:
+        a, b = note["parts"]
+        how = "a seam across the outline" if note["evidence"] == "seam" else "a narrow neck"
+        out.append(
+            f"parts {a} and {b} were found as one outline and split (two parts touching: {how}); the cut, "
+            f"{note['cut_length_px'] * mm_per_px:.3g} mm long, may lie {note['displacement_px'] * mm_per_px:.2g} mm "
+            "off (term 'split_cut'); lay parts a few mm apart for a clean measurement"
+        )
+    return out
+
+
+#: Share of a tone move taken as uneven along the outline (first harmonic), for centroids.
+TONE_UNEVEN = 0.05
+
+
+def _tone_terms(
+    image: LoadedImage, found: list[PartRings], parts: list[Part], mm_per_px: float, tone_known: bool
+) -> list[str]:
+    """The term ``tone`` where the image's tone curve is in doubt; a warning for each sharpened part.
+
+    The midpoint rule is exact in linear light. A tone curve that is not the one the
+    file declares (a phone's rendering, a scanner's contrast setting) or sharpening
+    (:func:`~scanmass.segment.symmetry.edge_halo`) moves every edge of a part by a
+    fraction of the blur width, by an amount the single image cannot give. Its size is
+    bounded by the move between two readings far apart, sRGB and linear
+    (:func:`~scanmass.segment.symmetry.reading_shift`; rendered edges with blur 0.6-1.5 px:
+    an S-shaped curve, a 2.2 power curve and unsharp masks of amount 0.3-1.5 moved them
+    by 0.07-0.75 of it): the part's material is grown by that move and half the change
+    of each figure is the term (the move itself at 2 sigma); the centroid's term also
+    holds :data:`TONE_UNEVEN` of the move (an uneven move shifts even a round part's
+    centroid: a strongly sharpened ring moved its centroid by 0.002 px). Parts are
+    replaced in ``parts``; the warnings are returned.
+    """
+    warnings = []
+    linear, _ = encoding_lut("linear", len(image.to_linear))
+    for n, (rings, part) in enumerate(zip(found, parts)):
+        halo = edge_halo(image, rings)
+        if tone_known and not halo.found or part.outline_mm is None:
+            continue
+        move_mm = abs(reading_shift(image, rings, linear)) * mm_per_px
+        if move_mm <= 0.0:
+            continue
+        outer = np.asarray(part.outline_mm, dtype=float)
+        holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
+        grown_outer = offset_ring(outer, move_mm)
+        grown_holes = [offset_ring(h, -move_mm) for h in holes]
+        term = _half_change(outer, holes, grown_outer, grown_holes)
+        # the move is not quite even along the outline (it depends on the edge's angle to the
+        # pixel grid and on the local contrast): a first-harmonic variation of TONE_UNEVEN of it
+        # moves the centroid of a round part by that fraction of the move, which an even
+        # offset never does
+        for axis in ("centroid_x_mm", "centroid_y_mm"):
+            term[axis] = combine(term[axis], TONE_UNEVEN * move_mm)
+        parts[n] = _with_extra_term(part, "tone", term, grown_holes if len(holes) == len(part.holes) else [])
+        if halo.found:
+            warnings.append(
+                f"part {part.label}: its edges show sharpening halos ({100 * halo.overshoot:.2g} % of the contrast): "
+                "sharpening or local contrast in the scanner's or camera's software moves edges by a fraction of a "
+                f"pixel (up to about {move_mm:.2g} mm here; included in the uncertainty, term 'tone'); turn "
+                "sharpening off and scan again for full accuracy"
+            )
+    return warnings
