@@ -96,7 +96,7 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
     """The part with the term ``scan_shadow``.
 
     Separated: every figure's change when the face's edge against its shadow moves out by
-    :data:`FACE_EDGE_U_PX`. Not separated: the shadow the outline may hold (its estimated
+    :data:`FACE_EDGE_U_PX`, and that edge uncertainty on each hole's diameter. Not separated: the shadow the outline may hold (its estimated
     area; the centroid by that share of half the part's extent, the moments by twice it).
     """
     if face.outer_px is not None and face.shadow_edge is not None:
@@ -115,7 +115,9 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
         term["principal_angle_deg"] = abs(
             (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
         )
-        return _with_extra_term(part, "scan_shadow", term, [])
+        # a hole's wall throws the lamp's shadow into the hole as the part's wall does beside it:
+        # its diameter gets the same edge uncertainty
+        return _with_shadow_term(part, term, FACE_EDGE_U_PX * plane_map.mm_per_px, name="scan_shadow")
     shadow_mm2 = face.shadow_px2 * plane_map.mm_per_px**2
     share = min(1.0, shadow_mm2 / max(part.area_mm2, 1e-9))
     arm_mm = 0.5 * part.caliper_max_mm
