@@ -61,6 +61,29 @@ def _half_change(
     return term
 
 
+def area_share_term(part: Part, area_mm2: float, weight: float = 1.0) -> dict[str, float]:
+    """A term for material of ``area_mm2`` that the outline may hold or miss somewhere along it.
+
+    Its share ``s`` of the part's area bounds the rest: the centroid by ``s`` times half the
+    part's largest caliper width, the perimeter by ``s`` times the perimeter, each second
+    moment by ``2 s`` times its own size (Ixy by the larger of itself and Ixx). All are
+    multiplied by ``weight`` (0.5 where the condition is taken at 2 sigma).
+    """
+    share = min(1.0, area_mm2 / max(part.area_mm2, 1e-9))
+    arm_mm = 0.5 * part.caliper_max_mm
+    term = {
+        "area_mm2": weight * area_mm2,
+        "centroid_x_mm": weight * share * arm_mm,
+        "centroid_y_mm": weight * share * arm_mm,
+        "perimeter_mm": weight * share * part.perimeter_mm,
+        "principal_angle_deg": 0.0,
+    }
+    for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+        size = max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+        term[fig] = weight * 2 * share * size
+    return term
+
+
 def _with_shadow_term(part: Part, term: dict[str, float], hole_d_u_mm: float, name: str = "cast_shadow") -> Part:
     """The part with a term ``name``; a hole can be narrowed by a shadow (or a lost reflection) too."""
     holes = [replace(h, diameter_u_mm=combine(h.diameter_u_mm, hole_d_u_mm)) for h in part.holes]

@@ -14,7 +14,13 @@ import numpy as np
 from scanmass.errors import ScaleError, SegmentationError
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
-from scanmass.pipeline.part_terms import UNKNOWN_THICKNESS_MM, _half_change, _with_extra_term, _with_shadow_term
+from scanmass.pipeline.part_terms import (
+    UNKNOWN_THICKNESS_MM,
+    _half_change,
+    _with_extra_term,
+    _with_shadow_term,
+    area_share_term,
+)
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import raised_outline_mm
 from scanmass.segment.shadow import (
@@ -237,34 +243,15 @@ def _cast_shadows(
             continue
         foreign_mm2 = risk.foreign_outside_px * mm_per_px**2
         if foreign_mm2 > max(0.002 * part.area_mm2, 4 * mm_per_px**2 * math.sqrt(risk.band_px)):
-            share = min(1.0, foreign_mm2 / max(part.area_mm2, 1e-9))
-            term = {
-                "area_mm2": foreign_mm2,
-                "centroid_x_mm": share * 0.5 * part.caliper_max_mm,
-                "centroid_y_mm": share * 0.5 * part.caliper_max_mm,
-                "perimeter_mm": share * part.perimeter_mm,
-                "principal_angle_deg": 0.0,
-            }
-            for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
-                term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+            term = area_share_term(part, foreign_mm2)
             part = _with_shadow_term(part, term, 0.5 * band_px * mm_per_px, name="reflection")
             result.parts[n] = part
             lost.append(f"{part.label} ({foreign_mm2:.3g} mm²)")
         if risk.fraction < SHADOW_FRACTION:
             continue
         like_mm2 = risk.shadow_like_px * mm_per_px**2
-        share = min(1.0, like_mm2 / max(part.area_mm2, 1e-9))
-        arm_mm = 0.5 * part.caliper_max_mm
         band_mm = band_px * mm_per_px
-        term = {
-            "area_mm2": 0.5 * like_mm2,
-            "centroid_x_mm": 0.5 * share * arm_mm,
-            "centroid_y_mm": 0.5 * share * arm_mm,
-            "perimeter_mm": 0.5 * share * part.perimeter_mm,
-            "principal_angle_deg": 0.0,
-        }
-        for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
-            term[fig] = share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+        term = area_share_term(part, like_mm2, weight=0.5)
         result.parts[n] = _with_shadow_term(part, term, 0.5 * band_mm)
         flagged.append(f"{part.label} ({100 * risk.fraction:.0f} % of its edge band)")
     out = []
@@ -319,16 +306,7 @@ def _unclear_edges(image: LoadedImage, scale: PhotoScale, result: Measurement) -
         if risk is None or risk.flagged_px < UNCLEAR_EDGE_SHARE * risk.length_px:
             continue
         area_mm2 = UNCLEAR_EDGE_SIGMA_SHARE * risk.moved_px2 * mm_per_px**2
-        share = min(1.0, area_mm2 / max(part.area_mm2, 1e-9))
-        term = {
-            "area_mm2": area_mm2,
-            "centroid_x_mm": share * 0.5 * part.caliper_max_mm,
-            "centroid_y_mm": share * 0.5 * part.caliper_max_mm,
-            "perimeter_mm": share * part.perimeter_mm,
-            "principal_angle_deg": 0.0,
-        }
-        for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
-            term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
+        term = area_share_term(part, area_mm2)
         holes = [
             replace(h, diameter_u_mm=combine(h.diameter_u_mm, d_px * mm_per_px))
             for h, d_px in zip(part.holes, risk.ring_mean_px[1:])

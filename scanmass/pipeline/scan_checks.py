@@ -16,7 +16,13 @@ from scanmass.geometry import offset_ring
 from scanmass.load.decode import LoadedImage, encoding_lut
 from scanmass.mapping import MappedPart
 from scanmass.measurement import Part
-from scanmass.pipeline.part_terms import _figure_values, _half_change, _with_extra_term, _with_shadow_term
+from scanmass.pipeline.part_terms import (
+    _figure_values,
+    _half_change,
+    _with_extra_term,
+    _with_shadow_term,
+    area_share_term,
+)
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import section_properties
 from scanmass.segment.lidgap import LidGap
@@ -119,18 +125,7 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
         # its diameter gets the same edge uncertainty
         return _with_shadow_term(part, term, FACE_EDGE_U_PX * plane_map.mm_per_px, name="scan_shadow")
     shadow_mm2 = face.shadow_px2 * plane_map.mm_per_px**2
-    share = min(1.0, shadow_mm2 / max(part.area_mm2, 1e-9))
-    arm_mm = 0.5 * part.caliper_max_mm
-    term = {
-        "area_mm2": shadow_mm2,
-        "centroid_x_mm": share * arm_mm,
-        "centroid_y_mm": share * arm_mm,
-        "perimeter_mm": share * part.perimeter_mm,
-        "principal_angle_deg": 0.0,
-    }
-    for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
-        term[fig] = 2 * share * max(abs(getattr(part, fig)), abs(part.ixx_mm4) if fig == "ixy_mm4" else 0.0)
-    return _with_shadow_term(part, term, 0.0, name="scan_shadow")
+    return _with_shadow_term(part, area_share_term(part, shadow_mm2), 0.0, name="scan_shadow")
 
 
 def _side(direction: tuple[float, float]) -> str:
