@@ -16,10 +16,15 @@ import numpy as np
 
 from scanmass.geometry import signed_area
 
-__all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "NECK_RATIO", "SEAM_LEVEL"]
+__all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "solidity", "NECK_RATIO", "SEAM_LEVEL"]
 
 #: A neck narrower than this share of the smaller lobe's inscribed diameter means two parts.
 NECK_RATIO = 0.35
+
+#: A silhouette filling at least this share of its convex hull is not searched for a neck: two
+#: lobes joined by a neck leave a notch on each side of it (two discs touching fill 0.87 of their
+#: hull, two squares joined by a bridge a fifth of their width 0.92; tests/test_touching.py).
+SOLIDITY_LIMIT = 0.97
 
 
 @dataclass(frozen=True)
@@ -31,8 +36,27 @@ class NeckReport:
     lobe_areas_px: tuple[float, float]
 
 
-def touching_lobes(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None) -> NeckReport | None:
+def solidity(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None) -> float:
+    """The share of its convex hull that a part's rings fill (holes cleared), 0 for a degenerate ring."""
+    ring = np.asarray(outer_px, dtype=float)
+    hull = cv2.convexHull(ring.astype(np.float32)).reshape(-1, 2).astype(float)
+    hull_area = abs(signed_area(hull)) if len(hull) >= 3 else 0.0
+    if hull_area <= 0.0:
+        return 0.0
+    area = abs(signed_area(ring)) - sum(abs(signed_area(np.asarray(h, float))) for h in holes_px or [])
+    return area / hull_area
+
+
+def touching_lobes(
+    outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None, *, solidity_limit: float = SOLIDITY_LIMIT
+) -> NeckReport | None:
     """Whether a part's silhouette looks like two parts touching, from its rings in pixels.
+
+    A part without holes whose outer ring fills at least ``solidity_limit`` of its convex
+    hull (:func:`solidity`) has no notch for a neck and is passed over without the search
+    below (pass a value above 1 to search every part). Parts with holes are always
+    searched: a hole near the middle of a strip pinches it into two lobes however little
+    of the hull it takes.
 
     The filled ring (holes cleared) is rasterised on a grid of at most ~400 px across; its
     Euclidean distance transform [1]_ gives each lobe's inscribed radius (its maximum) and
@@ -48,6 +72,8 @@ def touching_lobes(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = Non
     .. [2] S. Beucher and F. Meyer, "The morphological approach to segmentation: the
        watershed transformation", in Mathematical Morphology in Image Processing, 1993.
     """
+    if not holes_px and solidity(outer_px) >= solidity_limit:
+        return None
     from skimage.feature import peak_local_max
     from skimage.segmentation import watershed
 
@@ -137,6 +163,18 @@ def _ring_mask(shape: tuple[int, int], outer: np.ndarray, holes: list[np.ndarray
     return mask
 
 
+def _lut_median(codes: np.ndarray, lut: np.ndarray) -> float:
+    """``np.median(lut[codes])`` from a histogram of the codes (the same value, without the gather and partition)."""
+    counts = np.bincount(codes, minlength=len(lut))
+    order = np.argsort(lut, kind="stable")
+    cum = np.cumsum(counts[order])
+    n = int(cum[-1])
+    lo = lut[order[np.searchsorted(cum, (n - 1) // 2, side="right")]]
+    hi = lut[order[np.searchsorted(cum, n // 2, side="right")]]
+    # numpy's median: the mean of the two middle values, in the array's own dtype
+    return float(np.mean(np.array([lo, hi], dtype=lut.dtype)))
+
+
 def _two_runs(labels: np.ndarray) -> tuple[int, int] | None:
     """For a cyclic sequence of two labels: the two indices where it changes, or None if not two runs.
 
@@ -168,6 +206,7 @@ def split_touching(
     dark_part: bool,
     noise_rel: float = 0.0,
     neck: NeckReport | None | bool = True,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> TouchSplit | None:
     """Cut one found part into two touching parts, if it looks like two.
 
@@ -197,6 +236,10 @@ def split_touching(
     neck : NeckReport or None, optional
         The part's :func:`touching_lobes` result when the caller has it (None: no neck);
         by default it is computed here.
+    levels : (codes, lut), optional
+        The encoded crop and the lookup table that made ``linear`` (``linear ==
+        lut[codes]``); with them the part's and the background's medians are counted from
+        a histogram of the codes instead of partitioning the crop (the same values).
 
     Returns
     -------
@@ -221,17 +264,21 @@ def split_touching(
     if area < 50:
         return None
     kernel = np.ones((3, 3), np.uint8)
-    inner = cv2.erode(mask, kernel, iterations=3).astype(bool)
+    core = cv2.erode(mask, kernel, iterations=2)
+    inner = cv2.erode(core, kernel).astype(bool)  # three erosions in all
     outside = ~cv2.dilate(_ring_mask(shape, outer, [], origin), kernel, iterations=3).astype(bool)
-    if inner.sum() < 20 or outside.sum() < 20:
+    if np.count_nonzero(inner) < 20 or np.count_nonzero(outside) < 20:
         return None
-    fg = float(np.median(linear[inner]))
-    bg = float(np.median(linear[outside]))
+    if levels is None:
+        fg = float(np.median(linear[inner]))
+        bg = float(np.median(linear[outside]))
+    else:
+        codes, lut = levels
+        fg, bg = _lut_median(codes[inner], lut), _lut_median(codes[outside], lut)
     if abs(fg - bg) < 1e-4 or (fg < bg) != dark_part:
         return None
     norm = (linear - bg) / (fg - bg)
     seam_level = min(SEAM_LEVEL, 1.0 - 5.0 * max(noise_rel, 0.0))
-    core = cv2.erode(mask, kernel, iterations=2)
     solid = (core.astype(bool) & (cv2.GaussianBlur(norm.astype(np.float32), (0, 0), 0.7) > seam_level)).astype(np.uint8)
     count, comp, stats, _ = cv2.connectedComponentsWithStats(solid, connectivity=4)
     big = [k for k in range(1, count) if stats[k, cv2.CC_STAT_AREA] >= MIN_LOBE_SHARE * area]
