@@ -163,9 +163,16 @@ def _ring_mask(shape: tuple[int, int], outer: np.ndarray, holes: list[np.ndarray
     return mask
 
 
-def _lut_median(codes: np.ndarray, lut: np.ndarray) -> float:
-    """``np.median(lut[codes])`` from a histogram of the codes (the same value, without the gather and partition)."""
-    counts = np.bincount(codes, minlength=len(lut))
+def _lut_median(codes: np.ndarray, where: np.ndarray, lut: np.ndarray) -> float:
+    """``np.median(lut[codes[where != 0]])`` from a histogram of the codes (the same value, without gathering them).
+
+    ``codes`` are the integer codes of a crop, ``where`` a uint8 mask of the same shape.
+    """
+    bins = len(lut)
+    if codes.dtype in (np.uint8, np.uint16) and codes.size < 2**24:  # float32 counts stay exact
+        counts = cv2.calcHist([codes], [0], where, [bins], [0, bins]).ravel().astype(np.int64)
+    else:
+        counts = np.bincount(codes[where.view(bool)].ravel(), minlength=bins)
     order = np.argsort(lut, kind="stable")
     cum = np.cumsum(counts[order])
     n = int(cum[-1])
@@ -260,31 +267,34 @@ def split_touching(
     outer = np.asarray(outer_px, float)
     shape = linear.shape
     mask = _ring_mask(shape, outer, holes_px, origin)
-    area = float(mask.sum())
+    area = float(np.count_nonzero(mask))  # the mask holds 0 and 1
     if area < 50:
         return None
     kernel = np.ones((3, 3), np.uint8)
     core = cv2.erode(mask, kernel, iterations=2)
-    inner = cv2.erode(core, kernel).astype(bool)  # three erosions in all
-    outside = ~cv2.dilate(_ring_mask(shape, outer, [], origin), kernel, iterations=3).astype(bool)
+    inner = cv2.erode(core, kernel)  # three erosions in all
+    outside = (cv2.dilate(_ring_mask(shape, outer, [], origin), kernel, iterations=3) == 0).view(np.uint8)
     if np.count_nonzero(inner) < 20 or np.count_nonzero(outside) < 20:
         return None
     if levels is None:
-        fg = float(np.median(linear[inner]))
-        bg = float(np.median(linear[outside]))
+        fg = float(np.median(linear[inner.view(bool)]))
+        bg = float(np.median(linear[outside.view(bool)]))
     else:
         codes, lut = levels
-        fg, bg = _lut_median(codes[inner], lut), _lut_median(codes[outside], lut)
+        fg, bg = _lut_median(codes, inner, lut), _lut_median(codes, outside, lut)
     if abs(fg - bg) < 1e-4 or (fg < bg) != dark_part:
         return None
     norm = (linear - bg) / (fg - bg)
     seam_level = min(SEAM_LEVEL, 1.0 - 5.0 * max(noise_rel, 0.0))
-    solid = (core.astype(bool) & (cv2.GaussianBlur(norm.astype(np.float32), (0, 0), 0.7) > seam_level)).astype(np.uint8)
-    count, comp, stats, _ = cv2.connectedComponentsWithStats(solid, connectivity=4)
-    big = [k for k in range(1, count) if stats[k, cv2.CC_STAT_AREA] >= MIN_LOBE_SHARE * area]
+    solid = (core.view(bool) & (cv2.GaussianBlur(norm.astype(np.float32, copy=False), (0, 0), 0.7) > seam_level)).view(
+        np.uint8
+    )
+    count, comp = cv2.connectedComponents(solid, connectivity=4)
+    sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
+    big = [k for k in range(1, count) if sizes[k] >= MIN_LOBE_SHARE * area]
     markers = np.zeros(shape, np.int32)
     if len(big) >= 2:
-        big.sort(key=lambda k: -stats[k, cv2.CC_STAT_AREA])
+        big.sort(key=lambda k: -sizes[k])
         markers[comp == big[0]] = 1
         markers[comp == big[1]] = 2
         relief: np.ndarray = -np.asarray(norm, dtype=np.float64)
