@@ -47,6 +47,68 @@ def solidity(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None) -> 
     return area / hull_area
 
 
+def _local_peaks(image: np.ndarray, min_distance: int, threshold_abs: float, labels: np.ndarray) -> np.ndarray:
+    """``skimage.feature.peak_local_max(image, min_distance=, threshold_abs=, labels=)`` for a 0/1 label image.
+
+    The same steps and the same result (row, column) in the same order, without importing
+    scipy (which scikit-image's feature module does, ~0.3 s of a process's start): the
+    maximum filter over a (2 d + 1) square window with the border replicated is OpenCV's
+    dilation (both exact maxima), then candidates brightest first (a stable sort) keep at
+    least ``min_distance`` (Chebyshev) from every peak kept before them. The one case it
+    does not repeat (every pixel of the label a local maximum) is passed to scikit-image.
+    """
+    d = int(min_distance)
+    fenced = labels.astype(int)
+    fenced[:d], fenced[-d:], fenced[:, :d], fenced[:, -d:] = 0, 0, 0, 0  # exclude_border=True: min_distance
+    rows, cols = np.nonzero(fenced == 1)
+    if rows.size == 0:
+        return np.empty((0, 2), dtype=np.intp)
+    r0, r1, c0, c1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
+    inside = labels[r0:r1, c0:c1] == 1
+    img = image[r0:r1, c0:c1].copy()
+    img[~inside] = np.finfo(img.dtype).min if np.issubdtype(img.dtype, np.floating) else np.iinfo(img.dtype).min
+    size = 2 * d + 1
+    peak = img == cv2.dilate(img, np.ones((size, size), np.uint8), borderType=cv2.BORDER_REPLICATE)
+    if np.all(peak[inside]):
+        from skimage.feature import peak_local_max
+
+        return peak_local_max(image, min_distance=d, threshold_abs=threshold_abs, labels=labels)
+    peak &= img > threshold_abs
+    coord = np.transpose(np.nonzero(peak))
+    coord = coord[np.argsort(-img[peak], kind="stable")]
+    if d > 1 and len(coord) > 1:
+        kept: list[int] = []
+        for k in range(len(coord)):
+            if not kept or np.abs(coord[kept] - coord[k]).max(axis=1).min() >= d:
+                kept.append(k)
+        coord = coord[kept]
+    return coord + [r0, c0]
+
+
+def _watershed(relief: np.ndarray, markers: np.ndarray, mask: np.ndarray, *, line: bool = False) -> np.ndarray:
+    """``skimage.segmentation.watershed(relief, markers, mask=mask, watershed_line=line)`` (connectivity 1).
+
+    scikit-image's own flooding routine on the same padded, raveled arrays and the same
+    neighbour order, without importing its segmentation package (which imports scipy).
+    """
+    try:
+        from skimage.segmentation._watershed_cy import watershed_raveled
+    except ImportError:  # another scikit-image layout: its public function, same result
+        from skimage.segmentation import watershed
+
+        return watershed(relief, markers, mask=mask, watershed_line=line)
+    inside = np.asarray(mask, dtype=bool)
+    image = np.pad(relief.astype(np.float64), 1)
+    output = np.pad(np.asarray(markers) * inside, 1)
+    flat_mask = np.pad(inside.astype(np.int8), 1).ravel()
+    width = image.shape[1]
+    neighbours = np.array([-width, -1, 1, width], dtype=np.intp)
+    strides = np.array(image.strides, dtype=np.intp) // image.itemsize
+    flat_out = output.ravel()
+    watershed_raveled(image.ravel(), np.flatnonzero(output), neighbours, flat_mask, strides, 0.0, flat_out, line)
+    return output[1:-1, 1:-1].copy()
+
+
 def touching_lobes(
     outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None, *, solidity_limit: float = SOLIDITY_LIMIT
 ) -> NeckReport | None:
@@ -74,9 +136,6 @@ def touching_lobes(
     """
     if not holes_px and solidity(outer_px) >= solidity_limit:
         return None
-    from skimage.feature import peak_local_max
-    from skimage.segmentation import watershed
-
     ring = np.asarray(outer_px, dtype=float)
     lo = ring.min(axis=0) - 3
     size = ring.max(axis=0) - lo + 3
@@ -89,15 +148,13 @@ def touching_lobes(
     dist = cv2.distanceTransform(mask, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
     if dist.max() < 3:
         return None
-    peaks = peak_local_max(
-        dist, min_distance=max(3, int(0.5 * dist.max())), threshold_abs=0.3 * dist.max(), labels=mask
-    )
+    peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), mask)
     if len(peaks) < 2:
         return None
     markers = np.zeros(mask.shape, np.int32)
     for k, (r, c) in enumerate(peaks, start=1):
         markers[r, c] = k
-    basins = watershed(-dist, markers, mask=mask.astype(bool), watershed_line=True)
+    basins = _watershed(-dist, markers, mask, line=True)
     areas = np.bincount(basins.ravel(), minlength=len(peaks) + 1)[1:]
     order = np.argsort(areas)[::-1]
     a, b = order[0] + 1, order[1] + 1
@@ -259,10 +316,6 @@ def split_touching(
     .. [1] S. Beucher and F. Meyer, "The morphological approach to segmentation: the
        watershed transformation", in Mathematical Morphology in Image Processing, 1993.
     """
-    from scipy import ndimage
-    from skimage.feature import peak_local_max
-    from skimage.segmentation import watershed
-
     origin = np.asarray(origin_px, float)
     outer = np.asarray(outer_px, float)
     shape = linear.shape
@@ -305,9 +358,7 @@ def split_touching(
         if not isinstance(neck, NeckReport):
             return None
         dist = cv2.distanceTransform(mask, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
-        peaks = peak_local_max(
-            dist, min_distance=max(3, int(0.5 * dist.max())), threshold_abs=0.3 * dist.max(), labels=mask
-        )
+        peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), mask)
         if len(peaks) < 2:
             return None
         order = np.argsort(-dist[peaks[:, 0], peaks[:, 1]])
@@ -315,7 +366,9 @@ def split_touching(
             markers[r, c] = k
         relief = -np.asarray(dist, dtype=np.float64)
         evidence = "neck"
-    basins = watershed(relief, markers, mask=mask.astype(bool))
+    basins = _watershed(relief, markers, mask)
+    from scipy import ndimage  # only for a part that splits
+
     _, (near_r, near_c) = ndimage.distance_transform_edt(basins == 0, return_indices=True)
 
     def label_at(points: np.ndarray) -> np.ndarray:
