@@ -67,6 +67,24 @@ def test_the_probe_sees_a_heavy_import():
     assert "numpy" in report["heavy"]
 
 
+def test_measuring_a_scan_leaves_scipy_unloaded():
+    """A scan with a ring, a plate with a hole and a strip (necks searched, walls examined): no scipy
+    (its import takes ~0.3-0.5 s of a process). Parts with walls thinner than the blur allows, or
+    split with --split-touching, may still load it."""
+    body = (
+        "import numpy as np, cv2, scanmass\n"
+        "img = np.full((400, 600), 235, np.uint8)\n"
+        "cv2.circle(img, (120, 120), 80, 25, -1); cv2.circle(img, (120, 120), 50, 235, -1)\n"
+        "img[60:300, 260:420] = 25; cv2.circle(img, (340, 200), 30, 235, -1)\n"
+        "img[330:370, 60:560] = 25\n"
+        "m = scanmass.measure(img, dpi=300)\n"
+        "code = len(m.parts)\n"
+    )
+    report = _run(body)
+    assert report["code"] == 3
+    assert "scipy" not in report["heavy"] and "numpy" in report["heavy"]
+
+
 @pytest.mark.parametrize("name", scanmass.__all__)
 def test_every_public_name_resolves(name):
     value = getattr(scanmass, name)

@@ -219,6 +219,31 @@ def test_ray_crossings_all_at_once_equal_one_ray_at_a_time():
     assert np.isfinite(got[1]).sum() > 100  # rays that cross both other boundaries: not vacuous
 
 
+def test_ball_pairs_are_the_k_d_trees():
+    """thin._ball_pairs (a grid of cells) against scipy's cKDTree.query_ball_point (the reference):
+    the same centres for every query, grouped by query in order; queries on centres and empty sets too."""
+    rng = np.random.default_rng(4)
+    pairs = 0
+    for i in range(150):
+        centres = rng.uniform(-50, 300, (int(rng.integers(0, 300)), 2))
+        queries = rng.uniform(-60, 320, (int(rng.integers(0, 200)), 2))
+        if i % 4 == 0 and len(centres) and len(queries):
+            n = min(len(centres), len(queries))
+            queries[:n] = centres[:n]  # at distance 0, and others exactly as far as their neighbours
+        radius = float(rng.uniform(0.1, 40))
+        query, centre = thin._ball_pairs(centres, queries, radius)
+        assert np.all(np.diff(query) >= 0)
+        got = [sorted(centre[query == k].tolist()) for k in range(len(queries))]
+        want = (
+            [sorted(c) for c in scipy.spatial.cKDTree(centres).query_ball_point(queries, radius)]
+            if len(centres) and len(queries)
+            else [[] for _ in queries]
+        )
+        assert got == want
+        pairs += len(query)
+    assert pairs > 1000
+
+
 def test_convex_hull_with_duplicates_matches_shapely():
     from shapely.geometry import MultiPoint
 

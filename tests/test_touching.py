@@ -155,3 +155,119 @@ def test_split_touching_on_a_photo():
     merged = scanmass.measure(image, **kwargs)
     assert len(merged.parts) == 1 and any("looks like two parts touching (a seam" in w for w in merged.warnings)
     _assert_each_within_3_sigma(scanmass.measure(image, split_touching=True, **kwargs), plates)
+
+
+def _two_lobe_masks(count: int, seed: int):
+    """Silhouettes of one to three discs, rotated rectangles and ellipses laid about touching, some bridged."""
+    import cv2
+
+    rng = np.random.default_rng(seed)
+    for _ in range(count):
+        m = np.zeros((500, 700), np.uint8)
+        c = np.array([220.0, 250.0])
+        sizes = rng.uniform(15, 100, (3, 2))
+        for k in range(int(rng.integers(1, 4))):
+            kind = int(rng.integers(0, 3))
+            a, b = sizes[k]
+            if kind == 0:
+                cv2.circle(m, (int(c[0]), int(c[1])), int(a), 1, -1)
+            elif kind == 1:
+                box = cv2.boxPoints(((float(c[0]), float(c[1])), (2 * a, 2 * b), float(rng.uniform(0, 180))))
+                cv2.fillPoly(m, [np.round(box).astype(np.int32)], 1)
+            else:
+                cv2.ellipse(m, ((float(c[0]), float(c[1])), (2 * a, 2 * b), float(rng.uniform(0, 180))), 1, -1)
+            d = rng.normal(size=2)
+            reach = rng.uniform(0.8, 1.3) * (min(a, b) + min(sizes[(k + 1) % 3]))
+            c = np.clip(c + d / np.hypot(*d) * reach, 110, [590, 390])
+        if rng.random() < 0.3:
+            p = rng.uniform([80, 80], [620, 420], (2, 2)).astype(int)
+            cv2.line(m, (int(p[0, 0]), int(p[0, 1])), (int(p[1, 0]), int(p[1, 1])), 1, int(rng.integers(2, 25)))
+        contours, _ = cv2.findContours(m, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
+        if contours:
+            yield max(contours, key=cv2.contourArea).reshape(-1, 2).astype(float)
+
+
+def test_neck_prefilter_leaves_every_outcome_unchanged():
+    """Parts without holes that fill 0.97 of their hull skip the neck search: on 400 random silhouettes
+    the search alone gives the same answer, and every neck it finds lies well
+    below the limit (the test fails if the pre-filter ever hides a neck the full search reports)."""
+    from scanmass.segment.touching import SOLIDITY_LIMIT, solidity, touching_lobes
+
+    skipped = found = 0
+    for outer in _two_lobe_masks(400, seed=7):
+        full = touching_lobes(outer, solidity_limit=2.0)  # every part searched
+        assert (touching_lobes(outer) is None) == (full is None)
+        skipped += solidity(outer) >= SOLIDITY_LIMIT
+        if full is not None:
+            found += 1
+            assert solidity(outer) < SOLIDITY_LIMIT - 0.03
+    assert found >= 8 and skipped >= 100  # both branches taken
+
+
+def test_neck_solidity_of_the_touching_discs():
+    """Two discs of radius r touching fill 2 pi r^2 / ((4 + pi) r^2) = 0.880 of their hull (closed form)."""
+    from scanmass.segment.touching import SOLIDITY_LIMIT, solidity
+
+    t = np.linspace(0.0, 2 * np.pi, 721)[1:-1]  # each disc once round, leaving out the contact point
+    right = np.column_stack([200 - 50 * np.cos(t), 100 - 50 * np.sin(t)])  # from (150, 100), counter-clockwise
+    left = np.column_stack([100 + 50 * np.cos(t), 100 + 50 * np.sin(t)])  # from (150, 100), counter-clockwise
+    ring = np.vstack([right, left])
+    assert solidity(ring) == pytest.approx(2 * np.pi / (4 + np.pi), rel=0.02)
+    assert solidity(ring) < SOLIDITY_LIMIT
+
+
+def test_lut_median_is_numpys_median():
+    """split_touching's histogram median against numpy's median of the gathered values (the reference)."""
+    from scanmass.load.decode import srgb_to_linear
+    from scanmass.segment.touching import _lut_median
+
+    rng = np.random.default_rng(3)
+    for bins, dtype in ((256, np.uint8), (65536, np.uint16)):
+        lut = np.asarray(srgb_to_linear(np.arange(bins) / (bins - 1)), np.float32)
+        for _ in range(200):
+            codes = rng.integers(0, bins, (int(rng.integers(4, 60)), int(rng.integers(4, 60))), dtype=dtype)[1:, 2:]
+            if rng.random() < 0.2:
+                codes = np.full_like(codes, codes[0, 0])
+            where = (rng.random(codes.shape) < rng.uniform(0.05, 1.0)).view(np.uint8)
+            if where.any():
+                assert _lut_median(codes, where, lut) == float(np.median(lut[codes][where.view(bool)]))
+
+
+def test_local_peaks_and_watershed_are_scikit_images():
+    """The scipy-free peak search and watershed give scikit-image's peak_local_max and watershed
+    exactly (the reference), on distance maps of random discs and boxes, with and without lines."""
+    import cv2
+    from skimage.feature import peak_local_max
+    from skimage.segmentation import watershed
+
+    from scanmass.segment.touching import _local_peaks, _watershed
+
+    rng = np.random.default_rng(5)
+    peaks_seen = 0
+    for i in range(120):
+        m = np.zeros((int(rng.integers(30, 200)), int(rng.integers(30, 200))), np.uint8)
+        for _ in range(int(rng.integers(1, 5))):
+            c = (int(rng.integers(0, m.shape[1])), int(rng.integers(0, m.shape[0])))
+            if rng.random() < 0.5:
+                cv2.circle(m, c, int(rng.integers(3, 60)), 1, -1)
+            else:
+                cv2.rectangle(m, c, (c[0] + int(rng.integers(3, 120)), c[1] + int(rng.integers(3, 60))), 1, -1)
+        if rng.random() < 0.3:
+            cv2.circle(m, (m.shape[1] // 2, m.shape[0] // 2), int(rng.integers(2, 20)), 0, -1)
+        m[0, :] = 0
+        dist = cv2.distanceTransform(m, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+        if dist.max() < 1:
+            continue
+        md = max(3, int(0.5 * dist.max())) if i % 2 else int(rng.integers(2, 8))
+        want = peak_local_max(dist, min_distance=md, threshold_abs=0.3 * dist.max(), labels=m)
+        got = _local_peaks(dist, md, 0.3 * dist.max(), m)
+        assert np.array_equal(got, want)
+        peaks_seen += len(want)
+        if len(want):
+            markers = np.zeros(m.shape, np.int32)
+            for k, (r, c) in enumerate(want, start=1):
+                markers[r, c] = k
+            for line in (True, False):
+                want_ws = watershed(-dist, markers, mask=m.astype(bool), watershed_line=line)
+                assert np.array_equal(_watershed(-dist, markers, m, line=line), want_ws)
+    assert peaks_seen > 200

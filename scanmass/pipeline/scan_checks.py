@@ -208,16 +208,17 @@ def _touch_splits(
     for rings, neck in zip(parts, necks):
         x0, y0 = (np.floor(rings.outer_px.min(axis=0)).astype(int) - 8).clip(0)
         x1, y1 = np.ceil(rings.outer_px.max(axis=0)).astype(int) + 9
-        crop = lut[image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]]
+        codes = image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]
         out.append(
             split_touching(
-                crop,
+                lut[codes],
                 (int(x0), int(y0)),
                 rings.outer_px,
                 list(rings.holes_px),
                 dark_part=polarity.startswith("dark"),
                 noise_rel=rings.noise_rel if math.isfinite(rings.noise_rel) else 0.0,
                 neck=neck,
+                levels=(codes, lut),
             )
         )
     return out

@@ -36,7 +36,6 @@ References
 
 from __future__ import annotations
 
-import itertools
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
@@ -480,18 +479,17 @@ def _crossings(
 ) -> tuple[np.ndarray, np.ndarray]:
     """First and second distances along rays ``p + t d`` (t > 0.05) to the segments; inf where none.
 
-    Every ray is tested against the segments whose midpoints lie near it (a k-d tree
-    query), all rays at once: the (ray, segment) pairs are laid out flat, in blocks.
+    Every ray is tested against the segments whose midpoints lie near it (a ball around
+    the ray's middle that holds every segment it can cross), all rays at once: the (ray,
+    segment) pairs are laid out flat, in blocks.
     """
-    from scipy.spatial import cKDTree  # scipy.spatial costs ~0.2 s to import: only when walls are examined
-
-    tree = cKDTree(0.5 * (seg_a + seg_b))
     first = np.full(len(p), np.inf)
     second = np.full(len(p), np.inf)
     seg_len = float(np.max(np.hypot(*(seg_b - seg_a).T))) if len(seg_a) else 1.0
     mids = p + direction * (reach / 2)
-    near = tree.query_ball_point(mids, reach / 2 + seg_len)
-    counts = np.fromiter((len(c) for c in near), np.intp, len(near))
+    ray_of, near = _ball_pairs(0.5 * (seg_a + seg_b), mids, reach / 2 + seg_len)
+    counts = np.bincount(ray_of, minlength=len(p))
+    offsets = np.cumsum(counts) - counts
     block = max(1, _CROSSING_PAIRS // max(1, int(counts.max(initial=1))))
     for start in range(0, len(p), block):
         stop = min(len(p), start + block)
@@ -499,7 +497,7 @@ def _crossings(
         if not n.any():
             continue
         k = np.repeat(np.arange(start, stop), n)  # the ray of each pair
-        idx = np.fromiter(itertools.chain.from_iterable(near[start:stop]), np.intp, int(n.sum()))
+        idx = near[offsets[start] : offsets[start] + int(n.sum())]
         a, b = seg_a[idx], seg_b[idx]
         e = b - a
         d = direction[k]
@@ -518,6 +516,36 @@ def _crossings(
         first[rays] = t[at]
         second[rays[many > 1]] = t[at[many > 1] + 1]
     return first, second
+
+
+def _ball_pairs(centres: np.ndarray, queries: np.ndarray, radius: float) -> tuple[np.ndarray, np.ndarray]:
+    """Every (query, centre) pair at most ``radius`` apart, grouped by query in order: (query index, centre index).
+
+    Centres are binned in square cells ``radius`` wide, so each query's ball lies within the
+    3 x 3 cells around its own; those are gathered and kept within the radius. (A k-d tree
+    gives the same pairs; scipy.spatial takes ~0.2 s to import.)
+    """
+    if len(centres) == 0 or len(queries) == 0:
+        return np.zeros(0, np.intp), np.zeros(0, np.intp)
+    cell = float(radius) if radius > 0 else 1.0
+    lo = np.minimum(centres.min(axis=0), queries.min(axis=0))
+    c_ij = np.floor((centres - lo) / cell).astype(np.int64) + 1
+    q_ij = np.floor((queries - lo) / cell).astype(np.int64) + 1
+    rows = int(max(c_ij[:, 1].max(), q_ij[:, 1].max())) + 2
+    key = c_ij[:, 0] * rows + c_ij[:, 1]
+    order = np.argsort(key, kind="stable")
+    sorted_key = key[order]
+    di, dj = np.meshgrid([-1, 0, 1], [-1, 0, 1], indexing="ij")
+    q_key = (q_ij[:, :1] + di.ravel()) * rows + (q_ij[:, 1:] + dj.ravel())  # (queries, 9)
+    first = np.searchsorted(sorted_key, q_key, side="left").ravel()
+    count = np.searchsorted(sorted_key, q_key, side="right").ravel() - first
+    total = int(count.sum())
+    query = np.repeat(np.repeat(np.arange(len(queries)), 9), count)
+    within = np.arange(total) - np.repeat(np.cumsum(count) - count, count)
+    centre = order[np.repeat(first, count) + within]
+    gap = centres[centre] - queries[query]
+    keep = np.einsum("ij,ij->i", gap, gap) <= radius * radius
+    return query[keep], centre[keep]
 
 
 #: Largest number of (ray, segment) pairs :func:`_crossings` lays out at once.

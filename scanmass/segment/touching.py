@@ -16,10 +16,15 @@ import numpy as np
 
 from scanmass.geometry import signed_area
 
-__all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "NECK_RATIO", "SEAM_LEVEL"]
+__all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "solidity", "NECK_RATIO", "SEAM_LEVEL"]
 
 #: A neck narrower than this share of the smaller lobe's inscribed diameter means two parts.
 NECK_RATIO = 0.35
+
+#: A silhouette filling at least this share of its convex hull is not searched for a neck: two
+#: lobes joined by a neck leave a notch on each side of it (two discs touching fill 0.87 of their
+#: hull, two squares joined by a bridge a fifth of their width 0.92; tests/test_touching.py).
+SOLIDITY_LIMIT = 0.97
 
 
 @dataclass(frozen=True)
@@ -31,8 +36,89 @@ class NeckReport:
     lobe_areas_px: tuple[float, float]
 
 
-def touching_lobes(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None) -> NeckReport | None:
+def solidity(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None) -> float:
+    """The share of its convex hull that a part's rings fill (holes cleared), 0 for a degenerate ring."""
+    ring = np.asarray(outer_px, dtype=float)
+    hull = cv2.convexHull(ring.astype(np.float32)).reshape(-1, 2).astype(float)
+    hull_area = abs(signed_area(hull)) if len(hull) >= 3 else 0.0
+    if hull_area <= 0.0:
+        return 0.0
+    area = abs(signed_area(ring)) - sum(abs(signed_area(np.asarray(h, float))) for h in holes_px or [])
+    return area / hull_area
+
+
+def _local_peaks(image: np.ndarray, min_distance: int, threshold_abs: float, labels: np.ndarray) -> np.ndarray:
+    """``skimage.feature.peak_local_max(image, min_distance=, threshold_abs=, labels=)`` for a 0/1 label image.
+
+    The same steps and the same result (row, column) in the same order, without importing
+    scipy (which scikit-image's feature module does, ~0.3 s of a process's start): the
+    maximum filter over a (2 d + 1) square window with the border replicated is OpenCV's
+    dilation (both exact maxima), then candidates brightest first (a stable sort) keep at
+    least ``min_distance`` (Chebyshev) from every peak kept before them. The one case it
+    does not repeat (every pixel of the label a local maximum) is passed to scikit-image.
+    """
+    d = int(min_distance)
+    fenced = labels.astype(int)
+    fenced[:d], fenced[-d:], fenced[:, :d], fenced[:, -d:] = 0, 0, 0, 0  # exclude_border=True: min_distance
+    rows, cols = np.nonzero(fenced == 1)
+    if rows.size == 0:
+        return np.empty((0, 2), dtype=np.intp)
+    r0, r1, c0, c1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
+    inside = labels[r0:r1, c0:c1] == 1
+    img = image[r0:r1, c0:c1].copy()
+    img[~inside] = np.finfo(img.dtype).min if np.issubdtype(img.dtype, np.floating) else np.iinfo(img.dtype).min
+    size = 2 * d + 1
+    peak = img == cv2.dilate(img, np.ones((size, size), np.uint8), borderType=cv2.BORDER_REPLICATE)
+    if np.all(peak[inside]):
+        from skimage.feature import peak_local_max
+
+        return peak_local_max(image, min_distance=d, threshold_abs=threshold_abs, labels=labels)
+    peak &= img > threshold_abs
+    coord = np.transpose(np.nonzero(peak))
+    coord = coord[np.argsort(-img[peak], kind="stable")]
+    if d > 1 and len(coord) > 1:
+        kept: list[int] = []
+        for k in range(len(coord)):
+            if not kept or np.abs(coord[kept] - coord[k]).max(axis=1).min() >= d:
+                kept.append(k)
+        coord = coord[kept]
+    return coord + [r0, c0]
+
+
+def _watershed(relief: np.ndarray, markers: np.ndarray, mask: np.ndarray, *, line: bool = False) -> np.ndarray:
+    """``skimage.segmentation.watershed(relief, markers, mask=mask, watershed_line=line)`` (connectivity 1).
+
+    scikit-image's own flooding routine on the same padded, raveled arrays and the same
+    neighbour order, without importing its segmentation package (which imports scipy).
+    """
+    try:
+        from skimage.segmentation._watershed_cy import watershed_raveled
+    except ImportError:  # another scikit-image layout: its public function, same result
+        from skimage.segmentation import watershed
+
+        return watershed(relief, markers, mask=mask, watershed_line=line)
+    inside = np.asarray(mask, dtype=bool)
+    image = np.pad(relief.astype(np.float64), 1)
+    output = np.pad(np.asarray(markers) * inside, 1)
+    flat_mask = np.pad(inside.astype(np.int8), 1).ravel()
+    width = image.shape[1]
+    neighbours = np.array([-width, -1, 1, width], dtype=np.intp)
+    strides = np.array(image.strides, dtype=np.intp) // image.itemsize
+    flat_out = output.ravel()
+    watershed_raveled(image.ravel(), np.flatnonzero(output), neighbours, flat_mask, strides, 0.0, flat_out, line)
+    return output[1:-1, 1:-1].copy()
+
+
+def touching_lobes(
+    outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None, *, solidity_limit: float = SOLIDITY_LIMIT
+) -> NeckReport | None:
     """Whether a part's silhouette looks like two parts touching, from its rings in pixels.
+
+    A part without holes whose outer ring fills at least ``solidity_limit`` of its convex
+    hull (:func:`solidity`) has no notch for a neck and is passed over without the search
+    below (pass a value above 1 to search every part). Parts with holes are always
+    searched: a hole near the middle of a strip pinches it into two lobes however little
+    of the hull it takes.
 
     The filled ring (holes cleared) is rasterised on a grid of at most ~400 px across; its
     Euclidean distance transform [1]_ gives each lobe's inscribed radius (its maximum) and
@@ -48,9 +134,8 @@ def touching_lobes(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = Non
     .. [2] S. Beucher and F. Meyer, "The morphological approach to segmentation: the
        watershed transformation", in Mathematical Morphology in Image Processing, 1993.
     """
-    from skimage.feature import peak_local_max
-    from skimage.segmentation import watershed
-
+    if not holes_px and solidity(outer_px) >= solidity_limit:
+        return None
     ring = np.asarray(outer_px, dtype=float)
     lo = ring.min(axis=0) - 3
     size = ring.max(axis=0) - lo + 3
@@ -63,15 +148,13 @@ def touching_lobes(outer_px: np.ndarray, holes_px: list[np.ndarray] | None = Non
     dist = cv2.distanceTransform(mask, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
     if dist.max() < 3:
         return None
-    peaks = peak_local_max(
-        dist, min_distance=max(3, int(0.5 * dist.max())), threshold_abs=0.3 * dist.max(), labels=mask
-    )
+    peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), mask)
     if len(peaks) < 2:
         return None
     markers = np.zeros(mask.shape, np.int32)
     for k, (r, c) in enumerate(peaks, start=1):
         markers[r, c] = k
-    basins = watershed(-dist, markers, mask=mask.astype(bool), watershed_line=True)
+    basins = _watershed(-dist, markers, mask, line=True)
     areas = np.bincount(basins.ravel(), minlength=len(peaks) + 1)[1:]
     order = np.argsort(areas)[::-1]
     a, b = order[0] + 1, order[1] + 1
@@ -137,6 +220,25 @@ def _ring_mask(shape: tuple[int, int], outer: np.ndarray, holes: list[np.ndarray
     return mask
 
 
+def _lut_median(codes: np.ndarray, where: np.ndarray, lut: np.ndarray) -> float:
+    """``np.median(lut[codes[where != 0]])`` from a histogram of the codes (the same value, without gathering them).
+
+    ``codes`` are the integer codes of a crop, ``where`` a uint8 mask of the same shape.
+    """
+    bins = len(lut)
+    if codes.dtype in (np.uint8, np.uint16) and codes.size < 2**24:  # float32 counts stay exact
+        counts = cv2.calcHist([codes], [0], where, [bins], [0, bins]).ravel().astype(np.int64)
+    else:
+        counts = np.bincount(codes[where.view(bool)].ravel(), minlength=bins)
+    order = np.argsort(lut, kind="stable")
+    cum = np.cumsum(counts[order])
+    n = int(cum[-1])
+    lo = lut[order[np.searchsorted(cum, (n - 1) // 2, side="right")]]
+    hi = lut[order[np.searchsorted(cum, n // 2, side="right")]]
+    # numpy's median: the mean of the two middle values, in the array's own dtype
+    return float(np.mean(np.array([lo, hi], dtype=lut.dtype)))
+
+
 def _two_runs(labels: np.ndarray) -> tuple[int, int] | None:
     """For a cyclic sequence of two labels: the two indices where it changes, or None if not two runs.
 
@@ -168,6 +270,7 @@ def split_touching(
     dark_part: bool,
     noise_rel: float = 0.0,
     neck: NeckReport | None | bool = True,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> TouchSplit | None:
     """Cut one found part into two touching parts, if it looks like two.
 
@@ -197,6 +300,10 @@ def split_touching(
     neck : NeckReport or None, optional
         The part's :func:`touching_lobes` result when the caller has it (None: no neck);
         by default it is computed here.
+    levels : (codes, lut), optional
+        The encoded crop and the lookup table that made ``linear`` (``linear ==
+        lut[codes]``); with them the part's and the background's medians are counted from
+        a histogram of the codes instead of partitioning the crop (the same values).
 
     Returns
     -------
@@ -209,35 +316,38 @@ def split_touching(
     .. [1] S. Beucher and F. Meyer, "The morphological approach to segmentation: the
        watershed transformation", in Mathematical Morphology in Image Processing, 1993.
     """
-    from scipy import ndimage
-    from skimage.feature import peak_local_max
-    from skimage.segmentation import watershed
-
     origin = np.asarray(origin_px, float)
     outer = np.asarray(outer_px, float)
     shape = linear.shape
     mask = _ring_mask(shape, outer, holes_px, origin)
-    area = float(mask.sum())
+    area = float(np.count_nonzero(mask))  # the mask holds 0 and 1
     if area < 50:
         return None
     kernel = np.ones((3, 3), np.uint8)
-    inner = cv2.erode(mask, kernel, iterations=3).astype(bool)
-    outside = ~cv2.dilate(_ring_mask(shape, outer, [], origin), kernel, iterations=3).astype(bool)
-    if inner.sum() < 20 or outside.sum() < 20:
+    core = cv2.erode(mask, kernel, iterations=2)
+    inner = cv2.erode(core, kernel)  # three erosions in all
+    outside = (cv2.dilate(_ring_mask(shape, outer, [], origin), kernel, iterations=3) == 0).view(np.uint8)
+    if np.count_nonzero(inner) < 20 or np.count_nonzero(outside) < 20:
         return None
-    fg = float(np.median(linear[inner]))
-    bg = float(np.median(linear[outside]))
+    if levels is None:
+        fg = float(np.median(linear[inner.view(bool)]))
+        bg = float(np.median(linear[outside.view(bool)]))
+    else:
+        codes, lut = levels
+        fg, bg = _lut_median(codes, inner, lut), _lut_median(codes, outside, lut)
     if abs(fg - bg) < 1e-4 or (fg < bg) != dark_part:
         return None
     norm = (linear - bg) / (fg - bg)
     seam_level = min(SEAM_LEVEL, 1.0 - 5.0 * max(noise_rel, 0.0))
-    core = cv2.erode(mask, kernel, iterations=2)
-    solid = (core.astype(bool) & (cv2.GaussianBlur(norm.astype(np.float32), (0, 0), 0.7) > seam_level)).astype(np.uint8)
-    count, comp, stats, _ = cv2.connectedComponentsWithStats(solid, connectivity=4)
-    big = [k for k in range(1, count) if stats[k, cv2.CC_STAT_AREA] >= MIN_LOBE_SHARE * area]
+    solid = (core.view(bool) & (cv2.GaussianBlur(norm.astype(np.float32, copy=False), (0, 0), 0.7) > seam_level)).view(
+        np.uint8
+    )
+    count, comp = cv2.connectedComponents(solid, connectivity=4)
+    sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
+    big = [k for k in range(1, count) if sizes[k] >= MIN_LOBE_SHARE * area]
     markers = np.zeros(shape, np.int32)
     if len(big) >= 2:
-        big.sort(key=lambda k: -stats[k, cv2.CC_STAT_AREA])
+        big.sort(key=lambda k: -sizes[k])
         markers[comp == big[0]] = 1
         markers[comp == big[1]] = 2
         relief: np.ndarray = -np.asarray(norm, dtype=np.float64)
@@ -248,9 +358,7 @@ def split_touching(
         if not isinstance(neck, NeckReport):
             return None
         dist = cv2.distanceTransform(mask, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
-        peaks = peak_local_max(
-            dist, min_distance=max(3, int(0.5 * dist.max())), threshold_abs=0.3 * dist.max(), labels=mask
-        )
+        peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), mask)
         if len(peaks) < 2:
             return None
         order = np.argsort(-dist[peaks[:, 0], peaks[:, 1]])
@@ -258,7 +366,9 @@ def split_touching(
             markers[r, c] = k
         relief = -np.asarray(dist, dtype=np.float64)
         evidence = "neck"
-    basins = watershed(relief, markers, mask=mask.astype(bool))
+    basins = _watershed(relief, markers, mask)
+    from scipy import ndimage  # only for a part that splits
+
     _, (near_r, near_c) = ndimage.distance_transform_edt(basins == 0, return_indices=True)
 
     def label_at(points: np.ndarray) -> np.ndarray:
