@@ -206,34 +206,41 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     bg_fit, fg_fit = fits
     if bg_fit is None or fg_fit is None:
         return none, []
-    bg_map, fg_map = _on_grid(bg_fit, lin.shape), _on_grid(fg_fit, lin.shape)
-    level = fg_map - bg_map
-    norm_all = (lin - bg_map) / np.where(np.abs(level) > 1e-6, level, np.float32(np.nan))
+    # the normalised image, computed in place (float32; full-size copies are the memory peak)
+    norm_all = lin
+    level = _on_grid(fg_fit, lin.shape)
+    bg_map = _on_grid(bg_fit, lin.shape)
+    level -= bg_map
+    norm_all -= bg_map
+    del bg_map
+    flat = np.abs(level) <= 1e-6
+    level[flat] = np.float32(np.nan)
+    norm_all /= level
+    del level, flat
     noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
     limit = max(1.0 - CLOSED_SLOT_LEVEL, 6.0 * noise)
     away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
     # inside: dips below the part level (slots); outside, next to the part: ridges above the
     # background (walls that vanished), attached to the part
     found = []
-    for region, sign, attach in (
-        (inside >= away, 1.0, None),
-        (outside >= away, -1.0, outside <= away + 2.0),
-    ):
-        # missing share: 1 - n inside (material counted that is not there), n outside
-        share_all = np.nan_to_num(norm_all if sign < 0 else 1.0 - norm_all, nan=0.0)
+    for side, sign in (("inside", 1.0), ("outside", -1.0)):
+        region = (inside if side == "inside" else outside) >= away
+        # missing share: 1 - n inside (material counted that is not there), n outside; NaN
+        # (no contrast) counts as 0, below any limit
+        share_all = norm_all if sign < 0 else 1.0 - norm_all
         dip = ((share_all > limit) & region).astype(np.uint8)
         if not dip.any():
             continue
+        attach = None if sign > 0 else outside <= away + 2.0
         grown = (cv2.dilate(dip, np.ones((3, 3), np.uint8), iterations=int(math.ceil(2 * sigma)) + 1) > 0) & region
         count, labels = cv2.connectedComponents(grown.astype(np.uint8), connectivity=8)
-        value = np.where(region, np.clip(share_all, 0.0, None), 0.0)
         for k in range(1, count):
             rr, cc = np.nonzero(labels == k)
             if rr.size < 4 or not dip[rr, cc].any():
                 continue
             if attach is not None and not attach[rr, cc].any():
                 continue  # a separate object, not a wall of this part
-            missing = value[rr, cc]
+            missing = np.clip(np.nan_to_num(share_all[rr, cc], nan=0.0), 0.0, None)
             deficit = float(missing.sum())
             # its length from the second moments of the dip (a thin strip of length L: L^2 / 12)
             w = missing / max(deficit, 1e-12)
