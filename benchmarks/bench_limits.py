@@ -92,53 +92,44 @@ def _table(title: str, rows: list[tuple]) -> None:
             )
 
 
-def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--seed", type=int, default=1)
-    parser.add_argument("--quick", action="store_true", help="one blur and noise level per case")
-    args = parser.parse_args()
-    print(f"scanmass {scanmass.__version__} from {scanmass.__file__}")
-    rng = np.random.default_rng(args.seed)
+def _rows(rng: np.random.Generator, encodings: tuple[str, ...], bit_depth: int, noises: tuple[float, ...]) -> list:
+    """Render and measure every case for ``encodings``: "srgb" and "srgb16" are the stored
+    values, "linear" the float linear-light plane (a tagged linear file)."""
     rows = []
     for family in ("fin+slot", "ring"):
         for wall_px in (2, 3, 4, 6):
             for dpi in (300, 600):
                 for polarity in ("dark", "light"):
-                    for encoding in ("srgb", "linear"):
-                        for noise in (0.0,) if args.quick else (0.0, 0.004):
+                    for encoding in encodings:
+                        for noise in noises:
                             blur = float(rng.uniform(0.5, 1.5))
                             part, thin_area = (fin_and_slot if family == "fin+slot" else ring)(dpi, wall_px)
                             truth = Polygon(part.outer_mm, part.holes_mm).area
                             fg, bg = (0.06, 0.8) if polarity == "dark" else (0.65, 0.04)
                             scan = render_scan(
                                 [part], dpi=dpi, size_mm=(30, 30) if family == "ring" else (22, 23), blur_px=blur,
-                                noise=noise, background=bg, foreground=fg, encoding="srgb", bit_depth=8,
+                                noise=noise, background=bg, foreground=fg, encoding="srgb", bit_depth=bit_depth,
                                 seed=int(rng.integers(1 << 30)),
                             )  # fmt: skip
-                            img = scan.image if encoding == "srgb" else scan.linear.astype(np.float64)
+                            img = scan.linear.astype(np.float64) if encoding == "linear" else scan.image
                             rows.append(
                                 _measure_row(img, family, wall_px, dpi, polarity, encoding, noise, truth, thin_area)
                             )
+    return rows
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--seed", type=int, default=1)
+    parser.add_argument("--quick", action="store_true", help="one blur and noise level per case")
+    args = parser.parse_args()
+    print(f"scanmass {scanmass.__version__} from {scanmass.__file__}")
+    noises = (0.0,) if args.quick else (0.0, 0.004)
+    rng = np.random.default_rng(args.seed)  # the untagged-file cases below continue its stream
+    rows = _rows(rng, ("srgb", "linear"), 8, noises)
     # 16-bit sRGB files (a scanner's 48-bit colour or 16-bit grey output), clean and noisy;
     # their own random draws, so that the rows above stay those of earlier runs
-    rng16 = np.random.default_rng(args.seed + 1000)
-    for family in ("fin+slot", "ring"):
-        for wall_px in (2, 3, 4, 6):
-            for dpi in (300, 600):
-                for polarity in ("dark", "light"):
-                    for noise in (0.0,) if args.quick else (0.0, 0.004):
-                        blur = float(rng16.uniform(0.5, 1.5))
-                        part, thin_area = (fin_and_slot if family == "fin+slot" else ring)(dpi, wall_px)
-                        truth = Polygon(part.outer_mm, part.holes_mm).area
-                        fg, bg = (0.06, 0.8) if polarity == "dark" else (0.65, 0.04)
-                        scan = render_scan(
-                            [part], dpi=dpi, size_mm=(30, 30) if family == "ring" else (22, 23), blur_px=blur,
-                            noise=noise, background=bg, foreground=fg, encoding="srgb", bit_depth=16,
-                            seed=int(rng16.integers(1 << 30)),
-                        )  # fmt: skip
-                        rows.append(
-                            _measure_row(scan.image, family, wall_px, dpi, polarity, "srgb16", noise, truth, thin_area)
-                        )
+    rows += _rows(np.random.default_rng(args.seed + 1000), ("srgb16",), 16, noises)
     print("\nthin features: relative area error against the thin features' own area (fin+slot) or the ring's")
     groups = [("all rows", rows)]
     groups += [(f"encoding {enc}", [r for r in rows if r[4] == enc]) for enc in ("srgb", "linear", "srgb16")]
