@@ -11,7 +11,7 @@ import math
 
 import numpy as np
 
-__all__ = ["combine", "otsu_threshold"]
+__all__ = ["nonzero_rc", "combine", "otsu_threshold"]
 
 
 def combine(*terms: float) -> float:
@@ -65,3 +65,20 @@ def otsu_threshold(values: np.ndarray) -> float:
     mu1 = (m0[-1] - m0) / np.maximum(w1, 1e-12)
     between = w0 * w1 * (mu0 - mu1) ** 2
     return float(centres[int(np.argmax(between))])
+
+
+def nonzero_rc(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Row and column indices of a 2-D mask's true pixels, in row-major order: ``np.nonzero(mask)``.
+
+    The same arrays, from one flat search and a division (several times faster than the
+    two-dimensional search on large masks).
+
+    Examples
+    --------
+    >>> rows, cols = nonzero_rc(np.array([[0, 1], [1, 1]], bool))
+    >>> rows.tolist(), cols.tolist()
+    ([0, 1, 1], [1, 0, 1])
+    """
+    flat = np.flatnonzero(mask)
+    rows, cols = np.divmod(flat, mask.shape[1])
+    return rows, cols

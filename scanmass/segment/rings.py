@@ -25,7 +25,7 @@ from skimage.measure import find_contours
 from scanmass.errors import OptionError, PartCutError, SegmentationError
 from scanmass.geometry import point_in_ring, signed_area
 from scanmass.load.decode import LoadedImage
-from scanmass.numeric import otsu_threshold
+from scanmass.numeric import nonzero_rc, otsu_threshold
 
 __all__ = ["PartRings", "Segmentation", "segment"]
 
@@ -462,10 +462,10 @@ def _sample(mask: np.ndarray, limit: int = _MAX_FIT_SAMPLES) -> tuple[np.ndarray
     """Row and column indices of the mask's pixels, thinned evenly to at most ``limit``."""
     count = int(np.count_nonzero(mask))
     stride = max(1, int(math.sqrt(count / (4 * limit))))  # thin on a grid first: cheap on big masks
-    rows, cols = np.nonzero(mask[::stride, ::stride])
+    rows, cols = nonzero_rc(mask[::stride, ::stride])
     rows, cols = rows * stride, cols * stride
     if rows.size < 3 and count >= 3:
-        rows, cols = np.nonzero(mask)
+        rows, cols = nonzero_rc(mask)
     step = max(1, int(math.ceil(rows.size / limit)))
     return rows[::step], cols[::step]
 
@@ -512,7 +512,7 @@ def _refine_part(
         depth_px = min(4.0, 0.75 * float(inside_px.max()))
         interior = (inside_px >= depth_px) & (inside_px <= _PAD_PX + 12)
         del inside_px
-    band_rows, band_cols = np.nonzero(band)
+    band_rows, band_cols = nonzero_rc(band)
     band_lin = lut[grey_crop[band_rows, band_cols]].astype(np.float64)
     scale = float(max(shape))
     if threshold is None:

@@ -26,6 +26,7 @@ import numpy as np
 from skimage.measure import find_contours
 
 from scanmass.geometry import signed_area
+from scanmass.numeric import nonzero_rc
 
 __all__ = ["FaceResult", "scan_face", "SOFT_RATIO"]
 
@@ -242,7 +243,7 @@ def scan_face(
     safe = np.where(np.abs(contrast) < 0.02 * (lid - part), -0.02 * (lid - part), contrast)
     norm = np.zeros((shape[0] + 2, shape[1] + 2), np.float32)
     norm[1:-1, 1:-1] = cv2.erode(face0, kernel, iterations=4)
-    rows, cols = np.nonzero(band)
+    rows, cols = nonzero_rc(band)
     norm[rows + 1, cols + 1] = np.clip((linear[rows, cols] - background[rows, cols]) / safe[rows, cols], -0.5, 1.5)
     rings = []
     for ring in find_contours(norm, 0.5, fully_connected="high"):

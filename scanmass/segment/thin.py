@@ -45,6 +45,7 @@ import numpy as np
 
 from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
+from scanmass.numeric import nonzero_rc
 from scanmass.segment.rings import PartRings, correct_curvature
 
 __all__ = [
@@ -199,7 +200,7 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
         return none, []
     fits = []
     for where in (far_bg, thick):
-        rr, cc = np.nonzero(where)
+        rr, cc = nonzero_rc(where)
         step = max(1, rr.size // CLOSED_FIT_SAMPLES)  # smooth surfaces: a subsample fits them
         rr, cc = rr[::step], cc[::step]
         fits.append(_robust_quadratic(lin[rr, cc].astype(float), rr.astype(float), cc.astype(float)))
@@ -756,7 +757,7 @@ def resolve_walls(
     outside = cv2.distanceTransform(1 - mask, cv2.DIST_L2, 5)
     far_bg = (outside >= reach_tail + 2) & (outside <= reach_tail + 12)
     thick = inside >= reach_tail + 1
-    rows_b, cols_b = np.nonzero(far_bg)
+    rows_b, cols_b = nonzero_rc(far_bg)
     bg_fit = _robust_quadratic(lin[rows_b, cols_b].astype(float), rows_b.astype(float), cols_b.astype(float))
     if bg_fit is None:
         return WallResult(rings, zero)
@@ -767,7 +768,7 @@ def resolve_walls(
     level_source = ""
     own_min_width = 0.0
     if np.count_nonzero(thick) >= 20:
-        rows_f, cols_f = np.nonzero(thick)
+        rows_f, cols_f = nonzero_rc(thick)
         fit = _robust_quadratic(lin[rows_f, cols_f].astype(float), rows_f.astype(float), cols_f.astype(float))
         if fit is not None:
             fg_eval = fit

@@ -15,6 +15,7 @@ import cv2
 import numpy as np
 
 from scanmass.geometry import signed_area
+from scanmass.numeric import nonzero_rc
 
 __all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "solidity", "NECK_RATIO", "SEAM_LEVEL"]
 
@@ -60,7 +61,7 @@ def _local_peaks(image: np.ndarray, min_distance: int, threshold_abs: float, lab
     d = int(min_distance)
     fenced = labels.astype(int)
     fenced[:d], fenced[-d:], fenced[:, :d], fenced[:, -d:] = 0, 0, 0, 0  # exclude_border=True: min_distance
-    rows, cols = np.nonzero(fenced == 1)
+    rows, cols = nonzero_rc(fenced == 1)
     if rows.size == 0:
         return np.empty((0, 2), dtype=np.intp)
     r0, r1, c0, c1 = rows.min(), rows.max() + 1, cols.min(), cols.max() + 1
