@@ -49,15 +49,36 @@ _FIGURES_SCALE_POWER = {
 }
 
 
-def _half_change(
-    outer_mm: np.ndarray, holes_mm: list[np.ndarray], new_outer_mm: np.ndarray, new_holes_mm: list[np.ndarray]
+#: A part's uncertainty fields and the figure each one belongs to (the centroid's pair aside).
+U_FIELDS = {
+    "area_u_mm2": "area_mm2",
+    "perimeter_u_mm": "perimeter_mm",
+    "ixx_u_mm4": "ixx_mm4",
+    "iyy_u_mm4": "iyy_mm4",
+    "ixy_u_mm4": "ixy_mm4",
+    "i1_u_mm4": "i1_mm4",
+    "i2_u_mm4": "i2_mm4",
+    "polar_u_mm4": "polar_mm4",
+    "principal_angle_u_deg": "principal_angle_deg",
+}
+
+
+def change_term(
+    outer_mm: np.ndarray,
+    holes_mm: list[np.ndarray],
+    new_outer_mm: np.ndarray,
+    new_holes_mm: list[np.ndarray],
+    share: float = 1.0,
 ) -> dict[str, float]:
-    """Half the change of every figure when a part's rings are replaced by other rings (an uncertainty term)."""
+    """``share`` of the change of every figure when a part's rings are replaced by other rings (a term).
+
+    0.5 takes the other rings at 2 sigma; the principal angle's change is taken modulo 180 degrees.
+    """
     before = _figure_values(section_properties(outer_mm, holes_mm, hull=False))
     after = _figure_values(section_properties(new_outer_mm, new_holes_mm, hull=False))
-    term = {name: 0.5 * abs(after[name] - before[name]) for name in before}
+    term = {name: share * abs(after[name] - before[name]) for name in before}
     d_angle = (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
-    term["principal_angle_deg"] = 0.5 * abs(d_angle)
+    term["principal_angle_deg"] = share * abs(d_angle)
     return term
 
 
@@ -98,18 +119,7 @@ UNKNOWN_THICKNESS_MM = 3.0
 
 def _with_extra_term(part: Part, name: str, term: dict[str, float], raised_holes: list[np.ndarray]) -> Part:
     """The part with one more named uncertainty term, combined into every total it touches."""
-    totals = {
-        "area_u_mm2": "area_mm2",
-        "perimeter_u_mm": "perimeter_mm",
-        "ixx_u_mm4": "ixx_mm4",
-        "iyy_u_mm4": "iyy_mm4",
-        "ixy_u_mm4": "ixy_mm4",
-        "i1_u_mm4": "i1_mm4",
-        "i2_u_mm4": "i2_mm4",
-        "polar_u_mm4": "polar_mm4",
-        "principal_angle_u_deg": "principal_angle_deg",
-    }
-    changes: dict[str, Any] = {key: combine(getattr(part, key), term[fig]) for key, fig in totals.items()}
+    changes: dict[str, Any] = {key: combine(getattr(part, key), term[fig]) for key, fig in U_FIELDS.items()}
     changes["centroid_u_mm"] = (
         combine(part.centroid_u_mm[0], term["centroid_x_mm"]),
         combine(part.centroid_u_mm[1], term["centroid_y_mm"]),
@@ -310,19 +320,12 @@ def measure_part(
             )
         )
 
+    u_fields: dict[str, Any] = {key: total[fig] for key, fig in U_FIELDS.items()}
     return Part(
         label=part.label,
         **{f.name: getattr(props, f.name) for f in fields(props)},  # the section properties, same names
-        area_u_mm2=total["area_mm2"],
-        perimeter_u_mm=total["perimeter_mm"],
+        **u_fields,
         centroid_u_mm=(total["centroid_x_mm"], total["centroid_y_mm"]),
-        ixx_u_mm4=total["ixx_mm4"],
-        iyy_u_mm4=total["iyy_mm4"],
-        ixy_u_mm4=total["ixy_mm4"],
-        i1_u_mm4=total["i1_mm4"],
-        i2_u_mm4=total["i2_mm4"],
-        principal_angle_u_deg=total["principal_angle_deg"],
-        polar_u_mm4=total["polar_mm4"],
         holes=holes,
         cut=part.cut,
         uncertainty_terms=terms,

@@ -16,10 +16,10 @@ from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import (
     UNKNOWN_THICKNESS_MM,
-    _half_change,
     _with_extra_term,
     _with_shadow_term,
     area_share_term,
+    change_term,
 )
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import raised_outline_mm
@@ -96,7 +96,7 @@ def _unknown_thickness(
         flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
         raised_outer = raised_outline_mm(h0, k, plausible, flat_outer)
         raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True) for h in flat_holes]
-        term = _half_change(flat_outer, flat_holes, raised_outer, raised_holes)
+        term = change_term(flat_outer, flat_holes, raised_outer, raised_holes, share=0.5)
         result.parts[n] = _with_extra_term(part, "thickness_unknown", term, raised_holes)
         worst_rel = max(worst_rel, term["area_mm2"] / max(part.area_mm2, 1e-12))
         worst_cen_mm = max(worst_cen_mm, math.hypot(term["centroid_x_mm"], term["centroid_y_mm"]))

@@ -17,14 +17,12 @@ from scanmass.load.decode import LoadedImage, encoding_lut
 from scanmass.mapping import MappedPart
 from scanmass.measurement import Part
 from scanmass.pipeline.part_terms import (
-    _figure_values,
-    _half_change,
     _with_extra_term,
     _with_shadow_term,
     area_share_term,
+    change_term,
 )
 from scanmass.scale.planemap import PlaneMap
-from scanmass.section import section_properties
 from scanmass.segment.lidgap import LidGap
 from scanmass.segment.rings import PartRings
 from scanmass.segment.scanface import FaceResult, scan_face
@@ -115,12 +113,7 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
             normal = -normal  # outward in the image frame
         moved = outer.copy()
         moved[face.shadow_edge] += FACE_EDGE_U_PX * normal[face.shadow_edge]
-        before = _figure_values(section_properties(plane_map.to_mm(outer), holes))
-        after = _figure_values(section_properties(plane_map.to_mm(moved), holes))
-        term = {name: abs(after[name] - before[name]) for name in before}
-        term["principal_angle_deg"] = abs(
-            (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
-        )
+        term = change_term(plane_map.to_mm(outer), holes, plane_map.to_mm(moved), holes)
         # a hole's wall throws the lamp's shadow into the hole as the part's wall does beside it:
         # its diameter gets the same edge uncertainty
         return _with_shadow_term(part, term, FACE_EDGE_U_PX * plane_map.mm_per_px, name="scan_shadow")
@@ -287,12 +280,7 @@ def _with_cut_term(part: Part, mapped: MappedPart, cut_mm: np.ndarray, shift_mm:
     normal = np.array([seg[1], -seg[0]])
     moved = outer.copy()
     moved[ends] += shift_mm * normal
-    before = _figure_values(section_properties(outer, holes))
-    after = _figure_values(section_properties(moved, holes))
-    term = {name: abs(after[name] - before[name]) for name in before}
-    term["principal_angle_deg"] = abs(
-        (after["principal_angle_deg"] - before["principal_angle_deg"] + 90.0) % 180.0 - 90.0
-    )
+    term = change_term(outer, holes, moved, holes)
     return _with_extra_term(part, "split_cut", term, [])
 
 
@@ -344,7 +332,7 @@ def _tone_terms(
         holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
         grown_outer = offset_ring(outer, move_mm)
         grown_holes = [offset_ring(h, -move_mm) for h in holes]
-        term = _half_change(outer, holes, grown_outer, grown_holes)
+        term = change_term(outer, holes, grown_outer, grown_holes, share=0.5)
         # the move is not quite even along the outline (it depends on the edge's angle to the
         # pixel grid and on the local contrast): a first-harmonic variation of TONE_UNEVEN of it
         # moves the centroid of a round part by that fraction of the move, which an even
