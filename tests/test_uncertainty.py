@@ -96,6 +96,20 @@ def test_vertex_sums_agree_with_shapely():
     assert mine["ixy_mm4"][0] == pytest.approx(ref["ixy"], rel=1e-9)
 
 
+def _nominal_weights(model, rings):
+    """The rings' figures (vertex sums, :func:`_figures`) and the figure weights at them."""
+    nominal = {k: float(v[0]) for k, v in _figures([r[None] for r in rings]).items()}
+    weights = figure_weights(
+        model,
+        nominal["area_mm2"],
+        (nominal["centroid_x_mm"], nominal["centroid_y_mm"]),
+        nominal["ixx_mm4"],
+        nominal["iyy_mm4"],
+        nominal["ixy_mm4"],
+    )
+    return nominal, weights
+
+
 def test_edge_term_matches_monte_carlo_of_independent_normal_noise():
     outer, holes = _section()
     rings = [outer, *holes]
@@ -107,15 +121,7 @@ def test_edge_term_matches_monte_carlo_of_independent_normal_noise():
     scales = [lk for _, lk in per_ring]
     sigma_px = [sigma_mm / lk for lk in scales]
     model = build_edge_model(outer, holes, sigma_px, scales, offset_mm=0.0)
-    nominal = {k: float(v[0]) for k, v in _figures([r[None] for r in rings]).items()}
-    weights = figure_weights(
-        model,
-        nominal["area_mm2"],
-        (nominal["centroid_x_mm"], nominal["centroid_y_mm"]),
-        nominal["ixx_mm4"],
-        nominal["iyy_mm4"],
-        nominal["ixy_mm4"],
-    )
+    nominal, weights = _nominal_weights(model, rings)
     edge, thresh = part_uncertainty(model, weights)
     assert all(v == 0.0 for v in thresh.values())
 
@@ -203,15 +209,7 @@ def test_level_field_modes_match_monte_carlo_of_fitted_quadratic_levels():
     per_ring = [_vertex_normals_and_lengths(r) for r in rings]
     scales = [lk for _, lk in per_ring]
     model = build_edge_model(outer, holes, [0 * s for s in scales], scales, offset_mm=0.0)
-    nominal = {k: float(v[0]) for k, v in _figures([r[None] for r in rings]).items()}
-    weights = figure_weights(
-        model,
-        nominal["area_mm2"],
-        (nominal["centroid_x_mm"], nominal["centroid_y_mm"]),
-        nominal["ixx_mm4"],
-        nominal["iyy_mm4"],
-        nominal["ixy_mm4"],
-    )
+    nominal, weights = _nominal_weights(model, rings)
     pts = np.concatenate(rings)
     lengths = np.concatenate(scales)
     n = len(pts)
