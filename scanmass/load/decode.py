@@ -854,7 +854,12 @@ def _verify_png(data: bytes, name: str) -> None:
         kind = data[pos + 4 : pos + 8]
         body_end = pos + 8 + length
         if body_end + 4 > end:
-            break  # truncated: pillow's decode says so
+            # a chunk runs past the end of the file: truncated, whatever a decoder makes of it
+            raise ImageError(
+                "PNG image is truncated or damaged (the file ends inside a "
+                f"{kind.decode('latin-1', 'replace')} chunk); copy or export it again",
+                path=shown,
+            )
         (crc,) = struct.unpack_from(">I", data, body_end)
         if zlib.crc32(memoryview(data)[pos + 4 : body_end]) & 0xFFFFFFFF != crc:
             raise ImageError(
@@ -1413,8 +1418,8 @@ def load_image(
             # time, and the exact Y the encoder stored.
             im.draft("L", im.size)
         _check_memory(im, bits, deep, max_pixels, name, fmt)
-        if im.format == "PNG" and not deep:
-            # (16-bit colour goes through libpng, which checks the CRCs and the stream itself)
+        if im.format == "PNG":
+            # 16-bit colour too: OpenCV's libpng decode need not report a truncated stream
             _verify_png(data, name)
         if deep:
             # 16-bit colour: pillow would cut it to 8 bits; decode it once, elsewhere
