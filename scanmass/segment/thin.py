@@ -967,6 +967,15 @@ def resolve_walls(
             f"part {rings.label}: {n_bad} boundary points lie on thin {what} that cannot be resolved ({why}); "
             "their uncertainty covers the possible error; scan at a higher resolution"
         )
+    if level_source.startswith("the walls' own") and np.any(~unresolved):
+        # the level from the peak equation carries the blur's shape against the Gaussian
+        # (rendered rings of 3-4 px: 2-8 % in area), far more than a thick region's level
+        warnings.append(
+            f"part {rings.label}: no thick region or other part of the same material gives the part's level; "
+            f"the width of its thin walls rests on a level taken from their own profiles (uncertain by about "
+            f"{100 * part_level_rel_u:.0f} %), and its uncertainty includes that; scan it beside a thick part of "
+            "the same material or at a higher resolution"
+        )
     return WallResult(
         new,
         out_u,

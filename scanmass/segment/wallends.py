@@ -159,7 +159,11 @@ class EndWindow:
         """The four corners of the support, (4, 2)."""
         h = self.half + self.ramp
         return np.array(
-            [self.origin + u * self.u_axis + s * h * self.n_axis for u in (self.u0, self.u1 + self.ramp) for s in (-1, 1)]
+            [
+                self.origin + u * self.u_axis + s * h * self.n_axis
+                for u in (self.u0, self.u1 + self.ramp)
+                for s in (-1, 1)
+            ]
         )
 
 
