@@ -631,7 +631,11 @@ def _robust_quadratic(values: np.ndarray, rows: np.ndarray, cols: np.ndarray) ->
     for _ in range(3):
         coef = np.linalg.lstsq(a[keep], values[keep], rcond=None)[0]
         res = values - a @ coef
-        s = 1.4826 * float(np.median(np.abs(res[keep]))) + 1e-9
+        # the median absolute residual is 0 where most samples share one stored grey level
+        # (8-bit files, noise under a level step): the mean absolute residual (sqrt(pi / 2)
+        # of it for a Gaussian) keeps the neighbouring levels, whose share sets the mean
+        spread = np.abs(res[keep])
+        s = max(1.4826 * float(np.median(spread)), 1.2533 * float(np.mean(spread))) + 1e-9
         keep = np.abs(res) < 3.5 * s + 1e-6
         if keep.sum() < a.shape[1] * 3:
             break
