@@ -725,7 +725,12 @@ def _level_surface(
 
 
 def resolve_walls(
-    image: LoadedImage, rings: PartRings, *, level_ratio_hint: float | None = None, step_px: float = 0.1
+    image: LoadedImage,
+    rings: PartRings,
+    *,
+    level_ratio_hint: float | None = None,
+    step_px: float = 0.1,
+    ends: bool = True,
 ) -> WallResult:
     """Correct the boundary of thin walls and narrow slots of one part by the integral rule.
 
@@ -740,6 +745,9 @@ def resolve_walls(
         same material in the image, used when this part has no thick region.
     step_px : float
         Sampling step along each profile.
+    ends : bool
+        Treat the walls' ends by their windows (:mod:`scanmass.segment.wallends`); off for
+        photos, where a shadow's edge beside a part can look like a wall's.
 
     Returns
     -------
@@ -928,7 +936,7 @@ def resolve_walls(
     # (segment.wallends) set the area, starting from the wall's straight interior
     cap = turning(all_rings, normals, reach_tail)  # rounded ends and tips: no straight wall
     straight = np.isin(np.arange(len(pts)), idx[~unresolved]) & ~cap
-    runs = wall_runs(straight, [len(r) for r in all_rings])
+    runs = wall_runs(straight, [len(r) for r in all_rings]) if ends else []
     correction = _interior_corrections(runs, pts, idx, correction, reach_tail + RAMP_PX)
     if runs and level_source:
         correction = np.where(cap[idx] & ~unresolved, 0.0, correction)  # the end's window sets it
@@ -951,7 +959,7 @@ def resolve_walls(
         sizes = [len(r) for r in all_rings]
         moved_rings, _, window_u = apply_end_windows(
             lin, shift, [moved[a : a + n] for a, n in zip(np.cumsum([0, *sizes[:-1]]), sizes)], normals, windows,
-            normalise, level_rel_u=part_level_rel_u, prefer=cap,
+            normalise, level_rel_u=part_level_rel_u, prefer=cap, reach_px=reach_tail, max_move_px=max(sigma, 0.5),
             noise_rel=float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0,
         )  # fmt: skip
         moved = np.concatenate(moved_rings)

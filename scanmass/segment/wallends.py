@@ -36,6 +36,7 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
+import cv2
 import numpy as np
 
 from scanmass.geometry import signed_area
@@ -239,6 +240,8 @@ def apply_end_windows(
     level_rel_u: float,
     noise_rel: float,
     prefer: np.ndarray | None = None,
+    reach_px: float = 5.0,
+    max_move_px: float = 1.0,
 ) -> tuple[list[np.ndarray], np.ndarray, np.ndarray]:
     """Move the boundary inside each window so that its area under the window matches the image's.
 
@@ -262,6 +265,15 @@ def apply_end_windows(
         Vertices that take a window's correction when the window holds any (the turning
         boundary round an end, where the straight-wall correction was not applied);
         otherwise every vertex under the window does.
+    reach_px : float
+        The blur's reach: only pixels within it of the polygon's boundary are summed
+        (farther out image and coverage agree but for noise and the level surfaces'
+        misfit, e.g. under a lamp's shadow).
+    max_move_px : float
+        Largest plausible move of the boundary at an end (the midpoint rule's retreat at a
+        tip is a fraction of the blur): a window asking for more holds something else
+        (levels that do not hold, another feature) and is left out; its vertices get this
+        much uncertainty instead.
 
     Returns
     -------
@@ -298,9 +310,20 @@ def apply_end_windows(
         denom = float(np.sum(wv[inside] ** 2 * ds[inside]))
         if denom <= 1e-9:
             continue
-        for _ in range(2):  # the area moved is linear in the step to first order: once more for the rest
-            cov = _coverage_px(_split(pts, sizes), shift + np.array([c0, r0], float), (r1 - r0, c1 - c0))
-            step = float(np.sum(weight * (values - cov))) / denom
+        origin = shift + np.array([c0, r0], float)
+        cov = _coverage_px(_split(pts, sizes), origin, (r1 - r0, c1 - c0))
+        # the band within the blur's reach of the boundary (partly covered pixels and around)
+        edge = ((cov > 1e-9) & (cov < 1 - 1e-9)).astype(np.uint8)
+        band = cv2.distanceTransform(1 - edge, cv2.DIST_L2, 5) <= reach_px + 1.0
+        weight = np.where(band, weight, 0.0)
+        step = float(np.sum(weight * (values - cov))) / denom
+        if not (math.isfinite(step) and abs(step) * float(wv[inside].max()) <= max_move_px):
+            u_px[inside] = np.hypot(u_px[inside], max_move_px * wv[inside])
+            continue
+        for k in range(2):  # the area moved is linear in the step to first order: once more for the rest
+            if k:
+                cov = _coverage_px(_split(pts, sizes), origin, (r1 - r0, c1 - c0))
+                step = float(np.sum(weight * (values - cov))) / denom
             pts[inside] += (step * wv[inside])[:, None] * normals[inside]
             moved_by[inside] += step * wv[inside]
         # the area's uncertainty: the part's level over the material under the window, and the noise
