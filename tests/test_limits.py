@@ -206,6 +206,8 @@ def test_thin_ring_without_a_thick_region_is_corrected_and_covered():
     assert abs(p.area_mm2 / truth - 1) < 0.08
     assert abs(p.area_mm2 - truth) <= 3 * p.area_u_mm2
     assert "model" in p.uncertainty_terms
+    # ... and says so: the level, and so the width, rests on the walls' own profiles
+    assert any("no thick region" in w and "own profiles" in w for w in m.warnings), m.warnings
 
 
 def test_unresolvable_wall_warns():

@@ -15,7 +15,11 @@ along a line across a straight wall (isotropic blur), given the background level
 and the part's own level ``f``. :func:`resolve_walls` measures that integral along the
 normal at every boundary point of a wall (or slot) narrower than a few blur widths and
 puts both edges of the wall symmetrically about the midpoint rule's centre line, ``w``
-apart (both edges fitted together). The part's level comes from its thick regions, or
+apart (both edges fitted together). That holds where the wall is straight for a few blur
+widths either side of the line; near a wall's end (a fin's tip, its root on a thick
+region, a slot's ends) the edges take the wall's interior correction and a window over the
+end sets the area there by the same integral in two dimensions
+(:mod:`scanmass.segment.wallends`). The part's level comes from its thick regions, or
 from another part of the same material in the image, or, failing both, from the wall's
 own profile: with the blur known, the peak ``P`` and integral ``J`` of the profile fix
 ``f`` through ``P = f erf(J / (2 sqrt 2 sigma f))`` (a Gaussian-blurred strip). Where

@@ -57,7 +57,7 @@ def wall_runs(flagged: np.ndarray, ring_sizes: list[int]) -> list[np.ndarray]:
 
     Examples
     --------
-    >>> [r.tolist() for r in wall_runs(np.array([1, 1, 0, 0, 1, 0, 1, 1, 1], bool), [5, 4])]
+    >>> [r.tolist() for r in wall_runs(np.array([1, 1, 0, 0, 1, 1, 1, 1, 1], bool), [5, 4])]
     [[4, 0, 1]]
     """
     runs: list[np.ndarray] = []
@@ -109,20 +109,6 @@ def _arc(points: np.ndarray) -> np.ndarray:
     if len(points) < 2:
         return np.zeros(len(points))
     return np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(points, axis=0).T))])
-
-
-def end_zone(runs: list[np.ndarray], pts: np.ndarray, zone_px: float) -> tuple[np.ndarray, np.ndarray]:
-    """Vertices within ``zone_px`` (along the run) of either end of their run, and their run's number.
-
-    Returns a boolean mask over ``pts`` and, per vertex, the index of its run (-1: none).
-    """
-    near = np.zeros(len(pts), bool)
-    run_of = np.full(len(pts), -1)
-    for k, run in enumerate(runs):
-        s = _arc(pts[run])
-        near[run] = (s < zone_px) | (s > s[-1] - zone_px)
-        run_of[run] = k
-    return near, run_of
 
 
 @dataclass(frozen=True)
