@@ -39,7 +39,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-from scanmass.geometry import signed_area
+from scanmass.geometry import point_in_ring, signed_area
 from scanmass.raster import coverage
 
 __all__ = ["EndWindow", "apply_end_windows", "end_windows", "turning", "wall_runs"]
@@ -335,10 +335,33 @@ def _coverage_px(rings: list[np.ndarray], origin: np.ndarray, shape: tuple[int, 
     Pixel centres at integers (x = column, y = row from the top); holes are the rings after the first.
     """
     h = shape[0]
+    lo = origin - 0.5
+    hi = origin + np.array([shape[1], shape[0]], float) - 0.5
+    starts = np.cumsum([0, *[len(r) for r in rings[:-1]]])
+    pts = np.concatenate(rings)
+    beside = np.any(np.minimum.reduceat(pts, starts, axis=0) > hi, axis=1) | np.any(
+        np.maximum.reduceat(pts, starts, axis=0) < lo, axis=1
+    )
     framed = []
+    constant = 0.0
     for i, ring in enumerate(rings):
+        if beside[i]:
+            continue  # wholly beside the block
+        if not _crosses(ring, lo, hi):
+            # a ring that does not cross the block covers all of it or none (the rings' count only)
+            if point_in_ring(0.5 * (lo + hi), ring):
+                constant += 1.0 if i == 0 else -1.0
+            continue
         # pixel (c, r) of the block covers [c - 0.5, c + 0.5]: a frame with y up, unit pixels
         f = np.column_stack([ring[:, 0] - origin[0] + 0.5, h - (ring[:, 1] - origin[1] + 0.5)])
         ccw = signed_area(f) > 0
         framed.append(f if ccw == (i == 0) else f[::-1])
-    return coverage(framed, shape=shape, mm_per_px=1.0, clip=False)
+    out = coverage(framed, shape=shape, mm_per_px=1.0, clip=False) if framed else np.zeros(shape)
+    return out + constant
+
+
+def _crosses(ring: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> bool:
+    """Whether any edge of the ring may enter the box [lo, hi] (edges' bounding boxes overlap it)."""
+    nxt = np.roll(ring, -1, axis=0)
+    e_lo, e_hi = np.minimum(ring, nxt), np.maximum(ring, nxt)
+    return bool(np.any(np.all(e_lo <= hi, axis=1) & np.all(e_hi >= lo, axis=1)))
