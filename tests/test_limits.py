@@ -135,6 +135,32 @@ def test_thin_fin_and_slot_in_an_8bit_srgb_scan(polarity):
     assert abs(errors[0] - errors[1]) / thin_area < 0.005, errors
 
 
+def test_end_window_that_asks_too_much_is_left_out_and_covered():
+    # levels that do not hold under the window (a lamp's shadow on a real scan: the level
+    # surfaces 15 % off there) would move the tip by pixels: the window is left out and its
+    # vertices carry the largest plausible move as uncertainty instead
+    from scanmass.segment.wallends import EndWindow, apply_end_windows
+
+    x0, x1, y_tip = 18.2, 21.2, 8.3
+    image = _blurred_fin_tip((48, 40), x0, x1, y_tip, 1.0)
+    side = np.linspace(80.0, y_tip, 160)
+    ring = np.concatenate(
+        [np.column_stack([np.full(len(side), x0), side]), np.column_stack([np.linspace(x0, x1, 7)[1:-1], np.full(5, y_tip)]),
+         np.column_stack([np.full(len(side), x1), side[::-1]])]
+    )  # fmt: skip
+    normals = np.zeros_like(ring)
+    normals[: len(side)], normals[len(side) : len(side) + 5], normals[len(side) + 5 :] = [-1, 0], [0, -1], [1, 0]
+    tip = np.zeros(len(ring), bool)
+    tip[len(side) : len(side) + 5] = True  # the turning boundary takes a window's move
+    window = EndWindow(np.array([19.7, 30.0]), np.array([1.0, 0.0]), np.array([0.0, -1.0]), 0.0, 26.7, 6.5)
+    moved, by, u = apply_end_windows(
+        image, np.zeros(2), [ring], normals, [window], lambda v, r, c: v / 0.85,
+        level_rel_u=0.0, noise_rel=0.0, prefer=tip, reach_px=5.0, max_move_px=1.0,
+    )  # fmt: skip
+    assert np.array_equal(moved[0], ring) and not by.any()
+    assert u.max() == pytest.approx(1.0)
+
+
 def _blurred_fin_tip(shape, x0, x1, y_tip, sigma):
     """Pixel averages of a Gaussian-blurred half-strip x0 < x < x1, y > y_tip (pixel centres at integers).
 
