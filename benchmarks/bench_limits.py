@@ -11,6 +11,9 @@ with ``dpi_rel_u = 0`` so that sigma holds the image terms only:
   slot (a hole) 4 mm long, both ``w`` px wide, rotated 7 degrees: the plate gives the
   part's own level. The error is judged against the area of the fin and the slot
   (2 x w x 4.5 mm, the thin features' own area), the issue's "within x % of their area".
+  The *thin-only* column takes out the plate's own error (its corners and straight edges,
+  from the same render of the plate alone, the same noise draw): what the fin and slot
+  add, which is what the issue's targets (3 px and more: 0.5 %; 2 px: 2 %) are about.
 - *ring*: a ring of radius 8 mm with a ``w`` px wall, no thick region anywhere: the level
   comes from the walls' own profiles (or the ring is reported unresolved).
 
@@ -53,27 +56,48 @@ def fin_and_slot(dpi: float, wall_px: float) -> tuple[SynthPart, float]:
     return SynthPart(outer, [slot]), 2 * w * 4.5
 
 
+def plate_alone(dpi: float, wall_px: float) -> SynthPart:
+    """The fin+slot case's plate without its fin and slot: its own error (corners, straight
+    edges) is taken out of the fin+slot error in the thin-only column."""
+    outer = np.array([[5, 5], [17, 5], [17, 13], [5, 13]], float)
+    a = math.radians(7.0)
+    rot = np.array([[math.cos(a), -math.sin(a)], [math.sin(a), math.cos(a)]])
+    c = np.array([11.0, 11.0])
+    return SynthPart((outer - c) @ rot.T + c, [])
+
+
 def ring(dpi: float, wall_px: float) -> tuple[SynthPart, float]:
     w = wall_px * 25.4 / dpi
     part = SynthPart(circle(15.0, 15.0, 8.0), [circle(15.0, 15.0, 8.0 - w)])
     return part, Polygon(part.outer_mm, part.holes_mm).area
 
 
-def _measure_row(img, family, wall_px, dpi, polarity, encoding, noise, truth, thin_area) -> tuple:
+def _measure_row(img, family, wall_px, dpi, polarity, encoding, noise, truth, thin_area, plate_err=None) -> tuple:
     try:
         m = measure(img, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1)
     except ScanmassError as exc:
-        return (family, wall_px, dpi, polarity, encoding, noise, None, None, None, str(exc))
+        return (family, wall_px, dpi, polarity, encoding, noise, None, None, None, str(exc), None)
     p = max(m.parts, key=lambda q: q.area_mm2)
     err = p.area_mm2 - truth
     z = abs(err) / p.area_u_mm2 if p.area_u_mm2 > 0 else math.inf
     warned = any("thin" in w for w in m.warnings)
-    return (family, wall_px, dpi, polarity, encoding, noise, err / thin_area, z, warned, "")
+    own = None if plate_err is None else (err - plate_err) / thin_area
+    return (family, wall_px, dpi, polarity, encoding, noise, err / thin_area, z, warned, "", own)
+
+
+def _plate_error(img, dpi, truth) -> float | None:
+    try:
+        m = measure(img, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1)
+    except ScanmassError:
+        return None
+    return max(m.parts, key=lambda q: q.area_mm2).area_mm2 - truth
 
 
 def _table(title: str, rows: list[tuple]) -> None:
     print(f"  {title}")
-    print("  family     wall  n   median|e| %   max|e| %   within 3 sigma %   max z   warned")
+    print(
+        "  family     wall  n   median|e| %   max|e| %   within 3 sigma %   max z   warned   thin-only median|e| / max|e| %"
+    )
     for family in ("fin+slot", "ring"):
         for wall_px in (2, 3, 4, 6):
             sel = [r for r in rows if r[0] == family and r[1] == wall_px and r[6] is not None]
@@ -85,9 +109,11 @@ def _table(title: str, rows: list[tuple]) -> None:
             e = np.array([abs(r[6]) for r in sel]) * 100
             z = np.array([r[7] for r in sel])
             warned = sum(1 for r in sel if r[8])
+            own = np.array([abs(r[10]) for r in sel if r[10] is not None]) * 100
             print(
                 f"  {family:9s} {wall_px:4d} {len(sel):3d} {np.median(e):12.3f} {e.max():10.3f} "
                 f"{100 * np.mean(z <= 3):17.0f} {z.max():7.2f} {warned:5d}/{len(sel)}"
+                + (f"   {np.median(own):8.3f} / {own.max():.3f}" if own.size else "")
                 + (f"  ({len(failed)} failed)" if failed else "")
             )
 
@@ -106,14 +132,23 @@ def _rows(rng: np.random.Generator, encodings: tuple[str, ...], bit_depth: int, 
                             part, thin_area = (fin_and_slot if family == "fin+slot" else ring)(dpi, wall_px)
                             truth = Polygon(part.outer_mm, part.holes_mm).area
                             fg, bg = (0.06, 0.8) if polarity == "dark" else (0.65, 0.04)
-                            scan = render_scan(
-                                [part], dpi=dpi, size_mm=(30, 30) if family == "ring" else (22, 23), blur_px=blur,
+                            settings = dict(
+                                dpi=dpi, size_mm=(30, 30) if family == "ring" else (22, 23), blur_px=blur,
                                 noise=noise, background=bg, foreground=fg, encoding="srgb", bit_depth=bit_depth,
                                 seed=int(rng.integers(1 << 30)),
                             )  # fmt: skip
+                            scan = render_scan([part], **settings)  # type: ignore[arg-type]
                             img = scan.linear.astype(np.float64) if encoding == "linear" else scan.image
+                            plate_err = None
+                            if family == "fin+slot":  # the same render of the plate alone (same noise draw)
+                                plate = plate_alone(dpi, wall_px)
+                                alone = render_scan([plate], **settings)  # type: ignore[arg-type]
+                                plate_img = alone.linear.astype(np.float64) if encoding == "linear" else alone.image
+                                plate_err = _plate_error(plate_img, dpi, Polygon(plate.outer_mm).area)
                             rows.append(
-                                _measure_row(img, family, wall_px, dpi, polarity, encoding, noise, truth, thin_area)
+                                _measure_row(
+                                    img, family, wall_px, dpi, polarity, encoding, noise, truth, thin_area, plate_err
+                                )
                             )
     return rows
 
@@ -122,6 +157,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--seed", type=int, default=1)
     parser.add_argument("--quick", action="store_true", help="one blur and noise level per case")
+    parser.add_argument("--rows", action="store_true", help="print every thin-feature row too")
     args = parser.parse_args()
     print(f"scanmass {scanmass.__version__} from {scanmass.__file__}")
     noises = (0.0,) if args.quick else (0.0, 0.004)
@@ -137,6 +173,14 @@ def main() -> None:
     for title, group in groups:
         if group:
             _table(title, group)
+    if args.rows:
+        print("\nrows: family, wall px, dpi, polarity, encoding, noise, error %, z, warned, thin-only error %")
+        for r in rows:
+            if r[6] is None:
+                print("   ", r[:6], "failed:", r[9])
+            else:
+                own = "" if r[10] is None else f"{100 * r[10]:+.3f}"
+                print("   ", r[:6], f"{100 * r[6]:+.3f} {r[7]:.2f} {r[8]} {own}")
     beyond = [r for r in rows if r[7] is not None and r[7] > 5 and not r[8]]
     print(f"cases beyond 5 sigma without a warning: {len(beyond)}")
     for r in beyond:

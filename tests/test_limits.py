@@ -93,18 +93,132 @@ def _frame(dpi: float, wall_px: float) -> tuple[SynthPart, float]:
 
 
 @pytest.mark.parametrize("dpi", [300, 600])
-@pytest.mark.parametrize("wall_px", [3, 4, 6])
-def test_thin_fin_and_slot_of_a_thick_plate_within_half_a_percent(dpi, wall_px):
+@pytest.mark.parametrize(
+    ("wall_px", "target", "blur"),
+    [(2, 0.02, 0.6), (2, 0.02, 1.0), (3, 0.005, 0.6), (3, 0.005, 1.4), (4, 0.005, 1.4), (6, 0.005, 1.4)],
+)
+def test_thin_fin_and_slot_of_a_thick_plate_meet_the_issue_targets(dpi, wall_px, target, blur):
+    # issue 12's targets: walls of 3 px and more within 0.5 % of their area, 2 px within 2 %.
+    # A linear-light float image (a tagged linear file: no grey-level rounding), so that the
+    # walls' own error is judged; the plate's corners and edges are part of the error too.
+    # (A 2 px slot under a 1.4 px blur closes: test_closed_narrow_slot_is_warned_and_covered.)
     part, truth = _frame(dpi, wall_px)  # truth: shapely's area of the rendered polygon
-    scan = render_scan([part], dpi=dpi, size_mm=(22, 23), blur_px=1.0, noise=0.0, seed=3)
-    m = measure(scan.image, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.5)
+    scan = render_scan([part], dpi=dpi, size_mm=(22, 23), blur_px=blur, noise=0.0, seed=3)
+    m = measure(scan.linear, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1)  # the slot is 0.17-0.6 mm2
     p = max(m.parts, key=lambda q: q.area_mm2)
     # the fin and slot are a small share of the area: judge the error against their own area
     px = 25.4 / dpi
     thin_area = 2 * (wall_px * px) * 4.5
     rel = (p.area_mm2 - truth) / thin_area
-    assert abs(rel) < 0.05, rel  # 5 % of the thin features' area (0.5 % target is on walls' own area)
+    assert abs(rel) < target, rel
     assert abs(p.area_mm2 - truth) <= 3 * p.area_u_mm2
+
+
+@pytest.mark.parametrize("polarity", ["dark", "light"])
+def test_thin_fin_and_slot_in_an_8bit_srgb_scan(polarity):
+    # 8-bit sRGB with a little noise (a real scanner's): the fin and slot add at most the
+    # 0.5 % target of their area to the error of the same plate without them (both truths:
+    # shapely); the plate's own error is its corners' and edges', not the walls'
+    dpi, wall_px = 300, 3
+    part, truth = _frame(dpi, wall_px)
+    plate = SynthPart(part.outer_mm[[0, 1, 2, 7]], [])  # the same plate without fin and slot
+    fg, bg = (0.06, 0.8) if polarity == "dark" else (0.65, 0.04)
+    errors = []
+    for item, true_area in ((part, truth), (plate, Polygon(plate.outer_mm).area)):
+        scan = render_scan(
+            [item], dpi=dpi, size_mm=(22, 23), blur_px=1.1, noise=0.004, background=bg, foreground=fg, seed=8
+        )
+        p = max(measure(scan.image, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1).parts, key=lambda q: q.area_mm2)
+        errors.append(p.area_mm2 - true_area)
+        assert abs(p.area_mm2 - true_area) <= 3 * p.area_u_mm2
+    thin_area = 2 * (wall_px * 25.4 / dpi) * 4.5
+    assert abs(errors[0] - errors[1]) / thin_area < 0.005, errors
+
+
+def test_end_window_that_asks_too_much_is_left_out_and_covered():
+    # levels that do not hold under the window (a lamp's shadow on a real scan: the level
+    # surfaces 15 % off there) would move the tip by pixels: the window is left out and its
+    # vertices carry the largest plausible move as uncertainty instead
+    from scanmass.segment.wallends import EndWindow, apply_end_windows
+
+    x0, x1, y_tip = 18.2, 21.2, 8.3
+    image = _blurred_fin_tip((48, 40), x0, x1, y_tip, 1.0)
+    side = np.linspace(80.0, y_tip, 160)
+    ring = np.concatenate(
+        [np.column_stack([np.full(len(side), x0), side]), np.column_stack([np.linspace(x0, x1, 7)[1:-1], np.full(5, y_tip)]),
+         np.column_stack([np.full(len(side), x1), side[::-1]])]
+    )  # fmt: skip
+    normals = np.zeros_like(ring)
+    normals[: len(side)], normals[len(side) : len(side) + 5], normals[len(side) + 5 :] = [-1, 0], [0, -1], [1, 0]
+    tip = np.zeros(len(ring), bool)
+    tip[len(side) : len(side) + 5] = True  # the turning boundary takes a window's move
+    window = EndWindow(np.array([19.7, 30.0]), np.array([1.0, 0.0]), np.array([0.0, -1.0]), 0.0, 26.7, 6.5)
+    moved, by, u = apply_end_windows(
+        image, np.zeros(2), [ring], normals, [window], lambda v, r, c: v / 0.85,
+        level_rel_u=0.0, noise_rel=0.0, prefer=tip, reach_px=5.0, max_move_px=1.0,
+    )  # fmt: skip
+    assert np.array_equal(moved[0], ring) and not by.any()
+    assert u.max() == pytest.approx(1.0)
+
+
+def _blurred_fin_tip(shape, x0, x1, y_tip, sigma):
+    """Pixel averages of a Gaussian-blurred half-strip x0 < x < x1, y > y_tip (pixel centres at integers).
+
+    Separable closed form: the mean over a pixel of Phi(t / s) is s [G(b / s) - G(a / s)] / (b - a) with
+    G(u) = u Phi(u) + phi(u), the antiderivative of Phi (common practice; scipy's normal distribution).
+    """
+
+    def g(u):
+        return u * stats.norm.cdf(u) + stats.norm.pdf(u)
+
+    def mean_phi(lo, hi):  # mean of Phi(t / sigma) over t in [lo, hi]
+        return sigma * (g(hi / sigma) - g(lo / sigma)) / (hi - lo)
+
+    cols = np.arange(shape[1], dtype=float)
+    rows = np.arange(shape[0], dtype=float)
+    across = mean_phi(cols - 0.5 - x0, cols + 0.5 - x0) - mean_phi(cols - 0.5 - x1, cols + 0.5 - x1)
+    along = mean_phi(rows - 0.5 - y_tip, rows + 0.5 - y_tip)
+    return along[:, None] * across[None, :]
+
+
+@pytest.mark.parametrize("sigma", [0.6, 1.0, 1.5])
+def test_end_window_restores_a_fin_tip_area_for_any_blur(sigma):
+    # The 2-D integral rule at a wall's end (scanmass.segment.wallends): under a window whose
+    # ramp crosses the straight part of the wall, the sum of window x normalised image equals
+    # the window-weighted area, for any even blur (the convolution is self-adjoint: Bracewell,
+    # ch. 6). A closed-form image of a 3 px fin's tip and a polygon whose tip sits 0.4 px short
+    # (as the midpoint rule leaves it): moving the tip's vertices by the window's area must
+    # restore the area of the true polygon (shapely) to 0.002 px2.
+    from scanmass.segment.wallends import EndWindow, apply_end_windows
+
+    x0, x1, y_tip, bottom = 18.2, 21.2, 8.3, 80.0
+    image = _blurred_fin_tip((48, 40), x0, x1, y_tip, sigma)
+    side = np.linspace(bottom, y_tip + 0.4, 144)  # about 0.5 px apart
+    tip_x = np.linspace(x0, x1, 7)
+    ring = np.concatenate(
+        [np.column_stack([np.full(len(side), x0), side]), np.column_stack([tip_x[1:-1], np.full(5, y_tip + 0.4)]),
+         np.column_stack([np.full(len(side), x1), side[::-1]])]
+    )  # fmt: skip
+    normals = np.zeros_like(ring)
+    normals[: len(side)] = [-1.0, 0.0]
+    normals[len(side) : len(side) + 5] = [0.0, -1.0]  # the tip: away from the material is up
+    normals[len(side) + 5 :] = [1.0, 0.0]
+    prefer = np.zeros(len(ring), bool)
+    prefer[len(side) : len(side) + 5] = True
+    reach = 3 * max(sigma, 1.0) + 2
+    centre = 0.5 * (x0 + x1)
+    window = EndWindow(
+        np.array([centre, 30.0]), np.array([1.0, 0.0]), np.array([0.0, -1.0]), 0.0, 30.0 - y_tip + reach, 1.5 + reach
+    )
+    moved, _, _ = apply_end_windows(
+        image, np.zeros(2), [ring], normals, [window], lambda v, r, c: v,
+        level_rel_u=0.0, noise_rel=0.0, prefer=prefer, reach_px=reach,
+    )  # fmt: skip
+    true = Polygon([(x0, bottom), (x0, y_tip), (x1, y_tip), (x1, bottom)]).area
+    assert Polygon(ring).area == pytest.approx(true - 3 * 0.4, abs=1e-9)
+    # 0.002 px2: 0.2 % of the 1.2 px2 put back (a window ending 1.5 px past the tip, inside
+    # the blur, leaves 0.009 px2 at sigma 1 and 0.07 px2 at sigma 1.5)
+    assert Polygon(moved[0]).area == pytest.approx(true, abs=0.002)
 
 
 def test_thin_ring_without_a_thick_region_is_corrected_and_covered():
@@ -121,6 +235,8 @@ def test_thin_ring_without_a_thick_region_is_corrected_and_covered():
     assert abs(p.area_mm2 / truth - 1) < 0.08
     assert abs(p.area_mm2 - truth) <= 3 * p.area_u_mm2
     assert "model" in p.uncertainty_terms
+    # ... and says so: the level, and so the width, rests on the walls' own profiles
+    assert any("no thick region" in w and "own profiles" in w for w in m.warnings), m.warnings
 
 
 def test_unresolvable_wall_warns():

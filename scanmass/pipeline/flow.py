@@ -499,15 +499,15 @@ def _edge_limits(
     With the local midpoint level (no manual threshold or level), thin walls and narrow
     slots are corrected by the integral rule (:mod:`scanmass.segment.thin`); a part without
     a thick region takes its level from the other parts of the image (same material). With
-    ``closed``, slots and walls too narrow for any contour are looked for (scans: in a
-    photo a shadow beside a part would look like a wall).
+    ``closed`` (scans: in a photo a shadow beside a part would look like a wall), slots and
+    walls too narrow for any contour are looked for and the walls' ends get their windows.
     """
     quants = [edge_quantisation(image, r) for r in found]
     if options.threshold is not None or abs(options.level - 0.5) > 1e-9:
         return [
             (q, WallResult(r, [np.zeros(len(x)) for x in [r.outer_px, *r.holes_px]])) for q, r in zip(quants, found)
         ]
-    results = [resolve_walls(image, r) for r in found]
+    results = [resolve_walls(image, r, ends=closed) for r in found]
     good = [
         q.level_ratio
         for q, w in zip(quants, results)
@@ -517,7 +517,7 @@ def _edge_limits(
         hint = float(np.median(good))
         for i, w in enumerate(results):
             if w.unresolved and "thick" not in w.level_source:
-                results[i] = resolve_walls(image, found[i], level_ratio_hint=hint)
+                results[i] = resolve_walls(image, found[i], level_ratio_hint=hint, ends=closed)
     for i, w in enumerate(results if closed else []):
         lacking, notes = closed_slots(image, w.rings)
         if len(lacking):

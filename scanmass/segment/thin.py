@@ -15,7 +15,11 @@ along a line across a straight wall (isotropic blur), given the background level
 and the part's own level ``f``. :func:`resolve_walls` measures that integral along the
 normal at every boundary point of a wall (or slot) narrower than a few blur widths and
 puts both edges of the wall symmetrically about the midpoint rule's centre line, ``w``
-apart (both edges fitted together). The part's level comes from its thick regions, or
+apart (both edges fitted together). That holds where the wall is straight for a few blur
+widths either side of the line; near a wall's end (a fin's tip, its root on a thick
+region, a slot's ends) the edges take the wall's interior correction and a window over the
+end sets the area there by the same integral in two dimensions
+(:mod:`scanmass.segment.wallends`). The part's level comes from its thick regions, or
 from another part of the same material in the image, or, failing both, from the wall's
 own profile: with the blur known, the peak ``P`` and integral ``J`` of the profile fix
 ``f`` through ``P = f erf(J / (2 sqrt 2 sigma f))`` (a Gaussian-blurred strip). Where
@@ -47,6 +51,7 @@ from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
 from scanmass.numeric import nonzero_rc
 from scanmass.segment.rings import PartRings, correct_curvature
+from scanmass.segment.wallends import RAMP_PX, apply_end_windows, end_windows, turning, wall_runs
 
 __all__ = [
     "EdgeQuantisation",
@@ -630,7 +635,11 @@ def _robust_quadratic(values: np.ndarray, rows: np.ndarray, cols: np.ndarray) ->
     for _ in range(3):
         coef = np.linalg.lstsq(a[keep], values[keep], rcond=None)[0]
         res = values - a @ coef
-        s = 1.4826 * float(np.median(np.abs(res[keep]))) + 1e-9
+        # the median absolute residual is 0 where most samples share one stored grey level
+        # (8-bit files, noise under a level step): the mean absolute residual (sqrt(pi / 2)
+        # of it for a Gaussian) keeps the neighbouring levels, whose share sets the mean
+        spread = np.abs(res[keep])
+        s = max(1.4826 * float(np.median(spread)), 1.2533 * float(np.mean(spread))) + 1e-9
         keep = np.abs(res) < 3.5 * s + 1e-6
         if keep.sum() < a.shape[1] * 3:
             break
@@ -676,8 +685,56 @@ def _erf(x: np.ndarray) -> np.ndarray:
     return np.asarray(erf(x))
 
 
+def _interior_corrections(
+    runs: list[np.ndarray], pts: np.ndarray, idx: np.ndarray, correction: np.ndarray, zone_px: float
+) -> np.ndarray:
+    """Corrections (per ``idx``) with those within ``zone_px`` of a run's end set to the run's interior median.
+
+    A run without an interior keeps its own corrections (its end window sets its area).
+    """
+    out = correction.copy()
+    pos = np.full(len(pts), -1)
+    pos[idx] = np.arange(len(idx))
+    for run in runs:
+        p = pts[run]
+        s = np.concatenate([[0.0], np.cumsum(np.hypot(*np.diff(p, axis=0).T))])
+        near = (s < zone_px) | (s > s[-1] - zone_px)
+        k = pos[run]
+        if near.all() or not near.any() or np.any(k < 0):
+            continue
+        out[k[near]] = float(np.median(correction[k[~near]]))
+    return out
+
+
+def _level_surface(
+    fg_eval: Callable[..., np.ndarray] | None,
+    f_here: np.ndarray,
+    bg_here: np.ndarray,
+    level_ratio_hint: float | None,
+) -> Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray]:
+    """The part's level less the background's at crop pixels (rows, cols), given the background there."""
+    if fg_eval is not None:
+        fit = fg_eval
+
+        def level(r: np.ndarray, c: np.ndarray, b: np.ndarray) -> np.ndarray:
+            return fit(r.ravel(), c.ravel()).reshape(r.shape) - b
+
+        return level
+    if level_ratio_hint is not None and math.isfinite(level_ratio_hint):
+        hint = float(level_ratio_hint)
+        return lambda r, c, b: b * (hint - 1.0)
+    # the walls' own level: a ratio to the background's magnitude, as in f_here
+    ratio = float(np.median(f_here / np.maximum(np.abs(bg_here), 1e-12)))
+    return lambda r, c, b: ratio * np.abs(b)
+
+
 def resolve_walls(
-    image: LoadedImage, rings: PartRings, *, level_ratio_hint: float | None = None, step_px: float = 0.1
+    image: LoadedImage,
+    rings: PartRings,
+    *,
+    level_ratio_hint: float | None = None,
+    step_px: float = 0.1,
+    ends: bool = True,
 ) -> WallResult:
     """Correct the boundary of thin walls and narrow slots of one part by the integral rule.
 
@@ -692,6 +749,9 @@ def resolve_walls(
         same material in the image, used when this part has no thick region.
     step_px : float
         Sampling step along each profile.
+    ends : bool
+        Treat the walls' ends by their windows (:mod:`scanmass.segment.wallends`); off for
+        photos, where a shadow's edge beside a part can look like a wall's.
 
     Returns
     -------
@@ -876,12 +936,38 @@ def resolve_walls(
     u = np.where(unresolved, np.hypot(u, 0.5 * np.abs(width_mid)), u)
     correction = np.where(np.isfinite(correction) & ~unresolved, correction, 0.0)
     correction = np.clip(correction, -0.5 * width_mid, thin_px)
+    # near a wall's end the profile across it sees the end too: there the ends' windows
+    # (segment.wallends) set the area, starting from the wall's straight interior
+    cap = turning(all_rings, normals, reach_tail)  # rounded ends and tips: no straight wall
+    straight = np.isin(np.arange(len(pts)), idx[~unresolved]) & ~cap
+    runs = wall_runs(straight, [len(r) for r in all_rings]) if ends else []
+    correction = _interior_corrections(runs, pts, idx, correction, reach_tail + RAMP_PX)
+    if runs and level_source:
+        correction = np.where(cap[idx] & ~unresolved, 0.0, correction)  # the end's window sets it
 
     moved = pts.copy()
     move = -direction * correction[:, None]  # out of the wall, or back into the material for a slot
     moved[idx] = pts[idx] + move
     wall_u = np.zeros(len(pts))
     wall_u[idx] = u
+    if runs and level_source:
+        across, width = np.zeros_like(pts), np.zeros(len(pts))
+        across[idx], width[idx] = direction, width_mid
+        windows = end_windows(runs, pts, across, width, reach_px=reach_tail)
+        f_level = _level_surface(fg_eval, f_here, bg_here, level_ratio_hint)
+
+        def normalise(values: np.ndarray, r: np.ndarray, c: np.ndarray) -> np.ndarray:
+            b = bg_eval(r.ravel(), c.ravel()).reshape(r.shape)
+            return (values - b) / f_level(r, c, b)
+
+        sizes = [len(r) for r in all_rings]
+        moved_rings, _, window_u = apply_end_windows(
+            lin, shift, [moved[a : a + n] for a, n in zip(np.cumsum([0, *sizes[:-1]]), sizes)], normals, windows,
+            normalise, level_rel_u=part_level_rel_u, prefer=cap, reach_px=reach_tail, max_move_px=max(sigma, 0.5),
+            noise_rel=float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0,
+        )  # fmt: skip
+        moved = np.concatenate(moved_rings)
+        wall_u = np.hypot(wall_u, window_u)
     out_rings, out_u, start_i = [], [], 0
     for r in all_rings:
         out_rings.append(moved[start_i : start_i + len(r)])
@@ -896,6 +982,15 @@ def resolve_walls(
         warnings.append(
             f"part {rings.label}: {n_bad} boundary points lie on thin {what} that cannot be resolved ({why}); "
             "their uncertainty covers the possible error; scan at a higher resolution"
+        )
+    if level_source.startswith("the walls' own") and np.any(~unresolved):
+        # the level from the peak equation carries the blur's shape against the Gaussian
+        # (rendered rings of 3-4 px: 2-8 % in area), far more than a thick region's level
+        warnings.append(
+            f"part {rings.label}: no thick region or other part of the same material gives the part's level; "
+            f"the width of its thin walls rests on a level taken from their own profiles (uncertain by about "
+            f"{100 * part_level_rel_u:.0f} %), and its uncertainty includes that; scan it beside a thick part of "
+            "the same material or at a higher resolution"
         )
     return WallResult(
         new,
