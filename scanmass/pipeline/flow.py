@@ -568,7 +568,7 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
         ) from None
     _check_within_support(scale, result, image.path)
     colour = _photo_colour(image)  # decoded once for the colour checks
-    result, cut = _cut_cast_shadows(
+    result, cut, cut_labels = _cut_cast_shadows(
         image,
         masked,
         scale,
@@ -582,7 +582,7 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
     shadow_only = _shadows_only(image, scale, result, colour)
     warnings = list(scale.warnings) + shadow_only + cut
     warnings += _unknown_thickness(scale, result, thickness_mm)
-    warnings += _cast_shadows(image, scale, result, thickness_mm, colour)
+    warnings += _cast_shadows(image, scale, result, thickness_mm, colour, cut_labels)
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)

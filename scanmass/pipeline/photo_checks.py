@@ -199,6 +199,7 @@ def _cast_shadows(
     result: Measurement,
     thickness_mm: float | None,
     colour: np.ndarray | None = None,
+    cut_labels: set[int] | None = None,
 ) -> list[str]:
     """Flag parts whose edge band looks like darkened paper (a cast shadow colour cannot rule out).
 
@@ -208,6 +209,8 @@ def _cast_shadows(
     :data:`~scanmass.segment.shadow.SHADOW_FRACTION` of it is shadow-like, the part may
     include its shadow: an uncertainty term ``cast_shadow`` of half the shadow-like area
     (and the matching centroid, moment and hole terms) and a warning with what to change.
+    Parts in ``cut_labels`` had their shadow cut (:func:`_cut_cast_shadows`, term
+    ``shadow_cut``) and are not flagged again.
     """
     if thickness_mm == 0 or not result.parts:
         return []
@@ -249,7 +252,7 @@ def _cast_shadows(
             part = _with_shadow_term(part, term, 0.5 * band_px * mm_per_px, name="reflection")
             result.parts[n] = part
             lost.append(f"{part.label} ({foreign_mm2:.3g} mm²)")
-        if risk.fraction < SHADOW_FRACTION:
+        if risk.fraction < SHADOW_FRACTION or part.label in (cut_labels or set()):
             continue
         like_mm2 = risk.shadow_like_px * mm_per_px**2
         band_mm = band_px * mm_per_px
@@ -288,7 +291,7 @@ def _cut_cast_shadows(
     thickness_mm: float | None,
     colour: np.ndarray | None,
     remeasure: Callable[[LoadedImage], Measurement],
-) -> tuple[Measurement, list[str]]:
+) -> tuple[Measurement, list[str], set[int]]:
     """Cut cast shadows out of the found parts and measure again; a term for where the cut runs.
 
     For each part whose edge band looks like darkened paper (as :func:`_cast_shadows` tests),
@@ -297,10 +300,13 @@ def _cut_cast_shadows(
     again with ``remeasure``. Each part found again where a cut one was gets the term
     ``shadow_cut``: the cut stretch's length times :data:`SHADOW_CUT_EDGE_PX` as an area
     (centroid, moments and holes to match). The cast-shadow check still runs afterwards on
-    the new outlines. Parts without a cut, and photos without one, keep their result.
+    the new outlines, but gives a cut part (whose labels are returned) no term ``cast_shadow``:
+    the face of a dark neutral part looks like darkened paper by colour alone, and what is left
+    of the shadow's doubt is the place of the cut. Parts without a cut, and photos without one,
+    keep their result.
     """
     if thickness_mm == 0 or colour is None or not result.parts:
-        return result, []
+        return result, [], set()
     thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
     mm_per_px = scale.plane_map.mm_per_px
     band_px = shadow_band_px(thick, mm_per_px)
@@ -316,7 +322,9 @@ def _cut_cast_shadows(
         risk = shadow_risk(colour_lin, mask, band_px)
         if risk is None or risk.fraction < SHADOW_FRACTION or looks_like_shadow_only(risk):
             continue
-        cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px)
+        codes = colour[y0:y1, x0:x1].astype(np.intp)
+        step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
+        cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
         if cut is None:
             continue
         outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
@@ -327,9 +335,10 @@ def _cut_cast_shadows(
         window[cut.cut] = np.asarray(np.median(paper), dtype=grey.dtype)
         cuts.append((np.asarray(part.centroid_mm, float), cut.edge_px * mm_per_px, cut.cut_px * mm_per_px**2))
     if not cuts:
-        return result, []
+        return result, [], set()
     again = remeasure(replace(masked, grey=grey))
     done: list[str] = []
+    labels: set[int] = set()
     for centre, edge_mm, cut_mm2 in cuts:
         if not again.parts:
             break
@@ -340,12 +349,13 @@ def _cut_cast_shadows(
         term = area_share_term(part, edge_mm * SHADOW_CUT_EDGE_PX * mm_per_px)
         again.parts[n] = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
         done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
+        labels.add(part.label)
     return again, [
         f"cast shadow cut: from part(s) {', '.join(done)} a layer with the paper's colour and grain, darkened, was "
         "taken as cast shadow and left out; the outline there runs on the step between the part and its shadow, and "
         "the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse light or a "
         "backlight"
-    ]
+    ], labels
 
 
 #: Share of a part's boundary whose edge profile must be unclear before the part is flagged.

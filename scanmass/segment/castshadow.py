@@ -91,7 +91,11 @@ def roughness(level: np.ndarray, sigma_px: float = 1.5) -> np.ndarray:
 
 
 def shadow_cut(
-    colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    code_step: np.ndarray | None = None,
 ) -> ShadowCut | None:
     """The cast shadow inside a found region: rough, paper-coloured, reached from its boundary.
 
@@ -106,6 +110,11 @@ def shadow_cut(
     reach_px : float
         How far (px) inside the region a shadow can reach
         (:func:`~scanmass.segment.shadow.shadow_band_px`).
+    code_step : (H, W) float ndarray, optional
+        Per pixel, the step of linear light (as a share of the paper white) between its
+        encoded value and the next: the grain of 8-bit coding, which at a dark face's level
+        is rough by itself. A pixel is taken as shadow-like only when its roughness is above
+        that of one code step at the face's level.
 
     Returns
     -------
@@ -143,9 +152,13 @@ def shadow_cut(
     if np.count_nonzero(interior) < 50:
         return None
     tex_face = float(np.percentile(rough[interior], 75))
+    floor = 0.01
+    if code_step is not None:
+        face_level = float(np.median(level[interior]))
+        floor = max(floor, 0.5 * float(np.median(code_step[interior])) / max(face_level, 1e-6))
     # a pixel is shadow-like when far rougher than the face, paper-coloured and darkened,
     # and reached from the region's boundary through such pixels
-    like = part_mask & (rough > max(2.0 * tex_face, 0.01)) & neutral & (sm < _MAX_DEPTH) & (inside <= reach_px)
+    like = part_mask & (rough > max(2.0 * tex_face, floor)) & neutral & (sm < _MAX_DEPTH) & (inside <= reach_px)
     count, labels = cv2.connectedComponents(like.astype(np.uint8), connectivity=8)
     touching = np.unique(labels[part_mask & (inside <= 1.5) & like])
     like = np.isin(labels, touching[touching > 0])
@@ -153,6 +166,8 @@ def shadow_cut(
     if sweep is None:
         return None
     unit, depth_px, face_like = sweep
+    if depth_px > reach_px + 1.0:
+        return None  # longer than a shadow of the part can be: not its shadow
     cut = _sweep_layer(mask8, depth_px * unit)
     if np.count_nonzero(cut & face_like) > CUT_MAX_FACE_SHARE * np.count_nonzero(cut):
         return None  # the sweep runs through the face: not a shadow beside it
@@ -176,6 +191,7 @@ def shadow_cut(
     )
 
 
+_LAST_STEP: dict = {}
 #: Smallest ratio of the face's level to the shadow's (or back) for the level step to place
 #: the cut; below it the half-way fall of the roughness places it.
 _LEVEL_STEP_RATIO = 1.3
@@ -190,22 +206,37 @@ def _sweep_depth(
     (the sweep itself is chosen by votes that take a pixel at the face's level or smooth as
     face: a shadow pixel is dark and rough).
 
-    The direction is that from the region's centroid to the shadow-like pixels'. Each further
+    The direction is the one (of 32) whose sweep adds the most shadow-like layers (each
+    counted by its share of shadow-like pixels) before a layer holds less than a half: a sweep
+    askew of the shadow's adds layers of face along one side. Each further
     pixel of sweep adds a layer; the layers are rough and at the shadow's level while in the
     shadow, smooth and at the face's level once in the face. The length is where the layers'
     median level crosses half-way between the two (or, without a clear step of level, where
     their median roughness falls to half the shadow's), interpolated between layers.
     """
     mask8 = part_mask.astype(np.uint8)
-    ys, xs = np.nonzero(part_mask)
-    ry, rx = np.nonzero(like)
-    if rx.size < 10:
+    if np.count_nonzero(like) < 10:
         return None
-    d = np.array([rx.mean() - xs.mean(), ry.mean() - ys.mean()])
-    norm = float(np.hypot(*d))
-    if norm < 0.5:
+    # the direction whose sweep keeps adding mostly rough layers the longest (a rough rim on
+    # the lit side, a wall's edge or a reflection, is thin; the shadow is deep)
+    best_run, unit = 0.0, np.zeros(2)
+    for angle in np.radians(np.arange(0.0, 360.0, 11.25)):
+        direction = np.array([np.cos(angle), np.sin(angle)])
+        prev, run = np.zeros_like(part_mask), 0.0
+        for k in range(1, int(1.5 * reach_px) + 4):
+            layer = _sweep_layer(mask8, k * direction)
+            new = layer & ~prev
+            prev = layer
+            if not new.any():
+                continue
+            share = np.count_nonzero(new & like) / np.count_nonzero(new)
+            if share < 0.5:
+                break
+            run += share
+        if run > best_run:
+            best_run, unit = run, direction
+    if best_run < 2:
         return None
-    unit = d / norm
     prev = np.zeros_like(part_mask)
     steps, levels, roughs, shares = [], [], [], []
     for k in range(1, int(1.5 * reach_px) + 12):
@@ -249,6 +280,8 @@ def _sweep_depth(
             depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
             vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
             best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
+            _LAST_STEP.clear()
+            _LAST_STEP.update(lv_s=lv_s, lv_f=lv_f, rg_s=rg_s, rg_f=rg_f)
             return best_unit, best_depth, face_sure
     return None
 
@@ -257,7 +290,7 @@ def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple
     """The whole-pixel sweep near ``guess`` (x, y px) whose layer holds the most shadow votes net.
 
     ``vote`` is +1 where a pixel looks like the shadow, -1 where it looks like the face; the
-    search covers whole-pixel vectors within 3 px and 25 degrees of the guess (a sweep in the
+    search covers whole-pixel vectors within 3 px and 15 degrees of the guess (a sweep in the
     wrong direction cuts into the face along one side and leaves shadow along another).
     """
     length = float(np.hypot(*guess))
@@ -268,7 +301,7 @@ def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple
         for dx in range(-r, r + 1):
             v = np.array([dx, dy], float)
             n = float(np.hypot(dx, dy))
-            if n < 1 or abs(n - length) > 3 or float(v @ unit) < n * np.cos(np.radians(25)):
+            if n < 1 or abs(n - length) > 3 or float(v @ unit) < n * np.cos(np.radians(15)):
                 continue
             score = float(vote[_sweep_layer(mask8, v)].sum())
             if score > best_score:
