@@ -350,12 +350,16 @@ def _cut_cast_shadows(
         again.parts[n] = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
         done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
         labels.add(part.label)
-    return again, [
-        f"cast shadow cut: from part(s) {', '.join(done)} a layer with the paper's colour and grain, darkened, was "
-        "taken as cast shadow and left out; the outline there runs on the step between the part and its shadow, and "
-        "the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse light or a "
-        "backlight"
-    ], labels
+    return (
+        again,
+        [
+            f"cast shadow cut: from part(s) {', '.join(done)} a layer with the paper's colour and grain, darkened, was "
+            "taken as cast shadow and left out; the outline there runs on the step between the part and its shadow, and "
+            "the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse light or a "
+            "backlight"
+        ],
+        labels,
+    )
 
 
 #: Share of a part's boundary whose edge profile must be unclear before the part is flagged.
