@@ -312,7 +312,7 @@ def _cut_cast_shadows(
     band_px = shadow_band_px(thick, mm_per_px)
     lut = np.asarray(image.to_linear, dtype=np.float32)
     grey = masked.grey.copy()
-    cuts: list[tuple[np.ndarray, float, float]] = []  # (centroid mm, cut edge mm, cut area mm2)
+    cuts: list[tuple[Part, float, float]] = []  # (the part as found, cut edge mm, cut area mm2)
     for part in result.parts:
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
@@ -333,30 +333,51 @@ def _cut_cast_shadows(
             continue
         window = grey[y0:y1, x0:x1]
         window[cut.cut] = np.asarray(np.median(paper), dtype=grey.dtype)
-        cuts.append((np.asarray(part.centroid_mm, float), cut.edge_px * mm_per_px, cut.cut_px * mm_per_px**2))
+        cuts.append((part, cut.edge_px * mm_per_px, cut.cut_px * mm_per_px**2))
     if not cuts:
         return result, [], set()
     again = remeasure(replace(masked, grey=grey))
     done: list[str] = []
     labels: set[int] = set()
-    for centre, edge_mm, cut_mm2 in cuts:
-        if not again.parts:
-            break
-        n = min(range(len(again.parts)), key=lambda k: math.dist(again.parts[k].centroid_mm, centre))
+    remnants: set[int] = set()
+    for old, edge_mm, cut_mm2 in cuts:
+        assert old.outline_mm is not None  # _part_crop gave a crop
+        outline = np.asarray(old.outline_mm, np.float32)
+        within = [
+            k
+            for k, q in enumerate(again.parts)
+            if cv2.pointPolygonTest(outline, (float(q.centroid_mm[0]), float(q.centroid_mm[1])), False) >= 0
+        ]
+        faces = [k for k in within if again.parts[k].area_mm2 >= 0.3 * (old.area_mm2 - cut_mm2)]
+        if not faces:
+            return result, [], set()  # the face was not found again: keep the measurement as it was
+        n = max(faces, key=lambda k: again.parts[k].area_mm2)
+        # a small region found now within (or at the edge of) the cut region is a piece of it: a
+        # shadow's island, a wall's strip, a deep hole's dark bottom cut off from the face
+        lo, hi = outline.min(axis=0) - band_px * mm_per_px, outline.max(axis=0) + band_px * mm_per_px
+        before = [q.centroid_mm for q in result.parts]
+        remnants |= {
+            k
+            for k, q in enumerate(again.parts)
+            if k != n
+            and q.area_mm2 < 0.05 * again.parts[n].area_mm2
+            and (k in within or bool(np.all((np.asarray(q.centroid_mm) >= lo) & (np.asarray(q.centroid_mm) <= hi))))
+            and all(math.dist(q.centroid_mm, c) > 1.0 for c in before)
+        }
         part = again.parts[n]
-        if math.dist(part.centroid_mm, centre) > 0.5 * part.caliper_max_mm:
-            continue
         term = area_share_term(part, edge_mm * SHADOW_CUT_EDGE_PX * mm_per_px)
         again.parts[n] = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
         done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
         labels.add(part.label)
+    left = f"; {len(remnants)} piece(s) of the cut region found as separate regions are left out" if remnants else ""
+    again.parts = [q for k, q in enumerate(again.parts) if k not in remnants]
     return (
         again,
         [
             f"cast shadow cut: from part(s) {', '.join(done)} a layer with the paper's colour and grain, darkened, was "
-            "taken as cast shadow and left out; the outline there runs on the step between the part and its shadow, and "
-            "the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse light or a "
-            "backlight"
+            f"taken as cast shadow and left out{left}; the outline there runs on the step between the part and its "
+            "shadow, and the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse "
+            "light or a backlight"
         ],
         labels,
     )

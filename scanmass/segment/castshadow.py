@@ -30,7 +30,7 @@ import numpy as np
 __all__ = ["ShadowCut", "roughness", "shadow_cut", "CUT_MIN_TEXTURE_RATIO"]
 
 #: Smallest ratio of the shadow's roughness (median over the candidate layer) to the face's
-#: (75th percentile over its interior) for a cut: below it the two cannot be told apart.
+#: (median over its interior) for a cut: below it the two cannot be told apart.
 CUT_MIN_TEXTURE_RATIO = 4.0
 #: Largest share of a part's pixels a cut may remove (more: not a shadow beside a part).
 CUT_MAX_SHARE = 0.5
@@ -56,7 +56,7 @@ class ShadowCut:
         Length (px) of the boundary between the cut and what is kept: the stretch where
         the outline now runs on the step between the face and the shadow.
     texture_face, texture_shadow : float
-        Roughness of the face (75th percentile of its interior) and of the cut (median).
+        Roughness of the face (median over its interior) and of the cut (median).
     level_face, level_shadow : float
         Median darkening factor (level / paper white) of the face and of the cut.
     """
@@ -148,10 +148,11 @@ def shadow_cut(
     sm = smooth.mean(axis=2)
     neutral = np.all(np.abs(smooth - sm[..., None]) <= _CHROMA_TOL * sm[..., None] + 0.01, axis=2)
     inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
-    interior = inside > reach_px + 2.0
+    # the face: deeper than a shadow reaches, or (a narrow part) the deepest quarter of the region
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
     if np.count_nonzero(interior) < 50:
         return None
-    tex_face = float(np.percentile(rough[interior], 75))
+    tex_face = float(np.median(rough[interior]))
     floor = 0.01
     if code_step is not None:
         face_level = float(np.median(level[interior]))
@@ -172,6 +173,13 @@ def shadow_cut(
     if np.count_nonzero(cut & face_like) > CUT_MAX_FACE_SHARE * np.count_nonzero(cut):
         return None  # the sweep runs through the face: not a shadow beside it
     keep = part_mask & ~cut
+    # pieces the cut parts from the face (a wall's strip, a shadow's island) are no part
+    count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
+    if count > 2:
+        areas = stats[1:, cv2.CC_STAT_AREA]
+        pieces = (labels > 0) & (stats[labels, cv2.CC_STAT_AREA] < 0.05 * areas.max())
+        cut |= pieces
+        keep &= ~pieces
     n_cut = int(np.count_nonzero(cut))
     if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
         return None
