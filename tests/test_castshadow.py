@@ -120,3 +120,12 @@ def test_rendered_cast_shadow_is_cut_and_covered(name, shape, area_tol, centroid
         assert math.dist(hole.circle_centre_mm, centre) < 1.0
         assert abs(hole.diameter_mm - diameter) <= hole_tol
         assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+
+
+@pytest.mark.parametrize("name,thickness", [("soft-black-t15", 4.0), ("soft-steel-t0", 3.0)])
+def test_soft_light_leaves_dark_parts_uncut(name, thickness):
+    """Under a large overhead light no shadow is cut: the black parts' edge bands look like
+    darkened paper by colour (the 'cast shadow' flag), but no rough layer lies beside them."""
+    m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=thickness)
+    assert all("shadow_cut" not in p.uncertainty_terms for p in m.parts)
+    assert not any(w.startswith("cast shadow cut") for w in m.warnings)

@@ -281,6 +281,10 @@ def _cast_shadows(
 #: roughness, which places the step between the face and the shadow within about a pixel on
 #: the committed renders (tests/data/reallight); taken at 2 px.
 SHADOW_CUT_EDGE_PX = 2.0
+#: Thickness (mm) whose shadow's reach bounds a cut when the thickness is not given: the cut
+#: follows the shadow's own grain and level, so the bound only keeps it near the outline
+#: (the renders' parts are 1.5-8 mm thick).
+SHADOW_CUT_UNKNOWN_THICKNESS_MM = 8.0
 
 
 def _cut_cast_shadows(
@@ -307,7 +311,7 @@ def _cut_cast_shadows(
     """
     if thickness_mm == 0 or colour is None or not result.parts:
         return result, [], set()
-    thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
+    thick = SHADOW_CUT_UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
     mm_per_px = scale.plane_map.mm_per_px
     band_px = shadow_band_px(thick, mm_per_px)
     lut = np.asarray(image.to_linear, dtype=np.float32)
