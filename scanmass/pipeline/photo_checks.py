@@ -306,8 +306,8 @@ def _cut_cast_shadows(
     (centroid, moments and holes to match). The cast-shadow check still runs afterwards on
     the new outlines, but gives a cut part (whose labels are returned) no term ``cast_shadow``:
     the face of a dark neutral part looks like darkened paper by colour alone, and what is left
-    of the shadow's doubt is the place of the cut. Parts without a cut, and photos without one,
-    keep their result.
+    of the shadow's doubt is the place of the cut. Parts without a cut keep their first
+    measurement, and photos without a cut their whole result.
     """
     if thickness_mm == 0 or colour is None or not result.parts:
         return result, [], set()
@@ -340,7 +340,10 @@ def _cut_cast_shadows(
         cuts.append((part, cut.edge_px * mm_per_px, cut.cut_px * mm_per_px**2))
     if not cuts:
         return result, [], set()
-    again = remeasure(replace(masked, grey=grey))
+    try:
+        again = remeasure(replace(masked, grey=grey))
+    except (SegmentationError, ScaleError):
+        return result, [], set()  # nothing measurable without the shadows: keep the first measurement
     done: list[str] = []
     labels: set[int] = set()
     remnants: set[int] = set()
@@ -374,7 +377,22 @@ def _cut_cast_shadows(
         done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
         labels.add(part.label)
     left = f"; {len(remnants)} piece(s) of the cut region found as separate regions are left out" if remnants else ""
-    again.parts = [q for k, q in enumerate(again.parts) if k not in remnants]
+    # a part that was not cut keeps its first measurement (the second one reads the image's
+    # levels with the shadows painted over, which moves soft edges elsewhere a little)
+    kept = [p for p in result.parts if all(p is not old for old, _, _ in cuts)]
+    parts = []
+    for k, q in enumerate(again.parts):
+        if k in remnants:
+            continue
+        same = [] if q.label in labels else [p for p in kept if math.dist(p.centroid_mm, q.centroid_mm) < 1.0]
+        parts.append(replace(same[0], label=q.label) if same else q)
+    again.parts = parts
+    # the image's own warnings: the first measurement's, but a cut part's from the second
+    old_labels = {f"part {old.label}:" for old, _, _ in cuts}
+    new_labels = {f"part {label}:" for label in labels}
+    again.warnings = [w for w in result.warnings if not any(w.startswith(x) for x in old_labels)] + [
+        w for w in again.warnings if any(w.startswith(x) for x in new_labels)
+    ]
     return (
         again,
         [
