@@ -4,20 +4,25 @@ A cast shadow is paper in less light: it keeps the paper's colour (each linear c
 paper white's times one factor) and its texture (the paper's grain, and in a dim shadow the
 camera's noise, which is large against its low level). A part's top face is a surface of its
 own: smooth at the scale of a few pixels. Where a region found as a part holds its shadow
-(:func:`scanmass.segment.shadow.shadow_risk` flags the edge band), the shadow is the rough,
-paper-coloured layer reached from the region's boundary (the paper outside, or a hole) that
-ends where the smooth top face begins: :func:`shadow_cut` grows it inwards, no deeper than a
-shadow can reach, through pixels whose local roughness is far above the face's own and whose
-(smoothed) colour is the paper's.
+(:func:`scanmass.segment.shadow.shadow_risk` flags the edge band), :func:`shadow_cut` finds the
+shadow-like pixels (rough, paper-coloured, darkened, reached from the region's boundary: the
+paper outside or a hole) and then the shadow as a whole: a prism's shadow from a distant light
+is its top face swept by one vector across the paper, so the region is the face swept by it,
+and the layer the sweep adds is the shadow. The vector's direction is the one whose sweep adds
+shadow-like layers the longest; its length is where the layers' level (or roughness) steps from
+the shadow's to the face's; a search of nearby whole-pixel vectors by pixel votes refines both.
+The cut is refused where the face cannot be told from the shadow (as rough, no step), where the
+sweep would run through the face, or where it is longer than the part's shadow can be.
 
-The roughness is the median absolute deviation from a 3x3 median, smoothed and taken relative
-to the local level: a median filter keeps a step edge, so the step between the face and the
-shadow adds little, while noise and grain stand out (common practice: median filters keep
-edges and remove impulse noise).
+The roughness is the smoothed absolute deviation from a 3x3 median, taken relative to the local
+level: a median filter keeps a step edge, so the step between the face and the shadow adds
+little, while noise and grain stand out (common practice: median filters keep edges and remove
+impulse noise). On a dark face 8-bit coding is rough by itself; one code step at the face's
+level is the floor below which nothing is taken as grain.
 
 The pipeline paints the cut pixels with the paper's level and measures the image again, so the
-outline lands on the step between the face and the shadow; where the face is as rough as the
-shadow (no contrast of texture), nothing is cut and the warning and term stay.
+outline lands on the step between the face and the shadow; where nothing is cut, the warning
+and the term of :mod:`scanmass.segment.shadow`'s check stay.
 """
 
 from __future__ import annotations
@@ -120,8 +125,9 @@ def shadow_cut(
     -------
     ShadowCut or None
         None when no shadow layer is found or it cannot be told from the face: the face as
-        rough as the shadow (less than :data:`CUT_MIN_TEXTURE_RATIO` apart), too little
-        face left, or a cut of more than :data:`CUT_MAX_SHARE` of the region.
+        rough as the shadow (less than :data:`CUT_MIN_TEXTURE_RATIO` apart), a sweep longer
+        than ``reach_px`` or holding more than :data:`CUT_MAX_FACE_SHARE` face-like pixels,
+        too little face left, or a cut of more than :data:`CUT_MAX_SHARE` of the region.
 
     Examples
     --------
@@ -199,7 +205,6 @@ def shadow_cut(
     )
 
 
-_LAST_STEP: dict = {}
 #: Smallest ratio of the face's level to the shadow's (or back) for the level step to place
 #: the cut; below it the half-way fall of the roughness places it.
 _LEVEL_STEP_RATIO = 1.3
@@ -288,8 +293,6 @@ def _sweep_depth(
             depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
             vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
             best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
-            _LAST_STEP.clear()
-            _LAST_STEP.update(lv_s=lv_s, lv_f=lv_f, rg_s=rg_s, rg_f=rg_f)
             return best_unit, best_depth, face_sure
     return None
 
