@@ -279,9 +279,9 @@ def _cast_shadows(
 #: The stated doubt (1 sigma, px) of where the outline runs along a stretch cut from a cast
 #: shadow (:func:`~scanmass.segment.castshadow.shadow_cut`). On the committed renders
 #: (tests/data/reallight) the cut runs on average 0.7 px inside the top face's edge (steel
-#: plate under the spotlight: 284 px of face over a 401 px cut edge) and the cut parts' area
-#: errors are 0.3-0.9 of this term (2.6-8 %, the rest from lit edges that look like paper,
-#: covered by 'unclear_edge'); taken at 2 px.
+#: plate under the spotlight: 284 px of face over a 401 px cut edge); the cut parts' area
+#: errors are 0.3-0.9 times this term, but for the brass plate (1.9 times: -8 %, mostly its lit
+#: edge that looks like the paper, which 'unclear_edge' covers); taken at 2 px.
 SHADOW_CUT_EDGE_PX = 2.0
 #: Thickness (mm) whose shadow's reach bounds a cut when the thickness is not given: the cut
 #: follows the shadow's own grain and level, so the bound only keeps it near the outline
