@@ -309,7 +309,8 @@ def _cut_cast_shadows(
     the new outlines, but gives a cut part (whose labels are returned) no term ``cast_shadow``:
     the face of a dark neutral part looks like darkened paper by colour alone, and what is left
     of the shadow's doubt is the place of the cut. Parts without a cut keep their first
-    measurement, and photos without a cut their whole result.
+    measurement, and photos without a cut their whole result. The result's
+    ``settings["shadow_cut"]`` holds each cut part's shadow area and cut length.
     """
     if thickness_mm == 0 or colour is None or not result.parts:
         return result, [], set()
@@ -349,6 +350,7 @@ def _cut_cast_shadows(
     done: list[str] = []
     labels: set[int] = set()
     remnants: set[int] = set()
+    said: dict[str, dict[str, float]] = {}
     for old, edge_mm, cut_mm2 in cuts:
         assert old.outline_mm is not None  # _part_crop gave a crop
         outline = np.asarray(old.outline_mm, np.float32)
@@ -378,6 +380,7 @@ def _cut_cast_shadows(
         again.parts[n] = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
         done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
         labels.add(part.label)
+        said[str(part.label)] = {"shadow_area_mm2": cut_mm2, "cut_edge_mm": edge_mm}
     left = f"; {len(remnants)} piece(s) of the cut region found as separate regions are left out" if remnants else ""
     # a part that was not cut keeps its first measurement (the second one reads the image's
     # levels with the shadows painted over, which moves soft edges elsewhere a little)
@@ -389,6 +392,7 @@ def _cut_cast_shadows(
         same = [] if q.label in labels else [p for p in kept if math.dist(p.centroid_mm, q.centroid_mm) < 1.0]
         parts.append(replace(same[0], label=q.label) if same else q)
     again.parts = parts
+    again.settings["shadow_cut"] = {"parts": said, "pieces_left_out": len(remnants)}
     # the image's own warnings: the first measurement's, but a cut part's from the second
     old_labels = {f"part {old.label}:" for old, _, _ in cuts}
     new_labels = {f"part {label}:" for label in labels}
