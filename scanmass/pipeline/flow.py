@@ -22,6 +22,7 @@ from scanmass.pipeline.part_terms import measure_part
 from scanmass.pipeline.photo_checks import (
     _cast_shadows,
     _check_within_support,
+    _cut_cast_shadows,
     _hidden_holes,
     _mask_outside,
     _photo_colour,
@@ -567,10 +568,21 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
         ) from None
     _check_within_support(scale, result, image.path)
     colour = _photo_colour(image)  # decoded once for the colour checks
+    result, cut, cut_labels = _cut_cast_shadows(
+        image,
+        masked,
+        scale,
+        result,
+        thickness_mm,
+        colour,
+        lambda img: measure_image(
+            img, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
+        ),
+    )
     shadow_only = _shadows_only(image, scale, result, colour)
-    warnings = list(scale.warnings) + shadow_only
+    warnings = list(scale.warnings) + shadow_only + cut
     warnings += _unknown_thickness(scale, result, thickness_mm)
-    warnings += _cast_shadows(image, scale, result, thickness_mm, colour)
+    warnings += _cast_shadows(image, scale, result, thickness_mm, colour, cut_labels)
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)

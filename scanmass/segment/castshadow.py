@@ -1,0 +1,337 @@
+"""Cast shadows cut from parts in photos: the pixels of a found region that are darkened paper.
+
+A cast shadow is paper in less light: it keeps the paper's colour (each linear channel the
+paper white's times one factor) and its texture (the paper's grain, and in a dim shadow the
+camera's noise, which is large against its low level). A part's top face is a surface of its
+own: smooth at the scale of a few pixels. Where a region found as a part holds its shadow
+(:func:`scanmass.segment.shadow.shadow_risk` flags the edge band), :func:`shadow_cut` finds the
+shadow-like pixels (rough, paper-coloured, darkened, reached from the region's boundary: the
+paper outside or a hole) and then the shadow as a whole: a prism's shadow from a distant light
+is its top face swept by one vector across the paper, so the region is the face swept by it,
+and the layer the sweep adds is the shadow. The vector's direction is the one whose sweep adds
+shadow-like layers the longest; its length is where the layers' level (or roughness) steps from
+the shadow's to the face's; a search of nearby whole-pixel vectors by pixel votes refines both.
+The cut is refused where the face cannot be told from the shadow (as rough, no step), where the
+sweep would run through the face, or where it is longer than the part's shadow can be.
+
+The roughness is the smoothed absolute deviation from a 3x3 median, taken relative to the local
+level: a median filter keeps a step edge, so the step between the face and the shadow adds
+little, while noise and grain stand out (common practice: median filters keep edges and remove
+impulse noise). On a dark face 8-bit coding is rough by itself; one code step at the face's
+level is the floor below which nothing is taken as grain.
+
+The pipeline paints the cut pixels with the paper's level and measures the image again, so the
+outline lands on the step between the face and the shadow; where nothing is cut, the warning
+and the term of :mod:`scanmass.segment.shadow`'s check stay.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+
+__all__ = ["ShadowCut", "roughness", "shadow_cut", "CUT_MIN_TEXTURE_RATIO"]
+
+#: Smallest ratio of the shadow's roughness (median over the candidate layer) to the face's
+#: (median over its interior) for a cut: below it the two cannot be told apart.
+CUT_MIN_TEXTURE_RATIO = 4.0
+#: Largest share of a part's pixels a cut may remove (more: not a shadow beside a part).
+CUT_MAX_SHARE = 0.5
+#: Largest share of face-like pixels in a cut (more: the sweep runs through the face).
+CUT_MAX_FACE_SHARE = 0.3
+#: Channel tolerance of the paper's colour for a (smoothed) shadow pixel, relative.
+_CHROMA_TOL = 0.2
+#: Darkening factor (level / paper) above which a pixel is not taken as shadow.
+_MAX_DEPTH = 0.85
+
+
+@dataclass(frozen=True)
+class ShadowCut:
+    """The shadow layer found inside one region (:func:`shadow_cut`).
+
+    Attributes
+    ----------
+    cut : (H, W) bool ndarray
+        The region's pixels taken as cast shadow (crop coordinates).
+    cut_px : int
+        Their count.
+    edge_px : float
+        Length (px) of the boundary between the cut and what is kept: the stretch where
+        the outline now runs on the step between the face and the shadow.
+    texture_face, texture_shadow : float
+        Roughness of the face (median over its interior) and of the cut (median).
+    level_face, level_shadow : float
+        Median darkening factor (level / paper white) of the face and of the cut.
+    """
+
+    cut: np.ndarray
+    cut_px: int
+    edge_px: float
+    texture_face: float
+    texture_shadow: float
+    level_face: float
+    level_shadow: float
+
+
+def roughness(level: np.ndarray, sigma_px: float = 1.5) -> np.ndarray:
+    """Local roughness of a level map: smoothed |level - 3x3 median| over the smoothed level.
+
+    Examples
+    --------
+    A flat face beside noisy paper: rough only where the noise is.
+
+    >>> rng = np.random.default_rng(1)
+    >>> g = np.full((40, 40), 0.05, np.float32); g[:, 20:] = 0.03 + 0.02 * rng.random((40, 20))
+    >>> r = roughness(g)
+    >>> bool(r[:, :15].max() < 0.01), bool(np.median(r[:, 25:]) > 0.05)
+    (True, True)
+    """
+    g = level.astype(np.float32)
+    med = cv2.medianBlur(g, 3)
+    dev = cv2.GaussianBlur(np.abs(g - med), (0, 0), sigma_px)
+    base = cv2.GaussianBlur(med, (0, 0), sigma_px)
+    return dev / np.maximum(base, 1e-3)
+
+
+def shadow_cut(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    code_step: np.ndarray | None = None,
+) -> ShadowCut | None:
+    """The cast shadow inside a found region: rough, paper-coloured, reached from its boundary.
+
+    Parameters
+    ----------
+    colour_lin : (H, W, 3) float ndarray
+        A crop of the photo in linear light.
+    part_mask : (H, W) bool ndarray
+        The found region (holes cleared), with paper all around it.
+    paper_rgb : (3,) ndarray
+        The local paper white (linear), e.g. :attr:`~scanmass.segment.shadow.ShadowRisk.paper_rgb`.
+    reach_px : float
+        How far (px) inside the region a shadow can reach
+        (:func:`~scanmass.segment.shadow.shadow_band_px`).
+    code_step : (H, W) float ndarray, optional
+        Per pixel, the step of linear light (as a share of the paper white) between its
+        encoded value and the next: the grain of 8-bit coding, which at a dark face's level
+        is rough by itself. A pixel is taken as shadow-like only when its roughness is above
+        that of one code step at the face's level.
+
+    Returns
+    -------
+    ShadowCut or None
+        None when no shadow layer is found or it cannot be told from the face: the face as
+        rough as the shadow (less than :data:`CUT_MIN_TEXTURE_RATIO` apart), a sweep longer
+        than ``reach_px`` or holding more than :data:`CUT_MAX_FACE_SHARE` face-like pixels,
+        too little face left, or a cut of more than :data:`CUT_MAX_SHARE` of the region.
+
+    Examples
+    --------
+    A smooth dark face (0.04 of the paper) 58 px wide with a rough shadow layer 8 px wide
+    along its left side, found as one region: the layer is cut, the face kept.
+
+    >>> rng = np.random.default_rng(0)
+    >>> paper = np.array([0.7, 0.72, 0.74])
+    >>> img = np.tile(paper, (100, 100, 1)); mask = np.zeros((100, 100), bool); mask[20:80, 14:80] = True
+    >>> img[20:80, 22:80] = 0.04 * paper
+    >>> img[20:80, 14:22] = paper * (0.01 + 0.03 * rng.random((60, 8, 1)))
+    >>> cut = shadow_cut(img, mask, paper, reach_px=10)
+    >>> bool(cut.cut[:, 14:22][mask[:, 14:22]].all()), bool(cut.cut[:, 22:].any()), cut.edge_px
+    (True, False, 60.0)
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return None
+    paper = np.asarray(paper_rgb, np.float32)
+    q = colour_lin.astype(np.float32) / paper
+    level = q.mean(axis=2)
+    rough = roughness(level)
+    smooth = cv2.GaussianBlur(q, (0, 0), 1.5)
+    sm = smooth.mean(axis=2)
+    neutral = np.all(np.abs(smooth - sm[..., None]) <= _CHROMA_TOL * sm[..., None] + 0.01, axis=2)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    # the face: deeper than a shadow reaches, or (a narrow part) the deepest quarter of the region
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return None
+    tex_face = float(np.median(rough[interior]))
+    floor = 0.01
+    if code_step is not None:
+        face_level = float(np.median(level[interior]))
+        floor = max(floor, 0.5 * float(np.median(code_step[interior])) / max(face_level, 1e-6))
+    # a pixel is shadow-like when far rougher than the face, paper-coloured and darkened,
+    # and reached from the region's boundary through such pixels
+    like = part_mask & (rough > max(2.0 * tex_face, floor)) & neutral & (sm < _MAX_DEPTH) & (inside <= reach_px)
+    count, labels = cv2.connectedComponents(like.astype(np.uint8), connectivity=8)
+    touching = np.unique(labels[part_mask & (inside <= 1.5) & like])
+    like = np.isin(labels, touching[touching > 0])
+    sweep = _sweep_depth(part_mask, like, level, rough, reach_px)
+    if sweep is None:
+        return None
+    unit, depth_px, face_like = sweep
+    if depth_px > reach_px + 1.0:
+        return None  # longer than a shadow of the part can be: not its shadow
+    cut = _sweep_layer(mask8, depth_px * unit)
+    if np.count_nonzero(cut & face_like) > CUT_MAX_FACE_SHARE * np.count_nonzero(cut):
+        return None  # the sweep runs through the face: not a shadow beside it
+    keep = part_mask & ~cut
+    # pieces the cut parts from the face (a wall's strip, a shadow's island) are no part
+    count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
+    if count > 2:
+        areas = stats[1:, cv2.CC_STAT_AREA]
+        pieces = (labels > 0) & (stats[labels, cv2.CC_STAT_AREA] < 0.05 * areas.max())
+        cut |= pieces
+        keep &= ~pieces
+    n_cut = int(np.count_nonzero(cut))
+    if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
+        return None
+    tex_shadow = float(np.median(rough[cut]))
+    if tex_shadow < CUT_MIN_TEXTURE_RATIO * max(tex_face, 1e-4):
+        return None
+    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
+    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
+    return ShadowCut(
+        cut=cut,
+        cut_px=n_cut,
+        edge_px=float(np.count_nonzero(border)),
+        texture_face=tex_face,
+        texture_shadow=tex_shadow,
+        level_face=float(np.median(level[keep])),
+        level_shadow=float(np.median(level[cut])),
+    )
+
+
+#: Smallest ratio of the face's level to the shadow's (or back) for the level step to place
+#: the cut; below it the half-way fall of the roughness places it.
+_LEVEL_STEP_RATIO = 1.3
+
+
+def _sweep_depth(
+    part_mask: np.ndarray, like: np.ndarray, level: np.ndarray, rough: np.ndarray, reach_px: float
+) -> tuple[np.ndarray, float, np.ndarray] | None:
+    """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, and a face map.
+
+    The face map is True where a pixel looks like the face: at the face's level and smooth
+    (the sweep itself is chosen by votes that take a pixel at the face's level or smooth as
+    face: a shadow pixel is dark and rough).
+
+    The direction is the one (of 32) whose sweep adds the most shadow-like layers (each
+    counted by its share of shadow-like pixels) before a layer holds less than a half: a sweep
+    askew of the shadow's adds layers of face along one side. Each further
+    pixel of sweep adds a layer; the layers are rough and at the shadow's level while in the
+    shadow, smooth and at the face's level once in the face. The length is where the layers'
+    median level crosses half-way between the two (or, without a clear step of level, where
+    their median roughness falls to half the shadow's), interpolated between layers.
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if np.count_nonzero(like) < 10:
+        return None
+    # the direction whose sweep keeps adding mostly rough layers the longest (a rough rim on
+    # the lit side, a wall's edge or a reflection, is thin; the shadow is deep)
+    best_run, unit = 0.0, np.zeros(2)
+    for angle in np.radians(np.arange(0.0, 360.0, 11.25)):
+        direction = np.array([np.cos(angle), np.sin(angle)])
+        prev, run = np.zeros_like(part_mask), 0.0
+        for k in range(1, int(1.5 * reach_px) + 4):
+            layer = _sweep_layer(mask8, k * direction)
+            new = layer & ~prev
+            prev = layer
+            if not new.any():
+                continue
+            share = np.count_nonzero(new & like) / np.count_nonzero(new)
+            if share < 0.5:
+                break
+            run += share
+        if run > best_run:
+            best_run, unit = run, direction
+    if best_run < 2:
+        return None
+    prev = np.zeros_like(part_mask)
+    steps, levels, roughs, shares = [], [], [], []
+    for k in range(1, int(1.5 * reach_px) + 12):
+        layer = _sweep_layer(mask8, k * unit)
+        new = layer & ~prev
+        prev = layer
+        if not new.any():
+            continue
+        steps.append(k)
+        levels.append(float(np.median(level[new])))
+        roughs.append(float(np.median(rough[new])))
+        shares.append(float(np.count_nonzero(new & like)) / float(np.count_nonzero(new)))
+    ks, lv, rg, sh = (np.asarray(a, float) for a in (steps, levels, roughs, shares))
+    if ks.size < 6:
+        return None
+    shadow = sh >= 0.5
+    last = 0
+    while last < len(ks) and shadow[last]:
+        last += 1
+    if last < 2:
+        return None
+    in_shadow = slice(1, last) if last > 2 else slice(0, last)
+    face = (ks > ks[last - 1] + 6) & (ks <= ks[last - 1] + 14)
+    if not face.any():
+        return None
+    lv_s, lv_f = float(np.median(lv[in_shadow])), float(np.median(lv[face]))
+    rg_s, rg_f = float(np.median(rg[in_shadow])), float(np.median(rg[face]))
+    if max(lv_f, lv_s) >= _LEVEL_STEP_RATIO * max(min(lv_f, lv_s), 1e-6):
+        profile, mid = (lv - lv_s) * np.sign(lv_f - lv_s), 0.5 * abs(lv_f - lv_s)
+        at_face_level = (level - lv_s) * np.sign(lv_f - lv_s) >= mid
+        smooth = rough <= 0.5 * (rg_s + rg_f)
+        face_like, face_sure = at_face_level | smooth, at_face_level & smooth
+    else:
+        profile, mid = rg_s - rg, 0.5 * (rg_s - rg_f)
+        face_like = face_sure = rough <= 0.5 * (rg_s + rg_f)
+    start = 1 if last > 2 else 0
+    for i in range(start + 1, len(ks)):
+        if profile[i] >= mid:
+            a, b = profile[i - 1], profile[i]
+            frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
+            depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
+            vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
+            best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
+            return best_unit, best_depth, face_sure
+    return None
+
+
+def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple[np.ndarray, float]:
+    """The whole-pixel sweep near ``guess`` (x, y px) whose layer holds the most shadow votes net.
+
+    ``vote`` is +1 where a pixel looks like the shadow, -1 where it looks like the face; the
+    search covers whole-pixel vectors within 3 px and 15 degrees of the guess (a sweep in the
+    wrong direction cuts into the face along one side and leaves shadow along another).
+    """
+    length = float(np.hypot(*guess))
+    unit = guess / max(length, 1e-9)
+    best, best_score = guess, -np.inf
+    r = int(np.ceil(length + 3))
+    for dy in range(-r, r + 1):
+        for dx in range(-r, r + 1):
+            v = np.array([dx, dy], float)
+            n = float(np.hypot(dx, dy))
+            if n < 1 or abs(n - length) > 3 or float(v @ unit) < n * np.cos(np.radians(15)):
+                continue
+            score = float(vote[_sweep_layer(mask8, v)].sum())
+            if score > best_score:
+                best, best_score = v, score
+    n = float(np.hypot(*best))
+    return best / n, n
+
+
+def _line_kernel(step: np.ndarray) -> tuple[np.ndarray, tuple[int, int]]:
+    """A kernel holding the pixel segment from (0, 0) to ``step`` (x, y), and its anchor (the origin)."""
+    dx, dy = int(round(step[0])), int(round(step[1]))
+    w, h = abs(dx) + 1, abs(dy) + 1
+    kernel = np.zeros((h, w), np.uint8)
+    ax, ay = (0 if dx >= 0 else w - 1), (0 if dy >= 0 else h - 1)
+    cv2.line(kernel, (ax, ay), (ax + dx, ay + dy), 1, 1)
+    return kernel, (ax, ay)
+
+
+def _sweep_layer(mask8: np.ndarray, step: np.ndarray) -> np.ndarray:
+    """Pixels of the mask from which a step of ``step`` (px, x y) leaves it: the layer a sweep adds."""
+    kernel, anchor = _line_kernel(step)
+    return (mask8 > 0) & (cv2.erode(mask8, kernel, anchor=anchor, borderValue=0) == 0)
