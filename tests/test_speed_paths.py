@@ -9,6 +9,12 @@
   apart, dot product below -0.5, the rule of ``resolve_walls``) within reach, checked
   against a brute-force search over all pairs written here; on a part without thin walls
   the neighbour search (scipy's k-d tree) is not built at all.
+- Closed slots: the pre-test of ``closed_slots`` (bounds of the two level surfaces,
+  :mod:`scanmass.segment.dipgate`) gives the full search's result on parts with and
+  without a slot or wall too narrow for a contour, dark and bright, and skips the search
+  exactly on those without; its surface bounds hold every value of the float32 grid.
+- Table lookups and flat indices: OpenCV's lookup equals numpy's indexing, and the floor
+  division equals ``np.divmod``.
 """
 
 from __future__ import annotations
@@ -260,3 +266,113 @@ def test_convex_hull_with_duplicates_matches_shapely():
         assert len(hull) == len(want)
         first = np.lexsort((pts[:, 1], pts[:, 0]))[0]
         assert hull[0].tolist() == pts[first].tolist()  # starts at the lowest x, then lowest y
+
+
+# ---------------------------------------------------------------- closed slots' pre-test
+
+
+def _fin_plate(wall_px: float, *, fin: bool, slot: bool, dpi: float = 600) -> SynthPart:
+    """A 12 x 8 mm plate, with a fin ``wall_px`` wide standing out of it and/or a slot as wide in it."""
+    w = wall_px * 25.4 / dpi
+    top = [[11 + w / 2, 13], [11 + w / 2, 18], [11 - w / 2, 18], [11 - w / 2, 13]] if fin else []
+    outer = np.array([[5, 5], [17, 5], [17, 13], *top, [5, 13]], float)
+    return SynthPart(outer, [rectangle(7.0, 7.0, w, 4.0)] if slot else [])
+
+
+def _closed_slots_both_ways(monkeypatch, img, rings):
+    """closed_slots with its pre-test, and with the pre-test forced to run the full search."""
+    seen: list[bool] = []
+    gate = thin.dips_possible
+
+    def recording(*args, **kwargs):
+        seen.append(gate(*args, **kwargs))
+        return seen[-1]
+
+    monkeypatch.setattr(thin, "dips_possible", recording)
+    gated = thin.closed_slots(img, rings)
+    monkeypatch.setattr(thin, "dips_possible", lambda *args, **kwargs: True)
+    full = thin.closed_slots(img, rings)
+    return gated, full, seen
+
+
+@pytest.mark.parametrize(
+    "what, part, dark, finds",
+    [
+        ("slot and wall", _fin_plate(1.2, fin=True, slot=True), True, ("narrow slot", "thin wall")),
+        ("slot only", _fin_plate(1.2, fin=False, slot=True), True, ("narrow slot",)),
+        ("wall only", _fin_plate(1.2, fin=True, slot=False), True, ("thin wall",)),
+        ("wall only, bright part", _fin_plate(1.2, fin=True, slot=False), False, ("thin wall",)),
+        ("slot only, bright part", _fin_plate(1.2, fin=False, slot=True), False, ("narrow slot",)),
+        ("plain plate", _fin_plate(1.2, fin=False, slot=False), True, ()),
+        ("plain plate, bright part", _fin_plate(1.2, fin=False, slot=False), False, ()),
+        ("disc with a hole", SynthPart(circle(11, 11, 6), [circle(11, 11, 2)]), True, ()),
+    ],
+)
+def test_dip_pre_test_skips_only_parts_without_dips(monkeypatch, what, part, dark, finds):
+    # the full search of closed_slots (pre-test forced to pass) is the reference: with the
+    # pre-test the result is the same, a slot or wall too narrow for any contour (closed
+    # form: a 1.2 px strip under a 1.33 px blur peaks at erf(1.2 / (2 sqrt 2 1.33)) = 0.34
+    # of the contrast) is still found, and a part without one skips the surfaces' work
+    levels = {"background": 0.85, "foreground": 0.08} if dark else {"background": 0.08, "foreground": 0.85}
+    scan = render_scan(
+        [part], dpi=600, size_mm=(22, 23), blur_px=1.33, noise=0.004, illumination=(0.05, -0.03), seed=3, **levels
+    )
+    img = load_image(scan.image, dpi=600)
+    found = segment(img, min_area_px=50).parts
+    assert len(found) == 1, what
+    (pts, notes), (pts_full, notes_full), seen = _closed_slots_both_ways(monkeypatch, img, found[0])
+    np.testing.assert_array_equal(pts, pts_full)
+    assert notes == notes_full
+    assert seen == [bool(finds)], (what, seen)  # skipped exactly when there is nothing to find
+    for kind in finds:
+        assert any(kind in n for n in notes), (what, notes)
+
+
+def test_surface_bounds_hold_every_value_of_the_grid():
+    from scanmass.segment.dipgate import MARGIN_LINEAR, surface_bounds
+
+    rng = np.random.default_rng(7)
+    shape = (731, 1217)
+    for trial in range(20):
+        coef = rng.normal(0.0, [0.3, 0.2, 0.2, 0.1, 0.1 if trial % 2 else 0.0, 0.1])  # odd trials: a cross term
+        coef[0] += 0.5
+        scale = float(max(shape))
+
+        def fit(r, c, coef=coef):
+            x, y = np.asarray(c) / scale, np.asarray(r) / scale
+            return coef[0] + coef[1] * x + coef[2] * y + coef[3] * x * x + coef[4] * x * y + coef[5] * y * y
+
+        grid = thin._on_grid(fit, shape)  # the float32 surface closed_slots normalises with
+        lo, hi = surface_bounds(fit, shape)
+        assert lo - MARGIN_LINEAR < float(grid.min()) and float(grid.max()) < hi + MARGIN_LINEAR
+        if coef[4] == 0.0:  # separable: the bounds are the grid's own extremes (float32 rounding)
+            assert float(grid.min()) == pytest.approx(lo, abs=1e-5)
+            assert float(grid.max()) == pytest.approx(hi, abs=1e-5)
+
+
+@pytest.mark.parametrize("dtype, levels", [(np.uint8, 256), (np.uint16, 65536)])
+def test_table_lookup_equals_numpy_indexing(dtype, levels):
+    from scanmass.load.decode import lookup
+
+    rng = np.random.default_rng(1)
+    codes = rng.integers(0, levels, (301, 457)).astype(dtype)
+    for table in (rng.random(levels).astype(np.float32), rng.random(levels), (np.arange(levels) % 7 == 0)):
+        crop = codes[13:250, 21:400]  # a view with the parent's row stride
+        got = lookup(table.astype(np.uint8) if table.dtype == bool else table, crop)
+        want = (table.astype(np.uint8) if table.dtype == bool else table)[crop]  # numpy's indexing: the reference
+        assert got.dtype == want.dtype
+        np.testing.assert_array_equal(got, want)
+
+
+def test_flat_indices_to_rows_and_columns_equal_divmod():
+    from scanmass.numeric import flat_rc, nonzero_rc
+
+    rng = np.random.default_rng(4)
+    mask = rng.random((517, 1033)) < 0.3
+    flat = np.flatnonzero(mask)
+    rows, cols = flat_rc(flat, mask.shape[1])
+    want = np.divmod(flat, mask.shape[1])  # numpy's divmod: the reference
+    np.testing.assert_array_equal(rows, want[0])
+    np.testing.assert_array_equal(cols, want[1])
+    for got, ref in zip(nonzero_rc(mask), np.nonzero(mask)):
+        np.testing.assert_array_equal(got, ref)

@@ -15,6 +15,7 @@ import cv2
 import numpy as np
 
 from scanmass.geometry import signed_area
+from scanmass.load.decode import lookup
 from scanmass.numeric import nonzero_rc
 
 __all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "solidity", "NECK_RATIO", "SEAM_LEVEL"]
@@ -338,14 +339,17 @@ def split_touching(
         fg, bg = _lut_median(codes, inner, lut), _lut_median(codes, outside, lut)
     if abs(fg - bg) < 1e-4 or (fg < bg) != dark_part:
         return None
-    norm = (linear - bg) / (fg - bg)
+    # the same values either way: the table holds each code's normalised level
+    norm = (linear - bg) / (fg - bg) if levels is None else lookup((levels[1] - bg) / (fg - bg), levels[0])
     seam_level = min(SEAM_LEVEL, 1.0 - 5.0 * max(noise_rel, 0.0))
     solid = (core.view(bool) & (cv2.GaussianBlur(norm.astype(np.float32, copy=False), (0, 0), 0.7) > seam_level)).view(
         np.uint8
     )
     count, comp = cv2.connectedComponents(solid, connectivity=4)
-    sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
-    big = [k for k in range(1, count) if sizes[k] >= MIN_LOBE_SHARE * area]
+    big: list[int] = []
+    if count >= 3:  # two pieces or more (label 0 is the rest)
+        sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
+        big = [k for k in range(1, count) if sizes[k] >= MIN_LOBE_SHARE * area]
     markers = np.zeros(shape, np.int32)
     if len(big) >= 2:
         big.sort(key=lambda k: -sizes[k])
