@@ -376,3 +376,31 @@ def test_flat_indices_to_rows_and_columns_equal_divmod():
     np.testing.assert_array_equal(cols, want[1])
     for got, ref in zip(nonzero_rc(mask), np.nonzero(mask)):
         np.testing.assert_array_equal(got, ref)
+
+
+# ------------------------------------------------------------------------- BLAS threads
+
+
+def test_measure_runs_its_linear_algebra_on_one_blas_thread(monkeypatch):
+    threadpoolctl = pytest.importorskip("threadpoolctl")
+    from scanmass.pipeline import flow
+
+    def blas_threads() -> list[int]:
+        return [i["num_threads"] for i in threadpoolctl.threadpool_info() if i["user_api"] == "blas"]
+
+    before = blas_threads()
+    inside: list[list[int]] = []
+    real = flow.measure_scan
+
+    def spying(*args, **kwargs):
+        inside.append(blas_threads())
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(flow, "measure_scan", spying)
+    img = np.full((200, 300), 230, np.uint8)
+    img[50:150, 100:200] = 20
+    m = flow.measure(img, dpi=254)
+    # a 100 x 100 px square at 254 dpi: 10 x 10 mm (exact arithmetic)
+    assert m.parts[0].area_mm2 == pytest.approx(100.0, rel=1e-3)
+    assert inside and inside[0] and all(n == 1 for n in inside[0]), inside
+    assert blas_threads() == before  # restored
