@@ -11,7 +11,7 @@ import math
 
 import numpy as np
 
-__all__ = ["nonzero_rc", "flat_rc", "combine", "otsu_threshold"]
+__all__ = ["nonzero_rc", "nonzero_every", "flat_rc", "combine", "otsu_threshold"]
 
 
 def combine(*terms: float) -> float:
@@ -80,6 +80,36 @@ def nonzero_rc(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     ([0, 1, 1], [1, 0, 1])
     """
     return flat_rc(np.flatnonzero(mask), mask.shape[1])
+
+
+def nonzero_every(mask: np.ndarray, step: int, rows_per_block: int = 256) -> tuple[np.ndarray, np.ndarray]:
+    """Every ``step``-th true pixel of a 2-D mask in row-major order: ``nonzero_rc(mask)`` sliced ``[::step]``.
+
+    The same arrays, found a block of rows at a time, so that the indices of every true
+    pixel (8 bytes each) are never held at once.
+
+    Examples
+    --------
+    >>> m = np.array([[1, 1, 0], [1, 1, 1], [0, 1, 1]], bool)
+    >>> [a.tolist() for a in nonzero_every(m, 3, rows_per_block=1)]
+    [[0, 1, 2], [0, 1, 2]]
+    >>> [a[::3].tolist() for a in nonzero_rc(m)]
+    [[0, 1, 2], [0, 1, 2]]
+    """
+    width = mask.shape[1]
+    rows_out: list[np.ndarray] = []
+    cols_out: list[np.ndarray] = []
+    seen = 0  # true pixels before the block
+    for start in range(0, mask.shape[0], rows_per_block):
+        flat = np.flatnonzero(mask[start : start + rows_per_block])
+        picked = flat[(-seen) % step :: step]
+        seen += flat.size
+        r, c = flat_rc(picked, width)
+        rows_out.append(r + start)
+        cols_out.append(c)
+    if not rows_out:
+        return np.zeros(0, np.intp), np.zeros(0, np.intp)
+    return np.concatenate(rows_out), np.concatenate(cols_out)
 
 
 def flat_rc(flat: np.ndarray, width: int) -> tuple[np.ndarray, np.ndarray]:

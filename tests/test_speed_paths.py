@@ -404,3 +404,17 @@ def test_measure_runs_its_linear_algebra_on_one_blas_thread(monkeypatch):
     assert m.parts[0].area_mm2 == pytest.approx(100.0, rel=1e-3)
     assert inside and inside[0] and all(n == 1 for n in inside[0]), inside
     assert blas_threads() == before  # restored
+
+
+@pytest.mark.parametrize("step", [1, 2, 7, 100, 10_000])
+@pytest.mark.parametrize("rows_per_block", [1, 5, 256])
+def test_every_nth_true_pixel_in_blocks_equals_slicing_all(step, rows_per_block):
+    from scanmass.numeric import nonzero_every
+
+    rng = np.random.default_rng(step + rows_per_block)
+    mask = rng.random((313, 207)) < 0.4
+    mask[100:140] = False  # empty rows inside a block and across blocks
+    want = [a[::step] for a in np.nonzero(mask)]  # numpy's nonzero, sliced: the reference
+    got = nonzero_every(mask, step, rows_per_block=rows_per_block)
+    for g, w in zip(got, want):
+        np.testing.assert_array_equal(g, w)

@@ -204,7 +204,7 @@ def _touch_splits(
         codes = image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]
         out.append(
             split_touching(
-                lookup(lut, codes),
+                None,  # the codes and their table below: the crop is looked up once, normalised
                 (int(x0), int(y0)),
                 rings.outer_px,
                 list(rings.holes_px),
