@@ -418,3 +418,16 @@ def test_every_nth_true_pixel_in_blocks_equals_slicing_all(step, rows_per_block)
     got = nonzero_every(mask, step, rows_per_block=rows_per_block)
     for g, w in zip(got, want):
         np.testing.assert_array_equal(g, w)
+
+
+def test_edge_sigma_alone_equals_the_models():
+    from scanmass.uncertainty import build_edge_model, edge_sigma_mm
+
+    rng = np.random.default_rng(5)
+    t = np.linspace(0, 2 * np.pi, 90, endpoint=False)
+    outer = np.column_stack([20 + 9 * np.cos(t), 20 + 6 * np.sin(t)])[::-1]  # clockwise: reversed inside
+    hole = np.column_stack([20 + 2 * np.cos(t[:40]), 20 + 2 * np.sin(t[:40])])  # counter-clockwise: reversed
+    sigma = [rng.random(len(outer)), rng.random(len(hole))]
+    scales = [0.08 + 0.01 * rng.random(len(outer)), np.full(len(hole), 0.085)]
+    model = build_edge_model(outer, [hole], sigma, scales, 0.0)  # the full model: the reference
+    np.testing.assert_array_equal(edge_sigma_mm(outer, [hole], sigma, scales), model.sigma_n_mm)
