@@ -431,3 +431,37 @@ def test_edge_sigma_alone_equals_the_models():
     scales = [0.08 + 0.01 * rng.random(len(outer)), np.full(len(hole), 0.085)]
     model = build_edge_model(outer, [hole], sigma, scales, 0.0)  # the full model: the reference
     np.testing.assert_array_equal(edge_sigma_mm(outer, [hole], sigma, scales), model.sigma_n_mm)
+
+
+def test_dip_pre_test_runs_the_search_whenever_the_bounds_cannot_decide():
+    from scanmass.segment.dipgate import dips_possible
+
+    table = (np.arange(256) / 255.0).astype(np.float32)  # linear codes: code / 255
+    codes = np.full((40, 50), 204, np.uint8)  # background 0.8
+    codes[:, :25] = 77  # part 0.302
+    part = np.zeros(codes.shape, bool)
+    part[:, :25] = True
+    regions = (part, ~part)
+    none = np.zeros(codes.shape, bool)
+
+    def flat(level):
+        return lambda r, c: np.full(np.shape(r), level)
+
+    # levels 0.3 (part) and 0.8 (background): the part's pixels are 0.004 of the contrast
+    # short of its level, the background's at it; no pixel dips by a share of 0.2 ...
+    assert not dips_possible(codes, table, regions, flat(0.8), flat(0.3), 0.2)
+    # ... but the part's pixels do by a share of 0.003
+    assert dips_possible(codes, table, regions, flat(0.8), flat(0.3), 0.003)
+    # the part's pixels searched outside it: ridges of the full share (a wall)
+    assert dips_possible(codes, table, (none, part), flat(0.8), flat(0.3), 0.2)
+    # a limit outside (0, 1), levels not apart, or a part level that crosses the background
+    # somewhere in the crop: the full search runs
+    assert dips_possible(codes, table, (none, none), flat(0.8), flat(0.3), 1.2)
+    assert dips_possible(codes, table, (none, none), flat(0.8), flat(0.8), 0.2)
+
+    def tilted(r, c):
+        return 0.3 + 0.02 * np.asarray(c, float)  # 0.3 to 1.28 across the 50 columns
+
+    assert dips_possible(codes, table, (none, none), flat(0.8), tilted, 0.2)
+    # nothing searched: nothing to find
+    assert not dips_possible(codes, table, (none, none), flat(0.8), flat(0.3), 0.003)
