@@ -32,8 +32,9 @@ from scanmass.load.decode import lookup
 
 __all__ = ["surface_bounds", "dips_possible"]
 
-#: Margin (linear light) on every bound: far above the float32 rounding of the surfaces
-#: and of the normalised values (~1e-6), so that the test stays a superset.
+#: Margin (linear light) on every threshold: far above the float32 rounding of the
+#: normalised values (~1e-7; the surfaces' own rounding is in their bounds), so that the
+#: test stays a superset.
 MARGIN_LINEAR = 1e-4
 
 
@@ -41,7 +42,9 @@ def surface_bounds(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> tu
     """Lower and upper bounds of a quadratic surface (function of row, col) over every pixel of ``shape``.
 
     ``f(r, c) = f(r, 0) + (f(0, c) - f(0, 0)) + k r c``: each term's extremes over the
-    grid, added (the bilinear term's lie at the corners).
+    grid, added (the bilinear term's lie at the corners), and widened by a few float32
+    rounding steps of the terms' sizes, so that they also hold the float32 grid that
+    :func:`scanmass.segment.thin._on_grid` builds from the same terms.
 
     Examples
     --------
@@ -57,8 +60,10 @@ def surface_bounds(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> tu
     along_rows = fit(rows, np.zeros(len(rows)))
     along_cols = fit(np.zeros(len(cols)), cols) - float(at[0])
     corner = k * (shape[0] - 1) * (shape[1] - 1)
-    lo = float(along_rows.min() + along_cols.min() + min(0.0, corner))
-    hi = float(along_rows.max() + along_cols.max() + max(0.0, corner))
+    size = float(np.abs(along_rows).max() + np.abs(along_cols).max() + abs(corner))
+    slack = 8.0 * float(np.finfo(np.float32).eps) * size
+    lo = float(along_rows.min() + along_cols.min() + min(0.0, corner)) - slack
+    hi = float(along_rows.max() + along_cols.max() + max(0.0, corner)) + slack
     return lo, hi
 
 
