@@ -100,6 +100,7 @@ from scanmass.section import boundary_influence
 __all__ = [
     "EdgeModel",
     "build_edge_model",
+    "edge_sigma_mm",
     "combine",
     "figure_weights",
     "interpolation_residual_px",
@@ -143,16 +144,7 @@ def build_edge_model(
     in its orientation (outer counter-clockwise, holes clockwise), its per-vertex values
     with it, so that the vertices keep their order there.
     """
-    rings, sig, corr = [], [], []
-    for i, ring in enumerate([outer_mm] + list(holes_mm)):
-        ring = np.asarray(ring, float)
-        s_px = np.broadcast_to(np.asarray(sigma_n_px[i], float), len(ring))
-        scale = np.broadcast_to(np.asarray(mm_per_px[i], float), len(ring))
-        if (signed_area(ring) > 0) != (i == 0):
-            ring, s_px, scale = ring[::-1], s_px[::-1], scale[::-1]
-        rings.append(ring)
-        sig.append(s_px * scale)
-        corr.append(CORRELATION_PX * scale)
+    rings, sig, corr = _oriented(outer_mm, holes_mm, sigma_n_px, mm_per_px)
     bi = boundary_influence(rings[0], rings[1:])
     return EdgeModel(
         bi["points"],
@@ -163,6 +155,34 @@ def build_edge_model(
         np.concatenate(corr),
         float(offset_mm),
     )
+
+
+def edge_sigma_mm(
+    outer_mm: np.ndarray, holes_mm: list[np.ndarray], sigma_n_px: list[np.ndarray], mm_per_px: list[np.ndarray]
+) -> np.ndarray:
+    """``build_edge_model(...).sigma_n_mm`` alone: per-vertex displacements in mm, in the model's vertex order.
+
+    For a second set of per-vertex values on rings whose model is already built (the
+    same values, without the rings' normals and lengths again).
+    """
+    return np.concatenate(_oriented(outer_mm, holes_mm, sigma_n_px, mm_per_px)[1])
+
+
+def _oriented(
+    outer_mm: np.ndarray, holes_mm: list[np.ndarray], sigma_n_px: list[np.ndarray], mm_per_px: list[np.ndarray]
+) -> tuple[list[np.ndarray], list[np.ndarray], list[np.ndarray]]:
+    """Each ring in its orientation (outer counter-clockwise, holes clockwise), with its per-vertex sigma and correlation (mm)."""
+    rings, sig, corr = [], [], []
+    for i, ring in enumerate([outer_mm] + list(holes_mm)):
+        ring = np.asarray(ring, float)
+        s_px = np.broadcast_to(np.asarray(sigma_n_px[i], float), len(ring))
+        scale = np.broadcast_to(np.asarray(mm_per_px[i], float), len(ring))
+        if (signed_area(ring) > 0) != (i == 0):
+            ring, s_px, scale = ring[::-1], s_px[::-1], scale[::-1]
+        rings.append(ring)
+        sig.append(s_px * scale)
+        corr.append(CORRELATION_PX * scale)
+    return rings, sig, corr
 
 
 def figure_weights(

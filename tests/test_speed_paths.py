@@ -9,6 +9,12 @@
   apart, dot product below -0.5, the rule of ``resolve_walls``) within reach, checked
   against a brute-force search over all pairs written here; on a part without thin walls
   the neighbour search (scipy's k-d tree) is not built at all.
+- Closed slots: the pre-test of ``closed_slots`` (bounds of the two level surfaces,
+  :mod:`scanmass.segment.dipgate`) gives the full search's result on parts with and
+  without a slot or wall too narrow for a contour, dark and bright, and skips the search
+  exactly on those without; its surface bounds hold every value of the float32 grid.
+- Table lookups and flat indices: OpenCV's lookup equals numpy's indexing, and the floor
+  division equals ``np.divmod``.
 """
 
 from __future__ import annotations
@@ -260,3 +266,204 @@ def test_convex_hull_with_duplicates_matches_shapely():
         assert len(hull) == len(want)
         first = np.lexsort((pts[:, 1], pts[:, 0]))[0]
         assert hull[0].tolist() == pts[first].tolist()  # starts at the lowest x, then lowest y
+
+
+# ---------------------------------------------------------------- closed slots' pre-test
+
+
+def _fin_plate(wall_px: float, *, fin: bool, slot: bool, dpi: float = 600) -> SynthPart:
+    """A 12 x 8 mm plate, with a fin ``wall_px`` wide standing out of it and/or a slot as wide in it."""
+    w = wall_px * 25.4 / dpi
+    top = [[11 + w / 2, 13], [11 + w / 2, 18], [11 - w / 2, 18], [11 - w / 2, 13]] if fin else []
+    outer = np.array([[5, 5], [17, 5], [17, 13], *top, [5, 13]], float)
+    return SynthPart(outer, [rectangle(7.0, 7.0, w, 4.0)] if slot else [])
+
+
+def _closed_slots_both_ways(monkeypatch, img, rings):
+    """closed_slots with its pre-test, and with the pre-test forced to run the full search."""
+    seen: list[bool] = []
+    gate = thin.dips_possible
+
+    def recording(*args, **kwargs):
+        seen.append(gate(*args, **kwargs))
+        return seen[-1]
+
+    monkeypatch.setattr(thin, "dips_possible", recording)
+    gated = thin.closed_slots(img, rings)
+    monkeypatch.setattr(thin, "dips_possible", lambda *args, **kwargs: True)
+    full = thin.closed_slots(img, rings)
+    return gated, full, seen
+
+
+@pytest.mark.parametrize(
+    "what, part, dark, finds",
+    [
+        ("slot and wall", _fin_plate(1.2, fin=True, slot=True), True, ("narrow slot", "thin wall")),
+        ("slot only", _fin_plate(1.2, fin=False, slot=True), True, ("narrow slot",)),
+        ("wall only", _fin_plate(1.2, fin=True, slot=False), True, ("thin wall",)),
+        ("wall only, bright part", _fin_plate(1.2, fin=True, slot=False), False, ("thin wall",)),
+        ("slot only, bright part", _fin_plate(1.2, fin=False, slot=True), False, ("narrow slot",)),
+        ("plain plate", _fin_plate(1.2, fin=False, slot=False), True, ()),
+        ("plain plate, bright part", _fin_plate(1.2, fin=False, slot=False), False, ()),
+        ("disc with a hole", SynthPart(circle(11, 11, 6), [circle(11, 11, 2)]), True, ()),
+    ],
+)
+def test_dip_pre_test_skips_only_parts_without_dips(monkeypatch, what, part, dark, finds):
+    # the full search of closed_slots (pre-test forced to pass) is the reference: with the
+    # pre-test the result is the same, a slot or wall too narrow for any contour (closed
+    # form: a 1.2 px strip under a 1.33 px blur peaks at erf(1.2 / (2 sqrt 2 1.33)) = 0.34
+    # of the contrast) is still found, and a part without one skips the surfaces' work
+    levels = {"background": 0.85, "foreground": 0.08} if dark else {"background": 0.08, "foreground": 0.85}
+    scan = render_scan(
+        [part], dpi=600, size_mm=(22, 23), blur_px=1.33, noise=0.004, illumination=(0.05, -0.03), seed=3, **levels
+    )
+    img = load_image(scan.image, dpi=600)
+    found = segment(img, min_area_px=50).parts
+    assert len(found) == 1, what
+    (pts, notes), (pts_full, notes_full), seen = _closed_slots_both_ways(monkeypatch, img, found[0])
+    np.testing.assert_array_equal(pts, pts_full)
+    assert notes == notes_full
+    assert seen == [bool(finds)], (what, seen)  # skipped exactly when there is nothing to find
+    for kind in finds:
+        assert any(kind in n for n in notes), (what, notes)
+
+
+def test_surface_bounds_hold_every_value_of_the_grid():
+    from scanmass.segment.dipgate import surface_bounds
+
+    rng = np.random.default_rng(7)
+    shape = (731, 1217)
+    for trial in range(20):
+        coef = rng.normal(0.0, [0.3, 0.2, 0.2, 0.1, 0.1 if trial % 2 else 0.0, 0.1])  # odd trials: a cross term
+        coef[0] += 0.5
+        coef[1:] *= 10.0 ** (trial % 4)  # up to large terms that cancel (a wild extrapolation)
+        scale = float(max(shape))
+
+        def fit(r, c, coef=coef):
+            x, y = np.asarray(c) / scale, np.asarray(r) / scale
+            return coef[0] + coef[1] * x + coef[2] * y + coef[3] * x * x + coef[4] * x * y + coef[5] * y * y
+
+        grid = thin._on_grid(fit, shape)  # the float32 surface closed_slots normalises with
+        lo, hi = surface_bounds(fit, shape)
+        assert lo <= float(grid.min()) and float(grid.max()) <= hi  # the float32 grid too: no margin needed
+        if coef[4] == 0.0:  # separable: the bounds are the grid's own extremes (float32 rounding)
+            tol = 1e-5 * max(1.0, float(np.abs(grid).max()))
+            assert float(grid.min()) == pytest.approx(lo, abs=tol)
+            assert float(grid.max()) == pytest.approx(hi, abs=tol)
+
+
+@pytest.mark.parametrize("dtype, levels", [(np.uint8, 256), (np.uint16, 65536)])
+def test_table_lookup_equals_numpy_indexing(dtype, levels):
+    from scanmass.load.decode import lookup
+
+    rng = np.random.default_rng(1)
+    codes = rng.integers(0, levels, (301, 457)).astype(dtype)
+    for table in (rng.random(levels).astype(np.float32), rng.random(levels), (np.arange(levels) % 7 == 0)):
+        crop = codes[13:250, 21:400]  # a view with the parent's row stride
+        got = lookup(table.astype(np.uint8) if table.dtype == bool else table, crop)
+        want = (table.astype(np.uint8) if table.dtype == bool else table)[crop]  # numpy's indexing: the reference
+        assert got.dtype == want.dtype
+        np.testing.assert_array_equal(got, want)
+
+
+def test_flat_indices_to_rows_and_columns_equal_divmod():
+    from scanmass.numeric import flat_rc, nonzero_rc
+
+    rng = np.random.default_rng(4)
+    mask = rng.random((517, 1033)) < 0.3
+    flat = np.flatnonzero(mask)
+    rows, cols = flat_rc(flat, mask.shape[1])
+    want = np.divmod(flat, mask.shape[1])  # numpy's divmod: the reference
+    np.testing.assert_array_equal(rows, want[0])
+    np.testing.assert_array_equal(cols, want[1])
+    for got, ref in zip(nonzero_rc(mask), np.nonzero(mask)):
+        np.testing.assert_array_equal(got, ref)
+
+
+# ------------------------------------------------------------------------- BLAS threads
+
+
+def test_measure_runs_its_linear_algebra_on_one_blas_thread(monkeypatch):
+    threadpoolctl = pytest.importorskip("threadpoolctl")
+    from scanmass.pipeline import flow
+
+    def blas_threads() -> list[int]:
+        return [i["num_threads"] for i in threadpoolctl.threadpool_info() if i["user_api"] == "blas"]
+
+    before = blas_threads()
+    inside: list[list[int]] = []
+    real = flow.measure_scan
+
+    def spying(*args, **kwargs):
+        inside.append(blas_threads())
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(flow, "measure_scan", spying)
+    img = np.full((200, 300), 230, np.uint8)
+    img[50:150, 100:200] = 20
+    m = flow.measure(img, dpi=254)
+    # a 100 x 100 px square at 254 dpi: 10 x 10 mm (exact arithmetic)
+    assert m.parts[0].area_mm2 == pytest.approx(100.0, rel=1e-3)
+    assert inside and inside[0] and all(n == 1 for n in inside[0]), inside
+    assert blas_threads() == before  # restored
+
+
+@pytest.mark.parametrize("step", [1, 2, 7, 100, 10_000])
+@pytest.mark.parametrize("rows_per_block", [1, 5, 256])
+def test_every_nth_true_pixel_in_blocks_equals_slicing_all(step, rows_per_block):
+    from scanmass.numeric import nonzero_every
+
+    rng = np.random.default_rng(step + rows_per_block)
+    mask = rng.random((313, 207)) < 0.4
+    mask[100:140] = False  # empty rows inside a block and across blocks
+    want = [a[::step] for a in np.nonzero(mask)]  # numpy's nonzero, sliced: the reference
+    got = nonzero_every(mask, step, rows_per_block=rows_per_block)
+    for g, w in zip(got, want):
+        np.testing.assert_array_equal(g, w)
+
+
+def test_edge_sigma_alone_equals_the_models():
+    from scanmass.uncertainty import build_edge_model, edge_sigma_mm
+
+    rng = np.random.default_rng(5)
+    t = np.linspace(0, 2 * np.pi, 90, endpoint=False)
+    outer = np.column_stack([20 + 9 * np.cos(t), 20 + 6 * np.sin(t)])[::-1]  # clockwise: reversed inside
+    hole = np.column_stack([20 + 2 * np.cos(t[:40]), 20 + 2 * np.sin(t[:40])])  # counter-clockwise: reversed
+    sigma = [rng.random(len(outer)), rng.random(len(hole))]
+    scales = [0.08 + 0.01 * rng.random(len(outer)), np.full(len(hole), 0.085)]
+    model = build_edge_model(outer, [hole], sigma, scales, 0.0)  # the full model: the reference
+    np.testing.assert_array_equal(edge_sigma_mm(outer, [hole], sigma, scales), model.sigma_n_mm)
+
+
+def test_dip_pre_test_runs_the_search_whenever_the_bounds_cannot_decide():
+    from scanmass.segment.dipgate import dips_possible
+
+    table = (np.arange(256) / 255.0).astype(np.float32)  # linear codes: code / 255
+    codes = np.full((40, 50), 204, np.uint8)  # background 0.8
+    codes[:, :25] = 77  # part 0.302
+    part = np.zeros(codes.shape, bool)
+    part[:, :25] = True
+    regions = (part, ~part)
+    none = np.zeros(codes.shape, bool)
+
+    def flat(level):
+        return lambda r, c: np.full(np.shape(r), level)
+
+    # levels 0.3 (part) and 0.8 (background): the part's pixels are 0.004 of the contrast
+    # short of its level, the background's at it; no pixel dips by a share of 0.2 ...
+    assert not dips_possible(codes, table, regions, flat(0.8), flat(0.3), 0.2)
+    # ... but the part's pixels do by a share of 0.003
+    assert dips_possible(codes, table, regions, flat(0.8), flat(0.3), 0.003)
+    # the part's pixels searched outside it: ridges of the full share (a wall)
+    assert dips_possible(codes, table, (none, part), flat(0.8), flat(0.3), 0.2)
+    # a limit outside (0, 1), levels not apart, or a part level that crosses the background
+    # somewhere in the crop: the full search runs
+    assert dips_possible(codes, table, (none, none), flat(0.8), flat(0.3), 1.2)
+    assert dips_possible(codes, table, (none, none), flat(0.8), flat(0.8), 0.2)
+
+    def tilted(r, c):
+        return 0.3 + 0.02 * np.asarray(c, float)  # 0.3 to 1.28 across the 50 columns
+
+    assert dips_possible(codes, table, (none, none), flat(0.8), tilted, 0.2)
+    # nothing searched: nothing to find
+    assert not dips_possible(codes, table, (none, none), flat(0.8), flat(0.3), 0.003)

@@ -6,6 +6,7 @@ commands and the demo call it.
 
 from __future__ import annotations
 
+import contextlib
 import math
 import os
 from dataclasses import replace
@@ -112,7 +113,34 @@ def measure(
 def measure_loaded(
     source: str | os.PathLike | np.ndarray, options: MeasureOptions | None = None, **overrides: Any
 ) -> tuple[Measurement, LoadedImage]:
-    """Like :func:`measure`, also returning the loaded image (for overlays)."""
+    """Like :func:`measure`, also returning the loaded image (for overlays).
+
+    The linear algebra runs on one BLAS thread (:func:`one_blas_thread`).
+    """
+    with one_blas_thread():
+        return _measure_loaded(source, options, **overrides)
+
+
+def one_blas_thread() -> contextlib.AbstractContextManager[Any]:
+    """A context in which numpy's BLAS/LAPACK use one thread (threadpoolctl), restored on exit.
+
+    The least-squares fits and QR factorisations here are tall and narrow (thousands of
+    rows, six columns): a second BLAS thread gains nothing on them, and on a loaded
+    machine (other processes, or ``batch``'s workers, each with its own BLAS threads) the
+    threads' hand-offs cost more than the work (issue 16: a warm measure 1.70 s with the
+    default two threads, 1.18 s with one, under a load average of 2.5). The figures are
+    the same either way (``benchmarks/dump_results.py``: 58 result documents identical).
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # not installed: the default threads, the same figures
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
+
+
+def _measure_loaded(
+    source: str | os.PathLike | np.ndarray, options: MeasureOptions | None = None, **overrides: Any
+) -> tuple[Measurement, LoadedImage]:
     opts = resolve_options(options, overrides)
     path = None if isinstance(source, np.ndarray) else os.fspath(source)
     opts.check(path)

@@ -24,6 +24,7 @@ from scanmass.segment.thin import (
 from scanmass.uncertainty import (
     build_edge_model,
     combine,
+    edge_sigma_mm,
     figure_weights,
     interpolation_residual_px,
     model_uncertainty,
@@ -241,19 +242,19 @@ def measure_part(
         np.sqrt(max((q.edge_rel / math.sqrt(12.0)) ** 2 - part.noise_rel**2, 0.0)) / np.maximum(g, 0.05)
         for g in part.gradients_px
     ]
-    q_model = build_edge_model(outer_mm, holes_mm, q_px, scales, 0.0)
+    q_sigma_mm = edge_sigma_mm(outer_mm, holes_mm, q_px, scales)
     corr_phase = phase_correlation_px(model.normals)
     px_mm = model.corr_mm  # the model's 1 px correlation length in mm = local mm per px
     density_px = resid_px**2 * corr_phase  # px^2 x px: the phase-correlated interpolation residual
     if residual_px is not None:
         # the measured residual holds the interpolation error of this image's own edges
         # (and JPEG's blocks, corners): it replaces the modelled one
-        measured = build_edge_model(outer_mm, holes_mm, residual_px, [np.ones(len(r)) for r in residual_px], 0.0)
-        density_px = measured.sigma_n_mm**2 * RESIDUAL_WINDOW_PX
-    sigma_m_mm = np.sqrt(density_px * px_mm**2 + q_model.sigma_n_mm**2)
+        measured_mm = edge_sigma_mm(outer_mm, holes_mm, residual_px, [np.ones(len(r)) for r in residual_px])
+        density_px = measured_mm**2 * RESIDUAL_WINDOW_PX
+    sigma_m_mm = np.sqrt(density_px * px_mm**2 + q_sigma_mm**2)
     wall_mm = None
     if wall_u_px is not None and any(np.any(np.asarray(w) > 0) for w in wall_u_px):
-        wall_mm = build_edge_model(outer_mm, holes_mm, wall_u_px, scales, 0.0).sigma_n_mm
+        wall_mm = edge_sigma_mm(outer_mm, holes_mm, wall_u_px, scales)
     model_u = model_uncertainty(model, weights, sigma_m_mm=sigma_m_mm, corr_m_mm=px_mm, wall_u_mm=wall_mm)
     if closed_mm is not None and len(closed_mm):
         # unresolved: the whole of the slot's missing material is the 1-sigma term

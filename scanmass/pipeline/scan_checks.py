@@ -13,7 +13,7 @@ import cv2
 import numpy as np
 
 from scanmass.geometry import offset_ring
-from scanmass.load.decode import LoadedImage, encoding_lut
+from scanmass.load.decode import LoadedImage, encoding_lut, lookup
 from scanmass.mapping import MappedPart
 from scanmass.measurement import Part
 from scanmass.pipeline.part_terms import (
@@ -61,7 +61,7 @@ def _scan_faces(
     for rings in parts:
         x0, y0 = (np.floor(rings.outer_px.min(axis=0)).astype(int) - 16).clip(0)
         x1, y1 = np.ceil(rings.outer_px.max(axis=0)).astype(int) + 17
-        crop = lut[image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]]
+        crop = lookup(lut, image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)])
         noise = abs(rings.noise_rel * rings.contrast) if math.isfinite(rings.noise_rel) else 0.0
         face = scan_face(
             crop,
@@ -204,7 +204,7 @@ def _touch_splits(
         codes = image.grey[y0 : min(y1, h_px), x0 : min(x1, w_px)]
         out.append(
             split_touching(
-                lut[codes],
+                None,  # the codes and their table below: the crop is looked up once, normalised
                 (int(x0), int(y0)),
                 rings.outer_px,
                 list(rings.holes_px),

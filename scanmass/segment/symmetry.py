@@ -24,7 +24,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-from scanmass.load.decode import LoadedImage
+from scanmass.load.decode import LoadedImage, lookup
 from scanmass.segment.rings import PartRings
 from scanmass.segment.thin import _crossings
 
@@ -84,7 +84,7 @@ def _profiles(
     pad = int(math.ceil(a + 3))
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
-    lin = table[image.grey[r0:r1, c0:c1]].astype(np.float32)
+    lin = lookup(table, image.grey[r0:r1, c0:c1]).astype(np.float32, copy=False)
     # s runs from the background (outside) towards the part
     xy = pts[:, None, :] - s[None, :, None] * normals[:, None, :] - np.array([c0, r0], float)
     prof = cv2.remap(

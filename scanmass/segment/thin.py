@@ -48,8 +48,9 @@ import cv2
 import numpy as np
 
 from scanmass.geometry import signed_area
-from scanmass.load.decode import LoadedImage
-from scanmass.numeric import nonzero_rc
+from scanmass.load.decode import LoadedImage, lookup
+from scanmass.numeric import nonzero_every, nonzero_rc
+from scanmass.segment.dipgate import dips_possible
 from scanmass.segment.rings import PartRings, correct_curvature
 from scanmass.segment.wallends import RAMP_PX, apply_end_windows, end_windows, turning, wall_runs
 
@@ -190,29 +191,43 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     pad = int(math.ceil(3 * sigma + 16)) + CLOSED_WALL_REACH_PX
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
-    lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
-    mask = np.zeros(lin.shape, np.uint8)
+    codes = image.grey[r0:r1, c0:c1]
+    table = image.to_linear.astype(np.float32, copy=False)  # linear light, as float32
+    mask = np.zeros(codes.shape, np.uint8)
     shift = np.array([c0, r0], float)
     cv2.fillPoly(mask, [np.round(rings.outer_px - shift).astype(np.int32)], 1)
     if rings.holes_px:
         cv2.fillPoly(mask, [np.round(h - shift).astype(np.int32) for h in rings.holes_px], 0)
-    inside = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
-    outside = cv2.distanceTransform(1 - mask, cv2.DIST_L2, 5)
     tail = 3.0 * max(sigma, 1.0) + 2.0
+    away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
+    # the two distance maps are thresholded at once and dropped (full-size float32: the peak)
+    inside = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
     thick = inside >= tail + 1
-    far_bg = (outside >= tail + 2) & (outside <= tail + 12)
+    regions = {"inside": inside >= away}
+    del inside
     if np.count_nonzero(thick) < 60:
         return none, []
+    outside = cv2.distanceTransform(np.subtract(1, mask, out=mask), cv2.DIST_L2, 5)
+    far_bg = (outside >= tail + 2) & (outside <= tail + 12)
+    regions["outside"] = outside >= away
     fits = []
     for where in (far_bg, thick):
-        rr, cc = nonzero_rc(where)
-        step = max(1, rr.size // CLOSED_FIT_SAMPLES)  # smooth surfaces: a subsample fits them
-        rr, cc = rr[::step], cc[::step]
-        fits.append(_robust_quadratic(lin[rr, cc].astype(float), rr.astype(float), cc.astype(float)))
+        count = int(np.count_nonzero(where))
+        step = max(1, count // CLOSED_FIT_SAMPLES)  # smooth surfaces: a subsample fits them
+        rr, cc = nonzero_every(where, step)
+        fits.append(_robust_quadratic(table[codes[rr, cc]].astype(float), rr.astype(float), cc.astype(float)))
+    del far_bg, thick
     bg_fit, fg_fit = fits
     if bg_fit is None or fg_fit is None:
         return none, []
+    noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
+    limit = max(1.0 - CLOSED_SLOT_LEVEL, 6.0 * noise)
+    if not dips_possible(codes, table, (regions["inside"], regions["outside"]), bg_fit, fg_fit, limit):
+        return none, []  # no pixel can pass the test below (bounds of the two surfaces)
+    attach = outside <= away + 2.0
+    del outside
     # the normalised image, computed in place (float32; full-size copies are the memory peak)
+    lin = lookup(table, codes)
     norm_all = lin
     level = _on_grid(fg_fit, lin.shape)
     bg_map = _on_grid(bg_fit, lin.shape)
@@ -223,28 +238,24 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     level[flat] = np.float32(np.nan)
     norm_all /= level
     del level, flat
-    noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
-    limit = max(1.0 - CLOSED_SLOT_LEVEL, 6.0 * noise)
-    away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
     # inside: dips below the part level (slots); outside, next to the part: ridges above the
     # background (walls that vanished), attached to the part
     found = []
     for side, sign in (("inside", 1.0), ("outside", -1.0)):
-        region = (inside if side == "inside" else outside) >= away
+        region = regions[side]
         # missing share: 1 - n inside (material counted that is not there), n outside; NaN
         # (no contrast) counts as 0, below any limit
         share_all = norm_all if sign < 0 else 1.0 - norm_all
         dip = ((share_all > limit) & region).astype(np.uint8)
         if not dip.any():
             continue
-        attach = None if sign > 0 else outside <= away + 2.0
         grown = (cv2.dilate(dip, np.ones((3, 3), np.uint8), iterations=int(math.ceil(2 * sigma)) + 1) > 0) & region
         count, labels = cv2.connectedComponents(grown.astype(np.uint8), connectivity=8)
         for k in range(1, count):
             rr, cc = np.nonzero(labels == k)
             if rr.size < 4 or not dip[rr, cc].any():
                 continue
-            if attach is not None and not attach[rr, cc].any():
+            if sign < 0 and not attach[rr, cc].any():
                 continue  # a separate object, not a wall of this part
             missing = np.clip(np.nan_to_num(share_all[rr, cc], nan=0.0), 0.0, None)
             deficit = float(missing.sum())
@@ -380,7 +391,7 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
     pad = int(math.ceil(far_px + 2 * sigma + 8))
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
-    lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
+    lin = image.linear(slice(r0, r1), slice(c0, c1)).astype(np.float32, copy=False)
     shift = np.array([c0, r0], float)
     t = RESIDUAL_OFFSETS_SIGMA * sigma
     flat_px = 1.5  # the levels must be flat over this much further out

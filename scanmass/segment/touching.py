@@ -15,6 +15,7 @@ import cv2
 import numpy as np
 
 from scanmass.geometry import signed_area
+from scanmass.load.decode import lookup
 from scanmass.numeric import nonzero_rc
 
 __all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "solidity", "NECK_RATIO", "SEAM_LEVEL"]
@@ -263,7 +264,7 @@ def _two_runs(labels: np.ndarray) -> tuple[int, int] | None:
 
 
 def split_touching(
-    linear: np.ndarray,
+    linear: np.ndarray | None,
     origin_px: tuple[int, int],
     outer_px: np.ndarray,
     holes_px: list[np.ndarray],
@@ -288,8 +289,9 @@ def split_touching(
 
     Parameters
     ----------
-    linear : (H, W) float ndarray
-        Linear-light values of a crop around the part.
+    linear : (H, W) float ndarray, or None
+        Linear-light values of a crop around the part; None when ``levels`` are given
+        (then only their table is looked up).
     origin_px : (int, int)
         The crop's (x, y) offset in the image.
     outer_px, holes_px
@@ -319,7 +321,12 @@ def split_touching(
     """
     origin = np.asarray(origin_px, float)
     outer = np.asarray(outer_px, float)
-    shape = linear.shape
+    if linear is not None:
+        shape = linear.shape
+    elif levels is not None:
+        shape = levels[0].shape
+    else:
+        raise ValueError("split_touching needs the linear crop or its codes and table (levels)")
     mask = _ring_mask(shape, outer, holes_px, origin)
     area = float(np.count_nonzero(mask))  # the mask holds 0 and 1
     if area < 50:
@@ -331,6 +338,7 @@ def split_touching(
     if np.count_nonzero(inner) < 20 or np.count_nonzero(outside) < 20:
         return None
     if levels is None:
+        assert linear is not None
         fg = float(np.median(linear[inner.view(bool)]))
         bg = float(np.median(linear[outside.view(bool)]))
     else:
@@ -338,17 +346,24 @@ def split_touching(
         fg, bg = _lut_median(codes, inner, lut), _lut_median(codes, outside, lut)
     if abs(fg - bg) < 1e-4 or (fg < bg) != dark_part:
         return None
-    norm = (linear - bg) / (fg - bg)
+    # the same values either way: the table holds each code's normalised level
+    if levels is None:
+        assert linear is not None
+        norm = (linear - bg) / (fg - bg)
+    else:
+        norm = lookup((levels[1] - bg) / (fg - bg), levels[0])
     seam_level = min(SEAM_LEVEL, 1.0 - 5.0 * max(noise_rel, 0.0))
     solid = (core.view(bool) & (cv2.GaussianBlur(norm.astype(np.float32, copy=False), (0, 0), 0.7) > seam_level)).view(
         np.uint8
     )
     count, comp = cv2.connectedComponents(solid, connectivity=4)
-    sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
-    big = [k for k in range(1, count) if sizes[k] >= MIN_LOBE_SHARE * area]
-    markers = np.zeros(shape, np.int32)
+    big: list[int] = []
+    if count >= 3:  # two pieces or more (label 0 is the rest)
+        sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
+        big = [k for k in range(1, count) if sizes[k] >= MIN_LOBE_SHARE * area]
     if len(big) >= 2:
         big.sort(key=lambda k: -sizes[k])
+        markers = np.zeros(shape, np.int32)
         markers[comp == big[0]] = 1
         markers[comp == big[1]] = 2
         relief: np.ndarray = -np.asarray(norm, dtype=np.float64)
@@ -362,6 +377,7 @@ def split_touching(
         peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), mask)
         if len(peaks) < 2:
             return None
+        markers = np.zeros(shape, np.int32)
         order = np.argsort(-dist[peaks[:, 0], peaks[:, 1]])
         for k, (r, c) in enumerate(peaks[order[:2]], start=1):
             markers[r, c] = k
