@@ -32,6 +32,11 @@ WALL_MIN_PX = 2.5
 WALL_MIN_CHROMA = 0.08
 #: Smallest step from the band's level up to the paper's, as a share of the paper's level.
 WALL_MIN_STEP = 0.1
+#: Smallest ratio of the step (band to paper) to the rise across the band itself: a wall is
+#: flat, a penumbra rises all the way. A linear ramp of any length beside a wall band 5 px or
+#: wider gives at most 2.3; the brass disc of the renders (8.4 px wall) 2.5 and more. Below
+#: about 4 px the band is too narrow for this test, and its colour alone tells it from a shadow.
+_FLAT = 2.5
 #: Vertices per stretch tested as one (about 1 px apart); shorter end pieces under half are left out.
 _STRETCH = 15
 
@@ -140,7 +145,7 @@ def lost_wall_band(
             ramp = at(np.array([max(p - 1.0, 1.5)]), level) - at(np.array([1.5]), level)
             face = at(np.array([-2.0, -3.0, -4.0]), level)
             step = paper - plate
-            if not (step > WALL_MIN_STEP * paper and step > 2.0 * ramp and plate > face + 0.1 * (paper - face)):
+            if not (step > WALL_MIN_STEP * paper and step > _FLAT * ramp and plate > face + 0.1 * (paper - face)):
                 continue
             c_band = np.array([at(in_band, c) for c in chans])
             c_paper = np.array([at(beyond, c) for c in chans])
