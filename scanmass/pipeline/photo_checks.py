@@ -12,7 +12,7 @@ from dataclasses import replace
 import cv2
 import numpy as np
 
-from scanmass.errors import ScaleError, SegmentationError
+from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import (
@@ -391,8 +391,10 @@ def _cut_cast_shadows(
         return result, [], set()
     try:
         again = remeasure(replace(masked, grey=grey))
-    except (SegmentationError, ScaleError):
-        return result, [], set()  # nothing measurable without the shadows: keep the first measurement
+    except (SegmentationError, ScaleError, OptionError):
+        # nothing measurable with the cuts painted (or rings the section refuses: a thin strip
+        # left beside a cut can put a hole's mapped ring past the outer one): keep the first measurement
+        return result, [], set()
     done: list[str] = []
     labels: set[int] = set()
     remnants: set[int] = set()
