@@ -103,6 +103,10 @@ def _truth_part(name: str, shape: str) -> dict:
         ("spot-steel-t0", "plate", 0.035, 0.5, 0.45),
         # the same light on a 1.5 mm brass ring: +14.0 %, the bore 0.96 mm small
         ("spot-brass-t10", "gasket", 0.035, 0.3, 0.45),
+        # a black disc 8 mm thick, 20 degrees of tilt: +30 % left in; the face and the shadow
+        # a few 8-bit codes apart, the cut stops where the layers stay at the face's level
+        # (-0.7 %, 0.60 mm; a one-layer blip stopped it 2 px in: +19.5 %)
+        ("spot-black-t20", "disc", 0.015, 0.8, None),
     ],
 )
 def test_rendered_cast_shadow_is_cut_and_covered(name, shape, area_tol, centroid_tol, hole_tol):
@@ -115,7 +119,7 @@ def test_rendered_cast_shadow_is_cut_and_covered(name, shape, area_tol, centroid
     assert math.dist(part.centroid_mm, tp["centroid"]) <= centroid_tol
     for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
         assert abs(c - t) <= 3 * u
-    for centre, diameter in tp["holes"]:
+    for centre, diameter in tp["holes"] if hole_tol is not None else []:
         hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
         assert math.dist(hole.circle_centre_mm, centre) < 1.0
         assert abs(hole.diameter_mm - diameter) <= hole_tol

@@ -12,7 +12,7 @@ from dataclasses import replace
 import cv2
 import numpy as np
 
-from scanmass.errors import ScaleError, SegmentationError
+from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import (
@@ -23,7 +23,7 @@ from scanmass.pipeline.part_terms import (
     change_term,
 )
 from scanmass.scale.camera import PhotoScale
-from scanmass.scale.homography import raised_outline_mm
+from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.segment.castshadow import shadow_cut
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -34,6 +34,7 @@ from scanmass.segment.shadow import (
     shadow_risk,
     unclear_edges,
 )
+from scanmass.segment.sidewall import LostWall, lost_wall_band
 from scanmass.uncertainty import (
     combine,
 )
@@ -289,6 +290,35 @@ SHADOW_CUT_EDGE_PX = 2.0
 SHADOW_CUT_UNKNOWN_THICKNESS_MM = 8.0
 
 
+def _lost_wall(
+    scale: PhotoScale, part: Part, thickness_mm: float | None, colour_lin: np.ndarray, origin: tuple[int, int]
+) -> LostWall | None:
+    """The lit side wall the segmentation left out beside a part of the given thickness, or None.
+
+    The outer ring's side facing the camera's nadir shows the wall between the top face and the
+    paper, as wide as the top face's parallax there (:class:`~scanmass.scale.homography.ElevationHook`);
+    :func:`~scanmass.segment.sidewall.lost_wall_band` tests whether the outline runs on the top face's
+    edge with the wall left outside it. None without a thickness or a camera matrix.
+    """
+    if not thickness_mm or scale.camera_matrix is None or part.outline_mm is None:
+        return None
+    ring = np.asarray(part.outline_mm, float)
+    x, y = ring[:, 0], ring[:, 1]
+    if np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y) < 0:
+        ring = ring[::-1]  # counter-clockwise in mm (y up): outward is to the right of travel
+    hook = ElevationHook(scale.plane_map.matrix, scale.camera_matrix, thickness_mm)
+    foot = apply_h(hook.g0, ring)
+    parallax = apply_h(hook.gh, ring) - foot
+    tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
+    out_mm = np.column_stack([tangent[:, 1], -tangent[:, 0]])
+    out_mm /= np.maximum(np.hypot(out_mm[:, 0], out_mm[:, 1]), 1e-12)[:, None]
+    normal = apply_h(hook.g0, ring + 0.1 * out_mm) - foot
+    normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-12)[:, None]
+    size = np.hypot(parallax[:, 0], parallax[:, 1])
+    facing = np.sum(normal * parallax, axis=1) < -0.5 * size  # the wall faces the camera here
+    return lost_wall_band(colour_lin, foot - np.asarray(origin, float), normal, np.where(facing, size, 0.0))
+
+
 def _cut_cast_shadows(
     image: LoadedImage,
     masked: LoadedImage,
@@ -311,6 +341,12 @@ def _cut_cast_shadows(
     of the shadow's doubt is the place of the cut. Parts without a cut keep their first
     measurement, and photos without a cut their whole result. The result's
     ``settings["shadow_cut"]`` holds each cut part's shadow area and cut length.
+
+    With a thickness given, a lit side wall the first segmentation took for paper
+    (:func:`_lost_wall`) is painted in the part's level on the same image before it is measured
+    again: the outline there then runs on the part's bottom edge, as the plane map takes it.
+    Such a part gets the term ``side_wall``: half of the band's area (centroid, moments and holes
+    to match), so a band that was no wall lies 2 sigma off, and a warning naming it.
     """
     if thickness_mm == 0 or colour is None or not result.parts:
         return result, [], set()
@@ -319,39 +355,53 @@ def _cut_cast_shadows(
     band_px = shadow_band_px(thick, mm_per_px)
     lut = np.asarray(image.to_linear, dtype=np.float32)
     grey = masked.grey.copy()
-    cuts: list[tuple[Part, float, float]] = []  # (the part as found, cut edge mm, cut area mm2)
+    cuts: list[tuple[Part, float, float, float]] = []  # (the part as found, cut edge mm, cut mm2, wall mm2)
     for part in result.parts:
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
             continue
         (x0, y0, x1, y1), mask, _ = crop
         colour_lin = lut[colour[y0:y1, x0:x1]]
-        risk = shadow_risk(colour_lin, mask, band_px)
-        if risk is None or risk.fraction < SHADOW_FRACTION or looks_like_shadow_only(risk):
-            continue
-        codes = colour[y0:y1, x0:x1].astype(np.intp)
-        step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
-        cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
-        if cut is None:
-            continue
-        outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
-        paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]
-        if paper.size < 20:
-            continue
         window = grey[y0:y1, x0:x1]
-        window[cut.cut] = np.asarray(np.median(paper), dtype=grey.dtype)
-        cuts.append((part, cut.edge_px * mm_per_px, cut.cut_px * mm_per_px**2))
+        wall = _lost_wall(scale, part, thickness_mm, colour_lin, (x0, y0))
+        wall_mm2 = 0.0
+        if wall is not None:
+            face = window[cv2.erode(mask.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)]
+            if face.size >= 20:
+                window[wall.band & ~mask] = np.asarray(np.median(face), dtype=grey.dtype)
+                wall_mm2 = float(np.count_nonzero(wall.band & ~mask)) * mm_per_px**2
+        risk = shadow_risk(colour_lin, mask, band_px)
+        cut = None
+        if risk is not None and risk.fraction >= SHADOW_FRACTION and not looks_like_shadow_only(risk):
+            codes = colour[y0:y1, x0:x1].astype(np.intp)
+            step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
+            cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
+        if cut is not None:
+            outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
+            paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]
+            if paper.size < 20:
+                cut = None
+            else:
+                window[cut.cut] = np.asarray(np.median(paper), dtype=grey.dtype)
+        if cut is not None or wall_mm2 > 0:
+            edge_mm = cut.edge_px * mm_per_px if cut is not None else 0.0
+            cut_mm2 = cut.cut_px * mm_per_px**2 if cut is not None else 0.0
+            cuts.append((part, edge_mm, cut_mm2, wall_mm2))
     if not cuts:
         return result, [], set()
     try:
         again = remeasure(replace(masked, grey=grey))
-    except (SegmentationError, ScaleError):
-        return result, [], set()  # nothing measurable without the shadows: keep the first measurement
+    except (SegmentationError, ScaleError, OptionError):
+        # nothing measurable with the cuts painted (or rings the section refuses: a thin strip
+        # left beside a cut can put a hole's mapped ring past the outer one): keep the first measurement
+        return result, [], set()
     done: list[str] = []
     labels: set[int] = set()
     remnants: set[int] = set()
     said: dict[str, dict[str, float]] = {}
-    for old, edge_mm, cut_mm2 in cuts:
+    seen: set[int] = set()  # parts whose lost side wall was restored
+    walls: list[str] = []
+    for old, edge_mm, cut_mm2, wall_mm2 in cuts:
         assert old.outline_mm is not None  # _part_crop gave a crop
         outline = np.asarray(old.outline_mm, np.float32)
         within = [
@@ -376,39 +426,51 @@ def _cut_cast_shadows(
             and all(math.dist(q.centroid_mm, c) > 1.0 for c in before)
         }
         part = again.parts[n]
-        term = area_share_term(part, edge_mm * SHADOW_CUT_EDGE_PX * mm_per_px)
-        again.parts[n] = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
-        done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
-        labels.add(part.label)
-        said[str(part.label)] = {"shadow_area_mm2": cut_mm2, "cut_edge_mm": edge_mm}
+        if wall_mm2 > 0:
+            part = _with_extra_term(part, "side_wall", area_share_term(part, wall_mm2, weight=0.5), [])
+            walls.append(f"{part.label} ({wall_mm2:.3g} mm²)")
+            seen.add(part.label)
+        if edge_mm > 0:
+            term = area_share_term(part, edge_mm * SHADOW_CUT_EDGE_PX * mm_per_px)
+            part = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
+            done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
+            labels.add(part.label)
+            said[str(part.label)] = {"shadow_area_mm2": cut_mm2, "cut_edge_mm": edge_mm}
+        again.parts[n] = part
     left = f"; {len(remnants)} piece(s) of the cut region found as separate regions are left out" if remnants else ""
     # a part that was not cut keeps its first measurement (the second one reads the image's
     # levels with the shadows painted over, which moves soft edges elsewhere a little)
-    kept = [p for p in result.parts if all(p is not old for old, _, _ in cuts)]
+    kept = [p for p in result.parts if all(p is not old for old, *_ in cuts)]
     parts = []
     for k, q in enumerate(again.parts):
         if k in remnants:
             continue
-        same = [] if q.label in labels else [p for p in kept if math.dist(p.centroid_mm, q.centroid_mm) < 1.0]
+        same = [] if q.label in labels | seen else [p for p in kept if math.dist(p.centroid_mm, q.centroid_mm) < 1.0]
         parts.append(replace(same[0], label=q.label) if same else q)
     again.parts = parts
-    again.settings["shadow_cut"] = {"parts": said, "pieces_left_out": len(remnants)}
+    if said:
+        again.settings["shadow_cut"] = {"parts": said, "pieces_left_out": len(remnants)}
     # the image's own warnings: the first measurement's, but a cut part's from the second
-    old_labels = {f"part {old.label}:" for old, _, _ in cuts}
-    new_labels = {f"part {label}:" for label in labels}
+    old_labels = {f"part {old.label}:" for old, *_ in cuts}
+    new_labels = {f"part {label}:" for label in labels | seen}
     again.warnings = [w for w in result.warnings if not any(w.startswith(x) for x in old_labels)] + [
         w for w in again.warnings if any(w.startswith(x) for x in new_labels)
     ]
-    return (
-        again,
-        [
+    out = []
+    if done:
+        out.append(
             f"cast shadow cut: from part(s) {', '.join(done)} a layer with the paper's colour and grain, darkened, was "
             f"taken as cast shadow and left out{left}; the outline there runs on the step between the part and its "
             "shadow, and the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse "
             "light or a backlight"
-        ],
-        labels,
-    )
+        )
+    if walls:
+        out.append(
+            f"side wall: beside part(s) {', '.join(walls)} a band as wide as the side wall of the given thickness, "
+            "lit and of another colour than the paper, was taken as the part's wall and added; the uncertainty "
+            "includes half of it (term 'side_wall'); photograph from straight above or in diffuse light"
+        )
+    return again, out, labels
 
 
 #: Share of a part's boundary whose edge profile must be unclear before the part is flagged.

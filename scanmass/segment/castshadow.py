@@ -205,6 +205,8 @@ def shadow_cut(
     )
 
 
+#: Layers over which the profile must stay past half-way for the face to begin.
+_SUSTAIN = 3
 #: Smallest ratio of the face's level to the shadow's (or back) for the level step to place
 #: the cut; below it the half-way fall of the roughness places it.
 _LEVEL_STEP_RATIO = 1.3
@@ -287,7 +289,9 @@ def _sweep_depth(
         face_like = face_sure = rough <= 0.5 * (rg_s + rg_f)
     start = 1 if last > 2 else 0
     for i in range(start + 1, len(ks)):
-        if profile[i] >= mid:
+        # the layers from here on at the face's side of half-way, not one layer's blip (8-bit
+        # coding of a dark face and a shadow a few codes apart)
+        if profile[i] >= mid and np.median(profile[i : i + _SUSTAIN]) >= mid:
             a, b = profile[i - 1], profile[i]
             frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
             depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
