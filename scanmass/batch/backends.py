@@ -152,9 +152,16 @@ def measure_task(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
     document as JSON text, serialised here rather than in the parent), ``sha256`` (of the
     bytes measured), ``rows`` (the per-part CSV rows), ``started``/``finished`` (UTC ISO
     times), ``seconds`` (wall) and ``cpu_seconds``, ``worker`` (host:pid) and
-    ``max_rss_kb`` (the worker's peak resident memory so far).
+    ``max_rss_kb`` (the worker's peak resident memory so far). A worker process runs
+    OpenCV on one thread (the parallelism is the processes); :class:`SerialBackend`
+    calls :func:`measure_in_process` instead, which leaves the caller's process as it is.
     """
     _one_cv_thread()
+    return measure_in_process(path, options)
+
+
+def measure_in_process(path: str, options: Mapping[str, Any]) -> dict[str, Any]:
+    """:func:`measure_task` without setting OpenCV's thread count (no change to the calling process)."""
     from scanmass.pipeline import measure  # noqa: F401  (the worker's first file loads the measuring stages)
 
     started = utc_now()
@@ -212,7 +219,7 @@ class SerialBackend(Backend):
 
     def submit(self, path: str, options: Mapping[str, Any]) -> cf.Future:
         fut: cf.Future = cf.Future()
-        fut.set_result(measure_task(path, options))
+        fut.set_result(measure_in_process(path, options))
         return fut
 
     def wait(self, pending: Iterable[Any], timeout: float) -> set[Any]:
