@@ -27,6 +27,7 @@ from skimage.measure import find_contours
 
 from scanmass.geometry import signed_area
 from scanmass.numeric import nonzero_rc
+from scanmass.segment.distance import exact_distance
 
 __all__ = ["FaceResult", "scan_face", "SOFT_RATIO"]
 
@@ -346,7 +347,7 @@ def _distance_to_ring(points: np.ndarray, ring: np.ndarray, origin: np.ndarray, 
     """
     canvas = np.ones((shape[0], shape[1]), np.uint8)
     cv2.polylines(canvas, [np.round((ring - origin) * 16).astype(np.int32)], True, 0, 1, shift=4)
-    dist = cv2.distanceTransform(canvas, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+    dist = exact_distance(canvas)
     cols = np.clip(np.round(points[:, 0] - origin[0]).astype(int), 0, shape[1] - 1)
     rows = np.clip(np.round(points[:, 1] - origin[1]).astype(int), 0, shape[0] - 1)
     return np.asarray(dist[rows, cols], dtype=float)

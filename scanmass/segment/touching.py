@@ -17,6 +17,7 @@ import numpy as np
 from scanmass.geometry import signed_area
 from scanmass.load.decode import lookup
 from scanmass.numeric import nonzero_rc
+from scanmass.segment.distance import exact_distance
 
 __all__ = ["NeckReport", "TouchSplit", "touching_lobes", "split_touching", "solidity", "NECK_RATIO", "SEAM_LEVEL"]
 
@@ -147,7 +148,7 @@ def touching_lobes(
     cv2.fillPoly(mask, [np.round((ring - lo) / step).astype(np.int32)], 1)
     for h in holes_px or []:
         cv2.fillPoly(mask, [np.round((np.asarray(h, float) - lo) / step).astype(np.int32)], 0)
-    dist = cv2.distanceTransform(mask, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+    dist = exact_distance(mask)
     if dist.max() < 3:
         return None
     peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), mask)
@@ -373,7 +374,7 @@ def split_touching(
             neck = touching_lobes(outer, holes_px)
         if not isinstance(neck, NeckReport):
             return None
-        dist = cv2.distanceTransform(mask, cv2.DIST_L2, cv2.DIST_MASK_PRECISE)
+        dist = exact_distance(mask)
         peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), mask)
         if len(peaks) < 2:
             return None
