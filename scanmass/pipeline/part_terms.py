@@ -200,6 +200,8 @@ def measure_part(
     wall_u_px: list[np.ndarray] | None = None,
     residual_px: list[np.ndarray] | None = None,
     closed_mm: np.ndarray | None = None,
+    extra_mm: list[tuple[np.ndarray, float]] | None = None,
+    extra_perimeter_mm: float = 0.0,
 ) -> Part:
     """Section properties and uncertainties of one mapped part (everything in mm).
 
@@ -209,11 +211,18 @@ def measure_part(
     ``residual_px`` the per-vertex displacement from the edge model's measured residual
     (:func:`scanmass.segment.thin.edge_residual_px`, same order), and ``closed_mm`` the
     material a closed narrow slot may lack (rows x_mm, y_mm, mm2), all for the model-error
-    floor (:mod:`scanmass.uncertainty`).
+    floor (:mod:`scanmass.uncertainty`). ``extra_mm`` holds closed slots (sign -1) and
+    vanished walls (+1) measured by the integral rule
+    (:func:`scanmass.segment.closedfeat.measure_closed`), rings in mm, with what they change
+    the perimeter by, ``extra_perimeter_mm``; their material joins the figures, and
+    ``closed_mm`` then carries each one's 1-sigma area spread over its pixels.
     """
     outer_mm = part.outer_mm
     holes_mm = list(part.holes_mm)
-    props = section_properties(outer_mm, holes_mm)
+    if extra_mm:
+        props = section_properties(outer_mm, holes_mm, extra=extra_mm, extra_perimeter_mm=extra_perimeter_mm)
+    else:
+        props = section_properties(outer_mm, holes_mm)
 
     # -- error model inputs -----------------------------------------------------------
     scale_outer = part.mm_per_px[0]
@@ -256,7 +265,8 @@ def measure_part(
         wall_mm = build_edge_model(outer_mm, holes_mm, wall_u_px, scales, 0.0).sigma_n_mm
     model_u = model_uncertainty(model, weights, sigma_m_mm=sigma_m_mm, corr_m_mm=px_mm, wall_u_mm=wall_mm)
     if closed_mm is not None and len(closed_mm):
-        # unresolved: the whole of the slot's missing material is the 1-sigma term
+        # unresolved: the whole of the slot's missing material is the 1-sigma term; measured
+        # (extra_mm): the pixels' shares scaled to the measured area's 1-sigma
         lacking = removed_material(closed_mm[:, :2], closed_mm[:, 2], props)
         model_u = {k: math.hypot(v, lacking.get(k, 0.0)) for k, v in model_u.items()}
     scale_u = _scale_terms(part, plane_map, props)

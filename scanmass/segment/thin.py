@@ -128,8 +128,9 @@ class WallResult:
     unresolved: int = 0  # vertices on walls that could not be resolved
     level_source: str = ""
     warnings: list[str] = field(default_factory=list)
-    #: material the rings count that a closed narrow slot may lack: (K, 3) of x_px, y_px and
-    #: the pixel's missing share (px^2), see :func:`closed_slots`
+    #: material the rings count that a closed narrow slot lacks (or a vanished wall adds):
+    #: (K, 4) of x_px, y_px, the pixel's missing share (px^2) and the feature's id (+k a
+    #: slot, -k a wall), see :func:`closed_slots`
     closed_px: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
 
 
@@ -166,7 +167,9 @@ def _on_grid(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> np.ndarr
 CLOSED_WALL_REACH_PX = 64
 
 
-def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list[str]]:
+def closed_slots(
+    image: LoadedImage, rings: PartRings, reach_px: int = CLOSED_WALL_REACH_PX
+) -> tuple[np.ndarray, list[str]]:
     """Narrow slots (and thin walls) the midpoint rule closed (or lost): pixels and their share.
 
     A slot narrower than about ``2 sigma`` (blur) never reaches the background level, so no
@@ -177,9 +180,11 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     is at most a few blur widths wide (a slot, not a dark patch) is such a slot: by the
     integral rule ``D`` is its area. Likewise a wall narrower than that never reaches the
     part's level and has no 0.5 contour: outside the part, a ridge of ``n`` attached to it
-    (within :data:`CLOSED_WALL_REACH_PX`) is such a wall, of area ``sum n``. Returns
-    (K, 3) rows of x_px, y_px and the pixel's share (``1 - n`` or ``n``), empty when none,
-    and a warning per part with any.
+    (within ``reach_px``; a wall that runs to the edge of that reach is looked for again
+    with three times the reach) is such a wall, of area ``sum n``. Returns
+    (K, 4) rows of x_px, y_px, the pixel's share (``1 - n`` or ``n``) and the feature's id
+    (+k a slot, -k a wall), empty when none, and a warning per part with any;
+    :func:`scanmass.segment.closedfeat.measure_closed` measures them.
     """
     sigma = float(rings.blur_px) if math.isfinite(rings.blur_px) and rings.blur_px > 0 else 1.0
     contrast = float(rings.contrast)
@@ -187,7 +192,7 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     if rings.cut or not math.isfinite(contrast) or abs(contrast) < 1e-4:
         return none, []
     x0, y0, x1, y1 = rings.bbox_px
-    pad = int(math.ceil(3 * sigma + 16)) + CLOSED_WALL_REACH_PX
+    pad = int(math.ceil(3 * sigma + 16)) + reach_px
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
     lin = image.to_linear[image.grey[r0:r1, c0:c1]].astype(np.float32)
@@ -255,7 +260,13 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
             length = math.sqrt(12.0 * max(float(np.linalg.eigvalsh(cov)[-1]), 1e-9))
             if deficit < 2.0 or deficit / length > THIN_SIGMAS * sigma + 1.0:
                 continue
-            found.append((sign, np.column_stack([cc + c0, rr + r0, missing])))
+            if sign < 0 and reach_px == CLOSED_WALL_REACH_PX:
+                cut = (rr.min() == 0 and r0 > 0) or (cc.min() == 0 and c0 > 0)
+                cut |= (rr.max() == r1 - r0 - 1 and r1 < image.height_px) or (cc.max() == c1 - c0 - 1 and c1 < image.width_px)
+                if cut:  # a wall longer than the reach: look again, further out
+                    return closed_slots(image, rings, 3 * CLOSED_WALL_REACH_PX)
+            fid = sign * (len(found) + 1)  # + a slot, - a wall
+            found.append((sign, np.column_stack([cc + c0, rr + r0, missing, np.full(rr.size, fid)])))
     if not found:
         return none, []
     pts = np.concatenate([f[1] for f in found])
