@@ -529,7 +529,9 @@ def _edge_limits(
     return list(zip(quants, results))
 
 
-def _closed_measured(walls: WallResult, plane_map: PlaneMap) -> tuple[np.ndarray, list[tuple[np.ndarray, float]], float]:
+def _closed_measured(
+    walls: WallResult, plane_map: PlaneMap
+) -> tuple[np.ndarray, list[tuple[np.ndarray, float]], float]:
     """A part's closed slots and vanished walls measured (:mod:`scanmass.segment.closedfeat`).
 
     Returns the pixels for the error model's term (x_px, y_px, px^2: a measured feature's

@@ -99,6 +99,7 @@ def _ring_distance(points: np.ndarray, rings: list[np.ndarray]) -> np.ndarray:
 
 def _inside(points: np.ndarray, rings: list[np.ndarray]) -> np.ndarray:
     """Whether each point lies in the part (inside the outer ring, outside every hole)."""
+
     def within(ring: np.ndarray) -> np.ndarray:
         contour = np.asarray(ring, np.float32).reshape(-1, 1, 2)
         return np.array([cv2.pointPolygonTest(contour, (float(x), float(y)), False) > 0 for x, y in points])

@@ -233,7 +233,7 @@ def closed_slots(
     away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
     # inside: dips below the part level (slots); outside, next to the part: ridges above the
     # background (walls that vanished), attached to the part
-    found = []
+    found: list[tuple[float, np.ndarray]] = []
     for side, sign in (("inside", 1.0), ("outside", -1.0)):
         region = (inside if side == "inside" else outside) >= away
         # missing share: 1 - n inside (material counted that is not there), n outside; NaN
@@ -262,7 +262,9 @@ def closed_slots(
                 continue
             if sign < 0 and reach_px == CLOSED_WALL_REACH_PX:
                 cut = (rr.min() == 0 and r0 > 0) or (cc.min() == 0 and c0 > 0)
-                cut |= (rr.max() == r1 - r0 - 1 and r1 < image.height_px) or (cc.max() == c1 - c0 - 1 and c1 < image.width_px)
+                cut |= (rr.max() == r1 - r0 - 1 and r1 < image.height_px) or (
+                    cc.max() == c1 - c0 - 1 and c1 < image.width_px
+                )
                 if cut:  # a wall longer than the reach: look again, further out
                     return closed_slots(image, rings, 3 * CLOSED_WALL_REACH_PX)
             fid = sign * (len(found) + 1)  # + a slot, - a wall
@@ -275,16 +277,16 @@ def closed_slots(
     what = " and ".join(
         x
         for x in (
-            f"{slots} narrow slot(s) inside it that never reach the background level (counted as material)"
-            if slots
-            else "",
-            f"{walls} thin wall(s) on it that never reach the part's level (left out)" if walls else "",
+            f"{slots} narrow slot(s) inside it that never reach the background level" if slots else "",
+            f"{walls} thin wall(s) on it that never reach the part's level" if walls else "",
         )
         if x
     )
     warning = (
-        f"part {rings.label}: {what}, about {pts[:, 2].sum():.0f} px2; their uncertainty covers them; scan at a "
-        "higher resolution or with less blur"
+        f"part {rings.label}: {what}, about {pts[:, 2].sum():.0f} px2; measured from the closed profile by the "
+        "integral rule (width across the ridge, ends along it) and added to or taken out of the figures, not the "
+        "drawn outline; less certain than an open edge, and the uncertainty says how much (one whose width "
+        "cannot be told is covered instead); scan at a higher resolution or with less blur"
     )
     return pts, [warning]
 
