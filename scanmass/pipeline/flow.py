@@ -371,13 +371,13 @@ def measure_image(
             wall_u = _as_mapped_order(walls.rings, corner, mapped, plane_map)
         closed_mm = None
         extra_mm: list[tuple[np.ndarray, float]] = []
-        extra_perimeter_mm = 0.0
+        extra_perimeter_mm = extra_perimeter_u_mm = 0.0
         if len(walls.closed_px):
-            closed_px, extra_mm, extra_perimeter_mm = _closed_measured(walls, plane_map)
+            closed_px, extra_mm, (extra_perimeter_mm, extra_perimeter_u_mm) = _closed_measured(walls, plane_map)
             closed_mm = np.column_stack([plane_map.to_mm(closed_px[:, :2]), closed_px[:, 2] * plane_map.mm_per_px**2])
         part = measure_part(
             mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm,
-            extra_mm=extra_mm or None, extra_perimeter_mm=extra_perimeter_mm,
+            extra_mm=extra_mm or None, extra_perimeter_mm=extra_perimeter_mm, extra_perimeter_u_mm=extra_perimeter_u_mm,
         )  # fmt: skip
         if walls.rings.label in faces and faces[walls.rings.label].note != "soft edges":
             part = _with_face_term(part, faces[walls.rings.label], plane_map)
@@ -531,12 +531,12 @@ def _edge_limits(
 
 def _closed_measured(
     walls: WallResult, plane_map: PlaneMap
-) -> tuple[np.ndarray, list[tuple[np.ndarray, float]], float]:
+) -> tuple[np.ndarray, list[tuple[np.ndarray, float]], tuple[float, float]]:
     """A part's closed slots and vanished walls measured (:mod:`scanmass.segment.closedfeat`).
 
     Returns the pixels for the error model's term (x_px, y_px, px^2: a measured feature's
     shares scaled to its area's 1-sigma, an unmeasured one's whole share), the measured
-    features' rings in mm with their signs, and the perimeter they add (mm).
+    features' rings in mm with their signs, and the perimeter they add with its 1-sigma (mm).
     """
     rings = walls.rings
     sigma = float(rings.blur_px) if math.isfinite(rings.blur_px) and rings.blur_px > 0 else 1.0
@@ -548,14 +548,15 @@ def _closed_measured(
     )  # fmt: skip
     pixels = walls.closed_px[:, :3].copy()
     extra: list[tuple[np.ndarray, float]] = []
-    perimeter_px = 0.0
+    perimeter_px = perimeter_u_px = 0.0
     for f in features:
         sel = walls.closed_px[:, 3] == f.feature_id
         share = float(pixels[sel, 2].sum())
         pixels[sel, 2] *= f.area_u_px / max(share, 1e-12)
         extra += [(plane_map.to_mm(r), sgn) for r, sgn in f.rings_px]
         perimeter_px += f.perimeter_change_px
-    return pixels, extra, perimeter_px * plane_map.mm_per_px
+        perimeter_u_px = math.hypot(perimeter_u_px, f.perimeter_u_px)
+    return pixels, extra, (perimeter_px * plane_map.mm_per_px, perimeter_u_px * plane_map.mm_per_px)
 
 
 def _as_mapped_order(

@@ -202,6 +202,7 @@ def measure_part(
     closed_mm: np.ndarray | None = None,
     extra_mm: list[tuple[np.ndarray, float]] | None = None,
     extra_perimeter_mm: float = 0.0,
+    extra_perimeter_u_mm: float = 0.0,
 ) -> Part:
     """Section properties and uncertainties of one mapped part (everything in mm).
 
@@ -214,7 +215,8 @@ def measure_part(
     floor (:mod:`scanmass.uncertainty`). ``extra_mm`` holds closed slots (sign -1) and
     vanished walls (+1) measured by the integral rule
     (:func:`scanmass.segment.closedfeat.measure_closed`), rings in mm, with what they change
-    the perimeter by, ``extra_perimeter_mm``; their material joins the figures, and
+    the perimeter by, ``extra_perimeter_mm`` (1-sigma ``extra_perimeter_u_mm``); their
+    material joins the figures, and
     ``closed_mm`` then carries each one's 1-sigma area spread over its pixels.
     """
     outer_mm = part.outer_mm
@@ -274,7 +276,7 @@ def measure_part(
     n_rings = 1 + len(holes_mm)
     thresh_u["perimeter_mm"] = 2 * math.pi * offset_mm * abs(1 - len(holes_mm))
     edge_u["perimeter_mm"] = 0.0
-    model_u["perimeter_mm"] = 0.0
+    model_u["perimeter_mm"] = extra_perimeter_u_mm
     total = {
         k: combine(edge_u.get(k, 0.0), thresh_u.get(k, 0.0), model_u.get(k, 0.0), scale_u.get(k, 0.0)) for k in scale_u
     }

@@ -59,6 +59,9 @@ class ClosedFeature:
     width_px: float
     length_px: float
     perimeter_change_px: float  # how much the part's perimeter grows with it
+    #: 1-sigma of that: the length's (twice the area's over the width) and the ends' shape
+    #: (a width at each end: a rounded end, or the outline's bulge)
+    perimeter_u_px: float
     feature_id: float  # its id in the pixels' fourth column
 
 
@@ -262,6 +265,7 @@ def measure_closed(
                 width_px=width,
                 length_px=length,
                 perimeter_change_px=2.0 * length + width * ((2 - attached) - attached),
+                perimeter_u_px=math.hypot(2.0 * u / width, 2.0 * width),
                 feature_id=float(fid),
             )
         )
