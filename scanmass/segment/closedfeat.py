@@ -145,6 +145,46 @@ def _signed_area(ring: np.ndarray) -> float:
     return 0.5 * float(np.sum(x * np.roll(y, -1) - np.roll(x, -1) * y))
 
 
+#: A closed feature's ridge must lie this many blur sigmas beyond the distance from the
+#: rings where its pixels start: nearer, the dip may be an edge's own blurred tail (a
+#: neighbour's edge across a narrow gap, an uneven light) cut off by that distance.
+RIDGE_CLEAR_SIGMAS = 1.0
+
+#: Its ridge's height (the share at its peak) must agree with that of a strip of its
+#: integral width under the blur, ``erf(w / (2 sqrt 2 sigma))``, to this share of it
+#: (plus a few noise steps): a shading or a shadow has another profile.
+PEAK_AGREEMENT = 0.25
+
+#: ... and its width must be at most this many blur sigmas: a strip wider than that
+#: reaches past half the contrast and has a 0.5 contour of its own (erf(1 / sqrt 2) = 0.68).
+CLOSED_MAX_WIDTH_SIGMAS = 2.0
+
+
+def _is_strip(
+    xy: np.ndarray,
+    m: np.ndarray,
+    t: np.ndarray,
+    edges: np.ndarray,
+    width: float,
+    sigma: float,
+    rings: list[np.ndarray],
+    away_px: float,
+    noise_rel: float,
+) -> bool:
+    """Whether a dip (or ridge) looks like a blurred strip: narrow, clear of the rings, of the right height."""
+    if width > CLOSED_MAX_WIDTH_SIGMAS * sigma:
+        return False
+    strong = m > 0.5 * float(m.max())
+    if float(np.median(_ring_distance(xy[strong], rings))) < away_px + RIDGE_CLEAR_SIGMAS * sigma:
+        return False
+    k = np.digitize(t, edges) - 1
+    ok = (k >= 0) & (k < len(edges) - 1)
+    peaks = np.zeros(len(edges) - 1)
+    np.maximum.at(peaks, k[ok], m[ok])
+    expected = math.erf(width / (2.0 * math.sqrt(2.0) * sigma))
+    return abs(float(np.median(peaks)) - expected) <= PEAK_AGREEMENT * expected + 3.0 * noise_rel
+
+
 def measure_closed(
     share_px: np.ndarray,
     rings: list[np.ndarray],
@@ -208,6 +248,8 @@ def measure_closed(
         if not width > 0.2:
             continue
         spread = 1.4826 * float(np.median(np.abs(per_bin - width))) / math.sqrt(per_bin.size)
+        if not _is_strip(xy, m, t, edges, width, sigma, rings, away_px, noise_rel):
+            continue
         # the two ends: where the outline is near, run into it past its own bulge; else by
         # the integral rule
         near = _ring_distance(np.array([centre + t_lo * axis, centre + t_hi * axis]), rings) <= away_px + 2.0
