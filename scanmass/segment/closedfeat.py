@@ -43,7 +43,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-__all__ = ["ClosedFeature", "measure_closed"]
+__all__ = ["ClosedFeature", "is_sliver", "measure_closed"]
 
 
 @dataclass(frozen=True)
@@ -185,6 +185,20 @@ def _is_strip(
     return abs(float(np.median(peaks)) - expected) <= PEAK_AGREEMENT * expected + 3.0 * noise_rel
 
 
+#: A hole whose mean width (twice its area over its perimeter) is under this (px) is a
+#: sliver: the part of a narrow slot where the blur left a 0.5 contour open. The slot's
+#: dip is measured through it (it is no edge to keep clear of), and the hole's own area
+#: is kept out of the material taken out.
+SLIVER_WIDTH_PX = 1.5
+
+
+def is_sliver(ring: np.ndarray) -> bool:
+    """Whether a hole ring (px) is a sliver of a narrow slot (see :data:`SLIVER_WIDTH_PX`)."""
+    r = np.asarray(ring, float)
+    perimeter = float(np.sum(np.hypot(*(np.roll(r, -1, axis=0) - r).T)))
+    return perimeter > 0 and 2.0 * abs(_signed_area(r)) / perimeter < SLIVER_WIDTH_PX
+
+
 def measure_closed(
     share_px: np.ndarray,
     rings: list[np.ndarray],
@@ -202,7 +216,8 @@ def measure_closed(
         x_px, y_px, missing share and feature id (+k a slot, -k a wall) of every pixel, from
         :func:`scanmass.segment.thin.closed_slots`.
     rings : list of (N, 2) arrays
-        The part's midpoint-rule rings in px (outer first).
+        The part's midpoint-rule rings in px (outer first); hole rings that are slivers
+        (:func:`is_sliver`) are only clipped, not kept clear of.
     blur_px : float
         Gaussian-equivalent blur sigma (px).
     away_px : float
@@ -221,6 +236,8 @@ def measure_closed(
     if share_px.shape[1] < 4:
         return out
     sigma = blur_px if math.isfinite(blur_px) and blur_px > 0 else 1.0
+    all_rings = rings
+    rings = [rings[0], *(h for h in rings[1:] if not is_sliver(h))]
     end_px = 2.0 * sigma + 1.0  # an end's blur reaches this far along the line
     for fid in np.unique(share_px[:, 3]):
         side = 1.0 if fid > 0 else -1.0  # + a slot, - a wall
@@ -279,7 +296,7 @@ def measure_closed(
         if _signed_area(rect) < 0:
             rect = rect[::-1].copy()
         # the part's share of the rectangle: clipped rings (the outer adds, a hole takes out)
-        overlap = [(clip_convex(r, rect), 1.0 if i == 0 else -1.0) for i, r in enumerate(rings)]
+        overlap = [(clip_convex(r, rect), 1.0 if i == 0 else -1.0) for i, r in enumerate(all_rings)]
         overlap = [(r, sgn) for r, sgn in overlap if abs(_signed_area(r)) > 1e-9]
         inner = sum(sgn * abs(_signed_area(r)) for r, sgn in overlap)
         if side > 0:  # a slot: take out what the part counts inside the rectangle

@@ -50,6 +50,7 @@ import numpy as np
 from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
 from scanmass.numeric import nonzero_rc
+from scanmass.segment.closedfeat import is_sliver
 from scanmass.segment.rings import PartRings, correct_curvature
 from scanmass.segment.wallends import RAMP_PX, apply_end_windows, end_windows, turning, wall_runs
 
@@ -199,8 +200,9 @@ def closed_slots(
     mask = np.zeros(lin.shape, np.uint8)
     shift = np.array([c0, r0], float)
     cv2.fillPoly(mask, [np.round(rings.outer_px - shift).astype(np.int32)], 1)
-    if rings.holes_px:
-        cv2.fillPoly(mask, [np.round(h - shift).astype(np.int32) for h in rings.holes_px], 0)
+    holes = [h for h in rings.holes_px if not is_sliver(h)]  # a slot's sliver: its dip runs through
+    if holes:
+        cv2.fillPoly(mask, [np.round(h - shift).astype(np.int32) for h in holes], 0)
     inside = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
     outside = cv2.distanceTransform(1 - mask, cv2.DIST_L2, 5)
     tail = 3.0 * max(sigma, 1.0) + 2.0
