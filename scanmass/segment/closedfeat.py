@@ -160,6 +160,11 @@ PEAK_AGREEMENT = 0.25
 CLOSED_MAX_WIDTH_SIGMAS = 2.0
 
 
+#: ... and one width along its interior: the spread (MAD) of the integral across it, per
+#: pixel of length, at most this share of the width (plus the noise of a bin's sum).
+WIDTH_SPREAD = 0.2
+
+
 def _is_strip(
     xy: np.ndarray,
     m: np.ndarray,
@@ -267,6 +272,10 @@ def measure_closed(
         spread = 1.4826 * float(np.median(np.abs(per_bin - width))) / math.sqrt(per_bin.size)
         if not _is_strip(xy, m, t, edges, width, sigma, rings, away_px, noise_rel):
             continue
+        if 1.4826 * float(np.median(np.abs(per_bin - width))) > WIDTH_SPREAD * width + 3.0 * noise_rel * math.sqrt(
+            m.size / per_bin.size
+        ):
+            continue  # not one width along it (a wedge, the neck between two touching parts)
         # the two ends: where the outline is near, run into it past its own bulge; else by
         # the integral rule
         near = _ring_distance(np.array([centre + t_lo * axis, centre + t_hi * axis]), rings) <= away_px + 2.0
