@@ -222,7 +222,8 @@ def measure_closed(
         :func:`scanmass.segment.thin.closed_slots`.
     rings : list of (N, 2) arrays
         The part's midpoint-rule rings in px (outer first); hole rings that are slivers
-        (:func:`is_sliver`) are only clipped, not kept clear of.
+        (:func:`is_sliver`) or that a feature runs through (90 % of their vertices on its
+        pixels) are only clipped, not kept clear of.
     blur_px : float
         Gaussian-equivalent blur sigma (px).
     away_px : float
@@ -242,12 +243,18 @@ def measure_closed(
         return out
     sigma = blur_px if math.isfinite(blur_px) and blur_px > 0 else 1.0
     all_rings = rings
-    rings = [rings[0], *(h for h in rings[1:] if not is_sliver(h))]
     end_px = 2.0 * sigma + 1.0  # an end's blur reaches this far along the line
     for fid in np.unique(share_px[:, 3]):
         side = 1.0 if fid > 0 else -1.0  # + a slot, - a wall
         sel = share_px[:, 3] == fid
         xy, m = share_px[sel, :2], np.clip(share_px[sel, 2], 0.0, None)
+        # holes the feature runs through (slivers, barely open pieces) are no edge to keep clear of
+        cells = set(map(tuple, np.round(xy).astype(int).tolist()))
+        rings = [all_rings[0]]
+        for h in all_rings[1:]:
+            covered = np.mean([tuple(v) in cells for v in np.round(h).astype(int).tolist()])
+            if not (is_sliver(h) or covered >= 0.9):
+                rings.append(h)
         total = float(m.sum())
         if total <= 0 or m.size < 4:
             continue
@@ -305,10 +312,14 @@ def measure_closed(
         if _signed_area(rect) < 0:
             rect = rect[::-1].copy()
         # the part's share of the rectangle: clipped rings (the outer adds, a hole takes out)
+        # (a slot's own open pieces are given back whole: the rectangle holds all of the slot)
+        through = [h for h in all_rings[1:] if side > 0 and not any(h is r for r in rings)]
         overlap = [(clip_convex(r, rect), 1.0 if i == 0 else -1.0) for i, r in enumerate(all_rings)]
+        overlap = [(r, sgn) for (r, sgn), ring in zip(overlap, all_rings) if not any(ring is h for h in through)]
+        overlap += [(np.asarray(h, float), -1.0) for h in through]
         overlap = [(r, sgn) for r, sgn in overlap if abs(_signed_area(r)) > 1e-9]
         inner = sum(sgn * abs(_signed_area(r)) for r, sgn in overlap)
-        if side > 0:  # a slot: take out what the part counts inside the rectangle
+        if side > 0:  # a slot: take out what the part counts inside the rectangle (and its open pieces)
             pieces = tuple((r, -sgn) for r, sgn in overlap)
             area = inner
         else:  # a wall: add the rectangle less what the part already counts
@@ -323,7 +334,7 @@ def measure_closed(
         level_u = level_rel_u * m.size
         noise_u = noise_rel * math.sqrt(m.size)
         bulge_u = attached * width * sigma
-        u = math.sqrt(level_u**2 + noise_u**2 + (spread * length) ** 2 + bulge_u**2)
+        u = math.sqrt(level_u**2 + noise_u**2 + (spread * (hi - lo)) ** 2 + bulge_u**2)
         out.append(
             ClosedFeature(
                 rings_px=pieces,
