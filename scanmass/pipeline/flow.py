@@ -523,7 +523,7 @@ def _edge_limits(
             if w.unresolved and "thick" not in w.level_source:
                 results[i] = resolve_walls(image, found[i], level_ratio_hint=hint, ends=closed)
     for i, w in enumerate(results if closed else []):
-        lacking, notes = closed_slots(image, w.rings)
+        lacking, notes = closed_slots(image, w.rings, open_holes=w.unresolved_holes)
         if len(lacking):
             results[i] = replace(w, closed_px=lacking, warnings=w.warnings + notes)
     return list(zip(quants, results))

@@ -133,6 +133,8 @@ class WallResult:
     #: (K, 4) of x_px, y_px, the pixel's missing share (px^2) and the feature's id (+k a
     #: slot, -k a wall), see :func:`closed_slots`
     closed_px: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+    #: holes (1 = the first) with a vertex on a slot too narrow to resolve (a barely open slot)
+    unresolved_holes: tuple[int, ...] = ()
 
 
 #: A dip inside a part is a closed slot where the normalised image falls below this (and a
@@ -175,7 +177,7 @@ CLOSED_WALL_REACH_PX = 64
 
 
 def closed_slots(
-    image: LoadedImage, rings: PartRings, reach_px: int = CLOSED_WALL_REACH_PX
+    image: LoadedImage, rings: PartRings, reach_px: int = CLOSED_WALL_REACH_PX, open_holes: tuple[int, ...] = ()
 ) -> tuple[np.ndarray, list[str]]:
     """Narrow slots (and thin walls) the midpoint rule closed (or lost): pixels and their share.
 
@@ -188,7 +190,9 @@ def closed_slots(
     integral rule ``D`` is its area. Likewise a wall narrower than that never reaches the
     part's level and has no 0.5 contour: outside the part, a ridge of ``n`` attached to it
     (within ``reach_px``; a wall that runs to the edge of that reach is looked for again
-    with three times the reach) is such a wall, of area ``sum n``. Returns
+    with three times the reach) is such a wall, of area ``sum n``. A hole in
+    ``open_holes`` (1 = the first) whose image never gets near the background is a barely
+    open piece of such a slot: the dip is looked for through it. Returns
     (K, 4) rows of x_px, y_px, the pixel's share (``1 - n`` or ``n``) and the feature's id
     (+k a slot, -k a wall), empty when none, and a warning per part with any;
     :func:`scanmass.segment.closedfeat.measure_closed` measures them.
@@ -239,7 +243,9 @@ def closed_slots(
     # a hole whose deepest pixel stays well short of the background is a piece of a narrow
     # slot the blur left barely open (the rest of it closed): the slot's dip runs through it
     pieces = []
-    for h in holes:
+    for k, h in enumerate(rings.holes_px, start=1):
+        if k not in open_holes or is_sliver(h):
+            continue  # only holes on a slot too narrow to resolve (WallResult.unresolved_holes)
         poly = np.round(h - shift).astype(np.int32)
         lo, hi = np.maximum(poly.min(axis=0), 0), np.minimum(poly.max(axis=0) + 1, mask.shape[::-1])
         sub = np.zeros((max(hi[1] - lo[1], 1), max(hi[0] - lo[0], 1)), np.uint8)
@@ -290,7 +296,7 @@ def closed_slots(
                     cc.max() == c1 - c0 - 1 and c1 < image.width_px
                 )
                 if cut:  # a wall longer than the reach: look again, further out
-                    return closed_slots(image, rings, 3 * CLOSED_WALL_REACH_PX)
+                    return closed_slots(image, rings, 3 * CLOSED_WALL_REACH_PX, open_holes)
             fid = sign * (len(found) + 1)  # + a slot, - a wall
             found.append((sign, np.column_stack([cc + c0, rr + r0, missing, np.full(rr.size, fid)])))
     if not found:
@@ -1029,6 +1035,7 @@ def resolve_walls(
             f"{100 * part_level_rel_u:.0f} %), and its uncertainty includes that; scan it beside a thick part of "
             "the same material or at a higher resolution"
         )
+    ring_of = np.repeat(np.arange(len(all_rings)), [len(r) for r in all_rings])
     return WallResult(
         new,
         out_u,
@@ -1036,4 +1043,5 @@ def resolve_walls(
         unresolved=n_bad,
         level_source=level_source,
         warnings=warnings,
+        unresolved_holes=tuple(sorted({int(k) for k in ring_of[idx[unresolved]] if k > 0})),
     )
