@@ -246,6 +246,9 @@ def closed_slots(
     for k, h in enumerate(rings.holes_px, start=1):
         if k not in open_holes or is_sliver(h):
             continue  # only holes on a slot too narrow to resolve (WallResult.unresolved_holes)
+        perimeter = float(np.sum(np.hypot(*(np.roll(h, -1, axis=0) - h).T)))
+        if 2.0 * abs(signed_area(h)) > (2.0 * sigma + 1.0) * perimeter:
+            continue  # wider than a slot the blur can close (mean width 2 A / P)
         poly = np.round(h - shift).astype(np.int32)
         lo, hi = np.maximum(poly.min(axis=0), 0), np.minimum(poly.max(axis=0) + 1, mask.shape[::-1])
         sub = np.zeros((max(hi[1] - lo[1], 1), max(hi[0] - lo[0], 1)), np.uint8)
