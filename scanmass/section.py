@@ -447,7 +447,14 @@ def _section_moments(rings: Sequence[np.ndarray], ref: np.ndarray) -> np.ndarray
     return total
 
 
-def section_properties(outer: np.ndarray, holes: Sequence[np.ndarray] = (), *, hull: bool = True) -> SectionProperties:
+def section_properties(
+    outer: np.ndarray,
+    holes: Sequence[np.ndarray] = (),
+    *,
+    hull: bool = True,
+    extra: Sequence[tuple[np.ndarray, float]] = (),
+    extra_perimeter_mm: float = 0.0,
+) -> SectionProperties:
     """Area, centroid, second moments and extents of a polygon with holes.
 
     Parameters
@@ -462,6 +469,14 @@ def section_properties(outer: np.ndarray, holes: Sequence[np.ndarray] = (), *, h
         Also the convex hull's figures (``caliper_max_mm``, ``caliper_min_mm``,
         ``convex_area_mm2``); False leaves them NaN and skips the hull, the costly
         part for long outlines (every other figure is the same either way).
+    extra : sequence of ((M, 2) array_like, float), optional
+        Material outside the rings: each ring with its sign, +1 added (a wall the outline
+        misses) or -1 taken out (a slot it does not show); its moments join the rings' (a
+        hole's count as negative area the same way). Added rings also join the extents and
+        the hull. The caller makes sure they overlap neither the outline's outside (taken
+        out) nor its inside (added).
+    extra_perimeter_mm : float, optional
+        What the extra material changes the perimeter by (the outline's own is summed).
 
     Returns
     -------
@@ -507,6 +522,13 @@ def section_properties(outer: np.ndarray, holes: Sequence[np.ndarray] = (), *, h
     """
     out, hole_rings = _prepare_section(outer, holes)
     rings = [out, *hole_rings]
+    added = []
+    for k, (ring, sign) in enumerate(extra):
+        r = _as_ring(ring, f"extra[{k}]")
+        rings.append(orient_ring(r, ccw=sign > 0))
+        if sign > 0:
+            added.append(r)
+    extent = np.concatenate([out, *added]) if added else out
 
     ref = out.mean(axis=0)
     m = _section_moments(rings, ref)
@@ -529,15 +551,15 @@ def section_properties(outer: np.ndarray, holes: Sequence[np.ndarray] = (), *, h
     area = a_c
 
     i1, i2, angle = principal_moments(ixx, iyy, ixy)
-    xmin, ymin = (float(v) for v in out.min(axis=0))
-    xmax, ymax = (float(v) for v in out.max(axis=0))
+    xmin, ymin = (float(v) for v in extent.min(axis=0))
+    xmax, ymax = (float(v) for v in extent.max(axis=0))
     if hull:
-        hull_ring = convex_hull(out)
+        hull_ring = convex_hull(extent)
         cal_max, cal_min = _hull_calipers(hull_ring)
         convex_area = signed_area(hull_ring) if hull_ring.shape[0] >= 3 else 0.0
     else:
         cal_max = cal_min = convex_area = math.nan
-    perimeter = sum(ring_perimeter(r) for r in rings)
+    perimeter = sum(ring_perimeter(r) for r in [out, *hole_rings]) + extra_perimeter_mm
 
     return SectionProperties(
         area_mm2=area,

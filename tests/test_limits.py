@@ -264,6 +264,65 @@ def test_closed_narrow_slot_is_warned_and_covered():
     assert p.area_u_mm2 < 2 * slot_mm2
 
 
+def _closed_case(dpi: float, fin: bool, slot: bool) -> SynthPart:
+    """The frame of :func:`_frame` (2 px features) with its fin and slot each kept or left out."""
+    w = 2 * 25.4 / dpi
+    fin_pts = [[11 + w / 2, 13], [11 + w / 2, 18], [11 - w / 2, 18], [11 - w / 2, 13]] if fin else []
+    outer = np.array([[5, 5], [17, 5], [17, 13], *fin_pts, [5, 13]], float)
+    angle = math.radians(7.0)
+    rot = np.array([[math.cos(angle), -math.sin(angle)], [math.sin(angle), math.cos(angle)]])
+    centre = np.array([11.0, 11.0])
+    holes = [(rectangle(7.0, 7.0, w, 4.0) - centre) @ rot.T + centre] if slot else []
+    return SynthPart((outer - centre) @ rot.T + centre, holes)
+
+
+@pytest.mark.parametrize("dpi", [300, 600])
+@pytest.mark.parametrize("dark", [True, False])
+@pytest.mark.parametrize(("fin", "slot"), [(True, False), (False, True), (True, True)])
+def test_closed_slot_and_vanished_fin_are_measured(dpi, dark, fin, slot):
+    # 2 px features under a 1.6 px blur: a 2 px strip peaks at erf(2 / (2 sqrt 2 1.6)) = 0.47
+    # of the contrast (closed form), so the fin has no 0.5 contour and the slot never
+    # opens; both are measured by the integral rule (issue 12's 2 px target: 2 % of their
+    # area) and their stated uncertainty covers the rest. Truth: shapely's area and
+    # centroid of the rendered polygon.
+    part = _closed_case(dpi, fin, slot)
+    truth = Polygon(part.outer_mm, part.holes_mm)
+    thin_mm2 = 2 * 25.4 / dpi * (5.0 * fin + 4.0 * slot)
+    levels = {"background": 0.8, "foreground": 0.06} if dark else {"background": 0.04, "foreground": 0.65}
+    scan = render_scan([part], dpi=dpi, size_mm=(22, 23), blur_px=1.6, noise=0.002, seed=11, **levels)
+    m = measure(scan.image, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.5)
+    p = max(m.parts, key=lambda q: q.area_mm2)
+    for kind, there in (("narrow slot", slot), ("thin wall", fin)):
+        assert any(kind in w and "integral rule" in w for w in m.warnings) == there, (kind, m.warnings)
+    err = p.area_mm2 - truth.area
+    assert abs(err) < 0.02 * thin_mm2, (err / thin_mm2, p.area_u_mm2 / thin_mm2)
+    assert abs(err) <= 3 * p.area_u_mm2, (err, p.area_u_mm2)
+    # measured, not merely covered: the uncertainty is well under the features' area
+    assert p.area_u_mm2 < 0.1 * thin_mm2
+    for k, c in enumerate((truth.centroid.x, truth.centroid.y)):
+        assert abs(p.centroid_mm[k] - c) <= 3 * p.centroid_u_mm[k], (k, p.centroid_mm[k] - c, p.centroid_u_mm[k])
+
+
+def test_barely_open_slot_is_measured_through_its_pieces():
+    # a 2 px slot under a 1.33 px blur (300 dpi, light part on dark, 8-bit sRGB, no noise)
+    # dips to erf(2 / (2 sqrt 2 1.4)) = 0.52 of the contrast (closed form, blur with the
+    # pixel box): the 0.5 contour opens it in pieces with closed bridges between them.
+    # Before, the pieces alone counted (the slot 6 % of its area short); the slot is
+    # measured through them now. Truth: shapely's area of the rendered polygon.
+    dpi = 300
+    part, truth = _frame(dpi, 2)
+    thin_mm2 = 2 * 2 * 25.4 / dpi * 4.5
+    scan = render_scan(
+        [part], dpi=dpi, size_mm=(22, 23), blur_px=1.3277, noise=0.0, background=0.04, foreground=0.65, seed=1
+    )
+    m = measure(scan.image, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1)
+    p = max(m.parts, key=lambda q: q.area_mm2)
+    assert any("narrow slot" in w and "integral rule" in w for w in m.warnings), m.warnings
+    err = p.area_mm2 - truth
+    assert abs(err) < 0.02 * thin_mm2, err / thin_mm2
+    assert abs(err) <= 3 * p.area_u_mm2, (err, p.area_u_mm2)
+
+
 def test_edge_model_residual_grows_with_jpeg_compression():
     # The measured edge-model residual (scanmass.segment.thin.edge_residual_px) holds what
     # the blurred-edge model leaves out; JPEG's coarser quantisation tables (pillow's

@@ -323,7 +323,9 @@ def test_dip_pre_test_skips_only_parts_without_dips(monkeypatch, what, part, dar
     (pts, notes), (pts_full, notes_full), seen = _closed_slots_both_ways(monkeypatch, img, found[0])
     np.testing.assert_array_equal(pts, pts_full)
     assert notes == notes_full
-    assert seen == [bool(finds)], (what, seen)  # skipped exactly when there is nothing to find
+    # skipped exactly when there is nothing to find (a wall cut by the crop is searched again
+    # with a longer reach: the pre-test runs once per search)
+    assert seen and all(s == bool(finds) for s in seen), (what, seen)
     for kind in finds:
         assert any(kind in n for n in notes), (what, notes)
 

@@ -47,6 +47,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
+from scanmass.segment.closedfeat import measure_closed
 from scanmass.segment.lidgap import lid_gap
 from scanmass.segment.rings import PartRings, segment
 from scanmass.segment.scanface import FaceResult
@@ -397,13 +398,15 @@ def measure_image(
             ]
             wall_u = _as_mapped_order(walls.rings, corner, mapped, plane_map)
         closed_mm = None
+        extra_mm: list[tuple[np.ndarray, float]] = []
+        extra_perimeter_mm = extra_perimeter_u_mm = 0.0
         if len(walls.closed_px):
-            closed_mm = np.column_stack(
-                [plane_map.to_mm(walls.closed_px[:, :2]), walls.closed_px[:, 2] * plane_map.mm_per_px**2]
-            )
+            closed_px, extra_mm, (extra_perimeter_mm, extra_perimeter_u_mm) = _closed_measured(walls, plane_map)
+            closed_mm = np.column_stack([plane_map.to_mm(closed_px[:, :2]), closed_px[:, 2] * plane_map.mm_per_px**2])
         part = measure_part(
-            mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm
-        )
+            mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm,
+            extra_mm=extra_mm or None, extra_perimeter_mm=extra_perimeter_mm, extra_perimeter_u_mm=extra_perimeter_u_mm,
+        )  # fmt: skip
         if walls.rings.label in faces and faces[walls.rings.label].note != "soft edges":
             part = _with_face_term(part, faces[walls.rings.label], plane_map)
         if part.label in cuts:
@@ -548,10 +551,40 @@ def _edge_limits(
             if w.unresolved and "thick" not in w.level_source:
                 results[i] = resolve_walls(image, found[i], level_ratio_hint=hint, ends=closed)
     for i, w in enumerate(results if closed else []):
-        lacking, notes = closed_slots(image, w.rings)
+        lacking, notes = closed_slots(image, w.rings, open_holes=w.unresolved_holes)
         if len(lacking):
             results[i] = replace(w, closed_px=lacking, warnings=w.warnings + notes)
     return list(zip(quants, results))
+
+
+def _closed_measured(
+    walls: WallResult, plane_map: PlaneMap
+) -> tuple[np.ndarray, list[tuple[np.ndarray, float]], tuple[float, float]]:
+    """A part's closed slots and vanished walls measured (:mod:`scanmass.segment.closedfeat`).
+
+    Returns the pixels for the error model's term (x_px, y_px, px^2: a measured feature's
+    shares scaled to its area's 1-sigma, an unmeasured one's whole share), the measured
+    features' rings in mm with their signs, and the perimeter they add with its 1-sigma (mm).
+    """
+    rings = walls.rings
+    sigma = float(rings.blur_px) if math.isfinite(rings.blur_px) and rings.blur_px > 0 else 1.0
+    level_u = float(rings.level_rel_u) if math.isfinite(rings.level_rel_u) else 0.0
+    noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
+    features = measure_closed(
+        walls.closed_px, [rings.outer_px, *rings.holes_px], blur_px=sigma, away_px=2.0 * sigma + 1.0,
+        level_rel_u=level_u, noise_rel=noise,
+    )  # fmt: skip
+    pixels = walls.closed_px[:, :3].copy()
+    extra: list[tuple[np.ndarray, float]] = []
+    perimeter_px = perimeter_u_px = 0.0
+    for f in features:
+        sel = walls.closed_px[:, 3] == f.feature_id
+        share = float(pixels[sel, 2].sum())
+        pixels[sel, 2] *= f.area_u_px / max(share, 1e-12)
+        extra += [(plane_map.to_mm(r), sgn) for r, sgn in f.rings_px]
+        perimeter_px += f.perimeter_change_px
+        perimeter_u_px = math.hypot(perimeter_u_px, f.perimeter_u_px)
+    return pixels, extra, (perimeter_px * plane_map.mm_per_px, perimeter_u_px * plane_map.mm_per_px)
 
 
 def _as_mapped_order(

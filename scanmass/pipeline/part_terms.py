@@ -201,6 +201,9 @@ def measure_part(
     wall_u_px: list[np.ndarray] | None = None,
     residual_px: list[np.ndarray] | None = None,
     closed_mm: np.ndarray | None = None,
+    extra_mm: list[tuple[np.ndarray, float]] | None = None,
+    extra_perimeter_mm: float = 0.0,
+    extra_perimeter_u_mm: float = 0.0,
 ) -> Part:
     """Section properties and uncertainties of one mapped part (everything in mm).
 
@@ -210,11 +213,19 @@ def measure_part(
     ``residual_px`` the per-vertex displacement from the edge model's measured residual
     (:func:`scanmass.segment.thin.edge_residual_px`, same order), and ``closed_mm`` the
     material a closed narrow slot may lack (rows x_mm, y_mm, mm2), all for the model-error
-    floor (:mod:`scanmass.uncertainty`).
+    floor (:mod:`scanmass.uncertainty`). ``extra_mm`` holds closed slots (sign -1) and
+    vanished walls (+1) measured by the integral rule
+    (:func:`scanmass.segment.closedfeat.measure_closed`), rings in mm, with what they change
+    the perimeter by, ``extra_perimeter_mm`` (1-sigma ``extra_perimeter_u_mm``); their
+    material joins the figures, and
+    ``closed_mm`` then carries each one's 1-sigma area spread over its pixels.
     """
     outer_mm = part.outer_mm
     holes_mm = list(part.holes_mm)
-    props = section_properties(outer_mm, holes_mm)
+    if extra_mm:
+        props = section_properties(outer_mm, holes_mm, extra=extra_mm, extra_perimeter_mm=extra_perimeter_mm)
+    else:
+        props = section_properties(outer_mm, holes_mm)
 
     # -- error model inputs -----------------------------------------------------------
     scale_outer = part.mm_per_px[0]
@@ -257,7 +268,8 @@ def measure_part(
         wall_mm = edge_sigma_mm(outer_mm, holes_mm, wall_u_px, scales)
     model_u = model_uncertainty(model, weights, sigma_m_mm=sigma_m_mm, corr_m_mm=px_mm, wall_u_mm=wall_mm)
     if closed_mm is not None and len(closed_mm):
-        # unresolved: the whole of the slot's missing material is the 1-sigma term
+        # unresolved: the whole of the slot's missing material is the 1-sigma term; measured
+        # (extra_mm): the pixels' shares scaled to the measured area's 1-sigma
         lacking = removed_material(closed_mm[:, :2], closed_mm[:, 2], props)
         model_u = {k: math.hypot(v, lacking.get(k, 0.0)) for k, v in model_u.items()}
     scale_u = _scale_terms(part, plane_map, props)
@@ -265,7 +277,7 @@ def measure_part(
     n_rings = 1 + len(holes_mm)
     thresh_u["perimeter_mm"] = 2 * math.pi * offset_mm * abs(1 - len(holes_mm))
     edge_u["perimeter_mm"] = 0.0
-    model_u["perimeter_mm"] = 0.0
+    model_u["perimeter_mm"] = extra_perimeter_u_mm
     total = {
         k: combine(edge_u.get(k, 0.0), thresh_u.get(k, 0.0), model_u.get(k, 0.0), scale_u.get(k, 0.0)) for k in scale_u
     }

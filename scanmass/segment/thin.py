@@ -50,6 +50,7 @@ import numpy as np
 from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage, lookup
 from scanmass.numeric import nonzero_every, nonzero_rc
+from scanmass.segment.closedfeat import is_sliver
 from scanmass.segment.dipgate import dips_possible
 from scanmass.segment.rings import PartRings, correct_curvature
 from scanmass.segment.wallends import RAMP_PX, apply_end_windows, end_windows, turning, wall_runs
@@ -129,14 +130,23 @@ class WallResult:
     unresolved: int = 0  # vertices on walls that could not be resolved
     level_source: str = ""
     warnings: list[str] = field(default_factory=list)
-    #: material the rings count that a closed narrow slot may lack: (K, 3) of x_px, y_px and
-    #: the pixel's missing share (px^2), see :func:`closed_slots`
+    #: material the rings count that a closed narrow slot lacks (or a vanished wall adds):
+    #: (K, 4) of x_px, y_px, the pixel's missing share (px^2) and the feature's id (+k a
+    #: slot, -k a wall), see :func:`closed_slots`
     closed_px: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+    #: holes (1 = the first) with a vertex on a slot too narrow to resolve (a barely open slot)
+    unresolved_holes: tuple[int, ...] = ()
 
 
 #: A dip inside a part is a closed slot where the normalised image falls below this (and a
 #: ridge next to it a vanished wall where it rises above 1 minus this).
 CLOSED_SLOT_LEVEL = 0.8
+
+#: A hole whose normalised image stays above 1 minus this everywhere is a barely open
+#: piece of a narrow slot (a 2 px slot under a 1.4 px blur dips to erf(2 / (2 sqrt 2 1.4))
+#: = 0.52 of the contrast, closed form): :func:`closed_slots` looks for the slot's dip
+#: through it.
+CLOSED_OPEN_DEPTH = 0.65
 
 #: Most samples fitted for each level surface of :func:`closed_slots`.
 CLOSED_FIT_SAMPLES = 8000
@@ -167,7 +177,9 @@ def _on_grid(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> np.ndarr
 CLOSED_WALL_REACH_PX = 64
 
 
-def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list[str]]:
+def closed_slots(
+    image: LoadedImage, rings: PartRings, reach_px: int = CLOSED_WALL_REACH_PX, open_holes: tuple[int, ...] = ()
+) -> tuple[np.ndarray, list[str]]:
     """Narrow slots (and thin walls) the midpoint rule closed (or lost): pixels and their share.
 
     A slot narrower than about ``2 sigma`` (blur) never reaches the background level, so no
@@ -178,9 +190,13 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     is at most a few blur widths wide (a slot, not a dark patch) is such a slot: by the
     integral rule ``D`` is its area. Likewise a wall narrower than that never reaches the
     part's level and has no 0.5 contour: outside the part, a ridge of ``n`` attached to it
-    (within :data:`CLOSED_WALL_REACH_PX`) is such a wall, of area ``sum n``. Returns
-    (K, 3) rows of x_px, y_px and the pixel's share (``1 - n`` or ``n``), empty when none,
-    and a warning per part with any.
+    (within ``reach_px``; a wall that runs to the edge of that reach is looked for again
+    with three times the reach) is such a wall, of area ``sum n``. A hole in
+    ``open_holes`` (1 = the first) whose image never gets near the background is a barely
+    open piece of such a slot: the dip is looked for through it. Returns
+    (K, 4) rows of x_px, y_px, the pixel's share (``1 - n`` or ``n``) and the feature's id
+    (+k a slot, -k a wall), empty when none, and a warning per part with any;
+    :func:`scanmass.segment.closedfeat.measure_closed` measures them.
     """
     sigma = float(rings.blur_px) if math.isfinite(rings.blur_px) and rings.blur_px > 0 else 1.0
     contrast = float(rings.contrast)
@@ -188,7 +204,7 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     if rings.cut or not math.isfinite(contrast) or abs(contrast) < 1e-4:
         return none, []
     x0, y0, x1, y1 = rings.bbox_px
-    pad = int(math.ceil(3 * sigma + 16)) + CLOSED_WALL_REACH_PX
+    pad = int(math.ceil(3 * sigma + 16)) + reach_px
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
     codes = image.grey[r0:r1, c0:c1]
@@ -196,20 +212,23 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     mask = np.zeros(codes.shape, np.uint8)
     shift = np.array([c0, r0], float)
     cv2.fillPoly(mask, [np.round(rings.outer_px - shift).astype(np.int32)], 1)
-    if rings.holes_px:
-        cv2.fillPoly(mask, [np.round(h - shift).astype(np.int32) for h in rings.holes_px], 0)
+    holes = [h for h in rings.holes_px if not is_sliver(h)]  # a slot's sliver: its dip runs through
+    if holes:
+        cv2.fillPoly(mask, [np.round(h - shift).astype(np.int32) for h in holes], 0)
     tail = 3.0 * max(sigma, 1.0) + 2.0
     away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
-    # the two distance maps are thresholded at once and dropped (full-size float32: the peak)
+    # the distance maps are thresholded at once and dropped (full-size float32: the peak)
     inside = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
     thick = inside >= tail + 1
     regions = {"inside": inside >= away}
     del inside
     if np.count_nonzero(thick) < 60:
         return none, []
-    outside = cv2.distanceTransform(np.subtract(1, mask, out=mask), cv2.DIST_L2, 5)
+    outside = cv2.distanceTransform(1 - mask, cv2.DIST_L2, 5)
     far_bg = (outside >= tail + 2) & (outside <= tail + 12)
     regions["outside"] = outside >= away
+    attach = outside <= away + 2.0
+    del outside
     fits = []
     for where in (far_bg, thick):
         count = int(np.count_nonzero(where))
@@ -222,10 +241,12 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
         return none, []
     noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
     limit = max(1.0 - CLOSED_SLOT_LEVEL, 6.0 * noise)
-    if not dips_possible(codes, table, (regions["inside"], regions["outside"]), bg_fit, fg_fit, limit):
-        return none, []  # no pixel can pass the test below (bounds of the two surfaces)
-    attach = outside <= away + 2.0
-    del outside
+    # no pixel can pass the test below (bounds of the two surfaces): nothing to find, unless a
+    # barely open piece of a slot (open_holes) widens the search region
+    if not open_holes and not dips_possible(
+        codes, table, (regions["inside"], regions["outside"]), bg_fit, fg_fit, limit
+    ):
+        return none, []
     # the normalised image, computed in place (float32; full-size copies are the memory peak)
     lin = lookup(table, codes)
     norm_all = lin
@@ -238,9 +259,30 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     level[flat] = np.float32(np.nan)
     norm_all /= level
     del level, flat
+    # a hole whose deepest pixel stays well short of the background is a piece of a narrow
+    # slot the blur left barely open (the rest of it closed): the slot's dip runs through it
+    pieces = []
+    for k, h in enumerate(rings.holes_px, start=1):
+        if k not in open_holes or is_sliver(h):
+            continue  # only holes on a slot too narrow to resolve (WallResult.unresolved_holes)
+        perimeter = float(np.sum(np.hypot(*(np.roll(h, -1, axis=0) - h).T)))
+        if 2.0 * abs(signed_area(h)) > (2.0 * sigma + 1.0) * perimeter:
+            continue  # wider than a slot the blur can close (mean width 2 A / P)
+        poly = np.round(h - shift).astype(np.int32)
+        lo, hi = np.maximum(poly.min(axis=0), 0), np.minimum(poly.max(axis=0) + 1, mask.shape[::-1])
+        sub = np.zeros((max(hi[1] - lo[1], 1), max(hi[0] - lo[0], 1)), np.uint8)
+        cv2.fillPoly(sub, [poly - lo], 1)
+        values = norm_all[lo[1] : hi[1], lo[0] : hi[0]][sub[: hi[1] - lo[1], : hi[0] - lo[0]] > 0]
+        values = values[np.isfinite(values)]
+        if values.size and float(values.min()) > 1.0 - CLOSED_OPEN_DEPTH:
+            pieces.append(poly)
+    if pieces:
+        filled = mask.copy()
+        cv2.fillPoly(filled, pieces, 1)
+        regions["inside"] = cv2.distanceTransform(filled, cv2.DIST_L2, 5) >= away
     # inside: dips below the part level (slots); outside, next to the part: ridges above the
     # background (walls that vanished), attached to the part
-    found = []
+    found: list[tuple[float, np.ndarray]] = []
     for side, sign in (("inside", 1.0), ("outside", -1.0)):
         region = regions[side]
         # missing share: 1 - n inside (material counted that is not there), n outside; NaN
@@ -266,7 +308,15 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
             length = math.sqrt(12.0 * max(float(np.linalg.eigvalsh(cov)[-1]), 1e-9))
             if deficit < 2.0 or deficit / length > THIN_SIGMAS * sigma + 1.0:
                 continue
-            found.append((sign, np.column_stack([cc + c0, rr + r0, missing])))
+            if sign < 0 and reach_px == CLOSED_WALL_REACH_PX:
+                cut = (rr.min() == 0 and r0 > 0) or (cc.min() == 0 and c0 > 0)
+                cut |= (rr.max() == r1 - r0 - 1 and r1 < image.height_px) or (
+                    cc.max() == c1 - c0 - 1 and c1 < image.width_px
+                )
+                if cut:  # a wall longer than the reach: look again, further out
+                    return closed_slots(image, rings, 3 * CLOSED_WALL_REACH_PX, open_holes)
+            fid = sign * (len(found) + 1)  # + a slot, - a wall
+            found.append((sign, np.column_stack([cc + c0, rr + r0, missing, np.full(rr.size, fid)])))
     if not found:
         return none, []
     pts = np.concatenate([f[1] for f in found])
@@ -275,16 +325,16 @@ def closed_slots(image: LoadedImage, rings: PartRings) -> tuple[np.ndarray, list
     what = " and ".join(
         x
         for x in (
-            f"{slots} narrow slot(s) inside it that never reach the background level (counted as material)"
-            if slots
-            else "",
-            f"{walls} thin wall(s) on it that never reach the part's level (left out)" if walls else "",
+            f"{slots} narrow slot(s) inside it that never reach the background level" if slots else "",
+            f"{walls} thin wall(s) on it that never reach the part's level" if walls else "",
         )
         if x
     )
     warning = (
-        f"part {rings.label}: {what}, about {pts[:, 2].sum():.0f} px2; their uncertainty covers them; scan at a "
-        "higher resolution or with less blur"
+        f"part {rings.label}: {what}, about {pts[:, 2].sum():.0f} px2; measured from the closed profile by the "
+        "integral rule (width across the ridge, ends along it) and added to or taken out of the figures, not the "
+        "drawn outline; less certain than an open edge, and the uncertainty says how much (one whose width "
+        "cannot be told is covered instead); scan at a higher resolution or with less blur"
     )
     return pts, [warning]
 
@@ -1003,6 +1053,7 @@ def resolve_walls(
             f"{100 * part_level_rel_u:.0f} %), and its uncertainty includes that; scan it beside a thick part of "
             "the same material or at a higher resolution"
         )
+    ring_of = np.repeat(np.arange(len(all_rings)), [len(r) for r in all_rings])
     return WallResult(
         new,
         out_u,
@@ -1010,4 +1061,5 @@ def resolve_walls(
         unresolved=n_bad,
         level_source=level_source,
         warnings=warnings,
+        unresolved_holes=tuple(sorted({int(k) for k in ring_of[idx[unresolved]] if k > 0})),
     )
