@@ -22,6 +22,7 @@ from scanmass.segment.thin import (
     EdgeQuantisation,
 )
 from scanmass.uncertainty import (
+    WIGGLE_RATIO,
     build_edge_model,
     combine,
     corner_deficit_mm,
@@ -35,6 +36,7 @@ from scanmass.uncertainty import (
     ring_mean_offset_u,
     roughness_mm,
     threshold_uncertainty,
+    wiggle_excess_mm,
 )
 
 #: Fewest sampled maps from which the scale term is taken as their spread.
@@ -284,7 +286,12 @@ def measure_part(
     # and of the model floor (longer); each a bias taken as a 1-sigma term
     perim_u = {
         "corners": {"perimeter_mm": corner_deficit_mm([outer_mm, *holes_mm], blur * mm_px, mm_px)},
-        "roughness": {"perimeter_mm": roughness_mm(model, np.full(len(model.corr_mm), resid_px) * model.corr_mm)},
+        "roughness": {
+            "perimeter_mm": max(
+                roughness_mm(model, np.full(len(model.corr_mm), resid_px) * model.corr_mm),
+                WIGGLE_RATIO * wiggle_excess_mm([outer_mm, *holes_mm]),
+            )
+        },
     }
     total = {
         k: combine(edge_u.get(k, 0.0), thresh_u.get(k, 0.0), model_u.get(k, 0.0), scale_u.get(k, 0.0)) for k in scale_u
