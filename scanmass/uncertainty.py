@@ -68,6 +68,20 @@ of the part level moves the midpoint by ``(db + df) / 2``, i.e. the normalised v
 the edge by ``(db + df) / (2 c)``. The constant mode moves the whole boundary (area); the
 tilts move it unevenly (centroid, product moment).
 
+The perimeter is not a domain integral: besides a uniform offset (``2 pi d`` per ring in
+the threshold term) it is biased by the boundary's shape, in two terms of its own, each
+the bias's estimated size taken as a 1-sigma term (both measured against shapely on
+rendered scans, see :data:`CORNER_RADIUS_SIGMA` and :data:`WIGGLE_RATIO`):
+
+corners
+    The blur rounds every corner; the traced contour follows a fillet of radius about
+    the blur and is shorter (:func:`corner_deficit_mm`). A smooth outline gets almost
+    nothing.
+roughness
+    Noise and the sampling of sharp edges leave wiggles along the traced ring, which make
+    it longer (:func:`roughness_mm` from the noise model, or the ring's own measured
+    zig-zag, :func:`wiggle_excess_mm`, whichever is larger).
+
 Every figure F is linearised as ``dF = sum_k w_F(k) dn_k l_k`` over boundary vertices k
 with normal displacement ``dn_k`` and attributed boundary length ``l_k``: ``w = 1`` for
 the area, ``(x - xc) / A`` for the centroid, ``(y - yc)^2`` for Ixx, and so on (the
