@@ -40,7 +40,10 @@ relative area error, the centroid error (px and um) and the relative second-mome
 for scanmass, the coverage of its stated uncertainty with image terms only (the scale of
 a synthetic scan is exact, so it runs with dpi_rel_u = 0 and sigma is the "edge" and
 "threshold" terms of part.uncertainty_terms combined): the share of errors within
-3 sigma and the median |error| / sigma, over area, centroid x and y, Ixx, Iyy and Ixy.
+3 sigma and the median |error| / sigma, over area, centroid x and y, Ixx, Iyy and Ixy;
+and on a separate line the same for the perimeter (truth: shapely's length of the
+rendered polygon; sigma: every image term, with the perimeter's own ``corners`` and
+``roughness`` terms).
 
 Targets: issue 2 (p95 area error <= 0.1 %, p95 centroid error <= 0.05 px, median
 second-moment error <= 0.05 %); DESIGN.md ("Error model": 95-99 % of errors within
@@ -453,6 +456,11 @@ def main() -> None:
             row["z"] = {f: abs(signed[f]) / image_sigma[f] if image_sigma[f] > 0 else math.inf for f in FIGURES}
             row["stated_vs_terms"] = max(abs(stated[f] - image_sigma[f]) / image_sigma[f] for f in FIGURES)
             row["scale_term"] = max(abs(terms["scale"][f]) for f in FIGURES)
+            # perimeter: truth from shapely, sigma from all image terms (corners, roughness too)
+            perim_truth = Polygon(case.part.outer_mm, list(case.part.holes_mm)).length
+            perim_sigma = math.sqrt(sum(t.get("perimeter_mm", 0.0) ** 2 for t in image_terms))
+            perim_e = p.perimeter_mm - perim_truth
+            row["perim"] = (perim_e / px_mm, abs(perim_e) / perim_sigma if perim_sigma > 0 else math.inf)
             row["warned"] = bool(row.get("warnings"))
         rows.append(row)
     elapsed = time.perf_counter() - t0
@@ -509,6 +517,14 @@ def main() -> None:
         print(
             f"  worst |error|/sigma {max(worst['z'].values()):.2f} ({worst['family']}); "
             f"cases beyond 5 sigma without a warning: {len(silent)}"
+        )
+        pz = np.array([r["perim"] for r in cov if "perim" in r]).reshape(-1, 2)
+        worst_p = max(cov, key=lambda r: r.get("perim", (0.0, 0.0))[1])
+        print(
+            f"  perimeter (truth: shapely's length; sigma: all image terms): within 3 sigma "
+            f"{100 * np.mean(pz[:, 1] <= 3):.1f} %, median |error|/sigma {np.median(pz[:, 1]):.2f}, "
+            f"median |error| {np.median(np.abs(pz[:, 0])):.3f} px, worst |error|/sigma {pz[:, 1].max():.2f} "
+            f"({worst_p['family']}; error {worst_p['perim'][0]:+.3f} px)"
         )
         print(
             f"  check: stated _u vs edge+threshold terms, max relative difference "

@@ -158,6 +158,7 @@ _TERM_FIGURES = (
     ("iyy_mm4", "Iyy / mm⁴"),
     ("ixy_mm4", "Ixy / mm⁴"),
     ("principal_angle_deg", "I2 axis angle / °"),
+    ("perimeter_mm", "Perimeter / mm"),
 )
 
 
@@ -174,6 +175,7 @@ def _term_rows(p: Part) -> tuple[list[str], list[dict[str, Any]]]:
         "iyy_mm4": p.iyy_u_mm4,
         "ixy_mm4": p.ixy_u_mm4,
         "principal_angle_deg": p.principal_angle_u_deg,
+        "perimeter_mm": p.perimeter_u_mm,
     }
     rows = []
     for key, title in _TERM_FIGURES:

@@ -22,8 +22,10 @@ from scanmass.segment.thin import (
     EdgeQuantisation,
 )
 from scanmass.uncertainty import (
+    WIGGLE_RATIO,
     build_edge_model,
     combine,
+    corner_deficit_mm,
     edge_sigma_mm,
     figure_weights,
     interpolation_residual_px,
@@ -32,7 +34,9 @@ from scanmass.uncertainty import (
     phase_correlation_px,
     removed_material,
     ring_mean_offset_u,
+    roughness_mm,
     threshold_uncertainty,
+    wiggle_excess_mm,
 )
 
 #: Fewest sampled maps from which the scale term is taken as their spread.
@@ -278,14 +282,27 @@ def measure_part(
     thresh_u["perimeter_mm"] = 2 * math.pi * offset_mm * abs(1 - len(holes_mm))
     edge_u["perimeter_mm"] = 0.0
     model_u["perimeter_mm"] = extra_perimeter_u_mm
+    # the perimeter's own terms: corners rounded by the blur (shorter), wiggles of noise
+    # and of the model floor (longer); each a bias taken as a 1-sigma term
+    perim_u = {
+        "corners": {"perimeter_mm": corner_deficit_mm([outer_mm, *holes_mm], blur * mm_px, mm_px)},
+        "roughness": {
+            "perimeter_mm": max(
+                roughness_mm(model, np.full(len(model.corr_mm), resid_px) * model.corr_mm),
+                WIGGLE_RATIO * wiggle_excess_mm([outer_mm, *holes_mm]),
+            )
+        },
+    }
     total = {
         k: combine(edge_u.get(k, 0.0), thresh_u.get(k, 0.0), model_u.get(k, 0.0), scale_u.get(k, 0.0)) for k in scale_u
     }
+    total["perimeter_mm"] = combine(total["perimeter_mm"], *(t["perimeter_mm"] for t in perim_u.values()))
     terms = {
         "edge": edge_u,
         "threshold": thresh_u,
         "model": model_u,
         "scale": scale_u,
+        **perim_u,
         "inputs": {
             "noise_rel": part.noise_rel,
             "blur_px": part.blur_px,
