@@ -411,14 +411,32 @@ def _is_flat(ring: np.ndarray) -> bool:
     return abs(signed_area(ring)) <= 1e-12 * span * span
 
 
+def _flat_and_oriented(ring: np.ndarray, *, ccw: bool) -> tuple[bool, np.ndarray]:
+    """``(_is_flat(ring), orient_ring(ring, ccw=ccw))`` with the ring's signed area computed once.
+
+    ``ring`` comes from ``_as_ring`` (float64, validated). Unless its first vertex again
+    equals its last (then the two calls run as they are), ``_as_ring`` returns a copy of
+    it unchanged, so both calls would compute :func:`~scanmass.geometry.signed_area` of
+    the same values: computed here once, the same float, and the same ring returned.
+    """
+    if ring.shape[0] < 4 or np.array_equal(ring[0], ring[-1]):
+        return _is_flat(ring), orient_ring(ring, ccw=ccw)
+    a = signed_area(ring)
+    span = float(np.max(ring.max(axis=0) - ring.min(axis=0)))
+    flat = abs(a) <= 1e-12 * span * span
+    if (a < 0.0 and ccw) or (a > 0.0 and not ccw):
+        return flat, ring[::-1].copy()
+    return flat, ring.copy()
+
+
 def _prepare_section(outer: np.ndarray, holes: Sequence[np.ndarray]) -> tuple[np.ndarray, list[np.ndarray]]:
     """Validate and orient (outer CCW, holes CW); raise OptionError on bad input."""
     out = _as_ring(outer, "outer")
     if holes is None:
         holes = ()
-    if _is_flat(out):
+    flat, out = _flat_and_oriented(out, ccw=True)
+    if flat:
         raise OptionError("outer ring has zero area (all vertices collinear); pass the part's outline")
-    out = orient_ring(out, ccw=True)
     if isinstance(holes, np.ndarray) and holes.ndim == 2:
         raise OptionError("holes must be a sequence of (N, 2) rings, not a single array; wrap it in a list")
     lo, hi = out.min(axis=0), out.max(axis=0)
@@ -427,13 +445,14 @@ def _prepare_section(outer: np.ndarray, holes: Sequence[np.ndarray]) -> tuple[np
     for k, hole in enumerate(holes):
         name = f"holes[{k}]"
         r = _as_ring(hole, name)
-        if _is_flat(r):
+        flat, oriented = _flat_and_oriented(r, ccw=False)
+        if flat:
             raise OptionError(f"{name} has zero area (all vertices collinear); drop it or pass the hole's outline")
         if np.any(r.min(axis=0) < lo - slack) or np.any(r.max(axis=0) > hi + slack):
             raise OptionError(
                 f"{name} reaches outside the outer ring's bounding box; holes must lie inside the outline"
             )
-        rings.append(orient_ring(r, ccw=False))
+        rings.append(oriented)
     return out, rings
 
 

@@ -286,3 +286,39 @@ def test_raised_outline_in_mm_against_similar_triangles():
     assert np.allclose(foot[left], ring[left], atol=1e-12)  # faces the nadir: the bottom edge, on the mat
     # reversing the ring does not change the answer
     assert np.allclose(raised_outline_mm(h0, cam.k, h_mm, ring[::-1]), foot, atol=1e-12)
+
+
+def test_photo_colour_is_decoded_once(tmp_path, monkeypatch):
+    """The colour checks decode the photo's colour once, also when it turns out grey (issue 16).
+
+    A grey picture stored as a three-channel JPEG (equal channels) has no colour to test:
+    the first decode finds that out and the cast-shadow check must not decode it again.
+    A colour photo is decoded once too, and the same figures come out either way.
+    """
+    import cv2
+
+    import scanmass.pipeline.photo_checks as photo_checks
+
+    grey = render_photo(MAT, [_plate()], _cam(), seed=4)
+    calls: list[str] = []
+    real = cv2.imread
+
+    def counting(path, flags=cv2.IMREAD_COLOR):
+        calls.append(str(path))
+        return real(path, flags)
+
+    monkeypatch.setattr(photo_checks.cv2, "imread", counting)
+    figures = []
+    for name, rgb in (
+        ("grey3.jpg", np.dstack([grey] * 3)),
+        ("tinted.jpg", np.dstack([grey, grey, (grey * 0.97).astype(np.uint8)])),
+    ):
+        path = tmp_path / name
+        Image.fromarray(rgb).save(path, quality=92)
+        calls.clear()
+        m = measure(path, printed_x_mm=100.0, printed_y_mm=100.0)
+        assert calls == [str(path)], name
+        figures.append(m.parts[0].area_mm2)
+    t = truth(_plate().outer_mm, _plate().holes_mm)
+    for area in figures:  # shapely's area of the plate (reference library), the issue's 0.1 %
+        assert area == pytest.approx(t["area"], rel=AREA_RTOL)

@@ -750,3 +750,40 @@ def test_results_are_plain_python_floats():
     for name, value in vars(sp_).items():
         values = value if isinstance(value, tuple) else (value,)
         assert all(type(v) is float for v in values), name
+
+
+def test_orienting_with_one_area_is_the_old_two_calls():
+    """``_flat_and_oriented`` (one signed area per ring, issue 16) equals ``_is_flat`` then ``orient_ring``.
+
+    Rings of either orientation, large offsets, near-flat ones and rings whose first
+    vertex repeats at the end once or twice (those take the old calls): the flag and
+    every coordinate must be the same, bit for bit. A flat ring must still be caught.
+    """
+    rng = np.random.default_rng(16)
+    cases = []
+    for k in range(300):
+        n = int(rng.integers(3, 400))
+        t = np.sort(rng.uniform(0.0, 2 * np.pi, n))
+        ring = np.column_stack([np.cos(t), rng.uniform(0.01, 2.0) * np.sin(t)]) * rng.uniform(1e-3, 1e3)
+        ring += rng.uniform(-1e5, 1e5, 2)
+        if k % 2:
+            ring = ring[::-1]
+        if k % 7 == 0:
+            ring[:, 1] = ring[0, 1] + 1e-13 * (ring[:, 0] - ring[0, 0])  # (nearly) on one line
+        if k % 5 == 0:
+            ring = np.vstack([ring, ring[:1]] + [ring[:1]] * int(k % 2))
+        cases.append(geometry._as_ring(ring))
+    for ring in cases:
+        for ccw in (True, False):
+            try:
+                old = (section._is_flat(ring), orient_ring(ring, ccw=ccw))
+            except OptionError:
+                with pytest.raises(OptionError):
+                    section._flat_and_oriented(ring, ccw=ccw)
+                continue
+            flat, new = section._flat_and_oriented(ring, ccw=ccw)
+            assert flat == old[0] and new.dtype == old[1].dtype and np.array_equal(new, old[1])
+    line = geometry._as_ring([[0.0, 0.0], [1.0, 1.0], [2.0, 2.0], [3.0, 3.0], [5.0, 5.0]])
+    assert section._flat_and_oriented(line, ccw=True)[0]  # all on y = x: zero area (common practice)
+    with pytest.raises(OptionError, match="zero area"):
+        section.section_properties(line)

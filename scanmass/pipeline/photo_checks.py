@@ -199,7 +199,7 @@ def _cast_shadows(
     scale: PhotoScale,
     result: Measurement,
     thickness_mm: float | None,
-    colour: np.ndarray | None = None,
+    colour: np.ndarray | None,
     cut_labels: set[int] | None = None,
 ) -> list[str]:
     """Flag parts whose edge band looks like darkened paper (a cast shadow colour cannot rule out).
@@ -211,13 +211,11 @@ def _cast_shadows(
     include its shadow: an uncertainty term ``cast_shadow`` of half the shadow-like area
     (and the matching centroid, moment and hole terms) and a warning with what to change.
     Parts in ``cut_labels`` had their shadow cut (:func:`_cut_cast_shadows`, term
-    ``shadow_cut``) and are not flagged again.
+    ``shadow_cut``) and are not flagged again. ``colour`` is :func:`_photo_colour` of the
+    photo, decoded once by the caller (None for a grey photo: nothing to test, and no second
+    colour decode to find that out again).
     """
-    if thickness_mm == 0 or not result.parts:
-        return []
-    if colour is None:
-        colour = _photo_colour(image)
-    if colour is None:
+    if thickness_mm == 0 or colour is None or not result.parts:
         return []
     thick = UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
     mm_per_px = scale.plane_map.mm_per_px
