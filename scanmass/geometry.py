@@ -14,7 +14,15 @@ import numpy as np
 
 from scanmass.errors import OptionError
 
-__all__ = ["signed_area", "point_in_ring", "orient_ring", "ring_moments", "ring_perimeter", "offset_ring"]
+__all__ = [
+    "signed_area",
+    "point_in_ring",
+    "orient_ring",
+    "ring_moments",
+    "ring_perimeter",
+    "offset_ring",
+    "vertex_normals",
+]
 
 
 # --------------------------------------------------------------------------
@@ -212,6 +220,24 @@ def ring_perimeter(ring: np.ndarray) -> float:
     r = _as_ring(ring)
     e = np.roll(r, -1, axis=0) - r
     return float(np.hypot(e[:, 0], e[:, 1]).sum())
+
+
+def vertex_normals(ring: np.ndarray) -> np.ndarray:
+    """Unit normals at a ring's vertices, from the chord between each vertex's neighbours.
+
+    The normal is the chord turned clockwise: it points out of a counter-clockwise ring in a
+    y-up frame (and out of a clockwise one in image rows). A vertex whose neighbours coincide
+    gets (0, 0). The ring is used as given (no validation, no closing vertex dropped).
+
+    Examples
+    --------
+    >>> vertex_normals(np.array([[0.0, 0.0], [2.0, 0.0], [2.0, 2.0], [0.0, 2.0]])).round(3).tolist()
+    [[-0.707, -0.707], [0.707, -0.707], [0.707, 0.707], [-0.707, 0.707]]
+    """
+    tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
+    tn = np.hypot(tangent[:, 0], tangent[:, 1])
+    tn[tn == 0] = 1.0
+    return np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
 
 
 def offset_ring(ring: np.ndarray, distance: float) -> np.ndarray:

@@ -226,10 +226,7 @@ def measure_part(
     """
     outer_mm = part.outer_mm
     holes_mm = list(part.holes_mm)
-    if extra_mm:
-        props = section_properties(outer_mm, holes_mm, extra=extra_mm, extra_perimeter_mm=extra_perimeter_mm)
-    else:
-        props = section_properties(outer_mm, holes_mm)
+    props = section_properties(outer_mm, holes_mm, extra=extra_mm or (), extra_perimeter_mm=extra_perimeter_mm)
 
     # -- error model inputs -----------------------------------------------------------
     scale_outer = part.mm_per_px[0]

@@ -13,6 +13,7 @@ import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, ScaleError, SegmentationError
+from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import (
@@ -301,16 +302,12 @@ def _lost_wall(
     if not thickness_mm or scale.camera_matrix is None or part.outline_mm is None:
         return None
     ring = np.asarray(part.outline_mm, float)
-    x, y = ring[:, 0], ring[:, 1]
-    if np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y) < 0:
+    if signed_area(ring) < 0:
         ring = ring[::-1]  # counter-clockwise in mm (y up): outward is to the right of travel
     hook = ElevationHook(scale.plane_map.matrix, scale.camera_matrix, thickness_mm)
     foot = apply_h(hook.g0, ring)
     parallax = apply_h(hook.gh, ring) - foot
-    tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
-    out_mm = np.column_stack([tangent[:, 1], -tangent[:, 0]])
-    out_mm /= np.maximum(np.hypot(out_mm[:, 0], out_mm[:, 1]), 1e-12)[:, None]
-    normal = apply_h(hook.g0, ring + 0.1 * out_mm) - foot
+    normal = apply_h(hook.g0, ring + 0.1 * vertex_normals(ring)) - foot
     normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-12)[:, None]
     size = np.hypot(parallax[:, 0], parallax[:, 1])
     facing = np.sum(normal * parallax, axis=1) < -0.5 * size  # the wall faces the camera here

@@ -27,6 +27,7 @@ and the term of :mod:`scanmass.segment.shadow`'s check stay.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass
 
 import cv2
@@ -237,13 +238,8 @@ def _sweep_depth(
     best_run, unit = 0.0, np.zeros(2)
     for angle in np.radians(np.arange(0.0, 360.0, 11.25)):
         direction = np.array([np.cos(angle), np.sin(angle)])
-        prev, run = np.zeros_like(part_mask), 0.0
-        for k in range(1, int(1.5 * reach_px) + 4):
-            layer = _sweep_layer(mask8, k * direction)
-            new = layer & ~prev
-            prev = layer
-            if not new.any():
-                continue
+        run = 0.0
+        for _, new in _new_layers(mask8, direction, int(1.5 * reach_px) + 4):
             share = np.count_nonzero(new & like) / np.count_nonzero(new)
             if share < 0.5:
                 break
@@ -252,14 +248,8 @@ def _sweep_depth(
             best_run, unit = run, direction
     if best_run < 2:
         return None
-    prev = np.zeros_like(part_mask)
     steps, levels, roughs, shares = [], [], [], []
-    for k in range(1, int(1.5 * reach_px) + 12):
-        layer = _sweep_layer(mask8, k * unit)
-        new = layer & ~prev
-        prev = layer
-        if not new.any():
-            continue
+    for k, new in _new_layers(mask8, unit, int(1.5 * reach_px) + 12):
         steps.append(k)
         levels.append(float(np.median(level[new])))
         roughs.append(float(np.median(rough[new])))
@@ -333,6 +323,17 @@ def _line_kernel(step: np.ndarray) -> tuple[np.ndarray, tuple[int, int]]:
     ax, ay = (0 if dx >= 0 else w - 1), (0 if dy >= 0 else h - 1)
     cv2.line(kernel, (ax, ay), (ax + dx, ay + dy), 1, 1)
     return kernel, (ax, ay)
+
+
+def _new_layers(mask8: np.ndarray, direction: np.ndarray, stop: int) -> Iterator[tuple[int, np.ndarray]]:
+    """(k, pixels) the sweep by ``k * direction`` adds beyond the sweep by ``k - 1``, for k in 1 .. stop - 1 (empty ones left out)."""
+    prev = np.zeros(mask8.shape, bool)
+    for k in range(1, stop):
+        layer = _sweep_layer(mask8, k * direction)
+        new = layer & ~prev
+        prev = layer
+        if new.any():
+            yield k, new
 
 
 def _sweep_layer(mask8: np.ndarray, step: np.ndarray) -> np.ndarray:

@@ -25,7 +25,7 @@ import cv2
 import numpy as np
 from skimage.measure import find_contours
 
-from scanmass.geometry import signed_area
+from scanmass.geometry import signed_area, vertex_normals
 from scanmass.numeric import nonzero_rc
 from scanmass.segment.distance import exact_distance
 
@@ -93,10 +93,7 @@ def _ring_lengths(ring: np.ndarray) -> np.ndarray:
 
 def _outward_normals(ring: np.ndarray) -> np.ndarray:
     """Unit outward normals of a ring (either orientation), image frame."""
-    tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
-    tn = np.hypot(tangent[:, 0], tangent[:, 1])
-    tn[tn == 0] = 1.0
-    normal = np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
+    normal = vertex_normals(ring)
     return normal if signed_area(ring) > 0 else -normal
 
 

@@ -32,6 +32,8 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.geometry import vertex_normals
+
 __all__ = [
     "ShadowRisk",
     "shadow_risk",
@@ -201,13 +203,6 @@ class EdgeProfileRisk:
     kinds: dict
 
 
-def _ring_normals(ring_px: np.ndarray) -> np.ndarray:
-    tangent = np.roll(ring_px, -1, axis=0) - np.roll(ring_px, 1, axis=0)
-    tn = np.hypot(tangent[:, 0], tangent[:, 1])
-    tn[tn == 0] = 1.0
-    return np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
-
-
 def edge_profile_risk(
     lin: np.ndarray,
     part_mask: np.ndarray,
@@ -244,7 +239,7 @@ def edge_profile_risk(
     (True, True)
     """
     n = len(ring_px)
-    normals = _ring_normals(ring_px)
+    normals = vertex_normals(ring_px)
     probe = ring_px + 2.5 * normals
     pi = np.clip(np.round(probe).astype(int), 0, [part_mask.shape[1] - 1, part_mask.shape[0] - 1])
     if np.mean(part_mask[pi[:, 1], pi[:, 0]]) > 0.5:

@@ -24,6 +24,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.geometry import vertex_normals
 from scanmass.load.decode import LoadedImage, lookup
 from scanmass.segment.rings import PartRings
 from scanmass.segment.thin import _crossings
@@ -44,10 +45,7 @@ class EdgeSymmetry:
 
 
 def _outward_normals(ring: np.ndarray) -> np.ndarray:
-    tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
-    tn = np.hypot(tangent[:, 0], tangent[:, 1])
-    tn[tn == 0] = 1.0
-    normal = np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
+    normal = vertex_normals(ring)
     if float(np.sum(np.einsum("ij,ij->i", normal, ring - ring.mean(axis=0)))) < 0:
         normal = -normal
     return normal

@@ -47,7 +47,7 @@ from dataclasses import dataclass, field, replace
 import cv2
 import numpy as np
 
-from scanmass.geometry import signed_area
+from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage, lookup
 from scanmass.numeric import nonzero_every, nonzero_rc
 from scanmass.segment.closedfeat import is_sliver
@@ -533,10 +533,7 @@ def _ndtr(x: np.ndarray) -> np.ndarray:
 
 def _normals(ring: np.ndarray, outer: bool) -> np.ndarray:
     """Unit normals at the vertices pointing away from the material."""
-    tangent = np.roll(ring, -1, axis=0) - np.roll(ring, 1, axis=0)
-    tn = np.hypot(tangent[:, 0], tangent[:, 1])
-    tn[tn == 0] = 1.0
-    normal = np.column_stack([tangent[:, 1], -tangent[:, 0]]) / tn[:, None]
+    normal = vertex_normals(ring)
     # away from the ring's inside for the outer ring, into the hole for a hole
     inside_sign = 1.0 if signed_area(ring) > 0 else -1.0
     normal *= inside_sign
