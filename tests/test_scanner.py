@@ -143,20 +143,28 @@ def test_black_parts_scan_measures_the_face_on_the_glass():
 
 
 @pytest.mark.slow
-def test_steel_parts_as_dark_as_their_shadow_are_flagged_and_covered():
-    """Brushed steel reflects the scanner's dark inside and is as dark as the shadow: the face cannot be
-    told from it, the outline keeps the shadow, and the warning and the term say so."""
+def test_steel_parts_as_dark_as_their_shadow_are_separated_by_the_sweep():
+    """Brushed steel reflects the scanner's dark inside: its shadow on the lid runs from lighter than the
+    face (far end) to darker (next to it), so no level tells them apart. The shadow is the face swept
+    along the lamp: its length is where the sharp step lies behind the soft front, and the face is what
+    the sweep leaves. The holes (dark floors in their walls' shadow, the bore partly lit) are found too.
+
+    Truth: the render's outlines (benchmarks/render_reallight.py), areas by shapely. Before the sweep
+    the outlines held the shadows: +29 % and +31 % in area, every hole missed."""
     image, truth, parts = _render("scan-steel-lamp35")
     m = scanmass.measure(image, dpi=truth["dpi"])
     assert len(m.parts) == 2
-    flagged = [w for w in m.warnings if "face on the glass cannot be told from it" in w]
-    assert len(flagged) == 2 and all("lay white paper on the glass around the part" in w for w in flagged)
+    assert not any("face on the glass cannot be told from it" in w for w in m.warnings)
+    assert any(w.startswith("scan of thick parts: the lamp's shadow beside part(s) 1") for w in m.warnings)
     for tp in parts:
         part = _nearest(m, tp["centroid"])
-        assert part.area_mm2 > 1.2 * tp["area"]  # the shadow is in the outline ...
-        assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2  # ... and in the uncertainty
+        assert abs(part.area_mm2 - tp["area"]) <= 0.005 * tp["area"]  # measured +0.22 % and +0.11 %
+        assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
         for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
-            assert abs(c - t) <= 3 * u
+            assert abs(c - t) <= 0.05 and abs(c - t) <= 3 * u  # measured within 0.012 mm
+        # every hole found, each within 0.05 mm of its diameter (measured within 0.015 mm)
+        assert sorted(h.diameter_mm for h in part.holes) == pytest.approx(sorted(tp["holes"]), abs=0.05)
+        assert "scan_shadow" in part.uncertainty_terms
 
 
 def test_clean_scans_have_no_shadow():
@@ -221,13 +229,86 @@ def test_shadow_lighter_than_the_part_is_left_out(part, shadow_mm):
     assert "top side" in m.warnings[-1]
 
 
-@pytest.mark.parametrize("part", [PLATE, DISC])
-def test_shadow_as_dark_as_the_part_is_flagged_and_covered(part):
+@pytest.mark.parametrize(("part", "outcome"), [(PLATE, "separated"), (DISC, "flagged")])
+def test_shadow_as_dark_as_the_part_is_separated_or_flagged(part, outcome):
+    """A shadow 0.01 above the part's level (noise 0.004): no level separates them. The plate's straight
+    front puts one sharp step the shadow's length behind it, and the sweep finds the face; the disc's
+    curved front gives too weak a step there, so its outline keeps the shadow, flagged and covered."""
     m = scanmass.measure(_shadow_scan(part, 6.0, shadow=0.05), dpi=300)
     (found,) = m.parts
     poly = Polygon(part.outer_mm)
-    assert found.area_mm2 > poly.area + 0.8 * 6.0 * 30.0  # the shadow is in the outline ...
-    assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2  # ... and in the uncertainty
+    assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2
     for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
         assert abs(c - t) <= 3 * u
-    assert any("face on the glass cannot be told from it" in w for w in m.warnings)
+    if outcome == "separated":
+        assert abs(found.area_mm2 - poly.area) <= 0.003 * poly.area  # measured +0.06 %
+        assert m.settings["scan_face"]["shadow_left_out"]["1"] == pytest.approx(50.0 * 6.0, rel=0.15)  # 50 mm wide
+    else:
+        assert found.area_mm2 > poly.area + 0.8 * 6.0 * 30.0  # the shadow is in the outline ...
+        assert any("face on the glass cannot be told from it" in w for w in m.warnings)
+
+
+def _crossing_shadow_scan(
+    part: SynthPart, shadow_mm: float, *, soft_px: float = 6.0, dpi: float = 300.0, seed: int = 2
+):
+    """A steel-like part (0.16) whose shadow crosses its level: 0.09 next to it, 0.25 at the far end.
+
+    The shadow is the part swept along +y up to ``shadow_mm``: each sweep distance t paints
+    its level 0.09 + 0.16 t / shadow_mm, nearer ones over farther ones (the lid's scattered
+    light, from the open side). A hole's floor is the lid seen through the hole: where the
+    swept part covers it, in its wall's shadow and closed in by the walls, 0.05 (the floors'
+    level in the Cycles render scan-steel-lamp35); beyond, lit (0.85). The shadow layer is
+    blurred by ``soft_px`` (the lamp's size, the lid out of focus), the part's exact coverage
+    painted over it, then the optics' 0.8 px blur, noise and sRGB.
+    """
+    import cv2
+
+    from scanmass.testing.scans import part_coverage, srgb_encode
+
+    s = 25.4 / dpi
+    shape = (int(round(80.0 / s)), int(round(90.0 / s)))
+    cov = part_coverage([part], shape=shape, mm_per_px=s)
+    in_hole = part_coverage([SynthPart(h) for h in part.holes_mm], shape=shape, mm_per_px=s)
+    layer = np.full(shape, 0.85)
+    shade = np.zeros(shape)
+    for t in np.linspace(shadow_mm, 0.0, 61):
+        moved = SynthPart(part.outer_mm + [0.0, t], [h + [0.0, t] for h in part.holes_mm])
+        c = part_coverage([moved], shape=shape, mm_per_px=s)
+        layer = layer * (1.0 - c) + (0.09 + 0.16 * t / shadow_mm) * c
+        shade = np.maximum(shade, c)
+    floor = 0.05 * shade + 0.85 * (1.0 - shade)
+    layer = cv2.GaussianBlur(layer * (1.0 - in_hole) + floor * in_hole, (0, 0), soft_px)
+    lin = cv2.GaussianBlur(0.16 * cov + layer * (1.0 - cov), (0, 0), 0.8)
+    lin = np.clip(lin + np.random.default_rng(seed).normal(0.0, 0.004, lin.shape), 0.0, 1.0)
+    return np.round(srgb_encode(lin) * 255).astype(np.uint8)
+
+
+def test_shadow_crossing_the_parts_level_is_left_out_by_the_sweep():
+    """Exact coverage: a 40 x 25 mm plate with holes of 3 and 4.5 mm radius, its shadow 7 mm long crossing
+    its level. Truth: shapely's area, centroid and the holes' equal-area diameters (6 and 9 mm).
+    Measured: area +0.85 % (the face's edge against the blurred shadow sits 1.6 px out), centroid
+    0.04 mm, holes -0.13 and -0.02 mm; before the sweep the outline held the shadow (+41 %)."""
+    plate = SynthPart(rectangle(25.0, 15.0, 40.0, 25.0), [circle(35.0, 27.0, 3.0), circle(53.0, 25.0, 4.5)])
+    m = scanmass.measure(_crossing_shadow_scan(plate, 7.0), dpi=300)
+    (found,) = m.parts
+    poly = Polygon(plate.outer_mm, plate.holes_mm)
+    assert abs(found.area_mm2 - poly.area) <= 0.01 * poly.area
+    assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2
+    for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
+        assert abs(c - t) <= 0.06 and abs(c - t) <= 3 * u
+    holes = [2 * math.sqrt(Polygon(h).area / math.pi) for h in plate.holes_mm]
+    assert sorted(h.diameter_mm for h in found.holes) == pytest.approx(sorted(holes), abs=0.15)
+    assert m.settings["scan_face"]["shadow_left_out"]["1"] > 0.8 * 40.0 * 7.0
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="a shadow front blurred by only 3 px is not seen as soft: no shadow "
+    "is looked for and the outline keeps it (+41 %) without a warning; known gap",
+)
+def test_shadow_with_a_hard_front_is_left_out_or_flagged():
+    plate = SynthPart(rectangle(25.0, 15.0, 40.0, 25.0), [circle(35.0, 27.0, 3.0), circle(53.0, 25.0, 4.5)])
+    m = scanmass.measure(_crossing_shadow_scan(plate, 7.0, soft_px=3.0), dpi=300)
+    (found,) = m.parts
+    poly = Polygon(plate.outer_mm, plate.holes_mm)
+    assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2

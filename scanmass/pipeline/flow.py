@@ -380,7 +380,8 @@ def measure_image(
     encoding_note = None
     extra_warnings: list[str] = []
     shift_px = untagged_reading_shift(image, seg.parts) if options.encoding == "auto" else None
-    limits = _edge_limits(image, seg.parts, options, closed=roi_px is None)
+    own_levels = {label for label, face in faces.items() if face.local_levels}
+    limits = _edge_limits(image, seg.parts, options, closed=roi_px is None, own_levels=own_levels)
     parts = []
     warnings = extra_warnings + list(seg.warnings)
     for quant, walls in limits:
@@ -524,7 +525,12 @@ def _below(area_mm2: float) -> str:
 
 
 def _edge_limits(
-    image: LoadedImage, found: list[PartRings], options: MeasureOptions, *, closed: bool = True
+    image: LoadedImage,
+    found: list[PartRings],
+    options: MeasureOptions,
+    *,
+    closed: bool = True,
+    own_levels: frozenset[int] | set[int] = frozenset(),
 ) -> list[tuple[EdgeQuantisation | None, WallResult]]:
     """Per part: the quantisation steps at its edge, and its rings after the thin-wall step.
 
@@ -533,13 +539,14 @@ def _edge_limits(
     a thick region takes its level from the other parts of the image (same material). With
     ``closed`` (scans: in a photo a shadow beside a part would look like a wall), slots and
     walls too narrow for any contour are looked for and the walls' ends get their windows.
+    Parts in ``own_levels`` (labels) had their rings placed against local levels (a scan's
+    face told from a shadow as dark as it): the integral rule, which reads the image's two
+    levels, leaves them as they are.
     """
     quants = [edge_quantisation(image, r) for r in found]
     if options.threshold is not None or abs(options.level - 0.5) > 1e-9:
-        return [
-            (q, WallResult(r, [np.zeros(len(x)) for x in [r.outer_px, *r.holes_px]])) for q, r in zip(quants, found)
-        ]
-    results = [resolve_walls(image, r, ends=closed) for r in found]
+        return [(q, _as_found(r)) for q, r in zip(quants, found)]
+    results = [_as_found(r) if r.label in own_levels else resolve_walls(image, r, ends=closed) for r in found]
     good = [
         q.level_ratio
         for q, w in zip(quants, results)
@@ -551,10 +558,17 @@ def _edge_limits(
             if w.unresolved and "thick" not in w.level_source:
                 results[i] = resolve_walls(image, found[i], level_ratio_hint=hint, ends=closed)
     for i, w in enumerate(results if closed else []):
+        if found[i].label in own_levels:
+            continue
         lacking, notes = closed_slots(image, w.rings, open_holes=w.unresolved_holes)
         if len(lacking):
             results[i] = replace(w, closed_px=lacking, warnings=w.warnings + notes)
     return list(zip(quants, results))
+
+
+def _as_found(rings: PartRings) -> WallResult:
+    """The rings as found: no thin-wall correction and no wall uncertainty."""
+    return WallResult(rings, [np.zeros(len(x)) for x in [rings.outer_px, *rings.holes_px]])
 
 
 def _closed_measured(

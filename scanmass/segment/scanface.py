@@ -19,7 +19,7 @@ and the caller is told how large the shadow may be.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import cv2
 import numpy as np
@@ -56,6 +56,30 @@ MIN_SHADOW_STEP = 0.03
 FACE_SEED = 0.1
 
 
+#: A part as dark as its shadow is separated by the sweep (the shadow's length from the sharp step behind
+#: its soft front) when the step's mean gradient there stands this many times above the search's median.
+SWEEP_MIN_PROMINENCE = 4.0
+
+#: Shortest shadow (px) the sweep looks for: shorter ones are within the front's own soft ramp.
+SWEEP_MIN_LENGTH_PX = 6
+
+#: The seed stops this many px short of the face's edge against the shadow (the step's own blur).
+SWEEP_MARGIN_PX = 4
+
+#: The level step across the face's edge is read this many px either side of it.
+SWEEP_STEP_READ_PX = 5
+
+#: A patch of the face is a hole only if the gradient on its rim is at least this share of its contrast per px
+#: (a step in focus, blurred by about 1 px, has about 0.4; a metal's sheen fades over many px).
+SWEEP_HOLE_RIM = 0.1
+
+#: A hole's joined floor patches are replaced by their convex hull unless it adds more than this share.
+SWEEP_HULL_GAIN = 0.1
+
+#: Width (px) of the Gaussian that carries the face's level (a metal's sheen varies slowly).
+SWEEP_LEVEL_SIGMA_PX = 8.0
+
+
 @dataclass
 class FaceResult:
     """The face on the glass of one part, or why it could not be separated (pixels, image frame).
@@ -83,6 +107,25 @@ class FaceResult:
     note: str
     #: per vertex of ``outer_px``: on the face's edge against its shadow (moved from the found outline)
     shadow_edge: np.ndarray | None = None
+    #: the rings were placed against local levels that the image's two levels do not describe (a face as
+    #: dark as its shadow, holes with lit and shadowed floors): thin-wall steps must leave them alone
+    local_levels: bool = False
+
+
+@dataclass
+class _Found:
+    """The found outline of one part and what the face check read off it (pixels, crop at ``origin``)."""
+
+    origin: np.ndarray
+    found: np.ndarray
+    outer: np.ndarray
+    holes_px: list[np.ndarray]
+    soft: np.ndarray
+    lengths: np.ndarray
+    normals: np.ndarray
+    direction: np.ndarray
+    soft_len: float
+    levels: tuple[float, float, float]
 
 
 def _ring_lengths(ring: np.ndarray) -> np.ndarray:
@@ -146,7 +189,6 @@ def scan_face(
     .. [1] W. E. Lorensen and H. E. Cline, "Marching cubes", SIGGRAPH 1987, in its 2-D
        form as implemented by ``skimage.measure.find_contours`` (the face's rings).
     """
-    from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
 
     outer = np.asarray(outer_px, float)
     grad = np.asarray(gradient_px, float)
@@ -218,8 +260,9 @@ def scan_face(
             levels=levels,
             note="soft edges",
         )
+    ctx = _Found(origin, found, outer, list(holes_px), soft, lengths, normals, direction, soft_len, levels)
     if gap < max(MIN_FACE_SHADOW_CONTRAST * (lid - part), 6.0 * noise):
-        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+        return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
     # the face: the region at the part's own level (nearer it than the shadow's, which darkens
     # towards inner corners); its edges are then placed by the local levels either side
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.2)
@@ -228,21 +271,61 @@ def scan_face(
     face0: np.ndarray = cv2.morphologyEx(seed_mask, cv2.MORPH_OPEN, kernel)
     count, comp, stats, _ = cv2.connectedComponentsWithStats(face0, connectivity=8)
     if count < 2:
-        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+        return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
     biggest = 1 + int(np.argmax(stats[1:, cv2.CC_STAT_AREA]))
     face0 = np.asarray(comp == biggest, dtype=np.uint8)
     if face0.sum() < 0.3 * total:
-        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+        return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
+    return (
+        _face_from_seed(linear, ctx, face0, part, gap, min_hole_px)
+        or _face_by_sweep(linear, ctx, min_hole_px)
+        or _unseparated(ctx, total)
+    )
+
+
+def _face_from_seed(
+    linear: np.ndarray,
+    ctx: _Found,
+    face0: np.ndarray,
+    part: float | np.ndarray,
+    gap: float,
+    min_hole_px: float,
+    *,
+    sharp_holes: bool = False,
+    not_face: np.ndarray | None = None,
+) -> FaceResult | None:
+    """The face's rings from a seed region at the part's level, placed by the local levels either side.
+
+    Each edge of the seed is moved to the midpoint between the part's level (a number, or
+    a surface over the face) and the local background beside it (the lid, the shadow or a
+    hole's floor); None when the result does not look like a face with its shadow beside it
+    (the found outline's sharp back edges not kept, no sharp step against the shadow
+    (``gap`` high), or removed pixels not beyond the face along the lamp's direction).
+    With ``sharp_holes`` only inner rings as sharp as the face's edges (half their median
+    slope) are holes: a hole's edge on the glass is in focus, a metal's sheen is not.
+    ``not_face`` marks known holes (to their rims): inside them, deeper than 2 px, nothing
+    counts as face whatever its level.
+    """
+    from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
+
+    origin, found, outer, holes_px = ctx.origin, ctx.found, ctx.outer, ctx.holes_px
+    soft, lengths, normals, direction = ctx.soft, ctx.lengths, ctx.normals, ctx.direction
+    lid, part_level = ctx.levels[0], ctx.levels[2]
+    shape = linear.shape
+    kernel = np.ones((3, 3), np.uint8)
     # local background next to each face edge: the lid, the shadow, or a hole's floor
     grown = cv2.dilate(face0, kernel, iterations=3).astype(bool)
     background = _normalised_blur(linear, ~grown, 4.0, lid)
     band = cv2.dilate(face0, kernel, iterations=4).astype(bool) & ~cv2.erode(face0, kernel, iterations=4).astype(bool)
     contrast = part - background
-    safe = np.where(np.abs(contrast) < 0.02 * (lid - part), -0.02 * (lid - part), contrast)
+    safe = np.where(np.abs(contrast) < 0.02 * (lid - part_level), -0.02 * (lid - part_level), contrast)
     norm = np.zeros((shape[0] + 2, shape[1] + 2), np.float32)
     norm[1:-1, 1:-1] = cv2.erode(face0, kernel, iterations=4)
     rows, cols = nonzero_rc(band)
     norm[rows + 1, cols + 1] = np.clip((linear[rows, cols] - background[rows, cols]) / safe[rows, cols], -0.5, 1.5)
+    if not_face is not None:  # known holes: only their rims (2 px) are read, not their floors' own levels
+        deep = cv2.erode(not_face.astype(np.uint8), kernel, iterations=2).astype(bool)
+        norm[1:-1, 1:-1][deep] = np.minimum(norm[1:-1, 1:-1][deep], 0.0)
     rings = []
     for ring in find_contours(norm, 0.5, fully_connected="high"):
         if len(ring) < 4 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
@@ -251,13 +334,16 @@ def scan_face(
         xy = np.column_stack([ring_rc[:, 1] - 1 + origin[0], ring_rc[:, 0] - 1 + origin[1]])
         rings.append((xy, signed_area(xy), g, slope))
     if not rings:
-        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+        return None
     rings.sort(key=lambda r: -abs(r[1]))
     face_outer, face_area, face_grad, face_slope = rings[0]
     holes, hole_grads, slopes = [], [], [face_slope]
+    sharp = float(np.median(np.abs(face_slope)))
     for xy, area, g, slope in rings[1:]:
         if math.copysign(1.0, area) == math.copysign(1.0, face_area) or abs(area) < min_hole_px:
             continue
+        if sharp_holes and float(np.median(np.abs(slope))) < SOFT_RATIO * sharp:
+            continue  # a soft patch of the face's own (a metal's sheen), not a hole's edge in focus
         holes.append(xy)
         hole_grads.append(g)
         slopes.append(slope)
@@ -265,25 +351,25 @@ def scan_face(
     back = ~soft & ((normals @ direction) < -0.3)
     kept = _distance_to_ring(outer[back], face_outer, origin, shape) <= 2.0
     if back.sum() < 8 or float((lengths[back] * kept).sum()) < 0.8 * float(lengths[back].sum()):
-        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+        return None
     # ... and its edge against the shadow is a sharp step from the part's level to the shadow's:
     # its gradient (linear light per px) at least 0.25 of a step of that height blurred as its other edges
     moved = _distance_to_ring(face_outer, outer, origin, shape) > 2.0
     if moved.sum() < 4 or (~moved).sum() < 8:
-        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+        return None
     blur_kept = _blur_from_gradient(float(np.median(np.abs(face_slope[~moved]))))
     cols = np.clip(np.round(face_outer[moved, 0] - origin[0]).astype(int), 0, shape[1] - 1)
     rows = np.clip(np.round(face_outer[moved, 1] - origin[1]).astype(int), 0, shape[0] - 1)
     step_grad = float(np.median(face_grad[moved] * np.abs(contrast[rows, cols])))
     if step_grad < 0.25 * gap / (math.sqrt(2.0 * math.pi) * max(blur_kept, 0.5)):
-        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+        return None
     # ... and what it leaves out lies beyond the face along the lamp's direction (a cast shadow),
     # not beside it (as a part's own brighter patches would)
     contours, _ = cv2.findContours(face0, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
     face_filled = np.zeros(shape, np.uint8)
     cv2.drawContours(face_filled, contours, -1, 1, thickness=cv2.FILLED)
     if _upstream_share(found.astype(bool) & ~face_filled.astype(bool), face0.astype(bool), direction) > 0.1:
-        return _unseparated(outer, soft, soft, lengths, normals, direction, soft_len, levels, total)
+        return None
     blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
     face_outer = correct_curvature(face_outer, blur)
     holes = [correct_curvature(h, blur) for h in holes]
@@ -296,12 +382,191 @@ def scan_face(
         hole_gradients_px=hole_grads,
         shadow_px2=max(0.0, found_px2 - face_px2),
         direction=(float(direction[0]), float(direction[1])),
-        soft_length_px=soft_len,
+        soft_length_px=ctx.soft_len,
         shadow_edge_px=float(_ring_lengths(face_outer)[moved].sum()),
-        levels=levels,
+        levels=ctx.levels,
         note="separated",
         shadow_edge=moved,
     )
+
+
+def _up(a: np.ndarray, direction: np.ndarray) -> np.ndarray:
+    """``a`` turned (flipped and transposed, no resampling) so that ``direction`` points up the rows."""
+    if direction[0] != 0.0:
+        a = a.T
+    return a[::-1] if float(direction.sum()) > 0.0 else a
+
+
+def _shadow_length(smooth: np.ndarray, filled: np.ndarray) -> tuple[int, float, float]:
+    """The shadow's length (px) along the rows' upward direction, how clearly it shows, and the step there.
+
+    Every found pixel with no found pixel above it is a front: the shadow's soft outer end,
+    cast by the face's edge ``L`` px further down. Read at that offset, the rows' gradient
+    is a sharp step wherever the front is, so its mean over the fronts, as a function of
+    ``L``, peaks at the shadow's length; elsewhere it samples the face's and the shadow's
+    gentle slopes and the odd hole. Returned: ``L``, the peak's height over the median of
+    the search range (its prominence), and the median level step across the face's edge
+    there (linear light; 0 when nothing is found).
+    """
+    h = smooth.shape[0]
+    grad = np.zeros_like(smooth)
+    grad[1:-1] = 0.5 * (smooth[2:] - smooth[:-2])
+    grad = np.abs(grad)
+    inside = filled.astype(bool)
+    front = inside.copy()
+    front[1:] &= ~inside[:-1]
+    rows, cols = nonzero_rc(front)
+    if rows.size < 16:
+        return 0, 0.0, 0.0
+    extent = int(np.max(np.count_nonzero(inside, axis=0)))
+    offsets = np.arange(extent)
+    at = rows[None, :] + offsets[:, None]
+    ok = at < h
+    score = np.where(ok, grad[np.minimum(at, h - 1), cols[None, :]], 0.0).sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
+    # the front's own soft ramp: skip it (until the score, smoothed over 3 offsets, stops falling)
+    smoothed = np.convolve(score, np.ones(3) / 3.0, mode="same")
+    start = 1
+    while start < extent - 8 and smoothed[start + 1] < smoothed[start]:
+        start += 1
+    if start >= extent - 8:
+        return 0, 0.0, 0.0
+    window = score[start : max(start + 1, int(0.9 * extent))]
+    length = start + int(np.argmax(window))
+    prominence = float(window.max() / max(float(np.median(window)), 1e-12))
+    lo, hi = rows + length - SWEEP_STEP_READ_PX, rows + length + SWEEP_STEP_READ_PX
+    both = (lo >= 0) & (hi < h)
+    both[both] &= inside[lo[both], cols[both]] & inside[hi[both], cols[both]]
+    if both.sum() < 8:
+        return length, prominence, 0.0
+    step = float(np.median(np.abs(smooth[hi[both], cols[both]] - smooth[lo[both], cols[both]])))
+    return length, prominence, step
+
+
+def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float) -> FaceResult | None:
+    """The face of a part as dark as its shadow, from the shadow being the face swept along the lamp.
+
+    Parallel light along ``direction`` and a flat lid make the shadow the face swept by
+    one vector: the found region is the face's Minkowski sum with a segment of the
+    shadow's length ``L`` (:func:`_shadow_length`, from the sharp step that lies ``L``
+    behind every point of the soft front). Eroding the found region by that segment (and a
+    few px more) leaves a seed inside the face [1]_; pixels of the seed that stand out of
+    the face's smooth level by half the face-to-shadow step are a hole's floor (a deep
+    hole is in the shadow of its own wall) and are left out. The seed's edges are then
+    placed by the local levels either side (:func:`_face_from_seed`, with the face's own
+    level surface rather than one level).
+
+    References
+    ----------
+    .. [1] J. Serra, Image Analysis and Mathematical Morphology, Academic Press, 1982
+       (erosion by a structuring element; the opening of a Minkowski sum).
+    """
+    direction = ctx.direction
+    smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
+    filled = np.zeros(linear.shape, np.uint8)
+    cv2.fillPoly(filled, [np.round((ctx.outer - ctx.origin) * 16).astype(np.int32)], 1, shift=4)
+    length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction))
+    if length < SWEEP_MIN_LENGTH_PX or prominence < SWEEP_MIN_PROMINENCE or step <= 0.0:
+        return None
+    reach = length + SWEEP_MARGIN_PX
+    segment = np.ones((reach + 1, 1), np.uint8)
+    seed_up = cv2.erode(_up(ctx.found, direction), segment, anchor=(0, reach), borderValue=0)
+    seed = np.ascontiguousarray(_up(seed_up, direction))  # the same flips and transpose undo themselves
+    swept_off = ctx.found.astype(bool) & ~seed.astype(bool)  # the shadow's side, cut back past the face's edge
+    kernel = np.ones((3, 3), np.uint8)
+    seed = cv2.erode(seed, kernel, iterations=3)
+    if seed.sum() < 0.3 * float(ctx.found.sum()):
+        return None
+    # the face's smooth level surface; what stands out of it by half the step is not face
+    keep = seed.astype(bool)
+    for _ in range(2):
+        level = _normalised_blur(smooth, keep, SWEEP_LEVEL_SIGMA_PX, ctx.levels[2])
+        keep = seed.astype(bool) & (np.abs(smooth - level) < 0.5 * step)
+    dev = np.abs(smooth - level)
+    gy, gx = np.gradient(smooth)
+    slope = np.hypot(gx, gy)
+    # a hole: a patch that stands out by more than the step (its floor is the lid, in its wall's shadow
+    # or lit), grown to its own midpoint on its own side of the face's level (a dark floor does not run
+    # into a bright glint beside it); smaller departures are the face's sheen
+    lo, hi = _face_range(smooth[seed.astype(bool)], step)
+    odd = seed.astype(bool) & ((dev >= step) | (smooth < lo - 0.5 * step) | (smooth > hi + 0.5 * step))
+    count, comp, stats, _ = cv2.connectedComponentsWithStats(odd.astype(np.uint8))
+    hole = np.zeros(seed.shape, np.uint8)
+    for k in range(1, count):
+        if stats[k, cv2.CC_STAT_AREA] < min_hole_px:
+            continue
+        patch = np.asarray(comp == k, dtype=np.uint8)
+        core = float(np.median((smooth - level)[patch.astype(bool)]))
+        floor = ((smooth - level) * math.copysign(1.0, core) >= 0.5 * abs(core)).astype(np.uint8)
+        for _ in range(3):
+            patch = cv2.dilate(patch, kernel) & floor
+        rim = cv2.dilate(patch, kernel).astype(bool) & ~patch.astype(bool)
+        if np.median(slope[rim]) >= SWEEP_HOLE_RIM * abs(core):  # a sharp rim: a hole's edge on the glass
+            hole |= patch
+    hole |= (filled.astype(bool) & ~ctx.found.astype(bool)).astype(np.uint8)  # holes found as such (lit floors)
+    hole = _joined_floors(hole)
+    face0 = (seed.astype(bool) & ~hole).astype(np.uint8)
+    # grown back to the face's edges (the seed stops short of them): on the shadow's side through pixels at
+    # the face's level, elsewhere up to the found outline (the lid's midpoint) and the holes' midpoints
+    near = (ctx.found.astype(bool) & ~hole & (~swept_off | (dev < 0.5 * step))).astype(np.uint8)
+    for _ in range(SWEEP_MARGIN_PX + 8):
+        face0 = np.asarray(cv2.dilate(face0, kernel) & near, dtype=np.uint8)
+    face0 = np.asarray(cv2.morphologyEx(face0, cv2.MORPH_OPEN, kernel, iterations=3), dtype=np.uint8)
+    count, comp, stats, _ = cv2.connectedComponentsWithStats(face0, connectivity=8)
+    if count < 2:
+        return None
+    face0 = np.asarray(comp == 1 + int(np.argmax(stats[1:, cv2.CC_STAT_AREA])), dtype=np.uint8)
+    part_surface = _normalised_blur(linear, face0.astype(bool), SWEEP_LEVEL_SIGMA_PX, ctx.levels[2])
+    face = _face_from_seed(linear, ctx, face0, part_surface, step, min_hole_px, sharp_holes=True, not_face=hole)
+    return None if face is None else replace(face, local_levels=True, note="separated by the sweep")
+
+
+def _face_range(values: np.ndarray, step: float) -> tuple[float, float]:
+    """The range of the face's own levels: the seed's main histogram mode, to where it falls below 1 % of its peak.
+
+    A face's sheen and shading spread its levels over one connected mode; a hole's floor (the
+    lid in shadow, or lit) lies apart from it. Bins are a quarter of the face-to-shadow step.
+    """
+    width = max(step / 4.0, 1e-6)
+    lo_v, hi_v = float(values.min()), float(values.max())
+    bins = max(1, min(4096, int(np.ceil((hi_v - lo_v) / width))))
+    counts, edges = np.histogram(values, bins=bins, range=(lo_v, lo_v + bins * width))
+    peak = int(np.argmax(counts))
+    floor = 0.01 * counts[peak]
+    left = peak
+    while left > 0 and counts[left - 1] >= floor:
+        left -= 1
+    right = peak
+    while right < bins - 1 and counts[right + 1] >= floor:
+        right += 1
+    return float(edges[left]), float(edges[right + 1])
+
+
+def _joined_floors(hole: np.ndarray) -> np.ndarray:
+    """Holes' floor patches joined: each group of patches within a few px of each other becomes one hole.
+
+    A deep hole's floor is the lid, partly in the shadow of the hole's wall and partly lit;
+    between the two its level passes through the face's, so the patches leave a notch of
+    "face" at the rim where they meet. A group is replaced by its convex hull (a drilled
+    or punched hole is convex) unless the hull adds more than
+    :data:`SWEEP_HULL_GAIN` of the group's area (a cut-out that is not convex): then by
+    the group closed over 4 px. A group is filled first: where the face's level surface
+    followed a wide floor, only the floor's rim stands out of it.
+    """
+    kernel = np.ones((3, 3), np.uint8)
+    closed = np.asarray(cv2.morphologyEx(hole, cv2.MORPH_CLOSE, kernel, iterations=4), dtype=np.uint8)
+    count, comp = cv2.connectedComponents(closed, connectivity=8)
+    out = closed.astype(bool)
+    for k in range(1, count):
+        group = np.asarray(comp == k, dtype=np.uint8)
+        contours, _ = cv2.findContours(group, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_SIMPLE)
+        cv2.drawContours(group, contours, -1, 1, thickness=cv2.FILLED)  # a floor seen only at its rim
+        out |= group.astype(bool)
+        hull = cv2.convexHull(np.concatenate(contours))
+        filled = np.zeros_like(group)
+        cv2.fillPoly(filled, [hull], 1)
+        if filled.sum() <= (1.0 + SWEEP_HULL_GAIN) * group.sum():
+            out |= filled.astype(bool)
+    return out
 
 
 def _upstream_share(removed: np.ndarray, face: np.ndarray, direction: np.ndarray) -> float:
@@ -350,17 +615,7 @@ def _distance_to_ring(points: np.ndarray, ring: np.ndarray, origin: np.ndarray, 
     return np.asarray(dist[rows, cols], dtype=float)
 
 
-def _unseparated(
-    outer: np.ndarray,
-    soft: np.ndarray,
-    half_soft: np.ndarray,
-    lengths: np.ndarray,
-    normals: np.ndarray,
-    direction: np.ndarray,
-    soft_len: float,
-    levels: tuple[float, float, float],
-    total_px2: float,
-) -> FaceResult:
+def _unseparated(ctx: _Found, total_px2: float) -> FaceResult:
     """The face cannot be told from the shadow: how large the shadow inside the outline may be.
 
     The shadow is the face swept along the lamp's direction, so the soft stretch holds a
@@ -370,13 +625,14 @@ def _unseparated(
     overestimate where the front curves into them) and its width from the front's extent
     across it; their product is the area the outline may hold beyond the face.
     """
+    outer, soft, lengths, direction = ctx.outer, ctx.soft, ctx.lengths, ctx.direction
     d = np.asarray(direction, float)
     across = np.array([-d[1], d[0]])
     tangent = np.roll(outer, -1, axis=0) - np.roll(outer, 1, axis=0)
     tn = np.maximum(np.hypot(tangent[:, 0], tangent[:, 1]), 1e-12)
     along_share = np.abs(tangent @ d) / tn  # |cos| of the edge's angle to the lamp's direction
     # the shadow's sides soften with the distance from the part: take them from half the sharpness
-    sides = half_soft & (along_share > math.cos(math.radians(20.0)))
+    sides = soft & (along_share > math.cos(math.radians(20.0)))
     length_px = 0.5 * float(lengths[sides].sum())
     soft_pts = outer[soft]
     width_px = float((soft_pts @ across).max() - (soft_pts @ across).min()) if soft.any() else 0.0
@@ -388,8 +644,8 @@ def _unseparated(
         hole_gradients_px=[],
         shadow_px2=shadow,
         direction=(float(d[0]), float(d[1])),
-        soft_length_px=soft_len,
+        soft_length_px=ctx.soft_len,
         shadow_edge_px=width_px,
-        levels=levels,
+        levels=ctx.levels,
         note="not separated: the shadow is as dark as the part",
     )
