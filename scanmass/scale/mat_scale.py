@@ -250,7 +250,7 @@ def _self_calibrate(
         again = estimate_radial_distortion(pts_px, pts_mm, (image.width_px, image.height_px), f_view, noise_px=noise)
         if again is not None and again.rms_after_px <= est.rms_after_px * 1.05:
             est = again
-    tools = LensTools(est.profile)
+    tools = LensTools(est.profile, estimated=True)
     det2 = detect_markers(image, dictionary=layout.dictionary, undistort=tools.undistort)
     keep = np.isin(det2.ids, det.ids[known])
     if keep.sum() < MIN_MARKERS:
@@ -263,7 +263,8 @@ def _self_calibrate(
     k1, k2 = est.profile.dist_coeffs[:2]
     note = (
         f"lens distortion estimated from the mat's markers (no lens profile): k1 = {k1:.4f} +- {est.k_u[0]:.4f}, "
-        f"k2 = {k2:.4f} +- {est.k_u[1]:.4f} about the image centre, corner RMS {est.rms_before_px:.2f} -> "
+        f"k2 = {k2:.4f} +- {est.k_u[1]:.4f} for f = {est.profile.camera_matrix[0, 0]:.0f} px about the image centre, "
+        f"corner RMS {est.rms_before_px:.2f} -> "
         f"{est.rms_after_px:.2f} px; a profile from 'scanmass lens' (--lens) is more accurate"
     )
     return tools, det2, fit2, note
