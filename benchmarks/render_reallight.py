@@ -10,11 +10,21 @@ part, one lamp (parallel light, as a lamp travelling with the carriage gives) at
 degrees along the carriage axis. Each image gets a truth JSON (outlines in mat mm for a
 photo, in the scan frame for a scan; thickness, material, light, camera).
 
+The ``lens-`` scenes see the mat through a distorting lens (OpenCV's radial model,
+``LENS_K1`` = -0.05, centred): Cycles' polynomial panorama camera with the polynomial of
+:func:`lens_polynomial` (fitted to the model's ray angles; its largest residual, about
+0.02 px, is in the truth). Before they are rendered, :func:`lens_check` renders bright
+dots through the same camera and compares them with ``cv2.projectPoints``; the result
+and the camera's pose (Blender's ``matrix_world``) go into the truth too.
+
 Usage::
 
     python benchmarks/render_reallight.py --out tests/data/reallight            # every scene
     python benchmarks/render_reallight.py --out /tmp/rl --only soft-steel-t0 --samples 16
     python benchmarks/render_reallight.py --out tests/data/reallight --scanner --only scan-steel-lamp35 --samples 64
+    python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 --samples 20 \
+        --threads 2 --only lens-soft-black-t0 lens-soft-steel-t15 lens-spot-brass-t30 lens-soft-black-t30
+    python benchmarks/render_reallight.py --out /tmp/rl --lens-check --width 900 --height 1200 --threads 2
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
