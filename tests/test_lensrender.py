@@ -67,6 +67,36 @@ def test_lens_polynomial_reproduces_opencvs_radial_model():
     assert np.max(np.abs(theta_fit - theta_true) / slope) < 0.05
 
 
+@pytest.mark.parametrize("offset_px", [-0.15, 0.0, 0.1])
+def test_self_calibration_separates_a_corner_offset_from_the_distortion(offset_px):
+    """Marker corners projected by cv2.projectPoints (k1 = -0.05, a tilted view), each moved along its
+    marker's diagonal by one common offset, as an edge threshold that is off moves them: k1 and the
+    offset come back (to 1e-4 and 2e-3 px; noise-free corners, so only the solver's tolerance is left)."""
+    from scanmass.scale.mat import make_mat
+    from scanmass.scale.selfcal import estimate_radial_distortion
+
+    layout = make_mat("a4-portrait")
+    ids = np.asarray(layout.ids)
+    corners_mm = layout.marker_corners(ids)  # (markers, 4, 2)
+    f, size = 901.3, (900, 1200)
+    k = np.array([[f, 0.0, 449.5], [0.0, f, 599.5], [0.0, 0.0, 1.0]])
+    rvec = np.array([0.45, -0.2, 0.1])
+    tvec = np.array([-0.105, -0.15, 0.33])  # metres: the mat's middle about 0.35 m in front of the camera
+    obj = np.column_stack([corners_mm.reshape(-1, 2), np.zeros(corners_mm.size // 2)]) * 1e-3
+    px = cv2.projectPoints(obj, rvec, tvec, k, np.array([-0.05, 0.0, 0.0, 0.0, 0.0]))[0].reshape(-1, 4, 2)
+    inside = np.all((px > 5) & (px < np.array(size) - 5), axis=(1, 2))
+    px, mm = px[inside], corners_mm[inside]
+    assert len(px) >= 12
+    out = px - px.mean(axis=1, keepdims=True)
+    px = px + offset_px * out / np.linalg.norm(out, axis=2, keepdims=True)
+    est = estimate_radial_distortion(px.reshape(-1, 2), mm.reshape(-1, 2), size, f, corners_per_marker=4)
+    assert est.profile.dist_coeffs[0] == pytest.approx(-0.05, abs=1e-4)
+    assert est.corner_offset_px == pytest.approx(offset_px, abs=2e-3)
+    if offset_px:  # without the offset in the model, the same corners give a k1 off the true one
+        plain = estimate_radial_distortion(px.reshape(-1, 2), mm.reshape(-1, 2), size, f)
+        assert abs(plain.profile.dist_coeffs[0] + 0.05) > 10 * abs(est.profile.dist_coeffs[0] + 0.05)
+
+
 @pytest.mark.parametrize("name", LENS_RENDERS)
 def test_render_records_its_lens_and_the_projection_check(name):
     """Each truth file states the lens, the polynomial's residual and the check of the rendered camera
