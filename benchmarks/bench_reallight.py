@@ -169,9 +169,29 @@ def _flagged_pits(warnings: list[str], label: int) -> list[tuple[float, float]]:
     return out
 
 
+def lens_estimate(warnings: list[str], truth: dict) -> tuple[float, float] | None:
+    """The self-calibrated k1 and its stated uncertainty, in the units of the render's focal length.
+
+    k1 multiplies r^2 with r in focal lengths, so k1 / f^2 does not depend on the focal
+    length the estimate was stated for.
+    """
+    import re
+
+    lens = truth["camera"].get("lens_distortion")
+    for w in warnings:
+        hit = re.search(r"k1 = ([-\d.]+) \+- ([\d.]+), .* for f = ([\d.]+) px", w)
+        if isinstance(lens, dict) and w.startswith("lens distortion estimated") and hit:
+            ratio = (lens["focal_px"] / float(hit.group(3))) ** 2
+            return float(hit.group(1)) * ratio, float(hit.group(2)) * ratio
+    return None
+
+
 def groups_of(truth: dict, tp: dict) -> list[str]:
     if truth["kind"] == "scan":
         return ["scanner", f"material:{tp['material']}"]
+    lens = truth["camera"].get("lens_distortion")
+    if isinstance(lens, dict):  # a distorting lens and no profile: a group of its own
+        return [f"lens:k1{lens['k1']:g}"]
     tilt = truth["camera"]["tilt_deg"]
     return [f"light:{truth['light']['style']}", f"material:{tp['material']}", f"tilt:{'0' if tilt == 0 else '10-30'}"]
 
@@ -250,6 +270,11 @@ def main(argv: list[str] | None = None) -> int:
                 res["error"] or f"{sum(r['found'] for r in res['rows'])}/{len(res['rows'])} found, {res['extra']} extra"
             )
             print(f"  [{flag}] {image.name}: {status}")
+            k1 = lens_estimate(res["warnings"], truth)
+            if k1 is not None:
+                print(
+                    f"      lens: k1 {k1[0]:+.4f} +- {k1[1]:.4f} (true {truth['camera']['lens_distortion']['k1']:+g})"
+                )
             for r in res["rows"]:
                 if r["found"]:
                     hole_txt = " ".join("miss" if e is None else f"{e[0]:+.3f}({e[1]:.3f})" for e in r["holes"])

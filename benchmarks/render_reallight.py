@@ -10,11 +10,21 @@ part, one lamp (parallel light, as a lamp travelling with the carriage gives) at
 degrees along the carriage axis. Each image gets a truth JSON (outlines in mat mm for a
 photo, in the scan frame for a scan; thickness, material, light, camera).
 
+The ``lens-`` scenes see the mat through a distorting lens (OpenCV's radial model,
+``LENS_K1`` = -0.05, centred): Cycles' polynomial panorama camera with the polynomial of
+:func:`lens_polynomial` (fitted to the model's ray angles; its largest residual, about
+0.02 px, is in the truth). Before they are rendered, :func:`lens_check` renders bright
+dots through the same camera and compares them with ``cv2.projectPoints``; the result
+and the camera's pose (Blender's ``matrix_world``) go into the truth too.
+
 Usage::
 
     python benchmarks/render_reallight.py --out tests/data/reallight            # every scene
     python benchmarks/render_reallight.py --out /tmp/rl --only soft-steel-t0 --samples 16
     python benchmarks/render_reallight.py --out tests/data/reallight --scanner --only scan-steel-lamp35 --samples 64
+    python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 --samples 20 \
+        --threads 2 --only lens-soft-black-t0 lens-soft-steel-t15 lens-spot-brass-t30 lens-soft-black-t30
+    python benchmarks/render_reallight.py --out /tmp/rl --lens-check --width 900 --height 1200 --threads 2
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -151,6 +161,21 @@ def _blender_main(spec_path: str) -> None:  # pragma: no cover - runs inside Ble
         pb.inputs["Anisotropic"].default_value = m.get("anisotropic", 0.0)
         cu.materials.append(pm)
 
+    # -- bright dots on the paper (the lens check) -------------------------------------------------
+    if spec.get("dots_mm"):
+        glow = bpy.data.materials.new("dot")
+        glow.use_nodes = True
+        gn = glow.node_tree
+        gn.nodes.remove(gn.nodes["Principled BSDF"])
+        em = gn.nodes.new("ShaderNodeEmission")
+        em.inputs["Strength"].default_value = 0.8  # below the film's clip
+        gn.links.new(em.outputs["Emission"], gn.nodes["Material Output"].inputs["Surface"])
+        for x, y in spec["dots_mm"]:
+            bpy.ops.mesh.primitive_circle_add(
+                vertices=64, radius=spec["dot_radius_mm"] * MM, fill_type="NGON", location=(x * MM, y * MM, 0.00002)
+            )
+            bpy.context.object.data.materials.append(glow)
+
     # -- lights ----------------------------------------------------------------------------------
     for li in spec["lights"]:
         data = bpy.data.lights.new(li["name"], li["type"])
@@ -179,6 +204,13 @@ def _blender_main(spec_path: str) -> None:  # pragma: no cover - runs inside Ble
     if cam["type"] == "ortho":
         cdata.type = "ORTHO"
         cdata.ortho_scale = cam["ortho_scale_m"]
+    elif cam["type"] == "lens-polynomial":  # a distorting lens: Cycles' polynomial panorama camera
+        cdata.type = "PANO"
+        cdata.cycles.panorama_type = "FISHEYE_LENS_POLYNOMIAL"
+        for k, value in enumerate(cam["polynomial"]):
+            setattr(cdata.cycles, f"fisheye_polynomial_k{k}", value)
+        cdata.sensor_fit = "HORIZONTAL"
+        cdata.sensor_width = cam["sensor_width_mm"]
     else:
         cdata.lens = cam["focal_mm"]
         cdata.sensor_fit = "HORIZONTAL"
@@ -191,6 +223,15 @@ def _blender_main(spec_path: str) -> None:  # pragma: no cover - runs inside Ble
     scene.collection.objects.link(cob)
     scene.camera = cob
 
+    if spec.get("png16"):  # the lens check: 16-bit PNG, no JPEG rounding
+        scene.render.image_settings.file_format = "PNG"
+        scene.render.image_settings.color_depth = "16"
+    if spec.get("pose_out"):  # the camera's pose as Blender built it, for an independent projection
+        bpy.context.view_layer.update()
+        with open(spec["pose_out"], "w") as fh:
+            json.dump({"matrix_world": [list(row) for row in cob.matrix_world]}, fh)
+        if spec.get("pose_only"):
+            return
     scene.render.filepath = spec["out_path"]
     bpy.ops.render.render(write_still=True)
 
@@ -452,6 +493,104 @@ def scenes():
     return photo
 
 
+#: The distorting lens of the "lens-" scenes (no lens profile given to scanmass): OpenCV's
+#: radial model with the issue's k1 = -0.05 (barrel) and no k2, about the image centre.
+LENS_K1, LENS_K2 = -0.05, 0.0
+
+
+def lens_scenes():
+    """Photos through a distorting lens (``LENS_K1``); entries as in :func:`scenes`."""
+    return [
+        (
+            "lens-soft-black-t0",
+            "soft",
+            [("l-bracket", "black-plastic", 4.0, 80, 95, -15), ("gasket", "black-plastic", 2.0, 135, 195, 0)],
+            300,
+            0,
+            0,
+            "Standard",
+        ),
+        (
+            "lens-soft-steel-t15",
+            "soft",
+            [("plate", "brushed-steel", 3.0, 80, 200, 10), ("disc", "brushed-steel", 5.0, 135, 90, 0)],
+            310,
+            15,
+            40,
+            "Standard",
+        ),
+        (
+            "lens-spot-brass-t30",
+            "spot",
+            [("cam", "brass", 3.0, 85, 195, 60), ("plate", "brass", 4.0, 120, 90, 80)],
+            340,
+            30,
+            120,
+            "Filmic",
+        ),
+        (
+            "lens-soft-black-t30",
+            "soft",
+            [("disc", "black-plastic", 3.0, 80, 100, 0), ("l-bracket", "black-plastic", 3.0, 130, 195, 30)],
+            340,
+            30,
+            -60,
+            "Filmic",
+        ),
+    ]
+
+
+def _radial_inverse(rd, k1: float, k2: float):
+    """Undistorted normalised radius r_u with r_u (1 + k1 r_u^2 + k2 r_u^4) = rd (Newton's method)."""
+    ru = rd.copy()
+    for _ in range(60):
+        g = ru * (1.0 + k1 * ru**2 + k2 * ru**4) - rd
+        ru = ru - g / (1.0 + 3.0 * k1 * ru**2 + 5.0 * k2 * ru**4)
+    return ru
+
+
+def lens_polynomial(k1: float, k2: float, f_px: float, pixel_mm: float, r_max_px: float):
+    """Cycles' lens-polynomial camera that renders OpenCV's radial distortion model.
+
+    A pixel at distance ``d`` from the principal point (distorted radius ``r_d = d / f_px``
+    in normalised units) sees the ray at angle ``atan(r_u)`` from the axis, where
+    ``r_d = r_u (1 + k1 r_u^2 + k2 r_u^4)`` (OpenCV's radial model, as documented for
+    cv::projectPoints). Cycles' polynomial panorama camera takes that angle as
+    ``-(k0 + k1 r + ... + k4 r^4)`` of the sensor radius ``r`` in mm (Blender 3.4,
+    ``fisheye_lens_polynomial_to_direction``). The polynomial (k0 = 0, so the image centre
+    sees the axis) is fitted to minimise the largest residual in pixels over
+    ``[0, r_max_px]`` (Lawson's iteratively reweighted least squares).
+
+    Returns
+    -------
+    coefficients : list of float
+        k0..k4 as Blender's camera takes them (negative slope), rounded to float32.
+    max_residual_px : float
+        The largest radial misplacement of a pixel's ray, px.
+    """
+    import numpy as np
+
+    d = np.linspace(0.0, r_max_px, 6000)
+    theta = np.arctan(_radial_inverse(d / f_px, k1, k2))
+    r = d * pixel_mm
+    a = np.column_stack([r, r**2, r**3, r**4])
+    slope = np.gradient(theta, d)  # rad per px: weights so that the residual is in px
+    b, y = a / slope[:, None], theta / slope
+    w = np.ones_like(d)
+    for _ in range(400):
+        sw = np.sqrt(w)
+        c, *_ = np.linalg.lstsq(b * sw[:, None], y * sw, rcond=None)
+        err = np.abs(b @ c - y)
+        w = w * (err + 1e-15)
+        w /= w.sum()
+    coeffs = np.concatenate([[0.0], c]).astype(np.float32).astype(float)
+    fitted = np.column_stack([np.ones_like(r), a]) @ coeffs
+    # the pixel radius whose true ray has the fitted angle, minus the pixel's own radius
+    residual = np.interp(fitted, theta, d) - d
+    inside = (fitted >= theta[0]) & (fitted <= theta[-1])
+    return [0.0 - float(v) for v in coeffs], float(np.max(np.abs(residual[inside])))
+
+
 RENDER_ORDER = [
     "spot-steel-t0",
     "soft-black-t15",
@@ -490,7 +629,8 @@ def _photo_spec(entry, mat_png, out_dir, samples, size_px):
 
     from scanmass.scale.mat import make_mat
 
-    name, light, parts, height_mm, tilt_deg, tilt_dir_deg, view = entry
+    name, light, parts, height_mm, tilt_deg, tilt_dir_deg, view = entry[:7]
+    k1 = LENS_K1 if name.startswith("lens-") else None
     layout = make_mat("a4-portrait")
     shapes = _shapes()
     x0, y0, x1, y1 = layout.clear_area_mm
@@ -546,7 +686,35 @@ def _photo_spec(entry, mat_png, out_dir, samples, size_px):
         "samples": samples,
         "renderer": "Blender Cycles (CPU)",
     }
+    if k1 is not None:
+        _add_lens(spec, truth, k1, LENS_K2, size_px)
     return spec, truth
+
+
+def _add_lens(spec: dict, truth: dict, k1: float, k2: float, size_px) -> None:
+    """Give the scene's camera a distorting lens (the same focal length and sensor) and record it."""
+    cam = spec["camera"]
+    w, h = size_px
+    pixel_mm = cam["sensor_width_mm"] / w
+    f_px = cam["focal_mm"] / pixel_mm
+    r_max = 0.5 * math.hypot(w, h) + 2.0
+    poly, resid = lens_polynomial(k1, k2, f_px, pixel_mm, r_max)
+    cam["type"] = "lens-polynomial"
+    cam["polynomial"] = poly
+    spec["pose_out"] = os.path.splitext(spec["out_path"])[0] + "-pose.json"
+    truth["camera"]["lens_distortion"] = {
+        "model": "OpenCV radial: x_d = x_u (1 + k1 r^2 + k2 r^4) in normalised coordinates (r = tan of the ray's "
+        "angle from the axis), about the principal point",
+        "k1": k1,
+        "k2": k2,
+        "focal_px": f_px,
+        "principal_point_px": [0.5 * (w - 1), 0.5 * (h - 1)],
+        "pixel_convention": "OpenCV: pixel centres at integer (column, row), row 0 at the top",
+        "rendered_with": "Cycles panorama camera FISHEYE_LENS_POLYNOMIAL, sensor width "
+        f"{cam['sensor_width_mm']:.4f} mm, horizontal fit",
+        "polynomial_k0_k4": poly,
+        "polynomial_max_residual_px": resid,
+    }
 
 
 def _scan_spec(entry, out_dir, samples, dpi):
@@ -639,11 +807,95 @@ def _scan_spec(entry, out_dir, samples, dpi):
     return spec, truth
 
 
+def _run_blender(spec: dict, work: str, name: str) -> float:
+    """Render one specification with Blender; the seconds it took."""
+    import subprocess
+    import time
+
+    spec_path = os.path.join(work, name + ".json")
+    with open(spec_path, "w") as fh:
+        json.dump(spec, fh)
+    t0 = time.time()
+    subprocess.run(
+        ["blender", "-b", "-P", os.path.abspath(__file__), "--", "--spec", spec_path],
+        check=True,
+        capture_output=True,
+    )
+    return round(time.time() - t0, 1)
+
+
+def lens_check(entry, work: str, samples: int, size_px, threads: int) -> dict:
+    """Check the lens-polynomial camera against an independent projection.
+
+    Bright dots 2 mm across, every 15 mm over the mat and the table around it (black), are rendered
+    through the scene's distorting camera (16-bit PNG); their centroids (linear light)
+    are compared with OpenCV's ``cv2.projectPoints`` of the dots' centres, given the
+    camera pose Blender built, the focal length, the image centre and distortion
+    coefficients (k1, k2, 0, 0, 0). The pinhole projection (no distortion) is reported
+    beside it, to show the check can tell the two apart.
+    """
+    import cv2
+    import numpy as np
+
+    spec, truth = _photo_spec(entry, None, work, samples, size_px)
+    lens = truth["camera"]["lens_distortion"]
+    xs, ys = np.arange(-90.0, 301.0, 15.0), np.arange(-90.0, 388.0, 15.0)
+    dots = np.array([(x, y) for y in ys for x in xs])
+    spec.update(
+        {
+            "paper_png": None,
+            "paper_rgb": [0.0, 0.0, 0.0],
+            "table_rgb": [0.0, 0.0, 0.0],
+            "world_strength": 0.0,
+            "exposure": 0.0,
+            "view_transform": "Standard",
+            "parts": [],
+            "lights": [],
+            "dots_mm": dots.tolist(),
+            "dot_radius_mm": 1.0,
+            "png16": True,
+            "pose_out": os.path.join(work, "lens-check-pose.json"),
+            "out_path": os.path.join(work, "lens-check.png"),
+            "threads": threads,
+        }
+    )
+    seconds = _run_blender(spec, work, "lens-check-spec")
+    with open(spec["pose_out"]) as fh:
+        m = np.array(json.load(fh)["matrix_world"])
+    img = cv2.imread(spec["out_path"], cv2.IMREAD_UNCHANGED).astype(float) / 65535.0
+    v = img.mean(axis=2)
+    lin = np.where(v <= 0.04045, v / 12.92, ((v + 0.055) / 1.055) ** 2.4)  # the Standard view: sRGB
+    n, labels, stats, _ = cv2.connectedComponentsWithStats((lin > 0.02).astype(np.uint8), connectivity=8)
+    rows, cols = np.indices(lin.shape)
+    h_px, w_px = lin.shape
+    found = []
+    for k in range(1, n):
+        x, y, bw, bh, _area = stats[k]
+        if x < 2 or y < 2 or x + bw > w_px - 2 or y + bh > h_px - 2:
+            continue  # cut by the image's edge
+        wgt = np.where(labels == k, lin, 0.0)
+        found.append((float((wgt * cols).sum() / wgt.sum()), float((wgt * rows).sum() / wgt.sum())))
+    found = np.array(found)
+    # Blender camera: looks along its -z, y up; OpenCV: along +z, y down
+    r_b = m[:3, :3].T
+    r_cv = np.diag([1.0, -1.0, -1.0]) @ r_b
+    t_cv = r_cv @ -m[:3, 3]
+    rvec, _ = cv2.Rodrigues(r_cv)
+    f, (cx, cy) = lens["focal_px"], lens["principal_point_px"]
+    kmat = np.array([[f, 0.0, cx], [0.0, f, cy], [0.0, 0.0, 1.0]])
+    obj = np.column_stack([dots * MM, np.full(len(dots), 0.00002)])
+    out = {"dots_found": len(found), "render_s": seconds}
+    for label, dist in (("distorted", [lens["k1"], lens["k2"], 0.0, 0.0, 0.0]), ("pinhole", [0.0] * 5)):
+        proj, _ = cv2.projectPoints(obj, rvec, t_cv, kmat, np.array(dist))
+        proj = proj.reshape(-1, 2)
+        err = np.array([np.min(np.hypot(*(proj - p).T)) for p in found])
+        out[label] = {"rms_px": float(np.sqrt(np.mean(err**2))), "max_px": float(err.max())}
+    return out
+
+
 def main(argv=None) -> int:
     import argparse
-    import subprocess
     import tempfile
-    import time
 
     import cv2
 
@@ -658,12 +910,21 @@ def main(argv=None) -> int:
     ap.add_argument("--threads", type=int, default=1)
     ap.add_argument("--exposure", type=float, default=0.0, help="stops added to every scene (tests)")
     ap.add_argument("--scanner", action="store_true", help="also the scanner group")
+    ap.add_argument("--lens-check", action="store_true", help="only check the distorting camera (bright dots)")
+    ap.add_argument("--pose-only", action="store_true", help="only add the camera pose to existing truth files")
     args = ap.parse_args(argv)
     os.makedirs(args.out, exist_ok=True)
     work = tempfile.mkdtemp(prefix="reallight-")
     mat_png = os.path.join(work, "mat.png")
     cv2.imwrite(mat_png, render_mat_png(make_mat("a4-portrait"), dpi=600))
-    photos = {e[0]: ("photo", e) for e in scenes()}
+    photos = {e[0]: ("photo", e) for e in [*scenes(), *lens_scenes()]}
+    check = None
+    if args.lens_check or (not args.pose_only and any(n.startswith("lens-") for n in (args.only or []))):
+        entry = next(e for e in lens_scenes() if e[4] == 30)  # the tilted view: every part of the frame
+        check = lens_check(entry, work, max(32, args.samples), (args.width, args.height), args.threads)
+        print(f"lens check: {json.dumps(check)}", flush=True)
+        if args.lens_check:
+            return 0
     scans = {e[0]: ("scan", e) for e in scanner_scenes()} if args.scanner else {}
     # the order in which they are rendered: a varied subset first
     order = [*RENDER_ORDER, *photos, *scans]
@@ -680,17 +941,23 @@ def main(argv=None) -> int:
             spec, truth = _scan_spec(entry, os.path.abspath(args.out), max(8, args.samples // 2), 300)
         spec["threads"] = args.threads
         spec["exposure"] = spec.get("exposure", 0.0) + args.exposure
-        spec_path = os.path.join(work, name + ".json")
-        with open(spec_path, "w") as fh:
-            json.dump(spec, fh)
-        t0 = time.time()
-        subprocess.run(
-            ["blender", "-b", "-P", os.path.abspath(__file__), "--", "--spec", spec_path],
-            check=True,
-            capture_output=True,
-        )
-        truth["render_s"] = round(time.time() - t0, 1)
-        with open(os.path.join(args.out, name + ".json"), "w") as fh:
+        if check is not None and isinstance(truth.get("camera", {}).get("lens_distortion"), dict):
+            truth["camera"]["lens_distortion"]["projection_check"] = check
+        truth_path = os.path.join(args.out, name + ".json")
+        if args.pose_only:  # the pose of an existing render: Blender builds the scene and stops
+            if "pose_out" not in spec or not os.path.exists(truth_path):
+                continue
+            spec["pose_only"] = True
+            _run_blender(spec, work, name)
+            with open(truth_path) as fh:
+                truth = json.load(fh)
+        else:
+            truth["render_s"] = _run_blender(spec, work, name)
+        if "pose_out" in spec:  # camera to world, Blender's camera axes (looks along -z, y up), metres
+            with open(spec["pose_out"]) as fh:
+                truth["camera"]["matrix_world"] = json.load(fh)["matrix_world"]
+            os.remove(spec["pose_out"])
+        with open(truth_path, "w") as fh:
             json.dump(truth, fh, indent=1)
         print(f"{name}: {truth['render_s']} s", flush=True)
     return 0

@@ -94,9 +94,15 @@ class PhotoScale:
 
 @dataclass(frozen=True)
 class LensTools:
-    """An optional lens profile and its two point corrections."""
+    """An optional lens profile and its two point corrections.
+
+    ``estimated`` marks a profile fitted to the photo's own marker corners
+    (:mod:`scanmass.scale.selfcal`): its focal length only sets the units of the
+    coefficients, so the camera's focal length is found as without a profile.
+    """
 
     profile: LensProfile | None = None
+    estimated: bool = False
 
     @property
     def undistort(self) -> PixelCorrection | None:
@@ -230,7 +236,7 @@ def build_photo_scale(
     matrices = [h / h[2, 2] for h in matrices]
     hook: PixelCorrection | None = undistort
     corrections: list[PixelCorrection | None] = [undistort] * len(matrices)
-    k, f_samples, f_note = _camera_matrix(image, profile, matrices, rng)
+    k, f_samples, f_note = _camera_matrix(image, None if lens.estimated else profile, matrices, rng)
     thickness = None
     if thickness_mm is not None and thickness_mm > 0:
         hook = ElevationHook(h0, k, thickness_mm, undistort)

@@ -239,7 +239,8 @@ def _self_calibrate(
         return None
     diag = math.hypot(image.width_px, image.height_px)
     f_px = DEFAULT_FOCAL_35MM / FILM_DIAGONAL_MM * diag
-    est = estimate_radial_distortion(pts_px, pts_mm, (image.width_px, image.height_px), f_px, noise_px=noise)
+    size = (image.width_px, image.height_px)
+    est = estimate_radial_distortion(pts_px, pts_mm, size, f_px, noise_px=noise, corners_per_marker=4)
     if est is None or est.rms_after_px > SELFCAL_GAIN * est.rms_before_px:
         return None
     # the focal length from the perspective of the corrected corners, when the view shows it
@@ -247,10 +248,10 @@ def _self_calibrate(
     g, _ = cv2.findHomography(pts_mm[sel], ideal[sel], 0)
     f_view = focal_from_homography(g, principal_point(image)) if g is not None else None
     if f_view is not None and 0.3 * f_px < f_view < 3.0 * f_px:
-        again = estimate_radial_distortion(pts_px, pts_mm, (image.width_px, image.height_px), f_view, noise_px=noise)
+        again = estimate_radial_distortion(pts_px, pts_mm, size, f_view, noise_px=noise, corners_per_marker=4)
         if again is not None and again.rms_after_px <= est.rms_after_px * 1.05:
             est = again
-    tools = LensTools(est.profile)
+    tools = LensTools(est.profile, estimated=True)
     det2 = detect_markers(image, dictionary=layout.dictionary, undistort=tools.undistort)
     keep = np.isin(det2.ids, det.ids[known])
     if keep.sum() < MIN_MARKERS:
@@ -263,8 +264,9 @@ def _self_calibrate(
     k1, k2 = est.profile.dist_coeffs[:2]
     note = (
         f"lens distortion estimated from the mat's markers (no lens profile): k1 = {k1:.4f} +- {est.k_u[0]:.4f}, "
-        f"k2 = {k2:.4f} +- {est.k_u[1]:.4f} about the image centre, corner RMS {est.rms_before_px:.2f} -> "
-        f"{est.rms_after_px:.2f} px; a profile from 'scanmass lens' (--lens) is more accurate"
+        f"k2 = {k2:.4f} +- {est.k_u[1]:.4f} for f = {est.profile.camera_matrix[0, 0]:.0f} px about the image centre, "
+        f"corner RMS {est.rms_before_px:.2f} -> {est.rms_after_px:.2f} px (with a common corner offset of "
+        f"{est.corner_offset_px:+.2f} px); a profile from 'scanmass lens' (--lens) is more accurate"
     )
     return tools, det2, fit2, note
 

@@ -9,6 +9,13 @@ least squares. The focal length only fixes the units of ``k1`` and ``k2`` (any `
 gives the same correction once the coefficients are refitted); the assumed one is kept so
 that the coefficients read like a calibration's.
 
+When the corners come four to a marker, one more parameter is fitted: a common offset
+``d`` (px) of every corner along its marker's diagonal, outward. An edge threshold that
+is off (a tone curve that is not sRGB, blur) makes every printed square look larger or
+smaller by the same amount in pixels, which is more millimetres where the lens compresses
+the view; left out, that pattern is read as distortion (k1 off by a few of its stated
+sigmas on path-traced photos with a non-sRGB tone curve).
+
 The result is a :class:`~scanmass.scale.lens.LensProfile` whose ``rms_px`` is the fit's
 residual; a profile from ``scanmass lens`` (many views, free principal point) stays
 better and is used whenever given.
@@ -36,16 +43,30 @@ class SelfCalibration:
     rms_before_px: float
     rms_after_px: float
     points: int
+    corner_offset_px: float = 0.0
 
 
-def _project(params: np.ndarray, pts_mm: np.ndarray, centre: np.ndarray, f_px: float) -> np.ndarray:
+def _project(
+    params: np.ndarray, pts_mm: np.ndarray, centre: np.ndarray, f_px: float, outward: np.ndarray | None = None
+) -> np.ndarray:
     g = np.append(params[:8], 1.0).reshape(3, 3)
     k1, k2 = params[8], params[9]
     q = np.column_stack([pts_mm, np.ones(len(pts_mm))]) @ g.T
     q = q[:, :2] / q[:, 2:3]
     u = (q - centre) / f_px
     r2 = np.sum(u * u, axis=1)
-    return centre + f_px * u * (1.0 + k1 * r2 + k2 * r2 * r2)[:, None]
+    p = centre + f_px * u * (1.0 + k1 * r2 + k2 * r2 * r2)[:, None]
+    if outward is not None:  # every corner moved along its marker's diagonal by one common offset
+        p = p + params[10] * outward
+    return p
+
+
+def _outward(pts_px: np.ndarray, per_marker: int) -> np.ndarray:
+    """Unit vectors from each marker's centre to its corners (image pixels)."""
+    groups = pts_px.reshape(-1, per_marker, 2)
+    d = groups - groups.mean(axis=1, keepdims=True)
+    d /= np.maximum(np.linalg.norm(d, axis=2, keepdims=True), 1e-12)
+    return d.reshape(-1, 2)
 
 
 def estimate_radial_distortion(
@@ -55,6 +76,7 @@ def estimate_radial_distortion(
     f_px: float,
     *,
     noise_px: float = 0.1,
+    corners_per_marker: int | None = None,
 ) -> SelfCalibration | None:
     """Fit a homography and radial distortion (k1, k2) to one photo's marker corners.
 
@@ -70,6 +92,9 @@ def estimate_radial_distortion(
         Assumed focal length in pixels (the units of k1 and k2).
     noise_px : float
         Standard deviation of a corner's position, for the coefficients' uncertainty.
+    corners_per_marker : int, optional
+        When the points come in consecutive groups of this many corners of one square
+        marker, a common outward offset of the corners (px) is fitted too.
 
     Returns
     -------
@@ -93,12 +118,15 @@ def estimate_radial_distortion(
     if g0 is None:
         return None
     g0 = g0 / g0[2, 2]
-    x0 = np.concatenate([g0.ravel()[:8], [0.0, 0.0]])
-    before = _project(x0, pts_mm, centre, f_px) - pts_px
+    outward = None
+    if corners_per_marker and len(pts_px) % corners_per_marker == 0 and len(pts_px) >= 4 * corners_per_marker:
+        outward = _outward(pts_px, corners_per_marker)
+    x0 = np.concatenate([g0.ravel()[:8], [0.0, 0.0], [0.0] if outward is not None else []])
+    before = _project(x0[:10], pts_mm, centre, f_px) - pts_px
     rms_before = math.sqrt(float(np.mean(np.sum(before**2, axis=1))))
 
     def residual(p: np.ndarray) -> np.ndarray:
-        return (_project(p, pts_mm, centre, f_px) - pts_px).ravel()
+        return (_project(p, pts_mm, centre, f_px, outward) - pts_px).ravel()
 
     sol = least_squares(residual, x0, method="lm", x_scale="jac")
     if not sol.success:
@@ -124,5 +152,10 @@ def estimate_radial_distortion(
         source=None,
     )
     return SelfCalibration(
-        profile=profile, k_u=k_u, rms_before_px=rms_before, rms_after_px=rms_after, points=len(pts_px)
+        profile=profile,
+        k_u=k_u,
+        rms_before_px=rms_before,
+        rms_after_px=rms_after,
+        points=len(pts_px),
+        corner_offset_px=float(sol.x[10]) if outward is not None else 0.0,
     )
