@@ -656,8 +656,8 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
         result,
         thickness_mm,
         colour,
-        lambda img: measure_image(
-            img, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
+        lambda img, plane_map: measure_image(
+            img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
         ),
     )
     shadow_only = _shadows_only(image, scale, result, colour)

@@ -438,7 +438,7 @@ def _cut_cast_shadows(
     result: Measurement,
     thickness_mm: float | None,
     colour: np.ndarray | None,
-    remeasure: Callable[[LoadedImage], Measurement],
+    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
 ) -> tuple[Measurement, list[str], set[int]]:
     """Cut cast shadows out of the found parts and measure again; a term for where the cut runs.
 
@@ -454,6 +454,13 @@ def _cut_cast_shadows(
     measurement, and photos without a cut their whole result. The result's
     ``settings["shadow_cut"]`` holds each cut part's shadow area and cut length.
 
+    With a thickness given, the cut takes a shaded side wall with the shadow (steel, brass and
+    black plastic under a spotlight on the committed renders, tests/data/reallight): where that
+    wall faces the camera the outline then runs on the top face's edge, so the second
+    measurement maps the cut region's surroundings (5 px around it) as seen on the top edge
+    (:meth:`~scanmass.scale.homography.ElevationHook.with_top_seen`); ``remeasure`` takes the
+    image and the plane map to use.
+
     With a thickness given, a lit side wall the first segmentation took for paper
     (:func:`_lost_wall`) is painted in the part's level on the same image before it is measured
     again: the outline there then runs on the part's bottom edge, as the plane map takes it.
@@ -468,6 +475,10 @@ def _cut_cast_shadows(
     lut = np.asarray(image.to_linear, dtype=np.float32)
     grey = masked.grey.copy()
     cuts: list[tuple[Part, float, float, float]] = []  # (the part as found, cut edge mm, cut mm2, wall mm2)
+    hook = scale.plane_map.undistort
+    top_seen: np.ndarray | None = None
+    if isinstance(hook, ElevationHook):
+        top_seen = np.zeros(grey.shape[:2], bool) if hook.top_seen is None else hook.top_seen.copy()
     for part in result.parts:
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
@@ -495,6 +506,11 @@ def _cut_cast_shadows(
                 cut = None
             else:
                 window[cut.cut] = np.asarray(np.median(paper), dtype=grey.dtype)
+                if top_seen is not None:
+                    # the cut takes the shaded side wall with the shadow: where that wall faces the
+                    # camera, the outline then runs on the top face's edge
+                    near = cv2.dilate(cut.cut.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
+                    top_seen[y0:y1, x0:x1] |= near
         if cut is not None or wall_mm2 > 0:
             edge_mm = cut.edge_px * mm_per_px if cut is not None else 0.0
             cut_mm2 = cut.cut_px * mm_per_px**2 if cut is not None else 0.0
@@ -502,7 +518,10 @@ def _cut_cast_shadows(
     if not cuts:
         return result, [], set()
     try:
-        again = remeasure(replace(masked, grey=grey))
+        plane_map = scale.plane_map
+        if top_seen is not None and top_seen.any():
+            plane_map = with_top_seen(plane_map, top_seen)
+        again = remeasure(replace(masked, grey=grey), plane_map)
     except (SegmentationError, ScaleError, OptionError):
         # nothing measurable with the cuts painted (or rings the section refuses: a thin strip
         # left beside a cut can put a hole's mapped ring past the outer one): keep the first measurement
