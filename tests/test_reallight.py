@@ -232,14 +232,16 @@ def _nearest(m, tp):
 
 @pytest.mark.slow
 @pytest.mark.parametrize(
-    "name, thickness",
-    [("soft-steel-t0.json", 3.0), ("soft-steel-t0.json", 5.0), ("mixed-brass-t30.json", 3.0)],
+    "name, thickness, off",
+    [("soft-steel-t0.json", 3.0, False), ("soft-steel-t0.json", 5.0, False), ("mixed-brass-t30.json", 3.0, True)],
 )
-def test_metal_edge_that_looks_like_paper_is_warned_and_covered(name, thickness):
+def test_metal_edge_that_looks_like_paper_is_warned_and_covered(name, thickness, off):
     """Brushed steel under a large soft light (bright, with a dark band beside its edge) and brass
-    under warm and cool light (a soft ramp of another colour): the outline sits up to 1-4 px off
+    under warm and cool light (a soft ramp of another colour): the outline may sit 1-4 px off
     the top face's edge. Each such part is named in the 'unclear edge' warning and its area,
-    centroid and hole diameters lie within 3 stated sigma (truth: the render's outlines, shapely)."""
+    centroid and hole diameters lie within 3 stated sigma (truth: the render's outlines, shapely).
+    The steel's dark band is mostly its side wall facing the camera, which the measurement now
+    takes as outside the outline (its round holes tell): those parts come out within 0.5 %."""
     if not REALLIGHT.exists():
         pytest.skip("tests/data/reallight not in this checkout")
     m, parts = _measure_render(name, thickness)
@@ -249,7 +251,10 @@ def test_metal_edge_that_looks_like_paper_is_warned_and_covered(name, thickness)
         assert f" {part.label} (" in warning
         assert part.uncertainty_terms["unclear_edge"]["area_mm2"] > 0
         err = abs(part.area_mm2 - tp["area"])
-        assert err > 0.01 * tp["area"]  # the outline really is off: 1.6-2.7 % (bench_reallight) ...
+        if off:
+            assert err > 0.01 * tp["area"]  # the outline really is off: 2.7 % (bench_reallight) ...
+        else:
+            assert err < 0.005 * tp["area"]  # the wall modelled: 0.1-0.4 % (bench_reallight) ...
         assert err <= 3 * part.area_u_mm2  # ... and the stated uncertainty covers it
         for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
             assert abs(c - t) <= 3 * u

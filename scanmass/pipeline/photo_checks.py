@@ -388,10 +388,12 @@ def with_top_seen(plane_map: PlaneMap, mask: np.ndarray) -> PlaneMap:
 
 #: The stated doubt (1 sigma, px) of where the outline runs along a stretch cut from a cast
 #: shadow (:func:`~scanmass.segment.castshadow.shadow_cut`). On the committed renders
-#: (tests/data/reallight) the cut runs on average 0.7 px inside the top face's edge (steel
-#: plate under the spotlight: 284 px of face over a 401 px cut edge); the cut parts' area
-#: errors are 0.3-0.9 times this term, but for the brass plate (1.9 times: -8 %, mostly its lit
-#: edge that looks like the paper, which 'unclear_edge' covers); taken at 2 px.
+#: (tests/data/reallight, thickness given) the outline within 5 px of a cut runs, in median,
+#: -1.6 to +1.7 px off the true edge (steel plate +0.4, brass gasket 0.0, brass plate +1.7, black
+#: bracket -1.6, steel bracket 0.0); two parts keep a remnant of their shadow 10 px wide, which
+#: their 'hidden_hole' and 'unclear_edge' terms cover. An earlier mean of 0.7 px inside the edge
+#: was the shaded wall facing the camera, cut with the shadow and mapped as the bottom edge
+#: (now mapped as the top face's edge). Taken at 2 px.
 SHADOW_CUT_EDGE_PX = 2.0
 #: Thickness (mm) whose shadow's reach bounds a cut when the thickness is not given: the cut
 #: follows the shadow's own grain and level, so the bound only keeps it near the outline
