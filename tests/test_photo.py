@@ -385,3 +385,33 @@ def test_hole_of_a_raised_plate_seen_on_either_edge_maps_to_its_true_circle(tilt
     disc = _px_oriented(top_px)
     c, d, rms = circle_of(on_top(disc))
     assert np.allclose(c, centre, atol=2e-3) and abs(d - 2 * radius) < 4e-3
+
+
+def test_top_seen_mask_is_read_at_the_photo_pixels_of_a_distorting_lens():
+    """With a lens correction the mask is read where the outline lies in the photo as stored (the
+    grid the segmentation and the shadow cut work on), not at its corrected position; a mask
+    only 2 px wide around the photo's ring then acts as a full one."""
+    import cv2
+
+    from scanmass.scale.homography import ElevationHook
+
+    cam = make_camera(size=(900, 1200), f_px=901.3, distance_mm=310.0, target_mm=(109.5, 145.0))
+    h0 = np.linalg.inv(cam.plane_to_px())
+    c, k1 = np.array([449.5, 599.5]), -0.2 / 901.3**2
+
+    def undistort(raw):  # a barrel lens: ideal = c + (raw - c)(1 + k1 r^2), r in px
+        d = raw - c
+        return c + d * (1.0 + k1 * np.sum(d * d, axis=1))[:, None]
+
+    phi = np.linspace(0.0, 2 * np.pi, 361)[:-1]
+    ideal = _px_oriented(_projected_ring(cam, np.array([30.0, 250.0]) + 5.0 * np.c_[np.cos(phi), np.sin(phi)], 4.0))
+    raw = ideal.copy()
+    for _ in range(20):  # the photo's pixels of the ideal ring: fixed-point inversion of the lens
+        raw = raw + (ideal - undistort(raw))
+    assert np.abs(raw - ideal).max() > 5.0  # the lens moves this ring by more than the mask's width
+    band = np.zeros((1200, 900), np.uint8)
+    cv2.polylines(band, [np.round(raw).astype(np.int32)], True, 1, thickness=5)
+    hook = ElevationHook(h0, cam.k, 4.0, undistort)
+    full = hook.with_top_seen(np.ones((1200, 900), bool))(raw)
+    assert np.allclose(hook.with_top_seen(band.astype(bool))(raw), full, atol=1e-12)
+    assert not np.allclose(hook(raw), full, atol=1e-3)  # without the mask the wall-facing side stays

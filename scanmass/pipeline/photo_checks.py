@@ -322,7 +322,7 @@ def wall_sides(
     Returns
     -------
     (mask or None, labels)
-        A boolean mask in ideal pixels covering those parts with a margin (for
+        A boolean mask in photo pixels covering those parts with a margin (for
         :meth:`~scanmass.scale.homography.ElevationHook.with_top_seen`), and their labels.
     """
     hook = scale.plane_map.undistort
@@ -367,7 +367,7 @@ def wall_sides(
         if mask is None:
             mask = np.zeros(shape, np.uint8)
         one = np.zeros(shape, np.uint8)
-        cv2.fillPoly(one, [np.round(apply_h(hook.g0, rings[0])).astype(np.int32)], 1)
+        cv2.fillPoly(one, [np.round(hook.photo_px(apply_h(hook.g0, rings[0]))).astype(np.int32)], 1)
         grow = 2 * int(math.ceil(widest)) + 9
         mask |= cv2.dilate(one, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (grow, grow)))
         labels.append(part.label)
@@ -421,8 +421,9 @@ def _lost_wall(
     seen = scale.plane_map.undistort
     if isinstance(seen, ElevationHook) and seen.top_seen is not None:
         h, w = seen.top_seen.shape
-        col = np.clip(np.rint(foot[:, 0]), 0, w - 1).astype(np.intp)
-        row = np.clip(np.rint(foot[:, 1]), 0, h - 1).astype(np.intp)
+        photo = seen.photo_px(foot)
+        col = np.clip(np.rint(photo[:, 0]), 0, w - 1).astype(np.intp)
+        row = np.clip(np.rint(photo[:, 1]), 0, h - 1).astype(np.intp)
         if np.mean(seen.top_seen[row, col]) > 0.5:
             return None  # taken on its top face's edge all round (:func:`wall_sides`): no wall was left out
     parallax = apply_h(hook.gh, ring) - foot

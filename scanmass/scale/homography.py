@@ -257,7 +257,8 @@ class ElevationHook:
     undistort : callable, optional
         Lens correction applied first (distorted -> ideal pixels).
     top_seen : (H, W) bool ndarray, optional
-        Ideal pixels where the outline was found on the top face's edge all round: the side
+        Photo pixels (as stored, before the lens correction) where the outline was found on the
+        top face's edge all round: the side
         wall facing the camera was taken for background there (a wall that looks like the
         paper, or like the bottom of a hole), so every boundary point inside it is a top-face
         point. Elsewhere the wall facing the camera is taken as part of the part, as above.
@@ -281,14 +282,18 @@ class ElevationHook:
         self.undistort = undistort
         self.top_seen = top_seen
 
+    def photo_px(self, ideal_px: np.ndarray) -> np.ndarray:
+        """Photo pixels of ideal ones, to about a pixel (one fixed-point step of the lens correction)."""
+        ideal = np.asarray(ideal_px, dtype=float).reshape(-1, 2)
+        return ideal if self.undistort is None else 2.0 * ideal - self.undistort(ideal)
+
     def with_top_seen(self, top_seen: np.ndarray | None) -> ElevationHook:
         """The same hook with another :attr:`top_seen` mask."""
         return ElevationHook(self.h0, self.k, self.height_mm, self.undistort, top_seen)
 
     def __call__(self, points_px: np.ndarray) -> np.ndarray:
-        pts = np.asarray(points_px, dtype=float).reshape(-1, 2)
-        if self.undistort is not None:
-            pts = self.undistort(pts)
+        raw = np.asarray(points_px, dtype=float).reshape(-1, 2)
+        pts = self.undistort(raw) if self.undistort is not None else raw
         foot = apply_h(self.to_footprint, pts)
         if len(pts) < 3:
             return foot
@@ -298,8 +303,8 @@ class ElevationHook:
         top = np.sum(outward * parallax, axis=1) > 0
         if self.top_seen is not None:
             h, w = self.top_seen.shape
-            col = np.clip(np.rint(pts[:, 0]), 0, w - 1).astype(np.intp)
-            row = np.clip(np.rint(pts[:, 1]), 0, h - 1).astype(np.intp)
+            col = np.clip(np.rint(raw[:, 0]), 0, w - 1).astype(np.intp)
+            row = np.clip(np.rint(raw[:, 1]), 0, h - 1).astype(np.intp)
             top |= self.top_seen[row, col]
         return np.where(top[:, None], foot, pts)
 
