@@ -128,8 +128,38 @@ def _photo_colour(image: LoadedImage) -> np.ndarray | None:
     return colour
 
 
+def _image_px(scale: PhotoScale, ring_mm: np.ndarray, hole: bool = False) -> np.ndarray:
+    """Where a measured ring (mm, on the mat) runs in the photo (ideal px).
+
+    Without a raised face this is the plane map's inverse. With one, the points the plane map
+    took as top-face points (:class:`~scanmass.scale.homography.ElevationHook`: the side facing
+    away from the camera's nadir, and where its ``top_seen`` mask says so) were moved to their
+    footprints; they are moved back to where the photo shows them.
+    """
+    ring = np.asarray(ring_mm, float).reshape(-1, 2)
+    hook = scale.plane_map.undistort
+    if not isinstance(hook, ElevationHook) or len(ring) < 3:
+        return scale.plane_map.to_px(ring)
+    to_foot_mm = _normalised(hook.h0 @ hook.to_footprint @ hook.g0)
+    seen_mm = apply_h(np.linalg.inv(to_foot_mm), ring)  # each point taken as a footprint: where it was seen
+    ccw = signed_area(ring) > 0
+    normals = vertex_normals(ring if ccw else ring[::-1])
+    normals = normals if ccw else normals[::-1]
+    if hole:
+        normals = -normals  # away from the material: into the hole
+    top = np.sum(normals * (seen_mm - ring), axis=1) > 0
+    px_top = apply_h(hook.g0, seen_mm)
+    if hook.top_seen is not None:
+        h, w = hook.top_seen.shape
+        photo = hook.photo_px(px_top)
+        col = np.clip(np.rint(photo[:, 0]), 0, w - 1).astype(np.intp)
+        row = np.clip(np.rint(photo[:, 1]), 0, h - 1).astype(np.intp)
+        top |= hook.top_seen[row, col]
+    return np.where(top[:, None], px_top, apply_h(hook.g0, ring))
+
+
 def _part_crop(
-    image: LoadedImage, scale: PhotoScale, part: Part, pad_px: int
+    image: LoadedImage, scale: PhotoScale, part: Part, pad_px: int, as_seen: bool = False
 ) -> tuple[tuple[int, int, int, int], np.ndarray, list[np.ndarray]] | None:
     """A padded crop box (x0, y0, x1, y1) around a part, its mask there (holes cleared) and its rings (crop px).
 
@@ -137,8 +167,12 @@ def _part_crop(
     """
     if part.outline_mm is None or any(h.outline_mm is None for h in part.holes):
         return None
-    outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
-    holes_px = [scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes]
+    if as_seen:
+        outer_px = _image_px(scale, np.asarray(part.outline_mm, float))
+        holes_px = [_image_px(scale, np.asarray(h.outline_mm, float), hole=True) for h in part.holes]
+    else:
+        outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+        holes_px = [scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes]
     h_px, w_px = image.grey.shape
     x0, y0 = np.floor(outer_px.min(axis=0)).astype(int) - pad_px
     x1, y1 = np.ceil(outer_px.max(axis=0)).astype(int) + pad_px
@@ -633,7 +667,7 @@ def _unclear_edges(image: LoadedImage, scale: PhotoScale, result: Measurement) -
     mm_per_px = scale.plane_map.mm_per_px
     flagged: list[str] = []
     for n, part in enumerate(result.parts):
-        crop = _part_crop(image, scale, part, 24)
+        crop = _part_crop(image, scale, part, 24, as_seen=True)
         if crop is None:
             continue
         (x0, y0, x1, y1), mask, rings = crop
