@@ -322,3 +322,96 @@ def test_photo_colour_is_decoded_once(tmp_path, monkeypatch):
     t = truth(_plate().outer_mm, _plate().holes_mm)
     for area in figures:  # shapely's area of the plate (reference library), the issue's 0.1 %
         assert area == pytest.approx(t["area"], rel=AREA_RTOL)
+
+
+def _projected_ring(cam, ring_mm: np.ndarray, z_mm: float) -> np.ndarray:
+    """Ideal pixels of a ring at height z: x = K (R X + t), written out here (pinhole model)."""
+    pts = np.column_stack([ring_mm, np.full(len(ring_mm), z_mm)])
+    cam_xyz = pts @ cam.r.T + cam.t
+    uvw = cam_xyz @ cam.k.T
+    return uvw[:, :2] / uvw[:, 2:3]
+
+
+def _px_oriented(ring_px: np.ndarray, material_left: bool = True, hole: bool = False) -> np.ndarray:
+    """A px ring with the material on its left (y down): positive shoelace area outside, negative for a hole."""
+    x, y = ring_px[:, 0], ring_px[:, 1]
+    area = float(np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y))
+    return ring_px if (area > 0) != hole else ring_px[::-1]
+
+
+@pytest.mark.parametrize("tilt_deg", [0.0, 20.0])
+def test_hole_of_a_raised_plate_seen_on_either_edge_maps_to_its_true_circle(tilt_deg):
+    """A through hole (radius 5 mm) in a plate 4 mm thick, camera 310 mm away (pinhole, explicit K [R|t]).
+
+    Its wall facing the camera shows between the top opening and the bottom one. If the
+    segmentation counts that wall as part, the outline is the boundary of the intersection of the
+    projected top and bottom openings (shapely, in px); if it counts it as background (a wall that
+    looks like the hole's bottom), the outline is the projected top opening all round. The first
+    maps to the true circle with the default hook, the second with ``top_seen`` set; the second
+    mapped as the first is too large by the wall's band (the error seen on brushed steel in soft light).
+    """
+    from shapely.geometry import Polygon
+
+    from scanmass.scale.homography import ElevationHook
+    from scanmass.section import fit_circle
+
+    cam = make_camera(size=(900, 1200), f_px=901.3, distance_mm=310.0, target_mm=(109.5, 145.0), tilt_deg=tilt_deg)
+    h0 = np.linalg.inv(cam.plane_to_px())
+    phi = np.linspace(0.0, 2 * np.pi, 721)[:-1]
+    centre, radius, thick = np.array([70.0, 200.0]), 5.0, 4.0
+    circle_mm = centre + radius * np.column_stack([np.cos(phi), np.sin(phi)])
+    top_px = _projected_ring(cam, circle_mm, thick)
+    bottom_px = _projected_ring(cam, circle_mm, 0.0)
+    both = Polygon(top_px).intersection(Polygon(bottom_px))  # what shows of the paper through the hole
+    seen_both = _px_oriented(np.asarray(both.exterior.coords)[:-1], hole=True)
+    seen_top = _px_oriented(top_px, hole=True)
+
+    plain = ElevationHook(h0, cam.k, thick)
+    mask = np.ones((1200, 900), bool)
+    on_top = plain.with_top_seen(mask)
+
+    def circle_of(points_px):
+        fit = fit_circle(apply_h(h0, points_px))
+        return np.array(fit.centre_mm), fit.diameter_mm, fit.rms_mm
+
+    for ring, hook in ((seen_both, plain), (seen_top, on_top)):
+        c, d, rms = circle_of(hook(ring))
+        assert np.allclose(c, centre, atol=2e-3) and abs(d - 2 * radius) < 4e-3 and rms < 2e-3, (c, d, rms)
+    # the top opening taken as the default hook takes it: too large by about the wall's band
+    _, d_wrong, rms_wrong = circle_of(plain(seen_top))
+    band = np.linalg.norm(apply_h(h0, top_px) - apply_h(h0, bottom_px), axis=1).max()
+    assert d_wrong - 2 * radius > 0.4 * band and rms_wrong > 10 * 2e-3
+    # an outer ring seen on its top edge all round (a disc whose wall looks like the paper)
+    disc = _px_oriented(top_px)
+    c, d, rms = circle_of(on_top(disc))
+    assert np.allclose(c, centre, atol=2e-3) and abs(d - 2 * radius) < 4e-3
+
+
+def test_top_seen_mask_is_read_at_the_photo_pixels_of_a_distorting_lens():
+    """With a lens correction the mask is read where the outline lies in the photo as stored (the
+    grid the segmentation and the shadow cut work on), not at its corrected position; a mask
+    only 2 px wide around the photo's ring then acts as a full one."""
+    import cv2
+
+    from scanmass.scale.homography import ElevationHook
+
+    cam = make_camera(size=(900, 1200), f_px=901.3, distance_mm=310.0, target_mm=(109.5, 145.0))
+    h0 = np.linalg.inv(cam.plane_to_px())
+    c, k1 = np.array([449.5, 599.5]), -0.2 / 901.3**2
+
+    def undistort(raw):  # a barrel lens: ideal = c + (raw - c)(1 + k1 r^2), r in px
+        d = raw - c
+        return c + d * (1.0 + k1 * np.sum(d * d, axis=1))[:, None]
+
+    phi = np.linspace(0.0, 2 * np.pi, 361)[:-1]
+    ideal = _px_oriented(_projected_ring(cam, np.array([30.0, 250.0]) + 5.0 * np.c_[np.cos(phi), np.sin(phi)], 4.0))
+    raw = ideal.copy()
+    for _ in range(20):  # the photo's pixels of the ideal ring: fixed-point inversion of the lens
+        raw = raw + (ideal - undistort(raw))
+    assert np.abs(raw - ideal).max() > 5.0  # the lens moves this ring by more than the mask's width
+    band = np.zeros((1200, 900), np.uint8)
+    cv2.polylines(band, [np.round(raw).astype(np.int32)], True, 1, thickness=5)
+    hook = ElevationHook(h0, cam.k, 4.0, undistort)
+    full = hook.with_top_seen(np.ones((1200, 900), bool))(raw)
+    assert np.allclose(hook.with_top_seen(band.astype(bool))(raw), full, atol=1e-12)
+    assert not np.allclose(hook(raw), full, atol=1e-3)  # without the mask the wall-facing side stays

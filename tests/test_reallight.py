@@ -232,14 +232,16 @@ def _nearest(m, tp):
 
 @pytest.mark.slow
 @pytest.mark.parametrize(
-    "name, thickness",
-    [("soft-steel-t0.json", 3.0), ("soft-steel-t0.json", 5.0), ("mixed-brass-t30.json", 3.0)],
+    "name, thickness, off",
+    [("soft-steel-t0.json", 3.0, False), ("soft-steel-t0.json", 5.0, False), ("mixed-brass-t30.json", 3.0, True)],
 )
-def test_metal_edge_that_looks_like_paper_is_warned_and_covered(name, thickness):
+def test_metal_edge_that_looks_like_paper_is_warned_and_covered(name, thickness, off):
     """Brushed steel under a large soft light (bright, with a dark band beside its edge) and brass
-    under warm and cool light (a soft ramp of another colour): the outline sits up to 1-4 px off
+    under warm and cool light (a soft ramp of another colour): the outline may sit 1-4 px off
     the top face's edge. Each such part is named in the 'unclear edge' warning and its area,
-    centroid and hole diameters lie within 3 stated sigma (truth: the render's outlines, shapely)."""
+    centroid and hole diameters lie within 3 stated sigma (truth: the render's outlines, shapely).
+    The steel's dark band is mostly its side wall facing the camera, which the measurement now
+    takes as outside the outline (its round holes tell): those parts come out within 0.5 %."""
     if not REALLIGHT.exists():
         pytest.skip("tests/data/reallight not in this checkout")
     m, parts = _measure_render(name, thickness)
@@ -249,7 +251,10 @@ def test_metal_edge_that_looks_like_paper_is_warned_and_covered(name, thickness)
         assert f" {part.label} (" in warning
         assert part.uncertainty_terms["unclear_edge"]["area_mm2"] > 0
         err = abs(part.area_mm2 - tp["area"])
-        assert err > 0.01 * tp["area"]  # the outline really is off: 1.6-2.7 % (bench_reallight) ...
+        if off:
+            assert err > 0.01 * tp["area"]  # the outline really is off: 2.7 % (bench_reallight) ...
+        else:
+            assert err < 0.005 * tp["area"]  # the wall modelled: 0.1-0.4 % (bench_reallight) ...
         assert err <= 3 * part.area_u_mm2  # ... and the stated uncertainty covers it
         for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
             assert abs(c - t) <= 3 * u
@@ -337,3 +342,36 @@ def test_white_part_beside_a_black_one_leaves_only_named_shadows():
     others = [q for q in m.parts if q.label != part.label]
     assert others and all(math.dist(q.centroid_mm, disc["centroid"]) < 25.0 for q in others)  # where the disc is
     assert all(f"part {q.label} (" in shadow for q in others) and f"part {part.label} (" not in shadow
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    ("name", "shape", "thickness", "area_pct", "centroid_mm", "hole_mm", "top_edge"),
+    [
+        # brushed steel in soft light: its walls look like the paper and like the holes' bottoms
+        ("soft-steel-t0.json", "plate", 3.0, 0.4, 0.08, 0.08, True),
+        ("soft-steel-t0.json", "disc", 5.0, 0.6, 0.08, 0.1, True),
+        # under a spotlight the shadow cut takes the shaded wall facing the camera with the shadow
+        ("spot-steel-t0.json", "plate", 3.0, 0.5, 0.1, 0.15, False),
+    ],
+)
+def test_thick_part_whose_wall_faces_the_camera_is_measured_on_its_top_edge(
+    name, shape, thickness, area_pct, centroid_mm, hole_mm, top_edge
+):
+    """Issue 11: with the thickness given these parts came out 1.6-2.6 % too small and their holes
+    0.3-0.6 mm too large (the outline ran on the top face's edge, taken as the bottom edge where
+    the wall faces the camera). Truth: the render's extruded outlines (shapely); tolerances are
+    about the measured error plus the edge's pixel (0.34 mm) share, far inside the stated sigma."""
+    truth, parts = _render_truth(name)
+    tp = next(p for p in parts if p["shape"] == shape)
+    m = scanmass.measure(REALLIGHT / truth["image"], thickness_mm=thickness)
+    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+    assert abs(part.area_mm2 / tp["area"] - 1) < area_pct / 100, part.area_mm2 / tp["area"] - 1
+    assert math.dist(part.centroid_mm, tp["centroid"]) < centroid_mm
+    assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert abs(hole.diameter_mm - diameter) < hole_mm, (hole.diameter_mm, diameter)
+        assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+    said = m.settings.get("top_face_edge", {}).get("parts", [])
+    assert (part.label in said) == top_edge

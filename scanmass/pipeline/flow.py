@@ -14,7 +14,7 @@ from typing import Any
 
 import numpy as np
 
-from scanmass.errors import PartCutError, ScaleError, SegmentationError
+from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
@@ -30,6 +30,8 @@ from scanmass.pipeline.photo_checks import (
     _shadows_only,
     _unclear_edges,
     _unknown_thickness,
+    wall_sides,
+    with_top_seen,
 )
 from scanmass.pipeline.scan_checks import (
     _apply_splits,
@@ -642,6 +644,24 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
             path=image.path,
         ) from None
     _check_within_support(scale, result, image.path)
+    top_seen, top_labels = wall_sides(image.grey.shape[:2], scale, result, thickness_mm)
+    if top_seen is not None:
+        # measured again with those parts' outlines taken as their top faces' edges all round
+        seen_scale = replace(scale, plane_map=with_top_seen(scale.plane_map, top_seen))
+        try:
+            again = measure_image(
+                masked, options, plane_map=seen_scale.plane_map, roi_px=scale.roi_px,
+                tone_known=options.encoding != "auto",
+            )  # fmt: skip
+        except (SegmentationError, ScaleError, OptionError):
+            again = None
+        if again is not None and len(again.parts) == len(result.parts):
+            scale, result = seen_scale, again
+            result.settings["top_face_edge"] = {
+                "parts": top_labels,
+                "note": "outline taken on the top face's edge all round (the side wall facing the camera looked "
+                "like the background; the parts' round rings fit a circle only so)",
+            }
     colour = _photo_colour(image)  # decoded once for the colour checks
     result, cut, cut_labels = _cut_cast_shadows(
         image,
@@ -650,8 +670,8 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
         result,
         thickness_mm,
         colour,
-        lambda img: measure_image(
-            img, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
+        lambda img, plane_map: measure_image(
+            img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
         ),
     )
     shadow_only = _shadows_only(image, scale, result, colour)

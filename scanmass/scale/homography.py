@@ -256,21 +256,44 @@ class ElevationHook:
         Height of the measured face above the mat.
     undistort : callable, optional
         Lens correction applied first (distorted -> ideal pixels).
+    top_seen : (H, W) bool ndarray, optional
+        Photo pixels (as stored, before the lens correction) where the outline was found on the
+        top face's edge all round: the side
+        wall facing the camera was taken for background there (a wall that looks like the
+        paper, or like the bottom of a hole), so every boundary point inside it is a top-face
+        point. Elsewhere the wall facing the camera is taken as part of the part, as above.
     """
 
-    def __init__(self, px_to_plane: np.ndarray, k: np.ndarray, height_mm: float, undistort=None) -> None:
+    def __init__(
+        self,
+        px_to_plane: np.ndarray,
+        k: np.ndarray,
+        height_mm: float,
+        undistort=None,
+        top_seen: np.ndarray | None = None,
+    ) -> None:
         self.h0 = np.asarray(px_to_plane, dtype=float)
         self.g0 = _normalised(np.linalg.inv(self.h0))
+        self.k = np.asarray(k, dtype=float)
         self.gh = elevated_plane_homography(self.g0, k, height_mm)
         self.hh = _normalised(np.linalg.inv(self.gh))
         self.to_footprint = _normalised(self.g0 @ self.hh)  # px of a top-face point -> px of its footprint
         self.height_mm = float(height_mm)
         self.undistort = undistort
+        self.top_seen = top_seen
+
+    def photo_px(self, ideal_px: np.ndarray) -> np.ndarray:
+        """Photo pixels of ideal ones, to about a pixel (one fixed-point step of the lens correction)."""
+        ideal = np.asarray(ideal_px, dtype=float).reshape(-1, 2)
+        return ideal if self.undistort is None else 2.0 * ideal - self.undistort(ideal)
+
+    def with_top_seen(self, top_seen: np.ndarray | None) -> ElevationHook:
+        """The same hook with another :attr:`top_seen` mask."""
+        return ElevationHook(self.h0, self.k, self.height_mm, self.undistort, top_seen)
 
     def __call__(self, points_px: np.ndarray) -> np.ndarray:
-        pts = np.asarray(points_px, dtype=float).reshape(-1, 2)
-        if self.undistort is not None:
-            pts = self.undistort(pts)
+        raw = np.asarray(points_px, dtype=float).reshape(-1, 2)
+        pts = self.undistort(raw) if self.undistort is not None else raw
         foot = apply_h(self.to_footprint, pts)
         if len(pts) < 3:
             return foot
@@ -278,6 +301,11 @@ class ElevationHook:
         outward = np.column_stack([tangent[:, 1], -tangent[:, 0]])  # material on the left
         parallax = pts - foot
         top = np.sum(outward * parallax, axis=1) > 0
+        if self.top_seen is not None:
+            h, w = self.top_seen.shape
+            col = np.clip(np.rint(raw[:, 0]), 0, w - 1).astype(np.intp)
+            row = np.clip(np.rint(raw[:, 1]), 0, h - 1).astype(np.intp)
+            top |= self.top_seen[row, col]
         return np.where(top[:, None], foot, pts)
 
 
