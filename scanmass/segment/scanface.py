@@ -12,8 +12,12 @@ darker than the midpoint between the lid and the part, the part's outline takes 
 stretch is the shadow's outer end; the face is the region at the part's own level, its
 edge on the shadow side taken halfway between the part's level and the shadow's level
 next to it (the local-midpoint rule of the segmenter with the shadow as the local
-background). When the shadow is as dark as the part, the face cannot be told from it
-and the caller is told how large the shadow may be.
+background). When no level tells them apart (steel reflects the scanner's dark inside: its
+shadow runs from lighter than the face at its far end to darker next to it), the shadow is
+taken as the face swept along the lamp's direction (:func:`_face_by_sweep`): its length is
+where a sharp step lies the same distance behind the whole soft front, and the found region
+eroded by that segment is the face. When that fails too, the caller is told how large the
+shadow may be.
 """
 
 from __future__ import annotations
