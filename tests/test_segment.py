@@ -228,3 +228,18 @@ def test_level_fit_noise_stays_robust_where_it_spans_many_levels():
     values = _srgb_round_trip_8bit(values)
     sigma = _fit_surface(values, rows.astype(float), cols.astype(float), 80.0, 2)[2]
     assert sigma == pytest.approx(0.02, rel=0.08)  # the shading's 4 % move the median absolute deviation ~4 %
+
+
+@pytest.mark.parametrize(("fg", "seed"), [(0.635, 5), (0.635, 6), (0.65, 6)])
+def test_contrast_of_a_bright_part_in_an_8bit_file_is_unbiased(fg, seed):
+    """A light part (linear 0.635 or 0.65) on a dark ground (0.04), noise 0.004, 8-bit sRGB:
+    at the part's level one stored level holds most of the samples. The contrast the edges
+    are placed with must be the rendered one (the renderer's parameters, fg - bg) within its
+    sampling error (~1e-4), not half a level step (~3.5e-3, 0.6 % of it) off; the midpoint
+    moves by half that error (0.01 px under a 1 px blur)."""
+    part = SynthPart(rectangle(5.0, 5.0, 20.0, 12.0, angle_deg=7.0), [])
+    scan = render_scan(
+        [part], dpi=DPI, size_mm=(30, 22), background=0.04, foreground=fg, blur_px=1.0, noise=0.004, seed=seed
+    )
+    rings = segment(_loaded(scan)).parts[0]
+    assert rings.contrast == pytest.approx(fg - 0.04, abs=6e-4)
