@@ -22,8 +22,8 @@ with ``dpi_rel_u = 0`` so that sigma holds the image terms only:
 
 Walls of 2, 3, 4 and 6 px; 300 and 600 dpi; blur 0.5-1.5 px; dark-on-light and
 light-on-dark; sRGB-encoded 8-bit arrays, linear-light float arrays (a tagged linear
-file) and 16-bit sRGB arrays (their own random draws); clean (noise 0) and noisy (0.004,
-without --quick). Truth: shapely's area of the rendered polygon.
+file: the render's linear light with the same noise draw, unquantised) and 16-bit sRGB
+arrays (their own random draws); clean (noise 0) and noisy (0.004, without --quick). Truth: shapely's area of the rendered polygon.
 Untagged files: linear-light renders saved as PNG without a colour chunk; each must get
 the warning or the right reading.
 """
@@ -73,6 +73,17 @@ def ring(dpi: float, wall_px: float) -> tuple[SynthPart, float]:
     w = wall_px * 25.4 / dpi
     part = SynthPart(circle(15.0, 15.0, 8.0), [circle(15.0, 15.0, 8.0 - w)])
     return part, Polygon(part.outer_mm, part.holes_mm).area
+
+
+def _linear_plane(scan, noise: float, seed: int) -> np.ndarray:
+    """What a tagged linear float file of ``scan`` holds: its linear light plus the render's
+    own noise draw (scanmass.testing.scans adds ``normal(0, noise)`` from ``seed`` after the
+    blur, then clips to 0-1), without the encoding and rounding. (``scan.linear`` alone is
+    noise-free: the noisy linear rows were clean before.)"""
+    plane = scan.linear.astype(np.float64)
+    if noise > 0:
+        plane = plane + np.random.default_rng(seed).normal(0.0, noise, plane.shape)
+    return np.clip(plane, 0.0, 1.0)
 
 
 def _measure_row(img, family, wall_px, dpi, polarity, encoding, noise, truth, thin_area, plate_err=None) -> tuple:
@@ -141,12 +152,13 @@ def _rows(rng: np.random.Generator, encodings: tuple[str, ...], bit_depth: int, 
                                 seed=int(rng.integers(1 << 30)),
                             )  # fmt: skip
                             scan = render_scan([part], **settings)  # type: ignore[arg-type]
-                            img = scan.linear.astype(np.float64) if encoding == "linear" else scan.image
+                            seed = settings["seed"]
+                            img = _linear_plane(scan, noise, seed) if encoding == "linear" else scan.image  # type: ignore[arg-type]
                             plate_err = None
                             if family == "fin+slot":  # the same render of the plate alone (same noise draw)
                                 plate = plate_alone(dpi, wall_px)
                                 alone = render_scan([plate], **settings)  # type: ignore[arg-type]
-                                plate_img = alone.linear.astype(np.float64) if encoding == "linear" else alone.image
+                                plate_img = _linear_plane(alone, noise, seed) if encoding == "linear" else alone.image  # type: ignore[arg-type]
                                 plate_err = _plate_error(plate_img, dpi, Polygon(plate.outer_mm).area)
                             rows.append(
                                 _measure_row(

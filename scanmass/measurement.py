@@ -156,6 +156,9 @@ class Hole:
     diameter_u_mm: float
     roundness_mm: float
     outline_mm: np.ndarray | None = field(default=None, repr=False)
+    #: 1-sigma of ``perimeter_mm``: the part perimeter's terms for this ring alone (NaN in
+    #: documents written before it was stated)
+    perimeter_u_mm: float = math.nan
 
 
 @dataclass
@@ -413,6 +416,8 @@ class Measurement:
                     h["label"] = _label(h.get("label"), "hole")
                     for key in ("centroid_mm", "centroid_u_mm", "circle_centre_mm", "circle_centre_u_mm"):
                         h[key] = _tuple(h[key])
+                    if h.get("perimeter_u_mm") is None:  # not stated (older documents): NaN
+                        h["perimeter_u_mm"] = math.nan
                     holes.append(Hole(**h))
                 p["outline_mm"] = _ring_from_list(p.get("outline_mm"))
                 p["label"] = _label(p.get("label"), "part")

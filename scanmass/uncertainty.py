@@ -518,7 +518,7 @@ def corner_deficit_mm(rings_mm: list[np.ndarray], blur_mm: float, px_mm: float) 
     return CORNER_RADIUS_SIGMA * blur_mm * total
 
 
-def roughness_mm(model: EdgeModel, sigma_m_mm: np.ndarray | None = None) -> float:
+def roughness_mm(model: EdgeModel, sigma_m_mm: np.ndarray | None = None, ring_index: int | None = None) -> float:
     """Length the boundary's random wiggles add to the perimeter, the ``roughness`` term (mm).
 
     A curve displaced along its normal by ``delta(s)`` is longer by ``integral of
@@ -529,12 +529,16 @@ def roughness_mm(model: EdgeModel, sigma_m_mm: np.ndarray | None = None) -> floa
     rendered discs it is 1.4-1.6 times the gain measured). It is a bias (the traced
     perimeter is always longer), taken as a 1-sigma term; the caller also takes the
     traced rings' own measured wiggle (:func:`wiggle_excess_mm`) where that is larger.
+    ``ring_index`` (0 the outline, 1.. the holes) sums one ring's vertices only.
     """
     var = model.sigma_n_mm**2
     if sigma_m_mm is not None:
         var = var + np.asarray(sigma_m_mm, float) ** 2
     corr = np.where(model.corr_mm > 0, model.corr_mm, 1.0)
-    return float(np.sum(var * model.lengths_mm / corr**2))
+    gain = var * model.lengths_mm / corr**2
+    if ring_index is not None:
+        gain = gain[model.ring == ring_index]
+    return float(np.sum(gain))
 
 
 #: Ratio of the whole perimeter gain from a traced ring's wiggles to the length the ring

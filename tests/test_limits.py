@@ -222,21 +222,30 @@ def test_end_window_restores_a_fin_tip_area_for_any_blur(sigma):
 
 
 def test_thin_ring_without_a_thick_region_is_corrected_and_covered():
-    # a 3 px shim ring at 300 dpi: the midpoint rule alone came out 4-16 % off (issue 12)
+    # a 3 px shim ring at 300 dpi: the midpoint rule alone came out 4-16 % off (issue 12).
+    # Without a thick region the level comes from the walls' own profiles (about 3 % on the
+    # level) where their peaks reach OWN_LEVEL_MIN_REACH (0.75) of it; on this ring under a
+    # 1 px blur the median reach is 0.741-0.752 from draw to draw (noise 0.002), so a single
+    # draw is resolved or not by chance: over four draws each one is either resolved within
+    # 8 % (the midpoint rule alone gave +16 %, observed before the change) and says its level
+    # rests on the walls' own profiles, or is reported unresolved and covered within 3 sigma
     dpi, wall = 300, 3 * 25.4 / 300
     r = 8.0
     part = SynthPart(circle(15, 15, r), [circle(15, 15, r - wall)])
     truth = Polygon(part.outer_mm, part.holes_mm).area
-    scan = render_scan([part], dpi=dpi, size_mm=(30, 30), blur_px=1.0, noise=0.002, seed=5)
-    m = measure(scan.image, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1)
-    p = m.parts[0]
-    # without a thick region the level comes from the walls' own profiles (about 3 % on the
-    # level); the midpoint rule alone gave +16 % on this ring (observed before the change)
-    assert abs(p.area_mm2 / truth - 1) < 0.08
-    assert abs(p.area_mm2 - truth) <= 3 * p.area_u_mm2
-    assert "model" in p.uncertainty_terms
-    # ... and says so: the level, and so the width, rests on the walls' own profiles
-    assert any("no thick region" in w and "own profiles" in w for w in m.warnings), m.warnings
+    resolved = 0
+    for seed in (5, 6, 7, 8):
+        scan = render_scan([part], dpi=dpi, size_mm=(30, 30), blur_px=1.0, noise=0.002, seed=seed)
+        m = measure(scan.image, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1)
+        p = m.parts[0]
+        assert abs(p.area_mm2 - truth) <= 3 * p.area_u_mm2
+        assert "model" in p.uncertainty_terms
+        if any("no thick region" in w and "own profiles" in w for w in m.warnings):
+            assert abs(p.area_mm2 / truth - 1) < 0.08
+            resolved += 1
+        else:
+            assert any("cannot be resolved" in w for w in m.warnings), m.warnings
+    assert resolved >= 1  # the own-profile path is exercised
 
 
 def test_unresolvable_wall_warns():

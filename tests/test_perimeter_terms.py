@@ -101,3 +101,26 @@ def test_disc_corners_term_small_and_covered(noise: float) -> None:
     assert abs(err) <= 3 * p.perimeter_u_mm
     # honest, not inflated: the stated sigma is within 3x of the error (measured 1.3-1.6x)
     assert p.perimeter_u_mm <= 3 * abs(err) + 0.1 * px
+
+
+@pytest.mark.parametrize("dpi", [300, 600])
+@pytest.mark.parametrize("blur", [0.5, 1.4])
+@pytest.mark.parametrize("noise", [0.0, 0.004])
+def test_hole_perimeters_stated_and_covered(dpi: int, blur: float, noise: float) -> None:
+    # a plate with a round hole and a square one (turned 20 degrees): each hole's perimeter
+    # against shapely's length of its rendered ring, within 3 of its stated sigma; the sigma
+    # no more than the part perimeter's (the hole is one of the part's rings: its terms are
+    # a share of the part's) and not inflated: at most 3 times the error plus half a pixel
+    # (the round hole's error is near 0; the square's corners term stands for a real loss)
+    square = rectangle(24.0, 8.0, 7.0, 7.0, angle_deg=20.0)
+    part = SynthPart(rectangle(4.0, 4.0, 36.0, 18.0), [circle(13.0, 13.0, 4.0), square])
+    scan = render_scan([part], dpi=dpi, size_mm=(44.0, 26.0), blur_px=blur, noise=noise, seed=3)
+    m = measure(scan.image, dpi=dpi, dpi_rel_u=0.0)
+    p = m.parts[0]
+    assert len(p.holes) == 2
+    truths = sorted(Polygon(h).length for h in part.holes_mm)
+    for h, truth in zip(sorted(p.holes, key=lambda h: h.perimeter_mm), truths):
+        assert math.isfinite(h.perimeter_u_mm) and h.perimeter_u_mm > 0
+        assert abs(h.perimeter_mm - truth) <= 3 * h.perimeter_u_mm
+        assert h.perimeter_u_mm <= p.perimeter_u_mm
+        assert h.perimeter_u_mm <= 3 * abs(h.perimeter_mm - truth) + 0.5 * 25.4 / dpi

@@ -174,3 +174,72 @@ def test_low_contrast_part_is_still_found():
     seg = segment(load_image(synth.image, dpi=300.0), min_area_px=50)
     assert len(seg.parts) == 1 and seg.faint == 0
     assert seg.parts[0].area_px * (25.4 / 300.0) ** 2 == pytest.approx(600.0, rel=0.01)  # 30 x 20 mm
+
+
+def _srgb_round_trip_8bit(linear: np.ndarray) -> np.ndarray:
+    """Linear light through 8-bit sRGB and back: IEC 61966-2-1 encode, round to 255 levels, decode."""
+    v = np.clip(linear, 0.0, 1.0)
+    enc = np.where(v <= 0.0031308, 12.92 * v, 1.055 * v ** (1 / 2.4) - 0.055)
+    code = np.rint(enc * 255.0) / 255.0
+    return np.where(code <= 0.04045, code / 12.92, ((code + 0.055) / 1.055) ** 2.4)
+
+
+@pytest.mark.parametrize("slope", [0.0, 0.002])
+@pytest.mark.parametrize("level", [0.62, 0.635, 0.65, 0.665, 0.8])
+def test_level_fit_on_8bit_levels_neither_biased_nor_blind_to_noise(level, slope):
+    """A bright sRGB level in an 8-bit file with noise under one level step (0.004 against a
+    step of ~0.007 in linear light): most samples share one stored level. The level's fit must
+    still find the mean: by the quantisation theorem (Widrow and Kollar, Quantization Noise,
+    2008, section 4) the mean of the quantised samples is off by at most D / pi exp(-2 pi^2
+    s^2 / D^2), here < 1e-5, against a sampling error of s / sqrt(N) ~ 5e-5. Cutting at 3.5
+    median absolute residuals dropped the neighbouring levels and moved it by up to half a
+    step (3e-3). The spread it reports must be that of the stored values, noise and rounding
+    together, sqrt(s^2 + D^2 / 12) (the same theorem; Sheppard 1898), not 0."""
+    from scanmass.segment.rings import _fit_surface
+
+    rng = np.random.default_rng(7)
+    rows, cols = np.divmod(np.arange(80 * 75), 75)
+    rows, cols = rows.astype(float), cols.astype(float)
+    true = level + slope * (cols / 75.0)  # flat, or a slight illumination slope
+    values = _srgb_round_trip_8bit(true + rng.normal(0.0, 0.004, true.size))
+    coef, order, sigma, n = _fit_surface(values, rows, cols, 80.0, 2)
+    x, y = cols / 80.0, rows / 80.0
+    fitted = coef[0] + coef[1] * x + coef[2] * y + coef[3] * x * x + coef[4] * x * y + coef[5] * y * y
+    # mean over the samples: the fit's level (the slope is fitted exactly by the surface)
+    assert abs(float(np.mean(fitted - true))) < 4 * 0.004 / math.sqrt(true.size) + 1e-5
+    assert n > 0.97 * true.size  # no stored level dropped as an outlier (a 3.5 sigma cut drops 0.05 %)
+    # the local step of the stored levels (IEC 61966-2-1 decode of neighbouring 8-bit codes)
+    code = np.rint(255.0 * (1.055 * level ** (1 / 2.4) - 0.055))
+    step = float(np.diff(_srgb_round_trip_8bit(((np.array([code, code + 1]) / 255.0 + 0.055) / 1.055) ** 2.4))[0])
+    assert sigma == pytest.approx(math.sqrt(0.004**2 + step**2 / 12.0), rel=0.06)  # 4 standard errors ~ 4 %
+
+
+def test_level_fit_noise_stays_robust_where_it_spans_many_levels():
+    """Noise of several steps (0.02 in linear light against a step of ~0.003 at 0.3) and 4 %
+    of the samples moved by shading (+0.06, inside the outlier cut): the noise is the robust
+    spread, as for continuous data (1.4826 x the median absolute deviation of a Gaussian is
+    its sigma; common practice), not the variance, which the shading inflates by 17 %."""
+    from scanmass.segment.rings import _fit_surface
+
+    rng = np.random.default_rng(11)
+    rows, cols = np.divmod(np.arange(80 * 75), 75)
+    values = 0.3 + rng.normal(0.0, 0.02, rows.size)
+    values[rng.random(rows.size) < 0.04] += 0.06
+    values = _srgb_round_trip_8bit(values)
+    sigma = _fit_surface(values, rows.astype(float), cols.astype(float), 80.0, 2)[2]
+    assert sigma == pytest.approx(0.02, rel=0.08)  # the shading's 4 % move the median absolute deviation ~4 %
+
+
+@pytest.mark.parametrize(("fg", "seed"), [(0.635, 5), (0.635, 6), (0.65, 6)])
+def test_contrast_of_a_bright_part_in_an_8bit_file_is_unbiased(fg, seed):
+    """A light part (linear 0.635 or 0.65) on a dark ground (0.04), noise 0.004, 8-bit sRGB:
+    at the part's level one stored level holds most of the samples. The contrast the edges
+    are placed with must be the rendered one (the renderer's parameters, fg - bg) within its
+    sampling error (~1e-4), not half a level step (~3.5e-3, 0.6 % of it) off; the midpoint
+    moves by half that error (0.01 px under a 1 px blur)."""
+    part = SynthPart(rectangle(5.0, 5.0, 20.0, 12.0, angle_deg=7.0), [])
+    scan = render_scan(
+        [part], dpi=DPI, size_mm=(30, 22), background=0.04, foreground=fg, blur_px=1.0, noise=0.004, seed=seed
+    )
+    rings = segment(_loaded(scan)).parts[0]
+    assert rings.contrast == pytest.approx(fg - 0.04, abs=6e-4)

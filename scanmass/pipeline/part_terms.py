@@ -281,13 +281,11 @@ def measure_part(
     model_u["perimeter_mm"] = extra_perimeter_u_mm
     # the perimeter's own terms: corners rounded by the blur (shorter), wiggles of noise
     # and of the model floor (longer); each a bias taken as a 1-sigma term
+    floor_mm = np.full(len(model.corr_mm), resid_px) * model.corr_mm  # the modelled floor, per vertex
     perim_u = {
         "corners": {"perimeter_mm": corner_deficit_mm([outer_mm, *holes_mm], blur * mm_px, mm_px)},
         "roughness": {
-            "perimeter_mm": max(
-                roughness_mm(model, np.full(len(model.corr_mm), resid_px) * model.corr_mm),
-                WIGGLE_RATIO * wiggle_excess_mm([outer_mm, *holes_mm]),
-            )
+            "perimeter_mm": max(roughness_mm(model, floor_mm), WIGGLE_RATIO * wiggle_excess_mm([outer_mm, *holes_mm]))
         },
     }
     total = {
@@ -330,6 +328,15 @@ def measure_part(
             combine(c_edge, plane_map.rel_u * abs(fit.centre_mm[0])),
             combine(c_edge, plane_map.rel_u * abs(fit.centre_mm[1])),
         )
+        # its perimeter: the part perimeter's terms for this ring alone (a uniform offset d
+        # changes one ring's length by 2 pi d; its corners; its wiggles; the scale)
+        perim_ring = ring_perimeter(ring_mm)
+        hole_perim_u = combine(
+            2 * math.pi * offset_mm,
+            corner_deficit_mm([ring_mm], blur * mm_px, mm_px),
+            max(roughness_mm(model, floor_mm, ring_index=k), WIGGLE_RATIO * wiggle_excess_mm([ring_mm])),
+            plane_map.rel_u * perim_ring,
+        )
         holes.append(
             Hole(
                 label=k,
@@ -337,7 +344,8 @@ def measure_part(
                 area_u_mm2=area_u,
                 centroid_mm=centroid_mm,
                 centroid_u_mm=cen_u,
-                perimeter_mm=ring_perimeter(ring_mm),
+                perimeter_mm=perim_ring,
+                perimeter_u_mm=hole_perim_u,
                 circle_centre_mm=fit.centre_mm,
                 circle_centre_u_mm=circ_u,
                 diameter_mm=fit.diameter_mm,

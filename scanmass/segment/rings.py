@@ -119,7 +119,15 @@ def _poly_design(x: np.ndarray, y: np.ndarray, order: int) -> np.ndarray:
 def _fit_surface(
     values: np.ndarray, rows: np.ndarray, cols: np.ndarray, scale: float, max_order: int
 ) -> tuple[np.ndarray, int, float, int]:
-    """Robust least-squares polynomial surface; returns (coefficients, order, residual sigma, n)."""
+    """Robust least-squares polynomial surface; returns (coefficients, order, residual sigma, n).
+
+    References
+    ----------
+    .. [1] W. F. Sheppard, "On the calculation of the most probable values of
+       frequency-constants, for data arranged according to equidistant divisions of a scale",
+       Proc. London Math. Soc. 29, 353-380, 1898 (the variance of grouped data exceeds the
+       variance of the data by h^2 / 12).
+    """
     n = values.size
     order = 0 if n < 30 else (1 if n < 300 or max_order < 2 else 2)
     x, y = cols / scale, rows / scale
@@ -127,6 +135,10 @@ def _fit_surface(
     keep = np.ones(n, dtype=bool)
     coef = np.zeros(a.shape[1])
     sigma = 0.0
+    # stored grey levels (far fewer distinct values than samples: 8- and 16-bit files): the
+    # spacing of the levels present; 0 for float input
+    levels = np.unique(values)
+    step = float(np.median(np.diff(levels))) if 1 < levels.size < 0.5 * n else 0.0
     for _ in range(3):  # iteratively reweighted: drop > 3.5 sigma outliers (dust, print, shadows)
         # normal equations of at most 6 unknowns, summed with einsum: multithreaded BLAS on
         # tall thin matrices costs more in idle threads than it saves (batch benchmark)
@@ -135,12 +147,38 @@ def _fit_surface(
             np.einsum("ij,ik->jk", ak, ak) + 1e-12 * np.eye(a.shape[1]), np.einsum("ij,i->j", ak, values[keep])
         )
         res = values - np.einsum("ij,j->i", a, coef)
-        sigma = 1.4826 * float(np.median(np.abs(res[keep] - np.median(res[keep])))) + 1e-9
-        new_keep = np.abs(res) < 3.5 * sigma + 1e-6
+        sigma = _noise_spread(res[keep], step)
+        # a sample's residual is its noise plus its rounding (at most half a step) plus the
+        # surface's own error (up to half a step where the noise is under one: no dither),
+        # and noise under about half a step is not resolved by the grouped data: the cut
+        # keeps the neighbouring stored levels. At 3.5 sigma alone it dropped them where one
+        # level holds most samples (noise under a step at a bright sRGB level of an 8-bit
+        # file), unevenly: the level moved by up to half a step (0.5 % of the contrast)
+        new_keep = np.abs(res) < 3.5 * sigma + 2.0 * step + 1e-6
         if new_keep.sum() < max(8, a.shape[1] * 3) or np.array_equal(new_keep, keep):
             break
         keep = new_keep
     return coef, order, sigma, int(keep.sum())
+
+
+def _noise_spread(residuals: np.ndarray, step: float) -> float:
+    """Per-pixel spread of a level fit's residuals; ``step``: the spacing of the stored levels (0: float data).
+
+    The robust spread (1.4826 x the median absolute deviation), where the noise spans a
+    few stored levels (at 2 steps the grouping moves it by well under 1 %). Under that the
+    median absolute deviation says little (0 where one level holds most samples, 3/4 of a
+    step where two share them): there it is the standard deviation of the residuals, the
+    noise and the rounding together (``sigma^2 + step^2 / 12`` where the noise dithers the
+    rounding, Sheppard's correction read the other way), which is what the edge's own
+    pixels carry too; within a few steps of the level the outliers the median resists
+    (shading, texture) are already cut.
+    """
+    if residuals.size == 0:
+        return 1e-9
+    mad = 1.4826 * float(np.median(np.abs(residuals - np.median(residuals))))
+    if step > 0 and mad < 2.0 * step:
+        return float(np.std(residuals)) + 1e-9
+    return mad + 1e-9
 
 
 def pixel_noise(image: LoadedImage, roi_px: np.ndarray | None = None) -> float:
