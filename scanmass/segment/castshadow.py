@@ -27,13 +27,22 @@ and the term of :mod:`scanmass.segment.shadow`'s check stay.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterator
 from dataclasses import dataclass
 
 import cv2
 import numpy as np
 
-__all__ = ["ShadowCut", "roughness", "shadow_cut", "CUT_MIN_TEXTURE_RATIO"]
+__all__ = [
+    "ShadowCut",
+    "roughness",
+    "shadow_cut",
+    "CUT_MIN_TEXTURE_RATIO",
+    "HiddenShadow",
+    "hidden_shadow",
+    "STRETCH_PX",
+]
 
 #: Smallest ratio of the shadow's roughness (median over the candidate layer) to the face's
 #: (median over its interior) for a cut: below it the two cannot be told apart.
@@ -133,7 +142,9 @@ def shadow_cut(
     Examples
     --------
     A smooth dark face (0.04 of the paper) 58 px wide with a rough shadow layer 8 px wide
-    along its left side, found as one region: the layer is cut, the face kept.
+    along its left side, found as one region: the layer is cut, the face kept (but for the
+    two pixels at each end of the cut that touch both the cut and the outline: a rim left
+    between a cut and the paper goes with the cut).
 
     >>> rng = np.random.default_rng(0)
     >>> paper = np.array([0.7, 0.72, 0.74])
@@ -141,8 +152,10 @@ def shadow_cut(
     >>> img[20:80, 22:80] = 0.04 * paper
     >>> img[20:80, 14:22] = paper * (0.01 + 0.03 * rng.random((60, 8, 1)))
     >>> cut = shadow_cut(img, mask, paper, reach_px=10)
-    >>> bool(cut.cut[:, 14:22][mask[:, 14:22]].all()), bool(cut.cut[:, 22:].any()), cut.edge_px
+    >>> bool(cut.cut[:, 14:22][mask[:, 14:22]].all()), bool(cut.cut[:, 23:].any()), cut.edge_px
     (True, False, 60.0)
+    >>> [(int(r), int(c)) for r, c in zip(*np.nonzero(cut.cut[:, 22:23]))]
+    [(20, 0), (21, 0), (78, 0), (79, 0)]
     """
     mask8 = part_mask.astype(np.uint8)
     if mask8.sum() < 50:
@@ -193,6 +206,18 @@ def shadow_cut(
     tex_shadow = float(np.median(rough[cut]))
     if tex_shadow < CUT_MIN_TEXTURE_RATIO * max(tex_face, 1e-4):
         return None
+    # a strip of the outline's rim left between the cut and the paper (the shadow's far edge,
+    # a whole-pixel sweep short of it) would enclose the cut as a false hole: it goes with the
+    # cut, unless that parts the face
+    to_cut = cv2.distanceTransform((~cut).astype(np.uint8), cv2.DIST_L2, 3)
+    to_out = cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3)
+    strip = keep & (to_cut <= 2.0) & (to_out <= 2.0)
+    strip &= ~cv2.dilate((keep & ~strip & (to_cut > 2.0)).astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+    pieces_before = cv2.connectedComponents(keep.astype(np.uint8), connectivity=8)[0]
+    if strip.any() and cv2.connectedComponents((keep & ~strip).astype(np.uint8), connectivity=8)[0] <= pieces_before:
+        cut = cut | strip
+        keep = keep & ~strip
+        n_cut = int(np.count_nonzero(cut))
     k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
     border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
     return ShadowCut(
@@ -218,9 +243,13 @@ def _sweep_depth(
 ) -> tuple[np.ndarray, float, np.ndarray] | None:
     """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, and a face map.
 
-    The face map is True where a pixel looks like the face: at the face's level and smooth
-    (the sweep itself is chosen by votes that take a pixel at the face's level or smooth as
-    face: a shadow pixel is dark and rough).
+    The face map is True where a pixel looks like the face: at the face's level and smooth.
+    The sweep itself is refined by votes: where the face and the shadow differ in level, a pixel
+    at the face's level votes for the face, a rough one at the shadow's level for the shadow,
+    and a smooth one at the shadow's level not at all (the shadow in the lee of a tall part's
+    wall is as smooth as a dark face: taken as face, it turned the steel cam's sweep on the
+    committed renders away from the shadow's lee and left a crescent of +7 %); without a level step, a
+    smooth pixel votes for the face and a rough one for the shadow.
 
     The direction is the one (of 32) whose sweep adds the most shadow-like layers (each
     counted by its share of shadow-like pixels) before a layer holds less than a half: a sweep
@@ -274,9 +303,13 @@ def _sweep_depth(
         at_face_level = (level - lv_s) * np.sign(lv_f - lv_s) >= mid
         smooth = rough <= 0.5 * (rg_s + rg_f)
         face_like, face_sure = at_face_level | smooth, at_face_level & smooth
+        # smooth at the shadow's level: the shadow in the lee of a tall part's wall, or a dark
+        # face; neither side's evidence
+        vote = np.where(at_face_level, -1.0, np.where(smooth, 0.0, 1.0)).astype(np.float32)
     else:
         profile, mid = rg_s - rg, 0.5 * (rg_s - rg_f)
         face_like = face_sure = rough <= 0.5 * (rg_s + rg_f)
+        vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
     start = 1 if last > 2 else 0
     for i in range(start + 1, len(ks)):
         # the layers from here on at the face's side of half-way, not one layer's blip (8-bit
@@ -285,7 +318,6 @@ def _sweep_depth(
             a, b = profile[i - 1], profile[i]
             frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
             depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
-            vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
             best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
             return best_unit, best_depth, face_sure
     return None
@@ -340,3 +372,205 @@ def _sweep_layer(mask8: np.ndarray, step: np.ndarray) -> np.ndarray:
     """Pixels of the mask from which a step of ``step`` (px, x y) leaves it: the layer a sweep adds."""
     kernel, anchor = _line_kernel(step)
     return (mask8 > 0) & (cv2.erode(mask8, kernel, anchor=anchor, borderValue=0) == 0)
+
+
+#: Side (px) of the grid cells that group a region's boundary into stretches for
+#: :func:`hidden_shadow`: each stretch holds about this much of the outline.
+STRETCH_PX = 8
+#: Fewest pixels of one stretch at one depth for its layer to count.
+_LAYER_MIN_PX = 3
+
+
+@dataclass(frozen=True)
+class HiddenShadow:
+    """How much cast shadow can still hide inside a region where no shadow layer was cut (:func:`hidden_shadow`).
+
+    Attributes
+    ----------
+    hidden : (H, W) bool ndarray
+        Shadow-like pixels of the edge band (the paper's colour, darkened) that the evidence
+        cannot exclude: along each stretch of the outline, those nearer the outline than the
+        depth where the face begins.
+    hidden_px : int
+        Their count.
+    flagged_px : int
+        All shadow-like pixels of the edge band (the count colour alone leaves open).
+    cleared_share : float
+        Share of the flagged stretches (by their shadow-like pixels) where the face begins
+        next to the edge.
+    depth_px : float
+        The largest depth (px) left open along a cleared stretch; ``reach_px`` where a
+        stretch is not cleared.
+    ring_depth_px : tuple of float
+        Per ring given (outline, holes): the largest depth (px) left open along its own
+        stretches that hold shadow-like pixels (``reach_px`` where one is not cleared); a
+        hole's diameter can be narrowed by that much.
+    """
+
+    hidden: np.ndarray
+    hidden_px: int
+    flagged_px: int
+    cleared_share: float
+    depth_px: float
+    ring_depth_px: tuple[float, ...] = ()
+
+
+def _group_median(group: np.ndarray, values: np.ndarray, n_groups: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per group 0 .. n_groups - 1: the median of ``values`` (the lower middle one) and the count."""
+    order = np.lexsort((values, group))
+    g, v = group[order], values[order]
+    count = np.bincount(g, minlength=n_groups)
+    start = np.concatenate([[0], np.cumsum(count)[:-1]])
+    mid = np.minimum(start + (count - 1) // 2, max(len(v) - 1, 0))
+    med = np.where(count > 0, v[mid] if len(v) else 0.0, np.nan)
+    return med, count
+
+
+def hidden_shadow(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    code_step: np.ndarray | None = None,
+    rings: list[np.ndarray] | None = None,
+) -> HiddenShadow | None:
+    """Bound the cast shadow that can hide inside a region whose edge band looks like darkened paper.
+
+    Colour alone cannot tell a dark neutral face from a deep shadow, so every shadow-like
+    pixel of the edge band (:func:`~scanmass.segment.shadow.darkened_paper`) is open. Where no
+    shadow layer was cut (:func:`shadow_cut`), the layers beside the edge tell more: a shadow
+    inside the outline lies between the part's edge and the outline, reached from the outline,
+    and it is the paper in less light: at another level than the face, or grainier (the
+    paper's grain and, in a dim shadow, the camera's noise against its low level). The boundary
+    is cut into stretches (the outline pixels of one :data:`STRETCH_PX` grid cell, each pixel
+    given to its nearest outline pixel); along each, the pixels at each whole-pixel depth form a
+    layer, and a layer looks like the face when its median level is within
+    :data:`_LEVEL_STEP_RATIO` of the face's (the step the cut needs to place itself) and its
+    median roughness is below what the cut takes as shadow (twice the face's, or one code step
+    at its level). Where the face begins at depth k (that layer and the next
+    :data:`_SUSTAIN` - 1 present ones look like it), a shadow can only hide in the k layers
+    nearer the outline (at least one: the outline's own pixel is mixed with the paper by blur);
+    where it does not begin within ``reach_px``, the whole band stays open. What is left open is
+    a shadow as dark and as smooth as the face, which nothing in one photo tells apart.
+
+    Parameters
+    ----------
+    colour_lin, part_mask, paper_rgb, reach_px, code_step
+        As for :func:`shadow_cut`.
+    rings : list of (N, 2) ndarray, optional
+        The region's rings (x, y crop px: the outline, then its holes), for ``ring_depth_px``.
+
+    Returns
+    -------
+    HiddenShadow or None
+        None when the region has no interior to take the face's level and grain from.
+
+    Examples
+    --------
+    A smooth dark face (0.04 of the paper, 60 x 66 px) with no shadow: of its 12 px edge band
+    (2448 px, all darkened paper by colour) only the outline's own pixel layer stays open. With
+    a rough shadow layer 6 px wide along its left side, the face begins 9 px in there (the
+    roughness is smoothed over 1.5 px): those 9 px stay open, covering the layer.
+
+    >>> rng = np.random.default_rng(0)
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (100, 100, 1))
+    >>> mask = np.zeros((100, 100), bool); mask[20:80, 14:80] = True; img[mask] = 0.04 * paper
+    >>> clean = hidden_shadow(img, mask, paper, reach_px=12)
+    >>> clean.flagged_px, clean.hidden_px, clean.cleared_share, clean.depth_px
+    (2448, 248, 1.0, 1.0)
+    >>> img[20:80, 14:20] = paper * (0.01 + 0.06 * rng.random((60, 6, 1)))
+    >>> shaded = hidden_shadow(img, mask, paper, reach_px=12)
+    >>> bool(shaded.hidden[30:70, 14:20].all()), shaded.hidden[30:70, 14:27].sum(axis=1).min()
+    (True, np.int64(9))
+    """
+    from scanmass.segment.shadow import darkened_paper
+
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50 or mask8.all():
+        return None
+    paper = np.asarray(paper_rgb, np.float32)
+    q = colour_lin.astype(np.float32) / paper
+    level = q.mean(axis=2)
+    rough = roughness(level)
+    inside, nearest = cv2.distanceTransformWithLabels(mask8, cv2.DIST_L2, 5, labelType=cv2.DIST_LABEL_PIXEL)
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return None
+    tex_face = float(np.median(rough[interior]))
+    face_level = float(np.median(level[interior]))
+    floor = 0.01
+    if code_step is not None:
+        floor = max(floor, 0.5 * float(np.median(code_step[interior])) / max(face_level, 1e-6))
+    rough_max = max(2.0 * tex_face, floor)
+    # each pixel's stretch: the grid cell of its nearest outline (background) pixel
+    zr, zc = np.nonzero(mask8 == 0)
+    h, w = mask8.shape
+    cols = (w + STRETCH_PX - 1) // STRETCH_PX
+    cell_of_zero = (zr // STRETCH_PX) * cols + zc // STRETCH_PX
+    n_cells = ((h + STRETCH_PX - 1) // STRETCH_PX) * cols
+    n_layers = int(math.ceil(reach_px))
+    band = part_mask & (inside <= reach_px)
+    rows, cs = np.nonzero(band)
+    cell = cell_of_zero[nearest[rows, cs] - 1]
+    layer = np.minimum(np.ceil(inside[rows, cs]).astype(np.intp) - 1, n_layers - 1)
+    key = cell * n_layers + layer
+    lv, count = _group_median(key, level[rows, cs], n_cells * n_layers)
+    rg, _ = _group_median(key, rough[rows, cs], n_cells * n_layers)
+    present = (count >= _LAYER_MIN_PX).reshape(n_cells, n_layers)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.maximum(lv, face_level) / np.maximum(np.minimum(lv, face_level), 1e-6)
+    face = present & (ratio < _LEVEL_STEP_RATIO).reshape(present.shape) & (rg <= rough_max).reshape(present.shape)
+    # per stretch, the first depth from which the present layers look like the face
+    open_depth = np.full(n_cells, np.inf)
+    used = np.unique(cell)
+    testable = np.zeros(n_cells, bool)
+    testable[used] = present[used].sum(axis=1) >= _SUSTAIN
+    for c in used[testable[used]]:
+        idx = np.flatnonzero(present[c])
+        for j, k in enumerate(idx):
+            nxt = idx[j : j + _SUSTAIN]
+            if len(nxt) >= 2 and face[c, nxt].all():
+                open_depth[c] = max(float(k), 1.0)
+                break
+    # a stretch too short to test (a few pixels where the grid cuts the outline) takes the
+    # deepest open depth of the tested stretches beside it; none beside it: the whole band
+    grid = open_depth.reshape(-1, cols)
+    tested = testable.reshape(-1, cols)
+    for c in used[~testable[used]]:
+        r0, c0 = divmod(int(c), cols)
+        near = grid[max(r0 - 1, 0) : r0 + 2, max(c0 - 1, 0) : c0 + 2][
+            tested[max(r0 - 1, 0) : r0 + 2, max(c0 - 1, 0) : c0 + 2]
+        ]
+        open_depth[c] = float(near.max()) if near.size else np.inf
+    like = darkened_paper(colour_lin.astype(np.float32), paper) & band
+    like_cell = cell[like[rows, cs]]
+    depth = open_depth[cell]
+    ring_depth: list[float] = []
+    if rings:
+        # each ring's background piece (the paper around the part, or a hole): its stretches' deepest open depth
+        _, piece = cv2.connectedComponents((mask8 == 0).astype(np.uint8), connectivity=4)
+        piece_of = piece[zr, zc][nearest[rows, cs] - 1]
+        for ring in rings:
+            fill = np.zeros_like(mask8)
+            cv2.fillPoly(fill, [np.round(ring).astype(np.int32)], 1)
+            labels_in = piece[(fill > 0) & (mask8 == 0)]
+            labels_in = labels_in[labels_in > 0]
+            if labels_in.size == 0:
+                ring_depth.append(float(reach_px))
+                continue
+            own = piece_of == np.bincount(labels_in).argmax()
+            d = depth[own & like[rows, cs]]
+            ring_depth.append(float(min(d.max(), reach_px)) if d.size else 0.0)
+    hidden = np.zeros_like(part_mask)
+    hidden[rows, cs] = like[rows, cs] & (inside[rows, cs] <= depth)
+    n_like = int(np.count_nonzero(like))
+    cleared = np.isfinite(open_depth[like_cell])
+    finite = open_depth[np.isfinite(open_depth)]
+    return HiddenShadow(
+        hidden=hidden,
+        hidden_px=int(np.count_nonzero(hidden)),
+        flagged_px=n_like,
+        cleared_share=float(np.mean(cleared)) if n_like else 1.0,
+        depth_px=float(reach_px) if not cleared.all() else (float(finite.max()) if finite.size else 0.0),
+        ring_depth_px=tuple(ring_depth),
+    )

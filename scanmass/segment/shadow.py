@@ -45,6 +45,7 @@ __all__ = [
     "unclear_edges",
     "looks_like_shadow_only",
     "dark_pits",
+    "darkened_paper",
 ]
 
 #: Lowest elevation of a light assumed for a cast shadow's length (lamps and windows seen
@@ -118,6 +119,28 @@ def shadow_band_px(thickness_mm: float, mm_per_px: float) -> float:
     return (thickness_mm / np.tan(np.radians(SHADOW_MIN_ELEVATION_DEG)) + 0.5) / mm_per_px
 
 
+def _darkened_paper(pixels: np.ndarray, paper: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per pixel (..., 3): whether it has the paper white's colour, darkened, and its darkening factor."""
+    q = pixels / paper  # each channel's darkening factor
+    m = q.mean(axis=-1)
+    neutral = np.all(np.abs(q - m[..., None]) <= _CHROMA_TOL * m[..., None] + 0.01, axis=-1)
+    dark = (m >= _DEPTH_RANGE[0]) & (m <= _DEPTH_RANGE[1])
+    return neutral & dark, m
+
+
+def darkened_paper(colour_lin: np.ndarray, paper_rgb: np.ndarray) -> np.ndarray:
+    """(H, W) bool: the pixels :func:`shadow_risk` counts as shadow-like (the paper white's colour, darkened).
+
+    Examples
+    --------
+    >>> paper = np.array([0.7, 0.72, 0.74])
+    >>> img = np.stack([0.3 * paper, np.array([0.3, 0.1, 0.1]), paper])[None]
+    >>> darkened_paper(img, paper).tolist()
+    [[True, False, False]]
+    """
+    return _darkened_paper(colour_lin, np.asarray(paper_rgb, colour_lin.dtype))[0]
+
+
 def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -> ShadowRisk | None:
     """How much of a part's edge band looks like darkened paper.
 
@@ -145,11 +168,7 @@ def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -
     paper = np.percentile(colour_lin[ring], 75, axis=0)
     if np.any(paper <= 1e-4):
         return None
-    q = colour_lin[band] / paper  # each channel's darkening factor
-    m = q.mean(axis=1)
-    neutral = np.all(np.abs(q - m[:, None]) <= _CHROMA_TOL * m[:, None] + 0.01, axis=1)
-    dark = (m >= _DEPTH_RANGE[0]) & (m <= _DEPTH_RANGE[1])
-    like = neutral & dark
+    like, m = _darkened_paper(colour_lin[band], paper)
     n_band, n_like = int(band.sum()), int(like.sum())
     near = (outside > 0) & (outside <= max(band_px, 2.0))
     qo = colour_lin[near] / paper
