@@ -469,3 +469,89 @@ def test_dip_pre_test_runs_the_search_whenever_the_bounds_cannot_decide():
     assert dips_possible(codes, table, (none, none), flat(0.8), tilted, 0.2)
     # nothing searched: nothing to find
     assert not dips_possible(codes, table, (none, none), flat(0.8), flat(0.3), 0.003)
+
+
+# ------------------------------------------------------------------ markers through crops
+
+
+def _mat_photo(tilt: float, roll: float, hide: list[int]) -> np.ndarray:
+    from scanmass.scale.mat import make_mat
+    from scanmass.testing.photos import PhotoParts, make_camera, render_photo
+
+    cam = make_camera(
+        size=(2400, 1800), f_px=2250.0, tilt_deg=tilt, tilt_dir_deg=40.0, roll_deg=roll, distance_mm=470.0
+    )
+    part = PhotoParts(rectangle(70.0, 90.0, 80.0, 50.0, angle_deg=17.0), [circle(100.0, 115.0, 8.0, 256)])
+    img = render_photo(make_mat("a4-portrait"), [part], cam, seed=int(tilt) + 1, hide_ids=hide)
+    return img if img.ndim == 2 else img[..., 0]
+
+
+def _whole_image_calls(monkeypatch, shape: tuple[int, int]) -> list[tuple[int, ...]]:
+    from scanmass.scale import markerfind
+
+    calls: list[tuple[int, ...]] = []
+    whole = markerfind._whole
+
+    def spy(grey, detector):
+        if grey.shape == shape:
+            calls.append(grey.shape)
+        return whole(grey, detector)
+
+    monkeypatch.setattr(markerfind, "_whole", spy)
+    return calls
+
+
+@pytest.mark.parametrize(
+    "tilt, roll, hide, all_tied",
+    [(0.0, 90.0, [], False), (25.0, 70.0, [], False), (15.0, 100.0, [5, 17], False), (25.0, 70.0, [], True)],
+)
+def test_markers_through_crops_equal_opencvs_whole_image_search(monkeypatch, tilt, roll, hide, all_tied):
+    """OpenCV's ArucoDetector on the whole photo is the reference: same ids, order and corners, bit for bit.
+
+    ``all_tied``: every perimeter taken as equal, so that the order comes entirely from the
+    detector's scan order rebuilt from the crops' candidates.
+    """
+    from scanmass.scale import markerfind
+    from scanmass.scale.markers import _detector
+
+    grey = np.ascontiguousarray(_mat_photo(tilt, roll, hide))
+    detector = _detector("DICT_5X5_250")
+    ref_corners, ref_ids, _ = detector.detectMarkers(grey)
+    assert ref_ids is not None and len(ref_ids) >= 18
+    if all_tied:
+        monkeypatch.setattr(markerfind, "TIE_PX", 1e9)
+    whole = _whole_image_calls(monkeypatch, grey.shape)
+    corners, ids = markerfind.find_markers(grey, detector)
+    assert whole == []  # the crops sufficed
+    assert ids.tolist() == ref_ids.ravel().tolist()
+    assert corners.dtype == np.float32
+    assert np.array_equal(corners, np.stack([c.reshape(4, 2) for c in ref_corners]))
+
+
+def test_markers_missed_in_the_reduced_copy_are_found_where_the_layout_puts_them(monkeypatch):
+    """A marker the reduced copy does not show is searched where the mat's layout predicts it."""
+    from scanmass.scale import markerfind
+    from scanmass.scale.markers import _detector
+    from scanmass.scale.mat import make_mat
+    from scanmass.scale.mat_scale import _expected_quads
+
+    grey = np.ascontiguousarray(_mat_photo(20.0, 80.0, []))
+    detector = _detector("DICT_5X5_250")
+    ref_corners, ref_ids, _ = detector.detectMarkers(grey)
+    whole = markerfind._whole
+    dropped = int(ref_ids.ravel()[3])
+
+    def blind(g, d):  # the reduced copy misses one marker
+        corners, ids = whole(g, d)
+        if g.shape != grey.shape and len(ids) > 6:
+            keep = ids != dropped
+            return corners[keep], ids[keep]
+        return corners, ids
+
+    monkeypatch.setattr(markerfind, "_whole", blind)
+    corners, ids = markerfind.find_markers(grey, detector)
+    assert dropped not in ids.tolist()  # nowhere searched for
+    mat = make_mat("a4-portrait")
+    corners, ids = markerfind.find_markers(grey, detector, lambda i, q: _expected_quads(mat, i, q))
+    assert ids.tolist() == ref_ids.ravel().tolist()
+    assert np.array_equal(corners, np.stack([c.reshape(4, 2) for c in ref_corners]))
