@@ -606,6 +606,138 @@ def section_properties(
     )
 
 
+def _batch_local_moments(d: np.ndarray) -> np.ndarray:
+    """:func:`~scanmass.geometry._local_moments` of K rings at once: ``d`` (K, N, 2) -> (6, K).
+
+    The same operations on each row, each sum along a row's contiguous values (numpy's
+    pairwise summation, as for one ring): the same floats as one ring at a time.
+    """
+    x0, y0 = d[..., 0], d[..., 1]
+    x1, y1 = np.roll(x0, -1, axis=1), np.roll(y0, -1, axis=1)
+    c = x0 * y1 - x1 * y0
+    return np.array(
+        [
+            c.sum(axis=1) / 2.0,
+            ((x0 + x1) * c).sum(axis=1) / 6.0,
+            ((y0 + y1) * c).sum(axis=1) / 6.0,
+            ((y0 * y0 + y0 * y1 + y1 * y1) * c).sum(axis=1) / 12.0,
+            ((x0 * x0 + x0 * x1 + x1 * x1) * c).sum(axis=1) / 12.0,
+            ((2.0 * x0 * y0 + x0 * y1 + x1 * y0 + 2.0 * x1 * y1) * c).sum(axis=1) / 24.0,
+        ]
+    )
+
+
+def _batch_section_moments(rings: Sequence[np.ndarray], ref: np.ndarray) -> np.ndarray:
+    """:func:`_section_moments` of K versions of a section: rings (K, N_r, 2), ``ref`` (K, 2) -> (6, K)."""
+    total = np.zeros((6, ref.shape[0]), dtype=np.float64)
+    for r in rings:
+        local_ref = r.mean(axis=1)
+        a, qx, qy, ixx, iyy, ixy = _batch_local_moments(r - local_ref[:, None, :])
+        x0, y0 = local_ref[:, 0] - ref[:, 0], local_ref[:, 1] - ref[:, 1]
+        total += np.array(
+            [
+                a,
+                qx + x0 * a,
+                qy + y0 * a,
+                ixx + 2.0 * y0 * qy + y0 * y0 * a,
+                iyy + 2.0 * x0 * qx + x0 * x0 * a,
+                ixy + x0 * qy + y0 * qx + x0 * y0 * a,
+            ]
+        )
+    return total
+
+
+def sampled_figures(samples: Sequence[tuple[np.ndarray, Sequence[np.ndarray]]]) -> list[SectionProperties] | None:
+    """``section_properties(outer, holes, hull=False)`` of many versions of one section, at once.
+
+    For the scale term: the same rings mapped through sampled plane maps, so each ring
+    has one vertex count in every sample. Every figure is the float
+    :func:`section_properties` gives (the same operations, row by row); the hull's
+    figures are NaN as there. None when the samples are not alike enough for that (vertex
+    counts, closing vertices, orientation) or one is invalid: the caller then takes them
+    one at a time, which also raises the usual error.
+    """
+    if not samples:
+        return None
+    counts = [len(holes) for _, holes in samples]
+    if len(set(counts)) != 1:
+        return None
+    try:
+        stacks = [np.stack([np.asarray(o, dtype=np.float64) for o, _ in samples])]
+        stacks += [np.stack([np.asarray(h[k], dtype=np.float64) for _, h in samples]) for k in range(counts[0])]
+    except ValueError:  # vertex counts differ between samples
+        return None
+    rings = []
+    for k, r in enumerate(stacks):
+        if r.ndim != 3 or r.shape[1] < 4 or r.shape[2] != 2 or not np.all(np.isfinite(r)):
+            return None
+        if np.any(np.all(r[:, 0] == r[:, -1], axis=1)):
+            return None  # a closing vertex: the one-at-a-time path drops it
+        d = r - r.mean(axis=1)[:, None, :]
+        area = (d[..., 0] * np.roll(d[..., 1], -1, axis=1) - np.roll(d[..., 0], -1, axis=1) * d[..., 1]).sum(
+            axis=1
+        ) / 2.0
+        span = np.max(r.max(axis=1) - r.min(axis=1), axis=1)
+        if np.any(np.abs(area) <= 1e-12 * span * span):
+            return None  # a flat ring: the error comes from the one-at-a-time path
+        flip = area < 0.0 if k == 0 else area > 0.0  # outer counter-clockwise, holes clockwise
+        if flip.any() and not flip.all():
+            return None
+        rings.append(r[:, ::-1].copy() if flip[0] else r)
+    out = rings[0]
+    lo, hi = out.min(axis=1), out.max(axis=1)
+    slack = 1e-9 * np.max(hi - lo, axis=1)
+    for h in rings[1:]:
+        if np.any(h.min(axis=1) < lo - slack[:, None]) or np.any(h.max(axis=1) > hi + slack[:, None]):
+            return None
+    ref = out.mean(axis=1)
+    m = _batch_section_moments(rings, ref)
+    if not np.all(m[0] > 0.0):
+        return None
+    centroid = ref + (m[1:3] / m[0]).T
+    mc = _batch_section_moments(rings, centroid)
+    perimeter = sum(np.hypot(*(np.roll(r, -1, axis=1) - r).transpose(2, 0, 1)).sum(axis=1) for r in rings)
+    xmin, ymin = out.min(axis=1).T
+    xmax, ymax = out.max(axis=1).T
+    result = []
+    for j in range(len(samples)):
+        a_c, qx, qy = float(mc[0, j]), float(mc[1, j]), float(mc[2, j])
+        xc = float(centroid[j, 0] + qx / a_c)
+        yc = float(centroid[j, 1] + qy / a_c)
+        ixx = float(mc[3, j] - qy * qy / a_c)
+        iyy = float(mc[4, j] - qx * qx / a_c)
+        ixy = float(mc[5, j] - qx * qy / a_c)
+        i1, i2, angle = principal_moments(ixx, iyy, ixy)
+        x_lo, y_lo, x_hi, y_hi = float(xmin[j]), float(ymin[j]), float(xmax[j]), float(ymax[j])
+        result.append(
+            SectionProperties(
+                area_mm2=a_c,
+                perimeter_mm=float(float(perimeter[j]) + 0.0),
+                centroid_mm=(xc, yc),
+                ixx_mm4=ixx,
+                iyy_mm4=iyy,
+                ixy_mm4=ixy,
+                i1_mm4=i1,
+                i2_mm4=i2,
+                principal_angle_deg=angle,
+                polar_mm4=ixx + iyy,
+                gyration_x_mm=math.sqrt(max(ixx, 0.0) / a_c),
+                gyration_y_mm=math.sqrt(max(iyy, 0.0) / a_c),
+                gyration_1_mm=math.sqrt(max(i1, 0.0) / a_c),
+                gyration_2_mm=math.sqrt(max(i2, 0.0) / a_c),
+                modulus_top_mm3=ixx / (y_hi - yc),
+                modulus_bottom_mm3=ixx / (yc - y_lo),
+                modulus_right_mm3=iyy / (x_hi - xc),
+                modulus_left_mm3=iyy / (xc - x_lo),
+                bbox_mm=(x_lo, y_lo, x_hi, y_hi),
+                caliper_max_mm=math.nan,
+                caliper_min_mm=math.nan,
+                convex_area_mm2=math.nan,
+            )
+        )
+    return result
+
+
 def boundary_influence(outer: np.ndarray, holes: Sequence[np.ndarray] = ()) -> dict[str, np.ndarray]:
     """Per-vertex outward normals and attributed boundary lengths of a section.
 

@@ -555,3 +555,88 @@ def test_markers_missed_in_the_reduced_copy_are_found_where_the_layout_puts_them
     corners, ids = markerfind.find_markers(grey, detector, lambda i, q: _expected_quads(mat, i, q))
     assert ids.tolist() == ref_ids.ravel().tolist()
     assert np.array_equal(corners, np.stack([c.reshape(4, 2) for c in ref_corners]))
+
+
+def _masked_whole_image(grey: np.ndarray, roi_px: np.ndarray) -> np.ndarray:
+    """The clear-area masking done on the whole image (the way it was done before the bounding box)."""
+    import cv2
+
+    mask = np.zeros(grey.shape, np.uint8)
+    cv2.fillPoly(mask, [np.round(roi_px).astype(np.int32)], 1)
+    inner = cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=2).astype(bool)
+    band = inner & ~cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=8).astype(bool)
+    values = grey[band]
+    level = np.median(values) if values.size else np.median(grey[inner])
+    out = grey.copy()
+    out[~mask.astype(bool)] = np.asarray(level, dtype=grey.dtype)
+    return out
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_clear_area_mask_in_its_bounding_box_equals_the_whole_images(seed):
+    """Masking outside the clear area within its padded bounding box gives the whole-image result,
+    also for areas that cross the image's edges or lie in a corner, and for 16-bit planes."""
+    from scanmass.pipeline.photo_checks import _mask_outside
+
+    rng = np.random.default_rng(seed)
+    dtype = np.uint16 if seed % 3 == 2 else np.uint8
+    grey = rng.integers(0, 200 if dtype == np.uint8 else 50000, size=(181, 263)).astype(dtype)
+    centre = rng.uniform([-20, -20], [283, 201])
+    angles = np.sort(rng.uniform(0, 2 * np.pi, 7))
+    radius = rng.uniform(15, 160, 7)
+    roi = centre + np.column_stack([radius * np.cos(angles), radius * np.sin(angles)])
+    roi = roi[:, ::1] if seed % 2 else roi[::-1]  # either orientation
+    image = load_image(grey)
+    assert np.array_equal(image.grey, grey)
+    got = _mask_outside(image, roi)
+    assert got.grey.dtype == grey.dtype
+    assert np.array_equal(got.grey, _masked_whole_image(grey, roi))
+
+
+def _same_properties(a, b) -> bool:
+    import dataclasses
+
+    for f in dataclasses.fields(a):
+        x, y = np.asarray(getattr(a, f.name), float), np.asarray(getattr(b, f.name), float)
+        if not np.array_equal(x, y, equal_nan=True):
+            return False
+    return True
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_sampled_figures_all_at_once_equal_one_sample_at_a_time(seed):
+    """The scale term's sampled sections, computed all at once, give section_properties' floats bit for bit."""
+    from scanmass.section import sampled_figures, section_properties
+
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(5, 900))
+    t = np.linspace(0, 2 * np.pi, n, endpoint=False)
+    outer = np.column_stack([40 + 25 * np.cos(t) * (1 + 0.2 * np.sin(3 * t)), 30 + 18 * np.sin(t)])
+    holes = [circle(35.0, 30.0, 4.0, int(rng.integers(8, 200)))[::-1], circle(50.0, 28.0, 2.5, 64)][: seed % 3]
+    if seed % 2:
+        outer = outer[::-1]  # clockwise: turned by both paths
+    samples = []
+    for _ in range(int(rng.integers(2, 40))):
+        g = np.eye(3) + rng.normal(0, 1e-3, (3, 3)) * [[1, 1, 10], [1, 1, 10], [1e-4, 1e-4, 0]]
+        g[2, 2] = 1.0
+
+        def warp(r, g=g):
+            h = np.column_stack([r, np.ones(len(r))]) @ g.T
+            return h[:, :2] / h[:, 2:]
+
+        samples.append((warp(outer), tuple(warp(h) for h in holes)))
+    got = sampled_figures(samples)
+    assert got is not None
+    for sp, (o, h) in zip(got, samples):
+        assert _same_properties(sp, section_properties(o, list(h), hull=False))
+
+
+def test_sampled_figures_leave_unlike_samples_to_the_one_at_a_time_path():
+    from scanmass.section import sampled_figures
+
+    square = np.array([[0.0, 0.0], [4.0, 0.0], [4.0, 4.0], [0.0, 4.0]])
+    assert sampled_figures([(square, ()), (np.vstack([square, [[0.0, 2.0]]]), ())]) is None  # vertex counts
+    assert sampled_figures([(square, ()), (square[::-1], ())]) is None  # orientations differ
+    assert sampled_figures([(np.vstack([square, square[:1]]), ())]) is None  # a closing vertex
+    assert sampled_figures([(square, ()), (square * [1, 0], ())]) is None  # a flat ring: the error is raised there
+    assert sampled_figures([(square, ()), (square + 1.0, ())]) is not None
