@@ -606,13 +606,12 @@ def section_properties(
     )
 
 
-def _batch_local_moments(d: np.ndarray) -> np.ndarray:
-    """:func:`~scanmass.geometry._local_moments` of K rings at once: ``d`` (K, N, 2) -> (6, K).
+def _batch_local_moments(x0: np.ndarray, y0: np.ndarray) -> np.ndarray:
+    """:func:`~scanmass.geometry._local_moments` of K rings at once: coordinates (K, N) each -> (6, K).
 
     The same operations on each row, each sum along a row's contiguous values (numpy's
     pairwise summation, as for one ring): the same floats as one ring at a time.
     """
-    x0, y0 = d[..., 0], d[..., 1]
     x1, y1 = np.roll(x0, -1, axis=1), np.roll(y0, -1, axis=1)
     c = x0 * y1 - x1 * y0
     return np.array(
@@ -627,13 +626,22 @@ def _batch_local_moments(d: np.ndarray) -> np.ndarray:
     )
 
 
-def _batch_section_moments(rings: Sequence[np.ndarray], ref: np.ndarray) -> np.ndarray:
-    """:func:`_section_moments` of K versions of a section: rings (K, N_r, 2), ``ref`` (K, 2) -> (6, K)."""
-    total = np.zeros((6, ref.shape[0]), dtype=np.float64)
-    for r in rings:
-        local_ref = r.mean(axis=1)
-        a, qx, qy, ixx, iyy, ixy = _batch_local_moments(r - local_ref[:, None, :])
-        x0, y0 = local_ref[:, 0] - ref[:, 0], local_ref[:, 1] - ref[:, 1]
+def _row_means(v: np.ndarray) -> np.ndarray:
+    """Each row's mean as ``ring.mean(axis=0)`` gives a coordinate of one (N, 2) ring.
+
+    numpy sums a column of an (N, 2) array one value after the other (not pairwise); the
+    running sum along each contiguous row does the same additions in the same order.
+    """
+    return np.cumsum(v, axis=1)[:, -1] / v.shape[1]
+
+
+def _batch_section_moments(rings: Sequence[tuple[np.ndarray, np.ndarray]], ref: np.ndarray) -> np.ndarray:
+    """:func:`_section_moments` of K versions of a section: rings as (x, y) planes (K, N_r), ``ref`` (2, K)."""
+    total = np.zeros((6, ref.shape[1]), dtype=np.float64)
+    for x, y in rings:
+        mx, my = _row_means(x), _row_means(y)
+        a, qx, qy, ixx, iyy, ixy = _batch_local_moments(x - mx[:, None], y - my[:, None])
+        x0, y0 = mx - ref[0], my - ref[1]
         total += np.array(
             [
                 a,
@@ -667,43 +675,42 @@ def sampled_figures(samples: Sequence[tuple[np.ndarray, Sequence[np.ndarray]]]) 
         stacks += [np.stack([np.asarray(h[k], dtype=np.float64) for _, h in samples]) for k in range(counts[0])]
     except ValueError:  # vertex counts differ between samples
         return None
-    rings = []
+    rings: list[tuple[np.ndarray, np.ndarray]] = []
     for k, r in enumerate(stacks):
         if r.ndim != 3 or r.shape[1] < 4 or r.shape[2] != 2 or not np.all(np.isfinite(r)):
             return None
         if np.any(np.all(r[:, 0] == r[:, -1], axis=1)):
             return None  # a closing vertex: the one-at-a-time path drops it
-        d = r - r.mean(axis=1)[:, None, :]
-        area = (d[..., 0] * np.roll(d[..., 1], -1, axis=1) - np.roll(d[..., 0], -1, axis=1) * d[..., 1]).sum(
-            axis=1
-        ) / 2.0
-        span = np.max(r.max(axis=1) - r.min(axis=1), axis=1)
+        x, y = np.ascontiguousarray(r[..., 0]), np.ascontiguousarray(r[..., 1])
+        dx, dy = x - _row_means(x)[:, None], y - _row_means(y)[:, None]
+        area = (dx * np.roll(dy, -1, axis=1) - np.roll(dx, -1, axis=1) * dy).sum(axis=1) / 2.0
+        span = np.maximum(x.max(axis=1) - x.min(axis=1), y.max(axis=1) - y.min(axis=1))
         if np.any(np.abs(area) <= 1e-12 * span * span):
             return None  # a flat ring: the error comes from the one-at-a-time path
         flip = area < 0.0 if k == 0 else area > 0.0  # outer counter-clockwise, holes clockwise
         if flip.any() and not flip.all():
             return None
-        rings.append(r[:, ::-1].copy() if flip[0] else r)
-    out = rings[0]
-    lo, hi = out.min(axis=1), out.max(axis=1)
-    slack = 1e-9 * np.max(hi - lo, axis=1)
-    for h in rings[1:]:
-        if np.any(h.min(axis=1) < lo - slack[:, None]) or np.any(h.max(axis=1) > hi + slack[:, None]):
-            return None
-    ref = out.mean(axis=1)
+        rings.append((x[:, ::-1].copy(), y[:, ::-1].copy()) if flip[0] else (x, y))
+    (ox, oy), bounds = rings[0], []
+    xmin, xmax, ymin, ymax = ox.min(axis=1), ox.max(axis=1), oy.min(axis=1), oy.max(axis=1)
+    slack = 1e-9 * np.maximum(xmax - xmin, ymax - ymin)
+    for hx, hy in rings[1:]:
+        bounds += [hx.min(axis=1) < xmin - slack, hy.min(axis=1) < ymin - slack]
+        bounds += [hx.max(axis=1) > xmax + slack, hy.max(axis=1) > ymax + slack]
+    if any(b.any() for b in bounds):
+        return None
+    ref = np.array([_row_means(ox), _row_means(oy)])
     m = _batch_section_moments(rings, ref)
     if not np.all(m[0] > 0.0):
         return None
-    centroid = ref + (m[1:3] / m[0]).T
+    centroid = ref + m[1:3] / m[0]
     mc = _batch_section_moments(rings, centroid)
-    perimeter = sum(np.hypot(*(np.roll(r, -1, axis=1) - r).transpose(2, 0, 1)).sum(axis=1) for r in rings)
-    xmin, ymin = out.min(axis=1).T
-    xmax, ymax = out.max(axis=1).T
+    perimeter = sum(np.hypot(np.roll(x, -1, axis=1) - x, np.roll(y, -1, axis=1) - y).sum(axis=1) for x, y in rings)
     result = []
     for j in range(len(samples)):
         a_c, qx, qy = float(mc[0, j]), float(mc[1, j]), float(mc[2, j])
-        xc = float(centroid[j, 0] + qx / a_c)
-        yc = float(centroid[j, 1] + qy / a_c)
+        xc = float(centroid[0, j] + qx / a_c)
+        yc = float(centroid[1, j] + qy / a_c)
         ixx = float(mc[3, j] - qy * qy / a_c)
         iyy = float(mc[4, j] - qx * qx / a_c)
         ixy = float(mc[5, j] - qx * qy / a_c)
