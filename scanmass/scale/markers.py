@@ -161,43 +161,34 @@ def _refine_corners(
             continue
         crop = image.to_linear[image.grey[y0 : y1 + 1, x0 : x1 + 1]].astype(np.float32)
         lines: list[Line] = []
-        # the four sides' profiles in one remap and one set of row-wise steps (each row's
-        # values are what a side alone gives: remap reads each map entry on its own, and
-        # every reduction runs along one row)
-        step = 0.25
-        offs = np.arange(-reach, reach + step / 2, step)
-        sides = []
         for k in range(4):
             a, b = quad[k], quad[(k + 1) % 4]
             d, length, n = side_frame(a, b, centre)
+            normals[i, k] = n
             margin = min(0.3, max(0.12, (reach + 1.5) / length))
             count = int(np.clip(length / 2.5, 8, 60))
             t = np.linspace(margin, 1.0 - margin, count)
+            step = 0.25
+            offs = np.arange(-reach, reach + step / 2, step)
             base = a[None, :] + t[:, None] * d[None, :]
-            sides.append((n, base, base[:, None, :] + offs[None, :, None] * n[None, None, :]))
-        map_x = np.concatenate([(pts[..., 0] - x0).astype(np.float32) for _, _, pts in sides])
-        map_y = np.concatenate([(pts[..., 1] - y0).astype(np.float32) for _, _, pts in sides])
-        prof = cv2.remap(crop, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float64)
-        lo = np.median(prof[:, : max(2, len(offs) // 6)], axis=1)
-        hi = np.median(prof[:, -max(2, len(offs) // 6) :], axis=1)
-        contrast = hi - lo
-        g = np.diff(prof, axis=1)
-        mid = 0.5 * (offs[1:] + offs[:-1])
-        gmax = g.max(axis=1, keepdims=True)
-        w = np.clip(g - 0.15 * gmax, 0.0, None)
-        sw = w.sum(axis=1)
-        good_all = (contrast > 0.08) & (sw > 0)
-        pos_all = (w * mid).sum(axis=1) / np.where(sw > 0, sw, 1)
-        var_all = (w * (mid - pos_all[:, None]) ** 2).sum(axis=1) / np.where(sw > 0, sw, 1)
-        pos_all = window_centroid(g, mid, pos_all, var_all)
-        first = 0
-        for k, (n, base, _) in enumerate(sides):
-            rows = slice(first, first + len(base))
-            first += len(base)
-            normals[i, k] = n
-            good, pos, var = good_all[rows], pos_all[rows], var_all[rows]
+            pts = base[:, None, :] + offs[None, :, None] * n[None, None, :]
+            map_x = (pts[..., 0] - x0).astype(np.float32)
+            map_y = (pts[..., 1] - y0).astype(np.float32)
+            prof = cv2.remap(crop, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float64)
+            lo = np.median(prof[:, : max(2, len(offs) // 6)], axis=1)
+            hi = np.median(prof[:, -max(2, len(offs) // 6) :], axis=1)
+            contrast = hi - lo
+            g = np.diff(prof, axis=1)
+            mid = 0.5 * (offs[1:] + offs[:-1])
+            gmax = g.max(axis=1, keepdims=True)
+            w = np.clip(g - 0.15 * gmax, 0.0, None)
+            sw = w.sum(axis=1)
+            good = (contrast > 0.08) & (sw > 0)
             if good.sum() < 5:
                 break
+            pos = (w * mid).sum(axis=1) / np.where(sw > 0, sw, 1)
+            var = (w * (mid - pos[:, None]) ** 2).sum(axis=1) / np.where(sw > 0, sw, 1)
+            pos = window_centroid(g, mid, pos, var)
             edge_pts = base + pos[:, None] * n
             edge_pts = edge_pts[good]
             if undistort is not None:
