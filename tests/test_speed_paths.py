@@ -531,9 +531,8 @@ def test_markers_through_crops_equal_opencvs_whole_image_search(monkeypatch, til
 def test_markers_missed_in_the_reduced_copy_are_found_where_the_layout_puts_them(monkeypatch):
     """A marker the reduced copy does not show is searched where the mat's layout predicts it."""
     from scanmass.scale import markerfind
-    from scanmass.scale.markers import _detector
+    from scanmass.scale.markers import _detector, expected_quads
     from scanmass.scale.mat import make_mat
-    from scanmass.scale.mat_scale import _expected_quads
 
     grey = np.ascontiguousarray(_mat_photo(20.0, 80.0, []))
     detector = _detector("DICT_5X5_250")
@@ -552,7 +551,7 @@ def test_markers_missed_in_the_reduced_copy_are_found_where_the_layout_puts_them
     corners, ids = markerfind.find_markers(grey, detector)
     assert dropped not in ids.tolist()  # nowhere searched for
     mat = make_mat("a4-portrait")
-    corners, ids = markerfind.find_markers(grey, detector, lambda i, q: _expected_quads(mat, i, q))
+    corners, ids = markerfind.find_markers(grey, detector, lambda i, q: expected_quads(mat, i, q))
     assert ids.tolist() == ref_ids.ravel().tolist()
     assert np.array_equal(corners, np.stack([c.reshape(4, 2) for c in ref_corners]))
 

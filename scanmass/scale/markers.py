@@ -17,13 +17,15 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.errors import ScaleError
 from scanmass.load.decode import LoadedImage
 from scanmass.scale.edges import Line, fit_line, intersect_lines, side_frame, window_centroid
+from scanmass.scale.homography import apply_h
 from scanmass.scale.markerfind import ExpectedQuads, find_markers
-from scanmass.scale.mat import MARKER_CELLS
+from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids
 from scanmass.scale.planemap import PixelCorrection
 
-__all__ = ["MarkerDetection", "detect_markers", "found_markers", "MIN_MARKERS"]
+__all__ = ["MarkerDetection", "detect_markers", "found_markers", "expected_quads", "MIN_MARKERS"]
 
 #: Fewest markers a photo must show.
 MIN_MARKERS = 4
@@ -79,6 +81,28 @@ def _detector(dictionary_name: str) -> cv2.aruco.ArucoDetector:
     params.adaptiveThreshWinSizeMax = 53
     params.adaptiveThreshWinSizeStep = 8
     return cv2.aruco.ArucoDetector(dictionary, params)
+
+
+def expected_quads(layout: MatLayout | None, ids: np.ndarray, quads_px: np.ndarray) -> np.ndarray:
+    """Where the layout's markers not among ``ids`` should be (K, 4, 2) px, from those seen.
+
+    A plain homography through the seen corners (a lens bends it a little; the marker
+    search pads these places generously). Without a recognisable layout: none.
+    """
+    if layout is None:
+        try:
+            layout = layout_for_ids(ids)
+        except ScaleError:
+            return np.zeros((0, 4, 2))
+    mine = np.isin(ids, layout.ids)
+    missing = layout.ids[~np.isin(layout.ids, ids)]
+    if mine.sum() < MIN_MARKERS or len(missing) == 0:
+        return np.zeros((0, 4, 2))
+    src = layout.marker_corners(ids[mine]).reshape(-1, 2).astype(np.float64)
+    g, _ = cv2.findHomography(src, quads_px[mine].reshape(-1, 2).astype(np.float64), 0)
+    if g is None:
+        return np.zeros((0, 4, 2))
+    return apply_h(g, layout.marker_corners(missing).reshape(-1, 2)).reshape(-1, 4, 2)
 
 
 def found_markers(

@@ -30,7 +30,7 @@ from scanmass.scale.camera import (
 )
 from scanmass.scale.homography import HomographyFit, apply_h, fit_homography, focal_from_homography
 from scanmass.scale.lens import LensProfile
-from scanmass.scale.markers import MIN_MARKERS, MarkerDetection, detect_markers, found_markers
+from scanmass.scale.markers import MIN_MARKERS, MarkerDetection, detect_markers, expected_quads, found_markers
 from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids, load_layout
 from scanmass.scale.planemap import MarkerUse, MatDetails, PrinterCheck
 from scanmass.scale.selfcal import estimate_radial_distortion
@@ -68,28 +68,6 @@ def _printer(
         factors.append(value / nominal)
     rel = PRINTED_READING_U_MM / layout.bar("x").length_mm
     return np.diag([factors[0], factors[1], 1.0]), rel, True
-
-
-def _expected_quads(layout: MatLayout | None, ids: np.ndarray, quads_px: np.ndarray) -> np.ndarray:
-    """Where the layout's markers not among ``ids`` should be (K, 4, 2) px, from those seen.
-
-    A plain homography through the seen corners (a lens bends it a little; the marker
-    search pads these places generously). Without a recognisable layout: none.
-    """
-    if layout is None:
-        try:
-            layout = layout_for_ids(ids)
-        except ScaleError:
-            return np.zeros((0, 4, 2))
-    mine = np.isin(ids, layout.ids)
-    missing = layout.ids[~np.isin(layout.ids, ids)]
-    if mine.sum() < MIN_MARKERS or len(missing) == 0:
-        return np.zeros((0, 4, 2))
-    src = layout.marker_corners(ids[mine]).reshape(-1, 2).astype(np.float64)
-    g, _ = cv2.findHomography(src, quads_px[mine].reshape(-1, 2).astype(np.float64), 0)
-    if g is None:
-        return np.zeros((0, 4, 2))
-    return apply_h(g, layout.marker_corners(missing).reshape(-1, 2)).reshape(-1, 4, 2)
 
 
 def mat_scale(
@@ -132,7 +110,7 @@ def mat_scale(
     tools = lens_tools(lens, image)
     layout = load_layout(mat) if isinstance(mat, (str, os.PathLike)) else mat
     dictionary = layout.dictionary if layout else "DICT_5X5_250"
-    found = found_markers(image, dictionary, expected=lambda ids, quads: _expected_quads(layout, ids, quads))
+    found = found_markers(image, dictionary, expected=lambda ids, quads: expected_quads(layout, ids, quads))
     det = detect_markers(image, dictionary=dictionary, undistort=tools.undistort, found=found)
     if len(det.ids) == 0:
         raise ScaleError(
