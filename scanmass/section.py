@@ -606,6 +606,145 @@ def section_properties(
     )
 
 
+def _batch_local_moments(x0: np.ndarray, y0: np.ndarray) -> np.ndarray:
+    """:func:`~scanmass.geometry._local_moments` of K rings at once: coordinates (K, N) each -> (6, K).
+
+    The same operations on each row, each sum along a row's contiguous values (numpy's
+    pairwise summation, as for one ring): the same floats as one ring at a time.
+    """
+    x1, y1 = np.roll(x0, -1, axis=1), np.roll(y0, -1, axis=1)
+    c = x0 * y1 - x1 * y0
+    return np.array(
+        [
+            c.sum(axis=1) / 2.0,
+            ((x0 + x1) * c).sum(axis=1) / 6.0,
+            ((y0 + y1) * c).sum(axis=1) / 6.0,
+            ((y0 * y0 + y0 * y1 + y1 * y1) * c).sum(axis=1) / 12.0,
+            ((x0 * x0 + x0 * x1 + x1 * x1) * c).sum(axis=1) / 12.0,
+            ((2.0 * x0 * y0 + x0 * y1 + x1 * y0 + 2.0 * x1 * y1) * c).sum(axis=1) / 24.0,
+        ]
+    )
+
+
+def _row_means(v: np.ndarray) -> np.ndarray:
+    """Each row's mean as ``ring.mean(axis=0)`` gives a coordinate of one (N, 2) ring.
+
+    numpy sums a column of an (N, 2) array one value after the other (not pairwise); the
+    running sum along each contiguous row does the same additions in the same order.
+    """
+    return np.cumsum(v, axis=1)[:, -1] / v.shape[1]
+
+
+def _batch_section_moments(rings: Sequence[tuple[np.ndarray, np.ndarray]], ref: np.ndarray) -> np.ndarray:
+    """:func:`_section_moments` of K versions of a section: rings as (x, y) planes (K, N_r), ``ref`` (2, K)."""
+    total = np.zeros((6, ref.shape[1]), dtype=np.float64)
+    for x, y in rings:
+        mx, my = _row_means(x), _row_means(y)
+        a, qx, qy, ixx, iyy, ixy = _batch_local_moments(x - mx[:, None], y - my[:, None])
+        x0, y0 = mx - ref[0], my - ref[1]
+        total += np.array(
+            [
+                a,
+                qx + x0 * a,
+                qy + y0 * a,
+                ixx + 2.0 * y0 * qy + y0 * y0 * a,
+                iyy + 2.0 * x0 * qx + x0 * x0 * a,
+                ixy + x0 * qy + y0 * qx + x0 * y0 * a,
+            ]
+        )
+    return total
+
+
+def sampled_figures(samples: Sequence[tuple[np.ndarray, Sequence[np.ndarray]]]) -> list[SectionProperties] | None:
+    """``section_properties(outer, holes, hull=False)`` of many versions of one section, at once.
+
+    For the scale term: the same rings mapped through sampled plane maps, so each ring
+    has one vertex count in every sample. Every figure is the float
+    :func:`section_properties` gives (the same operations, row by row); the hull's
+    figures are NaN as there. None when the samples are not alike enough for that (vertex
+    counts, closing vertices, orientation) or one is invalid: the caller then takes them
+    one at a time, which also raises the usual error.
+    """
+    if not samples:
+        return None
+    counts = [len(holes) for _, holes in samples]
+    if len(set(counts)) != 1:
+        return None
+    try:
+        stacks = [np.stack([np.asarray(o, dtype=np.float64) for o, _ in samples])]
+        stacks += [np.stack([np.asarray(h[k], dtype=np.float64) for _, h in samples]) for k in range(counts[0])]
+    except ValueError:  # vertex counts differ between samples
+        return None
+    rings: list[tuple[np.ndarray, np.ndarray]] = []
+    for k, r in enumerate(stacks):
+        if r.ndim != 3 or r.shape[1] < 4 or r.shape[2] != 2 or not np.all(np.isfinite(r)):
+            return None
+        if np.any(np.all(r[:, 0] == r[:, -1], axis=1)):
+            return None  # a closing vertex: the one-at-a-time path drops it
+        x, y = np.ascontiguousarray(r[..., 0]), np.ascontiguousarray(r[..., 1])
+        dx, dy = x - _row_means(x)[:, None], y - _row_means(y)[:, None]
+        area = (dx * np.roll(dy, -1, axis=1) - np.roll(dx, -1, axis=1) * dy).sum(axis=1) / 2.0
+        span = np.maximum(x.max(axis=1) - x.min(axis=1), y.max(axis=1) - y.min(axis=1))
+        if np.any(np.abs(area) <= 1e-12 * span * span):
+            return None  # a flat ring: the error comes from the one-at-a-time path
+        flip = area < 0.0 if k == 0 else area > 0.0  # outer counter-clockwise, holes clockwise
+        if flip.any() and not flip.all():
+            return None
+        rings.append((x[:, ::-1].copy(), y[:, ::-1].copy()) if flip[0] else (x, y))
+    (ox, oy), bounds = rings[0], []
+    xmin, xmax, ymin, ymax = ox.min(axis=1), ox.max(axis=1), oy.min(axis=1), oy.max(axis=1)
+    slack = 1e-9 * np.maximum(xmax - xmin, ymax - ymin)
+    for hx, hy in rings[1:]:
+        bounds += [hx.min(axis=1) < xmin - slack, hy.min(axis=1) < ymin - slack]
+        bounds += [hx.max(axis=1) > xmax + slack, hy.max(axis=1) > ymax + slack]
+    if any(b.any() for b in bounds):
+        return None
+    ref = np.array([_row_means(ox), _row_means(oy)])
+    m = _batch_section_moments(rings, ref)
+    if not np.all(m[0] > 0.0):
+        return None
+    centroid = ref + m[1:3] / m[0]
+    mc = _batch_section_moments(rings, centroid)
+    perimeter = sum(np.hypot(np.roll(x, -1, axis=1) - x, np.roll(y, -1, axis=1) - y).sum(axis=1) for x, y in rings)
+    result = []
+    for j in range(len(samples)):
+        a_c, qx, qy = float(mc[0, j]), float(mc[1, j]), float(mc[2, j])
+        xc = float(centroid[0, j] + qx / a_c)
+        yc = float(centroid[1, j] + qy / a_c)
+        ixx = float(mc[3, j] - qy * qy / a_c)
+        iyy = float(mc[4, j] - qx * qx / a_c)
+        ixy = float(mc[5, j] - qx * qy / a_c)
+        i1, i2, angle = principal_moments(ixx, iyy, ixy)
+        x_lo, y_lo, x_hi, y_hi = float(xmin[j]), float(ymin[j]), float(xmax[j]), float(ymax[j])
+        result.append(
+            SectionProperties(
+                area_mm2=a_c,
+                perimeter_mm=float(float(perimeter[j]) + 0.0),
+                centroid_mm=(xc, yc),
+                ixx_mm4=ixx,
+                iyy_mm4=iyy,
+                ixy_mm4=ixy,
+                i1_mm4=i1,
+                i2_mm4=i2,
+                principal_angle_deg=angle,
+                polar_mm4=ixx + iyy,
+                gyration_x_mm=math.sqrt(max(ixx, 0.0) / a_c),
+                gyration_y_mm=math.sqrt(max(iyy, 0.0) / a_c),
+                gyration_1_mm=math.sqrt(max(i1, 0.0) / a_c),
+                gyration_2_mm=math.sqrt(max(i2, 0.0) / a_c),
+                modulus_top_mm3=ixx / (y_hi - yc),
+                modulus_bottom_mm3=ixx / (yc - y_lo),
+                modulus_right_mm3=iyy / (x_hi - xc),
+                modulus_left_mm3=iyy / (xc - x_lo),
+                bbox_mm=(x_lo, y_lo, x_hi, y_hi),
+                caliper_max_mm=math.nan,
+                caliper_min_mm=math.nan,
+                convex_area_mm2=math.nan,
+            )
+        )
+    return result
+
+
 def boundary_influence(outer: np.ndarray, holes: Sequence[np.ndarray] = ()) -> dict[str, np.ndarray]:
     """Per-vertex outward normals and attributed boundary lengths of a section.
 

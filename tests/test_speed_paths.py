@@ -469,3 +469,173 @@ def test_dip_pre_test_runs_the_search_whenever_the_bounds_cannot_decide():
     assert dips_possible(codes, table, (none, none), flat(0.8), tilted, 0.2)
     # nothing searched: nothing to find
     assert not dips_possible(codes, table, (none, none), flat(0.8), flat(0.3), 0.003)
+
+
+# ------------------------------------------------------------------ markers through crops
+
+
+def _mat_photo(tilt: float, roll: float, hide: list[int]) -> np.ndarray:
+    from scanmass.scale.mat import make_mat
+    from scanmass.testing.photos import PhotoParts, make_camera, render_photo
+
+    cam = make_camera(
+        size=(2400, 1800), f_px=2250.0, tilt_deg=tilt, tilt_dir_deg=40.0, roll_deg=roll, distance_mm=470.0
+    )
+    part = PhotoParts(rectangle(70.0, 90.0, 80.0, 50.0, angle_deg=17.0), [circle(100.0, 115.0, 8.0, 256)])
+    img = render_photo(make_mat("a4-portrait"), [part], cam, seed=int(tilt) + 1, hide_ids=hide)
+    return img if img.ndim == 2 else img[..., 0]
+
+
+def _whole_image_calls(monkeypatch, shape: tuple[int, int]) -> list[tuple[int, ...]]:
+    from scanmass.scale import markerfind
+
+    calls: list[tuple[int, ...]] = []
+    whole = markerfind._whole
+
+    def spy(grey, detector):
+        if grey.shape == shape:
+            calls.append(grey.shape)
+        return whole(grey, detector)
+
+    monkeypatch.setattr(markerfind, "_whole", spy)
+    return calls
+
+
+@pytest.mark.parametrize(
+    "tilt, roll, hide, all_tied",
+    [(0.0, 90.0, [], False), (25.0, 70.0, [], False), (15.0, 100.0, [5, 17], False), (25.0, 70.0, [], True)],
+)
+def test_markers_through_crops_equal_opencvs_whole_image_search(monkeypatch, tilt, roll, hide, all_tied):
+    """OpenCV's ArucoDetector on the whole photo is the reference: same ids, order and corners, bit for bit.
+
+    ``all_tied``: every perimeter taken as equal, so that the order comes entirely from the
+    detector's scan order rebuilt from the crops' candidates.
+    """
+    from scanmass.scale import markerfind
+    from scanmass.scale.markers import _detector
+
+    grey = np.ascontiguousarray(_mat_photo(tilt, roll, hide))
+    detector = _detector("DICT_5X5_250")
+    ref_corners, ref_ids, _ = detector.detectMarkers(grey)
+    assert ref_ids is not None and len(ref_ids) >= 18
+    if all_tied:
+        monkeypatch.setattr(markerfind, "TIE_PX", 1e9)
+    whole = _whole_image_calls(monkeypatch, grey.shape)
+    corners, ids = markerfind.find_markers(grey, detector)
+    assert whole == []  # the crops sufficed
+    assert ids.tolist() == ref_ids.ravel().tolist()
+    assert corners.dtype == np.float32
+    assert np.array_equal(corners, np.stack([c.reshape(4, 2) for c in ref_corners]))
+
+
+def test_markers_missed_in_the_reduced_copy_are_found_where_the_layout_puts_them(monkeypatch):
+    """A marker the reduced copy does not show is searched where the mat's layout predicts it."""
+    from scanmass.scale import markerfind
+    from scanmass.scale.markers import _detector, expected_quads
+    from scanmass.scale.mat import make_mat
+
+    grey = np.ascontiguousarray(_mat_photo(20.0, 80.0, []))
+    detector = _detector("DICT_5X5_250")
+    ref_corners, ref_ids, _ = detector.detectMarkers(grey)
+    whole = markerfind._whole
+    dropped = int(ref_ids.ravel()[3])
+
+    def blind(g, d):  # the reduced copy misses one marker
+        corners, ids = whole(g, d)
+        if g.shape != grey.shape and len(ids) > 6:
+            keep = ids != dropped
+            return corners[keep], ids[keep]
+        return corners, ids
+
+    monkeypatch.setattr(markerfind, "_whole", blind)
+    corners, ids = markerfind.find_markers(grey, detector)
+    assert dropped not in ids.tolist()  # nowhere searched for
+    mat = make_mat("a4-portrait")
+    corners, ids = markerfind.find_markers(grey, detector, lambda i, q: expected_quads(mat, i, q))
+    assert ids.tolist() == ref_ids.ravel().tolist()
+    assert np.array_equal(corners, np.stack([c.reshape(4, 2) for c in ref_corners]))
+
+
+def _masked_whole_image(grey: np.ndarray, roi_px: np.ndarray) -> np.ndarray:
+    """The clear-area masking done on the whole image (the way it was done before the bounding box)."""
+    import cv2
+
+    mask = np.zeros(grey.shape, np.uint8)
+    cv2.fillPoly(mask, [np.round(roi_px).astype(np.int32)], 1)
+    inner = cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=2).astype(bool)
+    band = inner & ~cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=8).astype(bool)
+    values = grey[band]
+    level = np.median(values) if values.size else np.median(grey[inner])
+    out = grey.copy()
+    out[~mask.astype(bool)] = np.asarray(level, dtype=grey.dtype)
+    return out
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_clear_area_mask_in_its_bounding_box_equals_the_whole_images(seed):
+    """Masking outside the clear area within its padded bounding box gives the whole-image result,
+    also for areas that cross the image's edges or lie in a corner, and for 16-bit planes."""
+    from scanmass.pipeline.photo_checks import _mask_outside
+
+    rng = np.random.default_rng(seed)
+    dtype = np.uint16 if seed % 3 == 2 else np.uint8
+    grey = rng.integers(0, 200 if dtype == np.uint8 else 50000, size=(181, 263)).astype(dtype)
+    centre = rng.uniform([-20, -20], [283, 201])
+    angles = np.sort(rng.uniform(0, 2 * np.pi, 7))
+    radius = rng.uniform(15, 160, 7)
+    roi = centre + np.column_stack([radius * np.cos(angles), radius * np.sin(angles)])
+    roi = roi[:, ::1] if seed % 2 else roi[::-1]  # either orientation
+    image = load_image(grey)
+    assert np.array_equal(image.grey, grey)
+    got = _mask_outside(image, roi)
+    assert got.grey.dtype == grey.dtype
+    assert np.array_equal(got.grey, _masked_whole_image(grey, roi))
+
+
+def _same_properties(a, b) -> bool:
+    import dataclasses
+
+    for f in dataclasses.fields(a):
+        x, y = np.asarray(getattr(a, f.name), float), np.asarray(getattr(b, f.name), float)
+        if not np.array_equal(x, y, equal_nan=True):
+            return False
+    return True
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_sampled_figures_all_at_once_equal_one_sample_at_a_time(seed):
+    """The scale term's sampled sections, computed all at once, give section_properties' floats bit for bit."""
+    from scanmass.section import sampled_figures, section_properties
+
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(5, 900))
+    t = np.linspace(0, 2 * np.pi, n, endpoint=False)
+    outer = np.column_stack([40 + 25 * np.cos(t) * (1 + 0.2 * np.sin(3 * t)), 30 + 18 * np.sin(t)])
+    holes = [circle(35.0, 30.0, 4.0, int(rng.integers(8, 200)))[::-1], circle(50.0, 28.0, 2.5, 64)][: seed % 3]
+    if seed % 2:
+        outer = outer[::-1]  # clockwise: turned by both paths
+    samples = []
+    for _ in range(int(rng.integers(2, 40))):
+        g = np.eye(3) + rng.normal(0, 1e-3, (3, 3)) * [[1, 1, 10], [1, 1, 10], [1e-4, 1e-4, 0]]
+        g[2, 2] = 1.0
+
+        def warp(r, g=g):
+            h = np.column_stack([r, np.ones(len(r))]) @ g.T
+            return h[:, :2] / h[:, 2:]
+
+        samples.append((warp(outer), tuple(warp(h) for h in holes)))
+    got = sampled_figures(samples)
+    assert got is not None
+    for sp, (o, h) in zip(got, samples):
+        assert _same_properties(sp, section_properties(o, list(h), hull=False))
+
+
+def test_sampled_figures_leave_unlike_samples_to_the_one_at_a_time_path():
+    from scanmass.section import sampled_figures
+
+    square = np.array([[0.0, 0.0], [4.0, 0.0], [4.0, 4.0], [0.0, 4.0]])
+    assert sampled_figures([(square, ()), (np.vstack([square, [[0.0, 2.0]]]), ())]) is None  # vertex counts
+    assert sampled_figures([(square, ()), (square[::-1], ())]) is None  # orientations differ
+    assert sampled_figures([(np.vstack([square, square[:1]]), ())]) is None  # a closing vertex
+    assert sampled_figures([(square, ()), (square * [1, 0], ())]) is None  # a flat ring: the error is raised there
+    assert sampled_figures([(square, ()), (square + 1.0, ())]) is not None

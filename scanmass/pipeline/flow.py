@@ -9,6 +9,7 @@ from __future__ import annotations
 import contextlib
 import math
 import os
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import replace
 from typing import Any
 
@@ -629,6 +630,17 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
     SegmentationError
         No whole part inside the clear area.
     """
+    # the colour planes are decoded beside the scale and the segmentation (libjpeg and numpy's
+    # comparisons release the GIL); the checks below wait for them
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        colour_job = pool.submit(_photo_colour, image)
+        return _measure_photo(image, options, method, colour_job)
+
+
+def _measure_photo(
+    image: LoadedImage, options: MeasureOptions, method: str, colour_job: Future[np.ndarray | None]
+) -> Measurement:
+    """:func:`measure_photo` with its colour planes decoding in ``colour_job``."""
     thickness_mm = options.thickness_mm  # checked by MeasureOptions.check
     scale = photo_scale(image, options, method)
     masked = _mask_outside(image, scale.roi_px)
@@ -662,7 +674,7 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
                 "note": "outline taken on the top face's edge all round (the side wall facing the camera looked "
                 "like the background; the parts' round rings fit a circle only so)",
             }
-    colour = _photo_colour(image)  # decoded once for the colour checks
+    colour = colour_job.result()  # decoded once for the colour checks
     result, cut, cut_labels = _cut_cast_shadows(
         image,
         masked,

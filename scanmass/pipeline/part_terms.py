@@ -16,7 +16,14 @@ import numpy as np
 from scanmass.mapping import MappedPart
 from scanmass.measurement import Hole, Part
 from scanmass.scale.planemap import PlaneMap
-from scanmass.section import SectionProperties, fit_circle, ring_moments, ring_perimeter, section_properties
+from scanmass.section import (
+    SectionProperties,
+    fit_circle,
+    ring_moments,
+    ring_perimeter,
+    sampled_figures,
+    section_properties,
+)
 from scanmass.segment.thin import (
     RESIDUAL_WINDOW_PX,
     EdgeQuantisation,
@@ -163,8 +170,10 @@ def _scale_terms(part: MappedPart, plane_map: PlaneMap, props: SectionProperties
     """Scale-term standard uncertainties of the main figures (mm only: the sampled maps' rings come mapped)."""
     if len(part.sample_rings_mm) >= MIN_SCALE_SAMPLES:
         values: dict[str, list[float]] = {}
-        for outer_mm, holes_mm in part.sample_rings_mm:
-            sp = section_properties(outer_mm, list(holes_mm), hull=False)  # no hull figure is sampled
+        sampled = sampled_figures(part.sample_rings_mm)  # all at once: the same floats
+        if sampled is None:
+            sampled = [section_properties(o, list(h), hull=False) for o, h in part.sample_rings_mm]  # no hull
+        for sp in sampled:
             for name, val in _figure_values(sp).items():
                 values.setdefault(name, []).append(val)
         out = {k: float(np.std(v, ddof=1)) for k, v in values.items()}

@@ -47,16 +47,28 @@ def _mask_outside(image: LoadedImage, roi_px: np.ndarray) -> LoadedImage:
     """A copy of the image whose pixels outside the clear area show the paper's level.
 
     The segmenter reads the part's polarity and the background from the whole image;
-    markers, print and the table around the mat would mislead it.
+    markers, print and the table around the mat would mislead it. Only the clear area's
+    bounding box, padded with empty mask, is filled and eroded: outside it the mask is
+    empty, and an erosion window that reaches past the box's edge (where OpenCV takes the
+    outside as full) crosses the empty padding first, so every mask, band and level is the
+    whole image's.
     """
-    mask = np.zeros(image.grey.shape, np.uint8)
-    cv2.fillPoly(mask, [np.round(roi_px).astype(np.int32)], 1)
-    inner = cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=2).astype(bool)
-    band = inner & ~cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=8).astype(bool)
-    values = image.grey[band]
-    level = np.median(values) if values.size else np.median(image.grey[inner])
-    grey = image.grey.copy()
-    grey[~mask.astype(bool)] = np.asarray(level, dtype=grey.dtype)
+    height, width = image.grey.shape
+    poly = np.round(roi_px).astype(np.int32)
+    pad = 10
+    x0, y0 = (max(int(v) - pad, 0) for v in poly.min(axis=0))
+    x1, y1 = min(int(poly[:, 0].max()) + pad + 1, width), min(int(poly[:, 1].max()) + pad + 1, height)
+    x0, y0 = min(x0, x1), min(y0, y1)
+    mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+    if mask.size:
+        cv2.fillPoly(mask, [poly], 1, offset=(-x0, -y0))
+    inner = cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=2).astype(bool) if mask.size else mask.astype(bool)
+    band = inner & ~cv2.erode(mask, np.ones((3, 3), np.uint8), iterations=8).astype(bool) if mask.size else inner
+    window = image.grey[y0:y1, x0:x1]
+    values = window[band]
+    level = np.median(values) if values.size else np.median(window[inner])
+    grey = np.full_like(image.grey, np.asarray(level, dtype=image.grey.dtype))
+    np.copyto(grey[y0:y1, x0:x1], window, where=mask.astype(bool))
     return replace(image, grey=grey)
 
 

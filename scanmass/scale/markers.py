@@ -17,12 +17,15 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.errors import ScaleError
 from scanmass.load.decode import LoadedImage
 from scanmass.scale.edges import Line, fit_line, intersect_lines, side_frame, window_centroid
-from scanmass.scale.mat import MARKER_CELLS
+from scanmass.scale.homography import apply_h
+from scanmass.scale.markerfind import ExpectedQuads, find_markers
+from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids
 from scanmass.scale.planemap import PixelCorrection
 
-__all__ = ["MarkerDetection", "detect_markers", "MIN_MARKERS"]
+__all__ = ["MarkerDetection", "detect_markers", "found_markers", "expected_quads", "MIN_MARKERS"]
 
 #: Fewest markers a photo must show.
 MIN_MARKERS = 4
@@ -80,11 +83,47 @@ def _detector(dictionary_name: str) -> cv2.aruco.ArucoDetector:
     return cv2.aruco.ArucoDetector(dictionary, params)
 
 
+def expected_quads(layout: MatLayout | None, ids: np.ndarray, quads_px: np.ndarray) -> np.ndarray:
+    """Where the layout's markers not among ``ids`` should be (K, 4, 2) px, from those seen.
+
+    A plain homography through the seen corners (a lens bends it a little; the marker
+    search pads these places generously). Without a recognisable layout: none.
+    """
+    if layout is None:
+        try:
+            layout = layout_for_ids(ids)
+        except ScaleError:
+            return np.zeros((0, 4, 2))
+    mine = np.isin(ids, layout.ids)
+    missing = layout.ids[~np.isin(layout.ids, ids)]
+    if mine.sum() < MIN_MARKERS or len(missing) == 0:
+        return np.zeros((0, 4, 2))
+    src = layout.marker_corners(ids[mine]).reshape(-1, 2).astype(np.float64)
+    g, _ = cv2.findHomography(src, quads_px[mine].reshape(-1, 2).astype(np.float64), 0)
+    if g is None:
+        return np.zeros((0, 4, 2))
+    return apply_h(g, layout.marker_corners(missing).reshape(-1, 2)).reshape(-1, 4, 2)
+
+
+def found_markers(
+    image: LoadedImage, dictionary: str = "DICT_5X5_250", expected: ExpectedQuads | None = None
+) -> tuple[np.ndarray, np.ndarray]:
+    """The detector's markers: corners (M, 4, 2) float64 px (distorted pixels) and ids (M,) int.
+
+    The same markers, corners and order as OpenCV's detector on the whole image, found
+    through crops on large photos (:func:`~scanmass.scale.markerfind.find_markers`);
+    ``expected`` gives where further markers should be.
+    """
+    corners, ids = find_markers(_grey8(image), _detector(dictionary), expected)
+    return corners.astype(np.float64), ids.astype(int)
+
+
 def detect_markers(
     image: LoadedImage,
     *,
     dictionary: str = "DICT_5X5_250",
     undistort: PixelCorrection | None = None,
+    found: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> MarkerDetection:
     """Find ArUco markers and refine their outer corners from fitted side lines.
 
@@ -94,6 +133,7 @@ def detect_markers(
     box-filtered step and unbiased under any symmetric blur. A straight line is
     fitted to each side (outliers dropped) and adjacent lines are intersected. With
     ``undistort`` the edge points are corrected for the lens before the line fits.
+    ``found``: the detector's markers when already known (:func:`found_markers`).
 
     References
     ----------
@@ -103,9 +143,8 @@ def detect_markers(
     .. [2] OpenCV ``cv::aruco::ArucoDetector`` documentation, "Detection of ArUco
        Markers" tutorial (corner refinement parameters).
     """
-    grey8 = _grey8(image)
-    corners, ids, _ = _detector(dictionary).detectMarkers(grey8)
-    if ids is None or len(ids) == 0:
+    coarse, ids = found_markers(image, dictionary) if found is None else found
+    if len(ids) == 0:
         return MarkerDetection(
             np.zeros(0, int),
             np.zeros((0, 4, 2)),
@@ -114,8 +153,6 @@ def detect_markers(
             np.zeros((0, 4)),
             np.zeros((0, 4, 2)),
         )
-    ids = ids.ravel().astype(int)
-    coarse = np.stack([c.reshape(4, 2) for c in corners]).astype(np.float64)
     # a marker id seen twice is ambiguous: drop both
     uniq, counts = np.unique(ids, return_counts=True)
     keep = np.isin(ids, uniq[counts == 1])
