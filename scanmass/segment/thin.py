@@ -771,7 +771,10 @@ def _end_limits(
     """
     out = []
     for window in windows:
-        under = np.array([window.contains(p) for p in at], bool) & good & np.isfinite(width_int)
+        d = at - window.origin
+        u, n = d @ window.u_axis, np.abs(d @ window.n_axis)
+        within = (u >= window.u0) & (u <= window.u1 + window.ramp) & (n <= window.half + window.ramp)
+        under = within & good & np.isfinite(width_int)  # the vertices EndWindow.contains holds
         retreat = strip_end_retreat_px(float(np.median(width_int[under])), sigma) if under.any() else 0.0
         limit = max(sigma, 0.5, retreat if math.isfinite(retreat) else 0.0)
         out.append(replace(window, max_move=limit))
