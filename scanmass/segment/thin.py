@@ -19,7 +19,13 @@ apart (both edges fitted together). That holds where the wall is straight for a 
 widths either side of the line; near a wall's end (a fin's tip, its root on a thick
 region, a slot's ends) the edges take the wall's interior correction and a window over the
 end sets the area there by the same integral in two dimensions
-(:mod:`scanmass.segment.wallends`). The part's level comes from its thick regions, or
+(:mod:`scanmass.segment.wallends`). Where a slot barely opens (its dip just past the
+midpoint) or a wall barely closes, the 0.5 contour pinches and its two sides touch or
+cross; a profile from such a fold starts and ends on the wrong level for the feature it
+seems to cross (a "wall" of 0.1 px between material on both sides), so its integral says
+nothing about that feature: such vertices are put on the chord between their neighbours
+along the side (the wall is straight over the blur's reach, the rule's own premise) and
+carry half the feature's width as uncertainty. The part's level comes from its thick regions, or
 from another part of the same material in the image, or, failing both, from the wall's
 own profile: with the blur known, the peak ``P`` and integral ``J`` of the profile fix
 ``f`` through ``P = f erf(J / (2 sqrt 2 sigma f))`` (a Gaussian-blurred strip). Where
@@ -53,7 +59,15 @@ from scanmass.numeric import nonzero_every, nonzero_rc
 from scanmass.segment.closedfeat import is_sliver
 from scanmass.segment.dipgate import dips_possible
 from scanmass.segment.rings import PartRings, correct_curvature
-from scanmass.segment.wallends import RAMP_PX, apply_end_windows, end_windows, turning, wall_runs
+from scanmass.segment.wallends import (
+    RAMP_PX,
+    EndWindow,
+    apply_end_windows,
+    end_windows,
+    strip_end_retreat_px,
+    turning,
+    wall_runs,
+)
 
 __all__ = [
     "EdgeQuantisation",
@@ -743,6 +757,101 @@ def _erf(x: np.ndarray) -> np.ndarray:
     return np.asarray(erf(x))
 
 
+def _end_limits(
+    windows: list[EndWindow], at: np.ndarray, width_int: np.ndarray, good: np.ndarray, sigma: float
+) -> list[EndWindow]:
+    """Each end window with the largest move its end can plausibly ask for (px).
+
+    The midpoint contour of a blurred strip's end retreats along the strip by
+    :func:`~scanmass.segment.wallends.strip_end_retreat_px` of its width (the median
+    integral width of the resolved profiles under the window) and the blur; at least the
+    blur (the rounding of a wide end's corners) and half a pixel. A 2 px slot under a
+    1.4 px blur retreats 2.3 px, beyond the blur: a fixed limit of the blur left such ends
+    uncorrected where the draw's blur estimate came out a little high.
+    """
+    out = []
+    for window in windows:
+        d = at - window.origin
+        u, n = d @ window.u_axis, np.abs(d @ window.n_axis)
+        within = (u >= window.u0) & (u <= window.u1 + window.ramp) & (n <= window.half + window.ramp)
+        under = within & good & np.isfinite(width_int)  # the vertices EndWindow.contains holds
+        retreat = strip_end_retreat_px(float(np.median(width_int[under])), sigma) if under.any() else 0.0
+        limit = max(sigma, 0.5, retreat if math.isfinite(retreat) else 0.0)
+        out.append(replace(window, max_move=limit))
+    return out
+
+
+def _folds(
+    prof: np.ndarray, inside_line: np.ndarray, bg_here: np.ndarray, f_here: np.ndarray, on_wall: np.ndarray
+) -> np.ndarray:
+    """Profiles whose two ends both lie on the wrong side of the midpoint level for their feature.
+
+    Across a wall (``on_wall``) the normalised profile starts and ends below 0.5 (outside the
+    part), across a slot above it; a profile that starts and ends above 0.5 for a wall (or
+    below it for a slot) crosses a fold of the contour, not the feature.
+
+    Examples
+    --------
+    >>> prof = np.array([[0.9, 0.2, 0.9], [0.1, 0.9, 0.1]])
+    >>> _folds(prof, np.ones((2, 3), bool), np.zeros(2), np.ones(2), np.array([True, True])).tolist()
+    [True, False]
+    """
+    last = inside_line.sum(axis=1) - 1
+    rows = np.arange(len(prof))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        first_n = (prof[:, 0] - bg_here) / f_here
+        last_n = (prof[rows, np.maximum(last, 0)] - bg_here) / f_here
+    material = (first_n > 0.5) & (last_n > 0.5)
+    background = (first_n < 0.5) & (last_n < 0.5)
+    return np.where(on_wall, material, background) & np.isfinite(first_n) & np.isfinite(last_n)
+
+
+def _bridge_folds(
+    pts: np.ndarray, sizes: list[int], fold: np.ndarray, reach_px: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Vertices ``fold`` moved onto the chord between the nearest other vertices of their ring either side.
+
+    Only where both lie within ``reach_px`` of arc; returns the points and, per fold
+    vertex, whether it was placed.
+
+    Examples
+    --------
+    >>> ring = np.array([[0.0, 0], [1, 0], [2, 3.0], [3, 0], [4, 0], [4, 4], [0, 4]])
+    >>> out, placed = _bridge_folds(ring, [7], np.array([2]), 5.0)
+    >>> out[2].tolist(), placed.tolist()
+    ([2.0, 0.0], [True])
+    """
+    out = pts.copy()
+    bad = np.zeros(len(pts), bool)
+    bad[fold] = True
+    placed = np.zeros(len(fold), bool)
+    starts = np.cumsum([0, *sizes[:-1]])
+    where = {int(v): k for k, v in enumerate(fold)}
+    for a, n in zip(starts, sizes):
+        ring = pts[a : a + n]
+        for v in [int(x) for x in fold if a <= x < a + n]:
+            i = v - a
+            ends = []
+            for step in (-1, 1):
+                j, arc = i, 0.0
+                while True:
+                    k = (j + step) % n
+                    arc += float(np.hypot(*(ring[k] - ring[j])))
+                    j = k
+                    if j == i or arc > reach_px:
+                        j = -1
+                        break
+                    if not bad[a + j]:
+                        break
+                ends.append((j, arc))
+            (jb, sb), (ja, sa) = ends
+            if jb < 0 or ja < 0 or sb + sa <= 1e-9:
+                continue
+            out[v] = pts[a + jb] + (pts[a + ja] - pts[a + jb]) * (sb / (sb + sa))
+            placed[where[v]] = True
+    return out, placed
+
+
 def _interior_corrections(
     runs: list[np.ndarray], pts: np.ndarray, idx: np.ndarray, correction: np.ndarray, zone_px: float
 ) -> np.ndarray:
@@ -981,7 +1090,18 @@ def resolve_walls(
     span = (inside_line.sum(axis=1) - 1) * step_px
     width_int = np.where(wall[idx], integral / f_here, span - integral / f_here)
     correction = 0.5 * (width_int - width_mid)  # each edge moves by half
+    # a profile across a wall starts and ends on the background, one across a slot on the
+    # part: where both its ends lie on the far side of the contour level the vertex is not
+    # on the wall or slot it seems to be on but on a fold of the contour (a barely open slot
+    # or a barely closed wall pinches to under a pixel and its two sides touch or cross), and
+    # the integral counts the material or background beyond the fold (a "wall" of 0.1 px
+    # read as 10 px): such a vertex is placed from its neighbours along the side instead
+    fold = _folds(prof, inside_line, bg_here, f_here, wall[idx])
+    if level_source == "":
+        fold[:] = False
+    correction = np.where(fold, 0.0, correction)
     unresolved = (width_int < max(MIN_RESOLVED_PX, own_min_width)) | (level_source == "") | ~np.isfinite(width_int)
+    unresolved &= ~fold
     # uncertainty of each edge: the level's share, the cut-off tails, and when unresolved the whole size
     tail = np.zeros(len(idx))
     for cut in (a_start, a_end):
@@ -1008,10 +1128,20 @@ def resolve_walls(
     moved[idx] = pts[idx] + move
     wall_u = np.zeros(len(pts))
     wall_u[idx] = u
+    if fold.any():
+        # the wall or slot is straight over the blur's reach (the integral rule's own premise):
+        # a fold's vertices go onto the chord between the nearest good vertices either side,
+        # and may be off by half the feature's width
+        moved, placed = _bridge_folds(moved, [len(r) for r in all_rings], idx[fold], reach_tail)
+        others = np.abs(width_int[~fold & np.isfinite(width_int)])
+        half_width = 0.5 * float(np.median(others)) if others.size else 0.5 * thin_px
+        wall_u[idx[fold]] = np.hypot(u[fold], half_width)
+        wall_u[idx[fold][~placed]] = np.hypot(wall_u[idx[fold][~placed]], 0.5 * thin_px)
     if runs and level_source:
         across, width = np.zeros_like(pts), np.zeros(len(pts))
         across[idx], width[idx] = direction, width_mid
         windows = end_windows(runs, pts, across, width, reach_px=reach_tail)
+        windows = _end_limits(windows, pts[idx], width_int, ~(unresolved | fold), sigma)
         f_level = _level_surface(fg_eval, f_here, bg_here, level_ratio_hint)
 
         def normalise(values: np.ndarray, r: np.ndarray, c: np.ndarray) -> np.ndarray:
@@ -1022,6 +1152,7 @@ def resolve_walls(
         moved_rings, _, window_u = apply_end_windows(
             lin, shift, [moved[a : a + n] for a, n in zip(np.cumsum([0, *sizes[:-1]]), sizes)], normals, windows,
             normalise, level_rel_u=part_level_rel_u, prefer=cap, reach_px=reach_tail, max_move_px=max(sigma, 0.5),
+            clear_px=2.0 * sigma + 1.0,  # closed_slots keeps this far from the rings
             noise_rel=float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0,
         )  # fmt: skip
         moved = np.concatenate(moved_rings)

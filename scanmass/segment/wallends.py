@@ -23,6 +23,14 @@ the polygon's exact pixel coverage weighted by ``W`` is the area the polygon lac
 the window; it is put back by moving the boundary inside the window along its normals in
 proportion to ``W``.
 
+A window whose end asks for more than the end can plausibly need is left out and its
+vertices carry that bound as uncertainty. The bound is the retreat of the midpoint contour
+at a blurred strip's square end (:func:`strip_end_retreat_px`, closed form for a Gaussian
+blur), at least the blur: a 2 px slot under a 1.4 px blur retreats 2.3 px. A window is also
+left out where the wall or slot goes on past its end closed (a slot open in one piece and
+closed beyond it: the closed piece is measured by the closed-slot step, and the window
+would take its share a second time).
+
 References
 ----------
 .. [1] R. N. Bracewell, The Fourier Transform and Its Applications, 3rd ed., McGraw-Hill
@@ -42,11 +50,25 @@ import numpy as np
 from scanmass.geometry import point_in_ring, signed_area
 from scanmass.raster import coverage
 
-__all__ = ["EndWindow", "apply_end_windows", "end_windows", "turning", "wall_runs"]
+__all__ = ["EndWindow", "apply_end_windows", "end_windows", "strip_end_retreat_px", "turning", "wall_runs"]
 
 #: Length (px) of the window's linear ramps: long against the blur, so that the blur of the
 #: ramp itself (``K * W - W``, second order in sigma over this length) stays small.
 RAMP_PX = 4.0
+
+
+#: Beyond a window's far ramp (and, for a window over a whole short run, before its near
+#: one) a real end leaves flat material or background, and an open continuation of the
+#: wall or slot (a run broken by a kink) leaves image and polygon agreeing across it (the
+#: integral rule, the sides corrected). Where the image across the centre line there still
+#: lacks (or adds) more than this width (px) of material against the polygon's coverage, the
+#: feature goes on past the end closed (a narrow slot open in one piece and closed beyond
+#: it): the closed-slot step (:func:`scanmass.segment.thin.closed_slots`) measures the closed
+#: piece from the pixels at least ``2 sigma + 1`` from the rings, so the window stops that
+#: far past the end's tip (its own pixels up to there, none counted twice). Half a
+#: pixel: a third of the narrowest wall the integral rule resolves (1.5 px), twenty times
+#: the noise of the sum over the zone at a noise of 1 % of the contrast.
+CONTINUES_WIDTH_PX = 0.5
 
 
 def wall_runs(flagged: np.ndarray, ring_sizes: list[int]) -> list[np.ndarray]:
@@ -104,6 +126,34 @@ def turning(rings: list[np.ndarray], normals: np.ndarray, reach_px: float) -> np
     return np.concatenate(out) if out else np.zeros(0, bool)
 
 
+def strip_end_retreat_px(width_px: float, blur_px: float) -> float:
+    """How far the midpoint contour of a blurred strip's square end retreats along its centre line.
+
+    A strip of width ``w`` (along ``x``) ending square at ``y = 0``, blurred by a Gaussian
+    of ``sigma``, is normalised to ``P Phi(-y / sigma)`` on its centre line far from its
+    sides, with ``P = erf(w / (2 sqrt 2 sigma))`` the strip's peak and ``Phi`` the normal
+    distribution function (the blur is separable). It crosses 0.5 at ``y = -sigma
+    Phi^-1(1 / (2 P))``: 0 for a wide strip (``P`` = 1), and without bound as the strip
+    narrows to where its peak is 0.5 (a slot the blur barely leaves open). A slot's end is
+    the same with the roles of part and background swapped. Inf where ``P <= 0.5``.
+
+    Examples
+    --------
+    >>> round(strip_end_retreat_px(20.0, 1.0), 6)  # a wide strip: the 50 % point of an edge
+    0.0
+    >>> round(strip_end_retreat_px(2.0, 1.314), 3)  # a 2 px slot under a 1.3 px blur
+    1.711
+    """
+    from scipy.special import erf, ndtri
+
+    if not (width_px > 0 and blur_px > 0):
+        return math.inf
+    peak = float(erf(width_px / (2.0 * math.sqrt(2.0) * blur_px)))
+    if peak <= 0.5:
+        return math.inf
+    return float(blur_px * ndtri(min(0.5 / peak, 1.0)))
+
+
 def _arc(points: np.ndarray) -> np.ndarray:
     """Cumulative length along an open polyline, 0 at its first point."""
     if len(points) < 2:
@@ -126,6 +176,9 @@ class EndWindow:
     u1: float
     half: float
     ramp: float = RAMP_PX
+    #: largest plausible move of the boundary at this end (px); NaN: the caller's
+    #: ``max_move_px`` (see :func:`strip_end_retreat_px`)
+    max_move: float = math.nan
 
     def weight(self, xy: np.ndarray) -> np.ndarray:
         """The window's weight at points ``xy`` (K, 2)."""
@@ -228,6 +281,7 @@ def apply_end_windows(
     prefer: np.ndarray | None = None,
     reach_px: float = 5.0,
     max_move_px: float = 1.0,
+    clear_px: float = 0.0,
 ) -> tuple[list[np.ndarray], np.ndarray, np.ndarray]:
     """Move the boundary inside each window so that its area under the window matches the image's.
 
@@ -289,22 +343,30 @@ def apply_end_windows(
         if not weight.any():
             continue
         values = normalise(lin[r0:r1, c0:c1].astype(float), rows.astype(float), cols.astype(float))
-        wv = window.weight(pts)
+        origin = shift + np.array([c0, r0], float)
+        cov = _coverage_px(_split(pts, sizes), origin, (r1 - r0, c1 - c0))
+        # where the wall or slot goes on closed past an end, the window stops ``clear_px`` past
+        # the end's tip (a hard cut across a strip that runs on unchanged moves no material
+        # across it): the closed piece beyond is the closed-slot step's
+        u_lo, u_hi = _cuts(window, centres, (values - cov).ravel(), reach_px, clear_px)
+        along_px = (centres - window.origin) @ window.u_axis
+        weight = np.where(((along_px >= u_lo) & (along_px <= u_hi)).reshape(rows.shape), weight, 0.0)
+        along_pts = (pts - window.origin) @ window.u_axis
+        wv = np.where((along_pts >= u_lo) & (along_pts <= u_hi), window.weight(pts), 0.0)
         inside = wv > 0
         if prefer is not None and np.any(inside & prefer):
             inside &= prefer
         denom = float(np.sum(wv[inside] ** 2 * ds[inside]))
         if denom <= 1e-9:
             continue
-        origin = shift + np.array([c0, r0], float)
-        cov = _coverage_px(_split(pts, sizes), origin, (r1 - r0, c1 - c0))
         # the band within the blur's reach of the boundary (partly covered pixels and around)
         edge = ((cov > 1e-9) & (cov < 1 - 1e-9)).astype(np.uint8)
         band = cv2.distanceTransform(1 - edge, cv2.DIST_L2, 5) <= reach_px + 1.0
         weight = np.where(band, weight, 0.0)
         step = float(np.sum(weight * (values - cov))) / denom
-        if not (math.isfinite(step) and abs(step) * float(wv[inside].max()) <= max_move_px):
-            u_px[inside] = np.hypot(u_px[inside], max_move_px * wv[inside])
+        limit = window.max_move if math.isfinite(window.max_move) else max_move_px
+        if not (math.isfinite(step) and abs(step) * float(wv[inside].max()) <= limit):
+            u_px[inside] = np.hypot(u_px[inside], limit * wv[inside])
             continue
         for k in range(2):  # the area moved is linear in the step to first order: once more for the rest
             if k:
@@ -319,6 +381,52 @@ def apply_end_windows(
         )
         u_px[inside] = np.hypot(u_px[inside], area_u / denom * wv[inside])
     return _split(pts, sizes), moved_by, u_px
+
+
+def _cuts(
+    window: EndWindow, centres: np.ndarray, residual: np.ndarray, reach_px: float, clear_px: float = 0.0
+) -> tuple[float, float]:
+    """Where the window stops along its wall (``u`` from, to): at an end's tip where the feature goes on closed.
+
+    Over the far ramp (and the near one for a window spanning a whole run, ``u0 < 0``): the
+    sum of ``residual`` (image less coverage, normalised) over the window's width, less its
+    flanks' level (beyond the blur's reach from the feature: the level surfaces' misfit),
+    per unit length along the wall, beyond :data:`CONTINUES_WIDTH_PX` means the wall or slot
+    goes on closed there; the window then stops ``clear_px`` past that end's tip (the far tip
+    ``reach_px`` before ``u1``, the near one ``reach_px + ramp`` after ``u0``, as
+    :func:`end_windows` places them). Unbounded (inf) at an end that does not go on.
+
+    Examples
+    --------
+    >>> w = EndWindow(np.zeros(2), np.array([1.0, 0]), np.array([0, 1.0]), 0.0, 10.0, 5.0)
+    >>> r, c = np.mgrid[-12:30, -12:13]
+    >>> xy = np.column_stack([c.ravel(), r.ravel()]).astype(float)
+    >>> flat = np.full(len(xy), 0.01)  # a level misfit of 1 % only
+    >>> dip = flat - np.where((np.abs(xy[:, 0]) <= 1) & (xy[:, 1] > 10), 0.6, 0.0)  # a closed 1.8 px slot
+    >>> _cuts(w, xy, flat, 5.0), _cuts(w, xy, dip, 5.0)
+    ((-inf, inf), (-inf, 5.0))
+    """
+    d = centres - window.origin
+    u = d @ window.u_axis
+    n = np.abs(d @ window.n_axis)
+    core = n <= window.half
+    flank = (n > window.half) & (n <= window.half + window.ramp)
+    ok = np.isfinite(residual)
+    out = [-math.inf, math.inf]
+    zones = [(1, (u >= window.u1) & (u <= window.u1 + window.ramp), window.u1 - reach_px + clear_px)]
+    if window.u0 < 0:
+        zones.append(
+            (0, (u >= window.u0) & (u <= window.u0 + window.ramp), window.u0 + window.ramp + reach_px - clear_px)
+        )
+    for side, zone, tip in zones:
+        inner, outer = zone & core & ok, zone & flank & ok
+        if not inner.any():
+            continue
+        offset = float(np.median(residual[outer])) if outer.any() else 0.0
+        width = float(np.sum(residual[inner] - offset)) / window.ramp
+        if abs(width) > CONTINUES_WIDTH_PX:
+            out[side] = tip
+    return out[0], out[1]
 
 
 def _split(pts: np.ndarray, sizes: list[int]) -> list[np.ndarray]:
