@@ -301,6 +301,20 @@ def test_shadow_crossing_the_parts_level_is_left_out_by_the_sweep():
     assert m.settings["scan_face"]["shadow_left_out"]["1"] > 0.8 * 40.0 * 7.0
 
 
+def test_the_sweep_finds_the_face_whichever_way_the_lamp_shines():
+    """The same scan turned by 90, 180 and 270 degrees (the lamp along +x, -y, -x): the face is found
+    as unturned, within 1 % of the area (truth: shapely's area of the rendered plate)."""
+    plate = SynthPart(rectangle(25.0, 15.0, 40.0, 25.0), [circle(35.0, 27.0, 3.0), circle(53.0, 25.0, 4.5)])
+    scan = _crossing_shadow_scan(plate, 7.0)
+    truth = Polygon(plate.outer_mm, plate.holes_mm).area
+    for turns in (1, 2, 3):
+        m = scanmass.measure(np.ascontiguousarray(np.rot90(scan, turns)), dpi=300)
+        (found,) = m.parts
+        assert m.settings["scan_face"]["shadow_left_out"], turns
+        assert abs(found.area_mm2 - truth) <= 0.01 * truth, turns
+        assert len(found.holes) == 2, turns
+
+
 @pytest.mark.xfail(
     strict=True,
     reason="a shadow front blurred by only 3 px is not seen as soft: no shadow "

@@ -395,10 +395,22 @@ def _face_from_seed(
 
 
 def _up(a: np.ndarray, direction: np.ndarray) -> np.ndarray:
-    """``a`` turned (flipped and transposed, no resampling) so that ``direction`` points up the rows."""
+    """``a`` turned (transposed, then flipped; no resampling) so that ``direction`` points up the rows.
+
+    >>> a = np.arange(6).reshape(2, 3)
+    >>> all(np.array_equal(_back(_up(a, d), d), a) for d in np.array([[1.0, 0], [-1, 0], [0, 1], [0, -1]]))
+    True
+    """
     if direction[0] != 0.0:
         a = a.T
     return a[::-1] if float(direction.sum()) > 0.0 else a
+
+
+def _back(a: np.ndarray, direction: np.ndarray) -> np.ndarray:
+    """The inverse of :func:`_up`: flipped back, then transposed back."""
+    if float(direction.sum()) > 0.0:
+        a = a[::-1]
+    return a.T if direction[0] != 0.0 else a
 
 
 def _shadow_length(smooth: np.ndarray, filled: np.ndarray) -> tuple[int, float, float]:
@@ -474,7 +486,7 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float) -> FaceR
     reach = length + SWEEP_MARGIN_PX
     segment = np.ones((reach + 1, 1), np.uint8)
     seed_up = cv2.erode(_up(ctx.found, direction), segment, anchor=(0, reach), borderValue=0)
-    seed = np.ascontiguousarray(_up(seed_up, direction))  # the same flips and transpose undo themselves
+    seed = np.ascontiguousarray(_back(seed_up, direction))
     swept_off = ctx.found.astype(bool) & ~seed.astype(bool)  # the shadow's side, cut back past the face's edge
     kernel = np.ones((3, 3), np.uint8)
     seed = cv2.erode(seed, kernel, iterations=3)
@@ -583,9 +595,11 @@ def _upstream_share(removed: np.ndarray, face: np.ndarray, direction: np.ndarray
     if removed.sum() < 10:
         return 0.0
     h, w = face.shape
-    angle = math.degrees(math.atan2(direction[0], -direction[1]))  # rotate direction onto (0, -1)
+    # OpenCV turns counter-clockwise as the image is shown (rows down) for a positive angle: this one
+    # takes ``direction`` onto (0, -1) (a lamp along -x: -90 degrees, clockwise, left onto up)
+    angle = math.degrees(math.atan2(direction[0], -direction[1]))
     size = int(math.ceil(math.hypot(h, w))) + 2
-    rot = cv2.getRotationMatrix2D((w / 2.0, h / 2.0), -angle, 1.0)
+    rot = cv2.getRotationMatrix2D((w / 2.0, h / 2.0), angle, 1.0)
     rot[:, 2] += [(size - w) / 2.0, (size - h) / 2.0]
     face_r = cv2.warpAffine(face.astype(np.uint8), rot, (size, size), flags=cv2.INTER_NEAREST)
     removed_r = cv2.warpAffine(removed.astype(np.uint8), rot, (size, size), flags=cv2.INTER_NEAREST).astype(bool)
