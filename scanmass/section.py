@@ -561,15 +561,6 @@ def section_properties(
     # second pass about the centroid: the first moments are now ~0 and the
     # parallel-axis correction below only removes their rounding residue
     mc = _section_moments(rings, centroid)
-    a_c, qx, qy = float(mc[0]), float(mc[1]), float(mc[2])
-    xc = float(centroid[0] + qx / a_c)
-    yc = float(centroid[1] + qy / a_c)
-    ixx = float(mc[3] - qy * qy / a_c)
-    iyy = float(mc[4] - qx * qx / a_c)
-    ixy = float(mc[5] - qx * qy / a_c)
-    area = a_c
-
-    i1, i2, angle = principal_moments(ixx, iyy, ixy)
     xmin, ymin = (float(v) for v in extent.min(axis=0))
     xmax, ymax = (float(v) for v in extent.max(axis=0))
     if hull:
@@ -579,10 +570,41 @@ def section_properties(
     else:
         cal_max = cal_min = convex_area = math.nan
     perimeter = sum(ring_perimeter(r) for r in [out, *hole_rings]) + extra_perimeter_mm
+    return _from_moments(
+        (float(mc[0]), float(mc[1]), float(mc[2]), mc[3], mc[4], mc[5]),
+        centroid,
+        (xmin, ymin, xmax, ymax),
+        float(perimeter),
+        (cal_max, cal_min, convex_area),
+    )
 
+
+def _from_moments(
+    mc: tuple[float, float, float, float, float, float],
+    ref: np.ndarray,
+    bbox: tuple[float, float, float, float],
+    perimeter: float,
+    hull_figures: tuple[float, float, float],
+) -> SectionProperties:
+    """The figures of a section from its moments about a point ``ref`` near its centroid.
+
+    ``mc`` holds the area, the first moments and the second moments (xx, yy, xy) about
+    ``ref``; the parallel-axis theorem moves them to the centroid, which removes the first
+    moments' rounding residue. ``hull_figures``: the largest and smallest caliper widths
+    and the convex area (NaN when not computed).
+    """
+    a_c, qx, qy = mc[0], mc[1], mc[2]
+    xc = float(ref[0] + qx / a_c)
+    yc = float(ref[1] + qy / a_c)
+    ixx = float(mc[3] - qy * qy / a_c)
+    iyy = float(mc[4] - qx * qx / a_c)
+    ixy = float(mc[5] - qx * qy / a_c)
+    i1, i2, angle = principal_moments(ixx, iyy, ixy)
+    xmin, ymin, xmax, ymax = bbox
+    cal_max, cal_min, convex_area = hull_figures
     return SectionProperties(
-        area_mm2=area,
-        perimeter_mm=float(perimeter),
+        area_mm2=a_c,
+        perimeter_mm=perimeter,
         centroid_mm=(xc, yc),
         ixx_mm4=ixx,
         iyy_mm4=iyy,
@@ -591,10 +613,10 @@ def section_properties(
         i2_mm4=i2,
         principal_angle_deg=angle,
         polar_mm4=ixx + iyy,
-        gyration_x_mm=math.sqrt(max(ixx, 0.0) / area),
-        gyration_y_mm=math.sqrt(max(iyy, 0.0) / area),
-        gyration_1_mm=math.sqrt(max(i1, 0.0) / area),
-        gyration_2_mm=math.sqrt(max(i2, 0.0) / area),
+        gyration_x_mm=math.sqrt(max(ixx, 0.0) / a_c),
+        gyration_y_mm=math.sqrt(max(iyy, 0.0) / a_c),
+        gyration_1_mm=math.sqrt(max(i1, 0.0) / a_c),
+        gyration_2_mm=math.sqrt(max(i2, 0.0) / a_c),
         modulus_top_mm3=ixx / (ymax - yc),
         modulus_bottom_mm3=ixx / (yc - ymin),
         modulus_right_mm3=iyy / (xmax - xc),
@@ -706,43 +728,16 @@ def sampled_figures(samples: Sequence[tuple[np.ndarray, Sequence[np.ndarray]]]) 
     centroid = ref + m[1:3] / m[0]
     mc = _batch_section_moments(rings, centroid)
     perimeter = sum(np.hypot(np.roll(x, -1, axis=1) - x, np.roll(y, -1, axis=1) - y).sum(axis=1) for x, y in rings)
-    result = []
-    for j in range(len(samples)):
-        a_c, qx, qy = float(mc[0, j]), float(mc[1, j]), float(mc[2, j])
-        xc = float(centroid[0, j] + qx / a_c)
-        yc = float(centroid[1, j] + qy / a_c)
-        ixx = float(mc[3, j] - qy * qy / a_c)
-        iyy = float(mc[4, j] - qx * qx / a_c)
-        ixy = float(mc[5, j] - qx * qy / a_c)
-        i1, i2, angle = principal_moments(ixx, iyy, ixy)
-        x_lo, y_lo, x_hi, y_hi = float(xmin[j]), float(ymin[j]), float(xmax[j]), float(ymax[j])
-        result.append(
-            SectionProperties(
-                area_mm2=a_c,
-                perimeter_mm=float(float(perimeter[j]) + 0.0),
-                centroid_mm=(xc, yc),
-                ixx_mm4=ixx,
-                iyy_mm4=iyy,
-                ixy_mm4=ixy,
-                i1_mm4=i1,
-                i2_mm4=i2,
-                principal_angle_deg=angle,
-                polar_mm4=ixx + iyy,
-                gyration_x_mm=math.sqrt(max(ixx, 0.0) / a_c),
-                gyration_y_mm=math.sqrt(max(iyy, 0.0) / a_c),
-                gyration_1_mm=math.sqrt(max(i1, 0.0) / a_c),
-                gyration_2_mm=math.sqrt(max(i2, 0.0) / a_c),
-                modulus_top_mm3=ixx / (y_hi - yc),
-                modulus_bottom_mm3=ixx / (yc - y_lo),
-                modulus_right_mm3=iyy / (x_hi - xc),
-                modulus_left_mm3=iyy / (xc - x_lo),
-                bbox_mm=(x_lo, y_lo, x_hi, y_hi),
-                caliper_max_mm=math.nan,
-                caliper_min_mm=math.nan,
-                convex_area_mm2=math.nan,
-            )
+    return [
+        _from_moments(
+            (float(mc[0, j]), float(mc[1, j]), float(mc[2, j]), mc[3, j], mc[4, j], mc[5, j]),
+            centroid[:, j],
+            (float(xmin[j]), float(ymin[j]), float(xmax[j]), float(ymax[j])),
+            float(float(perimeter[j]) + 0.0),
+            (math.nan, math.nan, math.nan),
         )
-    return result
+        for j in range(len(samples))
+    ]
 
 
 def boundary_influence(outer: np.ndarray, holes: Sequence[np.ndarray] = ()) -> dict[str, np.ndarray]:

@@ -24,7 +24,7 @@ from scanmass.pipeline.part_terms import (
     change_term,
 )
 from scanmass.scale.camera import PhotoScale
-from scanmass.scale.homography import ElevationHook, _normalised, apply_h, raised_outline_mm
+from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
 from scanmass.segment.castshadow import hidden_shadow, shadow_cut
@@ -152,8 +152,7 @@ def _image_px(scale: PhotoScale, ring_mm: np.ndarray, hole: bool = False) -> np.
     hook = scale.plane_map.undistort
     if not isinstance(hook, ElevationHook) or len(ring) < 3:
         return scale.plane_map.to_px(ring)
-    to_foot_mm = _normalised(hook.h0 @ hook.to_footprint @ hook.g0)
-    seen_mm = apply_h(np.linalg.inv(to_foot_mm), ring)  # each point taken as a footprint: where it was seen
+    seen_mm = apply_h(np.linalg.inv(hook.footprint_mm), ring)  # each point taken as a footprint: where it was seen
     ccw = signed_area(ring) > 0
     normals = vertex_normals(ring if ccw else ring[::-1])
     normals = normals if ccw else normals[::-1]
@@ -162,11 +161,7 @@ def _image_px(scale: PhotoScale, ring_mm: np.ndarray, hole: bool = False) -> np.
     top = np.sum(normals * (seen_mm - ring), axis=1) > 0
     px_top = apply_h(hook.g0, seen_mm)
     if hook.top_seen is not None:
-        h, w = hook.top_seen.shape
-        photo = hook.photo_px(px_top)
-        col = np.clip(np.rint(photo[:, 0]), 0, w - 1).astype(np.intp)
-        row = np.clip(np.rint(photo[:, 1]), 0, h - 1).astype(np.intp)
-        top |= hook.top_seen[row, col]
+        top |= hook.seen_on_top(hook.photo_px(px_top))
     return np.where(top[:, None], px_top, apply_h(hook.g0, ring))
 
 
@@ -408,7 +403,7 @@ def wall_sides(
     if not thickness_mm or not isinstance(hook, ElevationHook) or not result.parts:
         return None, []
     mm_per_px = scale.plane_map.mm_per_px
-    to_foot_mm = _normalised(hook.h0 @ hook.to_footprint @ hook.g0)
+    to_foot_mm = hook.footprint_mm
     mask: np.ndarray | None = None
     labels: list[int] = []
     for part in result.parts:
@@ -499,11 +494,7 @@ def _lost_wall(
     foot = apply_h(hook.g0, ring)
     seen = scale.plane_map.undistort
     if isinstance(seen, ElevationHook) and seen.top_seen is not None:
-        h, w = seen.top_seen.shape
-        photo = seen.photo_px(foot)
-        col = np.clip(np.rint(photo[:, 0]), 0, w - 1).astype(np.intp)
-        row = np.clip(np.rint(photo[:, 1]), 0, h - 1).astype(np.intp)
-        if np.mean(seen.top_seen[row, col]) > 0.5:
+        if np.mean(seen.seen_on_top(seen.photo_px(foot))) > 0.5:
             return None  # taken on its top face's edge all round (:func:`wall_sides`): no wall was left out
     parallax = apply_h(hook.gh, ring) - foot
     normal = apply_h(hook.g0, ring + 0.1 * vertex_normals(ring)) - foot

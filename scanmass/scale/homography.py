@@ -287,6 +287,21 @@ class ElevationHook:
         ideal = np.asarray(ideal_px, dtype=float).reshape(-1, 2)
         return ideal if self.undistort is None else 2.0 * ideal - self.undistort(ideal)
 
+    @property
+    def footprint_mm(self) -> np.ndarray:
+        """``E = H0 G0 Hh G0``: a top-face point seen at ``X`` (mm, as if on the plane) -> its footprint (mm)."""
+        return _normalised(self.h0 @ self.to_footprint @ self.g0)
+
+    def seen_on_top(self, photo_px: np.ndarray) -> np.ndarray:
+        """Per point (photo pixels, as stored): inside the :attr:`top_seen` mask; all False without one."""
+        pts = np.asarray(photo_px, dtype=float).reshape(-1, 2)
+        if self.top_seen is None:
+            return np.zeros(len(pts), dtype=bool)
+        h, w = self.top_seen.shape
+        col = np.clip(np.rint(pts[:, 0]), 0, w - 1).astype(np.intp)
+        row = np.clip(np.rint(pts[:, 1]), 0, h - 1).astype(np.intp)
+        return np.asarray(self.top_seen[row, col], dtype=bool)
+
     def with_top_seen(self, top_seen: np.ndarray | None) -> ElevationHook:
         """The same hook with another :attr:`top_seen` mask."""
         return ElevationHook(self.h0, self.k, self.height_mm, self.undistort, top_seen)
@@ -302,10 +317,7 @@ class ElevationHook:
         parallax = pts - foot
         top = np.sum(outward * parallax, axis=1) > 0
         if self.top_seen is not None:
-            h, w = self.top_seen.shape
-            col = np.clip(np.rint(raw[:, 0]), 0, w - 1).astype(np.intp)
-            row = np.clip(np.rint(raw[:, 1]), 0, h - 1).astype(np.intp)
-            top |= self.top_seen[row, col]
+            top |= self.seen_on_top(raw)
         return np.where(top[:, None], foot, pts)
 
 
@@ -334,8 +346,7 @@ def raised_outline_mm(
         The ring bounds a hole (material outside it): its outward normal, away from the
         material, points into the ring.
     """
-    hook = ElevationHook(px_to_plane, k, height_mm)
-    e = _normalised(hook.h0 @ hook.to_footprint @ hook.g0)
+    e = ElevationHook(px_to_plane, k, height_mm).footprint_mm
     ring = np.asarray(ring_mm, dtype=float).reshape(-1, 2)
     x, y = ring[:, 0], ring[:, 1]
     if np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y) < 0:

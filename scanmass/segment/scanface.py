@@ -121,6 +121,8 @@ class _Found:
     """The found outline of one part and what the face check read off it (pixels, crop at ``origin``)."""
 
     origin: np.ndarray
+    #: the found outer ring filled (holes not cleared), and with its holes cleared
+    filled: np.ndarray
     found: np.ndarray
     outer: np.ndarray
     holes_px: list[np.ndarray]
@@ -264,7 +266,7 @@ def scan_face(
             levels=levels,
             note="soft edges",
         )
-    ctx = _Found(origin, found, outer, list(holes_px), soft, lengths, normals, direction, soft_len, levels)
+    ctx = _Found(origin, filled, found, outer, list(holes_px), soft, lengths, normals, direction, soft_len, levels)
     if gap < max(MIN_FACE_SHADOW_CONTRAST * (lid - part), 6.0 * noise):
         return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
     # the face: the region at the part's own level (nearer it than the shadow's, which darkens
@@ -478,8 +480,7 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float) -> FaceR
     """
     direction = ctx.direction
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
-    filled = np.zeros(linear.shape, np.uint8)
-    cv2.fillPoly(filled, [np.round((ctx.outer - ctx.origin) * 16).astype(np.int32)], 1, shift=4)
+    filled = ctx.filled
     length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction))
     if length < SWEEP_MIN_LENGTH_PX or prominence < SWEEP_MIN_PROMINENCE or step <= 0.0:
         return None
