@@ -25,7 +25,7 @@ from skimage.measure import find_contours
 from scanmass.errors import OptionError, PartCutError, SegmentationError
 from scanmass.geometry import point_in_ring, signed_area
 from scanmass.load.decode import LoadedImage
-from scanmass.numeric import nonzero_rc, otsu_threshold
+from scanmass.numeric import nonzero_rc, otsu_threshold, sample_points
 
 __all__ = ["PartRings", "Segmentation", "segment"]
 
@@ -759,9 +759,7 @@ def correct_curvature(ring: np.ndarray, blur_px: float) -> np.ndarray:
 
 
 def _remap(img: np.ndarray, pts_rc: np.ndarray, interpolation: int) -> np.ndarray:
-    map_x = pts_rc[:, 1].astype(np.float32).reshape(-1, 1)
-    map_y = pts_rc[:, 0].astype(np.float32).reshape(-1, 1)
-    return cv2.remap(img, map_x, map_y, interpolation, borderMode=cv2.BORDER_REPLICATE).ravel().astype(np.float64)
+    return sample_points(img, pts_rc[:, 1], pts_rc[:, 0], interpolation).astype(np.float64)
 
 
 def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
