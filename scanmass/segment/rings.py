@@ -20,12 +20,12 @@ from dataclasses import dataclass, field
 
 import cv2
 import numpy as np
-from skimage.measure import find_contours
 
 from scanmass.errors import OptionError, PartCutError, SegmentationError
 from scanmass.geometry import point_in_ring, signed_area
 from scanmass.load.decode import LoadedImage
 from scanmass.numeric import nonzero_rc, otsu_threshold, sample_points
+from scanmass.segment.contours import level_rings
 
 __all__ = ["PartRings", "Segmentation", "segment"]
 
@@ -613,7 +613,7 @@ def _refine_part(
         roi_mask = np.zeros(norm.shape, np.uint8)
         cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px) - [c0 - 1, r0 - 1]).astype(np.int32)], 1)
         norm[~roi_mask.astype(bool)] = 0.0
-    rings = find_contours(norm, contour_level, fully_connected="high")
+    rings = level_rings(norm, contour_level)  # find_contours(norm, level, fully_connected="high")
     closed = []
     for ring in rings:
         if len(ring) < 4 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
