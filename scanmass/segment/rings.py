@@ -329,9 +329,10 @@ def segment(
         t_full = cv2.resize(t_enc, (width, height), interpolation=cv2.INTER_LINEAR) if factor > 1 else t_enc
         # the mask overwrites the full-size threshold plane (element-wise: safe in place): one
         # full-size uint8 plane fewer at the peak
+        # 255 for part pixels, 0 elsewhere: findContours takes any non-zero pixel as 1 (no pass
+        # over the full-size plane to make it 1)
         mask = cv2.compare(grey, t_full, cv2.CMP_LT if bright_background else cv2.CMP_GT, dst=t_full)
         del t_full
-        np.minimum(mask, 1, out=mask)
     else:
         t_fixed = np.full((1, 1), int(round(threshold * full_scale)), dtype=grey.dtype)
         mask = ((grey < t_fixed) if bright_background else (grey > t_fixed)).view(np.uint8)
