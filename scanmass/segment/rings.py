@@ -198,17 +198,17 @@ def pixel_noise(image: LoadedImage, roi_px: np.ndarray | None = None) -> float:
     if width < 2:
         return 0.0
     step = max(1, int(math.sqrt(height * (width - 1) / _NOISE_PAIRS)))
-    rows = np.arange(0, height, step)
-    cols = np.arange(0, width - 1, step)
-    rr, cc = np.meshgrid(rows, cols, indexing="ij")
+    # the pairs (row, col), (row, col + 1) on a regular grid of rows and columns, as views
+    left, right = (slice(0, height, step), slice(0, width - 1, step)), (slice(0, height, step), slice(1, width, step))
+    codes_l, codes_r = grey[left], grey[right]
     if roi_px is not None:
         inside = np.zeros((height, width), np.uint8)
         cv2.fillPoly(inside, [np.round(np.asarray(roi_px)).astype(np.int32)], 1)
-        keep = inside[rr, cc].astype(bool) & inside[rr, cc + 1].astype(bool)
-        rr, cc = rr[keep], cc[keep]
-    if rr.size < 16:
+        keep = inside[left].astype(bool) & inside[right].astype(bool)
+        codes_l, codes_r = codes_l[keep], codes_r[keep]
+    if codes_l.size < 16:
         return 0.0
-    diff = np.abs(lut[grey[rr, cc + 1]].astype(np.float64) - lut[grey[rr, cc]].astype(np.float64))
+    diff = np.abs(lut[codes_r].astype(np.float64) - lut[codes_l].astype(np.float64))
     mad = 1.4826 * float(np.median(diff))
     # noise below one grey level leaves most differences at 0: then the RMS of the
     # differences without the largest 1 % (edges) takes over
