@@ -504,6 +504,24 @@ def _lost_wall(
     return lost_wall_band(colour_lin, foot - np.asarray(origin, float), normal, np.where(facing, size, 0.0))
 
 
+def _lies_within(part: Part, outline_mm: np.ndarray, by_outline: bool = True) -> bool:
+    """Whether a part found again lies within an outline found before (mm, float32).
+
+    Its centroid inside says so, but a bent part's centroid (an L bracket's, near the inner
+    corner) can lie outside its own material: then nine in ten of its outline's points inside
+    (or within 0.5 mm of) the old outline do, where ``by_outline``.
+    """
+    if cv2.pointPolygonTest(outline_mm, (float(part.centroid_mm[0]), float(part.centroid_mm[1])), False) >= 0:
+        return True
+    if not by_outline or part.outline_mm is None:
+        return False
+    pts = np.asarray(part.outline_mm, float).reshape(-1, 2)
+    if len(pts) == 0:
+        return False
+    near = [cv2.pointPolygonTest(outline_mm, (float(x), float(y)), True) >= -0.5 for x, y in pts]
+    return float(np.mean(near)) >= 0.9
+
+
 def _cut_cast_shadows(
     image: LoadedImage,
     masked: LoadedImage,
@@ -608,11 +626,8 @@ def _cut_cast_shadows(
     for old, edge_mm, cut_mm2, wall_mm2 in cuts:
         assert old.outline_mm is not None  # _part_crop gave a crop
         outline = np.asarray(old.outline_mm, np.float32)
-        within = [
-            k
-            for k, q in enumerate(again.parts)
-            if cv2.pointPolygonTest(outline, (float(q.centroid_mm[0]), float(q.centroid_mm[1])), False) >= 0
-        ]
+        # a bent part's centroid can lie outside its material: a cut part is also found by its outline
+        within = [k for k, q in enumerate(again.parts) if _lies_within(q, outline, by_outline=edge_mm > 0)]
         faces = [k for k in within if again.parts[k].area_mm2 >= 0.3 * (old.area_mm2 - cut_mm2)]
         if not faces:
             return result, [], set()  # the face was not found again: keep the measurement as it was
