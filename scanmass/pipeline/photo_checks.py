@@ -27,7 +27,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
-from scanmass.segment.castshadow import hidden_shadow, shadow_cut
+from scanmass.segment.castshadow import dark_tinted_face, hidden_shadow, shadow_cut
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
     SHADOW_MIN_ELEVATION_DEG,
@@ -586,6 +586,15 @@ def _cut_cast_shadows(
                 wall_mm2 = float(np.count_nonzero(wall.band & ~mask)) * mm_per_px**2
         risk = shadow_risk(colour_lin, mask, band_px)
         cut = None
+        if risk is not None and dark_tinted_face(colour_lin, mask, risk.paper_rgb, band_px):
+            # a dark plastic face: its shadow is cut on the outline where the photo shows it (a
+            # thick part's top edge lies its parallax beyond the footprint the plane map gives)
+            as_seen = _part_crop(image, scale, part, int(band_px) + 16, as_seen=True)
+            if as_seen is not None:
+                (x0, y0, x1, y1), mask, _ = as_seen
+                colour_lin = lut[colour[y0:y1, x0:x1]]
+                window = grey[y0:y1, x0:x1]
+                risk = shadow_risk(colour_lin, mask, band_px)
         if risk is not None and risk.fraction >= SHADOW_FRACTION and not looks_like_shadow_only(risk):
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))

@@ -42,6 +42,7 @@ __all__ = [
     "HiddenShadow",
     "hidden_shadow",
     "STRETCH_PX",
+    "dark_tinted_face",
 ]
 
 #: Smallest ratio of the shadow's roughness (median over the candidate layer) to the face's
@@ -391,6 +392,31 @@ def _sweep_depth(
             best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
             return best_unit, best_depth, face_sure
     return None
+
+
+def dark_tinted_face(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float) -> bool:
+    """Whether a region's face (deeper than ``reach_px``) is dark and tinted as a dark plastic's (:func:`_is_dark`).
+
+    Examples
+    --------
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (60, 60, 1))
+    >>> mask = np.zeros((60, 60), bool); mask[10:50, 10:50] = True
+    >>> img[mask] = 0.03 * paper * np.array([1.15, 1.0, 1.0])  # redder than the paper
+    >>> dark_tinted_face(img, mask, paper, 5.0)
+    True
+    >>> img[mask] = 0.03 * paper  # neutral: a metal's or the shadow's colour
+    >>> dark_tinted_face(img, mask, paper, 5.0)
+    False
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return False
+    q = (colour_lin / np.asarray(paper_rgb)).astype(np.float32)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return False
+    return _is_dark(cv2.GaussianBlur(q, (0, 0), 1.5), interior)
 
 
 def _is_dark(smooth: np.ndarray, interior: np.ndarray) -> bool:
