@@ -20,6 +20,11 @@ little, while noise and grain stand out (common practice: median filters keep ed
 impulse noise). On a dark face 8-bit coding is rough by itself; one code step at the face's
 level is the floor below which nothing is taken as grain.
 
+On a dark tinted face (black plastic: :func:`dark_tinted_face`) JPEG ringing near the outline is
+as rough as a shadow's grain; there pixels at the face's level and colour are never shadow, the
+sweep is chosen by votes over all directions (:func:`_dark_sweep`), and the dark walls and
+bottoms of its through-holes are found to be opened (:func:`hole_bottoms`).
+
 The pipeline paints the cut pixels with the paper's level and measures the image again, so the
 outline lands on the step between the face and the shadow; where nothing is cut, the warning
 and the term of :mod:`scanmass.segment.shadow`'s check stay.
