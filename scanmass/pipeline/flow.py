@@ -356,6 +356,7 @@ def measure_image(
                 min_hole_area_px=None if options.min_hole_area_mm2 is None else options.min_hole_area_mm2 / px_area_mm2,
                 keep_cut=options.keep_cut,
                 roi_px=roi_px,
+                paper_at_edge=roi_px is not None,  # photos: a soft contact shadow beside dark parts
             )
         except SegmentationError as exc:
             largest = getattr(exc, "largest_area_px", None)

@@ -25,6 +25,7 @@ from scanmass.errors import OptionError, PartCutError, SegmentationError
 from scanmass.geometry import point_in_ring, signed_area
 from scanmass.load.decode import LoadedImage
 from scanmass.numeric import nonzero_rc, otsu_threshold, sample_points
+from scanmass.segment.contact import depth_field, edge_shadow_depth, part_side_rise, renormalise
 from scanmass.segment.contours import level_rings
 
 __all__ = ["PartRings", "Segmentation", "segment"]
@@ -226,6 +227,7 @@ def segment(
     min_hole_area_px: float | None = None,
     keep_cut: bool = False,
     roi_px: np.ndarray | None = None,
+    paper_at_edge: bool = False,
 ) -> Segmentation:
     """Separate parts from the background with sub-pixel boundaries.
 
@@ -248,6 +250,10 @@ def segment(
         Keep parts that touch the image edge (or the edge of ``roi_px``).
     roi_px : (N, 2) ndarray, optional
         Polygon (x_px, y_px) outside which nothing is a part (e.g. a mat's clear area).
+    paper_at_edge : bool
+        Photos: where a soft contact shadow darkens the paper beside a dark part, take the
+        edge half-way between the part and the paper's level at the edge
+        (:mod:`scanmass.segment.contact`) instead of the level further out.
 
     Returns
     -------
@@ -411,6 +417,7 @@ def segment(
             min_hole_px=min_hole,
             roi_px=roi_px,
             ratio_hint=ratio,
+            paper_at_edge=paper_at_edge,
         )
         if part is None:
             label -= 1
@@ -510,7 +517,20 @@ def _sample(mask: np.ndarray, limit: int = _MAX_FIT_SAMPLES) -> tuple[np.ndarray
 
 
 def _refine_part(
-    image, cnt, holes, bbox, is_cut, label, *, level, threshold, bright_background, min_hole_px, roi_px, ratio_hint
+    image,
+    cnt,
+    holes,
+    bbox,
+    is_cut,
+    label,
+    *,
+    level,
+    threshold,
+    bright_background,
+    min_hole_px,
+    roi_px,
+    ratio_hint,
+    paper_at_edge=False,
 ):
     """Sub-pixel rings of one part from a padded crop around it.
 
@@ -574,9 +594,11 @@ def _refine_part(
                 lut[grey_crop[rf, cf]].astype(np.float64), rf.astype(float), cf.astype(float), scale, 2
             )
             fg_band = _eval_points(coef_f, ord_f, band_rows, band_cols, scale)
+            fg_surface: tuple[np.ndarray, int] | float = (coef_f, ord_f)
         else:  # thin part: no clean interior; take the part level relative to the background
             fg_band = bg_band * ratio_hint
             sig_f, n_f = sig_b, 1
+            fg_surface = ratio_hint
         contrast_band = fg_band - bg_band
         contrast = float(np.median(contrast_band))
         if abs(contrast) < 1e-4:
@@ -614,12 +636,16 @@ def _refine_part(
         roi_mask = np.zeros(norm.shape, np.uint8)
         cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px) - [c0 - 1, r0 - 1]).astype(np.int32)], 1)
         norm[~roi_mask.astype(bool)] = 0.0
-    rings = level_rings(norm, contour_level)  # find_contours(norm, level, fully_connected="high")
+    refined = _level_refined(norm, contour_level)
+    contact_move_px = 0.0
+    if paper_at_edge and threshold is None and bright_background and refined:
+        unit = _unit_crop(lut[grey_crop].astype(np.float32), coef_b, ord_b, fg_surface, scale)
+        moved = _contact_shadow_levels(norm, (band_rows + 1, band_cols + 1), unit, refined, contour_level)
+        if moved is not refined:
+            contact_move_px = _mean_move_px(refined, moved)
+            refined = moved
     closed = []
-    for ring in rings:
-        if len(ring) < 4 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
-            continue
-        ring, grad, slope = _refine_vertices(norm, ring[:-1], contour_level)
+    for ring, grad, slope in refined:
         xy = np.column_stack([ring[:, 1] + c0 - 1, ring[:, 0] + r0 - 1])
         closed.append((xy, signed_area(xy), grad, slope))
     if not closed:
@@ -648,6 +674,10 @@ def _refine_part(
     blur_px = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
     if threshold is None:
         level_rel_u = math.hypot(level_rel_u, _tail_share(depth_px, blur_px, thin=depth_px < 4.0))
+    if contact_move_px > 0:
+        # the contact shadow's levels are an extrapolation: half their move is taken as the
+        # doubt of a shared offset, stated as the level error that moves the edge as far
+        level_rel_u = math.hypot(level_rel_u, 2.0 * CONTACT_DOUBT * contact_move_px / (math.sqrt(2 * math.pi) * blur_px))
     if threshold is None and abs(level - 0.5) < 1e-9:
         outer = correct_curvature(outer, blur_px)
         holes_px = [correct_curvature(h, blur_px) for h in holes_px]
@@ -668,6 +698,94 @@ def _refine_part(
         filled_holes=filled,
         filled_hole_area_px=filled_area,
     )
+
+
+def _level_refined(norm: np.ndarray, level: float) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """The closed level rings of ``norm``, refined (:func:`_refine_vertices`): (ring_rc, gradient, rise) each."""
+    out = []
+    for ring in level_rings(norm, level):  # find_contours(norm, level, fully_connected="high")
+        if len(ring) < 4 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
+            continue
+        out.append(_refine_vertices(norm, ring[:-1], level))
+    return out
+
+
+def _unit_crop(
+    lin: np.ndarray, coef_b: np.ndarray, ord_b: int, fg_surface: tuple[np.ndarray, int] | float, scale: float
+) -> np.ndarray:
+    """The whole crop normalised between its fitted levels (0 = background, 1 = part), with the 1 px frame of ``norm``."""
+    rows, cols = np.indices(lin.shape)
+    rows, cols = rows.ravel(), cols.ravel()
+    bg = _eval_points(coef_b, ord_b, rows, cols, scale)
+    fg = bg * fg_surface if isinstance(fg_surface, float) else _eval_points(*fg_surface, rows, cols, scale)
+    contrast = fg - bg
+    median = float(np.median(contrast))
+    contrast = np.where(np.abs(contrast) < 0.2 * abs(median), 0.2 * median, contrast)
+    unit = np.zeros((lin.shape[0] + 2, lin.shape[1] + 2), np.float32)
+    unit[1:-1, 1:-1] = ((lin.ravel() - bg) / contrast).reshape(lin.shape)
+    return unit
+
+
+#: Share of a part's outline that a contact shadow must border: the paper at the foot of a
+#: raised part is darkened on every side under soft light (weakest where the camera looks
+#: over the top edge: 74-100 % of the outline on the soft-light renders), a directional
+#: light's shadow lies on one side (6-47 % of the outline on the spot and window renders,
+#: whose shadows :mod:`scanmass.segment.castshadow` handles).
+CONTACT_ALL_ROUND = 0.6
+#: Share of the contact shadow's move of the edge taken as its 1-sigma doubt: a straight
+#: line through the paper's profile instead of the parabola moves the edges of the
+#: soft-light renders 30-60 % less (tests/data/reallight).
+CONTACT_DOUBT = 0.5
+#: Contourings with the contact shadow's levels (:mod:`scanmass.segment.contact`): each
+#: reads the shadow from the edge the one before found.
+_CONTACT_PASSES = 2
+
+
+def _contact_shadow_levels(
+    norm: np.ndarray,
+    band_rc: tuple[np.ndarray, np.ndarray],
+    unit: np.ndarray,
+    refined: list[tuple[np.ndarray, np.ndarray, np.ndarray]],
+    level: float,
+) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """The rings contoured again where a soft contact shadow darkens the paper at the edge.
+
+    Unchanged where no boundary point has one (:func:`~scanmass.segment.contact.edge_shadow_depth`).
+    """
+    band = np.zeros(norm.shape, bool)
+    band[band_rc] = True
+    for _ in range(_CONTACT_PASSES):
+        blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate([r[2] for r in refined])))))
+        depths = [edge_shadow_depth(unit, ring, blur) for ring, _, _ in refined]
+        outer = int(np.argmax([abs(signed_area(ring)) for ring, _, _ in refined]))
+        if np.mean(depths[outer] > 0) < CONTACT_ALL_ROUND:
+            break  # a one-sided (cast) shadow, or none: the levels further out stay
+        field = depth_field(norm.shape, [ring for ring, _, _ in refined], depths)
+        again = renormalise(norm, band, field)
+        found = _level_refined(again, level)
+        if not found:
+            break
+        # the gradients as the image has them (the renormalised crop is steeper by 1 / (1 - s)),
+        # the rise from the part's side alone (the blur)
+        refined = []
+        for ring, grad, _ in found:
+            idx = np.clip(np.rint(ring).astype(np.int64), 0, np.array(norm.shape) - 1)
+            share = 1.0 - field[idx[:, 0], idx[:, 1]]
+            refined.append((ring, grad * share, part_side_rise(again, ring, level)))
+    return refined
+
+
+def _mean_move_px(before: list, after: list) -> float:
+    """How far the rings moved, on average along their length: the change of the net area over the perimeter (px)."""
+
+    def net(rings: list) -> tuple[float, float]:
+        area = sum(signed_area(r[:, ::-1]) for r, _, _ in rings)
+        length = sum(float(np.hypot(*(np.roll(r, -1, axis=0) - r).T).sum()) for r, _, _ in rings)
+        return area, length
+
+    a0, length = net(before)
+    a1, _ = net(after)
+    return abs(a1 - a0) / max(length, 1.0)
 
 
 def _eval_points(coef: np.ndarray, order: int, rows: np.ndarray, cols: np.ndarray, scale: float) -> np.ndarray:

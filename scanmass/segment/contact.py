@@ -1,0 +1,190 @@
+"""The paper's level at a dark part's edge where a soft contact shadow darkens it (photos).
+
+Under soft light a raised part hides part of the sky from the paper at its foot: the paper
+is darkest next to the wall and fades back to its full level over a few pixels, keeping its
+chroma (ambient occlusion). The part's edge itself is a sharp step. The midpoint rule with
+the paper's level taken further out (:func:`scanmass.segment.rings.segment`, 5-9 px beyond
+the edge) then puts the edge where the blurred step meets the darkened paper's half-way
+value, outside the true edge: by 0.3-0.8 px on the path-traced black parts in soft light
+(tests/data/reallight), 3-5 % of their area.
+
+:func:`edge_shadow_depth` reads the paper's profile along each boundary point's outward
+normal, 2-5 px beyond the edge (where the edge's own blur tail is taken out), averages it
+along the ring, and extrapolates its straight-line trend back to half a pixel from the
+edge: the darkening there, as a share ``s`` of the part's contrast. Where the paper fades
+back out (a contact shadow, not a flat cast shadow) and ``s`` is at least
+:data:`MIN_DEPTH`, the edge's level is taken half-way between the part and that darkened
+paper: ``(1 + s) / 2`` in the normalised image (0 = paper further out, 1 = part), which
+:func:`renormalise` turns back into a 0.5 level pixel by pixel. Without such a shadow
+(flat paper: scans, the synthetic photos) nothing changes.
+"""
+
+from __future__ import annotations
+
+import math
+
+import cv2
+import numpy as np
+
+from scanmass.numeric import sample_points
+
+__all__ = ["MIN_DEPTH", "MAX_DEPTH", "edge_shadow_depth", "renormalise", "depth_field", "part_side_rise"]
+
+#: The least darkening at the edge (share of the contrast) that is taken as a contact
+#: shadow: it moves the level by 0.015 (0.02-0.03 px under a 1 px blur).
+MIN_DEPTH = 0.03
+#: The most: beyond it the paper beside the edge is as dark as a part (a cast shadow's
+#: core), which :mod:`scanmass.segment.castshadow` handles.
+MAX_DEPTH = 0.6
+#: The paper's profile is sampled this far out (px, from the first sample), in steps of
+#: half a pixel.
+PROFILE_SPAN_PX = 3.5
+#: Where the trend is read: half a pixel beyond the edge (the blurred step's half beyond
+#: the edge averages the paper over about 0.8 blur sigma).
+EDGE_READ_PX = 0.5
+#: Arc length (px, 1 sigma) over which the profiles are averaged along the ring.
+ALONG_PX = 3.0
+#: Share of its depth that a contact shadow must fade over the sampled span (a cast
+#: shadow's flat core does not).
+MIN_FADE = 0.4
+
+
+#: The rise of a step blurred by 0.4 px (sigma) from its edge to 1 px inside: a wall darker
+#: than the face beside the edge (a black part's side wall) rises further, which no blur does.
+_SHARPEST_RISE = 0.5 * math.erf(1.0 / (0.4 * math.sqrt(2.0)))
+
+
+def _gauss_tail(z: np.ndarray) -> np.ndarray:
+    return 0.5 * np.vectorize(math.erfc)(z / math.sqrt(2.0))
+
+
+def _ring_normals(ring_rc: np.ndarray) -> np.ndarray:
+    """Unit normals (row, col) of a closed ring by central differences two vertices apart."""
+    tangent = np.roll(ring_rc, -2, axis=0) - np.roll(ring_rc, 2, axis=0)
+    length = np.hypot(tangent[:, 0], tangent[:, 1])
+    length[length == 0] = 1.0
+    return np.column_stack([-tangent[:, 1], tangent[:, 0]]) / length[:, None]
+
+
+def _smooth_along(values: np.ndarray, weights: np.ndarray, ring_rc: np.ndarray, sigma_px: float) -> np.ndarray:
+    """Weighted Gaussian average of per-vertex rows along a closed ring (arc length sigma_px)."""
+    n = len(ring_rc)
+    step = np.hypot(*(np.roll(ring_rc, -1, axis=0) - ring_rc).T)
+    spacing = float(step.mean()) or 1.0
+    width = sigma_px / spacing
+    half = int(min(n // 2 - 1, math.ceil(3 * width)))
+    if half < 1:
+        return np.where(weights > 0, values, np.nan)
+    k = np.exp(-0.5 * (np.arange(-half, half + 1) / width) ** 2)
+    out = np.empty_like(values)
+    for j in range(values.shape[1]):
+        wv = np.concatenate([(weights * values)[-half:, j], (weights * values)[:, j], (weights * values)[:half, j]])
+        w = np.concatenate([weights[-half:, j], weights[:, j], weights[:half, j]])
+        num = np.convolve(wv, k, mode="valid")
+        den = np.convolve(w, k, mode="valid")
+        out[:, j] = np.where(den > 0.5, num / np.maximum(den, 1e-12), np.nan)
+    return out
+
+
+def _outward(unit: np.ndarray, ring_rc: np.ndarray) -> np.ndarray:
+    """Unit normals of a ring pointing away from the part: to where ``unit`` is lower, by the ring's majority."""
+    normal = _ring_normals(ring_rc)
+    probe = sample_points(unit, *(ring_rc + normal)[:, ::-1].T, cv2.INTER_LINEAR) - sample_points(
+        unit, *(ring_rc - normal)[:, ::-1].T, cv2.INTER_LINEAR
+    )
+    return -normal if np.median(probe) > 0 else normal
+
+
+def part_side_rise(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> np.ndarray:
+    """The rise of ``norm`` from each boundary point to 1 px inside the part (for the blur).
+
+    Beside a contact shadow the paper's side of the step is no flat level, so the rise
+    across the edge misstates the blur; the part's side alone rises by ``erf(1 / (sigma
+    sqrt 2)) / 2`` for a Gaussian blur of sigma, as half the rise across a clean edge does.
+    """
+    if len(ring_rc) < 8:
+        return np.full(len(ring_rc), _SHARPEST_RISE)
+    inward = -_outward(norm, ring_rc)
+    rise = sample_points(norm, *(ring_rc + inward)[:, ::-1].T, cv2.INTER_CUBIC).astype(np.float64) - level
+    return np.minimum(rise, _SHARPEST_RISE)
+
+
+def edge_shadow_depth(unit: np.ndarray, ring_rc: np.ndarray, blur_px: float) -> np.ndarray:
+    """Per boundary point, the contact shadow's darkening of the paper at the edge (share of the contrast).
+
+    Parameters
+    ----------
+    unit : (H, W) float32 ndarray
+        The crop normalised with the paper's level further out (0) and the part's (1).
+    ring_rc : (N, 2) ndarray
+        A closed ring (row, col) in ``unit``'s pixels, at the current edge.
+    blur_px : float
+        The edge's blur (Gaussian sigma, px): the first sample lies at ``max(2, 2 blur)``
+        px and the step's own tail ``Q(x / blur)`` is taken out of every sample.
+
+    Returns
+    -------
+    (N,) ndarray
+        ``s`` in [0, :data:`MAX_DEPTH`] where a fading contact shadow of at least
+        :data:`MIN_DEPTH` lies beside the point, else 0.
+    """
+    n = len(ring_rc)
+    if n < 8:
+        return np.zeros(n)
+    normal = _outward(unit, ring_rc)
+    sigma = min(max(float(blur_px), 0.3), 2.0) if math.isfinite(blur_px) else 1.0
+    start = max(1.5, 2.0 * sigma)
+    xs = start + np.arange(0.0, PROFILE_SPAN_PX + 1e-9, 0.5)
+    pts = ring_rc[:, None, :] + xs[None, :, None] * normal[:, None, :]
+    u = sample_points(unit, pts[..., 1], pts[..., 0], cv2.INTER_LINEAR).astype(np.float64)
+    tail = _gauss_tail(xs / sigma)[None, :]
+    depth = (u - tail) / (1.0 - tail)
+    ok = np.isfinite(depth) & (u < 0.5)  # a sample on a part (a narrow hole's far side) is no paper
+    depth = np.where(ok, depth, 0.0)
+    mean = _smooth_along(depth, ok.astype(np.float64), ring_rc, ALONG_PX)
+    good = np.all(np.isfinite(mean), axis=1)
+    out = np.zeros(n)
+    if not good.any():
+        return out
+    # the trend of each point's averaged profile (a parabola: a contact shadow deepens ever
+    # faster towards the wall), read half a pixel from the edge, at most twice the first sample
+    prof = mean[good]
+    design = np.vander(xs - xs[0], 3)
+    coef = np.linalg.lstsq(design, prof.T, rcond=None)[0]
+    at_edge = np.vander(np.array([EDGE_READ_PX - xs[0]]), 3) @ coef
+    at_edge = np.minimum(at_edge[0], 2.0 * prof[:, 0])
+    fade = prof[:, 0] - prof[:, -1]
+    take = (at_edge >= MIN_DEPTH) & (prof[:, 0] > 0) & (fade >= MIN_FADE * prof[:, 0])
+    out[np.flatnonzero(good)[take]] = np.minimum(at_edge[take], MAX_DEPTH)
+    return out
+
+
+def depth_field(shape: tuple[int, int], rings_rc: list[np.ndarray], depths: list[np.ndarray]) -> np.ndarray:
+    """Each pixel's depth from the nearest boundary point (float32, ``shape``)."""
+    seeds = np.ones(shape, np.uint8)
+    values = [0.0]
+    label_img = np.zeros(shape, np.int32)
+    for ring, depth in zip(rings_rc, depths):
+        idx = np.clip(np.rint(ring).astype(np.int64), 0, np.array(shape) - 1)
+        seeds[idx[:, 0], idx[:, 1]] = 0
+        label_img[idx[:, 0], idx[:, 1]] = np.arange(len(values), len(values) + len(ring))
+        values.extend(np.asarray(depth, float).tolist())
+    if seeds.all():
+        return np.zeros(shape, np.float32)
+    _, labels = cv2.distanceTransformWithLabels(seeds, cv2.DIST_L2, 3, labelType=cv2.DIST_LABEL_PIXEL)
+    # labels number the zero pixels in scan order: map them to the boundary points they hold
+    zero_r, zero_c = np.nonzero(seeds == 0)
+    lut = np.zeros(len(zero_r) + 1, np.float32)
+    lut[1:] = np.asarray(values, np.float32)[label_img[zero_r, zero_c]]
+    return lut[labels]
+
+
+def renormalise(norm: np.ndarray, band: np.ndarray, depth: np.ndarray) -> np.ndarray:
+    """The normalised crop with each band pixel's paper level moved to its contact shadow's depth.
+
+    ``(v - s) / (1 - s)``: the 0.5 level of the result is the ``(1 + s) / 2`` level of ``norm``.
+    """
+    out = norm.copy()
+    s = depth[band]
+    out[band] = (norm[band] - s) / (1.0 - s)
+    return out
