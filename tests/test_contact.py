@@ -127,7 +127,9 @@ def test_shadow_depth_reads_an_exponential_profile():
     x = np.repeat(cols, size, axis=0)
     unit = np.where(x < 0, 1.0, 0.3 * np.exp(-np.maximum(x, 0.0) / 1.5)).astype(np.float32)
     ring = np.array([[r, 40.0] for r in np.arange(10.0, 70.0, 0.5)] + [[70.0, c] for c in np.arange(40.0, 60.0, 0.5)])
-    ring = np.vstack([ring, [[r, 60.0] for r in np.arange(70.0, 10.0, -0.5)], [[10.0, c] for c in np.arange(60.0, 40.0, -0.5)]])
+    ring = np.vstack(
+        [ring, [[r, 60.0] for r in np.arange(70.0, 10.0, -0.5)], [[10.0, c] for c in np.arange(60.0, 40.0, -0.5)]]
+    )
     depth = edge_shadow_depth(unit, ring[:, :], blur_px=0.3)
     straight = (ring[:, 1] == 40.0) & (ring[:, 0] > 20) & (ring[:, 0] < 60)
     true = 0.3 * math.exp(-0.5 / 1.5)  # the profile drawn

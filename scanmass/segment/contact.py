@@ -89,8 +89,9 @@ def _smooth_along(values: np.ndarray, weights: np.ndarray, ring_rc: np.ndarray, 
 def _outward(unit: np.ndarray, ring_rc: np.ndarray) -> np.ndarray:
     """Unit normals of a ring pointing away from the part: to where ``unit`` is lower, by the ring's majority."""
     normal = _ring_normals(ring_rc)
-    probe = sample_points(unit, *(ring_rc + normal)[:, ::-1].T, cv2.INTER_LINEAR) - sample_points(
-        unit, *(ring_rc - normal)[:, ::-1].T, cv2.INTER_LINEAR
+    ahead, behind = ring_rc + normal, ring_rc - normal
+    probe = sample_points(unit, ahead[:, 1], ahead[:, 0], cv2.INTER_LINEAR) - sample_points(
+        unit, behind[:, 1], behind[:, 0], cv2.INTER_LINEAR
     )
     return -normal if np.median(probe) > 0 else normal
 
@@ -105,7 +106,8 @@ def part_side_rise(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> np.nd
     if len(ring_rc) < 8:
         return np.full(len(ring_rc), _SHARPEST_RISE)
     inward = -_outward(norm, ring_rc)
-    rise = sample_points(norm, *(ring_rc + inward)[:, ::-1].T, cv2.INTER_CUBIC).astype(np.float64) - level
+    inside = ring_rc + inward
+    rise = sample_points(norm, inside[:, 1], inside[:, 0], cv2.INTER_CUBIC).astype(np.float64) - level
     return np.minimum(rise, _SHARPEST_RISE)
 
 

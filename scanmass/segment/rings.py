@@ -677,7 +677,9 @@ def _refine_part(
     if contact_move_px > 0:
         # the contact shadow's levels are an extrapolation: half their move is taken as the
         # doubt of a shared offset, stated as the level error that moves the edge as far
-        level_rel_u = math.hypot(level_rel_u, 2.0 * CONTACT_DOUBT * contact_move_px / (math.sqrt(2 * math.pi) * blur_px))
+        level_rel_u = math.hypot(
+            level_rel_u, 2.0 * CONTACT_DOUBT * contact_move_px / (math.sqrt(2 * math.pi) * blur_px)
+        )
     if threshold is None and abs(level - 0.5) < 1e-9:
         outer = correct_curvature(outer, blur_px)
         holes_px = [correct_curvature(h, blur_px) for h in holes_px]
@@ -714,16 +716,27 @@ def _unit_crop(
     lin: np.ndarray, coef_b: np.ndarray, ord_b: int, fg_surface: tuple[np.ndarray, int] | float, scale: float
 ) -> np.ndarray:
     """The whole crop normalised between its fitted levels (0 = background, 1 = part), with the 1 px frame of ``norm``."""
-    rows, cols = np.indices(lin.shape)
-    rows, cols = rows.ravel(), cols.ravel()
-    bg = _eval_points(coef_b, ord_b, rows, cols, scale)
-    fg = bg * fg_surface if isinstance(fg_surface, float) else _eval_points(*fg_surface, rows, cols, scale)
+    bg = _eval_grid(coef_b, ord_b, lin.shape, scale)
+    fg = bg * np.float32(fg_surface) if isinstance(fg_surface, float) else _eval_grid(*fg_surface, lin.shape, scale)
     contrast = fg - bg
     median = float(np.median(contrast))
-    contrast = np.where(np.abs(contrast) < 0.2 * abs(median), 0.2 * median, contrast)
+    contrast = np.where(np.abs(contrast) < 0.2 * abs(median), np.float32(0.2 * median), contrast)
     unit = np.zeros((lin.shape[0] + 2, lin.shape[1] + 2), np.float32)
-    unit[1:-1, 1:-1] = ((lin.ravel() - bg) / contrast).reshape(lin.shape)
+    unit[1:-1, 1:-1] = (lin - bg) / contrast
     return unit
+
+
+def _eval_grid(coef: np.ndarray, order: int, shape: tuple[int, ...], scale: float) -> np.ndarray:
+    """:func:`_eval_points` on every pixel of a crop (float32, by broadcasting: no design matrix)."""
+    x = (np.arange(shape[1], dtype=np.float32) / np.float32(scale))[None, :]
+    y = (np.arange(shape[0], dtype=np.float32) / np.float32(scale))[:, None]
+    c = np.asarray(coef, np.float32)
+    out = np.full(shape, c[0], np.float32)
+    if order >= 1:
+        out += c[1] * x + c[2] * y
+    if order >= 2:
+        out += c[3] * x * x + c[4] * x * y + c[5] * y * y
+    return out
 
 
 #: Share of a part's outline that a contact shadow must border: the paper at the foot of a
