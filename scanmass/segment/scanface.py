@@ -33,7 +33,7 @@ from scanmass.geometry import signed_area, vertex_normals
 from scanmass.numeric import nonzero_rc
 from scanmass.segment.distance import exact_distance
 
-__all__ = ["FaceResult", "scan_face", "SOFT_RATIO"]
+__all__ = ["FaceResult", "scan_face", "deep_holes", "SOFT_RATIO"]
 
 #: An outline vertex whose edge gradient is below this share of the outline's sharp edges
 #: (its 80th percentile) lies on a soft edge (a shadow's outer end, or a part out of focus).
@@ -83,6 +83,28 @@ SWEEP_HULL_GAIN = 0.1
 #: Width (px) of the Gaussian that carries the face's level (a metal's sheen varies slowly).
 SWEEP_LEVEL_SIGMA_PX = 8.0
 
+#: A shadow whose front is as sharp as the face's edges (no soft stretch on the outline) is found by its
+#: geometry: a sharp step inside the outline, the same length behind at least this share of its front.
+HARD_FRONT_COVERAGE = 0.8
+
+#: ... a step whose gradient (linear light per px, the image smoothed by 1 px) stands this many noise
+#: sigmas (of the gradient inside the outline) above the noise, ...
+HARD_FRONT_NOISE = 8.0
+
+#: ... and at least this share of the lid-to-part contrast (a step of that height blurred by about 1 px).
+HARD_FRONT_STEP = 0.01
+
+#: A deep hole's floor, as dark as the face, is told from it by its grain: a compact patch inside the face
+#: whose local variance stands this many times above the face's (median) own.
+GRAIN_RATIO = 10.0
+
+#: Width (px) of the Gaussian over which the grain (the squared high-pass of the image) is averaged.
+GRAIN_SIGMA_PX = 2.0
+
+#: Least compactness of such a patch: its area over that of the circle as wide as its box's longer side
+#: (a drilled or punched hole is round; a streak of grain is not).
+GRAIN_COMPACT = 0.5
+
 
 @dataclass
 class FaceResult:
@@ -114,6 +136,8 @@ class FaceResult:
     #: the rings were placed against local levels that the image's two levels do not describe (a face as
     #: dark as its shadow, holes with lit and shadowed floors): thin-wall steps must leave them alone
     local_levels: bool = False
+    #: how many of ``holes_px`` (the last ones) were found by their floor's grain (:func:`deep_holes`)
+    grain_holes: int = 0
 
 
 @dataclass
@@ -204,8 +228,9 @@ def scan_face(
     soft = grad < SOFT_RATIO * sharp_ref
     lengths = _ring_lengths(outer)
     soft_len = float(lengths[soft].sum())
-    if soft_len < MIN_SOFT_SHARE * float(lengths.sum()):
-        return None
+    # no soft stretch: the shadow, if any, has a front as sharp as the face's edges (a small lamp, a
+    # low lid): it is looked for by its geometry once the levels are known
+    hard = soft_len < MIN_SOFT_SHARE * float(lengths.sum())
     origin = np.asarray(origin_px, float)
     shape = linear.shape
     kernel = np.ones((3, 3), np.uint8)
@@ -226,12 +251,23 @@ def scan_face(
         return None
     # the shadow's level: inside the found outline, next to its soft stretch
     normals = _outward_normals(outer)
-    # a flatbed's lamp lies beside the sensor line and lights along the carriage's travel: the
-    # shadow falls along the image's rows or columns; the soft stretch's mean normal picks which
-    mean_normal = (lengths[soft, None] * normals[soft]).sum(axis=0)
-    axis = int(np.argmax(np.abs(mean_normal)))
-    direction = np.zeros(2)
-    direction[axis] = math.copysign(1.0, float(mean_normal[axis]))
+    if hard:
+        sweep = _hard_front(linear, filled, found, lid - part)
+        if sweep is None:
+            return None
+        direction, length_px = sweep
+        # the shadow's outline (its front and sides) takes the soft stretch's place: the outline off the face
+        soft = _off_face(outer - origin, found, direction, length_px)
+        soft_len = float(lengths[soft].sum())
+        if soft_len < MIN_SOFT_SHARE * float(lengths.sum()):
+            return None
+    else:
+        # a flatbed's lamp lies beside the sensor line and lights along the carriage's travel: the
+        # shadow falls along the image's rows or columns; the soft stretch's mean normal picks which
+        mean_normal = (lengths[soft, None] * normals[soft]).sum(axis=0)
+        axis = int(np.argmax(np.abs(mean_normal)))
+        direction = np.zeros(2)
+        direction[axis] = math.copysign(1.0, float(mean_normal[axis]))
     probe = np.zeros(shape, np.uint8)
     for depth in (4.0, 6.0, 8.0):
         pts = outer[soft] - depth * normals[soft] - origin
@@ -252,7 +288,7 @@ def scan_face(
     # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
     facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)
     if facing < 0.3 or gap < max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise):
-        if soft_len < MIN_SOFT_NOTE * float(lengths.sum()):
+        if hard or soft_len < MIN_SOFT_NOTE * float(lengths.sum()):
             return None
         return FaceResult(  # soft edges and no shadow: the part may not lie flat on the glass
             outer_px=None,
@@ -458,6 +494,103 @@ def _shadow_length(smooth: np.ndarray, filled: np.ndarray) -> tuple[int, float, 
         return length, prominence, 0.0
     step = float(np.median(np.abs(smooth[hi[both], cols[both]] - smooth[lo[both], cols[both]])))
     return length, prominence, step
+
+
+def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, least: float) -> tuple[int, float]:
+    """The length (px) of a shadow cast up the rows, and the share of its front with the face's step behind it.
+
+    As :func:`_shadow_length`, the length is where the rows' gradient, read the same
+    distance behind every front pixel, peaks (its front's own ramp skipped); the share
+    counts the front pixels with a step of at least ``least`` (linear light per px) within
+    a px of that distance, the found region (``found``: holes cleared) on both sides of
+    it (:data:`SWEEP_STEP_READ_PX`) and levels there twice ``least`` apart: a hole's rim,
+    the part's far edge or a seam between two parts is not a face's edge against its
+    shadow. (0, 0.0) when no peak stands out of the search range by
+    :data:`SWEEP_MIN_PROMINENCE`.
+    """
+    length, prominence, step = _shadow_length(smooth, filled)
+    if length < SWEEP_MIN_LENGTH_PX or prominence < SWEEP_MIN_PROMINENCE or step <= 0.0:
+        return 0, 0.0
+    h = smooth.shape[0]
+    grad = np.zeros_like(smooth)
+    grad[1:-1] = 0.5 * np.abs(smooth[2:] - smooth[:-2])
+    inside = filled.astype(bool)
+    front = inside.copy()
+    front[1:] &= ~inside[:-1]
+    rows, cols = nonzero_rc(front)
+    kept = found.astype(bool)
+    lo, hi = rows + length - SWEEP_STEP_READ_PX, rows + length + SWEEP_STEP_READ_PX
+    both = (lo >= 0) & (hi < h)
+    both[both] &= kept[lo[both], cols[both]] & kept[hi[both], cols[both]]
+    at = np.clip(rows[:, None] + length + np.arange(-1, 2)[None, :], 0, h - 1)
+    peak = grad[at, cols[:, None]].max(axis=1)
+    # a step, not a line (a seam between two parts laid edge to edge dips and comes back): the levels either
+    # side differ by twice the least gradient (a step blurred by 1.4 px peaks at 0.28 of its height)
+    rise = np.abs(smooth[np.clip(hi, 0, h - 1), cols] - smooth[np.clip(lo, 0, h - 1), cols])
+    return length, float(np.count_nonzero(both & (peak >= least) & (rise >= 2.0 * least))) / max(rows.size, 1)
+
+
+def _hard_front(
+    linear: np.ndarray, filled: np.ndarray, found: np.ndarray, contrast: float
+) -> tuple[np.ndarray, int] | None:
+    """The lamp's direction and the shadow's length (px) of a shadow with a hard front, or None.
+
+    A lamp small enough, or a lid low enough, leaves the shadow's outer end as sharp as the
+    face's edges, so no soft stretch on the outline says a shadow is there. Its geometry
+    still does: parallel light makes it a band of one length along the lamp's axis behind
+    every edge facing away from the lamp, so its front and the face's edge behind it are
+    copies of each other moved by one vector. Each of the four directions along the image's
+    axes (a flatbed's lamp lights along the carriage's travel) is tried: a shadow is taken
+    where a sharp step, standing :data:`HARD_FRONT_NOISE` sigmas above the noise of the
+    gradient inside the outline and at least :data:`HARD_FRONT_STEP` of the contrast, lies
+    the same length behind :data:`HARD_FRONT_COVERAGE` of the front inside the part (a hole
+    or the part's far edge does not count). A plain part has no step inside it, and its
+    holes and notches lie at many distances behind its front. Seen from the face's back
+    edge, the step between the face and its shadow can lie at one distance too (a
+    rectangle's face): the shortest of the lengths found is the shadow's (a shadow is
+    about as long as the part is thick, and a part is wider than it is thick).
+
+    References
+    ----------
+    .. [1] J. Serra, Image Analysis and Mathematical Morphology, Academic Press, 1982
+       (a Minkowski sum with a segment: the found region is the face swept along the lamp).
+    """
+    smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
+    kernel = np.ones((3, 3), np.uint8)
+    interior = cv2.erode(found, kernel, iterations=4).astype(bool)
+    if interior.sum() < 50:
+        return None
+    best: tuple[np.ndarray, int] | None = None
+    for axis in (0, 1):
+        grad = np.zeros_like(smooth)
+        if axis == 0:
+            grad[:, 1:-1] = 0.5 * np.abs(smooth[:, 2:] - smooth[:, :-2])
+        else:
+            grad[1:-1] = 0.5 * np.abs(smooth[2:] - smooth[:-2])
+        inner = grad[interior]
+        least = max(HARD_FRONT_NOISE * _mad(inner), HARD_FRONT_STEP * abs(contrast))
+        # a quick test first: a step across the part leaves steep pixels along a good share of its width
+        width = int(np.count_nonzero(filled.any(axis=1 - axis)))
+        if np.count_nonzero(inner >= least) < 0.5 * HARD_FRONT_COVERAGE * width:
+            continue
+        for sign in (1.0, -1.0):
+            direction = np.zeros(2)
+            direction[axis] = sign
+            length, share = _front_steps(_up(smooth, direction), _up(filled, direction), _up(found, direction), least)
+            if share >= HARD_FRONT_COVERAGE and (best is None or length < best[1]):
+                best = (direction, length)
+    return best
+
+
+def _off_face(outer: np.ndarray, found: np.ndarray, direction: np.ndarray, length_px: int) -> np.ndarray:
+    """Per vertex of ``outer`` (crop pixels): off the face by more than 3 px, the face taken as the found
+    region eroded by the shadow's sweep (``length_px`` along ``direction``): the shadow's front and sides."""
+    segment = np.ones((length_px + 1, 1), np.uint8)
+    face = _back(cv2.erode(_up(found, direction), segment, anchor=(0, length_px), borderValue=0), direction)
+    dist = exact_distance(np.ascontiguousarray(1 - face).astype(np.uint8))
+    cols = np.clip(np.round(outer[:, 0]).astype(int), 0, found.shape[1] - 1)
+    rows = np.clip(np.round(outer[:, 1]).astype(int), 0, found.shape[0] - 1)
+    return np.asarray(dist[rows, cols] > 3.0)
 
 
 def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float) -> FaceResult | None:
@@ -668,3 +801,112 @@ def _unseparated(ctx: _Found, total_px2: float) -> FaceResult:
         levels=ctx.levels,
         note="not separated: the shadow is as dark as the part",
     )
+
+
+def deep_holes(
+    linear: np.ndarray, origin_px: tuple[int, int], face: FaceResult, min_hole_px: float, *, quantum: float = 0.0
+) -> FaceResult:
+    """The face with the deep holes its levels missed, found by the grain of their floors.
+
+    Through a hole several mm deep a scanner sees the lid, lit only by what the hole's
+    dark walls pass on: as dark as a black part's face (a few per cent of the lid's
+    level either way), so neither the found outline nor the face's levels open it. Its
+    floor differs from the face in grain: the face on the glass is in focus and evenly
+    lit, the lid far behind it is not. The grain is the local variance of the image's
+    high-pass (Gaussian of 1 px subtracted, squares averaged over
+    :data:`GRAIN_SIGMA_PX`); a patch of the face's interior (clear of its outline and
+    holes by 6 px, JPEG ringing) whose grain stands :data:`GRAIN_RATIO` times above the
+    face's median (and above that of every other pixel flipping by one stored code,
+    ``quantum`` squared over 4: a face that renders or scans flat shows its file's
+    rounding and compression, not grain), at least ``min_hole_px`` and compact
+    (:data:`GRAIN_COMPACT`), is a hole. Its ring is the contour where the grain is halfway between the face's and the
+    floor's (a symmetric average of a step in variance is halfway at the step), refined
+    and corrected for curvature as the face's rings are. The face is returned unchanged
+    when none is found.
+
+    Parameters
+    ----------
+    linear : (H, W) float ndarray
+        Linear-light values of the crop :func:`scan_face` read.
+    origin_px : (int, int)
+        The crop's (x, y) offset in the image.
+    face : FaceResult
+        A separated face (``outer_px`` not None); others are returned unchanged.
+    min_hole_px : float
+        Least area (px2) of a hole.
+    quantum : float
+        The linear-light step between two stored codes at the face's level (0: not known).
+
+    Examples
+    --------
+    A face with its sensor's faint noise and a patch of grain 20 px across (a lid seen through
+    a hole): one hole, about 20 px across.
+
+    >>> rng = np.random.default_rng(0)
+    >>> img = (0.85 + 0.002 * rng.standard_normal((120, 120))).astype(np.float32)
+    >>> img[20:100, 20:100] = 0.04 + 0.0005 * rng.standard_normal((80, 80))
+    >>> yy, xx = np.mgrid[0:120, 0:120]
+    >>> floor = np.hypot(xx - 60, yy - 60) < 10
+    >>> img[floor] = 0.045 + 0.008 * rng.standard_normal(int(floor.sum()))
+    >>> square = np.array([[19.5, 19.5], [99.5, 19.5], [99.5, 99.5], [19.5, 99.5]])
+    >>> face = FaceResult(square, [], None, [], 0.0, (0.0, -1.0), 0.0, 0.0, (0.85, 0.3, 0.04), "separated")
+    >>> found = deep_holes(img, (0, 0), face, min_hole_px=50)
+    >>> found.grain_holes, round(2 * math.sqrt(abs(signed_area(found.holes_px[0])) / math.pi))
+    (1, 20)
+    """
+    if face.outer_px is None:
+        return face
+    origin = np.asarray(origin_px, float)
+    shape = linear.shape
+    mask = np.zeros(shape, np.uint8)
+    cv2.fillPoly(mask, [np.round((np.asarray(face.outer_px, float) - origin) * 16).astype(np.int32)], 1, shift=4)
+    for h in face.holes_px:
+        cv2.fillPoly(mask, [np.round((np.asarray(h, float) - origin) * 16).astype(np.int32)], 0, shift=4)
+    clear = exact_distance(mask)
+    interior = clear > 6.0
+    if np.count_nonzero(interior) < 4 * max(min_hole_px, 50.0):
+        return face
+    lin = linear.astype(np.float32)
+    high = lin - cv2.GaussianBlur(lin, (0, 0), 1.0)
+    grain = cv2.GaussianBlur(high * high, (0, 0), GRAIN_SIGMA_PX)
+    face_grain = float(np.median(grain[interior]))
+    odd = (interior & (grain > GRAIN_RATIO * max(face_grain, 0.25 * quantum**2, 1e-12))).astype(np.uint8)
+    odd = np.asarray(cv2.morphologyEx(odd, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8)), dtype=np.uint8)
+    count, comp, stats, _ = cv2.connectedComponentsWithStats(odd, connectivity=8)
+    holes, grads = list(face.holes_px), list(face.hole_gradients_px)
+    added = 0
+    for k in range(1, count):
+        area = float(stats[k, cv2.CC_STAT_AREA])
+        extent = float(max(stats[k, cv2.CC_STAT_WIDTH], stats[k, cv2.CC_STAT_HEIGHT]))
+        if area < min_hole_px or area < GRAIN_COMPACT * math.pi * (0.5 * extent) ** 2:
+            continue
+        patch = comp == k
+        # the floor's own grain: where the average no longer reaches the face (3 of its sigmas in)
+        depth = exact_distance(patch.astype(np.uint8))
+        core = depth >= min(3.0 * GRAIN_SIGMA_PX, float(depth.max()))
+        floor_grain = float(np.median(grain[core]))
+        # the patch's own window: its box grown by 8 px, the grain normalised from the face's (0) to the floor's (1)
+        x, y, w, h = (int(v) for v in stats[k, :4])
+        r0, r1, c0, c1 = max(y - 8, 0), min(y + h + 8, shape[0]), max(x - 8, 0), min(x + w + 8, shape[1])
+        norm = np.clip((grain[r0:r1, c0:c1] - face_grain) / max(floor_grain - face_grain, 1e-12), -0.5, 1.5)
+        norm = np.pad(norm.astype(np.float32), 1)  # a frame at the face's grain closes the ring
+        best = None
+        for ring in find_contours(norm, 0.5, fully_connected="high"):
+            if len(ring) < 8 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
+                continue
+            a = abs(signed_area(ring))
+            if best is None or a > best[1]:
+                best = (ring[:-1], a)
+        if best is None or best[1] < min_hole_px:
+            continue
+        from scanmass.segment.rings import _refine_vertices, correct_curvature
+
+        ring_rc, g, _ = _refine_vertices(norm, best[0], 0.5)
+        xy = np.column_stack([ring_rc[:, 1] - 1 + c0 + origin[0], ring_rc[:, 0] - 1 + r0 + origin[1]])
+        # the grain's blur: the high-pass's own width and the average's, added in quadrature
+        holes.append(correct_curvature(xy, math.hypot(1.0, GRAIN_SIGMA_PX)))
+        grads.append(g)
+        added += 1
+    if not added:
+        return face
+    return replace(face, holes_px=holes, hole_gradients_px=grads, grain_holes=added, local_levels=True)
