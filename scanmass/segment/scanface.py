@@ -30,7 +30,7 @@ import numpy as np
 from skimage.measure import find_contours
 
 from scanmass.geometry import signed_area, vertex_normals
-from scanmass.numeric import nonzero_rc
+from scanmass.numeric import nonzero_every, nonzero_rc
 from scanmass.segment.distance import exact_distance
 
 __all__ = ["FaceResult", "scan_face", "deep_holes", "SOFT_RATIO"]
@@ -239,6 +239,11 @@ def scan_face(
     found = filled.copy()
     for h in holes_px:
         cv2.fillPoly(found, [np.round((np.asarray(h, float) - origin) * 16).astype(np.int32)], 0, shift=4)
+    sweep = None
+    if hard:  # most parts: looked at quickly, with the contrast from a sample of the crop
+        sweep = _hard_front(linear, filled, found)
+        if sweep is None:
+            return None
     near_out = cv2.dilate(filled, kernel, iterations=12).astype(bool) & ~cv2.dilate(
         filled, kernel, iterations=3
     ).astype(bool)
@@ -251,10 +256,7 @@ def scan_face(
         return None
     # the shadow's level: inside the found outline, next to its soft stretch
     normals = _outward_normals(outer)
-    if hard:
-        sweep = _hard_front(linear, filled, found, lid - part)
-        if sweep is None:
-            return None
+    if sweep is not None:
         direction, length_px = sweep
         # the shadow's outline (its front and sides) takes the soft stretch's place: the outline off the face
         soft = _off_face(outer - origin, found, direction, length_px)
@@ -530,9 +532,7 @@ def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, leas
     return length, float(np.count_nonzero(both & (peak >= least) & (rise >= 2.0 * least))) / max(rows.size, 1)
 
 
-def _hard_front(
-    linear: np.ndarray, filled: np.ndarray, found: np.ndarray, contrast: float
-) -> tuple[np.ndarray, int] | None:
+def _hard_front(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tuple[np.ndarray, int] | None:
     """The lamp's direction and the shadow's length (px) of a shadow with a hard front, or None.
 
     A lamp small enough, or a lid low enough, leaves the shadow's outer end as sharp as the
@@ -555,24 +555,15 @@ def _hard_front(
     .. [1] J. Serra, Image Analysis and Mathematical Morphology, Academic Press, 1982
        (a Minkowski sum with a segment: the found region is the face swept along the lamp).
     """
-    smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
-    kernel = np.ones((3, 3), np.uint8)
-    interior = cv2.erode(found, kernel, iterations=4).astype(bool)
-    if interior.sum() < 50:
+    axes, contrast = _steep_axes(linear, filled, found)
+    if not axes:
         return None
+    smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
+    interior = cv2.erode(found, np.ones((3, 3), np.uint8), iterations=4).astype(bool)
+    rows, cols = nonzero_every(interior, max(1, int(np.count_nonzero(interior)) // 20000))
     best: tuple[np.ndarray, int] | None = None
-    for axis in (0, 1):
-        grad = np.zeros_like(smooth)
-        if axis == 0:
-            grad[:, 1:-1] = 0.5 * np.abs(smooth[:, 2:] - smooth[:, :-2])
-        else:
-            grad[1:-1] = 0.5 * np.abs(smooth[2:] - smooth[:-2])
-        inner = grad[interior]
-        least = max(HARD_FRONT_NOISE * _mad(inner), HARD_FRONT_STEP * abs(contrast))
-        # a quick test first: a step across the part leaves steep pixels along a good share of its width
-        width = int(np.count_nonzero(filled.any(axis=1 - axis)))
-        if np.count_nonzero(inner >= least) < 0.5 * HARD_FRONT_COVERAGE * width:
-            continue
+    for axis in axes:
+        least = max(HARD_FRONT_NOISE * _mad(_axis_gradient(smooth, axis)[rows, cols]), HARD_FRONT_STEP * abs(contrast))
         for sign in (1.0, -1.0):
             direction = np.zeros(2)
             direction[axis] = sign
@@ -580,6 +571,59 @@ def _hard_front(
             if share >= HARD_FRONT_COVERAGE and (best is None or length < best[1]):
                 best = (direction, length)
     return best
+
+
+def _axis_gradient(smooth: np.ndarray, axis: int) -> np.ndarray:
+    """|central difference| along the image's x (``axis`` 0) or y (1) axis; 0 on the border."""
+    grad = np.zeros_like(smooth)
+    if axis == 0:
+        grad[:, 1:-1] = 0.5 * np.abs(smooth[:, 2:] - smooth[:, :-2])
+    else:
+        grad[1:-1] = 0.5 * np.abs(smooth[2:] - smooth[:-2])
+    return grad
+
+
+def _steep_axes(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tuple[list[int], float]:
+    """The image axes (0: x, 1: y) along which a step crosses nearly every line through the part's interior,
+    and the lid-to-part contrast.
+
+    The quick test before :func:`_hard_front` looks for the shadow's length: a step across
+    the part (the face's edge against its shadow) leaves a steep pixel in at least
+    :data:`HARD_FRONT_COVERAGE` of the lines along that axis that cross the interior (4 px
+    in from the outline and the holes); a hole's rim only in the lines that cross the hole,
+    noise nowhere (steep: :data:`HARD_FRONT_NOISE` sigmas of the gradient's noise, and
+    :data:`HARD_FRONT_STEP` of the contrast: the lid's upper quartile outside the outline
+    less the part's lower quintile inside it, the levels :func:`scan_face` reads). Crops
+    over 100 000 px are read reduced by area averaging (a step across a large part stays one).
+    """
+    factor = max(1, int(math.sqrt(linear.size / 100_000.0)))
+    lin: np.ndarray = np.asarray(linear, dtype=np.float32)
+    if factor > 1:
+        size = (linear.shape[1] // factor, linear.shape[0] // factor)
+        lin = cv2.resize(lin, size, interpolation=cv2.INTER_AREA)
+        found = cv2.resize(found, size, interpolation=cv2.INTER_NEAREST)
+        filled = cv2.resize(filled, size, interpolation=cv2.INTER_NEAREST)
+    smooth = cv2.GaussianBlur(lin, (0, 0), 1.0)
+    interior = cv2.erode(found, np.ones((3, 3), np.uint8), iterations=4).astype(bool)
+    count = int(np.count_nonzero(interior))
+    outside = filled == 0
+    if count < 50 or np.count_nonzero(outside) < 20:
+        return [], 0.0
+    kept = found.astype(bool)
+    lid = np.quantile(lin[nonzero_every(outside, max(1, int(np.count_nonzero(outside)) // 5000))], 0.75)
+    part = np.quantile(lin[nonzero_every(kept, max(1, int(np.count_nonzero(kept)) // 5000))], 0.2)
+    contrast = float(lid) - float(part)
+    # the gradient's noise from a sample of the interior (every k-th pixel, about 5000: a median over a large part is slow)
+    rows, cols = nonzero_every(interior, max(1, count // 5000))
+    axes = []
+    for axis in (0, 1):
+        grad = _axis_gradient(smooth, axis)
+        least = max(HARD_FRONT_NOISE * _mad(grad[rows, cols]), HARD_FRONT_STEP * abs(contrast))
+        across = interior.any(axis=1 - axis)
+        steep = (interior & (grad >= least)).any(axis=1 - axis)
+        if np.count_nonzero(steep) >= HARD_FRONT_COVERAGE * np.count_nonzero(across):
+            axes.append(axis)
+    return axes, contrast
 
 
 def _off_face(outer: np.ndarray, found: np.ndarray, direction: np.ndarray, length_px: int) -> np.ndarray:
@@ -854,6 +898,8 @@ def deep_holes(
     >>> found.grain_holes, round(2 * math.sqrt(abs(signed_area(found.holes_px[0])) / math.pi))
     (1, 20)
     """
+    from scanmass.segment.rings import _refine_vertices, correct_curvature
+
     if face.outer_px is None:
         return face
     origin = np.asarray(origin_px, float)
@@ -886,8 +932,9 @@ def deep_holes(
         core = depth >= min(3.0 * GRAIN_SIGMA_PX, float(depth.max()))
         floor_grain = float(np.median(grain[core]))
         # the patch's own window: its box grown by 8 px, the grain normalised from the face's (0) to the floor's (1)
-        x, y, w, h = (int(v) for v in stats[k, :4])
-        r0, r1, c0, c1 = max(y - 8, 0), min(y + h + 8, shape[0]), max(x - 8, 0), min(x + w + 8, shape[1])
+        x_px, y_px, w_px, h_px = (int(v) for v in stats[k, :4])
+        r0, r1 = max(y_px - 8, 0), min(y_px + h_px + 8, shape[0])
+        c0, c1 = max(x_px - 8, 0), min(x_px + w_px + 8, shape[1])
         norm = np.clip((grain[r0:r1, c0:c1] - face_grain) / max(floor_grain - face_grain, 1e-12), -0.5, 1.5)
         norm = np.pad(norm.astype(np.float32), 1)  # a frame at the face's grain closes the ring
         best = None
@@ -899,8 +946,6 @@ def deep_holes(
                 best = (ring[:-1], a)
         if best is None or best[1] < min_hole_px:
             continue
-        from scanmass.segment.rings import _refine_vertices, correct_curvature
-
         ring_rc, g, _ = _refine_vertices(norm, best[0], 0.5)
         xy = np.column_stack([ring_rc[:, 1] - 1 + c0 + origin[0], ring_rc[:, 0] - 1 + r0 + origin[1]])
         # the grain's blur: the high-pass's own width and the average's, added in quadrature
