@@ -254,56 +254,64 @@ def scan_face(
     part = float(np.quantile(linear[inside], 0.2))
     if not lid > part:
         return None
-    # the shadow's level: inside the found outline, next to its soft stretch
     normals = _outward_normals(outer)
-    if sweep is not None:
-        direction, length_px = sweep
-        # the shadow's outline (its front and sides) takes the soft stretch's place: the outline off the face
-        soft = _off_face(outer - origin, found, direction, length_px)
-        soft_len = float(lengths[soft].sum())
-        if soft_len < MIN_SOFT_SHARE * float(lengths.sum()):
-            return None
-    else:
-        # a flatbed's lamp lies beside the sensor line and lights along the carriage's travel: the
-        # shadow falls along the image's rows or columns; the soft stretch's mean normal picks which
-        mean_normal = (lengths[soft, None] * normals[soft]).sum(axis=0)
-        axis = int(np.argmax(np.abs(mean_normal)))
-        direction = np.zeros(2)
-        direction[axis] = math.copysign(1.0, float(mean_normal[axis]))
-    probe = np.zeros(shape, np.uint8)
-    for depth in (4.0, 6.0, 8.0):
-        pts = outer[soft] - depth * normals[soft] - origin
-        cols = np.clip(np.round(pts[:, 0]).astype(int), 0, shape[1] - 1)
-        rows = np.clip(np.round(pts[:, 1]).astype(int), 0, shape[0] - 1)
-        probe[rows, cols] = 1
-    probe_values = linear[probe.astype(bool) & inside]
-    if probe_values.size < 10:
-        return None
-    shadow = float(np.median(probe_values))
-    levels = (lid, shadow, part)
-    total = float(found.sum())
-    gap = shadow - part
-    dark = linear[inside & (linear < part + 0.5 * max(gap, 0.0))]
-    if dark.size > 20:  # the part's own noise (texture, grain) rather than the outline fit's residual
-        noise = min(noise, 1.4826 * float(np.median(np.abs(dark - np.median(dark)))))
-    # a shadow: the soft stretch faces one way, and inside it lies a level between the part and the lid
-    # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
-    facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)
-    if facing < 0.3 or gap < max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise):
-        if hard or soft_len < MIN_SOFT_NOTE * float(lengths.sum()):
-            return None
-        return FaceResult(  # soft edges and no shadow: the part may not lie flat on the glass
-            outer_px=None,
-            holes_px=[],
-            gradient_px=None,
-            hole_gradients_px=[],
-            shadow_px2=0.0,
-            direction=(float(direction[0]), float(direction[1])),
-            soft_length_px=soft_len,
-            shadow_edge_px=0.0,
-            levels=levels,
-            note="soft edges",
-        )
+    soft_edges = None
+    while True:
+        if sweep is not None:
+            direction, length_px = sweep
+            # the shadow's outline (its front and sides) takes the soft stretch's place: the outline off the face
+            soft = _off_face(outer - origin, found, direction, length_px)
+            soft_len = float(lengths[soft].sum())
+            if soft_len < MIN_SOFT_SHARE * float(lengths.sum()):
+                return soft_edges
+        else:
+            # a flatbed's lamp lies beside the sensor line and lights along the carriage's travel: the
+            # shadow falls along the image's rows or columns; the soft stretch's mean normal picks which
+            mean_normal = (lengths[soft, None] * normals[soft]).sum(axis=0)
+            axis = int(np.argmax(np.abs(mean_normal)))
+            direction = np.zeros(2)
+            direction[axis] = math.copysign(1.0, float(mean_normal[axis]))
+        # the shadow's level: inside the found outline, next to its soft stretch
+        probe = np.zeros(shape, np.uint8)
+        for depth in (4.0, 6.0, 8.0):
+            pts = outer[soft] - depth * normals[soft] - origin
+            cols = np.clip(np.round(pts[:, 0]).astype(int), 0, shape[1] - 1)
+            rows = np.clip(np.round(pts[:, 1]).astype(int), 0, shape[0] - 1)
+            probe[rows, cols] = 1
+        probe_values = linear[probe.astype(bool) & inside]
+        if probe_values.size < 10:
+            return soft_edges
+        shadow = float(np.median(probe_values))
+        levels = (lid, shadow, part)
+        total = float(found.sum())
+        gap = shadow - part
+        dark = linear[inside & (linear < part + 0.5 * max(gap, 0.0))]
+        if dark.size > 20:  # the part's own noise (texture, grain) rather than the outline fit's residual
+            noise = min(noise, 1.4826 * float(np.median(np.abs(dark - np.median(dark)))))
+        # a shadow: the soft stretch faces one way, and inside it lies a level between the part and the lid
+        # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
+        facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)
+        if facing >= 0.3 and gap >= max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise):
+            break
+        if sweep is None and soft_len >= MIN_SOFT_NOTE * float(lengths.sum()):
+            soft_edges = FaceResult(  # soft edges and no shadow: the part may not lie flat on the glass
+                outer_px=None,
+                holes_px=[],
+                gradient_px=None,
+                hole_gradients_px=[],
+                shadow_px2=0.0,
+                direction=(float(direction[0]), float(direction[1])),
+                soft_length_px=soft_len,
+                shadow_edge_px=0.0,
+                levels=levels,
+                note="soft edges",
+            )
+        if sweep is not None:
+            return soft_edges
+        # the soft stretch is not a shadow's front: a shadow whose front is as sharp as the face's may still be
+        sweep = _hard_front(linear, filled, found)
+        if sweep is None:
+            return soft_edges
     ctx = _Found(origin, filled, found, outer, list(holes_px), soft, lengths, normals, direction, soft_len, levels)
     if gap < max(MIN_FACE_SHADOW_CONTRAST * (lid - part), 6.0 * noise):
         return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
