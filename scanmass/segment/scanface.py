@@ -91,8 +91,11 @@ HARD_FRONT_COVERAGE = 0.8
 #: sigmas (of the gradient inside the outline) above the noise, ...
 HARD_FRONT_NOISE = 8.0
 
-#: ... and at least this share of the lid-to-part contrast (a step of that height blurred by about 1 px).
-HARD_FRONT_STEP = 0.01
+#: ... and at least this share of the lid-to-part contrast (per px: a step of 0.7 % of it, blurred by 1.4 px).
+HARD_FRONT_STEP = 0.002
+
+#: Width (px) of the Gaussian that averages the image along the step before its gradient is read.
+STEP_ALONG_PX = 3.0
 
 #: A deep hole's floor, as dark as the face, is told from it by its grain: a compact patch inside the face
 #: whose local variance stands this many times above the face's (median) own.
@@ -291,7 +294,9 @@ def scan_face(
         # a shadow: the soft stretch faces one way, and inside it lies a level between the part and the lid
         # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
         facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)
-        if facing >= 0.3 and gap >= max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise):
+        # (the geometry's step one length behind the whole front is evidence enough of a shadow: its level may
+        # lie on either side of the part's, or a few 8-bit codes from it)
+        if facing >= 0.3 and (sweep is not None or gap >= max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise)):
             break
         if sweep is None and soft_len >= MIN_SOFT_NOTE * float(lengths.sum()):
             soft_edges = FaceResult(  # soft edges and no shadow: the part may not lie flat on the glass
@@ -572,17 +577,24 @@ def _hard_front(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tu
     best: tuple[np.ndarray, int] | None = None
     for axis in axes:
         least = max(HARD_FRONT_NOISE * _mad(_axis_gradient(smooth, axis)[rows, cols]), HARD_FRONT_STEP * abs(contrast))
+        along = cv2.GaussianBlur(
+            smooth, (0, 0), sigmaX=STEP_ALONG_PX if axis == 1 else 1e-3, sigmaY=STEP_ALONG_PX if axis == 0 else 1e-3
+        )
         for sign in (1.0, -1.0):
             direction = np.zeros(2)
             direction[axis] = sign
-            length, share = _front_steps(_up(smooth, direction), _up(filled, direction), _up(found, direction), least)
+            length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(found, direction), least)
             if share >= HARD_FRONT_COVERAGE and (best is None or length < best[1]):
                 best = (direction, length)
     return best
 
 
 def _axis_gradient(smooth: np.ndarray, axis: int) -> np.ndarray:
-    """|central difference| along the image's x (``axis`` 0) or y (1) axis; 0 on the border."""
+    """|central difference| along the image's x (``axis`` 0) or y (1) axis, the image first averaged along
+    the other axis (along the step, 3 px: a faint step stands out of the noise); 0 on the border."""
+    smooth = cv2.GaussianBlur(
+        smooth, (0, 0), sigmaX=STEP_ALONG_PX if axis == 1 else 1e-3, sigmaY=STEP_ALONG_PX if axis == 0 else 1e-3
+    )
     grad = np.zeros_like(smooth)
     if axis == 0:
         grad[:, 1:-1] = 0.5 * np.abs(smooth[:, 2:] - smooth[:, :-2])
