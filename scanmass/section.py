@@ -225,28 +225,37 @@ def convex_hull(points: np.ndarray) -> np.ndarray:
     if pts.shape[0] <= 2:
         return pts.copy()
     pts = _drop_interior(pts)
-    # absolute coordinates on purpose: distinct floats never subtract to zero, whereas
-    # centring first could merge nearly equal points and wrongly drop a hull vertex
-    rel = pts.tolist()
+    lower = _convex_chain(pts)
+    upper = _convex_chain(pts[::-1])
+    return np.concatenate([pts[lower[:-1]], pts[::-1][upper[:-1]]])
 
-    def chain(seq: list[int]) -> list[int]:
-        out: list[int] = []
-        for k in seq:
-            px, py = rel[k]
-            while len(out) >= 2:
-                ax, ay = rel[out[-2]]
-                bx, by = rel[out[-1]]
-                if (bx - ax) * (py - ay) - (by - ay) * (px - ax) > 0.0:
-                    break
-                out.pop()
-            out.append(k)
-        return out
 
-    order = list(range(len(rel)))
-    lower = chain(order)
-    upper = chain(order[::-1])
-    idx = lower[:-1] + upper[:-1]
-    return pts[idx].copy()
+def _convex_chain(pts: np.ndarray) -> np.ndarray:
+    """Indices of the monotone chain's strictly left-turning vertices, first and last point kept.
+
+    The chain of Andrew's algorithm [1]_ without its stack: every vertex that makes no left
+    turn with its present neighbours is dropped at once, and again, until none is left.
+    Each dropped run of vertices turns right (or not at all) throughout, so it lies on or
+    above the chord that replaces it, and the chain only moves towards the points as it
+    shrinks: the fixpoint keeps exactly the points the stack would keep (the hull's
+    vertices on this side), with the same turn test on absolute coordinates (distinct
+    floats never subtract to zero, whereas centring first could merge nearly equal points).
+
+    References
+    ----------
+    .. [1] A. M. Andrew, "Another efficient algorithm for convex hulls in two
+       dimensions", Information Processing Letters 9(5), 216-219, 1979.
+       doi:10.1016/0020-0190(79)90072-3
+    """
+    idx = np.arange(pts.shape[0])
+    x, y = pts[:, 0], pts[:, 1]
+    while idx.size > 2:
+        a, b, c = idx[:-2], idx[1:-1], idx[2:]
+        left = (x[b] - x[a]) * (y[c] - y[a]) - (y[b] - y[a]) * (x[c] - x[a]) > 0.0
+        if left.all():
+            break
+        idx = np.concatenate((idx[:1], b[left], idx[-1:]))
+    return idx
 
 
 def _drop_interior(pts: np.ndarray) -> np.ndarray:

@@ -226,19 +226,6 @@ def test_cast_shadow_term_holds_what_the_edge_layers_leave_open(name, shape, ter
         assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
 
 
-def test_cast_shadow_left_in_keeps_its_band_open():
-    """The black bracket under the spotlight keeps its shadow (+19.9 %: its face as grainy as the
-    shadow near the edge, no cut); the layers beside its edge are rough, so the band stays open
-    and the error stays inside 1 stated sigma."""
-    tp = _truth_part("spot-black-t20", "l-bracket")
-    m = scanmass.measure(REALLIGHT / "spot-black-t20.jpg", thickness_mm=tp["t"])
-    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
-    error = part.area_mm2 - tp["area"]
-    assert error > 0.15 * tp["area"]  # the shadow is in
-    assert part.uncertainty_terms["cast_shadow"]["area_mm2"] >= error
-    assert abs(error) <= part.area_u_mm2
-
-
 def test_cut_leaves_no_false_hole_along_the_shadows_far_edge():
     """A rim of the outline one or two pixels wide left between the cut and the paper enclosed
     the cut as a 2.8 mm2 'hole' 62 mm across in the steel cam; it goes with the cut. The cam's

@@ -9,12 +9,13 @@ from __future__ import annotations
 
 import math
 
+import cv2
 import numpy as np
 import pytest
 from skimage.filters import threshold_otsu
 
 from scanmass import uncertainty
-from scanmass.numeric import combine, otsu_threshold
+from scanmass.numeric import SAMPLE_ROW, combine, otsu_threshold, sample_points
 
 
 def test_combine_is_root_sum_square():
@@ -41,3 +42,34 @@ def test_otsu_matches_scikit_image(dtype):
     values = np.concatenate([rng.normal(0.1, 0.03, 5000), rng.normal(0.7, 0.08, 3000)]).astype(dtype)
     assert otsu_threshold(values) == pytest.approx(threshold_otsu(values, nbins=256), rel=1e-6)
     assert otsu_threshold(np.full(10, 0.4, dtype)) == pytest.approx(0.4)
+
+
+@pytest.mark.parametrize("interpolation", [cv2.INTER_LINEAR, cv2.INTER_CUBIC, cv2.INTER_NEAREST])
+@pytest.mark.parametrize("n", [1, 7, SAMPLE_ROW, SAMPLE_ROW + 1, 5003])
+def test_sample_points_equal_a_one_column_remap(interpolation, n):
+    # reference library: OpenCV's own cv2.remap with the points as one column of the map
+    rng = np.random.default_rng(n)
+    image = rng.random((60, 90)).astype(np.float32)
+    x = rng.uniform(-3.0, 93.0, n)  # some outside the image: the border rule applies to each alike
+    y = rng.uniform(-3.0, 63.0, n)
+    column = cv2.remap(
+        image,
+        x.astype(np.float32)[:, None],
+        y.astype(np.float32)[:, None],
+        interpolation,
+        borderMode=cv2.BORDER_REPLICATE,
+    ).ravel()
+    got = sample_points(image, x, y, interpolation)
+    assert got.dtype == np.float32 and got.shape == (n,)
+    assert np.array_equal(got, column)  # bit for bit: the layout of the map changes no value
+    grid = sample_points(image, x[: n // 2 * 2].reshape(-1, 2), y[: n // 2 * 2].reshape(-1, 2), interpolation)
+    assert np.array_equal(grid.ravel(), column[: n // 2 * 2])  # the points' shape is kept
+    assert sample_points(image, x[:0], y[:0], interpolation).shape == (0,)
+
+
+def test_sample_points_beyond_a_remap_map_limit():
+    # cv2.remap refuses a map of 32767 rows or more; rows of SAMPLE_ROW points stay far below it
+    image = np.arange(12.0, dtype=np.float32).reshape(3, 4)
+    x, y = np.tile([0.0, 3.0], 20000), np.tile([0.0, 2.0], 20000)
+    got = sample_points(image, x, y, cv2.INTER_LINEAR)
+    assert np.array_equal(got, np.tile(np.float32([0.0, 11.0]), 20000))  # pixel centres: the pixel's own value

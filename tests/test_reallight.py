@@ -266,11 +266,7 @@ def test_metal_edge_that_looks_like_paper_is_warned_and_covered(name, thickness,
 @pytest.mark.slow
 @pytest.mark.parametrize(
     "name, thickness, shape",
-    [
-        ("spot-black-t20.json", 8.0, "disc"),
-        ("spot-steel-t0.json", 6.0, "cam"),
-        ("window-steel-t25.json", 5.0, "l-bracket"),
-    ],
+    [("spot-steel-t0.json", 6.0, "cam"), ("window-steel-t25.json", 5.0, "l-bracket")],
 )
 def test_deep_hole_that_looks_dark_is_warned(name, thickness, shape):
     """Holes 5.5-8 mm wide in parts 5-8 mm thick under a spotlight or window light: their bottoms lie
@@ -290,6 +286,57 @@ def test_deep_hole_that_looks_dark_is_warned(name, thickness, shape):
         assert not any(math.dist(h.circle_centre_mm, centre) < 2.0 for h in part.holes)  # not opened as a hole ...
         assert any(math.dist((float(x), float(y)), centre) < diameter / 2 for x, y in pits)  # ... but a pit inside it
         assert part.uncertainty_terms["hidden_hole"]["area_mm2"] >= 0.5 * math.pi * diameter**2 / 4
+
+
+@pytest.mark.slow
+def test_dark_bore_of_a_black_disc_is_opened():
+    """The black disc 8 mm thick under the spotlight: its 8 mm bore shows its far wall and its bottom
+    in the disc's shadow, darker than the face (0.2-0.45 of it), and was missed (+9.8 % in
+    area, a 'possible hidden hole'). Nothing on a flat dark face in the light is darker than it
+    but a hole (castshadow.hole_bottoms): the bore is opened at its top edge and named in the
+    'deep holes opened' warning; area within 2 % and the bore's diameter within 0.6 mm, both
+    within 3 stated sigma (bench_reallight: +1.2 %, -0.41 mm; truth: the render's outlines,
+    shapely)."""
+    if not REALLIGHT.exists():
+        pytest.skip("tests/data/reallight not in this checkout")
+    m, parts = _measure_render("spot-black-t20.json", 8.0)
+    tp = next(p for p in parts if p["shape"] == "disc")
+    part = _nearest(m, tp)
+    assert any(w.startswith("deep holes opened:") and f" {part.label} (" in w for w in m.warnings)
+    err = abs(part.area_mm2 - tp["area"])
+    assert err < 0.02 * tp["area"] and err <= 3 * part.area_u_mm2
+    ((centre, diameter),) = tp["holes"]
+    hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+    assert math.dist(hole.circle_centre_mm, centre) < 1.0
+    assert abs(hole.diameter_mm - diameter) < 0.6 and abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+
+
+@pytest.mark.slow
+def test_black_part_shadow_cut_past_jpeg_ringing():
+    """The black plastic bracket (3 mm) under the spotlight: its face (0.031 of the paper) rings
+    by a few 8-bit codes near its outline in the JPEG, as rough as its shadow (0.015 of the
+    paper, 10 px wide); the sweep found by the rough layers' shares ran 33 degrees askew and
+    was refused (+19.9 % in area, holes 2.0-2.3 mm small). Pixels at the face's level and
+    colour are no shadow, however rough (castshadow._dark_face_alike), and the cut runs on the
+    outline where the photo shows it (the top edge, beyond the footprint): the shadow is cut,
+    the area within 1 % and 3 stated sigma, the centroid within 0.5 mm and both holes within
+    0.8 mm (bench_reallight: +0.10 %, 0.25 mm, -0.36 / -0.08 mm; the cut's edge painted with
+    each pixel's share of face, the holes' dark bottoms opened; truth: the render's outlines,
+    shapely)."""
+    if not REALLIGHT.exists():
+        pytest.skip("tests/data/reallight not in this checkout")
+    m, parts = _measure_render("spot-black-t20.json", 3.0)
+    tp = next(p for p in parts if p["shape"] == "l-bracket")
+    part = _nearest(m, tp)
+    assert "shadow_cut" in part.uncertainty_terms
+    err = abs(part.area_mm2 - tp["area"])
+    assert err < 0.01 * tp["area"] and err <= 3 * part.area_u_mm2
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.5
+    for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
+        assert abs(c - t) <= 3 * u
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert abs(hole.diameter_mm - diameter) < 0.8 and abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
 
 
 def test_white_parts_on_white_paper_are_refused_with_the_fix():
@@ -321,9 +368,11 @@ def test_matte_parts_on_a_clean_photo_get_no_unclear_edge_or_hidden_hole_term():
 
 def test_white_part_beside_a_black_one_leaves_only_named_shadows():
     """Window light, a white nylon disc (3 mm) beside a black L bracket (4 mm, two 5.5 mm holes):
-    the bracket is measured within 3 stated sigma with both deep holes named as pits inside them;
-    the regions found where the disc is (its shadow, its hole's bottom) are named as shadows alone
-    (truth: the render's outlines, shapely)."""
+    the bracket is measured within 3 stated sigma with both deep holes opened at their top edges
+    (their dark walls and bottoms inside the dark face: castshadow.hole_bottoms; before, they were
+    named as pits and missed), each within 1 mm and 3 stated sigma (bench_reallight: -0.60 /
+    -0.72 mm); the regions found where the disc is (its shadow, its hole's bottom) are named as
+    shadows alone (truth: the render's outlines, shapely)."""
     if not REALLIGHT.exists():
         pytest.skip("tests/data/reallight not in this checkout")
     m, parts = _measure_render("window-mixed-t0.json", 4.0)
@@ -332,10 +381,11 @@ def test_white_part_beside_a_black_one_leaves_only_named_shadows():
     assert abs(part.area_mm2 - bracket["area"]) <= 3 * part.area_u_mm2
     for c, t, u in zip(part.centroid_mm, bracket["centroid"], part.centroid_u_mm):
         assert abs(c - t) <= 3 * u
-    pits = next(w for w in m.warnings if w.startswith("possible hidden hole:"))
-    centres = [(float(x), float(y)) for x, y in re.findall(r"across at \(([-\d.]+), ([-\d.]+)\) mm", pits)]
+    assert any(w.startswith("deep holes opened:") and f" {part.label} (" in w for w in m.warnings)
     for centre, diameter in bracket["holes"]:
-        assert any(math.dist(c, centre) < diameter / 2 for c in centres)
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < diameter / 2
+        assert abs(hole.diameter_mm - diameter) < 1.0 and abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
     _, all_parts = _render_truth("window-mixed-t0.json")
     disc = next(p for p in all_parts if p["shape"] == "disc")
     shadow = next(w for w in m.warnings if w.startswith("shadow only:"))

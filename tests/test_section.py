@@ -359,6 +359,27 @@ def test_convex_hull_against_shapely_on_point_clouds():
         assert sorted(map(tuple, hull)) == sorted(set(ref.exterior.coords))
 
 
+def test_convex_hull_against_shapely_on_exact_clouds():
+    # points whose turn tests are exact in float64 (small integers, multiples of 1/64): ties in
+    # x, collinear runs on the hull's sides, duplicates, and dense rounded circles (thousands of
+    # points, most of them hull vertices or just inside) whose chains are pruned over many rounds
+    rng = np.random.default_rng(12)
+    clouds = [rng.integers(0, 7, size=(n, 2)).astype(float) for n in (5, 40, 300, 3000)]
+    for n in (70, 900, 6000):
+        t = rng.uniform(0.0, 2.0 * np.pi, n)
+        r = rng.uniform(20.0, 400.0)
+        clouds.append(np.round((np.c_[np.cos(t), np.sin(t)] * r + rng.uniform(-500, 500, 2)) * 64.0) / 64.0)
+    left = clouds[-1][:, 0].min()
+    clouds.append(np.r_[clouds[-1], [[left, 0.0], [left, 1e3]]])  # a vertical side at the lowest x
+    for pts in clouds:
+        hull = convex_hull(pts)
+        ref = MultiPoint(pts).convex_hull  # reference library: shapely convex_hull (robust predicates)
+        assert signed_area(hull) > 0.0  # counter-clockwise
+        assert sorted(map(tuple, hull)) == sorted(set(ref.exterior.coords))  # the same vertices, none collinear
+        first = min(map(tuple, hull))
+        assert tuple(hull[0]) == first  # starts at the lowest x, then lowest y
+
+
 def _sympy_triangle_integrals(p0, p1, p2):
     """Exact integrals of 1, x, y, y^2, x^2, xy over a triangle (sympy, affine map to the unit triangle).
 

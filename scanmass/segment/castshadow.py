@@ -20,6 +20,11 @@ little, while noise and grain stand out (common practice: median filters keep ed
 impulse noise). On a dark face 8-bit coding is rough by itself; one code step at the face's
 level is the floor below which nothing is taken as grain.
 
+On a dark tinted face (black plastic: :func:`dark_tinted_face`) JPEG ringing near the outline is
+as rough as a shadow's grain; there pixels at the face's level and colour are never shadow, the
+sweep is chosen by votes over all directions (:func:`_dark_sweep`), and the dark walls and
+bottoms of its through-holes are found to be opened (:func:`hole_bottoms`).
+
 The pipeline paints the cut pixels with the paper's level and measures the image again, so the
 outline lands on the step between the face and the shadow; where nothing is cut, the warning
 and the term of :mod:`scanmass.segment.shadow`'s check stay.
@@ -42,6 +47,8 @@ __all__ = [
     "HiddenShadow",
     "hidden_shadow",
     "STRETCH_PX",
+    "dark_tinted_face",
+    "hole_bottoms",
 ]
 
 #: Smallest ratio of the shadow's roughness (median over the candidate layer) to the face's
@@ -157,9 +164,25 @@ def shadow_cut(
     >>> [(int(r), int(c)) for r, c in zip(*np.nonzero(cut.cut[:, 22:23]))]
     [(20, 0), (21, 0), (78, 0), (79, 0)]
     """
+    cut, dark = _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=True)
+    if cut is not None or not dark:
+        return cut
+    # refused with the dark face's votes: the general sweep, on every rough pixel
+    return _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=False)[0]
+
+
+def _shadow_cut(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    code_step: np.ndarray | None,
+    use_dark: bool,
+) -> tuple[ShadowCut | None, bool]:
+    """:func:`shadow_cut`, with the dark face's sweep (:func:`_dark_sweep`) where ``use_dark`` and the face is dark; and whether it was."""
     mask8 = part_mask.astype(np.uint8)
     if mask8.sum() < 50:
-        return None
+        return None, False
     paper = np.asarray(paper_rgb, np.float32)
     q = colour_lin.astype(np.float32) / paper
     level = q.mean(axis=2)
@@ -171,7 +194,7 @@ def shadow_cut(
     # the face: deeper than a shadow reaches, or (a narrow part) the deepest quarter of the region
     interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
     if np.count_nonzero(interior) < 50:
-        return None
+        return None, False
     tex_face = float(np.median(rough[interior]))
     floor = 0.01
     if code_step is not None:
@@ -180,18 +203,23 @@ def shadow_cut(
     # a pixel is shadow-like when far rougher than the face, paper-coloured and darkened,
     # and reached from the region's boundary through such pixels
     like = part_mask & (rough > max(2.0 * tex_face, floor)) & neutral & (sm < _MAX_DEPTH) & (inside <= reach_px)
-    count, labels = cv2.connectedComponents(like.astype(np.uint8), connectivity=8)
-    touching = np.unique(labels[part_mask & (inside <= 1.5) & like])
-    like = np.isin(labels, touching[touching > 0])
-    sweep = _sweep_depth(part_mask, like, level, rough, reach_px)
+    dark = use_dark and _is_dark(smooth, interior)
+    alike = _dark_face_alike(smooth, interior) if dark else np.zeros(level.shape, bool)
+    like = _reached(like, part_mask, inside)
+    # on a dark tinted face, the pixels at the face's level and colour are no shadow, however rough
+    dark_like = _reached(like & ~alike, part_mask, inside)
+    sweep = _dark_sweep(part_mask, dark_like, level, rough, reach_px, alike, inside) if dark else None
+    if sweep is None or sweep[1] > reach_px + 1.0:
+        # no sweep by the dark face's votes: the general one (on the layers' shares and profile)
+        sweep = _sweep_depth(part_mask, like, level, rough, reach_px)
     if sweep is None:
-        return None
+        return None, dark
     unit, depth_px, face_like = sweep
     if depth_px > reach_px + 1.0:
-        return None  # longer than a shadow of the part can be: not its shadow
+        return None, dark  # longer than a shadow of the part can be: not its shadow
     cut = _sweep_layer(mask8, depth_px * unit)
     if np.count_nonzero(cut & face_like) > CUT_MAX_FACE_SHARE * np.count_nonzero(cut):
-        return None  # the sweep runs through the face: not a shadow beside it
+        return None, dark  # the sweep runs through the face: not a shadow beside it
     keep = part_mask & ~cut
     # pieces the cut parts from the face (a wall's strip, a shadow's island) are no part
     count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
@@ -202,10 +230,10 @@ def shadow_cut(
         keep &= ~pieces
     n_cut = int(np.count_nonzero(cut))
     if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
-        return None
+        return None, dark
     tex_shadow = float(np.median(rough[cut]))
     if tex_shadow < CUT_MIN_TEXTURE_RATIO * max(tex_face, 1e-4):
-        return None
+        return None, dark
     # a strip of the outline's rim left between the cut and the paper (the shadow's far edge,
     # a whole-pixel sweep short of it) would enclose the cut as a false hole: it goes with the
     # cut, unless that parts the face
@@ -220,7 +248,7 @@ def shadow_cut(
         n_cut = int(np.count_nonzero(cut))
     k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
     border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
-    return ShadowCut(
+    found = ShadowCut(
         cut=cut,
         cut_px=n_cut,
         edge_px=float(np.count_nonzero(border)),
@@ -229,6 +257,55 @@ def shadow_cut(
         level_face=float(np.median(level[keep])),
         level_shadow=float(np.median(level[cut])),
     )
+    return found, dark
+
+
+#: Largest level (share of the paper white) of a face taken as dark (:func:`_dark_face_alike`).
+DARK_FACE_LEVEL = 0.1
+#: Smallest chroma difference (blue minus red over the level, smoothed) between a dark face and
+#: the paper for :func:`_dark_face_alike` to use it.
+_DARK_CHROMA_STEP = 0.05
+#: Largest tint of a dark face taken by :func:`_is_dark` (beyond it: a metal's own colour).
+_DARK_TINT_MAX = 0.5
+
+
+def _reached(like: np.ndarray, part_mask: np.ndarray, inside: np.ndarray) -> np.ndarray:
+    """The pieces of ``like`` reached from the region's boundary (a pixel within 1.5 px of it)."""
+    count, labels = cv2.connectedComponents(like.astype(np.uint8), connectivity=8)
+    touching = np.unique(labels[part_mask & (inside <= 1.5) & like])
+    return np.isin(labels, touching[touching > 0])
+
+
+def _dark_face_alike(smooth: np.ndarray, interior: np.ndarray) -> np.ndarray:
+    """(H, W) bool: pixels as a dark face looks (level and colour), whatever their grain.
+
+    On a dark face (level under :data:`DARK_FACE_LEVEL` of the paper) a JPEG file's ringing
+    near the outline is as rough as a shadow's grain: one 8-bit code is several per cent of
+    the face's level, and the blocks that hold the edge ripple by a few codes. What the
+    ringing keeps is the face's level and colour, smoothed over a few pixels; a cast shadow is
+    the paper in less light, at another level (on the committed spotlight render
+    tests/data/reallight/spot-black-t20 the black bracket's face is 0.031 of the paper, its
+    shadow 0.015) or, where the level is the same, at the paper's colour (that face is 13 %
+    redder than the paper against blue, its shadow 4 %). A pixel within
+    :data:`_LEVEL_STEP_RATIO` of the face's level and nearer the face's colour than the
+    paper's (when the two differ by :data:`_DARK_CHROMA_STEP`) is face-alike. All False on a
+    face brighter than that.
+
+    ``smooth`` is the crop's colour over the paper white (per channel), smoothed; ``interior``
+    the face's pixels.
+    """
+    sm = smooth.mean(axis=2)
+    face_level = float(np.median(sm[interior]))
+    if face_level >= DARK_FACE_LEVEL or face_level <= 0:
+        return np.zeros(sm.shape, bool)
+    ratio = np.maximum(sm, face_level) / np.maximum(np.minimum(sm, face_level), 1e-6)
+    alike = ratio < _LEVEL_STEP_RATIO
+    tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+    face_tint = float(np.median(tint[interior]))
+    if abs(face_tint) >= _DARK_CHROMA_STEP:
+        # the paper's tint is 0 (the colour is taken over its white): nearer the face's
+        alike &= np.abs(tint - face_tint) < np.abs(tint)
+    return alike
 
 
 #: Layers over which the profile must stay past half-way for the face to begin.
@@ -321,6 +398,172 @@ def _sweep_depth(
             best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
             return best_unit, best_depth, face_sure
     return None
+
+
+def dark_tinted_face(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float) -> bool:
+    """Whether a region's face (deeper than ``reach_px``) is dark and tinted as a dark plastic's (:func:`_is_dark`).
+
+    Examples
+    --------
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (60, 60, 1))
+    >>> mask = np.zeros((60, 60), bool); mask[10:50, 10:50] = True
+    >>> img[mask] = 0.03 * paper * np.array([1.15, 1.0, 1.0])  # redder than the paper
+    >>> dark_tinted_face(img, mask, paper, 5.0)
+    True
+    >>> img[mask] = 0.03 * paper  # neutral: a metal's or the shadow's colour
+    >>> dark_tinted_face(img, mask, paper, 5.0)
+    False
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return False
+    q = (colour_lin / np.asarray(paper_rgb)).astype(np.float32)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return False
+    return _is_dark(cv2.GaussianBlur(q, (0, 0), 1.5), interior)
+
+
+#: A hole's bottom is darker than this share of a dark face's level (as :data:`~scanmass.segment.shadow.PIT_DEPTH`).
+BOTTOM_DEPTH = 0.5
+#: Smallest area (px) of a hole's bottom that :func:`hole_bottoms` opens.
+BOTTOM_MIN_PX = 12
+
+
+def hole_bottoms(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray) -> np.ndarray:
+    """(H, W) bool: the dark bottoms and walls of through-holes inside a dark tinted face, to open as holes.
+
+    A through-hole in a thick part shows, inside its top edge, its far wall and its bottom:
+    paper in the wall's shadow, or lit where the light reaches it. A dark plastic face is
+    flat and lies in the light: nothing on it is darker than it but a hole (a cast shadow
+    falls on the paper beside it, not on its top face). So a region inside the face, clear of
+    its outer outline (2 px: the outline's blur), whose median level is under
+    :data:`BOTTOM_DEPTH` of the face's is a hole; its pixels are those (smoothed over 1 px)
+    below half-way between the face's level and the region's, so that painted as paper the hole
+    opens to its top edge. On the committed render tests/data/reallight/spot-black-t20 the
+    black disc's 8 mm deep bore (its bottom in the disc's shadow, 0.45 of the face's level, its
+    wall 0.2) and the bracket's holes (a lit crescent of the bottom, found as a hole, and the
+    rest dark) are such regions. All False for a face that is not dark and tinted
+    (:func:`dark_tinted_face`).
+
+    Examples
+    --------
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (60, 60, 1))
+    >>> mask = np.zeros((60, 60), bool); mask[10:50, 10:50] = True
+    >>> img[mask] = 0.03 * paper * np.array([1.15, 1.0, 1.0])
+    >>> img[25:33, 25:33] = 0.008 * paper  # a hole's dark bottom, 8 px across
+    >>> bottoms = hole_bottoms(img, mask, paper)
+    >>> int(bottoms.sum()), bool(bottoms[25:33, 25:33].all())
+    (64, True)
+    """
+    mask8 = part_mask.astype(np.uint8)
+    none = np.zeros(part_mask.shape, bool)
+    if mask8.sum() < 50:
+        return none
+    q = (colour_lin / np.asarray(paper_rgb)).astype(np.float32)
+    filled = np.zeros_like(mask8)
+    contours, _ = cv2.findContours(mask8, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
+    cv2.drawContours(filled, contours, -1, 1, thickness=-1)
+    from_outline = cv2.distanceTransform(filled, cv2.DIST_L2, 3)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = inside > min(4.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return none
+    smooth = cv2.GaussianBlur(q, (0, 0), 1.5)
+    if not _is_dark(smooth, interior):
+        return none
+    level = cv2.GaussianBlur(q.mean(axis=2), (0, 0), 1.0)
+    face = float(np.median(level[interior]))
+    dark = (level < BOTTOM_DEPTH * face) & (from_outline > 2.0) & (filled > 0)
+    count, labels = cv2.connectedComponents(dark.astype(np.uint8), connectivity=8)
+    out = none.copy()
+    for k in range(1, count):
+        seed = labels == k
+        if np.count_nonzero(seed) < BOTTOM_MIN_PX:
+            continue
+        own = float(np.median(level[seed]))
+        grown = (level < 0.5 * (face + own)) & (from_outline > 2.0) & (filled > 0)
+        n, lab = cv2.connectedComponents(grown.astype(np.uint8), connectivity=8)
+        ids = np.unique(lab[seed])
+        region = np.isin(lab, ids[ids > 0]) & part_mask
+        if np.count_nonzero(region) >= BOTTOM_MIN_PX:
+            out |= region
+    return out
+
+
+def _is_dark(smooth: np.ndarray, interior: np.ndarray) -> bool:
+    """Whether the face (``interior``) is a dark tinted face that :func:`_dark_face_alike` can tell apart.
+
+    Dark: under :data:`DARK_FACE_LEVEL` of the paper. Tinted: its tint (blue minus red over
+    the level, the paper's being 0) at least :data:`_DARK_CHROMA_STEP` from the paper's and
+    at most :data:`_DARK_TINT_MAX` (a dark plastic; a metal's own colour, brass's, lies
+    far beyond it, and a metal under a spotlight is dark too: the steel and brass parts of the
+    committed renders are 0.02-0.06 of the paper, steel at a tint of -0.05 to -0.06, brass
+    +1.07 to +1.09, the black plastic -0.13 to -0.16; on the metals the cut of
+    :func:`_sweep_depth` stays).
+    """
+    sm = smooth.mean(axis=2)
+    face_level = float(np.median(sm[interior]))
+    if not 0 < face_level < DARK_FACE_LEVEL:
+        return False
+    tint = abs(float(np.median(((smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6))[interior])))
+    return 2 * _DARK_CHROMA_STEP <= tint <= _DARK_TINT_MAX
+
+
+def _dark_sweep(
+    part_mask: np.ndarray,
+    like: np.ndarray,
+    level: np.ndarray,
+    rough: np.ndarray,
+    reach_px: float,
+    alike: np.ndarray,
+    inside: np.ndarray,
+) -> tuple[np.ndarray, float, np.ndarray] | None:
+    """:func:`_sweep_depth` for a dark face: the sweep whose layer holds the most shadow votes net.
+
+    A dark part's outline holds more than its shadow that looks rough and neutral: the bottom
+    of a deep hole and, where the wall faces the camera, the lit wall. A sweep askew of the
+    shadow's adds a strip of those along another side, one thin layer per step, so that the
+    share of shadow-like pixels in each new layer (:func:`_sweep_depth`'s direction) stays high
+    for a wrong direction too; the black bracket of the committed render
+    tests/data/reallight/spot-black-t20 was swept 33 degrees askew and 16-20 px deep (its shadow
+    is 10 px wide) and its cut refused. Here the levels of the shadow and the face are taken
+    from the shadow-like pixels at least 2 px inside the outline (off the outline's blur) and
+    from the face's interior, each pixel votes as in :func:`_sweep_depth` (a lit wall, brighter
+    than the face, for the face), and every direction (of 32) and whole-pixel depth up to
+    ``reach_px`` + 1 is scored by the votes its layer holds; :func:`_best_sweep` refines the
+    best one.
+    """
+    mask8 = part_mask.astype(np.uint8)
+    deep = like & (inside >= 2.0)
+    if np.count_nonzero(deep) < 10:
+        deep = like
+    if np.count_nonzero(deep) < 10:
+        return None
+    lv_s, lv_f = float(np.median(level[deep])), float(np.median(level[alike]))
+    rg_s, rg_f = float(np.median(rough[deep])), float(np.median(rough[alike]))
+    smooth = rough <= 0.5 * (rg_s + rg_f)
+    if max(lv_f, lv_s) >= _LEVEL_STEP_RATIO * max(min(lv_f, lv_s), 1e-6):
+        at_face_level = (level - lv_s) * np.sign(lv_f - lv_s) >= 0.5 * abs(lv_f - lv_s)
+        face_sure = at_face_level & smooth
+        vote = np.where(at_face_level, -1.0, np.where(smooth, 0.0, 1.0)).astype(np.float32)
+    else:
+        face_sure = smooth
+        vote = np.where(smooth, -1.0, 1.0).astype(np.float32)
+    best_score, best_step = 0.0, None
+    stop = int(math.ceil(reach_px)) + 2
+    for angle in np.radians(np.arange(0.0, 360.0, 11.25)):
+        direction = np.array([np.cos(angle), np.sin(angle)])
+        total = 0.0
+        for k, new in _new_layers(mask8, direction, stop):
+            total += float(vote[new].sum())
+            if total > best_score:
+                best_score, best_step = total, k * direction
+    if best_step is None or best_score < 2 * STRETCH_PX:
+        return None
+    best_unit, best_depth = _best_sweep(mask8, vote, best_step)
+    return best_unit, best_depth, face_sure
 
 
 def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple[np.ndarray, float]:

@@ -20,12 +20,12 @@ from dataclasses import dataclass, field
 
 import cv2
 import numpy as np
-from skimage.measure import find_contours
 
 from scanmass.errors import OptionError, PartCutError, SegmentationError
 from scanmass.geometry import point_in_ring, signed_area
 from scanmass.load.decode import LoadedImage
-from scanmass.numeric import nonzero_rc, otsu_threshold
+from scanmass.numeric import nonzero_rc, otsu_threshold, sample_points
+from scanmass.segment.contours import level_rings
 
 __all__ = ["PartRings", "Segmentation", "segment"]
 
@@ -198,17 +198,17 @@ def pixel_noise(image: LoadedImage, roi_px: np.ndarray | None = None) -> float:
     if width < 2:
         return 0.0
     step = max(1, int(math.sqrt(height * (width - 1) / _NOISE_PAIRS)))
-    rows = np.arange(0, height, step)
-    cols = np.arange(0, width - 1, step)
-    rr, cc = np.meshgrid(rows, cols, indexing="ij")
+    # the pairs (row, col), (row, col + 1) on a regular grid of rows and columns, as views
+    left, right = (slice(0, height, step), slice(0, width - 1, step)), (slice(0, height, step), slice(1, width, step))
+    codes_l, codes_r = grey[left], grey[right]
     if roi_px is not None:
         inside = np.zeros((height, width), np.uint8)
         cv2.fillPoly(inside, [np.round(np.asarray(roi_px)).astype(np.int32)], 1)
-        keep = inside[rr, cc].astype(bool) & inside[rr, cc + 1].astype(bool)
-        rr, cc = rr[keep], cc[keep]
-    if rr.size < 16:
+        keep = inside[left].astype(bool) & inside[right].astype(bool)
+        codes_l, codes_r = codes_l[keep], codes_r[keep]
+    if codes_l.size < 16:
         return 0.0
-    diff = np.abs(lut[grey[rr, cc + 1]].astype(np.float64) - lut[grey[rr, cc]].astype(np.float64))
+    diff = np.abs(lut[codes_r].astype(np.float64) - lut[codes_l].astype(np.float64))
     mad = 1.4826 * float(np.median(diff))
     # noise below one grey level leaves most differences at 0: then the RMS of the
     # differences without the largest 1 % (edges) takes over
@@ -329,9 +329,10 @@ def segment(
         t_full = cv2.resize(t_enc, (width, height), interpolation=cv2.INTER_LINEAR) if factor > 1 else t_enc
         # the mask overwrites the full-size threshold plane (element-wise: safe in place): one
         # full-size uint8 plane fewer at the peak
+        # 255 for part pixels, 0 elsewhere: findContours takes any non-zero pixel as 1 (no pass
+        # over the full-size plane to make it 1)
         mask = cv2.compare(grey, t_full, cv2.CMP_LT if bright_background else cv2.CMP_GT, dst=t_full)
         del t_full
-        np.minimum(mask, 1, out=mask)
     else:
         t_fixed = np.full((1, 1), int(round(threshold * full_scale)), dtype=grey.dtype)
         mask = ((grey < t_fixed) if bright_background else (grey > t_fixed)).view(np.uint8)
@@ -613,7 +614,7 @@ def _refine_part(
         roi_mask = np.zeros(norm.shape, np.uint8)
         cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px) - [c0 - 1, r0 - 1]).astype(np.int32)], 1)
         norm[~roi_mask.astype(bool)] = 0.0
-    rings = find_contours(norm, contour_level, fully_connected="high")
+    rings = level_rings(norm, contour_level)  # find_contours(norm, level, fully_connected="high")
     closed = []
     for ring in rings:
         if len(ring) < 4 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
@@ -759,9 +760,7 @@ def correct_curvature(ring: np.ndarray, blur_px: float) -> np.ndarray:
 
 
 def _remap(img: np.ndarray, pts_rc: np.ndarray, interpolation: int) -> np.ndarray:
-    map_x = pts_rc[:, 1].astype(np.float32).reshape(-1, 1)
-    map_y = pts_rc[:, 0].astype(np.float32).reshape(-1, 1)
-    return cv2.remap(img, map_x, map_y, interpolation, borderMode=cv2.BORDER_REPLICATE).ravel().astype(np.float64)
+    return sample_points(img, pts_rc[:, 1], pts_rc[:, 0], interpolation).astype(np.float64)
 
 
 def _refine_vertices(norm: np.ndarray, ring_rc: np.ndarray, level: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
