@@ -568,33 +568,33 @@ def _hard_front(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tu
     .. [1] J. Serra, Image Analysis and Mathematical Morphology, Academic Press, 1982
        (a Minkowski sum with a segment: the found region is the face swept along the lamp).
     """
-    axes, contrast = _steep_axes(linear, filled, found)
-    if not axes:
-        return None
+    candidates, contrast, factor = _steep_axes(linear, filled, found)
+    if factor == 1 or not candidates:  # read at full size already
+        return min(candidates, key=lambda c: c[1]) if candidates else None
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
     interior = cv2.erode(found, np.ones((3, 3), np.uint8), iterations=4).astype(bool)
     rows, cols = nonzero_every(interior, max(1, int(np.count_nonzero(interior)) // 20000))
     best: tuple[np.ndarray, int] | None = None
-    for axis in axes:
-        least = max(HARD_FRONT_NOISE * _mad(_axis_gradient(smooth, axis)[rows, cols]), HARD_FRONT_STEP * abs(contrast))
-        along = cv2.GaussianBlur(
-            smooth, (0, 0), sigmaX=STEP_ALONG_PX if axis == 1 else 1e-3, sigmaY=STEP_ALONG_PX if axis == 0 else 1e-3
-        )
-        for sign in (1.0, -1.0):
-            direction = np.zeros(2)
-            direction[axis] = sign
-            length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(found, direction), least)
-            if share >= HARD_FRONT_COVERAGE and (best is None or length < best[1]):
-                best = (direction, length)
+    for direction, _ in candidates:  # the reduced copy's finds, read again at full size
+        axis = int(np.argmax(np.abs(direction)))
+        along = _along_step(smooth, axis)
+        least = max(HARD_FRONT_NOISE * _mad(_axis_gradient(along, axis)[rows, cols]), HARD_FRONT_STEP * abs(contrast))
+        length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(found, direction), least)
+        if share >= HARD_FRONT_COVERAGE and (best is None or length < best[1]):
+            best = (direction, length)
     return best
 
 
-def _axis_gradient(smooth: np.ndarray, axis: int) -> np.ndarray:
-    """|central difference| along the image's x (``axis`` 0) or y (1) axis, the image first averaged along
-    the other axis (along the step, 3 px: a faint step stands out of the noise); 0 on the border."""
-    smooth = cv2.GaussianBlur(
-        smooth, (0, 0), sigmaX=STEP_ALONG_PX if axis == 1 else 1e-3, sigmaY=STEP_ALONG_PX if axis == 0 else 1e-3
+def _along_step(smooth: np.ndarray, axis: int) -> np.ndarray:
+    """The image averaged across the lamp's axis (along a step across it) by :data:`STEP_ALONG_PX`."""
+    across = STEP_ALONG_PX
+    return np.asarray(
+        cv2.GaussianBlur(smooth, (0, 0), sigmaX=across if axis == 1 else 1e-3, sigmaY=across if axis == 0 else 1e-3)
     )
+
+
+def _axis_gradient(smooth: np.ndarray, axis: int) -> np.ndarray:
+    """|central difference| along the image's x (``axis`` 0) or y (1) axis; 0 on the border."""
     grad = np.zeros_like(smooth)
     if axis == 0:
         grad[:, 1:-1] = 0.5 * np.abs(smooth[:, 2:] - smooth[:, :-2])
@@ -603,9 +603,11 @@ def _axis_gradient(smooth: np.ndarray, axis: int) -> np.ndarray:
     return grad
 
 
-def _steep_axes(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tuple[list[int], float]:
-    """The image axes (0: x, 1: y) along which a step crosses nearly every line through the part's interior,
-    and the lid-to-part contrast.
+def _steep_axes(
+    linear: np.ndarray, filled: np.ndarray, found: np.ndarray
+) -> tuple[list[tuple[np.ndarray, int]], float, int]:
+    """The directions (with the shadow's length, px of the copy read) in which a shadow's step lies one length
+    behind the front, the lid-to-part contrast, and the reduction of the copy read (1: full size).
 
     The quick test before :func:`_hard_front` looks for the shadow's length: a step across
     the part (the face's edge against its shadow) leaves a steep pixel in at least
@@ -613,8 +615,11 @@ def _steep_axes(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tu
     in from the outline and the holes); a hole's rim only in the lines that cross the hole,
     noise nowhere (steep: :data:`HARD_FRONT_NOISE` sigmas of the gradient's noise, and
     :data:`HARD_FRONT_STEP` of the contrast: the lid's upper quartile outside the outline
-    less the part's lower quintile inside it, the levels :func:`scan_face` reads). Crops
-    over 100 000 px are read reduced by area averaging (a step across a large part stays one).
+    less the part's lower quintile inside it, the levels :func:`scan_face` reads). Along the
+    axes that pass, both directions are read by :func:`_front_steps`. Crops over 100 000 px
+    are read reduced by area averaging (a step across a large part stays one), and the
+    caller reads the finds again at full size. The image is averaged along the step
+    (:func:`_along_step`) before its gradient is read.
     """
     factor = max(1, int(math.sqrt(linear.size / 100_000.0)))
     lin: np.ndarray = np.asarray(linear, dtype=np.float32)
@@ -628,22 +633,29 @@ def _steep_axes(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tu
     count = int(np.count_nonzero(interior))
     outside = filled == 0
     if count < 50 or np.count_nonzero(outside) < 20:
-        return [], 0.0
+        return [], 0.0, factor
     kept = found.astype(bool)
     lid = np.quantile(lin[nonzero_every(outside, max(1, int(np.count_nonzero(outside)) // 5000))], 0.75)
     part = np.quantile(lin[nonzero_every(kept, max(1, int(np.count_nonzero(kept)) // 5000))], 0.2)
     contrast = float(lid) - float(part)
     # the gradient's noise from a sample of the interior (every k-th pixel, about 5000: a median over a large part is slow)
     rows, cols = nonzero_every(interior, max(1, count // 5000))
-    axes = []
+    found_dirs: list[tuple[np.ndarray, int]] = []
     for axis in (0, 1):
-        grad = _axis_gradient(smooth, axis)
+        along = _along_step(smooth, axis)
+        grad = _axis_gradient(along, axis)
         least = max(HARD_FRONT_NOISE * _mad(grad[rows, cols]), HARD_FRONT_STEP * abs(contrast))
         across = interior.any(axis=1 - axis)
         steep = (interior & (grad >= least)).any(axis=1 - axis)
-        if np.count_nonzero(steep) >= HARD_FRONT_COVERAGE * np.count_nonzero(across):
-            axes.append(axis)
-    return axes, contrast
+        if np.count_nonzero(steep) < HARD_FRONT_COVERAGE * np.count_nonzero(across):
+            continue
+        for sign in (1.0, -1.0):
+            direction = np.zeros(2)
+            direction[axis] = sign
+            length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(found, direction), least)
+            if share >= HARD_FRONT_COVERAGE:
+                found_dirs.append((direction, length))
+    return found_dirs, contrast, factor
 
 
 def _off_face(outer: np.ndarray, found: np.ndarray, direction: np.ndarray, length_px: int) -> np.ndarray:
