@@ -11,7 +11,8 @@ import math
 import cv2
 import numpy as np
 
-from scanmass.segment.deephole import pit_edge
+from scanmass.pipeline.photo_checks import _paint_ring
+from scanmass.segment.deephole import opening_edge, pit_edge
 from scanmass.testing.photos import polygon_coverage
 
 CENTRE = (40.3, 41.7)
@@ -70,3 +71,45 @@ def test_lit_floor_inside_the_opening_is_left_out():
 def test_no_edge_where_the_face_is_not_brighter_than_the_pit():
     lin = np.full((60, 60), 0.01, np.float32)
     assert pit_edge(lin, np.ones(lin.shape, bool), (30.0, 30.0), 10.0) is None
+
+
+def _lit_and_shaded_opening() -> tuple[np.ndarray, np.ndarray]:
+    """A face at 0.05 with an opening whose near half shows lit paper (0.5) and far half a shaded wall (0.004).
+
+    Returns the image and the lit half's pixels (what a segmentation finds as the hole).
+    """
+    shape = (84, 84)
+    hole = polygon_coverage([(_circle(*CENTRE, RADIUS), [])], shape)
+    t = np.linspace(-math.pi / 2, math.pi / 2, 361)
+    half = np.column_stack([CENTRE[0] + RADIUS * np.cos(t), CENTRE[1] + RADIUS * np.sin(t)])  # x >= centre
+    lit = polygon_coverage([(half, [])], shape)
+    shade = hole - lit
+    lin = 0.05 * (1 - hole) + 0.5 * lit + 0.004 * shade
+    lin = cv2.GaussianBlur(lin.astype(np.float32), (0, 0), 0.8)
+    return lin, lit > 0.5
+
+
+def test_whole_opening_is_traced_from_its_lit_part():
+    lin, seed = _lit_and_shaded_opening()
+    part = np.ones(lin.shape, bool) & ~seed
+    edge = opening_edge(lin, part, seed, 2 * RADIUS + 6)
+    assert edge is not None and edge.share > 0.95
+    r, _ = _radii(edge)
+    # down from the lit paper and up from the shaded wall, both on the rim (blur shift 0.03 px,
+    # common practice); the seed alone (a half disc) would give no round opening at all
+    assert abs(float(np.median(r)) - RADIUS) < 0.15
+    assert float(np.percentile(np.abs(r - RADIUS), 90)) < 0.4
+
+
+def test_painted_opening_covers_the_ring_exactly():
+    lut = np.linspace(0.0, 1.0, 256)
+    grey = np.full((60, 60), 40, np.uint8)
+    ring = _circle(30.2, 29.6, 9.3)
+    touched = _paint_ring(grey, lut, ring, np.uint8(240))
+    share = (lut[grey] - lut[40]) / (lut[240] - lut[40])  # how much of each pixel took the painted level
+    # the disc's area (pi r^2, common practice) to within the coverage's 8x8 sampling and the codes' steps
+    assert abs(float(share.sum()) - math.pi * 9.3**2) < 0.01 * math.pi * 9.3**2
+    assert touched.sum() < math.pi * (9.3 + 1.5) ** 2
+    yy, xx = np.mgrid[0:60, 0:60]
+    cx, cy = float((share * xx).sum() / share.sum()), float((share * yy).sum() / share.sum())
+    assert math.hypot(cx - 30.2, cy - 29.6) < 0.02  # centred where the ring is: pixel centres at integers

@@ -23,12 +23,13 @@ from scanmass.pipeline.part_terms import (
     area_share_term,
     change_term,
 )
+from scanmass.raster import coverage
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
 from scanmass.segment.castshadow import hidden_shadow, shadow_cut
-from scanmass.segment.deephole import pit_edge
+from scanmass.segment.deephole import PitEdge, opening_edge, pit_edge
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
     SHADOW_MIN_ELEVATION_DEG,
@@ -473,47 +474,111 @@ DEEP_HOLE_RMS_PX = 1.0
 #: inside the top face's edge. Taken at 1 px on the radius (2 px on the diameter, 1 px on each
 #: coordinate of the centre).
 DEEP_HOLE_EDGE_PX = 1.0
+#: A found hole of a thick part is replaced by its traced opening where their diameters differ by more
+#: than this (px): the found ring then ran on the paper seen through the hole, not on its top edge.
+DEEP_HOLE_REPLACE_PX = 2.0
+
+
+def _top_circle(
+    edge: PitEdge, origin: tuple[int, int], hook: ElevationHook, mm_per_px: float, outline: np.ndarray
+) -> tuple[np.ndarray, float, float, float] | None:
+    """A traced opening on the top face's plane fitted with a trimmed circle: (centre mm, diameter mm, rms px, doubt px).
+
+    None when the fit fails, is not round (:data:`DEEP_HOLE_RMS_PX`) or the circle does not lie
+    inside the part's ``outline`` (mm) with a margin.
+    """
+    if edge.share < DEEP_HOLE_MIN_SHARE or len(edge.points_px) < 12:
+        return None
+    photo = edge.points_px + np.asarray(origin, float)
+    ideal = hook.undistort(photo) if hook.undistort is not None else photo
+    top = apply_h(hook.hh, ideal)  # on the top face's plane: a drilled hole is a circle there
+    keep = np.ones(len(top), bool)
+    try:
+        fit = fit_circle(top)
+        for _ in range(3):  # a trimmed fit: a stretch of lit wall or rim is not the opening's edge
+            off = np.abs(np.hypot(top[:, 0] - fit.centre_mm[0], top[:, 1] - fit.centre_mm[1]) - 0.5 * fit.diameter_mm)
+            keep = off <= max(2.5 * 1.4826 * float(np.median(off)), 0.3 * mm_per_px)
+            fit = fit_circle(top[keep])
+    except OptionError:
+        return None
+    if fit.rms_mm > DEEP_HOLE_RMS_PX * mm_per_px:
+        return None
+    turn = np.linspace(0, 2 * math.pi, 32, endpoint=False)
+    circle = np.asarray(fit.centre_mm) + 0.5 * fit.diameter_mm * np.column_stack([np.cos(turn), np.sin(turn)])
+    if min(cv2.pointPolygonTest(outline, (float(a), float(b)), True) for a, b in circle) < 2 * mm_per_px:
+        return None  # not inside the part's outline with a margin: no hole of this part
+    doubt_px = max(DEEP_HOLE_EDGE_PX, 0.5 * float(np.median(edge.spread_px[keep])))
+    return np.asarray(fit.centre_mm, float), float(fit.diameter_mm), fit.rms_mm / mm_per_px, doubt_px
 
 
 def _deep_hole_circles(
     image: LoadedImage, scale: PhotoScale, part: Part, hook: ElevationHook, lut: np.ndarray
-) -> list[tuple[np.ndarray, float, float]]:
-    """The through-holes a part's dark pits open at its top face: (centre mm, diameter mm, edge doubt px) each."""
+) -> list[tuple[np.ndarray, float, float, np.ndarray | None]]:
+    """The through-holes at a part's top face that its dark pits open, or that its found holes only partly show.
+
+    Each as (centre mm, diameter mm, edge doubt px, the found hole's ring as seen (photo px) or None).
+    A found hole is replaced where its whole opening (:func:`~scanmass.segment.deephole.opening_edge`)
+    fits a circle within :data:`DEEP_HOLE_RMS_PX` whose diameter differs from the found one by more
+    than :data:`DEEP_HOLE_REPLACE_PX`.
+    """
     mm_per_px = scale.plane_map.mm_per_px
     crop = _part_crop(image, scale, part, 4)
-    if crop is None or part.outline_mm is None:
+    seen = _part_crop(image, scale, part, 4, as_seen=True)
+    if crop is None or seen is None or part.outline_mm is None:
         return []
     (x0, y0, x1, y1), mask, _ = crop
     lin = lut[image.grey[y0:y1, x0:x1]]
     outline = np.asarray(part.outline_mm, np.float32)
-    out = []
+    out: list[tuple[np.ndarray, float, float, np.ndarray | None]] = []
     for x, y, d in dark_pits(lin, mask, HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2):
         edge = pit_edge(lin, mask, (x, y), d)
-        if edge is None or edge.share < DEEP_HOLE_MIN_SHARE or len(edge.points_px) < 12:
+        fit = None if edge is None else _top_circle(edge, (x0, y0), hook, mm_per_px, outline)
+        if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
+            out.append((fit[0], fit[1], fit[3], None))
+    (sx0, sy0, sx1, sy1), seen_mask, rings = seen
+    seen_lin = lut[image.grey[sy0:sy1, sx0:sx1]]
+    for hole, ring in zip(part.holes, rings[1:]):
+        seed8 = np.zeros(seen_mask.shape, np.uint8)
+        cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)
+        seed = seed8.astype(bool)
+        r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
+        thick_px = hook.height_mm / mm_per_px
+        edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
+        fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
+        if fit is None or abs(fit[1] - hole.diameter_mm) <= DEEP_HOLE_REPLACE_PX * mm_per_px:
             continue
-        photo = edge.points_px + np.array([x0, y0], float)
-        ideal = hook.undistort(photo) if hook.undistort is not None else photo
-        top = apply_h(hook.hh, ideal)  # on the top face's plane: a drilled hole is a circle there
-        keep = np.ones(len(top), bool)
-        try:
-            fit = fit_circle(top)
-            for _ in range(3):  # a trimmed fit: a stretch of lit wall or rim is not the opening's edge
-                off = np.abs(
-                    np.hypot(top[:, 0] - fit.centre_mm[0], top[:, 1] - fit.centre_mm[1]) - 0.5 * fit.diameter_mm
-                )
-                keep = off <= max(2.5 * 1.4826 * float(np.median(off)), 0.3 * mm_per_px)
-                fit = fit_circle(top[keep])
-        except OptionError:
-            continue
-        if fit.rms_mm > DEEP_HOLE_RMS_PX * mm_per_px or not 0.5 * d <= fit.diameter_mm / mm_per_px <= 4 * d:
-            continue  # not round on the top face's plane, or not the pit's size
-        turn = np.linspace(0, 2 * math.pi, 32, endpoint=False)
-        circle = np.asarray(fit.centre_mm) + 0.5 * fit.diameter_mm * np.column_stack([np.cos(turn), np.sin(turn)])
-        if min(cv2.pointPolygonTest(outline, (float(a), float(b)), True) for a, b in circle) < 2 * mm_per_px:
-            continue  # not inside the part's outline with a margin: no hole of this part
-        doubt_px = max(DEEP_HOLE_EDGE_PX, 0.5 * float(np.median(edge.spread_px[keep])))
-        out.append((np.asarray(fit.centre_mm, float), float(fit.diameter_mm), doubt_px))
+        if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * hole.diameter_mm:
+            continue  # another opening than this hole's
+        out.append((fit[0], fit[1], fit[3], ring + np.array([sx0, sy0], float)))
     return out
+
+
+def _paint_ring(grey: np.ndarray, lut: np.ndarray, ring_px: np.ndarray, level: np.ndarray) -> np.ndarray:
+    """Paint the inside of a ring (photo px, pixel centres at integers) in ``level`` (a code), in place.
+
+    Each pixel takes the level in proportion to the share of it the ring covers (exact coverage,
+    :func:`scanmass.raster.coverage`), mixed in linear light, so the painted edge sits where the
+    ring runs (filling whole pixels would move it out by about half a pixel). Returns the pixels
+    touched.
+    """
+    x0, y0 = np.maximum(np.floor(ring_px.min(axis=0)).astype(int) - 2, 0)
+    x1 = min(int(np.ceil(ring_px[:, 0].max())) + 3, grey.shape[1])
+    y1 = min(int(np.ceil(ring_px[:, 1].max())) + 3, grey.shape[0])
+    touched = np.zeros(grey.shape[:2], bool)
+    if x1 <= x0 or y1 <= y0:
+        return touched
+    # the raster's frame: pixel (r, c) spans x in [c, c + 1], y up from the window's bottom
+    ring = np.column_stack([ring_px[:, 0] - x0 + 0.5, (y1 - y0) - (ring_px[:, 1] - y0 + 0.5)])
+    cover = coverage([ring if signed_area(ring) > 0 else ring[::-1]], shape=(y1 - y0, x1 - x0), mm_per_px=1.0)
+    old = lut[grey[y0:y1, x0:x1]]
+    mixed = cover * float(lut[level]) + (1.0 - cover) * old
+    codes = np.clip(np.searchsorted(lut, mixed), 0, len(lut) - 1)
+    lower = np.maximum(codes - 1, 0)
+    codes = np.where(np.abs(lut[lower] - mixed) < np.abs(lut[codes] - mixed), lower, codes)
+    window = grey[y0:y1, x0:x1]
+    window[cover > 0] = codes[cover > 0].astype(grey.dtype)
+    touched[y0:y1, x0:x1] = cover > 0
+    return touched
 
 
 def _open_deep_holes(
@@ -573,13 +638,17 @@ def _open_deep_holes(
             found.pop(part.label)
             continue
         level = np.asarray(np.median(paper), dtype=grey.dtype)
-        for centre, diameter, _ in found[part.label]:
+        face = grey[own.astype(bool) & ~near[: grey.shape[0], : grey.shape[1]]]
+        for *_, old_ring in found[part.label]:
+            if old_ring is not None and face.size >= 20:  # the found hole's ring is replaced: it becomes face first
+                gone = np.zeros(grey.shape[:2], np.uint8)
+                cv2.fillPoly(gone, [np.round(old_ring).astype(np.int32)], 1)
+                grey[cv2.dilate(gone, np.ones((3, 3), np.uint8)).astype(bool)] = np.median(face).astype(grey.dtype)
+        for centre, diameter, *_ in found[part.label]:
             circle = centre + 0.5 * diameter * np.column_stack([np.cos(turn), np.sin(turn)])
             px = hook.photo_px(apply_h(hook.gh, circle))
-            disc = np.zeros(grey.shape[:2], np.uint8)
-            cv2.fillPoly(disc, [np.round(px).astype(np.int32)], 1)
-            grey[disc.astype(bool)] = level
-            top_seen |= cv2.dilate(disc, np.ones((11, 11), np.uint8)).astype(bool)
+            disc = _paint_ring(grey, lut, px, level)
+            top_seen |= cv2.dilate(disc.astype(np.uint8), np.ones((11, 11), np.uint8)).astype(bool)
     if not found:
         return masked, scale, result, []
     seen_scale = replace(scale, plane_map=with_top_seen(scale.plane_map, top_seen))
@@ -605,7 +674,7 @@ def _open_deep_holes(
         holes = list(new.holes)
         area_mm2 = 0.0
         texts = []
-        for centre, diameter, doubt_px in opened:
+        for centre, diameter, doubt_px, _ in opened:
             k = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, centre), default=None)
             if k is None or math.dist(holes[k].circle_centre_mm, centre) > 0.25 * diameter:
                 return masked, scale, result, []  # the painted opening was not found as a hole: keep it as it was

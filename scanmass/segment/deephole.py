@@ -152,6 +152,8 @@ def pit_edge(
         away = cv2.distanceTransform((~region).astype(np.uint8), cv2.DIST_L2, 3)
         ring = part_mask & (away > 3.0) & (away < 8.0)
     step = face_level - pit_level
+    if region is None:
+        return None
     reach = float(dist[region].max()) + 2 * NEAR_PX + 1.0
     radii = np.arange(0.0, reach, RAY_STEP_PX, dtype=np.float32)
     angles = np.linspace(0.0, 2 * math.pi, rays, endpoint=False)
@@ -193,3 +195,129 @@ def pit_edge(
     return PitEdge(
         np.asarray(pts, float)[good], np.asarray(spread, float)[good], face_level, pit_level, len(good) / rays
     )
+
+
+#: A level within this factor of the face's (either way) is taken as the face's when tracing an opening.
+FACE_BAND = 1.6
+
+
+def opening_edge(
+    lin: np.ndarray,
+    part_mask: np.ndarray,
+    seed: np.ndarray,
+    reach_px: float,
+    *,
+    rays: int = RAYS,
+) -> PitEdge | None:
+    """Trace the border of a hole's whole opening, from the part of it already found (``seed``).
+
+    A hole in a thick part seen at an angle shows, inside its opening at the top face, the
+    paper (lit, or in the wall's shade) and its far wall (lit or shaded): the segmentation
+    finds the part of it that looks like the paper, and the rest looks like neither the paper
+    nor the face. The opening is the region around ``seed`` whose level is not the face's
+    (outside :data:`FACE_BAND` of it), within ``reach_px`` of the seed's centre and its specks
+    filled; on each ray from the seed's centre, the border is the crossing, nearest to where
+    the ray leaves that region, of the midpoint between the face's level and the level just
+    inside (up from a shaded stretch, down from a lit one).
+
+    Parameters
+    ----------
+    lin : (H, W) ndarray
+        The crop's linear light.
+    part_mask : (H, W) bool ndarray
+        The part's pixels (its found holes cleared).
+    seed : (H, W) bool ndarray
+        The found part of the opening (a found hole's pixels).
+    reach_px : float
+        How far from the seed's centre the opening may reach.
+
+    Returns
+    -------
+    PitEdge or None
+        ``pit_level`` is the median level inside the opening; ``share`` the share of rays with
+        a crossing. None without a face around the seed.
+
+    Examples
+    --------
+    >>> yy, xx = np.mgrid[0:80, 0:80]
+    >>> r = np.hypot(xx - 40.0, yy - 40.0)
+    >>> lin = np.where(r < 12.0, np.where(xx < 40, 0.5, 0.004), 0.05).astype(np.float32)  # lit half, shaded half
+    >>> e = opening_edge(lin, r >= 12.0, (r < 12.0) & (xx < 38), 20.0)
+    >>> rr = np.hypot(e.points_px[:, 0] - 40.0, e.points_px[:, 1] - 40.0)
+    >>> bool(abs(np.median(rr) - 12.0) < 0.6), e.share > 0.9
+    (True, True)
+    """
+    img = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), SMOOTH_PX)
+    h, w = img.shape
+    if np.count_nonzero(seed) < 3:
+        return None
+    ys, xs = np.nonzero(seed)
+    cx, cy = float(xs.mean()), float(ys.mean())
+    yy, xx = np.mgrid[0:h, 0:w]
+    dist = np.hypot(xx - cx, yy - cy)
+    away = cv2.distanceTransform((~seed).astype(np.uint8), cv2.DIST_L2, 3)
+    ring = part_mask & (away > 3.0) & (away < 8.0)
+    region: np.ndarray = seed
+    face_level = math.nan
+    for _ in range(2):  # the face beside the seed, then beside the opening it leads to
+        if np.count_nonzero(ring) < 20:
+            return None
+        face_level = float(np.median(img[ring]))
+        if face_level <= 0:
+            return None
+        other = ((img < face_level / FACE_BAND) | (img > face_level * FACE_BAND)) & (dist < reach_px)
+        # closed: where a lit stretch meets a shaded one, the blurred step between them passes the
+        # face's level along a line a pixel wide, which must not cut the opening in two
+        joined = cv2.morphologyEx((other | seed).astype(np.uint8), cv2.MORPH_CLOSE, np.ones((3, 3), np.uint8))
+        count, labels = cv2.connectedComponents(joined, connectivity=8)
+        hit = labels[seed]
+        hit = hit[hit > 0]
+        if count < 2 or hit.size == 0:
+            return None
+        own = np.zeros((h + 2, w + 2), np.uint8)
+        own[1:-1, 1:-1] = labels == np.bincount(hit).argmax()
+        cv2.floodFill(own, None, (0, 0), 2)
+        region = own[1:-1, 1:-1] != 2
+        away = cv2.distanceTransform((~region).astype(np.uint8), cv2.DIST_L2, 3)
+        ring = part_mask & (away > 3.0) & (away < 8.0)
+    reach = float(dist[region].max()) + 2 * NEAR_PX + 1.0
+    radii = np.arange(0.0, reach, RAY_STEP_PX, dtype=np.float32)
+    angles = np.linspace(0.0, 2 * math.pi, rays, endpoint=False)
+    map_x = (cx + np.cos(angles)[:, None] * radii[None, :]).astype(np.float32)
+    map_y = (cy + np.sin(angles)[:, None] * radii[None, :]).astype(np.float32)
+    profiles = cv2.remap(img, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    inside = cv2.remap(region.astype(np.float32), map_x, map_y, cv2.INTER_NEAREST, borderValue=0.0) > 0.5
+    near = int(NEAR_PX / RAY_STEP_PX)
+    pts, spread = [], []
+    for k in range(rays):
+        out = np.flatnonzero(~inside[k])
+        if len(out) == 0 or out[0] < near:
+            continue
+        edge = int(out[0])
+        if edge + near >= len(radii):
+            continue
+        # the level just inside: the stretch (twice NEAR_PX long: a blurred step's half width and
+        # more) of the last samples before the
+        # ray's exit that lie outside the face's band, at its extreme (a blurred step's plateau)
+        prof = profiles[k]
+        j0 = edge - 1
+        while j0 > 0 and face_level / FACE_BAND <= prof[j0] <= face_level * FACE_BAND:
+            j0 -= 1
+        plateau = prof[max(j0 - 2 * near, 0) : j0 + 1]
+        sign = 1.0 if prof[j0] < face_level else -1.0  # up from a shade, down from a lit stretch
+        before = float(plateau.min() if sign > 0 else plateau.max())
+        lo_i, hi_i = max(edge - near, 1), edge + near
+        seg = sign * profiles[k, lo_i - 1 : hi_i + 1]
+        levels = [
+            _crossing_near(seg, sign * (before + f * (face_level - before)), edge - lo_i + 1) for f in (0.5, 0.3, 0.7)
+        ]
+        if not math.isfinite(levels[0]):
+            continue
+        r = (lo_i - 1 + levels[0]) * RAY_STEP_PX
+        pts.append((cx + math.cos(angles[k]) * r, cy + math.sin(angles[k]) * r))
+        lo, hi = levels[1], levels[2]
+        spread.append(abs(hi - lo) * RAY_STEP_PX if math.isfinite(lo) and math.isfinite(hi) else 2.0 * NEAR_PX)
+    if not pts:
+        return None
+    pit_level = float(np.median(img[region]))
+    return PitEdge(np.asarray(pts, float), np.asarray(spread, float), face_level, pit_level, len(pts) / rays)
