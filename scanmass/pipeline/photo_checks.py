@@ -474,8 +474,10 @@ DEEP_HOLE_RMS_PX = 1.0
 #: inside the top face's edge. Taken at 1 px on the radius (2 px on the diameter, 1 px on each
 #: coordinate of the centre).
 DEEP_HOLE_EDGE_PX = 1.0
-#: A found hole of a thick part is replaced by its traced opening where their diameters differ by more
+#: A found hole of a thick part is replaced by its traced opening where the opening is wider by more
 #: than this (px): the found ring then ran on the paper seen through the hole, not on its top edge.
+#: A narrower opening is not taken: where the far wall looks like the face (black plastic), the
+#: trace stops at the wall's foot, which the found ring already reads as the bottom edge.
 DEEP_HOLE_REPLACE_PX = 2.0
 
 
@@ -518,8 +520,8 @@ def _deep_hole_circles(
 
     Each as (centre mm, diameter mm, edge doubt px, the found hole's ring as seen (photo px) or None).
     A found hole is replaced where its whole opening (:func:`~scanmass.segment.deephole.opening_edge`)
-    fits a circle within :data:`DEEP_HOLE_RMS_PX` whose diameter differs from the found one by more
-    than :data:`DEEP_HOLE_REPLACE_PX`.
+    fits a circle within :data:`DEEP_HOLE_RMS_PX` wider than the found one by more than
+    :data:`DEEP_HOLE_REPLACE_PX`.
     """
     mm_per_px = scale.plane_map.mm_per_px
     crop = _part_crop(image, scale, part, 4)
@@ -545,8 +547,8 @@ def _deep_hole_circles(
         thick_px = hook.height_mm / mm_per_px
         edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
         fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
-        if fit is None or abs(fit[1] - hole.diameter_mm) <= DEEP_HOLE_REPLACE_PX * mm_per_px:
-            continue
+        if fit is None or fit[1] - hole.diameter_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
+            continue  # (a smaller opening: a far wall that looks like the face, which the found ring has right)
         if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * hole.diameter_mm:
             continue  # another opening than this hole's
         out.append((fit[0], fit[1], fit[3], ring + np.array([sx0, sy0], float)))
