@@ -532,7 +532,10 @@ def _deep_hole_circles(
     lin = lut[image.grey[y0:y1, x0:x1]]
     outline = np.asarray(part.outline_mm, np.float32)
     out: list[tuple[np.ndarray, float, float, np.ndarray | None]] = []
-    for x, y, d in dark_pits(lin, mask, HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2):
+    # looked for on the image with its specks taken out (a path tracer's fireflies, a sensor's noise in
+    # the shade break a deep hole's dark bottom into pieces too small to be a pit)
+    calm = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), 1.0)
+    for x, y, d in dark_pits(calm, mask, HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2):
         edge = pit_edge(lin, mask, (x, y), d)
         fit = None if edge is None else _top_circle(edge, (x0, y0), hook, mm_per_px, outline)
         if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
