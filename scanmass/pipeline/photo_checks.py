@@ -468,11 +468,11 @@ DEEP_HOLE_MIN_SHARE = 0.3
 DEEP_HOLE_RMS_PX = 1.0
 #: The stated doubt (1 sigma, px) of where a deep hole's traced opening runs, at least; a wider
 #: edge (half the distance between its 30 % and 70 % crossings) counts instead. On the committed
-#: renders (tests/data/reallight, thickness given: steel bracket and cam, black plastic bracket
-#: and disc; 6 holes) the measured diameters lie -0.16 to +1.03 px (-0.06 to +0.35 mm) off and
-#: the centres 0.19-1.34 px off: the opening's rim catches light, or its shade ends a little
-#: inside the top face's edge. Taken at 1 px on the radius (2 px on the diameter, 1 px on each
-#: coordinate of the centre).
+#: renders (tests/data/reallight, thickness given; steel bracket and cam, black plastic bracket
+#: and disc, brass plate and disc: 8 holes opened) the measured diameters lie -1.55 to -0.20 px
+#: (-0.63 to -0.07 mm) off and the centres 0.23-1.29 px: the opening's rim catches light, or its
+#: shade ends a little inside the top face's edge. Taken at 1 px on the radius (2 px on the
+#: diameter, 1 px on each coordinate of the centre).
 DEEP_HOLE_EDGE_PX = 1.0
 #: A found hole of a thick part is replaced by its traced opening where the opening is wider by more
 #: than this (px): the found ring then ran on the paper seen through the hole, not on its top edge.
@@ -532,10 +532,16 @@ def _deep_hole_circles(
     lin = lut[image.grey[y0:y1, x0:x1]]
     outline = np.asarray(part.outline_mm, np.float32)
     out: list[tuple[np.ndarray, float, float, np.ndarray | None]] = []
-    # looked for on the image with its specks taken out (a path tracer's fireflies, a sensor's noise in
-    # the shade break a deep hole's dark bottom into pieces too small to be a pit)
+    # also looked for on the image with its specks taken out (a path tracer's fireflies, a sensor's
+    # noise in the shade break a deep hole's dark bottom into pieces too small to be a pit), where
+    # the image as it is shows none
+    min_px = HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2
+    pits = dark_pits(lin, mask, min_px)
     calm = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), 1.0)
-    for x, y, d in dark_pits(calm, mask, HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2):
+    pits += [
+        p for p in dark_pits(calm, mask, min_px) if all(math.dist(p[:2], q[:2]) > 0.5 * (p[2] + q[2]) for q in pits)
+    ]
+    for x, y, d in pits:
         edge = pit_edge(lin, mask, (x, y), d)
         fit = None if edge is None else _top_circle(edge, (x0, y0), hook, mm_per_px, outline)
         if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
