@@ -476,9 +476,16 @@ DEEP_HOLE_RMS_PX = 1.0
 DEEP_HOLE_EDGE_PX = 1.0
 #: A found hole of a thick part is replaced by its traced opening where the opening is wider by more
 #: than this (px): the found ring then ran on the paper seen through the hole, not on its top edge.
-#: A narrower opening is not taken: where the far wall looks like the face (black plastic), the
-#: trace stops at the wall's foot, which the found ring already reads as the bottom edge.
+#: A narrower opening only replaces a found ring less round than :data:`DEEP_HOLE_UNROUND_PX` (the
+#: largest distance from its circle) with a fit within :data:`DEEP_HOLE_CLEAN_RMS_PX`: where the
+#: far wall looks like the face (black plastic), the trace stops at the wall's foot, which the found
+#: ring (round, 0.7-1.2 px on the renders) already reads as the bottom edge; a lit brass wall taken
+#: in with the paper makes the found ring 7-16 px out of round (tests/data/reallight).
 DEEP_HOLE_REPLACE_PX = 2.0
+#: See :data:`DEEP_HOLE_REPLACE_PX` (px).
+DEEP_HOLE_UNROUND_PX = 3.0
+#: See :data:`DEEP_HOLE_REPLACE_PX` (px, rms of the opening's circle fit).
+DEEP_HOLE_CLEAN_RMS_PX = 0.5
 
 
 def _top_circle(
@@ -521,7 +528,7 @@ def _deep_hole_circles(
     Each as (centre mm, diameter mm, edge doubt px, the found hole's ring as seen (photo px) or None).
     A found hole is replaced where its whole opening (:func:`~scanmass.segment.deephole.opening_edge`)
     fits a circle within :data:`DEEP_HOLE_RMS_PX` wider than the found one by more than
-    :data:`DEEP_HOLE_REPLACE_PX`.
+    :data:`DEEP_HOLE_REPLACE_PX`, or narrower than a found ring that is no circle.
     """
     mm_per_px = scale.plane_map.mm_per_px
     crop = _part_crop(image, scale, part, 4)
@@ -556,8 +563,17 @@ def _deep_hole_circles(
         thick_px = hook.height_mm / mm_per_px
         edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
         fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
-        if fit is None or fit[1] - hole.diameter_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
-            continue  # (a smaller opening: a far wall that looks like the face, which the found ring has right)
+        if fit is None:
+            continue
+        wider = fit[1] - hole.diameter_mm > DEEP_HOLE_REPLACE_PX * mm_per_px
+        # a narrower opening only in place of a found ring that is no circle (a lit wall taken in with
+        # the paper) and from a clean fit: where a far wall looks like the face (black plastic), the
+        # trace stops at its foot, which a round found ring already reads as the bottom edge
+        narrower = fit[1] < hole.diameter_mm and (
+            hole.roundness_mm > DEEP_HOLE_UNROUND_PX * mm_per_px and fit[2] <= DEEP_HOLE_CLEAN_RMS_PX
+        )
+        if not (wider or narrower):
+            continue
         if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * hole.diameter_mm:
             continue  # another opening than this hole's
         out.append((fit[0], fit[1], fit[3], ring + np.array([sx0, sy0], float)))
