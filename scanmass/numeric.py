@@ -13,7 +13,16 @@ import warnings
 import cv2
 import numpy as np
 
-__all__ = ["nonzero_rc", "nonzero_every", "flat_rc", "combine", "otsu_threshold", "sample_points", "nanmedian_rows"]
+__all__ = [
+    "nonzero_rc",
+    "nonzero_every",
+    "flat_rc",
+    "combine",
+    "otsu_threshold",
+    "sample_points",
+    "nanmedian_rows",
+    "median_1d",
+]
 
 #: Points per row of the map :func:`sample_points` hands to ``cv2.remap``.
 SAMPLE_ROW = 256
@@ -189,3 +198,26 @@ def nanmedian_rows(a: np.ndarray) -> np.ndarray:
         out = np.true_divide(np.add(np.add(a.dtype.type(0), low), high), a.dtype.type(2))
     out[n == 0] = np.nan
     return out
+
+
+def median_1d(values: np.ndarray) -> np.float64:
+    """``np.median`` of a short 1-D float64 array, without its general-axis machinery.
+
+    The middle one or two of the values by ``np.partition``, averaged as numpy's mean does
+    it (the sum started from 0, so -0 becomes +0, then divided by the count): the same
+    float. Arrays with a NaN, empty ones and other dtypes or shapes are numpy's own.
+
+    Examples
+    --------
+    >>> median_1d(np.array([3.0, 1.0, 2.0, 10.0])), median_1d(np.array([-0.0]))
+    (np.float64(2.5), np.float64(0.0))
+    """
+    x = np.asarray(values)
+    n = x.size
+    if x.ndim != 1 or n == 0 or x.dtype != np.float64 or np.isnan(x).any():
+        return np.float64(np.median(x))
+    k = n // 2
+    if n % 2:
+        return np.float64(0.0) + np.partition(x, k)[k]
+    part = np.partition(x, [k - 1, k])
+    return (np.float64(0.0) + part[k - 1] + part[k]) / np.float64(2.0)

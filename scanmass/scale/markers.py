@@ -19,6 +19,7 @@ import numpy as np
 
 from scanmass.errors import ScaleError
 from scanmass.load.decode import LoadedImage, lookup
+from scanmass.numeric import median_1d
 from scanmass.scale.edges import Line, fit_line, intersect_lines, side_frame, window_centroid
 from scanmass.scale.homography import apply_h
 from scanmass.scale.markerfind import ExpectedQuads, find_markers
@@ -241,7 +242,7 @@ def _refine_corners(
             p0, direction, res = line
             residuals.append(res)
             # sigma of the blur from the clipped derivative's spread (rough; for checks only)
-            blur[i, k] = float(np.sqrt(max(np.median(var[good]) - step**2 / 12, 0.0)) * 1.25)
+            blur[i, k] = float(np.sqrt(max(median_1d(var[good]) - step**2 / 12, 0.0)) * 1.25)
             lines.append((p0, direction))
         if len(lines) < 4:
             ok[i] = False
