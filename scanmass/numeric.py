@@ -8,11 +8,21 @@ stage and for finding a paper sheet by the scale stage).
 from __future__ import annotations
 
 import math
+import warnings
 
 import cv2
 import numpy as np
 
-__all__ = ["nonzero_rc", "nonzero_every", "flat_rc", "combine", "otsu_threshold", "sample_points"]
+__all__ = [
+    "nonzero_rc",
+    "nonzero_every",
+    "flat_rc",
+    "combine",
+    "otsu_threshold",
+    "sample_points",
+    "nanmedian_rows",
+    "median_1d",
+]
 
 #: Points per row of the map :func:`sample_points` hands to ``cv2.remap``.
 SAMPLE_ROW = 256
@@ -155,3 +165,59 @@ def sample_points(
         map_y = np.concatenate([map_y, np.zeros(rows * width - n, np.float32)])
     out = cv2.remap(image, map_x.reshape(rows, width), map_y.reshape(rows, width), interpolation, borderMode=border)
     return out.ravel()[:n].reshape(shape)
+
+
+def nanmedian_rows(a: np.ndarray) -> np.ndarray:
+    """``np.nanmedian(a, axis=1)`` of a 2-D float array, NaN for an all-NaN row (without the warning).
+
+    Each row sorted (NaN last, as numpy sorts), then the middle one of its ``n`` numbers,
+    or the mean of the middle two, as ``(0 + low + high) / 2`` in the array's own precision:
+    the arithmetic of numpy's median of a short row, so the values are the same, without
+    the masked-array machinery numpy uses for rows shorter than 600 (longer rows and
+    empty ones are numpy's own).
+
+    Examples
+    --------
+    >>> nanmedian_rows(np.array([[1.0, np.nan, 3.0, 2.0], [4.0, 1.0, np.nan, np.nan], [np.nan] * 4]))
+    array([2. , 2.5, nan])
+    """
+    a = np.asarray(a)
+    if a.ndim != 2 or a.dtype.kind != "f":
+        raise ValueError("nanmedian_rows takes a 2-D float array")
+    if a.shape[1] == 0 or a.shape[1] >= 600:  # numpy's other path (0 + low + high does not hold there for -0)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return np.nanmedian(a, axis=1)
+    ordered = np.sort(a, axis=1)
+    n = a.shape[1] - np.count_nonzero(np.isnan(a), axis=1)
+    rows = np.arange(a.shape[0])
+    low = ordered[rows, np.maximum(n - 1, 0) // 2]  # equal to high for an odd count: (x + x) / 2 is x
+    high = ordered[rows, n // 2]  # n // 2 < the row's length whenever it has one
+    # numpy sums the pair from zero: 0 + low + high (the same for every value but -0, which becomes +0)
+    with np.errstate(invalid="ignore"):  # -inf and inf: NaN, as numpy gives
+        out = np.true_divide(np.add(np.add(a.dtype.type(0), low), high), a.dtype.type(2))
+    out[n == 0] = np.nan
+    return out
+
+
+def median_1d(values: np.ndarray) -> np.float64:
+    """``np.median`` of a short 1-D float64 array, without its general-axis machinery.
+
+    The middle one or two of the values by ``np.partition``, averaged as numpy's mean does
+    it (the sum started from 0, so -0 becomes +0, then divided by the count): the same
+    float. Arrays with a NaN, empty ones and other dtypes or shapes are numpy's own.
+
+    Examples
+    --------
+    >>> median_1d(np.array([3.0, 1.0, 2.0, 10.0])), median_1d(np.array([-0.0]))
+    (np.float64(2.5), np.float64(0.0))
+    """
+    x = np.asarray(values)
+    n = x.size
+    if x.ndim != 1 or n == 0 or x.dtype != np.float64 or np.isnan(x).any():
+        return np.float64(np.median(x))
+    k = n // 2
+    if n % 2:
+        return np.float64(0.0) + np.partition(x, k)[k]
+    part = np.partition(x, [k - 1, k])
+    return (np.float64(0.0) + part[k - 1] + part[k]) / np.float64(2.0)

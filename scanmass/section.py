@@ -465,12 +465,24 @@ def _prepare_section(outer: np.ndarray, holes: Sequence[np.ndarray]) -> tuple[np
     return out, rings
 
 
-def _section_moments(rings: Sequence[np.ndarray], ref: np.ndarray) -> np.ndarray:
-    """Summed signed moments of oriented rings about ``ref``."""
-    total = np.zeros(6, dtype=np.float64)
+def _ring_moments(rings: Sequence[np.ndarray]) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Each oriented ring's mean vertex and its moments about it (:func:`_section_moments`'s first step)."""
+    out = []
     for r in rings:
         local_ref = r.mean(axis=0)
-        m = _local_moments(r - local_ref)
+        out.append((local_ref, _local_moments(r - local_ref)))
+    return out
+
+
+def _section_moments(
+    rings: Sequence[np.ndarray], ref: np.ndarray, local: list[tuple[np.ndarray, np.ndarray]] | None = None
+) -> np.ndarray:
+    """Summed signed moments of oriented rings about ``ref``.
+
+    ``local``: :func:`_ring_moments` of the rings when already known (they do not depend on ``ref``).
+    """
+    total = np.zeros(6, dtype=np.float64)
+    for local_ref, m in _ring_moments(rings) if local is None else local:
         total += _shift_moments(m, float(local_ref[0] - ref[0]), float(local_ref[1] - ref[1]))
     return total
 
@@ -559,7 +571,8 @@ def section_properties(
     extent = np.concatenate([out, *added]) if added else out
 
     ref = out.mean(axis=0)
-    m = _section_moments(rings, ref)
+    local = _ring_moments(rings)
+    m = _section_moments(rings, ref, local)
     area = float(m[0])
     if not area > 0.0:
         raise OptionError(
@@ -569,7 +582,7 @@ def section_properties(
     centroid = ref + m[1:3] / area
     # second pass about the centroid: the first moments are now ~0 and the
     # parallel-axis correction below only removes their rounding residue
-    mc = _section_moments(rings, centroid)
+    mc = _section_moments(rings, centroid, local)
     xmin, ymin = (float(v) for v in extent.min(axis=0))
     xmax, ymax = (float(v) for v in extent.max(axis=0))
     if hull:
@@ -666,12 +679,21 @@ def _row_means(v: np.ndarray) -> np.ndarray:
     return np.cumsum(v, axis=1)[:, -1] / v.shape[1]
 
 
-def _batch_section_moments(rings: Sequence[tuple[np.ndarray, np.ndarray]], ref: np.ndarray) -> np.ndarray:
-    """:func:`_section_moments` of K versions of a section: rings as (x, y) planes (K, N_r), ``ref`` (2, K)."""
-    total = np.zeros((6, ref.shape[1]), dtype=np.float64)
+def _batch_ring_moments(
+    rings: Sequence[tuple[np.ndarray, np.ndarray]],
+) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """Each ring's row means and its moments about them (:func:`_ring_moments` of K versions): (mx, my, (6, K))."""
+    out = []
     for x, y in rings:
         mx, my = _row_means(x), _row_means(y)
-        a, qx, qy, ixx, iyy, ixy = _batch_local_moments(x - mx[:, None], y - my[:, None])
+        out.append((mx, my, _batch_local_moments(x - mx[:, None], y - my[:, None])))
+    return out
+
+
+def _batch_section_moments(local: Sequence[tuple[np.ndarray, np.ndarray, np.ndarray]], ref: np.ndarray) -> np.ndarray:
+    """:func:`_section_moments` of K versions of a section from their :func:`_batch_ring_moments`, ``ref`` (2, K)."""
+    total = np.zeros((6, ref.shape[1]), dtype=np.float64)
+    for mx, my, (a, qx, qy, ixx, iyy, ixy) in local:
         x0, y0 = mx - ref[0], my - ref[1]
         total += np.array(
             [
@@ -731,11 +753,12 @@ def sampled_figures(samples: Sequence[tuple[np.ndarray, Sequence[np.ndarray]]]) 
     if any(b.any() for b in bounds):
         return None
     ref = np.array([_row_means(ox), _row_means(oy)])
-    m = _batch_section_moments(rings, ref)
+    local = _batch_ring_moments(rings)  # about each ring's own mean: the same for both passes
+    m = _batch_section_moments(local, ref)
     if not np.all(m[0] > 0.0):
         return None
     centroid = ref + m[1:3] / m[0]
-    mc = _batch_section_moments(rings, centroid)
+    mc = _batch_section_moments(local, centroid)
     perimeter = sum(np.hypot(np.roll(x, -1, axis=1) - x, np.roll(y, -1, axis=1) - y).sum(axis=1) for x, y in rings)
     return [
         _from_moments(

@@ -12,7 +12,6 @@ import csv
 import io
 import json
 import math
-import re
 from pathlib import Path
 
 import pytest
@@ -268,24 +267,29 @@ def test_metal_edge_that_looks_like_paper_is_warned_and_covered(name, thickness,
     "name, thickness, shape",
     [("spot-steel-t0.json", 6.0, "cam"), ("window-steel-t25.json", 5.0, "l-bracket")],
 )
-def test_deep_hole_that_looks_dark_is_warned(name, thickness, shape):
-    """Holes 5.5-8 mm wide in parts 5-8 mm thick under a spotlight or window light: their bottoms lie
-    in the walls' shadow and look darker than the part, so the outline does not open them. Each is
-    named in the 'possible hidden hole' warning with a pit inside the true hole (the render's
-    truth), and the part's stated area uncertainty covers the missing hole's area."""
+def test_deep_hole_that_looks_dark_is_opened_at_its_top_face(name, thickness, shape):
+    """Holes 5.5-8 mm wide in parts 4-8 mm thick under a spotlight or window light: their walls and
+    bottoms lie in shade and look darker than the part, so the outline did not open them (they were
+    only flagged as possible hidden holes). With the thickness given, the dark opening's edge mapped
+    onto the top face's plane is a circle: each hole is now measured, named in the 'deep hole'
+    warning with the term 'deep_hole', its diameter within 0.6 mm of the true one (bench_reallight:
+    -0.35 to -0.25 mm; the term alone states 0.6-0.8 mm at 1 sigma) and within 3 stated sigma, and the part's
+    area within 3 stated sigma (truth: the render's outlines, shapely)."""
     if not REALLIGHT.exists():
         pytest.skip("tests/data/reallight not in this checkout")
     m, parts = _measure_render(name, thickness)
     tp = next(p for p in parts if p["shape"] == shape)
     part = _nearest(m, tp)
-    warning = next(w for w in m.warnings if w.startswith("possible hidden hole:"))
+    warning = next(w for w in m.warnings if w.startswith("deep hole:"))
     assert f"part {part.label} (" in warning
-    mine = re.split(r"\), part |\): ", warning.split(f"part {part.label} (a pit ")[1])[0]
-    pits = re.findall(r"across at \(([-\d.]+), ([-\d.]+)\) mm", mine)
+    assert part.uncertainty_terms["deep_hole"]["area_mm2"] > 0
+    assert not any(f"part {part.label} (a pit" in w for w in m.warnings if w.startswith("possible hidden hole:"))
     for centre, diameter in tp["holes"]:
-        assert not any(math.dist(h.circle_centre_mm, centre) < 2.0 for h in part.holes)  # not opened as a hole ...
-        assert any(math.dist((float(x), float(y)), centre) < diameter / 2 for x, y in pits)  # ... but a pit inside it
-        assert part.uncertainty_terms["hidden_hole"]["area_mm2"] >= 0.5 * math.pi * diameter**2 / 4
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 1.0
+        assert abs(hole.diameter_mm - diameter) < 0.6
+        assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+    assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
 
 
 @pytest.mark.slow
@@ -371,7 +375,7 @@ def test_white_part_beside_a_black_one_leaves_only_named_shadows():
     the bracket is measured within 3 stated sigma with both deep holes opened at their top edges
     (their dark walls and bottoms inside the dark face: castshadow.hole_bottoms; before, they were
     named as pits and missed), each within 1 mm and 3 stated sigma (bench_reallight: -0.60 /
-    -0.72 mm); the regions found where the disc is (its shadow, its hole's bottom) are named as
+    -0.01 mm); the regions found where the disc is (its shadow, its hole's bottom) are named as
     shadows alone (truth: the render's outlines, shapely)."""
     if not REALLIGHT.exists():
         pytest.skip("tests/data/reallight not in this checkout")

@@ -21,7 +21,7 @@ import scanmass
 from scanmass.cli.app import app
 from scanmass.errors import SegmentationError
 from scanmass.segment.lidgap import lid_gap
-from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan, save_scan
+from scanmass.testing.scans import SynthPart, circle, l_section, rectangle, render_scan, save_scan
 
 HEIGHT_MM = 60.0
 
@@ -116,7 +116,8 @@ def _nearest(m, centroid):
 @pytest.mark.slow
 def test_black_parts_scan_measures_the_face_on_the_glass():
     """Black plastic 3 and 8 mm thick under a lid 8 mm up, lamp at 40 degrees: the shadow on the lid
-    (9.5 mm long) is left out; the L bracket is within 3 sigma, its holes too."""
+    (9.5 mm long) is left out; the L bracket is within 3 sigma, its holes too, and the cam's deep bore
+    is found."""
     from scanmass.load.decode import load_image
     from scanmass.pipeline import measure_image
 
@@ -133,10 +134,15 @@ def test_black_parts_scan_measures_the_face_on_the_glass():
         assert abs(c - t) <= 3 * u
     assert "scan_shadow" in part.uncertainty_terms
     assert sorted(h.diameter_mm for h in part.holes) == pytest.approx(sorted(bracket["holes"]), abs=0.15)
-    # the cam's bore (8 mm deep, 8 mm across) stays dark: missed, and the warning says holes may be
+    # the cam's bore (8 mm deep, 8 mm across) is as dark as the face (the lid seen through it, in the dark):
+    # found by its floor's grain, within 0.15 mm of its diameter (measured -0.11 mm; missed before, which
+    # left the cam +5.3 % in area at 3.0 sigma); the cam within 1 % and 3 sigma (measured +0.35 %)
     cam = next(p for p in parts if p["shape"] == "cam")
-    assert _nearest(m, cam["centroid"]).holes == []
-    assert any("can look as dark as the part" in w and "check the holes" in w for w in m.warnings)
+    found = _nearest(m, cam["centroid"])
+    assert [h.diameter_mm for h in found.holes] == pytest.approx(cam["holes"], abs=0.15)
+    assert abs(found.holes[0].diameter_mm - cam["holes"][0]) <= 3 * found.holes[0].diameter_u_mm
+    assert abs(found.area_mm2 - cam["area"]) <= min(0.01 * cam["area"], 3 * found.area_u_mm2)
+    assert any("found by the grain of their floor" in w and "check them" in w for w in m.warnings)
     # without the face check the outlines hold the shadows: 40-60 % too large (the test can fail)
     plain = measure_image(load_image(image, dpi=dpi), scanmass.MeasureOptions(dpi=dpi))
     assert _nearest(plain, bracket["centroid"]).area_mm2 > 1.4 * bracket["area"]
@@ -187,12 +193,14 @@ def test_clean_scans_have_no_shadow():
 # ---------------------------------------------------------------------------------
 
 
-def _shadow_scan(part: SynthPart, shadow_mm: float, *, shadow: float, dpi: float = 300.0, seed: int = 1):
+def _shadow_scan(
+    part: SynthPart, shadow_mm: float, *, shadow: float, soft_px: float = 5.0, dpi: float = 300.0, seed: int = 1
+):
     """A dark part (0.04) on the lid (0.85) with its shadow (level ``shadow``) cast along +y.
 
     The shadow is the part's outline swept ``shadow_mm`` along +y (parallel light from a lamp
     travelling with the carriage, the lid resting on the part), its outer end blurred by
-    5 px (the lamp's size, the lid out of focus); then the optics' 0.8 px blur, noise and
+    ``soft_px`` (the lamp's size, the lid out of focus); then the optics' 0.8 px blur, noise and
     sRGB encoding. Coverage of each pixel is exact (scanmass.testing.scans.part_coverage).
     """
     import cv2
@@ -204,7 +212,7 @@ def _shadow_scan(part: SynthPart, shadow_mm: float, *, shadow: float, dpi: float
     cov = part_coverage([part], shape=shape, mm_per_px=s)
     swept = [SynthPart(part.outer_mm + [0.0, t]) for t in np.linspace(0.0, shadow_mm, 41)]
     shade = np.max([part_coverage([p], shape=shape, mm_per_px=s) for p in swept], axis=0)
-    shade = cv2.GaussianBlur(shade, (0, 0), 5.0)
+    shade = cv2.GaussianBlur(shade, (0, 0), soft_px)
     lid = 0.85 - (0.85 - shadow) * shade
     lin = cv2.GaussianBlur(0.04 * cov + lid * (1.0 - cov), (0, 0), 0.8)
     lin = np.clip(lin + np.random.default_rng(seed).normal(0.0, 0.004, lin.shape), 0.0, 1.0)
@@ -315,14 +323,130 @@ def test_the_sweep_finds_the_face_whichever_way_the_lamp_shines():
         assert len(found.holes) == 2, turns
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="a shadow front blurred by only 3 px is not seen as soft: no shadow "
-    "is looked for and the outline keeps it (+41 %) without a warning; known gap",
+@pytest.mark.parametrize(
+    ("soft_px", "shadow_mm"),
+    [(0.8, 7.0), (1.5, 7.0), (3.0, 7.0), (5.0, 7.0), (0.8, 4.0), (3.0, 4.0), (1.5, 10.0)],
 )
-def test_shadow_with_a_hard_front_is_left_out_or_flagged():
+def test_shadow_with_a_hard_front_is_left_out(soft_px, shadow_mm):
+    """A shadow whose front is blurred by only 0.8-5 px (a small lamp, a low lid): no soft stretch on the
+    outline says a shadow is there (below 5 px the old check saw none and kept it: +41 %, no warning). Its
+    geometry does: the same sharp step one length behind its whole front. Truth: shapely's area and
+    centroid of the exact-coverage plate with its two holes."""
     plate = SynthPart(rectangle(25.0, 15.0, 40.0, 25.0), [circle(35.0, 27.0, 3.0), circle(53.0, 25.0, 4.5)])
-    m = scanmass.measure(_crossing_shadow_scan(plate, 7.0, soft_px=3.0), dpi=300)
+    m = scanmass.measure(_crossing_shadow_scan(plate, shadow_mm, soft_px=soft_px), dpi=300)
     (found,) = m.parts
     poly = Polygon(plate.outer_mm, plate.holes_mm)
+    # measured +0.4 to +0.9 % (7 and 10 mm); a 4 mm shadow +1.1 / +1.7 % (and +1.3 % with a 5 px soft front):
+    # the holes' floors, lit and in shadow, leave a notch in their rings where they meet
+    assert abs(found.area_mm2 - poly.area) <= (0.01 if shadow_mm >= 7.0 else 0.02) * poly.area
     assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2
+    for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
+        assert abs(c - t) <= 0.06 and abs(c - t) <= 3 * u
+    assert len(found.holes) == 2
+    # the band left out: the plate's 40 mm width times the shadow's length (and a hole the outline had shut)
+    assert m.settings["scan_face"]["shadow_left_out"]["1"] > 0.8 * 40.0 * shadow_mm
+    assert any(w.startswith("scan of thick parts: the lamp's shadow beside part(s) 1") for w in m.warnings)
+
+
+@pytest.mark.parametrize("part", [PLATE, DISC], ids=["plate", "disc"])
+@pytest.mark.parametrize("soft_px", [0.8, 2.0])
+def test_hard_fronted_shadow_lighter_than_the_part_is_left_out(part, soft_px):
+    """A black part's shadow (0.22, lighter than the part) with a hard front: left out by its level once its
+    geometry says it is there (the disc's 2 px front is soft in places, not enough to be a front: the
+    geometry is asked then too). Truth: shapely's area and centroid of the exact-coverage outline."""
+    m = scanmass.measure(_shadow_scan(part, 5.0, shadow=0.22, soft_px=soft_px), dpi=300)
+    (found,) = m.parts
+    poly = Polygon(part.outer_mm)
+    error = found.area_mm2 - poly.area
+    assert abs(error) <= 0.01 * poly.area and abs(error) <= 3 * found.area_u_mm2  # measured within 0.3 %
+    for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
+        assert abs(c - t) <= 3 * u
+    width = poly.bounds[2] - poly.bounds[0]
+    assert m.settings["scan_face"]["shadow_left_out"]["1"] == pytest.approx(width * 5.0, rel=0.2)
+
+
+@pytest.mark.parametrize(
+    "part",
+    [
+        PLATE,
+        pytest.param(
+            DISC,
+            marks=pytest.mark.xfail(
+                strict=True,
+                reason="a hard-fronted shadow 0.01 above a disc's level: the faint step behind its curved front "
+                "is lost in the noise near the arc's steep ends, so no shadow is found and the outline keeps it "
+                "(+26 %) without a warning; known gap",
+            ),
+        ),
+    ],
+    ids=["plate", "disc"],
+)
+def test_hard_fronted_shadow_as_dark_as_the_part_is_left_out(part):
+    """A shadow 0.01 above the part's level (noise 0.004) with a front blurred by 0.8 px: the step averaged
+    along the plate's straight edge stands out, and the sweep finds the face. Truth: shapely's area."""
+    m = scanmass.measure(_shadow_scan(part, 6.0, shadow=0.05, soft_px=0.8), dpi=300)
+    (found,) = m.parts
+    poly = Polygon(part.outer_mm)
+    error = found.area_mm2 - poly.area
+    assert abs(error) <= 0.01 * poly.area and abs(error) <= 3 * found.area_u_mm2  # plate: measured -0.05 %
+
+
+@pytest.mark.parametrize(
+    "parts",
+    [
+        # two plates laid edge to edge (a 0.2 mm gap, under the blur at 100 dpi): the seam lies one length
+        # behind the front along its whole width, but it is a line, not a step
+        [
+            SynthPart(rectangle(10.0, 10.0, 40.0, 30.0), [circle(28.0, 25.0, 6.0)]),
+            SynthPart(rectangle(50.2, 10.0, 30.0, 30.0)),
+        ],
+        # a row of holes across a plate, at one distance behind its edge
+        [SynthPart(rectangle(10.0, 10.0, 60.0, 30.0), [circle(x, 30.0, 3.0) for x in (18.0, 30.0, 42.0, 54.0, 62.0)])],
+        # an L: the short arm's far edge lies at one distance behind its front
+        [SynthPart(l_section(10.0, 10.0, 60.0, 30.0, 8.0, 8.0))],
+    ],
+    ids=["seam", "hole-row", "l-section"],
+)
+@pytest.mark.parametrize("dpi", [100, 300])
+def test_no_hard_front_shadow_on_flat_parts(parts, dpi):
+    """Flat parts with straight features at one distance behind an edge: no shadow is found."""
+    scan = render_scan(parts, dpi=dpi, size_mm=(92.0, 50.0), blur_px=0.8, noise=0.003, seed=1)
+    m = scanmass.measure(scan.image, dpi=dpi)
+    face = m.settings["scan_face"]
+    assert face["shadow_left_out"] == {} and face["shadow_not_separated"] == {}
+    assert not any("scan" in w and "shadow" in w for w in m.warnings)
+
+
+def test_a_deep_hole_as_dark_as_the_face_is_found_by_its_grain():
+    """A black plate (0.04) whose 10 mm bore shows the lid in the dark (0.05, grainy: sigma 0.012 against
+    the face's 0.002, as a path tracer renders a dim floor) and its shadow on the lid (0.22): the bore
+    does not open by level, its grain finds it. Truth: shapely's area of the exact-coverage outline and the bore's
+    equal-area diameter."""
+    import cv2
+
+    from scanmass.testing.scans import part_coverage, srgb_encode
+
+    plate = SynthPart(rectangle(20.0, 15.0, 50.0, 30.0), [circle(45.0, 30.0, 5.0)])
+    s = 25.4 / 300
+    shape = (int(round(80.0 / s)), int(round(90.0 / s)))
+    rng = np.random.default_rng(3)
+    cov = part_coverage([SynthPart(plate.outer_mm)], shape=shape, mm_per_px=s)
+    bore = part_coverage([SynthPart(plate.holes_mm[0])], shape=shape, mm_per_px=s)
+    swept = [SynthPart(plate.outer_mm + [0.0, t]) for t in np.linspace(0.0, 4.0, 31)]
+    shade = cv2.GaussianBlur(np.max([part_coverage([p], shape=shape, mm_per_px=s) for p in swept], axis=0), (0, 0), 4)
+    lid = 0.85 - (0.85 - 0.22) * shade
+    lin = cv2.GaussianBlur(0.04 * (cov - bore) + 0.05 * bore + lid * (1.0 - cov), (0, 0), 0.8)
+    # the floor's grain per pixel (a path tracer's sampling noise; a dim, out-of-focus lid), then the sensor's
+    lin += 0.012 * bore * rng.standard_normal(shape) + rng.normal(0.0, 0.002, shape)
+    image = np.round(srgb_encode(np.clip(lin, 0.0, 1.0)) * 255).astype(np.uint8)
+    m = scanmass.measure(image, dpi=300)
+    (found,) = m.parts
+    poly = Polygon(plate.outer_mm, plate.holes_mm)
+    assert len(found.holes) == 1
+    d = 2 * math.sqrt(Polygon(plate.holes_mm[0]).area / math.pi)
+    assert (
+        abs(found.holes[0].diameter_mm - d) <= 0.1
+        and abs(found.holes[0].diameter_mm - d) <= 3 * found.holes[0].diameter_u_mm
+    )
+    assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2
+    assert any("found by the grain of their floor" in w for w in m.warnings)

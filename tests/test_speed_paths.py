@@ -13,6 +13,11 @@
   :mod:`scanmass.segment.dipgate`) gives the full search's result on parts with and
   without a slot or wall too narrow for a contour, dark and bright, and skips the search
   exactly on those without; its surface bounds hold every value of the float32 grid.
+- Region of interest: a part mask thresholded and traced in the region's box only gives
+  the parts, holes, order and cut flags of the whole plane (the same code with the box
+  forced to the whole image), for regions inside, across the image's edges and through parts.
+- Row medians skipping NaN (shadow's edge profiles) equal numpy's ``nanmedian`` bit for bit,
+  and the short medians of the marker sides' fits numpy's ``median``.
 - Table lookups and flat indices: OpenCV's lookup equals numpy's indexing, and the floor
   division equals ``np.divmod``.
 """
@@ -639,3 +644,120 @@ def test_sampled_figures_leave_unlike_samples_to_the_one_at_a_time_path():
     assert sampled_figures([(np.vstack([square, square[:1]]), ())]) is None  # a closing vertex
     assert sampled_figures([(square, ()), (square * [1, 0], ())]) is None  # a flat ring: the error is raised there
     assert sampled_figures([(square, ()), (square + 1.0, ())]) is not None
+
+
+# ------------------------------------------------------------- region of interest
+
+
+def _same_value(a, b) -> bool:
+    """Equal to the bit: arrays by dtype, shape and bytes; dataclasses field by field; NaN equals NaN."""
+    import dataclasses
+
+    if isinstance(a, np.ndarray) or isinstance(b, np.ndarray):
+        a, b = np.asarray(a), np.asarray(b)
+        return a.dtype == b.dtype and a.shape == b.shape and a.tobytes() == b.tobytes()
+    if type(a) is not type(b):
+        return False
+    if dataclasses.is_dataclass(a):
+        return all(_same_value(getattr(a, f.name), getattr(b, f.name)) for f in dataclasses.fields(a))
+    if isinstance(a, (list, tuple)):
+        return len(a) == len(b) and all(_same_value(x, y) for x, y in zip(a, b))
+    if isinstance(a, dict):
+        return a.keys() == b.keys() and all(_same_value(a[k], b[k]) for k in a)
+    if isinstance(a, float) and math.isnan(a):
+        return isinstance(b, float) and math.isnan(b)
+    return a == b
+
+
+@pytest.mark.parametrize("seed", range(6))
+@pytest.mark.parametrize("threshold", [None, 0.5])
+def test_segment_in_the_regions_box_equals_the_whole_plane(monkeypatch, seed, threshold):
+    """With a region of interest the mask is thresholded and traced in the region's box only;
+    the parts, holes, order and cut flags are those of tracing the whole plane (the reference:
+    the same code with the box forced to the whole image), for regions inside the image,
+    across its edges, through parts and holes, and around none."""
+    from scanmass.errors import SegmentationError
+    from scanmass.segment import rings as rings_mod
+
+    mm = 25.4 / 300
+    parts = [
+        SynthPart(circle(20, 20, 12), [circle(20, 20, 5)]),
+        SynthPart(rectangle(45, 8, 25, 30), [rectangle(55, 12, 30 * mm, 20)]),
+        SynthPart(circle(62, 50, 7)),
+    ]
+    scan = render_scan(parts, dpi=300, shape_px=(700, 900), blur_px=1.0, noise=0.004, seed=seed)
+    image = load_image(scan.image)
+    rng = np.random.default_rng(seed)
+    centre = rng.uniform([-50, -50], [950, 750])
+    angles = np.sort(rng.uniform(0, 2 * np.pi, 9))
+    radius = rng.uniform(200, 700, 9)
+    roi = centre + np.column_stack([radius * np.cos(angles), radius * np.sin(angles)])
+
+    def run():
+        try:
+            return segment(image, roi_px=roi, keep_cut=True, threshold=threshold)
+        except SegmentationError as exc:
+            return str(exc)
+
+    boxed = run()
+    # a box smaller than the image, and parts found in it (not a comparison of two errors)
+    assert rings_mod._roi_box(np.round(roi).astype(np.int32), 900, 700) != (0, 0, 900, 700)
+    assert not isinstance(boxed, str) and boxed.parts
+    monkeypatch.setattr(rings_mod, "_roi_box", lambda poly, width, height: (0, 0, width, height))
+    whole = run()
+    assert _same_value(boxed, whole)
+
+
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+def test_row_medians_without_nans_equal_numpys_nanmedian(dtype):
+    """nanmedian_rows gives numpy's np.nanmedian(axis=1) bit for bit (the reference: numpy itself):
+    NaN gaps, all-NaN rows, ties, signed zeros, infinities of both signs, and rows of 600 or more."""
+    import warnings
+
+    from scanmass.numeric import nanmedian_rows
+
+    rng = np.random.default_rng(7)
+    for k in range(600):
+        rows, cols = int(rng.integers(1, 30)), int(rng.integers(1, 25)) if k % 50 else 640
+        a = rng.normal(size=(rows, cols)).astype(dtype)
+        if k % 3 == 0:
+            a = np.round(a, 1)  # ties
+        if k % 5 == 0:
+            a[rng.random(a.shape) < 0.3] = -0.0
+        a[rng.random(a.shape) < rng.random()] = np.nan
+        if k % 7 == 0:
+            a[rng.random(a.shape) < 0.1] = np.inf
+        if k % 11 == 0:
+            a[rng.random(a.shape) < 0.1] = -np.inf
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            want = np.nanmedian(a, axis=1)
+        got = nanmedian_rows(a)
+        assert got.dtype == want.dtype and got.tobytes() == want.tobytes()
+
+
+def test_median_of_a_short_array_equals_numpys():
+    """median_1d gives np.median's float bit for bit (the reference: numpy itself): odd and even
+    counts, ties, signed zeros (numpy's mean makes -0 +0), infinities, NaN (left to numpy)."""
+    import warnings
+
+    from scanmass.numeric import median_1d
+
+    rng = np.random.default_rng(3)
+    for k in range(3000):
+        n = int(rng.integers(1, 130))
+        a = rng.normal(size=n)
+        if k % 3 == 0:
+            a = np.round(a, 1)
+        if k % 5 == 0:
+            a[rng.random(n) < 0.4] = -0.0
+        if k % 7 == 0:
+            a[rng.random(n) < 0.1] = np.inf
+        if k % 11 == 0:
+            a[rng.random(n) < 0.1] = -np.inf
+        if k % 13 == 0:
+            a[rng.random(n) < 0.05] = np.nan
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # inf - inf, as numpy's own
+            want, got = np.median(a), median_1d(a)
+        assert type(got) is type(want) and np.asarray(got).tobytes() == np.asarray(want).tobytes()

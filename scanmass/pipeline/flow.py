@@ -27,6 +27,7 @@ from scanmass.pipeline.photo_checks import (
     _cut_cast_shadows,
     _hidden_holes,
     _mask_outside,
+    _open_deep_holes,
     _photo_colour,
     _shadows_only,
     _unclear_edges,
@@ -676,19 +677,22 @@ def _measure_photo(
                 "like the background; the parts' round rings fit a circle only so)",
             }
     colour = colour_job.result()  # decoded once for the colour checks
-    result, cut, cut_labels = _cut_cast_shadows(
-        image,
-        masked,
-        scale,
-        result,
-        thickness_mm,
-        colour,
-        lambda img, plane_map: measure_image(
+    last: dict[str, Any] = {}
+
+    def remeasure(img: LoadedImage, plane_map: PlaneMap) -> Measurement:
+        last["image"], last["plane_map"] = img, plane_map  # what the kept measurement was made on
+        return measure_image(
             img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
-        ),
-    )
+        )
+
+    result, cut, cut_labels = _cut_cast_shadows(image, masked, scale, result, thickness_mm, colour, remeasure)
+    if cut:  # the cut's measurement was kept: the deep holes are opened on its image and plane map
+        masked, cut_scale = last["image"], replace(scale, plane_map=last["plane_map"])
+    else:
+        cut_scale = scale
+    _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure)
     shadow_only = _shadows_only(image, scale, result, colour)
-    warnings = list(scale.warnings) + shadow_only + cut
+    warnings = list(scale.warnings) + shadow_only + cut + deep
     warnings += _unknown_thickness(scale, result, thickness_mm)
     warnings += _cast_shadows(image, scale, result, thickness_mm, colour, cut_labels)
     warnings += _unclear_edges(image, scale, result)

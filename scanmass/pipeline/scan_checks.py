@@ -25,7 +25,7 @@ from scanmass.pipeline.part_terms import (
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.lidgap import LidGap
 from scanmass.segment.rings import PartRings
-from scanmass.segment.scanface import FaceResult, scan_face
+from scanmass.segment.scanface import FaceResult, deep_holes, scan_face
 from scanmass.segment.symmetry import edge_halo, reading_shift
 from scanmass.segment.touching import NeckReport, TouchSplit, split_touching
 from scanmass.uncertainty import (
@@ -44,6 +44,12 @@ def _lid_gap_text(gap: LidGap, mm_per_px: float | None) -> str:
 #: Displacement (px, 1 sigma) of a face's edge against its shadow: its level is read against a
 #: shadow that darkens towards the part (less light reaches the lid next to the wall).
 FACE_EDGE_U_PX = 1.0
+
+#: Displacement (px, 1 sigma) of the edge of a deep hole found by its floor's grain
+#: (:func:`~scanmass.segment.scanface.deep_holes`): a floor in its wall's shadow loses grain towards the
+#: rim, which pulls the ring in (the 8 mm bore of the Cycles render scan-black-lamp40: 0.65 px; round
+#: floors of even grain rendered with exact coverage, 20-50 px across: within 0.5 px).
+GRAIN_EDGE_U_PX = 1.0
 
 
 def _scan_faces(
@@ -72,6 +78,10 @@ def _scan_faces(
             noise=noise,
             min_hole_px=min_hole_mm2 / px_area_mm2,
         )
+        if face is not None and face.outer_px is not None:  # deep holes as dark as the face: told by their grain
+            code = min(int(np.searchsorted(lut, face.levels[2])), len(lut) - 2)  # the stored code at the face's level
+            quantum = abs(float(lut[code + 1] - lut[code]))
+            face = deep_holes(crop, (int(x0), int(y0)), face, min_hole_mm2 / px_area_mm2, quantum=quantum)
         if face is None:
             out.append(rings)
             continue
@@ -114,6 +124,20 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
         moved = outer.copy()
         moved[face.shadow_edge] += FACE_EDGE_U_PX * normal[face.shadow_edge]
         term = change_term(plane_map.to_mm(outer), holes, plane_map.to_mm(moved), holes)
+        grain = face.grain_holes if len(part.holes) == len(holes) else 0
+        if grain:  # holes found by their floor's grain: the change when they grow by their edge's uncertainty
+            first = len(holes) - grain
+            grown = holes[:first] + [
+                plane_map.to_mm(offset_ring(np.asarray(h, float), GRAIN_EDGE_U_PX)) for h in face.holes_px[first:]
+            ]
+            more = change_term(plane_map.to_mm(outer), holes, plane_map.to_mm(outer), grown)
+            term = {k: combine(v, more[k]) for k, v in term.items()}
+            grain_d_u = 2.0 * GRAIN_EDGE_U_PX * plane_map.mm_per_px
+            part = replace(
+                part,
+                holes=part.holes[:first]
+                + [replace(h, diameter_u_mm=combine(h.diameter_u_mm, grain_d_u)) for h in part.holes[first:]],
+            )
         # a hole's wall throws the lamp's shadow into the hole as the part's wall does beside it:
         # its diameter gets the same edge uncertainty
         return _with_shadow_term(part, term, FACE_EDGE_U_PX * plane_map.mm_per_px, name="scan_shadow")
@@ -152,6 +176,14 @@ def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
             "on the glass (its sharp edge), and the edge against the shadow adds the term 'scan_shadow'; a hole "
             f"narrower than about {deep_mm:.2g} mm in such a part can look as dark as the part (no light reaches "
             "the lid above it) and be missed: check the holes"
+        )
+    grain = {k: f.grain_holes for k, f in left_out.items() if f.grain_holes}
+    if grain:
+        listed = ", ".join(f"{n} in part {k}" for k, n in grain.items())
+        out.append(
+            f"scan of thick parts: hole(s) as dark as the face ({listed}) were found by the grain of their floor (the "
+            f"lid seen through a deep hole), not by its level; their edges may lie {GRAIN_EDGE_U_PX:g} px off (term "
+            "'scan_shadow'); check them, or measure the part on a backlight, where every through-hole shows light"
         )
     for k, f in kept.items():
         out.append(

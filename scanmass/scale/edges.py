@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from scanmass.numeric import median_1d
+
 __all__ = ["side_frame", "fit_line", "intersect_lines", "window_centroid", "Line"]
 
 #: A straight line: a point on it and its unit direction.
@@ -54,7 +56,7 @@ def fit_line(points: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray] | 
         direction = vt[0]
         normal = np.array([-direction[1], direction[0]])
         res = (pts - c) @ normal
-        scale = 1.4826 * np.median(np.abs(res[keep])) + 1e-4
+        scale = 1.4826 * median_1d(np.abs(res[keep])) + 1e-4
         new = np.abs(res) < 4 * scale + 0.02
         if np.array_equal(new, keep):
             break

@@ -18,7 +18,8 @@ import cv2
 import numpy as np
 
 from scanmass.errors import ScaleError
-from scanmass.load.decode import LoadedImage
+from scanmass.load.decode import LoadedImage, lookup
+from scanmass.numeric import median_1d
 from scanmass.scale.edges import Line, fit_line, intersect_lines, side_frame, window_centroid
 from scanmass.scale.homography import apply_h
 from scanmass.scale.markerfind import ExpectedQuads, find_markers
@@ -164,7 +165,12 @@ def detect_markers(
 def _refine_corners(
     image: LoadedImage, coarse: np.ndarray, undistort: PixelCorrection | None
 ) -> tuple[np.ndarray, float, np.ndarray, np.ndarray, np.ndarray]:
-    """Corners from straight lines fitted to sub-pixel edge points of each marker side."""
+    """Corners from straight lines fitted to sub-pixel edge points of each marker side.
+
+    A marker's four sides share one reach across the edge, so their profiles are sampled
+    and reduced as the rows of one array (every step works row by row: the same floats
+    as side by side).
+    """
     m = len(coarse)
     refined = coarse.copy()
     blur = np.full((m, 4), np.nan)
@@ -172,6 +178,9 @@ def _refine_corners(
     ok = np.ones(m, dtype=bool)
     residuals: list[np.ndarray] = []
     height, width = image.grey.shape
+    # float32 of each table entry: the same values as looking up in float64 and converting
+    table = np.asarray(image.to_linear).astype(np.float32)
+    step = 0.25
     for i in range(m):
         quad = coarse[i]
         centre = quad.mean(axis=0)
@@ -183,36 +192,46 @@ def _refine_corners(
         if x0 < 0 or y0 < 0 or x1 >= width or y1 >= height:
             ok[i] = False  # too close to the photo's edge to see both sides of every edge
             continue
-        crop = image.to_linear[image.grey[y0 : y1 + 1, x0 : x1 + 1]].astype(np.float32)
-        lines: list[Line] = []
+        crop = lookup(table, image.grey[y0 : y1 + 1, x0 : x1 + 1])
+        offs = np.arange(-reach, reach + step / 2, step)
+        sides, bases, maps_x, maps_y = [], [], [], []
         for k in range(4):
             a, b = quad[k], quad[(k + 1) % 4]
             d, length, n = side_frame(a, b, centre)
-            normals[i, k] = n
             margin = min(0.3, max(0.12, (reach + 1.5) / length))
             count = int(np.clip(length / 2.5, 8, 60))
             t = np.linspace(margin, 1.0 - margin, count)
-            step = 0.25
-            offs = np.arange(-reach, reach + step / 2, step)
             base = a[None, :] + t[:, None] * d[None, :]
-            pts = base[:, None, :] + offs[None, :, None] * n[None, None, :]
-            map_x = (pts[..., 0] - x0).astype(np.float32)
-            map_y = (pts[..., 1] - y0).astype(np.float32)
-            prof = cv2.remap(crop, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float64)
-            lo = np.median(prof[:, : max(2, len(offs) // 6)], axis=1)
-            hi = np.median(prof[:, -max(2, len(offs) // 6) :], axis=1)
-            contrast = hi - lo
-            g = np.diff(prof, axis=1)
-            mid = 0.5 * (offs[1:] + offs[:-1])
-            gmax = g.max(axis=1, keepdims=True)
-            w = np.clip(g - 0.15 * gmax, 0.0, None)
-            sw = w.sum(axis=1)
-            good = (contrast > 0.08) & (sw > 0)
+            sides.append(n)
+            bases.append(base)
+            maps_x.append(base[:, 0, None] + offs[None, :] * n[0] - x0)
+            maps_y.append(base[:, 1, None] + offs[None, :] * n[1] - y0)
+        map_x = np.concatenate(maps_x).astype(np.float32)
+        map_y = np.concatenate(maps_y).astype(np.float32)
+        prof = cv2.remap(crop, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(np.float64)
+        tail = max(2, len(offs) // 6)
+        lo = np.median(prof[:, :tail], axis=1)
+        hi = np.median(prof[:, -tail:], axis=1)
+        contrast = hi - lo
+        g = np.diff(prof, axis=1)
+        mid = 0.5 * (offs[1:] + offs[:-1])
+        gmax = g.max(axis=1, keepdims=True)
+        w = np.clip(g - 0.15 * gmax, 0.0, None)
+        sw = w.sum(axis=1)
+        good_all = (contrast > 0.08) & (sw > 0)
+        pos_all = (w * mid).sum(axis=1) / np.where(sw > 0, sw, 1)
+        var_all = (w * (mid - pos_all[:, None]) ** 2).sum(axis=1) / np.where(sw > 0, sw, 1)
+        pos_all = window_centroid(g, mid, pos_all, var_all)
+        lines: list[Line] = []
+        row = 0
+        for k in range(4):
+            n, base = sides[k], bases[k]
+            rows = slice(row, row + len(base))
+            row += len(base)
+            normals[i, k] = n
+            good, pos, var = good_all[rows], pos_all[rows], var_all[rows]
             if good.sum() < 5:
                 break
-            pos = (w * mid).sum(axis=1) / np.where(sw > 0, sw, 1)
-            var = (w * (mid - pos[:, None]) ** 2).sum(axis=1) / np.where(sw > 0, sw, 1)
-            pos = window_centroid(g, mid, pos, var)
             edge_pts = base + pos[:, None] * n
             edge_pts = edge_pts[good]
             if undistort is not None:
@@ -223,7 +242,7 @@ def _refine_corners(
             p0, direction, res = line
             residuals.append(res)
             # sigma of the blur from the clipped derivative's spread (rough; for checks only)
-            blur[i, k] = float(np.sqrt(max(np.median(var[good]) - step**2 / 12, 0.0)) * 1.25)
+            blur[i, k] = float(np.sqrt(max(median_1d(var[good]) - step**2 / 12, 0.0)) * 1.25)
             lines.append((p0, direction))
         if len(lines) < 4:
             ok[i] = False

@@ -218,6 +218,21 @@ def pixel_noise(image: LoadedImage, roi_px: np.ndarray | None = None) -> float:
     return max(mad, rms) / math.sqrt(2.0)
 
 
+def _roi_box(poly: np.ndarray, width: int, height: int) -> tuple[int, int, int, int]:
+    """The box (x0, y0, x1, y1), ends exclusive, that the mask of region ``poly`` (integer px) is traced in.
+
+    The mask is 0 outside the region; a margin of two 0 px on every side within the image
+    keeps the contours, their order and hierarchy those of the whole plane (OpenCV's
+    tracing scans in raster order and offsets the points back to whole-image px). The
+    whole image when the region misses it.
+    """
+    x0, y0 = max(int(poly[:, 0].min()) - 2, 0), max(int(poly[:, 1].min()) - 2, 0)
+    x1, y1 = min(int(poly[:, 0].max()) + 3, width), min(int(poly[:, 1].max()) + 3, height)
+    if x1 - x0 < 1 or y1 - y0 < 1:
+        return 0, 0, width, height
+    return x0, y0, x1, y1
+
+
 def segment(
     image: LoadedImage,
     *,
@@ -328,27 +343,32 @@ def segment(
     sigma_map = max(small_shape) / 8.0
     background_map = _masked_blur(small, bg_core, sigma_map, bg_median)
     ratio = float(np.median(small[fg_core] / np.maximum(background_map[fg_core], 1e-6)))
+    # with a region of interest only its box is thresholded and traced (_roi_box)
+    poly = None if roi_px is None else np.round(np.asarray(roi_px)).astype(np.int32)
+    box_x0, box_y0, box_x1, box_y1 = (0, 0, width, height) if poly is None else _roi_box(poly, width, height)
+    region = grey[box_y0:box_y1, box_x0:box_x1]
     if threshold is None:
         t_map = background_map * (1.0 + ratio) / 2.0
         # first encoded value >= the linear threshold: compare encoded values, never a float copy of the image
         t_enc = np.searchsorted(lut, t_map).clip(0, len(lut) - 1).astype(grey.dtype)
         t_full = cv2.resize(t_enc, (width, height), interpolation=cv2.INTER_LINEAR) if factor > 1 else t_enc
+        t_box = t_full[box_y0:box_y1, box_x0:box_x1]
         # the mask overwrites the full-size threshold plane (element-wise: safe in place): one
         # full-size uint8 plane fewer at the peak
         # 255 for part pixels, 0 elsewhere: findContours takes any non-zero pixel as 1 (no pass
         # over the full-size plane to make it 1)
-        mask = cv2.compare(grey, t_full, cv2.CMP_LT if bright_background else cv2.CMP_GT, dst=t_full)
-        del t_full
+        mask = cv2.compare(region, t_box, cv2.CMP_LT if bright_background else cv2.CMP_GT, dst=t_box)
+        del t_full, t_box
     else:
         t_fixed = np.full((1, 1), int(round(threshold * full_scale)), dtype=grey.dtype)
-        mask = ((grey < t_fixed) if bright_background else (grey > t_fixed)).view(np.uint8)
-    if roi_px is not None:
+        mask = ((region < t_fixed) if bright_background else (region > t_fixed)).view(np.uint8)
+    if poly is not None:
         roi_mask = np.zeros_like(mask)
-        cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px)).astype(np.int32)], 1)
+        cv2.fillPoly(roi_mask, [poly - np.array([box_x0, box_y0], np.int32)], 1)
         np.bitwise_and(mask, roi_mask, out=mask)
 
     # -- 2. parts and their holes from the mask ---------------------------------------
-    contours, hierarchy = cv2.findContours(mask, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE)
+    contours, hierarchy = cv2.findContours(mask, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE, offset=(box_x0, box_y0))
     del mask
     if not contours:
         raise SegmentationError(

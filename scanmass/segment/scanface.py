@@ -30,10 +30,10 @@ import numpy as np
 from skimage.measure import find_contours
 
 from scanmass.geometry import signed_area, vertex_normals
-from scanmass.numeric import nonzero_rc
+from scanmass.numeric import nonzero_every, nonzero_rc
 from scanmass.segment.distance import exact_distance
 
-__all__ = ["FaceResult", "scan_face", "SOFT_RATIO"]
+__all__ = ["FaceResult", "scan_face", "deep_holes", "SOFT_RATIO"]
 
 #: An outline vertex whose edge gradient is below this share of the outline's sharp edges
 #: (its 80th percentile) lies on a soft edge (a shadow's outer end, or a part out of focus).
@@ -83,6 +83,31 @@ SWEEP_HULL_GAIN = 0.1
 #: Width (px) of the Gaussian that carries the face's level (a metal's sheen varies slowly).
 SWEEP_LEVEL_SIGMA_PX = 8.0
 
+#: A shadow whose front is as sharp as the face's edges (no soft stretch on the outline) is found by its
+#: geometry: a sharp step inside the outline, the same length behind at least this share of its front.
+HARD_FRONT_COVERAGE = 0.8
+
+#: ... a step whose gradient (linear light per px, the image smoothed by 1 px) stands this many noise
+#: sigmas (of the gradient inside the outline) above the noise, ...
+HARD_FRONT_NOISE = 8.0
+
+#: ... and at least this share of the lid-to-part contrast (per px: a step of 0.7 % of it, blurred by 1.4 px).
+HARD_FRONT_STEP = 0.002
+
+#: Width (px) of the Gaussian that averages the image along the step before its gradient is read.
+STEP_ALONG_PX = 3.0
+
+#: A deep hole's floor, as dark as the face, is told from it by its grain: a compact patch inside the face
+#: whose local variance stands this many times above the face's (median) own.
+GRAIN_RATIO = 10.0
+
+#: Width (px) of the Gaussian over which the grain (the squared high-pass of the image) is averaged.
+GRAIN_SIGMA_PX = 2.0
+
+#: Least compactness of such a patch: its area over that of the circle as wide as its box's longer side
+#: (a drilled or punched hole is round; a streak of grain is not).
+GRAIN_COMPACT = 0.5
+
 
 @dataclass
 class FaceResult:
@@ -114,6 +139,8 @@ class FaceResult:
     #: the rings were placed against local levels that the image's two levels do not describe (a face as
     #: dark as its shadow, holes with lit and shadowed floors): thin-wall steps must leave them alone
     local_levels: bool = False
+    #: how many of ``holes_px`` (the last ones) were found by their floor's grain (:func:`deep_holes`)
+    grain_holes: int = 0
 
 
 @dataclass
@@ -204,8 +231,9 @@ def scan_face(
     soft = grad < SOFT_RATIO * sharp_ref
     lengths = _ring_lengths(outer)
     soft_len = float(lengths[soft].sum())
-    if soft_len < MIN_SOFT_SHARE * float(lengths.sum()):
-        return None
+    # no soft stretch: the shadow, if any, has a front as sharp as the face's edges (a small lamp, a
+    # low lid): it is looked for by its geometry once the levels are known
+    hard = soft_len < MIN_SOFT_SHARE * float(lengths.sum())
     origin = np.asarray(origin_px, float)
     shape = linear.shape
     kernel = np.ones((3, 3), np.uint8)
@@ -214,6 +242,11 @@ def scan_face(
     found = filled.copy()
     for h in holes_px:
         cv2.fillPoly(found, [np.round((np.asarray(h, float) - origin) * 16).astype(np.int32)], 0, shift=4)
+    sweep = None
+    if hard:  # most parts: looked at quickly, with the contrast from a sample of the crop
+        sweep = _hard_front(linear, filled, found)
+        if sweep is None:
+            return None
     near_out = cv2.dilate(filled, kernel, iterations=12).astype(bool) & ~cv2.dilate(
         filled, kernel, iterations=3
     ).astype(bool)
@@ -224,48 +257,66 @@ def scan_face(
     part = float(np.quantile(linear[inside], 0.2))
     if not lid > part:
         return None
-    # the shadow's level: inside the found outline, next to its soft stretch
     normals = _outward_normals(outer)
-    # a flatbed's lamp lies beside the sensor line and lights along the carriage's travel: the
-    # shadow falls along the image's rows or columns; the soft stretch's mean normal picks which
-    mean_normal = (lengths[soft, None] * normals[soft]).sum(axis=0)
-    axis = int(np.argmax(np.abs(mean_normal)))
-    direction = np.zeros(2)
-    direction[axis] = math.copysign(1.0, float(mean_normal[axis]))
-    probe = np.zeros(shape, np.uint8)
-    for depth in (4.0, 6.0, 8.0):
-        pts = outer[soft] - depth * normals[soft] - origin
-        cols = np.clip(np.round(pts[:, 0]).astype(int), 0, shape[1] - 1)
-        rows = np.clip(np.round(pts[:, 1]).astype(int), 0, shape[0] - 1)
-        probe[rows, cols] = 1
-    probe_values = linear[probe.astype(bool) & inside]
-    if probe_values.size < 10:
-        return None
-    shadow = float(np.median(probe_values))
-    levels = (lid, shadow, part)
-    total = float(found.sum())
-    gap = shadow - part
-    dark = linear[inside & (linear < part + 0.5 * max(gap, 0.0))]
-    if dark.size > 20:  # the part's own noise (texture, grain) rather than the outline fit's residual
-        noise = min(noise, 1.4826 * float(np.median(np.abs(dark - np.median(dark)))))
-    # a shadow: the soft stretch faces one way, and inside it lies a level between the part and the lid
-    # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
-    facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)
-    if facing < 0.3 or gap < max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise):
-        if soft_len < MIN_SOFT_NOTE * float(lengths.sum()):
-            return None
-        return FaceResult(  # soft edges and no shadow: the part may not lie flat on the glass
-            outer_px=None,
-            holes_px=[],
-            gradient_px=None,
-            hole_gradients_px=[],
-            shadow_px2=0.0,
-            direction=(float(direction[0]), float(direction[1])),
-            soft_length_px=soft_len,
-            shadow_edge_px=0.0,
-            levels=levels,
-            note="soft edges",
-        )
+    soft_edges = None
+    while True:
+        if sweep is not None:
+            direction, length_px = sweep
+            # the shadow's outline (its front and sides) takes the soft stretch's place: the outline off the face
+            soft = _off_face(outer - origin, found, direction, length_px)
+            soft_len = float(lengths[soft].sum())
+            if soft_len < MIN_SOFT_SHARE * float(lengths.sum()):
+                return soft_edges
+        else:
+            # a flatbed's lamp lies beside the sensor line and lights along the carriage's travel: the
+            # shadow falls along the image's rows or columns; the soft stretch's mean normal picks which
+            mean_normal = (lengths[soft, None] * normals[soft]).sum(axis=0)
+            axis = int(np.argmax(np.abs(mean_normal)))
+            direction = np.zeros(2)
+            direction[axis] = math.copysign(1.0, float(mean_normal[axis]))
+        # the shadow's level: inside the found outline, next to its soft stretch
+        probe = np.zeros(shape, np.uint8)
+        for depth in (4.0, 6.0, 8.0):
+            pts = outer[soft] - depth * normals[soft] - origin
+            cols = np.clip(np.round(pts[:, 0]).astype(int), 0, shape[1] - 1)
+            rows = np.clip(np.round(pts[:, 1]).astype(int), 0, shape[0] - 1)
+            probe[rows, cols] = 1
+        probe_values = linear[probe.astype(bool) & inside]
+        if probe_values.size < 10:
+            return soft_edges
+        shadow = float(np.median(probe_values))
+        levels = (lid, shadow, part)
+        total = float(found.sum())
+        gap = shadow - part
+        dark = linear[inside & (linear < part + 0.5 * max(gap, 0.0))]
+        if dark.size > 20:  # the part's own noise (texture, grain) rather than the outline fit's residual
+            noise = min(noise, 1.4826 * float(np.median(np.abs(dark - np.median(dark)))))
+        # a shadow: the soft stretch faces one way, and inside it lies a level between the part and the lid
+        # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
+        facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)
+        # (the geometry's step one length behind the whole front is evidence enough of a shadow: its level may
+        # lie on either side of the part's, or a few 8-bit codes from it)
+        if facing >= 0.3 and (sweep is not None or gap >= max(MIN_SHADOW_STEP * (lid - part), 4.0 * noise)):
+            break
+        if sweep is None and soft_len >= MIN_SOFT_NOTE * float(lengths.sum()):
+            soft_edges = FaceResult(  # soft edges and no shadow: the part may not lie flat on the glass
+                outer_px=None,
+                holes_px=[],
+                gradient_px=None,
+                hole_gradients_px=[],
+                shadow_px2=0.0,
+                direction=(float(direction[0]), float(direction[1])),
+                soft_length_px=soft_len,
+                shadow_edge_px=0.0,
+                levels=levels,
+                note="soft edges",
+            )
+        if sweep is not None:
+            return soft_edges
+        # the soft stretch is not a shadow's front: a shadow whose front is as sharp as the face's may still be
+        sweep = _hard_front(linear, filled, found)
+        if sweep is None:
+            return soft_edges
     ctx = _Found(origin, filled, found, outer, list(holes_px), soft, lengths, normals, direction, soft_len, levels)
     if gap < max(MIN_FACE_SHADOW_CONTRAST * (lid - part), 6.0 * noise):
         return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
@@ -458,6 +509,164 @@ def _shadow_length(smooth: np.ndarray, filled: np.ndarray) -> tuple[int, float, 
         return length, prominence, 0.0
     step = float(np.median(np.abs(smooth[hi[both], cols[both]] - smooth[lo[both], cols[both]])))
     return length, prominence, step
+
+
+def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, least: float) -> tuple[int, float]:
+    """The length (px) of a shadow cast up the rows, and the share of its front with the face's step behind it.
+
+    As :func:`_shadow_length`, the length is where the rows' gradient, read the same
+    distance behind every front pixel, peaks (its front's own ramp skipped); the share
+    counts the front pixels with a step of at least ``least`` (linear light per px) within
+    a px of that distance, the found region (``found``: holes cleared) on both sides of
+    it (:data:`SWEEP_STEP_READ_PX`) and levels there twice ``least`` apart: a hole's rim,
+    the part's far edge or a seam between two parts is not a face's edge against its
+    shadow. (0, 0.0) when no peak stands out of the search range by
+    :data:`SWEEP_MIN_PROMINENCE`.
+    """
+    length, prominence, step = _shadow_length(smooth, filled)
+    if length < SWEEP_MIN_LENGTH_PX or prominence < SWEEP_MIN_PROMINENCE or step <= 0.0:
+        return 0, 0.0
+    h = smooth.shape[0]
+    grad = np.zeros_like(smooth)
+    grad[1:-1] = 0.5 * np.abs(smooth[2:] - smooth[:-2])
+    inside = filled.astype(bool)
+    front = inside.copy()
+    front[1:] &= ~inside[:-1]
+    rows, cols = nonzero_rc(front)
+    kept = found.astype(bool)
+    lo, hi = rows + length - SWEEP_STEP_READ_PX, rows + length + SWEEP_STEP_READ_PX
+    both = (lo >= 0) & (hi < h)
+    both[both] &= kept[lo[both], cols[both]] & kept[hi[both], cols[both]]
+    at = np.clip(rows[:, None] + length + np.arange(-1, 2)[None, :], 0, h - 1)
+    peak = grad[at, cols[:, None]].max(axis=1)
+    # a step, not a line (a seam between two parts laid edge to edge dips and comes back): the levels either
+    # side differ by twice the least gradient (a step blurred by 1.4 px peaks at 0.28 of its height)
+    rise = np.abs(smooth[np.clip(hi, 0, h - 1), cols] - smooth[np.clip(lo, 0, h - 1), cols])
+    return length, float(np.count_nonzero(both & (peak >= least) & (rise >= 2.0 * least))) / max(rows.size, 1)
+
+
+def _hard_front(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tuple[np.ndarray, int] | None:
+    """The lamp's direction and the shadow's length (px) of a shadow with a hard front, or None.
+
+    A lamp small enough, or a lid low enough, leaves the shadow's outer end as sharp as the
+    face's edges, so no soft stretch on the outline says a shadow is there. Its geometry
+    still does: parallel light makes it a band of one length along the lamp's axis behind
+    every edge facing away from the lamp, so its front and the face's edge behind it are
+    copies of each other moved by one vector. Each of the four directions along the image's
+    axes (a flatbed's lamp lights along the carriage's travel) is tried: a shadow is taken
+    where a sharp step, standing :data:`HARD_FRONT_NOISE` sigmas above the noise of the
+    gradient inside the outline and at least :data:`HARD_FRONT_STEP` of the contrast, lies
+    the same length behind :data:`HARD_FRONT_COVERAGE` of the front inside the part (a hole
+    or the part's far edge does not count). A plain part has no step inside it, and its
+    holes and notches lie at many distances behind its front. Seen from the face's back
+    edge, the step between the face and its shadow can lie at one distance too (a
+    rectangle's face): the shortest of the lengths found is the shadow's (a shadow is
+    about as long as the part is thick, and a part is wider than it is thick).
+
+    References
+    ----------
+    .. [1] J. Serra, Image Analysis and Mathematical Morphology, Academic Press, 1982
+       (a Minkowski sum with a segment: the found region is the face swept along the lamp).
+    """
+    candidates, contrast, factor = _steep_axes(linear, filled, found)
+    if factor == 1 or not candidates:  # read at full size already
+        return min(candidates, key=lambda c: c[1]) if candidates else None
+    smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
+    interior = cv2.erode(found, np.ones((3, 3), np.uint8), iterations=4).astype(bool)
+    rows, cols = nonzero_every(interior, max(1, int(np.count_nonzero(interior)) // 20000))
+    best: tuple[np.ndarray, int] | None = None
+    for direction, _ in candidates:  # the reduced copy's finds, read again at full size
+        axis = int(np.argmax(np.abs(direction)))
+        along = _along_step(smooth, axis)
+        least = max(HARD_FRONT_NOISE * _mad(_axis_gradient(along, axis)[rows, cols]), HARD_FRONT_STEP * abs(contrast))
+        length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(found, direction), least)
+        if share >= HARD_FRONT_COVERAGE and (best is None or length < best[1]):
+            best = (direction, length)
+    return best
+
+
+def _along_step(smooth: np.ndarray, axis: int) -> np.ndarray:
+    """The image averaged across the lamp's axis (along a step across it) by :data:`STEP_ALONG_PX`."""
+    across = STEP_ALONG_PX
+    return np.asarray(
+        cv2.GaussianBlur(smooth, (0, 0), sigmaX=across if axis == 1 else 1e-3, sigmaY=across if axis == 0 else 1e-3)
+    )
+
+
+def _axis_gradient(smooth: np.ndarray, axis: int) -> np.ndarray:
+    """|central difference| along the image's x (``axis`` 0) or y (1) axis; 0 on the border."""
+    grad = np.zeros_like(smooth)
+    if axis == 0:
+        grad[:, 1:-1] = 0.5 * np.abs(smooth[:, 2:] - smooth[:, :-2])
+    else:
+        grad[1:-1] = 0.5 * np.abs(smooth[2:] - smooth[:-2])
+    return grad
+
+
+def _steep_axes(
+    linear: np.ndarray, filled: np.ndarray, found: np.ndarray
+) -> tuple[list[tuple[np.ndarray, int]], float, int]:
+    """The directions (with the shadow's length, px of the copy read) in which a shadow's step lies one length
+    behind the front, the lid-to-part contrast, and the reduction of the copy read (1: full size).
+
+    The quick test before :func:`_hard_front` looks for the shadow's length: a step across
+    the part (the face's edge against its shadow) leaves a steep pixel in at least
+    :data:`HARD_FRONT_COVERAGE` of the lines along that axis that cross the interior (4 px
+    in from the outline and the holes); a hole's rim only in the lines that cross the hole,
+    noise nowhere (steep: :data:`HARD_FRONT_NOISE` sigmas of the gradient's noise, and
+    :data:`HARD_FRONT_STEP` of the contrast: the lid's upper quartile outside the outline
+    less the part's lower quintile inside it, the levels :func:`scan_face` reads). Along the
+    axes that pass, both directions are read by :func:`_front_steps`. Crops over 100 000 px
+    are read reduced by area averaging (a step across a large part stays one), and the
+    caller reads the finds again at full size. The image is averaged along the step
+    (:func:`_along_step`) before its gradient is read.
+    """
+    factor = max(1, int(math.sqrt(linear.size / 100_000.0)))
+    lin: np.ndarray = np.asarray(linear, dtype=np.float32)
+    if factor > 1:
+        size = (linear.shape[1] // factor, linear.shape[0] // factor)
+        lin = cv2.resize(lin, size, interpolation=cv2.INTER_AREA)
+        found = cv2.resize(found, size, interpolation=cv2.INTER_NEAREST)
+        filled = cv2.resize(filled, size, interpolation=cv2.INTER_NEAREST)
+    smooth = cv2.GaussianBlur(lin, (0, 0), 1.0)
+    interior = cv2.erode(found, np.ones((3, 3), np.uint8), iterations=4).astype(bool)
+    count = int(np.count_nonzero(interior))
+    outside = filled == 0
+    if count < 50 or np.count_nonzero(outside) < 20:
+        return [], 0.0, factor
+    kept = found.astype(bool)
+    lid = np.quantile(lin[nonzero_every(outside, max(1, int(np.count_nonzero(outside)) // 5000))], 0.75)
+    part = np.quantile(lin[nonzero_every(kept, max(1, int(np.count_nonzero(kept)) // 5000))], 0.2)
+    contrast = float(lid) - float(part)
+    # the gradient's noise from a sample of the interior (every k-th pixel, about 5000: a median over a large part is slow)
+    rows, cols = nonzero_every(interior, max(1, count // 5000))
+    found_dirs: list[tuple[np.ndarray, int]] = []
+    for axis in (0, 1):
+        along = _along_step(smooth, axis)
+        grad = _axis_gradient(along, axis)
+        least = max(HARD_FRONT_NOISE * _mad(grad[rows, cols]), HARD_FRONT_STEP * abs(contrast))
+        across = interior.any(axis=1 - axis)
+        steep = (interior & (grad >= least)).any(axis=1 - axis)
+        if np.count_nonzero(steep) < HARD_FRONT_COVERAGE * np.count_nonzero(across):
+            continue
+        for sign in (1.0, -1.0):
+            direction = np.zeros(2)
+            direction[axis] = sign
+            length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(found, direction), least)
+            if share >= HARD_FRONT_COVERAGE:
+                found_dirs.append((direction, length))
+    return found_dirs, contrast, factor
+
+
+def _off_face(outer: np.ndarray, found: np.ndarray, direction: np.ndarray, length_px: int) -> np.ndarray:
+    """Per vertex of ``outer`` (crop pixels): off the face by more than 3 px, the face taken as the found
+    region eroded by the shadow's sweep (``length_px`` along ``direction``): the shadow's front and sides."""
+    segment = np.ones((length_px + 1, 1), np.uint8)
+    face = _back(cv2.erode(_up(found, direction), segment, anchor=(0, length_px), borderValue=0), direction)
+    dist = exact_distance(np.ascontiguousarray(1 - face).astype(np.uint8))
+    cols = np.clip(np.round(outer[:, 0]).astype(int), 0, found.shape[1] - 1)
+    rows = np.clip(np.round(outer[:, 1]).astype(int), 0, found.shape[0] - 1)
+    return np.asarray(dist[rows, cols] > 3.0)
 
 
 def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float) -> FaceResult | None:
@@ -668,3 +877,113 @@ def _unseparated(ctx: _Found, total_px2: float) -> FaceResult:
         levels=ctx.levels,
         note="not separated: the shadow is as dark as the part",
     )
+
+
+def deep_holes(
+    linear: np.ndarray, origin_px: tuple[int, int], face: FaceResult, min_hole_px: float, *, quantum: float = 0.0
+) -> FaceResult:
+    """The face with the deep holes its levels missed, found by the grain of their floors.
+
+    Through a hole several mm deep a scanner sees the lid, lit only by what the hole's
+    dark walls pass on: as dark as a black part's face (a few per cent of the lid's
+    level either way), so neither the found outline nor the face's levels open it. Its
+    floor differs from the face in grain: the face on the glass is in focus and evenly
+    lit, the lid far behind it is not. The grain is the local variance of the image's
+    high-pass (Gaussian of 1 px subtracted, squares averaged over
+    :data:`GRAIN_SIGMA_PX`); a patch of the face's interior (clear of its outline and
+    holes by 6 px, JPEG ringing) whose grain stands :data:`GRAIN_RATIO` times above the
+    face's median (and above that of every other pixel flipping by one stored code,
+    ``quantum`` squared over 4: a face that renders or scans flat shows its file's
+    rounding and compression, not grain), at least ``min_hole_px`` and compact
+    (:data:`GRAIN_COMPACT`), is a hole. Its ring is the contour where the grain is halfway between the face's and the
+    floor's (a symmetric average of a step in variance is halfway at the step), refined
+    and corrected for curvature as the face's rings are. The face is returned unchanged
+    when none is found.
+
+    Parameters
+    ----------
+    linear : (H, W) float ndarray
+        Linear-light values of the crop :func:`scan_face` read.
+    origin_px : (int, int)
+        The crop's (x, y) offset in the image.
+    face : FaceResult
+        A separated face (``outer_px`` not None); others are returned unchanged.
+    min_hole_px : float
+        Least area (px2) of a hole.
+    quantum : float
+        The linear-light step between two stored codes at the face's level (0: not known).
+
+    Examples
+    --------
+    A face with its sensor's faint noise and a patch of grain 20 px across (a lid seen through
+    a hole): one hole, about 20 px across.
+
+    >>> rng = np.random.default_rng(0)
+    >>> img = (0.85 + 0.002 * rng.standard_normal((120, 120))).astype(np.float32)
+    >>> img[20:100, 20:100] = 0.04 + 0.0005 * rng.standard_normal((80, 80))
+    >>> yy, xx = np.mgrid[0:120, 0:120]
+    >>> floor = np.hypot(xx - 60, yy - 60) < 10
+    >>> img[floor] = 0.045 + 0.008 * rng.standard_normal(int(floor.sum()))
+    >>> square = np.array([[19.5, 19.5], [99.5, 19.5], [99.5, 99.5], [19.5, 99.5]])
+    >>> face = FaceResult(square, [], None, [], 0.0, (0.0, -1.0), 0.0, 0.0, (0.85, 0.3, 0.04), "separated")
+    >>> found = deep_holes(img, (0, 0), face, min_hole_px=50)
+    >>> found.grain_holes, round(2 * math.sqrt(abs(signed_area(found.holes_px[0])) / math.pi))
+    (1, 20)
+    """
+    from scanmass.segment.rings import _refine_vertices, correct_curvature
+
+    if face.outer_px is None:
+        return face
+    origin = np.asarray(origin_px, float)
+    shape = linear.shape
+    mask = np.zeros(shape, np.uint8)
+    cv2.fillPoly(mask, [np.round((np.asarray(face.outer_px, float) - origin) * 16).astype(np.int32)], 1, shift=4)
+    for h in face.holes_px:
+        cv2.fillPoly(mask, [np.round((np.asarray(h, float) - origin) * 16).astype(np.int32)], 0, shift=4)
+    clear = exact_distance(mask)
+    interior = clear > 6.0
+    if np.count_nonzero(interior) < 4 * max(min_hole_px, 50.0):
+        return face
+    lin = linear.astype(np.float32)
+    high = lin - cv2.GaussianBlur(lin, (0, 0), 1.0)
+    grain = cv2.GaussianBlur(high * high, (0, 0), GRAIN_SIGMA_PX)
+    face_grain = float(np.median(grain[interior]))
+    odd = (interior & (grain > GRAIN_RATIO * max(face_grain, 0.25 * quantum**2, 1e-12))).astype(np.uint8)
+    odd = np.asarray(cv2.morphologyEx(odd, cv2.MORPH_OPEN, np.ones((3, 3), np.uint8)), dtype=np.uint8)
+    count, comp, stats, _ = cv2.connectedComponentsWithStats(odd, connectivity=8)
+    holes, grads = list(face.holes_px), list(face.hole_gradients_px)
+    added = 0
+    for k in range(1, count):
+        area = float(stats[k, cv2.CC_STAT_AREA])
+        extent = float(max(stats[k, cv2.CC_STAT_WIDTH], stats[k, cv2.CC_STAT_HEIGHT]))
+        if area < min_hole_px or area < GRAIN_COMPACT * math.pi * (0.5 * extent) ** 2:
+            continue
+        patch = comp == k
+        # the floor's own grain: where the average no longer reaches the face (3 of its sigmas in)
+        depth = exact_distance(patch.astype(np.uint8))
+        core = depth >= min(3.0 * GRAIN_SIGMA_PX, float(depth.max()))
+        floor_grain = float(np.median(grain[core]))
+        # the patch's own window: its box grown by 8 px, the grain normalised from the face's (0) to the floor's (1)
+        x_px, y_px, w_px, h_px = (int(v) for v in stats[k, :4])
+        r0, r1 = max(y_px - 8, 0), min(y_px + h_px + 8, shape[0])
+        c0, c1 = max(x_px - 8, 0), min(x_px + w_px + 8, shape[1])
+        norm = np.clip((grain[r0:r1, c0:c1] - face_grain) / max(floor_grain - face_grain, 1e-12), -0.5, 1.5)
+        norm = np.pad(norm.astype(np.float32), 1)  # a frame at the face's grain closes the ring
+        best = None
+        for ring in find_contours(norm, 0.5, fully_connected="high"):
+            if len(ring) < 8 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
+                continue
+            a = abs(signed_area(ring))
+            if best is None or a > best[1]:
+                best = (ring[:-1], a)
+        if best is None or best[1] < min_hole_px:
+            continue
+        ring_rc, g, _ = _refine_vertices(norm, best[0], 0.5)
+        xy = np.column_stack([ring_rc[:, 1] - 1 + c0 + origin[0], ring_rc[:, 0] - 1 + r0 + origin[1]])
+        # the grain's blur: the high-pass's own width and the average's, added in quadrature
+        holes.append(correct_curvature(xy, math.hypot(1.0, GRAIN_SIGMA_PX)))
+        grads.append(g)
+        added += 1
+    if not added:
+        return face
+    return replace(face, holes_px=holes, hole_gradients_px=grads, grain_holes=added, local_levels=True)

@@ -33,6 +33,7 @@ import cv2
 import numpy as np
 
 from scanmass.geometry import vertex_normals
+from scanmass.numeric import nanmedian_rows
 
 __all__ = [
     "ShadowRisk",
@@ -280,8 +281,8 @@ def edge_profile_risk(
     outer = np.where((inside < 0.5) & near_out[None, :], nrm, np.nan)
     with np.errstate(all="ignore"), warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # an all-NaN row: no sample there
-        part_near = np.nanmedian(inner, axis=1)
-        paper_near = np.nanmedian(outer, axis=1)
+        part_near = nanmedian_rows(inner)  # np.nanmedian(axis=1)'s values
+        paper_near = nanmedian_rows(outer)
         paper_min = np.nanmin(outer, axis=1)
         part_max = np.nanmax(inner, axis=1)
     ramp = paper_near > 0.2

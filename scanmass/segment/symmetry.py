@@ -51,13 +51,19 @@ def _outward_normals(ring: np.ndarray) -> np.ndarray:
     return normal
 
 
-def _profiles(
-    image: LoadedImage, rings: PartRings, table: np.ndarray, *, extra_px: float = 0.0
-) -> tuple[np.ndarray | None, np.ndarray, float]:
-    """Profiles across the part's clear outer edges (s from the background towards the part).
+@dataclass(frozen=True)
+class _Frame:
+    """Where a part's edge profiles are sampled: maps into the crop ``box`` (c0, r0, c1, r1), and s."""
 
-    They reach 3 blur widths + 1.5 px (+ ``extra_px``) each side of the edge.
-    """
+    map_x: np.ndarray
+    map_y: np.ndarray
+    box: tuple[int, int, int, int]
+    s: np.ndarray
+    step: float
+
+
+def _frame(image: LoadedImage, rings: PartRings, *, extra_px: float = 0.0) -> tuple[_Frame | None, np.ndarray, float]:
+    """The sampling frame of :func:`_profiles` (None, s, step when there are too few clear edges)."""
     ring = np.asarray(rings.outer_px, float)
     if len(ring) < 16 or rings.cut:
         return None, np.zeros(0), 0.1
@@ -82,14 +88,31 @@ def _profiles(
     pad = int(math.ceil(a + 3))
     c0, r0 = max(0, x0 - pad), max(0, y0 - pad)
     c1, r1 = min(image.width_px, x1 + pad), min(image.height_px, y1 + pad)
+    # s runs from the background (outside) towards the part; each coordinate as
+    # (point - s * normal) - crop corner, the arithmetic of the (x, y) pairs
+    map_x = (pts[:, 0, None] - s[None, :] * normals[:, 0, None] - float(c0)).astype(np.float32)
+    map_y = (pts[:, 1, None] - s[None, :] * normals[:, 1, None] - float(r0)).astype(np.float32)
+    return _Frame(map_x, map_y, (c0, r0, c1, r1), s, step), s, step
+
+
+def _sample(image: LoadedImage, frame: _Frame, table: np.ndarray) -> np.ndarray:
+    """The profiles of a frame through the tone curve ``table`` (linear interpolation in that light)."""
+    c0, r0, c1, r1 = frame.box
     lin = lookup(table, image.grey[r0:r1, c0:c1]).astype(np.float32, copy=False)
-    # s runs from the background (outside) towards the part
-    xy = pts[:, None, :] - s[None, :, None] * normals[:, None, :] - np.array([c0, r0], float)
-    prof = cv2.remap(
-        lin, xy[..., 0].astype(np.float32), xy[..., 1].astype(np.float32), cv2.INTER_LINEAR,
-        borderMode=cv2.BORDER_REPLICATE,
-    ).astype(float)  # fmt: skip
-    return prof, s, step
+    return cv2.remap(lin, frame.map_x, frame.map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE).astype(float)
+
+
+def _profiles(
+    image: LoadedImage, rings: PartRings, table: np.ndarray, *, extra_px: float = 0.0
+) -> tuple[np.ndarray | None, np.ndarray, float]:
+    """Profiles across the part's clear outer edges (s from the background towards the part).
+
+    They reach 3 blur widths + 1.5 px (+ ``extra_px``) each side of the edge.
+    """
+    frame, s, step = _frame(image, rings, extra_px=extra_px)
+    if frame is None:
+        return None, s, step
+    return _sample(image, frame, table), s, step
 
 
 def edge_asymmetry(image: LoadedImage, rings: PartRings, *, lut: np.ndarray | None = None) -> EdgeSymmetry:
@@ -214,18 +237,18 @@ def reading_shift(image: LoadedImage, rings: PartRings, lut_other: np.ndarray) -
     Positive when the other reading puts the edge further out (the part larger). The
     profiles are those of :func:`edge_asymmetry`.
     """
-    here = _crossings_of(image, rings, image.to_linear)
-    there = _crossings_of(image, rings, lut_other)
+    frame, _, _ = _frame(image, rings)  # the same profiles under both readings
+    if frame is None:
+        return 0.0
+    here = _crossings_of(_sample(image, frame, image.to_linear), frame.s, frame.step)
+    there = _crossings_of(_sample(image, frame, lut_other), frame.s, frame.step)
     ok = np.isfinite(here) & np.isfinite(there)
     if ok.sum() < 8:
         return 0.0
     return float(np.median(here[ok] - there[ok]))
 
 
-def _crossings_of(image: LoadedImage, rings: PartRings, table: np.ndarray) -> np.ndarray:
-    prof, s, step = _profiles(image, rings, table)
-    if prof is None:
-        return np.zeros(0)
+def _crossings_of(prof: np.ndarray, s: np.ndarray, step: float) -> np.ndarray:
     end = max(2, int(round(0.6 / step)))
     b = prof[:, :end].mean(axis=1)
     f = prof[:, -end:].mean(axis=1)

@@ -1,0 +1,323 @@
+"""A deep through-hole's edge at the top face, where the hole shows dark rather than like paper.
+
+A hole through a thick part, seen from above, shows its far wall and whatever of its floor (the
+paper) the near wall leaves in view, both shaded by the walls: the whole opening looks darker
+than the part's top face, not like the paper. The opening's border in the photo is the hole's
+edge at the top face all round (the near wall hides itself). This module traces that border
+(rays from the dark pit's centre, crossing the midpoint between the pit's level and the face's);
+the pipeline maps it onto the top face's plane, where a drilled hole is a circle.
+Part of the segment stage (:mod:`scanmass.segment`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+
+#: Number of rays cast from a pit's centre to trace its border.
+RAYS = 180
+#: Step (px) along a ray.
+RAY_STEP_PX = 0.25
+#: Gaussian smoothing (px, after a 3x3 median) against the renderer's and the sensor's speckle in the pit.
+SMOOTH_PX = 0.7
+#: A ray's crossing is looked for within this distance (px) of the filled dark region's border.
+NEAR_PX = 2.5
+#: A crossing followed (within twice :data:`NEAR_PX`) by a level this share of the pit-to-face step
+#: above the face is the dark region's border with a lit floor or wall inside the opening, not its
+#: border with the face: the ray is left out.
+BRIGHT_SHARE = 1.0
+#: Rays within this angle (degrees) of a lit stretch are left out too.
+LIT_MARGIN_DEG = 20.0
+
+
+@dataclass(frozen=True)
+class PitEdge:
+    """The traced border of a dark pit (crop px).
+
+    Attributes
+    ----------
+    points_px : (N, 2) ndarray
+        Where each ray crosses the midpoint level (x, y, crop px); rays that found no
+        crossing are left out.
+    spread_px : (N,) ndarray
+        Per point: the distance between the crossings of the levels at 30 % and at 70 % of the
+        step from the pit to the face (the edge's width: how far a wrong level would move it).
+    face_level, pit_level : float
+        The face's and the pit's levels (linear light).
+    share : float
+        Share of the rays that found a crossing with the face.
+    """
+
+    points_px: np.ndarray
+    spread_px: np.ndarray
+    face_level: float
+    pit_level: float
+    share: float
+
+
+def _crossing_near(profile: np.ndarray, level: float, at: int) -> float:
+    """The upward crossing of ``level`` in ``profile`` (fractional index) nearest to index ``at``; NaN if none."""
+    below = profile[:-1] < level
+    up = np.flatnonzero(below & (profile[1:] >= level))
+    if len(up) == 0:
+        return math.nan
+    i = int(up[np.argmin(np.abs(up + 0.5 - at))])
+    lo, hi = float(profile[i]), float(profile[i + 1])
+    return i + (level - lo) / max(hi - lo, 1e-12)
+
+
+def _dark_region(img: np.ndarray, part_mask: np.ndarray, seed: np.ndarray, level: float) -> np.ndarray | None:
+    """The region below ``level`` within the part that holds most of ``seed``, its specks filled."""
+    dark = ((img < level) & part_mask).astype(np.uint8)
+    count, labels = cv2.connectedComponents(dark, connectivity=8)
+    hit = labels[seed & (dark > 0)]
+    hit = hit[hit > 0]
+    if count < 2 or hit.size == 0:
+        return None
+    own = (labels == np.bincount(hit).argmax()).astype(np.uint8)
+    h, w = img.shape
+    filled = np.zeros((h + 2, w + 2), np.uint8)
+    filled[1:-1, 1:-1] = own
+    cv2.floodFill(filled, None, (0, 0), 2)
+    return np.asarray(filled[1:-1, 1:-1] != 2)
+
+
+def pit_edge(
+    lin: np.ndarray,
+    part_mask: np.ndarray,
+    centre_px: tuple[float, float],
+    diameter_px: float,
+    *,
+    rays: int = RAYS,
+) -> PitEdge | None:
+    """Trace the border of a dark pit inside a part by rays from its centre.
+
+    The levels: the pit's, the median within half its radius of its centre; the face's, the
+    median of the part's pixels 3 to 8 px outside the pit's equal-area circle, then (once the
+    dark region around the pit at the midpoint level is known: the pit as found can be a small
+    core of the opening) 3 to 8 px outside that region. On each ray
+    (3x3 median-filtered image, bilinear samples every :data:`RAY_STEP_PX`) the border is the
+    crossing of the midpoint level (the edge of a blurred step in linear light) nearest to the
+    border of the dark region (at the midpoint level, within the part, specks filled) around
+    the centre. A ray whose crossing leads to something clearly brighter than the face (a lit
+    floor or wall seen through the opening, :data:`BRIGHT_SHARE`) is left out.
+
+    Parameters
+    ----------
+    lin : (H, W) ndarray
+        The crop's linear light.
+    part_mask : (H, W) bool ndarray
+        The part's pixels (found holes cleared).
+    centre_px, diameter_px
+        The pit's centre (crop px) and equal-area diameter (:func:`~scanmass.segment.shadow.dark_pits`).
+
+    Returns
+    -------
+    PitEdge or None
+        None when the face around the pit is not brighter than the pit.
+
+    Examples
+    --------
+    >>> yy, xx = np.mgrid[0:80, 0:80]
+    >>> lin = np.where(np.hypot(xx - 40.0, yy - 40.0) < 12.0, 0.005, 0.05).astype(np.float32)
+    >>> e = pit_edge(lin, np.ones((80, 80), bool), (40.0, 40.0), 24.0)
+    >>> r = np.hypot(e.points_px[:, 0] - 40.0, e.points_px[:, 1] - 40.0)
+    >>> bool(abs(np.median(r) - 12.0) < 0.6), e.share
+    (True, 1.0)
+    """
+    img = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), SMOOTH_PX)
+    h, w = img.shape
+    cx, cy = centre_px
+    r_pit = 0.5 * diameter_px
+    yy, xx = np.mgrid[0:h, 0:w]
+    dist = np.hypot(xx - cx, yy - cy)
+    inner = dist < 0.5 * r_pit
+    ring = part_mask & (dist > r_pit + 3.0) & (dist < r_pit + 8.0)
+    if np.count_nonzero(inner) < 3:
+        return None
+    pit_level = float(np.median(img[inner]))
+    region = None
+    for _ in range(2):  # the face's level beside the pit as found, then beside the dark region it leads to
+        if np.count_nonzero(ring) < 20:
+            return None
+        face_level = float(np.median(img[ring]))
+        if face_level <= 1.5 * pit_level:
+            return None
+        region = _dark_region(img, part_mask, inner, pit_level + 0.5 * (face_level - pit_level))
+        if region is None:
+            return None
+        away = cv2.distanceTransform((~region).astype(np.uint8), cv2.DIST_L2, 3)
+        ring = part_mask & (away > 3.0) & (away < 8.0)
+    step = face_level - pit_level
+    if region is None:
+        return None
+    reach = float(dist[region].max()) + 2 * NEAR_PX + 1.0
+    radii = np.arange(0.0, reach, RAY_STEP_PX, dtype=np.float32)
+    angles = np.linspace(0.0, 2 * math.pi, rays, endpoint=False)
+    map_x = (cx + np.cos(angles)[:, None] * radii[None, :]).astype(np.float32)
+    map_y = (cy + np.sin(angles)[:, None] * radii[None, :]).astype(np.float32)
+    profiles = cv2.remap(img, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    inside = cv2.remap(region.astype(np.float32), map_x, map_y, cv2.INTER_NEAREST, borderValue=0.0) > 0.5
+    near = int(NEAR_PX / RAY_STEP_PX)
+    pts, spread, index = [], [], []
+    lit = np.zeros(rays, bool)
+    for k in range(rays):
+        out = np.flatnonzero(~inside[k])
+        if len(out) == 0 or out[0] == 0:
+            continue
+        edge = int(out[0])  # the filled region's border on this ray
+        if not (edge + near < len(radii)):
+            continue
+        lo_i, hi_i = max(edge - near, 1), edge + near
+        seg = profiles[k, lo_i - 1 : hi_i + 1]
+        levels = [_crossing_near(seg, pit_level + f * step, edge - lo_i + 1) for f in (0.5, 0.3, 0.7)]
+        if not math.isfinite(levels[0]):
+            continue
+        r = (lo_i - 1 + levels[0]) * RAY_STEP_PX
+        at = int(r / RAY_STEP_PX)
+        beyond = profiles[k, at : at + 2 * near + 1]
+        if beyond.size and float(beyond.max()) > face_level + BRIGHT_SHARE * step:
+            # the dark region ends at something brighter than the face: a lit floor or wall inside the hole
+            lit[k] = True
+        index.append(k)
+        pts.append((cx + math.cos(angles[k]) * r, cy + math.sin(angles[k]) * r))
+        lo, hi = levels[1], levels[2]
+        spread.append(abs(hi - lo) * RAY_STEP_PX if math.isfinite(lo) and math.isfinite(hi) else 2.0 * NEAR_PX)
+    # the rays beside a lit stretch see its soft end: left out as well
+    span = int(math.ceil(LIT_MARGIN_DEG / 360.0 * rays))
+    near_lit = np.convolve(np.r_[lit[-span:], lit, lit[:span]].astype(float), np.ones(2 * span + 1), "valid") > 0
+    good = [i for i, k in enumerate(index) if not near_lit[k]]
+    if not good:
+        return None
+    return PitEdge(
+        np.asarray(pts, float)[good], np.asarray(spread, float)[good], face_level, pit_level, len(good) / rays
+    )
+
+
+#: A level within this factor of the face's (either way) is taken as the face's when tracing an opening.
+FACE_BAND = 1.6
+
+
+def opening_edge(
+    lin: np.ndarray,
+    part_mask: np.ndarray,
+    seed: np.ndarray,
+    reach_px: float,
+    *,
+    rays: int = RAYS,
+) -> PitEdge | None:
+    """Trace the border of a hole's whole opening, from the part of it already found (``seed``).
+
+    A hole in a thick part seen at an angle shows, inside its opening at the top face, the
+    paper (lit, or in the wall's shade) and its far wall (lit or shaded): the segmentation
+    finds the part of it that looks like the paper, and the rest looks like neither the paper
+    nor the face. The opening is the region around ``seed`` whose level is not the face's
+    (outside :data:`FACE_BAND` of it), within ``reach_px`` of the seed's centre and its specks
+    filled; on each ray from the seed's centre, the border is the crossing, nearest to where
+    the ray leaves that region, of the midpoint between the face's level and the level just
+    inside (up from a shaded stretch, down from a lit one).
+
+    Parameters
+    ----------
+    lin : (H, W) ndarray
+        The crop's linear light.
+    part_mask : (H, W) bool ndarray
+        The part's pixels (its found holes cleared).
+    seed : (H, W) bool ndarray
+        The found part of the opening (a found hole's pixels).
+    reach_px : float
+        How far from the seed's centre the opening may reach.
+
+    Returns
+    -------
+    PitEdge or None
+        ``pit_level`` is the median level inside the opening; ``share`` the share of rays with
+        a crossing. None without a face around the seed.
+
+    Examples
+    --------
+    >>> yy, xx = np.mgrid[0:80, 0:80]
+    >>> r = np.hypot(xx - 40.0, yy - 40.0)
+    >>> lin = np.where(r < 12.0, np.where(xx < 40, 0.5, 0.004), 0.05).astype(np.float32)  # lit half, shaded half
+    >>> e = opening_edge(lin, r >= 12.0, (r < 12.0) & (xx < 38), 20.0)
+    >>> rr = np.hypot(e.points_px[:, 0] - 40.0, e.points_px[:, 1] - 40.0)
+    >>> bool(abs(np.median(rr) - 12.0) < 0.6), e.share > 0.9
+    (True, True)
+    """
+    img = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), SMOOTH_PX)
+    h, w = img.shape
+    if np.count_nonzero(seed) < 3:
+        return None
+    ys, xs = np.nonzero(seed)
+    cx, cy = float(xs.mean()), float(ys.mean())
+    yy, xx = np.mgrid[0:h, 0:w]
+    dist = np.hypot(xx - cx, yy - cy)
+    away = cv2.distanceTransform((~seed).astype(np.uint8), cv2.DIST_L2, 3)
+    ring = part_mask & (away > 3.0) & (away < 8.0)
+    region: np.ndarray = seed
+    face_level = math.nan
+    for _ in range(2):  # the face beside the seed, then beside the opening it leads to
+        if np.count_nonzero(ring) < 20:
+            return None
+        face_level = float(np.median(img[ring]))
+        if face_level <= 0:
+            return None
+        other = ((img < face_level / FACE_BAND) | (img > face_level * FACE_BAND)) & (dist < reach_px)
+        # closed: where a lit stretch meets a shaded one, the blurred step between them passes the
+        # face's level along a line a pixel wide, which must not cut the opening in two
+        joined = cv2.morphologyEx((other | seed).astype(np.uint8), cv2.MORPH_CLOSE, np.ones((3, 3), np.uint8))
+        count, labels = cv2.connectedComponents(joined, connectivity=8)
+        hit = labels[seed]
+        hit = hit[hit > 0]
+        if count < 2 or hit.size == 0:
+            return None
+        own = np.zeros((h + 2, w + 2), np.uint8)
+        own[1:-1, 1:-1] = labels == np.bincount(hit).argmax()
+        cv2.floodFill(own, None, (0, 0), 2)
+        region = own[1:-1, 1:-1] != 2
+        away = cv2.distanceTransform((~region).astype(np.uint8), cv2.DIST_L2, 3)
+        ring = part_mask & (away > 3.0) & (away < 8.0)
+    reach = float(dist[region].max()) + 2 * NEAR_PX + 1.0
+    radii = np.arange(0.0, reach, RAY_STEP_PX, dtype=np.float32)
+    angles = np.linspace(0.0, 2 * math.pi, rays, endpoint=False)
+    map_x = (cx + np.cos(angles)[:, None] * radii[None, :]).astype(np.float32)
+    map_y = (cy + np.sin(angles)[:, None] * radii[None, :]).astype(np.float32)
+    profiles = cv2.remap(img, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    inside = cv2.remap(region.astype(np.float32), map_x, map_y, cv2.INTER_NEAREST, borderValue=0.0) > 0.5
+    near = int(NEAR_PX / RAY_STEP_PX)
+    pts, spread = [], []
+    for k in range(rays):
+        out = np.flatnonzero(~inside[k])
+        if len(out) == 0 or out[0] < near:
+            continue
+        edge = int(out[0])
+        if edge + near >= len(radii):
+            continue
+        # the level just inside: the stretch (twice NEAR_PX long: a blurred step's half width and
+        # more) of the last samples before the
+        # ray's exit that lie outside the face's band, at its extreme (a blurred step's plateau)
+        prof = profiles[k]
+        j0 = edge - 1
+        while j0 > 0 and face_level / FACE_BAND <= prof[j0] <= face_level * FACE_BAND:
+            j0 -= 1
+        plateau = prof[max(j0 - 2 * near, 0) : j0 + 1]
+        sign = 1.0 if prof[j0] < face_level else -1.0  # up from a shade, down from a lit stretch
+        before = float(plateau.min() if sign > 0 else plateau.max())
+        lo_i, hi_i = max(edge - near, 1), edge + near
+        seg = sign * profiles[k, lo_i - 1 : hi_i + 1]
+        levels = [
+            _crossing_near(seg, sign * (before + f * (face_level - before)), edge - lo_i + 1) for f in (0.5, 0.3, 0.7)
+        ]
+        if not math.isfinite(levels[0]):
+            continue
+        r = (lo_i - 1 + levels[0]) * RAY_STEP_PX
+        pts.append((cx + math.cos(angles[k]) * r, cy + math.sin(angles[k]) * r))
+        lo, hi = levels[1], levels[2]
+        spread.append(abs(hi - lo) * RAY_STEP_PX if math.isfinite(lo) and math.isfinite(hi) else 2.0 * NEAR_PX)
+    if not pts:
+        return None
+    pit_level = float(np.median(img[region]))
+    return PitEdge(np.asarray(pts, float), np.asarray(spread, float), face_level, pit_level, len(pts) / rays)
