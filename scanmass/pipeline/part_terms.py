@@ -117,9 +117,25 @@ def area_share_term(part: Part, area_mm2: float, weight: float = 1.0) -> dict[st
     return term
 
 
-def _with_shadow_term(part: Part, term: dict[str, float], hole_d_u_mm: float, name: str = "cast_shadow") -> Part:
-    """The part with a term ``name``; a hole can be narrowed by a shadow (or a lost reflection) too."""
-    holes = [replace(h, diameter_u_mm=combine(h.diameter_u_mm, hole_d_u_mm)) for h in part.holes]
+def _with_shadow_term(
+    part: Part, term: dict[str, float], hole_d_u_mm: float, name: str = "cast_shadow", hole_c_u_mm: float = 0.0
+) -> Part:
+    """The part with a term ``name``; a hole can be narrowed by a shadow (or a lost reflection) too.
+
+    ``hole_d_u_mm`` joins each hole's diameter uncertainty, ``hole_c_u_mm`` each axis of its
+    centre's (a shadow along one side of a hole moves its centre).
+    """
+    holes = [
+        replace(
+            h,
+            diameter_u_mm=combine(h.diameter_u_mm, hole_d_u_mm),
+            circle_centre_u_mm=(
+                combine(h.circle_centre_u_mm[0], hole_c_u_mm),
+                combine(h.circle_centre_u_mm[1], hole_c_u_mm),
+            ),
+        )
+        for h in part.holes
+    ]
     updated = replace(part, holes=holes)
     return _with_extra_term(updated, name, term, [])
 

@@ -15,7 +15,7 @@ import numpy as np
 from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage
-from scanmass.measurement import Measurement, Part
+from scanmass.measurement import Hole, Measurement, Part
 from scanmass.pipeline.part_terms import (
     UNKNOWN_THICKNESS_MM,
     _with_extra_term,
@@ -240,6 +240,29 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
     ]
 
 
+def _one_sided_mm(open_mm: float) -> float:
+    """Uncertainty (mm, per axis) of a hole's centre where a shadow may lie along one side of its edge.
+
+    ``open_mm`` is the hole's diameter term for a contact shadow ringing it (the depth left open
+    along its edge; a ring of twice that depth is the 2-sigma bound). A shadow of that same
+    bound, twice the open depth, along one side only (a light from one side: on the committed
+    window-light render tests/data/reallight/window-steel-t25 the gasket's hole kept its
+    shadow on the side away from the window and its centre read 2.0 mm off) moves the centre
+    by half of it, the open depth: taken at 2 sigma, half the open depth.
+    """
+    return 0.5 * open_mm
+
+
+def _hole_shadowed(hole: Hole, open_mm: float) -> Hole:
+    """The hole with a shadow's terms: ``open_mm`` on its diameter, :func:`_one_sided_mm` on its centre."""
+    c_u = _one_sided_mm(open_mm)
+    return replace(
+        hole,
+        diameter_u_mm=combine(hole.diameter_u_mm, open_mm),
+        circle_centre_u_mm=(combine(hole.circle_centre_u_mm[0], c_u), combine(hole.circle_centre_u_mm[1], c_u)),
+    )
+
+
 def _cast_shadows(
     image: LoadedImage,
     scale: PhotoScale,
@@ -321,7 +344,8 @@ def _cast_shadows(
             rings = [outer_px - [x0, y0], *(hp - [x0, y0] for hp in holes_px)]
             bound = hidden_shadow(crop, mask.astype(bool), risk.paper_rgb, band_px, code_step=step, rings=rings)
         if bound is None:
-            result.parts[n] = _with_shadow_term(part, area_share_term(part, like_mm2, weight=0.5), 0.5 * depth_mm)
+            term = area_share_term(part, like_mm2, weight=0.5)
+            result.parts[n] = _with_shadow_term(part, term, 0.5 * depth_mm, hole_c_u_mm=_one_sided_mm(0.5 * depth_mm))
         else:
             # where the face begins beside the edge, a shadow can hide only nearer the outline
             # than that: the term holds half of those pixels (the bound taken at 2 sigma), and
@@ -331,10 +355,7 @@ def _cast_shadows(
             like_mm2 = min(like_mm2, bound.hidden_px * mm_per_px**2)
             part = _with_extra_term(part, "cast_shadow", area_share_term(part, like_mm2, weight=0.5), [])
             open_mm = iter(min(0.5 * depth_mm, d * mm_per_px) for d in bound.ring_depth_px[1:])
-            holes = [
-                h if h.outline_mm is None else replace(h, diameter_u_mm=combine(h.diameter_u_mm, next(open_mm)))
-                for h in part.holes
-            ]
+            holes = [h if h.outline_mm is None else _hole_shadowed(h, next(open_mm)) for h in part.holes]
             result.parts[n] = replace(part, holes=holes)
         flagged.append(f"{part.label} ({100 * risk.fraction:.0f} % of its edge band)")
     out = []
