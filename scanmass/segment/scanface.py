@@ -64,6 +64,10 @@ FACE_SEED = 0.1
 #: its soft front) when the step's mean gradient there stands this many times above the search's median.
 SWEEP_MIN_PROMINENCE = 4.0
 
+#: A hard front's step (read inside the part only, :func:`_front_steps`) is where the front's signed gradient,
+#: averaged over the whole front, stands this many of its sigmas (over the search range) out of its median.
+HARD_FRONT_PROMINENCE = 8.0
+
 #: Shortest shadow (px) the sweep looks for: shorter ones are within the front's own soft ramp.
 SWEEP_MIN_LENGTH_PX = 6
 
@@ -95,7 +99,7 @@ HARD_FRONT_NOISE = 8.0
 HARD_FRONT_STEP = 0.002
 
 #: The face's step behind a hard front, its gradient averaged over the whole front, stands this many times
-#: above the same average read :data:`ASIDE_PX` before and after it (noise, or a slow shading, is as steep there).
+#: above the same average read :data:`ASIDE_PX` before or after it (noise, or a slow shading, is as steep there).
 STEP_OVER_ASIDE = 3.0
 
 #: ... this many px (beyond the step's own blur and the 3 px it is looked for in).
@@ -493,7 +497,8 @@ def _shadow_length(
     h = smooth.shape[0]
     grad = np.zeros_like(smooth)
     grad[1:-1] = 0.5 * (smooth[2:] - smooth[:-2])
-    grad = np.abs(grad)
+    if interior is None:
+        grad = np.abs(grad)
     inside = filled.astype(bool)
     front = inside.copy()
     front[1:] &= ~inside[:-1]
@@ -508,6 +513,8 @@ def _shadow_length(
         ok &= interior[np.minimum(at, h - 1), cols[None, :]]
     score = np.where(ok, grad[np.minimum(at, h - 1), cols[None, :]], 0.0).sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
     valid = np.ones(extent, bool) if interior is None else ok.sum(axis=1) >= 0.5 * rows.size
+    if interior is not None:  # the signed gradient's mean: noise averages out, a step of one sign does not
+        score = np.abs(score - np.median(score[valid])) if valid.any() else np.zeros_like(score)
     score[~valid] = 0.0
     # the front's own soft ramp: skip it (until the score, smoothed over 3 offsets, stops falling)
     smoothed = np.convolve(score, np.ones(3) / 3.0, mode="same")
@@ -521,7 +528,10 @@ def _shadow_length(
     if read.size < 8:
         return 0, 0.0, 0.0
     length = start + int(np.argmax(window))
-    prominence = float(window.max() / max(float(np.median(read)), 1e-12))
+    if interior is None:
+        prominence = float(window.max() / max(float(np.median(read)), 1e-12))
+    else:  # in sigmas of the signed mean's spread over the search range
+        prominence = float(window.max() / max(1.4826 * float(np.median(read)), 1e-12))
     lo, hi = rows + length - SWEEP_STEP_READ_PX, rows + length + SWEEP_STEP_READ_PX
     both = (lo >= 0) & (hi < h)
     both[both] &= inside[lo[both], cols[both]] & inside[hi[both], cols[both]]
@@ -546,7 +556,7 @@ def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, leas
     kept = found.astype(bool)
     clear = exact_distance(np.ascontiguousarray(found).astype(np.uint8)) > SWEEP_STEP_READ_PX
     length, prominence, step = _shadow_length(smooth, filled, clear)
-    if length < SWEEP_MIN_LENGTH_PX or prominence < SWEEP_MIN_PROMINENCE or step <= 0.0:
+    if length < SWEEP_MIN_LENGTH_PX or prominence < HARD_FRONT_PROMINENCE or step <= 0.0:
         return 0, 0.0
     h = smooth.shape[0]
     grad = np.zeros_like(smooth)
@@ -567,14 +577,14 @@ def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, leas
     if np.count_nonzero(both) < 8:
         return length, 0.0
     rise *= math.copysign(1.0, float(np.median(rise[both])))
-    stepped = both & (rise >= 2.0 * least)
-    # the step's gradient, summed over the whole front, stands out of the same sum read a few px before and after it
-    # (the noise's, or a slow shading's; a curved front's step is steep along the lamp's axis only where the
+    stepped = both & (rise >= least)
+    # the step's gradient, summed over the whole front, stands out of the same sum read a few px before or after it
+    # (the noise's, or a slow shading's; before it, the front's own edge may still show where the arc is steep; a curved front's step is steep along the lamp's axis only where the
     # front faces it: near the arc's ends each line's gradient is lost in the noise, the arc's sum is not)
     if not stepped.any():
         return length, 0.0
     aside = [grad[np.clip(rows[stepped] + length + k, 0, h - 1), cols[stepped]] for k in (-ASIDE_PX, ASIDE_PX)]
-    if float(np.mean(peak[stepped])) < STEP_OVER_ASIDE * max(float(np.mean(a)) for a in aside):
+    if float(np.mean(peak[stepped])) < STEP_OVER_ASIDE * min(float(np.mean(a)) for a in aside):
         return length, 0.0
     return length, float(np.count_nonzero(stepped)) / max(rows.size, 1)
 
@@ -729,7 +739,8 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
     if hard:
         clear = _up(exact_distance(np.ascontiguousarray(ctx.found).astype(np.uint8)) > SWEEP_STEP_READ_PX, direction)
     length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction), clear)
-    if length < SWEEP_MIN_LENGTH_PX or prominence < SWEEP_MIN_PROMINENCE or step <= 0.0:
+    least = SWEEP_MIN_PROMINENCE if clear is None else HARD_FRONT_PROMINENCE
+    if length < SWEEP_MIN_LENGTH_PX or prominence < least or step <= 0.0:
         return None
     reach = length + SWEEP_MARGIN_PX
     segment = np.ones((reach + 1, 1), np.uint8)
