@@ -553,9 +553,11 @@ def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, leas
     shadow. (0, 0.0) when no peak stands out of the search range by
     :data:`SWEEP_MIN_PROMINENCE`.
     """
-    kept = found.astype(bool)
-    clear = exact_distance(np.ascontiguousarray(found).astype(np.uint8)) > SWEEP_STEP_READ_PX
-    length, prominence, step = _shadow_length(smooth, filled, clear)
+    # a step inside the part: read clear of the outline and the holes by twice the px it is read across (the
+    # signed average over a long front finds even the far tail of a part's own edge)
+    depth = exact_distance(np.ascontiguousarray(found).astype(np.uint8))
+    kept = depth > SWEEP_STEP_READ_PX
+    length, prominence, step = _shadow_length(smooth, filled, depth > 2 * SWEEP_STEP_READ_PX)
     if length < SWEEP_MIN_LENGTH_PX or prominence < HARD_FRONT_PROMINENCE or step <= 0.0:
         return 0, 0.0
     h = smooth.shape[0]
@@ -571,13 +573,14 @@ def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, leas
     at = np.clip(rows[:, None] + length + np.arange(-1, 2)[None, :], 0, h - 1)
     peak = grad[at, cols[:, None]].max(axis=1)
     # a step, not a line (a seam between two parts laid edge to edge dips and comes back): the levels either
-    # side differ by twice the least gradient (a step blurred by 1.4 px peaks at 0.28 of its height), the same
-    # way along the whole front (the face lies on one side of its shadow's level)
+    # side differ by the least gradient, the same way along the whole front (the face lies on one side of its
+    # shadow's level)
     rise = smooth[np.clip(hi, 0, h - 1), cols] - smooth[np.clip(lo, 0, h - 1), cols]
     if np.count_nonzero(both) < 8:
         return length, 0.0
     rise *= math.copysign(1.0, float(np.median(rise[both])))
-    stepped = both & (rise >= least)
+    # ... and no steeper than a step of that rise can be (a line's peak is: it dips and comes back within the read)
+    stepped = both & (rise >= least) & (peak <= rise + least)
     # the step's gradient, summed over the whole front, stands out of the same sum read a few px before or after it
     # (the noise's, or a slow shading's; before it, the front's own edge may still show where the arc is steep; a curved front's step is steep along the lamp's axis only where the
     # front faces it: near the arc's ends each line's gradient is lost in the noise, the arc's sum is not)
@@ -737,7 +740,8 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
     filled = ctx.filled
     clear = None
     if hard:
-        clear = _up(exact_distance(np.ascontiguousarray(ctx.found).astype(np.uint8)) > SWEEP_STEP_READ_PX, direction)
+        depth = exact_distance(np.ascontiguousarray(ctx.found).astype(np.uint8))
+        clear = _up(depth > 2 * SWEEP_STEP_READ_PX, direction)
     length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction), clear)
     least = SWEEP_MIN_PROMINENCE if clear is None else HARD_FRONT_PROMINENCE
     if length < SWEEP_MIN_LENGTH_PX or prominence < least or step <= 0.0:
