@@ -492,7 +492,10 @@ def _shadow_length(
     outline and the holes) only the gradient read inside it counts, at offsets where at least
     half the fronts reach it: a part's far edge, a step of the whole lid-to-part contrast,
     outweighs a faint face-to-shadow step wherever many fronts meet it at one offset (the
-    middle of a disc's far arc), and is not a step inside the part.
+    middle of a disc's far arc), and is not a step inside the part. The gradient is then
+    signed (noise averages out over a long front, a step of one sign does not), the mean
+    taken from its median over the search range, and the prominence is in sigmas of that
+    departure (1.4826 times its median).
     """
     h = smooth.shape[0]
     grad = np.zeros_like(smooth)
@@ -544,14 +547,19 @@ def _shadow_length(
 def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, least: float) -> tuple[int, float]:
     """The length (px) of a shadow cast up the rows, and the share of its front with the face's step behind it.
 
-    As :func:`_shadow_length`, the length is where the rows' gradient, read the same
-    distance behind every front pixel, peaks (its front's own ramp skipped); the share
-    counts the front pixels with a step of at least ``least`` (linear light per px) within
-    a px of that distance, the found region (``found``: holes cleared) on both sides of
-    it (:data:`SWEEP_STEP_READ_PX`) and levels there twice ``least`` apart: a hole's rim,
-    the part's far edge or a seam between two parts is not a face's edge against its
-    shadow. (0, 0.0) when no peak stands out of the search range by
-    :data:`SWEEP_MIN_PROMINENCE`.
+    As :func:`_shadow_length` with an interior mask: the length is where the rows' signed
+    gradient, read the same distance behind every front pixel and only 10 px or more clear
+    of the outline and the holes (a hole's rim, the part's far edge), averaged over the
+    whole front, stands :data:`HARD_FRONT_PROMINENCE` sigmas out of the search range
+    (the front's own ramp skipped). The share counts the front pixels whose levels
+    :data:`SWEEP_STEP_READ_PX` either side of that distance (both inside the part by as
+    much) differ by at least ``least`` (linear light per px), the same way along the
+    whole front, with a gradient no steeper than that rise (a seam between two parts is a
+    line: steep, and it comes back). It is 0 unless the gradient of those pixels, averaged
+    over the front, stands :data:`STEP_OVER_ASIDE` times above the same average
+    :data:`ASIDE_PX` before or after the step: a curved front's step is steep along the
+    lamp's axis only where the front faces it, so each line near the arc's ends may lose
+    it in the noise while the whole arc's average does not. (0, 0.0) when no length is found.
     """
     # a step inside the part: read clear of the outline and the holes by twice the px it is read across (the
     # signed average over a long front finds even the far tail of a part's own edge)
