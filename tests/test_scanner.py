@@ -365,30 +365,40 @@ def test_hard_fronted_shadow_lighter_than_the_part_is_left_out(part, soft_px):
     assert m.settings["scan_face"]["shadow_left_out"]["1"] == pytest.approx(width * 5.0, rel=0.2)
 
 
-@pytest.mark.parametrize(
-    "part",
-    [
-        PLATE,
-        pytest.param(
-            DISC,
-            marks=pytest.mark.xfail(
-                strict=True,
-                reason="a hard-fronted shadow 0.01 above a disc's level: the faint step behind its curved front "
-                "is lost in the noise near the arc's steep ends, so no shadow is found and the outline keeps it "
-                "(+26 %) without a warning; known gap",
-            ),
-        ),
-    ],
-    ids=["plate", "disc"],
-)
+@pytest.mark.parametrize("part", [PLATE, DISC], ids=["plate", "disc"])
 def test_hard_fronted_shadow_as_dark_as_the_part_is_left_out(part):
     """A shadow 0.01 above the part's level (noise 0.004) with a front blurred by 0.8 px: the step averaged
-    along the plate's straight edge stands out, and the sweep finds the face. Truth: shapely's area."""
+    along the front stands out (the disc's too: its step is read inside the part only, so the disc's far arc
+    does not outweigh it, and summed over the whole arc), and the sweep finds the face. Truth: shapely's area."""
     m = scanmass.measure(_shadow_scan(part, 6.0, shadow=0.05, soft_px=0.8), dpi=300)
     (found,) = m.parts
     poly = Polygon(part.outer_mm)
     error = found.area_mm2 - poly.area
-    assert abs(error) <= 0.01 * poly.area and abs(error) <= 3 * found.area_u_mm2  # plate: measured -0.05 %
+    assert abs(error) <= 0.01 * poly.area and abs(error) <= 3 * found.area_u_mm2  # measured -0.05 % / +0.16 %
+
+
+@pytest.mark.parametrize("length_mm", [3.0, 4.0, 8.0])
+@pytest.mark.parametrize("above", [0.005, 0.01, 0.02, 0.03])
+@pytest.mark.parametrize("part", [PLATE, DISC], ids=["plate", "disc"])
+def test_faint_hard_fronted_shadows_over_levels_and_lengths(part, above, length_mm):
+    """Hard-fronted shadows (0.8 px) 0.005-0.03 above the part's level (0.04; noise 0.004, 8-bit sRGB: the
+    faintest is 3 codes) and 3-8 mm long, behind a straight and a curved front: never a confident wrong
+    figure. The shadow is left out (area within 1 %, 2 % at 0.005 above: measured -1.1 to -1.6 %, the step
+    three codes high) and within 3 sigma; the 3 mm shadow behind the plate is found but, up to 0.02 above,
+    not separated (a known gap: warned, with a term that covers it). Truth: shapely's area of the exact-coverage outline."""
+    m = scanmass.measure(_shadow_scan(part, length_mm, shadow=0.04 + above, soft_px=0.8), dpi=300)
+    (found,) = m.parts
+    poly = Polygon(part.outer_mm)
+    error = found.area_mm2 - poly.area
+    assert abs(error) <= 3 * found.area_u_mm2
+    assert any(w.startswith("scan of") and "shadow" in w for w in m.warnings)
+    if part is PLATE and length_mm == 3.0 and above < 0.03:
+        assert m.settings["scan_face"]["shadow_not_separated"]
+        return
+    assert abs(error) <= (0.02 if above < 0.01 else 0.01) * poly.area
+    width = poly.bounds[2] - poly.bounds[0]
+    # the band left out: the part's width times the shadow's length (a disc's sweep: the same, 2 r L)
+    assert m.settings["scan_face"]["shadow_left_out"]["1"] == pytest.approx(width * length_mm, rel=0.15)
 
 
 @pytest.mark.parametrize(

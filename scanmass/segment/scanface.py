@@ -64,6 +64,10 @@ FACE_SEED = 0.1
 #: its soft front) when the step's mean gradient there stands this many times above the search's median.
 SWEEP_MIN_PROMINENCE = 4.0
 
+#: A hard front's step (read inside the part only, :func:`_front_steps`) is where the front's signed gradient,
+#: averaged over the whole front, stands this many of its sigmas (over the search range) out of its median.
+HARD_FRONT_PROMINENCE = 8.0
+
 #: Shortest shadow (px) the sweep looks for: shorter ones are within the front's own soft ramp.
 SWEEP_MIN_LENGTH_PX = 6
 
@@ -93,6 +97,13 @@ HARD_FRONT_NOISE = 8.0
 
 #: ... and at least this share of the lid-to-part contrast (per px: a step of 0.7 % of it, blurred by 1.4 px).
 HARD_FRONT_STEP = 0.002
+
+#: The face's step behind a hard front, its gradient averaged over the whole front, stands this many times
+#: above the same average read :data:`ASIDE_PX` before or after it (noise, or a slow shading, is as steep there).
+STEP_OVER_ASIDE = 3.0
+
+#: ... this many px (beyond the step's own blur and the 3 px it is looked for in).
+ASIDE_PX = 7
 
 #: Width (px) of the Gaussian that averages the image along the step before its gradient is read.
 STEP_ALONG_PX = 3.0
@@ -319,7 +330,7 @@ def scan_face(
             return soft_edges
     ctx = _Found(origin, filled, found, outer, list(holes_px), soft, lengths, normals, direction, soft_len, levels)
     if gap < max(MIN_FACE_SHADOW_CONTRAST * (lid - part), 6.0 * noise):
-        return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
+        return _face_by_sweep(linear, ctx, min_hole_px, hard=sweep is not None) or _unseparated(ctx, total)
     # the face: the region at the part's own level (nearer it than the shadow's, which darkens
     # towards inner corners); its edges are then placed by the local levels either side
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.2)
@@ -328,14 +339,14 @@ def scan_face(
     face0: np.ndarray = cv2.morphologyEx(seed_mask, cv2.MORPH_OPEN, kernel)
     count, comp, stats, _ = cv2.connectedComponentsWithStats(face0, connectivity=8)
     if count < 2:
-        return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
+        return _face_by_sweep(linear, ctx, min_hole_px, hard=sweep is not None) or _unseparated(ctx, total)
     biggest = 1 + int(np.argmax(stats[1:, cv2.CC_STAT_AREA]))
     face0 = np.asarray(comp == biggest, dtype=np.uint8)
     if face0.sum() < 0.3 * total:
-        return _face_by_sweep(linear, ctx, min_hole_px) or _unseparated(ctx, total)
+        return _face_by_sweep(linear, ctx, min_hole_px, hard=sweep is not None) or _unseparated(ctx, total)
     return (
         _face_from_seed(linear, ctx, face0, part, gap, min_hole_px)
-        or _face_by_sweep(linear, ctx, min_hole_px)
+        or _face_by_sweep(linear, ctx, min_hole_px, hard=sweep is not None)
         or _unseparated(ctx, total)
     )
 
@@ -466,7 +477,9 @@ def _back(a: np.ndarray, direction: np.ndarray) -> np.ndarray:
     return a.T if direction[0] != 0.0 else a
 
 
-def _shadow_length(smooth: np.ndarray, filled: np.ndarray) -> tuple[int, float, float]:
+def _shadow_length(
+    smooth: np.ndarray, filled: np.ndarray, interior: np.ndarray | None = None
+) -> tuple[int, float, float]:
     """The shadow's length (px) along the rows' upward direction, how clearly it shows, and the step there.
 
     Every found pixel with no found pixel above it is a front: the shadow's soft outer end,
@@ -475,12 +488,20 @@ def _shadow_length(smooth: np.ndarray, filled: np.ndarray) -> tuple[int, float, 
     ``L``, peaks at the shadow's length; elsewhere it samples the face's and the shadow's
     gentle slopes and the odd hole. Returned: ``L``, the peak's height over the median of
     the search range (its prominence), and the median level step across the face's edge
-    there (linear light; 0 when nothing is found).
+    there (linear light; 0 when nothing is found). With ``interior`` (a mask clear of the
+    outline and the holes) only the gradient read inside it counts, at offsets where at least
+    half the fronts reach it: a part's far edge, a step of the whole lid-to-part contrast,
+    outweighs a faint face-to-shadow step wherever many fronts meet it at one offset (the
+    middle of a disc's far arc), and is not a step inside the part. The gradient is then
+    signed (noise averages out over a long front, a step of one sign does not), the mean
+    taken from its median over the search range, and the prominence is in sigmas of that
+    departure (1.4826 times its median).
     """
     h = smooth.shape[0]
     grad = np.zeros_like(smooth)
     grad[1:-1] = 0.5 * (smooth[2:] - smooth[:-2])
-    grad = np.abs(grad)
+    if interior is None:
+        grad = np.abs(grad)
     inside = filled.astype(bool)
     front = inside.copy()
     front[1:] &= ~inside[:-1]
@@ -491,17 +512,29 @@ def _shadow_length(smooth: np.ndarray, filled: np.ndarray) -> tuple[int, float, 
     offsets = np.arange(extent)
     at = rows[None, :] + offsets[:, None]
     ok = at < h
+    if interior is not None:
+        ok &= interior[np.minimum(at, h - 1), cols[None, :]]
     score = np.where(ok, grad[np.minimum(at, h - 1), cols[None, :]], 0.0).sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
+    valid = np.ones(extent, bool) if interior is None else ok.sum(axis=1) >= 0.5 * rows.size
+    if interior is not None:  # the signed gradient's mean: noise averages out, a step of one sign does not
+        score = np.abs(score - np.median(score[valid])) if valid.any() else np.zeros_like(score)
+    score[~valid] = 0.0
     # the front's own soft ramp: skip it (until the score, smoothed over 3 offsets, stops falling)
     smoothed = np.convolve(score, np.ones(3) / 3.0, mode="same")
-    start = 1
+    start = max(1, int(np.argmax(valid)) + 1)
     while start < extent - 8 and smoothed[start + 1] < smoothed[start]:
         start += 1
     if start >= extent - 8:
         return 0, 0.0, 0.0
     window = score[start : max(start + 1, int(0.9 * extent))]
+    read = window[valid[start : start + window.size]]
+    if read.size < 8:
+        return 0, 0.0, 0.0
     length = start + int(np.argmax(window))
-    prominence = float(window.max() / max(float(np.median(window)), 1e-12))
+    if interior is None:
+        prominence = float(window.max() / max(float(np.median(read)), 1e-12))
+    else:  # in sigmas of the signed mean's spread over the search range
+        prominence = float(window.max() / max(1.4826 * float(np.median(read)), 1e-12))
     lo, hi = rows + length - SWEEP_STEP_READ_PX, rows + length + SWEEP_STEP_READ_PX
     both = (lo >= 0) & (hi < h)
     both[both] &= inside[lo[both], cols[both]] & inside[hi[both], cols[both]]
@@ -514,17 +547,26 @@ def _shadow_length(smooth: np.ndarray, filled: np.ndarray) -> tuple[int, float, 
 def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, least: float) -> tuple[int, float]:
     """The length (px) of a shadow cast up the rows, and the share of its front with the face's step behind it.
 
-    As :func:`_shadow_length`, the length is where the rows' gradient, read the same
-    distance behind every front pixel, peaks (its front's own ramp skipped); the share
-    counts the front pixels with a step of at least ``least`` (linear light per px) within
-    a px of that distance, the found region (``found``: holes cleared) on both sides of
-    it (:data:`SWEEP_STEP_READ_PX`) and levels there twice ``least`` apart: a hole's rim,
-    the part's far edge or a seam between two parts is not a face's edge against its
-    shadow. (0, 0.0) when no peak stands out of the search range by
-    :data:`SWEEP_MIN_PROMINENCE`.
+    As :func:`_shadow_length` with an interior mask: the length is where the rows' signed
+    gradient, read the same distance behind every front pixel and only 10 px or more clear
+    of the outline and the holes (a hole's rim, the part's far edge), averaged over the
+    whole front, stands :data:`HARD_FRONT_PROMINENCE` sigmas out of the search range
+    (the front's own ramp skipped). The share counts the front pixels whose levels
+    :data:`SWEEP_STEP_READ_PX` either side of that distance (both inside the part by as
+    much) differ by at least ``least`` (linear light per px), the same way along the
+    whole front, with a gradient no steeper than that rise (a seam between two parts is a
+    line: steep, and it comes back). It is 0 unless the gradient of those pixels, averaged
+    over the front, stands :data:`STEP_OVER_ASIDE` times above the same average
+    :data:`ASIDE_PX` before or after the step: a curved front's step is steep along the
+    lamp's axis only where the front faces it, so each line near the arc's ends may lose
+    it in the noise while the whole arc's average does not. (0, 0.0) when no length is found.
     """
-    length, prominence, step = _shadow_length(smooth, filled)
-    if length < SWEEP_MIN_LENGTH_PX or prominence < SWEEP_MIN_PROMINENCE or step <= 0.0:
+    # a step inside the part: read clear of the outline and the holes by twice the px it is read across (the
+    # signed average over a long front finds even the far tail of a part's own edge)
+    depth = exact_distance(np.ascontiguousarray(found).astype(np.uint8))
+    kept = depth > SWEEP_STEP_READ_PX
+    length, prominence, step = _shadow_length(smooth, filled, depth > 2 * SWEEP_STEP_READ_PX)
+    if length < SWEEP_MIN_LENGTH_PX or prominence < HARD_FRONT_PROMINENCE or step <= 0.0:
         return 0, 0.0
     h = smooth.shape[0]
     grad = np.zeros_like(smooth)
@@ -533,16 +575,29 @@ def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, leas
     front = inside.copy()
     front[1:] &= ~inside[:-1]
     rows, cols = nonzero_rc(front)
-    kept = found.astype(bool)
     lo, hi = rows + length - SWEEP_STEP_READ_PX, rows + length + SWEEP_STEP_READ_PX
     both = (lo >= 0) & (hi < h)
     both[both] &= kept[lo[both], cols[both]] & kept[hi[both], cols[both]]
     at = np.clip(rows[:, None] + length + np.arange(-1, 2)[None, :], 0, h - 1)
     peak = grad[at, cols[:, None]].max(axis=1)
     # a step, not a line (a seam between two parts laid edge to edge dips and comes back): the levels either
-    # side differ by twice the least gradient (a step blurred by 1.4 px peaks at 0.28 of its height)
-    rise = np.abs(smooth[np.clip(hi, 0, h - 1), cols] - smooth[np.clip(lo, 0, h - 1), cols])
-    return length, float(np.count_nonzero(both & (peak >= least) & (rise >= 2.0 * least))) / max(rows.size, 1)
+    # side differ by the least gradient, the same way along the whole front (the face lies on one side of its
+    # shadow's level)
+    rise = smooth[np.clip(hi, 0, h - 1), cols] - smooth[np.clip(lo, 0, h - 1), cols]
+    if np.count_nonzero(both) < 8:
+        return length, 0.0
+    rise *= math.copysign(1.0, float(np.median(rise[both])))
+    # ... and no steeper than a step of that rise can be (a line's peak is: it dips and comes back within the read)
+    stepped = both & (rise >= least) & (peak <= rise + least)
+    # the step's gradient, summed over the whole front, stands out of the same sum read a few px before or after it
+    # (the noise's, or a slow shading's; before it, the front's own edge may still show where the arc is steep; a curved front's step is steep along the lamp's axis only where the
+    # front faces it: near the arc's ends each line's gradient is lost in the noise, the arc's sum is not)
+    if not stepped.any():
+        return length, 0.0
+    aside = [grad[np.clip(rows[stepped] + length + k, 0, h - 1), cols[stepped]] for k in (-ASIDE_PX, ASIDE_PX)]
+    if float(np.mean(peak[stepped])) < STEP_OVER_ASIDE * min(float(np.mean(a)) for a in aside):
+        return length, 0.0
+    return length, float(np.count_nonzero(stepped)) / max(rows.size, 1)
 
 
 def _hard_front(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tuple[np.ndarray, int] | None:
@@ -669,7 +724,7 @@ def _off_face(outer: np.ndarray, found: np.ndarray, direction: np.ndarray, lengt
     return np.asarray(dist[rows, cols] > 3.0)
 
 
-def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float) -> FaceResult | None:
+def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard: bool = False) -> FaceResult | None:
     """The face of a part as dark as its shadow, from the shadow being the face swept along the lamp.
 
     Parallel light along ``direction`` and a flat lid make the shadow the face swept by
@@ -680,7 +735,8 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float) -> FaceR
     the face's smooth level by half the face-to-shadow step are a hole's floor (a deep
     hole is in the shadow of its own wall) and are left out. The seed's edges are then
     placed by the local levels either side (:func:`_face_from_seed`, with the face's own
-    level surface rather than one level).
+    level surface rather than one level). With ``hard`` (the shadow was found by its hard
+    front, :func:`_hard_front`) the length is read as there, from steps inside the part only.
 
     References
     ----------
@@ -690,8 +746,13 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float) -> FaceR
     direction = ctx.direction
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
     filled = ctx.filled
-    length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction))
-    if length < SWEEP_MIN_LENGTH_PX or prominence < SWEEP_MIN_PROMINENCE or step <= 0.0:
+    clear = None
+    if hard:
+        depth = exact_distance(np.ascontiguousarray(ctx.found).astype(np.uint8))
+        clear = _up(depth > 2 * SWEEP_STEP_READ_PX, direction)
+    length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction), clear)
+    least = SWEEP_MIN_PROMINENCE if clear is None else HARD_FRONT_PROMINENCE
+    if length < SWEEP_MIN_LENGTH_PX or prominence < least or step <= 0.0:
         return None
     reach = length + SWEEP_MARGIN_PX
     segment = np.ones((reach + 1, 1), np.uint8)
