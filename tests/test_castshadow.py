@@ -8,13 +8,13 @@ and hole diameters of the truth outlines come from shapely, not from the code un
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 
 import cv2
 import numpy as np
 import pytest
+from _reallight_truth import truth_part
 from PIL import Image
 from shapely.geometry import Polygon
 
@@ -85,17 +85,6 @@ def test_synthetic_cast_shadow_is_cut_at_the_parts_true_outline(tmp_path):
     assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
 
 
-def _truth_part(name: str, shape: str) -> dict:
-    truth = json.loads((REALLIGHT / f"{name}.json").read_text())
-    (p,) = [p for p in truth["parts"] if p["shape"] == shape]
-    poly = Polygon(p["outline_mm"], p["holes_mm"])  # shapely: the reference area and centroid
-    holes = []
-    for ring in p["holes_mm"]:
-        hp = Polygon(ring)  # a round hole's diameter: the equal-area circle of its polygon
-        holes.append(((hp.centroid.x, hp.centroid.y), 2 * math.sqrt(hp.area / math.pi)))
-    return {"area": poly.area, "centroid": (poly.centroid.x, poly.centroid.y), "holes": holes, "t": p["thickness_mm"]}
-
-
 @pytest.mark.parametrize(
     "name,shape,area_tol,centroid_tol,hole_tol",
     [
@@ -118,7 +107,7 @@ def _truth_part(name: str, shape: str) -> dict:
     ],
 )
 def test_rendered_cast_shadow_is_cut_and_covered(name, shape, area_tol, centroid_tol, hole_tol):
-    tp = _truth_part(name, shape)
+    tp = truth_part(name, shape)
     m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=tp["t"])
     part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
     assert "shadow_cut" in part.uncertainty_terms and "cast_shadow" not in part.uncertainty_terms
@@ -214,7 +203,7 @@ def test_hidden_shadow_bounds_what_the_cut_leaves(width_px, shade, grain):
     ],
 )
 def test_cast_shadow_term_holds_what_the_edge_layers_leave_open(name, shape, term_share):
-    tp = _truth_part(name, shape)
+    tp = truth_part(name, shape)
     m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=tp["t"])
     part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
     assert "shadow_cut" not in part.uncertainty_terms
@@ -232,7 +221,7 @@ def test_cut_leaves_no_false_hole_along_the_shadows_far_edge():
     """A rim of the outline one or two pixels wide left between the cut and the paper enclosed
     the cut as a 2.8 mm2 'hole' 62 mm across in the steel cam; it goes with the cut. The cam's
     only true hole is its bore (the truth file), too deep to show paper: no hole is reported."""
-    tp = _truth_part("spot-steel-t0", "cam")
+    tp = truth_part("spot-steel-t0", "cam")
     assert len(tp["holes"]) == 1
     m = scanmass.measure(REALLIGHT / "spot-steel-t0.jpg", thickness_mm=tp["t"])
     part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
@@ -249,7 +238,7 @@ def test_low_window_light_shadow_left_in_is_warned_and_covered():
     is named in the 'cast shadow' warning and its area, centroid, hole diameter and hole centre
     lie within 3 stated sigma (truth: the render's outlines, shapely). The hole's centre was
     3.1 sigma off before it had a term for a shadow along one side of it."""
-    tp = _truth_part("window-steel-t25", "gasket")
+    tp = truth_part("window-steel-t25", "gasket")
     m = scanmass.measure(REALLIGHT / "window-steel-t25.jpg", thickness_mm=tp["t"])
     part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
     assert "shadow_cut" not in part.uncertainty_terms

@@ -9,13 +9,13 @@ the blur: darkest at the part's edge, fading over a few pixels, the paper's own 
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 
 import cv2
 import numpy as np
 import pytest
+from _reallight_truth import truth_part
 from PIL import Image
 from shapely.geometry import Polygon
 
@@ -136,17 +136,6 @@ def test_shadow_depth_reads_an_exponential_profile():
     assert 0.8 * true <= float(np.median(depth[straight])) <= true
 
 
-def _truth_part(name: str, shape: str) -> dict:
-    truth = json.loads((REALLIGHT / f"{name}.json").read_text())
-    (p,) = [p for p in truth["parts"] if p["shape"] == shape]
-    poly = Polygon(p["outline_mm"], p["holes_mm"])  # shapely: the reference area and centroid
-    holes = []
-    for ring in p["holes_mm"]:
-        hp = Polygon(ring)  # a round hole's diameter: the equal-area circle of its polygon
-        holes.append(((hp.centroid.x, hp.centroid.y), 2 * math.sqrt(hp.area / math.pi)))
-    return {"area": poly.area, "centroid": (poly.centroid.x, poly.centroid.y), "holes": holes, "t": p["thickness_mm"]}
-
-
 @pytest.mark.parametrize(
     "name,shape,area_tol,hole_tol",
     [
@@ -161,7 +150,7 @@ def _truth_part(name: str, shape: str) -> dict:
     ],
 )
 def test_soft_light_black_parts_measure_on_their_edges(name, shape, area_tol, hole_tol):
-    tp = _truth_part(name, shape)
+    tp = truth_part(name, shape)
     m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=tp["t"])
     part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
     assert abs(part.area_mm2 - tp["area"]) <= area_tol * tp["area"]
