@@ -85,6 +85,24 @@ def _dark_region(img: np.ndarray, part_mask: np.ndarray, seed: np.ndarray, level
     return np.asarray(filled[1:-1, 1:-1] != 2)
 
 
+def _rays(
+    img: np.ndarray, region: np.ndarray, radius: float, cx: float, cy: float, rays: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Profiles along ``rays`` rays from ``(cx, cy)`` out to ``radius`` + two near bands + 1 px.
+
+    Returns the radii, the angles, the image sampled along each ray (one row per ray,
+    bilinear) and whether each sample lies in ``region`` (nearest pixel).
+    """
+    reach = radius + 2 * NEAR_PX + 1.0
+    radii = np.arange(0.0, reach, RAY_STEP_PX, dtype=np.float32)
+    angles = np.linspace(0.0, 2 * math.pi, rays, endpoint=False)
+    map_x = (cx + np.cos(angles)[:, None] * radii[None, :]).astype(np.float32)
+    map_y = (cy + np.sin(angles)[:, None] * radii[None, :]).astype(np.float32)
+    profiles = cv2.remap(img, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
+    inside = cv2.remap(region.astype(np.float32), map_x, map_y, cv2.INTER_NEAREST, borderValue=0.0) > 0.5
+    return radii, angles, profiles, inside
+
+
 def pit_edge(
     lin: np.ndarray,
     part_mask: np.ndarray,
@@ -154,13 +172,7 @@ def pit_edge(
     step = face_level - pit_level
     if region is None:
         return None
-    reach = float(dist[region].max()) + 2 * NEAR_PX + 1.0
-    radii = np.arange(0.0, reach, RAY_STEP_PX, dtype=np.float32)
-    angles = np.linspace(0.0, 2 * math.pi, rays, endpoint=False)
-    map_x = (cx + np.cos(angles)[:, None] * radii[None, :]).astype(np.float32)
-    map_y = (cy + np.sin(angles)[:, None] * radii[None, :]).astype(np.float32)
-    profiles = cv2.remap(img, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-    inside = cv2.remap(region.astype(np.float32), map_x, map_y, cv2.INTER_NEAREST, borderValue=0.0) > 0.5
+    radii, angles, profiles, inside = _rays(img, region, float(dist[region].max()), cx, cy, rays)
     near = int(NEAR_PX / RAY_STEP_PX)
     pts, spread, index = [], [], []
     lit = np.zeros(rays, bool)
@@ -280,13 +292,7 @@ def opening_edge(
         region = own[1:-1, 1:-1] != 2
         away = cv2.distanceTransform((~region).astype(np.uint8), cv2.DIST_L2, 3)
         ring = part_mask & (away > 3.0) & (away < 8.0)
-    reach = float(dist[region].max()) + 2 * NEAR_PX + 1.0
-    radii = np.arange(0.0, reach, RAY_STEP_PX, dtype=np.float32)
-    angles = np.linspace(0.0, 2 * math.pi, rays, endpoint=False)
-    map_x = (cx + np.cos(angles)[:, None] * radii[None, :]).astype(np.float32)
-    map_y = (cy + np.sin(angles)[:, None] * radii[None, :]).astype(np.float32)
-    profiles = cv2.remap(img, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-    inside = cv2.remap(region.astype(np.float32), map_x, map_y, cv2.INTER_NEAREST, borderValue=0.0) > 0.5
+    radii, angles, profiles, inside = _rays(img, region, float(dist[region].max()), cx, cy, rays)
     near = int(NEAR_PX / RAY_STEP_PX)
     pts, spread = [], []
     for k in range(rays):
