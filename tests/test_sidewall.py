@@ -56,6 +56,33 @@ def test_soft_ramp_is_no_wall():
     assert lost_wall_band(img, ring, np.tile([0.0, 1.0], (len(ring), 1)), np.full(len(ring), 5.0)) is None
 
 
+def _ramped_band_beside(face_rgb: np.ndarray, band_rgb: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """A face over rows 10-39, a 5 px band below it brightening by 0.7 of the way to the paper
+    (a polished wall's highlight), then a step up to the paper; the face's lower edge."""
+    img, ring = _band_image(band_rgb)
+    img[10:40, 10:70] = face_rgb
+    for k in range(5):
+        img[40 + k, 10:70] = band_rgb + 0.7 * (PAPER - band_rgb) * k / 4
+    return img, ring
+
+
+def test_ramped_wall_of_the_faces_colour_is_found():
+    """A brass-coloured face (levels stated here) and a band of the same hue that rises towards the
+    paper (as the polished disc's wall in tests/data/reallight/mixed-brass-t30 does): a wall."""
+    face, band = np.array([0.10, 0.07, 0.03]), np.array([0.40, 0.30, 0.14])
+    img, ring = _ramped_band_beside(face, band)
+    found = lost_wall_band(img, ring, np.tile([0.0, 1.0], (len(ring), 1)), np.full(len(ring), 5.0))
+    assert found is not None and found.vertices == len(ring)
+
+
+def test_ramped_band_of_another_hue_than_the_face_is_no_wall():
+    """The same ramped band in a bluish shade (a shadow lit by a cool light only) beside the brass
+    face: unlike the face's colour, and ramped, so not taken as a wall."""
+    face, band = np.array([0.10, 0.07, 0.03]), np.array([0.25, 0.32, 0.45])
+    img, ring = _ramped_band_beside(face, band)
+    assert lost_wall_band(img, ring, np.tile([0.0, 1.0], (len(ring), 1)), np.full(len(ring), 5.0)) is None
+
+
 def test_no_wall_facing_the_camera_no_band():
     img, ring = _band_image(np.array([0.50, 0.30, 0.10]))
     assert lost_wall_band(img, ring, np.tile([0.0, 1.0], (len(ring), 1)), np.zeros(len(ring))) is None
@@ -72,16 +99,18 @@ def test_rendered_brass_disc_gets_its_lit_wall_back():
     """Brass disc 6 mm thick, 30 degrees of tilt: its lit wall was taken for paper (-10.3 % in
     area, 1.9 mm off in centroid); restored, it measured -0.4 % and 0.57 mm, with its bore read
     1.1 mm small (only the lit paper seen through it). The bore is now measured at its whole
-    opening (-0.09 mm, photo_checks._open_deep_holes), and the outline's own shortfall shows:
-    -1.5 % and 0.61 mm (bench_reallight), covered by the stated uncertainty."""
+    opening (-0.09 mm, photo_checks._open_deep_holes), and the outline's own shortfall showed:
+    -1.5 % and 0.61 mm (bench_reallight). The stretch of wall on the highlight's side, which
+    brightens towards the paper and was left out as a possible penumbra, is now taken by its
+    colour (the face's hue, sidewall._face_coloured): -0.14 % and 0.45 mm."""
     tp = _truth_part("mixed-brass-t30", "disc")
     m = scanmass.measure(REALLIGHT / "mixed-brass-t30.jpg", thickness_mm=tp["t"])
     part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
     assert "side_wall" in part.uncertainty_terms
     assert any(w.startswith(f"side wall: beside part(s) {part.label} (") for w in m.warnings)
-    assert abs(part.area_mm2 - tp["area"]) <= 0.02 * tp["area"]  # the issue's worst case is 1 %: not met
+    assert abs(part.area_mm2 - tp["area"]) <= 0.01 * tp["area"]  # the issue's worst-case target, 1 %
     assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
-    assert math.dist(part.centroid_mm, tp["centroid"]) <= 0.8
+    assert math.dist(part.centroid_mm, tp["centroid"]) <= 0.6  # the 0.05 mm target is not met
     for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
         assert abs(c - t) <= 3 * u
 
