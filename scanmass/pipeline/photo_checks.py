@@ -850,6 +850,15 @@ def _blend_cut_edge(
     half-way level between the face and the paper falls where the photo's level is half-way
     between the face and its shadow. ``window`` (encoded, as stored) is painted in place;
     ``before`` is it before the cut was painted.
+
+    It runs on dark plastic faces only. On the brass gasket of spot-brass-t10 (whose cut's
+    step, face 0.019 and shadow 0.012 of the paper white, lies on the cut's pixel boundary)
+    it brought the area from -3.1 % to +0.04 % only by overshooting the outline by
+    0.3-0.4 mm in places, against a 0.06 mm inward bias all round the outer edge and a hole
+    0.13 mm too large all round; on the thick brass plates' deep holes it shrank the holes
+    (the hole's dark wall and bottom taken as the shadow's level). Face and shadow levels
+    taken locally (instead of one median per part) moved spot-black-t20's disc from +1.2 %
+    to +0.9 % but window-mixed-t0's bracket from -1.8 % to -4.7 %, so they stay global.
     """
     keep = mask & ~cut
     to_cut = cv2.distanceTransform((~cut).astype(np.uint8), cv2.DIST_L2, 3)
