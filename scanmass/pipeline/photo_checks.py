@@ -28,7 +28,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
-from scanmass.segment.castshadow import dark_tinted_face, hidden_shadow, hole_bottoms, shadow_cut
+from scanmass.segment.castshadow import dark_tinted_face, fade_cut, hidden_shadow, hole_bottoms, shadow_cut
 from scanmass.segment.deephole import PitEdge, opening_edge, pit_edge
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -964,6 +964,9 @@ def _cut_cast_shadows(
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
             cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
+            if cut is None and not dark and thickness_mm is not None:
+                # a metal face as grainy as its shadow: the soft shadow's fade inside the outline
+                cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
         if cut is not None:
             outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
             paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]

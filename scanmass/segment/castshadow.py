@@ -49,6 +49,7 @@ __all__ = [
     "STRETCH_PX",
     "dark_tinted_face",
     "hole_bottoms",
+    "fade_cut",
 ]
 
 #: Smallest ratio of the shadow's roughness (median over the candidate layer) to the face's
@@ -306,6 +307,129 @@ def _dark_face_alike(smooth: np.ndarray, interior: np.ndarray) -> np.ndarray:
         # the paper's tint is 0 (the colour is taken over its white): nearer the face's
         alike &= np.abs(tint - face_tint) < np.abs(tint)
     return alike
+
+
+#: Smallest level of a fade pixel, as a multiple of the face's (:func:`fade_cut`).
+_FADE_LEVEL_RATIO = 3.0
+#: Largest level of the paper just outside the outline (1.5-5 px off it, smoothed over 4 px),
+#: as a share of the paper's further off (12-20 px), for a stretch to lie in a fading shadow
+#: (:func:`fade_cut`).
+_FADE_DIM = 0.8
+
+
+def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float) -> ShadowCut | None:
+    """The inner end of a soft shadow's fade inside the outline of a dark tinted metal face.
+
+    A metal face under a low side light (brushed steel in window light: 0.02-0.06 of the
+    paper, tinted -0.06 to -0.10 blue minus red over its level) is as grainy as the shadow
+    beside it, so :func:`shadow_cut` refuses; but the soft shadow's inner end is no face: it
+    rises from several times the face's level outwards to the paper, with the paper's tint
+    (0), and the paper beyond it is still dimmed (a soft shadow fades over many px; on the lit
+    side the paper just off the outline is as bright as further off). So the pixels of the
+    region within ``reach_px`` of its boundary, reached from it, at :data:`_FADE_LEVEL_RATIO` or
+    more of the face's level (under :data:`_MAX_DEPTH` of the paper) and nearer the paper's tint
+    than the face's, are cut where the paper just outside the boundary near them is under
+    :data:`_FADE_DIM` of the paper further off. The outline's own blur (one or two such pixels
+    all round) is left where the paper beside it is lit, so the outline stays on the face's
+    step there as it then lands on it in the shadow. On the committed render
+    tests/data/reallight/window-steel-t25 the steel gasket's shadow side (and the far side of
+    its hole, in the wall's shadow) holds 1-3 such pixels (0.15-0.3 of the paper) inside its
+    outline, the paper beyond at 0.45-0.8. The cut also holds the pixels just outside the
+    boundary beside it (within 3 px), so that painted as paper the shadow side reads as paper
+    up to the face (``cut_px`` counts only the region's pixels).
+
+    Returns None on a face that is not dark (under :data:`DARK_FACE_LEVEL`) and tinted (at
+    least :data:`_DARK_CHROMA_STEP` from the paper), or where no band is deep enough.
+
+    Examples
+    --------
+    A dark steel-tinted face 44 px wide with a 2 px shadow fade along its right side inside the
+    outline, fading on over 10 px of paper beyond it, and a 1 px blur ring elsewhere beside lit
+    paper: the fade inside is cut, the ring kept.
+
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (80, 96, 1))
+    >>> mask = np.zeros((80, 96), bool); mask[15:65, 15:62] = True
+    >>> img[16:64, 16:60] = 0.03 * paper * np.array([1.04, 1.0, 0.96])
+    >>> img[15:65, 60:72] = paper * np.linspace(0.2, 0.9, 12)[None, :, None]
+    >>> img[15, 16:60] = img[64, 16:60] = img[16:64, 15] = 0.5 * paper
+    >>> cut = fade_cut(img, mask, paper, 10.0)
+    >>> bool(cut.cut[20:60, 60:62].all()), bool((cut.cut & mask)[:, :59].any()), bool(cut.cut[20:60, 62:65].all())
+    (True, False, True)
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return None
+    q = (colour_lin / np.asarray(paper_rgb)).astype(np.float32)
+    smooth = cv2.GaussianBlur(q, (0, 0), 1.0)
+    sm = smooth.mean(axis=2)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return None
+    face_level = float(np.median(sm[interior]))
+    tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+    face_tint = float(np.median(tint[interior]))
+    if not 0 < face_level < DARK_FACE_LEVEL or abs(face_tint) < _DARK_CHROMA_STEP:
+        return None
+    fade = (
+        part_mask
+        & (inside <= reach_px)
+        & (sm >= _FADE_LEVEL_RATIO * face_level)
+        & (sm < _MAX_DEPTH)
+        & (np.abs(tint - face_tint) > np.abs(tint))
+    )
+    fade = _reached(fade, part_mask, inside)
+    # the paper just off the boundary (outside it, or in a hole) against the paper further off
+    level = q.mean(axis=2)
+    outside = cv2.distanceTransform((1 - mask8).astype(np.uint8), cv2.DIST_L2, 3)
+    far = level[(outside > 12) & (outside <= 20)]
+    if far.size < 50:
+        return None
+    ring = ((outside > 1.5) & (outside <= 5)).astype(np.float32)
+    near = cv2.GaussianBlur(level * ring, (0, 0), 4) / np.maximum(cv2.GaussianBlur(ring, (0, 0), 4), 1e-6)
+    cut = _with_rim(fade & (near < _FADE_DIM * float(np.median(far))), part_mask)
+    n_cut = int(np.count_nonzero(cut))
+    keep = part_mask & ~cut
+    if n_cut < STRETCH_PX or np.count_nonzero(keep) < 50:
+        return None
+    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
+    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
+    rough = roughness(level)
+    # the rest of the fade just outside (3 px) goes with it: painted as paper, a strip of the
+    # cut between the face and the darker fade outside would read as a hole
+    beyond = ~part_mask & (outside <= 3.0) & cv2.dilate(cut.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool)
+    return ShadowCut(
+        cut=cut | beyond,
+        cut_px=n_cut,
+        edge_px=float(np.count_nonzero(border)),
+        texture_face=float(np.median(rough[interior])),
+        texture_shadow=float(np.median(rough[cut])),
+        level_face=float(np.median(sm[keep])),
+        level_shadow=float(np.median(sm[cut])),
+    )
+
+
+def _with_rim(cut: np.ndarray, part_mask: np.ndarray) -> np.ndarray:
+    """``cut`` with the pixels of the region it would leave as a rim or an island.
+
+    A strip of the outline's rim (within 2 px of both the cut and the paper) left between a cut
+    and the paper would enclose the cut as a false hole once painted: it goes with the cut,
+    unless that parts the face; so do pieces of the rest under 5 % of its largest.
+    """
+    keep = part_mask & ~cut
+    count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
+    if count > 2:
+        areas = stats[1:, cv2.CC_STAT_AREA]
+        pieces = (labels > 0) & (stats[labels, cv2.CC_STAT_AREA] < 0.05 * areas.max())
+        cut, keep = cut | pieces, keep & ~pieces
+    to_cut = cv2.distanceTransform((~cut).astype(np.uint8), cv2.DIST_L2, 3)
+    to_out = cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3)
+    strip = keep & (to_cut <= 2.0) & (to_out <= 2.0)
+    strip &= ~cv2.dilate((keep & ~strip & (to_cut > 2.0)).astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+    before = cv2.connectedComponents(keep.astype(np.uint8), connectivity=8)[0]
+    if strip.any() and cv2.connectedComponents((keep & ~strip).astype(np.uint8), connectivity=8)[0] <= before:
+        cut = cut | strip
+    return cut
 
 
 #: Layers over which the profile must stay past half-way for the face to begin.
