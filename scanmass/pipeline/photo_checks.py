@@ -1070,8 +1070,8 @@ def _cut_cast_shadows(
     out = []
     if done:
         out.append(
-            f"cast shadow cut: from part(s) {', '.join(done)} a layer with the paper's colour and grain, darkened, was "
-            f"taken as cast shadow and left out{left}; the outline there runs on the step between the part and its "
+            f"cast shadow cut: from part(s) {', '.join(done)} a layer with the paper's colour, darkened (its grain, "
+            f"or its fade out to the paper, told it from the part), was taken as cast shadow and left out{left}; the outline there runs on the step between the part and its "
             "shadow, and the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse "
             "light or a backlight"
         )
