@@ -790,6 +790,7 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         if np.median(slope[rim]) >= SWEEP_HOLE_RIM * abs(core):  # a sharp rim: a hole's edge on the glass
             hole |= patch
     hole |= (filled.astype(bool) & ~ctx.found.astype(bool)).astype(np.uint8)  # holes found as such (lit floors)
+    hole |= _shadowed_floors(filled, ctx.found, smooth, dev, step, lo, hi)
     hole = _joined_floors(hole)
     face0 = (seed.astype(bool) & ~hole).astype(np.uint8)
     # grown back to the face's edges (the seed stops short of them): on the shadow's side through pixels at
@@ -805,6 +806,39 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
     part_surface = _normalised_blur(linear, face0.astype(bool), SWEEP_LEVEL_SIGMA_PX, ctx.levels[2])
     face = _face_from_seed(linear, ctx, face0, part_surface, step, min_hole_px, sharp_holes=True, not_face=hole)
     return None if face is None else replace(face, local_levels=True, note="separated by the sweep")
+
+
+def _shadowed_floors(
+    filled: np.ndarray, found: np.ndarray, smooth: np.ndarray, dev: np.ndarray, step: float, lo: float, hi: float
+) -> np.ndarray:
+    """The floor of a hole in its wall's shadow, beside the lit floor the found outline opened.
+
+    A hole shorter along the lamp's direction than its shadow shows a lit lens (a hole of
+    the found outline) and, next to it, the lid in the shadow of the hole's wall, as dark as
+    the face or darker. The sweep cuts the seed back behind the lit lens, so the shadowed
+    floor's patches are not the seed's and no rim check sees them whole. Every patch of
+    the found region that stands out of the face's levels as a hole's floor does (by the
+    face-to-shadow ``step``, or half of it beyond the face's range ``lo`` to ``hi``), touches
+    the lit floor (within 2 px) and stays 3 px clear of the part's outline (the shadow on the
+    lid outside the face) is joined to it. A part without lit floors gives an empty mask.
+    """
+    kernel = np.ones((3, 3), np.uint8)
+    lit = filled.astype(bool) & ~found.astype(bool)
+    out = np.zeros(found.shape, np.uint8)
+    if not lit.any():
+        return out
+    odd = found.astype(bool) & ((dev >= step) | (smooth < lo - 0.5 * step) | (smooth > hi + 0.5 * step))
+    count, comp = cv2.connectedComponents(odd.astype(np.uint8), connectivity=8)
+    if count < 2:
+        return out
+    near_lit = cv2.dilate(lit.astype(np.uint8), kernel, iterations=2).astype(bool)
+    near_edge = cv2.dilate((filled == 0).astype(np.uint8), kernel, iterations=3).astype(bool)
+    touching = np.unique(comp[near_lit & odd])
+    rimmed = np.unique(comp[near_edge & odd])
+    joined = np.setdiff1d(touching[touching > 0], rimmed)
+    if joined.size:
+        out[np.isin(comp, joined)] = 1
+    return out
 
 
 def _face_range(values: np.ndarray, step: float) -> tuple[float, float]:
