@@ -790,7 +790,7 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         if np.median(slope[rim]) >= SWEEP_HOLE_RIM * abs(core):  # a sharp rim: a hole's edge on the glass
             hole |= patch
     hole |= (filled.astype(bool) & ~ctx.found.astype(bool)).astype(np.uint8)  # holes found as such (lit floors)
-    hole |= _shadowed_floors(filled, ctx.found, smooth, dev, step, lo, hi)
+    hole |= _shadowed_floors(filled, ctx.found, swept_off, smooth, dev, step, lo, hi)
     hole = _joined_floors(hole)
     face0 = (seed.astype(bool) & ~hole).astype(np.uint8)
     # grown back to the face's edges (the seed stops short of them): on the shadow's side through pixels at
@@ -809,7 +809,14 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
 
 
 def _shadowed_floors(
-    filled: np.ndarray, found: np.ndarray, smooth: np.ndarray, dev: np.ndarray, step: float, lo: float, hi: float
+    filled: np.ndarray,
+    found: np.ndarray,
+    swept_off: np.ndarray,
+    smooth: np.ndarray,
+    dev: np.ndarray,
+    step: float,
+    lo: float,
+    hi: float,
 ) -> np.ndarray:
     """The floor of a hole in its wall's shadow, beside the lit floor the found outline opened.
 
@@ -819,8 +826,10 @@ def _shadowed_floors(
     floor's patches are not the seed's and no rim check sees them whole. Every patch of
     the found region that stands out of the face's levels as a hole's floor does (by the
     face-to-shadow ``step``, or half of it beyond the face's range ``lo`` to ``hi``), touches
-    the lit floor (within 2 px) and stays 3 px clear of the part's outline (the shadow on the
-    lid outside the face) is joined to it. A part without lit floors gives an empty mask.
+    the lit floor or the band the sweep cut behind it (``swept_off`` clear of the outline;
+    within 2 px: a soft lamp's ramp between the two floors passes through the face's level)
+    and stays 3 px clear of the part's outline (the shadow on the lid outside the face) is
+    joined to it. A part without lit floors gives an empty mask.
     """
     kernel = np.ones((3, 3), np.uint8)
     lit = filled.astype(bool) & ~found.astype(bool)
@@ -831,8 +840,14 @@ def _shadowed_floors(
     count, comp = cv2.connectedComponents(odd.astype(np.uint8), connectivity=8)
     if count < 2:
         return out
-    near_lit = cv2.dilate(lit.astype(np.uint8), kernel, iterations=2).astype(bool)
     near_edge = cv2.dilate((filled == 0).astype(np.uint8), kernel, iterations=3).astype(bool)
+    # the band cut behind each lit floor: the swept-off pixels clear of the outline that touch it
+    behind = (swept_off.astype(bool) & ~near_edge).astype(np.uint8)
+    n_behind, comp_behind = cv2.connectedComponents(behind, connectivity=8)
+    grown_lit = cv2.dilate(lit.astype(np.uint8), kernel).astype(bool)
+    cut = np.unique(comp_behind[grown_lit & behind.astype(bool)])
+    reach = lit | np.isin(comp_behind, cut[cut > 0]) if n_behind > 1 else lit
+    near_lit = cv2.dilate(reach.astype(np.uint8), kernel, iterations=2).astype(bool)
     touching = np.unique(comp[near_lit & odd])
     rimmed = np.unique(comp[near_edge & odd])
     joined = np.setdiff1d(touching[touching > 0], rimmed)
