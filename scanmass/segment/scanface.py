@@ -790,7 +790,7 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         if np.median(slope[rim]) >= SWEEP_HOLE_RIM * abs(core):  # a sharp rim: a hole's edge on the glass
             hole |= patch
     hole |= (filled.astype(bool) & ~ctx.found.astype(bool)).astype(np.uint8)  # holes found as such (lit floors)
-    hole |= _shadowed_floors(filled, ctx.found, swept_off, smooth, dev, step, lo, hi)
+    hole |= _shadowed_floors(filled, ctx.found, swept_off, hole.astype(bool), smooth, dev, step, lo, hi)
     hole = _joined_floors(hole)
     face0 = (seed.astype(bool) & ~hole).astype(np.uint8)
     # grown back to the face's edges (the seed stops short of them): on the shadow's side through pixels at
@@ -812,6 +812,7 @@ def _shadowed_floors(
     filled: np.ndarray,
     found: np.ndarray,
     swept_off: np.ndarray,
+    rimmed_floors: np.ndarray,
     smooth: np.ndarray,
     dev: np.ndarray,
     step: float,
@@ -829,7 +830,9 @@ def _shadowed_floors(
     the lit floor or the band the sweep cut behind it (``swept_off`` clear of the outline;
     within 2 px: a soft lamp's ramp between the two floors passes through the face's level)
     and stays 3 px clear of the part's outline (the shadow on the lid outside the face) is
-    joined to it. A part without lit floors gives an empty mask.
+    joined to it, unless it holds a floor already found by its sharp rim (``rimmed_floors``:
+    that floor is a hole as found, and a face darkened next to its rim, as a metal's may be,
+    must not join it through the rim's blur). A part without lit floors gives an empty mask.
     """
     kernel = np.ones((3, 3), np.uint8)
     lit = filled.astype(bool) & ~found.astype(bool)
@@ -849,7 +852,7 @@ def _shadowed_floors(
     reach = lit | np.isin(comp_behind, cut[cut > 0]) if n_behind > 1 else lit
     near_lit = cv2.dilate(reach.astype(np.uint8), kernel, iterations=2).astype(bool)
     touching = np.unique(comp[near_lit & odd])
-    rimmed = np.unique(comp[near_edge & odd])
+    rimmed = np.unique(np.concatenate([comp[near_edge & odd], comp[rimmed_floors & odd]]))
     joined = np.setdiff1d(touching[touching > 0], rimmed)
     if joined.size:
         out[np.isin(comp, joined)] = 1
