@@ -359,7 +359,7 @@ def test_shadow_over_holes_is_left_out_whatever_its_front(soft_px, shadow_mm):
     for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
         assert abs(c - t) <= 0.06 and abs(c - t) <= 3 * u
     holes = [2 * math.sqrt(Polygon(h).area / math.pi) for h in plate.holes_mm]
-    # measured within 0.08 mm
+    # measured within 0.11 mm (a 6 px front, 4 mm: 5.89 mm)
     assert sorted(h.diameter_mm for h in found.holes) == pytest.approx(sorted(holes), abs=0.15)
     # the band left out: the plate's 40 mm width times the shadow's length (and a hole the outline had shut)
     assert m.settings["scan_face"]["shadow_left_out"]["1"] > 0.8 * 40.0 * shadow_mm
