@@ -325,24 +325,42 @@ def test_the_sweep_finds_the_face_whichever_way_the_lamp_shines():
 
 @pytest.mark.parametrize(
     ("soft_px", "shadow_mm"),
-    [(0.8, 7.0), (1.5, 7.0), (3.0, 7.0), (5.0, 7.0), (0.8, 4.0), (3.0, 4.0), (1.5, 10.0)],
+    [
+        (0.8, 3.0),
+        (0.8, 4.0),
+        (0.8, 7.0),
+        (1.5, 7.0),
+        (1.5, 10.0),
+        (3.0, 3.0),
+        (3.0, 4.0),
+        (3.0, 7.0),
+        (5.0, 7.0),
+        (6.0, 3.0),
+        (6.0, 4.0),
+        (6.0, 5.0),
+        (6.0, 10.0),
+    ],
 )
-def test_shadow_with_a_hard_front_is_left_out(soft_px, shadow_mm):
-    """A shadow whose front is blurred by only 0.8-5 px (a small lamp, a low lid): no soft stretch on the
-    outline says a shadow is there (below 5 px the old check saw none and kept it: +41 %, no warning). Its
-    geometry does: the same sharp step one length behind its whole front. Truth: shapely's area and
-    centroid of the exact-coverage plate with its two holes."""
+def test_shadow_over_holes_is_left_out_whatever_its_front(soft_px, shadow_mm):
+    """A shadow 3-10 mm long whose front is blurred by 0.8-6 px (a small lamp, a low lid; 6 px leaves a soft
+    stretch on the outline, below 5 px the old check saw none and kept it: +41 %, no warning). Its geometry
+    says it is there: the same sharp step one length behind its whole front. The holes (6 and 9 mm) are
+    shorter along the lamp than a 3-4 mm shadow is long in part: each shows a lit floor and, behind it, the
+    lid in its wall's shadow; both are one hole (before, the shadowed floor was taken as face where the two
+    met the rim: holes 5.4-5.8 and 8.6-8.8 mm, area +1.1 to +1.7 %). Truth: shapely's area and centroid of
+    the exact-coverage plate with its two holes, and the holes' equal-area diameters."""
     plate = SynthPart(rectangle(25.0, 15.0, 40.0, 25.0), [circle(35.0, 27.0, 3.0), circle(53.0, 25.0, 4.5)])
     m = scanmass.measure(_crossing_shadow_scan(plate, shadow_mm, soft_px=soft_px), dpi=300)
     (found,) = m.parts
     poly = Polygon(plate.outer_mm, plate.holes_mm)
-    # measured +0.4 to +0.9 % (7 and 10 mm); a 4 mm shadow +1.1 / +1.7 % (and +1.3 % with a 5 px soft front):
-    # the holes' floors, lit and in shadow, leave a notch in their rings where they meet
-    assert abs(found.area_mm2 - poly.area) <= (0.01 if shadow_mm >= 7.0 else 0.02) * poly.area
+    # measured +0.48 to +0.87 % (the face's edge against the blurred shadow sits 1-1.6 px out)
+    assert abs(found.area_mm2 - poly.area) <= 0.01 * poly.area
     assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2
     for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
         assert abs(c - t) <= 0.06 and abs(c - t) <= 3 * u
-    assert len(found.holes) == 2
+    holes = [2 * math.sqrt(Polygon(h).area / math.pi) for h in plate.holes_mm]
+    # measured within 0.11 mm (a 6 px front, 4 mm: 5.89 mm)
+    assert sorted(h.diameter_mm for h in found.holes) == pytest.approx(sorted(holes), abs=0.15)
     # the band left out: the plate's 40 mm width times the shadow's length (and a hole the outline had shut)
     assert m.settings["scan_face"]["shadow_left_out"]["1"] > 0.8 * 40.0 * shadow_mm
     assert any(w.startswith("scan of thick parts: the lamp's shadow beside part(s) 1") for w in m.warnings)
@@ -384,17 +402,17 @@ def test_faint_hard_fronted_shadows_over_levels_and_lengths(part, above, length_
     """Hard-fronted shadows (0.8 px) 0.005-0.03 above the part's level (0.04; noise 0.004, 8-bit sRGB: the
     faintest is 3 codes) and 3-8 mm long, behind a straight and a curved front: never a confident wrong
     figure. The shadow is left out (area within 1 %, 2 % at 0.005 above: measured -1.1 to -1.6 %, the step
-    three codes high) and within 3 sigma; the 3 mm shadow behind the plate is found but, up to 0.02 above,
-    not separated (a known gap: warned, with a term that covers it). Truth: shapely's area of the exact-coverage outline."""
+    three codes high) and within 3 sigma. The 3 mm shadow behind the plate, up to 0.02 above, was found but not
+    separated (+10.2 %, warned and covered): the face's seed stops 4 px short of the plate's back edges, a strip the
+    check of what was left out (beyond the face along the lamp?) counted against the short shadow's band; now
+    measured -1.16 % (0.005 above), -0.11 % and +0.19 %. Truth: shapely's area of the exact-coverage outline."""
     m = scanmass.measure(_shadow_scan(part, length_mm, shadow=0.04 + above, soft_px=0.8), dpi=300)
     (found,) = m.parts
     poly = Polygon(part.outer_mm)
     error = found.area_mm2 - poly.area
     assert abs(error) <= 3 * found.area_u_mm2
     assert any(w.startswith("scan of") and "shadow" in w for w in m.warnings)
-    if part is PLATE and length_mm == 3.0 and above < 0.03:
-        assert m.settings["scan_face"]["shadow_not_separated"]
-        return
+    assert not m.settings["scan_face"]["shadow_not_separated"]
     assert abs(error) <= (0.02 if above < 0.01 else 0.01) * poly.area
     width = poly.bounds[2] - poly.bounds[0]
     # the band left out: the part's width times the shadow's length (a disc's sweep: the same, 2 r L)

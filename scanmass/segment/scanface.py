@@ -790,6 +790,7 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         if np.median(slope[rim]) >= SWEEP_HOLE_RIM * abs(core):  # a sharp rim: a hole's edge on the glass
             hole |= patch
     hole |= (filled.astype(bool) & ~ctx.found.astype(bool)).astype(np.uint8)  # holes found as such (lit floors)
+    hole |= _shadowed_floors(filled, ctx.found, swept_off, hole.astype(bool), smooth, dev, step, lo, hi)
     hole = _joined_floors(hole)
     face0 = (seed.astype(bool) & ~hole).astype(np.uint8)
     # grown back to the face's edges (the seed stops short of them): on the shadow's side through pixels at
@@ -805,6 +806,57 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
     part_surface = _normalised_blur(linear, face0.astype(bool), SWEEP_LEVEL_SIGMA_PX, ctx.levels[2])
     face = _face_from_seed(linear, ctx, face0, part_surface, step, min_hole_px, sharp_holes=True, not_face=hole)
     return None if face is None else replace(face, local_levels=True, note="separated by the sweep")
+
+
+def _shadowed_floors(
+    filled: np.ndarray,
+    found: np.ndarray,
+    swept_off: np.ndarray,
+    rimmed_floors: np.ndarray,
+    smooth: np.ndarray,
+    dev: np.ndarray,
+    step: float,
+    lo: float,
+    hi: float,
+) -> np.ndarray:
+    """The floor of a hole in its wall's shadow, beside the lit floor the found outline opened.
+
+    A hole shorter along the lamp's direction than its shadow shows a lit lens (a hole of
+    the found outline) and, next to it, the lid in the shadow of the hole's wall, as dark as
+    the face or darker. The sweep cuts the seed back behind the lit lens, so the shadowed
+    floor's patches are not the seed's and no rim check sees them whole. Every patch of
+    the found region that stands out of the face's levels as a hole's floor does (by the
+    face-to-shadow ``step``, or half of it beyond the face's range ``lo`` to ``hi``), touches
+    the lit floor or the band the sweep cut behind it (``swept_off`` clear of the outline;
+    within 2 px: a soft lamp's ramp between the two floors passes through the face's level)
+    and stays 3 px clear of the part's outline (the shadow on the lid outside the face) is
+    joined to it, unless it holds a floor already found by its sharp rim (``rimmed_floors``:
+    that floor is a hole as found, and a face darkened next to its rim, as a metal's may be,
+    must not join it through the rim's blur). A part without lit floors gives an empty mask.
+    """
+    kernel = np.ones((3, 3), np.uint8)
+    lit = filled.astype(bool) & ~found.astype(bool)
+    out = np.zeros(found.shape, np.uint8)
+    if not lit.any():
+        return out
+    odd = found.astype(bool) & ((dev >= step) | (smooth < lo - 0.5 * step) | (smooth > hi + 0.5 * step))
+    count, comp = cv2.connectedComponents(odd.astype(np.uint8), connectivity=8)
+    if count < 2:
+        return out
+    near_edge = cv2.dilate((filled == 0).astype(np.uint8), kernel, iterations=3).astype(bool)
+    # the band cut behind each lit floor: the swept-off pixels clear of the outline that touch it
+    behind = (swept_off.astype(bool) & ~near_edge).astype(np.uint8)
+    n_behind, comp_behind = cv2.connectedComponents(behind, connectivity=8)
+    grown_lit = cv2.dilate(lit.astype(np.uint8), kernel).astype(bool)
+    cut = np.unique(comp_behind[grown_lit & behind.astype(bool)])
+    reach = lit | np.isin(comp_behind, cut[cut > 0]) if n_behind > 1 else lit
+    near_lit = cv2.dilate(reach.astype(np.uint8), kernel, iterations=2).astype(bool)
+    touching = np.unique(comp[near_lit & odd])
+    rimmed = np.unique(np.concatenate([comp[near_edge & odd], comp[rimmed_floors & odd]]))
+    joined = np.setdiff1d(touching[touching > 0], rimmed)
+    if joined.size:
+        out[np.isin(comp, joined)] = 1
+    return out
 
 
 def _face_range(values: np.ndarray, step: float) -> tuple[float, float]:
@@ -862,7 +914,9 @@ def _upstream_share(removed: np.ndarray, face: np.ndarray, direction: np.ndarray
     Both masks are turned so that ``direction`` points up the rows; a removed pixel with
     face pixels above it in its column is not beyond the face.
     """
-    removed = cv2.erode(removed.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+    # strips up to 4 px wide are left alone: the face's seed may stop that short of the found outline along
+    # its other edges (their blur), which is not a removed patch (a 3 mm shadow's band is not much larger)
+    removed = cv2.erode(removed.astype(np.uint8), np.ones((3, 3), np.uint8), iterations=2).astype(bool)
     if removed.sum() < 10:
         return 0.0
     h, w = face.shape
