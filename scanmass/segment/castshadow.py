@@ -237,16 +237,10 @@ def _shadow_cut(
         return None, dark
     # a strip of the outline's rim left between the cut and the paper (the shadow's far edge,
     # a whole-pixel sweep short of it) would enclose the cut as a false hole: it goes with the
-    # cut, unless that parts the face
-    to_cut = cv2.distanceTransform((~cut).astype(np.uint8), cv2.DIST_L2, 3)
-    to_out = cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3)
-    strip = keep & (to_cut <= 2.0) & (to_out <= 2.0)
-    strip &= ~cv2.dilate((keep & ~strip & (to_cut > 2.0)).astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
-    pieces_before = cv2.connectedComponents(keep.astype(np.uint8), connectivity=8)[0]
-    if strip.any() and cv2.connectedComponents((keep & ~strip).astype(np.uint8), connectivity=8)[0] <= pieces_before:
-        cut = cut | strip
-        keep = keep & ~strip
-        n_cut = int(np.count_nonzero(cut))
+    # cut, unless that parts the face (the small pieces are gone already)
+    cut = _with_rim(cut, part_mask)
+    keep = part_mask & ~cut
+    n_cut = int(np.count_nonzero(cut))
     k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
     border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
     found = ShadowCut(
