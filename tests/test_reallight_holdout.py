@@ -20,10 +20,10 @@ import json
 import math
 
 import pytest
+from _reallight_truth import REALLIGHT, REALLIGHT_HOLDOUT, truth_render
 
 import scanmass
 from scanmass.errors import ScanmassError
-from _reallight_truth import REALLIGHT, REALLIGHT_HOLDOUT, truth_render
 
 RENDERS = sorted(p.name for p in REALLIGHT_HOLDOUT.glob("*.json")) if REALLIGHT_HOLDOUT.exists() else []
 
