@@ -502,9 +502,9 @@ def holdout_scenes():
     """The held-out set (``tests/data/reallight-holdout``): new scenes never used to tune the rules.
 
     The same light styles, materials, mat and camera as :func:`scenes`, in combinations and
-    placements the tuned set does not have: brass in soft light, black plastic in window light
-    at a tilt, a steel gasket under the spot at a tilt, steel in mixed light, a black cam through
-    the distorting lens, an 8 mm steel disc. Names start with ``hold-``; a ``hold-lens-`` scene
+    placements the tuned set does not have: brass in soft and window light, black plastic in window
+    and mixed light at a tilt, a steel gasket under the spot at a tilt, steel in mixed light, a black
+    cam and steel parts through the distorting lens (spot and window light), an 8 mm steel disc. Names start with ``hold-``; a ``hold-lens-`` scene
     sees the mat through the distorting lens. Entries as in :func:`scenes`.
     """
     return [
@@ -562,16 +562,57 @@ def holdout_scenes():
             0,
             "Filmic",
         ),
+        (
+            "hold-spot-brass-t25",
+            "spot",
+            [("cam", "brass", 4.0, 120, 200, 200), ("l-bracket", "brass", 2.0, 85, 95, 70)],
+            340,
+            25,
+            20,
+            "Standard",
+        ),
+        (
+            "hold-window-brass-t15",
+            "window",
+            [("disc", "brass", 4.0, 130, 100, 45), ("plate", "brushed-steel", 6.0, 90, 200, -60)],
+            320,
+            15,
+            100,
+            "Filmic",
+        ),
+        (
+            "hold-lens-window-steel-t20",
+            "window",
+            [("gasket", "brushed-steel", 4.0, 90, 195, 0), ("cam", "brushed-steel", 2.0, 130, 95, 75)],
+            320,
+            20,
+            330,
+            "Standard",
+        ),
+        (
+            "hold-mixed-black-t20",
+            "mixed",
+            [("l-bracket", "black-plastic", 6.0, 120, 190, 120), ("disc", "black-plastic", 1.5, 80, 100, 0)],
+            340,
+            20,
+            180,
+            "Filmic",
+        ),
     ]
 
 
 def holdout_scanner_scenes():
-    """The held-out scanner scene: a lamp angle (30 degrees) the tuned set does not have."""
+    """The held-out scanner scenes: lamp angles (30 and 45 degrees) and parts the tuned set does not have."""
     return [
         (
             "hold-scan-mixed-lamp30",
             30.0,
             [("gasket", "brass", 3.0, 45, 33, 0), ("l-bracket", "brushed-steel", 5.0, 45, 90, -20)],
+        ),
+        (
+            "hold-scan-black-lamp45",
+            45.0,
+            [("plate", "brass", 4.0, 45, 32, 0), ("gasket", "black-plastic", 6.0, 45, 90, 0)],
         ),
     ]
 
