@@ -2,9 +2,9 @@
 
 ``tests/data/reallight-holdout`` holds Cycles renders made exactly as the tuned set
 (``tests/data/reallight``) but from new scenes (``benchmarks/render_reallight.py --holdout``):
-brass in soft light, black plastic in window light at a tilt, a steel gasket under the spot at
-a tilt, steel in mixed light, a black cam through the distorting lens, an 8 mm steel disc, and a
-scan under a lamp at 30 degrees. They are never used to tune the rules; a render that fails the
+brass in soft and window light and under the spot at 25 degrees, black plastic in window and mixed
+light at a tilt, a steel gasket under the spot at a tilt, steel in mixed light, black and steel
+parts through the distorting lens, an 8 mm steel disc, and scans under lamps at 30 and 45 degrees. They are never used to tune the rules; a render that fails the
 promise is marked ``xfail(strict=True)`` with its measured figures, not fixed by tuning.
 
 The promise checked (issue 11's targets for every part): every part found and nothing else
