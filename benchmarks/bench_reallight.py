@@ -12,6 +12,10 @@ Usage::
 
     python benchmarks/bench_reallight.py                       # the committed set
     python benchmarks/bench_reallight.py --dir /tmp/rl --json out.json
+    python benchmarks/bench_reallight.py --holdout             # the held-out set (tests/data/reallight-holdout)
+
+The held-out set was rendered the same way from new scenes (``render_reallight.py --holdout``)
+and is never used to tune the rules: its figures say whether the rules generalise.
 """
 
 from __future__ import annotations
@@ -245,11 +249,19 @@ def _fmt(v, spec):
 
 def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--dir", default=str(ROOT / "tests" / "data" / "reallight"))
+    ap.add_argument("--dir", default=None, help="folder of renders and truth files (default: the committed set)")
+    ap.add_argument(
+        "--holdout",
+        action="store_true",
+        help="the held-out set, tests/data/reallight-holdout (never used to tune the rules)",
+    )
     ap.add_argument("--json", default=None, help="write the per-image results here")
     ap.add_argument("--only-given", action="store_true", help="only the runs with the thickness given")
     args = ap.parse_args(argv)
-    folder = Path(args.dir)
+    if args.dir and args.holdout:
+        print("give either --dir or --holdout, not both", file=sys.stderr)
+        return 2
+    folder = Path(args.dir or ROOT / "tests" / "data" / ("reallight-holdout" if args.holdout else "reallight"))
     truths = sorted(folder.glob("*.json"))
     if not truths:
         print(f"no truth files in {folder}; render them with benchmarks/render_reallight.py", file=sys.stderr)

@@ -13,6 +13,8 @@ from pathlib import Path
 from shapely.geometry import Polygon
 
 REALLIGHT = Path(__file__).resolve().parent / "data" / "reallight"
+#: The held-out renders (``render_reallight.py --holdout``): the same kind of scenes, never used to tune the rules.
+REALLIGHT_HOLDOUT = Path(__file__).resolve().parent / "data" / "reallight-holdout"
 
 
 def truth_part(name: str, shape: str) -> dict:
@@ -25,3 +27,38 @@ def truth_part(name: str, shape: str) -> dict:
         hp = Polygon(ring)  # a round hole's diameter: the equal-area circle of its polygon
         holes.append(((hp.centroid.x, hp.centroid.y), 2 * math.sqrt(hp.area / math.pi)))
     return {"area": poly.area, "centroid": (poly.centroid.x, poly.centroid.y), "holes": holes, "t": p["thickness_mm"]}
+
+
+def truth_render(folder: Path, name: str) -> tuple[dict, list[dict]]:
+    """A render's truth file and, per part, its area, centroid, holes, thickness ``t`` and shape.
+
+    A scan's outlines are stored in the scan frame (``render_reallight._scan_spec``); the shift from
+    the camera's centre is applied as ``tests/test_reallight.py`` applies it (zero for these files).
+    """
+    truth = json.loads((folder / name).read_text())
+    parts = []
+    for p in truth["parts"]:
+        outer, holes = p["outline_mm"], p["holes_mm"]
+        if truth["kind"] == "scan":
+            cam = truth["camera"]
+            s = cam["ortho_scale_mm"] / max(cam["size_px"])
+            dx = 0.5 * cam["size_px"][0] * s - cam["centre_mm"][0]
+            dy = 0.5 * cam["size_px"][1] * s - cam["centre_mm"][1]
+            outer = [(x + dx, y + dy) for x, y in outer]
+            holes = [[(x + dx, y + dy) for x, y in h] for h in holes]
+        poly = Polygon(outer, holes)  # shapely: the reference area and centroid
+        hole_truth = []
+        for ring in holes:
+            hp = Polygon(ring)  # a round hole's diameter: the equal-area circle of its polygon
+            hole_truth.append(((hp.centroid.x, hp.centroid.y), 2 * math.sqrt(hp.area / math.pi)))
+        parts.append(
+            {
+                "shape": p["shape"],
+                "material": p["material"],
+                "area": poly.area,
+                "centroid": (poly.centroid.x, poly.centroid.y),
+                "holes": hole_truth,
+                "t": p["thickness_mm"],
+            }
+        )
+    return truth, parts
