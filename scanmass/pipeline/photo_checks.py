@@ -490,10 +490,12 @@ DEEP_HOLE_RMS_PX = 1.0
 #: The stated doubt (1 sigma, px) of where a deep hole's traced opening runs, at least; a wider
 #: edge (half the distance between its 30 % and 70 % crossings) counts instead. On the committed
 #: renders (tests/data/reallight, thickness given; steel bracket and cam, black plastic bracket
-#: and disc, brass plate and disc: 8 holes opened) the measured diameters lie -1.55 to -0.20 px
+#: and disc, brass plate and disc: 8 holes opened) the measured diameters lay -1.55 to -0.20 px
 #: (-0.63 to -0.07 mm) off and the centres 0.23-1.29 px: the opening's rim catches light, or its
-#: shade ends a little inside the top face's edge. Taken at 1 px on the radius (2 px on the
-#: diameter, 1 px on each coordinate of the centre).
+#: shade ends a little inside the top face's edge (on the far side, where the wall facing the
+#: camera shows; since that side may only widen the fit, :func:`_top_circle`, the spot-lit black
+#: holes read -0.06 to -0.04 mm). Taken at 1 px on the radius (2 px on the diameter, 1 px on each
+#: coordinate of the centre).
 DEEP_HOLE_EDGE_PX = 1.0
 #: A found hole of a thick part is replaced by its traced opening where the opening is wider by more
 #: than this (px): the found ring then ran on the paper seen through the hole, not on its top edge.
@@ -533,6 +535,12 @@ def _top_circle(
     edge: PitEdge, origin: tuple[int, int], hook: ElevationHook, mm_per_px: float, outline: np.ndarray
 ) -> tuple[np.ndarray, float, float, float] | None:
     """A traced opening on the top face's plane fitted with a trimmed circle: (centre mm, diameter mm, rms px, doubt px).
+
+    The trace is trusted on the rim's side towards the camera's nadir (:func:`_near_side`: the
+    top edge against the floor). On the far side the wall facing the camera shows inside the top
+    edge's circle, and where it looks like the face the trace stops short of the rim: there,
+    points further inside the circle than the near side's scatter are left out (outside it they
+    are kept), so a far wall in shade cannot pull the circle in.
 
     None when the fit fails, is not round (:data:`DEEP_HOLE_RMS_PX`) or the circle does not lie
     inside the part's ``outline`` (mm) with a margin.
