@@ -299,7 +299,7 @@ def test_dark_bore_of_a_black_disc_is_opened():
     area, a 'possible hidden hole'). Nothing on a flat dark face in the light is darker than it
     but a hole (castshadow.hole_bottoms): the bore is opened at its top edge and named in the
     'deep holes opened' warning; area within 2 % and the bore's diameter within 0.6 mm, both
-    within 3 stated sigma (bench_reallight: +1.2 %, -0.41 mm; truth: the render's outlines,
+    within 3 stated sigma (bench_reallight: -0.25 %, -0.03 mm; truth: the render's outlines,
     shapely)."""
     if not REALLIGHT.exists():
         pytest.skip("tests/data/reallight not in this checkout")
@@ -316,6 +316,49 @@ def test_dark_bore_of_a_black_disc_is_opened():
 
 
 @pytest.mark.slow
+@pytest.mark.parametrize("thickness, shape", [(8.0, "disc"), (3.0, "l-bracket")])
+def test_deep_holes_in_spot_light_measured_on_their_near_rim(thickness, shape):
+    """Spotlight, black plastic 3 and 8 mm thick (spot-black-t20): inside each hole's opening the
+    wall facing the camera is in shade and, near the rim, as dark as the face, so the traced opening
+    stopped short on that (far) side and the found rings lost a stretch of it: the holes read
+    0.13-0.41 mm small. On the rim's side towards the camera's nadir the top edge hides the wall and
+    the opening's border is the top edge against the floor; the far side may only stop short (the
+    wall lies inside the top edge's circle), so far points inside the circle are left out of the
+    fit, and an out-of-round found ring gives way to the wider clean fit. Each hole within 0.1 mm of
+    the true diameter (the issue's target; bench_reallight: -0.04, -0.06 / -0.05 mm) and within 3
+    stated sigma (truth: the render's outlines, shapely; equal-area diameters)."""
+    if not REALLIGHT.exists():
+        pytest.skip("tests/data/reallight not in this checkout")
+    m, parts = _measure_render("spot-black-t20.json", thickness)
+    tp = next(p for p in parts if p["shape"] == shape)
+    part = _nearest(m, tp)
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 0.5
+        assert abs(hole.diameter_mm - diameter) < 0.1
+        assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+    assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"]
+
+
+@pytest.mark.slow
+def test_lit_wall_cut_with_a_shadow_is_not_painted_as_face():
+    """Spotlight, black disc 8 mm thick (spot-black-t20): its wall facing the camera is lit (5-7 times
+    the face's level) and the shadow cut takes it; the cut's edge was painted with each pixel's share
+    of face between face and shadow, so wall pixels (brighter than the face) counted as face and the
+    outline ran 0.6 mm outside the true edge along that side (+0.84 % in area). There the step runs
+    from the face up to the wall: the area is within 0.5 % (bench_reallight: -0.25 %) and 3 stated
+    sigma, the centroid within 0.25 mm (0.19 mm; truth: the render's outlines, shapely)."""
+    if not REALLIGHT.exists():
+        pytest.skip("tests/data/reallight not in this checkout")
+    m, parts = _measure_render("spot-black-t20.json", 8.0)
+    tp = next(p for p in parts if p["shape"] == "disc")
+    part = _nearest(m, tp)
+    err = abs(part.area_mm2 - tp["area"])
+    assert err < 0.005 * tp["area"] and err <= 3 * part.area_u_mm2
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.25
+
+
+@pytest.mark.slow
 def test_black_part_shadow_cut_past_jpeg_ringing():
     """The black plastic bracket (3 mm) under the spotlight: its face (0.031 of the paper) rings
     by a few 8-bit codes near its outline in the JPEG, as rough as its shadow (0.015 of the
@@ -324,7 +367,7 @@ def test_black_part_shadow_cut_past_jpeg_ringing():
     colour are no shadow, however rough (castshadow._dark_face_alike), and the cut runs on the
     outline where the photo shows it (the top edge, beyond the footprint): the shadow is cut,
     the area within 1 % and 3 stated sigma, the centroid within 0.5 mm and both holes within
-    0.8 mm (bench_reallight: +0.10 %, 0.25 mm, -0.36 / -0.08 mm; the cut's edge painted with
+    0.8 mm (bench_reallight: +0.005 %, 0.22 mm, -0.06 / -0.05 mm; the cut's edge painted with
     each pixel's share of face, the holes' dark bottoms opened; truth: the render's outlines,
     shapely)."""
     if not REALLIGHT.exists():
@@ -374,8 +417,8 @@ def test_white_part_beside_a_black_one_leaves_only_named_shadows():
     """Window light, a white nylon disc (3 mm) beside a black L bracket (4 mm, two 5.5 mm holes):
     the bracket is measured within 3 stated sigma with both deep holes opened at their top edges
     (their dark walls and bottoms inside the dark face: castshadow.hole_bottoms; before, they were
-    named as pits and missed), each within 1 mm and 3 stated sigma (bench_reallight: -0.60 /
-    -0.01 mm); the regions found where the disc is (its shadow, its hole's bottom) are named as
+    named as pits and missed), each within 1 mm and 3 stated sigma (bench_reallight: -0.10 /
+    +0.03 mm); the regions found where the disc is (its shadow, its hole's bottom) are named as
     shadows alone (truth: the render's outlines, shapely)."""
     if not REALLIGHT.exists():
         pytest.skip("tests/data/reallight not in this checkout")
