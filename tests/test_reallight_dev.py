@@ -25,7 +25,9 @@ REALLIGHT = Path(__file__).resolve().parents[1] / "tests" / "data" / "reallight"
 
 pytestmark = [
     pytest.mark.slow,
-    pytest.mark.skipif(not (REALLIGHT / "dev-window-steel-t0.json").exists(), reason="dev renders not in this checkout"),
+    pytest.mark.skipif(
+        not (REALLIGHT / "dev-window-steel-t0.json").exists(), reason="dev renders not in this checkout"
+    ),
 ]
 
 
