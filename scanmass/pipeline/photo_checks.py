@@ -812,8 +812,17 @@ def _lost_wall(
     normal = apply_h(hook.g0, ring + 0.1 * vertex_normals(ring)) - foot
     normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-12)[:, None]
     size = np.hypot(parallax[:, 0], parallax[:, 1])
-    facing = np.sum(normal * parallax, axis=1) < -0.5 * size  # the wall faces the camera here
-    return lost_wall_band(colour_lin, foot - np.asarray(origin, float), normal, np.where(facing, size, 0.0))
+    across = np.sum(normal * parallax, axis=1)  # the top edge's offset along the outward normal
+    facing = across < -0.5 * size  # the wall faces the camera here
+    reach = shadow_band_px(thickness_mm, scale.plane_map.mm_per_px)
+    return lost_wall_band(
+        colour_lin,
+        foot - np.asarray(origin, float),
+        normal,
+        np.where(facing, size, 0.0),
+        shadow_reach_px=reach,
+        silhouette_px=np.abs(across),
+    )
 
 
 def _lies_within(part: Part, outline_mm: np.ndarray, by_outline: bool = True) -> bool:

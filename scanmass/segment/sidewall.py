@@ -22,7 +22,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-__all__ = ["LostWall", "lost_wall_band", "WALL_MIN_PX", "WALL_MIN_CHROMA"]
+__all__ = ["LostWall", "lost_wall_band", "light_side", "WALL_MIN_PX", "WALL_MIN_CHROMA"]
 
 #: Narrowest wall band (px) looked for: below it the band is within the edge's blur.
 WALL_MIN_PX = 2.5
@@ -44,6 +44,15 @@ _FLAT = 2.5
 WALL_RAMP_MIN_CHROMA = 0.2
 #: Smallest share of the face's colour shift from the paper (projected) that such a band shows.
 WALL_RAMP_MIN_LIKENESS = 0.25
+#: Smallest darkening (against the lit paper round the part) of the darkest tenth of the paper
+#: beyond an outline for :func:`light_side` to take it as the part's cast shadow.
+LIGHT_MIN_DEPTH = 0.2
+#: Smallest length of the darkening-weighted mean outward normal for :func:`light_side`: a shadow
+#: all round (diffuse light, a contact shadow) gives about 0, one on one side 0.6-1.
+LIGHT_MIN_ONE_SIDED = 0.5
+#: A stretch faces the light when its mean outward normal and the shadow's direction
+#: (:func:`light_side`) make a cosine below minus this (more than 120 degrees apart).
+LIGHT_FACING = 0.5
 #: Vertices per stretch tested as one (about 1 px apart); shorter end pieces under half are left out.
 _STRETCH = 15
 
@@ -95,8 +104,58 @@ def _sample(img: np.ndarray, pts: np.ndarray) -> np.ndarray:
     return out.reshape(pts.shape[:-1])
 
 
+def light_side(
+    level: np.ndarray, ring_px: np.ndarray, normal_px: np.ndarray, silhouette_px: np.ndarray, reach_px: float
+) -> np.ndarray | None:
+    """The unit direction (crop px, x y) in which a part's own cast shadow lies, or None when it has none on one side.
+
+    The paper beyond the part's silhouette (``silhouette_px`` out from each vertex of the
+    footprint's ring: the side wall facing the camera, or the top face's overhang on the far
+    side) is read from 2 px to ``reach_px`` further out at every vertex; its darkening against the lit paper around the part
+    (the upper quartile of those readings) is the shadow's depth there. A light from one side
+    darkens only the paper on the side away from it; a diffuse light, or a soft contact shadow,
+    darkens it all round. The darkening-weighted mean of the outward normals is the shadow's
+    direction; it is returned when the darkest readings are a shadow (:data:`LIGHT_MIN_DEPTH`)
+    and their mean normal points one way (:data:`LIGHT_MIN_ONE_SIDED`).
+    """
+    ring = np.asarray(ring_px, float)
+    normal = np.asarray(normal_px, float)
+    width = np.asarray(silhouette_px, float)
+    if len(ring) < 8 or reach_px < 3.0:
+        return None
+    # normals averaged over a stretch: a jagged stretch of the outline (a cut's whole-pixel edge)
+    # has vertex normals pointing into the part
+    k = min(_STRETCH, len(ring))
+    padded = np.concatenate([normal[-(k // 2) :], normal, normal[: k - 1 - k // 2]]) if k > 1 else normal
+    kernel = np.ones(k) / k
+    normal = np.c_[np.convolve(padded[:, 0], kernel, "valid"), np.convolve(padded[:, 1], kernel, "valid")]
+    normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-9)[:, None]
+    offsets = np.arange(2.0, reach_px + 0.01, 1.0)
+    pts = ring[:, None, :] + (width[:, None] + offsets[None, :])[..., None] * normal[:, None, :]
+    beyond = np.median(_sample(level, pts), axis=1)
+    lit = float(np.percentile(beyond, 75))
+    if lit <= 1e-6:
+        return None
+    dark = np.clip(1.0 - beyond / lit, 0.0, None)
+    seg = np.hypot(*(np.roll(ring, -1, axis=0) - ring).T)  # each vertex's share of the outline
+    weight = dark * seg
+    if float(np.percentile(dark, 90)) < LIGHT_MIN_DEPTH or float(weight.sum()) <= 0.0:
+        return None
+    mean = (weight[:, None] * normal).sum(axis=0) / float(weight.sum())
+    size = float(np.hypot(*mean))
+    if size < LIGHT_MIN_ONE_SIDED:
+        return None
+    return np.asarray(mean / size)
+
+
 def lost_wall_band(
-    colour_lin: np.ndarray, ring_px: np.ndarray, normal_px: np.ndarray, wall_px: np.ndarray
+    colour_lin: np.ndarray,
+    ring_px: np.ndarray,
+    normal_px: np.ndarray,
+    wall_px: np.ndarray,
+    *,
+    shadow_reach_px: float | None = None,
+    silhouette_px: np.ndarray | None = None,
 ) -> LostWall | None:
     """The band of side wall outside an outline that looks unlike both the paper and a shadow.
 
@@ -147,6 +206,10 @@ def lost_wall_band(
             if not runs or runs[-1][-1] != (i - 1) % n:
                 runs.append([])
             runs[-1].append(int(i))
+    shadow_dir = None
+    if shadow_reach_px is not None:
+        out = width if silhouette_px is None else np.asarray(silhouette_px, float)
+        shadow_dir = light_side(level, ring, normal, out, shadow_reach_px)
     band = np.zeros(level.shape, np.uint8)
     count = 0
     for run in runs:
@@ -175,15 +238,26 @@ def lost_wall_band(
             s_band, s_paper = c_band / max(c_band.sum(), 1e-9), c_paper / max(c_paper.sum(), 1e-9)
             s_face = c_face / max(c_face.sum(), 1e-9)
             chroma = float(np.abs(s_band - s_paper).max() / s_paper.max())
-            if chroma < WALL_MIN_CHROMA:
+            lit = shadow_dir is not None and float(np.dot(nrm.mean(axis=0), shadow_dir)) < -LIGHT_FACING
+            if chroma < WALL_MIN_CHROMA and not lit:
                 continue  # the paper's colour: a shadow as much as a wall
             if step <= _FLAT * ramp and not _face_coloured(s_band, s_face, s_paper, chroma):
                 continue  # a ramp up to the paper: a penumbra as much as a wall
+            reach = width
+            if chroma < WALL_MIN_CHROMA:
+                # a neutral band (taken on the light's side only): its outer edge is the wall's foot,
+                # where it steps up half-way to the paper (outwards from the band's middle); a
+                # coloured wall may brighten towards its foot (a highlight) and keeps the parallax
+                d = np.arange(1.0, p + 4.01, 0.25)
+                prof = np.array([at(np.array([x]), level) for x in d])
+                up = np.flatnonzero((prof >= 0.5 * (plate + paper)) & (d >= 0.5 * p))
+                if len(up):
+                    reach = np.full(n, float(d[up[0]]))
             for i in idx:
                 j = (i + 1) % n
                 if j not in idx:
                     j = i
-                quad = np.array([ring[i], ring[j], ring[j] + width[j] * normal[j], ring[i] + width[i] * normal[i]])
+                quad = np.array([ring[i], ring[j], ring[j] + reach[j] * normal[j], ring[i] + reach[i] * normal[i]])
                 cv2.fillConvexPoly(band, np.round(quad * 16).astype(np.int32), 1, lineType=cv2.LINE_8, shift=4)
             count += len(idx)
     if count == 0:
