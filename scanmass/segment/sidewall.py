@@ -17,12 +17,13 @@ shadow this way and is left as found.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import cv2
 import numpy as np
 
-__all__ = ["LostWall", "lost_wall_band", "light_side", "WALL_MIN_PX", "WALL_MIN_CHROMA"]
+__all__ = ["LostWall", "lost_wall_band", "paper_shade", "PaperShade", "WALL_MIN_PX", "WALL_MIN_CHROMA"]
 
 #: Narrowest wall band (px) looked for: below it the band is within the edge's blur.
 WALL_MIN_PX = 2.5
@@ -44,14 +45,12 @@ _FLAT = 2.5
 WALL_RAMP_MIN_CHROMA = 0.2
 #: Smallest share of the face's colour shift from the paper (projected) that such a band shows.
 WALL_RAMP_MIN_LIKENESS = 0.25
-#: Smallest darkening (against the lit paper round the part) of the darkest tenth of the paper
-#: beyond an outline for :func:`light_side` to take it as the part's cast shadow.
+#: Smallest mean darkening (against the lit paper round the part) of the paper beyond a part's
+#: far side for :meth:`PaperShade.faces_light`: the part's own cast shadow lies there.
 LIGHT_MIN_DEPTH = 0.2
-#: Smallest length of the darkening-weighted mean outward normal for :func:`light_side`: a shadow
-#: all round (diffuse light, a contact shadow) gives about 0, one on one side 0.6-1.
-LIGHT_MIN_ONE_SIDED = 0.5
-#: A stretch faces the light when its mean outward normal and the shadow's direction
-#: (:func:`light_side`) make a cosine below minus this (more than 120 degrees apart).
+#: Largest mean darkening of the paper beyond the stretch's own side for it to face the light.
+LIGHT_MAX_LIT_DEPTH = 0.1
+#: Cosine bounding the normals counted as the stretch's own side and as the far side (60 degrees).
 LIGHT_FACING = 0.5
 #: Vertices per stretch tested as one (about 1 px apart); shorter end pieces under half are left out.
 _STRETCH = 15
@@ -104,29 +103,57 @@ def _sample(img: np.ndarray, pts: np.ndarray) -> np.ndarray:
     return out.reshape(pts.shape[:-1])
 
 
-def light_side(
+@dataclass(frozen=True)
+class PaperShade:
+    """How dark the paper is beyond a part's silhouette, vertex by vertex (:func:`paper_shade`).
+
+    Attributes
+    ----------
+    normal : (N, 2) ndarray
+        Outward normals averaged over a stretch (unit, px).
+    dark : (N,) ndarray
+        The paper's darkening beyond each vertex: 1 - its level over the lit paper round the part.
+    """
+
+    normal: np.ndarray
+    dark: np.ndarray
+
+    def faces_light(self, normal: np.ndarray) -> bool:
+        """Whether a stretch with this outward normal faces the light: the far side is in shadow, this side lit.
+
+        A part's own cast shadow lies on its side away from the light. Where the paper beyond
+        the part's far side (normals within 60 degrees of the opposite one) is darkened by
+        :data:`LIGHT_MIN_DEPTH` or more on average and the paper beyond this side (normals within
+        60 degrees of it) by at most :data:`LIGHT_MAX_LIT_DEPTH`, the light falls on this side, and
+        a band beside it is not the part's shadow.
+        """
+        unit = np.asarray(normal, float) / max(float(np.hypot(*normal)), 1e-12)
+        cos = self.normal @ unit
+        far, near = cos < -LIGHT_FACING, cos > LIGHT_FACING
+        if not far.any() or not near.any():
+            return False
+        return bool(self.dark[far].mean() >= LIGHT_MIN_DEPTH and self.dark[near].mean() <= LIGHT_MAX_LIT_DEPTH)
+
+
+def paper_shade(
     level: np.ndarray, ring_px: np.ndarray, normal_px: np.ndarray, silhouette_px: np.ndarray, reach_px: float
-) -> np.ndarray | None:
-    """The unit direction (crop px, x y) in which a part's own cast shadow lies, or None when it has none on one side.
+) -> PaperShade | None:
+    """The paper's darkening beyond a part's silhouette all round, for :meth:`PaperShade.faces_light`.
 
     The paper beyond the part's silhouette (``silhouette_px`` out from each vertex of the
     footprint's ring: the side wall facing the camera, or the top face's overhang on the far
-    side) is read from 2 px to ``reach_px`` further out at every vertex; its darkening against the lit paper around the part
-    (the upper quartile of those readings) is the shadow's depth there. A light from one side
-    darkens only the paper on the side away from it; a diffuse light, or a soft contact shadow,
-    darkens it all round. The darkening-weighted mean of the outward normals is the shadow's
-    direction; it is returned when the darkest readings are a shadow (:data:`LIGHT_MIN_DEPTH`)
-    and their mean normal points one way (:data:`LIGHT_MIN_ONE_SIDED`).
+    side) is read from 2 px to ``reach_px`` further out along the outward normal (averaged over
+    a stretch: a cut's whole-pixel edge has vertex normals pointing into the part); its median
+    against the lit paper round the part (the upper quartile of those readings) gives the
+    darkening. None for a ring too short or a reach too small to read.
     """
     ring = np.asarray(ring_px, float)
     normal = np.asarray(normal_px, float)
     width = np.asarray(silhouette_px, float)
-    if len(ring) < 8 or reach_px < 3.0:
+    if len(ring) < 2 * _STRETCH or reach_px < 3.0:
         return None
-    # normals averaged over a stretch: a jagged stretch of the outline (a cut's whole-pixel edge)
-    # has vertex normals pointing into the part
-    k = min(_STRETCH, len(ring))
-    padded = np.concatenate([normal[-(k // 2) :], normal, normal[: k - 1 - k // 2]]) if k > 1 else normal
+    k = _STRETCH
+    padded = np.concatenate([normal[-(k // 2) :], normal, normal[: k - 1 - k // 2]])
     kernel = np.ones(k) / k
     normal = np.c_[np.convolve(padded[:, 0], kernel, "valid"), np.convolve(padded[:, 1], kernel, "valid")]
     normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-9)[:, None]
@@ -136,16 +163,50 @@ def light_side(
     lit = float(np.percentile(beyond, 75))
     if lit <= 1e-6:
         return None
-    dark = np.clip(1.0 - beyond / lit, 0.0, None)
-    seg = np.hypot(*(np.roll(ring, -1, axis=0) - ring).T)  # each vertex's share of the outline
-    weight = dark * seg
-    if float(np.percentile(dark, 90)) < LIGHT_MIN_DEPTH or float(weight.sum()) <= 0.0:
+    return PaperShade(normal=normal, dark=np.clip(1.0 - beyond / lit, 0.0, None))
+
+
+def step_is_ramp(step: float, ramp: float) -> bool:
+    """Whether a band's rise across itself (``ramp``) is too large against its step up to the paper for a flat wall."""
+    return step <= _FLAT * ramp
+
+
+def _band_levels(
+    at: Callable[[np.ndarray, np.ndarray], float], level: np.ndarray, p: float
+) -> tuple[float, float, float] | None:
+    """A stretch's band (1.5 px to ``p`` - 1 out), paper (``p`` + 2 to + 5) and the band's rise; None unless it steps up.
+
+    The band must lie a tenth of the paper's level or more below the paper and a tenth of the
+    way from the face (2-4 px inside) to the paper or more above the face.
+    """
+    in_band, beyond = np.arange(1.5, p - 0.99, 0.5), np.arange(p + 2.0, p + 5.01, 0.5)
+    if len(in_band) == 0:
         return None
-    mean = (weight[:, None] * normal).sum(axis=0) / float(weight.sum())
-    size = float(np.hypot(*mean))
-    if size < LIGHT_MIN_ONE_SIDED:
+    plate, paper = at(in_band, level), at(beyond, level)
+    ramp = at(np.array([max(p - 1.0, 1.5)]), level) - at(np.array([1.5]), level)
+    face = at(np.array([-2.0, -3.0, -4.0]), level)
+    if not (paper - plate > WALL_MIN_STEP * paper and plate > face + 0.1 * (paper - face)):
         return None
-    return np.asarray(mean / size)
+    return plate, paper, ramp
+
+
+def _neutral_foot(at: Callable[[np.ndarray, np.ndarray], float], level: np.ndarray, p: float) -> float | None:
+    """Where a neutral wall band of projected width ``p`` (px) ends: its step half-way up to the paper; None if it is no flat band.
+
+    The band is read over the wall's width as the camera sees it across the outline (the
+    parallax's component along the normal); it must step up to the paper (:func:`_band_levels`)
+    and be flat (a contact shadow's fade is a ramp). Its outer edge, the wall's foot, is where the
+    level first reaches half-way from the band to the paper, outwards from the band's middle.
+    """
+    p = max(p, WALL_MIN_PX)  # a narrower band is read as one of the narrowest width looked for
+    levels = _band_levels(at, level, p)
+    if levels is None or step_is_ramp(levels[1] - levels[0], levels[2]):
+        return None
+    plate, paper, _ = levels
+    d = np.arange(0.5 * p, p + 4.01, 0.25)
+    prof = np.array([at(np.array([x]), level) for x in d])
+    up = np.flatnonzero(prof >= 0.5 * (plate + paper))
+    return float(d[up[0]]) if len(up) else None
 
 
 def lost_wall_band(
@@ -206,10 +267,8 @@ def lost_wall_band(
             if not runs or runs[-1][-1] != (i - 1) % n:
                 runs.append([])
             runs[-1].append(int(i))
-    shadow_dir = None
-    if shadow_reach_px is not None:
-        out = width if silhouette_px is None else np.asarray(silhouette_px, float)
-        shadow_dir = light_side(level, ring, normal, out, shadow_reach_px)
+    across = width if silhouette_px is None else np.asarray(silhouette_px, float)
+    shade = None if shadow_reach_px is None else paper_shade(level, ring, normal, across, shadow_reach_px)
     band = np.zeros(level.shape, np.uint8)
     count = 0
     for run in runs:
@@ -224,35 +283,28 @@ def lost_wall_band(
                 pts = base[:, None, :] + np.asarray(d, float)[None, :, None] * nrm[:, None, :]
                 return float(np.median(_sample(img, pts)))
 
-            in_band = np.arange(1.5, p - 0.99, 0.5)
-            beyond = np.arange(p + 2.0, p + 5.01, 0.5)
-            plate, paper = at(in_band, level), at(beyond, level)
-            ramp = at(np.array([max(p - 1.0, 1.5)]), level) - at(np.array([1.5]), level)
-            face = at(np.array([-2.0, -3.0, -4.0]), level)
-            step = paper - plate
-            if not (step > WALL_MIN_STEP * paper and plate > face + 0.1 * (paper - face)):
+            levels = _band_levels(at, level, p)
+            if levels is None:
                 continue
+            plate, paper, ramp = levels
+            in_band, beyond = np.arange(1.5, p - 0.99, 0.5), np.arange(p + 2.0, p + 5.01, 0.5)
             c_band = np.array([at(in_band, c) for c in chans])
             c_paper = np.array([at(beyond, c) for c in chans])
             c_face = np.array([at(np.array([-2.0, -3.0, -4.0]), c) for c in chans])
             s_band, s_paper = c_band / max(c_band.sum(), 1e-9), c_paper / max(c_paper.sum(), 1e-9)
             s_face = c_face / max(c_face.sum(), 1e-9)
             chroma = float(np.abs(s_band - s_paper).max() / s_paper.max())
-            lit = shadow_dir is not None and float(np.dot(nrm.mean(axis=0), shadow_dir)) < -LIGHT_FACING
-            if chroma < WALL_MIN_CHROMA and not lit:
-                continue  # the paper's colour: a shadow as much as a wall
-            if step <= _FLAT * ramp and not _face_coloured(s_band, s_face, s_paper, chroma):
-                continue  # a ramp up to the paper: a penumbra as much as a wall
             reach = width
             if chroma < WALL_MIN_CHROMA:
-                # a neutral band (taken on the light's side only): its outer edge is the wall's foot,
-                # where it steps up half-way to the paper (outwards from the band's middle); a
-                # coloured wall may brighten towards its foot (a highlight) and keeps the parallax
-                d = np.arange(1.0, p + 4.01, 0.25)
-                prof = np.array([at(np.array([x]), level) for x in d])
-                up = np.flatnonzero((prof >= 0.5 * (plate + paper)) & (d >= 0.5 * p))
-                if len(up):
-                    reach = np.full(n, float(d[up[0]]))
+                # the paper's colour: a shadow as much as a wall, unless the light falls on this side
+                if shade is None or not shade.faces_light(nrm.mean(axis=0)):
+                    continue
+                foot = _neutral_foot(at, level, float(np.median(across[idx])))
+                if foot is None:
+                    continue
+                reach = np.full(n, foot)
+            elif step_is_ramp(paper - plate, ramp) and not _face_coloured(s_band, s_face, s_paper, chroma):
+                continue  # a ramp up to the paper: a penumbra as much as a wall
             for i in idx:
                 j = (i + 1) % n
                 if j not in idx:
