@@ -787,6 +787,11 @@ SHADOW_CUT_EDGE_PX = 2.0
 SHADOW_CUT_UNKNOWN_THICKNESS_MM = 8.0
 
 
+#: Vertices on each side of a vertex whose chord gives its normal for :func:`_lost_wall`'s neutral
+#: walls (the outline's vertices lie about 1 px apart).
+WALL_CHORD = 4
+
+
 def _lost_wall(
     scale: PhotoScale, part: Part, thickness_mm: float | None, colour_lin: np.ndarray, origin: tuple[int, int]
 ) -> LostWall | None:
@@ -795,7 +800,10 @@ def _lost_wall(
     The outer ring's side facing the camera's nadir shows the wall between the top face and the
     paper, as wide as the top face's parallax there (:class:`~scanmass.scale.homography.ElevationHook`);
     :func:`~scanmass.segment.sidewall.lost_wall_band` tests whether the outline runs on the top face's
-    edge with the wall left outside it. None without a thickness or a camera matrix.
+    edge with the wall left outside it: a coloured band (brass) by its colour, and a band of the
+    paper's colour (a steel wall mirroring the lit paper in front of it) on the side the light falls
+    on, as the part's own cast shadow beyond its far side shows. None without a thickness or a
+    camera matrix.
     """
     if not thickness_mm or scale.camera_matrix is None or part.outline_mm is None:
         return None
@@ -809,20 +817,34 @@ def _lost_wall(
         if np.mean(seen.seen_on_top(seen.photo_px(foot))) > 0.5:
             return None  # taken on its top face's edge all round (:func:`wall_sides`): no wall was left out
     parallax = apply_h(hook.gh, ring) - foot
+    to_crop = foot - np.asarray(origin, float)
     normal = apply_h(hook.g0, ring + 0.1 * vertex_normals(ring)) - foot
     normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-12)[:, None]
     size = np.hypot(parallax[:, 0], parallax[:, 1])
+    facing = np.sum(normal * parallax, axis=1) < -0.5 * size  # the wall faces the camera here
+    coloured = lost_wall_band(colour_lin, to_crop, normal, np.where(facing, size, 0.0))
+    # a neutral (steel) wall on the light's side: normals from the chord over a few px on each side
+    # (a jagged outline's vertex normals swing, and would break the wall's side into runs too short
+    # to test), the wall as wide as the parallax's component across the outline
+    chord = np.roll(ring, -WALL_CHORD, axis=0) - np.roll(ring, WALL_CHORD, axis=0)
+    outward = np.column_stack([chord[:, 1], -chord[:, 0]])
+    outward /= np.maximum(np.hypot(outward[:, 0], outward[:, 1]), 1e-12)[:, None]
+    normal = apply_h(hook.g0, ring + 0.1 * outward) - foot
+    normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-12)[:, None]
     across = np.sum(normal * parallax, axis=1)  # the top edge's offset along the outward normal
-    facing = across < -0.5 * size  # the wall faces the camera here
-    reach = shadow_band_px(thickness_mm, scale.plane_map.mm_per_px)
-    return lost_wall_band(
+    facing = across < -0.5 * size
+    neutral = lost_wall_band(
         colour_lin,
-        foot - np.asarray(origin, float),
+        to_crop,
         normal,
         np.where(facing, size, 0.0),
-        shadow_reach_px=reach,
+        shadow_reach_px=shadow_band_px(thickness_mm, scale.plane_map.mm_per_px),
         silhouette_px=np.abs(across),
     )
+    if coloured is None or neutral is None:
+        return coloured or neutral
+    band = coloured.band | neutral.band
+    return LostWall(band, int(np.count_nonzero(band)), coloured.vertices + neutral.vertices, neutral.seam)
 
 
 def _lies_within(part: Part, outline_mm: np.ndarray, by_outline: bool = True) -> bool:
@@ -955,7 +977,8 @@ def _cut_cast_shadows(
         if wall is not None:
             face = window[cv2.erode(mask.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)]
             if face.size >= 20:
-                window[wall.band & ~mask] = np.asarray(np.median(face), dtype=grey.dtype)
+                paint = wall.band & ~mask if wall.seam is None else (wall.band & ~mask) | wall.seam
+                window[paint] = np.asarray(np.median(face), dtype=grey.dtype)
                 wall_mm2 = float(np.count_nonzero(wall.band & ~mask)) * mm_per_px**2
         risk = shadow_risk(colour_lin, mask, band_px)
         cut = None

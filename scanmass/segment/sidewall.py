@@ -68,11 +68,15 @@ class LostWall:
         Their count.
     vertices : int
         Outline vertices whose stretch was taken as a lost wall.
+    seam : (H, W) bool ndarray or None
+        Beside a neutral wall, the pixels just inside the outline that its found edge crosses
+        (half face, half wall): to be painted with the band.
     """
 
     band: np.ndarray
     band_px: int
     vertices: int
+    seam: np.ndarray | None = None
 
 
 def _face_coloured(s_band: np.ndarray, s_face: np.ndarray, s_paper: np.ndarray, chroma: float) -> bool:
@@ -198,7 +202,6 @@ def _neutral_foot(at: Callable[[np.ndarray, np.ndarray], float], level: np.ndarr
     and be flat (a contact shadow's fade is a ramp). Its outer edge, the wall's foot, is where the
     level first reaches half-way from the band to the paper, outwards from the band's middle.
     """
-    p = max(p, WALL_MIN_PX)  # a narrower band is read as one of the narrowest width looked for
     levels = _band_levels(at, level, p)
     if levels is None or step_is_ramp(levels[1] - levels[0], levels[2]):
         return None
@@ -231,6 +234,14 @@ def lost_wall_band(
     wall_px : (N,) ndarray
         Width (px) of side wall the photo shows outside each vertex if the outline there runs on
         the top face's edge; 0 where no wall faces the camera.
+    shadow_reach_px : float, optional
+        Given, the test is the one for neutral bands instead: only bands of the paper's colour
+        are tested, and taken as wall on the side the light falls on (:meth:`PaperShade.faces_light`,
+        the paper read this far beyond the silhouette), over the wall's width across the
+        outline (``silhouette_px``) and out to the band's step up to the paper (its foot).
+    silhouette_px : (N,) ndarray, optional
+        With ``shadow_reach_px``: how far (px) the part's silhouette reaches beyond each vertex
+        along its normal (the parallax's component across the outline); ``wall_px`` if not given.
 
     Returns
     -------
@@ -270,6 +281,7 @@ def lost_wall_band(
     across = width if silhouette_px is None else np.asarray(silhouette_px, float)
     shade = None if shadow_reach_px is None else paper_shade(level, ring, normal, across, shadow_reach_px)
     band = np.zeros(level.shape, np.uint8)
+    seam = np.zeros(level.shape, np.uint8)
     count = 0
     for run in runs:
         for s0 in range(0, len(run), _STRETCH):
@@ -283,28 +295,42 @@ def lost_wall_band(
                 pts = base[:, None, :] + np.asarray(d, float)[None, :, None] * nrm[:, None, :]
                 return float(np.median(_sample(img, pts)))
 
+            def shares(d: np.ndarray, at: Callable[[np.ndarray, np.ndarray], float] = at) -> np.ndarray:
+                rgb = np.array([at(d, c) for c in chans])
+                return np.asarray(rgb / max(float(rgb.sum()), 1e-9))
+
+            def chroma_of(q: float, shares: Callable[[np.ndarray], np.ndarray] = shares) -> float:
+                s_band, s_paper = shares(np.arange(1.5, q - 0.99, 0.5)), shares(np.arange(q + 2.0, q + 5.01, 0.5))
+                return float(np.abs(s_band - s_paper).max() / s_paper.max())
+
             levels = _band_levels(at, level, p)
-            if levels is None:
-                continue
-            plate, paper, ramp = levels
-            in_band, beyond = np.arange(1.5, p - 0.99, 0.5), np.arange(p + 2.0, p + 5.01, 0.5)
-            c_band = np.array([at(in_band, c) for c in chans])
-            c_paper = np.array([at(beyond, c) for c in chans])
-            c_face = np.array([at(np.array([-2.0, -3.0, -4.0]), c) for c in chans])
-            s_band, s_paper = c_band / max(c_band.sum(), 1e-9), c_paper / max(c_paper.sum(), 1e-9)
-            s_face = c_face / max(c_face.sum(), 1e-9)
-            chroma = float(np.abs(s_band - s_paper).max() / s_paper.max())
+            chroma = chroma_of(p) if levels is not None else 0.0
             reach = width
-            if chroma < WALL_MIN_CHROMA:
-                # the paper's colour: a shadow as much as a wall, unless the light falls on this side
-                if shade is None or not shade.faces_light(nrm.mean(axis=0)):
+            if levels is not None and chroma >= WALL_MIN_CHROMA:
+                if shadow_reach_px is not None:
+                    continue  # a coloured band: the plain test's (called without a reach)
+                plate, paper, ramp = levels
+                s_band, s_paper = shares(np.arange(1.5, p - 0.99, 0.5)), shares(np.arange(p + 2.0, p + 5.01, 0.5))
+                s_face = shares(np.array([-2.0, -3.0, -4.0]))
+                if step_is_ramp(paper - plate, ramp) and not _face_coloured(s_band, s_face, s_paper, chroma):
+                    continue  # a ramp up to the paper: a penumbra as much as a wall
+            else:
+                # the paper's colour: a shadow as much as a wall, unless the light falls on this side;
+                # read over the wall's width across the outline
+                q = max(float(np.median(across[idx])), WALL_MIN_PX)
+                if shade is None or not shade.faces_light(nrm.mean(axis=0)) or chroma_of(q) >= WALL_MIN_CHROMA:
                     continue
-                foot = _neutral_foot(at, level, float(np.median(across[idx])))
+                    continue
+                foot = _neutral_foot(at, level, q)
                 if foot is None:
                     continue
                 reach = np.full(n, foot)
-            elif step_is_ramp(paper - plate, ramp) and not _face_coloured(s_band, s_face, s_paper, chroma):
-                continue  # a ramp up to the paper: a penumbra as much as a wall
+                # the pixels the found edge crosses, half face and half lit wall, would be left as a
+                # light seam between the face and the painted wall: the strip 1 px inside goes with it
+                for i in idx:
+                    j = (i + 1) % n if (i + 1) % n in idx else i
+                    strip = np.array([ring[i] - normal[i], ring[j] - normal[j], ring[j], ring[i]])
+                    cv2.fillConvexPoly(seam, np.round(strip * 16).astype(np.int32), 1, lineType=cv2.LINE_8, shift=4)
             for i in idx:
                 j = (i + 1) % n
                 if j not in idx:
@@ -315,4 +341,6 @@ def lost_wall_band(
     if count == 0:
         return None
     mask = band.astype(bool)
-    return LostWall(band=mask, band_px=int(np.count_nonzero(mask)), vertices=count)
+    return LostWall(
+        band=mask, band_px=int(np.count_nonzero(mask)), vertices=count, seam=seam.astype(bool) if seam.any() else None
+    )
