@@ -1117,7 +1117,8 @@ def _cut_cast_shadows(
     if walls:
         out.append(
             f"side wall: beside part(s) {', '.join(walls)} a band as wide as the side wall of the given thickness, "
-            "lit and of another colour than the paper, was taken as the part's wall and added; the uncertainty "
+            "lit and of another colour than the paper (or of its colour on the side the light falls on, where the "
+            "part's own shadow lies beyond its far side), was taken as the part's wall and added; the uncertainty "
             "includes half of it (term 'side_wall'); photograph from straight above or in diffuse light"
         )
     return again, out, labels

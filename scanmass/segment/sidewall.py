@@ -1,4 +1,4 @@
-"""Side walls of thick parts that a photo's segmentation left out: a lit wall of another colour than the paper.
+"""Side walls of thick parts that a photo's segmentation left out: lit walls unlike the paper, or on the light's side.
 
 A part of thickness t photographed from above at an angle shows, on its side towards the
 camera's nadir, a band of side wall between its top face and the paper; the band is as wide as
@@ -11,8 +11,16 @@ Such a band is told from the paper beyond it and from a cast shadow by three thi
 taken as a median over a stretch of the outline: it is flat (no ramp towards the paper, as a
 penumbra has), it ends in a step up to the paper's level about one wall width out, and it
 has a colour of its own (a shadow keeps the paper's chroma; common practice, it is the
-paper lit less). A band of the paper's chroma (a neutral steel wall) is not told from a
-shadow this way and is left as found.
+paper lit less).
+
+A band of the paper's chroma (a brushed-steel wall mirrors the lit paper in front of it) is
+not told from a shadow by its colour. Its place is: a part's own cast shadow lies on its side
+away from the light, so where the paper beyond the part's far side is darkened and the paper
+beyond this side is lit (:class:`PaperShade`), a flat band one wall wide that steps up to the
+paper is no shadow of the part. Such a band is read over the wall's width across the outline
+(the parallax's component along the normal) and ends at its step up to the paper, the wall's
+foot. Under diffuse light, or where the shadow lies inside the found outline, no side is known
+to face the light and the band is left as found.
 """
 
 from __future__ import annotations
