@@ -1170,14 +1170,20 @@ def _painted_holes(
             if hole.outline_mm is None:
                 continue
             ring = np.round(_image_px(scale, np.asarray(hole.outline_mm, float), hole=True)).astype(np.int32)
-            one = np.zeros(painted.shape, np.uint8)
-            cv2.fillPoly(one, [ring], 1)
+            # the hole's box with a 4 px margin, clipped to the image
+            x0, y0 = np.maximum(ring.min(axis=0) - 4, 0)
+            x1, y1 = np.minimum(ring.max(axis=0) + 5, [painted.shape[1], painted.shape[0]])
+            if x1 <= x0 or y1 <= y0:
+                continue
+            box = (slice(int(y0), int(y1)), slice(int(x0), int(x1)))
+            one = np.zeros((int(y1 - y0), int(x1 - x0)), np.uint8)
+            cv2.fillPoly(one, [ring - np.array([x0, y0], np.int32)], 1)
             inside = one.astype(bool)
             n = np.count_nonzero(inside)
-            if not n or not np.any(inside & painted):
+            if not n or not np.any(inside & painted[box]):
                 continue
-            if np.count_nonzero(inside & ~first) >= PAINTED_HOLE_MIN_BEYOND * n:
-                out |= cv2.dilate(one, np.ones((7, 7), np.uint8)).astype(bool) & ~face
+            if np.count_nonzero(inside & ~first[box]) >= PAINTED_HOLE_MIN_BEYOND * n:
+                out[box] |= cv2.dilate(one, np.ones((7, 7), np.uint8)).astype(bool) & ~face[box]
     return out
 
 
