@@ -31,6 +31,8 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.numeric import sample_points
+
 __all__ = ["LostWall", "lost_wall_band", "paper_shade", "PaperShade", "WALL_MIN_PX", "WALL_MIN_CHROMA"]
 
 #: Narrowest wall band (px) looked for: below it the band is within the edge's blur.
@@ -103,16 +105,13 @@ def _face_coloured(s_band: np.ndarray, s_face: np.ndarray, s_paper: np.ndarray, 
 
 
 def _sample(img: np.ndarray, pts: np.ndarray) -> np.ndarray:
-    """Bilinear samples of a (H, W) float image at (..., 2) points (x, y px)."""
-    flat = pts.reshape(-1, 2).astype(np.float32)
-    out = cv2.remap(
-        np.ascontiguousarray(img, np.float32),
-        np.ascontiguousarray(flat[:, :1]),
-        np.ascontiguousarray(flat[:, 1:]),
-        cv2.INTER_LINEAR,
-        borderMode=cv2.BORDER_REPLICATE,
-    )
-    return out.reshape(pts.shape[:-1])
+    """Bilinear samples of a (H, W) float image at (..., 2) points (x, y px).
+
+    Laid out in rows by :func:`scanmass.numeric.sample_points`: ``cv2.remap`` refuses a
+    destination of 32767 or more columns, which one column of every point of a long ring
+    times its samples across can reach.
+    """
+    return sample_points(np.ascontiguousarray(img, np.float32), pts[..., 0], pts[..., 1], cv2.INTER_LINEAR)
 
 
 @dataclass(frozen=True)
