@@ -744,10 +744,11 @@ def _measure_photo(
     if tone is not None and tone.applies:
         warnings.insert(
             0,
-            f"tone curve: the mat's printed marker edges read {abs(tone.offset_px):.2f} px into the "
-            f"{'ink' if tone.offset_px < 0 else 'paper'} at the half-way level of the sRGB-decoded photo (the camera's "
-            f"curve is not sRGB); the photo was read with those levels raised to the power {tone.gamma:.3f}, which puts "
-            "the markers' edges back on their printed place; pass --encoding srgb to read it as exact sRGB",
+            f"tone curve: the mat's printed marker edges lie {abs(tone.offset_px):.2f} px into the "
+            f"{'ink' if tone.offset_px < 0 else 'paper'} at the half-way level of the photo decoded as sRGB (the "
+            f"camera's curve is another); the dark parts' outlines were moved to where the levels raised to the power "
+            f"{tone.gamma:.3f} (the correction that puts the markers' edges on their printed place) pass half-way; "
+            "pass --encoding srgb to take the file as exact sRGB",
         )
     warnings += _unknown_thickness(scale, result, thickness_mm)
     warnings += _cast_shadows(image, scale, result, thickness_mm, colour, cut_labels)
@@ -755,12 +756,12 @@ def _measure_photo(
     warnings += _hidden_holes(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": method})
-    if tone is not None:
+    if shift is not None:  # only when applied: the documents of photos read as sRGB stay as they were
         result.settings["marker_tone"] = {
-            "offset_px": tone.offset_px,
-            "offset_u_px": tone.offset_u_px,
-            "sides": tone.sides,
-            "gamma": tone.gamma,
-            "applied": tone.applies,
+            "offset_px": shift.offset_px,
+            "offset_u_px": shift.offset_u_px,
+            "sides": shift.sides,
+            "gamma": shift.gamma,
+            "applied": shift.applies,
         }
     return result
