@@ -338,6 +338,7 @@ def measure_image(
     tone_known: bool = True,
     face_check: bool = False,
     tone: MarkerTone | None = None,
+    tone_photo: np.ndarray | None = None,
 ) -> Measurement:
     """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty.
 
@@ -348,7 +349,9 @@ def measure_image(
     face on the glass where the two can be told apart.
     ``tone`` (photos on the mat): the tone curve the mat's printed markers show
     (:func:`~scanmass.scale.markertone.marker_tone`); each dark part's rings are moved to
-    where its edge's half-way level in linear light lies (:func:`_tone_shifted`).
+    where its edge's half-way level in linear light lies (:func:`_tone_shifted`), except
+    where the image differs from ``tone_photo`` (the photo's grey plane before a check
+    painted a cut or a hole into it: painted edges are mixed in linear light already).
     """
     if plane_map is None:
         plane_map = scan_plane_map(image, options)
@@ -397,7 +400,13 @@ def measure_image(
     parts = []
     warnings = extra_warnings + list(seg.warnings)
     if tone is not None and seg.polarity.startswith("dark"):
-        limits = [(quant, replace(walls, rings=_tone_shifted(image, walls.rings, tone))) for quant, walls in limits]
+        painted = None
+        if tone_photo is not None and tone_photo.shape == image.grey.shape:
+            changed = (image.grey != tone_photo).astype(np.uint8)
+            painted = cv2.dilate(changed, np.ones((3, 3), np.uint8)).astype(bool) if changed.any() else None
+        limits = [
+            (quant, replace(walls, rings=_tone_shifted(image, walls.rings, tone, painted))) for quant, walls in limits
+        ]
     for quant, walls in limits:
         mapped = map_part(walls.rings, plane_map)
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
@@ -530,7 +539,9 @@ def measure_image(
     )
 
 
-def _tone_shifted(image: LoadedImage, rings: PartRings, tone: MarkerTone) -> PartRings:
+def _tone_shifted(
+    image: LoadedImage, rings: PartRings, tone: MarkerTone, painted: np.ndarray | None = None
+) -> PartRings:
     """A dark part's rings moved to where its edges lie under the tone curve the mat's markers show.
 
     The rings run at the half-way level of the decoded levels; under a tone curve that is not
@@ -539,7 +550,9 @@ def _tone_shifted(image: LoadedImage, rings: PartRings, tone: MarkerTone) -> Par
     the edge lies at the share ``f`` of the way from the part's face (its median level 2 px or
     more inside its outline) to the paper; the rings move away from the material by the
     markers' offset times ``(f - 0.5) / (f_markers - 0.5)`` (the same lens and blur: the move
-    of a level across a blurred step is proportional to the level's change).
+    of a level across a blurred step is proportional to the level's change). Vertices within a
+    pixel of ``painted`` (photo px) stay: a painted edge is mixed in linear light (on the
+    committed renders, the brass plates' deep holes opened by painting shrank 0.1 mm when moved).
     """
     outer = rings.outer_px
     x0, y0 = np.floor(outer.min(axis=0)).astype(int)
@@ -559,11 +572,16 @@ def _tone_shifted(image: LoadedImage, rings: PartRings, tone: MarkerTone) -> Par
     move_px = tone.edge_move_px(level)
     if move_px == 0.0:
         return rings
-    return replace(
-        rings,
-        outer_px=outer + move_px * vertex_normals(outer),  # away from the material (rings.segment's orientation)
-        holes_px=[h + move_px * vertex_normals(h) for h in rings.holes_px],
-    )
+
+    def moved(ring: np.ndarray) -> np.ndarray:
+        step = np.full(len(ring), move_px)
+        if painted is not None:
+            col = np.clip(np.rint(ring[:, 0]), 0, painted.shape[1] - 1).astype(np.intp)
+            row = np.clip(np.rint(ring[:, 1]), 0, painted.shape[0] - 1).astype(np.intp)
+            step[painted[row, col]] = 0.0
+        return ring + step[:, None] * vertex_normals(ring)  # away from the material (rings.segment's orientation)
+
+    return replace(rings, outer_px=moved(outer), holes_px=[moved(h) for h in rings.holes_px])
 
 
 def _below(area_mm2: float) -> str:
@@ -696,7 +714,7 @@ def _measure_photo(
     try:
         result = measure_image(
             masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto",
-            tone=shift,
+            tone=shift, tone_photo=masked.grey,
         )  # fmt: skip
     except PartCutError:
         where = "mat's clear area" if scale.plane_map.method == "mat" else "sheet's margin"
@@ -713,7 +731,7 @@ def _measure_photo(
         try:
             again = measure_image(
                 masked, options, plane_map=seen_scale.plane_map, roi_px=scale.roi_px,
-                tone_known=options.encoding != "auto", tone=shift,
+                tone_known=options.encoding != "auto", tone=shift, tone_photo=masked.grey,
             )  # fmt: skip
         except (SegmentationError, ScaleError, OptionError):
             again = None
@@ -730,8 +748,9 @@ def _measure_photo(
     def remeasure(img: LoadedImage, plane_map: PlaneMap) -> Measurement:
         last["image"], last["plane_map"] = img, plane_map  # what the kept measurement was made on
         return measure_image(
-            img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto", tone=shift
-        )
+            img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto", tone=shift,
+            tone_photo=masked.grey,
+        )  # fmt: skip
 
     result, cut, cut_labels = _cut_cast_shadows(image, masked, scale, result, thickness_mm, colour, remeasure)
     if cut:  # the cut's measurement was kept: the deep holes are opened on its image and plane map
