@@ -399,6 +399,7 @@ def measure_image(
     limits = _edge_limits(image, seg.parts, options, closed=roi_px is None, own_levels=own_levels)
     parts = []
     warnings = extra_warnings + list(seg.warnings)
+    as_found = [w.rings for _, w in limits]  # the tone and halo checks read the edges where they were found
     if tone is not None and seg.polarity.startswith("dark"):
         painted = None
         if tone_photo is not None and tone_photo.shape == image.grey.shape:
@@ -442,7 +443,7 @@ def measure_image(
         warnings += walls.warnings
     tone_note = None
     if parts:
-        warnings += _tone_terms(image, [w.rings for _, w in limits], parts, plane_map.mm_per_px, tone_known)
+        warnings += _tone_terms(image, as_found, parts, plane_map.mm_per_px, tone_known)
         if not tone_known:
             tone_note = (
                 "photo: the camera's tone curve is not taken as exact sRGB; each part's uncertainty includes "
