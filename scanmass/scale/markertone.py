@@ -140,24 +140,29 @@ def _profiles(image: LoadedImage, scale: PhotoScale) -> np.ndarray | None:
     if isinstance(target, MatDetails):  # the printer's scale, as the plane map's support points carry it
         printer = np.diag([target.printer_check.x_factor, target.printer_check.y_factor])
     corners_mm = np.asarray(layout.marker_corners(det.ids), float).reshape(-1, 4, 2) @ printer.T
-    lin = image.to_linear[image.grey]
-    lin = np.ascontiguousarray(lin, dtype=np.float32)
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    height, width = image.grey.shape[:2]
+    starts = corners_mm.reshape(-1, 2)  # each marker's four sides, corner to next corner
+    ends = np.roll(corners_mm, -1, axis=1).reshape(-1, 2)
+    centres = np.repeat(corners_mm.mean(axis=1), 4, axis=0)
+    pts = (starts[:, None, :] + _ALONG[None, :, None] * (ends - starts)[:, None, :]).reshape(-1, 2)
+    outward = pts - np.repeat(centres, len(_ALONG), axis=0)
+    away = pts + 0.05 * outward / np.linalg.norm(outward, axis=1)[:, None]
+    px, px_away = _photo_px(scale, pts), _photo_px(scale, away)  # all sides' points at once
+    normal = px_away - px
+    normal /= np.linalg.norm(normal, axis=1)[:, None]
+    px, normal = px.reshape(len(starts), len(_ALONG), 2), normal.reshape(len(starts), len(_ALONG), 2)
     out = []
-    for quad in corners_mm:
-        centre = quad.mean(axis=0)
-        for i in range(4):
-            a, b = quad[i], quad[(i + 1) % 4]
-            pts = a + _ALONG[:, None] * (b - a)
-            away = pts + 0.05 * (pts - centre) / np.linalg.norm(pts - centre, axis=1)[:, None]
-            px, px_away = _photo_px(scale, pts), _photo_px(scale, away)
-            normal = px_away - px
-            normal /= np.linalg.norm(normal, axis=1)[:, None]
-            xs = (px[:, None, 0] + _OFFSETS_PX[None, :] * normal[:, None, 0]).astype(np.float32)
-            ys = (px[:, None, 1] + _OFFSETS_PX[None, :] * normal[:, None, 1]).astype(np.float32)
-            if xs.min() < 0 or ys.min() < 0 or xs.max() > lin.shape[1] - 1 or ys.max() > lin.shape[0] - 1:
-                continue
-            levels = cv2.remap(lin, xs, ys, cv2.INTER_LINEAR)
-            out.append(np.median(levels, axis=0))
+    for side_px, side_n in zip(px, normal):
+        xs = side_px[:, None, 0] + _OFFSETS_PX[None, :] * side_n[:, None, 0]
+        ys = side_px[:, None, 1] + _OFFSETS_PX[None, :] * side_n[:, None, 1]
+        if xs.min() < 0 or ys.min() < 0 or xs.max() > width - 2 or ys.max() > height - 2:
+            continue
+        x0, y0 = int(xs.min()), int(ys.min())  # the side's window, read in linear light
+        x1, y1 = int(xs.max()) + 2, int(ys.max()) + 2
+        window = lut[image.grey[y0:y1, x0:x1]]
+        levels = cv2.remap(window, (xs - x0).astype(np.float32), (ys - y0).astype(np.float32), cv2.INTER_LINEAR)
+        out.append(np.median(levels, axis=0))
     return np.asarray(out) if out else None
 
 
@@ -166,14 +171,15 @@ def _crossings(profiles: np.ndarray, gamma: float) -> np.ndarray:
     p = np.maximum(profiles, 0.0) ** gamma
     ink, paper = p[:, _INK].mean(axis=1), p[:, _PAPER].mean(axis=1)
     frac = (p - ink[:, None]) / np.maximum(paper - ink, 1e-12)[:, None]
-    out = np.full(len(p), np.nan)
-    for k, f in enumerate(frac):
-        above = np.nonzero(f >= 0.5)[0]
-        if len(above) == 0 or above[0] == 0:
-            continue
-        j = above[0]
-        out[k] = _OFFSETS_PX[j - 1] + (0.5 - f[j - 1]) / max(f[j] - f[j - 1], 1e-12) * (_OFFSETS_PX[1] - _OFFSETS_PX[0])
-    return out
+    above = frac >= 0.5
+    j = np.argmax(above, axis=1)  # the first sample at or above half-way
+    rows = np.arange(len(p))
+    ok = above[rows, j] & (j > 0)
+    j = np.maximum(j, 1)
+    f0, f1 = frac[rows, j - 1], frac[rows, j]
+    step = _OFFSETS_PX[1] - _OFFSETS_PX[0]
+    cross = _OFFSETS_PX[j - 1] + (0.5 - f0) / np.maximum(f1 - f0, 1e-12) * step
+    return np.where(ok, cross, np.nan)
 
 
 def marker_tone(image: LoadedImage, scale: PhotoScale) -> MarkerTone | None:
