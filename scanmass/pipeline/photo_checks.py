@@ -980,6 +980,149 @@ def _blend_cut_edge(
     window[band] = codes.astype(window.dtype)
 
 
+#: A hole whose fitted circle is this many times wider than the hole itself (its largest
+#: caliper) is no round hole but a strip bent along an arc: only a strip of a curved outline
+#: fits a circle wider than itself. On the committed renders (tests/data/reallight, thickness
+#: given) every found hole fits within 1.0 of its own width; the strip of a painted cut that the
+#: shadow beyond it closed off (lens-spot-brass-t30's cam) fits 8.8 times its width.
+SLIVER_FIT_RATIO = 2.0
+
+
+def _is_sliver(hole: Hole) -> bool:
+    """Whether ``hole`` is a strip along an arc: its fitted circle far wider than the hole itself."""
+    if hole.outline_mm is None or not math.isfinite(hole.diameter_mm):
+        return False
+    pts = np.asarray(hole.outline_mm, np.float32).reshape(-1, 2)
+    if len(pts) < 3:
+        return False
+    hull = cv2.convexHull(pts).reshape(-1, 2).astype(float)
+    extent_mm = float(np.sqrt(((hull[:, None, :] - hull[None, :, :]) ** 2).sum(axis=2)).max())
+    return hole.diameter_mm > SLIVER_FIT_RATIO * extent_mm
+
+
+def _photo_ring_px(scale: PhotoScale, ring_mm: np.ndarray, hole: bool = False) -> np.ndarray:
+    """Where a measured ring (mm) runs in the photo as stored (px): :func:`_image_px` with the lens put back."""
+    ideal = _image_px(scale, ring_mm, hole=hole)
+    hook = scale.plane_map.undistort
+    if hook is None:
+        return ideal
+    if isinstance(hook, ElevationHook):
+        return hook.photo_px(ideal)
+    return 2.0 * ideal - hook(ideal)  # one fixed-point step of the lens correction, as ElevationHook.photo_px
+
+
+def _sliver_strips(
+    scale: PhotoScale, part: Part, grey: np.ndarray, band_px: float
+) -> tuple[np.ndarray, float, float] | None:
+    """A cut part's arc-shaped holes (:func:`_is_sliver`) with the material between them and the outside.
+
+    A cast shadow's cut is painted in the paper's level inside the outline the part was first
+    found with; where the shadow reaches beyond that outline, its unpainted outer rim (darker
+    than the face's half-way level) closes the painted strip off as a hole. Such a strip is
+    bent along the outline, so its fitted circle is far wider than the strip itself, and what
+    lies between it and the outside is the shadow's rim: the pixels whose nearest strip pixel
+    and nearest outside pixel lie on opposite sides (a face pixel inside the strip has both on
+    the same side) and nearer the outside than that strip pixel (not the face beside a strip's
+    tip), no farther than the shadow's band from either. Returns the photo's pixels
+    of the strips and of those rims (full-size mask), the strips' area (mm2) and the paper's
+    code (the median 4-16 px outside the outline, as a cut is painted), or None without such a
+    hole.
+    """
+    slivers = [h for h in part.holes if _is_sliver(h)]
+    if not slivers or part.outline_mm is None:
+        return None
+    outer = _photo_ring_px(scale, np.asarray(part.outline_mm, float))
+    rings = [_photo_ring_px(scale, np.asarray(h.outline_mm, float), hole=True) for h in slivers]
+    shape = grey.shape[:2]
+    pad = max(int(math.ceil(band_px)) + 4, 18)
+    lo = np.floor(np.vstack([outer, *rings]).min(axis=0)).astype(int) - pad
+    hi = np.ceil(np.vstack([outer, *rings]).max(axis=0)).astype(int) + pad
+    x0, y0 = max(int(lo[0]), 0), max(int(lo[1]), 0)
+    x1, y1 = min(int(hi[0]), shape[1]), min(int(hi[1]), shape[0])
+    if x1 - x0 < 8 or y1 - y0 < 8:
+        return None
+    off = np.array([x0, y0], float)
+    inside = np.zeros((y1 - y0, x1 - x0), np.uint8)
+    cv2.fillPoly(inside, [np.round(outer - off).astype(np.int32)], 1)
+    strips = np.zeros_like(inside)
+    for ring in rings:
+        cv2.fillPoly(strips, [np.round(ring - off).astype(np.int32)], 1)
+    material = inside.astype(bool) & ~strips.astype(bool)
+    to_out, out_lab = cv2.distanceTransformWithLabels(inside, cv2.DIST_L2, 5, labelType=cv2.DIST_LABEL_PIXEL)
+    to_strip, strip_lab = cv2.distanceTransformWithLabels(1 - strips, cv2.DIST_L2, 5, labelType=cv2.DIST_LABEL_PIXEL)
+    rows, cols = np.indices(inside.shape)
+
+    def nearest(zero: np.ndarray, labels: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        # DIST_LABEL_PIXEL numbers the zero pixels in row-major order, from 1
+        zr, zc = np.nonzero(zero)
+        idx = np.clip(labels - 1, 0, max(len(zr) - 1, 0))
+        return zr[idx], zc[idx]
+
+    orow, ocol = nearest(inside == 0, out_lab)
+    srow, scol = nearest(strips == 1, strip_lab)
+    across = (orow - rows) * (srow - rows) + (ocol - cols) * (scol - cols) < 0
+    beyond = to_out < to_out[srow, scol]  # nearer the outside than the strip is (not beside a strip's tip)
+    rim = material & across & beyond & (to_out <= band_px) & (to_strip <= band_px)
+    outside = cv2.distanceTransform(1 - inside, cv2.DIST_L2, 3)
+    paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]
+    if paper.size < 20:
+        return None
+    full = np.zeros(shape, bool)
+    full[y0:y1, x0:x1] = rim | strips.astype(bool)
+    return full, float(sum(h.area_mm2 for h in slivers)), float(np.median(paper))
+
+
+def _open_slivers(
+    masked: LoadedImage,
+    scale: PhotoScale,
+    grey: np.ndarray,
+    again: Measurement,
+    cuts: list[tuple[Part, float, float, float]],
+    band_px: float,
+    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+) -> tuple[Measurement, list[str]]:
+    """Open the strips a cut left closed off as holes (:func:`_sliver_strips`) and measure again.
+
+    ``again`` is the measurement of ``grey`` (the cuts painted) on ``scale``'s plane map; each
+    part found in a cut part's outline is checked. The strips and the shadow's rim beyond them
+    are painted in the paper's level on ``grey`` (in place, when kept). ``remeasure`` is called
+    last on the image kept. Returns the measurement kept (the new one only when every part is
+    found again) and one note per part opened.
+    """
+    opened_parts: list[tuple[tuple[float, float], float]] = []  # (centroid mm, strips mm2)
+    painted = grey.copy()
+    for old, edge_mm, *_ in cuts:
+        if edge_mm <= 0 or old.outline_mm is None:
+            continue
+        outline = np.asarray(old.outline_mm, np.float32)
+        for q in again.parts:
+            if not _lies_within(q, outline):
+                continue
+            found = _sliver_strips(scale, q, painted, band_px)
+            if found is None:
+                continue
+            opened, strips_mm2, paper_code = found
+            painted[opened] = np.asarray(paper_code, dtype=grey.dtype)
+            opened_parts.append((q.centroid_mm, strips_mm2))
+    if not opened_parts:
+        return again, []
+    try:
+        opened_again: Measurement | None = remeasure(replace(masked, grey=painted), scale.plane_map)
+    except (SegmentationError, ScaleError, OptionError):
+        opened_again = None
+    # every part found again (a speck of the painted rim may be found too: the cut's pieces are left out later)
+    smallest = min(q.area_mm2 for q in again.parts)
+    if opened_again is None or sum(q.area_mm2 >= 0.05 * smallest for q in opened_again.parts) != len(again.parts):
+        remeasure(replace(masked, grey=grey), scale.plane_map)  # the image kept is the one measured last
+        return again, []
+    grey[:] = painted
+    notes = []
+    for centroid, strips_mm2 in opened_parts:
+        near = min(opened_again.parts, key=lambda q: math.dist(q.centroid_mm, centroid))
+        notes.append(f"{near.label} ({strips_mm2:.3g} mm²)")
+    return opened_again, notes
+
+
 def _cut_cast_shadows(
     image: LoadedImage,
     masked: LoadedImage,
@@ -1121,6 +1264,7 @@ def _cut_cast_shadows(
         # nothing measurable with the cuts painted (or rings the section refuses: a thin strip
         # left beside a cut can put a hole's mapped ring past the outer one): keep the first measurement
         return result, [], set()
+    again, slivers = _open_slivers(masked, replace(scale, plane_map=plane_map), grey, again, cuts, band_px, remeasure)
     done: list[str] = []
     labels: set[int] = set()
     remnants: set[int] = set()
@@ -1186,6 +1330,12 @@ def _cut_cast_shadows(
             f"or its fade out to the paper, told it from the part), was taken as cast shadow and left out{left}; the outline there runs on the step between the part and its "
             "shadow, and the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse "
             "light or a backlight"
+        )
+    if slivers:
+        out.append(
+            f"cast shadow cut: in part(s) {', '.join(slivers)} a strip of the cut, bent along the outline (its "
+            "fitted circle far wider than the strip), was closed off as a hole by the shadow's rim beyond it; the "
+            "strip and that rim were left out with the shadow (term 'shadow_cut')"
         )
     if opened:
         out.append(
