@@ -51,6 +51,10 @@ KNOWN_FAILING: dict[tuple[str, bool], str] = {
     ("hold-spot-brass-t25.json", True): "brass under the spot at 25 degrees, measured with the cam's 4 mm: the 2 mm "
     "bracket beside it comes out as two parts (628 and 38 mm2 of 841 mm2; the shadow cut takes 219 mm2), so 3 parts "
     "are reported for 2; with its own 2 mm it is one part (+5.0 %, 1.6 sigma) and the cam is -0.5 % (0.1 sigma)",
+    ("hold-window-thick-t0.json", True): "8 mm brushed-steel disc in window light at 0 degrees (Filmic): the tone "
+    "curve the markers show (0.08 px into the ink) moves the dark parts' rings out, the cast-shadow cut then leaves "
+    "1220 mm2 (-8.6 %; +19.8 % at 0.4 sigma without the move) whose face reads as darkened paper (depth 0.12), and "
+    "the result names it 'shadow only: do not use their figures', so the disc is not reported",
     ("hold-mixed-steel-t10.json", True): _MIXED_STEEL_CAM.format(area="-96.8", sigma="11.3"),
     ("hold-mixed-steel-t10.json", False): _MIXED_STEEL_CAM.format(area="-95.1", sigma="10.9"),
     # a scan is measured the same with or without the thickness (the same figures both ways)
@@ -79,6 +83,10 @@ def _promise_failures(name: str, given: bool) -> list[str]:
         except ScanmassError as exc:
             failures.append(f"t={thickness}: refused: {exc}")
             continue
+        # a region the result itself names as a cast shadow alone is not reported as a part
+        # (as bench_reallight counts it): "do not use their figures"
+        said = " ".join(w for w in m.warnings if w.startswith("shadow only:"))
+        m.parts = [q for q in m.parts if f"part {q.label} (" not in said]
         if len(m.parts) != len(parts):
             failures.append(f"t={thickness}: {len(m.parts)} parts reported, {len(parts)} in the scene")
         for tp in parts:

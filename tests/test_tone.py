@@ -126,9 +126,13 @@ def test_photo_with_an_unknown_tone_curve_is_covered():
     assert doubted.settings["tone_check"] and taken.settings["tone_check"] is None
     (p_taken,), (p_doubted,), (t,) = taken.parts, doubted.parts, truths
     assert "tone" not in p_taken.uncertainty_terms and "tone" in p_doubted.uncertainty_terms
-    assert p_taken.area_mm2 == p_doubted.area_mm2  # the term changes the uncertainty, never the figure
-    err = abs(p_doubted.area_mm2 - t["area"])
-    assert err > 3 * p_taken.area_u_mm2  # read as exact sRGB, the S-curve puts it beyond 3 sigma
+    # read as exact sRGB, the S-curve puts the plate beyond 3 sigma (-0.75 %); read with --encoding auto,
+    # the mat's printed markers show the curve (their edges 0.2 px into the ink at the half-way level,
+    # scale.markertone) and the outline moves to where a power law puts the edge: -0.29 %, covered
+    assert doubted.settings["marker_tone"]["applied"] is True
+    err_taken, err = abs(p_taken.area_mm2 - t["area"]), abs(p_doubted.area_mm2 - t["area"])
+    assert err_taken > 3 * p_taken.area_u_mm2
+    assert err < 0.5 * err_taken
     assert err <= 3 * p_doubted.area_u_mm2
     hole, true_d = p_doubted.holes[0], 16.0
     assert abs(hole.diameter_mm - true_d) <= 3 * hole.diameter_u_mm

@@ -13,9 +13,11 @@ from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import replace
 from typing import Any
 
+import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
+from scanmass.geometry import vertex_normals
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
@@ -48,6 +50,7 @@ from scanmass.pipeline.scan_checks import (
     _with_face_term,
 )
 from scanmass.scale.camera import PhotoScale
+from scanmass.scale.markertone import MarkerTone, marker_tone
 from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
@@ -334,6 +337,8 @@ def measure_image(
     roi_px: np.ndarray | None = None,
     tone_known: bool = True,
     face_check: bool = False,
+    tone: MarkerTone | None = None,
+    tone_photo: np.ndarray | None = None,
 ) -> Measurement:
     """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty.
 
@@ -342,6 +347,11 @@ def measure_image(
     ``face_check`` (flatbed scans): each part's outline is checked for the lamp's shadow
     beside a thick part (:func:`~scanmass.segment.scanface.scan_face`) and replaced by the
     face on the glass where the two can be told apart.
+    ``tone`` (photos on the mat): the tone curve the mat's printed markers show
+    (:func:`~scanmass.scale.markertone.marker_tone`); each dark part's rings are moved to
+    where its edge's half-way level in linear light lies (:func:`_tone_shifted`), except
+    where the image differs from ``tone_photo`` (the photo's grey plane before a check
+    painted a cut or a hole into it: painted edges are mixed in linear light already).
     """
     if plane_map is None:
         plane_map = scan_plane_map(image, options)
@@ -389,6 +399,15 @@ def measure_image(
     limits = _edge_limits(image, seg.parts, options, closed=roi_px is None, own_levels=own_levels)
     parts = []
     warnings = extra_warnings + list(seg.warnings)
+    as_found = [w.rings for _, w in limits]  # the tone and halo checks read the edges where they were found
+    if tone is not None and seg.polarity.startswith("dark"):
+        painted = None
+        if tone_photo is not None and tone_photo.shape == image.grey.shape:
+            changed = (image.grey != tone_photo).astype(np.uint8)
+            painted = cv2.dilate(changed, np.ones((3, 3), np.uint8)).astype(bool) if changed.any() else None
+        limits = [
+            (quant, replace(walls, rings=_tone_shifted(image, walls.rings, tone, painted))) for quant, walls in limits
+        ]
     for quant, walls in limits:
         mapped = map_part(walls.rings, plane_map)
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
@@ -424,7 +443,7 @@ def measure_image(
         warnings += walls.warnings
     tone_note = None
     if parts:
-        warnings += _tone_terms(image, [w.rings for _, w in limits], parts, plane_map.mm_per_px, tone_known)
+        warnings += _tone_terms(image, as_found, parts, plane_map.mm_per_px, tone_known)
         if not tone_known:
             tone_note = (
                 "photo: the camera's tone curve is not taken as exact sRGB; each part's uncertainty includes "
@@ -519,6 +538,51 @@ def measure_image(
     return Measurement(
         source=source, scale=scale, parts=parts, warnings=warnings + touching, cut_parts=cut_parts, settings=settings
     )
+
+
+def _tone_shifted(
+    image: LoadedImage, rings: PartRings, tone: MarkerTone, painted: np.ndarray | None = None
+) -> PartRings:
+    """A dark part's rings moved to where its edges lie under the tone curve the mat's markers show.
+
+    The rings run at the half-way level of the decoded levels; under a tone curve that is not
+    the decoding's, that level lies off the edge, into the dark side, as on the markers' printed
+    edges. By the markers' power law (:meth:`~scanmass.scale.markertone.MarkerTone.edge_share`)
+    the edge lies at the share ``f`` of the way from the part's face (its median level 2 px or
+    more inside its outline) to the paper; the rings move away from the material by the
+    markers' offset times ``(f - 0.5) / (f_markers - 0.5)`` (the same lens and blur: the move
+    of a level across a blurred step is proportional to the level's change). Vertices within a
+    pixel of ``painted`` (photo px) stay: a painted edge is mixed in linear light (on the
+    committed renders, the brass plates' deep holes opened by painting shrank 0.1 mm when moved).
+    """
+    outer = rings.outer_px
+    x0, y0 = np.floor(outer.min(axis=0)).astype(int)
+    x1, y1 = np.ceil(outer.max(axis=0)).astype(int) + 1
+    x0, y0 = max(int(x0), 0), max(int(y0), 0)
+    x1, y1 = min(int(x1), image.width_px), min(int(y1), image.height_px)
+    if x1 - x0 < 3 or y1 - y0 < 3:
+        return rings
+    mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+    cv2.fillPoly(mask, [np.round(outer - [x0, y0]).astype(np.int32)], 1)
+    for hole in rings.holes_px:
+        cv2.fillPoly(mask, [np.round(hole - [x0, y0]).astype(np.int32)], 0)
+    face = cv2.erode(mask, np.ones((5, 5), np.uint8)).astype(bool)
+    if np.count_nonzero(face) < 20:
+        return rings
+    level = float(np.median(image.to_linear[image.grey[y0:y1, x0:x1][face]]))
+    move_px = tone.edge_move_px(level)
+    if move_px == 0.0:
+        return rings
+
+    def moved(ring: np.ndarray) -> np.ndarray:
+        step = np.full(len(ring), move_px)
+        if painted is not None:
+            col = np.clip(np.rint(ring[:, 0]), 0, painted.shape[1] - 1).astype(np.intp)
+            row = np.clip(np.rint(ring[:, 1]), 0, painted.shape[0] - 1).astype(np.intp)
+            step[painted[row, col]] = 0.0
+        return ring + step[:, None] * vertex_normals(ring)  # away from the material (rings.segment's orientation)
+
+    return replace(rings, outer_px=moved(outer), holes_px=[moved(h) for h in rings.holes_px])
 
 
 def _below(area_mm2: float) -> str:
@@ -645,11 +709,14 @@ def _measure_photo(
     """:func:`measure_photo` with its colour planes decoding in ``colour_job``."""
     thickness_mm = options.thickness_mm  # checked by MeasureOptions.check
     scale = photo_scale(image, options, method)
+    tone = marker_tone(image, scale) if options.encoding == "auto" else None
+    shift = tone if tone is not None and tone.applies else None
     masked = _mask_outside(image, scale.roi_px)
     try:
         result = measure_image(
-            masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
-        )
+            masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto",
+            tone=shift, tone_photo=masked.grey,
+        )  # fmt: skip
     except PartCutError:
         where = "mat's clear area" if scale.plane_map.method == "mat" else "sheet's margin"
         raise SegmentationError(
@@ -665,7 +732,7 @@ def _measure_photo(
         try:
             again = measure_image(
                 masked, options, plane_map=seen_scale.plane_map, roi_px=scale.roi_px,
-                tone_known=options.encoding != "auto",
+                tone_known=options.encoding != "auto", tone=shift, tone_photo=masked.grey,
             )  # fmt: skip
         except (SegmentationError, ScaleError, OptionError):
             again = None
@@ -682,8 +749,9 @@ def _measure_photo(
     def remeasure(img: LoadedImage, plane_map: PlaneMap) -> Measurement:
         last["image"], last["plane_map"] = img, plane_map  # what the kept measurement was made on
         return measure_image(
-            img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto"
-        )
+            img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto", tone=shift,
+            tone_photo=masked.grey,
+        )  # fmt: skip
 
     result, cut, cut_labels = _cut_cast_shadows(image, masked, scale, result, thickness_mm, colour, remeasure)
     if cut:  # the cut's measurement was kept: the deep holes are opened on its image and plane map
@@ -693,10 +761,27 @@ def _measure_photo(
     _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure)
     shadow_only = _shadows_only(image, scale, result, colour)
     warnings = list(scale.warnings) + shadow_only + cut + deep
+    if tone is not None and tone.applies:
+        warnings.insert(
+            0,
+            f"tone curve: the mat's printed marker edges lie {abs(tone.offset_px):.2f} px into the "
+            f"{'ink' if tone.offset_px < 0 else 'paper'} at the half-way level of the photo decoded as sRGB (the "
+            f"camera's curve is another); the dark parts' outlines were moved to where the levels raised to the power "
+            f"{tone.gamma:.3f} (the correction that puts the markers' edges on their printed place) pass half-way; "
+            "pass --encoding srgb to take the file as exact sRGB",
+        )
     warnings += _unknown_thickness(scale, result, thickness_mm)
     warnings += _cast_shadows(image, scale, result, thickness_mm, colour, cut_labels)
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": method})
+    if shift is not None:  # only when applied: the documents of photos read as sRGB stay as they were
+        result.settings["marker_tone"] = {
+            "offset_px": shift.offset_px,
+            "offset_u_px": shift.offset_u_px,
+            "sides": shift.sides,
+            "gamma": shift.gamma,
+            "applied": shift.applies,
+        }
     return result

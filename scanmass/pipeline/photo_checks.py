@@ -834,6 +834,11 @@ SHADOW_CUT_EDGE_PX = 2.0
 SHADOW_CUT_UNKNOWN_THICKNESS_MM = 8.0
 
 
+#: Vertices on each side of a vertex whose chord gives its normal for :func:`_lost_wall`'s neutral
+#: walls (the outline's vertices lie about 1 px apart).
+WALL_CHORD = 4
+
+
 def _lost_wall(
     scale: PhotoScale, part: Part, thickness_mm: float | None, colour_lin: np.ndarray, origin: tuple[int, int]
 ) -> LostWall | None:
@@ -842,7 +847,10 @@ def _lost_wall(
     The outer ring's side facing the camera's nadir shows the wall between the top face and the
     paper, as wide as the top face's parallax there (:class:`~scanmass.scale.homography.ElevationHook`);
     :func:`~scanmass.segment.sidewall.lost_wall_band` tests whether the outline runs on the top face's
-    edge with the wall left outside it. None without a thickness or a camera matrix.
+    edge with the wall left outside it: a coloured band (brass) by its colour, and a band of the
+    paper's colour (a steel wall mirroring the lit paper in front of it) on the side the light falls
+    on, as the part's own cast shadow beyond its far side shows. None without a thickness or a
+    camera matrix.
     """
     if not thickness_mm or scale.camera_matrix is None or part.outline_mm is None:
         return None
@@ -856,11 +864,34 @@ def _lost_wall(
         if np.mean(seen.seen_on_top(seen.photo_px(foot))) > 0.5:
             return None  # taken on its top face's edge all round (:func:`wall_sides`): no wall was left out
     parallax = apply_h(hook.gh, ring) - foot
+    to_crop = foot - np.asarray(origin, float)
     normal = apply_h(hook.g0, ring + 0.1 * vertex_normals(ring)) - foot
     normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-12)[:, None]
     size = np.hypot(parallax[:, 0], parallax[:, 1])
     facing = np.sum(normal * parallax, axis=1) < -0.5 * size  # the wall faces the camera here
-    return lost_wall_band(colour_lin, foot - np.asarray(origin, float), normal, np.where(facing, size, 0.0))
+    coloured = lost_wall_band(colour_lin, to_crop, normal, np.where(facing, size, 0.0))
+    # a neutral (steel) wall on the light's side: normals from the chord over a few px on each side
+    # (a jagged outline's vertex normals swing, and would break the wall's side into runs too short
+    # to test), the wall as wide as the parallax's component across the outline
+    chord = np.roll(ring, -WALL_CHORD, axis=0) - np.roll(ring, WALL_CHORD, axis=0)
+    outward = np.column_stack([chord[:, 1], -chord[:, 0]])
+    outward /= np.maximum(np.hypot(outward[:, 0], outward[:, 1]), 1e-12)[:, None]
+    normal = apply_h(hook.g0, ring + 0.1 * outward) - foot
+    normal /= np.maximum(np.hypot(normal[:, 0], normal[:, 1]), 1e-12)[:, None]
+    across = np.sum(normal * parallax, axis=1)  # the top edge's offset along the outward normal
+    facing = across < -0.5 * size
+    neutral = lost_wall_band(
+        colour_lin,
+        to_crop,
+        normal,
+        np.where(facing, size, 0.0),
+        shadow_reach_px=shadow_band_px(thickness_mm, scale.plane_map.mm_per_px),
+        silhouette_px=np.abs(across),
+    )
+    if coloured is None or neutral is None:
+        return coloured or neutral
+    band = coloured.band | neutral.band
+    return LostWall(band, int(np.count_nonzero(band)), coloured.vertices + neutral.vertices, neutral.seam)
 
 
 def _lies_within(part: Part, outline_mm: np.ndarray, by_outline: bool = True) -> bool:
@@ -956,6 +987,149 @@ def _blend_cut_edge(
     window[band] = codes.astype(window.dtype)
 
 
+#: A hole whose fitted circle is this many times wider than the hole itself (its largest
+#: caliper) is no round hole but a strip bent along an arc: only a strip of a curved outline
+#: fits a circle wider than itself. On the committed renders (tests/data/reallight, thickness
+#: given) every found hole fits within 1.0 of its own width; the strip of a painted cut that the
+#: shadow beyond it closed off (lens-spot-brass-t30's cam) fits 8.8 times its width.
+SLIVER_FIT_RATIO = 2.0
+
+
+def _is_sliver(hole: Hole) -> bool:
+    """Whether ``hole`` is a strip along an arc: its fitted circle far wider than the hole itself."""
+    if hole.outline_mm is None or not math.isfinite(hole.diameter_mm):
+        return False
+    pts = np.asarray(hole.outline_mm, np.float32).reshape(-1, 2)
+    if len(pts) < 3:
+        return False
+    hull = cv2.convexHull(pts).reshape(-1, 2).astype(float)
+    extent_mm = float(np.sqrt(((hull[:, None, :] - hull[None, :, :]) ** 2).sum(axis=2)).max())
+    return hole.diameter_mm > SLIVER_FIT_RATIO * extent_mm
+
+
+def _photo_ring_px(scale: PhotoScale, ring_mm: np.ndarray, hole: bool = False) -> np.ndarray:
+    """Where a measured ring (mm) runs in the photo as stored (px): :func:`_image_px` with the lens put back."""
+    ideal = _image_px(scale, ring_mm, hole=hole)
+    hook = scale.plane_map.undistort
+    if hook is None:
+        return ideal
+    if isinstance(hook, ElevationHook):
+        return hook.photo_px(ideal)
+    return 2.0 * ideal - hook(ideal)  # one fixed-point step of the lens correction, as ElevationHook.photo_px
+
+
+def _sliver_strips(
+    scale: PhotoScale, part: Part, grey: np.ndarray, band_px: float
+) -> tuple[np.ndarray, float, float] | None:
+    """A cut part's arc-shaped holes (:func:`_is_sliver`) with the material between them and the outside.
+
+    A cast shadow's cut is painted in the paper's level inside the outline the part was first
+    found with; where the shadow reaches beyond that outline, its unpainted outer rim (darker
+    than the face's half-way level) closes the painted strip off as a hole. Such a strip is
+    bent along the outline, so its fitted circle is far wider than the strip itself, and what
+    lies between it and the outside is the shadow's rim: the pixels whose nearest strip pixel
+    and nearest outside pixel lie on opposite sides (a face pixel inside the strip has both on
+    the same side) and nearer the outside than that strip pixel (not the face beside a strip's
+    tip), no farther than the shadow's band from either. Returns the photo's pixels
+    of the strips and of those rims (full-size mask), the strips' area (mm2) and the paper's
+    code (the median 4-16 px outside the outline, as a cut is painted), or None without such a
+    hole.
+    """
+    slivers = [h for h in part.holes if _is_sliver(h)]
+    if not slivers or part.outline_mm is None:
+        return None
+    outer = _photo_ring_px(scale, np.asarray(part.outline_mm, float))
+    rings = [_photo_ring_px(scale, np.asarray(h.outline_mm, float), hole=True) for h in slivers]
+    shape = grey.shape[:2]
+    pad = max(int(math.ceil(band_px)) + 4, 18)
+    lo = np.floor(np.vstack([outer, *rings]).min(axis=0)).astype(int) - pad
+    hi = np.ceil(np.vstack([outer, *rings]).max(axis=0)).astype(int) + pad
+    x0, y0 = max(int(lo[0]), 0), max(int(lo[1]), 0)
+    x1, y1 = min(int(hi[0]), shape[1]), min(int(hi[1]), shape[0])
+    if x1 - x0 < 8 or y1 - y0 < 8:
+        return None
+    off = np.array([x0, y0], float)
+    inside = np.zeros((y1 - y0, x1 - x0), np.uint8)
+    cv2.fillPoly(inside, [np.round(outer - off).astype(np.int32)], 1)
+    strips = np.zeros_like(inside)
+    for ring in rings:
+        cv2.fillPoly(strips, [np.round(ring - off).astype(np.int32)], 1)
+    material = inside.astype(bool) & ~strips.astype(bool)
+    to_out, out_lab = cv2.distanceTransformWithLabels(inside, cv2.DIST_L2, 5, labelType=cv2.DIST_LABEL_PIXEL)
+    to_strip, strip_lab = cv2.distanceTransformWithLabels(1 - strips, cv2.DIST_L2, 5, labelType=cv2.DIST_LABEL_PIXEL)
+    rows, cols = np.indices(inside.shape)
+
+    def nearest(zero: np.ndarray, labels: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        # DIST_LABEL_PIXEL numbers the zero pixels in row-major order, from 1
+        zr, zc = np.nonzero(zero)
+        idx = np.clip(labels - 1, 0, max(len(zr) - 1, 0))
+        return zr[idx], zc[idx]
+
+    orow, ocol = nearest(inside == 0, out_lab)
+    srow, scol = nearest(strips == 1, strip_lab)
+    across = (orow - rows) * (srow - rows) + (ocol - cols) * (scol - cols) < 0
+    beyond = to_out < to_out[srow, scol]  # nearer the outside than the strip is (not beside a strip's tip)
+    rim = material & across & beyond & (to_out <= band_px) & (to_strip <= band_px)
+    outside = cv2.distanceTransform(1 - inside, cv2.DIST_L2, 3)
+    paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]
+    if paper.size < 20:
+        return None
+    full = np.zeros(shape, bool)
+    full[y0:y1, x0:x1] = rim | strips.astype(bool)
+    return full, float(sum(h.area_mm2 for h in slivers)), float(np.median(paper))
+
+
+def _open_slivers(
+    masked: LoadedImage,
+    scale: PhotoScale,
+    grey: np.ndarray,
+    again: Measurement,
+    cuts: list[tuple[Part, float, float, float]],
+    band_px: float,
+    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+) -> tuple[Measurement, list[str]]:
+    """Open the strips a cut left closed off as holes (:func:`_sliver_strips`) and measure again.
+
+    ``again`` is the measurement of ``grey`` (the cuts painted) on ``scale``'s plane map; each
+    part found in a cut part's outline is checked. The strips and the shadow's rim beyond them
+    are painted in the paper's level on ``grey`` (in place, when kept). ``remeasure`` is called
+    last on the image kept. Returns the measurement kept (the new one only when every part is
+    found again) and one note per part opened.
+    """
+    opened_parts: list[tuple[tuple[float, float], float]] = []  # (centroid mm, strips mm2)
+    painted = grey.copy()
+    for old, edge_mm, *_ in cuts:
+        if edge_mm <= 0 or old.outline_mm is None:
+            continue
+        outline = np.asarray(old.outline_mm, np.float32)
+        for q in again.parts:
+            if not _lies_within(q, outline):
+                continue
+            found = _sliver_strips(scale, q, painted, band_px)
+            if found is None:
+                continue
+            opened, strips_mm2, paper_code = found
+            painted[opened] = np.asarray(paper_code, dtype=grey.dtype)
+            opened_parts.append((q.centroid_mm, strips_mm2))
+    if not opened_parts:
+        return again, []
+    try:
+        opened_again: Measurement | None = remeasure(replace(masked, grey=painted), scale.plane_map)
+    except (SegmentationError, ScaleError, OptionError):
+        opened_again = None
+    # every part found again (a speck of the painted rim may be found too: the cut's pieces are left out later)
+    smallest = min(q.area_mm2 for q in again.parts)
+    if opened_again is None or sum(q.area_mm2 >= 0.05 * smallest for q in opened_again.parts) != len(again.parts):
+        remeasure(replace(masked, grey=grey), scale.plane_map)  # the image kept is the one measured last
+        return again, []
+    grey[:] = painted
+    notes = []
+    for centroid, strips_mm2 in opened_parts:
+        near = min(opened_again.parts, key=lambda q: math.dist(q.centroid_mm, centroid))
+        notes.append(f"{near.label} ({strips_mm2:.3g} mm²)")
+    return opened_again, notes
+
+
 def _cut_cast_shadows(
     image: LoadedImage,
     masked: LoadedImage,
@@ -1005,6 +1179,10 @@ def _cut_cast_shadows(
     if isinstance(hook, ElevationHook):
         top_seen = np.zeros(grey.shape[:2], bool) if hook.top_seen is None else hook.top_seen.copy()
     opened: list[str] = []  # parts whose holes' dark bottoms were opened
+    painted = np.zeros(grey.shape[:2], bool)  # the cuts painted in the paper's level
+    firsts = np.zeros(grey.shape[:2], bool)  # within the first outer outlines of the cut parts
+    cut_faces = np.zeros(grey.shape[:2], bool)  # the same, less the cuts
+    paper_codes = np.zeros(grey.shape[:2], grey.dtype)  # the paper's level painted around each
     # a metal part whose own sweep was refused comes again after the others, its sweep then sought
     # along the shadow direction their cuts found (one light casts every shadow of a photo one way)
     todo: list[tuple[Part, bool]] = [(part, False) for part in result.parts]
@@ -1013,7 +1191,7 @@ def _cut_cast_shadows(
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
             continue
-        (x0, y0, x1, y1), mask, _ = crop
+        (x0, y0, x1, y1), mask, rings = crop
         colour_lin = lut[colour[y0:y1, x0:x1]]
         window = grey[y0:y1, x0:x1]
         wall = _lost_wall(scale, part, thickness_mm, colour_lin, (x0, y0))
@@ -1021,7 +1199,8 @@ def _cut_cast_shadows(
         if wall is not None:
             face = window[cv2.erode(mask.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)]
             if face.size >= 20:
-                window[wall.band & ~mask] = np.asarray(np.median(face), dtype=grey.dtype)
+                paint = wall.band & ~mask if wall.seam is None else (wall.band & ~mask) | wall.seam
+                window[paint] = np.asarray(np.median(face), dtype=grey.dtype)
                 wall_mm2 = float(np.count_nonzero(wall.band & ~mask)) * mm_per_px**2
         risk = shadow_risk(colour_lin, mask, band_px)
         cut = None
@@ -1031,7 +1210,7 @@ def _cut_cast_shadows(
             # thick part's top edge lies its parallax beyond the footprint the plane map gives)
             as_seen = _part_crop(image, scale, part, int(band_px) + 16, as_seen=True)
             if as_seen is not None:
-                (x0, y0, x1, y1), mask, _ = as_seen
+                (x0, y0, x1, y1), mask, rings = as_seen
                 colour_lin = lut[colour[y0:y1, x0:x1]]
                 window = grey[y0:y1, x0:x1]
                 risk = shadow_risk(colour_lin, mask, band_px)
@@ -1061,6 +1240,12 @@ def _cut_cast_shadows(
             else:
                 unpainted = window.copy()
                 window[cut.cut] = np.asarray(np.median(paper), dtype=grey.dtype)
+                painted[y0:y1, x0:x1] |= cut.cut
+                outer = np.zeros(mask.shape, np.uint8)
+                cv2.fillPoly(outer, [np.round(rings[0]).astype(np.int32)], 1)
+                firsts[y0:y1, x0:x1] |= outer.astype(bool)
+                cut_faces[y0:y1, x0:x1] |= outer.astype(bool) & ~cut.cut
+                paper_codes[y0:y1, x0:x1] = np.median(paper)
                 if dark:
                     _blend_cut_edge(window, unpainted, mask, cut.cut, lut, np.median(paper))
                 if top_seen is not None:
@@ -1093,10 +1278,17 @@ def _cut_cast_shadows(
         if top_seen is not None and top_seen.any():
             plane_map = with_top_seen(plane_map, top_seen)
         again = remeasure(replace(masked, grey=grey), plane_map)
+        closed = _painted_holes(again, replace(scale, plane_map=plane_map), painted, firsts, cut_faces)
+        if closed.any():
+            # a piece of a cut that darker shadow beyond the outline closes off reads as a hole; it
+            # and that shadow around it (neither is face) are painted as the paper they lie on
+            grey[closed] = paper_codes[closed]
+            again = remeasure(replace(masked, grey=grey), plane_map)
     except (SegmentationError, ScaleError, OptionError):
         # nothing measurable with the cuts painted (or rings the section refuses: a thin strip
         # left beside a cut can put a hole's mapped ring past the outer one): keep the first measurement
         return result, [], set()
+    again, slivers = _open_slivers(masked, replace(scale, plane_map=plane_map), grey, again, cuts, band_px, remeasure)
     done: list[str] = []
     labels: set[int] = set()
     remnants: set[int] = set()
@@ -1163,6 +1355,12 @@ def _cut_cast_shadows(
             "shadow, and the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse "
             "light or a backlight"
         )
+    if slivers:
+        out.append(
+            f"cast shadow cut: in part(s) {', '.join(slivers)} a strip of the cut, bent along the outline (its "
+            "fitted circle far wider than the strip), was closed off as a hole by the shadow's rim beyond it; the "
+            "strip and that rim were left out with the shadow (term 'shadow_cut')"
+        )
     if opened:
         out.append(
             f"deep holes opened: in part(s) {', '.join(opened)} dark regions inside the dark top face (a hole's "
@@ -1173,10 +1371,58 @@ def _cut_cast_shadows(
     if walls:
         out.append(
             f"side wall: beside part(s) {', '.join(walls)} a band as wide as the side wall of the given thickness, "
-            "lit and of another colour than the paper, was taken as the part's wall and added; the uncertainty "
+            "lit and of another colour than the paper (or of its colour on the side the light falls on, where the "
+            "part's own shadow lies beyond its far side), was taken as the part's wall and added; the uncertainty "
             "includes half of it (term 'side_wall'); photograph from straight above or in diffuse light"
         )
     return again, out, labels
+
+
+#: Smallest share of a found hole's pixels (rasterised, its rim's pixels included) beyond the
+#: first outer outline for a hole touching a cut's paint to be taken as a piece of the cut
+#: (:func:`_painted_holes`): the strips on tests/data/reallight/window-steel-t25 (steel bracket,
+#: 1.75 mm) and lens-spot-brass-t30 (brass cam, a 100 mm circle fit) have 0.32 and 0.30; a
+#: through-hole lies within the part's material, 0-0.05 there (holes the cut ran into included).
+PAINTED_HOLE_MIN_BEYOND = 0.2
+
+
+def _painted_holes(
+    result: Measurement, scale: PhotoScale, painted: np.ndarray, first: np.ndarray, face: np.ndarray
+) -> np.ndarray:
+    """Pixels around the holes found in a shadow cut's paint and beyond the first outline: no openings in the part.
+
+    A through-hole opens in the part's material, so it lies within the part's outline as first
+    found (``first``; that outline held the cast shadow too). A found hole that touches the cut
+    region painted with the paper's level (``painted``) and reaches beyond that outline
+    (:data:`PAINTED_HOLE_MIN_BEYOND` of its pixels or more) is a strip of the cut that the darker
+    shadow beyond the first outline closed off once the paint raised the local paper level
+    (tests/data/reallight/window-steel-t25, the steel bracket: a 1.75 mm 'hole' beside its cut).
+    Returned: its pixels and those within 3 px of it off ``face`` (the first outline less the
+    cut): the paint and the shadow that closed it off, to be painted as paper.
+    """
+    out = np.zeros(painted.shape, bool)
+    if not painted.any():
+        return out
+    for part in result.parts:
+        for hole in part.holes:
+            if hole.outline_mm is None:
+                continue
+            ring = np.round(_image_px(scale, np.asarray(hole.outline_mm, float), hole=True)).astype(np.int32)
+            # the hole's box with a 4 px margin, clipped to the image
+            x0, y0 = np.maximum(ring.min(axis=0) - 4, 0)
+            x1, y1 = np.minimum(ring.max(axis=0) + 5, [painted.shape[1], painted.shape[0]])
+            if x1 <= x0 or y1 <= y0:
+                continue
+            box = (slice(int(y0), int(y1)), slice(int(x0), int(x1)))
+            one = np.zeros((int(y1 - y0), int(x1 - x0)), np.uint8)
+            cv2.fillPoly(one, [ring - np.array([x0, y0], np.int32)], 1)
+            inside = one.astype(bool)
+            n = np.count_nonzero(inside)
+            if not n or not np.any(inside & painted[box]):
+                continue
+            if np.count_nonzero(inside & ~first[box]) >= PAINTED_HOLE_MIN_BEYOND * n:
+                out[box] |= cv2.dilate(one, np.ones((7, 7), np.uint8)).astype(bool) & ~face[box]
+    return out
 
 
 #: Share of a part's boundary whose edge profile must be unclear before the part is flagged.
