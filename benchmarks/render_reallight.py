@@ -29,7 +29,13 @@ Usage::
         --width 900 --height 1200 --samples 20 --scan-samples 24 --threads 1   # the held-out set
 
 The held-out set (``--holdout``, :func:`holdout_scenes`) is rendered the same way from new
-scenes; it measures whether the rules generalise and is never used to tune them.
+scenes; it measures whether the rules generalise and is never used to tune them. The
+development scenes (:func:`dev_scenes`, ``dev-*``) render the held-out set's worst conditions
+with other shapes, placements and tilts; they belong to the tuned set::
+
+    nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 \
+        --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
+        dev-spot-steel-t20 dev-mixed-black-t15
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
