@@ -107,7 +107,7 @@ def test_pale_brass_mirroring_a_softbox_is_found():
     strict=True,
     reason="brushed steel under the spot at 20 degrees: the 3 mm disc's brushed sectors that mirror the light "
     "are as bright as the paper and are lost, the rest is found with its shadow and named 'shadow only' "
-    "(-12.5 % in area, centroid 3.3 mm, bench_reallight; warned, 0.4 sigma)",
+    "(-11.8 % in area, centroid 3.3 mm; warned, 0.3 sigma)",
 )
 def test_bright_brushed_sectors_of_a_steel_disc_are_kept():
     m, part, tp = _part("dev-spot-steel-t20", "disc")
