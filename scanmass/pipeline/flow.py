@@ -16,11 +16,11 @@ from typing import Any
 import numpy as np
 
 from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
+from scanmass.geometry import ring_perimeter
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
-from scanmass.geometry import ring_perimeter
 from scanmass.pipeline.part_terms import fragment_warnings, measure_part, with_fragment_term
 from scanmass.pipeline.photo_checks import (
     _cast_shadows,
@@ -432,7 +432,9 @@ def measure_image(
             extra_mm=extra_mm or None, extra_perimeter_mm=extra_perimeter_mm, extra_perimeter_u_mm=extra_perimeter_u_mm,
         )  # fmt: skip
         if own_pieces:
-            part = with_fragment_term(part, mapped, [plane_map.to_mm(np.asarray(q.outer_px, float)) for q in own_pieces])
+            part = with_fragment_term(
+                part, mapped, [plane_map.to_mm(np.asarray(q.outer_px, float)) for q in own_pieces]
+            )
         if walls.rings.label in faces and faces[walls.rings.label].note != "soft edges":
             part = _with_face_term(part, faces[walls.rings.label], plane_map)
         if part.label in cuts:

@@ -139,7 +139,9 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
                 + [replace(h, diameter_u_mm=combine(h.diameter_u_mm, grain_d_u)) for h in part.holes[first:]],
             )
         if face.doubt_outer_px is not None or face.doubt_px2 > 0:
-            term = {k: combine(v, _doubt_term(part, face, outer, holes, plane_map).get(k, 0.0)) for k, v in term.items()}
+            term = {
+                k: combine(v, _doubt_term(part, face, outer, holes, plane_map).get(k, 0.0)) for k, v in term.items()
+            }
         # a hole's wall throws the lamp's shadow into the hole as the part's wall does beside it:
         # its diameter gets the same edge uncertainty
         return _with_shadow_term(part, term, FACE_EDGE_U_PX * plane_map.mm_per_px, name="scan_shadow")
