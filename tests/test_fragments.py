@@ -15,6 +15,12 @@ import shapely.geometry as sg
 from scanmass.segment.fragments import FRAGMENT_AREA_RATIO, find_fragments
 from scanmass.segment.rings import PartRings
 
+LUT = np.linspace(0.0, 1.0, 4097)  # 12-bit codes: linear light in steps of 1/4096
+
+
+def _find(img: np.ndarray, parts: list[PartRings]):
+    return find_fragments(np.round(np.clip(img, 0, 1) * 4096).astype(np.uint16), LUT, parts)
+
 
 def _square(label: int, x0: int, y0: int, n: int) -> PartRings:
     ring = np.array([[x0, y0], [x0 + n, y0], [x0 + n, y0 + n], [x0, y0 + n]], float)
@@ -36,13 +42,13 @@ def _scene(strip: str, seed: int = 0) -> tuple[np.ndarray, list[PartRings]]:
 
 def test_pieces_across_paper_stay_two_parts():
     img, parts = _scene("paper")
-    assert find_fragments(img, parts) == []
+    assert _find(img, parts) == []
 
 
 @pytest.mark.parametrize("strip", ["grain", "painted"])
 def test_pieces_across_the_faces_grain_or_a_painted_cut_are_merged(strip):
     img, parts = _scene(strip)
-    found = find_fragments(img, parts)
+    found = _find(img, parts)
     assert [(f.label, f.into) for f in found] == [(2, 1)]
     # the gap from the larger piece's filled mask to the piece's nearest pixel centre (4 px of paper drawn: 5 px; the
     # distance transform is OpenCV's 5x5 mask, exact to about 2 % on axis-aligned steps)
@@ -53,7 +59,7 @@ def test_a_piece_of_like_size_is_another_part():
     img, parts = _scene("grain")
     big = parts[0]
     like = _square(2, 104, 20, int(np.sqrt(big.area_px / (0.9 * FRAGMENT_AREA_RATIO))))
-    assert find_fragments(img, [big, like]) == []
+    assert _find(img, [big, like]) == []
 
 
 def test_a_piece_beyond_reach_is_another_part():
@@ -62,7 +68,7 @@ def test_a_piece_beyond_reach_is_another_part():
     img[20:100, 20:100] = 0.1
     img[50:59, 150:159] = 0.1
     img[45:64, 100:150] = np.where(rng.random((19, 50)) < 0.5, 0.1, 0.9)  # grain, but 50 px away (reach 11 px)
-    assert find_fragments(img, [_square(1, 20, 20, 79), _square(2, 150, 50, 8)]) == []
+    assert _find(img, [_square(1, 20, 20, 79), _square(2, 150, 50, 8)]) == []
 
 
 def test_fragment_term_is_the_hull_less_the_pieces():

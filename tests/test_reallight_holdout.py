@@ -31,7 +31,7 @@ RENDERS = sorted(p.name for p in REALLIGHT_HOLDOUT.glob("*.json")) if REALLIGHT_
 _MIXED_STEEL_CAM = (
     "brushed-steel cam (4 mm) in mixed warm and cool light at 10 degrees: its sparkling face is found as two "
     "pieces (about 460 and 35 mm2 of 992 mm2) whose strip is the face's grain, merged into one part and warned "
-    "('part found in pieces', term 'fragments'): {area} % in area ({sigma} sigma), but its bright half is not "
+    "('part N: found in pieces', term 'fragments'): {area} % in area ({sigma} sigma), but its bright half is not "
     "found at all, so the centroid lies {dist} mm off (covered, under 0.6 sigma) and the test counts the cam not found"
 )
 _LENS_WINDOW_STEEL = (

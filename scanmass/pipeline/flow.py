@@ -379,7 +379,7 @@ def measure_image(
     pieces: dict[int, list[PartRings]] = {}
     fragments: list[Fragment] = []
     if roi_px is not None and len(seg.parts) > 1:  # photos: a grainy face found in pieces
-        fragments = find_fragments(np.asarray(image.to_linear, np.float32)[image.grey], seg.parts, roi_px)
+        fragments = find_fragments(image.grey, np.asarray(image.to_linear, np.float32), seg.parts, roi_px)
         merged = {f.label: f.into for f in fragments}
         for r in seg.parts:
             if r.label in merged:

@@ -37,8 +37,10 @@ FRAGMENT_GRAIN_RATIO = 2.0
 PAINTED_GRAIN_SHARE = 0.1
 #: Strip pixels nearer than this (px) to either piece are left out: an edge's blur tail.
 STRIP_CLEAR_PX = 1.5
-#: The paper's grain is read this far (px) from every found part and further.
+#: The paper's grain is read this far (px) from every found part and further, within this
+#: margin (px) around the pair of pieces.
 PAPER_CLEAR_PX = 30
+PAPER_WINDOW_PX = 150
 
 
 @dataclass
@@ -52,42 +54,58 @@ class Fragment:
     paper_grain: float
 
 
-def _paper_grain(linear: np.ndarray, parts: list[PartRings], roi_px: np.ndarray | None) -> float:
+def _paper_grain(
+    grey: np.ndarray,
+    lut: np.ndarray,
+    parts: list[PartRings],
+    roi_px: np.ndarray | None,
+    box: tuple[int, int, int, int],
+) -> float:
     """The paper's grain: the median spread of linear level in 5 x 5 windows away from every part.
 
-    Pixels within :data:`PAPER_CLEAR_PX` of a found part, outside ``roi_px`` (a polygon) or in a
-    window of constant level (a masked-out border) are left out.
+    Read in ``box`` (x0, y0, x1, y1) widened by :data:`PAPER_WINDOW_PX`; pixels within
+    :data:`PAPER_CLEAR_PX` of a found part, outside ``roi_px`` (a polygon) or in a window of
+    constant level (a masked-out border) are left out. NaN-free: infinity when too few remain.
     """
-    near = np.zeros(linear.shape[:2], np.uint8)
+    height, width = grey.shape[:2]
+    x0, y0 = max(box[0] - PAPER_WINDOW_PX, 0), max(box[1] - PAPER_WINDOW_PX, 0)
+    x1, y1 = min(box[2] + PAPER_WINDOW_PX, width), min(box[3] + PAPER_WINDOW_PX, height)
+    origin = np.array([x0, y0], float)
+    shape = (y1 - y0, x1 - x0)
+    near = np.zeros(shape, np.uint8)
     for r in parts:
-        cv2.fillPoly(near, [np.round(r.outer_px).astype(np.int32)], 1)
+        cv2.fillPoly(near, [np.round(r.outer_px - origin).astype(np.int32)], 1)
     kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * PAPER_CLEAR_PX + 1, 2 * PAPER_CLEAR_PX + 1))
     far = ~cv2.dilate(near, kernel).astype(bool)
     if roi_px is not None:
-        inside = np.zeros(linear.shape[:2], np.uint8)
-        cv2.fillPoly(inside, [np.round(roi_px).astype(np.int32)], 1)
+        inside = np.zeros(shape, np.uint8)
+        cv2.fillPoly(inside, [np.round(np.asarray(roi_px, float) - origin).astype(np.int32)], 1)
         far &= inside.astype(bool)
-    img = linear.astype(np.float32)
+    img = np.asarray(lut, np.float32)[grey[y0:y1, x0:x1]]
     mean = cv2.blur(img, (5, 5))
     spread = np.sqrt(np.maximum(cv2.blur(img * img, (5, 5)) - mean * mean, 0.0))
     values = spread[far & (spread > 0)]
     return float(np.median(values)) if values.size >= 100 else math.inf
 
 
-def _mask(rings: PartRings, shape: tuple[int, int]) -> np.ndarray:
-    """The filled outer ring of a part (uint8, 1 inside)."""
+def _mask(rings: PartRings, shape: tuple[int, int], origin: np.ndarray) -> np.ndarray:
+    """The filled outer ring of a part in a window whose top-left pixel is ``origin`` (uint8, 1 inside)."""
     mask = np.zeros(shape, np.uint8)
-    cv2.fillPoly(mask, [np.round(rings.outer_px).astype(np.int32)], 1)
+    cv2.fillPoly(mask, [np.round(rings.outer_px - origin).astype(np.int32)], 1)
     return mask
 
 
-def find_fragments(linear: np.ndarray, parts: list[PartRings], roi_px: np.ndarray | None = None) -> list[Fragment]:
+def find_fragments(
+    grey: np.ndarray, lut: np.ndarray, parts: list[PartRings], roi_px: np.ndarray | None = None
+) -> list[Fragment]:
     """Small pieces lying within reach of a much larger piece across a strip that is not clean paper.
 
     Parameters
     ----------
-    linear : (H, W) ndarray
-        The image in linear light (the paper near 1 or near 0, whichever the polarity).
+    grey : (H, W) ndarray of int
+        The image's codes.
+    lut : ndarray
+        Linear light of each code (the paper near 1 or near 0, whichever the polarity).
     parts : list of PartRings
         The regions the segmentation found.
 
@@ -117,19 +135,19 @@ def find_fragments(linear: np.ndarray, parts: list[PartRings], roi_px: np.ndarra
     >>> img[20:100, 20:100] = 0.1
     >>> img[50:60, 103:113] = 0.1
     >>> parts = [square(1, 20, 20, 79), square(2, 103, 50, 9)]
-    >>> find_fragments(img, parts)
+    >>> lut = np.linspace(0.0, 1.0, 1001)  # codes 0-1000: linear light in steps of 0.001
+    >>> codes = lambda a: np.round(np.clip(a, 0, 1) * 1000).astype(np.uint16)
+    >>> find_fragments(codes(img), lut, parts)
     []
     >>> img[40:70, 100:103] = np.where(np.arange(90).reshape(30, 3) % 2, 0.1, 1.0)
-    >>> [(f.label, f.into) for f in find_fragments(img, parts)]
+    >>> [(f.label, f.into) for f in find_fragments(codes(img), lut, parts)]
     [(2, 1)]
     """
-    shape = linear.shape[:2]
+    height, width_px = grey.shape[:2]
     out: list[Fragment] = []
     if len(parts) < 2:
         return out
-    paper_grain = _paper_grain(linear, parts, roi_px)
-    if not math.isfinite(paper_grain) or paper_grain <= 0.0:
-        return out  # no paper's grain to tell a strip of paper from the face's or a painted one
+    paper_grain = math.nan  # read once, when a pair within reach asks for it
     taken: set[int] = set()
     order = sorted(parts, key=lambda r: r.area_px)
     for small in order:
@@ -142,7 +160,13 @@ def find_fragments(linear: np.ndarray, parts: list[PartRings], roi_px: np.ndarra
             sx0, sy0, sx1, sy1 = small.bbox_px
             if sx0 > bx1 + reach or bx0 > sx1 + reach or sy0 > by1 + reach or by0 > sy1 + reach:
                 continue
-            m_big, m_small = _mask(big, shape), _mask(small, shape)
+            # the pair's window (the strip lies within the gap of both)
+            pad = int(math.ceil(reach)) + 4
+            x0, y0 = max(min(bx0, sx0) - pad, 0), max(min(by0, sy0) - pad, 0)
+            x1, y1 = min(max(bx1, sx1) + pad + 1, width_px), min(max(by1, sy1) + pad + 1, height)
+            origin = np.array([x0, y0], float)
+            window = lut[grey[y0:y1, x0:x1]]
+            m_big, m_small = _mask(big, window.shape[:2], origin), _mask(small, window.shape[:2], origin)
             dist = cv2.distanceTransform((1 - m_big).astype(np.uint8), cv2.DIST_L2, 5)
             gap = float(dist[m_small.astype(bool)].min()) if m_small.any() else math.inf
             if gap > reach:
@@ -159,7 +183,11 @@ def find_fragments(linear: np.ndarray, parts: list[PartRings], roi_px: np.ndarra
             )
             if strip.sum() < 4:
                 continue
-            strip_grain = float(np.std(linear[strip]))
+            if math.isnan(paper_grain):
+                paper_grain = _paper_grain(grey, lut, parts, roi_px, (x0, y0, x1, y1))
+            if not math.isfinite(paper_grain) or paper_grain <= 0.0:
+                return out  # no paper's grain to tell a strip of paper from the face's or a painted one
+            strip_grain = float(np.std(window[strip]))
             painted = strip_grain < PAINTED_GRAIN_SHARE * paper_grain
             if strip_grain < FRAGMENT_GRAIN_RATIO * paper_grain and not painted:
                 continue
