@@ -229,14 +229,17 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
     if len(shadows) == len(result.parts):
         raise SegmentationError(
             f"no part found, only {len(shadows)} region(s) that look like cast shadows (the paper's colour, "
-            "darkened, fading outwards): a light part on light paper cannot be told from the paper; lay the parts "
-            "on a dark backing sheet, or light them from below (a backlight)",
+            "darkened, fading outwards): either a light part on light paper, not told from the paper, or a grey "
+            "metal part (steel, aluminium) whose lit face has the paper's colour, taken for a shadow; lay light "
+            "parts on a dark backing sheet, photograph metal in diffuse light, or light either from below (a "
+            "backlight)",
             path=image.path,
         )
     return [
         f"shadow only: {', '.join(shadows)} look(s) like a cast shadow alone (the paper's "
-        "colour, darkened, fading outwards), perhaps of a light part that was not found: do not use their figures; "
-        "lay light parts on a dark backing sheet, or use a backlight"
+        "colour, darkened, fading outwards), perhaps of a light part that was not found, or a grey metal part whose "
+        "lit face has the paper's colour: do not use their figures; lay light parts on a dark backing sheet, "
+        "photograph metal in diffuse light, or use a backlight"
     ]
 
 
