@@ -1254,20 +1254,27 @@ def _cut_cast_shadows(
         return result, [], set()
     try:
         plane_map = scale.plane_map
+        closed_notes: list[str] = []
         if top_seen is not None and top_seen.any():
             plane_map = with_top_seen(plane_map, top_seen)
         again = remeasure(replace(masked, grey=grey), plane_map)
-        closed = _painted_holes(again, replace(scale, plane_map=plane_map), painted, firsts, cut_faces)
+        closed, strips = _painted_holes(again, replace(scale, plane_map=plane_map), painted, firsts, cut_faces)
         if closed.any():
             # a piece of a cut that darker shadow beyond the outline closes off reads as a hole; it
             # and that shadow around it (neither is face) are painted as the paper they lie on
             grey[closed] = paper_codes[closed]
             again = remeasure(replace(masked, grey=grey), plane_map)
+            closed_notes = [
+                f"{min(again.parts, key=lambda q: math.dist(q.centroid_mm, c)).label} ({a:.3g} mm²)"
+                for c, a in strips
+                if again.parts
+            ]
     except (SegmentationError, ScaleError, OptionError):
         # nothing measurable with the cuts painted (or rings the section refuses: a thin strip
         # left beside a cut can put a hole's mapped ring past the outer one): keep the first measurement
         return result, [], set()
     again, slivers = _open_slivers(masked, replace(scale, plane_map=plane_map), grey, again, cuts, band_px, remeasure)
+    slivers = closed_notes + slivers
     done: list[str] = []
     labels: set[int] = set()
     remnants: set[int] = set()
@@ -1336,9 +1343,10 @@ def _cut_cast_shadows(
         )
     if slivers:
         out.append(
-            f"cast shadow cut: in part(s) {', '.join(slivers)} a strip of the cut, bent along the outline (its "
-            "fitted circle far wider than the strip), was closed off as a hole by the shadow's rim beyond it; the "
-            "strip and that rim were left out with the shadow (term 'shadow_cut')"
+            f"cast shadow cut: in part(s) {', '.join(slivers)} a strip of the cut was closed off as a hole by the "
+            "shadow's rim beyond it (a 'hole' reaching past the outline first found, or bent along the outline, its "
+            "fitted circle far wider than the strip); the strip and that rim were left out with the shadow (term "
+            "'shadow_cut')"
         )
     if opened:
         out.append(
@@ -1367,7 +1375,7 @@ PAINTED_HOLE_MIN_BEYOND = 0.2
 
 def _painted_holes(
     result: Measurement, scale: PhotoScale, painted: np.ndarray, first: np.ndarray, face: np.ndarray
-) -> np.ndarray:
+) -> tuple[np.ndarray, list[tuple[tuple[float, float], float]]]:
     """Pixels around the holes found in a shadow cut's paint and beyond the first outline: no openings in the part.
 
     A through-hole opens in the part's material, so it lies within the part's outline as first
@@ -1377,11 +1385,13 @@ def _painted_holes(
     shadow beyond the first outline closed off once the paint raised the local paper level
     (tests/data/reallight/window-steel-t25, the steel bracket: a 1.75 mm 'hole' beside its cut).
     Returned: its pixels and those within 3 px of it off ``face`` (the first outline less the
-    cut): the paint and the shadow that closed it off, to be painted as paper.
+    cut): the paint and the shadow that closed it off, to be painted as paper; and each such
+    hole's part centroid (mm) and area (mm²), for the warning.
     """
     out = np.zeros(painted.shape, bool)
+    strips: list[tuple[tuple[float, float], float]] = []
     if not painted.any():
-        return out
+        return out, strips
     for part in result.parts:
         for hole in part.holes:
             if hole.outline_mm is None:
@@ -1401,7 +1411,8 @@ def _painted_holes(
                 continue
             if np.count_nonzero(inside & ~first[box]) >= PAINTED_HOLE_MIN_BEYOND * n:
                 out[box] |= cv2.dilate(one, np.ones((7, 7), np.uint8)).astype(bool) & ~face[box]
-    return out
+                strips.append(((float(part.centroid_mm[0]), float(part.centroid_mm[1])), float(hole.area_mm2)))
+    return out, strips
 
 
 #: Share of a part's boundary whose edge profile must be unclear before the part is flagged.
