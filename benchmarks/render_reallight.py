@@ -500,6 +500,26 @@ def scenes():
             90,
             "Filmic",
         ),
+        # variants of held-out failures (rendered at 900 x 1200 px, 20 samples): steel in mixed light
+        # (its faces taken for shadows), a thin brass bracket beside a thicker cam under the spot
+        (
+            "mixed-steel-t20",
+            "mixed",
+            [("cam", "brushed-steel", 4.0, 95, 110, 30), ("disc", "brushed-steel", 3.0, 120, 205, 0)],
+            320,
+            20,
+            90,
+            "Standard",
+        ),
+        (
+            "spot-brass-t10b",
+            "spot",
+            [("l-bracket", "brass", 2.0, 90, 100, 160), ("cam", "brass", 4.0, 125, 200, 20)],
+            330,
+            10,
+            200,
+            "Standard",
+        ),
     ]
     return photo
 

@@ -17,12 +17,12 @@ import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
-from scanmass.geometry import vertex_normals
+from scanmass.geometry import ring_perimeter, vertex_normals
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
-from scanmass.pipeline.part_terms import measure_part
+from scanmass.pipeline.part_terms import fragment_warnings, measure_part, with_fragment_term
 from scanmass.pipeline.photo_checks import (
     _cast_shadows,
     _check_within_support,
@@ -55,6 +55,7 @@ from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.segment.closedfeat import measure_closed
+from scanmass.segment.fragments import Fragment, find_fragments
 from scanmass.segment.lidgap import lid_gap
 from scanmass.segment.rings import PartRings, segment
 from scanmass.segment.scanface import FaceResult
@@ -384,6 +385,15 @@ def measure_image(
     faces: dict[int, FaceResult] = {}
     if face_check and seg.polarity.startswith("dark"):
         seg.parts, faces = _scan_faces(image, seg.parts, options.min_hole_area_mm2 or options.min_area_mm2, px_area_mm2)
+    pieces: dict[int, list[PartRings]] = {}
+    fragments: list[Fragment] = []
+    if roi_px is not None and len(seg.parts) > 1:  # photos: a grainy face found in pieces
+        fragments = find_fragments(image.grey, np.asarray(image.to_linear, np.float32), seg.parts, roi_px)
+        merged = {f.label: f.into for f in fragments}
+        for r in seg.parts:
+            if r.label in merged:
+                pieces.setdefault(merged[r.label], []).append(r)
+        seg.parts = [r for r in seg.parts if r.label not in merged]
     necks = [touching_lobes(r.outer_px, list(r.holes_px)) for r in seg.parts]
     splits = _touch_splits(image, seg.parts, seg.polarity, necks)
     split_notes: list[dict[str, Any]] = []
@@ -428,10 +438,21 @@ def measure_image(
         if len(walls.closed_px):
             closed_px, extra_mm, (extra_perimeter_mm, extra_perimeter_u_mm) = _closed_measured(walls, plane_map)
             closed_mm = np.column_stack([plane_map.to_mm(closed_px[:, :2]), closed_px[:, 2] * plane_map.mm_per_px**2])
+        own_pieces = pieces.get(walls.rings.label, [])
+        for piece in own_pieces:  # a fragment's material joins the piece it was found beside
+            piece_mm = plane_map.to_mm(np.asarray(piece.outer_px, float))
+            extra_mm += [(piece_mm, 1.0)] + [(plane_map.to_mm(np.asarray(h, float)), -1.0) for h in piece.holes_px]
+            extra_perimeter_mm += ring_perimeter(piece_mm) + sum(
+                ring_perimeter(plane_map.to_mm(np.asarray(h, float))) for h in piece.holes_px
+            )
         part = measure_part(
             mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm,
             extra_mm=extra_mm or None, extra_perimeter_mm=extra_perimeter_mm, extra_perimeter_u_mm=extra_perimeter_u_mm,
         )  # fmt: skip
+        if own_pieces:
+            part = with_fragment_term(
+                part, mapped, [plane_map.to_mm(np.asarray(q.outer_px, float)) for q in own_pieces]
+            )
         if walls.rings.label in faces and faces[walls.rings.label].note != "soft edges":
             part = _with_face_term(part, faces[walls.rings.label], plane_map)
         if part.label in cuts:
@@ -466,6 +487,7 @@ def measure_image(
                 "beyond the stated uncertainty): pass --encoding linear or --encoding srgb to decide",
             )
     touching = _face_warnings(faces, plane_map.mm_per_px)
+    touching += fragment_warnings(fragments, parts, plane_map.mm_per_px)
     touching += _touching_warnings(seg.parts, splits, necks, plane_map.mm_per_px)
     touching += _split_warnings(split_notes, plane_map.mm_per_px)
     scale = ScaleInfo(

@@ -13,11 +13,13 @@ from typing import Any
 
 import numpy as np
 
+from scanmass.geometry import signed_area
 from scanmass.mapping import MappedPart
 from scanmass.measurement import Hole, Part
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import (
     SectionProperties,
+    convex_hull,
     fit_circle,
     ring_moments,
     ring_perimeter,
@@ -393,3 +395,37 @@ def measure_part(
         filled_holes=part.filled_holes,
         filled_hole_area_mm2=part.filled_hole_area_mm2,
     )
+
+
+def with_fragment_term(part: Part, mapped: MappedPart, pieces_mm: list[np.ndarray]) -> Part:
+    """The part, found in pieces and merged (:mod:`scanmass.segment.fragments`), with the term ``fragments``.
+
+    What lies between the pieces was not found as material, but one body of one material may
+    fill it: the term is the convex hull of the pieces' outlines less the area found and its
+    holes (taken at 1 sigma), with its share of the centroid, perimeter and moments
+    (:func:`area_share_term`).
+    """
+    hull = convex_hull(np.concatenate([np.asarray(mapped.outer_mm, float), *pieces_mm]))
+    found_mm2 = part.area_mm2 + sum(h.area_mm2 for h in part.holes)
+    gap_mm2 = max(abs(signed_area(hull)) - found_mm2, 0.0) if len(hull) >= 3 else 0.0
+    return _with_extra_term(part, "fragments", area_share_term(part, gap_mm2), [])
+
+
+def fragment_warnings(fragments: list[Any], parts: list[Part], mm_per_px: float) -> list[str]:
+    """A warning for each part that was found in pieces and merged (``part N: ...``, as the part's own warnings)."""
+    into: dict[int, list[Any]] = {}
+    for f in fragments:
+        into.setdefault(f.into, []).append(f)
+    out = []
+    for part in parts:
+        if part.label not in into:
+            continue
+        term = part.uncertainty_terms.get("fragments", {}).get("area_mm2", 0.0)
+        gaps = ", ".join(f"{f.gap_px * mm_per_px:.2g}" for f in into[part.label])
+        out.append(
+            f"part {part.label}: found in pieces ({len(into[part.label])} small piece(s) {gaps} mm away across a strip "
+            "of the part's own grain or a painted cut, not clean paper: a bright or sparkling face taken for paper in "
+            f"places) and merged; up to {term:.3g} mm² between the pieces may be part too, and the uncertainty "
+            "includes it (term 'fragments'); for a trustworthy figure use diffuse light, or a backlight"
+        )
+    return out

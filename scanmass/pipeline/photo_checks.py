@@ -236,14 +236,17 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
     if len(shadows) == len(result.parts):
         raise SegmentationError(
             f"no part found, only {len(shadows)} region(s) that look like cast shadows (the paper's colour, "
-            "darkened, fading outwards): a light part on light paper cannot be told from the paper; lay the parts "
-            "on a dark backing sheet, or light them from below (a backlight)",
+            "darkened, fading outwards): either a light part on light paper, not told from the paper, or a grey "
+            "metal part (steel, aluminium) whose lit face has the paper's colour, taken for a shadow; lay light "
+            "parts on a dark backing sheet, photograph metal in diffuse light, or light either from below (a "
+            "backlight)",
             path=image.path,
         )
     return [
         f"shadow only: {', '.join(shadows)} look(s) like a cast shadow alone (the paper's "
-        "colour, darkened, fading outwards), perhaps of a light part that was not found: do not use their figures; "
-        "lay light parts on a dark backing sheet, or use a backlight"
+        "colour, darkened, fading outwards), perhaps of a light part that was not found, or a grey metal part whose "
+        "lit face has the paper's colour: do not use their figures; lay light parts on a dark backing sheet, "
+        "photograph metal in diffuse light, or use a backlight"
     ]
 
 
@@ -1275,20 +1278,27 @@ def _cut_cast_shadows(
     cuts.sort(key=lambda c: order[id(c[0])])  # the parts' order, whichever came again
     try:
         plane_map = scale.plane_map
+        closed_notes: list[str] = []
         if top_seen is not None and top_seen.any():
             plane_map = with_top_seen(plane_map, top_seen)
         again = remeasure(replace(masked, grey=grey), plane_map)
-        closed = _painted_holes(again, replace(scale, plane_map=plane_map), painted, firsts, cut_faces)
+        closed, strips = _painted_holes(again, replace(scale, plane_map=plane_map), painted, firsts, cut_faces)
         if closed.any():
             # a piece of a cut that darker shadow beyond the outline closes off reads as a hole; it
             # and that shadow around it (neither is face) are painted as the paper they lie on
             grey[closed] = paper_codes[closed]
             again = remeasure(replace(masked, grey=grey), plane_map)
+            closed_notes = [
+                f"{min(again.parts, key=lambda q: math.dist(q.centroid_mm, c)).label} ({a:.3g} mm²)"
+                for c, a in strips
+                if again.parts
+            ]
     except (SegmentationError, ScaleError, OptionError):
         # nothing measurable with the cuts painted (or rings the section refuses: a thin strip
         # left beside a cut can put a hole's mapped ring past the outer one): keep the first measurement
         return result, [], set()
     again, slivers = _open_slivers(masked, replace(scale, plane_map=plane_map), grey, again, cuts, band_px, remeasure)
+    slivers = closed_notes + slivers
     done: list[str] = []
     labels: set[int] = set()
     remnants: set[int] = set()
@@ -1357,9 +1367,10 @@ def _cut_cast_shadows(
         )
     if slivers:
         out.append(
-            f"cast shadow cut: in part(s) {', '.join(slivers)} a strip of the cut, bent along the outline (its "
-            "fitted circle far wider than the strip), was closed off as a hole by the shadow's rim beyond it; the "
-            "strip and that rim were left out with the shadow (term 'shadow_cut')"
+            f"cast shadow cut: in part(s) {', '.join(slivers)} a strip of the cut was closed off as a hole by the "
+            "shadow's rim beyond it (a 'hole' reaching past the outline first found, or bent along the outline, its "
+            "fitted circle far wider than the strip); the strip and that rim were left out with the shadow (term "
+            "'shadow_cut')"
         )
     if opened:
         out.append(
@@ -1388,7 +1399,7 @@ PAINTED_HOLE_MIN_BEYOND = 0.2
 
 def _painted_holes(
     result: Measurement, scale: PhotoScale, painted: np.ndarray, first: np.ndarray, face: np.ndarray
-) -> np.ndarray:
+) -> tuple[np.ndarray, list[tuple[tuple[float, float], float]]]:
     """Pixels around the holes found in a shadow cut's paint and beyond the first outline: no openings in the part.
 
     A through-hole opens in the part's material, so it lies within the part's outline as first
@@ -1398,11 +1409,13 @@ def _painted_holes(
     shadow beyond the first outline closed off once the paint raised the local paper level
     (tests/data/reallight/window-steel-t25, the steel bracket: a 1.75 mm 'hole' beside its cut).
     Returned: its pixels and those within 3 px of it off ``face`` (the first outline less the
-    cut): the paint and the shadow that closed it off, to be painted as paper.
+    cut): the paint and the shadow that closed it off, to be painted as paper; and each such
+    hole's part centroid (mm) and area (mm²), for the warning.
     """
     out = np.zeros(painted.shape, bool)
+    strips: list[tuple[tuple[float, float], float]] = []
     if not painted.any():
-        return out
+        return out, strips
     for part in result.parts:
         for hole in part.holes:
             if hole.outline_mm is None:
@@ -1422,7 +1435,8 @@ def _painted_holes(
                 continue
             if np.count_nonzero(inside & ~first[box]) >= PAINTED_HOLE_MIN_BEYOND * n:
                 out[box] |= cv2.dilate(one, np.ones((7, 7), np.uint8)).astype(bool) & ~face[box]
-    return out
+                strips.append(((float(part.centroid_mm[0]), float(part.centroid_mm[1])), float(hole.area_mm2)))
+    return out, strips
 
 
 #: Share of a part's boundary whose edge profile must be unclear before the part is flagged.

@@ -25,7 +25,7 @@ from scanmass.pipeline.part_terms import (
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.lidgap import LidGap
 from scanmass.segment.rings import PartRings
-from scanmass.segment.scanface import FaceResult, deep_holes, scan_face
+from scanmass.segment.scanface import FACE_DOUBT_CONTRAST, FaceResult, deep_holes, scan_face
 from scanmass.segment.symmetry import edge_halo, reading_shift
 from scanmass.segment.touching import NeckReport, TouchSplit, split_touching
 from scanmass.uncertainty import (
@@ -138,11 +138,39 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
                 holes=part.holes[:first]
                 + [replace(h, diameter_u_mm=combine(h.diameter_u_mm, grain_d_u)) for h in part.holes[first:]],
             )
+        if face.doubt_outer_px is not None or face.doubt_px2 > 0:
+            term = {
+                k: combine(v, _doubt_term(part, face, outer, holes, plane_map).get(k, 0.0)) for k, v in term.items()
+            }
         # a hole's wall throws the lamp's shadow into the hole as the part's wall does beside it:
         # its diameter gets the same edge uncertainty
         return _with_shadow_term(part, term, FACE_EDGE_U_PX * plane_map.mm_per_px, name="scan_shadow")
     shadow_mm2 = face.shadow_px2 * plane_map.mm_per_px**2
     return _with_shadow_term(part, area_share_term(part, shadow_mm2), 0.0, name="scan_shadow")
+
+
+def _doubt_term(
+    part: Part, face: FaceResult, outer_px: np.ndarray, holes_mm: list[np.ndarray], plane_map: PlaneMap
+) -> dict[str, float]:
+    """A face told from its shadow by a small level step: every figure's change to the sweep's face, or the band.
+
+    With the sweep's face (``doubt_outer_px``) the change of each figure from the face found by
+    level to it (whole, at 1 sigma); without one, the shadow's estimated band (``doubt_px2``) as
+    material the outline may hold (:func:`area_share_term`).
+    """
+    if face.doubt_outer_px is not None:
+        other = plane_map.to_mm(np.asarray(face.doubt_outer_px, float))
+        return change_term(plane_map.to_mm(outer_px), holes_mm, other, holes_mm)
+    return area_share_term(part, face.doubt_px2 * plane_map.mm_per_px**2)
+
+
+def _doubt_mm2(face: FaceResult, mm_per_px: float) -> float:
+    """The area (mm2) a doubted face may be off by: the sweep's face's difference, or the shadow's band."""
+    if face.doubt_outer_px is not None and face.outer_px is not None:
+        a = abs(cv2.contourArea(np.asarray(face.outer_px, np.float32)))
+        b = abs(cv2.contourArea(np.asarray(face.doubt_outer_px, np.float32)))
+        return abs(a - b) * mm_per_px**2
+    return face.doubt_px2 * mm_per_px**2
 
 
 def _side(direction: tuple[float, float]) -> str:
@@ -176,6 +204,16 @@ def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
             "on the glass (its sharp edge), and the edge against the shadow adds the term 'scan_shadow'; a hole "
             f"narrower than about {deep_mm:.2g} mm in such a part can look as dark as the part (no light reaches "
             "the lid above it) and be missed: check the holes"
+        )
+    doubt = {k: f for k, f in left_out.items() if f.doubt_outer_px is not None or f.doubt_px2 > 0}
+    if doubt:
+        listed = ", ".join(f"part {k} ({_doubt_mm2(f, mm_per_px):.3g} mm²)" for k, f in doubt.items())
+        out.append(
+            f"scan of a thick part: {listed} is nearly as dark as the lamp's shadow beside it (their levels differ "
+            f"by under {100 * FACE_DOUBT_CONTRAST:.0f} % of the contrast), so the face's edge against the shadow is "
+            "not sure; the uncertainty includes the other reading of it (the face the shadow's sweep leaves, or the "
+            "shadow's whole band; term 'scan_shadow'); lay white paper on the glass around the part, or measure it "
+            "on a backlight"
         )
     grain = {k: f.grain_holes for k, f in left_out.items() if f.grain_holes}
     if grain:
