@@ -28,7 +28,14 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
-from scanmass.segment.castshadow import dark_tinted_face, fade_cut, hidden_shadow, hole_bottoms, shadow_cut
+from scanmass.segment.castshadow import (
+    core_cut,
+    dark_tinted_face,
+    fade_cut,
+    hidden_shadow,
+    hole_bottoms,
+    shadow_cut,
+)
 from scanmass.segment.deephole import PitEdge, opening_edge, pit_edge
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -1179,7 +1186,11 @@ def _cut_cast_shadows(
     firsts = np.zeros(grey.shape[:2], bool)  # within the first outer outlines of the cut parts
     cut_faces = np.zeros(grey.shape[:2], bool)  # the same, less the cuts
     paper_codes = np.zeros(grey.shape[:2], grey.dtype)  # the paper's level painted around each
-    for part in result.parts:
+    # a metal part whose own sweep was refused comes again after the others, its sweep then sought
+    # along the shadow direction their cuts found (one light casts every shadow of a photo one way)
+    todo: list[tuple[Part, bool]] = [(part, False) for part in result.parts]
+    swept: list[tuple[int, tuple[float, float]]] = []  # (cut px, direction) of the cuts found by a sweep
+    for part, later in todo:
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
             continue
@@ -1210,6 +1221,17 @@ def _cut_cast_shadows(
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
             cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
+            if cut is not None and cut.direction is not None:
+                swept.append((cut.cut_px, cut.direction))
+            if cut is None and not dark and thickness_mm is not None:
+                if not later and not swept:
+                    todo.append((part, True))  # again once the other parts' cuts are known
+                    continue
+                if swept:
+                    # along the photo's shadow direction (one light): an L bracket's own search ran
+                    # along its other arm's shadow (dev-window-steel-t0: +21.8 %)
+                    along = np.asarray(max(swept)[1], float)
+                    cut = core_cut(colour_lin, mask, risk.paper_rgb, band_px, along, code_step=step)
             if cut is None and not dark and thickness_mm is not None:
                 # a metal face as grainy as its shadow: the soft shadow's fade inside the outline
                 cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
@@ -1252,6 +1274,8 @@ def _cut_cast_shadows(
             cuts.append((part, edge_mm, cut_mm2, wall_mm2))
     if not cuts:
         return result, [], set()
+    order = {id(p): k for k, p in enumerate(result.parts)}
+    cuts.sort(key=lambda c: order[id(c[0])])  # the parts' order, whichever came again
     try:
         plane_map = scale.plane_map
         closed_notes: list[str] = []

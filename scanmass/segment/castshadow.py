@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import cv2
 import numpy as np
@@ -50,6 +50,7 @@ __all__ = [
     "dark_tinted_face",
     "hole_bottoms",
     "fade_cut",
+    "core_cut",
 ]
 
 #: Smallest ratio of the shadow's roughness (median over the candidate layer) to the face's
@@ -82,6 +83,9 @@ class ShadowCut:
         Roughness of the face (median over its interior) and of the cut (median).
     level_face, level_shadow : float
         Median darkening factor (level / paper white) of the face and of the cut.
+    direction : (float, float) or None
+        The unit vector (x, y px) of the sweep that added the cut layer; None for a cut that
+        was not found by a sweep (:func:`fade_cut`).
     """
 
     cut: np.ndarray
@@ -91,6 +95,7 @@ class ShadowCut:
     texture_shadow: float
     level_face: float
     level_shadow: float
+    direction: tuple[float, float] | None = None
 
 
 def roughness(level: np.ndarray, sigma_px: float = 1.5) -> np.ndarray:
@@ -119,6 +124,7 @@ def shadow_cut(
     paper_rgb: np.ndarray,
     reach_px: float,
     code_step: np.ndarray | None = None,
+    direction: np.ndarray | None = None,
 ) -> ShadowCut | None:
     """The cast shadow inside a found region: rough, paper-coloured, reached from its boundary.
 
@@ -138,6 +144,11 @@ def shadow_cut(
         encoded value and the next: the grain of 8-bit coding, which at a dark face's level
         is rough by itself. A pixel is taken as shadow-like only when its roughness is above
         that of one code step at the face's level.
+    direction : (2,) ndarray, optional
+        The sweep's direction (x, y px, as :attr:`ShadowCut.direction` gives it) when another
+        part of the same photo showed it: one light casts every shadow of a photo the same way.
+        The sweep is then sought along it only (its length, refinement and refusals as
+        without it); the dark face's own search is skipped.
 
     Returns
     -------
@@ -165,6 +176,10 @@ def shadow_cut(
     >>> [(int(r), int(c)) for r, c in zip(*np.nonzero(cut.cut[:, 22:23]))]
     [(20, 0), (21, 0), (78, 0), (79, 0)]
     """
+    if direction is not None:
+        return _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=False, direction=direction)[
+            0
+        ]
     cut, dark = _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=True)
     if cut is not None or not dark:
         return cut
@@ -179,6 +194,7 @@ def _shadow_cut(
     reach_px: float,
     code_step: np.ndarray | None,
     use_dark: bool,
+    direction: np.ndarray | None = None,
 ) -> tuple[ShadowCut | None, bool]:
     """:func:`shadow_cut`, with the dark face's sweep (:func:`_dark_sweep`) where ``use_dark`` and the face is dark; and whether it was."""
     mask8 = part_mask.astype(np.uint8)
@@ -205,6 +221,9 @@ def _shadow_cut(
     # and reached from the region's boundary through such pixels
     like = part_mask & (rough > max(2.0 * tex_face, floor)) & neutral & (sm < _MAX_DEPTH) & (inside <= reach_px)
     dark = use_dark and _is_dark(smooth, interior)
+    # along a given direction the layers are the outer ring's (holes filled): the strip a sweep
+    # adds along a hole's edge is face, not shadow beside the part
+    outer = _filled(part_mask) if direction is not None else part_mask
     alike = _dark_face_alike(smooth, interior) if dark else np.zeros(level.shape, bool)
     like = _reached(like, part_mask, inside)
     # on a dark tinted face, the pixels at the face's level and colour are no shadow, however rough
@@ -212,13 +231,24 @@ def _shadow_cut(
     sweep = _dark_sweep(part_mask, dark_like, level, rough, reach_px, alike, inside) if dark else None
     if sweep is None or sweep[1] > reach_px + 1.0:
         # no sweep by the dark face's votes: the general one (on the layers' shares and profile)
-        sweep = _sweep_depth(part_mask, like, level, rough, reach_px)
+        sweep = _sweep_depth(outer if direction is not None else part_mask, like, level, rough, reach_px, direction)
     if sweep is None:
         return None, dark
     unit, depth_px, face_like = sweep
     if depth_px > reach_px + 1.0:
         return None, dark  # longer than a shadow of the part can be: not its shadow
-    cut = _sweep_layer(mask8, depth_px * unit)
+    cut = _sweep_layer(outer.astype(np.uint8) if direction is not None else mask8, depth_px * unit) & part_mask
+    if direction is not None:
+        # a tinted face (steel in window light): its pixels are no shadow (the shadow keeps the paper's tint)
+        tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+        face_tint = float(np.median(tint[interior]))
+        if abs(face_tint) >= _DARK_CHROMA_STEP:
+            cut &= ~(np.abs(tint - face_tint) < np.abs(tint))
+        # the length was read from the layers up to _FACE_WINDOW_PX beyond it: they must lie on the
+        # face, not across a hole (a ring narrower than that reads the hole's paper as its face)
+        beyond = _sweep_layer(outer.astype(np.uint8), (depth_px + _FACE_WINDOW_PX) * unit) & ~cut
+        if np.count_nonzero(beyond & ~part_mask) > _FACE_WINDOW_HOLE_SHARE * np.count_nonzero(beyond):
+            return None, dark
     if np.count_nonzero(cut & face_like) > CUT_MAX_FACE_SHARE * np.count_nonzero(cut):
         return None, dark  # the sweep runs through the face: not a shadow beside it
     keep = part_mask & ~cut
@@ -251,6 +281,7 @@ def _shadow_cut(
         texture_shadow=tex_shadow,
         level_face=float(np.median(level[keep])),
         level_shadow=float(np.median(level[cut])),
+        direction=(float(unit[0]), float(unit[1])),
     )
     return found, dark
 
@@ -403,6 +434,81 @@ def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarra
     )
 
 
+#: Largest level of a shadow's core beyond the fade, as a share of the face's, for :func:`core_cut`.
+_CORE_LEVEL_RATIO = 0.9
+
+
+def core_cut(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    direction: np.ndarray,
+    code_step: np.ndarray | None = None,
+) -> ShadowCut | None:
+    """A soft shadow's fade and its core, swept along the photo's shadow direction, inside a metal part.
+
+    Where :func:`shadow_cut`'s own search is refused on a metal face as grainy as its shadow,
+    :func:`fade_cut` takes the shadow's inner end that is brighter than the face. Under a low,
+    wide light (a window) a thick part's shadow also has a core lit by the room alone, darker
+    than the face and as rough as the shadow, which the segmentation took as part and the fade
+    test cannot take. Given the sweep's direction from another part of the same photo (one
+    light casts every shadow of a photo the same way), the sweep along it (:func:`shadow_cut`
+    with ``direction``) is joined to the fade, but only where what it adds beyond the fade is
+    darker than the face (under :data:`_CORE_LEVEL_RATIO` of its level): a core, not the face's
+    own rough rim (steel's edge at the face's level, which such a sweep would also take).
+    None when no such core is found (the caller keeps the fade test's cut).
+
+    Examples
+    --------
+    A steel-tinted face 50 px wide; on its right a shadow's core 14 px wide darker than the face
+    and rough, found as part, then its fade (brighter, the paper's tint) out to the paper; the
+    sweep along +x takes the core. A rough rim at the face's own level is no core.
+
+    >>> rng = np.random.default_rng(3)
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (80, 120, 1))
+    >>> mask = np.zeros((80, 120), bool); mask[15:65, 15:79] = True
+    >>> img[15:65, 15:65] = 0.04 * paper * np.array([1.05, 1.0, 0.95])
+    >>> img[15:65, 65:79] = paper * (0.005 + 0.04 * rng.random((50, 14, 1)))
+    >>> img[15:65, 79:95] = paper * np.linspace(0.3, 0.9, 16)[None, :, None]
+    >>> cut = core_cut(img, mask, paper, 20.0, np.array([1.0, 0.0]))
+    >>> bool(cut.cut[20:60, 66:79].all()), bool((cut.cut & mask)[:, :63].any()), cut.direction
+    (True, False, (1.0, 0.0))
+    >>> img[15:65, 65:79] = 0.04 * paper * (0.8 + 0.4 * rng.random((50, 14, 1)))  # a rough rim at the face's level
+    >>> core_cut(img, mask, paper, 20.0, np.array([1.0, 0.0])) is None
+    True
+    """
+    along = _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=False, direction=direction)[0]
+    if along is None:
+        return None
+    fade = fade_cut(colour_lin, part_mask, paper_rgb, reach_px)
+    added = along.cut & part_mask & ~(fade.cut if fade is not None else np.zeros_like(part_mask))
+    keep = part_mask & ~along.cut
+    if np.count_nonzero(added) < STRETCH_PX or np.count_nonzero(keep) < 50:
+        return None
+    level = (colour_lin / np.asarray(paper_rgb)).mean(axis=2)
+    if float(np.median(level[added])) >= _CORE_LEVEL_RATIO * float(np.median(level[keep])):
+        return None  # at the face's level: the face's rough rim, not a shadow's core
+    if fade is None:
+        return along
+    cut = along.cut | fade.cut
+    keep = part_mask & ~cut
+    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
+    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
+    return replace(
+        along, cut=cut, cut_px=int(np.count_nonzero(cut & part_mask)), edge_px=float(np.count_nonzero(border))
+    )
+
+
+def _filled(part_mask: np.ndarray) -> np.ndarray:
+    """The region with its holes filled (the pixels its outer boundary encloses)."""
+    mask8 = part_mask.astype(np.uint8)
+    contours, _ = cv2.findContours(mask8, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
+    out = np.zeros_like(mask8)
+    cv2.drawContours(out, contours, -1, 1, thickness=cv2.FILLED)
+    return out.astype(bool) | part_mask
+
+
 def _with_rim(cut: np.ndarray, part_mask: np.ndarray) -> np.ndarray:
     """``cut`` with the pixels of the region it would leave as a rim or an island.
 
@@ -426,6 +532,10 @@ def _with_rim(cut: np.ndarray, part_mask: np.ndarray) -> np.ndarray:
     return cut
 
 
+#: How far (px) beyond a sweep's length :func:`_sweep_depth` reads the face's layers.
+_FACE_WINDOW_PX = 14
+#: Largest share of hole pixels in those layers for a sweep along a given direction.
+_FACE_WINDOW_HOLE_SHARE = 0.1
 #: Layers over which the profile must stay past half-way for the face to begin.
 _SUSTAIN = 3
 #: Smallest ratio of the face's level to the shadow's (or back) for the level step to place
@@ -433,8 +543,24 @@ _SUSTAIN = 3
 _LEVEL_STEP_RATIO = 1.3
 
 
+def _run(mask8: np.ndarray, direction: np.ndarray, like: np.ndarray, reach_px: float) -> float:
+    """The shadow-like layers a sweep along ``direction`` adds (each by its share) before one holds under a half."""
+    run = 0.0
+    for _, new in _new_layers(mask8, direction, int(1.5 * reach_px) + 4):
+        share = np.count_nonzero(new & like) / np.count_nonzero(new)
+        if share < 0.5:
+            break
+        run += share
+    return run
+
+
 def _sweep_depth(
-    part_mask: np.ndarray, like: np.ndarray, level: np.ndarray, rough: np.ndarray, reach_px: float
+    part_mask: np.ndarray,
+    like: np.ndarray,
+    level: np.ndarray,
+    rough: np.ndarray,
+    reach_px: float,
+    direction: np.ndarray | None = None,
 ) -> tuple[np.ndarray, float, np.ndarray] | None:
     """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, and a face map.
 
@@ -460,18 +586,18 @@ def _sweep_depth(
     # the direction whose sweep keeps adding mostly rough layers the longest (a rough rim on
     # the lit side, a wall's edge or a reflection, is thin; the shadow is deep)
     best_run, unit = 0.0, np.zeros(2)
-    for angle in np.radians(np.arange(0.0, 360.0, 11.25)):
-        direction = np.array([np.cos(angle), np.sin(angle)])
-        run = 0.0
-        for _, new in _new_layers(mask8, direction, int(1.5 * reach_px) + 4):
-            share = np.count_nonzero(new & like) / np.count_nonzero(new)
-            if share < 0.5:
-                break
-            run += share
+    if direction is None:
+        trials = [np.array([np.cos(a), np.sin(a)]) for a in np.radians(np.arange(0.0, 360.0, 11.25))]
+    else:  # the photo's shadow direction, as another part's cut found it (one light)
+        trials = [np.asarray(direction, float) / max(float(np.hypot(*direction)), 1e-12)]
+    for trial in trials:
+        run = _run(mask8, trial, like, reach_px)
         if run > best_run:
-            best_run, unit = run, direction
+            best_run, unit = run, trial
     if best_run < 2:
         return None
+    if direction is not None and _run(mask8, -unit, like, reach_px) >= best_run:
+        return None  # as rough on the side facing the light: the edge's grain, not a shadow on one side
     steps, levels, roughs, shares = [], [], [], []
     for k, new in _new_layers(mask8, unit, int(1.5 * reach_px) + 12):
         steps.append(k)
@@ -488,7 +614,7 @@ def _sweep_depth(
     if last < 2:
         return None
     in_shadow = slice(1, last) if last > 2 else slice(0, last)
-    face = (ks > ks[last - 1] + 6) & (ks <= ks[last - 1] + 14)
+    face = (ks > ks[last - 1] + 6) & (ks <= ks[last - 1] + _FACE_WINDOW_PX)
     if not face.any():
         return None
     lv_s, lv_f = float(np.median(lv[in_shadow])), float(np.median(lv[face]))

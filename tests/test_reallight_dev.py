@@ -1,0 +1,128 @@
+"""Development renders (``tests/data/reallight/dev-*``): the conditions of the held-out set's largest errors.
+
+``benchmarks/render_reallight.py``'s ``dev_scenes`` rendered brass in soft light at a tilt, thick
+steel and thin black parts in window light, thin steel under the spotlight at a tilt and thick
+black parts in mixed light, with other shapes, placements and tilts than the held-out scenes
+(whose images were not looked at). Truth: each render's truth file (the outlines Blender
+extruded); areas and centroids from shapely, not from the code under test. Renders the code
+cannot handle yet are strict xfails with their figures (``bench_reallight``), or are checked to be
+warned and covered.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import pytest
+from shapely.geometry import Polygon
+
+import scanmass
+from scanmass.errors import OptionError
+
+REALLIGHT = Path(__file__).resolve().parents[1] / "tests" / "data" / "reallight"
+
+pytestmark = [
+    pytest.mark.slow,
+    pytest.mark.skipif(
+        not (REALLIGHT / "dev-window-steel-t0.json").exists(), reason="dev renders not in this checkout"
+    ),
+]
+
+
+def _truth(name: str, shape: str) -> dict:
+    truth = json.loads((REALLIGHT / f"{name}.json").read_text())
+    p = next(q for q in truth["parts"] if q["shape"] == shape)
+    poly = Polygon(p["outline_mm"], p["holes_mm"])  # shapely: area and centroid of the truth outline
+    holes = []
+    for h in p["holes_mm"]:  # shapely: a round hole's diameter from its polygon's area (equal-area circle)
+        hp = Polygon(h)
+        holes.append(((hp.centroid.x, hp.centroid.y), 2 * math.sqrt(hp.area / math.pi)))
+    return {
+        "image": REALLIGHT / truth["image"],
+        "t": p["thickness_mm"],
+        "area": poly.area,
+        "centroid": (poly.centroid.x, poly.centroid.y),
+        "holes": holes,
+    }
+
+
+def _part(name: str, shape: str):
+    tp = _truth(name, shape)
+    m = scanmass.measure(tp["image"], thickness_mm=tp["t"])
+    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+    return m, part, tp
+
+
+def _covered(part, tp) -> bool:
+    return abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2 and all(
+        abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm)
+    )
+
+
+def test_shadow_core_of_a_bracket_cut_along_the_photos_shadow_direction():
+    """dev-window-steel-t0: a brushed-steel L bracket 6 mm thick in window light (the light 25
+    degrees up, so the shadow reaches 13 mm, its core as dark as the face and rough). Its own
+    sweep search ran along the shadow the upright arm throws beside the other arm and was
+    refused; only the shadow's fade was cut (+21.8 % in area, centroid 1.9 mm). The cam 8 mm
+    thick beside it shows the photo's shadow direction (one light); swept along it, the core
+    darker than the face is cut with the fade: -0.46 % (bench_reallight), centroid 0.51 mm."""
+    m, part, tp = _part("dev-window-steel-t0", "l-bracket")
+    warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
+    assert f" {part.label} (" in warning
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]  # was +21.8 % with the core left in
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 1.0  # was 1.89 mm
+    assert _covered(part, tp)
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 1.0
+        assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+
+
+def test_window_light_black_parts_at_a_tilt():
+    """dev-window-black-t20: black gasket 2 mm and disc 4 mm in window light at 20 degrees: both
+    shadows cut, areas within 1 % (bench_reallight: -0.64 / +0.93 %) and within 3 stated sigma."""
+    for shape in ("gasket", "disc"):
+        m, part, tp = _part("dev-window-black-t20", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"], shape
+        assert _covered(part, tp), shape
+
+
+@pytest.mark.xfail(
+    strict=True,
+    raises=OptionError,
+    reason="pale brass in soft light (25 degrees of tilt): the 5 mm cam mirrors the softbox and is brighter than "
+    "the paper (linear R G B 0.82 0.75 0.53 against 0.55 0.55 0.54), so it is not segmented; only its shaded wall "
+    "and its bore's shadow are found, and a fragment's hole mapped past its outline makes the section refuse the "
+    "whole photo ('holes[0] reaches outside the outer ring's bounding box'), with and without the thickness",
+)
+def test_pale_brass_mirroring_a_softbox_is_found():
+    m, part, tp = _part("dev-soft-brass-t25", "cam")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="brushed steel under the spot at 20 degrees: the 3 mm disc's brushed sectors that mirror the light "
+    "are as bright as the paper and are lost, the rest is found with its shadow and named 'shadow only' "
+    "(-11.8 % in area, centroid 3.3 mm; warned, 0.3 sigma)",
+)
+def test_bright_brushed_sectors_of_a_steel_disc_are_kept():
+    m, part, tp = _part("dev-spot-steel-t20", "disc")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+
+
+def test_mixed_light_shadow_left_in_is_warned_and_covered():
+    """dev-mixed-black-t15: black cam 6 mm and plate 3 mm under a warm lamp and a cool window. The
+    shadow each light throws is lit by the other one, so it has that light's tint, not the paper
+    white's, and is not cut: cam +14.3 %, plate +4.8 % in area (bench_reallight). Not resolved;
+    each part is named in the 'cast shadow' warning and its area and centroid lie within 3
+    stated sigma."""
+    for shape in ("cam", "plate"):
+        m, part, tp = _part("dev-mixed-black-t15", shape)
+        warning = next(w for w in m.warnings if w.startswith("cast shadow:"))
+        assert f" {part.label} (" in warning, shape
+        assert part.area_mm2 > tp["area"], shape  # the shadow left in
+        assert _covered(part, tp), shape
