@@ -10,7 +10,7 @@ from pathlib import Path
 
 import numpy as np
 
-from scanmass.segment.distance import exact_distance, near_distance
+from scanmass.segment.distance import exact_distance
 
 TESTS = Path(__file__).resolve().parent
 ROOT = TESTS.parent
@@ -118,44 +118,3 @@ def test_touching_lobes_gives_the_fresh_answer_in_a_batch_workers_state():
     for state, got in _run_states("states").items():
         differ = [k for k, (a, b) in enumerate(zip(fresh, got)) if a != b]
         assert not differ, f"{state}: silhouettes {differ[:10]} differ from the fresh process"
-
-
-def test_near_distance_is_opencvs_whole_mask_transform_where_within_the_limit():
-    """Bit for bit OpenCV's 5 x 5 chamfer transform of the whole mask (the reference library
-    itself, run on the whole array) wherever that is at most the limit, inf elsewhere: random
-    polygons, noise masks, masks without zeros or without foreground, every tile shape."""
-    import cv2
-
-    rng = np.random.default_rng(3)
-    for trial in range(160):
-        h, w = (int(v) for v in rng.integers(1, 300, 2))
-        mask = np.zeros((h, w), np.uint8)
-        for _ in range(int(rng.integers(0, 6))):
-            pts = rng.integers(-40, 340, (int(rng.integers(3, 9)), 2)).astype(np.int32)
-            cv2.fillPoly(mask, [pts], int(rng.integers(0, 2)))
-        if trial % 4 == 0:
-            mask = (rng.random((h, w)) < rng.random()).astype(np.uint8)
-        if trial % 23 == 0:
-            mask[:] = trial % 2
-        limit = float(rng.uniform(0.5, 40.0))
-        tile = (int(rng.choice([4, 16, 64])), int(rng.choice([8, 32])))
-        for invert in (False, True):
-            whole = cv2.distanceTransform((1 - mask) if invert else mask, cv2.DIST_L2, 5)
-            want = np.where(whole <= np.float32(limit), whole, np.float32(np.inf))
-            got = near_distance(mask, limit, invert=invert, tile=tile)
-            assert got.dtype == np.float32 and got.tobytes() == want.tobytes(), (trial, limit, tile, invert)
-
-
-def test_a_window_short_of_the_limit_changes_opencvs_values():
-    """Why near_distance pads each window by the limit: a strip of rows read with only 2 px
-    of context changes some of OpenCV's values within the limit (another path, another
-    float32 sum; some by one unit in the last place), so the bit-for-bit test above can fail."""
-    import cv2
-
-    mask = np.ones((200, 200), np.uint8)
-    cv2.fillPoly(mask, [np.array([[20, 30], [180, 50], [120, 170], [40, 140]], np.int32)], 0)
-    cv2.circle(mask, (100, 100), 25, 1, -1)
-    whole = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
-    strip = cv2.distanceTransform(mask[62:134], cv2.DIST_L2, 5)[2:-2]
-    within = whole[64:132] <= 20
-    assert np.any((strip != whole[64:132]) & within)

@@ -58,7 +58,6 @@ from scanmass.load.decode import LoadedImage, lookup
 from scanmass.numeric import nonzero_every, nonzero_rc
 from scanmass.segment.closedfeat import is_sliver
 from scanmass.segment.dipgate import dips_possible
-from scanmass.segment.distance import near_distance
 from scanmass.segment.rings import PartRings, correct_curvature
 from scanmass.segment.wallends import (
     RAMP_PX,
@@ -232,16 +231,14 @@ def closed_slots(
         cv2.fillPoly(mask, [np.round(h - shift).astype(np.int32) for h in holes], 0)
     tail = 3.0 * max(sigma, 1.0) + 2.0
     away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
-    # the distance maps are thresholded at once and dropped (full-size float32: the peak); no
-    # threshold is above tail + 12, so the transform runs only within that reach of the rings
-    reach = tail + 12.0
-    inside = near_distance(mask, reach)
+    # the distance maps are thresholded at once and dropped (full-size float32: the peak)
+    inside = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
     thick = inside >= tail + 1
     regions = {"inside": inside >= away}
     del inside
     if np.count_nonzero(thick) < 60:
         return none, []
-    outside = near_distance(mask, reach, invert=True)
+    outside = cv2.distanceTransform(1 - mask, cv2.DIST_L2, 5)
     far_bg = (outside >= tail + 2) & (outside <= tail + 12)
     regions["outside"] = outside >= away
     attach = outside <= away + 2.0
@@ -296,7 +293,7 @@ def closed_slots(
     if pieces:
         filled = mask.copy()
         cv2.fillPoly(filled, pieces, 1)
-        regions["inside"] = near_distance(filled, reach) >= away
+        regions["inside"] = cv2.distanceTransform(filled, cv2.DIST_L2, 5) >= away
     # inside: dips below the part level (slots); outside, next to the part: ridges above the
     # background (walls that vanished), attached to the part
     found: list[tuple[float, np.ndarray]] = []
