@@ -515,8 +515,7 @@ def scenes():
             "Standard",
         ),
         # steel whose lit face has the paper's colour and level (branch steel10): a plate and a gasket in
-        # mixed light from the other side, a thick disc in window light; white nylon under the spot (its
-        # shadows only: the refusal must stay)
+        # mixed light from the other side, a thick disc in window light
         (
             "mixed-steel-t10",
             "mixed",
@@ -530,15 +529,6 @@ def scenes():
             "window-steel-disc8-t0",
             "window",
             [("disc", "brushed-steel", 8.0, 110, 150, 0)],
-            310,
-            0,
-            0,
-            "Standard",
-        ),
-        (
-            "spot-nylon-t0",
-            "spot",
-            [("cam", "white-nylon", 4.0, 85, 100, 10), ("disc", "white-nylon", 3.0, 130, 200, 0)],
             310,
             0,
             0,

@@ -153,7 +153,7 @@ def too_wide_for_shadow(part_mask: np.ndarray, thickness_mm: float, mm_per_px: f
     (True, False)
     """
     reach_mm = thickness_mm / np.tan(np.radians(SHADOW_ONLY_MIN_ELEVATION_DEG))
-    return inscribed_width_px(part_mask) * mm_per_px > reach_mm
+    return bool(inscribed_width_px(part_mask) * mm_per_px > reach_mm)
 
 
 def shadow_band_px(thickness_mm: float, mm_per_px: float) -> float:
