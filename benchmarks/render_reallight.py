@@ -534,6 +534,16 @@ def scenes():
             0,
             "Standard",
         ),
+        # white nylon under the hard spot: its shadows do not fade, and its lit faces are brighter than the paper
+        (
+            "spot-nylon-t0",
+            "spot",
+            [("cam", "white-nylon", 4.0, 85, 100, 10), ("disc", "white-nylon", 3.0, 130, 200, 0)],
+            310,
+            0,
+            0,
+            "Standard",
+        ),
     ]
     return photo
 

@@ -162,6 +162,10 @@ KNOWN_FAILING = {
     "mixed-steel-t10.json": "brushed-steel plate in mixed warm and cool light at 10 degrees: its lit half has the "
     "paper's colour and level and is not found; the darker half is reported, 12 mm off in centroid (covered by the "
     "cast-shadow term, warned), so the benchmark counts the plate missed and the half extra",
+    "spot-nylon-t0.json": "white nylon cam and disc under the hard spot: four small regions (12-97 mm2, brighter "
+    "than the paper: lit faces or walls, and hole bottoms) are reported as parts, -98 % in area and up to 458 sigma "
+    "off, with no warning naming white on white (the shadows do not fade, so nothing is named 'shadow only'): a "
+    "confident wrong figure, found on branch steel10 and not fixed there",
 }
 #: The exception a known failure raises instead of a result, where it raises one.
 KNOWN_RAISES = {"window-nylon-t0.json": SegmentationError}
