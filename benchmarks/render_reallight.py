@@ -520,6 +520,36 @@ def scenes():
             200,
             "Standard",
         ),
+        # steel whose lit face has the paper's colour and level (branch steel10): a plate and a gasket in
+        # mixed light from the other side, a thick disc in window light
+        (
+            "mixed-steel-t10",
+            "mixed",
+            [("plate", "brushed-steel", 3.0, 90, 95, -20), ("gasket", "brushed-steel", 2.0, 125, 200, 0)],
+            320,
+            10,
+            270,
+            "Standard",
+        ),
+        (
+            "window-steel-disc8-t0",
+            "window",
+            [("disc", "brushed-steel", 8.0, 110, 150, 0)],
+            310,
+            0,
+            0,
+            "Standard",
+        ),
+        # white nylon under the hard spot: its shadows do not fade, and its lit faces are brighter than the paper
+        (
+            "spot-nylon-t0",
+            "spot",
+            [("cam", "white-nylon", 4.0, 85, 100, 10), ("disc", "white-nylon", 3.0, 130, 200, 0)],
+            310,
+            0,
+            0,
+            "Standard",
+        ),
     ]
     return photo
 

@@ -161,16 +161,16 @@ KNOWN_FAILING = {
     "bottom are found instead, each named in the 'shadow only' warning",
     "dev-soft-brass-t25.json": "pale brass mirroring the softbox is brighter than the paper and not segmented; a "
     "fragment's hole mapped past its outline makes the section refuse the photo (tests/test_reallight_dev.py)",
-    "mixed-steel-t20.json": "brushed-steel cam and disc in mixed warm and cool light at 20 degrees: both faces are "
-    "grey with the paper's tint and fade like a shadow, so the photo is refused as 'only region(s) that look like "
-    "cast shadows', naming a grey metal part as well as a light part on light paper",
+    "mixed-steel-t10.json": "brushed-steel plate in mixed warm and cool light at 10 degrees: its lit half has the "
+    "paper's colour and level and is not found; the darker half is reported, 12 mm off in centroid (covered by the "
+    "cast-shadow term, warned), so the benchmark counts the plate missed and the half extra",
+    "spot-nylon-t0.json": "white nylon cam and disc under the hard spot: four small regions (12-97 mm2, brighter "
+    "than the paper: lit faces or walls, and hole bottoms) are reported as parts, -98 % in area and up to 458 sigma "
+    "off, with no warning naming white on white (the shadows do not fade, so nothing is named 'shadow only'): a "
+    "confident wrong figure, found on branch steel10 and not fixed there",
 }
 #: The exception a known failure raises instead of a result, where it raises one.
-KNOWN_RAISES = {
-    "window-nylon-t0.json": SegmentationError,
-    "mixed-steel-t20.json": SegmentationError,
-    "dev-soft-brass-t25.json": OptionError,
-}
+KNOWN_RAISES = {"window-nylon-t0.json": SegmentationError, "dev-soft-brass-t25.json": OptionError}
 
 
 @pytest.mark.slow
@@ -405,14 +405,28 @@ def test_white_parts_on_white_paper_are_refused_with_the_fix():
         scanmass.measure(REALLIGHT / "window-nylon-t0.jpg", thickness_mm=3.0)
 
 
-def test_grey_metal_taken_for_shadows_is_refused_naming_both_causes():
-    """Brushed steel in mixed light (mixed-steel-t20): its faces have the paper's tint and fade like a
-    shadow, so the photo is refused; the message names a grey metal part as well as a light part on
-    light paper (the cause is not told by colour), with a fix for each."""
+def test_grey_metal_face_too_wide_for_a_shadow_is_measured():
+    """Brushed steel in mixed light (mixed-steel-t20, path-traced truth): its faces have the paper's
+    tint and fade like a shadow, but each is wider than the cast shadow of a part that thick can be
+    (4 mm / tan 15 degrees = 14.9 mm; they are 19-22 mm across): both parts are found, each area and
+    centroid within 3 stated sigma of the render's exact outline (shapely), and warned. Without the
+    thickness an 8 mm white part's shadow could be as wide: the photo is still refused, naming both causes."""
     if not (REALLIGHT / "mixed-steel-t20.jpg").exists():
         pytest.skip("tests/data/reallight not in this checkout")
+    _, parts = _render_truth("mixed-steel-t20.json")
+    for thickness in (3.0, 4.0):
+        m = scanmass.measure(REALLIGHT / "mixed-steel-t20.jpg", thickness_mm=thickness)
+        assert len(m.parts) == 2
+        assert not any(w.startswith("shadow only") for w in m.warnings)
+        for tp in parts:
+            part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+            assert math.dist(part.centroid_mm, tp["centroid"]) < 2.0, tp["shape"]
+            assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2, tp["shape"]
+            for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
+                assert abs(c - t) <= 3 * u, tp["shape"]
+            assert any(f" {part.label} (" in w for w in m.warnings if w.startswith("cast shadow"))
     with pytest.raises(SegmentationError, match="light part on light paper.*grey metal part.*diffuse light.*backlight"):
-        scanmass.measure(REALLIGHT / "mixed-steel-t20.jpg", thickness_mm=4.0)
+        scanmass.measure(REALLIGHT / "mixed-steel-t20.jpg")
 
 
 def test_matte_parts_on_a_clean_photo_get_no_unclear_edge_or_hidden_hole_term():

@@ -41,7 +41,11 @@ _LENS_WINDOW_STEEL = (
     "an honest refusal naming this scene's cause among the two, but neither part is found"
 )
 KNOWN_FAILING: dict[tuple[str, bool], str] = {
-    ("hold-lens-window-steel-t20.json", True): _LENS_WINDOW_STEEL,
+    ("hold-lens-window-steel-t20.json", True): "brushed steel (gasket 4 mm, cam 2 mm) in window light at 20 degrees "
+    "through the distorting lens, with the thickness: the faces are wider than a 2 mm part's shadow can be, so with "
+    "2 mm both parts are reported (cam +11.7 % at 0.4 sigma, gasket +45.9 % at 0.8 sigma, warned 'cast shadow'); "
+    "with 4 mm the gasket's face (1040 mm2, not wider than a 4 mm part's shadow at 15 degrees) is still named "
+    "'shadow only' and not reported, so the gasket is missed",
     ("hold-lens-window-steel-t20.json", False): _LENS_WINDOW_STEEL,
     ("hold-window-thick-t0.json", True): "8 mm brushed-steel disc in window light at 0 degrees (Filmic): the tone "
     "curve the markers show (0.08 px into the ink) moves the dark parts' rings out, the cast-shadow cut then leaves "

@@ -12,7 +12,7 @@ import math
 import numpy as np
 from scipy.special import erfc
 
-from scanmass.segment.shadow import dark_pits, edge_profile_risk
+from scanmass.segment.shadow import dark_pits, edge_profile_risk, inscribed_width_px, too_wide_for_shadow
 
 H, W = 80, 120
 EDGE_X = 60.3  # the part is x < EDGE_X (px, pixel centres at integers)
@@ -83,3 +83,26 @@ def test_dark_region_reaching_the_outline_is_no_pit():
     img[mask] = 0.03
     img[20:50, 20:45] = 0.008  # a cast shadow the outline took in: it reaches the outline
     assert dark_pits(img, mask, min_area_px=30) == []
+
+
+def test_inscribed_width_of_a_ring_and_a_strip():
+    """The widest disc inside a strip is its width; inside a ring of radii 30 and 18 px, the ring's width
+    30 - 18 = 12 px (elementary geometry); the exact distance transform is good to half a pixel."""
+    yy, xx = np.mgrid[0:100, 0:100]
+    r = np.hypot(xx - 49.5, yy - 49.5)
+    ring = (r <= 30.0) & (r > 18.0)
+    assert abs(inscribed_width_px(ring) - 12.0) <= 1.0
+    strip = np.zeros((60, 200), bool)
+    strip[20:31, 10:190] = True  # 11 px wide
+    assert abs(inscribed_width_px(strip) - 11.0) <= 1.0
+
+
+def test_region_wider_than_a_shadow_can_be_is_no_shadow_alone():
+    """A cast shadow reaches thickness / tan(elevation) from its caster: 4 mm at 15 degrees of elevation
+    is 4 / tan(15 deg) = 14.93 mm (trigonometry). A 20 mm wide region (66.7 px at 0.3 mm/px) is wider, so
+    it is no shadow alone of a 4 mm part; a 12 mm one is not; an 8 mm part's shadow (29.9 mm) covers both."""
+    for width_mm, thickness_mm, wider in [(20.0, 4.0, True), (12.0, 4.0, False), (20.0, 8.0, False)]:
+        n = round(width_mm / 0.3)
+        m = np.zeros((n + 20, 400), bool)
+        m[10 : 10 + n, 10:390] = True
+        assert too_wide_for_shadow(m, thickness_mm, 0.3) is wider, (width_mm, thickness_mm)

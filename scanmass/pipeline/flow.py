@@ -781,7 +781,7 @@ def _measure_photo(
     else:
         cut_scale = scale
     _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure)
-    shadow_only = _shadows_only(image, scale, result, colour)
+    shadow_only = _shadows_only(image, scale, result, colour, thickness_mm)
     warnings = list(scale.warnings) + shadow_only + cut + deep
     if tone is not None and tone.applies:
         warnings.insert(

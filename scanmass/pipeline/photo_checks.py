@@ -44,6 +44,7 @@ from scanmass.segment.shadow import (
     looks_like_shadow_only,
     shadow_band_px,
     shadow_risk,
+    too_wide_for_shadow,
     unclear_edges,
 )
 from scanmass.segment.sidewall import LostWall, lost_wall_band
@@ -204,14 +205,25 @@ def _part_crop(
     return (x0, y0, x1, y1), mask.astype(bool), rings
 
 
-def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray | None) -> list[str]:
+def _shadows_only(
+    image: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    colour: np.ndarray | None,
+    thickness_mm: float | None = None,
+) -> list[str]:
     """Refuse a photo whose only found regions look like cast shadows; warn of such regions otherwise.
 
     A white part on white paper is not told from the paper; what is found instead is its
     shadow and the dark bottoms of its holes: regions of the paper's colour, darkened, that
     fade towards their soft outer edge (:func:`~scanmass.segment.shadow.looks_like_shadow_only`).
     When some found parts are real, such a region is kept (a real part may look like that
-    too) and named in a warning.
+    too) and named in a warning. With the thickness given, a region wider than the shadow of
+    a part that thick can be (:func:`~scanmass.segment.shadow.too_wide_for_shadow`) is a part's
+    face, not a shadow alone: a grey steel face whose colour is the paper's, darkened, with
+    dark streaks. Without it the bound is that of
+    :data:`SHADOW_CUT_UNKNOWN_THICKNESS_MM` (an 8 mm white part's shadow can be as wide as a
+    steel face).
 
     Raises
     ------
@@ -222,6 +234,8 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
         return []
     lut = np.asarray(image.to_linear, dtype=np.float32)
     band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, scale.plane_map.mm_per_px)
+    mm_per_px = scale.plane_map.mm_per_px
+    reach_t = SHADOW_CUT_UNKNOWN_THICKNESS_MM if not thickness_mm else thickness_mm
     shadows: list[str] = []
     for part in result.parts:
         crop = _part_crop(image, scale, part, int(band_px) + 16)
@@ -229,7 +243,7 @@ def _shadows_only(image: LoadedImage, scale: PhotoScale, result: Measurement, co
             continue
         (x0, y0, x1, y1), mask, _ = crop
         risk = shadow_risk(lut[colour[y0:y1, x0:x1]], mask, band_px)
-        if risk is not None and looks_like_shadow_only(risk):
+        if risk is not None and looks_like_shadow_only(risk) and not too_wide_for_shadow(mask, reach_t, mm_per_px):
             shadows.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
     if not shadows:
         return []

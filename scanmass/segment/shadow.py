@@ -115,6 +115,47 @@ def looks_like_shadow_only(risk: ShadowRisk) -> bool:
     )
 
 
+#: Lowest elevation (degrees) of a light whose cast shadow a region alone may be: a shadow reaches
+#: ``thickness / tan(elevation)`` from its caster's edge, so a shadow alone is no wider than that. Lower
+#: than any light of the renders (the window's shadows of white parts 3-5 mm thick on the committed
+#: tests/data/reallight/window-nylon-t0 are 4.0-9.4 mm wide, elevation about 28 degrees).
+SHADOW_ONLY_MIN_ELEVATION_DEG = 15.0
+
+
+def inscribed_width_px(part_mask: np.ndarray) -> float:
+    """Diameter (px) of the widest disc inside a region (holes cleared): twice its largest distance to the edge.
+
+    Examples
+    --------
+    >>> m = np.zeros((40, 60), bool); m[10:30, 5:55] = True
+    >>> round(inscribed_width_px(m))
+    20
+    """
+    mask8 = np.pad(part_mask.astype(np.uint8), 1)
+    return 2.0 * float(cv2.distanceTransform(mask8, cv2.DIST_L2, cv2.DIST_MASK_PRECISE).max())
+
+
+def too_wide_for_shadow(part_mask: np.ndarray, thickness_mm: float, mm_per_px: float) -> bool:
+    """True when a region is wider than a cast shadow alone of a part ``thickness_mm`` thick can be.
+
+    A cast shadow lies between its caster's edge and the shadow's outer edge, at most
+    ``thickness_mm / tan(e)`` away for a light at elevation ``e``: a region the shadow of a part
+    left unfound (a white part on white paper) is a strip no wider than that
+    (:data:`SHADOW_ONLY_MIN_ELEVATION_DEG`). A region whose inscribed disc is wider holds
+    something that is not shadow: a part's face (a grey metal face of the paper's colour, darker
+    in the light it reflects, on the committed render tests/data/reallight/mixed-steel-t20: 19-22
+    mm wide for 3-4 mm steel).
+
+    Examples
+    --------
+    >>> m = np.zeros((80, 80), bool); m[10:70, 10:70] = True  # 60 px = 18 mm at 0.3 mm/px
+    >>> too_wide_for_shadow(m, 4.0, 0.3), too_wide_for_shadow(m, 8.0, 0.3)
+    (True, False)
+    """
+    reach_mm = thickness_mm / np.tan(np.radians(SHADOW_ONLY_MIN_ELEVATION_DEG))
+    return bool(inscribed_width_px(part_mask) * mm_per_px > reach_mm)
+
+
 def shadow_band_px(thickness_mm: float, mm_per_px: float) -> float:
     """Width in px of the band a cast shadow of a part ``thickness_mm`` thick can cover."""
     return (thickness_mm / np.tan(np.radians(SHADOW_MIN_ELEVATION_DEG)) + 0.5) / mm_per_px
