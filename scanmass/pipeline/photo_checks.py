@@ -22,6 +22,7 @@ from scanmass.pipeline.part_terms import (
     _with_shadow_term,
     area_share_term,
     change_term,
+    escaping_holes,
 )
 from scanmass.raster import coverage
 from scanmass.scale.camera import PhotoScale
@@ -117,6 +118,7 @@ def _unknown_thickness(
     h0, k = scale.plane_map.matrix, scale.camera_matrix
     worst_rel = 0.0
     worst_cen_mm = 0.0
+    pieces: list[str] = []
     for n, part in enumerate(result.parts):
         if part.outline_mm is None:
             continue
@@ -124,15 +126,30 @@ def _unknown_thickness(
         flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
         raised_outer = raised_outline_mm(h0, k, plausible, flat_outer)
         raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True) for h in flat_holes]
-        term = change_term(flat_outer, flat_holes, raised_outer, raised_holes, share=0.5)
+        # a hole raised past its raised outline (a small fragment's) is left out of the raised rings:
+        # the term then holds its whole area, which covers any parallax of it
+        past = set(escaping_holes(raised_outer, raised_holes))
+        kept = [h for i, h in enumerate(raised_holes) if i not in past]
+        term = change_term(flat_outer, flat_holes, raised_outer, kept, share=0.5)
         result.parts[n] = _with_extra_term(part, "thickness_unknown", term, raised_holes)
+        if past:
+            pieces.append(str(part.label))
+            continue  # its term is no parallax figure: not the warning's worst case
         worst_rel = max(worst_rel, term["area_mm2"] / max(part.area_mm2, 1e-12))
         worst_cen_mm = max(worst_cen_mm, math.hypot(term["centroid_x_mm"], term["centroid_y_mm"]))
     return [
         f"parallax (thickness not given): a part {plausible:g} mm thick would measure {200 * worst_rel:.2g} % smaller in area "
         f"and up to {2 * worst_cen_mm:.2g} mm off in centroid (parallax); the uncertainty includes half of it "
         "(term 'thickness_unknown'); give the thickness with --thickness MM, or --thickness 0 for a sheet-thin part"
-    ]
+    ] + (
+        [
+            f"part(s) {', '.join(pieces)}: raised {plausible:g} mm, a hole would reach past the part's own outline "
+            "(a small piece, perhaps of a part not found whole); the uncertainty includes the hole's whole area "
+            "(term 'thickness_unknown'); give the thickness with --thickness MM"
+        ]
+        if pieces
+        else []
+    )
 
 
 def _photo_colour(image: LoadedImage) -> np.ndarray | None:
