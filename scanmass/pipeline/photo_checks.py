@@ -1325,8 +1325,9 @@ def _cut_cast_shadows(
                 if again.parts
             ]
     except (SegmentationError, ScaleError, OptionError):
-        # nothing measurable with the cuts painted (or rings the section refuses: a thin strip
-        # left beside a cut can put a hole's mapped ring past the outer one): keep the first measurement
+        # nothing measurable with the cuts painted (a region whose hole maps past its outline, as a
+        # thin strip left beside a cut can give, is left out by measure_image; if that leaves no
+        # part it raises SegmentationError): keep the first measurement
         return result, [], set()
     again, slivers = _open_slivers(masked, replace(scale, plane_map=plane_map), grey, again, cuts, band_px, remeasure)
     slivers = closed_notes + slivers
