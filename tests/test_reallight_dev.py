@@ -19,7 +19,7 @@ import pytest
 from shapely.geometry import Polygon
 
 import scanmass
-from scanmass.errors import OptionError
+from scanmass.errors import OptionError, SegmentationError
 
 REALLIGHT = Path(__file__).resolve().parents[1] / "tests" / "data" / "reallight"
 
@@ -92,15 +92,28 @@ def test_window_light_black_parts_at_a_tilt():
 
 @pytest.mark.xfail(
     strict=True,
-    raises=OptionError,
+    raises=SegmentationError,
     reason="pale brass in soft light (25 degrees of tilt): the 5 mm cam mirrors the softbox and is brighter than "
     "the paper (linear R G B 0.82 0.75 0.53 against 0.55 0.55 0.54), so it is not segmented; only its shaded wall "
-    "and its bore's shadow are found, and a fragment's hole mapped past its outline makes the section refuse the "
-    "whole photo ('holes[0] reaches outside the outer ring's bounding box'), with and without the thickness",
+    "and its bore's shadow are found (7 and 76 mm2 at 5 mm, -99 %), one with a hole past its own outline, so the "
+    "photo is refused as 'a part was found only in pieces' (it was an OptionError blaming the options)",
 )
 def test_pale_brass_mirroring_a_softbox_is_found():
     m, part, tp = _part("dev-soft-brass-t25", "cam")
     assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+
+
+def test_piece_with_a_hole_past_its_outline_refuses_the_photo_with_its_cause():
+    """dev-soft-brass-t25: a piece of the unfound pale cam whose hole maps past its own outline used
+    to make the section refuse the whole photo with an OptionError blaming the options; the cam's
+    other pieces would be reported as parts at -99 % (a confident wrong figure), so the photo is
+    refused, now with the cause and the fix, with and without the thickness."""
+    truth = json.loads((REALLIGHT / "dev-soft-brass-t25.json").read_text())
+    for thickness in (5.0, None):
+        with pytest.raises(SegmentationError, match="found only in pieces") as err:
+            scanmass.measure(REALLIGHT / truth["image"], thickness_mm=thickness)
+        assert not isinstance(err.value, OptionError)
+        assert "diffuse light" in str(err.value)
 
 
 @pytest.mark.xfail(

@@ -19,10 +19,10 @@ import numpy as np
 from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
 from scanmass.geometry import ring_perimeter, vertex_normals
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
-from scanmass.mapping import MappedPart, map_cut, map_part
+from scanmass.mapping import MappedPart, map_cut, map_part, shoelace_area
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
-from scanmass.pipeline.part_terms import fragment_warnings, measure_part, with_fragment_term
+from scanmass.pipeline.part_terms import escaping_holes, fragment_warnings, measure_part, with_fragment_term
 from scanmass.pipeline.photo_checks import (
     _cast_shadows,
     _check_within_support,
@@ -330,6 +330,22 @@ def measure_scan(image: LoadedImage, options: MeasureOptions) -> Measurement:
     return result
 
 
+def _holes_escape(mapped: MappedPart) -> bool:
+    """Whether a hole of the mapped part, on the plane map or any sampled map, reaches past its outer ring."""
+    sets = [(mapped.outer_mm, mapped.holes_mm), *mapped.sample_rings_mm]
+    return any(escaping_holes(outer, list(holes)) for outer, holes in sets)
+
+
+def _left_out_note(mapped: MappedPart) -> str:
+    """Which region was left out for a hole past its outline: its size and place (mm)."""
+    outer = np.asarray(mapped.outer_mm, float)
+    centre = outer.mean(axis=0)
+    return (
+        f"a region of {abs(shoelace_area(outer)):.3g} mm2 near ({centre[0]:.1f}, {centre[1]:.1f}) mm whose hole, "
+        "mapped onto the mat, reaches outside its outline"
+    )
+
+
 def measure_image(
     image: LoadedImage,
     options: MeasureOptions,
@@ -418,8 +434,12 @@ def measure_image(
         limits = [
             (quant, replace(walls, rings=_tone_shifted(image, walls.rings, tone, painted))) for quant, walls in limits
         ]
+    left_out: list[str] = []
     for quant, walls in limits:
         mapped = map_part(walls.rings, plane_map)
+        if _holes_escape(mapped):
+            left_out.append(_left_out_note(mapped))
+            continue
         wall_u = _as_mapped_order(walls.rings, walls.wall_u_px, mapped, plane_map)
         resid = None
         if quant is not None and len(quant.residual_px) == len(walls.wall_u_px):
@@ -462,6 +482,17 @@ def measure_image(
             )
         parts.append(part)
         warnings += walls.warnings
+    if left_out:
+        # a region whose hole lies past its own outline is a piece of a part not found whole; the
+        # other pieces of that part are reported as parts of their own (dev-soft-brass-t25: the
+        # pale cam's wall and shadow, -99 %), so nothing of the photo is trusted: refuse it
+        raise SegmentationError(
+            "a part was found only in pieces: a region has a hole that lies outside its own outline on the mat ("
+            + "; ".join(left_out)
+            + "), as the wall and shadow of a part brighter than the paper do; photograph the parts in diffuse "
+            "light on a darker background",
+            path=image.path,
+        )
     tone_note = None
     if parts:
         warnings += _tone_terms(image, as_found, parts, plane_map.mm_per_px, tone_known)
