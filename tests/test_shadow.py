@@ -106,3 +106,26 @@ def test_region_wider_than_a_shadow_can_be_is_no_shadow_alone():
         m = np.zeros((n + 20, 400), bool)
         m[10 : 10 + n, 10:390] = True
         assert too_wide_for_shadow(m, thickness_mm, 0.3) is wider, (width_mm, thickness_mm)
+
+
+def test_lit_white_face_is_told_from_a_clipped_mirror_a_coloured_face_and_a_shadow():
+    """A diffuse white face lit more than the paper keeps the paper's colour (channel ratios equal, linear
+    light: common practice for one light colour) and lies below the sensor's ceiling; a metal face
+    mirroring the light is clipped, brass is another colour, a shadow is darker than the paper."""
+    from scanmass.segment.shadow import looks_like_lit_white
+
+    rng = np.random.default_rng(4)
+    paper = np.array([0.62, 0.66, 0.68])
+    img = np.tile(paper, (60, 60, 1)) * rng.normal(1.0, 0.01, (60, 60, 1))
+    mask = np.zeros((60, 60), bool)
+    mask[15:45, 15:45] = True
+    cases = {
+        "lit white": (np.linspace(1.05, 1.4, 30)[None, :, None] * paper, True),
+        "clipped mirror": (np.ones(3), False),
+        "brass": (np.array([0.80, 0.60, 0.25]), False),
+        "shadow": (0.3 * paper, False),
+    }
+    for name, (value, expected) in cases.items():
+        face = img.copy()
+        face[15:45, 15:45] = np.broadcast_to(value, (30, 30, 3))
+        assert looks_like_lit_white(face, mask, paper) is expected, name

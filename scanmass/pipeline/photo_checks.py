@@ -42,6 +42,7 @@ from scanmass.segment.shadow import (
     SHADOW_FRACTION,
     SHADOW_MIN_ELEVATION_DEG,
     dark_pits,
+    looks_like_lit_white,
     looks_like_shadow_only,
     shadow_band_px,
     shadow_risk,
@@ -237,10 +238,15 @@ def _shadows_only(
     :data:`SHADOW_CUT_UNKNOWN_THICKNESS_MM` (an 8 mm white part's shadow can be as wide as a
     steel face).
 
+    Under a hard light a white part's shadow does not fade and what is found instead is its
+    faces lit more than the paper: regions of the paper's colour, brighter, below the sensor's
+    ceiling (:func:`~scanmass.segment.shadow.looks_like_lit_white`); they are named 'white on
+    white' in the same way.
+
     Raises
     ------
     SegmentationError
-        When every found part looks like that, naming the fix (a dark backing sheet or a backlight).
+        When every found part looks like either, naming the fix (a dark backing sheet or a backlight).
     """
     if colour is None or not result.parts:
         return []
@@ -249,16 +255,39 @@ def _shadows_only(
     mm_per_px = scale.plane_map.mm_per_px
     reach_t = SHADOW_CUT_UNKNOWN_THICKNESS_MM if not thickness_mm else thickness_mm
     shadows: list[str] = []
+    lit: list[str] = []
     for part in result.parts:
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
             continue
         (x0, y0, x1, y1), mask, _ = crop
-        risk = shadow_risk(lut[colour[y0:y1, x0:x1]], mask, band_px)
-        if risk is not None and looks_like_shadow_only(risk) and not too_wide_for_shadow(mask, reach_t, mm_per_px):
+        crop_lin = lut[colour[y0:y1, x0:x1]]
+        risk = shadow_risk(crop_lin, mask, band_px)
+        if risk is None:
+            continue
+        if looks_like_shadow_only(risk) and not too_wide_for_shadow(mask, reach_t, mm_per_px):
             shadows.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
+        elif looks_like_lit_white(crop_lin, mask, risk.paper_rgb):
+            lit.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
+    if lit and len(shadows) + len(lit) == len(result.parts):
+        raise SegmentationError(
+            f"no part found, only {len(lit)} region(s) of the paper's colour but brighter (the lit faces of a "
+            f"white part on white paper{f', with {len(shadows)} cast shadow(s)' if shadows else ''}); its faces at "
+            "the paper's level and so its outline are not seen: lay light parts on a dark backing sheet or light "
+            "them from below (a backlight)",
+            path=image.path,
+        )
+    warn = (
+        [
+            f"white on white: {', '.join(lit)} have the paper's colour but are brighter (lit faces of a white part "
+            "on white paper, whose outline is not seen): do not use their figures; lay light parts on a dark "
+            "backing sheet or use a backlight"
+        ]
+        if lit
+        else []
+    )
     if not shadows:
-        return []
+        return warn
     if len(shadows) == len(result.parts):
         raise SegmentationError(
             f"no part found, only {len(shadows)} region(s) that look like cast shadows (the paper's colour, "
@@ -268,7 +297,7 @@ def _shadows_only(
             "backlight)",
             path=image.path,
         )
-    return [
+    return warn + [
         f"shadow only: {', '.join(shadows)} look(s) like a cast shadow alone (the paper's "
         "colour, darkened, fading outwards), perhaps of a light part that was not found, or a grey metal part whose "
         "lit face has the paper's colour: do not use their figures; lay light parts on a dark backing sheet, "

@@ -45,6 +45,7 @@ __all__ = [
     "UnclearEdges",
     "unclear_edges",
     "looks_like_shadow_only",
+    "looks_like_lit_white",
     "dark_pits",
     "darkened_paper",
 ]
@@ -112,6 +113,63 @@ def looks_like_shadow_only(risk: ShadowRisk) -> bool:
         risk.fraction >= SHADOW_ONLY_FRACTION
         and risk.interior_depth >= SHADOW_ONLY_MIN_DEPTH
         and risk.interior_depth_p10 <= SHADOW_ONLY_MAX_P10_RATIO * risk.interior_depth
+    )
+
+
+#: Least share of a region's pixels with the paper white's colour, the least median level (region /
+#: paper white, channel mean) and the largest share of pixels at the sensor's ceiling of a region taken
+#: as a white face lit more than the paper (:func:`looks_like_lit_white`). On the committed render
+#: tests/data/reallight/spot-nylon-t0 (white nylon under the hard spot) the four found regions have
+#: 1.00, 1.02-1.76 and 0.00-0.60; steel mirroring the softbox (soft-steel-t0, lens-soft-steel-t15) is
+#: as neutral and bright but 0.89-0.98 clipped; every other found region there has a median below 0.4.
+LIT_WHITE_NEUTRAL_FRACTION = 0.9
+LIT_WHITE_MIN_LEVEL = 0.95
+LIT_WHITE_MAX_CLIPPED = 0.75
+#: Linear level (all channels) taken as the sensor's ceiling: 8-bit 250 and above decoded as sRGB.
+_CLIP_LEVEL = 0.955
+
+
+def looks_like_lit_white(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray) -> bool:
+    """True when a found region has the paper's colour, is not darker than the paper and is not clipped.
+
+    A diffuse white part on white paper differs from the paper only where its faces take more
+    light than the paper (a top face or wall turned to the light, a brighter white): what is found
+    is those faces, in the paper's colour and brighter, while its faces at the paper's level (and
+    so its outline) are lost. Its brightness follows the faces' angles to the light, so it lies
+    mostly below the sensor's ceiling; a metal face mirroring a broad light is as neutral and as
+    bright but clipped throughout, and its outline is a full step against the paper.
+
+    Parameters
+    ----------
+    colour_lin : (H, W, 3) float ndarray
+        A crop of the photo in linear light (1.0 = the sensor's ceiling).
+    part_mask : (H, W) bool ndarray
+        The found region (holes cleared) in the crop.
+    paper_rgb : (3,) ndarray
+        The local paper white, linear (:attr:`ShadowRisk.paper_rgb`).
+
+    Examples
+    --------
+    >>> paper = np.array([0.70, 0.72, 0.74])
+    >>> img = np.tile(paper, (20, 20, 1)); mask = np.zeros((20, 20), bool); mask[5:15, 5:15] = True
+    >>> img[mask] = 1.2 * paper  # a lit white face
+    >>> looks_like_lit_white(img, mask, paper)
+    True
+    >>> img[mask] = 1.0  # clipped throughout: a mirror of the light
+    >>> looks_like_lit_white(img, mask, paper)
+    False
+    """
+    pixels = colour_lin[part_mask]
+    if pixels.shape[0] < 20:
+        return False
+    q = pixels / np.asarray(paper_rgb, pixels.dtype)
+    m = q.mean(axis=-1)
+    neutral = np.all(np.abs(q - m[:, None]) <= _CHROMA_TOL * m[:, None] + 0.01, axis=-1)
+    clipped = np.all(pixels >= _CLIP_LEVEL, axis=-1)
+    return bool(
+        neutral.mean() >= LIT_WHITE_NEUTRAL_FRACTION
+        and np.median(m) >= LIT_WHITE_MIN_LEVEL
+        and clipped.mean() <= LIT_WHITE_MAX_CLIPPED
     )
 
 
