@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from _reallight_truth import truth_render
 from shapely.geometry import Point, Polygon
 
 import scanmass
@@ -124,32 +125,10 @@ RENDERS = sorted(p.name for p in REALLIGHT.glob("*.json")) if REALLIGHT.exists()
 
 
 def _render_truth(name):
-    truth = json.loads((REALLIGHT / name).read_text())
-    parts = []
-    for p in truth["parts"]:
-        outer, holes = p["outline_mm"], p["holes_mm"]
-        if truth["kind"] == "scan":  # paper mm -> scan frame (render_reallight.py: ortho camera centred on centre_mm)
-            cam = truth["camera"]
-            s = cam["ortho_scale_mm"] / max(cam["size_px"])
-            dx = 0.5 * cam["size_px"][0] * s - cam["centre_mm"][0]
-            dy = 0.5 * cam["size_px"][1] * s - cam["centre_mm"][1]
-            outer = [(x + dx, y + dy) for x, y in outer]
-            holes = [[(x + dx, y + dy) for x, y in h] for h in holes]
-        area, centroid = _truth(outer, holes)
-        hole_truth = []
-        for h in holes:  # shapely: a round hole's diameter from its polygon's area (equal-area circle)
-            hp = Polygon(h)
-            hole_truth.append(((hp.centroid.x, hp.centroid.y), 2 * math.sqrt(hp.area / math.pi)))
-        parts.append(
-            {
-                "area": area,
-                "centroid": centroid,
-                "holes": hole_truth,
-                "thickness_mm": p["thickness_mm"],
-                "shape": p["shape"],
-            }
-        )
-    return truth, parts
+    """A render's truth file and its parts' shapely truth (``_reallight_truth.truth_render``), each
+    part's thickness also under ``thickness_mm``."""
+    truth, parts = truth_render(REALLIGHT, name)
+    return truth, [dict(p, thickness_mm=p["t"]) for p in parts]
 
 
 #: Renders where the measurement still fails the issue's requirements (each one warned, never silent):
