@@ -457,7 +457,7 @@ def _prepare_section(outer: np.ndarray, holes: Sequence[np.ndarray]) -> tuple[np
         flat, oriented = _flat_and_oriented(r, ccw=False)
         if flat:
             raise OptionError(f"{name} has zero area (all vertices collinear); drop it or pass the hole's outline")
-        if np.any(r.min(axis=0) < lo - slack) or np.any(r.max(axis=0) > hi + slack):
+        if _past_box(r, lo, hi, slack):
             raise OptionError(
                 f"{name} reaches outside the outer ring's bounding box; holes must lie inside the outline"
             )
@@ -485,6 +485,29 @@ def _section_moments(
     for local_ref, m in _ring_moments(rings) if local is None else local:
         total += _shift_moments(m, float(local_ref[0] - ref[0]), float(local_ref[1] - ref[1]))
     return total
+
+
+def _past_box(ring: np.ndarray, lo: np.ndarray, hi: np.ndarray, slack: float) -> bool:
+    """Whether a hole ring reaches outside the outer ring's bounding box ``lo``-``hi`` (with ``slack``)."""
+    return bool(np.any(ring.min(axis=0) < lo - slack) or np.any(ring.max(axis=0) > hi + slack))
+
+
+def escaping_holes(outer_mm: np.ndarray, holes_mm: Sequence[np.ndarray]) -> list[int]:
+    """Indices of the hole rings that reach outside the outer ring's bounding box (mm).
+
+    The rule by which :func:`section_properties` refuses a hole (the same slack), so a hole
+    listed here cannot be measured with that outer ring: in a photo a hole found on a small
+    fragment and mapped through a raised or re-measured plane map can land past its own
+    outline, and the pipeline refuses the photo with that cause instead of letting the
+    section refuse it as if the options were wrong.
+    """
+    outer = np.asarray(outer_mm, dtype=float).reshape(-1, 2)
+    if len(outer) == 0:
+        return []
+    lo, hi = outer.min(axis=0), outer.max(axis=0)
+    slack = 1e-9 * float(np.max(hi - lo))
+    rings = (np.asarray(hole, dtype=float).reshape(-1, 2) for hole in holes_mm)
+    return [k for k, r in enumerate(rings) if len(r) and _past_box(r, lo, hi, slack)]
 
 
 def section_properties(

@@ -17,7 +17,7 @@ from polygon_truth import truth
 import scanmass.pipeline.flow as flow
 from scanmass import measure
 from scanmass.errors import OptionError, SegmentationError
-from scanmass.pipeline.part_terms import escaping_holes
+from scanmass.section import escaping_holes
 from scanmass.testing.scans import SynthPart, circle, rectangle, render_scan
 
 PLATE = SynthPart(rectangle(10.0, 10.0, 30.0, 20.0), [circle(25.0, 20.0, 4.0)])

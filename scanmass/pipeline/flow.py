@@ -22,7 +22,7 @@ from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part, shoelace_area
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
-from scanmass.pipeline.part_terms import escaping_holes, fragment_warnings, measure_part, with_fragment_term
+from scanmass.pipeline.part_terms import fragment_warnings, measure_part, with_fragment_term
 from scanmass.pipeline.photo_checks import (
     _cast_shadows,
     _check_within_support,
@@ -54,6 +54,7 @@ from scanmass.scale.markertone import MarkerTone, marker_tone
 from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
+from scanmass.section import escaping_holes
 from scanmass.segment.closedfeat import measure_closed
 from scanmass.segment.fragments import Fragment, find_fragments
 from scanmass.segment.lidgap import lid_gap

@@ -8,7 +8,6 @@ two outlines, or a given term) to a part's totals.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
 from dataclasses import fields, replace
 from typing import Any
 
@@ -76,28 +75,6 @@ U_FIELDS = {
     "polar_u_mm4": "polar_mm4",
     "principal_angle_u_deg": "principal_angle_deg",
 }
-
-
-def escaping_holes(outer_mm: np.ndarray, holes_mm: Sequence[np.ndarray]) -> list[int]:
-    """Indices of the hole rings that reach outside the outer ring's bounding box (mm).
-
-    The rule :func:`~scanmass.section.section_properties` refuses a hole by (the same
-    slack), so a hole listed here cannot be measured with that outer ring: in a photo a
-    hole found on a small fragment and mapped through a raised or re-measured plane map
-    can land past its own outline, and the caller leaves the hole or the part out instead
-    of letting the section refuse the whole image as if the options were wrong.
-    """
-    outer = np.asarray(outer_mm, dtype=float).reshape(-1, 2)
-    if len(outer) == 0:
-        return []
-    lo, hi = outer.min(axis=0), outer.max(axis=0)
-    slack = 1e-9 * float(np.max(hi - lo))
-    out = []
-    for k, hole in enumerate(holes_mm):
-        r = np.asarray(hole, dtype=float).reshape(-1, 2)
-        if len(r) and (np.any(r.min(axis=0) < lo - slack) or np.any(r.max(axis=0) > hi + slack)):
-            out.append(k)
-    return out
 
 
 def change_term(

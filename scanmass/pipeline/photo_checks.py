@@ -22,13 +22,12 @@ from scanmass.pipeline.part_terms import (
     _with_shadow_term,
     area_share_term,
     change_term,
-    escaping_holes,
 )
 from scanmass.raster import coverage
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.scale.planemap import PlaneMap
-from scanmass.section import fit_circle
+from scanmass.section import escaping_holes, fit_circle
 from scanmass.segment.castshadow import (
     core_cut,
     dark_tinted_face,
