@@ -97,7 +97,7 @@ def test_synthetic_cast_shadow_is_cut_at_the_parts_true_outline(tmp_path):
         # (a one-layer blip stopped it 2 px in: +19.5 %). A crescent of the shadow is left
         # (+9.9 %, 1.1 mm): it used to be offset by the wall facing the camera, cut with the
         # shadow but mapped as the bottom edge (-0.7 % then); that side now sits on the truth.
-        # Its 8 mm bore, a dark pit, is now opened (photo_checks._open_deep_holes): +6.5 %, and
+        # Its 8 mm bore, a dark pit, is now opened (photo_holes._open_deep_holes): +6.5 %, and
         # the centroid, no longer pulled towards the bore's side, 1.34 mm (was 1.12)
         ("spot-black-t20", "disc", 0.12, 1.4, None),
         # a steel cam 6 mm thick: the shadow in the lee of its wall is as smooth as the face
@@ -290,7 +290,7 @@ def test_one_sided_shadow_moves_a_hole_centre_within_its_term(open_mm):
     bound of the diameter term (twice the open depth), that shift is 2 sigma of the centre's term."""
     from shapely.affinity import translate
 
-    from scanmass.pipeline.photo_checks import _one_sided_mm
+    from scanmass.pipeline.photo_shadows import _one_sided_mm
 
     hole = Polygon(circle(0.0, 0.0, 6.0, 1024))
     sweep = 2.0 * open_mm
@@ -309,7 +309,7 @@ def test_strip_of_a_cut_closed_off_by_shadow_is_no_hole(name, shape):
     first outline closed off was measured as a hole: a 1.75 mm one in the steel bracket under
     window light, a 10 mm2 one (its circle fit 100 mm across) in the brass cam under the spotlight.
     A through-hole opens in the part's material; these reach beyond the first outline, so they are
-    painted as paper with the shadow around them (photo_checks._painted_holes). Each part now holds
+    painted as paper with the shadow around them (photo_cut_strips._painted_holes). Each part now holds
     exactly its true holes, each found within 1 mm of its centre, and its area lies within 3 stated
     sigma (truth: the render's outlines, shapely)."""
     tp = truth_part(name, shape)

@@ -11,7 +11,7 @@ import math
 import cv2
 import numpy as np
 
-from scanmass.pipeline.photo_checks import _paint_ring
+from scanmass.pipeline.photo_holes import _paint_ring
 from scanmass.segment.deephole import opening_edge, pit_edge
 from scanmass.testing.photos import polygon_coverage
 

@@ -156,7 +156,7 @@ def test_rendered_brass_disc_gets_its_lit_wall_back():
     """Brass disc 6 mm thick, 30 degrees of tilt: its lit wall was taken for paper (-10.3 % in
     area, 1.9 mm off in centroid); restored, it measured -0.4 % and 0.57 mm, with its bore read
     1.1 mm small (only the lit paper seen through it). The bore is now measured at its whole
-    opening (-0.09 mm, photo_checks._open_deep_holes), and the outline's own shortfall showed:
+    opening (-0.09 mm, photo_holes._open_deep_holes), and the outline's own shortfall showed:
     -1.5 % and 0.61 mm (bench_reallight). The stretch of wall on the highlight's side, which
     brightens towards the paper and was left out as a possible penumbra, is now taken by its
     colour (the face's hue, sidewall._face_coloured): -0.14 % and 0.45 mm. The render's Filmic

@@ -24,19 +24,17 @@ from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
 from scanmass.pipeline.part_terms import fragment_warnings, measure_part, with_fragment_term
 from scanmass.pipeline.photo_checks import (
-    _cast_shadows,
     _check_within_support,
-    _cut_cast_shadows,
     _hidden_holes,
     _mask_outside,
-    _open_deep_holes,
     _photo_colour,
-    _shadows_only,
     _unclear_edges,
     _unknown_thickness,
-    wall_sides,
-    with_top_seen,
 )
+from scanmass.pipeline.photo_holes import _open_deep_holes
+from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
+from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
+from scanmass.pipeline.photo_walls import wall_sides, with_top_seen
 from scanmass.pipeline.scan_checks import (
     _apply_splits,
     _face_warnings,

@@ -1,0 +1,359 @@
+"""Deep through-holes of a thick part that show dark at their top face: their openings traced and fitted with
+circles on the top face's plane (near side, trimmed fit), painted as paper with exact coverage, and the photo
+measured again (term ``deep_hole``); the constants that bound them.
+Part of the pipeline stage (:mod:`scanmass.pipeline`).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import replace
+
+import cv2
+import numpy as np
+
+from scanmass.errors import OptionError, ScaleError, SegmentationError
+from scanmass.geometry import signed_area
+from scanmass.load.decode import LoadedImage
+from scanmass.measurement import Measurement, Part
+from scanmass.pipeline.part_terms import _with_extra_term, area_share_term
+from scanmass.pipeline.photo_checks import HIDDEN_HOLE_MIN_AREA_MM2, _part_crop
+from scanmass.pipeline.photo_walls import with_top_seen
+from scanmass.raster import coverage
+from scanmass.scale.camera import PhotoScale
+from scanmass.scale.homography import ElevationHook, apply_h
+from scanmass.scale.planemap import PlaneMap
+from scanmass.section import fit_circle
+from scanmass.segment.deephole import PitEdge, opening_edge, pit_edge
+from scanmass.segment.shadow import dark_pits
+from scanmass.uncertainty import combine
+
+#: Smallest share of a dark pit's rays that must meet the face (not a lit floor) for its opening to be traced.
+DEEP_HOLE_MIN_SHARE = 0.3
+#: Largest rms (px) of the traced opening about its circle on the top face's plane.
+DEEP_HOLE_RMS_PX = 1.0
+#: The stated doubt (1 sigma, px) of where a deep hole's traced opening runs, at least; a wider
+#: edge (half the distance between its 30 % and 70 % crossings) counts instead. On the committed
+#: renders (tests/data/reallight, thickness given; steel bracket and cam, black plastic bracket
+#: and disc, brass plate and disc: 8 holes opened) the measured diameters lay -1.55 to -0.20 px
+#: (-0.63 to -0.07 mm) off and the centres 0.23-1.29 px: the opening's rim catches light, or its
+#: shade ends a little inside the top face's edge (on the far side, where the wall facing the
+#: camera shows; since that side may only widen the fit, :func:`_top_circle`, the spot-lit black
+#: holes read -0.06 to -0.04 mm). Taken at 1 px on the radius (2 px on the diameter, 1 px on each
+#: coordinate of the centre).
+DEEP_HOLE_EDGE_PX = 1.0
+#: A found hole of a thick part is replaced by its traced opening where the opening is wider by more
+#: than this (px): the found ring then ran on the paper seen through the hole, not on its top edge.
+#: A narrower opening only replaces a found ring less round than :data:`DEEP_HOLE_UNROUND_PX` (the
+#: largest distance from its circle) with a fit within :data:`DEEP_HOLE_CLEAN_RMS_PX`: where the
+#: far wall looks like the face (black plastic), the trace stops at the wall's foot, which the found
+#: ring (0.7-3.7 px out of round on the renders) already reads as the bottom edge; a lit brass wall
+#: taken in with the paper makes the found ring 7-17 px out of round (tests/data/reallight; a found
+#: ring whose stretches switch between the top and the bottom edge is 7-8 px out of round too, and
+#: its opening then reads within 0.2 mm of it).
+DEEP_HOLE_REPLACE_PX = 2.0
+#: See :data:`DEEP_HOLE_REPLACE_PX` (px).
+DEEP_HOLE_UNROUND_PX = 5.0
+#: See :data:`DEEP_HOLE_REPLACE_PX` (px, rms of the opening's circle fit).
+DEEP_HOLE_CLEAN_RMS_PX = 0.5
+#: A found ring this far out of round (px, the largest distance from its circle) is replaced by a
+#: clean opening's fit (:data:`DEEP_HOLE_CLEAN_RMS_PX`) that is wider by any amount: the ring lost
+#: part of the opening to the shade (tests/data/reallight spot-black-t20: rings 3.3-4.8 px out of
+#: round read 0.36-0.41 mm small, their openings within 0.06 mm). Round rings (soft light, black
+#: plastic and steel: 0.6-1.8 px) keep the :data:`DEEP_HOLE_REPLACE_PX` rule.
+DEEP_HOLE_UNROUND_WIDER_PX = 3.0
+
+
+def _near_side(ideal_px: np.ndarray, hook: ElevationHook, centre_top_mm: np.ndarray) -> np.ndarray:
+    """Per point of a hole's traced opening (ideal px): True on the rim's side towards the camera's nadir.
+
+    There the top face's edge hides the hole's wall below it, and the line of sight over the rim
+    falls on the hole's floor: the opening's border is the top edge, against the floor. On the far
+    side the wall facing the camera shows between the rim and the floor.
+    """
+    centre_px = apply_h(hook.gh, np.asarray(centre_top_mm, float).reshape(1, 2))[0]
+    parallax = ideal_px - apply_h(hook.to_footprint, ideal_px)  # away from the nadir
+    return np.asarray(np.sum((ideal_px - centre_px) * parallax, axis=1) < 0)
+
+
+def _top_circle(
+    edge: PitEdge, origin: tuple[int, int], hook: ElevationHook, mm_per_px: float, outline: np.ndarray
+) -> tuple[np.ndarray, float, float, float] | None:
+    """A traced opening on the top face's plane fitted with a trimmed circle: (centre mm, diameter mm, rms px, doubt px).
+
+    The trace is trusted on the rim's side towards the camera's nadir (:func:`_near_side`: the
+    top edge against the floor). On the far side the wall facing the camera shows inside the top
+    edge's circle, and where it looks like the face the trace stops short of the rim: there,
+    points further inside the circle than the near side's scatter are left out (outside it they
+    are kept), so a far wall in shade cannot pull the circle in.
+
+    None when the fit fails, is not round (:data:`DEEP_HOLE_RMS_PX`) or the circle does not lie
+    inside the part's ``outline`` (mm) with a margin.
+    """
+    if edge.share < DEEP_HOLE_MIN_SHARE or len(edge.points_px) < 12:
+        return None
+    photo = edge.points_px + np.asarray(origin, float)
+    ideal = hook.undistort(photo) if hook.undistort is not None else photo
+    top = apply_h(hook.hh, ideal)  # on the top face's plane: a drilled hole is a circle there
+    keep = np.ones(len(top), bool)
+    try:
+        fit = fit_circle(top)
+        for _ in range(3):  # a trimmed fit: a stretch of lit wall or rim is not the opening's edge
+            off = np.abs(np.hypot(top[:, 0] - fit.centre_mm[0], top[:, 1] - fit.centre_mm[1]) - 0.5 * fit.diameter_mm)
+            keep = off <= max(2.5 * 1.4826 * float(np.median(off)), 0.3 * mm_per_px)
+            fit = fit_circle(top[keep])
+        # On the far side the wall facing the camera lies inside the top edge's circle; where it looks
+        # like the face (dark plastic in shade) the trace stops short, inside the rim, never outside it.
+        # Far points more than the near side's own scatter inside the circle are left out.
+        near = _near_side(ideal, hook, np.asarray(fit.centre_mm, float))
+        for _ in range(3):
+            res = np.hypot(top[:, 0] - fit.centre_mm[0], top[:, 1] - fit.centre_mm[1]) - 0.5 * fit.diameter_mm
+            on_near = near & keep
+            scatter = 1.4826 * float(np.median(np.abs(res[on_near]))) if np.count_nonzero(on_near) >= 6 else math.inf
+            if not math.isfinite(scatter):
+                break  # too little of the near side traced to judge the far side by
+            tol = max(2.5 * scatter, 0.3 * mm_per_px)
+            keep = (np.abs(res) <= tol) & (near | (res >= -max(scatter, 0.1 * mm_per_px)))
+            fit = fit_circle(top[keep])
+    except OptionError:
+        return None
+    if fit.rms_mm > DEEP_HOLE_RMS_PX * mm_per_px:
+        return None
+    turn = np.linspace(0, 2 * math.pi, 32, endpoint=False)
+    circle = np.asarray(fit.centre_mm) + 0.5 * fit.diameter_mm * np.column_stack([np.cos(turn), np.sin(turn)])
+    if min(cv2.pointPolygonTest(outline, (float(a), float(b)), True) for a, b in circle) < 2 * mm_per_px:
+        return None  # not inside the part's outline with a margin: no hole of this part
+    doubt_px = max(DEEP_HOLE_EDGE_PX, 0.5 * float(np.median(edge.spread_px[keep])))
+    return np.asarray(fit.centre_mm, float), float(fit.diameter_mm), fit.rms_mm / mm_per_px, doubt_px
+
+
+def _deep_hole_circles(
+    image: LoadedImage, scale: PhotoScale, part: Part, hook: ElevationHook, lut: np.ndarray
+) -> list[tuple[np.ndarray, float, float, np.ndarray | None]]:
+    """The through-holes at a part's top face that its dark pits open, or that its found holes only partly show.
+
+    Each as (centre mm, diameter mm, edge doubt px, the found hole's ring as seen (photo px) or None).
+    A found hole is replaced where its whole opening (:func:`~scanmass.segment.deephole.opening_edge`)
+    fits a circle within :data:`DEEP_HOLE_RMS_PX` wider than the found one by more than
+    :data:`DEEP_HOLE_REPLACE_PX`, or narrower than a found ring that is no circle.
+    """
+    mm_per_px = scale.plane_map.mm_per_px
+    crop = _part_crop(image, scale, part, 4)
+    seen = _part_crop(image, scale, part, 4, as_seen=True)
+    if crop is None or seen is None or part.outline_mm is None:
+        return []
+    (x0, y0, x1, y1), mask, _ = crop
+    lin = lut[image.grey[y0:y1, x0:x1]]
+    outline = np.asarray(part.outline_mm, np.float32)
+    out: list[tuple[np.ndarray, float, float, np.ndarray | None]] = []
+    # also looked for on the image with its specks taken out (a path tracer's fireflies, a sensor's
+    # noise in the shade break a deep hole's dark bottom into pieces too small to be a pit), where
+    # the image as it is shows none
+    min_px = HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2
+    pits = dark_pits(lin, mask, min_px)
+    calm = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), 1.0)
+    pits += [
+        p for p in dark_pits(calm, mask, min_px) if all(math.dist(p[:2], q[:2]) > 0.5 * (p[2] + q[2]) for q in pits)
+    ]
+    for x, y, d in pits:
+        edge = pit_edge(lin, mask, (x, y), d)
+        fit = None if edge is None else _top_circle(edge, (x0, y0), hook, mm_per_px, outline)
+        if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
+            out.append((fit[0], fit[1], fit[3], None))
+    (sx0, sy0, sx1, sy1), seen_mask, rings = seen
+    seen_lin = lut[image.grey[sy0:sy1, sx0:sx1]]
+    for hole, ring in zip(part.holes, rings[1:]):
+        seed8 = np.zeros(seen_mask.shape, np.uint8)
+        cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)
+        seed = seed8.astype(bool)
+        r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
+        thick_px = hook.height_mm / mm_per_px
+        edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
+        fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
+        if fit is None:
+            continue
+        clean = fit[2] <= DEEP_HOLE_CLEAN_RMS_PX
+        wider = fit[1] - hole.diameter_mm > DEEP_HOLE_REPLACE_PX * mm_per_px or (
+            fit[1] > hole.diameter_mm and hole.roundness_mm > DEEP_HOLE_UNROUND_WIDER_PX * mm_per_px and clean
+        )
+        # a narrower opening only in place of a found ring that is no circle (a lit wall taken in with
+        # the paper) and from a clean fit: where a far wall looks like the face (black plastic), the
+        # trace stops at its foot, which a round found ring already reads as the bottom edge
+        narrower = fit[1] < hole.diameter_mm and hole.roundness_mm > DEEP_HOLE_UNROUND_PX * mm_per_px and clean
+        if not (wider or narrower):
+            continue
+        if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * hole.diameter_mm:
+            continue  # another opening than this hole's
+        out.append((fit[0], fit[1], fit[3], ring + np.array([sx0, sy0], float)))
+    return out
+
+
+def _paint_ring(grey: np.ndarray, lut: np.ndarray, ring_px: np.ndarray, level: np.ndarray) -> np.ndarray:
+    """Paint the inside of a ring (photo px, pixel centres at integers) in ``level`` (a code), in place.
+
+    Each pixel takes the level in proportion to the share of it the ring covers (exact coverage,
+    :func:`scanmass.raster.coverage`), mixed in linear light, so the painted edge sits where the
+    ring runs (filling whole pixels would move it out by about half a pixel). Returns the pixels
+    touched.
+    """
+    x0, y0 = np.maximum(np.floor(ring_px.min(axis=0)).astype(int) - 2, 0)
+    x1 = min(int(np.ceil(ring_px[:, 0].max())) + 3, grey.shape[1])
+    y1 = min(int(np.ceil(ring_px[:, 1].max())) + 3, grey.shape[0])
+    touched = np.zeros(grey.shape[:2], bool)
+    if x1 <= x0 or y1 <= y0:
+        return touched
+    # the raster's frame: pixel (r, c) spans x in [c, c + 1], y up from the window's bottom
+    ring = np.column_stack([ring_px[:, 0] - x0 + 0.5, (y1 - y0) - (ring_px[:, 1] - y0 + 0.5)])
+    cover = coverage([ring if signed_area(ring) > 0 else ring[::-1]], shape=(y1 - y0, x1 - x0), mm_per_px=1.0)
+    old = lut[grey[y0:y1, x0:x1]]
+    mixed = cover * float(lut[level]) + (1.0 - cover) * old
+    codes = np.clip(np.searchsorted(lut, mixed), 0, len(lut) - 1)
+    lower = np.maximum(codes - 1, 0)
+    codes = np.where(np.abs(lut[lower] - mixed) < np.abs(lut[codes] - mixed), lower, codes)
+    window = grey[y0:y1, x0:x1]
+    window[cover > 0] = codes[cover > 0].astype(grey.dtype)
+    touched[y0:y1, x0:x1] = cover > 0
+    return touched
+
+
+def _open_deep_holes(
+    image: LoadedImage,
+    masked: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    thickness_mm: float | None,
+    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+) -> tuple[LoadedImage, PhotoScale, Measurement, list[str]]:
+    """Open the deep through-holes that show dark at their top face, and measure again.
+
+    A hole through a thick part shows, inside its opening, its far wall and what of the paper
+    below its near wall leaves in view, both shaded: darker than the part's face, so the
+    segmentation takes it for material (:func:`~scanmass.pipeline.photo_checks._hidden_holes`
+    would flag it as a dark pit).
+    With the thickness given, the plane of the top face is known (the camera's pose from the
+    mat), and there the opening's edge is the hole's edge at the top face all round. Each dark
+    pit's border against the face is traced (:func:`~scanmass.segment.deephole.pit_edge`;
+    stretches where the pit meets a lit floor or wall are left out), mapped onto the top face's
+    plane and fitted with a circle (trimmed). Where the fit is round (rms within
+    :data:`DEEP_HOLE_RMS_PX`) and the circle lies inside the part, the opening is painted in the
+    paper's level on ``masked`` and its surroundings are mapped as seen on the top face's edge
+    (:meth:`~scanmass.scale.homography.ElevationHook.with_top_seen`), and the image is measured
+    again with ``remeasure``. Each opened hole's diameter gets the term ``deep_hole``: twice the
+    edge doubt (:data:`DEEP_HOLE_EDGE_PX` or the edge's own width) on its diameter, once on its
+    centre, and the part the area the ring sweeps at that doubt (centroid and moments to match).
+
+    Returns the image and scale to go on with (painted, and the plane map with the openings
+    seen on top), the measurement and a warning. Without a thickness (no top face's plane) or
+    when nothing is opened, everything is returned as it was.
+    """
+    hook = scale.plane_map.undistort
+    if not thickness_mm or not isinstance(hook, ElevationHook) or not result.parts:
+        return masked, scale, result, []
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    mm_per_px = scale.plane_map.mm_per_px
+    found = {part.label: _deep_hole_circles(image, scale, part, hook, lut) for part in result.parts}
+    found = {label: holes for label, holes in found.items() if holes}
+    if not found:
+        return masked, scale, result, []
+    grey = masked.grey.copy()
+    top_seen = np.zeros(grey.shape[:2], bool) if hook.top_seen is None else hook.top_seen.copy()
+    turn = np.linspace(0, 2 * math.pi, 180, endpoint=False)
+    for part in result.parts:
+        if part.label not in found or part.outline_mm is None:
+            continue
+        ring_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
+        x0, y0 = np.maximum(np.floor(ring_px.min(axis=0)).astype(int) - 20, 0)
+        x1, y1 = np.ceil(ring_px.max(axis=0)).astype(int) + 20
+        own = np.zeros(grey.shape[:2], np.uint8)
+        cv2.fillPoly(own, [np.round(ring_px).astype(np.int32)], 1)
+        near = cv2.dilate(own, np.ones((17, 17), np.uint8)).astype(bool) & ~cv2.dilate(
+            own, np.ones((9, 9), np.uint8)
+        ).astype(bool)
+        paper = grey[near[: grey.shape[0], : grey.shape[1]]]
+        if paper.size < 20 or x1 <= x0 or y1 <= y0:
+            found.pop(part.label)
+            continue
+        level = np.asarray(np.median(paper), dtype=grey.dtype)
+        face = grey[own.astype(bool) & ~near[: grey.shape[0], : grey.shape[1]]]
+        for *_, old_ring in found[part.label]:
+            if old_ring is not None and face.size >= 20:  # the found hole's ring is replaced: it becomes face first
+                gone = np.zeros(grey.shape[:2], np.uint8)
+                cv2.fillPoly(gone, [np.round(old_ring).astype(np.int32)], 1)
+                grey[cv2.dilate(gone, np.ones((3, 3), np.uint8)).astype(bool)] = np.median(face).astype(grey.dtype)
+        for centre, diameter, *_ in found[part.label]:
+            circle = centre + 0.5 * diameter * np.column_stack([np.cos(turn), np.sin(turn)])
+            px = hook.photo_px(apply_h(hook.gh, circle))
+            disc = _paint_ring(grey, lut, px, level)
+            top_seen |= cv2.dilate(disc.astype(np.uint8), np.ones((11, 11), np.uint8)).astype(bool)
+    if not found:
+        return masked, scale, result, []
+    seen_scale = replace(scale, plane_map=with_top_seen(scale.plane_map, top_seen))
+    painted = replace(masked, grey=grey)
+    try:
+        again = remeasure(painted, seen_scale.plane_map)
+    except (SegmentationError, ScaleError, OptionError):
+        return masked, scale, result, []
+    parts: list[Part] = []
+    said: list[str] = []
+    notes: dict[str, list[dict[str, float]]] = {}
+    for old in result.parts:
+        if old.label not in found or old.outline_mm is None:
+            parts.append(old)  # a part without an opened hole keeps its first measurement
+            continue
+        # found again: the nearest of the regions at least half its size (the rest are pieces the
+        # first measurement left out); the opened holes move its centroid by a small share of its size
+        alike = [q for q in again.parts if q.area_mm2 >= 0.5 * old.area_mm2]
+        new = min(alike, key=lambda q: math.dist(q.centroid_mm, old.centroid_mm), default=None)
+        if new is None or math.dist(new.centroid_mm, old.centroid_mm) > 0.1 * old.caliper_max_mm:
+            return masked, scale, result, []  # the part was not found again: keep the measurement as it was
+        opened = found[old.label]
+        holes = list(new.holes)
+        area_mm2 = 0.0
+        texts = []
+        for centre, diameter, doubt_px, _ in opened:
+            k = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, centre), default=None)
+            if k is None or math.dist(holes[k].circle_centre_mm, centre) > 0.25 * diameter:
+                return masked, scale, result, []  # the painted opening was not found as a hole: keep it as it was
+            u_mm = doubt_px * mm_per_px
+            h = holes[k]
+            holes[k] = replace(
+                h,
+                diameter_u_mm=combine(h.diameter_u_mm, 2 * u_mm),
+                area_u_mm2=combine(h.area_u_mm2, math.pi * diameter * u_mm),
+                centroid_u_mm=(combine(h.centroid_u_mm[0], u_mm), combine(h.centroid_u_mm[1], u_mm)),
+                circle_centre_u_mm=(combine(h.circle_centre_u_mm[0], u_mm), combine(h.circle_centre_u_mm[1], u_mm)),
+            )
+            area_mm2 += math.pi * diameter * u_mm
+            texts.append(f"{h.diameter_mm:.3g} mm at ({h.circle_centre_mm[0]:.1f}, {h.circle_centre_mm[1]:.1f}) mm")
+            notes.setdefault(str(old.label), []).append(
+                {"x_mm": float(centre[0]), "y_mm": float(centre[1]), "diameter_mm": diameter, "edge_doubt_px": doubt_px}
+            )
+        for h_old in old.holes:  # the holes found before keep their stated doubt (a cut's, a wall's terms)
+            j = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, h_old.circle_centre_mm))
+            if math.dist(holes[j].circle_centre_mm, h_old.circle_centre_mm) < 0.25 * h_old.diameter_mm:
+                holes[j] = replace(
+                    holes[j],
+                    diameter_u_mm=max(holes[j].diameter_u_mm, h_old.diameter_u_mm),
+                    area_u_mm2=max(holes[j].area_u_mm2, h_old.area_u_mm2),
+                )
+        part = replace(new, label=old.label, holes=holes)
+        for name, term in old.uncertainty_terms.items():
+            if name not in part.uncertainty_terms and isinstance(term, dict) and "area_mm2" in term:
+                part = _with_extra_term(part, name, term, [])  # a term the first measurement's checks added
+        parts.append(_with_extra_term(part, "deep_hole", area_share_term(part, area_mm2), []))
+        said.append(f"part {old.label} ({'; '.join(texts)})")
+    result_parts = parts
+    again.parts = result_parts
+    opened_labels = {f"part {label}:" for label in found}
+    again.warnings = [w for w in result.warnings if not any(w.startswith(x) for x in opened_labels)] + [
+        w for w in again.warnings if any(w.startswith(x) for x in opened_labels)
+    ]
+    again.settings = {**result.settings, "deep_holes": notes}
+    warning = (
+        f"deep hole: in {', '.join(said)} a dark round opening was taken as a through-hole and measured at the "
+        "top face (the hole's wall and the paper below it, in shade, look darker than the part); its edge is "
+        "less clear than a hole that shows the paper, and the uncertainty includes its place (term 'deep_hole'); "
+        "a blind pocket would look the same; for a trustworthy figure measure the part on a light box (backlight)"
+    )
+    return painted, seen_scale, again, [warning]
