@@ -117,7 +117,13 @@ def signed_area(ring: np.ndarray) -> float:
     """
     r = _as_ring(ring)
     d = r - r.mean(axis=0)
-    return float((d[:, 0] * np.roll(d[:, 1], -1) - np.roll(d[:, 0], -1) * d[:, 1]).sum() / 2.0)
+    x, y = d[:, 0], d[:, 1]
+    # the terms x_i y_(i+1) - x_(i+1) y_i of each vertex and its successor (the last with the
+    # first) laid out in one array and summed: the arithmetic of rolled copies, without them
+    terms = np.empty(len(d))
+    np.subtract(x[:-1] * y[1:], x[1:] * y[:-1], out=terms[:-1])
+    terms[-1] = x[-1] * y[0] - x[0] * y[-1]
+    return float(terms.sum() / 2.0)
 
 
 def point_in_ring(point: np.ndarray, ring: np.ndarray) -> bool:

@@ -761,3 +761,67 @@ def test_median_of_a_short_array_equals_numpys():
             warnings.simplefilter("ignore", RuntimeWarning)  # inf - inf, as numpy's own
             want, got = np.median(a), median_1d(a)
         assert type(got) is type(want) and np.asarray(got).tobytes() == np.asarray(want).tobytes()
+
+
+def test_rays_both_ways_in_one_search_equal_each_way_alone():
+    """symmetry._frame looks along each edge point's normal both ways in one thin._crossings call:
+    the same distances as one call per direction (each ray is tested against every segment in
+    its reach, whatever the other rays are), on a part with a hole, rays through vertices too."""
+    t = np.linspace(0, 2 * np.pi, 720, endpoint=False)
+    outer = np.round(np.column_stack([100 + 60 * np.cos(t), 80 + 40 * np.sin(t) + np.sin(7 * t)]) * 4) / 4
+    hole = np.round(np.column_stack([110 + 15 * np.cos(t[::4]), 80 + 12 * np.sin(t[::4])]) * 4) / 4
+    seg_a = np.concatenate([outer, hole])
+    seg_b = np.concatenate([np.roll(outer, -1, axis=0), np.roll(hole, -1, axis=0)])
+    pts = outer[::3]
+    normals = thin._normals(outer, True)[::3]
+    for reach in (6.0, 25.0, 90.0):
+        both = thin._crossings(np.concatenate([pts, pts]), np.concatenate([-normals, normals]), seg_a, seg_b, reach)
+        inward = thin._crossings(pts, -normals, seg_a, seg_b, reach)
+        outward = thin._crossings(pts, normals, seg_a, seg_b, reach)
+        for k in range(2):
+            np.testing.assert_array_equal(both[k], np.concatenate([inward[k], outward[k]]))
+    assert np.isfinite(inward[0]).sum() > 50  # the far side and the hole are within the last reach
+
+
+def test_profile_maps_sampled_in_long_rows_equal_one_remap():
+    """thin.edge_residual_px samples its (vertices x offsets) maps through numeric.sample_points:
+    the same values as OpenCV's remap of the maps as they are (the reference), bicubic,
+    points past the crop's edge included (replicated border)."""
+    import cv2
+
+    from scanmass.numeric import sample_points
+
+    rng = np.random.default_rng(11)
+    for _ in range(20):
+        lin = rng.random((int(rng.integers(20, 120)), int(rng.integers(20, 120))), dtype=np.float32)
+        n = int(rng.integers(1, 900))
+        map_x = rng.uniform(-3, lin.shape[1] + 3, (n, 22)).astype(np.float32)
+        map_y = rng.uniform(-3, lin.shape[0] + 3, (n, 22)).astype(np.float32)
+        want = cv2.remap(lin, map_x, map_y, cv2.INTER_CUBIC, borderMode=cv2.BORDER_REPLICATE)
+        np.testing.assert_array_equal(sample_points(lin, map_x, map_y, cv2.INTER_CUBIC), want)
+
+
+def test_shoelace_without_rolled_copies_equals_the_rolled_form():
+    """geometry.signed_area lays the terms x_i y_(i+1) - x_(i+1) y_i out without np.roll: bit for
+    bit the rolled form (written here), and within rounding shapely's orientation-signed area
+    (the reference), on random rings of 3 to 5000 vertices, closed and open."""
+    from shapely.geometry import Polygon
+
+    from scanmass.geometry import signed_area
+
+    rng = np.random.default_rng(12)
+    for i in range(300):
+        ring = rng.normal(size=(int(rng.integers(3, 5000)), 2)) * rng.uniform(0.01, 1e4)
+        if i % 5 == 0:
+            ring = np.vstack([ring, ring[:1]])  # a repeated closing vertex is dropped
+            d = ring[:-1] - ring[:-1].mean(axis=0)
+        else:
+            d = ring - ring.mean(axis=0)
+        rolled = float((d[:, 0] * np.roll(d[:, 1], -1) - np.roll(d[:, 0], -1) * d[:, 1]).sum() / 2.0)
+        assert signed_area(ring) == rolled
+    square = np.array([[0.0, 0.0], [3.0, 0.0], [3.0, 2.0], [0.0, 2.0]])
+    assert signed_area(square) == Polygon(square).area == 6.0  # counter-clockwise: positive
+    tri = rng.uniform(0, 10, (3, 2))
+    poly = Polygon(tri)
+    sign = 1.0 if poly.exterior.is_ccw else -1.0
+    assert signed_area(tri) == pytest.approx(sign * poly.area, rel=1e-12)

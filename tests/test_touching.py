@@ -368,3 +368,26 @@ def test_necked_discs_are_still_reported_and_a_holed_disc_skipped(monkeypatch):
     hole = np.column_stack([205 + 30 * np.cos(t), 200 + 30 * np.sin(t)])
     assert touching.touching_lobes(disc, [hole]) is None and not calls
     assert touching.touching_lobes(disc, [hole], peak_test=False) is None and calls
+
+
+def test_two_masks_medians_from_one_histogram_are_numpys():
+    """split_touching counts the part's and the background's codes in one two-dimensional
+    histogram (code, label): each median equals numpy's median of the gathered values (the
+    reference), 8- and 16-bit codes, masks of any share, one of them nearly empty."""
+    from scanmass.load.decode import srgb_to_linear
+    from scanmass.segment.touching import _lut_medians_apart
+
+    rng = np.random.default_rng(5)
+    for bins, dtype in ((256, np.uint8), (65536, np.uint16)):
+        lut = np.asarray(srgb_to_linear(np.arange(bins) / (bins - 1)), np.float32)
+        for _ in range(150):
+            codes = rng.integers(0, bins, (int(rng.integers(4, 60)), int(rng.integers(4, 60))), dtype=dtype)[1:, 2:]
+            pick = rng.random(codes.shape)
+            cut = rng.uniform(0.0, 1.0, 2)
+            first = (pick < cut.min()).view(np.uint8)
+            second = (pick >= max(cut.max(), 0.97 if rng.random() < 0.2 else 0.0)).view(np.uint8)
+            if not (first.any() and second.any()):
+                continue
+            got = _lut_medians_apart(codes, first, second, lut)
+            assert got[0] == float(np.median(lut[codes][first.view(bool)]))
+            assert got[1] == float(np.median(lut[codes][second.view(bool)]))

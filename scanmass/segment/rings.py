@@ -569,7 +569,7 @@ def _refine_part(
     comp = np.zeros(shape, np.uint8)
     offset = (-c0, -r0)
     cv2.drawContours(comp, [cnt], -1, 1, thickness=cv2.FILLED, offset=offset)
-    filled = comp.copy()
+    filled = comp.copy() if holes else comp  # comp is not drawn on again without holes
     if holes:
         cv2.drawContours(comp, holes, -1, 0, thickness=cv2.FILLED, offset=offset)
         # drawContours of a hole clears its boundary pixels too, which belong to the part
@@ -579,9 +579,12 @@ def _refine_part(
     shrunk4 = cv2.erode(comp, kernel, iterations=4)
     band = grown4 != shrunk4  # within ~4 px of any boundary of the part: where edges lie
     # the masks hold 0 and 1 (drawn with 1, dilated, eroded): read as bool in place, not converted
-    near = cv2.dilate(filled, kernel, iterations=4).view(bool)
+    if holes:
+        near = cv2.dilate(filled, kernel, iterations=4).view(bool)
+        hole_space = filled.view(bool) & ~grown4.view(bool)
+    else:  # no hole drawn: comp is filled, its dilation is grown4 and no hole's space lies outside it
+        near, hole_space = grown4.view(bool), None
     band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3).view(bool) & ~near
-    hole_space = filled.view(bool) & ~grown4.view(bool)
     # the part's own level next to its edges: pixels 4 to ~18 px inside; for thin parts the
     # central ridge (at least 3/4 of the largest inside distance), so that the level keeps
     # following the illumination along a thin ring or strip
@@ -596,7 +599,7 @@ def _refine_part(
     band_lin = lut[grey_crop[band_rows, band_cols]].astype(np.float64)
     scale = float(max(shape))
     if threshold is None:
-        rb, cb = _sample(band_out | hole_space)
+        rb, cb = _sample(band_out if hole_space is None else band_out | hole_space)
         if rb.size < 3:  # no background around the part to set its level against
             return None
         bg_lin = lut[grey_crop[rb, cb]].astype(np.float64)

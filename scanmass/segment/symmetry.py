@@ -78,8 +78,10 @@ def _frame(image: LoadedImage, rings: PartRings, *, extra_px: float = 0.0) -> tu
     all_rings = [ring, *[np.asarray(h, float) for h in rings.holes_px]]
     seg_a = np.concatenate(all_rings)
     seg_b = np.concatenate([np.roll(r, -1, axis=0) for r in all_rings])
-    d_in, _ = _crossings(pts, -normals, seg_a, seg_b, 2 * a + 1)
-    d_out, _ = _crossings(pts, normals, seg_a, seg_b, 2 * a + 1)
+    # both directions in one search: each ray's distances depend on that ray and the
+    # segments alone (every segment within reach is tested, whatever the other rays)
+    d_both, _ = _crossings(np.concatenate([pts, pts]), np.concatenate([-normals, normals]), seg_a, seg_b, 2 * a + 1)
+    d_in, d_out = d_both[: len(pts)], d_both[len(pts) :]
     clear = np.isinf(d_in) & np.isinf(d_out)
     pts, normals = pts[clear], normals[clear]
     if len(pts) < 8:

@@ -55,7 +55,7 @@ import numpy as np
 
 from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage, lookup
-from scanmass.numeric import nonzero_every, nonzero_rc
+from scanmass.numeric import nonzero_every, nonzero_rc, sample_points
 from scanmass.segment.closedfeat import is_sliver
 from scanmass.segment.dipgate import dips_possible
 from scanmass.segment.rings import PartRings, correct_curvature
@@ -475,11 +475,12 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
             shared.append(0.0)
             continue
         inward = -_normals(ring, i == 0)  # into the material
-        pts = ring[:, None, :] + offsets[None, :, None] * inward[:, None, :] - shift
-        values = cv2.remap(
-            lin, pts[..., 0].astype(np.float32), pts[..., 1].astype(np.float32), cv2.INTER_CUBIC,
-            borderMode=cv2.BORDER_REPLICATE,
-        ).astype(float)  # fmt: skip
+        # each coordinate on its own (the same sums, element by element, as of the (x, y)
+        # pairs), sampled in long rows (numeric.sample_points: the same values as one remap
+        # of these maps, whose 22-wide rows cost remap's tile set-up many times over)
+        map_x = (ring[:, 0, None] + offsets[None, :] * inward[:, 0, None] - shift[0]).astype(np.float32)
+        map_y = (ring[:, 1, None] + offsets[None, :] * inward[:, 1, None] - shift[1]).astype(np.float32)
+        values = sample_points(lin, map_x, map_y, cv2.INTER_CUBIC).astype(float)
         spacing = float(np.median(np.hypot(*(np.roll(ring, -1, axis=0) - ring).T))) or 1.0
         half = max(1, int(round(0.5 * RESIDUAL_WINDOW_PX / spacing)))
         kernel = np.ones(2 * half + 1) / (2 * half + 1)
@@ -582,14 +583,16 @@ def _crossings(
             continue
         k = np.repeat(np.arange(start, stop), n)  # the ray of each pair
         idx = near[offsets[start] : offsets[start] + int(n.sum())]
-        a, b = seg_a[idx], seg_b[idx]
-        e = b - a
-        d = direction[k]
-        denom = d[:, 0] * e[:, 1] - d[:, 1] * e[:, 0]
+        # coordinate by coordinate (the same products and differences as of (x, y) rows,
+        # without gathering and broadcasting rows of two)
+        a_x, a_y = seg_a[idx, 0], seg_a[idx, 1]
+        e_x, e_y = seg_b[idx, 0] - a_x, seg_b[idx, 1] - a_y
+        d_x, d_y = direction[k, 0], direction[k, 1]
+        denom = d_x * e_y - d_y * e_x
         ok = np.abs(denom) > 1e-12
-        w = a - p[k]
-        t = np.where(ok, (w[:, 0] * e[:, 1] - w[:, 1] * e[:, 0]) / np.where(ok, denom, 1), np.inf)
-        u = np.where(ok, (w[:, 0] * d[:, 1] - w[:, 1] * d[:, 0]) / np.where(ok, denom, 1), -1)
+        w_x, w_y = a_x - p[k, 0], a_y - p[k, 1]
+        t = np.where(ok, (w_x * e_y - w_y * e_x) / np.where(ok, denom, 1), np.inf)
+        u = np.where(ok, (w_x * d_y - w_y * d_x) / np.where(ok, denom, 1), -1)
         hit = ok & (u >= 0) & (u <= 1) & (t > 0.05) & (t <= reach)
         if not hit.any():
             continue
@@ -612,7 +615,8 @@ def _ball_pairs(centres: np.ndarray, queries: np.ndarray, radius: float) -> tupl
     if len(centres) == 0 or len(queries) == 0:
         return np.zeros(0, np.intp), np.zeros(0, np.intp)
     cell = float(radius) if radius > 0 else 1.0
-    lo = np.minimum(centres.min(axis=0), queries.min(axis=0))
+    # (the minima column by column: a reduction along the short axis of an (N, 2) array is slow)
+    lo = np.array([min(centres[:, 0].min(), queries[:, 0].min()), min(centres[:, 1].min(), queries[:, 1].min())], float)
     c_ij = np.floor((centres - lo) / cell).astype(np.int64) + 1
     q_ij = np.floor((queries - lo) / cell).astype(np.int64) + 1
     rows = int(max(c_ij[:, 1].max(), q_ij[:, 1].max())) + 2
@@ -627,8 +631,12 @@ def _ball_pairs(centres: np.ndarray, queries: np.ndarray, radius: float) -> tupl
     query = np.repeat(np.repeat(np.arange(len(queries)), 9), count)
     within = np.arange(total) - np.repeat(np.cumsum(count) - count, count)
     centre = order[np.repeat(first, count) + within]
-    gap = centres[centre] - queries[query]
-    keep = np.einsum("ij,ij->i", gap, gap) <= radius * radius
+    # the gaps coordinate by coordinate (gathering (x, y) rows of an (N, 2) array is slow); a
+    # pair at the radius itself may fall either way by a rounding, which the callers' radii
+    # allow for (each holds a margin beyond the farthest pair that can matter)
+    gap_x = centres[centre, 0] - queries[query, 0]
+    gap_y = centres[centre, 1] - queries[query, 1]
+    keep = gap_x * gap_x + gap_y * gap_y <= radius * radius
     return query[keep], centre[keep]
 
 

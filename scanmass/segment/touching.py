@@ -282,6 +282,30 @@ def _lut_median(codes: np.ndarray, where: np.ndarray, lut: np.ndarray) -> float:
         counts = cv2.calcHist([codes], [0], where, [bins], [0, bins]).ravel().astype(np.int64)
     else:
         counts = np.bincount(codes[where.view(bool)].ravel(), minlength=bins)
+    return _counts_median(counts, lut)
+
+
+def _lut_medians_apart(
+    codes: np.ndarray, first: np.ndarray, second: np.ndarray, lut: np.ndarray
+) -> tuple[float, float]:
+    """:func:`_lut_median` of two masks that share no pixel, from one pass over the crop.
+
+    The codes are counted against a label plane (0 neither, 1 ``first``, 2 ``second``) in
+    one two-dimensional histogram of (code, label) pairs: each label's column holds the
+    counts its own mask gives (a masked histogram reads the whole crop for each mask).
+    """
+    bins = len(lut)
+    if codes.dtype in (np.uint8, np.uint16) and codes.size < 2**24:  # float32 counts stay exact
+        labels = cv2.add(first, second)
+        cv2.add(labels, second, dst=labels)  # 0/1 masks without a shared pixel: labels 0, 1, 2
+        labels = labels.astype(codes.dtype, copy=False)  # the histogram takes planes of one depth
+        table = cv2.calcHist([codes, labels], [0, 1], None, [bins, 3], [0, bins, 0, 3]).astype(np.int64)
+        return _counts_median(table[:, 1], lut), _counts_median(table[:, 2], lut)
+    return _lut_median(codes, first, lut), _lut_median(codes, second, lut)
+
+
+def _counts_median(counts: np.ndarray, lut: np.ndarray) -> float:
+    """The median of ``lut[code]`` over counts of each code, as numpy's median of the gathered values gives it."""
     order = np.argsort(lut, kind="stable")
     cum = np.cumsum(counts[order])
     n = int(cum[-1])
@@ -384,7 +408,9 @@ def split_touching(
     kernel = np.ones((3, 3), np.uint8)
     core = cv2.erode(mask, kernel, iterations=2)
     inner = cv2.erode(core, kernel)  # three erosions in all
-    outside = (cv2.dilate(_ring_mask(shape, outer, [], origin), kernel, iterations=3) == 0).view(np.uint8)
+    # the outer ring filled without its holes (the mask itself when there are none)
+    filled = _ring_mask(shape, outer, [], origin) if holes_px else mask
+    outside = (cv2.dilate(filled, kernel, iterations=3) == 0).view(np.uint8)
     if np.count_nonzero(inner) < 20 or np.count_nonzero(outside) < 20:
         return None
     if levels is None:
@@ -393,20 +419,29 @@ def split_touching(
         bg = float(np.median(linear[outside.view(bool)]))
     else:
         codes, lut = levels
-        fg, bg = _lut_median(codes, inner, lut), _lut_median(codes, outside, lut)
+        fg, bg = _lut_medians_apart(codes, inner, outside, lut)  # inside the ring and beyond its dilation
+    del inner, outside, filled
     if abs(fg - bg) < 1e-4 or (fg < bg) != dark_part:
         return None
-    # the same values either way: the table holds each code's normalised level
-    if levels is None:
-        assert linear is not None
-        norm = (linear - bg) / (fg - bg)
-    else:
-        norm = lookup((levels[1] - bg) / (fg - bg), levels[0])
+
+    def normalised() -> np.ndarray:
+        """The crop between the two levels (0 background, 1 part): a new array, the same values at every call."""
+        # the same values either way: the table holds each code's normalised level
+        if levels is None:
+            assert linear is not None
+            return (linear - bg) / (fg - bg)
+        return lookup((levels[1] - bg) / (fg - bg), levels[0])
+
     seam_level = min(SEAM_LEVEL, 1.0 - 5.0 * max(noise_rel, 0.0))
-    solid = (core.view(bool) & (cv2.GaussianBlur(norm.astype(np.float32, copy=False), (0, 0), 0.7) > seam_level)).view(
-        np.uint8
-    )
+    # blurred in place (OpenCV's separable filter gives the same values in place) and dropped
+    # before the components are labelled: the crop's peak memory. Where a split needs the
+    # plane again it is made again.
+    smooth = normalised().astype(np.float32, copy=False)
+    cv2.GaussianBlur(smooth, (0, 0), 0.7, dst=smooth)
+    solid = (core.view(bool) & (smooth > seam_level)).view(np.uint8)
+    del smooth
     count, comp = cv2.connectedComponents(solid, connectivity=4)
+    del solid
     big: list[int] = []
     if count >= 3:  # two pieces or more (label 0 is the rest)
         sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
@@ -416,9 +451,11 @@ def split_touching(
         markers = np.zeros(shape, np.int32)
         markers[comp == big[0]] = 1
         markers[comp == big[1]] = 2
-        relief: np.ndarray = -np.asarray(norm, dtype=np.float64)
+        del comp
+        relief: np.ndarray = -np.asarray(normalised(), dtype=np.float64)
         evidence = "seam"
     else:
+        del comp
         if neck is True:
             neck = touching_lobes(outer, holes_px)
         if not isinstance(neck, NeckReport):
@@ -460,7 +497,7 @@ def split_touching(
     along = q1[None] + t[:, None] * (q2 - q1)[None]
     cols = np.clip(np.round(along[:, 0] - origin[0]).astype(int), 0, shape[1] - 1)
     rows = np.clip(np.round(along[:, 1] - origin[1]).astype(int), 0, shape[0] - 1)
-    depth = 1.0 - float(np.median(cv2.GaussianBlur(norm.astype(np.float32), (0, 0), 0.7)[rows, cols]))
+    depth = 1.0 - float(np.median(cv2.GaussianBlur(normalised().astype(np.float32), (0, 0), 0.7)[rows, cols]))
     if evidence == "seam" and depth < 1.0 - seam_level:
         return None  # the pieces are not separated along the cut: a texture, not a seam
     holes_i: list[np.ndarray] = []
