@@ -825,3 +825,39 @@ def test_shoelace_without_rolled_copies_equals_the_rolled_form():
     poly = Polygon(tri)
     sign = 1.0 if poly.exterior.is_ccw else -1.0
     assert signed_area(tri) == pytest.approx(sign * poly.area, rel=1e-12)
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_contours_traced_in_the_masks_box_equal_the_whole_planes(seed):
+    """segment traces its part mask in the bounding box of the set pixels: OpenCV's findContours on
+    that box, offset back, gives the whole plane's contours, order and hierarchy (the reference),
+    for random blobs with holes, islands in holes, specks and pixels on the plane's edges."""
+    import cv2
+
+    rng = np.random.default_rng(seed)
+    for _ in range(25):
+        h, w = int(rng.integers(20, 200)), int(rng.integers(20, 200))
+        mask = np.zeros((h, w), np.uint8)
+        for _ in range(int(rng.integers(0, 6))):
+            c = (int(rng.integers(0, w)), int(rng.integers(0, h)))
+            r = int(rng.integers(1, 25))
+            cv2.circle(mask, c, r, 255, -1)
+            if r > 6 and rng.random() < 0.6:
+                cv2.circle(mask, c, r // 2, 0, -1)  # a hole
+                cv2.circle(mask, c, r // 5, 255, -1)  # an island in it
+        specks = rng.random((h, w)) < 0.002
+        mask[specks] = 255
+        if rng.random() < 0.3:
+            mask[0, int(rng.integers(0, w))] = 255  # on the edge of the plane
+        want = cv2.findContours(mask, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE, offset=(5, 7))
+        x, y, bw, bh = cv2.boundingRect(mask)
+        if bw == 0:
+            assert not want[0]
+            continue
+        got = cv2.findContours(
+            mask[y : y + bh, x : x + bw], cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE, offset=(5 + x, 7 + y)
+        )
+        assert len(got[0]) == len(want[0])
+        for a, b in zip(got[0], want[0]):
+            np.testing.assert_array_equal(a, b)
+        np.testing.assert_array_equal(got[1], want[1])

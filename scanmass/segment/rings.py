@@ -368,7 +368,13 @@ def segment(
         np.bitwise_and(mask, roi_mask, out=mask)
 
     # -- 2. parts and their holes from the mask ---------------------------------------
-    contours, hierarchy = cv2.findContours(mask, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE, offset=(box_x0, box_y0))
+    # traced in the box of the mask's set pixels only: the same contours, order and hierarchy
+    # (zero rows and columns around them hold no contour), and findContours' bordered copy of
+    # its input is that box, not the whole plane
+    fx, fy, fw, fh = cv2.boundingRect(mask)
+    contours, hierarchy = cv2.findContours(
+        mask[fy : fy + fh, fx : fx + fw], cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE, offset=(box_x0 + fx, box_y0 + fy)
+    ) if fw > 0 and fh > 0 else ((), None)  # fmt: skip
     del mask
     if not contours:
         raise SegmentationError(
@@ -611,13 +617,21 @@ def _refine_part(
         if keep.sum() < 8:
             keep = np.ones_like(keep)
         coef_b, ord_b, sig_b, n_b = _fit_surface(bg_lin[keep], rb[keep].astype(float), cb[keep].astype(float), scale, 2)
-        bg_band = _eval_points(coef_b, ord_b, band_rows, band_cols, scale)
+        # both surfaces at the band's pixels, the design of each order made once
+        designs: dict[int, np.ndarray] = {}
+
+        def at_band(coef: np.ndarray, order: int) -> np.ndarray:
+            if order not in designs:
+                designs[order] = _poly_design(band_cols / scale, band_rows / scale, order)
+            return np.einsum("ij,j->i", designs[order], coef)
+
+        bg_band = at_band(coef_b, ord_b)
         if np.count_nonzero(interior) >= 20:
             rf, cf = _sample(interior)
             coef_f, ord_f, sig_f, n_f = _fit_surface(
                 lut[grey_crop[rf, cf]].astype(np.float64), rf.astype(float), cf.astype(float), scale, 2
             )
-            fg_band = _eval_points(coef_f, ord_f, band_rows, band_cols, scale)
+            fg_band = at_band(coef_f, ord_f)
             fg_surface: tuple[np.ndarray, int] | float = (coef_f, ord_f)
         else:  # thin part: no clean interior; take the part level relative to the background
             fg_band = bg_band * ratio_hint
@@ -751,7 +765,7 @@ def _unit_crop(
 
 
 def _eval_grid(coef: np.ndarray, order: int, shape: tuple[int, ...], scale: float) -> np.ndarray:
-    """:func:`_eval_points` on every pixel of a crop (float32, by broadcasting: no design matrix)."""
+    """A fitted surface (:func:`_fit_surface`) on every pixel of a crop (float32, by broadcasting: no design matrix)."""
     x = (np.arange(shape[1], dtype=np.float32) / np.float32(scale))[None, :]
     y = (np.arange(shape[0], dtype=np.float32) / np.float32(scale))[:, None]
     c = np.asarray(coef, np.float32)
@@ -823,10 +837,6 @@ def _mean_move_px(before: list, after: list) -> float:
     a0, length = net(before)
     a1, _ = net(after)
     return abs(a1 - a0) / max(length, 1.0)
-
-
-def _eval_points(coef: np.ndarray, order: int, rows: np.ndarray, cols: np.ndarray, scale: float) -> np.ndarray:
-    return np.einsum("ij,j->i", _poly_design(cols / scale, rows / scale, order), coef)
 
 
 def _tail_share(depth_px: float, blur_px: float, *, thin: bool) -> float:
