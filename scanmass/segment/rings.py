@@ -583,25 +583,30 @@ def _refine_part(
     kernel = np.ones((3, 3), np.uint8)
     grown4 = cv2.dilate(comp, kernel, iterations=4)
     shrunk4 = cv2.erode(comp, kernel, iterations=4)
-    band = grown4 != shrunk4  # within ~4 px of any boundary of the part: where edges lie
-    # the masks hold 0 and 1 (drawn with 1, dilated, eroded): read as bool in place, not converted
+    band_rows, band_cols = nonzero_rc(grown4 != shrunk4)  # within ~4 px of any boundary of the part: where edges lie
+    # the masks hold 0 and 1 (drawn with 1, dilated, eroded): read as bool in place, not
+    # converted; "a and not b" of two of them is a > b, made in place where it can be (no
+    # full-size temporaries: the largest crop's peak memory)
     if holes:
-        near = cv2.dilate(filled, kernel, iterations=4).view(bool)
-        hole_space = filled.view(bool) & ~grown4.view(bool)
+        near = cv2.dilate(filled, kernel, iterations=4)
+        hole_space = np.greater(filled, grown4).view(bool)
     else:  # no hole drawn: comp is filled, its dilation is grown4 and no hole's space lies outside it
-        near, hole_space = grown4.view(bool), None
-    band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3).view(bool) & ~near
+        near, hole_space = grown4, None
+    band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3)
+    band_out = np.greater(band_out, near, out=band_out).view(bool)
+    del grown4, near, filled
     # the part's own level next to its edges: pixels 4 to ~18 px inside; for thin parts the
     # central ridge (at least 3/4 of the largest inside distance), so that the level keeps
     # following the illumination along a thin ring or strip
-    interior = shrunk4.view(bool) & ~cv2.erode(shrunk4, kernel, iterations=_PAD_PX + 8).view(bool)
+    interior = cv2.erode(shrunk4, kernel, iterations=_PAD_PX + 8)
+    interior = np.greater(shrunk4, interior, out=interior).view(bool)
+    del shrunk4
     depth_px = 4.0
     if np.count_nonzero(interior) < 300:  # a thin part: take its central ridge instead
         inside_px = cv2.distanceTransform(comp, cv2.DIST_L2, 3)  # approximate distances suffice here
         depth_px = min(4.0, 0.75 * float(inside_px.max()))
         interior = (inside_px >= depth_px) & (inside_px <= _PAD_PX + 12)
         del inside_px
-    band_rows, band_cols = nonzero_rc(band)
     band_lin = lut[grey_crop[band_rows, band_cols]].astype(np.float64)
     scale = float(max(shape))
     if threshold is None:
@@ -665,7 +670,7 @@ def _refine_part(
         noise = 1.4826 * float(np.median(np.abs(bg_lin - bg))) if bg_lin.size else 0.0
         noise_rel = noise / abs(contrast)
         level_rel_u = 0.0
-    del grown4, shrunk4, near, band_out, hole_space, interior, filled, band
+    del band_out, hole_space, interior
     # normalised crop with a 1 px frame of background, which closes the rings of cut parts
     norm = np.zeros((shape[0] + 2, shape[1] + 2), np.float32)
     norm[1:-1, 1:-1] = comp
