@@ -238,7 +238,9 @@ def closed_slots(
     del inside
     if np.count_nonzero(thick) < 60:
         return none, []
-    outside = cv2.distanceTransform(1 - mask, cv2.DIST_L2, 5)
+    # the mask turned inside out in place for this transform and back (no full-size copy at the peak)
+    outside = cv2.distanceTransform(np.subtract(1, mask, out=mask), cv2.DIST_L2, 5)
+    np.subtract(1, mask, out=mask)
     far_bg = (outside >= tail + 2) & (outside <= tail + 12)
     regions["outside"] = outside >= away
     attach = outside <= away + 2.0
@@ -989,7 +991,9 @@ def resolve_walls(
         cv2.fillPoly(mask, [poly(h) for h in rings.holes_px], 0)
     mask = cv2.resize(mask, (shape[1], shape[0]), interpolation=cv2.INTER_AREA)
     inside = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
-    outside = cv2.distanceTransform(1 - mask, cv2.DIST_L2, 5)
+    # the mask turned inside out in place for this transform and back (no full-size copy at the peak)
+    outside = cv2.distanceTransform(np.subtract(1, mask, out=mask), cv2.DIST_L2, 5)
+    np.subtract(1, mask, out=mask)
     far_bg = (outside >= reach_tail + 2) & (outside <= reach_tail + 12)
     thick = inside >= reach_tail + 1
     rows_b, cols_b = nonzero_rc(far_bg)
