@@ -380,6 +380,7 @@ def segment(
         raise SegmentationError(
             "no part found: the image is all background; check the scan or lower --min-area", path=image.path
         )
+    assert hierarchy is not None  # contours found: their hierarchy with them
     hier = hierarchy[0]
     noise_lin = pixel_noise(image, roi_px)
     faint = 0
