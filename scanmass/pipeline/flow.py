@@ -22,7 +22,13 @@ from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part, shoelace_area
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
-from scanmass.pipeline.part_terms import fragment_warnings, measure_part, with_fragment_term
+from scanmass.pipeline.part_terms import (
+    fragment_warnings,
+    lost_face_warnings,
+    measure_part,
+    with_fragment_term,
+    with_lost_face_term,
+)
 from scanmass.pipeline.photo_checks import (
     _check_within_support,
     _hidden_holes,
@@ -53,6 +59,7 @@ from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import escaping_holes
+from scanmass.segment.brightface import LostFace, recover_lost_faces
 from scanmass.segment.closedfeat import measure_closed
 from scanmass.segment.fragments import Fragment, find_fragments
 from scanmass.segment.lidgap import lid_gap
@@ -400,6 +407,11 @@ def measure_image(
     faces: dict[int, FaceResult] = {}
     if face_check and seg.polarity.startswith("dark"):
         seg.parts, faces = _scan_faces(image, seg.parts, options.min_hole_area_mm2 or options.min_area_mm2, px_area_mm2)
+    lost_faces: list[LostFace] = []
+    if roi_px is not None and seg.polarity.startswith("dark"):  # photos: a mirroring face's lit sectors
+        seg.parts, lost_faces = recover_lost_faces(
+            image, seg.parts, roi_px, min_hole_px=(options.min_hole_area_mm2 or options.min_area_mm2) / px_area_mm2
+        )
     pieces: dict[int, list[PartRings]] = {}
     fragments: list[Fragment] = []
     if roi_px is not None and len(seg.parts) > 1:  # photos: a grainy face found in pieces
@@ -468,6 +480,9 @@ def measure_image(
             mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm,
             extra_mm=extra_mm or None, extra_perimeter_mm=extra_perimeter_mm, extra_perimeter_u_mm=extra_perimeter_u_mm,
         )  # fmt: skip
+        lost_px = sum(f.area_px for f in lost_faces if f.label == walls.rings.label)
+        if lost_px > 0:
+            part = with_lost_face_term(part, lost_px * px_area_mm2)
         if own_pieces:
             part = with_fragment_term(
                 part, mapped, [plane_map.to_mm(np.asarray(q.outer_px, float)) for q in own_pieces]
@@ -517,6 +532,7 @@ def measure_image(
                 "beyond the stated uncertainty): pass --encoding linear or --encoding srgb to decide",
             )
     touching = _face_warnings(faces, plane_map.mm_per_px)
+    touching += lost_face_warnings(parts)
     touching += fragment_warnings(fragments, parts, plane_map.mm_per_px)
     touching += _touching_warnings(seg.parts, splits, necks, plane_map.mm_per_px)
     touching += _split_warnings(split_notes, plane_map.mm_per_px)

@@ -17,7 +17,7 @@ from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
-from scanmass.pipeline.part_terms import _with_extra_term, _with_shadow_term, area_share_term
+from scanmass.pipeline.part_terms import _with_extra_term, _with_shadow_term, area_share_term, has_lit_face
 from scanmass.pipeline.photo_checks import _part_crop
 from scanmass.pipeline.photo_cut_strips import _lies_within, _open_slivers, _painted_holes
 from scanmass.pipeline.photo_walls import with_top_seen
@@ -263,7 +263,9 @@ def _cut_cast_shadows(
                 colour_lin = lut[colour[y0:y1, x0:x1]]
                 window = grey[y0:y1, x0:x1]
                 risk = shadow_risk(colour_lin, mask, band_px)
-        if risk is not None and risk.fraction >= SHADOW_FRACTION and not looks_like_shadow_only(risk):
+        # a part whose lit face was joined up to its sharp edge is no shadow alone
+        alone = risk is not None and looks_like_shadow_only(risk) and not has_lit_face(part)
+        if risk is not None and risk.fraction >= SHADOW_FRACTION and not alone:
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
             cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
