@@ -37,6 +37,7 @@ from scanmass.pipeline.photo_checks import (
     _unclear_edges,
     _unknown_thickness,
 )
+from scanmass.pipeline.photo_colour import colour_faces
 from scanmass.pipeline.photo_holes import _open_deep_holes
 from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
 from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
@@ -777,6 +778,11 @@ def _measure_photo(
     """:func:`measure_photo` with its colour planes decoding in ``colour_job``."""
     thickness_mm = options.thickness_mm  # checked by MeasureOptions.check
     scale = photo_scale(image, options, method)
+    min_area_px = options.min_area_mm2 / scale.plane_map.mm_per_px**2
+
+    def colour_measure(plane: LoadedImage) -> Measurement:
+        return measure_image(plane, options, plane_map=scale.plane_map, roi_px=scale.roi_px)
+
     tone = marker_tone(image, scale) if options.encoding == "auto" else None
     shift = tone if tone is not None and tone.applies else None
     masked = _mask_outside(image, scale.roi_px)
@@ -792,6 +798,19 @@ def _measure_photo(
             "the corner marks, away from markers and the photo's edge",
             path=image.path,
         ) from None
+    except SegmentationError:
+        # a coloured face brighter than the paper is not found by its grey levels: by its colour
+        coloured, notes = colour_faces(
+            image, scale, None, colour_job.result(), colour_measure, min_area_px, thickness_mm
+        )
+        if coloured is None:
+            raise
+        _check_within_support(scale, coloured, image.path)
+        coloured.warnings = (
+            list(scale.warnings) + notes + _unknown_thickness(scale, coloured, thickness_mm) + list(coloured.warnings)
+        )
+        coloured.settings.update({"scale": method})
+        return coloured
     _check_within_support(scale, result, image.path)
     top_seen, top_labels = wall_sides(image.grey.shape[:2], scale, result, thickness_mm)
     if top_seen is not None:
@@ -828,7 +847,9 @@ def _measure_photo(
         cut_scale = scale
     _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure)
     shadow_only = _shadows_only(image, scale, result, colour, thickness_mm)
-    warnings = list(scale.warnings) + shadow_only + cut + deep
+    coloured, colour_notes = colour_faces(image, scale, result, colour, colour_measure, min_area_px, thickness_mm)
+    result = result if coloured is None else coloured
+    warnings = list(scale.warnings) + shadow_only + cut + deep + colour_notes
     if tone is not None and tone.applies:
         warnings.insert(
             0,

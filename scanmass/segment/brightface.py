@@ -214,3 +214,49 @@ def recover_lost_faces(
         out.append(again)
         joined += [LostFace(rings.label, n.area_px, n.step_share, n.darker_share) for n in notes]
     return out, joined
+
+
+#: A pixel is of a coloured part's face where its yellowness (:func:`face_colour_plane`) is at least
+#: this share of the paper's green level: the paper, lit or in shade, has 0 (its noise about 0.01 on
+#: the committed renders); brass faces 0.2-0.4 (dev-soft-brass-t25: 0.33 in its 99th percentile).
+COLOURED_SHARE = 0.12
+#: Level of the paper in the colour plane (linear); a face's yellowness lowers it.
+PLANE_PAPER_LEVEL = 0.8
+
+
+def face_colour_plane(
+    colour_lin: np.ndarray, inside: np.ndarray, *, min_area_px: float
+) -> tuple[np.ndarray, float] | None:
+    """A plane (linear, 0-1) in which a coloured (yellow) face is dark and the paper, lit or shaded, is not.
+
+    With ``k`` the paper's blue-to-green ratio and ``g`` its green level (the brighter half of
+    the pixels within ``inside``), the yellowness ``(k G - B) / (k g)`` is a linear combination
+    of the linear channels: 0 on the paper at any level (a cast shadow keeps the paper's colour,
+    so it is 0 there too), positive on a face that takes less blue than green (brass), and
+    across a blurred edge linear in the share of face in a pixel, so its half-way level is the
+    edge as in a grey plane. The plane is :data:`PLANE_PAPER_LEVEL` less the yellowness, clipped
+    to 0-1. Returns the plane and its count of coloured pixels, or None when fewer than
+    ``min_area_px`` pixels within ``inside`` are coloured (:data:`COLOURED_SHARE`).
+
+    Parameters
+    ----------
+    colour_lin : (H, W, 3) float ndarray
+        The photo in linear light, channels in OpenCV's order (B, G, R).
+    inside : (H, W) bool ndarray
+        The mat's clear area.
+    min_area_px : float
+        The least coloured area (px) worth a plane.
+    """
+    blue, green = colour_lin[..., 0], colour_lin[..., 1]
+    sel = inside & (green >= np.percentile(green[inside], 50))
+    if np.count_nonzero(sel) < 100:
+        return None
+    ratio = float(np.median(blue[sel] / np.maximum(green[sel], 1e-6)))
+    level = float(np.median(green[sel]))
+    if level <= 0 or ratio <= 0:
+        return None
+    yellow = (ratio * green - blue) / (ratio * level)
+    count = float(np.count_nonzero(inside & (yellow >= COLOURED_SHARE)))
+    if count < min_area_px:
+        return None
+    return np.clip(PLANE_PAPER_LEVEL - yellow, 0.0, 1.0).astype(np.float32), count
