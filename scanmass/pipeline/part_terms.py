@@ -450,7 +450,7 @@ LIT_FACE_SHARE = 0.1
 def has_lit_face(part: Part) -> bool:
     """Whether a lit region of the part's face, at least :data:`LIT_FACE_SHARE` of its area, was joined to it."""
     term = part.uncertainty_terms.get("lost_face")
-    return bool(term) and term["area_mm2"] / LOST_FACE_WEIGHT >= LIT_FACE_SHARE * part.area_mm2
+    return term is not None and term["area_mm2"] / LOST_FACE_WEIGHT >= LIT_FACE_SHARE * part.area_mm2
 
 
 def lost_face_warnings(parts: list[Part]) -> list[str]:

@@ -197,7 +197,7 @@ def colour_faces(
             "apart) and are left out"
         )
     if not new_parts:
-        return replace(result, parts=parts), warnings
+        return (None if result is None else replace(result, parts=parts)), warnings
     warning = (
         "coloured face brighter than the paper: part(s) "
         + ", ".join(notes)
