@@ -41,9 +41,12 @@ COLOUR_EDGE_PX = 0.5
 PIECE_SHARE = 0.25
 
 
-def _luma(colour_lin: np.ndarray) -> np.ndarray:
-    """Linear luma (ITU-R BT.709 weights, common practice) of B, G, R planes."""
-    return 0.0722 * colour_lin[..., 0] + 0.7152 * colour_lin[..., 1] + 0.2126 * colour_lin[..., 2]
+def _luma(lut: np.ndarray, colour: np.ndarray) -> np.ndarray:
+    """Linear luma (ITU-R BT.709 weights, common practice) of encoded B, G, R planes."""
+    luma = 0.0722 * lut[colour[..., 0]]
+    luma += 0.7152 * lut[colour[..., 1]]
+    luma += 0.2126 * lut[colour[..., 2]]
+    return luma
 
 
 def _face_share(scale: PhotoScale, part: Part, luma: np.ndarray, paper: float) -> float:
@@ -73,13 +76,12 @@ def colour_measurement(
     if colour is None:
         return None, 0.0
     lut = np.asarray(image.to_linear, np.float32)
-    colour_lin = lut[colour.astype(np.intp)]
     inside = np.zeros(image.grey.shape, np.uint8)
     cv2.fillPoly(inside, [np.round(scale.roi_px).astype(np.int32)], 1)
-    plane = face_colour_plane(colour_lin, inside.astype(bool), min_area_px=min_area_px)
+    plane = face_colour_plane(lut[colour[..., 0]], lut[colour[..., 1]], inside.astype(bool), min_area_px=min_area_px)
     if plane is None:
         return None, 0.0
-    luma = _luma(colour_lin)
+    luma = _luma(lut, colour)
     paper = float(np.median(luma[inside.astype(bool) & (luma >= np.percentile(luma[inside.astype(bool)], 50))]))
     grey = np.round(plane[0] * 65535).astype(np.uint16)
     ramp = np.linspace(0.0, 1.0, 65536, dtype=np.float32)
@@ -152,7 +154,7 @@ def colour_faces(
     found, paper = colour_measurement(image, scale, colour, measure, min_area_px)
     if found is None or not found.parts:
         return result, []
-    luma = _luma(np.asarray(image.to_linear, np.float32)[colour.astype(np.intp)]) if colour is not None else None
+    luma = _luma(np.asarray(image.to_linear, np.float32), colour) if colour is not None else None
     grey_parts = [] if result is None else list(result.parts)
     taken: list[tuple[Part, list[Part]]] = []
     pieces: list[tuple[Part, Part]] = []  # (a small grey piece, the grey part of the same coloured face)

@@ -225,7 +225,7 @@ PLANE_PAPER_LEVEL = 0.8
 
 
 def face_colour_plane(
-    colour_lin: np.ndarray, inside: np.ndarray, *, min_area_px: float
+    blue: np.ndarray, green: np.ndarray, inside: np.ndarray, *, min_area_px: float
 ) -> tuple[np.ndarray, float] | None:
     """A plane (linear, 0-1) in which a coloured (yellow) face is dark and the paper, lit or shaded, is not.
 
@@ -240,14 +240,13 @@ def face_colour_plane(
 
     Parameters
     ----------
-    colour_lin : (H, W, 3) float ndarray
-        The photo in linear light, channels in OpenCV's order (B, G, R).
+    blue, green : (H, W) float ndarrays
+        The photo's blue and green planes in linear light.
     inside : (H, W) bool ndarray
         The mat's clear area.
     min_area_px : float
         The least coloured area (px) worth a plane.
     """
-    blue, green = colour_lin[..., 0], colour_lin[..., 1]
     sel = inside & (green >= np.percentile(green[inside], 50))
     if np.count_nonzero(sel) < 100:
         return None
