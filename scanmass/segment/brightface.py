@@ -89,6 +89,21 @@ def lost_face_regions(
     ``others``: pixels of other parts (never paper, never joined); ``inside``: pixels within the
     region of interest. Returns the mask of the accepted regions and one :class:`LostFace` each
     (label 0).
+
+    Examples
+    --------
+    A dark face (0.2) with a sector at its top edge that mirrors the light at 0.8 of the paper
+    (0.5), all of it ending on a sharp step; the threshold found only the dark part. A soft
+    shadow's fade beside it (a ramp, no step) is not joined:
+
+    >>> import numpy as np
+    >>> lin = np.full((80, 90), 0.5, np.float32)
+    >>> lin[20:60, 20:70] = 0.2; lin[20:36, 36:54] = 0.4
+    >>> lin[60:75, 20:70] = np.linspace(0.3, 0.5, 15, dtype=np.float32)[:, None]  # the shadow's fade
+    >>> found = np.zeros(lin.shape, bool); found[20:60, 20:70] = True; found[20:36, 36:54] = False
+    >>> extra, notes = lost_face_regions(lin, found, np.zeros_like(found), np.ones_like(found))
+    >>> int(extra.sum()), int(extra[60:].sum()), len(notes), round(notes[0].darker_share, 2)
+    (288, 0, 1, 0.2)
     """
     kernel = np.ones((3, 3), np.uint8)
     found_u8 = found.astype(np.uint8)
@@ -246,6 +261,16 @@ def face_colour_plane(
         The mat's clear area.
     min_area_px : float
         The least coloured area (px) worth a plane.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> green = np.full((20, 20), 0.55, np.float32); blue = 0.98 * green
+    >>> green[5:15, 5:15], blue[5:15, 5:15] = 0.75, 0.53  # a brass square, brighter than the paper
+    >>> blue[:, :3] *= 0.5; green[:, :3] *= 0.5  # a shadow on the paper
+    >>> plane, count = face_colour_plane(blue, green, np.ones((20, 20), bool), min_area_px=50)
+    >>> count, round(float(plane[0, 10]), 3), round(float(plane[0, 0]), 3), round(float(plane[10, 10]), 3)
+    (100.0, 0.8, 0.8, 0.42)
     """
     sel = inside & (green >= np.percentile(green[inside], 50))
     if np.count_nonzero(sel) < 100:
