@@ -607,6 +607,17 @@ def dev_scenes():
             30,
             "Standard",
         ),
+        # branch mixed11: the two pale, coloured cast shadows of mixed light on black parts of other
+        # shapes, thicknesses and placements (a gasket and a thick disc, no tilt)
+        (
+            "dev-mixed-black-t0",
+            "mixed",
+            [("gasket", "black-plastic", 3.0, 90, 200, 0), ("disc", "black-plastic", 5.0, 125, 100, 60)],
+            310,
+            0,
+            0,
+            "Standard",
+        ),
     ]
 
 

@@ -25,6 +25,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.castshadow import core_cut, dark_tinted_face, fade_cut, hole_bottoms, shadow_cut
+from scanmass.segment.colourshadow import coloured_shadow_cut
 from scanmass.segment.shadow import SHADOW_FRACTION, looks_like_shadow_only, shadow_band_px, shadow_risk
 from scanmass.segment.sidewall import LostWall, lost_wall_band
 
@@ -267,6 +268,9 @@ def _cut_cast_shadows(
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
             cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
+            if cut is None and dark:
+                # mixed light: each light's shadow lit by the other, of its colour, not the paper's
+                cut = coloured_shadow_cut(colour_lin, mask, risk.paper_rgb, band_px)
             if cut is not None and cut.direction is not None:
                 swept.append((cut.cut_px, cut.direction))
             if cut is None and not dark and thickness_mm is not None:
