@@ -254,6 +254,7 @@ def _cut_cast_shadows(
                 wall_mm2 = float(np.count_nonzero(wall.band & ~mask)) * mm_per_px**2
         risk = shadow_risk(colour_lin, mask, band_px)
         cut = None
+        coloured = False  # a cut by the shadows' colour (mixed light), not by their grain
         dark = risk is not None and dark_tinted_face(colour_lin, mask, risk.paper_rgb, band_px)
         if dark and risk is not None:
             # a dark plastic face: its shadow is cut on the outline where the photo shows it (a
@@ -271,6 +272,7 @@ def _cut_cast_shadows(
             if cut is None and dark:
                 # mixed light: each light's shadow lit by the other, of its colour, not the paper's
                 cut = coloured_shadow_cut(colour_lin, mask, risk.paper_rgb, band_px)
+                coloured = cut is not None
             if cut is not None and cut.direction is not None:
                 swept.append((cut.cut_px, cut.direction))
             if cut is None and not dark and thickness_mm is not None:
@@ -301,9 +303,11 @@ def _cut_cast_shadows(
                 paper_codes[y0:y1, x0:x1] = np.median(paper)
                 if dark:
                     _blend_cut_edge(window, unpainted, mask, cut.cut, lut, np.median(paper))
-                if top_seen is not None:
+                if top_seen is not None and not coloured:
                     # the cut takes the shaded side wall with the shadow: where that wall faces the
-                    # camera, the outline then runs on the top face's edge
+                    # camera, the outline then runs on the top face's edge (a cut by colour keeps a
+                    # wall the other light lights, of the face's colour: where the outline runs is
+                    # left to the wall's own test)
                     near = cv2.dilate(cut.cut.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
                     top_seen[y0:y1, x0:x1] |= near
                 bottoms_px = 0.0
