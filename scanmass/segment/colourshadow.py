@@ -43,7 +43,7 @@ from __future__ import annotations
 import cv2
 import numpy as np
 
-from scanmass.segment.castshadow import CUT_MAX_SHARE, ShadowCut, roughness
+from scanmass.segment.castshadow import CUT_MAX_SHARE, ShadowCut, _with_rim, roughness
 
 __all__ = ["ShadowLines", "shadow_lines", "coloured_shadow_cut", "LINES_MIN_SPREAD"]
 
@@ -235,6 +235,11 @@ def coloured_shadow_cut(
     n_cut = int(np.count_nonzero(cut))
     if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
         return None
+    # the rim of blurred paper left between the cut and the paper would enclose the cut as a
+    # false hole once painted: it goes with the cut (as for a cut by grain)
+    cut = _with_rim(cut, part_mask)
+    keep = part_mask & ~cut
+    n_cut = int(np.count_nonzero(cut))
     k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
     border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
     rough = roughness(level)
