@@ -23,19 +23,19 @@ The lines are measured around the part, on the paper just outside the found regi
 darkened (the shadows' penumbrae beyond the outline, paper for sure): the colour of ``1 - q``
 there, the warmest and the coolest fifth of it giving the two lights' lines. A pixel of the
 region is shadow when it lies nearer a shadow line than the face's colours (its colour line
-through black, and the segment from the face to the paper white that its blurred edge
-follows) and is darker than the paper, reached from the region's boundary through such pixels, within a shadow's
-reach. A line is used only where the face lies far from it (a face of the blocked light's colour, or
-grey in white light, lies on it: colour cannot tell them); the cut is refused where no line
-is left or where the lines
-do not lean apart (one light colour: the grain rules of :mod:`scanmass.segment.castshadow`
-hold there).
+through black, and the segment from the face to the paper white that its blurred edge follows)
+and is darker than the paper, reached from the paper through such pixels (from outside the
+region or from a hole wider than a shadow's reach: a narrower bore of a thick part shows its own
+wall and shaded bottom), within a shadow's reach. A line is used only where the face lies far
+from it (a face of the blocked light's colour, or grey in white light, lies on it: colour cannot
+tell them); the cut is refused where no line is left or where the lines do not lean apart (one
+light colour: the grain rules of :mod:`scanmass.segment.castshadow` hold there).
 
 References
 ----------
 The model of a pixel as the sum of the lights reaching it, each scaled by the surface's
 reflectance per channel, is the common practice of illuminant estimation and shadow removal
-(diagonal, von Kries-type model of the camera's channels).
+(a diagonal model of the camera's channels).
 """
 
 from __future__ import annotations
@@ -43,7 +43,7 @@ from __future__ import annotations
 import cv2
 import numpy as np
 
-from scanmass.segment.castshadow import CUT_MAX_SHARE, ShadowCut, _with_rim, roughness
+from scanmass.segment.castshadow import CUT_MAX_SHARE, ShadowCut, _filled, _with_rim, roughness
 
 __all__ = ["ShadowLines", "shadow_lines", "coloured_shadow_cut", "LINES_MIN_SPREAD"]
 
@@ -221,8 +221,15 @@ def coloured_shadow_cut(
         return None  # the face lies near the shadow lines: colour cannot tell them apart
     off_line = np.minimum.reduce(off)
     like = part_mask & (off_line < off_face) & (level < _MAX_LEVEL) & (inside <= reach_px)
+    # reached from the paper: outside the region, or in a hole wider than a shadow's reach (a
+    # narrower bore of a thick part shows its own lit wall and shaded bottom, not a cast shadow)
+    paper = ~_filled(part_mask)
+    n_holes, holes, hole_stats, _ = cv2.connectedComponentsWithStats((~part_mask & ~paper).astype(np.uint8), 8)
+    wide = hole_stats[:, cv2.CC_STAT_AREA] > np.pi * reach_px**2
+    paper |= (holes > 0) & wide[holes]
+    near_paper = cv2.dilate(paper.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
     count, labels = cv2.connectedComponents(like.astype(np.uint8), connectivity=8)
-    touching = np.unique(labels[like & (inside <= 1.5)])
+    touching = np.unique(labels[like & near_paper])
     cut = np.isin(labels, touching[touching > 0])
     keep = part_mask & ~cut
     # pieces the cut parts from the face (a rim between two shadows, an island) go with it
