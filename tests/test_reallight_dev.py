@@ -132,8 +132,8 @@ def test_mixed_light_coloured_shadows_cut_from_black_parts():
     degrees of tilt). The shadow each light throws is lit by the other one, so it has that light's
     tint, not the paper white's; it is cut by colour (segment.colourshadow: the light a shadow pixel
     misses has the blocked light's colour). Before: cam +14.3 % in area, centroid 1.85 mm, hole
-    -1.19 mm; plate +4.8 %, centroid 0.97 mm (bench_reallight). Now -0.90 % / +0.85 %, centroids
-    0.20 / 0.43 mm, the cam's hole +0.05 mm."""
+    -1.19 mm; plate +4.8 %, centroid 0.97 mm (bench_reallight). Now -0.83 % / +0.93 %, centroids
+    0.19 / 0.44 mm, the cam's hole -0.01 mm."""
     for shape in ("cam", "plate"):
         m, part, tp = _part("dev-mixed-black-t15", shape)
         warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
