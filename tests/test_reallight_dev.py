@@ -139,6 +139,8 @@ def test_mixed_light_coloured_shadows_cut_from_black_parts():
         warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
         assert f" {part.label} (" in warning, shape
         assert "shadow_cut" in part.uncertainty_terms, shape
+        said = next(w for w in m.warnings if w.startswith("mixed light:"))  # named as cut by colour
+        assert f" {part.label}" in said.split(" the cut shadow")[0], shape
         assert abs(part.area_mm2 - tp["area"]) < 0.015 * tp["area"], shape  # was +14.3 / +4.8 %
         assert math.dist(part.centroid_mm, tp["centroid"]) < 0.6, shape  # was 1.85 / 0.97 mm
         assert _covered(part, tp), shape

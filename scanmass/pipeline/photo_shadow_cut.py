@@ -229,6 +229,7 @@ def _cut_cast_shadows(
     if isinstance(hook, ElevationHook):
         top_seen = np.zeros(grey.shape[:2], bool) if hook.top_seen is None else hook.top_seen.copy()
     opened: list[str] = []  # parts whose holes' dark bottoms were opened
+    by_colour: set[int] = set()  # id() of the parts whose cut was found by the shadows' colour
     painted = np.zeros(grey.shape[:2], bool)  # the cuts painted in the paper's level
     firsts = np.zeros(grey.shape[:2], bool)  # within the first outer outlines of the cut parts
     cut_faces = np.zeros(grey.shape[:2], bool)  # the same, less the cuts
@@ -273,6 +274,8 @@ def _cut_cast_shadows(
                 # mixed light: each light's shadow lit by the other, of its colour, not the paper's
                 cut = coloured_shadow_cut(colour_lin, mask, risk.paper_rgb, band_px)
                 coloured = cut is not None
+                if coloured:
+                    by_colour.add(id(part))
             if cut is not None and cut.direction is not None:
                 swept.append((cut.cut_px, cut.direction))
             if cut is None and not dark and thickness_mm is not None:
@@ -354,6 +357,7 @@ def _cut_cast_shadows(
     again, slivers = _open_slivers(masked, replace(scale, plane_map=plane_map), grey, again, cuts, band_px, remeasure)
     slivers = closed_notes + slivers
     done: list[str] = []
+    tinted: list[str] = []  # the new labels of the parts cut by the shadows' colour
     labels: set[int] = set()
     remnants: set[int] = set()
     said: dict[str, dict[str, float]] = {}
@@ -389,6 +393,8 @@ def _cut_cast_shadows(
             term = area_share_term(part, edge_mm * SHADOW_CUT_EDGE_PX * mm_per_px)
             part = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
             done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
+            if id(old) in by_colour:
+                tinted.append(str(part.label))
             labels.add(part.label)
             said[str(part.label)] = {"shadow_area_mm2": cut_mm2, "cut_edge_mm": edge_mm}
         again.parts[n] = part
@@ -418,6 +424,12 @@ def _cut_cast_shadows(
             f"or its fade out to the paper, told it from the part), was taken as cast shadow and left out{left}; the outline there runs on the step between the part and its "
             "shadow, and the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse "
             "light or a backlight"
+        )
+    if tinted:
+        out.append(
+            f"mixed light: in part(s) {', '.join(tinted)} the cut shadow was lit by another light of another colour "
+            "(each lamp's shadow takes the other lamp's colour) and was told from the part by that colour; "
+            "for a trustworthy figure use one diffuse light"
         )
     if slivers:
         out.append(

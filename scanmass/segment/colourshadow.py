@@ -224,7 +224,7 @@ def coloured_shadow_cut(
     # reached from the paper: outside the region, or in a hole wider than a shadow's reach (a
     # narrower bore of a thick part shows its own lit wall and shaded bottom, not a cast shadow)
     paper = ~_filled(part_mask)
-    n_holes, holes, hole_stats, _ = cv2.connectedComponentsWithStats((~part_mask & ~paper).astype(np.uint8), 8)
+    _, holes, hole_stats, _ = cv2.connectedComponentsWithStats((~part_mask & ~paper).astype(np.uint8), connectivity=8)
     wide = hole_stats[:, cv2.CC_STAT_AREA] > np.pi * reach_px**2
     paper |= (holes > 0) & wide[holes]
     near_paper = cv2.dilate(paper.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
