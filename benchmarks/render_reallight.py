@@ -35,7 +35,7 @@ with other shapes, placements and tilts; they belong to the tuned set::
 
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 \
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
-        dev-spot-steel-t20 dev-mixed-black-t15
+        dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -557,7 +557,7 @@ def scenes():
 def dev_scenes():
     """Development scenes added to the tuned set (``dev-*``): the conditions of the held-out set's
     largest errors (brass in soft light at a tilt, thick steel in window light, thin black parts in
-    window light at a tilt, thin steel under the spot at a tilt, a thick black part in mixed light)
+    window light at a tilt, thin steel under the spot at a tilt, thick black parts in mixed light)
     with other shapes, placements, thicknesses and tilts. They were rendered to find the mechanisms
     behind those errors without looking at the held-out images; entries as in :func:`scenes`.
     """
@@ -605,6 +605,17 @@ def dev_scenes():
             320,
             15,
             30,
+            "Standard",
+        ),
+        # branch mixed11: the two pale, coloured cast shadows of mixed light on black parts of other
+        # shapes, thicknesses and placements (a gasket and a thick disc, no tilt)
+        (
+            "dev-mixed-black-t0",
+            "mixed",
+            [("gasket", "black-plastic", 3.0, 90, 200, 0), ("disc", "black-plastic", 5.0, 125, 100, 60)],
+            310,
+            0,
+            0,
             "Standard",
         ),
     ]
