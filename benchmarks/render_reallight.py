@@ -35,7 +35,8 @@ with other shapes, placements and tilts; they belong to the tuned set::
 
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 \
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
-        dev-spot-steel-t20 dev-mixed-black-t15 dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15
+        dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
+        dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -557,7 +558,7 @@ def scenes():
 def dev_scenes():
     """Development scenes added to the tuned set (``dev-*``): the conditions of the held-out set's
     largest errors (brass in soft light at a tilt, thick steel in window light, thin black parts in
-    window light at a tilt, thin steel under the spot at a tilt, a thick black part in mixed light)
+    window light at a tilt, thin steel under the spot at a tilt, thick black parts in mixed light)
     with other shapes, placements, thicknesses and tilts; then more brushed steel under the spot and in
     window light (``dev-spot-steel2``/``3``, ``dev-window-steel2``: a face's lit sectors as bright as
     the paper, and faces that stay dark, so that the rule for lit sectors is not fit to one image). They were rendered to find the mechanisms
@@ -634,6 +635,17 @@ def dev_scenes():
             320,
             15,
             30,
+            "Standard",
+        ),
+        # branch mixed11: the two pale, coloured cast shadows of mixed light on black parts of other
+        # shapes, thicknesses and placements (a gasket and a thick disc, no tilt)
+        (
+            "dev-mixed-black-t0",
+            "mixed",
+            [("gasket", "black-plastic", 3.0, 90, 200, 0), ("disc", "black-plastic", 5.0, 125, 100, 60)],
+            310,
+            0,
+            0,
             "Standard",
         ),
     ]

@@ -44,6 +44,34 @@ def test_exact_distance_is_scipy_edt_rounded_to_float32():
         assert np.array_equal(got, ref)
 
 
+def test_exact_distance_of_a_turned_mask_is_the_turned_distance():
+    """Transposed and flipped masks (the four directions scanface reads, and the rest of the grid's
+    symmetries) give the transposed and flipped distances, bit for bit, as scipy's edt (the
+    reference) of the turned mask does; masks touching the image's border included."""
+    from scipy import ndimage
+
+    turns = [
+        lambda a: a,
+        lambda a: a[::-1],
+        lambda a: a[:, ::-1],
+        lambda a: a.T,
+        lambda a: a.T[::-1],
+        lambda a: a[::-1, ::-1].T,
+    ]
+    rng = np.random.default_rng(4)
+    masks = list(_masks())[:20]
+    masks += [
+        (rng.random((int(rng.integers(5, 90)), int(rng.integers(5, 90)))) < 0.9).astype(np.uint8) for _ in range(20)
+    ]
+    for mask in masks:
+        whole = exact_distance(mask)
+        for turn in turns:
+            turned = np.ascontiguousarray(turn(mask))
+            got = exact_distance(turned)
+            assert np.array_equal(got, turn(whole))
+            assert np.array_equal(got, ndimage.distance_transform_edt(turned).astype(np.float32))
+
+
 _STATES = r"""
 import json, sys, tempfile
 from pathlib import Path

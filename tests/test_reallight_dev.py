@@ -176,15 +176,47 @@ def test_steel_plate_with_sectors_as_bright_as_the_paper():
     assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
 
 
-def test_mixed_light_shadow_left_in_is_warned_and_covered():
-    """dev-mixed-black-t15: black cam 6 mm and plate 3 mm under a warm lamp and a cool window. The
-    shadow each light throws is lit by the other one, so it has that light's tint, not the paper
-    white's, and is not cut: cam +14.3 %, plate +4.8 % in area (bench_reallight). Not resolved;
-    each part is named in the 'cast shadow' warning and its area and centroid lie within 3
-    stated sigma."""
+def test_mixed_light_coloured_shadows_cut_from_black_parts():
+    """dev-mixed-black-t15: black cam 6 mm and plate 3 mm under a warm lamp and a cool window (15
+    degrees of tilt). The shadow each light throws is lit by the other one, so it has that light's
+    tint, not the paper white's; it is cut by colour (segment.colourshadow: the light a shadow pixel
+    misses has the blocked light's colour). Before: cam +14.3 % in area, centroid 1.85 mm, hole
+    -1.19 mm; plate +4.8 %, centroid 0.97 mm (bench_reallight). Now -0.83 % / +0.93 %, centroids
+    0.19 / 0.44 mm, the cam's hole -0.01 mm."""
     for shape in ("cam", "plate"):
         m, part, tp = _part("dev-mixed-black-t15", shape)
-        warning = next(w for w in m.warnings if w.startswith("cast shadow:"))
+        warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
         assert f" {part.label} (" in warning, shape
-        assert part.area_mm2 > tp["area"], shape  # the shadow left in
+        assert "shadow_cut" in part.uncertainty_terms, shape
+        said = next(w for w in m.warnings if w.startswith("mixed light:"))  # named as cut by colour
+        assert f" {part.label}" in said.split(" the cut shadow")[0], shape
+        assert abs(part.area_mm2 - tp["area"]) < 0.015 * tp["area"], shape  # was +14.3 / +4.8 %
+        assert math.dist(part.centroid_mm, tp["centroid"]) < 0.6, shape  # was 1.85 / 0.97 mm
         assert _covered(part, tp), shape
+        for centre, diameter in tp["holes"]:
+            hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+            assert abs(hole.diameter_mm - diameter) < 0.2, shape  # the cam's was -1.19 mm
+
+
+def test_mixed_light_black_gasket_cut_outside_and_covered():
+    """dev-mixed-black-t0 (rendered for branch mixed11, no tilt): a black gasket 3 mm thick under the
+    same two lights. Its outer shadow is cut by colour (+11.7 % -> +5.8 % in area, centroid 0.75 ->
+    0.14 mm); what is left is its bore, 1.0 mm too small on the side whose wall faces the camera
+    (see the xfail below). Within 3 stated sigma."""
+    m, part, tp = _part("dev-mixed-black-t0", "gasket")
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < 0.08 * tp["area"]  # was +11.7 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.3  # was 0.75 mm
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black-t0: the black gasket's 29 mm bore reads 1.02 mm small (+5.8 % in area; 0.6 sigma): "
+    "on its side whose wall faces the camera the outline runs at the wall's foot inside the bore, not on the top "
+    "face's edge; the thick disc's cut by grain runs 0.5-0.9 mm inside its shadow side (-1.57 %, 0.2 sigma)",
+)
+def test_mixed_light_black_gasket_bore_and_disc_within_1_percent():
+    for shape in ("gasket", "disc"):
+        m, part, tp = _part("dev-mixed-black-t0", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"], shape

@@ -278,3 +278,93 @@ def test_local_peaks_and_watershed_are_scikit_images():
                 want_ws = watershed(-dist, markers, mask=m.astype(bool), watershed_line=line)
                 assert np.array_equal(_watershed(-dist, markers, m, line=line), want_ws)
     assert peaks_seen > 200
+
+
+def _with_holes(count: int, seed: int):
+    """Random two-lobe silhouettes (``_two_lobe_masks``), each with up to two round holes cut inside it."""
+    import cv2
+
+    rng = np.random.default_rng(seed)
+    for outer in _two_lobe_masks(count, seed=seed):
+        m = np.zeros((500, 700), np.uint8)
+        cv2.fillPoly(m, [np.round(outer).astype(np.int32)], 1)
+        inside = cv2.distanceTransform(m, cv2.DIST_L2, 5)
+        holes = []
+        for _ in range(int(rng.integers(0, 3))):
+            rows, cols = np.nonzero(inside > 12)
+            if rows.size == 0:
+                break
+            k = int(rng.integers(rows.size))
+            r = float(rng.uniform(3, 0.8 * inside[rows[k], cols[k]]))
+            t = np.linspace(0, 2 * np.pi, 48, endpoint=False)
+            holes.append(np.column_stack([cols[k] + r * np.cos(t), rows[k] + r * np.sin(t)]))
+            cv2.circle(m, (int(cols[k]), int(rows[k])), int(r) + 3, 0, -1)
+            inside = cv2.distanceTransform(m, cv2.DIST_L2, 5)
+        yield outer, holes
+
+
+def test_joined_peaks_skip_the_watershed_with_the_same_answer(monkeypatch):
+    """With two peaks joined above NECK_RATIO of the largest distance the watershed is skipped: on
+    random silhouettes with and without holes, the answer of the full search (scikit-image's
+    watershed run every time, peak_test=False) is unchanged, and the proof's step 2 holds for the
+    installed scikit-image: the flood's line between the two basins has a pixel that high."""
+    import cv2
+
+    from scanmass.segment import touching
+    from scanmass.segment.distance import exact_distance
+    from scanmass.segment.touching import NECK_RATIO, _local_peaks, _peaks_joined_high, _watershed, touching_lobes
+
+    skips_in_search: list[bool] = []
+    monkeypatch.setattr(
+        touching,
+        "_peaks_joined_high",
+        lambda d, p: skips_in_search.append(_peaks_joined_high(d, p)) or skips_in_search[-1],
+    )
+    skipped = found = 0
+    for outer, holes in _with_holes(160, seed=11):
+        full = touching_lobes(outer, holes, solidity_limit=2.0, peak_test=False)
+        assert touching_lobes(outer, holes, solidity_limit=2.0) == full
+        found += full is not None
+        # the proof's claim, on the full-resolution mask (the flood itself, not touching_lobes' verdict)
+        m = np.zeros((500, 700), np.uint8)
+        cv2.fillPoly(m, [np.round(outer).astype(np.int32)], 1)
+        for h in holes:
+            cv2.fillPoly(m, [np.round(h).astype(np.int32)], 0)
+        dist = exact_distance(m)
+        peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), m)
+        if _peaks_joined_high(dist, peaks):
+            skipped += 1
+            markers = np.zeros(m.shape, np.int32)
+            markers[peaks[0][0], peaks[0][1]], markers[peaks[1][0], peaks[1][1]] = 1, 2
+            basins = _watershed(-dist, markers, m, line=True)
+            grown = [cv2.dilate((basins == k).astype(np.uint8), np.ones((3, 3), np.uint8)) > 0 for k in (1, 2)]
+            between = (basins == 0) & (m > 0) & grown[0] & grown[1]
+            assert between.any() and float(dist[between].max()) >= NECK_RATIO * float(dist.max())
+    assert skipped >= 12 and sum(skips_in_search) >= 12 and found >= 5  # both branches taken
+
+
+def test_necked_discs_are_still_reported_and_a_holed_disc_skipped(monkeypatch):
+    """Two discs of radius 50 px, centres 96 px apart, meet in a chord 2 sqrt(50^2 - 48^2) = 28 px long
+    (closed form): 0.28 of a lobe's 100 px width, a neck; their two peaks are not joined above
+    NECK_RATIO of the largest distance, so the watershed runs and reports it. A disc of radius 150 px
+    with a round hole of 30 px, 5 px off its centre (a washer, no neck), has two peaks joined high:
+    its watershed is skipped, and run anyway it reports no neck either."""
+    from shapely.geometry import Point
+
+    from scanmass.segment import touching
+
+    calls: list[int] = []
+    real = touching._watershed
+    monkeypatch.setattr(touching, "_watershed", lambda *a, **k: calls.append(1) or real(*a, **k))
+    pair = Point(100.0, 100.0).buffer(50.0, 256).union(Point(196.0, 100.0).buffer(50.0, 256))  # shapely's union
+    neck = touching.touching_lobes(np.asarray(pair.exterior.coords)[:-1])
+    assert neck is not None and calls
+    # the closed-form chord, plus 1 px a side (distances run to the centre of the first pixel outside),
+    # +-2 px for the watershed line's pixel lying beside the chord
+    assert neck.neck_width_px == pytest.approx(28.0 + 2.0, abs=2.0)
+    calls.clear()
+    t = np.linspace(0.0, 2 * np.pi, 721)[:-1]
+    disc = np.column_stack([200 + 150 * np.cos(t), 200 + 150 * np.sin(t)])
+    hole = np.column_stack([205 + 30 * np.cos(t), 200 + 30 * np.sin(t)])
+    assert touching.touching_lobes(disc, [hole]) is None and not calls
+    assert touching.touching_lobes(disc, [hole], peak_test=False) is None and calls

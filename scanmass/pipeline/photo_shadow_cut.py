@@ -25,6 +25,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.castshadow import core_cut, dark_tinted_face, fade_cut, hole_bottoms, shadow_cut
+from scanmass.segment.colourshadow import coloured_shadow_cut
 from scanmass.segment.shadow import SHADOW_FRACTION, looks_like_shadow_only, shadow_band_px, shadow_risk
 from scanmass.segment.sidewall import LostWall, lost_wall_band
 
@@ -228,6 +229,7 @@ def _cut_cast_shadows(
     if isinstance(hook, ElevationHook):
         top_seen = np.zeros(grey.shape[:2], bool) if hook.top_seen is None else hook.top_seen.copy()
     opened: list[str] = []  # parts whose holes' dark bottoms were opened
+    by_colour: set[int] = set()  # id() of the parts whose cut was found by the shadows' colour
     painted = np.zeros(grey.shape[:2], bool)  # the cuts painted in the paper's level
     firsts = np.zeros(grey.shape[:2], bool)  # within the first outer outlines of the cut parts
     cut_faces = np.zeros(grey.shape[:2], bool)  # the same, less the cuts
@@ -253,6 +255,7 @@ def _cut_cast_shadows(
                 wall_mm2 = float(np.count_nonzero(wall.band & ~mask)) * mm_per_px**2
         risk = shadow_risk(colour_lin, mask, band_px)
         cut = None
+        coloured = False  # a cut by the shadows' colour (mixed light), not by their grain
         dark = risk is not None and dark_tinted_face(colour_lin, mask, risk.paper_rgb, band_px)
         if dark and risk is not None:
             # a dark plastic face: its shadow is cut on the outline where the photo shows it (a
@@ -269,6 +272,12 @@ def _cut_cast_shadows(
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
             cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
+            if cut is None and dark:
+                # mixed light: each light's shadow lit by the other, of its colour, not the paper's
+                cut = coloured_shadow_cut(colour_lin, mask, risk.paper_rgb, band_px)
+                coloured = cut is not None
+                if coloured:
+                    by_colour.add(id(part))
             if cut is not None and cut.direction is not None:
                 swept.append((cut.cut_px, cut.direction))
             if cut is None and not dark and thickness_mm is not None:
@@ -299,9 +308,11 @@ def _cut_cast_shadows(
                 paper_codes[y0:y1, x0:x1] = np.median(paper)
                 if dark:
                     _blend_cut_edge(window, unpainted, mask, cut.cut, lut, np.median(paper))
-                if top_seen is not None:
+                if top_seen is not None and not coloured:
                     # the cut takes the shaded side wall with the shadow: where that wall faces the
-                    # camera, the outline then runs on the top face's edge
+                    # camera, the outline then runs on the top face's edge (a cut by colour keeps a
+                    # wall the other light lights, of the face's colour: where the outline runs is
+                    # left to the wall's own test)
                     near = cv2.dilate(cut.cut.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
                     top_seen[y0:y1, x0:x1] |= near
                 bottoms_px = 0.0
@@ -348,6 +359,7 @@ def _cut_cast_shadows(
     again, slivers = _open_slivers(masked, replace(scale, plane_map=plane_map), grey, again, cuts, band_px, remeasure)
     slivers = closed_notes + slivers
     done: list[str] = []
+    tinted: list[str] = []  # the new labels of the parts cut by the shadows' colour
     labels: set[int] = set()
     remnants: set[int] = set()
     said: dict[str, dict[str, float]] = {}
@@ -383,6 +395,8 @@ def _cut_cast_shadows(
             term = area_share_term(part, edge_mm * SHADOW_CUT_EDGE_PX * mm_per_px)
             part = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
             done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
+            if id(old) in by_colour:
+                tinted.append(str(part.label))
             labels.add(part.label)
             said[str(part.label)] = {"shadow_area_mm2": cut_mm2, "cut_edge_mm": edge_mm}
         again.parts[n] = part
@@ -412,6 +426,12 @@ def _cut_cast_shadows(
             f"or its fade out to the paper, told it from the part), was taken as cast shadow and left out{left}; the outline there runs on the step between the part and its "
             "shadow, and the uncertainty includes its place (term 'shadow_cut'); for a trustworthy figure use diffuse "
             "light or a backlight"
+        )
+    if tinted:
+        out.append(
+            f"mixed light: in part(s) {', '.join(tinted)} the cut shadow was lit by another light of another colour "
+            "(each lamp's shadow takes the other lamp's colour) and was told from the part by that colour; "
+            "for a trustworthy figure use one diffuse light"
         )
     if slivers:
         out.append(

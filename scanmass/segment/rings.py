@@ -584,13 +584,14 @@ def _refine_part(
     grown4 = cv2.dilate(comp, kernel, iterations=4)
     shrunk4 = cv2.erode(comp, kernel, iterations=4)
     band = grown4 != shrunk4  # within ~4 px of any boundary of the part: where edges lie
-    near = cv2.dilate(filled, kernel, iterations=4).astype(bool)
-    band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3).astype(bool) & ~near
-    hole_space = filled.astype(bool) & ~grown4.astype(bool)
+    # the masks hold 0 and 1 (drawn with 1, dilated, eroded): read as bool in place, not converted
+    near = cv2.dilate(filled, kernel, iterations=4).view(bool)
+    band_out = cv2.dilate(filled, kernel, iterations=_PAD_PX + 3).view(bool) & ~near
+    hole_space = filled.view(bool) & ~grown4.view(bool)
     # the part's own level next to its edges: pixels 4 to ~18 px inside; for thin parts the
     # central ridge (at least 3/4 of the largest inside distance), so that the level keeps
     # following the illumination along a thin ring or strip
-    interior = shrunk4.astype(bool) & ~cv2.erode(shrunk4, kernel, iterations=_PAD_PX + 8).astype(bool)
+    interior = shrunk4.view(bool) & ~cv2.erode(shrunk4, kernel, iterations=_PAD_PX + 8).view(bool)
     depth_px = 4.0
     if np.count_nonzero(interior) < 300:  # a thin part: take its central ridge instead
         inside_px = cv2.distanceTransform(comp, cv2.DIST_L2, 3)  # approximate distances suffice here
@@ -614,7 +615,7 @@ def _refine_part(
             keep = np.ones_like(keep)
         coef_b, ord_b, sig_b, n_b = _fit_surface(bg_lin[keep], rb[keep].astype(float), cb[keep].astype(float), scale, 2)
         bg_band = _eval_points(coef_b, ord_b, band_rows, band_cols, scale)
-        if interior.sum() >= 20:
+        if np.count_nonzero(interior) >= 20:
             rf, cf = _sample(interior)
             coef_f, ord_f, sig_f, n_f = _fit_surface(
                 lut[grey_crop[rf, cf]].astype(np.float64), rf.astype(float), cf.astype(float), scale, 2

@@ -563,7 +563,7 @@ def _shadow_length(
     return length, prominence, step
 
 
-def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, least: float) -> tuple[int, float]:
+def _front_steps(smooth: np.ndarray, filled: np.ndarray, depth: np.ndarray, least: float) -> tuple[int, float]:
     """The length (px) of a shadow cast up the rows, and the share of its front with the face's step behind it.
 
     As :func:`_shadow_length` with an interior mask: the length is where the rows' signed
@@ -579,10 +579,10 @@ def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, leas
     :data:`ASIDE_PX` before or after the step: a curved front's step is steep along the
     lamp's axis only where the front faces it, so each line near the arc's ends may lose
     it in the noise while the whole arc's average does not. (0, 0.0) when no length is found.
+    ``depth`` is the found region's :func:`_found_depth`, turned as the other arrays are.
     """
     # a step inside the part: read clear of the outline and the holes by twice the px it is read across (the
     # signed average over a long front finds even the far tail of a part's own edge)
-    depth = exact_distance(np.ascontiguousarray(found).astype(np.uint8))
     kept = depth > SWEEP_STEP_READ_PX
     length, prominence, step = _shadow_length(smooth, filled, depth > 2 * SWEEP_STEP_READ_PX)
     if length < SWEEP_MIN_LENGTH_PX or prominence < HARD_FRONT_PROMINENCE or step <= 0.0:
@@ -619,6 +619,17 @@ def _front_steps(smooth: np.ndarray, filled: np.ndarray, found: np.ndarray, leas
     return length, float(np.count_nonzero(stepped)) / max(rows.size, 1)
 
 
+def _found_depth(found: np.ndarray) -> np.ndarray:
+    """The exact Euclidean distance (px) of each pixel of the found region to the nearest pixel outside it.
+
+    Computed once for all four directions: the exact distance of a turned mask (:func:`_up`:
+    a transpose and a flip) is the turned exact distance, as the squared distance to the
+    nearest zero pixel is a whole number that no transpose or flip of the grid changes
+    (:func:`scanmass.segment.distance.exact_distance`; tests/test_distance.py).
+    """
+    return exact_distance(np.ascontiguousarray(found).astype(np.uint8))
+
+
 def _hard_front(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tuple[np.ndarray, int] | None:
     """The lamp's direction and the shadow's length (px) of a shadow with a hard front, or None.
 
@@ -649,11 +660,12 @@ def _hard_front(linear: np.ndarray, filled: np.ndarray, found: np.ndarray) -> tu
     interior = cv2.erode(found, np.ones((3, 3), np.uint8), iterations=4).astype(bool)
     rows, cols = nonzero_every(interior, max(1, int(np.count_nonzero(interior)) // 20000))
     best: tuple[np.ndarray, int] | None = None
+    depth = _found_depth(found)
     for direction, _ in candidates:  # the reduced copy's finds, read again at full size
         axis = int(np.argmax(np.abs(direction)))
         along = _along_step(smooth, axis)
         least = max(HARD_FRONT_NOISE * _mad(_axis_gradient(along, axis)[rows, cols]), HARD_FRONT_STEP * abs(contrast))
-        length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(found, direction), least)
+        length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(depth, direction), least)
         if share >= HARD_FRONT_COVERAGE and (best is None or length < best[1]):
             best = (direction, length)
     return best
@@ -715,6 +727,7 @@ def _steep_axes(
     # the gradient's noise from a sample of the interior (every k-th pixel, about 5000: a median over a large part is slow)
     rows, cols = nonzero_every(interior, max(1, count // 5000))
     found_dirs: list[tuple[np.ndarray, int]] = []
+    depth: np.ndarray | None = None  # the found region's depth, once for every direction read
     for axis in (0, 1):
         along = _along_step(smooth, axis)
         grad = _axis_gradient(along, axis)
@@ -726,7 +739,9 @@ def _steep_axes(
         for sign in (1.0, -1.0):
             direction = np.zeros(2)
             direction[axis] = sign
-            length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(found, direction), least)
+            if depth is None:
+                depth = _found_depth(found)
+            length, share = _front_steps(_up(along, direction), _up(filled, direction), _up(depth, direction), least)
             if share >= HARD_FRONT_COVERAGE:
                 found_dirs.append((direction, length))
     return found_dirs, contrast, factor

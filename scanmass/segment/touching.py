@@ -112,8 +112,55 @@ def _watershed(relief: np.ndarray, markers: np.ndarray, mask: np.ndarray, *, lin
     return output[1:-1, 1:-1].copy()
 
 
+def _peaks_joined_high(dist: np.ndarray, peaks: np.ndarray) -> bool:
+    """Whether two peaks of ``dist`` are joined by a 4-connected path of pixels at least ``NECK_RATIO * dist.max()``.
+
+    When they are, :func:`touching_lobes` with exactly these two markers reports no neck,
+    so its watershed need not run. Proof, for scikit-image's flooding
+    (``skimage.segmentation.watershed(-dist, markers, mask, watershed_line=True)``, the
+    routine :func:`_watershed` calls), using only what its variants share: pixels leave a
+    heap in order of (value, age); a marker starts there (at its own relief, or below every
+    relief); a pixel's value is at least its relief ``-dist`` and, when a labelled
+    neighbour whose value was at most ``-s`` pushes it, at most ``max(-dist, -s)``; at its
+    first pop a pixel either takes its pusher's label or, if a neighbour that is not a line
+    pixel carries another label, becomes a line pixel for good; labelled pixels push every
+    unlabelled 4-neighbour in the mask. Let ``s = NECK_RATIO * D`` (``D = dist.max()``) and
+    ``C`` the 4-connected set of pixels with ``dist >= s`` that holds both peaks.
+
+    1. Some line pixel is made while every pop so far had a value at most ``-s``: were
+       none, then up to the first pop above ``-s`` every popped pixel is labelled and has
+       pushed its neighbours, so every pixel of ``C`` (connected, holding both markers,
+       each pushed at most ``-s``) is popped by then; ``C`` holds both labels, so two
+       4-neighbours in it carry different labels, and the later popped of them saw the
+       other and became a line pixel, a contradiction.
+    2. The first line pixel ``x`` made was pushed by a labelled neighbour (no line pixel
+       existed before it) and has a 4-neighbour of the other label; both labels are
+       final, so with two markers ``x`` lies on the line between the two basins
+       (``between``), and its pop value at most ``-s`` gives ``dist(x) >= s``.
+    3. Hence the neck ``2 max dist[between] >= 2 s``, and each lobe's width is at most
+       ``2 D``: ``neck >= NECK_RATIO * min(widths)`` holds (in floating point too: the
+       comparison of float32 distances against ``s`` is made in float64, doubling is
+       exact and rounding is monotone), and no neck is reported.
+
+    With more than two markers the two largest basins need not be the pair at ``x``, so
+    nothing is decided here. ``tests/test_touching.py`` checks step 2's claim against the
+    installed scikit-image on random silhouettes.
+    """
+    if len(peaks) != 2:
+        return False
+    level = NECK_RATIO * float(dist.max())
+    high = (dist.astype(np.float64) >= level).view(np.uint8)
+    _, comp = cv2.connectedComponents(high, connectivity=4)
+    (r0, c0), (r1, c1) = peaks
+    return bool(comp[r0, c0] != 0 and comp[r0, c0] == comp[r1, c1])
+
+
 def touching_lobes(
-    outer_px: np.ndarray, holes_px: list[np.ndarray] | None = None, *, solidity_limit: float = SOLIDITY_LIMIT
+    outer_px: np.ndarray,
+    holes_px: list[np.ndarray] | None = None,
+    *,
+    solidity_limit: float = SOLIDITY_LIMIT,
+    peak_test: bool = True,
 ) -> NeckReport | None:
     """Whether a part's silhouette looks like two parts touching, from its rings in pixels.
 
@@ -121,7 +168,9 @@ def touching_lobes(
     hull (:func:`solidity`) has no notch for a neck and is passed over without the search
     below (pass a value above 1 to search every part). Parts with holes are always
     searched: a hole near the middle of a strip pinches it into two lobes however little
-    of the hull it takes.
+    of the hull it takes. With two peaks joined by a path at least :data:`NECK_RATIO` of
+    the largest distance high, the watershed is not run: it could report no neck (the
+    proof is in :func:`_peaks_joined_high`; ``peak_test=False`` runs it anyway).
 
     The filled ring (holes cleared) is rasterised on a grid of at most ~400 px across; its
     Euclidean distance transform [1]_ gives each lobe's inscribed radius (its maximum) and
@@ -152,7 +201,7 @@ def touching_lobes(
     if dist.max() < 3:
         return None
     peaks = _local_peaks(dist, max(3, int(0.5 * dist.max())), 0.3 * dist.max(), mask)
-    if len(peaks) < 2:
+    if len(peaks) < 2 or (peak_test and _peaks_joined_high(dist, peaks)):
         return None
     markers = np.zeros(mask.shape, np.int32)
     for k, (r, c) in enumerate(peaks, start=1):
