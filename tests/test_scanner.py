@@ -237,23 +237,22 @@ def test_shadow_lighter_than_the_part_is_left_out(part, shadow_mm):
     assert "top side" in m.warnings[-1]
 
 
-@pytest.mark.parametrize(("part", "outcome"), [(PLATE, "separated"), (DISC, "flagged")])
-def test_shadow_as_dark_as_the_part_is_separated_or_flagged(part, outcome):
+@pytest.mark.parametrize(("part", "width_mm", "tolerance"), [(PLATE, 50.0, 0.003), (DISC, 30.0, 0.01)])
+def test_shadow_as_dark_as_the_part_is_separated(part, width_mm, tolerance):
     """A shadow 0.01 above the part's level (noise 0.004): no level separates them. The plate's straight
-    front puts one sharp step the shadow's length behind it, and the sweep finds the face; the disc's
-    curved front gives too weak a step there, so its outline keeps the shadow, flagged and covered."""
+    front puts one sharp step the shadow's length behind it, and the sweep finds the face. The disc's
+    curved front gives a weaker step there; its far arc (a step of the whole contrast, to the lid)
+    outweighed it until the step was read inside the found region only: the disc's outline kept the
+    shadow (+25 %, flagged); now the face is found (measured +0.42 %; the plate +0.06 %)."""
     m = scanmass.measure(_shadow_scan(part, 6.0, shadow=0.05), dpi=300)
     (found,) = m.parts
-    poly = Polygon(part.outer_mm)
+    poly = Polygon(part.outer_mm)  # shapely: the truth (the rectangle, or the circle as its inscribed polygon)
     assert abs(found.area_mm2 - poly.area) <= 3 * found.area_u_mm2
     for c, t, u in zip(found.centroid_mm, (poly.centroid.x, poly.centroid.y), found.centroid_u_mm):
         assert abs(c - t) <= 3 * u
-    if outcome == "separated":
-        assert abs(found.area_mm2 - poly.area) <= 0.003 * poly.area  # measured +0.06 %
-        assert m.settings["scan_face"]["shadow_left_out"]["1"] == pytest.approx(50.0 * 6.0, rel=0.15)  # 50 mm wide
-    else:
-        assert found.area_mm2 > poly.area + 0.8 * 6.0 * 30.0  # the shadow is in the outline ...
-        assert any("face on the glass cannot be told from it" in w for w in m.warnings)
+    assert abs(found.area_mm2 - poly.area) <= tolerance * poly.area
+    # the shadow's band: the part's width across the lamp times the shadow's 6 mm (a disc's swept band is as large)
+    assert m.settings["scan_face"]["shadow_left_out"]["1"] == pytest.approx(width_mm * 6.0, rel=0.15)
 
 
 def _crossing_shadow_scan(

@@ -380,6 +380,7 @@ def _face_from_seed(
     *,
     sharp_holes: bool = False,
     not_face: np.ndarray | None = None,
+    cast_px: int | None = None,
 ) -> FaceResult | None:
     """The face's rings from a seed region at the part's level, placed by the local levels either side.
 
@@ -391,7 +392,10 @@ def _face_from_seed(
     With ``sharp_holes`` only inner rings as sharp as the face's edges (half their median
     slope) are holes: a hole's edge on the glass is in focus, a metal's sheen is not.
     ``not_face`` marks known holes (to their rims): inside them, deeper than 2 px, nothing
-    counts as face whatever its level.
+    counts as face whatever its level. With ``cast_px`` (the sweep's shadow length, px) a
+    removed pixel the face's own shadow reaches (the face swept that far along the lamp's
+    direction) is a cast shadow wherever the face lies beyond it: the shadow one arm of an
+    L bracket throws into the inner corner ends at the other arm.
     """
     from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
 
@@ -455,7 +459,13 @@ def _face_from_seed(
     contours, _ = cv2.findContours(face0, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
     face_filled = np.zeros(shape, np.uint8)
     cv2.drawContours(face_filled, contours, -1, 1, thickness=cv2.FILLED)
-    if _upstream_share(found.astype(bool) & ~face_filled.astype(bool), face0.astype(bool), direction) > 0.1:
+    removed = found.astype(bool) & ~face_filled.astype(bool)
+    if cast_px is not None:  # what the face's own shadow reaches is a cast shadow, whatever lies beyond it
+        swept = _back(cv2.dilate(_up(face0, direction), np.ones((cast_px + 1, 1), np.uint8), anchor=(0, 0)), direction)
+        # ... and its sides, soft as its front is (the lamp's width, the lid out of focus)
+        swept = cv2.dilate(swept, kernel, iterations=SWEEP_MARGIN_PX)
+        removed &= ~swept.astype(bool)
+    if _upstream_share(removed, face0.astype(bool), direction) > 0.1:
         return None
     blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
     face_outer = correct_curvature(face_outer, blur)
@@ -497,7 +507,7 @@ def _back(a: np.ndarray, direction: np.ndarray) -> np.ndarray:
 
 
 def _shadow_length(
-    smooth: np.ndarray, filled: np.ndarray, interior: np.ndarray | None = None
+    smooth: np.ndarray, filled: np.ndarray, interior: np.ndarray | None = None, *, within: np.ndarray | None = None
 ) -> tuple[int, float, float]:
     """The shadow's length (px) along the rows' upward direction, how clearly it shows, and the step there.
 
@@ -514,7 +524,12 @@ def _shadow_length(
     middle of a disc's far arc), and is not a step inside the part. The gradient is then
     signed (noise averages out over a long front, a step of one sign does not), the mean
     taken from its median over the search range, and the prominence is in sigmas of that
-    departure (1.4826 times its median).
+    departure (1.4826 times its median). With ``within`` (a mask of the found region clear of
+    its outline and holes) the unsigned gradient is read only there, at offsets where at least
+    half the fronts reach it: the face's edge against its shadow lies inside the found region,
+    while the rim of a wide bore's lit floor (the lid seen through it) is a step of the whole
+    contrast that many fronts of a ring's shadow meet at one offset (a ring's width plus its
+    shadow's length), and outweighs a faint face-to-shadow step.
     """
     h = smooth.shape[0]
     grad = np.zeros_like(smooth)
@@ -531,10 +546,11 @@ def _shadow_length(
     offsets = np.arange(extent)
     at = rows[None, :] + offsets[:, None]
     ok = at < h
-    if interior is not None:
-        ok &= interior[np.minimum(at, h - 1), cols[None, :]]
+    reads = interior if interior is not None else within
+    if reads is not None:
+        ok &= reads[np.minimum(at, h - 1), cols[None, :]]
     score = np.where(ok, grad[np.minimum(at, h - 1), cols[None, :]], 0.0).sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
-    valid = np.ones(extent, bool) if interior is None else ok.sum(axis=1) >= 0.5 * rows.size
+    valid = np.ones(extent, bool) if reads is None else ok.sum(axis=1) >= 0.5 * rows.size
     if interior is not None:  # the signed gradient's mean: noise averages out, a step of one sign does not
         score = np.abs(score - np.median(score[valid])) if valid.any() else np.zeros_like(score)
     score[~valid] = 0.0
@@ -766,10 +782,13 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
     filled = ctx.filled
     clear = None
+    depth = exact_distance(np.ascontiguousarray(ctx.found).astype(np.uint8))
     if hard:
-        depth = exact_distance(np.ascontiguousarray(ctx.found).astype(np.uint8))
         clear = _up(depth > 2 * SWEEP_STEP_READ_PX, direction)
-    length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction), clear)
+    # the face's edge against its shadow lies inside the found region: the unsigned gradient is read clear of
+    # the outline and the holes' rims (the lid seen through a wide bore)
+    within = _up(depth > SWEEP_STEP_READ_PX, direction)
+    length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction), clear, within=within)
     least = SWEEP_MIN_PROMINENCE if clear is None else HARD_FRONT_PROMINENCE
     if length < SWEEP_MIN_LENGTH_PX or prominence < least or step <= 0.0:
         return None
@@ -823,7 +842,9 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         return None
     face0 = np.asarray(comp == 1 + int(np.argmax(stats[1:, cv2.CC_STAT_AREA])), dtype=np.uint8)
     part_surface = _normalised_blur(linear, face0.astype(bool), SWEEP_LEVEL_SIGMA_PX, ctx.levels[2])
-    face = _face_from_seed(linear, ctx, face0, part_surface, step, min_hole_px, sharp_holes=True, not_face=hole)
+    face = _face_from_seed(
+        linear, ctx, face0, part_surface, step, min_hole_px, sharp_holes=True, not_face=hole, cast_px=reach + 3
+    )
     return None if face is None else replace(face, local_levels=True, note="separated by the sweep")
 
 
