@@ -828,7 +828,9 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         if np.median(slope[rim]) >= SWEEP_HOLE_RIM * abs(core):  # a sharp rim: a hole's edge on the glass
             hole |= patch
     hole |= (filled.astype(bool) & ~ctx.found.astype(bool)).astype(np.uint8)  # holes found as such (lit floors)
-    hole |= _shadowed_floors(filled, ctx.found, swept_off, hole.astype(bool), smooth, dev, step, lo, hi)
+    hole |= _shadowed_floors(
+        filled, ctx.found, swept_off, hole.astype(bool), smooth, dev, step, lo, hi, direction=direction, length=length
+    )
     hole = _joined_floors(hole)
     face0 = (seed.astype(bool) & ~hole).astype(np.uint8)
     # grown back to the face's edges (the seed stops short of them): on the shadow's side through pixels at
@@ -858,6 +860,9 @@ def _shadowed_floors(
     step: float,
     lo: float,
     hi: float,
+    *,
+    direction: np.ndarray | None = None,
+    length: int = 0,
 ) -> np.ndarray:
     """The floor of a hole in its wall's shadow, beside the lit floor the found outline opened.
 
@@ -873,6 +878,10 @@ def _shadowed_floors(
     joined to it, unless it holds a floor already found by its sharp rim (``rimmed_floors``:
     that floor is a hole as found, and a face darkened next to its rim, as a metal's may be,
     must not join it through the rim's blur). A part without lit floors gives an empty mask.
+    With ``direction`` and ``length`` (the shadow's, px) the band behind a lit floor reaches
+    only that far from it against the lamp: the lit floor is the bore less its wall's shadow,
+    so the bore's rim on the lamp's side lies one shadow length behind the lit floor, and a
+    patch beyond it (a metal face darkened next to the rim) is face, not floor.
     """
     kernel = np.ones((3, 3), np.uint8)
     lit = filled.astype(bool) & ~found.astype(bool)
@@ -885,7 +894,11 @@ def _shadowed_floors(
         return out
     near_edge = cv2.dilate((filled == 0).astype(np.uint8), kernel, iterations=3).astype(bool)
     # the band cut behind each lit floor: the swept-off pixels clear of the outline that touch it
-    behind = (swept_off.astype(bool) & ~near_edge).astype(np.uint8)
+    behind = swept_off.astype(bool) & ~near_edge
+    if direction is not None and length > 0:  # no further than one shadow length behind the lit floor
+        shade = cv2.dilate(_up(lit.astype(np.uint8), direction), np.ones((length + 1, 1), np.uint8), anchor=(0, length))
+        behind &= _back(shade, direction).astype(bool)
+    behind = behind.astype(np.uint8)
     n_behind, comp_behind = cv2.connectedComponents(behind, connectivity=8)
     grown_lit = cv2.dilate(lit.astype(np.uint8), kernel).astype(bool)
     cut = np.unique(comp_behind[grown_lit & behind.astype(bool)])
