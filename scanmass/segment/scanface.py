@@ -33,7 +33,7 @@ from scanmass.geometry import signed_area, vertex_normals
 from scanmass.numeric import nonzero_every, nonzero_rc
 from scanmass.segment.distance import exact_distance
 
-__all__ = ["FaceResult", "scan_face", "deep_holes", "SOFT_RATIO"]
+__all__ = ["FaceResult", "scan_face", "deep_holes", "tinted_face", "SOFT_RATIO"]
 
 #: An outline vertex whose edge gradient is below this share of the outline's sharp edges
 #: (its 80th percentile) lies on a soft edge (a shadow's outer end, or a part out of focus).
@@ -1155,3 +1155,151 @@ def deep_holes(
     if not added:
         return face
     return replace(face, holes_px=holes, hole_gradients_px=grads, grain_holes=added, local_levels=True)
+
+
+#: A face is placed by its tint (:func:`tinted_face`) only if its tint stands this many noise sigmas (of the tint
+#: on the lid and its shadow) above the lid's ...
+TINT_NOISE = 20.0
+
+#: ... and is at least this share of the lid's level (a grey metal or a black plastic has none).
+TINT_LEAST = 0.05
+
+
+def tinted_face(rgb: np.ndarray, origin_px: tuple[int, int], face: FaceResult, min_hole_px: float) -> FaceResult:
+    """A separated face whose edge against its shadow is placed by its colour (brass, copper on a white lid).
+
+    The lid is white and so is the light on it (the lamp's and the housing's scattered
+    light): the lamp's shadow is the lid's colour dimmed, with no tint of its own, while a
+    brass face nearly as dark as that shadow is yellow. The tint is each pixel's colour
+    component orthogonal to the lid's (the lit lid's median next to the part), taken along
+    the face's own tint direction; the face's level is its median over the face eroded by
+    4 px. It is read in the values as stored (encoded): a JPEG keeps colour as encoded
+    differences at half resolution, and across the face's edge against its shadow, both
+    about as dark, the encoding is nearly linear, so the tint's half level lies on the edge
+    (the subsampling blurs it symmetrically). Against the lit lid it does not (the step
+    spans most of the tone curve), but there the luma step is sure: the luma face's edges
+    are kept, and only the stretch of the tint's ring more than 2 px from them (the edge
+    against the shadow) is taken from the tint. Used when the tint's level stands
+    :data:`TINT_NOISE` sigmas above its noise on the lid and the shadow and is at least
+    :data:`TINT_LEAST` of the lid's, the tint shows the face's holes, and its ring lies
+    within 1.5 px (median) of the luma face's edges away from the shadow; otherwise the face
+    is returned unchanged. The holes are the luma face's.
+
+    Parameters
+    ----------
+    rgb : (H, W, 3) float ndarray
+        R, G, B of the crop :func:`scan_face` read, as stored (encoded), scaled to [0, 1].
+    origin_px : (int, int)
+        The crop's (x, y) offset in the image.
+    face : FaceResult
+        A separated face with its shadow edge marked (others are returned unchanged).
+    min_hole_px : float
+        Least area (px2) of a hole.
+
+    Examples
+    --------
+    A yellowish square face (0.49 0.42 0.26 as stored), found by its level 4 px short of its
+    true edge against a grey shadow (0.45) on its top side, on a white lid (0.93):
+
+    >>> img = np.full((100, 100, 3), 0.93, np.float32)
+    >>> img[10:30, 20:80] = 0.45
+    >>> img[30:80, 20:80] = (0.49, 0.42, 0.26)
+    >>> sq = np.array([[19.5 + t, 33.5] for t in range(61)] + [[79.5, 33.5 + t] for t in range(1, 47)]
+    ...               + [[79.5 - t, 79.5] for t in range(1, 61)] + [[19.5, 79.5 - t] for t in range(1, 46)])
+    >>> edge = sq[:, 1] < 34.0
+    >>> face = FaceResult(sq, [], np.full(len(sq), 0.4), [], 0.0, (0.0, -1.0), 0.0, 0.0, (0.85, 0.2, 0.15),
+    ...                   "separated", shadow_edge=edge)
+    >>> out = tinted_face(img, (0, 0), face, min_hole_px=20)
+    >>> out.note, round(abs(signed_area(out.outer_px)))
+    ('separated by colour', 3000)
+    """
+    from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
+
+    if face.outer_px is None or rgb.ndim != 3:
+        return face
+    origin = np.asarray(origin_px, float)
+    shape = rgb.shape[:2]
+    kernel = np.ones((3, 3), np.uint8)
+    mask = np.zeros(shape, np.uint8)
+    cv2.fillPoly(mask, [np.round((np.asarray(face.outer_px, float) - origin) * 16).astype(np.int32)], 1, shift=4)
+    for h in face.holes_px:
+        cv2.fillPoly(mask, [np.round((np.asarray(h, float) - origin) * 16).astype(np.int32)], 0, shift=4)
+    inner = cv2.erode(mask, kernel, iterations=4).astype(bool)
+    away = ~cv2.dilate(mask, kernel, iterations=4).astype(bool)
+    rgb = rgb.astype(np.float32)
+    luma = rgb.mean(axis=2)
+    if inner.sum() < 50 or away.sum() < 50:
+        return face
+    lit = away & (luma >= np.quantile(luma[away], 0.5))
+    white = np.median(rgb[lit], axis=0)
+    if not float(np.linalg.norm(white)) > 0:
+        return face
+    w = white / np.linalg.norm(white)
+    ortho = rgb - (rgb @ w)[..., None] * w
+    tint_vec = np.median(ortho[inner], axis=0)
+    level = float(np.linalg.norm(tint_vec))
+    if not level > 0:
+        return face
+    tint = ortho @ (tint_vec / level)
+    noise = _mad(tint[away])
+    lid = float(white @ w)
+    if level < max(TINT_NOISE * noise, TINT_LEAST * lid):
+        return face
+    norm = np.pad((tint / level).astype(np.float32), 1)  # a frame of the lid's tint (0) closes every ring
+    rings = []
+    for ring in find_contours(norm, 0.5, fully_connected="high"):
+        if len(ring) < 8 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
+            continue
+        ring_rc, g, slope = _refine_vertices(norm, ring[:-1], 0.5)
+        xy = np.column_stack([ring_rc[:, 1] - 1 + origin[0], ring_rc[:, 0] - 1 + origin[1]])
+        rings.append((xy, signed_area(xy), g, slope))
+    if not rings:
+        return face
+    rings.sort(key=lambda r: -abs(r[1]))
+    outer, outer_area, outer_grad, outer_slope = rings[0]
+    holes, slopes = 0, [outer_slope]
+    for _, area, _, slope in rings[1:]:
+        if math.copysign(1.0, area) == math.copysign(1.0, outer_area) or abs(area) < min_hole_px:
+            continue
+        holes += 1
+        slopes.append(slope)
+    # the tint shows the face's holes (the luma face's are kept: their floors are the lid, lit or shadowed)
+    if face.shadow_edge is None or holes != len(face.holes_px):
+        return face
+    old = np.asarray(face.outer_px, float)
+    kept = ~np.asarray(face.shadow_edge, bool)
+    if kept.sum() < 8:
+        return face
+    blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
+    outer = correct_curvature(outer, blur)
+    # each tint vertex's nearest vertex of the luma face's edges away from the shadow, and its offset from it
+    nearest = np.empty(len(outer), int)
+    for i in range(0, len(outer), 512):
+        d2 = ((outer[i : i + 512, None, :] - old[None, kept, :]) ** 2).sum(axis=2)
+        nearest[i : i + 512] = np.argmin(d2, axis=1)
+    offset = np.hypot(*(outer - old[kept][nearest]).T)
+    moved = offset > 2.0
+    # the tint's ring away from the shadow agrees with the luma face's (a few px: the tint's half level against
+    # the lit lid lies off the edge), and its edge against the shadow is a stretch of its own
+    if moved.sum() < 8 or float(np.median(offset[~moved])) > 1.5:
+        return face
+    # elsewhere the luma face's edges are kept (the lid beside them is much lighter than the face: a sure step)
+    grad = np.asarray(face.gradient_px, float)
+    spliced = np.where(moved[:, None], outer, old[kept][nearest])
+    gradient = np.where(moved, outer_grad, grad[kept][nearest])
+    distinct = np.any(np.abs(spliced - np.roll(spliced, 1, axis=0)) > 1e-9, axis=1)  # vertices snapped together
+    spliced, gradient, moved = spliced[distinct], gradient[distinct], moved[distinct]
+    tint_px2 = abs(signed_area(spliced)) - sum(abs(signed_area(np.asarray(h, float))) for h in face.holes_px)
+    face_px2 = abs(signed_area(old)) - sum(abs(signed_area(np.asarray(h, float))) for h in face.holes_px)
+    return replace(
+        face,
+        outer_px=spliced,
+        gradient_px=gradient,
+        shadow_px2=max(0.0, face.shadow_px2 + face_px2 - tint_px2),
+        shadow_edge=moved,
+        shadow_edge_px=float(_ring_lengths(spliced)[moved].sum()),
+        note="separated by colour",
+        local_levels=True,
+        doubt_outer_px=None,
+        doubt_px2=0.0,
+    )
