@@ -30,8 +30,9 @@ Usage::
 
 The held-out set (``--holdout``, :func:`holdout_scenes`) is rendered the same way from new
 scenes; it measures whether the rules generalise and is never used to tune them. The
-development scenes (:func:`dev_scenes`, ``dev-*``) render the held-out set's worst conditions
-with other shapes, placements and tilts; they belong to the tuned set::
+development scenes (:func:`dev_scenes`, ``dev-*``; :func:`dev_scanner_scenes`, ``dev-scan-*``, lamps at
+30-32 degrees) render the held-out set's worst conditions with other shapes, placements and tilts; they
+belong to the tuned set::
 
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 \
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
