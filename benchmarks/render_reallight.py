@@ -38,7 +38,8 @@ belong to the tuned set::
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
         dev-spot-steel-t20 dev-mixed-black-t15
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
-        --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32
+        --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
+        dev-scan-collar-lamp30
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -292,7 +293,16 @@ def _shapes():
     r = 16.0 + 5.0 * (1 - np.cos(t)) ** 1.5 / 2.8284
     cam = (np.c_[r * np.cos(t), r * np.sin(t)], [circle(0, 0, 4.0, 120)])
     washer = (circle(0, 0, 16.0, 300), [circle(0, 0, 7.5, 180)])  # a smaller, wider ring than the gasket
-    return {"plate": plate, "l-bracket": bracket, "disc": disc, "gasket": ring, "cam": cam, "washer": washer}
+    collar = (circle(0, 0, 19.0, 300), [circle(0, 0, 12.5, 240)])  # a ring between the two
+    return {
+        "plate": plate,
+        "l-bracket": bracket,
+        "disc": disc,
+        "gasket": ring,
+        "cam": cam,
+        "washer": washer,
+        "collar": collar,
+    }
 
 
 def _place(shape, x, y, angle_deg):
@@ -884,6 +894,11 @@ def dev_scanner_scenes():
             "dev-scan-steel-lamp30",
             30.0,
             [("plate", "brushed-steel", 5.0, 46, 33, 20), ("gasket", "brushed-steel", 3.0, 44, 97, 0)],
+        ),
+        (
+            "dev-scan-collar-lamp30",
+            30.0,
+            [("collar", "brass", 3.0, 45, 30, 0), ("disc", "brushed-steel", 5.0, 44, 93, 200)],
         ),
         (
             "dev-scan-mixed-lamp32",

@@ -84,11 +84,13 @@ def _scan_faces(
             code = min(int(np.searchsorted(lut, face.levels[2])), len(lut) - 2)  # the stored code at the face's level
             quantum = abs(float(lut[code + 1] - lut[code]))
             face = deep_holes(crop, (int(x0), int(y0)), face, min_hole_mm2 / px_area_mm2, quantum=quantum)
+        if face is not None:
             if not colour_read:  # decoded once, for the first face beside a shadow
                 colour, colour_read = _scan_colour(image), True
             if colour is not None:  # a tinted face (brass) is placed by its colour against the white lid's shadow
                 rgb = colour[y0 : min(y1, h_px), x0 : min(x1, w_px), ::-1].astype(np.float32) / 255.0
-                face = tinted_face(rgb, (int(x0), int(y0)), face, min_hole_mm2 / px_area_mm2)
+                found = (rings.outer_px, list(rings.holes_px), rings.gradient_px, list(rings.hole_gradients_px))
+                face = tinted_face(rgb, (int(x0), int(y0)), face, min_hole_mm2 / px_area_mm2, found=found)
         if face is None:
             out.append(rings)
             continue

@@ -1165,7 +1165,14 @@ TINT_NOISE = 20.0
 TINT_LEAST = 0.05
 
 
-def tinted_face(rgb: np.ndarray, origin_px: tuple[int, int], face: FaceResult, min_hole_px: float) -> FaceResult:
+def tinted_face(
+    rgb: np.ndarray,
+    origin_px: tuple[int, int],
+    face: FaceResult,
+    min_hole_px: float,
+    *,
+    found: tuple[np.ndarray, list[np.ndarray], np.ndarray, list[np.ndarray]] | None = None,
+) -> FaceResult:
     """A separated face whose edge against its shadow is placed by its colour (brass, copper on a white lid).
 
     The lid is white and so is the light on it (the lamp's and the housing's scattered
@@ -1185,6 +1192,13 @@ def tinted_face(rgb: np.ndarray, origin_px: tuple[int, int], face: FaceResult, m
     within 1.5 px (median) of the luma face's edges away from the shadow; otherwise the face
     is returned unchanged. The holes are the luma face's.
 
+    A face that could not be told from its shadow by level or sweep (``outer_px`` None) is
+    built from the tint with the ``found`` rings (outer, holes and their gradients, image px)
+    in the luma face's place: the found outline's edges against the lit lid and the rims of
+    the holes' lit floors are sure steps and are kept; the tint supplies the face's edge
+    against the shadow and the holes' rims against their shadowed floors (a ring's bore seen
+    through to the lid in its wall's shadow, as dark as brass, closed the found hole).
+
     Parameters
     ----------
     rgb : (H, W, 3) float ndarray
@@ -1192,9 +1206,11 @@ def tinted_face(rgb: np.ndarray, origin_px: tuple[int, int], face: FaceResult, m
     origin_px : (int, int)
         The crop's (x, y) offset in the image.
     face : FaceResult
-        A separated face with its shadow edge marked (others are returned unchanged).
+        A separated face with its shadow edge marked, or one not separated (with ``found``).
     min_hole_px : float
         Least area (px2) of a hole.
+    found : (outer, holes, gradient, hole gradients), optional
+        The found rings, for a face not separated.
 
     Examples
     --------
@@ -1215,15 +1231,34 @@ def tinted_face(rgb: np.ndarray, origin_px: tuple[int, int], face: FaceResult, m
     """
     from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
 
-    if face.outer_px is None or rgb.ndim != 3:
+    if rgb.ndim != 3:
+        return face
+    if face.outer_px is not None:
+        if face.shadow_edge is None or face.gradient_px is None:
+            return face
+        kept = ~np.asarray(face.shadow_edge, bool)
+        ref = np.asarray(face.outer_px, float)
+        ref_outer, ref_grad = ref[kept], np.asarray(face.gradient_px, float)[kept]
+        ref_holes = [np.asarray(h, float) for h in face.holes_px]
+        ref_hole_grads = [np.asarray(g, float) for g in face.hole_gradients_px]
+        keep_holes = True  # the luma face's holes stand
+    elif found is not None and face.note != "soft edges":
+        ref = np.asarray(found[0], float)
+        ref_outer, ref_grad = ref, np.asarray(found[2], float)
+        ref_holes = [np.asarray(h, float) for h in found[1]]
+        ref_hole_grads = [np.asarray(g, float) for g in found[3]]
+        keep_holes = False  # the found holes are only their lit floors
+    else:
+        return face
+    if len(ref_outer) < 8 or len(ref_grad) != len(ref_outer):
         return face
     origin = np.asarray(origin_px, float)
     shape = rgb.shape[:2]
     kernel = np.ones((3, 3), np.uint8)
     mask = np.zeros(shape, np.uint8)
-    cv2.fillPoly(mask, [np.round((np.asarray(face.outer_px, float) - origin) * 16).astype(np.int32)], 1, shift=4)
-    for h in face.holes_px:
-        cv2.fillPoly(mask, [np.round((np.asarray(h, float) - origin) * 16).astype(np.int32)], 0, shift=4)
+    cv2.fillPoly(mask, [np.round((ref - origin) * 16).astype(np.int32)], 1, shift=4)
+    for h in ref_holes:
+        cv2.fillPoly(mask, [np.round((h - origin) * 16).astype(np.int32)], 0, shift=4)
     inner = cv2.erode(mask, kernel, iterations=4).astype(bool)
     away = ~cv2.dilate(mask, kernel, iterations=4).astype(bool)
     rgb = rgb.astype(np.float32)
@@ -1236,7 +1271,10 @@ def tinted_face(rgb: np.ndarray, origin_px: tuple[int, int], face: FaceResult, m
         return face
     w = white / np.linalg.norm(white)
     ortho = rgb - (rgb @ w)[..., None] * w
-    tint_vec = np.median(ortho[inner], axis=0)
+    # the face's tint: the tinted pixels inside (a found outline not separated holds the shadow too)
+    strength = np.linalg.norm(ortho[inner], axis=1)
+    tinted = strength >= 0.5 * float(np.quantile(strength, 0.9))
+    tint_vec = np.median(ortho[inner][tinted], axis=0)
     level = float(np.linalg.norm(tint_vec))
     if not level > 0:
         return face
@@ -1257,49 +1295,77 @@ def tinted_face(rgb: np.ndarray, origin_px: tuple[int, int], face: FaceResult, m
         return face
     rings.sort(key=lambda r: -abs(r[1]))
     outer, outer_area, outer_grad, outer_slope = rings[0]
-    holes, slopes = 0, [outer_slope]
-    for _, area, _, slope in rings[1:]:
+    holes, hole_grads, slopes = [], [], [outer_slope]
+    for xy, area, g, slope in rings[1:]:
         if math.copysign(1.0, area) == math.copysign(1.0, outer_area) or abs(area) < min_hole_px:
             continue
-        holes += 1
+        holes.append(xy)
+        hole_grads.append(g)
         slopes.append(slope)
-    # the tint shows the face's holes (the luma face's are kept: their floors are the lid, lit or shadowed)
-    if face.shadow_edge is None or holes != len(face.holes_px):
-        return face
-    old = np.asarray(face.outer_px, float)
-    kept = ~np.asarray(face.shadow_edge, bool)
-    if kept.sum() < 8:
+    # the tint shows the face's holes (each found hole, a lit floor, lies in one of them)
+    if len(holes) != len(ref_holes):
         return face
     blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
     outer = correct_curvature(outer, blur)
-    # each tint vertex's nearest vertex of the luma face's edges away from the shadow, and its offset from it
-    nearest = np.empty(len(outer), int)
-    for i in range(0, len(outer), 512):
-        d2 = ((outer[i : i + 512, None, :] - old[None, kept, :]) ** 2).sum(axis=2)
-        nearest[i : i + 512] = np.argmin(d2, axis=1)
-    offset = np.hypot(*(outer - old[kept][nearest]).T)
-    moved = offset > 2.0
-    # the tint's ring away from the shadow agrees with the luma face's (a few px: the tint's half level against
-    # the lit lid lies off the edge), and its edge against the shadow is a stretch of its own
-    if moved.sum() < 8 or float(np.median(offset[~moved])) > 1.5:
+    spliced = _splice(outer, outer_grad, ref_outer, ref_grad)
+    if spliced is None:
         return face
-    # elsewhere the luma face's edges are kept (the lid beside them is much lighter than the face: a sure step)
-    grad = np.asarray(face.gradient_px, float)
-    spliced = np.where(moved[:, None], outer, old[kept][nearest])
-    gradient = np.where(moved, outer_grad, grad[kept][nearest])
-    distinct = np.any(np.abs(spliced - np.roll(spliced, 1, axis=0)) > 1e-9, axis=1)  # vertices snapped together
-    spliced, gradient, moved = spliced[distinct], gradient[distinct], moved[distinct]
-    tint_px2 = abs(signed_area(spliced)) - sum(abs(signed_area(np.asarray(h, float))) for h in face.holes_px)
-    face_px2 = abs(signed_area(old)) - sum(abs(signed_area(np.asarray(h, float))) for h in face.holes_px)
+    new_outer, gradient, moved = spliced
+    if moved.sum() < 8:
+        return face
+    if keep_holes:
+        new_holes, new_hole_grads = [np.asarray(h, float) for h in face.holes_px], list(face.hole_gradients_px)
+    else:  # each tint hole's rim beside a lit floor (within 2 px of a found hole's ring) is the found ring's
+        new_holes, new_hole_grads = [], []
+        ref_all = np.concatenate(ref_holes) if ref_holes else np.zeros((0, 2))
+        grad_all = np.concatenate(ref_hole_grads) if ref_hole_grads else np.zeros(0)
+        for h, g in zip(holes, hole_grads):
+            h = correct_curvature(h, blur)
+            out = _splice(h, g, ref_all, grad_all, agree=False) if len(ref_all) >= 8 else None
+            ring, grad_h = (out[0], out[1]) if out is not None else (h, np.asarray(g, float))
+            new_holes.append(ring)
+            new_hole_grads.append(grad_h)
+    tint_px2 = abs(signed_area(new_outer)) - sum(abs(signed_area(h)) for h in new_holes)
+    if face.outer_px is not None:
+        face_px2 = abs(signed_area(ref)) - sum(abs(signed_area(h)) for h in ref_holes)
+        shadow_px2 = max(0.0, face.shadow_px2 + face_px2 - tint_px2)
+    else:
+        found_px2 = abs(signed_area(ref)) - sum(abs(signed_area(h)) for h in ref_holes)
+        shadow_px2 = max(0.0, found_px2 - tint_px2)
     return replace(
         face,
-        outer_px=spliced,
+        outer_px=new_outer,
+        holes_px=new_holes,
         gradient_px=gradient,
-        shadow_px2=max(0.0, face.shadow_px2 + face_px2 - tint_px2),
+        hole_gradients_px=new_hole_grads,
+        shadow_px2=shadow_px2,
         shadow_edge=moved,
-        shadow_edge_px=float(_ring_lengths(spliced)[moved].sum()),
+        shadow_edge_px=float(_ring_lengths(new_outer)[moved].sum()),
         note="separated by colour",
         local_levels=True,
         doubt_outer_px=None,
         doubt_px2=0.0,
     )
+
+
+def _splice(
+    ring: np.ndarray, grad: np.ndarray, ref: np.ndarray, ref_grad: np.ndarray, *, agree: bool = True
+) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """A tint ring with its vertices within 2 px of the reference points (sure luma edges) moved onto the nearest.
+
+    Returns the spliced ring, its gradients and which vertices kept the tint's place; None
+    (with ``agree``) when the tint's ring lies more than 1.5 px (median) from the reference
+    where it follows it.
+    """
+    nearest = np.empty(len(ring), int)
+    for i in range(0, len(ring), 512):
+        d2 = ((ring[i : i + 512, None, :] - ref[None, :, :]) ** 2).sum(axis=2)
+        nearest[i : i + 512] = np.argmin(d2, axis=1)
+    offset = np.hypot(*(ring - ref[nearest]).T)
+    moved = offset > 2.0
+    if agree and (np.count_nonzero(~moved) < 8 or float(np.median(offset[~moved])) > 1.5):
+        return None
+    spliced = np.where(moved[:, None], ring, ref[nearest])
+    gradient = np.where(moved, np.asarray(grad, float), np.asarray(ref_grad, float)[nearest])
+    distinct = np.any(np.abs(spliced - np.roll(spliced, 1, axis=0)) > 1e-9, axis=1)  # vertices snapped together
+    return spliced[distinct], gradient[distinct], moved[distinct]
