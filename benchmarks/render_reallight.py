@@ -39,7 +39,7 @@ belong to the tuned set::
         dev-spot-steel-t20 dev-mixed-black-t15
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
-        dev-scan-collar-lamp30
+        dev-scan-collar-lamp30 dev-scan-bracket-lamp34
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -881,7 +881,7 @@ def scanner_scenes():
 
 def dev_scanner_scenes():
     """Development scans added to the tuned set (``dev-scan-*``): the held-out scans' worst condition
-    (a low lamp, 30-32 degrees, on brass and brushed steel 3-6 mm thick) with other shapes and
+    (a low lamp, 30-34 degrees, on brass and brushed steel 3-6 mm thick) with other shapes and
     placements than the held-out scenes; entries as in :func:`scanner_scenes`.
     """
     return [
@@ -899,6 +899,11 @@ def dev_scanner_scenes():
             "dev-scan-collar-lamp30",
             30.0,
             [("collar", "brass", 3.0, 45, 30, 0), ("disc", "brushed-steel", 5.0, 44, 93, 200)],
+        ),
+        (
+            "dev-scan-bracket-lamp34",
+            34.0,
+            [("l-bracket", "brushed-steel", 6.0, 44, 36, 75), ("washer", "brushed-steel", 3.5, 46, 100, 0)],
         ),
         (
             "dev-scan-mixed-lamp32",
