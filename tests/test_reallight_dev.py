@@ -198,6 +198,8 @@ def test_low_lamp_scan_finds_the_face_and_its_holes(name, shape, rel):
     assert _covered(part, tp)
     if tp["material"] == "brass":
         assert math.dist(part.centroid_mm, tp["centroid"]) < 0.02
+        tint = next(w for w in m.warnings if "their face was told from it by colour" in w)
+        assert str(part.label) in tint.split("part(s) ")[1].split(" are about")[0].split(", ")  # named
     assert len(part.holes) == len(tp["holes"])
     for centre, diameter in tp["holes"]:
         hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))

@@ -227,6 +227,14 @@ def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
             f"narrower than about {deep_mm:.2g} mm in such a part can look as dark as the part (no light reaches "
             "the lid above it) and be missed: check the holes"
         )
+    tinted = [k for k, f in left_out.items() if f.note == "separated by colour"]
+    if tinted:
+        listed = ", ".join(str(k) for k in tinted)
+        out.append(
+            f"scan of thick parts: part(s) {listed} are about as dark as the lamp's shadow; their face was told from "
+            "it by colour (a tinted face; the shadow has the lid's colour): the edge against the shadow is where the "
+            "tint falls to half the face's, the other edges are the face's steps against the lid"
+        )
     doubt = {k: f for k, f in left_out.items() if f.doubt_outer_px is not None or f.doubt_px2 > 0}
     if doubt:
         listed = ", ".join(f"part {k} ({_doubt_mm2(f, mm_per_px):.3g} mm²)" for k, f in doubt.items())
