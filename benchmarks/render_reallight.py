@@ -30,13 +30,17 @@ Usage::
 
 The held-out set (``--holdout``, :func:`holdout_scenes`) is rendered the same way from new
 scenes; it measures whether the rules generalise and is never used to tune them. The
-development scenes (:func:`dev_scenes`, ``dev-*``) render the held-out set's worst conditions
-with other shapes, placements and tilts; they belong to the tuned set::
+development scenes (:func:`dev_scenes`, ``dev-*``; :func:`dev_scanner_scenes`, ``dev-scan-*``, lamps at
+30-32 degrees) render the held-out set's worst conditions with other shapes, placements and tilts; they
+belong to the tuned set::
 
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 \
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
         dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15
+    nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
+        --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
+        dev-scan-collar-lamp30 dev-scan-bracket-lamp34
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -289,7 +293,17 @@ def _shapes():
     t = np.linspace(0, 2 * np.pi, 360, endpoint=False)
     r = 16.0 + 5.0 * (1 - np.cos(t)) ** 1.5 / 2.8284
     cam = (np.c_[r * np.cos(t), r * np.sin(t)], [circle(0, 0, 4.0, 120)])
-    return {"plate": plate, "l-bracket": bracket, "disc": disc, "gasket": ring, "cam": cam}
+    washer = (circle(0, 0, 16.0, 300), [circle(0, 0, 7.5, 180)])  # a smaller, wider ring than the gasket
+    collar = (circle(0, 0, 19.0, 300), [circle(0, 0, 12.5, 240)])  # a ring between the two
+    return {
+        "plate": plate,
+        "l-bracket": bracket,
+        "disc": disc,
+        "gasket": ring,
+        "cam": cam,
+        "washer": washer,
+        "collar": collar,
+    }
 
 
 def _place(shape, x, y, angle_deg):
@@ -906,6 +920,40 @@ def scanner_scenes():
     ]
 
 
+def dev_scanner_scenes():
+    """Development scans added to the tuned set (``dev-scan-*``): the held-out scans' worst condition
+    (a low lamp, 30-34 degrees, on brass and brushed steel 3-6 mm thick) with other shapes and
+    placements than the held-out scenes; entries as in :func:`scanner_scenes`.
+    """
+    return [
+        (
+            "dev-scan-brass-lamp30",
+            30.0,
+            [("disc", "brass", 4.0, 47, 34, 60), ("washer", "brass", 3.0, 44, 97, 0)],
+        ),
+        (
+            "dev-scan-steel-lamp30",
+            30.0,
+            [("plate", "brushed-steel", 5.0, 46, 33, 20), ("gasket", "brushed-steel", 3.0, 44, 97, 0)],
+        ),
+        (
+            "dev-scan-collar-lamp30",
+            30.0,
+            [("collar", "brass", 3.0, 45, 30, 0), ("disc", "brushed-steel", 5.0, 44, 93, 200)],
+        ),
+        (
+            "dev-scan-bracket-lamp34",
+            34.0,
+            [("l-bracket", "brushed-steel", 6.0, 44, 36, 75), ("washer", "brushed-steel", 3.5, 46, 100, 0)],
+        ),
+        (
+            "dev-scan-mixed-lamp32",
+            32.0,
+            [("cam", "brass", 6.0, 44, 31, 90), ("l-bracket", "brushed-steel", 4.0, 47, 93, 160)],
+        ),
+    ]
+
+
 def _photo_spec(entry, mat_png, out_dir, samples, size_px):
     import numpy as np
 
@@ -1217,7 +1265,7 @@ def main(argv=None) -> int:
         print(f"lens check: {json.dumps(check)}", flush=True)
         if args.lens_check:
             return 0
-    scan_list = holdout_scanner_scenes() if args.holdout else scanner_scenes()
+    scan_list = holdout_scanner_scenes() if args.holdout else [*scanner_scenes(), *dev_scanner_scenes()]
     scans = {e[0]: ("scan", e) for e in scan_list} if args.scanner else {}
     # the order in which they are rendered: a varied subset first
     order = [*RENDER_ORDER, *photos, *scans]
