@@ -12,7 +12,9 @@ and the layer the sweep adds is the shadow. The vector's direction is the one wh
 shadow-like layers the longest; its length is where the layers' level (or roughness) steps from
 the shadow's to the face's; a search of nearby whole-pixel vectors by pixel votes refines both.
 The cut is refused where the face cannot be told from the shadow (as rough, no step), where the
-sweep would run through the face, or where it is longer than the part's shadow can be.
+sweep would run through the face, or where it is longer than the part's shadow can be: a light 30
+degrees up or higher, or a lower one (a window, down to 15 degrees) where the photo's own shadow
+measures it, its grain running without a break from the outline to the step.
 
 The roughness is the smoothed absolute deviation from a 3x3 median, taken relative to the local
 level: a median filter keeps a step edge, so the step between the face and the shadow adds
@@ -240,7 +242,9 @@ def _shadow_cut(
     if sweep is None:
         return None, dark
     unit, depth_px, face_like, run_px = sweep
-    if depth_px > reach_px + 1.0 and not (depth_px <= LOW_LIGHT_REACH_FACTOR * reach_px + 1.0 and depth_px <= run_px + 1.0):
+    if depth_px > reach_px + 1.0 and not (
+        depth_px <= LOW_LIGHT_REACH_FACTOR * reach_px + 1.0 and depth_px <= run_px + 1.0
+    ):
         # longer than a shadow of the part can be under a light 30 degrees up or higher, and not
         # measured as a lower light's shadow (shadow-like layers without a break up to the step): not its shadow
         return None, dark
