@@ -35,7 +35,7 @@ with other shapes, placements and tilts; they belong to the tuned set::
 
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 \
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
-        dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0
+        dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 dev-window-low-steel-t15 dev-window-low-black-t10
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -557,8 +557,8 @@ def scenes():
 def dev_scenes():
     """Development scenes added to the tuned set (``dev-*``): the conditions of the held-out set's
     largest errors (brass in soft light at a tilt, thick steel in window light, thin black parts in
-    window light at a tilt, thin steel under the spot at a tilt, thick black parts in mixed light)
-    with other shapes, placements, thicknesses and tilts. They were rendered to find the mechanisms
+    window light at a tilt, thin steel under the spot at a tilt, thick black parts in mixed light, a
+    lower window over thick steel and black parts) with other shapes, placements, thicknesses and tilts. They were rendered to find the mechanisms
     behind those errors without looking at the held-out images; entries as in :func:`scenes`.
     """
     return [

@@ -213,8 +213,9 @@ def test_low_window_light_black_gasket_warned_and_covered():
     "along its shadow by 13 px where the shadow's grain ends at 18 px (its core as dark as the face, its grain "
     "fading towards the wall: the half-way of the roughness falls short), and the shadow's rest beyond the cut is "
     "merged back as a fragment (+12.1 % in area, centroid 3.17 mm); the L bracket 7 mm thick keeps its shadow: its "
-    "own sweep is refused and along the disc's direction the fade is not found, so the core test reads the fade "
-    "(+35.6 %, centroid 3.19 mm; at 6 mm it is cut, -0.2 %). A half-way on a log scale of roughness cut the disc "
+    "own sweep is refused, and along the disc's direction the fade test refuses its face as untinted (blue minus red "
+    "-0.049 of its level against the 0.05 step), so the core test reads the fade as the core (+35.6 %, centroid "
+    "3.19 mm; measured at 6 mm the face reads -0.060, the core is cut: -0.2 %). A half-way on a log scale of roughness cut the disc "
     "to +5.9 % but moved seven tuned parts by up to 10 %",
 )
 def test_low_window_light_thick_steel_within_3_percent():
