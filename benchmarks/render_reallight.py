@@ -37,7 +37,8 @@ belong to the tuned set::
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 \
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
         dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
-        dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15
+        dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
+        dev-window-low-steel-t15 dev-window-low-black-t10
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34
@@ -346,7 +347,7 @@ def _scene_parts(parts: list, shapes: dict, *, photo: bool) -> tuple[list[dict],
     return spec_parts, truth_parts
 
 
-def _lights(style: str, centre_m):
+def _lights(style: str, centre_m, window_el_deg: float = 25.0):
     cx, cy = centre_m
     if style == "soft":  # overhead softbox plus room light
         return (
@@ -382,8 +383,8 @@ def _lights(style: str, centre_m):
             0.12,
             -2.8,
         )
-    if style == "window":  # a large window from the left, low
-        el = math.radians(25)
+    if style == "window":  # a large window from the left, low (25 degrees unless the scene says)
+        el = math.radians(window_el_deg)
         d = 0.9
         loc = [cx - d * math.cos(el), cy + 0.1, d * math.sin(el)]
         return (
@@ -661,6 +662,29 @@ def dev_scenes():
             0,
             0,
             "Standard",
+        ),
+        # branch window11: a lower window (its centre 20 and 18 degrees up instead of 25; the window spans
+        # about 16 degrees either side) and thick steel and black parts at a tilt: shadows longer than
+        # thickness / tan(30 degrees). The eighth entry is the window's elevation.
+        (
+            "dev-window-low-steel-t15",
+            "window",
+            [("disc", "brushed-steel", 6.0, 85, 100, 40), ("l-bracket", "brushed-steel", 7.0, 125, 195, -25)],
+            320,
+            15,
+            200,
+            "Standard",
+            20.0,
+        ),
+        (
+            "dev-window-low-black-t10",
+            "window",
+            [("cam", "black-plastic", 6.0, 90, 195, -40), ("gasket", "black-plastic", 5.0, 125, 95, 0)],
+            315,
+            10,
+            -30,
+            "Standard",
+            18.0,
         ),
     ]
 
@@ -968,7 +992,9 @@ def _photo_spec(entry, mat_png, out_dir, samples, size_px):
     t, d = math.radians(tilt_deg), math.radians(tilt_dir_deg)
     offset = height_mm * np.array([math.sin(t) * math.cos(d), math.sin(t) * math.sin(d), math.cos(t)])
     loc = target + offset
-    lights, world, exposure = _lights(light, (target[0] * MM, target[1] * MM))
+    # an eighth entry: the window's elevation in degrees (the window's centre above the mat's centre)
+    window_el = float(entry[7]) if len(entry) > 7 else 25.0
+    lights, world, exposure = _lights(light, (target[0] * MM, target[1] * MM), window_el)
     spec_parts, truth_parts = _scene_parts(parts, shapes, photo=True)
     spec = {
         "samples": samples,

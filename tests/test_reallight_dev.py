@@ -288,3 +288,54 @@ def test_low_lamp_scan_finds_the_face_and_its_holes(name, shape, rel):
         assert abs(hole.diameter_mm - diameter) <= min(0.1, 3 * hole.diameter_u_mm)
     said = next(w for w in m.warnings if w.startswith("scan of thick parts: the lamp's shadow beside part(s)"))
     assert f" {part.label} (" in said.split(" was left out")[0]  # named: its shadow left out, the face measured
+
+
+def test_low_window_light_long_shadow_cut_from_a_black_cam():
+    """dev-window-low-black-t10 (rendered for branch window11): the window 18 degrees up, a black cam
+    6 mm thick at 10 degrees of tilt. Its shadow, found as part, reaches 33 px (12 mm) into the found
+    region, longer than a light 30 degrees up or higher can throw (thickness / tan 30 deg + 0.5 mm =
+    31 px), so the sweep was refused and the shadow kept (+29.6 % in area, centroid 4.18 mm;
+    bench_reallight). The sweep's layers are the shadow's grain without a break from the outline to
+    the step (38 px), which measures a lower light (down to 15 degrees): now cut, -3.7 %, centroid
+    0.41 mm, within 3 stated sigma."""
+    m, part, tp = _part("dev-window-low-black-t10", "cam")
+    assert "shadow_cut" in part.uncertainty_terms  # was left with the term 'cast_shadow' only
+    assert abs(part.area_mm2 - tp["area"]) < 0.06 * tp["area"]  # was +29.6 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.8  # was 4.18 mm
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-low-black-t10's black gasket 5 mm thick (window 18 degrees up): its shadow fills a crescent "
+    "outside and one inside its bore, and no sweep is found: +75.5 % in area, centroid 3.84 mm, bore missed "
+    "(warned 'cast shadow', 0.9 sigma)",
+)
+def test_low_window_light_black_gasket_within_3_percent():
+    m, part, tp = _part("dev-window-low-black-t10", "gasket")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+
+
+def test_low_window_light_black_gasket_warned_and_covered():
+    """The same gasket, not cut: the error is warned and inside the stated uncertainty (term 'cast_shadow')."""
+    m, part, tp = _part("dev-window-low-black-t10", "gasket")
+    assert "cast_shadow" in part.uncertainty_terms
+    assert any(w.startswith("cast shadow:") for w in m.warnings)
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-low-steel-t15 (window 20 degrees up, 15 degrees of tilt): the steel disc 6 mm thick is cut "
+    "along its shadow by 13 px where the shadow's grain ends at 18 px (its core as dark as the face, its grain "
+    "fading towards the wall: the half-way of the roughness falls short), and the shadow's rest beyond the cut is "
+    "merged back as a fragment (+12.1 % in area, centroid 3.17 mm); the L bracket 7 mm thick keeps its shadow: its "
+    "own sweep is refused, and along the disc's direction the fade test refuses its face as untinted (blue minus red "
+    "-0.049 of its level against the 0.05 step), so the core test reads the fade as the core (+35.6 %, centroid "
+    "3.19 mm; measured at 6 mm the face reads -0.060, the core is cut: -0.2 %). A half-way on a log scale of roughness cut the disc "
+    "to +5.9 % but moved seven tuned parts by up to 10 %",
+)
+def test_low_window_light_thick_steel_within_3_percent():
+    for shape in ("disc", "l-bracket"):
+        m, part, tp = _part("dev-window-low-steel-t15", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
