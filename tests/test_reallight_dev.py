@@ -2,7 +2,8 @@
 
 ``benchmarks/render_reallight.py``'s ``dev_scenes`` rendered brass in soft light at a tilt, thick
 steel and thin black parts in window light, thin steel under the spotlight at a tilt and thick
-black parts in mixed light, with other shapes, placements and tilts than the held-out scenes
+black parts in mixed light, and ``dev_scanner_scenes`` flatbed scans of brass and brushed steel 3-6 mm
+thick under a lamp 30-32 degrees up, with other shapes, placements and tilts than the held-out scenes
 (whose images were not looked at). Truth: each render's truth file (the outlines Blender
 extruded); areas and centroids from shapely, not from the code under test. Renders the code
 cannot handle yet are strict xfails with their figures (``bench_reallight``), or are checked to be
@@ -16,6 +17,7 @@ import math
 from pathlib import Path
 
 import pytest
+from _reallight_truth import truth_render
 from shapely.geometry import Polygon
 
 import scanmass
@@ -90,24 +92,35 @@ def test_window_light_black_parts_at_a_tilt():
         assert _covered(part, tp), shape
 
 
-@pytest.mark.xfail(
-    strict=True,
-    raises=SegmentationError,
-    reason="pale brass in soft light (25 degrees of tilt): the 5 mm cam mirrors the softbox and is brighter than "
-    "the paper (linear R G B 0.82 0.75 0.53 against 0.55 0.55 0.54), so it is not segmented; only its shaded wall "
-    "and its bore's shadow are found (7 and 76 mm2 at 5 mm, -99 %), one with a hole past its own outline, so the "
-    "photo is refused as 'a part was found only in pieces' (it was an OptionError blaming the options)",
-)
 def test_pale_brass_mirroring_a_softbox_is_found():
-    m, part, tp = _part("dev-soft-brass-t25", "cam")
-    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+    """dev-soft-brass-t25: pale brass in soft light at 25 degrees of tilt. The 5 mm cam mirrors the
+    softbox and is brighter than the paper (linear R G B 0.82 0.75 0.53 against 0.55 0.55 0.54), so
+    its grey levels find only its shaded wall and its bore's shadow, and the photo was refused as
+    'found only in pieces'. By colour (blue against green, the paper's ratio: 0 on the paper lit or
+    in shade) both brass parts are found and measured (pipeline/photo_colour.py): cam -3.2 %,
+    plate -2.5 % (bench_reallight), warned, with the terms 'colour_face' and 'colour_wall' (a brass
+    side wall has the face's colour) covering them."""
+    for shape in ("cam", "plate"):
+        m, part, tp = _part("dev-soft-brass-t25", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.05 * tp["area"], shape  # was refused (or -99 %)
+        assert "colour_face" in part.uncertainty_terms and "colour_wall" in part.uncertainty_terms, shape
+        assert _covered(part, tp), shape
+        for centre, diameter in tp["holes"]:
+            hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+            assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm, shape
+    assert any(w.startswith("coloured face brighter than the paper:") for w in m.warnings)
+    assert any("parts of the paper's colour" in w for w in m.warnings)  # the grey levels refused it
 
 
-def test_piece_with_a_hole_past_its_outline_refuses_the_photo_with_its_cause():
-    """dev-soft-brass-t25: a piece of the unfound pale cam whose hole maps past its own outline used
-    to make the section refuse the whole photo with an OptionError blaming the options; the cam's
-    other pieces would be reported as parts at -99 % (a confident wrong figure), so the photo is
-    refused, now with the cause and the fix, with and without the thickness."""
+def test_piece_with_a_hole_past_its_outline_refuses_the_photo_with_its_cause(monkeypatch):
+    """dev-soft-brass-t25 with its colour planes withheld (the grey path alone): a piece of the
+    unfound pale cam whose hole maps past its own outline used to make the section refuse the whole
+    photo with an OptionError blaming the options; the cam's other pieces would be reported as parts
+    at -99 % (a confident wrong figure), so the photo is refused, now with the cause and the fix,
+    with and without the thickness."""
+    import scanmass.pipeline.flow as flow
+
+    monkeypatch.setattr(flow, "_photo_colour", lambda image: None)
     truth = json.loads((REALLIGHT / "dev-soft-brass-t25.json").read_text())
     for thickness in (5.0, None):
         with pytest.raises(SegmentationError, match="found only in pieces") as err:
@@ -116,26 +129,213 @@ def test_piece_with_a_hole_past_its_outline_refuses_the_photo_with_its_cause():
         assert "diffuse light" in str(err.value)
 
 
+def test_bright_brushed_sectors_of_a_steel_disc_are_kept():
+    """dev-spot-steel-t20: a brushed-steel disc 3 mm thick under the spot at 20 degrees. Two of its
+    brushed sectors mirror the light at about 0.79 of the paper's level, above the threshold, so
+    only the dark sectors and the shadow were found, bounded across the face where its shading
+    crosses the threshold (-11.8 % in area, centroid 3.28 mm, bore -2.68 mm, bench_reallight). The
+    lit sectors end on a full step to the paper at the disc's edge: they are joined
+    (segment/brightface.py), warned and carry the term 'lost_face'; the shadow is then cut:
+    -1.05 %, centroid 0.12 mm, bore +0.19 mm (bench_reallight)."""
+    m, part, tp = _part("dev-spot-steel-t20", "disc")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]  # was -11.8 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.5  # was 3.28 mm
+    assert "lost_face" in part.uncertainty_terms
+    assert any(w.startswith(f"part {part.label}: ") and "term 'lost_face'" in w for w in m.warnings)
+    assert "shadow_cut" in part.uncertainty_terms
+    assert _covered(part, tp)
+    ((centre, diameter),) = tp["holes"]
+    (hole,) = part.holes  # the bore only: the lit ridge beside it is no hole
+    assert abs(hole.diameter_mm - diameter) < 0.5  # was -2.68 mm
+    assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+
+
+def test_lit_sectors_of_a_second_steel_cam_are_kept():
+    """dev-spot-steel3-t20 (rendered to check the rule on other parts than dev-spot-steel-t20's): a
+    brushed-steel cam 2 mm thick under the spot at 20 degrees, its lit sectors above the threshold:
+    -10.3 % in area and its bore missed before (bench_reallight); joined up to the cam's sharp edge:
+    +0.00 %, bore +0.77 mm, within 3 stated sigma."""
+    m, part, tp = _part("dev-spot-steel3-t20", "cam")
+    assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]  # was -10.3 %
+    assert "lost_face" in part.uncertainty_terms
+    assert _covered(part, tp)
+    ((centre, diameter),) = tp["holes"]
+    hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))  # was missed
+    assert math.dist(hole.circle_centre_mm, centre) < 1.5
+    assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+
+
 @pytest.mark.xfail(
     strict=True,
-    reason="brushed steel under the spot at 20 degrees: the 3 mm disc's brushed sectors that mirror the light "
-    "are as bright as the paper and are lost, the rest is found with its shadow and named 'shadow only' "
-    "(-11.8 % in area, centroid 3.3 mm; warned, 0.3 sigma)",
+    reason="dev-spot-steel3-t20: the 3 mm steel plate's two lit sectors reach the paper's level towards its edge "
+    "(0.86-0.88 of the paper 2-3 px inside the darker region's edge, 0.74-0.78 6 px inside: a soft ramp, not a "
+    "step), so the rule for lit sectors does not join them: -6.4 % in area, centroid 3.64 mm, holes -2.86 and "
+    "-2.83 mm and one missed (bench_reallight), each within 1.0 stated sigma and warned ('cast shadow', 'unclear edge')",
 )
-def test_bright_brushed_sectors_of_a_steel_disc_are_kept():
-    m, part, tp = _part("dev-spot-steel-t20", "disc")
+def test_steel_plate_with_sectors_as_bright_as_the_paper():
+    m, part, tp = _part("dev-spot-steel3-t20", "plate")
+    assert _covered(part, tp)  # it is covered: what fails is the figure itself
     assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
 
 
-def test_mixed_light_shadow_left_in_is_warned_and_covered():
-    """dev-mixed-black-t15: black cam 6 mm and plate 3 mm under a warm lamp and a cool window. The
-    shadow each light throws is lit by the other one, so it has that light's tint, not the paper
-    white's, and is not cut: cam +14.3 %, plate +4.8 % in area (bench_reallight). Not resolved;
-    each part is named in the 'cast shadow' warning and its area and centroid lie within 3
-    stated sigma."""
+def test_mixed_light_coloured_shadows_cut_from_black_parts():
+    """dev-mixed-black-t15: black cam 6 mm and plate 3 mm under a warm lamp and a cool window (15
+    degrees of tilt). The shadow each light throws is lit by the other one, so it has that light's
+    tint, not the paper white's; it is cut by colour (segment.colourshadow: the light a shadow pixel
+    misses has the blocked light's colour). Before: cam +14.3 % in area, centroid 1.85 mm, hole
+    -1.19 mm; plate +4.8 %, centroid 0.97 mm (bench_reallight). Now -0.83 % / +0.93 %, centroids
+    0.19 / 0.44 mm, the cam's hole -0.01 mm."""
     for shape in ("cam", "plate"):
         m, part, tp = _part("dev-mixed-black-t15", shape)
-        warning = next(w for w in m.warnings if w.startswith("cast shadow:"))
+        warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
         assert f" {part.label} (" in warning, shape
-        assert part.area_mm2 > tp["area"], shape  # the shadow left in
+        assert "shadow_cut" in part.uncertainty_terms, shape
+        said = next(w for w in m.warnings if w.startswith("mixed light:"))  # named as cut by colour
+        assert f" {part.label}" in said.split(" the cut shadow")[0], shape
+        assert abs(part.area_mm2 - tp["area"]) < 0.015 * tp["area"], shape  # was +14.3 / +4.8 %
+        assert math.dist(part.centroid_mm, tp["centroid"]) < 0.6, shape  # was 1.85 / 0.97 mm
         assert _covered(part, tp), shape
+        for centre, diameter in tp["holes"]:
+            hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+            assert abs(hole.diameter_mm - diameter) < 0.2, shape  # the cam's was -1.19 mm
+
+
+def test_mixed_light_black_gasket_cut_outside_and_covered():
+    """dev-mixed-black-t0 (rendered for branch mixed11, no tilt): a black gasket 3 mm thick under the
+    same two lights. Its outer shadow is cut by colour (+11.7 % -> +5.8 % in area, centroid 0.75 ->
+    0.14 mm); what is left is its bore, 1.0 mm too small on the side whose wall faces the camera
+    (see the xfail below). Within 3 stated sigma."""
+    m, part, tp = _part("dev-mixed-black-t0", "gasket")
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < 0.08 * tp["area"]  # was +11.7 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.3  # was 0.75 mm
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black-t0: the black gasket's 29 mm bore reads 1.02 mm small (+5.8 % in area; 0.6 sigma): "
+    "on its side whose wall faces the camera the outline runs at the wall's foot inside the bore, not on the top "
+    "face's edge; the thick disc's cut by grain runs 0.5-0.9 mm inside its shadow side (-1.57 %, 0.2 sigma)",
+)
+def test_mixed_light_black_gasket_bore_and_disc_within_1_percent():
+    for shape in ("gasket", "disc"):
+        m, part, tp = _part("dev-mixed-black-t0", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"], shape
+
+
+# ---------------------------------------------------------------------------------
+# scans under a low lamp (30-32 degrees): brass and brushed steel 3-6 mm thick
+# ---------------------------------------------------------------------------------
+
+
+def _scan_part(name: str, shape: str):
+    """The measured part nearest the truth part ``shape`` of the dev scan ``name``, and the truth.
+
+    The scan is measured at its render's resolution (300 dpi: size in px over the orthographic
+    camera's width, as bench_reallight reads it), without a thickness (a scanner measures the face on
+    the glass); truth through ``_reallight_truth.truth_render`` (shapely on the extruded outlines).
+    """
+    truth, parts = truth_render(REALLIGHT, f"{name}.json")
+    (tp,) = [p for p in parts if p["shape"] == shape]
+    dpi = 25.4 * max(truth["camera"]["size_px"]) / truth["camera"]["ortho_scale_mm"]
+    m = scanmass.measure(REALLIGHT / truth["image"], dpi=dpi)
+    assert len(m.parts) == len(parts), [q.area_mm2 for q in m.parts]
+    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+    return m, part, tp
+
+
+#: (render, part, largest relative area error): measured +0.03 / +0.11 / +0.02 / +0.29 / +0.06 / +0.32 /
+#: +0.09 / +0.11 / +0.20 / +0.25 % (bench_reallight); before the change in the comments.
+DEV_SCAN_PARTS = [
+    ("dev-scan-brass-lamp30", "disc", 0.005),  # brass 4 mm, off-centre 8 mm bore: was -57.7 %, 14.7 sigma
+    ("dev-scan-brass-lamp30", "washer", 0.005),  # brass 3 mm ring, 15 mm bore: was +51.2 %, bore missed
+    ("dev-scan-steel-lamp30", "plate", 0.005),  # steel 5 mm plate: -0.08 % (10 mm hole was +0.224 mm, 2.6 sigma)
+    ("dev-scan-steel-lamp30", "gasket", 0.005),  # steel 3 mm gasket, 30 mm bore: was +78.0 %, bore missed
+    ("dev-scan-mixed-lamp32", "cam", 0.005),  # brass 6 mm cam, bore in its wall's shadow: was +39.6 %, bore missed
+    ("dev-scan-mixed-lamp32", "l-bracket", 0.005),  # steel 4 mm bracket: was +67.9 %, both holes missed
+    # brass 3 mm ring (19 / 12.5 mm) beside a 5 mm part (the lid 5 mm up, shadows 8.7 mm): face and shadow
+    # not separated by level or sweep, built from its tint: was +83.7 %, bore missed
+    ("dev-scan-collar-lamp30", "collar", 0.005),
+    ("dev-scan-collar-lamp30", "disc", 0.005),  # steel 5 mm disc: was +30.8 %, bore missed
+    ("dev-scan-bracket-lamp34", "l-bracket", 0.005),  # steel 6 mm bracket, lamp 34: was +58.9 %, holes missed
+    ("dev-scan-bracket-lamp34", "washer", 0.005),  # steel 3.5 mm washer: was +65.2 %, bore missed
+]
+
+
+@pytest.mark.parametrize(("name", "shape", "rel"), DEV_SCAN_PARTS)
+def test_low_lamp_scan_finds_the_face_and_its_holes(name, shape, rel):
+    """A flatbed scan under a lamp 30-32 degrees up: each part's shadow is its face swept along the lamp by
+    lid height / tan(elevation) (5 / tan 30 = 8.7 mm), nearly as dark as brass or steel. The sweep's length
+    was read at the rim of a wide bore's lit floor (a ring's width plus its shadow) and the shadow an L
+    bracket's arm throws into its inner corner, with face beyond it, was taken for no shadow: rings and
+    brackets kept their shadows and their bores closed (+51 to +78 %, covered only by a huge sigma). Each
+    part is found, its area, centroid and holes within 3 stated sigma, its area within ``rel``, and every
+    hole found within 0.1 mm of its diameter. Brass faces (luma 9 % of the contrast from their shadow: their
+    edge against it was placed up to 4 px inside, -0.9 / -1.9 %) are placed there by their tint, which the
+    white lid's shadow lacks (``scanface.tinted_face``): their centroids within 0.01 mm (were 0.16-0.29 mm)."""
+    m, part, tp = _scan_part(name, shape)
+    assert abs(part.area_mm2 - tp["area"]) <= rel * tp["area"]
+    assert _covered(part, tp)
+    if tp["material"] == "brass":
+        assert math.dist(part.centroid_mm, tp["centroid"]) < 0.02
+        tint = next(w for w in m.warnings if "their face was told from it by colour" in w)
+        assert str(part.label) in tint.split("part(s) ")[1].split(" are about")[0].split(", ")  # named
+    assert len(part.holes) == len(tp["holes"])
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 0.5
+        assert abs(hole.diameter_mm - diameter) <= min(0.1, 3 * hole.diameter_u_mm)
+    said = next(w for w in m.warnings if w.startswith("scan of thick parts: the lamp's shadow beside part(s)"))
+    assert f" {part.label} (" in said.split(" was left out")[0]  # named: its shadow left out, the face measured
+
+
+def test_low_window_light_long_shadow_cut_from_a_black_cam():
+    """dev-window-low-black-t10 (rendered for branch window11): the window 18 degrees up, a black cam
+    6 mm thick at 10 degrees of tilt. Its shadow, found as part, reaches 33 px (12 mm) into the found
+    region, longer than a light 30 degrees up or higher can throw (thickness / tan 30 deg + 0.5 mm =
+    31 px), so the sweep was refused and the shadow kept (+29.6 % in area, centroid 4.18 mm;
+    bench_reallight). The sweep's layers are the shadow's grain without a break from the outline to
+    the step (38 px), which measures a lower light (down to 15 degrees): now cut, -3.7 %, centroid
+    0.41 mm, within 3 stated sigma."""
+    m, part, tp = _part("dev-window-low-black-t10", "cam")
+    assert "shadow_cut" in part.uncertainty_terms  # was left with the term 'cast_shadow' only
+    assert abs(part.area_mm2 - tp["area"]) < 0.06 * tp["area"]  # was +29.6 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.8  # was 4.18 mm
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-low-black-t10's black gasket 5 mm thick (window 18 degrees up): its shadow fills a crescent "
+    "outside and one inside its bore, and no sweep is found: +75.5 % in area, centroid 3.84 mm, bore missed "
+    "(warned 'cast shadow', 0.9 sigma)",
+)
+def test_low_window_light_black_gasket_within_3_percent():
+    m, part, tp = _part("dev-window-low-black-t10", "gasket")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+
+
+def test_low_window_light_black_gasket_warned_and_covered():
+    """The same gasket, not cut: the error is warned and inside the stated uncertainty (term 'cast_shadow')."""
+    m, part, tp = _part("dev-window-low-black-t10", "gasket")
+    assert "cast_shadow" in part.uncertainty_terms
+    assert any(w.startswith("cast shadow:") for w in m.warnings)
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-low-steel-t15 (window 20 degrees up, 15 degrees of tilt): the steel disc 6 mm thick is cut "
+    "along its shadow by 13 px where the shadow's grain ends at 18 px (its core as dark as the face, its grain "
+    "fading towards the wall: the half-way of the roughness falls short), and the shadow's rest beyond the cut is "
+    "merged back as a fragment (+12.1 % in area, centroid 3.17 mm); the L bracket 7 mm thick keeps its shadow: its "
+    "own sweep is refused, and along the disc's direction the fade test refuses its face as untinted (blue minus red "
+    "-0.049 of its level against the 0.05 step), so the core test reads the fade as the core (+35.6 %, centroid "
+    "3.19 mm; measured at 6 mm the face reads -0.060, the core is cut: -0.2 %). A half-way on a log scale of roughness cut the disc "
+    "to +5.9 % but moved seven tuned parts by up to 10 %",
+)
+def test_low_window_light_thick_steel_within_3_percent():
+    for shape in ("disc", "l-bracket"):
+        m, part, tp = _part("dev-window-low-steel-t15", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape

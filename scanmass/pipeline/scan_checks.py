@@ -25,7 +25,7 @@ from scanmass.pipeline.part_terms import (
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.lidgap import LidGap
 from scanmass.segment.rings import PartRings
-from scanmass.segment.scanface import FACE_DOUBT_CONTRAST, FaceResult, deep_holes, scan_face
+from scanmass.segment.scanface import FACE_DOUBT_CONTRAST, FaceResult, deep_holes, scan_face, tinted_face
 from scanmass.segment.symmetry import edge_halo, reading_shift
 from scanmass.segment.touching import NeckReport, TouchSplit, split_touching
 from scanmass.uncertainty import (
@@ -64,6 +64,8 @@ def _scan_faces(
     faces: dict[int, FaceResult] = {}
     h_px, w_px = image.grey.shape
     lut = np.asarray(image.to_linear, dtype=np.float32)
+    colour: np.ndarray | None = None
+    colour_read = False
     for rings in parts:
         x0, y0 = (np.floor(rings.outer_px.min(axis=0)).astype(int) - 16).clip(0)
         x1, y1 = np.ceil(rings.outer_px.max(axis=0)).astype(int) + 17
@@ -82,6 +84,13 @@ def _scan_faces(
             code = min(int(np.searchsorted(lut, face.levels[2])), len(lut) - 2)  # the stored code at the face's level
             quantum = abs(float(lut[code + 1] - lut[code]))
             face = deep_holes(crop, (int(x0), int(y0)), face, min_hole_mm2 / px_area_mm2, quantum=quantum)
+        if face is not None:
+            if not colour_read:  # decoded once, for the first face beside a shadow
+                colour, colour_read = _scan_colour(image), True
+            if colour is not None:  # a tinted face (brass) is placed by its colour against the white lid's shadow
+                rgb = colour[y0 : min(y1, h_px), x0 : min(x1, w_px), ::-1].astype(np.float32) / 255.0
+                found = (rings.outer_px, list(rings.holes_px), rings.gradient_px, list(rings.hole_gradients_px))
+                face = tinted_face(rgb, (int(x0), int(y0)), face, min_hole_mm2 / px_area_mm2, found=found)
         if face is None:
             out.append(rings)
             continue
@@ -104,6 +113,19 @@ def _scan_faces(
             )
         )
     return out, faces
+
+
+def _scan_colour(image: LoadedImage) -> np.ndarray | None:
+    """The scan's colour planes (B, G, R as stored, 8 bit), or None for arrays, grey files or other depths."""
+    if image.path is None or len(image.to_linear) != 256:
+        return None
+    colour = cv2.imread(image.path, cv2.IMREAD_COLOR)  # applies the EXIF orientation, as the loader does
+    if colour is None or colour.ndim != 3 or colour.shape[:2] != image.grey.shape or colour.dtype != np.uint8:
+        return None
+    b, g, r = colour[..., 0], colour[..., 1], colour[..., 2]
+    if np.array_equal(b, g) and np.array_equal(g, r):
+        return None  # a grey scan: colour tells nothing
+    return colour
 
 
 def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
@@ -204,6 +226,14 @@ def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
             "on the glass (its sharp edge), and the edge against the shadow adds the term 'scan_shadow'; a hole "
             f"narrower than about {deep_mm:.2g} mm in such a part can look as dark as the part (no light reaches "
             "the lid above it) and be missed: check the holes"
+        )
+    tinted = [k for k, f in left_out.items() if f.note == "separated by colour"]
+    if tinted:
+        listed = ", ".join(str(k) for k in tinted)
+        out.append(
+            f"scan of thick parts: part(s) {listed} are about as dark as the lamp's shadow; their face was told from "
+            "it by colour (a tinted face; the shadow has the lid's colour): the edge against the shadow is where the "
+            "tint falls to half the face's, the other edges are the face's steps against the lid"
         )
     doubt = {k: f for k, f in left_out.items() if f.doubt_outer_px is not None or f.doubt_px2 > 0}
     if doubt:

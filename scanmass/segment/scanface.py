@@ -33,7 +33,7 @@ from scanmass.geometry import signed_area, vertex_normals
 from scanmass.numeric import nonzero_every, nonzero_rc
 from scanmass.segment.distance import exact_distance
 
-__all__ = ["FaceResult", "scan_face", "deep_holes", "SOFT_RATIO"]
+__all__ = ["FaceResult", "scan_face", "deep_holes", "tinted_face", "SOFT_RATIO"]
 
 #: An outline vertex whose edge gradient is below this share of the outline's sharp edges
 #: (its 80th percentile) lies on a soft edge (a shadow's outer end, or a part out of focus).
@@ -380,6 +380,7 @@ def _face_from_seed(
     *,
     sharp_holes: bool = False,
     not_face: np.ndarray | None = None,
+    cast_px: int | None = None,
 ) -> FaceResult | None:
     """The face's rings from a seed region at the part's level, placed by the local levels either side.
 
@@ -391,7 +392,10 @@ def _face_from_seed(
     With ``sharp_holes`` only inner rings as sharp as the face's edges (half their median
     slope) are holes: a hole's edge on the glass is in focus, a metal's sheen is not.
     ``not_face`` marks known holes (to their rims): inside them, deeper than 2 px, nothing
-    counts as face whatever its level.
+    counts as face whatever its level. With ``cast_px`` (the sweep's shadow length, px) a
+    removed pixel the face's own shadow reaches (the face swept that far along the lamp's
+    direction) is a cast shadow wherever the face lies beyond it: the shadow one arm of an
+    L bracket throws into the inner corner ends at the other arm.
     """
     from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
 
@@ -455,7 +459,13 @@ def _face_from_seed(
     contours, _ = cv2.findContours(face0, cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_NONE)
     face_filled = np.zeros(shape, np.uint8)
     cv2.drawContours(face_filled, contours, -1, 1, thickness=cv2.FILLED)
-    if _upstream_share(found.astype(bool) & ~face_filled.astype(bool), face0.astype(bool), direction) > 0.1:
+    removed = found.astype(bool) & ~face_filled.astype(bool)
+    if cast_px is not None:  # what the face's own shadow reaches is a cast shadow, whatever lies beyond it
+        swept = _back(cv2.dilate(_up(face0, direction), np.ones((cast_px + 1, 1), np.uint8), anchor=(0, 0)), direction)
+        # ... and its sides, soft as its front is (the lamp's width, the lid out of focus)
+        swept = cv2.dilate(swept, kernel, iterations=SWEEP_MARGIN_PX)
+        removed &= ~swept.astype(bool)
+    if _upstream_share(removed, face0.astype(bool), direction) > 0.1:
         return None
     blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
     face_outer = correct_curvature(face_outer, blur)
@@ -497,7 +507,7 @@ def _back(a: np.ndarray, direction: np.ndarray) -> np.ndarray:
 
 
 def _shadow_length(
-    smooth: np.ndarray, filled: np.ndarray, interior: np.ndarray | None = None
+    smooth: np.ndarray, filled: np.ndarray, interior: np.ndarray | None = None, *, within: np.ndarray | None = None
 ) -> tuple[int, float, float]:
     """The shadow's length (px) along the rows' upward direction, how clearly it shows, and the step there.
 
@@ -514,7 +524,12 @@ def _shadow_length(
     middle of a disc's far arc), and is not a step inside the part. The gradient is then
     signed (noise averages out over a long front, a step of one sign does not), the mean
     taken from its median over the search range, and the prominence is in sigmas of that
-    departure (1.4826 times its median).
+    departure (1.4826 times its median). With ``within`` (a mask of the found region clear of
+    its outline and holes) the unsigned gradient is read only there, at offsets where at least
+    half the fronts reach it: the face's edge against its shadow lies inside the found region,
+    while the rim of a wide bore's lit floor (the lid seen through it) is a step of the whole
+    contrast that many fronts of a ring's shadow meet at one offset (a ring's width plus its
+    shadow's length), and outweighs a faint face-to-shadow step.
     """
     h = smooth.shape[0]
     grad = np.zeros_like(smooth)
@@ -531,10 +546,11 @@ def _shadow_length(
     offsets = np.arange(extent)
     at = rows[None, :] + offsets[:, None]
     ok = at < h
-    if interior is not None:
-        ok &= interior[np.minimum(at, h - 1), cols[None, :]]
+    reads = interior if interior is not None else within
+    if reads is not None:
+        ok &= reads[np.minimum(at, h - 1), cols[None, :]]
     score = np.where(ok, grad[np.minimum(at, h - 1), cols[None, :]], 0.0).sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
-    valid = np.ones(extent, bool) if interior is None else ok.sum(axis=1) >= 0.5 * rows.size
+    valid = np.ones(extent, bool) if reads is None else ok.sum(axis=1) >= 0.5 * rows.size
     if interior is not None:  # the signed gradient's mean: noise averages out, a step of one sign does not
         score = np.abs(score - np.median(score[valid])) if valid.any() else np.zeros_like(score)
     score[~valid] = 0.0
@@ -781,10 +797,13 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
     smooth = cv2.GaussianBlur(linear.astype(np.float32), (0, 0), 1.0)
     filled = ctx.filled
     clear = None
+    depth = exact_distance(np.ascontiguousarray(ctx.found).astype(np.uint8))
     if hard:
-        depth = exact_distance(np.ascontiguousarray(ctx.found).astype(np.uint8))
         clear = _up(depth > 2 * SWEEP_STEP_READ_PX, direction)
-    length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction), clear)
+    # the face's edge against its shadow lies inside the found region: the unsigned gradient is read clear of
+    # the outline and the holes' rims (the lid seen through a wide bore)
+    within = _up(depth > SWEEP_STEP_READ_PX, direction)
+    length, prominence, step = _shadow_length(_up(smooth, direction), _up(filled, direction), clear, within=within)
     least = SWEEP_MIN_PROMINENCE if clear is None else HARD_FRONT_PROMINENCE
     if length < SWEEP_MIN_LENGTH_PX or prominence < least or step <= 0.0:
         return None
@@ -824,7 +843,9 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         if np.median(slope[rim]) >= SWEEP_HOLE_RIM * abs(core):  # a sharp rim: a hole's edge on the glass
             hole |= patch
     hole |= (filled.astype(bool) & ~ctx.found.astype(bool)).astype(np.uint8)  # holes found as such (lit floors)
-    hole |= _shadowed_floors(filled, ctx.found, swept_off, hole.astype(bool), smooth, dev, step, lo, hi)
+    hole |= _shadowed_floors(
+        filled, ctx.found, swept_off, hole.astype(bool), smooth, dev, step, lo, hi, direction=direction, length=length
+    )
     hole = _joined_floors(hole)
     face0 = (seed.astype(bool) & ~hole).astype(np.uint8)
     # grown back to the face's edges (the seed stops short of them): on the shadow's side through pixels at
@@ -838,7 +859,9 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         return None
     face0 = np.asarray(comp == 1 + int(np.argmax(stats[1:, cv2.CC_STAT_AREA])), dtype=np.uint8)
     part_surface = _normalised_blur(linear, face0.astype(bool), SWEEP_LEVEL_SIGMA_PX, ctx.levels[2])
-    face = _face_from_seed(linear, ctx, face0, part_surface, step, min_hole_px, sharp_holes=True, not_face=hole)
+    face = _face_from_seed(
+        linear, ctx, face0, part_surface, step, min_hole_px, sharp_holes=True, not_face=hole, cast_px=reach + 3
+    )
     return None if face is None else replace(face, local_levels=True, note="separated by the sweep")
 
 
@@ -852,6 +875,9 @@ def _shadowed_floors(
     step: float,
     lo: float,
     hi: float,
+    *,
+    direction: np.ndarray | None = None,
+    length: int = 0,
 ) -> np.ndarray:
     """The floor of a hole in its wall's shadow, beside the lit floor the found outline opened.
 
@@ -867,6 +893,10 @@ def _shadowed_floors(
     joined to it, unless it holds a floor already found by its sharp rim (``rimmed_floors``:
     that floor is a hole as found, and a face darkened next to its rim, as a metal's may be,
     must not join it through the rim's blur). A part without lit floors gives an empty mask.
+    With ``direction`` and ``length`` (the shadow's, px) the band behind a lit floor reaches
+    only that far from it against the lamp: the lit floor is the bore less its wall's shadow,
+    so the bore's rim on the lamp's side lies one shadow length behind the lit floor, and a
+    patch beyond it (a metal face darkened next to the rim) is face, not floor.
     """
     kernel = np.ones((3, 3), np.uint8)
     lit = filled.astype(bool) & ~found.astype(bool)
@@ -879,7 +909,11 @@ def _shadowed_floors(
         return out
     near_edge = cv2.dilate((filled == 0).astype(np.uint8), kernel, iterations=3).astype(bool)
     # the band cut behind each lit floor: the swept-off pixels clear of the outline that touch it
-    behind = (swept_off.astype(bool) & ~near_edge).astype(np.uint8)
+    behind = swept_off.astype(bool) & ~near_edge
+    if direction is not None and length > 0:  # no further than one shadow length behind the lit floor
+        shade = cv2.dilate(_up(lit.astype(np.uint8), direction), np.ones((length + 1, 1), np.uint8), anchor=(0, length))
+        behind &= _back(shade, direction).astype(bool)
+    behind = behind.astype(np.uint8)
     n_behind, comp_behind = cv2.connectedComponents(behind, connectivity=8)
     grown_lit = cv2.dilate(lit.astype(np.uint8), kernel).astype(bool)
     cut = np.unique(comp_behind[grown_lit & behind.astype(bool)])
@@ -1136,3 +1170,217 @@ def deep_holes(
     if not added:
         return face
     return replace(face, holes_px=holes, hole_gradients_px=grads, grain_holes=added, local_levels=True)
+
+
+#: A face is placed by its tint (:func:`tinted_face`) only if its tint stands this many noise sigmas (of the tint
+#: on the lid and its shadow) above the lid's ...
+TINT_NOISE = 20.0
+
+#: ... and is at least this share of the lid's level (a grey metal or a black plastic has none).
+TINT_LEAST = 0.05
+
+
+def tinted_face(
+    rgb: np.ndarray,
+    origin_px: tuple[int, int],
+    face: FaceResult,
+    min_hole_px: float,
+    *,
+    found: tuple[np.ndarray, list[np.ndarray], np.ndarray, list[np.ndarray]] | None = None,
+) -> FaceResult:
+    """A separated face whose edge against its shadow is placed by its colour (brass, copper on a white lid).
+
+    The lid is white and so is the light on it (the lamp's and the housing's scattered
+    light): the lamp's shadow is the lid's colour dimmed, with no tint of its own, while a
+    brass face nearly as dark as that shadow is yellow. The tint is each pixel's colour
+    component orthogonal to the lid's (the lit lid's median next to the part), taken along
+    the face's own tint direction; the face's level is its median over the face eroded by
+    4 px. It is read in the values as stored (encoded): a JPEG keeps colour as encoded
+    differences at half resolution, and across the face's edge against its shadow, both
+    about as dark, the encoding is nearly linear, so the tint's half level lies on the edge
+    (the subsampling blurs it symmetrically). Against the lit lid it does not (the step
+    spans most of the tone curve), but there the luma step is sure: the luma face's edges
+    are kept, and only the stretch of the tint's ring more than 2 px from them (the edge
+    against the shadow) is taken from the tint. Used when the tint's level stands
+    :data:`TINT_NOISE` sigmas above its noise on the lid and the shadow and is at least
+    :data:`TINT_LEAST` of the lid's, the tint shows the face's holes, and its ring lies
+    within 1.5 px (median) of the luma face's edges away from the shadow; otherwise the face
+    is returned unchanged. The holes are the luma face's.
+
+    A face that could not be told from its shadow by level or sweep (``outer_px`` None) is
+    built from the tint with the ``found`` rings (outer, holes and their gradients, image px)
+    in the luma face's place: the found outline's edges against the lit lid and the rims of
+    the holes' lit floors are sure steps and are kept; the tint supplies the face's edge
+    against the shadow and the holes' rims against their shadowed floors (a ring's bore seen
+    through to the lid in its wall's shadow, as dark as brass, closed the found hole).
+
+    Parameters
+    ----------
+    rgb : (H, W, 3) float ndarray
+        R, G, B of the crop :func:`scan_face` read, as stored (encoded), scaled to [0, 1].
+    origin_px : (int, int)
+        The crop's (x, y) offset in the image.
+    face : FaceResult
+        A separated face with its shadow edge marked, or one not separated (with ``found``).
+    min_hole_px : float
+        Least area (px2) of a hole.
+    found : (outer, holes, gradient, hole gradients), optional
+        The found rings, for a face not separated.
+
+    Examples
+    --------
+    A yellowish square face (0.49 0.42 0.26 as stored), found by its level 4 px short of its
+    true edge against a grey shadow (0.45) on its top side, on a white lid (0.93):
+
+    >>> img = np.full((100, 100, 3), 0.93, np.float32)
+    >>> img[10:30, 20:80] = 0.45
+    >>> img[30:80, 20:80] = (0.49, 0.42, 0.26)
+    >>> sq = np.array([[19.5 + t, 33.5] for t in range(61)] + [[79.5, 33.5 + t] for t in range(1, 47)]
+    ...               + [[79.5 - t, 79.5] for t in range(1, 61)] + [[19.5, 79.5 - t] for t in range(1, 46)])
+    >>> edge = sq[:, 1] < 34.0
+    >>> face = FaceResult(sq, [], np.full(len(sq), 0.4), [], 0.0, (0.0, -1.0), 0.0, 0.0, (0.85, 0.2, 0.15),
+    ...                   "separated", shadow_edge=edge)
+    >>> out = tinted_face(img, (0, 0), face, min_hole_px=20)
+    >>> out.note, round(abs(signed_area(out.outer_px)))
+    ('separated by colour', 3000)
+    """
+    from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
+
+    if rgb.ndim != 3:
+        return face
+    if face.outer_px is not None:
+        if face.shadow_edge is None or face.gradient_px is None:
+            return face
+        kept = ~np.asarray(face.shadow_edge, bool)
+        ref = np.asarray(face.outer_px, float)
+        ref_outer, ref_grad = ref[kept], np.asarray(face.gradient_px, float)[kept]
+        ref_holes = [np.asarray(h, float) for h in face.holes_px]
+        ref_hole_grads = [np.asarray(g, float) for g in face.hole_gradients_px]
+        keep_holes = True  # the luma face's holes stand
+    elif found is not None and face.note != "soft edges":
+        ref = np.asarray(found[0], float)
+        ref_outer, ref_grad = ref, np.asarray(found[2], float)
+        ref_holes = [np.asarray(h, float) for h in found[1]]
+        ref_hole_grads = [np.asarray(g, float) for g in found[3]]
+        keep_holes = False  # the found holes are only their lit floors
+    else:
+        return face
+    if len(ref_outer) < 8 or len(ref_grad) != len(ref_outer):
+        return face
+    origin = np.asarray(origin_px, float)
+    shape = rgb.shape[:2]
+    kernel = np.ones((3, 3), np.uint8)
+    mask = np.zeros(shape, np.uint8)
+    cv2.fillPoly(mask, [np.round((ref - origin) * 16).astype(np.int32)], 1, shift=4)
+    for h in ref_holes:
+        cv2.fillPoly(mask, [np.round((h - origin) * 16).astype(np.int32)], 0, shift=4)
+    inner = cv2.erode(mask, kernel, iterations=4).astype(bool)
+    away = ~cv2.dilate(mask, kernel, iterations=4).astype(bool)
+    rgb = rgb.astype(np.float32)
+    luma = rgb.mean(axis=2)
+    if inner.sum() < 50 or away.sum() < 50:
+        return face
+    lit = away & (luma >= np.quantile(luma[away], 0.5))
+    white = np.median(rgb[lit], axis=0)
+    if not float(np.linalg.norm(white)) > 0:
+        return face
+    w = white / np.linalg.norm(white)
+    ortho = rgb - (rgb @ w)[..., None] * w
+    # the face's tint: the tinted pixels inside (a found outline not separated holds the shadow too)
+    strength = np.linalg.norm(ortho[inner], axis=1)
+    tinted = strength >= 0.5 * float(np.quantile(strength, 0.9))
+    tint_vec = np.median(ortho[inner][tinted], axis=0)
+    level = float(np.linalg.norm(tint_vec))
+    if not level > 0:
+        return face
+    tint = ortho @ (tint_vec / level)
+    noise = _mad(tint[away])
+    lid = float(white @ w)
+    if level < max(TINT_NOISE * noise, TINT_LEAST * lid):
+        return face
+    norm = np.pad((tint / level).astype(np.float32), 1)  # a frame of the lid's tint (0) closes every ring
+    rings = []
+    for ring in find_contours(norm, 0.5, fully_connected="high"):
+        if len(ring) < 8 or np.abs(ring[0] - ring[-1]).max() > 1e-9:
+            continue
+        ring_rc, g, slope = _refine_vertices(norm, ring[:-1], 0.5)
+        xy = np.column_stack([ring_rc[:, 1] - 1 + origin[0], ring_rc[:, 0] - 1 + origin[1]])
+        rings.append((xy, signed_area(xy), g, slope))
+    if not rings:
+        return face
+    rings.sort(key=lambda r: -abs(r[1]))
+    outer, outer_area, outer_grad, outer_slope = rings[0]
+    holes, hole_grads, slopes = [], [], [outer_slope]
+    for xy, area, g, slope in rings[1:]:
+        if math.copysign(1.0, area) == math.copysign(1.0, outer_area) or abs(area) < min_hole_px:
+            continue
+        holes.append(xy)
+        hole_grads.append(g)
+        slopes.append(slope)
+    # the tint shows the face's holes (each found hole, a lit floor, lies in one of them)
+    if len(holes) != len(ref_holes):
+        return face
+    blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate(slopes)))))
+    outer = correct_curvature(outer, blur)
+    spliced = _splice(outer, outer_grad, ref_outer, ref_grad)
+    if spliced is None:
+        return face
+    new_outer, gradient, moved = spliced
+    if moved.sum() < 8:
+        return face
+    if keep_holes:
+        new_holes, new_hole_grads = [np.asarray(h, float) for h in face.holes_px], list(face.hole_gradients_px)
+    else:  # each tint hole's rim beside a lit floor (within 2 px of a found hole's ring) is the found ring's
+        new_holes, new_hole_grads = [], []
+        ref_all = np.concatenate(ref_holes) if ref_holes else np.zeros((0, 2))
+        grad_all = np.concatenate(ref_hole_grads) if ref_hole_grads else np.zeros(0)
+        for h, g in zip(holes, hole_grads):
+            h = correct_curvature(h, blur)
+            out = _splice(h, g, ref_all, grad_all, agree=False) if len(ref_all) >= 8 else None
+            ring, grad_h = (out[0], out[1]) if out is not None else (h, np.asarray(g, float))
+            new_holes.append(ring)
+            new_hole_grads.append(grad_h)
+    tint_px2 = abs(signed_area(new_outer)) - sum(abs(signed_area(h)) for h in new_holes)
+    if face.outer_px is not None:
+        face_px2 = abs(signed_area(ref)) - sum(abs(signed_area(h)) for h in ref_holes)
+        shadow_px2 = max(0.0, face.shadow_px2 + face_px2 - tint_px2)
+    else:
+        found_px2 = abs(signed_area(ref)) - sum(abs(signed_area(h)) for h in ref_holes)
+        shadow_px2 = max(0.0, found_px2 - tint_px2)
+    return replace(
+        face,
+        outer_px=new_outer,
+        holes_px=new_holes,
+        gradient_px=gradient,
+        hole_gradients_px=new_hole_grads,
+        shadow_px2=shadow_px2,
+        shadow_edge=moved,
+        shadow_edge_px=float(_ring_lengths(new_outer)[moved].sum()),
+        note="separated by colour",
+        local_levels=True,
+        doubt_outer_px=None,
+        doubt_px2=0.0,
+    )
+
+
+def _splice(
+    ring: np.ndarray, grad: np.ndarray, ref: np.ndarray, ref_grad: np.ndarray, *, agree: bool = True
+) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """A tint ring with its vertices within 2 px of the reference points (sure luma edges) moved onto the nearest.
+
+    Returns the spliced ring, its gradients and which vertices kept the tint's place; None
+    (with ``agree``) when the tint's ring lies more than 1.5 px (median) from the reference
+    where it follows it.
+    """
+    nearest = np.empty(len(ring), int)
+    for i in range(0, len(ring), 512):
+        d2 = ((ring[i : i + 512, None, :] - ref[None, :, :]) ** 2).sum(axis=2)
+        nearest[i : i + 512] = np.argmin(d2, axis=1)
+    offset = np.hypot(*(ring - ref[nearest]).T)
+    moved = offset > 2.0
+    if agree and (np.count_nonzero(~moved) < 8 or float(np.median(offset[~moved])) > 1.5):
+        return None
+    spliced = np.where(moved[:, None], ring, ref[nearest])
+    gradient = np.where(moved, np.asarray(grad, float), np.asarray(ref_grad, float)[nearest])
+    distinct = np.any(np.abs(spliced - np.roll(spliced, 1, axis=0)) > 1e-9, axis=1)  # vertices snapped together
+    return spliced[distinct], gradient[distinct], moved[distinct]

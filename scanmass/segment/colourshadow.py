@@ -1,0 +1,262 @@
+"""Coloured cast shadows of mixed light cut from dark parts in photos (:func:`coloured_shadow_cut`).
+
+Under two lights of different colours (a warm lamp and a cool window) each light's cast
+shadow is lit by the other light: a paler shadow of another colour than the paper, which the
+grain and paper-colour tests of :mod:`scanmass.segment.castshadow` do not take. Its colour
+still follows from the lights. Take each linear channel over the paper white of the mat's
+clear area, ``q = pixel / white``. The paper white is the sum of the lights' parts,
+``white = L_A + L_B`` (per channel), so with ``f_A = L_A / white`` the paper in light A's
+shadow, lit by B and by a share ``t`` of A (its penumbra), reads
+
+    ``q = f_B + t f_A = 1 - (1 - t) f_A``.
+
+The light a shadow pixel misses, ``1 - q``, has the colour of the blocked light (``f_A``,
+per channel) at every depth of the shadow: the pixels of one light's shadow lie on one line
+through the paper white in RGB, the "shadow line" of that light. Under one white light the
+line is the grey axis (a shadow keeps the paper's colour), under mixed light it leans toward
+the blocked light's colour. A part's face reads ``q = rho c`` with its own colour ``c``; a
+dark face lies near the black end, where the shadow line of a coloured light has left the
+grey axis by the most (its umbra, ``q = f_B``, has the other light's colour, and beyond it
+the line runs on away from black).
+
+The lines are measured around the part, on the paper just outside the found region that is
+darkened (the shadows' penumbrae beyond the outline, paper for sure): the colour of ``1 - q``
+there, the warmest and the coolest fifth of it giving the two lights' lines. A pixel of the
+region is shadow when it lies nearer a shadow line than the face's colours (its colour line
+through black, and the segment from the face to the paper white that its blurred edge follows)
+and is darker than the paper, reached from the paper through such pixels (from outside the
+region or from a hole wider than a shadow's reach: a narrower bore of a thick part shows its own
+wall and shaded bottom), within a shadow's reach. A line is used only where the face lies far
+from it (a face of the blocked light's colour, or grey in white light, lies on it: colour cannot
+tell them); the cut is refused where no line is left or where the lines do not lean apart (one
+light colour: the grain rules of :mod:`scanmass.segment.castshadow` hold there).
+
+References
+----------
+The model of a pixel as the sum of the lights reaching it, each scaled by the surface's
+reflectance per channel, is the common practice of illuminant estimation and shadow removal
+(a diagonal model of the camera's channels).
+"""
+
+from __future__ import annotations
+
+import cv2
+import numpy as np
+
+from scanmass.segment.castshadow import CUT_MAX_SHARE, ShadowCut, _filled, _with_rim, roughness
+
+__all__ = ["ShadowLines", "shadow_lines", "coloured_shadow_cut", "LINES_MIN_SPREAD"]
+
+#: Smallest difference of tint (blue minus red over the mean, of the light a shadow pixel
+#: misses) between the warmest and the coolest fifth of the penumbra around a part for two
+#: lights of different colours.
+LINES_MIN_SPREAD = 0.07
+#: Smallest ratio of the face's distance from the shadow lines to its distance from its own
+#: colour line (medians over the face) for the face to be told from the shadows by colour.
+_FACE_APART = 4.0
+#: Smallest distance (share of the paper white) of the face from the shadow lines.
+_FACE_MIN_OFF = 0.01
+#: Largest ratio of the face's levels (90th to 10th percentile over its interior) for a matte
+#: face of one colour: the black plastic faces of the committed mixed-light renders
+#: (tests/data/reallight/dev-mixed-black-*) span 1.1-1.7, the dark brushed steel of
+#: mixed-steel-t10, which mirrors the lamps and the room, 6.
+_FACE_LEVEL_SPREAD = 2.5
+#: Level (share of the paper white) at and above which a pixel is no shadow.
+_MAX_LEVEL = 0.9
+#: Penumbra pixels used for the lines: levels between these shares of the paper white.
+_RING_LEVELS = (0.2, 0.85)
+#: Smallest count of penumbra pixels in the ring around a part.
+_RING_MIN_PX = 200
+#: Share of the ring's pixels (the warmest, the coolest) that gives each line.
+_TAIL = 0.2
+
+
+class ShadowLines:
+    """The shadow lines of the lights around one part (:func:`shadow_lines`).
+
+    Attributes
+    ----------
+    lines : (2, 3) ndarray
+        Per light, the colour of the light a shadow pixel misses (``1 - q`` over its mean),
+        channels in the image's order: the one of lower tint (last channel minus first) first.
+    spread : float
+        The difference of their tints (last channel minus first, over the mean).
+    """
+
+    def __init__(self, lines: np.ndarray, spread: float) -> None:
+        self.lines = lines
+        self.spread = spread
+
+
+def shadow_lines(q: np.ndarray, part_mask: np.ndarray, reach_px: float) -> ShadowLines | None:
+    """The shadow lines of the lights from the darkened paper just outside a found region.
+
+    Parameters
+    ----------
+    q : (H, W, 3) float ndarray
+        The crop's linear colour over the paper white, per channel (smoothed).
+    part_mask : (H, W) bool ndarray
+        The found region.
+    reach_px : float
+        How far (px) beyond the region the ring is read (a shadow's reach).
+
+    Returns
+    -------
+    ShadowLines or None
+        None with fewer than :data:`_RING_MIN_PX` penumbra pixels in the ring.
+
+    Examples
+    --------
+    A warm lamp's and a cool light's penumbrae on either side of a square part, the warm lamp
+    giving a share ``f_w`` of the paper white per channel (blue, green, red: the image's order),
+    the cool light the rest. The cool light's shadow misses ``f_c = 1 - f_w``, over its mean
+    (0.667, 0.556, 0.444) / 0.556 = (1.2, 1, 0.8); the warm lamp's misses ``f_w``, over its mean
+    (0.75, 1, 1.25); their tints -0.4 and +0.5 lie 0.9 apart.
+
+    >>> f_w = 0.5 * np.array([0.6, 0.8, 1.0]) / 0.9
+    >>> q = np.ones((60, 60, 3), np.float32); mask = np.zeros((60, 60), bool); mask[20:40, 20:40] = True
+    >>> t = np.linspace(0.0, 0.7, 10)[None, :, None]
+    >>> q[20:40, 10:20] = 1 - (1 - t[:, ::-1]) * f_w  # the warm lamp's shadow, left
+    >>> q[20:40, 40:50] = 1 - (1 - t) * (1 - f_w)  # the cool light's, right
+    >>> found = shadow_lines(q, mask, 12.0)
+    >>> np.round(found.lines, 2).tolist(), round(found.spread, 2)
+    ([[1.2, 1.0, 0.8], [0.75, 1.0, 1.25]], 0.9)
+    """
+    m8 = part_mask.astype(np.uint8)
+    outside = cv2.distanceTransform(1 - m8, cv2.DIST_L2, 3)
+    level = q.mean(axis=2)
+    ring = (outside > 1.5) & (outside < reach_px) & (level > _RING_LEVELS[0]) & (level < _RING_LEVELS[1])
+    if np.count_nonzero(ring) < _RING_MIN_PX:
+        return None
+    miss = 1.0 - q[ring]
+    miss = miss / np.maximum(miss.mean(axis=1, keepdims=True), 1e-6)
+    tint = miss[:, 2] - miss[:, 0]
+    lo, hi = np.quantile(tint, [_TAIL, 1.0 - _TAIL])
+    lines = np.array([np.median(miss[tint <= lo], axis=0), np.median(miss[tint >= hi], axis=0)])
+    lines /= lines.mean(axis=1, keepdims=True)
+    spread = float((lines[1, 2] - lines[1, 0]) - (lines[0, 2] - lines[0, 0]))
+    return ShadowLines(lines, abs(spread))
+
+
+def _line_distance(q: np.ndarray, line: np.ndarray) -> np.ndarray:
+    """(H, W): distance of each pixel from the shadow line ``q = 1 - s line`` at its own level."""
+    miss = 1.0 - q
+    return np.linalg.norm(miss - miss.mean(axis=2, keepdims=True) * line, axis=2)
+
+
+def coloured_shadow_cut(
+    colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float
+) -> ShadowCut | None:
+    """The coloured cast shadows (mixed light) inside a region found as a dark part.
+
+    Parameters
+    ----------
+    colour_lin : (H, W, 3) float ndarray
+        A crop of the photo in linear light, with paper all around the region.
+    part_mask : (H, W) bool ndarray
+        The found region (holes cleared).
+    paper_rgb : (3,) ndarray
+        The local paper white (linear), e.g. :attr:`~scanmass.segment.shadow.ShadowRisk.paper_rgb`.
+    reach_px : float
+        How far (px) inside the region a shadow can reach, and beyond it the ring read for the
+        lines (:func:`~scanmass.segment.shadow.shadow_band_px`).
+
+    Returns
+    -------
+    ShadowCut or None
+        The cut (``direction`` None: it was not found by a sweep), or None where the face is
+        not of one colour and level (a metal's, mirroring the lights: its levels spread more
+        than :data:`_FACE_LEVEL_SPREAD` times), the lights have one colour (lines less than :data:`LINES_MIN_SPREAD` apart), the face lies near a
+        shadow line, nothing is cut, or the cut would take more than
+        :data:`~scanmass.segment.castshadow.CUT_MAX_SHARE` of the region.
+
+    Examples
+    --------
+    A dark bluish face (0.07 of the paper) with the cool light's shadow (lit by a warm lamp, its
+    umbra warm) inside its found region on the right, and the warm lamp's paler, cool shadow
+    beyond it on the left: the warm band is cut, the face kept.
+
+    >>> warm = np.array([0.6, 0.8, 1.0])  # blue, green, red: the image's channel order
+    >>> f_w = 0.3 * warm / warm.mean(); f_c = 1 - f_w
+    >>> img = np.ones((80, 80, 3), np.float32); mask = np.zeros((80, 80), bool); mask[20:60, 20:60] = True
+    >>> img[20:60, 20:52] = 0.07 * np.array([1.08, 0.97, 0.95])
+    >>> img[20:60, 52:60] = f_w  # the umbra of the cool light inside the region
+    >>> t = np.linspace(0.05, 0.95, 12)[None, :, None]
+    >>> img[20:60, 60:72] = 1 - (1 - t) * f_c  # its penumbra beyond the outline
+    >>> img[20:60, 8:20] = 1 - (1 - t[:, ::-1]) * f_w  # the warm lamp's, on the left
+    >>> found = coloured_shadow_cut(img, mask, np.ones(3), 12.0)
+    >>> bool(found.cut[20:60, 53:60].all()), bool(found.cut[20:60, 20:51].any()), found.edge_px
+    (True, False, 40.0)
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return None
+    q = cv2.GaussianBlur((colour_lin / np.asarray(paper_rgb, np.float32)).astype(np.float32), (0, 0), 1.0)
+    lines = shadow_lines(q, part_mask, reach_px)
+    if lines is None or lines.spread < LINES_MIN_SPREAD:
+        return None
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return None
+    level = q.mean(axis=2)
+    lo, hi = np.quantile(level[interior], [0.1, 0.9])
+    if hi > _FACE_LEVEL_SPREAD * max(float(lo), 1e-6):
+        return None  # a face that mirrors the lights (metal) has no one colour line
+    face = np.median(q[interior], axis=0)
+    face_colour = face / max(float(face.mean()), 1e-6)
+    # the face's colours: the face in more or less light (its colour line through black), and
+    # its edge blurred with the paper (the segment from the face to the paper white)
+    along = np.linalg.norm(q - level[..., None] * face_colour, axis=2)
+    miss, face_miss = 1.0 - q, 1.0 - face
+    share = np.clip(miss @ face_miss / max(float(face_miss @ face_miss), 1e-9), 0.0, 1.0)
+    blurred = np.linalg.norm(miss - share[..., None] * face_miss, axis=2)
+    off_face = np.minimum(along, blurred)
+    # a light's line is used where the face lies far from it (both it and the face's edge line
+    # run through the paper white, so they then stay apart at every depth)
+    floor = max(_FACE_MIN_OFF, _FACE_APART * float(np.median(off_face[interior])))
+    off = [_line_distance(q, line) for line in lines.lines]
+    off = [d for d in off if float(np.median(d[interior])) >= floor]
+    if not off:
+        return None  # the face lies near the shadow lines: colour cannot tell them apart
+    off_line = np.minimum.reduce(off)
+    like = part_mask & (off_line < off_face) & (level < _MAX_LEVEL) & (inside <= reach_px)
+    # reached from the paper: outside the region, or in a hole wider than a shadow's reach (a
+    # narrower bore of a thick part shows its own lit wall and shaded bottom, not a cast shadow)
+    paper = ~_filled(part_mask)
+    _, holes, hole_stats, _ = cv2.connectedComponentsWithStats((~part_mask & ~paper).astype(np.uint8), connectivity=8)
+    wide = hole_stats[:, cv2.CC_STAT_AREA] > np.pi * reach_px**2
+    paper |= (holes > 0) & wide[holes]
+    near_paper = cv2.dilate(paper.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+    count, labels = cv2.connectedComponents(like.astype(np.uint8), connectivity=8)
+    touching = np.unique(labels[like & near_paper])
+    cut = np.isin(labels, touching[touching > 0])
+    keep = part_mask & ~cut
+    # pieces the cut parts from the face (a rim between two shadows, an island) go with it
+    n, comp, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
+    if n > 2:
+        areas = stats[1:, cv2.CC_STAT_AREA]
+        pieces = (comp > 0) & (stats[comp, cv2.CC_STAT_AREA] < 0.05 * areas.max())
+        cut |= pieces
+        keep &= ~pieces
+    n_cut = int(np.count_nonzero(cut))
+    if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
+        return None
+    # the rim of blurred paper left between the cut and the paper would enclose the cut as a
+    # false hole once painted: it goes with the cut (as for a cut by grain)
+    cut = _with_rim(cut, part_mask)
+    keep = part_mask & ~cut
+    n_cut = int(np.count_nonzero(cut))
+    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
+    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
+    rough = roughness(level)
+    return ShadowCut(
+        cut=cut,
+        cut_px=n_cut,
+        edge_px=float(np.count_nonzero(border)),
+        texture_face=float(np.median(rough[keep])),
+        texture_shadow=float(np.median(rough[cut])),
+        level_face=float(np.median(level[keep])),
+        level_shadow=float(np.median(level[cut])),
+        direction=None,
+    )
