@@ -294,6 +294,7 @@ def _shapes():
     cam = (np.c_[r * np.cos(t), r * np.sin(t)], [circle(0, 0, 4.0, 120)])
     washer = (circle(0, 0, 16.0, 300), [circle(0, 0, 7.5, 180)])  # a smaller, wider ring than the gasket
     collar = (circle(0, 0, 19.0, 300), [circle(0, 0, 12.5, 240)])  # a ring between the two
+    seal = (circle(0, 0, 25.0, 360), [circle(0, 0, 19.0, 300)])  # a wide ring with a narrow face (6 mm)
     return {
         "plate": plate,
         "l-bracket": bracket,
@@ -302,6 +303,7 @@ def _shapes():
         "cam": cam,
         "washer": washer,
         "collar": collar,
+        "seal": seal,
     }
 
 
@@ -630,6 +632,26 @@ def dev_scenes():
             310,
             0,
             0,
+            "Standard",
+        ),
+        # branch ring11: rings whose bore is large under the hard spot at a tilt (a black collar 3.5 mm
+        # beside a plate; a steel seal 2.2 mm with a narrow face beside a cam)
+        (
+            "dev-spot-black-t12",
+            "spot",
+            [("collar", "black-plastic", 3.5, 120, 195, 0), ("plate", "black-plastic", 2.5, 85, 95, 35)],
+            320,
+            12,
+            130,
+            "Filmic",
+        ),
+        (
+            "dev-spot-steel-t18",
+            "spot",
+            [("seal", "brushed-steel", 2.2, 95, 190, 0), ("cam", "brushed-steel", 3.0, 125, 90, -40)],
+            330,
+            18,
+            300,
             "Standard",
         ),
     ]
