@@ -36,7 +36,7 @@ belong to the tuned set::
 
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --width 900 --height 1200 \
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
-        dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0
+        dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 dev-spot-black-t12 dev-spot-steel-t18
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34

@@ -553,7 +553,9 @@ _LEVEL_STEP_RATIO = 1.3
 #: doubles the level and halves the grain read there. On the committed renders
 #: tests/data/reallight/dev-spot-black-t12 and dev-spot-steel-t18 (a black collar and a steel seal
 #: under the hard spot, shadows at 0.023 and 0.015 of the paper) the first three layers along the
-#: shadow hold 3-31 % (collar) and 23-55 % (seal) shadow-like pixels, the next ones 56-89 %.
+#: shadow hold 3-31 % (collar) and 23-55 % (seal) shadow-like pixels, the next ones 56-89 %. The
+#: run past the rim must hold ``2 + _RIM_LAYERS`` layers (the collar's holds 9.5, the seal's 5.9; a
+#: synthetic shadow 5 px wide at the face's level 4.3, whose cut would miss it by 20-40 %).
 _RIM_LAYERS = 3
 
 
@@ -622,11 +624,15 @@ def _sweep_depth(
     if best_run < 2:
         # no run from the boundary itself: a dark shadow whose grain the outline's blurred rim
         # hides (the first _RIM_LAYERS layers), as a ring's narrow found region shows it
+        # the rim is then cut on no evidence of its own: the run past it must cover it too (a
+        # shadow no wider than the rim plus two layers is left to the hidden shadow's bound)
         skip_rim = True
         for trial in trials:
             run = _run(mask8, trial, like, reach_px, skip_rim=True)
             if run > best_run:
                 best_run, unit = run, trial
+        if best_run < 2 + _RIM_LAYERS:
+            return None
     if best_run < 2:
         return None
     if direction is not None and _run(mask8, -unit, like, reach_px, skip_rim=skip_rim) >= best_run:
