@@ -138,9 +138,6 @@ KNOWN_FAILING = {
     "is refused (only the parts' shadows and hole bottoms are found, and they look like shadows)",
     "window-mixed-t0.json": "the white nylon disc beside the black bracket is not found; its shadow and its hole's "
     "bottom are found instead, each named in the 'shadow only' warning",
-    "dev-soft-brass-t25.json": "pale brass mirroring the softbox is brighter than the paper and not segmented: the "
-    "cam is found only as pieces (its shaded wall, its bore's shadow), one with a hole past its own outline, so the "
-    "photo is refused as 'a part was found only in pieces' (tests/test_reallight_dev.py)",
     "mixed-steel-t10.json": "brushed-steel plate in mixed warm and cool light at 10 degrees: its lit half has the "
     "paper's colour and level and is not found; the darker half is reported, 12 mm off in centroid (covered by the "
     "cast-shadow term, warned), so the benchmark counts the plate missed and the half extra",
@@ -152,7 +149,6 @@ KNOWN_FAILING = {
 KNOWN_RAISES = {
     "window-nylon-t0.json": SegmentationError,
     "spot-nylon-t0.json": SegmentationError,
-    "dev-soft-brass-t25.json": SegmentationError,
 }
 
 

@@ -22,7 +22,13 @@ from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part, shoelace_area
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
-from scanmass.pipeline.part_terms import fragment_warnings, measure_part, with_fragment_term
+from scanmass.pipeline.part_terms import (
+    fragment_warnings,
+    lost_face_warnings,
+    measure_part,
+    with_fragment_term,
+    with_lost_face_term,
+)
 from scanmass.pipeline.photo_checks import (
     _check_within_support,
     _hidden_holes,
@@ -31,6 +37,7 @@ from scanmass.pipeline.photo_checks import (
     _unclear_edges,
     _unknown_thickness,
 )
+from scanmass.pipeline.photo_colour import colour_faces
 from scanmass.pipeline.photo_holes import _open_deep_holes
 from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
 from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
@@ -53,6 +60,7 @@ from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import escaping_holes
+from scanmass.segment.brightface import LostFace, recover_lost_faces
 from scanmass.segment.closedfeat import measure_closed
 from scanmass.segment.fragments import Fragment, find_fragments
 from scanmass.segment.lidgap import lid_gap
@@ -400,6 +408,11 @@ def measure_image(
     faces: dict[int, FaceResult] = {}
     if face_check and seg.polarity.startswith("dark"):
         seg.parts, faces = _scan_faces(image, seg.parts, options.min_hole_area_mm2 or options.min_area_mm2, px_area_mm2)
+    lost_faces: list[LostFace] = []
+    if roi_px is not None and seg.polarity.startswith("dark"):  # photos: a mirroring face's lit sectors
+        seg.parts, lost_faces = recover_lost_faces(
+            image, seg.parts, roi_px, min_hole_px=(options.min_hole_area_mm2 or options.min_area_mm2) / px_area_mm2
+        )
     pieces: dict[int, list[PartRings]] = {}
     fragments: list[Fragment] = []
     if roi_px is not None and len(seg.parts) > 1:  # photos: a grainy face found in pieces
@@ -468,6 +481,9 @@ def measure_image(
             mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm,
             extra_mm=extra_mm or None, extra_perimeter_mm=extra_perimeter_mm, extra_perimeter_u_mm=extra_perimeter_u_mm,
         )  # fmt: skip
+        lost_px = sum(f.area_px for f in lost_faces if f.label == walls.rings.label)
+        if lost_px > 0:
+            part = with_lost_face_term(part, lost_px * px_area_mm2)
         if own_pieces:
             part = with_fragment_term(
                 part, mapped, [plane_map.to_mm(np.asarray(q.outer_px, float)) for q in own_pieces]
@@ -517,6 +533,7 @@ def measure_image(
                 "beyond the stated uncertainty): pass --encoding linear or --encoding srgb to decide",
             )
     touching = _face_warnings(faces, plane_map.mm_per_px)
+    touching += lost_face_warnings(parts)
     touching += fragment_warnings(fragments, parts, plane_map.mm_per_px)
     touching += _touching_warnings(seg.parts, splits, necks, plane_map.mm_per_px)
     touching += _split_warnings(split_notes, plane_map.mm_per_px)
@@ -761,6 +778,11 @@ def _measure_photo(
     """:func:`measure_photo` with its colour planes decoding in ``colour_job``."""
     thickness_mm = options.thickness_mm  # checked by MeasureOptions.check
     scale = photo_scale(image, options, method)
+    min_area_px = options.min_area_mm2 / scale.plane_map.mm_per_px**2
+
+    def colour_measure(plane: LoadedImage) -> Measurement:
+        return measure_image(plane, options, plane_map=scale.plane_map, roi_px=scale.roi_px)
+
     tone = marker_tone(image, scale) if options.encoding == "auto" else None
     shift = tone if tone is not None and tone.applies else None
     masked = _mask_outside(image, scale.roi_px)
@@ -776,6 +798,19 @@ def _measure_photo(
             "the corner marks, away from markers and the photo's edge",
             path=image.path,
         ) from None
+    except SegmentationError:
+        # a coloured face brighter than the paper is not found by its grey levels: by its colour
+        coloured, notes = colour_faces(
+            image, scale, None, colour_job.result(), colour_measure, min_area_px, thickness_mm
+        )
+        if coloured is None:
+            raise
+        _check_within_support(scale, coloured, image.path)
+        coloured.warnings = (
+            list(scale.warnings) + notes + _unknown_thickness(scale, coloured, thickness_mm) + list(coloured.warnings)
+        )
+        coloured.settings.update({"scale": method})
+        return coloured
     _check_within_support(scale, result, image.path)
     top_seen, top_labels = wall_sides(image.grey.shape[:2], scale, result, thickness_mm)
     if top_seen is not None:
@@ -812,7 +847,9 @@ def _measure_photo(
         cut_scale = scale
     _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure)
     shadow_only = _shadows_only(image, scale, result, colour, thickness_mm)
-    warnings = list(scale.warnings) + shadow_only + cut + deep
+    coloured, colour_notes = colour_faces(image, scale, result, colour, colour_measure, min_area_px, thickness_mm)
+    result = result if coloured is None else coloured
+    warnings = list(scale.warnings) + shadow_only + cut + deep + colour_notes
     if tone is not None and tone.applies:
         warnings.insert(
             0,

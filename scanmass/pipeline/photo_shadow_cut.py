@@ -17,7 +17,7 @@ from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
-from scanmass.pipeline.part_terms import _with_extra_term, _with_shadow_term, area_share_term
+from scanmass.pipeline.part_terms import _with_extra_term, _with_shadow_term, area_share_term, has_lit_face
 from scanmass.pipeline.photo_checks import _part_crop
 from scanmass.pipeline.photo_cut_strips import _lies_within, _open_slivers, _painted_holes
 from scanmass.pipeline.photo_walls import with_top_seen
@@ -180,6 +180,18 @@ def _blend_cut_edge(
     window[band] = codes.astype(window.dtype)
 
 
+def _within_box(part: Part, lo: np.ndarray, hi: np.ndarray) -> bool:
+    """Whether a part lies within the box ``lo``-``hi`` (mm): its centroid, or every point of its outline.
+
+    A sliver of a cut's remnant (a few pixels enclosing almost no area) has an ill-defined centroid:
+    on the committed render tests/data/reallight/dev-window-low-steel-t15 a piece of 0.07 mm² beside
+    the steel disc's cut had its centroid 370 mm off, outside the mat, and was reported as a part.
+    """
+    outline = part.outline_mm if part.outline_mm is not None else [part.centroid_mm]
+    pts, c = np.asarray(outline, float), np.asarray(part.centroid_mm, float)
+    return bool(np.all((pts >= lo) & (pts <= hi))) or bool(np.all((c >= lo) & (c <= hi)))
+
+
 def _cut_cast_shadows(
     image: LoadedImage,
     masked: LoadedImage,
@@ -266,7 +278,9 @@ def _cut_cast_shadows(
                 colour_lin = lut[colour[y0:y1, x0:x1]]
                 window = grey[y0:y1, x0:x1]
                 risk = shadow_risk(colour_lin, mask, band_px)
-        if risk is not None and risk.fraction >= SHADOW_FRACTION and not looks_like_shadow_only(risk):
+        # a part whose lit face was joined up to its sharp edge is no shadow alone
+        alone = risk is not None and looks_like_shadow_only(risk) and not has_lit_face(part)
+        if risk is not None and risk.fraction >= SHADOW_FRACTION and not alone:
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
             cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
@@ -381,7 +395,7 @@ def _cut_cast_shadows(
             for k, q in enumerate(again.parts)
             if k != n
             and q.area_mm2 < 0.05 * again.parts[n].area_mm2
-            and (k in within or bool(np.all((np.asarray(q.centroid_mm) >= lo) & (np.asarray(q.centroid_mm) <= hi))))
+            and (k in within or _within_box(q, lo, hi))
             and all(math.dist(q.centroid_mm, c) > 1.0 for c in before)
         }
         part = again.parts[n]

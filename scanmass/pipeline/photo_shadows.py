@@ -15,7 +15,13 @@ import numpy as np
 from scanmass.errors import SegmentationError
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Hole, Measurement
-from scanmass.pipeline.part_terms import UNKNOWN_THICKNESS_MM, _with_extra_term, _with_shadow_term, area_share_term
+from scanmass.pipeline.part_terms import (
+    UNKNOWN_THICKNESS_MM,
+    _with_extra_term,
+    _with_shadow_term,
+    area_share_term,
+    has_lit_face,
+)
 from scanmass.pipeline.photo_checks import _part_crop
 from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM
 from scanmass.scale.camera import PhotoScale
@@ -78,7 +84,11 @@ def _shadows_only(
         risk = shadow_risk(crop_lin, mask, band_px)
         if risk is None:
             continue
-        if looks_like_shadow_only(risk) and not too_wide_for_shadow(mask, reach_t, mm_per_px):
+        if (
+            looks_like_shadow_only(risk)
+            and not has_lit_face(part)  # a lit face joined up to its sharp edge
+            and not too_wide_for_shadow(mask, reach_t, mm_per_px)
+        ):
             shadows.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
         elif looks_like_lit_white(crop_lin, mask, risk.paper_rgb):
             lit.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")

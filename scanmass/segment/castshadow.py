@@ -12,7 +12,9 @@ and the layer the sweep adds is the shadow. The vector's direction is the one wh
 shadow-like layers the longest; its length is where the layers' level (or roughness) steps from
 the shadow's to the face's; a search of nearby whole-pixel vectors by pixel votes refines both.
 The cut is refused where the face cannot be told from the shadow (as rough, no step), where the
-sweep would run through the face, or where it is longer than the part's shadow can be.
+sweep would run through the face, or where it is longer than the part's shadow can be: a light 30
+degrees up or higher, or a lower one (a window, down to 15 degrees) where the photo's own shadow
+measures it, its grain running without a break from the outline to the step.
 
 The roughness is the smoothed absolute deviation from a 3x3 median, taken relative to the local
 level: a median filter keeps a step edge, so the step between the face and the shadow adds
@@ -53,6 +55,11 @@ __all__ = [
     "core_cut",
 ]
 
+#: How much longer than the 30-degree reach (:data:`~scanmass.segment.shadow.SHADOW_MIN_ELEVATION_DEG`) a
+#: sweep may be where the photo's own shadow measures a lower light: tan(30 deg) / tan(15 deg) = 2.15, a
+#: light down to 15 degrees above the mat (a window's middle; trigonometry). Such a sweep is taken only where
+#: its layers are shadow-like without a break from the outline up to the step (:func:`_sweep_depth`'s run).
+LOW_LIGHT_REACH_FACTOR = math.tan(math.radians(30.0)) / math.tan(math.radians(15.0))
 #: Smallest ratio of the shadow's roughness (median over the candidate layer) to the face's
 #: (median over its interior) for a cut: below it the two cannot be told apart.
 CUT_MIN_TEXTURE_RATIO = 4.0
@@ -234,9 +241,13 @@ def _shadow_cut(
         sweep = _sweep_depth(outer if direction is not None else part_mask, like, level, rough, reach_px, direction)
     if sweep is None:
         return None, dark
-    unit, depth_px, face_like, rim = sweep
-    if depth_px > reach_px + 1.0:
-        return None, dark  # longer than a shadow of the part can be: not its shadow
+    unit, depth_px, face_like, run_px, rim = sweep
+    if depth_px > reach_px + 1.0 and not (
+        depth_px <= LOW_LIGHT_REACH_FACTOR * reach_px + 1.0 and depth_px <= run_px + 1.0
+    ):
+        # longer than a shadow of the part can be under a light 30 degrees up or higher, and not
+        # measured as a lower light's shadow (shadow-like layers without a break up to the step): not its shadow
+        return None, dark
     cut = _sweep_layer(outer.astype(np.uint8) if direction is not None else mask8, depth_px * unit) & part_mask
     if direction is not None:
         # a tinted face (steel in window light): its pixels are no shadow (the shadow keeps the paper's tint)
@@ -583,13 +594,13 @@ def _sweep_depth(
     rough: np.ndarray,
     reach_px: float,
     direction: np.ndarray | None = None,
-) -> tuple[np.ndarray, float, np.ndarray, np.ndarray | None] | None:
-    """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, a face map and the rim passed over.
+) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None] | None:
+    """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, a face map, the run and the rim passed over.
 
     The face map is True where a pixel looks like the face: at the face's level and smooth.
     Where no sweep runs from the boundary itself, the run may begin past the outline's blurred
     rim (:data:`_RIM_LAYERS`); the rim (pixels that near the boundary) is then returned as the
-    fourth element (else None) and is neither side's evidence: it neither votes nor counts as
+    fifth element (else None) and is neither side's evidence: it neither votes nor counts as
     face, and the caller leaves it out of the shadow's grain.
     The sweep itself is refined by votes: where the face and the shadow differ in level, a pixel
     at the face's level votes for the face, a rough one at the shadow's level for the shadow,
@@ -687,7 +698,8 @@ def _sweep_depth(
             frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
             depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
             best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
-            return best_unit, best_depth, face_sure, (rim if skip_rim else None)
+            # the run of shadow-like layers from the outline: how far the shadow's grain reaches
+            return best_unit, best_depth, face_sure, float(ks[last - 1]), (rim if skip_rim else None)
     return None
 
 
@@ -810,7 +822,7 @@ def _dark_sweep(
     reach_px: float,
     alike: np.ndarray,
     inside: np.ndarray,
-) -> tuple[np.ndarray, float, np.ndarray, np.ndarray | None] | None:
+) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None] | None:
     """:func:`_sweep_depth` for a dark face: the sweep whose layer holds the most shadow votes net.
 
     A dark part's outline holds more than its shadow that looks rough and neutral: the bottom
@@ -854,7 +866,7 @@ def _dark_sweep(
     if best_step is None or best_score < 2 * STRETCH_PX:
         return None
     best_unit, best_depth = _best_sweep(mask8, vote, best_step)
-    return best_unit, best_depth, face_sure, None
+    return best_unit, best_depth, face_sure, 0.0, None  # no run measured: held to the 30-degree reach
 
 
 def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple[np.ndarray, float]:

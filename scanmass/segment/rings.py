@@ -39,6 +39,8 @@ _MAX_CUT_CHECKED = 20
 #: Most neighbouring-pixel pairs sampled for the noise estimate.
 _NOISE_PAIRS = 200_000
 _PAD_PX = 6
+#: Scale (px) of the face's local level beside an edge with ``local_face`` (:func:`refine_region`).
+LOCAL_FACE_SIGMA_PX = 4.0
 
 
 #: Holes smaller than this (px2, a 2 x 2 pixel patch) are pixel noise: filled without being counted.
@@ -551,12 +553,16 @@ def _refine_part(
     roi_px,
     ratio_hint,
     paper_at_edge=False,
+    local_face=False,
 ):
     """Sub-pixel rings of one part from a padded crop around it.
 
     Only a band a few pixels wide along the part's boundaries is normalised between the
     local background and part levels; inside the part the normalised value is 1 and
-    elsewhere 0, so marching squares can only find the part's own edges.
+    elsewhere 0, so marching squares can only find the part's own edges. With
+    ``local_face`` the part's level beside each edge is the face's own level there (a
+    normalised convolution of the face 4 px and more inside, :data:`LOCAL_FACE_SIGMA_PX`),
+    not a smooth surface over the whole face: a mirroring face in bright and dark sectors.
     """
     grey, lut = image.grey, image.to_linear
     height, width = grey.shape
@@ -615,6 +621,11 @@ def _refine_part(
                 lut[grey_crop[rf, cf]].astype(np.float64), rf.astype(float), cf.astype(float), scale, 2
             )
             fg_band = _eval_points(coef_f, ord_f, band_rows, band_cols, scale)
+            if local_face:
+                crop_lin = lut[grey_crop].astype(np.float32)
+                fg_band = _masked_blur(crop_lin, interior, LOCAL_FACE_SIGMA_PX, float(np.median(fg_band)))[
+                    band_rows, band_cols
+                ].astype(np.float64)
             fg_surface: tuple[np.ndarray, int] | float = (coef_f, ord_f)
         else:  # thin part: no clean interior; take the part level relative to the background
             fg_band = bg_band * ratio_hint
@@ -653,6 +664,11 @@ def _refine_part(
     norm = np.zeros((shape[0] + 2, shape[1] + 2), np.float32)
     norm[1:-1, 1:-1] = comp
     norm[band_rows + 1, band_cols + 1] = band_norm
+    if local_face:
+        # the region was joined from a face's pieces along their pixel edges: its edge lies within
+        # 2 px of them, and what lies deeper is face (a lit ridge beside a hole is no hole)
+        deep = cv2.erode(comp, kernel, iterations=2).astype(bool)
+        norm[1:-1, 1:-1][deep] = 1.0
     if roi_px is not None:
         roi_mask = np.zeros(norm.shape, np.uint8)
         cv2.fillPoly(roi_mask, [np.round(np.asarray(roi_px) - [c0 - 1, r0 - 1]).astype(np.int32)], 1)
@@ -721,6 +737,29 @@ def _refine_part(
         filled_holes=filled,
         filled_hole_area_px=filled_area,
     )
+
+
+def refine_region(
+    image: LoadedImage,
+    contour: np.ndarray,
+    holes: list[np.ndarray],
+    bbox: tuple[int, int, int, int],
+    label: int,
+    *,
+    roi_px: np.ndarray | None,
+    min_hole_px: float,
+    ratio_hint: float,
+) -> PartRings | None:
+    """Sub-pixel rings of a photo's part given as a pixel contour (OpenCV's), with local face levels.
+
+    The region was joined from pieces of one face (:mod:`scanmass.segment.brightface`); its edges
+    lie half-way between the paper and the face's own level beside each edge. None when no ring
+    is found.
+    """
+    return _refine_part(
+        image, contour, holes, bbox, False, label, level=0.5, threshold=None, bright_background=True,
+        min_hole_px=min_hole_px, roi_px=roi_px, ratio_hint=ratio_hint, paper_at_edge=True, local_face=True,
+    )  # fmt: skip
 
 
 def _level_refined(norm: np.ndarray, level: float) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:

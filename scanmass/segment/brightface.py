@@ -1,0 +1,286 @@
+"""A metal part's lit face lost to the paper's side of the threshold, found again up to its sharp edge.
+
+Part of the segment stage (:mod:`scanmass.segment`). The detection threshold lies half-way
+between the paper and the parts' typical level. A brushed or polished face mirrors the light
+in sectors: where it mirrors a bright lamp it is far brighter than the rest of the face, and
+may lie above that threshold while still darker than the paper (dev-spot-steel-t20: a 3 mm
+steel disc's two lit sectors at 0.79 of the paper's level against 0.2-0.4 for the rest of its
+face). The segmentation then finds only the dark sectors, bounded across the face by a line
+where the face's own smooth shading crosses the threshold: -11.8 % in area.
+
+Physically the two boundaries differ. A face at a height above the paper ends at a sharp edge:
+its level holds up to the edge and the step to the paper's level is as short as the blur
+(a pixel or two). A cast shadow's fade or a contact shadow ends on a soft ramp. The rule here:
+beside a found part, a region darker than the local paper by more than the paper's spread
+(:data:`DARKER_SHARE` or :data:`NOISE_SIGMAS` times its noise), joined to the part, wider than
+an edge's blur (:data:`CORE_PX`) and ending on a sharp step (the paper's level reached within
+:data:`STEP_PX` px of its edge, with at least :data:`SHARP_SHARE` of the step from the region's
+level taken within the last :data:`STEP_PX` px) is part of the face. The joined region is traced
+again with local levels (:func:`scanmass.segment.rings.refine_region`): its edge half-way
+between the face beside it and the paper beside it.
+
+A face brighter than the paper (pale brass mirroring a softbox) is not found by this rule;
+it needs colour and stays a refusal or a warning.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+
+from scanmass.load.decode import LoadedImage
+from scanmass.segment.rings import PartRings, _masked_blur, refine_region
+
+#: A pixel is darker than the paper when below the local paper level by this share ...
+DARKER_SHARE = 0.06
+#: ... or by this many times the paper's noise, whichever is more.
+NOISE_SIGMAS = 5.0
+#: A lost face is wider than an edge's blur: its core lies more than this (px) from the paper.
+CORE_PX = 3.0
+#: Width (px) of the step at a sharp edge: the paper's level is reached within it.
+STEP_PX = 3.0
+#: Share of the step from the region's level 6 px inside its edge to the paper 2-3 px outside that
+#: is taken within the last :data:`STEP_PX` px (a blurred step: all of it; a shadow's linear fade
+#: over 20 px: about half).
+SHARP_SHARE = 0.8
+#: The paper's level is read 8-24 px outside the found part, smoothed on this scale (px).
+PAPER_SIGMA_PX = 12.0
+#: A lost region is at most this share of the part's found area and at least this many pixels.
+MAX_SHARE = 1.0
+MIN_AREA_PX = 40
+#: Least share of a lost region within the convex hull of the found region: a face's lit sector
+#: between dark ones lies within it but for the strip between a chord and the outline (a 70 degree
+#: sector of a disc: 83 % within); a shadow beside the part lies outside it.
+HULL_SHARE = 0.6
+
+
+@dataclass
+class LostFace:
+    """A region of a part's face recovered beside its found region (``label``), in px."""
+
+    label: int
+    area_px: float
+    step_share: float
+    darker_share: float
+
+
+def _crop_box(rings: PartRings, width: int, height: int, pad: int) -> tuple[int, int, int, int]:
+    x0, y0, x1, y1 = rings.bbox_px
+    return max(0, x0 - pad), max(0, y0 - pad), min(width, x1 + pad), min(height, y1 + pad)
+
+
+def _filled(rings: PartRings, box: tuple[int, int, int, int], shape: tuple[int, int]) -> np.ndarray:
+    x0, y0 = box[0], box[1]
+    mask = np.zeros(shape, np.uint8)
+    cv2.fillPoly(mask, [np.round(rings.outer_px - [x0, y0]).astype(np.int32)], 1)
+    for hole in rings.holes_px:
+        cv2.fillPoly(mask, [np.round(hole - [x0, y0]).astype(np.int32)], 0)
+    return mask
+
+
+def lost_face_regions(
+    lin: np.ndarray, found: np.ndarray, others: np.ndarray, inside: np.ndarray
+) -> tuple[np.ndarray, list[LostFace]]:
+    """The regions of a crop (linear levels ``lin``) that belong to the part found as ``found``.
+
+    ``others``: pixels of other parts (never paper, never joined); ``inside``: pixels within the
+    region of interest. Returns the mask of the accepted regions and one :class:`LostFace` each
+    (label 0).
+
+    Examples
+    --------
+    A dark face (0.2) with a sector at its top edge that mirrors the light at 0.8 of the paper
+    (0.5), all of it ending on a sharp step; the threshold found only the dark part. A soft
+    shadow's fade beside it (a ramp, no step) is not joined:
+
+    >>> import numpy as np
+    >>> lin = np.full((80, 90), 0.5, np.float32)
+    >>> lin[20:60, 20:70] = 0.2; lin[20:36, 36:54] = 0.4
+    >>> lin[60:75, 20:70] = np.linspace(0.3, 0.5, 15, dtype=np.float32)[:, None]  # the shadow's fade
+    >>> found = np.zeros(lin.shape, bool); found[20:60, 20:70] = True; found[20:36, 36:54] = False
+    >>> extra, notes = lost_face_regions(lin, found, np.zeros_like(found), np.ones_like(found))
+    >>> int(extra.sum()), int(extra[60:].sum()), len(notes), round(notes[0].darker_share, 2)
+    (288, 0, 1, 0.2)
+    """
+    kernel = np.ones((3, 3), np.uint8)
+    found_u8 = found.astype(np.uint8)
+    dist_out = cv2.distanceTransform((1 - found_u8), cv2.DIST_L2, 3)
+    ring = (dist_out > 8) & (dist_out <= 24) & inside & ~others
+    if np.count_nonzero(ring) < 50:
+        return np.zeros_like(found, bool), []
+    vals = lin[ring]
+    top = float(np.percentile(vals, 90))
+    paper_px = ring & (lin >= 0.85 * top)  # paper, not a cast shadow in the ring
+    if np.count_nonzero(paper_px) < 50:
+        return np.zeros_like(found, bool), []
+    pv = lin[paper_px]
+    paper_level = float(np.median(pv))
+    paper_map = _masked_blur(lin, paper_px, PAPER_SIGMA_PX, paper_level)
+    noise = 1.4826 * float(np.median(np.abs(pv - paper_map[paper_px])))
+    share = max(DARKER_SHARE, NOISE_SIGMAS * noise / max(paper_level, 1e-6))
+    darker = (lin < paper_map * (1.0 - share)) & ~found & ~others & inside
+    paper = ~darker & ~found
+    to_paper = cv2.distanceTransform((~paper).astype(np.uint8), cv2.DIST_L2, 3)
+    core = darker & (to_paper > CORE_PX)
+    count, labels = cv2.connectedComponents(core.astype(np.uint8), connectivity=8)
+    if count <= 1:
+        return np.zeros_like(found, bool), []
+    touching = cv2.dilate(found_u8, kernel).astype(bool)
+    hull = np.zeros_like(found_u8)
+    points = cv2.findNonZero(found_u8)
+    cv2.fillConvexPoly(hull, cv2.convexHull(points), 1)
+    hull = hull.astype(bool)
+    found_area = float(np.count_nonzero(found))
+    accepted = np.zeros_like(found, bool)
+    notes: list[LostFace] = []
+    for k in range(1, count):
+        comp = labels == k
+        if not (comp & touching).any():
+            continue
+        grown = cv2.dilate(comp.astype(np.uint8), np.ones((2 * int(CORE_PX) + 3,) * 2, np.uint8)).astype(bool)
+        region = grown & darker
+        area = float(np.count_nonzero(region))
+        if area < MIN_AREA_PX or area > MAX_SHARE * found_area:
+            continue
+        if region[0].any() or region[-1].any() or region[:, 0].any() or region[:, -1].any():
+            continue  # reaches past the part's surroundings: paper in shade, not a piece of its face
+        if np.count_nonzero(region & hull) < HULL_SHARE * area:
+            continue  # a face's lit sector lies mostly within the hull of the face found around it
+        whole = (region | found).astype(np.uint8)
+        d_in = cv2.distanceTransform(whole, cv2.DIST_L2, 3)
+        d_out = cv2.distanceTransform(1 - whole, cv2.DIST_L2, 3)
+        near = cv2.dilate(region.astype(np.uint8), np.ones((9, 9), np.uint8)).astype(bool) & ~cv2.dilate(
+            found_u8, np.ones((5, 5), np.uint8)
+        ).astype(bool)
+        out_px = near & paper & (d_out > 1.5) & (d_out <= STEP_PX + 0.5)
+        in_edge = region & (d_in > 1.5) & (d_in <= STEP_PX + 0.5)
+        in_deep = region & (d_in > 5.0) & (d_in <= 7.5)
+        if min(np.count_nonzero(out_px), np.count_nonzero(in_edge), np.count_nonzero(in_deep)) < 10:
+            continue
+        p_out = float(np.median(lin[out_px] / paper_map[out_px]))
+        l_edge = float(np.median(lin[in_edge] / paper_map[in_edge]))
+        l_deep = float(np.median(lin[in_deep] / paper_map[in_deep]))
+        step = p_out - l_deep
+        if step < share or p_out < 1.0 - 0.5 * share:
+            continue
+        taken = (p_out - l_edge) / step
+        if taken < SHARP_SHARE:
+            continue
+        accepted |= region
+        notes.append(LostFace(0, area, taken, 1.0 - l_deep))
+    return accepted, notes
+
+
+def recover_lost_faces(
+    image: LoadedImage, parts: list[PartRings], roi_px: np.ndarray, *, min_hole_px: float
+) -> tuple[list[PartRings], list[LostFace]]:
+    """Each part with the lost lit regions of its face joined and traced again (photos).
+
+    Returns the parts (a part without a lost region unchanged) and the regions joined.
+    """
+    grey, lut = image.grey, image.to_linear
+    height, width = grey.shape
+    pad = 30
+    out: list[PartRings] = []
+    joined: list[LostFace] = []
+    for rings in parts:
+        if rings.cut:
+            out.append(rings)
+            continue
+        box = _crop_box(rings, width, height, pad)
+        x0, y0, x1, y1 = box
+        shape = (y1 - y0, x1 - x0)
+        lin = np.asarray(lut, np.float32)[grey[y0:y1, x0:x1]]
+        found = _filled(rings, box, shape).astype(bool)
+        others = np.zeros(shape, bool)
+        for other in parts:
+            if other is not rings:
+                others |= _filled(other, box, shape).astype(bool)
+        inside = np.zeros(shape, np.uint8)
+        cv2.fillPoly(inside, [np.round(np.asarray(roi_px) - [x0, y0]).astype(np.int32)], 1)
+        extra, notes = lost_face_regions(lin, found, others, inside.astype(bool))
+        if not notes:
+            out.append(rings)
+            continue
+        merged = (found | extra).astype(np.uint8)
+        contours, hierarchy = cv2.findContours(merged, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE, offset=(x0, y0))
+        outer_idx = max(
+            (i for i in range(len(contours)) if hierarchy[0][i][3] == -1), key=lambda i: cv2.contourArea(contours[i])
+        )
+        holes = []
+        child = hierarchy[0][outer_idx][2]
+        while child != -1:
+            holes.append(contours[child])
+            child = hierarchy[0][child][0]
+        bx, by, bw, bh = cv2.boundingRect(contours[outer_idx])
+        beyond = ~cv2.dilate(merged, np.ones((17, 17), np.uint8)).astype(bool) & ~others & inside.astype(bool)
+        paper_level = float(np.percentile(lin[beyond], 75)) if beyond.any() else float(lin.max())
+        ratio = float(np.median(lin[merged.astype(bool)])) / max(paper_level, 1e-6)
+        again = refine_region(
+            image, contours[outer_idx], holes, (bx, by, bx + bw, by + bh), rings.label, roi_px=roi_px,
+            min_hole_px=min_hole_px, ratio_hint=ratio,
+        )  # fmt: skip
+        if again is None or not math.isfinite(again.area_px) or again.area_px <= rings.area_px:
+            out.append(rings)
+            continue
+        out.append(again)
+        joined += [LostFace(rings.label, n.area_px, n.step_share, n.darker_share) for n in notes]
+    return out, joined
+
+
+#: A pixel is of a coloured part's face where its yellowness (:func:`face_colour_plane`) is at least
+#: this share of the paper's green level: the paper, lit or in shade, has 0 (its noise about 0.01 on
+#: the committed renders); brass faces 0.2-0.4 (dev-soft-brass-t25: 0.33 in its 99th percentile).
+COLOURED_SHARE = 0.12
+#: Level of the paper in the colour plane (linear); a face's yellowness lowers it.
+PLANE_PAPER_LEVEL = 0.8
+
+
+def face_colour_plane(
+    blue: np.ndarray, green: np.ndarray, inside: np.ndarray, *, min_area_px: float
+) -> tuple[np.ndarray, float] | None:
+    """A plane (linear, 0-1) in which a coloured (yellow) face is dark and the paper, lit or shaded, is not.
+
+    With ``k`` the paper's blue-to-green ratio and ``g`` its green level (the brighter half of
+    the pixels within ``inside``), the yellowness ``(k G - B) / (k g)`` is a linear combination
+    of the linear channels: 0 on the paper at any level (a cast shadow keeps the paper's colour,
+    so it is 0 there too), positive on a face that takes less blue than green (brass), and
+    across a blurred edge linear in the share of face in a pixel, so its half-way level is the
+    edge as in a grey plane. The plane is :data:`PLANE_PAPER_LEVEL` less the yellowness, clipped
+    to 0-1. Returns the plane and its count of coloured pixels, or None when fewer than
+    ``min_area_px`` pixels within ``inside`` are coloured (:data:`COLOURED_SHARE`).
+
+    Parameters
+    ----------
+    blue, green : (H, W) float ndarrays
+        The photo's blue and green planes in linear light.
+    inside : (H, W) bool ndarray
+        The mat's clear area.
+    min_area_px : float
+        The least coloured area (px) worth a plane.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> green = np.full((20, 20), 0.55, np.float32); blue = 0.98 * green
+    >>> green[5:15, 5:15], blue[5:15, 5:15] = 0.75, 0.53  # a brass square, brighter than the paper
+    >>> blue[:, :3] *= 0.5; green[:, :3] *= 0.5  # a shadow on the paper
+    >>> plane, count = face_colour_plane(blue, green, np.ones((20, 20), bool), min_area_px=50)
+    >>> count, round(float(plane[0, 10]), 3), round(float(plane[0, 0]), 3), round(float(plane[10, 10]), 3)
+    (100.0, 0.8, 0.8, 0.42)
+    """
+    sel = inside & (green >= np.percentile(green[inside], 50))
+    if np.count_nonzero(sel) < 100:
+        return None
+    ratio = float(np.median(blue[sel] / np.maximum(green[sel], 1e-6)))
+    level = float(np.median(green[sel]))
+    if level <= 0 or ratio <= 0:
+        return None
+    yellow = (ratio * green - blue) / (ratio * level)
+    count = float(np.count_nonzero(inside & (yellow >= COLOURED_SHARE)))
+    if count < min_area_px:
+        return None
+    return np.clip(PLANE_PAPER_LEVEL - yellow, 0.0, 1.0).astype(np.float32), count
