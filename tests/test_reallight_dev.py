@@ -2,7 +2,8 @@
 
 ``benchmarks/render_reallight.py``'s ``dev_scenes`` rendered brass in soft light at a tilt, thick
 steel and thin black parts in window light, thin steel under the spotlight at a tilt and thick
-black parts in mixed light, and ``dev_scanner_scenes`` flatbed scans of brass and brushed steel 3-6 mm
+black parts in mixed light, rings with large bores under the spotlight at a tilt (branch ring11), and
+``dev_scanner_scenes`` flatbed scans of brass and brushed steel 3-6 mm
 thick under a lamp 30-32 degrees up, with other shapes, placements and tilts than the held-out scenes
 (whose images were not looked at). Truth: each render's truth file (the outlines Blender
 extruded); areas and centroids from shapely, not from the code under test. Renders the code
