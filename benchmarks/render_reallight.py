@@ -38,7 +38,8 @@ belong to the tuned set::
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
         dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
-        dev-window-low-steel-t15 dev-window-low-black-t10
+        dev-window-low-steel-t15 dev-window-low-black-t10 \
+        dev-spot-black-t12 dev-spot-steel-t18
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34
@@ -296,6 +297,7 @@ def _shapes():
     cam = (np.c_[r * np.cos(t), r * np.sin(t)], [circle(0, 0, 4.0, 120)])
     washer = (circle(0, 0, 16.0, 300), [circle(0, 0, 7.5, 180)])  # a smaller, wider ring than the gasket
     collar = (circle(0, 0, 19.0, 300), [circle(0, 0, 12.5, 240)])  # a ring between the two
+    seal = (circle(0, 0, 25.0, 360), [circle(0, 0, 19.0, 300)])  # a wide ring with a narrow face (6 mm)
     return {
         "plate": plate,
         "l-bracket": bracket,
@@ -304,6 +306,7 @@ def _shapes():
         "cam": cam,
         "washer": washer,
         "collar": collar,
+        "seal": seal,
     }
 
 
@@ -661,6 +664,26 @@ def dev_scenes():
             310,
             0,
             0,
+            "Standard",
+        ),
+        # branch ring11: rings whose bore is large under the hard spot at a tilt (a black collar 3.5 mm
+        # beside a plate; a steel seal 2.2 mm with a narrow face beside a cam)
+        (
+            "dev-spot-black-t12",
+            "spot",
+            [("collar", "black-plastic", 3.5, 120, 195, 0), ("plate", "black-plastic", 2.5, 85, 95, 35)],
+            320,
+            12,
+            130,
+            "Filmic",
+        ),
+        (
+            "dev-spot-steel-t18",
+            "spot",
+            [("seal", "brushed-steel", 2.2, 95, 190, 0), ("cam", "brushed-steel", 3.0, 125, 90, -40)],
+            330,
+            18,
+            300,
             "Standard",
         ),
         # branch window11: a lower window (its centre 20 and 18 degrees up instead of 25; the window spans

@@ -2,7 +2,8 @@
 
 ``benchmarks/render_reallight.py``'s ``dev_scenes`` rendered brass in soft light at a tilt, thick
 steel and thin black parts in window light, thin steel under the spotlight at a tilt and thick
-black parts in mixed light, and ``dev_scanner_scenes`` flatbed scans of brass and brushed steel 3-6 mm
+black parts in mixed light, rings with large bores under the spotlight at a tilt (branch ring11), and
+``dev_scanner_scenes`` flatbed scans of brass and brushed steel 3-6 mm
 thick under a lamp 30-32 degrees up, with other shapes, placements and tilts than the held-out scenes
 (whose images were not looked at). Truth: each render's truth file (the outlines Blender
 extruded); areas and centroids from shapely, not from the code under test. Renders the code
@@ -222,6 +223,55 @@ def test_mixed_light_black_gasket_bore_and_disc_within_1_percent():
     for shape in ("gasket", "disc"):
         m, part, tp = _part("dev-mixed-black-t0", shape)
         assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"], shape
+
+
+def test_spot_lit_black_collar_shadow_cut_outside_and_in_its_bore():
+    """dev-spot-black-t12 (branch ring11): a black collar 3.5 mm thick (38 / 25 mm) under the hard spot
+    at 12 degrees of tilt. Its shadow falls beside its outer edge away from the light and, inside the
+    bore, on the paper beside the bore's edge towards the light: both are the face swept by the one
+    shadow vector (3.5 mm / tan 40 degrees = 4.2 mm). Under the photo's filmic curve the shadow is
+    at 0.023 of the paper, and its first three pixels from the outline read smooth (the roughness
+    divides by a level the bright paper raises there), so no sweep ran from the boundary and the
+    shadow stayed in: +23.7 % in area, centroid 3.27 mm (bench_reallight). With the blurred rim
+    passed over: -0.40 %, centroid 0.23 mm, bore +0.13 mm."""
+    m, part, tp = _part("dev-spot-black-t12", "collar")
+    warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
+    assert f" {part.label} (" in warning
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < 0.015 * tp["area"]  # was +23.7 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.5  # was 3.27 mm
+    assert _covered(part, tp)
+    ((centre, diameter),) = tp["holes"]
+    (hole,) = part.holes
+    assert math.dist(hole.circle_centre_mm, centre) < 0.5
+    assert abs(hole.diameter_mm - diameter) < 0.3
+
+
+def test_spot_lit_steel_seal_shadow_cut_and_covered():
+    """dev-spot-steel-t18 (branch ring11): a brushed-steel seal 2.2 mm thick with a narrow face (50 / 38
+    mm) under the hard spot at 18 degrees. Its shadow (0.015 of the paper) was left in for the same
+    reason as the collar's: +18.2 % in area, centroid 1.11 mm, bore -0.86 mm, 8.3 sigma off (a confident
+    wrong figure). Now cut: within 3 stated sigma, centroid within 0.5 mm (was 1.11), the error no
+    longer of the shadow's sign; what is left is the xfail below."""
+    m, part, tp = _part("dev-spot-steel-t18", "seal")
+    assert "shadow_cut" in part.uncertainty_terms
+    assert part.area_mm2 < tp["area"] * 1.02  # was +18.2 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.5  # was 1.11 mm
+    assert _covered(part, tp)  # was 8.3 sigma off
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-spot-steel-t18: the steel seal comes out -9.2 % in area (0.6 sigma), bore +0.51 mm. The cut's sweep "
+    "is (-8, 3) px, 3.2 mm (the shadow is 2.2 / tan 40 = 2.6 mm; its layers' level crosses half-way at 7.1 px, "
+    "2.7 mm, and the vote search lengthens it: the brushed face's dark sectors vote as shadow); measured "
+    "outline against the truth circle by 30-degree sectors of the mat: outer 0.3-0.4 mm inside over 210-330 "
+    "degrees and 0.5-1.5 mm out (shadow left) over 150-180, the bore's edge 0.7-1.3 mm out over 30-150 (beyond "
+    "the cut's length: the thick part's top-seen mapping there is not yet understood)",
+)
+def test_spot_lit_steel_seal_within_1_percent():
+    m, part, tp = _part("dev-spot-steel-t18", "seal")
+    assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"]
 
 
 # ---------------------------------------------------------------------------------
