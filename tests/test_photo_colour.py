@@ -1,7 +1,8 @@
 """Coloured faces brighter than the paper, measured in the yellowness plane (``scanmass.pipeline.photo_colour``).
 
 Truth: the outline a synthetic colour mat photo is drawn from (``scanmass.testing.photos``, exact
-pixel coverage); its area and centroid by shapely, not by the code under test.
+pixel coverage); its area and centroid by shapely, not by the code under test. The committed
+render dev-soft-brass-t25 (its truth file's outlines, ``tests/_reallight_truth.py``).
 """
 
 from __future__ import annotations
@@ -11,10 +12,13 @@ from pathlib import Path
 
 import cv2
 import numpy as np
+import pytest
+from _reallight_truth import truth_part
 from PIL import Image
 from shapely.geometry import Polygon
 
 import scanmass
+from scanmass.errors import SegmentationError
 from scanmass.load.decode import srgb_to_linear
 from scanmass.raster import srgb_encode
 from scanmass.scale.mat import make_mat
@@ -57,3 +61,28 @@ def test_brass_disc_brighter_than_the_paper_is_found_by_colour_with_its_area(tmp
     assert abs(part.area_mm2 - area) <= 3 * part.area_u_mm2, (part.area_mm2, area, part.area_u_mm2)
     assert abs(part.area_mm2 - area) <= 0.003 * area  # the issue's median target
     assert math.dist(part.centroid_mm, centroid) <= 0.05
+
+
+REALLIGHT = Path(__file__).resolve().parent / "data" / "reallight"
+
+
+def test_grey_copy_of_a_pale_brass_photo_is_refused_not_measured_in_pieces(tmp_path):
+    """Without colour the pale brass cam (brighter than the paper) is seen only as its bore's dark wall and its shaded side.
+
+    Measured so it read -95 % in area with a stated uncertainty of a few per cent of the truth;
+    the region found in the bore lies within the brighter face all round
+    (``photo_checks._check_bright_surrounds``), so the photo is refused. Truth: the render's
+    outlines (``_reallight_truth.truth_part``, shapely).
+    """
+    rgb = np.asarray(Image.open(REALLIGHT / "dev-soft-brass-t25.jpg").convert("RGB"), np.float64)
+    luma = np.rint(rgb @ np.array([0.299, 0.587, 0.114])).astype(np.uint8)  # ITU-R BT.601 luma, common practice
+    path = tmp_path / "grey-brass.png"
+    Image.fromarray(np.stack([luma] * 3, axis=2)).save(path)
+    for thickness in (None, 0.0):
+        with pytest.raises(SegmentationError, match="brighter than the paper was seen only in pieces.*diffuse light"):
+            scanmass.measure(path, thickness_mm=thickness)
+    # the colour photo itself is measured by its colour, the cam within its stated uncertainty
+    cam = truth_part("dev-soft-brass-t25", "cam")
+    m = scanmass.measure(REALLIGHT / "dev-soft-brass-t25.jpg", thickness_mm=cam["t"])
+    best = min(m.parts, key=lambda p: math.dist(p.centroid_mm, cam["centroid"]))
+    assert abs(best.area_mm2 - cam["area"]) <= 3 * best.area_u_mm2
