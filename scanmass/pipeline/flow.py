@@ -30,6 +30,7 @@ from scanmass.pipeline.part_terms import (
     with_lost_face_term,
 )
 from scanmass.pipeline.photo_checks import (
+    _check_bright_surrounds,
     _check_within_support,
     _hidden_holes,
     _mask_outside,
@@ -806,6 +807,7 @@ def _measure_photo(
         if coloured is None:
             raise
         _check_within_support(scale, coloured, image.path)
+        _check_bright_surrounds(image, scale, coloured)
         coloured.warnings = (
             list(scale.warnings) + notes + _unknown_thickness(scale, coloured, thickness_mm) + list(coloured.warnings)
         )
@@ -849,6 +851,7 @@ def _measure_photo(
     shadow_only = _shadows_only(image, scale, result, colour, thickness_mm)
     coloured, colour_notes = colour_faces(image, scale, result, colour, colour_measure, min_area_px, thickness_mm)
     result = result if coloured is None else coloured
+    _check_bright_surrounds(image, scale, result)
     warnings = list(scale.warnings) + shadow_only + cut + deep + colour_notes
     if tone is not None and tone.applies:
         warnings.insert(

@@ -304,3 +304,65 @@ def _hidden_holes(image: LoadedImage, scale: PhotoScale, result: Measurement, th
         "'hidden_hole'); if it is a hole, measure the part on a light box (backlight) or photograph it from straight "
         "above in diffuse light"
     ]
+
+
+#: A part's surroundings (the band :data:`SURROUND_PX` px beyond its outline) are a face brighter than
+#: the paper where their linear level exceeds the paper's by this share. Matte white paper is the
+#: brightest diffuse surface on the mat (a matte part, a shadow or the table reflect less); only a face
+#: that mirrors the light exceeds it. The paper's level is the 90th percentile of the mat's clear area:
+#: the brightest paper, where a spotlight's pool lies (on the committed renders no part's band has more
+#: than 4 % of its pixels above it by this share).
+BRIGHTER_SURROUND_SHARE = 0.08
+#: The band beyond a part's outline (px) read for its surroundings: past a sharpening halo (1-2 px).
+SURROUND_PX = (3, 9)
+#: A found region enclosed by a brighter face over at least this share of the band is no part on
+#: the paper but a piece of a part brighter than the paper (its hole's wall and shadow, seen dark
+#: within the bright face): a part on the mat has paper beside it, and a spotlight's pool covers
+#: its surroundings only where the pool's paper is at most the brightest paper.
+SURROUND_SHARE = 0.8
+
+
+def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measurement) -> list[tuple[int, float]]:
+    """Per part: its label and the share of the band beyond its outline brighter than the paper.
+
+    The band: :data:`SURROUND_PX` px beyond the part's outline in the photo, within the mat's clear
+    area; brighter: above the paper's level (90th percentile of the clear area) by
+    :data:`BRIGHTER_SURROUND_SHARE` of it.
+    """
+    lin = np.asarray(image.to_linear, np.float32)[image.grey]
+    inside = np.zeros(lin.shape, np.uint8)
+    cv2.fillPoly(inside, [np.round(scale.roi_px).astype(np.int32)], 1)
+    roi = inside.astype(bool)
+    paper = float(np.percentile(lin[roi], 90))
+    out = []
+    for part in result.parts:
+        if part.outline_mm is None:
+            continue
+        mask = np.zeros(lin.shape, np.uint8)
+        cv2.fillPoly(mask, [np.round(_image_px(scale, np.asarray(part.outline_mm, float))).astype(np.int32)], 1)
+        near = cv2.dilate(mask, np.ones((2 * SURROUND_PX[0] + 1,) * 2, np.uint8)).astype(bool)
+        far = cv2.dilate(mask, np.ones((2 * SURROUND_PX[1] + 1,) * 2, np.uint8)).astype(bool)
+        band = far & ~near & roi
+        if np.count_nonzero(band) < 20:
+            continue
+        out.append((part.label, float(np.mean(lin[band] > paper * (1.0 + BRIGHTER_SURROUND_SHARE)))))
+    return out
+
+
+def _check_bright_surrounds(image: LoadedImage, scale: PhotoScale, result: Measurement) -> None:
+    """Refuse a photo where a found part lies within a face brighter than the paper (:data:`SURROUND_SHARE`).
+
+    Such a part is a piece of a bright part (the dark wall and shadow of its hole, its shaded
+    wall): the bright face itself was not found, so no figure of the part can be trusted. Colour
+    finds such faces (:mod:`scanmass.pipeline.photo_colour`); a grey photo, or a face of the
+    paper's own colour, has no such cue.
+    """
+    enclosed = [(label, share) for label, share in brighter_surrounds(image, scale, result) if share >= SURROUND_SHARE]
+    if enclosed:
+        where = ", ".join(f"part {label} ({100 * share:.0f} % of its surroundings)" for label, share in enclosed)
+        raise SegmentationError(
+            f"a part brighter than the paper was seen only in pieces: {where} lies within a face brighter than the "
+            "paper (the wall or shadow of a bright part's hole or side, not a part); photograph the parts in diffuse "
+            "light on a darker background",
+            path=image.path,
+        )

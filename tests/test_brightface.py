@@ -1,0 +1,123 @@
+"""A metal face's lit sectors joined to its found part (``scanmass.segment.brightface``).
+
+Synthetic crops drawn with exact pixel coverage (:func:`scanmass.testing.photos.polygon_coverage`)
+and blurred by a Gaussian of known sigma. Truth: the disc's area pi r^2 (closed form) and, for the
+edge, the Gaussian edge model: a step blurred by sigma crosses a level ``c`` of the way from the
+paper to the face at ``-Phi^-1(c) sigma`` from the true edge (normal distribution function; common
+practice), not the code under test.
+"""
+
+from __future__ import annotations
+
+import math
+from statistics import NormalDist
+
+import cv2
+import numpy as np
+
+from scanmass.segment import brightface
+from scanmass.segment.brightface import face_colour_plane, lost_face_regions
+from scanmass.testing.photos import polygon_coverage
+
+PAPER = 0.6  # linear paper level of the synthetic crops
+SIGMA = 1.0  # the lens blur (px)
+CX = CY = 70.0
+SHAPE = (140, 140)
+
+
+def _sector(r: float, a0: float = 0.0, a1: float = 360.0, n: int = 720) -> np.ndarray:
+    """A disc (or the sector a0-a1 degrees) of radius r about (CX, CY) as a polygon (px)."""
+    if a1 - a0 >= 360.0:
+        t = np.radians(np.linspace(0.0, 360.0, n, endpoint=False))
+        return np.column_stack([CX + r * np.cos(t), CY + r * np.sin(t)])
+    t = np.radians(np.linspace(a0, a1, n))
+    return np.vstack([[CX, CY], np.column_stack([CX + r * np.cos(t), CY + r * np.sin(t)])])
+
+
+def _run(lin: np.ndarray, found: np.ndarray) -> tuple[np.ndarray, list]:
+    return lost_face_regions(lin, found, np.zeros_like(found), np.ones_like(found))
+
+
+def _sectored_disc(radius: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A disc whose face is at 0.2 of the paper but for two 70 degree sectors at 0.8 (mirroring a lamp).
+
+    Returns the blurred linear crop, the lit sectors' coverage and the found mask (below the
+    half-way level between the paper and the dark face, as the detection threshold lies).
+    """
+    full = polygon_coverage([(_sector(radius), [])], SHAPE)
+    lit = polygon_coverage([(_sector(radius, 20.0, 90.0), []), (_sector(radius, 200.0, 270.0), [])], SHAPE)
+    refl = PAPER * (1.0 - full) + 0.2 * PAPER * (full - lit) + 0.8 * PAPER * lit
+    lin = cv2.GaussianBlur(refl.astype(np.float32), (0, 0), SIGMA)
+    return lin, lit, lin < 0.5 * (PAPER + 0.2 * PAPER)
+
+
+def test_lit_sectors_ending_on_a_sharp_step_are_joined_with_the_discs_area():
+    radius = 40.0
+    lin, lit, found = _sectored_disc(radius)
+    extra, notes = _run(lin, found)
+    assert len(notes) == 2  # the two lit sectors
+    assert np.count_nonzero(extra & (lit < 0.5)) <= 0.05 * np.count_nonzero(extra)  # joined: the lit sectors
+    # The joined sectors' mask ends where the blurred step crosses the 'darker than the paper' level,
+    # DARKER_SHARE of the paper below it: c = DARKER_SHARE / 0.2 of the way from the paper to the
+    # sector's level, -Phi^-1(c) sigma outside the true edge (Gaussian edge model) along the lit arcs.
+    c = brightface.DARKER_SHARE / (1.0 - 0.8)
+    offset = -NormalDist().inv_cdf(c) * SIGMA
+    lit_arc = 2 * math.radians(70.0) * radius
+    expected = math.pi * radius**2 + offset * lit_arc  # closed form pi r^2 plus the edge model's band
+    # a binary mask of a smooth outline: within a quarter pixel times the perimeter (mean rounding of an edge)
+    tolerance = 0.25 * 2 * math.pi * radius
+    area = float(np.count_nonzero(found | extra))
+    assert abs(area - expected) <= tolerance, (area, expected, tolerance)
+    # without the join the found face alone is 39 % short (the two sectors: 140/360 of the disc)
+    assert np.count_nonzero(found) < math.pi * radius**2 - 4 * tolerance
+
+
+def test_soft_shadow_fading_in_a_bore_is_not_joined():
+    """A ring's dark face with a cast shadow in its bore that fades linearly over 20 px: a ramp, no step.
+
+    It lies within the found region's hull and is darker than the paper by far more than its
+    spread, so only the sharp-step test tells it from a lit sector of the face.
+    """
+    ring = polygon_coverage([(_sector(50.0), [_sector(28.0)[::-1]])], SHAPE)
+    yy, xx = np.mgrid[0 : SHAPE[0], 0 : SHAPE[1]] + 0.5
+    depth = 28.0 - np.hypot(xx - CX, yy - CY)  # px into the bore from its wall
+    fade = np.clip(1.0 - depth / 20.0, 0.0, 1.0) * (xx < CX)
+    refl = PAPER * (1.0 - 0.5 * fade) * (1.0 - ring) + 0.2 * PAPER * ring
+    lin = cv2.GaussianBlur(refl.astype(np.float32), (0, 0), SIGMA)
+    found = lin < 0.5 * (PAPER + 0.2 * PAPER)
+    extra, notes = _run(lin, found)
+    assert notes == [] and not extra.any()
+
+
+def test_yellowness_plane_is_zero_on_paper_lit_and_shaded_and_linear_across_an_edge():
+    """Paper of blue-to-green ratio 0.9 (lit at green 0.6, shaded at 0.3 and 0.12), a brass strip, a blended edge.
+
+    Truth by construction: a pixel covering a share ``s`` of brass (G 0.7, B 0.35) has the
+    yellowness ``s (0.9 * 0.7 - 0.35) / (0.9 * 0.6)`` against lit paper (a linear mix of linear levels).
+    """
+    h, w = 40, 100
+    green = np.full((h, w), 0.6)
+    green[:, 60:70] = 0.3  # a shadow: the paper's colour at half its light
+    green[:, 70:75] = 0.12
+    share = np.zeros(w)
+    share[20:30] = 1.0
+    share[30:40] = np.linspace(1.0, 0.0, 10)  # a blended edge: share of brass in each column
+    g = (1 - share) * green + share * 0.7
+    b = (1 - share) * 0.9 * green + share * 0.35
+    out = face_colour_plane(b, g, np.ones((h, w), bool), min_area_px=50)
+    assert out is not None
+    plane, count = out
+    level = brightface.PLANE_PAPER_LEVEL
+    np.testing.assert_allclose(plane[:, 45:], level, atol=1e-6)  # paper lit and shaded: no yellowness
+    np.testing.assert_allclose(plane[:, :20], level, atol=1e-6)
+    yellow = share[30:40] * (0.9 * 0.7 - 0.35) / (0.9 * 0.6)
+    np.testing.assert_allclose(plane[0, 30:40], level - yellow, atol=1e-6)
+    # counted coloured: the brass columns whose yellowness reaches COLOURED_SHARE
+    full_yellow = (0.9 * 0.7 - 0.35) / (0.9 * 0.6)
+    assert count == h * np.count_nonzero(share * full_yellow >= brightface.COLOURED_SHARE)
+
+
+def test_yellowness_plane_without_a_coloured_area_is_none():
+    green = np.full((30, 30), 0.6)
+    green[:, :10] = 0.2  # a grey (neutral) part: the paper's colour, darker
+    assert face_colour_plane(0.95 * green, green, np.ones((30, 30), bool), min_area_px=20) is None
