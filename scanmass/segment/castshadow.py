@@ -262,17 +262,10 @@ def _shadow_cut(
             return None, dark
     if np.count_nonzero(cut & face_like) > CUT_MAX_FACE_SHARE * np.count_nonzero(cut):
         return None, dark  # the sweep runs through the face: not a shadow beside it
-    keep = part_mask & ~cut
-    # pieces the cut parts from the face (a wall's strip, a shadow's island) are no part
-    count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
-    if count > 2:
-        areas = stats[1:, cv2.CC_STAT_AREA]
-        pieces = (labels > 0) & (stats[labels, cv2.CC_STAT_AREA] < 0.05 * areas.max())
-        cut |= pieces
-        keep &= ~pieces
-    n_cut = int(np.count_nonzero(cut))
-    if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
+    settled = _settled_cut(cut, part_mask)
+    if settled is None:
         return None, dark
+    cut, keep = settled
     # the shadow's grain, past the blurred rim where the sweep's run began beyond it
     graded = cut & ~rim if rim is not None and np.count_nonzero(cut & ~rim) >= 50 else cut
     tex_shadow = float(np.median(rough[graded]))
@@ -520,6 +513,26 @@ def _filled(part_mask: np.ndarray) -> np.ndarray:
     out = np.zeros_like(mask8)
     cv2.drawContours(out, contours, -1, 1, thickness=cv2.FILLED)
     return out.astype(bool) | part_mask
+
+
+def _settled_cut(cut: np.ndarray, part_mask: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
+    """The cut with the pieces it parts from the face, and what is kept; None past the cut's limits.
+
+    Pieces of the rest under 5 % of its largest (a wall's strip, a rim between two shadows, a
+    shadow's island) go with the cut. A cut that is empty, takes more than
+    :data:`CUT_MAX_SHARE` of the region or leaves under 50 px is no cut (None).
+    """
+    keep = part_mask & ~cut
+    count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
+    if count > 2:
+        areas = stats[1:, cv2.CC_STAT_AREA]
+        pieces = (labels > 0) & (stats[labels, cv2.CC_STAT_AREA] < 0.05 * areas.max())
+        cut = cut | pieces
+        keep &= ~pieces
+    n_cut = int(np.count_nonzero(cut))
+    if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
+        return None
+    return cut, keep
 
 
 def _with_rim(cut: np.ndarray, part_mask: np.ndarray) -> np.ndarray:

@@ -43,7 +43,7 @@ from __future__ import annotations
 import cv2
 import numpy as np
 
-from scanmass.segment.castshadow import CUT_MAX_SHARE, ShadowCut, _filled, _with_rim, roughness
+from scanmass.segment.castshadow import ShadowCut, _filled, _settled_cut, _with_rim, roughness
 
 __all__ = ["ShadowLines", "shadow_lines", "coloured_shadow_cut", "LINES_MIN_SPREAD"]
 
@@ -231,17 +231,10 @@ def coloured_shadow_cut(
     count, labels = cv2.connectedComponents(like.astype(np.uint8), connectivity=8)
     touching = np.unique(labels[like & near_paper])
     cut = np.isin(labels, touching[touching > 0])
-    keep = part_mask & ~cut
-    # pieces the cut parts from the face (a rim between two shadows, an island) go with it
-    n, comp, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
-    if n > 2:
-        areas = stats[1:, cv2.CC_STAT_AREA]
-        pieces = (comp > 0) & (stats[comp, cv2.CC_STAT_AREA] < 0.05 * areas.max())
-        cut |= pieces
-        keep &= ~pieces
-    n_cut = int(np.count_nonzero(cut))
-    if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
+    settled = _settled_cut(cut, part_mask)  # pieces the cut parts from the face go with it
+    if settled is None:
         return None
+    cut, keep = settled
     # the rim of blurred paper left between the cut and the paper would enclose the cut as a
     # false hole once painted: it goes with the cut (as for a cut by grain)
     cut = _with_rim(cut, part_mask)
