@@ -39,7 +39,7 @@ belong to the tuned set::
         dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
         dev-window-low-steel-t15 dev-window-low-black-t10 \
-        dev-spot-black-t12 dev-spot-steel-t18
+        dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34
@@ -708,6 +708,27 @@ def dev_scenes():
             -30,
             "Standard",
             18.0,
+        ),
+        # branch brass11: a thin brass L-bracket under the hard spot at a tilt (the lit-face join, then the
+        # fragment merge and the shadow cut), beside a gasket; and a thin bracket beside a plate, the spot
+        # from other sides and the camera nearer / farther
+        (
+            "dev-spot-brass-t22",
+            "spot",
+            [("l-bracket", "brass", 2.5, 120, 100, -110), ("gasket", "brass", 2.0, 85, 200, 0)],
+            315,
+            22,
+            160,
+            "Standard",
+        ),
+        (
+            "dev-spot-brass2-t27",
+            "spot",
+            [("l-bracket", "brass", 2.0, 90, 195, 200), ("plate", "brass", 3.0, 125, 95, -20)],
+            350,
+            27,
+            280,
+            "Standard",
         ),
     ]
 

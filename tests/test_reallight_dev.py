@@ -274,6 +274,49 @@ def test_spot_lit_steel_seal_within_1_percent():
     assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"]
 
 
+def test_spot_lit_thin_brass_bracket_keeps_its_area_and_holes():
+    """dev-spot-brass-t22 (branch brass11): a brass L-bracket 2.5 mm thick under the hard spot at 22
+    degrees beside a brass gasket, the conditions in which a thin brass bracket lost a hole and 18 % of
+    its area after a lit region of its face was joined (term 'lost_face') and the later shadow cut and
+    fragment merge ran on the enlarged part. Here the shadow is cut, both holes are kept, the area is
+    +0.9 % (gasket -1.4 %); truth: the render's outlines, areas and centroids by shapely."""
+    m, part, tp = _part("dev-spot-brass-t22", "l-bracket")
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]
+    assert len(part.holes) == len(tp["holes"]) == 2
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.5
+    m, gasket, tg = _part("dev-spot-brass-t22", "gasket")
+    assert abs(gasket.area_mm2 - tg["area"]) < 0.02 * tg["area"]
+    assert len(gasket.holes) == 1
+
+
+def test_spot_lit_thin_brass_bracket_shadow_warned_and_covered():
+    """dev-spot-brass2-t27 (branch brass11): a brass L-bracket 2 mm thick under the hard spot at 27
+    degrees, the camera farther (350 mm) and from another side, beside a brass plate 3 mm thick found in
+    pieces and merged. The plate's shadow is cut (-0.6 %, three holes); the bracket's shadow is not cut
+    but warned (term 'cast_shadow'): +12.1 % in area, centroid 1.04 mm, within its stated uncertainty
+    (0.6 sigma). Its holes are both found. Truth: the render's outlines by shapely."""
+    m, part, tp = _part("dev-spot-brass2-t27", "l-bracket")
+    assert "cast_shadow" in part.uncertainty_terms
+    assert any("cast shadow" in w for w in m.warnings)
+    assert part.area_mm2 > tp["area"]  # a shadow left in adds; it never removes a hole's worth
+    assert len(part.holes) == 2
+    assert _covered(part, tp)
+    m, plate, tq = _part("dev-spot-brass2-t27", "plate")
+    assert abs(plate.area_mm2 - tq["area"]) < 0.015 * tq["area"]
+    assert len(plate.holes) == len(tq["holes"]) == 3
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-spot-brass2-t27: the brass bracket's cast shadow (2 mm thick, spot 40 degrees up: about 2.4 mm "
+    "wide) is warned, not cut: +12.1 % in area (0.6 sigma), centroid 1.04 mm",
+)
+def test_spot_lit_thin_brass_bracket_far_camera_within_2_percent():
+    m, part, tp = _part("dev-spot-brass2-t27", "l-bracket")
+    assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]
+
+
 # ---------------------------------------------------------------------------------
 # scans under a low lamp (30-32 degrees): brass and brushed steel 3-6 mm thick
 # ---------------------------------------------------------------------------------
