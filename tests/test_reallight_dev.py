@@ -124,6 +124,15 @@ def test_piece_with_a_hole_past_its_outline_refuses_the_photo_with_its_cause(mon
     monkeypatch.setattr(flow, "_photo_colour", lambda image: None)
     truth = json.loads((REALLIGHT / "dev-soft-brass-t25.json").read_text())
     for thickness in (5.0, None):
+        # refused by the piece whose hole maps past its outline or, without the thickness, first by
+        # the piece whose surroundings are brighter than the paper (photo_checks._check_bright_surrounds) ...
+        with pytest.raises(SegmentationError, match="(found|seen) only in pieces") as err:
+            scanmass.measure(REALLIGHT / truth["image"], thickness_mm=thickness)
+        assert not isinstance(err.value, OptionError)
+        assert "diffuse light" in str(err.value)
+    # ... and without that check the hole past its own outline still refuses it with its cause
+    monkeypatch.setattr(flow, "_check_bright_surrounds", lambda image, scale, result: None)
+    for thickness in (5.0, None):
         with pytest.raises(SegmentationError, match="found only in pieces") as err:
             scanmass.measure(REALLIGHT / truth["image"], thickness_mm=thickness)
         assert not isinstance(err.value, OptionError)
