@@ -177,6 +177,19 @@ def test_lit_sectors_of_a_second_steel_cam_are_kept():
 
 @pytest.mark.xfail(
     strict=True,
+    reason="dev-spot-steel3-t20: the cam has one bore (truth 8.0 mm at (90.0, 195.0) mm) but two holes are "
+    "reported: the bore at 8.77 mm and a 9.73 mm hole at (87.1, 184.4) mm, 11 mm from it, that the truth does not "
+    "have, while the area is +0.001 % and the centroid 1.25 mm off (bench_reallight, thickness given; branch join11). Before the lit-face join the part held one 871 px hole that the accepted lit region "
+    "covers 81 % of; keeping it out of the join (tried) gives one 14.13 mm hole and -1.0 % in area, keeping the "
+    "holes found before the join (tried) changes nothing here",
+)
+def test_second_steel_cam_holes_count():
+    m, part, tp = _part("dev-spot-steel3-t20", "cam")
+    assert len(part.holes) == len(tp["holes"])  # truth: the holes of the outline the renderer extruded
+
+
+@pytest.mark.xfail(
+    strict=True,
     reason="dev-spot-steel3-t20: the 3 mm steel plate's two lit sectors reach the paper's level towards its edge "
     "(0.86-0.88 of the paper 2-3 px inside the darker region's edge, 0.74-0.78 6 px inside: a soft ramp, not a "
     "step), so the rule for lit sectors does not join them: -6.4 % in area, centroid 3.64 mm, holes -2.86 and "
