@@ -40,6 +40,8 @@ reflectance per channel, is the common practice of illuminant estimation and sha
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import cv2
 import numpy as np
 
@@ -71,6 +73,7 @@ _RING_MIN_PX = 200
 _TAIL = 0.2
 
 
+@dataclass(frozen=True)
 class ShadowLines:
     """The shadow lines of the lights around one part (:func:`shadow_lines`).
 
@@ -83,9 +86,8 @@ class ShadowLines:
         The difference of their tints (last channel minus first, over the mean).
     """
 
-    def __init__(self, lines: np.ndarray, spread: float) -> None:
-        self.lines = lines
-        self.spread = spread
+    lines: np.ndarray
+    spread: float
 
 
 def shadow_lines(q: np.ndarray, part_mask: np.ndarray, reach_px: float) -> ShadowLines | None:
