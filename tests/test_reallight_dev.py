@@ -454,3 +454,18 @@ def test_low_window_light_thick_steel_within_3_percent():
     for shape in ("disc", "l-bracket"):
         m, part, tp = _part("dev-window-low-steel-t15", shape)
         assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-spot-brass3-t20 and dev-spot-steel4-t28 (branch spotjoin12: thin L-brackets, the camera leaning "
+    "towards the spot's side): the cast-shadow cut takes a band about 7 px deep along the brackets' shadow-side edges "
+    "where the visible shadow is narrower (the brass face beside it as dark, 0.016 of the paper: the sweep's length "
+    "is read from the roughness, whose half-way lies 9.4 px in): brass -18.26 % in area (1.3 sigma), steel -17.09 % "
+    "(0.9 sigma), both warned (bench_reallight, thickness given). Not the lit-face join: with it off, the same "
+    "figures (it joins 22.1 mm2 of the brass plate beside the bracket, whose piece is then merged)",
+)
+def test_thin_brackets_leaning_camera_within_3_percent():
+    for name in ("dev-spot-brass3-t20", "dev-spot-steel4-t28"):
+        m, part, tp = _part(name, "l-bracket")
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], name
