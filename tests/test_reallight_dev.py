@@ -478,7 +478,9 @@ def test_low_window_light_thick_steel_within_3_percent():
     reason="dev-spot-brass3-t20 and dev-spot-steel4-t28 (branch spotjoin12: thin L-brackets, the camera leaning "
     "towards the spot's side): the cast-shadow cut takes a band about 7 px deep along the brackets' shadow-side edges "
     "where the visible shadow is narrower (the brass face beside it as dark, 0.016 of the paper: the sweep's length "
-    "is read from the roughness, whose half-way lies 9.4 px in): brass -18.26 % in area (1.3 sigma), steel -17.09 % "
+    "is read from the roughness, whose half-way lies 9.4 px in; the roughness peaks 4-6 px in on the lit side too, at "
+    "about half the height: the coding's ringing at the bright edge over a face at 0.02-0.04 of the paper, divided by "
+    "that level): brass -18.26 % in area (1.3 sigma), steel -17.09 % "
     "(0.9 sigma), both warned (bench_reallight, thickness given). Not the lit-face join: with it off, the same "
     "figures (it joins 22.1 mm2 of the brass plate beside the bracket, whose piece is then merged)",
 )
