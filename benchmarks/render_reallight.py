@@ -39,7 +39,8 @@ belong to the tuned set::
         dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
         dev-window-low-steel-t15 dev-window-low-black-t10 \
-        dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27
+        dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27 \
+        dev-spot-brass3-t20 dev-spot-steel4-t28
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34
@@ -728,6 +729,27 @@ def dev_scenes():
             350,
             27,
             280,
+            "Standard",
+        ),
+        # branch spotjoin12: thin L-brackets with the camera leaning towards the spot's side (its tilt
+        # direction within 30 degrees of the spot's azimuth, where the brushed or polished face's lit
+        # sectors reach the paper's level), beside a plate and a disc
+        (
+            "dev-spot-brass3-t20",
+            "spot",
+            [("l-bracket", "brass", 2.0, 125, 195, -35), ("plate", "brass", 2.5, 85, 95, 20)],
+            330,
+            20,
+            45,
+            "Standard",
+        ),
+        (
+            "dev-spot-steel4-t28",
+            "spot",
+            [("l-bracket", "brushed-steel", 2.0, 120, 100, 160), ("disc", "brass", 3.0, 85, 200, 0)],
+            345,
+            28,
+            0,
             "Standard",
         ),
     ]
