@@ -808,30 +808,37 @@ def _ringing_bound(
     JPEG coding rings beside a bright edge: its error over the 8x8 blocks the outline crosses
     reaches a few pixels into the region, the same on every side of it, and divided by the level
     of a face at 0.02-0.04 of the paper it is as rough as a shadow's grain (common practice: the
-    block transform's quantisation error spreads over the block). Where the layers at the
-    roughness' half-way are no rougher than those as deep on the side facing the light (the
-    sweep's opposite, where no shadow lies), the half-way is read in that ringing, not in the
-    shadow: the shadow's own evidence is then its level, which the ringing (a signed error,
-    about zero over a layer) leaves in the layers' medians. The shadow's level is read in the
-    layers next to the outline (past its blurred first pixel, up to :data:`_RIM_LAYERS`), the
-    face's beyond the run; where the face is at least :data:`_RINGING_STEP_RATIO` brighter, the
-    width is where the layers' median level crosses half-way to the face's and stays past it
-    for :data:`_SUSTAIN` layers.
+    block transform's quantisation error spreads over the block). Where the layer at the
+    roughness' half-way is no rougher than the roughest layer within 2 px as deep in on the side
+    facing the light (the sweep's opposite, where no shadow lies), the half-way is read in that
+    ringing, not in the shadow: the shadow's own evidence is then its level, which the ringing (a
+    signed error, about zero over a layer) leaves in the layers' medians. The shadow's level is read in the two
+    layers next to the outline from the first past its first pixel that is darker than the face
+    (within :data:`_RIM_LAYERS` + 1: the outline's blur mixes the paper's light into its first
+    layers), the face's beyond the run; where the face is at least :data:`_RINGING_STEP_RATIO`
+    brighter, the width is where the layers' median level crosses half-way to the face's and
+    stays past it for :data:`_SUSTAIN` layers.
     """
-    lit: dict[int, float] = {}
-    for k, new in _new_layers(mask8, -unit, int(math.ceil(depth)) + 2):
-        lit[k] = float(np.median(rough[new]))
-    at = [i for i in range(len(ks)) if ks[i] >= depth and int(ks[i]) in lit]
-    if not at or rg[at[0]] > lit[int(ks[at[0]])]:
-        return None  # rougher than the light's side: the shadow's grain
-    near = (ks >= 2) & (ks <= _RIM_LAYERS)
-    if not near.any():
+    # the side facing the light, its layers within 2 px of the same depth
+    lit = [
+        float(np.median(rough[new]))
+        for k, new in _new_layers(mask8, -unit, int(math.ceil(depth)) + 3)
+        if k >= depth - 2
+    ]
+    at = np.nonzero(ks >= depth)[0]
+    if not lit or not at.size or rg[at[0]] > max(lit):
+        return None  # rougher than the light's side as deep in: the shadow's grain
+    # the shadow next to the outline: from the first layer past its first pixel that is darker than the
+    # face (a layer of the outline's blur mixes the paper's light in), and the one after it
+    darker = np.nonzero((ks >= 2) & (lv < lv_f))[0]
+    if not darker.size or ks[darker[0]] > _RIM_LAYERS + 1:
         return None
+    near = slice(int(darker[0]), int(darker[0]) + 2)
     lv_n = float(np.median(lv[near]))
     if lv_f < _RINGING_STEP_RATIO * lv_n:
         return None
     mid = 0.5 * (lv_f + lv_n)
-    for i in range(max(first, int(np.argmax(near))) + 1, len(ks)):
+    for i in range(max(first, int(darker[0])) + 1, len(ks)):
         if ks[i] > depth:
             break
         if lv[i] >= mid and np.median(lv[i : i + _SUSTAIN]) >= mid:
