@@ -40,7 +40,8 @@ belong to the tuned set::
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
         dev-window-low-steel-t15 dev-window-low-black-t10 \
         dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27 \
-        dev-spot-brass3-t20 dev-spot-steel4-t28
+        dev-spot-brass3-t20 dev-spot-steel4-t28 \
+        dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34
@@ -751,6 +752,35 @@ def dev_scenes():
             28,
             0,
             "Standard",
+        ),
+        # branch mixblack12: black parts in mixed light at a tilt, a thick plate or cam beside a thin disc or
+        # gasket (1.5-2 mm): a matte black face beside a cast shadow of nearly its own level
+        (
+            "dev-mixed-black2-t22",
+            "mixed",
+            [("plate", "black-plastic", 6.5, 85, 195, 25), ("disc", "black-plastic", 2.0, 125, 100, 45)],
+            330,
+            22,
+            150,
+            "Filmic",
+        ),
+        (
+            "dev-mixed-black3-t17",
+            "mixed",
+            [("cam", "black-plastic", 5.0, 90, 100, 20), ("gasket", "black-plastic", 1.6, 125, 195, 0)],
+            325,
+            17,
+            215,
+            "Standard",
+        ),
+        (
+            "dev-mixed-black4-t25",
+            "mixed",
+            [("disc", "black-plastic", 1.8, 90, 195, 250), ("cam", "black-plastic", 7.0, 125, 95, 130)],
+            335,
+            25,
+            330,
+            "Filmic",
         ),
     ]
 

@@ -488,3 +488,79 @@ def test_thin_brackets_leaning_camera_within_3_percent():
     for name in ("dev-spot-brass3-t20", "dev-spot-steel4-t28"):
         m, part, tp = _part(name, "l-bracket")
         assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], name
+
+
+MIXED_BLACK_FACES = [
+    # (render, shape, area tolerance, centroid tolerance mm): figures before -> after (bench_reallight)
+    ("dev-mixed-black2-t22", "plate", 0.03, 0.5),  # 6.5 mm, filmic: -8.62 % -> +2.11 %, centroid 1.96 -> 0.23 mm
+    ("dev-mixed-black2-t22", "disc", 0.03, 0.5),  # 2 mm, a warm sheen on its face: -5.60 % -> -1.81 %, 1.26 -> 0.30 mm
+    ("dev-mixed-black3-t17", "cam", 0.01, 0.2),  # 5 mm: -6.33 % -> -0.58 %, centroid 0.69 -> 0.09 mm
+]
+
+
+@pytest.mark.parametrize(("name", "shape", "rel", "centroid_mm"), MIXED_BLACK_FACES)
+def test_mixed_light_shadow_cut_stops_at_a_black_face(name, shape, rel, centroid_mm):
+    """Black parts in mixed light at 17-22 degrees of tilt (branch mixblack12; other shapes, sizes and
+    placements than the held-out scenes). The cut by grain went into the matte black face: beside a bright
+    edge (the paper, a lit side wall) JPEG ringing makes the face's pixels as rough as a shadow's grain, at
+    the face's level and colour, and a sweep ran 10-14 px into the face where there was no shadow (the plate,
+    the disc); where the shadow, filled by the other light, is brighter than
+    the face, the sweep's layer ran 3-5 px past the face's outline (the cam). Pixels at a tinted matte face's
+    level and colour are no shadow, and the cut gives back what lies below half-way between the face's level
+    and the shadow's (segment.castshadow). Each part: cut and named, its area within ``rel``, its centroid
+    within ``centroid_mm``, within 3 stated sigma."""
+    m, part, tp = _part(name, shape)
+    warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
+    assert f" {part.label} (" in warning
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < rel * tp["area"]
+    assert math.dist(part.centroid_mm, tp["centroid"]) < centroid_mm
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black2-t22: the black plate 6.5 mm thick at 22 degrees of tilt reads its three bores "
+    "1.35-1.58 mm small (they show their own wall, not darker than half the face, so no hole bottom is opened; "
+    "before the change a sweep 14 px long opened them by chance: +0.11 / +0.63 / -0.45 mm); its outline "
+    "keeps spikes of the shadow on the lamp's far side (+2.1 % in area)",
+)
+def test_mixed_light_thick_black_plate_bores_within_0_2_mm():
+    m, part, tp = _part("dev-mixed-black2-t22", "plate")
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert abs(hole.diameter_mm - diameter) < 0.2
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black4-t25 (filmic, 25 degrees of tilt): the black cam 7 mm thick and disc 1.8 mm read "
+    "grey under a sheen of the lamps and no cut is found, by grain or by colour: +12.4 % / +3.2 % in area, "
+    "centroids 1.07 / 0.46 mm, the cam's bore missed (warned 'cast shadow', 0.7 / 0.3 sigma)",
+)
+def test_mixed_light_sheen_black_parts_within_3_percent():
+    for shape in ("cam", "disc"):
+        m, part, tp = _part("dev-mixed-black4-t25", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
+
+
+def test_mixed_light_sheen_black_parts_warned_and_covered():
+    """The same parts, not cut: the error is warned and inside the stated uncertainty (term 'cast_shadow')."""
+    for shape in ("cam", "disc"):
+        m, part, tp = _part("dev-mixed-black4-t25", shape)
+        assert "cast_shadow" in part.uncertainty_terms, shape
+        assert any(w.startswith("cast shadow:") for w in m.warnings), shape
+        assert _covered(part, tp), shape
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black3-t17: the black gasket 1.6 mm thick: the dark face's sweep, without a step of level "
+    "between the face and what it takes, is chosen by the ringing along both its outlines (rough, at the face's "
+    "level and colour): a crescent of face cut at its outer edge and one at its bore's (-16.1 % in area, centroid "
+    "2.52 mm, 0.9 sigma). Counting those pixels as face cut it to +0.9 % but moved dev-window-black-t20's gasket "
+    "and disc, whose thin shadows at the face's level take the face's tint in the smoothed colour, by 2-4 %",
+)
+def test_mixed_light_thin_black_gasket_within_3_percent():
+    m, part, tp = _part("dev-mixed-black3-t17", "gasket")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
