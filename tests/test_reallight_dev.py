@@ -517,3 +517,17 @@ def test_low_lamp_scan_face_in_doubt_without_a_sweep_states_its_holes_doubt(monk
     for centre, diameter in tp["holes"]:
         hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
         assert abs(hole.diameter_mm - diameter) <= 1.5 * hole.diameter_u_mm  # were 1.9 sigma
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-scan-mixed3-lamp32's black cam 5 mm thick (lamp 32 degrees, the lid on it): its 8 mm bore, its "
+    "floor wholly in its wall's shadow (5 / tan 32 = 8 mm), reads -0.176 mm at 2.05 stated sigma (0.086 mm); "
+    "the cam's area +0.37 %, the steel bracket beside it +0.29 % with both holes within 0.01 mm",
+)
+def test_low_lamp_scan_black_cam_bore_in_its_walls_shadow():
+    m, part, tp = _scan_part("dev-scan-mixed3-lamp32", "cam")
+    ((centre, diameter),) = tp["holes"]
+    (hole,) = part.holes
+    assert abs(hole.diameter_mm - diameter) <= min(0.1, 3 * hole.diameter_u_mm)
+    assert abs(hole.diameter_mm - diameter) <= 1.5 * hole.diameter_u_mm
