@@ -57,9 +57,9 @@ MIN_FACE_SHADOW_CONTRAST = 0.05
 #: level with the shadow's whole band as its doubt. The renders' faces told by level: black plastic
 #: 0.19-0.23 of the contrast (right within 0.5 %); the brass bracket of dev-scan-cam2-lamp33 0.075
 #: (by level -0.7 %, its holes +0.33 / +0.36 mm at 1.9 sigma; the sweep's face +0.02 %, holes within
-#: 0.01 mm). Brushed steel under a 29-34 degree lamp (0.07-0.11) has its face by level refused by its
-#: checks in every dev scan, narrowly in a first render of dev-scan-bracket2-lamp31 (its edge's step
-#: 0.98 of the least): that face +12 % with part of its shadow, the sweep's +0.1 %.
+#: 0.01 mm; read in grey levels only, as steel is, by level +15.3 %). Brushed steel under a 29-34 degree
+#: lamp (0.07-0.11) has its face by level refused by its checks in every dev scan, narrowly in a render
+#: of a 5.5 mm bracket left out of the set (its edge's step 0.98 of the least): that face +12 %, the sweep's +0.1 %.
 FACE_DOUBT_CONTRAST = 0.15
 
 #: Least level step (share of the lid-to-part contrast) from the part to what lies inside the
