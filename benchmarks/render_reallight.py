@@ -44,7 +44,8 @@ belong to the tuned set::
         dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
-        dev-scan-collar-lamp30 dev-scan-bracket-lamp34
+        dev-scan-collar-lamp30 dev-scan-bracket-lamp34 dev-scan-cam2-lamp33 dev-scan-bracket4-lamp29 \
+        dev-scan-mixed3-lamp32
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -1070,6 +1071,23 @@ def dev_scanner_scenes():
             "dev-scan-mixed-lamp32",
             32.0,
             [("cam", "brass", 6.0, 44, 31, 90), ("l-bracket", "brushed-steel", 4.0, 47, 93, 160)],
+        ),
+        # brushed steel 3.5-6.5 mm under a lamp at 29-33 degrees beside a part of another material: an L bracket
+        # thinner than the part the lid rests on (its face nearly as dark as its shadow), and one the lid rests on
+        (
+            "dev-scan-cam2-lamp33",
+            33.0,
+            [("cam", "brushed-steel", 4.5, 44, 30, -60), ("l-bracket", "brass", 3.0, 46, 96, -110)],
+        ),
+        (
+            "dev-scan-bracket4-lamp29",
+            29.0,
+            [("l-bracket", "brushed-steel", 6.5, 47, 40, -45), ("washer", "black-plastic", 3.0, 45, 100, 0)],
+        ),
+        (
+            "dev-scan-mixed3-lamp32",
+            32.0,
+            [("cam", "black-plastic", 5.0, 44, 29, -60), ("l-bracket", "brushed-steel", 3.5, 46, 87, -110)],
         ),
     ]
 
