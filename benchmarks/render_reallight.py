@@ -730,6 +730,36 @@ def dev_scenes():
             280,
             "Standard",
         ),
+        # branch steelmiss12: brushed steel whose lit face may take the paper's colour and level, in mixed
+        # light (an L bracket and a plate, the camera from other sides) and in window light (a thick plate
+        # and a gasket at a tilt)
+        (
+            "dev-mixed-steel2-t15",
+            "mixed",
+            [("l-bracket", "brushed-steel", 3.0, 95, 195, 25), ("plate", "brushed-steel", 2.5, 120, 100, 15)],
+            325,
+            15,
+            250,
+            "Standard",
+        ),
+        (
+            "dev-mixed-steel3-t22",
+            "mixed",
+            [("plate", "brushed-steel", 4.0, 90, 200, 70), ("gasket", "brushed-steel", 3.0, 125, 95, 0)],
+            330,
+            22,
+            290,
+            "Standard",
+        ),
+        (
+            "dev-window-steel3-t10",
+            "window",
+            [("plate", "brushed-steel", 5.0, 120, 195, -10), ("gasket", "brushed-steel", 2.5, 85, 100, 0)],
+            315,
+            10,
+            120,
+            "Standard",
+        ),
     ]
 
 

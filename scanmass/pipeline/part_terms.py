@@ -468,3 +468,32 @@ def lost_face_warnings(parts: list[Part]) -> list[str]:
             "figure photograph metal in diffuse light"
         )
     return out
+
+
+#: Width (px) of the band along a grainy face's edge (:func:`~scanmass.segment.brightface.grain_face_regions`)
+#: taken as the term ``grain_face``'s 1 sigma: the edge is placed by the grain's energy, smoothed
+#: over about 2 px, not by a level step, and the face's own level near its edge (the threshold
+#: step's residual) moves it by a pixel or so.
+GRAIN_EDGE_U_PX = 2.0
+
+
+def with_grain_face_term(part: Part, band_mm2: float) -> Part:
+    """The part with the term ``grain_face``: the band along its grainy face's edge as an area."""
+    return _with_extra_term(part, "grain_face", area_share_term(part, band_mm2), [])
+
+
+def grain_face_warnings(parts: list[Part]) -> list[str]:
+    """A warning for each part whose lit face at the paper's level was found by its grain alone."""
+    out = []
+    for part in parts:
+        term = part.uncertainty_terms.get("grain_face")
+        if not term:
+            continue
+        out.append(
+            f"part {part.label}: part of its face mirrors the light at the paper's level and colour and was not "
+            "found by its level; it was found by its grain (a brushed face varies from pixel to pixel, the paper "
+            f"does not) and joined; its edge there is placed by the grain alone, and the uncertainty includes "
+            f"{term['area_mm2']:.3g} mm² for it (term 'grain_face'); for a trustworthy figure photograph metal in "
+            "diffuse light, or on a dark background"
+        )
+    return out
