@@ -448,7 +448,10 @@ LIT_FACE_SHARE = 0.1
 
 
 def has_lit_face(part: Part) -> bool:
-    """Whether a lit region of the part's face, at least :data:`LIT_FACE_SHARE` of its area, was joined to it."""
+    """Whether a lit region of the part's face, at least :data:`LIT_FACE_SHARE` of its area, was joined to it,
+    or a stretch of its face was found by its dense grain (term ``grain_face``: a shadow has none)."""
+    if "grain_face" in part.uncertainty_terms:
+        return True
     term = part.uncertainty_terms.get("lost_face")
     return term is not None and term["area_mm2"] / LOST_FACE_WEIGHT >= LIT_FACE_SHARE * part.area_mm2
 

@@ -353,63 +353,109 @@ def grain_face_regions(
         return empty  # a matte face (black plastic: 0.03-0.07 on the committed renders) has no grain to follow
     least = max(GRAIN_MIN, GRAIN_PAPER_TIMES * paper_grain, GRAIN_FOUND_SHARE * found_grain)
     grainy = (root > least) & ~found & ~others & inside
+    found_area = float(np.count_nonzero(found))
+    touching = cv2.dilate(found_u8, np.ones((3, 3), np.uint8)).astype(bool)
+    floor = paper_grain**2
+    dense = max(GRAIN_DENSE, GRAIN_PAPER_TIMES * paper_dense)
+    joined = np.zeros(found.shape, bool)
+    notes: list[GrainFace] = []
+
+    def note(comp: np.ndarray) -> None:
+        rim = comp & ~cv2.erode(comp.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+        rows, cols = np.nonzero(comp)
+        level_share = float(np.median(lin[comp])) / max(paper_level, 1e-6)
+        notes.append(
+            GrainFace(
+                float(np.count_nonzero(comp)), float(np.count_nonzero(rim & ~touching)),
+                (float(cols.mean()), float(rows.mean())), float(np.median(root[comp])), level_share,
+            )
+        )  # fmt: skip
+
+    share = np.zeros(found.shape, np.float32)
     core = grainy & (dist_out > GRAIN_CORE_PX)
     count, labels = cv2.connectedComponents(core.astype(np.uint8), connectivity=8)
-    if count <= 1:
-        return empty
     near = cv2.dilate(found_u8, np.ones((2 * int(GRAIN_CORE_PX) + 3,) * 2, np.uint8)).astype(bool)
-    found_area = float(np.count_nonzero(found))
     candidates = np.zeros(found.shape, bool)
     for k in range(1, count):
         comp = labels == k
         if (comp & near).any():
             candidates |= comp
-    if not candidates.any():
-        return empty
     # the face's own grain energy beside each place, for the edge at half of it
     closed = cv2.morphologyEx(candidates.astype(np.uint8), cv2.MORPH_CLOSE, np.ones((5, 5), np.uint8))
     face_core = candidates & (cv2.distanceTransform(closed, cv2.DIST_L2, 3) > 3)
-    if np.count_nonzero(face_core) < 20:
-        return empty
-    face_energy = _masked_blur(energy, face_core, GRAIN_FACE_SIGMA_PX, float(np.median(energy[face_core])))
-    floor = paper_grain**2
-    share = np.clip((energy - floor) / np.maximum(face_energy - floor, 1e-6), 0.0, 1.0)
-    # a found dark face's own edge against the paper is grainy too (its step's residual): only
-    # the pixels near the grainy core, or away from that edge, are joined
-    reach = cv2.dilate(candidates.astype(np.uint8), np.ones((13, 13), np.uint8)).astype(bool)
-    half = (share >= GRAIN_EDGE_SHARE) & ~found & ~others & inside & (reach | (dist_out > 4))
-    count, labels = cv2.connectedComponents(half.astype(np.uint8), connectivity=8)
-    joined = np.zeros(found.shape, bool)
-    notes: list[GrainFace] = []
-    touching = cv2.dilate(found_u8, np.ones((3, 3), np.uint8)).astype(bool)
-    for k in range(1, count):
-        comp = labels == k
-        if not (comp & candidates).any() or not (comp & touching).any():
-            continue
-        area = float(np.count_nonzero(comp))
-        if area < GRAIN_MIN_SHARE * found_area:
-            continue
-        if comp[0].any() or comp[-1].any() or comp[:, 0].any() or comp[:, -1].any():
-            continue  # reaches past the part's surroundings: not a piece of its face
-        comp = _small_gaps_filled(comp)
-        comp_u8 = comp.astype(np.uint8)
-        if float(cv2.distanceTransform(comp_u8, cv2.DIST_L2, 3).max()) < GRAIN_WIDE_PX:
-            continue  # a band along the outline (a wall, an edge's own grain), not a lit face
-        level_share = float(np.median(lin[comp])) / max(paper_level, 1e-6)
-        if level_share < GRAIN_LEVEL_SHARE:
-            continue  # dark and noisy: a shadow's noise, not a lit face
-        grain = float(np.median(root[comp]))
-        if float(np.median(high[comp])) < max(GRAIN_DENSE, GRAIN_PAPER_TIMES * paper_dense):
-            continue  # its energy is a few steps (a ragged edge, a painted cut's rim), not a dense grain
-        rim = comp & ~cv2.erode(comp_u8, np.ones((3, 3), np.uint8)).astype(bool)
-        edge_px = float(np.count_nonzero(rim & ~touching))
-        rows, cols = np.nonzero(comp)
-        joined |= comp
-        notes.append(GrainFace(area, edge_px, (float(cols.mean()), float(rows.mean())), grain, level_share))
+    if np.count_nonzero(face_core) >= 20:
+        face_energy = _masked_blur(energy, face_core, GRAIN_FACE_SIGMA_PX, float(np.median(energy[face_core])))
+        share = np.clip((energy - floor) / np.maximum(face_energy - floor, 1e-6), 0.0, 1.0)
+        # a found dark face's own edge against the paper is grainy too (its step's residual): only
+        # the pixels near the grainy core, or away from that edge, are joined
+        reach = cv2.dilate(candidates.astype(np.uint8), np.ones((13, 13), np.uint8)).astype(bool)
+        half = (share >= GRAIN_EDGE_SHARE) & ~found & ~others & inside & (reach | (dist_out > 4))
+        count, labels = cv2.connectedComponents(half.astype(np.uint8), connectivity=8)
+        for k in range(1, count):
+            comp = labels == k
+            if not (comp & candidates).any() or not (comp & touching).any():
+                continue
+            if np.count_nonzero(comp) < GRAIN_MIN_SHARE * found_area:
+                continue
+            if comp[0].any() or comp[-1].any() or comp[:, 0].any() or comp[:, -1].any():
+                continue  # reaches past the part's surroundings: not a piece of its face
+            comp = _small_gaps_filled(comp)
+            if float(cv2.distanceTransform(comp.astype(np.uint8), cv2.DIST_L2, 3).max()) < GRAIN_WIDE_PX:
+                continue  # a band along the outline (a wall, an edge's own grain), not a lit face
+            if float(np.median(lin[comp])) < GRAIN_LEVEL_SHARE * paper_level:
+                continue  # dark and noisy: a shadow's noise, not a lit face
+            if float(np.median(high[comp])) < dense:
+                continue  # its energy is a few steps (a ragged edge, a painted cut's rim), not a dense grain
+            joined |= comp
+            note(comp)
+    band = cv2.dilate(joined.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool) & ~found & ~others
+    out = np.where(band, share, 0.0).astype(np.float32)
+    # a ring found as a C: the lit stretch that closes it, grainy and no wider than a closing spans
+    bridge = _grain_bridge(found | joined, (root > least) & ~joined & ~others & inside)
+    if bridge is not None and np.count_nonzero(bridge & ~found) <= GRAIN_BRIDGE_SHARE * found_area:
+        level_ok = float(np.median(lin[bridge])) >= GRAIN_LEVEL_SHARE * paper_level
+        if level_ok and float(np.median(high[bridge])) >= dense:
+            face = float(np.median(energy[deep]))
+            around = cv2.dilate(bridge.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool)
+            around &= ~found & ~joined & ~others
+            out[around] = np.clip((energy[around] - floor) / max(face - floor, 1e-6), 0.0, 1.0)
+            out[bridge] = 1.0
+            joined |= bridge
+            note(bridge)
     if not notes:
         return empty
-    band = cv2.dilate(joined.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool) & ~found & ~others
-    return np.where(band, share, 0.0).astype(np.float32), joined, notes
+    return out, joined, notes
+
+
+#: A found ring open in a C is closed by its grainy lit stretch where a closing of this radius (px)
+#: spans the gap; the stretch is at most :data:`GRAIN_BRIDGE_SHARE` of the found area.
+GRAIN_BRIDGE_PX = 8
+GRAIN_BRIDGE_SHARE = 0.3
+#: Least area (px) of an enclosed opening (a bore) that the bridge must close.
+GRAIN_BRIDGE_HOLE_PX = 50
+
+
+def _enclosed(mask: np.ndarray) -> int:
+    """The count of openings of at least :data:`GRAIN_BRIDGE_HOLE_PX` px that ``mask`` encloses."""
+    count, labels, stats, _ = cv2.connectedComponentsWithStats((~mask).astype(np.uint8), connectivity=4)
+    edge = set(np.unique(np.concatenate([labels[0], labels[-1], labels[:, 0], labels[:, -1]])).tolist())
+    return sum(1 for k in range(1, count) if k not in edge and stats[k, cv2.CC_STAT_AREA] >= GRAIN_BRIDGE_HOLE_PX)
+
+
+def _grain_bridge(found: np.ndarray, grainy: np.ndarray) -> np.ndarray | None:
+    """The grainy pixels a closing of ``found`` adds, when they enclose an opening ``found`` left open.
+
+    ``found`` is eroded by a pixel first: a ring open by a slit of a pixel or two is filled as closed.
+    The pixels returned may include found ones (the slit's rim).
+    """
+    base = cv2.erode(found.astype(np.uint8), np.ones((3, 3), np.uint8))
+    size = 2 * GRAIN_BRIDGE_PX + 1
+    disc = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (size, size))
+    closed = cv2.morphologyEx(base, cv2.MORPH_CLOSE, disc).astype(bool)
+    add = closed & ~base.astype(bool) & grainy
+    if not (add & ~found).any() or _enclosed(base.astype(bool) | add) <= _enclosed(base.astype(bool)):
+        return None
+    return add
 
 
 #: A gap within a grainy region no wider than this radius (px) is a sparse patch of its grain, not a
