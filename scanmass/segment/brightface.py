@@ -21,6 +21,12 @@ between the face beside it and the paper beside it.
 
 A face brighter than the paper (pale brass mirroring a softbox) is not found by this rule;
 it needs colour and stays a refusal or a warning.
+
+A brushed steel face may mirror the light at the paper's own level and colour, with no step
+to the paper at all (mixed-steel-t10: the plate's lit half at 0.77 of the paper). Its grain
+stays: :func:`grain_face_regions` finds such a face beside a grainy found face by the energy of
+log luma less its 5 px median, and :func:`recover_grain_faces` paints it in the face's level
+so that the photo is segmented again with it.
 """
 
 from __future__ import annotations
