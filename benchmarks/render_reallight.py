@@ -39,7 +39,8 @@ belong to the tuned set::
         dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
         dev-window-low-steel-t15 dev-window-low-black-t10 \
-        dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27
+        dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27 \
+        dev-mixed-steel2-t15 dev-mixed-steel3-t22 dev-window-steel3-t10
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34
