@@ -41,7 +41,8 @@ belong to the tuned set::
         dev-window-low-steel-t15 dev-window-low-black-t10 \
         dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27 \
         dev-spot-brass3-t20 dev-spot-steel4-t28 \
-        dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25
+        dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25 \
+        dev-mixed-steel2-t15 dev-mixed-steel3-t22 dev-window-steel3-t10
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34 dev-scan-cam2-lamp33 dev-scan-bracket4-lamp29 \
@@ -782,6 +783,36 @@ def dev_scenes():
             25,
             330,
             "Filmic",
+        ),
+        # branch steelmiss12: brushed steel whose lit face may take the paper's colour and level, in mixed
+        # light (an L bracket and a plate, the camera from other sides) and in window light (a thick plate
+        # and a gasket at a tilt)
+        (
+            "dev-mixed-steel2-t15",
+            "mixed",
+            [("l-bracket", "brushed-steel", 3.0, 95, 195, 25), ("plate", "brushed-steel", 2.5, 120, 100, 15)],
+            325,
+            15,
+            250,
+            "Standard",
+        ),
+        (
+            "dev-mixed-steel3-t22",
+            "mixed",
+            [("plate", "brushed-steel", 4.0, 90, 200, 70), ("gasket", "brushed-steel", 3.0, 125, 95, 0)],
+            330,
+            22,
+            290,
+            "Standard",
+        ),
+        (
+            "dev-window-steel3-t10",
+            "window",
+            [("plate", "brushed-steel", 5.0, 120, 195, -10), ("gasket", "brushed-steel", 2.5, 85, 100, 0)],
+            315,
+            10,
+            120,
+            "Standard",
         ),
     ]
 
