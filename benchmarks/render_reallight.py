@@ -40,10 +40,13 @@ belong to the tuned set::
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
         dev-window-low-steel-t15 dev-window-low-black-t10 \
         dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27 \
-        dev-spot-brass3-t20 dev-spot-steel4-t28
+        dev-spot-brass3-t20 dev-spot-steel4-t28 \
+        dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25 \
+        dev-mixed-steel2-t15 dev-mixed-steel3-t22 dev-window-steel3-t10
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
-        dev-scan-collar-lamp30 dev-scan-bracket-lamp34
+        dev-scan-collar-lamp30 dev-scan-bracket-lamp34 dev-scan-cam2-lamp33 dev-scan-bracket4-lamp29 \
+        dev-scan-mixed3-lamp32
 
 The same file runs twice: with plain Python it builds the scene specifications (it needs
 scanmass for the mat and numpy for the outlines) and calls ``blender -b -P <this file>``;
@@ -752,6 +755,65 @@ def dev_scenes():
             0,
             "Standard",
         ),
+        # branch mixblack12: black parts in mixed light at a tilt, a thick plate or cam beside a thin disc or
+        # gasket (1.5-2 mm): a matte black face beside a cast shadow of nearly its own level
+        (
+            "dev-mixed-black2-t22",
+            "mixed",
+            [("plate", "black-plastic", 6.5, 85, 195, 25), ("disc", "black-plastic", 2.0, 125, 100, 45)],
+            330,
+            22,
+            150,
+            "Filmic",
+        ),
+        (
+            "dev-mixed-black3-t17",
+            "mixed",
+            [("cam", "black-plastic", 5.0, 90, 100, 20), ("gasket", "black-plastic", 1.6, 125, 195, 0)],
+            325,
+            17,
+            215,
+            "Standard",
+        ),
+        (
+            "dev-mixed-black4-t25",
+            "mixed",
+            [("disc", "black-plastic", 1.8, 90, 195, 250), ("cam", "black-plastic", 7.0, 125, 95, 130)],
+            335,
+            25,
+            330,
+            "Filmic",
+        ),
+        # branch steelmiss12: brushed steel whose lit face may take the paper's colour and level, in mixed
+        # light (an L bracket and a plate, the camera from other sides) and in window light (a thick plate
+        # and a gasket at a tilt)
+        (
+            "dev-mixed-steel2-t15",
+            "mixed",
+            [("l-bracket", "brushed-steel", 3.0, 95, 195, 25), ("plate", "brushed-steel", 2.5, 120, 100, 15)],
+            325,
+            15,
+            250,
+            "Standard",
+        ),
+        (
+            "dev-mixed-steel3-t22",
+            "mixed",
+            [("plate", "brushed-steel", 4.0, 90, 200, 70), ("gasket", "brushed-steel", 3.0, 125, 95, 0)],
+            330,
+            22,
+            290,
+            "Standard",
+        ),
+        (
+            "dev-window-steel3-t10",
+            "window",
+            [("plate", "brushed-steel", 5.0, 120, 195, -10), ("gasket", "brushed-steel", 2.5, 85, 100, 0)],
+            315,
+            10,
+            120,
+            "Standard",
+        ),
     ]
 
 
@@ -1040,6 +1102,23 @@ def dev_scanner_scenes():
             "dev-scan-mixed-lamp32",
             32.0,
             [("cam", "brass", 6.0, 44, 31, 90), ("l-bracket", "brushed-steel", 4.0, 47, 93, 160)],
+        ),
+        # brushed steel 3.5-6.5 mm under a lamp at 29-33 degrees beside a part of another material: an L bracket
+        # thinner than the part the lid rests on (its face nearly as dark as its shadow), and one the lid rests on
+        (
+            "dev-scan-cam2-lamp33",
+            33.0,
+            [("cam", "brushed-steel", 4.5, 44, 30, -60), ("l-bracket", "brass", 3.0, 46, 96, -110)],
+        ),
+        (
+            "dev-scan-bracket4-lamp29",
+            29.0,
+            [("l-bracket", "brushed-steel", 6.5, 47, 40, -45), ("washer", "black-plastic", 3.0, 45, 100, 0)],
+        ),
+        (
+            "dev-scan-mixed3-lamp32",
+            32.0,
+            [("cam", "black-plastic", 5.0, 44, 29, -60), ("l-bracket", "brushed-steel", 3.5, 46, 87, -110)],
         ),
     ]
 

@@ -168,3 +168,96 @@ def test_yellowness_plane_without_a_coloured_area_is_none():
     green = np.full((30, 30), 0.6)
     green[:, :10] = 0.2  # a grey (neutral) part: the paper's colour, darker
     assert face_colour_plane(0.95 * green, green, np.ones((30, 30), bool), min_area_px=20) is None
+
+
+# ---------------------------------------------------------------------------------
+# a lit face at the paper's level found by its grain (grain_face_regions)
+# ---------------------------------------------------------------------------------
+
+
+def _speckled(coverage: np.ndarray, low: float, high: float, seed: int) -> np.ndarray:
+    """Per-pixel face levels (share of the paper) drawn uniformly in low-high: a brushed face's speckle."""
+    rng = np.random.default_rng(seed)
+    return coverage * rng.uniform(low, high, coverage.shape)
+
+
+def _half_lit_disc(radius: float, seed: int = 3) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A disc whose left half is dark (0.05-0.15 of the paper) and right half at the paper's level
+    (0.45-1.0, speckled); the paper is clipped at its level (no grain). Returns the crop, the lit
+    half's coverage and the found mask (the dark half, as the threshold finds it)."""
+    dark = polygon_coverage([(_sector(radius, 90.0, 270.0), [])], SHAPE)
+    lit = polygon_coverage([(_sector(radius, -90.0, 90.0), [])], SHAPE)
+    face = _speckled(dark, 0.05, 0.15, seed) + _speckled(lit, 0.45, 1.0, seed + 1)
+    lin = (PAPER * (1.0 - dark - lit) + PAPER * face).astype(np.float32)
+    return lin, lit, lin < 0.5 * PAPER * (1.0 + 0.1) * (dark > 0.5)
+
+
+def test_grainy_half_at_the_papers_level_is_joined_with_the_discs_area():
+    radius = 40.0
+    lin, lit, found = _half_lit_disc(radius)
+    none = np.zeros_like(found)
+    share, joined, notes = brightface.grain_face_regions(lin, found, none, ~none)
+    assert len(notes) == 1
+    # the joined region is the lit half (closed form pi r^2 / 2) within the term's band: GRAIN_EDGE_U_PX
+    # along its outline against the paper (the half circle's arc, pi r), the band the uncertainty states
+    expected = 0.5 * math.pi * radius**2
+    band = 2 * brightface_band_px() * math.pi * radius
+    assert abs(float(np.count_nonzero(joined)) - expected) <= band, (np.count_nonzero(joined), expected, band)
+    assert np.count_nonzero(joined & (lit < 0.5)) <= band  # what is joined is the lit half and its edge
+
+
+def brightface_band_px() -> float:
+    from scanmass.pipeline.part_terms import GRAIN_EDGE_U_PX
+
+    return GRAIN_EDGE_U_PX
+
+
+def test_smooth_region_at_the_papers_level_is_not_joined():
+    """The same disc with its lit half smooth (0.75 of the paper everywhere): no grain, nothing joined
+    (the rule for a sharp step, :func:`lost_face_regions`, is the one for such a half)."""
+    radius = 40.0
+    dark = polygon_coverage([(_sector(radius, 90.0, 270.0), [])], SHAPE)
+    lit = polygon_coverage([(_sector(radius, -90.0, 90.0), [])], SHAPE)
+    lin = (PAPER * (1.0 - dark - lit) + PAPER * (_speckled(dark, 0.05, 0.15, 3) + 0.75 * lit)).astype(np.float32)
+    found = lin < 0.5 * PAPER * 1.1 * (dark > 0.5)
+    none = np.zeros_like(found)
+    _, joined, notes = brightface.grain_face_regions(lin, found, none, ~none)
+    assert notes == [] and not joined.any()
+
+
+def test_matte_found_face_joins_no_grain():
+    """A dark face without grain (black plastic: one level) beside a speckled region: not joined."""
+    radius = 40.0
+    lin, _, found = _half_lit_disc(radius)
+    lin = np.where(found, np.float32(0.1 * PAPER), lin).astype(np.float32)
+    none = np.zeros_like(found)
+    _, joined, notes = brightface.grain_face_regions(lin, found, none, ~none)
+    assert notes == [] and not joined.any()
+
+
+def test_ring_found_as_a_c_is_closed_by_its_grainy_stretch():
+    """A ring (r 28-50 px) whose face is dark and speckled but for a 10 degree stretch at the paper's
+    level (5-9 px long: a gap a closing of GRAIN_BRIDGE_PX spans); the found C is open there. The
+    stretch's grain closes it: the joined region lies within the stretch (closed form: 10/360 of the
+    ring's area) and its edge band."""
+    outer, inner = 50.0, 28.0
+    ring = polygon_coverage([(_sector(outer), [_sector(inner)[::-1]])], SHAPE)
+    stretch = polygon_coverage([(_sector(outer, 85.0, 95.0), [])], SHAPE) - polygon_coverage(
+        [(_sector(inner, 85.0, 95.0), [])], SHAPE
+    )
+    dark = np.clip(ring - stretch, 0.0, 1.0)
+    face = _speckled(dark, 0.05, 0.15, 5) + _speckled(stretch, 0.45, 1.0, 6)
+    lin = (PAPER * (1.0 - ring) + PAPER * face).astype(np.float32)
+    found = (lin < 0.5 * PAPER * 1.1) & (dark > 0.5)
+    none = np.zeros_like(found)
+    _, joined, notes = brightface.grain_face_regions(lin, found, none, ~none)
+    assert len(notes) == 1
+    expected = (10.0 / 360.0) * math.pi * (outer**2 - inner**2)
+    band = brightface_band_px() * 2 * (outer - inner)  # the stretch's two ends against the paper's edge band
+    assert np.count_nonzero(joined & ~found) <= expected + band + brightface_band_px() * math.radians(10) * (
+        outer + inner
+    )
+    # the ring encloses its bore again; a closing leaves the stretch's corners at the outer edge open,
+    # where the gap is widest (73 % of the stretch joined here; its band is the term's)
+    assert brightface._enclosed(found | joined) == 1
+    assert np.count_nonzero(joined & (stretch > 0.5)) >= 0.6 * expected

@@ -138,9 +138,6 @@ KNOWN_FAILING = {
     "is refused (only the parts' shadows and hole bottoms are found, and they look like shadows)",
     "window-mixed-t0.json": "the white nylon disc beside the black bracket is not found; its shadow and its hole's "
     "bottom are found instead, each named in the 'shadow only' warning",
-    "mixed-steel-t10.json": "brushed-steel plate in mixed warm and cool light at 10 degrees: its lit half has the "
-    "paper's colour and level and is not found; the darker half is reported, 12 mm off in centroid (covered by the "
-    "cast-shadow term, warned), so the benchmark counts the plate missed and the half extra",
     "spot-nylon-t0.json": "white nylon cam and disc under the hard spot: only four small lit regions of the paper's "
     "colour (faces brighter than the paper, hole bottoms) are found, not the parts; the photo is refused as white on "
     "white (segment/shadow.looks_like_lit_white)",

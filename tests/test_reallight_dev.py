@@ -517,3 +517,183 @@ def test_thin_brackets_leaning_camera_cut_without_the_thickness():
         assert "shadow_cut" in part.uncertainty_terms
         assert abs(part.area_mm2 - tp["area"]) < 0.05 * tp["area"], name  # was -13.6 / -19.3 %
         assert _covered(part, tp), name
+
+
+MIXED_BLACK_FACES = [
+    # (render, shape, area tolerance, centroid tolerance mm): figures before -> after (bench_reallight)
+    ("dev-mixed-black2-t22", "plate", 0.03, 0.5),  # 6.5 mm, filmic: -8.62 % -> +2.11 %, centroid 1.96 -> 0.23 mm
+    ("dev-mixed-black2-t22", "disc", 0.03, 0.5),  # 2 mm, a warm sheen on its face: -5.60 % -> -1.81 %, 1.26 -> 0.30 mm
+    ("dev-mixed-black3-t17", "cam", 0.01, 0.2),  # 5 mm: -6.33 % -> -0.58 %, centroid 0.69 -> 0.09 mm
+]
+
+
+@pytest.mark.parametrize(("name", "shape", "rel", "centroid_mm"), MIXED_BLACK_FACES)
+def test_mixed_light_shadow_cut_stops_at_a_black_face(name, shape, rel, centroid_mm):
+    """Black parts in mixed light at 17-22 degrees of tilt (branch mixblack12; other shapes, sizes and
+    placements than the held-out scenes). The cut by grain went into the matte black face: beside a bright
+    edge (the paper, a lit side wall) JPEG ringing makes the face's pixels as rough as a shadow's grain, at
+    the face's level and colour, and a sweep ran 10-14 px into the face where there was no shadow (the plate,
+    the disc); where the shadow, filled by the other light, is brighter than
+    the face, the sweep's layer ran 3-5 px past the face's outline (the cam). Pixels at a tinted matte face's
+    level and colour are no shadow, and the cut gives back what lies below half-way between the face's level
+    and the shadow's (segment.castshadow). Each part: cut and named, its area within ``rel``, its centroid
+    within ``centroid_mm``, within 3 stated sigma."""
+    m, part, tp = _part(name, shape)
+    warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
+    assert f" {part.label} (" in warning
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < rel * tp["area"]
+    assert math.dist(part.centroid_mm, tp["centroid"]) < centroid_mm
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black2-t22: the black plate 6.5 mm thick at 22 degrees of tilt reads its three bores "
+    "1.35-1.58 mm small (they show their own wall, not darker than half the face, so no hole bottom is opened; "
+    "before the change a sweep 14 px long opened them by chance: +0.11 / +0.63 / -0.45 mm); its outline "
+    "keeps spikes of the shadow on the lamp's far side (+2.1 % in area)",
+)
+def test_mixed_light_thick_black_plate_bores_within_0_2_mm():
+    m, part, tp = _part("dev-mixed-black2-t22", "plate")
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert abs(hole.diameter_mm - diameter) < 0.2
+
+
+# ---------------------------------------------------------------------------------
+# scans under a low lamp (29-33 degrees): brushed steel 4.5-6.5 mm thick, the thickest part (the lid on it)
+# ---------------------------------------------------------------------------------
+
+
+def test_low_lamp_scan_face_in_doubt_is_the_sweeps_brass_bracket_holes():
+    """dev-scan-cam2-lamp33 (branch scansteel12): a steel cam 4.5 mm thick holds the lid up, a brass L bracket
+    3 mm thick beside it (arms at -110 degrees) is told from its shadow by a level step of 0.075 of the
+    contrast, under ``scanface.FACE_DOUBT_CONTRAST``. Its face by level was kept (the sweep's face only
+    noted for the uncertainty) and its holes, found in it by their floors' grain, read +0.362 / +0.327 mm
+    at 1.9 stated sigma (area -0.74 %). The sweep's face (the shadow as the face swept along the lamp) is
+    now taken where the level step is in doubt: area within 0.3 %, holes within 0.1 mm and 3 sigma.
+    Truth: the render's outlines (shapely, ``_reallight_truth.truth_render``)."""
+    m, part, tp = _scan_part("dev-scan-cam2-lamp33", "l-bracket")
+    assert abs(part.area_mm2 - tp["area"]) <= 0.003 * tp["area"]  # was -0.74 %
+    assert _covered(part, tp)
+    assert len(part.holes) == len(tp["holes"])
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 0.5
+        assert abs(hole.diameter_mm - diameter) <= min(0.1, 3 * hole.diameter_u_mm)  # were +0.36 / +0.33 mm
+
+
+def test_low_lamp_scan_face_in_doubt_read_in_grey_levels_only(monkeypatch):
+    """The same brass bracket read without its tint (``tinted_face`` left out), as a grey face (brushed steel)
+    is read: its face by level took in part of the shadow beside it, +15.3 % in area, centroid 0.95 mm off,
+    holes +0.362 / +0.327 mm at 1.9 stated sigma. The sweep's face is taken in doubt: within 0.3 %, holes
+    within 0.1 mm, the level's reading in the term 'scan_shadow' and the part named in the warning."""
+    import scanmass.pipeline.scan_checks as scan_checks
+
+    monkeypatch.setattr(scan_checks, "tinted_face", lambda rgb, origin, face, min_hole_px, found=None: face)
+    m, part, tp = _scan_part("dev-scan-cam2-lamp33", "l-bracket")
+    assert abs(part.area_mm2 - tp["area"]) <= 0.003 * tp["area"]  # was +15.3 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.05  # was 0.95 mm
+    assert _covered(part, tp)
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert abs(hole.diameter_mm - diameter) <= min(0.1, 3 * hole.diameter_u_mm)  # were +0.36 / +0.33 mm
+    said = next(w for w in m.warnings if w.startswith("scan of a thick part: part ") and "nearly as dark" in w)
+    assert f"part {part.label} (" in said
+    assert part.uncertainty_terms["scan_shadow"]["area_mm2"] > 0.1 * tp["area"]  # the level's reading, whole
+
+
+def test_low_lamp_scan_face_in_doubt_without_a_sweep_states_its_holes_doubt(monkeypatch):
+    """The same bracket read in grey levels with no sweep found (``_face_by_sweep`` left out): its face by level
+    is kept (+15.3 %, covered by the shadow's band, warned), and its holes, found in that face by their floors'
+    grain, read +0.362 / +0.327 mm. Their stated uncertainty was 0.190 mm (1.9 sigma: near a confident wrong
+    figure); a grain hole in a face in doubt now carries 3 px per edge (``DOUBT_GRAIN_EDGE_U_PX``): the error
+    within 1.5 stated sigma, a margin below the 3 the issue allows."""
+    import scanmass.pipeline.scan_checks as scan_checks
+    import scanmass.segment.scanface as scanface
+
+    monkeypatch.setattr(scan_checks, "tinted_face", lambda rgb, origin, face, min_hole_px, found=None: face)
+    monkeypatch.setattr(scanface, "_face_by_sweep", lambda *args, **kwargs: None)
+    m, part, tp = _scan_part("dev-scan-cam2-lamp33", "l-bracket")
+    assert _covered(part, tp)
+    assert any(w.startswith(f"scan of a thick part: part {part.label} (") and "nearly as dark" in w for w in m.warnings)
+    assert len(part.holes) == len(tp["holes"])
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert abs(hole.diameter_mm - diameter) <= 1.5 * hole.diameter_u_mm  # were 1.9 sigma
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black4-t25 (filmic, 25 degrees of tilt): the black cam 7 mm thick and disc 1.8 mm read "
+    "grey under a sheen of the lamps and no cut is found, by grain or by colour: +12.4 % / +3.2 % in area, "
+    "centroids 1.07 / 0.46 mm, the cam's bore missed (warned 'cast shadow', 0.7 / 0.3 sigma)",
+)
+def test_mixed_light_sheen_black_parts_within_3_percent():
+    for shape in ("cam", "disc"):
+        m, part, tp = _part("dev-mixed-black4-t25", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
+
+
+def test_mixed_light_sheen_black_parts_warned_and_covered():
+    """The same parts, not cut: the error is warned and inside the stated uncertainty (term 'cast_shadow')."""
+    for shape in ("cam", "disc"):
+        m, part, tp = _part("dev-mixed-black4-t25", shape)
+        assert "cast_shadow" in part.uncertainty_terms, shape
+        assert any(w.startswith("cast shadow:") for w in m.warnings), shape
+        assert _covered(part, tp), shape
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black3-t17: the black gasket 1.6 mm thick: the dark face's sweep, without a step of level "
+    "between the face and what it takes, is chosen by the ringing along both its outlines (rough, at the face's "
+    "level and colour): a crescent of face cut at its outer edge and one at its bore's (-16.1 % in area, centroid "
+    "2.52 mm, 0.9 sigma). Counting those pixels as face cut it to +0.9 % but moved dev-window-black-t20's gasket "
+    "and disc, whose thin shadows at the face's level take the face's tint in the smoothed colour, by 2-4 %",
+)
+def test_mixed_light_thin_black_gasket_within_3_percent():
+    m, part, tp = _part("dev-mixed-black3-t17", "gasket")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-scan-mixed3-lamp32's black cam 5 mm thick (lamp 32 degrees, the lid on it): its 8 mm bore, its "
+    "floor wholly in its wall's shadow (5 / tan 32 = 8 mm), reads -0.176 mm at 2.05 stated sigma (0.086 mm); "
+    "the cam's area +0.37 %, the steel bracket beside it +0.29 % with both holes within 0.01 mm",
+)
+def test_low_lamp_scan_black_cam_bore_in_its_walls_shadow():
+    m, part, tp = _scan_part("dev-scan-mixed3-lamp32", "cam")
+    ((centre, diameter),) = tp["holes"]
+    (hole,) = part.holes
+    assert abs(hole.diameter_mm - diameter) <= min(0.1, 3 * hole.diameter_u_mm)
+    assert abs(hole.diameter_mm - diameter) <= 1.5 * hole.diameter_u_mm
+
+
+def test_steel_plate_lit_half_at_the_papers_level_found_by_its_grain():
+    """mixed-steel-t10: the brushed plate's lit half has the paper's colour and level; the threshold
+    found only its darker half (-34.6 % in area, centroid 10.75 mm off). Its grain (log luma less
+    its 5 px median) tells it from the paper: joined, warned and covered (term 'grain_face').
+    Truth: the render's outline (shapely)."""
+    m, part, tp = _part("mixed-steel-t10", "plate")
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 3.0
+    assert abs(part.area_mm2 - tp["area"]) < 0.05 * tp["area"]
+    assert part.uncertainty_terms["grain_face"]["area_mm2"] > 0
+    assert any(w.startswith(f"part {part.label}: part of its face mirrors") for w in m.warnings)
+    assert _covered(part, tp)
+
+
+def test_steel_gasket_open_at_its_lit_stretch_closed_by_its_grain():
+    """dev-mixed-steel3-t22: the brushed gasket's lit stretch is as bright as the paper; the threshold
+    found its face as a C open by a slit there, so its bore lay outside its outline and the photo was
+    refused ('found only in pieces'). The stretch's grain closes the ring: both parts measured, the
+    gasket no 'shadow only', its error warned and within 3 stated sigma (truth: the render's
+    outlines, shapely)."""
+    m, part, tp = _part("dev-mixed-steel3-t22", "gasket")
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 3.0
+    assert len(part.holes) == 1 and math.dist(part.holes[0].circle_centre_mm, tp["holes"][0][0]) < 2.0
+    assert "grain_face" in part.uncertainty_terms
+    assert not any(w.startswith("shadow only:") for w in m.warnings)
+    assert _covered(part, tp)

@@ -518,8 +518,8 @@ def test_a_deep_hole_as_dark_as_the_face_is_found_by_its_grain():
 def test_shadow_nearly_as_dark_as_the_part_is_warned_and_covered(part):
     """A shadow 0.045 above the part's level (read 0.115-0.12 above beside its soft front: 14-15 % of the
     lid-to-part contrast): told from the face by level, but a step that small is no sure edge
-    (FACE_DOUBT_CONTRAST): the part is named, the term 'scan_shadow' holds the sweep's reading, and the
-    figures stay within 3 sigma of the truth (the two readings agree here: areas +2 to +5 mm2)."""
+    (FACE_DOUBT_CONTRAST): the part is named, the sweep's face is measured and the term 'scan_shadow' holds
+    the level's reading, and the figures stay within 3 sigma of the truth (the two readings agree here)."""
     m = scanmass.measure(_shadow_scan(part, 6.0, shadow=0.085), dpi=300)
     (found,) = m.parts
     poly = Polygon(part.outer_mm)  # shapely: the truth

@@ -17,16 +17,19 @@ import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
-from scanmass.geometry import ring_perimeter, vertex_normals
+from scanmass.geometry import point_in_ring, ring_perimeter, vertex_normals
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part, shoelace_area
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
 from scanmass.options import MeasureOptions, check_dpi, check_encoding, check_max_pixels, resolve_options
 from scanmass.pipeline.part_terms import (
+    GRAIN_EDGE_U_PX,
     fragment_warnings,
+    grain_face_warnings,
     lost_face_warnings,
     measure_part,
     with_fragment_term,
+    with_grain_face_term,
     with_lost_face_term,
 )
 from scanmass.pipeline.photo_checks import (
@@ -61,7 +64,7 @@ from scanmass.scale.mat_scale import mat_scale
 from scanmass.scale.planemap import PlaneMap
 from scanmass.scale.sheet import sheet_scale
 from scanmass.section import escaping_holes
-from scanmass.segment.brightface import LostFace, recover_lost_faces
+from scanmass.segment.brightface import GrainFace, LostFace, recover_grain_faces, recover_lost_faces
 from scanmass.segment.closedfeat import measure_closed
 from scanmass.segment.fragments import Fragment, find_fragments
 from scanmass.segment.lidgap import lid_gap
@@ -409,6 +412,16 @@ def measure_image(
     faces: dict[int, FaceResult] = {}
     if face_check and seg.polarity.startswith("dark"):
         seg.parts, faces = _scan_faces(image, seg.parts, options.min_hole_area_mm2 or options.min_area_mm2, px_area_mm2)
+    grain_faces: list[GrainFace] = []
+    if roi_px is not None and seg.polarity.startswith("dark"):  # photos: a face's lit part as bright as the paper
+        grain_image, grain_faces = recover_grain_faces(image, seg.parts, roi_px)
+        if grain_faces:
+            try:
+                again_seg = run_segment(grain_image)
+            except SegmentationError:
+                grain_faces = []
+            else:
+                image, seg = grain_image, again_seg
     lost_faces: list[LostFace] = []
     if roi_px is not None and seg.polarity.startswith("dark"):  # photos: a mirroring face's lit sectors
         seg.parts, lost_faces = recover_lost_faces(
@@ -482,6 +495,9 @@ def measure_image(
             mapped, plane_map, quantisation=quant, wall_u_px=wall_u, residual_px=resid, closed_mm=closed_mm,
             extra_mm=extra_mm or None, extra_perimeter_mm=extra_perimeter_mm, extra_perimeter_u_mm=extra_perimeter_u_mm,
         )  # fmt: skip
+        grain = [f for f in grain_faces if point_in_ring(np.asarray(f.centre_px), walls.rings.outer_px)]
+        if grain:
+            part = with_grain_face_term(part, sum(f.edge_px for f in grain) * GRAIN_EDGE_U_PX * px_area_mm2)
         lost_px = sum(f.area_px for f in lost_faces if f.label == walls.rings.label)
         if lost_px > 0:
             part = with_lost_face_term(part, lost_px * px_area_mm2)
@@ -535,6 +551,7 @@ def measure_image(
             )
     touching = _face_warnings(faces, plane_map.mm_per_px)
     touching += lost_face_warnings(parts)
+    touching += grain_face_warnings(parts)
     touching += fragment_warnings(fragments, parts, plane_map.mm_per_px)
     touching += _touching_warnings(seg.parts, splits, necks, plane_map.mm_per_px)
     touching += _split_warnings(split_notes, plane_map.mm_per_px)

@@ -448,7 +448,10 @@ LIT_FACE_SHARE = 0.1
 
 
 def has_lit_face(part: Part) -> bool:
-    """Whether a lit region of the part's face, at least :data:`LIT_FACE_SHARE` of its area, was joined to it."""
+    """Whether a lit region of the part's face, at least :data:`LIT_FACE_SHARE` of its area, was joined to it,
+    or a stretch of its face was found by its dense grain (term ``grain_face``: a shadow has none)."""
+    if "grain_face" in part.uncertainty_terms:
+        return True
     term = part.uncertainty_terms.get("lost_face")
     return term is not None and term["area_mm2"] / LOST_FACE_WEIGHT >= LIT_FACE_SHARE * part.area_mm2
 
@@ -466,5 +469,34 @@ def lost_face_warnings(parts: list[Part]) -> list[str]:
             "the light almost as bright as the paper and was not found at first; it was joined up to the sharp edge "
             "where it meets the paper, and the uncertainty includes half of it (term 'lost_face'); for a trustworthy "
             "figure photograph metal in diffuse light"
+        )
+    return out
+
+
+#: Width (px) of the band along a grainy face's edge (:func:`~scanmass.segment.brightface.grain_face_regions`)
+#: taken as the term ``grain_face``'s 1 sigma: the edge is placed by the grain's energy, smoothed
+#: over about 2 px, not by a level step, and the face's own level near its edge (the threshold
+#: step's residual) moves it by a pixel or so.
+GRAIN_EDGE_U_PX = 2.0
+
+
+def with_grain_face_term(part: Part, band_mm2: float) -> Part:
+    """The part with the term ``grain_face``: the band along its grainy face's edge as an area."""
+    return _with_extra_term(part, "grain_face", area_share_term(part, band_mm2), [])
+
+
+def grain_face_warnings(parts: list[Part]) -> list[str]:
+    """A warning for each part whose lit face at the paper's level was found by its grain alone."""
+    out = []
+    for part in parts:
+        term = part.uncertainty_terms.get("grain_face")
+        if not term:
+            continue
+        out.append(
+            f"part {part.label}: part of its face mirrors the light at the paper's level and colour and was not "
+            "found by its level; it was found by its grain (a brushed face varies from pixel to pixel, the paper "
+            f"does not) and joined; its edge there is placed by the grain alone, and the uncertainty includes "
+            f"{term['area_mm2']:.3g} mm² for it (term 'grain_face'); for a trustworthy figure photograph metal in "
+            "diffuse light, or on a dark background"
         )
     return out

@@ -51,6 +51,12 @@ FACE_EDGE_U_PX = 1.0
 #: floors of even grain rendered with exact coverage, 20-50 px across: within 0.5 px).
 GRAIN_EDGE_U_PX = 1.0
 
+#: ... and in a face in doubt (:data:`~scanmass.segment.scanface.FACE_DOUBT_CONTRAST`, kept by level: no
+#: sweep): a metal's own grain beside the rim lifts the face's side of the halfway, so the ring grows (the
+#: 5.5 mm holes of dev-scan-cam2-lamp33's brass bracket, read so with the sweep left out: +0.33 / +0.36 mm,
+#: 2 px per edge); the grain's blur (the high-pass's 1 px and the average's 2 px in quadrature, 2.2 px) and more.
+DOUBT_GRAIN_EDGE_U_PX = 3.0
+
 
 def _scan_faces(
     image: LoadedImage, parts: list[PartRings], min_hole_mm2: float, px_area_mm2: float
@@ -147,23 +153,27 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
         moved[face.shadow_edge] += FACE_EDGE_U_PX * normal[face.shadow_edge]
         term = change_term(plane_map.to_mm(outer), holes, plane_map.to_mm(moved), holes)
         grain = face.grain_holes if len(part.holes) == len(holes) else 0
+        in_doubt = face.doubt_outer_px is not None or face.doubt_px2 > 0
+        grain_u_px = DOUBT_GRAIN_EDGE_U_PX if in_doubt else GRAIN_EDGE_U_PX
         if grain:  # holes found by their floor's grain: the change when they grow by their edge's uncertainty
             first = len(holes) - grain
             grown = holes[:first] + [
-                plane_map.to_mm(offset_ring(np.asarray(h, float), GRAIN_EDGE_U_PX)) for h in face.holes_px[first:]
+                plane_map.to_mm(offset_ring(np.asarray(h, float), grain_u_px)) for h in face.holes_px[first:]
             ]
             more = change_term(plane_map.to_mm(outer), holes, plane_map.to_mm(outer), grown)
             term = {k: combine(v, more[k]) for k, v in term.items()}
-            grain_d_u = 2.0 * GRAIN_EDGE_U_PX * plane_map.mm_per_px
+            grain_d_u = 2.0 * grain_u_px * plane_map.mm_per_px
             part = replace(
                 part,
                 holes=part.holes[:first]
                 + [replace(h, diameter_u_mm=combine(h.diameter_u_mm, grain_d_u)) for h in part.holes[first:]],
             )
-        if face.doubt_outer_px is not None or face.doubt_px2 > 0:
+        if in_doubt:
             term = {
                 k: combine(v, _doubt_term(part, face, outer, holes, plane_map).get(k, 0.0)) for k, v in term.items()
             }
+            if face.doubt_holes_px is not None and len(part.holes) == len(face.holes_px):
+                part = _with_hole_doubt(part, face, plane_map.mm_per_px)
         # a hole's wall throws the lamp's shadow into the hole as the part's wall does beside it:
         # its diameter gets the same edge uncertainty
         return _with_shadow_term(part, term, FACE_EDGE_U_PX * plane_map.mm_per_px, name="scan_shadow")
@@ -174,11 +184,11 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
 def _doubt_term(
     part: Part, face: FaceResult, outer_px: np.ndarray, holes_mm: list[np.ndarray], plane_map: PlaneMap
 ) -> dict[str, float]:
-    """A face told from its shadow by a small level step: every figure's change to the sweep's face, or the band.
+    """A face told from its shadow by a small level step: every figure's change to the other reading, or the band.
 
-    With the sweep's face (``doubt_outer_px``) the change of each figure from the face found by
-    level to it (whole, at 1 sigma); without one, the shadow's estimated band (``doubt_px2``) as
-    material the outline may hold (:func:`area_share_term`).
+    Where the sweep's face was taken, the change of each figure from it to the face found by
+    level (``doubt_outer_px``; whole, at 1 sigma); without it, the shadow's estimated band
+    (``doubt_px2``) as material the outline may hold (:func:`area_share_term`).
     """
     if face.doubt_outer_px is not None:
         other = plane_map.to_mm(np.asarray(face.doubt_outer_px, float))
@@ -186,8 +196,32 @@ def _doubt_term(
     return area_share_term(part, face.doubt_px2 * plane_map.mm_per_px**2)
 
 
+def _with_hole_doubt(part: Part, face: FaceResult, mm_per_px: float) -> Part:
+    """Each hole's diameter uncertainty joined by its change to the other reading's nearest hole (whole, 1 sigma).
+
+    A hole of the face that the other reading lacks keeps its own uncertainty: the other reading
+    (the face by level) reads holes against the part's level, which the shadow it took in pulls down.
+    """
+    other = [np.asarray(h, float) for h in face.doubt_holes_px or []]
+    if not other:
+        return part
+    centres = np.array([h.mean(axis=0) for h in other])
+    sizes = np.array([2.0 * math.sqrt(abs(float(cv2.contourArea(h.astype(np.float32)))) / math.pi) for h in other])
+    holes = []
+    for hole, ring in zip(part.holes, face.holes_px):
+        ring = np.asarray(ring, float)
+        d_px = 2.0 * math.sqrt(abs(float(cv2.contourArea(ring.astype(np.float32)))) / math.pi)
+        dist = np.hypot(*(centres - ring.mean(axis=0)).T)
+        k = int(np.argmin(dist))
+        if dist[k] > 0.5 * d_px:
+            holes.append(hole)
+            continue
+        holes.append(replace(hole, diameter_u_mm=combine(hole.diameter_u_mm, abs(sizes[k] - d_px) * mm_per_px)))
+    return replace(part, holes=holes)
+
+
 def _doubt_mm2(face: FaceResult, mm_per_px: float) -> float:
-    """The area (mm2) a doubted face may be off by: the sweep's face's difference, or the shadow's band."""
+    """The area (mm2) a doubted face may be off by: the face by level's difference, or the shadow's band."""
     if face.doubt_outer_px is not None and face.outer_px is not None:
         a = abs(cv2.contourArea(np.asarray(face.outer_px, np.float32)))
         b = abs(cv2.contourArea(np.asarray(face.doubt_outer_px, np.float32)))
@@ -241,16 +275,23 @@ def _face_warnings(faces: dict[int, FaceResult], mm_per_px: float) -> list[str]:
         out.append(
             f"scan of a thick part: {listed} is nearly as dark as the lamp's shadow beside it (their levels differ "
             f"by under {100 * FACE_DOUBT_CONTRAST:.0f} % of the contrast), so the face's edge against the shadow is "
-            "not sure; the uncertainty includes the other reading of it (the face the shadow's sweep leaves, or the "
-            "shadow's whole band; term 'scan_shadow'); lay white paper on the glass around the part, or measure it "
-            "on a backlight"
+            "not sure; the face the shadow's sweep along the lamp leaves is measured where it was found, and the "
+            "uncertainty includes the other reading of it (the face by level, or the shadow's whole band, and the "
+            "holes so read; term 'scan_shadow'); lay white paper on the glass around the part, or measure it on a "
+            "backlight"
         )
     grain = {k: f.grain_holes for k, f in left_out.items() if f.grain_holes}
     if grain:
         listed = ", ".join(f"{n} in part {k}" for k, n in grain.items())
+        doubted = [k for k in grain if k in doubt]
+        off = f"{GRAIN_EDGE_U_PX:g} px off" + (
+            f" ({DOUBT_GRAIN_EDGE_U_PX:g} px in part(s) {', '.join(str(k) for k in doubted)}, whose face is in doubt)"
+            if doubted
+            else ""
+        )
         out.append(
             f"scan of thick parts: hole(s) as dark as the face ({listed}) were found by the grain of their floor (the "
-            f"lid seen through a deep hole), not by its level; their edges may lie {GRAIN_EDGE_U_PX:g} px off (term "
+            f"lid seen through a deep hole), not by its level; their edges may lie {off} (term "
             "'scan_shadow'); check them, or measure the part on a backlight, where every through-hole shows light"
         )
     for k, f in kept.items():

@@ -27,12 +27,18 @@ part's edge, even where its floor is all in shade).
 
 A face brighter than the paper (pale brass mirroring a softbox) is not found by this rule;
 it needs colour and stays a refusal or a warning.
+
+A brushed steel face may mirror the light at the paper's own level and colour, with no step
+to the paper at all (mixed-steel-t10: the plate's lit half at 0.77 of the paper). Its grain
+stays: :func:`grain_face_regions` finds such a face beside a grainy found face by the energy of
+log luma less its 5 px median, and :func:`recover_grain_faces` paints it in the face's level
+so that the photo is segmented again with it.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import cv2
 import numpy as np
@@ -295,6 +301,309 @@ def recover_lost_faces(
         out.append(again)
         joined += [LostFace(rings.label, n.area_px, n.step_share, n.darker_share) for n in notes]
     return out, joined
+
+
+#: A brushed face's grain: the energy of log luma less its 5 px median (a level step keeps its
+#: median, so a clean edge adds little), smoothed on this scale (px).
+GRAIN_SIGMA_PX = 2.0
+#: A pixel is grainy where that energy's root is above this (log units) and above
+#: :data:`GRAIN_PAPER_TIMES` times the paper's beside the part (mixed-steel-t10: the plate's lit
+#: and dark halves 0.18-0.46, its paper 0.00-0.025).
+GRAIN_MIN = 0.08
+GRAIN_PAPER_TIMES = 5.0
+#: A face's grain is dense: the median of the residual's size over the region is at least this
+#: (log units) and :data:`GRAIN_PAPER_TIMES` times the paper's (mixed-steel-t10's lit half: 0.125,
+#: its paper 0.00; the ragged rim of a painted shadow cut beside a black cam: 0.00-0.04).
+GRAIN_DENSE = 0.06
+#: The grain beside the part is as strong as the found face's own: at least this share of it.
+GRAIN_FOUND_SHARE = 0.5
+#: A grainy region is no dark shadow (whose noise is grainy in log units): its median level is at
+#: least this share of the paper's.
+GRAIN_LEVEL_SHARE = 0.35
+#: A grainy region joined is at least this share of the found area, and its core lies further
+#: than :data:`GRAIN_CORE_PX` from the found region (wider than an edge's own grain).
+GRAIN_MIN_SHARE = 0.05
+GRAIN_CORE_PX = 6.0
+#: ... and it holds a disc of this radius (px): a lit face, not a band along the outline (a lit
+#: wall, the grain of a dark edge's own step: 2-5 px wide on the committed renders; the lit half
+#: of mixed-steel-t10's plate is 40 px wide).
+GRAIN_WIDE_PX = 8.0
+#: The face's grain energy is read on this scale (px) to place the edge where half of it is left.
+GRAIN_FACE_SIGMA_PX = 8.0
+#: The edge lies where this share of the face's grain energy is left.
+GRAIN_EDGE_SHARE = 0.4
+
+
+@dataclass
+class GrainFace:
+    """A grainy region of a face at the paper's level joined to a found part, in px.
+
+    ``edge_px``: the length of its outline against the paper (where its edge was placed by the
+    grain alone); ``centre_px``: a point of it (x, y) in the image.
+    """
+
+    area_px: float
+    edge_px: float
+    centre_px: tuple[float, float]
+    grain: float
+    level_share: float
+
+
+def grain_residual(lin: np.ndarray) -> np.ndarray:
+    """The grain of a crop of linear levels: log luma less its 5 px median."""
+    log = np.log(np.maximum(lin, 1e-3)).astype(np.float32)
+    return np.asarray(log - cv2.medianBlur(log, 5), np.float32)
+
+
+def grain_energy(lin: np.ndarray) -> np.ndarray:
+    """The grain energy of a crop of linear levels: :func:`grain_residual` squared, smoothed."""
+    high = grain_residual(lin)
+    return np.asarray(cv2.GaussianBlur(high * high, (0, 0), GRAIN_SIGMA_PX), np.float32)
+
+
+def grain_face_regions(
+    lin: np.ndarray, found: np.ndarray, others: np.ndarray, inside: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, list[GrainFace]]:
+    """A found dark face's lit part at the paper's level, told from the paper by its grain.
+
+    A brushed steel face mirrors the light: where it mirrors the lit paper or a lamp it has the
+    paper's colour and level, and the threshold leaves it to the paper. Its grain stays: the
+    brushing and the face's speckle vary from pixel to pixel far more than the paper's print
+    (log luma less its 5 px median, :func:`grain_energy`). Beside the found region, a grainy
+    region (:data:`GRAIN_MIN`, :data:`GRAIN_PAPER_TIMES`) as grainy as the found face itself
+    (:data:`GRAIN_FOUND_SHARE`), no dark shadow (:data:`GRAIN_LEVEL_SHARE`), wider than an
+    edge (:data:`GRAIN_CORE_PX`), at least :data:`GRAIN_MIN_SHARE` of the found area and within
+    the crop, is face. Its edge lies where half the face's grain energy (read beside it,
+    :data:`GRAIN_FACE_SIGMA_PX`) is left.
+
+    Returns the face share per pixel (0 paper, 1 face; 0 away from the joined regions), the
+    joined regions' mask and one :class:`GrainFace` each (``centre_px`` in crop pixels).
+
+    Examples
+    --------
+    A dark face (0.1) found; beside it, its lit half at the paper's level (1.0) but speckled:
+
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(1)
+    >>> lin = np.full((100, 140), 1.0, np.float32)
+    >>> lin[30:70, 30:70] = 0.1 * rng.uniform(0.5, 1.5, (40, 40))
+    >>> lin[30:70, 70:110] = rng.uniform(0.4, 1.0, (40, 40))
+    >>> found = np.zeros(lin.shape, bool); found[30:70, 30:70] = True
+    >>> none = np.zeros_like(found)
+    >>> share, joined, notes = grain_face_regions(lin, found, none, ~none)
+    >>> len(notes), 1600 <= int(joined.sum()) <= 1900, int(joined[:, 112:].sum())  # 40 x 40 px, edge +-2-4 px
+    (1, True, 0)
+    """
+    empty: tuple[np.ndarray, np.ndarray, list[GrainFace]] = (
+        np.zeros(found.shape, np.float32),
+        np.zeros(found.shape, bool),
+        [],
+    )
+    found_u8 = found.astype(np.uint8)
+    if np.count_nonzero(found) < 50:
+        return empty
+    high = np.abs(grain_residual(lin))
+    energy = np.asarray(cv2.GaussianBlur(high * high, (0, 0), GRAIN_SIGMA_PX), np.float32)
+    root = np.sqrt(energy)
+    dist_out = cv2.distanceTransform(1 - found_u8, cv2.DIST_L2, 3)
+    ring = (dist_out > 8) & inside & ~others
+    if np.count_nonzero(ring) < 50:
+        return empty
+    top = float(np.percentile(lin[ring], 90))
+    paper_px = ring & (lin >= 0.85 * top)
+    if np.count_nonzero(paper_px) < 50:
+        return empty
+    paper_grain = float(np.percentile(root[paper_px], 25))
+    paper_level = float(np.median(lin[paper_px]))
+    paper_dense = float(np.median(high[paper_px]))
+    dist_in = cv2.distanceTransform(found_u8, cv2.DIST_L2, 3)
+    deep = dist_in > 4
+    if np.count_nonzero(deep) < 20:
+        return empty
+    found_grain = float(np.median(root[deep]))
+    if found_grain < GRAIN_MIN:
+        return empty  # a matte face (black plastic: 0.03-0.07 on the committed renders) has no grain to follow
+    least = max(GRAIN_MIN, GRAIN_PAPER_TIMES * paper_grain, GRAIN_FOUND_SHARE * found_grain)
+    grainy = (root > least) & ~found & ~others & inside
+    found_area = float(np.count_nonzero(found))
+    touching = cv2.dilate(found_u8, np.ones((3, 3), np.uint8)).astype(bool)
+    floor = paper_grain**2
+    dense = max(GRAIN_DENSE, GRAIN_PAPER_TIMES * paper_dense)
+    joined = np.zeros(found.shape, bool)
+    notes: list[GrainFace] = []
+
+    def note(comp: np.ndarray) -> None:
+        rim = comp & ~cv2.erode(comp.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+        rows, cols = np.nonzero(comp)
+        level_share = float(np.median(lin[comp])) / max(paper_level, 1e-6)
+        notes.append(
+            GrainFace(
+                float(np.count_nonzero(comp)), float(np.count_nonzero(rim & ~touching)),
+                (float(cols.mean()), float(rows.mean())), float(np.median(root[comp])), level_share,
+            )
+        )  # fmt: skip
+
+    share = np.zeros(found.shape, np.float32)
+    core = grainy & (dist_out > GRAIN_CORE_PX)
+    count, labels = cv2.connectedComponents(core.astype(np.uint8), connectivity=8)
+    near = cv2.dilate(found_u8, np.ones((2 * int(GRAIN_CORE_PX) + 3,) * 2, np.uint8)).astype(bool)
+    candidates = np.zeros(found.shape, bool)
+    for k in range(1, count):
+        comp = labels == k
+        if (comp & near).any():
+            candidates |= comp
+    # the face's own grain energy beside each place, for the edge at half of it
+    closed = cv2.morphologyEx(candidates.astype(np.uint8), cv2.MORPH_CLOSE, np.ones((5, 5), np.uint8))
+    face_core = candidates & (cv2.distanceTransform(closed, cv2.DIST_L2, 3) > 3)
+    if np.count_nonzero(face_core) >= 20:
+        face_energy = _masked_blur(energy, face_core, GRAIN_FACE_SIGMA_PX, float(np.median(energy[face_core])))
+        share = np.clip((energy - floor) / np.maximum(face_energy - floor, 1e-6), 0.0, 1.0)
+        # a found dark face's own edge against the paper is grainy too (its step's residual): only
+        # the pixels near the grainy core, or away from that edge, are joined
+        reach = cv2.dilate(candidates.astype(np.uint8), np.ones((13, 13), np.uint8)).astype(bool)
+        half = (share >= GRAIN_EDGE_SHARE) & ~found & ~others & inside & (reach | (dist_out > 4))
+        count, labels = cv2.connectedComponents(half.astype(np.uint8), connectivity=8)
+        for k in range(1, count):
+            comp = labels == k
+            if not (comp & candidates).any() or not (comp & touching).any():
+                continue
+            if np.count_nonzero(comp) < GRAIN_MIN_SHARE * found_area:
+                continue
+            if comp[0].any() or comp[-1].any() or comp[:, 0].any() or comp[:, -1].any():
+                continue  # reaches past the part's surroundings: not a piece of its face
+            comp = _small_gaps_filled(comp)
+            if float(cv2.distanceTransform(comp.astype(np.uint8), cv2.DIST_L2, 3).max()) < GRAIN_WIDE_PX:
+                continue  # a band along the outline (a wall, an edge's own grain), not a lit face
+            if float(np.median(lin[comp])) < GRAIN_LEVEL_SHARE * paper_level:
+                continue  # dark and noisy: a shadow's noise, not a lit face
+            if float(np.median(high[comp])) < dense:
+                continue  # its energy is a few steps (a ragged edge, a painted cut's rim), not a dense grain
+            joined |= comp
+            note(comp)
+    band = cv2.dilate(joined.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool) & ~found & ~others
+    out = np.where(band, share, 0.0).astype(np.float32)
+    # a ring found as a C: the lit stretch that closes it, grainy and no wider than a closing spans
+    bridge = _grain_bridge(found | joined, (root > least) & ~joined & ~others & inside)
+    if bridge is not None and np.count_nonzero(bridge & ~found) <= GRAIN_BRIDGE_SHARE * found_area:
+        level_ok = float(np.median(lin[bridge])) >= GRAIN_LEVEL_SHARE * paper_level
+        if level_ok and float(np.median(high[bridge])) >= dense:
+            face = float(np.median(energy[deep]))
+            around = cv2.dilate(bridge.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool)
+            around &= ~found & ~joined & ~others
+            out[around] = np.clip((energy[around] - floor) / max(face - floor, 1e-6), 0.0, 1.0)
+            out[bridge] = 1.0
+            joined |= bridge
+            note(bridge)
+    if not notes:
+        return empty
+    return out, joined, notes
+
+
+#: A found ring open in a C is closed by its grainy lit stretch where a closing of this radius (px)
+#: spans the gap; the stretch is at most :data:`GRAIN_BRIDGE_SHARE` of the found area.
+GRAIN_BRIDGE_PX = 8
+GRAIN_BRIDGE_SHARE = 0.3
+#: Least area (px) of an enclosed opening (a bore) that the bridge must close.
+GRAIN_BRIDGE_HOLE_PX = 50
+
+
+def _enclosed(mask: np.ndarray) -> int:
+    """The count of openings of at least :data:`GRAIN_BRIDGE_HOLE_PX` px that ``mask`` encloses."""
+    count, labels, stats, _ = cv2.connectedComponentsWithStats((~mask).astype(np.uint8), connectivity=4)
+    edge = set(np.unique(np.concatenate([labels[0], labels[-1], labels[:, 0], labels[:, -1]])).tolist())
+    return sum(1 for k in range(1, count) if k not in edge and stats[k, cv2.CC_STAT_AREA] >= GRAIN_BRIDGE_HOLE_PX)
+
+
+def _grain_bridge(found: np.ndarray, grainy: np.ndarray) -> np.ndarray | None:
+    """The grainy pixels a closing of ``found`` adds, when they enclose an opening ``found`` left open.
+
+    ``found`` is eroded by a pixel first: a ring open by a slit of a pixel or two is filled as closed.
+    The pixels returned may include found ones (the slit's rim).
+    """
+    base = cv2.erode(found.astype(np.uint8), np.ones((3, 3), np.uint8))
+    size = 2 * GRAIN_BRIDGE_PX + 1
+    disc = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (size, size))
+    closed = cv2.morphologyEx(base, cv2.MORPH_CLOSE, disc).astype(bool)
+    add = closed & ~base.astype(bool) & grainy
+    if not (add & ~found).any() or _enclosed(base.astype(bool) | add) <= _enclosed(base.astype(bool)):
+        return None
+    return add
+
+
+#: A gap within a grainy region no wider than this radius (px) is a sparse patch of its grain, not a
+#: hole (a hole shows the paper over a wider disc: a 6.5 mm hole on the renders is 8 px in radius).
+GRAIN_GAP_RADIUS_PX = 4.0
+
+
+def _small_gaps_filled(comp: np.ndarray) -> np.ndarray:
+    """``comp`` with its enclosed gaps filled where no disc wider than :data:`GRAIN_GAP_RADIUS_PX` fits."""
+    outside = (~comp).astype(np.uint8)
+    count, labels = cv2.connectedComponents(outside, connectivity=4)
+    if count <= 2:
+        return comp
+    dist = cv2.distanceTransform(outside, cv2.DIST_L2, 3)
+    edge = set(np.unique(np.concatenate([labels[0], labels[-1], labels[:, 0], labels[:, -1]])).tolist())
+    out = comp.copy()
+    for k in range(1, count):
+        if k in edge:
+            continue
+        gap = labels == k
+        if float(dist[gap].max()) <= GRAIN_GAP_RADIUS_PX:
+            out |= gap
+    return out
+
+
+def recover_grain_faces(
+    image: LoadedImage, parts: list[PartRings], roi_px: np.ndarray
+) -> tuple[LoadedImage, list[GrainFace]]:
+    """The photo with each dark part's lit, grainy face at the paper's level painted in its found face's level.
+
+    Around each joined region (:func:`grain_face_regions`) the painted level runs from the
+    paper's to the face's with the face share, so the segmentation of the painted image puts
+    the edge where half the grain is left. Returns the image (unchanged when nothing is joined)
+    and the regions joined (``centre_px`` in image pixels).
+    """
+    grey, lut = image.grey, np.asarray(image.to_linear, np.float32)
+    height, width = grey.shape
+    pad = 40
+    painted: np.ndarray | None = None
+    joined: list[GrainFace] = []
+    for rings in parts:
+        if rings.cut:
+            continue
+        box = _crop_box(rings, width, height, pad)
+        x0, y0, x1, y1 = box
+        shape = (y1 - y0, x1 - x0)
+        lin = lut[grey[y0:y1, x0:x1]]
+        found = _filled(rings, box, shape).astype(bool)
+        others = np.zeros(shape, bool)
+        for other in parts:
+            if other is not rings:
+                others |= _filled(other, box, shape).astype(bool)
+        inside = np.zeros(shape, np.uint8)
+        cv2.fillPoly(inside, [np.round(np.asarray(roi_px) - [x0, y0]).astype(np.int32)], 1)
+        share, region, notes = grain_face_regions(lin, found, others, inside.astype(bool))
+        if not notes:
+            continue
+        face = lin[cv2.erode(found.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)]
+        if face.size < 20:
+            continue
+        face_level = float(np.median(face))
+        beyond = ~cv2.dilate((found | region).astype(np.uint8), np.ones((9, 9), np.uint8)).astype(bool)
+        beyond &= ~others & inside.astype(bool)
+        paper_level = float(np.percentile(lin[beyond], 75)) if beyond.any() else float(lin.max())
+        band = share > 0
+        paint = paper_level + (face_level - paper_level) * share
+        if painted is None:
+            painted = grey.copy()
+        codes = np.clip(np.searchsorted(lut, paint[band]), 0, len(lut) - 1).astype(grey.dtype)
+        window = painted[y0:y1, x0:x1]
+        window[band] = codes
+        window[region] = np.asarray(np.clip(np.searchsorted(lut, face_level), 0, len(lut) - 1), grey.dtype)
+        joined += [replace(n, centre_px=(n.centre_px[0] + x0, n.centre_px[1] + y0)) for n in notes]
+    if painted is None:
+        return image, []
+    return replace(image, grey=painted), joined
 
 
 #: A pixel is of a coloured part's face where its yellowness (:func:`face_colour_plane`) is at least

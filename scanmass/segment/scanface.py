@@ -52,10 +52,14 @@ MIN_FACE_SHADOW_CONTRAST = 0.05
 
 #: A face told from its shadow by a level step under this share of the lid-to-part contrast is
 #: in doubt: the shadow darkens towards the part's wall and a metal face's sheen lightens it,
-#: so a few per cent of contrast do not place the edge between them. The face the sweep finds
-#: (or, without one, the shadow's whole band) is kept beside it for the uncertainty. The
-#: renders' faces told by level: black plastic 0.19-0.23 of the contrast (right within 0.5 %),
-#: a steel bracket under a 30-degree lamp 0.088 (+14 % with part of its shadow).
+#: so a few per cent of contrast do not place the edge between them. The face the sweep finds is
+#: taken instead (the face by level kept beside it for the uncertainty); without one, the face by
+#: level with the shadow's whole band as its doubt. The renders' faces told by level: black plastic
+#: 0.19-0.23 of the contrast (right within 0.5 %); the brass bracket of dev-scan-cam2-lamp33 0.075
+#: (by level -0.7 %, its holes +0.33 / +0.36 mm at 1.9 sigma; the sweep's face +0.02 %, holes within
+#: 0.01 mm; read in grey levels only, as steel is, by level +15.3 %). Brushed steel under a 29-34 degree
+#: lamp (0.07-0.11) has its face by level refused by its checks in every dev scan, narrowly in a render
+#: of a 5.5 mm bracket left out of the set (its edge's step 0.98 of the least): that face +12 %, the sweep's +0.1 %.
 FACE_DOUBT_CONTRAST = 0.15
 
 #: Least level step (share of the lid-to-part contrast) from the part to what lies inside the
@@ -161,9 +165,11 @@ class FaceResult:
     #: how many of ``holes_px`` (the last ones) were found by their floor's grain (:func:`deep_holes`)
     grain_holes: int = 0
     #: a face told from its shadow by a small level step (:data:`FACE_DOUBT_CONTRAST`): the outer ring
-    #: the sweep found instead (image px), or, without one, the shadow's estimated band (px2)
+    #: found by level (image px) where the sweep's face was taken, or, without one, the shadow's band (px2)
     doubt_outer_px: np.ndarray | None = None
     doubt_px2: float = 0.0
+    #: the holes of that other reading (image px; its holes' sizes are in doubt too)
+    doubt_holes_px: list[np.ndarray] | None = None
 
 
 @dataclass
@@ -361,12 +367,18 @@ def scan_face(
         return _face_by_sweep(linear, ctx, min_hole_px, hard=sweep is not None) or _unseparated(ctx, total)
     if gap < FACE_DOUBT_CONTRAST * (lid - part):
         # a face nearly as dark as its shadow: the level step alone is no sure edge (the shadow darkens
-        # towards the wall, the face's sheen lightens): the sweep's face, or the shadow's whole band, is
-        # what the outline may be instead
+        # towards the wall, the face's sheen lightens, and the region "at the part's level" runs on into
+        # the shadow). The lamp's parallel light is surer: where the sweep finds the face (the shadow as
+        # the face swept along the lamp), that face is taken and the level's reading is what it may be
+        # instead; without it, the level's face with the shadow's whole band as its doubt
         other = _face_by_sweep(linear, ctx, min_hole_px, hard=sweep is not None)
         if other is not None and other.outer_px is not None:
-            return replace(by_level, doubt_outer_px=other.outer_px)
-        return replace(by_level, doubt_px2=_unseparated(ctx, total).shadow_px2)
+            return replace(other, doubt_outer_px=by_level.outer_px, doubt_holes_px=list(by_level.holes_px))
+        # the band: the shadow's estimate from its soft sides, or, where larger, the shadow the level left out
+        # (the face may hold as much of it again: the level step does not say where in the band its edge lies);
+        # the holes found against the lid's level are the other reading of the holes
+        band = max(_unseparated(ctx, total).shadow_px2, by_level.shadow_px2)
+        return replace(by_level, doubt_px2=band, doubt_holes_px=list(ctx.holes_px))
     return by_level
 
 
@@ -1360,6 +1372,7 @@ def tinted_face(
         local_levels=True,
         doubt_outer_px=None,
         doubt_px2=0.0,
+        doubt_holes_px=None,
     )
 
 
