@@ -20,7 +20,13 @@ The roughness is the smoothed absolute deviation from a 3x3 median, taken relati
 level: a median filter keeps a step edge, so the step between the face and the shadow adds
 little, while noise and grain stand out (common practice: median filters keep edges and remove
 impulse noise). On a dark face 8-bit coding is rough by itself; one code step at the face's
-level is the floor below which nothing is taken as grain.
+level is the floor below which nothing is taken as grain. JPEG coding also rings beside a bright
+edge, a few pixels into a face at a few hundredths of the paper's level; where the roughness'
+half-way lies no rougher than the side facing the light is as deep in, the shadow's level next to
+the outline places the cut instead (:func:`_ringing_bound`). Where the face's level read beyond
+the shadow's grain is a brighter sector than the one beside the shadow (brushed metal), and the
+sweep so read is longer than the part's shadow can be, the step to the face beside the shadow is
+read instead.
 
 On a dark tinted face (black plastic: :func:`dark_tinted_face`) JPEG ringing near the outline is
 as rough as a shadow's grain; there pixels at the face's level and colour are never shadow, the
@@ -253,14 +259,17 @@ def _shadow_cut(
         )
     if sweep is None:
         return None, dark
-    unit, depth_px, face_like, run_px, rim = sweep
+    unit, depth_px, face_like, run_px, rim, bounded = sweep
     if depth_px > reach_px + 1.0 and not (
         depth_px <= LOW_LIGHT_REACH_FACTOR * reach_px + 1.0 and depth_px <= run_px + 1.0
     ):
         # longer than a shadow of the part can be under a light 30 degrees up or higher, and not
         # measured as a lower light's shadow (shadow-like layers without a break up to the step): not its shadow
         return None, dark
-    cut = _sweep_layer(outer.astype(np.uint8) if direction is not None else mask8, depth_px * unit) & part_mask
+    # a sweep bounded below the coding's ringing (:func:`_ringing_bound`) is the outer ring's too: a hole's
+    # rim rings as the outline does, beside the hole's bright floor
+    swept = outer if direction is not None else (_filled(part_mask) if bounded else part_mask)
+    cut = _sweep_layer(swept.astype(np.uint8), depth_px * unit) & part_mask
     if direction is not None:
         # a tinted face (steel in window light): its pixels are no shadow (the shadow keeps the paper's tint)
         tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
@@ -682,8 +691,8 @@ def _sweep_depth(
     rough: np.ndarray,
     reach_px: float,
     direction: np.ndarray | None = None,
-) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None] | None:
-    """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, a face map, the run and the rim passed over.
+) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None, bool] | None:
+    """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, a face map, the run, the rim passed over and whether :func:`_ringing_bound` bounded it.
 
     The face map is True where a pixel looks like the face: at the face's level and smooth.
     Where no sweep runs from the boundary itself, the run may begin past the outline's blurred
@@ -703,7 +712,15 @@ def _sweep_depth(
     pixel of sweep adds a layer; the layers are rough and at the shadow's level while in the
     shadow, smooth and at the face's level once in the face. The length is where the layers'
     median level crosses half-way between the two (or, without a clear step of level, where
-    their median roughness falls to half the shadow's), interpolated between layers.
+    their median roughness falls to half the shadow's, bounded where that reads the coding's
+    ringing: :func:`_ringing_bound`), interpolated between layers. The face's level is read
+    6-14 px beyond the shadow-like layers; where the length so read is longer than the part's
+    shadow can be (``reach_px``, or a lower light's measured run: :func:`shadow_cut`'s refusal),
+    it is read again to the level of the layers next beyond them (up to 6 px), the face beside
+    the shadow: a brushed face's dark sector there and its lit ones further on
+    (tests/data/reallight/dev-spot-steel3-t20, the steel cam: the shadow at 0.02 of the paper, the
+    dark sector beside it 0.055-0.08, the lit ones 0.14; the half-way to 0.14 lay in the dark
+    sector, 16.3 px against a reach of 10.5 px, and the cut was refused; to the sector beside it 8.9 px).
     """
     mask8 = part_mask.astype(np.uint8)
     if np.count_nonzero(like) < 10:
@@ -760,7 +777,49 @@ def _sweep_depth(
         return None
     lv_s, lv_f = float(np.median(lv[in_shadow])), float(np.median(lv[face]))
     rg_s, rg_f = float(np.median(rg[in_shadow])), float(np.median(rg[face]))
+    # the face beside the shadow: where the sweep read to the face's window is longer than the part's
+    # shadow can be, the step to the layers next beyond the run (a brushed face's darker sector)
+    near_face = (ks > ks[last - 1]) & (ks <= ks[last - 1] + 6)
+    faces = [lv_f]
+    if near_face.any():
+        faces.append(float(np.median(lv[near_face])))
+    for n_face, lv_f in enumerate(faces):
+        found = _read_step(
+            mask8, unit, ks, lv, rg, level, rough, reach_px, first, last, lv_s, lv_f, rg_s, rg_f, skip_rim
+        )
+        if found is None or n_face == len(faces) - 1 or not found[5]:
+            break
+        depth_px = found[1]
+        if depth_px <= reach_px + 1.0 or (
+            depth_px <= LOW_LIGHT_REACH_FACTOR * reach_px + 1.0 and depth_px <= float(ks[last - 1]) + 1.0
+        ):
+            break  # within the reach: kept
+        near = faces[1]
+        if (near - lv_s) * (faces[0] - lv_s) <= 0 or max(near, lv_s) < _LEVEL_STEP_RATIO * max(min(near, lv_s), 1e-6):
+            break  # no step to the face beside the shadow
+    return None if found is None else (*found[:5], found[6])
+
+
+def _read_step(
+    mask8: np.ndarray,
+    unit: np.ndarray,
+    ks: np.ndarray,
+    lv: np.ndarray,
+    rg: np.ndarray,
+    level: np.ndarray,
+    rough: np.ndarray,
+    reach_px: float,
+    first: int,
+    last: int,
+    lv_s: float,
+    lv_f: float,
+    rg_s: float,
+    rg_f: float,
+    skip_rim: bool,
+) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None, bool, bool] | None:
+    """:func:`_sweep_depth`'s length from the layers' profile, given the shadow's and the face's level and roughness; whether a level step placed it, and whether :func:`_ringing_bound` bounded it."""
     if max(lv_f, lv_s) >= _LEVEL_STEP_RATIO * max(min(lv_f, lv_s), 1e-6):
+        level_step = True
         profile, mid = (lv - lv_s) * np.sign(lv_f - lv_s), 0.5 * abs(lv_f - lv_s)
         at_face_level = (level - lv_s) * np.sign(lv_f - lv_s) >= mid
         smooth = rough <= 0.5 * (rg_s + rg_f)
@@ -769,6 +828,7 @@ def _sweep_depth(
         # face; neither side's evidence
         vote = np.where(at_face_level, -1.0, np.where(smooth, 0.0, 1.0)).astype(np.float32)
     else:
+        level_step = False
         profile, mid = rg_s - rg, 0.5 * (rg_s - rg_f)
         face_like = face_sure = rough <= 0.5 * (rg_s + rg_f)
         vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
@@ -786,8 +846,80 @@ def _sweep_depth(
             frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
             depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
             best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
+            bounded = False
+            if not level_step:
+                # the roughness' half-way may lie in the coding's ringing at the bright outline
+                bound = _ringing_bound(mask8, unit, ks, lv, rg, depth, first, lv_f, level, rough, reach_px)
+                if bound is not None and bound < best_depth:
+                    best_depth, bounded = bound, True
             # the run of shadow-like layers from the outline: how far the shadow's grain reaches
-            return best_unit, best_depth, face_sure, float(ks[last - 1]), (rim if skip_rim else None)
+            run, passed = float(ks[last - 1]), (rim if skip_rim else None)
+            return best_unit, best_depth, face_sure, run, passed, level_step, bounded
+    return None
+
+
+#: Smallest ratio of the face's level to the shadow's next to the outline for :func:`_ringing_bound`
+#: to read the shadow's visible width from the level (a step of 17-63 % on the committed dev renders
+#: of thin brackets under the spot; 8-bit coding at 0.016 of the paper is 0.0009 a code step: 2.8
+#: code steps there).
+_RINGING_STEP_RATIO = 1.1
+
+
+def _ringing_bound(
+    mask8: np.ndarray,
+    unit: np.ndarray,
+    ks: np.ndarray,
+    lv: np.ndarray,
+    rg: np.ndarray,
+    depth: float,
+    first: int,
+    lv_f: float,
+    level: np.ndarray,
+    rough: np.ndarray,
+    reach_px: float,
+) -> float | None:
+    """The shadow's visible width (px along ``unit``) where the roughness' half-way at ``depth`` reads the coding's ringing; else None.
+
+    JPEG coding rings beside a bright edge: its error over the 8x8 blocks the outline crosses
+    reaches a few pixels into the region, the same on every side of it, and divided by the level
+    of a face at 0.02-0.04 of the paper it is as rough as a shadow's grain (common practice: the
+    block transform's quantisation error spreads over the block). Where the layer at the
+    roughness' half-way is no rougher than the roughest layer within 2 px as deep in on the side
+    facing the light (the sweep's opposite, where no shadow lies), the half-way is read in that
+    ringing, not in the shadow: the shadow's own evidence is then its level, which the ringing (a
+    signed error, about zero over a layer) leaves in the layers' medians. The shadow's level is read in the two
+    layers next to the outline from the first past its first pixel that is darker than the face
+    (within :data:`_RIM_LAYERS` + 1: the outline's blur mixes the paper's light into its first
+    layers), the face's beyond the run; where the face is at least :data:`_RINGING_STEP_RATIO`
+    brighter, the width is where the layers' median level crosses half-way to the face's and
+    stays past it for :data:`_SUSTAIN` layers.
+    """
+    # the side facing the light, its layers within 2 px of the same depth
+    lit = [
+        float(np.median(rough[new]))
+        for k, new in _new_layers(mask8, -unit, int(math.ceil(depth)) + 3)
+        if k >= depth - 2
+    ]
+    at = np.nonzero(ks >= depth)[0]
+    if not lit or not at.size or rg[at[0]] > max(lit):
+        return None  # rougher than the light's side as deep in: the shadow's grain
+    # the shadow next to the outline: from the first layer past its first pixel that is darker than the
+    # face (a layer of the outline's blur mixes the paper's light in), and the one after it
+    darker = np.nonzero((ks >= 2) & (lv < lv_f))[0]
+    if not darker.size or ks[darker[0]] > _RIM_LAYERS + 1:
+        return None
+    near = slice(int(darker[0]), int(darker[0]) + 2)
+    lv_n = float(np.median(lv[near]))
+    if lv_f < _RINGING_STEP_RATIO * lv_n:
+        return None
+    mid = 0.5 * (lv_f + lv_n)
+    for i in range(max(first, int(darker[0])) + 1, len(ks)):
+        if ks[i] > depth:
+            break
+        if lv[i] >= mid and np.median(lv[i : i + _SUSTAIN]) >= mid:
+            a, b = lv[i - 1], lv[i]
+            frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
+            return float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
     return None
 
 
@@ -971,7 +1103,7 @@ def _dark_sweep(
     reach_px: float,
     alike: np.ndarray,
     inside: np.ndarray,
-) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None] | None:
+) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None, bool] | None:
     """:func:`_sweep_depth` for a dark face: the sweep whose layer holds the most shadow votes net.
 
     A dark part's outline holds more than its shadow that looks rough and neutral: the bottom
@@ -1015,7 +1147,7 @@ def _dark_sweep(
     if best_step is None or best_score < 2 * STRETCH_PX:
         return None
     best_unit, best_depth = _best_sweep(mask8, vote, best_step)
-    return best_unit, best_depth, face_sure, 0.0, None  # no run measured: held to the 30-degree reach
+    return best_unit, best_depth, face_sure, 0.0, None, False  # no run measured: held to the 30-degree reach
 
 
 def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple[np.ndarray, float]:
