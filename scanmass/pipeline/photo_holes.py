@@ -57,6 +57,14 @@ DEEP_HOLE_REPLACE_PX = 2.0
 DEEP_HOLE_UNROUND_PX = 5.0
 #: See :data:`DEEP_HOLE_REPLACE_PX` (px, rms of the opening's circle fit).
 DEEP_HOLE_CLEAN_RMS_PX = 0.5
+#: A found hole's opening traced with the midpoint rule on fewer than this share of its rays is traced
+#: again by the last step to the face's level (:func:`~scanmass.segment.deephole.opening_edge`,
+#: ``last_step``): a far wall lit less than the floor and more than the face (black plastic 6.5 mm
+#: thick at 22 degrees of tilt, tests/data/reallight dev-mixed-black2-t22: 34-62 % of the rays, the
+#: bores read 1.35-1.58 mm small). Where the midpoint rule finds most of the border (81-98 % on the
+#: other renders' openings) it stands: there the last step also takes a floor's shaded stretch for the
+#: border and reads smaller (dev-mixed-black-t15's plate: -0.45 to -1.6 mm).
+DEEP_HOLE_STEP_SHARE = 0.7
 #: A found ring this far out of round (px, the largest distance from its circle) is replaced by a
 #: clean opening's fit (:data:`DEEP_HOLE_CLEAN_RMS_PX`) that is wider by any amount: the ring lost
 #: part of the opening to the shade (tests/data/reallight spot-black-t20: rings 3.3-4.8 px out of
@@ -170,6 +178,12 @@ def _deep_hole_circles(
         r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
         thick_px = hook.height_mm / mm_per_px
         edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
+        if edge is None or edge.share < DEEP_HOLE_STEP_SHARE:
+            # most rays found no midpoint near the opening's border: a wall's band of its own level lies
+            # between the floor and the face there; the border is the last step to the face's level
+            steps = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0, last_step=True)
+            if steps is not None and (edge is None or steps.share > edge.share):
+                edge = steps
         fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
         if fit is None:
             continue
