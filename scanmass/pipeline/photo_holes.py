@@ -57,6 +57,27 @@ DEEP_HOLE_REPLACE_PX = 2.0
 DEEP_HOLE_UNROUND_PX = 5.0
 #: See :data:`DEEP_HOLE_REPLACE_PX` (px, rms of the opening's circle fit).
 DEEP_HOLE_CLEAN_RMS_PX = 0.5
+#: A found hole's opening traced with the midpoint rule on fewer than this share of its rays is traced
+#: again by the last step to the face's level (:func:`~scanmass.segment.deephole.opening_edge`,
+#: ``last_step``): a far wall lit less than the floor and more than the face (black plastic 6.5 mm
+#: thick at 22 degrees of tilt, tests/data/reallight dev-mixed-black2-t22: 34-62 % of the rays, the
+#: bores read 1.35-1.58 mm small). Where the midpoint rule finds most of the border (81-98 % on the
+#: other renders' openings) it stands: there the last step also takes a floor's shaded stretch for the
+#: border and reads smaller (dev-mixed-black-t15's plate: -0.45 to -1.6 mm).
+DEEP_HOLE_STEP_SHARE = 0.7
+#: ... and only where the far wall's band (the parallax of the part's thickness at the hole) is at least
+#: this wide (px): a narrower band shows no level of its own between the blurred steps at its sides, and
+#: there the last step is a lit rim's or a reflection's (tests/data/reallight: brass and steel 2-3 mm
+#: thick in spot light, dev-spot-*, bands 1.0-2.9 px, holes read 0.5-2.2 mm off by the last step; black
+#: plastic 1.6-3 mm, bands 1.2-3.4 px; dev-mixed-black2-t22's 6.5 mm plate 4.3-5.9 px).
+DEEP_HOLE_STEP_BAND_PX = 4.0
+#: ... and only where the midpoint's trace fits its circle worse than this (px rms): a trace on the rim is
+#: round (brass and steel openings of tests/data/reallight lens-spot-brass-t30, dev-spot-steel4-t28 with
+#: 39-69 % of the rays: 0.07-0.09 px); dev-mixed-black2-t22's bores 0.33-0.97 px. The last step's trace
+#: is then taken where it is rounder, or wider by more than :data:`DEEP_HOLE_REPLACE_PX` (the midpoint
+#: stopped inside the wall's band): spot-brass-t10's and lens-spot-brass-t30's plates (0.30-0.34 px, the
+#: last step's 0.44 px, as wide) keep their midpoint's.
+DEEP_HOLE_STEP_RMS_PX = 0.2
 #: A found ring this far out of round (px, the largest distance from its circle) is replaced by a
 #: clean opening's fit (:data:`DEEP_HOLE_CLEAN_RMS_PX`) that is wider by any amount: the ring lost
 #: part of the opening to the shade (tests/data/reallight spot-black-t20: rings 3.3-4.8 px out of
@@ -170,7 +191,25 @@ def _deep_hole_circles(
         r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
         thick_px = hook.height_mm / mm_per_px
         edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
+        # the far wall's band: the parallax of the part's thickness at the hole (px)
+        at_px = np.asarray([[xs.mean() + sx0, ys.mean() + sy0] for ys, xs in [np.nonzero(seed)]], float)
+        ideal = hook.undistort(at_px) if hook.undistort is not None else at_px
+        band_px = float(np.hypot(*(ideal - apply_h(hook.to_footprint, ideal))[0]))
         fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
+        if (
+            band_px >= DEEP_HOLE_STEP_BAND_PX
+            and (edge is None or edge.share < DEEP_HOLE_STEP_SHARE)
+            and (fit is None or fit[2] > DEEP_HOLE_STEP_RMS_PX)
+        ):
+            # most rays found no midpoint near the opening's border, and what they found is no clean circle:
+            # a wall's band of its own level lies between the floor and the face; the border is the last
+            # step to the face's level, taken where it is rounder or wider than the midpoint's trace
+            steps = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0, last_step=True)
+            by_step = None if steps is None else _top_circle(steps, (sx0, sy0), hook, mm_per_px, outline)
+            if by_step is not None and (
+                fit is None or by_step[2] < fit[2] or by_step[1] - fit[1] > DEEP_HOLE_REPLACE_PX * mm_per_px
+            ):
+                fit = by_step
         if fit is None:
             continue
         clean = fit[2] <= DEEP_HOLE_CLEAN_RMS_PX

@@ -174,11 +174,51 @@ def _with_face_term(part: Part, face: FaceResult, plane_map: PlaneMap) -> Part:
             }
             if face.doubt_holes_px is not None and len(part.holes) == len(face.holes_px):
                 part = _with_hole_doubt(part, face, plane_map.mm_per_px)
-        # a hole's wall throws the lamp's shadow into the hole as the part's wall does beside it:
-        # its diameter gets the same edge uncertainty
-        return _with_shadow_term(part, term, FACE_EDGE_U_PX * plane_map.mm_per_px, name="scan_shadow")
+        # a hole's wall throws the lamp's shadow into the hole as the part's wall does beside it: the
+        # stretch of its edge against that shadow moves as the face's edge does, all of it together
+        reach_px = 0.5 * math.pi * face.shadow_px2 / face.shadow_edge_px if face.shadow_edge_px > 0 else math.inf
+        part = replace(
+            part,
+            holes=[
+                replace(
+                    h,
+                    diameter_u_mm=combine(
+                        h.diameter_u_mm,
+                        2.0 * shadowed_share(h.diameter_mm / plane_map.mm_per_px, reach_px) * FACE_EDGE_U_PX
+                        * plane_map.mm_per_px,
+                    ),
+                )
+                for h in part.holes
+            ],
+        )  # fmt: skip
+        return _with_shadow_term(part, term, 0.0, name="scan_shadow")
     shadow_mm2 = face.shadow_px2 * plane_map.mm_per_px**2
     return _with_shadow_term(part, area_share_term(part, shadow_mm2), 0.0, name="scan_shadow")
+
+
+def shadowed_share(diameter_px: float, reach_px: float) -> float:
+    """The share of a round hole's edge that lies against its own wall's shadow, under a lamp from one side.
+
+    The wall on the lamp's side shades the hole's floor (the lid) for ``reach_px`` along the
+    lamp's direction; a point of the edge at angle phi from that direction has the floor beside
+    it lit only where the chord towards the lamp, ``-diameter cos(phi)``, is longer than the
+    reach. The shaded share is ``1/2 + asin(min(1, reach / diameter)) / pi``: half the edge under
+    a grazing reach, all of it where the shadow spans the hole. An edge read against the shadow
+    is moved by the same level error all along that stretch, so the hole's diameter moves by
+    twice this share times the edge's displacement (area ``pi D / 2 dD`` against ``pi D s d``).
+
+    The reach is taken from the shadow beside the part (its band's area over its edge's length,
+    times pi/2: a round wall's mean band is 2/pi of its reach, a straight one's all of it); an
+    unknown reach counts as spanning the hole.
+
+    Examples
+    --------
+    >>> shadowed_share(100.0, 0.0), shadowed_share(100.0, 200.0)
+    (0.5, 1.0)
+    """
+    if not diameter_px > 0:
+        return 1.0
+    return 0.5 + math.asin(min(1.0, max(reach_px, 0.0) / diameter_px)) / math.pi
 
 
 def _doubt_term(

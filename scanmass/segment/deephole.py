@@ -213,6 +213,40 @@ def pit_edge(
 FACE_BAND = 1.6
 
 
+def _last_step(rising: np.ndarray, top: float, min_rise: float) -> tuple[float, float]:
+    """The last step of a profile that rises to the face's level: (its place, fractional index; the level below it).
+
+    ``rising`` is signed so that the step to the face (level ``top``) rises. The step's place is
+    the outermost peak of the slope that rises from a plateau at least ``min_rise`` below
+    ``top`` (refined by a parabola through the peak and its neighbours): a blurred step is
+    steepest at its edge, whatever its height, so a wall's band between the floor and the face
+    is not skipped for the floor's larger step behind it, and the face's own grain (smaller
+    rises) is no step. The level below it: walking inwards from the peak, where the slope stops
+    falling (the band's plateau), or the profile's first sample.
+
+    Examples
+    --------
+    >>> steps = np.r_[np.full(8, -8.0), np.full(12, -2.5), np.full(10, -1.0)]  # floor, wall, face
+    >>> at, below = _last_step(np.convolve(steps, np.ones(3) / 3, "same")[1:-1], -1.0, 0.6)
+    >>> round(at, 2), round(below, 2)
+    (18.5, -2.5)
+    """
+    slope = np.gradient(np.asarray(rising, float))
+    for i in range(len(slope) - 2, 0, -1):
+        if not (slope[i] > 0 and slope[i] >= slope[i - 1] and slope[i] > slope[i + 1]):
+            continue
+        j = i
+        while j > 0 and slope[j - 1] < slope[j]:
+            j -= 1
+        below = float(rising[j])
+        if top - below < min_rise:
+            continue  # the face's grain, no step to it
+        a, b, c = float(slope[i - 1]), float(slope[i]), float(slope[i + 1])
+        curve = a - 2 * b + c
+        return i + (0.5 * (a - c) / curve if curve < 0 else 0.0), below
+    return math.nan, math.nan
+
+
 def opening_edge(
     lin: np.ndarray,
     part_mask: np.ndarray,
@@ -220,6 +254,7 @@ def opening_edge(
     reach_px: float,
     *,
     rays: int = RAYS,
+    last_step: bool = False,
 ) -> PitEdge | None:
     """Trace the border of a hole's whole opening, from the part of it already found (``seed``).
 
@@ -242,6 +277,12 @@ def opening_edge(
         The found part of the opening (a found hole's pixels).
     reach_px : float
         How far from the seed's centre the opening may reach.
+    last_step : bool
+        Place the border on each ray at the last step to the face's level (:func:`_last_step`)
+        instead of the midpoint between the face and the extreme level just inside: where a
+        wall's band of its own level (lit less than the floor, more than the face) lies between
+        the floor and the face, the midpoint falls inside the band, away from the border, and
+        the ray finds no crossing near it.
 
     Returns
     -------
@@ -312,14 +353,24 @@ def opening_edge(
         plateau = prof[max(j0 - 2 * near, 0) : j0 + 1]
         sign = 1.0 if prof[j0] < face_level else -1.0  # up from a shade, down from a lit stretch
         before = float(plateau.min() if sign > 0 else plateau.max())
-        lo_i, hi_i = max(edge - near, 1), edge + near
-        seg = sign * profiles[k, lo_i - 1 : hi_i + 1]
+        lo_i, hi_i = max(edge - near, 1) - 1, edge + near
+        seg = sign * profiles[k, lo_i : hi_i + 1]
         levels = [
-            _crossing_near(seg, sign * (before + f * (face_level - before)), edge - lo_i + 1) for f in (0.5, 0.3, 0.7)
+            _crossing_near(seg, sign * (before + f * (face_level - before)), edge - lo_i) for f in (0.5, 0.3, 0.7)
         ]
-        if not math.isfinite(levels[0]):
+        if last_step:
+            # the border is the step from the band just inside to the face (:func:`_last_step`)
+            lo_i = max(j0 - 2 * near, 1)
+            seg = sign * profiles[k, lo_i : hi_i + 1]
+            rise = face_level * (1.0 - 1.0 / FACE_BAND) if sign > 0 else face_level * (FACE_BAND - 1.0)
+            at, below = _last_step(seg, sign * face_level, rise)
+            if not math.isfinite(at):
+                continue
+            top = sign * face_level
+            levels = [at] + [_crossing_near(seg, below + f * (top - below), int(at)) for f in (0.3, 0.7)]
+        elif not math.isfinite(levels[0]):
             continue
-        r = (lo_i - 1 + levels[0]) * RAY_STEP_PX
+        r = (lo_i + levels[0]) * RAY_STEP_PX
         pts.append((cx + math.cos(angles[k]) * r, cy + math.sin(angles[k]) * r))
         lo, hi = levels[1], levels[2]
         spread.append(abs(hi - lo) * RAY_STEP_PX if math.isfinite(lo) and math.isfinite(hi) else 2.0 * NEAR_PX)
