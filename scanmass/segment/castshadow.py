@@ -294,6 +294,9 @@ def _shadow_cut(
     n_cut = int(np.count_nonzero(cut))
     k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
     border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
+    if not dark:
+        # a dark metal face's shadow fades on past the outline: painted as paper with the cut
+        cut = cut | _fade_beyond(cut, part_mask, smooth, interior, depth_px * unit)
     found = ShadowCut(
         cut=cut,
         cut_px=n_cut,
@@ -309,6 +312,43 @@ def _shadow_cut(
 
 #: Largest level (share of the paper white) of a face taken as dark (:func:`_dark_face_alike`).
 DARK_FACE_LEVEL = 0.1
+
+
+def _fade_beyond(cut: np.ndarray, part_mask: np.ndarray, smooth: np.ndarray, interior: np.ndarray, step: np.ndarray) -> np.ndarray:
+    """(H, W) bool: the soft shadow's fade just outside a metal region, beyond its cut along the sweep.
+
+    Under a wide low light (a window) a thick part's shadow fades out over many pixels; the
+    region found ends where the fade rises past the segmentation's threshold, but the fade goes
+    on beyond it. With the cut painted as paper the level around that fade rises, and its next
+    pixels read as a dark piece of their own, which is merged back into the part as a fragment of
+    its grainy face (on the committed render tests/data/reallight/dev-window-low-steel-t15 the
+    steel disc's cut of 13 px left a ring 8-10 px wide beyond it: +12 % in area). Pixels outside
+    the region that the cut swept on by the sweep's own vector reaches, with the paper's tint, at
+    :data:`_FADE_LEVEL_RATIO` or more of the face's level (a dark face beside it is no fade) and
+    under :data:`_MAX_DEPTH` of the paper, reached from the cut, are that fade: they are painted
+    as paper with the cut (a shadow is paper in less light; they were never part of the region).
+    Only beside a dark metal face (under :data:`DARK_FACE_LEVEL`, tinted :data:`_DARK_CHROMA_STEP`
+    or more away from the paper, as :func:`fade_cut` takes it); elsewhere none.
+
+    ``smooth`` is the crop's colour over the paper white (per channel), smoothed; ``interior`` the
+    face's pixels; ``step`` the sweep's vector (x, y px).
+    """
+    none = np.zeros(part_mask.shape, bool)
+    sm = smooth.mean(axis=2)
+    tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+    face_level = float(np.median(sm[interior]))
+    face_tint = float(np.median(tint[interior]))
+    if not 0 < face_level < DARK_FACE_LEVEL or abs(face_tint) < _DARK_CHROMA_STEP:
+        return none
+    kernel, anchor = _line_kernel(-np.asarray(step, float))
+    zone = cv2.dilate(cut.astype(np.uint8), kernel, anchor=anchor).astype(bool) & ~part_mask
+    fade = zone & (sm >= _FADE_LEVEL_RATIO * face_level) & (sm < _MAX_DEPTH) & (np.abs(tint - face_tint) > np.abs(tint))
+    if not fade.any():
+        return none
+    count, labels = cv2.connectedComponents(fade.astype(np.uint8), connectivity=8)
+    near = cv2.dilate(cut.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+    touching = np.unique(labels[near & fade])
+    return np.isin(labels, touching[touching > 0])
 #: Smallest chroma difference (blue minus red over the level, smoothed) between a dark face and
 #: the paper for :func:`_dark_face_alike` to use it.
 _DARK_CHROMA_STEP = 0.05
