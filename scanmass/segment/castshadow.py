@@ -93,6 +93,8 @@ class ShadowCut:
     direction : (float, float) or None
         The unit vector (x, y px) of the sweep that added the cut layer; None for a cut that
         was not found by a sweep (:func:`fade_cut`).
+    length_px : float or None
+        The sweep's length (px); None where ``direction`` is.
     """
 
     cut: np.ndarray
@@ -103,6 +105,7 @@ class ShadowCut:
     level_face: float
     level_shadow: float
     direction: tuple[float, float] | None = None
+    length_px: float | None = None
 
 
 def roughness(level: np.ndarray, sigma_px: float = 1.5) -> np.ndarray:
@@ -202,6 +205,7 @@ def _shadow_cut(
     code_step: np.ndarray | None,
     use_dark: bool,
     direction: np.ndarray | None = None,
+    witness_px: float | None = None,
 ) -> tuple[ShadowCut | None, bool]:
     """:func:`shadow_cut`, with the dark face's sweep (:func:`_dark_sweep`) where ``use_dark`` and the face is dark; and whether it was."""
     mask8 = part_mask.astype(np.uint8)
@@ -250,6 +254,7 @@ def _shadow_cut(
             np.where(tinted, 0.0, rough),
             reach_px,
             direction,
+            witness_px,
         )
     if sweep is None:
         return None, dark
@@ -295,7 +300,7 @@ def _shadow_cut(
     k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
     border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
     if not dark:
-        # a dark metal face's shadow fades on past the outline: painted as paper with the cut
+        # a dark face's shadow fades on past the outline: painted as paper with the cut
         cut = cut | _fade_beyond(cut, part_mask, smooth, interior, depth_px * unit)
     found = ShadowCut(
         cut=cut,
@@ -306,6 +311,7 @@ def _shadow_cut(
         level_face=float(np.median(level[keep])),
         level_shadow=float(np.median(level[cut])),
         direction=(float(unit[0]), float(unit[1])),
+        length_px=float(depth_px),
     )
     return found, dark
 
@@ -314,7 +320,9 @@ def _shadow_cut(
 DARK_FACE_LEVEL = 0.1
 
 
-def _fade_beyond(cut: np.ndarray, part_mask: np.ndarray, smooth: np.ndarray, interior: np.ndarray, step: np.ndarray) -> np.ndarray:
+def _fade_beyond(
+    cut: np.ndarray, part_mask: np.ndarray, smooth: np.ndarray, interior: np.ndarray, step: np.ndarray
+) -> np.ndarray:
     """(H, W) bool: the soft shadow's fade just outside a metal region, beyond its cut along the sweep.
 
     Under a wide low light (a window) a thick part's shadow fades out over many pixels; the
@@ -327,8 +335,9 @@ def _fade_beyond(cut: np.ndarray, part_mask: np.ndarray, smooth: np.ndarray, int
     :data:`_FADE_LEVEL_RATIO` or more of the face's level (a dark face beside it is no fade) and
     under :data:`_MAX_DEPTH` of the paper, reached from the cut, are that fade: they are painted
     as paper with the cut (a shadow is paper in less light; they were never part of the region).
-    Only beside a dark metal face (under :data:`DARK_FACE_LEVEL`, tinted :data:`_DARK_CHROMA_STEP`
-    or more away from the paper, as :func:`fade_cut` takes it); elsewhere none.
+    Only beside a dark face (under :data:`DARK_FACE_LEVEL`; a dark plastic's has rules of its own and
+    the caller leaves it out): a thick steel face half in the fade reads too faintly tinted for
+    :func:`fade_cut` (the same render's bracket, -0.049 of its level against the 0.05 step).
 
     ``smooth`` is the crop's colour over the paper white (per channel), smoothed; ``interior`` the
     face's pixels; ``step`` the sweep's vector (x, y px).
@@ -338,7 +347,7 @@ def _fade_beyond(cut: np.ndarray, part_mask: np.ndarray, smooth: np.ndarray, int
     tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
     face_level = float(np.median(sm[interior]))
     face_tint = float(np.median(tint[interior]))
-    if not 0 < face_level < DARK_FACE_LEVEL or abs(face_tint) < _DARK_CHROMA_STEP:
+    if not 0 < face_level < DARK_FACE_LEVEL:
         return none
     kernel, anchor = _line_kernel(-np.asarray(step, float))
     zone = cv2.dilate(cut.astype(np.uint8), kernel, anchor=anchor).astype(bool) & ~part_mask
@@ -349,6 +358,8 @@ def _fade_beyond(cut: np.ndarray, part_mask: np.ndarray, smooth: np.ndarray, int
     near = cv2.dilate(cut.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
     touching = np.unique(labels[near & fade])
     return np.isin(labels, touching[touching > 0])
+
+
 #: Smallest chroma difference (blue minus red over the level, smoothed) between a dark face and
 #: the paper for :func:`_dark_face_alike` to use it.
 _DARK_CHROMA_STEP = 0.05
@@ -506,6 +517,7 @@ def core_cut(
     reach_px: float,
     direction: np.ndarray,
     code_step: np.ndarray | None = None,
+    witness_px: float | None = None,
 ) -> ShadowCut | None:
     """A soft shadow's fade and its core, swept along the photo's shadow direction, inside a metal part.
 
@@ -539,16 +551,32 @@ def core_cut(
     >>> core_cut(img, mask, paper, 20.0, np.array([1.0, 0.0])) is None
     True
     """
-    along = _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=False, direction=direction)[0]
+    along = _shadow_cut(
+        colour_lin,
+        part_mask,
+        paper_rgb,
+        reach_px,
+        code_step,
+        use_dark=False,
+        direction=direction,
+        witness_px=witness_px,
+    )[0]
     if along is None:
         return None
     fade = fade_cut(colour_lin, part_mask, paper_rgb, reach_px)
-    added = along.cut & part_mask & ~(fade.cut if fade is not None else np.zeros_like(part_mask))
     keep = part_mask & ~along.cut
-    if np.count_nonzero(added) < STRETCH_PX or np.count_nonzero(keep) < 50:
+    if np.count_nonzero(keep) < 50:
         return None
     level = (colour_lin / np.asarray(paper_rgb)).mean(axis=2)
-    if float(np.median(level[added])) >= _CORE_LEVEL_RATIO * float(np.median(level[keep])):
+    face_level = float(np.median(level[keep]))
+    # the fade's pixels: those fade_cut took, and (where it refused the face as too faintly
+    # tinted, as a thick steel face half in the shadow's fade reads) those at _FADE_LEVEL_RATIO
+    # of the face's level or more: neither face nor core
+    faded = fade.cut if fade is not None else level >= _FADE_LEVEL_RATIO * face_level
+    added = along.cut & part_mask & ~faded
+    if np.count_nonzero(added) < STRETCH_PX:
+        return None
+    if float(np.median(level[added])) >= _CORE_LEVEL_RATIO * face_level:
         return None  # at the face's level: the face's rough rim, not a shadow's core
     if fade is None:
         return along
@@ -677,6 +705,17 @@ def _with_rim(cut: np.ndarray, part_mask: np.ndarray) -> np.ndarray:
 _FACE_WINDOW_PX = 14
 #: Largest share of hole pixels in those layers for a sweep along a given direction.
 _FACE_WINDOW_HOLE_SHARE = 0.1
+#: Largest turn (degrees) of a sweep's refinement (:func:`_best_sweep`) away from a direction another
+#: part of the photo showed: every shadow of one distant light runs one way, and an L bracket's votes,
+#: its shadow's core and fade along two arms, turned the sweep 12 degrees off it into the face along the
+#: arms' edges (the committed render tests/data/reallight/dev-window-low-steel-t15). A whole-pixel
+#: vector 25 px long turns in steps of about 2.3 degrees: two of them either way.
+_GIVEN_TURN_DEG = 5.0
+#: How much longer (px) than the sweep of the part that showed the direction a sweep along it may be
+#: (:func:`_sweep_depth`'s ``witness_px``): a shadow's length is the thickness over the tangent of the
+#: light's elevation (trigonometry), one for all parts of a photo (one thickness given, one light); the
+#: slack is :func:`_best_sweep`'s own search (3 px) against a witness read a few px short or long.
+_WITNESS_SLACK_PX = 3.0
 #: Layers over which the profile must stay past half-way for the face to begin.
 _SUSTAIN = 3
 #: Smallest ratio of the face's level to the shadow's (or back) for the level step to place
@@ -722,6 +761,7 @@ def _sweep_depth(
     rough: np.ndarray,
     reach_px: float,
     direction: np.ndarray | None = None,
+    witness_px: float | None = None,
 ) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None] | None:
     """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, a face map, the run and the rim passed over.
 
@@ -825,7 +865,13 @@ def _sweep_depth(
             a, b = profile[i - 1], profile[i]
             frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
             depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
-            best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
+            # along a direction another part showed, the refinement keeps near it (one light)
+            turn = 15.0 if direction is None else _GIVEN_TURN_DEG
+            if direction is not None and witness_px is not None and depth > witness_px + _WITNESS_SLACK_PX:
+                # the other part's shadow, of the same thickness under the same light, is as long: the
+                # half-way of this grain lies past the face's edge, in its own rough rim
+                depth = witness_px + _WITNESS_SLACK_PX
+            best_unit, best_depth = _best_sweep(mask8, vote, depth * unit, turn)
             # the run of shadow-like layers from the outline: how far the shadow's grain reaches
             return best_unit, best_depth, face_sure, float(ks[last - 1]), (rim if skip_rim else None)
     return None
@@ -1058,11 +1104,13 @@ def _dark_sweep(
     return best_unit, best_depth, face_sure, 0.0, None  # no run measured: held to the 30-degree reach
 
 
-def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple[np.ndarray, float]:
+def _best_sweep(
+    mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray, turn_deg: float = 15.0
+) -> tuple[np.ndarray, float]:
     """The whole-pixel sweep near ``guess`` (x, y px) whose layer holds the most shadow votes net.
 
     ``vote`` is +1 where a pixel looks like the shadow, -1 where it looks like the face; the
-    search covers whole-pixel vectors within 3 px and 15 degrees of the guess (a sweep in the
+    search covers whole-pixel vectors within 3 px and ``turn_deg`` of the guess (a sweep in the
     wrong direction cuts into the face along one side and leaves shadow along another).
     """
     length = float(np.hypot(*guess))
@@ -1073,7 +1121,7 @@ def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple
         for dx in range(-r, r + 1):
             v = np.array([dx, dy], float)
             n = float(np.hypot(dx, dy))
-            if n < 1 or abs(n - length) > 3 or float(v @ unit) < n * np.cos(np.radians(15)):
+            if n < 1 or abs(n - length) > 3 or float(v @ unit) < n * np.cos(np.radians(turn_deg)):
                 continue
             score = float(vote[_sweep_layer(mask8, v)].sum())
             if score > best_score:
