@@ -712,6 +712,18 @@ def dev_scenes():
             "Standard",
             18.0,
         ),
+        # branch windowsteel12: thick brushed steel in low window light, a cam and an L bracket of about one
+        # thickness (the second witness of the light's direction and of the shadow's length)
+        (
+            "dev-window-low-steel2-t8",
+            "window",
+            [("cam", "brushed-steel", 5.5, 120, 100, 20), ("l-bracket", "brushed-steel", 5.0, 85, 195, 110)],
+            325,
+            8,
+            100,
+            "Standard",
+            24.0,
+        ),
         # branch brass11: a thin brass L-bracket under the hard spot at a tilt (the lit-face join, then the
         # fragment merge and the shadow cut), beside a gasket; and a thin bracket beside a plate, the spot
         # from other sides and the camera nearer / farther

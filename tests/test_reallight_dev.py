@@ -456,21 +456,40 @@ def test_low_window_light_black_gasket_warned_and_covered():
     assert _covered(part, tp)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="dev-window-low-steel-t15 (window 20 degrees up, 15 degrees of tilt): the steel disc 6 mm thick is cut "
-    "along its shadow by 13 px where the shadow's grain ends at 18 px (its core as dark as the face, its grain "
-    "fading towards the wall: the half-way of the roughness falls short), and the shadow's rest beyond the cut is "
-    "merged back as a fragment (+12.1 % in area, centroid 3.17 mm); the L bracket 7 mm thick keeps its shadow: its "
-    "own sweep is refused, and along the disc's direction the fade test refuses its face as untinted (blue minus red "
-    "-0.049 of its level against the 0.05 step), so the core test reads the fade as the core (+35.6 %, centroid "
-    "3.19 mm; measured at 6 mm the face reads -0.060, the core is cut: -0.2 %). A half-way on a log scale of roughness cut the disc "
-    "to +5.9 % but moved seven tuned parts by up to 10 %",
-)
-def test_low_window_light_thick_steel_within_3_percent():
+def test_low_window_light_thick_steel_cut_by_the_photos_own_light():
+    """dev-window-low-steel-t15 (window 20 degrees up, 15 degrees of tilt; branch windowsteel12): a steel disc
+    6 mm and an L bracket 7 mm thick. The disc's cut was right, but painted as paper it left the shadow's fade
+    beyond the outline to read as a dark piece, merged back as a fragment: now that fade, swept on from the cut
+    along the sweep, is painted with it. The bracket's own sweep is refused; along the disc's direction (one
+    light) the fade test refused its face as untinted (blue minus red -0.049 of its level against the 0.05
+    step) and the core test read the whole cut as brighter than the face: the fade is now taken by level (3x
+    the face's) where the fade test refuses; the sweep keeps within 5 degrees of the disc's direction and
+    within 3 px of the disc's length (one thickness given, one light: one shadow length; its own grain's
+    half-way lay 10 px into its face). Figures (bench_reallight, thickness given): disc +11.90 % -> +0.79 %,
+    centroid 3.12 -> 0.77 mm; bracket +30.77 % -> -1.70 %, centroid 3.51 -> 1.16 mm. Truth: the render's
+    outlines, areas and centroids by shapely."""
     for shape in ("disc", "l-bracket"):
         m, part, tp = _part("dev-window-low-steel-t15", shape)
-        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
+        assert "shadow_cut" in part.uncertainty_terms, shape
+        assert any(w.startswith("cast shadow cut:") for w in m.warnings), shape
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape  # was +11.9 % / +30.8 %
+        assert math.dist(part.centroid_mm, tp["centroid"]) < 1.3, shape  # was 3.12 / 3.51 mm
+        assert _covered(part, tp), shape
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-low-steel-t15 after the cut (branch windowsteel12): the outline along the shadow sides "
+    "follows the grain, raggedly, in and out of the face by a few px; the centroids stay 0.77 mm (disc) and "
+    "1.16 mm (bracket) off, covered by the cut's and the fragments' terms, and the bracket's two holes 5.5 mm "
+    "(found before the cut, 5.66 and 5.68 mm) are lost: the cut's ragged edge opens them (the sweep's length "
+    "held 1.5 px shorter keeps one, 5.41 mm, and gives +0.14 %)",
+)
+def test_low_window_light_thick_steel_centroid_and_holes():
+    for shape in ("disc", "l-bracket"):
+        m, part, tp = _part("dev-window-low-steel-t15", shape)
+        assert math.dist(part.centroid_mm, tp["centroid"]) < 0.5, shape
+        assert len(part.holes) == len(tp["holes"]), shape
 
 
 @pytest.mark.xfail(

@@ -335,9 +335,12 @@ def _fade_beyond(
     :data:`_FADE_LEVEL_RATIO` or more of the face's level (a dark face beside it is no fade) and
     under :data:`_MAX_DEPTH` of the paper, reached from the cut, are that fade: they are painted
     as paper with the cut (a shadow is paper in less light; they were never part of the region).
-    Only beside a dark face (under :data:`DARK_FACE_LEVEL`; a dark plastic's has rules of its own and
-    the caller leaves it out): a thick steel face half in the fade reads too faintly tinted for
-    :func:`fade_cut` (the same render's bracket, -0.049 of its level against the 0.05 step).
+    Only beside a dark face (under :data:`DARK_FACE_LEVEL`), whatever its tint: a thick steel face half
+    in the fade reads too faintly tinted for :func:`fade_cut` (the same render's bracket, -0.049 of its
+    level against the 0.05 step). Not after a dark plastic face's own sweep (:func:`_dark_sweep`), whose
+    cut's edge is blended by the caller; after the general sweep that follows its refusal, as on any
+    dark face (tests/data/reallight/dev-mixed-black2-t22's black plate 6.5 mm: -4.19 % -> -3.82 %, no
+    thickness given).
 
     ``smooth`` is the crop's colour over the paper white (per channel), smoothed; ``interior`` the
     face's pixels; ``step`` the sweep's vector (x, y px).
@@ -351,7 +354,14 @@ def _fade_beyond(
         return none
     kernel, anchor = _line_kernel(-np.asarray(step, float))
     zone = cv2.dilate(cut.astype(np.uint8), kernel, anchor=anchor).astype(bool) & ~part_mask
-    fade = zone & (sm >= _FADE_LEVEL_RATIO * face_level) & (sm < _MAX_DEPTH) & (np.abs(tint - face_tint) > np.abs(tint))
+    # the caller paints with the paper's level 4-16 px off the outline, in a long fade itself dimmed:
+    # a pixel brighter than that is left as it is (painted, it would darken)
+    outside = cv2.distanceTransform((~part_mask).astype(np.uint8), cv2.DIST_L2, 3)
+    ring = (outside > 4) & (outside < 16)
+    if np.count_nonzero(ring) < 20:
+        return none
+    paint = min(_MAX_DEPTH, float(np.median(sm[ring])))
+    fade = zone & (sm >= _FADE_LEVEL_RATIO * face_level) & (sm < paint) & (np.abs(tint - face_tint) > np.abs(tint))
     if not fade.any():
         return none
     count, labels = cv2.connectedComponents(fade.astype(np.uint8), connectivity=8)
@@ -705,12 +715,6 @@ def _with_rim(cut: np.ndarray, part_mask: np.ndarray) -> np.ndarray:
 _FACE_WINDOW_PX = 14
 #: Largest share of hole pixels in those layers for a sweep along a given direction.
 _FACE_WINDOW_HOLE_SHARE = 0.1
-#: Largest turn (degrees) of a sweep's refinement (:func:`_best_sweep`) away from a direction another
-#: part of the photo showed: every shadow of one distant light runs one way, and an L bracket's votes,
-#: its shadow's core and fade along two arms, turned the sweep 12 degrees off it into the face along the
-#: arms' edges (the committed render tests/data/reallight/dev-window-low-steel-t15). A whole-pixel
-#: vector 25 px long turns in steps of about 2.3 degrees: two of them either way.
-_GIVEN_TURN_DEG = 5.0
 #: How much longer (px) than the sweep of the part that showed the direction a sweep along it may be
 #: (:func:`_sweep_depth`'s ``witness_px``): a shadow's length is the thickness over the tangent of the
 #: light's elevation (trigonometry), one for all parts of a photo (one thickness given, one light); the
@@ -865,13 +869,11 @@ def _sweep_depth(
             a, b = profile[i - 1], profile[i]
             frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
             depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
-            # along a direction another part showed, the refinement keeps near it (one light)
-            turn = 15.0 if direction is None else _GIVEN_TURN_DEG
             if direction is not None and witness_px is not None and depth > witness_px + _WITNESS_SLACK_PX:
                 # the other part's shadow, of the same thickness under the same light, is as long: the
                 # half-way of this grain lies past the face's edge, in its own rough rim
                 depth = witness_px + _WITNESS_SLACK_PX
-            best_unit, best_depth = _best_sweep(mask8, vote, depth * unit, turn)
+            best_unit, best_depth = _best_sweep(mask8, vote, depth * unit)
             # the run of shadow-like layers from the outline: how far the shadow's grain reaches
             return best_unit, best_depth, face_sure, float(ks[last - 1]), (rim if skip_rim else None)
     return None
@@ -1104,13 +1106,11 @@ def _dark_sweep(
     return best_unit, best_depth, face_sure, 0.0, None  # no run measured: held to the 30-degree reach
 
 
-def _best_sweep(
-    mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray, turn_deg: float = 15.0
-) -> tuple[np.ndarray, float]:
+def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple[np.ndarray, float]:
     """The whole-pixel sweep near ``guess`` (x, y px) whose layer holds the most shadow votes net.
 
     ``vote`` is +1 where a pixel looks like the shadow, -1 where it looks like the face; the
-    search covers whole-pixel vectors within 3 px and ``turn_deg`` of the guess (a sweep in the
+    search covers whole-pixel vectors within 3 px and 15 degrees of the guess (a sweep in the
     wrong direction cuts into the face along one side and leaves shadow along another).
     """
     length = float(np.hypot(*guess))
@@ -1121,7 +1121,7 @@ def _best_sweep(
         for dx in range(-r, r + 1):
             v = np.array([dx, dy], float)
             n = float(np.hypot(dx, dy))
-            if n < 1 or abs(n - length) > 3 or float(v @ unit) < n * np.cos(np.radians(turn_deg)):
+            if n < 1 or abs(n - length) > 3 or float(v @ unit) < n * np.cos(np.radians(15)):
                 continue
             score = float(vote[_sweep_layer(mask8, v)].sum())
             if score > best_score:
