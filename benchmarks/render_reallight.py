@@ -38,7 +38,7 @@ belong to the tuned set::
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
         dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
-        dev-window-low-steel-t15 dev-window-low-black-t10 \
+        dev-window-low-steel-t15 dev-window-low-black-t10 dev-window-low-steel2-t8 \
         dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27 \
         dev-spot-brass3-t20 dev-spot-steel4-t28 \
         dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25
