@@ -333,7 +333,10 @@ def _fade_beyond(
     steel disc's cut of 13 px left a ring 8-10 px wide beyond it: +12 % in area). Pixels outside
     the region that the cut swept on by the sweep's own vector reaches, with the paper's tint, at
     :data:`_FADE_LEVEL_RATIO` or more of the face's level (a dark face beside it is no fade) and
-    under :data:`_MAX_DEPTH` of the paper, reached from the cut, are that fade: they are painted
+    under :data:`_MAX_DEPTH` of the paper (and under the paper's level 4-16 px off the outline, which
+    the caller paints with), reached from the cut, are that fade, where the paper 4-16 px beyond the
+    cut along the sweep is still under :data:`_FADE_DIM` of the paper white (a soft shadow; beside a
+    hard one, a spot's, the paper there is lit and nothing is added): they are painted
     as paper with the cut (a shadow is paper in less light; they were never part of the region).
     Only beside a dark face (under :data:`DARK_FACE_LEVEL`), whatever its tint: a thick steel face half
     in the fade reads too faintly tinted for :func:`fade_cut` (the same render's bracket, -0.049 of its
@@ -361,6 +364,11 @@ def _fade_beyond(
     if np.count_nonzero(ring) < 20:
         return none
     paint = min(_MAX_DEPTH, float(np.median(sm[ring])))
+    # a soft shadow (a window's) still dims the paper 4-16 px beyond the outline on its side; a hard
+    # one's paper there is lit (a spot's: nothing beyond to paint)
+    far = zone & ring
+    if np.count_nonzero(far) < 20 or float(np.median(sm[far])) >= _FADE_DIM:
+        return none
     fade = zone & (sm >= _FADE_LEVEL_RATIO * face_level) & (sm < paint) & (np.abs(tint - face_tint) > np.abs(tint))
     if not fade.any():
         return none
