@@ -38,7 +38,7 @@ belong to the tuned set::
         --samples 20 --threads 1 --only dev-soft-brass-t25 dev-window-steel-t0 dev-window-black-t20 \
         dev-spot-steel-t20 dev-mixed-black-t15 dev-mixed-black-t0 \
         dev-spot-steel2-t10 dev-spot-steel3-t20 dev-window-steel2-t15 \
-        dev-window-low-steel-t15 dev-window-low-black-t10 \
+        dev-window-low-steel-t15 dev-window-low-black-t10 dev-window-low-steel2-t8 \
         dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27 \
         dev-spot-brass3-t20 dev-spot-steel4-t28 \
         dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25 \
@@ -712,6 +712,18 @@ def dev_scenes():
             -30,
             "Standard",
             18.0,
+        ),
+        # branch windowsteel12: thick brushed steel in low window light, a cam and an L bracket of about one
+        # thickness (the second witness of the light's direction and of the shadow's length)
+        (
+            "dev-window-low-steel2-t8",
+            "window",
+            [("cam", "brushed-steel", 5.5, 120, 100, 20), ("l-bracket", "brushed-steel", 5.0, 85, 195, 110)],
+            325,
+            8,
+            100,
+            "Standard",
+            24.0,
         ),
         # branch brass11: a thin brass L-bracket under the hard spot at a tilt (the lit-face join, then the
         # fragment merge and the shadow cut), beside a gasket; and a thin bracket beside a plate, the spot

@@ -460,21 +460,39 @@ def test_low_window_light_black_gasket_warned_and_covered():
     assert _covered(part, tp)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="dev-window-low-steel-t15 (window 20 degrees up, 15 degrees of tilt): the steel disc 6 mm thick is cut "
-    "along its shadow by 13 px where the shadow's grain ends at 18 px (its core as dark as the face, its grain "
-    "fading towards the wall: the half-way of the roughness falls short), and the shadow's rest beyond the cut is "
-    "merged back as a fragment (+12.1 % in area, centroid 3.17 mm); the L bracket 7 mm thick keeps its shadow: its "
-    "own sweep is refused, and along the disc's direction the fade test refuses its face as untinted (blue minus red "
-    "-0.049 of its level against the 0.05 step), so the core test reads the fade as the core (+35.6 %, centroid "
-    "3.19 mm; measured at 6 mm the face reads -0.060, the core is cut: -0.2 %). A half-way on a log scale of roughness cut the disc "
-    "to +5.9 % but moved seven tuned parts by up to 10 %",
-)
-def test_low_window_light_thick_steel_within_3_percent():
+def test_low_window_light_thick_steel_cut_by_the_photos_own_light():
+    """dev-window-low-steel-t15 (window 20 degrees up, 15 degrees of tilt; branch windowsteel12): a steel disc
+    6 mm and an L bracket 7 mm thick. The disc's cut was right, but painted as paper it left the shadow's fade
+    beyond the outline to read as a dark piece, merged back as a fragment: now that fade, swept on from the cut
+    along the sweep, is painted with it. The bracket's own sweep is refused; along the disc's direction (one
+    light) the fade test refused its face as untinted (blue minus red -0.049 of its level against the 0.05
+    step) and the core test read the whole cut as brighter than the face: the fade is now taken by level (3x
+    the face's) where the fade test refuses, and the sweep is held within 3 px of the disc's length (one
+    thickness given, one light: one shadow length; its own grain's half-way lay 10 px into its face: -13.9 %
+    without). Figures (thickness given): disc +11.90 % -> +0.79 %, centroid 3.12 -> 0.77 mm; bracket
+    +30.77 % -> +0.72 %, centroid 3.51 -> 1.27 mm. Truth: the render's outlines, areas and centroids by
+    shapely."""
     for shape in ("disc", "l-bracket"):
         m, part, tp = _part("dev-window-low-steel-t15", shape)
-        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
+        assert "shadow_cut" in part.uncertainty_terms, shape
+        assert any(w.startswith("cast shadow cut:") for w in m.warnings), shape
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape  # was +11.9 % / +30.8 %
+        assert math.dist(part.centroid_mm, tp["centroid"]) < 1.5, shape  # was 3.12 / 3.51 mm
+        assert _covered(part, tp), shape
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-low-steel-t15 after the cut (branch windowsteel12): the outline along the shadow sides "
+    "follows the grain, raggedly, in and out of the face by a few px; the centroids stay 0.77 mm (disc) and "
+    "1.27 mm (bracket) off, covered by the cut's terms (0.3 and 0.2 sigma), and one of the bracket's two holes "
+    "5.5 mm (found before the cut, 5.66 and 5.68 mm) is lost: the cut's ragged edge opens it",
+)
+def test_low_window_light_thick_steel_centroid_and_holes():
+    for shape in ("disc", "l-bracket"):
+        m, part, tp = _part("dev-window-low-steel-t15", shape)
+        assert math.dist(part.centroid_mm, tp["centroid"]) < 0.5, shape
+        assert len(part.holes) == len(tp["holes"]), shape
 
 
 def test_thin_brackets_leaning_camera_cut_to_the_visible_shadow():
@@ -755,3 +773,32 @@ def test_mixed_light_thick_black_plate_bores_traced_to_the_last_step():
         assert math.dist(hole.circle_centre_mm, centre) < 0.5
         assert abs(hole.diameter_mm - diameter) < 0.6  # were 1.35-1.58 mm small
         assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
+
+
+def test_low_window_light_steel_cam_cut_without_its_fade_merged_back():
+    """dev-window-low-steel2-t8 (branch windowsteel12; window 24 degrees up, 8 degrees of tilt): a steel cam
+    5.5 mm thick beside an L bracket 5 mm. The cam's cut along the bracket's shadow direction landed on its
+    outline, but the shadow's fade beyond it, left dim beside the painted cut, read as a dark piece and was
+    merged back as a fragment of the cam's grainy face: +13.62 % in area, centroid 2.36 mm. Painted with the
+    cut (segment.castshadow): +4.85 %, centroid 0.72 mm, the rest its 8 mm bore not found (warned 'possible
+    hidden hole', 50 mm2 of the truth). Truth: the render's outlines, area and centroid by shapely."""
+    m, part, tp = _part("dev-window-low-steel2-t8", "cam")
+    assert "fragments" not in part.uncertainty_terms
+    assert "shadow_cut" in part.uncertainty_terms
+    assert "hidden_hole" in part.uncertainty_terms
+    hole = math.pi * tp["holes"][0][1] ** 2 / 4  # the bore's area (its equal-area circle)
+    assert abs(part.area_mm2 - hole - tp["area"]) < 0.01 * tp["area"]  # was +13.6 % (+8.6 % with the bore)
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 1.0  # was 2.36 mm
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-low-steel2-t8 (branch windowsteel12): the cam's 8 mm bore is not found (a dark round pit "
+    "5.2 mm across, warned 'possible hidden hole': +4.85 %, centroid 0.72 mm), and the L bracket 5 mm keeps a "
+    "ragged strip of its shadow along its long side (+4.84 %, centroid 0.44 mm, 0.3 sigma, as before)",
+)
+def test_low_window_light_steel_cam_and_bracket_within_3_percent():
+    for shape in ("cam", "l-bracket"):
+        m, part, tp = _part("dev-window-low-steel2-t8", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape

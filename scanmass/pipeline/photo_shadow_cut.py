@@ -249,7 +249,8 @@ def _cut_cast_shadows(
     # a metal part whose own sweep was refused comes again after the others, its sweep then sought
     # along the shadow direction their cuts found (one light casts every shadow of a photo one way)
     todo: list[tuple[Part, bool]] = [(part, False) for part in result.parts]
-    swept: list[tuple[int, tuple[float, float]]] = []  # (cut px, direction) of the cuts found by a sweep
+    # (cut px, direction, length px) of the cuts found by a sweep
+    swept: list[tuple[int, tuple[float, float], float | None]] = []
     for part, later in todo:
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
@@ -291,16 +292,21 @@ def _cut_cast_shadows(
                 if coloured:
                     by_colour.add(id(part))
             if cut is not None and cut.direction is not None:
-                swept.append((cut.cut_px, cut.direction))
+                swept.append((cut.cut_px, cut.direction, cut.length_px))
             if cut is None and not dark and thickness_mm is not None:
                 if not later and not swept:
                     todo.append((part, True))  # again once the other parts' cuts are known
                     continue
                 if swept:
                     # along the photo's shadow direction (one light): an L bracket's own search ran
-                    # along its other arm's shadow (dev-window-steel-t0: +21.8 %)
-                    along = np.asarray(max(swept)[1], float)
-                    cut = core_cut(colour_lin, mask, risk.paper_rgb, band_px, along, code_step=step)
+                    # along its other arm's shadow (dev-window-steel-t0: +21.8 %); its length held near theirs: one thickness given,
+                    # one light, so one shadow's length (dev-window-low-steel-t15: the bracket cut 10 px
+                    # into its face along its arms where the half-way of its grain fell on its rough rim)
+                    witness = max(swept, key=lambda s: s[0])
+                    along = np.asarray(witness[1], float)
+                    cut = core_cut(
+                        colour_lin, mask, risk.paper_rgb, band_px, along, code_step=step, witness_px=witness[2]
+                    )
             if cut is None and not dark and thickness_mm is not None:
                 # a metal face as grainy as its shadow: the soft shadow's fade inside the outline
                 cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
