@@ -38,6 +38,7 @@ so that the photo is segmented again with it.
 from __future__ import annotations
 
 import math
+from collections.abc import Iterator
 from dataclasses import dataclass, replace
 
 import cv2
@@ -142,6 +143,39 @@ def _filled(rings: PartRings, box: tuple[int, int, int, int], shape: tuple[int, 
     for hole in rings.holes_px:
         cv2.fillPoly(mask, [np.round(hole - [x0, y0]).astype(np.int32)], 0)
     return mask
+
+
+@dataclass
+class _PartCrop:
+    """One uncut part's crop of a photo: its box (x0, y0, x1, y1), linear levels, its filled
+    region, the other parts' regions and the mat's clear area."""
+
+    rings: PartRings
+    box: tuple[int, int, int, int]
+    lin: np.ndarray
+    found: np.ndarray
+    others: np.ndarray
+    inside: np.ndarray
+
+
+def _part_crops(image: LoadedImage, parts: list[PartRings], roi_px: np.ndarray, pad: int) -> Iterator[_PartCrop]:
+    """The crop of each part not cut by the image edge, ``pad`` px around its box."""
+    grey, lut = image.grey, np.asarray(image.to_linear, np.float32)
+    height, width = grey.shape
+    for rings in parts:
+        if rings.cut:
+            continue
+        box = _crop_box(rings, width, height, pad)
+        x0, y0, x1, y1 = box
+        shape = (y1 - y0, x1 - x0)
+        found = _filled(rings, box, shape).astype(bool)
+        others = np.zeros(shape, bool)
+        for other in parts:
+            if other is not rings:
+                others |= _filled(other, box, shape).astype(bool)
+        inside = np.zeros(shape, np.uint8)
+        cv2.fillPoly(inside, [np.round(np.asarray(roi_px) - [x0, y0]).astype(np.int32)], 1)
+        yield _PartCrop(rings, box, lut[grey[y0:y1, x0:x1]], found, others, inside.astype(bool))
 
 
 def lost_face_regions(
@@ -253,29 +287,13 @@ def recover_lost_faces(
 
     Returns the parts (a part without a lost region unchanged) and the regions joined.
     """
-    grey, lut = image.grey, image.to_linear
-    height, width = grey.shape
-    pad = 30
-    out: list[PartRings] = []
+    replaced: dict[int, PartRings] = {}
     joined: list[LostFace] = []
-    for rings in parts:
-        if rings.cut:
-            out.append(rings)
-            continue
-        box = _crop_box(rings, width, height, pad)
-        x0, y0, x1, y1 = box
-        shape = (y1 - y0, x1 - x0)
-        lin = np.asarray(lut, np.float32)[grey[y0:y1, x0:x1]]
-        found = _filled(rings, box, shape).astype(bool)
-        others = np.zeros(shape, bool)
-        for other in parts:
-            if other is not rings:
-                others |= _filled(other, box, shape).astype(bool)
-        inside = np.zeros(shape, np.uint8)
-        cv2.fillPoly(inside, [np.round(np.asarray(roi_px) - [x0, y0]).astype(np.int32)], 1)
-        extra, notes = lost_face_regions(lin, found, others, inside.astype(bool))
+    for crop in _part_crops(image, parts, roi_px, pad=30):
+        rings, lin, found, others, inside = crop.rings, crop.lin, crop.found, crop.others, crop.inside
+        x0, y0 = crop.box[:2]
+        extra, notes = lost_face_regions(lin, found, others, inside)
         if not notes:
-            out.append(rings)
             continue
         merged = (found | extra).astype(np.uint8)
         contours, hierarchy = cv2.findContours(merged, cv2.RETR_CCOMP, cv2.CHAIN_APPROX_SIMPLE, offset=(x0, y0))
@@ -288,7 +306,7 @@ def recover_lost_faces(
             holes.append(contours[child])
             child = hierarchy[0][child][0]
         bx, by, bw, bh = cv2.boundingRect(contours[outer_idx])
-        beyond = ~cv2.dilate(merged, np.ones((17, 17), np.uint8)).astype(bool) & ~others & inside.astype(bool)
+        beyond = ~cv2.dilate(merged, np.ones((17, 17), np.uint8)).astype(bool) & ~others & inside
         paper_level = float(np.percentile(lin[beyond], 75)) if beyond.any() else float(lin.max())
         ratio = float(np.median(lin[merged.astype(bool)])) / max(paper_level, 1e-6)
         again = refine_region(
@@ -296,11 +314,10 @@ def recover_lost_faces(
             min_hole_px=min_hole_px, ratio_hint=ratio,
         )  # fmt: skip
         if again is None or not math.isfinite(again.area_px) or again.area_px <= rings.area_px:
-            out.append(rings)
             continue
-        out.append(again)
+        replaced[id(rings)] = again
         joined += [LostFace(rings.label, n.area_px, n.step_share, n.darker_share) for n in notes]
-    return out, joined
+    return [replaced.get(id(rings), rings) for rings in parts], joined
 
 
 #: A brushed face's grain: the energy of log luma less its 5 px median (a level step keeps its
@@ -564,25 +581,12 @@ def recover_grain_faces(
     and the regions joined (``centre_px`` in image pixels).
     """
     grey, lut = image.grey, np.asarray(image.to_linear, np.float32)
-    height, width = grey.shape
-    pad = 40
     painted: np.ndarray | None = None
     joined: list[GrainFace] = []
-    for rings in parts:
-        if rings.cut:
-            continue
-        box = _crop_box(rings, width, height, pad)
-        x0, y0, x1, y1 = box
-        shape = (y1 - y0, x1 - x0)
-        lin = lut[grey[y0:y1, x0:x1]]
-        found = _filled(rings, box, shape).astype(bool)
-        others = np.zeros(shape, bool)
-        for other in parts:
-            if other is not rings:
-                others |= _filled(other, box, shape).astype(bool)
-        inside = np.zeros(shape, np.uint8)
-        cv2.fillPoly(inside, [np.round(np.asarray(roi_px) - [x0, y0]).astype(np.int32)], 1)
-        share, region, notes = grain_face_regions(lin, found, others, inside.astype(bool))
+    for crop in _part_crops(image, parts, roi_px, pad=40):
+        lin, found, others, inside = crop.lin, crop.found, crop.others, crop.inside
+        x0, y0, x1, y1 = crop.box
+        share, region, notes = grain_face_regions(lin, found, others, inside)
         if not notes:
             continue
         face = lin[cv2.erode(found.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)]
@@ -590,7 +594,7 @@ def recover_grain_faces(
             continue
         face_level = float(np.median(face))
         beyond = ~cv2.dilate((found | region).astype(np.uint8), np.ones((9, 9), np.uint8)).astype(bool)
-        beyond &= ~others & inside.astype(bool)
+        beyond &= ~others & inside
         paper_level = float(np.percentile(lin[beyond], 75)) if beyond.any() else float(lin.max())
         band = share > 0
         paint = paper_level + (face_level - paper_level) * share
