@@ -175,7 +175,7 @@ def test_hidden_shadow_bounds_what_the_cut_leaves(width_px, shade, grain):
     half a pixel to 8 px wide. The bound is not the whole band either: at most the shadow plus
     2.5 px along the outline (288 px long), against the 12 px band (about 3000 px) colour leaves open.
     """
-    from scanmass.segment.castshadow import hidden_shadow
+    from scanmass.segment.hiddenshadow import hidden_shadow
 
     img, found, paper, shadow_px = _face_with_shadow_layer(width_px, shade, grain)
     bound = hidden_shadow(img, found, paper, reach_px=12)

@@ -25,7 +25,7 @@ from scanmass.pipeline.part_terms import (
 from scanmass.pipeline.photo_checks import _part_crop
 from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM
 from scanmass.scale.camera import PhotoScale
-from scanmass.segment.castshadow import hidden_shadow
+from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
     looks_like_lit_white,
@@ -167,7 +167,7 @@ def _cast_shadows(
     :data:`~scanmass.segment.shadow.SHADOW_FRACTION` of it is shadow-like, the part may
     include its shadow: an uncertainty term ``cast_shadow`` and a warning with what to change.
     The term is half the shadow-like area that the layers beside the edge leave open
-    (:func:`~scanmass.segment.castshadow.hidden_shadow`: along each stretch of the outline
+    (:func:`~scanmass.segment.hiddenshadow.hidden_shadow`: along each stretch of the outline
     where the face begins next to the edge, at the face's level and no grainier than it, only
     the pixels nearer the outline than that; elsewhere the whole band), with the matching
     centroid and moment terms, and each hole's diameter the depth left open along its own
