@@ -31,6 +31,16 @@ def test_code_percentile_is_numpys_to_the_bit() -> None:
             assert _code_percentile(grey, mask, lut, q) == float(np.percentile(lut[grey][mask], q))
 
 
+def test_code_percentile_over_bands_of_a_large_image() -> None:
+    rng = np.random.default_rng(11)
+    grey = rng.integers(0, 256, (3000, 3000)).astype(np.uint8)  # counted in two bands
+    lut = (np.linspace(0.0, 1.0, 256) ** 2.2).astype(np.float32)
+    mask = np.zeros(grey.shape, np.uint8)
+    cv2.fillPoly(mask, [np.array([[100, 50], [2900, 300], [2600, 2950], [200, 2700]], np.int32)], 1)
+    # reference: numpy's percentile (linear) of the levels themselves
+    assert _code_percentile(grey, mask, lut, 90) == float(np.percentile(lut[grey][mask.astype(bool)], 90))
+
+
 def test_rim_points_have_the_whole_masks_hull() -> None:
     rng = np.random.default_rng(3)
     for _ in range(300):

@@ -327,12 +327,21 @@ def _code_percentile(grey: np.ndarray, mask: np.ndarray, lut: np.ndarray, q: flo
 
     The two order statistics the percentile interpolates between are found from the counts of
     each code within ``mask``; their interpolation is numpy's own (a two-sample quantile at the
-    same fraction, which it computes exactly so).
+    same fraction, which it computes exactly so). ``mask``: bool, or uint8 (nonzero selected).
     """
-    counts = np.bincount(grey[mask].ravel(), minlength=len(lut))
+    mask8 = mask.view(np.uint8) if mask.dtype == bool else mask
+    if grey.dtype == np.uint8 and len(lut) == 256 and grey.ndim == 2 and grey.shape[1] > 0:
+        # counts in bands of fewer than 2**24 px, so each band's float32 counts are exact integers
+        rows = max(1, (1 << 23) // grey.shape[1])
+        counts = np.zeros(256, np.int64)
+        for r in range(0, grey.shape[0], rows):
+            hist = cv2.calcHist([grey[r : r + rows]], [0], mask8[r : r + rows], [256], [0, 256])
+            counts += hist.ravel().astype(np.int64)
+    else:
+        counts = np.bincount(grey[mask8.astype(bool)].ravel(), minlength=len(lut))
     n = int(counts.sum())
     if n == 0:
-        return float(np.percentile(lut[grey[mask]], q))  # numpy's own answer for an empty selection
+        return float(np.percentile(lut[grey[mask8.astype(bool)]], q))  # numpy's own answer for an empty selection
     order = np.argsort(lut, kind="stable")
     cum = np.cumsum(counts[order])
     virtual = (n - 1) * np.true_divide(q, 100)
@@ -355,8 +364,7 @@ def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measuremen
     height, width = grey.shape
     inside = np.zeros((height, width), np.uint8)
     cv2.fillPoly(inside, [np.round(scale.roi_px).astype(np.int32)], 1)
-    roi = inside.astype(bool)
-    paper = _code_percentile(grey, roi, lut, 90)
+    paper = _code_percentile(grey, inside, lut, 90)
     pad = SURROUND_PX[1] + 1
     out = []
     for part in result.parts:
@@ -371,7 +379,7 @@ def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measuremen
         cv2.fillPoly(mask, [poly - np.array([x0, y0], np.int32)], 1)
         near = cv2.dilate(mask, np.ones((2 * SURROUND_PX[0] + 1,) * 2, np.uint8)).astype(bool)
         far = cv2.dilate(mask, np.ones((2 * SURROUND_PX[1] + 1,) * 2, np.uint8)).astype(bool)
-        band = far & ~near & roi[y0:y1, x0:x1]
+        band = far & ~near & inside[y0:y1, x0:x1].astype(bool)
         if np.count_nonzero(band) < 20:
             continue
         out.append(
