@@ -322,30 +322,69 @@ SURROUND_PX = (3, 9)
 SURROUND_SHARE = 0.8
 
 
+def _code_percentile(grey: np.ndarray, mask: np.ndarray, lut: np.ndarray, q: float) -> float:
+    """``np.percentile(lut[grey][mask], q)`` (linear), read from the codes' histogram, to the bit.
+
+    The two order statistics the percentile interpolates between are found from the counts of
+    each code within ``mask``; their interpolation is numpy's own (a two-sample quantile at the
+    same fraction, which it computes exactly so). ``mask``: bool, or uint8 (nonzero selected).
+    """
+    mask8 = mask.view(np.uint8) if mask.dtype == bool else mask
+    if grey.dtype == np.uint8 and len(lut) == 256 and grey.ndim == 2 and grey.shape[1] > 0:
+        # counts in bands of fewer than 2**24 px, so each band's float32 counts are exact integers
+        rows = max(1, (1 << 23) // grey.shape[1])
+        counts = np.zeros(256, np.int64)
+        for r in range(0, grey.shape[0], rows):
+            hist = cv2.calcHist([grey[r : r + rows]], [0], mask8[r : r + rows], [256], [0, 256])
+            counts += hist.ravel().astype(np.int64)
+    else:
+        counts = np.bincount(grey[mask8.astype(bool)].ravel(), minlength=len(lut))
+    n = int(counts.sum())
+    if n == 0:
+        return float(np.percentile(lut[grey[mask8.astype(bool)]], q))  # numpy's own answer for an empty selection
+    order = np.argsort(lut, kind="stable")
+    cum = np.cumsum(counts[order])
+    virtual = (n - 1) * np.true_divide(q, 100)
+    below = int(math.floor(virtual))
+    low = lut[order[int(np.searchsorted(cum, below, side="right"))]]
+    high = lut[order[int(np.searchsorted(cum, min(below + 1, n - 1), side="right"))]]
+    return float(np.quantile(np.array([low, high], lut.dtype), float(virtual - below)))
+
+
 def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measurement) -> list[tuple[int, float]]:
     """Per part: its label and the share of the band beyond its outline brighter than the paper.
 
     The band: :data:`SURROUND_PX` px beyond the part's outline in the photo, within the mat's clear
     area; brighter: above the paper's level (90th percentile of the clear area) by
-    :data:`BRIGHTER_SURROUND_SHARE` of it.
+    :data:`BRIGHTER_SURROUND_SHARE` of it. Each part's band is formed in a crop around it (the band
+    lies within :data:`SURROUND_PX` px of the outline), and levels are looked up for its pixels only.
     """
-    lin = np.asarray(image.to_linear, np.float32)[image.grey]
-    inside = np.zeros(lin.shape, np.uint8)
+    lut = np.asarray(image.to_linear, np.float32)
+    grey = image.grey
+    height, width = grey.shape
+    inside = np.zeros((height, width), np.uint8)
     cv2.fillPoly(inside, [np.round(scale.roi_px).astype(np.int32)], 1)
-    roi = inside.astype(bool)
-    paper = float(np.percentile(lin[roi], 90))
+    paper = _code_percentile(grey, inside, lut, 90)
+    pad = SURROUND_PX[1] + 1
     out = []
     for part in result.parts:
         if part.outline_mm is None:
             continue
-        mask = np.zeros(lin.shape, np.uint8)
-        cv2.fillPoly(mask, [np.round(_image_px(scale, np.asarray(part.outline_mm, float))).astype(np.int32)], 1)
+        poly = np.round(_image_px(scale, np.asarray(part.outline_mm, float))).astype(np.int32)
+        x0, y0 = (max(int(v) - pad, 0) for v in poly.min(axis=0))
+        x1, y1 = min(int(poly[:, 0].max()) + pad + 1, width), min(int(poly[:, 1].max()) + pad + 1, height)
+        if x1 <= x0 or y1 <= y0:
+            continue  # the outline lies off the photo: no band within it
+        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+        cv2.fillPoly(mask, [poly - np.array([x0, y0], np.int32)], 1)
         near = cv2.dilate(mask, np.ones((2 * SURROUND_PX[0] + 1,) * 2, np.uint8)).astype(bool)
         far = cv2.dilate(mask, np.ones((2 * SURROUND_PX[1] + 1,) * 2, np.uint8)).astype(bool)
-        band = far & ~near & roi
+        band = far & ~near & inside[y0:y1, x0:x1].astype(bool)
         if np.count_nonzero(band) < 20:
             continue
-        out.append((part.label, float(np.mean(lin[band] > paper * (1.0 + BRIGHTER_SURROUND_SHARE)))))
+        out.append(
+            (part.label, float(np.mean(lut[grey[y0:y1, x0:x1][band]] > paper * (1.0 + BRIGHTER_SURROUND_SHARE))))
+        )
     return out
 
 

@@ -178,6 +178,17 @@ def _part_crops(image: LoadedImage, parts: list[PartRings], roi_px: np.ndarray, 
         yield _PartCrop(rings, box, lut[grey[y0:y1, x0:x1]], found, others, inside.astype(bool))
 
 
+def _rim_points(mask: np.ndarray) -> np.ndarray:
+    """The pixels of ``mask`` (uint8) with a 4-neighbour outside it (the crop's edge counts as outside).
+
+    A pixel with all four neighbours in the mask lies strictly inside their convex hull, so these
+    pixels have the same convex hull as the whole mask, at a fraction of its points.
+    """
+    cross = cv2.getStructuringElement(cv2.MORPH_CROSS, (3, 3))
+    inner = cv2.erode(mask, cross, borderType=cv2.BORDER_CONSTANT, borderValue=0)
+    return cv2.findNonZero(mask - inner)
+
+
 def lost_face_regions(
     lin: np.ndarray, found: np.ndarray, others: np.ndarray, inside: np.ndarray
 ) -> tuple[np.ndarray, list[LostFace]]:
@@ -227,8 +238,7 @@ def lost_face_regions(
         return np.zeros_like(found, bool), []
     touching = cv2.dilate(found_u8, kernel).astype(bool)
     hull = np.zeros_like(found_u8)
-    points = cv2.findNonZero(found_u8)
-    cv2.fillConvexPoly(hull, cv2.convexHull(points), 1)
+    cv2.fillConvexPoly(hull, cv2.convexHull(_rim_points(found_u8)), 1)
     hull = hull.astype(bool)
     found_area = float(np.count_nonzero(found))
     accepted = np.zeros_like(found, bool)
@@ -462,16 +472,19 @@ def grain_face_regions(
 
     share = np.zeros(found.shape, np.float32)
     core = grainy & (dist_out > GRAIN_CORE_PX)
-    count, labels = cv2.connectedComponents(core.astype(np.uint8), connectivity=8)
-    near = cv2.dilate(found_u8, np.ones((2 * int(GRAIN_CORE_PX) + 3,) * 2, np.uint8)).astype(bool)
     candidates = np.zeros(found.shape, bool)
-    for k in range(1, count):
-        comp = labels == k
-        if (comp & near).any():
-            candidates |= comp
+    if core.any():  # without a grainy core there is no candidate, and nothing is joined but a bridge
+        count, labels = cv2.connectedComponents(core.astype(np.uint8), connectivity=8)
+        near = cv2.dilate(found_u8, np.ones((2 * int(GRAIN_CORE_PX) + 3,) * 2, np.uint8)).astype(bool)
+        for k in range(1, count):
+            comp = labels == k
+            if (comp & near).any():
+                candidates |= comp
     # the face's own grain energy beside each place, for the edge at half of it
-    closed = cv2.morphologyEx(candidates.astype(np.uint8), cv2.MORPH_CLOSE, np.ones((5, 5), np.uint8))
-    face_core = candidates & (cv2.distanceTransform(closed, cv2.DIST_L2, 3) > 3)
+    face_core = candidates
+    if candidates.any():
+        closed = cv2.morphologyEx(candidates.astype(np.uint8), cv2.MORPH_CLOSE, np.ones((5, 5), np.uint8))
+        face_core = candidates & (cv2.distanceTransform(closed, cv2.DIST_L2, 3) > 3)
     if np.count_nonzero(face_core) >= 20:
         face_energy = _masked_blur(energy, face_core, GRAIN_FACE_SIGMA_PX, float(np.median(energy[face_core])))
         share = np.clip((energy - floor) / np.maximum(face_energy - floor, 1e-6), 0.0, 1.0)
@@ -497,8 +510,10 @@ def grain_face_regions(
                 continue  # its energy is a few steps (a ragged edge, a painted cut's rim), not a dense grain
             joined |= comp
             note(comp)
-    band = cv2.dilate(joined.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool) & ~found & ~others
-    out = np.where(band, share, 0.0).astype(np.float32)
+    out = np.zeros(found.shape, np.float32)  # nothing joined: no band, a share of 0 everywhere
+    if joined.any():
+        band = cv2.dilate(joined.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool) & ~found & ~others
+        out = np.where(band, share, 0.0).astype(np.float32)
     # a ring found as a C: the lit stretch that closes it, grainy and no wider than a closing spans
     bridge = _grain_bridge(found | joined, (root > least) & ~joined & ~others & inside)
     if bridge is not None and np.count_nonzero(bridge & ~found) <= GRAIN_BRIDGE_SHARE * found_area:
