@@ -149,6 +149,14 @@ def _top_circle(
     return np.asarray(fit.centre_mm, float), float(fit.diameter_mm), fit.rms_mm / mm_per_px, doubt_px
 
 
+def _wall_band_px(seed: np.ndarray, origin: tuple[int, int], hook: ElevationHook) -> float:
+    """The width (px) of a hole's far wall as the photo sees it: the parallax of the part's thickness at the seed's centre."""
+    ys, xs = np.nonzero(seed)
+    at_px = np.array([[xs.mean() + origin[0], ys.mean() + origin[1]]], float)
+    ideal = hook.undistort(at_px) if hook.undistort is not None else at_px
+    return float(np.hypot(*(ideal - apply_h(hook.to_footprint, ideal))[0]))
+
+
 def _deep_hole_circles(
     image: LoadedImage, scale: PhotoScale, part: Part, hook: ElevationHook, lut: np.ndarray
 ) -> list[tuple[np.ndarray, float, float, np.ndarray | None]]:
@@ -191,15 +199,11 @@ def _deep_hole_circles(
         r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
         thick_px = hook.height_mm / mm_per_px
         edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
-        # the far wall's band: the parallax of the part's thickness at the hole (px)
-        at_px = np.asarray([[xs.mean() + sx0, ys.mean() + sy0] for ys, xs in [np.nonzero(seed)]], float)
-        ideal = hook.undistort(at_px) if hook.undistort is not None else at_px
-        band_px = float(np.hypot(*(ideal - apply_h(hook.to_footprint, ideal))[0]))
         fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
         if (
-            band_px >= DEEP_HOLE_STEP_BAND_PX
-            and (edge is None or edge.share < DEEP_HOLE_STEP_SHARE)
+            (edge is None or edge.share < DEEP_HOLE_STEP_SHARE)
             and (fit is None or fit[2] > DEEP_HOLE_STEP_RMS_PX)
+            and _wall_band_px(seed, (sx0, sy0), hook) >= DEEP_HOLE_STEP_BAND_PX
         ):
             # most rays found no midpoint near the opening's border, and what they found is no clean circle:
             # a wall's band of its own level lies between the floor and the face; the border is the last

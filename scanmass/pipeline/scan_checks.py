@@ -236,6 +236,11 @@ def _doubt_term(
     return area_share_term(part, face.doubt_px2 * plane_map.mm_per_px**2)
 
 
+def _area_diameter_px(ring: np.ndarray) -> float:
+    """The diameter (px) of the circle with the ring's area."""
+    return 2.0 * math.sqrt(abs(float(cv2.contourArea(ring.astype(np.float32)))) / math.pi)
+
+
 def _with_hole_doubt(part: Part, face: FaceResult, mm_per_px: float) -> Part:
     """Each hole's diameter uncertainty joined by its change to the other reading's nearest hole (whole, 1 sigma).
 
@@ -246,11 +251,11 @@ def _with_hole_doubt(part: Part, face: FaceResult, mm_per_px: float) -> Part:
     if not other:
         return part
     centres = np.array([h.mean(axis=0) for h in other])
-    sizes = np.array([2.0 * math.sqrt(abs(float(cv2.contourArea(h.astype(np.float32)))) / math.pi) for h in other])
+    sizes = np.array([_area_diameter_px(h) for h in other])
     holes = []
     for hole, ring in zip(part.holes, face.holes_px):
         ring = np.asarray(ring, float)
-        d_px = 2.0 * math.sqrt(abs(float(cv2.contourArea(ring.astype(np.float32)))) / math.pi)
+        d_px = _area_diameter_px(ring)
         dist = np.hypot(*(centres - ring.mean(axis=0)).T)
         k = int(np.argmin(dist))
         if dist[k] > 0.5 * d_px:

@@ -539,10 +539,15 @@ GRAIN_BRIDGE_SHARE = 0.3
 GRAIN_BRIDGE_HOLE_PX = 50
 
 
+def _border_labels(labels: np.ndarray) -> set[int]:
+    """The labels of the components that touch the crop's border (not enclosed)."""
+    return set(np.unique(np.concatenate([labels[0], labels[-1], labels[:, 0], labels[:, -1]])).tolist())
+
+
 def _enclosed(mask: np.ndarray) -> int:
     """The count of openings of at least :data:`GRAIN_BRIDGE_HOLE_PX` px that ``mask`` encloses."""
     count, labels, stats, _ = cv2.connectedComponentsWithStats((~mask).astype(np.uint8), connectivity=4)
-    edge = set(np.unique(np.concatenate([labels[0], labels[-1], labels[:, 0], labels[:, -1]])).tolist())
+    edge = _border_labels(labels)
     return sum(1 for k in range(1, count) if k not in edge and stats[k, cv2.CC_STAT_AREA] >= GRAIN_BRIDGE_HOLE_PX)
 
 
@@ -574,7 +579,7 @@ def _small_gaps_filled(comp: np.ndarray) -> np.ndarray:
     if count <= 2:
         return comp
     dist = cv2.distanceTransform(outside, cv2.DIST_L2, 3)
-    edge = set(np.unique(np.concatenate([labels[0], labels[-1], labels[:, 0], labels[:, -1]])).tolist())
+    edge = _border_labels(labels)
     out = comp.copy()
     for k in range(1, count):
         if k in edge:
