@@ -279,7 +279,7 @@ def _shadow_cut(
     cut = _sweep_layer(swept.astype(np.uint8), depth_px * unit) & part_mask
     if direction is not None:
         # a tinted face (steel in window light): its pixels are no shadow (the shadow keeps the paper's tint)
-        tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+        tint = _tint(smooth, sm)
         face_tint = float(np.median(tint[interior]))
         if abs(face_tint) >= _DARK_CHROMA_STEP:
             cut &= ~(np.abs(tint - face_tint) < np.abs(tint))
@@ -361,7 +361,7 @@ def _fade_beyond(
     """
     none = np.zeros(part_mask.shape, bool)
     sm = smooth.mean(axis=2)
-    tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+    tint = _tint(smooth, sm)
     face_level = float(np.median(sm[interior]))
     face_tint = float(np.median(tint[interior]))
     if not 0 < face_level < DARK_FACE_LEVEL:
@@ -396,6 +396,11 @@ _DARK_CHROMA_STEP = 0.05
 _DARK_TINT_MAX = 0.5
 
 
+def _tint(smooth: np.ndarray, level: np.ndarray) -> np.ndarray:
+    """Blue minus red over the level, per pixel, of colours taken over the paper white (the paper's 0)."""
+    return np.asarray((smooth[..., 2] - smooth[..., 0]) / np.maximum(level, 1e-6))
+
+
 def _reached(like: np.ndarray, part_mask: np.ndarray, inside: np.ndarray) -> np.ndarray:
     """The pieces of ``like`` reached from the region's boundary (a pixel within 1.5 px of it)."""
     count, labels = cv2.connectedComponents(like.astype(np.uint8), connectivity=8)
@@ -427,7 +432,7 @@ def _dark_face_alike(smooth: np.ndarray, interior: np.ndarray) -> np.ndarray:
         return np.zeros(sm.shape, bool)
     ratio = np.maximum(sm, face_level) / np.maximum(np.minimum(sm, face_level), 1e-6)
     alike = ratio < _LEVEL_STEP_RATIO
-    tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+    tint = _tint(smooth, sm)
     face_tint = float(np.median(tint[interior]))
     if abs(face_tint) >= _DARK_CHROMA_STEP:
         # the paper's tint is 0 (the colour is taken over its white): nearer the face's
@@ -493,7 +498,7 @@ def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarra
     if np.count_nonzero(interior) < 50:
         return None
     face_level = float(np.median(sm[interior]))
-    tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+    tint = _tint(smooth, sm)
     face_tint = float(np.median(tint[interior]))
     if not 0 < face_level < DARK_FACE_LEVEL or abs(face_tint) < _DARK_CHROMA_STEP:
         return None
@@ -1173,7 +1178,7 @@ def _tinted_face_alike(smooth: np.ndarray, interior: np.ndarray) -> np.ndarray:
     lo, hi = np.quantile(sm[interior], [0.1, 0.9])
     if hi > _TINTED_FACE_SPREAD * max(float(lo), 1e-6):
         return none
-    tint = (smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6)
+    tint = _tint(smooth, sm)
     face_tint = float(np.median(tint[interior]))
     if not _TINTED_FACE_TINT <= abs(face_tint) <= _DARK_TINT_MAX:
         return none
@@ -1207,7 +1212,7 @@ def _is_dark(smooth: np.ndarray, interior: np.ndarray) -> bool:
     face_level = float(np.median(sm[interior]))
     if not 0 < face_level < DARK_FACE_LEVEL:
         return False
-    tint = abs(float(np.median(((smooth[..., 2] - smooth[..., 0]) / np.maximum(sm, 1e-6))[interior])))
+    tint = abs(float(np.median(_tint(smooth, sm)[interior])))
     return 2 * _DARK_CHROMA_STEP <= tint <= _DARK_TINT_MAX
 
 
