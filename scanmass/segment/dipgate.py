@@ -25,17 +25,28 @@ runs unchanged, so the pre-test never changes a result, only skips work.
 from __future__ import annotations
 
 from collections.abc import Callable
+from dataclasses import dataclass
 
+import cv2
 import numpy as np
 
 from scanmass.load.decode import lookup
 
-__all__ = ["surface_bounds", "dips_possible"]
+__all__ = ["surface_bounds", "dips_possible", "WindowRegion"]
 
 #: Margin (linear light) on every threshold: far above the float32 rounding of the
 #: normalised values (~1e-7; the surfaces' own rounding is in their bounds), so that the
 #: test stays a superset.
 MARGIN_LINEAR = 1e-4
+
+
+@dataclass(frozen=True)
+class WindowRegion:
+    """A region of the crop given in a window of it: ``inside`` over ``window``, every pixel beyond it ``beyond``."""
+
+    window: tuple[slice, slice]
+    inside: np.ndarray
+    beyond: bool
 
 
 def surface_bounds(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> tuple[float, float]:
@@ -83,8 +94,9 @@ def dips_possible(
         The crop's stored codes; ``table[codes]`` is its linear light.
     table : ndarray
         The image's lookup table, code -> linear light.
-    regions : ((H, W) bool, (H, W) bool)
-        The pixels searched inside the part (slots) and outside it (walls).
+    regions : ((H, W) bool or WindowRegion, (H, W) bool or WindowRegion)
+        The pixels searched inside the part (slots) and outside it (walls), each as a
+        crop-sized mask or as a :class:`WindowRegion` (the same pixels).
     bg_fit, fg_fit : callable
         The background's and the part's level surfaces, functions of (row, col).
     limit : float
@@ -114,7 +126,21 @@ def dips_possible(
     for region, table_dip in zip(regions, (inside_dip, outside_dip)):
         if not table_dip.any():
             continue
-        may = lookup(table_dip.astype(np.uint8), codes)
+        tab = table_dip.astype(np.uint8)
+        if isinstance(region, WindowRegion):
+            if not region.beyond:  # nothing beyond the window: only its codes are read
+                may = lookup(tab, codes[region.window])
+                if np.any(may.view(bool) & region.inside):
+                    return True
+                continue
+            may = lookup(tab, codes)
+            held = may[region.window]
+            if np.any(held.view(bool) & region.inside):
+                return True
+            if cv2.countNonZero(may) > cv2.countNonZero(held):  # a pixel beyond the window may dip
+                return True
+            continue
+        may = lookup(tab, codes)
         if np.any(may.view(bool) & region):
             return True
     return False

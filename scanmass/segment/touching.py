@@ -80,10 +80,14 @@ def _local_peaks(image: np.ndarray, min_distance: int, threshold_abs: float, lab
     coord = np.transpose(np.nonzero(peak))
     coord = coord[np.argsort(-img[peak], kind="stable")]
     if d > 1 and len(coord) > 1:
+        # a candidate is kept unless a peak kept before it lies less than d away (Chebyshev):
+        # within the (2 d - 1)-square around it, marked on a grid as each peak is kept
+        near = np.zeros(img.shape, bool)
         kept: list[int] = []
-        for k in range(len(coord)):
-            if not kept or np.abs(coord[kept] - coord[k]).max(axis=1).min() >= d:
+        for k, (r, c) in enumerate(coord.tolist()):
+            if not near[r, c]:
                 kept.append(k)
+                near[max(r - d + 1, 0) : r + d, max(c - d + 1, 0) : c + d] = True
         coord = coord[kept]
     return coord + [r0, c0]
 
