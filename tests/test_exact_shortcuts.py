@@ -186,3 +186,47 @@ def test_split_touching_with_the_screen_is_the_full_search() -> None:
             assert full.cut_px == screened.cut_px and full.seam_depth == screened.seam_depth
             assert all(np.array_equal(a[0], b[0]) for a, b in zip(full.lobes, screened.lobes))
     assert found >= 4
+
+
+def test_dip_pre_test_on_windows_is_the_crop_wide_lookup() -> None:
+    """dips_possible given its regions as windows (the least and largest code of each, where the codes
+    that may dip run from an end of the table) answers as with crop-sized masks (every code looked up,
+    the reference): monotone and scrambled tables, dark and bright parts, regions empty, inside the
+    window only and reaching beyond it, both answers seen."""
+    from scanmass.segment.dipgate import WindowRegion, dips_possible
+
+    rng = np.random.default_rng(29)
+    answers = set()
+    for case in range(1500):
+        h, w = (int(v) for v in rng.integers(10, 90, 2))
+        table = np.sort(rng.uniform(0.0, 1.0, 256)).astype(np.float32)
+        if case % 5 == 0:
+            table = rng.permutation(table)  # not monotone: the codes that may dip need not be one run
+        part, paper = sorted(rng.uniform(0.05, 0.95, 2)) if case % 2 else sorted(rng.uniform(0.05, 0.95, 2))[::-1]
+        codes = np.clip(rng.normal(128, float(rng.uniform(5, 80)), (h, w)), 0, 255).astype(np.uint8)
+        if case % 3 == 0:  # one code everywhere but a few pixels: where they lie decides
+            codes[:] = int(rng.integers(0, 256))
+            k = int(rng.integers(1, 4))
+            codes[rng.integers(0, h, k), rng.integers(0, w, k)] = rng.integers(0, 256, k)
+        regions = []
+        for beyond in (False, True):
+            r0, r1 = sorted(int(v) for v in rng.integers(0, h + 1, 2))
+            c0, c1 = sorted(int(v) for v in rng.integers(0, w + 1, 2))
+            r1, c1 = max(r1, r0 + 1), max(c1, c0 + 1)
+            inside = rng.uniform(size=(min(r1, h) - r0, min(c1, w) - c0)) < rng.uniform(0.0, 0.6)
+            window = (slice(r0, min(r1, h)), slice(c0, min(c1, w)))
+            regions.append(WindowRegion(window, inside, beyond))
+        full = []
+        for region in regions:
+            mask = np.full((h, w), region.beyond)
+            mask[region.window] = region.inside
+            full.append(mask)
+        limit = float(rng.uniform(0.01, 0.6))
+
+        def flat(level):
+            return lambda r, c: np.full(np.shape(r), level)
+
+        got = dips_possible(codes, table, tuple(regions), flat(paper), flat(part), limit)
+        assert got == dips_possible(codes, table, tuple(full), flat(paper), flat(part), limit)
+        answers.add(got)
+    assert answers == {True, False}
