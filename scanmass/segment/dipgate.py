@@ -81,7 +81,7 @@ def surface_bounds(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> tu
 def dips_possible(
     codes: np.ndarray,
     table: np.ndarray,
-    regions: tuple[np.ndarray, np.ndarray],
+    regions: tuple[np.ndarray | WindowRegion, np.ndarray | WindowRegion],
     bg_fit: Callable[..., np.ndarray],
     fg_fit: Callable[..., np.ndarray],
     limit: float,
