@@ -25,17 +25,28 @@ runs unchanged, so the pre-test never changes a result, only skips work.
 from __future__ import annotations
 
 from collections.abc import Callable
+from dataclasses import dataclass
 
+import cv2
 import numpy as np
 
 from scanmass.load.decode import lookup
 
-__all__ = ["surface_bounds", "dips_possible"]
+__all__ = ["surface_bounds", "dips_possible", "WindowRegion"]
 
 #: Margin (linear light) on every threshold: far above the float32 rounding of the
 #: normalised values (~1e-7; the surfaces' own rounding is in their bounds), so that the
 #: test stays a superset.
 MARGIN_LINEAR = 1e-4
+
+
+@dataclass(frozen=True)
+class WindowRegion:
+    """A region of the crop given in a window of it: ``inside`` over ``window``, every pixel beyond it ``beyond``."""
+
+    window: tuple[slice, slice]
+    inside: np.ndarray
+    beyond: bool
 
 
 def surface_bounds(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> tuple[float, float]:
@@ -70,7 +81,7 @@ def surface_bounds(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> tu
 def dips_possible(
     codes: np.ndarray,
     table: np.ndarray,
-    regions: tuple[np.ndarray, np.ndarray],
+    regions: tuple[np.ndarray | WindowRegion, np.ndarray | WindowRegion],
     bg_fit: Callable[..., np.ndarray],
     fg_fit: Callable[..., np.ndarray],
     limit: float,
@@ -83,8 +94,9 @@ def dips_possible(
         The crop's stored codes; ``table[codes]`` is its linear light.
     table : ndarray
         The image's lookup table, code -> linear light.
-    regions : ((H, W) bool, (H, W) bool)
-        The pixels searched inside the part (slots) and outside it (walls).
+    regions : ((H, W) bool or WindowRegion, (H, W) bool or WindowRegion)
+        The pixels searched inside the part (slots) and outside it (walls), each as a
+        crop-sized mask or as a :class:`WindowRegion` (the same pixels).
     bg_fit, fg_fit : callable
         The background's and the part's level surfaces, functions of (row, col).
     limit : float
@@ -114,7 +126,71 @@ def dips_possible(
     for region, table_dip in zip(regions, (inside_dip, outside_dip)):
         if not table_dip.any():
             continue
-        may = lookup(table_dip.astype(np.uint8), codes)
+        if isinstance(region, WindowRegion):
+            interval = _code_interval(table_dip, codes)
+            if interval is not None:
+                if _interval_met(codes, region, interval):
+                    return True
+                continue
+        tab = table_dip.astype(np.uint8)
+        if isinstance(region, WindowRegion):
+            if not region.beyond:  # nothing beyond the window: only its codes are read
+                may = lookup(tab, codes[region.window])
+                if np.any(may.view(bool) & region.inside):
+                    return True
+                continue
+            may = lookup(tab, codes)
+            held = may[region.window]
+            if np.any(held.view(bool) & region.inside):
+                return True
+            if cv2.countNonZero(may) > cv2.countNonZero(held):  # a pixel beyond the window may dip
+                return True
+            continue
+        may = lookup(tab, codes)
         if np.any(may.view(bool) & region):
             return True
     return False
+
+
+def _code_interval(table_dip: np.ndarray, codes: np.ndarray) -> tuple[int, int] | None:
+    """The codes that may dip as one run reaching an end of the 8-bit table (``lo, hi``), or None.
+
+    A monotone tone curve (every decoding's) makes each dip condition a threshold on the
+    code: the codes that may dip are ``0 .. hi`` or ``lo .. 255``.
+    """
+    if codes.dtype != np.uint8 or len(table_dip) != 256:
+        return None
+    idx = np.flatnonzero(table_dip)
+    lo, hi = int(idx[0]), int(idx[-1])
+    if hi - lo + 1 != idx.size or (lo != 0 and hi != 255):
+        return None
+    return lo, hi
+
+
+def _interval_met(codes: np.ndarray, region: WindowRegion, interval: tuple[int, int]) -> bool:
+    """Whether a pixel of ``region`` holds a code in ``interval`` (a run from an end of the table).
+
+    From the least and the largest code of the region (``cv2.minMaxLoc`` with the window's
+    mask, and of each strip of the crop beyond the window when ``beyond``): the same answer
+    as looking every code up, without a table lookup of the crop.
+    """
+    lo, hi = interval
+
+    def met(values: np.ndarray, mask: np.ndarray | None) -> bool:
+        if values.size == 0:
+            return False
+        least, largest, at, _ = cv2.minMaxLoc(values, mask)
+        if at == (-1, -1):  # an empty mask
+            return False
+        return least <= hi if lo == 0 else largest >= lo
+
+    rows, cols = region.window
+    if met(codes[rows, cols], region.inside.view(np.uint8)):
+        return True
+    if not region.beyond:
+        return False
+    h, w = codes.shape
+    r0, r1 = rows.indices(h)[:2]
+    c0, c1 = cols.indices(w)[:2]
+    strips = (codes[:r0], codes[r1:], codes[r0:r1, :c0], codes[r0:r1, c1:])
+    return any(met(strip, None) for strip in strips)

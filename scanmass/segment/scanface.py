@@ -558,11 +558,16 @@ def _shadow_length(
     offsets = np.arange(extent)
     at = rows[None, :] + offsets[:, None]
     ok = at < h
+    # the pixels read, as flat indices (one gather per plane, the same values as indexing by row and column)
+    flat = np.minimum(at, h - 1)
+    flat *= smooth.shape[1]
+    flat += cols[None, :]
     reads = interior if interior is not None else within
     if reads is not None:
-        ok &= reads[np.minimum(at, h - 1), cols[None, :]]
-    score = np.where(ok, grad[np.minimum(at, h - 1), cols[None, :]], 0.0).sum(axis=1) / np.maximum(ok.sum(axis=1), 1)
-    valid = np.ones(extent, bool) if reads is None else ok.sum(axis=1) >= 0.5 * rows.size
+        ok &= np.ascontiguousarray(reads).ravel().take(flat)
+    counts = ok.sum(axis=1)
+    score = np.where(ok, grad.ravel().take(flat), 0.0).sum(axis=1) / np.maximum(counts, 1)
+    valid = np.ones(extent, bool) if reads is None else counts >= 0.5 * rows.size
     if interior is not None:  # the signed gradient's mean: noise averages out, a step of one sign does not
         score = np.abs(score - np.median(score[valid])) if valid.any() else np.zeros_like(score)
     score[~valid] = 0.0

@@ -57,7 +57,7 @@ from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage, lookup
 from scanmass.numeric import nonzero_every, nonzero_rc, sample_points
 from scanmass.segment.closedfeat import is_sliver
-from scanmass.segment.dipgate import dips_possible
+from scanmass.segment.dipgate import WindowRegion, dips_possible
 from scanmass.segment.rings import PartRings, correct_curvature
 from scanmass.segment.wallends import (
     RAMP_PX,
@@ -191,6 +191,53 @@ def _on_grid(fit: Callable[..., np.ndarray], shape: tuple[int, ...]) -> np.ndarr
 CLOSED_WALL_REACH_PX = 64
 
 
+#: OpenCV's 5 x 5 chamfer transform sums its float32 steps in an order that depends on a
+#: pixel's column modulo its vector width (4 with opencv-python-headless 5.1 on x86-64: a mask
+#: moved right by 1-3 columns gets other last bits at some pixels, by 4 or 8 the same values);
+#: a window of a crop starts at a multiple of this column so that every pixel keeps its phase.
+CHAMFER_PHASE = 16
+
+
+def chamfer_windows(mask: np.ndarray, reach: float) -> tuple[tuple[slice, slice], tuple[slice, slice]]:
+    """The windows of ``mask`` over which OpenCV's 5 x 5 chamfer distances decide every threshold of :func:`closed_slots`.
+
+    ``cv2.distanceTransform(m, cv2.DIST_L2, 5)`` is two raster passes, each pixel the
+    least of its own start (0 on a zero pixel) and its already visited neighbours' values
+    plus the step's weight (1, 1.4 or 2.1969 for a step of 1, 1 or 2 px across, each at
+    least the step's Chebyshev length), so a pixel's value is the least cost of a path
+    from a zero pixel, and every pixel on a path of cost ``c`` lies within ``c``
+    (Chebyshev) of the path's start. Its float32 sums depend on a pixel's column phase
+    (:data:`CHAMFER_PHASE`): each window starts at a multiple of that column.
+
+    - Inside (``mask``'s own transform): the bounding box of the nonzero pixels grown by
+      2 px (the passes' reach). Every pixel of the crop outside it is a zero pixel (0),
+      and every nonzero pixel of the window has the same neighbours in the window as in
+      the crop, so each pass gives it the same value: the window's values are the
+      crop's, bit for bit.
+    - Outside (the transform of ``1 - mask``, zero on the mask): the same box grown by
+      ``ceil(reach) + 4`` px. A pixel beyond it lies more than ``reach + 4`` from every mask
+      pixel, so its distance exceeds every threshold up to ``reach + 1``; a pixel of the
+      window whose crop-wide distance is at most ``reach + 1`` has its cheapest path inside
+      the window (the window holds every path of the crop from it, and the window's value
+      is the least over fewer paths), so its value is the crop's, and one whose crop-wide
+      distance exceeds ``reach + 1`` keeps a window value at least as large. Thresholds up
+      to ``reach`` (float32 rounding is far below the 1 px margin) read the same.
+
+    Returns the two windows as (rows, cols) slices (the whole crop for an empty mask).
+    ``tests/test_exact_shortcuts.py`` compares both with the whole crop's transforms.
+    """
+    h, w = mask.shape
+    x, y, bw, bh = cv2.boundingRect(mask)
+    if bw == 0 or bh == 0:
+        return (slice(0, h), slice(0, w)), (slice(0, h), slice(0, w))
+    out: list[tuple[slice, slice]] = []
+    for grow in (2, int(math.ceil(reach)) + 4):
+        c0 = max(0, x - grow)
+        c0 -= c0 % CHAMFER_PHASE  # each column keeps its phase in the vector loop
+        out.append((slice(max(0, y - grow), min(h, y + bh + grow)), slice(c0, min(w, x + bw + grow))))
+    return out[0], out[1]
+
+
 def closed_slots(
     image: LoadedImage, rings: PartRings, reach_px: int = CLOSED_WALL_REACH_PX, open_holes: tuple[int, ...] = ()
 ) -> tuple[np.ndarray, list[str]]:
@@ -231,25 +278,27 @@ def closed_slots(
         cv2.fillPoly(mask, [np.round(h - shift).astype(np.int32) for h in holes], 0)
     tail = 3.0 * max(sigma, 1.0) + 2.0
     away = 2.0 * sigma + 1.0  # away from the rings' own blurred edges
-    # the distance maps are thresholded at once and dropped (full-size float32: the peak)
-    inside = cv2.distanceTransform(mask, cv2.DIST_L2, 5)
+    # the distance maps, each over the window that decides it (chamfer_windows), are
+    # thresholded at once and dropped; the thresholded maps stay window-sized (beyond the
+    # inside window no pixel is inside, beyond the outside one every pixel is far outside)
+    inner, outer = chamfer_windows(mask, tail + 12.0)
+    inside = cv2.distanceTransform(mask[inner], cv2.DIST_L2, 5)
     thick = inside >= tail + 1
-    regions = {"inside": inside >= away}
+    in_region = inside >= away
     del inside
     if np.count_nonzero(thick) < 60:
         return none, []
-    # the mask turned inside out in place for this transform and back (no full-size copy at the peak)
-    outside = cv2.distanceTransform(np.subtract(1, mask, out=mask), cv2.DIST_L2, 5)
-    np.subtract(1, mask, out=mask)
+    outside = cv2.distanceTransform(np.subtract(1, mask[outer]), cv2.DIST_L2, 5)
     far_bg = (outside >= tail + 2) & (outside <= tail + 12)
-    regions["outside"] = outside >= away
-    attach = outside <= away + 2.0
+    out_region = outside >= away
+    attach_w = outside <= away + 2.0
     del outside
     fits = []
-    for where in (far_bg, thick):
+    for where, window in ((far_bg, outer), (thick, inner)):
         count = int(np.count_nonzero(where))
         step = max(1, count // CLOSED_FIT_SAMPLES)  # smooth surfaces: a subsample fits them
-        rr, cc = nonzero_every(where, step)
+        rr, cc = nonzero_every(where, step)  # every true pixel lies in the window: the crop's order
+        rr, cc = rr + window[0].start, cc + window[1].start
         fits.append(_robust_quadratic(table[codes[rr, cc]].astype(float), rr.astype(float), cc.astype(float)))
     del far_bg, thick
     bg_fit, fg_fit = fits
@@ -260,9 +309,20 @@ def closed_slots(
     # no pixel can pass the test below (bounds of the two surfaces): nothing to find, unless a
     # barely open piece of a slot (open_holes) widens the search region
     if not open_holes and not dips_possible(
-        codes, table, (regions["inside"], regions["outside"]), bg_fit, fg_fit, limit
+        codes,
+        table,
+        (WindowRegion(inner, in_region, False), WindowRegion(outer, out_region, True)),
+        bg_fit,
+        fg_fit,
+        limit,
     ):
         return none, []
+    regions = {"inside": np.zeros(mask.shape, bool), "outside": np.ones(mask.shape, bool)}
+    regions["inside"][inner] = in_region
+    regions["outside"][outer] = out_region
+    attach = np.zeros(mask.shape, bool)
+    attach[outer] = attach_w
+    del in_region, out_region, attach_w
     # the normalised image, computed in place (float32; full-size copies are the memory peak)
     lin = lookup(table, codes)
     norm_all = lin

@@ -80,10 +80,14 @@ def _local_peaks(image: np.ndarray, min_distance: int, threshold_abs: float, lab
     coord = np.transpose(np.nonzero(peak))
     coord = coord[np.argsort(-img[peak], kind="stable")]
     if d > 1 and len(coord) > 1:
+        # a candidate is kept unless a peak kept before it lies less than d away (Chebyshev):
+        # within the (2 d - 1)-square around it, marked on a grid as each peak is kept
+        near = np.zeros(img.shape, bool)
         kept: list[int] = []
-        for k in range(len(coord)):
-            if not kept or np.abs(coord[kept] - coord[k]).max(axis=1).min() >= d:
+        for k, (r, c) in enumerate(coord.tolist()):
+            if not near[r, c]:
                 kept.append(k)
+                near[max(r - d + 1, 0) : r + d, max(c - d + 1, 0) : c + d] = True
         coord = coord[kept]
     return coord + [r0, c0]
 
@@ -315,6 +319,57 @@ def _counts_median(counts: np.ndarray, lut: np.ndarray) -> float:
     return float(np.mean(np.array([lo, hi], dtype=lut.dtype)))
 
 
+#: The window (px, square) over which every input of the seam test's blur (a Gaussian of
+#: 0.7 px: OpenCV's float kernel has 7 taps) lies, with room to spare.
+SEAM_BLUR_WINDOW = 11
+
+#: The side (px) of the blocks in which :func:`_one_solid_piece` joins surely solid pixels.
+SEAM_BLOCK = 4
+
+
+def _one_solid_piece(
+    levels: tuple[np.ndarray, np.ndarray], bg_fg: tuple[float, float], core: np.ndarray, seam_level: float, least: float
+) -> bool:
+    """Whether the seam test's solid pixels can hold at most one piece of ``least`` pixels or more, shown cheaply.
+
+    :func:`split_touching` blurs the normalised crop ``n`` (a Gaussian of 0.7 px) and labels
+    the pixels of ``core`` where the blur exceeds ``seam_level``; a seam needs two pieces
+    of at least ``least`` pixels. The blur at a pixel is a weighted mean, with positive
+    float32 weights that sum to 1 within a few units in the last place, of ``n`` inside the
+    pixel's :data:`SEAM_BLUR_WINDOW` square (edges reflected from inside it), so where every
+    ``n`` of that square is at least ``m = seam_level + 0.001`` the blur exceeds
+    ``seam_level`` (float32 rounding costs a few parts in a million of ``m``): such pixels
+    of ``core`` (``S``, from the codes' table and an erosion, no blur) are surely solid.
+    Blocks of :data:`SEAM_BLOCK` square wholly in ``S`` that touch edge to edge are joined
+    through ``S``, so the largest connected set of such blocks, ``G`` pixels, lies in one
+    solid piece. Every other piece lies in ``core`` outside it: fewer than ``least`` pixels
+    when ``count(core) - G < least``, and then no seam is found (True). False: not shown
+    (the full test runs). ``tests/test_exact_shortcuts.py`` compares it with the full test.
+    """
+    if not 0.1 < seam_level < 1.0:
+        return False
+    codes, lut = levels
+    bg, fg = bg_fg
+    if codes.dtype != np.uint8 or len(lut) != 256:
+        return False
+    high = ((lut - bg) / (fg - bg) >= seam_level + 1e-3).astype(np.uint8)  # the same table normalised() reads
+    window = np.ones((SEAM_BLUR_WINDOW, SEAM_BLUR_WINDOW), np.uint8)
+    sure = cv2.erode(lookup(high, codes), window)  # every n of the square at least m (edges: inside only)
+    cv2.bitwise_and(sure, core, dst=sure)
+    inside = int(np.count_nonzero(core))
+    if inside - int(np.count_nonzero(sure)) >= least:
+        return False
+    b = SEAM_BLOCK
+    h, w = (sure.shape[0] // b) * b, (sure.shape[1] // b) * b
+    if h == 0 or w == 0:
+        return False
+    # each block's least value at its top left pixel (an erosion anchored there), one per block
+    blocks = np.ascontiguousarray(cv2.erode(sure[:h, :w], np.ones((b, b), np.uint8), anchor=(0, 0))[::b, ::b])
+    count, labels = cv2.connectedComponents(blocks, connectivity=4)
+    largest = int(np.bincount(labels.ravel(), minlength=count)[1:].max()) * b * b if count > 1 else 0
+    return inside - largest < least
+
+
 def _two_runs(labels: np.ndarray) -> tuple[int, int] | None:
     """For a cyclic sequence of two labels: the two indices where it changes, or None if not two runs.
 
@@ -433,19 +488,22 @@ def split_touching(
         return lookup((levels[1] - bg) / (fg - bg), levels[0])
 
     seam_level = min(SEAM_LEVEL, 1.0 - 5.0 * max(noise_rel, 0.0))
-    # blurred in place (OpenCV's separable filter gives the same values in place) and dropped
-    # before the components are labelled: the crop's peak memory. Where a split needs the
-    # plane again it is made again.
-    smooth = normalised().astype(np.float32, copy=False)
-    cv2.GaussianBlur(smooth, (0, 0), 0.7, dst=smooth)
-    solid = (core.view(bool) & (smooth > seam_level)).view(np.uint8)
-    del smooth
-    count, comp = cv2.connectedComponents(solid, connectivity=4)
-    del solid
     big: list[int] = []
-    if count >= 3:  # two pieces or more (label 0 is the rest)
-        sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
-        big = [k for k in range(1, count) if sizes[k] >= MIN_LOBE_SHARE * area]
+    if levels is None or not _one_solid_piece(levels, (bg, fg), core, seam_level, MIN_LOBE_SHARE * area):
+        # blurred in place (OpenCV's separable filter gives the same values in place) and dropped
+        # before the components are labelled: the crop's peak memory. Where a split needs the
+        # plane again it is made again.
+        smooth = normalised().astype(np.float32, copy=False)
+        cv2.GaussianBlur(smooth, (0, 0), 0.7, dst=smooth)
+        solid = (core.view(bool) & (smooth > seam_level)).view(np.uint8)
+        del smooth
+        count, comp = cv2.connectedComponents(solid, connectivity=4)
+        del solid
+        if count >= 3:  # two pieces or more (label 0 is the rest)
+            sizes = np.bincount(comp.ravel(), minlength=count)  # each component's area (px), as its stats give it
+            big = [k for k in range(1, count) if sizes[k] >= MIN_LOBE_SHARE * area]
+        if len(big) < 2:
+            del comp
     if len(big) >= 2:
         big.sort(key=lambda k: -sizes[k])
         markers = np.zeros(shape, np.int32)
@@ -455,7 +513,6 @@ def split_touching(
         relief: np.ndarray = -np.asarray(normalised(), dtype=np.float64)
         evidence = "seam"
     else:
-        del comp
         if neck is True:
             neck = touching_lobes(outer, holes_px)
         if not isinstance(neck, NeckReport):
