@@ -56,3 +56,119 @@ def test_rim_points_have_the_whole_masks_hull() -> None:
             continue
         # reference: OpenCV's convex hull of every pixel of the mask
         assert np.array_equal(cv2.convexHull(_rim_points(mask)), cv2.convexHull(cv2.findNonZero(mask)))
+
+
+def test_ring_box_is_numpys_min_and_max_along_the_first_axis() -> None:
+    from scanmass.section import _ring_box
+
+    rng = np.random.default_rng(5)
+    for case in range(200):
+        ring = rng.normal(0.0, 10.0 ** rng.uniform(-3, 3), (int(rng.integers(1, 400)), 2))
+        if case % 7 == 0:
+            ring[int(rng.integers(len(ring))), int(rng.integers(2))] = np.nan  # a NaN: NaN in its column either way
+        if case % 11 == 0:
+            ring[:, 0] = -0.0  # signed zeros
+        lo, hi = _ring_box(ring)
+        # reference: numpy's reductions along the first axis
+        np.testing.assert_array_equal(lo, ring.min(axis=0))
+        np.testing.assert_array_equal(hi, ring.max(axis=0))
+
+
+def test_escaping_holes_is_the_plain_box_rule() -> None:
+    from scanmass.section import escaping_holes
+
+    rng = np.random.default_rng(6)
+    for _ in range(300):
+        outer = rng.uniform(0.0, 50.0, (int(rng.integers(3, 60)), 2))
+        holes = [rng.uniform(-5.0, 55.0, (int(rng.integers(3, 30)), 2)) for _ in range(int(rng.integers(0, 4)))]
+        if holes and rng.uniform() < 0.3:
+            holes[0] = np.clip(holes[0], outer.min(axis=0), outer.max(axis=0))  # on the box's edge: inside
+        # reference: the rule written with numpy's min and max along the first axis
+        lo, hi = outer.min(axis=0), outer.max(axis=0)
+        slack = 1e-9 * float(np.max(hi - lo))
+        plain = [
+            k for k, h in enumerate(holes) if np.any(h.min(axis=0) < lo - slack) or np.any(h.max(axis=0) > hi + slack)
+        ]
+        assert escaping_holes(outer, holes) == plain
+
+
+def _plain_masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: float) -> np.ndarray:
+    """The normalised convolution as first written: masked product with the mask itself, gathered quotient."""
+    shrink = max(1, int(sigma // 8))
+    m = mask.astype(np.float32)
+    v = (values * mask).astype(np.float32)
+    if shrink > 1:
+        size = (max(1, values.shape[1] // shrink), max(1, values.shape[0] // shrink))
+        m = cv2.resize(m, size, interpolation=cv2.INTER_AREA)
+        v = cv2.resize(v, size, interpolation=cv2.INTER_AREA)
+    w = cv2.GaussianBlur(m, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
+    v = cv2.GaussianBlur(v, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
+    ok = w > 1e-3
+    ratio = np.full(w.shape, fallback, dtype=np.float32)
+    ratio[ok] = v[ok] / w[ok]
+    if shrink > 1:
+        ratio = cv2.resize(ratio, (values.shape[1], values.shape[0]), interpolation=cv2.INTER_LINEAR)
+    return ratio
+
+
+def test_masked_blur_is_the_plain_normalised_convolution() -> None:
+    from scanmass.segment.rings import _masked_blur
+
+    rng = np.random.default_rng(8)
+    for case in range(60):
+        h, w = (int(v) for v in rng.integers(5, 120, 2))
+        dtype = (np.float32, np.float64, np.uint8)[case % 3]
+        values = rng.normal(0.5, 0.4, (h, w)) if dtype != np.uint8 else rng.integers(0, 256, (h, w))
+        values = values.astype(dtype)
+        mask = rng.uniform(size=(h, w)) < rng.uniform(0.0, 1.0)
+        if case % 4 == 1:
+            mask = mask.astype(np.uint8)
+        if case % 5 == 0:
+            mask[:] = False  # no weight anywhere: the fallback everywhere
+        sigma = float(rng.choice([1.5, 4.0, 12.0, 20.0, 40.0]))
+        # reference: the same OpenCV blurs on the plainly formed masked product
+        got = _masked_blur(values, mask, sigma, 0.25)
+        want = _plain_masked_blur(values, mask, sigma, 0.25)
+        assert got.dtype == want.dtype and np.array_equal(got, want)
+
+
+def _speckled(rng: np.random.Generator, shape: tuple[int, int]) -> np.ndarray:
+    mask = (rng.uniform(size=shape) < rng.uniform(0.02, 0.5)).astype(np.uint8)
+    for _ in range(int(rng.integers(0, 4))):
+        centre = tuple(int(v) for v in rng.integers(0, max(shape), 2))
+        cv2.circle(mask, centre, int(rng.integers(1, 20)), 1, -1)
+    return mask
+
+
+def test_components_near_a_region_are_the_plain_per_label_answers() -> None:
+    from scanmass.segment.brightface import _grown_near, _labels_near
+
+    rng = np.random.default_rng(9)
+    for _ in range(150):
+        shape = (int(rng.integers(8, 90)), int(rng.integers(8, 90)))
+        core = _speckled(rng, shape)
+        near = np.zeros(shape, np.uint8)
+        cv2.circle(near, tuple(int(v) for v in rng.integers(0, 90, 2)), int(rng.integers(1, 40)), 1, -1)
+        near = near.astype(bool)
+        within = rng.uniform(size=shape) < 0.7
+        grow = int(rng.choice([3, 5, 9, 15]))
+        count, labels = cv2.connectedComponents(core, connectivity=8)
+        count_s, labels_s, stats, _ = cv2.connectedComponentsWithStats(core, connectivity=8)
+        # reference: OpenCV's plain labelling; the labels with statistics are the same
+        assert count_s == count and np.array_equal(labels_s, labels)
+        # reference: each component compared over the whole crop, dilated over the whole crop
+        plain_union = np.zeros(shape, bool)
+        plain = []
+        for k in range(1, count):
+            comp = labels == k
+            if (comp & near).any():
+                plain_union |= comp
+                grown = cv2.dilate(comp.astype(np.uint8), np.ones((grow, grow), np.uint8)).astype(bool)
+                plain.append(grown & within)
+        assert np.array_equal(_labels_near(labels, count, near), plain_union)
+        got = list(_grown_near(labels, stats, near, within, grow))
+        assert len(got) == len(plain)
+        for ((x0, y0, x1, y1), region_box), region in zip(got, plain):
+            whole = np.zeros(shape, bool)
+            whole[y0:y1, x0:x1] = region_box
+            assert np.array_equal(whole, region)

@@ -95,16 +95,17 @@ def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: f
     """
     shrink = max(1, int(sigma // 8))
     m: np.ndarray = mask.astype(np.float32)
-    v: np.ndarray = (values * mask).astype(np.float32)
+    # times the 0/1 mask as float32: the product numpy forms with the bool mask (it casts the mask
+    # to the values' type first), without the cast inside the multiplication
+    v: np.ndarray = np.multiply(values, m, dtype=np.result_type(values, np.float32)).astype(np.float32, copy=False)
     if shrink > 1:
         size = (max(1, values.shape[1] // shrink), max(1, values.shape[0] // shrink))
         m = cv2.resize(m, size, interpolation=cv2.INTER_AREA)
         v = cv2.resize(v, size, interpolation=cv2.INTER_AREA)
     w = cv2.GaussianBlur(m, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
     v = cv2.GaussianBlur(v, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
-    ok = w > 1e-3
-    ratio: np.ndarray = np.full(w.shape, fallback, dtype=np.float32)
-    ratio[ok] = v[ok] / w[ok]
+    # the quotient where the weight is not too small (the same float32 division, no gather of both planes)
+    ratio: np.ndarray = np.divide(v, w, out=np.full(w.shape, fallback, dtype=np.float32), where=w > 1e-3)
     if shrink > 1:
         ratio = cv2.resize(ratio, (values.shape[1], values.shape[0]), interpolation=cv2.INTER_LINEAR)
     return ratio
