@@ -172,3 +172,115 @@ def test_components_near_a_region_are_the_plain_per_label_answers() -> None:
             whole = np.zeros(shape, bool)
             whole[y0:y1, x0:x1] = region_box
             assert np.array_equal(whole, region)
+
+
+def test_code_median_and_percentile_lists_are_numpys_to_the_bit() -> None:
+    from scanmass.numeric import code_median, code_percentile, code_percentiles
+
+    rng = np.random.default_rng(12)
+    for case in range(400):
+        h, w = (int(v) for v in rng.integers(1, 40, 2))
+        grey = rng.integers(0, 256, (h, w)).astype(np.uint8)
+        if case % 3 == 0:
+            grey = (grey // 53 * 53).astype(np.uint8)  # few codes: many ties
+        dtype = np.float32 if case % 2 else np.float64
+        lut = (np.linspace(0.0, 1.0, 256) ** rng.uniform(0.4, 3.0)).astype(dtype)
+        if case % 5 == 0:
+            lut = rng.uniform(0.0, 1.0, 256).astype(dtype)  # not monotone
+        mask = None if case % 4 == 0 else rng.uniform(size=(h, w)) < rng.uniform(0.01, 1.0)
+        picked = lut[grey] if mask is None else lut[grey][mask]
+        if picked.size == 0:
+            continue
+        # reference: numpy's median and percentile (linear) of the levels themselves
+        assert code_median(grey, mask, lut) == float(np.median(picked))
+        assert code_percentile(grey, mask, lut, 90) == float(np.percentile(picked, 90))
+        got, want = code_percentiles(grey, mask, lut, [0.5, 99.5]), np.percentile(picked, [0.5, 99.5])
+        assert got.dtype == want.dtype and np.array_equal(got, want)
+    grey16 = rng.integers(0, 4096, (30, 30)).astype(np.uint16)  # other planes: counted by bincount
+    lut16 = (np.linspace(0.0, 1.0, 4096) ** 2.2).astype(np.float32)
+    assert code_median(grey16, None, lut16) == float(np.median(lut16[grey16]))
+
+
+def _coded_scene(rng: np.random.Generator, kind: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """A dark disc on paper, with lit sectors (sharp) or a speckled lit half (grain), as 8-bit codes
+    through a power-law table: (codes, table, levels = table[codes], found mask)."""
+    from scanmass.testing.photos import polygon_coverage
+
+    shape, cx, cy, r = (120, 130), 64.0, 60.0, float(rng.uniform(25, 40))
+    t = np.radians(np.linspace(0.0, 360.0, 400, endpoint=False))
+    disc = polygon_coverage([(np.column_stack([cx + r * np.cos(t), cy + r * np.sin(t)]), [])], shape)
+    a0 = float(rng.uniform(0, 180))
+    s = np.radians(np.linspace(a0, a0 + 80.0, 200))
+    sector = np.vstack([[cx, cy], np.column_stack([cx + r * np.cos(s), cy + r * np.sin(s)])])
+    lit = polygon_coverage([(sector, [])], shape)
+    paper = 0.6
+    if kind == 0:  # a lit sector at 0.8 of the paper, blurred: the sharp-step rule's case
+        refl = paper * (1.0 - disc) + 0.2 * paper * (disc - lit) + 0.8 * paper * lit
+    else:  # a speckled lit sector at the paper's level: the grain rule's case
+        refl = (
+            paper * (1.0 - disc)
+            + paper * (disc - lit) * rng.uniform(0.05, 0.15, shape)
+            + paper * lit * rng.uniform(0.45, 1.0, shape)
+        )
+    lin = refl.astype(np.float32) if kind else cv2.GaussianBlur(refl.astype(np.float32), (0, 0), 1.0)
+    lin = lin + rng.normal(0.0, 0.004, shape).astype(np.float32)
+    table = (np.linspace(0.0, 1.0, 256) ** rng.uniform(1.8, 2.4)).astype(np.float32)
+    codes = np.clip(np.searchsorted(table, lin), 0, 255).astype(np.uint8)
+    levels = table[codes]
+    found = (levels < 0.5 * paper * (1.0 + 0.2)) & (disc - lit > 0.5 if kind else True)
+    return codes, table, levels, found
+
+
+def test_face_rules_read_the_same_levels_from_code_counts() -> None:
+    from scanmass.segment.brightface import grain_face_regions, lost_face_regions
+
+    rng = np.random.default_rng(13)
+    joined = {"lost": 0, "grain": 0}
+    for case in range(24):
+        codes, table, levels, found = _coded_scene(rng, case % 2)
+        others = np.zeros_like(found)
+        inside = np.ones_like(found)
+        if case % 3 == 2:
+            inside[:, :8] = False  # part of the crop outside the clear area
+        # reference: the same rule with numpy's percentile and median of the levels themselves
+        plain = lost_face_regions(levels, found, others, inside)
+        coded = lost_face_regions(levels, found, others, inside, (codes, table))
+        assert np.array_equal(plain[0], coded[0]) and plain[1] == coded[1]
+        joined["lost"] += len(plain[1])
+        plain_g = grain_face_regions(levels, found, others, inside)
+        coded_g = grain_face_regions(levels, found, others, inside, (codes, table))
+        assert np.array_equal(plain_g[0], coded_g[0]) and np.array_equal(plain_g[1], coded_g[1])
+        assert plain_g[2] == coded_g[2]
+        joined["grain"] += len(plain_g[2])
+    assert joined["lost"] > 0 and joined["grain"] > 0  # both rules joined regions in some scenes
+
+
+def test_edge_and_pit_checks_read_the_same_levels_from_code_counts() -> None:
+    from scanmass.segment.shadow import dark_pits, unclear_edges
+
+    rng = np.random.default_rng(14)
+    for case in range(30):
+        shape = (int(rng.integers(40, 110)), int(rng.integers(40, 110)))
+        table = (np.linspace(0.0, 1.0, 256) ** rng.uniform(1.8, 2.4)).astype(np.float32)
+        codes = np.clip(rng.normal(200, 8, shape), 0, 255).astype(np.uint8)  # paper
+        mask = np.zeros(shape, np.uint8)
+        cv2.ellipse(
+            mask,
+            (shape[1] // 2, shape[0] // 2),
+            (shape[1] // 3, shape[0] // 3),
+            float(rng.uniform(0, 180)),
+            0,
+            360,
+            1,
+            -1,
+        )
+        codes[mask > 0] = np.clip(rng.normal(40, 6, int(mask.sum())), 0, 255).astype(np.uint8)  # a dark part
+        if case % 2:
+            cv2.circle(codes, (shape[1] // 2, shape[0] // 2), int(rng.integers(3, 10)), 5, -1)  # a darker pit
+        lin = table[codes]
+        rings = [c[:, 0, ::1].astype(float) for c in cv2.findContours(mask, cv2.RETR_LIST, cv2.CHAIN_APPROX_NONE)[0]]
+        # reference: the same checks with numpy's median of the levels themselves
+        assert unclear_edges(lin, mask.astype(bool), rings, 1.0) == unclear_edges(
+            lin, mask.astype(bool), rings, 1.0, (codes, table)
+        )
+        assert dark_pits(lin, mask.astype(bool), 10.0) == dark_pits(lin, mask.astype(bool), 10.0, levels=(codes, table))

@@ -44,7 +44,8 @@ from dataclasses import dataclass, replace
 import cv2
 import numpy as np
 
-from scanmass.load.decode import LoadedImage
+from scanmass.load.decode import LoadedImage, lookup
+from scanmass.numeric import code_median, code_percentile
 from scanmass.segment.rings import PartRings, _masked_blur, refine_region
 
 #: A pixel is darker than the paper when below the local paper level by this share ...
@@ -152,6 +153,7 @@ class _PartCrop:
 
     rings: PartRings
     box: tuple[int, int, int, int]
+    codes: np.ndarray
     lin: np.ndarray
     found: np.ndarray
     others: np.ndarray
@@ -175,7 +177,8 @@ def _part_crops(image: LoadedImage, parts: list[PartRings], roi_px: np.ndarray, 
                 others |= _filled(other, box, shape).astype(bool)
         inside = np.zeros(shape, np.uint8)
         cv2.fillPoly(inside, [np.round(np.asarray(roi_px) - [x0, y0]).astype(np.int32)], 1)
-        yield _PartCrop(rings, box, lut[grey[y0:y1, x0:x1]], found, others, inside.astype(bool))
+        codes = grey[y0:y1, x0:x1]
+        yield _PartCrop(rings, box, codes, lookup(lut, codes), found, others, inside.astype(bool))
 
 
 def _rim_points(mask: np.ndarray) -> np.ndarray:
@@ -187,6 +190,17 @@ def _rim_points(mask: np.ndarray) -> np.ndarray:
     cross = cv2.getStructuringElement(cv2.MORPH_CROSS, (3, 3))
     inner = cv2.erode(mask, cross, borderType=cv2.BORDER_CONSTANT, borderValue=0)
     return cv2.findNonZero(mask - inner)
+
+
+def _percentile(lin: np.ndarray, mask: np.ndarray, q: float, levels: tuple[np.ndarray, np.ndarray] | None) -> float:
+    """``float(np.percentile(lin[mask], q))``; from the codes' counts when ``levels`` = (codes, table)
+    with ``lin`` = table[codes] is given (:func:`~scanmass.numeric.code_percentile`: the same float)."""
+    return float(np.percentile(lin[mask], q)) if levels is None else code_percentile(levels[0], mask, levels[1], q)
+
+
+def _median(lin: np.ndarray, mask: np.ndarray, levels: tuple[np.ndarray, np.ndarray] | None) -> float:
+    """``float(np.median(lin[mask]))``; from the codes' counts when ``levels`` is given (as :func:`_percentile`)."""
+    return float(np.median(lin[mask])) if levels is None else code_median(levels[0], mask, levels[1])
 
 
 def _labels_near(labels: np.ndarray, count: int, near: np.ndarray) -> np.ndarray:
@@ -225,7 +239,11 @@ def _grown_near(
 
 
 def lost_face_regions(
-    lin: np.ndarray, found: np.ndarray, others: np.ndarray, inside: np.ndarray
+    lin: np.ndarray,
+    found: np.ndarray,
+    others: np.ndarray,
+    inside: np.ndarray,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, list[LostFace]]:
     """The regions of a crop (linear levels ``lin``) that belong to the part found as ``found``.
 
@@ -254,13 +272,12 @@ def lost_face_regions(
     ring = (dist_out > 8) & (dist_out <= 24) & inside & ~others
     if np.count_nonzero(ring) < 50:
         return np.zeros_like(found, bool), []
-    vals = lin[ring]
-    top = float(np.percentile(vals, 90))
+    top = _percentile(lin, ring, 90, levels)
     paper_px = ring & (lin >= 0.85 * top)  # paper, not a cast shadow in the ring
     if np.count_nonzero(paper_px) < 50:
         return np.zeros_like(found, bool), []
     pv = lin[paper_px]
-    paper_level = float(np.median(pv))
+    paper_level = _median(lin, paper_px, levels)
     paper_map = _masked_blur(lin, paper_px, PAPER_SIGMA_PX, paper_level)
     noise = 1.4826 * float(np.median(np.abs(pv - paper_map[paper_px])))
     share = max(DARKER_SHARE, NOISE_SIGMAS * noise / max(paper_level, 1e-6))
@@ -331,10 +348,11 @@ def recover_lost_faces(
     """
     replaced: dict[int, PartRings] = {}
     joined: list[LostFace] = []
+    lut = np.asarray(image.to_linear, np.float32)  # the crops' levels are lut[codes]
     for crop in _part_crops(image, parts, roi_px, pad=30):
         rings, lin, found, others, inside = crop.rings, crop.lin, crop.found, crop.others, crop.inside
         x0, y0 = crop.box[:2]
-        extra, notes = lost_face_regions(lin, found, others, inside)
+        extra, notes = lost_face_regions(lin, found, others, inside, (crop.codes, lut))
         if not notes:
             continue
         merged = (found | extra).astype(np.uint8)
@@ -421,7 +439,11 @@ def grain_energy(lin: np.ndarray) -> np.ndarray:
 
 
 def grain_face_regions(
-    lin: np.ndarray, found: np.ndarray, others: np.ndarray, inside: np.ndarray
+    lin: np.ndarray,
+    found: np.ndarray,
+    others: np.ndarray,
+    inside: np.ndarray,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, list[GrainFace]]:
     """A found dark face's lit part at the paper's level, told from the paper by its grain.
 
@@ -477,12 +499,12 @@ def grain_face_regions(
     ring = (dist_out > 8) & inside & ~others
     if np.count_nonzero(ring) < 50:
         return empty
-    top = float(np.percentile(lin[ring], 90))
+    top = _percentile(lin, ring, 90, levels)
     paper_px = ring & (lin >= 0.85 * top)
     if np.count_nonzero(paper_px) < 50:
         return empty
     paper_grain = float(np.percentile(root[paper_px], 25))
-    paper_level = float(np.median(lin[paper_px]))
+    paper_level = _median(lin, paper_px, levels)
     paper_dense = float(np.median(high[paper_px]))
     least = max(GRAIN_MIN, GRAIN_PAPER_TIMES * paper_grain, GRAIN_FOUND_SHARE * found_grain)
     grainy = (root > least) & ~found & ~others & inside
@@ -639,7 +661,7 @@ def recover_grain_faces(
     for crop in _part_crops(image, parts, roi_px, pad=40):
         lin, found, others, inside = crop.lin, crop.found, crop.others, crop.inside
         x0, y0, x1, y1 = crop.box
-        share, region, notes = grain_face_regions(lin, found, others, inside)
+        share, region, notes = grain_face_regions(lin, found, others, inside, (crop.codes, lut))
         if not notes:
             continue
         face = lin[cv2.erode(found.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)]
