@@ -22,6 +22,10 @@ __all__ = [
     "sample_points",
     "nanmedian_rows",
     "median_1d",
+    "code_counts",
+    "code_percentile",
+    "code_percentiles",
+    "code_median",
 ]
 
 #: Points per row of the map :func:`sample_points` hands to ``cv2.remap``.
@@ -221,3 +225,89 @@ def median_1d(values: np.ndarray) -> np.float64:
         return np.float64(0.0) + np.partition(x, k)[k]
     part = np.partition(x, [k - 1, k])
     return (np.float64(0.0) + part[k - 1] + part[k]) / np.float64(2.0)
+
+
+def code_counts(codes: np.ndarray, mask: np.ndarray | None, size: int) -> np.ndarray:
+    """How many pixels of ``codes`` (within ``mask``: bool, or uint8 with nonzero selected) hold each
+    code 0 .. ``size`` - 1, as int64.
+
+    8-bit planes are counted by ``cv2.calcHist`` in bands of fewer than 2**24 px (its float32
+    counts are then exact integers); other planes by ``np.bincount``.
+    """
+    mask8 = None if mask is None else (mask.view(np.uint8) if mask.dtype == bool else mask)
+    if codes.dtype == np.uint8 and size == 256 and codes.ndim == 2 and codes.shape[1] > 0:
+        rows = max(1, (1 << 23) // codes.shape[1])
+        counts = np.zeros(256, np.int64)
+        for r in range(0, codes.shape[0], rows):
+            part = None if mask8 is None else mask8[r : r + rows]
+            hist = cv2.calcHist([codes[r : r + rows]], [0], part, [256], [0, 256])
+            counts += hist.ravel().astype(np.int64)
+        return counts
+    picked = codes if mask8 is None else codes[mask8.astype(bool)]
+    return np.bincount(picked.ravel(), minlength=size)
+
+
+def _order_stats(counts: np.ndarray, lut: np.ndarray, ranks: list[int]) -> list:
+    """The values of ``lut`` at the given 0-based ranks of the selection the code ``counts`` describe."""
+    order = np.argsort(lut, kind="stable")
+    cum = np.cumsum(counts[order])
+    return [lut[order[int(np.searchsorted(cum, k, side="right"))]] for k in ranks]
+
+
+def code_percentile(codes: np.ndarray, mask: np.ndarray | None, lut: np.ndarray, q: float) -> float:
+    """``float(np.percentile(lut[codes][mask], q))`` (linear), read from the codes' histogram, to the bit.
+
+    The two order statistics the percentile interpolates between are found from the counts of
+    each code within ``mask`` (None: every pixel); their interpolation is numpy's own (a
+    two-sample quantile at the same fraction, which it computes exactly so). Tables with a NaN
+    and empty selections are numpy's own answer.
+    """
+    lut = np.asarray(lut)
+    counts = code_counts(codes, mask, len(lut))
+    n = int(counts.sum())
+    if n == 0 or np.isnan(lut).any():
+        picked = codes if mask is None else codes[mask.astype(bool)]
+        return float(np.percentile(lut[picked], q))
+    virtual = (n - 1) * np.true_divide(q, 100)
+    below = int(math.floor(virtual))
+    low, high = _order_stats(counts, lut, [below, min(below + 1, n - 1)])
+    return float(np.quantile(np.array([low, high], lut.dtype), float(virtual - below)))
+
+
+def code_percentiles(codes: np.ndarray, mask: np.ndarray | None, lut: np.ndarray, qs: list[float]) -> np.ndarray:
+    """``np.percentile(lut[codes][mask], qs)`` for a list of percentiles, from one histogram of the codes.
+
+    As :func:`code_percentile`, each from its two order statistics, interpolated by numpy at the
+    same fraction given as an array (numpy then interpolates in float64, as it does for a list).
+    """
+    lut = np.asarray(lut)
+    counts = code_counts(codes, mask, len(lut))
+    n = int(counts.sum())
+    if n == 0 or np.isnan(lut).any():
+        picked = codes if mask is None else codes[mask.astype(bool)]
+        return np.percentile(lut[picked], qs)
+    out = []
+    for q in qs:
+        virtual = (n - 1) * np.true_divide(q, 100)
+        below = int(math.floor(virtual))
+        low, high = _order_stats(counts, lut, [below, min(below + 1, n - 1)])
+        out.append(np.quantile(np.array([low, high], lut.dtype), np.array([virtual - below]))[0])
+    return np.array(out)
+
+
+def code_median(codes: np.ndarray, mask: np.ndarray | None, lut: np.ndarray) -> float:
+    """``float(np.median(lut[codes][mask]))``, read from the codes' histogram, to the bit.
+
+    The middle one or two values are found from the counts; numpy's median of just those (in
+    the table's own type) averages them as it averages the middle of the whole selection.
+    Tables with a NaN and empty selections are numpy's own answer.
+    """
+    lut = np.asarray(lut)
+    counts = code_counts(codes, mask, len(lut))
+    n = int(counts.sum())
+    if n == 0 or np.isnan(lut).any():
+        picked = codes if mask is None else codes[mask.astype(bool)]
+        return float(np.median(lut[picked]))
+    k = n // 2
+    middle = _order_stats(counts, lut, [k - 1, k] if n % 2 == 0 else [k])
+    return float(np.median(np.array(middle, lut.dtype)))

@@ -230,3 +230,231 @@ def test_dip_pre_test_on_windows_is_the_crop_wide_lookup() -> None:
         assert got == dips_possible(codes, table, tuple(full), flat(paper), flat(part), limit)
         answers.add(got)
     assert answers == {True, False}
+
+
+def test_ring_box_is_numpys_min_and_max_along_the_first_axis() -> None:
+    from scanmass.section import _ring_box
+
+    rng = np.random.default_rng(5)
+    for case in range(200):
+        ring = rng.normal(0.0, 10.0 ** rng.uniform(-3, 3), (int(rng.integers(1, 400)), 2))
+        if case % 7 == 0:
+            ring[int(rng.integers(len(ring))), int(rng.integers(2))] = np.nan  # a NaN: NaN in its column either way
+        if case % 11 == 0:
+            ring[:, 0] = -0.0  # signed zeros
+        lo, hi = _ring_box(ring)
+        # reference: numpy's reductions along the first axis
+        np.testing.assert_array_equal(lo, ring.min(axis=0))
+        np.testing.assert_array_equal(hi, ring.max(axis=0))
+
+
+def test_escaping_holes_is_the_plain_box_rule() -> None:
+    from scanmass.section import escaping_holes
+
+    rng = np.random.default_rng(6)
+    for _ in range(300):
+        outer = rng.uniform(0.0, 50.0, (int(rng.integers(3, 60)), 2))
+        holes = [rng.uniform(-5.0, 55.0, (int(rng.integers(3, 30)), 2)) for _ in range(int(rng.integers(0, 4)))]
+        if holes and rng.uniform() < 0.3:
+            holes[0] = np.clip(holes[0], outer.min(axis=0), outer.max(axis=0))  # on the box's edge: inside
+        # reference: the rule written with numpy's min and max along the first axis
+        lo, hi = outer.min(axis=0), outer.max(axis=0)
+        slack = 1e-9 * float(np.max(hi - lo))
+        plain = [
+            k for k, h in enumerate(holes) if np.any(h.min(axis=0) < lo - slack) or np.any(h.max(axis=0) > hi + slack)
+        ]
+        assert escaping_holes(outer, holes) == plain
+
+
+def _plain_masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: float) -> np.ndarray:
+    """The normalised convolution as first written: masked product with the mask itself, gathered quotient."""
+    shrink = max(1, int(sigma // 8))
+    m = mask.astype(np.float32)
+    v = (values * mask).astype(np.float32)
+    if shrink > 1:
+        size = (max(1, values.shape[1] // shrink), max(1, values.shape[0] // shrink))
+        m = cv2.resize(m, size, interpolation=cv2.INTER_AREA)
+        v = cv2.resize(v, size, interpolation=cv2.INTER_AREA)
+    w = cv2.GaussianBlur(m, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
+    v = cv2.GaussianBlur(v, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
+    ok = w > 1e-3
+    ratio = np.full(w.shape, fallback, dtype=np.float32)
+    ratio[ok] = v[ok] / w[ok]
+    if shrink > 1:
+        ratio = cv2.resize(ratio, (values.shape[1], values.shape[0]), interpolation=cv2.INTER_LINEAR)
+    return ratio
+
+
+def test_masked_blur_is_the_plain_normalised_convolution() -> None:
+    from scanmass.segment.rings import _masked_blur
+
+    rng = np.random.default_rng(8)
+    for case in range(60):
+        h, w = (int(v) for v in rng.integers(5, 120, 2))
+        dtype = (np.float32, np.float64, np.uint8)[case % 3]
+        values = rng.normal(0.5, 0.4, (h, w)) if dtype != np.uint8 else rng.integers(0, 256, (h, w))
+        values = values.astype(dtype)
+        mask = rng.uniform(size=(h, w)) < rng.uniform(0.0, 1.0)
+        if case % 4 == 1:
+            mask = mask.astype(np.uint8)
+        if case % 5 == 0:
+            mask[:] = False  # no weight anywhere: the fallback everywhere
+        sigma = float(rng.choice([1.5, 4.0, 12.0, 20.0, 40.0]))
+        # reference: the same OpenCV blurs on the plainly formed masked product
+        got = _masked_blur(values, mask, sigma, 0.25)
+        want = _plain_masked_blur(values, mask, sigma, 0.25)
+        assert got.dtype == want.dtype and np.array_equal(got, want)
+
+
+def _speckled(rng: np.random.Generator, shape: tuple[int, int]) -> np.ndarray:
+    mask = (rng.uniform(size=shape) < rng.uniform(0.02, 0.5)).astype(np.uint8)
+    for _ in range(int(rng.integers(0, 4))):
+        centre = tuple(int(v) for v in rng.integers(0, max(shape), 2))
+        cv2.circle(mask, centre, int(rng.integers(1, 20)), 1, -1)
+    return mask
+
+
+def test_components_near_a_region_are_the_plain_per_label_answers() -> None:
+    from scanmass.segment.brightface import _grown_near, _labels_near
+
+    rng = np.random.default_rng(9)
+    for _ in range(150):
+        shape = (int(rng.integers(8, 90)), int(rng.integers(8, 90)))
+        core = _speckled(rng, shape)
+        near = np.zeros(shape, np.uint8)
+        cv2.circle(near, tuple(int(v) for v in rng.integers(0, 90, 2)), int(rng.integers(1, 40)), 1, -1)
+        near = near.astype(bool)
+        within = rng.uniform(size=shape) < 0.7
+        grow = int(rng.choice([3, 5, 9, 15]))
+        count, labels = cv2.connectedComponents(core, connectivity=8)
+        count_s, labels_s, stats, _ = cv2.connectedComponentsWithStats(core, connectivity=8)
+        # reference: OpenCV's plain labelling; the labels with statistics are the same
+        assert count_s == count and np.array_equal(labels_s, labels)
+        # reference: each component compared over the whole crop, dilated over the whole crop
+        plain_union = np.zeros(shape, bool)
+        plain = []
+        for k in range(1, count):
+            comp = labels == k
+            if (comp & near).any():
+                plain_union |= comp
+                grown = cv2.dilate(comp.astype(np.uint8), np.ones((grow, grow), np.uint8)).astype(bool)
+                plain.append(grown & within)
+        assert np.array_equal(_labels_near(labels, count, near), plain_union)
+        got = list(_grown_near(labels, stats, near, within, grow))
+        assert len(got) == len(plain)
+        for ((x0, y0, x1, y1), region_box), region in zip(got, plain):
+            whole = np.zeros(shape, bool)
+            whole[y0:y1, x0:x1] = region_box
+            assert np.array_equal(whole, region)
+
+
+def test_code_median_and_percentile_lists_are_numpys_to_the_bit() -> None:
+    from scanmass.numeric import code_median, code_percentile, code_percentiles
+
+    rng = np.random.default_rng(12)
+    for case in range(400):
+        h, w = (int(v) for v in rng.integers(1, 40, 2))
+        grey = rng.integers(0, 256, (h, w)).astype(np.uint8)
+        if case % 3 == 0:
+            grey = (grey // 53 * 53).astype(np.uint8)  # few codes: many ties
+        dtype = np.float32 if case % 2 else np.float64
+        lut = (np.linspace(0.0, 1.0, 256) ** rng.uniform(0.4, 3.0)).astype(dtype)
+        if case % 5 == 0:
+            lut = rng.uniform(0.0, 1.0, 256).astype(dtype)  # not monotone
+        mask = None if case % 4 == 0 else rng.uniform(size=(h, w)) < rng.uniform(0.01, 1.0)
+        picked = lut[grey] if mask is None else lut[grey][mask]
+        if picked.size == 0:
+            continue
+        # reference: numpy's median and percentile (linear) of the levels themselves
+        assert code_median(grey, mask, lut) == float(np.median(picked))
+        assert code_percentile(grey, mask, lut, 90) == float(np.percentile(picked, 90))
+        got, want = code_percentiles(grey, mask, lut, [0.5, 99.5]), np.percentile(picked, [0.5, 99.5])
+        assert got.dtype == want.dtype and np.array_equal(got, want)
+    grey16 = rng.integers(0, 4096, (30, 30)).astype(np.uint16)  # other planes: counted by bincount
+    lut16 = (np.linspace(0.0, 1.0, 4096) ** 2.2).astype(np.float32)
+    assert code_median(grey16, None, lut16) == float(np.median(lut16[grey16]))
+
+
+def _coded_scene(rng: np.random.Generator, kind: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """A dark disc on paper, with lit sectors (sharp) or a speckled lit half (grain), as 8-bit codes
+    through a power-law table: (codes, table, levels = table[codes], found mask)."""
+    from scanmass.testing.photos import polygon_coverage
+
+    shape, cx, cy, r = (120, 130), 64.0, 60.0, float(rng.uniform(25, 40))
+    t = np.radians(np.linspace(0.0, 360.0, 400, endpoint=False))
+    disc = polygon_coverage([(np.column_stack([cx + r * np.cos(t), cy + r * np.sin(t)]), [])], shape)
+    a0 = float(rng.uniform(0, 180))
+    s = np.radians(np.linspace(a0, a0 + 80.0, 200))
+    sector = np.vstack([[cx, cy], np.column_stack([cx + r * np.cos(s), cy + r * np.sin(s)])])
+    lit = polygon_coverage([(sector, [])], shape)
+    paper = 0.6
+    if kind == 0:  # a lit sector at 0.8 of the paper, blurred: the sharp-step rule's case
+        refl = paper * (1.0 - disc) + 0.2 * paper * (disc - lit) + 0.8 * paper * lit
+    else:  # a speckled lit sector at the paper's level: the grain rule's case
+        refl = (
+            paper * (1.0 - disc)
+            + paper * (disc - lit) * rng.uniform(0.05, 0.15, shape)
+            + paper * lit * rng.uniform(0.45, 1.0, shape)
+        )
+    lin = refl.astype(np.float32) if kind else cv2.GaussianBlur(refl.astype(np.float32), (0, 0), 1.0)
+    lin = lin + rng.normal(0.0, 0.004, shape).astype(np.float32)
+    table = (np.linspace(0.0, 1.0, 256) ** rng.uniform(1.8, 2.4)).astype(np.float32)
+    codes = np.clip(np.searchsorted(table, lin), 0, 255).astype(np.uint8)
+    levels = table[codes]
+    found = (levels < 0.5 * paper * (1.0 + 0.2)) & (disc - lit > 0.5 if kind else True)
+    return codes, table, levels, found
+
+
+def test_face_rules_read_the_same_levels_from_code_counts() -> None:
+    from scanmass.segment.brightface import grain_face_regions, lost_face_regions
+
+    rng = np.random.default_rng(13)
+    joined = {"lost": 0, "grain": 0}
+    for case in range(24):
+        codes, table, levels, found = _coded_scene(rng, case % 2)
+        others = np.zeros_like(found)
+        inside = np.ones_like(found)
+        if case % 3 == 2:
+            inside[:, :8] = False  # part of the crop outside the clear area
+        # reference: the same rule with numpy's percentile and median of the levels themselves
+        plain = lost_face_regions(levels, found, others, inside)
+        coded = lost_face_regions(levels, found, others, inside, (codes, table))
+        assert np.array_equal(plain[0], coded[0]) and plain[1] == coded[1]
+        joined["lost"] += len(plain[1])
+        plain_g = grain_face_regions(levels, found, others, inside)
+        coded_g = grain_face_regions(levels, found, others, inside, (codes, table))
+        assert np.array_equal(plain_g[0], coded_g[0]) and np.array_equal(plain_g[1], coded_g[1])
+        assert plain_g[2] == coded_g[2]
+        joined["grain"] += len(plain_g[2])
+    assert joined["lost"] > 0 and joined["grain"] > 0  # both rules joined regions in some scenes
+
+
+def test_edge_and_pit_checks_read_the_same_levels_from_code_counts() -> None:
+    from scanmass.segment.shadow import dark_pits, unclear_edges
+
+    rng = np.random.default_rng(14)
+    for case in range(30):
+        shape = (int(rng.integers(40, 110)), int(rng.integers(40, 110)))
+        table = (np.linspace(0.0, 1.0, 256) ** rng.uniform(1.8, 2.4)).astype(np.float32)
+        codes = np.clip(rng.normal(200, 8, shape), 0, 255).astype(np.uint8)  # paper
+        mask = np.zeros(shape, np.uint8)
+        cv2.ellipse(
+            mask,
+            (shape[1] // 2, shape[0] // 2),
+            (shape[1] // 3, shape[0] // 3),
+            float(rng.uniform(0, 180)),
+            0,
+            360,
+            1,
+            -1,
+        )
+        codes[mask > 0] = np.clip(rng.normal(40, 6, int(mask.sum())), 0, 255).astype(np.uint8)  # a dark part
+        if case % 2:
+            cv2.circle(codes, (shape[1] // 2, shape[0] // 2), int(rng.integers(3, 10)), 5, -1)  # a darker pit
+        lin = table[codes]
+        rings = [c[:, 0, ::1].astype(float) for c in cv2.findContours(mask, cv2.RETR_LIST, cv2.CHAIN_APPROX_NONE)[0]]
+        # reference: the same checks with numpy's median of the levels themselves
+        assert unclear_edges(lin, mask.astype(bool), rings, 1.0) == unclear_edges(
+            lin, mask.astype(bool), rings, 1.0, (codes, table)
+        )
+        assert dark_pits(lin, mask.astype(bool), 10.0) == dark_pits(lin, mask.astype(bool), 10.0, levels=(codes, table))

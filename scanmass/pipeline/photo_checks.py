@@ -20,8 +20,9 @@ import numpy as np
 
 from scanmass.errors import ScaleError, SegmentationError
 from scanmass.geometry import signed_area, vertex_normals
-from scanmass.load.decode import LoadedImage
+from scanmass.load.decode import LoadedImage, lookup
 from scanmass.measurement import Measurement, Part
+from scanmass.numeric import code_percentile as _code_percentile
 from scanmass.pipeline.part_terms import UNKNOWN_THICKNESS_MM, _with_extra_term, area_share_term, change_term
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
@@ -224,7 +225,8 @@ def _unclear_edges(image: LoadedImage, scale: PhotoScale, result: Measurement) -
             continue
         (x0, y0, x1, y1), mask, rings = crop
         blur = float(part.uncertainty_terms.get("inputs", {}).get("blur_px", 1.0))
-        risk = unclear_edges(lut[image.grey[y0:y1, x0:x1]], mask, rings, blur)
+        codes = image.grey[y0:y1, x0:x1]
+        risk = unclear_edges(lookup(lut, codes), mask, rings, blur, (codes, lut))
         if risk is None or risk.flagged_px < UNCLEAR_EDGE_SHARE * risk.length_px:
             continue
         area_mm2 = UNCLEAR_EDGE_SIGMA_SHARE * risk.moved_px2 * mm_per_px**2
@@ -270,7 +272,8 @@ def _hidden_holes(image: LoadedImage, scale: PhotoScale, result: Measurement, th
         if crop is None:
             continue
         (x0, y0, x1, y1), mask, _ = crop
-        pits = dark_pits(lut[image.grey[y0:y1, x0:x1]], mask, HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2)
+        codes = image.grey[y0:y1, x0:x1]
+        pits = dark_pits(lookup(lut, codes), mask, HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2, levels=(codes, lut))
         if not pits:
             continue
         xc, yc = part.centroid_mm
@@ -320,35 +323,6 @@ SURROUND_PX = (3, 9)
 #: within the bright face): a part on the mat has paper beside it, and a spotlight's pool covers
 #: its surroundings only where the pool's paper is at most the brightest paper.
 SURROUND_SHARE = 0.8
-
-
-def _code_percentile(grey: np.ndarray, mask: np.ndarray, lut: np.ndarray, q: float) -> float:
-    """``np.percentile(lut[grey][mask], q)`` (linear), read from the codes' histogram, to the bit.
-
-    The two order statistics the percentile interpolates between are found from the counts of
-    each code within ``mask``; their interpolation is numpy's own (a two-sample quantile at the
-    same fraction, which it computes exactly so). ``mask``: bool, or uint8 (nonzero selected).
-    """
-    mask8 = mask.view(np.uint8) if mask.dtype == bool else mask
-    if grey.dtype == np.uint8 and len(lut) == 256 and grey.ndim == 2 and grey.shape[1] > 0:
-        # counts in bands of fewer than 2**24 px, so each band's float32 counts are exact integers
-        rows = max(1, (1 << 23) // grey.shape[1])
-        counts = np.zeros(256, np.int64)
-        for r in range(0, grey.shape[0], rows):
-            hist = cv2.calcHist([grey[r : r + rows]], [0], mask8[r : r + rows], [256], [0, 256])
-            counts += hist.ravel().astype(np.int64)
-    else:
-        counts = np.bincount(grey[mask8.astype(bool)].ravel(), minlength=len(lut))
-    n = int(counts.sum())
-    if n == 0:
-        return float(np.percentile(lut[grey[mask8.astype(bool)]], q))  # numpy's own answer for an empty selection
-    order = np.argsort(lut, kind="stable")
-    cum = np.cumsum(counts[order])
-    virtual = (n - 1) * np.true_divide(q, 100)
-    below = int(math.floor(virtual))
-    low = lut[order[int(np.searchsorted(cum, below, side="right"))]]
-    high = lut[order[int(np.searchsorted(cum, min(below + 1, n - 1), side="right"))]]
-    return float(np.quantile(np.array([low, high], lut.dtype), float(virtual - below)))
 
 
 def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measurement) -> list[tuple[int, float]]:

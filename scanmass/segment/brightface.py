@@ -44,7 +44,8 @@ from dataclasses import dataclass, replace
 import cv2
 import numpy as np
 
-from scanmass.load.decode import LoadedImage
+from scanmass.load.decode import LoadedImage, lookup
+from scanmass.numeric import code_median, code_percentile
 from scanmass.segment.rings import PartRings, _masked_blur, refine_region
 
 #: A pixel is darker than the paper when below the local paper level by this share ...
@@ -152,6 +153,7 @@ class _PartCrop:
 
     rings: PartRings
     box: tuple[int, int, int, int]
+    codes: np.ndarray
     lin: np.ndarray
     found: np.ndarray
     others: np.ndarray
@@ -175,7 +177,8 @@ def _part_crops(image: LoadedImage, parts: list[PartRings], roi_px: np.ndarray, 
                 others |= _filled(other, box, shape).astype(bool)
         inside = np.zeros(shape, np.uint8)
         cv2.fillPoly(inside, [np.round(np.asarray(roi_px) - [x0, y0]).astype(np.int32)], 1)
-        yield _PartCrop(rings, box, lut[grey[y0:y1, x0:x1]], found, others, inside.astype(bool))
+        codes = grey[y0:y1, x0:x1]
+        yield _PartCrop(rings, box, codes, lookup(lut, codes), found, others, inside.astype(bool))
 
 
 def _rim_points(mask: np.ndarray) -> np.ndarray:
@@ -189,8 +192,58 @@ def _rim_points(mask: np.ndarray) -> np.ndarray:
     return cv2.findNonZero(mask - inner)
 
 
+def _percentile(lin: np.ndarray, mask: np.ndarray, q: float, levels: tuple[np.ndarray, np.ndarray] | None) -> float:
+    """``float(np.percentile(lin[mask], q))``; from the codes' counts when ``levels`` = (codes, table)
+    with ``lin`` = table[codes] is given (:func:`~scanmass.numeric.code_percentile`: the same float)."""
+    return float(np.percentile(lin[mask], q)) if levels is None else code_percentile(levels[0], mask, levels[1], q)
+
+
+def _median(lin: np.ndarray, mask: np.ndarray, levels: tuple[np.ndarray, np.ndarray] | None) -> float:
+    """``float(np.median(lin[mask]))``; from the codes' counts when ``levels`` is given (as :func:`_percentile`)."""
+    return float(np.median(lin[mask])) if levels is None else code_median(levels[0], mask, levels[1])
+
+
+def _labels_near(labels: np.ndarray, count: int, near: np.ndarray) -> np.ndarray:
+    """The union of the labelled components (labels 1 to ``count - 1``) with a pixel in ``near``.
+
+    The labels seen within ``near`` are the components that reach it: one pass over the crop,
+    not one comparison of the whole crop per component.
+    """
+    chosen = np.zeros(count, bool)
+    chosen[np.unique(labels[near])] = True
+    chosen[0] = False
+    return chosen[labels]
+
+
+def _grown_near(
+    labels: np.ndarray, stats: np.ndarray, near: np.ndarray, within: np.ndarray, grow: int
+) -> Iterator[tuple[tuple[int, int, int, int], np.ndarray]]:
+    """Each labelled component with a pixel in ``near``, in label order: its dilation by a ``grow``
+    square, and ``within``, in a box (x0, y0, x1, y1) of the crop.
+
+    ``stats`` as ``cv2.connectedComponentsWithStats`` gives them. The box is the component's
+    bounding box grown by the dilation's reach (clipped to the crop): the dilation is zero farther
+    out, in the box as in the whole crop (OpenCV's dilation takes nothing from beyond an edge), so
+    the box holds every pixel of the whole crop's answer.
+    """
+    height, width = labels.shape
+    reach = grow // 2
+    kernel = np.ones((grow, grow), np.uint8)
+    seen = np.unique(labels[near])
+    for k in seen[seen > 0].tolist():
+        x, y, w, h = (int(v) for v in stats[k, :4])
+        x0, y0 = max(x - reach, 0), max(y - reach, 0)
+        x1, y1 = min(x + w + reach, width), min(y + h + reach, height)
+        comp = (labels[y0:y1, x0:x1] == k).view(np.uint8)
+        yield (x0, y0, x1, y1), cv2.dilate(comp, kernel).astype(bool) & within[y0:y1, x0:x1]
+
+
 def lost_face_regions(
-    lin: np.ndarray, found: np.ndarray, others: np.ndarray, inside: np.ndarray
+    lin: np.ndarray,
+    found: np.ndarray,
+    others: np.ndarray,
+    inside: np.ndarray,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, list[LostFace]]:
     """The regions of a crop (linear levels ``lin``) that belong to the part found as ``found``.
 
@@ -219,13 +272,12 @@ def lost_face_regions(
     ring = (dist_out > 8) & (dist_out <= 24) & inside & ~others
     if np.count_nonzero(ring) < 50:
         return np.zeros_like(found, bool), []
-    vals = lin[ring]
-    top = float(np.percentile(vals, 90))
+    top = _percentile(lin, ring, 90, levels)
     paper_px = ring & (lin >= 0.85 * top)  # paper, not a cast shadow in the ring
     if np.count_nonzero(paper_px) < 50:
         return np.zeros_like(found, bool), []
     pv = lin[paper_px]
-    paper_level = float(np.median(pv))
+    paper_level = _median(lin, paper_px, levels)
     paper_map = _masked_blur(lin, paper_px, PAPER_SIGMA_PX, paper_level)
     noise = 1.4826 * float(np.median(np.abs(pv - paper_map[paper_px])))
     share = max(DARKER_SHARE, NOISE_SIGMAS * noise / max(paper_level, 1e-6))
@@ -233,7 +285,7 @@ def lost_face_regions(
     paper = ~darker & ~found
     to_paper = cv2.distanceTransform((~paper).astype(np.uint8), cv2.DIST_L2, 3)
     core = darker & (to_paper > CORE_PX)
-    count, labels = cv2.connectedComponents(core.astype(np.uint8), connectivity=8)
+    count, labels, stats, _ = cv2.connectedComponentsWithStats(core.astype(np.uint8), connectivity=8)
     if count <= 1:
         return np.zeros_like(found, bool), []
     touching = cv2.dilate(found_u8, kernel).astype(bool)
@@ -243,15 +295,12 @@ def lost_face_regions(
     found_area = float(np.count_nonzero(found))
     accepted = np.zeros_like(found, bool)
     notes: list[LostFace] = []
-    for k in range(1, count):
-        comp = labels == k
-        if not (comp & touching).any():
-            continue
-        grown = cv2.dilate(comp.astype(np.uint8), np.ones((2 * int(CORE_PX) + 3,) * 2, np.uint8)).astype(bool)
-        region = grown & darker
-        area = float(np.count_nonzero(region))
+    for (bx0, by0, bx1, by1), region_box in _grown_near(labels, stats, touching, darker, 2 * int(CORE_PX) + 3):
+        area = float(np.count_nonzero(region_box))
         if area < MIN_AREA_PX or area > MAX_SHARE * found_area:
             continue
+        region = np.zeros_like(found, bool)
+        region[by0:by1, bx0:bx1] = region_box
         if region[0].any() or region[-1].any() or region[:, 0].any() or region[:, -1].any():
             continue  # reaches past the part's surroundings: paper in shade, not a piece of its face
         if np.count_nonzero(region & hull) < HULL_SHARE * area:
@@ -299,10 +348,11 @@ def recover_lost_faces(
     """
     replaced: dict[int, PartRings] = {}
     joined: list[LostFace] = []
+    lut = np.asarray(image.to_linear, np.float32)  # the crops' levels are lut[codes]
     for crop in _part_crops(image, parts, roi_px, pad=30):
         rings, lin, found, others, inside = crop.rings, crop.lin, crop.found, crop.others, crop.inside
         x0, y0 = crop.box[:2]
-        extra, notes = lost_face_regions(lin, found, others, inside)
+        extra, notes = lost_face_regions(lin, found, others, inside, (crop.codes, lut))
         if not notes:
             continue
         merged = (found | extra).astype(np.uint8)
@@ -389,7 +439,11 @@ def grain_energy(lin: np.ndarray) -> np.ndarray:
 
 
 def grain_face_regions(
-    lin: np.ndarray, found: np.ndarray, others: np.ndarray, inside: np.ndarray
+    lin: np.ndarray,
+    found: np.ndarray,
+    others: np.ndarray,
+    inside: np.ndarray,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, list[GrainFace]]:
     """A found dark face's lit part at the paper's level, told from the paper by its grain.
 
@@ -432,17 +486,8 @@ def grain_face_regions(
     high = np.abs(grain_residual(lin))
     energy = np.asarray(cv2.GaussianBlur(high * high, (0, 0), GRAIN_SIGMA_PX), np.float32)
     root = np.sqrt(energy)
-    dist_out = cv2.distanceTransform(1 - found_u8, cv2.DIST_L2, 3)
-    ring = (dist_out > 8) & inside & ~others
-    if np.count_nonzero(ring) < 50:
-        return empty
-    top = float(np.percentile(lin[ring], 90))
-    paper_px = ring & (lin >= 0.85 * top)
-    if np.count_nonzero(paper_px) < 50:
-        return empty
-    paper_grain = float(np.percentile(root[paper_px], 25))
-    paper_level = float(np.median(lin[paper_px]))
-    paper_dense = float(np.median(high[paper_px]))
+    # the found face's grain first: every early return gives the same empty answer, so a matte face
+    # is told before the paper's statistics are read
     dist_in = cv2.distanceTransform(found_u8, cv2.DIST_L2, 3)
     deep = dist_in > 4
     if np.count_nonzero(deep) < 20:
@@ -450,6 +495,17 @@ def grain_face_regions(
     found_grain = float(np.median(root[deep]))
     if found_grain < GRAIN_MIN:
         return empty  # a matte face (black plastic: 0.03-0.07 on the committed renders) has no grain to follow
+    dist_out = cv2.distanceTransform(1 - found_u8, cv2.DIST_L2, 3)
+    ring = (dist_out > 8) & inside & ~others
+    if np.count_nonzero(ring) < 50:
+        return empty
+    top = _percentile(lin, ring, 90, levels)
+    paper_px = ring & (lin >= 0.85 * top)
+    if np.count_nonzero(paper_px) < 50:
+        return empty
+    paper_grain = float(np.percentile(root[paper_px], 25))
+    paper_level = _median(lin, paper_px, levels)
+    paper_dense = float(np.median(high[paper_px]))
     least = max(GRAIN_MIN, GRAIN_PAPER_TIMES * paper_grain, GRAIN_FOUND_SHARE * found_grain)
     grainy = (root > least) & ~found & ~others & inside
     found_area = float(np.count_nonzero(found))
@@ -476,10 +532,9 @@ def grain_face_regions(
     if core.any():  # without a grainy core there is no candidate, and nothing is joined but a bridge
         count, labels = cv2.connectedComponents(core.astype(np.uint8), connectivity=8)
         near = cv2.dilate(found_u8, np.ones((2 * int(GRAIN_CORE_PX) + 3,) * 2, np.uint8)).astype(bool)
-        for k in range(1, count):
-            comp = labels == k
-            if (comp & near).any():
-                candidates |= comp
+        # the union of the components with a pixel near the found region: those of the labels seen
+        # there (one pass over the crop, not one per component)
+        candidates = _labels_near(labels, count, near)
     # the face's own grain energy beside each place, for the edge at half of it
     face_core = candidates
     if candidates.any():
@@ -606,7 +661,7 @@ def recover_grain_faces(
     for crop in _part_crops(image, parts, roi_px, pad=40):
         lin, found, others, inside = crop.lin, crop.found, crop.others, crop.inside
         x0, y0, x1, y1 = crop.box
-        share, region, notes = grain_face_regions(lin, found, others, inside)
+        share, region, notes = grain_face_regions(lin, found, others, inside, (crop.codes, lut))
         if not notes:
             continue
         face = lin[cv2.erode(found.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)]

@@ -23,8 +23,8 @@ import numpy as np
 
 from scanmass.errors import OptionError, PartCutError, SegmentationError
 from scanmass.geometry import point_in_ring, signed_area
-from scanmass.load.decode import LoadedImage
-from scanmass.numeric import nonzero_rc, otsu_threshold, sample_points
+from scanmass.load.decode import LoadedImage, lookup
+from scanmass.numeric import code_median, code_percentiles, nonzero_rc, otsu_threshold, sample_points
 from scanmass.segment.contact import depth_field, edge_shadow_depth, part_side_rise, renormalise
 from scanmass.segment.contours import level_rings
 
@@ -95,16 +95,17 @@ def _masked_blur(values: np.ndarray, mask: np.ndarray, sigma: float, fallback: f
     """
     shrink = max(1, int(sigma // 8))
     m: np.ndarray = mask.astype(np.float32)
-    v: np.ndarray = (values * mask).astype(np.float32)
+    # times the 0/1 mask as float32: the product numpy forms with the bool mask (it casts the mask
+    # to the values' type first), without the cast inside the multiplication
+    v: np.ndarray = np.multiply(values, m, dtype=np.result_type(values, np.float32)).astype(np.float32, copy=False)
     if shrink > 1:
         size = (max(1, values.shape[1] // shrink), max(1, values.shape[0] // shrink))
         m = cv2.resize(m, size, interpolation=cv2.INTER_AREA)
         v = cv2.resize(v, size, interpolation=cv2.INTER_AREA)
     w = cv2.GaussianBlur(m, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
     v = cv2.GaussianBlur(v, (0, 0), sigma / shrink, borderType=cv2.BORDER_REFLECT)
-    ok = w > 1e-3
-    ratio: np.ndarray = np.full(w.shape, fallback, dtype=np.float32)
-    ratio[ok] = v[ok] / w[ok]
+    # the quotient where the weight is not too small (the same float32 division, no gather of both planes)
+    ratio: np.ndarray = np.divide(v, w, out=np.full(w.shape, fallback, dtype=np.float32), where=w > 1e-3)
     if shrink > 1:
         ratio = cv2.resize(ratio, (values.shape[1], values.shape[0]), interpolation=cv2.INTER_LINEAR)
     return ratio
@@ -310,8 +311,10 @@ def segment(
     factor = max(1, int(math.ceil(max(height, width) / _LOW_RES_MAX_PX)))
     small_shape = (max(1, height // factor), max(1, width // factor))
     small_enc = cv2.resize(grey, (small_shape[1], small_shape[0]), interpolation=cv2.INTER_AREA) if factor > 1 else grey
-    small = lut[small_enc].astype(np.float32)
-    p_lo, p_hi = np.percentile(small, [0.5, 99.5])
+    lut32 = np.asarray(lut).astype(np.float32)
+    small = lookup(lut32, small_enc)  # lut[small_enc] as float32, value for value
+    # np.percentile(small, [0.5, 99.5]) and below np.median(small[bg_core]), read from the codes' counts
+    p_lo, p_hi = code_percentiles(small_enc, None, lut32, [0.5, 99.5])
     border = np.concatenate([small[0], small[-1], small[:, 0], small[:, -1]])
     if p_hi - p_lo < 0.02 + 1e-9:
         raise SegmentationError(
@@ -341,7 +344,7 @@ def segment(
         raise SegmentationError(
             "no part found: the image is all background; check the scan or lower --min-area", path=image.path
         )
-    bg_median = float(np.median(small[bg_core]))
+    bg_median = code_median(small_enc, bg_core, lut32)
     sigma_map = max(small_shape) / 8.0
     background_map = _masked_blur(small, bg_core, sigma_map, bg_median)
     ratio = float(np.median(small[fg_core] / np.maximum(background_map[fg_core], 1e-6)))
@@ -492,13 +495,13 @@ def segment(
                 count=len(cut),
             )
         if speck_max > 0:
-            small = SegmentationError(
+            too_small = SegmentationError(
                 f"no part found above the minimum area: the largest object is {speck_max:.0f} px "
                 f"(minimum {min_area_px:.0f} px); lower --min-area to measure it",
                 path=image.path,
             )
-            small.largest_area_px = speck_max  # type: ignore[attr-defined]
-            raise small
+            too_small.largest_area_px = speck_max  # type: ignore[attr-defined]
+            raise too_small
         raise SegmentationError(
             "no part found above the minimum area; check the scan or lower --min-area", path=image.path
         )
@@ -645,7 +648,7 @@ def _refine_part(
             )
             fg_band = at_band(coef_f, ord_f)
             if local_face:
-                crop_lin = lut[grey_crop].astype(np.float32)
+                crop_lin = lookup(np.asarray(lut).astype(np.float32), grey_crop)  # lut[grey_crop] as float32
                 fg_band = _masked_blur(crop_lin, interior, LOCAL_FACE_SIGMA_PX, float(np.median(fg_band)))[
                     band_rows, band_cols
                 ].astype(np.float64)
@@ -699,7 +702,8 @@ def _refine_part(
     refined = _level_refined(norm, contour_level)
     contact_move_px = 0.0
     if paper_at_edge and threshold is None and bright_background and refined:
-        unit = _unit_crop(lut[grey_crop].astype(np.float32), coef_b, ord_b, fg_surface, scale)
+        # lut[grey_crop] as float32: the float32 table looked up (each entry rounded once, the same values)
+        unit = _unit_crop(lookup(np.asarray(lut).astype(np.float32), grey_crop), coef_b, ord_b, fg_surface, scale)
         moved = _contact_shadow_levels(norm, (band_rows + 1, band_cols + 1), unit, refined, contour_level)
         if moved is not refined:
             contact_move_px = _mean_move_px(refined, moved)

@@ -33,7 +33,7 @@ import cv2
 import numpy as np
 
 from scanmass.geometry import vertex_normals
-from scanmass.numeric import nanmedian_rows
+from scanmass.numeric import code_median, nanmedian_rows
 
 __all__ = [
     "ShadowRisk",
@@ -444,20 +444,31 @@ class UnclearEdges:
     kinds: dict
 
 
-def unclear_edges(lin: np.ndarray, part_mask: np.ndarray, rings_px: list, blur_px: float) -> UnclearEdges | None:
+def unclear_edges(
+    lin: np.ndarray,
+    part_mask: np.ndarray,
+    rings_px: list,
+    blur_px: float,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
+) -> UnclearEdges | None:
     """:func:`edge_profile_risk` over a part's rings, with the part and paper levels taken here.
 
     The paper level is the median of the crop 8-20 px outside the part, the part level the
-    median more than 3 px inside it. None without enough of either.
+    median more than 3 px inside it. None without enough of either. ``levels``: (codes, table)
+    with ``lin`` = table[codes], when known: the medians are then read from the codes' counts
+    (:func:`~scanmass.numeric.code_median`, the same floats).
     """
     mask8 = part_mask.astype(np.uint8)
     outside = cv2.distanceTransform(1 - mask8, cv2.DIST_L2, 3)
     inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
-    paper_px = lin[(outside > 8) & (outside < 20)]
-    part_px = lin[inside > 3]
-    if paper_px.size < 50 or part_px.size < 50:
+    paper_sel = (outside > 8) & (outside < 20)
+    part_sel = inside > 3
+    if np.count_nonzero(paper_sel) < 50 or np.count_nonzero(part_sel) < 50:
         return None
-    paper, part = float(np.median(paper_px)), float(np.median(part_px))
+    if levels is None:
+        paper, part = float(np.median(lin[paper_sel])), float(np.median(lin[part_sel]))
+    else:
+        paper, part = code_median(levels[0], paper_sel, levels[1]), code_median(levels[0], part_sel, levels[1])
     total = flagged = moved = 0.0
     means, kinds = [], {"ramp": 0, "dip": 0, "collapse": 0}
     for ring in rings_px:
@@ -482,7 +493,11 @@ PIT_DEPTH = 0.5
 
 
 def dark_pits(
-    lin: np.ndarray, part_mask: np.ndarray, min_area_px: float, clear_px: float = 3.0
+    lin: np.ndarray,
+    part_mask: np.ndarray,
+    min_area_px: float,
+    clear_px: float = 3.0,
+    levels: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> list[tuple[float, float, float]]:
     """Closed regions inside a part clearly darker than the part itself, as a deep hole's bottom is.
 
@@ -510,9 +525,11 @@ def dark_pits(
     mask8 = part_mask.astype(np.uint8)
     inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
     interior = inside > 1.5
-    if np.count_nonzero(inside > 3) < 50:
+    deep = inside > 3
+    if np.count_nonzero(deep) < 50:
         return []
-    level = float(np.median(lin[inside > 3]))
+    # with ``levels`` (codes, table; lin = table[codes]) the median from the codes' counts: the same float
+    level = float(np.median(lin[deep])) if levels is None else code_median(levels[0], deep, levels[1])
     if level <= 0:
         return []
     dark = (interior & (lin < PIT_DEPTH * level)).astype(np.uint8)
