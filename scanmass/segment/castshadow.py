@@ -603,6 +603,12 @@ def core_cut(
         return None
     level = (colour_lin / np.asarray(paper_rgb)).mean(axis=2)
     face_level = float(np.median(level[keep]))
+    core = _grainy_core(level, part_mask, along, face_level, reach_px)
+    if core is not None:
+        along = replace(along, cut=along.cut | core, length_px=along.length_px)
+        keep = part_mask & ~along.cut
+        if np.count_nonzero(keep) < 50:
+            return None
     # the fade's pixels: those fade_cut took, and (where it refused the face as too faintly
     # tinted, as a thick steel face half in the shadow's fade reads) those at _FADE_LEVEL_RATIO
     # of the face's level or more: neither face nor core
@@ -610,7 +616,7 @@ def core_cut(
     added = along.cut & part_mask & ~faded
     if np.count_nonzero(added) < STRETCH_PX:
         return None
-    if float(np.median(level[added])) >= _CORE_LEVEL_RATIO * face_level:
+    if core is None and float(np.median(level[added])) >= _CORE_LEVEL_RATIO * face_level:
         return None  # at the face's level: the face's rough rim, not a shadow's core
     if fade is None:
         return along
@@ -621,6 +627,51 @@ def core_cut(
     return replace(
         along, cut=cut, cut_px=int(np.count_nonzero(cut & part_mask)), edge_px=float(np.count_nonzero(border))
     )
+
+
+#: Fewest layers of grain beyond a sweep's level step for :func:`_grainy_core` to take them as a shadow's core.
+_CORE_MIN_LAYERS = 2
+#: Largest median level of such a layer, as a share of the face's (no brighter sector of a brushed face).
+_CORE_MAX_LEVEL = 1.3
+
+
+def _grainy_core(
+    level: np.ndarray, part_mask: np.ndarray, along: ShadowCut, face_level: float, reach_px: float
+) -> np.ndarray | None:
+    """The layers beyond a sweep's level step that are as grainy as the shadow: a soft shadow's core at the face's level.
+
+    Under a wide, low light (a window) a thick metal part's shadow fades from the paper to a core
+    lit by the room alone, as dark as the metal face; the sweep's level step (:func:`_read_step`)
+    then lies at the fade's inner end, and the core stays in the part. The layers a sweep along the
+    same direction adds next are taken while each is rough (median roughness at least half the
+    sweep's cut's and :data:`CUT_MIN_TEXTURE_RATIO` times the face's) and no brighter than
+    :data:`_CORE_MAX_LEVEL` times the face's level, up to ``reach_px``. None unless at least
+    :data:`_CORE_MIN_LAYERS` such layers follow the step.
+    """
+    if along.direction is None or along.length_px is None:
+        return None
+    rough = roughness(level)
+    inside = cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3)
+    interior = (inside > min(reach_px + 2.0, 0.75 * float(inside.max()))) & ~along.cut
+    cut = along.cut & part_mask
+    if np.count_nonzero(interior) < 50 or np.count_nonzero(cut) < STRETCH_PX:
+        return None
+    grain = max(0.5 * float(np.median(rough[cut])), CUT_MIN_TEXTURE_RATIO * float(np.median(rough[interior])))
+    unit = np.asarray(along.direction, float)
+    outer = _filled(part_mask).astype(np.uint8)
+    core = np.zeros(part_mask.shape, bool)
+    layers = 0
+    for k, new in _new_layers(outer, unit, int(reach_px) + 2):
+        if k <= along.length_px:
+            continue
+        new = new & part_mask & ~along.cut
+        if np.count_nonzero(new) < STRETCH_PX:
+            continue
+        if float(np.median(rough[new])) < grain or float(np.median(level[new])) > _CORE_MAX_LEVEL * face_level:
+            break
+        core |= new
+        layers += 1
+    return core if layers >= _CORE_MIN_LAYERS else None
 
 
 def _filled(part_mask: np.ndarray) -> np.ndarray:
