@@ -16,6 +16,12 @@ sweep would run through the face, or where it is longer than the part's shadow c
 degrees up or higher, or a lower one (a window, down to 15 degrees) where the photo's own shadow
 measures it, its grain running without a break from the outline to the step.
 
+A sweep taken as a low light's (longer than a light 30 degrees up casts) must show one: a low, wide
+light's shadow fades on past the outline, so the paper just beyond it is no brighter on the sweep's
+side than on the other (:func:`_lit_beyond`). Along the photo's shadow direction (:func:`core_cut`),
+the layers beyond the level step that are as grainy as the shadow at the face's level are a soft
+shadow's core, lit by the room alone (:func:`_grainy_core`).
+
 The roughness is the smoothed absolute deviation from a 3x3 median, taken relative to the local
 level: a median filter keeps a step edge, so the step between the face and the shadow adds
 little, while noise and grain stand out (common practice: median filters keep edges and remove
