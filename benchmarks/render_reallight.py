@@ -42,7 +42,9 @@ belong to the tuned set::
         dev-spot-black-t12 dev-spot-steel-t18 dev-spot-brass-t22 dev-spot-brass2-t27 \
         dev-spot-brass3-t20 dev-spot-steel4-t28 \
         dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25 \
-        dev-mixed-steel2-t15 dev-mixed-steel3-t22 dev-window-steel3-t10
+        dev-mixed-steel2-t15 dev-mixed-steel3-t22 dev-window-steel3-t10 \
+        dev-window-steel4-t22 dev-spot-brass4-t17 dev-spot-brass5-t24 dev-window-disc8-t4 \
+        dev-mixed-steel4-t8 dev-lens-window-steel-t24
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34 dev-scan-cam2-lamp33 dev-scan-bracket4-lamp29 \
@@ -302,6 +304,11 @@ def _shapes():
     washer = (circle(0, 0, 16.0, 300), [circle(0, 0, 7.5, 180)])  # a smaller, wider ring than the gasket
     collar = (circle(0, 0, 19.0, 300), [circle(0, 0, 12.5, 240)])  # a ring between the two
     seal = (circle(0, 0, 25.0, 360), [circle(0, 0, 19.0, 300)])  # a wide ring with a narrow face (6 mm)
+    # a longer plate with four holes of three sizes, one near a corner (branch thickmetal13)
+    plate4 = (
+        rounded_rect(70.0, 44.0, 5.0),
+        [circle(-25, -11, 3.0, 96), circle(25, -11, 3.0, 96), circle(-24, 12, 4.0, 120), circle(12, 8, 5.5, 120)],
+    )
     return {
         "plate": plate,
         "l-bracket": bracket,
@@ -311,6 +318,7 @@ def _shapes():
         "washer": washer,
         "collar": collar,
         "seal": seal,
+        "plate4": plate4,
     }
 
 
@@ -826,6 +834,64 @@ def dev_scenes():
             120,
             "Standard",
         ),
+        # branch thickmetal13: thick brushed steel with several holes in window light at a tilt (a plate with four
+        # holes beside a thin steel cam); thin brass L-brackets under the spot at a tilt, the camera leaning
+        # towards the spot's side or across it; an 8 mm steel disc at a small tilt in window light; thin steel
+        # through the distorting lens in window light; a thick steel cam beside a thin plate in mixed light
+        (
+            "dev-window-steel4-t22",
+            "window",
+            [("plate4", "brushed-steel", 6.5, 120, 100, 25), ("cam", "brushed-steel", 2.0, 85, 195, 140)],
+            325,
+            22,
+            220,
+            "Standard",
+        ),
+        (
+            "dev-spot-brass4-t17",
+            "spot",
+            [("l-bracket", "brass", 1.8, 125, 190, 65), ("disc", "brass", 3.5, 85, 95, 30)],
+            335,
+            17,
+            330,
+            "Standard",
+        ),
+        (
+            "dev-spot-brass5-t24",
+            "spot",
+            [("l-bracket", "brass", 2.2, 85, 100, 150), ("cam", "brass", 4.5, 125, 195, -80)],
+            345,
+            24,
+            10,
+            "Standard",
+        ),
+        (
+            "dev-window-disc8-t4",
+            "window",
+            [("disc", "brushed-steel", 8.0, 125, 95, 150), ("l-bracket", "brass", 2.5, 85, 195, 30)],
+            305,
+            4,
+            250,
+            "Standard",
+        ),
+        (
+            "dev-lens-window-steel-t24",
+            "window",
+            [("cam", "brushed-steel", 2.2, 90, 195, -100), ("plate", "brushed-steel", 2.5, 125, 95, 50)],
+            325,
+            24,
+            150,
+            "Standard",
+        ),
+        (
+            "dev-mixed-steel4-t8",
+            "mixed",
+            [("cam", "brushed-steel", 3.5, 125, 195, 100), ("plate4", "brushed-steel", 2.5, 85, 100, -20)],
+            320,
+            8,
+            90,
+            "Standard",
+        ),
     ]
 
 
@@ -949,8 +1015,8 @@ def holdout_scanner_scenes():
 
 
 def _is_lens_scene(name: str) -> bool:
-    """A scene seen through the distorting lens: ``lens-`` (tuned) or ``hold-lens-`` (held out)."""
-    return name.removeprefix("hold-").startswith("lens-")
+    """A scene seen through the distorting lens: ``lens-`` or ``dev-lens-`` (tuned) or ``hold-lens-`` (held out)."""
+    return name.removeprefix("hold-").removeprefix("dev-").startswith("lens-")
 
 
 #: The distorting lens of the "lens-" scenes (no lens profile given to scanmass): OpenCV's

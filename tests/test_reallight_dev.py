@@ -802,3 +802,68 @@ def test_low_window_light_steel_cam_and_bracket_within_3_percent():
     for shape in ("cam", "l-bracket"):
         m, part, tp = _part("dev-window-low-steel2-t8", shape)
         assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
+
+
+def test_thick_steel_plate_rim_only_sweep_tried_again_along_the_photos_shadow():
+    """dev-window-steel4-t22 (branch thickmetal13; window light, 22 degrees of tilt): a brushed-steel plate
+    6.5 mm thick with four holes beside a thin steel cam. The plate's own sweep ran 1 px (its outline's blurred
+    rim), so neither the cut along the cam's shadow direction nor the fade test was tried, and the shadow's fade
+    and core stayed in the part: +15.5 % in area, centroid 3.06 mm (bench_reallight). Taken as a refused sweep,
+    the cut along the cam's direction stops at the fade's inner end (+8.2 %, centroid 1.36 mm); the core beyond
+    it, at the face's level but as grainy as the shadow (segment.castshadow._grainy_core, within the cam's shadow
+    length), goes with it: +4.1 %, centroid 0.92 mm. Truth: the render's outlines, area and centroid by shapely."""
+    m, part, tp = _part("dev-window-steel4-t22", "plate4")
+    warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
+    assert f" {part.label} (" in warning
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < 0.06 * tp["area"]  # was +15.5 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 1.2  # was 3.06 mm
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-steel4-t22 (branch thickmetal13): the 6.5 mm steel plate reads +4.1 % in area (centroid "
+    "0.92 mm, within 1 sigma): a remnant of its shadow's core along its long side (the cut held within 3 px of the "
+    "2 mm cam's shadow length); its 11 mm hole reads 8.27 mm 2.2 mm off "
+    "centre (the lit floor only: the opening's trace runs into the brushed face's dark sector, 17 mm), its 6 and "
+    "8 mm holes 0.17-0.47 mm small",
+)
+def test_thick_steel_plate_in_window_light_within_3_percent_with_its_four_holes():
+    m, part, tp = _part("dev-window-steel4-t22", "plate4")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 1.0
+        assert abs(hole.diameter_mm - diameter) < 0.5
+
+
+def test_thin_brass_bracket_sweep_away_from_the_spot_refused():
+    """dev-spot-brass5-t24 (branch thickmetal13; spot, 24 degrees of tilt): a brass L bracket 2.2 mm thick whose
+    face is as dark as a shadow (0.016 of the paper) and whose rim is grainy with the coding's ringing. Its sweep
+    by grain ran 13 px away from the spot (longer than the 30-degree reach, taken as a low light's by its unbroken
+    grain) and cut a strip of face: -24.8 % in area, both holes missed (bench_reallight). The paper just past the
+    outline is brighter on that side than on the other (0.95 against 0.88 of the paper white), which a low light's
+    fading shadow never leaves: refused (segment.castshadow._lit_beyond), +7.1 %, centroid 1.31 mm, both holes
+    found within 0.5 mm. Truth: the render's outlines, area and centroid by shapely."""
+    m, part, tp = _part("dev-spot-brass5-t24", "l-bracket")
+    assert abs(part.area_mm2 - tp["area"]) < 0.1 * tp["area"]  # was -24.8 %
+    for centre, diameter in tp["holes"]:  # were both missed (none within bench_reallight's 2 mm of the truth)
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 2.0  # 1.3 mm: the near side's shade
+        assert abs(hole.diameter_mm - diameter) < 0.6
+    assert _covered(part, tp)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-spot-brass5-t24, dev-spot-brass4-t17 (branch thickmetal13): thin brass L brackets under the spot "
+    "whose face is as dark as their shadow (0.016-0.02 of the paper): +7.1 % (centroid 1.31 mm: the bracket's sweep "
+    "refused, its shadow beyond the face's rim left in) and -12.7 % (the sweep along the right direction, 8.6 px "
+    "long against a shadow of about 6 px, takes a strip of face), each within 1.3 stated sigma and warned",
+)
+def test_thin_brass_brackets_under_the_spot_within_3_percent():
+    for name, shape in (("dev-spot-brass5-t24", "l-bracket"), ("dev-spot-brass4-t17", "l-bracket")):
+        m, part, tp = _part(name, shape)
+        assert _covered(part, tp), name  # covered: what fails is the figure itself
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], name
