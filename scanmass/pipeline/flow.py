@@ -45,6 +45,7 @@ from scanmass.pipeline.photo_colour import colour_faces
 from scanmass.pipeline.photo_holes import _open_deep_holes
 from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
 from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
+from scanmass.pipeline.photo_thickness import liftable, unread_note, wall_thickness, with_wall_thickness
 from scanmass.pipeline.photo_walls import wall_sides, with_top_seen
 from scanmass.pipeline.scan_checks import (
     _apply_splits,
@@ -879,10 +880,15 @@ def _measure_photo(
             f"{tone.gamma:.3f} (the correction that puts the markers' edges on their printed place) pass half-way; "
             "pass --encoding srgb to take the file as exact sRGB",
         )
-    warnings += _unknown_thickness(scale, result, thickness_mm)
+    read = wall_thickness(image, scale, result) if thickness_mm is None else []
+    walls = liftable(scale, result, read)
+    warnings += _unknown_thickness(
+        scale, result, thickness_mm, read={w.label for w in walls}, unread=unread_note(read, walls)
+    )
     warnings += _cast_shadows(image, scale, result, thickness_mm, colour, cut_labels)
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
+    warnings += with_wall_thickness(scale, result, walls)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": method})
     if shift is not None:  # only when applied: the documents of photos read as sRGB stay as they were
