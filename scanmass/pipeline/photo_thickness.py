@@ -7,11 +7,13 @@ Part of the pipeline stage (:mod:`scanmass.pipeline`).
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, fields, replace
 
 import cv2
 import numpy as np
 
+from scanmass.errors import ScanmassError
 from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
@@ -19,6 +21,7 @@ from scanmass.pipeline.part_terms import _with_extra_term, change_term
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.section import escaping_holes, fit_circle, ring_moments, ring_perimeter, section_properties
+from scanmass.uncertainty import combine
 
 #: Thicknesses (mm) tried for a part's side wall: plate and bar stock laid flat on a mat.
 THICKNESS_GRID_MM = np.arange(0.5, 12.0001, 0.1)
@@ -39,6 +42,8 @@ MIN_PROMINENCE = 0.05
 #: wide; the width of the peak (:func:`wall_thickness`) covers the latter, the floor the former.
 SIGMA_SHARE = 0.15
 SIGMA_FLOOR_MM = 0.3
+#: Estimates closer than this (mm) are measured again in one run, at their mean.
+SAME_THICKNESS_MM = 0.2
 
 
 @dataclass(frozen=True)
@@ -290,7 +295,9 @@ def with_wall_thickness(scale: PhotoScale, result: Measurement, estimates: list[
         result.parts[n] = _with_extra_term(moved, "thickness_estimate", term, far)
         lifted.add(est.label)
         said.append(f"part {est.label} {est.thickness_mm:.1f} +- {est.sigma_mm:.1f} mm")
+        hole_u = [abs(fit_circle(hu).diameter_mm - fit_circle(h).diameter_mm) / 1.5 for h, hu in zip(holes, holes_u)]
         record[str(est.label)] = {
+            "hole_diameter_term_mm": max(hole_u, default=0.0),
             "thickness_mm": est.thickness_mm,
             "thickness_u_mm": est.sigma_mm,
             "wall_band_px": est.band_px,
@@ -309,3 +316,66 @@ def with_wall_thickness(scale: PhotoScale, result: Measurement, estimates: list[
         "figures are lifted by it and the uncertainty includes it (term 'thickness_estimate'); give --thickness MM "
         "for a better figure"
     ]
+
+
+def measured_again(
+    result: Measurement, walls: list[WallThickness], again: Callable[[float, float], Measurement]
+) -> None:
+    """Each lifted part measured again with the thickness read given as ``--thickness`` would be.
+
+    ``again(thickness_mm, thickness_u_mm)`` measures the photo with that thickness: the
+    thickness then lifts the face in the plane map (its 1-sigma in the sampled maps), and the
+    checks a given thickness enables run (the cast shadow's cut, deep holes opened at the top
+    face, the wall's side from round rings). Estimates within :data:`SAME_THICKNESS_MM` share a
+    run. A part of that run whose centroid lies within a quarter of the part's largest width of
+    the lifted part's replaces it, with the term ``thickness_estimate`` kept; where the run fails
+    or finds no such part, the lifted part (:func:`with_wall_thickness`) stays.
+    """
+    groups: list[list[WallThickness]] = []
+    for w in sorted(walls, key=lambda w: float(w.thickness_mm or 0.0)):
+        if groups and float(w.thickness_mm or 0.0) - float(groups[-1][0].thickness_mm or 0.0) <= SAME_THICKNESS_MM:
+            groups[-1].append(w)
+        else:
+            groups.append([w])
+    record = result.settings.get("thickness_estimate", {}).get("parts", {})
+    again_labels = []
+    for group in groups:
+        ts = [float(w.thickness_mm or 0.0) for w in group]
+        t = float(np.mean(ts))
+        u = max(w.sigma_mm for w in group) + 0.5 * (max(ts) - min(ts))
+        try:
+            other = again(round(t, 3), u)
+        except ScanmassError:
+            continue
+        for w in group:
+            n = next((i for i, p in enumerate(result.parts) if p.label == w.label), None)
+            if n is None or str(w.label) not in record:
+                continue
+            part = result.parts[n]
+            near = [q for q in other.parts if math.dist(q.centroid_mm, part.centroid_mm) < 0.25 * part.caliper_max_mm]
+            if not near:
+                continue
+            match = min(near, key=lambda q: math.dist(q.centroid_mm, part.centroid_mm))
+            term = part.uncertainty_terms["thickness_estimate"]
+            d_u = float(record[str(w.label)]["hole_diameter_term_mm"])
+            holes = [
+                replace(
+                    h,
+                    diameter_u_mm=combine(h.diameter_u_mm, d_u),
+                    circle_centre_u_mm=(combine(h.circle_centre_u_mm[0], d_u), combine(h.circle_centre_u_mm[1], d_u)),
+                )
+                for h in match.holes
+            ]
+            result.parts[n] = _with_extra_term(
+                replace(match, label=part.label, holes=holes), "thickness_estimate", term, []
+            )
+            record[str(w.label)]["measured_again_mm"] = round(t, 3)
+            again_labels.append(str(w.label))
+            said = set(result.warnings)
+            where = f"(measured again at {t:.1f} mm for part {part.label}, there part {match.label})"
+            result.warnings += [f"{where} {x}" for x in other.warnings if x not in said]
+    if again_labels:
+        result.warnings.append(
+            f"part(s) {', '.join(again_labels)} measured again with the thickness read from their side walls given as "
+            "the thickness (the shadow cut, deep holes and wall sides a given thickness enables)"
+        )
