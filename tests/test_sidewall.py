@@ -227,4 +227,9 @@ def test_rendered_steel_wall_on_the_window_side_is_restored(shape):
 
 def test_no_wall_without_a_thickness():
     m = scanmass.measure(REALLIGHT / "mixed-brass-t30.jpg")
-    assert all("side_wall" not in p.uncertainty_terms for p in m.parts)
+    # a part whose thickness was read from its walls is measured again with it given (branch wallthick13):
+    # only those may take a side wall
+    read = m.settings.get("thickness_estimate", {}).get("parts", {})
+    assert all("side_wall" not in p.uncertainty_terms for p in m.parts if str(p.label) not in read)
+    flat = scanmass.measure(REALLIGHT / "mixed-brass-t30.jpg", thickness_mm=0)
+    assert all("side_wall" not in p.uncertainty_terms for p in flat.parts)

@@ -8,6 +8,7 @@ stages for scans and photos), :mod:`~scanmass.pipeline.part_terms` (one part's f
 terms), :mod:`~scanmass.pipeline.scan_checks` (faces, touching parts, tone, lid) and the photo checks:
 :mod:`~scanmass.pipeline.photo_checks` (parallax, metal edges, hidden holes, the shared helpers),
 :mod:`~scanmass.pipeline.photo_walls` (which edge of a thick part's wall the outline runs on),
+:mod:`~scanmass.pipeline.photo_thickness` (a thickness not given, read from the side walls),
 :mod:`~scanmass.pipeline.photo_shadows` (shadows only, cast shadows, reflections),
 :mod:`~scanmass.pipeline.photo_shadow_cut` (the shadow cut and a second measurement),
 :mod:`~scanmass.pipeline.photo_cut_strips` (a cut's strips closed off as holes) and

@@ -45,6 +45,14 @@ from scanmass.pipeline.photo_colour import colour_faces
 from scanmass.pipeline.photo_holes import _open_deep_holes
 from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
 from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
+from scanmass.pipeline.photo_thickness import (
+    WallThickness,
+    liftable,
+    measured_again,
+    unread_note,
+    wall_thickness,
+    with_wall_thickness,
+)
 from scanmass.pipeline.photo_walls import wall_sides, with_top_seen
 from scanmass.pipeline.scan_checks import (
     _apply_splits,
@@ -787,13 +795,30 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
     # comparisons release the GIL); the checks below wait for them
     with ThreadPoolExecutor(max_workers=1) as pool:
         colour_job = pool.submit(_photo_colour, image)
-        return _measure_photo(image, options, method, colour_job)
+        walls: list[WallThickness] = []
+        result = _measure_photo(image, options, method, colour_job, walls)
+        if walls:
+
+            def again(thickness_mm: float, thickness_u_mm: float) -> Measurement:
+                opts = replace(options, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm)
+                return _measure_photo(image, opts, method, colour_job, [])
+
+            measured_again(result, walls, again)
+        return result
 
 
 def _measure_photo(
-    image: LoadedImage, options: MeasureOptions, method: str, colour_job: Future[np.ndarray | None]
+    image: LoadedImage,
+    options: MeasureOptions,
+    method: str,
+    colour_job: Future[np.ndarray | None],
+    walls_out: list[WallThickness],
 ) -> Measurement:
-    """:func:`measure_photo` with its colour planes decoding in ``colour_job``."""
+    """:func:`measure_photo` with its colour planes decoding in ``colour_job``.
+
+    Without a thickness, the parts lifted by the thickness read from their walls
+    (:mod:`~scanmass.pipeline.photo_thickness`) are appended to ``walls_out``.
+    """
     thickness_mm = options.thickness_mm  # checked by MeasureOptions.check
     scale = photo_scale(image, options, method)
     min_area_px = options.min_area_mm2 / scale.plane_map.mm_per_px**2
@@ -879,10 +904,16 @@ def _measure_photo(
             f"{tone.gamma:.3f} (the correction that puts the markers' edges on their printed place) pass half-way; "
             "pass --encoding srgb to take the file as exact sRGB",
         )
-    warnings += _unknown_thickness(scale, result, thickness_mm)
+    read = wall_thickness(image, scale, result) if thickness_mm is None else []
+    walls = liftable(scale, result, read)
+    walls_out += walls
+    warnings += _unknown_thickness(
+        scale, result, thickness_mm, read={w.label for w in walls}, unread=unread_note(read, walls)
+    )
     warnings += _cast_shadows(image, scale, result, thickness_mm, colour, cut_labels)
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
+    warnings += with_wall_thickness(scale, result, walls)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": method})
     if shift is not None:  # only when applied: the documents of photos read as sRGB stay as they were

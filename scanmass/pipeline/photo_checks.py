@@ -77,7 +77,12 @@ def _check_within_support(scale: PhotoScale, result: Measurement, path: str | No
 
 
 def _unknown_thickness(
-    scale: PhotoScale, result: Measurement, thickness_mm: float | None, plausible_mm: float | None = None
+    scale: PhotoScale,
+    result: Measurement,
+    thickness_mm: float | None,
+    plausible_mm: float | None = None,
+    read: frozenset[int] | set[int] = frozenset(),
+    unread: str = "",
 ) -> list[str]:
     """Without a thickness: an uncertainty term covering the parallax of a plausible thickness, and a warning.
 
@@ -87,16 +92,20 @@ def _unknown_thickness(
     (:data:`UNKNOWN_THICKNESS_MM`, via :func:`~scanmass.scale.homography.raised_outline_mm`)
     and half of the change of every figure is added as the term ``thickness_unknown``:
     a part of that thickness then lies 2 sigma off, one 1.5 times as thick 3 sigma off.
-    ``--thickness 0`` declares a sheet-thin part and removes the term.
+    ``--thickness 0`` declares a sheet-thin part and removes the term. Parts in ``read`` had
+    their thickness read from their side walls (:mod:`~scanmass.pipeline.photo_thickness`) and
+    get no term; ``unread`` says why the others' walls could not be read.
     """
     if thickness_mm is not None or scale.camera_matrix is None or not result.parts:
+        return []
+    if all(p.label in read for p in result.parts):
         return []
     plausible = UNKNOWN_THICKNESS_MM if plausible_mm is None else plausible_mm
     h0, k = scale.plane_map.matrix, scale.camera_matrix
     worst_rel = 0.0
     worst_cen_mm = 0.0
     for n, part in enumerate(result.parts):
-        if part.outline_mm is None:
+        if part.outline_mm is None or part.label in read:
             continue
         flat_outer = np.asarray(part.outline_mm, dtype=float)
         flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
@@ -120,7 +129,8 @@ def _unknown_thickness(
     return [
         f"parallax (thickness not given): a part {plausible:g} mm thick would measure {200 * worst_rel:.2g} % smaller in area "
         f"and up to {2 * worst_cen_mm:.2g} mm off in centroid (parallax); the uncertainty includes half of it "
-        "(term 'thickness_unknown'); give the thickness with --thickness MM, or --thickness 0 for a sheet-thin part"
+        f"(term 'thickness_unknown'){unread}; give the thickness with --thickness MM, or --thickness 0 for a sheet-thin "
+        "part"
     ]
 
 

@@ -1,0 +1,391 @@
+"""A thick part's thickness read from its side walls in a photo (when ``--thickness`` is not given), and the
+part's figures lifted by it: :func:`wall_thickness` and :func:`with_wall_thickness`.
+
+Part of the pipeline stage (:mod:`scanmass.pipeline`).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, fields, replace
+
+import cv2
+import numpy as np
+
+from scanmass.errors import ScanmassError
+from scanmass.geometry import signed_area, vertex_normals
+from scanmass.load.decode import LoadedImage
+from scanmass.measurement import Measurement, Part
+from scanmass.pipeline.part_terms import _with_extra_term, change_term
+from scanmass.scale.camera import PhotoScale
+from scanmass.scale.homography import ElevationHook, apply_h
+from scanmass.section import escaping_holes, fit_circle, ring_moments, ring_perimeter, section_properties
+from scanmass.uncertainty import combine
+
+#: Thicknesses (mm) tried for a part's side wall: plate and bar stock laid flat on a mat.
+THICKNESS_GRID_MM = np.arange(0.5, 12.0001, 0.1)
+#: Step (px) of the brightness profiles sampled across a wall.
+PROFILE_STEP_PX = 0.25
+#: Fewest boundary vertices whose wall faces the camera, and the narrowest median wall (px at the
+#: estimate) that are read: a narrower band is one blurred edge, not two.
+MIN_WALL_VERTICES = 40
+MIN_BAND_PX = 1.4
+#: A thickness is taken only where the score's peak rises this far above the lower of its two
+#: flanks' lowest scores (the score: gradient shares, 0-1). On the committed renders
+#: (tests/data/reallight) the walls read wrongly (a peak at the end of the range, a flat score along a
+#: shadow) rise 0.000-0.04 above a flank; the lit walls 0.05-0.37.
+MIN_PROMINENCE = 0.05
+#: The 1-sigma floor of an estimate (mm): a share of the thickness and a constant. On the committed
+#: renders the estimates read 0-0.75 mm above the truth where the peak is narrow (the gradient peaks of a
+#: wall brighter than the paper and the top face are pushed apart by the blur) and up to 3 mm where it is
+#: wide; the width of the peak (:func:`wall_thickness`) covers the latter, the floor the former.
+SIGMA_SHARE = 0.15
+SIGMA_FLOOR_MM = 0.3
+#: A profile is read only where the paper beyond the widest wall is at least this share of the
+#: brightest paper beside the part (90th percentile): a cast shadow there blurs the wall's bottom edge.
+#: On the committed renders 0.75-0.93 read 33-34 parts; 0.85 is the middle.
+PAPER_BESIDE = 0.85
+#: Estimates closer than this (mm) are measured again in one run, at their mean.
+SAME_THICKNESS_MM = 0.2
+
+
+@dataclass(frozen=True)
+class WallThickness:
+    """One part's thickness read from its side walls, or why it was not.
+
+    ``thickness_mm`` is None where the walls could not be read (``reason`` says why);
+    ``sigma_mm`` is its 1-sigma; ``band_px`` the median width (px) of the wall facing the
+    camera at the estimate; ``top_edge`` is True where the outline ran on the top face's edge
+    on the camera's side too (the wall was taken as background).
+    """
+
+    label: int
+    thickness_mm: float | None
+    sigma_mm: float = 0.0
+    band_px: float = 0.0
+    top_edge: bool = False
+    reason: str = ""
+
+
+def _rings(part: Part) -> list[np.ndarray]:
+    """A part's rings (mm): outer counter-clockwise, holes clockwise (normals away from material)."""
+    rings = [np.asarray(part.outline_mm, float)] + [np.asarray(h.outline_mm, float) for h in part.holes]
+    return [r if (signed_area(r) > 0) == (k == 0) else r[::-1] for k, r in enumerate(rings)]
+
+
+def _pair_scores(grad: np.ndarray, s_px: np.ndarray, band_px: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per profile: the best score of two edges ``band_px`` apart with a quiet wall between, and where the first lies.
+
+    ``grad``: (N, S) gradient shares along each profile (inward positive, s in ``s_px``).
+    The bottom edge lies at s0 (between the outline and one band outward, where the outline ran on
+    the top face's edge), the top face's edge at s0 + band; the score is the lower of the two
+    gradients less the gradient half-way (a single blurred edge scores nothing).
+    """
+    n, m = grad.shape
+    shift = np.round(band_px / PROFILE_STEP_PX).astype(int)
+    zero = int(np.searchsorted(s_px, 0.0))
+    pad = int(round(1.5 / PROFILE_STEP_PX))
+    best = np.full(n, -1.0)
+    where = np.zeros(n)
+    rows = np.arange(n)
+    lo = np.maximum(zero - shift - pad, 0)
+    for off in range(0, int(shift.max()) + 2 * pad + 1):
+        i0 = lo + off
+        ok = (i0 <= zero + pad) & (i0 + shift < m)
+        i0c = np.minimum(i0, m - 1)
+        a = grad[rows, i0c]
+        b = grad[rows, np.minimum(i0c + shift, m - 1)]
+        c = grad[rows, np.minimum(i0c + shift // 2, m - 1)]
+        score = np.where(ok, np.minimum(a, b) - c, -1.0)
+        better = score > best
+        best = np.where(better, score, best)
+        where = np.where(better, s_px[i0c], where)
+    return best, where
+
+
+def _one_part(lin: np.ndarray, scale: PhotoScale, part: Part) -> WallThickness:
+    """:func:`wall_thickness` for one part."""
+    pm = scale.plane_map
+    h0, k = pm.matrix, scale.camera_matrix
+    assert k is not None  # wall_thickness reads photos with a camera matrix only
+    rings = _rings(part)
+    x_mm = np.vstack(rings)
+    n_mm = np.vstack([vertex_normals(r) for r in rings])
+    p0 = pm.to_px(x_mm)
+    d = pm.to_px(x_mm + 0.05 * n_mm) - p0
+    n_px = d / np.maximum(np.linalg.norm(d, axis=1), 1e-12)[:, None]  # away from the material
+    bands = np.empty((len(THICKNESS_GRID_MM), len(x_mm)))
+    for i, t in enumerate(THICKNESS_GRID_MM):
+        seen = apply_h(np.linalg.inv(ElevationHook(h0, k, float(t)).footprint_mm), x_mm)  # the top edge above x
+        bands[i] = -np.sum(n_px * (pm.to_px(seen) - p0), axis=1)  # inward: the wall faces the camera
+    near = bands[-1] > 2 * MIN_BAND_PX
+    if np.count_nonzero(near) < MIN_WALL_VERTICES:
+        return WallThickness(part.label, None, reason="too little of its side wall faces the camera")
+    bands, p0, n_px = bands[:, near], p0[near], n_px[near]
+    reach = float(bands[-1].max()) + 3.0
+    s_px = np.arange(-reach, reach + 1e-9, PROFILE_STEP_PX)
+    pts = p0[:, None, :] - s_px[None, :, None] * n_px[:, None, :]
+    undistort = pm.undistort
+    if undistort is not None:
+        flat = pts.reshape(-1, 2)
+        pts = (2.0 * flat - undistort(flat)).reshape(pts.shape)  # ideal -> photo px, to about a pixel
+    prof = cv2.remap(lin, pts[..., 0].astype(np.float32), pts[..., 1].astype(np.float32), cv2.INTER_LINEAR)
+    outside = prof[:, : int(round(2.0 / PROFILE_STEP_PX))].mean(axis=1)  # 1-3 px beyond the widest wall
+    clear = outside >= PAPER_BESIDE * np.percentile(outside, 90)
+    if np.count_nonzero(clear) < MIN_WALL_VERTICES:
+        return WallThickness(part.label, None, reason="the paper beside its wall facing the camera is in shadow")
+    prof, bands = prof[clear], bands[:, clear]
+    grad = np.abs(np.gradient(prof, PROFILE_STEP_PX, axis=1))
+    grad /= grad.max(axis=1, keepdims=True) + 1e-9
+    curve = np.empty(len(THICKNESS_GRID_MM))
+    starts = []
+    for i in range(len(THICKNESS_GRID_MM)):
+        score, where = _pair_scores(grad, s_px, bands[i])
+        curve[i] = float(np.mean(np.maximum(score, 0.0)))
+        starts.append(where)
+    peak = int(np.argmax(curve))
+    prominence = curve[peak] - max(curve[: peak + 1].min(), curve[peak:].min())
+    band = float(np.median(bands[peak]))
+    if peak in (0, len(curve) - 1) or prominence < MIN_PROMINENCE:
+        return WallThickness(
+            part.label, None, reason="no wall band stands out from its edges (low contrast, or hidden)"
+        )
+    if band < MIN_BAND_PX:
+        return WallThickness(part.label, None, reason=f"its side wall is only {band:.1f} px wide (little tilt)")
+    half = curve >= curve[peak] - 0.5 * prominence
+    lo = hi = peak
+    while lo > 0 and half[lo - 1]:
+        lo -= 1
+    while hi < len(curve) - 1 and half[hi + 1]:
+        hi += 1
+    t = float(THICKNESS_GRID_MM[peak])
+    if 0 < peak < len(curve) - 1:  # the parabola's vertex through the peak and its neighbours
+        y0, y1, y2 = curve[peak - 1 : peak + 2]
+        den = y0 - 2 * y1 + y2
+        if den < 0:
+            t += float(0.5 * (y0 - y2) / den) * float(THICKNESS_GRID_MM[1] - THICKNESS_GRID_MM[0])
+    width = float(THICKNESS_GRID_MM[hi] - THICKNESS_GRID_MM[lo])
+    sigma = math.hypot(width / 2.355, SIGMA_SHARE * t + SIGMA_FLOOR_MM)
+    top_edge = float(np.median(starts[peak] / np.maximum(bands[peak], 1e-9))) < -0.5
+    return WallThickness(part.label, t, sigma, band, top_edge)
+
+
+def wall_thickness(image: LoadedImage, scale: PhotoScale, result: Measurement) -> list[WallThickness]:
+    """Each part's thickness read from the band its side wall facing the camera shows.
+
+    A part of thickness t seen from a camera off its nadir shows, on the side facing the
+    camera, the wall between its bottom edge (on the paper) and its top face's edge; the top
+    edge above a bottom point ``X`` is seen at ``E_t^-1 X`` (:class:`~scanmass.scale.homography.ElevationHook`),
+    so the band's width across the outline, per vertex and thickness, follows from the plane map
+    and the camera matrix. Across every vertex whose wall faces the camera the brightness is
+    sampled along the normal (linear light, :data:`PROFILE_STEP_PX`), where the paper beyond
+    the widest wall is not in shadow (:data:`PAPER_BESIDE`); for each thickness in
+    :data:`THICKNESS_GRID_MM` each profile scores two edges that band apart with a quiet wall
+    between (:func:`_pair_scores`: the lower gradient of the two less the gradient half-way),
+    the bottom edge anywhere from the outline to one band outward (the outline may run on either
+    edge). The thickness with the highest mean score is the estimate; its 1-sigma is the width
+    of the peak where it stands half its prominence (as a Gaussian's FWHM / 2.355) combined with
+    :data:`SIGMA_SHARE` of it and :data:`SIGMA_FLOOR_MM`. A part with too little wall facing
+    the camera (:data:`MIN_WALL_VERTICES`, :data:`MIN_BAND_PX`: little tilt near the image's
+    centre), or whose score has no clear peak (:data:`MIN_PROMINENCE`: a wall as dark as the
+    top face, a wall hidden by a shadow), gets none and the reason.
+
+    References
+    ----------
+    Hartley, R. and Zisserman, A. (2004) *Multiple View Geometry in Computer Vision*, 2nd ed.,
+    section 8.1 (the homography induced by a plane, here the plane of the top face).
+    """
+    if scale.camera_matrix is None:
+        return []
+    lin = np.asarray(image.to_linear, np.float32)[image.grey]
+    out = []
+    for part in result.parts:
+        if part.outline_mm is None or any(h.outline_mm is None for h in part.holes):
+            continue
+        out.append(_one_part(lin, scale, part))
+    return out
+
+
+def footprint_rings(
+    scale: PhotoScale, part: Part, thickness_mm: float, top_edge: bool
+) -> tuple[np.ndarray, list[np.ndarray]]:
+    """A part's rings (mm) moved to its footprint for a top face ``thickness_mm`` above the mat.
+
+    As :func:`~scanmass.scale.homography.raised_outline_mm`: a vertex whose outward normal points
+    along the parallax is a top-face point and moves to its footprint; with ``top_edge`` every
+    vertex is (the outline ran on the top face's edge all round).
+    """
+    assert scale.camera_matrix is not None
+    e = ElevationHook(scale.plane_map.matrix, scale.camera_matrix, thickness_mm).footprint_mm
+    out = []
+    for ring in _rings(part):
+        foot = apply_h(e, ring)
+        if top_edge:
+            out.append(foot)
+            continue
+        top = np.sum(vertex_normals(ring) * (ring - foot), axis=1) > 0
+        out.append(np.where(top[:, None], foot, ring))
+    return out[0], out[1:]
+
+
+def _moved(part: Part, outer: np.ndarray, holes: list[np.ndarray]) -> Part:
+    """The part's figures from other rings (its uncertainties and terms kept)."""
+    props = section_properties(outer, holes)
+    new_holes = []
+    for hole, ring in zip(part.holes, holes):
+        a, qx, qy = ring_moments(ring)[:3]
+        fit = fit_circle(ring)
+        new_holes.append(
+            replace(
+                hole,
+                area_mm2=abs(float(a)),
+                centroid_mm=(float(qx / a), float(qy / a)),
+                perimeter_mm=ring_perimeter(ring),
+                circle_centre_mm=fit.centre_mm,
+                diameter_mm=fit.diameter_mm,
+                roundness_mm=fit.roundness_mm,
+                outline_mm=ring,
+            )
+        )
+    return replace(part, holes=new_holes, outline_mm=outer, **{f.name: getattr(props, f.name) for f in fields(props)})
+
+
+def liftable(scale: PhotoScale, result: Measurement, estimates: list[WallThickness]) -> list[WallThickness]:
+    """The estimates a part can be lifted by: a lifted hole must stay inside the lifted outline."""
+    out = []
+    for est in estimates:
+        part = next((p for p in result.parts if p.label == est.label), None)
+        if est.thickness_mm is None or part is None:
+            continue
+        rings = footprint_rings(scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
+        if not escaping_holes(*rings):
+            out.append(est)
+    return out
+
+
+def unread_note(estimates: list[WallThickness], lifted: list[WallThickness]) -> str:
+    """Why the side walls of the parts without a lift could not be read (for the parallax warning)."""
+    done = {e.label for e in lifted}
+    why = []
+    for e in estimates:
+        if e.label in done:
+            continue
+        reason = e.reason or "lifted by its estimate, one of its holes would leave its outline"
+        why.append(f"part {e.label}: {reason}")
+    return f"; the thickness could not be read from the side walls ({'; '.join(why)})" if why else ""
+
+
+def with_wall_thickness(scale: PhotoScale, result: Measurement, estimates: list[WallThickness]) -> list[str]:
+    """Lift each part with an estimate by its thickness, with the term ``thickness_estimate``; a warning.
+
+    The part's rings go to their footprints (:func:`footprint_rings`) and its figures are
+    computed again; the term is the change of every figure between the estimate and the
+    estimate plus 1.5 sigma, taken as 1.5 sigma (the change is near linear in the thickness).
+    The estimates are those of :func:`liftable` (the other parts keep ``thickness_unknown``).
+    """
+    lifted: set[int] = set()
+    said = []
+    record = {}
+    for est in estimates:
+        if est.thickness_mm is None:
+            continue
+        n = next((i for i, p in enumerate(result.parts) if p.label == est.label), None)
+        if n is None:
+            continue
+        part = result.parts[n]
+        outer, holes = footprint_rings(scale, part, est.thickness_mm, est.top_edge)
+        outer_u, holes_u = footprint_rings(scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
+        if escaping_holes(outer, holes) or escaping_holes(outer_u, holes_u):
+            continue
+        term = change_term(outer, holes, outer_u, holes_u, share=1.0 / 1.5)
+        moved = _moved(part, outer, holes)
+        # _with_extra_term takes half of a ring's change: the ring 4/3 of the 1.5-sigma move away is 1 sigma
+        far = [h + (h_u - h) * (4.0 / 3.0) for h, h_u in zip(holes, holes_u)]
+        result.parts[n] = _with_extra_term(moved, "thickness_estimate", term, far)
+        lifted.add(est.label)
+        said.append(f"part {est.label} {est.thickness_mm:.1f} +- {est.sigma_mm:.1f} mm")
+        hole_u = [abs(fit_circle(hu).diameter_mm - fit_circle(h).diameter_mm) / 1.5 for h, hu in zip(holes, holes_u)]
+        record[str(est.label)] = {
+            "hole_diameter_term_mm": max(hole_u, default=0.0),
+            "thickness_mm": est.thickness_mm,
+            "thickness_u_mm": est.sigma_mm,
+            "wall_band_px": est.band_px,
+            "outline_on_top_edge": est.top_edge,
+        }
+    if not lifted:
+        return []
+    result.settings["thickness_estimate"] = {
+        "method": "side-wall band",
+        "parts": record,
+        "note": "thickness read from the width of the side wall facing the camera; the figures are of the part's "
+        "footprint with its face lifted by it (term 'thickness_estimate')",
+    }
+    return [
+        f"thickness estimated from the side walls facing the camera (thickness not given): {', '.join(said)}; the "
+        "figures are lifted by it and the uncertainty includes it (term 'thickness_estimate'); give --thickness MM "
+        "for a better figure"
+    ]
+
+
+def measured_again(
+    result: Measurement, walls: list[WallThickness], again: Callable[[float, float], Measurement]
+) -> None:
+    """Each lifted part measured again with the thickness read given as ``--thickness`` would be.
+
+    ``again(thickness_mm, thickness_u_mm)`` measures the photo with that thickness: the
+    thickness then lifts the face in the plane map (its 1-sigma in the sampled maps), and the
+    checks a given thickness enables run (the cast shadow's cut, deep holes opened at the top
+    face, the wall's side from round rings). Estimates within :data:`SAME_THICKNESS_MM` share a
+    run. A part of that run whose centroid lies within a quarter of the part's largest width of
+    the lifted part's replaces it, with the term ``thickness_estimate`` kept; where the run fails
+    or finds no such part, the lifted part (:func:`with_wall_thickness`) stays.
+    """
+    groups: list[list[WallThickness]] = []
+    for w in sorted(walls, key=lambda w: float(w.thickness_mm or 0.0)):
+        if groups and float(w.thickness_mm or 0.0) - float(groups[-1][0].thickness_mm or 0.0) <= SAME_THICKNESS_MM:
+            groups[-1].append(w)
+        else:
+            groups.append([w])
+    record = result.settings.get("thickness_estimate", {}).get("parts", {})
+    again_labels = []
+    for group in groups:
+        ts = [float(w.thickness_mm or 0.0) for w in group]
+        t = float(np.mean(ts))
+        u = max(w.sigma_mm for w in group) + 0.5 * (max(ts) - min(ts))
+        try:
+            other = again(round(t, 3), u)
+        except ScanmassError:
+            continue
+        for w in group:
+            n = next((i for i, p in enumerate(result.parts) if p.label == w.label), None)
+            if n is None or str(w.label) not in record:
+                continue
+            part = result.parts[n]
+            near = [q for q in other.parts if math.dist(q.centroid_mm, part.centroid_mm) < 0.25 * part.caliper_max_mm]
+            if not near:
+                continue
+            match = min(near, key=lambda q: math.dist(q.centroid_mm, part.centroid_mm))
+            term = part.uncertainty_terms["thickness_estimate"]
+            d_u = float(record[str(w.label)]["hole_diameter_term_mm"])
+            holes = [
+                replace(
+                    h,
+                    diameter_u_mm=combine(h.diameter_u_mm, d_u),
+                    circle_centre_u_mm=(combine(h.circle_centre_u_mm[0], d_u), combine(h.circle_centre_u_mm[1], d_u)),
+                )
+                for h in match.holes
+            ]
+            result.parts[n] = _with_extra_term(
+                replace(match, label=part.label, holes=holes), "thickness_estimate", term, []
+            )
+            record[str(w.label)]["measured_again_mm"] = round(t, 3)
+            again_labels.append(str(w.label))
+            said = set(result.warnings)
+            where = f"(measured again at {t:.1f} mm for part {part.label}, there part {match.label})"
+            result.warnings += [f"{where} {x}" for x in other.warnings if x not in said]
+    if again_labels:
+        result.warnings.append(
+            f"part(s) {', '.join(again_labels)} measured again with the thickness read from their side walls given as "
+            "the thickness (the shadow cut, deep holes and wall sides a given thickness enables)"
+        )

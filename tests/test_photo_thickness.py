@@ -1,0 +1,90 @@
+"""A part's thickness read from its side wall in a photo (scanmass.pipeline.photo_thickness).
+
+Truth: synthetic photos rendered by scanmass.testing.photos: a prism of known height on the
+mat, drawn as its silhouette (the union of bottom face, top face and walls: exact polygon
+coverage) in the wall's grey level with its top face, projected through the same pinhole camera
+(K [r1 r2 (t + h r3)], Zhang 2000, eq. 2), in the part's level over it. Areas and centroids
+from shapely (polygon_truth.truth, reference library). Tolerances: within 3 stated sigma.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+import pytest
+from polygon_truth import truth
+
+from scanmass import measure
+from scanmass.scale.homography import apply_h
+from scanmass.scale.mat import make_mat
+from scanmass.testing.photos import PhotoParts, make_camera, render_photo
+from scanmass.testing.scans import circle, rectangle
+
+MAT = make_mat("a4-portrait")
+PAPER, WALL, TOP = 0.85, 0.40, 0.06
+
+
+def _plate() -> PhotoParts:
+    outer = rectangle(70.0, 90.0, 80.0, 50.0, angle_deg=17.0)
+    return PhotoParts(outer, [circle(100.0, 115.0, 8.0, 256)])
+
+
+def _walled_photo(part: PhotoParts, height_mm: float, cam, seed: int) -> np.ndarray:
+    """The prism's silhouette in the wall's level, its top face in the part's level over it."""
+    lift = np.linalg.inv(cam.plane_to_px(0.0)) @ cam.plane_to_px(height_mm)  # top face -> where it looks on the mat
+
+    def up(ring: np.ndarray) -> np.ndarray:
+        return apply_h(lift, ring)
+
+    solid = dataclasses.replace(part, level=WALL, height_mm=height_mm)
+    # render_photo adds (level - paper) per part: the top face's level over the wall's is TOP
+    top = PhotoParts(up(part.outer_mm), [up(h) for h in part.holes_mm], level=TOP - WALL + PAPER)
+    return render_photo(MAT, [solid, top], cam, paper=PAPER, seed=seed)
+
+
+@pytest.mark.slow
+def test_thickness_read_from_a_lit_wall():
+    """A 5 mm plate seen 25 degrees off its nadir: its thickness within 3 sigma, close enough to matter."""
+    part, height = _plate(), 5.0
+    t = truth(part.outer_mm, part.holes_mm)
+    cam = make_camera(tilt_deg=25.0, tilt_dir_deg=30.0, roll_deg=80.0, distance_mm=360.0)
+    img = _walled_photo(part, height, cam, seed=21)
+    m = measure(img, printed_x_mm=100.0, printed_y_mm=100.0)
+    est = m.settings["thickness_estimate"]["parts"]["1"]
+    assert abs(est["thickness_mm"] - height) <= 3 * est["thickness_u_mm"]
+    assert est["thickness_u_mm"] < 0.5 * height  # a figure that says something
+    p = m.parts[0]
+    assert "thickness_unknown" not in p.uncertainty_terms and "thickness_estimate" in p.uncertainty_terms
+    assert abs(p.area_mm2 - t["area"]) <= 3 * p.area_u_mm2
+    for k in range(2):
+        assert abs(p.centroid_mm[k] - t["centroid"][k]) <= 3 * p.centroid_u_mm[k]
+    flat = measure(img, printed_x_mm=100.0, printed_y_mm=100.0, thickness_mm=0)  # taken as sheet-thin
+    assert abs(p.area_mm2 - t["area"]) < 0.5 * abs(flat.parts[0].area_mm2 - t["area"])
+    assert any(w.startswith("thickness estimated from the side walls") for w in m.warnings)
+
+
+@pytest.mark.slow
+def test_wall_as_dark_as_the_top_face_is_not_read():
+    """The wall in the part's own level shows no band: the parallax term stays, and the warning says why."""
+    part = dataclasses.replace(_plate(), height_mm=5.0)
+    cam = make_camera(tilt_deg=25.0, tilt_dir_deg=30.0, roll_deg=80.0, distance_mm=360.0)
+    img = render_photo(MAT, [part], cam, seed=22)
+    m = measure(img, printed_x_mm=100.0, printed_y_mm=100.0)
+    assert "thickness_estimate" not in m.settings
+    assert "thickness_unknown" in m.parts[0].uncertainty_terms
+    assert any("could not be read from the side walls" in w for w in m.warnings)
+
+
+@pytest.mark.slow
+def test_given_thickness_wins():
+    """--thickness given: nothing is read from the walls."""
+    part, height = _plate(), 5.0
+    cam = make_camera(tilt_deg=25.0, tilt_dir_deg=30.0, roll_deg=80.0, distance_mm=360.0)
+    img = _walled_photo(part, height, cam, seed=23)
+    for given in (0.0, 3.0):
+        m = measure(img, printed_x_mm=100.0, printed_y_mm=100.0, thickness_mm=given)
+        assert "thickness_estimate" not in m.settings
+        assert not any("thickness_estimate" in p.uncertainty_terms for p in m.parts)
+        assert not math.isnan(m.parts[0].area_mm2)
