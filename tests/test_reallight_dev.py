@@ -16,6 +16,7 @@ from __future__ import annotations
 import functools
 import json
 import math
+import statistics
 from pathlib import Path
 
 import pytest
@@ -915,8 +916,8 @@ def test_thickness_read_from_the_walls_corrects_the_figures():
     (area and centroid by shapely): with only the 'thickness_unknown' term they read (bench_reallight, thickness
     not given) +12.0 % (spot-black-t20 disc 8 mm), +9.2 % (its L bracket 3 mm), +13.7 % (mixed-brass-t30 disc
     6 mm), +76.8 % (dev-window-low-steel-t15 L bracket 7 mm, its shadow kept), +27.7 % (window-steel-t25 gasket
-    2.5 mm); measured again with the thickness read: -0.88 / +1.51 / -0.05 / -1.21 / -1.17 %, each within 3 %
-    and 3 stated sigma."""
+    2.5 mm); measured again with the thickness read: -0.57 / +2.32 / +0.34 / -2.11 / +0.36 % (branch
+    wallthick13b; -0.88 / +1.51 / -0.05 / -1.21 / -1.17 % before its offset), each within 3 % and 3 stated sigma."""
     for name, shape in [
         ("spot-black-t20", "disc"),
         ("spot-black-t20", "l-bracket"),
@@ -927,3 +928,27 @@ def test_thickness_read_from_the_walls_corrects_the_figures():
         m, part, tp = _read_part(name, shape)
         assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], (name, shape)
         assert _covered(part, tp), (name, shape)
+
+
+_WALL_BIAS = [
+    # render, part: walls read (branch wallthick13b), besides _WALL_READ's
+    ("mixed-steel-t10", "gasket"),
+    ("dev-mixed-black-t15", "plate"),
+    ("lens-spot-brass-t30", "plate"),
+    ("lens-spot-brass-t30", "cam"),
+] + [(name, shape) for name in sorted(_WALL_READ) for shape in _WALL_READ[name]]
+
+
+def test_thickness_read_from_the_walls_is_not_biased():
+    """The thickness read from the side walls (pipeline.photo_thickness, READ_EXCESS_MM, branch wallthick13b)
+    against the render's thickness (its truth file: the extrusion Blender drew), over 14 parts: the median
+    signed error lies within 0.15 mm of zero and each estimate within 3 stated sigma. Before the offset the
+    median read +0.28 mm (the score reads a lit wall's band wide: every part's estimate -0.58..+0.82 mm off,
+    10 of 14 high); with it -0.02 mm."""
+    errors = []
+    for name, shape in _WALL_BIAS:
+        m, part, tp = _read_part(name, shape)
+        est = m.settings["thickness_estimate"]["parts"][str(part.label)]
+        errors.append(est["thickness_mm"] - tp["t"])
+        assert abs(errors[-1]) <= 3 * est["thickness_u_mm"], (name, shape)
+    assert abs(statistics.median(errors)) <= 0.15, sorted(round(e, 2) for e in errors)
