@@ -458,3 +458,60 @@ def test_edge_and_pit_checks_read_the_same_levels_from_code_counts() -> None:
             lin, mask.astype(bool), rings, 1.0, (codes, table)
         )
         assert dark_pits(lin, mask.astype(bool), 10.0) == dark_pits(lin, mask.astype(bool), 10.0, levels=(codes, table))
+
+
+def _plain_pair_scores(grad: np.ndarray, s_px: np.ndarray, band_px: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The wall-band score as first written: a running strict maximum over the start offsets, one at a time."""
+    from scanmass.pipeline.photo_thickness import PROFILE_STEP_PX
+
+    n, m = grad.shape
+    shift = np.round(band_px / PROFILE_STEP_PX).astype(int)
+    zero = int(np.searchsorted(s_px, 0.0))
+    pad = int(round(1.5 / PROFILE_STEP_PX))
+    best, where, rows = np.full(n, -1.0), np.zeros(n), np.arange(n)
+    lo = np.maximum(zero - shift - pad, 0)
+    for off in range(0, int(shift.max()) + 2 * pad + 1):
+        i0 = lo + off
+        ok = (i0 <= zero + pad) & (i0 + shift < m)
+        i0c = np.minimum(i0, m - 1)
+        a, b = grad[rows, i0c], grad[rows, np.minimum(i0c + shift, m - 1)]
+        c = grad[rows, np.minimum(i0c + shift // 2, m - 1)]
+        score = np.where(ok, np.minimum(a, b) - c, -1.0)
+        better = score > best
+        best, where = np.where(better, score, best), np.where(better, s_px[i0c], where)
+    return best, where
+
+
+def test_wall_pair_scores_all_offsets_at_once_match_the_running_maximum():
+    from scanmass.pipeline.photo_thickness import _pair_scores
+
+    rng = np.random.default_rng(11)
+    for trial in range(30):
+        n, m = int(rng.integers(1, 300)), int(rng.integers(20, 220))
+        grad = rng.random((n, m)).astype(np.float32)
+        if trial % 3 == 0:
+            grad = np.round(grad * 4).astype(np.float32) / 4  # ties: the first best offset must win
+        if trial % 5 == 0:
+            grad[:, :] = 0.0  # nothing scores above zero
+        s_px = (np.arange(m) - m // 2) * 0.25
+        band = rng.random(n) * (m * 0.3)
+        best, where = _pair_scores(grad, s_px, band)
+        best0, where0 = _plain_pair_scores(grad, s_px, band)
+        assert best.dtype == best0.dtype and np.array_equal(best, best0), trial
+        assert np.array_equal(where, where0), trial
+
+
+def test_wall_profiles_from_a_linear_box_match_the_whole_linear_image():
+    # check value: OpenCV's remap over the whole image converted to linear light
+    from scanmass.pipeline.photo_thickness import _linear_profiles
+
+    rng = np.random.default_rng(12)
+    grey = rng.integers(0, 256, (300, 411), dtype=np.uint8)
+    table = (np.arange(256, dtype=np.float32) / 255.0) ** np.float32(2.2)
+    whole = table[grey]
+    for trial in range(40):
+        centre = rng.random(2) * [520, 400] - [50, 50]  # some boxes run past the image's edges
+        pts = (centre + (rng.random((60, 25, 2)) - 0.5) * rng.random() * 200).astype(np.float32)
+        mx, my = np.ascontiguousarray(pts[..., 0]), np.ascontiguousarray(pts[..., 1])
+        expect = cv2.remap(whole, mx, my, cv2.INTER_LINEAR)
+        assert np.array_equal(_linear_profiles(grey, table, pts), expect), trial

@@ -93,25 +93,46 @@ def _pair_scores(grad: np.ndarray, s_px: np.ndarray, band_px: np.ndarray) -> tup
     shift = np.round(band_px / PROFILE_STEP_PX).astype(int)
     zero = int(np.searchsorted(s_px, 0.0))
     pad = int(round(1.5 / PROFILE_STEP_PX))
-    best = np.full(n, -1.0)
-    where = np.zeros(n)
-    rows = np.arange(n)
     lo = np.maximum(zero - shift - pad, 0)
-    for off in range(0, int(shift.max()) + 2 * pad + 1):
-        i0 = lo + off
-        ok = (i0 <= zero + pad) & (i0 + shift < m)
-        i0c = np.minimum(i0, m - 1)
-        a = grad[rows, i0c]
-        b = grad[rows, np.minimum(i0c + shift, m - 1)]
-        c = grad[rows, np.minimum(i0c + shift // 2, m - 1)]
-        score = np.where(ok, np.minimum(a, b) - c, -1.0)
-        better = score > best
-        best = np.where(better, score, best)
-        where = np.where(better, s_px[i0c], where)
-    return best, where
+    # every start offset at once (profiles x offsets); the first best offset wins, as a running strict maximum would
+    i0 = lo[:, None] + np.arange(int(shift.max()) + 2 * pad + 1)[None, :]
+    ok = (i0 <= zero + pad) & (i0 + shift[:, None] < m)
+    i0c = np.minimum(i0, m - 1)
+    a = np.take_along_axis(grad, i0c, axis=1)
+    b = np.take_along_axis(grad, np.minimum(i0c + shift[:, None], m - 1), axis=1)
+    c = np.take_along_axis(grad, np.minimum(i0c + (shift // 2)[:, None], m - 1), axis=1)
+    score = np.where(ok, np.minimum(a, b) - c, -1.0)
+    first = np.argmax(score, axis=1)
+    rows = np.arange(n)
+    best = score[rows, first].astype(np.float64)  # the running maximum's type: the curve averages in float64
+    where = np.where(best > -1.0, s_px[i0c[rows, first]], 0.0)
+    return np.maximum(best, -1.0), where
 
 
-def _one_part(lin: np.ndarray, scale: PhotoScale, part: Part) -> WallThickness:
+def _linear_profiles(grey: np.ndarray, table: np.ndarray, pts: np.ndarray) -> np.ndarray:
+    """Linear light sampled at ``pts`` (px, float32 (N, S, 2)) with bilinear interpolation, outside the image 0.
+
+    Only the box the points and their interpolation neighbours cover is converted to linear light.
+    Each coordinate less the box's whole-pixel corner is exact in float32 (a whole number below the
+    coordinate removes only leading bits), so the remap reads the same pixels with the same weights
+    as on the whole converted image; the box reaches the image's border wherever a point lies beyond it.
+    """
+    h, w = grey.shape[:2]
+    xs, ys = pts[..., 0], pts[..., 1]
+    finite = np.isfinite(xs) & np.isfinite(ys)
+    if not finite.any():
+        return np.zeros(xs.shape, np.float32)
+    x0 = int(min(max(math.floor(float(xs[finite].min())) - 2, 0), w))
+    x1 = int(max(min(math.ceil(float(xs[finite].max())) + 3, w), x0))
+    y0 = int(min(max(math.floor(float(ys[finite].min())) - 2, 0), h))
+    y1 = int(max(min(math.ceil(float(ys[finite].max())) + 3, h), y0))
+    if x1 <= x0 or y1 <= y0:
+        return np.zeros(xs.shape, np.float32)
+    lin = table[grey[y0:y1, x0:x1]]
+    return cv2.remap(lin, xs - np.float32(x0), ys - np.float32(y0), cv2.INTER_LINEAR)
+
+
+def _one_part(grey: np.ndarray, table: np.ndarray, scale: PhotoScale, part: Part) -> WallThickness:
     """:func:`wall_thickness` for one part."""
     pm = scale.plane_map
     h0, k = pm.matrix, scale.camera_matrix
@@ -137,7 +158,7 @@ def _one_part(lin: np.ndarray, scale: PhotoScale, part: Part) -> WallThickness:
     if undistort is not None:
         flat = pts.reshape(-1, 2)
         pts = (2.0 * flat - undistort(flat)).reshape(pts.shape)  # ideal -> photo px, to about a pixel
-    prof = cv2.remap(lin, pts[..., 0].astype(np.float32), pts[..., 1].astype(np.float32), cv2.INTER_LINEAR)
+    prof = _linear_profiles(grey, table, pts.astype(np.float32))
     outside = prof[:, : int(round(2.0 / PROFILE_STEP_PX))].mean(axis=1)  # 1-3 px beyond the widest wall
     clear = outside >= PAPER_BESIDE * np.percentile(outside, 90)
     if np.count_nonzero(clear) < MIN_WALL_VERTICES:
@@ -207,12 +228,12 @@ def wall_thickness(image: LoadedImage, scale: PhotoScale, result: Measurement) -
     """
     if scale.camera_matrix is None:
         return []
-    lin = np.asarray(image.to_linear, np.float32)[image.grey]
+    table = np.asarray(image.to_linear, np.float32)
     out = []
     for part in result.parts:
         if part.outline_mm is None or any(h.outline_mm is None for h in part.holes):
             continue
-        out.append(_one_part(lin, scale, part))
+        out.append(_one_part(image.grey, table, scale, part))
     return out
 
 
