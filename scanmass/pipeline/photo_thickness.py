@@ -19,7 +19,7 @@ from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import _with_extra_term, change_term
 from scanmass.scale.camera import PhotoScale
-from scanmass.scale.homography import ElevationHook, apply_h
+from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.section import escaping_holes, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.uncertainty import combine
 
@@ -242,21 +242,21 @@ def footprint_rings(
 ) -> tuple[np.ndarray, list[np.ndarray]]:
     """A part's rings (mm) moved to its footprint for a top face ``thickness_mm`` above the mat.
 
-    As :func:`~scanmass.scale.homography.raised_outline_mm`: a vertex whose outward normal points
-    along the parallax is a top-face point and moves to its footprint; with ``top_edge`` every
-    vertex is (the outline ran on the top face's edge all round).
+    :func:`~scanmass.scale.homography.raised_outline_mm` for each ring (a vertex whose outward
+    normal points along the parallax is a top-face point and moves to its footprint), the holes
+    kept clockwise as :func:`_rings` gives them; with ``top_edge`` every vertex moves (the outline
+    ran on the top face's edge all round).
     """
     assert scale.camera_matrix is not None
-    e = ElevationHook(scale.plane_map.matrix, scale.camera_matrix, thickness_mm).footprint_mm
-    out = []
-    for ring in _rings(part):
-        foot = apply_h(e, ring)
-        if top_edge:
-            out.append(foot)
-            continue
-        top = np.sum(vertex_normals(ring) * (ring - foot), axis=1) > 0
-        out.append(np.where(top[:, None], foot, ring))
-    return out[0], out[1:]
+    h0, k = scale.plane_map.matrix, scale.camera_matrix
+    outer, *holes = _rings(part)
+    if top_edge:
+        e = ElevationHook(h0, k, thickness_mm).footprint_mm
+        return apply_h(e, outer), [apply_h(e, ring) for ring in holes]
+    # raised_outline_mm puts a ring counter-clockwise first: a (clockwise) hole comes back reversed
+    return raised_outline_mm(h0, k, thickness_mm, outer), [
+        raised_outline_mm(h0, k, thickness_mm, ring, hole=True)[::-1] for ring in holes
+    ]
 
 
 def _moved(part: Part, outer: np.ndarray, holes: list[np.ndarray]) -> Part:
