@@ -6,6 +6,8 @@ every selected level, OpenCV's ``convexHull`` on every pixel of a mask.
 
 from __future__ import annotations
 
+import dataclasses
+
 import cv2
 import numpy as np
 
@@ -515,3 +517,100 @@ def test_wall_profiles_from_a_linear_box_match_the_whole_linear_image():
         mx, my = np.ascontiguousarray(pts[..., 0]), np.ascontiguousarray(pts[..., 1])
         expect = cv2.remap(whole, mx, my, cv2.INTER_LINEAR)
         assert np.array_equal(_linear_profiles(grey, table, pts), expect), trial
+
+
+def _same_scale(got, plain) -> None:
+    """Two PhotoScales equal to the bit: matrices, terms, every sampled map on the same pixels, the ROI."""
+    pm, pp = got.plane_map, plain.plane_map
+    assert np.array_equal(pm.matrix, pp.matrix) and pm.rel_u == pp.rel_u and pm.terms == pp.terms
+    assert pm.note == pp.note and pm.mm_per_px == pp.mm_per_px
+    a, b = pm.photo, pp.photo
+    assert (a.focal_px, a.focal_source, a.thickness, a.lens_profile) == (
+        b.focal_px,
+        b.focal_source,
+        b.thickness,
+        b.lens_profile,
+    )
+    with np.printoptions(precision=17, threshold=10**6):
+        assert repr(a.target) == repr(b.target)  # the markers used, their corners
+    px = np.array([[120.0, 140.0], [450.0, 600.0], [800.0, 1100.0], [300.5, 900.25]])
+    assert np.array_equal(pm.to_mm(px), pp.to_mm(px))
+    assert len(pm.samples) == len(pp.samples)
+    for a, b in zip(pm.samples, pp.samples):
+        assert np.array_equal(a.to_mm(px), b.to_mm(px))
+    assert np.array_equal(got.roi_px, plain.roi_px) and np.array_equal(got.camera_matrix, plain.camera_matrix)
+    assert got.warnings == plain.warnings and np.array_equal(got.support_mm, plain.support_mm)
+    assert got.layout.name == plain.layout.name and np.array_equal(got.detection.ids, plain.detection.ids)
+    assert np.array_equal(got.detection.corners_px, plain.detection.corners_px)
+
+
+def test_one_scale_basis_gives_every_thickness_the_fresh_scale():
+    # check value: mat_scale called afresh for each thickness (markers found and fitted again, maps sampled again)
+    from _reallight_truth import REALLIGHT
+
+    from scanmass import load_image
+    from scanmass.scale.mat_scale import mat_scale, mat_scale_basis
+
+    image = load_image(REALLIGHT / "dev-mixed-black2-t22.jpg")
+    basis = mat_scale_basis(image)
+    # in an order where a thickness with random heights (u > 0) comes after others and again
+    for t, u in [(None, 0.0), (3.0, 0.4), (6.5, 0.0), (0.0, 0.0), (3.0, 0.4), (2.25, 1.1)]:
+        got = basis.with_thickness(t, u)
+        _same_scale(got, mat_scale(image, thickness_mm=t, thickness_u_mm=u))
+        if t and u:
+            # the sampled heights continue numpy's stream seeded 12345 past the 64 focal-length draws (the
+            # perspective's focal length: one draw per sampled map), as the scale built in one go drew them
+            assert got.plane_map.photo.focal_source.startswith("estimated from the view's perspective")
+            rng = np.random.default_rng(12345)
+            rng.standard_normal(len(got.plane_map.samples))
+            heights = [max(t + u * rng.standard_normal(), 0.0) for _ in got.plane_map.samples]
+            assert [s.correction.height_mm for s in got.plane_map.samples] == heights
+
+
+def test_photo_basis_tone_and_mask_do_not_read_the_thickness():
+    # check value: the markers' tone curve and the masked image made from the scale with each thickness
+    from _reallight_truth import REALLIGHT
+
+    from scanmass import load_image
+    from scanmass.options import MeasureOptions
+    from scanmass.pipeline.flow import _photo_basis, photo_scale
+    from scanmass.pipeline.photo_checks import _mask_outside
+    from scanmass.scale.markertone import marker_tone
+
+    image = load_image(REALLIGHT / "dev-mixed-black2-t22.jpg")
+    options = MeasureOptions(encoding="auto")
+    basis = _photo_basis(image, options, "mat")
+    assert basis.tone is not None
+    for t in (None, 1.5, 4.0, 9.0):
+        scale = photo_scale(image, dataclasses.replace(options, thickness_mm=t, thickness_u_mm=0.3), "mat")
+        assert marker_tone(image, scale) == basis.tone
+        assert np.array_equal(_mask_outside(image, scale.roi_px).grey, basis.masked.grey)
+
+
+def test_raised_rings_made_once_are_footprint_rings_and_never_stale():
+    # check value: photo_thickness.footprint_rings called afresh on the part as it is
+    from _reallight_truth import REALLIGHT
+
+    from scanmass import load_image, measure
+    from scanmass.pipeline.photo_thickness import RaisedRings, footprint_rings
+    from scanmass.scale.mat_scale import mat_scale
+
+    path = REALLIGHT / "dev-mixed-black2-t22.jpg"
+    scale = mat_scale(load_image(path))
+    parts = measure(path).parts
+    assert parts and any(p.holes for p in parts)
+    raised = RaisedRings(scale)
+
+    def same(a, b) -> bool:
+        return np.array_equal(a[0], b[0]) and len(a[1]) == len(b[1]) and all(map(np.array_equal, a[1], b[1]))
+
+    for part in parts:
+        for t, top in [(2.0, False), (5.5, True), (2.0, False)]:
+            assert same(raised.rings(part, t, top), footprint_rings(scale, part, t, top))
+        # the part replaced by one with other rings (as a check between two uses may do): made again
+        moved = dataclasses.replace(part, outline_mm=np.asarray(part.outline_mm) + 0.5)
+        assert same(raised.rings(moved, 2.0, False), footprint_rings(scale, moved, 2.0, False))
+        if part.holes:
+            hole = dataclasses.replace(part.holes[0], outline_mm=np.asarray(part.holes[0].outline_mm)[::-1])
+            other = dataclasses.replace(part, holes=[hole, *part.holes[1:]])
+            assert same(raised.rings(other, 2.0, False), footprint_rings(scale, other, 2.0, False))

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass, field, fields, replace
 
 import cv2
 import numpy as np
@@ -132,11 +132,18 @@ def _linear_profiles(grey: np.ndarray, table: np.ndarray, pts: np.ndarray) -> np
     return cv2.remap(lin, xs - np.float32(x0), ys - np.float32(y0), cv2.INTER_LINEAR)
 
 
-def _one_part(grey: np.ndarray, table: np.ndarray, scale: PhotoScale, part: Part) -> WallThickness:
-    """:func:`wall_thickness` for one part."""
-    pm = scale.plane_map
-    h0, k = pm.matrix, scale.camera_matrix
+def _tops_seen(scale: PhotoScale) -> list[np.ndarray]:
+    """Per thickness of :data:`THICKNESS_GRID_MM`: the map (mm -> mm) from a bottom point to where the top edge above it is seen."""
+    h0, k = scale.plane_map.matrix, scale.camera_matrix
     assert k is not None  # wall_thickness reads photos with a camera matrix only
+    return [np.linalg.inv(ElevationHook(h0, k, float(t)).footprint_mm) for t in THICKNESS_GRID_MM]
+
+
+def _one_part(
+    grey: np.ndarray, table: np.ndarray, scale: PhotoScale, part: Part, tops_seen: list[np.ndarray]
+) -> WallThickness:
+    """:func:`wall_thickness` for one part; ``tops_seen`` from :func:`_tops_seen` (the same for every part)."""
+    pm = scale.plane_map
     rings = _rings(part)
     x_mm = np.vstack(rings)
     n_mm = np.vstack([vertex_normals(r) for r in rings])
@@ -144,8 +151,8 @@ def _one_part(grey: np.ndarray, table: np.ndarray, scale: PhotoScale, part: Part
     d = pm.to_px(x_mm + 0.05 * n_mm) - p0
     n_px = d / np.maximum(np.linalg.norm(d, axis=1), 1e-12)[:, None]  # away from the material
     bands = np.empty((len(THICKNESS_GRID_MM), len(x_mm)))
-    for i, t in enumerate(THICKNESS_GRID_MM):
-        seen = apply_h(np.linalg.inv(ElevationHook(h0, k, float(t)).footprint_mm), x_mm)  # the top edge above x
+    for i, top_seen in enumerate(tops_seen):
+        seen = apply_h(top_seen, x_mm)  # the top edge above x
         bands[i] = -np.sum(n_px * (pm.to_px(seen) - p0), axis=1)  # inward: the wall faces the camera
     near = bands[-1] > 2 * MIN_BAND_PX
     if np.count_nonzero(near) < MIN_WALL_VERTICES:
@@ -230,10 +237,12 @@ def wall_thickness(image: LoadedImage, scale: PhotoScale, result: Measurement) -
         return []
     table = np.asarray(image.to_linear, np.float32)
     out = []
+    tops_seen: list[np.ndarray] = []
     for part in result.parts:
         if part.outline_mm is None or any(h.outline_mm is None for h in part.holes):
             continue
-        out.append(_one_part(image.grey, table, scale, part))
+        tops_seen = tops_seen or _tops_seen(scale)
+        out.append(_one_part(image.grey, table, scale, part, tops_seen))
     return out
 
 
@@ -259,6 +268,42 @@ def footprint_rings(
     ]
 
 
+@dataclass
+class RaisedRings:
+    """Footprint rings (:func:`footprint_rings`) of ``scale``'s parts, each made once per part, thickness and side.
+
+    :func:`liftable` and :func:`with_wall_thickness` both raise a part by its estimate plus 1.5
+    sigma; the second takes the first's rings where the part's rings are still the same (compared
+    by value: a check between the two may have replaced the part).
+    """
+
+    scale: PhotoScale
+    made: dict[tuple[int, float, bool], tuple[list[np.ndarray], tuple[np.ndarray, list[np.ndarray]]]] = field(
+        default_factory=dict
+    )
+
+    def rings(self, part: Part, thickness_mm: float, top_edge: bool) -> tuple[np.ndarray, list[np.ndarray]]:
+        """:func:`footprint_rings` of ``part`` on :attr:`scale`."""
+        source = [np.array(part.outline_mm, float)] + [np.array(h.outline_mm, float) for h in part.holes]
+        key = (part.label, float(thickness_mm), bool(top_edge))
+        done = self.made.get(key)
+        if done is not None and len(done[0]) == len(source):
+            if all(a.shape == b.shape and np.array_equal(a, b) for a, b in zip(done[0], source)):
+                return done[1]
+        rings = footprint_rings(self.scale, part, thickness_mm, top_edge)
+        self.made[key] = (source, rings)
+        return rings
+
+
+def _raised(
+    raised: RaisedRings | None, scale: PhotoScale, part: Part, thickness_mm: float, top_edge: bool
+) -> tuple[np.ndarray, list[np.ndarray]]:
+    """:func:`footprint_rings`, through ``raised`` where it holds this scale's rings."""
+    if raised is not None and raised.scale is scale:
+        return raised.rings(part, thickness_mm, top_edge)
+    return footprint_rings(scale, part, thickness_mm, top_edge)
+
+
 def _moved(part: Part, outer: np.ndarray, holes: list[np.ndarray]) -> Part:
     """The part's figures from other rings (its uncertainties and terms kept)."""
     props = section_properties(outer, holes)
@@ -281,14 +326,19 @@ def _moved(part: Part, outer: np.ndarray, holes: list[np.ndarray]) -> Part:
     return replace(part, holes=new_holes, outline_mm=outer, **{f.name: getattr(props, f.name) for f in fields(props)})
 
 
-def liftable(scale: PhotoScale, result: Measurement, estimates: list[WallThickness]) -> list[WallThickness]:
-    """The estimates a part can be lifted by: a lifted hole must stay inside the lifted outline."""
+def liftable(
+    scale: PhotoScale, result: Measurement, estimates: list[WallThickness], raised: RaisedRings | None = None
+) -> list[WallThickness]:
+    """The estimates a part can be lifted by: a lifted hole must stay inside the lifted outline.
+
+    ``raised`` keeps the rings raised by estimate plus 1.5 sigma for :func:`with_wall_thickness`.
+    """
     out = []
     for est in estimates:
         part = next((p for p in result.parts if p.label == est.label), None)
         if est.thickness_mm is None or part is None:
             continue
-        rings = footprint_rings(scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
+        rings = _raised(raised, scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
         if not escaping_holes(*rings):
             out.append(est)
     return out
@@ -306,13 +356,16 @@ def unread_note(estimates: list[WallThickness], lifted: list[WallThickness]) -> 
     return f"; the thickness could not be read from the side walls ({'; '.join(why)})" if why else ""
 
 
-def with_wall_thickness(scale: PhotoScale, result: Measurement, estimates: list[WallThickness]) -> list[str]:
+def with_wall_thickness(
+    scale: PhotoScale, result: Measurement, estimates: list[WallThickness], raised: RaisedRings | None = None
+) -> list[str]:
     """Lift each part with an estimate by its thickness, with the term ``thickness_estimate``; a warning.
 
     The part's rings go to their footprints (:func:`footprint_rings`) and its figures are
     computed again; the term is the change of every figure between the estimate and the
     estimate plus 1.5 sigma, taken as 1.5 sigma (the change is near linear in the thickness).
-    The estimates are those of :func:`liftable` (the other parts keep ``thickness_unknown``).
+    The estimates are those of :func:`liftable` (the other parts keep ``thickness_unknown``);
+    ``raised`` holds the rings it raised (:class:`RaisedRings`).
     """
     lifted: set[int] = set()
     said = []
@@ -325,7 +378,7 @@ def with_wall_thickness(scale: PhotoScale, result: Measurement, estimates: list[
             continue
         part = result.parts[n]
         outer, holes = footprint_rings(scale, part, est.thickness_mm, est.top_edge)
-        outer_u, holes_u = footprint_rings(scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
+        outer_u, holes_u = _raised(raised, scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
         if escaping_holes(outer, holes) or escaping_holes(outer_u, holes_u):
             continue
         term = change_term(outer, holes, outer_u, holes_u, share=1.0 / 1.5)
