@@ -614,3 +614,23 @@ def test_raised_rings_made_once_are_footprint_rings_and_never_stale():
             hole = dataclasses.replace(part.holes[0], outline_mm=np.asarray(part.holes[0].outline_mm)[::-1])
             other = dataclasses.replace(part, holes=[hole, *part.holes[1:]])
             assert same(raised.rings(other, 2.0, False), footprint_rings(scale, other, 2.0, False))
+
+
+def test_footprint_maps_decomposed_once_are_each_hooks_to_the_bit():
+    # check value: ElevationHook(h0, k, h).footprint_mm made afresh at each height (the pose decomposed each time)
+    from scanmass.scale.homography import ElevationHook, footprint_maps_mm
+
+    rng = np.random.default_rng(21)
+    heights = np.arange(0.5, 12.0001, 0.1)
+    for trial in range(12):
+        f = rng.uniform(800.0, 4000.0)
+        k = np.array([[f, 0.0, rng.uniform(400, 2000)], [0.0, f, rng.uniform(300, 1500)], [0.0, 0.0, 1.0]])
+        tilt = rng.uniform(-0.5, 0.5, 3)
+        r, _ = cv2.Rodrigues(tilt)
+        t = np.array([rng.uniform(-100, 100), rng.uniform(-100, 100), rng.uniform(300, 900)])
+        g = k @ np.column_stack([r[:, 0], r[:, 1], t])  # plane mm -> px of a camera looking at the plane
+        h0 = np.linalg.inv(g)
+        h0 /= h0[2, 2]
+        got = footprint_maps_mm(h0, k, heights)
+        for h, m in zip(heights, got):
+            assert np.array_equal(m, ElevationHook(h0, k, float(h)).footprint_mm), (trial, h)

@@ -19,7 +19,7 @@ from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import _with_extra_term, change_term
 from scanmass.scale.camera import PhotoScale
-from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
+from scanmass.scale.homography import ElevationHook, apply_h, footprint_maps_mm, raised_outline_mm
 from scanmass.section import escaping_holes, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.uncertainty import combine
 
@@ -136,7 +136,7 @@ def _tops_seen(scale: PhotoScale) -> list[np.ndarray]:
     """Per thickness of :data:`THICKNESS_GRID_MM`: the map (mm -> mm) from a bottom point to where the top edge above it is seen."""
     h0, k = scale.plane_map.matrix, scale.camera_matrix
     assert k is not None  # wall_thickness reads photos with a camera matrix only
-    return [np.linalg.inv(ElevationHook(h0, k, float(t)).footprint_mm) for t in THICKNESS_GRID_MM]
+    return [np.linalg.inv(e) for e in footprint_maps_mm(h0, k, THICKNESS_GRID_MM)]
 
 
 def _one_part(
