@@ -634,3 +634,23 @@ def test_footprint_maps_decomposed_once_are_each_hooks_to_the_bit():
         got = footprint_maps_mm(h0, k, heights)
         for h, m in zip(heights, got):
             assert np.array_equal(m, ElevationHook(h0, k, float(h)).footprint_mm), (trial, h)
+
+
+def test_wall_score_curve_from_shared_step_counts_is_the_per_thickness_loop():
+    # check value: _plain_pair_scores (the running maximum above) run for every trial thickness, its mean taken
+    from scanmass.pipeline.photo_thickness import PROFILE_STEP_PX, _score_curve
+
+    rng = np.random.default_rng(33)
+    for trial in range(25):
+        n, m = int(rng.integers(1, 70)), int(rng.integers(40, 160))
+        grad = rng.random((n, m)).astype(np.float32 if trial % 2 else np.float64)
+        if trial % 5 == 0:
+            grad = np.round(grad * 4) / 4  # ties: the first best offset must win
+        s_px = (np.arange(m) - m // 2) * PROFILE_STEP_PX
+        slope = rng.uniform(0.0, 0.3, n)  # bands grow with the thickness: neighbours share step counts
+        bands = np.arange(0.5, 12.0001, 0.1)[:, None] * slope[None, :] * rng.uniform(1, 8) + rng.uniform(-0.5, 1, n)
+        curve, starts = _score_curve(grad, s_px, bands)
+        for i, band in enumerate(bands):
+            best, where = _plain_pair_scores(grad, s_px, band)
+            assert curve[i] == float(np.mean(np.maximum(best, 0.0))), (trial, i)
+            assert np.array_equal(starts[i], where), (trial, i)

@@ -109,6 +109,32 @@ def _pair_scores(grad: np.ndarray, s_px: np.ndarray, band_px: np.ndarray) -> tup
     return np.maximum(best, -1.0), where
 
 
+def _score_curve(grad: np.ndarray, s_px: np.ndarray, bands: np.ndarray) -> tuple[np.ndarray, list[np.ndarray]]:
+    """Per trial thickness (rows of ``bands``, px): the mean positive :func:`_pair_scores` score and each profile's start.
+
+    A profile's score depends on its band only through the band's whole number of steps, and
+    neighbouring thicknesses mostly share it: each (profile, steps) pair is scored once, the
+    profiles of one step count together, and every thickness gathers its profiles' scores.
+    """
+    n = grad.shape[0]
+    shifts = np.round(bands / PROFILE_STEP_PX).astype(int)  # as _pair_scores rounds each row
+    v0 = int(shifts.min()) if shifts.size else 0
+    need = np.zeros((int(shifts.max()) - v0 + 1 if shifts.size else 0, n), bool)
+    cols = np.arange(n)
+    need[shifts - v0, cols[None, :]] = True
+    best = np.zeros(need.shape)
+    where = np.zeros(need.shape)
+    for v in np.flatnonzero(need.any(axis=1)):
+        rows = np.flatnonzero(need[v])
+        best[v, rows], where[v, rows] = _pair_scores(grad[rows], s_px, np.full(len(rows), (v + v0) * PROFILE_STEP_PX))
+    curve = np.empty(len(bands))
+    starts = []
+    for i, row in enumerate(shifts):
+        curve[i] = float(np.mean(np.maximum(best[row - v0, cols], 0.0)))
+        starts.append(where[row - v0, cols])
+    return curve, starts
+
+
 def _linear_profiles(grey: np.ndarray, table: np.ndarray, pts: np.ndarray) -> np.ndarray:
     """Linear light sampled at ``pts`` (px, float32 (N, S, 2)) with bilinear interpolation, outside the image 0.
 
@@ -173,12 +199,7 @@ def _one_part(
     prof, bands = prof[clear], bands[:, clear]
     grad = np.abs(np.gradient(prof, PROFILE_STEP_PX, axis=1))
     grad /= grad.max(axis=1, keepdims=True) + 1e-9
-    curve = np.empty(len(THICKNESS_GRID_MM))
-    starts = []
-    for i in range(len(THICKNESS_GRID_MM)):
-        score, where = _pair_scores(grad, s_px, bands[i])
-        curve[i] = float(np.mean(np.maximum(score, 0.0)))
-        starts.append(where)
+    curve, starts = _score_curve(grad, s_px, bands)
     peak = int(np.argmax(curve))
     prominence = curve[peak] - max(curve[: peak + 1].min(), curve[peak:].min())
     band = float(np.median(bands[peak]))
