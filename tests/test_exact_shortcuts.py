@@ -540,8 +540,10 @@ def _same_scale(got, plain) -> None:
         assert np.array_equal(a.to_mm(px), b.to_mm(px))
     assert np.array_equal(got.roi_px, plain.roi_px) and np.array_equal(got.camera_matrix, plain.camera_matrix)
     assert got.warnings == plain.warnings and np.array_equal(got.support_mm, plain.support_mm)
-    assert got.layout.name == plain.layout.name and np.array_equal(got.detection.ids, plain.detection.ids)
-    assert np.array_equal(got.detection.corners_px, plain.detection.corners_px)
+    assert (got.layout is None) == (plain.layout is None) and (got.detection is None) == (plain.detection is None)
+    if got.layout is not None:
+        assert got.layout.name == plain.layout.name and np.array_equal(got.detection.ids, plain.detection.ids)
+        assert np.array_equal(got.detection.corners_px, plain.detection.corners_px)
 
 
 def test_one_scale_basis_gives_every_thickness_the_fresh_scale():
@@ -654,3 +656,33 @@ def test_wall_score_curve_from_shared_step_counts_is_the_per_thickness_loop():
             best, where = _plain_pair_scores(grad, s_px, band)
             assert curve[i] == float(np.mean(np.maximum(best, 0.0))), (trial, i)
             assert np.array_equal(starts[i], where), (trial, i)
+
+
+def test_sheet_scale_basis_continues_the_seeded_stream_past_the_size_draws():
+    # check values: sheet_scale called afresh per thickness, and numpy's stream seeded 12345: two uniform
+    # size draws per sampled map (the sheet's trimming tolerance), one focal draw per map, then the heights
+    from scanmass.scale.sheet import sheet_scale, sheet_scale_basis
+    from scanmass.testing.photos import PhotoParts, make_camera, render_photo
+    from scanmass.testing.scans import rectangle
+
+    cam = make_camera(tilt_deg=22.0, tilt_dir_deg=130.0, roll_deg=90.0, distance_mm=400.0)
+    grey = render_photo(
+        None, [PhotoParts(rectangle(60.0, 90.0, 50.0, 35.0), [])], cam, seed=4, sheet_mm=(210.0, 297.0), table=0.15
+    )
+    from scanmass import load_image
+
+    image = load_image(grey)
+    basis = sheet_scale_basis(image, "a4")
+    for t, u in [(4.0, 0.6), (None, 0.0), (4.0, 0.6), (1.0, 0.0)]:
+        got = basis.with_thickness(t, u)
+        _same_scale(got, sheet_scale(image, "a4", thickness_mm=t, thickness_u_mm=u))
+        if t and u:
+            samples = got.plane_map.samples
+            assert got.plane_map.photo.focal_source.startswith("estimated from the view's perspective")
+            rng = np.random.default_rng(12345)
+            for _ in samples:
+                rng.uniform(-np.sqrt(3), np.sqrt(3))
+                rng.uniform(-np.sqrt(3), np.sqrt(3))
+            rng.standard_normal(len(samples))
+            heights = [max(t + u * rng.standard_normal(), 0.0) for _ in samples]
+            assert [s.correction.height_mm for s in samples] == heights
