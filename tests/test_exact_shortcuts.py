@@ -6,6 +6,8 @@ every selected level, OpenCV's ``convexHull`` on every pixel of a mask.
 
 from __future__ import annotations
 
+import dataclasses
+
 import cv2
 import numpy as np
 
@@ -515,3 +517,172 @@ def test_wall_profiles_from_a_linear_box_match_the_whole_linear_image():
         mx, my = np.ascontiguousarray(pts[..., 0]), np.ascontiguousarray(pts[..., 1])
         expect = cv2.remap(whole, mx, my, cv2.INTER_LINEAR)
         assert np.array_equal(_linear_profiles(grey, table, pts), expect), trial
+
+
+def _same_scale(got, plain) -> None:
+    """Two PhotoScales equal to the bit: matrices, terms, every sampled map on the same pixels, the ROI."""
+    pm, pp = got.plane_map, plain.plane_map
+    assert np.array_equal(pm.matrix, pp.matrix) and pm.rel_u == pp.rel_u and pm.terms == pp.terms
+    assert pm.note == pp.note and pm.mm_per_px == pp.mm_per_px
+    a, b = pm.photo, pp.photo
+    assert (a.focal_px, a.focal_source, a.thickness, a.lens_profile) == (
+        b.focal_px,
+        b.focal_source,
+        b.thickness,
+        b.lens_profile,
+    )
+    with np.printoptions(precision=17, threshold=10**6):
+        assert repr(a.target) == repr(b.target)  # the markers used, their corners
+    px = np.array([[120.0, 140.0], [450.0, 600.0], [800.0, 1100.0], [300.5, 900.25]])
+    assert np.array_equal(pm.to_mm(px), pp.to_mm(px))
+    assert len(pm.samples) == len(pp.samples)
+    for a, b in zip(pm.samples, pp.samples):
+        assert np.array_equal(a.to_mm(px), b.to_mm(px))
+    assert np.array_equal(got.roi_px, plain.roi_px) and np.array_equal(got.camera_matrix, plain.camera_matrix)
+    assert got.warnings == plain.warnings and np.array_equal(got.support_mm, plain.support_mm)
+    assert (got.layout is None) == (plain.layout is None) and (got.detection is None) == (plain.detection is None)
+    if got.layout is not None:
+        assert got.layout.name == plain.layout.name and np.array_equal(got.detection.ids, plain.detection.ids)
+        assert np.array_equal(got.detection.corners_px, plain.detection.corners_px)
+
+
+def test_one_scale_basis_gives_every_thickness_the_fresh_scale():
+    # check value: mat_scale called afresh for each thickness (markers found and fitted again, maps sampled again)
+    from _reallight_truth import REALLIGHT
+
+    from scanmass import load_image
+    from scanmass.scale.mat_scale import mat_scale, mat_scale_basis
+
+    image = load_image(REALLIGHT / "dev-mixed-black2-t22.jpg")
+    basis = mat_scale_basis(image)
+    # in an order where a thickness with random heights (u > 0) comes after others and again
+    for t, u in [(None, 0.0), (3.0, 0.4), (6.5, 0.0), (0.0, 0.0), (3.0, 0.4), (2.25, 1.1)]:
+        got = basis.with_thickness(t, u)
+        _same_scale(got, mat_scale(image, thickness_mm=t, thickness_u_mm=u))
+        if t and u:
+            # the sampled heights continue numpy's stream seeded 12345 past the 64 focal-length draws (the
+            # perspective's focal length: one draw per sampled map), as the scale built in one go drew them
+            assert got.plane_map.photo.focal_source.startswith("estimated from the view's perspective")
+            rng = np.random.default_rng(12345)
+            rng.standard_normal(len(got.plane_map.samples))
+            heights = [max(t + u * rng.standard_normal(), 0.0) for _ in got.plane_map.samples]
+            assert [s.correction.height_mm for s in got.plane_map.samples] == heights
+
+
+def test_photo_basis_tone_and_mask_do_not_read_the_thickness():
+    # check value: the markers' tone curve and the masked image made from the scale with each thickness
+    from _reallight_truth import REALLIGHT
+
+    from scanmass import load_image
+    from scanmass.options import MeasureOptions
+    from scanmass.pipeline.flow import _photo_basis, photo_scale
+    from scanmass.pipeline.photo_checks import _mask_outside
+    from scanmass.scale.markertone import marker_tone
+
+    image = load_image(REALLIGHT / "dev-mixed-black2-t22.jpg")
+    options = MeasureOptions(encoding="auto")
+    basis = _photo_basis(image, options, "mat")
+    assert basis.tone is not None
+    for t in (None, 1.5, 4.0, 9.0):
+        scale = photo_scale(image, dataclasses.replace(options, thickness_mm=t, thickness_u_mm=0.3), "mat")
+        assert marker_tone(image, scale) == basis.tone
+        assert np.array_equal(_mask_outside(image, scale.roi_px).grey, basis.masked.grey)
+
+
+def test_raised_rings_made_once_are_footprint_rings_and_never_stale():
+    # check value: photo_thickness.footprint_rings called afresh on the part as it is
+    from _reallight_truth import REALLIGHT
+
+    from scanmass import load_image, measure
+    from scanmass.pipeline.photo_thickness import RaisedRings, footprint_rings
+    from scanmass.scale.mat_scale import mat_scale
+
+    path = REALLIGHT / "dev-mixed-black2-t22.jpg"
+    scale = mat_scale(load_image(path))
+    parts = measure(path).parts
+    assert parts and any(p.holes for p in parts)
+    raised = RaisedRings(scale)
+
+    def same(a, b) -> bool:
+        return np.array_equal(a[0], b[0]) and len(a[1]) == len(b[1]) and all(map(np.array_equal, a[1], b[1]))
+
+    for part in parts:
+        for t, top in [(2.0, False), (5.5, True), (2.0, False)]:
+            assert same(raised.rings(part, t, top), footprint_rings(scale, part, t, top))
+        # the part replaced by one with other rings (as a check between two uses may do): made again
+        moved = dataclasses.replace(part, outline_mm=np.asarray(part.outline_mm) + 0.5)
+        assert same(raised.rings(moved, 2.0, False), footprint_rings(scale, moved, 2.0, False))
+        if part.holes:
+            hole = dataclasses.replace(part.holes[0], outline_mm=np.asarray(part.holes[0].outline_mm)[::-1])
+            other = dataclasses.replace(part, holes=[hole, *part.holes[1:]])
+            assert same(raised.rings(other, 2.0, False), footprint_rings(scale, other, 2.0, False))
+
+
+def test_footprint_maps_decomposed_once_are_each_hooks_to_the_bit():
+    # check value: ElevationHook(h0, k, h).footprint_mm made afresh at each height (the pose decomposed each time)
+    from scanmass.scale.homography import ElevationHook, footprint_maps_mm
+
+    rng = np.random.default_rng(21)
+    heights = np.arange(0.5, 12.0001, 0.1)
+    for trial in range(12):
+        f = rng.uniform(800.0, 4000.0)
+        k = np.array([[f, 0.0, rng.uniform(400, 2000)], [0.0, f, rng.uniform(300, 1500)], [0.0, 0.0, 1.0]])
+        tilt = rng.uniform(-0.5, 0.5, 3)
+        r, _ = cv2.Rodrigues(tilt)
+        t = np.array([rng.uniform(-100, 100), rng.uniform(-100, 100), rng.uniform(300, 900)])
+        g = k @ np.column_stack([r[:, 0], r[:, 1], t])  # plane mm -> px of a camera looking at the plane
+        h0 = np.linalg.inv(g)
+        h0 /= h0[2, 2]
+        got = footprint_maps_mm(h0, k, heights)
+        for h, m in zip(heights, got):
+            assert np.array_equal(m, ElevationHook(h0, k, float(h)).footprint_mm), (trial, h)
+
+
+def test_wall_score_curve_from_shared_step_counts_is_the_per_thickness_loop():
+    # check value: _plain_pair_scores (the running maximum above) run for every trial thickness, its mean taken
+    from scanmass.pipeline.photo_thickness import PROFILE_STEP_PX, _score_curve
+
+    rng = np.random.default_rng(33)
+    for trial in range(25):
+        n, m = int(rng.integers(1, 70)), int(rng.integers(40, 160))
+        grad = rng.random((n, m)).astype(np.float32 if trial % 2 else np.float64)
+        if trial % 5 == 0:
+            grad = np.round(grad * 4) / 4  # ties: the first best offset must win
+        s_px = (np.arange(m) - m // 2) * PROFILE_STEP_PX
+        slope = rng.uniform(0.0, 0.3, n)  # bands grow with the thickness: neighbours share step counts
+        bands = np.arange(0.5, 12.0001, 0.1)[:, None] * slope[None, :] * rng.uniform(1, 8) + rng.uniform(-0.5, 1, n)
+        curve, starts = _score_curve(grad, s_px, bands)
+        for i, band in enumerate(bands):
+            best, where = _plain_pair_scores(grad, s_px, band)
+            assert curve[i] == float(np.mean(np.maximum(best, 0.0))), (trial, i)
+            assert np.array_equal(starts[i], where), (trial, i)
+
+
+def test_sheet_scale_basis_continues_the_seeded_stream_past_the_size_draws():
+    # check values: sheet_scale called afresh per thickness, and numpy's stream seeded 12345: two uniform
+    # size draws per sampled map (the sheet's trimming tolerance), one focal draw per map, then the heights
+    from scanmass.scale.sheet import sheet_scale, sheet_scale_basis
+    from scanmass.testing.photos import PhotoParts, make_camera, render_photo
+    from scanmass.testing.scans import rectangle
+
+    cam = make_camera(tilt_deg=22.0, tilt_dir_deg=130.0, roll_deg=90.0, distance_mm=400.0)
+    grey = render_photo(
+        None, [PhotoParts(rectangle(60.0, 90.0, 50.0, 35.0), [])], cam, seed=4, sheet_mm=(210.0, 297.0), table=0.15
+    )
+    from scanmass import load_image
+
+    image = load_image(grey)
+    basis = sheet_scale_basis(image, "a4")
+    for t, u in [(4.0, 0.6), (None, 0.0), (4.0, 0.6), (1.0, 0.0)]:
+        got = basis.with_thickness(t, u)
+        _same_scale(got, sheet_scale(image, "a4", thickness_mm=t, thickness_u_mm=u))
+        if t and u:
+            samples = got.plane_map.samples
+            assert got.plane_map.photo.focal_source.startswith("estimated from the view's perspective")
+            rng = np.random.default_rng(12345)
+            for _ in samples:
+                rng.uniform(-np.sqrt(3), np.sqrt(3))
+                rng.uniform(-np.sqrt(3), np.sqrt(3))
+            rng.standard_normal(len(samples))
+            heights = [max(t + u * rng.standard_normal(), 0.0) for _ in samples]
+            assert [s.correction.height_mm for s in samples] == heights

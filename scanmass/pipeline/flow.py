@@ -10,7 +10,7 @@ import contextlib
 import math
 import os
 from concurrent.futures import Future, ThreadPoolExecutor
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from typing import Any
 
 import cv2
@@ -46,6 +46,7 @@ from scanmass.pipeline.photo_holes import _open_deep_holes
 from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
 from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
 from scanmass.pipeline.photo_thickness import (
+    RaisedRings,
     WallThickness,
     liftable,
     measured_again,
@@ -66,11 +67,11 @@ from scanmass.pipeline.scan_checks import (
     _with_cut_term,
     _with_face_term,
 )
-from scanmass.scale.camera import PhotoScale
+from scanmass.scale.camera import PhotoScale, ScaleBasis
 from scanmass.scale.markertone import MarkerTone, marker_tone
-from scanmass.scale.mat_scale import mat_scale
+from scanmass.scale.mat_scale import mat_scale_basis
 from scanmass.scale.planemap import PlaneMap
-from scanmass.scale.sheet import sheet_scale
+from scanmass.scale.sheet import sheet_scale_basis
 from scanmass.section import escaping_holes
 from scanmass.segment.brightface import GrainFace, LostFace, recover_grain_faces, recover_lost_faces
 from scanmass.segment.closedfeat import measure_closed
@@ -290,23 +291,39 @@ def scan_plane_map(image: LoadedImage, options: MeasureOptions) -> PlaneMap:
 
 def photo_scale(image: LoadedImage, options: MeasureOptions, method: str) -> PhotoScale:
     """The :class:`~scanmass.scale.camera.PhotoScale` of a photo (``method`` "mat" or "sheet")."""
+    return photo_scale_basis(image, options, method).with_thickness(options.thickness_mm, options.thickness_u_mm)
+
+
+def photo_scale_basis(image: LoadedImage, options: MeasureOptions, method: str) -> ScaleBasis:
+    """:func:`photo_scale` before the thickness (``options.thickness_mm`` is not read)."""
     if method == "sheet":
-        return sheet_scale(
-            image,
-            str(options.sheet),
-            lens=options.lens,
-            thickness_mm=options.thickness_mm,
-            thickness_u_mm=options.thickness_u_mm,
-        )
-    return mat_scale(
+        return sheet_scale_basis(image, str(options.sheet), lens=options.lens)
+    return mat_scale_basis(
         image,
         mat=options.mat,
         printed_x_mm=options.printed_x_mm,
         printed_y_mm=options.printed_y_mm,
         lens=options.lens,
-        thickness_mm=options.thickness_mm,
-        thickness_u_mm=options.thickness_u_mm,
     )
+
+
+@dataclass(frozen=True)
+class _PhotoBasis:
+    """What a photo's measurement at any thickness starts from: the scale before the thickness, the
+    markers' tone curve and the image masked outside the clear area (none of them reads the thickness)."""
+
+    scale: ScaleBasis
+    tone: MarkerTone | None
+    masked: LoadedImage
+
+
+def _photo_basis(image: LoadedImage, options: MeasureOptions, method: str) -> _PhotoBasis:
+    """The :class:`_PhotoBasis` of a photo."""
+    basis = photo_scale_basis(image, options, method)
+    # the tone reads the markers through the plane map's matrix and lens only, the mask the clear area only
+    scale = basis.with_thickness(None)
+    tone = marker_tone(image, scale) if options.encoding == "auto" else None
+    return _PhotoBasis(basis, tone, _mask_outside(image, scale.roi_px))
 
 
 # ---------------------------------------------------------------------------------
@@ -796,12 +813,13 @@ def measure_photo(image: LoadedImage, options: MeasureOptions, method: str) -> M
     with ThreadPoolExecutor(max_workers=1) as pool:
         colour_job = pool.submit(_photo_colour, image)
         walls: list[WallThickness] = []
-        result = _measure_photo(image, options, method, colour_job, walls)
+        basis = _photo_basis(image, options, method)  # found once: measured again, only the thickness differs
+        result = _measure_photo(image, options, method, colour_job, walls, basis)
         if walls:
 
             def again(thickness_mm: float, thickness_u_mm: float) -> Measurement:
                 opts = replace(options, thickness_mm=thickness_mm, thickness_u_mm=thickness_u_mm)
-                return _measure_photo(image, opts, method, colour_job, [])
+                return _measure_photo(image, opts, method, colour_job, [], basis)
 
             measured_again(result, walls, again)
         return result
@@ -813,22 +831,23 @@ def _measure_photo(
     method: str,
     colour_job: Future[np.ndarray | None],
     walls_out: list[WallThickness],
+    basis: _PhotoBasis,
 ) -> Measurement:
-    """:func:`measure_photo` with its colour planes decoding in ``colour_job``.
+    """:func:`measure_photo` with its colour planes decoding in ``colour_job``, from ``basis``.
 
     Without a thickness, the parts lifted by the thickness read from their walls
     (:mod:`~scanmass.pipeline.photo_thickness`) are appended to ``walls_out``.
     """
     thickness_mm = options.thickness_mm  # checked by MeasureOptions.check
-    scale = photo_scale(image, options, method)
+    scale = basis.scale.with_thickness(thickness_mm, options.thickness_u_mm)
     min_area_px = options.min_area_mm2 / scale.plane_map.mm_per_px**2
 
     def colour_measure(plane: LoadedImage) -> Measurement:
         return measure_image(plane, options, plane_map=scale.plane_map, roi_px=scale.roi_px)
 
-    tone = marker_tone(image, scale) if options.encoding == "auto" else None
+    tone = basis.tone
     shift = tone if tone is not None and tone.applies else None
-    masked = _mask_outside(image, scale.roi_px)
+    masked = basis.masked
     try:
         result = measure_image(
             masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto",
@@ -905,7 +924,8 @@ def _measure_photo(
             "pass --encoding srgb to take the file as exact sRGB",
         )
     read = wall_thickness(image, scale, result) if thickness_mm is None else []
-    walls = liftable(scale, result, read)
+    raised = RaisedRings(scale)  # the rings raised by estimate + 1.5 sigma, made once for both
+    walls = liftable(scale, result, read, raised)
     walls_out += walls
     warnings += _unknown_thickness(
         scale, result, thickness_mm, read={w.label for w in walls}, unread=unread_note(read, walls)
@@ -913,7 +933,7 @@ def _measure_photo(
     warnings += _cast_shadows(image, scale, result, thickness_mm, colour, cut_labels)
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
-    warnings += with_wall_thickness(scale, result, walls)
+    warnings += with_wall_thickness(scale, result, walls, raised)
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": method})
     if shift is not None:  # only when applied: the documents of photos read as sRGB stay as they were

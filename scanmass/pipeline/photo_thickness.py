@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass, field, fields, replace
 
 import cv2
 import numpy as np
@@ -19,7 +19,7 @@ from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import _with_extra_term, change_term
 from scanmass.scale.camera import PhotoScale
-from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
+from scanmass.scale.homography import ElevationHook, apply_h, footprint_maps_mm, raised_outline_mm
 from scanmass.section import escaping_holes, fit_circle, ring_moments, ring_perimeter, section_properties
 from scanmass.uncertainty import combine
 
@@ -109,6 +109,32 @@ def _pair_scores(grad: np.ndarray, s_px: np.ndarray, band_px: np.ndarray) -> tup
     return np.maximum(best, -1.0), where
 
 
+def _score_curve(grad: np.ndarray, s_px: np.ndarray, bands: np.ndarray) -> tuple[np.ndarray, list[np.ndarray]]:
+    """Per trial thickness (rows of ``bands``, px): the mean positive :func:`_pair_scores` score and each profile's start.
+
+    A profile's score depends on its band only through the band's whole number of steps, and
+    neighbouring thicknesses mostly share it: each (profile, steps) pair is scored once, the
+    profiles of one step count together, and every thickness gathers its profiles' scores.
+    """
+    n = grad.shape[0]
+    shifts = np.round(bands / PROFILE_STEP_PX).astype(int)  # as _pair_scores rounds each row
+    v0 = int(shifts.min()) if shifts.size else 0
+    need = np.zeros((int(shifts.max()) - v0 + 1 if shifts.size else 0, n), bool)
+    cols = np.arange(n)
+    need[shifts - v0, cols[None, :]] = True
+    best = np.zeros(need.shape)
+    where = np.zeros(need.shape)
+    for v in np.flatnonzero(need.any(axis=1)):
+        rows = np.flatnonzero(need[v])
+        best[v, rows], where[v, rows] = _pair_scores(grad[rows], s_px, np.full(len(rows), (v + v0) * PROFILE_STEP_PX))
+    curve = np.empty(len(bands))
+    starts = []
+    for i, row in enumerate(shifts):
+        curve[i] = float(np.mean(np.maximum(best[row - v0, cols], 0.0)))
+        starts.append(where[row - v0, cols])
+    return curve, starts
+
+
 def _linear_profiles(grey: np.ndarray, table: np.ndarray, pts: np.ndarray) -> np.ndarray:
     """Linear light sampled at ``pts`` (px, float32 (N, S, 2)) with bilinear interpolation, outside the image 0.
 
@@ -132,11 +158,18 @@ def _linear_profiles(grey: np.ndarray, table: np.ndarray, pts: np.ndarray) -> np
     return cv2.remap(lin, xs - np.float32(x0), ys - np.float32(y0), cv2.INTER_LINEAR)
 
 
-def _one_part(grey: np.ndarray, table: np.ndarray, scale: PhotoScale, part: Part) -> WallThickness:
-    """:func:`wall_thickness` for one part."""
-    pm = scale.plane_map
-    h0, k = pm.matrix, scale.camera_matrix
+def _tops_seen(scale: PhotoScale) -> list[np.ndarray]:
+    """Per thickness of :data:`THICKNESS_GRID_MM`: the map (mm -> mm) from a bottom point to where the top edge above it is seen."""
+    h0, k = scale.plane_map.matrix, scale.camera_matrix
     assert k is not None  # wall_thickness reads photos with a camera matrix only
+    return [np.linalg.inv(e) for e in footprint_maps_mm(h0, k, THICKNESS_GRID_MM)]
+
+
+def _one_part(
+    grey: np.ndarray, table: np.ndarray, scale: PhotoScale, part: Part, tops_seen: list[np.ndarray]
+) -> WallThickness:
+    """:func:`wall_thickness` for one part; ``tops_seen`` from :func:`_tops_seen` (the same for every part)."""
+    pm = scale.plane_map
     rings = _rings(part)
     x_mm = np.vstack(rings)
     n_mm = np.vstack([vertex_normals(r) for r in rings])
@@ -144,8 +177,8 @@ def _one_part(grey: np.ndarray, table: np.ndarray, scale: PhotoScale, part: Part
     d = pm.to_px(x_mm + 0.05 * n_mm) - p0
     n_px = d / np.maximum(np.linalg.norm(d, axis=1), 1e-12)[:, None]  # away from the material
     bands = np.empty((len(THICKNESS_GRID_MM), len(x_mm)))
-    for i, t in enumerate(THICKNESS_GRID_MM):
-        seen = apply_h(np.linalg.inv(ElevationHook(h0, k, float(t)).footprint_mm), x_mm)  # the top edge above x
+    for i, top_seen in enumerate(tops_seen):
+        seen = apply_h(top_seen, x_mm)  # the top edge above x
         bands[i] = -np.sum(n_px * (pm.to_px(seen) - p0), axis=1)  # inward: the wall faces the camera
     near = bands[-1] > 2 * MIN_BAND_PX
     if np.count_nonzero(near) < MIN_WALL_VERTICES:
@@ -166,12 +199,7 @@ def _one_part(grey: np.ndarray, table: np.ndarray, scale: PhotoScale, part: Part
     prof, bands = prof[clear], bands[:, clear]
     grad = np.abs(np.gradient(prof, PROFILE_STEP_PX, axis=1))
     grad /= grad.max(axis=1, keepdims=True) + 1e-9
-    curve = np.empty(len(THICKNESS_GRID_MM))
-    starts = []
-    for i in range(len(THICKNESS_GRID_MM)):
-        score, where = _pair_scores(grad, s_px, bands[i])
-        curve[i] = float(np.mean(np.maximum(score, 0.0)))
-        starts.append(where)
+    curve, starts = _score_curve(grad, s_px, bands)
     peak = int(np.argmax(curve))
     prominence = curve[peak] - max(curve[: peak + 1].min(), curve[peak:].min())
     band = float(np.median(bands[peak]))
@@ -230,10 +258,12 @@ def wall_thickness(image: LoadedImage, scale: PhotoScale, result: Measurement) -
         return []
     table = np.asarray(image.to_linear, np.float32)
     out = []
+    tops_seen: list[np.ndarray] = []
     for part in result.parts:
         if part.outline_mm is None or any(h.outline_mm is None for h in part.holes):
             continue
-        out.append(_one_part(image.grey, table, scale, part))
+        tops_seen = tops_seen or _tops_seen(scale)
+        out.append(_one_part(image.grey, table, scale, part, tops_seen))
     return out
 
 
@@ -259,6 +289,42 @@ def footprint_rings(
     ]
 
 
+@dataclass
+class RaisedRings:
+    """Footprint rings (:func:`footprint_rings`) of ``scale``'s parts, each made once per part, thickness and side.
+
+    :func:`liftable` and :func:`with_wall_thickness` both raise a part by its estimate plus 1.5
+    sigma; the second takes the first's rings where the part's rings are still the same (compared
+    by value: a check between the two may have replaced the part).
+    """
+
+    scale: PhotoScale
+    made: dict[tuple[int, float, bool], tuple[list[np.ndarray], tuple[np.ndarray, list[np.ndarray]]]] = field(
+        default_factory=dict
+    )
+
+    def rings(self, part: Part, thickness_mm: float, top_edge: bool) -> tuple[np.ndarray, list[np.ndarray]]:
+        """:func:`footprint_rings` of ``part`` on :attr:`scale`."""
+        source = [np.array(part.outline_mm, float)] + [np.array(h.outline_mm, float) for h in part.holes]
+        key = (part.label, float(thickness_mm), bool(top_edge))
+        done = self.made.get(key)
+        if done is not None and len(done[0]) == len(source):
+            if all(a.shape == b.shape and np.array_equal(a, b) for a, b in zip(done[0], source)):
+                return done[1]
+        rings = footprint_rings(self.scale, part, thickness_mm, top_edge)
+        self.made[key] = (source, rings)
+        return rings
+
+
+def _raised(
+    raised: RaisedRings | None, scale: PhotoScale, part: Part, thickness_mm: float, top_edge: bool
+) -> tuple[np.ndarray, list[np.ndarray]]:
+    """:func:`footprint_rings`, through ``raised`` where it holds this scale's rings."""
+    if raised is not None and raised.scale is scale:
+        return raised.rings(part, thickness_mm, top_edge)
+    return footprint_rings(scale, part, thickness_mm, top_edge)
+
+
 def _moved(part: Part, outer: np.ndarray, holes: list[np.ndarray]) -> Part:
     """The part's figures from other rings (its uncertainties and terms kept)."""
     props = section_properties(outer, holes)
@@ -281,14 +347,19 @@ def _moved(part: Part, outer: np.ndarray, holes: list[np.ndarray]) -> Part:
     return replace(part, holes=new_holes, outline_mm=outer, **{f.name: getattr(props, f.name) for f in fields(props)})
 
 
-def liftable(scale: PhotoScale, result: Measurement, estimates: list[WallThickness]) -> list[WallThickness]:
-    """The estimates a part can be lifted by: a lifted hole must stay inside the lifted outline."""
+def liftable(
+    scale: PhotoScale, result: Measurement, estimates: list[WallThickness], raised: RaisedRings | None = None
+) -> list[WallThickness]:
+    """The estimates a part can be lifted by: a lifted hole must stay inside the lifted outline.
+
+    ``raised`` keeps the rings raised by estimate plus 1.5 sigma for :func:`with_wall_thickness`.
+    """
     out = []
     for est in estimates:
         part = next((p for p in result.parts if p.label == est.label), None)
         if est.thickness_mm is None or part is None:
             continue
-        rings = footprint_rings(scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
+        rings = _raised(raised, scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
         if not escaping_holes(*rings):
             out.append(est)
     return out
@@ -306,13 +377,16 @@ def unread_note(estimates: list[WallThickness], lifted: list[WallThickness]) -> 
     return f"; the thickness could not be read from the side walls ({'; '.join(why)})" if why else ""
 
 
-def with_wall_thickness(scale: PhotoScale, result: Measurement, estimates: list[WallThickness]) -> list[str]:
+def with_wall_thickness(
+    scale: PhotoScale, result: Measurement, estimates: list[WallThickness], raised: RaisedRings | None = None
+) -> list[str]:
     """Lift each part with an estimate by its thickness, with the term ``thickness_estimate``; a warning.
 
     The part's rings go to their footprints (:func:`footprint_rings`) and its figures are
     computed again; the term is the change of every figure between the estimate and the
     estimate plus 1.5 sigma, taken as 1.5 sigma (the change is near linear in the thickness).
-    The estimates are those of :func:`liftable` (the other parts keep ``thickness_unknown``).
+    The estimates are those of :func:`liftable` (the other parts keep ``thickness_unknown``);
+    ``raised`` holds the rings it raised (:class:`RaisedRings`).
     """
     lifted: set[int] = set()
     said = []
@@ -325,7 +399,7 @@ def with_wall_thickness(scale: PhotoScale, result: Measurement, estimates: list[
             continue
         part = result.parts[n]
         outer, holes = footprint_rings(scale, part, est.thickness_mm, est.top_edge)
-        outer_u, holes_u = footprint_rings(scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
+        outer_u, holes_u = _raised(raised, scale, part, est.thickness_mm + 1.5 * est.sigma_mm, est.top_edge)
         if escaping_holes(outer, holes) or escaping_holes(outer_u, holes_u):
             continue
         term = change_term(outer, holes, outer_u, holes_u, share=1.0 / 1.5)

@@ -15,6 +15,7 @@ import math
 import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -46,6 +47,8 @@ __all__ = [
     "LensTools",
     "lens_tools",
     "build_photo_scale",
+    "photo_scale_basis",
+    "ScaleBasis",
     "principal_point",
     "SAMPLES",
     "FILM_DIAGONAL_MM",
@@ -219,8 +222,142 @@ def build_photo_scale(
     sample_sigma_px: float,
     size_samples: Callable[[np.random.Generator], np.ndarray] | None = None,
 ) -> PhotoScale:
-    """Common tail of mat_scale and sheet_scale: samples, focal length, thickness, the PlaneMap, the ROI."""
-    profile, undistort, distort = lens.profile, lens.undistort, lens.distort
+    """Common tail of mat_scale and sheet_scale: samples, focal length, thickness, the PlaneMap, the ROI.
+
+    :func:`photo_scale_basis` and then :meth:`ScaleBasis.with_thickness`.
+    """
+    basis = photo_scale_basis(
+        image,
+        method=method,
+        fit=fit,
+        points_mm=points_mm,
+        printer=printer,
+        terms=terms,
+        details=details,
+        note=note,
+        clear_mm=clear_mm,
+        lens=lens,
+        support_mm=support_mm,
+        warnings=warnings,
+        sample_sigma_px=sample_sigma_px,
+        size_samples=size_samples,
+    )
+    return basis.with_thickness(thickness_mm, thickness_u_mm)
+
+
+@dataclass(frozen=True)
+class ScaleBasis:
+    """A photo's scale before a thickness is given: the fit, its sampled maps and the camera.
+
+    :meth:`with_thickness` gives the :class:`PhotoScale` for a part's thickness; the random
+    stream continues from ``rng_state`` (where :func:`photo_scale_basis` left it), so a scale
+    built from one basis is the one :func:`build_photo_scale` builds in one go.
+    ``detection`` and ``layout`` (a marker mat's) are set on the scale as they are.
+    """
+
+    method: str
+    fit: HomographyFit
+    h0: np.ndarray
+    matrices: list[np.ndarray]
+    k: np.ndarray
+    f_samples: np.ndarray
+    f_note: str
+    rng_state: dict[str, Any]
+    terms: dict[str, float]
+    details: MatDetails | SheetDetails
+    note: str
+    clear_mm: tuple[float, float, float, float] | np.ndarray
+    lens: LensTools
+    centre_px: np.ndarray
+    mm_per_px: float
+    roi_px: np.ndarray
+    support_mm: np.ndarray
+    warnings: list[str]
+    detection: MarkerDetection | None = None
+    layout: MatLayout | None = None
+
+    def with_thickness(self, thickness_mm: float | None, thickness_u_mm: float = 0.0) -> PhotoScale:
+        """The :class:`PhotoScale` for a measured face ``thickness_mm`` above the plane (1-sigma ``thickness_u_mm``)."""
+        profile, undistort = self.lens.profile, self.lens.undistort
+        rng = np.random.default_rng(0)
+        rng.bit_generator.state = self.rng_state
+        h0, k, matrices, centre_px = self.h0, self.k, self.matrices, self.centre_px
+        terms = dict(self.terms)
+        hook: PixelCorrection | None = undistort
+        corrections: list[PixelCorrection | None] = [undistort] * len(matrices)
+        thickness = None
+        if thickness_mm is not None and thickness_mm > 0:
+            hook = ElevationHook(h0, k, thickness_mm, undistort)
+            hooks = []
+            for h, f in zip(matrices, self.f_samples):
+                kk = k.copy()
+                kk[0, 0] = kk[1, 1] = f
+                hk = thickness_mm + thickness_u_mm * rng.standard_normal() if thickness_u_mm > 0 else thickness_mm
+                hooks.append(ElevationHook(h, kk, max(hk, 0.0), undistort))
+            corrections = list(hooks)
+            # relative spread of the raised face's scale (focal length and height uncertain)
+            raised = np.array([local_scale(hk.hh, centre_px) for hk in hooks])
+            terms["thickness"] = float(np.std(raised, ddof=1) / np.mean(raised))
+            shift = _parallax_mm(h0, k, thickness_mm, centre_px)
+            thickness = ThicknessCorrection(
+                height_mm=thickness_mm, height_u_mm=thickness_u_mm, parallax_at_centre_mm=shift
+            )
+        clear_mm = self.clear_mm
+        if profile is not None:  # the calibration's residual, as a misfit over a typical part's size
+            clear_diag = math.hypot(clear_mm[2] - clear_mm[0], clear_mm[3] - clear_mm[1])
+            terms["lens"] = profile.rms_px * self.mm_per_px / (0.25 * clear_diag)
+        rel_u = combine(*terms.values())
+        info = PhotoScaleInfo(
+            target=self.details,
+            lens_profile=self.lens.source,
+            focal_px=float(k[0, 0]),
+            focal_source=self.f_note,
+            thickness=thickness,
+        )
+        plane_map = PlaneMap(
+            matrix=h0,
+            method=self.method,
+            rel_u=rel_u,
+            terms=terms,
+            note=self.note,
+            reprojection_rms_px=self.fit.rms_px,
+            reprojection_rms_mm=self.fit.rms_mm,
+            undistort=hook,
+            mm_per_px_nominal=self.mm_per_px,
+            samples=tuple(PlaneMapSample(h, c) for h, c in zip(matrices, corrections)),
+            photo=info,
+        )
+        return PhotoScale(
+            plane_map=plane_map,
+            roi_px=self.roi_px.copy(),
+            support_mm=self.support_mm,
+            warnings=list(self.warnings),
+            fit=self.fit,
+            camera_matrix=k,
+            detection=self.detection,
+            layout=self.layout,
+        )
+
+
+def photo_scale_basis(
+    image: LoadedImage,
+    *,
+    method: str,
+    fit: HomographyFit,
+    points_mm: np.ndarray,
+    printer: np.ndarray,
+    terms: dict[str, float],
+    details: MatDetails | SheetDetails,
+    note: str,
+    clear_mm: tuple[float, float, float, float] | np.ndarray,
+    lens: LensTools,
+    support_mm: np.ndarray,
+    warnings: list[str],
+    sample_sigma_px: float,
+    size_samples: Callable[[np.random.Generator], np.ndarray] | None = None,
+) -> ScaleBasis:
+    """The thickness-free part of :func:`build_photo_scale`: the sampled maps, the focal length, the ROI."""
+    distort = lens.distort
     rng = np.random.default_rng(12345)
     h0 = printer @ fit.px_to_plane
     h0 = h0 / h0[2, 2]
@@ -234,57 +371,32 @@ def build_photo_scale(
         raw = [size_samples(rng) @ h for h in raw]
     matrices = [printer @ h for h in raw]
     matrices = [h / h[2, 2] for h in matrices]
-    hook: PixelCorrection | None = undistort
-    corrections: list[PixelCorrection | None] = [undistort] * len(matrices)
-    k, f_samples, f_note = _camera_matrix(image, None if lens.estimated else profile, matrices, rng)
-    thickness = None
-    if thickness_mm is not None and thickness_mm > 0:
-        hook = ElevationHook(h0, k, thickness_mm, undistort)
-        hooks = []
-        for h, f in zip(matrices, f_samples):
-            kk = k.copy()
-            kk[0, 0] = kk[1, 1] = f
-            hk = thickness_mm + thickness_u_mm * rng.standard_normal() if thickness_u_mm > 0 else thickness_mm
-            hooks.append(ElevationHook(h, kk, max(hk, 0.0), undistort))
-        corrections = list(hooks)
-        # relative spread of the raised face's scale (focal length and height uncertain)
-        raised = np.array([local_scale(hk.hh, centre_px) for hk in hooks])
-        terms["thickness"] = float(np.std(raised, ddof=1) / np.mean(raised))
-        shift = _parallax_mm(h0, k, thickness_mm, centre_px)
-        thickness = ThicknessCorrection(height_mm=thickness_mm, height_u_mm=thickness_u_mm, parallax_at_centre_mm=shift)
-    if profile is not None:  # the calibration's residual, as a misfit over a typical part's size
-        clear_diag = math.hypot(clear_mm[2] - clear_mm[0], clear_mm[3] - clear_mm[1])
-        terms["lens"] = profile.rms_px * mm_per_px / (0.25 * clear_diag)
-    rel_u = combine(*terms.values())
-    info = PhotoScaleInfo(
-        target=details,
-        lens_profile=lens.source,
-        focal_px=float(k[0, 0]),
-        focal_source=f_note,
-        thickness=thickness,
-    )
-    plane_map = PlaneMap(
-        matrix=h0,
-        method=method,
-        rel_u=rel_u,
-        terms=terms,
-        note=note,
-        reprojection_rms_px=fit.rms_px,
-        reprojection_rms_mm=fit.rms_mm,
-        undistort=hook,
-        mm_per_px_nominal=mm_per_px,
-        samples=tuple(PlaneMapSample(h, c) for h, c in zip(matrices, corrections)),
-        photo=info,
-    )
+    k, f_samples, f_note = _camera_matrix(image, None if lens.estimated else lens.profile, matrices, rng)
     inv = np.linalg.inv(h0)
 
     def to_px(pts_mm: np.ndarray) -> np.ndarray:
         ideal = apply_h(inv, pts_mm)
         return distort(ideal) if distort is not None else ideal
 
-    roi = _roi_from_rect(clear_mm, to_px)
-    return PhotoScale(
-        plane_map=plane_map, roi_px=roi, support_mm=support_mm, warnings=warnings, fit=fit, camera_matrix=k
+    return ScaleBasis(
+        method=method,
+        fit=fit,
+        h0=h0,
+        matrices=matrices,
+        k=k,
+        f_samples=f_samples,
+        f_note=f_note,
+        rng_state=dict(rng.bit_generator.state),
+        terms=terms,
+        details=details,
+        note=note,
+        clear_mm=clear_mm,
+        lens=lens,
+        centre_px=centre_px,
+        mm_per_px=mm_per_px,
+        roi_px=_roi_from_rect(clear_mm, to_px),
+        support_mm=support_mm,
+        warnings=list(warnings),
     )
 
 

@@ -24,6 +24,7 @@ __all__ = [
     "focal_from_homography",
     "decompose_plane",
     "elevated_plane_homography",
+    "footprint_maps_mm",
     "ElevationHook",
     "raised_outline_mm",
 ]
@@ -230,6 +231,28 @@ def elevated_plane_homography(plane_to_px: np.ndarray, k: np.ndarray, height_mm:
     gh = k @ np.column_stack([r1, r2, t + height_mm * r3])
     # keep the fitted G for the plane itself: apply the same correction to both
     return _normalised(plane_to_px @ np.linalg.solve(g0, gh))
+
+
+def footprint_maps_mm(px_to_plane: np.ndarray, k: np.ndarray, heights_mm: np.ndarray) -> list[np.ndarray]:
+    """:attr:`ElevationHook.footprint_mm` for each height, the plane's pose decomposed once.
+
+    Each matrix is the one ``ElevationHook(px_to_plane, k, h).footprint_mm`` gives, by the same
+    operations in the same order (:func:`elevated_plane_homography` decomposes the plane the
+    same way at every height).
+    """
+    h0 = np.asarray(px_to_plane, dtype=float)
+    g0 = _normalised(np.linalg.inv(h0))
+    k = np.asarray(k, dtype=float)
+    r1, r2, r3, t = decompose_plane(g0, k)
+    g_fit = k @ np.column_stack([r1, r2, t])
+    out = []
+    for height in heights_mm:
+        gk = k @ np.column_stack([r1, r2, t + float(height) * r3])
+        gh = _normalised(g0 @ np.linalg.solve(g_fit, gk))
+        hh = _normalised(np.linalg.inv(gh))
+        to_footprint = _normalised(g0 @ hh)
+        out.append(_normalised(h0 @ to_footprint @ g0))
+    return out
 
 
 class ElevationHook:

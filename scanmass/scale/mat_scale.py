@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import math
 import os
+from dataclasses import replace
 
 import cv2
 import numpy as np
@@ -24,8 +25,9 @@ from scanmass.scale.camera import (
     FILM_DIAGONAL_MM,
     LensTools,
     PhotoScale,
-    build_photo_scale,
+    ScaleBasis,
     lens_tools,
+    photo_scale_basis,
     principal_point,
 )
 from scanmass.scale.homography import HomographyFit, apply_h, fit_homography, focal_from_homography
@@ -35,7 +37,7 @@ from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids, load_lay
 from scanmass.scale.planemap import MarkerUse, MatDetails, PrinterCheck
 from scanmass.scale.selfcal import estimate_radial_distortion
 
-__all__ = ["mat_scale", "PRINTER_REL_U", "PRINTED_READING_U_MM", "MAX_MISFIT_MM"]
+__all__ = ["mat_scale", "mat_scale_basis", "PRINTER_REL_U", "PRINTED_READING_U_MM", "MAX_MISFIT_MM"]
 
 #: Relative standard uncertainty of an unverified print's scale (1 sigma). Common
 #: practice: office printers printing "at 100 %" reproduce lengths to a few tenths of a
@@ -105,6 +107,24 @@ def mat_scale(
     ScaleError
         No or too few markers, unknown layout, markers inconsistent with a flat mat,
         motion blur.
+    """
+    return mat_scale_basis(
+        image, mat=mat, printed_x_mm=printed_x_mm, printed_y_mm=printed_y_mm, lens=lens
+    ).with_thickness(thickness_mm, thickness_u_mm)
+
+
+def mat_scale_basis(
+    image: LoadedImage,
+    *,
+    mat: str | os.PathLike | MatLayout | None = None,
+    printed_x_mm: float | None = None,
+    printed_y_mm: float | None = None,
+    lens: LensProfile | str | os.PathLike | None = None,
+) -> ScaleBasis:
+    """:func:`mat_scale` before a thickness: the markers found and fitted, the maps sampled.
+
+    Its :meth:`~scanmass.scale.camera.ScaleBasis.with_thickness` is :func:`mat_scale` with that
+    thickness (a photo measured at several thicknesses finds its markers once).
     """
     path = image.path
     tools = lens_tools(lens, image)
@@ -190,7 +210,7 @@ def mat_scale(
         f"marker mat {layout.name}: {int(inl_markers.sum())} of {len(layout.markers)} markers, "
         f"reprojection RMS {fit.rms_px:.3f} px"
     )
-    scale = build_photo_scale(
+    basis = photo_scale_basis(
         image,
         method="mat",
         fit=fit,
@@ -201,15 +221,11 @@ def mat_scale(
         note=note,
         clear_mm=clear_phys,
         lens=tools,
-        thickness_mm=thickness_mm,
-        thickness_u_mm=thickness_u_mm,
         support_mm=support,
         warnings=warnings,
         sample_sigma_px=fit.sigma_px,
     )
-    scale.detection = det
-    scale.layout = layout
-    return scale
+    return replace(basis, detection=det, layout=layout)
 
 
 #: The self-calibrated lens is used only when it explains at least this share of the misfit

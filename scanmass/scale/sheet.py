@@ -17,13 +17,13 @@ import numpy as np
 from scanmass.errors import OptionError, ScaleError
 from scanmass.load.decode import LoadedImage
 from scanmass.numeric import combine, otsu_threshold
-from scanmass.scale.camera import PhotoScale, build_photo_scale, lens_tools
+from scanmass.scale.camera import PhotoScale, ScaleBasis, lens_tools, photo_scale_basis
 from scanmass.scale.edges import Line, fit_line, intersect_lines, side_frame
 from scanmass.scale.homography import fit_homography
 from scanmass.scale.lens import LensProfile
 from scanmass.scale.planemap import PixelCorrection, SheetDetails
 
-__all__ = ["sheet_scale", "SHEET_SIZES_MM", "SHEET_TOLERANCE_MM", "SHEET_MARGIN_MM"]
+__all__ = ["sheet_scale", "sheet_scale_basis", "SHEET_SIZES_MM", "SHEET_TOLERANCE_MM", "SHEET_MARGIN_MM"]
 
 #: Nominal sheet sizes (width, height) in mm, portrait. ISO 216:2007 table 1 (A4, A3);
 #: ANSI/ASME Y14.1-2020 table 1 size A (US Letter, 8.5 x 11 in).
@@ -59,6 +59,13 @@ def sheet_scale(
     .. [2] ANSI/ASME Y14.1-2020, Decimal inch drawing sheet size and format.
     .. [3] JCGM 100:2008 (GUM), section 4.3.7 (rectangular distribution).
     """
+    return sheet_scale_basis(image, sheet, lens=lens).with_thickness(thickness_mm, thickness_u_mm)
+
+
+def sheet_scale_basis(
+    image: LoadedImage, sheet: str, *, lens: LensProfile | str | os.PathLike | None = None
+) -> ScaleBasis:
+    """:func:`sheet_scale` before a thickness (its :meth:`~scanmass.scale.camera.ScaleBasis.with_thickness`)."""
     path = image.path
     key = str(sheet).strip().lower()
     if key not in SHEET_SIZES_MM:
@@ -97,7 +104,7 @@ def sheet_scale(
         f"scale from a plain {key} sheet: its trimming tolerance (+-{SHEET_TOLERANCE_MM:g} mm) limits the "
         "accuracy; a printed marker mat ('scanmass mat') does better"
     ]
-    return build_photo_scale(
+    return photo_scale_basis(
         image,
         method="sheet",
         fit=fit,
@@ -108,8 +115,6 @@ def sheet_scale(
         note=note,
         clear_mm=clear,
         lens=tools,
-        thickness_mm=thickness_mm,
-        thickness_u_mm=thickness_u_mm,
         support_mm=target,
         warnings=warnings,
         sample_sigma_px=fit.sigma_px,
