@@ -44,7 +44,8 @@ belong to the tuned set::
         dev-mixed-black2-t22 dev-mixed-black3-t17 dev-mixed-black4-t25 \
         dev-mixed-steel2-t15 dev-mixed-steel3-t22 dev-window-steel3-t10 \
         dev-window-steel4-t22 dev-spot-brass4-t17 dev-spot-brass5-t24 dev-window-disc8-t4 \
-        dev-mixed-steel4-t8 dev-lens-window-steel-t24
+        dev-mixed-steel4-t8 dev-lens-window-steel-t24 dev-window-steel5-t14 dev-soft-brass2-t15 \
+        dev-mixed-black5-t18
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34 dev-scan-cam2-lamp33 dev-scan-bracket4-lamp29 \
@@ -891,6 +892,36 @@ def dev_scenes():
             8,
             90,
             "Standard",
+        ),
+        # branch heavymetal14: the held-out set's remaining classes under the Filmic tone curve: a thick steel
+        # plate with four holes beside a brass collar in window light at a tilt; a thick brass L-bracket beside a
+        # thin brass gasket in soft light; a thick black plate with four holes beside a thin black disc in mixed light
+        (
+            "dev-window-steel5-t14",
+            "window",
+            [("plate4", "brushed-steel", 5.5, 120, 195, 70), ("collar", "brass", 3.5, 85, 100, 0)],
+            325,
+            14,
+            40,
+            "Filmic",
+        ),
+        (
+            "dev-soft-brass2-t15",
+            "soft",
+            [("l-bracket", "brass", 5.5, 125, 100, -70), ("gasket", "brass", 2.0, 85, 195, 0)],
+            320,
+            15,
+            320,
+            "Filmic",
+        ),
+        (
+            "dev-mixed-black5-t18",
+            "mixed",
+            [("plate4", "black-plastic", 5.5, 125, 195, -30), ("disc", "black-plastic", 1.4, 85, 95, 200)],
+            330,
+            18,
+            220,
+            "Filmic",
         ),
     ]
 

@@ -952,3 +952,61 @@ def test_thickness_read_from_the_walls_is_not_biased():
         errors.append(est["thickness_mm"] - tp["t"])
         assert abs(errors[-1]) <= 3 * est["thickness_u_mm"], (name, shape)
     assert abs(statistics.median(errors)) <= 0.15, sorted(round(e, 2) for e in errors)
+
+
+def test_thick_brass_bracket_in_soft_light_seen_on_its_top_edge():
+    """dev-soft-brass2-t15 (branch heavymetal14; soft light, Filmic, 15 degrees of tilt): a brass L bracket 5.5 mm
+    thick whose face is brighter than the paper and whose side wall facing the camera looks like the paper, so the
+    outline runs on the top face's edge all round. Its two 5.5 mm holes (15.4 px across) fit a circle to 0.08-0.11
+    px mapped on the top edge against 0.33-0.42 px on the bottom one, but rings under 16 px did not vote
+    (pipeline.photo_walls.wall_sides): the part was mapped as seen on its bottom edge, -8.2 % in area, holes +0.81
+    and +0.74 mm (bench_reallight). With rings from 12 px voting: -0.6 %, holes +0.07 mm. Truth: the render's
+    outlines (area and centroid by shapely; holes as equal-area circles)."""
+    m, part, tp = _part("dev-soft-brass2-t15", "l-bracket")
+    assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]  # was -8.2 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.3  # was 0.57 mm
+    assert len(part.holes) == 2
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert abs(hole.diameter_mm - diameter) < 0.25  # was +0.81 / +0.74 mm
+    assert _covered(part, tp)
+
+
+def test_thick_steel_plate_and_brass_collar_in_window_light_under_filmic_are_covered():
+    """dev-window-steel5-t14 (branch heavymetal14; window light, Filmic, 14 degrees of tilt): a brushed-steel plate
+    5.5 mm thick with four holes beside a brass collar 3.5 mm. The plate keeps its cast shadow (+20.1 %, its 11 mm
+    hole missed, as the held-out set's 6 mm plate in window light) and the collar a strip of its own (+18.2 %); the
+    result warns of the cast shadow and its stated uncertainty covers both (within 3 sigma; bench_reallight: 0.4
+    and 1.2 sigma). Truth: the render's outlines, area and centroid by shapely."""
+    for shape in ("plate4", "collar"):
+        m, part, tp = _part("dev-window-steel5-t14", shape)
+        assert _covered(part, tp), shape
+        assert {"cast_shadow", "shadow_cut"} & set(part.uncertainty_terms), shape
+    assert any(w.startswith("cast shadow:") for w in m.warnings)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-window-steel5-t14 (branch heavymetal14): the 5.5 mm steel plate keeps its cast shadow, +20.1 % in "
+    "area, centroid 3.2 mm, its 11 mm hole missed (a dark pit, warned 'possible hidden hole'): its face, 0.02-0.39 "
+    "of the paper under the Filmic curve, fades as a shadow alone does, so no cut was tried; tried as a part too "
+    "wide for a shadow alone, its sweep (10 px) is found but the shadow is only 2.9 times as rough as the grainy "
+    "face (a cut needs 4); the brass collar 3.5 mm reads +18.2 % (its fade cut only)",
+)
+def test_thick_steel_plate_in_window_light_under_filmic_within_3_percent():
+    for shape in ("plate4", "collar"):
+        m, part, tp = _part("dev-window-steel5-t14", shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-mixed-black5-t18 (branch heavymetal14): the 5.5 mm black plate's holes in mixed light read 2.45, "
+    "1.91, 1.02 and 0.21 mm small (within their stated 2.5-3.8 mm), as the held-out set's 6 mm black L bracket's; "
+    "area +2.1 %",
+)
+def test_thick_black_plate_in_mixed_light_holes_within_half_a_millimetre():
+    m, part, tp = _part("dev-mixed-black5-t18", "plate4")
+    for centre, diameter in tp["holes"]:
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert abs(hole.diameter_mm - diameter) < 0.5

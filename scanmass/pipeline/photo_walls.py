@@ -29,6 +29,11 @@ ROUND_RMS_PX = 0.35
 ROUND_RATIO = 0.75
 #: Smallest median width (px) of the wall facing the camera for a ring to take part.
 WALL_SIDE_MIN_PX = 0.5
+#: Smallest diameter (px) of a ring, mapped as seen on its top edge, for it to vote. The 5.5 mm holes of a
+#: thick brass L bracket in soft light (dev-soft-brass2-t15, 0.36 mm/px) are 15.4 px across and fit their
+#: circle to 0.08-0.11 px on the top edge against 0.33-0.42 px on the bottom one; below 16 px they did not
+#: vote and the part read 8 % small, its holes 0.8 mm large.
+ROUND_MIN_DIAMETER_PX = 12.0
 
 
 def wall_sides(
@@ -98,7 +103,7 @@ def wall_sides(
             except OptionError:
                 continue
             limit = ROUND_RMS_PX * mm_per_px
-            if as_top.diameter_mm < 16 * mm_per_px:
+            if as_top.diameter_mm < ROUND_MIN_DIAMETER_PX * mm_per_px:
                 continue
             if as_top.rms_mm <= limit and as_top.rms_mm < ROUND_RATIO * as_bottom.rms_mm:
                 votes.add("top")
