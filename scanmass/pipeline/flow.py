@@ -47,8 +47,10 @@ from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
 from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
 from scanmass.pipeline.photo_thickness import (
     WallThickness,
+    fused,
     liftable,
     measured_again,
+    rim_thickness,
     unread_note,
     wall_thickness,
     with_wall_thickness,
@@ -904,7 +906,7 @@ def _measure_photo(
             f"{tone.gamma:.3f} (the correction that puts the markers' edges on their printed place) pass half-way; "
             "pass --encoding srgb to take the file as exact sRGB",
         )
-    read = wall_thickness(image, scale, result) if thickness_mm is None else []
+    read = fused(wall_thickness(image, scale, result), rim_thickness(scale, result)) if thickness_mm is None else []
     walls = liftable(scale, result, read)
     walls_out += walls
     warnings += _unknown_thickness(
