@@ -17,6 +17,7 @@ import pytest
 from polygon_truth import truth
 
 from scanmass import measure
+from scanmass.pipeline.photo_thickness import WallThickness, fused
 from scanmass.scale.homography import apply_h
 from scanmass.scale.mat import make_mat
 from scanmass.testing.photos import PhotoParts, make_camera, render_photo
@@ -67,14 +68,63 @@ def test_thickness_read_from_a_lit_wall():
 
 @pytest.mark.slow
 def test_wall_as_dark_as_the_top_face_is_not_read():
-    """The wall in the part's own level shows no band: the parallax term stays, and the warning says why."""
-    part = dataclasses.replace(_plate(), height_mm=5.0)
+    """The wall in the part's own level shows no band, and the part has no round ring (a square window): the
+    parallax term stays, and the warning says why."""
+    square = rectangle(92.0, 107.0, 16.0, 16.0, angle_deg=17.0)[::-1]
+    part = dataclasses.replace(_plate(), holes_mm=[square], height_mm=5.0)
     cam = make_camera(tilt_deg=25.0, tilt_dir_deg=30.0, roll_deg=80.0, distance_mm=360.0)
     img = render_photo(MAT, [part], cam, seed=22)
     m = measure(img, printed_x_mm=100.0, printed_y_mm=100.0)
     assert "thickness_estimate" not in m.settings
     assert "thickness_unknown" in m.parts[0].uncertainty_terms
     assert any("could not be read from the side walls" in w for w in m.warnings)
+
+
+@pytest.mark.slow
+def test_thickness_read_from_a_round_hole_where_the_wall_shows_no_band():
+    """The wall in the part's own level shows no band, but the 16 mm round hole is seen as a lens (its near
+    rim lifted by the parallax): the thickness that maps it back to a circle (rim_thickness) is read. Truth:
+    the prism's height (5 mm) and its outline's area and centroid (shapely). Before the round-rim cue
+    (branch wallcue14) no thickness was read here and the part kept 'thickness_unknown'."""
+    part, height = dataclasses.replace(_plate(), height_mm=5.0), 5.0
+    t = truth(part.outer_mm, part.holes_mm)
+    cam = make_camera(tilt_deg=25.0, tilt_dir_deg=30.0, roll_deg=80.0, distance_mm=360.0)
+    img = render_photo(MAT, [part], cam, seed=22)
+    m = measure(img, printed_x_mm=100.0, printed_y_mm=100.0)
+    est = m.settings["thickness_estimate"]["parts"]["1"]
+    assert est["cue"] == "rim"
+    assert abs(est["thickness_mm"] - height) <= 3 * est["thickness_u_mm"]
+    assert abs(est["thickness_mm"] - height) < 0.5  # read 5.00 (sigma 0.8)
+    assert est["thickness_u_mm"] < 0.5 * height  # a figure that says something
+    p = m.parts[0]
+    assert "thickness_unknown" not in p.uncertainty_terms and "thickness_estimate" in p.uncertainty_terms
+    assert abs(p.area_mm2 - t["area"]) <= 3 * p.area_u_mm2
+    for k in range(2):
+        assert abs(p.centroid_mm[k] - t["centroid"][k]) <= 3 * p.centroid_u_mm[k]
+    assert abs(p.area_mm2 - t["area"]) < 0.005 * t["area"]  # read +0.01 %
+
+
+def test_rim_reading_fused_with_the_wall_band():
+    """fused(): inverse-variance mean where the two cues agree within the root sum of squares of their sigmas
+    (the weighted mean of two measurements, common practice); the wall estimate widened to their difference
+    where they do not; a rim reading alone where the wall band gave none."""
+    wall = [
+        WallThickness(1, 4.0, 1.0),
+        WallThickness(2, 2.0, 0.5),
+        WallThickness(3, None, reason="no band"),
+        WallThickness(4, 3.0, 0.6),
+    ]
+    rims = [
+        WallThickness(1, 3.0, 1.0, cue="rim"),
+        WallThickness(2, 4.0, 0.5, cue="rim"),
+        WallThickness(3, 2.5, 0.7, cue="rim"),
+    ]
+    out = {w.label: w for w in fused(wall, rims)}
+    assert out[1].thickness_mm == pytest.approx(3.5) and out[1].sigma_mm == pytest.approx(math.sqrt(0.5))
+    assert out[1].cue == "wall+rim"
+    assert out[2].thickness_mm == 2.0 and out[2].sigma_mm == pytest.approx(2.0) and out[2].cue == "wall"
+    assert out[3].thickness_mm == 2.5 and out[3].cue == "rim"
+    assert out[4] == wall[3]
 
 
 @pytest.mark.slow

@@ -48,8 +48,10 @@ from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
 from scanmass.pipeline.photo_thickness import (
     RaisedRings,
     WallThickness,
+    fused,
     liftable,
     measured_again,
+    rim_thickness,
     unread_note,
     wall_thickness,
     with_wall_thickness,
@@ -923,7 +925,7 @@ def _measure_photo(
             f"{tone.gamma:.3f} (the correction that puts the markers' edges on their printed place) pass half-way; "
             "pass --encoding srgb to take the file as exact sRGB",
         )
-    read = wall_thickness(image, scale, result) if thickness_mm is None else []
+    read = fused(wall_thickness(image, scale, result), rim_thickness(scale, result)) if thickness_mm is None else []
     raised = RaisedRings(scale)  # the rings raised by estimate + 1.5 sigma, made once for both
     walls = liftable(scale, result, read, raised)
     walls_out += walls
