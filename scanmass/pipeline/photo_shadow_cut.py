@@ -393,14 +393,15 @@ def _decide_cuts(
     )
 
 
-def _swing_term(part: Part, probes: list[Measurement]) -> dict[str, float] | None:
+def _swing_term(part: Part, probes: list[Measurement], floor_mm2: float) -> dict[str, float] | None:
     """The term ``cut_swing`` of a part: how far its figures move with the cut decided a little off the thickness.
 
     The part of each probe (:func:`_cut_cast_shadows`'s measurements at the thickness -dt and +dt)
     whose centroid lies nearest, within a quarter of the part's largest width, gives the area's
     difference; the largest over the probes sets an area term (:func:`~scanmass.pipeline.part_terms.area_share_term`:
     centroid, perimeter and moments to match), its centroid raised to the centroid's own largest
-    move where that is larger. None where no probe moves the area.
+    move where that is larger. None where no probe moves the area by ``floor_mm2`` (a pixel's area) or more:
+    a part measured again on the same image moves by a rounding's worth only.
     """
     d_area, d_x, d_y = 0.0, 0.0, 0.0
     for probe in probes:
@@ -411,7 +412,7 @@ def _swing_term(part: Part, probes: list[Measurement]) -> dict[str, float] | Non
         d_area = max(d_area, abs(q.area_mm2 - part.area_mm2))
         d_x = max(d_x, abs(q.centroid_mm[0] - part.centroid_mm[0]))
         d_y = max(d_y, abs(q.centroid_mm[1] - part.centroid_mm[1]))
-    if d_area <= 0.0:
+    if d_area < floor_mm2:
         return None
     term = area_share_term(part, d_area)
     term["centroid_x_mm"] = max(term["centroid_x_mm"], d_x)
@@ -487,7 +488,7 @@ def _cut_cast_shadows(
     swung: dict[str, float] = {}
     parts = []
     for part in again.parts:
-        term = _swing_term(part, probes)
+        term = _swing_term(part, probes, scale.plane_map.mm_per_px**2)
         if term is not None:
             part = _with_extra_term(part, CUT_SWING_TERM, term, [])
             swung[str(part.label)] = term["area_mm2"]
