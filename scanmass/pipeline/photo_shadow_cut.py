@@ -1,6 +1,7 @@
 """Cutting cast shadows out of a photo's parts and measuring again (:func:`_cut_cast_shadows`, term
 ``shadow_cut``): the lit side wall the segmentation left out (term ``side_wall``), the cut's edge blended
-between pixels on dark faces, and the constants of the cut.
+between pixels on dark faces, the cut decided again a little off a given thickness (term ``cut_swing``),
+and the constants of the cut.
 Part of the pipeline stage (:mod:`scanmass.pipeline`).
 """
 
@@ -50,7 +51,7 @@ SHADOW_CUT_UNKNOWN_THICKNESS_MM = 8.0
 #: +15.5 % in area. The tuned set's other sweeps run 3-33 px.
 SHORT_SWEEP_PX = 2.0
 #: The name of the term for the area a cut moves by when decided again at a thickness a little off
-#: (:func:`_cut_swing`): the cut's bounds (the shadow's reach, the lost wall's width, the
+#: (:func:`_swing_term`): the cut's bounds (the shadow's reach, the lost wall's width, the
 #: sweeps' layer counts) follow the thickness in whole pixels, and a cut can switch between ways of
 #: finding the shadow there. On the committed render tests/data/reallight/window-steel-t25 the 2.5 mm
 #: steel gasket read +0.29 % in area at 2.50 mm and -6.3 % at 2.45 mm (its core cut along the other
@@ -221,23 +222,13 @@ class _Decision:
     top_seen: np.ndarray | None  #: where the outline runs on the top face's edge
     cuts: list[tuple[Part, float, float, float]]  #: (the part as found, cut edge mm, cut mm2, wall mm2)
     opened: list[str]  #: parts whose holes' dark bottoms were opened
-    bottoms_mm2: dict[int, float]  #: id() of those parts: the area opened
     by_colour: set[int]  #: id() of the parts whose cut was found by the shadows' colour
     painted: np.ndarray  #: the cuts painted in the paper's level
     firsts: np.ndarray  #: within the first outer outlines of the cut parts
     cut_faces: np.ndarray  #: the same, less the cuts
     paper_codes: np.ndarray  #: the paper's level painted around each
     band_px: float  #: the shadow's reach (px) the cut was bounded by
-    reached: (
-        bool  #: whether any part came to the cut's test or had a lost wall (a cut that can move with the thickness)
-    )
-
-    def taken_mm2(self, part: Part) -> float:
-        """The area (mm²) the decision takes from ``part``: its cut and opened hole bottoms, less its restored wall."""
-        got = [(cut, wall) for old, _, cut, wall in self.cuts if old is part]
-        if not got:
-            return 0.0
-        return got[0][0] - got[0][1] + self.bottoms_mm2.get(id(part), 0.0)
+    reached: bool  #: whether any part came to the cut's test or had a lost wall (a cut the thickness can move)
 
 
 def _decide_cuts(
@@ -252,7 +243,7 @@ def _decide_cuts(
 
     The decision of :func:`_cut_cast_shadows`, without measuring again: where the thickness enters
     (the shadow's reach, the lost wall's width, the sweeps' bounds), it can be taken again at a
-    thickness a little off (:func:`_cut_swing`).
+    thickness a little off (:func:`_swing_term`).
     """
     thick = SHADOW_CUT_UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
     mm_per_px = scale.plane_map.mm_per_px
@@ -265,7 +256,6 @@ def _decide_cuts(
     if isinstance(hook, ElevationHook):
         top_seen = np.zeros(grey.shape[:2], bool) if hook.top_seen is None else hook.top_seen.copy()
     opened: list[str] = []  # parts whose holes' dark bottoms were opened
-    bottoms_mm2: dict[int, float] = {}  # id() of those parts: the area opened
     reached = False  # whether any part came to the cut's test or had a lost wall
     by_colour: set[int] = set()  # id() of the parts whose cut was found by the shadows' colour
     painted = np.zeros(grey.shape[:2], bool)  # the cuts painted in the paper's level
@@ -382,15 +372,12 @@ def _decide_cuts(
                         top_seen[y0:y1, x0:x1] |= near
                         rim = bottoms & ~cv2.erode(bottoms.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
                         bottoms_px = float(np.count_nonzero(rim))
-                        bottoms_mm2[id(part)] = float(np.count_nonzero(bottoms)) * mm_per_px**2
                         opened.append(f"{part.label} ({float(np.count_nonzero(bottoms)) * mm_per_px**2:.3g} mm²)")
         if cut is not None or wall_mm2 > 0:
             edge_mm = (cut.edge_px + bottoms_px) * mm_per_px if cut is not None else 0.0
             cut_mm2 = cut.cut_px * mm_per_px**2 if cut is not None else 0.0
             cuts.append((part, edge_mm, cut_mm2, wall_mm2))
-    return _Decision(
-        grey, top_seen, cuts, opened, bottoms_mm2, by_colour, painted, firsts, cut_faces, paper_codes, band_px, reached
-    )
+    return _Decision(grey, top_seen, cuts, opened, by_colour, painted, firsts, cut_faces, paper_codes, band_px, reached)
 
 
 def _swing_term(part: Part, probes: list[Measurement], floor_mm2: float) -> dict[str, float] | None:
@@ -469,6 +456,13 @@ def _cut_cast_shadows(
     again: the outline there then runs on the part's bottom edge, as the plane map takes it.
     Such a part gets the term ``side_wall``: half of the band's area (centroid, moments and holes
     to match), so a band that was no wall lies 2 sigma off, and a warning naming it.
+
+    With a thickness given, where any part came to the cut's test or had a lost wall, the cut is
+    decided (:func:`_decide_cuts`) and measured again at the thickness -dt and +dt as well (dt:
+    ``thickness_u_mm``, else the larger of :data:`CUT_SWING_MIN_MM` and :data:`CUT_SWING_SHARE` of it),
+    with ``probe_remeasure`` (``remeasure`` when None). The figures stay those at the thickness; a
+    part whose area moves gets the term :data:`CUT_SWING_TERM` (:func:`_swing_term`), the result's
+    ``settings["cut_swing"]`` and a warning among its own.
     """
     if thickness_mm == 0 or colour is None or not result.parts:
         return result, [], set()
