@@ -898,14 +898,19 @@ def _measure_photo(
     colour = colour_job.result()  # decoded once for the colour checks
     last: dict[str, Any] = {}
 
-    def remeasure(img: LoadedImage, plane_map: PlaneMap) -> Measurement:
-        last["image"], last["plane_map"] = img, plane_map  # what the kept measurement was made on
+    def probe_remeasure(img: LoadedImage, plane_map: PlaneMap) -> Measurement:
         return measure_image(
             img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto", tone=shift,
             tone_photo=masked.grey,
         )  # fmt: skip
 
-    result, cut, cut_labels = _cut_cast_shadows(image, masked, scale, result, thickness_mm, colour, remeasure)
+    def remeasure(img: LoadedImage, plane_map: PlaneMap) -> Measurement:
+        last["image"], last["plane_map"] = img, plane_map  # what the kept measurement was made on
+        return probe_remeasure(img, plane_map)
+
+    result, cut, cut_labels = _cut_cast_shadows(
+        image, masked, scale, result, thickness_mm, colour, remeasure, options.thickness_u_mm, probe_remeasure
+    )
     if cut:  # the cut's measurement was kept: the deep holes are opened on its image and plane map
         masked, cut_scale = last["image"], replace(scale, plane_map=last["plane_map"])
     else:

@@ -1,6 +1,7 @@
 """Cutting cast shadows out of a photo's parts and measuring again (:func:`_cut_cast_shadows`, term
 ``shadow_cut``): the lit side wall the segmentation left out (term ``side_wall``), the cut's edge blended
-between pixels on dark faces, and the constants of the cut.
+between pixels on dark faces, the cut decided again a little off a given thickness (term ``cut_swing``),
+and the constants of the cut.
 Part of the pipeline stage (:mod:`scanmass.pipeline`).
 """
 
@@ -8,7 +9,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import cv2
 import numpy as np
@@ -49,6 +50,20 @@ SHADOW_CUT_UNKNOWN_THICKNESS_MM = 8.0
 #: tilt) the plate's own sweep ran 1 px and left its shadow's fade and core (about 11 px) in the part:
 #: +15.5 % in area. The tuned set's other sweeps run 3-33 px.
 SHORT_SWEEP_PX = 2.0
+#: The name of the term for the area a cut moves by when decided again at a thickness a little off
+#: (:func:`_swing_term`): the cut's bounds (the shadow's reach, the lost wall's width, the
+#: sweeps' layer counts) follow the thickness in whole pixels, and a cut can switch between ways of
+#: finding the shadow there. On the committed render tests/data/reallight/window-steel-t25 the 2.5 mm
+#: steel gasket read +0.29 % in area at 2.50 mm and -6.3 % at 2.45 mm (its core cut along the other
+#: part's shadow direction found at one, refused at the other: 96 against 166 mm² cut).
+CUT_SWING_TERM = "cut_swing"
+#: Smallest step (mm) off a given thickness the cut is decided again at, when the thickness comes
+#: without its own uncertainty: a caliper's reading of a plate is good to about 0.05 mm, a nominal
+#: sheet thickness to about a tenth of a millimetre (common practice; sheet tolerance tables give
+#: +-0.1 to +-0.2 mm for 1.5-8 mm sheet, from memory).
+CUT_SWING_MIN_MM = 0.1
+#: Share of a given thickness the cut is decided again at, where larger than :data:`CUT_SWING_MIN_MM`.
+CUT_SWING_SHARE = 0.05
 
 
 #: Vertices on each side of a vertex whose chord gives its normal for :func:`_lost_wall`'s neutral
@@ -199,44 +214,37 @@ def _within_box(part: Part, lo: np.ndarray, hi: np.ndarray) -> bool:
     return bool(np.all((pts >= lo) & (pts <= hi))) or bool(np.all((c >= lo) & (c <= hi)))
 
 
-def _cut_cast_shadows(
+@dataclass
+class _Decision:
+    """What :func:`_decide_cuts` decided for a photo's parts at one thickness, and the image painted by it."""
+
+    grey: np.ndarray  #: the parts' image with the cuts painted as paper (and lost walls as face)
+    top_seen: np.ndarray | None  #: where the outline runs on the top face's edge
+    cuts: list[tuple[Part, float, float, float]]  #: (the part as found, cut edge mm, cut mm2, wall mm2)
+    opened: list[str]  #: parts whose holes' dark bottoms were opened
+    by_colour: set[int]  #: id() of the parts whose cut was found by the shadows' colour
+    painted: np.ndarray  #: the cuts painted in the paper's level
+    firsts: np.ndarray  #: within the first outer outlines of the cut parts
+    cut_faces: np.ndarray  #: the same, less the cuts
+    paper_codes: np.ndarray  #: the paper's level painted around each
+    band_px: float  #: the shadow's reach (px) the cut was bounded by
+    reached: bool  #: whether any part came to the cut's test or had a lost wall (a cut the thickness can move)
+
+
+def _decide_cuts(
     image: LoadedImage,
     masked: LoadedImage,
     scale: PhotoScale,
     result: Measurement,
     thickness_mm: float | None,
-    colour: np.ndarray | None,
-    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
-) -> tuple[Measurement, list[str], set[int]]:
-    """Cut cast shadows out of the found parts and measure again; a term for where the cut runs.
+    colour: np.ndarray,
+) -> _Decision:
+    """Each part's cast-shadow cut and lost side wall at one thickness, painted on a copy of ``masked``'s grey levels.
 
-    For each part whose edge band looks like darkened paper (as
-    :func:`~scanmass.pipeline.photo_shadows._cast_shadows` tests), the shadow layer (:func:`~scanmass.segment.castshadow.shadow_cut`) is painted in the
-    paper's level on ``masked`` (the image the parts were found in) and the image is measured
-    again with ``remeasure``. Each part found again where a cut one was gets the term
-    ``shadow_cut``: the cut stretch's length times :data:`SHADOW_CUT_EDGE_PX` as an area
-    (centroid, moments and holes to match). The cast-shadow check still runs afterwards on
-    the new outlines, but gives a cut part (whose labels are returned) no term ``cast_shadow``:
-    the face of a dark neutral part looks like darkened paper by colour alone, and what is left
-    of the shadow's doubt is the place of the cut. Parts without a cut keep their first
-    measurement, and photos without a cut their whole result. The result's
-    ``settings["shadow_cut"]`` holds each cut part's shadow area and cut length.
-
-    With a thickness given, the cut takes a shaded side wall with the shadow (steel, brass and
-    black plastic under a spotlight on the committed renders, tests/data/reallight): where that
-    wall faces the camera the outline then runs on the top face's edge, so the second
-    measurement maps the cut region's surroundings (5 px around it) as seen on the top edge
-    (:meth:`~scanmass.scale.homography.ElevationHook.with_top_seen`); ``remeasure`` takes the
-    image and the plane map to use.
-
-    With a thickness given, a lit side wall the first segmentation took for paper
-    (:func:`_lost_wall`) is painted in the part's level on the same image before it is measured
-    again: the outline there then runs on the part's bottom edge, as the plane map takes it.
-    Such a part gets the term ``side_wall``: half of the band's area (centroid, moments and holes
-    to match), so a band that was no wall lies 2 sigma off, and a warning naming it.
+    The decision of :func:`_cut_cast_shadows`, without measuring again: where the thickness enters
+    (the shadow's reach, the lost wall's width, the sweeps' bounds), it can be taken again at a
+    thickness a little off (:func:`_swing_term`).
     """
-    if thickness_mm == 0 or colour is None or not result.parts:
-        return result, [], set()
     thick = SHADOW_CUT_UNKNOWN_THICKNESS_MM if thickness_mm is None else thickness_mm
     mm_per_px = scale.plane_map.mm_per_px
     band_px = shadow_band_px(thick, mm_per_px)
@@ -248,6 +256,7 @@ def _cut_cast_shadows(
     if isinstance(hook, ElevationHook):
         top_seen = np.zeros(grey.shape[:2], bool) if hook.top_seen is None else hook.top_seen.copy()
     opened: list[str] = []  # parts whose holes' dark bottoms were opened
+    reached = False  # whether any part came to the cut's test or had a lost wall
     by_colour: set[int] = set()  # id() of the parts whose cut was found by the shadows' colour
     painted = np.zeros(grey.shape[:2], bool)  # the cuts painted in the paper's level
     firsts = np.zeros(grey.shape[:2], bool)  # within the first outer outlines of the cut parts
@@ -274,6 +283,7 @@ def _cut_cast_shadows(
                 window[paint] = np.asarray(np.median(face), dtype=grey.dtype)
                 wall_mm2 = float(np.count_nonzero(wall.band & ~mask)) * mm_per_px**2
         risk = shadow_risk(colour_lin, mask, band_px)
+        reached = reached or wall is not None or (risk is not None and risk.fraction >= SHADOW_FRACTION)
         cut = None
         coloured = False  # a cut by the shadows' colour (mixed light), not by their grain
         dark = risk is not None and dark_tinted_face(colour_lin, mask, risk.paper_rgb, band_px)
@@ -367,6 +377,139 @@ def _cut_cast_shadows(
             edge_mm = (cut.edge_px + bottoms_px) * mm_per_px if cut is not None else 0.0
             cut_mm2 = cut.cut_px * mm_per_px**2 if cut is not None else 0.0
             cuts.append((part, edge_mm, cut_mm2, wall_mm2))
+    return _Decision(grey, top_seen, cuts, opened, by_colour, painted, firsts, cut_faces, paper_codes, band_px, reached)
+
+
+def _swing_term(part: Part, probes: list[Measurement], floor_mm2: float) -> dict[str, float] | None:
+    """The term ``cut_swing`` of a part: how far its figures move with the cut decided a little off the thickness.
+
+    The part of each probe (:func:`_cut_cast_shadows`'s measurements at the thickness -dt and +dt)
+    whose centroid lies nearest, within a quarter of the part's largest width, gives the area's
+    difference; the largest over the probes sets an area term (:func:`~scanmass.pipeline.part_terms.area_share_term`:
+    centroid, perimeter and moments to match), its centroid raised to the centroid's own largest
+    move where that is larger. None where no probe moves the area by ``floor_mm2`` (a pixel's area) or more:
+    a part measured again on the same image moves by a rounding's worth only.
+    """
+    d_area, d_x, d_y = 0.0, 0.0, 0.0
+    for probe in probes:
+        near = [q for q in probe.parts if math.dist(q.centroid_mm, part.centroid_mm) < 0.25 * part.caliper_max_mm]
+        if not near:
+            continue
+        q = min(near, key=lambda q: math.dist(q.centroid_mm, part.centroid_mm))
+        d_area = max(d_area, abs(q.area_mm2 - part.area_mm2))
+        d_x = max(d_x, abs(q.centroid_mm[0] - part.centroid_mm[0]))
+        d_y = max(d_y, abs(q.centroid_mm[1] - part.centroid_mm[1]))
+    if d_area < floor_mm2:
+        return None
+    term = area_share_term(part, d_area)
+    term["centroid_x_mm"] = max(term["centroid_x_mm"], d_x)
+    term["centroid_y_mm"] = max(term["centroid_y_mm"], d_y)
+    return term
+
+
+def _swing_note(swung: dict[str, float], dt: float) -> list[str]:
+    """The warning naming the parts whose figures move with the thickness the cut is decided at (none without)."""
+    if not swung:
+        return []
+    listed = ", ".join(f"{label} ({a:.3g} mm²)" for label, a in swung.items())
+    return [
+        f"shadow cut moves with the thickness: with the cut decided again at the thickness -{dt:.2g} and +{dt:.2g} mm, "
+        f"the area of part(s) {listed} moves by up to that much; the uncertainty includes it (term '{CUT_SWING_TERM}'); "
+        "give the thickness as measured with calipers, or photograph in diffuse light"
+    ]
+
+
+def _cut_cast_shadows(
+    image: LoadedImage,
+    masked: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    thickness_mm: float | None,
+    colour: np.ndarray | None,
+    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+    thickness_u_mm: float = 0.0,
+    probe_remeasure: Callable[[LoadedImage, PlaneMap], Measurement] | None = None,
+) -> tuple[Measurement, list[str], set[int]]:
+    """Cut cast shadows out of the found parts and measure again; a term for where the cut runs.
+
+    For each part whose edge band looks like darkened paper (as
+    :func:`~scanmass.pipeline.photo_shadows._cast_shadows` tests), the shadow layer (:func:`~scanmass.segment.castshadow.shadow_cut`) is painted in the
+    paper's level on ``masked`` (the image the parts were found in) and the image is measured
+    again with ``remeasure``. Each part found again where a cut one was gets the term
+    ``shadow_cut``: the cut stretch's length times :data:`SHADOW_CUT_EDGE_PX` as an area
+    (centroid, moments and holes to match). The cast-shadow check still runs afterwards on
+    the new outlines, but gives a cut part (whose labels are returned) no term ``cast_shadow``:
+    the face of a dark neutral part looks like darkened paper by colour alone, and what is left
+    of the shadow's doubt is the place of the cut. Parts without a cut keep their first
+    measurement, and photos without a cut their whole result. The result's
+    ``settings["shadow_cut"]`` holds each cut part's shadow area and cut length.
+
+    With a thickness given, the cut takes a shaded side wall with the shadow (steel, brass and
+    black plastic under a spotlight on the committed renders, tests/data/reallight): where that
+    wall faces the camera the outline then runs on the top face's edge, so the second
+    measurement maps the cut region's surroundings (5 px around it) as seen on the top edge
+    (:meth:`~scanmass.scale.homography.ElevationHook.with_top_seen`); ``remeasure`` takes the
+    image and the plane map to use.
+
+    With a thickness given, a lit side wall the first segmentation took for paper
+    (:func:`_lost_wall`) is painted in the part's level on the same image before it is measured
+    again: the outline there then runs on the part's bottom edge, as the plane map takes it.
+    Such a part gets the term ``side_wall``: half of the band's area (centroid, moments and holes
+    to match), so a band that was no wall lies 2 sigma off, and a warning naming it.
+
+    With a thickness given, where any part came to the cut's test or had a lost wall, the cut is
+    decided (:func:`_decide_cuts`) and measured again at the thickness -dt and +dt as well (dt:
+    ``thickness_u_mm``, else the larger of :data:`CUT_SWING_MIN_MM` and :data:`CUT_SWING_SHARE` of it),
+    with ``probe_remeasure`` (``remeasure`` when None). The figures stay those at the thickness; a
+    part whose area moves gets the term :data:`CUT_SWING_TERM` (:func:`_swing_term`), the result's
+    ``settings["cut_swing"]`` and a warning among its own.
+    """
+    if thickness_mm == 0 or colour is None or not result.parts:
+        return result, [], set()
+    decision = _decide_cuts(image, masked, scale, result, thickness_mm, colour)
+    if not thickness_mm or not decision.reached:
+        return _cut_once(masked, scale, result, decision, remeasure)
+    dt = thickness_u_mm if thickness_u_mm > 0 else max(CUT_SWING_MIN_MM, CUT_SWING_SHARE * thickness_mm)
+    # the cut decided and measured again a little off the thickness (``probe_remeasure``: as ``remeasure``,
+    # but not taken as the kept measurement's)
+    probe = remeasure if probe_remeasure is None else probe_remeasure
+    probes = [
+        _cut_once(masked, scale, result, _decide_cuts(image, masked, scale, result, t, colour), probe)[0]
+        for t in (thickness_mm - dt, thickness_mm + dt)
+        if t > 0
+    ]
+    again, out, labels = _cut_once(masked, scale, result, decision, remeasure)
+    swung: dict[str, float] = {}
+    parts = []
+    for part in again.parts:
+        term = _swing_term(part, probes, scale.plane_map.mm_per_px**2)
+        if term is not None:
+            part = _with_extra_term(part, CUT_SWING_TERM, term, [])
+            swung[str(part.label)] = term["area_mm2"]
+        parts.append(part)
+    if swung:
+        # the note joins the measurement's own warnings: ``out`` non-empty tells the caller the cut's measurement was kept
+        again = replace(
+            again,
+            parts=parts,
+            settings={**again.settings, "cut_swing": {"thickness_step_mm": dt, "parts": swung}},
+            warnings=list(again.warnings) + _swing_note(swung, dt),
+        )
+    return again, out, labels
+
+
+def _cut_once(
+    masked: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    decision: _Decision,
+    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+) -> tuple[Measurement, list[str], set[int]]:
+    """:func:`_cut_cast_shadows` for one decision (:func:`_decide_cuts`): measured again with its cuts painted."""
+    mm_per_px = scale.plane_map.mm_per_px
+    grey, top_seen, cuts, opened = decision.grey, decision.top_seen, decision.cuts, decision.opened
+    by_colour, painted, firsts, cut_faces = decision.by_colour, decision.painted, decision.firsts, decision.cut_faces
+    paper_codes, band_px = decision.paper_codes, decision.band_px
     if not cuts:
         return result, [], set()
     order = {id(p): k for k, p in enumerate(result.parts)}
