@@ -292,16 +292,6 @@ def _deep_hole_circles(
         r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
         thick_px = hook.height_mm / mm_per_px
         band_px = _wall_band_px(seed, (sx0, sy0), hook)
-        floor = None if band_px < DEEP_HOLE_STEP_BAND_PX else lit_floor_ring(seen_lin, seen_mask, seed, band_px)
-        by_floor = None if floor is None else _floor_overlap(floor + [sx0, sy0], hook, mm_per_px, outline, thick_u)
-        if (
-            by_floor is not None
-            and by_floor[1] - hole.diameter_mm > DEEP_HOLE_REPLACE_PX * mm_per_px
-            and math.dist(by_floor[0], hole.circle_centre_mm) <= 0.5 * hole.diameter_mm
-        ):
-            # the found hole is the lit floor only: its top opening from the floor's shifted overlap
-            out.append((by_floor[0], by_floor[1], by_floor[3], ring + np.array([sx0, sy0], float)))
-            continue
         edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
         fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
         if (
@@ -318,6 +308,17 @@ def _deep_hole_circles(
                 fit is None or by_step[2] < fit[2] or by_step[1] - fit[1] > DEEP_HOLE_REPLACE_PX * mm_per_px
             ):
                 fit = by_step
+        floor = None if band_px < DEEP_HOLE_STEP_BAND_PX else lit_floor_ring(seen_lin, seen_mask, seed, band_px)
+        by_floor = None if floor is None else _floor_overlap(floor + [sx0, sy0], hook, mm_per_px, outline, thick_u)
+        if (
+            by_floor is not None
+            and by_floor[1] - max(hole.diameter_mm, 0.0 if fit is None else fit[1]) > DEEP_HOLE_REPLACE_PX * mm_per_px
+            and math.dist(by_floor[0], hole.circle_centre_mm) <= 0.5 * hole.diameter_mm
+        ):
+            # the found hole and its traced opening stop at the lit floor (the far wall and the shade look like
+            # the face): the top opening from the floor's overlap, shifted as the thickness predicts
+            out.append((by_floor[0], by_floor[1], by_floor[3], ring + np.array([sx0, sy0], float)))
+            continue
         if fit is None:
             continue
         clean = fit[2] <= DEEP_HOLE_CLEAN_RMS_PX
