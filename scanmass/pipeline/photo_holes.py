@@ -95,6 +95,10 @@ FLOOR_OVERLAP_GAIN = 0.5
 #: ... where at least this share of the kept points lies on each of the two openings' arcs (the shift
 #: seen on both sides) ...
 FLOOR_ARC_SHARE = 0.25
+#: ... where the traced floor covers at least this share of the overlap the fit predicts (the walls' shade takes a
+#: bite of it; a fit that explains a shade's edge as an arc predicts floor where none is seen: mixed-brass-t30's
+#: 6 mm brass disc, 0.45; the thick plates of dev-mixed-black5-t18, -black2-t22, -steel3-t22: 0.75-0.94) ...
+FLOOR_COVER_SHARE = 0.67
 #: ... and where the kept points fit within this rms (px). The far wall's band must be at least
 #: :data:`DEEP_HOLE_STEP_BAND_PX` wide (a narrower shift is not told from the edges' blur).
 FLOOR_OVERLAP_RMS_PX = 0.5
@@ -190,6 +194,26 @@ def _overlap_fit(top: np.ndarray, bottom: np.ndarray, start: np.ndarray) -> tupl
     return np.asarray(q, float), keep
 
 
+def _floor_cover(ideal: np.ndarray, hook: ElevationHook, q: np.ndarray) -> float:
+    """The share of the overlap of circle ``q`` (x, y, radius mm)'s top and bottom images that the ring ``ideal`` (px) covers.
+
+    Both drawn at 4 times the pixel's resolution in the ring's box (polygons of 180 points).
+    """
+    turn = np.linspace(0, 2 * math.pi, 180, endpoint=False)
+    circle = q[:2] + q[2] * np.column_stack([np.cos(turn), np.sin(turn)])
+    rings = [ideal, apply_h(hook.gh, circle), apply_h(hook.g0, circle)]
+    lo = np.floor(np.min([r.min(axis=0) for r in rings], axis=0)) - 2
+    hi = np.ceil(np.max([r.max(axis=0) for r in rings], axis=0)) + 2
+    size = np.round((hi - lo) * 4).astype(int)
+    masks = []
+    for r in rings:
+        m = np.zeros((size[1], size[0]), np.uint8)
+        cv2.fillPoly(m, [np.round((r - lo) * 4).astype(np.int32)], 1)
+        masks.append(m.astype(bool))
+    lens = masks[1] & masks[2]
+    return float(np.count_nonzero(lens & masks[0])) / max(float(np.count_nonzero(lens)), 1.0)
+
+
 def _floor_overlap(
     ring_px: np.ndarray, hook: ElevationHook, mm_per_px: float, outline: np.ndarray, thickness_u_mm: float
 ) -> tuple[np.ndarray, float, float, float] | None:
@@ -200,7 +224,8 @@ def _floor_overlap(
     through it is the overlap of the two images (less the walls' shade). The circle is fitted to that
     (:func:`_overlap_fit`) and taken only where the floor is seen shifted as predicted: the overlap's border
     explains the points better than any single circle (:data:`FLOOR_OVERLAP_GAIN`), both arcs are seen
-    (:data:`FLOOR_ARC_SHARE`) and the fit is tight (:data:`FLOOR_OVERLAP_RMS_PX`). The doubt: the edge's
+    (:data:`FLOOR_ARC_SHARE`), the fit is tight (:data:`FLOOR_OVERLAP_RMS_PX`) and the floor is seen over most of the
+    overlap it predicts (:data:`FLOOR_COVER_SHARE`). The doubt: the edge's
     (:data:`DEEP_HOLE_EDGE_PX`), with the change of the fit at the thickness plus its 1-sigma.
     """
     ideal = hook.undistort(ring_px) if hook.undistort is not None else ring_px
@@ -226,6 +251,7 @@ def _floor_overlap(
         float(np.median(np.abs(res[keep]))) > FLOOR_OVERLAP_GAIN * single
         or min(np.mean(on_top), 1.0 - np.mean(on_top)) < FLOOR_ARC_SHARE
         or rms_px > FLOOR_OVERLAP_RMS_PX
+        or _floor_cover(ideal, hook, q) < FLOOR_COVER_SHARE
     ):
         return None
     turn = np.linspace(0, 2 * math.pi, 32, endpoint=False)
