@@ -113,3 +113,79 @@ def test_painted_opening_covers_the_ring_exactly():
     yy, xx = np.mgrid[0:60, 0:60]
     cx, cy = float((share * xx).sum() / share.sum()), float((share * yy).sum() / share.sum())
     assert math.hypot(cx - 30.2, cy - 29.6) < 0.02  # centred where the ring is: pixel centres at integers
+
+
+# A through-hole seen at a tilt through a thick part: its lit floor is the overlap of the top opening's image
+# and the bottom opening's (pipeline.photo_holes._floor_overlap). Truth: the hole's circle, projected by a
+# pinhole camera written out here (x = K (R X + t)), the overlap taken by shapely.
+HOLE_CENTRE_MM = np.array([126.0, 171.0])
+HOLE_RADIUS_MM = 4.0
+THICK_MM = 5.5
+
+
+def _ring_px(cam, ring_mm: np.ndarray, z_mm: float) -> np.ndarray:
+    pts = np.column_stack([ring_mm, np.full(len(ring_mm), z_mm)])
+    uvw = (pts @ cam.r.T + cam.t) @ cam.k.T
+    return uvw[:, :2] / uvw[:, 2:3]
+
+
+def _floor_scene(shade: bool):
+    from shapely.geometry import Point, Polygon
+
+    from scanmass.scale.homography import ElevationHook
+    from scanmass.testing.photos import make_camera
+
+    cam = make_camera(size=(900, 1200), f_px=1100.0, distance_mm=330.0, target_mm=(109.5, 145.0), tilt_deg=18.0)
+    hook = ElevationHook(np.linalg.inv(cam.plane_to_px()), cam.k, THICK_MM)
+    circle = _circle(*HOLE_CENTRE_MM, HOLE_RADIUS_MM)
+    floor = Polygon(_ring_px(cam, circle, THICK_MM)).intersection(Polygon(_ring_px(cam, circle, 0.0)))
+    if shade:  # the wall's shade takes a bite out of the lit floor on one side
+        c = np.asarray(floor.centroid.coords[0])
+        floor = floor.difference(Point(c[0] - 16.0, c[1] + 4.0).buffer(9.0))
+    outline = np.asarray(_circle(*HOLE_CENTRE_MM, 30.0), np.float32)
+    return cam, hook, floor, outline
+
+
+def test_top_opening_is_recovered_from_the_lit_floor_overlap():
+    from scanmass.pipeline.photo_holes import _floor_overlap
+
+    cam, hook, floor, outline = _floor_scene(shade=True)
+    pts = np.asarray(floor.segmentize(0.3).exterior.coords)[:-1]
+    mm_per_px = 0.37
+    fit = _floor_overlap(pts, hook, mm_per_px, outline, 0.0)
+    assert fit is not None
+    centre, diameter, rms_px, doubt_px = fit
+    assert math.dist(centre, HOLE_CENTRE_MM) < 0.02 and abs(diameter - 2 * HOLE_RADIUS_MM) < 0.02
+    assert rms_px < 0.05 and doubt_px == 1.0
+    # a doubt in the thickness moves the near arc (0.5 mm of 5.5 moves it by 0.09 of the far wall's band, here
+    # 5-6 px): the fit's change is added to the edge's doubt
+    u = _floor_overlap(pts, hook, mm_per_px, outline, 0.5)
+    assert u is not None and 1.01 < u[3] < 1.2
+
+
+def test_lit_floor_traced_in_an_image_gives_the_top_opening():
+    from scanmass.pipeline.photo_holes import _floor_overlap
+    from scanmass.segment.deephole import lit_floor_ring
+
+    cam, hook, floor, outline = _floor_scene(shade=False)
+    x0, y0 = np.floor(np.asarray(floor.bounds[:2])).astype(int) - 30
+    shape = (90, 90)
+    ring = np.asarray(floor.exterior.coords)[:-1] - [x0, y0]
+    lit = polygon_coverage([(ring, [])], shape)
+    lin = cv2.GaussianBlur((0.03 + (0.5 - 0.03) * lit).astype(np.float32), (0, 0), 0.8)
+    seed = lit > 0.5
+    traced = lit_floor_ring(lin, ~seed, seed, 6.0)
+    assert traced is not None
+    fit = _floor_overlap(traced + [x0, y0], hook, 0.37, outline, 0.0)
+    assert fit is not None
+    # the midpoint of a blurred step is its edge (common practice); a curved edge moves in by about
+    # sigma^2 / (2 r) px, here under 0.1 px: within 0.1 mm on the diameter
+    assert math.dist(fit[0], HOLE_CENTRE_MM) < 0.1 and abs(fit[1] - 2 * HOLE_RADIUS_MM) < 0.1
+
+
+def test_a_floor_not_shifted_by_the_parallax_is_not_taken_as_an_overlap():
+    from scanmass.pipeline.photo_holes import _floor_overlap
+
+    cam, hook, _, outline = _floor_scene(shade=False)
+    bottom_only = _ring_px(cam, _circle(*HOLE_CENTRE_MM, HOLE_RADIUS_MM), 0.0)[::4]  # a hole seen as one circle
+    assert _floor_overlap(bottom_only, hook, 0.37, outline, 0.0) is None

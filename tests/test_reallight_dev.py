@@ -999,14 +999,15 @@ def test_thick_steel_plate_in_window_light_under_filmic_within_3_percent():
         assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="dev-mixed-black5-t18 (branch heavymetal14): the 5.5 mm black plate's holes in mixed light read 2.45, "
-    "1.91, 1.02 and 0.21 mm small (within their stated 2.5-3.8 mm), as the held-out set's 6 mm black L bracket's; "
-    "area +2.1 %",
-)
 def test_thick_black_plate_in_mixed_light_holes_within_half_a_millimetre():
+    """dev-mixed-black5-t18 (branch heavymetal14; mixed light, 18 degrees of tilt): a black plate 5.5 mm thick whose
+    holes show a lit floor; the dark far wall and the shade on the far side, at the face's level, stayed face, so the
+    holes were read on the lit floor: 2.45, 1.91, 1.02 and 0.21 mm small (bench_reallight), area +2.1 %. The lit floor
+    is the overlap of the top opening's image and the bottom one's (shifted by the thickness's parallax); fitted so
+    (branch deephole14): -0.33, +0.03, -0.14, -0.08 mm, area +0.5 %. Truth: the render's outlines (holes as
+    equal-area circles by shapely)."""
     m, part, tp = _part("dev-mixed-black5-t18", "plate4")
+    assert _covered(part, tp)
     for centre, diameter in tp["holes"]:
         hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
         assert abs(hole.diameter_mm - diameter) < 0.5

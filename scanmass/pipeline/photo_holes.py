@@ -12,6 +12,7 @@ from dataclasses import replace
 
 import cv2
 import numpy as np
+from scipy.optimize import least_squares
 
 from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.geometry import signed_area
@@ -25,7 +26,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
-from scanmass.segment.deephole import PitEdge, opening_edge, pit_edge
+from scanmass.segment.deephole import PitEdge, lit_floor_ring, opening_edge, pit_edge
 from scanmass.segment.shadow import dark_pits
 from scanmass.uncertainty import combine
 
@@ -84,6 +85,23 @@ DEEP_HOLE_STEP_RMS_PX = 0.2
 #: round read 0.36-0.41 mm small, their openings within 0.06 mm). Round rings (soft light, black
 #: plastic and steel: 0.6-1.8 px) keep the :data:`DEEP_HOLE_REPLACE_PX` rule.
 DEEP_HOLE_UNROUND_WIDER_PX = 3.0
+
+#: A deep hole's lit floor (:func:`~scanmass.segment.deephole.lit_floor_ring`) is the overlap of its top
+#: opening's image and its bottom opening's, shifted by the thickness's parallax (:func:`_floor_overlap`).
+#: The overlap's fit is taken only where it explains the floor's border: where the traced floor's points
+#: (those its trimmed fit keeps) lie within this share of the best single circle's median distance from them
+#: (on the top face's plane or on the paper's) from the overlap's border ...
+FLOOR_OVERLAP_GAIN = 0.5
+#: ... where at least this share of the kept points lies on each of the two openings' arcs (the shift
+#: seen on both sides) ...
+FLOOR_ARC_SHARE = 0.25
+#: ... where the traced floor covers at least this share of the overlap the fit predicts (the walls' shade takes a
+#: bite of it; a fit that explains a shade's edge as an arc predicts floor where none is seen: mixed-brass-t30's
+#: 6 mm brass disc, 0.45; the thick plates of dev-mixed-black5-t18, -black2-t22, -steel3-t22: 0.75-0.94) ...
+FLOOR_COVER_SHARE = 0.67
+#: ... and where the kept points fit within this rms (px). The far wall's band must be at least
+#: :data:`DEEP_HOLE_STEP_BAND_PX` wide (a narrower shift is not told from the edges' blur).
+FLOOR_OVERLAP_RMS_PX = 0.5
 
 
 def _near_side(ideal_px: np.ndarray, hook: ElevationHook, centre_top_mm: np.ndarray) -> np.ndarray:
@@ -149,6 +167,105 @@ def _top_circle(
     return np.asarray(fit.centre_mm, float), float(fit.diameter_mm), fit.rms_mm / mm_per_px, doubt_px
 
 
+def _overlap_fit(top: np.ndarray, bottom: np.ndarray, start: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(centre x, y, radius) of the circle whose top and bottom openings' overlap best bounds the points; the kept ones.
+
+    ``top`` and ``bottom`` are the same traced points mapped onto the top face's plane and onto the
+    paper's (mm). A point on the overlap's border lies on one circle and inside the other: its
+    distance from the overlap is the larger of its two distances from the circle. The fit is
+    trimmed one-sidedly: the wall's shade on the floor only takes from the lit overlap, so points
+    further inside it than the rest's scatter are left out (outside it, beyond 2.5 times).
+    """
+
+    def residual(q: np.ndarray) -> np.ndarray:
+        d_top = np.hypot(top[:, 0] - q[0], top[:, 1] - q[1]) - q[2]
+        d_bottom = np.hypot(bottom[:, 0] - q[0], bottom[:, 1] - q[1]) - q[2]
+        return np.asarray(np.maximum(d_top, d_bottom))
+
+    q = least_squares(residual, start, loss="soft_l1", f_scale=0.05).x
+    keep = np.ones(len(top), bool)
+    for _ in range(4):
+        res = residual(q)
+        scatter = 1.4826 * float(np.median(np.abs(res[keep])))
+        keep = (np.abs(res) <= max(2.5 * scatter, 0.04)) & (res >= -max(scatter, 0.04))
+        if np.count_nonzero(keep) < 8:
+            break
+        q = least_squares(lambda x: residual(x)[keep], q).x
+    return np.asarray(q, float), keep
+
+
+def _floor_cover(ideal: np.ndarray, hook: ElevationHook, q: np.ndarray) -> float:
+    """The share of the overlap of circle ``q`` (x, y, radius mm)'s top and bottom images that the ring ``ideal`` (px) covers.
+
+    Both drawn at 4 times the pixel's resolution in the ring's box (polygons of 180 points).
+    """
+    turn = np.linspace(0, 2 * math.pi, 180, endpoint=False)
+    circle = q[:2] + q[2] * np.column_stack([np.cos(turn), np.sin(turn)])
+    rings = [ideal, apply_h(hook.gh, circle), apply_h(hook.g0, circle)]
+    lo = np.floor(np.min([r.min(axis=0) for r in rings], axis=0)) - 2
+    hi = np.ceil(np.max([r.max(axis=0) for r in rings], axis=0)) + 2
+    size = np.round((hi - lo) * 4).astype(int)
+    masks = []
+    for r in rings:
+        m = np.zeros((size[1], size[0]), np.uint8)
+        cv2.fillPoly(m, [np.round((r - lo) * 4).astype(np.int32)], 1)
+        masks.append(m.astype(bool))
+    lens = masks[1] & masks[2]
+    return float(np.count_nonzero(lens & masks[0])) / max(float(np.count_nonzero(lens)), 1.0)
+
+
+def _floor_overlap(
+    ring_px: np.ndarray, hook: ElevationHook, mm_per_px: float, outline: np.ndarray, thickness_u_mm: float
+) -> tuple[np.ndarray, float, float, float] | None:
+    """A deep hole's top opening from its lit floor's border (photo px): (centre mm, diameter mm, rms px, doubt px).
+
+    Seen at a tilt through a part of thickness t, a through-hole's top opening (at height t) and its
+    bottom opening (on the paper) are one circle mapped by two plane maps; the lit floor the photo shows
+    through it is the overlap of the two images (less the walls' shade). The circle is fitted to that
+    (:func:`_overlap_fit`) and taken only where the floor is seen shifted as predicted: the overlap's border
+    explains the points better than any single circle (:data:`FLOOR_OVERLAP_GAIN`), both arcs are seen
+    (:data:`FLOOR_ARC_SHARE`), the fit is tight (:data:`FLOOR_OVERLAP_RMS_PX`) and the floor is seen over most of the
+    overlap it predicts (:data:`FLOOR_COVER_SHARE`). The doubt: the edge's
+    (:data:`DEEP_HOLE_EDGE_PX`), with the change of the fit at the thickness plus its 1-sigma.
+    """
+    ideal = hook.undistort(ring_px) if hook.undistort is not None else ring_px
+    top, bottom = apply_h(hook.hh, ideal), apply_h(hook.h0, ideal)
+    start = np.r_[0.5 * (top.mean(axis=0) + bottom.mean(axis=0)), np.median(np.hypot(*(top - top.mean(axis=0)).T))]
+    q, keep = _overlap_fit(top, bottom, start)
+    if np.count_nonzero(keep) < 12:
+        return None
+    try:  # the best single circle through the same points, on either plane
+        single = min(
+            float(np.median(np.abs(np.hypot(*(pts - f.centre_mm).T) - 0.5 * f.diameter_mm)))
+            for pts in (top[keep], bottom[keep])
+            for f in [fit_circle(pts)]
+        )
+    except OptionError:
+        return None
+    d_top = np.hypot(top[:, 0] - q[0], top[:, 1] - q[1]) - q[2]
+    d_bottom = np.hypot(bottom[:, 0] - q[0], bottom[:, 1] - q[1]) - q[2]
+    res = np.maximum(d_top, d_bottom)
+    on_top = (d_top >= d_bottom)[keep]
+    rms_px = float(np.sqrt(np.mean(res[keep] ** 2))) / mm_per_px
+    if (
+        float(np.median(np.abs(res[keep]))) > FLOOR_OVERLAP_GAIN * single
+        or min(np.mean(on_top), 1.0 - np.mean(on_top)) < FLOOR_ARC_SHARE
+        or rms_px > FLOOR_OVERLAP_RMS_PX
+        or _floor_cover(ideal, hook, q) < FLOOR_COVER_SHARE
+    ):
+        return None
+    turn = np.linspace(0, 2 * math.pi, 32, endpoint=False)
+    circle = q[:2] + q[2] * np.column_stack([np.cos(turn), np.sin(turn)])
+    if min(cv2.pointPolygonTest(outline, (float(a), float(b)), True) for a, b in circle) < 2 * mm_per_px:
+        return None
+    doubt_px = DEEP_HOLE_EDGE_PX
+    if thickness_u_mm > 0:  # the near arc is mapped at the thickness: fitted again at its 1-sigma
+        other = ElevationHook(hook.h0, hook.k, hook.height_mm + thickness_u_mm, hook.undistort)
+        q_u, _ = _overlap_fit(apply_h(other.hh, ideal)[keep], bottom[keep], q)
+        doubt_px = combine(doubt_px, abs(q_u[2] - q[2]) / mm_per_px, math.dist(q_u[:2], q[:2]) / mm_per_px)
+    return np.asarray(q[:2], float), 2.0 * float(q[2]), rms_px, doubt_px
+
+
 def _wall_band_px(seed: np.ndarray, origin: tuple[int, int], hook: ElevationHook) -> float:
     """The width (px) of a hole's far wall as the photo sees it: the parallax of the part's thickness at the seed's centre."""
     ys, xs = np.nonzero(seed)
@@ -192,18 +309,21 @@ def _deep_hole_circles(
             out.append((fit[0], fit[1], fit[3], None))
     (sx0, sy0, sx1, sy1), seen_mask, rings = seen
     seen_lin = lut[image.grey[sy0:sy1, sx0:sx1]]
+    info = scale.plane_map.photo
+    thick_u = 0.0 if info is None or info.thickness is None else float(info.thickness.height_u_mm)
     for hole, ring in zip(part.holes, rings[1:]):
         seed8 = np.zeros(seen_mask.shape, np.uint8)
         cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)
         seed = seed8.astype(bool)
         r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
         thick_px = hook.height_mm / mm_per_px
+        band_px = _wall_band_px(seed, (sx0, sy0), hook)
         edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
         fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
         if (
             (edge is None or edge.share < DEEP_HOLE_STEP_SHARE)
             and (fit is None or fit[2] > DEEP_HOLE_STEP_RMS_PX)
-            and _wall_band_px(seed, (sx0, sy0), hook) >= DEEP_HOLE_STEP_BAND_PX
+            and band_px >= DEEP_HOLE_STEP_BAND_PX
         ):
             # most rays found no midpoint near the opening's border, and what they found is no clean circle:
             # a wall's band of its own level lies between the floor and the face; the border is the last
@@ -214,6 +334,17 @@ def _deep_hole_circles(
                 fit is None or by_step[2] < fit[2] or by_step[1] - fit[1] > DEEP_HOLE_REPLACE_PX * mm_per_px
             ):
                 fit = by_step
+        floor = None if band_px < DEEP_HOLE_STEP_BAND_PX else lit_floor_ring(seen_lin, seen_mask, seed, band_px)
+        by_floor = None if floor is None else _floor_overlap(floor + [sx0, sy0], hook, mm_per_px, outline, thick_u)
+        if (
+            by_floor is not None
+            and by_floor[1] - max(hole.diameter_mm, 0.0 if fit is None else fit[1]) > DEEP_HOLE_REPLACE_PX * mm_per_px
+            and math.dist(by_floor[0], hole.circle_centre_mm) <= 0.5 * hole.diameter_mm
+        ):
+            # the found hole and its traced opening stop at the lit floor (the far wall and the shade look like
+            # the face): the top opening from the floor's overlap, shifted as the thickness predicts
+            out.append((by_floor[0], by_floor[1], by_floor[3], ring + np.array([sx0, sy0], float)))
+            continue
         if fit is None:
             continue
         clean = fit[2] <= DEEP_HOLE_CLEAN_RMS_PX

@@ -17,6 +17,8 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.segment.contours import level_rings
+
 #: Number of rays cast from a pit's centre to trace its border.
 RAYS = 180
 #: Step (px) along a ray.
@@ -378,3 +380,55 @@ def opening_edge(
         return None
     pit_level = float(np.median(img[region]))
     return PitEdge(np.asarray(pts, float), np.asarray(spread, float), face_level, pit_level, len(pts) / rays)
+
+
+#: The lit floor's level inside a found hole: this percentile of the (smoothed) levels within it; its
+#: border is traced where the level passes half-way between it and the face's.
+FLOOR_PERCENTILE = 75.0
+
+
+def lit_floor_ring(lin: np.ndarray, part_mask: np.ndarray, seed: np.ndarray, band_px: float) -> np.ndarray | None:
+    """The border (crop px, x y) of the lit floor seen through a deep hole, to a fraction of a pixel.
+
+    The floor's level is the :data:`FLOOR_PERCENTILE` of the smoothed image (as :func:`pit_edge`)
+    within ``seed`` (the found hole); the face's, the median of the part's pixels between 4 and
+    12 px beyond the seed's equal-area radius plus ``band_px`` (the far wall's width as seen). The
+    border is the level line half-way between the two (marching squares,
+    :func:`~scanmass.segment.contours.level_rings`), the smallest closed one around the seed's
+    centre. None when there is no such line or the floor is not brighter than the face.
+
+    Examples
+    --------
+    >>> yy, xx = np.mgrid[0:80, 0:80]
+    >>> lit = np.hypot(xx - 40.0, yy - 40.0) < 10.0
+    >>> ring = lit_floor_ring(np.where(lit, 0.5, 0.03).astype(np.float32), ~lit, lit, 2.0)
+    >>> r = np.hypot(ring[:, 0] - 40.0, ring[:, 1] - 40.0)
+    >>> bool(abs(np.median(r) - 10.0) < 0.6)
+    True
+    """
+    if np.count_nonzero(seed) < 3:
+        return None
+    img = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), SMOOTH_PX)
+    ys, xs = np.nonzero(seed)
+    cx, cy = float(xs.mean()), float(ys.mean())
+    r_seed = math.sqrt(len(xs) / math.pi)
+    h, w = img.shape
+    yy, xx = np.mgrid[0:h, 0:w]
+    dist = np.hypot(xx - cx, yy - cy)
+    ring = part_mask & (dist > r_seed + band_px + 4.0) & (dist < r_seed + band_px + 12.0)
+    if np.count_nonzero(ring) < 20:
+        return None
+    face = float(np.median(img[ring]))
+    floor = float(np.percentile(img[seed], FLOOR_PERCENTILE))
+    if floor <= 2.0 * face:
+        return None
+    best: tuple[float, np.ndarray] | None = None
+    for c in level_rings(img, face + 0.5 * (floor - face)):
+        if len(c) < 8 or not np.allclose(c[0], c[-1]):
+            continue
+        pts = np.ascontiguousarray(c[:, ::-1], dtype=np.float32)
+        if cv2.pointPolygonTest(pts, (cx, cy), False) > 0:
+            area = abs(float(cv2.contourArea(pts)))
+            if best is None or area < best[0]:
+                best = (area, pts.astype(float))
+    return None if best is None else best[1][:-1]
