@@ -63,6 +63,7 @@ __all__ = [
     "hole_bottoms",
     "fade_cut",
     "core_cut",
+    "sweep_direction",
 ]
 
 #: How much longer than the 30-degree reach (:data:`~scanmass.segment.shadow.SHADOW_MIN_ELEVATION_DEG`) a
@@ -220,6 +221,7 @@ def _shadow_cut(
     use_dark: bool,
     direction: np.ndarray | None = None,
     witness_px: float | None = None,
+    min_texture_ratio: float = CUT_MIN_TEXTURE_RATIO,
 ) -> tuple[ShadowCut | None, bool]:
     """:func:`shadow_cut`, with the dark face's sweep (:func:`_dark_sweep`) where ``use_dark`` and the face is dark; and whether it was."""
     mask8 = part_mask.astype(np.uint8)
@@ -310,7 +312,7 @@ def _shadow_cut(
     # the shadow's grain, past the blurred rim where the sweep's run began beyond it
     graded = cut & ~rim if rim is not None and np.count_nonzero(cut & ~rim) >= 50 else cut
     tex_shadow = float(np.median(rough[graded]))
-    if tex_shadow < CUT_MIN_TEXTURE_RATIO * max(tex_face, 1e-4):
+    if tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
         return None, dark
     # a strip of the outline's rim left between the cut and the paper (the shadow's far edge,
     # a whole-pixel sweep short of it) would enclose the cut as a false hole: it goes with the
@@ -552,6 +554,27 @@ def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarra
 
 #: Largest level of a shadow's core beyond the fade, as a share of the face's, for :func:`core_cut`.
 _CORE_LEVEL_RATIO = 0.9
+
+
+def sweep_direction(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    code_step: np.ndarray | None = None,
+) -> tuple[float, float] | None:
+    """The direction (unit x, y px) of a region's own sweep that :func:`shadow_cut` refused on texture alone; else None.
+
+    A metal face almost as grainy as its shadow (a brass collar in window light: the shadow 3.6 times
+    as rough as the face, under :data:`CUT_MIN_TEXTURE_RATIO`) is no ground for the cut's length, but
+    every other test of the sweep passed: its run of shadow-like layers from the outline, within the
+    reach, not through the face, with face left. Its direction is then evidence of the photo's light
+    (one light casts every shadow of a photo the same way) for a part whose own search finds none
+    (:func:`core_cut`'s ``direction``). For a region :func:`shadow_cut` refused; None where a test
+    other than the texture refuses its general sweep too.
+    """
+    found = _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=False, min_texture_ratio=0.0)[0]
+    return None if found is None else found.direction
 
 
 def core_cut(
@@ -1047,6 +1070,11 @@ def _read_step(
         face_like = face_sure = rough <= 0.5 * (rg_s + rg_f)
         vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
     start = first + 1 if last - first > 2 else first
+    if level_step and direction is not None and lv_f > lv_s:
+        # along the photo's shadow direction: the soft shadow's fade next to the outline, brighter than the
+        # face, lies on the face's side of half-way; the step to the face lies past the darker core
+        while start + 1 < last and profile[start + 1] >= mid:
+            start += 1
     rim = cv2.distanceTransform(mask8, cv2.DIST_L2, 3) <= _RIM_LAYERS
     if skip_rim:
         # the blurred rim passed over is neither side's evidence: it neither votes nor counts as face
