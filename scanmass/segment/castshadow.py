@@ -20,7 +20,10 @@ A sweep taken as a low light's (longer than a light 30 degrees up casts) must sh
 light's shadow fades on past the outline, so the paper just beyond it is no brighter on the sweep's
 side than on the other (:func:`_lit_beyond`). Along the photo's shadow direction (:func:`core_cut`),
 the layers beyond the level step that are as grainy as the shadow at the face's level are a soft
-shadow's core, lit by the room alone (:func:`_grainy_core`).
+shadow's core, lit by the room alone (:func:`_grainy_core`). Along a given direction, the soft shadow's
+fade next to the outline (brighter than the face) is passed over: the step to the face lies past the core.
+Where a photo shows no cut to give that direction, a sweep refused on its texture alone (the face almost as
+grainy as its shadow) still shows it (:func:`sweep_direction`).
 
 The roughness is the smoothed absolute deviation from a 3x3 median, taken relative to the local
 level: a median filter keeps a step edge, so the step between the face and the shadow adds
