@@ -25,7 +25,15 @@ from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
-from scanmass.segment.castshadow import core_cut, dark_tinted_face, fade_cut, hole_bottoms, shadow_cut, sweep_direction
+from scanmass.segment.castshadow import (
+    core_cut,
+    dark_tinted_face,
+    fade_cut,
+    hole_bottoms,
+    lit_beyond,
+    shadow_cut,
+    sweep_direction,
+)
 from scanmass.segment.colourshadow import coloured_shadow_cut
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -348,7 +356,13 @@ def _decide_cuts(
                     witness = max(swept, key=lambda s: s[0])
                     along = np.asarray(witness[1], float)
                     cut = core_cut(
-                        colour_lin, mask, risk.paper_rgb, band_px, along, code_step=step, witness_px=witness[2]
+                        colour_lin,
+                        mask,
+                        risk.paper_rgb,
+                        band_px,
+                        along,
+                        code_step=step,
+                        witness_px=witness[2],
                     )
                 elif wide:
                     # no cut to show the light: the direction of another part's sweep refused on its
@@ -356,10 +370,21 @@ def _decide_cuts(
                     for other in refused:
                         hint = sweep_direction(*other[:4], code_step=other[4])
                         if hint is not None:
-                            cut = core_cut(colour_lin, mask, risk.paper_rgb, band_px, np.asarray(hint), code_step=step)
+                            cut = core_cut(
+                                colour_lin,
+                                mask,
+                                risk.paper_rgb,
+                                band_px,
+                                np.asarray(hint),
+                                code_step=step,
+                                past_fade=True,
+                            )
                             break
-            if cut is None and not dark and thickness_mm is not None:
-                # a metal face as grainy as its shadow: the soft shadow's fade inside the outline
+            if wide and cut is not None and lit_beyond(colour_lin, mask, risk.paper_rgb, cut):
+                cut = None  # a hard light's: the paper beyond is lit, so the dark layer is the face's own sector
+            if cut is None and not dark and thickness_mm is not None and not wide:
+                # a metal face as grainy as its shadow: the soft shadow's fade inside the outline (a face that
+                # fades as a shadow alone does is cut along the light only)
                 cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
             if cut is None:
                 cut = short
