@@ -423,3 +423,23 @@ def test_sweep_along_a_given_direction_passes_the_soft_fade_to_the_dark_core():
     assert cut is not None
     assert abs(cut.length_px - 25.0) <= 1.0
     assert cut.cut[15:105, 116:140].all() and not cut.cut[:, :112].any()
+
+
+def test_paper_beyond_a_cut_lit_or_dimmed():
+    """castshadow.lit_beyond (branch steelwin14): a cut swept along +x whose paper beyond it is dimmed (a soft,
+    low light's shadow fading on: 0.6 of the paper) against the paper (1.0) round the rest of the outline, then
+    the paper beyond it lit (1.0) against 0.85 round the rest (a hard light's). Synthetic: the levels are built."""
+    from scanmass.segment.castshadow import ShadowCut, lit_beyond
+
+    paper = np.array([0.7, 0.72, 0.74])
+    img = np.tile(paper, (80, 120, 1))
+    mask = np.zeros((80, 120), bool)
+    mask[20:60, 20:90] = True
+    cut = np.zeros_like(mask)
+    cut[20:60, 78:90] = True
+    found = ShadowCut(cut, int(cut.sum()), 40.0, 0.01, 0.1, 0.05, 0.02, (1.0, 0.0), 12.0)
+    img[20:60, 90:100] = 0.6 * paper
+    assert not lit_beyond(img, mask, paper, found)
+    img = np.tile(0.85 * paper, (80, 120, 1))  # the paper round the rest of the outline dimmer than beyond the cut
+    img[20:60, 90:100] = paper
+    assert lit_beyond(img, mask, paper, found)
