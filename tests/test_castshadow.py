@@ -401,3 +401,45 @@ def test_cut_stops_at_a_dark_face_beside_a_brighter_shadow():
     assert cut is not None
     assert not cut.cut[:, :100].any()  # was 45 face pixels
     assert np.count_nonzero(mask[:, 100:] & ~cut.cut[:, 100:]) < 0.15 * np.count_nonzero(mask[:, 100:])
+
+
+def test_sweep_along_a_given_direction_passes_the_soft_fade_to_the_dark_core():
+    """A window's soft shadow found as part of a dark face (branch steelwin14): next to the outline its fade
+    (0.15-0.45 of the paper, brighter than the face at 0.05), then its core (0.005-0.045, rough), then the face.
+    Along the given direction, with ``past_fade``, the step to the face lies past the core: the fade lies on the
+    face's side of half-way by its level, read as the step it leaves fade and core in and the cut is refused (on
+    the committed render dev-window-steel5-t14 the 5.5 mm plate's cut). The synthetic truth: the core and fade span 25 px (built)."""
+    rng = np.random.default_rng(5)
+    paper = np.array([0.7, 0.72, 0.74])
+    img = np.tile(paper, (120, 170, 1))
+    mask = np.zeros((120, 170), bool)
+    mask[10:110, 10:140] = True
+    img[10:110, 10:115] = 0.05 * paper * (0.97 + 0.06 * rng.random((100, 105, 1)))
+    img[10:110, 115:133] = paper * (0.005 + 0.04 * rng.random((100, 18, 1)))
+    img[10:110, 133:140] = paper * (np.linspace(0.15, 0.45, 7)[None, :, None] * (0.8 + 0.4 * rng.random((100, 7, 1))))
+    img[10:110, 140:150] = paper * np.linspace(0.5, 0.9, 10)[None, :, None]
+    assert shadow_cut(img, mask, paper, 30.0, direction=np.array([1.0, 0.0])) is None  # the length read in the fade
+    cut = shadow_cut(img, mask, paper, 30.0, direction=np.array([1.0, 0.0]), past_fade=True)
+    assert cut is not None
+    assert abs(cut.length_px - 25.0) <= 1.0
+    assert cut.cut[15:105, 116:140].all() and not cut.cut[:, :112].any()
+
+
+def test_paper_beyond_a_cut_lit_or_dimmed():
+    """castshadow.lit_beyond (branch steelwin14): a cut swept along +x whose paper beyond it is dimmed (a soft,
+    low light's shadow fading on: 0.6 of the paper) against the paper (1.0) round the rest of the outline, then
+    the paper beyond it lit (1.0) against 0.85 round the rest (a hard light's). Synthetic: the levels are built."""
+    from scanmass.segment.castshadow import ShadowCut, lit_beyond
+
+    paper = np.array([0.7, 0.72, 0.74])
+    img = np.tile(paper, (80, 120, 1))
+    mask = np.zeros((80, 120), bool)
+    mask[20:60, 20:90] = True
+    cut = np.zeros_like(mask)
+    cut[20:60, 78:90] = True
+    found = ShadowCut(cut, int(cut.sum()), 40.0, 0.01, 0.1, 0.05, 0.02, (1.0, 0.0), 12.0)
+    img[20:60, 90:100] = 0.6 * paper
+    assert not lit_beyond(img, mask, paper, found)
+    img = np.tile(0.85 * paper, (80, 120, 1))  # the paper round the rest of the outline dimmer than beyond the cut
+    img[20:60, 90:100] = paper
+    assert lit_beyond(img, mask, paper, found)

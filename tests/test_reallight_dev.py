@@ -987,11 +987,11 @@ def test_thick_steel_plate_and_brass_collar_in_window_light_under_filmic_are_cov
 
 @pytest.mark.xfail(
     strict=True,
-    reason="dev-window-steel5-t14 (branch heavymetal14): the 5.5 mm steel plate keeps its cast shadow, +20.1 % in "
-    "area, centroid 3.2 mm, its 11 mm hole missed (a dark pit, warned 'possible hidden hole'): its face, 0.02-0.39 "
-    "of the paper under the Filmic curve, fades as a shadow alone does, so no cut was tried; tried as a part too "
-    "wide for a shadow alone, its sweep (10 px) is found but the shadow is only 2.9 times as rough as the grainy "
-    "face (a cut needs 4); the brass collar 3.5 mm reads +18.2 % (its fade cut only)",
+    reason="dev-window-steel5-t14 (branches heavymetal14, steelwin14): the 5.5 mm steel plate, cut along the light "
+    "the collar's sweep shows, reads +5.7 % (centroid 0.80 mm; was +20.1 %, 3.2 mm): the side wall and shadow band "
+    "along its short edge, which the sweep runs almost along, stays; its 11 mm hole missed (a dark pit, warned "
+    "'possible hidden hole'); the brass collar 3.5 mm reads +18.2 % (its fade cut only: its own sweep's shadow is "
+    "3.6 times as rough as its face, a cut needs 4); each within 1.2 stated sigma",
 )
 def test_thick_steel_plate_in_window_light_under_filmic_within_3_percent():
     for shape in ("plate4", "collar"):
@@ -1092,3 +1092,39 @@ def test_cut_swing_small_where_the_cut_holds():
     _, part, tp = _at("spot-steel-t0", "plate", 3.0)
     swing = part.uncertainty_terms.get("cut_swing", {}).get("area_mm2", 0.0)
     assert swing < 0.005 * tp["area"], swing / tp["area"]
+
+
+def test_thick_steel_plate_in_window_light_cut_along_the_light_another_part_shows():
+    """dev-window-steel5-t14 (branch steelwin14; window light, Filmic): the 5.5 mm brushed-steel plate's region
+    fades as a cast shadow alone does (its face 0.02-0.39 of the paper), so no cut was tried: +20.1 % in area,
+    centroid 3.2 mm (bench_reallight). It is far wider than a shadow of a part 5.5 mm thick can be (a light 15
+    degrees up casts 20.5 mm), so it is a face beside its shadow; its own sweep search runs through its grain (10
+    px, the wrong way), but the brass collar's sweep, refused on its texture alone, shows the light's direction:
+    along it the plate's soft fade, then its dark rough core (about 21 px), is cut: +5.7 %, centroid 0.80 mm, and
+    its three small holes stay found within 0.2 mm. Truth: the render's outlines (area and centroid by shapely;
+    holes as equal-area circles)."""
+    m, part, tp = _part("dev-window-steel5-t14", "plate4")
+    assert abs(part.area_mm2 - tp["area"]) < 0.08 * tp["area"]  # was +20.1 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 1.2  # was 3.2 mm
+    assert "shadow_cut" in part.uncertainty_terms
+    for centre, diameter in tp["holes"]:
+        if diameter > 10:
+            continue  # the 11 mm hole: missed before and after (the strict xfail above)
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 0.25
+        assert abs(hole.diameter_mm - diameter) < 0.2
+    assert _covered(part, tp)
+
+
+def test_pieces_of_a_lifted_parts_wall_dropped_without_thickness():
+    """dev-window-steel5-t14 without --thickness (branch steelwin14): five regions of 21-92 mm² beside and inside
+    the brass collar (its lit outer wall and its bore's wall, of the brass's colour) were found as parts of their
+    own; measured again at the thickness read from the collar's wall, they are found nowhere: they are dropped,
+    with a warning naming them. Truth: the render holds two parts (its truth file)."""
+    m = _without_thickness("dev-window-steel5-t14")
+    truth = json.loads((REALLIGHT / "dev-window-steel5-t14.json").read_text())
+    assert len(m.parts) == len(truth["parts"])  # was 7
+    for shape in ("plate4", "collar"):
+        tp = _truth("dev-window-steel5-t14", shape)
+        assert min(math.dist(q.centroid_mm, tp["centroid"]) for q in m.parts) < 5.0
+    assert any(w.startswith("dropped region(s)") for w in m.warnings)

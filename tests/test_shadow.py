@@ -129,3 +129,19 @@ def test_lit_white_face_is_told_from_a_clipped_mirror_a_coloured_face_and_a_shad
         face = img.copy()
         face[15:45, 15:45] = np.broadcast_to(value, (30, 30, 3))
         assert looks_like_lit_white(face, mask, paper) is expected, name
+
+
+def test_dark_pit_read_against_a_low_share_of_the_face():
+    """A brushed face's dark sector (0.025, under half the face's median 0.06) joins a deep hole's dark bottom
+    beside it and runs to the outline, so no pit is kept; read against the face's 20th percentile (the sector's
+    own level) the bottom (0.003) stands alone (branch steelwin14; synthetic: the 10 px pit is built, its
+    equal-area diameter 2 sqrt(100 / pi) = 11.28 px)."""
+    lin = np.full((60, 60), 0.6, np.float32)
+    mask = np.zeros((60, 60), bool)
+    mask[10:50, 10:50] = True
+    lin[mask] = 0.06
+    lin[30:50, 10:30] = 0.025
+    lin[24:34, 24:34] = 0.003
+    assert dark_pits(lin, mask, 20) == []
+    ((x, y, d),) = dark_pits(lin, mask, 20, quantile=20.0)
+    assert math.dist((x, y), (28.5, 28.5)) < 0.01 and abs(d - 2 * math.sqrt(100 / math.pi)) < 0.01

@@ -32,6 +32,9 @@ from scanmass.uncertainty import combine
 
 #: Smallest share of a dark pit's rays that must meet the face (not a lit floor) for its opening to be traced.
 DEEP_HOLE_MIN_SHARE = 0.3
+#: Percentile of a part's interior level at which :func:`_deep_hole_circles` looks for dark pits a third
+#: time (the first two: the median, on the image as it is and with its specks taken out).
+DEEP_HOLE_LOW_QUANTILE = 20.0
 #: Largest rms (px) of the traced opening about its circle on the top face's plane.
 DEEP_HOLE_RMS_PX = 1.0
 #: The stated doubt (1 sigma, px) of where a deep hole's traced opening runs, at least; a wider
@@ -301,6 +304,13 @@ def _deep_hole_circles(
     calm = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), 1.0)
     pits += [
         p for p in dark_pits(calm, mask, min_px) if all(math.dist(p[:2], q[:2]) > 0.5 * (p[2] + q[2]) for q in pits)
+    ]
+    # and with the part's level read low in its face: a brushed face's dark sector below half its median joins
+    # a pit beside it and runs to the outline (dev-window-steel5-t14's 5.5 mm plate once its shadow is cut)
+    pits += [
+        p
+        for p in dark_pits(calm, mask, min_px, quantile=DEEP_HOLE_LOW_QUANTILE)
+        if all(math.dist(p[:2], q[:2]) > 0.5 * (p[2] + q[2]) for q in pits)
     ]
     for x, y, d in pits:
         edge = pit_edge(lin, mask, (x, y), d)

@@ -25,9 +25,23 @@ from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
-from scanmass.segment.castshadow import core_cut, dark_tinted_face, fade_cut, hole_bottoms, shadow_cut
+from scanmass.segment.castshadow import (
+    core_cut,
+    dark_tinted_face,
+    fade_cut,
+    hole_bottoms,
+    lit_beyond,
+    shadow_cut,
+    sweep_direction,
+)
 from scanmass.segment.colourshadow import coloured_shadow_cut
-from scanmass.segment.shadow import SHADOW_FRACTION, looks_like_shadow_only, shadow_band_px, shadow_risk
+from scanmass.segment.shadow import (
+    SHADOW_FRACTION,
+    looks_like_shadow_only,
+    shadow_band_px,
+    shadow_risk,
+    too_wide_for_shadow,
+)
 from scanmass.segment.sidewall import LostWall, lost_wall_band
 
 #: The stated doubt (1 sigma, px) of where the outline runs along a stretch cut from a cast
@@ -267,6 +281,8 @@ def _decide_cuts(
     todo: list[tuple[Part, bool]] = [(part, False) for part in result.parts]
     # (cut px, direction, length px) of the cuts found by a sweep
     swept: list[tuple[int, tuple[float, float], float | None]] = []
+    # the crops of the parts whose own sweep was refused (for :func:`sweep_direction`, read when needed)
+    refused: list[tuple[np.ndarray, np.ndarray, np.ndarray, float, np.ndarray]] = []
     for part, later in todo:
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
@@ -298,10 +314,19 @@ def _decide_cuts(
                 risk = shadow_risk(colour_lin, mask, band_px)
         # a part whose lit face was joined up to its sharp edge is no shadow alone
         alone = risk is not None and looks_like_shadow_only(risk) and not has_lit_face(part)
-        if risk is not None and risk.fraction >= SHADOW_FRACTION and not alone:
+        # fading as a shadow alone does, but wider than a shadow of a part that thick can be: a thick metal
+        # face in a low light, dark beside its shadow (dev-window-steel5-t14's 5.5 mm steel plate)
+        wide = alone and not dark and thickness_mm is not None and too_wide_for_shadow(mask, thickness_mm, mm_per_px)
+        if wide and not later:
+            todo.append((part, True))  # cut along the photo's shadow direction, once the other parts show it
+            continue
+        if risk is not None and risk.fraction >= SHADOW_FRACTION and (not alone or wide):
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
-            cut = shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
+            # such a wide face's own search runs through its grain (its longest run): only along the light
+            cut = None if wide else shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
+            if cut is None and not dark and not later:
+                refused.append((colour_lin, mask, risk.paper_rgb, band_px, step))
             if cut is None and dark:
                 # mixed light: each light's shadow lit by the other, of its colour, not the paper's
                 cut = coloured_shadow_cut(colour_lin, mask, risk.paper_rgb, band_px)
@@ -331,10 +356,35 @@ def _decide_cuts(
                     witness = max(swept, key=lambda s: s[0])
                     along = np.asarray(witness[1], float)
                     cut = core_cut(
-                        colour_lin, mask, risk.paper_rgb, band_px, along, code_step=step, witness_px=witness[2]
+                        colour_lin,
+                        mask,
+                        risk.paper_rgb,
+                        band_px,
+                        along,
+                        code_step=step,
+                        witness_px=witness[2],
                     )
-            if cut is None and not dark and thickness_mm is not None:
-                # a metal face as grainy as its shadow: the soft shadow's fade inside the outline
+                elif wide:
+                    # no cut to show the light: the direction of another part's sweep refused on its
+                    # texture alone (its face almost as grainy as its shadow), without its length
+                    for other in refused:
+                        hint = sweep_direction(*other[:4], code_step=other[4])
+                        if hint is not None:
+                            cut = core_cut(
+                                colour_lin,
+                                mask,
+                                risk.paper_rgb,
+                                band_px,
+                                np.asarray(hint),
+                                code_step=step,
+                                past_fade=True,
+                            )
+                            break
+            if wide and cut is not None and lit_beyond(colour_lin, mask, risk.paper_rgb, cut):
+                cut = None  # a hard light's: the paper beyond is lit, so the dark layer is the face's own sector
+            if cut is None and not dark and thickness_mm is not None and not wide:
+                # a metal face as grainy as its shadow: the soft shadow's fade inside the outline (a face that
+                # fades as a shadow alone does is cut along the light only)
                 cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
             if cut is None:
                 cut = short

@@ -56,6 +56,12 @@ READ_EXCESS_MM = 0.3
 PAPER_BESIDE = 0.85
 #: Estimates closer than this (mm) are measured again in one run, at their mean.
 SAME_THICKNESS_MM = 0.2
+#: Lowest elevation (degrees) of the light for the reach beside a lifted part within which a region the
+#: run at the thickness read does not find is taken as a piece of it (:func:`measured_again`); the
+#: lowest light a shadow alone is allowed (:data:`~scanmass.segment.shadow.SHADOW_ONLY_MIN_ELEVATION_DEG`).
+PIECE_MIN_ELEVATION_DEG = 15.0
+#: Largest area of such a piece, as a share of the part measured again.
+PIECE_MAX_AREA_SHARE = 0.25
 #: Thicknesses (mm) tried for the round-rim cue (:func:`rim_thickness`); 0 is the outline as seen.
 RIM_GRID_MM = np.arange(0.0, 12.0001, 0.1)
 #: Fewest vertices of a ring that takes part in the round-rim cue.
@@ -607,6 +613,14 @@ def measured_again(
     run. A part of that run whose centroid lies within a quarter of the part's largest width of
     the lifted part's replaces it, with the term ``thickness_estimate`` kept; where the run fails
     or finds no such part, the lifted part (:func:`with_wall_thickness`) stays.
+
+    A small region found without the thickness beside a lifted part (within its half-width plus
+    the reach of its shadow under a light :data:`PIECE_MIN_ELEVATION_DEG` up, under
+    :data:`PIECE_MAX_AREA_SHARE` of its area) that the run at the thickness read finds nowhere
+    (no part of it within a quarter of the region's largest width) was a piece of that part's side
+    wall or of its reflection, which the plane map without the thickness leaves beside its face
+    (dev-window-steel5-t14's brass collar 3.5 mm: five pieces of its lit outer wall and its bore's
+    wall, 21-92 mm², found as parts): it is dropped, with a warning naming it.
     """
     groups: list[list[WallThickness]] = []
     for w in sorted(walls, key=lambda w: float(w.thickness_mm or 0.0)):
@@ -616,6 +630,8 @@ def measured_again(
             groups.append([w])
     record = result.settings.get("thickness_estimate", {}).get("parts", {})
     again_labels = []
+    pieces: dict[int, str] = {}  # index of a region dropped as a piece of a lifted part: that part's label
+    lifted = {str(w.label) for w in walls}
     for group in groups:
         ts = [float(w.thickness_mm or 0.0) for w in group]
         t = float(np.mean(ts))
@@ -648,9 +664,29 @@ def measured_again(
             )
             record[str(w.label)]["measured_again_mm"] = round(t, 3)
             again_labels.append(str(w.label))
+            reach = 0.5 * part.caliper_max_mm + t / math.tan(math.radians(PIECE_MIN_ELEVATION_DEG))
+            for i, q in enumerate(result.parts):
+                if (
+                    str(q.label) not in lifted
+                    and q.area_mm2 < PIECE_MAX_AREA_SHARE * match.area_mm2
+                    and math.dist(q.centroid_mm, part.centroid_mm) < reach
+                    and not any(math.dist(o.centroid_mm, q.centroid_mm) < 0.25 * q.caliper_max_mm for o in other.parts)
+                ):
+                    pieces.setdefault(i, str(part.label))
             said = set(result.warnings)
             where = f"(measured again at {t:.1f} mm for part {part.label}, there part {match.label})"
             result.warnings += [f"{where} {x}" for x in other.warnings if x not in said]
+    if pieces:
+        listed = ", ".join(
+            f"{result.parts[i].label} ({result.parts[i].area_mm2:.3g} mm², beside part {label})"
+            for i, label in sorted(pieces.items())
+        )
+        result.warnings.append(
+            f"dropped region(s) {listed}: found without the thickness beside a part measured again with its thickness "
+            "read, but not found in that measurement (a piece of the part's side wall or of its reflection); give "
+            "--thickness as measured with calipers to measure the photo in one pass"
+        )
+        result.parts[:] = [p for i, p in enumerate(result.parts) if i not in pieces]
     if again_labels:
         result.warnings.append(
             f"part(s) {', '.join(again_labels)} measured again with the thickness read from their side walls given as "

@@ -20,7 +20,10 @@ A sweep taken as a low light's (longer than a light 30 degrees up casts) must sh
 light's shadow fades on past the outline, so the paper just beyond it is no brighter on the sweep's
 side than on the other (:func:`_lit_beyond`). Along the photo's shadow direction (:func:`core_cut`),
 the layers beyond the level step that are as grainy as the shadow at the face's level are a soft
-shadow's core, lit by the room alone (:func:`_grainy_core`).
+shadow's core, lit by the room alone (:func:`_grainy_core`). Along a given direction, the soft shadow's
+fade next to the outline (brighter than the face) is passed over: the step to the face lies past the core.
+Where a photo shows no cut to give that direction, a sweep refused on its texture alone (the face almost as
+grainy as its shadow) still shows it (:func:`sweep_direction`).
 
 The roughness is the smoothed absolute deviation from a 3x3 median, taken relative to the local
 level: a median filter keeps a step edge, so the step between the face and the shadow adds
@@ -63,6 +66,8 @@ __all__ = [
     "hole_bottoms",
     "fade_cut",
     "core_cut",
+    "sweep_direction",
+    "lit_beyond",
 ]
 
 #: How much longer than the 30-degree reach (:data:`~scanmass.segment.shadow.SHADOW_MIN_ELEVATION_DEG`) a
@@ -149,6 +154,7 @@ def shadow_cut(
     reach_px: float,
     code_step: np.ndarray | None = None,
     direction: np.ndarray | None = None,
+    past_fade: bool = False,
 ) -> ShadowCut | None:
     """The cast shadow inside a found region: rough, paper-coloured, reached from its boundary.
 
@@ -173,6 +179,11 @@ def shadow_cut(
         part of the same photo showed it: one light casts every shadow of a photo the same way.
         The sweep is then sought along it only (its length, refinement and refusals as
         without it); the dark face's own search is skipped.
+    past_fade : bool, optional
+        With ``direction``: the layers next to the outline brighter than the face (a soft
+        shadow's fade, found as part) are passed over, and the step to the face is read past
+        the darker core beyond them (a region taken as a face beside its shadow although it
+        fades as a shadow alone does: :func:`scanmass.segment.shadow.too_wide_for_shadow`).
 
     Returns
     -------
@@ -201,9 +212,16 @@ def shadow_cut(
     [(20, 0), (21, 0), (78, 0), (79, 0)]
     """
     if direction is not None:
-        return _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=False, direction=direction)[
-            0
-        ]
+        return _shadow_cut(
+            colour_lin,
+            part_mask,
+            paper_rgb,
+            reach_px,
+            code_step,
+            use_dark=False,
+            direction=direction,
+            past_fade=past_fade,
+        )[0]
     cut, dark = _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=True)
     if cut is not None or not dark:
         return cut
@@ -220,6 +238,8 @@ def _shadow_cut(
     use_dark: bool,
     direction: np.ndarray | None = None,
     witness_px: float | None = None,
+    min_texture_ratio: float = CUT_MIN_TEXTURE_RATIO,
+    past_fade: bool = False,
 ) -> tuple[ShadowCut | None, bool]:
     """:func:`shadow_cut`, with the dark face's sweep (:func:`_dark_sweep`) where ``use_dark`` and the face is dark; and whether it was."""
     mask8 = part_mask.astype(np.uint8)
@@ -269,6 +289,7 @@ def _shadow_cut(
             reach_px,
             direction,
             witness_px,
+            past_fade,
         )
     if sweep is None:
         return None, dark
@@ -310,7 +331,7 @@ def _shadow_cut(
     # the shadow's grain, past the blurred rim where the sweep's run began beyond it
     graded = cut & ~rim if rim is not None and np.count_nonzero(cut & ~rim) >= 50 else cut
     tex_shadow = float(np.median(rough[graded]))
-    if tex_shadow < CUT_MIN_TEXTURE_RATIO * max(tex_face, 1e-4):
+    if tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
         return None, dark
     # a strip of the outline's rim left between the cut and the paper (the shadow's far edge,
     # a whole-pixel sweep short of it) would enclose the cut as a false hole: it goes with the
@@ -554,6 +575,27 @@ def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarra
 _CORE_LEVEL_RATIO = 0.9
 
 
+def sweep_direction(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    code_step: np.ndarray | None = None,
+) -> tuple[float, float] | None:
+    """The direction (unit x, y px) of a region's own sweep that :func:`shadow_cut` refused on texture alone; else None.
+
+    A metal face almost as grainy as its shadow (a brass collar in window light: the shadow 3.6 times
+    as rough as the face, under :data:`CUT_MIN_TEXTURE_RATIO`) is no ground for the cut's length, but
+    every other test of the sweep passed: its run of shadow-like layers from the outline, within the
+    reach, not through the face, with face left. Its direction is then evidence of the photo's light
+    (one light casts every shadow of a photo the same way) for a part whose own search finds none
+    (:func:`core_cut`'s ``direction``). For a region :func:`shadow_cut` refused; None where a test
+    other than the texture refuses its general sweep too.
+    """
+    found = _shadow_cut(colour_lin, part_mask, paper_rgb, reach_px, code_step, use_dark=False, min_texture_ratio=0.0)[0]
+    return None if found is None else found.direction
+
+
 def core_cut(
     colour_lin: np.ndarray,
     part_mask: np.ndarray,
@@ -562,6 +604,7 @@ def core_cut(
     direction: np.ndarray,
     code_step: np.ndarray | None = None,
     witness_px: float | None = None,
+    past_fade: bool = False,
 ) -> ShadowCut | None:
     """A soft shadow's fade and its core, swept along the photo's shadow direction, inside a metal part.
 
@@ -604,6 +647,7 @@ def core_cut(
         use_dark=False,
         direction=direction,
         witness_px=witness_px,
+        past_fade=past_fade,
     )[0]
     if along is None:
         return None
@@ -637,6 +681,32 @@ def core_cut(
     return replace(
         along, cut=cut, cut_px=int(np.count_nonzero(cut & part_mask)), edge_px=float(np.count_nonzero(border))
     )
+
+
+def lit_beyond(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, cut: ShadowCut) -> bool:
+    """Whether the paper just past a swept cut (1.5-5 px off the outline) is brighter than the paper off the rest of the outline.
+
+    A low, wide light's soft shadow still dims the paper beyond the cut on its own side; a hard light's (a spot's)
+    leaves it lit, and a region that fades as a shadow alone does and is cut along such a light's direction is a
+    face whose dark sector was taken for shadow. On the committed renders (tests/data/reallight):
+    dev-spot-steel3-t20's steel plate 3 mm under the spot, 0.91 of the paper white beyond its cut against 0.78
+    off the rest (the cut -20 % of its face); dev-window-steel5-t14's 5.5 mm plate in window light, 0.59 against
+    0.74. The zone beyond is the cut swept on by its own vector (:attr:`ShadowCut.direction`, ``length_px``);
+    False for a cut without one.
+    """
+    if cut.direction is None or cut.length_px is None:
+        return False
+    level = cv2.GaussianBlur(
+        (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).mean(axis=2), (0, 0), 1.5
+    )
+    kernel, anchor = _line_kernel(-np.asarray(cut.direction, float) * cut.length_px)
+    zone = cv2.dilate(cut.cut.astype(np.uint8), kernel, anchor=anchor).astype(bool) & ~part_mask
+    outside = cv2.distanceTransform((~part_mask).astype(np.uint8), cv2.DIST_L2, 3)
+    ring = (outside > 1.5) & (outside < 5)
+    beyond, rest = zone & ring, ring & ~zone
+    if np.count_nonzero(beyond) < STRETCH_PX or np.count_nonzero(rest) < STRETCH_PX:
+        return False
+    return bool(np.median(level[beyond]) > np.median(level[rest]))
 
 
 def _lit_beyond(part_mask: np.ndarray, unit: np.ndarray, level: np.ndarray) -> bool:
@@ -887,6 +957,7 @@ def _sweep_depth(
     reach_px: float,
     direction: np.ndarray | None = None,
     witness_px: float | None = None,
+    past_fade: bool = False,
 ) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None, bool] | None:
     """The direction (unit x, y) and length (px) of the sweep that added the shadow layer, a face map, the run, the rim passed over and whether :func:`_ringing_bound` bounded it.
 
@@ -998,6 +1069,7 @@ def _sweep_depth(
             skip_rim,
             direction,
             witness_px,
+            past_fade,
         )
         if found is None or n_face == len(faces) - 1 or not found[5]:
             break
@@ -1030,6 +1102,7 @@ def _read_step(
     skip_rim: bool,
     direction: np.ndarray | None = None,
     witness_px: float | None = None,
+    past_fade: bool = False,
 ) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None, bool, bool] | None:
     """:func:`_sweep_depth`'s length from the layers' profile, given the shadow's and the face's level and roughness; whether a level step placed it, and whether :func:`_ringing_bound` bounded it."""
     if max(lv_f, lv_s) >= _LEVEL_STEP_RATIO * max(min(lv_f, lv_s), 1e-6):
@@ -1047,6 +1120,11 @@ def _read_step(
         face_like = face_sure = rough <= 0.5 * (rg_s + rg_f)
         vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
     start = first + 1 if last - first > 2 else first
+    if past_fade and level_step and direction is not None and lv_f > lv_s:
+        # along the photo's shadow direction (``past_fade``): the soft shadow's fade next to the outline, brighter
+        # than the face, lies on the face's side of half-way; the step to the face lies past the darker core
+        while start + 1 < last and profile[start + 1] >= mid:
+            start += 1
     rim = cv2.distanceTransform(mask8, cv2.DIST_L2, 3) <= _RIM_LAYERS
     if skip_rim:
         # the blurred rim passed over is neither side's evidence: it neither votes nor counts as face

@@ -498,6 +498,7 @@ def dark_pits(
     min_area_px: float,
     clear_px: float = 3.0,
     levels: tuple[np.ndarray, np.ndarray] | None = None,
+    quantile: float = 50.0,
 ) -> list[tuple[float, float, float]]:
     """Closed regions inside a part clearly darker than the part itself, as a deep hole's bottom is.
 
@@ -508,6 +509,8 @@ def dark_pits(
     level, kept when it is at least ``min_area_px`` and compact (its area at least 0.3 of the
     circle its largest extent spans) and ``clear_px`` clear of the outline and of the holes
     found (a dark region that reaches them is a shadow the outline took in, or a hole's wall).
+    With ``quantile`` the part's level is read at that percentile of its interior instead of the
+    median: a brushed face's dark sector, darker than half the median, then stays out of the pit.
 
     Returns
     -------
@@ -529,7 +532,12 @@ def dark_pits(
     if np.count_nonzero(deep) < 50:
         return []
     # with ``levels`` (codes, table; lin = table[codes]) the median from the codes' counts: the same float
-    level = float(np.median(lin[deep])) if levels is None else code_median(levels[0], deep, levels[1])
+    if quantile != 50.0:
+        # the part's level read at a lower share of its interior: a brushed face's dark sector, which the
+        # median's share takes as dark (``levels`` is not used)
+        level = float(np.percentile(lin[deep], quantile))
+    else:
+        level = float(np.median(lin[deep])) if levels is None else code_median(levels[0], deep, levels[1])
     if level <= 0:
         return []
     dark = (interior & (lin < PIT_DEPTH * level)).astype(np.uint8)
