@@ -686,3 +686,92 @@ def test_sheet_scale_basis_continues_the_seeded_stream_past_the_size_draws():
             rng.standard_normal(len(samples))
             heights = [max(t + u * rng.standard_normal(), 0.0) for _ in samples]
             assert [s.correction.height_mm for s in samples] == heights
+
+
+def test_rim_cue_on_maps_decomposed_once_is_the_per_thickness_hook():
+    # check value: raised_outline_mm and _one_rim with ElevationHook(h0, k, t).footprint_mm made afresh at each
+    # thickness of the grid (the pose decomposed each time), as rim_thickness did before footprint_maps_mm
+    from _reallight_truth import REALLIGHT
+
+    from scanmass import load_image, measure
+    from scanmass.pipeline.photo_thickness import RIM_GRID_MM, RIM_MIN_VERTICES, _one_rim, _rings, footprint_rings
+    from scanmass.scale.homography import ElevationHook, apply_h, footprint_maps_mm, raised_outline_mm
+    from scanmass.scale.mat_scale import mat_scale
+
+    path = REALLIGHT / "dev-mixed-black2-t22.jpg"
+    scale = mat_scale(load_image(path))
+    h0, k = scale.plane_map.matrix, scale.camera_matrix
+    plain = [ElevationHook(h0, k, float(t)).footprint_mm for t in RIM_GRID_MM]
+    maps = footprint_maps_mm(h0, k, RIM_GRID_MM)
+    rings = [(j > 0, ring) for part in measure(path).parts for j, ring in enumerate(_rings(part))]
+    assert any(len(ring) >= RIM_MIN_VERTICES for _, ring in rings)
+    for hole, ring in rings:
+        for i in range(1, len(RIM_GRID_MM), 7):
+            t = float(RIM_GRID_MM[i])
+            got = raised_outline_mm(h0, k, t, ring, hole=hole, footprint_mm=maps[i])
+            assert np.array_equal(got, raised_outline_mm(h0, k, t, ring, hole=hole))
+        mm_per_px = scale.plane_map.mm_per_px
+        assert _one_rim(h0, k, ring, hole, mm_per_px, maps) == _one_rim(h0, k, ring, hole, mm_per_px, plain)
+    # footprint_rings, its map made once for all the rings: each ring raised with its own hook
+    part = max(measure(path).parts, key=lambda p: len(p.holes))
+    outer, *holes = _rings(part)
+    for t, top in [(2.0, False), (4.5, True)]:
+        got_outer, got_holes = footprint_rings(scale, part, t, top)
+        e = ElevationHook(h0, k, t).footprint_mm
+        if top:
+            assert np.array_equal(got_outer, apply_h(e, outer))
+            for got, ring in zip(got_holes, holes):
+                assert np.array_equal(got, apply_h(e, ring))
+        else:
+            assert np.array_equal(got_outer, raised_outline_mm(h0, k, t, outer))
+            for got, ring in zip(got_holes, holes):
+                assert np.array_equal(got, raised_outline_mm(h0, k, t, ring, hole=True)[::-1])
+
+
+def test_cut_swing_probe_on_an_equal_image_is_the_probe_measured_again(monkeypatch):
+    # check value: the same photo measured with every cut_swing probe measured again (no measurement reused)
+    from _reallight_truth import REALLIGHT
+
+    import scanmass.pipeline.flow as flow
+    import scanmass.pipeline.photo_shadow_cut as shadow_cut
+    from scanmass import measure
+
+    path = REALLIGHT / "spot-steel-t0.jpg"  # its probe at 3 - 0.15 mm decides the same cuts as at 3 mm
+    calls = {"n": 0}
+    plain_measure_image = flow.measure_image
+
+    def counted(*args, **kwargs):
+        calls["n"] += 1
+        return plain_measure_image(*args, **kwargs)
+
+    monkeypatch.setattr(flow, "measure_image", counted)
+    got = measure(path, thickness_mm=3.0).to_json()
+    reused = calls["n"]
+    monkeypatch.setattr(shadow_cut._Remeasured, "_found", lambda self, image, plane_map: None)
+    calls["n"] = 0
+    want = measure(path, thickness_mm=3.0).to_json()
+    assert got == want
+    assert reused < calls["n"]  # a probe's measurement was reused
+
+
+def test_neutral_wall_foot_sampled_at_once_is_each_distance_sampled_alone(monkeypatch):
+    # check value: _neutral_foot reading its profile one distance at a time (``at`` per distance), on the
+    # neutral walls of a committed render
+    from _reallight_truth import REALLIGHT
+
+    import scanmass.segment.sidewall as sidewall
+    from scanmass import measure
+
+    plain_foot = sidewall._neutral_foot
+    feet: list[float | None] = []
+
+    def both(at, level, p, along=None):
+        assert along is not None
+        got = plain_foot(at, level, p, along)
+        assert got == plain_foot(at, level, p)
+        feet.append(got)
+        return got
+
+    monkeypatch.setattr(sidewall, "_neutral_foot", both)
+    measure(REALLIGHT / "window-steel-t25.jpg", thickness_mm=2.5)
+    assert sum(f is not None for f in feet) >= 5

@@ -102,6 +102,7 @@ def _unknown_thickness(
         return []
     plausible = UNKNOWN_THICKNESS_MM if plausible_mm is None else plausible_mm
     h0, k = scale.plane_map.matrix, scale.camera_matrix
+    e = ElevationHook(h0, k, plausible).footprint_mm  # made once for every ring
     worst_rel = 0.0
     worst_cen_mm = 0.0
     for n, part in enumerate(result.parts):
@@ -109,8 +110,8 @@ def _unknown_thickness(
             continue
         flat_outer = np.asarray(part.outline_mm, dtype=float)
         flat_holes = [np.asarray(h.outline_mm, dtype=float) for h in part.holes if h.outline_mm is not None]
-        raised_outer = raised_outline_mm(h0, k, plausible, flat_outer)
-        raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True) for h in flat_holes]
+        raised_outer = raised_outline_mm(h0, k, plausible, flat_outer, footprint_mm=e)
+        raised_holes = [raised_outline_mm(h0, k, plausible, h, hole=True, footprint_mm=e) for h in flat_holes]
         if escaping_holes(raised_outer, raised_holes):
             # raised by a plausible thickness, a hole reaches past the part's own outline: only a
             # small piece of a part not found whole does that (dev-soft-brass-t25: a pale cam's

@@ -7,9 +7,10 @@ Part of the pipeline stage (:mod:`scanmass.pipeline`).
 
 from __future__ import annotations
 
+import copy
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, fields, replace
 
 import cv2
 import numpy as np
@@ -523,12 +524,15 @@ def _cut_cast_shadows(
     # the cut decided and measured again a little off the thickness (``probe_remeasure``: as ``remeasure``,
     # but not taken as the kept measurement's)
     probe = remeasure if probe_remeasure is None else probe_remeasure
+    # the kept measurement first; a probe's image measured already (the same cuts painted, on the same plane map)
+    # is not measured again: its measurement is the one made
+    made = _Remeasured(probe)
+    again, out, labels = _cut_once(masked, scale, result, decision, made.storing(remeasure), made.plane_map)
     probes = [
-        _cut_once(masked, scale, result, _decide_cuts(image, masked, scale, result, t, colour), probe)[0]
+        _cut_once(masked, scale, result, _decide_cuts(image, masked, scale, result, t, colour), made, made.plane_map)[0]
         for t in (thickness_mm - dt, thickness_mm + dt)
         if t > 0
     ]
-    again, out, labels = _cut_once(masked, scale, result, decision, remeasure)
     swung: dict[str, float] = {}
     parts = []
     for part in again.parts:
@@ -548,14 +552,68 @@ def _cut_cast_shadows(
     return again, out, labels
 
 
+@dataclass
+class _Remeasured:
+    """Measurements of one photo's cut images, each kept with the image and plane map it was made on.
+
+    Called as ``measure`` (the image, the plane map), it gives a copy of the measurement made already
+    on an equal image (every grey level the same, its other fields the same objects) with the same
+    plane map object, else measures and keeps a copy. :meth:`plane_map` gives the same plane map
+    object again for an equal top-edge mask, so that equal cuts meet the same map.
+    """
+
+    measure: Callable[[LoadedImage, PlaneMap], Measurement]
+    made: list[tuple[LoadedImage, np.ndarray, PlaneMap, Measurement]] = field(default_factory=list)
+    maps: list[tuple[PlaneMap, np.ndarray, PlaneMap]] = field(default_factory=list)
+
+    def plane_map(self, plane_map: PlaneMap, top_seen: np.ndarray) -> PlaneMap:
+        """:func:`~scanmass.pipeline.photo_walls.with_top_seen`, the same object for the same map and an equal mask."""
+        for base, mask, seen in self.maps:
+            if base is plane_map and np.array_equal(mask, top_seen):
+                return seen
+        seen = with_top_seen(plane_map, top_seen)
+        self.maps.append((plane_map, top_seen.copy(), seen))
+        return seen
+
+    def _found(self, image: LoadedImage, plane_map: PlaneMap) -> Measurement | None:
+        for was, grey, on, measured in self.made:
+            if on is plane_map and _same_but_grey(was, image) and np.array_equal(grey, image.grey):
+                return copy.deepcopy(measured)
+        return None
+
+    def _keep(self, image: LoadedImage, plane_map: PlaneMap, measured: Measurement) -> Measurement:
+        self.made.append((image, image.grey.copy(), plane_map, copy.deepcopy(measured)))
+        return measured
+
+    def __call__(self, image: LoadedImage, plane_map: PlaneMap) -> Measurement:
+        found = self._found(image, plane_map)
+        return found if found is not None else self._keep(image, plane_map, self.measure(image, plane_map))
+
+    def storing(
+        self, measure: Callable[[LoadedImage, PlaneMap], Measurement]
+    ) -> Callable[[LoadedImage, PlaneMap], Measurement]:
+        """``measure`` called every time (for what it records), each measurement kept for later calls."""
+        return lambda image, plane_map: self._keep(image, plane_map, measure(image, plane_map))
+
+
+def _same_but_grey(a: LoadedImage, b: LoadedImage) -> bool:
+    """Whether two images hold the same objects in every field but the grey levels."""
+    return all(getattr(a, f.name) is getattr(b, f.name) for f in fields(a) if f.name != "grey")
+
+
 def _cut_once(
     masked: LoadedImage,
     scale: PhotoScale,
     result: Measurement,
     decision: _Decision,
     remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+    seen_map: Callable[[PlaneMap, np.ndarray], PlaneMap] = with_top_seen,
 ) -> tuple[Measurement, list[str], set[int]]:
-    """:func:`_cut_cast_shadows` for one decision (:func:`_decide_cuts`): measured again with its cuts painted."""
+    """:func:`_cut_cast_shadows` for one decision (:func:`_decide_cuts`): measured again with its cuts painted.
+
+    ``seen_map`` makes the plane map with the outline taken on the top edge in a mask
+    (:func:`~scanmass.pipeline.photo_walls.with_top_seen`, or one that gives the same map again for the same mask).
+    """
     mm_per_px = scale.plane_map.mm_per_px
     grey, top_seen, cuts, opened = decision.grey, decision.top_seen, decision.cuts, decision.opened
     by_colour, painted, firsts, cut_faces = decision.by_colour, decision.painted, decision.firsts, decision.cut_faces
@@ -568,7 +626,7 @@ def _cut_once(
         plane_map = scale.plane_map
         closed_notes: list[str] = []
         if top_seen is not None and top_seen.any():
-            plane_map = with_top_seen(plane_map, top_seen)
+            plane_map = seen_map(plane_map, top_seen)
         again = remeasure(replace(masked, grey=grey), plane_map)
         closed, strips = _painted_holes(again, replace(scale, plane_map=plane_map), painted, firsts, cut_faces)
         if closed.any():

@@ -307,12 +307,14 @@ def _ring_rms(ring: np.ndarray) -> float:
 
 
 def _one_rim(
-    h0: np.ndarray, k: np.ndarray, ring: np.ndarray, hole: bool, mm_per_px: float
+    h0: np.ndarray, k: np.ndarray, ring: np.ndarray, hole: bool, mm_per_px: float, maps: list[np.ndarray]
 ) -> tuple[float, float] | None:
     """One ring's thickness reading and 1-sigma (mm) by :func:`rim_thickness`, or None.
 
     The RMS is taken at every 4th thickness of :data:`RIM_GRID_MM`, then at every one within 0.5 mm
     of the least of those (the RMS has one dip: the rest of the grid would not move the least).
+    ``maps``: the footprint map of each thickness of the grid
+    (:func:`~scanmass.scale.homography.footprint_maps_mm`).
     """
     rms: dict[int, float] = {}
 
@@ -320,7 +322,8 @@ def _one_rim(
         for i in idx:
             if int(i) not in rms:
                 t = float(RIM_GRID_MM[i])
-                rms[int(i)] = _ring_rms(ring if t == 0 else raised_outline_mm(h0, k, t, ring, hole=hole))
+                raised = ring if t == 0 else raised_outline_mm(h0, k, t, ring, hole=hole, footprint_mm=maps[int(i)])
+                rms[int(i)] = _ring_rms(raised)
 
     n = len(RIM_GRID_MM)
     at(np.arange(0, n, 4))
@@ -385,13 +388,15 @@ def rim_thickness(scale: PhotoScale, result: Measurement) -> list[WallThickness]
         return []
     h0, k = scale.plane_map.matrix, scale.camera_matrix
     out = []
+    maps: list[np.ndarray] = []  # each thickness's footprint map, the pose decomposed once (made at the first ring)
     for part in result.parts:
         if part.outline_mm is None or any(h.outline_mm is None for h in part.holes):
             continue
         reads = []
         for j, ring in enumerate(_rings(part)):
             if len(ring) >= RIM_MIN_VERTICES:
-                one = _one_rim(h0, k, ring, j > 0, scale.plane_map.mm_per_px)
+                maps = maps or footprint_maps_mm(h0, k, RIM_GRID_MM)
+                one = _one_rim(h0, k, ring, j > 0, scale.plane_map.mm_per_px, maps)
                 if one is not None:
                     reads.append(one)
         if not reads:
@@ -444,12 +449,12 @@ def footprint_rings(
     assert scale.camera_matrix is not None
     h0, k = scale.plane_map.matrix, scale.camera_matrix
     outer, *holes = _rings(part)
+    e = ElevationHook(h0, k, thickness_mm).footprint_mm  # made once for all the rings
     if top_edge:
-        e = ElevationHook(h0, k, thickness_mm).footprint_mm
         return apply_h(e, outer), [apply_h(e, ring) for ring in holes]
     # raised_outline_mm puts a ring counter-clockwise first: a (clockwise) hole comes back reversed
-    return raised_outline_mm(h0, k, thickness_mm, outer), [
-        raised_outline_mm(h0, k, thickness_mm, ring, hole=True)[::-1] for ring in holes
+    return raised_outline_mm(h0, k, thickness_mm, outer, footprint_mm=e), [
+        raised_outline_mm(h0, k, thickness_mm, ring, hole=True, footprint_mm=e)[::-1] for ring in holes
     ]
 
 

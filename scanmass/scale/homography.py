@@ -345,7 +345,13 @@ class ElevationHook:
 
 
 def raised_outline_mm(
-    px_to_plane: np.ndarray, k: np.ndarray, height_mm: float, ring_mm: np.ndarray, *, hole: bool = False
+    px_to_plane: np.ndarray,
+    k: np.ndarray,
+    height_mm: float,
+    ring_mm: np.ndarray,
+    *,
+    hole: bool = False,
+    footprint_mm: np.ndarray | None = None,
 ) -> np.ndarray:
     """The true outline on the plane of a part ``height_mm`` thick whose photo outline maps to ``ring_mm``.
 
@@ -368,8 +374,11 @@ def raised_outline_mm(
     hole : bool
         The ring bounds a hole (material outside it): its outward normal, away from the
         material, points into the ring.
+    footprint_mm : (3, 3) ndarray, optional
+        ``E`` for this height when already made (one of :func:`footprint_maps_mm`'s, the same to the
+        bit): ``px_to_plane``, ``k`` and ``height_mm`` are then not used.
     """
-    e = ElevationHook(px_to_plane, k, height_mm).footprint_mm
+    e = ElevationHook(px_to_plane, k, height_mm).footprint_mm if footprint_mm is None else footprint_mm
     ring = np.asarray(ring_mm, dtype=float).reshape(-1, 2)
     x, y = ring[:, 0], ring[:, 1]
     if np.dot(x, np.roll(y, -1)) - np.dot(np.roll(x, -1), y) < 0:

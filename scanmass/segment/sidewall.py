@@ -201,20 +201,26 @@ def _band_levels(
     return plate, paper, ramp
 
 
-def _neutral_foot(at: Callable[[np.ndarray, np.ndarray], float], level: np.ndarray, p: float) -> float | None:
+def _neutral_foot(
+    at: Callable[[np.ndarray, np.ndarray], float],
+    level: np.ndarray,
+    p: float,
+    along: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
+) -> float | None:
     """Where a neutral wall band of projected width ``p`` (px) ends: its step half-way up to the paper; None if it is no flat band.
 
     The band is read over the wall's width as the camera sees it across the outline (the
     parallax's component along the normal); it must step up to the paper (:func:`_band_levels`)
     and be flat (a contact shadow's fade is a ramp). Its outer edge, the wall's foot, is where the
     level first reaches half-way from the band to the paper, outwards from the band's middle.
+    ``along`` (optional) gives ``at`` of each distance at once (the same values).
     """
     levels = _band_levels(at, level, p)
     if levels is None or step_is_ramp(levels[1] - levels[0], levels[2]):
         return None
     plate, paper, _ = levels
     d = np.arange(0.5 * p, p + 4.01, 0.25)
-    prof = np.array([at(np.array([x]), level) for x in d])
+    prof = np.array([at(np.array([x]), level) for x in d]) if along is None else along(d, level)
     up = np.flatnonzero(prof >= 0.5 * (plate + paper))
     return float(d[up[0]]) if len(up) else None
 
@@ -302,6 +308,12 @@ def lost_wall_band(
                 pts = base[:, None, :] + np.asarray(d, float)[None, :, None] * nrm[:, None, :]
                 return float(np.median(_sample(img, pts)))
 
+            def along(d: np.ndarray, img: np.ndarray, base: np.ndarray = base, nrm: np.ndarray = nrm) -> np.ndarray:
+                # ``at`` of each distance, sampled at once: each sample depends on its own point only, and
+                # each column's median is the one of its own values (float64, as ``at`` returns them)
+                pts = base[:, None, :] + np.asarray(d, float)[None, :, None] * nrm[:, None, :]
+                return np.median(_sample(img, pts), axis=0).astype(np.float64)
+
             def shares(d: np.ndarray, at: Callable[[np.ndarray, np.ndarray], float] = at) -> np.ndarray:
                 rgb = np.array([at(d, c) for c in chans])
                 return np.asarray(rgb / max(float(rgb.sum()), 1e-9))
@@ -328,7 +340,7 @@ def lost_wall_band(
                 if shade is None or not shade.faces_light(nrm.mean(axis=0)) or chroma_of(q) >= WALL_MIN_CHROMA:
                     continue
                     continue
-                foot = _neutral_foot(at, level, q)
+                foot = _neutral_foot(at, level, q, along)
                 if foot is None:
                     continue
                 reach = np.full(n, foot)
