@@ -131,12 +131,22 @@ def test_printer_check_corrects_x_and_y_scale():
 
 
 @pytest.mark.slow
-def test_thick_part_with_and_without_thickness():
+def test_thick_part_with_and_without_thickness(monkeypatch):
     part = dataclasses.replace(_plate(), height_mm=6.0)
     t = truth(part.outer_mm, part.holes_mm)
     cam = make_camera(tilt_deg=25.0, tilt_dir_deg=30.0, roll_deg=80.0, distance_mm=360.0)
     img = render_photo(MAT, [part], cam, seed=9)
+    # without the thickness, its round hole's lens shape gives it (the rim cue): 6 mm is the rendered height
+    read = measure(img, printed_x_mm=100.0, printed_y_mm=100.0)
+    est = read.settings["thickness_estimate"]["parts"]["1"]
+    assert est["cue"] == "rim" and abs(est["thickness_mm"] - 6.0) <= 3 * est["thickness_u_mm"]
+    assert abs(read.parts[0].area_mm2 - t["area"]) <= 3 * read.parts[0].area_u_mm2
+    # with neither the thickness nor a cue that reads it, the top face looks larger and the parallax is warned
+    from scanmass.pipeline import flow
+
+    monkeypatch.setattr(flow, "rim_thickness", lambda scale, result: [])
     flat = measure(img, printed_x_mm=100.0, printed_y_mm=100.0)
+    assert "thickness_estimate" not in flat.settings
     assert abs(flat.parts[0].area_mm2 / t["area"] - 1) > 0.03  # the top face looks larger
     assert any(w.startswith("parallax") for w in flat.warnings)
     m = measure(img, printed_x_mm=100.0, printed_y_mm=100.0, thickness_mm=6.0, thickness_u_mm=0.05)

@@ -12,7 +12,6 @@ from dataclasses import replace
 
 import cv2
 import numpy as np
-from scipy.optimize import least_squares
 
 from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.geometry import signed_area
@@ -179,6 +178,8 @@ def _overlap_fit(top: np.ndarray, bottom: np.ndarray, start: np.ndarray) -> tupl
     trimmed one-sidedly: the wall's shade on the floor only takes from the lit overlap, so points
     further inside it than the rest's scatter are left out (outside it, beyond 2.5 times).
     """
+
+    from scipy.optimize import least_squares  # only for a deep hole's lit floor (scipy costs ~0.2 s to import)
 
     def residual(q: np.ndarray) -> np.ndarray:
         d_top = np.hypot(top[:, 0] - q[0], top[:, 1] - q[1]) - q[2]
