@@ -86,7 +86,9 @@ def test_hole_raised_past_its_outline_refuses_with_the_cause(monkeypatch):
     m = measure(_scan().image, dpi=300)
     plate = min(range(2), key=lambda i: m.parts[i].centroid_mm[0])
 
-    def raised(h0, k, thickness, ring, hole=False, footprint_mm=None):  # the plate's hole goes 40 mm right, all else stays
+    def raised(
+        h0, k, thickness, ring, hole=False, footprint_mm=None
+    ):  # the plate's hole goes 40 mm right, all else stays
         ring = np.asarray(ring, float)
         far = hole and ring.mean(axis=0)[0] < 50.0
         return ring + np.array([40.0, 0.0]) if far else ring.copy()
