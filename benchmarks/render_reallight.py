@@ -45,7 +45,7 @@ belong to the tuned set::
         dev-mixed-steel2-t15 dev-mixed-steel3-t22 dev-window-steel3-t10 \
         dev-window-steel4-t22 dev-spot-brass4-t17 dev-spot-brass5-t24 dev-window-disc8-t4 \
         dev-mixed-steel4-t8 dev-lens-window-steel-t24 dev-window-steel5-t14 dev-soft-brass2-t15 \
-        dev-mixed-black5-t18
+        dev-mixed-black5-t18 dev-lens-window-steel2-t16
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34 dev-scan-cam2-lamp33 dev-scan-bracket4-lamp29 \
@@ -883,6 +883,18 @@ def dev_scenes():
             24,
             150,
             "Standard",
+        ),
+        # branch lenssteel14: thin brushed steel in window light through the k1 = -0.05 lens at a tilt, the camera
+        # on the window's far side: a plate with four holes beside an L bracket, the window a little higher
+        (
+            "dev-lens-window-steel2-t16",
+            "window",
+            [("plate4", "brushed-steel", 3.0, 120, 195, 35), ("l-bracket", "brushed-steel", 2.5, 85, 100, -60)],
+            310,
+            16,
+            30,
+            "Standard",
+            30.0,
         ),
         (
             "dev-mixed-steel4-t8",

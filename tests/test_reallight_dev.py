@@ -1128,3 +1128,49 @@ def test_pieces_of_a_lifted_parts_wall_dropped_without_thickness():
         tp = _truth("dev-window-steel5-t14", shape)
         assert min(math.dist(q.centroid_mm, tp["centroid"]) for q in m.parts) < 5.0
     assert any(w.startswith("dropped region(s)") for w in m.warnings)
+
+
+_LENS_STEEL2 = "dev-lens-window-steel2-t16"
+
+
+def test_lens_window_steel_plate_and_bracket_covered_or_refused():
+    """dev-lens-window-steel2-t16 (branch lenssteel14; window light 30 degrees up, 16 degrees of tilt, the k1 = -0.05
+    lens with no profile): a brushed-steel plate 3 mm thick with four holes beside a steel L bracket 2.5 mm. Each
+    part found keeps its cast shadow (+13.0 % and +24.6 % in area with the thickness given; without it the plate
+    +19.1 % and the bracket, +22.1 %, named 'shadow only', bench_reallight figures of this branch) and is warned of
+    it; the guard: every part reported lies within 3 of its stated sigma (0.48-0.61 sigma), with and without the
+    thickness, or the photo is refused with the fix named. Truth: the render's outlines (area and centroid by
+    shapely)."""
+    for shape in ("plate4", "l-bracket"):
+        m, part, tp = _part(_LENS_STEEL2, shape)
+        assert _covered(part, tp), (shape, part.area_mm2 / tp["area"] - 1)
+        assert "cast_shadow" in part.uncertainty_terms, shape
+    assert any(w.startswith("cast shadow:") for w in m.warnings)
+    try:
+        m = _without_thickness(_LENS_STEEL2)
+    except SegmentationError as exc:  # refused: the message must name the fix
+        assert "diffuse light" in str(exc)
+        return
+    for q in m.parts:
+        tp = min(
+            (_truth(_LENS_STEEL2, s) for s in ("plate4", "l-bracket")),
+            key=lambda t: math.dist(t["centroid"], q.centroid_mm),
+        )
+        assert _covered(q, tp), (q.label, q.area_mm2 / tp["area"] - 1)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="dev-lens-window-steel2-t16 (branch lenssteel14): both steel parts found, none extra, but each keeps its "
+    "cast shadow: thickness given, plate +13.0 % (centroid 1.87 mm), L bracket +24.6 % (2.19 mm), each within 0.7 "
+    "stated sigma (stated 27 % and 40 % of the area); the plate's 11 mm hole read 7.99 mm 2.1 mm off, one 6 mm hole "
+    "missed (a 'pit'), the bracket's second 5.5 mm hole missed. Without it the bracket is named 'shadow only' "
+    "(missed in bench_reallight), the plate +19.1 % (1.3 sigma), its holes 3.3-4.4 mm small (1.0-1.3 sigma)",
+)
+def test_lens_window_steel_plate_and_bracket_within_3_percent():
+    for shape in ("plate4", "l-bracket"):
+        m, part, tp = _part(_LENS_STEEL2, shape)
+        assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], shape
+        assert len(part.holes) == len(tp["holes"]), shape
+    m = _without_thickness(_LENS_STEEL2)
+    assert not any(w.startswith("shadow only:") for w in m.warnings)
