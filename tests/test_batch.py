@@ -276,7 +276,7 @@ def _many(folder: Path, n: int) -> dict[str, list[dict]]:
     truth = {}
     for k in range(n):
         parts = _scene(k % 6)
-        parts[1] = SynthPart(circle(46.0, 33.0, 5.0 + 0.25 * k))  # every file different
+        parts[1] = SynthPart(circle(46.0, 33.0, 5.0 + 0.25 * (k % 24)))  # every file different (its seed too)
         _save(parts, folder / f"s{k:03d}.png", seed=100 + k)
         truth[f"s{k:03d}.png"] = [_truth(p) for p in parts]
     return truth
@@ -369,7 +369,7 @@ def test_resume_after_kill_9(tmp_path):
 @pytest.mark.slow
 def test_ctrl_c_finishes_files_in_flight_and_writes_csvs(tmp_path):
     folder, out = tmp_path / "scans", tmp_path / "out"
-    n = 24  # enough that a loaded machine still signals mid-run (after 3 files)
+    n = 48  # enough that the batch is still running when 3 files are recorded, on a loaded machine or a fast one
     _many(folder, n)
     done_at_signal, proc = _signal_mid_run(folder, out, signal.SIGINT)
     assert proc.returncode == 130, proc.stderr
