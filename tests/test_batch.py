@@ -298,7 +298,11 @@ def _signal_mid_run(folder: Path, out: Path, sig: int, *, after: int = 3) -> tup
     ]
     # after kill -9 the orphaned workers take up to a second to notice: do not wait on their pipes
     pipe = subprocess.PIPE if sig != signal.SIGKILL else subprocess.DEVNULL
-    proc = subprocess.Popen(cmd, stdout=pipe, stderr=pipe, text=True)
+    # a shell's background job inherits SIGINT ignored (bash without job control, as a CI runner may start
+    # pytest); Ctrl-C at a terminal is delivered, so the batch starts with the default action, as there
+    proc = subprocess.Popen(
+        cmd, stdout=pipe, stderr=pipe, text=True, preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL)
+    )
     done = 0
     try:
         deadline = time.monotonic() + 60
