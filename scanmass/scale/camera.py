@@ -1,6 +1,6 @@
 """The camera behind a photo's plane map: lens, focal length, sampled maps, clear area.
 
-:func:`build_photo_scale` is the common tail of the two photo scale sources
+:func:`photo_scale_basis` and :meth:`ScaleBasis.with_thickness` are the common tail of the two photo scale sources
 (:func:`scanmass.scale.mat_scale.mat_scale` and :func:`scanmass.scale.sheet.sheet_scale`):
 given the fitted homography it samples its uncertainty, finds the camera's focal length
 (from a lens profile, the view's perspective, EXIF or an assumption), adds the
@@ -46,7 +46,6 @@ __all__ = [
     "PhotoScale",
     "LensTools",
     "lens_tools",
-    "build_photo_scale",
     "photo_scale_basis",
     "ScaleBasis",
     "principal_point",
@@ -203,55 +202,13 @@ def _roi_from_rect(
     return to_px(pts)
 
 
-def build_photo_scale(
-    image: LoadedImage,
-    *,
-    method: str,
-    fit: HomographyFit,
-    points_mm: np.ndarray,
-    printer: np.ndarray,
-    terms: dict[str, float],
-    details: MatDetails | SheetDetails,
-    note: str,
-    clear_mm: tuple[float, float, float, float] | np.ndarray,
-    lens: LensTools,
-    thickness_mm: float | None,
-    thickness_u_mm: float,
-    support_mm: np.ndarray,
-    warnings: list[str],
-    sample_sigma_px: float,
-    size_samples: Callable[[np.random.Generator], np.ndarray] | None = None,
-) -> PhotoScale:
-    """Common tail of mat_scale and sheet_scale: samples, focal length, thickness, the PlaneMap, the ROI.
-
-    :func:`photo_scale_basis` and then :meth:`ScaleBasis.with_thickness`.
-    """
-    basis = photo_scale_basis(
-        image,
-        method=method,
-        fit=fit,
-        points_mm=points_mm,
-        printer=printer,
-        terms=terms,
-        details=details,
-        note=note,
-        clear_mm=clear_mm,
-        lens=lens,
-        support_mm=support_mm,
-        warnings=warnings,
-        sample_sigma_px=sample_sigma_px,
-        size_samples=size_samples,
-    )
-    return basis.with_thickness(thickness_mm, thickness_u_mm)
-
-
 @dataclass(frozen=True)
 class ScaleBasis:
     """A photo's scale before a thickness is given: the fit, its sampled maps and the camera.
 
     :meth:`with_thickness` gives the :class:`PhotoScale` for a part's thickness; the random
     stream continues from ``rng_state`` (where :func:`photo_scale_basis` left it), so a scale
-    built from one basis is the one :func:`build_photo_scale` builds in one go.
+    built from one basis at any thickness is the one a fresh basis would give.
     ``detection`` and ``layout`` (a marker mat's) are set on the scale as they are.
     """
 
@@ -356,7 +313,7 @@ def photo_scale_basis(
     sample_sigma_px: float,
     size_samples: Callable[[np.random.Generator], np.ndarray] | None = None,
 ) -> ScaleBasis:
-    """The thickness-free part of :func:`build_photo_scale`: the sampled maps, the focal length, the ROI."""
+    """The thickness-free part of a photo's scale: the sampled maps, the focal length, the ROI."""
     distort = lens.distort
     rng = np.random.default_rng(12345)
     h0 = printer @ fit.px_to_plane
