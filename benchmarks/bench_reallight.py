@@ -114,12 +114,14 @@ def measure_case(image: Path, truth: dict, with_thickness: bool) -> dict:
             for part in m.parts:
                 d = math.dist(part.centroid_mm, tp["centroid"])
                 if d < 8.0 and (best is None or d < best[0]):
-                    best = (d, part)
+                    best = (d, part, m)
         if best is None:
             rows.append({"truth": tp, "found": False})
             continue
         part = best[1]
         found_labels.add(part.label)
+        # the thickness the photo read for this part (no thickness given), as the result records it
+        est = best[2].settings.get("thickness_estimate", {}).get("parts", {}).get(str(part.label))
         area_err = part.area_mm2 - tp["area"]
         cen_err = math.dist(part.centroid_mm, tp["centroid"])
         sig = [abs(area_err) / part.area_u_mm2]
@@ -149,6 +151,7 @@ def measure_case(image: Path, truth: dict, with_thickness: bool) -> dict:
                 "sigmas": sig,
                 "holes": hole_errs,
                 "extra_holes": len(part.holes) - sum(1 for e in hole_errs if e is not None),
+                "thickness_read": None if est is None else (est["thickness_mm"], est["thickness_u_mm"], est["cue"]),
             }
         )
     return {
@@ -243,6 +246,42 @@ def summarise(cases: list[tuple[dict, dict]]) -> dict:
     return out
 
 
+def summarise_thickness(cases: list[tuple[dict, dict]]) -> dict:
+    """Per group, the photographed parts found without a thickness and the thickness each was read as.
+
+    Scans are left out (a scan's figures are of the face on the glass, with no lift to read).
+    """
+    groups: dict[str, dict] = defaultdict(lambda: defaultdict(list))
+    for truth, res in cases:
+        if truth["kind"] != "photo":
+            continue
+        for row in res["rows"]:
+            if not row["found"]:
+                continue
+            for g in ["all", *groups_of(truth, row["truth"])]:
+                acc = groups[g]
+                acc["found"].append(1)
+                if row["thickness_read"] is None:
+                    continue
+                t, u, cue = row["thickness_read"]
+                err = t - row["truth"]["thickness_mm"]
+                acc["err"].append(abs(err))
+                acc["sig"].append(abs(err) / u)
+                acc[f"cue:{cue}"].append(1)
+    out = {}
+    for g, acc in sorted(groups.items()):
+        out[g] = {
+            "found": len(acc["found"]),
+            "read": len(acc["err"]),
+            "by_cue": {k[4:]: len(v) for k, v in acc.items() if k.startswith("cue:")},
+            "err_median_mm": float(np.median(acc["err"])) if acc["err"] else None,
+            "err_worst_mm": float(np.max(acc["err"])) if acc["err"] else None,
+            "within_3_sigma_pct": 100 * float(np.mean(np.array(acc["sig"]) <= 3)) if acc["sig"] else None,
+            "max_sigma": float(np.max(acc["sig"])) if acc["sig"] else None,
+        }
+    return out
+
+
 def _fmt(v, spec):
     return "-" if v is None else format(v, spec)
 
@@ -290,6 +329,9 @@ def main(argv: list[str] | None = None) -> int:
             for r in res["rows"]:
                 if r["found"]:
                     hole_txt = " ".join("miss" if e is None else f"{e[0]:+.3f}({e[1]:.3f})" for e in r["holes"])
+                    if r["thickness_read"] is not None:
+                        t_read, t_u, cue = r["thickness_read"]
+                        hole_txt += f"  thickness read {t_read:.2f} +- {t_u:.2f} mm ({cue})"
                     print(
                         f"      {r['truth']['shape']:9s} {r['truth']['material']:13s} t={r['truth']['thickness_mm']:g}: "
                         f"area {100 * r['area_rel_err']:+.3f} %  centroid {r['centroid_err_mm']:.3f} mm  "
@@ -313,6 +355,21 @@ def main(argv: list[str] | None = None) -> int:
                 f"{_fmt(s['within_3_sigma_pct'], '6.1f')} {_fmt(s['max_sigma'], '6.1f')} "
                 f"{_fmt(s['parts_with_warning_pct'], '7.0f')}"
             )
+        if not with_t:
+            thick = summarise_thickness(cases)
+            report[key]["thickness_read"] = thick
+            print("\n== thickness read from the photo (none given; photographed parts found) ==")
+            print(
+                f"{'group':24s} {'found':>5s} {'read':>4s} {'err med mm':>10s} {'worst':>6s} {'<=3s %':>6s} "
+                f"{'max s':>6s}  cues"
+            )
+            for g, s in thick.items():
+                cues = ", ".join(f"{k} {v}" for k, v in sorted(s["by_cue"].items()))
+                print(
+                    f"{g:24s} {s['found']:5d} {s['read']:4d} {_fmt(s['err_median_mm'], '10.2f')} "
+                    f"{_fmt(s['err_worst_mm'], '6.2f')} {_fmt(s['within_3_sigma_pct'], '6.1f')} "
+                    f"{_fmt(s['max_sigma'], '6.1f')}  {cues}"
+                )
     if args.json:
         Path(args.json).write_text(json.dumps(report, indent=1, default=str))
     return 0
