@@ -25,6 +25,13 @@ is a soft ramp (the face's own shading: less than :data:`RIM_HELD_MAX` of the st
 two levels held up to the edge), and left a hole when the rim is sharp (a hole's edge is the
 part's edge, even where its floor is all in shade).
 
+A lit sector may hold a streak at the paper's own level (the mirrored lamp's line across a brushed
+face, dev-spot-steel3-t20's plate): against the streak its edge is the face's soft shading, and its
+step to the paper reads as a fade. Its step is then read again only where the paper lies beyond the
+found face's hull (:func:`_step_beyond_hull`: there only the part's own edge can be), a sector mostly
+beyond the hull is joined where it fades into the found face (:func:`_rim_towards_found`), and the
+streaks between sectors so joined are closed (:func:`_streaks_joined`).
+
 A face brighter than the paper (pale brass mirroring a softbox) is not found by this rule;
 it needs colour and stays a refusal or a warning.
 
