@@ -261,3 +261,46 @@ def test_ring_found_as_a_c_is_closed_by_its_grainy_stretch():
     # where the gap is widest (73 % of the stretch joined here; its band is the term's)
     assert brightface._enclosed(found | joined) == 1
     assert np.count_nonzero(joined & (stretch > 0.5)) >= 0.6 * expected
+
+
+def _sector_with_a_streak() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A dark face (0.1) on paper (0.5) with a lit sector at its top edge (rows 20-63, cols 46-73): 0.36 of
+    the paper, brightening to the paper's level over 8 px towards a streak along it (cols 58-62) and
+    fading into the face over its last 8 rows. The threshold (0.3) leaves the sector to the paper."""
+    lin = np.full((100, 120), 0.5, np.float32)
+    lin[20:80, 20:100] = 0.1
+    cols = np.arange(120)
+    d_streak = np.maximum(np.abs(cols - 60) - 2, 0).astype(np.float32)
+    row_level = np.where(d_streak < 8, 0.5 - (0.5 - 0.36) * d_streak / 8, 0.36)
+    for r in range(20, 64):
+        fade = np.clip((64 - r) / 8, 0, 1)
+        lin[r, 46:74] = 0.1 + (row_level[46:74] - 0.1) * fade
+    face = np.zeros(lin.shape, bool)
+    face[20:80, 20:100] = True
+    sector = np.zeros(lin.shape, bool)
+    sector[20:64, 46:74] = True
+    return lin, face & (lin < 0.3), sector & ~(lin < 0.3)
+
+
+def test_lit_sector_with_a_streak_at_the_papers_level_joined():
+    """The sector's edge against the streak is the face's soft shading; its step to the paper beyond the found
+    face's hull is the part's sharp edge (the construction's truth: the sector's pixels, 1101)."""
+    lin, found, sector = _sector_with_a_streak()
+    none = np.zeros_like(found)
+    joined, notes = lost_face_regions(lin, found, none, ~none)
+    assert notes
+    assert np.count_nonzero(joined & sector) >= 0.95 * np.count_nonzero(sector)  # was 0: a fade at the streak
+    assert not (joined & ~sector).any()
+
+
+def test_dark_band_outside_the_hull_meeting_the_face_at_its_edge_not_joined():
+    """A cast shadow's core beside the face (0.3 of the paper's 0.5, 10 px wide, sharp on both sides) lies outside
+    the found face's hull and meets the face at a step: it is no lit sector fading into the face."""
+    lin = np.full((100, 130), 0.5, np.float32)
+    lin[20:80, 20:100] = 0.1
+    lin[25:85, 100:110] = 0.3
+    found = np.zeros(lin.shape, bool)
+    found[20:80, 20:100] = True
+    none = np.zeros_like(found)
+    joined, notes = lost_face_regions(lin, found, none, ~none)
+    assert not joined.any() and not notes

@@ -213,15 +213,17 @@ def test_second_steel_cam_area_within_2_percent():
 
 @pytest.mark.xfail(
     strict=True,
-    reason="dev-spot-steel3-t20: the 3 mm steel plate's two lit sectors reach the paper's level towards its edge "
-    "(0.86-0.88 of the paper 2-3 px inside the darker region's edge, 0.74-0.78 6 px inside: a soft ramp, not a "
-    "step), so the rule for lit sectors does not join them: -6.4 % in area, centroid 3.64 mm, holes -2.86 and "
-    "-2.83 mm and one missed (bench_reallight), each within 1.0 stated sigma and warned ('cast shadow', 'unclear edge')",
+    reason="dev-spot-steel3-t20: the 3 mm steel plate's two lit sectors hold a streak at the paper's level; joined "
+    "by their step beyond the found face's hull (branch spot15; before: -6.4 %, centroid 3.64 mm, holes -2.86 and "
+    "-2.83 mm), the plate reads -7.3 %, centroid 1.26 mm, its 6.5 mm holes +0.04 and +0.02 mm, within 0.7 stated "
+    "sigma (bench_reallight): the cast-shadow cut paints part of its left sector and streak, and the 10 mm hole, open "
+    "to that sector, is not found",
 )
 def test_steel_plate_with_sectors_as_bright_as_the_paper():
     m, part, tp = _part("dev-spot-steel3-t20", "plate")
     assert _covered(part, tp)  # it is covered: what fails is the figure itself
     assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+    assert len(part.holes) == len(tp["holes"])
 
 
 def test_mixed_light_coloured_shadows_cut_from_black_parts():
@@ -1174,3 +1176,27 @@ def test_lens_window_steel_plate_and_bracket_within_3_percent():
         assert len(part.holes) == len(tp["holes"]), shape
     m = _without_thickness(_LENS_STEEL2)
     assert not any(w.startswith("shadow only:") for w in m.warnings)
+
+
+def test_steel_plate_under_the_spot_lit_sectors_with_a_streak_joined():
+    """dev-spot-steel3-t20 (branch spot15): a brushed-steel plate 3 mm thick under the spot mirrors the light in two
+    sectors through its 10 mm hole, each with a streak at the paper's own level along it. The threshold left both to
+    the paper, and their edge against the streak is the face's soft shading, so their step to the paper was read as
+    a fade (0.45-0.54 of it at the edge): the plate read -6.4 % with its centroid 3.6 mm off, and its two 6.5 mm holes
+    2.9 mm small (only the lit floor was taken as the hole). Their step read beyond the found face's hull (the part's
+    own edge, 0.82-1.35 of it), the sectors are joined with the streaks between them; the holes are then opened at
+    the top face. Truth: the render's outlines (area and centroid by shapely, holes by their equal-area circles)."""
+    m, part, tp = _part("dev-spot-steel3-t20", "plate")
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 1.5  # was 3.64 mm
+    assert _covered(part, tp)
+    for centre, diameter in tp["holes"]:
+        if diameter > 8.0:
+            continue  # the 10 mm hole: see the xfail below
+        hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
+        assert math.dist(hole.circle_centre_mm, centre) < 1.0
+        assert abs(hole.diameter_mm - diameter) < 0.2, hole.diameter_mm  # were 2.9 mm small
+    # the cam beside it: its bore is not traced out along its own lit sector (an 11.3 mm 'opening' on a soft ramp)
+    m, cam, tc = _part("dev-spot-steel3-t20", "cam")
+    ((centre, diameter),) = tc["holes"]
+    assert abs(cam.holes[0].diameter_mm - diameter) < 0.6
+    assert abs(cam.area_mm2 - tc["area"]) < 0.03 * tc["area"]

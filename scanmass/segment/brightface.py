@@ -25,6 +25,13 @@ is a soft ramp (the face's own shading: less than :data:`RIM_HELD_MAX` of the st
 two levels held up to the edge), and left a hole when the rim is sharp (a hole's edge is the
 part's edge, even where its floor is all in shade).
 
+A lit sector may hold a streak at the paper's own level (the mirrored lamp's line across a brushed
+face, dev-spot-steel3-t20's plate): against the streak its edge is the face's soft shading, and its
+step to the paper reads as a fade. Its step is then read again only where the paper lies beyond the
+found face's hull (:func:`_step_beyond_hull`: there only the part's own edge can be), a sector mostly
+beyond the hull is joined where it fades into the found face (:func:`_rim_towards_found`), and the
+streaks between sectors so joined are closed (:func:`_streaks_joined`).
+
 A face brighter than the paper (pale brass mirroring a softbox) is not found by this rule;
 it needs colour and stays a refusal or a warning.
 
@@ -69,6 +76,9 @@ MIN_AREA_PX = 40
 #: between dark ones lies within it but for the strip between a chord and the outline (a 70 degree
 #: sector of a disc: 83 % within); a shadow beside the part lies outside it.
 HULL_SHARE = 0.6
+#: Where a lost region's step to the paper is not sharp all round, it is read again on the paper
+#: more than this (px) beyond the found region's convex hull only (:func:`_step_beyond_hull`).
+HULL_STEP_PX = 0.5
 
 
 #: A region enclosed by the face (no paper beside it) is a lit sector of the face when its rim is
@@ -238,6 +248,69 @@ def _grown_near(
         yield (x0, y0, x1, y1), cv2.dilate(comp, kernel).astype(bool) & within[y0:y1, x0:x1]
 
 
+#: A lost region mostly outside the found face's hull is still a lit sector of it where less than
+#: this share of the step between the two is held up to the edge between them (:func:`_rim_towards_found`;
+#: dev-spot-steel3-t20's plate, its lit sector beside a cut shadow's paint: 0.45).
+SOFT_RIM_MAX = 0.6
+#: ... and at least this share of it lies within the hull: a lit sector is flanked by the face's dark
+#: parts (dev-spot-steel3-t20's plate: 0.28); a region almost all beyond the hull is a band along the
+#: outline (dev-soft-brass-t25's plate in soft light, 0.15: joined, it read +3.4 % without thickness).
+SOFT_RIM_HULL_SHARE = 0.2
+
+
+def _rim_towards_found(rel: np.ndarray, region: np.ndarray, found: np.ndarray) -> float | None:
+    """Share of the step between a region and the found face held up to the edge between them.
+
+    As :func:`_rim_held`, but the region's bands are read only along its stretch beside the found
+    face (the rest of its edge meets the paper). None when a band holds fewer than 10 px or the
+    region is not brighter than the face.
+    """
+    r8 = region.astype(np.uint8)
+    d_in = cv2.distanceTransform(r8, cv2.DIST_L2, 3)
+    d_out = cv2.distanceTransform(1 - r8, cv2.DIST_L2, 3)
+    to_found = cv2.distanceTransform(1 - found.astype(np.uint8), cv2.DIST_L2, 3)
+    bands = [
+        region & (d_in > 5.0) & (d_in <= 7.5) & (to_found <= 9.0),
+        region & (d_in > 1.5) & (d_in <= STEP_PX + 0.5) & (to_found <= STEP_PX + 0.5),
+        found & (d_out > 1.5) & (d_out <= STEP_PX + 0.5),
+        found & (d_out > 5.0) & (d_out <= 7.5),
+    ]
+    if min(np.count_nonzero(b) for b in bands) < 10:
+        return None
+    deep, edge, near, far = (float(np.median(rel[b])) for b in bands)
+    step = deep - far
+    if step <= 0:
+        return None
+    return max(edge - near, 0.0) / step
+
+
+def _step_beyond_hull(
+    rel: np.ndarray, out_px: np.ndarray, in_edge: np.ndarray, hull: np.ndarray, deep: float
+) -> float | None:
+    """The share of a lost region's step to the paper taken at its edge, read only where the paper
+    lies beyond the found region's convex hull (:data:`HULL_STEP_PX`).
+
+    ``rel``: the crop's levels as shares of the paper's; ``out_px`` and ``in_edge``: the bands
+    just outside and inside the region's edge; ``deep``: the region's level further in. A face's lit
+    sector may hold a streak at the paper's level (the mirrored lamp's line across a brushed face):
+    within the hull the region's edge against it is the face's soft shading, not an edge. Beyond
+    the hull lies only paper, so there the step is the part's own edge. None when either band holds
+    fewer than 10 px.
+    """
+    beyond = out_px & (cv2.distanceTransform((1 - hull).astype(np.uint8), cv2.DIST_L2, 3) > HULL_STEP_PX)
+    if np.count_nonzero(beyond) < 10:
+        return None
+    near = cv2.dilate(beyond.astype(np.uint8), np.ones((9, 9), np.uint8)).astype(bool)
+    edge = in_edge & near
+    if np.count_nonzero(edge) < 10:
+        return None
+    p_out = float(np.median(rel[beyond]))
+    step = p_out - deep
+    if step <= 0:
+        return None
+    return (p_out - float(np.median(rel[edge]))) / step
+
+
 def lost_face_regions(
     lin: np.ndarray,
     found: np.ndarray,
@@ -294,17 +367,27 @@ def lost_face_regions(
     hull = hull.astype(bool)
     found_area = float(np.count_nonzero(found))
     accepted = np.zeros_like(found, bool)
+    by_hull = np.zeros_like(found, bool)  # the regions joined by their step beyond the hull only
     notes: list[LostFace] = []
     for (bx0, by0, bx1, by1), region_box in _grown_near(labels, stats, touching, darker, 2 * int(CORE_PX) + 3):
         area = float(np.count_nonzero(region_box))
         if area < MIN_AREA_PX or area > MAX_SHARE * found_area:
             continue
+        relaxed = False  # joined by a rule for a lit sector with a streak (outside the hull, or its step beyond it)
         region = np.zeros_like(found, bool)
         region[by0:by1, bx0:bx1] = region_box
         if region[0].any() or region[-1].any() or region[:, 0].any() or region[:, -1].any():
             continue  # reaches past the part's surroundings: paper in shade, not a piece of its face
         if np.count_nonzero(region & hull) < HULL_SHARE * area:
-            continue  # a face's lit sector lies mostly within the hull of the face found around it
+            # a face's lit sector lies mostly within the hull of the face found around it, or it
+            # fades into the found face over a soft ramp (where the found face is concave: a cut
+            # shadow's paint took the wall beside it); a shadow beside the part meets it at its edge
+            if np.count_nonzero(region & hull) < SOFT_RIM_HULL_SHARE * area:
+                continue  # a band along the outline (a lit wall, a soft shadow's rim), not a sector between dark ones
+            soft = _rim_towards_found(lin / paper_map, region, found)
+            if soft is None or soft >= SOFT_RIM_MAX:
+                continue
+            relaxed = True
         whole = (region | found).astype(np.uint8)
         d_in = cv2.distanceTransform(whole, cv2.DIST_L2, 3)
         d_out = cv2.distanceTransform(1 - whole, cv2.DIST_L2, 3)
@@ -333,10 +416,40 @@ def lost_face_regions(
             continue
         taken = (p_out - l_edge) / step
         if taken < SHARP_SHARE:
-            continue
+            beyond = _step_beyond_hull(lin / paper_map, out_px, in_edge, hull, l_deep)
+            if beyond is None or beyond < SHARP_SHARE:
+                continue
+            taken = beyond
+            relaxed = True
+        if relaxed:
+            by_hull |= region
         accepted |= region
         notes.append(LostFace(0, area, taken, 1.0 - l_deep))
+    if by_hull.any():
+        streaked = _streaks_joined(by_hull, darker & hull & ~accepted, hull & ~found & ~others & inside)
+        if streaked.any():
+            accepted |= streaked
+            notes.append(LostFace(0, float(np.count_nonzero(streaked)), 0.0, 0.0))
     return accepted, notes
+
+
+#: A lit sector's streak at the paper's level (the mirrored lamp's line) is at most this wide (px):
+#: the darker parts of the sector on either side of it are joined across it.
+STREAK_PX = 11
+
+
+def _streaks_joined(joined: np.ndarray, darker: np.ndarray, allowed: np.ndarray) -> np.ndarray:
+    """The pixels a lit sector ``joined`` (by its step beyond the hull) adds across its streaks.
+
+    The darker pixels within the found region's hull (``darker``) and ``joined`` are closed by a
+    disc of :data:`STREAK_PX` px within ``allowed``; the components of the closing that touch
+    ``joined`` are returned, less ``joined`` itself.
+    """
+    disc = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (STREAK_PX, STREAK_PX))
+    closed = cv2.morphologyEx((joined | darker).astype(np.uint8), cv2.MORPH_CLOSE, disc).astype(bool) & allowed
+    count, labels = cv2.connectedComponents(closed.astype(np.uint8), connectivity=8)
+    keep = _labels_near(labels, count, joined)
+    return keep & ~joined
 
 
 def recover_lost_faces(
