@@ -775,3 +775,37 @@ def test_neutral_wall_foot_sampled_at_once_is_each_distance_sampled_alone(monkey
     monkeypatch.setattr(sidewall, "_neutral_foot", both)
     measure(REALLIGHT / "window-steel-t25.jpg", thickness_mm=2.5)
     assert sum(f is not None for f in feet) >= 5
+
+
+def _float32_near_bounds(rng: np.random.Generator, bounds: tuple[float, ...], shape: tuple[int, int]) -> np.ndarray:
+    """float32 values spread over [0, 20] with many at, just below and just above each bound (as float32)."""
+    values = rng.uniform(0.0, 20.0, shape).astype(np.float32)
+    flat = values.ravel()
+    for b in bounds:
+        at = np.float32(b)
+        for v in (at, np.nextafter(at, np.float32(0)), np.nextafter(at, np.float32(30)), np.float32(np.float64(b))):
+            flat[rng.integers(0, flat.size, flat.size // 20)] = v
+    return values
+
+
+def test_banded_thresholds_are_numpys_comparisons() -> None:
+    """closed_slots' row-block thresholds of a float32 distance map: the same masks as numpy's
+    comparisons of the whole map against the Python float bounds (the reference), at the bounds'
+    float32 neighbours too and with heights that are and are not a multiple of the block."""
+    from scanmass.segment.thin import _band, _two_sides
+
+    rng = np.random.default_rng(23)
+    for _ in range(60):
+        sigma = float(rng.uniform(0.4, 3.0))
+        away, tail = 2.0 * sigma + 1.0, 3.0 * max(sigma, 1.0) + 2.0
+        shape = (int(rng.integers(1, 700)), int(rng.integers(1, 40)))
+        d = _float32_near_bounds(rng, (away, away + 2.0, tail + 2, tail + 12), shape)
+        rows = int(rng.integers(1, 300))
+        # reference: the plain comparisons on the whole map
+        assert np.array_equal(_band(d, tail + 2, tail + 12, rows), (d >= tail + 2) & (d <= tail + 12))
+        assert np.array_equal(_band(d, away, None, rows), d >= away)
+        assert np.array_equal(_band(d, None, away + 2.0, rows), d <= away + 2.0)
+        sides = _two_sides(d, away, away + 2.0, rows)
+        assert np.array_equal((sides & 1).view(bool), d >= away)
+        assert np.array_equal((sides >> 1).view(bool), d <= away + 2.0)
+        assert sides.max(initial=0) <= 3

@@ -238,6 +238,44 @@ def chamfer_windows(mask: np.ndarray, reach: float) -> tuple[tuple[slice, slice]
     return out[0], out[1]
 
 
+def _band(values: np.ndarray, low: float | None, high: float | None, rows: int = 256) -> np.ndarray:
+    """``(values >= low) & (values <= high)`` (either bound left out when None), built a block of rows at a time.
+
+    The same comparisons, in the array's own dtype as numpy makes them against a Python
+    float (NEP 50: the bound is cast to float32 for a float32 array), without a second
+    full-size temporary for the two halves.
+    """
+    out = np.ones(values.shape, bool)
+    for r in range(0, values.shape[0], rows):
+        block, o = values[r : r + rows], out[r : r + rows]
+        if low is not None:
+            np.greater_equal(block, low, out=o)
+        if high is not None:
+            o &= block <= high
+    return out
+
+
+def _two_sides(values: np.ndarray, low: float, high: float, rows: int = 256) -> np.ndarray:
+    """``(values >= low)`` in bit 0 and ``(values <= high)`` in bit 1 of one uint8 plane, a block of rows at a time."""
+    out = np.empty(values.shape, np.uint8)
+    for r in range(0, values.shape[0], rows):
+        block, o = values[r : r + rows], out[r : r + rows]
+        np.greater_equal(block, low, out=o.view(bool))
+        o |= (block <= high).view(np.uint8) << 1
+    return out
+
+
+def _window_fit(
+    where: np.ndarray, window: tuple[slice, slice], codes: np.ndarray, table: np.ndarray
+) -> Callable[..., np.ndarray] | None:
+    """:func:`_robust_quadratic` of the linear-light values at a subsample of ``where`` (a mask over ``window`` of ``codes``)."""
+    count = int(np.count_nonzero(where))
+    step = max(1, count // CLOSED_FIT_SAMPLES)  # smooth surfaces: a subsample fits them
+    rr, cc = nonzero_every(where, step)  # every true pixel lies in the window: the crop's order
+    rr, cc = rr + window[0].start, cc + window[1].start
+    return _robust_quadratic(table[codes[rr, cc]].astype(float), rr.astype(float), cc.astype(float))
+
+
 def closed_slots(
     image: LoadedImage, rings: PartRings, reach_px: int = CLOSED_WALL_REACH_PX, open_holes: tuple[int, ...] = ()
 ) -> tuple[np.ndarray, list[str]]:
@@ -288,20 +326,20 @@ def closed_slots(
     del inside
     if np.count_nonzero(thick) < 60:
         return none, []
-    outside = cv2.distanceTransform(np.subtract(1, mask[outer]), cv2.DIST_L2, 5)
-    far_bg = (outside >= tail + 2) & (outside <= tail + 12)
-    out_region = outside >= away
-    attach_w = outside <= away + 2.0
+    # each surface is fitted as soon as its samples are known and they are dropped (the fit
+    # reads nothing else): at most one float32 distance map and the least of the full-window
+    # masks live together (the memory peak of a large part)
+    fg_fit = _window_fit(thick, inner, codes, table)
+    del thick
+    np.bitwise_xor(mask, 1, out=mask)  # the outside, in place of a copy (restored below)
+    outside = cv2.distanceTransform(mask[outer], cv2.DIST_L2, 5)
+    np.bitwise_xor(mask, 1, out=mask)
+    bg_fit = _window_fit(_band(outside, tail + 2, tail + 12), outer, codes, table)
+    sides = _two_sides(outside, away, away + 2.0)
     del outside
-    fits = []
-    for where, window in ((far_bg, outer), (thick, inner)):
-        count = int(np.count_nonzero(where))
-        step = max(1, count // CLOSED_FIT_SAMPLES)  # smooth surfaces: a subsample fits them
-        rr, cc = nonzero_every(where, step)  # every true pixel lies in the window: the crop's order
-        rr, cc = rr + window[0].start, cc + window[1].start
-        fits.append(_robust_quadratic(table[codes[rr, cc]].astype(float), rr.astype(float), cc.astype(float)))
-    del far_bg, thick
-    bg_fit, fg_fit = fits
+    out_region = (sides & 1).view(bool)  # outside >= away
+    attach_w = (sides >> 1).view(bool)  # outside <= away + 2
+    del sides
     if bg_fit is None or fg_fit is None:
         return none, []
     noise = float(rings.noise_rel) if math.isfinite(rings.noise_rel) else 0.0
