@@ -321,10 +321,14 @@ class ColourSweep:
     length_px: int
 
 
-def _colour_run(mask8: np.ndarray, direction: np.ndarray, like: np.ndarray, reach_px: float) -> tuple[int, float]:
-    """(layers, net votes) of the run of shadow-like layers from the outline along ``direction``, within the reach."""
+def _colour_run(outer8: np.ndarray, direction: np.ndarray, like: np.ndarray, reach_px: float) -> tuple[int, float]:
+    """(layers, net votes) of the run of shadow-like layers from the outer outline along ``direction``, within the reach.
+
+    ``outer8`` is the region with its holes filled: a sweep steps off the outer outline only (a step
+    into a hole is no step off the part).
+    """
     run, score = 0, 0.0
-    for k, new in _new_layers(mask8, direction, int(np.floor(reach_px)) + 1):
+    for k, new in _new_layers(outer8, direction, int(np.floor(reach_px)) + 1):
         n, hit = np.count_nonzero(new), np.count_nonzero(new & like)
         if hit < _LAYER_SHARE * n:
             break
@@ -335,32 +339,36 @@ def _colour_run(mask8: np.ndarray, direction: np.ndarray, like: np.ndarray, reac
 def colour_sweep(
     colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float
 ) -> ColourSweep | None:
-    """A metal region's shadow-like pixels by colour under two lights of different colours, and its best sweep.
+    """A matte region's shadow-like pixels by colour under two lights of different colours, and its best sweep.
 
-    :func:`coloured_shadow_cut` refuses a face whose levels spread as a metal's do (it mirrors the
-    lights and the room): the pixels it takes as shadow are then scattered over the face as well as
-    in the shadow. A cast shadow still lies along the light, on one side of the part: of the
-    :data:`SWEEP_DIRECTIONS` sweeps from the outline, the one whose layers hold the most
-    shadow-like pixels net (each layer at least half of them, within the reach) finds its side
-    and its depth; scattered face pixels hold up no such run.
+    :func:`coloured_shadow_cut` takes every shadow-like pixel reached from the paper; it serves the
+    parts the dark-face test (:func:`~scanmass.segment.castshadow.dark_tinted_face`) takes. A matte
+    face that test misses (its shadow's grain and level told no cut either) may still hold scattered
+    pixels of a shadow line's colour; a cast shadow lies along the light, on one side of the part: of
+    the :data:`SWEEP_DIRECTIONS` sweeps from the outer outline, the one whose layers hold the most
+    shadow-like pixels net (each layer at least half of them, within the reach) finds its side and
+    its depth, and scattered face pixels hold up no such run. A face whose levels spread as a
+    metal's do (over :data:`_FACE_LEVEL_SPREAD` times) mirrors the lights and the room: its own
+    pixels take the lines' colours in runs as well, and it is refused.
 
     Returns
     -------
     ColourSweep or None
-        None where the lights have one colour (lines less than :data:`LINES_MIN_SPREAD` apart), the
-        face lies near both shadow lines, or no sweep runs a layer.
+        None where the face's levels spread as a metal's, the lights have one colour (lines less
+        than :data:`LINES_MIN_SPREAD` apart), the face lies near both shadow lines, or no sweep
+        runs a layer.
 
     Examples
     --------
-    A grey metal face whose levels spread (0.05-0.4 of the paper), with the cool light's shadow
-    (lit by the warm lamp, so warm) 6 px deep inside its found region on the right and the warm
-    lamp's shadow (cool) beyond its left edge: the sweep runs to the right, 6 layers.
+    A dark matte face (0.06-0.10 of the paper), with the cool light's shadow (lit by the warm lamp,
+    so warm) 6 px deep inside its found region on the right and the warm lamp's shadow (cool)
+    beyond its left edge: the sweep runs to the right (+x), 6 layers.
 
     >>> rng = np.random.default_rng(1)
     >>> warm = np.array([0.6, 0.8, 1.0])  # blue, green, red: the image's channel order
     >>> f_w = 0.4 * warm / warm.mean(); f_c = 1 - f_w
     >>> img = np.ones((80, 80, 3), np.float32); mask = np.zeros((80, 80), bool); mask[20:60, 20:60] = True
-    >>> img[20:60, 20:54] = (0.05 + 0.35 * rng.random((40, 34, 1))) * np.array([1.05, 1.0, 0.95])
+    >>> img[20:60, 20:54] = (0.06 + 0.04 * rng.random((40, 34, 1))) * np.array([1.05, 1.0, 0.95])
     >>> t = np.linspace(0.05, 0.95, 12)[None, :, None]
     >>> img[20:60, 54:60] = f_w + 0.05 * f_c  # the cool light's umbra inside the region
     >>> img[20:60, 60:72] = 1 - (1 - t) * f_c  # its penumbra beyond the outline
@@ -368,6 +376,10 @@ def colour_sweep(
     >>> found = colour_sweep(img, mask, np.ones(3), 12.0)
     >>> [round(v, 2) for v in found.direction], found.length_px
     ([1.0, 0.0], 6)
+    >>> stripes = 0.04 + 0.36 * ((np.arange(34) // 4) % 2)[None, :, None]  # brushed metal's lit and dark sectors
+    >>> img[20:60, 20:54] = stripes * np.array([1.05, 1.0, 0.95])
+    >>> colour_sweep(img, mask, np.ones(3), 12.0) is None  # levels spread as a metal face's
+    True
     """
     mask8 = part_mask.astype(np.uint8)
     if mask8.sum() < 50:
@@ -380,13 +392,18 @@ def colour_sweep(
     interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
     if np.count_nonzero(interior) < 50:
         return None
-    like = _like_by_colour(q, q.mean(axis=2), part_mask, interior, inside, lines, reach_px)
+    level = q.mean(axis=2)
+    lo, hi = np.quantile(level[interior], [0.1, 0.9])
+    if hi > _FACE_LEVEL_SPREAD * max(float(lo), 1e-6):
+        return None  # a face that mirrors the lights (metal): its own pixels take the shadow lines' colours
+    like = _like_by_colour(q, level, part_mask, interior, inside, lines, reach_px)
     if like is None:
         return None
     best: tuple[float, int, np.ndarray] | None = None
+    outer8 = _filled(part_mask).astype(np.uint8)
     for a in np.arange(SWEEP_DIRECTIONS) * (2.0 * np.pi / SWEEP_DIRECTIONS):
         d = np.array([np.cos(a), np.sin(a)])
-        run, score = _colour_run(mask8, d, like, reach_px)
+        run, score = _colour_run(outer8, d, like, reach_px)
         if run > 0 and (best is None or score > best[0]):
             best = (score, run, d)
     if best is None:
@@ -417,7 +434,7 @@ def colour_sweep_cut(
     >>> rng = np.random.default_rng(1)
     >>> warm = np.array([0.6, 0.8, 1.0]); f_w = 0.4 * warm / warm.mean(); f_c = 1 - f_w
     >>> img = np.ones((80, 80, 3), np.float32); mask = np.zeros((80, 80), bool); mask[20:60, 20:60] = True
-    >>> img[20:60, 20:54] = (0.05 + 0.35 * rng.random((40, 34, 1))) * np.array([1.05, 1.0, 0.95])
+    >>> img[20:60, 20:54] = (0.06 + 0.04 * rng.random((40, 34, 1))) * np.array([1.05, 1.0, 0.95])
     >>> t = np.linspace(0.05, 0.95, 12)[None, :, None]
     >>> img[20:60, 54:60] = f_w + 0.05 * f_c
     >>> img[20:60, 60:72] = 1 - (1 - t) * f_c
@@ -427,12 +444,12 @@ def colour_sweep_cut(
     >>> bool(cut.cut[20:60, 54:60].all()), bool(cut.cut[20:60, 20:53].any()), cut.length_px
     (True, False, 6.0)
     """
-    mask8 = part_mask.astype(np.uint8)
+    outer8 = _filled(part_mask).astype(np.uint8)
     d = np.asarray(direction, float)
-    run, _ = _colour_run(mask8, d, sweep.like, reach_px)
+    run, _ = _colour_run(outer8, d, sweep.like, reach_px)
     if run == 0:
         return None
-    cut = _sweep_layer(mask8, run * d)
+    cut = _sweep_layer(outer8, run * d) & part_mask
     if np.count_nonzero(cut) < STRETCH_PX:
         return None
     settled = _settled_cut(cut, part_mask)  # pieces the cut parts from the face go with it
