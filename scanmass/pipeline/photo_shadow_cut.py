@@ -315,8 +315,8 @@ def _decide_cuts(
     paper_codes = np.zeros(grey.shape[:2], grey.dtype)  # the paper's level painted around each
     # a metal part whose own sweep was refused comes again after the others (phase 1), its sweep then
     # sought along the shadow direction their cuts found (one light casts every shadow of a photo one
-    # way); a metal part left uncut in a shadow's risk comes last (phase 2), cut by colour under two
-    # lights of different colours along the direction the sweeps of all such parts agree on
+    # way); a part not taken as dark and left uncut in a shadow's risk comes last (phase 2), cut by colour
+    # under two lights of different colours along the direction the sweeps of all such parts agree on
     todo: list[tuple[Part, int]] = [(part, 0) for part in result.parts]
     sweeps: dict[int, ColourSweep | None] = {}  # phase 2: each part's own sweep by colour
     photo_dir: np.ndarray | None = None  # phase 2: the direction the sweeps by colour agree on
@@ -367,7 +367,7 @@ def _decide_cuts(
         # face in a low light, dark beside its shadow (dev-window-steel5-t14's 5.5 mm steel plate)
         wide = alone and not dark and thickness_mm is not None and too_wide_for_shadow(mask, thickness_mm, mm_per_px)
         if wide and not later:
-            todo.append((part, True))  # cut along the photo's shadow direction, once the other parts show it
+            todo.append((part, 1))  # cut along the photo's shadow direction, once the other parts show it
             continue
         if phase < 2 and risk is not None and risk.fraction >= SHADOW_FRACTION and (not alone or wide):
             codes = colour[y0:y1, x0:x1].astype(np.intp)
@@ -395,7 +395,7 @@ def _decide_cuts(
                 swept.append((cut.cut_px, cut.direction, cut.length_px))
             if cut is None and not dark and thickness_mm is not None:
                 if not later and not swept:
-                    todo.append((part, True))  # again once the other parts' cuts are known
+                    todo.append((part, 1))  # again once the other parts' cuts are known
                     continue
                 if swept:
                     # along the photo's shadow direction (one light): an L bracket's own search ran
