@@ -330,8 +330,8 @@ def _decide_cuts(
             if any(ph < 2 for _, ph in todo[k_todo + 1 :]):
                 todo.append((part, 2))  # after every part of the earlier phases
                 continue
-            for other, _ in todo[k_todo:]:
-                sweeps[id(other)] = _own_colour_sweep(image, scale, other, band_px, lut, colour)
+            for waiting, _ in todo[k_todo:]:
+                sweeps[id(waiting)] = _own_colour_sweep(image, scale, waiting, band_px, lut, colour)
             photo_dir = _agreed_direction([sw for sw in sweeps.values() if sw is not None])
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
