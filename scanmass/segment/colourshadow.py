@@ -65,6 +65,7 @@ __all__ = [
     "colour_sweep",
     "colour_sweep_cut",
     "SWEEP_DIRECTIONS",
+    "SWEEP_MIN_SPREAD",
 ]
 
 #: Smallest difference of tint (blue minus red over the mean, of the light a shadow pixel
@@ -295,6 +296,11 @@ def coloured_shadow_cut(
 
 #: Directions (evenly spread over the full turn) a colour sweep (:func:`colour_sweep`) tries.
 SWEEP_DIRECTIONS = 48
+#: Smallest difference of tint between the shadow lines (as :data:`LINES_MIN_SPREAD`) for a sweep by colour
+#: (:func:`colour_sweep`): it cuts by colour alone, where the face's own test has let it pass, so the two lights
+#: must differ plainly. On the committed renders (tests/data/reallight) the penumbrae of soft-black-t15 (one
+#: softbox) spread 0.071-0.078, those of dev-mixed-black4-t25 (a warm lamp and a cool window) 0.16-0.34.
+SWEEP_MIN_SPREAD = 0.12
 #: Smallest share of a sweep's layer that must look like a shadow by colour for the run to go on.
 _LAYER_SHARE = 0.5
 
@@ -354,9 +360,9 @@ def colour_sweep(
     Returns
     -------
     ColourSweep or None
-        None where the face's levels spread as a metal's, the lights have one colour (lines less
-        than :data:`LINES_MIN_SPREAD` apart), the face lies near both shadow lines, or no sweep
-        runs a layer.
+        None where the face's levels spread as a metal's, the lights do not plainly differ in
+        colour (lines less than :data:`SWEEP_MIN_SPREAD` apart), the face lies near both shadow
+        lines, or no sweep runs a layer.
 
     Examples
     --------
@@ -386,7 +392,7 @@ def colour_sweep(
         return None
     q = cv2.GaussianBlur((colour_lin / np.asarray(paper_rgb, np.float32)).astype(np.float32), (0, 0), 1.0)
     lines = shadow_lines(q, part_mask, reach_px)
-    if lines is None or lines.spread < LINES_MIN_SPREAD:
+    if lines is None or lines.spread < SWEEP_MIN_SPREAD:
         return None
     inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
     interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
