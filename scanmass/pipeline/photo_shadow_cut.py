@@ -35,7 +35,7 @@ from scanmass.segment.castshadow import (
     shadow_cut,
     sweep_direction,
 )
-from scanmass.segment.colourshadow import coloured_shadow_cut
+from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
     looks_like_shadow_only,
@@ -229,6 +229,42 @@ def _within_box(part: Part, lo: np.ndarray, hi: np.ndarray) -> bool:
     return bool(np.all((pts >= lo) & (pts <= hi))) or bool(np.all((c >= lo) & (c <= hi)))
 
 
+#: Largest angle (degrees) between a part's own sweep by colour (:func:`~scanmass.segment.colourshadow.colour_sweep`)
+#: and the direction the photo's sweeps agree on for the part to be cut along it.
+SWEEP_AGREE_DEG = 30.0
+
+
+def _own_colour_sweep(
+    image: LoadedImage, scale: PhotoScale, part: Part, band_px: float, lut: np.ndarray, colour: np.ndarray
+) -> ColourSweep | None:
+    """A part's own sweep by colour (:func:`~scanmass.segment.colourshadow.colour_sweep`) in its crop, or None."""
+    crop = _part_crop(image, scale, part, int(band_px) + 16)
+    if crop is None:
+        return None
+    (x0, y0, x1, y1), mask, _ = crop
+    colour_lin = lut[colour[y0:y1, x0:x1]]
+    risk = shadow_risk(colour_lin, mask, band_px)
+    if risk is None:
+        return None
+    return colour_sweep(colour_lin, mask, risk.paper_rgb, band_px)
+
+
+def _agreed_direction(sweeps: list[ColourSweep]) -> np.ndarray | None:
+    """The direction the parts' sweeps by colour agree on: the strongest one's, averaged (by score) with those within :data:`SWEEP_AGREE_DEG`.
+
+    One light casts every shadow of a photo the same way: the sweep with the most net votes sets the
+    side, and the others that run within :data:`SWEEP_AGREE_DEG` of it refine it. None without a
+    sweep of positive score.
+    """
+    found = [(sw.score, np.asarray(sw.direction, float)) for sw in sweeps if sw.score > 0]
+    if not found:
+        return None
+    ref = max(found, key=lambda f: f[0])[1]
+    cos_agree = math.cos(math.radians(SWEEP_AGREE_DEG))
+    total = np.sum([w * d for w, d in found if float(d @ ref) >= cos_agree], axis=0)
+    return np.asarray(total / max(float(np.hypot(*total)), 1e-12))
+
+
 @dataclass
 class _Decision:
     """What :func:`_decide_cuts` decided for a photo's parts at one thickness, and the image painted by it."""
@@ -277,14 +313,26 @@ def _decide_cuts(
     firsts = np.zeros(grey.shape[:2], bool)  # within the first outer outlines of the cut parts
     cut_faces = np.zeros(grey.shape[:2], bool)  # the same, less the cuts
     paper_codes = np.zeros(grey.shape[:2], grey.dtype)  # the paper's level painted around each
-    # a metal part whose own sweep was refused comes again after the others, its sweep then sought
-    # along the shadow direction their cuts found (one light casts every shadow of a photo one way)
-    todo: list[tuple[Part, bool]] = [(part, False) for part in result.parts]
+    # a metal part whose own sweep was refused comes again after the others (phase 1), its sweep then
+    # sought along the shadow direction their cuts found (one light casts every shadow of a photo one
+    # way); a part not taken as dark and left uncut in a shadow's risk comes last (phase 2), cut by colour
+    # under two lights of different colours along the direction the sweeps of all such parts agree on
+    todo: list[tuple[Part, int]] = [(part, 0) for part in result.parts]
+    sweeps: dict[int, ColourSweep | None] = {}  # phase 2: each part's own sweep by colour
+    photo_dir: np.ndarray | None = None  # phase 2: the direction the sweeps by colour agree on
     # (cut px, direction, length px) of the cuts found by a sweep
     swept: list[tuple[int, tuple[float, float], float | None]] = []
     # the crops of the parts whose own sweep was refused (for :func:`sweep_direction`, read when needed)
     refused: list[tuple[np.ndarray, np.ndarray, np.ndarray, float, np.ndarray]] = []
-    for part, later in todo:
+    for k_todo, (part, phase) in enumerate(todo):
+        later = phase >= 1
+        if phase == 2 and not sweeps:
+            if any(ph < 2 for _, ph in todo[k_todo + 1 :]):
+                todo.append((part, 2))  # after every part of the earlier phases
+                continue
+            for waiting, _ in todo[k_todo:]:
+                sweeps[id(waiting)] = _own_colour_sweep(image, scale, waiting, band_px, lut, colour)
+            photo_dir = _agreed_direction([sw for sw in sweeps.values() if sw is not None])
         crop = _part_crop(image, scale, part, int(band_px) + 16)
         if crop is None:
             continue
@@ -319,9 +367,9 @@ def _decide_cuts(
         # face in a low light, dark beside its shadow (dev-window-steel5-t14's 5.5 mm steel plate)
         wide = alone and not dark and thickness_mm is not None and too_wide_for_shadow(mask, thickness_mm, mm_per_px)
         if wide and not later:
-            todo.append((part, True))  # cut along the photo's shadow direction, once the other parts show it
+            todo.append((part, 1))  # cut along the photo's shadow direction, once the other parts show it
             continue
-        if risk is not None and risk.fraction >= SHADOW_FRACTION and (not alone or wide):
+        if phase < 2 and risk is not None and risk.fraction >= SHADOW_FRACTION and (not alone or wide):
             codes = colour[y0:y1, x0:x1].astype(np.intp)
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
             # such a wide face's own search runs through its grain (its longest run): only along the light
@@ -347,7 +395,7 @@ def _decide_cuts(
                 swept.append((cut.cut_px, cut.direction, cut.length_px))
             if cut is None and not dark and thickness_mm is not None:
                 if not later and not swept:
-                    todo.append((part, True))  # again once the other parts' cuts are known
+                    todo.append((part, 1))  # again once the other parts' cuts are known
                     continue
                 if swept:
                     # along the photo's shadow direction (one light): an L bracket's own search ran
@@ -389,6 +437,25 @@ def _decide_cuts(
                 cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
             if cut is None:
                 cut = short
+        if phase == 2 and risk is not None:
+            own = sweeps.get(id(part))
+            if own is not None and photo_dir is not None and own.like.shape == mask.shape:
+                if float(np.asarray(own.direction) @ photo_dir) >= math.cos(math.radians(SWEEP_AGREE_DEG)):
+                    d = (float(photo_dir[0]), float(photo_dir[1]))
+                    cut = colour_sweep_cut(colour_lin, mask, risk.paper_rgb, band_px, own, d)
+                    coloured = cut is not None
+                    if coloured:
+                        by_colour.add(id(part))
+        elif (
+            cut is None
+            and wall is None
+            and not dark
+            and thickness_mm is not None
+            and risk is not None
+            and risk.fraction >= SHADOW_FRACTION
+        ):
+            todo.append((part, 2))  # by colour, once every part's sweep by colour is known
+            continue
         if cut is not None:
             outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
             paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]

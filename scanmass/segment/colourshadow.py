@@ -45,9 +45,29 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-from scanmass.segment.castshadow import ShadowCut, _filled, _settled_cut, _with_rim, roughness
+from scanmass.segment.castshadow import (
+    STRETCH_PX,
+    ShadowCut,
+    _filled,
+    _new_layers,
+    _settled_cut,
+    _sweep_layer,
+    _with_rim,
+    roughness,
+)
 
-__all__ = ["ShadowLines", "shadow_lines", "coloured_shadow_cut", "LINES_MIN_SPREAD"]
+__all__ = [
+    "ShadowLines",
+    "shadow_lines",
+    "coloured_shadow_cut",
+    "LINES_MIN_SPREAD",
+    "ColourSweep",
+    "colour_sweep",
+    "colour_sweep_cut",
+    "SWEEP_DIRECTIONS",
+    "SWEEP_MIN_SPREAD",
+    "SWEEP_MAX_FACE_TINT",
+]
 
 #: Smallest difference of tint (blue minus red over the mean, of the light a shadow pixel
 #: misses) between the warmest and the coolest fifth of the penumbra around a part for two
@@ -146,6 +166,39 @@ def _line_distance(q: np.ndarray, line: np.ndarray) -> np.ndarray:
     return np.linalg.norm(miss - miss.mean(axis=2, keepdims=True) * line, axis=2)
 
 
+def _like_by_colour(
+    q: np.ndarray,
+    level: np.ndarray,
+    part_mask: np.ndarray,
+    interior: np.ndarray,
+    inside: np.ndarray,
+    lines: ShadowLines,
+    reach_px: float,
+) -> np.ndarray | None:
+    """The region's pixels nearer a usable shadow line than the face's colours, darker than the paper, within the reach.
+
+    None where no line lies far enough from the face (colour cannot tell the face from the shadows).
+    """
+    face = np.median(q[interior], axis=0)
+    face_colour = face / max(float(face.mean()), 1e-6)
+    # the face's colours: the face in more or less light (its colour line through black), and
+    # its edge blurred with the paper (the segment from the face to the paper white)
+    along = np.linalg.norm(q - level[..., None] * face_colour, axis=2)
+    miss, face_miss = 1.0 - q, 1.0 - face
+    share = np.clip(miss @ face_miss / max(float(face_miss @ face_miss), 1e-9), 0.0, 1.0)
+    blurred = np.linalg.norm(miss - share[..., None] * face_miss, axis=2)
+    off_face = np.minimum(along, blurred)
+    # a light's line is used where the face lies far from it (both it and the face's edge line
+    # run through the paper white, so they then stay apart at every depth)
+    floor = max(_FACE_MIN_OFF, _FACE_APART * float(np.median(off_face[interior])))
+    off = [_line_distance(q, line) for line in lines.lines]
+    off = [d for d in off if float(np.median(d[interior])) >= floor]
+    if not off:
+        return None
+    off_line = np.minimum.reduce(off)
+    return part_mask & (off_line < off_face) & (level < _MAX_LEVEL) & (inside <= reach_px)
+
+
 def coloured_shadow_cut(
     colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float
 ) -> ShadowCut | None:
@@ -205,24 +258,9 @@ def coloured_shadow_cut(
     lo, hi = np.quantile(level[interior], [0.1, 0.9])
     if hi > _FACE_LEVEL_SPREAD * max(float(lo), 1e-6):
         return None  # a face that mirrors the lights (metal) has no one colour line
-    face = np.median(q[interior], axis=0)
-    face_colour = face / max(float(face.mean()), 1e-6)
-    # the face's colours: the face in more or less light (its colour line through black), and
-    # its edge blurred with the paper (the segment from the face to the paper white)
-    along = np.linalg.norm(q - level[..., None] * face_colour, axis=2)
-    miss, face_miss = 1.0 - q, 1.0 - face
-    share = np.clip(miss @ face_miss / max(float(face_miss @ face_miss), 1e-9), 0.0, 1.0)
-    blurred = np.linalg.norm(miss - share[..., None] * face_miss, axis=2)
-    off_face = np.minimum(along, blurred)
-    # a light's line is used where the face lies far from it (both it and the face's edge line
-    # run through the paper white, so they then stay apart at every depth)
-    floor = max(_FACE_MIN_OFF, _FACE_APART * float(np.median(off_face[interior])))
-    off = [_line_distance(q, line) for line in lines.lines]
-    off = [d for d in off if float(np.median(d[interior])) >= floor]
-    if not off:
+    like = _like_by_colour(q, level, part_mask, interior, inside, lines, reach_px)
+    if like is None:
         return None  # the face lies near the shadow lines: colour cannot tell them apart
-    off_line = np.minimum.reduce(off)
-    like = part_mask & (off_line < off_face) & (level < _MAX_LEVEL) & (inside <= reach_px)
     # reached from the paper: outside the region, or in a hole wider than a shadow's reach (a
     # narrower bore of a thick part shows its own lit wall and shaded bottom, not a cast shadow)
     paper = ~_filled(part_mask)
@@ -254,4 +292,201 @@ def coloured_shadow_cut(
         level_face=float(np.median(level[keep])),
         level_shadow=float(np.median(level[cut])),
         direction=None,
+    )
+
+
+#: Directions (evenly spread over the full turn) a colour sweep (:func:`colour_sweep`) tries.
+SWEEP_DIRECTIONS = 48
+#: Smallest difference of tint between the shadow lines (as :data:`LINES_MIN_SPREAD`) for a sweep by colour
+#: (:func:`colour_sweep`): it cuts by colour alone, where the face's own test has let it pass, so the two lights
+#: must differ plainly. On the committed renders (tests/data/reallight) the penumbrae of soft-black-t15 (one
+#: softbox) spread 0.071-0.078, those of dev-mixed-black4-t25 (a warm lamp and a cool window) 0.16-0.34.
+SWEEP_MIN_SPREAD = 0.12
+#: Largest tint of the face (red less blue over the mean, of its median colour over the paper white) for a sweep
+#: by colour: a coloured face (brass) casts its own colour on the paper around it, so the penumbrae lean apart
+#: by its reflection, not by a second light. On the committed renders (tests/data/reallight) the brass faces of
+#: spot-brass-t10, lens-spot-brass-t30 and dev-spot-brass3-t20 (one spot) read +1.04 to +1.08, the black
+#: faces of dev-mixed-black4-t25 (mixed light) -0.13 to -0.16.
+SWEEP_MAX_FACE_TINT = 0.5
+#: Smallest share of a sweep's layer that must look like a shadow by colour for the run to go on.
+_LAYER_SHARE = 0.5
+
+
+@dataclass(frozen=True)
+class ColourSweep:
+    """A region's shadow-like pixels by colour (mixed light) and its best sweep (:func:`colour_sweep`).
+
+    Attributes
+    ----------
+    like : (H, W) bool ndarray
+        The region's pixels nearer a shadow line of the lights than the face's colours.
+    direction : (float, float)
+        Unit vector (x, y px) of the sweep whose run of shadow-like layers holds the most net votes.
+    score : float
+        Those net votes (shadow-like pixels less the others in the run's layers).
+    length_px : int
+        The run's length (layers) along ``direction``.
+    """
+
+    like: np.ndarray
+    direction: tuple[float, float]
+    score: float
+    length_px: int
+
+
+def _colour_run(outer8: np.ndarray, direction: np.ndarray, like: np.ndarray, reach_px: float) -> tuple[int, float]:
+    """(layers, net votes) of the run of shadow-like layers from the outer outline along ``direction``, within the reach.
+
+    ``outer8`` is the region with its holes filled: a sweep steps off the outer outline only (a step
+    into a hole is no step off the part).
+    """
+    run, score = 0, 0.0
+    for k, new in _new_layers(outer8, direction, int(np.floor(reach_px)) + 1):
+        n, hit = np.count_nonzero(new), np.count_nonzero(new & like)
+        if hit < _LAYER_SHARE * n:
+            break
+        run, score = k, score + 2.0 * hit - n
+    return run, score
+
+
+def colour_sweep(
+    colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float
+) -> ColourSweep | None:
+    """A matte region's shadow-like pixels by colour under two lights of different colours, and its best sweep.
+
+    :func:`coloured_shadow_cut` takes every shadow-like pixel reached from the paper; it serves the
+    parts the dark-face test (:func:`~scanmass.segment.castshadow.dark_tinted_face`) takes. A matte
+    face that test misses (its shadow's grain and level told no cut either) may still hold scattered
+    pixels of a shadow line's colour; a cast shadow lies along the light, on one side of the part: of
+    the :data:`SWEEP_DIRECTIONS` sweeps from the outer outline, the one whose layers hold the most
+    shadow-like pixels net (each layer at least half of them, within the reach) finds its side and
+    its depth, and scattered face pixels hold up no such run. A face whose levels spread as a
+    metal's do (over :data:`_FACE_LEVEL_SPREAD` times) mirrors the lights and the room: its own
+    pixels take the lines' colours in runs as well, and it is refused.
+
+    Returns
+    -------
+    ColourSweep or None
+        None where the face's levels spread as a metal's, the face is coloured (tint over
+        :data:`SWEEP_MAX_FACE_TINT`), the lights do not plainly differ in colour (lines less than
+        :data:`SWEEP_MIN_SPREAD` apart), the face lies near both shadow lines, or no sweep runs a
+        layer.
+
+    Examples
+    --------
+    A dark matte face (0.06-0.10 of the paper), with the cool light's shadow (lit by the warm lamp,
+    so warm) 6 px deep inside its found region on the right and the warm lamp's shadow (cool)
+    beyond its left edge: the sweep runs to the right (+x), 6 layers.
+
+    >>> rng = np.random.default_rng(1)
+    >>> warm = np.array([0.6, 0.8, 1.0])  # blue, green, red: the image's channel order
+    >>> f_w = 0.4 * warm / warm.mean(); f_c = 1 - f_w
+    >>> img = np.ones((80, 80, 3), np.float32); mask = np.zeros((80, 80), bool); mask[20:60, 20:60] = True
+    >>> img[20:60, 20:54] = (0.06 + 0.04 * rng.random((40, 34, 1))) * np.array([1.05, 1.0, 0.95])
+    >>> t = np.linspace(0.05, 0.95, 12)[None, :, None]
+    >>> img[20:60, 54:60] = f_w + 0.05 * f_c  # the cool light's umbra inside the region
+    >>> img[20:60, 60:72] = 1 - (1 - t) * f_c  # its penumbra beyond the outline
+    >>> img[20:60, 8:20] = 1 - (1 - t[:, ::-1]) * f_w  # the warm lamp's, on the left
+    >>> found = colour_sweep(img, mask, np.ones(3), 12.0)
+    >>> [round(v, 2) for v in found.direction], found.length_px
+    ([1.0, 0.0], 6)
+    >>> stripes = 0.04 + 0.36 * ((np.arange(34) // 4) % 2)[None, :, None]  # brushed metal's lit and dark sectors
+    >>> img[20:60, 20:54] = stripes * np.array([1.05, 1.0, 0.95])
+    >>> colour_sweep(img, mask, np.ones(3), 12.0) is None  # levels spread as a metal face's
+    True
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return None
+    q = cv2.GaussianBlur((colour_lin / np.asarray(paper_rgb, np.float32)).astype(np.float32), (0, 0), 1.0)
+    lines = shadow_lines(q, part_mask, reach_px)
+    if lines is None or lines.spread < SWEEP_MIN_SPREAD:
+        return None
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return None
+    level = q.mean(axis=2)
+    lo, hi = np.quantile(level[interior], [0.1, 0.9])
+    if hi > _FACE_LEVEL_SPREAD * max(float(lo), 1e-6):
+        return None  # a face that mirrors the lights (metal): its own pixels take the shadow lines' colours
+    face = np.median(q[interior], axis=0)
+    if abs(float(face[2] - face[0])) > SWEEP_MAX_FACE_TINT * max(float(face.mean()), 1e-6):
+        return None  # a coloured face: its own reflection tints the paper around it
+    like = _like_by_colour(q, level, part_mask, interior, inside, lines, reach_px)
+    if like is None:
+        return None
+    best: tuple[float, int, np.ndarray] | None = None
+    outer8 = _filled(part_mask).astype(np.uint8)
+    for a in np.arange(SWEEP_DIRECTIONS) * (2.0 * np.pi / SWEEP_DIRECTIONS):
+        d = np.array([np.cos(a), np.sin(a)])
+        run, score = _colour_run(outer8, d, like, reach_px)
+        if run > 0 and (best is None or score > best[0]):
+            best = (score, run, d)
+    if best is None:
+        return None
+    return ColourSweep(like, (float(best[2][0]), float(best[2][1])), best[0], best[1])
+
+
+def colour_sweep_cut(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    sweep: ColourSweep,
+    direction: tuple[float, float],
+) -> ShadowCut | None:
+    """The cut of a :func:`colour_sweep` along ``direction`` (the photo's, :func:`colour_sweep`'s own or agreeing with it).
+
+    The run of shadow-like layers along ``direction`` (each at least half shadow-like by colour,
+    within the reach) is cut, with the pieces it parts from the face and the rim of blurred paper
+    beside it (as :func:`coloured_shadow_cut` cuts). None where no layer runs, fewer than
+    :data:`~scanmass.segment.castshadow.STRETCH_PX` pixels are cut, or the cut would take more than
+    :data:`~scanmass.segment.castshadow.CUT_MAX_SHARE` of the region.
+
+    Examples
+    --------
+    The face of :func:`colour_sweep`'s example, cut along its sweep: the shadow's 6 columns go, the face stays.
+
+    >>> rng = np.random.default_rng(1)
+    >>> warm = np.array([0.6, 0.8, 1.0]); f_w = 0.4 * warm / warm.mean(); f_c = 1 - f_w
+    >>> img = np.ones((80, 80, 3), np.float32); mask = np.zeros((80, 80), bool); mask[20:60, 20:60] = True
+    >>> img[20:60, 20:54] = (0.06 + 0.04 * rng.random((40, 34, 1))) * np.array([1.05, 1.0, 0.95])
+    >>> t = np.linspace(0.05, 0.95, 12)[None, :, None]
+    >>> img[20:60, 54:60] = f_w + 0.05 * f_c
+    >>> img[20:60, 60:72] = 1 - (1 - t) * f_c
+    >>> img[20:60, 8:20] = 1 - (1 - t[:, ::-1]) * f_w
+    >>> found = colour_sweep(img, mask, np.ones(3), 12.0)
+    >>> cut = colour_sweep_cut(img, mask, np.ones(3), 12.0, found, found.direction)
+    >>> bool(cut.cut[20:60, 54:60].all()), bool(cut.cut[20:60, 20:53].any()), cut.length_px
+    (True, False, 6.0)
+    """
+    outer8 = _filled(part_mask).astype(np.uint8)
+    d = np.asarray(direction, float)
+    run, _ = _colour_run(outer8, d, sweep.like, reach_px)
+    if run == 0:
+        return None
+    cut = _sweep_layer(outer8, run * d) & part_mask
+    if np.count_nonzero(cut) < STRETCH_PX:
+        return None
+    settled = _settled_cut(cut, part_mask)  # pieces the cut parts from the face go with it
+    if settled is None:
+        return None
+    cut, keep = settled
+    cut = _with_rim(cut, part_mask)
+    keep = part_mask & ~cut
+    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
+    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
+    level = (colour_lin / np.asarray(paper_rgb)).mean(axis=2)
+    rough = roughness(level)
+    return ShadowCut(
+        cut=cut,
+        cut_px=int(np.count_nonzero(cut)),
+        edge_px=float(np.count_nonzero(border)),
+        texture_face=float(np.median(rough[keep])),
+        texture_shadow=float(np.median(rough[cut])),
+        level_face=float(np.median(level[keep])),
+        level_shadow=float(np.median(level[cut])),
+        direction=(float(d[0]), float(d[1])),
+        length_px=float(run),
     )
