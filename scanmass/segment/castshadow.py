@@ -331,6 +331,16 @@ def _shadow_cut(
     # the shadow's grain, past the blurred rim where the sweep's run began beyond it
     graded = cut & ~rim if rim is not None and np.count_nonzero(cut & ~rim) >= 50 else cut
     tex_shadow = float(np.median(rough[graded]))
+    if past_fade and direction is not None and tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
+        # past the fade along the light: a core far darker than the face is told from it by its level
+        core = graded & (level < float(np.median(level[interior])))
+        if (
+            np.count_nonzero(core) >= 50
+            and float(np.median(level[core])) <= _DARK_CORE_SHARE * float(np.median(level[interior]))
+            and float(np.median(rough[core])) >= _DARK_CORE_TEXTURE_RATIO * max(tex_face, 1e-4)
+        ):
+            tex_shadow = float(np.median(rough[core]))
+            min_texture_ratio = _DARK_CORE_TEXTURE_RATIO
     if tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
         return None, dark
     # a strip of the outline's rim left between the cut and the paper (the shadow's far edge,
@@ -358,6 +368,11 @@ def _shadow_cut(
     return found, dark
 
 
+#: Largest median level of a cut's core (its pixels darker than the face), as a share of the face's, for a
+#: sweep along the light past the fade (:func:`shadow_cut`'s ``past_fade``) to be told from the face by its level.
+_DARK_CORE_SHARE = 0.25
+#: Smallest ratio of such a core's roughness to the face's for that cut (against :data:`CUT_MIN_TEXTURE_RATIO`).
+_DARK_CORE_TEXTURE_RATIO = 2.0
 #: Largest level (share of the paper white) of a face taken as dark (:func:`_dark_face_alike`).
 DARK_FACE_LEVEL = 0.1
 
