@@ -371,6 +371,10 @@ def _decide_cuts(
                         code_step=step,
                         witness_px=witness[2],
                     )
+                    if cut is None and wide:
+                        # a face that fades as a shadow alone does: along the same light past its fade, without
+                        # the other part's length (another part's thickness, where each part's own is given)
+                        cut = core_cut(colour_lin, mask, risk.paper_rgb, band_px, along, code_step=step, past_fade=True)
                 elif wide:
                     # no cut to show the light: the direction of another part's sweep refused on its
                     # texture alone (its face almost as grainy as its shadow), without its length; where

@@ -341,6 +341,16 @@ def _shadow_cut(
         ):
             tex_shadow = float(np.median(rough[core]))
             min_texture_ratio = _DARK_CORE_TEXTURE_RATIO
+    if direction is None and tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
+        # a face of a colour of its own (brass) beside a cut of the paper's: told apart by the colour
+        tint = _tint(smooth, sm)
+        face_tint = float(np.median(tint[interior]))
+        if (
+            abs(face_tint) >= _COLOUR_FACE_TINT
+            and abs(float(np.median(tint[graded]))) <= _COLOUR_CUT_SHARE * abs(face_tint)
+            and tex_shadow >= _COLOUR_TEXTURE_RATIO * max(tex_face, 1e-4)
+        ):
+            min_texture_ratio = _COLOUR_TEXTURE_RATIO
     if tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
         return None, dark
     # a strip of the outline's rim left between the cut and the paper (the shadow's far edge,
@@ -368,6 +378,13 @@ def _shadow_cut(
     return found, dark
 
 
+#: Smallest tint (:func:`_tint`, median over the face) of a face of a colour of its own, for its cut to be told
+#: from it by colour as well as grain.
+_COLOUR_FACE_TINT = 0.3
+#: Largest tint of such a cut (median), as a share of the face's: the paper's colour (0), not the face's.
+_COLOUR_CUT_SHARE = 0.25
+#: Smallest ratio of the cut's roughness to the face's for such a cut (against :data:`CUT_MIN_TEXTURE_RATIO`).
+_COLOUR_TEXTURE_RATIO = 3.0
 #: Largest median level of a cut's core (its pixels darker than the face), as a share of the face's, for a
 #: sweep along the light past the fade (:func:`shadow_cut`'s ``past_fade``) to be told from the face by its level.
 _DARK_CORE_SHARE = 0.25
