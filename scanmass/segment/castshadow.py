@@ -23,7 +23,9 @@ the layers beyond the level step that are as grainy as the shadow at the face's 
 shadow's core, lit by the room alone (:func:`_grainy_core`). Along a given direction, the soft shadow's
 fade next to the outline (brighter than the face) is passed over: the step to the face lies past the core.
 Where a photo shows no cut to give that direction, a sweep refused on its texture alone (the face almost as
-grainy as its shadow) still shows it (:func:`sweep_direction`).
+grainy as its shadow) still shows it (:func:`sweep_direction`). Along the light past the fade, a core far darker than
+the face (a quarter of its level or less) is told from it by its level, where it is twice as rough; a face of a
+colour of its own (brass) beside a cut of the paper's colour, by that colour, where the cut is three times as rough.
 
 The roughness is the smoothed absolute deviation from a 3x3 median, taken relative to the local
 level: a median filter keeps a step edge, so the step between the face and the shadow adds
