@@ -38,6 +38,7 @@ from scanmass.segment.castshadow import (
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
+    ShadowRisk,
     looks_like_shadow_only,
     shadow_band_px,
     shadow_risk,
@@ -324,6 +325,10 @@ def _decide_cuts(
     swept: list[tuple[int, tuple[float, float], float | None]] = []
     # the crops of the parts whose own sweep was refused (for :func:`sweep_direction`, read when needed)
     refused: list[tuple[np.ndarray, np.ndarray, np.ndarray, float, np.ndarray]] = []
+    # the same of the parts too wide for their shadow (their own search is left out; their own sweep's
+    # direction is the light's evidence where no other part shows it)
+    wides: list[tuple[np.ndarray, np.ndarray, np.ndarray, float, np.ndarray]] = []
+    lights: list[tuple[float, float] | None] = []  # the light's direction those show, once read
     for k_todo, (part, phase) in enumerate(todo):
         later = phase >= 1
         if phase == 2 and not sweeps:
@@ -368,10 +373,11 @@ def _decide_cuts(
         wide = alone and not dark and thickness_mm is not None and too_wide_for_shadow(mask, thickness_mm, mm_per_px)
         if wide and not later:
             todo.append((part, 1))  # cut along the photo's shadow direction, once the other parts show it
+            if risk is not None:
+                wides.append((colour_lin, mask, risk.paper_rgb, band_px, _code_step(lut, colour[y0:y1, x0:x1], risk)))
             continue
         if phase < 2 and risk is not None and risk.fraction >= SHADOW_FRACTION and (not alone or wide):
-            codes = colour[y0:y1, x0:x1].astype(np.intp)
-            step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / float(np.mean(risk.paper_rgb))
+            step = _code_step(lut, colour[y0:y1, x0:x1], risk)
             # such a wide face's own search runs through its grain (its longest run): only along the light
             cut = None if wide else shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
             if cut is None and not dark and not later:
@@ -413,22 +419,26 @@ def _decide_cuts(
                         code_step=step,
                         witness_px=witness[2],
                     )
+                    if cut is None and wide:
+                        # a face that fades as a shadow alone does: along the same light past its fade, without
+                        # the other part's length (another part's thickness, where each part's own is given)
+                        cut = core_cut(colour_lin, mask, risk.paper_rgb, band_px, along, code_step=step, past_fade=True)
                 elif wide:
                     # no cut to show the light: the direction of another part's sweep refused on its
-                    # texture alone (its face almost as grainy as its shadow), without its length
-                    for other in refused:
-                        hint = sweep_direction(*other[:4], code_step=other[4])
-                        if hint is not None:
-                            cut = core_cut(
-                                colour_lin,
-                                mask,
-                                risk.paper_rgb,
-                                band_px,
-                                np.asarray(hint),
-                                code_step=step,
-                                past_fade=True,
-                            )
-                            break
+                    # texture alone (its face almost as grainy as its shadow), without its length; where
+                    # none shows it, a wide part's own sweep (the largest first), read once for the photo
+                    if not lights:
+                        lights.append(_light_hint(refused, wides))
+                    if lights[0] is not None:
+                        cut = core_cut(
+                            colour_lin,
+                            mask,
+                            risk.paper_rgb,
+                            band_px,
+                            np.asarray(lights[0]),
+                            code_step=step,
+                            past_fade=True,
+                        )
             if wide and cut is not None and lit_beyond(colour_lin, mask, risk.paper_rgb, cut):
                 cut = None  # a hard light's: the paper beyond is lit, so the dark layer is the face's own sector
             if cut is None and not dark and thickness_mm is not None and not wide:
@@ -496,6 +506,31 @@ def _decide_cuts(
             cut_mm2 = cut.cut_px * mm_per_px**2 if cut is not None else 0.0
             cuts.append((part, edge_mm, cut_mm2, wall_mm2))
     return _Decision(grey, top_seen, cuts, opened, by_colour, painted, firsts, cut_faces, paper_codes, band_px, reached)
+
+
+def _light_hint(
+    refused: list[tuple[np.ndarray, np.ndarray, np.ndarray, float, np.ndarray]],
+    wides: list[tuple[np.ndarray, np.ndarray, np.ndarray, float, np.ndarray]],
+) -> tuple[float, float] | None:
+    """The photo's light direction for a part too wide for its shadow, from the parts whose own cut was refused.
+
+    The first found of :func:`~scanmass.segment.castshadow.sweep_direction` over the parts whose own sweep
+    was refused on its texture, then over the parts too wide for their shadow, the largest first; None
+    where none gives one. On the committed render tests/data/reallight/dev-lens-window-steel2-t16 both
+    steel parts are too wide for their shadow and no other part shows the light: the plate's own sweep
+    runs along the shadow (about 20 degrees off the light's direction, which the sweep's refinement mends).
+    """
+    for crop in refused + sorted(wides, key=lambda w: -int(np.count_nonzero(w[1]))):
+        hint = sweep_direction(*crop[:4], code_step=crop[4])
+        if hint is not None:
+            return hint
+    return None
+
+
+def _code_step(lut: np.ndarray, codes: np.ndarray, risk: ShadowRisk) -> np.ndarray:
+    """Per pixel, the step of linear light between its code and the next, as a share of the paper white."""
+    c = codes.astype(np.intp)
+    return np.asarray((lut[np.minimum(c + 1, len(lut) - 1)] - lut[c]).mean(axis=2) / float(np.mean(risk.paper_rgb)))
 
 
 def _swing_term(part: Part, probes: list[Measurement], floor_mm2: float) -> dict[str, float] | None:
