@@ -29,7 +29,7 @@ A lit sector may hold a streak at the paper's own level (the mirrored lamp's lin
 face, dev-spot-steel3-t20's plate): against the streak its edge is the face's soft shading, and its
 step to the paper reads as a fade. Its step is then read again only where the paper lies beyond the
 found face's hull (:func:`_step_beyond_hull`: there only the part's own edge can be), a sector mostly
-beyond the hull is joined where it fades into the found face (:func:`_rim_towards_found`), and the
+beyond the hull is joined where it fades into the found face (:func:`_rim_held` beside the found face), and the
 streaks between sectors so joined are closed (:func:`_streaks_joined`).
 
 A face brighter than the paper (pale brass mirroring a softbox) is not found by this rule;
@@ -90,11 +90,15 @@ HULL_STEP_PX = 0.5
 RIM_HELD_MAX = 0.8
 
 
-def _rim_held(rel: np.ndarray, region: np.ndarray, found: np.ndarray) -> tuple[float, float] | None:
+def _rim_held(
+    rel: np.ndarray, region: np.ndarray, found: np.ndarray, beside_found: bool = False
+) -> tuple[float, float] | None:
     """Share of the step across an enclosed region's rim held up to its edge (:data:`RIM_HELD_MAX`), and its level.
 
     ``rel``: the crop's levels as shares of the paper's. The level is the region's 5-7.5 px inside
-    its edge. None when a band is too small to read or the region is not brighter than the face.
+    its edge. With ``beside_found``, the region's bands are read only along its stretch beside the
+    found face (where the rest of its edge meets the paper). None when a band holds fewer than
+    10 px or the region is not brighter than the face.
 
     Examples
     --------
@@ -113,9 +117,15 @@ def _rim_held(rel: np.ndarray, region: np.ndarray, found: np.ndarray) -> tuple[f
     r8 = region.astype(np.uint8)
     d_in = cv2.distanceTransform(r8, cv2.DIST_L2, 3)
     d_out = cv2.distanceTransform(1 - r8, cv2.DIST_L2, 3)
+    deep_band = region & (d_in > 5.0) & (d_in <= 7.5)
+    edge_band = region & (d_in > 1.5) & (d_in <= STEP_PX + 0.5)
+    if beside_found:
+        to_found = cv2.distanceTransform(1 - found.astype(np.uint8), cv2.DIST_L2, 3)
+        deep_band &= to_found <= 9.0
+        edge_band &= to_found <= STEP_PX + 0.5
     bands = [
-        region & (d_in > 5.0) & (d_in <= 7.5),
-        region & (d_in > 1.5) & (d_in <= STEP_PX + 0.5),
+        deep_band,
+        edge_band,
         found & (d_out > 1.5) & (d_out <= STEP_PX + 0.5),
         found & (d_out > 5.0) & (d_out <= 7.5),
     ]
@@ -249,39 +259,13 @@ def _grown_near(
 
 
 #: A lost region mostly outside the found face's hull is still a lit sector of it where less than
-#: this share of the step between the two is held up to the edge between them (:func:`_rim_towards_found`;
+#: this share of the step between the two is held up to the edge between them (:func:`_rim_held` beside the found face;
 #: dev-spot-steel3-t20's plate, its lit sector beside a cut shadow's paint: 0.45).
 SOFT_RIM_MAX = 0.6
 #: ... and at least this share of it lies within the hull: a lit sector is flanked by the face's dark
 #: parts (dev-spot-steel3-t20's plate: 0.28); a region almost all beyond the hull is a band along the
 #: outline (dev-soft-brass-t25's plate in soft light, 0.15: joined, it read +3.4 % without thickness).
 SOFT_RIM_HULL_SHARE = 0.2
-
-
-def _rim_towards_found(rel: np.ndarray, region: np.ndarray, found: np.ndarray) -> float | None:
-    """Share of the step between a region and the found face held up to the edge between them.
-
-    As :func:`_rim_held`, but the region's bands are read only along its stretch beside the found
-    face (the rest of its edge meets the paper). None when a band holds fewer than 10 px or the
-    region is not brighter than the face.
-    """
-    r8 = region.astype(np.uint8)
-    d_in = cv2.distanceTransform(r8, cv2.DIST_L2, 3)
-    d_out = cv2.distanceTransform(1 - r8, cv2.DIST_L2, 3)
-    to_found = cv2.distanceTransform(1 - found.astype(np.uint8), cv2.DIST_L2, 3)
-    bands = [
-        region & (d_in > 5.0) & (d_in <= 7.5) & (to_found <= 9.0),
-        region & (d_in > 1.5) & (d_in <= STEP_PX + 0.5) & (to_found <= STEP_PX + 0.5),
-        found & (d_out > 1.5) & (d_out <= STEP_PX + 0.5),
-        found & (d_out > 5.0) & (d_out <= 7.5),
-    ]
-    if min(np.count_nonzero(b) for b in bands) < 10:
-        return None
-    deep, edge, near, far = (float(np.median(rel[b])) for b in bands)
-    step = deep - far
-    if step <= 0:
-        return None
-    return max(edge - near, 0.0) / step
 
 
 def _step_beyond_hull(
@@ -384,8 +368,8 @@ def lost_face_regions(
             # shadow's paint took the wall beside it); a shadow beside the part meets it at its edge
             if np.count_nonzero(region & hull) < SOFT_RIM_HULL_SHARE * area:
                 continue  # a band along the outline (a lit wall, a soft shadow's rim), not a sector between dark ones
-            soft = _rim_towards_found(lin / paper_map, region, found)
-            if soft is None or soft >= SOFT_RIM_MAX:
+            soft = _rim_held(lin / paper_map, region, found, beside_found=True)
+            if soft is None or soft[0] >= SOFT_RIM_MAX:
                 continue
             relaxed = True
         whole = (region | found).astype(np.uint8)

@@ -199,6 +199,35 @@ def _like_by_colour(
     return part_mask & (off_line < off_face) & (level < _MAX_LEVEL) & (inside <= reach_px)
 
 
+def _matte_face(
+    colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float, min_spread: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, ShadowLines] | None:
+    """A matte face and the shadow lines around it, read for a cut by colour.
+
+    Returns the crop's colour as shares of the paper's (blurred by 1 px), its level, the distance
+    inside the region, the region's interior beyond a shadow's reach, and the penumbrae's shadow
+    lines; None where the region is too small, the lines lean apart by less than ``min_spread``,
+    or the face's levels spread as a face that mirrors the lights (metal) does: its own pixels then
+    take the shadow lines' colours.
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return None
+    q = cv2.GaussianBlur((colour_lin / np.asarray(paper_rgb, np.float32)).astype(np.float32), (0, 0), 1.0)
+    lines = shadow_lines(q, part_mask, reach_px)
+    if lines is None or lines.spread < min_spread:
+        return None
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 50:
+        return None
+    level = q.mean(axis=2)
+    lo, hi = np.quantile(level[interior], [0.1, 0.9])
+    if hi > _FACE_LEVEL_SPREAD * max(float(lo), 1e-6):
+        return None
+    return q, level, inside, interior, lines
+
+
 def coloured_shadow_cut(
     colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float
 ) -> ShadowCut | None:
@@ -243,21 +272,10 @@ def coloured_shadow_cut(
     >>> bool(found.cut[20:60, 53:60].all()), bool(found.cut[20:60, 20:51].any()), found.edge_px
     (True, False, 40.0)
     """
-    mask8 = part_mask.astype(np.uint8)
-    if mask8.sum() < 50:
+    read = _matte_face(colour_lin, part_mask, paper_rgb, reach_px, LINES_MIN_SPREAD)
+    if read is None:
         return None
-    q = cv2.GaussianBlur((colour_lin / np.asarray(paper_rgb, np.float32)).astype(np.float32), (0, 0), 1.0)
-    lines = shadow_lines(q, part_mask, reach_px)
-    if lines is None or lines.spread < LINES_MIN_SPREAD:
-        return None
-    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
-    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
-    if np.count_nonzero(interior) < 50:
-        return None
-    level = q.mean(axis=2)
-    lo, hi = np.quantile(level[interior], [0.1, 0.9])
-    if hi > _FACE_LEVEL_SPREAD * max(float(lo), 1e-6):
-        return None  # a face that mirrors the lights (metal) has no one colour line
+    q, level, inside, interior, lines = read
     like = _like_by_colour(q, level, part_mask, interior, inside, lines, reach_px)
     if like is None:
         return None  # the face lies near the shadow lines: colour cannot tell them apart
@@ -395,21 +413,10 @@ def colour_sweep(
     >>> colour_sweep(img, mask, np.ones(3), 12.0) is None  # levels spread as a metal face's
     True
     """
-    mask8 = part_mask.astype(np.uint8)
-    if mask8.sum() < 50:
+    read = _matte_face(colour_lin, part_mask, paper_rgb, reach_px, SWEEP_MIN_SPREAD)
+    if read is None:
         return None
-    q = cv2.GaussianBlur((colour_lin / np.asarray(paper_rgb, np.float32)).astype(np.float32), (0, 0), 1.0)
-    lines = shadow_lines(q, part_mask, reach_px)
-    if lines is None or lines.spread < SWEEP_MIN_SPREAD:
-        return None
-    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
-    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
-    if np.count_nonzero(interior) < 50:
-        return None
-    level = q.mean(axis=2)
-    lo, hi = np.quantile(level[interior], [0.1, 0.9])
-    if hi > _FACE_LEVEL_SPREAD * max(float(lo), 1e-6):
-        return None  # a face that mirrors the lights (metal): its own pixels take the shadow lines' colours
+    q, level, inside, interior, lines = read
     face = np.median(q[interior], axis=0)
     if abs(float(face[2] - face[0])) > SWEEP_MAX_FACE_TINT * max(float(face.mean()), 1e-6):
         return None  # a coloured face: its own reflection tints the paper around it
