@@ -202,7 +202,7 @@ def calibrate_lens(
     layout = load_layout(mat) if mat is not None else None
 
     # the detector's markers of each photo, searched and their sides sampled once (the line fits run per correction)
-    found = [
+    sampled = [
         marker_sides(im, found_markers(im, expected=lambda ids, quads: expected_quads(layout, ids, quads)))
         for im in images
     ]
@@ -211,8 +211,8 @@ def calibrate_lens(
         undistort: PixelCorrection | None = None, distort: PixelCorrection | None = None
     ) -> tuple[list[np.ndarray], list[np.ndarray]]:
         objs, imgs = [], []
-        for im, raw in zip(images, found):
-            det = detect_markers(im, undistort=undistort, sides=raw)
+        for im, sides in zip(images, sampled):
+            det = detect_markers(im, undistort=undistort, sides=sides)
             lay = layout or (layout_for_ids(det.ids, path=im.path) if len(det.ids) else None)
             keep = np.isin(det.ids, lay.ids) if lay is not None else np.zeros(0, bool)
             if lay is None or keep.sum() < MIN_MARKERS:
