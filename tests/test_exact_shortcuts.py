@@ -809,3 +809,109 @@ def test_banded_thresholds_are_numpys_comparisons() -> None:
         assert np.array_equal((sides & 1).view(bool), d >= away)
         assert np.array_equal((sides >> 1).view(bool), d <= away + 2.0)
         assert sides.max(initial=0) <= 3
+
+
+def _bowed_mat_photo():
+    """A photo of the A4 mat through a lens with barrel distortion (k1 -0.05), part on it."""
+    from scanmass.load.decode import load_image
+    from scanmass.scale.mat import make_mat
+    from scanmass.testing.photos import PhotoParts, make_camera
+    from scanmass.testing.photos import render_photo as render
+    from scanmass.testing.scans import circle, rectangle
+
+    part = PhotoParts(rectangle(70.0, 90.0, 80.0, 50.0, angle_deg=17.0), [circle(100.0, 115.0, 8.0, 256)])
+    cam = make_camera(tilt_deg=22.0, tilt_dir_deg=30.0, roll_deg=80.0, distance_mm=360.0, f_px=1500.0, k1=-0.05)
+    return load_image(render(make_mat("a4-portrait"), [part], cam, seed=5))
+
+
+def _same_detection(a, b) -> None:
+    for name in ("ids", "corners_px", "corners_coarse_px", "edge_blur_px", "side_normals"):
+        np.testing.assert_array_equal(getattr(a, name), getattr(b, name), err_msg=name)
+    assert a.edge_noise_px == b.edge_noise_px or (np.isnan(a.edge_noise_px) and np.isnan(b.edge_noise_px))
+
+
+def test_marker_sides_sampled_once_refine_as_sampling_again_under_each_correction() -> None:
+    """The plain computation samples the photo's marker sides at every refinement; sampled once
+    and refined through one correction after another, every detection is the same to the bit."""
+    import pytest
+
+    from scanmass.scale.lens import LensProfile
+    from scanmass.scale.markers import detect_markers, found_markers, marker_sides
+
+    image = _bowed_mat_photo()
+    found = found_markers(image)
+    # a duplicated id is dropped by both paths
+    found = (np.concatenate([found[0], found[0][:1] + 40.0]), np.concatenate([found[1], found[1][:1]]))
+    sides = marker_sides(image, found)
+    k = np.array([[1500.0, 0.0, image.width_px / 2], [0.0, 1500.0, image.height_px / 2], [0.0, 0.0, 1.0]])
+    corrections = [None]
+    for k1 in (-0.05, -0.03, 0.02):
+        lens = LensProfile(k, np.array([k1, 0.0, 0.0, 0.0, 0.0]), (image.width_px, image.height_px), 0.0)
+        corrections.append(lens.undistort_points)
+    for undistort in corrections + corrections[::-1]:
+        _same_detection(
+            detect_markers(image, undistort=undistort, sides=sides),
+            detect_markers(image, undistort=undistort, found=found),
+        )
+    # the shared points cannot be changed by a correction that writes into its input
+    edge_pts = next(s for marker in sides.sides for _, s in marker if s is not None)[0]
+    with pytest.raises(ValueError):
+        edge_pts += 1.0
+
+
+def test_mat_scale_with_a_lens_from_the_mat_samples_the_markers_once(monkeypatch) -> None:
+    """The scale of a bowed photo (a lens estimated from the mat's corners, the markers refined
+    again through it) is the scale whose every refinement samples the photo again."""
+    from scanmass.scale import mat_scale
+    from scanmass.scale.markers import detect_markers, marker_sides
+
+    image = _bowed_mat_photo()
+    sampled: list[int] = []
+
+    def counted(img, found):
+        sampled.append(len(found[1]))
+        return marker_sides(img, found)
+
+    monkeypatch.setattr(mat_scale, "marker_sides", counted)
+    fast = mat_scale.mat_scale_basis(image, printed_x_mm=100.0, printed_y_mm=100.0)
+    assert fast.lens.estimated and len(sampled) == 1  # refined twice, sampled once
+
+    def plain(img, *, sides=None, **kwargs):  # the sides sampled again at every refinement
+        return detect_markers(img, sides=marker_sides(img, (sides.coarse_px, sides.ids)), **kwargs)
+
+    monkeypatch.setattr(mat_scale, "detect_markers", plain)
+    slow = mat_scale.mat_scale_basis(image, printed_x_mm=100.0, printed_y_mm=100.0)
+    _same_detection(fast.detection, slow.detection)
+    np.testing.assert_array_equal(fast.lens.profile.dist_coeffs, slow.lens.profile.dist_coeffs)
+    a, b = fast.with_thickness(None), slow.with_thickness(None)
+    np.testing.assert_array_equal(a.plane_map.matrix, b.plane_map.matrix)
+    assert a.plane_map.rel_u == b.plane_map.rel_u and a.plane_map.terms == b.plane_map.terms
+    assert a.warnings == b.warnings
+
+
+def test_window_centroid_in_buffers_is_the_plain_windowed_centroid() -> None:
+    """The edge refinement's windowed centroid (computed in reused buffers) against the plain
+    formula written out here: the same floats, for sharp, blurred, flat and negative rows."""
+    from scanmass.scale.edges import window_centroid
+
+    def plain(g, mid, pos, var):
+        half = np.maximum(1.5, 3.0 * np.sqrt(np.maximum(var, 0.0)) + 1.0)[:, None]
+        gp = np.clip(g, 0.0, None)
+        for _ in range(2):
+            w = gp * (np.abs(mid[None, :] - pos[:, None]) <= half)
+            sw = w.sum(axis=1)
+            pos = np.where(sw > 0, (w * mid).sum(axis=1) / np.where(sw > 0, sw, 1), pos)
+        return pos
+
+    rng = np.random.default_rng(31)
+    for _ in range(40):
+        rows, cols = int(rng.integers(1, 300)), int(rng.integers(2, 130))
+        mid = (np.arange(cols) - cols / 2 + 0.5) * 0.25
+        g = rng.normal(0.0, 0.01, (rows, cols))
+        at = rng.integers(0, cols, rows)
+        g[np.arange(rows), at] += rng.random(rows)  # a step's peak somewhere in each row
+        g[rng.random(rows) < 0.1] = 0.0  # flat rows: no weight, the first estimate kept
+        g[rng.random(rows) < 0.1] *= -1.0  # falling steps: clipped away
+        pos = mid[at] + rng.normal(0.0, 1.0, rows)
+        var = rng.random(rows) * 4.0 - 0.5
+        assert np.array_equal(window_centroid(g, mid, pos, var), plain(g, mid, pos, var))

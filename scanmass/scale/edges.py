@@ -37,10 +37,16 @@ def window_centroid(g: np.ndarray, mid: np.ndarray, pos: np.ndarray, var: np.nda
     """
     half = np.maximum(1.5, 3.0 * np.sqrt(np.maximum(var, 0.0)) + 1.0)[:, None]
     gp = np.clip(g, 0.0, None)
+    # the same ufuncs on the same dtypes as gp * (|mid - pos| <= half), into buffers made once
+    dist, inside, w = np.empty(gp.shape), np.empty(gp.shape, bool), np.empty(gp.shape)
     for _ in range(2):
-        w = gp * (np.abs(mid[None, :] - pos[:, None]) <= half)
+        np.subtract(mid[None, :], pos[:, None], out=dist)
+        np.abs(dist, out=dist)
+        np.less_equal(dist, half, out=inside)
+        np.multiply(gp, inside, out=w)
         sw = w.sum(axis=1)
-        pos = np.where(sw > 0, (w * mid).sum(axis=1) / np.where(sw > 0, sw, 1), pos)
+        moment = np.multiply(w, mid, out=dist).sum(axis=1)
+        pos = np.where(sw > 0, moment / np.where(sw > 0, sw, 1), pos)
     return pos
 
 

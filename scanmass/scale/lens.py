@@ -22,7 +22,7 @@ import numpy as np
 from scanmass.errors import OptionError, ScaleError
 from scanmass.load.decode import DEFAULT_MAX_PIXELS, load_image
 from scanmass.readfile import MAX_JSON_BYTES, read_regular_text
-from scanmass.scale.markers import MIN_MARKERS, detect_markers, expected_quads, found_markers
+from scanmass.scale.markers import MIN_MARKERS, detect_markers, expected_quads, found_markers, marker_sides
 from scanmass.scale.mat import calibration_dir, layout_for_ids, load_layout
 from scanmass.scale.planemap import PixelCorrection
 
@@ -201,15 +201,18 @@ def calibrate_lens(
     size = sizes.pop()
     layout = load_layout(mat) if mat is not None else None
 
-    # the detector's markers of each photo, searched once (the corner refinement runs per correction)
-    found = [found_markers(im, expected=lambda ids, quads: expected_quads(layout, ids, quads)) for im in images]
+    # the detector's markers of each photo, searched and their sides sampled once (the line fits run per correction)
+    sampled = [
+        marker_sides(im, found_markers(im, expected=lambda ids, quads: expected_quads(layout, ids, quads)))
+        for im in images
+    ]
 
     def correspondences(
         undistort: PixelCorrection | None = None, distort: PixelCorrection | None = None
     ) -> tuple[list[np.ndarray], list[np.ndarray]]:
         objs, imgs = [], []
-        for im, raw in zip(images, found):
-            det = detect_markers(im, undistort=undistort, found=raw)
+        for im, sides in zip(images, sampled):
+            det = detect_markers(im, undistort=undistort, sides=sides)
             lay = layout or (layout_for_ids(det.ids, path=im.path) if len(det.ids) else None)
             keep = np.isin(det.ids, lay.ids) if lay is not None else np.zeros(0, bool)
             if lay is None or keep.sum() < MIN_MARKERS:

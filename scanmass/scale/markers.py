@@ -26,7 +26,15 @@ from scanmass.scale.markerfind import ExpectedQuads, find_markers
 from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids
 from scanmass.scale.planemap import PixelCorrection
 
-__all__ = ["MarkerDetection", "detect_markers", "found_markers", "expected_quads", "MIN_MARKERS"]
+__all__ = [
+    "MarkerDetection",
+    "MarkerSides",
+    "detect_markers",
+    "found_markers",
+    "marker_sides",
+    "expected_quads",
+    "MIN_MARKERS",
+]
 
 #: Fewest markers a photo must show.
 MIN_MARKERS = 4
@@ -58,6 +66,41 @@ class MarkerDetection:
     edge_noise_px: float
     edge_blur_px: np.ndarray
     side_normals: np.ndarray
+
+
+#: One side of a marker as sampled: its unit outward normal, and its edge points (K, 2) px
+#: (distorted pixels) with the clipped derivative's variance at each (K,), or None when
+#: fewer than 5 profiles across the side show an edge.
+SideSample = tuple[np.ndarray, tuple[np.ndarray, np.ndarray] | None]
+
+
+@dataclass
+class MarkerSides:
+    """What the corner refinement reads from a photo's pixels, before any lens correction.
+
+    The edge points depend on the photo and the detector's corners only; a lens
+    correction is applied to them afterwards. A photo refined under several corrections
+    (a lens estimated from the mat, a lens calibration's rounds) samples its sides once
+    (:func:`marker_sides`) and passes them to :func:`detect_markers` each time: the same
+    points as sampling again.
+
+    Attributes
+    ----------
+    ids : (M,) int ndarray
+        The detector's markers, an id seen twice dropped.
+    coarse_px : (M, 4, 2) float ndarray
+        Their corners as the detector gives them (distorted pixels).
+    inside : (M,) bool ndarray
+        Whether the marker is far enough from the photo's edge to be sampled.
+    sides : list
+        Per marker, its four :data:`SideSample` (empty for a marker not inside); arrays
+        read-only.
+    """
+
+    ids: np.ndarray
+    coarse_px: np.ndarray
+    inside: np.ndarray
+    sides: list[list[SideSample]]
 
 
 def _grey8(image: LoadedImage) -> np.ndarray:
@@ -125,6 +168,7 @@ def detect_markers(
     dictionary: str = "DICT_5X5_250",
     undistort: PixelCorrection | None = None,
     found: tuple[np.ndarray, np.ndarray] | None = None,
+    sides: MarkerSides | None = None,
 ) -> MarkerDetection:
     """Find ArUco markers and refine their outer corners from fitted side lines.
 
@@ -134,7 +178,8 @@ def detect_markers(
     box-filtered step and unbiased under any symmetric blur. A straight line is
     fitted to each side (outliers dropped) and adjacent lines are intersected. With
     ``undistort`` the edge points are corrected for the lens before the line fits.
-    ``found``: the detector's markers when already known (:func:`found_markers`).
+    ``found``: the detector's markers when already known (:func:`found_markers`);
+    ``sides``: their sides when already sampled (:func:`marker_sides`; ``found`` is then not read).
 
     References
     ----------
@@ -144,8 +189,9 @@ def detect_markers(
     .. [2] OpenCV ``cv::aruco::ArucoDetector`` documentation, "Detection of ArUco
        Markers" tutorial (corner refinement parameters).
     """
-    coarse, ids = found_markers(image, dictionary) if found is None else found
-    if len(ids) == 0:
+    if sides is None:
+        sides = marker_sides(image, found_markers(image, dictionary) if found is None else found)
+    if len(sides.ids) == 0:
         return MarkerDetection(
             np.zeros(0, int),
             np.zeros((0, 4, 2)),
@@ -154,29 +200,38 @@ def detect_markers(
             np.zeros((0, 4)),
             np.zeros((0, 4, 2)),
         )
-    # a marker id seen twice is ambiguous: drop both
+    refined, noise, blur, normals, ok = _refine_corners(sides, undistort)
+    return MarkerDetection(sides.ids[ok], refined[ok], sides.coarse_px[ok], noise, blur[ok], normals[ok])
+
+
+def marker_sides(image: LoadedImage, found: tuple[np.ndarray, np.ndarray]) -> MarkerSides:
+    """The edge points along every side of the detector's markers ``found`` (corners, ids).
+
+    Each side of a marker's black border is located at several points along it: the
+    profile of linear light across the side is differentiated and the centroid of the
+    (clipped) derivative taken as the edge position. A marker id seen twice is ambiguous:
+    both are dropped.
+    """
+    coarse, ids = found
+    if len(ids) == 0:
+        return MarkerSides(np.zeros(0, int), np.zeros((0, 4, 2)), np.zeros(0, bool), [])
     uniq, counts = np.unique(ids, return_counts=True)
     keep = np.isin(ids, uniq[counts == 1])
     ids, coarse = ids[keep], coarse[keep]
-    refined, noise, blur, normals, ok = _refine_corners(image, coarse, undistort)
-    return MarkerDetection(ids[ok], refined[ok], coarse[ok], noise, blur[ok], normals[ok])
+    inside, sides = _sample_sides(image, coarse)
+    return MarkerSides(ids, coarse, inside, sides)
 
 
-def _refine_corners(
-    image: LoadedImage, coarse: np.ndarray, undistort: PixelCorrection | None
-) -> tuple[np.ndarray, float, np.ndarray, np.ndarray, np.ndarray]:
-    """Corners from straight lines fitted to sub-pixel edge points of each marker side.
+def _sample_sides(image: LoadedImage, coarse: np.ndarray) -> tuple[np.ndarray, list[list[SideSample]]]:
+    """The :data:`SideSample` of each marker's four sides, and whether it could be sampled.
 
     A marker's four sides share one reach across the edge, so their profiles are sampled
     and reduced as the rows of one array (every step works row by row: the same floats
     as side by side).
     """
     m = len(coarse)
-    refined = coarse.copy()
-    blur = np.full((m, 4), np.nan)
-    normals = np.zeros((m, 4, 2))
-    ok = np.ones(m, dtype=bool)
-    residuals: list[np.ndarray] = []
+    inside = np.ones(m, dtype=bool)
+    out: list[list[SideSample]] = []
     height, width = image.grey.shape
     # float32 of each table entry: the same values as looking up in float64 and converting
     table = np.asarray(image.to_linear).astype(np.float32)
@@ -190,11 +245,12 @@ def _refine_corners(
         x0, y0 = np.floor(quad.min(axis=0) - reach - 3).astype(int)
         x1, y1 = np.ceil(quad.max(axis=0) + reach + 3).astype(int)
         if x0 < 0 or y0 < 0 or x1 >= width or y1 >= height:
-            ok[i] = False  # too close to the photo's edge to see both sides of every edge
+            inside[i] = False  # too close to the photo's edge to see both sides of every edge
+            out.append([])
             continue
         crop = lookup(table, image.grey[y0 : y1 + 1, x0 : x1 + 1])
         offs = np.arange(-reach, reach + step / 2, step)
-        sides, bases, maps_x, maps_y = [], [], [], []
+        normals, bases, maps_x, maps_y = [], [], [], []
         for k in range(4):
             a, b = quad[k], quad[(k + 1) % 4]
             d, length, n = side_frame(a, b, centre)
@@ -202,7 +258,7 @@ def _refine_corners(
             count = int(np.clip(length / 2.5, 8, 60))
             t = np.linspace(margin, 1.0 - margin, count)
             base = a[None, :] + t[:, None] * d[None, :]
-            sides.append(n)
+            normals.append(n)
             bases.append(base)
             maps_x.append(base[:, 0, None] + offs[None, :] * n[0] - x0)
             maps_y.append(base[:, 1, None] + offs[None, :] * n[1] - y0)
@@ -222,18 +278,51 @@ def _refine_corners(
         pos_all = (w * mid).sum(axis=1) / np.where(sw > 0, sw, 1)
         var_all = (w * (mid - pos_all[:, None]) ** 2).sum(axis=1) / np.where(sw > 0, sw, 1)
         pos_all = window_centroid(g, mid, pos_all, var_all)
-        lines: list[Line] = []
+        marker: list[SideSample] = []
         row = 0
         for k in range(4):
-            n, base = sides[k], bases[k]
+            n, base = normals[k], bases[k]
             rows = slice(row, row + len(base))
             row += len(base)
-            normals[i, k] = n
             good, pos, var = good_all[rows], pos_all[rows], var_all[rows]
+            n.flags.writeable = False
             if good.sum() < 5:
+                marker.append((n, None))
+                continue
+            edge_pts = (base + pos[:, None] * n)[good]
+            var_good = var[good]
+            edge_pts.flags.writeable = False
+            var_good.flags.writeable = False
+            marker.append((n, (edge_pts, var_good)))
+        out.append(marker)
+    return inside, out
+
+
+def _refine_corners(
+    sides: MarkerSides, undistort: PixelCorrection | None
+) -> tuple[np.ndarray, float, np.ndarray, np.ndarray, np.ndarray]:
+    """Corners from straight lines fitted to the sampled edge points of each marker side.
+
+    With ``undistort`` the edge points are corrected for the lens before the line fits.
+    Returns refined corners (M, 4, 2), the edge noise, blur (M, 4), normals (M, 4, 2) and
+    whether each marker's four lines met (M,).
+    """
+    m = len(sides.ids)
+    refined = sides.coarse_px.copy()
+    blur = np.full((m, 4), np.nan)
+    normals = np.zeros((m, 4, 2))
+    ok = sides.inside.copy()
+    residuals: list[np.ndarray] = []
+    step = 0.25  # the profiles' sample step (px), as sampled
+    for i in range(m):
+        if not ok[i]:
+            continue
+        lines: list[Line] = []
+        for k, (n, sample) in enumerate(sides.sides[i]):
+            normals[i, k] = n
+            if sample is None:
                 break
-            edge_pts = base + pos[:, None] * n
-            edge_pts = edge_pts[good]
+            edge_pts, var = sample
             if undistort is not None:
                 edge_pts = undistort(edge_pts)
             line = fit_line(edge_pts)
@@ -242,7 +331,7 @@ def _refine_corners(
             p0, direction, res = line
             residuals.append(res)
             # sigma of the blur from the clipped derivative's spread (rough; for checks only)
-            blur[i, k] = float(np.sqrt(max(median_1d(var[good]) - step**2 / 12, 0.0)) * 1.25)
+            blur[i, k] = float(np.sqrt(max(median_1d(var) - step**2 / 12, 0.0)) * 1.25)
             lines.append((p0, direction))
         if len(lines) < 4:
             ok[i] = False

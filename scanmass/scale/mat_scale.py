@@ -32,7 +32,15 @@ from scanmass.scale.camera import (
 )
 from scanmass.scale.homography import HomographyFit, apply_h, fit_homography, focal_from_homography
 from scanmass.scale.lens import LensProfile
-from scanmass.scale.markers import MIN_MARKERS, MarkerDetection, detect_markers, expected_quads, found_markers
+from scanmass.scale.markers import (
+    MIN_MARKERS,
+    MarkerDetection,
+    MarkerSides,
+    detect_markers,
+    expected_quads,
+    found_markers,
+    marker_sides,
+)
 from scanmass.scale.mat import MARKER_CELLS, MatLayout, layout_for_ids, load_layout
 from scanmass.scale.planemap import MarkerUse, MatDetails, PrinterCheck
 from scanmass.scale.selfcal import estimate_radial_distortion
@@ -131,7 +139,8 @@ def mat_scale_basis(
     layout = load_layout(mat) if isinstance(mat, (str, os.PathLike)) else mat
     dictionary = layout.dictionary if layout else "DICT_5X5_250"
     found = found_markers(image, dictionary, expected=lambda ids, quads: expected_quads(layout, ids, quads))
-    det = detect_markers(image, dictionary=dictionary, undistort=tools.undistort, found=found)
+    sides = marker_sides(image, found)  # sampled once: a lens estimated below refines the same points
+    det = detect_markers(image, dictionary=dictionary, undistort=tools.undistort, sides=sides)
     if len(det.ids) == 0:
         raise ScaleError(
             "no scale: no marker mat found in the photo (and no usable DPI); photograph the part on a mat "
@@ -170,7 +179,7 @@ def mat_scale_basis(
         raise ScaleError("the markers found do not fit a flat mat; lay the mat flat and photograph it again", path=path)
     warnings: list[str] = []
     if tools.profile is None:
-        estimated = _self_calibrate(image, det, known, layout, fit, pts_px, pts_mm, cell_px, found)
+        estimated = _self_calibrate(image, det, known, layout, fit, pts_px, pts_mm, cell_px, sides)
         if estimated is not None:
             tools, det, fit, note_lens = estimated  # det: the known markers only, seen through the lens
             known = np.ones(len(det.ids), bool)
@@ -242,14 +251,14 @@ def _self_calibrate(
     pts_px: np.ndarray,
     pts_mm: np.ndarray,
     cell_px: float,
-    found: tuple[np.ndarray, np.ndarray] | None = None,
+    sides: MarkerSides | None = None,
 ) -> tuple[LensTools, MarkerDetection, HomographyFit, str] | None:
     """Without a lens profile: radial distortion from the mat's own corners, when the corners bow.
 
     Returns the lens tools, the markers detected again through the estimated correction,
     the refitted homography and a warning; None when the pinhole fit is good enough or the
-    estimate does not explain the misfit. ``found``: the detector's markers of the first
-    detection (:func:`~scanmass.scale.markers.found_markers`), refined again here.
+    estimate does not explain the misfit. ``sides``: the first detection's sampled marker sides
+    (:func:`~scanmass.scale.markers.marker_sides`), refined again here through the lens.
     """
     noise = det.edge_noise_px if math.isfinite(det.edge_noise_px) else 0.1
     if fit.rms_px < max(3.0 * noise, 0.15):
@@ -272,7 +281,7 @@ def _self_calibrate(
         if again is not None and again.rms_after_px <= est.rms_after_px * 1.05:
             est = again
     tools = LensTools(est.profile, estimated=True)
-    det2 = detect_markers(image, dictionary=layout.dictionary, undistort=tools.undistort, found=found)
+    det2 = detect_markers(image, dictionary=layout.dictionary, undistort=tools.undistort, sides=sides)
     keep = np.isin(det2.ids, det.ids[known])
     if keep.sum() < MIN_MARKERS:
         return None
