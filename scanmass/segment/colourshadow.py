@@ -560,7 +560,11 @@ def tint_cut(
     if face_yellow < TINT_CUT_FACE:
         return None
     tint = yellow / face_yellow
-    depth = cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3)
+    # depth from the outer outline only: the holes' rims keep the cut's decision (their own shadows are left in)
+    count, comp = cv2.connectedComponents((~part_mask).astype(np.uint8), connectivity=4)
+    rim = np.unique(np.concatenate([comp[0], comp[-1], comp[:, 0], comp[:, -1]]))
+    filled = ~np.isin(comp, rim[rim > 0]) if count > 1 else np.ones_like(part_mask)
+    depth = cv2.distanceTransform(filled.astype(np.uint8), cv2.DIST_L2, 3)
     # the face's blurred rim against the lit paper is no shadow: only dark pixels (or those cut already)
     new = part_mask & (tint < 0.5) & (depth <= reach_px + 2.0) & ((level < TINT_CUT_DARK) | cut.cut)
     shadow = new & (level < TINT_CUT_DARK)
@@ -570,6 +574,7 @@ def tint_cut(
     shadow_level = float(np.median(level[shadow]))
     if face_level > TINT_CUT_LEVEL_RATIO * shadow_level or float(np.median(tint[shadow])) > TINT_CUT_MAX_SHADOW:
         return None
+    new |= cut.cut & part_mask & (depth > reach_px + 2.0)
     keep = part_mask & ~new
     k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
     border = keep & cv2.dilate(new.astype(np.uint8), k4).astype(bool)
