@@ -860,13 +860,14 @@ def test_thin_brass_bracket_sweep_away_from_the_spot_refused():
 
 @pytest.mark.xfail(
     strict=True,
-    reason="dev-spot-brass5-t24, dev-spot-brass4-t17 (branch thickmetal13): thin brass L brackets under the spot "
-    "whose face is as dark as their shadow (0.016-0.02 of the paper): +7.1 % (centroid 1.31 mm: the bracket's sweep "
-    "refused, its shadow beyond the face's rim left in) and -12.7 % (the sweep along the right direction, 8.6 px "
-    "long against a shadow of about 6 px, takes a strip of face), each within 1.3 stated sigma and warned",
+    reason="dev-spot-brass5-t24 (branch thickmetal13): a thin brass L bracket under the spot whose face is as dark "
+    "as its shadow (0.016 of the paper): +7.1 % (centroid 1.31 mm: the bracket's sweep refused, its shadow beyond the "
+    "face's rim left in), within 1.3 stated sigma and warned; the cut placed by the tint (branch brass15) leaves its "
+    "figure unchanged (cause not found). dev-spot-brass4-t17 (was -12.7 %) is now within 3 % "
+    "(test_thin_brass_face_against_its_shadow_placed_by_its_tint)",
 )
 def test_thin_brass_brackets_under_the_spot_within_3_percent():
-    for name, shape in (("dev-spot-brass5-t24", "l-bracket"), ("dev-spot-brass4-t17", "l-bracket")):
+    for name, shape in (("dev-spot-brass5-t24", "l-bracket"),):
         m, part, tp = _part(name, shape)
         assert _covered(part, tp), name  # covered: what fails is the figure itself
         assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], name
@@ -1252,5 +1253,25 @@ def test_brass_collar_in_window_light_cut_by_its_shadows_colour():
     m, part, tp = _part("dev-window-steel5-t14", "collar")
     assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]  # was +18.2 %
     assert math.dist(part.centroid_mm, tp["centroid"]) < 0.6  # was 2.9 mm
+    assert "shadow_cut" in part.uncertainty_terms
+    assert _covered(part, tp)
+
+
+@pytest.mark.parametrize(
+    ("name", "shape", "was"),
+    [
+        ("dev-spot-brass4-t17", "l-bracket", -12.66),  # 1.8 mm: the sweep took a strip of face
+        ("dev-spot-brass3-t20", "plate", -5.26),  # 2.5 mm: cut 2-6 px into the face
+    ],
+)
+def test_thin_brass_face_against_its_shadow_placed_by_its_tint(name, shape, was):
+    """Thin brass parts under the hard spot (branch brass15), the face as dark as its cast shadow (0.016-0.02 of the
+    paper white, within 15 % of the shadow's level), so the grain and level rules cut into the face: was ``was`` %
+    in area (bench_reallight). The shadow is the paper in less light and keeps the paper's colour (common
+    practice), the brass face is yellow (blue over green 0.4 of the paper's): the cut is placed where the
+    yellowness falls to half of the face's (segment.colourshadow.tint_cut). Now within 3 %, covered by the stated
+    uncertainty. Truth: the render's outlines (area and centroid by shapely)."""
+    m, part, tp = _part(name, shape)
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], was
     assert "shadow_cut" in part.uncertainty_terms
     assert _covered(part, tp)
