@@ -38,6 +38,8 @@ __all__ = [
 
 #: Fewest markers a photo must show.
 MIN_MARKERS = 4
+#: Sample step (px) of the profiles across a marker's side (:func:`marker_sides`).
+_PROFILE_STEP_PX = 0.25
 
 
 @dataclass
@@ -235,7 +237,7 @@ def _sample_sides(image: LoadedImage, coarse: np.ndarray) -> tuple[np.ndarray, l
     height, width = image.grey.shape
     # float32 of each table entry: the same values as looking up in float64 and converting
     table = np.asarray(image.to_linear).astype(np.float32)
-    step = 0.25
+    step = _PROFILE_STEP_PX
     for i in range(m):
         quad = coarse[i]
         centre = quad.mean(axis=0)
@@ -313,7 +315,6 @@ def _refine_corners(
     normals = np.zeros((m, 4, 2))
     ok = sides.inside.copy()
     residuals: list[np.ndarray] = []
-    step = 0.25  # the profiles' sample step (px), as sampled
     for i in range(m):
         if not ok[i]:
             continue
@@ -331,7 +332,7 @@ def _refine_corners(
             p0, direction, res = line
             residuals.append(res)
             # sigma of the blur from the clipped derivative's spread (rough; for checks only)
-            blur[i, k] = float(np.sqrt(max(median_1d(var) - step**2 / 12, 0.0)) * 1.25)
+            blur[i, k] = float(np.sqrt(max(median_1d(var) - _PROFILE_STEP_PX**2 / 12, 0.0)) * 1.25)
             lines.append((p0, direction))
         if len(lines) < 4:
             ok[i] = False

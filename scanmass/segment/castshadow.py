@@ -260,9 +260,10 @@ def _shadow_cut(
     if np.count_nonzero(interior) < 50:
         return None, False
     tex_face = float(np.median(rough[interior]))
+    grain = max(tex_face, 1e-4)  # the face's grain, the unit of the texture ratios below
+    face_level = float(np.median(level[interior]))
     floor = 0.01
     if code_step is not None:
-        face_level = float(np.median(level[interior]))
         floor = max(floor, 0.5 * float(np.median(code_step[interior])) / max(face_level, 1e-6))
     # a pixel is shadow-like when far rougher than the face, paper-coloured and darkened,
     # and reached from the region's boundary through such pixels
@@ -328,32 +329,32 @@ def _shadow_cut(
         return None, dark
     cut, keep = settled
     if tinted.any():
-        cut = _face_given_back(cut, part_mask, level, float(np.median(level[interior])))
+        cut = _face_given_back(cut, part_mask, level, face_level)
         keep = part_mask & ~cut
     # the shadow's grain, past the blurred rim where the sweep's run began beyond it
     graded = cut & ~rim if rim is not None and np.count_nonzero(cut & ~rim) >= 50 else cut
     tex_shadow = float(np.median(rough[graded]))
-    if past_fade and direction is not None and tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
+    if past_fade and direction is not None and tex_shadow < min_texture_ratio * grain:
         # past the fade along the light: a core far darker than the face is told from it by its level
-        core = graded & (level < float(np.median(level[interior])))
+        core = graded & (level < face_level)
         if (
             np.count_nonzero(core) >= 50
-            and float(np.median(level[core])) <= _DARK_CORE_SHARE * float(np.median(level[interior]))
-            and float(np.median(rough[core])) >= _DARK_CORE_TEXTURE_RATIO * max(tex_face, 1e-4)
+            and float(np.median(level[core])) <= _DARK_CORE_SHARE * face_level
+            and float(np.median(rough[core])) >= _DARK_CORE_TEXTURE_RATIO * grain
         ):
             tex_shadow = float(np.median(rough[core]))
             min_texture_ratio = _DARK_CORE_TEXTURE_RATIO
-    if direction is None and tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
+    if direction is None and tex_shadow < min_texture_ratio * grain:
         # a face of a colour of its own (brass) beside a cut of the paper's: told apart by the colour
         tint = _tint(smooth, sm)
         face_tint = float(np.median(tint[interior]))
         if (
             abs(face_tint) >= _COLOUR_FACE_TINT
             and abs(float(np.median(tint[graded]))) <= _COLOUR_CUT_SHARE * abs(face_tint)
-            and tex_shadow >= _COLOUR_TEXTURE_RATIO * max(tex_face, 1e-4)
+            and tex_shadow >= _COLOUR_TEXTURE_RATIO * grain
         ):
             min_texture_ratio = _COLOUR_TEXTURE_RATIO
-    if tex_shadow < min_texture_ratio * max(tex_face, 1e-4):
+    if tex_shadow < min_texture_ratio * grain:
         return None, dark
     # a strip of the outline's rim left between the cut and the paper (the shadow's far edge,
     # a whole-pixel sweep short of it) would enclose the cut as a false hole: it goes with the
