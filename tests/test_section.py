@@ -558,6 +558,8 @@ def test_scaling(ring, k):
 @example(points=[(0.0, 0.0), (0.0, -1.0), (1.0, 0.0), (-1.175494351e-38, 0.0)])
 @example(points=[(0.0, 8.506716395635844e-79), (1.0, 0.0), (1.0, 1.0), (8.189179566780726e-180, 0.0)])
 @example(points=[(0.0, 0.0), (0.0, 2.0), (1.0, 0.0), (1.0, 4.62217105670154e-204), (-1.0, 1.0)])
+# two neighbouring vertices dropped in one round of the chain (CI, stop 27): the hull lost (0, 0)
+@example(points=[(0.0, 0.0), (0.0, 1.0), (0.0, 6.89616954672432e-280), (-1.0, 1.0)])
 def test_calipers_against_brute_force(points):
     pts = np.array(points, dtype=float)
     cmax, cmin = caliper_widths(pts)
