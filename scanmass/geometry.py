@@ -22,6 +22,8 @@ __all__ = [
     "ring_perimeter",
     "offset_ring",
     "vertex_normals",
+    "nearest_vertex",
+    "vertex_spread",
 ]
 
 
@@ -226,6 +228,41 @@ def ring_perimeter(ring: np.ndarray) -> float:
     r = _as_ring(ring)
     e = np.roll(r, -1, axis=0) - r
     return float(np.hypot(e[:, 0], e[:, 1]).sum())
+
+
+def nearest_vertex(a: np.ndarray, b: np.ndarray, chunk: int = 256) -> np.ndarray:
+    """Index of the nearest point of ``b`` for each point of ``a`` (both ``(N, 2)``), in chunks of ``a``.
+
+    Examples
+    --------
+    >>> nearest_vertex(np.array([[0.0, 0.0], [9.0, 1.0]]), np.array([[10.0, 0.0], [1.0, 1.0]])).tolist()
+    [1, 0]
+    """
+    out = np.empty(len(a), dtype=int)
+    for s in range(0, len(a), chunk):
+        q = a[s : s + chunk]
+        d = (q[:, None, 0] - b[None, :, 0]) ** 2 + (q[:, None, 1] - b[None, :, 1]) ** 2
+        out[s : s + chunk] = d.argmin(axis=1)
+    return out
+
+
+def vertex_spread(a: np.ndarray, b: np.ndarray) -> float:
+    """The Hausdorff distance between the vertex sets of two rings (or point sets).
+
+    The largest distance from a vertex of either to the nearest vertex of the other: no
+    point of one lies farther than this from the other's vertices.
+
+    Examples
+    --------
+    >>> vertex_spread(np.array([[0.0, 0.0], [4.0, 0.0]]), np.array([[0.0, 3.0], [4.0, 0.0]]))
+    3.0
+    """
+    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    if len(a) == 0 or len(b) == 0:
+        return 0.0 if len(a) == len(b) else float("inf")
+    ab = np.hypot(*(a - b[nearest_vertex(a, b)]).T).max()
+    ba = np.hypot(*(b - a[nearest_vertex(b, a)]).T).max()
+    return float(max(ab, ba))
 
 
 def vertex_normals(ring: np.ndarray) -> np.ndarray:

@@ -53,6 +53,7 @@ from xml.sax.saxutils import escape
 import numpy as np
 
 from scanmass.errors import OptionError, ResultFormatError
+from scanmass.geometry import nearest_vertex
 from scanmass.measurement import Measurement, Part, read_result
 from scanmass.outputs.atomic import write_atomic
 from scanmass.outputs.export import LAYER_REFERENCE, _hole_ring, _outer, _select_parts
@@ -278,16 +279,6 @@ def _orient(r: np.ndarray, ccw: bool) -> np.ndarray:
 # ---------------------------------------------------------------------------
 # Alignment
 # ---------------------------------------------------------------------------
-def _nearest(a: np.ndarray, b: np.ndarray, chunk: int = 256) -> np.ndarray:
-    """Index of the nearest point of b for each point of a."""
-    out = np.empty(len(a), dtype=int)
-    for s in range(0, len(a), chunk):
-        q = a[s : s + chunk]
-        d = (q[:, None, 0] - b[None, :, 0]) ** 2 + (q[:, None, 1] - b[None, :, 1]) ** 2
-        out[s : s + chunk] = d.argmin(axis=1)
-    return out
-
-
 def _kabsch(src: np.ndarray, dst: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     cs, cd = src.mean(axis=0), dst.mean(axis=0)
     h = (src - cs).T @ (dst - cd)
@@ -325,7 +316,7 @@ def _icp(src: np.ndarray, target: tuple[np.ndarray, np.ndarray], r: np.ndarray, 
     rms = math.inf
     for _ in range(iters):
         moved = src @ r.T + t
-        idx = _nearest(moved, q_all)
+        idx = nearest_vertex(moved, q_all)
         q, n = q_all[idx], n_all[idx]
         res = np.einsum("ij,ij->i", moved - q, n)
         # d(res) = n . (dtheta * J moved + dt), J = rotation by 90 degrees
@@ -380,7 +371,7 @@ def _align(meas_rings: list[np.ndarray], nom: Nominal, mode: str) -> tuple[np.nd
         r, t, _ = _icp(src, coarse, r, t, 30)
         # choose among the starts with the holes too (a symmetric outline alone cannot)
         moved = every @ r.T + t
-        rms = float(np.sqrt(np.mean(np.sum((moved - every_nom[_nearest(moved, every_nom)]) ** 2, axis=1))))
+        rms = float(np.sqrt(np.mean(np.sum((moved - every_nom[nearest_vertex(moved, every_nom)]) ** 2, axis=1))))
         if best is None or rms < best[0]:
             best = (rms, r, t)
     assert best is not None

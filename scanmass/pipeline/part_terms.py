@@ -13,7 +13,7 @@ from typing import Any
 
 import numpy as np
 
-from scanmass.geometry import signed_area
+from scanmass.geometry import signed_area, vertex_spread
 from scanmass.mapping import MappedPart
 from scanmass.measurement import Hole, Part
 from scanmass.scale.planemap import PlaneMap
@@ -147,6 +147,35 @@ def _with_shadow_term(
 UNKNOWN_THICKNESS_MM = 3.0
 
 
+def circle_change(
+    ring: np.ndarray | None,
+    moved: np.ndarray,
+    diameter_mm: float | None = None,
+    centre_mm: tuple[float, float] | None = None,
+) -> tuple[float, float, float]:
+    """How far a hole's fitted circle moves when its ring moves to ``moved``: diameter, centre x, centre y.
+
+    Each change is the fits' difference, but at most what the ring itself moved: the
+    Hausdorff distance between the two rings' vertices (twice it for the diameter). A ring
+    that is far from round can send a least-squares circle anywhere (a fit of a ragged ring
+    a few mm across ran off to 1e12 mm); the hole as drawn moved no more than its vertices.
+    ``diameter_mm`` and ``centre_mm`` are the fit of ``ring`` where the caller has it (they
+    are needed when ``ring`` is None: then the fits' difference alone is taken).
+    """
+    if diameter_mm is None or centre_mm is None:
+        if ring is None:
+            raise ValueError("circle_change: give the ring or its fitted circle")
+        before = fit_circle(ring)
+        diameter_mm, centre_mm = before.diameter_mm, before.centre_mm
+    after = fit_circle(moved)
+    spread = vertex_spread(ring, moved) if ring is not None and len(ring) else math.inf
+    return (
+        min(abs(after.diameter_mm - diameter_mm), 2.0 * spread),
+        min(abs(after.centre_mm[0] - centre_mm[0]), spread),
+        min(abs(after.centre_mm[1] - centre_mm[1]), spread),
+    )
+
+
 def _with_extra_term(part: Part, name: str, term: dict[str, float], raised_holes: list[np.ndarray]) -> Part:
     """The part with one more named uncertainty term, combined into every total it touches."""
     changes: dict[str, Any] = {key: combine(getattr(part, key), term[fig]) for key, fig in U_FIELDS.items()}
@@ -156,15 +185,12 @@ def _with_extra_term(part: Part, name: str, term: dict[str, float], raised_holes
     )
     holes = []
     for hole, raised in zip(part.holes, raised_holes):
-        fit = fit_circle(raised)
         a, qx, qy = ring_moments(raised)[:3]
-        d_d = 0.5 * abs(fit.diameter_mm - hole.diameter_mm)
+        moved_d, moved_cx, moved_cy = circle_change(hole.outline_mm, raised, hole.diameter_mm, hole.circle_centre_mm)
+        d_d = 0.5 * moved_d
         d_a = 0.5 * abs(abs(float(a)) - hole.area_mm2)
         d_c = (0.5 * abs(float(qx / a) - hole.centroid_mm[0]), 0.5 * abs(float(qy / a) - hole.centroid_mm[1]))
-        d_cc = (
-            0.5 * abs(fit.centre_mm[0] - hole.circle_centre_mm[0]),
-            0.5 * abs(fit.centre_mm[1] - hole.circle_centre_mm[1]),
-        )
+        d_cc = (0.5 * moved_cx, 0.5 * moved_cy)
         holes.append(
             replace(
                 hole,

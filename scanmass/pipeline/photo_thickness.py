@@ -18,7 +18,7 @@ from scanmass.errors import ScanmassError
 from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
-from scanmass.pipeline.part_terms import _with_extra_term, change_term
+from scanmass.pipeline.part_terms import _with_extra_term, change_term, circle_change
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h, footprint_maps_mm, raised_outline_mm
 from scanmass.section import escaping_holes, fit_circle, ring_moments, ring_perimeter, section_properties
@@ -580,7 +580,7 @@ def with_wall_thickness(
         lifted.add(est.label)
         how = {"rim": " (from its round rims)", "wall+rim": " (its wall band and round rims agreeing)"}.get(est.cue, "")
         said.append(f"part {est.label} {est.thickness_mm:.1f} +- {est.sigma_mm:.1f} mm{how}")
-        hole_u = [abs(fit_circle(hu).diameter_mm - fit_circle(h).diameter_mm) / 1.5 for h, hu in zip(holes, holes_u)]
+        hole_u = [circle_change(h, hu)[0] / 1.5 for h, hu in zip(holes, holes_u)]
         record[str(est.label)] = {
             "hole_diameter_term_mm": max(hole_u, default=0.0),
             "thickness_mm": est.thickness_mm,
