@@ -78,7 +78,9 @@ from scanmass.segment.shadowlayer import (
     CUT_MIN_TEXTURE_RATIO,
     STRETCH_PX,
     ShadowCut,
+    _edge_px,
     _face_given_back,
+    _face_interior,
     _filled,
     _reached,
     _settled_cut,
@@ -229,7 +231,7 @@ def _shadow_cut(
     neutral = np.all(np.abs(smooth - sm[..., None]) <= _CHROMA_TOL * sm[..., None] + 0.01, axis=2)
     inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
     # the face: deeper than a shadow reaches, or (a narrow part) the deepest quarter of the region
-    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    interior = _face_interior(inside, reach_px)
     if np.count_nonzero(interior) < 50:
         return None, False
     tex_face = float(np.median(rough[interior]))
@@ -335,15 +337,14 @@ def _shadow_cut(
     cut = _with_rim(cut, part_mask)
     keep = part_mask & ~cut
     n_cut = int(np.count_nonzero(cut))
-    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
-    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
+    edge_px = _edge_px(cut, keep)
     if not dark:
         # a dark face's shadow fades on past the outline: painted as paper with the cut
         cut = cut | _fade_beyond(cut, part_mask, smooth, interior, depth_px * unit)
     found = ShadowCut(
         cut=cut,
         cut_px=n_cut,
-        edge_px=float(np.count_nonzero(border)),
+        edge_px=edge_px,
         texture_face=tex_face,
         texture_shadow=tex_shadow,
         level_face=float(np.median(level[keep])),
@@ -476,8 +477,4 @@ def core_cut(
         return along
     cut = along.cut | fade.cut
     keep = part_mask & ~cut
-    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
-    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
-    return replace(
-        along, cut=cut, cut_px=int(np.count_nonzero(cut & part_mask)), edge_px=float(np.count_nonzero(border))
-    )
+    return replace(along, cut=cut, cut_px=int(np.count_nonzero(cut & part_mask)), edge_px=_edge_px(cut, keep))

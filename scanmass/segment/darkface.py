@@ -14,7 +14,7 @@ from __future__ import annotations
 import cv2
 import numpy as np
 
-from scanmass.segment.shadowlayer import _LEVEL_STEP_RATIO, _tint
+from scanmass.segment.shadowlayer import _LEVEL_STEP_RATIO, _face_interior, _tint
 
 __all__ = [
     "dark_tinted_face",
@@ -84,7 +84,7 @@ def dark_tinted_face(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: n
         return False
     q = (colour_lin / np.asarray(paper_rgb)).astype(np.float32)
     inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
-    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    interior = _face_interior(inside, reach_px)
     if np.count_nonzero(interior) < 50:
         return False
     return _is_dark(cv2.GaussianBlur(q, (0, 0), 1.5), interior)

@@ -122,6 +122,32 @@ def _filled(part_mask: np.ndarray) -> np.ndarray:
     return out.astype(bool) | part_mask
 
 
+def _face_interior(inside: np.ndarray, reach_px: float) -> np.ndarray:
+    """(H, W) bool: a region's face, by the distance ``inside`` its pixels lie from the region's boundary.
+
+    Deeper than a shadow reaches (``reach_px`` + 2 px), or, in a part too narrow for that, its
+    deepest quarter (deeper than 0.75 of the largest distance).
+    """
+    return inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+
+
+def _with_small_pieces(cut: np.ndarray, part_mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``cut`` with the pieces of the rest it parts off under 5 % of the rest's largest, and the rest."""
+    keep = part_mask & ~cut
+    count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
+    if count > 2:
+        areas = stats[1:, cv2.CC_STAT_AREA]
+        pieces = (labels > 0) & (stats[labels, cv2.CC_STAT_AREA] < 0.05 * areas.max())
+        cut, keep = cut | pieces, keep & ~pieces
+    return cut, keep
+
+
+def _edge_px(cut: np.ndarray, keep: np.ndarray) -> float:
+    """Length (px) of the boundary between a cut and what is kept: the kept pixels 4-adjacent to the cut."""
+    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
+    return float(np.count_nonzero(keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)))
+
+
 def _settled_cut(cut: np.ndarray, part_mask: np.ndarray) -> tuple[np.ndarray, np.ndarray] | None:
     """The cut with the pieces it parts from the face, and what is kept; None past the cut's limits.
 
@@ -129,13 +155,7 @@ def _settled_cut(cut: np.ndarray, part_mask: np.ndarray) -> tuple[np.ndarray, np
     shadow's island) go with the cut. A cut that is empty, takes more than
     :data:`CUT_MAX_SHARE` of the region or leaves under 50 px is no cut (None).
     """
-    keep = part_mask & ~cut
-    count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
-    if count > 2:
-        areas = stats[1:, cv2.CC_STAT_AREA]
-        pieces = (labels > 0) & (stats[labels, cv2.CC_STAT_AREA] < 0.05 * areas.max())
-        cut = cut | pieces
-        keep &= ~pieces
+    cut, keep = _with_small_pieces(cut, part_mask)
     n_cut = int(np.count_nonzero(cut))
     if n_cut == 0 or n_cut > CUT_MAX_SHARE * np.count_nonzero(part_mask) or np.count_nonzero(keep) < 50:
         return None
@@ -209,12 +229,7 @@ def _with_rim(cut: np.ndarray, part_mask: np.ndarray) -> np.ndarray:
     and the paper would enclose the cut as a false hole once painted: it goes with the cut,
     unless that parts the face; so do pieces of the rest under 5 % of its largest.
     """
-    keep = part_mask & ~cut
-    count, labels, stats, _ = cv2.connectedComponentsWithStats(keep.astype(np.uint8), connectivity=8)
-    if count > 2:
-        areas = stats[1:, cv2.CC_STAT_AREA]
-        pieces = (labels > 0) & (stats[labels, cv2.CC_STAT_AREA] < 0.05 * areas.max())
-        cut, keep = cut | pieces, keep & ~pieces
+    cut, keep = _with_small_pieces(cut, part_mask)
     to_cut = cv2.distanceTransform((~cut).astype(np.uint8), cv2.DIST_L2, 3)
     to_out = cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3)
     strip = keep & (to_cut <= 2.0) & (to_out <= 2.0)

@@ -225,20 +225,11 @@ def _read_step(
     past_fade: bool = False,
 ) -> tuple[np.ndarray, float, np.ndarray, float, np.ndarray | None, bool, bool] | None:
     """:func:`_sweep_depth`'s length from the layers' profile, given the shadow's and the face's level and roughness; whether a level step placed it, and whether :func:`_ringing_bound` bounded it."""
-    if max(lv_f, lv_s) >= _LEVEL_STEP_RATIO * max(min(lv_f, lv_s), 1e-6):
-        level_step = True
+    level_step, face_sure, vote = _pixel_votes(level, rough, lv_s, lv_f, rg_s, rg_f)
+    if level_step:
         profile, mid = (lv - lv_s) * np.sign(lv_f - lv_s), 0.5 * abs(lv_f - lv_s)
-        at_face_level = (level - lv_s) * np.sign(lv_f - lv_s) >= mid
-        smooth = rough <= 0.5 * (rg_s + rg_f)
-        face_like, face_sure = at_face_level | smooth, at_face_level & smooth
-        # smooth at the shadow's level: the shadow in the lee of a tall part's wall, or a dark
-        # face; neither side's evidence
-        vote = np.where(at_face_level, -1.0, np.where(smooth, 0.0, 1.0)).astype(np.float32)
     else:
-        level_step = False
         profile, mid = rg_s - rg, 0.5 * (rg_s - rg_f)
-        face_like = face_sure = rough <= 0.5 * (rg_s + rg_f)
-        vote = np.where(face_like, -1.0, 1.0).astype(np.float32)
     start = first + 1 if last - first > 2 else first
     if past_fade and level_step and direction is not None and lv_f > lv_s:
         # along the photo's shadow direction (``past_fade``): the soft shadow's fade next to the outline, brighter
@@ -254,9 +245,7 @@ def _read_step(
         # the layers from here on at the face's side of half-way, not one layer's blip (8-bit
         # coding of a dark face and a shadow a few codes apart)
         if profile[i] >= mid and np.median(profile[i : i + _SUSTAIN]) >= mid:
-            a, b = profile[i - 1], profile[i]
-            frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
-            depth = float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
+            depth = _crossing(ks, profile, i, mid)
             if direction is not None and witness_px is not None and depth > witness_px + _WITNESS_SLACK_PX:
                 # the other part's shadow, of the same thickness under the same light, is as long: the
                 # half-way of this grain lies past the face's edge, in its own rough rim
@@ -333,9 +322,7 @@ def _ringing_bound(
         if ks[i] > depth:
             break
         if lv[i] >= mid and np.median(lv[i : i + _SUSTAIN]) >= mid:
-            a, b = lv[i - 1], lv[i]
-            frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
-            return float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
+            return _crossing(ks, lv, i, mid)
     return None
 
 
@@ -371,14 +358,7 @@ def _dark_sweep(
         return None
     lv_s, lv_f = float(np.median(level[deep])), float(np.median(level[alike]))
     rg_s, rg_f = float(np.median(rough[deep])), float(np.median(rough[alike]))
-    smooth = rough <= 0.5 * (rg_s + rg_f)
-    if max(lv_f, lv_s) >= _LEVEL_STEP_RATIO * max(min(lv_f, lv_s), 1e-6):
-        at_face_level = (level - lv_s) * np.sign(lv_f - lv_s) >= 0.5 * abs(lv_f - lv_s)
-        face_sure = at_face_level & smooth
-        vote = np.where(at_face_level, -1.0, np.where(smooth, 0.0, 1.0)).astype(np.float32)
-    else:
-        face_sure = smooth
-        vote = np.where(smooth, -1.0, 1.0).astype(np.float32)
+    _, face_sure, vote = _pixel_votes(level, rough, lv_s, lv_f, rg_s, rg_f)
     best_score, best_step = 0.0, None
     stop = int(math.ceil(reach_px)) + 2
     for angle in np.radians(np.arange(0.0, 360.0, 11.25)):
@@ -392,6 +372,44 @@ def _dark_sweep(
         return None
     best_unit, best_depth = _best_sweep(mask8, vote, best_step)
     return best_unit, best_depth, face_sure, 0.0, None, False  # no run measured: held to the 30-degree reach
+
+
+def _pixel_votes(
+    level: np.ndarray, rough: np.ndarray, lv_s: float, lv_f: float, rg_s: float, rg_f: float
+) -> tuple[bool, np.ndarray, np.ndarray]:
+    """Each pixel's vote for the shadow (+1) or the face (-1), given the shadow's and the face's level and roughness.
+
+    Where the two levels differ by :data:`_LEVEL_STEP_RATIO` or more (a level step), a pixel on the
+    face's side of half-way votes for the face, a rough one at the shadow's level for the shadow,
+    and a smooth one at the shadow's level (the shadow in the lee of a tall part's wall, or a dark
+    face) not at all; without a step, a smooth pixel (under half-way between the two roughnesses)
+    votes for the face and a rough one for the shadow. Shared by :func:`_read_step` and
+    :func:`_dark_sweep`.
+
+    Returns
+    -------
+    level_step : bool
+        Whether the levels differ by a step.
+    face_sure : (H, W) bool ndarray
+        The pixels sure to be face: at the face's level and smooth (with a step), smooth (without).
+    vote : (H, W) float32 ndarray
+        +1, -1 or 0 per pixel.
+    """
+    smooth = rough <= 0.5 * (rg_s + rg_f)
+    if max(lv_f, lv_s) >= _LEVEL_STEP_RATIO * max(min(lv_f, lv_s), 1e-6):
+        at_face_level = (level - lv_s) * np.sign(lv_f - lv_s) >= 0.5 * abs(lv_f - lv_s)
+        # smooth at the shadow's level: the shadow in the lee of a tall part's wall, or a dark
+        # face; neither side's evidence
+        vote = np.where(at_face_level, -1.0, np.where(smooth, 0.0, 1.0)).astype(np.float32)
+        return True, at_face_level & smooth, vote
+    return False, smooth, np.where(smooth, -1.0, 1.0).astype(np.float32)
+
+
+def _crossing(ks: np.ndarray, profile: np.ndarray, i: int, mid: float) -> float:
+    """Where ``profile`` crosses ``mid`` between layers ``i - 1`` and ``i`` (at sweep lengths ``ks``), linearly."""
+    a, b = profile[i - 1], profile[i]
+    frac = 0.0 if b <= a else float(np.clip((mid - a) / (b - a), 0.0, 1.0))
+    return float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
 
 
 def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple[np.ndarray, float]:

@@ -21,6 +21,8 @@ from scanmass.segment.shadowlayer import (
     CUT_MIN_TEXTURE_RATIO,
     STRETCH_PX,
     ShadowCut,
+    _edge_px,
+    _face_interior,
     _filled,
     _line_kernel,
     _new_layers,
@@ -32,6 +34,12 @@ from scanmass.segment.shadowlayer import (
 from scanmass.segment.shadowsweep import _WITNESS_SLACK_PX
 
 __all__ = ["fade_cut", "lit_beyond"]
+
+
+def _swept_on(cut: np.ndarray, part_mask: np.ndarray, step: np.ndarray) -> np.ndarray:
+    """(H, W) bool: the pixels outside the region that ``cut`` swept on by ``step`` (x, y px) reaches."""
+    kernel, anchor = _line_kernel(-np.asarray(step, float))
+    return cv2.dilate(cut.astype(np.uint8), kernel, anchor=anchor).astype(bool) & ~part_mask
 
 
 def _fade_beyond(
@@ -70,8 +78,7 @@ def _fade_beyond(
     face_tint = float(np.median(tint[interior]))
     if not 0 < face_level < DARK_FACE_LEVEL:
         return none
-    kernel, anchor = _line_kernel(-np.asarray(step, float))
-    zone = cv2.dilate(cut.astype(np.uint8), kernel, anchor=anchor).astype(bool) & ~part_mask
+    zone = _swept_on(cut, part_mask, step)
     # the caller paints with the paper's level 4-16 px off the outline, in a long fade itself dimmed:
     # a pixel brighter than that is left as it is (painted, it would darken)
     outside = cv2.distanceTransform((~part_mask).astype(np.uint8), cv2.DIST_L2, 3)
@@ -146,7 +153,7 @@ def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarra
     smooth = cv2.GaussianBlur(q, (0, 0), 1.0)
     sm = smooth.mean(axis=2)
     inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
-    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
+    interior = _face_interior(inside, reach_px)
     if np.count_nonzero(interior) < 50:
         return None
     face_level = float(np.median(sm[interior]))
@@ -175,8 +182,6 @@ def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarra
     keep = part_mask & ~cut
     if n_cut < STRETCH_PX or np.count_nonzero(keep) < 50:
         return None
-    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
-    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
     rough = roughness(level)
     # the rest of the fade just outside (3 px) goes with it: painted as paper, a strip of the
     # cut between the face and the darker fade outside would read as a hole
@@ -184,7 +189,7 @@ def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarra
     return ShadowCut(
         cut=cut | beyond,
         cut_px=n_cut,
-        edge_px=float(np.count_nonzero(border)),
+        edge_px=_edge_px(cut, keep),
         texture_face=float(np.median(rough[interior])),
         texture_shadow=float(np.median(rough[cut])),
         level_face=float(np.median(sm[keep])),
@@ -208,8 +213,7 @@ def lit_beyond(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndar
     level = cv2.GaussianBlur(
         (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).mean(axis=2), (0, 0), 1.5
     )
-    kernel, anchor = _line_kernel(-np.asarray(cut.direction, float) * cut.length_px)
-    zone = cv2.dilate(cut.cut.astype(np.uint8), kernel, anchor=anchor).astype(bool) & ~part_mask
+    zone = _swept_on(cut.cut, part_mask, np.asarray(cut.direction, float) * cut.length_px)
     outside = cv2.distanceTransform((~part_mask).astype(np.uint8), cv2.DIST_L2, 3)
     ring = (outside > 1.5) & (outside < 5)
     beyond, rest = zone & ring, ring & ~zone
@@ -276,7 +280,7 @@ def _grainy_core(
         return None
     rough = roughness(level)
     inside = cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3)
-    interior = (inside > min(reach_px + 2.0, 0.75 * float(inside.max()))) & ~along.cut
+    interior = _face_interior(inside, reach_px) & ~along.cut
     cut = along.cut & part_mask
     if np.count_nonzero(interior) < 50 or np.count_nonzero(cut) < STRETCH_PX:
         return None
