@@ -361,7 +361,7 @@ def test_dark_shadow_of_a_ring_is_cut_past_the_outlines_blurred_rim():
 
 def _dark_plastic_face() -> np.ndarray:
     # a black plastic face 0.05-0.06 of the paper, redder than it (channels R, G, B; tint blue minus red
-    # -0.17), as the committed renders' black plastic reads (-0.09 to -0.17; castshadow._TINTED_FACE_TINT)
+    # -0.17), as the committed renders' black plastic reads (-0.09 to -0.17; darkface._TINTED_FACE_TINT)
     return np.array([1.1, 0.97, 0.93])
 
 

@@ -312,7 +312,7 @@ def test_dark_bore_of_a_black_disc_is_opened():
     """The black disc 8 mm thick under the spotlight: its 8 mm bore shows its far wall and its bottom
     in the disc's shadow, darker than the face (0.2-0.45 of it), and was missed (+9.8 % in
     area, a 'possible hidden hole'). Nothing on a flat dark face in the light is darker than it
-    but a hole (castshadow.hole_bottoms): the bore is opened at its top edge and named in the
+    but a hole (darkface.hole_bottoms): the bore is opened at its top edge and named in the
     'deep holes opened' warning; area within 2 % and the bore's diameter within 0.6 mm, both
     within 3 stated sigma (bench_reallight: -0.25 %, -0.03 mm; truth: the render's outlines,
     shapely)."""
@@ -379,7 +379,7 @@ def test_black_part_shadow_cut_past_jpeg_ringing():
     by a few 8-bit codes near its outline in the JPEG, as rough as its shadow (0.015 of the
     paper, 10 px wide); the sweep found by the rough layers' shares ran 33 degrees askew and
     was refused (+19.9 % in area, holes 2.0-2.3 mm small). Pixels at the face's level and
-    colour are no shadow, however rough (castshadow._dark_face_alike), and the cut runs on the
+    colour are no shadow, however rough (darkface._dark_face_alike), and the cut runs on the
     outline where the photo shows it (the top edge, beyond the footprint): the shadow is cut,
     the area within 1 % and 3 stated sigma, the centroid within 0.5 mm and both holes within
     0.8 mm (bench_reallight: +0.005 %, 0.22 mm, -0.06 / -0.05 mm; the cut's edge painted with
@@ -478,7 +478,7 @@ def test_matte_parts_on_a_clean_photo_get_no_unclear_edge_or_hidden_hole_term():
 def test_white_part_beside_a_black_one_leaves_only_named_shadows():
     """Window light, a white nylon disc (3 mm) beside a black L bracket (4 mm, two 5.5 mm holes):
     the bracket is measured within 3 stated sigma with both deep holes opened at their top edges
-    (their dark walls and bottoms inside the dark face: castshadow.hole_bottoms; before, they were
+    (their dark walls and bottoms inside the dark face: darkface.hole_bottoms; before, they were
     named as pits and missed), each within 1 mm and 3 stated sigma (bench_reallight: -0.10 /
     +0.03 mm); the regions found where the disc is (its shadow, its hole's bottom) are named as
     shadows alone (truth: the render's outlines, shapely)."""

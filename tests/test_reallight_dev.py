@@ -813,7 +813,7 @@ def test_thick_steel_plate_rim_only_sweep_tried_again_along_the_photos_shadow():
     rim), so neither the cut along the cam's shadow direction nor the fade test was tried, and the shadow's fade
     and core stayed in the part: +15.5 % in area, centroid 3.06 mm (bench_reallight). Taken as a refused sweep,
     the cut along the cam's direction stops at the fade's inner end (+8.2 %, centroid 1.36 mm); the core beyond
-    it, at the face's level but as grainy as the shadow (segment.castshadow._grainy_core, within the cam's shadow
+    it, at the face's level but as grainy as the shadow (segment.softshadow._grainy_core, within the cam's shadow
     length), goes with it: +4.1 %, centroid 0.92 mm. Truth: the render's outlines, area and centroid by shapely."""
     m, part, tp = _part("dev-window-steel4-t22", "plate4")
     warning = next(w for w in m.warnings if w.startswith("cast shadow cut:"))
@@ -847,7 +847,7 @@ def test_thin_brass_bracket_sweep_away_from_the_spot_refused():
     by grain ran 13 px away from the spot (longer than the 30-degree reach, taken as a low light's by its unbroken
     grain) and cut a strip of face: -24.8 % in area, both holes missed (bench_reallight). The paper just past the
     outline is brighter on that side than on the other (0.95 against 0.88 of the paper white), which a low light's
-    fading shadow never leaves: refused (segment.castshadow._lit_beyond), +7.1 %, centroid 1.31 mm, both holes
+    fading shadow never leaves: refused (segment.softshadow._lit_beyond), +7.1 %, centroid 1.31 mm, both holes
     found within 0.5 mm. Truth: the render's outlines, area and centroid by shapely."""
     m, part, tp = _part("dev-spot-brass5-t24", "l-bracket")
     assert abs(part.area_mm2 - tp["area"]) < 0.1 * tp["area"]  # was -24.8 %

@@ -1,0 +1,303 @@
+"""A low, wide light's soft shadow beside a metal part: its fade, its core, and the paper past a cut.
+
+Under a wide light (a window) a thick part's shadow fades out over many pixels and has a core lit by
+the room alone. Inside the outline of a dark tinted metal face the fade's inner end is cut by its
+level and the paper's tint (:func:`fade_cut`); past the outline, the fade beyond a sweep's cut is
+painted with it (:func:`_fade_beyond`); beyond a sweep's level step, the layers as grainy as the
+shadow at the face's level are its core (:func:`_grainy_core`). A low light's shadow dims the paper
+past the outline on its own side: a sweep or a cut with brighter paper beyond it is no such shadow
+(:func:`_lit_beyond`, :func:`lit_beyond`). Used by :mod:`scanmass.segment.castshadow` (which
+re-exports the public names).
+"""
+
+from __future__ import annotations
+
+import cv2
+import numpy as np
+
+from scanmass.segment.darkface import _DARK_CHROMA_STEP, DARK_FACE_LEVEL
+from scanmass.segment.shadowlayer import (
+    _MAX_DEPTH,
+    CUT_MIN_TEXTURE_RATIO,
+    STRETCH_PX,
+    ShadowCut,
+    _edge_px,
+    _face_interior,
+    _filled,
+    _line_kernel,
+    _new_layers,
+    _reached,
+    _tint,
+    _with_rim,
+    roughness,
+)
+from scanmass.segment.shadowsweep import _WITNESS_SLACK_PX
+
+__all__ = ["fade_cut", "lit_beyond"]
+
+
+def _swept_on(cut: np.ndarray, part_mask: np.ndarray, step: np.ndarray) -> np.ndarray:
+    """(H, W) bool: the pixels outside the region that ``cut`` swept on by ``step`` (x, y px) reaches."""
+    kernel, anchor = _line_kernel(-np.asarray(step, float))
+    return cv2.dilate(cut.astype(np.uint8), kernel, anchor=anchor).astype(bool) & ~part_mask
+
+
+def _fade_beyond(
+    cut: np.ndarray, part_mask: np.ndarray, smooth: np.ndarray, interior: np.ndarray, step: np.ndarray
+) -> np.ndarray:
+    """(H, W) bool: the soft shadow's fade just outside a metal region, beyond its cut along the sweep.
+
+    Under a wide low light (a window) a thick part's shadow fades out over many pixels; the
+    region found ends where the fade rises past the segmentation's threshold, but the fade goes
+    on beyond it. With the cut painted as paper the level around that fade rises, and its next
+    pixels read as a dark piece of their own, which is merged back into the part as a fragment of
+    its grainy face (on the committed render tests/data/reallight/dev-window-low-steel-t15 the
+    steel disc's cut of 13 px left a ring 8-10 px wide beyond it: +12 % in area). Pixels outside
+    the region that the cut swept on by the sweep's own vector reaches, with the paper's tint, at
+    :data:`_FADE_LEVEL_RATIO` or more of the face's level (a dark face beside it is no fade) and
+    under :data:`_MAX_DEPTH` of the paper (and under the paper's level 4-16 px off the outline, which
+    the caller paints with), reached from the cut, are that fade, where the paper 4-16 px beyond the
+    cut along the sweep is still under :data:`_FADE_DIM` of the paper white (a soft shadow; beside a
+    hard one, a spot's, the paper there is lit and nothing is added): they are painted
+    as paper with the cut (a shadow is paper in less light; they were never part of the region).
+    Only beside a dark face (under :data:`DARK_FACE_LEVEL`), whatever its tint: a thick steel face half
+    in the fade reads too faintly tinted for :func:`fade_cut` (the same render's bracket, -0.049 of its
+    level against the 0.05 step). Not after a dark plastic face's own sweep
+    (:func:`~scanmass.segment.shadowsweep._dark_sweep`), whose cut's edge is blended by the caller;
+    after the general sweep that follows its refusal, as on any dark face
+    (tests/data/reallight/dev-mixed-black2-t22's black plate 6.5 mm: -4.19 % -> -3.82 %, no thickness
+    given).
+
+    ``smooth`` is the crop's colour over the paper white (per channel), smoothed; ``interior`` the
+    face's pixels; ``step`` the sweep's vector (x, y px).
+    """
+    none = np.zeros(part_mask.shape, bool)
+    sm = smooth.mean(axis=2)
+    tint = _tint(smooth, sm)
+    face_level = float(np.median(sm[interior]))
+    face_tint = float(np.median(tint[interior]))
+    if not 0 < face_level < DARK_FACE_LEVEL:
+        return none
+    zone = _swept_on(cut, part_mask, step)
+    # the caller paints with the paper's level 4-16 px off the outline, in a long fade itself dimmed:
+    # a pixel brighter than that is left as it is (painted, it would darken)
+    outside = cv2.distanceTransform((~part_mask).astype(np.uint8), cv2.DIST_L2, 3)
+    ring = (outside > 4) & (outside < 16)
+    if np.count_nonzero(ring) < 20:
+        return none
+    paint = min(_MAX_DEPTH, float(np.median(sm[ring])))
+    # a soft shadow (a window's) still dims the paper 4-16 px beyond the outline on its side; a hard
+    # one's paper there is lit (a spot's: nothing beyond to paint)
+    far = zone & ring
+    if np.count_nonzero(far) < 20 or float(np.median(sm[far])) >= _FADE_DIM:
+        return none
+    fade = zone & (sm >= _FADE_LEVEL_RATIO * face_level) & (sm < paint) & (np.abs(tint - face_tint) > np.abs(tint))
+    if not fade.any():
+        return none
+    count, labels = cv2.connectedComponents(fade.astype(np.uint8), connectivity=8)
+    near = cv2.dilate(cut.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+    touching = np.unique(labels[near & fade])
+    return np.isin(labels, touching[touching > 0])
+
+
+#: Smallest level of a fade pixel, as a multiple of the face's (:func:`fade_cut`).
+_FADE_LEVEL_RATIO = 3.0
+#: Largest level of the paper just outside the outline (1.5-5 px off it, smoothed over 4 px),
+#: as a share of the paper's further off (12-20 px), for a stretch to lie in a fading shadow
+#: (:func:`fade_cut`).
+_FADE_DIM = 0.8
+
+
+def fade_cut(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float) -> ShadowCut | None:
+    """The inner end of a soft shadow's fade inside the outline of a dark tinted metal face.
+
+    A metal face under a low side light (brushed steel in window light: 0.02-0.06 of the paper, tinted
+    -0.06 to -0.10 blue minus red over its level) is as grainy as the shadow beside it, so
+    :func:`~scanmass.segment.castshadow.shadow_cut` refuses; but the soft shadow's inner end is no face:
+    it rises from several times the face's level outwards to the paper, with the paper's tint (0), and
+    the paper beyond it is still dimmed (a soft shadow fades over many px; on the lit side the paper
+    just off the outline is as bright as further off). So the pixels of the region within ``reach_px``
+    of its boundary, reached from it, at :data:`_FADE_LEVEL_RATIO` or more of the face's level (under
+    :data:`_MAX_DEPTH` of the paper) and nearer the paper's tint than the face's, are cut where the
+    paper just outside the boundary near them is under :data:`_FADE_DIM` of the paper further off. The
+    outline's own blur (one or two such pixels all round) is left where the paper beside it is lit, so
+    the outline stays on the face's step there as it then lands on it in the shadow. On the committed
+    render tests/data/reallight/window-steel-t25 the steel gasket's shadow side (and the far side of its
+    hole, in the wall's shadow) holds 1-3 such pixels (0.15-0.3 of the paper) inside its outline, the
+    paper beyond at 0.45-0.8. The cut also holds the pixels just outside the boundary beside it (within
+    3 px), so that painted as paper the shadow side reads as paper up to the face (``cut_px`` counts
+    only the region's pixels).
+
+    Returns None on a face that is not dark (under :data:`DARK_FACE_LEVEL`) and tinted (at
+    least :data:`_DARK_CHROMA_STEP` from the paper), or where no band is deep enough.
+
+    Examples
+    --------
+    A dark steel-tinted face 44 px wide with a 2 px shadow fade along its right side inside the
+    outline, fading on over 10 px of paper beyond it, and a 1 px blur ring elsewhere beside lit
+    paper: the fade inside is cut, the ring kept.
+
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (80, 96, 1))
+    >>> mask = np.zeros((80, 96), bool); mask[15:65, 15:62] = True
+    >>> img[16:64, 16:60] = 0.03 * paper * np.array([1.04, 1.0, 0.96])
+    >>> img[15:65, 60:72] = paper * np.linspace(0.2, 0.9, 12)[None, :, None]
+    >>> img[15, 16:60] = img[64, 16:60] = img[16:64, 15] = 0.5 * paper
+    >>> cut = fade_cut(img, mask, paper, 10.0)
+    >>> bool(cut.cut[20:60, 60:62].all()), bool((cut.cut & mask)[:, :59].any()), bool(cut.cut[20:60, 62:65].all())
+    (True, False, True)
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return None
+    q = (colour_lin / np.asarray(paper_rgb)).astype(np.float32)
+    smooth = cv2.GaussianBlur(q, (0, 0), 1.0)
+    sm = smooth.mean(axis=2)
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = _face_interior(inside, reach_px)
+    if np.count_nonzero(interior) < 50:
+        return None
+    face_level = float(np.median(sm[interior]))
+    tint = _tint(smooth, sm)
+    face_tint = float(np.median(tint[interior]))
+    if not 0 < face_level < DARK_FACE_LEVEL or abs(face_tint) < _DARK_CHROMA_STEP:
+        return None
+    fade = (
+        part_mask
+        & (inside <= reach_px)
+        & (sm >= _FADE_LEVEL_RATIO * face_level)
+        & (sm < _MAX_DEPTH)
+        & (np.abs(tint - face_tint) > np.abs(tint))
+    )
+    fade = _reached(fade, part_mask, inside)
+    # the paper just off the boundary (outside it, or in a hole) against the paper further off
+    level = q.mean(axis=2)
+    outside = cv2.distanceTransform((1 - mask8).astype(np.uint8), cv2.DIST_L2, 3)
+    far = level[(outside > 12) & (outside <= 20)]
+    if far.size < 50:
+        return None
+    ring = ((outside > 1.5) & (outside <= 5)).astype(np.float32)
+    near = cv2.GaussianBlur(level * ring, (0, 0), 4) / np.maximum(cv2.GaussianBlur(ring, (0, 0), 4), 1e-6)
+    cut = _with_rim(fade & (near < _FADE_DIM * float(np.median(far))), part_mask)
+    n_cut = int(np.count_nonzero(cut))
+    keep = part_mask & ~cut
+    if n_cut < STRETCH_PX or np.count_nonzero(keep) < 50:
+        return None
+    rough = roughness(level)
+    # the rest of the fade just outside (3 px) goes with it: painted as paper, a strip of the
+    # cut between the face and the darker fade outside would read as a hole
+    beyond = ~part_mask & (outside <= 3.0) & cv2.dilate(cut.astype(np.uint8), np.ones((7, 7), np.uint8)).astype(bool)
+    return ShadowCut(
+        cut=cut | beyond,
+        cut_px=n_cut,
+        edge_px=_edge_px(cut, keep),
+        texture_face=float(np.median(rough[interior])),
+        texture_shadow=float(np.median(rough[cut])),
+        level_face=float(np.median(sm[keep])),
+        level_shadow=float(np.median(sm[cut])),
+    )
+
+
+def lit_beyond(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, cut: ShadowCut) -> bool:
+    """Whether the paper just past a swept cut (1.5-5 px off the outline) is brighter than the paper off the rest of the outline.
+
+    A low, wide light's soft shadow still dims the paper beyond the cut on its own side; a hard light's (a spot's)
+    leaves it lit, and a region that fades as a shadow alone does and is cut along such a light's direction is a
+    face whose dark sector was taken for shadow. On the committed renders (tests/data/reallight):
+    dev-spot-steel3-t20's steel plate 3 mm under the spot, 0.91 of the paper white beyond its cut against 0.78
+    off the rest (the cut -20 % of its face); dev-window-steel5-t14's 5.5 mm plate in window light, 0.59 against
+    0.74. The zone beyond is the cut swept on by its own vector (:attr:`ShadowCut.direction`, ``length_px``);
+    False for a cut without one.
+    """
+    if cut.direction is None or cut.length_px is None:
+        return False
+    level = cv2.GaussianBlur(
+        (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).mean(axis=2), (0, 0), 1.5
+    )
+    zone = _swept_on(cut.cut, part_mask, np.asarray(cut.direction, float) * cut.length_px)
+    outside = cv2.distanceTransform((~part_mask).astype(np.uint8), cv2.DIST_L2, 3)
+    ring = (outside > 1.5) & (outside < 5)
+    beyond, rest = zone & ring, ring & ~zone
+    if np.count_nonzero(beyond) < STRETCH_PX or np.count_nonzero(rest) < STRETCH_PX:
+        return False
+    return bool(np.median(level[beyond]) > np.median(level[rest]))
+
+
+def _lit_beyond(part_mask: np.ndarray, unit: np.ndarray, level: np.ndarray) -> bool:
+    """Whether the paper just past the outline (2-4 px along ``unit``) is brighter on the sweep's side than on the other.
+
+    A low, wide light's shadow fades on past the outline on its own side (the paper there is still
+    dimmed; :func:`fade_cut`), so a sweep taken as such a shadow's (longer than a light 30 degrees up
+    or higher casts) that has the brighter paper beyond it runs away from the light. On the committed
+    renders (tests/data/reallight) the six such sweeps of the tuned set have the paper beyond them at
+    0.49-0.95 of the paper white against 0.95-1.02 on the other side; dev-spot-brass5-t24's thin brass
+    bracket under the spot (its face as dark as a shadow, its rim grainy with the coding's ringing)
+    swept away from the spot: 0.95 against 0.88, the cut a strip of its face (-24.8 % in area).
+    """
+    mask8 = _filled(part_mask).astype(np.uint8)
+    outside = cv2.distanceTransform(1 - mask8, cv2.DIST_L2, 3) >= 1.5
+    h, w = mask8.shape
+    sides = []
+    for sign in (1.0, -1.0):
+        moved = np.zeros(mask8.shape, bool)
+        for s in (2.0, 3.0, 4.0):
+            shift = np.array([[1.0, 0.0, sign * unit[0] * s], [0.0, 1.0, sign * unit[1] * s]], np.float32)
+            moved |= cv2.warpAffine(mask8, shift, (w, h), flags=cv2.INTER_NEAREST).astype(bool)
+        ring = moved & outside
+        if np.count_nonzero(ring) < STRETCH_PX:
+            return False
+        sides.append(float(np.median(level[ring])))
+    return sides[0] > sides[1]
+
+
+#: Fewest layers of grain beyond a sweep's level step for :func:`_grainy_core` to take them as a shadow's core.
+_CORE_MIN_LAYERS = 2
+#: Largest median level of such a layer, as a share of the face's (no brighter sector of a brushed face).
+_CORE_MAX_LEVEL = 1.3
+
+
+def _grainy_core(
+    level: np.ndarray,
+    part_mask: np.ndarray,
+    along: ShadowCut,
+    face_level: float,
+    reach_px: float,
+    witness_px: float | None = None,
+) -> np.ndarray | None:
+    """The layers beyond a sweep's level step that are as grainy as the shadow: a soft shadow's core at the face's level.
+
+    Under a wide, low light (a window) a thick metal part's shadow fades from the paper to a core lit by
+    the room alone, as dark as the metal face; the sweep's level step
+    (:func:`~scanmass.segment.shadowsweep._read_step`) then lies at the fade's inner end, and the core
+    stays in the part. The layers a sweep along the same direction adds next are taken while each is
+    rough (median roughness at least half the sweep's cut's and :data:`CUT_MIN_TEXTURE_RATIO` times the
+    face's) and no brighter than :data:`_CORE_MAX_LEVEL` times the face's level, up to ``reach_px`` and,
+    where another part's sweep showed the direction, within :data:`_WITNESS_SLACK_PX` of its length (one
+    thickness, one light: one shadow length; beyond it the grain is the face's own rough rim, as on the
+    committed render tests/data/reallight/dev-window-low-steel-t15, whose 7 mm bracket lost 10 % to it).
+    None unless at least :data:`_CORE_MIN_LAYERS` such layers follow the step.
+    """
+    if along.direction is None or along.length_px is None:
+        return None
+    rough = roughness(level)
+    inside = cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3)
+    interior = _face_interior(inside, reach_px) & ~along.cut
+    cut = along.cut & part_mask
+    if np.count_nonzero(interior) < 50 or np.count_nonzero(cut) < STRETCH_PX:
+        return None
+    grain = max(0.5 * float(np.median(rough[cut])), CUT_MIN_TEXTURE_RATIO * float(np.median(rough[interior])))
+    unit = np.asarray(along.direction, float)
+    outer = _filled(part_mask).astype(np.uint8)
+    core = np.zeros(part_mask.shape, bool)
+    layers = 0
+    stop = reach_px if witness_px is None else min(reach_px, witness_px + _WITNESS_SLACK_PX)
+    for k, new in _new_layers(outer, unit, int(stop) + 1):
+        if k <= along.length_px:
+            continue
+        new = new & part_mask & ~along.cut
+        if np.count_nonzero(new) < STRETCH_PX:
+            continue
+        if float(np.median(rough[new])) < grain or float(np.median(level[new])) > _CORE_MAX_LEVEL * face_level:
+            break
+        core |= new
+        layers += 1
+    return core if layers >= _CORE_MIN_LAYERS else None
