@@ -30,7 +30,7 @@ from scanmass.pipeline.photo_thickness import (
 from scanmass.scale.homography import apply_h
 from scanmass.scale.mat import make_mat
 from scanmass.testing.photos import PhotoParts, make_camera, render_photo
-from scanmass.testing.scans import circle, rectangle
+from scanmass.testing.scans import circle, l_section, rectangle
 
 MAT = make_mat("a4-portrait")
 PAPER, WALL, TOP = 0.85, 0.40, 0.06
@@ -201,3 +201,17 @@ def test_thickness_read_from_stretches_of_the_wall_in_a_render(name, shape):
     assert abs(est["thickness_mm"] - tp["t"]) < 0.3
     assert est["thickness_u_mm"] < 0.5 * tp["t"]
     assert "thickness_estimate" in part.uncertainty_terms and "thickness_unknown" not in part.uncertainty_terms
+
+
+def test_a_flat_brackets_arm_is_not_read_as_a_wall():
+    """A flat L bracket (no side wall: rendered as its outline alone) 35 degrees off its nadir: two stretches of one
+    straight edge of its 12 mm arm show two edges the arm's width apart, which, scored as a wall, read 5.0 mm;
+    past the band's inner edge lies the paper, not the part's top face (_face_test), so nothing is read and the
+    figures are the outline's. Truth: the polygon's area (shapely, polygon_truth)."""
+    bracket = PhotoParts(l_section(60.0, 160.0, 70.0, 55.0, 12.0), [circle(66.0, 205.0, 3.5, 256)])
+    t = truth(bracket.outer_mm, bracket.holes_mm)
+    cam = make_camera(tilt_deg=35.0, tilt_dir_deg=40.0, roll_deg=115.0, distance_mm=370.0)
+    m = measure(render_photo(MAT, [_plate(), bracket], cam, seed=35), printed_x_mm=100.0, printed_y_mm=100.0)
+    assert "thickness_estimate" not in m.settings
+    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, t["centroid"]))
+    assert part.area_mm2 == pytest.approx(t["area"], rel=1e-3)  # the photo tests' area tolerance (0.1 %)
