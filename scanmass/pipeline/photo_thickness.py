@@ -338,11 +338,12 @@ def _stretch_reading(
     :data:`MIN_PROMINENCE` above its flanks, on a band at least :data:`MIN_BAND_PX` wide, and (with
     ``on_face``, :func:`_face_test`) with :data:`STRETCH_FACE_SHARE` of its profiles on the part
     :data:`STRETCH_FACE_PX` beyond the band's inner edge; its thickness less :data:`READ_EXCESS_MM`.
-    The stretches are independent readings of one thickness:
-    with at least :data:`STRETCH_MIN_READ` of them whose sample standard deviation is at most
-    :data:`STRETCH_MAX_SPREAD` of their median, the estimate is that median and its 1-sigma their
-    standard deviation combined with the floor :data:`SIGMA_SHARE` and :data:`SIGMA_FLOOR_MM`
-    (``cue`` ``"wall stretches"``). The label is left 0 for the caller to set.
+    The stretches are separate readings of one thickness, though not independent ones (they share the
+    light and the segmentation): with at least :data:`STRETCH_MIN_READ` of them whose sample standard
+    deviation is at most :data:`STRETCH_MAX_SPREAD` of their median, the estimate is that median and
+    its 1-sigma their standard deviation (whole, not divided by their number) combined with the floor
+    :data:`SIGMA_SHARE` and :data:`SIGMA_FLOOR_MM` (``cue`` ``"wall stretches"``). The label is left 0
+    for the caller to set.
     """
     cut = np.flatnonzero((np.diff(vertex) != 1) | (np.diff(ring) != 0)) + 1
     reads: list[tuple[float, float, float]] = []
