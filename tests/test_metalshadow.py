@@ -16,7 +16,7 @@ from __future__ import annotations
 import numpy as np
 
 from scanmass.segment.colourshadow import colour_sweep, colour_sweep_cut
-from scanmass.segment.metalshadow import METAL_MIN_LEVEL, metal_colour_sweep
+from scanmass.segment.metalshadow import metal_colour_sweep, metal_like
 
 WARM = np.array([0.6, 0.8, 1.0])  # the lamp's colour, channels in the image's order (blue, green, red)
 F_W = 0.4 * WARM / WARM.mean()  # the warm lamp's share of the paper white per channel
@@ -73,12 +73,27 @@ def test_one_light_colour_refused():
     assert metal_colour_sweep(img, mask, np.ones(3), 12.0) is None
 
 
-def test_dark_sectors_are_no_shadow():
-    """The face's dark sectors (0.05 of the paper) lie below the shadow's least level: none is shadow-like,
-    whatever its colour."""
-    img, mask = _scene(F_W, STEEL, np.random.default_rng(3))
-    found = metal_colour_sweep(img, mask, np.ones(3), 12.0)
-    assert found is not None
-    dark = np.zeros_like(mask)
-    dark[25:65, 25:59] = img[25:65, 25:59].mean(axis=2) < METAL_MIN_LEVEL
-    assert dark.any() and not (found.like & dark).any()
+def test_shadow_like_pixels_on_a_line_smooth_and_not_too_dark():
+    """Patches beside a rough face (levels 0.3 +- 50 %) with the shadow lines ``q = 1 - s line``: smooth on a line
+    at 0.4 of the paper, shadow-like; smooth on a line at 0.1 (a face's dark sector there: darker than the umbra of
+    the renders' shadows, :data:`~scanmass.segment.metalshadow.METAL_MIN_LEVEL`), not; smooth at 0.4 but of the
+    face's bluish colour, not (off the lines); on a line but as rough as the face (``s`` speckled), mostly not."""
+    import cv2
+
+    line = np.array([1.05, 1.0, 0.95])  # over its mean
+    rng = np.random.default_rng(5)
+    q = np.clip(0.3 * (1 + 0.5 * rng.standard_normal((80, 60, 1))), 0.01, None) * np.ones(3)  # the rough face
+    q[2:12, 5:55] = 1 - 0.6 * line  # level 0.4, on the line
+    q[68:78, 5:55] = 1 - 0.9 * line  # level 0.1, on the line
+    q[5:75, 2:12] = 0.4 * np.array([1.25, 1.0, 0.75])  # level 0.4, the face's colour
+    s = np.clip(0.6 * (1 + 0.5 * rng.standard_normal((70, 10, 1))), 0.0, 0.8)
+    q[5:75, 48:58] = 1 - s * line  # on the line, speckled
+    q = q.astype(np.float32)
+    mask = np.ones((80, 60), bool)
+    inside = cv2.distanceTransform(np.pad(mask, 1).astype(np.uint8), cv2.DIST_L2, 3)[1:-1, 1:-1]
+    interior = inside > 15
+    like = metal_like(q, mask, interior, inside, np.array([line, line[::-1]]), 20.0)
+    assert like[4:10, 15:45].mean() > 0.95
+    assert not like[70:76, 15:45].any()
+    assert not like[15:65, 4:10].any()
+    assert like[15:65, 50:56].mean() < 0.2
