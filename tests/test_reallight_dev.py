@@ -724,6 +724,63 @@ def test_steel_gasket_open_at_its_lit_stretch_closed_by_its_grain():
 
 
 # ---------------------------------------------------------------------------------
+# brushed steel in mixed light: the shadows swept off by their colour and smoothness (branch steelmix17)
+# ---------------------------------------------------------------------------------
+
+_MIXED_STEEL = [
+    # render, part, bound on |area error|; figures: bench_reallight (thickness given), before -> after branch steelmix17;
+    # truth: the render's outlines (area by shapely)
+    ("dev-mixed-steel2-t15", "l-bracket", 0.055),  # 3 mm: +6.54 % -> +4.66 %, centroid 0.40 -> 0.64 mm
+    ("dev-mixed-steel3-t22", "plate", 0.03),  # 4 mm: +4.07 % -> +1.85 %, centroid 1.28 -> 0.95 mm
+    ("dev-mixed-steel3-t22", "gasket", 0.10),  # 3 mm: +16.04 % -> +7.95 % (its bore's shadow kept), 1.65 -> 1.33 mm
+    ("dev-mixed-steel4-t8", "cam", 0.06),  # 3.5 mm: +9.71 % -> +4.31 %, centroid 0.94 -> 0.59 mm
+    ("mixed-steel-t10", "plate", 0.02),  # 3 mm: +2.62 % -> +1.12 %, centroid 1.67 -> 1.13 mm
+    ("mixed-steel-t20", "disc", 0.02),  # 3 mm: +3.66 % -> +1.02 %, centroid 1.00 -> 0.34 mm
+]
+
+
+@pytest.mark.parametrize("name, shape, rel", _MIXED_STEEL)
+def test_mixed_light_shadows_swept_off_brushed_steel(name, shape, rel):
+    """Brushed steel under a warm lamp and a cool light: each lamp's shadow takes the other's colour, and the
+    face mirrors the lights (its levels spread 3-10 times), so the matte face's colour sweep refused it and
+    the shadow stayed in the part. Swept by the layers near a shadow line, smoother than the face and above
+    its dark sectors' level (``segment/metalshadow.py``), along the direction the photo's sweeps agree on:
+    each part's area nearer the truth than before, warned as a mixed-light cut with the cut's term, and
+    within 3 stated sigma."""
+    m, part, tp = _part(name, shape)
+    assert abs(part.area_mm2 - tp["area"]) < rel * tp["area"]
+    assert "shadow_cut" in part.uncertainty_terms
+    assert any(w.startswith("mixed light:") and f" {part.label}" in w for w in m.warnings)
+    assert _covered(part, tp)
+
+
+def test_shadow_alone_not_swept_as_a_metal_face():
+    """window-mixed-t0 measured at the white disc's 3 mm (the disc itself is not found): the disc's shadow is
+    found as a region whose levels spread as a metal face's, and a metal sweep cut 76 mm2 of it and reported
+    the rest (86 mm2) as a part. A region that looks like a shadow alone and is no wider than one is not swept:
+    every region where the disc lies is named 'shadow only', as before the metal sweep (truth: the render's
+    disc outline, its centroid by shapely)."""
+    tp = _truth("window-mixed-t0", "disc")
+    m = scanmass.measure(tp["image"], thickness_mm=3.0)
+    said = next(w for w in m.warnings if w.startswith("shadow only:"))
+    near = [q for q in m.parts if math.dist(q.centroid_mm, tp["centroid"]) < 25.0]
+    assert near and all(f"part {q.label} (" in said for q in near)
+    assert not any(w.startswith("mixed light:") for w in m.warnings)
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="mixed-steel-t20: the brushed cam 4 mm thick: its shadow is swept off by colour (branch steelmix17), "
+    "but the deep-hole search then fits a 9.5 mm opening to a dark sector of its face beside the bore (a pit "
+    "2.2 mm across flagged as a possible hidden hole before the cut): -7.01 % in area (was +7.10 %, the shadow "
+    "kept), 0.6 sigma",
+)
+def test_mixed_light_steel_cam_within_3_percent():
+    m, part, tp = _part("mixed-steel-t20", "cam")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]
+
+
+# ---------------------------------------------------------------------------------
 # a hole's edge against its own wall's shadow on a scan: both sides move together (branch thickholes12)
 # ---------------------------------------------------------------------------------
 

@@ -36,6 +36,7 @@ from scanmass.segment.castshadow import (
     sweep_direction,
 )
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
+from scanmass.segment.metalshadow import metal_colour_sweep
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
     ShadowRisk,
@@ -246,7 +247,11 @@ SWEEP_AGREE_DEG = 30.0
 def _own_colour_sweep(
     image: LoadedImage, scale: PhotoScale, part: Part, band_px: float, lut: np.ndarray, colour: np.ndarray
 ) -> ColourSweep | None:
-    """A part's own sweep by colour (:func:`~scanmass.segment.colourshadow.colour_sweep`) in its crop, or None."""
+    """A part's own sweep by colour in its crop, or None.
+
+    A matte face's (:func:`~scanmass.segment.colourshadow.colour_sweep`), else a metal face's
+    (:func:`~scanmass.segment.metalshadow.metal_colour_sweep`: the shadow-like layers smoother than the face).
+    """
     crop = _part_crop(image, scale, part, int(band_px) + 16)
     if crop is None:
         return None
@@ -255,7 +260,9 @@ def _own_colour_sweep(
     risk = shadow_risk(colour_lin, mask, band_px)
     if risk is None:
         return None
-    return colour_sweep(colour_lin, mask, risk.paper_rgb, band_px)
+    found = colour_sweep(colour_lin, mask, risk.paper_rgb, band_px)
+    # a metal face (refused by the matte sweep: its levels spread) by its shadows' colour and smoothness
+    return found if found is not None else metal_colour_sweep(colour_lin, mask, risk.paper_rgb, band_px)
 
 
 def _agreed_direction(sweeps: list[ColourSweep]) -> np.ndarray | None:
@@ -364,6 +371,7 @@ def _decide_cuts(
         reached = reached or wall is not None or (risk is not None and risk.fraction >= SHADOW_FRACTION)
         cut = None
         coloured = False  # a cut by the shadows' colour (mixed light), not by their grain
+        metal = False  # such a cut of a metal face (its dark sectors are no holes' bottoms)
         dark = risk is not None and dark_tinted_face(colour_lin, mask, risk.paper_rgb, band_px)
         if dark and risk is not None:
             # a dark plastic face: its shadow is cut on the outline where the photo shows it (a
@@ -457,11 +465,16 @@ def _decide_cuts(
                 cut = short
         if phase == 2 and risk is not None:
             own = sweeps.get(id(part))
+            if own is not None and own.metal and alone and not wide:
+                # a region that looks like a shadow alone and is no wider than one (a white part's, the part
+                # not found: window-mixed-t0): a metal face's sweep would leave a piece of it as a part
+                own = None
             if own is not None and photo_dir is not None and own.like.shape == mask.shape:
                 if float(np.asarray(own.direction) @ photo_dir) >= math.cos(math.radians(SWEEP_AGREE_DEG)):
                     d = (float(photo_dir[0]), float(photo_dir[1]))
                     cut = colour_sweep_cut(colour_lin, mask, risk.paper_rgb, band_px, own, d)
                     coloured = cut is not None
+                    metal = coloured and own.metal
                     if coloured:
                         by_colour.add(id(part))
         elif (
@@ -510,7 +523,7 @@ def _decide_cuts(
                     near = cv2.dilate(cut.cut.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
                     top_seen[y0:y1, x0:x1] |= near
                 bottoms_px = 0.0
-                if thickness_mm is not None and top_seen is not None and risk is not None:
+                if thickness_mm is not None and top_seen is not None and risk is not None and not metal:
                     # a dark plastic part whose shadow was cut: the dark bottoms and walls of its
                     # through-holes open as holes, seen on their top edges
                     bottoms = hole_bottoms(colour_lin, mask & ~cut.cut, risk.paper_rgb)

@@ -349,12 +349,15 @@ class ColourSweep:
         Those net votes (shadow-like pixels less the others in the run's layers).
     length_px : int
         The run's length (layers) along ``direction``.
+    metal : bool
+        Whether the face is a metal's (:func:`~scanmass.segment.metalshadow.metal_colour_sweep`), not matte.
     """
 
     like: np.ndarray
     direction: tuple[float, float]
     score: float
     length_px: int
+    metal: bool = False
 
 
 def _colour_run(outer8: np.ndarray, direction: np.ndarray, like: np.ndarray, reach_px: float) -> tuple[int, float]:
@@ -385,7 +388,8 @@ def colour_sweep(
     shadow-like pixels net (each layer at least half of them, within the reach) finds its side and
     its depth, and scattered face pixels hold up no such run. A face whose levels spread as a
     metal's do (over :data:`_FACE_LEVEL_SPREAD` times) mirrors the lights and the room: its own
-    pixels take the lines' colours in runs as well, and it is refused.
+    pixels take the lines' colours in runs as well, and it is refused here
+    (:func:`~scanmass.segment.metalshadow.metal_colour_sweep` sweeps it by the shadows' smoothness as well).
 
     Returns
     -------
