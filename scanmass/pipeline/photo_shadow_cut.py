@@ -26,16 +26,9 @@ from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
-from scanmass.segment.castshadow import (
-    core_cut,
-    dark_tinted_face,
-    fade_cut,
-    hole_bottoms,
-    lit_beyond,
-    shadow_cut,
-    sweep_direction,
-)
+from scanmass.segment.castshadow import core_cut, shadow_cut, sweep_direction
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
+from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
 from scanmass.segment.metalshadow import metal_colour_sweep
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -46,6 +39,7 @@ from scanmass.segment.shadow import (
     too_wide_for_shadow,
 )
 from scanmass.segment.sidewall import LostWall, lost_wall_band
+from scanmass.segment.softshadow import fade_cut, lit_beyond
 
 #: The stated doubt (1 sigma, px) of where the outline runs along a stretch cut from a cast
 #: shadow (:func:`~scanmass.segment.castshadow.shadow_cut`). On the committed renders

@@ -53,8 +53,9 @@ showed: :func:`core_cut`, :func:`sweep_direction`). Its pieces live beside it:
 :mod:`~scanmass.segment.shadowlayer` (the cut found, the grain, the sweep's layers, a cut settled
 in its region), :mod:`~scanmass.segment.shadowsweep` (the sweep's direction and length),
 :mod:`~scanmass.segment.softshadow` (a soft shadow's fade, core and the paper past a cut) and
-:mod:`~scanmass.segment.darkface` (dark and tinted matte faces, hole bottoms); the names callers
-import from here are re-exported.
+:mod:`~scanmass.segment.darkface` (dark and tinted matte faces, hole bottoms). The public names of
+those pieces listed in ``__all__`` stay importable from here; the package imports each name from
+the module that defines it.
 """
 
 from __future__ import annotations
@@ -72,7 +73,6 @@ from scanmass.segment.darkface import (
     dark_tinted_face,
     hole_bottoms,
 )
-from scanmass.segment.shadowlayer import _LEVEL_STEP_RATIO as _LEVEL_STEP_RATIO
 from scanmass.segment.shadowlayer import (
     _MAX_DEPTH,
     CUT_MIN_TEXTURE_RATIO,
@@ -89,8 +89,6 @@ from scanmass.segment.shadowlayer import (
     _with_rim,
     roughness,
 )
-from scanmass.segment.shadowlayer import CUT_MAX_SHARE as CUT_MAX_SHARE
-from scanmass.segment.shadowlayer import _new_layers as _new_layers
 from scanmass.segment.shadowsweep import (
     _FACE_WINDOW_HOLE_SHARE,
     _FACE_WINDOW_PX,
@@ -98,11 +96,8 @@ from scanmass.segment.shadowsweep import (
     _dark_sweep,
     _sweep_depth,
 )
-from scanmass.segment.shadowsweep import _SUSTAIN as _SUSTAIN
 from scanmass.segment.softshadow import _FADE_LEVEL_RATIO, _fade_beyond, _grainy_core, _lit_beyond, fade_cut, lit_beyond
 
-# the names imported "as" themselves above are re-exported too: colourshadow and hiddenshadow import them
-# from here, and other modules' docstrings name them here
 __all__ = [
     "ShadowCut",
     "roughness",
@@ -168,7 +163,7 @@ def shadow_cut(
         None when no shadow layer is found or it cannot be told from the face: the face as
         rough as the shadow (less than :data:`CUT_MIN_TEXTURE_RATIO` apart), a sweep longer
         than ``reach_px`` or holding more than :data:`CUT_MAX_FACE_SHARE` face-like pixels,
-        too little face left, or a cut of more than :data:`CUT_MAX_SHARE` of the region.
+        too little face left, or a cut of more than :data:`~scanmass.segment.shadowlayer.CUT_MAX_SHARE` of the region.
 
     Examples
     --------

@@ -45,7 +45,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-from scanmass.segment.castshadow import (
+from scanmass.segment.shadowlayer import (
     STRETCH_PX,
     ShadowCut,
     _filled,

@@ -16,7 +16,8 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
-from scanmass.segment.castshadow import _LEVEL_STEP_RATIO, _SUSTAIN, STRETCH_PX, roughness
+from scanmass.segment.shadowlayer import _LEVEL_STEP_RATIO, STRETCH_PX, roughness
+from scanmass.segment.shadowsweep import _SUSTAIN
 
 __all__ = ["HiddenShadow", "hidden_shadow"]
 

@@ -32,7 +32,6 @@ from __future__ import annotations
 import cv2
 import numpy as np
 
-from scanmass.segment.castshadow import _filled, roughness
 from scanmass.segment.colourshadow import (
     SWEEP_DIRECTIONS,
     SWEEP_MAX_FACE_TINT,
@@ -42,6 +41,7 @@ from scanmass.segment.colourshadow import (
     _line_distance,
     shadow_lines,
 )
+from scanmass.segment.shadowlayer import _filled, roughness
 
 __all__ = ["metal_colour_sweep", "METAL_LINE_TOL", "METAL_GRAIN_SHARE", "METAL_MIN_LEVEL_SPREAD"]
 
