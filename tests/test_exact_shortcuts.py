@@ -109,6 +109,42 @@ def test_chamfer_windows_read_every_threshold_as_the_whole_crop() -> None:
     assert smaller > 500  # most windows are smaller than the crop
 
 
+def test_chamfer_at_least_is_the_transforms_threshold(monkeypatch) -> None:
+    """closed_slots' inside thresholds by an erosion: the same pixels as OpenCV's 5 x 5 chamfer
+    transform of the mask compared with the level (reference: cv2.distanceTransform of the whole
+    mask), at random levels, at whole-number levels (straight paths' exact lengths), at every path
+    length below 20 px that the transform itself gives (the ties, decided on the transform), on
+    random masks inside, across and filling the crop, on views starting at odd columns, and eroded
+    in bands of 256, 7 and 1 rows (the masks are up to 240 rows tall)."""
+    from scanmass.segment import thin
+    from scanmass.segment.thin import CHAMFER_ERODE_MAX_PX, _clear_of_path_lengths, chamfer_at_least
+
+    one = np.ones((61, 61), np.uint8)
+    one[30, 30] = 0
+    lengths = np.unique(cv2.distanceTransform(one, cv2.DIST_L2, 5))
+    ties = [float(v) for v in lengths if 0.0 < v < 20.0]
+    assert 3.0 in ties and 6.0 in ties and any(abs(v - 2.8) < 1e-5 for v in ties)
+    # a whole number is clear of every path with a diagonal or long step below 20 px; a mixed length is not
+    assert _clear_of_path_lengths(6.0) and _clear_of_path_lengths(3.0)
+    assert not _clear_of_path_lengths(float(np.float32(2.8)))
+    rng = np.random.default_rng(17)
+    eroded = 0
+    for case, m, _ in _random_masks(21, 300):
+        if case % 50 == 0:
+            m[:] = 1 if case % 100 == 0 else 0  # a full crop and an empty one
+        levels = [float(rng.uniform(0.2, 14.0)) for _ in range(3)] + [3.0, 6.0, float(rng.choice(ties))]
+        levels.append(float(rng.uniform(CHAMFER_ERODE_MAX_PX, 40.0)))  # above the erosion's limit
+        for rows, view in ((256, m), (7, m), (1, m[:, 1:]), (256, m[:, 3:])):
+            if view.shape[1] < 2:
+                continue
+            monkeypatch.setattr(thin, "CHAMFER_BAND_ROWS", rows)
+            whole = cv2.distanceTransform(view, cv2.DIST_L2, 5)
+            for level in levels:
+                eroded += int(level <= CHAMFER_ERODE_MAX_PX and _clear_of_path_lengths(level))
+                assert np.array_equal(chamfer_at_least(view, level), whole >= level), (case, rows, level)
+    assert eroded > 4000  # most levels were decided by the erosion
+
+
 def _seam_reference(codes, lut, bg, fg, core, seam_level, least) -> int:
     """The seam test as split_touching runs it in full: pieces of at least ``least`` px of the blurred solid."""
     smooth = cv2.LUT(codes, ((lut - bg) / (fg - bg)).astype(np.float32))

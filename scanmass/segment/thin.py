@@ -238,6 +238,93 @@ def chamfer_windows(mask: np.ndarray, reach: float) -> tuple[tuple[slice, slice]
     return out[0], out[1]
 
 
+#: OpenCV's weights of the 5 x 5 chamfer steps (1, 1 and 2 px across) as float32, the values its
+#: transform adds (a one-pixel-from-zero map reads 1.0, 1.4f and 2.1969f).
+CHAMFER_WEIGHTS = (1.0, float(np.float32(1.4)), float(np.float32(2.1969)))
+
+#: Least gap (px) between a level and every chamfer path's length with a diagonal or long step for
+#: :func:`chamfer_at_least` to decide by an erosion: the float32 sums of fewer than 32 steps (a
+#: length under 32 px) stay within 32 half units in the last place (2^-19 px each) of the exact
+#: lengths, under 4e-5 px, so no such path compares with the level otherwise (a path of straight
+#: steps alone sums whole numbers, exactly).
+CHAMFER_CLEAR_PX = 1e-4
+
+#: Largest level :func:`chamfer_at_least` decides by an erosion (larger: the transform itself).
+CHAMFER_ERODE_MAX_PX = 24.0
+
+#: Rows :func:`chamfer_at_least` erodes at a time.
+CHAMFER_BAND_ROWS = 256
+
+
+def _clear_of_path_lengths(level: float) -> bool:
+    """Whether ``level`` (as float32) lies :data:`CHAMFER_CLEAR_PX` or more from the exact length of every
+    chamfer path with a diagonal or long step (the float32 weights' sums, in float64)."""
+    at = float(np.float32(level))
+    w1, w2, w3 = CHAMFER_WEIGHTS
+    a = np.arange(int(at / w1) + 2, dtype=float)[:, None, None]
+    b = np.arange(int(at / w2) + 2, dtype=float)[None, :, None]
+    c = np.arange(int(at / w3) + 2, dtype=float)[None, None, :]
+    lengths = a * w1 + b * w2 + c * w3  # every mix of steps up to just past the level
+    lengths[:, 0, 0] = np.inf  # straight steps alone: whole numbers, summed exactly
+    return bool(np.min(np.abs(lengths - at)) >= CHAMFER_CLEAR_PX)
+
+
+def chamfer_ball(level: float) -> np.ndarray:
+    """The offsets whose 5 x 5 chamfer length is below ``level``: a 0/1 uint8 kernel centred on (0, 0).
+
+    Read off OpenCV's own transform (``cv2.distanceTransform(..., cv2.DIST_L2, 5)``) of a
+    square with one zero pixel in its middle, compared with ``level`` as any of its maps
+    is (float32 against the float). Every step of a chamfer path costs at least its
+    Chebyshev length (1, 1.4 or 2.1969 for 1, 1 or 2 px across), so the offsets below
+    ``level`` lie within ``ceil(level)`` px (Chebyshev) of the middle, inside the square.
+    """
+    reach = max(int(math.ceil(level)), 0) + 2
+    grid = np.ones((2 * reach + 1, 2 * reach + 1), np.uint8)
+    grid[reach, reach] = 0
+    return (cv2.distanceTransform(grid, cv2.DIST_L2, 5) < level).view(np.uint8)
+
+
+def chamfer_at_least(mask: np.ndarray, level: float) -> np.ndarray:
+    """``cv2.distanceTransform(mask, cv2.DIST_L2, 5) >= level`` of a 0/1 uint8 mask (bool), by an erosion.
+
+    The transform is two raster passes over the array, each pixel the least of 0 (a zero
+    pixel) and its already visited neighbours' values plus the step's weight: each pixel's
+    value is the float32 length of a cheapest chamfer path from a zero pixel (G.
+    Borgefors [1]_; a cheapest path between two pixels stays within their bounding box,
+    inside the array). Where ``level`` lies :data:`CHAMFER_CLEAR_PX` or more from every
+    exact path length (:func:`_clear_of_path_lengths`), the float32 sums compare with it
+    as the exact lengths do, so a pixel's value is at least ``level`` exactly where no
+    zero pixel lies at an offset whose length is below it, whatever its place: the
+    erosion of the mask by :func:`chamfer_ball` (no zero pixel outside the array, as the
+    transform takes it), :data:`CHAMFER_BAND_ROWS` rows at a time, each band eroded with
+    the rows the ball reaches above and below it. A pass of a small kernel instead of the
+    transform's float map and its comparison; a level on (or within that gap of) a path's
+    length, or above
+    :data:`CHAMFER_ERODE_MAX_PX`, is compared on the transform itself.
+    ``tests/test_exact_shortcuts.py`` compares the two on random masks.
+
+    References
+    ----------
+    .. [1] G. Borgefors, "Distance transformations in digital images", Computer Vision,
+       Graphics, and Image Processing 34(3), 344-371, 1986.
+    """
+    if level <= 0.0:
+        return np.ones(mask.shape, bool)
+    if level > CHAMFER_ERODE_MAX_PX or not _clear_of_path_lengths(level):
+        return np.asarray(cv2.distanceTransform(mask, cv2.DIST_L2, 5) >= level)
+    ball = chamfer_ball(level)
+    reach = ball.shape[0] // 2
+    out = np.empty(mask.shape, np.uint8)
+    # a band of rows at a time, each eroded with the rows the ball reaches beyond it (the band's
+    # rows stay in the cache: faster than one erosion of the whole mask)
+    for r0 in range(0, mask.shape[0], CHAMFER_BAND_ROWS):
+        r1 = min(r0 + CHAMFER_BAND_ROWS, mask.shape[0])
+        a0, a1 = max(r0 - reach, 0), min(r1 + reach, mask.shape[0])
+        eroded = cv2.erode(mask[a0:a1], ball, borderType=cv2.BORDER_CONSTANT, borderValue=1)
+        out[r0:r1] = eroded[r0 - a0 : r1 - a0]
+    return out.view(bool)
+
+
 def _band(values: np.ndarray, low: float | None, high: float | None, rows: int = 256) -> np.ndarray:
     """``(values >= low) & (values <= high)`` (either bound left out when None), built a block of rows at a time.
 
@@ -320,10 +407,7 @@ def closed_slots(
     # thresholded at once and dropped; the thresholded maps stay window-sized (beyond the
     # inside window no pixel is inside, beyond the outside one every pixel is far outside)
     inner, outer = chamfer_windows(mask, tail + 12.0)
-    inside = cv2.distanceTransform(mask[inner], cv2.DIST_L2, 5)
-    thick = inside >= tail + 1
-    in_region = inside >= away
-    del inside
+    thick = chamfer_at_least(mask[inner], tail + 1)  # the inside map's thresholds: erosions, no float map
     if np.count_nonzero(thick) < 60:
         return none, []
     # each surface is fitted as soon as its samples are known and they are dropped (the fit
@@ -337,6 +421,9 @@ def closed_slots(
     bg_fit = _window_fit(_band(outside, tail + 2, tail + 12), outer, codes, table)
     sides = _two_sides(outside, away, away + 2.0)
     del outside
+    # made after the float map is dropped: its block of memory is not split (the process's peak
+    # stays where the transform of the inside had it)
+    in_region = chamfer_at_least(mask[inner], away)
     out_region = (sides & 1).view(bool)  # outside >= away
     attach_w = (sides >> 1).view(bool)  # outside <= away + 2
     del sides
