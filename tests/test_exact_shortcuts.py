@@ -498,8 +498,11 @@ def test_edge_and_pit_checks_read_the_same_levels_from_code_counts() -> None:
         assert dark_pits(lin, mask.astype(bool), 10.0) == dark_pits(lin, mask.astype(bool), 10.0, levels=(codes, table))
 
 
-def _plain_pair_scores(grad: np.ndarray, s_px: np.ndarray, band_px: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """The wall-band score as first written: a running strict maximum over the start offsets, one at a time."""
+def _plain_pair_scores(
+    grad: np.ndarray, s_px: np.ndarray, band_px: np.ndarray, inward_px: float = 0.0
+) -> tuple[np.ndarray, np.ndarray]:
+    """The wall-band score as first written: a running strict maximum over the start offsets, one at a time
+    (``inward_px``: the start offsets run that much further inside the outline)."""
     from scanmass.pipeline.photo_thickness import PROFILE_STEP_PX
 
     n, m = grad.shape
@@ -507,10 +510,11 @@ def _plain_pair_scores(grad: np.ndarray, s_px: np.ndarray, band_px: np.ndarray) 
     zero = int(np.searchsorted(s_px, 0.0))
     pad = int(round(1.5 / PROFILE_STEP_PX))
     best, where, rows = np.full(n, -1.0), np.zeros(n), np.arange(n)
+    inward = int(round(inward_px / PROFILE_STEP_PX))
     lo = np.maximum(zero - shift - pad, 0)
-    for off in range(0, int(shift.max()) + 2 * pad + 1):
+    for off in range(0, int(shift.max()) + 2 * pad + inward + 1):
         i0 = lo + off
-        ok = (i0 <= zero + pad) & (i0 + shift < m)
+        ok = (i0 <= zero + pad + inward) & (i0 + shift < m)
         i0c = np.minimum(i0, m - 1)
         a, b = grad[rows, i0c], grad[rows, np.minimum(i0c + shift, m - 1)]
         c = grad[rows, np.minimum(i0c + shift // 2, m - 1)]
@@ -533,8 +537,9 @@ def test_wall_pair_scores_all_offsets_at_once_match_the_running_maximum():
             grad[:, :] = 0.0  # nothing scores above zero
         s_px = (np.arange(m) - m // 2) * 0.25
         band = rng.random(n) * (m * 0.3)
-        best, where = _pair_scores(grad, s_px, band)
-        best0, where0 = _plain_pair_scores(grad, s_px, band)
+        inward = 0.0 if trial % 2 else float(rng.random() * 10.0)  # the second try's reach inside the outline
+        best, where = _pair_scores(grad, s_px, band, inward)
+        best0, where0 = _plain_pair_scores(grad, s_px, band, inward)
         assert best.dtype == best0.dtype and np.array_equal(best, best0), trial
         assert np.array_equal(where, where0), trial
 
