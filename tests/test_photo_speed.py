@@ -7,6 +7,8 @@ OpenCV's colour decode of a grey file.
 
 from __future__ import annotations
 
+import dataclasses
+
 import cv2
 import numpy as np
 from PIL import Image
@@ -14,6 +16,7 @@ from PIL import Image
 from scanmass.load.decode import load_image
 from scanmass.pipeline import photo_checks
 from scanmass.pipeline.photo_checks import GREY_CHECK_ROWS, _filled_box, _grey_planes, _photo_colour
+from scanmass.scale.planemap import PlaneMap, project
 from scanmass.segment.brightface import grain_residual
 
 
@@ -97,3 +100,17 @@ def test_filled_box_is_the_whole_images_fill() -> None:
         (x0, y0, x1, y1), mask = _filled_box(poly, (h, w))
         assert np.array_equal(full[y0:y1, x0:x1], mask), case
         assert int(mask.sum()) == int(full.sum()), case
+
+
+def test_plane_map_to_px_is_the_inverse_matrix_each_time() -> None:
+    # reference: numpy's inverse of the map's own matrix, made afresh for every call (as before the cache)
+    rng = np.random.default_rng(2)
+    matrix = np.array([[0.1, 0.004, -3.0], [0.002, -0.1, 250.0], [1e-5, -2e-5, 1.0]])
+    plane = PlaneMap(matrix, "mat", 0.005)
+    for _ in range(3):
+        pts = rng.uniform(-50.0, 300.0, (20, 2))
+        assert np.array_equal(plane.to_px(pts), project(np.linalg.inv(matrix), pts))
+    moved = dataclasses.replace(plane, matrix=matrix * [[2.0], [2.0], [1.0]])  # another map: its own inverse
+    pts = rng.uniform(-50.0, 300.0, (5, 2))
+    assert np.array_equal(moved.to_px(pts), project(np.linalg.inv(moved.matrix), pts))
+    assert not np.array_equal(moved.to_px(pts), plane.to_px(pts))
