@@ -223,14 +223,19 @@ def _median(lin: np.ndarray, mask: np.ndarray, levels: tuple[np.ndarray, np.ndar
     return float(np.median(lin[mask])) if levels is None else code_median(levels[0], mask, levels[1])
 
 
+def _labels_seen(labels: np.ndarray, count: int, near: np.ndarray) -> np.ndarray:
+    """Per label 0 .. ``count`` - 1: whether it occurs within ``near`` (the set ``np.unique(labels[near])``,
+    counted by ``np.bincount`` instead of sorted or hashed)."""
+    return np.bincount(labels[near].ravel(), minlength=count)[:count] > 0
+
+
 def _labels_near(labels: np.ndarray, count: int, near: np.ndarray) -> np.ndarray:
     """The union of the labelled components (labels 1 to ``count - 1``) with a pixel in ``near``.
 
     The labels seen within ``near`` are the components that reach it: one pass over the crop,
     not one comparison of the whole crop per component.
     """
-    chosen = np.zeros(count, bool)
-    chosen[np.unique(labels[near])] = True
+    chosen = _labels_seen(labels, count, near)
     chosen[0] = False
     return chosen[labels]
 
@@ -249,7 +254,7 @@ def _grown_near(
     height, width = labels.shape
     reach = grow // 2
     kernel = np.ones((grow, grow), np.uint8)
-    seen = np.unique(labels[near])
+    seen = np.flatnonzero(_labels_seen(labels, int(stats.shape[0]), near))
     for k in seen[seen > 0].tolist():
         x, y, w, h = (int(v) for v in stats[k, :4])
         x0, y0 = max(x - reach, 0), max(y - reach, 0)
