@@ -56,7 +56,8 @@ def _mask_outside(image: LoadedImage, roi_px: np.ndarray) -> LoadedImage:
     values = window[band]
     level = np.median(values) if values.size else np.median(window[inner])
     grey = np.full_like(image.grey, np.asarray(level, dtype=image.grey.dtype))
-    np.copyto(grey[y0:y1, x0:x1], window, where=mask.astype(bool))
+    if mask.size:
+        cv2.copyTo(window, mask, grey[y0:y1, x0:x1])  # the window's pixels within the clear area, in place
     return replace(image, grey=grey)
 
 
@@ -135,17 +136,49 @@ def _unknown_thickness(
     ]
 
 
+#: Pillow modes of files with one grey band (and the 16-bit ones, "I;16..."): OpenCV decodes them in
+#: colour as three copies of it.
+GREY_FILE_MODES = ("1", "L", "I", "F")
+#: Rows of the colour planes compared at a time (:func:`_grey_planes`): a band's comparison stays in
+#: the processor's cache, and a colour photo is told from its first band.
+GREY_CHECK_ROWS = 64
+
+
+def _grey_planes(colour: np.ndarray) -> bool:
+    """Whether a (H, W, 3) image's three planes are equal at every pixel (a grey photo).
+
+    ``np.array_equal`` of the planes, band by band of :data:`GREY_CHECK_ROWS` rows: the same
+    answer, stopping at the first band that differs.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> grey = np.repeat(np.arange(200, dtype=np.uint8).reshape(100, 2, 1), 3, axis=2)
+    >>> _grey_planes(grey), _grey_planes(np.where(np.arange(3) == 2, grey, grey // 2).astype(np.uint8))
+    (True, False)
+    """
+    for y in range(0, colour.shape[0], GREY_CHECK_ROWS):
+        band = colour[y : y + GREY_CHECK_ROWS]
+        if not (np.array_equal(band[..., 0], band[..., 1]) and np.array_equal(band[..., 1], band[..., 2])):
+            return False
+    return True
+
+
 def _photo_colour(image: LoadedImage) -> np.ndarray | None:
-    """The photo's colour planes (encoded, as stored), or None for arrays, grey files or a size mismatch."""
-    if image.path is None:
+    """The photo's colour planes (encoded, as stored), or None for arrays, grey files or a size mismatch.
+
+    A file of one grey band (:data:`GREY_FILE_MODES`) is not decoded again: in colour it would
+    show three equal planes, a grey photo.
+    """
+    mode = image.mode or ""
+    if image.path is None or mode in GREY_FILE_MODES or mode.startswith("I;16"):
         return None
     colour = cv2.imread(image.path, cv2.IMREAD_COLOR)  # applies the EXIF orientation, as the loader does
     if colour is None or colour.ndim != 3 or colour.shape[:2] != image.grey.shape:
         return None
     if colour.dtype != np.uint8 or len(image.to_linear) != 256:
         return None
-    b, g, r = colour[..., 0], colour[..., 1], colour[..., 2]
-    if np.array_equal(b, g) and np.array_equal(g, r):
+    if _grey_planes(colour):
         return None  # a grey photo: colour tells nothing
     return colour
 
@@ -336,6 +369,29 @@ SURROUND_PX = (3, 9)
 SURROUND_SHARE = 0.8
 
 
+def _filled_box(poly_px: np.ndarray, shape: tuple[int, int]) -> tuple[tuple[int, int, int, int], np.ndarray]:
+    """A polygon (px, rounded) filled with 1 in its bounding box clipped to an image of ``shape``.
+
+    Returns the box (x0, y0, x1, y1) and the uint8 mask there: the image's filled polygon within the
+    box, which is empty beyond it (OpenCV fills the same pixels moved by a whole offset).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> box, mask = _filled_box(np.array([[-5.0, 2.0], [6.0, 2.0], [6.0, 4.0]]), (10, 10))
+    >>> box, int(mask.sum())
+    ((0, 2, 7, 5), 14)
+    """
+    height, width = shape
+    poly = np.round(poly_px).astype(np.int32)
+    x0, y0 = (min(max(int(v), 0), n) for v, n in zip(poly.min(axis=0), (width, height)))
+    x1, y1 = (min(max(int(v) + 1, 0), n) for v, n in zip(poly.max(axis=0), (width, height)))
+    mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+    if mask.size:
+        cv2.fillPoly(mask, [poly], 1, offset=(-x0, -y0))
+    return (x0, y0, x1, y1), mask
+
+
 def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measurement) -> list[tuple[int, float]]:
     """Per part: its label and the share of the band beyond its outline brighter than the paper.
 
@@ -347,9 +403,8 @@ def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measuremen
     lut = np.asarray(image.to_linear, np.float32)
     grey = image.grey
     height, width = grey.shape
-    inside = np.zeros((height, width), np.uint8)
-    cv2.fillPoly(inside, [np.round(scale.roi_px).astype(np.int32)], 1)
-    paper = _code_percentile(grey, inside, lut, 90)
+    (rx0, ry0, rx1, ry1), inside_box = _filled_box(scale.roi_px, (height, width))
+    paper = _code_percentile(grey[ry0:ry1, rx0:rx1], inside_box, lut, 90)
     pad = SURROUND_PX[1] + 1
     out = []
     for part in result.parts:
@@ -364,7 +419,11 @@ def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measuremen
         cv2.fillPoly(mask, [poly - np.array([x0, y0], np.int32)], 1)
         near = cv2.dilate(mask, np.ones((2 * SURROUND_PX[0] + 1,) * 2, np.uint8)).astype(bool)
         far = cv2.dilate(mask, np.ones((2 * SURROUND_PX[1] + 1,) * 2, np.uint8)).astype(bool)
-        band = far & ~near & inside[y0:y1, x0:x1].astype(bool)
+        inside = np.zeros((y1 - y0, x1 - x0), bool)  # the clear area in the part's box
+        ix0, iy0, ix1, iy1 = max(x0, rx0), max(y0, ry0), min(x1, rx1), min(y1, ry1)
+        if ix1 > ix0 and iy1 > iy0:
+            inside[iy0 - y0 : iy1 - y0, ix0 - x0 : ix1 - x0] = inside_box[iy0 - ry0 : iy1 - ry0, ix0 - rx0 : ix1 - rx0]
+        band = far & ~near & inside
         if np.count_nonzero(band) < 20:
             continue
         out.append(

@@ -15,6 +15,7 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -277,10 +278,17 @@ class PlaneMap:
             pts = self.undistort(pts)
         return project(self.matrix, pts)
 
+    @cached_property
+    def _inverse(self) -> np.ndarray:
+        """The matrix's inverse, made once per map (a photo's checks map rings back to pixels often)."""
+        inverse = np.linalg.inv(self.matrix)
+        inverse.flags.writeable = False
+        return inverse
+
     def to_px(self, points_mm: np.ndarray | list) -> np.ndarray:
         """Inverse of :meth:`to_mm` (without lens distortion)."""
         pts = np.asarray(points_mm, dtype=float).reshape(-1, 2)
-        return project(np.linalg.inv(self.matrix), pts)
+        return project(self._inverse, pts)
 
     def local_mm_per_px(self, points_px: np.ndarray) -> np.ndarray:
         """Local length scale (mm per px, geometric mean of the two axes) at each pixel point."""
