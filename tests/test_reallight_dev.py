@@ -1329,22 +1329,3 @@ def test_thin_brass_face_against_its_shadow_placed_by_its_tint(name, shape, was)
     assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"], was
     assert "shadow_cut" in part.uncertainty_terms
     assert _covered(part, tp)
-
-
-@pytest.mark.parametrize(
-    ("name", "was"),
-    [
-        ("dev-spot-steel4-t28", -2.95),  # a brass disc 3 mm thick beside a steel bracket
-        ("dev-spot-brass4-t17", +2.10),  # a brass disc 3.5 mm thick beside a brass bracket
-    ],
-)
-def test_brass_discs_3_to_3_5_mm_under_the_spot_placed_by_their_tint(name, was):
-    """Brass discs 3-3.5 mm thick under the hard spot: their cast shadow was cut by its grain and level only (the
-    tint's cut was for parts up to 2.5 mm while it took the side wall as seen on the top edge): was ``was`` % in
-    area (bench_reallight). With the wall, yellow in its own shade, kept with the face and its outline mapped on
-    the wall's foot, the tint places the cut (branch brass17): now within 2 % (+1.65 %, +0.43 %), covered by the
-    stated uncertainty. Truth: the render's outlines (area and centroid by shapely)."""
-    m, part, tp = _part(name, "disc")
-    assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"], was
-    assert "shadow_cut" in part.uncertainty_terms
-    assert _covered(part, tp)

@@ -78,13 +78,11 @@ CUT_SWING_SHARE = 0.05
 
 
 #: Thickest part (mm, given) whose cast-shadow cut is placed again by its tint
-#: (:func:`~scanmass.segment.colourshadow.tint_cut`): the tint keeps the side wall (yellow in its own shade) with
-#: the face, and the outline beside the cut is mapped on the wall's foot. On the committed spot renders
-#: (tests/data/reallight) the 3-3.5 mm brass parts gain by it (dev-spot-steel4-t28's disc -2.95 -> +1.65 %,
-#: dev-spot-brass4-t17's disc +2.10 -> +0.43 %, the others unchanged), the 4 mm plates lose (spot-brass-t10's
-#: +0.06 -> +12.9 %, lens-spot-brass-t30's -0.13 -> +1.25 %; not traced yet). It was 2.5 mm while the cut took the wall as seen on
-#: the top edge (the 3.5-4.5 mm parts then read +2.1 to +8.3 %).
-TINT_CUT_MAX_THICKNESS_MM = 3.5
+#: (:func:`~scanmass.segment.colourshadow.tint_cut`): a thicker part's shaded side wall facing the camera is of
+#: the face's colour, and the cut must take it with the shadow (the outline then runs on the top edge). On the
+#: committed spot renders (tests/data/reallight) the tint kept it on the 3.5-4.5 mm brass parts: +2.1 % to
+#: +4.3 % (dev-spot-brass4-t17's disc), -2.0 % to +8.3 % (dev-spot-brass5-t24's cam) in area.
+TINT_CUT_MAX_THICKNESS_MM = 2.5
 
 
 #: Vertices on each side of a vertex whose chord gives its normal for :func:`_lost_wall`'s neutral
