@@ -366,7 +366,6 @@ def _decide_cuts(
         cut = None
         coloured = False  # a cut by the shadows' colour (mixed light), not by their grain
         metal = False  # such a cut of a metal face (its dark sectors are no holes' bottoms)
-        tinted = False  # a cut placed by a yellow face's tint (:func:`~scanmass.segment.colourshadow.tint_cut`)
         dark = risk is not None and dark_tinted_face(colour_lin, mask, risk.paper_rgb, band_px)
         if dark and risk is not None:
             # a dark plastic face: its shadow is cut on the outline where the photo shows it (a
@@ -493,7 +492,7 @@ def _decide_cuts(
             # a yellow (brass) face as dark as its neutral shadow under a hard light: the edge by its tint
             by_tint = tint_cut(colour_lin, mask, risk.paper_rgb, cut, band_px)
             if by_tint is not None:
-                cut, tinted = by_tint, True  # the wall, yellow in its own shade, is left to the face
+                cut = by_tint
         if cut is not None:
             outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
             paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]
@@ -510,12 +509,11 @@ def _decide_cuts(
                 paper_codes[y0:y1, x0:x1] = np.median(paper)
                 if dark:
                     _blend_cut_edge(window, unpainted, mask, cut.cut, lut, np.median(paper))
-                if top_seen is not None and not coloured and not tinted:
+                if top_seen is not None and not coloured:
                     # the cut takes the shaded side wall with the shadow: where that wall faces the
                     # camera, the outline then runs on the top face's edge (a cut by colour keeps a
-                    # wall the other light lights, of the face's colour, and a cut by a brass face's tint
-                    # its wall in its own shade, yellow as well: where the outline runs is left to the
-                    # wall's own test)
+                    # wall the other light lights, of the face's colour: where the outline runs is
+                    # left to the wall's own test)
                     near = cv2.dilate(cut.cut.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
                     top_seen[y0:y1, x0:x1] |= near
                 bottoms_px = 0.0
