@@ -13,7 +13,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from scanmass.segment.colourshadow import coloured_shadow_cut, shadow_lines
+from scanmass.segment import colourshadow
+from scanmass.segment.colourshadow import coloured_shadow_cut, shadow_lines, tint_cut
+from scanmass.segment.shadowlayer import ShadowCut
 
 WARM = np.array([0.6, 0.8, 1.0])  # the lamp's colour, channels in the image's order (blue, green, red)
 F_W = 0.3 * WARM / WARM.mean()  # the warm lamp's share of the paper white per channel
@@ -75,3 +77,62 @@ def test_a_face_of_the_umbras_colour_is_not_told_apart():
     img, mask = _scene(F_W, 0.5 * F_W, np.random.default_rng(5))
     cut = coloured_shadow_cut(img, mask, np.ones(3), 14.0)
     assert cut is None or not cut.cut[25:65, 25:56].any()
+
+
+# --- tint_cut: a brass face as dark as its neutral shadow under one hard white light ---------------------------
+# The shadow is the paper in less light and keeps the paper's colour; a brass face is yellow (blue well under
+# green) at any level (common practice: the diagonal model above with one white light). The face's colour
+# (blue 0.4 of its green, yellowness 0.6) and levels (0.0205 of the paper white on the face, 0.0177 in the shadow:
+# 1.16 times) are chosen near what the committed render tests/data/reallight/dev-spot-brass2-t27 shows (its
+# bracket: yellowness 0.59, levels 0.0205 and 0.0177); the noise is chosen for these tests.
+BRASS = np.array([0.4, 1.0, 1.6])  # blue, green, red (the image's order), mean 1: yellowness 1 - 0.4 = 0.6
+
+
+def _brass_scene(
+    face_level: float, shadow_level: float, grain: float, noise: float, rng: np.random.Generator
+) -> tuple[np.ndarray, np.ndarray, ShadowCut]:
+    """A found region (rows 10-49, columns 10-59) whose last 6 columns are the neutral cast shadow (truth: columns
+    54-59), its bottom row the face's blurred rim against the lit paper (half face, half paper), and the cut a sweep
+    would give: the shadow band with 2 columns of face, and a sliver along the bottom row (a stretch of outline
+    parallel to the sweep). ``grain``: the share a pixel's level varies by, the face's ``grain``, the shadow's 4 times
+    that (the render's shadow is 4.9 times as grainy as its face); ``noise``: each channel's own (absolute)."""
+    img = np.ones((60, 80, 3))
+    mask = np.zeros((60, 80), bool)
+    mask[10:50, 10:60] = True
+    img[10:50, 10:54] = face_level * BRASS * (1.0 + grain * rng.standard_normal((40, 44, 1)))
+    img[10:50, 54:60] = shadow_level * (1.0 + 4.0 * grain * rng.standard_normal((40, 6, 1)))
+    img[49, 10:54] = 0.5 * (face_level * BRASS + 1.0)  # the lit rim: blurred with the paper
+    img[10:50, 10:60] += rng.normal(0.0, noise, (40, 50, 3))
+    old = np.zeros_like(mask)
+    old[10:50, 52:60] = True  # the sweep took 2 columns of face as well
+    old[48:50, 10:60] = True  # and the sliver along the bottom
+    return img.astype(np.float32), mask, ShadowCut(old, int(old.sum()), 40.0, 0.1, 0.1, shadow_level, shadow_level)
+
+
+def test_tint_cut_takes_the_neutral_shadow_and_leaves_the_face_and_its_lit_rim():
+    img, mask, old = _brass_scene(0.0205, 0.0177, 0.1, 0.0005, np.random.default_rng(11))
+    found = tint_cut(img, mask, np.ones(3, np.float32), old, 8.0)
+    assert found is not None  # the face 1.16 times the shadow's level: within its pixels' noise
+    # truth by construction: the shadow is columns 54-59; the 0.7 px smoothing blurs one column each side
+    assert found.cut[10:48, 55:60].all()
+    # the face, and the 2 columns of it the sweep took (the top row beside the paper blurs with it at the corner)
+    assert not found.cut[11:48, 10:53].any()
+    assert not found.cut[49, 10:50].any()  # the lit rim (bright, half the paper's colour) is the face's edge
+
+
+def test_tint_cut_refused_where_the_face_stands_above_its_shadow_by_more_than_the_noise(monkeypatch):
+    # the face twice the shadow's level with little grain: the level step places the edge (the grain rules)
+    img, mask, old = _brass_scene(0.035, 0.0177, 0.02, 0.0005, np.random.default_rng(12))
+    assert tint_cut(img, mask, np.ones(3, np.float32), old, 8.0) is None
+    # the same scene passes with the level rule off: that rule, not another, refuses it
+    monkeypatch.setattr(colourshadow, "TINT_CUT_LEVEL_STEP", np.inf)
+    assert tint_cut(img, mask, np.ones(3, np.float32), old, 8.0) is not None
+
+
+def test_tint_cut_refused_where_the_tint_step_is_within_the_noise(monkeypatch):
+    # noise of 0.006 per channel at a level of 0.02: the blue-over-green ratio of a pixel is lost in it
+    img, mask, old = _brass_scene(0.0205, 0.0177, 0.1, 0.006, np.random.default_rng(13))
+    assert tint_cut(img, mask, np.ones(3, np.float32), old, 8.0) is None
+    # the same scene passes with the contrast rule off: that rule, not another, refuses it
+    monkeypatch.setattr(colourshadow, "TINT_CUT_MIN_CONTRAST", 0.0)
+    assert tint_cut(img, mask, np.ones(3, np.float32), old, 8.0) is not None

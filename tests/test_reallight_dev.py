@@ -337,16 +337,20 @@ def test_spot_lit_thin_brass_bracket_keeps_its_area_and_holes():
     assert len(gasket.holes) == 1
 
 
-def test_spot_lit_thin_brass_bracket_shadow_warned_and_covered():
+def test_spot_lit_thin_brass_bracket_shadow_cut_by_its_tint():
     """dev-spot-brass2-t27 (branch brass11): a brass L-bracket 2 mm thick under the hard spot at 27
     degrees, the camera farther (350 mm) and from another side, beside a brass plate 3 mm thick found in
-    pieces and merged. The plate's shadow is cut (-0.6 %, three holes); the bracket's shadow is not cut
-    but warned (term 'cast_shadow'): +12.1 % in area, centroid 1.04 mm, within its stated uncertainty
-    (0.6 sigma). Its holes are both found. Truth: the render's outlines by shapely."""
+    pieces and merged. The plate's shadow is cut (-0.6 %, three holes). The bracket's face is 1.16 times its
+    shadow's level (0.0205 against 0.0177 of the paper white), a step of 0.3 times their pixels' noise, so its
+    shadow was not cut but warned (term 'cast_shadow'): +12.1 % in area, centroid 1.04 mm (bench_reallight).
+    The shadow keeps the paper's colour and the brass face is yellow (common practice): their yellowness steps
+    3.8 times the noise, and the cut is placed where it falls to half of the face's (branch brass17:
+    segment.colourshadow.tint_cut): +4.7 %, centroid 0.42 mm, within its stated uncertainty. Its holes are both
+    found. Truth: the render's outlines by shapely."""
     m, part, tp = _part("dev-spot-brass2-t27", "l-bracket")
-    assert "cast_shadow" in part.uncertainty_terms
-    assert any("cast shadow" in w for w in m.warnings)
-    assert part.area_mm2 > tp["area"]  # a shadow left in adds; it never removes a hole's worth
+    assert "shadow_cut" in part.uncertainty_terms
+    assert abs(part.area_mm2 - tp["area"]) < 0.06 * tp["area"]  # was +12.1 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.6  # was 1.04 mm
     assert len(part.holes) == 2
     assert _covered(part, tp)
     m, plate, tq = _part("dev-spot-brass2-t27", "plate")
@@ -357,7 +361,8 @@ def test_spot_lit_thin_brass_bracket_shadow_warned_and_covered():
 @pytest.mark.xfail(
     strict=True,
     reason="dev-spot-brass2-t27: the brass bracket's cast shadow (2 mm thick, spot 40 degrees up: about 2.4 mm "
-    "wide) is warned, not cut: +12.1 % in area (0.6 sigma), centroid 1.04 mm",
+    "wide) is cut by its tint (branch brass17; was warned, not cut: +12.1 %), but the cut leaves the blurred rim "
+    "between the shadow and the paper in: +4.7 % in area (0.3 sigma), centroid 0.42 mm",
 )
 def test_spot_lit_thin_brass_bracket_far_camera_within_2_percent():
     m, part, tp = _part("dev-spot-brass2-t27", "l-bracket")
@@ -920,7 +925,9 @@ def test_thin_brass_bracket_sweep_away_from_the_spot_refused():
     reason="dev-spot-brass5-t24 (branch thickmetal13): a thin brass L bracket under the spot whose face is as dark "
     "as its shadow (0.016 of the paper): +7.1 % (centroid 1.31 mm: the bracket's sweep refused, its shadow beyond the "
     "face's rim left in), within 1.3 stated sigma and warned; the cut placed by the tint (branch brass15) leaves its "
-    "figure unchanged (cause not found). dev-spot-brass4-t17 (was -12.7 %) is now within 3 % "
+    "figure unchanged: measured again with the 5 px around the cut taken as seen on the top edge, the outline moves "
+    "about 1 mm out along the stretches beside it where the wall is left in, so the part found again does not lie "
+    "within its first outline and the cut's measurement is set aside (branch brass17). dev-spot-brass4-t17 (was -12.7 %) is now within 3 % "
     "(test_thin_brass_face_against_its_shadow_placed_by_its_tint)",
 )
 def test_thin_brass_brackets_under_the_spot_within_3_percent():

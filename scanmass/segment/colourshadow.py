@@ -69,7 +69,8 @@ __all__ = [
     "SWEEP_MAX_FACE_TINT",
     "tint_cut",
     "TINT_CUT_FACE",
-    "TINT_CUT_LEVEL_RATIO",
+    "TINT_CUT_LEVEL_STEP",
+    "TINT_CUT_MIN_CONTRAST",
     "TINT_CUT_MAX_SHADOW",
     "TINT_CUT_DARK",
 ]
@@ -513,17 +514,38 @@ def colour_sweep_cut(
 #: brass faces of the committed spot renders (tests/data/reallight) read 0.32-0.49, steel and black
 #: plastic under 0.1.
 TINT_CUT_FACE = 0.2
-#: Largest ratio of the face's level to its shadow's for :func:`tint_cut`: above it the level step
-#: places the edge (the grain rules of :mod:`scanmass.segment.castshadow` hold there); the thin brass
-#: parts whose shadow was kept or whose face was cut read 0.74-1.16 (at 1.25 a 3 mm brass plate beside the
-#: bracket of dev-spot-brass2-t27 kept its wall: -0.6 % to +10.3 %).
-TINT_CUT_LEVEL_RATIO = 1.15
+#: Largest step of level from the shadow up to the face, in units of their pixels' noise (:func:`tint_cut`), for the
+#: edge to be placed by the tint: above it the level step places the edge (the grain rules of
+#: :mod:`scanmass.segment.castshadow` hold there). On the committed spot renders (tests/data/reallight) the thin
+#: brass parts whose shadow was kept or whose face was cut read -0.8 to +0.34 (dev-spot-brass2-t27's bracket, its
+#: face 1.16 times its shadow's level); the brass bracket of dev-spot-brass-t22, cut well by its level, 1.8 (the
+#: tint placed its edge 6 % out), that of spot-brass-t10b 1.3.
+TINT_CUT_LEVEL_STEP = 1.0
+#: Smallest step of yellowness from the shadow up to the face, in units of their pixels' noise, for :func:`tint_cut`:
+#: three sigma (common practice for a difference told from noise). The spot renders' brass parts read 3.3-6.4.
+TINT_CUT_MIN_CONTRAST = 3.0
+#: Robust sigma of normal noise from the median absolute deviation (common practice: 1 / Phi^-1(3/4)).
+_MAD_SIGMA = 1.4826
 #: Largest level (over the paper white) of a pixel :func:`tint_cut` takes as shadow, unless the cut took it
 #: already: the faces and shadows it is for read 0.015-0.03; the face's rim against the lit paper is brighter.
 TINT_CUT_DARK = 0.1
 #: Largest median tint (face 1, neutral 0) of what the tint cuts: above it the shadow is lit by the
 #: face's own reflection and the contrast is too weak to place the edge.
 TINT_CUT_MAX_SHADOW = 0.45
+
+
+#: Pixels (dilations) beside a dark shadow pixel over which :func:`tint_cut` takes a neutral pixel the cut took already
+#: (a soft shadow's fade brighter than :data:`TINT_CUT_DARK`): an edge's blur at the photos' scale.
+_TINT_BESIDE_PX = 2
+#: Pixels (dilations) of the blurred paper rim between a shadow and the paper that :func:`tint_cut` reaches across.
+_TINT_RIM_PX = 3
+
+
+def _noise(a: np.ndarray, b: np.ndarray) -> float:
+    """The noise of the difference of two samples' medians per pixel: their robust sigmas (MAD) added in quadrature."""
+    sa = _MAD_SIGMA * float(np.median(np.abs(a - np.median(a))))
+    sb = _MAD_SIGMA * float(np.median(np.abs(b - np.median(b))))
+    return max(float(np.hypot(sa, sb)), 1e-9)
 
 
 def tint_cut(
@@ -533,15 +555,21 @@ def tint_cut(
 
     Under a hard white light the cast shadow keeps the paper's colour (its yellowness, one less the
     blue-over-green ratio over the paper white's, is 0), while a brass face is yellow whatever its
-    level. Where face and shadow are as dark as each other (face over shadow level under
-    :data:`TINT_CUT_LEVEL_RATIO`) the level's step cannot place the edge, but the tint can: the
-    yellowness normalised to the face's median (1 on the face, 0 on a neutral shadow), smoothed over
-    0.7 px, and the pixels of the region within ``reach_px`` + 2 px of its outline where it is under
-    one half are the cut; pixels of ``cut`` outside the region (a fade beyond the outline) stay cut.
+    level. Where the face stands no more than :data:`TINT_CUT_LEVEL_STEP` times its pixels' noise above its
+    shadow's level, the level's step cannot place the edge, but the tint can where its step is at least
+    :data:`TINT_CUT_MIN_CONTRAST` times the noise: the yellowness normalised to the face's median (1 on the
+    face, 0 on a neutral shadow), smoothed over 0.7 px; the pixels of the region within ``reach_px`` + 2 px
+    of its outline where it is under one half, dark (under :data:`TINT_CUT_DARK`, or cut already and beside a
+    dark one), reached from the paper outside the outline, are the cut; pixels of ``cut`` deeper in the region
+    or outside it (a fade beyond the outline) stay cut. The face's blurred rim against the lit paper (bright,
+    of the paper's colour on its outer half) is left to the face.
 
     Returns None where the face is not yellow enough (:data:`TINT_CUT_FACE`), its level stands
-    apart from its shadow's, fewer than 50 shadow pixels are found, or the shadow's own median tint
-    exceeds :data:`TINT_CUT_MAX_SHADOW` (the tint contrast is weak).
+    apart from its shadow's, the tint's step is within the noise, fewer than 50 shadow pixels are found,
+    or the shadow's own median tint exceeds :data:`TINT_CUT_MAX_SHADOW` (the tint contrast is weak).
+
+    The noise of a step is the two samples' robust sigmas (1.4826 times the median absolute deviation, for
+    normal noise) added in quadrature.
 
     Examples
     --------
@@ -576,14 +604,28 @@ def tint_cut(
     rim = np.unique(np.concatenate([comp[0], comp[-1], comp[:, 0], comp[:, -1]]))
     filled = ~np.isin(comp, rim[rim > 0]) if count > 1 else np.ones_like(part_mask)
     depth = cv2.distanceTransform(filled.astype(np.uint8), cv2.DIST_L2, 3)
-    # the face's blurred rim against the lit paper is no shadow: only dark pixels (or those cut already)
-    new = part_mask & (tint < 0.5) & (depth <= reach_px + 2.0) & ((level < TINT_CUT_DARK) | cut.cut)
+    # the shadow: neutral pixels within the reach, dark (or cut already: a soft shadow's fade) and beside a dark one
+    # (the face's blurred rim against the lit paper is no shadow), reached from the paper across its blurred rim
+    neutral = part_mask & (tint < 0.5) & (depth <= reach_px + 2.0)
+    dark = neutral & (level < TINT_CUT_DARK)
+    beside = cv2.dilate(dark.astype(np.uint8), kernel, iterations=_TINT_BESIDE_PX).astype(bool)
+    linked = neutral & (dark | (cut.cut & beside))
+    near_paper = cv2.dilate((~filled).astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
+    _, lab = cv2.connectedComponents(linked.astype(np.uint8), connectivity=8)
+    hit = np.unique(lab[linked & near_paper])
+    new = np.isin(lab, hit[hit > 0])
     shadow = new & (level < TINT_CUT_DARK)
     if np.count_nonzero(shadow) < 50:
         return None
     face_level = float(np.median(level[interior]))
     shadow_level = float(np.median(level[shadow]))
-    if face_level > TINT_CUT_LEVEL_RATIO * shadow_level or float(np.median(tint[shadow])) > TINT_CUT_MAX_SHADOW:
+    level_step = (face_level - shadow_level) / _noise(level[interior], level[shadow])
+    tint_step = (face_yellow - float(np.median(yellow[shadow]))) / _noise(yellow[interior], yellow[shadow])
+    if (
+        level_step > TINT_CUT_LEVEL_STEP
+        or tint_step < TINT_CUT_MIN_CONTRAST
+        or float(np.median(tint[shadow])) > TINT_CUT_MAX_SHADOW
+    ):
         return None
     new |= cut.cut & part_mask & (depth > reach_px + 2.0)
     keep = part_mask & ~new
