@@ -205,16 +205,15 @@ def _like_by_colour(
     return part_mask & (off_line < off_face) & (level < _MAX_LEVEL) & (inside <= reach_px)
 
 
-def _matte_face(
+def face_reading(
     colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float, min_spread: float
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, ShadowLines] | None:
-    """A matte face and the shadow lines around it, read for a cut by colour.
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, ShadowLines, tuple[float, float]] | None:
+    """A face and the shadow lines around it, read for a cut by colour.
 
     Returns the crop's colour as shares of the paper's (blurred by 1 px), its level, the distance
-    inside the region, the region's interior beyond a shadow's reach, and the penumbrae's shadow
-    lines; None where the region is too small, the lines lean apart by less than ``min_spread``,
-    or the face's levels spread as a face that mirrors the lights (metal) does: its own pixels then
-    take the shadow lines' colours.
+    inside the region, the region's interior beyond a shadow's reach, the penumbrae's shadow lines
+    and the spread of the interior's levels (its 90th percentile over its 10th); None where the
+    region or its interior is too small or the lines lean apart by less than ``min_spread``.
     """
     mask8 = part_mask.astype(np.uint8)
     if mask8.sum() < 50:
@@ -229,9 +228,24 @@ def _matte_face(
         return None
     level = q.mean(axis=2)
     lo, hi = np.quantile(level[interior], [0.1, 0.9])
-    if hi > _FACE_LEVEL_SPREAD * max(float(lo), 1e-6):
+    return q, level, inside, interior, lines, (float(lo), float(hi))
+
+
+def _matte_face(
+    colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, reach_px: float, min_spread: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, ShadowLines] | None:
+    """A matte face and the shadow lines around it (:func:`face_reading`).
+
+    None also where the face's levels spread as a face that mirrors the lights (metal) does: its
+    own pixels then take the shadow lines' colours.
+    """
+    read = face_reading(colour_lin, part_mask, paper_rgb, reach_px, min_spread)
+    if read is None:
         return None
-    return q, level, inside, interior, lines
+    lo, hi = read[5]
+    if hi > _FACE_LEVEL_SPREAD * max(lo, 1e-6):
+        return None
+    return read[:5]
 
 
 def coloured_shadow_cut(

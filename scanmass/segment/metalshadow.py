@@ -29,7 +29,6 @@ camera's channels).
 
 from __future__ import annotations
 
-import cv2
 import numpy as np
 
 from scanmass.segment.colourshadow import (
@@ -39,7 +38,7 @@ from scanmass.segment.colourshadow import (
     ColourSweep,
     _colour_run,
     _line_distance,
-    shadow_lines,
+    face_reading,
 )
 from scanmass.segment.shadowlayer import _filled, roughness
 
@@ -121,20 +120,11 @@ def metal_colour_sweep(
     >>> [round(v, 2) for v in found.direction], found.length_px, found.metal
     ([1.0, 0.0], 5, True)
     """
-    mask8 = part_mask.astype(np.uint8)
-    if mask8.sum() < 50:
+    read = face_reading(colour_lin, part_mask, paper_rgb, reach_px, SWEEP_MIN_SPREAD)
+    if read is None:
         return None
-    q = cv2.GaussianBlur((colour_lin / np.asarray(paper_rgb, np.float32)).astype(np.float32), (0, 0), 1.0)
-    found = shadow_lines(q, part_mask, reach_px)
-    if found is None or found.spread < SWEEP_MIN_SPREAD:
-        return None
-    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
-    interior = inside > min(reach_px + 2.0, 0.75 * float(inside.max()))
-    if np.count_nonzero(interior) < 50:
-        return None
-    level = q.mean(axis=2)
-    lo, hi = np.quantile(level[interior], [0.1, 0.9])
-    if hi <= METAL_MIN_LEVEL_SPREAD * max(float(lo), 1e-6):
+    q, _, inside, interior, found, (lo, hi) = read
+    if hi <= METAL_MIN_LEVEL_SPREAD * max(lo, 1e-6):
         return None
     face = np.median(q[interior], axis=0)
     if abs(float(face[2] - face[0])) > SWEEP_MAX_FACE_TINT * max(float(face.mean()), 1e-6):
