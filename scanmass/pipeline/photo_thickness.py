@@ -173,34 +173,59 @@ def _pair_scores(
     return np.maximum(best, -1.0), where
 
 
-def _score_curve(
-    grad: np.ndarray, s_px: np.ndarray, bands: np.ndarray, inward_px: float = 0.0
-) -> tuple[np.ndarray, list[np.ndarray]]:
-    """Per trial thickness (rows of ``bands``, px): the mean positive :func:`_pair_scores` score and each profile's start.
+@dataclass(frozen=True)
+class _ScoreTable:
+    """Every (profile, whole number of steps of its band) pair's :func:`_pair_scores` score and start.
+
+    ``shifts`` (trial thicknesses x profiles) holds each profile's band in steps, ``v0`` the fewest;
+    ``best`` and ``where`` (steps - v0 x profiles) the scores and starts of the pairs a trial needs.
+    A profile's score does not depend on the other profiles scored with it, so the curve of any set
+    of profiles (a stretch of the wall) is read off the one table.
+    """
+
+    shifts: np.ndarray
+    v0: int
+    best: np.ndarray
+    where: np.ndarray
+
+    def curve(self, cols: np.ndarray | None = None) -> tuple[np.ndarray, list[np.ndarray]]:
+        """Per trial thickness: the mean positive score of the profiles ``cols`` (default all) and their starts."""
+        cols = np.arange(self.shifts.shape[1]) if cols is None else cols
+        shifts = self.shifts[:, cols]
+        curve = np.empty(len(shifts))
+        starts = []
+        for i, row in enumerate(shifts):
+            curve[i] = float(np.mean(np.maximum(self.best[row - self.v0, cols], 0.0)))
+            starts.append(self.where[row - self.v0, cols])
+        return curve, starts
+
+
+def _score_table(grad: np.ndarray, s_px: np.ndarray, bands: np.ndarray, inward_px: float = 0.0) -> _ScoreTable:
+    """The :class:`_ScoreTable` of the profiles ``grad`` at the trial bands ``bands`` (rows, px).
 
     A profile's score depends on its band only through the band's whole number of steps, and
     neighbouring thicknesses mostly share it: each (profile, steps) pair is scored once, the
-    profiles of one step count together, and every thickness gathers its profiles' scores.
-    ``inward_px`` as :func:`_pair_scores` takes it.
+    profiles of one step count together. ``inward_px`` as :func:`_pair_scores` takes it.
     """
     n = grad.shape[0]
     shifts = np.round(bands / PROFILE_STEP_PX).astype(int)  # as _pair_scores rounds each row
     v0 = int(shifts.min()) if shifts.size else 0
     need = np.zeros((int(shifts.max()) - v0 + 1 if shifts.size else 0, n), bool)
-    cols = np.arange(n)
-    need[shifts - v0, cols[None, :]] = True
+    need[shifts - v0, np.arange(n)[None, :]] = True
     best = np.zeros(need.shape)
     where = np.zeros(need.shape)
     for v in np.flatnonzero(need.any(axis=1)):
         rows = np.flatnonzero(need[v])
         band = np.full(len(rows), (v + v0) * PROFILE_STEP_PX)
         best[v, rows], where[v, rows] = _pair_scores(grad[rows], s_px, band, inward_px)
-    curve = np.empty(len(bands))
-    starts = []
-    for i, row in enumerate(shifts):
-        curve[i] = float(np.mean(np.maximum(best[row - v0, cols], 0.0)))
-        starts.append(where[row - v0, cols])
-    return curve, starts
+    return _ScoreTable(shifts, v0, best, where)
+
+
+def _score_curve(
+    grad: np.ndarray, s_px: np.ndarray, bands: np.ndarray, inward_px: float = 0.0
+) -> tuple[np.ndarray, list[np.ndarray]]:
+    """Per trial thickness (rows of ``bands``, px): the mean positive :func:`_pair_scores` score and each profile's start."""
+    return _score_table(grad, s_px, bands, inward_px).curve()
 
 
 def _linear_profiles(grey: np.ndarray, table: np.ndarray, pts: np.ndarray) -> np.ndarray:
@@ -307,14 +332,17 @@ def _one_part(
     prof, bands = prof[clear], bands[:, clear]
     grad = np.abs(np.gradient(prof, PROFILE_STEP_PX, axis=1))
     grad /= grad.max(axis=1, keepdims=True) + 1e-9
-    curve, starts = _score_curve(grad, s_px, bands, inward_px)
+    scores = _score_table(grad, s_px, bands, inward_px)
+    curve, starts = scores.curve()
     peak, prominence = _peak_of(curve)
     unread = "no wall band stands out from its edges (low contrast, or hidden)"
     band = float(np.median(bands[peak]))
     if peak in (0, len(curve) - 1) or prominence < MIN_PROMINENCE:
         order = np.flatnonzero(near)[clear]
         on_face = _face_test(pm.to_px, rings, p0[clear], n_px[clear])
-        stretched = None if smooth else _stretch_reading(grad, s_px, bands, order, ring_of[order], on_face)
+        stretched = (
+            None if smooth else _stretch_reading(grad, s_px, bands, order, ring_of[order], on_face, table=scores)
+        )
         if stretched is not None:
             return replace(stretched, label=part.label)
         return WallThickness(part.label, None, reason=unread)
@@ -336,7 +364,7 @@ def _one_part(
     # the second try: its stretches read alone must agree with the whole wall
     order = np.flatnonzero(near)[clear]
     on_face = _face_test(pm.to_px, rings, p0[clear], n_px[clear])
-    parts_read = _stretch_reading(grad, s_px, bands, order, ring_of[order], on_face, inward_px)
+    parts_read = _stretch_reading(grad, s_px, bands, order, ring_of[order], on_face, inward_px, scores)
     if parts_read is None or parts_read.thickness_mm is None:
         return WallThickness(part.label, None, reason=unread)
     apart = abs(parts_read.thickness_mm - t)
@@ -395,6 +423,7 @@ def _stretch_reading(
     ring: np.ndarray,
     on_face: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None,
     inward_px: float = 0.0,
+    table: _ScoreTable | None = None,
 ) -> WallThickness | None:
     """A wall read stretch by stretch where the whole wall's score has no clear peak, or None.
 
@@ -404,7 +433,7 @@ def _stretch_reading(
     :func:`_one_part` (profiles as columns of ``bands``), ``vertex`` and ``ring`` each profile's vertex
     index (in the rings stacked) and ring. Runs of consecutive vertices of one ring are cut into
     stretches of :data:`MIN_WALL_VERTICES` profiles, and each stretch's score curve
-    (:func:`_score_curve`) is read as the whole wall's is: a peak inside the range, at least
+    (:class:`_ScoreTable`) is read as the whole wall's is: a peak inside the range, at least
     :data:`MIN_PROMINENCE` above its flanks, on a band at least :data:`MIN_BAND_PX` wide, and (with
     ``on_face``, :func:`_face_test`) with :data:`STRETCH_FACE_SHARE` of its profiles on the part
     :data:`STRETCH_FACE_PX` beyond the band's inner edge; its thickness less :data:`READ_EXCESS_MM`.
@@ -413,14 +442,16 @@ def _stretch_reading(
     deviation is at most :data:`STRETCH_MAX_SPREAD` of their median, the estimate is that median and
     its 1-sigma their standard deviation (whole, not divided by their number) combined with the floor
     :data:`SIGMA_SHARE` and :data:`SIGMA_FLOOR_MM` (``cue`` ``"wall stretches"``). The label is left 0
-    for the caller to set.
+    for the caller to set. ``table``: the whole wall's :func:`_score_table` (of these ``grad``, ``bands``
+    and ``inward_px``), whose columns give each stretch's curve; made here where not given.
     """
+    table = _score_table(grad, s_px, bands, inward_px) if table is None else table
     cut = np.flatnonzero((np.diff(vertex) != 1) | (np.diff(ring) != 0)) + 1
     reads: list[tuple[float, float, float]] = []
     for run in np.split(np.arange(len(vertex)), cut):
         for k in range(len(run) // MIN_WALL_VERTICES):
             st = run[k * MIN_WALL_VERTICES : (k + 1) * MIN_WALL_VERTICES]
-            curve, starts = _score_curve(grad[st], s_px, bands[:, st], inward_px)
+            curve, starts = table.curve(st)
             peak, prominence = _peak_of(curve)
             band = float(np.median(bands[peak, st]))
             if peak in (0, len(curve) - 1) or prominence < MIN_PROMINENCE or band < MIN_BAND_PX:
