@@ -699,6 +699,29 @@ def test_wall_score_curve_from_shared_step_counts_is_the_per_thickness_loop():
             assert np.array_equal(starts[i], where), (trial, i)
 
 
+def test_a_stretchs_curve_off_the_walls_score_table_is_its_own_curve():
+    # check value: _score_curve run on the stretch's profiles alone (what each stretch was scored by before
+    # the table was shared); the same floats, as a profile's score does not depend on the others scored with it
+    from scanmass.pipeline.photo_thickness import PROFILE_STEP_PX, _score_curve, _score_table
+
+    rng = np.random.default_rng(41)
+    for trial in range(20):
+        n, m = int(rng.integers(45, 120)), int(rng.integers(40, 160))
+        grad = rng.random((n, m))
+        if trial % 4 == 0:
+            grad = np.round(grad * 4) / 4  # ties
+        s_px = (np.arange(m) - m // 2) * PROFILE_STEP_PX
+        slope = rng.uniform(0.0, 0.3, n)
+        bands = np.arange(0.5, 12.0001, 0.1)[:, None] * slope[None, :] * rng.uniform(1, 8) + rng.uniform(-0.5, 1, n)
+        inward = float(rng.choice([0.0, 8.0]))
+        table = _score_table(grad, s_px, bands, inward)
+        st = np.sort(rng.choice(n, size=40, replace=False))
+        curve, starts = table.curve(st)
+        alone, alone_starts = _score_curve(grad[st], s_px, bands[:, st], inward)
+        assert np.array_equal(curve, alone), trial
+        assert all(np.array_equal(a, b) for a, b in zip(starts, alone_starts)), trial
+
+
 def test_sheet_scale_basis_continues_the_seeded_stream_past_the_size_draws():
     # check values: sheet_scale called afresh per thickness, and numpy's stream seeded 12345: two uniform
     # size draws per sampled map (the sheet's trimming tolerance), one focal draw per map, then the heights
