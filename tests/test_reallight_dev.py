@@ -1254,6 +1254,27 @@ def test_lens_window_steel_bracket_cut_by_its_shadows_tint():
     assert _covered(part, tp)
 
 
+@pytest.mark.parametrize(
+    ("name", "was", "was_centroid"),
+    [
+        ("dev-lens-window-steel-t24", -8.08, 0.57),  # the 2.2 mm cam, the k1 = -0.05 lens, no profile
+        ("dev-window-steel4-t22", -5.83, 0.41),  # the 2 mm cam
+    ],
+)
+def test_thin_steel_cam_in_window_light_cut_only_up_to_its_shadows_tint(name, was, was_centroid):
+    """Thin brushed-steel cams in window light (branch lenswin17): the face is so smooth (roughness 0.0015 on the
+    t24 plate beside it) that its rim near the outline reads as rough as the shadow, and the own sweep ran on into
+    the face and beside the bore (the cam was ``was`` % in area, centroid ``was_centroid`` mm, bench_reallight). The
+    shadow keeps the paper's tint, the face mirrors the window's (blue less red over the level 0.05-0.07 from the
+    paper's): the cut is shortened to that step of tint (segment.softshadow.tint_bound): -1.1 % and +1.8 %,
+    centroids 0.35 and 0.29 mm. Truth: the render's outlines (area and centroid by shapely)."""
+    m, part, tp = _part(name, "cam")
+    assert abs(part.area_mm2 - tp["area"]) < 0.03 * tp["area"]  # was ``was`` %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.45  # was ``was_centroid`` mm
+    assert "shadow_cut" in part.uncertainty_terms
+    assert _covered(part, tp)
+
+
 def test_steel_plate_under_the_spot_lit_sectors_with_a_streak_joined():
     """dev-spot-steel3-t20 (branch spot15): a brushed-steel plate 3 mm thick under the spot mirrors the light in two
     sectors through its 10 mm hole, each with a streak at the paper's own level along it. The threshold left both to

@@ -39,7 +39,7 @@ from scanmass.segment.shadow import (
     too_wide_for_shadow,
 )
 from scanmass.segment.sidewall import LostWall, lost_wall_band
-from scanmass.segment.softshadow import fade_cut, lit_beyond, tint_step_cut
+from scanmass.segment.softshadow import fade_cut, lit_beyond, tint_bound, tint_step_cut
 
 #: The stated doubt (1 sigma, px) of where the outline runs along a stretch cut from a cast
 #: shadow (:func:`~scanmass.segment.castshadow.shadow_cut`). On the committed renders
@@ -408,6 +408,10 @@ def _decide_cuts(
                 and cut.length_px <= SHORT_SWEEP_PX
             ):
                 short, cut = cut, None
+            if cut is not None and not dark and thickness_mm is not None and thickness_mm <= TINT_CUT_MAX_THICKNESS_MM:
+                # a thin tinted metal face's rim as rough as its shadow: the cut ends where the paper's tint does (a
+                # thicker part's shaded wall facing the camera, of the face's tint, goes with the shadow)
+                cut = tint_bound(colour_lin, mask, risk.paper_rgb, cut, band_px) or cut
             if cut is not None and cut.direction is not None:
                 swept.append((cut.cut_px, cut.direction, cut.length_px))
             if cut is None and not dark and thickness_mm is not None:

@@ -454,3 +454,92 @@ def _tint_step(
         if p_arr[i] >= 0.5 and np.median(p_arr[i : i + _SUSTAIN]) >= 0.5:
             return 0.0 if i == 0 else _crossing(k_arr, p_arr, i, 0.5)
     return None
+
+
+#: Smallest shortening (px) of a sweep's cut by :func:`tint_bound`: the half-way of the tint and of the grain or
+#: level read a pixel or so apart on the same step (the tint's smoothing, the grain's 1.5 px).
+_TINT_BOUND_MIN_PX = 2.0
+#: Smallest tint (median over the face) of a face of a colour of its own (brass), which :func:`tint_bound` leaves
+#: alone: a thin one's cut is placed by its yellowness (:func:`~scanmass.segment.colourshadow.tint_cut`). The same
+#: value as :data:`~scanmass.segment.castshadow._COLOUR_FACE_TINT` (brass 0.99, brushed steel in window light
+#: 0.05-0.10 on the committed renders, tests/data/reallight).
+_OWN_COLOUR_TINT = 0.3
+
+
+def tint_bound(
+    colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, cut: ShadowCut, reach_px: float
+) -> ShadowCut | None:
+    """A sweep's cut on a tinted metal face, shortened to the step of tint along its direction; None where it stands.
+
+    A cast shadow keeps the paper's tint and a metal face mirroring the light (brushed steel in window light) has
+    its own (:func:`tint_step_cut`). Where the face is that smooth that its rim near the outline reads as rough as
+    the shadow (on the committed render tests/data/reallight/dev-lens-window-steel-t24 the 2.5 mm steel plate's face
+    0.0015 against 0.03-0.2 in the 14 layers next to its outline), the sweep's grain runs on past the shadow into
+    the face, whose level the shadow's core shares: the plate's own sweep was 11.7 px long where the paper's tint
+    ends after 6-7 (the face's +0.05-0.07 beyond), and it cut the face beside its holes as well (-4.7 % in area).
+    The cut is kept where it lies within the layers a sweep of the same direction up to the tint's step adds
+    (:func:`_tint_step`, on the outer ring), where that is :data:`_TINT_BOUND_MIN_PX` or more shorter; beside the
+    holes, within those of a sweep from their rims up to the step read on the holes' layers alone (a hole's wall
+    facing the camera lies in its shadow's run), or as it was where none is read; pixels of the cut outside the
+    region (the fade past the outline) stay. None where the face is not tinted (at least
+    :data:`_DARK_CHROMA_STEP`) or is of a colour of its own (:data:`_OWN_COLOUR_TINT`), the cut has no sweep, no
+    step is read, the side facing the light reads as long, or the paper 4-16 px past the outline beyond the cut
+    is at :data:`_FADE_DIM` of the paper white or brighter (a hard light's shadow, ended on lit paper: its level's
+    step against the face places its end; on the committed render tests/data/reallight/dev-spot-steel-t18 the
+    2.2 mm steel seal under the spot went from -9.2 to +5.5 % in area shortened to its tint). The caller uses it on thin parts only: a thicker
+    part's shaded side wall facing the camera mirrors the light as its face does, and its cut must take that wall
+    with the shadow.
+    """
+    if cut.direction is None or cut.length_px is None:
+        return None
+    mask8 = part_mask.astype(np.uint8)
+    q = (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).astype(np.float32)
+    smooth = cv2.GaussianBlur(q, (0, 0), _TINT_SMOOTH_PX)
+    tint = _tint(smooth, smooth.mean(axis=2))
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = _face_interior(inside, reach_px) & ~cut.cut
+    if np.count_nonzero(interior) < 50:
+        return None
+    face_tint = float(np.median(tint[interior]))
+    if not _DARK_CHROMA_STEP <= abs(face_tint) < _OWN_COLOUR_TINT:
+        return None
+    unit = np.asarray(cut.direction, float)
+    # a soft light's shadow (a window's) still dims the paper 4-16 px past the outline beyond the cut; a hard
+    # light's shadow ends on the paper lit, its level's step against the face placing its end
+    outside = cv2.distanceTransform((1 - mask8).astype(np.uint8), cv2.DIST_L2, 3)
+    far = _swept_on(cut.cut & part_mask, part_mask, float(cut.length_px) * unit) & (outside > 4) & (outside < 16)
+    level = q.mean(axis=2)
+    if np.count_nonzero(far) < 20 or float(np.median(level[far])) >= _FADE_DIM:
+        return None
+    share = tint / face_tint
+    outer = _filled(part_mask).astype(np.uint8)
+    stop = int(cut.length_px) + _FACE_WINDOW_PX
+    depth = _tint_step(outer, part_mask, unit, share, stop)
+    lit = _tint_step(outer, part_mask, -unit, share, stop)
+    if depth is None or depth > cut.length_px - _TINT_BOUND_MIN_PX or (lit is not None and lit >= depth):
+        return None
+    within = _sweep_layer(outer, max(depth, 1.0) * unit)
+    # beside a hole the layers run from its rim: bounded by the step read on them alone (the hole's wall facing
+    # the camera and its floor's shadow), or left as they were where none is read
+    solid = (~(outer.astype(bool) & ~part_mask)).astype(np.uint8)  # all but the holes
+    at_holes = _sweep_layer(solid, float(cut.length_px) * unit) & part_mask
+    if at_holes.any():
+        hole_depth = _tint_step(solid, part_mask, unit, share, stop)
+        within |= at_holes if hole_depth is None else _sweep_layer(solid, max(hole_depth, 1.0) * unit)
+    kept = (cut.cut & within) | (cut.cut & ~part_mask)
+    settled = _settled_cut(kept & part_mask, part_mask)
+    if settled is None:
+        return None
+    inner = _with_rim(settled[0], part_mask)
+    keep = part_mask & ~inner
+    return ShadowCut(
+        cut=inner | (kept & ~part_mask),
+        cut_px=int(np.count_nonzero(inner)),
+        edge_px=_edge_px(inner, keep),
+        texture_face=cut.texture_face,
+        texture_shadow=cut.texture_shadow,
+        level_face=float(np.median(level[keep])),
+        level_shadow=float(np.median(level[inner])),
+        direction=cut.direction,
+        length_px=float(depth),
+    )
