@@ -444,3 +444,86 @@ def test_paper_beyond_a_cut_lit_or_dimmed():
     img = np.tile(0.85 * paper, (80, 120, 1))  # the paper round the rest of the outline dimmer than beyond the cut
     img[20:60, 90:100] = paper
     assert lit_beyond(img, mask, paper, found)
+
+
+def _tinted_face_with_soft_shadow(
+    face_tint: float = 0.06, core_level: float = 0.015, lit_rim_px: int = 0, far_lit: bool = False, seed: int = 5
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A crop of a brushed-steel-like face 40 px wide, tinted as window light tints it, with its cast shadow on its
+    right found as part: a core 6 px wide (columns 55-60) and a fade 5 px wide (61-65) inside the outline, the fade
+    going on over 14 px of paper (a window's soft shadow). The shadow is the paper in less light (the paper's colour). The face has a
+    brushed grain as rough as the core's noise (relative), so the grain alone cannot tell them. ``lit_rim_px``
+    columns of the same shadow colours on the face's left (the side facing the light) model a symmetric rim;
+    ``far_lit`` ends the shadow at the outline on lit paper (a hard light's)."""
+    rng = np.random.default_rng(seed)
+    paper = np.array([0.7, 0.72, 0.74])
+    img = np.tile(paper, (80, 110, 1))
+    mask = np.zeros((80, 110), bool)
+    mask[15:65, 15 - lit_rim_px : 66] = True
+    tint = np.array([1.0 + face_tint, 1.0, 1.0 - face_tint])  # the channels as stored (blue, green, red)
+    face = 0.12 * (1.0 + 0.25 * (rng.random((50, 40, 1)) - 0.5))
+    img[15:65, 15:55] = paper * tint * face
+    img[15:65, 55:61] = paper * core_level * (1.0 + 0.5 * (rng.random((50, 6, 1)) - 0.5))
+    img[15:65, 61:66] = paper * np.linspace(0.15, 0.45, 5)[None, :, None]
+    if not far_lit:
+        img[15:65, 66:80] = paper * np.linspace(0.55, 0.85, 14)[None, :, None]  # a window's soft shadow fades on
+    if lit_rim_px:
+        img[15:65, 15 - lit_rim_px : 15] = paper * core_level
+    return cv2.GaussianBlur(img, (0, 0), 0.7), mask, paper
+
+
+def test_tint_step_cut_takes_a_soft_shadow_of_the_papers_tint_beside_a_tinted_face():
+    """segment.softshadow.tint_step_cut: the shadow (core and fade, columns 55-65 by construction) is cut along the
+    light's direction up to the face's tint; the face is kept. Truth: the synthetic crop's construction."""
+    from scanmass.segment.softshadow import tint_step_cut
+
+    img, mask, paper = _tinted_face_with_soft_shadow()
+    cut = tint_step_cut(img, mask, paper, 12.0, np.array([1.0, 0.0]))
+    assert cut is not None
+    rows = slice(20, 60)  # off the top and bottom rims
+    assert cut.cut[rows, 56:66].all()  # the shadow, less the blurred column at its step
+    assert not cut.cut[rows, :54].any()  # the face
+    assert cut.length_px == pytest.approx(11.0, abs=1.0)  # 66 - 55 columns
+    # the same cut along the light's direction a little askew (another part's sweep, 8 degrees off) is refined
+    askew = tint_step_cut(img, mask, paper, 12.0, np.array([math.cos(0.14), math.sin(0.14)]))
+    assert askew is not None and not askew.cut[rows, :54].any()
+
+
+@pytest.mark.parametrize(
+    ("case", "kwargs"),
+    [
+        ("face almost of the paper's tint", {"face_tint": 0.02}),  # too little to tell the face from the shadow by
+        ("the same on the side facing the light", {"lit_rim_px": 11}),  # no shadow lies on one side only
+        ("no core darker than the face", {"core_level": 0.3}),  # one light's shadow has a core it misses
+    ],
+)
+def test_tint_step_cut_refused(case, kwargs):
+    """Each refusal of tint_step_cut on its own: the crop of the test above with one thing changed (``case``)."""
+    from scanmass.segment.softshadow import tint_step_cut
+
+    img, mask, paper = _tinted_face_with_soft_shadow(**kwargs)
+    assert tint_step_cut(img, mask, paper, 12.0, np.array([1.0, 0.0])) is None, case
+
+
+def test_tint_bound_shortens_a_sweep_that_ran_into_the_tinted_face():
+    """segment.softshadow.tint_bound: a sweep's cut 16 px long along +x over the crop above (its shadow, columns
+    55-65 by construction, 11 px) took 5 columns of the tinted face; it is shortened to the step of tint, the face
+    given back. On a face of almost the paper's tint there is no step to read, and a hard light's shadow (the paper
+    lit past the outline) is left to its level's step: None. Truth: the crop's construction."""
+    from scanmass.segment.shadowlayer import ShadowCut, _sweep_layer
+    from scanmass.segment.softshadow import tint_bound
+
+    img, mask, paper = _tinted_face_with_soft_shadow()
+    over = _sweep_layer(mask.astype(np.uint8), np.array([16.0, 0.0]))
+    long_cut = ShadowCut(over, int(over.sum()), 50.0, 0.01, 0.1, 0.12, 0.02, direction=(1.0, 0.0), length_px=16.0)
+    cut = tint_bound(img, mask, paper, long_cut, 12.0)
+    assert cut is not None
+    rows = slice(20, 60)
+    assert not cut.cut[rows, :54].any()  # the face's columns 50-53 given back
+    assert cut.cut[rows, 56:66].all()
+    assert cut.length_px == pytest.approx(11.0, abs=1.0)
+    img, mask, paper = _tinted_face_with_soft_shadow(face_tint=0.02)
+    assert tint_bound(img, mask, paper, long_cut, 12.0) is None
+    # a hard light's shadow, ended on lit paper: its level's step places the end, the cut stands
+    img, mask, paper = _tinted_face_with_soft_shadow(far_lit=True)
+    assert tint_bound(img, mask, paper, long_cut, 12.0) is None

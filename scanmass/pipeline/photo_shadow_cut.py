@@ -39,7 +39,7 @@ from scanmass.segment.shadow import (
     too_wide_for_shadow,
 )
 from scanmass.segment.sidewall import LostWall, lost_wall_band
-from scanmass.segment.softshadow import fade_cut, lit_beyond
+from scanmass.segment.softshadow import fade_cut, lit_beyond, tint_bound, tint_step_cut
 
 #: The stated doubt (1 sigma, px) of where the outline runs along a stretch cut from a cast
 #: shadow (:func:`~scanmass.segment.castshadow.shadow_cut`). On the committed renders
@@ -399,6 +399,7 @@ def _decide_cuts(
                 if coloured:
                     by_colour.add(id(part))
             short = None  # a metal part's own sweep of its rim only, kept where nothing better is found
+            light: tuple[np.ndarray, float | None] | None = None  # the photo's shadow direction tried, its length
             if (
                 cut is not None
                 and not dark
@@ -407,6 +408,10 @@ def _decide_cuts(
                 and cut.length_px <= SHORT_SWEEP_PX
             ):
                 short, cut = cut, None
+            if cut is not None and not dark and thickness_mm is not None and thickness_mm <= TINT_CUT_MAX_THICKNESS_MM:
+                # a thin tinted metal face's rim as rough as its shadow: the cut ends where the paper's tint does (a
+                # thicker part's shaded wall facing the camera, of the face's tint, goes with the shadow)
+                cut = tint_bound(colour_lin, mask, risk.paper_rgb, cut, band_px) or cut
             if cut is not None and cut.direction is not None:
                 swept.append((cut.cut_px, cut.direction, cut.length_px))
             if cut is None and not dark and thickness_mm is not None:
@@ -420,6 +425,7 @@ def _decide_cuts(
                     # into its face along its arms where the half-way of its grain fell on its rough rim)
                     witness = max(swept, key=lambda s: s[0])
                     along = np.asarray(witness[1], float)
+                    light = (along, witness[2])
                     cut = core_cut(
                         colour_lin,
                         mask,
@@ -440,12 +446,13 @@ def _decide_cuts(
                     if not lights:
                         lights.append(_light_hint(refused, wides))
                     if lights[0] is not None:
+                        light = (np.asarray(lights[0]), None)
                         cut = core_cut(
                             colour_lin,
                             mask,
                             risk.paper_rgb,
                             band_px,
-                            np.asarray(lights[0]),
+                            light[0],
                             code_step=step,
                             past_fade=True,
                         )
@@ -455,6 +462,10 @@ def _decide_cuts(
                 # a metal face as grainy as its shadow: the soft shadow's fade inside the outline (a face that
                 # fades as a shadow alone does is cut along the light only)
                 cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
+            if cut is None and light is not None:
+                # a brushed face too grainy for the shadow's grain to tell it: the shadow's tint (the paper's)
+                # against the face's, along the same light
+                cut = tint_step_cut(colour_lin, mask, risk.paper_rgb, band_px, light[0], witness_px=light[1])
             if cut is None:
                 cut = short
         if phase == 2 and risk is not None:

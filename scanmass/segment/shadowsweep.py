@@ -412,7 +412,9 @@ def _crossing(ks: np.ndarray, profile: np.ndarray, i: int, mid: float) -> float:
     return float(ks[i - 1] + frac * (ks[i] - ks[i - 1]))
 
 
-def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple[np.ndarray, float]:
+def _best_sweep(
+    mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray, ties_to_guess: bool = False
+) -> tuple[np.ndarray, float]:
     """The whole-pixel sweep near ``guess`` (x, y px) whose layer holds the most shadow votes net.
 
     ``vote`` is +1 where a pixel looks like the shadow, -1 where it looks like the face; the
@@ -430,7 +432,8 @@ def _best_sweep(mask8: np.ndarray, vote: np.ndarray, guess: np.ndarray) -> tuple
             if n < 1 or abs(n - length) > 3 or float(v @ unit) < n * np.cos(np.radians(15)):
                 continue
             score = float(vote[_sweep_layer(mask8, v)].sum())
-            if score > best_score:
+            nearer = ties_to_guess and score == best_score and np.hypot(*(v - guess)) < np.hypot(*(best - guess))
+            if score > best_score or nearer:
                 best, best_score = v, score
     n = float(np.hypot(*best))
     return best / n, n

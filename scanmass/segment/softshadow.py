@@ -27,13 +27,24 @@ from scanmass.segment.shadowlayer import (
     _line_kernel,
     _new_layers,
     _reached,
+    _settled_cut,
+    _sweep_layer,
     _tint,
     _with_rim,
     roughness,
 )
-from scanmass.segment.shadowsweep import _WITNESS_SLACK_PX
+from scanmass.segment.shadowsweep import (
+    _FACE_WINDOW_HOLE_SHARE,
+    _FACE_WINDOW_PX,
+    _RIM_LAYERS,
+    _SUSTAIN,
+    _WITNESS_SLACK_PX,
+    LOW_LIGHT_REACH_FACTOR,
+    _best_sweep,
+    _crossing,
+)
 
-__all__ = ["fade_cut", "lit_beyond"]
+__all__ = ["fade_cut", "lit_beyond", "tint_step_cut"]
 
 
 def _swept_on(cut: np.ndarray, part_mask: np.ndarray, step: np.ndarray) -> np.ndarray:
@@ -301,3 +312,234 @@ def _grainy_core(
         core |= new
         layers += 1
     return core if layers >= _CORE_MIN_LAYERS else None
+
+
+#: Smallest share of a cut's pixels darker than the tinted face's median level for :func:`tint_step_cut`: one
+#: light's shadow has a core the light does not reach. Under a window (an area light some 30-45 degrees across,
+#: trigonometry) the core of a part t thick reaches about t out from its wall, the fade out to about 3.7 t
+#: (a window's lowest edge 15 degrees up): on the committed render
+#: tests/data/reallight/dev-lens-window-steel2-t16 the 2.5 mm steel bracket's shadow holds 6 layers of core
+#: (0.011-0.018 of the paper white, the face 0.13) against 5 of fade (0.16-0.48).
+_TINT_CUT_MIN_CORE = 0.3
+#: Smoothing (Gaussian sigma, px) of the colours :func:`tint_step_cut` reads the tint from. A pixel's tint is
+#: a ratio of channels, and a mix of a bright face and a dark core across a step takes the face's: smoothed
+#: over 1.5 px, the half-way of a step from a face at 0.12 of the paper white to a core at 0.015 reads 1.3 px
+#: into the core (the docstring's example); over 0.7 px, 0.3 px.
+_TINT_SMOOTH_PX = 0.7
+
+
+def tint_step_cut(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    direction: np.ndarray,
+    witness_px: float | None = None,
+) -> ShadowCut | None:
+    """A soft shadow inside a tinted metal part, swept along the photo's shadow direction to its step of tint.
+
+    A cast shadow is the paper in less light: its fade and its core keep the paper's tint, while a metal face
+    that mirrors the light (brushed steel in window light) is tinted by it (at least :data:`_DARK_CHROMA_STEP`
+    blue minus red over its level from the paper's 0). Where the shadow's grain is too close to the brushed
+    face's for :func:`~scanmass.segment.castshadow.shadow_cut` (on the committed render
+    tests/data/reallight/dev-lens-window-steel2-t16 the 2.5 mm steel bracket's core 2.3 times as rough as its
+    face, its fade 0.7-1.5 times), the tint places the step: the region's outer ring is swept along
+    ``direction`` (the photo's light, which another part showed: one light casts every shadow one way) and the
+    length is where the layers' median tint (smoothed over :data:`_TINT_SMOOTH_PX`, as a share of the face's) crosses half-way
+    from the paper's to the face's and stays past it for :data:`~scanmass.segment.shadowsweep._SUSTAIN` layers;
+    a search of nearby whole-pixel vectors by each pixel's vote (nearer the paper's tint than the face's: +1,
+    else -1; the outline's blur, within :data:`~scanmass.segment.shadowsweep._RIM_LAYERS` px of it, none)
+    refines it (:func:`~scanmass.segment.shadowsweep._best_sweep`).
+
+    The cut is refused (None) where the face is not tinted, where the same reading on the side facing the light
+    (the sweep's opposite, where no shadow lies) reaches within 2 + :data:`~scanmass.segment.shadowsweep._RIM_LAYERS`
+    px of it (the outline's blur has the paper's tint all round), where it is longer than a light 15 degrees up
+    casts (:data:`~scanmass.segment.shadowsweep.LOW_LIGHT_REACH_FACTOR` times ``reach_px``) or, given the sweep of
+    the part that showed the direction, than that length and :data:`~scanmass.segment.shadowsweep._WITNESS_SLACK_PX`
+    (one thickness given, one light: one shadow length), where the paper just past the outline is brighter on
+    the shadow's side than on the other (:func:`_lit_beyond`), where the layers read as the face lie across a
+    hole, where under :data:`_TINT_CUT_MIN_CORE` of the cut is darker than the face (no core the light misses),
+    or where the cut takes more than :data:`~scanmass.segment.shadowlayer.CUT_MAX_SHARE` of the region.
+
+    Examples
+    --------
+    A face tinted as steel in window light 40 px wide; on its right a shadow of the paper's tint found as part:
+    a core 6 px wide darker than the face, then a fade 5 px wide out to the paper. The sweep along +x cuts both,
+    the face is kept.
+
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (80, 110, 1))
+    >>> mask = np.zeros((80, 110), bool); mask[15:65, 15:66] = True
+    >>> img[15:65, 15:55] = 0.12 * paper * np.array([1.06, 1.0, 0.94])
+    >>> img[15:65, 55:61] = 0.015 * paper
+    >>> img[15:65, 61:66] = paper * np.linspace(0.15, 0.45, 5)[None, :, None]
+    >>> img[15:65, 66:72] = paper * np.linspace(0.55, 0.9, 6)[None, :, None]
+    >>> cut = tint_step_cut(img, mask, paper, 12.0, np.array([1.0, 0.0]))
+    >>> bool(cut.cut[20:60, 56:66].all()), bool(cut.cut[:, :54].any()), cut.direction
+    (True, False, (1.0, 0.0))
+    """
+    mask8 = part_mask.astype(np.uint8)
+    if mask8.sum() < 50:
+        return None
+    q = (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).astype(np.float32)
+    level = q.mean(axis=2)
+    smooth = cv2.GaussianBlur(q, (0, 0), _TINT_SMOOTH_PX)
+    tint = _tint(smooth, smooth.mean(axis=2))
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = _face_interior(inside, reach_px)
+    if np.count_nonzero(interior) < 50:
+        return None
+    face_tint = float(np.median(tint[interior]))
+    if abs(face_tint) < _DARK_CHROMA_STEP:
+        return None
+    share = tint / face_tint  # 1 at the face's tint, 0 at the paper's
+    unit = np.asarray(direction, float) / max(float(np.hypot(*direction)), 1e-12)
+    outer = _filled(part_mask).astype(np.uint8)
+    longest = LOW_LIGHT_REACH_FACTOR * reach_px + 1.0
+    if witness_px is not None:
+        longest = min(longest, witness_px + _WITNESS_SLACK_PX)
+    stop = int(longest) + _FACE_WINDOW_PX + 2
+    depth = _tint_step(outer, part_mask, unit, share, stop)
+    lit = _tint_step(outer, part_mask, -unit, share, stop)
+    if depth is None or depth > longest or depth - (0.0 if lit is None else lit) < 2 + _RIM_LAYERS:
+        return None
+    if _lit_beyond(part_mask, unit, level):
+        return None
+    # the outline's blur (within _RIM_LAYERS px of the boundary) has the paper's tint all round: no vote
+    vote = np.where(share < 0.5, 1.0, -1.0).astype(np.float32) * (part_mask & (inside > _RIM_LAYERS))
+    best_unit, best_depth = _best_sweep(outer, vote, depth * unit, ties_to_guess=True)
+    cut = _sweep_layer(outer, best_depth * best_unit) & part_mask
+    beyond = _sweep_layer(outer, (best_depth + _FACE_WINDOW_PX) * best_unit) & ~cut
+    if np.count_nonzero(beyond & ~part_mask) > _FACE_WINDOW_HOLE_SHARE * np.count_nonzero(beyond):
+        return None  # the face's layers beyond lie across a hole: the step read there is the hole's
+    face_level = float(np.median(level[interior]))
+    if np.count_nonzero(cut & (level < face_level)) < _TINT_CUT_MIN_CORE * np.count_nonzero(cut):
+        return None
+    settled = _settled_cut(cut, part_mask)
+    if settled is None:
+        return None
+    cut = _with_rim(settled[0], part_mask)
+    keep = part_mask & ~cut
+    rough = roughness(level)
+    return ShadowCut(
+        cut=cut,
+        cut_px=int(np.count_nonzero(cut)),
+        edge_px=_edge_px(cut, keep),
+        texture_face=float(np.median(rough[interior])),
+        texture_shadow=float(np.median(rough[cut])),
+        level_face=float(np.median(level[keep])),
+        level_shadow=float(np.median(level[cut])),
+        direction=(float(best_unit[0]), float(best_unit[1])),
+        length_px=float(best_depth),
+    )
+
+
+def _tint_step(
+    outer8: np.ndarray, part_mask: np.ndarray, unit: np.ndarray, share: np.ndarray, stop: int
+) -> float | None:
+    """Where the layers a sweep of ``outer8`` along ``unit`` adds first hold the face's tint (:func:`tint_step_cut`).
+
+    ``share`` is each pixel's tint as a share of the face's; a layer's is its median over the region's pixels
+    (layers with fewer than :data:`~scanmass.segment.shadowlayer.STRETCH_PX` of them are passed over). The length
+    (px) is where it crosses one half and stays past it for :data:`~scanmass.segment.shadowsweep._SUSTAIN` layers,
+    interpolated between layers; None where it never does before ``stop``.
+    """
+    ks, prof = [], []
+    for k, new in _new_layers(outer8, unit, stop):
+        new = new & part_mask
+        if np.count_nonzero(new) >= STRETCH_PX:
+            ks.append(float(k))
+            prof.append(float(np.median(share[new])))
+    k_arr, p_arr = np.asarray(ks), np.asarray(prof)
+    for i in range(len(k_arr)):
+        if p_arr[i] >= 0.5 and np.median(p_arr[i : i + _SUSTAIN]) >= 0.5:
+            return 0.0 if i == 0 else _crossing(k_arr, p_arr, i, 0.5)
+    return None
+
+
+#: Smallest shortening (px) of a sweep's cut by :func:`tint_bound`: the half-way of the tint and of the grain or
+#: level read a pixel or so apart on the same step (the tint's smoothing, the grain's 1.5 px).
+_TINT_BOUND_MIN_PX = 2.0
+#: Smallest tint (median over the face) of a face of a colour of its own (brass), which :func:`tint_bound` leaves
+#: alone: a thin one's cut is placed by its yellowness (:func:`~scanmass.segment.colourshadow.tint_cut`). The same
+#: value as :data:`~scanmass.segment.castshadow._COLOUR_FACE_TINT` (brass 0.99, brushed steel in window light
+#: 0.05-0.10 on the committed renders, tests/data/reallight).
+_OWN_COLOUR_TINT = 0.3
+
+
+def tint_bound(
+    colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, cut: ShadowCut, reach_px: float
+) -> ShadowCut | None:
+    """A sweep's cut on a tinted metal face, shortened to the step of tint along its direction; None where it stands.
+
+    A cast shadow keeps the paper's tint and a metal face mirroring the light (brushed steel in window light) has
+    its own (:func:`tint_step_cut`). Where the face is that smooth that its rim near the outline reads as rough as
+    the shadow (on the committed render tests/data/reallight/dev-lens-window-steel-t24 the 2.5 mm steel plate's face
+    0.0015 against 0.03-0.2 in the 14 layers next to its outline), the sweep's grain runs on past the shadow into
+    the face, whose level the shadow's core shares: the plate's own sweep was 11.7 px long where the paper's tint
+    ends after 6-7 (the face's +0.05-0.07 beyond), and it cut the face beside its holes as well (-4.7 % in area).
+    The cut is kept where it lies within the layers a sweep of the same direction up to the tint's step adds
+    (:func:`_tint_step`, on the outer ring), where that is :data:`_TINT_BOUND_MIN_PX` or more shorter; beside the
+    holes, within those of a sweep from their rims up to the step read on the holes' layers alone (a hole's wall
+    facing the camera lies in its shadow's run), or as it was where none is read; pixels of the cut outside the
+    region (the fade past the outline) stay. None where the face is not tinted (at least
+    :data:`_DARK_CHROMA_STEP`) or is of a colour of its own (:data:`_OWN_COLOUR_TINT`), the cut has no sweep, no
+    step is read, the side facing the light reads as long, or the paper 4-16 px past the outline beyond the cut
+    is at :data:`_FADE_DIM` of the paper white or brighter (a hard light's shadow, ended on lit paper: its level's
+    step against the face places its end; on the committed render tests/data/reallight/dev-spot-steel-t18 the
+    2.2 mm steel seal under the spot went from -9.2 to +5.5 % in area shortened to its tint). The caller uses it on thin parts only: a thicker
+    part's shaded side wall facing the camera mirrors the light as its face does, and its cut must take that wall
+    with the shadow.
+    """
+    if cut.direction is None or cut.length_px is None:
+        return None
+    mask8 = part_mask.astype(np.uint8)
+    q = (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).astype(np.float32)
+    smooth = cv2.GaussianBlur(q, (0, 0), _TINT_SMOOTH_PX)
+    tint = _tint(smooth, smooth.mean(axis=2))
+    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    interior = _face_interior(inside, reach_px) & ~cut.cut
+    if np.count_nonzero(interior) < 50:
+        return None
+    face_tint = float(np.median(tint[interior]))
+    if not _DARK_CHROMA_STEP <= abs(face_tint) < _OWN_COLOUR_TINT:
+        return None
+    unit = np.asarray(cut.direction, float)
+    # a soft light's shadow (a window's) still dims the paper 4-16 px past the outline beyond the cut; a hard
+    # light's shadow ends on the paper lit, its level's step against the face placing its end
+    outside = cv2.distanceTransform((1 - mask8).astype(np.uint8), cv2.DIST_L2, 3)
+    far = _swept_on(cut.cut & part_mask, part_mask, float(cut.length_px) * unit) & (outside > 4) & (outside < 16)
+    level = q.mean(axis=2)
+    if np.count_nonzero(far) < 20 or float(np.median(level[far])) >= _FADE_DIM:
+        return None
+    share = tint / face_tint
+    outer = _filled(part_mask).astype(np.uint8)
+    stop = int(cut.length_px) + _FACE_WINDOW_PX
+    depth = _tint_step(outer, part_mask, unit, share, stop)
+    lit = _tint_step(outer, part_mask, -unit, share, stop)
+    if depth is None or depth > cut.length_px - _TINT_BOUND_MIN_PX or (lit is not None and lit >= depth):
+        return None
+    within = _sweep_layer(outer, max(depth, 1.0) * unit)
+    # beside a hole the layers run from its rim: bounded by the step read on them alone (the hole's wall facing
+    # the camera and its floor's shadow), or left as they were where none is read
+    solid = (~(outer.astype(bool) & ~part_mask)).astype(np.uint8)  # all but the holes
+    at_holes = _sweep_layer(solid, float(cut.length_px) * unit) & part_mask
+    if at_holes.any():
+        hole_depth = _tint_step(solid, part_mask, unit, share, stop)
+        within |= at_holes if hole_depth is None else _sweep_layer(solid, max(hole_depth, 1.0) * unit)
+    kept = (cut.cut & within) | (cut.cut & ~part_mask)
+    settled = _settled_cut(kept & part_mask, part_mask)
+    if settled is None:
+        return None
+    inner = _with_rim(settled[0], part_mask)
+    keep = part_mask & ~inner
+    return ShadowCut(
+        cut=inner | (kept & ~part_mask),
+        cut_px=int(np.count_nonzero(inner)),
+        edge_px=_edge_px(inner, keep),
+        texture_face=cut.texture_face,
+        texture_shadow=cut.texture_shadow,
+        level_face=float(np.median(level[keep])),
+        level_shadow=float(np.median(level[inner])),
+        direction=cut.direction,
+        length_px=float(depth),
+    )
