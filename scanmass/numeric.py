@@ -204,6 +204,20 @@ def nanmedian_rows(a: np.ndarray) -> np.ndarray:
     return out
 
 
+def robust_sigma(values: np.ndarray) -> float:
+    """The standard deviation of normal noise estimated from the median absolute deviation.
+
+    1.4826 times the median of the absolute deviations from the median (1 / Phi^-1(3/4): common
+    practice for a robust sigma).
+
+    Examples
+    --------
+    >>> robust_sigma(np.array([1.0, 2.0, 3.0, 4.0, 100.0]))
+    1.4826
+    """
+    return 1.4826 * float(np.median(np.abs(values - np.median(values))))
+
+
 def median_1d(values: np.ndarray) -> np.float64:
     """``np.median`` of a short 1-D float64 array, without its general-axis machinery.
 

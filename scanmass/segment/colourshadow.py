@@ -45,6 +45,7 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.numeric import robust_sigma
 from scanmass.segment.shadowlayer import (
     STRETCH_PX,
     ShadowCut,
@@ -538,8 +539,6 @@ TINT_CUT_LEVEL_STEP = 1.0
 #: Smallest step of yellowness from the shadow up to the face, in units of their pixels' noise, for :func:`tint_cut`:
 #: three sigma (common practice for a difference told from noise). The spot renders' brass parts read 3.3-6.4.
 TINT_CUT_MIN_CONTRAST = 3.0
-#: Robust sigma of normal noise from the median absolute deviation (common practice: 1 / Phi^-1(3/4)).
-_MAD_SIGMA = 1.4826
 #: Largest level (over the paper white) of a pixel :func:`tint_cut` takes as shadow, unless the cut took it
 #: already: the faces and shadows it is for read 0.015-0.03; the face's rim against the lit paper is brighter.
 TINT_CUT_DARK = 0.1
@@ -557,9 +556,7 @@ _TINT_RIM_PX = 3
 
 def _noise(a: np.ndarray, b: np.ndarray) -> float:
     """The noise of the difference of two samples' medians per pixel: their robust sigmas (MAD) added in quadrature."""
-    sa = _MAD_SIGMA * float(np.median(np.abs(a - np.median(a))))
-    sb = _MAD_SIGMA * float(np.median(np.abs(b - np.median(b))))
-    return max(float(np.hypot(sa, sb)), 1e-9)
+    return max(float(np.hypot(robust_sigma(a), robust_sigma(b))), 1e-9)
 
 
 def tint_cut(

@@ -30,7 +30,7 @@ import numpy as np
 from skimage.measure import find_contours
 
 from scanmass.geometry import signed_area, vertex_normals
-from scanmass.numeric import nonzero_every, nonzero_rc
+from scanmass.numeric import nonzero_every, nonzero_rc, robust_sigma
 from scanmass.segment.distance import exact_distance
 
 __all__ = ["FaceResult", "scan_face", "deep_holes", "tinted_face", "SOFT_RATIO"]
@@ -1025,7 +1025,7 @@ def _mad(values: np.ndarray) -> float:
     """Standard deviation from the median absolute deviation (0 for fewer than 20 values)."""
     if values.size < 20:
         return 0.0
-    return 1.4826 * float(np.median(np.abs(values - np.median(values))))
+    return robust_sigma(values)
 
 
 def _distance_to_ring(points: np.ndarray, ring: np.ndarray, origin: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:

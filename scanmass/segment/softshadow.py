@@ -328,6 +328,18 @@ _TINT_CUT_MIN_CORE = 0.3
 _TINT_SMOOTH_PX = 0.7
 
 
+def _tint_reading(
+    colour_lin: np.ndarray, mask8: np.ndarray, paper_rgb: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The crop's colour over the paper white, its tint smoothed over :data:`_TINT_SMOOTH_PX`, and the distance inside the region.
+
+    What :func:`tint_step_cut` and :func:`tint_bound` read a part by (``mask8``: the region as uint8).
+    """
+    q = (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).astype(np.float32)
+    smooth = cv2.GaussianBlur(q, (0, 0), _TINT_SMOOTH_PX)
+    return q, _tint(smooth, smooth.mean(axis=2)), cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+
+
 def tint_step_cut(
     colour_lin: np.ndarray,
     part_mask: np.ndarray,
@@ -380,11 +392,8 @@ def tint_step_cut(
     mask8 = part_mask.astype(np.uint8)
     if mask8.sum() < 50:
         return None
-    q = (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).astype(np.float32)
+    q, tint, inside = _tint_reading(colour_lin, mask8, paper_rgb)
     level = q.mean(axis=2)
-    smooth = cv2.GaussianBlur(q, (0, 0), _TINT_SMOOTH_PX)
-    tint = _tint(smooth, smooth.mean(axis=2))
-    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
     interior = _face_interior(inside, reach_px)
     if np.count_nonzero(interior) < 50:
         return None
@@ -493,10 +502,7 @@ def tint_bound(
     if cut.direction is None or cut.length_px is None:
         return None
     mask8 = part_mask.astype(np.uint8)
-    q = (np.asarray(colour_lin, np.float32) / np.asarray(paper_rgb, np.float32)).astype(np.float32)
-    smooth = cv2.GaussianBlur(q, (0, 0), _TINT_SMOOTH_PX)
-    tint = _tint(smooth, smooth.mean(axis=2))
-    inside = cv2.distanceTransform(mask8, cv2.DIST_L2, 3)
+    q, tint, inside = _tint_reading(colour_lin, mask8, paper_rgb)
     interior = _face_interior(inside, reach_px) & ~cut.cut
     if np.count_nonzero(interior) < 50:
         return None
