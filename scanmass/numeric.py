@@ -204,18 +204,30 @@ def nanmedian_rows(a: np.ndarray) -> np.ndarray:
     return out
 
 
-def robust_sigma(values: np.ndarray) -> float:
+def robust_sigma(values: np.ndarray, centre: float | None = None) -> float:
     """The standard deviation of normal noise estimated from the median absolute deviation.
 
-    1.4826 times the median of the absolute deviations from the median (1 / Phi^-1(3/4): common
+    1.4826 times the median of the absolute deviations from ``centre`` (1 / Phi^-1(3/4): common
     practice for a robust sigma).
+
+    Parameters
+    ----------
+    values : ndarray
+        The samples (any shape).
+    centre : float, optional
+        What the deviations are taken from: the samples' median when not given; 0 for residuals
+        that scatter about zero by construction, or a centre the caller has already read.
 
     Examples
     --------
     >>> robust_sigma(np.array([1.0, 2.0, 3.0, 4.0, 100.0]))
     1.4826
+    >>> robust_sigma(np.array([-2.0, 1.0, 3.0]), centre=0.0)
+    2.9652
     """
-    return 1.4826 * float(np.median(np.abs(values - np.median(values))))
+    if centre is None:
+        return 1.4826 * float(np.median(np.abs(values - np.median(values))))
+    return 1.4826 * float(np.median(np.abs(values - centre)))
 
 
 def median_1d(values: np.ndarray) -> np.float64:

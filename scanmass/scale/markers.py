@@ -19,7 +19,7 @@ import numpy as np
 
 from scanmass.errors import ScaleError
 from scanmass.load.decode import LoadedImage, lookup
-from scanmass.numeric import median_1d
+from scanmass.numeric import median_1d, robust_sigma
 from scanmass.scale.edges import Line, fit_line, intersect_lines, side_frame, window_centroid
 from scanmass.scale.homography import apply_h
 from scanmass.scale.markerfind import ExpectedQuads, find_markers
@@ -343,5 +343,5 @@ def _refine_corners(
                 ok[i] = False
                 break
             refined[i, k] = p
-    noise = float(1.4826 * np.median(np.abs(np.concatenate(residuals)))) if residuals else float("nan")
+    noise = robust_sigma(np.concatenate(residuals), centre=0.0) if residuals else float("nan")
     return refined, noise, blur, normals, ok

@@ -16,7 +16,7 @@ import numpy as np
 
 from scanmass.errors import OptionError, ScaleError
 from scanmass.load.decode import LoadedImage
-from scanmass.numeric import combine, otsu_threshold
+from scanmass.numeric import combine, otsu_threshold, robust_sigma
 from scanmass.scale.camera import PhotoScale, ScaleBasis, lens_tools, photo_scale_basis
 from scanmass.scale.edges import Line, fit_line, intersect_lines, side_frame
 from scanmass.scale.homography import fit_homography
@@ -207,7 +207,7 @@ def _find_sheet(image: LoadedImage, undistort: PixelCorrection | None) -> tuple[
     corners = np.asarray(corners, dtype=float)
     res = np.concatenate(residuals)
     # corner localisation: a line fitted to m points with scatter s has its end positions known to about 2 s / sqrt(m)
-    noise = float(1.4826 * np.median(np.abs(res))) * 2.0 / math.sqrt(max(len(res) / 4, 1))
+    noise = robust_sigma(res, centre=0.0) * 2.0 / math.sqrt(max(len(res) / 4, 1))
     # order: start at the corner lowest-left in the image (largest y - x), go counter-clockwise as seen
     area = 0.5 * np.sum(corners[:, 0] * np.roll(corners[:, 1], -1) - np.roll(corners[:, 0], -1) * corners[:, 1])
     if area > 0:  # positive in y-down pixels = clockwise as seen; reverse to counter-clockwise

@@ -43,6 +43,8 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from scanmass.numeric import robust_sigma
+
 __all__ = ["ClosedFeature", "is_sliver", "measure_closed"]
 
 
@@ -276,12 +278,11 @@ def measure_closed(
         width = float(np.median(per_bin))
         if not width > 0.2:
             continue
-        spread = 1.4826 * float(np.median(np.abs(per_bin - width))) / math.sqrt(per_bin.size)
+        bin_sigma = robust_sigma(per_bin, width)
+        spread = bin_sigma / math.sqrt(per_bin.size)
         if not _is_strip(xy, m, t, edges, width, sigma, rings, away_px, noise_rel):
             continue
-        if 1.4826 * float(np.median(np.abs(per_bin - width))) > WIDTH_SPREAD * width + 3.0 * noise_rel * math.sqrt(
-            m.size / per_bin.size
-        ):
+        if bin_sigma > WIDTH_SPREAD * width + 3.0 * noise_rel * math.sqrt(m.size / per_bin.size):
             continue  # not one width along it (a wedge, the neck between two touching parts)
         # the two ends: where the outline is near, run into it past its own bulge; else by
         # the integral rule

@@ -24,7 +24,7 @@ import numpy as np
 from scanmass.errors import OptionError, PartCutError, SegmentationError
 from scanmass.geometry import point_in_ring, signed_area
 from scanmass.load.decode import LoadedImage, lookup
-from scanmass.numeric import code_median, code_percentiles, nonzero_rc, otsu_threshold, sample_points
+from scanmass.numeric import code_median, code_percentiles, nonzero_rc, otsu_threshold, robust_sigma, sample_points
 from scanmass.segment.contact import depth_field, edge_shadow_depth, part_side_rise, renormalise
 from scanmass.segment.contours import level_rings
 
@@ -179,7 +179,7 @@ def _noise_spread(residuals: np.ndarray, step: float) -> float:
     """
     if residuals.size == 0:
         return 1e-9
-    mad = 1.4826 * float(np.median(np.abs(residuals - np.median(residuals))))
+    mad = robust_sigma(residuals)
     if step > 0 and mad < 2.0 * step:
         return float(np.std(residuals)) + 1e-9
     return mad + 1e-9
@@ -682,7 +682,7 @@ def _refine_part(
         contour_level = (t_lin - bg) / contrast
         if not (0.0 < contour_level < 1.0):
             return None
-        noise = 1.4826 * float(np.median(np.abs(bg_lin - bg))) if bg_lin.size else 0.0
+        noise = robust_sigma(bg_lin, centre=bg) if bg_lin.size else 0.0
         noise_rel = noise / abs(contrast)
         level_rel_u = 0.0
     del band_out, hole_space, interior

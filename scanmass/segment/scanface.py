@@ -319,7 +319,7 @@ def scan_face(
         gap = shadow - part
         dark = linear[inside & (linear < part + 0.5 * max(gap, 0.0))]
         if dark.size > 20:  # the part's own noise (texture, grain) rather than the outline fit's residual
-            noise = min(noise, 1.4826 * float(np.median(np.abs(dark - np.median(dark)))))
+            noise = min(noise, robust_sigma(dark))
         # a shadow: the soft stretch faces one way, and inside it lies a level between the part and the lid
         # (a half disc's front faces its direction by 2 / pi on average; the shadow's sides by 0)
         facing = float((lengths[soft] * (normals[soft] @ direction)).sum()) / max(soft_len, 1e-12)

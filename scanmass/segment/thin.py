@@ -55,7 +55,7 @@ import numpy as np
 
 from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage, lookup
-from scanmass.numeric import nonzero_every, nonzero_rc, sample_points
+from scanmass.numeric import nonzero_every, nonzero_rc, robust_sigma, sample_points
 from scanmass.segment.closedfeat import is_sliver
 from scanmass.segment.dipgate import WindowRegion, dips_possible
 from scanmass.segment.rings import PartRings, correct_curvature
@@ -694,7 +694,7 @@ def edge_residual_px(image: LoadedImage, rings: PartRings) -> tuple[list[np.ndar
             per_vertex = (-sigma * (0.5 * (e + e[:, ::-1]) @ lift) / float(lift @ lift) + curvature_shift)[valid]
             if per_vertex.size >= 16:
                 centre = float(np.median(per_vertex))  # robust to the corners' profiles
-                spread = 1.4826 * float(np.median(np.abs(per_vertex - centre)))
+                spread = robust_sigma(per_vertex, centre)
                 moved = centre
                 # less the noise of that estimate (vertices correlated over the window, conservatively)
                 n_eff = max(per_vertex.size * spacing / RESIDUAL_WINDOW_PX, 1.0)
@@ -1199,7 +1199,7 @@ def resolve_walls(
             level_source = "the part's thick regions"
             values = lin[rows_f, cols_f].astype(float)
             resid = values - fg_eval(rows_f.astype(float), cols_f.astype(float))
-            part_level_rel_u = 1.4826 * float(np.median(np.abs(resid))) * math.sqrt(6.0 / values.size) / abs(contrast)
+            part_level_rel_u = robust_sigma(resid, centre=0.0) * math.sqrt(6.0 / values.size) / abs(contrast)
 
     # -- profiles along the normals ----------------------------------------------------
     idx = np.nonzero(wall | slot)[0]
@@ -1257,7 +1257,7 @@ def resolve_walls(
             rel_est = rel_est[np.isfinite(rel_est)]
             if rel_est.size >= 8 and float(np.median(reach_ratio[solved])) >= OWN_LEVEL_MIN_REACH:
                 ratio = float(np.median(rel_est))
-                spread = 1.4826 * float(np.median(np.abs(rel_est - ratio))) / math.sqrt(rel_est.size)
+                spread = robust_sigma(rel_est, ratio) / math.sqrt(rel_est.size)
                 # the blur's shape against the Gaussian biases the peak by about 1 %; where the
                 # peak equation is flat (narrow walls) that moves the level by much more:
                 # propagate it through the equation
