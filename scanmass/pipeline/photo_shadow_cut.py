@@ -29,6 +29,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.castshadow import core_cut, shadow_cut, sweep_direction
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
 from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
+from scanmass.segment.facelevel import cut_at_face_level, face_above_core
 from scanmass.segment.metalshadow import metal_colour_sweep
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -392,6 +393,11 @@ def _decide_cuts(
             cut = None if wide else shadow_cut(colour_lin, mask, risk.paper_rgb, band_px, code_step=step)
             if cut is None and not dark and not later:
                 refused.append((colour_lin, mask, risk.paper_rgb, band_px, step))
+            if cut is not None and dark:
+                # mixed light: a cut at the face's level holds only face (no shadow is that dark), tried by colour;
+                # one light: the face the cut took beside a darker core is given back (the face's edge is a step)
+                at_face = cut_at_face_level(colour_lin, mask, risk.paper_rgb, cut, band_px)
+                cut = None if at_face else face_above_core(colour_lin, mask, risk.paper_rgb, cut)
             if cut is None and dark:
                 # mixed light: each light's shadow lit by the other, of its colour, not the paper's
                 cut = coloured_shadow_cut(colour_lin, mask, risk.paper_rgb, band_px)
