@@ -213,6 +213,10 @@ def pit_edge(
 
 #: A level within this factor of the face's (either way) is taken as the face's when tracing an opening.
 FACE_BAND = 1.6
+#: The widest gap (px) between a deep hole's lit floor and the wall's shade on it that :func:`opening_edge`
+#: bridges (``shade_below``): a broad light (a window) gives the shade a soft edge, a penumbra that passes
+#: the face's level between the two (on tests/data/reallight dev-window-steel5-t14's 11 mm hole 2-3 px).
+SHADE_BRIDGE_PX = 10.0
 
 
 def _last_step(rising: np.ndarray, top: float, min_rise: float) -> tuple[float, float]:
@@ -249,6 +253,36 @@ def _last_step(rising: np.ndarray, top: float, min_rise: float) -> tuple[float, 
     return math.nan, math.nan
 
 
+def _shade_bridged(own: np.ndarray, dark: np.ndarray, solid: np.ndarray, within: np.ndarray) -> np.ndarray:
+    """``own`` (uint8 0/1, the opening as found) with the dark regions within :data:`SHADE_BRIDGE_PX` of it, and the gap between.
+
+    A dark region joins when it lies clear (more than 1.5 px) of the edge of ``solid`` (the part with the
+    opening: a shade that reaches the outline is the part's cast shadow, not the floor of a hole) and of the
+    edge of ``within`` (the reach of the opening: a darker sector of the face runs on beyond it).
+    """
+    inner = (cv2.distanceTransform(solid.astype(np.uint8), cv2.DIST_L2, 3) > 1.5) & (
+        cv2.distanceTransform(within.astype(np.uint8), cv2.DIST_L2, 3) > 1.5
+    )
+    dark = dark & within
+    count, labels = cv2.connectedComponents((dark & ~own.astype(bool)).astype(np.uint8), connectivity=8)
+    if count < 2:
+        return own
+    k = max(int(math.ceil(SHADE_BRIDGE_PX)), 1)
+    disk = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * k + 1, 2 * k + 1))
+    reach = cv2.dilate(own, disk).astype(bool)
+    touch = np.unique(labels[reach & (labels > 0)])
+    if touch.size == 0:
+        return own
+    clear = np.ones(count, bool)
+    clear[np.unique(labels[(labels > 0) & ~inner])] = False  # the components that reach the part's edge
+    join = touch[clear[touch]]
+    if join.size == 0:
+        return own
+    union = (own.astype(bool) | np.isin(labels, join)).astype(np.uint8)
+    # the penumbra between the lit floor and its shade (at the face's level) closed over
+    return np.asarray(cv2.morphologyEx(union, cv2.MORPH_CLOSE, disk), np.uint8)
+
+
 def opening_edge(
     lin: np.ndarray,
     part_mask: np.ndarray,
@@ -257,6 +291,7 @@ def opening_edge(
     *,
     rays: int = RAYS,
     last_step: bool = False,
+    shade_below: float = 0.0,
 ) -> PitEdge | None:
     """Trace the border of a hole's whole opening, from the part of it already found (``seed``).
 
@@ -331,10 +366,16 @@ def opening_edge(
             return None
         own = np.zeros((h + 2, w + 2), np.uint8)
         own[1:-1, 1:-1] = labels == np.bincount(hit).argmax()
+        if shade_below > 0:
+            own[1:-1, 1:-1] = _shade_bridged(own[1:-1, 1:-1], img < shade_below, part_mask | seed, dist < reach_px)
         cv2.floodFill(own, None, (0, 0), 2)
         region = own[1:-1, 1:-1] != 2
         away = cv2.distanceTransform((~region).astype(np.uint8), cv2.DIST_L2, 3)
         ring = part_mask & (away > 3.0) & (away < 8.0)
+    if shade_below > 0:  # the rays from the whole opening's centre: the seed may be a lit crescent at its side
+        ys, xs = np.nonzero(region)
+        cx, cy = float(xs.mean()), float(ys.mean())
+        dist = np.hypot(xx - cx, yy - cy)
     radii, angles, profiles, inside = _rays(img, region, float(dist[region].max()), cx, cy, rays)
     near = int(NEAR_PX / RAY_STEP_PX)
     pts, spread = [], []
