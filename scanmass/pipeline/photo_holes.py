@@ -349,6 +349,58 @@ def _found_opening(
     return fit[0], fit[1], fit[3]
 
 
+def _shade_level(lin: np.ndarray, mask: np.ndarray) -> float:
+    """The level a hole's floor in its wall's shade lies below: a pit's, half the part's level read low in its face.
+
+    :data:`~scanmass.segment.shadow.PIT_DEPTH` of the part's :data:`DEEP_HOLE_LOW_QUANTILE` percentile (its
+    pixels more than 3 px inside); 0 when it has none.
+    """
+    deep = cv2.distanceTransform(mask.astype(np.uint8), cv2.DIST_L2, 3) > 3
+    return PIT_DEPTH * float(np.percentile(lin[deep], DEEP_HOLE_LOW_QUANTILE)) if deep.any() else 0.0
+
+
+def _lit_pit_opening(
+    lin: np.ndarray,
+    mask: np.ndarray,
+    centre_px: tuple[float, float],
+    diameter_px: float,
+    origin: tuple[int, int],
+    hook: ElevationHook,
+    mm_per_px: float,
+    outline: np.ndarray,
+    shade_below: float,
+    holes: list[Hole],
+) -> tuple[np.ndarray, float, float, float] | None:
+    """A dark pit whose border meets a lit stretch of floor or wall: the whole opening's circle, or None.
+
+    :func:`~scanmass.segment.deephole.pit_edge` leaves out the rays that lead from the pit into something
+    brighter than the face (the floor lit by a light from one side); where too few are left for a fit, the
+    opening is traced around the pit and the lit stretch together
+    (:func:`~scanmass.segment.deephole.opening_edge` with the pit as its seed, the shade darker than
+    ``shade_below``) and fitted on the top face's plane (:func:`_top_circle`). Taken only where the fit is
+    clean (:data:`DEEP_HOLE_CLEAN_RMS_PX`), holds the pit's centre and none of the part's found ``holes``.
+    """
+    if shade_below <= 0:
+        return None
+    h, w = lin.shape
+    yy, xx = np.mgrid[0:h, 0:w]
+    seed = mask & (np.hypot(xx - centre_px[0], yy - centre_px[1]) < 0.5 * diameter_px) & (lin < shade_below)
+    if np.count_nonzero(seed) < 3:
+        return None
+    # as far as a found hole's opening is looked for (a lit stretch of a brushed face beyond leads the trace astray)
+    reach = 0.75 * diameter_px + hook.height_mm / mm_per_px + 6.0
+    edge = opening_edge(lin, mask & ~seed, seed, reach, shade_below=shade_below)
+    fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
+    if fit is None or fit[2] > DEEP_HOLE_CLEAN_RMS_PX:
+        return None
+    centre_top = apply_h(hook.hh, np.asarray([[centre_px[0] + origin[0], centre_px[1] + origin[1]]], float))[0]
+    if math.dist(fit[0], centre_top) > 0.5 * fit[1]:
+        return None
+    if any(math.dist(fit[0], h.circle_centre_mm) <= 0.5 * fit[1] for h in holes):
+        return None  # a found hole lies in this opening: its own opening is traced from it (:func:`_shaded_opening`)
+    return fit
+
+
 def _shaded_opening(
     hole: Hole,
     seed: np.ndarray,
@@ -408,6 +460,8 @@ def _deep_hole_circles(
     # noise in the shade break a deep hole's dark bottom into pieces too small to be a pit), where
     # the image as it is shows none
     min_px = HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2
+    # the level a hole's floor in its wall's shade lies below: a pit's (half the part's level read low in its face)
+    shade_below = _shade_level(lin, mask)
     pits = dark_pits(lin, mask, min_px)
     calm = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), 1.0)
     pits += [
@@ -423,15 +477,15 @@ def _deep_hole_circles(
     for x, y, d in pits:
         edge = pit_edge(lin, mask, (x, y), d)
         fit = None if edge is None else _top_circle(edge, (x0, y0), hook, mm_per_px, outline)
+        if fit is None and edge is not None and edge.lit_share > 0:
+            fit = _lit_pit_opening(lin, mask, (x, y), d, (x0, y0), hook, mm_per_px, outline, shade_below, part.holes)
         if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
             out.append((fit[0], fit[1], fit[3], None))
     (sx0, sy0, sx1, sy1), seen_mask, rings = seen
     seen_lin = lut[image.grey[sy0:sy1, sx0:sx1]]
     info = scale.plane_map.photo
     thick_u = 0.0 if info is None or info.thickness is None else float(info.thickness.height_u_mm)
-    # the level a hole's floor in its wall's shade lies below: a pit's (half the part's level read low in its face)
-    deep = cv2.distanceTransform(seen_mask.astype(np.uint8), cv2.DIST_L2, 3) > 3
-    shade_below = PIT_DEPTH * float(np.percentile(seen_lin[deep], DEEP_HOLE_LOW_QUANTILE)) if deep.any() else 0.0
+    shade_below = _shade_level(seen_lin, seen_mask)
     for hole, ring in zip(part.holes, rings[1:]):
         seed8 = np.zeros(seen_mask.shape, np.uint8)
         cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)

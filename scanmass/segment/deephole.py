@@ -51,6 +51,8 @@ class PitEdge:
         The face's and the pit's levels (linear light).
     share : float
         Share of the rays that found a crossing with the face.
+    lit_share : float
+        Share of the rays whose crossing leads to a lit floor or wall inside the opening (:func:`pit_edge`).
     """
 
     points_px: np.ndarray
@@ -58,6 +60,7 @@ class PitEdge:
     face_level: float
     pit_level: float
     share: float
+    lit_share: float = 0.0
 
 
 def _crossing_near(profile: np.ndarray, level: float, at: int) -> float:
@@ -207,7 +210,12 @@ def pit_edge(
     if not good:
         return None
     return PitEdge(
-        np.asarray(pts, float)[good], np.asarray(spread, float)[good], face_level, pit_level, len(good) / rays
+        np.asarray(pts, float)[good],
+        np.asarray(spread, float)[good],
+        face_level,
+        pit_level,
+        len(good) / rays,
+        float(np.count_nonzero(lit)) / rays,
     )
 
 
@@ -355,7 +363,10 @@ def opening_edge(
         face_level = float(np.median(img[ring]))
         if face_level <= 0:
             return None
-        other = ((img < face_level / FACE_BAND) | (img > face_level * FACE_BAND)) & (dist < reach_px)
+        # with ``shade_below`` only what is darker than a pit counts as the shaded side (a brushed face's dark
+        # sector lies between that and the face's band)
+        dark_below = shade_below if shade_below > 0 else face_level / FACE_BAND
+        other = ((img < dark_below) | (img > face_level * FACE_BAND)) & (dist < reach_px)
         # closed: where a lit stretch meets a shaded one, the blurred step between them passes the
         # face's level along a line a pixel wide, which must not cut the opening in two
         joined = cv2.morphologyEx((other | seed).astype(np.uint8), cv2.MORPH_CLOSE, np.ones((3, 3), np.uint8))
