@@ -76,7 +76,9 @@ def test_window_lit_plates_large_hole_is_opened_at_its_top_face():
     assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
     assert abs(part.area_mm2 - tp["area"]) < 0.04 * tp["area"]  # was +5.7 %
     assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
-    assert any(w.startswith("deep hole:") and f"part {part.label} (" in w for w in m.warnings)
+    said = next(w for w in m.warnings if w.startswith("deep hole:") and f"part {part.label} (" in w)
+    assert "partly seen" in said  # the opening was put together from the lit floor and the shade
+    assert any(h["partly_seen"] for h in m.settings["deep_holes"][str(part.label)])
 
 
 @pytest.mark.slow
@@ -99,3 +101,4 @@ def test_window_lit_cams_bore_whose_pit_meets_its_lit_floor_is_opened():
     assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
     assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]  # was +4.8 %
     assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
+    assert any(w.startswith("deep hole:") and "partly seen" in w for w in m.warnings)

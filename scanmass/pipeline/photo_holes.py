@@ -94,6 +94,11 @@ DEEP_HOLE_STEP_RMS_PX = 0.2
 #: plastic and steel: 0.6-1.8 px) keep the :data:`DEEP_HOLE_REPLACE_PX` rule.
 DEEP_HOLE_UNROUND_WIDER_PX = 3.0
 
+#: Said in the deep-hole warning after a hole whose opening was put together from its lit floor and the wall's shade.
+PARTLY_SEEN = (
+    ", partly seen: its floor lit on one side, in its wall's shade on the other, the opening traced around both"
+)
+
 #: A deep hole's lit floor (:func:`~scanmass.segment.deephole.lit_floor_ring`) is the overlap of its top
 #: opening's image and its bottom opening's, shifted by the thickness's parallax (:func:`_floor_overlap`).
 #: The overlap's fit is taken only where it explains the floor's border: where the traced floor's points
@@ -439,10 +444,11 @@ def _shaded_opening(
 
 def _deep_hole_circles(
     image: LoadedImage, scale: PhotoScale, part: Part, hook: ElevationHook, lut: np.ndarray
-) -> list[tuple[np.ndarray, float, float, np.ndarray | None]]:
+) -> list[tuple[np.ndarray, float, float, bool, np.ndarray | None]]:
     """The through-holes at a part's top face that its dark pits open, or that its found holes only partly show.
 
-    Each as (centre mm, diameter mm, edge doubt px, the found hole's ring as seen (photo px) or None).
+    Each as (centre mm, diameter mm, edge doubt px, whether it was put together from a lit floor and its
+    shade (:func:`_shaded_opening`, :func:`_lit_pit_opening`), the found hole's ring as seen (photo px) or None).
     A found hole is replaced where its whole opening (:func:`~scanmass.segment.deephole.opening_edge`)
     fits a circle within :data:`DEEP_HOLE_RMS_PX` wider than the found one by more than
     :data:`DEEP_HOLE_REPLACE_PX`, or narrower than a found ring that is no circle.
@@ -455,7 +461,7 @@ def _deep_hole_circles(
     (x0, y0, x1, y1), mask, _ = crop
     lin = lut[image.grey[y0:y1, x0:x1]]
     outline = np.asarray(part.outline_mm, np.float32)
-    out: list[tuple[np.ndarray, float, float, np.ndarray | None]] = []
+    out: list[tuple[np.ndarray, float, float, bool, np.ndarray | None]] = []
     # also looked for on the image with its specks taken out (a path tracer's fireflies, a sensor's
     # noise in the shade break a deep hole's dark bottom into pieces too small to be a pit), where
     # the image as it is shows none
@@ -477,10 +483,12 @@ def _deep_hole_circles(
     for x, y, d in pits:
         edge = pit_edge(lin, mask, (x, y), d)
         fit = None if edge is None else _top_circle(edge, (x0, y0), hook, mm_per_px, outline)
+        partly = False
         if fit is None and edge is not None and edge.lit_share > 0:
             fit = _lit_pit_opening(lin, mask, (x, y), d, (x0, y0), hook, mm_per_px, outline, shade_below, part.holes)
+            partly = fit is not None
         if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
-            out.append((fit[0], fit[1], fit[3], None))
+            out.append((fit[0], fit[1], fit[3], partly, None))
     (sx0, sy0, sx1, sy1), seen_mask, rings = seen
     seen_lin = lut[image.grey[sy0:sy1, sx0:sx1]]
     info = scale.plane_map.photo
@@ -491,10 +499,12 @@ def _deep_hole_circles(
         cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)
         seed = seed8.astype(bool)
         entry = _found_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, thick_u)
+        partly = False
         if entry is None:
             entry = _shaded_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, shade_below)
+            partly = entry is not None
         if entry is not None:
-            out.append((entry[0], entry[1], entry[2], ring + np.array([sx0, sy0], float)))
+            out.append((entry[0], entry[1], entry[2], partly, ring + np.array([sx0, sy0], float)))
     return out
 
 
@@ -620,7 +630,7 @@ def _open_deep_holes(
         holes = list(new.holes)
         area_mm2 = 0.0
         texts = []
-        for centre, diameter, doubt_px, _ in opened:
+        for centre, diameter, doubt_px, partly, _ in opened:
             k = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, centre), default=None)
             if k is None or math.dist(holes[k].circle_centre_mm, centre) > 0.25 * diameter:
                 return masked, scale, result, []  # the painted opening was not found as a hole: keep it as it was
@@ -634,9 +644,18 @@ def _open_deep_holes(
                 circle_centre_u_mm=(combine(h.circle_centre_u_mm[0], u_mm), combine(h.circle_centre_u_mm[1], u_mm)),
             )
             area_mm2 += math.pi * diameter * u_mm
-            texts.append(f"{h.diameter_mm:.3g} mm at ({h.circle_centre_mm[0]:.1f}, {h.circle_centre_mm[1]:.1f}) mm")
+            texts.append(
+                f"{h.diameter_mm:.3g} mm at ({h.circle_centre_mm[0]:.1f}, {h.circle_centre_mm[1]:.1f}) mm"
+                + (PARTLY_SEEN if partly else "")
+            )
             notes.setdefault(str(old.label), []).append(
-                {"x_mm": float(centre[0]), "y_mm": float(centre[1]), "diameter_mm": diameter, "edge_doubt_px": doubt_px}
+                {
+                    "x_mm": float(centre[0]),
+                    "y_mm": float(centre[1]),
+                    "diameter_mm": diameter,
+                    "edge_doubt_px": doubt_px,
+                    "partly_seen": partly,
+                }
             )
         for h_old in old.holes:  # the holes found before keep their stated doubt (a cut's, a wall's terms)
             j = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, h_old.circle_centre_mm))
