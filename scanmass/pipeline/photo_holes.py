@@ -16,7 +16,7 @@ import numpy as np
 from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
-from scanmass.measurement import Measurement, Part
+from scanmass.measurement import Hole, Measurement, Part
 from scanmass.pipeline.part_terms import _with_extra_term, area_share_term
 from scanmass.pipeline.photo_checks import HIDDEN_HOLE_MIN_AREA_MM2, _part_crop
 from scanmass.pipeline.photo_walls import with_top_seen
@@ -26,7 +26,7 @@ from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
 from scanmass.segment.deephole import PitEdge, lit_floor_ring, opening_edge, pit_edge
-from scanmass.segment.shadow import dark_pits
+from scanmass.segment.shadow import PIT_DEPTH, dark_pits
 from scanmass.uncertainty import combine
 
 #: Smallest share of a dark pit's rays that must meet the face (not a lit floor) for its opening to be traced.
@@ -93,6 +93,11 @@ DEEP_HOLE_STEP_RMS_PX = 0.2
 #: round read 0.36-0.41 mm small, their openings within 0.06 mm). Round rings (soft light, black
 #: plastic and steel: 0.6-1.8 px) keep the :data:`DEEP_HOLE_REPLACE_PX` rule.
 DEEP_HOLE_UNROUND_WIDER_PX = 3.0
+
+#: Said in the deep-hole warning after a hole whose opening was put together from its lit floor and the wall's shade.
+PARTLY_SEEN = (
+    ", partly seen: its floor lit on one side, in its wall's shade on the other, the opening traced around both"
+)
 
 #: A deep hole's lit floor (:func:`~scanmass.segment.deephole.lit_floor_ring`) is the overlap of its top
 #: opening's image and its bottom opening's, shifted by the thickness's parallax (:func:`_floor_overlap`).
@@ -284,12 +289,166 @@ def _wall_band_px(seed: np.ndarray, origin: tuple[int, int], hook: ElevationHook
     return float(np.hypot(*(ideal - apply_h(hook.to_footprint, ideal))[0]))
 
 
+def _found_opening(
+    hole: Hole,
+    seed: np.ndarray,
+    seen_lin: np.ndarray,
+    seen_mask: np.ndarray,
+    origin: tuple[int, int],
+    hook: ElevationHook,
+    mm_per_px: float,
+    outline: np.ndarray,
+    thick_u: float,
+) -> tuple[np.ndarray, float, float] | None:
+    """A found hole's whole opening at the top face where it replaces the found one: (centre mm, diameter mm, doubt px).
+
+    See :func:`_deep_hole_circles`; ``seed`` is the found hole's pixels in the crop (as seen) at ``origin``.
+    """
+    r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
+    thick_px = hook.height_mm / mm_per_px
+    band_px = _wall_band_px(seed, origin, hook)
+    edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
+    fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
+    if (
+        (edge is None or edge.share < DEEP_HOLE_STEP_SHARE)
+        and (fit is None or fit[2] > DEEP_HOLE_STEP_RMS_PX)
+        and band_px >= DEEP_HOLE_STEP_BAND_PX
+    ):
+        # most rays found no midpoint near the opening's border, and what they found is no clean circle:
+        # a wall's band of its own level lies between the floor and the face; the border is the last
+        # step to the face's level, taken where it is rounder or wider than the midpoint's trace
+        steps = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0, last_step=True)
+        by_step = None if steps is None else _top_circle(steps, origin, hook, mm_per_px, outline)
+        if by_step is not None and (
+            fit is None or by_step[2] < fit[2] or by_step[1] - fit[1] > DEEP_HOLE_REPLACE_PX * mm_per_px
+        ):
+            fit = by_step
+    floor = None if band_px < DEEP_HOLE_STEP_BAND_PX else lit_floor_ring(seen_lin, seen_mask, seed, band_px)
+    by_floor = (
+        None if floor is None else _floor_overlap(floor + np.asarray(origin, float), hook, mm_per_px, outline, thick_u)
+    )
+    if (
+        by_floor is not None
+        and by_floor[1] - max(hole.diameter_mm, 0.0 if fit is None else fit[1]) > DEEP_HOLE_REPLACE_PX * mm_per_px
+        and math.dist(by_floor[0], hole.circle_centre_mm) <= 0.5 * hole.diameter_mm
+    ):
+        # the found hole and its traced opening stop at the lit floor (the far wall and the shade look like
+        # the face): the top opening from the floor's overlap, shifted as the thickness predicts
+        return by_floor[0], by_floor[1], by_floor[3]
+    if fit is None:
+        return None
+    clean = fit[2] <= DEEP_HOLE_CLEAN_RMS_PX
+    if fit[1] > hole.diameter_mm and fit[3] > DEEP_HOLE_SOFT_EDGE_PX and not clean:
+        return None  # a wider trace along a soft ramp (a mirroring face's shading beside the hole), no clean circle
+    wider = fit[1] - hole.diameter_mm > DEEP_HOLE_REPLACE_PX * mm_per_px or (
+        fit[1] > hole.diameter_mm and hole.roundness_mm > DEEP_HOLE_UNROUND_WIDER_PX * mm_per_px and clean
+    )
+    # a narrower opening only in place of a found ring that is no circle (a lit wall taken in with
+    # the paper) and from a clean fit: where a far wall looks like the face (black plastic), the
+    # trace stops at its foot, which a round found ring already reads as the bottom edge
+    narrower = fit[1] < hole.diameter_mm and hole.roundness_mm > DEEP_HOLE_UNROUND_PX * mm_per_px and clean
+    if not (wider or narrower):
+        return None
+    if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * hole.diameter_mm:
+        return None  # another opening than this hole's
+    return fit[0], fit[1], fit[3]
+
+
+def _shade_level(lin: np.ndarray, mask: np.ndarray) -> float:
+    """The level a hole's floor in its wall's shade lies below: a pit's, half the part's level read low in its face.
+
+    :data:`~scanmass.segment.shadow.PIT_DEPTH` of the part's :data:`DEEP_HOLE_LOW_QUANTILE` percentile (its
+    pixels more than 3 px inside); 0 when it has none.
+    """
+    deep = cv2.distanceTransform(mask.astype(np.uint8), cv2.DIST_L2, 3) > 3
+    return PIT_DEPTH * float(np.percentile(lin[deep], DEEP_HOLE_LOW_QUANTILE)) if deep.any() else 0.0
+
+
+def _lit_pit_opening(
+    lin: np.ndarray,
+    mask: np.ndarray,
+    centre_px: tuple[float, float],
+    diameter_px: float,
+    origin: tuple[int, int],
+    hook: ElevationHook,
+    mm_per_px: float,
+    outline: np.ndarray,
+    shade_below: float,
+    holes: list[Hole],
+) -> tuple[np.ndarray, float, float, float] | None:
+    """A dark pit whose border meets a lit stretch of floor or wall: the whole opening's circle, or None.
+
+    :func:`~scanmass.segment.deephole.pit_edge` leaves out the rays that lead from the pit into something
+    brighter than the face (the floor lit by a light from one side); where too few are left for a fit, the
+    opening is traced around the pit and the lit stretch together
+    (:func:`~scanmass.segment.deephole.opening_edge` with the pit as its seed, the shade darker than
+    ``shade_below``) and fitted on the top face's plane (:func:`_top_circle`). Taken only where the fit is
+    clean (:data:`DEEP_HOLE_CLEAN_RMS_PX`), holds the pit's centre and none of the part's found ``holes``.
+    """
+    if shade_below <= 0:
+        return None
+    h, w = lin.shape
+    yy, xx = np.mgrid[0:h, 0:w]
+    seed = mask & (np.hypot(xx - centre_px[0], yy - centre_px[1]) < 0.5 * diameter_px) & (lin < shade_below)
+    if np.count_nonzero(seed) < 3:
+        return None
+    # as far as a found hole's opening is looked for (a lit stretch of a brushed face beyond leads the trace astray)
+    reach = 0.75 * diameter_px + hook.height_mm / mm_per_px + 6.0
+    edge = opening_edge(lin, mask & ~seed, seed, reach, shade_below=shade_below)
+    fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
+    if fit is None or fit[2] > DEEP_HOLE_CLEAN_RMS_PX:
+        return None
+    centre_top = apply_h(hook.hh, np.asarray([[centre_px[0] + origin[0], centre_px[1] + origin[1]]], float))[0]
+    if math.dist(fit[0], centre_top) > 0.5 * fit[1]:
+        return None
+    if any(math.dist(fit[0], h.circle_centre_mm) <= 0.5 * fit[1] for h in holes):
+        return None  # a found hole lies in this opening: its own opening is traced from it (:func:`_shaded_opening`)
+    return fit
+
+
+def _shaded_opening(
+    hole: Hole,
+    seed: np.ndarray,
+    seen_lin: np.ndarray,
+    seen_mask: np.ndarray,
+    origin: tuple[int, int],
+    hook: ElevationHook,
+    mm_per_px: float,
+    outline: np.ndarray,
+    shade_below: float,
+) -> tuple[np.ndarray, float, float] | None:
+    """A found hole that is only the lit part of its floor, with the wall's shade beside it: (centre mm, diameter mm, doubt px).
+
+    Under a broad light from one side (a window) the floor of a deep hole is lit on the side away from the
+    light and lies in its near wall's shade on the other: the segmentation finds the lit floor as a small hole
+    at the opening's side, and the shade (darker than a pit, ``shade_below``) as material. Their union, the
+    penumbra between them bridged (:data:`~scanmass.segment.deephole.SHADE_BRIDGE_PX`), is the opening;
+    its border against the face is traced (:func:`~scanmass.segment.deephole.opening_edge`) and fitted on
+    the top face's plane (:func:`_top_circle`). Taken where the fit is clean
+    (:data:`DEEP_HOLE_CLEAN_RMS_PX`), wider than the found hole by more than :data:`DEEP_HOLE_REPLACE_PX`
+    and holds the found hole's centre; else None.
+    """
+    if shade_below <= 0:
+        return None
+    r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
+    # the found lit floor lies at the opening's side: the opening reaches up to twice as far from it
+    reach = 2.0 * (1.5 * r_seed + hook.height_mm / mm_per_px + 6.0)
+    edge = opening_edge(seen_lin, seen_mask, seed, reach, shade_below=shade_below)
+    fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
+    if fit is None or fit[2] > DEEP_HOLE_CLEAN_RMS_PX or fit[1] - hole.diameter_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
+        return None
+    if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * fit[1]:
+        return None  # the found hole is not inside this opening
+    return fit[0], fit[1], fit[3]
+
+
 def _deep_hole_circles(
     image: LoadedImage, scale: PhotoScale, part: Part, hook: ElevationHook, lut: np.ndarray
-) -> list[tuple[np.ndarray, float, float, np.ndarray | None]]:
+) -> list[tuple[np.ndarray, float, float, bool, np.ndarray | None]]:
     """The through-holes at a part's top face that its dark pits open, or that its found holes only partly show.
 
-    Each as (centre mm, diameter mm, edge doubt px, the found hole's ring as seen (photo px) or None).
+    Each as (centre mm, diameter mm, edge doubt px, whether it was put together from a lit floor and its
+    shade (:func:`_shaded_opening`, :func:`_lit_pit_opening`), the found hole's ring as seen (photo px) or None).
     A found hole is replaced where its whole opening (:func:`~scanmass.segment.deephole.opening_edge`)
     fits a circle within :data:`DEEP_HOLE_RMS_PX` wider than the found one by more than
     :data:`DEEP_HOLE_REPLACE_PX`, or narrower than a found ring that is no circle.
@@ -302,11 +461,13 @@ def _deep_hole_circles(
     (x0, y0, x1, y1), mask, _ = crop
     lin = lut[image.grey[y0:y1, x0:x1]]
     outline = np.asarray(part.outline_mm, np.float32)
-    out: list[tuple[np.ndarray, float, float, np.ndarray | None]] = []
+    out: list[tuple[np.ndarray, float, float, bool, np.ndarray | None]] = []
     # also looked for on the image with its specks taken out (a path tracer's fireflies, a sensor's
     # noise in the shade break a deep hole's dark bottom into pieces too small to be a pit), where
     # the image as it is shows none
     min_px = HIDDEN_HOLE_MIN_AREA_MM2 / mm_per_px**2
+    # the level a hole's floor in its wall's shade lies below: a pit's (half the part's level read low in its face)
+    shade_below = _shade_level(lin, mask)
     pits = dark_pits(lin, mask, min_px)
     calm = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), 1.0)
     pits += [
@@ -322,63 +483,28 @@ def _deep_hole_circles(
     for x, y, d in pits:
         edge = pit_edge(lin, mask, (x, y), d)
         fit = None if edge is None else _top_circle(edge, (x0, y0), hook, mm_per_px, outline)
+        partly = False
+        if fit is None and edge is not None and edge.lit_share > 0:
+            fit = _lit_pit_opening(lin, mask, (x, y), d, (x0, y0), hook, mm_per_px, outline, shade_below, part.holes)
+            partly = fit is not None
         if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
-            out.append((fit[0], fit[1], fit[3], None))
+            out.append((fit[0], fit[1], fit[3], partly, None))
     (sx0, sy0, sx1, sy1), seen_mask, rings = seen
     seen_lin = lut[image.grey[sy0:sy1, sx0:sx1]]
     info = scale.plane_map.photo
     thick_u = 0.0 if info is None or info.thickness is None else float(info.thickness.height_u_mm)
+    shade_below = _shade_level(seen_lin, seen_mask)
     for hole, ring in zip(part.holes, rings[1:]):
         seed8 = np.zeros(seen_mask.shape, np.uint8)
         cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)
         seed = seed8.astype(bool)
-        r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
-        thick_px = hook.height_mm / mm_per_px
-        band_px = _wall_band_px(seed, (sx0, sy0), hook)
-        edge = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0)
-        fit = None if edge is None else _top_circle(edge, (sx0, sy0), hook, mm_per_px, outline)
-        if (
-            (edge is None or edge.share < DEEP_HOLE_STEP_SHARE)
-            and (fit is None or fit[2] > DEEP_HOLE_STEP_RMS_PX)
-            and band_px >= DEEP_HOLE_STEP_BAND_PX
-        ):
-            # most rays found no midpoint near the opening's border, and what they found is no clean circle:
-            # a wall's band of its own level lies between the floor and the face; the border is the last
-            # step to the face's level, taken where it is rounder or wider than the midpoint's trace
-            steps = opening_edge(seen_lin, seen_mask, seed, 1.5 * r_seed + thick_px + 6.0, last_step=True)
-            by_step = None if steps is None else _top_circle(steps, (sx0, sy0), hook, mm_per_px, outline)
-            if by_step is not None and (
-                fit is None or by_step[2] < fit[2] or by_step[1] - fit[1] > DEEP_HOLE_REPLACE_PX * mm_per_px
-            ):
-                fit = by_step
-        floor = None if band_px < DEEP_HOLE_STEP_BAND_PX else lit_floor_ring(seen_lin, seen_mask, seed, band_px)
-        by_floor = None if floor is None else _floor_overlap(floor + [sx0, sy0], hook, mm_per_px, outline, thick_u)
-        if (
-            by_floor is not None
-            and by_floor[1] - max(hole.diameter_mm, 0.0 if fit is None else fit[1]) > DEEP_HOLE_REPLACE_PX * mm_per_px
-            and math.dist(by_floor[0], hole.circle_centre_mm) <= 0.5 * hole.diameter_mm
-        ):
-            # the found hole and its traced opening stop at the lit floor (the far wall and the shade look like
-            # the face): the top opening from the floor's overlap, shifted as the thickness predicts
-            out.append((by_floor[0], by_floor[1], by_floor[3], ring + np.array([sx0, sy0], float)))
-            continue
-        if fit is None:
-            continue
-        clean = fit[2] <= DEEP_HOLE_CLEAN_RMS_PX
-        if fit[1] > hole.diameter_mm and fit[3] > DEEP_HOLE_SOFT_EDGE_PX and not clean:
-            continue  # a wider trace along a soft ramp (a mirroring face's shading beside the hole), no clean circle
-        wider = fit[1] - hole.diameter_mm > DEEP_HOLE_REPLACE_PX * mm_per_px or (
-            fit[1] > hole.diameter_mm and hole.roundness_mm > DEEP_HOLE_UNROUND_WIDER_PX * mm_per_px and clean
-        )
-        # a narrower opening only in place of a found ring that is no circle (a lit wall taken in with
-        # the paper) and from a clean fit: where a far wall looks like the face (black plastic), the
-        # trace stops at its foot, which a round found ring already reads as the bottom edge
-        narrower = fit[1] < hole.diameter_mm and hole.roundness_mm > DEEP_HOLE_UNROUND_PX * mm_per_px and clean
-        if not (wider or narrower):
-            continue
-        if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * hole.diameter_mm:
-            continue  # another opening than this hole's
-        out.append((fit[0], fit[1], fit[3], ring + np.array([sx0, sy0], float)))
+        entry = _found_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, thick_u)
+        partly = False
+        if entry is None:
+            entry = _shaded_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, shade_below)
+            partly = entry is not None
+        if entry is not None:
+            out.append((entry[0], entry[1], entry[2], partly, ring + np.array([sx0, sy0], float)))
     return out
 
 
@@ -504,7 +630,7 @@ def _open_deep_holes(
         holes = list(new.holes)
         area_mm2 = 0.0
         texts = []
-        for centre, diameter, doubt_px, _ in opened:
+        for centre, diameter, doubt_px, partly, _ in opened:
             k = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, centre), default=None)
             if k is None or math.dist(holes[k].circle_centre_mm, centre) > 0.25 * diameter:
                 return masked, scale, result, []  # the painted opening was not found as a hole: keep it as it was
@@ -518,9 +644,18 @@ def _open_deep_holes(
                 circle_centre_u_mm=(combine(h.circle_centre_u_mm[0], u_mm), combine(h.circle_centre_u_mm[1], u_mm)),
             )
             area_mm2 += math.pi * diameter * u_mm
-            texts.append(f"{h.diameter_mm:.3g} mm at ({h.circle_centre_mm[0]:.1f}, {h.circle_centre_mm[1]:.1f}) mm")
+            texts.append(
+                f"{h.diameter_mm:.3g} mm at ({h.circle_centre_mm[0]:.1f}, {h.circle_centre_mm[1]:.1f}) mm"
+                + (PARTLY_SEEN if partly else "")
+            )
             notes.setdefault(str(old.label), []).append(
-                {"x_mm": float(centre[0]), "y_mm": float(centre[1]), "diameter_mm": diameter, "edge_doubt_px": doubt_px}
+                {
+                    "x_mm": float(centre[0]),
+                    "y_mm": float(centre[1]),
+                    "diameter_mm": diameter,
+                    "edge_doubt_px": doubt_px,
+                    "partly_seen": partly,
+                }
             )
         for h_old in old.holes:  # the holes found before keep their stated doubt (a cut's, a wall's terms)
             j = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, h_old.circle_centre_mm))
