@@ -331,13 +331,16 @@ def _white_parts(
     """
     if colour is None or not result.parts:
         return result, frozenset(), []
-    shadow_parts, lit_parts = _shadow_regions(image, scale, result, colour, thickness_mm)
-    regions = {p.label for p in shadow_parts + lit_parts}
     lut = np.asarray(image.to_linear, dtype=np.float32)
     level = lut[colour].mean(axis=-1)
     valid = np.zeros(level.shape, np.uint8)
     cv2.fillPoly(valid, [np.round(scale.roi_px).astype(np.int32)], 1)
     mm_per_px = scale.plane_map.mm_per_px
+    found = white_faces(level, valid.astype(bool), mm_per_px)
+    if not found:  # the common case: no white face, nothing else to read
+        return result, frozenset(), []
+    shadow_parts, lit_parts = _shadow_regions(image, scale, result, colour, thickness_mm)
+    regions = {p.label for p in shadow_parts + lit_parts}
     masks: dict[int, tuple[tuple[int, int, int, int], np.ndarray]] = {}
     for part in result.parts:
         crop = _part_crop(image, scale, part, 0)
@@ -351,7 +354,7 @@ def _white_parts(
 
     faces: list[tuple[WhiteFace, np.ndarray, np.ndarray]] = []
     fragments: set[int] = set()
-    for face in white_faces(level, valid.astype(bool), mm_per_px):
+    for face in found:
         filled = ndimage.binary_fill_holes(face.mask)
         zone = cv2.dilate(filled.astype(np.uint8), kernel).astype(bool)
         face_px = np.count_nonzero(filled)
