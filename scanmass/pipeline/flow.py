@@ -44,7 +44,7 @@ from scanmass.pipeline.photo_checks import (
 from scanmass.pipeline.photo_colour import colour_faces
 from scanmass.pipeline.photo_holes import _open_deep_holes
 from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
-from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only, _white_parts
+from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only, _white_parts, white_walls_unread
 from scanmass.pipeline.photo_thickness import (
     RaisedRings,
     WallThickness,
@@ -933,6 +933,7 @@ def _measure_photo(
             "pass --encoding srgb to take the file as exact sRGB",
         )
     read = fused(wall_thickness(image, scale, result), rim_thickness(scale, result)) if thickness_mm is None else []
+    read = white_walls_unread(read, white)
     raised = RaisedRings(scale)  # the rings raised by estimate + 1.5 sigma, made once for both
     walls = liftable(scale, result, read, raised)
     walls_out += walls
