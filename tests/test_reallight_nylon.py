@@ -114,3 +114,19 @@ def test_face_cover_crosses_half_way_at_a_step():
     # height times the normal distribution's Phi(2.5 / 1.5) (closed form), over the face's level
     phi = 0.5 * (1 + math.erf(2.5 / 1.5 / math.sqrt(2)))
     assert abs(float(contrast[30, 29]) - 0.2 * phi / 0.8) < 0.003
+
+
+@pytest.mark.slow
+def test_without_a_face_the_white_on_white_refusal_stays(monkeypatch):
+    """Where no white face is found the refusals stay: with the face search finding nothing, spot-nylon-t0
+    (hard spot) is refused as white on white and window-nylon-t0 as shadows only, each with the fix, as
+    before this branch."""
+    from scanmass.errors import SegmentationError
+    from scanmass.pipeline import photo_shadows
+
+    monkeypatch.setattr(photo_shadows, "white_faces", lambda *a, **k: [])
+    with pytest.raises(SegmentationError, match="paper's colour but brighter.*white part on white paper.*dark "
+                       "backing sheet.*backlight"):  # fmt: skip
+        scanmass.measure(REALLIGHT / "spot-nylon-t0.jpg", thickness_mm=4.0)
+    with pytest.raises(SegmentationError, match="look like cast shadows.*dark backing sheet.*backlight"):
+        scanmass.measure(REALLIGHT / "window-nylon-t0.jpg", thickness_mm=3.0)
