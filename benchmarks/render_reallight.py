@@ -935,6 +935,45 @@ def dev_scenes():
             220,
             "Filmic",
         ),
+        # branch nylon18: white nylon on white paper in other lights, shapes and tilts than the two tuned
+        # nylon scenes: soft overhead light at a tilt, the hard spot at a tilt, window light at a tilt with a
+        # black part beside the white one; mixed warm and cool light at a tilt under the Filmic curve
+        (
+            "dev-soft-nylon-t12",
+            "soft",
+            [("plate", "white-nylon", 3.0, 90, 195, 20), ("gasket", "white-nylon", 2.5, 125, 95, 0)],
+            320,
+            12,
+            60,
+            "Standard",
+        ),
+        (
+            "dev-spot-nylon-t20",
+            "spot",
+            [("l-bracket", "white-nylon", 3.5, 85, 100, 40), ("disc", "white-nylon", 5.0, 125, 200, 0)],
+            330,
+            20,
+            150,
+            "Standard",
+        ),
+        (
+            "dev-window-nylon-t10",
+            "window",
+            [("plate4", "white-nylon", 4.0, 120, 195, -15), ("cam", "black-plastic", 4.0, 85, 100, 30)],
+            320,
+            10,
+            250,
+            "Standard",
+        ),
+        (
+            "dev-mixed-nylon-t15",
+            "mixed",
+            [("cam", "white-nylon", 3.0, 120, 100, 60), ("washer", "white-nylon", 4.5, 90, 195, 0)],
+            325,
+            15,
+            300,
+            "Filmic",
+        ),
     ]
 
 

@@ -44,7 +44,7 @@ from scanmass.pipeline.photo_checks import (
 from scanmass.pipeline.photo_colour import colour_faces
 from scanmass.pipeline.photo_holes import _open_deep_holes
 from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
-from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only
+from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only, _white_parts, white_walls_unread
 from scanmass.pipeline.photo_thickness import (
     RaisedRings,
     WallThickness,
@@ -916,7 +916,9 @@ def _measure_photo(
     else:
         cut_scale = scale
     _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure)
-    shadow_only = _shadows_only(image, scale, result, colour, thickness_mm)
+    # white parts on white paper found by their top faces where only shadows or lit faces were (photo_shadows)
+    result, white, white_notes = _white_parts(image, masked, cut_scale, result, colour, thickness_mm, probe_remeasure)
+    shadow_only = white_notes + _shadows_only(image, scale, result, colour, thickness_mm, white)
     coloured, colour_notes = colour_faces(image, scale, result, colour, colour_measure, min_area_px, thickness_mm)
     result = result if coloured is None else coloured
     _check_bright_surrounds(image, scale, result)
@@ -931,6 +933,7 @@ def _measure_photo(
             "pass --encoding srgb to take the file as exact sRGB",
         )
     read = fused(wall_thickness(image, scale, result), rim_thickness(scale, result)) if thickness_mm is None else []
+    read = white_walls_unread(read, white)
     raised = RaisedRings(scale)  # the rings raised by estimate + 1.5 sigma, made once for both
     walls = liftable(scale, result, read, raised)
     walls_out += walls

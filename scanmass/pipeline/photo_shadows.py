@@ -7,6 +7,7 @@ Part of the pipeline stage (:mod:`scanmass.pipeline`).
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import replace
 
 import cv2
@@ -14,7 +15,7 @@ import numpy as np
 
 from scanmass.errors import SegmentationError
 from scanmass.load.decode import LoadedImage
-from scanmass.measurement import Hole, Measurement
+from scanmass.measurement import Hole, Measurement, Part
 from scanmass.pipeline.part_terms import (
     UNKNOWN_THICKNESS_MM,
     _with_extra_term,
@@ -24,7 +25,9 @@ from scanmass.pipeline.part_terms import (
 )
 from scanmass.pipeline.photo_checks import _part_crop
 from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM
+from scanmass.pipeline.photo_thickness import WallThickness
 from scanmass.scale.camera import PhotoScale
+from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -34,6 +37,7 @@ from scanmass.segment.shadow import (
     shadow_risk,
     too_wide_for_shadow,
 )
+from scanmass.segment.whiteface import FAINT_STEP, WhiteFace, face_cover, white_faces
 from scanmass.uncertainty import combine
 
 
@@ -43,6 +47,7 @@ def _shadows_only(
     result: Measurement,
     colour: np.ndarray | None,
     thickness_mm: float | None = None,
+    white: frozenset[int] | set[int] = frozenset(),
 ) -> list[str]:
     """Refuse a photo whose only found regions look like cast shadows; warn of such regions otherwise.
 
@@ -67,32 +72,13 @@ def _shadows_only(
     SegmentationError
         When every found part looks like either, naming the fix (a dark backing sheet or a backlight).
     """
-    if colour is None or not result.parts:
-        return []
-    lut = np.asarray(image.to_linear, dtype=np.float32)
-    band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, scale.plane_map.mm_per_px)
-    mm_per_px = scale.plane_map.mm_per_px
-    reach_t = SHADOW_CUT_UNKNOWN_THICKNESS_MM if not thickness_mm else thickness_mm
-    shadows: list[str] = []
-    lit: list[str] = []
-    for part in result.parts:
-        crop = _part_crop(image, scale, part, int(band_px) + 16)
-        if crop is None:
-            continue
-        (x0, y0, x1, y1), mask, _ = crop
-        crop_lin = lut[colour[y0:y1, x0:x1]]
-        risk = shadow_risk(crop_lin, mask, band_px)
-        if risk is None:
-            continue
-        if (
-            looks_like_shadow_only(risk)
-            and not has_lit_face(part)  # a lit face joined up to its sharp edge
-            and not too_wide_for_shadow(mask, reach_t, mm_per_px)
-        ):
-            shadows.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
-        elif looks_like_lit_white(crop_lin, mask, risk.paper_rgb):
-            lit.append(f"part {part.label} ({part.area_mm2:.3g} mm²)")
-    if lit and len(shadows) + len(lit) == len(result.parts):
+    shadow_parts, lit_parts = (
+        _shadow_regions(image, scale, result, colour, thickness_mm, white) if colour is not None else ([], [])
+    )
+    shadows = [_region_name(p) for p in shadow_parts]
+    lit = [_region_name(p) for p in lit_parts]
+    others = len(result.parts) - len(white)
+    if lit and len(shadows) + len(lit) == others:
         raise SegmentationError(
             f"no part found, only {len(lit)} region(s) of the paper's colour but brighter (the lit faces of a "
             f"white part on white paper{f', with {len(shadows)} cast shadow(s)' if shadows else ''}); its faces at "
@@ -111,7 +97,7 @@ def _shadows_only(
     )
     if not shadows:
         return warn
-    if len(shadows) == len(result.parts):
+    if len(shadows) == others:
         raise SegmentationError(
             f"no part found, only {len(shadows)} region(s) that look like cast shadows (the paper's colour, "
             "darkened, fading outwards): either a light part on light paper, not told from the paper, or a grey "
@@ -126,6 +112,49 @@ def _shadows_only(
         "lit face has the paper's colour: do not use their figures; lay light parts on a dark backing sheet, "
         "photograph metal in diffuse light, or use a backlight"
     ]
+
+
+def _region_name(part: Part) -> str:
+    """How a warning names a found region."""
+    return f"part {part.label} ({part.area_mm2:.3g} mm²)"
+
+
+def _shadow_regions(
+    image: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    colour: np.ndarray,
+    thickness_mm: float | None,
+    white: frozenset[int] | set[int] = frozenset(),
+) -> tuple[list[Part], list[Part]]:
+    """The found regions that look like a cast shadow alone, and those that look like a white part's lit faces
+    (see :func:`_shadows_only`); parts labelled in ``white`` (white faces found as such) are left out."""
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, scale.plane_map.mm_per_px)
+    mm_per_px = scale.plane_map.mm_per_px
+    reach_t = SHADOW_CUT_UNKNOWN_THICKNESS_MM if not thickness_mm else thickness_mm
+    shadows: list[Part] = []
+    lit: list[Part] = []
+    for part in result.parts:
+        if part.label in white:
+            continue
+        crop = _part_crop(image, scale, part, int(band_px) + 16)
+        if crop is None:
+            continue
+        (x0, y0, x1, y1), mask, _ = crop
+        crop_lin = lut[colour[y0:y1, x0:x1]]
+        risk = shadow_risk(crop_lin, mask, band_px)
+        if risk is None:
+            continue
+        if (
+            looks_like_shadow_only(risk)
+            and not has_lit_face(part)  # a lit face joined up to its sharp edge
+            and not too_wide_for_shadow(mask, reach_t, mm_per_px)
+        ):
+            shadows.append(part)
+        elif looks_like_lit_white(crop_lin, mask, risk.paper_rgb):
+            lit.append(part)
+    return shadows, lit
 
 
 def _one_sided_mm(open_mm: float) -> float:
@@ -261,4 +290,161 @@ def _cast_shadows(
         "shadow has; colour cannot tell it from a dark neutral part, so the uncertainty includes it (term "
         "'cast_shadow'); for a trustworthy figure use diffuse light (an overcast window, a lamp beside the camera "
         "aimed at the ceiling) or a backlight"
+    ]
+
+
+#: Linear level, as a share of the local paper white, at which a white face found by
+#: :func:`~scanmass.segment.whiteface.white_faces` is painted for its measurement: a grey part's level,
+#: with the face's edge at the half-way level of the paint where its share crosses 0.5.
+WHITE_PAINT_RATIO = 0.3
+#: Edge uncertainty (px, 1 sigma) of a white face's outline where the step beyond it is faint (the top
+#: face against the paper: the smoothed step's half-way line moves by the paper's grain and the rim's
+#: shading, about a pixel), and where it is a wall or a shadow (a full step: half a pixel, the blur's
+#: asymmetry between a wall band and the face).
+WHITE_FAINT_EDGE_PX = 1.0
+WHITE_SHARP_EDGE_PX = 0.5
+#: Largest area of a found region, as a share of a white face beside it, taken as a piece of that white part (a
+#: hole's dark bottom, a dark wall, a lit wall) when it is neither a shadow nor a lit face by its colour.
+WHITE_FRAGMENT_SHARE = 0.35
+
+
+def _white_parts(
+    image: LoadedImage,
+    masked: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    colour: np.ndarray | None,
+    thickness_mm: float | None,
+    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+) -> tuple[Measurement, frozenset[int], list[str]]:
+    """White parts on white paper measured from their top faces, where only their shadows or lit faces were found.
+
+    When some found regions look like cast shadows alone or like a white part's lit faces
+    (:func:`_shadow_regions`), the smooth faces a little darker than the paper beside them
+    (:func:`~scanmass.segment.whiteface.white_faces`) are the parts' top faces: each is painted as a
+    grey part whose edge lies where the face's share (:func:`~scanmass.segment.whiteface.face_cover`)
+    crosses half-way, its surroundings (shadow, walls) painted in the paper's level, and the photo
+    is measured again. The white parts carry the term ``white_face`` (their edges' location against
+    the faint step to the paper, :data:`WHITE_FAINT_EDGE_PX`) and a warning.
+
+    Returns the measurement (``result`` itself when no white face is found), the labels of the white
+    parts and the warnings.
+    """
+    if colour is None or not result.parts:
+        return result, frozenset(), []
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    level = lut[colour].mean(axis=-1)
+    valid = np.zeros(level.shape, np.uint8)
+    cv2.fillPoly(valid, [np.round(scale.roi_px).astype(np.int32)], 1)
+    mm_per_px = scale.plane_map.mm_per_px
+    found = white_faces(level, valid.astype(bool), mm_per_px)
+    if not found:  # the common case: no white face, nothing else to read
+        return result, frozenset(), []
+    shadow_parts, lit_parts = _shadow_regions(image, scale, result, colour, thickness_mm)
+    regions = {p.label for p in shadow_parts + lit_parts}
+    masks: dict[int, tuple[tuple[int, int, int, int], np.ndarray]] = {}
+    for part in result.parts:
+        crop = _part_crop(image, scale, part, 0)
+        if crop is not None:
+            masks[part.label] = (crop[0], crop[1])
+    # the shadow of the thickest part a photo's shadow-only test allows (another part of the photo may be thicker
+    # than the thickness given)
+    reach_px = shadow_band_px(max(thickness_mm or 0.0, SHADOW_CUT_UNKNOWN_THICKNESS_MM), mm_per_px) + 6.0
+    kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * int(reach_px) + 1,) * 2)
+    from scipy import ndimage  # noqa: PLC0415 - only photos with white faces need it
+
+    faces: list[tuple[WhiteFace, np.ndarray, np.ndarray]] = []
+    fragments: set[int] = set()
+    for face in found:
+        filled = ndimage.binary_fill_holes(face.mask)
+        zone = cv2.dilate(filled.astype(np.uint8), kernel).astype(bool)
+        face_px = np.count_nonzero(filled)
+        mine: set[int] = set()
+        real = False
+        for label, ((x0, y0, x1, y1), mask) in masks.items():
+            n = np.count_nonzero(mask)
+            if not np.any(zone[y0:y1, x0:x1] & mask):
+                continue
+            on_face = np.count_nonzero(face.mask[y0:y1, x0:x1] & mask)
+            # a shadow, a lit wall or face, or a piece much smaller than the face (a hole's dark bottom, a dark
+            # wall) is the white part's; a part as large as the face, or lying on it, is another part
+            if label in regions or (n < WHITE_FRAGMENT_SHARE * face_px and on_face < 0.3 * n):
+                mine.add(label)
+            else:
+                real = True
+        if real or not mine:
+            continue
+        fragments |= mine
+        faces.append((face, filled, zone))
+    if not faces:
+        return result, frozenset(), []
+    others = np.zeros(level.shape, bool)  # the other parts: never painted
+    for label, ((x0, y0, x1, y1), mask) in masks.items():
+        if label not in fragments:
+            others[y0:y1, x0:x1] |= mask
+    others = cv2.dilate(others.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool)
+    grey = masked.grey.copy()
+    to_code = np.asarray(masked.to_linear, dtype=np.float64)
+    edge_px: list[tuple[np.ndarray, float, float]] = []
+    for face, filled, zone in faces:
+        cover, contrast = face_cover(level, face)
+        zone = zone & ~others
+        paper = face.level / max(face.ratio, 1e-3)
+        lin = paper * (1.0 - (1.0 - WHITE_PAINT_RATIO) * cover[zone])
+        codes = np.clip(np.searchsorted(to_code, lin), 0, len(to_code) - 1)
+        grey[zone] = codes.astype(grey.dtype)
+        rim = face.mask & ~cv2.erode(face.mask.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+        faint = float(np.mean(contrast[rim] < FAINT_STEP)) if np.any(rim) else 1.0
+        edge_px.append((filled, float(np.count_nonzero(rim)), faint))
+    painted = replace(masked, grey=grey)
+    try:
+        again = remeasure(painted, scale.plane_map)
+    except (SegmentationError, ValueError):
+        return result, frozenset(), []
+    white: set[int] = set()
+    # the other parts as first measured (the painting leaves them; their own cuts stay), the white ones from it
+    parts = [p for p in result.parts if p.label not in fragments]
+    label = max((p.label for p in result.parts), default=0)
+    for part in again.parts:
+        crop = _part_crop(image, scale, part, 0)
+        hit = None
+        if crop is not None:
+            (x0, y0, x1, y1), mask, _ = crop
+            for filled, rim_px, faint in edge_px:
+                if np.count_nonzero(filled[y0:y1, x0:x1] & mask) > 0.5 * np.count_nonzero(mask):
+                    hit = (rim_px, faint)
+                    break
+        if hit is None:
+            continue
+        rim_px, faint = hit
+        label += 1
+        part = replace(part, label=label)
+        edge_u_px = faint * WHITE_FAINT_EDGE_PX + (1.0 - faint) * WHITE_SHARP_EDGE_PX
+        term = area_share_term(part, rim_px * edge_u_px * mm_per_px**2)
+        parts.append(_with_shadow_term(part, term, 2.0 * edge_u_px * mm_per_px, "white_face", edge_u_px * mm_per_px))
+        white.add(label)
+    if not white:
+        return result, frozenset(), []
+    result.parts = parts
+    names = ", ".join(f"part {p.label}" for p in parts if p.label in white)
+    note = (
+        f"white on white: {names} found by the top face, a little darker and smoother than the paper (a white part "
+        "on white paper): its outline against the paper is a faint step, placed to about a pixel (term "
+        "'white_face'); for better figures lay light parts on a dark backing sheet or use a backlight"
+    )
+    return result, frozenset(white), [note]
+
+
+def white_walls_unread(read: list[WallThickness], white: frozenset[int] | set[int]) -> list[WallThickness]:
+    """The thickness readings with those of white parts (:func:`_white_parts`) taken back.
+
+    A white part's walls have the paper's colour: the wall band's edges are read off the paper's
+    shading (on dev-spot-nylon-t20 the bracket read 1.16 +- 0.69 mm for 3.5 mm, 3.4 sigma off); its
+    thickness stays unknown, its parallax covered by the unknown thickness's term.
+    """
+    return [
+        replace(r, thickness_mm=None, sigma_mm=0.0, reason="a white part on white paper: its walls are not read")
+        if r.label in white
+        else r
+        for r in read
     ]

@@ -1,0 +1,301 @@
+"""White parts on white paper: a white part's top face found by its own level and smoothness.
+
+A diffuse white part (nylon, acetal, white-painted sheet) on white paper has no dark face to
+find: the threshold finds only its shadow, the dark side of its walls or its walls lit more than
+the paper. Its top face still differs from the paper in two ways: it is a little darker (a white
+plastic reflects less than paper with brighteners; the top face and the paper, both horizontal,
+take the same light) and it is smooth, where the paper's fibres and the sensor's noise make the
+paper grainy. The face is where the level, against the local paper white, lies in a band below
+it (:data:`FACE_RATIO_RANGE`) and the local spread of the level is small
+(:data:`FACE_MAX_SPREAD`); around it lie the lit and dark walls and the shadow (other levels)
+and, on the other sides, the paper (the faint step of the top face's edge).
+
+The face's edge is then placed sub-pixel where the smoothed level crosses half-way between the
+face's level and the level just beyond the edge, read per edge pixel (a wall, a shadow or the
+paper): :func:`face_cover` gives the face's share per pixel, whose 0.5 level line is the edge.
+Where the step to the paper is faint, that level line is poorly located: :func:`faint_share`
+gives the share of the outline where the step is below :data:`FAINT_STEP`.
+
+References
+----------
+R. C. Gonzalez and R. E. Woods, *Digital Image Processing*, 4th ed., Pearson, 2018, ch. 10
+(region growing by similarity, thresholds at the mid-level of a step).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import cv2
+import numpy as np
+
+__all__ = [
+    "WhiteFace",
+    "paper_level_map",
+    "white_faces",
+    "face_cover",
+    "FACE_RATIO_RANGE",
+    "FACE_MAX_SPREAD",
+    "FAINT_STEP",
+]
+
+#: Smoothing (px, Gaussian sigma) of the level before the face is sought: the paper's grain and
+#: the sensor's noise fall by about 5x, the step of a face's edge stays (common practice: a
+#: sigma of 1-2 px keeps edges further apart than 3 sigma).
+SMOOTH_SIGMA_PX = 1.5
+#: Levels (smoothed / local paper white) a white top face may have: on the committed renders
+#: (tests/data/reallight spot-nylon-t0, window-nylon-t0) the faces read 0.79-0.85 of the paper,
+#: their shadows below 0.4 and their lit walls above 1.0; below 0.55 a face is a grey part that
+#: the threshold finds. Raised to 0.955 (dev-mixed-nylon-t15's faces under the Filmic curve read
+#: 0.935-0.939), smooth patches of paper and of a steel face were taken for faces on three photos of
+#: other parts (dev-mixed-black2-t22, dev-spot-brass-t22, dev-spot-steel3-t20): not kept.
+FACE_RATIO_RANGE = (0.55, 0.93)
+#: Largest local spread of the level (local standard deviation over the paper white, the
+#: smoothing's window) of a face pixel: the faces of those renders read 0.004-0.009 (median), the
+#: paper around them 0.05-0.10.
+FACE_MAX_SPREAD = 0.03
+#: Least contrast (|level beyond the edge - face level| / paper white) of an edge stretch whose
+#: half-way level line is well placed; below it the stretch is the faint step to the paper.
+FAINT_STEP = 0.35
+#: Least area (mm2) of a white face: smaller smooth patches are paper.
+MIN_FACE_MM2 = 40.0
+#: Least area (mm2) of a smooth patch from which a face is grown (a bracket's arms, cut by its
+#: holes' rims, are found in pieces).
+MIN_SEED_MM2 = 8.0
+#: Least solidity (area / convex hull's area, holes filled) of a face: a part's face is compact;
+#: the smooth paper left between noisy patches is ragged.
+MIN_SOLIDITY = 0.45
+#: Distance (px) beyond the face's mask (from its outermost pixels' centres: 2.5 px from the step) at
+#: which the level beyond its edge is read: inside a wall's band facing the camera (1-3 px wide on the
+#: committed renders), where the smoothed step (sigma 1.5 px) has reached 95 % of its height (the
+#: normal distribution's 1.67 sigma). Read 1 px further out, the white faces of the committed renders
+#: (spot-nylon-t0, window-nylon-t0, dev-window-nylon-t10) came out 1.5-2.4 % larger in area, 2-4 %
+#: above their truth: past a narrow wall, the paper's level is read for the wall's step.
+BEYOND_PX = 3.5
+#: Largest spread of the face's own level (95th - 5th percentile of the smoothed ratio): a face
+#: is of one level; the faces of the committed renders spread 0.02-0.04.
+MAX_FACE_SPREAD = 0.08
+#: Reach (px) of the face's growth into its smoothed rim, and the most it may grow (times the
+#: strictly found face): a face grown further has leaked into the paper, its outline not closed.
+GROW_PX = 12
+GROW_MAX = 1.6
+
+
+@dataclass
+class WhiteFace:
+    """One white top face found in a crop or image (pixel space).
+
+    Attributes
+    ----------
+    mask : (H, W) bool ndarray
+        The face's pixels (holes cleared).
+    level : float
+        The face's level, linear (median of the smoothed level over the face).
+    ratio : float
+        The face's level over the local paper white.
+    """
+
+    mask: np.ndarray
+    level: float
+    ratio: float
+
+
+def paper_level_map(level: np.ndarray, valid: np.ndarray | None = None) -> np.ndarray:
+    """The local paper white of a photo's level plane: the 75th percentile over about 250 px.
+
+    Parts take a minority of any such window and paper (bright) the rest, so the upper
+    quartile is the paper's level, with the light's fall-off across the page kept.
+
+    Examples
+    --------
+    >>> img = np.full((200, 200), 0.8, np.float32); img[80:120, 80:120] = 0.6
+    >>> round(float(paper_level_map(img)[100, 100]), 3)
+    0.8
+    """
+    lv = np.asarray(level, np.float32)
+    if valid is not None:
+        lv = np.where(valid, lv, np.float32(np.nan))
+        fill = float(np.nanmedian(lv)) if np.any(valid) else 0.0
+        lv = np.where(np.isnan(lv), np.float32(fill), lv)
+    # on blocks of 8 x 8 px (their means: the paper's grain averaged out), 31 blocks across
+    small = cv2.resize(lv, None, fx=0.125, fy=0.125, interpolation=cv2.INTER_AREA)
+    small = _upper_quartile(small, 31)
+    return cv2.resize(small, (lv.shape[1], lv.shape[0]), interpolation=cv2.INTER_LINEAR)
+
+
+def _upper_quartile(values: np.ndarray, size: int) -> np.ndarray:
+    """The 75th percentile over a ``size`` x ``size`` window about each element (edges repeated).
+
+    The element of rank ``int(0.75 * size**2)`` in each window, as ``scipy.ndimage.percentile_filter``
+    with ``mode="nearest"`` picks it, without importing scipy on every photo.
+    """
+    half = size // 2
+    padded = np.pad(np.asarray(values, np.float32), half, mode="edge")
+    windows = np.lib.stride_tricks.sliding_window_view(padded, (size, size))
+    kth = int(0.75 * size * size)
+    out = np.empty(values.shape, np.float32)
+    for r0 in range(0, values.shape[0], 16):  # a few rows at a time: each row's windows are copied once
+        chunk = windows[r0 : r0 + 16].reshape(*windows[r0 : r0 + 16].shape[:2], -1)
+        out[r0 : r0 + 16] = np.partition(chunk, kth, axis=-1)[..., kth]
+    return out
+
+
+def fill_holes(mask: np.ndarray) -> np.ndarray:
+    """``mask`` with every region of background not 4-connected to the border filled in.
+
+    Examples
+    --------
+    >>> ring = np.zeros((7, 7), bool); ring[1:6, 1:6] = True; ring[3, 3] = False
+    >>> bool(fill_holes(ring)[3, 3]), bool(fill_holes(ring)[0, 0])
+    (True, False)
+    """
+    m = np.asarray(mask, bool)
+    outside = np.pad(~m, 1, constant_values=True).astype(np.uint8)
+    ff = np.zeros((outside.shape[0] + 2, outside.shape[1] + 2), np.uint8)
+    cv2.floodFill(outside, ff, (0, 0), 2, flags=4)
+    return (outside[1:-1, 1:-1] != 2) | m
+
+
+def _smoothed(level: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The smoothed level and its local standard deviation (same Gaussian window)."""
+    lv = np.asarray(level, np.float32)
+    mean = cv2.GaussianBlur(lv, (0, 0), SMOOTH_SIGMA_PX)
+    sq = cv2.GaussianBlur(lv * lv, (0, 0), SMOOTH_SIGMA_PX)
+    return mean, np.sqrt(np.maximum(sq - mean * mean, 0.0))
+
+
+def white_faces(
+    level: np.ndarray, valid: np.ndarray, mm_per_px: float, paper: np.ndarray | None = None
+) -> list[WhiteFace]:
+    """The white top faces in a photo's linear level plane (channel mean).
+
+    Parameters
+    ----------
+    level : (H, W) float ndarray
+        Linear level (1.0 = the sensor's ceiling).
+    valid : (H, W) bool ndarray
+        Where faces may lie (the mat's clear area); a face touching its border is not kept.
+    mm_per_px : float
+        The plane's scale (for :data:`MIN_FACE_MM2`).
+    paper : (H, W) float ndarray, optional
+        The local paper white (default :func:`paper_level_map`).
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(0)
+    >>> img = (0.8 + 0.08 * rng.standard_normal((160, 160))).astype(np.float32)  # grainy paper
+    >>> yy, xx = np.mgrid[:160, :160]
+    >>> disc = (yy - 80) ** 2 + (xx - 80) ** 2 < 40**2
+    >>> img[disc] = 0.64  # a smooth face, 0.8 of the paper
+    >>> faces = white_faces(img, np.ones_like(disc), 0.3)
+    >>> len(faces), round(faces[0].ratio, 2)
+    (1, 0.8)
+    """
+    lv = np.asarray(level, np.float32)
+    smooth, spread = _smoothed(lv)
+    paper_map = paper_level_map(smooth, valid) if paper is None else np.asarray(paper, np.float32)
+    paper_map = np.maximum(paper_map, 1e-4)
+    ratio = smooth / paper_map
+    lo, hi = FACE_RATIO_RANGE
+    cand = valid & (ratio > lo) & (ratio < hi) & (spread / paper_map < FACE_MAX_SPREAD)
+    # thin links (a penumbra's smooth ramp touching the face at a point) cut by an opening
+    cand = cv2.morphologyEx(cand.astype(np.uint8), cv2.MORPH_OPEN, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (5, 5)))
+    n, labels, stats, _ = cv2.connectedComponentsWithStats(cand, connectivity=8)
+    border = ~cv2.erode(valid.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+    min_px = MIN_FACE_MM2 / mm_per_px**2
+    seed_px = MIN_SEED_MM2 / mm_per_px**2
+    taken = np.zeros(lv.shape, bool)
+    out: list[WhiteFace] = []
+    for k in np.argsort(-stats[1:, cv2.CC_STAT_AREA]) + 1:  # largest first
+        if stats[k, cv2.CC_STAT_AREA] < seed_px:
+            break
+        x, y, w, h = (int(stats[k, i]) for i in range(4))
+        sub = labels[y : y + h, x : x + w] == k
+        if np.any(taken[y : y + h, x : x + w] & sub) or np.any(border[y : y + h, x : x + w] & sub):
+            continue
+        r = ratio[y : y + h, x : x + w][sub]
+        p5, p95 = np.percentile(r, [5, 95])
+        if p95 - p5 > MAX_FACE_SPREAD:
+            continue
+        face_ratio = float(np.median(r))
+        # grown into its edge's smoothed rim: the pixels nearer its level than half-way to the paper's
+        # (or as far below it), connected to it (the strict test leaves a rim near every edge)
+        half = 0.5 * (1.0 - face_ratio)
+        y0g, y1g = max(y - GROW_PX, 0), min(y + h + GROW_PX, lv.shape[0])
+        x0g, x1g = max(x - GROW_PX, 0), min(x + w + GROW_PX, lv.shape[1])
+        near = valid[y0g:y1g, x0g:x1g] & (np.abs(ratio[y0g:y1g, x0g:x1g] - face_ratio) < half)
+        seed = np.zeros(near.shape, bool)
+        seed[y - y0g : y - y0g + h, x - x0g : x - x0g + w] = sub
+        _, lab_near = cv2.connectedComponents((near | seed).astype(np.uint8), connectivity=4)
+        keep = np.unique(lab_near[seed])
+        grown = np.isin(lab_near, keep[keep > 0])
+        strict = np.isin(labels[y0g:y1g, x0g:x1g], np.unique(labels[y0g:y1g, x0g:x1g][grown]))
+        strict &= labels[y0g:y1g, x0g:x1g] > 0
+        if np.count_nonzero(grown) > GROW_MAX * np.count_nonzero(strict & grown):
+            continue  # leaked into the paper: no closed step all round
+        if np.any(border[y0g:y1g, x0g:x1g] & grown) or np.count_nonzero(grown) < min_px:
+            continue
+        y, x, h, w = y0g, x0g, y1g - y0g, x1g - x0g
+        sub = grown
+        taken[y : y + h, x : x + w] |= sub
+        filled = fill_holes(sub)
+        cnts, _ = cv2.findContours(filled.astype(np.uint8), cv2.RETR_EXTERNAL, cv2.CHAIN_APPROX_SIMPLE)
+        hull = cv2.convexHull(max(cnts, key=cv2.contourArea))
+        if np.count_nonzero(filled) < MIN_SOLIDITY * max(cv2.contourArea(hull), 1.0):
+            continue
+        r = ratio[y : y + h, x : x + w][sub]
+        # specks of noise inside the face are face; a hole is larger than the paper's grain
+        holes = filled & ~sub
+        nh, lab = cv2.connectedComponents(holes.astype(np.uint8), connectivity=4)
+        if nh > 1:
+            sizes = np.bincount(lab.ravel(), minlength=nh)
+            sizes[0] = lab.size  # the background: never a speck
+            sub = sub | (sizes < max(12.0, 1.0 / mm_per_px**2))[lab]
+        mask = np.zeros(lv.shape, bool)
+        mask[y : y + h, x : x + w] = sub
+        out.append(WhiteFace(mask=mask, level=float(np.median(smooth[mask])), ratio=float(np.median(r))))
+    return out
+
+
+def face_cover(level: np.ndarray, face: WhiteFace) -> tuple[np.ndarray, np.ndarray]:
+    """The face's share per pixel (1 inside, 0 beyond) and the step's contrast per pixel.
+
+    The share is ``(beyond - smoothed) / (beyond - face level)``, clipped to [0, 1], where
+    ``beyond`` is the smoothed level :data:`BEYOND_PX` outside the face's mask nearest to the
+    pixel: its 0.5 level line is where the level crosses half-way between the face and what
+    lies beyond its edge there (a wall, a shadow or the paper), whichever it is. Pixels more
+    than 2 px inside the mask are 1, more than :data:`BEYOND_PX` beyond it 0.
+
+    Returns
+    -------
+    cover : (H, W) float32 ndarray
+    contrast : (H, W) float32 ndarray
+        ``|beyond - face level|`` over the face's level, per pixel (the step's size there).
+
+    Examples
+    --------
+    >>> img = np.full((40, 40), 1.0, np.float32); img[10:30, 10:30] = 0.8
+    >>> f = WhiteFace(mask=img < 0.9, level=0.8, ratio=0.8)
+    >>> c, k = face_cover(img, f)
+    >>> float(c[20, 20]), float(c[2, 2]), round(float(c[20, 9:11].mean()), 2)
+    (1.0, 0.0, 0.5)
+    """
+    smooth, _ = _smoothed(level)
+    m = face.mask.astype(np.uint8)
+    outside = 1 - m
+    d_out = cv2.distanceTransform(outside, cv2.DIST_L2, 5)  # distance of outside pixels from the face
+    d_in = cv2.distanceTransform(m, cv2.DIST_L2, 5)
+    band = (d_out >= BEYOND_PX - 0.5) & (d_out <= BEYOND_PX + 0.5)
+    if not np.any(band):
+        return face.mask.astype(np.float32), np.zeros(face.mask.shape, np.float32)
+    from scipy import ndimage  # noqa: PLC0415 - only a found face needs it (scipy's import costs ~0.3 s)
+
+    _, idx = ndimage.distance_transform_edt(~band, return_indices=True)
+    beyond = smooth[idx[0], idx[1]]
+    denom = beyond - np.float32(face.level)
+    safe = np.where(np.abs(denom) < 1e-4, np.float32(1e-4), denom)
+    cover = np.clip((beyond - smooth) / safe, 0.0, 1.0).astype(np.float32)
+    cover[d_in > 2.0] = 1.0
+    cover[d_out > BEYOND_PX] = 0.0
+    contrast = (np.abs(denom) / max(face.level, 1e-4)).astype(np.float32)
+    return cover, contrast
