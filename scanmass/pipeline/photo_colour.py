@@ -26,6 +26,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import raised_outline_mm
 from scanmass.section import escaping_holes
 from scanmass.segment.brightface import face_colour_plane
+from scanmass.segment.tintlevel import evened_colour_plane
 
 #: A coloured part's face is taken as lost to the grey segmentation when its median luma is at
 #: least this share of the paper's (the grey threshold lies half-way to the parts' level, so a face
@@ -78,9 +79,12 @@ def colour_measurement(
     lut = np.asarray(image.to_linear, np.float32)
     inside = np.zeros(image.grey.shape, np.uint8)
     cv2.fillPoly(inside, [np.round(scale.roi_px).astype(np.int32)], 1)
-    plane = face_colour_plane(lut[colour[..., 0]], lut[colour[..., 1]], inside.astype(bool), min_area_px=min_area_px)
+    blue, green = lut[colour[..., 0]], lut[colour[..., 1]]
+    plane = face_colour_plane(blue, green, inside.astype(bool), min_area_px=min_area_px)
     if plane is None:
         return None, 0.0
+    # a face mirroring something dark keeps its colour but loses yellowness: evened by its own level
+    plane = (evened_colour_plane(plane[0], blue, green, inside.astype(bool)), plane[1])
     luma = _luma(lut, colour)
     paper = float(np.median(luma[inside.astype(bool) & (luma >= np.percentile(luma[inside.astype(bool)], 50))]))
     grey = np.round(plane[0] * 65535).astype(np.uint16)
