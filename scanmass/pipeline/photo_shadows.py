@@ -31,13 +31,23 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
+    inscribed_width_px,
     looks_like_lit_white,
     looks_like_shadow_only,
+    paper_coloured_share,
     shadow_band_px,
     shadow_risk,
     too_wide_for_shadow,
 )
-from scanmass.segment.whiteface import FAINT_STEP, WhiteFace, face_cover, white_faces
+from scanmass.segment.whiteface import (
+    FACE_RATIO_RANGE,
+    FAINT_STEP,
+    NEAR_WHITE_MAX,
+    WhiteFace,
+    face_cover,
+    face_planes,
+    white_faces,
+)
 from scanmass.uncertainty import combine
 
 
@@ -308,45 +318,32 @@ WHITE_SHARP_EDGE_PX = 0.5
 WHITE_FRAGMENT_SHARE = 0.35
 
 
-def _white_parts(
+#: The levels (over the local paper white) of a white face sought only to name the regions found
+#: beside it (:func:`_near_white`): from the measuring search's floor to
+#: :data:`~scanmass.segment.whiteface.NEAR_WHITE_MAX`.
+NEAR_WHITE_RANGE = (FACE_RATIO_RANGE[0], NEAR_WHITE_MAX)
+
+
+def _face_pieces(
     image: LoadedImage,
-    masked: LoadedImage,
     scale: PhotoScale,
     result: Measurement,
-    colour: np.ndarray | None,
+    colour: np.ndarray,
     thickness_mm: float | None,
-    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
-) -> tuple[Measurement, frozenset[int], list[str]]:
-    """White parts on white paper measured from their top faces, where only their shadows or lit faces were found.
+    found: list[WhiteFace],
+    masks: dict[int, tuple[tuple[int, int, int, int], np.ndarray]],
+) -> tuple[list[tuple[WhiteFace, np.ndarray, np.ndarray]], set[int]]:
+    """The white faces whose neighbourhood holds only pieces of their own part, and those pieces' labels.
 
-    When some found regions look like cast shadows alone or like a white part's lit faces
-    (:func:`_shadow_regions`), the smooth faces a little darker than the paper beside them
-    (:func:`~scanmass.segment.whiteface.white_faces`) are the parts' top faces: each is painted as a
-    grey part whose edge lies where the face's share (:func:`~scanmass.segment.whiteface.face_cover`)
-    crosses half-way, its surroundings (shadow, walls) painted in the paper's level, and the photo
-    is measured again. The white parts carry the term ``white_face`` (their edges' location against
-    the faint step to the paper, :data:`WHITE_FAINT_EDGE_PX`) and a warning.
-
-    Returns the measurement (``result`` itself when no white face is found), the labels of the white
-    parts and the warnings.
+    Within the reach of the thickest shadow the photo allows, a found region that is a shadow, a lit
+    wall or face (:func:`_shadow_regions`), or a piece much smaller than the face (a hole's dark
+    bottom, a dark wall: :data:`WHITE_FRAGMENT_SHARE`) is the white part's; a face with a part as large
+    as itself, or lying on it, beside it is not a white part's (another part is there). Each face kept
+    comes with its mask with holes filled and its neighbourhood.
     """
-    if colour is None or not result.parts:
-        return result, frozenset(), []
-    lut = np.asarray(image.to_linear, dtype=np.float32)
-    level = lut[colour].mean(axis=-1)
-    valid = np.zeros(level.shape, np.uint8)
-    cv2.fillPoly(valid, [np.round(scale.roi_px).astype(np.int32)], 1)
-    mm_per_px = scale.plane_map.mm_per_px
-    found = white_faces(level, valid.astype(bool), mm_per_px)
-    if not found:  # the common case: no white face, nothing else to read
-        return result, frozenset(), []
     shadow_parts, lit_parts = _shadow_regions(image, scale, result, colour, thickness_mm)
     regions = {p.label for p in shadow_parts + lit_parts}
-    masks: dict[int, tuple[tuple[int, int, int, int], np.ndarray]] = {}
-    for part in result.parts:
-        crop = _part_crop(image, scale, part, 0)
-        if crop is not None:
-            masks[part.label] = (crop[0], crop[1])
+    mm_per_px = scale.plane_map.mm_per_px
     # the shadow of the thickest part a photo's shadow-only test allows (another part of the photo may be thicker
     # than the thickness given)
     reach_px = shadow_band_px(max(thickness_mm or 0.0, SHADOW_CUT_UNKNOWN_THICKNESS_MM), mm_per_px) + 6.0
@@ -376,6 +373,153 @@ def _white_parts(
             continue
         fragments |= mine
         faces.append((face, filled, zone))
+    return faces, fragments
+
+
+#: Least share of paper-coloured pixels (:func:`~scanmass.segment.shadow.paper_coloured_share`), least
+#: median level over the local paper white and widest inscribed disc (mm) of a found region taken as a
+#: piece of a white part (a wall, a hole's bottom) beside a face too near the paper's level to measure
+#: (:func:`_near_white`). dev-mixed-nylon-t15's four pieces read 0.77-0.96, 0.61-0.69 and 2.6-4.0 mm; the
+#: brass parts beside a smooth patch of spot-lit paper that the search at that level took for a face
+#: (dev-spot-brass-t22) 0.06-0.28, 0.03-0.07 and 8.3-15.2 mm. A wall 8 mm high seen 30 degrees from the
+#: vertical spans 4.6 mm (8 tan 30 degrees).
+PIECE_MIN_NEUTRAL = 0.6
+PIECE_MIN_LEVEL = 0.3
+PIECE_MAX_WIDTH_MM = 6.0
+
+
+def _paper_piece(image: LoadedImage, scale: PhotoScale, part: Part, colour: np.ndarray) -> bool:
+    """True when a found region looks like a piece of a white part: of the paper's colour, not dark, narrow
+    (:data:`PIECE_MIN_NEUTRAL`, :data:`PIECE_MIN_LEVEL`, :data:`PIECE_MAX_WIDTH_MM`)."""
+    mm_per_px = scale.plane_map.mm_per_px
+    band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, mm_per_px)
+    crop = _part_crop(image, scale, part, int(band_px) + 16)
+    if crop is None:
+        return False
+    (x0, y0, x1, y1), mask, _ = crop
+    crop_lin = np.asarray(image.to_linear, dtype=np.float32)[colour[y0:y1, x0:x1]]
+    risk = shadow_risk(crop_lin, mask, band_px)
+    if risk is None:
+        return False
+    share, level = paper_coloured_share(crop_lin, mask, risk.paper_rgb)
+    return (
+        share >= PIECE_MIN_NEUTRAL
+        and level >= PIECE_MIN_LEVEL
+        and inscribed_width_px(mask) * mm_per_px <= PIECE_MAX_WIDTH_MM
+    )
+
+
+def _face_term(filled: np.ndarray, mm_per_px: float) -> dict[str, float]:
+    """A term that covers a whole white face left out of a piece of its part: its area, its half extent on
+    the centroid, its polar second moment about its far corner on each second moment, its outline on the
+    perimeter, any principal angle (1 sigma each: the piece's figures are not the part's)."""
+    rows, cols = np.nonzero(filled)
+    area = float(rows.size) * mm_per_px**2
+    half = 0.5 * math.hypot(float(np.ptp(rows)) + 1.0, float(np.ptp(cols)) + 1.0) * mm_per_px
+    moment = area * (2.0 * half) ** 2
+    term = {"area_mm2": area, "centroid_x_mm": half, "centroid_y_mm": half, "perimeter_mm": 2.0 * math.pi * half}
+    term["principal_angle_deg"] = 90.0  # a piece's axes say nothing of the part's
+    for fig in ("ixx_mm4", "iyy_mm4", "ixy_mm4", "i1_mm4", "i2_mm4", "polar_mm4"):
+        term[fig] = moment
+    return term
+
+
+def _near_white(
+    image: LoadedImage,
+    result: Measurement,
+    mm_per_px: float,
+    masks: dict[int, tuple[tuple[int, int, int, int], np.ndarray]],
+    faces: list[tuple[WhiteFace, np.ndarray, np.ndarray]],
+    fragments: set[int],
+) -> tuple[Measurement, frozenset[int], list[str]]:
+    """Name the found regions that are pieces of a white part whose face is too near the paper to measure.
+
+    A white face at :data:`NEAR_WHITE_RANGE` but above the measuring search's range (a face within about
+    5 % of the paper's level, its outline not placed) with only small regions beside it (its walls, its
+    holes' bottoms: :func:`_face_pieces`) says those regions are not parts. Each gets the term
+    ``white_face`` sized by its face (the face's area; its centroid and second moments bounded by the
+    face's half extent), and a warning; when they are every found part, the photo is refused.
+
+    Raises
+    ------
+    SegmentationError
+        When every found part is such a piece, naming the fix.
+    """
+    if not faces:
+        return result, frozenset(), []
+    names = ", ".join(_region_name(p) for p in result.parts if p.label in fragments)
+    if len(fragments) == len(result.parts):
+        raise SegmentationError(
+            f"no part measured: {names} look like pieces (walls, holes' dark bottoms) of white part(s) on white "
+            "paper whose top faces are within about 5 % of the paper's level, so their outlines are not seen: lay "
+            "light parts on a dark backing sheet, or light them from below (a backlight)",
+            path=image.path,
+        )
+    parts = []
+    for part in result.parts:
+        if part.label in fragments and part.label in masks:
+            (x0, y0, x1, y1), mask = masks[part.label]
+            filled = next(f[1] for f in faces if np.any(f[2][y0:y1, x0:x1] & mask))
+            part = _with_shadow_term(part, _face_term(filled, mm_per_px), 0.0, "white_face")
+        parts.append(part)
+    result.parts = parts
+    note = (
+        f"white on white: {names} look like pieces (walls, holes' dark bottoms) of a white part on white paper whose "
+        "top face is within about 5 % of the paper's level, so its outline is not seen: do not use their figures "
+        "(term 'white_face' covers the whole face); lay light parts on a dark backing sheet or use a backlight"
+    )
+    return result, frozenset(), [note]
+
+
+def _white_parts(
+    image: LoadedImage,
+    masked: LoadedImage,
+    scale: PhotoScale,
+    result: Measurement,
+    colour: np.ndarray | None,
+    thickness_mm: float | None,
+    remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+) -> tuple[Measurement, frozenset[int], list[str]]:
+    """White parts on white paper measured from their top faces, where only their shadows or lit faces were found.
+
+    When some found regions look like cast shadows alone or like a white part's lit faces
+    (:func:`_shadow_regions`), the smooth faces a little darker than the paper beside them
+    (:func:`~scanmass.segment.whiteface.white_faces`) are the parts' top faces: each is painted as a
+    grey part whose edge lies where the face's share (:func:`~scanmass.segment.whiteface.face_cover`)
+    crosses half-way, its surroundings (shadow, walls) painted in the paper's level, and the photo
+    is measured again. The white parts carry the term ``white_face`` (their edges' location against
+    the faint step to the paper, :data:`WHITE_FAINT_EDGE_PX`) and a warning.
+
+    Returns the measurement (``result`` itself when no white face is found), the labels of the white
+    parts and the warnings.
+    """
+    if colour is None or not result.parts:
+        return result, frozenset(), []
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    level = lut[colour].mean(axis=-1)
+    valid = np.zeros(level.shape, np.uint8)
+    cv2.fillPoly(valid, [np.round(scale.roi_px).astype(np.int32)], 1)
+    mm_per_px = scale.plane_map.mm_per_px
+    planes = face_planes(level, valid.astype(bool))
+    found = white_faces(level, valid.astype(bool), mm_per_px, planes=planes)
+    near = (
+        white_faces(level, valid.astype(bool), mm_per_px, planes=planes, ratio_range=NEAR_WHITE_RANGE)
+        if not found
+        else []
+    )
+    if not found and not near:  # the common case: no white face, nothing else to read
+        return result, frozenset(), []
+    masks: dict[int, tuple[tuple[int, int, int, int], np.ndarray]] = {}
+    for part in result.parts:
+        crop = _part_crop(image, scale, part, 0)
+        if crop is not None:
+            masks[part.label] = (crop[0], crop[1])
+    if not found:
+        faces, fragments = _face_pieces(image, scale, result, colour, thickness_mm, near, masks)
+        if not all(_paper_piece(image, scale, p, colour) for p in result.parts if p.label in fragments):
+            return result, frozenset(), []  # something other than a white part's walls lies beside the face
+        return _near_white(image, result, mm_per_px, masks, faces, fragments)
+    faces, fragments = _face_pieces(image, scale, result, colour, thickness_mm, found, masks)
     if not faces:
         return result, frozenset(), []
     others = np.zeros(level.shape, bool)  # the other parts: never painted

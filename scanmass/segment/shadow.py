@@ -46,6 +46,7 @@ __all__ = [
     "unclear_edges",
     "looks_like_shadow_only",
     "looks_like_lit_white",
+    "paper_coloured_share",
     "dark_pits",
     "darkened_paper",
 ]
@@ -162,15 +163,32 @@ def looks_like_lit_white(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rg
     pixels = colour_lin[part_mask]
     if pixels.shape[0] < 20:
         return False
+    share, level = paper_coloured_share(colour_lin, part_mask, paper_rgb)
+    clipped = np.all(pixels >= _CLIP_LEVEL, axis=-1)
+    return bool(
+        share >= LIT_WHITE_NEUTRAL_FRACTION and level >= LIT_WHITE_MIN_LEVEL and clipped.mean() <= LIT_WHITE_MAX_CLIPPED
+    )
+
+
+def paper_coloured_share(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray) -> tuple[float, float]:
+    """The share of a region's pixels with the paper white's colour (each channel over the paper's within
+    ``_CHROMA_TOL`` of their mean), and the region's median level over the paper white (channel mean).
+
+    Examples
+    --------
+    >>> paper = np.array([0.70, 0.72, 0.74])
+    >>> img = np.tile(0.5 * paper, (10, 10, 1)); mask = np.ones((10, 10), bool)
+    >>> share, level = paper_coloured_share(img, mask, paper)
+    >>> round(share, 2), round(level, 2)
+    (1.0, 0.5)
+    """
+    pixels = colour_lin[part_mask]
+    if pixels.shape[0] == 0:
+        return 0.0, 0.0
     q = pixels / np.asarray(paper_rgb, pixels.dtype)
     m = q.mean(axis=-1)
     neutral = np.all(np.abs(q - m[:, None]) <= _CHROMA_TOL * m[:, None] + 0.01, axis=-1)
-    clipped = np.all(pixels >= _CLIP_LEVEL, axis=-1)
-    return bool(
-        neutral.mean() >= LIT_WHITE_NEUTRAL_FRACTION
-        and np.median(m) >= LIT_WHITE_MIN_LEVEL
-        and clipped.mean() <= LIT_WHITE_MAX_CLIPPED
-    )
+    return float(neutral.mean()), float(np.median(m))
 
 
 #: Lowest elevation (degrees) of a light whose cast shadow a region alone may be: a shadow reaches

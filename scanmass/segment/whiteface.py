@@ -35,6 +35,8 @@ __all__ = [
     "white_faces",
     "face_cover",
     "FACE_RATIO_RANGE",
+    "NEAR_WHITE_MAX",
+    "face_planes",
     "FACE_MAX_SPREAD",
     "FAINT_STEP",
 ]
@@ -50,6 +52,12 @@ SMOOTH_SIGMA_PX = 1.5
 #: 0.935-0.939), smooth patches of paper and of a steel face were taken for faces on three photos of
 #: other parts (dev-mixed-black2-t22, dev-spot-brass-t22, dev-spot-steel3-t20): not kept.
 FACE_RATIO_RANGE = (0.55, 0.93)
+#: Highest level (smoothed / local paper white) of a face sought only to be named, not measured
+#: (:func:`white_faces` ``ratio_range``): dev-mixed-nylon-t15's faces read 0.935-0.939 under the
+#: Filmic curve, too near the paper for their outline to be placed; sought up to 0.955 (the level
+#: the measuring search was tried at), such a face tells that the regions found beside it are its
+#: part's walls and hole bottoms, not parts.
+NEAR_WHITE_MAX = 0.955
 #: Largest local spread of the level (local standard deviation over the paper white, the
 #: smoothing's window) of a face pixel: the faces of those renders read 0.004-0.009 (median), the
 #: paper around them 0.05-0.10.
@@ -164,8 +172,21 @@ def _smoothed(level: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return mean, np.sqrt(np.maximum(sq - mean * mean, 0.0))
 
 
+def face_planes(level: np.ndarray, valid: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The smoothed level, its local spread and the local paper white (:func:`paper_level_map` of the
+    smoothed level) that :func:`white_faces` reads: computed once for searches over several ranges."""
+    smooth, spread = _smoothed(np.asarray(level, np.float32))
+    return smooth, spread, paper_level_map(smooth, valid)
+
+
 def white_faces(
-    level: np.ndarray, valid: np.ndarray, mm_per_px: float, paper: np.ndarray | None = None
+    level: np.ndarray,
+    valid: np.ndarray,
+    mm_per_px: float,
+    paper: np.ndarray | None = None,
+    *,
+    planes: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    ratio_range: tuple[float, float] = FACE_RATIO_RANGE,
 ) -> list[WhiteFace]:
     """The white top faces in a photo's linear level plane (channel mean).
 
@@ -179,6 +200,10 @@ def white_faces(
         The plane's scale (for :data:`MIN_FACE_MM2`).
     paper : (H, W) float ndarray, optional
         The local paper white (default :func:`paper_level_map`).
+    planes : tuple of three (H, W) ndarrays, optional
+        :func:`face_planes` of ``level`` already computed (then ``paper`` is not read).
+    ratio_range : (float, float)
+        The levels over the paper white a face may have (default :data:`FACE_RATIO_RANGE`).
 
     Examples
     --------
@@ -192,11 +217,14 @@ def white_faces(
     (1, 0.8)
     """
     lv = np.asarray(level, np.float32)
-    smooth, spread = _smoothed(lv)
-    paper_map = paper_level_map(smooth, valid) if paper is None else np.asarray(paper, np.float32)
+    if planes is not None:
+        smooth, spread, paper_map = planes
+    else:
+        smooth, spread = _smoothed(lv)
+        paper_map = paper_level_map(smooth, valid) if paper is None else np.asarray(paper, np.float32)
     paper_map = np.maximum(paper_map, 1e-4)
     ratio = smooth / paper_map
-    lo, hi = FACE_RATIO_RANGE
+    lo, hi = ratio_range
     cand = valid & (ratio > lo) & (ratio < hi) & (spread / paper_map < FACE_MAX_SPREAD)
     # thin links (a penumbra's smooth ramp touching the face at a point) cut by an opening
     cand = cv2.morphologyEx(cand.astype(np.uint8), cv2.MORPH_OPEN, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (5, 5)))
