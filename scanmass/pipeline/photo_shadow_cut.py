@@ -29,6 +29,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.castshadow import core_cut, shadow_cut, sweep_direction
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
 from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
+from scanmass.segment.litcut import face_edge_given_back, lit_face_given_back
 from scanmass.segment.metalshadow import metal_colour_sweep
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -504,6 +505,10 @@ def _decide_cuts(
             by_tint = tint_cut(colour_lin, mask, risk.paper_rgb, cut, band_px)
             if by_tint is not None:
                 cut = by_tint
+        if cut is not None and not dark and not coloured and risk is not None:
+            cut = lit_face_given_back(colour_lin, mask, risk.paper_rgb, cut, band_px)  # a metal's lit stretch kept
+            if thickness_mm is not None:  # and its face beside the shadow (without one, the wall's width is unknown)
+                cut = face_edge_given_back(colour_lin, mask, risk.paper_rgb, cut)
         if cut is not None:
             outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
             paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]
