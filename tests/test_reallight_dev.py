@@ -215,7 +215,7 @@ def test_steel_plate_with_sectors_as_bright_as_the_paper():
     """dev-spot-steel3-t20: the 3 mm steel plate's two lit sectors hold a streak at the paper's level; joined by
     their step beyond the found face's hull (branch spot15), the plate read -7.3 %, centroid 1.26 mm, its 10 mm hole
     missed: the cast-shadow cut painted a layer of its left sector along the notch's edge. That lit, smooth layer is
-    given back (:mod:`scanmass.segment.litcut`, branch spotsteel18): -2.2 %, centroid 0.35 mm, the 10 mm hole
+    given back (:mod:`scanmass.segment.litcut`, branch spotsteel18): -2.3 %, centroid 0.33 mm, the 10 mm hole
     found (bench_reallight). Truth: the render's outlines (shapely)."""
     m, part, tp = _part("dev-spot-steel3-t20", "plate")
     assert _covered(part, tp)  # it is covered: what fails is the figure itself
