@@ -30,6 +30,7 @@ from scanmass.segment.castshadow import core_cut, shadow_cut, sweep_direction
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
 from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
 from scanmass.segment.facelevel import cut_at_face_level, face_above_core
+from scanmass.segment.litcut import face_edge_given_back, lit_face_given_back
 from scanmass.segment.metalshadow import metal_colour_sweep
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -220,6 +221,16 @@ def _blend_cut_edge(
     lower, upper = order[pos - 1], order[pos]
     codes = np.where(np.abs(lut[lower] - value) <= np.abs(lut[upper] - value), lower, upper)
     window[band] = codes.astype(window.dtype)
+
+
+def _wall_px(scale: PhotoScale, part: Part, thickness_mm: float) -> float:
+    """The widest (px) a part's side wall can show in the photo: its thickness' parallax, largest over the outline."""
+    if not thickness_mm or scale.camera_matrix is None or part.outline_mm is None:
+        return 0.0
+    ring = np.asarray(part.outline_mm, float)
+    hook = ElevationHook(scale.plane_map.matrix, scale.camera_matrix, thickness_mm)
+    step = apply_h(hook.gh, ring) - apply_h(hook.g0, ring)
+    return float(np.max(np.hypot(step[:, 0], step[:, 1])))
 
 
 def _within_box(part: Part, lo: np.ndarray, hi: np.ndarray) -> bool:
@@ -510,6 +521,10 @@ def _decide_cuts(
             by_tint = tint_cut(colour_lin, mask, risk.paper_rgb, cut, band_px)
             if by_tint is not None:
                 cut = by_tint
+        if cut is not None and not dark and not coloured and risk is not None:
+            cut = lit_face_given_back(colour_lin, mask, risk.paper_rgb, cut, band_px)  # a metal's lit stretch kept
+            if thickness_mm is not None:  # and its face beside the shadow (without one, the wall's width is unknown)
+                cut = face_edge_given_back(colour_lin, mask, risk.paper_rgb, cut, _wall_px(scale, part, thickness_mm))
         if cut is not None:
             outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
             paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]
