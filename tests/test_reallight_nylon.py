@@ -169,3 +169,22 @@ def test_dark_tinted_parts_beside_a_smooth_paper_patch_are_not_taken_for_pieces(
     assert len(m.parts) == len(parts)
     assert not any("white_face" in p.uncertainty_terms for p in m.parts)
     assert not any(w.startswith("white on white") for w in m.warnings)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", ["window-mixed-t0", "spot-nylon-t0", "window-nylon-t0"])
+def test_warnings_name_only_parts_of_the_result(name):
+    """The pieces a white face takes in (its shadow, walls, holes' bottoms) leave the result; a warning that
+    named only them (thin walls, filled holes of the piece) goes with them, so every part a warning names
+    is a part of the result."""
+    import re
+
+    _, parts = truth_render(REALLIGHT, f"{name}.json")
+    m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=max(p["t"] for p in parts))
+    labels = {p.label for p in m.parts}
+    for w in m.warnings:
+        for group in re.findall(
+            r"\bpart(?:\(s\))? (\d+(?: \((?:[^()]|\([^()]*\))*\))?(?:, \d+(?: \((?:[^()]|\([^()]*\))*\))?)*)", w
+        ):
+            group = re.sub(r"\((?:[^()]|\([^()]*\))*\)", "", group)  # what the parentheses say of a part
+            assert {int(n) for n in re.findall(r"(?:^|, )(\d+)", group)} <= labels, w

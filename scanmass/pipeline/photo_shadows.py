@@ -7,6 +7,7 @@ Part of the pipeline stage (:mod:`scanmass.pipeline`).
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Callable
 from dataclasses import replace
 
@@ -471,6 +472,30 @@ def _near_white(
     return result, frozenset(), [note]
 
 
+#: A part's label as a warning names it: "part 3", "part(s) 1, 2", "part(s) 2 (65 % of ...), 4 (...)".
+_PART_NAMES = re.compile(
+    r"\bpart(?:\(s\))? (\d+(?: \((?:[^()]|\([^()]*\))*\))?(?:, \d+(?: \((?:[^()]|\([^()]*\))*\))?)*)"
+)
+
+
+def _names_only(warning: str, labels: set[int]) -> bool:
+    """True when every part a warning names is among ``labels`` (the pieces a white face took in: a warning
+    about them alone no longer names a part of the result).
+
+    Examples
+    --------
+    >>> _names_only("part 1: 200 boundary points lie on thin walls", {1, 2})
+    True
+    >>> _names_only("cast shadow: part(s) 1 (65 % of its edge band), 3 (84 %) border", {1, 2})
+    False
+    >>> _names_only("print scale unverified", {1})
+    False
+    """
+    groups = [re.sub(r"\((?:[^()]|\([^()]*\))*\)", "", g) for g in _PART_NAMES.findall(warning)]
+    named = {int(n) for group in groups for n in re.findall(r"(?:^|, )(\d+)", group)}
+    return bool(named) and named <= labels
+
+
 def _white_parts(
     image: LoadedImage,
     masked: LoadedImage,
@@ -570,6 +595,7 @@ def _white_parts(
     if not white:
         return result, frozenset(), []
     result.parts = parts
+    result.warnings = [w for w in result.warnings if not _names_only(w, fragments)]
     names = ", ".join(f"part {p.label}" for p in parts if p.label in white)
     note = (
         f"white on white: {names} found by the top face, a little darker and smoother than the paper (a white part "
