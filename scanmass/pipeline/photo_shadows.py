@@ -31,6 +31,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
+    holed_face,
     inscribed_width_px,
     looks_like_lit_white,
     looks_like_shadow_only,
@@ -160,6 +161,7 @@ def _shadow_regions(
             looks_like_shadow_only(risk)
             and not has_lit_face(part)  # a lit face joined up to its sharp edge
             and not too_wide_for_shadow(mask, reach_t, mm_per_px)
+            and not holed_face(part.area_mm2, [h.area_mm2 for h in part.holes], inscribed_width_px(mask) * mm_per_px)
         ):
             shadows.append(part)
         elif looks_like_lit_white(crop_lin, mask, risk.paper_rgb):
