@@ -71,7 +71,8 @@ def _shadows_only(
     face, not a shadow alone: a grey steel face whose colour is the paper's, darkened, with
     dark streaks. Without it the bound is that of
     :data:`~scanmass.pipeline.photo_shadow_cut.SHADOW_CUT_UNKNOWN_THICKNESS_MM` (an 8 mm white
-    part's shadow can be as wide as a steel face).
+    part's shadow can be as wide as a steel face); a region holding holes is a face whatever its
+    width (:func:`~scanmass.segment.shadow.holed_face`: a shadow alone encloses no lit paper).
 
     Under a hard light a white part's shadow does not fade and what is found instead is its
     faces lit more than the paper: regions of the paper's colour, brighter, below the sensor's
