@@ -435,7 +435,9 @@ def test_grey_metal_face_too_wide_for_a_shadow_is_measured():
     tint and fade like a shadow, but each is wider than the cast shadow of a part that thick can be
     (4 mm / tan 15 degrees = 14.9 mm; they are 19-22 mm across): both parts are found, each area and
     centroid within 3 stated sigma of the render's exact outline (shapely), and warned. Without the
-    thickness an 8 mm white part's shadow could be as wide: the photo is still refused, naming both causes."""
+    thickness an 8 mm white part's shadow could be as wide, but each face holds a hole, which a shadow
+    alone does not (segment.shadow.holed_face; branch nothick19, was refused): both parts are measured
+    and within 3 stated sigma (tests/test_reallight_nothick.py checks the figures)."""
     if not (REALLIGHT / "mixed-steel-t20.jpg").exists():
         pytest.skip("tests/data/reallight not in this checkout")
     _, parts = _render_truth("mixed-steel-t20.json")
@@ -450,8 +452,9 @@ def test_grey_metal_face_too_wide_for_a_shadow_is_measured():
             for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
                 assert abs(c - t) <= 3 * u, tp["shape"]
             assert any(f" {part.label} (" in w for w in m.warnings if w.startswith("cast shadow"))
-    with pytest.raises(SegmentationError, match="light part on light paper.*grey metal part.*diffuse light.*backlight"):
-        scanmass.measure(REALLIGHT / "mixed-steel-t20.jpg")
+    m = scanmass.measure(REALLIGHT / "mixed-steel-t20.jpg")
+    assert len(m.parts) == 2
+    assert not any(w.startswith("shadow only") for w in m.warnings)
 
 
 def test_matte_parts_on_a_clean_photo_get_no_unclear_edge_or_hidden_hole_term():

@@ -32,6 +32,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
+    holed_face,
     inscribed_width_px,
     looks_like_lit_white,
     looks_like_shadow_only,
@@ -71,7 +72,8 @@ def _shadows_only(
     face, not a shadow alone: a grey steel face whose colour is the paper's, darkened, with
     dark streaks. Without it the bound is that of
     :data:`~scanmass.pipeline.photo_shadow_cut.SHADOW_CUT_UNKNOWN_THICKNESS_MM` (an 8 mm white
-    part's shadow can be as wide as a steel face).
+    part's shadow can be as wide as a steel face); a region holding holes is a face whatever its
+    width (:func:`~scanmass.segment.shadow.holed_face`: a shadow alone encloses no lit paper).
 
     Under a hard light a white part's shadow does not fade and what is found instead is its
     faces lit more than the paper: regions of the paper's colour, brighter, below the sensor's
@@ -161,6 +163,7 @@ def _shadow_regions(
             looks_like_shadow_only(risk)
             and not has_lit_face(part)  # a lit face joined up to its sharp edge
             and not too_wide_for_shadow(mask, reach_t, mm_per_px)
+            and not holed_face(part.area_mm2, [h.area_mm2 for h in part.holes], inscribed_width_px(mask) * mm_per_px)
         ):
             shadows.append(part)
         elif looks_like_lit_white(crop_lin, mask, risk.paper_rgb):

@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import cv2
@@ -230,6 +231,52 @@ def too_wide_for_shadow(part_mask: np.ndarray, thickness_mm: float, mm_per_px: f
     """
     reach_mm = thickness_mm / np.tan(np.radians(SHADOW_ONLY_MIN_ELEVATION_DEG))
     return bool(inscribed_width_px(part_mask) * mm_per_px > reach_mm)
+
+
+#: Least area (mm²) of a hole that makes a found region a part's face (:func:`holed_face`): about 1.6 mm
+#: across, some 20 px at the photos' 0.34-0.38 mm/px, so no speck of noise. The holes of the grey steel faces
+#: taken for shadows without the thickness on the committed renders (dev-mixed-steel2-t15, dev-mixed-steel3-t22,
+#: dev-mixed-steel4-t8, dev-window-low-steel2-t8, mixed-steel-t20) are 4.1-62.6 mm²; the shadow-only regions of
+#: the white parts there (window-nylon-t0, dev-window-nylon-t10, window-mixed-t0) hold none.
+FACE_HOLE_MIN_MM2 = 2.0
+#: Largest share of a region's outline its holes may cover for it to be a face with holes (:func:`holed_face`):
+#: a shadow cast all round a white caster lit from above (a halo) encloses the caster, which is most of the
+#: outline when the halo is narrow. The steel faces above: 0.1-5 %.
+FACE_HOLE_MAX_SHARE = 0.3
+
+
+def holed_face(area_mm2: float, hole_areas_mm2: Sequence[float], width_mm: float) -> bool:
+    """True when a found region holds a hole of the paper's level, so is a part's face and not a cast shadow alone.
+
+    A cast shadow alone (of a white part on white paper, not found) lies between its caster's edge
+    and its outer edge, on the side away from the light: a strip, which cannot enclose a patch of lit
+    paper (the holes of its caster lie under the caster and let light through only there). The one
+    way a shadow closes round paper is a halo round its caster lit from straight above; then the
+    enclosed patch is the caster itself, much wider than the halo. So a region holding a hole of at
+    least :data:`FACE_HOLE_MIN_MM2`, covering at most :data:`FACE_HOLE_MAX_SHARE` of its outline and
+    narrower (equal-area diameter) than the region's widest inscribed disc ``width_mm`` is a face with
+    holes: a grey metal face whose colour is the paper's, darkened, found without the thickness that
+    would bound a shadow's width (:func:`too_wide_for_shadow`).
+
+    Parameters
+    ----------
+    area_mm2 : float
+        The region's area, holes cleared.
+    hole_areas_mm2 : sequence of float
+        Its holes' areas.
+    width_mm : float
+        Its widest inscribed disc's diameter (:func:`inscribed_width_px` times the scale).
+
+    Examples
+    --------
+    >>> holed_face(1000.0, [30.0], 20.0), holed_face(1000.0, [], 20.0), holed_face(300.0, [900.0], 4.0)
+    (True, False, False)
+    """
+    holes = [a for a in hole_areas_mm2 if a >= FACE_HOLE_MIN_MM2]
+    if not holes:
+        return False
+    outline = area_mm2 + float(sum(hole_areas_mm2))
+    return bool(sum(holes) <= FACE_HOLE_MAX_SHARE * outline and 2.0 * math.sqrt(max(holes) / math.pi) < width_mm)
 
 
 def shadow_band_px(thickness_mm: float, mm_per_px: float) -> float:
