@@ -627,6 +627,10 @@ def _open_deep_holes(
     again with ``remeasure``. Each opened hole's diameter gets the term ``deep_hole``: twice the
     edge doubt (:data:`DEEP_HOLE_EDGE_PX` or the edge's own width) on its diameter, once on its
     centre, and the part the area the ring sweeps at that doubt (centroid and moments to match).
+    A found hole's opening traced by the face's tint (``colour``, the photo's encoded B, G, R planes;
+    :func:`_tinted_opening`) keeps its fitted circle as the hole's diameter and centre. Where a painted
+    opening is not found again as a hole, the others are opened without it (``dropped``, once); if that
+    fails too, or a part is not found again, everything is kept as it was.
 
     Returns the image and scale to go on with (painted, and the plane map with the openings
     seen on top), the measurement and a warning. Without a thickness (no top face's plane) or
