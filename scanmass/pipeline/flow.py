@@ -915,7 +915,7 @@ def _measure_photo(
         masked, cut_scale = last["image"], replace(scale, plane_map=last["plane_map"])
     else:
         cut_scale = scale
-    _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure)
+    _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure, colour)
     # white parts on white paper found by their top faces where only shadows or lit faces were (photo_shadows)
     result, white, white_notes = _white_parts(image, masked, cut_scale, result, colour, thickness_mm, probe_remeasure)
     shadow_only = white_notes + _shadows_only(image, scale, result, colour, thickness_mm, white)

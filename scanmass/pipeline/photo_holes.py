@@ -27,6 +27,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
 from scanmass.segment.deephole import PitEdge, lit_floor_ring, opening_edge, pit_edge
 from scanmass.segment.shadow import PIT_DEPTH, dark_pits
+from scanmass.segment.tintrim import tint_rim
 from scanmass.uncertainty import combine
 
 #: Smallest share of a dark pit's rays that must meet the face (not a lit floor) for its opening to be traced.
@@ -115,6 +116,18 @@ FLOOR_COVER_SHARE = 0.67
 #: ... and where the kept points fit within this rms (px). The far wall's band must be at least
 #: :data:`DEEP_HOLE_STEP_BAND_PX` wide (a narrower shift is not told from the edges' blur).
 FLOOR_OVERLAP_RMS_PX = 0.5
+#: A found hole's rim traced by the face's tint (:func:`~scanmass.segment.tintrim.tint_rim`) is looked for within
+#: this many times the far wall's band plus :data:`TINT_REACH_PX` beyond the found hole: the band, and a wall's
+#: shade on the floor as long as the band again (a light about as high as the camera's line of sight).
+TINT_REACH_BANDS = 2.0
+#: See :data:`TINT_REACH_BANDS` (px: the edges' blur and the chroma's half resolution).
+TINT_REACH_PX = 4.0
+#: Largest rms (px) of a tint-traced rim about its circle on the top face's plane: as a grey trace's
+#: (:data:`DEEP_HOLE_CLEAN_RMS_PX`). On the mixed-light steel renders (tests/data/reallight) the traced rims fit
+#: within 0.14-0.37 px where they lay within 0.3 mm of the truth's top edge; dev-mixed-steel3-t22's 30 mm gasket
+#: bore, its trace broken by a lit stretch, 0.68 px (-0.29 mm), and opened so it made the part's second
+#: measurement fail.
+TINT_CLEAN_RMS_PX = DEEP_HOLE_CLEAN_RMS_PX
 
 
 def _near_side(ideal_px: np.ndarray, hook: ElevationHook, centre_top_mm: np.ndarray) -> np.ndarray:
@@ -354,6 +367,36 @@ def _found_opening(
     return fit[0], fit[1], fit[3]
 
 
+def _tinted_opening(
+    hole: Hole,
+    seed: np.ndarray,
+    seen_colour: np.ndarray,
+    lut: np.ndarray,
+    seen_mask: np.ndarray,
+    origin: tuple[int, int],
+    hook: ElevationHook,
+    mm_per_px: float,
+    outline: np.ndarray,
+    wide_mm: float,
+) -> tuple[np.ndarray, float, float] | None:
+    """A found hole's opening traced by the face's tint where it is wider than ``wide_mm``: (centre mm, diameter mm, doubt px).
+
+    Under lights of two colours the hole's floor and its walls' shade keep the paper's chroma under one
+    light or both, and the brushed face has its own (:mod:`scanmass.segment.tintrim`): the rim is where the
+    face's tint begins. Taken where the trace fits a clean circle on the top face's plane
+    (:data:`TINT_CLEAN_RMS_PX`, :func:`_top_circle`), wider than ``wide_mm`` (the found hole, or its opening
+    traced in grey) by more than :data:`DEEP_HOLE_REPLACE_PX`, centred within the found hole's radius.
+    """
+    band_px = _wall_band_px(seed, origin, hook)
+    edge = tint_rim(seen_colour, lut, seen_mask, seed, TINT_REACH_BANDS * band_px + TINT_REACH_PX)
+    fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
+    if fit is None or fit[2] > TINT_CLEAN_RMS_PX or fit[1] - wide_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
+        return None
+    if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * hole.diameter_mm:
+        return None
+    return fit[0], fit[1], fit[3]
+
+
 def _shade_level(lin: np.ndarray, mask: np.ndarray) -> float:
     """The level a hole's floor in its wall's shade lies below: a pit's, half the part's level read low in its face.
 
@@ -443,8 +486,13 @@ def _shaded_opening(
 
 
 def _deep_hole_circles(
-    image: LoadedImage, scale: PhotoScale, part: Part, hook: ElevationHook, lut: np.ndarray
-) -> list[tuple[np.ndarray, float, float, bool, np.ndarray | None]]:
+    image: LoadedImage,
+    scale: PhotoScale,
+    part: Part,
+    hook: ElevationHook,
+    lut: np.ndarray,
+    colour: np.ndarray | None = None,
+) -> list[tuple[np.ndarray, float, float, bool, np.ndarray | None, bool]]:
     """The through-holes at a part's top face that its dark pits open, or that its found holes only partly show.
 
     Each as (centre mm, diameter mm, edge doubt px, whether it was put together from a lit floor and its
@@ -461,7 +509,7 @@ def _deep_hole_circles(
     (x0, y0, x1, y1), mask, _ = crop
     lin = lut[image.grey[y0:y1, x0:x1]]
     outline = np.asarray(part.outline_mm, np.float32)
-    out: list[tuple[np.ndarray, float, float, bool, np.ndarray | None]] = []
+    out: list[tuple[np.ndarray, float, float, bool, np.ndarray | None, bool]] = []
     # also looked for on the image with its specks taken out (a path tracer's fireflies, a sensor's
     # noise in the shade break a deep hole's dark bottom into pieces too small to be a pit), where
     # the image as it is shows none
@@ -488,7 +536,7 @@ def _deep_hole_circles(
             fit = _lit_pit_opening(lin, mask, (x, y), d, (x0, y0), hook, mm_per_px, outline, shade_below, part.holes)
             partly = fit is not None
         if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
-            out.append((fit[0], fit[1], fit[3], partly, None))
+            out.append((fit[0], fit[1], fit[3], partly, None, False))
     (sx0, sy0, sx1, sy1), seen_mask, rings = seen
     seen_lin = lut[image.grey[sy0:sy1, sx0:sx1]]
     info = scale.plane_map.photo
@@ -503,8 +551,24 @@ def _deep_hole_circles(
         if entry is None:
             entry = _shaded_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, shade_below)
             partly = entry is not None
+        tinted = None
+        if colour is not None and colour.shape[:2] == image.grey.shape[:2]:
+            tinted = _tinted_opening(
+                hole,
+                seed,
+                colour[sy0:sy1, sx0:sx1],
+                lut,
+                seen_mask,
+                (sx0, sy0),
+                hook,
+                mm_per_px,
+                outline,
+                max(hole.diameter_mm, 0.0 if entry is None else entry[1]),
+            )
+            if tinted is not None:
+                entry, partly = tinted, False
         if entry is not None:
-            out.append((entry[0], entry[1], entry[2], partly, ring + np.array([sx0, sy0], float)))
+            out.append((entry[0], entry[1], entry[2], partly, ring + np.array([sx0, sy0], float), entry is tinted))
     return out
 
 
@@ -543,6 +607,8 @@ def _open_deep_holes(
     result: Measurement,
     thickness_mm: float | None,
     remeasure: Callable[[LoadedImage, PlaneMap], Measurement],
+    colour: np.ndarray | None = None,
+    dropped: frozenset[tuple[int, int]] = frozenset(),
 ) -> tuple[LoadedImage, PhotoScale, Measurement, list[str]]:
     """Open the deep through-holes that show dark at their top face, and measure again.
 
@@ -561,6 +627,10 @@ def _open_deep_holes(
     again with ``remeasure``. Each opened hole's diameter gets the term ``deep_hole``: twice the
     edge doubt (:data:`DEEP_HOLE_EDGE_PX` or the edge's own width) on its diameter, once on its
     centre, and the part the area the ring sweeps at that doubt (centroid and moments to match).
+    A found hole's opening traced by the face's tint (``colour``, the photo's encoded B, G, R planes;
+    :func:`_tinted_opening`) keeps its fitted circle as the hole's diameter and centre. Where a painted
+    opening is not found again as a hole, the others are opened without it (``dropped``, once); if that
+    fails too, or a part is not found again, everything is kept as it was.
 
     Returns the image and scale to go on with (painted, and the plane map with the openings
     seen on top), the measurement and a warning. Without a thickness (no top face's plane) or
@@ -571,7 +641,8 @@ def _open_deep_holes(
         return masked, scale, result, []
     lut = np.asarray(image.to_linear, dtype=np.float32)
     mm_per_px = scale.plane_map.mm_per_px
-    found = {part.label: _deep_hole_circles(image, scale, part, hook, lut) for part in result.parts}
+    found = {part.label: _deep_hole_circles(image, scale, part, hook, lut, colour) for part in result.parts}
+    found = {label: [e for i, e in enumerate(holes) if (label, i) not in dropped] for label, holes in found.items()}
     found = {label: holes for label, holes in found.items() if holes}
     if not found:
         return masked, scale, result, []
@@ -595,7 +666,7 @@ def _open_deep_holes(
             continue
         level = np.asarray(np.median(paper), dtype=grey.dtype)
         face = grey[own.astype(bool) & ~near[: grey.shape[0], : grey.shape[1]]]
-        for *_, old_ring in found[part.label]:
+        for *_, old_ring, _ in found[part.label]:
             if old_ring is not None and face.size >= 20:  # the found hole's ring is replaced: it becomes face first
                 gone = np.zeros(grey.shape[:2], np.uint8)
                 cv2.fillPoly(gone, [np.round(old_ring).astype(np.int32)], 1)
@@ -630,12 +701,20 @@ def _open_deep_holes(
         holes = list(new.holes)
         area_mm2 = 0.0
         texts = []
-        for centre, diameter, doubt_px, partly, _ in opened:
+        for index, (centre, diameter, doubt_px, partly, _, by_tint) in enumerate(opened):
             k = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, centre), default=None)
             if k is None or math.dist(holes[k].circle_centre_mm, centre) > 0.25 * diameter:
-                return masked, scale, result, []  # the painted opening was not found as a hole: keep it as it was
+                # the painted opening was not found as a hole (a dark sector of a face, painted, joins something
+                # else): the others are opened without it, once; else all are kept as they were
+                if dropped:
+                    return masked, scale, result, []
+                return _open_deep_holes(
+                    image, masked, scale, result, thickness_mm, remeasure, colour, frozenset({(old.label, index)})
+                )
             u_mm = doubt_px * mm_per_px
             h = holes[k]
+            if by_tint:  # the opening's own circle: the painted disc is read again against a face near its level
+                h = replace(h, diameter_mm=float(diameter), circle_centre_mm=(float(centre[0]), float(centre[1])))
             holes[k] = replace(
                 h,
                 diameter_u_mm=combine(h.diameter_u_mm, 2 * u_mm),
