@@ -62,3 +62,31 @@ def truth_render(folder: Path, name: str) -> tuple[dict, list[dict]]:
             }
         )
     return truth, parts
+
+
+def nearest_part(m, tp: dict):
+    """The measured part whose centroid lies nearest the truth's (how a render's part is matched)."""
+    return min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+
+
+def measured_part(name: str, shape: str, thickness_mm: float | None = None):
+    """The render ``name`` measured at its part's thickness (or ``thickness_mm``): (measurement, part, truth)."""
+    import scanmass
+
+    tp = truth_part(name, shape)
+    m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=tp["t"] if thickness_mm is None else thickness_mm)
+    return m, nearest_part(m, tp), tp
+
+
+def within_3_sigma(part, tp: dict) -> bool:
+    """The part's area and both centroid coordinates within 3 stated sigma of the truth."""
+    return abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2 and all(
+        abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm)
+    )
+
+
+def assert_within_3_sigma(part, tp: dict) -> None:
+    """:func:`within_3_sigma` as assertions that show the figures."""
+    assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2, (part.area_mm2, tp["area"], part.area_u_mm2)
+    for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
+        assert abs(c - t) <= 3 * u, (part.centroid_mm, tp["centroid"], part.centroid_u_mm)

@@ -12,9 +12,8 @@ import math
 
 import numpy as np
 import pytest
-from _reallight_truth import REALLIGHT, truth_part
+from _reallight_truth import REALLIGHT, measured_part, within_3_sigma
 
-import scanmass
 import scanmass.pipeline.photo_shadow_cut as photo_shadow_cut
 from scanmass.segment.facelevel import cut_at_face_level, face_above_core
 from scanmass.segment.shadowlayer import ShadowCut
@@ -22,19 +21,6 @@ from scanmass.segment.shadowlayer import ShadowCut
 pytestmark = pytest.mark.skipif(
     not (REALLIGHT / "dev-mixed-black3-t17.json").exists(), reason="dev renders not in this checkout"
 )
-
-
-def _part(name: str, shape: str):
-    tp = truth_part(name, shape)
-    m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=tp["t"])
-    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
-    return m, part, tp
-
-
-def _covered(part, tp) -> bool:
-    return abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2 and all(
-        abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm)
-    )
 
 
 # --- the rules on drawn regions (no render) --------------------------------------------------------------
@@ -107,23 +93,23 @@ def test_mixed_light_thin_black_gasket_cut_at_its_faces_level_refused():
     crescent of face along its outer edge and its bore's (its cut at 1.03 times the face's level, none of it
     darker; a shadow lit by the other light reads 5.8-8.2 times the face there): -16.1 % in area, centroid
     2.52 mm, bore +0.55 mm. Refused, the part cut by colour: +1.3 %, centroid 0.27 mm, bore -0.20 mm."""
-    m, part, tp = _part("dev-mixed-black3-t17", "gasket")
+    m, part, tp = measured_part("dev-mixed-black3-t17", "gasket")
     assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]  # was -16.1 %
     assert math.dist(part.centroid_mm, tp["centroid"]) < 0.4  # was 2.52 mm
     ((centre, diameter),) = tp["holes"]
     (hole,) = part.holes
     assert abs(hole.diameter_mm - diameter) < 0.3  # was +0.55 mm
-    assert _covered(part, tp)
+    assert within_3_sigma(part, tp)
 
 
 @pytest.mark.slow
 def test_mixed_light_black_cam_beside_it_keeps_its_cut():
     """The cam 5 mm thick of the same photo: its cut holds its warm shadow (7-8 times the face's level) and
     stays (-0.58 % in area, bench_reallight, unchanged)."""
-    m, part, tp = _part("dev-mixed-black3-t17", "cam")
+    m, part, tp = measured_part("dev-mixed-black3-t17", "cam")
     assert "shadow_cut" in part.uncertainty_terms
     assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"]
-    assert _covered(part, tp)
+    assert within_3_sigma(part, tp)
 
 
 @pytest.mark.slow
@@ -131,15 +117,15 @@ def test_spot_light_black_plate_face_given_back_beside_its_shadows_core():
     """dev-spot-black-t12: the black plate 2.5 mm thick under the spot (12 degrees of tilt). The sweep's layer ran
     2-3 px into the face along its lower edge, beside the shaded wall and the shadow's core (0.67 of the face's
     level): -3.57 % in area, centroid 0.64 mm. The face above half-way given back: -1.4 %, centroid 0.19 mm."""
-    m, part, tp = _part("dev-spot-black-t12", "plate")
+    m, part, tp = measured_part("dev-spot-black-t12", "plate")
     assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]  # was -3.57 %
     assert math.dist(part.centroid_mm, tp["centroid"]) < 0.3  # was 0.64 mm
-    assert _covered(part, tp)
+    assert within_3_sigma(part, tp)
 
 
 @pytest.mark.slow
 def test_spot_light_black_plate_without_the_give_back_reads_small(monkeypatch):
     """The same plate with the give-back left out reads the old figure: the check above can fail."""
     monkeypatch.setattr(photo_shadow_cut, "face_above_core", lambda colour_lin, mask, paper_rgb, cut: cut)
-    m, part, tp = _part("dev-spot-black-t12", "plate")
+    m, part, tp = measured_part("dev-spot-black-t12", "plate")
     assert part.area_mm2 < 0.98 * tp["area"]

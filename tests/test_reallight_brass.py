@@ -14,9 +14,8 @@ import math
 
 import numpy as np
 import pytest
-from _reallight_truth import REALLIGHT, truth_part
+from _reallight_truth import REALLIGHT, measured_part
 
-import scanmass
 from scanmass.segment.brightface import PLANE_PAPER_LEVEL, face_colour_plane
 from scanmass.segment.tintlevel import evened_colour_plane
 
@@ -84,9 +83,7 @@ def test_brass_plate_mirroring_the_dark_room_in_soft_light():
     in the colour plane, that side's band up to 20 px wide was left out: -2.48 % in area, centroid
     0.99 mm, holes -0.68 / -0.28 / -0.76 mm (bench_reallight). Evened by its own level: -0.26 %,
     centroid 0.23 mm, holes within 0.06 mm (bench_reallight). Truth: the render's truth file (shapely)."""
-    tp = truth_part("dev-soft-brass-t25", "plate")
-    m = scanmass.measure(REALLIGHT / "dev-soft-brass-t25.jpg", thickness_mm=tp["t"])
-    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+    m, part, tp = measured_part("dev-soft-brass-t25", "plate")
     assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"]  # was -2.48 %
     assert math.dist(part.centroid_mm, tp["centroid"]) < 0.5  # was 0.99 mm
     assert len(part.holes) == len(tp["holes"])

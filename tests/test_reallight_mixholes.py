@@ -12,9 +12,8 @@ import math
 
 import numpy as np
 import pytest
-from _reallight_truth import REALLIGHT, truth_part
+from _reallight_truth import measured_part
 
-import scanmass
 from scanmass.segment.tintrim import tint_rim
 
 #: Supersampling of the synthetic discs (their pixels' shares of the disc within 1/64).
@@ -67,9 +66,7 @@ def test_tint_rim_refuses_a_hole_of_the_faces_own_tint():
 def test_mixed_light_steel_hole_read_at_its_top_rim(name, shape, index, was_mm, within_mm):
     """A brushed-steel plate's hole in mixed light, thickness given: read within ``within_mm`` of the truth's
     diameter (it read ``was_mm`` off), and covered by its stated uncertainty (3 sigma)."""
-    tp = truth_part(name, shape)
-    m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=tp["t"])
-    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+    m, part, tp = measured_part(name, shape)
     (cx, cy), d = tp["holes"][index]
     hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, (cx, cy)))
     assert math.dist(hole.circle_centre_mm, (cx, cy)) < 2.0

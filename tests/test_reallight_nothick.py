@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 
 import pytest
-from _reallight_truth import REALLIGHT, truth_render
+from _reallight_truth import REALLIGHT, assert_within_3_sigma, truth_render
 from shapely.geometry import Point, Polygon, box
 
 import scanmass
@@ -19,12 +19,6 @@ from scanmass.segment.shadow import holed_face
 
 #: The bench's rule for a found part matching a truth part (benchmarks/bench_reallight.py: centroid within 8 mm).
 MATCH_MM = 8.0
-
-
-def _within_3_sigma(part, tp) -> None:
-    assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2, (part.area_mm2, tp["area"], part.area_u_mm2)
-    for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm):
-        assert abs(c - t) <= 3 * u, (part.centroid_mm, tp["centroid"], part.centroid_u_mm)
 
 
 def _reported(m):
@@ -70,7 +64,7 @@ def test_steel_faces_of_the_papers_colour_are_measured_without_the_thickness(nam
     for tp in parts:
         part = min(reported, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
         assert math.dist(part.centroid_mm, tp["centroid"]) < MATCH_MM, tp["shape"]
-        _within_3_sigma(part, tp)
+        assert_within_3_sigma(part, tp)
 
 
 @pytest.mark.slow
@@ -85,7 +79,7 @@ def test_steel_part_beside_another_is_not_named_a_shadow(name, shape):
     reported = _reported(m)
     part = min(reported, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
     assert math.dist(part.centroid_mm, tp["centroid"]) < MATCH_MM
-    _within_3_sigma(part, tp)
+    assert_within_3_sigma(part, tp)
 
 
 @pytest.mark.slow

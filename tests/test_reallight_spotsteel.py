@@ -13,9 +13,8 @@ import math
 
 import numpy as np
 import pytest
-from _reallight_truth import REALLIGHT, truth_part
+from _reallight_truth import REALLIGHT, measured_part, within_3_sigma
 
-import scanmass
 from scanmass.segment.litcut import SHADOW_SOFT_PX, face_edge_given_back, hard_light, lit_face_given_back
 from scanmass.segment.shadowlayer import ShadowCut
 
@@ -114,19 +113,6 @@ needs_renders = pytest.mark.skipif(
 )
 
 
-def _measured(name: str, shape: str):
-    tp = truth_part(name, shape)
-    m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=tp["t"])
-    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
-    return part, tp
-
-
-def _covered(part, tp) -> bool:
-    return abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2 and all(
-        abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm)
-    )
-
-
 @slow
 @needs_renders
 def test_steel_plate_lit_sector_kept_and_its_10mm_hole_found():
@@ -135,9 +121,9 @@ def test_steel_plate_lit_sector_kept_and_its_10mm_hole_found():
     there: -7.32 % in area, centroid 1.26 mm, the 10 mm hole missed (bench_reallight at main 246ae63). The
     sector's stretch is smooth and lit, 8 px and more from the shadow's grain: given back, -2.29 % and the
     hole found. Truth: the render's outlines (shapely)."""
-    part, tp = _measured("dev-spot-steel3-t20", "plate")
+    _, part, tp = measured_part("dev-spot-steel3-t20", "plate")
     assert abs(part.area_mm2 - tp["area"]) < 0.035 * tp["area"]  # was -7.32 %
-    assert _covered(part, tp)
+    assert within_3_sigma(part, tp)
     assert len(part.holes) == len(tp["holes"])  # the 10 mm hole was missed
     for centre, diameter in tp["holes"]:
         hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
@@ -161,10 +147,10 @@ def test_spot_steel_face_beside_the_shadow_given_back(name, shape, area_share, c
     outline, ran a few pixels into the face's dark reflections beside the shadow and at the bores' rims on the
     light's side; the face down to the half-way level between the shadow's core and the face is given back.
     Truth: the render's outlines (area and centroid by shapely, holes by their equal-area circles)."""
-    part, tp = _measured(name, shape)
+    _, part, tp = measured_part(name, shape)
     assert abs(part.area_mm2 - tp["area"]) < area_share * tp["area"]
     assert math.dist(part.centroid_mm, tp["centroid"]) < centroid_mm
-    assert _covered(part, tp)
+    assert within_3_sigma(part, tp)
     for centre, diameter in tp["holes"]:
         hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
         assert abs(hole.diameter_mm - diameter) <= 3 * hole.diameter_u_mm
@@ -176,5 +162,5 @@ def test_window_steel_bracket_left_as_cut():
     """dev-window-steel-t0: a 6 mm steel bracket in window light (soft): its shaded side wall facing the camera
     lies between the face and the shadow at about the half-way level; without the hard-light test the face's edge
     rule gave it back (-0.51 % -> +2.82 %). It stays as main measures it (bench_reallight: -0.51 %)."""
-    part, tp = _measured("dev-window-steel-t0", "l-bracket")
+    _, part, tp = measured_part("dev-window-steel-t0", "l-bracket")
     assert abs(part.area_mm2 - tp["area"]) < 0.01 * tp["area"]

@@ -12,9 +12,8 @@ import math
 
 import numpy as np
 import pytest
-from _reallight_truth import REALLIGHT, truth_part
+from _reallight_truth import REALLIGHT, measured_part
 
-import scanmass
 from scanmass.segment.deephole import opening_edge
 
 #: The synthetic opening (px): a hole of this radius in a face of level 0.1 (linear light).
@@ -66,9 +65,7 @@ def test_window_lit_plates_large_hole_is_opened_at_its_top_face():
     hole showed a lit crescent of floor (found as a 3.7 mm hole 4.2 mm off the true centre) and the
     wall's shade (taken as material): the part read +5.7 % (rl_start29). With the shade taken into the
     opening the hole reads within 0.3 mm (bench_reallight: +0.195 mm) and the area +2.8 %."""
-    tp = truth_part("dev-window-steel5-t14", "plate4")  # the render's JSON, shapely
-    m = scanmass.measure(REALLIGHT / "dev-window-steel5-t14.jpg", thickness_mm=tp["t"])
-    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+    m, part, tp = measured_part("dev-window-steel5-t14", "plate4")  # the render's JSON, shapely
     (centre, diameter) = max(tp["holes"], key=lambda h: h[1])  # the 11 mm hole
     hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
     assert math.dist(hole.circle_centre_mm, centre) < 0.5  # was 4.2 mm off (the lit crescent)
@@ -91,9 +88,7 @@ def test_window_lit_cams_bore_whose_pit_meets_its_lit_floor_is_opened():
     the lit stretch (and 20 degrees beside them), 28 % of the round was left, too little to fit: the bore was
     missed and the cam read +4.8 % (rl_start29). Traced around the pit and the lit stretch together the bore reads
     +0.27 mm and the cam -0.56 % (bench_reallight)."""
-    tp = truth_part("dev-window-low-steel2-t8", "cam")  # the render's JSON, shapely
-    m = scanmass.measure(REALLIGHT / "dev-window-low-steel2-t8.jpg", thickness_mm=tp["t"])
-    part = min(m.parts, key=lambda q: math.dist(q.centroid_mm, tp["centroid"]))
+    m, part, tp = measured_part("dev-window-low-steel2-t8", "cam")  # the render's JSON, shapely
     ((centre, diameter),) = tp["holes"]
     hole = min(part.holes, key=lambda h: math.dist(h.circle_centre_mm, centre))
     assert math.dist(hole.circle_centre_mm, centre) < 0.5  # was missed

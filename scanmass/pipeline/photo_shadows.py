@@ -32,6 +32,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
+    ShadowRisk,
     holed_face,
     inscribed_width_px,
     looks_like_lit_white,
@@ -48,6 +49,7 @@ from scanmass.segment.whiteface import (
     WhiteFace,
     face_cover,
     face_planes,
+    fill_holes,
     white_faces,
 )
 from scanmass.uncertainty import combine
@@ -132,6 +134,20 @@ def _region_name(part: Part) -> str:
     return f"part {part.label} ({part.area_mm2:.3g} mm²)"
 
 
+def _region_reading(
+    image: LoadedImage, scale: PhotoScale, part: Part, colour: np.ndarray, lut: np.ndarray, band_px: float
+) -> tuple[np.ndarray, np.ndarray, ShadowRisk] | None:
+    """A found region's crop in linear colour with paper all round (the band a shadow can cover and 16 px), its
+    mask and its :func:`~scanmass.segment.shadow.shadow_risk`; None where it has no crop or no paper to read."""
+    crop = _part_crop(image, scale, part, int(band_px) + 16)
+    if crop is None:
+        return None
+    (x0, y0, x1, y1), mask, _ = crop
+    crop_lin = lut[colour[y0:y1, x0:x1]]
+    risk = shadow_risk(crop_lin, mask, band_px)
+    return None if risk is None else (crop_lin, mask, risk)
+
+
 def _shadow_regions(
     image: LoadedImage,
     scale: PhotoScale,
@@ -151,14 +167,10 @@ def _shadow_regions(
     for part in result.parts:
         if part.label in white:
             continue
-        crop = _part_crop(image, scale, part, int(band_px) + 16)
-        if crop is None:
+        reading = _region_reading(image, scale, part, colour, lut, band_px)
+        if reading is None:
             continue
-        (x0, y0, x1, y1), mask, _ = crop
-        crop_lin = lut[colour[y0:y1, x0:x1]]
-        risk = shadow_risk(crop_lin, mask, band_px)
-        if risk is None:
-            continue
+        crop_lin, mask, risk = reading
         if (
             looks_like_shadow_only(risk)
             and not has_lit_face(part)  # a lit face joined up to its sharp edge
@@ -352,12 +364,10 @@ def _face_pieces(
     # than the thickness given)
     reach_px = shadow_band_px(max(thickness_mm or 0.0, SHADOW_CUT_UNKNOWN_THICKNESS_MM), mm_per_px) + 6.0
     kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * int(reach_px) + 1,) * 2)
-    from scipy import ndimage  # noqa: PLC0415 - only photos with white faces need it
-
     faces: list[tuple[WhiteFace, np.ndarray, np.ndarray]] = []
     fragments: set[int] = set()
     for face in found:
-        filled = ndimage.binary_fill_holes(face.mask)
+        filled = fill_holes(face.mask)
         zone = cv2.dilate(filled.astype(np.uint8), kernel).astype(bool)
         face_px = np.count_nonzero(filled)
         mine: set[int] = set()
@@ -396,15 +406,11 @@ def _paper_piece(image: LoadedImage, scale: PhotoScale, part: Part, colour: np.n
     """True when a found region looks like a piece of a white part: of the paper's colour, not dark, narrow
     (:data:`PIECE_MIN_NEUTRAL`, :data:`PIECE_MIN_LEVEL`, :data:`PIECE_MAX_WIDTH_MM`)."""
     mm_per_px = scale.plane_map.mm_per_px
-    band_px = shadow_band_px(UNKNOWN_THICKNESS_MM, mm_per_px)
-    crop = _part_crop(image, scale, part, int(band_px) + 16)
-    if crop is None:
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    reading = _region_reading(image, scale, part, colour, lut, shadow_band_px(UNKNOWN_THICKNESS_MM, mm_per_px))
+    if reading is None:
         return False
-    (x0, y0, x1, y1), mask, _ = crop
-    crop_lin = np.asarray(image.to_linear, dtype=np.float32)[colour[y0:y1, x0:x1]]
-    risk = shadow_risk(crop_lin, mask, band_px)
-    if risk is None:
-        return False
+    crop_lin, mask, risk = reading
     share, level = paper_coloured_share(crop_lin, mask, risk.paper_rgb)
     return (
         share >= PIECE_MIN_NEUTRAL

@@ -19,6 +19,7 @@ import math
 import cv2
 import numpy as np
 
+from scanmass.numeric import robust_sigma
 from scanmass.segment.deephole import RAY_STEP_PX, RAYS, PitEdge
 
 #: Gaussian smoothing (px) of the chroma planes: a JPEG keeps chroma at half the resolution
@@ -82,7 +83,7 @@ def _levels(
     if sep <= 0:
         return None
     level = (chroma - face_c) @ (step / sep)  # 0 on the face, sep in the hole
-    scatter = 1.4826 * float(np.median(np.abs(level[face] - np.median(level[face]))))
+    scatter = robust_sigma(level[face])
     return level, sep, max(scatter, 1e-6), cx, cy, r_seed
 
 
@@ -142,20 +143,19 @@ def tint_rim(
         # the levels on either side of this border, read on the ray itself: the hole's just inside (a wall's
         # shade may keep more of a light's tint than the floor) and the face's just outside; the border is
         # their midpoint's crossing
-        pw = p
-        inner = float(pw[max(i - 2 * hold, 0) : i].max())
-        outer_level = float(np.median(pw[i + hold : i + 2 * hold]))
+        inner = float(p[max(i - 2 * hold, 0) : i].max())
+        outer_level = float(np.median(p[i + hold : i + 2 * hold]))
         step_k = inner - outer_level
         if step_k < 0.5 * sep:
             continue
         mid = outer_level + 0.5 * step_k
         base = max(i - 2 * hold, 0)
-        seg = pw[base : i + hold]
+        seg = p[base : i + hold]
         down = np.flatnonzero((seg[:-1] >= mid) & (seg[1:] < mid))
         if len(down) == 0:
             continue
         j = base + int(down[-1])
-        lo, hi = float(pw[j + 1]), float(pw[j])
+        lo, hi = float(p[j + 1]), float(p[j])
         r_mid = radii[j] + RAY_STEP_PX * (hi - mid) / max(hi - lo, 1e-12)
         # the edge's width: where the level crosses 70 % and 30 % of the local step nearest this crossing
         c70 = np.flatnonzero((seg[:-1] >= outer_level + 0.7 * step_k) & (seg[1:] < outer_level + 0.7 * step_k))
