@@ -96,13 +96,21 @@ def test_face_not_given_back_beside_a_wall_wider_than_the_blur():
     assert face_edge_given_back(img, mask, PAPER, cut, wall_px=2.0).cut_px < cut.cut_px
 
 
-def test_face_not_given_back_under_a_soft_light():
+def test_face_given_back_under_a_soft_light_too():
     """The same, with the paper beyond the shadow dimmed to 0.6 (a soft light's shadow fading on past the
-    outline, as softshadow.tint_bound reads it): no hard light, the cut is returned as it is."""
+    outline, as softshadow.tint_bound reads it): no hard light; of the face's 4 px at the face's level, the two
+    nearer the kept face than the shadow's core (x = 30, 31: on the face's side of the dark line) are given back
+    (branch winsteel30; the soft light's own tests are in tests/test_reallight_window.py), the shadow stays cut.
+    A cut without a sweep is kept as it is."""
     img, mask, cut = _face_beside_shadow(0.6)
     level = (img / PAPER).mean(axis=2)
     assert not hard_light(level, mask, cut)
-    assert face_edge_given_back(img, mask, PAPER, cut) is cut
+    back = face_edge_given_back(img, mask, PAPER, cut)
+    assert back.cut[10:50, 20:28].all()
+    assert not back.cut[14:46, 30:].any()
+    assert back.cut[14:46, 28:30].all()  # nearer the core (x = 27) than the kept face (x = 32): left cut
+    unswept = ShadowCut(cut.cut, cut.cut_px, cut.edge_px, 0.01, 0.3, 0.2, 0.02)
+    assert face_edge_given_back(img, mask, PAPER, unswept) is unswept
     img, mask, cut = _face_beside_shadow(1.0)
     assert hard_light((img / PAPER).mean(axis=2), mask, cut)
 

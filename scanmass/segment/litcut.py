@@ -197,6 +197,15 @@ def face_edge_given_back(
     lit side wall facing the camera, which the cut took with the shadow, has not), reached from the kept
     face through such pixels, are given back.
 
+    Under a soft light (a window's: the paper beyond the cut along its sweep still dimmed, not
+    :func:`hard_light`) the shadow also fades out sideways where the sweep runs along the outline, and the
+    ramp from that dimmed paper down to the dark line at the edge (the shadow's core or the shaded wall) is
+    above half-way too; it lies beyond the dark line and is brighter than the face. There a pixel is given
+    back only where it is no brighter than the face beside by more than the half-step (the face's own ramp
+    lies between the core and the face) and no farther from the kept face at or above half-way than from the
+    nearest pixel of the region under half-way (the face's side of the dark line). A soft light's cut without
+    a sweep (:func:`~scanmass.segment.softshadow.fade_cut`) is returned as it is.
+
     Parameters
     ----------
     colour_lin, part_mask, paper_rgb, cut
@@ -234,8 +243,9 @@ def face_edge_given_back(
         return cut
     q = colour_lin.astype(np.float32) / np.asarray(paper_rgb, np.float32)
     level = q.mean(axis=2)
-    if not hard_light(level, part_mask, cut):
-        return cut
+    hard = hard_light(level, part_mask, cut)
+    if not hard and (cut.direction is None or cut.length_px is None):
+        return cut  # a soft light's fade cut (no sweep): its inner end was placed by its own level and tint
     if abs(float(np.median(_tint(q[keep], level[keep])))) >= _COLOUR_FACE_TINT:
         return cut  # a face of a colour of its own (brass): its edge against the shadow is placed by its tint
     core = float(np.percentile(level[taken], CORE_PERCENTILE))
@@ -249,6 +259,17 @@ def face_edge_given_back(
     # its holes) than the blur reaches (the outline's own rim, or a lit side wall facing the camera, is no face)
     lit = taken & (weight > 0.05) & (face >= _LEVEL_STEP_RATIO * core) & (level >= mid)
     lit &= cv2.distanceTransform(part_mask.astype(np.uint8), cv2.DIST_L2, 3) > SHADOW_SOFT_PX
+    if not hard:
+        # a soft light dims the paper beside the part too: its shade fades out sideways where the sweep runs
+        # along the outline, and the ramp from that paper down to the dark line at the edge (the shadow's core
+        # or the shaded wall) is above half-way as well. Such a ramp is brighter than the face and lies beyond
+        # the dark line; the face's own ramp lies between the face and the line: a pixel given back is no
+        # brighter than the face by more than the half-step, and no farther from the face (kept, at or above
+        # half-way) than from the nearest pixel under half-way
+        lit &= level <= 2.0 * face - mid
+        d_face = cv2.distanceTransform((~(keep & (level >= mid))).astype(np.uint8), cv2.DIST_L2, 3)
+        d_dark = cv2.distanceTransform((~(part_mask & (level < mid))).astype(np.uint8), cv2.DIST_L2, 3)
+        lit &= d_face <= d_dark
     if not lit.any():
         return cut
     # reached from the kept face through such pixels (4-neighbours)
