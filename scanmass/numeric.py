@@ -204,7 +204,7 @@ def nanmedian_rows(a: np.ndarray) -> np.ndarray:
     return out
 
 
-def robust_sigma(values: np.ndarray, centre: float | None = None) -> float:
+def robust_sigma(values: np.ndarray, centre: float | np.ndarray | None = None) -> float:
     """The standard deviation of normal noise estimated from the median absolute deviation.
 
     1.4826 times the median of the absolute deviations from ``centre`` (1 / Phi^-1(3/4): common
@@ -214,9 +214,10 @@ def robust_sigma(values: np.ndarray, centre: float | None = None) -> float:
     ----------
     values : ndarray
         The samples (any shape).
-    centre : float, optional
+    centre : float or ndarray, optional
         What the deviations are taken from: the samples' median when not given; 0 for residuals
-        that scatter about zero by construction, or a centre the caller has already read.
+        that scatter about zero by construction, a centre the caller has already read, or a
+        per-sample centre (a local level) of the samples' shape.
 
     Examples
     --------

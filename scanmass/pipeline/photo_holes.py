@@ -17,6 +17,7 @@ from scanmass.errors import OptionError, ScaleError, SegmentationError
 from scanmass.geometry import signed_area
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Hole, Measurement, Part
+from scanmass.numeric import robust_sigma
 from scanmass.pipeline.part_terms import _with_extra_term, area_share_term
 from scanmass.pipeline.photo_checks import HIDDEN_HOLE_MIN_AREA_MM2, _part_crop
 from scanmass.pipeline.photo_walls import with_top_seen
@@ -166,7 +167,7 @@ def _top_circle(
         fit = fit_circle(top)
         for _ in range(3):  # a trimmed fit: a stretch of lit wall or rim is not the opening's edge
             off = np.abs(np.hypot(top[:, 0] - fit.centre_mm[0], top[:, 1] - fit.centre_mm[1]) - 0.5 * fit.diameter_mm)
-            keep = off <= max(2.5 * 1.4826 * float(np.median(off)), 0.3 * mm_per_px)
+            keep = off <= max(2.5 * robust_sigma(off, 0.0), 0.3 * mm_per_px)
             fit = fit_circle(top[keep])
         # On the far side the wall facing the camera lies inside the top edge's circle; where it looks
         # like the face (dark plastic in shade) the trace stops short, inside the rim, never outside it.
@@ -175,7 +176,7 @@ def _top_circle(
         for _ in range(3):
             res = np.hypot(top[:, 0] - fit.centre_mm[0], top[:, 1] - fit.centre_mm[1]) - 0.5 * fit.diameter_mm
             on_near = near & keep
-            scatter = 1.4826 * float(np.median(np.abs(res[on_near]))) if np.count_nonzero(on_near) >= 6 else math.inf
+            scatter = robust_sigma(res[on_near], 0.0) if np.count_nonzero(on_near) >= 6 else math.inf
             if not math.isfinite(scatter):
                 break  # too little of the near side traced to judge the far side by
             tol = max(2.5 * scatter, 0.3 * mm_per_px)
@@ -214,7 +215,7 @@ def _overlap_fit(top: np.ndarray, bottom: np.ndarray, start: np.ndarray) -> tupl
     keep = np.ones(len(top), bool)
     for _ in range(4):
         res = residual(q)
-        scatter = 1.4826 * float(np.median(np.abs(res[keep])))
+        scatter = robust_sigma(res[keep], 0.0)
         keep = (np.abs(res) <= max(2.5 * scatter, 0.04)) & (res >= -max(scatter, 0.04))
         if np.count_nonzero(keep) < 8:
             break

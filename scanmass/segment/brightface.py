@@ -52,7 +52,7 @@ import cv2
 import numpy as np
 
 from scanmass.load.decode import LoadedImage, lookup
-from scanmass.numeric import code_median, code_percentile
+from scanmass.numeric import code_median, code_percentile, robust_sigma
 from scanmass.segment.rings import PartRings, _masked_blur, refine_region
 
 #: A pixel is darker than the paper when below the local paper level by this share ...
@@ -341,7 +341,7 @@ def lost_face_regions(
     pv = lin[paper_px]
     paper_level = _median(lin, paper_px, levels)
     paper_map = _masked_blur(lin, paper_px, PAPER_SIGMA_PX, paper_level)
-    noise = 1.4826 * float(np.median(np.abs(pv - paper_map[paper_px])))
+    noise = robust_sigma(pv, paper_map[paper_px])
     share = max(DARKER_SHARE, NOISE_SIGMAS * noise / max(paper_level, 1e-6))
     darker = (lin < paper_map * (1.0 - share)) & ~found & ~others & inside
     paper = ~darker & ~found

@@ -26,6 +26,7 @@ import numpy as np
 
 from scanmass.geometry import vertex_normals
 from scanmass.load.decode import LoadedImage, lookup
+from scanmass.numeric import robust_sigma
 from scanmass.segment.rings import PartRings
 from scanmass.segment.thin import _crossings
 
@@ -166,7 +167,7 @@ def edge_asymmetry(image: LoadedImage, rings: PartRings, *, lut: np.ndarray | No
     if offset.size < 8:
         return EdgeSymmetry(0.0, math.inf, int(offset.size))
     centre = float(np.median(offset))
-    spread = 1.4826 * float(np.median(np.abs(offset - centre))) + 1e-6
+    spread = robust_sigma(offset, centre) + 1e-6
     return EdgeSymmetry(
         float(np.mean(offset[np.abs(offset - centre) < 4 * spread])), spread / math.sqrt(ok.sum()), int(ok.sum())
     )
