@@ -147,6 +147,16 @@ def test_a_grey_shadow_or_a_grey_face_is_left_to_the_other_rules():
     assert other_light_rim(img, mask, np.ones(3, np.float32)) is None
 
 
+def test_a_pale_face_brighter_than_the_tinted_paper_beside_it_is_left_alone():
+    """Pale brass mirroring a softbox reads brighter than the paper (1.27 of the paper white on
+    dev-soft-brass2-t15's bracket, bench notes) with yellowish paper beside it: the face was not found by
+    the threshold whose dark band the rule cuts, so nothing is cut (the scene: the same yellowness ratio
+    as the mixed one, the face 40 times brighter)."""
+    img, mask, _ = _mixed_scene(_WARM_SHADOW)
+    img[5:35, 10:39] = 40 * _BRASS  # 0.24, 0.6, 0.8: yellow, above the shadow's level
+    assert other_light_rim(img, mask, np.ones(3, np.float32)) is None
+
+
 @pytest.mark.slow
 def test_brass_cam_beside_a_warm_lit_shadow_in_mixed_light():
     """mixed-brass-t30: a 3 mm brass cam under a warm lamp and a cool softbox, tilt 30. The cool light's

@@ -109,6 +109,10 @@ def other_light_rim(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np
     beyond = outside & (away > 1.0) & (away <= 4.0) & (level < SHADOW_LEVEL)
     if np.count_nonzero(beyond) < MIN_PX:
         return None
+    face_level = float(np.median(level[interior]))
+    shadow_level = float(np.median(level[beyond]))
+    if face_level >= shadow_level:
+        return None  # a face brighter than the dark paper beside it was not found by its darkness (a mirrored softbox)
     tint = yellow / face_yellow
     shadow_tint = float(np.median(tint[beyond]))
     if not SHADOW_TINT_RANGE[0] <= shadow_tint <= SHADOW_TINT_RANGE[1]:
@@ -146,6 +150,6 @@ def other_light_rim(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np
         edge_px=float(np.count_nonzero(border)),
         texture_face=float("nan"),
         texture_shadow=float("nan"),
-        level_face=float(np.median(level[interior])),
-        level_shadow=float(np.median(level[beyond])),
+        level_face=face_level,
+        level_shadow=shadow_level,
     )
