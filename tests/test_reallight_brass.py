@@ -6,6 +6,12 @@ times its level) is not, so the colour plane lost the dark stretches of its face
 the renders' truth files (tests/data/reallight, the outlines Blender extruded; areas, centroids and
 the holes' equal-area diameters by shapely) and, for the plane itself, against the linear mixing of
 a pixel's coverage across an edge (the edge model, common practice).
+
+Brass in mixed light (``segment.mixtint``): one light's cast shadow lit by the other light takes
+that light's colour, so beside a brass face the grey threshold took a dark, yellowish band of it;
+the face's rim is placed again half-way from the face's colour to that shadow's. Synthetic scenes
+check it against their own construction (the edge model: a pixel's colour is the blend of the two
+sides by its coverage, common practice); a render against its truth file.
 """
 
 from __future__ import annotations
@@ -14,9 +20,10 @@ import math
 
 import numpy as np
 import pytest
-from _reallight_truth import REALLIGHT, measured_part
+from _reallight_truth import REALLIGHT, assert_within_3_sigma, measured_part
 
 from scanmass.segment.brightface import PLANE_PAPER_LEVEL, face_colour_plane
+from scanmass.segment.mixtint import other_light_rim
 from scanmass.segment.tintlevel import evened_colour_plane
 
 
@@ -92,3 +99,73 @@ def test_brass_plate_mirroring_the_dark_room_in_soft_light():
         assert abs(hole.diameter_mm - diameter) < 0.25  # were -0.68 and -0.76 mm
     assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
     assert all(abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm))
+
+
+# Colours (linear, over the paper white, channels as stored: blue, green, red) of an invented scene: a brass
+# face, a warm lamp's light alone (the paper in a cool light's shadow) and the paper lit by both (grey 1).
+_BRASS = np.array([0.006, 0.015, 0.02], np.float32)
+_WARM_SHADOW = np.array([0.2, 0.3, 0.4], np.float32)
+
+
+def _mixed_scene(shadow: np.ndarray, taken_px: int = 3) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A brass face (columns 10-39, its right edge at x = 40.0 but a column 39 three quarters face and
+    column 40 a quarter face) with ``shadow`` 8 px wide beyond it; the found region took ``taken_px``
+    columns of that shadow. Returns the image, the region and the truth (the face's pixels, at least
+    half covered)."""
+    img = np.ones((40, 70, 3), np.float32)
+    img[5:35, 10:39] = _BRASS
+    img[5:35, 39] = 0.75 * _BRASS + 0.25 * shadow  # the edge model: the blend by coverage
+    img[5:35, 40] = 0.25 * _BRASS + 0.75 * shadow
+    img[5:35, 41:48] = shadow
+    mask = np.zeros((40, 70), bool)
+    mask[5:35, 10 : 40 + taken_px] = True
+    face = np.zeros_like(mask)
+    face[5:35, 10:40] = True
+    return img, mask, face
+
+
+def test_a_brass_rim_in_another_lights_shadow_is_cut_half_way():
+    """The rim the region took of a warm-lit shadow is cut where a pixel is more shadow than face: the
+    quarter-face pixel and the shadow go, the three-quarter-face pixel stays (truth: the scene's coverage)."""
+    img, mask, face = _mixed_scene(_WARM_SHADOW)
+    cut = other_light_rim(img, mask, np.ones(3, np.float32))
+    assert cut is not None
+    kept = mask & ~cut.cut
+    # rows farther than the search depth (5 px) and more from the corners, where the shadow beyond lies
+    # on one side only: the face exactly
+    assert np.array_equal(kept[12:28], face[12:28])
+    assert cut.cut_px >= 3 * 16
+
+
+def test_a_grey_shadow_or_a_grey_face_is_left_to_the_other_rules():
+    """Under one white light a shadow keeps the paper's grey (no yellowness): colour cannot place the edge
+    here, so nothing is cut (the grain and tint cuts of one light hold). A grey (steel) face: nothing."""
+    img, mask, _ = _mixed_scene(np.array([0.3, 0.3, 0.3], np.float32))
+    assert other_light_rim(img, mask, np.ones(3, np.float32)) is None
+    img, mask, _ = _mixed_scene(_WARM_SHADOW)
+    img[5:35, 10:39] = 0.02  # a grey face
+    assert other_light_rim(img, mask, np.ones(3, np.float32)) is None
+
+
+def test_a_pale_face_brighter_than_the_tinted_paper_beside_it_is_left_alone():
+    """Pale brass mirroring a softbox reads brighter than the paper (1.27 of the paper white on
+    dev-soft-brass2-t15's bracket, bench notes) with yellowish paper beside it: the face was not found by
+    the threshold whose dark band the rule cuts, so nothing is cut (the scene: the same yellowness ratio
+    as the mixed one, the face 40 times brighter)."""
+    img, mask, _ = _mixed_scene(_WARM_SHADOW)
+    img[5:35, 10:39] = 40 * _BRASS  # 0.24, 0.6, 0.8: yellow, above the shadow's level
+    assert other_light_rim(img, mask, np.ones(3, np.float32)) is None
+
+
+@pytest.mark.slow
+def test_brass_cam_beside_a_warm_lit_shadow_in_mixed_light():
+    """mixed-brass-t30: a 3 mm brass cam under a warm lamp and a cool softbox, tilt 30. The cool light's
+    shadow, lit by the warm lamp, lay in its outline on the warm lamp's far side (up to 1.2 mm out):
+    +3.62 %, centroid 0.63 mm (bench_reallight at the start of stop 30). Cut by colour: +2.65 %, centroid
+    0.50 mm. Truth: the render's truth file (shapely)."""
+    m, part, tp = measured_part("mixed-brass-t30", "cam")
+    err = part.area_mm2 / tp["area"] - 1
+    assert 0 < err < 0.031  # was +3.62 %; still large (the rest of that band is as yellow as the face)
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.56  # was 0.63 mm
+    assert any("mixed light" in w for w in m.warnings)
+    assert_within_3_sigma(part, tp)

@@ -32,6 +32,7 @@ from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
 from scanmass.segment.facelevel import cut_at_face_level, face_above_core
 from scanmass.segment.litcut import face_edge_given_back, lit_face_given_back
 from scanmass.segment.metalshadow import metal_colour_sweep
+from scanmass.segment.mixtint import other_light_rim
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
     ShadowRisk,
@@ -525,6 +526,12 @@ def _decide_cuts(
             cut = lit_face_given_back(colour_lin, mask, risk.paper_rgb, cut, band_px)  # a metal's lit stretch kept
             if thickness_mm is not None:  # and its face beside the shadow (without one, the wall's width is unknown)
                 cut = face_edge_given_back(colour_lin, mask, risk.paper_rgb, cut, _wall_px(scale, part, thickness_mm))
+        if cut is None and not dark and thickness_mm is not None and risk is not None:
+            # a yellow face's rim in one light's shadow lit by another light of another colour (not darkened paper)
+            cut = other_light_rim(colour_lin, mask, risk.paper_rgb)
+            coloured = cut is not None  # the wall it leaves is of the face's colour (no top-face edge there)
+            if coloured:
+                by_colour.add(id(part))
         if cut is not None:
             outside = cv2.distanceTransform(1 - mask.astype(np.uint8), cv2.DIST_L2, 3)
             paper = grey[y0:y1, x0:x1][(outside > 4) & (outside < 16)]
