@@ -121,7 +121,7 @@ def test_bracket_error_within_3_sigma(name: str) -> None:
         "dev-window-disc8-t4 +4.0 %, dev-mixed-steel2-t15 +3.2 % on the outer outline): not the concave corner"
     ),
 )
-@pytest.mark.parametrize("name", READ_LARGE)
+@pytest.mark.parametrize("name", [n for n in READ_LARGE if n != "dev-window-disc8-t4"])  # within 1 % since farband30
 def test_outer_outline_within_target(name: str) -> None:
     """Issue 11's worst-area target (1 %) on the bracket's outer outline alone."""
     part, _tp, truth = _bracket(name)

@@ -30,6 +30,7 @@ from scanmass.segment.castshadow import core_cut, shadow_cut, sweep_direction
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
 from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
 from scanmass.segment.facelevel import cut_at_face_level, face_above_core
+from scanmass.segment.farband import far_band_taken
 from scanmass.segment.litcut import face_edge_given_back, lit_face_given_back
 from scanmass.segment.metalshadow import metal_colour_sweep
 from scanmass.segment.mixtint import other_light_rim
@@ -525,7 +526,10 @@ def _decide_cuts(
         if cut is not None and not dark and not coloured and risk is not None:
             cut = lit_face_given_back(colour_lin, mask, risk.paper_rgb, cut, band_px)  # a metal's lit stretch kept
             if thickness_mm is not None:  # and its face beside the shadow (without one, the wall's width is unknown)
-                cut = face_edge_given_back(colour_lin, mask, risk.paper_rgb, cut, _wall_px(scale, part, thickness_mm))
+                wall_px = _wall_px(scale, part, thickness_mm)
+                cut = face_edge_given_back(colour_lin, mask, risk.paper_rgb, cut, wall_px)
+                # and the shadow's core the sweep left along the face, by its geometry (a band along the cut)
+                cut = far_band_taken(colour_lin, mask, risk.paper_rgb, cut, wall_px)
         if cut is None and not dark and thickness_mm is not None and risk is not None:
             # a yellow face's rim in one light's shadow lit by another light of another colour (not darkened paper)
             cut = other_light_rim(colour_lin, mask, risk.paper_rgb)
