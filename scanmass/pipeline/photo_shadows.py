@@ -27,7 +27,9 @@ from scanmass.pipeline.part_terms import (
 from scanmass.pipeline.photo_checks import _part_crop
 from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM
 from scanmass.pipeline.photo_thickness import WallThickness
+from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
+from scanmass.scale.homography import ElevationHook
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
@@ -505,6 +507,24 @@ def _names_only(warning: str, labels: set[int]) -> bool:
     return bool(named) and named <= labels
 
 
+def _face_edges_seen(plane_map: PlaneMap, faces: list[tuple[WhiteFace, np.ndarray, np.ndarray]]) -> PlaneMap:
+    """The plane map with the white faces' neighbourhoods taken as seen on the top face's edge all round.
+
+    A white face is painted from its own level: its side walls, lit or shaded, and its shadow are painted
+    as paper, so its painted outline runs on the top face's edge on every side, the sides facing the camera
+    too (where a dark part's outline runs on the bottom edge of the wall it shows). The parallax of those
+    sides is then taken out as on the others (:meth:`~scanmass.scale.homography.ElevationHook.with_top_seen`);
+    a plane map without a raised part's hook is returned as it is.
+    """
+    hook = plane_map.undistort
+    if not isinstance(hook, ElevationHook) or not faces:
+        return plane_map
+    seen = np.zeros(faces[0][1].shape, bool) if hook.top_seen is None else hook.top_seen.copy()
+    for _, filled, _ in faces:
+        seen |= cv2.dilate(filled.astype(np.uint8), np.ones((9, 9), np.uint8)).astype(bool)
+    return with_top_seen(plane_map, seen)
+
+
 def _white_parts(
     image: LoadedImage,
     masked: LoadedImage,
@@ -576,7 +596,7 @@ def _white_parts(
         edge_px.append((filled, float(np.count_nonzero(rim)), faint))
     painted = replace(masked, grey=grey)
     try:
-        again = remeasure(painted, scale.plane_map)
+        again = remeasure(painted, _face_edges_seen(scale.plane_map, faces))
     except (SegmentationError, ValueError):
         return result, frozenset(), []
     white: set[int] = set()
