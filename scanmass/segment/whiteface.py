@@ -379,11 +379,13 @@ def white_faces(
 def face_cover(level: np.ndarray, face: WhiteFace) -> tuple[np.ndarray, np.ndarray]:
     """The face's share per pixel (1 inside, 0 beyond) and the step's contrast per pixel.
 
-    The share is ``(beyond - smoothed) / (beyond - face level)``, clipped to [0, 1], where
+    The share is ``(beyond - smoothed) / (beyond - inside)``, clipped to [0, 1], where
     ``beyond`` is the smoothed level :data:`BEYOND_PX` outside the face's mask nearest to the
-    pixel: its 0.5 level line is where the level crosses half-way between the face and what
-    lies beyond its edge there (a wall, a shadow or the paper), whichever it is. Pixels more
-    than 2 px inside the mask are 1, more than :data:`BEYOND_PX` beyond it 0.
+    pixel and ``inside`` the smoothed level as far inside it (the face's own level there, lit
+    unevenly across the face; the face's median level where the mask has no such band): its 0.5
+    level line is where the level crosses half-way between the face and what lies beyond its edge
+    there (a wall, a shadow or the paper), whichever it is. Pixels more than 2 px inside the mask
+    are 1, more than :data:`BEYOND_PX` beyond it 0.
 
     Returns
     -------
@@ -411,9 +413,20 @@ def face_cover(level: np.ndarray, face: WhiteFace) -> tuple[np.ndarray, np.ndarr
 
     _, idx = ndimage.distance_transform_edt(~band, return_indices=True)
     beyond = smooth[idx[0], idx[1]]
-    denom = beyond - np.float32(face.level)
+    # the face's own level near each pixel, read as far inside its mask as beyond is read outside: the face is
+    # lit unevenly (a spot's fall-off, a lit side), and its median pulled the half-way level toward what lies
+    # beyond (on spot-nylon-t0's disc the face read 0.94-1.06 of its median near its edge, and its 0.5 line lay
+    # 1-1.5 px inside the step the unsmoothed level crosses half-way)
+    inner = (d_in >= BEYOND_PX - 0.5) & (d_in <= BEYOND_PX + 0.5)
+    if np.any(inner):
+        _, idx_in = ndimage.distance_transform_edt(~inner, return_indices=True)
+        inside = smooth[idx_in[0], idx_in[1]]
+    else:
+        inside = np.full(smooth.shape, face.level, np.float32)
+    denom = beyond - inside
     safe = np.where(np.abs(denom) < 1e-4, np.float32(1e-4), denom)
     cover = np.clip((beyond - smooth) / safe, 0.0, 1.0).astype(np.float32)
+    denom = beyond - np.float32(face.level)
     cover[d_in > 2.0] = 1.0
     cover[d_out > BEYOND_PX] = 0.0
     contrast = (np.abs(denom) / max(face.level, 1e-4)).astype(np.float32)
