@@ -249,8 +249,8 @@ def _cast_shadows(
     flagged: list[str] = []
     lost: list[str] = []
     for n, part in enumerate(result.parts):
-        if part.outline_mm is None or "white_face" in part.uncertainty_terms:
-            continue  # a white face's outline lies half-way up its own step: its shadow and lit walls beyond it
+        if part.outline_mm is None:
+            continue
         outer_px = scale.plane_map.to_px(np.asarray(part.outline_mm, float))
         holes_px = [
             scale.plane_map.to_px(np.asarray(h.outline_mm, float)) for h in part.holes if h.outline_mm is not None
