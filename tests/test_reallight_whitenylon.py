@@ -208,3 +208,35 @@ def test_a_lit_steel_face_is_not_taken_for_a_white_part(name):
             assert "white_face" not in part.uncertainty_terms
             if tp["t"] == thickness:
                 assert_within_3_sigma(part, tp)
+
+
+@pytest.mark.slow
+def test_a_lit_steel_patch_beside_a_region_named_shadow_only_is_refused(monkeypatch):
+    """dev-lens-window-steel4-t20 (brushed steel in window light through the k1 -0.05 lens): the search for white
+    faces finds a smooth patch of lit steel (46 mm2, 0.93 of the paper) beside the gasket's region, which the colour
+    test names 'shadow only' (1065 mm2, 23 times the patch, 39 % of it beyond the patch's shadow reach). Such a
+    region was taken in as the "white part's" piece at any size (nylon30); the patch is now refused as a white
+    part's face (``pieces_fit_face``), so no face is kept, and no part carries the white-face term. The truth file
+    (``render_reallight``'s outlines) gives the gasket's centroid that the shadow-only region lies on."""
+    name = "dev-lens-window-steel4-t20"
+    if not (REALLIGHT / f"{name}.json").exists():
+        pytest.skip("renders not in this checkout")
+    from scanmass.pipeline import photo_shadows
+
+    calls: list[tuple[int, int]] = []
+    real = photo_shadows._face_pieces
+
+    def recorded(*args):
+        faces, fragments = real(*args)
+        calls.append((len(args[5]), len(faces)))
+        return faces, fragments
+
+    monkeypatch.setattr(photo_shadows, "_face_pieces", recorded)
+    _, parts = truth_render(REALLIGHT, f"{name}.json")
+    gasket = next(p for p in parts if p["shape"] == "gasket")
+    m = scanmass.measure(REALLIGHT / f"{name}.jpg", thickness_mm=gasket["t"])
+    assert calls and calls[0][0] >= 1  # the smooth steel patch is found by the white-face search
+    assert all(kept == 0 for _, kept in calls)  # and refused as a white part's face
+    assert not any("white_face" in p.uncertainty_terms for p in m.parts)
+    assert not any(w.startswith("white on white") for w in m.warnings)
+    assert math.dist(nearest_part(m, gasket).centroid_mm, gasket["centroid"]) < 3.0
