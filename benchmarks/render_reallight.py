@@ -45,7 +45,8 @@ belong to the tuned set::
         dev-mixed-steel2-t15 dev-mixed-steel3-t22 dev-window-steel3-t10 \
         dev-window-steel4-t22 dev-spot-brass4-t17 dev-spot-brass5-t24 dev-window-disc8-t4 \
         dev-mixed-steel4-t8 dev-lens-window-steel-t24 dev-window-steel5-t14 dev-soft-brass2-t15 \
-        dev-mixed-black5-t18 dev-lens-window-steel2-t16
+        dev-mixed-black5-t18 dev-lens-window-steel2-t16 dev-lens-window-steel3-t20 \
+        dev-lens-window-steel4-t20 dev-window-steel6-t22
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34 dev-scan-cam2-lamp33 dev-scan-bracket4-lamp29 \
@@ -973,6 +974,41 @@ def dev_scenes():
             15,
             300,
             "Filmic",
+        ),
+        # branch nylonguard30: brushed steel whose face the window lights near the paper's level (a smooth patch
+        # of it at a white face's level), the camera leaning away from the window (towards its reflection): a
+        # gasket beside a plate through the distorting lens (the camera turned further from the window's side in
+        # steel4: the gasket's region named 'shadow only', a smooth patch of lit steel at a white face's level beside
+        # it); a gasket beside a cam without the lens, steeper
+        (
+            "dev-lens-window-steel3-t20",
+            "window",
+            [("gasket", "brushed-steel", 3.5, 120, 105, 25), ("plate", "brushed-steel", 2.0, 85, 190, -35)],
+            315,
+            20,
+            70,
+            "Standard",
+            40.0,
+        ),
+        (
+            "dev-lens-window-steel4-t20",
+            "window",
+            [("gasket", "brushed-steel", 3.5, 120, 105, 25), ("plate", "brushed-steel", 2.0, 85, 190, -35)],
+            315,
+            20,
+            25,
+            "Standard",
+            40.0,
+        ),
+        (
+            "dev-window-steel6-t22",
+            "window",
+            [("gasket", "brushed-steel", 4.5, 90, 190, 65), ("cam", "brushed-steel", 2.5, 125, 100, -25)],
+            325,
+            22,
+            290,
+            "Standard",
+            35.0,
         ),
     ]
 

@@ -27,7 +27,9 @@ from scanmass.pipeline.part_terms import (
 from scanmass.pipeline.photo_checks import _part_crop
 from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM
 from scanmass.pipeline.photo_thickness import WallThickness
+from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
+from scanmass.scale.homography import ElevationHook
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
@@ -332,12 +334,43 @@ WHITE_SHARP_EDGE_PX = 0.5
 #: Largest area of a found region, as a share of a white face beside it, taken as a piece of that white part (a
 #: hole's dark bottom, a dark wall, a lit wall) when it is neither a shadow nor a lit face by its colour.
 WHITE_FRAGMENT_SHARE = 0.35
+#: Largest total area of the pieces a white face takes in (its walls, shadow, lit walls, holes' floors), as a
+#: share of the face (holes filled), and least share of each piece lying within the face's shadow reach. A white
+#: part's pieces are bands a few mm wide (a wall seen at a tilt: t tan(tilt); a shadow: t / tan(elevation)) along
+#: a face tens of mm across: on the tuned renders their total reads 0.02-0.35 of the face and every piece lies
+#: wholly within the reach. Pieces as large as the face, or reaching beyond its shadow's reach, are another
+#: part's, and the smooth "face" is a patch of that part's own lit face (a brushed steel face lit by a window to
+#: near the paper's level: on dev-lens-window-steel3-t20 and dev-window-steel6-t22 patches of 89-119 mm2 beside
+#: their parts' regions of 7.8-8.3 times their area, 8-13 % of which lie beyond the reach). The rule holds for
+#: regions named a shadow or a lit face by their colour too, which :data:`WHITE_FRAGMENT_SHARE` does not bound.
+WHITE_PIECES_MAX_SHARE = 1.0
+WHITE_PIECE_IN_REACH = 0.9
 
 
 #: The levels (over the local paper white) of a white face sought only to name the regions found
 #: beside it (:func:`_near_white`): from the measuring search's floor to
 #: :data:`~scanmass.segment.whiteface.NEAR_WHITE_MAX`.
 NEAR_WHITE_RANGE = (FACE_RATIO_RANGE[0], NEAR_WHITE_MAX)
+
+
+def pieces_fit_face(face_px: int, pieces: list[tuple[int, int]]) -> bool:
+    """True when the regions a white face would take in as its pieces fit a white part's face.
+
+    ``pieces`` holds each region's area (px) and its pixels within the face's shadow reach. A white part's
+    walls, shadow and holes' floors are narrow bands beside its face: each lies within the reach
+    (:data:`WHITE_PIECE_IN_REACH`) and together they are smaller than the face (:data:`WHITE_PIECES_MAX_SHARE`).
+
+    Examples
+    --------
+    >>> pieces_fit_face(1000, [(300, 300), (40, 40)])  # a shadow band and a hole's floor
+    True
+    >>> pieces_fit_face(1000, [(1500, 1500)])  # pieces larger than the face: another part's
+    False
+    >>> pieces_fit_face(1000, [(300, 150)])  # half of it beyond the face's shadow reach
+    False
+    """
+    within = all(inside >= WHITE_PIECE_IN_REACH * n for n, inside in pieces)
+    return within and sum(n for n, _ in pieces) <= WHITE_PIECES_MAX_SHARE * face_px
 
 
 def _face_pieces(
@@ -372,6 +405,7 @@ def _face_pieces(
         face_px = np.count_nonzero(filled)
         mine: set[int] = set()
         real = False
+        pieces: list[tuple[int, int]] = []
         for label, ((x0, y0, x1, y1), mask) in masks.items():
             n = np.count_nonzero(mask)
             if not np.any(zone[y0:y1, x0:x1] & mask):
@@ -381,10 +415,11 @@ def _face_pieces(
             # wall) is the white part's; a part as large as the face, or lying on it, is another part
             if label in regions or (n < WHITE_FRAGMENT_SHARE * face_px and on_face < 0.3 * n):
                 mine.add(label)
+                pieces.append((int(n), int(np.count_nonzero(zone[y0:y1, x0:x1] & mask))))
             else:
                 real = True
-        if real or not mine:
-            continue
+        if real or not mine or not pieces_fit_face(int(face_px), pieces):
+            continue  # another part is there, or the "face" is a smooth patch of a larger part's own face
         fragments |= mine
         faces.append((face, filled, zone))
     return faces, fragments
@@ -505,6 +540,24 @@ def _names_only(warning: str, labels: set[int]) -> bool:
     return bool(named) and named <= labels
 
 
+def _face_edges_seen(plane_map: PlaneMap, faces: list[tuple[WhiteFace, np.ndarray, np.ndarray]]) -> PlaneMap:
+    """The plane map with the white faces' neighbourhoods taken as seen on the top face's edge all round.
+
+    A white face is painted from its own level: its side walls, lit or shaded, and its shadow are painted
+    as paper, so its painted outline runs on the top face's edge on every side, the sides facing the camera
+    too (where a dark part's outline runs on the bottom edge of the wall it shows). The parallax of those
+    sides is then taken out as on the others (:meth:`~scanmass.scale.homography.ElevationHook.with_top_seen`);
+    a plane map without a raised part's hook is returned as it is.
+    """
+    hook = plane_map.undistort
+    if not isinstance(hook, ElevationHook) or not faces:
+        return plane_map
+    seen = np.zeros(faces[0][1].shape, bool) if hook.top_seen is None else hook.top_seen.copy()
+    for _, filled, _ in faces:
+        seen |= cv2.dilate(filled.astype(np.uint8), np.ones((9, 9), np.uint8)).astype(bool)
+    return with_top_seen(plane_map, seen)
+
+
 def _white_parts(
     image: LoadedImage,
     masked: LoadedImage,
@@ -576,7 +629,7 @@ def _white_parts(
         edge_px.append((filled, float(np.count_nonzero(rim)), faint))
     painted = replace(masked, grey=grey)
     try:
-        again = remeasure(painted, scale.plane_map)
+        again = remeasure(painted, _face_edges_seen(scale.plane_map, faces))
     except (SegmentationError, ValueError):
         return result, frozenset(), []
     white: set[int] = set()

@@ -83,10 +83,31 @@ BEYOND_PX = 3.5
 #: Largest spread of the face's own level (95th - 5th percentile of the smoothed ratio): a face
 #: is of one level; the faces of the committed renders spread 0.02-0.04.
 MAX_FACE_SPREAD = 0.08
-#: Reach (px) of the face's growth into its smoothed rim, and the most it may grow (times the
-#: strictly found face): a face grown further has leaked into the paper, its outline not closed.
+#: Reach (px) of the face's growth past its smooth pieces (a growth reaching it has leaked into the paper),
+#: and the most it may grow (times the strictly found face): a face grown further has leaked into the paper,
+#: its outline not closed.
 GROW_PX = 12
 GROW_MAX = 1.6
+#: Largest difference of median level (over the local paper white) between the smooth pieces of one face that
+#: the rims of its holes cut apart (a bracket's arm beyond a hole): half the spread a face may have
+#: (:data:`MAX_FACE_SPREAD`).
+PIECE_LEVEL_DIFF = 0.5 * MAX_FACE_SPREAD
+#: Reach (mm) within which such pieces are sought: a hole's rim cuts a face's smooth area over the hole's
+#: width and a rim each side (the smoothed step, 2 x 4 px, 2.4 mm at 0.3 mm/px), so a hole up to about 10 mm
+#: across (the largest in the committed renders' white parts: 11 mm) leaves pieces this far apart.
+PIECE_REACH_MM = 12.0
+#: Reach (px) of a face's growth beyond the smooth pixels at its level, and half width (px) of the narrowest
+#: strip a grown face keeps (holes filled). The smoothed step of a face's edge (sigma :data:`SMOOTH_SIGMA_PX`)
+#: spreads 2.5 sigma (common practice for a Gaussian: 99 % of its weight) each side of the half-way line, so
+#: the rim the strict test leaves is at most 4 px wide. Further out, a cast shadow's penumbra is a
+#: ramp that crosses every level between the paper's and the shadow's, and where it meets the face's outline
+#: the growth ran along the band of it at the face's level (on window-nylon-t0 the discs' faces grew up to
+#: 5 mm beyond their outlines, in strips 2-10 px wide). The band is a small share of the penumbra's width
+#: (the growth's window, +-half the face's step, over a ramp from the paper to the shadow); a white part's
+#: face is wider than 9 px (2.7 mm at 0.3 mm/px) everywhere, and an opening by a disc of this radius takes
+#: (1 - pi / 4) r**2 (3.4 px) from each convex corner (common practice: the area an opening removes at a
+#: right-angled corner).
+RIM_PX = 4.0
 
 
 @dataclass
@@ -164,6 +185,51 @@ def fill_holes(mask: np.ndarray) -> np.ndarray:
     return (outside[1:-1, 1:-1] != 2) | m
 
 
+def _same_face(
+    labels: np.ndarray,
+    stats: np.ndarray,
+    ratio: np.ndarray,
+    k: int,
+    face_ratio: float,
+    taken: np.ndarray,
+    reach_px: int,
+) -> list[int]:
+    """Component ``k`` and the smooth pieces at its level within ``reach_px`` of it (transitively): one face
+    whose holes' rims cut its smooth area apart (:data:`PIECE_LEVEL_DIFF`); pieces already taken are not."""
+    group, todo = [k], [k]
+    disc = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * reach_px + 1,) * 2)
+    while todo:
+        j = todo.pop()
+        x, y, w, h = (int(stats[j, i]) for i in range(4))
+        y0, y1 = max(y - reach_px, 0), min(y + h + reach_px, labels.shape[0])
+        x0, x1 = max(x - reach_px, 0), min(x + w + reach_px, labels.shape[1])
+        lab = labels[y0:y1, x0:x1]
+        reach = cv2.dilate((lab == j).astype(np.uint8), disc).astype(bool)
+        for n in np.unique(lab[reach]):
+            if n == 0 or n in group:
+                continue
+            px, py, pw, ph = (int(stats[n, i]) for i in range(4))
+            piece = labels[py : py + ph, px : px + pw] == n
+            level = float(np.median(ratio[py : py + ph, px : px + pw][piece]))
+            if np.any(taken[py : py + ph, px : px + pw] & piece) or abs(level - face_ratio) >= PIECE_LEVEL_DIFF:
+                continue
+            group.append(int(n))
+            todo.append(int(n))
+    return group
+
+
+def _without_strips(grown: np.ndarray, seed: np.ndarray) -> np.ndarray:
+    """A grown face without the strips narrower than ``2 * RIM_PX + 1`` px it grew along (holes filled for the
+    test, so a narrow web between a hole and the edge stays), kept where connected to its ``seed``."""
+    disc = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * int(RIM_PX) + 1,) * 2)
+    wide = cv2.morphologyEx(fill_holes(grown).astype(np.uint8), cv2.MORPH_OPEN, disc).astype(bool) & grown
+    n, lab = cv2.connectedComponents(wide.astype(np.uint8), connectivity=4)
+    if n <= 1:
+        return grown
+    keep = np.unique(lab[seed & wide])
+    return np.isin(lab, keep[keep > 0])
+
+
 def _smoothed(level: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The smoothed level and its local standard deviation (same Gaussian window)."""
     lv = np.asarray(level, np.float32)
@@ -227,11 +293,17 @@ def white_faces(
     lo, hi = ratio_range
     cand = valid & (ratio > lo) & (ratio < hi) & (spread / paper_map < FACE_MAX_SPREAD)
     # thin links (a penumbra's smooth ramp touching the face at a point) cut by an opening
+    smooth_at_level = cand
     cand = cv2.morphologyEx(cand.astype(np.uint8), cv2.MORPH_OPEN, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (5, 5)))
     n, labels, stats, _ = cv2.connectedComponentsWithStats(cand, connectivity=8)
+    # a face grows only across its edge's rim: within RIM_PX of a smooth pixel at a face's level
+    rim_reach = cv2.distanceTransform((~smooth_at_level).astype(np.uint8), cv2.DIST_L2, 5) <= RIM_PX
+    raw_ratio = lv / paper_map
     border = ~cv2.erode(valid.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
     min_px = MIN_FACE_MM2 / mm_per_px**2
     seed_px = MIN_SEED_MM2 / mm_per_px**2
+    piece_px = int(np.ceil(PIECE_REACH_MM / mm_per_px))
+    bridge = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (piece_px | 1,) * 2)  # closes gaps up to piece_px
     taken = np.zeros(lv.shape, bool)
     out: list[WhiteFace] = []
     for k in np.argsort(-stats[1:, cv2.CC_STAT_AREA]) + 1:  # largest first
@@ -246,20 +318,39 @@ def white_faces(
         if p95 - p5 > MAX_FACE_SPREAD:
             continue
         face_ratio = float(np.median(r))
-        # grown into its edge's smoothed rim: the pixels nearer its level than half-way to the paper's
-        # (or as far below it), connected to it (the strict test leaves a rim near every edge)
+        # grown into its edge's rim: the pixels whose own level is nearer its level than half-way to the paper's
+        # (or as far below it), within RIM_PX of a smooth pixel at a face's level, connected to it (the strict
+        # test leaves a rim near every edge). The level unsmoothed: the smoothing blends a hole's dark into the
+        # narrow web between the hole and the edge, and cut a bracket's arm there. Grown from the pieces a hole's
+        # rims cut apart together; a growth reaching GROW_PX past them has leaked into the paper.
         half = 0.5 * (1.0 - face_ratio)
-        y0g, y1g = max(y - GROW_PX, 0), min(y + h + GROW_PX, lv.shape[0])
-        x0g, x1g = max(x - GROW_PX, 0), min(x + w + GROW_PX, lv.shape[1])
-        near = valid[y0g:y1g, x0g:x1g] & (np.abs(ratio[y0g:y1g, x0g:x1g] - face_ratio) < half)
-        seed = np.zeros(near.shape, bool)
-        seed[y - y0g : y - y0g + h, x - x0g : x - x0g + w] = sub
+        group = _same_face(labels, stats, ratio, k, face_ratio, taken, piece_px)
+        first = np.isin(labels, group)
+        rows, cols = np.nonzero(first.any(axis=1))[0], np.nonzero(first.any(axis=0))[0]
+        y0g, y1g = max(int(rows[0]) - GROW_PX, 0), min(int(rows[-1]) + 1 + GROW_PX, lv.shape[0])
+        x0g, x1g = max(int(cols[0]) - GROW_PX, 0), min(int(cols[-1]) + 1 + GROW_PX, lv.shape[1])
+        seed = first[y0g:y1g, x0g:x1g]
+        near = valid[y0g:y1g, x0g:x1g] & (np.abs(raw_ratio[y0g:y1g, x0g:x1g] - face_ratio) < half)
+        pad = piece_px // 2 + 1  # the closing's reach past the box: its sides not taken as face
+        between = cv2.morphologyEx(np.pad(seed, pad).astype(np.uint8), cv2.MORPH_CLOSE, bridge)[pad:-pad, pad:-pad] > 0
+        # the webs beside its holes lie between its pieces, their rims within RIM_PX of the gaps it closes
+        gaps = between & ~seed
+        near &= rim_reach[y0g:y1g, x0g:x1g] | (
+            cv2.distanceTransform((~gaps).astype(np.uint8), cv2.DIST_L2, 5) <= RIM_PX
+        )
         _, lab_near = cv2.connectedComponents((near | seed).astype(np.uint8), connectivity=4)
         keep = np.unique(lab_near[seed])
-        grown = np.isin(lab_near, keep[keep > 0])
+        sub = np.isin(lab_near, keep[keep > 0])
+        side = np.zeros(sub.shape, bool)  # the box's sides, where the image's are not
+        side[0, :], side[-1, :] = y0g > 0, y1g < lv.shape[0]
+        side[:, 0] |= x0g > 0
+        side[:, -1] |= x1g < lv.shape[1]
+        if np.any(sub & side):
+            continue  # grown GROW_PX past its smooth pieces: leaked into the paper, no closed step all round
+        grown = _without_strips(sub, seed)
         strict = np.isin(labels[y0g:y1g, x0g:x1g], np.unique(labels[y0g:y1g, x0g:x1g][grown]))
         strict &= labels[y0g:y1g, x0g:x1g] > 0
-        if np.count_nonzero(grown) > GROW_MAX * np.count_nonzero(strict & grown):
+        if np.count_nonzero(grown) > GROW_MAX * np.count_nonzero((strict | between) & grown):
             continue  # leaked into the paper: no closed step all round
         if np.any(border[y0g:y1g, x0g:x1g] & grown) or np.count_nonzero(grown) < min_px:
             continue
@@ -288,11 +379,13 @@ def white_faces(
 def face_cover(level: np.ndarray, face: WhiteFace) -> tuple[np.ndarray, np.ndarray]:
     """The face's share per pixel (1 inside, 0 beyond) and the step's contrast per pixel.
 
-    The share is ``(beyond - smoothed) / (beyond - face level)``, clipped to [0, 1], where
+    The share is ``(beyond - smoothed) / (beyond - inside)``, clipped to [0, 1], where
     ``beyond`` is the smoothed level :data:`BEYOND_PX` outside the face's mask nearest to the
-    pixel: its 0.5 level line is where the level crosses half-way between the face and what
-    lies beyond its edge there (a wall, a shadow or the paper), whichever it is. Pixels more
-    than 2 px inside the mask are 1, more than :data:`BEYOND_PX` beyond it 0.
+    pixel and ``inside`` the smoothed level as far inside it (the face's own level there, lit
+    unevenly across the face; the face's median level where the mask has no such band): its 0.5
+    level line is where the level crosses half-way between the face and what lies beyond its edge
+    there (a wall, a shadow or the paper), whichever it is. Pixels more than 2 px inside the mask
+    are 1, more than :data:`BEYOND_PX` beyond it 0.
 
     Returns
     -------
@@ -320,9 +413,20 @@ def face_cover(level: np.ndarray, face: WhiteFace) -> tuple[np.ndarray, np.ndarr
 
     _, idx = ndimage.distance_transform_edt(~band, return_indices=True)
     beyond = smooth[idx[0], idx[1]]
-    denom = beyond - np.float32(face.level)
+    # the face's own level near each pixel, read as far inside its mask as beyond is read outside: the face is
+    # lit unevenly (a spot's fall-off, a lit side), and its median pulled the half-way level toward what lies
+    # beyond (on spot-nylon-t0's disc the face read 0.94-1.06 of its median near its edge, and its 0.5 line lay
+    # 1-1.5 px inside the step the unsmoothed level crosses half-way)
+    inner = (d_in >= BEYOND_PX - 0.5) & (d_in <= BEYOND_PX + 0.5)
+    if np.any(inner):
+        _, idx_in = ndimage.distance_transform_edt(~inner, return_indices=True)
+        inside = smooth[idx_in[0], idx_in[1]]
+    else:
+        inside = np.full(smooth.shape, face.level, np.float32)
+    denom = beyond - inside
     safe = np.where(np.abs(denom) < 1e-4, np.float32(1e-4), denom)
     cover = np.clip((beyond - smooth) / safe, 0.0, 1.0).astype(np.float32)
+    denom = beyond - np.float32(face.level)
     cover[d_in > 2.0] = 1.0
     cover[d_out > BEYOND_PX] = 0.0
     contrast = (np.abs(denom) / max(face.level, 1e-4)).astype(np.float32)
