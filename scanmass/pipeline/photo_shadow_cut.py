@@ -252,6 +252,20 @@ def _within_box(part: Part, lo: np.ndarray, hi: np.ndarray) -> bool:
 SWEEP_AGREE_DEG = 30.0
 
 
+def region_reading(
+    image: LoadedImage, scale: PhotoScale, part: Part, colour: np.ndarray, lut: np.ndarray, band_px: float
+) -> tuple[np.ndarray, np.ndarray, ShadowRisk] | None:
+    """A found region's crop in linear colour with paper all round (the band a shadow can cover and 16 px), its
+    mask and its :func:`~scanmass.segment.shadow.shadow_risk`; None where it has no crop or no paper to read."""
+    crop = _part_crop(image, scale, part, int(band_px) + 16)
+    if crop is None:
+        return None
+    (x0, y0, x1, y1), mask, _ = crop
+    crop_lin = lut[colour[y0:y1, x0:x1]]
+    risk = shadow_risk(crop_lin, mask, band_px)
+    return None if risk is None else (crop_lin, mask, risk)
+
+
 def _own_colour_sweep(
     image: LoadedImage, scale: PhotoScale, part: Part, band_px: float, lut: np.ndarray, colour: np.ndarray
 ) -> ColourSweep | None:
@@ -260,14 +274,10 @@ def _own_colour_sweep(
     A matte face's (:func:`~scanmass.segment.colourshadow.colour_sweep`), else a metal face's
     (:func:`~scanmass.segment.metalshadow.metal_colour_sweep`: the shadow-like layers smoother than the face).
     """
-    crop = _part_crop(image, scale, part, int(band_px) + 16)
-    if crop is None:
+    reading = region_reading(image, scale, part, colour, lut, band_px)
+    if reading is None:
         return None
-    (x0, y0, x1, y1), mask, _ = crop
-    colour_lin = lut[colour[y0:y1, x0:x1]]
-    risk = shadow_risk(colour_lin, mask, band_px)
-    if risk is None:
-        return None
+    colour_lin, mask, risk = reading
     found = colour_sweep(colour_lin, mask, risk.paper_rgb, band_px)
     # a metal face (refused by the matte sweep: its levels spread) by its shadows' colour and smoothness
     return found if found is not None else metal_colour_sweep(colour_lin, mask, risk.paper_rgb, band_px)

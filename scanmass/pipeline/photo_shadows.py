@@ -25,7 +25,7 @@ from scanmass.pipeline.part_terms import (
     has_lit_face,
 )
 from scanmass.pipeline.photo_checks import _part_crop
-from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM
+from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM, region_reading
 from scanmass.pipeline.photo_thickness import WallThickness
 from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
@@ -34,7 +34,6 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
-    ShadowRisk,
     holed_face,
     inscribed_width_px,
     looks_like_lit_white,
@@ -136,20 +135,6 @@ def _region_name(part: Part) -> str:
     return f"part {part.label} ({part.area_mm2:.3g} mm²)"
 
 
-def _region_reading(
-    image: LoadedImage, scale: PhotoScale, part: Part, colour: np.ndarray, lut: np.ndarray, band_px: float
-) -> tuple[np.ndarray, np.ndarray, ShadowRisk] | None:
-    """A found region's crop in linear colour with paper all round (the band a shadow can cover and 16 px), its
-    mask and its :func:`~scanmass.segment.shadow.shadow_risk`; None where it has no crop or no paper to read."""
-    crop = _part_crop(image, scale, part, int(band_px) + 16)
-    if crop is None:
-        return None
-    (x0, y0, x1, y1), mask, _ = crop
-    crop_lin = lut[colour[y0:y1, x0:x1]]
-    risk = shadow_risk(crop_lin, mask, band_px)
-    return None if risk is None else (crop_lin, mask, risk)
-
-
 def _shadow_regions(
     image: LoadedImage,
     scale: PhotoScale,
@@ -169,7 +154,7 @@ def _shadow_regions(
     for part in result.parts:
         if part.label in white:
             continue
-        reading = _region_reading(image, scale, part, colour, lut, band_px)
+        reading = region_reading(image, scale, part, colour, lut, band_px)
         if reading is None:
             continue
         crop_lin, mask, risk = reading
@@ -442,7 +427,7 @@ def _paper_piece(image: LoadedImage, scale: PhotoScale, part: Part, colour: np.n
     (:data:`PIECE_MIN_NEUTRAL`, :data:`PIECE_MIN_LEVEL`, :data:`PIECE_MAX_WIDTH_MM`)."""
     mm_per_px = scale.plane_map.mm_per_px
     lut = np.asarray(image.to_linear, dtype=np.float32)
-    reading = _region_reading(image, scale, part, colour, lut, shadow_band_px(UNKNOWN_THICKNESS_MM, mm_per_px))
+    reading = region_reading(image, scale, part, colour, lut, shadow_band_px(UNKNOWN_THICKNESS_MM, mm_per_px))
     if reading is None:
         return False
     crop_lin, mask, risk = reading

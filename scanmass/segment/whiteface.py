@@ -411,23 +411,22 @@ def face_cover(level: np.ndarray, face: WhiteFace) -> tuple[np.ndarray, np.ndarr
         return face.mask.astype(np.float32), np.zeros(face.mask.shape, np.float32)
     from scipy import ndimage  # noqa: PLC0415 - only a found face needs it (scipy's import costs ~0.3 s)
 
-    _, idx = ndimage.distance_transform_edt(~band, return_indices=True)
-    beyond = smooth[idx[0], idx[1]]
+    def nearest(where: np.ndarray) -> np.ndarray:
+        """The smoothed level of the pixel of ``where`` nearest to each pixel."""
+        _, idx = ndimage.distance_transform_edt(~where, return_indices=True)
+        return smooth[idx[0], idx[1]]
+
+    beyond = nearest(band)
     # the face's own level near each pixel, read as far inside its mask as beyond is read outside: the face is
     # lit unevenly (a spot's fall-off, a lit side), and its median pulled the half-way level toward what lies
     # beyond (on spot-nylon-t0's disc the face read 0.94-1.06 of its median near its edge, and its 0.5 line lay
     # 1-1.5 px inside the step the unsmoothed level crosses half-way)
     inner = (d_in >= BEYOND_PX - 0.5) & (d_in <= BEYOND_PX + 0.5)
-    if np.any(inner):
-        _, idx_in = ndimage.distance_transform_edt(~inner, return_indices=True)
-        inside = smooth[idx_in[0], idx_in[1]]
-    else:
-        inside = np.full(smooth.shape, face.level, np.float32)
+    inside = nearest(inner) if np.any(inner) else np.full(smooth.shape, face.level, np.float32)
     denom = beyond - inside
     safe = np.where(np.abs(denom) < 1e-4, np.float32(1e-4), denom)
     cover = np.clip((beyond - smooth) / safe, 0.0, 1.0).astype(np.float32)
-    denom = beyond - np.float32(face.level)
     cover[d_in > 2.0] = 1.0
     cover[d_out > BEYOND_PX] = 0.0
-    contrast = (np.abs(denom) / max(face.level, 1e-4)).astype(np.float32)
+    contrast = (np.abs(beyond - np.float32(face.level)) / max(face.level, 1e-4)).astype(np.float32)
     return cover, contrast
