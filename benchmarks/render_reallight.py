@@ -1019,7 +1019,7 @@ def holdout_scenes():
     The same light styles, materials, mat and camera as :func:`scenes`, in combinations and
     placements the tuned set does not have: brass in soft and window light, black plastic in window
     and mixed light at a tilt, a steel gasket under the spot at a tilt, steel in mixed light, a black
-    cam and steel parts through the distorting lens (spot and window light), an 8 mm steel disc. Names start with ``hold-``; a ``hold-lens-`` scene
+    cam and steel parts through the distorting lens (spot and window light), an 8 mm steel disc, white nylon in soft and window light. Names start with ``hold-``; a ``hold-lens-`` scene
     sees the mat through the distorting lens. Entries as in :func:`scenes`.
     """
     return [
@@ -1111,6 +1111,24 @@ def holdout_scenes():
             340,
             20,
             180,
+            "Filmic",
+        ),
+        (
+            "hold-soft-nylon-t25",
+            "soft",
+            [("l-bracket", "white-nylon", 4.0, 90, 195, 160), ("gasket", "white-nylon", 2.0, 125, 95, 0)],
+            330,
+            25,
+            120,
+            "Standard",
+        ),
+        (
+            "hold-window-nylon-t15",
+            "window",
+            [("cam", "white-nylon", 5.0, 120, 195, 60), ("plate", "brushed-steel", 3.0, 85, 100, -15)],
+            320,
+            15,
+            240,
             "Filmic",
         ),
     ]
