@@ -1010,6 +1010,35 @@ def dev_scenes():
             "Standard",
             35.0,
         ),
+        # stop 31: white nylon in window light beside another part (a disc beside a steel plate; a cam beside a
+        # white bracket) and a white gasket in soft light beside a brass cam
+        (
+            "dev-window-nylon2-t20",
+            "window",
+            [("disc", "white-nylon", 6.0, 125, 100, 0), ("plate", "brushed-steel", 2.5, 85, 195, 50)],
+            330,
+            20,
+            200,
+            "Filmic",
+        ),
+        (
+            "dev-window-nylon3-t12",
+            "window",
+            [("cam", "white-nylon", 4.0, 90, 100, -60), ("l-bracket", "white-nylon", 3.0, 125, 195, 15)],
+            320,
+            12,
+            120,
+            "Standard",
+        ),
+        (
+            "dev-soft-nylon2-t18",
+            "soft",
+            [("gasket", "white-nylon", 3.0, 85, 100, 0), ("cam", "brass", 3.0, 125, 195, 40)],
+            325,
+            18,
+            300,
+            "Filmic",
+        ),
     ]
 
 
