@@ -102,8 +102,8 @@ def test_too_small_a_region_reads_nothing():
     assert grain_texture(img, region, ~region) is None
 
 
-def _shadow_only_textures(name: str, thickness_mm: float, monkeypatch, white_faces_off: bool = False) -> list:
-    """(centroid mm, texture) of the regions a render's measurement names 'shadow only'."""
+def _region_textures(name: str, thickness_mm: float, monkeypatch, white_faces_off: bool = False) -> list:
+    """(centroid mm, named 'shadow only', texture) of the regions a render's measurement found."""
     import cv2
 
     import scanmass
@@ -125,7 +125,7 @@ def _shadow_only_textures(name: str, thickness_mm: float, monkeypatch, white_fac
         for p in result.parts:
             cv2.fillPoly(every, [np.round(scale.plane_map.to_px(np.asarray(p.outline_mm, float))).astype(np.int32)], 1)
         reach = cv2.dilate(every, cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * band + 1,) * 2)).astype(bool)
-        for p in shadows:
+        for p in result.parts:
             ring = scale.plane_map.to_px(np.asarray(p.outline_mm, float))
             x0, y0 = np.maximum(np.floor(ring.min(axis=0)).astype(int) - band - 30, 0)
             x1, y1 = np.ceil(ring.max(axis=0)).astype(int) + band + 30
@@ -135,7 +135,7 @@ def _shadow_only_textures(name: str, thickness_mm: float, monkeypatch, white_fac
                 hole = np.round(scale.plane_map.to_px(np.asarray(h.outline_mm, float))).astype(np.int32)
                 cv2.fillPoly(mask, [hole], 0)
             box = np.s_[y0:y1, x0:x1]  # the paper round the region only (not the markers or the table)
-            found.append((p.centroid_mm, grain_texture(luma[box], mask[box].astype(bool), ~reach[box])))
+            found.append((p.centroid_mm, p in shadows, grain_texture(luma[box], mask[box].astype(bool), ~reach[box])))
         return original(image, scale, result, colour, thickness_mm, white)
 
     monkeypatch.setattr(flow, "_shadows_only", spy)
@@ -150,19 +150,19 @@ def _shadow_only_textures(name: str, thickness_mm: float, monkeypatch, white_fac
 
 @pytest.mark.slow
 def test_the_steel_face_named_shadow_only_is_as_grainy_as_a_shadow_alone(monkeypatch):
-    """Why no texture rule: on dev-lens-window-steel4-t20 (3.5 mm, the gasket's thickness) the region named 'shadow
-    only' is the steel gasket's face (its centroid within 3 mm of the truth's: shapely on the render's truth), and
-    its fine texture lies within the range of the shadows alone of the white parts on window-nylon-t0 (white faces'
-    search off, so that they stay regions named 'shadow only'): on these renders the paper in shade is as grainy as
-    lit steel (the path tracer's noise) and the steel has no grain of its own."""
+    """Why no texture rule: on dev-lens-window-steel4-t20 (3.5 mm, the gasket's thickness) the steel gasket's found
+    region (its centroid within 3 mm of the truth's: shapely on the render's truth; named 'shadow only' at the start
+    of stop 31), its face lit near the paper's level, has a fine texture within the range of the shadows alone of
+    the white parts on window-nylon-t0 (white faces' search off, so that they stay regions named 'shadow only'): on
+    these renders the paper in shade is as grainy as lit steel (the path tracer's noise) and the steel has no grain
+    of its own."""
     from tests._reallight_truth import truth_part
 
-    steel = _shadow_only_textures("dev-lens-window-steel4-t20", 3.5, monkeypatch)
+    steel = _region_textures("dev-lens-window-steel4-t20", 3.5, monkeypatch)
     gasket = truth_part("dev-lens-window-steel4-t20", "gasket")
-    named = [t for c, t in steel if math.dist(c, gasket["centroid"]) < 3.0]
-    assert named, "the gasket's region is no longer named 'shadow only': see whether the xfail passes"
-    tex = named[-1]
-    nylon = _shadow_only_textures("window-nylon-t0", 3.0, monkeypatch, white_faces_off=True)
-    shadows = [t for _, t in nylon if t is not None]  # the smallest regions have too few pixels inside their edge
+    tex = [t for c, _, t in steel if math.dist(c, gasket["centroid"]) < 3.0][-1]
+    nylon = _region_textures("window-nylon-t0", 3.0, monkeypatch, white_faces_off=True)
+    # the regions named 'shadow only' (the smallest have too few pixels inside their edge to read)
+    shadows = [t for _, named, t in nylon if named and t is not None]
     assert tex is not None and len(shadows) >= 2
     assert min(t.fine for t in shadows) <= tex.fine <= max(t.fine for t in shadows)
