@@ -1,7 +1,7 @@
 """Probe (run by hand): where a photographed part's outline runs off the truth's, edge by edge (issue 11).
 
 For each part of a photographed render of the tuned set, measured at its own thickness, the outer outline is
-laid over the truth's (shapely) and each straight edge of the truth (2 mm long or more) gets the mean offset of
+laid over the truth's (shapely) and each segment of the truth's outline gets the mean offset of
 the measured outline within :data:`BAND_MM` of it (mm, + outwards: excess less missing, over the edge's length).
 Each edge is classed by two facts of the scene read from the render's truth file, not from the code under test:
 
@@ -49,7 +49,7 @@ BAND_MM = 3.0
 #: Least width (mm on the mat) of a wall facing the camera counted as seen: a third of these renders' pixel
 #: (0.3-0.4 mm), under what the outline's sub-pixel edge resolves.
 SEEN_WALL_MM = 0.1
-#: Shortest truth edge (mm) reported on its own (a round outline's segments are shorter and are skipped).
+#: Shortest truth edge (mm) listed on its own (a round outline's segments count in their classes only).
 MIN_EDGE_MM = 2.0
 
 
@@ -83,7 +83,7 @@ def seen_wall_mm(foot: np.ndarray, normal: np.ndarray, camera: np.ndarray, thick
 
 
 def edge_classes(truth: dict[str, Any], part: dict[str, Any]) -> list[dict[str, Any]]:
-    """The truth outline's straight edges (``MIN_EDGE_MM`` or longer) with their class to the light and the camera."""
+    """The truth outline's segments with their class to the light and the camera (a round outline's short ones too)."""
     outline = Polygon(part["outline_mm"])
     ring = np.asarray(outline.exterior.coords)[:-1]
     sign = 1.0 if outline.exterior.is_ccw else -1.0
@@ -93,7 +93,7 @@ def edge_classes(truth: dict[str, Any], part: dict[str, Any]) -> list[dict[str, 
     for a, b in zip(ring, np.roll(ring, -1, axis=0)):
         d = b - a
         length = float(np.linalg.norm(d))
-        if length < MIN_EDGE_MM:
+        if length < 1e-9:
             continue
         normal = sign * np.array([d[1], -d[0]]) / length  # outwards
         mid = 0.5 * (a + b)
@@ -167,6 +167,7 @@ def probe(name: str, folder: Path = REALLIGHT) -> list[dict[str, Any]]:
                         "offset_mm": round(o, 3),
                     }
                     for e, o in zip(edges, offsets)
+                    if e["length"] >= MIN_EDGE_MM
                 ],
             }
         )

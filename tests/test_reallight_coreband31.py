@@ -33,8 +33,8 @@ _dev = pytest.mark.skipif(
 #: pixel (0.3-0.4 mm), under what the outline's sub-pixel edge resolves.
 SEEN_WALL_MM = 0.1
 #: Parts the change can move (their widest wall wider than the blur, a cut kept; bench_reallight, thickness
-#: given): each stays within 3 stated sigma. The collar and the cam have dark faces (2-5 times their cores) whose
-#: cuts already reach the top edge; the rule leaves them as they were.
+#: given): each stays within 3 stated sigma. The collar and the cam have dark faces (2-5 times their cores), beside
+#: which the level cannot tell the face's dark rim from the shaded wall; the rule leaves them as they were.
 AT_RISK = [
     ("dev-lens-window-steel2-t16", "l-bracket"),
     ("dev-window-steel5-t14", "collar"),

@@ -67,8 +67,9 @@ WALL_SEEN_PX = 0.5 * SHADOW_SOFT_PX
 #: Least ratio of the face's level beside such a stretch to the cut's core: the core is paper only the ambient light
 #: reaches (1-2 % of the lit paper on the committed renders, tests/data/reallight), a top face the light reaches
 #: directly at a fifth of the paper or more stands ten times above it; a face within a few times the core reflects
-#: something dark, and its own dark rim cannot be told from the shaded wall (dev-window-steel5-t14's collar and
-#: dev-window-steel-t0's cam: faces 2-5 times their cores, their cuts already at the top edge; the bracket above: 32).
+#: something dark, and its own dark rim cannot be told from the shaded wall by level (faces 2-5 times their cores:
+#: on dev-window-steel-t0's cam the band so taken was the face's, its shadow side 0.10 -> 0.24 mm inside; on
+#: dev-window-steel5-t14's collar it was wall and core, 0.36 -> 0.10 mm out; the bracket above: 32).
 WALLED_FACE_RATIO = 10.0
 #: Sigma (px) the levels are smoothed by before the half-way test: the photo's noise, under the blur's reach.
 SMOOTH_PX = 1.0
