@@ -227,12 +227,18 @@ def _blend_cut_edge(
 
 def _wall_px(scale: PhotoScale, part: Part, thickness_mm: float) -> float:
     """The widest (px) a part's side wall can show in the photo: its thickness' parallax, largest over the outline."""
+    step = _wall_steps(scale, part, thickness_mm)
+    return float(np.max(np.hypot(step[:, 0], step[:, 1]))) if len(step) else 0.0
+
+
+def _wall_steps(scale: PhotoScale, part: Part, thickness_mm: float) -> np.ndarray:
+    """The parallax (px, x then y) of a part's thickness at each point of its outline: where its top edge is seen
+    from its foot. Empty without a thickness, a camera or an outline."""
     if not thickness_mm or scale.camera_matrix is None or part.outline_mm is None:
-        return 0.0
+        return np.zeros((0, 2))
     ring = np.asarray(part.outline_mm, float)
     hook = ElevationHook(scale.plane_map.matrix, scale.camera_matrix, thickness_mm)
-    step = apply_h(hook.gh, ring) - apply_h(hook.g0, ring)
-    return float(np.max(np.hypot(step[:, 0], step[:, 1])))
+    return apply_h(hook.gh, ring) - apply_h(hook.g0, ring)
 
 
 def _within_box(part: Part, lo: np.ndarray, hi: np.ndarray) -> bool:
@@ -539,7 +545,9 @@ def _decide_cuts(
                 wall_px = _wall_px(scale, part, thickness_mm)
                 cut = face_edge_given_back(colour_lin, mask, risk.paper_rgb, cut, wall_px)
                 # and the shadow's core the sweep left along the face, by its geometry (a band along the cut)
-                cut = far_band_taken(colour_lin, mask, risk.paper_rgb, cut, wall_px)
+                # (and where the wall facing the camera shows on its edge, the wall with it: coreband31)
+                walls = (rings[0], _wall_steps(scale, part, thickness_mm))
+                cut = far_band_taken(colour_lin, mask, risk.paper_rgb, cut, wall_px, walls)
         if cut is None and not dark and thickness_mm is not None and risk is not None:
             # a yellow face's rim in one light's shadow lit by another light of another colour (not darkened paper)
             cut = other_light_rim(colour_lin, mask, risk.paper_rgb)

@@ -56,12 +56,32 @@ FACING_COS = 0.3
 CORE_SHARE = 0.3
 #: Sigma (px) the kept face's mask is blurred by for its edge's normal: over a few pixels' jags of the edge.
 NORMAL_SIGMA_PX = 3.0
+#: How far (px) from a stretch the outline's points are read for the wall its edge shows: the band's depth.
+WALL_NEAR_PX = BAND_DEPTH_PX
+#: Least width (px) of the wall facing the camera on a stretch's own edge for the stretch to be taken as wall and
+#: core where the part's widest wall is wider than the blur: half the blur (:data:`~scanmass.segment.litcut.SHADOW_SOFT_PX`);
+#: a narrower wall is no band of its own, and the stretch is the core alone, which such a part's other walls leave
+#: unsure (the reason the whole part is refused without ``walls``). The notch's end of dev-lens-window-steel2-t16's
+#: bracket shows 2.4 px (camera model) and left 1.3 mm of wall and core beside its cut.
+WALL_SEEN_PX = 0.5 * SHADOW_SOFT_PX
+#: Least ratio of the face's level beside such a stretch to the cut's core: the core is paper only the ambient light
+#: reaches (1-2 % of the lit paper on the committed renders, tests/data/reallight), a top face the light reaches
+#: directly at a fifth of the paper or more stands ten times above it; a face within a few times the core reflects
+#: something dark, and its own dark rim cannot be told from the shaded wall by level (faces 2-5 times their cores:
+#: on dev-window-steel-t0's cam the band so taken was the face's, its shadow side 0.10 -> 0.24 mm inside; on
+#: dev-window-steel5-t14's collar it was wall and core, 0.36 -> 0.10 mm out; the bracket above: 32).
+WALLED_FACE_RATIO = 10.0
 #: Sigma (px) the levels are smoothed by before the half-way test: the photo's noise, under the blur's reach.
 SMOOTH_PX = 1.0
 
 
 def far_band_taken(
-    colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np.ndarray, cut: ShadowCut, wall_px: float = 0.0
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    cut: ShadowCut,
+    wall_px: float = 0.0,
+    walls: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> ShadowCut:
     """``cut`` with the band of the shadow's core it left beside the face taken too.
 
@@ -80,7 +100,18 @@ def far_band_taken(
         Wider than :data:`~scanmass.segment.litcut.SHADOW_SOFT_PX` (the outline's blur), a shaded wall
         between the face and the cut is a band of its own at about the half-way level, which the band's
         test cannot tell from the core (as :func:`~scanmass.segment.litcut.face_edge_given_back` takes it):
-        nothing is taken.
+        nothing is taken, but for the stretches ``walls`` shows beside a wall of their own (below).
+    walls : tuple of two (N, 2) ndarrays, optional
+        Points of the part's outline (crop px) and the parallax of its thickness there (px, x then y: where the
+        top edge is seen from its foot). Where ``wall_px`` is wider than the blur, a stretch is still taken
+        where its own edge shows the wall facing the camera (the parallax against the stretch's mean outward
+        normal, the median over the outline's points within :data:`WALL_NEAR_PX`) wider than
+        :data:`WALL_SEEN_PX`, beside a face :data:`WALLED_FACE_RATIO` times the core or brighter, down to that
+        wall's width deeper than :data:`BAND_DEPTH_PX`, and without the test against the cut's level beside it
+        (the shaded wall is darker than the paper's core: it faces away from the light and sees half the sky).
+        On such an edge the outline the cut leaves is taken for the top face's edge (the cut is taken to hold
+        the shaded wall), so a band of wall and core left beside the cut would be counted twice: once as
+        itself and once as the wall's width the top edge is moved out by.
 
     Returns
     -------
@@ -113,7 +144,7 @@ def far_band_taken(
     taken = _outer_cut(cut.cut & part_mask, part_mask)
     if (
         cut.direction is None
-        or wall_px > SHADOW_SOFT_PX
+        or (wall_px > SHADOW_SOFT_PX and walls is None)
         or np.count_nonzero(taken) < MIN_BACK_PX
         or np.count_nonzero(keep) < MIN_BACK_PX
     ):
@@ -140,20 +171,32 @@ def far_band_taken(
     np.maximum.at(depth, idx, from_cut.ravel())
     along = np.bincount(idx, weights=(from_cut.ravel() <= 1.5).astype(np.float64), minlength=count)
     size = np.bincount(idx, minlength=count)
-    good = (depth <= BAND_DEPTH_PX) & (along >= np.maximum(BAND_ALONG_RATIO * depth, STRETCH_PX)) & (size >= 2)
-    good[0] = False
-    # on the edges facing away from the light: the kept face's outward normal (across its blurred mask: the band
-    # lies on its edge against the cut) within FACING_COS of the way the shadow falls
+    seen = np.zeros(count, np.float64)  # the wall facing the camera each stretch's edge shows (px)
     soft = cv2.GaussianBlur(keep.astype(np.float32), (0, 0), NORMAL_SIGMA_PX)
     gy, gx = np.gradient(soft)
     norm = np.maximum(np.hypot(gx, gy), 1e-9)
+    reach = np.full(count, BAND_DEPTH_PX)
+    if wall_px > SHADOW_SOFT_PX and walls is not None:
+        seen = _seen_walls(labels, count, gx / norm, gy / norm, walls)
+        reach = BAND_DEPTH_PX + seen
+    good = (depth <= reach) & (along >= np.maximum(BAND_ALONG_RATIO * depth, STRETCH_PX)) & (size >= 2)
+    good[0] = False
+    # on the edges facing away from the light: the kept face's outward normal (across its blurred mask: the band
+    # lies on its edge against the cut) within FACING_COS of the way the shadow falls
+    walled = np.zeros(count, bool)
+    if wall_px > SHADOW_SOFT_PX:
+        # the wall on the stretch's own edge, beside a face the light reaches (not one reflecting something dark)
+        walled = seen > WALL_SEEN_PX
+        for k in np.flatnonzero(walled):
+            walled[k] = float(np.median(face[labels == k])) >= WALLED_FACE_RATIO * core
+        good &= walled
     facing = -(gx * float(cut.direction[0]) + gy * float(cut.direction[1])) / norm
     for k in np.flatnonzero(good):
         good[k] = float(np.median(facing[labels == k])) >= FACING_COS
     # of the shadow's level: a stretch clearly darker than the cut's core beside it is the part's own (a dark
     # line along the top edge, a wall's shaded rim), no shadow on the paper
     near_cut = taken & (cv2.distanceTransform((~dark).astype(np.uint8), cv2.DIST_L2, 3) <= NEAR_CUT_PX)
-    for k in np.flatnonzero(good):
+    for k in np.flatnonzero(good & ~walled):
         piece = labels == k
         beside = near_cut & (cv2.dilate(piece.astype(np.uint8), np.ones((5, 5), np.uint8)).astype(bool))
         if np.count_nonzero(beside) >= STRETCH_PX:
@@ -183,3 +226,28 @@ def _outer_cut(taken: np.ndarray, part_mask: np.ndarray) -> np.ndarray:
     count, pieces = cv2.connectedComponents(taken.astype(np.uint8), connectivity=8)
     touching = np.unique(pieces[taken & near])
     return taken & np.isin(pieces, touching[touching > 0])
+
+
+def _seen_walls(
+    labels: np.ndarray, count: int, ux: np.ndarray, uy: np.ndarray, walls: tuple[np.ndarray, np.ndarray]
+) -> np.ndarray:
+    """Width (px) of the wall facing the camera beside each labelled stretch: the parallax against its outward normal.
+
+    ``ux``, ``uy``: the kept face's unit inward normal (its blurred mask's gradient); ``walls``: points on the
+    outline (crop px) and the parallax there (px). Per stretch: its mean outward normal, and the median over the
+    outline points within :data:`WALL_NEAR_PX` of it (else the nearest) of the parallax's component against it.
+    """
+    points, steps = (np.asarray(a, np.float64).reshape(-1, 2) for a in walls)
+    out = np.zeros(count, np.float64)
+    if not len(points):
+        return out
+    for k in range(1, count):
+        ys, xs = np.nonzero(labels == k)
+        if not len(ys):
+            continue
+        normal = -np.array([float(ux[ys, xs].sum()), float(uy[ys, xs].sum())])
+        normal /= max(float(np.hypot(*normal)), 1e-9)
+        d = np.hypot(points[:, 0, None] - xs[None, :], points[:, 1, None] - ys[None, :]).min(axis=1)
+        near = d <= WALL_NEAR_PX if np.any(d <= WALL_NEAR_PX) else d <= d.min()
+        out[k] = max(0.0, float(np.median(-(steps[near] @ normal))))
+    return out
