@@ -171,10 +171,6 @@ KNOWN_FAILING = {
     "away from the window: the gasket's face lit near the paper's level, its region named 'shadow only' (+29 %), the "
     "plate's lit face lost (-77 %, named 'found in pieces'), two small regions of lit steel reported as parts "
     "(branch nylonguard30: rendered for the white-face guard; the steel's reading is main's)",
-    "dev-soft-nylon2-t18.json": "a 3 mm white nylon gasket beside a brass cam in soft light at 18 degrees (Filmic; "
-    "rendered in stop 31): the gasket's face reads 0.95 of the paper with nothing found beside it, too near the "
-    "paper to measure; it is named with its place in a 'white part not measured' warning (branch whitenylon31), not "
-    "measured; the cam reads -2.4 %",
 }
 #: The exception a known failure raises instead of a result, where it raises one.
 KNOWN_RAISES: dict[str, type[Exception]] = {"dev-mixed-nylon-t15.json": SegmentationError}

@@ -341,9 +341,9 @@ WHITE_PIECE_IN_REACH = 0.9
 WHITE_REGION_HOLDS = 0.5
 
 
-#: The levels (over the local paper white) of a white face sought only to name the regions found
-#: beside it (:func:`_near_white`): from the measuring search's floor to
-#: :data:`~scanmass.segment.whiteface.NEAR_WHITE_MAX`.
+#: The levels (over the local paper white) of a white face sought, where the measuring search finds none, to name
+#: the regions found beside it (:func:`_near_white`), or to be measured where nothing was found beside it
+#: (:func:`lone_faces`): from the measuring search's floor to :data:`~scanmass.segment.whiteface.NEAR_WHITE_MAX`.
 NEAR_WHITE_RANGE = (FACE_RATIO_RANGE[0], NEAR_WHITE_MAX)
 
 
@@ -379,38 +379,49 @@ def lone_faces(
     thickness_mm: float | None,
     found: list[WhiteFace],
     masks: dict[int, tuple[tuple[int, int, int, int], np.ndarray]],
-) -> list[str]:
-    """A warning naming each white face beside which nothing was found (no region within its shadow reach).
+) -> list[tuple[WhiteFace, np.ndarray, np.ndarray]]:
+    """The white faces beside which nothing was found (no region within their shadow reach), each with its mask
+    with holes filled and its neighbourhood (as :func:`_face_pieces` gives them).
 
-    A white part on white paper is measured from its face only where the regions found beside it are its pieces
-    (:func:`_face_pieces`): they tell its face from a smooth patch of paper. Under a soft light its shadow is too
-    faint to be found, and under a tone curve that compresses the highlights (Filmic) its face lies within about
-    5 % of the paper's level (dev-soft-nylon2-t18's 3 mm gasket: 0.953 of the paper, no region found within 40 mm):
-    the part was missed with no word. Such a face is not measured (a smooth patch of paper near its level cannot
-    be told from it), but named, with its place and the fix.
+    A white part on white paper was measured from its face only where the regions found beside it were its pieces
+    (:func:`_face_pieces`). Under a soft light its shadow is too faint to be found, and under a tone curve that
+    compresses the highlights (Filmic) its face lies within about 5 % of the paper's level: dev-soft-nylon2-t18's
+    3 mm gasket, its face at 0.953 of the paper with no region found within 40 mm, was missed with no word. Such a
+    face passed the same tests as any white face (smooth, of one level, grown to a closed step all round without
+    leaking into the paper, compact); with no part beside it, it is no patch of another part's face, and it is
+    measured as a white part (its outline where its level crosses half-way to the paper's,
+    :func:`~scanmass.segment.whiteface.face_cover`). Where that finds no part, :func:`lone_note` names it.
     """
     if not found:
         return []
     kernel = _reach_kernel(scale, thickness_mm)
-    mm_per_px = scale.plane_map.mm_per_px
-    named = []
+    out = []
     for face in found:
         filled = fill_holes(face.mask)
         zone = cv2.dilate(filled.astype(np.uint8), kernel).astype(bool)
-        if any(np.any(zone[y0:y1, x0:x1] & mask) for (x0, y0, x1, y1), mask in masks.values()):
-            continue
+        if not any(np.any(zone[y0:y1, x0:x1] & mask) for (x0, y0, x1, y1), mask in masks.values()):
+            out.append((face, filled, zone))
+    return out
+
+
+def lone_note(scale: PhotoScale, lone: list[tuple[WhiteFace, np.ndarray, np.ndarray]]) -> list[str]:
+    """A warning naming the white faces with nothing beside them (:func:`lone_faces`) that were not measured, with
+    their places and the fix."""
+    if not lone:
+        return []
+    mm_per_px = scale.plane_map.mm_per_px
+    named = []
+    for face, filled, _ in lone:
         rows, cols = np.nonzero(filled)
         x_mm, y_mm = scale.plane_map.to_mm(np.array([[cols.mean(), rows.mean()]]))[0]
         named.append(
             f"a face of about {np.count_nonzero(face.mask) * mm_per_px**2:.0f} mm² at ({x_mm:.1f}, {y_mm:.1f}) mm"
         )
-    if not named:
-        return []
     return [
         f"white part not measured: {'; '.join(named)}: a smooth patch a little darker than the paper with a step "
         "all round, as the top face of a white part on white paper, with nothing found beside it (no shadow or "
-        "wall); its outline is too faint to be placed and it is not measured: if a part lies there, lay light parts "
-        "on a dark backing sheet or use a backlight"
+        "wall); its outline was not found: if a part lies there, lay light parts on a dark backing sheet or use a "
+        "backlight"
     ]
 
 
@@ -646,17 +657,20 @@ def _white_parts(
         crop = _part_crop(image, scale, part, 0)
         if crop is not None:
             masks[part.label] = (crop[0], crop[1])
-    # a face with nothing found beside it is not measured but named (a part missed otherwise with no word)
+    # a face with nothing found beside it is measured as a white part (a part missed otherwise with no word)
     lone = lone_faces(scale, thickness_mm, found or near, masks)
     if not found:
         faces, fragments = _face_pieces(image, scale, result, colour, thickness_mm, near, masks)
-        if not all(_paper_piece(image, scale, p, colour) for p in result.parts if p.label in fragments):
-            return result, frozenset(), lone  # something other than a white part's walls lies beside the face
-        result, named, notes = _near_white(image, result, mm_per_px, masks, faces, fragments)
-        return result, named, notes + lone
-    faces, fragments = _face_pieces(image, scale, result, colour, thickness_mm, found, masks)
+        if faces or not lone:
+            if not all(_paper_piece(image, scale, p, colour) for p in result.parts if p.label in fragments):
+                return result, frozenset(), lone_note(scale, lone)  # not a white part's walls beside the face
+            result, named, notes = _near_white(image, result, mm_per_px, masks, faces, fragments)
+            return result, named, notes + lone_note(scale, lone)
+    else:
+        faces, fragments = _face_pieces(image, scale, result, colour, thickness_mm, found, masks)
+    faces = faces + lone
     if not faces:
-        return result, frozenset(), lone
+        return result, frozenset(), []
     others = np.zeros(level.shape, bool)  # the other parts: never painted
     for label, ((x0, y0, x1, y1), mask) in masks.items():
         if label not in fragments:
@@ -679,8 +693,9 @@ def _white_parts(
     try:
         again = remeasure(painted, _face_edges_seen(scale.plane_map, faces))
     except (SegmentationError, ValueError):
-        return result, frozenset(), lone
+        return result, frozenset(), lone_note(scale, lone)
     white: set[int] = set()
+    measured: set[int] = set()  # the faces (their index) a white part was measured from
     # the other parts as first measured (the painting leaves them; their own cuts stay), the white ones from it
     parts = [p for p in result.parts if p.label not in fragments]
     label = max((p.label for p in result.parts), default=0)
@@ -689,9 +704,10 @@ def _white_parts(
         hit = None
         if crop is not None:
             (x0, y0, x1, y1), mask, _ = crop
-            for filled, rim_px, faint in edge_px:
+            for i, (filled, rim_px, faint) in enumerate(edge_px):
                 if np.count_nonzero(filled[y0:y1, x0:x1] & mask) > 0.5 * np.count_nonzero(mask):
                     hit = (rim_px, faint)
+                    measured.add(i)
                     break
         if hit is None:
             continue
@@ -702,8 +718,10 @@ def _white_parts(
         term = area_share_term(part, rim_px * edge_u_px * mm_per_px**2)
         parts.append(_with_shadow_term(part, term, 2.0 * edge_u_px * mm_per_px, "white_face", edge_u_px * mm_per_px))
         white.add(label)
+    first_lone = len(faces) - len(lone)
+    missed = lone_note(scale, [f for i, f in enumerate(lone) if first_lone + i not in measured])
     if not white:
-        return result, frozenset(), lone
+        return result, frozenset(), missed
     result.parts = parts
     result.warnings = [w for w in result.warnings if not _names_only(w, fragments)]
     names = ", ".join(f"part {p.label}" for p in parts if p.label in white)
@@ -712,7 +730,7 @@ def _white_parts(
         "on white paper): its outline against the paper is a faint step, placed to about a pixel (term "
         "'white_face'); for better figures lay light parts on a dark backing sheet or use a backlight"
     )
-    return result, frozenset(white), [note, *lone]
+    return result, frozenset(white), [note, *missed]
 
 
 def loose_regions(result: Measurement) -> list[str]:
