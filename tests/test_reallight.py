@@ -171,12 +171,6 @@ KNOWN_FAILING = {
     "away from the window: the gasket's face lit near the paper's level, its region named 'shadow only' (+29 %), the "
     "plate's lit face lost (-77 %, named 'found in pieces'), two small regions of lit steel reported as parts "
     "(branch nylonguard30: rendered for the white-face guard; the steel's reading is main's)",
-    "dev-window-nylon2-t20.json": "a 6 mm white nylon disc beside a brushed-steel plate in window light at 20 degrees "
-    "(Filmic; rendered in stop 31): the disc's face is not found; a 29 mm2 region beside it is named 'shadow only' "
-    "and a 5.8 +- 16.3 mm2 fragment at its rim is reported as a part (a test that matches it to the disc counts "
-    "-99.6 %, 82 sigma); the plate reads +3.8 %",
-    "dev-soft-nylon2-t18.json": "a 3 mm white nylon gasket beside a brass cam in soft light at 18 degrees (Filmic; "
-    "rendered in stop 31): the gasket is not found and no warning names it; the cam reads -2.4 %",
 }
 #: The exception a known failure raises instead of a result, where it raises one.
 KNOWN_RAISES: dict[str, type[Exception]] = {"dev-mixed-nylon-t15.json": SegmentationError}

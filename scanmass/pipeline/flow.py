@@ -44,7 +44,13 @@ from scanmass.pipeline.photo_checks import (
 from scanmass.pipeline.photo_colour import colour_faces
 from scanmass.pipeline.photo_holes import _open_deep_holes
 from scanmass.pipeline.photo_shadow_cut import _cut_cast_shadows
-from scanmass.pipeline.photo_shadows import _cast_shadows, _shadows_only, _white_parts, white_walls_unread
+from scanmass.pipeline.photo_shadows import (
+    _cast_shadows,
+    _shadows_only,
+    _white_parts,
+    loose_regions,
+    white_walls_unread,
+)
 from scanmass.pipeline.photo_thickness import (
     RaisedRings,
     WallThickness,
@@ -944,6 +950,7 @@ def _measure_photo(
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
     warnings += with_wall_thickness(scale, result, walls, raised)
+    warnings += loose_regions(result)  # after every term: a region whose area sigma exceeds its area is named
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": method})
     if shift is not None:  # only when applied: the documents of photos read as sRGB stay as they were

@@ -330,11 +330,20 @@ WHITE_FRAGMENT_SHARE = 0.35
 #: regions named a shadow or a lit face by their colour too, which :data:`WHITE_FRAGMENT_SHARE` does not bound.
 WHITE_PIECES_MAX_SHARE = 1.0
 WHITE_PIECE_IN_REACH = 0.9
+#: Least share of a white face's own pixels a found region must cover to be taken as the white part itself, found
+#: by the threshold with its walls and shadow, rather than another part beside or on the face: parts laid on a mat
+#: do not overlap, so a region holding most of a face is that face's part (or the part whose own face the smooth
+#: patch is). Under a soft light a white part's face can be dark enough for the threshold: on dev-soft-nylon-t12
+#: (faces at 0.90-0.91 of the paper) the plate's region holds 0.98 of its face, the gasket's 0.87. What such a
+#: region holds beyond the face is taken as the part's pieces (:func:`pieces_fit_face`): a smooth patch of a larger
+#: part's own face is held by a region far larger than the patch, reaching beyond its shadow reach, and is still
+#: refused.
+WHITE_REGION_HOLDS = 0.5
 
 
-#: The levels (over the local paper white) of a white face sought only to name the regions found
-#: beside it (:func:`_near_white`): from the measuring search's floor to
-#: :data:`~scanmass.segment.whiteface.NEAR_WHITE_MAX`.
+#: The levels (over the local paper white) of a white face sought, where the measuring search finds none, to name
+#: the regions found beside it (:func:`_near_white`), or to be measured where nothing was found beside it
+#: (:func:`lone_faces`): from the measuring search's floor to :data:`~scanmass.segment.whiteface.NEAR_WHITE_MAX`.
 NEAR_WHITE_RANGE = (FACE_RATIO_RANGE[0], NEAR_WHITE_MAX)
 
 
@@ -358,6 +367,64 @@ def pieces_fit_face(face_px: int, pieces: list[tuple[int, int]]) -> bool:
     return within and sum(n for n, _ in pieces) <= WHITE_PIECES_MAX_SHARE * face_px
 
 
+def _reach_kernel(scale: PhotoScale, thickness_mm: float | None) -> np.ndarray:
+    """The disc that draws a white face's shadow reach: the shadow of the thickest part a photo's shadow-only
+    test allows (another part of the photo may be thicker than the thickness given), and 6 px."""
+    reach_px = shadow_band_px(max(thickness_mm or 0.0, SHADOW_CUT_UNKNOWN_THICKNESS_MM), scale.plane_map.mm_per_px)
+    return cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * int(reach_px + 6.0) + 1,) * 2)
+
+
+def lone_faces(
+    scale: PhotoScale,
+    thickness_mm: float | None,
+    found: list[WhiteFace],
+    masks: dict[int, tuple[tuple[int, int, int, int], np.ndarray]],
+) -> list[tuple[WhiteFace, np.ndarray, np.ndarray]]:
+    """The white faces beside which nothing was found (no region within their shadow reach), each with its mask
+    with holes filled and its neighbourhood (as :func:`_face_pieces` gives them).
+
+    A white part on white paper was measured from its face only where the regions found beside it were its pieces
+    (:func:`_face_pieces`). Under a soft light its shadow is too faint to be found, and under a tone curve that
+    compresses the highlights (Filmic) its face lies within about 5 % of the paper's level: dev-soft-nylon2-t18's
+    3 mm gasket, its face at 0.953 of the paper with no region found within 40 mm, was missed with no word. Such a
+    face passed the same tests as any white face (smooth, of one level, grown to a closed step all round without
+    leaking into the paper, compact); with no part beside it, it is no patch of another part's face, and it is
+    measured as a white part (its outline where its level crosses half-way to the paper's,
+    :func:`~scanmass.segment.whiteface.face_cover`). Where that finds no part, :func:`lone_note` names it.
+    """
+    if not found:
+        return []
+    kernel = _reach_kernel(scale, thickness_mm)
+    out = []
+    for face in found:
+        filled = fill_holes(face.mask)
+        zone = cv2.dilate(filled.astype(np.uint8), kernel).astype(bool)
+        if not any(np.any(zone[y0:y1, x0:x1] & mask) for (x0, y0, x1, y1), mask in masks.values()):
+            out.append((face, filled, zone))
+    return out
+
+
+def lone_note(scale: PhotoScale, lone: list[tuple[WhiteFace, np.ndarray, np.ndarray]]) -> list[str]:
+    """A warning naming the white faces with nothing beside them (:func:`lone_faces`) that were not measured, with
+    their places and the fix."""
+    if not lone:
+        return []
+    mm_per_px = scale.plane_map.mm_per_px
+    named = []
+    for face, filled, _ in lone:
+        rows, cols = np.nonzero(filled)
+        x_mm, y_mm = scale.plane_map.to_mm(np.array([[cols.mean(), rows.mean()]]))[0]
+        named.append(
+            f"a face of about {np.count_nonzero(face.mask) * mm_per_px**2:.0f} mm² at ({x_mm:.1f}, {y_mm:.1f}) mm"
+        )
+    return [
+        f"white part not measured: {'; '.join(named)}: a smooth patch a little darker than the paper with a step "
+        "all round, as the top face of a white part on white paper, with nothing found beside it (no shadow or "
+        "wall); its outline was not found: if a part lies there, lay light parts on a dark backing sheet or use a "
+        "backlight"
+    ]
+
+
 def _face_pieces(
     image: LoadedImage,
     scale: PhotoScale,
@@ -371,23 +438,21 @@ def _face_pieces(
 
     Within the reach of the thickest shadow the photo allows, a found region that is a shadow, a lit
     wall or face (:func:`_shadow_regions`), or a piece much smaller than the face (a hole's dark
-    bottom, a dark wall: :data:`WHITE_FRAGMENT_SHARE`) is the white part's; a face with a part as large
-    as itself, or lying on it, beside it is not a white part's (another part is there). Each face kept
-    comes with its mask with holes filled and its neighbourhood.
+    bottom, a dark wall: :data:`WHITE_FRAGMENT_SHARE`) is the white part's, and so is a region holding most
+    of the face (:data:`WHITE_REGION_HOLDS`: the part itself found by the threshold with its walls and
+    shadow, its pixels beyond the face its pieces); a face with a part as large as itself beside it, or
+    lying on a part of it, is not a white part's (another part is there). Each face kept comes with its
+    mask with holes filled and its neighbourhood.
     """
     shadow_parts, lit_parts = _shadow_regions(image, scale, result, colour, thickness_mm)
     regions = {p.label for p in shadow_parts + lit_parts}
-    mm_per_px = scale.plane_map.mm_per_px
-    # the shadow of the thickest part a photo's shadow-only test allows (another part of the photo may be thicker
-    # than the thickness given)
-    reach_px = shadow_band_px(max(thickness_mm or 0.0, SHADOW_CUT_UNKNOWN_THICKNESS_MM), mm_per_px) + 6.0
-    kernel = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * int(reach_px) + 1,) * 2)
+    kernel = _reach_kernel(scale, thickness_mm)
     faces: list[tuple[WhiteFace, np.ndarray, np.ndarray]] = []
     fragments: set[int] = set()
     for face in found:
         filled = fill_holes(face.mask)
         zone = cv2.dilate(filled.astype(np.uint8), kernel).astype(bool)
-        face_px = np.count_nonzero(filled)
+        face_px, own_px = np.count_nonzero(filled), np.count_nonzero(face.mask)
         mine: set[int] = set()
         real = False
         pieces: list[tuple[int, int]] = []
@@ -396,11 +461,17 @@ def _face_pieces(
             if not np.any(zone[y0:y1, x0:x1] & mask):
                 continue
             on_face = np.count_nonzero(face.mask[y0:y1, x0:x1] & mask)
+            in_reach = np.count_nonzero(zone[y0:y1, x0:x1] & mask)
             # a shadow, a lit wall or face, or a piece much smaller than the face (a hole's dark bottom, a dark
             # wall) is the white part's; a part as large as the face, or lying on it, is another part
             if label in regions or (n < WHITE_FRAGMENT_SHARE * face_px and on_face < 0.3 * n):
                 mine.add(label)
-                pieces.append((int(n), int(np.count_nonzero(zone[y0:y1, x0:x1] & mask))))
+                pieces.append((int(n), int(in_reach)))
+            elif on_face >= WHITE_REGION_HOLDS * own_px:
+                # the region holds the whole face: the white part itself, found with its walls and shadow (its face
+                # darker than the paper under a soft light); what it holds beyond the face are its pieces
+                mine.add(label)
+                pieces.append((int(n - on_face), int(in_reach - on_face)))
             else:
                 real = True
         if real or not mine or not pieces_fit_face(int(face_px), pieces):
@@ -586,12 +657,18 @@ def _white_parts(
         crop = _part_crop(image, scale, part, 0)
         if crop is not None:
             masks[part.label] = (crop[0], crop[1])
+    # a face with nothing found beside it is measured as a white part (a part missed otherwise with no word)
+    lone = lone_faces(scale, thickness_mm, found or near, masks)
     if not found:
         faces, fragments = _face_pieces(image, scale, result, colour, thickness_mm, near, masks)
-        if not all(_paper_piece(image, scale, p, colour) for p in result.parts if p.label in fragments):
-            return result, frozenset(), []  # something other than a white part's walls lies beside the face
-        return _near_white(image, result, mm_per_px, masks, faces, fragments)
-    faces, fragments = _face_pieces(image, scale, result, colour, thickness_mm, found, masks)
+        if faces or not lone:
+            if not all(_paper_piece(image, scale, p, colour) for p in result.parts if p.label in fragments):
+                return result, frozenset(), lone_note(scale, lone)  # not a white part's walls beside the face
+            result, named, notes = _near_white(image, result, mm_per_px, masks, faces, fragments)
+            return result, named, notes + lone_note(scale, lone)
+    else:
+        faces, fragments = _face_pieces(image, scale, result, colour, thickness_mm, found, masks)
+    faces = faces + lone
     if not faces:
         return result, frozenset(), []
     others = np.zeros(level.shape, bool)  # the other parts: never painted
@@ -616,8 +693,9 @@ def _white_parts(
     try:
         again = remeasure(painted, _face_edges_seen(scale.plane_map, faces))
     except (SegmentationError, ValueError):
-        return result, frozenset(), []
+        return result, frozenset(), lone_note(scale, lone)
     white: set[int] = set()
+    measured: set[int] = set()  # the faces (their index) a white part was measured from
     # the other parts as first measured (the painting leaves them; their own cuts stay), the white ones from it
     parts = [p for p in result.parts if p.label not in fragments]
     label = max((p.label for p in result.parts), default=0)
@@ -626,9 +704,10 @@ def _white_parts(
         hit = None
         if crop is not None:
             (x0, y0, x1, y1), mask, _ = crop
-            for filled, rim_px, faint in edge_px:
+            for i, (filled, rim_px, faint) in enumerate(edge_px):
                 if np.count_nonzero(filled[y0:y1, x0:x1] & mask) > 0.5 * np.count_nonzero(mask):
                     hit = (rim_px, faint)
+                    measured.add(i)
                     break
         if hit is None:
             continue
@@ -639,8 +718,10 @@ def _white_parts(
         term = area_share_term(part, rim_px * edge_u_px * mm_per_px**2)
         parts.append(_with_shadow_term(part, term, 2.0 * edge_u_px * mm_per_px, "white_face", edge_u_px * mm_per_px))
         white.add(label)
+    first_lone = len(faces) - len(lone)
+    missed = lone_note(scale, [f for i, f in enumerate(lone) if first_lone + i not in measured])
     if not white:
-        return result, frozenset(), []
+        return result, frozenset(), missed
     result.parts = parts
     result.warnings = [w for w in result.warnings if not _names_only(w, fragments)]
     names = ", ".join(f"part {p.label}" for p in parts if p.label in white)
@@ -649,7 +730,27 @@ def _white_parts(
         "on white paper): its outline against the paper is a faint step, placed to about a pixel (term "
         "'white_face'); for better figures lay light parts on a dark backing sheet or use a backlight"
     )
-    return result, frozenset(white), [note]
+    return result, frozenset(white), [note, *missed]
+
+
+def loose_regions(result: Measurement) -> list[str]:
+    """A warning naming the found regions whose stated area uncertainty (1 sigma) exceeds their area.
+
+    Such a region's figures say nothing of a part: its area is not known to be larger than nothing. It is a
+    fragment (a piece of a cast shadow, of a white part's wall or of a hole's dark bottom, where the part itself
+    was not found: on dev-window-nylon2-t20 before branch whitenylon31, a 5.8 +- 16.3 mm² fragment at a white
+    disc's rim was reported beside the missed disc), and is named as one, not as a trustworthy part.
+    """
+    loose = [p for p in result.parts if p.area_u_mm2 >= p.area_mm2]
+    if not loose:
+        return []
+    names = ", ".join(f"part {p.label} ({p.area_mm2:.3g} ± {p.area_u_mm2:.3g} mm²)" for p in loose)
+    return [
+        f"loose region: {names} has a stated area uncertainty larger than its area, so it is not a trustworthy part "
+        "(a piece of a cast shadow, of a white part's wall or of a hole's bottom, where the part itself may not have "
+        "been found): do not use its figures; lay light parts on a dark backing sheet, use diffuse light or a "
+        "backlight"
+    ]
 
 
 def white_walls_unread(read: list[WallThickness], white: frozenset[int] | set[int]) -> list[WallThickness]:
