@@ -26,7 +26,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
-from scanmass.segment.deephole import PitEdge, lit_floor_ring, opening_edge, pit_edge
+from scanmass.segment.deephole import SMOOTH_PX, PitEdge, lit_floor_ring, opening_edge, pit_edge
 from scanmass.segment.shadow import PIT_DEPTH, dark_pits
 from scanmass.segment.tintrim import tint_rim
 from scanmass.uncertainty import combine
@@ -129,6 +129,13 @@ TINT_REACH_PX = 4.0
 #: bore, its trace broken by a lit stretch, 0.68 px (-0.29 mm), and opened so it made the part's second
 #: measurement fail.
 TINT_CLEAN_RMS_PX = DEEP_HOLE_CLEAN_RMS_PX
+#: A found hole's floor in its wall's shade is darker than the part's face by more than this many times the
+#: face's own scatter (:func:`_below_face_level`): a band of 3 sigma about a level is common practice for
+#: what noise alone reaches.
+FACE_SHADE_Z = 3.0
+#: The width of the bins (natural logarithm of the level: 2 %) of the histogram whose peak is a face's most
+#: common level (:func:`_below_face_level`); finer than a face's scatter in a photo (5-10 %).
+FACE_LOG_BIN = 0.02
 
 
 def _near_side(ideal_px: np.ndarray, hook: ElevationHook, centre_top_mm: np.ndarray) -> np.ndarray:
@@ -408,6 +415,43 @@ def _shade_level(lin: np.ndarray, mask: np.ndarray) -> float:
     return PIT_DEPTH * float(np.percentile(lin[deep], DEEP_HOLE_LOW_QUANTILE)) if deep.any() else 0.0
 
 
+def _below_face_level(lin: np.ndarray, mask: np.ndarray) -> float:
+    """The level below which a pixel beside a found hole is darker than the part's face by more than its scatter.
+
+    The face's level is the part's most common level: the peak of a histogram of the logarithms of its pixels
+    more than 3 px inside (smoothed as :func:`~scanmass.segment.deephole.opening_edge` smooths), in bins
+    :data:`FACE_LOG_BIN` wide, smoothed by (1, 2, 1) / 4. Its scatter is read from the peak's upper side
+    only, as the half width at half its height (over 1.1774: a normal peak's, common practice): a hole's
+    shade, a cast shadow the outline took in, the shaded walls and the paper's penumbra all lie off the
+    peak and do not widen it. The level: the face's less :data:`FACE_SHADE_Z` times its scatter (in the
+    logarithm); 0 when the part has too few pixels. A face lit evenly (black plastic in a window's broad
+    light) has a narrow peak, and a hole's floor in its wall's shade at 0.6-0.7 of its level lies clearly
+    below it although not below a pit's :data:`~scanmass.segment.shadow.PIT_DEPTH`. A brushed face's dark
+    sector can lie below it too: the level is used only where the pit's (:func:`_shade_level`) gave the
+    found hole no opening, and the opening is taken only where its trace is a clean circle that holds the
+    found hole (:func:`_shaded_opening`).
+    """
+    deep = cv2.distanceTransform(mask.astype(np.uint8), cv2.DIST_L2, 3) > 3
+    if np.count_nonzero(deep) < 50:
+        return 0.0
+    img = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), SMOOTH_PX)
+    values = img[deep].astype(float)
+    values = np.log(values[values > 0])
+    if values.size < 50:
+        return 0.0
+    n = max(int(math.ceil((values.max() - values.min()) / FACE_LOG_BIN)), 1)
+    counts, edges = np.histogram(values, bins=n, range=(float(values.min()), float(values.min() + n * FACE_LOG_BIN)))
+    counts = np.convolve(np.r_[0.0, counts, 0.0], [0.25, 0.5, 0.25], "valid")
+    peak = int(np.argmax(counts))
+    upper = np.flatnonzero(counts[peak:] < 0.5 * counts[peak])
+    if upper.size == 0:
+        return 0.0
+    half_width = (float(upper[0]) - 0.5) * FACE_LOG_BIN  # from the peak's bin to where its height is halved
+    sigma = max(half_width, 0.5 * FACE_LOG_BIN) / 1.1774
+    mode = 0.5 * float(edges[peak] + edges[peak + 1])
+    return float(math.exp(mode - FACE_SHADE_Z * sigma))
+
+
 def _lit_pit_opening(
     lin: np.ndarray,
     mask: np.ndarray,
@@ -543,6 +587,9 @@ def _deep_hole_circles(
     info = scale.plane_map.photo
     thick_u = 0.0 if info is None or info.thickness is None else float(info.thickness.height_u_mm)
     shade_below = _shade_level(seen_lin, seen_mask)
+    # a found hole's shade where none darker than a pit gives its opening: darker than the face by more than its
+    # own scatter (a face lit evenly; a brushed face's dark sectors would join a pit's shade at that level)
+    shade_faint = _below_face_level(seen_lin, seen_mask)
     for hole, ring in zip(part.holes, rings[1:]):
         seed8 = np.zeros(seen_mask.shape, np.uint8)
         cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)
@@ -551,6 +598,10 @@ def _deep_hole_circles(
         partly = False
         if entry is None:
             entry = _shaded_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, shade_below)
+            if entry is None and shade_faint > shade_below:
+                entry = _shaded_opening(
+                    hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, shade_faint
+                )
             partly = entry is not None
         tinted = None
         if colour is not None and colour.shape[:2] == image.grey.shape[:2]:
