@@ -26,7 +26,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
-from scanmass.segment.deephole import SMOOTH_PX, PitEdge, lit_floor_ring, opening_edge, pit_edge
+from scanmass.segment.deephole import NEAR_PX, SMOOTH_PX, PitEdge, lit_floor_ring, opening_edge, pit_edge
 from scanmass.segment.shadow import PIT_DEPTH, dark_pits
 from scanmass.segment.tintrim import tint_rim
 from scanmass.uncertainty import combine
@@ -504,6 +504,7 @@ def _shaded_opening(
     mm_per_px: float,
     outline: np.ndarray,
     shade_below: float,
+    lit_reach_px: float = math.inf,
 ) -> tuple[np.ndarray, float, float] | None:
     """A found hole that is only the lit part of its floor, with the wall's shade beside it: (centre mm, diameter mm, doubt px).
 
@@ -521,7 +522,7 @@ def _shaded_opening(
     r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
     # the found lit floor lies at the opening's side: the opening reaches up to twice as far from it
     reach = 2.0 * (1.5 * r_seed + hook.height_mm / mm_per_px + 6.0)
-    edge = opening_edge(seen_lin, seen_mask, seed, reach, shade_below=shade_below)
+    edge = opening_edge(seen_lin, seen_mask, seed, reach, shade_below=shade_below, lit_reach_px=lit_reach_px)
     fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
     if fit is None or fit[2] > DEEP_HOLE_CLEAN_RMS_PX or fit[1] - hole.diameter_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
         return None
@@ -597,11 +598,19 @@ def _deep_hole_circles(
         entry = _found_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, thick_u)
         partly = False
         if entry is None:
-            entry = _shaded_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, shade_below)
-            if entry is None and shade_faint > shade_below:
+            # the pit's level first, then the face's scatter; each with a lit stretch anywhere in reach, then
+            # only within the far wall's band beside the found floor (a brushed face's lit sector beyond the
+            # rim joins the floor otherwise, and the opening runs over the face)
+            wall_px = _wall_band_px(seed, (sx0, sy0), hook) + NEAR_PX
+            tries = [(shade_below, math.inf), (shade_faint, math.inf), (shade_below, wall_px), (shade_faint, wall_px)]
+            for level, lit_px in tries:
+                if level <= 0 or (level == shade_faint and shade_faint <= shade_below):
+                    continue
                 entry = _shaded_opening(
-                    hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, shade_faint
+                    hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, level, lit_px
                 )
+                if entry is not None:
+                    break
             partly = entry is not None
         tinted = None
         if colour is not None and colour.shape[:2] == image.grey.shape[:2]:
