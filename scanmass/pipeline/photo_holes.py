@@ -133,6 +133,9 @@ TINT_CLEAN_RMS_PX = DEEP_HOLE_CLEAN_RMS_PX
 #: face's own scatter (:func:`_below_face_level`): a band of 3 sigma about a level is common practice for
 #: what noise alone reaches.
 FACE_SHADE_Z = 3.0
+#: The least arc (degrees) of a dark crescent's outer border (its convex hull's arc, :func:`_crescent_opening`)
+#: taken as the rim's: a third of the round bounds a circle's radius and centre well against its own scatter.
+CRESCENT_MIN_ARC_DEG = 120.0
 #: The width of the bins (natural logarithm of the level: 2 %) of the histogram whose peak is a face's most
 #: common level (:func:`_below_face_level`); finer than a face's scatter in a photo (5-10 %).
 FACE_LOG_BIN = 0.02
@@ -452,6 +455,58 @@ def _below_face_level(lin: np.ndarray, mask: np.ndarray) -> float:
     return float(math.exp(mode - FACE_SHADE_Z * sigma))
 
 
+def _crescent_opening(
+    edge: PitEdge, origin: tuple[int, int], hook: ElevationHook, mm_per_px: float, outline: np.ndarray
+) -> tuple[np.ndarray, float, float, float] | None:
+    """A dark pit that is a crescent: the rim's circle from its outer border (centre mm, diameter mm, rms px, doubt px).
+
+    Under a window's light a hole's wall on the window's side is in shade and throws its shade on the floor:
+    seen from above, the dark part of the opening is the top circle less the lit floor, a disc shifted away
+    from the light. Where the face is lit about as the floor (brushed steel facing the window), the floor
+    does not show and the pit is that crescent: its outer border is an arc of the rim, its inner border an
+    arc of the shifted disc, concave, inside the crescent's convex hull. The points of the trace on the hull
+    (within 0.3 px, on the top face's plane) are fitted with a circle, taken where the fit is clean
+    (:data:`DEEP_HOLE_CLEAN_RMS_PX`), the arc spans :data:`CRESCENT_MIN_ARC_DEG`, every traced point lies within
+    the circle (a crescent lies in its disc) and the circle inside the part's ``outline`` with a margin. The
+    doubt: the edge's, times 360 degrees over the arc seen (a partial arc bounds the circle less).
+    """
+    photo = edge.points_px + np.asarray(origin, float)
+    ideal = hook.undistort(photo) if hook.undistort is not None else photo
+    top = apply_h(hook.hh, ideal)
+    if len(top) < 12:
+        return None
+    hull = top[np.sort(cv2.convexHull(top.astype(np.float32), returnPoints=False).ravel())].astype(np.float32)
+    if len(hull) < 3:
+        return None
+    gap = np.array([abs(cv2.pointPolygonTest(hull, (float(a), float(b)), True)) for a, b in top])
+    on = gap < 0.3 * mm_per_px
+    if np.count_nonzero(on) < 12:
+        return None
+    try:
+        fit = fit_circle(top[on])
+    except OptionError:
+        return None
+    if fit.rms_mm > DEEP_HOLE_CLEAN_RMS_PX * mm_per_px:
+        return None
+    centre = np.asarray(fit.centre_mm, float)
+    turn = np.sort(np.degrees(np.arctan2(top[on, 1] - centre[1], top[on, 0] - centre[0])))
+    arc = 360.0 - float(np.max(np.diff(np.r_[turn, turn[0] + 360.0])))
+    if arc < CRESCENT_MIN_ARC_DEG:
+        return None
+    if np.max(np.hypot(*(top - centre).T)) > 0.5 * fit.diameter_mm + max(3 * fit.rms_mm, 0.5 * mm_per_px):
+        return None  # a trace that leaves the circle: no crescent of it
+    ring = centre + 0.5 * fit.diameter_mm * np.column_stack(
+        [
+            np.cos(np.linspace(0, 2 * math.pi, 32, endpoint=False)),
+            np.sin(np.linspace(0, 2 * math.pi, 32, endpoint=False)),
+        ]
+    )
+    if min(cv2.pointPolygonTest(outline, (float(a), float(b)), True) for a, b in ring) < 2 * mm_per_px:
+        return None
+    doubt_px = max(DEEP_HOLE_EDGE_PX, 0.5 * float(np.median(edge.spread_px[on]))) * 360.0 / arc
+    return centre, float(fit.diameter_mm), fit.rms_mm / mm_per_px, doubt_px
+
+
 def _lit_pit_opening(
     lin: np.ndarray,
     mask: np.ndarray,
@@ -524,7 +579,11 @@ def _shaded_opening(
     reach = 2.0 * (1.5 * r_seed + hook.height_mm / mm_per_px + 6.0)
     edge = opening_edge(seen_lin, seen_mask, seed, reach, shade_below=shade_below, lit_reach_px=lit_reach_px)
     fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
-    if fit is None or fit[2] > DEEP_HOLE_CLEAN_RMS_PX or fit[1] - hole.diameter_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
+    # with the lit stretch held beside the floor, a trace on the rim is round (:data:`DEEP_HOLE_STEP_RMS_PX`:
+    # dev-window-steel6-t22's bore 0.10 px, dev-window-steel4-t22's 11 mm hole 0.15 px); dev-spot-steel-t20's
+    # 10 mm hole, found whole, gave a trace 1 mm outside its rim at 0.44 px
+    clean = DEEP_HOLE_CLEAN_RMS_PX if math.isinf(lit_reach_px) else DEEP_HOLE_STEP_RMS_PX
+    if fit is None or fit[2] > clean or fit[1] - hole.diameter_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
         return None
     if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * fit[1]:
         return None  # the found hole is not inside this opening
@@ -580,6 +639,10 @@ def _deep_hole_circles(
         partly = False
         if fit is None and edge is not None and edge.lit_share > 0:
             fit = _lit_pit_opening(lin, mask, (x, y), d, (x0, y0), hook, mm_per_px, outline, shade_below, part.holes)
+            partly = fit is not None
+        elif fit is None and edge is not None and edge.share >= DEEP_HOLE_MIN_SHARE:
+            # traced all round but no circle: the wall's shade alone, a crescent whose floor looks like the face
+            fit = _crescent_opening(edge, (x0, y0), hook, mm_per_px, outline)
             partly = fit is not None
         if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
             out.append((fit[0], fit[1], fit[3], partly, None, False))
