@@ -26,7 +26,7 @@ from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
-from scanmass.segment.deephole import PitEdge, lit_floor_ring, opening_edge, pit_edge
+from scanmass.segment.deephole import NEAR_PX, SMOOTH_PX, PitEdge, lit_floor_ring, opening_edge, pit_edge
 from scanmass.segment.shadow import PIT_DEPTH, dark_pits
 from scanmass.segment.tintrim import tint_rim
 from scanmass.uncertainty import combine
@@ -129,6 +129,16 @@ TINT_REACH_PX = 4.0
 #: bore, its trace broken by a lit stretch, 0.68 px (-0.29 mm), and opened so it made the part's second
 #: measurement fail.
 TINT_CLEAN_RMS_PX = DEEP_HOLE_CLEAN_RMS_PX
+#: A found hole's floor in its wall's shade is darker than the part's face by more than this many times the
+#: face's own scatter (:func:`_below_face_level`): a band of 3 sigma about a level is common practice for
+#: what noise alone reaches.
+FACE_SHADE_Z = 3.0
+#: The least arc (degrees) of a dark crescent's outer border (its convex hull's arc, :func:`_crescent_opening`)
+#: taken as the rim's: a third of the round bounds a circle's radius and centre well against its own scatter.
+CRESCENT_MIN_ARC_DEG = 120.0
+#: The width of the bins (natural logarithm of the level: 2 %) of the histogram whose peak is a face's most
+#: common level (:func:`_below_face_level`); finer than a face's scatter in a photo (5-10 %).
+FACE_LOG_BIN = 0.02
 
 
 def _near_side(ideal_px: np.ndarray, hook: ElevationHook, centre_top_mm: np.ndarray) -> np.ndarray:
@@ -408,6 +418,95 @@ def _shade_level(lin: np.ndarray, mask: np.ndarray) -> float:
     return PIT_DEPTH * float(np.percentile(lin[deep], DEEP_HOLE_LOW_QUANTILE)) if deep.any() else 0.0
 
 
+def _below_face_level(lin: np.ndarray, mask: np.ndarray) -> float:
+    """The level below which a pixel beside a found hole is darker than the part's face by more than its scatter.
+
+    The face's level is the part's most common level: the peak of a histogram of the logarithms of its pixels
+    more than 3 px inside (smoothed as :func:`~scanmass.segment.deephole.opening_edge` smooths), in bins
+    :data:`FACE_LOG_BIN` wide, smoothed by (1, 2, 1) / 4. Its scatter is read from the peak's upper side
+    only, as the half width at half its height (over 1.1774: a normal peak's, common practice): a hole's
+    shade, a cast shadow the outline took in, the shaded walls and the paper's penumbra all lie off the
+    peak and do not widen it. The level: the face's less :data:`FACE_SHADE_Z` times its scatter (in the
+    logarithm); 0 when the part has too few pixels. A face lit evenly (black plastic in a window's broad
+    light) has a narrow peak, and a hole's floor in its wall's shade at 0.6-0.7 of its level lies clearly
+    below it although not below a pit's :data:`~scanmass.segment.shadow.PIT_DEPTH`. A brushed face's dark
+    sector can lie below it too: the level is used only where the pit's (:func:`_shade_level`) gave the
+    found hole no opening, and the opening is taken only where its trace is a clean circle that holds the
+    found hole (:func:`_shaded_opening`).
+    """
+    deep = cv2.distanceTransform(mask.astype(np.uint8), cv2.DIST_L2, 3) > 3
+    if np.count_nonzero(deep) < 50:
+        return 0.0
+    img = cv2.GaussianBlur(cv2.medianBlur(np.ascontiguousarray(lin, dtype=np.float32), 3), (0, 0), SMOOTH_PX)
+    values = img[deep].astype(float)
+    values = np.log(values[values > 0])
+    if values.size < 50:
+        return 0.0
+    n = max(int(math.ceil((values.max() - values.min()) / FACE_LOG_BIN)), 1)
+    counts, edges = np.histogram(values, bins=n, range=(float(values.min()), float(values.min() + n * FACE_LOG_BIN)))
+    counts = np.convolve(np.r_[0.0, counts, 0.0], [0.25, 0.5, 0.25], "valid")
+    peak = int(np.argmax(counts))
+    upper = np.flatnonzero(counts[peak:] < 0.5 * counts[peak])
+    if upper.size == 0:
+        return 0.0
+    half_width = (float(upper[0]) - 0.5) * FACE_LOG_BIN  # from the peak's bin to where its height is halved
+    sigma = max(half_width, 0.5 * FACE_LOG_BIN) / 1.1774
+    mode = 0.5 * float(edges[peak] + edges[peak + 1])
+    return float(math.exp(mode - FACE_SHADE_Z * sigma))
+
+
+def _crescent_opening(
+    edge: PitEdge, origin: tuple[int, int], hook: ElevationHook, mm_per_px: float, outline: np.ndarray
+) -> tuple[np.ndarray, float, float, float] | None:
+    """A dark pit that is a crescent: the rim's circle from its outer border (centre mm, diameter mm, rms px, doubt px).
+
+    Under a window's light a hole's wall on the window's side is in shade and throws its shade on the floor:
+    seen from above, the dark part of the opening is the top circle less the lit floor, a disc shifted away
+    from the light. Where the face is lit about as the floor (brushed steel facing the window), the floor
+    does not show and the pit is that crescent: its outer border is an arc of the rim, its inner border an
+    arc of the shifted disc, concave, inside the crescent's convex hull. The points of the trace on the hull
+    (within 0.3 px, on the top face's plane) are fitted with a circle, taken where the fit is clean
+    (:data:`DEEP_HOLE_CLEAN_RMS_PX`), the arc spans :data:`CRESCENT_MIN_ARC_DEG`, every traced point lies within
+    the circle (a crescent lies in its disc) and the circle inside the part's ``outline`` with a margin. The
+    doubt: the edge's, times 360 degrees over the arc seen (a partial arc bounds the circle less).
+    """
+    photo = edge.points_px + np.asarray(origin, float)
+    ideal = hook.undistort(photo) if hook.undistort is not None else photo
+    top = apply_h(hook.hh, ideal)
+    if len(top) < 12:
+        return None
+    hull = top[np.sort(cv2.convexHull(top.astype(np.float32), returnPoints=False).ravel())].astype(np.float32)
+    if len(hull) < 3:
+        return None
+    gap = np.array([abs(cv2.pointPolygonTest(hull, (float(a), float(b)), True)) for a, b in top])
+    on = gap < 0.3 * mm_per_px
+    if np.count_nonzero(on) < 12:
+        return None
+    try:
+        fit = fit_circle(top[on])
+    except OptionError:
+        return None
+    if fit.rms_mm > DEEP_HOLE_CLEAN_RMS_PX * mm_per_px:
+        return None
+    centre = np.asarray(fit.centre_mm, float)
+    turn = np.sort(np.degrees(np.arctan2(top[on, 1] - centre[1], top[on, 0] - centre[0])))
+    arc = 360.0 - float(np.max(np.diff(np.r_[turn, turn[0] + 360.0])))
+    if arc < CRESCENT_MIN_ARC_DEG:
+        return None
+    if np.max(np.hypot(*(top - centre).T)) > 0.5 * fit.diameter_mm + max(3 * fit.rms_mm, 0.5 * mm_per_px):
+        return None  # a trace that leaves the circle: no crescent of it
+    ring = centre + 0.5 * fit.diameter_mm * np.column_stack(
+        [
+            np.cos(np.linspace(0, 2 * math.pi, 32, endpoint=False)),
+            np.sin(np.linspace(0, 2 * math.pi, 32, endpoint=False)),
+        ]
+    )
+    if min(cv2.pointPolygonTest(outline, (float(a), float(b)), True) for a, b in ring) < 2 * mm_per_px:
+        return None
+    doubt_px = max(DEEP_HOLE_EDGE_PX, 0.5 * float(np.median(edge.spread_px[on]))) * 360.0 / arc
+    return centre, float(fit.diameter_mm), fit.rms_mm / mm_per_px, doubt_px
+
+
 def _lit_pit_opening(
     lin: np.ndarray,
     mask: np.ndarray,
@@ -460,6 +559,7 @@ def _shaded_opening(
     mm_per_px: float,
     outline: np.ndarray,
     shade_below: float,
+    lit_reach_px: float = math.inf,
 ) -> tuple[np.ndarray, float, float] | None:
     """A found hole that is only the lit part of its floor, with the wall's shade beside it: (centre mm, diameter mm, doubt px).
 
@@ -477,9 +577,13 @@ def _shaded_opening(
     r_seed = math.sqrt(np.count_nonzero(seed) / math.pi)
     # the found lit floor lies at the opening's side: the opening reaches up to twice as far from it
     reach = 2.0 * (1.5 * r_seed + hook.height_mm / mm_per_px + 6.0)
-    edge = opening_edge(seen_lin, seen_mask, seed, reach, shade_below=shade_below)
+    edge = opening_edge(seen_lin, seen_mask, seed, reach, shade_below=shade_below, lit_reach_px=lit_reach_px)
     fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
-    if fit is None or fit[2] > DEEP_HOLE_CLEAN_RMS_PX or fit[1] - hole.diameter_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
+    # with the lit stretch held beside the floor, a trace on the rim is round (:data:`DEEP_HOLE_STEP_RMS_PX`:
+    # dev-window-steel6-t22's bore 0.10 px, dev-window-steel4-t22's 11 mm hole 0.15 px); dev-spot-steel-t20's
+    # 10 mm hole, found whole, gave a trace 1 mm outside its rim at 0.44 px
+    clean = DEEP_HOLE_CLEAN_RMS_PX if math.isinf(lit_reach_px) else DEEP_HOLE_STEP_RMS_PX
+    if fit is None or fit[2] > clean or fit[1] - hole.diameter_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
         return None
     if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * fit[1]:
         return None  # the found hole is not inside this opening
@@ -536,6 +640,10 @@ def _deep_hole_circles(
         if fit is None and edge is not None and edge.lit_share > 0:
             fit = _lit_pit_opening(lin, mask, (x, y), d, (x0, y0), hook, mm_per_px, outline, shade_below, part.holes)
             partly = fit is not None
+        elif fit is None and edge is not None and edge.share >= DEEP_HOLE_MIN_SHARE:
+            # traced all round but no circle: the wall's shade alone, a crescent whose floor looks like the face
+            fit = _crescent_opening(edge, (x0, y0), hook, mm_per_px, outline)
+            partly = fit is not None
         if fit is not None and 0.5 * d <= fit[1] / mm_per_px <= 4 * d:
             out.append((fit[0], fit[1], fit[3], partly, None, False))
     (sx0, sy0, sx1, sy1), seen_mask, rings = seen
@@ -543,6 +651,9 @@ def _deep_hole_circles(
     info = scale.plane_map.photo
     thick_u = 0.0 if info is None or info.thickness is None else float(info.thickness.height_u_mm)
     shade_below = _shade_level(seen_lin, seen_mask)
+    # a found hole's shade where none darker than a pit gives its opening: darker than the face by more than its
+    # own scatter (a face lit evenly; a brushed face's dark sectors would join a pit's shade at that level)
+    shade_faint = _below_face_level(seen_lin, seen_mask)
     for hole, ring in zip(part.holes, rings[1:]):
         seed8 = np.zeros(seen_mask.shape, np.uint8)
         cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)
@@ -550,7 +661,19 @@ def _deep_hole_circles(
         entry = _found_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, thick_u)
         partly = False
         if entry is None:
-            entry = _shaded_opening(hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, shade_below)
+            # the pit's level first, then the face's scatter; each with a lit stretch anywhere in reach, then
+            # only within the far wall's band beside the found floor (a brushed face's lit sector beyond the
+            # rim joins the floor otherwise, and the opening runs over the face)
+            wall_px = _wall_band_px(seed, (sx0, sy0), hook) + NEAR_PX
+            tries = [(shade_below, math.inf), (shade_faint, math.inf), (shade_below, wall_px), (shade_faint, wall_px)]
+            for level, lit_px in tries:
+                if level <= 0 or (level == shade_faint and shade_faint <= shade_below):
+                    continue
+                entry = _shaded_opening(
+                    hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, level, lit_px
+                )
+                if entry is not None:
+                    break
             partly = entry is not None
         tinted = None
         if colour is not None and colour.shape[:2] == image.grey.shape[:2]:

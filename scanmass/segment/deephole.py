@@ -302,6 +302,7 @@ def opening_edge(
     rays: int = RAYS,
     last_step: bool = False,
     shade_below: float = 0.0,
+    lit_reach_px: float = math.inf,
 ) -> PitEdge | None:
     """Trace the border of a hole's whole opening, from the part of it already found (``seed``).
 
@@ -330,6 +331,13 @@ def opening_edge(
         wall's band of its own level (lit less than the floor, more than the face) lies between
         the floor and the face, the midpoint falls inside the band, away from the border, and
         the ray finds no crossing near it.
+    shade_below : float
+        Where above 0, only what is darker than this counts as the opening's shaded side, and dark
+        regions near the seed are joined across the penumbra (:func:`_shade_bridged`).
+    lit_reach_px : float
+        What is brighter than the face counts as the opening only within this distance (px) of the
+        seed: a lit floor's far wall lies beside the floor, while a brushed face's lit sector beyond
+        the rim would lead the opening over the face.
 
     Returns
     -------
@@ -357,6 +365,7 @@ def opening_edge(
     dist = np.hypot(xx - cx, yy - cy)
     away = cv2.distanceTransform((~seed).astype(np.uint8), cv2.DIST_L2, 3)
     ring = part_mask & (away > 3.0) & (away < 8.0)
+    lit_near = away <= lit_reach_px
     region: np.ndarray = seed
     face_level = math.nan
     for _ in range(2):  # the face beside the seed, then beside the opening it leads to
@@ -368,7 +377,7 @@ def opening_edge(
         # with ``shade_below`` only what is darker than a pit counts as the shaded side (a brushed face's dark
         # sector lies between that and the face's band)
         dark_below = shade_below if shade_below > 0 else face_level / FACE_BAND
-        other = ((img < dark_below) | (img > face_level * FACE_BAND)) & (dist < reach_px)
+        other = ((img < dark_below) | ((img > face_level * FACE_BAND) & lit_near)) & (dist < reach_px)
         # closed: where a lit stretch meets a shaded one, the blurred step between them passes the
         # face's level along a line a pixel wide, which must not cut the opening in two
         joined = cv2.morphologyEx((other | seed).astype(np.uint8), cv2.MORPH_CLOSE, np.ones((3, 3), np.uint8))
