@@ -78,7 +78,9 @@ def _part_area_px(path: Path, paper_at_edge: bool) -> tuple[float, list[np.ndarr
 
 def test_contact_shadow_pulls_the_midpoint_edge_out_and_its_level_puts_it_back(tmp_path):
     """Paper 40 % darker at the edge, fading over 1.5 px: the edge +0.40 px out all round with the
-    paper's level taken further out, +0.08 px with the level read at the edge."""
+    paper's level taken further out, -0.10 px with the level read at the edge (the exponential trend
+    half a pixel out reads this painted shade, blurred by 0.8 px, a little deep; stop 30's parabola
+    read it short, +0.08 px)."""
     path = tmp_path / "contact.png"
     truth_px, _ = _contact_photo(path, depth=0.4, fade_px=1.5)
     perimeter = truth_px.exterior.length + truth_px.interiors[0].length
@@ -86,7 +88,7 @@ def test_contact_shadow_pulls_the_midpoint_edge_out_and_its_level_puts_it_back(t
     near, _ = _part_area_px(path, paper_at_edge=True)
     far_px, near_px = (far - truth_px.area) / perimeter, (near - truth_px.area) / perimeter
     assert far_px > 0.3  # the cause, as the renders show it (0.40 px)
-    assert abs(near_px) < 0.12  # 0.08 px: the parabola through 1.6-5 px falls short of the exponential's depth
+    assert abs(near_px) < 0.12  # -0.10 px
     assert abs(near_px) < 0.3 * far_px
 
 
@@ -119,9 +121,11 @@ def test_flat_paper_and_one_sided_shadows_keep_the_levels_further_out(tmp_path):
 
 def test_shadow_depth_reads_an_exponential_profile():
     """A straight edge in a normalised image (1 = part, 0 = paper further out), the paper at
-    ``0.3 exp(-x / 1.5)`` beyond it: half a pixel out the profile is 0.3 exp(-1/3) = 0.215; the
-    parabola through the samples 1.5-5 px out reads 0.182 there (an exponential deepens faster
-    towards the wall than a parabola): short by 15 %, never beyond the profile's own value."""
+    ``0.3 exp(-x / 1.5)`` beyond it: half a pixel out the profile is 0.3 exp(-1/3) = 0.215. The
+    exponential trend through the samples 1.5-5 px out reads 0.227 there: 6 % high, as linear
+    interpolation between the pixel centres reads a convex profile's half-pixel samples high
+    (by ``f'' h^2 / 8``, 5.6 % at a 1.5 px fade; the normal interpolation error, common practice).
+    A parabola through the same samples read 0.182 (15 % short; stop 30's trend), outside the band."""
     size = 80
     cols = np.arange(size, dtype=np.float64)[None, :] - 40.0  # the edge at column 40
     x = np.repeat(cols, size, axis=0)
@@ -133,18 +137,19 @@ def test_shadow_depth_reads_an_exponential_profile():
     depth = edge_shadow_depth(unit, ring[:, :], blur_px=0.3)
     straight = (ring[:, 1] == 40.0) & (ring[:, 0] > 20) & (ring[:, 0] < 60)
     true = 0.3 * math.exp(-0.5 / 1.5)  # the profile drawn
-    assert 0.8 * true <= float(np.median(depth[straight])) <= true
+    assert abs(float(np.median(depth[straight])) - true) <= 0.08 * true
 
 
 @pytest.mark.parametrize(
     "name,shape,area_tol,hole_tol",
     [
         # soft overhead light, black plastic, straight down through a distorting lens: the
-        # outline was 0.3-0.8 px outside all round (+4.7 %, holes 0.6-0.8 mm small); now +0.47 %
+        # outline was 0.3-0.8 px outside all round (+4.7 %, holes 0.6-0.8 mm small); +0.47 % with
+        # stop 30's parabola, -0.49 % with the exponential trend (stop 31)
         ("lens-soft-black-t0", "l-bracket", 0.01, 0.15),
-        # the same light on a 2 mm ring: +3.8 % (bore -0.31 mm), now +1.3 % (-0.11 mm)
+        # the same light on a 2 mm ring: +3.8 % (bore -0.31 mm), +1.3 % (-0.11 mm), now -0.08 % (0.00 mm)
         ("lens-soft-black-t0", "gasket", 0.02, 0.15),
-        # 15 degrees of tilt: +0.93 / +1.93 %, now -0.70 / -0.05 %
+        # 15 degrees of tilt: +0.93 / +1.93 %, then +0.26 / +0.73 %, now -0.03 / -0.00 %
         ("soft-black-t15", "l-bracket", 0.01, 0.1),
         ("soft-black-t15", "gasket", 0.01, 0.1),
     ],

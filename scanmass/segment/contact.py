@@ -9,9 +9,13 @@ value, outside the true edge: by 0.3-0.8 px on the path-traced black parts in so
 (tests/data/reallight), 3-5 % of their area.
 
 :func:`edge_shadow_depth` reads the paper's profile along each boundary point's outward
-normal, 2-5 px beyond the edge (where the edge's own blur tail is taken out), averages it
-along the ring, and extrapolates its straight-line trend back to half a pixel from the
-edge: the darkening there, as a share ``s`` of the part's contrast. Where the paper fades
+normal, 1.5-5 px beyond the edge (where the edge's own blur tail is taken out), averages it
+along the ring, and extrapolates its exponential trend (:func:`_exponential_trend`) back to half
+a pixel from the edge: the darkening there, as a share ``s`` of the part's contrast. The soft-light
+renders' shades fade so, by a near-constant ratio per step (0.65-0.70 per half pixel, 1.2-1.5 px
+fade lengths, on the gasket of tests/data/reallight/soft-black-t15 from 1.5 to 4 px out); a
+parabola through the same samples (stop 30) read the depth at the edge a third to a half short
+there and left those edges 0.05-0.15 px outside. Where the paper fades
 back out (a contact shadow, not a flat cast shadow) and ``s`` is at least
 :data:`MIN_DEPTH`, the edge's level is taken half-way between the part and that darkened
 paper: ``(1 + s) / 2`` in the normalised image (0 = paper further out, 1 = part), which
@@ -47,6 +51,13 @@ ALONG_PX = 3.0
 #: Share of its depth that a contact shadow must fade over the sampled span (a cast
 #: shadow's flat core does not).
 MIN_FADE = 0.4
+#: Shortest fade length (px) of the exponential read back to the edge: a shade that fades
+#: faster lies within the edge's own blur (0.4-0.8 px on the renders) and is not told from its
+#: tail; it bounds the read-back from the first sample (1.5 px out) to e times that sample. The
+#: soft-light renders' shades fade over 1.2-1.5 px (tests/data/reallight, the profile 1.5-5 px out).
+MIN_FADE_LENGTH_PX = 1.0
+#: Samples at or under this share of the contrast are left out of the log fit (noise about 0).
+_LOG_FLOOR = 0.003
 
 
 #: The rise of a step blurred by 0.4 px (sigma) from its edge to 1 px inside: a wall darker
@@ -148,17 +159,45 @@ def edge_shadow_depth(unit: np.ndarray, ring_rc: np.ndarray, blur_px: float) -> 
     out = np.zeros(n)
     if not good.any():
         return out
-    # the trend of each point's averaged profile (a parabola: a contact shadow deepens ever
-    # faster towards the wall), read half a pixel from the edge, at most twice the first sample
+    # the trend of each point's averaged profile (an exponential fade: a contact shadow deepens
+    # ever faster towards the wall), read half a pixel from the edge
     prof = mean[good]
-    design = np.vander(xs - xs[0], 3)
-    coef = np.linalg.lstsq(design, prof.T, rcond=None)[0]
-    at_edge = np.vander(np.array([EDGE_READ_PX - xs[0]]), 3) @ coef
-    at_edge = np.minimum(at_edge[0], 2.0 * prof[:, 0])
+    amplitude, slope = _exponential_trend(prof, xs)
+    at_edge = amplitude * np.exp(slope * EDGE_READ_PX)
     fade = prof[:, 0] - prof[:, -1]
     take = (at_edge >= MIN_DEPTH) & (prof[:, 0] > 0) & (fade >= MIN_FADE * prof[:, 0])
     out[np.flatnonzero(good)[take]] = np.minimum(at_edge[take], MAX_DEPTH)
     return out
+
+
+def _exponential_trend(prof: np.ndarray, xs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each row's exponential trend ``A exp(x k)`` through the profile ``prof`` at ``xs``: (A at x = 0, k).
+
+    A weighted least-squares line through the log of the positive samples (weights ``prof**2``,
+    the inverse variance of a log under additive noise); the fade length ``-1 / k`` is kept at least
+    :data:`MIN_FADE_LENGTH_PX`, a profile that does not fade is read flat (k = 0), and a row with
+    fewer than 3 positive samples reads A = 0.
+
+    Examples
+    --------
+    >>> xs = np.arange(1.5, 5.01, 0.5)
+    >>> a, k = _exponential_trend(0.3 * np.exp(-xs / 1.5)[None, :], xs)
+    >>> round(float(a[0]), 4), round(float(-1 / k[0]), 4)
+    (0.3, 1.5)
+    """
+    ok = prof > _LOG_FLOOR
+    w = np.where(ok, prof, 0.0) ** 2
+    logp = np.log(np.where(ok, prof, 1.0))
+    sw = w.sum(axis=1)
+    safe = np.maximum(sw, 1e-300)
+    mx = (w * xs).sum(axis=1) / safe
+    my = (w * logp).sum(axis=1) / safe
+    sxx = (w * (xs - mx[:, None]) ** 2).sum(axis=1)
+    sxy = (w * (xs - mx[:, None]) * (logp - my[:, None])).sum(axis=1)
+    slope = np.where(sxx > 0, sxy / np.maximum(sxx, 1e-300), 0.0)
+    slope = np.clip(slope, -1.0 / MIN_FADE_LENGTH_PX, 0.0)
+    amplitude = np.where((sw > 0) & (ok.sum(axis=1) >= 3), np.exp(my - slope * mx), 0.0)
+    return amplitude, slope
 
 
 def depth_field(shape: tuple[int, int], rings_rc: list[np.ndarray], depths: list[np.ndarray]) -> np.ndarray:
