@@ -120,7 +120,7 @@ def test_thickness_read_at_the_walls_foot_in_shade(name: str, shape: str) -> Non
     part = nearest_part(m, tp)
     read = m.settings["thickness_estimate"]["parts"][str(part.label)]
     assert read["cue"] == "wall foot"
-    # the truth file's thickness within 2 of the reading's stated sigmas (the probe's readings lie within 0.2)
+    # the truth file's thickness within 2 of the reading's stated sigmas (benchmarks/probe_wall_foot.py: within 0.2 sigma)
     assert abs(read["thickness_mm"] - tp["t"]) <= 2 * read["thickness_u_mm"], (read, tp["t"])
     assert "thickness_estimate" in part.uncertainty_terms
     assert_within_3_sigma(part, tp)

@@ -88,9 +88,13 @@ SMOOTH_VERTICES = 61
 SHADOW_INWARD_PX = 8.0
 #: The third try where the first two read nothing (:func:`wall_thickness`, the foot of a wall in shade): each
 #: profile less its Gaussian blur of this sigma (px) is scored, every profile kept. The lens's blur in the committed
-#: renders is about 1 px; a cast shadow's penumbra is several px wide (a 5 cm light 0.5 m away spreads a 3-8 mm
-#: wall's shadow edge over 0.3-0.8 mm, 1-3 px at 0.3 mm/px), so the high-pass keeps the wall's edges and drops the
-#: shadow's outer edge, which the paper-beside test (:data:`PAPER_BESIDE`) is there to keep out.
+#: renders is about 1 px; a cast shadow's outer edge is a penumbra about t D / d wide behind a wall t high under a
+#: light D across at distance d (geometric estimate: the renders' spot and warm lights are 10 cm across at about
+#: 0.5 m, 0.6-1.6 mm for 3-8 mm parts, 2-5 px at 0.3 mm/px; window and area lights wider still), so the high-pass
+#: keeps the wall's two edges and takes out most of the shadow's outer edge, which the paper-beside test
+#: (:data:`PAPER_BESIDE`) keeps out of the first try. On the tuned renders (benchmarks/probe_wall_foot.py, variant
+#: ``sharp``) 2 px read 64 of 114 parts, all within 2.4 sigma; the try runs only where :data:`MIN_WALL_VERTICES`
+#: profiles are in shade and the whole wall and its stretches agree.
 SHARP_BLUR_PX = 2.0
 #: Estimates closer than this (mm) are measured again in one run, at their mean.
 SAME_THICKNESS_MM = 0.2
