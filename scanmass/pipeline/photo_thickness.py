@@ -332,8 +332,8 @@ def _one_part(
 ) -> WallThickness:
     """:func:`wall_thickness` for one part; ``tops_seen`` from :func:`_tops_seen` (the same for every part).
 
-    With ``sharp_px`` (the third try, :data:`SHARP_BLUR_PX`), the profiles in shade are kept (the wall's foot
-    meeting the part's own cast shadow) and each profile less its blur by that many px is scored: the wall's two
+    With ``sharp_px`` (the third try, :data:`SHARP_BLUR_PX`), a part with at least :data:`MIN_WALL_VERTICES`
+    profiles in shade (the wall's foot meeting the part's own cast shadow) keeps them all and each profile less its blur by that many px is scored: the wall's two
     edges are as sharp as the lens makes them, the shadow's outer edge is a penumbra several px wide and drops
     out; the reading counts only where the whole wall's and its stretches' agree, as with ``smooth`` (``cue``
     ``"wall foot"``).
