@@ -95,7 +95,7 @@ def test_a_foot_reading_yields_to_the_rims_where_they_disagree():
     foot = WallThickness(3, 1.7, 1.2, 2.0, cue="wall foot")
     rim = WallThickness(3, 4.2, 1.0, cue="rim")
     (got,) = fused([foot], [rim])
-    assert got.cue == "rim" and got.thickness_mm == pytest.approx(4.2) and got.sigma_mm == pytest.approx(2.5)
+    assert got.cue == "rim" and got.thickness_mm == pytest.approx(4.2) and got.sigma_mm == pytest.approx(1.0)
     plain = WallThickness(3, 1.7, 1.2, 2.0, cue="wall")  # the first try's band keeps its reading, as before
     (kept,) = fused([plain], [rim])
     assert kept.cue == "wall" and kept.thickness_mm == pytest.approx(1.7)

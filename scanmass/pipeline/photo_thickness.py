@@ -694,8 +694,8 @@ def fused(walls: list[WallThickness], rims: list[WallThickness]) -> list[WallThi
     the root sum of squares of their sigmas, takes their inverse-variance mean and its sigma
     (``cue`` ``"wall+rim"``); where they disagree, the wall estimate stays with its sigma widened to
     the difference (both within 1 sigma of it), but a reading of the wall's foot (``cue`` ``"wall foot"``,
-    the last and least sure try) yields to the rims' reading, widened so. Parts without a wall estimate
-    keep their reason.
+    the last and least sure try, made only for want of another reading) gives way to the rims' reading as it
+    is. Parts without a wall estimate keep their reason.
     """
     by_label = {r.label: r for r in rims}
     out = []
@@ -709,8 +709,8 @@ def fused(walls: list[WallThickness], rims: list[WallThickness]) -> list[WallThi
             a, b = 1.0 / w.sigma_mm**2, 1.0 / r.sigma_mm**2
             t = (a * w.thickness_mm + b * r.thickness_mm) / (a + b)
             out.append(replace(w, thickness_mm=t, sigma_mm=1.0 / math.sqrt(a + b), cue="wall+rim"))
-        elif w.cue == "wall foot":  # the last try yields to the rims: their reading stays, its sigma widened
-            out.append(replace(r, sigma_mm=max(r.sigma_mm, abs(w.thickness_mm - r.thickness_mm))))
+        elif w.cue == "wall foot":  # the last try, run only for want of a reading, yields to the rims' reading
+            out.append(r)
         else:
             out.append(replace(w, sigma_mm=max(w.sigma_mm, abs(w.thickness_mm - r.thickness_mm))))
     return out + list(by_label.values())
