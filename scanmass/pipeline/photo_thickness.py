@@ -14,6 +14,7 @@ from dataclasses import dataclass, field, fields, replace
 
 import cv2
 import numpy as np
+from scipy.ndimage import gaussian_filter1d
 
 from scanmass.errors import ScanmassError
 from scanmass.geometry import signed_area, vertex_normals
@@ -85,6 +86,16 @@ STRETCH_FACE_PX = 1.5
 #: them without the agreement read 2-6 of them, among them readings 3.9-5.9 mm off (2.8-4.2 sigma).
 SMOOTH_VERTICES = 61
 SHADOW_INWARD_PX = 8.0
+#: The third try where the first two read nothing (:func:`wall_thickness`, the foot of a wall in shade): each
+#: profile less its Gaussian blur of this sigma (px) is scored, every profile kept. The lens's blur in the committed
+#: renders is about 1 px; a cast shadow's outer edge is a penumbra about t D / d wide behind a wall t high under a
+#: light D across at distance d (geometric estimate: the renders' spot and warm lights are 10 cm across at about
+#: 0.5 m, 0.6-1.6 mm for 3-8 mm parts, 2-5 px at 0.3 mm/px; window and area lights wider still), so the high-pass
+#: keeps the wall's two edges and takes out most of the shadow's outer edge, which the paper-beside test
+#: (:data:`PAPER_BESIDE`) keeps out of the first try. On the tuned renders (benchmarks/probe_wall_foot.py, variant
+#: ``sharp``) 2 px read 64 of 114 parts, all within 2.4 sigma; the try runs only where :data:`MIN_WALL_VERTICES`
+#: profiles are in shade and the whole wall and its stretches agree.
+SHARP_BLUR_PX = 2.0
 #: Estimates closer than this (mm) are measured again in one run, at their mean.
 SAME_THICKNESS_MM = 0.2
 #: Lowest elevation (degrees) of the light for the reach beside a lifted part within which a region the
@@ -258,6 +269,31 @@ def _tops_seen(scale: PhotoScale) -> list[np.ndarray]:
     return [np.linalg.inv(e) for e in footprint_maps_mm(h0, k, THICKNESS_GRID_MM)]
 
 
+def seen_band_px(
+    to_px: Callable[[np.ndarray], np.ndarray], tops_seen: list[np.ndarray], x_mm: np.ndarray, n_px: np.ndarray
+) -> np.ndarray:
+    """Per trial thickness and boundary point: the width (px) across the outline of the side wall seen there.
+
+    ``x_mm`` (N, 2) are points of the wall's foot on the mat, ``n_px`` (N, 2) their outward unit normals in
+    ideal pixels, ``tops_seen`` one map (mm -> mm, :func:`_tops_seen`) per thickness from a foot point to where
+    the top edge above it is seen, and ``to_px`` the plane map's mm -> ideal px. The width is the top edge's
+    image less the foot's, along the inward normal: positive where the wall faces the camera (it shows between
+    the top face's edge and its foot), negative where the top face hides it.
+
+    References
+    ----------
+    Hartley, R. and Zisserman, A. (2004) *Multiple View Geometry in Computer Vision*, 2nd ed., section 6.1
+    (the pinhole camera: under a camera straight down from height H, a vertical edge of height t at ground
+    distance r from the nadir spans r t / (H - t) on the mat).
+    """
+    p0 = to_px(x_mm)
+    bands = np.empty((len(tops_seen), len(x_mm)))
+    for i, top_seen in enumerate(tops_seen):
+        seen = apply_h(top_seen, x_mm)  # the top edge above x
+        bands[i] = -np.sum(n_px * (to_px(seen) - p0), axis=1)  # inward: the wall faces the camera
+    return bands
+
+
 def _smooth_normals(ring: np.ndarray, k: int) -> np.ndarray:
     """A closed ring's unit vertex normals (:func:`~scanmass.geometry.vertex_normals`), each the mean of ``k`` consecutive ones.
 
@@ -292,8 +328,15 @@ def _one_part(
     tops_seen: list[np.ndarray],
     smooth: int = 0,
     inward_px: float = 0.0,
+    sharp_px: float = 0.0,
 ) -> WallThickness:
     """:func:`wall_thickness` for one part; ``tops_seen`` from :func:`_tops_seen` (the same for every part).
+
+    With ``sharp_px`` (the third try, :data:`SHARP_BLUR_PX`), a part with at least :data:`MIN_WALL_VERTICES`
+    profiles in shade (the wall's foot meeting the part's own cast shadow) keeps them all and each profile less its blur by that many px is scored: the wall's two
+    edges are as sharp as the lens makes them, the shadow's outer edge is a penumbra several px wide and drops
+    out; the reading counts only where the whole wall's and its stretches' agree, as with ``smooth`` (``cue``
+    ``"wall foot"``).
 
     With ``smooth`` (the second try, :data:`SMOOTH_VERTICES`), each vertex's normal is the mean of that many
     vertices' normals, the bottom edge is looked for up to ``inward_px`` inside the outline as well, and a
@@ -309,10 +352,7 @@ def _one_part(
     p0 = pm.to_px(x_mm)
     d = pm.to_px(x_mm + 0.05 * n_mm) - p0
     n_px = d / np.maximum(np.linalg.norm(d, axis=1), 1e-12)[:, None]  # away from the material
-    bands = np.empty((len(THICKNESS_GRID_MM), len(x_mm)))
-    for i, top_seen in enumerate(tops_seen):
-        seen = apply_h(top_seen, x_mm)  # the top edge above x
-        bands[i] = -np.sum(n_px * (pm.to_px(seen) - p0), axis=1)  # inward: the wall faces the camera
+    bands = seen_band_px(pm.to_px, tops_seen, x_mm, n_px)
     near = bands[-1] > 2 * MIN_BAND_PX
     if np.count_nonzero(near) < MIN_WALL_VERTICES:
         return WallThickness(part.label, None, reason="too little of its side wall faces the camera")
@@ -327,6 +367,13 @@ def _one_part(
     prof = _linear_profiles(grey, table, pts.astype(np.float32))
     outside = prof[:, : int(round(2.0 / PROFILE_STEP_PX))].mean(axis=1)  # 1-3 px beyond the widest wall
     clear = outside >= PAPER_BESIDE * np.percentile(outside, 90)
+    if sharp_px:
+        if np.count_nonzero(~clear) < MIN_WALL_VERTICES:
+            return WallThickness(
+                part.label, None, reason="no wall band stands out from its edges (low contrast, or hidden)"
+            )
+        clear = np.ones_like(clear)
+        prof = prof - gaussian_filter1d(prof, sharp_px / PROFILE_STEP_PX, axis=1, mode="nearest")
     if np.count_nonzero(clear) < MIN_WALL_VERTICES:
         return WallThickness(part.label, None, reason="the paper beside its wall facing the camera is in shadow")
     prof, bands = prof[clear], bands[:, clear]
@@ -341,7 +388,9 @@ def _one_part(
         order = np.flatnonzero(near)[clear]
         on_face = _face_test(pm.to_px, rings, p0[clear], n_px[clear])
         stretched = (
-            None if smooth else _stretch_reading(grad, s_px, bands, order, ring_of[order], on_face, table=scores)
+            None
+            if smooth or sharp_px
+            else _stretch_reading(grad, s_px, bands, order, ring_of[order], on_face, table=scores)
         )
         if stretched is not None:
             return replace(stretched, label=part.label)
@@ -359,7 +408,7 @@ def _one_part(
     t = max(t - READ_EXCESS_MM, float(THICKNESS_GRID_MM[0]))
     sigma = math.hypot(width / 2.355, SIGMA_SHARE * t + SIGMA_FLOOR_MM)
     top_edge = float(np.median(starts[peak] / np.maximum(bands[peak], 1e-9))) < -0.5
-    if not smooth:
+    if not smooth and not sharp_px:
         return WallThickness(part.label, t, sigma, band, top_edge)
     # the second try: its stretches read alone must agree with the whole wall
     order = np.flatnonzero(near)[clear]
@@ -370,7 +419,8 @@ def _one_part(
     apart = abs(parts_read.thickness_mm - t)
     if apart > math.hypot(parts_read.sigma_mm, sigma):
         return WallThickness(part.label, None, reason=unread)
-    return WallThickness(part.label, t, max(sigma, parts_read.sigma_mm, apart), band, top_edge, cue="wall smoothed")
+    cue = "wall foot" if sharp_px else "wall smoothed"
+    return WallThickness(part.label, t, max(sigma, parts_read.sigma_mm, apart), band, top_edge, cue=cue)
 
 
 def _peak_of(curve: np.ndarray) -> tuple[int, float]:
@@ -515,6 +565,9 @@ def wall_thickness(image: LoadedImage, scale: PhotoScale, result: Measurement) -
         if one.thickness_mm is None:
             again = _one_part(image.grey, table, scale, part, tops_seen, SMOOTH_VERTICES, SHADOW_INWARD_PX)
             one = one if again.thickness_mm is None else again
+        if one.thickness_mm is None:
+            again = _one_part(image.grey, table, scale, part, tops_seen, sharp_px=SHARP_BLUR_PX)
+            one = one if again.thickness_mm is None else again
         out.append(one)
     return out
 
@@ -640,7 +693,9 @@ def fused(walls: list[WallThickness], rims: list[WallThickness]) -> list[WallThi
     A part read by its rims only takes that reading; a part read by both, where the two agree within
     the root sum of squares of their sigmas, takes their inverse-variance mean and its sigma
     (``cue`` ``"wall+rim"``); where they disagree, the wall estimate stays with its sigma widened to
-    the difference (both within 1 sigma of it). Parts without a wall estimate keep their reason.
+    the difference (both within 1 sigma of it), but a reading of the wall's foot (``cue`` ``"wall foot"``,
+    the last and least sure try, made only for want of another reading) gives way to the rims' reading as it
+    is. Parts without a wall estimate keep their reason.
     """
     by_label = {r.label: r for r in rims}
     out = []
@@ -654,6 +709,8 @@ def fused(walls: list[WallThickness], rims: list[WallThickness]) -> list[WallThi
             a, b = 1.0 / w.sigma_mm**2, 1.0 / r.sigma_mm**2
             t = (a * w.thickness_mm + b * r.thickness_mm) / (a + b)
             out.append(replace(w, thickness_mm=t, sigma_mm=1.0 / math.sqrt(a + b), cue="wall+rim"))
+        elif w.cue == "wall foot":  # the last try, run only for want of a reading, yields to the rims' reading
+            out.append(r)
         else:
             out.append(replace(w, sigma_mm=max(w.sigma_mm, abs(w.thickness_mm - r.thickness_mm))))
     return out + list(by_label.values())
@@ -806,6 +863,7 @@ def with_wall_thickness(
             "wall+rim": " (its wall band and round rims agreeing)",
             "wall stretches": " (from stretches of its wall band that agree)",
             "wall smoothed": " (its wall band read along its outline's mean direction, whole and in stretches agreeing)",
+            "wall foot": " (the sharp edges of its wall band, its foot meeting its shadow, whole and in stretches agreeing)",
         }.get(est.cue, "")
         said.append(f"part {est.label} {est.thickness_mm:.1f} +- {est.sigma_mm:.1f} mm{how}")
         hole_u = [circle_change(h, hu)[0] / 1.5 for h, hu in zip(holes, holes_u)]
@@ -841,6 +899,12 @@ def with_wall_thickness(
     ]
 
 
+def _run_of(warning: str) -> str:
+    """The label of the part whose run a warning of :func:`measured_again` came from ("... for part L, there ...")."""
+    head = warning.split(")", 1)[0]
+    return head.rsplit(" for part ", 1)[-1].split(",", 1)[0]
+
+
 def measured_again(
     result: Measurement, walls: list[WallThickness], again: Callable[[float, float], Measurement]
 ) -> None:
@@ -860,7 +924,9 @@ def measured_again(
     (no part of it within a quarter of the region's largest width) was a piece of that part's side
     wall or of its reflection, which the plane map without the thickness leaves beside its face
     (dev-window-steel5-t14's brass collar 3.5 mm: five pieces of its lit outer wall and its bore's
-    wall, 21-92 mm², found as parts): it is dropped, with a warning naming it.
+    wall, 21-92 mm², found as parts): it is dropped, with a warning naming it. A region read by its
+    wall's foot alone (``cue`` ``"wall foot"``) is not kept from this test by its reading (a 62 mm² piece
+    of that collar's lit wall reads 1.5 mm so); a dropped region's own run leaves no warning or record.
     """
     groups: list[list[WallThickness]] = []
     for w in sorted(walls, key=lambda w: float(w.thickness_mm or 0.0)):
@@ -871,7 +937,8 @@ def measured_again(
     record = result.settings.get("thickness_estimate", {}).get("parts", {})
     again_labels = []
     pieces: dict[int, str] = {}  # index of a region dropped as a piece of a lifted part: that part's label
-    lifted = {str(w.label) for w in walls}
+    # a region read by its wall's foot alone (the last and least sure try) may still be a piece of another part
+    lifted = {str(w.label) for w in walls if w.cue != "wall foot"}
     for group in groups:
         ts = [float(w.thickness_mm or 0.0) for w in group]
         t = float(np.mean(ts))
@@ -908,6 +975,7 @@ def measured_again(
             for i, q in enumerate(result.parts):
                 if (
                     str(q.label) not in lifted
+                    and q.label != part.label
                     and q.area_mm2 < PIECE_MAX_AREA_SHARE * match.area_mm2
                     and math.dist(q.centroid_mm, part.centroid_mm) < reach
                     and not any(math.dist(o.centroid_mm, q.centroid_mm) < 0.25 * q.caliper_max_mm for o in other.parts)
@@ -926,7 +994,14 @@ def measured_again(
             "read, but not found in that measurement (a piece of the part's side wall or of its reflection); give "
             "--thickness as measured with calipers to measure the photo in one pass"
         )
+        dropped = {str(result.parts[i].label) for i in pieces}
         result.parts[:] = [p for i, p in enumerate(result.parts) if i not in pieces]
+        again_labels = [label for label in again_labels if label not in dropped]
+        for label in dropped:
+            record.pop(label, None)
+        result.warnings[:] = [
+            x for x in result.warnings if not (x.startswith("(measured again at ") and _run_of(x) in dropped)
+        ]
     if again_labels:
         result.warnings.append(
             f"part(s) {', '.join(again_labels)} measured again with the thickness read from their side walls given as "
