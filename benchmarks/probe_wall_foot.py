@@ -140,14 +140,8 @@ def _read(
         return None, 0.0, shade_share, f"no peak (prom {prominence:.3f})"
     if band < pt.MIN_BAND_PX:
         return None, 0.0, shade_share, f"band {band:.1f}px"
-    half = curve >= curve[peak] - 0.5 * prominence
-    lo = hi = peak
-    while lo > 0 and half[lo - 1]:
-        lo -= 1
-    while hi < len(curve) - 1 and half[hi + 1]:
-        hi += 1
     t = max(pt._vertex_mm(curve, peak) - pt.READ_EXCESS_MM, float(pt.THICKNESS_GRID_MM[0]))
-    width = float(pt.THICKNESS_GRID_MM[hi] - pt.THICKNESS_GRID_MM[lo])
+    width = pt.half_height_width_mm(curve, peak, prominence)
     sigma = math.hypot(width / 2.355, pt.SIGMA_SHARE * t + pt.SIGMA_FLOOR_MM)
     return t, sigma, shade_share, f"prom {prominence:.3f}"
 

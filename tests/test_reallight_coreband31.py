@@ -88,18 +88,19 @@ def test_pinhole_wall_on_the_arm_end() -> None:
     assert sorted(round(e.length) for e in edges) == [12, 34]
 
 
+def _truth_outer(name: str, shape: str) -> Polygon:
+    """The outer outline the renderer extruded for ``shape`` (the render's truth JSON), as a shapely polygon."""
+    (p,) = [q for q in json.loads((REALLIGHT / f"{name}.json").read_text())["parts"] if q["shape"] == shape]
+    return Polygon(p["outline_mm"])
+
+
 @_dev
 @pytest.mark.slow
 def test_walled_shadow_side_on_the_truth() -> None:
     """dev-lens-window-steel2-t16's bracket: its edges facing away from the light that show their wall run within
     half a pixel of the truth's, as the lit edges do (+0.44 mm at the start of stop 31: wall and core left in)."""
     _m, part, _tp = measured_part("dev-lens-window-steel2-t16", "l-bracket")
-    (p,) = [
-        q
-        for q in json.loads((REALLIGHT / "dev-lens-window-steel2-t16.json").read_text())["parts"]
-        if q["shape"] == "l-bracket"
-    ]
-    truth = Polygon(p["outline_mm"])  # shapely: the truth's outer outline
+    truth = _truth_outer("dev-lens-window-steel2-t16", "l-bracket")  # shapely: the truth's outer outline
     measured = Polygon(np.asarray(part.outline_mm)).buffer(0)
     edges = _edges_away_with_wall("dev-lens-window-steel2-t16", "l-bracket")
     zone = unary_union([e.buffer(BAND_MM, cap_style=2) for e in edges])
@@ -113,12 +114,7 @@ def test_walled_shadow_side_on_the_truth() -> None:
 def test_bracket_outer_outline_within_target() -> None:
     """dev-lens-window-steel2-t16's bracket: issue 11's worst-area target (1 %) on its outer outline (+1.86 % before)."""
     _m, part, _tp = measured_part("dev-lens-window-steel2-t16", "l-bracket")
-    (p,) = [
-        q
-        for q in json.loads((REALLIGHT / "dev-lens-window-steel2-t16.json").read_text())["parts"]
-        if q["shape"] == "l-bracket"
-    ]
-    truth = Polygon(p["outline_mm"])  # shapely: the truth's outer outline
+    truth = _truth_outer("dev-lens-window-steel2-t16", "l-bracket")  # shapely: the truth's outer outline
     measured = Polygon(np.asarray(part.outline_mm)).buffer(0)
     assert math.isclose(measured.area, truth.area, rel_tol=OUTLINE_TARGET), (measured.area, truth.area)
 

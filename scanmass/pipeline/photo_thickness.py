@@ -397,15 +397,8 @@ def _one_part(
         return WallThickness(part.label, None, reason=unread)
     if band < MIN_BAND_PX:
         return WallThickness(part.label, None, reason=f"its side wall is only {band:.1f} px wide (little tilt)")
-    half = curve >= curve[peak] - 0.5 * prominence
-    lo = hi = peak
-    while lo > 0 and half[lo - 1]:
-        lo -= 1
-    while hi < len(curve) - 1 and half[hi + 1]:
-        hi += 1
-    t = _vertex_mm(curve, peak)
-    width = float(THICKNESS_GRID_MM[hi] - THICKNESS_GRID_MM[lo])
-    t = max(t - READ_EXCESS_MM, float(THICKNESS_GRID_MM[0]))
+    width = half_height_width_mm(curve, peak, prominence)
+    t = max(_vertex_mm(curve, peak) - READ_EXCESS_MM, float(THICKNESS_GRID_MM[0]))
     sigma = math.hypot(width / 2.355, SIGMA_SHARE * t + SIGMA_FLOOR_MM)
     top_edge = float(np.median(starts[peak] / np.maximum(bands[peak], 1e-9))) < -0.5
     if not smooth and not sharp_px:
@@ -427,6 +420,17 @@ def _peak_of(curve: np.ndarray) -> tuple[int, float]:
     """A score curve's highest point and its prominence: how far it rises above the lower of its two flanks' lowest."""
     peak = int(np.argmax(curve))
     return peak, float(curve[peak] - max(curve[: peak + 1].min(), curve[peak:].min()))
+
+
+def half_height_width_mm(curve: np.ndarray, peak: int, prominence: float) -> float:
+    """The width (mm of thickness) of a score curve's peak, where it stays above half its prominence."""
+    half = curve >= curve[peak] - 0.5 * prominence
+    lo = hi = peak
+    while lo > 0 and half[lo - 1]:
+        lo -= 1
+    while hi < len(curve) - 1 and half[hi + 1]:
+        hi += 1
+    return float(THICKNESS_GRID_MM[hi] - THICKNESS_GRID_MM[lo])
 
 
 def _vertex_mm(curve: np.ndarray, peak: int) -> float:
