@@ -105,13 +105,13 @@ def test_too_small_a_region_reads_nothing():
 def _region_textures(name: str, thickness_mm: float, monkeypatch, white_faces_off: bool = False) -> list:
     """(centroid mm, named 'shadow only', texture) of the regions a render's measurement found."""
     import cv2
+    from _reallight_truth import REALLIGHT
 
     import scanmass
     from scanmass.errors import ScanmassError
     from scanmass.pipeline import flow, photo_shadows
     from scanmass.pipeline.part_terms import UNKNOWN_THICKNESS_MM
     from scanmass.segment.shadow import shadow_band_px
-    from tests._reallight_truth import REALLIGHT
 
     original = flow._shadows_only
     found: list = []
@@ -156,7 +156,7 @@ def test_the_steel_face_named_shadow_only_is_as_grainy_as_a_shadow_alone(monkeyp
     the white parts on window-nylon-t0 (white faces' search off, so that they stay regions named 'shadow only'): on
     these renders the paper in shade is as grainy as lit steel (the path tracer's noise) and the steel has no grain
     of its own."""
-    from tests._reallight_truth import truth_part
+    from _reallight_truth import truth_part
 
     steel = _region_textures("dev-lens-window-steel4-t20", 3.5, monkeypatch)
     gasket = truth_part("dev-lens-window-steel4-t20", "gasket")
