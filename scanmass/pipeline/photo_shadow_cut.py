@@ -28,6 +28,7 @@ from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.castshadow import core_cut, shadow_cut, sweep_direction
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
+from scanmass.segment.crescent import crescent_cut
 from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
 from scanmass.segment.facelevel import cut_at_face_level, face_above_core
 from scanmass.segment.farband import far_band_taken
@@ -501,6 +502,9 @@ def _decide_cuts(
                 # a brushed face too grainy for the shadow's grain to tell it: the shadow's tint (the paper's)
                 # against the face's, along the same light
                 cut = tint_step_cut(colour_lin, mask, risk.paper_rgb, band_px, light[0], witness_px=light[1])
+            if cut is None and short is None and light is not None:
+                # no cut at all, the whole shadow left (a ring's crescent): eroded back along the light to the face
+                cut = crescent_cut(colour_lin, mask, risk.paper_rgb, band_px, light[0])
             if cut is None:
                 cut = short
         if phase == 2 and risk is not None:
