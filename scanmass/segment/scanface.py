@@ -436,12 +436,12 @@ def _face_from_seed(
     # local background next to each face edge: the lid, the shadow, or a hole's floor
     grown = cv2.dilate(face0, kernel, iterations=3).astype(bool)
     background = _normalised_blur(linear, ~grown, 4.0, lid)
-    # ... where that is the lamp's shadow, read close to the edge: the shadow darkens towards the wall
-    near = _normalised_blur(
-        linear, ~cv2.dilate(face0, kernel, iterations=SHADOW_READ_GROW_PX).astype(bool), SHADOW_READ_SIGMA_PX, lid
-    )
-    in_shadow = (found.astype(bool) & ~grown & near_shadow).astype(np.uint8)
-    background = np.where(cv2.dilate(in_shadow, kernel, iterations=SHADOW_READ_REACH_PX).astype(bool), near, background)
+    if near_shadow:  # ... where that is the lamp's shadow, read close to the edge: it darkens towards the wall
+        near = _normalised_blur(
+            linear, ~cv2.dilate(face0, kernel, iterations=SHADOW_READ_GROW_PX).astype(bool), SHADOW_READ_SIGMA_PX, lid
+        )
+        in_shadow = cv2.dilate((found.astype(bool) & ~grown).astype(np.uint8), kernel, iterations=SHADOW_READ_REACH_PX)
+        background = np.where(in_shadow.astype(bool), near, background)
     band = cv2.dilate(face0, kernel, iterations=4).astype(bool) & ~cv2.erode(face0, kernel, iterations=4).astype(bool)
     contrast = part - background
     safe = np.where(np.abs(contrast) < 0.02 * (lid - part_level), -0.02 * (lid - part_level), contrast)
