@@ -72,6 +72,18 @@ MIN_SHADOW_STEP = 0.03
 FACE_SEED = 0.1
 
 
+#: The shadow's level beside the face's edge against it is read from pixels this far out (the face grown
+#: by this many 3x3 steps) and blurred with this sigma (px), not the lid's 3 px and 4 px: the lid's shadow
+#: darkens towards the part's wall (the housing's scattered light reaches less of the lid near it), so a
+#: level averaged 3-12 px out lies above the shadow's at the edge and put the midpoint, and the edge, in
+#: the shadow (black plastic, tuned set: the shadow-side edges +0.10 to +0.14 px out against the truth
+#: outlines, the lamp-side ones +0.00 to +0.01 px; read 2-6 px out: +0.05 to +0.09 px). 2 px is the nearest
+#: read outside a scan edge's blur (about 1 px).
+SHADOW_READ_GROW_PX = 2
+SHADOW_READ_SIGMA_PX = 2.0
+#: Pixels within this many 3x3 steps of the found region's part outside the face (the shadow) take the near read.
+SHADOW_READ_REACH_PX = 5
+
 #: A part as dark as its shadow is separated by the sweep (the shadow's length from the sharp step behind
 #: its soft front) when the step's mean gradient there stands this many times above the search's median.
 SWEEP_MIN_PROMINENCE = 4.0
@@ -362,7 +374,10 @@ def scan_face(
     face0 = np.asarray(comp == biggest, dtype=np.uint8)
     if face0.sum() < 0.3 * total:
         return _face_by_sweep(linear, ctx, min_hole_px, hard=sweep is not None) or _unseparated(ctx, total)
-    by_level = _face_from_seed(linear, ctx, face0, part, gap, min_hole_px)
+    # (the shadow's level read near the edge only for a face the level tells surely: one nearly as dark as its
+    # shadow has a seed that runs on into it)
+    sure = gap >= FACE_DOUBT_CONTRAST * (lid - part)
+    by_level = _face_from_seed(linear, ctx, face0, part, gap, min_hole_px, near_shadow=sure)
     if by_level is None:
         return _face_by_sweep(linear, ctx, min_hole_px, hard=sweep is not None) or _unseparated(ctx, total)
     if gap < FACE_DOUBT_CONTRAST * (lid - part):
@@ -393,6 +408,7 @@ def _face_from_seed(
     sharp_holes: bool = False,
     not_face: np.ndarray | None = None,
     cast_px: int | None = None,
+    near_shadow: bool = False,
 ) -> FaceResult | None:
     """The face's rings from a seed region at the part's level, placed by the local levels either side.
 
@@ -407,7 +423,8 @@ def _face_from_seed(
     counts as face whatever its level. With ``cast_px`` (the sweep's shadow length, px) a
     removed pixel the face's own shadow reaches (the face swept that far along the lamp's
     direction) is a cast shadow wherever the face lies beyond it: the shadow one arm of an
-    L bracket throws into the inner corner ends at the other arm.
+    L bracket throws into the inner corner ends at the other arm. With ``near_shadow`` the shadow's level
+    beside the face is read close to the edge (:data:`SHADOW_READ_GROW_PX`): a seed whose edge is sure.
     """
     from scanmass.segment.rings import _blur_from_gradient, _refine_vertices, correct_curvature
 
@@ -419,6 +436,12 @@ def _face_from_seed(
     # local background next to each face edge: the lid, the shadow, or a hole's floor
     grown = cv2.dilate(face0, kernel, iterations=3).astype(bool)
     background = _normalised_blur(linear, ~grown, 4.0, lid)
+    if near_shadow:  # ... where that is the lamp's shadow, read close to the edge: it darkens towards the wall
+        near = _normalised_blur(
+            linear, ~cv2.dilate(face0, kernel, iterations=SHADOW_READ_GROW_PX).astype(bool), SHADOW_READ_SIGMA_PX, lid
+        )
+        in_shadow = cv2.dilate((found.astype(bool) & ~grown).astype(np.uint8), kernel, iterations=SHADOW_READ_REACH_PX)
+        background = np.where(in_shadow.astype(bool), near, background)
     band = cv2.dilate(face0, kernel, iterations=4).astype(bool) & ~cv2.erode(face0, kernel, iterations=4).astype(bool)
     contrast = part - background
     safe = np.where(np.abs(contrast) < 0.02 * (lid - part_level), -0.02 * (lid - part_level), contrast)
@@ -876,8 +899,19 @@ def _face_by_sweep(linear: np.ndarray, ctx: _Found, min_hole_px: float, *, hard:
         return None
     face0 = np.asarray(comp == 1 + int(np.argmax(stats[1:, cv2.CC_STAT_AREA])), dtype=np.uint8)
     part_surface = _normalised_blur(linear, face0.astype(bool), SWEEP_LEVEL_SIGMA_PX, ctx.levels[2])
+    # the shadow's level read near the edge where the step to it is one the level alone would tell
+    sure = step >= MIN_FACE_SHADOW_CONTRAST * (ctx.levels[0] - ctx.levels[2])
     face = _face_from_seed(
-        linear, ctx, face0, part_surface, step, min_hole_px, sharp_holes=True, not_face=hole, cast_px=reach + 3
+        linear,
+        ctx,
+        face0,
+        part_surface,
+        step,
+        min_hole_px,
+        sharp_holes=True,
+        not_face=hole,
+        cast_px=reach + 3,
+        near_shadow=sure,
     )
     return None if face is None else replace(face, local_levels=True, note="separated by the sweep")
 
