@@ -400,6 +400,7 @@ def measure_image(
     face_check: bool = False,
     tone: MarkerTone | None = None,
     tone_photo: np.ndarray | None = None,
+    colour: np.ndarray | None = None,
 ) -> Measurement:
     """Measure a loaded image with a given (or DPI-derived) plane map: segment, map, section, uncertainty.
 
@@ -413,6 +414,7 @@ def measure_image(
     where its edge's half-way level in linear light lies (:func:`_tone_shifted`), except
     where the image differs from ``tone_photo`` (the photo's grey plane before a check
     painted a cut or a hole into it: painted edges are mixed in linear light already).
+    ``colour`` (photos): the colour planes, which tell a contact shade from a lamp's tinted penumbra.
     """
     if plane_map is None:
         plane_map = scan_plane_map(image, options)
@@ -429,6 +431,7 @@ def measure_image(
                 keep_cut=options.keep_cut,
                 roi_px=roi_px,
                 paper_at_edge=roi_px is not None,  # photos: a soft contact shadow beside dark parts
+                colour=colour,  # ... told from a lamp's tinted shade
             )
         except SegmentationError as exc:
             largest = getattr(exc, "largest_area_px", None)
@@ -856,10 +859,11 @@ def _measure_photo(
     tone = basis.tone
     shift = tone if tone is not None and tone.applies else None
     masked = basis.masked
+    colour = colour_job.result()  # decoded once for the segmentation's contact shades and the colour checks
     try:
         result = measure_image(
             masked, options, plane_map=scale.plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto",
-            tone=shift, tone_photo=masked.grey,
+            tone=shift, tone_photo=masked.grey, colour=colour,
         )  # fmt: skip
     except PartCutError:
         where = "mat's clear area" if scale.plane_map.method == "mat" else "sheet's margin"
@@ -870,9 +874,7 @@ def _measure_photo(
         ) from None
     except SegmentationError:
         # a coloured face brighter than the paper is not found by its grey levels: by its colour
-        coloured, notes = colour_faces(
-            image, scale, None, colour_job.result(), colour_measure, min_area_px, thickness_mm
-        )
+        coloured, notes = colour_faces(image, scale, None, colour, colour_measure, min_area_px, thickness_mm)
         if coloured is None:
             raise
         _check_within_support(scale, coloured, image.path)
@@ -890,7 +892,7 @@ def _measure_photo(
         try:
             again = measure_image(
                 masked, options, plane_map=seen_scale.plane_map, roi_px=scale.roi_px,
-                tone_known=options.encoding != "auto", tone=shift, tone_photo=masked.grey,
+                tone_known=options.encoding != "auto", tone=shift, tone_photo=masked.grey, colour=colour,
             )  # fmt: skip
         except (SegmentationError, ScaleError, OptionError):
             again = None
@@ -901,13 +903,12 @@ def _measure_photo(
                 "note": "outline taken on the top face's edge all round (the side wall facing the camera looked "
                 "like the background; the parts' round rings fit a circle only so)",
             }
-    colour = colour_job.result()  # decoded once for the colour checks
     last: dict[str, Any] = {}
 
     def probe_remeasure(img: LoadedImage, plane_map: PlaneMap) -> Measurement:
         return measure_image(
             img, options, plane_map=plane_map, roi_px=scale.roi_px, tone_known=options.encoding != "auto", tone=shift,
-            tone_photo=masked.grey,
+            tone_photo=masked.grey, colour=colour,
         )  # fmt: skip
 
     def remeasure(img: LoadedImage, plane_map: PlaneMap) -> Measurement:

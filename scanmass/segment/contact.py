@@ -21,6 +21,12 @@ back out (a contact shadow, not a flat cast shadow) and ``s`` is at least
 paper: ``(1 + s) / 2`` in the normalised image (0 = paper further out, 1 = part), which
 :func:`renormalise` turns back into a 0.5 level pixel by pixel. Without such a shadow
 (flat paper: scans, the synthetic photos) nothing changes.
+
+Under two lamps of different colours the shade of one beside the edge is lit by the other alone and
+leans to its colour; a contact shade keeps the paper's. :func:`tint_shift` reads the shift of the
+shade's log-chromaticity from the paper's further out per unit of its darkening, and
+:func:`lamp_tinted` marks the points where it is above a contact shade's spread
+(:data:`MAX_TINT_SHIFT`): those do not count towards the all-round share that lets the rule act.
 """
 
 from __future__ import annotations
@@ -32,7 +38,16 @@ import numpy as np
 
 from scanmass.numeric import sample_points
 
-__all__ = ["MIN_DEPTH", "MAX_DEPTH", "edge_shadow_depth", "renormalise", "depth_field", "part_side_rise"]
+__all__ = [
+    "MIN_DEPTH",
+    "MAX_DEPTH",
+    "edge_shadow_depth",
+    "renormalise",
+    "depth_field",
+    "part_side_rise",
+    "tint_shift",
+    "lamp_tinted",
+]
 
 #: The least darkening at the edge (share of the contrast) that is taken as a contact
 #: shadow: it moves the level by 0.015 (0.02-0.03 px under a 1 px blur).
@@ -56,6 +71,20 @@ MIN_FADE = 0.4
 #: tail; it bounds the read-back from the first sample (1.5 px out) to e times that sample. The
 #: soft-light renders' shades fade over 1.2-1.5 px (tests/data/reallight, the profile 1.5-5 px out).
 MIN_FADE_LENGTH_PX = 1.0
+#: The paper's tint beside the edge is read over this span (px) from the first sample.
+NEAR_SPAN_PX = 1.0
+#: And compared with the paper's this far out (px, over 1 px): where the segmentation's paper level is taken.
+FAR_PX = 7.0
+#: Least darkening (log of the luma ratio) whose tint is read.
+MIN_DARKENING = 0.02
+#: Largest tint shift per unit darkening (log-chromaticity per log luma) read as a contact shade's: its
+#: tint is the paper's, and what the reading shows there is its noise (JPEG chroma, the filmic look). On the
+#: soft-light renders' black parts (tests/data/reallight, one soft light: every shade a contact shade) the
+#: outer outlines' points read 0.01-0.13 median, 0.24-0.51 at the 95th percentile and 0.49-0.81 at the 99th;
+#: the limit lies at the top of that spread, so that about one contact-shade point in a hundred is taken for
+#: a lamp's. Under the mixed renders' two lamps (warm and cool, benchmarks/render_reallight.py) the shade
+#: beside the outlines leans along the two lamps' colour axis (shift across it under 0.015) by up to 0.9.
+MAX_TINT_SHIFT = 0.7
 #: Samples at or under this share of the contrast are left out of the log fit (noise about 0).
 _LOG_FLOOR = 0.003
 
@@ -168,6 +197,59 @@ def edge_shadow_depth(unit: np.ndarray, ring_rc: np.ndarray, blur_px: float) -> 
     take = (at_edge >= MIN_DEPTH) & (prof[:, 0] > 0) & (fade >= MIN_FADE * prof[:, 0])
     out[np.flatnonzero(good)[take]] = np.minimum(at_edge[take], MAX_DEPTH)
     return out
+
+
+def tint_shift(colour: np.ndarray, unit: np.ndarray, ring_rc: np.ndarray, blur_px: float) -> np.ndarray:
+    """Per boundary point, how far the shade beside the edge leans from the paper's tint, per unit of its darkening.
+
+    The paper just beyond the edge's blur (the first samples of :func:`edge_shadow_depth`) and further
+    out (:data:`FAR_PX`), each averaged along the ring: the log-chromaticity shift (the log of each channel
+    less their mean) between the two, over the log of their luma ratio. Light taken away evenly (a contact
+    shade: every lamp hidden alike) leaves the tint and reads about 0; one lamp's penumbra, lit by the other
+    lamp alone, leans to that lamp's colour by a shift in proportion to its darkening (the ratio about the
+    two lamps' log-chromaticity distance). NaN where the paper is not darkened or not sampled. ``colour``
+    is the crop in linear light, its channels in any order (the reading does not depend on it), framed as
+    ``unit``.
+    """
+    n = len(ring_rc)
+    if n < 8:
+        return np.full(n, np.nan)
+    normal = _outward(unit, ring_rc)
+    sigma = min(max(float(blur_px), 0.3), 2.0) if math.isfinite(blur_px) else 1.0
+    start = max(1.5, 2.0 * sigma)
+    near_xs = start + np.arange(0.0, NEAR_SPAN_PX + 1e-9, 0.5)
+    far_xs = FAR_PX + np.arange(0.0, 1.0 + 1e-9, 0.5)
+    cols = []
+    for xs in (near_xs, far_xs):
+        pts = ring_rc[:, None, :] + xs[None, :, None] * normal[:, None, :]
+        for ch in range(3):
+            v = sample_points(np.ascontiguousarray(colour[..., ch]), pts[..., 1], pts[..., 0], cv2.INTER_LINEAR)
+            cols.append(np.asarray(v, np.float64).mean(axis=1))
+        u = sample_points(unit, pts[..., 1], pts[..., 0], cv2.INTER_LINEAR)
+        cols.append(np.where(np.asarray(u) < 0.5, 1.0, 0.0).min(axis=1))  # paper throughout, not a part
+    stack = np.column_stack(cols)
+    paper = (stack[:, 3] > 0) & (stack[:, 7] > 0) & np.all(stack[:, [0, 1, 2, 4, 5, 6]] > 0, axis=1)
+    w = np.repeat(paper.astype(np.float64)[:, None], 6, axis=1)
+    mean = _smooth_along(np.where(paper[:, None], stack[:, [0, 1, 2, 4, 5, 6]], 0.0), w, ring_rc, ALONG_PX)
+    near, far = mean[:, :3], mean[:, 3:]
+    shift, darkening = _tint_change(near, far)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = np.linalg.norm(shift, axis=1) / darkening
+    return np.where(np.isfinite(out) & (darkening > MIN_DARKENING), out, np.nan)
+
+
+def _tint_change(near: np.ndarray, far: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The log-chromaticity shift (N, 3) from ``far`` to ``near`` (linear RGB rows) and the darkening (log luma ratio)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        log_ratio = np.log(near) - np.log(far)
+        darkening = -np.log(near.sum(axis=1) / far.sum(axis=1))
+    return log_ratio - log_ratio.mean(axis=1, keepdims=True), darkening
+
+
+def lamp_tinted(colour: np.ndarray, unit: np.ndarray, ring_rc: np.ndarray, blur_px: float) -> np.ndarray:
+    """Per boundary point, whether the shade beside the edge is a lamp's tinted penumbra (:func:`tint_shift`)."""
+    with np.errstate(invalid="ignore"):
+        return tint_shift(colour, unit, ring_rc, blur_px) > MAX_TINT_SHIFT
 
 
 def _exponential_trend(prof: np.ndarray, xs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -25,7 +25,7 @@ from scanmass.errors import OptionError, PartCutError, SegmentationError
 from scanmass.geometry import point_in_ring, signed_area
 from scanmass.load.decode import LoadedImage, lookup
 from scanmass.numeric import code_median, code_percentiles, nonzero_rc, otsu_threshold, robust_sigma, sample_points
-from scanmass.segment.contact import depth_field, edge_shadow_depth, part_side_rise, renormalise
+from scanmass.segment.contact import depth_field, edge_shadow_depth, lamp_tinted, part_side_rise, renormalise
 from scanmass.segment.contours import level_rings
 
 __all__ = ["PartRings", "Segmentation", "segment"]
@@ -246,6 +246,7 @@ def segment(
     keep_cut: bool = False,
     roi_px: np.ndarray | None = None,
     paper_at_edge: bool = False,
+    colour: np.ndarray | None = None,
 ) -> Segmentation:
     """Separate parts from the background with sub-pixel boundaries.
 
@@ -272,6 +273,10 @@ def segment(
         Photos: where a soft contact shadow darkens the paper beside a dark part, take the
         edge half-way between the part and the paper's level at the edge
         (:mod:`scanmass.segment.contact`) instead of the level further out.
+    colour : (H, W, 3) uint8 ndarray, optional
+        The photo's colour planes (BGR, encoded with ``image``'s tone curve): with ``paper_at_edge``,
+        a shade whose tint leans away from the paper's (a lamp's coloured penumbra) is no contact shade
+        (:func:`~scanmass.segment.contact.lamp_tinted`).
 
     Returns
     -------
@@ -450,6 +455,7 @@ def segment(
             roi_px=roi_px,
             ratio_hint=ratio,
             paper_at_edge=paper_at_edge,
+            colour=colour,
         )
         if part is None:
             label -= 1
@@ -564,6 +570,7 @@ def _refine_part(
     ratio_hint,
     paper_at_edge=False,
     local_face=False,
+    colour=None,
 ):
     """Sub-pixel rings of one part from a padded crop around it.
 
@@ -704,7 +711,8 @@ def _refine_part(
     if paper_at_edge and threshold is None and bright_background and refined:
         # lut[grey_crop] as float32: the float32 table looked up (each entry rounded once, the same values)
         unit = _unit_crop(lookup(np.asarray(lut).astype(np.float32), grey_crop), coef_b, ord_b, fg_surface, scale)
-        moved = _contact_shadow_levels(norm, (band_rows + 1, band_cols + 1), unit, refined, contour_level)
+        tint = None if colour is None else _colour_crop(colour, lut, (r0, r1, c0, c1))
+        moved = _contact_shadow_levels(norm, (band_rows + 1, band_cols + 1), unit, refined, contour_level, tint)
         if moved is not refined:
             contact_move_px = _mean_move_px(refined, moved)
             refined = moved
@@ -847,10 +855,14 @@ def _contact_shadow_levels(
     unit: np.ndarray,
     refined: list[tuple[np.ndarray, np.ndarray, np.ndarray]],
     level: float,
+    tint: np.ndarray | None = None,
 ) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
     """The rings contoured again where a soft contact shadow darkens the paper at the edge.
 
     Unchanged where no boundary point has one (:func:`~scanmass.segment.contact.edge_shadow_depth`).
+    ``tint``, the crop in linear colour (as ``unit``, with its frame): an outer point whose shade is tinted
+    away from the paper's colour (:func:`~scanmass.segment.contact.lamp_tinted`: a lamp's shade lit by
+    another lamp) does not count towards the all-round share.
     """
     band = np.zeros(norm.shape, bool)
     band[band_rc] = True
@@ -858,7 +870,10 @@ def _contact_shadow_levels(
         blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate([r[2] for r in refined])))))
         depths = [edge_shadow_depth(unit, ring, blur) for ring, _, _ in refined]
         outer = int(np.argmax([abs(signed_area(ring)) for ring, _, _ in refined]))
-        if np.mean(depths[outer] > 0) < CONTACT_ALL_ROUND:
+        contact = depths[outer] > 0
+        if tint is not None:  # a lamp's tinted penumbra is no contact shade
+            contact &= ~lamp_tinted(tint, unit, refined[outer][0], blur)
+        if np.mean(contact) < CONTACT_ALL_ROUND:
             break  # a one-sided (cast) shadow, or none: the levels further out stay
         field = depth_field(norm.shape, [ring for ring, _, _ in refined], depths)
         again = renormalise(norm, band, field)
@@ -873,6 +888,14 @@ def _contact_shadow_levels(
             share = 1.0 - field[idx[:, 0], idx[:, 1]]
             refined.append((ring, grad * share, part_side_rise(again, ring, level)))
     return refined
+
+
+def _colour_crop(colour: np.ndarray, lut: np.ndarray, box: tuple[int, int, int, int]) -> np.ndarray:
+    """A crop ``(r0, r1, c0, c1)`` of the encoded colour planes in linear light (float32), with ``norm``'s 1 px frame."""
+    r0, r1, c0, c1 = box
+    out = np.zeros((r1 - r0 + 2, c1 - c0 + 2, 3), np.float32)
+    out[1:-1, 1:-1] = np.asarray(lut, np.float32)[colour[r0:r1, c0:c1]]
+    return out
 
 
 def _mean_move_px(before: list, after: list) -> float:
