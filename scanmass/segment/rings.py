@@ -16,7 +16,9 @@ from the top, pixel centres at integers). Steps:
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import partial
 
 import cv2
 import numpy as np
@@ -711,7 +713,7 @@ def _refine_part(
     if paper_at_edge and threshold is None and bright_background and refined:
         # lut[grey_crop] as float32: the float32 table looked up (each entry rounded once, the same values)
         unit = _unit_crop(lookup(np.asarray(lut).astype(np.float32), grey_crop), coef_b, ord_b, fg_surface, scale)
-        tint = None if colour is None else _colour_crop(colour, lut, (r0, r1, c0, c1))
+        tint = None if colour is None else partial(_colour_crop, colour, lut, (r0, r1, c0, c1))
         moved = _contact_shadow_levels(norm, (band_rows + 1, band_cols + 1), unit, refined, contour_level, tint)
         if moved is not refined:
             contact_move_px = _mean_move_px(refined, moved)
@@ -855,24 +857,27 @@ def _contact_shadow_levels(
     unit: np.ndarray,
     refined: list[tuple[np.ndarray, np.ndarray, np.ndarray]],
     level: float,
-    tint: np.ndarray | None = None,
+    tint: Callable[[], np.ndarray] | None = None,
 ) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
     """The rings contoured again where a soft contact shadow darkens the paper at the edge.
 
     Unchanged where no boundary point has one (:func:`~scanmass.segment.contact.edge_shadow_depth`).
-    ``tint``, the crop in linear colour (as ``unit``, with its frame): an outer point whose shade is tinted
-    away from the paper's colour (:func:`~scanmass.segment.contact.lamp_tinted`: a lamp's shade lit by
-    another lamp) does not count towards the all-round share.
+    ``tint`` makes the crop in linear colour (as ``unit``, with its frame), called only where the share
+    could be reached: an outer point whose shade is tinted away from the paper's colour
+    (:func:`~scanmass.segment.contact.lamp_tinted`: a lamp's shade lit by another lamp) does not count
+    towards the all-round share.
     """
     band = np.zeros(norm.shape, bool)
     band[band_rc] = True
+    tint_crop: np.ndarray | None = None
     for _ in range(_CONTACT_PASSES):
         blur = _blur_from_gradient(float(np.median(np.abs(np.concatenate([r[2] for r in refined])))))
         depths = [edge_shadow_depth(unit, ring, blur) for ring, _, _ in refined]
         outer = int(np.argmax([abs(signed_area(ring)) for ring, _, _ in refined]))
         contact = depths[outer] > 0
-        if tint is not None:  # a lamp's tinted penumbra is no contact shade
-            contact &= ~lamp_tinted(tint, unit, refined[outer][0], blur)
+        if tint is not None and np.mean(contact) >= CONTACT_ALL_ROUND:  # a lamp's tinted penumbra is no contact shade
+            tint_crop = tint() if tint_crop is None else tint_crop
+            contact &= ~lamp_tinted(tint_crop, unit, refined[outer][0], blur)
         if np.mean(contact) < CONTACT_ALL_ROUND:
             break  # a one-sided (cast) shadow, or none: the levels further out stay
         field = depth_field(norm.shape, [ring for ring, _, _ in refined], depths)
