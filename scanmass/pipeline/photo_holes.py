@@ -652,8 +652,9 @@ def _deep_hole_circles(
     thick_u = 0.0 if info is None or info.thickness is None else float(info.thickness.height_u_mm)
     shade_below = _shade_level(seen_lin, seen_mask)
     # a found hole's shade where none darker than a pit gives its opening: darker than the face by more than its
-    # own scatter (a face lit evenly; a brushed face's dark sectors would join a pit's shade at that level)
-    shade_faint = _below_face_level(seen_lin, seen_mask)
+    # own scatter (a face lit evenly; a brushed face's dark sectors would join a pit's shade at that level); read
+    # at the first hole that needs it
+    levels: list[float] | None = None
     for hole, ring in zip(part.holes, rings[1:]):
         seed8 = np.zeros(seen_mask.shape, np.uint8)
         cv2.fillPoly(seed8, [np.round(ring).astype(np.int32)], 1)
@@ -664,11 +665,13 @@ def _deep_hole_circles(
             # the pit's level first, then the face's scatter; each with a lit stretch anywhere in reach, then
             # only within the far wall's band beside the found floor (a brushed face's lit sector beyond the
             # rim joins the floor otherwise, and the opening runs over the face)
+            if levels is None:
+                shade_faint = _below_face_level(seen_lin, seen_mask)
+                levels = [level for level in (shade_below,) if level > 0]
+                levels += [shade_faint] if shade_faint > max(shade_below, 0.0) else []
             wall_px = _wall_band_px(seed, (sx0, sy0), hook) + NEAR_PX
-            tries = [(shade_below, math.inf), (shade_faint, math.inf), (shade_below, wall_px), (shade_faint, wall_px)]
+            tries = [(level, lit_px) for lit_px in (math.inf, wall_px) for level in levels]
             for level, lit_px in tries:
-                if level <= 0 or (level == shade_faint and shade_faint <= shade_below):
-                    continue
                 entry = _shaded_opening(
                     hole, seed, seen_lin, seen_mask, (sx0, sy0), hook, mm_per_px, outline, level, lit_px
                 )
