@@ -49,6 +49,7 @@ from scanmass.numeric import robust_sigma
 from scanmass.segment.shadowlayer import (
     STRETCH_PX,
     ShadowCut,
+    _edge_px,
     _filled,
     _new_layers,
     _settled_cut,
@@ -319,13 +320,11 @@ def coloured_shadow_cut(
     cut = _with_rim(cut, part_mask)
     keep = part_mask & ~cut
     n_cut = int(np.count_nonzero(cut))
-    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
-    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
     rough = roughness(level)
     return ShadowCut(
         cut=cut,
         cut_px=n_cut,
-        edge_px=float(np.count_nonzero(border)),
+        edge_px=_edge_px(cut, keep),
         texture_face=float(np.median(rough[keep])),
         texture_shadow=float(np.median(rough[cut])),
         level_face=float(np.median(level[keep])),
@@ -507,14 +506,12 @@ def colour_sweep_cut(
     cut, keep = settled
     cut = _with_rim(cut, part_mask)
     keep = part_mask & ~cut
-    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
-    border = keep & cv2.dilate(cut.astype(np.uint8), k4).astype(bool)
     level = (colour_lin / np.asarray(paper_rgb)).mean(axis=2)
     rough = roughness(level)
     return ShadowCut(
         cut=cut,
         cut_px=int(np.count_nonzero(cut)),
-        edge_px=float(np.count_nonzero(border)),
+        edge_px=_edge_px(cut, keep),
         texture_face=float(np.median(rough[keep])),
         texture_shadow=float(np.median(rough[cut])),
         level_face=float(np.median(level[keep])),
@@ -640,12 +637,10 @@ def tint_cut(
         return None
     new |= cut.cut & part_mask & (depth > reach_px + 2.0)
     keep = part_mask & ~new
-    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
-    border = keep & cv2.dilate(new.astype(np.uint8), k4).astype(bool)
     return ShadowCut(
         cut=new | (cut.cut & ~part_mask),
         cut_px=int(np.count_nonzero(new)),
-        edge_px=float(np.count_nonzero(border)),
+        edge_px=_edge_px(new, keep),
         texture_face=cut.texture_face,
         texture_shadow=cut.texture_shadow,
         level_face=face_level,

@@ -36,7 +36,7 @@ import cv2
 import numpy as np
 
 from scanmass.segment.colourshadow import LINES_MIN_SPREAD, shadow_lines
-from scanmass.segment.shadowlayer import ShadowCut
+from scanmass.segment.shadowlayer import ShadowCut, _edge_px
 
 __all__ = [
     "cut_at_face_level",
@@ -198,6 +198,4 @@ def face_above_core(colour_lin: np.ndarray, part_mask: np.ndarray, paper_rgb: np
         return cut
     new = cut.cut & ~back
     kept = part_mask & ~new
-    k4 = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], np.uint8)
-    edge = float(np.count_nonzero(kept & cv2.dilate(new.astype(np.uint8), k4).astype(bool)))
-    return replace(cut, cut=new, cut_px=int(np.count_nonzero(new)), edge_px=edge)
+    return replace(cut, cut=new, cut_px=int(np.count_nonzero(new)), edge_px=_edge_px(new, kept))
