@@ -439,6 +439,10 @@ class Measurement:
                 for key in ("centroid_mm", "centroid_u_mm", "bbox_mm"):
                     p[key] = _tuple(p[key])
                 parts.append(Part(holes=holes, **p))
+        except ResultFormatError as exc:  # a malformed outline: name the file
+            if path and not exc.path:
+                raise ResultFormatError(str(exc), path=path) from None
+            raise
         except (KeyError, TypeError, ValueError) as exc:
             raise ResultFormatError(
                 f"result document is incomplete or malformed ({exc}); re-measure the image", path=path

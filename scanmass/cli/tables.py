@@ -85,9 +85,7 @@ def pieces_lines(m: Measurement) -> list[str]:
 
     notes = [pieces_note(p) for p in m.parts]
     return [
-        f"{n}; the figures count every piece, 'scanmass export' draws them all, 'scanmass drawing' refuses it"
-        for n in notes
-        if n is not None
+        f"{n}; the figures count every piece; export draws each, a drawing refuses it" for n in notes if n is not None
     ]
 
 

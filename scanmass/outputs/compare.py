@@ -157,7 +157,7 @@ def read_nominal(path: PathLike, *, part: int | None = None) -> Nominal:
         m = read_result(p)
         chosen = _select_parts(m, None if part is None else [part])
         q = chosen[0]
-        one_piece(q, "a nominal taken from it")
+        one_piece(q, "a nominal taken from it", path=p)
         holes = [_hole_ring(q, h) for h in q.holes]
         circles = [(float(h.circle_centre_mm[0]), float(h.circle_centre_mm[1]), float(h.diameter_mm)) for h in q.holes]
         return Nominal(_outer(q), holes, circles, p)
@@ -427,7 +427,9 @@ def compare(
     if len(chosen) > 1:
         raise OptionError(f"the result has {len(chosen)} parts; choose one with --part, e.g. --part {chosen[0].label}")
     p: Part = chosen[0]
-    one_piece(p, "a comparison of it with the nominal")
+    one_piece(
+        p, "a comparison of it with the nominal", path=None if isinstance(measured, Measurement) else str(measured)
+    )
     rings = [_outer(p)] + [_hole_ring(p, h) for h in p.holes]
     r, t = _align(rings, nom, align)
     moved = [ring @ r.T + t for ring in rings]

@@ -437,8 +437,39 @@ def _piece_rings(part: Part) -> list[np.ndarray]:
     ]
 
 
+#: Cells across the larger side of the pieces' box in which :func:`_outside_mm2` counts area.
+OUTSIDE_GRID_CELLS = 2400
+
+
+def _outside_mm2(outer: np.ndarray, pieces: list[np.ndarray]) -> float:
+    """The area (mm²) of the union of ``pieces`` that lies outside the ring ``outer``.
+
+    Counted on a grid of :data:`OUTSIDE_GRID_CELLS` cells across the pieces' box (the pieces filled,
+    less the outer ring filled, by OpenCV's polygon fill at 1/256 cell): good to about the pieces'
+    perimeter times one cell, enough for a note.
+    """
+    import cv2
+
+    pts = np.vstack(pieces)
+    lo = pts.min(axis=0)
+    step = max(float(np.ptp(pts, axis=0).max()) / OUTSIDE_GRID_CELLS, 1e-6)
+    shape = tuple(int(v) + 2 for v in np.ceil(np.ptp(pts, axis=0) / step)[::-1])
+    mask = np.zeros(shape, np.uint8)
+
+    def cells(ring: np.ndarray) -> np.ndarray:
+        return np.round((np.asarray(ring, float) - lo) / step * 256.0).astype(np.int32).reshape(-1, 1, 2)
+
+    cv2.fillPoly(mask, [cells(r) for r in pieces], 1, cv2.LINE_8, 8)
+    cv2.fillPoly(mask, [cells(outer)], 0, cv2.LINE_8, 8)
+    return float(np.count_nonzero(mask)) * step * step
+
+
 def pieces_note(part: Part) -> str | None:
     """What to know of a part found in pieces (None for a part found whole).
+
+    The other pieces' area is given in all and, where the outline is known, the share of it
+    outside the largest piece's outline (pieces may overlap it: its edge was placed after they
+    were told apart).
 
     Examples
     --------
@@ -448,21 +479,28 @@ def pieces_note(part: Part) -> str | None:
     >>> p = Part(1, 2.0, 0.1, 8.0, 0.1, (1.0, 0.5), (0, 0), *[0.0] * 11, 0.0, 0.0, *[0.0] * 10,
     ...          (0.0, 0.0, 3.0, 1.0), 3.0, 1.0, 3.0, outline_mm=sq(0.0), pieces_mm=[sq(2.0)])
     >>> pieces_note(p)
-    'part 1 was found in 2 pieces: its outline is the largest piece (1 mm²), the other piece encloses 1 mm²'
+    'part 1 was found in 2 pieces: its outline is the largest piece (1 mm²); the other encloses 1 mm², 1 mm² of it outside that outline'
     """
     if not part.pieces_mm:
         return None
     rings = _piece_rings(part)
     others = sum(abs(float(signed_area(r))) for r in rings)
-    largest = "" if part.outline_mm is None else f" ({abs(float(signed_area(_outer(part)))):.4g} mm²)"
+    many = len(rings) > 1
+    text = f"part {part.label} was found in {1 + len(rings)} pieces: its outline is the largest piece"
+    if part.outline_mm is None:
+        return f"{text}; the other{'s' if many else ''} enclose{'' if many else 's'} {others:.3g} mm²"
+    outer = _outer(part)
     return (
-        f"part {part.label} was found in {1 + len(rings)} pieces: its outline is the largest piece{largest}, "
-        f"the other piece{'s' if len(rings) > 1 else ''} enclose{'' if len(rings) > 1 else 's'} {others:.3g} mm²"
+        f"{text} ({abs(float(signed_area(outer))):.4g} mm²); the other{'s' if many else ''} "
+        f"enclose{'' if many else 's'} {others:.3g} mm², {min(_outside_mm2(outer, rings), others):.2g} mm² of it "
+        "outside that outline"
     )
 
 
-def one_piece(part: Part, doing: str) -> None:
+def one_piece(part: Part, doing: str, *, path: str | None = None) -> None:
     """Refuse ``doing`` (a shape fitted to the outline) for a part found in pieces: its outline is not one curve.
+
+    ``path`` (the result file) is named in the message.
 
     Raises
     ------
@@ -474,7 +512,8 @@ def one_piece(part: Part, doing: str) -> None:
         raise OptionError(
             f"{note}; its outline is not one closed curve, so {doing} would miss the other pieces; "
             "photograph the part in diffuse light or on a backlight and measure again "
-            "('scanmass export' draws every piece as measured)"
+            "('scanmass export' draws every piece as measured)",
+            path=path,
         )
 
 
