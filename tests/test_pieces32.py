@@ -289,3 +289,19 @@ def test_every_piece_of_the_bracket_lies_on_it(bracket):
     _, part, truth_outer = bracket
     near = truth_outer.buffer(0.5)
     assert all(sg.Polygon(r).buffer(0).within(near) for r in part.pieces_mm)
+
+
+@pytest.mark.parametrize("top_edge", [False, True])
+def test_a_lifted_part_moves_its_pieces_as_its_outline(in_pieces, top_edge):
+    """Check value: photo_thickness.footprint_rings on the same ring as an outline (the lift of a part by its read thickness)."""
+    from scanmass import load_image
+    from scanmass.pipeline.photo_thickness import footprint_pieces, footprint_rings
+    from scanmass.scale.mat_scale import mat_scale
+
+    scale = mat_scale(load_image(in_pieces[0]))
+    part = _merged(read_result(in_pieces[1]))
+    as_outline = replace(part, outline_mm=part.pieces_mm[0], holes=[])
+    (moved,) = footprint_pieces(scale, as_outline, 3.0, top_edge)
+    np.testing.assert_array_equal(moved, footprint_rings(scale, as_outline, 3.0, top_edge)[0])
+    assert not np.allclose(moved, part.pieces_mm[0], atol=1e-3)  # 3 mm up at a 12-degree tilt: it moves
+    assert footprint_pieces(scale, replace(part, pieces_mm=[]), 3.0, top_edge) == []
