@@ -305,3 +305,26 @@ def test_a_lifted_part_moves_its_pieces_as_its_outline(in_pieces, top_edge):
     np.testing.assert_array_equal(moved, footprint_rings(scale, as_outline, 3.0, top_edge)[0])
     assert not np.allclose(moved, part.pieces_mm[0], atol=1e-3)  # 3 mm up at a 12-degree tilt: it moves
     assert footprint_pieces(scale, replace(part, pieces_mm=[]), 3.0, top_edge) == []
+
+
+def test_a_part_whose_pieces_lie_within_its_outline_is_drawn_with_a_note(in_pieces, tmp_path):
+    """Pieces that the outline took in (its edge placed after they were told apart) leave nothing out of it."""
+    m = read_result(in_pieces[1])
+    part = _merged(m)
+    inside = SQUARE - [10.0, -10.0]  # the square moved into the plate (shapely: within it)
+    assert sg.Polygon(inside).within(sg.Polygon(part.outline_mm))
+    m.parts = [replace(p, pieces_mm=[inside]) for p in m.parts]
+    result_json = tmp_path / "inside.json"
+    result_json.write_text(m.to_json())
+    result = runner.invoke(app, ["drawing", str(result_json), "--svg", str(tmp_path / "d.svg")])
+    assert result.exit_code == 0, result.output
+    text = " ".join(result.output.split())
+    assert f"note: part {part.label} was found in 2 pieces" in text
+    assert "the other encloses 36 mm², 0 mm² of it outside that outline: the drawing is of that outline" in text
+    # a piece 0.5 mm past the plate's edge (shapely: 3 mm² outside, 0.125 % of the outline) is refused
+    m.parts = [replace(p, pieces_mm=[SQUARE - [7.5, 0.0]]) for p in m.parts]
+    outside = sg.Polygon(SQUARE - [7.5, 0.0]).difference(sg.Polygon(part.outline_mm)).area
+    assert 0.001 * sg.Polygon(part.outline_mm).area < outside < 0.002 * sg.Polygon(part.outline_mm).area
+    result_json.write_text(m.to_json())
+    result = runner.invoke(app, ["drawing", str(result_json), "--svg", str(tmp_path / "d2.svg")])
+    one_line_error(result, "found in 2 pieces", "not one closed curve")

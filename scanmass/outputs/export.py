@@ -437,6 +437,12 @@ def _piece_rings(part: Part) -> list[np.ndarray]:
     ]
 
 
+#: A shape may be fitted to the outline of a part found in pieces whose other pieces lie outside
+#: it by at most this share of its area (pieces that its edge, placed after they were told apart,
+#: has taken in: 0.01-0.04 % on two renders of stop 32, against 1.5 % for a piece of the bracket
+#: of dev-spot-steel4-t28 beyond it).
+PIECES_OUTSIDE_SHARE = 0.001
+
 #: Cells across the larger side of the pieces' box in which :func:`_outside_mm2` counts area.
 OUTSIDE_GRID_CELLS = 2400
 
@@ -452,7 +458,8 @@ def _outside_mm2(outer: np.ndarray, pieces: list[np.ndarray]) -> float:
 
     pts = np.vstack(pieces)
     lo = pts.min(axis=0)
-    step = max(float(np.ptp(pts, axis=0).max()) / OUTSIDE_GRID_CELLS, 1e-6)
+    span = float(np.ptp(np.vstack([pts, outer]), axis=0).max())  # the outline's cells stay far within int32
+    step = max(float(np.ptp(pts, axis=0).max()) / OUTSIDE_GRID_CELLS, span / (100 * OUTSIDE_GRID_CELLS), 1e-9)
     shape = tuple(int(v) + 2 for v in np.ceil(np.ptp(pts, axis=0) / step)[::-1])
     mask = np.zeros(shape, np.uint8)
 
@@ -497,24 +504,31 @@ def pieces_note(part: Part) -> str | None:
     )
 
 
-def one_piece(part: Part, doing: str, *, path: str | None = None) -> None:
+def one_piece(part: Part, doing: str, *, path: str | None = None) -> str | None:
     """Refuse ``doing`` (a shape fitted to the outline) for a part found in pieces: its outline is not one curve.
 
+    A part whose other pieces lie within its outline, but for :data:`PIECES_OUTSIDE_SHARE` of
+    its area, is let through: its :func:`pieces_note` is returned, to be shown with the shape.
     ``path`` (the result file) is named in the message.
 
     Raises
     ------
     OptionError
-        The part has other pieces (:attr:`Part.pieces_mm`); the message names the fix.
+        The part has other pieces (:attr:`Part.pieces_mm`) outside its outline; the message names the fix.
     """
     note = pieces_note(part)
-    if note is not None:
-        raise OptionError(
-            f"{note}; its outline is not one closed curve, so {doing} would miss the other pieces; "
-            "photograph the part in diffuse light or on a backlight and measure again "
-            "('scanmass export' draws every piece as measured)",
-            path=path,
-        )
+    if note is None:
+        return None
+    if part.outline_mm is not None:
+        outer = _outer(part)
+        if _outside_mm2(outer, _piece_rings(part)) <= PIECES_OUTSIDE_SHARE * abs(float(signed_area(outer))):
+            return note
+    raise OptionError(
+        f"{note}; its outline is not one closed curve, so {doing} would miss the other pieces; "
+        "photograph the part in diffuse light or on a backlight and measure again "
+        "('scanmass export' draws every piece as measured)",
+        path=path,
+    )
 
 
 def _hole_ring(part: Part, hole: Hole) -> np.ndarray:
