@@ -58,6 +58,9 @@ AXES_UNDEFINED_U_DEG = 10.0
 
 _OUTLINE_DECIMALS = 5
 
+#: Part fields written as rings (or lists of them), not as figures.
+_RINGS = ("holes", "outline_mm", "pieces_mm")
+
 #: Largest result JSON read (bytes); a 2000-part result with outlines is a few tens of MB.
 MAX_RESULT_BYTES = 1 << 29
 
@@ -226,6 +229,10 @@ class Part:
     outline_mm: np.ndarray | None = field(default=None, repr=False)
     filled_holes: int = 0
     filled_hole_area_mm2: float = 0.0
+    #: The outer rings (mm, counter-clockwise) of the part's other pieces where it was found in
+    #: pieces and merged: ``outline_mm`` is then its largest piece only, and the figures count
+    #: every piece (empty for a part found whole; left out of the result document when empty)
+    pieces_mm: list[np.ndarray] = field(default_factory=list, repr=False)
 
     def __post_init__(self) -> None:
         for name, value in derived_uncertainties(self).items():
@@ -336,7 +343,7 @@ class Measurement:
         """Return the result document as plain JSON-ready values."""
         parts = []
         for part in self.parts:
-            d = {f.name: getattr(part, f.name) for f in fields(part) if f.name not in ("holes", "outline_mm")}
+            d = {f.name: getattr(part, f.name) for f in fields(part) if f.name not in _RINGS}
             d["holes"] = []
             for hole in part.holes:
                 h = {f.name: getattr(hole, f.name) for f in fields(hole) if f.name != "outline_mm"}
@@ -346,6 +353,8 @@ class Measurement:
             d["principal_axes_defined"] = part.principal_axes_defined
             if outlines:
                 d["outline_mm"] = _ring_to_list(part.outline_mm)
+                if part.pieces_mm:
+                    d["pieces_mm"] = [_ring_to_list(r) for r in part.pieces_mm]
             parts.append(d)
         doc = {
             "schema": self.schema,
@@ -379,6 +388,8 @@ class Measurement:
             for hole_doc, hole in zip(part_doc["holes"], part.holes):
                 hole_doc["outline_mm"] = slot(hole.outline_mm)
             part_doc["outline_mm"] = slot(part.outline_mm)
+            if part.pieces_mm:
+                part_doc["pieces_mm"] = [slot(r) for r in part.pieces_mm]
         text = json.dumps(doc, indent=indent, allow_nan=False)
         for k, ring in enumerate(rings):
             compact = json.dumps(_ring_to_list(ring), separators=(",", ":"), allow_nan=False)
@@ -420,10 +431,18 @@ class Measurement:
                         h["perimeter_u_mm"] = math.nan
                     holes.append(Hole(**h))
                 p["outline_mm"] = _ring_from_list(p.get("outline_mm"))
+                pieces = p.get("pieces_mm") or []  # absent in documents of parts found whole, or older
+                if not isinstance(pieces, list):
+                    raise ValueError("pieces_mm is not a list of outlines")
+                p["pieces_mm"] = [r for r in map(_ring_from_list, pieces) if r is not None]
                 p["label"] = _label(p.get("label"), "part")
                 for key in ("centroid_mm", "centroid_u_mm", "bbox_mm"):
                     p[key] = _tuple(p[key])
                 parts.append(Part(holes=holes, **p))
+        except ResultFormatError as exc:  # a malformed outline: name the file
+            if path and not exc.path:
+                raise ResultFormatError(str(exc), path=path) from None
+            raise
         except (KeyError, TypeError, ValueError) as exc:
             raise ResultFormatError(
                 f"result document is incomplete or malformed ({exc}); re-measure the image", path=path
@@ -474,6 +493,8 @@ class Measurement:
             scale = 1.0 if units == "mm" else 1.0 / 25.4
             suffix = unit_suffix("length", units)
             row[f"hole_diameters_{suffix}"] = " ".join(f"{h.diameter_mm * scale:.5g}" for h in p.holes)
+            # 1 for an outline found whole, K for one found in K pieces (blank: no outline in the document)
+            row["outline_pieces"] = None if p.outline_mm is None else 1 + len(p.pieces_mm)
             row["scale_method"] = self.scale.method
             row["warnings"] = " | ".join(self.warnings)
             rows.append(_clean(row))
@@ -501,7 +522,7 @@ def csv_columns(units: str = "mm") -> list[str]:
         cols.append(fig.key(units))
         if fig.u_attr is not None:
             cols.append(fig.u_key(units))
-    return [*cols, f"hole_diameters_{unit_suffix('length', units)}", "scale_method", "warnings"]
+    return [*cols, f"hole_diameters_{unit_suffix('length', units)}", "outline_pieces", "scale_method", "warnings"]
 
 
 #: Column order of the per-part CSV (millimetres).

@@ -296,10 +296,12 @@ def measure(
 
 
 def _print_measurement(m, units: str = "mm") -> None:
-    from scanmass.cli.tables import holes_table, material_line, measurement_table
+    from scanmass.cli.tables import holes_table, material_line, measurement_table, pieces_lines
 
     console = _console()
     console.print(measurement_table(m, units))
+    for note in pieces_lines(m):
+        console.print(f"note: {escape(note)}")
     holes = holes_table(m, units)
     if holes is not None:
         console.print(holes)
@@ -480,7 +482,7 @@ def export_outlines(
         Path | None,
         typer.Option(
             "--dxf",
-            help="Write the outlines as DXF (layers SCANMASS_OUTLINE, SCANMASS_HOLES, SCANMASS_REFERENCE), in mm or --units in.",
+            help="Write the outlines as DXF (layers SCANMASS_OUTLINE, SCANMASS_HOLES, SCANMASS_PIECES, SCANMASS_REFERENCE), in mm or --units in.",
         ),
     ] = None,
     svg: Annotated[Path | None, typer.Option("--svg", help="Write the outlines as SVG in true mm.")] = None,
@@ -523,10 +525,14 @@ def export_outlines(
             console.print(
                 f"wrote {s.path}: {s.parts} part(s), {s.vertices_in} -> {s.vertices_out} vertices "
                 f"({s.arcs} arcs), {s.circles} hole(s) as circles"
+                + (f", {s.pieces} other piece(s) of parts found in pieces (layer SCANMASS_PIECES)" if s.pieces else "")
             )
         if svg is not None:
             s = export_svg(result, svg, parts=part or None)
-            console.print(f"wrote {s.path}: {s.parts} part(s), {s.vertices_out} vertices")
+            console.print(
+                f"wrote {s.path}: {s.parts} part(s), {s.vertices_out} vertices"
+                + (f", {s.pieces} other piece(s) of parts found in pieces" if s.pieces else "")
+            )
 
 
 @app.command()

@@ -8,7 +8,7 @@ from scanmass.measurement import Measurement
 from scanmass.names import FIGURES, convert, unit_symbol
 from scanmass.outputs.formatting import _finite, format_value
 
-__all__ = ["fmt_u", "material_line", "measurement_table", "holes_table"]
+__all__ = ["fmt_u", "material_line", "measurement_table", "holes_table", "pieces_lines"]
 
 
 #: Between a value and its ±: no-break spaces, so that a table never splits them.
@@ -61,7 +61,8 @@ def measurement_table(m: Measurement, units: str = "mm") -> Table:
     table = Table(title=title, title_justify="left", header_style="bold", min_width=min(len(title), 160))
     table.add_column(f"figure ({UNCERTAINTY_SHORT})", justify="left", no_wrap=True)
     for p in m.parts:
-        table.add_column(f"part {p.label}{' (clipped)' if p.cut else ''}", justify="right", no_wrap=True)
+        pieces = f" (in {1 + len(p.pieces_mm)} pieces)" if p.pieces_mm else ""
+        table.add_column(f"part {p.label}{' (clipped)' if p.cut else ''}{pieces}", justify="right", no_wrap=True)
     shown = [f for f in FIGURES if f.stem not in _NOT_IN_TABLE]
     for fig in shown:
         if fig.stem == "mass" and not any(p.mass_g is not None for p in m.parts):
@@ -76,6 +77,16 @@ def measurement_table(m: Measurement, units: str = "mm") -> Table:
                 cells.append(fmt_u(fig.value(p, units), fig.u(p, units)))
         table.add_row(fig.heading(units), *cells)
     return table
+
+
+def pieces_lines(m: Measurement) -> list[str]:
+    """One short note per part found in pieces: its outline is not one closed curve."""
+    from scanmass.outputs.export import pieces_note
+
+    notes = [pieces_note(p) for p in m.parts]
+    return [
+        f"{n}; the figures count every piece; export draws each, a drawing refuses it" for n in notes if n is not None
+    ]
 
 
 #: Figures left out of the terminal table (in the JSON, CSV and report).

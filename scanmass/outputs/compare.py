@@ -56,7 +56,7 @@ from scanmass.errors import OptionError, ResultFormatError
 from scanmass.geometry import nearest_vertex
 from scanmass.measurement import Measurement, Part, read_result
 from scanmass.outputs.atomic import write_atomic
-from scanmass.outputs.export import LAYER_REFERENCE, _hole_ring, _outer, _select_parts
+from scanmass.outputs.export import LAYER_REFERENCE, _hole_ring, _outer, _select_parts, one_piece
 from scanmass.outputs.primitives import area_centroid_mm, edge_sigma_mm, outline_distance_mm
 from scanmass.outputs.resultio import PathLike
 
@@ -157,6 +157,7 @@ def read_nominal(path: PathLike, *, part: int | None = None) -> Nominal:
         m = read_result(p)
         chosen = _select_parts(m, None if part is None else [part])
         q = chosen[0]
+        one_piece(q, "a nominal taken from it", path=p)
         holes = [_hole_ring(q, h) for h in q.holes]
         circles = [(float(h.circle_centre_mm[0]), float(h.circle_centre_mm[1]), float(h.diameter_mm)) for h in q.holes]
         return Nominal(_outer(q), holes, circles, p)
@@ -426,6 +427,9 @@ def compare(
     if len(chosen) > 1:
         raise OptionError(f"the result has {len(chosen)} parts; choose one with --part, e.g. --part {chosen[0].label}")
     p: Part = chosen[0]
+    one_piece(
+        p, "a comparison of it with the nominal", path=None if isinstance(measured, Measurement) else str(measured)
+    )
     rings = [_outer(p)] + [_hole_ring(p, h) for h in p.holes]
     r, t = _align(rings, nom, align)
     moved = [ring @ r.T + t for ring in rings]

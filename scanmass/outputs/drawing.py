@@ -33,7 +33,7 @@ import numpy as np
 from scanmass.errors import OptionError, ResultFormatError
 from scanmass.measurement import Measurement
 from scanmass.outputs.atomic import write_atomic
-from scanmass.outputs.export import LAYER_HOLES, LAYER_OUTLINE, _select_parts
+from scanmass.outputs.export import LAYER_HOLES, LAYER_OUTLINE, _select_parts, one_piece, pieces_note
 from scanmass.outputs.intent import Idealised, idealise
 from scanmass.outputs.primitives import Entity, fit_part, ring_points
 from scanmass.outputs.resultio import PathLike, as_measurement
@@ -67,6 +67,8 @@ class DrawingSummary:
     counts: dict[str, int] = field(default_factory=dict)
     max_deviation_mm: float = 0.0
     area_mm2: tuple[float, float] = (0.0, 0.0)
+    #: What to know of the part (a part found in pieces that all lie within its outline)
+    notes: list[str] = field(default_factory=list)
 
     def lines(self) -> list[str]:
         """What the CLI prints: entities, deviation, steps and files."""
@@ -78,6 +80,7 @@ class DrawingSummary:
             f"sheet {self.sheet} at {_scale_text(self.scale)}, {self.dimensions} dimensions",
         ]
         out += [f"step {s}" for s in self.steps]
+        out += [f"note: {n}" for n in self.notes]
         out += [f"wrote {w}" for w in self.written]
         return out
 
@@ -108,13 +111,17 @@ def _to_datum(ideal: Idealised) -> tuple[list[Entity], list[Entity]]:
 
 
 def prepare(
-    measurement: Measurement, part_label: int | None = None, **intent: Any
+    measurement: Measurement, part_label: int | None = None, *, path: str | None = None, **intent: Any
 ) -> tuple[Measurement, Idealised, list[Entity], list[Entity]]:
-    """Fit and idealise one part; return it with its entities in the datum frame."""
+    """Fit and idealise one part; return it with its entities in the datum frame.
+
+    A part found in pieces is refused (:func:`~scanmass.outputs.export.one_piece`, naming ``path``).
+    """
     parts = _select_parts(measurement, None if part_label is None else [part_label])
     if len(parts) > 1:
         raise OptionError(f"the result has {len(parts)} parts; choose one with --part, e.g. --part {parts[0].label}")
     part = parts[0]
+    one_piece(part, "a drawing fitted to it", path=path)
     fitted = fit_part(part, measurement.scale.mm_per_px, tolerance_mm=intent.pop("tolerance_mm", None))
     ideal = idealise(fitted, part, scale_rel_u=measurement.scale.mm_per_px_rel_u, **intent)
     outer, holes = _to_datum(ideal)
@@ -413,7 +420,7 @@ def write_drawing(
         raise OptionError("nothing to write; give --pdf OUT.pdf, --svg OUT.svg and/or --dxf OUT.dxf")
     m, json_path = as_measurement(result)
     try:
-        m, ideal, outer, holes = prepare(m, part, **intent)
+        m, ideal, outer, holes = prepare(m, part, path=json_path, **intent)
     except ResultFormatError as exc:
         if json_path and not exc.path:
             raise ResultFormatError(str(exc), path=json_path) from None
@@ -428,6 +435,9 @@ def write_drawing(
     summary.max_deviation_mm = ideal.max_deviation_mm
     summary.area_mm2 = (ideal.measured_area_mm2, ideal.area_mm2)
     summary.steps = [f"{st.name}: moved <= {st.deviation_mm:.4f} mm; {st.detail}" for st in ideal.steps]
+    note = pieces_note(_select_parts(m, None if part is None else [part])[0])
+    if note is not None:  # its pieces lie within its outline (else prepare refused it)
+        summary.notes.append(f"{note}: the drawing is of that outline")
     if svg is not None:
         summary.written.append(write_atomic(svg, sheet_svg(sh), inputs=inputs))
     if pdf is not None:

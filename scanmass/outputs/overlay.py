@@ -138,6 +138,10 @@ def render_overlay(
                 cv2.LINE_AA,
                 shift,
             )
+        for ring in part.pieces_mm:  # a part found in pieces: its other pieces, as measured
+            cv2.polylines(
+                canvas, [pts_int(_to_px(inv, ring))], True, _CUT if part.cut else _OUTLINE, lw, cv2.LINE_AA, shift
+            )
         for hole in part.holes:
             if hole.outline_mm is not None:
                 cv2.polylines(canvas, [pts_int(_to_px(inv, hole.outline_mm))], True, _HOLE, lw, cv2.LINE_AA, shift)
@@ -180,7 +184,7 @@ def render_overlay(
             cv2.ellipse(canvas, cpx, axes, 0, 0, 360, _ELLIPSE, lw, cv2.LINE_AA)
         bbox = part.bbox_mm
         label_px = _to_px(inv, [[bbox[0], bbox[3]]])[0] * zoom
-        text = f"{part.label}"
+        text = f"{part.label} (in {1 + len(part.pieces_mm)} pieces)" if part.pieces_mm else f"{part.label}"
         org = (int(label_px[0]), max(int(label_px[1]) - 6 * lw, 20))
         cv2.putText(canvas, text, org, font, font_scale * 1.2, (255, 255, 255), 4 * lw, cv2.LINE_AA)
         cv2.putText(canvas, text, org, font, font_scale * 1.2, _TEXT, 2 * lw, cv2.LINE_AA)
@@ -244,6 +248,8 @@ def _top_view(image: LoadedImage, measurement: Measurement, height_px: int, lw: 
     for part in measurement.parts:
         if part.outline_mm is not None:
             cv2.polylines(view, [pts(part.outline_mm)], True, _OUTLINE, lw, cv2.LINE_AA, 4)
+        for ring in part.pieces_mm:
+            cv2.polylines(view, [pts(ring)], True, _OUTLINE, lw, cv2.LINE_AA, 4)
         for hole in part.holes:
             if hole.outline_mm is not None:
                 cv2.polylines(view, [pts(hole.outline_mm)], True, _HOLE, lw, cv2.LINE_AA, 4)

@@ -736,8 +736,16 @@ def fit_part(part: Part, mm_per_px: float, *, tolerance_mm: float | None = None)
         The result's pixel size (``Measurement.scale.mm_per_px``), for the corner zone.
     tolerance_mm : float, optional
         Overrides :func:`default_tolerance_mm`.
+
+    Raises
+    ------
+    OptionError
+        The part was found in pieces (:attr:`~scanmass.measurement.Part.pieces_mm`): its outline
+        is its largest piece only, and a shape fitted to it would miss the others.
     """
-    from scanmass.outputs.export import _hole_ring, _outer
+    from scanmass.outputs.export import _hole_ring, _outer, one_piece
+
+    one_piece(part, "a shape fitted to it")
 
     sigma = edge_sigma_mm(part, mm_per_px)
     tol = default_tolerance_mm(part, mm_per_px) if tolerance_mm is None else float(tolerance_mm)

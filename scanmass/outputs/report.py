@@ -382,7 +382,7 @@ def outline_svg(measurement: Measurement, *, max_width_px: int = 900) -> str:
     drawn = [p for p in measurement.parts if p.outline_mm is not None and _ring_d(p.outline_mm)]
     if not drawn:
         return ""
-    allpts = np.vstack([np.asarray(p.outline_mm, dtype=float) for p in drawn])
+    allpts = np.vstack([np.asarray(r, dtype=float) for p in drawn for r in [p.outline_mm, *p.pieces_mm]])
     lo, hi = allpts.min(axis=0), allpts.max(axis=0)
     span = float(max(hi[0] - lo[0], hi[1] - lo[1], 1e-6))
     pad = 0.04 * span
@@ -407,6 +407,12 @@ def outline_svg(measurement: Measurement, *, max_width_px: int = 900) -> str:
             f'<path d="{d}" fill="{_OKABE_ITO["sky"]}" fill-opacity="0.35" fill-rule="evenodd" '
             f'stroke="{_OKABE_ITO["blue"]}" stroke-width="{_num(stroke)}"><title>Part {int(p.label)}</title></path>'
         )
+        for k, ring in enumerate(p.pieces_mm, start=2):  # a part found in pieces: the others, dashed, drawn over
+            out.append(
+                f'<path d="{_ring_d(ring)}" fill="{_OKABE_ITO["sky"]}" fill-opacity="0.35" '
+                f'stroke="{_OKABE_ITO["blue"]}" stroke-width="{_num(stroke)}" stroke-dasharray="{_num(4 * stroke)}">'
+                f"<title>Part {int(p.label)}, piece {k}</title></path>"
+            )
         for hl in p.holes:
             if hl.outline_mm is not None and _ring_d(hl.outline_mm):
                 out.append(
@@ -491,6 +497,7 @@ def _image_view(index: int, m: Measurement, result_path: str | None, overlay: An
                 "label": int(p.label),
                 "anchor": f"{anchor}-part-{int(p.label)}",
                 "cut": bool(p.cut),
+                "pieces": 1 + len(p.pieces_mm),
                 "summary": {
                     "area": area,
                     "cx": cx,
@@ -771,6 +778,7 @@ def write_report(
 # ---------------------------------------------------------------------------
 def _column_titles() -> dict[str, str]:
     titles = {"file": "File", "part": "Part", "scale_method": "Scale method", "warnings": "Warnings"}
+    titles["outline_pieces"] = "Outline pieces"
     for units in ("mm", "in"):
         titles[f"hole_diameters_{'mm' if units == 'mm' else 'in'}"] = f"Hole diameters / {units}"
         for fig in FIGURES:

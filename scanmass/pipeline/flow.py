@@ -17,7 +17,7 @@ import cv2
 import numpy as np
 
 from scanmass.errors import OptionError, PartCutError, ScaleError, SegmentationError
-from scanmass.geometry import point_in_ring, ring_perimeter, vertex_normals
+from scanmass.geometry import orient_ring, point_in_ring, ring_perimeter, vertex_normals
 from scanmass.load.decode import LoadedImage, encoding_lut, load_image, read_dpi
 from scanmass.mapping import MappedPart, map_cut, map_part, shoelace_area
 from scanmass.measurement import Measurement, ScaleInfo, SourceInfo
@@ -538,9 +538,9 @@ def measure_image(
         if lost_px > 0:
             part = with_lost_face_term(part, lost_px * px_area_mm2)
         if own_pieces:
-            part = with_fragment_term(
-                part, mapped, [plane_map.to_mm(np.asarray(q.outer_px, float)) for q in own_pieces]
-            )
+            pieces_mm = [plane_map.to_mm(np.asarray(q.outer_px, float)) for q in own_pieces]
+            part = with_fragment_term(part, mapped, pieces_mm)
+            part = replace(part, pieces_mm=[orient_ring(r, ccw=True) for r in pieces_mm])  # drawn, not measured again
         if walls.rings.label in faces and faces[walls.rings.label].note != "soft edges":
             part = _with_face_term(part, faces[walls.rings.label], plane_map)
         if part.label in cuts:

@@ -761,6 +761,19 @@ def footprint_rings(
     ]
 
 
+def footprint_pieces(scale: PhotoScale, part: Part, thickness_mm: float, top_edge: bool) -> list[np.ndarray]:
+    """The outer rings of the part's other pieces (``Part.pieces_mm``) moved as :func:`footprint_rings` moves its outline."""
+    if not part.pieces_mm:
+        return []
+    assert scale.camera_matrix is not None
+    h0, k = scale.plane_map.matrix, scale.camera_matrix
+    e = ElevationHook(h0, k, thickness_mm).footprint_mm
+    rings = [np.asarray(r, float) for r in part.pieces_mm]
+    if top_edge:
+        return [apply_h(e, r) for r in rings]
+    return [raised_outline_mm(h0, k, thickness_mm, r, footprint_mm=e) for r in rings]
+
+
 @dataclass
 class RaisedRings:
     """Footprint rings (:func:`footprint_rings`) of ``scale``'s parts, each made once per part, thickness and side.
@@ -876,7 +889,9 @@ def with_wall_thickness(
         if escaping_holes(outer, holes) or escaping_holes(outer_u, holes_u):
             continue
         term = change_term(outer, holes, outer_u, holes_u, share=1.0 / 1.5)
-        moved = _moved(part, outer, holes)
+        moved = replace(
+            _moved(part, outer, holes), pieces_mm=footprint_pieces(scale, part, est.thickness_mm, est.top_edge)
+        )
         # _with_extra_term takes half of a ring's change: the ring 4/3 of the 1.5-sigma move away is 1 sigma
         far = [h + (h_u - h) * (4.0 / 3.0) for h, h_u in zip(holes, holes_u)]
         result.parts[n] = _with_extra_term(moved, "thickness_estimate", term, far)
