@@ -120,6 +120,10 @@ def test_every_part_a_warning_names_is_in_the_result(name, thickness_mm):
         ("dev-window-nylon5-t22", "l-bracket", 0.035),
         # a 6 mm white cam beside a steel plate (bench: +0.02 %)
         ("dev-window-nylon6-t12", "cam", 0.01),
+        # a white cam beside a steel plate, the camera opposite the window, Filmic curve (-0.63 %)
+        ("dev-window-nylon7-t16", "cam", 0.01),
+        # a 3.5 mm white cam beside a 4 mm steel plate, steeper (-0.69 %)
+        ("dev-window-nylon8-t24", "cam", 0.01),
     ],
 )
 def test_a_white_part_beside_a_steel_plate_in_window_light(name, shape, rel_tol):
