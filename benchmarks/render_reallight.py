@@ -1039,6 +1039,55 @@ def dev_scenes():
             300,
             "Filmic",
         ),
+        # stop 32 (branch nylonwin32): a white nylon cam or bracket beside a brushed-steel plate with holes in
+        # window light from one side, at a tilt: the white part on the window's side or away from it, the
+        # camera turned towards or away from the window (nylon7: opposite it, the steel face lit by its
+        # reflection), both view curves
+        (
+            "dev-window-nylon4-t18",
+            "window",
+            [("cam", "white-nylon", 4.0, 90, 195, -40), ("plate", "brushed-steel", 3.5, 125, 100, 20)],
+            320,
+            18,
+            160,
+            "Standard",
+        ),
+        (
+            "dev-window-nylon5-t22",
+            "window",
+            [("l-bracket", "white-nylon", 5.0, 120, 100, 30), ("plate4", "brushed-steel", 4.0, 90, 195, -25)],
+            325,
+            22,
+            60,
+            "Filmic",
+        ),
+        (
+            "dev-window-nylon6-t12",
+            "window",
+            [("cam", "white-nylon", 6.0, 125, 190, 110), ("plate", "brushed-steel", 3.0, 85, 100, 40)],
+            315,
+            12,
+            280,
+            "Standard",
+        ),
+        (
+            "dev-window-nylon7-t16",
+            "window",
+            [("plate", "brushed-steel", 2.5, 120, 100, 35), ("cam", "white-nylon", 4.5, 90, 190, -20)],
+            325,
+            16,
+            20,
+            "Filmic",
+        ),
+        (
+            "dev-window-nylon8-t24",
+            "window",
+            [("cam", "white-nylon", 3.5, 85, 110, 150), ("plate", "brushed-steel", 4.0, 125, 190, -50)],
+            320,
+            24,
+            330,
+            "Standard",
+        ),
     ]
 
 

@@ -40,6 +40,7 @@ from scanmass.pipeline.photo_checks import (
     _photo_colour,
     _unclear_edges,
     _unknown_thickness,
+    without_parts,
 )
 from scanmass.pipeline.photo_colour import colour_faces
 from scanmass.pipeline.photo_holes import _open_deep_holes
@@ -926,7 +927,11 @@ def _measure_photo(
         cut_scale = scale
     _, _, result, deep = _open_deep_holes(image, masked, cut_scale, result, thickness_mm, remeasure, colour)
     # white parts on white paper found by their top faces where only shadows or lit faces were (photo_shadows)
+    before_white = {p.label for p in result.parts}
     result, white, white_notes = _white_parts(image, masked, cut_scale, result, colour, thickness_mm, probe_remeasure)
+    # the shadow cut's and deep holes' notes were built before: a region a white part replaced is no part of it
+    gone = before_white - {p.label for p in result.parts}
+    cut, deep = without_parts(cut, gone), without_parts(deep, gone)
     shadow_only = white_notes + _shadows_only(image, scale, result, colour, thickness_mm, white)
     coloured, colour_notes = colour_faces(image, scale, result, colour, colour_measure, min_area_px, thickness_mm)
     result = result if coloured is None else coloured

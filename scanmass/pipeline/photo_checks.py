@@ -13,6 +13,7 @@ Part of the pipeline stage (:mod:`scanmass.pipeline`).
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import replace
 
 import cv2
@@ -29,6 +30,68 @@ from scanmass.scale.homography import ElevationHook, apply_h, raised_outline_mm
 from scanmass.section import escaping_holes
 from scanmass.segment.shadow import SHADOW_MIN_ELEVATION_DEG, dark_pits, unclear_edges
 from scanmass.uncertainty import combine
+
+#: A part's label as a warning names it: "part 3", "part(s) 1, 2", "part(s) 2 (65 % of ...), 4 (...)"; not a
+#: thickness ("a part 3 mm thick").
+_PART_NAMES = re.compile(
+    r"\bpart(?:\(s\))? (\d+(?: \((?:[^()]|\([^()]*\))*\))?(?:, \d+(?: \((?:[^()]|\([^()]*\))*\))?)*)(?![\d.]| mm)"
+)
+
+
+def _name_entries(group: str) -> list[str]:
+    """The entries of a list of parts a warning names ("2 (65 %, 3 mm), 4" -> ["2 (65 %, 3 mm)", "4"])."""
+    out, depth, start = [], 0, 0
+    for i, ch in enumerate(group):
+        depth += (ch == "(") - (ch == ")")
+        if ch == "," and depth == 0:
+            out.append(group[start:i])
+            start = i + 2
+    out.append(group[start:])
+    return out
+
+
+def relabelled(warning: str, moved: dict[int, int | None]) -> str | None:
+    """A warning with the parts it names renamed (``moved``: old label -> new label, or None for a region that is no
+    longer a part, whose entry is left out); None when a list of parts it names is left empty (the warning was
+    about such regions alone). Labels not in ``moved`` stay.
+
+    A warning is built from one measurement; a later stage that measures again numbers the parts anew, and one that
+    replaces a region (a white part found by its top face, where its pieces were found) takes it away.
+
+    Examples
+    --------
+    >>> relabelled("part 2: 71 boundary points lie on thin walls", {2: 3})
+    'part 3: 71 boundary points lie on thin walls'
+    >>> relabelled("cast shadow: part(s) 1 (65 % of its edge band), 3 (84 %) border", {1: None, 3: 2})
+    'cast shadow: part(s) 2 (84 %) border'
+    >>> relabelled("deep hole: in part 4 (6.2 mm at (14.0, 10.5) mm) a dark opening", {4: None}) is None
+    True
+    >>> relabelled("a part 3 mm thick would measure 4 % smaller", {3: None})
+    'a part 3 mm thick would measure 4 % smaller'
+    """
+    emptied = False
+
+    def rename(match: re.Match[str]) -> str:
+        nonlocal emptied
+        entries = []
+        for entry in _name_entries(match.group(1)):
+            digits = re.match(r"\d+", entry)
+            assert digits is not None  # every entry begins with its label
+            new = moved.get(int(digits.group()), int(digits.group()))
+            if new is not None:
+                entries.append(f"{new}{entry[digits.end() :]}")
+        emptied |= not entries
+        return match.group(0)[: match.start(1) - match.start(0)] + ", ".join(entries)
+
+    out = _PART_NAMES.sub(rename, warning)
+    return None if emptied else out
+
+
+def without_parts(warnings: list[str], gone: set[int] | frozenset[int]) -> list[str]:
+    """``warnings`` with the regions ``gone`` (no longer parts of the result) left out of the parts each names, and
+    those that named only such regions dropped (:func:`relabelled`)."""
+    moved: dict[int, int | None] = {label: None for label in gone}
+    return [w for w in (relabelled(w, moved) for w in warnings) if w is not None]
 
 
 def _mask_outside(image: LoadedImage, roi_px: np.ndarray) -> LoadedImage:

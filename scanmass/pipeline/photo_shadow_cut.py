@@ -20,7 +20,7 @@ from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import _with_extra_term, _with_shadow_term, area_share_term, has_lit_face
-from scanmass.pipeline.photo_checks import _part_crop
+from scanmass.pipeline.photo_checks import _part_crop, relabelled
 from scanmass.pipeline.photo_cut_strips import _lies_within, _open_slivers, _painted_holes
 from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
@@ -846,6 +846,7 @@ def _cut_once(
     said: dict[str, dict[str, float]] = {}
     seen: set[int] = set()  # parts whose lost side wall was restored
     walls: list[str] = []
+    cut_new: dict[int, int | None] = {}  # a cut part's label in the first measurement -> in the second
     for old, edge_mm, cut_mm2, wall_mm2 in cuts:
         assert old.outline_mm is not None  # _part_crop gave a crop
         outline = np.asarray(old.outline_mm, np.float32)
@@ -868,6 +869,7 @@ def _cut_once(
             and all(math.dist(q.centroid_mm, c) > 1.0 for c in before)
         }
         part = again.parts[n]
+        cut_new[old.label] = part.label
         if wall_mm2 > 0:
             part = _with_extra_term(part, "side_wall", area_share_term(part, wall_mm2, weight=0.5), [])
             walls.append(f"{part.label} ({wall_mm2:.3g} mm²)")
@@ -886,18 +888,24 @@ def _cut_once(
     # levels with the shadows painted over, which moves soft edges elsewhere a little)
     kept = [p for p in result.parts if all(p is not old for old, *_ in cuts)]
     parts = []
+    # the first measurement's labels in the second (None: no part of it), for the first measurement's warnings
+    moved: dict[int, int | None] = {p.label: None for p in result.parts}
+    moved.update(cut_new)
     for k, q in enumerate(again.parts):
         if k in remnants:
             continue
         same = [] if q.label in labels | seen else [p for p in kept if math.dist(p.centroid_mm, q.centroid_mm) < 1.0]
         parts.append(replace(same[0], label=q.label) if same else q)
+        if same:
+            moved[same[0].label] = q.label
     again.parts = parts
     if said:
         again.settings["shadow_cut"] = {"parts": said, "pieces_left_out": len(remnants)}
     # the image's own warnings: the first measurement's, but a cut part's from the second
     old_labels = {f"part {old.label}:" for old, *_ in cuts}
     new_labels = {f"part {label}:" for label in labels | seen}
-    again.warnings = [w for w in result.warnings if not any(w.startswith(x) for x in old_labels)] + [
+    firsts_said = [relabelled(w, moved) for w in result.warnings if not any(w.startswith(x) for x in old_labels)]
+    again.warnings = [w for w in firsts_said if w is not None] + [
         w for w in again.warnings if any(w.startswith(x) for x in new_labels)
     ]
     out = []

@@ -7,7 +7,6 @@ Part of the pipeline stage (:mod:`scanmass.pipeline`).
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Callable
 from dataclasses import replace
 
@@ -24,7 +23,7 @@ from scanmass.pipeline.part_terms import (
     area_share_term,
     has_lit_face,
 )
-from scanmass.pipeline.photo_checks import _part_crop
+from scanmass.pipeline.photo_checks import _part_crop, without_parts
 from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM, region_reading
 from scanmass.pipeline.photo_thickness import WallThickness
 from scanmass.pipeline.photo_walls import with_top_seen
@@ -572,30 +571,6 @@ def _near_white(
     return result, frozenset(), [note]
 
 
-#: A part's label as a warning names it: "part 3", "part(s) 1, 2", "part(s) 2 (65 % of ...), 4 (...)".
-_PART_NAMES = re.compile(
-    r"\bpart(?:\(s\))? (\d+(?: \((?:[^()]|\([^()]*\))*\))?(?:, \d+(?: \((?:[^()]|\([^()]*\))*\))?)*)"
-)
-
-
-def _names_only(warning: str, labels: set[int]) -> bool:
-    """True when every part a warning names is among ``labels`` (the pieces a white face took in: a warning
-    about them alone no longer names a part of the result).
-
-    Examples
-    --------
-    >>> _names_only("part 1: 200 boundary points lie on thin walls", {1, 2})
-    True
-    >>> _names_only("cast shadow: part(s) 1 (65 % of its edge band), 3 (84 %) border", {1, 2})
-    False
-    >>> _names_only("print scale unverified", {1})
-    False
-    """
-    groups = [re.sub(r"\((?:[^()]|\([^()]*\))*\)", "", g) for g in _PART_NAMES.findall(warning)]
-    named = {int(n) for group in groups for n in re.findall(r"(?:^|, )(\d+)", group)}
-    return bool(named) and named <= labels
-
-
 def _face_edges_seen(plane_map: PlaneMap, faces: list[tuple[WhiteFace, np.ndarray, np.ndarray]]) -> PlaneMap:
     """The plane map with the white faces' neighbourhoods taken as seen on the top face's edge all round.
 
@@ -723,7 +698,8 @@ def _white_parts(
     if not white:
         return result, frozenset(), missed
     result.parts = parts
-    result.warnings = [w for w in result.warnings if not _names_only(w, fragments)]
+    # the pieces the white parts replaced are no parts: the warnings about them alone go, the others leave them out
+    result.warnings = without_parts(result.warnings, fragments)
     names = ", ".join(f"part {p.label}" for p in parts if p.label in white)
     note = (
         f"white on white: {names} found by the top face, a little darker and smoother than the paper (a white part "

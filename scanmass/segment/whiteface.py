@@ -24,6 +24,7 @@ R. C. Gonzalez and R. E. Woods, *Digital Image Processing*, 4th ed., Pearson, 20
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import cv2
@@ -92,6 +93,18 @@ GROW_MAX = 1.6
 #: the rims of its holes cut apart (a bracket's arm beyond a hole): half the spread a face may have
 #: (:data:`MAX_FACE_SPREAD`).
 PIECE_LEVEL_DIFF = 0.5 * MAX_FACE_SPREAD
+#: Steepest slope (change of the level over the local paper white, per mm) and widest spread about its own plane
+#: (95th - 5th percentile of the residuals of a least-squares plane) of a smooth piece joined to a face as one of
+#: its pieces (:func:`_same_face`): a piece of a top face lies in one plane of slowly changing light. A soft
+#: cast shadow's outer penumbra is a smooth ramp from the shadow's core up to the paper, and where it crosses a
+#: white face's level its band was joined to the face (dev-window-nylon5-t22: two bands beside a white bracket,
+#: 0.016 per mm and a curved strip spreading 0.065 about its plane, grown into a 420 mm² 'part' of its own).
+#: On the committed renders the pieces of white faces rise at most 0.005 per mm (dev-spot-nylon-t20, the spot's
+#: fall-off) and spread at most 0.012 about their planes; the penumbra bands beside them rise 0.016-0.032 per mm
+#: (dev-window-nylon-t10, dev-window-nylon3-t12, dev-window-nylon5-t22). The limits lie between, the spread's at
+#: :data:`PIECE_LEVEL_DIFF` (a piece spread wider holds levels two faces' pieces would not share).
+PIECE_MAX_SLOPE_PER_MM = 0.01
+PIECE_MAX_PLANE_SPREAD = PIECE_LEVEL_DIFF
 #: Reach (mm) within which such pieces are sought: a hole's rim cuts a face's smooth area over the hole's
 #: width and a rim each side (the smoothed step, 2 x 4 px, 2.4 mm at 0.3 mm/px), so a hole up to about 10 mm
 #: across (the largest in the committed renders' white parts: 11 mm) leaves pieces this far apart.
@@ -193,9 +206,11 @@ def _same_face(
     face_ratio: float,
     taken: np.ndarray,
     reach_px: int,
+    mm_per_px: float,
 ) -> list[int]:
     """Component ``k`` and the smooth pieces at its level within ``reach_px`` of it (transitively): one face
-    whose holes' rims cut its smooth area apart (:data:`PIECE_LEVEL_DIFF`); pieces already taken are not."""
+    whose holes' rims cut its smooth area apart (:data:`PIECE_LEVEL_DIFF`); pieces already taken are not, nor
+    pieces that are not flat (:func:`_flat_piece`: a penumbra's band)."""
     group, todo = [k], [k]
     disc = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (2 * reach_px + 1,) * 2)
     while todo:
@@ -213,9 +228,33 @@ def _same_face(
             level = float(np.median(ratio[py : py + ph, px : px + pw][piece]))
             if np.any(taken[py : py + ph, px : px + pw] & piece) or abs(level - face_ratio) >= PIECE_LEVEL_DIFF:
                 continue
+            if not _flat_piece(ratio[py : py + ph, px : px + pw], piece, mm_per_px):
+                continue
             group.append(int(n))
             todo.append(int(n))
     return group
+
+
+def _flat_piece(ratio: np.ndarray, piece: np.ndarray, mm_per_px: float) -> bool:
+    """True when a smooth piece's level lies in one plane of slowly changing light, as a piece of a top face does:
+    the least-squares plane through its levels rises less than :data:`PIECE_MAX_SLOPE_PER_MM` and its levels
+    spread less than :data:`PIECE_MAX_PLANE_SPREAD` about it (95th - 5th percentile). A penumbra's band is a ramp.
+
+    Examples
+    --------
+    >>> yy, xx = np.mgrid[:20, :30].astype(np.float32)
+    >>> piece = np.ones((20, 30), bool)
+    >>> _flat_piece(0.85 + 0.0003 * xx, piece, 0.3), _flat_piece(0.85 + 0.006 * xx, piece, 0.3)
+    (True, False)
+    """
+    rows, cols = np.nonzero(piece)
+    if rows.size < 3:
+        return True
+    values = ratio[rows, cols].astype(np.float64)
+    design = np.c_[np.ones(rows.size), rows, cols].astype(np.float64)
+    coef, *_ = np.linalg.lstsq(design, values, rcond=None)
+    p5, p95 = np.percentile(values - design @ coef, [5, 95])
+    return bool(math.hypot(coef[1], coef[2]) / mm_per_px < PIECE_MAX_SLOPE_PER_MM and p95 - p5 < PIECE_MAX_PLANE_SPREAD)
 
 
 def _without_strips(grown: np.ndarray, seed: np.ndarray) -> np.ndarray:
@@ -330,7 +369,7 @@ def white_faces(
         # narrow web between the hole and the edge, and cut a bracket's arm there. Grown from the pieces a hole's
         # rims cut apart together; a growth reaching GROW_PX past them has leaked into the paper.
         half = 0.5 * (1.0 - face_ratio)
-        group = _same_face(labels, stats, ratio, k, face_ratio, taken | paper_patch, piece_px)
+        group = _same_face(labels, stats, ratio, k, face_ratio, taken | paper_patch, piece_px, mm_per_px)
         first = np.isin(labels, group)
         rows, cols = np.nonzero(first.any(axis=1))[0], np.nonzero(first.any(axis=0))[0]
         y0g, y1g = max(int(rows[0]) - GROW_PX, 0), min(int(rows[-1]) + 1 + GROW_PX, lv.shape[0])
