@@ -42,15 +42,7 @@ _LENS_WINDOW_STEEL = (
     "patch of its lit steel face for a white part's top face with that region as its piece, -78.9 % at 12.3 "
     "sigma; nylonguard30's guard refuses such a face: the pieces do not fit a white part's)"
 )
-_WINDOW_NYLON = (
-    "white-nylon cam (5 mm) beside a brushed-steel plate (3 mm) in window light at 15 degrees (rendered in stop 31, "
-    "measured before any rule saw it): a region of about 425-440 mm2 some 30 mm beside the cam, "
-    "window, is found as a second white face and reported as a part (+-121..143 mm2, warned 'white on white'); "
-    "the cam itself reads {cam} and the steel plate {plate}, both within 3 sigma"
-)
 KNOWN_FAILING: dict[tuple[str, bool], str] = {
-    ("hold-window-nylon-t15.json", True): _WINDOW_NYLON.format(cam="-0.33 %", plate="-21.4 % at 1.4 sigma"),
-    ("hold-window-nylon-t15.json", False): _WINDOW_NYLON.format(cam="+2.98 %", plate="-3.1 %"),
     ("hold-lens-window-steel-t20.json", True): "brushed steel (gasket 4 mm, cam 2 mm) in window light at 20 degrees "
     "through the distorting lens, with the thickness: the faces are wider than a 2 mm part's shadow can be, so with "
     "2 mm both parts are reported (cam +11.7 % at 0.4 sigma, gasket +45.9 % at 0.8 sigma, warned 'cast shadow'); "
