@@ -275,8 +275,12 @@ def _unclear_edges(image: LoadedImage, scale: PhotoScale, result: Measurement) -
             continue
         area_mm2 = UNCLEAR_EDGE_SIGMA_SHARE * risk.moved_px2 * mm_per_px**2
         term = area_share_term(part, area_mm2)
+        # each hole from its own ring: the area its flagged stretches sweep is its length L times
+        # their mean displacement d; the part's term takes UNCLEAR_EDGE_SIGMA_SHARE of the swept
+        # area at 1 sigma, and a ring's area change dA moves a circle's diameter by 2 dA / L
+        # (dA = pi D dD / 2), so the same share gives 2 x share x d on the diameter
         holes = [
-            replace(h, diameter_u_mm=combine(h.diameter_u_mm, d_px * mm_per_px))
+            replace(h, diameter_u_mm=combine(h.diameter_u_mm, 2.0 * UNCLEAR_EDGE_SIGMA_SHARE * d_px * mm_per_px))
             for h, d_px in zip(part.holes, risk.ring_mean_px[1:])
         ]
         result.parts[n] = _with_extra_term(replace(part, holes=holes), "unclear_edge", term, [])
