@@ -206,14 +206,18 @@ def ring_band_mean_px(region: np.ndarray, ring_px: np.ndarray, reach_px: float, 
     ring = np.asarray(ring_px, float)
     if len(ring) < 3:
         return 0.0
+    from skimage.draw import polygon  # noqa: PLC0415 - only a flagged part with holes needs it
+
+    # the pixels whose centres lie inside the ring (cv2.fillPoly would add the pixels its edges
+    # touch, half a pixel beyond the ring on average: half a pixel of every band's depth)
     fill = np.zeros(region.shape, np.uint8)
-    cv2.fillPoly(fill, [np.round(ring).astype(np.int32)], 1)
+    rr, cc = polygon(ring[:, 1], ring[:, 0], region.shape)
+    fill[rr, cc] = 1
     if inside:
-        near = cv2.distanceTransform(fill, cv2.DIST_L2, 3) <= reach_px
-        near &= fill.astype(bool)
+        near = fill.astype(bool) & (cv2.distanceTransform(fill, cv2.DIST_L2, 5) <= reach_px + 0.5)
     else:
-        dist = cv2.distanceTransform(1 - fill, cv2.DIST_L2, 3)
-        near = (dist > 0) & (dist <= reach_px)
+        dist = cv2.distanceTransform(1 - fill, cv2.DIST_L2, 5)
+        near = (dist > 0) & (dist <= reach_px + 0.5)
     length = float(np.sum(np.hypot(*(np.roll(ring, -1, 0) - ring).T)))
     return float(np.count_nonzero(region & near)) / max(length, 1.0)
 
