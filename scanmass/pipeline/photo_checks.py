@@ -290,20 +290,10 @@ def _unclear_edges(image: LoadedImage, scale: PhotoScale, result: Measurement) -
         # each hole from its own ring: its mean plausible displacement d, the move of the whole
         # ring taken at 2 sigma (a hole's ring moves as one: a dark wall or pit taken as material
         # shrinks it all round, as on dev-mixed-black-t15's cam without a thickness, 8.0 mm read
-        # as 2.8 mm with d = 4.2 mm), 2 d on the diameter, d at 1 sigma.
-        # A hole opened as a deep hole (photo_holes) is left out: its ring was traced at the top
-        # face by rays from its dark pit, with its own doubt (term 'deep_hole'); the profile test
-        # sees face, dark wall, lit floor as a dip all round and takes the wall's width as the
-        # displacement, the far side of a wall the traced opening does not follow (1.3 mm on the
-        # diameters of dev-mixed-black-t15's opened holes, whose errors are 0.001-0.06 mm).
-        opened = [
-            (note["x_mm"], note["y_mm"], note["diameter_mm"])
-            for note in result.settings.get("deep_holes", {}).get(str(part.label), [])
-        ]
+        # as 2.8 mm with d = 4.2 mm), 2 d on the diameter, d at 1 sigma. Opened deep holes keep
+        # it too: mixed-steel-t20's cam bore, traced at the top face, reads 2.2 mm small.
         holes = [
-            h
-            if any(math.dist(h.circle_centre_mm, (x, y)) < 0.25 * d for x, y, d in opened)
-            else replace(h, diameter_u_mm=combine(h.diameter_u_mm, d_px * mm_per_px))
+            replace(h, diameter_u_mm=combine(h.diameter_u_mm, d_px * mm_per_px))
             for h, d_px in zip(part.holes, risk.ring_mean_px[1:])
         ]
         result.parts[n] = _with_extra_term(replace(part, holes=holes), "unclear_edge", term, [])

@@ -45,7 +45,6 @@ from scanmass.segment.shadow import (
 )
 from scanmass.segment.sidewall import LostWall, lost_wall_band
 from scanmass.segment.softshadow import fade_cut, lit_beyond, tint_bound, tint_step_cut
-from scanmass.uncertainty import combine
 
 #: The stated doubt (1 sigma, px) of where the outline runs along a stretch cut from a cast
 #: shadow (:func:`~scanmass.segment.castshadow.shadow_cut`). On the committed renders
@@ -796,35 +795,6 @@ def _same_but_grey(a: LoadedImage, b: LoadedImage) -> bool:
     return all(getattr(a, f.name) is getattr(b, f.name) for f in fields(a) if f.name != "grey")
 
 
-def ring_cut_share(painted: np.ndarray, plane_map: PlaneMap, ring_mm: np.ndarray | None) -> float:
-    """Share of a hole's ring (by length) that runs along a painted cut: within :data:`SHADOW_CUT_EDGE_PX` + 1 px of it.
-
-    A cut's edge is placed to about :data:`SHADOW_CUT_EDGE_PX` where it runs; a ring the cut
-    did not touch keeps its own edge, found by the level step like any other. A ring's mean
-    radial shift moves its fitted circle's diameter by twice that mean
-    (:func:`~scanmass.pipeline.photo_shadows.ring_band_mean_px`), so the stretch of share ``s``
-    gives ``2 s`` times the edge doubt on the diameter. No ring (None): the whole ring, as before.
-    """
-    if ring_mm is None or len(ring_mm) < 3:
-        return 1.0
-    ring = plane_map.to_px(np.asarray(ring_mm, float))
-    h, w = painted.shape[:2]
-    reach = SHADOW_CUT_EDGE_PX + 1.0
-    x0, y0 = np.maximum(np.floor(ring.min(axis=0) - reach - 2).astype(int), 0)
-    x1, y1 = np.minimum(np.ceil(ring.max(axis=0) + reach + 2).astype(int), [w, h])
-    if x1 - x0 < 2 or y1 - y0 < 2:
-        return 0.0
-    window = painted[y0:y1, x0:x1]
-    if not window.any():
-        return 0.0
-    dist = cv2.distanceTransform((~window).astype(np.uint8), cv2.DIST_L2, 5)
-    cols = np.clip(np.round(ring[:, 0] - x0).astype(int), 0, x1 - x0 - 1)
-    rows = np.clip(np.round(ring[:, 1] - y0).astype(int), 0, y1 - y0 - 1)
-    seg = np.hypot(*(np.roll(ring, -1, 0) - ring).T)
-    on = dist[rows, cols] <= reach
-    return float(np.sum(seg[on]) / max(float(np.sum(seg)), 1e-9))
-
-
 def _cut_once(
     masked: LoadedImage,
     scale: PhotoScale,
@@ -904,19 +874,7 @@ def _cut_once(
             seen.add(part.label)
         if edge_mm > 0:
             term = area_share_term(part, edge_mm * SHADOW_CUT_EDGE_PX * mm_per_px)
-            # each hole: the cut's edge doubt only along the stretch of its own ring the cut runs
-            # on (a share s of it: a mean shift of s x SHADOW_CUT_EDGE_PX, 2 s x it on the diameter)
-            holes = [
-                replace(
-                    h,
-                    diameter_u_mm=combine(
-                        h.diameter_u_mm,
-                        2 * SHADOW_CUT_EDGE_PX * mm_per_px * ring_cut_share(painted, plane_map, h.outline_mm),
-                    ),
-                )
-                for h in part.holes
-            ]
-            part = _with_shadow_term(replace(part, holes=holes), term, 0.0, name="shadow_cut")
+            part = _with_shadow_term(part, term, 2 * SHADOW_CUT_EDGE_PX * mm_per_px, name="shadow_cut")
             done.append(f"{part.label} ({cut_mm2:.3g} mm² along {edge_mm:.3g} mm)")
             if id(old) in by_colour:
                 tinted.append(str(part.label))
