@@ -828,6 +828,7 @@ def _open_deep_holes(
         holes = list(new.holes)
         area_mm2 = 0.0
         texts = []
+        opened_at: set[int] = set()  # holes already given an opening's doubt: one opening, one doubt
         for index, (centre, diameter, doubt_px, partly, _, by_tint) in enumerate(opened):
             k = min(range(len(holes)), key=lambda i: math.dist(holes[i].circle_centre_mm, centre), default=None)
             if k is None or math.dist(holes[k].circle_centre_mm, centre) > 0.25 * diameter:
@@ -839,6 +840,12 @@ def _open_deep_holes(
                     image, masked, scale, result, thickness_mm, remeasure, colour, frozenset({(old.label, index)})
                 )
             u_mm = doubt_px * mm_per_px
+            if k in opened_at:
+                # the same opening found again (another level's try): its edge's doubt is one
+                # error of one ring, not an independent one to add in quadrature each time
+                continue
+            opened_at.add(k)
+            u_mm = max(d[2] for d in opened if math.dist(d[0], centre) <= 0.25 * diameter) * mm_per_px
             h = holes[k]
             if by_tint:  # the opening's own circle: the painted disc is read again against a face near its level
                 h = replace(h, diameter_mm=float(diameter), circle_centre_mm=(float(centre[0]), float(centre[1])))

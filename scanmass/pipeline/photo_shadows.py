@@ -33,6 +33,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
+    darkened_paper,
     holed_face,
     inscribed_width_px,
     looks_like_lit_white,
@@ -42,6 +43,7 @@ from scanmass.segment.shadow import (
     shadow_risk,
     too_wide_for_shadow,
 )
+from scanmass.segment.shadowlayer import _LEVEL_STEP_RATIO
 from scanmass.segment.whiteface import (
     FACE_RATIO_RANGE,
     FAINT_STEP,
@@ -182,9 +184,79 @@ def _one_sided_mm(open_mm: float) -> float:
     return 0.5 * open_mm
 
 
-def _hole_shadowed(hole: Hole, open_mm: float) -> Hole:
-    """The hole with a shadow's terms: ``open_mm`` on its diameter, :func:`_one_sided_mm` on its centre."""
-    c_u = _one_sided_mm(open_mm)
+def ring_band_mean_px(region: np.ndarray, ring_px: np.ndarray, reach_px: float, inside: bool = False) -> float:
+    """Mean depth (px) of ``region``'s pixels along one hole's ring: their count within ``reach_px`` of it over its length.
+
+    A band of mean depth ``m`` along a ring of length ``L`` holds ``m L`` pixels, so the count
+    over the length is the mean inward (``inside=False``: in the material beside the hole) or
+    outward (``inside=True``: within the hole) shift that band would give the ring. A
+    geometric least-squares circle (:func:`~scanmass.section.fit_circle`) has its radius at
+    the mean of the ring's distances from its centre (the derivative of
+    ``sum (|p_i - c| - r)^2`` in ``r`` is zero there), so a radial shift ``delta(theta)``
+    moves the fitted diameter by twice its mean over the ring, to first order (the centre's
+    move changes the distances only to second order; a one-sided band moves the centre
+    instead): ``2 m`` on the diameter, where the whole band would give ``2 x reach``.
+
+    References
+    ----------
+    .. [1] N. Chernov, *Circular and Linear Regression: Fitting Circles and Lines by Least
+       Squares*, CRC Press, 2010 (the geometric fit's normal equations).
+    """
+    ring = np.asarray(ring_px, float)
+    if len(ring) < 3:
+        return 0.0
+    from skimage.draw import polygon  # noqa: PLC0415 - only a flagged part with holes needs it
+
+    # the pixels whose centres lie inside the ring (cv2.fillPoly would add the pixels its edges
+    # touch, half a pixel beyond the ring on average: half a pixel of every band's depth)
+    fill = np.zeros(region.shape, np.uint8)
+    rr, cc = polygon(ring[:, 1], ring[:, 0], region.shape)
+    fill[rr, cc] = 1
+    if inside:
+        near = fill.astype(bool) & (cv2.distanceTransform(fill, cv2.DIST_L2, 5) <= reach_px + 0.5)
+    else:
+        dist = cv2.distanceTransform(1 - fill, cv2.DIST_L2, 5)
+        near = (dist > 0) & (dist <= reach_px + 0.5)
+    length = float(np.sum(np.hypot(*(np.roll(ring, -1, 0) - ring).T)))
+    return float(np.count_nonzero(region & near)) / max(length, 1.0)
+
+
+def _below_white_face(
+    crop: np.ndarray, mask: np.ndarray, paper_rgb: np.ndarray, band_px: float, part: Part
+) -> np.ndarray | None:
+    """Of a white part's edge band, the pixels darker than its face by a level step; None for any other part.
+
+    A part measured from its white top face (term ``white_face``) has its outline where the
+    level crosses half-way between the face and what lies beyond it, a wall, a shadow or the
+    paper (:func:`~scanmass.segment.whiteface.face_cover`). The face itself is neutral and a
+    little darker than the paper (0.7-0.86 of it on the tuned white-nylon renders): by colour
+    it is all "darkened paper", so the cast-shadow test counted the whole face band as room
+    for a shadow (2031 mm² of the plate on dev-window-nylon-t10, whose area error is 2 %). A
+    shadow the outline took in would lie on the face's side of that half-way line, below the
+    face's level by at least the step a level cut needs to place itself
+    (:data:`~scanmass.segment.shadowlayer._LEVEL_STEP_RATIO`, the ratio
+    :func:`~scanmass.segment.hiddenshadow.hidden_shadow` tells a layer from the face by): only
+    such pixels are left open. The face's level is the band's inner neighbours' median
+    (deeper than the band, or the inner quarter of a narrow part).
+    """
+    if "white_face" not in part.uncertainty_terms or not np.any(mask):
+        return None
+    level = (crop / np.asarray(paper_rgb, crop.dtype)).mean(axis=2)
+    inside = cv2.distanceTransform(mask.astype(np.uint8), cv2.DIST_L2, 3)
+    interior = inside > min(band_px + 2.0, 0.75 * float(inside.max()))
+    if np.count_nonzero(interior) < 20:
+        return None
+    face_level = float(np.median(level[interior]))
+    return mask & (inside <= band_px) & (level < face_level / _LEVEL_STEP_RATIO)
+
+
+def _hole_shadowed(hole: Hole, open_mm: float, deep_mm: float | None = None) -> Hole:
+    """The hole with a shadow's terms: ``open_mm`` on its diameter, :func:`_one_sided_mm` of ``deep_mm`` on its centre.
+
+    ``deep_mm`` (default ``open_mm``) is the deepest open stretch along the ring: a shadow along one side moves the
+    centre by its depth there, not by the ring's mean.
+    """
+    c_u = _one_sided_mm(open_mm if deep_mm is None else deep_mm)
     return replace(
         hole,
         diameter_u_mm=combine(hole.diameter_u_mm, open_mm),
@@ -256,14 +328,28 @@ def _cast_shadows(
             continue
         foreign_mm2 = risk.foreign_outside_px * mm_per_px**2
         if foreign_mm2 > max(0.002 * part.area_mm2, 4 * mm_per_px**2 * math.sqrt(risk.band_px)):
+            # each hole: the reflection found within its own opening, beside its ring (a band of
+            # mean depth m left out of the hole's material widens it by 2 m: the whole of it at
+            # 1 sigma, as the area term takes the whole foreign area); none there, nothing
             term = area_share_term(part, foreign_mm2)
-            part = _with_shadow_term(part, term, 0.5 * band_px * mm_per_px, name="reflection")
+            if risk.foreign is None or len(holes_px) != len(part.holes):
+                part = _with_shadow_term(part, term, 0.5 * band_px * mm_per_px, name="reflection")
+            else:
+                hole_u = [
+                    2.0 * mm_per_px * ring_band_mean_px(risk.foreign, hp - [x0, y0], band_px, inside=True)
+                    for hp in holes_px
+                ]
+                holes = [replace(h, diameter_u_mm=combine(h.diameter_u_mm, u)) for h, u in zip(part.holes, hole_u)]
+                part = _with_shadow_term(replace(part, holes=holes), term, 0.0, name="reflection")
             result.parts[n] = part
             lost.append(f"{part.label} ({foreign_mm2:.3g} mm²)")
         if risk.fraction < SHADOW_FRACTION or part.label in (cut_labels or set()):
             continue
         like_mm2 = risk.shadow_like_px * mm_per_px**2
         depth_mm = band_px * mm_per_px
+        darker = _below_white_face(crop, mask.astype(bool), risk.paper_rgb, band_px, part)
+        if darker is not None:
+            like_mm2 = min(like_mm2, float(np.count_nonzero(darker)) * mm_per_px**2)
         bound = None
         if thickness_mm is not None:
             # without a thickness the wall of an unknown height, as dark and smooth as the face,
@@ -273,20 +359,32 @@ def _cast_shadows(
             step = (lut[np.minimum(codes + 1, len(lut) - 1)] - lut[codes]).mean(axis=2) / paper_mean
             rings = [outer_px - [x0, y0], *(hp - [x0, y0] for hp in holes_px)]
             bound = hidden_shadow(crop, mask.astype(bool), risk.paper_rgb, band_px, code_step=step, rings=rings)
+        # each hole's diameter: the shadow that can hide along its own edge. A shadow in the
+        # hole's material beside its ring, of mean depth m along it, shrinks the fitted diameter
+        # by 2 m (ring_band_mean_px); the pixels that can hold it are the open ones (the bound's
+        # hidden pixels) or, without a bound, every shadow-like pixel of the band beside that
+        # ring; taken at 2 sigma, as the area term, the diameter's sigma is m; never more than
+        # the whole band's half-width. The centre keeps a one-sided shadow's term of that depth.
         if bound is None:
-            term = area_share_term(part, like_mm2, weight=0.5)
-            result.parts[n] = _with_shadow_term(part, term, 0.5 * depth_mm, hole_c_u_mm=_one_sided_mm(0.5 * depth_mm))
+            open_px = mask.astype(bool) & darkened_paper(crop, risk.paper_rgb)
         else:
             # where the face begins beside the edge, a shadow can hide only nearer the outline
-            # than that: the term holds half of those pixels (the bound taken at 2 sigma), and
-            # each hole's diameter the depth left open along its own edge (a contact shadow
-            # rings a hole: its diameter shrinks by twice the depth, again taken at 2 sigma),
-            # never more than the whole band's half-width it had before
-            like_mm2 = min(like_mm2, bound.hidden_px * mm_per_px**2)
-            part = _with_extra_term(part, "cast_shadow", area_share_term(part, like_mm2, weight=0.5), [])
-            open_mm = iter(min(0.5 * depth_mm, d * mm_per_px) for d in bound.ring_depth_px[1:])
-            holes = [h if h.outline_mm is None else _hole_shadowed(h, next(open_mm)) for h in part.holes]
-            result.parts[n] = replace(part, holes=holes)
+            # than that: the term holds half of those pixels (the bound taken at 2 sigma)
+            open_px = bound.hidden
+        if darker is not None:
+            open_px = open_px & darker
+        like_in = min(like_mm2, float(np.count_nonzero(open_px)) * mm_per_px**2)
+        part = _with_extra_term(part, "cast_shadow", area_share_term(part, like_in, weight=0.5), [])
+        open_mm = iter(
+            min(0.5 * depth_mm, mm_per_px * ring_band_mean_px(open_px, hp - [x0, y0], band_px)) for hp in holes_px
+        )
+        deep_mm = iter(
+            [min(0.5 * depth_mm, d * mm_per_px) for d in bound.ring_depth_px[1:]]
+            if bound is not None
+            else [0.5 * depth_mm] * len(holes_px)
+        )
+        holes = [h if h.outline_mm is None else _hole_shadowed(h, next(open_mm), next(deep_mm)) for h in part.holes]
+        result.parts[n] = replace(part, holes=holes)
         flagged.append(f"{part.label} ({100 * risk.fraction:.0f} % of its edge band)")
     out = []
     if lost:

@@ -88,6 +88,8 @@ class ShadowRisk:
     interior_depth_p10 : float
         Its 10th percentile: a cast shadow fades from dark (where the caster meets the paper)
         to its soft outer edge, so it is far below the median; a part's face is much more even.
+    foreign : (H, W) bool ndarray or None
+        Where those ``foreign_outside_px`` pixels lie in the crop (inside a hole or beyond the outline).
     """
 
     band_px: int
@@ -98,6 +100,7 @@ class ShadowRisk:
     foreign_outside_px: int = 0
     interior_depth: float = float("nan")
     interior_depth_p10: float = float("nan")
+    foreign: np.ndarray | None = None
 
 
 #: Fewest share of the edge band, the least median darkening and the largest ratio of the 10th
@@ -354,6 +357,7 @@ def shadow_risk(colour_lin: np.ndarray, part_mask: np.ndarray, band_px: float) -
         paper_rgb=paper,
         depth=float(np.median(m)),
         foreign_outside_px=int(np.count_nonzero(opened)),
+        foreign=opened.astype(bool),
     )
 
 
