@@ -30,7 +30,7 @@ from scanmass.segment.shadowlayer import (
 )
 from scanmass.segment.shadowsweep import LOW_LIGHT_REACH_FACTOR
 
-__all__ = ["crescent_cut"]
+__all__ = ["crescent_cut", "consistent_crescent_cut"]
 
 #: Least roughness taken as a face's grain (a share of the level, as :func:`~scanmass.segment.shadowlayer.roughness`
 #: gives it): below it a face's smoothness is the 8-bit coding's; the same floor as
@@ -41,6 +41,9 @@ FACE_MIN_PX = 50
 #: Depth (px) from the outline within which a layer's roughness is damped by the paper beside it (the roughness's
 #: 1.5 px blur takes in the bright paper, raising the level it is relative to): twice that blur.
 RIM_PX = 3
+#: A layer before the roughest as smooth as the face is the face's own only where its level is under this many
+#: times the face's: a brighter one is the paper in part of the light (a window's soft penumbra).
+PENUMBRA_RATIO = 3.0
 
 
 def crescent_cut(
@@ -128,11 +131,12 @@ def crescent_cut(
     if shadow_grain < CUT_MIN_TEXTURE_RATIO * grain:
         return None
     half = math.sqrt(shadow_grain * grain)
-    if any(r <= half for k, _, r in layers[:peak] if k > RIM_PX):
-        return None  # the face's grain before the shadow's: no shadow running from the outline to the face
     end = next((i for i in range(peak + 1, len(layers)) if layers[i][2] <= half), None)
     if end is None:
         return None  # no face reached within a low light's shadow
+    face_level = float(np.median(level[np.logical_or.reduce([new for _, new, _ in layers[end:]])]))
+    if any(r <= half and float(np.median(level[new])) < PENUMBRA_RATIO * face_level for k, new, r in layers[:peak] if k > RIM_PX):
+        return None  # the face's grain before the shadow's: no shadow running from the outline to the face
     cut = np.zeros(part_mask.shape, bool)
     for _, new, _ in layers[:end]:
         cut |= new
@@ -162,3 +166,54 @@ def crescent_cut(
         direction=(float(unit[0]), float(unit[1])),
         length_px=float(layers[end][0] - 1),
     )
+
+
+def consistent_crescent_cut(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    vectors_px: list[np.ndarray],
+) -> ShadowCut | None:
+    """The :func:`crescent_cut` along the one of several candidate sweeps whose length it finds as its own.
+
+    Where only the light's side is known (the paper's fall-off, :mod:`~scanmass.segment.lightdir`), not its
+    height, the sweep that takes the shadow off the face seen in the photo is not the shadow's own vector: the
+    top face is seen shifted from its footprint by its parallax, so the region is the face swept by the shadow
+    less that shift, whose direction turns with the shadow's length. The caller gives one candidate vector
+    (x, y px) per height of the light; each is eroded along its direction, and the cut kept is the one whose
+    length (where the roughness falls to the face's) lies nearest the candidate's own length: the height at
+    which the shadow's grain and the geometry agree. None where no candidate gives a cut.
+
+    Examples
+    --------
+    The disc of :func:`crescent_cut`'s example, its shadow 20 px along +x: of three candidates the one 20 px
+    long is kept (the others' directions leave the shadow's grain short of their length or past it).
+
+    >>> rng = np.random.default_rng(2)
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (120, 140, 1))
+    >>> yy, xx = np.mgrid[:120, :140]; disc = (xx - 50) ** 2 + (yy - 60) ** 2 <= 30**2
+    >>> swept = disc.copy()
+    >>> for s in range(1, 21):
+    ...     swept[:, s:] |= disc[:, :-s]
+    >>> shade = swept & ~disc; n = int(shade.sum())
+    >>> img[shade] = paper * (0.01 + 0.03 * rng.random((n, 1))); img[disc] = 0.05 * paper
+    >>> cands = [np.array([40.0, 6.0]), np.array([20.0, 0.0]), np.array([8.0, -4.0])]
+    >>> cut = consistent_crescent_cut(img, swept, paper, 12.0, cands)
+    >>> cut.direction, cut.length_px
+    ((1.0, 0.0), 21.0)
+    >>> consistent_crescent_cut(img, swept, paper, 12.0, []) is None
+    True
+    """
+    best: tuple[float, ShadowCut] | None = None
+    for vec in vectors_px:
+        length = float(np.hypot(vec[0], vec[1]))
+        if length <= 0.0:
+            continue
+        cut = crescent_cut(colour_lin, part_mask, paper_rgb, reach_px, vec / length)
+        if cut is None or cut.length_px is None:
+            continue
+        miss = abs(cut.length_px - length)
+        if best is None or miss < best[0]:
+            best = (miss, cut)
+    return None if best is None else best[1]
