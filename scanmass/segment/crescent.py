@@ -42,7 +42,9 @@ FACE_MIN_PX = 50
 #: 1.5 px blur takes in the bright paper, raising the level it is relative to): twice that blur.
 RIM_PX = 3
 #: A layer before the roughest as smooth as the face is the face's own only where its level is under this many
-#: times the face's: a brighter one is the paper in part of the light (a window's soft penumbra).
+#: times the face's: a brighter one is the paper in part of the light (a window's soft penumbra: on
+#: dev-window-steel6-t22 the gasket's outer layers along the light read 0.19-0.47 of the paper, roughness
+#: 0.06-0.11, its face 0.03-0.05), and the :data:`RIM_PX` layers past it are the core's blurred rim.
 PENUMBRA_RATIO = 3.0
 
 
@@ -134,8 +136,12 @@ def crescent_cut(
     end = next((i for i in range(peak + 1, len(layers)) if layers[i][2] <= half), None)
     if end is None:
         return None  # no face reached within a low light's shadow
+    # the paper in part of the light (a soft light's penumbra: smooth, far brighter than the face) before the
+    # shadow's core is no face; the core's rim is then blurred against it as against the paper beyond the outline
     face_level = float(np.median(level[np.logical_or.reduce([new for _, new, _ in layers[end:]])]))
-    if any(r <= half and float(np.median(level[new])) < PENUMBRA_RATIO * face_level for k, new, r in layers[:peak] if k > RIM_PX):
+    lit = [float(np.median(level[new])) >= PENUMBRA_RATIO * face_level for _, new, _ in layers[:peak]]
+    rim = max([RIM_PX] + [k + RIM_PX for (k, _, _), bright in zip(layers[:peak], lit) if bright])
+    if any(r <= half and not bright for (k, _, r), bright in zip(layers[:peak], lit) if k > rim):
         return None  # the face's grain before the shadow's: no shadow running from the outline to the face
     cut = np.zeros(part_mask.shape, bool)
     for _, new, _ in layers[:end]:
