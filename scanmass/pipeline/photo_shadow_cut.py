@@ -28,7 +28,7 @@ from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.castshadow import core_cut, shadow_cut, sweep_direction
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
-from scanmass.segment.crescent import consistent_crescent_cut, crescent_cut
+from scanmass.segment.crescent import consistent_crescent_cut, crescent_cut, severs_a_hole
 from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
 from scanmass.segment.facelevel import cut_at_face_level, face_above_core
 from scanmass.segment.farband import far_band_taken
@@ -437,6 +437,7 @@ def _decide_cuts(
                 if coloured:
                     by_colour.add(id(part))
             short = None  # a metal part's own sweep of its rim only, kept where nothing better is found
+            severing = None  # a fade cut that nearly severs a hole from the outside, kept where nothing else is found
             light: tuple[np.ndarray, float | None] | None = None  # the photo's shadow direction tried, its length
             if (
                 cut is not None
@@ -500,6 +501,10 @@ def _decide_cuts(
                 # a metal face as grainy as its shadow: the soft shadow's fade inside the outline (a face that
                 # fades as a shadow alone does is cut along the light only)
                 cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
+                if cut is not None and light is not None and severs_a_hole(mask, cut.cut):
+                    # the fade ran from a bore's shaded rim nearly across the ring (the ring is lost when found
+                    # again): the cuts along the light instead, the fade's kept where neither finds one
+                    severing, cut = cut, None
             if cut is None and light is not None:
                 # a brushed face too grainy for the shadow's grain to tell it: the shadow's tint (the paper's)
                 # against the face's, along the same light
@@ -516,7 +521,7 @@ def _decide_cuts(
                 sweeps_px = _falloff_sweeps(falloffs[0], scale, centre, thickness_mm)
                 cut = consistent_crescent_cut(colour_lin, mask, risk.paper_rgb, band_px, sweeps_px)
             if cut is None:
-                cut = short
+                cut = short if severing is None else severing
         if phase == 2 and risk is not None:
             own = sweeps.get(id(part))
             if own is not None and own.metal and alone and not wide:

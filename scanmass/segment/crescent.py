@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 
+import cv2
 import numpy as np
 
 from scanmass.segment.shadowlayer import (
@@ -30,7 +31,7 @@ from scanmass.segment.shadowlayer import (
 )
 from scanmass.segment.shadowsweep import LOW_LIGHT_REACH_FACTOR
 
-__all__ = ["crescent_cut", "consistent_crescent_cut"]
+__all__ = ["crescent_cut", "consistent_crescent_cut", "severs_a_hole"]
 
 #: Least roughness taken as a face's grain (a share of the level, as :func:`~scanmass.segment.shadowlayer.roughness`
 #: gives it): below it a face's smoothness is the 8-bit coding's; the same floor as
@@ -41,6 +42,9 @@ FACE_MIN_PX = 50
 #: Depth (px) from the outline within which a layer's roughness is damped by the paper beside it (the roughness's
 #: 1.5 px blur takes in the bright paper, raising the level it is relative to): twice that blur.
 RIM_PX = 3
+#: Width (px) of the face a cut must leave between a hole and the outline for the hole to stay one when the region
+#: is found again (the outline's blur and the cut's painted edge take about this much of a thin bridge).
+BRIDGE_PX = 2
 #: A layer before the roughest as smooth as the face is the face's own only where its level is under this many
 #: times the face's: a brighter one is the paper in part of the light (a window's soft penumbra: on
 #: dev-window-steel6-t22 the gasket's outer layers along the light read 0.19-0.47 of the paper, roughness
@@ -223,3 +227,32 @@ def consistent_crescent_cut(
         if best is None or miss < best[0]:
             best = (miss, cut)
     return None if best is None else best[1]
+
+
+def _enclosed(region: np.ndarray) -> int:
+    """How many holes ``region`` holds: 4-connected pieces of its background that do not reach the border."""
+    n, labels = cv2.connectedComponents((~region).astype(np.uint8), connectivity=4)
+    edge = np.unique(np.concatenate([labels[0], labels[-1], labels[:, 0], labels[:, -1]]))
+    return int(n - 1 - np.count_nonzero(edge))
+
+
+def severs_a_hole(part_mask: np.ndarray, cut: np.ndarray) -> bool:
+    """Whether a cut leaves less than :data:`BRIDGE_PX` of face between one of the region's holes and the outside.
+
+    A cast shadow lies outside the face, so its cut never joins a hole of the face to the paper beyond; a cut
+    that (nearly) does has taken a stretch of the face (a bore's shaded rim and the face beside it). Read as the
+    region less the cut, eroded by :data:`BRIDGE_PX`, holding fewer holes than the region.
+
+    Examples
+    --------
+    >>> yy, xx = np.mgrid[:80, :80]; r = np.hypot(xx - 40, yy - 40)
+    >>> ring = (r <= 30) & (r > 15)
+    >>> severs_a_hole(ring, (r > 26) & (xx < 40))  # the outer 4 px of one side: the ring stays whole
+    False
+    >>> severs_a_hole(ring, (r > 16) & (abs(yy - 40) < 3) & (xx > 40))  # across the ring but for 1 px
+    True
+    """
+    kept = part_mask & ~cut
+    k = 2 * BRIDGE_PX + 1
+    eroded = cv2.erode(kept.astype(np.uint8), np.ones((k, k), np.uint8)).astype(bool)
+    return _enclosed(eroded) < _enclosed(part_mask)
