@@ -115,7 +115,13 @@ def test_consistent_cut_keeps_the_sweep_its_grain_agrees_with():
 # --- the renders: the lamp's position in the truth JSON is the outside check -------------------------------------
 
 #: Renders of one light (window or spot) and, of two lights or a softbox, none to read.
-ONE_LIGHT = ["dev-window-steel6-t22", "dev-window-low-black-t10", "dev-window-steel5-t14", "dev-spot-steel-t20", "dev-spot-brass-t22"]
+ONE_LIGHT = [
+    "dev-window-steel6-t22",
+    "dev-window-low-black-t10",
+    "dev-window-steel5-t14",
+    "dev-spot-steel-t20",
+    "dev-spot-brass-t22",
+]
 NO_SIDE = ["dev-mixed-steel3-t22", "dev-soft-brass-t25"]
 
 
@@ -175,6 +181,21 @@ def test_window_steel_gasket_crescent_cut_along_the_paper_falloff():
     assert "shadow_cut" in part.uncertainty_terms and "cast_shadow" not in part.uncertainty_terms
     assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]  # was +18.0 %
     assert math.dist(part.centroid_mm, tp["centroid"]) < 0.6  # was 3.28 mm
+    assert len(part.holes) == 1
+    assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
+    assert all(abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm))
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not (REALLIGHT / "dev-window-steel3-t10.json").exists(), reason="dev renders not in this checkout")
+def test_window_steel_gasket_fade_cut_that_severs_the_ring_set_aside():
+    """dev-window-steel3-t10: the 2.5 mm steel gasket's fade cut ran from its bore's shaded rim nearly across the
+    ring, which was found again open (-3.1 % in area, centroid 2.85 mm, bore missed; rl_start32). Set aside for the
+    cut along the plate's light: +0.90 %, centroid 0.38 mm, bore -0.06 mm (bench figures at commit). Truth: the
+    render's outlines by shapely; within 3 stated sigma."""
+    _, part, tp = measured_part("dev-window-steel3-t10", "gasket")
+    assert abs(part.area_mm2 - tp["area"]) < 0.02 * tp["area"]  # was -3.1 %
+    assert math.dist(part.centroid_mm, tp["centroid"]) < 0.6  # was 2.85 mm
     assert len(part.holes) == 1
     assert abs(part.area_mm2 - tp["area"]) <= 3 * part.area_u_mm2
     assert all(abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm))

@@ -32,8 +32,8 @@ from scanmass.segment.crescent import consistent_crescent_cut, crescent_cut, sev
 from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
 from scanmass.segment.facelevel import cut_at_face_level, face_above_core
 from scanmass.segment.farband import far_band_taken
-from scanmass.segment.litcut import face_edge_given_back, lit_face_given_back
 from scanmass.segment.lightdir import PaperFalloff, paper_falloff, shadow_direction_mm
+from scanmass.segment.litcut import face_edge_given_back, lit_face_given_back
 from scanmass.segment.metalshadow import metal_colour_sweep
 from scanmass.segment.mixtint import other_light_rim
 from scanmass.segment.shadow import (

@@ -138,7 +138,9 @@ def paper_falloff(level: np.ndarray, valid: np.ndarray, px_to_mm: np.ndarray) ->
         return None
     coef, *_ = np.linalg.lstsq(a[keep], log_level[keep], rcond=None)
     plane, *_ = np.linalg.lstsq(a[keep, :3], log_level[keep], rcond=None)
-    return PaperFalloff(coef=coef, slope_per_mm=float(np.hypot(plane[1], plane[2])), samples=int(np.count_nonzero(keep)))
+    return PaperFalloff(
+        coef=coef, slope_per_mm=float(np.hypot(plane[1], plane[2])), samples=int(np.count_nonzero(keep))
+    )
 
 
 def shadow_direction_mm(falloff: PaperFalloff | None, at_mm: tuple[float, float] | np.ndarray) -> np.ndarray | None:
