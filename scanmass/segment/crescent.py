@@ -8,7 +8,10 @@ stops short or is refused (a ring's crescent out of reach of its layer tests, a 
 than a light 30 degrees up casts), :func:`crescent_cut` erodes the region back along the direction another
 part of the photo showed, one pixel at a time, while what each step takes is as grainy as a shadow (the
 paper in less light is rough where the face is smooth), and stops where the step reaches the face's own
-grain. Used by :mod:`scanmass.pipeline.photo_shadow_cut` as the last try along a known light.
+grain. Used by :mod:`scanmass.pipeline.photo_shadow_cut` as the last try along a known light. Where no part shows
+the light, :func:`consistent_crescent_cut` tries the sweeps the paper's fall-off gives
+(:mod:`~scanmass.segment.lightdir`), one per height of the light, and keeps the one whose length the grain agrees
+with; :func:`severs_a_hole` tells a cut that (nearly) joins a hole to the outside, which no cast shadow's does.
 """
 
 from __future__ import annotations
