@@ -28,10 +28,11 @@ from scanmass.scale.homography import ElevationHook, apply_h
 from scanmass.scale.planemap import PlaneMap
 from scanmass.segment.castshadow import core_cut, shadow_cut, sweep_direction
 from scanmass.segment.colourshadow import ColourSweep, colour_sweep, colour_sweep_cut, coloured_shadow_cut, tint_cut
-from scanmass.segment.crescent import crescent_cut
+from scanmass.segment.crescent import consistent_crescent_cut, crescent_cut, severs_a_hole
 from scanmass.segment.darkface import dark_tinted_face, hole_bottoms
 from scanmass.segment.facelevel import cut_at_face_level, face_above_core
 from scanmass.segment.farband import far_band_taken
+from scanmass.segment.lightdir import PaperFalloff, paper_falloff, shadow_direction_mm
 from scanmass.segment.litcut import face_edge_given_back, lit_face_given_back
 from scanmass.segment.metalshadow import metal_colour_sweep
 from scanmass.segment.mixtint import other_light_rim
@@ -369,6 +370,7 @@ def _decide_cuts(
     # direction is the light's evidence where no other part shows it)
     wides: list[tuple[np.ndarray, np.ndarray, np.ndarray, float, np.ndarray]] = []
     lights: list[tuple[float, float] | None] = []  # the light's direction those show, once read
+    falloffs: list[PaperFalloff | None] = []  # the paper's fall-off over the mat, once read
     for k_todo, (part, phase) in enumerate(todo):
         later = phase >= 1
         if phase == 2 and not sweeps:
@@ -435,6 +437,7 @@ def _decide_cuts(
                 if coloured:
                     by_colour.add(id(part))
             short = None  # a metal part's own sweep of its rim only, kept where nothing better is found
+            severing = None  # a fade cut that nearly severs a hole from the outside, kept where nothing else is found
             light: tuple[np.ndarray, float | None] | None = None  # the photo's shadow direction tried, its length
             if (
                 cut is not None
@@ -498,6 +501,10 @@ def _decide_cuts(
                 # a metal face as grainy as its shadow: the soft shadow's fade inside the outline (a face that
                 # fades as a shadow alone does is cut along the light only)
                 cut = fade_cut(colour_lin, mask, risk.paper_rgb, band_px)
+                if cut is not None and light is not None and severs_a_hole(mask, cut.cut):
+                    # the fade ran from a bore's shaded rim nearly across the ring (the ring is lost when found
+                    # again): the cuts along the light instead, the fade's kept where neither finds one
+                    severing, cut = cut, None
             if cut is None and light is not None:
                 # a brushed face too grainy for the shadow's grain to tell it: the shadow's tint (the paper's)
                 # against the face's, along the same light
@@ -505,8 +512,16 @@ def _decide_cuts(
             if cut is None and short is None and light is not None:
                 # no cut at all, the whole shadow left (a ring's crescent): eroded back along the light to the face
                 cut = crescent_cut(colour_lin, mask, risk.paper_rgb, band_px, light[0])
+            elif cut is None and short is None and later and not dark and thickness_mm is not None:
+                # no part's cut shows the light: the paper's fall-off away from it does (one light's side), its
+                # height read as the one whose sweep the shadow's grain agrees with
+                if not falloffs:
+                    falloffs.append(_paper_falloff(lut, colour, scale))
+                centre = ((x0 + x1 - 1) / 2.0, (y0 + y1 - 1) / 2.0)
+                sweeps_px = _falloff_sweeps(falloffs[0], scale, centre, thickness_mm)
+                cut = consistent_crescent_cut(colour_lin, mask, risk.paper_rgb, band_px, sweeps_px)
             if cut is None:
-                cut = short
+                cut = short if severing is None else severing
         if phase == 2 and risk is not None:
             own = sweeps.get(id(part))
             if own is not None and own.metal and alone and not wide:
@@ -617,6 +632,51 @@ def _light_hint(
         if hint is not None:
             return hint
     return None
+
+
+def _paper_falloff(lut: np.ndarray, colour: np.ndarray, scale: PhotoScale) -> PaperFalloff | None:
+    """The paper's fall-off (:func:`~scanmass.segment.lightdir.paper_falloff`) over the photo's clear area.
+
+    The level is the linear light's channel mean; the clear area the scale's ``roi_px`` (the plane map's
+    lens correction left out: a direction moves by well under a degree with it).
+    """
+    level = lut[colour].mean(axis=2)
+    valid = np.zeros(level.shape, np.uint8)
+    cv2.fillPoly(valid, [np.round(np.asarray(scale.roi_px, float)).astype(np.int32)], 1)
+    return paper_falloff(level, valid.astype(bool), scale.plane_map.matrix)
+
+
+#: Heights (degrees above the mat) of a light whose side alone the paper's fall-off shows, each a candidate
+#: sweep of :func:`_falloff_sweeps`: from a low window's (15, as
+#: :data:`~scanmass.segment.shadowsweep.LOW_LIGHT_REACH_FACTOR` bounds the erosion) to a lamp well overhead.
+FALLOFF_HEIGHTS_DEG = tuple(range(15, 65, 5))
+
+
+def _falloff_sweeps(
+    falloff: PaperFalloff | None, scale: PhotoScale, centre_px: tuple[float, float], thickness_mm: float
+) -> list[np.ndarray]:
+    """Candidate sweeps (x, y px) that take a part's shadow off its top face as seen, one per light height.
+
+    The shadow on the mat runs ``thickness / tan(height)`` mm down the paper's fall-off
+    (:func:`~scanmass.segment.lightdir.shadow_direction_mm`) from the footprint; the top face is seen shifted
+    from its footprint by its parallax (:class:`~scanmass.scale.homography.ElevationHook`), so the region is
+    the face swept by the shadow's vector less that shift (none without a camera matrix). Empty where the
+    fall-off shows no light's side.
+    """
+    h = np.asarray(scale.plane_map.matrix, float)
+    at_mm = apply_h(h, np.asarray([centre_px], float))[0]
+    down = shadow_direction_mm(falloff, at_mm)
+    if down is None:
+        return []
+    if scale.camera_matrix is not None:
+        hook = ElevationHook(h, scale.camera_matrix, thickness_mm)
+        foot_to_px, top_px = hook.g0, apply_h(hook.gh, at_mm[None])[0]
+    else:
+        foot_to_px = np.linalg.inv(h)
+        top_px = apply_h(foot_to_px, at_mm[None])[0]
+    foot_px = apply_h(foot_to_px, at_mm[None])[0]
+    tips_mm = [at_mm + down * thickness_mm / math.tan(math.radians(e)) for e in FALLOFF_HEIGHTS_DEG]
+    return list(apply_h(foot_to_px, np.asarray(tips_mm)) - foot_px - (top_px - foot_px))
 
 
 def _code_step(lut: np.ndarray, codes: np.ndarray, risk: ShadowRisk) -> np.ndarray:

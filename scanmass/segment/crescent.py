@@ -8,13 +8,17 @@ stops short or is refused (a ring's crescent out of reach of its layer tests, a 
 than a light 30 degrees up casts), :func:`crescent_cut` erodes the region back along the direction another
 part of the photo showed, one pixel at a time, while what each step takes is as grainy as a shadow (the
 paper in less light is rough where the face is smooth), and stops where the step reaches the face's own
-grain. Used by :mod:`scanmass.pipeline.photo_shadow_cut` as the last try along a known light.
+grain. Used by :mod:`scanmass.pipeline.photo_shadow_cut` as the last try along a known light. Where no part shows
+the light, :func:`consistent_crescent_cut` tries the sweeps the paper's fall-off gives
+(:mod:`~scanmass.segment.lightdir`), one per height of the light, and keeps the one whose length the grain agrees
+with; :func:`severs_a_hole` tells a cut that (nearly) joins a hole to the outside, which no cast shadow's does.
 """
 
 from __future__ import annotations
 
 import math
 
+import cv2
 import numpy as np
 
 from scanmass.segment.shadowlayer import (
@@ -30,7 +34,7 @@ from scanmass.segment.shadowlayer import (
 )
 from scanmass.segment.shadowsweep import LOW_LIGHT_REACH_FACTOR
 
-__all__ = ["crescent_cut"]
+__all__ = ["crescent_cut", "consistent_crescent_cut", "severs_a_hole"]
 
 #: Least roughness taken as a face's grain (a share of the level, as :func:`~scanmass.segment.shadowlayer.roughness`
 #: gives it): below it a face's smoothness is the 8-bit coding's; the same floor as
@@ -41,6 +45,14 @@ FACE_MIN_PX = 50
 #: Depth (px) from the outline within which a layer's roughness is damped by the paper beside it (the roughness's
 #: 1.5 px blur takes in the bright paper, raising the level it is relative to): twice that blur.
 RIM_PX = 3
+#: Width (px) of the face a cut must leave between a hole and the outline for the hole to stay one when the region
+#: is found again (the outline's blur and the cut's painted edge take about this much of a thin bridge).
+BRIDGE_PX = 2
+#: A layer before the roughest as smooth as the face is the face's own only where its level is under this many
+#: times the face's: a brighter one is the paper in part of the light (a window's soft penumbra: on
+#: dev-window-steel6-t22 the gasket's outer layers along the light read 0.19-0.47 of the paper, roughness
+#: 0.06-0.11, its face 0.03-0.05), and the :data:`RIM_PX` layers past it are the core's blurred rim.
+PENUMBRA_RATIO = 3.0
 
 
 def crescent_cut(
@@ -128,11 +140,16 @@ def crescent_cut(
     if shadow_grain < CUT_MIN_TEXTURE_RATIO * grain:
         return None
     half = math.sqrt(shadow_grain * grain)
-    if any(r <= half for k, _, r in layers[:peak] if k > RIM_PX):
-        return None  # the face's grain before the shadow's: no shadow running from the outline to the face
     end = next((i for i in range(peak + 1, len(layers)) if layers[i][2] <= half), None)
     if end is None:
         return None  # no face reached within a low light's shadow
+    # the paper in part of the light (a soft light's penumbra: smooth, far brighter than the face) before the
+    # shadow's core is no face; the core's rim is then blurred against it as against the paper beyond the outline
+    face_level = float(np.median(level[np.logical_or.reduce([new for _, new, _ in layers[end:]])]))
+    lit = [float(np.median(level[new])) >= PENUMBRA_RATIO * face_level for _, new, _ in layers[:peak]]
+    rim = max([RIM_PX] + [k + RIM_PX for (k, _, _), bright in zip(layers[:peak], lit) if bright])
+    if any(r <= half and not bright for (k, _, r), bright in zip(layers[:peak], lit) if k > rim):
+        return None  # the face's grain before the shadow's: no shadow running from the outline to the face
     cut = np.zeros(part_mask.shape, bool)
     for _, new, _ in layers[:end]:
         cut |= new
@@ -162,3 +179,83 @@ def crescent_cut(
         direction=(float(unit[0]), float(unit[1])),
         length_px=float(layers[end][0] - 1),
     )
+
+
+def consistent_crescent_cut(
+    colour_lin: np.ndarray,
+    part_mask: np.ndarray,
+    paper_rgb: np.ndarray,
+    reach_px: float,
+    vectors_px: list[np.ndarray],
+) -> ShadowCut | None:
+    """The :func:`crescent_cut` along the one of several candidate sweeps whose length it finds as its own.
+
+    Where only the light's side is known (the paper's fall-off, :mod:`~scanmass.segment.lightdir`), not its
+    height, the sweep that takes the shadow off the face seen in the photo is not the shadow's own vector: the
+    top face is seen shifted from its footprint by its parallax, so the region is the face swept by the shadow
+    less that shift, whose direction turns with the shadow's length. The caller gives one candidate vector
+    (x, y px) per height of the light; each is eroded along its direction, and the cut kept is the one whose
+    length (where the roughness falls to the face's) lies nearest the candidate's own length: the height at
+    which the shadow's grain and the geometry agree. None where no candidate gives a cut.
+
+    Examples
+    --------
+    The disc of :func:`crescent_cut`'s example, its shadow 20 px along +x: of three candidates the one 20 px
+    long is kept (the others' directions leave the shadow's grain short of their length or past it).
+
+    >>> rng = np.random.default_rng(2)
+    >>> paper = np.array([0.7, 0.72, 0.74]); img = np.tile(paper, (120, 140, 1))
+    >>> yy, xx = np.mgrid[:120, :140]; disc = (xx - 50) ** 2 + (yy - 60) ** 2 <= 30**2
+    >>> swept = disc.copy()
+    >>> for s in range(1, 21):
+    ...     swept[:, s:] |= disc[:, :-s]
+    >>> shade = swept & ~disc; n = int(shade.sum())
+    >>> img[shade] = paper * (0.01 + 0.03 * rng.random((n, 1))); img[disc] = 0.05 * paper
+    >>> cands = [np.array([40.0, 6.0]), np.array([20.0, 0.0]), np.array([8.0, -4.0])]
+    >>> cut = consistent_crescent_cut(img, swept, paper, 12.0, cands)
+    >>> cut.direction, cut.length_px
+    ((1.0, 0.0), 21.0)
+    >>> consistent_crescent_cut(img, swept, paper, 12.0, []) is None
+    True
+    """
+    best: tuple[float, ShadowCut] | None = None
+    for vec in vectors_px:
+        length = float(np.hypot(vec[0], vec[1]))
+        if length <= 0.0:
+            continue
+        cut = crescent_cut(colour_lin, part_mask, paper_rgb, reach_px, vec / length)
+        if cut is None or cut.length_px is None:
+            continue
+        miss = abs(cut.length_px - length)
+        if best is None or miss < best[0]:
+            best = (miss, cut)
+    return None if best is None else best[1]
+
+
+def _enclosed(region: np.ndarray) -> int:
+    """How many holes ``region`` holds: 4-connected pieces of its background that do not reach the border."""
+    n, labels = cv2.connectedComponents((~region).astype(np.uint8), connectivity=4)
+    edge = np.unique(np.concatenate([labels[0], labels[-1], labels[:, 0], labels[:, -1]]))
+    return int(n - 1 - np.count_nonzero(edge))
+
+
+def severs_a_hole(part_mask: np.ndarray, cut: np.ndarray) -> bool:
+    """Whether a cut leaves less than :data:`BRIDGE_PX` of face between one of the region's holes and the outside.
+
+    A cast shadow lies outside the face, so its cut never joins a hole of the face to the paper beyond; a cut
+    that (nearly) does has taken a stretch of the face (a bore's shaded rim and the face beside it). Read as the
+    region less the cut, eroded by :data:`BRIDGE_PX`, holding fewer holes than the region.
+
+    Examples
+    --------
+    >>> yy, xx = np.mgrid[:80, :80]; r = np.hypot(xx - 40, yy - 40)
+    >>> ring = (r <= 30) & (r > 15)
+    >>> severs_a_hole(ring, (r > 26) & (xx < 40))  # the outer 4 px of one side: the ring stays whole
+    False
+    >>> severs_a_hole(ring, (r > 16) & (abs(yy - 40) < 3) & (xx > 40))  # across the ring but for 1 px
+    True
+    """
+    kept = part_mask & ~cut
+    k = 2 * BRIDGE_PX + 1
+    eroded = cv2.erode(kept.astype(np.uint8), np.ones((k, k), np.uint8)).astype(bool)
+    return _enclosed(eroded) < _enclosed(part_mask)
