@@ -163,11 +163,28 @@ def _shadow_regions(
             and not has_lit_face(part)  # a lit face joined up to its sharp edge
             and not too_wide_for_shadow(mask, reach_t, mm_per_px)
             and not holed_face(part.area_mm2, [h.area_mm2 for h in part.holes], inscribed_width_px(mask) * mm_per_px)
+            and not walled_hole(result, part.label)
         ):
             shadows.append(part)
         elif looks_like_lit_white(crop_lin, mask, risk.paper_rgb):
             lit.append(part)
     return shadows, lit
+
+
+def walled_hole(result: Measurement, label: int) -> bool:
+    """True when a deep hole of part ``label`` was seen partly lit and partly in its wall's shade.
+
+    :func:`~scanmass.pipeline.photo_holes._open_deep_holes` (thickness given) traces a dark opening
+    inside a found region and notes it ``partly_seen`` where the floor seen through it is lit on one
+    side and shaded by the hole's wall on the other: a wall that stands above the paper around the
+    hole, so the region is a part's face, not a cast shadow alone (a shadow on the paper has no wall to
+    shade a floor within it). On tests/data/reallight/dev-lens-window-steel4-t20 the steel gasket's face
+    (lit near the paper's level by the window, its hole 30 mm across in a ring 7 mm wide, so no
+    :func:`~scanmass.segment.shadow.holed_face`) was named 'shadow only' at its 3.5 mm thickness and
+    not found; branch litsteel32.
+    """
+    notes = result.settings.get("deep_holes", {}).get(str(label), [])
+    return any(bool(n.get("partly_seen")) for n in notes if isinstance(n, dict))
 
 
 def _one_sided_mm(open_mm: float) -> float:
