@@ -754,8 +754,12 @@ def _white_parts(
 #: Least share of the band beyond a found region's outline (:data:`~scanmass.segment.clipzone.OUTSIDE_PX`) on a
 #: clipped zone for the region to meet it (:func:`clipped_faces`). On tests/data/reallight/dev-lens-window-steel4-t20
 #: (branch litsteel32) the plate's lit face found by its grain meets the zone its clipped face shares with the paper
-#: over 20 % of its band, the shade in its small hole and the strip of its wall over 95 % and 73 %.
+#: over 20 % of its band; on dev-lens-window-steel3-t20 the plate found whole by its grain (within 1.1 mm) 48 %.
 CLIP_MEETS_SHARE = 0.1
+#: Least share of that band on the zone for another found region to be taken as a piece of the lit part lost in
+#: it (:func:`clipped_faces`): on dev-lens-window-steel4-t20 the shade in the plate's small hole and the strip of
+#: its wall, 95 % and 73 %. No other found region of the tuned photos meets a zone a lit face meets.
+CLIP_PIECE_SHARE = 0.5
 
 
 def _clip_contacts(
@@ -795,9 +799,13 @@ def clipped_faces(
     a stretch found by its grain: :func:`~scanmass.pipeline.part_terms.has_lit_face`) and which meets a patch of
     paper at the sensor's ceiling (:func:`~scanmass.segment.clipzone.clipped_zones`, over at least
     :data:`CLIP_MEETS_SHARE` of the band beyond its outline) may go on into that patch: its face there mirrors the
-    light to the ceiling as the paper does, and nothing in the photo tells the two apart. Every found region
-    meeting the same patch may be a piece of that part (the shade in its holes, the strip of its wall). Each such
-    region gets the term ``clipped_face``: the patch within the lit part's largest caliper of it, with its own
+    light to the ceiling as the paper does, and nothing in the photo tells the two apart. Another found region
+    mostly within the same patch (:data:`CLIP_PIECE_SHARE` of its band) may be a piece of that part (the shade in
+    its holes, the strip of its wall), not a part of its own; and such pieces say that the lit part goes on into
+    the patch. Only then are the lit part and the pieces named: a lit part with no piece in its patch keeps its
+    figures (where its grain reached its true edge, dev-lens-window-steel3-t20's plate, 1.1 mm off, it meets the
+    patch as one that stops short does). Each region named gets the term ``clipped_face``: the patch within the lit
+    part's largest caliper of it, with its own
     region (area, the half extent on the centroid, the polar moment about the far corner on each second moment,
     as :func:`_face_term`), so that its figures say only that the part is not known (on
     tests/data/reallight/dev-lens-window-steel4-t20 the steel plate, 2321 mm², was found as three pieces of
@@ -814,24 +822,27 @@ def clipped_faces(
     if not lit:
         return result, []
     met = frozenset().union(*(c.zones for c in lit.values()))
-    near = np.zeros(zones.shape, np.uint8)  # the lit parts' regions, each grown by its largest caliper
+    pieces = [
+        label
+        for label, (c, _, _) in contacts.items()
+        if c.zones & met and label not in lit and c.outside_share >= CLIP_PIECE_SHARE
+    ]
+    if not pieces:
+        return result, []
+    met = frozenset().union(*(contacts[label][0].zones & met for label in pieces))
+    lit = {label: c for label, c in lit.items() if c.zones & met}
+    near = np.zeros(zones.shape, bool)  # the lit parts' regions, each grown by its largest caliper
     mm_per_px = scale.plane_map.mm_per_px
     for part in result.parts:
         if part.label in lit:
             _, (x0, y0, x1, y1), mask = contacts[part.label]
-            own = np.zeros(zones.shape, np.uint8)
-            own[y0:y1, x0:x1] = mask
-            reach = cv2.distanceTransform(1 - own, cv2.DIST_L2, 5) <= part.caliper_max_mm / mm_per_px
-            near |= reach.astype(np.uint8)
-    patch = np.isin(zones, list(met)) & near.astype(bool)
-    pieces = [
-        label
-        for label, (c, _, _) in contacts.items()
-        if c.zones & met and (label in lit or c.outside_share >= CLIP_MEETS_SHARE)
-    ]
+            own = np.ones(zones.shape, np.uint8)
+            own[y0:y1, x0:x1] = 1 - mask
+            near |= cv2.distanceTransform(own, cv2.DIST_L2, 5) <= part.caliper_max_mm / mm_per_px
+    patch = np.isin(zones, list(met)) & near
     parts = []
     for part in result.parts:
-        if part.label in pieces:
+        if part.label in pieces or part.label in lit:
             _, (x0, y0, x1, y1), mask = contacts[part.label]
             filled = patch.copy()
             filled[y0:y1, x0:x1] |= mask
@@ -840,14 +851,15 @@ def clipped_faces(
     result.parts = parts
     rows, cols = np.nonzero(patch)
     centre = scale.plane_map.to_mm(np.array([[cols.mean(), rows.mean()]]))[0]
-    names = ", ".join(_region_name(p) for p in result.parts if p.label in pieces)
+    names = ", ".join(_region_name(p) for p in result.parts if p.label in pieces or p.label in lit)
     faces = ", ".join(str(label) for label in sorted(lit))
     return result, [
         f"clipped light: {names} border paper at the sensor's ceiling ({rows.size * mm_per_px**2:.3g} mm² about "
-        f"({centre[0]:.0f}, {centre[1]:.0f}) mm) into which the lit metal face of part(s) {faces} runs: the face "
-        "mirrors the light there as brightly as the paper, so the part's extent and outline are not seen; the term "
-        "'clipped_face' covers that region: do not use their figures; lower the exposure until the paper is below "
-        "the ceiling, photograph metal in diffuse light, or lay the parts on a dark backing sheet or a backlight"
+        f"({centre[0]:.0f}, {centre[1]:.0f}) mm): the lit metal face of part(s) {faces} may run on into it, as the dark "
+        "pieces found within it (a hole's shade, a wall) suggest, and a face mirroring the light there is as bright as "
+        "the paper, so that part's extent and outline are not seen; the term 'clipped_face' covers that region: do "
+        "not use their figures; lower the exposure until the paper is below the ceiling, photograph metal in diffuse "
+        "light, or lay the parts on a dark backing sheet or a backlight"
     ]
 
 
