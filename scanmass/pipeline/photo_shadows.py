@@ -758,7 +758,10 @@ def _white_parts(
 CLIP_MEETS_SHARE = 0.1
 #: Least share of that band on the zone for another found region to be taken as a piece of the lit part lost in
 #: it (:func:`clipped_faces`): on dev-lens-window-steel4-t20 the shade in the plate's small hole and the strip of
-#: its wall, 95 % and 73 %. No other found region of the tuned photos meets a zone a lit face meets.
+#: its wall, 95 % and 73 %, 1.6-3.0 mm wide. A piece is also no wider than :data:`PIECE_MAX_WIDTH_MM` (a wall's
+#: strip, a hole's shade): under the two lamps of the mixed renders the whole paper is clipped and parts 8 mm wide
+#: and more lie in it (dev-mixed-steel2-t15's bracket, dev-mixed-steel3-t22's plate: 52-54 % of their bands) beside
+#: a lit steel face.
 CLIP_PIECE_SHARE = 0.5
 
 
@@ -800,7 +803,7 @@ def clipped_faces(
     paper at the sensor's ceiling (:func:`~scanmass.segment.clipzone.clipped_zones`, over at least
     :data:`CLIP_MEETS_SHARE` of the band beyond its outline) may go on into that patch: its face there mirrors the
     light to the ceiling as the paper does, and nothing in the photo tells the two apart. Another found region
-    mostly within the same patch (:data:`CLIP_PIECE_SHARE` of its band) may be a piece of that part (the shade in
+    mostly within the same patch (:data:`CLIP_PIECE_SHARE` of its band) and narrow may be a piece of that part (the shade in
     its holes, the strip of its wall), not a part of its own; and such pieces say that the lit part goes on into
     the patch. Only then are the lit part and the pieces named: a lit part with no piece in its patch keeps its
     figures (where its grain reached its true edge, dev-lens-window-steel3-t20's plate, 1.1 mm off, it meets the
@@ -825,7 +828,10 @@ def clipped_faces(
     pieces = [
         label
         for label, (c, _, _) in contacts.items()
-        if c.zones & met and label not in lit and c.outside_share >= CLIP_PIECE_SHARE
+        if c.zones & met
+        and label not in lit
+        and c.outside_share >= CLIP_PIECE_SHARE
+        and inscribed_width_px(contacts[label][2]) * scale.plane_map.mm_per_px <= PIECE_MAX_WIDTH_MM
     ]
     if not pieces:
         return result, []
