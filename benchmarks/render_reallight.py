@@ -1000,6 +1000,18 @@ def dev_scenes():
             "Standard",
             40.0,
         ),
+        # branch litsteel32: the window lighting a plate's face to the sensor's ceiling with the paper beside it (as
+        # dev-lens-window-steel4-t20's plate), another plate and placement, the camera turned a little further
+        (
+            "dev-lens-window-steel7-t18",
+            "window",
+            [("plate4", "brushed-steel", 2.5, 95, 195, 15), ("gasket", "brushed-steel", 3.0, 125, 100, 0)],
+            315,
+            18,
+            30,
+            "Standard",
+            40.0,
+        ),
         (
             "dev-window-steel6-t22",
             "window",
