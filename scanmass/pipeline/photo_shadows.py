@@ -765,6 +765,14 @@ CLIP_MEETS_SHARE = 0.1
 CLIP_PIECE_SHARE = 0.5
 
 
+def _mirrors(part: Part) -> bool:
+    """Whether part of the face was seen mirroring the light near the paper's level: a lit face joined to it or
+    found by its grain (:func:`~scanmass.pipeline.part_terms.has_lit_face`), or pieces of it joined across a strip
+    of its sparkling face taken for paper (term ``fragments``: on the tuned render dev-lens-window-steel7-t18 at
+    the gasket's 3 mm the plate's corner has only that)."""
+    return has_lit_face(part) or "fragments" in part.uncertainty_terms
+
+
 def _clip_contacts(
     image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray
 ) -> tuple[np.ndarray, dict[int, tuple[ClipContact, tuple[int, int, int, int], np.ndarray]]]:
@@ -798,8 +806,8 @@ def clipped_faces(
 ) -> tuple[Measurement, list[str]]:
     """Name the found regions beside a zone of clipped paper into which a lit metal face runs, and cover that zone.
 
-    A part whose face was found where it mirrors the light near the paper's level (a lit face joined to it, or
-    a stretch found by its grain: :func:`~scanmass.pipeline.part_terms.has_lit_face`) and which meets a patch of
+    A part whose face was found where it mirrors the light near the paper's level (a lit face joined to it, a
+    stretch found by its grain, pieces joined across its sparkle: :func:`_mirrors`) and which meets a patch of
     paper at the sensor's ceiling (:func:`~scanmass.segment.clipzone.clipped_zones`, over at least
     :data:`CLIP_MEETS_SHARE` of the band beyond its outline) may go on into that patch: its face there mirrors the
     light to the ceiling as the paper does, and nothing in the photo tells the two apart. Another found region
@@ -820,7 +828,7 @@ def clipped_faces(
     lit = {
         label: c
         for label, (c, _, _) in contacts.items()
-        if c.outside_share >= CLIP_MEETS_SHARE and has_lit_face(next(p for p in result.parts if p.label == label))
+        if c.outside_share >= CLIP_MEETS_SHARE and _mirrors(next(p for p in result.parts if p.label == label))
     }
     if not lit:
         return result, []
