@@ -822,8 +822,8 @@ def clipped_faces(
     tests/data/reallight/dev-lens-window-steel4-t20 the steel plate, 2321 mm², was found as three pieces of
     538, 32 and 1.2 mm², two of them with sigmas that did not cover the part; branch litsteel32).
     """
-    if colour is None or not result.parts:
-        return result, []
+    if colour is None or not any(_mirrors(p) for p in result.parts):
+        return result, []  # no face seen mirroring the light: the zones are not read (a full-image pass)
     zones, contacts = _clip_contacts(image, scale, result, colour)
     lit = {
         label: c
