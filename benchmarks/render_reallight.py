@@ -46,7 +46,7 @@ belong to the tuned set::
         dev-window-steel4-t22 dev-spot-brass4-t17 dev-spot-brass5-t24 dev-window-disc8-t4 \
         dev-mixed-steel4-t8 dev-lens-window-steel-t24 dev-window-steel5-t14 dev-soft-brass2-t15 \
         dev-mixed-black5-t18 dev-lens-window-steel2-t16 dev-lens-window-steel3-t20 \
-        dev-lens-window-steel4-t20 dev-window-steel6-t22
+        dev-lens-window-steel4-t20 dev-window-steel6-t22 dev-lens-window-steel7-t18
     nice -n 19 python benchmarks/render_reallight.py --out tests/data/reallight --scanner --samples 48 \
         --scan-samples 24 --threads 1 --only dev-scan-brass-lamp30 dev-scan-steel-lamp30 dev-scan-mixed-lamp32 \
         dev-scan-collar-lamp30 dev-scan-bracket-lamp34 dev-scan-cam2-lamp33 dev-scan-bracket4-lamp29 \
@@ -997,6 +997,18 @@ def dev_scenes():
             315,
             20,
             25,
+            "Standard",
+            40.0,
+        ),
+        # branch litsteel32: the window lighting a plate's face to the sensor's ceiling with the paper beside it (as
+        # dev-lens-window-steel4-t20's plate), another plate and placement, the camera turned a little further
+        (
+            "dev-lens-window-steel7-t18",
+            "window",
+            [("plate4", "brushed-steel", 2.5, 95, 195, 15), ("gasket", "brushed-steel", 3.0, 125, 100, 0)],
+            315,
+            18,
+            30,
             "Standard",
             40.0,
         ),

@@ -49,6 +49,7 @@ from scanmass.pipeline.photo_shadows import (
     _cast_shadows,
     _shadows_only,
     _white_parts,
+    clipped_faces,
     loose_regions,
     white_walls_unread,
 )
@@ -958,6 +959,8 @@ def _measure_photo(
     warnings += _unclear_edges(image, scale, result)
     warnings += _hidden_holes(image, scale, result, thickness_mm)
     warnings += with_wall_thickness(scale, result, walls, raised)
+    result, clipped = clipped_faces(image, scale, result, colour)
+    warnings += clipped
     warnings += loose_regions(result)  # after every term: a region whose area sigma exceeds its area is named
     result.warnings = warnings + list(result.warnings)
     result.settings.update({"scale": method})

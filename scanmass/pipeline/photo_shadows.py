@@ -23,13 +23,14 @@ from scanmass.pipeline.part_terms import (
     area_share_term,
     has_lit_face,
 )
-from scanmass.pipeline.photo_checks import _part_crop, without_parts
+from scanmass.pipeline.photo_checks import _filled_box, _image_px, _part_crop, without_parts
 from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM, region_reading
 from scanmass.pipeline.photo_thickness import WallThickness
 from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
 from scanmass.scale.homography import ElevationHook
 from scanmass.scale.planemap import PlaneMap
+from scanmass.segment.clipzone import OUTSIDE_PX, ClipContact, clip_contact, clipped_zones
 from scanmass.segment.hiddenshadow import hidden_shadow
 from scanmass.segment.shadow import (
     SHADOW_FRACTION,
@@ -164,11 +165,28 @@ def _shadow_regions(
             and not has_lit_face(part)  # a lit face joined up to its sharp edge
             and not too_wide_for_shadow(mask, reach_t, mm_per_px)
             and not holed_face(part.area_mm2, [h.area_mm2 for h in part.holes], inscribed_width_px(mask) * mm_per_px)
+            and not walled_hole(result, part.label)
         ):
             shadows.append(part)
         elif looks_like_lit_white(crop_lin, mask, risk.paper_rgb):
             lit.append(part)
     return shadows, lit
+
+
+def walled_hole(result: Measurement, label: int) -> bool:
+    """True when a deep hole of part ``label`` was seen partly lit and partly in its wall's shade.
+
+    :func:`~scanmass.pipeline.photo_holes._open_deep_holes` (thickness given) traces a dark opening
+    inside a found region and notes it ``partly_seen`` where the floor seen through it is lit on one
+    side and shaded by the hole's wall on the other: a wall that stands above the paper around the
+    hole, so the region is a part's face, not a cast shadow alone (a shadow on the paper has no wall to
+    shade a floor within it). On tests/data/reallight/dev-lens-window-steel4-t20 the steel gasket's face
+    (lit near the paper's level by the window, its hole 30 mm across in a ring 7 mm wide, so no
+    :func:`~scanmass.segment.shadow.holed_face`) was named 'shadow only' at its 3.5 mm thickness and
+    not found; branch litsteel32.
+    """
+    notes = result.settings.get("deep_holes", {}).get(str(label), [])
+    return any(bool(n.get("partly_seen")) for n in notes if isinstance(n, dict))
 
 
 def _one_sided_mm(open_mm: float) -> float:
@@ -805,6 +823,132 @@ def _white_parts(
         "'white_face'); for better figures lay light parts on a dark backing sheet or use a backlight"
     )
     return result, frozenset(white), [note, *missed]
+
+
+#: Least share of the band beyond a found region's outline (:data:`~scanmass.segment.clipzone.OUTSIDE_PX`) on a
+#: clipped zone for the region to meet it (:func:`clipped_faces`). On tests/data/reallight/dev-lens-window-steel4-t20
+#: (branch litsteel32) the plate's lit face found by its grain meets the zone its clipped face shares with the paper
+#: over 20 % of its band; on dev-lens-window-steel3-t20 the plate found whole by its grain (within 1.1 mm) 48 %.
+CLIP_MEETS_SHARE = 0.1
+#: Least share of that band on the zone for another found region to be taken as a piece of the lit part lost in
+#: it (:func:`clipped_faces`): on dev-lens-window-steel4-t20 the shade in the plate's small hole and the strip of
+#: its wall, 95 % and 73 %, 1.6-3.0 mm wide. A piece is also no wider than :data:`PIECE_MAX_WIDTH_MM` (a wall's
+#: strip, a hole's shade): under the two lamps of the mixed renders the whole paper is clipped and parts 8 mm wide
+#: and more lie in it (dev-mixed-steel2-t15's bracket, dev-mixed-steel3-t22's plate: 52-54 % of their bands) beside
+#: a lit steel face.
+CLIP_PIECE_SHARE = 0.5
+
+
+def _mirrors(part: Part) -> bool:
+    """Whether part of the face was seen mirroring the light near the paper's level: a lit face joined to it or
+    found by its grain (:func:`~scanmass.pipeline.part_terms.has_lit_face`), or pieces of it joined across a strip
+    of its sparkling face taken for paper (term ``fragments``: on the tuned render dev-lens-window-steel7-t18 at
+    the gasket's 3 mm the plate's corner has only that)."""
+    return has_lit_face(part) or "fragments" in part.uncertainty_terms
+
+
+def _clip_contacts(
+    image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray
+) -> tuple[np.ndarray, dict[int, tuple[ClipContact, tuple[int, int, int, int], np.ndarray]]]:
+    """The photo's clipped zones and, per found region, how it meets them (with its box and filled mask)."""
+    lut = np.asarray(image.to_linear, dtype=np.float32)
+    height, width = image.grey.shape
+    (rx0, ry0, rx1, ry1), inside_box = _filled_box(scale.roi_px, (height, width))
+    zones = np.zeros((height, width), np.int32)
+    if inside_box.size:
+        zones[ry0:ry1, rx0:rx1], _ = clipped_zones(lut[colour[ry0:ry1, rx0:rx1]], inside_box.astype(bool))
+    pad = OUTSIDE_PX[1] + 2
+    out: dict[int, tuple[ClipContact, tuple[int, int, int, int], np.ndarray]] = {}
+    for part in result.parts:
+        if part.outline_mm is None:
+            continue
+        poly = np.round(_image_px(scale, np.asarray(part.outline_mm, float))).astype(np.int32)
+        x0, y0 = (max(int(v) - pad, 0) for v in poly.min(axis=0))
+        x1, y1 = min(int(poly[:, 0].max()) + pad + 1, width), min(int(poly[:, 1].max()) + pad + 1, height)
+        if x1 - x0 < 3 or y1 - y0 < 3:
+            continue
+        mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
+        cv2.fillPoly(mask, [poly - np.array([x0, y0], np.int32)], 1)
+        contact = clip_contact(zones[y0:y1, x0:x1], mask.astype(bool))
+        if contact is not None:
+            out[part.label] = (contact, (x0, y0, x1, y1), mask.astype(bool))
+    return zones, out
+
+
+def clipped_faces(
+    image: LoadedImage, scale: PhotoScale, result: Measurement, colour: np.ndarray | None
+) -> tuple[Measurement, list[str]]:
+    """Name the found regions beside a zone of clipped paper into which a lit metal face runs, and cover that zone.
+
+    A part whose face was found where it mirrors the light near the paper's level (a lit face joined to it, a
+    stretch found by its grain, pieces joined across its sparkle: :func:`_mirrors`) and which meets a patch of
+    paper at the sensor's ceiling (:func:`~scanmass.segment.clipzone.clipped_zones`, over at least
+    :data:`CLIP_MEETS_SHARE` of the band beyond its outline) may go on into that patch: its face there mirrors the
+    light to the ceiling as the paper does, and nothing in the photo tells the two apart. Another found region
+    mostly within the same patch (:data:`CLIP_PIECE_SHARE` of its band) and narrow may be a piece of that part (the shade in
+    its holes, the strip of its wall), not a part of its own; and such pieces say that the lit part goes on into
+    the patch. Only then are the lit part and the pieces named: a lit part with no piece in its patch keeps its
+    figures (where its grain reached its true edge, dev-lens-window-steel3-t20's plate, 1.1 mm off, it meets the
+    patch as one that stops short does). Each region named gets the term ``clipped_face``: the patch within the lit
+    part's largest caliper of it, with its own
+    region (area, the half extent on the centroid, the polar moment about the far corner on each second moment,
+    as :func:`_face_term`), so that its figures say only that the part is not known (on
+    tests/data/reallight/dev-lens-window-steel4-t20 the steel plate, 2321 mm², was found as three pieces of
+    538, 32 and 1.2 mm², two of them with sigmas that did not cover the part; branch litsteel32).
+    """
+    if colour is None or not any(_mirrors(p) for p in result.parts):
+        return result, []  # no face seen mirroring the light: the zones are not read (a full-image pass)
+    zones, contacts = _clip_contacts(image, scale, result, colour)
+    lit = {
+        label: c
+        for label, (c, _, _) in contacts.items()
+        if c.outside_share >= CLIP_MEETS_SHARE and _mirrors(next(p for p in result.parts if p.label == label))
+    }
+    if not lit:
+        return result, []
+    met = frozenset().union(*(c.zones for c in lit.values()))
+    pieces = [
+        label
+        for label, (c, _, _) in contacts.items()
+        if c.zones & met
+        and label not in lit
+        and c.outside_share >= CLIP_PIECE_SHARE
+        and inscribed_width_px(contacts[label][2]) * scale.plane_map.mm_per_px <= PIECE_MAX_WIDTH_MM
+    ]
+    if not pieces:
+        return result, []
+    met = frozenset().union(*(contacts[label][0].zones & met for label in pieces))
+    lit = {label: c for label, c in lit.items() if c.zones & met}
+    near = np.zeros(zones.shape, bool)  # the lit parts' regions, each grown by its largest caliper
+    mm_per_px = scale.plane_map.mm_per_px
+    for part in result.parts:
+        if part.label in lit:
+            _, (x0, y0, x1, y1), mask = contacts[part.label]
+            own = np.ones(zones.shape, np.uint8)
+            own[y0:y1, x0:x1] = 1 - mask
+            near |= cv2.distanceTransform(own, cv2.DIST_L2, 5) <= part.caliper_max_mm / mm_per_px
+    patch = np.isin(zones, list(met)) & near
+    parts = []
+    for part in result.parts:
+        if part.label in pieces or part.label in lit:
+            _, (x0, y0, x1, y1), mask = contacts[part.label]
+            filled = patch.copy()
+            filled[y0:y1, x0:x1] |= mask
+            part = _with_shadow_term(part, _face_term(filled, mm_per_px), 0.0, "clipped_face")
+        parts.append(part)
+    result.parts = parts
+    rows, cols = np.nonzero(patch)
+    centre = scale.plane_map.to_mm(np.array([[cols.mean(), rows.mean()]]))[0]
+    names = ", ".join(_region_name(p) for p in result.parts if p.label in pieces or p.label in lit)
+    faces = ", ".join(str(label) for label in sorted(lit))
+    return result, [
+        f"clipped light: {names} border paper at the sensor's ceiling ({rows.size * mm_per_px**2:.3g} mm² about "
+        f"({centre[0]:.0f}, {centre[1]:.0f}) mm): the lit metal face of part(s) {faces} may run on into it, as the dark "
+        "pieces found within it (a hole's shade, a wall) suggest, and a face mirroring the light there is as bright as "
+        "the paper, so that part's extent and outline are not seen; the term 'clipped_face' covers that region: do "
+        "not use their figures; lower the exposure until the paper is below the ceiling, photograph metal in diffuse "
+        "light, or lay the parts on a dark backing sheet or a backlight"
+    ]
 
 
 def loose_regions(result: Measurement) -> list[str]:
