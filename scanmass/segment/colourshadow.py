@@ -617,7 +617,7 @@ def tint_cut(
     neutral = part_mask & (tint < 0.5) & (depth <= reach_px + 2.0)
     dark = neutral & (level < TINT_CUT_DARK)
     beside = cv2.dilate(dark.astype(np.uint8), kernel, iterations=_TINT_BESIDE_PX).astype(bool)
-    linked = neutral & (dark | (cut.cut & beside))
+    linked = neutral & (dark | beside)
     near_paper = cv2.dilate((~filled).astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
     _, lab = cv2.connectedComponents(linked.astype(np.uint8), connectivity=8)
     hit = np.unique(lab[linked & near_paper])
@@ -637,8 +637,12 @@ def tint_cut(
         return None
     new |= cut.cut & part_mask & (depth > reach_px + 2.0)
     keep = part_mask & ~new
+    # the shadow's blurred rim beyond the outline, beside the cut: neutral and darker than half the paper (left dark, it
+    # would stay a strip of the region around the painted cut)
+    near_new = cv2.dilate(new.astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
+    fringe = ~part_mask & near_new & (tint < 0.5) & (level < 0.5)
     return ShadowCut(
-        cut=new | (cut.cut & ~part_mask),
+        cut=new | (cut.cut & ~part_mask) | fringe,
         cut_px=int(np.count_nonzero(new)),
         edge_px=_edge_px(new, keep),
         texture_face=cut.texture_face,
