@@ -547,6 +547,13 @@ TINT_CUT_MAX_SHADOW = 0.45
 #: Pixels (dilations) beside a dark shadow pixel over which :func:`tint_cut` takes a neutral pixel the cut took already
 #: (a soft shadow's fade brighter than :data:`TINT_CUT_DARK`): an edge's blur at the photos' scale.
 _TINT_BESIDE_PX = 2
+#: Largest tint (face 1, neutral 0) and level (over the paper white) of a pixel of a neutral shadow's core in
+#: :func:`tint_cut`, beside which the shadow's blurred rim goes with the cut. A blend of the face (level ``f``) with
+#: the lit paper (share ``c``) reads the level ``f (1 - c) + c`` and about the tint ``f (1 - c) / level`` (the face's
+#: share of the light, by the edge model: common practice); under a quarter of the face's tint it is brighter than
+#: ``4 f (1 - c)``, 0.06-0.12 for the faces :data:`TINT_CUT_DARK` is for (0.015-0.03): a core pixel is darker.
+_TINT_CORE_TINT = 0.25
+_TINT_CORE_LEVEL = 0.05
 #: Pixels (dilations) of the blurred paper rim between a shadow and the paper that :func:`tint_cut` reaches across.
 _TINT_RIM_PX = 3
 
@@ -617,7 +624,10 @@ def tint_cut(
     neutral = part_mask & (tint < 0.5) & (depth <= reach_px + 2.0)
     dark = neutral & (level < TINT_CUT_DARK)
     beside = cv2.dilate(dark.astype(np.uint8), kernel, iterations=_TINT_BESIDE_PX).astype(bool)
-    linked = neutral & (dark | beside)
+    # beside the shadow's core: pixels both neutral and dark, as no blend of the face with the lit paper is
+    core = neutral & (tint < _TINT_CORE_TINT) & (level < _TINT_CORE_LEVEL)
+    near_core = cv2.dilate(core.astype(np.uint8), kernel, iterations=_TINT_BESIDE_PX).astype(bool)
+    linked = neutral & (dark | (cut.cut & beside) | near_core)
     near_paper = cv2.dilate((~filled).astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
     _, lab = cv2.connectedComponents(linked.astype(np.uint8), connectivity=8)
     hit = np.unique(lab[linked & near_paper])
