@@ -626,7 +626,7 @@ def tint_cut(
     beside = cv2.dilate(dark.astype(np.uint8), kernel, iterations=_TINT_BESIDE_PX).astype(bool)
     # beside the shadow's core: pixels both neutral and dark, as no blend of the face with the lit paper is
     core = neutral & (tint < _TINT_CORE_TINT) & (level < _TINT_CORE_LEVEL)
-    near_core = cv2.dilate(core.astype(np.uint8), kernel, iterations=_TINT_BESIDE_PX).astype(bool)
+    near_core = cv2.dilate(core.astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
     linked = neutral & (dark | (cut.cut & beside) | near_core)
     near_paper = cv2.dilate((~filled).astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
     _, lab = cv2.connectedComponents(linked.astype(np.uint8), connectivity=8)
