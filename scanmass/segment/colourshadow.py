@@ -575,9 +575,15 @@ def tint_cut(
     :data:`TINT_CUT_MIN_CONTRAST` times the noise: the yellowness normalised to the face's median (1 on the
     face, 0 on a neutral shadow), smoothed over 0.7 px; the pixels of the region within ``reach_px`` + 2 px
     of its outline where it is under one half, dark (under :data:`TINT_CUT_DARK`, or cut already and beside a
-    dark one), reached from the paper outside the outline, are the cut; pixels of ``cut`` deeper in the region
-    or outside it (a fade beyond the outline) stay cut. The face's blurred rim against the lit paper (bright,
-    of the paper's colour on its outer half) is left to the face.
+    dark one, or within the blurred rim's reach of the shadow's core: neutral and darker than any blend of the
+    face with the lit paper, :data:`_TINT_CORE_TINT`, :data:`_TINT_CORE_LEVEL`), reached from the paper outside
+    the outline, are the cut; pixels of ``cut`` deeper in the region or outside it (a fade beyond the outline)
+    stay cut, and so does the shadow's rim beyond the outline beside the cut, neutral and darker than half the
+    paper (left, it would stay a strip of dark pixels around the painted cut). The face's blurred rim against
+    the lit paper (bright, of the paper's colour on its outer half) is left to the face.
+
+    ``part_mask`` should be the region as the photo shows it: on a raised face, its top edge where the photo
+    shows it (the shadow beyond that edge is the shadow to cut).
 
     Returns None where the face is not yellow enough (:data:`TINT_CUT_FACE`), its level stands
     apart from its shadow's, the tint's step is within the noise, fewer than 50 shadow pixels are found,
