@@ -18,11 +18,13 @@ Blender extruded; area and centroid by shapely).
 
 from __future__ import annotations
 
+import json
 import math
 
 import numpy as np
 import pytest
 from _reallight_truth import REALLIGHT, measured_part
+from shapely.geometry import Polygon
 
 from scanmass.segment.colourshadow import tint_cut
 from scanmass.segment.shadowlayer import ShadowCut
@@ -95,3 +97,9 @@ def test_thin_brass_bracket_under_a_hard_spot_light():
     assert len(part.holes) == len(tp["holes"])
     assert abs(err) <= 3 * part.area_u_mm2
     assert all(abs(c - t) <= 3 * u for c, t, u in zip(part.centroid_mm, tp["centroid"], part.centroid_u_mm))
+    # issue 11's worst-area target (1 %) on the outer outline alone (the holes, measured as their openings seen
+    # through 2.2 mm of brass, read 0.5-0.7 mm small): was +5.9 % (tests/test_reallight_corners.py)
+    truth = json.loads((REALLIGHT / "dev-spot-brass5-t24.json").read_text())
+    (outer,) = [p["outline_mm"] for p in truth["parts"] if p["shape"] == "l-bracket"]
+    measured = Polygon(np.asarray(part.outline_mm)).buffer(0)  # shapely: the measured outer outline's area
+    assert math.isclose(measured.area, Polygon(outer).area, rel_tol=0.01)
