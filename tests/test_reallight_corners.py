@@ -117,11 +117,12 @@ def test_bracket_error_within_3_sigma(name: str) -> None:
     strict=True,
     reason=(
         "the cast shadow's core is left in along the edges facing away from the light (0.3-1.1 mm; "
-        "dev-spot-brass5-t24 +5.9 %, dev-window-low-steel2-t8 +4.4 %, dev-spot-brass2-t27 +4.2 %, "
+        "dev-window-low-steel2-t8 +4.4 %, dev-spot-brass2-t27 +4.2 %, "
         "dev-window-disc8-t4 +4.0 %, dev-mixed-steel2-t15 +3.2 % on the outer outline): not the concave corner"
     ),
 )
-@pytest.mark.parametrize("name", [n for n in READ_LARGE if n != "dev-window-disc8-t4"])  # within 1 % since farband30
+# dev-window-disc8-t4 within 1 % since farband30, dev-spot-brass5-t24 since spotbrass32 (its tint cut on the region as seen)
+@pytest.mark.parametrize("name", [n for n in READ_LARGE if n not in ("dev-window-disc8-t4", "dev-spot-brass5-t24")])
 def test_outer_outline_within_target(name: str) -> None:
     """Issue 11's worst-area target (1 %) on the bracket's outer outline alone."""
     part, _tp, truth = _bracket(name)

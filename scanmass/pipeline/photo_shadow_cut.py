@@ -20,7 +20,7 @@ from scanmass.geometry import signed_area, vertex_normals
 from scanmass.load.decode import LoadedImage
 from scanmass.measurement import Measurement, Part
 from scanmass.pipeline.part_terms import _with_extra_term, _with_shadow_term, area_share_term, has_lit_face
-from scanmass.pipeline.photo_checks import _part_crop, relabelled
+from scanmass.pipeline.photo_checks import _image_px, _part_crop, relabelled
 from scanmass.pipeline.photo_cut_strips import _lies_within, _open_slivers, _painted_holes
 from scanmass.pipeline.photo_walls import with_top_seen
 from scanmass.scale.camera import PhotoScale
@@ -324,6 +324,24 @@ class _Decision:
     reached: bool  #: whether any part came to the cut's test or had a lost wall (a cut the thickness can move)
 
 
+def _seen_mask(scale: PhotoScale, part: Part, origin: tuple[int, int], shape: tuple[int, ...]) -> np.ndarray | None:
+    """A part's region as the photo shows it (:func:`~scanmass.pipeline.photo_checks._image_px`), holes cleared, in a crop.
+
+    None where the plane map lifts no face (the footprint is what the photo shows) or the part has no outline.
+    """
+    if not isinstance(scale.plane_map.undistort, ElevationHook) or part.outline_mm is None:
+        return None
+    if any(h.outline_mm is None for h in part.holes):
+        return None
+    off = np.asarray(origin, float)
+    seen = np.zeros(shape[:2], np.uint8)
+    cv2.fillPoly(seen, [np.round(_image_px(scale, np.asarray(part.outline_mm, float)) - off).astype(np.int32)], 1)
+    for h in part.holes:
+        ring = _image_px(scale, np.asarray(h.outline_mm, float), hole=True) - off
+        cv2.fillPoly(seen, [np.round(ring).astype(np.int32)], 0)
+    return seen.astype(bool)
+
+
 def _decide_cuts(
     image: LoadedImage,
     masked: LoadedImage,
@@ -555,7 +573,10 @@ def _decide_cuts(
             and thickness_mm <= TINT_CUT_MAX_THICKNESS_MM
         ):
             # a yellow (brass) face as dark as its neutral shadow under a hard light: the edge by its tint
-            by_tint = tint_cut(colour_lin, mask, risk.paper_rgb, cut, band_px)
+            # on the region as the photo shows it: the crop's mask is the footprint, which stops the parallax short of
+            # the top face's edge on the sides facing away from the camera (where the shadow lies beside that edge)
+            seen = _seen_mask(scale, part, (x0, y0), mask.shape)
+            by_tint = tint_cut(colour_lin, mask if seen is None else seen, risk.paper_rgb, cut, band_px)
             if by_tint is not None:
                 cut = by_tint
         if cut is not None and not dark and not coloured and risk is not None:

@@ -547,6 +547,13 @@ TINT_CUT_MAX_SHADOW = 0.45
 #: Pixels (dilations) beside a dark shadow pixel over which :func:`tint_cut` takes a neutral pixel the cut took already
 #: (a soft shadow's fade brighter than :data:`TINT_CUT_DARK`): an edge's blur at the photos' scale.
 _TINT_BESIDE_PX = 2
+#: Largest tint (face 1, neutral 0) and level (over the paper white) of a pixel of a neutral shadow's core in
+#: :func:`tint_cut`, beside which the shadow's blurred rim goes with the cut. A blend of the face (level ``f``) with
+#: the lit paper (share ``c``) reads the level ``f (1 - c) + c`` and about the tint ``f (1 - c) / level`` (the face's
+#: share of the light, by the edge model: common practice); under a quarter of the face's tint it is brighter than
+#: ``4 f (1 - c)``, 0.06-0.12 for the faces :data:`TINT_CUT_DARK` is for (0.015-0.03): a core pixel is darker.
+_TINT_CORE_TINT = 0.25
+_TINT_CORE_LEVEL = 0.05
 #: Pixels (dilations) of the blurred paper rim between a shadow and the paper that :func:`tint_cut` reaches across.
 _TINT_RIM_PX = 3
 
@@ -568,9 +575,15 @@ def tint_cut(
     :data:`TINT_CUT_MIN_CONTRAST` times the noise: the yellowness normalised to the face's median (1 on the
     face, 0 on a neutral shadow), smoothed over 0.7 px; the pixels of the region within ``reach_px`` + 2 px
     of its outline where it is under one half, dark (under :data:`TINT_CUT_DARK`, or cut already and beside a
-    dark one), reached from the paper outside the outline, are the cut; pixels of ``cut`` deeper in the region
-    or outside it (a fade beyond the outline) stay cut. The face's blurred rim against the lit paper (bright,
-    of the paper's colour on its outer half) is left to the face.
+    dark one, or within the blurred rim's reach of the shadow's core: neutral and darker than any blend of the
+    face with the lit paper, :data:`_TINT_CORE_TINT`, :data:`_TINT_CORE_LEVEL`), reached from the paper outside
+    the outline, are the cut; pixels of ``cut`` deeper in the region or outside it (a fade beyond the outline)
+    stay cut, and so does the shadow's rim beyond the outline beside the cut, neutral and darker than half the
+    paper (left, it would stay a strip of dark pixels around the painted cut). The face's blurred rim against
+    the lit paper (bright, of the paper's colour on its outer half) is left to the face.
+
+    ``part_mask`` should be the region as the photo shows it: on a raised face, its top edge where the photo
+    shows it (the shadow beyond that edge is the shadow to cut).
 
     Returns None where the face is not yellow enough (:data:`TINT_CUT_FACE`), its level stands
     apart from its shadow's, the tint's step is within the noise, fewer than 50 shadow pixels are found,
@@ -617,7 +630,10 @@ def tint_cut(
     neutral = part_mask & (tint < 0.5) & (depth <= reach_px + 2.0)
     dark = neutral & (level < TINT_CUT_DARK)
     beside = cv2.dilate(dark.astype(np.uint8), kernel, iterations=_TINT_BESIDE_PX).astype(bool)
-    linked = neutral & (dark | (cut.cut & beside))
+    # beside the shadow's core: pixels both neutral and dark, as no blend of the face with the lit paper is
+    core = neutral & (tint < _TINT_CORE_TINT) & (level < _TINT_CORE_LEVEL)
+    near_core = cv2.dilate(core.astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
+    linked = neutral & (dark | (cut.cut & beside) | near_core)
     near_paper = cv2.dilate((~filled).astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
     _, lab = cv2.connectedComponents(linked.astype(np.uint8), connectivity=8)
     hit = np.unique(lab[linked & near_paper])
@@ -637,8 +653,12 @@ def tint_cut(
         return None
     new |= cut.cut & part_mask & (depth > reach_px + 2.0)
     keep = part_mask & ~new
+    # the shadow's blurred rim beyond the outline, beside the cut: neutral and darker than half the paper (left dark, it
+    # would stay a strip of the region around the painted cut)
+    near_new = cv2.dilate(new.astype(np.uint8), kernel, iterations=_TINT_RIM_PX).astype(bool)
+    fringe = ~part_mask & near_new & (tint < 0.5) & (level < 0.5)
     return ShadowCut(
-        cut=new | (cut.cut & ~part_mask),
+        cut=new | (cut.cut & ~part_mask) | fringe,
         cut_px=int(np.count_nonzero(new)),
         edge_px=_edge_px(new, keep),
         texture_face=cut.texture_face,
