@@ -66,6 +66,16 @@ DEEP_HOLE_UNROUND_PX = 5.0
 #: (tests/data/reallight dev-spot-steel3-t20: the 2 mm steel cam's 8 mm bore traced out to 11.3 mm along
 #: its lit sector, edge 2.5 px, rms 0.58 px; the 3 mm plate's 6.5 mm holes 1.0 px, rms 0.09 px).
 DEEP_HOLE_SOFT_EDGE_PX = 2.0
+#: A dark pit is a brushed face's shading, not an opening, where its traced border is wider than this (px, the
+#: median distance between the 30 % and 70 % crossings) and the face is less than :data:`PIT_SHALLOW_RATIO` times
+#: as bright as the pit (:func:`_face_shading`). The pits opened on the tuned renders (tests/data/reallight,
+#: thickness given, 56 fits logged): borders 1.0-1.35 px where the face is under 3.2 times the pit (a small
+#: hole's dark floor: dev-window-steel3-t10 2.6 times, dev-spot-brass5-t24 2.8), and faces 7.3 times the pit
+#: where the border is wider (dev-window-disc8-t4, 2.6-3.1 px); the face's dark sector taken for a 9.2 mm hole
+#: on mixed-steel-t20's steel cam (the part -7.0 %): 2.8 px and 2.2 times.
+PIT_SOFT_SPREAD_PX = 2.0
+#: See :data:`PIT_SOFT_SPREAD_PX`.
+PIT_SHALLOW_RATIO = 3.0
 #: See :data:`DEEP_HOLE_REPLACE_PX` (px, rms of the opening's circle fit).
 DEEP_HOLE_CLEAN_RMS_PX = 0.5
 #: A found hole's opening traced with the midpoint rule on fewer than this share of its rays is traced
@@ -132,7 +142,9 @@ TINT_CLEAN_RMS_PX = DEEP_HOLE_CLEAN_RMS_PX
 #: How much wider (px) than the found hole a rim traced through a lamp's tinted shade
 #: (:func:`~scanmass.segment.tintrim.shade_rim`) must fit to replace it: the trace places every ray's border
 #: half-way in linear light between the face and what lies inside on that ray, so where it is wider at all the
-#: found ring stopped in that shade.
+#: found ring stopped in that shade. Tried only where the grey traces found no wider opening (the floor is seen
+#: up to the wall): beside a deep hole's wider opening (dev-mixed-black-t15's 3 mm plate, its 6.5 and 10 mm
+#: holes opened to -0.03 mm by :func:`_found_opening`) the trace read them 0.1-0.23 mm wide.
 SHADE_REPLACE_PX = 0.0
 #: A found hole's floor in its wall's shade is darker than the part's face by more than this many times the
 #: face's own scatter (:func:`_below_face_level`): a band of 3 sigma about a level is common practice for
@@ -156,6 +168,19 @@ def _near_side(ideal_px: np.ndarray, hook: ElevationHook, centre_top_mm: np.ndar
     centre_px = apply_h(hook.gh, np.asarray(centre_top_mm, float).reshape(1, 2))[0]
     parallax = ideal_px - apply_h(hook.to_footprint, ideal_px)  # away from the nadir
     return np.asarray(np.sum((ideal_px - centre_px) * parallax, axis=1) < 0)
+
+
+def _face_shading(edge: PitEdge) -> bool:
+    """Whether a dark pit's traced border is a brushed face's shading rather than a hole's top edge.
+
+    A through-hole's top edge is a step from the lit face to the hole's depth in shade: sharp (the optics'
+    blur) and deep. A brushed face mirrors the room, and a darker part of it shows as a sector whose level
+    falls gradually and not far: its border is soft and the pit is shallow. Both together: the median
+    30-70 % width of the border above :data:`PIT_SOFT_SPREAD_PX` and the pit's level above
+    1 / :data:`PIT_SHALLOW_RATIO` of the face's.
+    """
+    spread = float(np.median(edge.spread_px)) if len(edge.spread_px) else 0.0
+    return spread > PIT_SOFT_SPREAD_PX and edge.face_level < PIT_SHALLOW_RATIO * edge.pit_level
 
 
 def _top_circle(
@@ -407,7 +432,9 @@ def _tinted_opening(
     reach_px = TINT_REACH_BANDS * band_px + TINT_REACH_PX
     edge = tint_rim(seen_colour, lut, seen_mask, seed, reach_px)
     margin_px = DEEP_HOLE_REPLACE_PX
-    if edge is None:  # a floor much brighter than the face: its wall's shade from one lamp, tinted by the other
+    if edge is None and wide_mm <= hole.diameter_mm:
+        # a floor much brighter than the face, seen up to the wall (no wider opening traced in grey): a band of it
+        # in the wall's shade from one lamp, lit and tinted by the other, may have been taken for the face
         edge = shade_rim(seen_colour, lut, seen_mask, seed, reach_px)
         margin_px = SHADE_REPLACE_PX
     fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
@@ -646,6 +673,8 @@ def _deep_hole_circles(
     for x, y, d in pits:
         edge = pit_edge(lin, mask, (x, y), d)
         fit = None if edge is None else _top_circle(edge, (x0, y0), hook, mm_per_px, outline)
+        if fit is not None and edge is not None and _face_shading(edge):
+            continue  # a brushed face's dark sector, not an opening
         partly = False
         if fit is None and edge is not None and edge.lit_share > 0:
             fit = _lit_pit_opening(lin, mask, (x, y), d, (x0, y0), hook, mm_per_px, outline, shade_below, part.holes)
