@@ -68,11 +68,13 @@ DEEP_HOLE_UNROUND_PX = 5.0
 DEEP_HOLE_SOFT_EDGE_PX = 2.0
 #: A dark pit is a brushed face's shading, not an opening, where its traced border is wider than this (px, the
 #: median distance between the 30 % and 70 % crossings) and the face is less than :data:`PIT_SHALLOW_RATIO` times
-#: as bright as the pit (:func:`_face_shading`). The pits opened on the tuned renders (tests/data/reallight,
-#: thickness given, 56 fits logged): borders 1.0-1.35 px where the face is under 3.2 times the pit (a small
-#: hole's dark floor: dev-window-steel3-t10 2.6 times, dev-spot-brass5-t24 2.8), and faces 7.3 times the pit
-#: where the border is wider (dev-window-disc8-t4, 2.6-3.1 px); the face's dark sector taken for a 9.2 mm hole
-#: on mixed-steel-t20's steel cam (the part -7.0 %): 2.8 px and 2.2 times.
+#: as bright as the pit (:func:`_face_shading`). The pits fitted on the tuned renders (tests/data/reallight,
+#: thickness given, 65 fits logged, 61 on a true hole): borders 0.9-1.1 px where the face is under 3.2 times the
+#: pit (a small hole's dark floor: dev-window-steel3-t10 2.6 times, dev-spot-brass5-t24 2.8, window-mixed-t0),
+#: and faces 3.25-8 times the pit where the border is wider (dev-window-disc8-t4, lens-spot-brass-t30,
+#: spot-steel-t0: up to 5 px); the face's dark sector taken for a 9.2 mm hole on mixed-steel-t20's steel cam
+#: (the part -7.0 %): 2.8 px and 2.2 times. Two other false pits (dev-window-steel4-t22, window-steel-t25) are
+#: sharp or deep and stay.
 PIT_SOFT_SPREAD_PX = 2.0
 #: See :data:`PIT_SOFT_SPREAD_PX`.
 PIT_SHALLOW_RATIO = 3.0
