@@ -28,7 +28,7 @@ from scanmass.scale.planemap import PlaneMap
 from scanmass.section import fit_circle
 from scanmass.segment.deephole import NEAR_PX, SMOOTH_PX, PitEdge, lit_floor_ring, opening_edge, pit_edge
 from scanmass.segment.shadow import PIT_DEPTH, dark_pits
-from scanmass.segment.tintrim import shade_rim, tint_rim
+from scanmass.segment.tintrim import tint_rim
 from scanmass.uncertainty import combine
 
 #: Smallest share of a dark pit's rays that must meet the face (not a lit floor) for its opening to be traced.
@@ -141,13 +141,6 @@ TINT_REACH_PX = 4.0
 #: bore, its trace broken by a lit stretch, 0.68 px (-0.29 mm), and opened so it made the part's second
 #: measurement fail.
 TINT_CLEAN_RMS_PX = DEEP_HOLE_CLEAN_RMS_PX
-#: How much wider (px) than the found hole a rim traced through a lamp's tinted shade
-#: (:func:`~scanmass.segment.tintrim.shade_rim`) must fit to replace it: the trace places every ray's border
-#: half-way in linear light between the face and what lies inside on that ray, so where it is wider at all the
-#: found ring stopped in that shade. Tried only where the grey traces found no wider opening (the floor is seen
-#: up to the wall): beside a deep hole's wider opening (dev-mixed-black-t15's 3 mm plate, its 6.5 and 10 mm
-#: holes opened to -0.03 mm by :func:`_found_opening`) the trace read them 0.1-0.23 mm wide.
-SHADE_REPLACE_PX = 0.0
 #: A found hole's floor in its wall's shade is darker than the part's face by more than this many times the
 #: face's own scatter (:func:`_below_face_level`): a band of 3 sigma about a level is common practice for
 #: what noise alone reaches.
@@ -431,16 +424,9 @@ def _tinted_opening(
     traced in grey) by more than :data:`DEEP_HOLE_REPLACE_PX`, centred within the found hole's radius.
     """
     band_px = _wall_band_px(seed, origin, hook)
-    reach_px = TINT_REACH_BANDS * band_px + TINT_REACH_PX
-    edge = tint_rim(seen_colour, lut, seen_mask, seed, reach_px)
-    margin_px = DEEP_HOLE_REPLACE_PX
-    if edge is None and wide_mm <= hole.diameter_mm:
-        # a floor much brighter than the face, seen up to the wall (no wider opening traced in grey): a band of it
-        # in the wall's shade from one lamp, lit and tinted by the other, may have been taken for the face
-        edge = shade_rim(seen_colour, lut, seen_mask, seed, reach_px)
-        margin_px = SHADE_REPLACE_PX
+    edge = tint_rim(seen_colour, lut, seen_mask, seed, TINT_REACH_BANDS * band_px + TINT_REACH_PX)
     fit = None if edge is None else _top_circle(edge, origin, hook, mm_per_px, outline)
-    if fit is None or fit[2] > TINT_CLEAN_RMS_PX or fit[1] - wide_mm <= margin_px * mm_per_px:
+    if fit is None or fit[2] > TINT_CLEAN_RMS_PX or fit[1] - wide_mm <= DEEP_HOLE_REPLACE_PX * mm_per_px:
         return None
     if math.dist(fit[0], hole.circle_centre_mm) > 0.5 * hole.diameter_mm:
         return None

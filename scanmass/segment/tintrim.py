@@ -42,15 +42,6 @@ MAX_LEVEL_RATIO = 3.0
 #: A ray's crossing counts where the projected chroma stays below the midpoint for this far (px)
 #: beyond it (the face's tint holds outside the rim).
 HOLD_PX = 2.0
-#: :func:`shade_rim` acts only where a lamp's shade lies inside the rim: on at least this share of the traced rays the
-#: inside reads tinted beyond :data:`SHADE_TINT` times the floor's (the hole's core, lit by both lamps, reads 1 by
-#: construction; the paper lit by one lamp alone keeps that lamp's chroma undiluted). The committed renders
-#: (tests/data/reallight, thickness given): dev-mixed-black-t0's gasket bore 0.30, dev-lens-window-steel4-t20's
-#: 0.14; holes where the trace read no better or broke the re-measure 0.01-0.03 (dev-mixed-steel4-t8's plate: its
-#: 11 mm hole's trace made a painted opening that was not found again; dev-spot-black-t12's collar, one light).
-MIN_SHADED_SHARE = 0.1
-#: See :data:`MIN_SHADED_SHARE`.
-SHADE_TINT = 1.5
 
 
 def _chroma(colour: np.ndarray, lut: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -64,16 +55,11 @@ def _chroma(colour: np.ndarray, lut: np.ndarray) -> tuple[np.ndarray, np.ndarray
 
 
 def _levels(
-    chroma: np.ndarray,
-    total: np.ndarray,
-    part_mask: np.ndarray,
-    seed: np.ndarray,
-    reach_px: float,
-    max_ratio: float = MAX_LEVEL_RATIO,
+    chroma: np.ndarray, total: np.ndarray, part_mask: np.ndarray, seed: np.ndarray, reach_px: float
 ) -> tuple[np.ndarray, float, float, float, float, float] | None:
     """The level along the line from the face's tint to the seed's core's: (level image, separation, the
     face's scatter, centre x, centre y, the seed's equal-area radius); None without enough face or core, or
-    where their levels differ by more than ``max_ratio``."""
+    where their levels differ by more than :data:`MAX_LEVEL_RATIO`."""
     n_seed = int(np.count_nonzero(seed))
     if n_seed < 5:
         return None
@@ -89,7 +75,7 @@ def _levels(
     if np.count_nonzero(face) < 30 or np.count_nonzero(core) < 3:
         return None
     lit = float(np.median(total[face])), float(np.median(total[core]))
-    if max(lit) > max_ratio * max(min(lit), 1e-6):
+    if max(lit) > MAX_LEVEL_RATIO * max(min(lit), 1e-6):
         return None
     face_c = np.median(chroma[face], axis=0)
     step = np.median(chroma[core], axis=0) - face_c
@@ -178,93 +164,6 @@ def tint_rim(
         pts.append((cx + math.cos(angles[k]) * r_mid, cy + math.sin(angles[k]) * r_mid))
         spread.append(width)
     if len(pts) < 12:
-        return None
-    return PitEdge(
-        points_px=np.asarray(pts, float),
-        spread_px=np.asarray(spread, float),
-        face_level=0.0,
-        pit_level=sep,
-        share=len(pts) / rays,
-    )
-
-
-def shade_rim(
-    colour: np.ndarray, lut: np.ndarray, part_mask: np.ndarray, seed: np.ndarray, reach_px: float, *, rays: int = RAYS
-) -> PitEdge | None:
-    """A hole's rim at the top face where its lit floor is much brighter than the face, found by the tint of a lamp's shade.
-
-    Under two lamps of different colours the paper inside a hole, in the shade its wall casts from one lamp, is lit
-    by the other alone and takes that lamp's tint; beside a dark face it can be nearly as dark as the face, so the
-    grey level takes that band for the face and the hole reads small on that side. :func:`tint_rim` leaves a hole
-    whose floor is more than :data:`MAX_LEVEL_RATIO` brighter than the face to the grey level, as a ratio of
-    chroma leans towards the brighter side of a blurred border. Here each ray finds the border as
-    :func:`tint_rim` does (the face's tint begins), then places it where the pixels are half-way in linear
-    light (all three channels) between the inside's colour on that ray (the shade, or the lit floor where no
-    shade lies there) and the face's just beyond: a pixel on the border is the sum of the two, each weighted
-    by its share of the pixel, whatever their brightnesses.
-
-    Parameters and result as :func:`tint_rim`; None where the hole's chroma is not told from the face's
-    (:data:`MIN_SEPARATION`) or fewer than 12 rays are traced.
-
-    References
-    ----------
-    The diagonal model of a surface lit by several lights (each light's colour scaled per channel by the
-    reflectance), as in :mod:`scanmass.segment.colourshadow`; a blurred step's half-way crossing as its edge
-    (common practice of edge location).
-    """
-    chroma, total = _chroma(colour, lut)
-    got = _levels(chroma, total, part_mask, seed, reach_px, max_ratio=math.inf)
-    if got is None:
-        return None
-    level, sep, scatter, cx, cy, r_seed = got
-    if sep < MIN_SEPARATION * scatter:
-        return None
-    lin = lut[colour].astype(np.float32)
-    radii = np.arange(0.0, r_seed + reach_px + FACE_RING_GAP_PX, RAY_STEP_PX, dtype=np.float32)
-    angles = np.linspace(0.0, 2 * math.pi, rays, endpoint=False)
-    map_x = (cx + np.cos(angles)[:, None] * radii[None, :]).astype(np.float32)
-    map_y = (cy + np.sin(angles)[:, None] * radii[None, :]).astype(np.float32)
-    prof = cv2.remap(level.astype(np.float32), map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-    rgb = cv2.remap(lin, map_x, map_y, cv2.INTER_LINEAR, borderMode=cv2.BORDER_REPLICATE)
-    on_part = cv2.remap((part_mask | seed).astype(np.float32), map_x, map_y, cv2.INTER_NEAREST, borderValue=0.0) > 0.5
-    hold = int(round(HOLD_PX / RAY_STEP_PX))
-    start = int(0.5 * r_seed / RAY_STEP_PX)
-    pts, spread = [], []
-    tinted: list[float] = []  # per traced ray: the inside's strongest tint, in units of the floor's
-    for k in range(rays):
-        p = prof[k]
-        run = np.convolve((p[start:] < 0.5 * sep).astype(np.int32), np.ones(hold, np.int32), mode="valid")
-        full = np.flatnonzero(run == hold)
-        if len(full) == 0:
-            continue
-        i = start + int(full[0])
-        if i < 1 or i + 2 * hold >= len(p) or not on_part[k, i : i + 2 * hold].all():
-            continue
-        base = max(i - 2 * hold, 0)
-        if float(p[base:i].max()) - float(np.median(p[i + hold : i + 2 * hold])) < 0.5 * sep:
-            continue
-        # the inside's colour where its tint is strongest on the ray (the shade, or the floor), over a pixel
-        top = base + int(np.argmax(p[base:i]))
-        inner = rgb[k, max(top - hold // 2, 0) : top + hold // 2 + 1].mean(axis=0)
-        outer = np.median(rgb[k, i + hold : i + 2 * hold], axis=0)
-        step = inner - outer
-        norm = float(step @ step)
-        if norm <= 0:
-            continue
-        share = (rgb[k, top : i + hold] - outer) @ step / norm  # 1 inside, 0 on the face
-        down = np.flatnonzero((share[:-1] >= 0.5) & (share[1:] < 0.5))
-        if len(down) == 0:
-            continue
-        j = int(down[-1])
-        hi, lo = float(share[j]), float(share[j + 1])
-        r_mid = radii[top + j] + RAY_STEP_PX * (hi - 0.5) / max(hi - lo, 1e-12)
-        c70 = np.flatnonzero((share[:-1] >= 0.7) & (share[1:] < 0.7))
-        c30 = np.flatnonzero((share[:-1] >= 0.3) & (share[1:] < 0.3))
-        width = abs(float(radii[top + c30[-1]] - radii[top + c70[-1]])) if len(c70) and len(c30) else 4 * HOLD_PX
-        pts.append((cx + math.cos(angles[k]) * r_mid, cy + math.sin(angles[k]) * r_mid))
-        spread.append(width)
-        tinted.append(float(p[base:i].max()) / sep)
-    if len(pts) < 12 or np.mean(np.asarray(tinted) > SHADE_TINT) < MIN_SHADED_SHARE:
         return None
     return PitEdge(
         points_px=np.asarray(pts, float),
