@@ -33,8 +33,8 @@ def _pit(level: float, blur_px: float) -> tuple[np.ndarray, np.ndarray]:
 
 
 def test_a_sharp_deep_pit_is_an_opening():
-    """A hole's dark floor: 20 times darker than the face, blurred as an edge in focus (sigma 0.6 px, a 30-70 %
-    width of about 0.6 px): not the face's shading."""
+    """A hole's dark floor: 20 times darker than the face, blurred as an edge in focus (sigma 0.6 px; its 30-70 %
+    width read 1.0 px): not the face's shading."""
     lin, mask = _pit(0.005, 0.6)
     edge = pit_edge(lin, mask, (47.5, 47.5), 24.0)
     assert edge is not None
@@ -43,7 +43,7 @@ def test_a_sharp_deep_pit_is_an_opening():
 
 def test_a_soft_shallow_sector_is_the_faces_shading():
     """A mirrored darker sector: 2.2 times darker than the face (as mixed-steel-t20's cam, the start of stop 32),
-    its level falling over a few px (sigma 3 px, a 30-70 % width of about 3.1 px): the face's shading."""
+    its level falling over a few px (sigma 3 px; read 3.1 px): the face's shading."""
     lin, mask = _pit(0.045, 3.0)
     edge = pit_edge(lin, mask, (47.5, 47.5), 24.0)
     assert edge is not None
