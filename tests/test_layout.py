@@ -237,3 +237,18 @@ def test_layer_rule_flags_an_upward_import_and_allows_a_downward_one():
 )
 def test_import_reader(source, expected):
     assert {m for m, _ in _imported("scanmass.segment", ast.parse(source))} == expected
+
+
+def test_tests_import_their_helpers_as_top_level_modules():
+    """CI runs the installed package with ``PYTHONSAFEPATH=1 pytest --pyargs``, where ``tests`` is no package: a test
+    module importing ``tests._helper`` fails to collect and stops the whole session (stops 31 and 32). The helpers
+    are on the path as top-level modules (``from _reallight_truth import ...``)."""
+    here = Path(__file__).resolve().parent
+    bad = [
+        f"{path.name}:{node.lineno}"
+        for path in sorted(here.glob("*.py"))
+        for node in ast.walk(ast.parse(path.read_text()))
+        if (isinstance(node, ast.ImportFrom) and (node.module or "").split(".")[0] == "tests")
+        or (isinstance(node, ast.Import) and any(a.name.split(".")[0] == "tests" for a in node.names))
+    ]
+    assert not bad, f"import the test helpers as top-level modules, not through 'tests.': {bad}"

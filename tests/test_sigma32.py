@@ -14,10 +14,10 @@ import math
 
 import numpy as np
 import pytest
+from _reallight_truth import measured_part
 
 from scanmass.measurement import Part
 from scanmass.pipeline.photo_shadows import _below_white_face, ring_band_mean_px
-from tests._reallight_truth import measured_part
 
 
 def _circle(cx: float, cy: float, r: float, n: int = 360) -> np.ndarray:
