@@ -1074,15 +1074,6 @@ def dev_scenes():
             "Filmic",
         ),
         (
-            "dev-window-nylon6-t12",
-            "window",
-            [("cam", "white-nylon", 6.0, 125, 190, 110), ("plate", "brushed-steel", 3.0, 85, 100, 40)],
-            315,
-            12,
-            280,
-            "Standard",
-        ),
-        (
             "dev-window-nylon7-t16",
             "window",
             [("plate", "brushed-steel", 2.5, 120, 100, 35), ("cam", "white-nylon", 4.5, 90, 190, -20)],
