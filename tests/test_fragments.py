@@ -71,26 +71,6 @@ def test_a_piece_beyond_reach_is_another_part():
     assert _find(img, [_square(1, 20, 20, 79), _square(2, 150, 50, 8)]) == []
 
 
-def test_a_region_within_the_larger_ones_material_is_found_twice():
-    """A region lying within a larger one's material is that region found again (enclosed): its area is counted
-    already; one lying in the larger one's hole (a washer in a bore) is a part of its own. Check values: the
-    squares' areas drawn, their overlap by shapely."""
-    rng = np.random.default_rng(2)
-    img = 0.9 + 0.01 * rng.standard_normal((140, 200))
-    img[20:100, 20:100] = 0.1
-    big = _square(1, 20, 20, 79)
-    inside = _square(2, 40, 40, 10)
-    assert sg.box(40, 40, 50, 50).within(sg.box(20, 20, 99, 99))
-    found = _find(img, [big, inside])
-    assert [(f.label, f.into, f.enclosed) for f in found] == [(2, 1, True)]
-    bored = PartRings(1, big.outer_px, [np.array([[35, 35], [65, 35], [65, 65], [35, 65]], float)], False,
-                      big.bbox_px, big.area_px - 900.0, 1.0, 0.0, np.ones(4), 1.0, 0.0)  # fmt: skip
-    img[35:66, 35:66] = 0.9
-    img[40:51, 40:51] = 0.1
-    assert sg.box(40, 40, 50, 50).within(sg.box(35, 35, 65, 65))  # the washer lies in the bore
-    assert _find(img, [bored, inside]) == []
-
-
 def test_fragment_term_is_the_hull_less_the_pieces():
     """The term's area: the pieces' convex hull less their area, both from shapely."""
     from scanmass.pipeline.part_terms import with_fragment_term

@@ -470,11 +470,9 @@ def measure_image(
     if roi_px is not None and len(seg.parts) > 1:  # photos: a grainy face found in pieces
         fragments = find_fragments(image.grey, np.asarray(image.to_linear, np.float32), seg.parts, roi_px)
         merged = {f.label: f.into for f in fragments}
-        enclosed = {f.label for f in fragments if f.enclosed}  # found twice: counted in the larger region already
         for r in seg.parts:
-            if r.label in merged and r.label not in enclosed:
+            if r.label in merged:
                 pieces.setdefault(merged[r.label], []).append(r)
-        fragments = [f for f in fragments if not f.enclosed]
         seg.parts = [r for r in seg.parts if r.label not in merged]
     necks = [touching_lobes(r.outer_px, list(r.holes_px)) for r in seg.parts]
     splits = _touch_splits(image, seg.parts, seg.polarity, necks)

@@ -52,9 +52,6 @@ class Fragment:
     gap_px: float
     strip_grain: float
     paper_grain: float
-    #: The piece lies within the larger piece's material (not in one of its holes): found twice,
-    #: as a region of its own and within the larger one's outline, so its area is counted already
-    enclosed: bool = False
 
 
 def _paper_grain(
@@ -96,28 +93,6 @@ def _mask(rings: PartRings, shape: tuple[int, int], origin: np.ndarray) -> np.nd
     mask = np.zeros(shape, np.uint8)
     cv2.fillPoly(mask, [np.round(rings.outer_px - origin).astype(np.int32)], 1)
     return mask
-
-
-#: A region with at least this share of its pixels within a larger region's material is that
-#: region found a second time (dev-spot-steel4-t28's bracket: four of its five merged pieces
-#: lay 96-100 % within its own outline and were added to its area again, +55 mm² or 6.6 %)
-ENCLOSED_SHARE = 0.5
-
-
-def _enclosed_share(small: PartRings, big: PartRings) -> float:
-    """The share of ``small``'s filled outline that lies within ``big``'s material (its outer ring less its holes)."""
-    sx0, sy0, sx1, sy1 = small.bbox_px
-    bx0, by0, bx1, by1 = big.bbox_px
-    if sx0 > bx1 or bx0 > sx1 or sy0 > by1 or by0 > sy1:
-        return 0.0
-    origin = np.array([sx0 - 1, sy0 - 1], float)
-    shape = (int(sy1 - sy0) + 3, int(sx1 - sx0) + 3)
-    m_small = _mask(small, shape, origin).astype(bool)
-    material = _mask(big, shape, origin)
-    for hole in big.holes_px:
-        cv2.fillPoly(material, [np.round(np.asarray(hole) - origin).astype(np.int32)], 0)
-    n = int(np.count_nonzero(m_small))
-    return float(np.count_nonzero(m_small & material.astype(bool))) / n if n else 0.0
 
 
 def find_fragments(
@@ -177,16 +152,6 @@ def find_fragments(
     order = sorted(parts, key=lambda r: r.area_px)
     for small in order:
         best: Fragment | None = None
-        within = [
-            big
-            for big in parts
-            if big is not small and big.label not in taken and big.area_px > small.area_px
-            and _enclosed_share(small, big) >= ENCLOSED_SHARE
-        ]  # fmt: skip
-        if within:
-            out.append(Fragment(small.label, within[0].label, 0.0, math.nan, math.nan, enclosed=True))
-            taken.add(small.label)
-            continue
         for big in parts:
             if big is small or big.label in taken or big.area_px < FRAGMENT_AREA_RATIO * max(small.area_px, 1e-9):
                 continue
