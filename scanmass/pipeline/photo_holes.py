@@ -709,8 +709,8 @@ def _apart(
     that takes in a smaller opening traced whole (a pit's or a found hole's, not ``partly``), other than its
     own (centres more than a quarter of the smaller's diameter apart, as :func:`_open_deep_holes` tells one
     opening from another), ran over the face around that hole: it is left out (tests/data/reallight
-    dev-window-nylon8-t24, no thickness given: a 23.6 mm 'opening' grown from the lit floor of the steel plate's 10 mm hole
-    over its 6.5 mm hole).
+    dev-window-nylon8-t24, no thickness given: a 23.6 mm 'opening' grown from the lit floor of the steel
+    plate's 10 mm hole over its 6.5 mm hole).
     """
     apart = []
     for e in entries:
