@@ -13,9 +13,9 @@ import re
 
 import numpy as np
 import pytest
+from _reallight_truth import REALLIGHT, truth_part
 
 from scanmass.pipeline.photo_holes import _apart
-from tests._reallight_truth import REALLIGHT, truth_part
 
 
 def _entry(x: float, y: float, d: float, doubt: float = 1.0, partly: bool = False, ring: bool = False):
