@@ -752,7 +752,7 @@ def _apart(
             apart.append(e)
     # one opening found twice (a pit's trace and the found hole's, or two pits' levels) is opened once, as
     # the found hole's (its ring is replaced), with the larger of their edge doubts: both discs painted read
-    # as their union, wider than either (dev-window-nylon6-t12's 6.5 mm hole: 7.00 and 6.32 mm, read 7.05)
+    # as their union, wider than either (a 6.5 mm hole of a window render since removed from the tuned set: 7.00 and 6.32 mm, read 7.05)
     keep: list[tuple[np.ndarray, float, float, bool, np.ndarray | None, bool]] = []
     for e in sorted(apart, key=lambda e: e[4] is None):
         same = [i for i, f in enumerate(keep) if math.dist(e[0], f[0]) <= 0.25 * min(e[1], f[1])]
