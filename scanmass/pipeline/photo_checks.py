@@ -106,9 +106,7 @@ def _mask_outside(image: LoadedImage, roi_px: np.ndarray) -> LoadedImage:
     """
     height, width = image.grey.shape
     poly = np.round(roi_px).astype(np.int32)
-    pad = 10
-    x0, y0 = (max(int(v) - pad, 0) for v in poly.min(axis=0))
-    x1, y1 = min(int(poly[:, 0].max()) + pad + 1, width), min(int(poly[:, 1].max()) + pad + 1, height)
+    x0, y0, x1, y1 = _padded_box(poly, 10, (height, width))
     x0, y0 = min(x0, x1), min(y0, y1)
     mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
     if mask.size:
@@ -244,6 +242,15 @@ def _photo_colour(image: LoadedImage) -> np.ndarray | None:
     if _grey_planes(colour):
         return None  # a grey photo: colour tells nothing
     return colour
+
+
+def _padded_box(poly: np.ndarray, pad: int, shape: tuple[int, int]) -> tuple[int, int, int, int]:
+    """The box (x0, y0, x1, y1; px, end exclusive) around a pixel polygon, padded by ``pad`` and clipped to an
+    image of ``shape`` (rows, columns); empty (x1 <= x0 or y1 <= y0) where the polygon lies off the image."""
+    height, width = shape
+    x0, y0 = (max(int(v) - pad, 0) for v in poly.min(axis=0))
+    x1, y1 = min(int(poly[:, 0].max()) + pad + 1, width), min(int(poly[:, 1].max()) + pad + 1, height)
+    return x0, y0, x1, y1
 
 
 def _image_px(scale: PhotoScale, ring_mm: np.ndarray, hole: bool = False) -> np.ndarray:
@@ -491,8 +498,7 @@ def brighter_surrounds(image: LoadedImage, scale: PhotoScale, result: Measuremen
         if part.outline_mm is None:
             continue
         poly = np.round(_image_px(scale, np.asarray(part.outline_mm, float))).astype(np.int32)
-        x0, y0 = (max(int(v) - pad, 0) for v in poly.min(axis=0))
-        x1, y1 = min(int(poly[:, 0].max()) + pad + 1, width), min(int(poly[:, 1].max()) + pad + 1, height)
+        x0, y0, x1, y1 = _padded_box(poly, pad, (height, width))
         if x1 <= x0 or y1 <= y0:
             continue  # the outline lies off the photo: no band within it
         mask = np.zeros((y1 - y0, x1 - x0), np.uint8)

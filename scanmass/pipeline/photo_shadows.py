@@ -23,7 +23,7 @@ from scanmass.pipeline.part_terms import (
     area_share_term,
     has_lit_face,
 )
-from scanmass.pipeline.photo_checks import _filled_box, _image_px, _part_crop, without_parts
+from scanmass.pipeline.photo_checks import _filled_box, _image_px, _padded_box, _part_crop, without_parts
 from scanmass.pipeline.photo_shadow_cut import SHADOW_CUT_UNKNOWN_THICKNESS_MM, region_reading
 from scanmass.pipeline.photo_thickness import WallThickness
 from scanmass.pipeline.photo_walls import with_top_seen
@@ -863,8 +863,7 @@ def _clip_contacts(
         if part.outline_mm is None:
             continue
         poly = np.round(_image_px(scale, np.asarray(part.outline_mm, float))).astype(np.int32)
-        x0, y0 = (max(int(v) - pad, 0) for v in poly.min(axis=0))
-        x1, y1 = min(int(poly[:, 0].max()) + pad + 1, width), min(int(poly[:, 1].max()) + pad + 1, height)
+        x0, y0, x1, y1 = _padded_box(poly, pad, (height, width))
         if x1 - x0 < 3 or y1 - y0 < 3:
             continue
         mask = np.zeros((y1 - y0, x1 - x0), np.uint8)
